@@ -1,0 +1,228 @@
+// The in-memory form of an ONNX model that every other module works on.
+//
+// Lossless by construction: every message read from a file keeps `origin`, the exact bytes it came from,
+// plus `extra`, the fields pleat does not model (including fields newer than the bundled schema). The
+// writer re-emits `origin` for any message whose modelled fields still match what was read, so a model
+// with no change comes out byte-identical, and a changed one keeps every untouched message byte for byte.
+// Code that changes tensor data in place must call `touch(tensor)` (see src/graph/edit.ts).
+
+/** A protobuf field kept as its original bytes (tag included). */
+export interface RawField {
+  field: number;
+  bytes: Uint8Array;
+}
+
+/** Where a message came from: its bytes, its unmodelled fields, and a signature of its modelled ones. */
+export interface Origin {
+  bytes: Uint8Array;
+  /** Signature of the modelled fields at read time; the writer compares it to decide whether to re-emit `bytes`. */
+  sig: string;
+  /** Field numbers in their original order (used to keep field order when a message is re-encoded). */
+  order: number[];
+}
+
+/** ONNX TensorProto.DataType codes. */
+export const DataType = {
+  UNDEFINED: 0,
+  FLOAT: 1,
+  UINT8: 2,
+  INT8: 3,
+  UINT16: 4,
+  INT16: 5,
+  INT32: 6,
+  INT64: 7,
+  STRING: 8,
+  BOOL: 9,
+  FLOAT16: 10,
+  DOUBLE: 11,
+  UINT32: 12,
+  UINT64: 13,
+  COMPLEX64: 14,
+  COMPLEX128: 15,
+  BFLOAT16: 16,
+} as const;
+export type DataTypeCode = number;
+
+/**
+ * How a tensor's elements are stored. Exactly mirrors the TensorProto field that held them, so an untouched
+ * tensor re-encodes to the same bytes and a changed one is written back in its own form.
+ */
+export type TensorStorage =
+  | { kind: 'raw'; bytes: Uint8Array } // raw_data, little-endian
+  | { kind: 'float_data'; values: Float32Array }
+  | { kind: 'int32_data'; values: Int32Array } // int32/int16/int8/uint16/uint8/bool, and float16/bfloat16 bits
+  | { kind: 'int64_data'; values: BigInt64Array }
+  | { kind: 'uint64_data'; values: BigUint64Array }
+  | { kind: 'double_data'; values: Float64Array }
+  | { kind: 'string_data'; values: Uint8Array[] }
+  | { kind: 'external'; entries: Array<[string, string]>; bytes: Uint8Array } // bytes loaded from the side file
+  | { kind: 'empty' };
+
+export interface Tensor {
+  name: string;
+  dims: number[];
+  dataType: DataTypeCode;
+  storage: TensorStorage;
+  docString: string;
+  extra: RawField[];
+  origin?: Origin;
+}
+
+export type AttributeValue =
+  | { type: 'FLOAT'; f: number }
+  | { type: 'INT'; i: number }
+  | { type: 'STRING'; s: Uint8Array }
+  | { type: 'TENSOR'; t: Tensor }
+  | { type: 'GRAPH'; g: Graph }
+  | { type: 'FLOATS'; floats: number[] }
+  | { type: 'INTS'; ints: number[] }
+  | { type: 'STRINGS'; strings: Uint8Array[] }
+  | { type: 'TENSORS'; tensors: Tensor[] }
+  | { type: 'GRAPHS'; graphs: Graph[] }
+  | { type: 'OTHER'; code: number }; // sparse tensors, type protos, unknown: kept in `extra`
+
+export interface Attribute {
+  name: string;
+  value: AttributeValue;
+  docString: string;
+  refAttrName: string;
+  extra: RawField[];
+  origin?: Origin;
+}
+
+export interface Node {
+  name: string;
+  opType: string;
+  domain: string; // '' means the default ONNX domain ('ai.onnx')
+  inputs: string[]; // '' marks an omitted optional input
+  outputs: string[];
+  attributes: Attribute[];
+  docString: string;
+  extra: RawField[];
+  origin?: Origin;
+}
+
+/** A dimension: a number, a symbolic name, or unknown. */
+export type Dim = number | string | null;
+
+export interface ValueInfo {
+  name: string;
+  /** Element type when the value is a tensor, else undefined (sequences, maps, optionals). */
+  elemType?: DataTypeCode;
+  /** Shape when known; undefined means rank unknown. */
+  shape?: Dim[];
+  docString: string;
+  /** The TypeProto exactly as read (re-emitted when elemType/shape are unchanged). */
+  typeBytes?: Uint8Array;
+  typeSig?: string;
+  extra: RawField[];
+  origin?: Origin;
+}
+
+export interface Graph {
+  name: string;
+  nodes: Node[];
+  /** Initializers in file order. */
+  initializers: Tensor[];
+  inputs: ValueInfo[];
+  outputs: ValueInfo[];
+  valueInfo: ValueInfo[];
+  docString: string;
+  extra: RawField[];
+  origin?: Origin;
+}
+
+export interface OpsetImport {
+  domain: string;
+  version: number;
+  extra: RawField[];
+  origin?: Origin;
+}
+
+export interface Model {
+  irVersion: number;
+  opsets: OpsetImport[];
+  producerName: string;
+  producerVersion: string;
+  domain: string;
+  modelVersion: number;
+  docString: string;
+  graph: Graph;
+  metadata: Array<[string, string]>;
+  /** Unmodelled top-level fields (functions, training_info, newer fields). */
+  extra: RawField[];
+  origin?: Origin;
+  /** Folder the model was read from: external data locations are relative to it. */
+  baseDir: string;
+}
+
+/** Look up the opset version a model imports for a domain ('' and 'ai.onnx' are the same domain). */
+export function opsetVersion(model: Pick<Model, 'opsets'>, domain = ''): number | undefined {
+  const want = domain === 'ai.onnx' ? '' : domain;
+  for (const o of model.opsets) {
+    const d = o.domain === 'ai.onnx' ? '' : o.domain;
+    if (d === want) return o.version;
+  }
+  return undefined;
+}
+
+export function attr(node: Node, name: string): AttributeValue | undefined {
+  return node.attributes.find((a) => a.name === name)?.value;
+}
+
+export function attrInt(node: Node, name: string, dflt: number): number;
+export function attrInt(node: Node, name: string): number | undefined;
+export function attrInt(node: Node, name: string, dflt?: number): number | undefined {
+  const v = attr(node, name);
+  return v && v.type === 'INT' ? v.i : dflt;
+}
+
+export function attrFloat(node: Node, name: string, dflt: number): number;
+export function attrFloat(node: Node, name: string): number | undefined;
+export function attrFloat(node: Node, name: string, dflt?: number): number | undefined {
+  const v = attr(node, name);
+  return v && v.type === 'FLOAT' ? v.f : dflt;
+}
+
+export function attrInts(node: Node, name: string): number[] | undefined {
+  const v = attr(node, name);
+  return v && v.type === 'INTS' ? v.ints : undefined;
+}
+
+export function attrFloats(node: Node, name: string): number[] | undefined {
+  const v = attr(node, name);
+  return v && v.type === 'FLOATS' ? v.floats : undefined;
+}
+
+export function attrString(node: Node, name: string, dflt: string): string;
+export function attrString(node: Node, name: string): string | undefined;
+export function attrString(node: Node, name: string, dflt?: string): string | undefined {
+  const v = attr(node, name);
+  return v && v.type === 'STRING' ? new TextDecoder().decode(v.s) : dflt;
+}
+
+export function attrGraph(node: Node, name: string): Graph | undefined {
+  const v = attr(node, name);
+  return v && v.type === 'GRAPH' ? v.g : undefined;
+}
+
+export function attrTensor(node: Node, name: string): Tensor | undefined {
+  const v = attr(node, name);
+  return v && v.type === 'TENSOR' ? v.t : undefined;
+}
+
+/** Every subgraph a node carries (If branches, Loop/Scan bodies, any GRAPH/GRAPHS attribute). */
+export function subgraphsOf(node: Node): Graph[] {
+  const out: Graph[] = [];
+  for (const a of node.attributes) {
+    if (a.value.type === 'GRAPH') out.push(a.value.g);
+    else if (a.value.type === 'GRAPHS') out.push(...a.value.graphs);
+  }
+  return out;
+}
+
+export function elementCount(dims: readonly number[]): number {
+  let n = 1;
+  for (const d of dims) n *= d;
+  return n;
+}
