@@ -154,6 +154,8 @@ export interface Model {
   origin?: Origin;
   /** Folder the model was read from: external data locations are relative to it. */
   baseDir: string;
+  /** The file the model was read from, if any (never overwritten by the writer). */
+  sourcePath?: string;
 }
 
 /** Look up the opset version a model imports for a domain ('' and 'ai.onnx' are the same domain). */

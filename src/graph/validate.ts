@@ -1,0 +1,66 @@
+// Structural validation: every read value is defined, each value has one writer, no cycles, tensor data
+// matches its dims and type. Errors name the graph, node and value.
+import { PleatError } from '../errors.js';
+import type { Graph, Model, Tensor } from './ir.js';
+import { elementCount, subgraphsOf } from './ir.js';
+import { isKnownDataType, storedElementCount, dataTypeName } from '../onnx/tensor.js';
+import { topoOrder } from './topo.js';
+
+function checkTensor(t: Tensor, where: string): void {
+  if (!isKnownDataType(t.dataType)) {
+    throw new PleatError('bad-model', `${where}: tensor '${t.name}' has unknown data type ${t.dataType}`);
+  }
+  if (t.storage.kind === 'string_data' || t.dataType === 8) return;
+  const need = elementCount(t.dims);
+  const have = storedElementCount(t);
+  if (have < need) {
+    throw new PleatError('bad-model', `${where}: tensor '${t.name}' (${dataTypeName(t.dataType)}) holds ${have} elements but its dims [${t.dims.join(',')}] need ${need}`);
+  }
+}
+
+function validateGraph(g: Graph, outer: Set<string>, path: string): void {
+  const defined = new Set<string>(outer);
+  const writer = new Map<string, string>();
+  const own = (v: string, who: string) => {
+    const prev = writer.get(v);
+    if (prev !== undefined) {
+      throw new PleatError('bad-model', `${path}: value '${v}' is written by both ${prev} and ${who}`);
+    }
+    writer.set(v, who);
+  };
+  for (const v of g.inputs) { own(v.name, `graph input '${v.name}'`); defined.add(v.name); }
+  for (const t of g.initializers) {
+    checkTensor(t, path);
+    if (!writer.has(t.name)) own(t.name, `initializer '${t.name}'`);
+    defined.add(t.name);
+  }
+  for (const n of g.nodes) {
+    for (const o of n.outputs) if (o) own(o, `node '${n.name || n.opType}'`);
+    for (const a of n.attributes) {
+      if (a.value.type === 'TENSOR') checkTensor(a.value.t, `${path} node '${n.name || n.opType}'`);
+    }
+  }
+  const all = new Set([...defined, ...g.nodes.flatMap((n) => n.outputs)]);
+  for (const n of g.nodes) {
+    for (const i of n.inputs) {
+      if (i && !all.has(i)) {
+        throw new PleatError('bad-model', `${path}: node '${n.name || n.opType}' reads '${i}', which no node, input or initializer defines`);
+      }
+    }
+  }
+  topoOrder(g); // throws on a cycle
+  for (const o of g.outputs) {
+    if (!all.has(o.name)) throw new PleatError('bad-model', `${path}: graph output '${o.name}' is never computed`);
+  }
+  for (const n of g.nodes) {
+    for (const a of n.attributes) {
+      const sgs = a.value.type === 'GRAPH' ? [a.value.g] : a.value.type === 'GRAPHS' ? a.value.graphs : [];
+      sgs.forEach((sg, k) => validateGraph(sg, all, `${path}/${n.name || n.opType}.${a.name}${sgs.length > 1 ? `[${k}]` : ''}`));
+    }
+  }
+  void subgraphsOf;
+}
+
+export function validateModel(m: Model): void {
+  validateGraph(m.graph, new Set(), m.graph.name ? `graph '${m.graph.name}'` : 'main graph');
+}

@@ -1,0 +1,335 @@
+// Bytes -> IR. Every message keeps its original bytes (views into the file buffer, no copies) and the
+// fields pleat does not model, so the writer can give them back unchanged.
+import { readFileSync, statSync } from 'node:fs';
+import { dirname, resolve } from 'node:path';
+import type {
+  Attribute, AttributeValue, Dim, Graph, Model, Node, OpsetImport, RawField, Tensor, TensorStorage, ValueInfo,
+} from '../graph/ir.js';
+import { PleatError } from '../errors.js';
+import {
+  WT_LEN, WireError, readFloat, readInt, readPackedFixed32, readPackedFixed64, readPackedVarints,
+  readPackedVarintsBig, readString, scanFields, type WireField,
+} from './wire.js';
+import {
+  attributeSig, graphSig, modelSig, nodeSig, opsetSig, tensorSig, typeSig, valueInfoSig,
+} from './signature.js';
+import { loadExternalData } from './external.js';
+import { validateModel } from '../graph/validate.js';
+
+type Buf = Uint8Array;
+
+function raw(buf: Buf, f: WireField): RawField {
+  return { field: f.no, bytes: buf.subarray(f.start, f.end) };
+}
+
+function expectLen(f: WireField, what: string): void {
+  if (f.wt !== WT_LEN) throw new WireError(`${what}: field ${f.no} has wire type ${f.wt}, expected a length-delimited field`);
+}
+
+function origin(buf: Buf, start: number, end: number, fields: WireField[], sig: string) {
+  return { bytes: buf.subarray(start, end), sig, order: fields.map((f) => f.no) };
+}
+
+export function decodeTensor(buf: Buf, start: number, end: number): Tensor {
+  const fields = scanFields(buf, start, end);
+  const dims: number[] = [];
+  let dataType = 0, name = '', docString = '';
+  let storage: TensorStorage = { kind: 'empty' };
+  const extra: RawField[] = [];
+  const floats: number[] = [], int32s: number[] = [], doubles: number[] = [];
+  const int64s: bigint[] = [], uint64s: bigint[] = [];
+  const strings: Uint8Array[] = [];
+  const external: Array<[string, string]> = [];
+  let location = 0;
+  let kind: TensorStorage['kind'] | undefined;
+  for (const f of fields) {
+    switch (f.no) {
+      case 1: readPackedVarints(buf, f, dims); break;
+      case 2: dataType = readInt(buf, f); break;
+      case 4: readPackedFixed32(buf, f, floats, true); kind = 'float_data'; break;
+      case 5: readPackedVarints(buf, f, int32s); kind = 'int32_data'; break;
+      case 6: expectLen(f, 'string_data'); strings.push(buf.subarray(f.vstart, f.vend)); kind = 'string_data'; break;
+      case 7: readPackedVarintsBig(buf, f, int64s); kind = 'int64_data'; break;
+      case 8: name = readString(buf, f); break;
+      case 9: expectLen(f, 'raw_data'); storage = { kind: 'raw', bytes: buf.subarray(f.vstart, f.vend) }; kind = 'raw'; break;
+      case 10: readPackedFixed64(buf, f, doubles); kind = 'double_data'; break;
+      case 11: readPackedVarintsBig(buf, f, uint64s); kind = 'uint64_data'; break;
+      case 12: docString = readString(buf, f); break;
+      case 13: {
+        expectLen(f, 'external_data');
+        let k = '', v = '';
+        for (const e of scanFields(buf, f.vstart, f.vend)) {
+          if (e.no === 1) k = readString(buf, e);
+          else if (e.no === 2) v = readString(buf, e);
+        }
+        external.push([k, v]);
+        break;
+      }
+      case 14: location = readInt(buf, f); break;
+      default: extra.push(raw(buf, f));
+    }
+  }
+  if (location === 1) {
+    storage = { kind: 'external', entries: external, bytes: new Uint8Array(0) };
+  } else {
+    switch (kind) {
+      case 'float_data': storage = { kind, values: Float32Array.from(floats) }; break;
+      case 'int32_data': storage = { kind, values: Int32Array.from(int32s) }; break;
+      case 'double_data': storage = { kind, values: Float64Array.from(doubles) }; break;
+      case 'int64_data': storage = { kind, values: BigInt64Array.from(int64s) }; break;
+      case 'uint64_data': storage = { kind, values: BigUint64Array.from(uint64s) }; break;
+      case 'string_data': storage = { kind, values: strings }; break;
+      default: break;
+    }
+  }
+  if (dims.some((d) => d < 0 || !Number.isSafeInteger(d))) {
+    throw new PleatError('bad-model', `tensor '${name}' has an invalid dimension in [${dims.join(',')}]`);
+  }
+  const t: Tensor = { name, dims, dataType, storage, docString, extra };
+  t.origin = origin(buf, start, end, fields, tensorSig(t));
+  // data_location and external_data entries are modelled through storage
+  return t;
+}
+
+function decodeDims(buf: Buf, start: number, end: number): Dim[] {
+  const dims: Dim[] = [];
+  for (const f of scanFields(buf, start, end)) {
+    if (f.no !== 1) continue;
+    let d: Dim = null;
+    for (const g of scanFields(buf, f.vstart, f.vend)) {
+      if (g.no === 1) d = readInt(buf, g);
+      else if (g.no === 2) d = readString(buf, g);
+    }
+    dims.push(d);
+  }
+  return dims;
+}
+
+function decodeValueInfo(buf: Buf, start: number, end: number): ValueInfo {
+  const fields = scanFields(buf, start, end);
+  const v: ValueInfo = { name: '', docString: '', extra: [] };
+  for (const f of fields) {
+    switch (f.no) {
+      case 1: v.name = readString(buf, f); break;
+      case 2: {
+        expectLen(f, 'value type');
+        v.typeBytes = buf.subarray(f.vstart, f.vend);
+        for (const t of scanFields(buf, f.vstart, f.vend)) {
+          if (t.no !== 1) continue; // not a tensor type
+          for (const tt of scanFields(buf, t.vstart, t.vend)) {
+            if (tt.no === 1) v.elemType = readInt(buf, tt);
+            else if (tt.no === 2) v.shape = decodeDims(buf, tt.vstart, tt.vend);
+          }
+        }
+        break;
+      }
+      case 3: v.docString = readString(buf, f); break;
+      default: v.extra.push(raw(buf, f));
+    }
+  }
+  v.typeSig = typeSig(v);
+  v.origin = origin(buf, start, end, fields, valueInfoSig(v));
+  return v;
+}
+
+const ATTR_TYPES: Record<number, AttributeValue['type']> = {
+  1: 'FLOAT', 2: 'INT', 3: 'STRING', 4: 'TENSOR', 5: 'GRAPH', 6: 'FLOATS', 7: 'INTS', 8: 'STRINGS', 9: 'TENSORS', 10: 'GRAPHS',
+};
+
+function decodeAttribute(buf: Buf, start: number, end: number, depth: number): Attribute {
+  const fields = scanFields(buf, start, end);
+  let name = '', docString = '', refAttrName = '', typeCode = 0;
+  let f_ = 0, i_ = 0, s_: Uint8Array = new Uint8Array(0);
+  let t_: Tensor | undefined, g_: Graph | undefined;
+  const floats: number[] = [], ints: number[] = [], strings: Uint8Array[] = [], tensors: Tensor[] = [], graphs: Graph[] = [];
+  const seen = new Set<number>();
+  const extra: RawField[] = [];
+  for (const f of fields) {
+    seen.add(f.no);
+    switch (f.no) {
+      case 1: name = readString(buf, f); break;
+      case 2: f_ = readFloat(buf, f); break;
+      case 3: i_ = readInt(buf, f); break;
+      case 4: expectLen(f, 'attribute s'); s_ = buf.subarray(f.vstart, f.vend); break;
+      case 5: expectLen(f, 'attribute t'); t_ = decodeTensor(buf, f.vstart, f.vend); break;
+      case 6: expectLen(f, 'attribute g'); g_ = decodeGraph(buf, f.vstart, f.vend, depth + 1); break;
+      case 7: readPackedFixed32(buf, f, floats, true); break;
+      case 8: readPackedVarints(buf, f, ints); break;
+      case 9: expectLen(f, 'attribute strings'); strings.push(buf.subarray(f.vstart, f.vend)); break;
+      case 10: expectLen(f, 'attribute tensors'); tensors.push(decodeTensor(buf, f.vstart, f.vend)); break;
+      case 11: expectLen(f, 'attribute graphs'); graphs.push(decodeGraph(buf, f.vstart, f.vend, depth + 1)); break;
+      case 13: docString = readString(buf, f); break;
+      case 20: typeCode = readInt(buf, f); break;
+      case 21: refAttrName = readString(buf, f); break;
+      default: extra.push(raw(buf, f));
+    }
+  }
+  // IR < 2 files may omit `type`: infer it from the field present.
+  if (typeCode === 0) {
+    const inferred: Array<[number, number]> = [[2, 1], [3, 2], [4, 3], [5, 4], [6, 5], [7, 6], [8, 7], [9, 8], [10, 9], [11, 10]];
+    for (const [field, code] of inferred) if (seen.has(field)) { typeCode = code; break; }
+  }
+  let value: AttributeValue;
+  switch (ATTR_TYPES[typeCode]) {
+    case 'FLOAT': value = { type: 'FLOAT', f: f_ }; break;
+    case 'INT': value = { type: 'INT', i: i_ }; break;
+    case 'STRING': value = { type: 'STRING', s: s_ }; break;
+    case 'TENSOR':
+      if (!t_) throw new PleatError('bad-model', `attribute '${name}' is a TENSOR but holds no tensor`);
+      value = { type: 'TENSOR', t: t_ }; break;
+    case 'GRAPH':
+      if (!g_) throw new PleatError('bad-model', `attribute '${name}' is a GRAPH but holds no graph`);
+      value = { type: 'GRAPH', g: g_ }; break;
+    case 'FLOATS': value = { type: 'FLOATS', floats }; break;
+    case 'INTS': value = { type: 'INTS', ints }; break;
+    case 'STRINGS': value = { type: 'STRINGS', strings }; break;
+    case 'TENSORS': value = { type: 'TENSORS', tensors }; break;
+    case 'GRAPHS': value = { type: 'GRAPHS', graphs }; break;
+    default: value = { type: 'OTHER', code: typeCode };
+  }
+  const a: Attribute = { name, value, docString, refAttrName, extra };
+  a.origin = origin(buf, start, end, fields, attributeSig(a));
+  return a;
+}
+
+function decodeNode(buf: Buf, start: number, end: number, depth: number): Node {
+  const fields = scanFields(buf, start, end);
+  const n: Node = { name: '', opType: '', domain: '', inputs: [], outputs: [], attributes: [], docString: '', extra: [] };
+  for (const f of fields) {
+    switch (f.no) {
+      case 1: n.inputs.push(readString(buf, f)); break;
+      case 2: n.outputs.push(readString(buf, f)); break;
+      case 3: n.name = readString(buf, f); break;
+      case 4: n.opType = readString(buf, f); break;
+      case 5: expectLen(f, 'attribute'); n.attributes.push(decodeAttribute(buf, f.vstart, f.vend, depth)); break;
+      case 6: n.docString = readString(buf, f); break;
+      case 7: n.domain = readString(buf, f); break;
+      default: n.extra.push(raw(buf, f));
+    }
+  }
+  n.origin = origin(buf, start, end, fields, nodeSig(n));
+  return n;
+}
+
+export function decodeGraph(buf: Buf, start: number, end: number, depth = 0): Graph {
+  if (depth > 64) throw new PleatError('bad-model', 'subgraphs nested more than 64 deep');
+  const fields = scanFields(buf, start, end);
+  const g: Graph = { name: '', nodes: [], initializers: [], inputs: [], outputs: [], valueInfo: [], docString: '', extra: [] };
+  for (const f of fields) {
+    switch (f.no) {
+      case 1: expectLen(f, 'node'); g.nodes.push(decodeNode(buf, f.vstart, f.vend, depth)); break;
+      case 2: g.name = readString(buf, f); break;
+      case 5: expectLen(f, 'initializer'); g.initializers.push(decodeTensor(buf, f.vstart, f.vend)); break;
+      case 10: g.docString = readString(buf, f); break;
+      case 11: expectLen(f, 'input'); g.inputs.push(decodeValueInfo(buf, f.vstart, f.vend)); break;
+      case 12: expectLen(f, 'output'); g.outputs.push(decodeValueInfo(buf, f.vstart, f.vend)); break;
+      case 13: expectLen(f, 'value_info'); g.valueInfo.push(decodeValueInfo(buf, f.vstart, f.vend)); break;
+      default: g.extra.push(raw(buf, f));
+    }
+  }
+  g.origin = origin(buf, start, end, fields, graphSig(g));
+  return g;
+}
+
+function decodeOpset(buf: Buf, start: number, end: number): OpsetImport {
+  const fields = scanFields(buf, start, end);
+  const o: OpsetImport = { domain: '', version: 0, extra: [] };
+  for (const f of fields) {
+    if (f.no === 1) o.domain = readString(buf, f);
+    else if (f.no === 2) o.version = readInt(buf, f);
+    else o.extra.push(raw(buf, f));
+  }
+  o.origin = origin(buf, start, end, fields, opsetSig(o));
+  return o;
+}
+
+/** Decode model bytes (no external data loaded; see parseModel). */
+export function decodeModel(buf: Buf, baseDir: string): Model {
+  const fields = scanFields(buf, 0, buf.byteLength);
+  let graph: Graph | undefined;
+  const m: Omit<Model, 'graph'> & { graph?: Graph } = {
+    irVersion: 0, opsets: [], producerName: '', producerVersion: '', domain: '', modelVersion: 0, docString: '',
+    metadata: [], extra: [], baseDir,
+  };
+  for (const f of fields) {
+    switch (f.no) {
+      case 1: m.irVersion = readInt(buf, f); break;
+      case 2: m.producerName = readString(buf, f); break;
+      case 3: m.producerVersion = readString(buf, f); break;
+      case 4: m.domain = readString(buf, f); break;
+      case 5: m.modelVersion = readInt(buf, f); break;
+      case 6: m.docString = readString(buf, f); break;
+      case 7: expectLen(f, 'graph'); graph = decodeGraph(buf, f.vstart, f.vend); break;
+      case 8: expectLen(f, 'opset_import'); m.opsets.push(decodeOpset(buf, f.vstart, f.vend)); break;
+      case 14: {
+        expectLen(f, 'metadata_props');
+        let k = '', v = '';
+        for (const e of scanFields(buf, f.vstart, f.vend)) {
+          if (e.no === 1) k = readString(buf, e);
+          else if (e.no === 2) v = readString(buf, e);
+        }
+        m.metadata.push([k, v]);
+        break;
+      }
+      default: m.extra.push(raw(buf, f));
+    }
+  }
+  if (!graph) throw new PleatError('bad-model', 'no graph in the file: this is not an ONNX model');
+  const model = { ...m, graph } as Model;
+  model.origin = origin(buf, 0, buf.byteLength, fields, modelSig(model));
+  return model;
+}
+
+/** Decode a serialized TensorProto (e.g. an input_0.pb test-data file). */
+export function parseTensor(bytes: Uint8Array): Tensor {
+  try {
+    return decodeTensor(bytes, 0, bytes.byteLength);
+  } catch (e) {
+    if (e instanceof WireError) throw new PleatError('bad-input', `not a serialized ONNX tensor: ${e.message}`);
+    throw e;
+  }
+}
+
+/** Parse model bytes, load external data relative to baseDir, and check the graph's structure. */
+export function parseModel(bytes: Uint8Array, baseDir: string, label = 'model'): Model {
+  if (bytes.byteLength === 0) throw new PleatError('bad-model', `${label}: the file is empty`);
+  let model: Model;
+  try {
+    model = decodeModel(bytes, baseDir);
+  } catch (e) {
+    if (e instanceof WireError) throw new PleatError('bad-model', `${label}: not a readable ONNX model (${e.message})`);
+    if (e instanceof PleatError) throw new PleatError(e.kind, `${label}: ${e.message}`);
+    throw e;
+  }
+  if (model.irVersion <= 0 || model.opsets.length === 0 && model.irVersion >= 3) {
+    throw new PleatError('bad-model', `${label}: not an ONNX model (no IR version or opset import)`);
+  }
+  loadExternalData(model, label);
+  try {
+    validateModel(model);
+  } catch (e) {
+    if (e instanceof PleatError) throw new PleatError(e.kind, `${label}: ${e.message}`);
+    throw e;
+  }
+  return model;
+}
+
+/** Read a .onnx file. The file is read once and never written. */
+export function readModelFile(path: string): Model {
+  let st;
+  try {
+    st = statSync(path);
+  } catch {
+    throw new PleatError('bad-input', `${path}: no such file`);
+  }
+  if (st.isDirectory()) throw new PleatError('bad-input', `${path}: is a directory, expected an .onnx file`);
+  let bytes: Uint8Array;
+  try {
+    bytes = readFileSync(path);
+  } catch (e) {
+    throw new PleatError('bad-input', `${path}: cannot be read (${(e as Error).message.split('\n')[0]})`);
+  }
+  const model = parseModel(bytes, dirname(resolve(path)), path);
+  model.sourcePath = resolve(path);
+  return model;
+}

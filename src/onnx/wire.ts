@@ -1,0 +1,258 @@
+// Protobuf wire format, just enough for lossless ONNX: scan a message into fields (with byte ranges, no
+// copies), and emit fields. Values stay views into the file buffer until something changes them.
+import { PleatError } from '../errors.js';
+
+export const WT_VARINT = 0, WT_I64 = 1, WT_LEN = 2, WT_I32 = 5;
+
+export interface WireField {
+  no: number;
+  wt: number;
+  /** Start of the tag (the field's bytes are buf[start, end)). */
+  start: number;
+  end: number;
+  /** For LEN fields: payload range; for fixed fields: value range; for varints: the varint range. */
+  vstart: number;
+  vend: number;
+}
+
+export class WireError extends PleatError {
+  constructor(message: string) { super('bad-model', message); }
+}
+
+/** Decode a varint at pos; returns [value as a JS number (exact below 2^53; int64 negatives sign-corrected), next pos]. */
+export function readVarint(buf: Uint8Array, pos: number, end: number): [number, number] {
+  let lo = 0, hi = 0, shift = 0, b: number;
+  // low 28 bits
+  do {
+    if (pos >= end) throw new WireError('truncated varint');
+    b = buf[pos++]!;
+    if (shift < 28) lo |= (b & 0x7f) << shift;
+    else if (shift === 28) { lo |= (b & 0x0f) << 28; hi |= (b & 0x7f) >> 4; }
+    else hi |= (b & 0x7f) << (shift - 32);
+    shift += 7;
+    if (shift > 70) throw new WireError('varint too long');
+  } while (b & 0x80);
+  lo >>>= 0;
+  if (hi & 0x80000000) {
+    // negative int64 (two's complement over 64 bits)
+    const nlo = (~lo + 1) >>> 0;
+    const nhi = (~hi + (nlo === 0 ? 1 : 0)) >>> 0;
+    return [-(nhi * 4294967296 + nlo), pos];
+  }
+  return [(hi >>> 0) * 4294967296 + lo, pos];
+}
+
+/** Decode a varint as a BigInt (for int64 values that must keep every bit). */
+export function readVarintBig(buf: Uint8Array, pos: number, end: number): [bigint, number] {
+  let v = 0n, shift = 0n, b: number;
+  do {
+    if (pos >= end) throw new WireError('truncated varint');
+    b = buf[pos++]!;
+    v |= BigInt(b & 0x7f) << shift;
+    shift += 7n;
+  } while (b & 0x80);
+  return [BigInt.asIntN(64, v), pos];
+}
+
+/** Split buf[start, end) into fields. Throws WireError on malformed or truncated bytes. */
+export function scanFields(buf: Uint8Array, start: number, end: number): WireField[] {
+  const out: WireField[] = [];
+  let pos = start;
+  while (pos < end) {
+    const fstart = pos;
+    let tag: number;
+    [tag, pos] = readVarint(buf, pos, end);
+    const no = Math.floor(tag / 8), wt = tag & 7;
+    if (no === 0) throw new WireError('field number 0');
+    let vstart = pos, vend: number;
+    switch (wt) {
+      case WT_VARINT: {
+        while (true) {
+          if (pos >= end) throw new WireError('truncated varint');
+          if (!(buf[pos++]! & 0x80)) break;
+        }
+        vend = pos;
+        break;
+      }
+      case WT_I64: vend = pos + 8; pos = vend; break;
+      case WT_I32: vend = pos + 4; pos = vend; break;
+      case WT_LEN: {
+        let len: number;
+        [len, pos] = readVarint(buf, pos, end);
+        if (len < 0) throw new WireError('negative length');
+        vstart = pos;
+        vend = pos + len;
+        pos = vend;
+        break;
+      }
+      default: throw new WireError(`unsupported wire type ${wt}`);
+    }
+    if (vend > end) throw new WireError('field runs past the end of its message (truncated file?)');
+    out.push({ no, wt, start: fstart, end: pos, vstart, vend });
+  }
+  return out;
+}
+
+const utf8d = new TextDecoder('utf-8');
+export function readString(buf: Uint8Array, f: WireField): string {
+  return utf8d.decode(buf.subarray(f.vstart, f.vend));
+}
+
+export function readInt(buf: Uint8Array, f: WireField): number {
+  if (f.wt !== WT_VARINT) throw new WireError(`field ${f.no}: expected a varint`);
+  return readVarint(buf, f.vstart, f.vend)[0];
+}
+
+export function readFloat(buf: Uint8Array, f: WireField): number {
+  if (f.wt !== WT_I32) throw new WireError(`field ${f.no}: expected a 32-bit float`);
+  return new DataView(buf.buffer, buf.byteOffset + f.vstart, 4).getFloat32(0, true);
+}
+
+/** Repeated varints, packed or not (protobuf readers must accept both). */
+export function readPackedVarints(buf: Uint8Array, f: WireField, into: number[]): void {
+  if (f.wt === WT_VARINT) { into.push(readVarint(buf, f.vstart, f.vend)[0]); return; }
+  let pos = f.vstart;
+  while (pos < f.vend) { let v: number; [v, pos] = readVarint(buf, pos, f.vend); into.push(v); }
+}
+
+export function readPackedVarintsBig(buf: Uint8Array, f: WireField, into: bigint[]): void {
+  if (f.wt === WT_VARINT) { into.push(readVarintBig(buf, f.vstart, f.vend)[0]); return; }
+  let pos = f.vstart;
+  while (pos < f.vend) { let v: bigint; [v, pos] = readVarintBig(buf, pos, f.vend); into.push(v); }
+}
+
+export function readPackedFixed32(buf: Uint8Array, f: WireField, into: number[], float: boolean): void {
+  const dv = new DataView(buf.buffer, buf.byteOffset);
+  if (f.wt === WT_I32) { into.push(float ? dv.getFloat32(f.vstart, true) : dv.getInt32(f.vstart, true)); return; }
+  if ((f.vend - f.vstart) % 4) throw new WireError(`field ${f.no}: packed 32-bit data of odd length`);
+  for (let p = f.vstart; p < f.vend; p += 4) into.push(float ? dv.getFloat32(p, true) : dv.getInt32(p, true));
+}
+
+export function readPackedFixed64(buf: Uint8Array, f: WireField, into: number[]): void {
+  const dv = new DataView(buf.buffer, buf.byteOffset);
+  if (f.wt === WT_I64) { into.push(dv.getFloat64(f.vstart, true)); return; }
+  if ((f.vend - f.vstart) % 8) throw new WireError(`field ${f.no}: packed 64-bit data of odd length`);
+  for (let p = f.vstart; p < f.vend; p += 8) into.push(dv.getFloat64(p, true));
+}
+
+// ---- writing ------------------------------------------------------------------------------------------
+
+/** Collects output as a list of chunks; big payloads are referenced, never copied. */
+export class Emitter {
+  chunks: Uint8Array[] = [];
+  length = 0;
+  private scratch = new Uint8Array(4096);
+  private used = 0;
+
+  private flushScratch(): void {
+    if (this.used > 0) {
+      this.chunks.push(this.scratch.subarray(0, this.used));
+      this.scratch = new Uint8Array(4096);
+      this.used = 0;
+    }
+  }
+
+  private room(n: number): void {
+    if (this.used + n > this.scratch.length) {
+      this.flushScratch();
+      if (n > this.scratch.length) this.scratch = new Uint8Array(n);
+    }
+  }
+
+  bytes(b: Uint8Array): void {
+    if (b.byteLength <= 256) {
+      this.room(b.byteLength);
+      this.scratch.set(b, this.used);
+      this.used += b.byteLength;
+    } else {
+      this.flushScratch();
+      this.chunks.push(b);
+    }
+    this.length += b.byteLength;
+  }
+
+  varint(v: number): void {
+    this.room(10);
+    const s = this.scratch;
+    const start = this.used;
+    if (v < 0) {
+      // int64 two's complement: 10 bytes
+      let big = BigInt.asUintN(64, BigInt(v));
+      for (let i = 0; i < 10; i++) {
+        const b = Number(big & 0x7fn);
+        big >>= 7n;
+        s[this.used++] = big ? b | 0x80 : b;
+        if (!big) break;
+      }
+    } else {
+      while (v >= 128) {
+        s[this.used++] = (v % 128) | 0x80;
+        v = Math.floor(v / 128);
+      }
+      s[this.used++] = v;
+    }
+    this.length += this.used - start;
+  }
+
+  varintBig(v: bigint): void {
+    let big = BigInt.asUintN(64, v);
+    this.room(10);
+    const start = this.used;
+    do {
+      const b = Number(big & 0x7fn);
+      big >>= 7n;
+      this.scratch[this.used++] = big ? b | 0x80 : b;
+    } while (big);
+    this.length += this.used - start;
+  }
+
+  tag(no: number, wt: number): void { this.varint(no * 8 + wt); }
+
+  fixed32f(v: number): void {
+    this.room(4);
+    new DataView(this.scratch.buffer).setFloat32(this.used, v, true);
+    this.used += 4;
+    this.length += 4;
+  }
+
+  /** Take the chunks emitted so far without joining them (big payloads stay views). */
+  take(): { chunks: Uint8Array[]; length: number } {
+    this.flushScratch();
+    return { chunks: this.chunks, length: this.length };
+  }
+
+  /** Take everything emitted so far as one array (for small messages whose length must be known first). */
+  finish(): Uint8Array {
+    this.flushScratch();
+    if (this.chunks.length === 1) return this.chunks[0]!;
+    const out = new Uint8Array(this.length);
+    let o = 0;
+    for (const c of this.chunks) { out.set(c, o); o += c.byteLength; }
+    return out;
+  }
+}
+
+const utf8e = new TextEncoder();
+
+export function emitString(e: Emitter, no: number, s: string): void {
+  const b = utf8e.encode(s);
+  e.tag(no, WT_LEN); e.varint(b.byteLength); e.bytes(b);
+}
+
+export function emitBytes(e: Emitter, no: number, b: Uint8Array): void {
+  e.tag(no, WT_LEN); e.varint(b.byteLength); e.bytes(b);
+}
+
+export function emitInt(e: Emitter, no: number, v: number): void {
+  e.tag(no, WT_VARINT); e.varint(v);
+}
+
+export function emitFloat(e: Emitter, no: number, v: number): void {
+  e.tag(no, WT_I32); e.fixed32f(v);
+}
+
+/** A length-delimited sub-message made of chunks (its size is the sum of the chunks). */
+export function emitMessage(e: Emitter, no: number, chunks: Uint8Array[], size: number): void {
+  e.tag(no, WT_LEN); e.varint(size);
+  for (const c of chunks) e.bytes(c);
+}

@@ -1,0 +1,399 @@
+// IR -> bytes. A message whose modelled fields match what was read is re-emitted from its original bytes;
+// a changed one is re-encoded field by field in its original field order, with the fields pleat does not
+// model copied through untouched. Output files are written to temporary names and renamed into place.
+import { closeSync, openSync, renameSync, rmSync, writeSync } from 'node:fs';
+import { basename, dirname, join, resolve } from 'node:path';
+import type { Attribute, Graph, Model, Node, OpsetImport, RawField, Tensor, ValueInfo, Dim } from '../graph/ir.js';
+import { PleatError } from '../errors.js';
+import {
+  Emitter, WT_LEN, emitBytes, emitFloat, emitInt, emitMessage, emitString,
+} from './wire.js';
+import {
+  attributeSig, graphSig, modelSig, nodeSig, opsetSig, tensorSig, typeSig, valueInfoSig,
+} from './signature.js';
+import { externalRef } from './external.js';
+
+interface Piece { chunks: Uint8Array[]; length: number; same: boolean }
+
+export interface WriteOptions {
+  /** Tensors whose data has at least this many bytes go to a side file; smaller ones are stored inline. */
+  externalThreshold?: number;
+}
+
+/** A side file to write: named pieces at offsets. */
+interface SideFile { location: string; pieces: Array<{ offset: number; bytes: Uint8Array }>; end: number }
+
+class ExternalPlan {
+  files = new Map<string, SideFile>();
+  constructor(private outName: string, private sourceDir: string | undefined, private outDir: string, private opts: WriteOptions) {}
+
+  /** Where a tensor's data goes: undefined = inline; else the entries to write. */
+  place(t: Tensor): Array<[string, string]> | undefined {
+    const size = t.storage.kind === 'raw' || t.storage.kind === 'external' ? t.storage.bytes.byteLength : -1;
+    const threshold = this.opts.externalThreshold;
+    if (threshold !== undefined) {
+      if (size < threshold || size < 0) return undefined;
+      return this.append(`${this.outName}.data`, t, 64);
+    }
+    if (t.storage.kind !== 'external') return undefined;
+    const ref = externalRef(t, 'model');
+    let location = ref.location;
+    // Never write over the input's own side file.
+    if (this.sourceDir !== undefined && resolve(this.sourceDir, location) === resolve(this.outDir, location)) {
+      location = `${this.outName}.data`;
+    }
+    const file = this.file(location);
+    const len = t.storage.bytes.byteLength;
+    const fits = ref.length === undefined || ref.length === len;
+    const free = fits && file.pieces.every((p) => p.offset + p.bytes.byteLength <= ref.offset || p.offset >= ref.offset + len);
+    if (free) {
+      file.pieces.push({ offset: ref.offset, bytes: t.storage.bytes });
+      file.end = Math.max(file.end, ref.offset + len);
+      // keep the entries exactly as they were when nothing about them changed
+      return t.storage.entries.map(([k, v]) => [k, k === 'location' ? location : v]);
+    }
+    return this.append(location, t, 16);
+  }
+
+  private file(location: string): SideFile {
+    let f = this.files.get(location);
+    if (!f) { f = { location, pieces: [], end: 0 }; this.files.set(location, f); }
+    return f;
+  }
+
+  private append(location: string, t: Tensor, align: number): Array<[string, string]> {
+    const f = this.file(location);
+    const bytes = t.storage.kind === 'raw' || t.storage.kind === 'external' ? t.storage.bytes : new Uint8Array(0);
+    const offset = Math.ceil(f.end / align) * align;
+    f.pieces.push({ offset, bytes });
+    f.end = offset + bytes.byteLength;
+    return [['location', location], ['offset', String(offset)], ['length', String(bytes.byteLength)]];
+  }
+}
+
+/** Emit modelled fields and untouched extra fields, following the original field order where there is one. */
+function assemble(e: Emitter, order: number[] | undefined, extra: RawField[], modelled: Array<[number, (e: Emitter) => void]>): void {
+  const done = new Set<number>();
+  const emitters = new Map(modelled);
+  const extraQueue = new Map<number, RawField[]>();
+  for (const r of extra) {
+    const q = extraQueue.get(r.field) ?? [];
+    q.push(r);
+    extraQueue.set(r.field, q);
+  }
+  for (const no of order ?? []) {
+    const fn = emitters.get(no);
+    if (fn) {
+      if (!done.has(no)) { fn(e); done.add(no); }
+    } else {
+      const r = extraQueue.get(no)?.shift();
+      if (r) e.bytes(r.bytes);
+    }
+  }
+  for (const [no, fn] of modelled) if (!done.has(no)) fn(e);
+  for (const q of extraQueue.values()) for (const r of q) e.bytes(r.bytes);
+}
+
+function piece(e: Emitter): Piece {
+  const { chunks, length } = e.take();
+  return { chunks, length, same: false };
+}
+
+function sub(e: Emitter, no: number, p: Piece): void {
+  emitMessage(e, no, p.chunks, p.length);
+}
+
+function unchanged(origin: { bytes: Uint8Array; sig: string } | undefined, sig: string, kids: Piece[]): Piece | undefined {
+  if (origin && origin.sig === sig && kids.every((k) => k.same)) {
+    return { chunks: [origin.bytes], length: origin.bytes.byteLength, same: true };
+  }
+  return undefined;
+}
+
+class Encoder {
+  constructor(private plan: ExternalPlan) {}
+
+  tensor(t: Tensor): Piece {
+    const placed = this.plan.place(t);
+    const wasExternal = t.storage.kind === 'external';
+    const sameEntries = placed !== undefined && wasExternal &&
+      JSON.stringify(placed) === JSON.stringify((t.storage as { entries: unknown }).entries);
+    if ((placed === undefined && !wasExternal) || sameEntries) {
+      const u = unchanged(t.origin, tensorSig(t), []);
+      if (u) return u;
+    }
+    const e = new Emitter();
+    const s = t.storage;
+    const data: Array<[number, (e: Emitter) => void]> = [];
+    if (placed) {
+      data.push([13, (e) => {
+        for (const [k, v] of placed) {
+          const kv = new Emitter();
+          emitString(kv, 1, k); emitString(kv, 2, v);
+          sub(e, 13, piece(kv));
+        }
+      }]);
+      data.push([14, (e) => emitInt(e, 14, 1)]);
+    } else {
+      switch (s.kind) {
+        case 'raw': case 'external': data.push([9, (e) => emitBytes(e, 9, s.bytes)]); break;
+        case 'float_data': data.push([4, (e) => {
+          if (!s.values.length) return;
+          e.tag(4, WT_LEN); e.varint(s.values.length * 4);
+          e.bytes(new Uint8Array(s.values.buffer, s.values.byteOffset, s.values.byteLength).slice());
+        }]); break;
+        case 'double_data': data.push([10, (e) => {
+          if (!s.values.length) return;
+          e.tag(10, WT_LEN); e.varint(s.values.length * 8);
+          e.bytes(new Uint8Array(s.values.buffer, s.values.byteOffset, s.values.byteLength).slice());
+        }]); break;
+        case 'int32_data': data.push([5, (e) => packedVarints(e, 5, Array.from(s.values))]); break;
+        case 'int64_data': data.push([7, (e) => packedBig(e, 7, s.values)]); break;
+        case 'uint64_data': data.push([11, (e) => packedBig(e, 11, s.values)]); break;
+        case 'string_data': data.push([6, (e) => s.values.forEach((v) => emitBytes(e, 6, v))]); break;
+        case 'empty': break;
+      }
+    }
+    const fields: Array<[number, (e: Emitter) => void]> = [
+      [1, (e) => t.dims.forEach((d) => emitInt(e, 1, d))],
+      [2, (e) => emitInt(e, 2, t.dataType)],
+      ...data,
+      [8, (e) => { if (t.name || t.origin?.order.includes(8)) emitString(e, 8, t.name); }],
+      [12, (e) => { if (t.docString) emitString(e, 12, t.docString); }],
+    ];
+    fields.sort((a, b) => a[0] - b[0]);
+    assemble(e, t.origin?.order, t.extra, fields);
+    return piece(e);
+  }
+
+  valueInfo(v: ValueInfo): Piece {
+    const u = unchanged(v.origin, valueInfoSig(v), []);
+    if (u) return u;
+    const e = new Emitter();
+    const sameType = v.typeBytes !== undefined && v.typeSig === typeSig(v);
+    assemble(e, v.origin?.order, v.extra, [
+      [1, (e) => emitString(e, 1, v.name)],
+      [2, (e) => {
+        if (sameType) { emitBytes(e, 2, v.typeBytes!); return; }
+        if (v.elemType === undefined) return;
+        const tt = new Emitter();
+        emitInt(tt, 1, v.elemType);
+        if (v.shape) sub(tt, 2, encodeShape(v.shape));
+        const tp = new Emitter();
+        sub(tp, 1, piece(tt));
+        sub(e, 2, piece(tp));
+      }],
+      [3, (e) => { if (v.docString) emitString(e, 3, v.docString); }],
+    ]);
+    return piece(e);
+  }
+
+  attribute(a: Attribute): Piece {
+    const v = a.value;
+    const kids: Piece[] = [];
+    if (v.type === 'TENSOR') kids.push(this.tensor(v.t));
+    else if (v.type === 'TENSORS') kids.push(...v.tensors.map((t) => this.tensor(t)));
+    else if (v.type === 'GRAPH') kids.push(this.graph(v.g));
+    else if (v.type === 'GRAPHS') kids.push(...v.graphs.map((g) => this.graph(g)));
+    const u = unchanged(a.origin, attributeSig(a), kids);
+    if (u) return u;
+    const e = new Emitter();
+    const codes: Record<string, number> = { FLOAT: 1, INT: 2, STRING: 3, TENSOR: 4, GRAPH: 5, FLOATS: 6, INTS: 7, STRINGS: 8, TENSORS: 9, GRAPHS: 10 };
+    const fields: Array<[number, (e: Emitter) => void]> = [[1, (e) => emitString(e, 1, a.name)]];
+    switch (v.type) {
+      case 'FLOAT': fields.push([2, (e) => emitFloat(e, 2, v.f)]); break;
+      case 'INT': fields.push([3, (e) => emitInt(e, 3, v.i)]); break;
+      case 'STRING': fields.push([4, (e) => emitBytes(e, 4, v.s)]); break;
+      case 'TENSOR': fields.push([5, (e) => sub(e, 5, kids[0]!)]); break;
+      case 'GRAPH': fields.push([6, (e) => sub(e, 6, kids[0]!)]); break;
+      case 'FLOATS': fields.push([7, (e) => v.floats.forEach((f) => emitFloat(e, 7, f))]); break;
+      case 'INTS': fields.push([8, (e) => v.ints.forEach((i) => emitInt(e, 8, i))]); break;
+      case 'STRINGS': fields.push([9, (e) => v.strings.forEach((s) => emitBytes(e, 9, s))]); break;
+      case 'TENSORS': fields.push([10, (e) => kids.forEach((k) => sub(e, 10, k))]); break;
+      case 'GRAPHS': fields.push([11, (e) => kids.forEach((k) => sub(e, 11, k))]); break;
+      case 'OTHER': break;
+    }
+    fields.push([13, (e) => { if (a.docString) emitString(e, 13, a.docString); }]);
+    fields.push([20, (e) => emitInt(e, 20, v.type === 'OTHER' ? v.code : codes[v.type]!)]);
+    fields.push([21, (e) => { if (a.refAttrName) emitString(e, 21, a.refAttrName); }]);
+    assemble(e, a.origin?.order, a.extra, fields);
+    return piece(e);
+  }
+
+  node(n: Node): Piece {
+    const kids = n.attributes.map((a) => this.attribute(a));
+    const u = unchanged(n.origin, nodeSig(n), kids);
+    if (u) return u;
+    const e = new Emitter();
+    assemble(e, n.origin?.order, n.extra, [
+      [1, (e) => n.inputs.forEach((s) => emitString(e, 1, s))],
+      [2, (e) => n.outputs.forEach((s) => emitString(e, 2, s))],
+      [3, (e) => { if (n.name || n.origin?.order.includes(3)) emitString(e, 3, n.name); }],
+      [4, (e) => emitString(e, 4, n.opType)],
+      [5, (e) => kids.forEach((k) => sub(e, 5, k))],
+      [6, (e) => { if (n.docString) emitString(e, 6, n.docString); }],
+      [7, (e) => { if (n.domain || n.origin?.order.includes(7)) emitString(e, 7, n.domain); }],
+    ]);
+    return piece(e);
+  }
+
+  graph(g: Graph): Piece {
+    const nodes = g.nodes.map((n) => this.node(n));
+    const inits = g.initializers.map((t) => this.tensor(t));
+    const ins = g.inputs.map((v) => this.valueInfo(v));
+    const outs = g.outputs.map((v) => this.valueInfo(v));
+    const infos = g.valueInfo.map((v) => this.valueInfo(v));
+    const u = unchanged(g.origin, graphSig(g), [...nodes, ...inits, ...ins, ...outs, ...infos]);
+    if (u) return u;
+    const e = new Emitter();
+    assemble(e, g.origin?.order, g.extra, [
+      [1, (e) => nodes.forEach((p) => sub(e, 1, p))],
+      [2, (e) => { if (g.name || g.origin?.order.includes(2)) emitString(e, 2, g.name); }],
+      [5, (e) => inits.forEach((p) => sub(e, 5, p))],
+      [10, (e) => { if (g.docString) emitString(e, 10, g.docString); }],
+      [11, (e) => ins.forEach((p) => sub(e, 11, p))],
+      [12, (e) => outs.forEach((p) => sub(e, 12, p))],
+      [13, (e) => infos.forEach((p) => sub(e, 13, p))],
+    ]);
+    return piece(e);
+  }
+
+  opset(o: OpsetImport): Piece {
+    const u = unchanged(o.origin, opsetSig(o), []);
+    if (u) return u;
+    const e = new Emitter();
+    assemble(e, o.origin?.order, o.extra, [
+      [1, (e) => { if (o.domain || o.origin?.order.includes(1)) emitString(e, 1, o.domain); }],
+      [2, (e) => emitInt(e, 2, o.version)],
+    ]);
+    return piece(e);
+  }
+
+  model(m: Model): Piece {
+    const graph = this.graph(m.graph);
+    const opsets = m.opsets.map((o) => this.opset(o));
+    const u = unchanged(m.origin, modelSig(m), [graph, ...opsets]);
+    if (u) return u;
+    const e = new Emitter();
+    const has = (no: number) => m.origin?.order.includes(no) ?? false;
+    assemble(e, m.origin?.order, m.extra, [
+      [1, (e) => emitInt(e, 1, m.irVersion)],
+      [2, (e) => { if (m.producerName || has(2)) emitString(e, 2, m.producerName); }],
+      [3, (e) => { if (m.producerVersion || has(3)) emitString(e, 3, m.producerVersion); }],
+      [4, (e) => { if (m.domain || has(4)) emitString(e, 4, m.domain); }],
+      [5, (e) => { if (m.modelVersion || has(5)) emitInt(e, 5, m.modelVersion); }],
+      [6, (e) => { if (m.docString || has(6)) emitString(e, 6, m.docString); }],
+      [7, (e) => sub(e, 7, graph)],
+      [8, (e) => opsets.forEach((p) => sub(e, 8, p))],
+      [14, (e) => m.metadata.forEach(([k, v]) => {
+        const kv = new Emitter();
+        emitString(kv, 1, k); emitString(kv, 2, v);
+        sub(e, 14, piece(kv));
+      })],
+    ]);
+    return piece(e);
+  }
+}
+
+function encodeShape(shape: Dim[]): Piece {
+  const e = new Emitter();
+  for (const d of shape) {
+    const de = new Emitter();
+    if (typeof d === 'number') emitInt(de, 1, d);
+    else if (typeof d === 'string') emitString(de, 2, d);
+    sub(e, 1, piece(de));
+  }
+  return piece(e);
+}
+
+function packedVarints(e: Emitter, no: number, values: number[]): void {
+  if (!values.length) return;
+  const inner = new Emitter();
+  for (const v of values) inner.varint(v);
+  const p = piece(inner);
+  sub(e, no, p);
+}
+
+function packedBig(e: Emitter, no: number, values: BigInt64Array | BigUint64Array): void {
+  if (!values.length) return;
+  const inner = new Emitter();
+  for (const v of values) inner.varintBig(v);
+  sub(e, no, piece(inner));
+}
+
+export interface Serialized {
+  chunks: Uint8Array[];
+  length: number;
+  sideFiles: SideFile[];
+}
+
+/** Encode a model; `outPath` decides the names of side files for external data. */
+export function serializeModelParts(model: Model, outPath: string, opts: WriteOptions = {}): Serialized {
+  const outDir = dirname(resolve(outPath));
+  const plan = new ExternalPlan(basename(outPath), model.sourcePath ? model.baseDir : undefined, outDir, opts);
+  const p = new Encoder(plan).model(model);
+  return { chunks: p.chunks, length: p.length, sideFiles: [...plan.files.values()] };
+}
+
+/** Encode a model with all tensors inline (no side files) into one byte array. */
+export function serializeModel(model: Model): Uint8Array {
+  const parts = serializeModelParts(model, join(model.baseDir, 'model.onnx'));
+  if (parts.sideFiles.length) throw new PleatError('bad-input', 'model has external data: write it with writeModelFile');
+  const out = new Uint8Array(parts.length);
+  let o = 0;
+  for (const c of parts.chunks) { out.set(c, o); o += c.byteLength; }
+  return out;
+}
+
+let tmpCounter = 0;
+function tempName(path: string): string {
+  return join(dirname(path), `.${basename(path)}.${process.pid}.${tmpCounter++}.tmp`);
+}
+
+function writeChunks(path: string, chunks: Iterable<{ offset?: number; bytes: Uint8Array }>): void {
+  const fd = openSync(path, 'w');
+  try {
+    let pos = 0;
+    for (const c of chunks) {
+      const at = c.offset ?? pos;
+      let done = 0;
+      while (done < c.bytes.byteLength) done += writeSync(fd, c.bytes, done, c.bytes.byteLength - done, at + done);
+      pos = at + c.bytes.byteLength;
+    }
+  } finally {
+    closeSync(fd);
+  }
+}
+
+/**
+ * Write a model (and its side files) atomically: everything goes to temporary files first, then each is
+ * renamed into place, so a failure never leaves a partial output. The model's own source is never overwritten.
+ */
+export function writeModelFile(model: Model, path: string, opts: WriteOptions = {}): { bytes: number; sideFiles: string[] } {
+  const target = resolve(path);
+  if (model.sourcePath && resolve(model.sourcePath) === target) {
+    throw new PleatError('bad-input', `${path}: refusing to overwrite the input model; choose another output path`);
+  }
+  const parts = serializeModelParts(model, target, opts);
+  const temps: Array<[string, string]> = [];
+  try {
+    for (const f of parts.sideFiles) {
+      const dest = resolve(dirname(target), f.location);
+      if (model.sourcePath && dest === resolve(model.sourcePath)) {
+        throw new PleatError('bad-input', `${path}: a side file would overwrite the input model`);
+      }
+      const tmp = tempName(dest);
+      temps.push([tmp, dest]);
+      writeChunks(tmp, [...f.pieces].sort((a, b) => a.offset - b.offset));
+    }
+    const tmp = tempName(target);
+    temps.push([tmp, target]);
+    writeChunks(tmp, parts.chunks.map((bytes) => ({ bytes })));
+    for (const [tmp, dest] of temps) renameSync(tmp, dest);
+  } catch (e) {
+    for (const [tmp] of temps) rmSync(tmp, { force: true });
+    if (e instanceof PleatError) throw e;
+    throw new PleatError('bad-input', `${path}: cannot write (${(e as Error).message.split('\n')[0]})`);
+  }
+  return { bytes: parts.length, sideFiles: parts.sideFiles.map((f) => resolve(dirname(target), f.location)) };
+}
