@@ -1,0 +1,26 @@
+#!/usr/bin/env node
+// pleat's command line: parse flags, call the library, print. No logic lives here.
+import yargs from 'yargs';
+import { hideBin } from 'yargs/helpers';
+import { failAndExit } from './errors.js';
+import * as surveyCmd from './commands/survey.js';
+
+async function main(): Promise<void> {
+  const cli = yargs(hideBin(process.argv))
+    .scriptName('pleat')
+    .usage('pleat <command> [options]\n\nFold inference-mode normalization into neighbouring layers of ONNX models, prove the result, audit what stays.')
+    .command(surveyCmd as never)
+    .demandCommand(1, 'name a command (see pleat --help)')
+    .strict()
+    .help()
+    .version()
+    .wrap(Math.min(110, process.stdout.columns || 110))
+    .fail((msg, err) => {
+      if (err) failAndExit(err);
+      process.stderr.write(`pleat: ${msg.split('\n')[0]}\n`);
+      process.exit(2);
+    });
+  await cli.parseAsync();
+}
+
+main().catch(failAndExit);

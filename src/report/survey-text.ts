@@ -1,0 +1,23 @@
+// The survey as text: one labelled line per fact, our own compact layout.
+import type { SurveyReport } from '../survey.js';
+import { bytesText, dimsText } from './format.js';
+
+export function surveyText(r: SurveyReport): string {
+  const lines: string[] = [];
+  const pad = (label: string) => label.padEnd(10);
+  lines.push(`${r.file ?? 'model'}`);
+  lines.push(`  ${pad('format')}IR ${r.irVersion}; opsets ${r.opsets.map((o) => `${o.domain} ${o.version}`).join(', ')}`);
+  lines.push(`  ${pad('producer')}${r.producer.name || '(none)'}${r.producer.version ? ` ${r.producer.version}` : ''}`);
+  for (const [label, list] of [['inputs', r.inputs], ['outputs', r.outputs]] as const) {
+    if (!list.length) lines.push(`  ${pad(label)}(none)`);
+    list.forEach((v, i) => lines.push(`  ${pad(i === 0 ? label : '')}${v.name}  ${v.type} ${dimsText(v.dims)}`));
+  }
+  lines.push(`  ${pad('nodes')}${r.nodeCount}${r.subgraphCount ? ` (including ${r.subgraphCount} subgraph${r.subgraphCount > 1 ? 's' : ''})` : ''}`);
+  const ops = r.opCounts.map((c) => `${c.op} ${c.count}`);
+  for (let i = 0; i < ops.length; i += 6) lines.push(`  ${pad('')}${ops.slice(i, i + 6).join(', ')}`);
+  lines.push(`  ${pad('weights')}${r.initializers.count} initializers, ${bytesText(r.initializers.bytes)}` +
+    (r.constantNodes.count ? `; ${r.constantNodes.count} Constant nodes, ${bytesText(r.constantNodes.bytes)}` : '') +
+    `; external ${bytesText(r.externalBytes)}`);
+  lines.push(`  ${pad('norms')}${r.normalizations.length ? r.normalizations.map((n) => `${n.op} ${n.count}`).join(', ') : 'no normalization nodes'}`);
+  return lines.join('\n') + '\n';
+}

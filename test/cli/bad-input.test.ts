@@ -1,0 +1,100 @@
+// Bad input gets one clear line on stderr and exit code 2, never a stack trace.
+import { describe, expect, it } from 'vitest';
+import { mkdtempSync, writeFileSync, mkdirSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import onnxProto from 'onnx-proto';
+import { GraphBuilder, modelBytes } from '../helpers/build.js';
+import { pleat } from '../helpers/cli.js';
+
+const dir = mkdtempSync(join(tmpdir(), 'pleat-bad-'));
+const file = (name: string, bytes: Uint8Array | string) => { const p = join(dir, name); writeFileSync(p, bytes); return p; };
+
+function good(): GraphBuilder {
+  const g = new GraphBuilder();
+  g.input('x', [1, 2]).output('y', [1, 2]);
+  g.init('s', [2], [1, 2]);
+  g.node('Mul', ['x', 's'], {}, { name: 'mul', outputs: ['y'] });
+  return g;
+}
+
+function expectOneLine(r: { code: number; stdout: string; stderr: string }, pattern: RegExp): void {
+  expect(r.code).toBe(2);
+  const lines = r.stderr.trim().split('\n');
+  expect(lines).toHaveLength(1);
+  expect(lines[0]).toMatch(/^pleat: /);
+  expect(lines[0]).toMatch(pattern);
+  expect(r.stderr).not.toMatch(/\n\s+at /); // no stack trace
+}
+
+describe('bad input: one line, exit 2', () => {
+  it('missing file', () => expectOneLine(pleat(['survey', join(dir, 'nope.onnx')]), /no such file/));
+  it('a directory', () => { const d = join(dir, 'adir'); mkdirSync(d); expectOneLine(pleat(['survey', d]), /is a directory/); });
+  it('empty file', () => expectOneLine(pleat(['survey', file('empty.onnx', '')]), /empty/));
+  it('bytes that are not a model', () => expectOneLine(pleat(['survey', file('text.onnx', 'hello, this is a text file\n')]), /not (a readable|an) ONNX model|no graph/));
+  it('a truncated model', () => {
+    const b = modelBytes(good());
+    expectOneLine(pleat(['survey', file('trunc.onnx', b.subarray(0, b.length - 7))]), /truncated|past the end|not a readable/);
+  });
+  it('a node reading an undefined value', () => {
+    const g = good();
+    g.node('Relu', ['ghost'], {}, { name: 'r', outputs: ['z'] });
+    expectOneLine(pleat(['survey', file('undef.onnx', modelBytes(g))]), /node 'r' reads 'ghost'/);
+  });
+  it('a cycle', () => {
+    const g = new GraphBuilder();
+    g.input('x', [1]).output('y', [1]);
+    g.node('Add', ['x', 'b'], {}, { name: 'a', outputs: ['a_out'] });
+    g.node('Relu', ['a_out'], {}, { name: 'b', outputs: ['b'] });
+    g.node('Identity', ['a_out'], {}, { name: 'c', outputs: ['y'] });
+    expectOneLine(pleat(['survey', file('cycle.onnx', modelBytes(g))]), /cycle/);
+  });
+  it('two nodes writing one value', () => {
+    const g = good();
+    g.node('Relu', ['x'], {}, { name: 'twin', outputs: ['y'] });
+    expectOneLine(pleat(['survey', file('twowriters.onnx', modelBytes(g))]), /'y' is written by both/);
+  });
+  it('tensor data shorter than its dims', () => {
+    const g = good();
+    g.inits[0]!.dims = [3];
+    expectOneLine(pleat(['survey', file('short.onnx', modelBytes(g))]), /holds 2 elements but its dims \[3\] need 3/);
+  });
+  it('an unknown data type', () => {
+    const g = good();
+    g.inits[0]!.dataType = 77;
+    expectOneLine(pleat(['survey', file('dtype.onnx', modelBytes(g))]), /unknown data type 77/);
+  });
+  it('a model with no opset import is refused', () => {
+    const m = onnxProto.onnx.ModelProto.encode({ irVersion: 8, graph: good().graph() }).finish();
+    expectOneLine(pleat(['survey', file('noopset.onnx', m)]), /opset/);
+  });
+  it('an unknown command or flag is a usage error', () => {
+    expectOneLine(pleat(['bogus']), /./);
+    expectOneLine(pleat(['survey', file('ok.onnx', modelBytes(good())), '--nope']), /nope/i);
+  });
+});
+
+describe('survey', () => {
+  it('reports IR version, opsets, symbolic dims, op counts, weights and norms', () => {
+    const g = new GraphBuilder();
+    g.input('image', ['batch', 3, 4, 4]).output('y', ['batch', 3, 4, 4]);
+    for (const [n, v] of [['sc', [1, 1, 1]], ['sh', [0, 0, 0]], ['mu', [0.1, 0.2, 0.3]], ['va', [1, 2, 3]]] as const) g.init(n, [3], v);
+    g.node('BatchNormalization', ['image', 'sc', 'sh', 'mu', 'va'], {}, { name: 'bn', outputs: ['b'] });
+    g.node('Relu', ['b'], {}, { name: 'r', outputs: ['y'] });
+    const p = file('survey.onnx', modelBytes(g, { producer: 'test-exporter' }));
+    const r = pleat(['survey', p, '--json']);
+    expect(r.code).toBe(0);
+    const j = JSON.parse(r.stdout);
+    expect(j.irVersion).toBe(8);
+    expect(j.opsets).toEqual([{ domain: 'ai.onnx', version: 17 }]);
+    expect(j.producer.name).toBe('test-exporter');
+    expect(j.inputs).toEqual([{ name: 'image', type: 'float32', dims: ['batch', 3, 4, 4] }]);
+    expect(j.opCounts).toEqual([{ op: 'BatchNormalization', count: 1 }, { op: 'Relu', count: 1 }]);
+    expect(j.initializers).toEqual({ count: 4, bytes: 48 });
+    expect(j.normalizations).toEqual([{ op: 'BatchNormalization', count: 1 }]);
+    const t = pleat(['survey', p]);
+    expect(t.code).toBe(0);
+    expect(t.stdout).toMatch(/image\s+float32 \[batch x 3 x 4 x 4\]/);
+    expect(t.stdout).toMatch(/BatchNormalization 1/);
+  });
+});
