@@ -1,0 +1,103 @@
+// The report shapes every job returns. The CLI's --json prints exactly these; the JSON Schema in
+// src/report/schema/pleat-report.schema.json documents them. Bump SCHEMA_VERSION on any breaking change.
+import type { Finding, LedgerEntry } from '../fold/types.js';
+import type { InputOptions } from '../verify/inputs.js';
+
+export const SCHEMA_VERSION = 1;
+
+export interface OutputCheck {
+  name: string;
+  maxAbs: number;
+  maxRel: number;
+  rms: number;
+  cosine: number;
+  passed: boolean;
+  /** Why the output failed when it was not a metric (missing, shape differs). */
+  problem?: string;
+}
+
+/** The whole-model comparison fold runs after folding (original float64 vs folded). */
+export interface CheckSummary {
+  passed: boolean;
+  /** Set when no whole-model comparison ran, saying why (e.g. a dynamic dim no flag resolves). */
+  skipped: string | null;
+  probes: number;
+  seed: number;
+  /** The gate expression used for each output (default per data type unless --gate). */
+  gates: string[];
+  outputs: OutputCheck[];
+}
+
+/** Quantization readiness of one folded layer (Nagel et al. 2019, arXiv:1906.04721). */
+export interface QuantRow {
+  /** The layer whose weights the fold changed. */
+  target: string;
+  /** Normalization(s) folded into it. */
+  norms: string[];
+  channels: number;
+  /** Largest per-output-channel weight range divided by the median one, before and after folding. */
+  spreadBefore: number;
+  spreadAfter: number;
+  /** True when the fold makes per-tensor 8-bit weight quantization lossy (see the threshold in report/quant.ts). */
+  flagged: boolean;
+}
+
+/** Half-precision storage (--store float16). */
+export interface StorageSummary {
+  store: 'float16';
+  tensorsConverted: number;
+  /** Tensors that would overflow float16 and stayed float32. */
+  keptFloat32: string[];
+  bytesBefore: number;
+  bytesAfter: number;
+}
+
+export interface FoldReport {
+  schemaVersion: number;
+  command: 'fold';
+  model: string;
+  /** The file written, or null when nothing was written (check failed). */
+  output: string | null;
+  normalizations: LedgerEntry[];
+  nodesBefore: number;
+  nodesAfter: number;
+  bytesBefore: number;
+  bytesAfter: number;
+  check: CheckSummary | null;
+  quantization: QuantRow[];
+  storage: StorageSummary | null;
+  /** True when a gate failed (exit 1): then nothing was written. */
+  failed: boolean;
+}
+
+export interface AuditReport {
+  schemaVersion: number;
+  command: 'audit';
+  model: string;
+  normalizations: Finding[];
+  foldable: number;
+  kept: number;
+  failOn: 'kept' | null;
+  /** True when --fail-on kept is set and a normalization is kept (exit 1). */
+  failed: boolean;
+}
+
+export interface FoldJobOptions extends InputOptions {
+  keep?: string[];
+  allowOverridable?: boolean;
+  /** Store folded weights in half precision. */
+  store?: 'float16';
+  /** Gate for the whole-model check (default per output data type). */
+  gate?: string;
+  probes?: number;
+  /** Skip the numeric proofs (not exposed on the CLI; for benchmarks of the rewrite alone). */
+  noProofs?: boolean;
+  /** Tensors of at least this many bytes go to a side file. */
+  externalThreshold?: number;
+}
+
+export interface AuditJobOptions {
+  keep?: string[];
+  allowOverridable?: boolean;
+  failOn?: 'kept';
+}

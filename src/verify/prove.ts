@@ -1,0 +1,137 @@
+// The numeric proof of one fold: the region the fold rewrites is run before and after the edit on seeded
+// probes of a small valid shape, in float64, and must agree within the rounding of the weights' storage type.
+// No model input shapes are needed: each region input gets a shape derived from the layer that reads it.
+import type { DataTypeCode, Graph, Node, Tensor } from '../graph/ir.js';
+import { DataType, attrInt, attrInts } from '../graph/ir.js';
+import type { ProofCase } from '../fold/types.js';
+import type { Value } from '../eval/value.js';
+import { runGraph } from '../eval/run.js';
+import { probeValue } from './inputs.js';
+
+export interface ProofResult {
+  passed: boolean;
+  /** Largest |after - before| over outputs and probes. */
+  maxAbs: number;
+  /** Largest |before| (the scale the tolerance is relative to). */
+  scale: number;
+  tolerance: number;
+  /** Set when the proof could not run (then passed is false). */
+  problem?: string;
+}
+
+/**
+ * Relative tolerance by the coarsest float storage type among the region's constants. A folded weight is the
+ * exact product rounded once to its storage type, so the region's outputs differ by a few units in the last
+ * place of that type, summed over the reduction (common practice; no published source).
+ */
+const RTOL: Record<number, number> = {
+  [DataType.DOUBLE]: 1e-9,
+  [DataType.FLOAT]: 2e-5,
+  [DataType.FLOAT16]: 2e-2,
+  [DataType.BFLOAT16]: 8e-2,
+};
+
+function tolerance(graphs: Graph[]): number {
+  let tol = RTOL[DataType.DOUBLE]!;
+  for (const g of graphs) for (const t of g.initializers) tol = Math.max(tol, RTOL[t.dataType] ?? 0);
+  return tol;
+}
+
+const init = (g: Graph, name: string): Tensor | undefined => g.initializers.find((t) => t.name === name);
+
+/** A small valid shape for `value`, from the first node of the region that reads it. */
+function probeShape(g: Graph, value: string, declaredRank: number | undefined): number[] | undefined {
+  for (const n of g.nodes) {
+    const at = n.inputs.indexOf(value);
+    if (at < 0) continue;
+    const shape = shapeFor(g, n, at, declaredRank);
+    if (shape) return shape;
+  }
+  return undefined;
+}
+
+function shapeFor(g: Graph, n: Node, at: number, rank: number | undefined): number[] | undefined {
+  const other = (i: number) => (n.inputs[i] ? init(g, n.inputs[i]!) : undefined);
+  switch (n.opType) {
+    case 'Conv': {
+      const w = other(1);
+      if (at !== 0 || !w) return undefined;
+      const group = attrInt(n, 'group', 1);
+      const k = w.dims.slice(2);
+      const dil = attrInts(n, 'dilations') ?? k.map(() => 1);
+      const str = attrInts(n, 'strides') ?? k.map(() => 1);
+      return [2, w.dims[1]! * group, ...k.map((kk, i) => (kk - 1) * dil[i]! + 1 + 2 * str[i]!)];
+    }
+    case 'ConvTranspose': {
+      const w = other(1);
+      if (at !== 0 || !w) return undefined;
+      return [2, w.dims[0]!, ...w.dims.slice(2).map(() => 3)];
+    }
+    case 'Gemm': {
+      const b = other(1);
+      if (at !== 0 || !b) return undefined;
+      const k = attrInt(n, 'transB', 0) ? b.dims[1]! : b.dims[0]!;
+      return attrInt(n, 'transA', 0) ? [k, 3] : [3, k];
+    }
+    case 'MatMul': {
+      const b = other(1);
+      if (at !== 0 || !b || b.dims.length !== 2) return undefined;
+      const r = Math.max(rank ?? 2, 2);
+      return [...Array(r - 2).fill(2), 3, b.dims[0]!];
+    }
+    case 'BatchNormalization': case 'InstanceNormalization': {
+      const s = other(1);
+      if (at !== 0 || !s) return undefined;
+      const r = Math.max(rank ?? 4, 2);
+      return [2, s.dims[0]!, ...Array(r - 2).fill(4)];
+    }
+    case 'Add': case 'Sub': case 'Mul': case 'Div': {
+      const c = other(1 - at);
+      if (!c) return undefined;
+      const r = Math.max(rank ?? c.dims.length, c.dims.length, 1);
+      // broadcast-compatible: the constant's trailing dims, padded with small sizes in front
+      const lead = Array(r - c.dims.length).fill(0).map((_, i) => (i === 0 ? 2 : 3));
+      return [...lead, ...c.dims.map((d) => (d === 1 ? 3 : d))];
+    }
+    default:
+      return undefined;
+  }
+}
+
+function sameDims(a: readonly number[], b: readonly number[]): boolean {
+  return a.length === b.length && a.every((d, i) => d === b[i]);
+}
+
+export function proveFold(c: ProofCase, opts: { probes?: number; seed?: number } = {}): ProofResult {
+  const probes = opts.probes ?? 2;
+  const seed = opts.seed ?? 0;
+  const tol = tolerance([c.before, c.after]);
+  const specs: Array<{ name: string; type: DataTypeCode; dims: number[] }> = [];
+  for (const i of c.before.inputs) {
+    const dims = probeShape(c.before, i.name, i.shape?.length);
+    if (!dims) return { passed: false, maxAbs: NaN, scale: NaN, tolerance: tol, problem: `no probe shape for region input '${i.name}'` };
+    specs.push({ name: i.name, type: i.elemType ?? DataType.FLOAT, dims });
+  }
+  let maxAbs = 0, scale = 0;
+  try {
+    for (let p = 0; p < probes; p++) {
+      const inputs = new Map<string, Value>(specs.map((s) => [s.name, probeValue(s, seed, p)]));
+      const run = (g: Graph) => runGraph(g, inputs, { precision: 'float64', opsetOf: c.opsetOf });
+      const before = run(c.before), after = run(c.after);
+      for (const o of c.before.outputs) {
+        const a = before.get(o.name), b = after.get(o.name);
+        if (!a || !b || !sameDims(a.dims, b.dims)) {
+          return { passed: false, maxAbs: Infinity, scale, tolerance: tol, problem: `region output '${o.name}' missing or reshaped after the fold` };
+        }
+        for (let i = 0; i < a.data.length; i++) {
+          const d = Math.abs(a.data[i]! - b.data[i]!);
+          if (!(d <= maxAbs)) maxAbs = Number.isNaN(d) ? Infinity : d;
+          scale = Math.max(scale, Math.abs(a.data[i]!));
+        }
+      }
+    }
+  } catch (e) {
+    return { passed: false, maxAbs: NaN, scale, tolerance: tol, problem: (e as Error).message.split('\n')[0] };
+  }
+  return { passed: maxAbs <= tol * Math.max(scale, 1e-12), maxAbs, scale, tolerance: tol };
+}
