@@ -1,0 +1,59 @@
+// A large synthetic graph for the audit benchmark: chains of Conv/BatchNormalization/Relu with branches
+// (a Relu read by two convolutions that are added back) and If subgraphs, of about `target` nodes.
+import type { Attribute, Graph, Model, Node, Tensor, ValueInfo } from '../../src/graph/ir.js';
+
+const tensor = (name: string, dims: number[], v: number): Tensor => {
+  const n = dims.reduce((a, b) => a * b, 1);
+  return { name, dims, dataType: 1, storage: { kind: 'raw', bytes: new Uint8Array(new Float32Array(n).fill(v).buffer) }, docString: '', extra: [] };
+};
+const vi = (name: string, shape?: number[]): ValueInfo => ({ name, elemType: 1, shape, docString: '', extra: [] });
+const node = (opType: string, name: string, inputs: string[], outputs: string[], attributes: Attribute[] = []): Node =>
+  ({ name, opType, domain: '', inputs, outputs, attributes, docString: '', extra: [] });
+
+export function wideModel(target: number): Model {
+  const C = 4;
+  const g: Graph = { name: 'wide', nodes: [], initializers: [], inputs: [vi('x', [1, C, 4, 4])], outputs: [], valueInfo: [], docString: '', extra: [] };
+  // shared parameters keep memory small: every conv reads the same weight, every norm the same statistics
+  g.initializers.push(tensor('W', [C, C, 1, 1], 0.5), tensor('one', [C], 1), tensor('zero', [C], 0), tensor('cond', [], 1));
+  g.initializers[3]!.dataType = 9;
+  g.initializers[3]!.storage = { kind: 'raw', bytes: new Uint8Array([1]) };
+  let cur = 'x', k = 0;
+  const block = (into: Graph, input: string, p: string): string => {
+    into.nodes.push(node('Conv', `${p}conv${k}`, [input, 'W'], [`${p}c${k}`]));
+    into.nodes.push(node('BatchNormalization', `${p}bn${k}`, [`${p}c${k}`, 'one', 'zero', 'zero', 'one'], [`${p}b${k}`]));
+    into.nodes.push(node('Relu', `${p}relu${k}`, [`${p}b${k}`], [`${p}r${k}`]));
+    return `${p}r${k++}`;
+  };
+  while (g.nodes.length < target) {
+    cur = block(g, cur, '');
+    if (k % 10 === 0) {
+      // a branch: two convolutions read the same activation and are summed
+      const a = block(g, cur, 'l'), b = block(g, cur, 'r');
+      g.nodes.push(node('Add', `add${k}`, [a, b], [`sum${k}`]));
+      cur = `sum${k}`;
+    }
+    if (k % 100 === 0) {
+      const branch = (label: string): Graph => {
+        const sg: Graph = { name: `${label}${k}`, nodes: [], initializers: [], inputs: [], outputs: [], valueInfo: [], docString: '', extra: [] };
+        const out = block(sg, cur, `${label}`);
+        sg.outputs.push(vi(out));
+        return sg;
+      };
+      const at = (name: string, gr: Graph): Attribute => ({ name, value: { type: 'GRAPH', g: gr }, docString: '', refAttrName: '', extra: [] });
+      g.nodes.push(node('If', `if${k}`, ['cond'], [`if_out${k}`], [at('then_branch', branch('t')), at('else_branch', branch('e'))]));
+      cur = `if_out${k}`;
+    }
+  }
+  g.outputs.push(vi(cur));
+  return {
+    irVersion: 8, opsets: [{ domain: '', version: 17, extra: [] }], producerName: 'pleat-bench', producerVersion: '1',
+    domain: '', modelVersion: 0, docString: '', graph: g, metadata: [], extra: [], baseDir: '.',
+  };
+}
+
+export function nodeCount(m: Model): number {
+  let n = 0;
+  const walk = (g: Graph) => { for (const x of g.nodes) { n++; for (const a of x.attributes) if (a.value.type === 'GRAPH') walk(a.value.g); } };
+  walk(m.graph);
+  return n;
+}

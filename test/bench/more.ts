@@ -1,0 +1,76 @@
+// Benchmarks beyond model I/O: the evaluator against onnxruntime-node on a MobileNet-like CNN, and audit
+// time against graph size. Each is reported as a ratio to a yardstick measured in the same run.
+import { performance } from 'node:perf_hooks';
+import { execFileSync } from 'node:child_process';
+import { join, dirname } from 'node:path';
+import { fileURLToPath } from 'node:url';
+import { tmpdir } from 'node:os';
+import { writeFileSync, mkdirSync } from 'node:fs';
+import { GraphBuilder, modelBytes, randn, rng, uniform, f } from '../helpers/build.js';
+
+const here = dirname(fileURLToPath(import.meta.url));
+const work = join(tmpdir(), 'pleat-bench');
+
+/** A MobileNet-v1-like CNN at 224x224: stem conv, 13 depthwise-separable blocks, pool, dense head. */
+export function mobilenetLike(seed = 3): Uint8Array {
+  const r = rng(seed);
+  const g = new GraphBuilder('mobilenet_like');
+  g.input('image', [1, 3, 224, 224]).output('logits', [1, 1000]);
+  let cur = 'image', ch = 3, k = 0;
+  const convBnRelu = (cin: number, cout: number, kernel: number, stride: number, group: number) => {
+    const W = g.init(`w${k}`, [cout, cin / group, kernel, kernel], randn(r, cout * (cin / group) * kernel * kernel, Math.sqrt(2 / ((cin / group) * kernel * kernel))));
+    const pad = (kernel - 1) / 2;
+    const c = g.node('Conv', [cur, W], { kernel_shape: [kernel, kernel], strides: [stride, stride], pads: [pad, pad, pad, pad], group });
+    const bn = g.node('BatchNormalization', [c, g.init(`s${k}`, [cout], uniform(r, cout, 0.5, 1.5)), g.init(`b${k}`, [cout], randn(r, cout, 0.1)),
+      g.init(`m${k}`, [cout], randn(r, cout, 0.1)), g.init(`v${k}`, [cout], uniform(r, cout, 0.5, 2))], { epsilon: f(1e-5) });
+    cur = g.node('Relu', [bn]);
+    k++;
+  };
+  convBnRelu(3, 32, 3, 2, 1); ch = 32;
+  const plan: Array<[number, number]> = [[64, 1], [128, 2], [128, 1], [256, 2], [256, 1], [512, 2], [512, 1], [512, 1], [512, 1], [512, 1], [512, 1], [1024, 2], [1024, 1]];
+  for (const [out, stride] of plan) {
+    convBnRelu(ch, ch, 3, stride, ch);
+    convBnRelu(ch, out, 1, 1, 1);
+    ch = out;
+  }
+  const p = g.node('GlobalAveragePool', [cur]);
+  const fl = g.node('Flatten', [p], { axis: 1 });
+  g.node('Gemm', [fl, g.init('fc_w', [1000, ch], randn(r, 1000 * ch, 0.03)), g.init('fc_b', [1000], randn(r, 1000, 0.01))], { transB: 1 }, { outputs: ['logits'] });
+  return modelBytes(g);
+}
+
+function child(job: string, ...args: string[]): { seconds: number; maxRssBytes: number; [k: string]: unknown } {
+  const out = execFileSync(process.execPath, [join(here, 'child.js'), job, ...args], { encoding: 'utf8', maxBuffer: 1 << 24 });
+  return JSON.parse(out.trim().split('\n').pop()!);
+}
+
+export async function run(on: (k: string) => boolean, rows: string[][]): Promise<void> {
+  mkdirSync(work, { recursive: true });
+  if (on('eval')) {
+    const path = join(work, 'mobilenet-like.onnx');
+    writeFileSync(path, mobilenetLike());
+    const ort = child('ort-run', path);
+    for (const precision of ['float32', 'float64']) {
+      try {
+        const r = child('eval-run', path, precision);
+        const target = precision === 'float32' ? '<= 10x' : '<= 20x';
+        rows.push([`evaluate MobileNet-like 224x224 (${precision})`, `${r.seconds.toFixed(3)} s`,
+          `${(r.seconds / ort.seconds).toFixed(1)}x onnxruntime-node (${ort.seconds.toFixed(3)} s, 1 thread, no graph optimization)`, target, '', '']);
+      } catch (e) { rows.push([`evaluate (${precision})`, 'failed', String((e as Error).message).split('\n')[0]!, '', '', '']); }
+    }
+  }
+  if (on('audit')) {
+    const sizes = [1e4, 1e5, 1e6];
+    const times: number[] = [];
+    for (const n of sizes) {
+      try {
+        const r = child('audit-size', String(n));
+        times.push(r.seconds);
+        rows.push([`audit ${n.toLocaleString('en')} nodes`, `${r.seconds.toFixed(3)} s`,
+          times.length > 1 ? `${(r.seconds / times[times.length - 2]!).toFixed(1)}x the previous size (10x nodes)` : 'yardstick for the next rows',
+          n === 1e5 ? '< 2 s' : 'linear', `${(r.maxRssBytes / 2 ** 20).toFixed(0)} MiB peak`, '']);
+      } catch (e) { rows.push([`audit ${n} nodes`, 'failed', String((e as Error).message).split('\n')[0]!, '', '', '']); }
+    }
+  }
+  void performance;
+}
