@@ -1,6 +1,6 @@
 // Bytes -> IR. Every message keeps its original bytes (views into the file buffer, no copies) and the
 // fields pleat does not model, so the writer can give them back unchanged.
-import { readFileSync, statSync } from 'node:fs';
+import { closeSync, statSync } from 'node:fs';
 import { dirname, resolve } from 'node:path';
 import type {
   Attribute, AttributeValue, Dim, Graph, Model, Node, OpsetImport, RawField, Tensor, TensorStorage, ValueInfo,
@@ -15,6 +15,7 @@ import {
 } from './signature.js';
 import { loadExternalData } from './external.js';
 import { validateModel } from '../graph/validate.js';
+import { openForRead, readSparse } from './sparse-read.js';
 
 type Buf = Uint8Array;
 
@@ -324,10 +325,15 @@ export function readModelFile(path: string): Model {
   }
   if (st.isDirectory()) throw new PleatError('bad-input', `${path}: is a directory, expected an .onnx file`);
   let bytes: Uint8Array;
+  let fd: number | undefined;
   try {
-    bytes = readFileSync(path);
+    fd = openForRead(path);
+    bytes = readSparse(path, fd);
   } catch (e) {
+    if (e instanceof PleatError) throw e;
     throw new PleatError('bad-input', `${path}: cannot be read (${(e as Error).message.split('\n')[0]})`);
+  } finally {
+    if (fd !== undefined) closeSync(fd);
   }
   const model = parseModel(bytes, dirname(resolve(path)), path);
   model.sourcePath = resolve(path);

@@ -2,6 +2,7 @@
 // in the tensor's own type and storage form.
 import { DataType, elementCount, type DataTypeCode, type Tensor, type TensorStorage } from '../graph/ir.js';
 import { PleatError } from '../errors.js';
+import { ensureLoaded, markLoaded } from './sparse-read.js';
 
 const NAMES: Record<number, string> = {
   0: 'undefined', 1: 'float32', 2: 'uint8', 3: 'int8', 4: 'uint16', 5: 'int16', 6: 'int32', 7: 'int64',
@@ -143,7 +144,7 @@ export function tensorToFloat64(t: Tensor): Float64Array {
   const out = new Float64Array(n);
   const s = t.storage;
   switch (s.kind) {
-    case 'raw': case 'external': readRaw(s.bytes, t.dataType, n, out); break;
+    case 'raw': case 'external': ensureLoaded(s.bytes); readRaw(s.bytes, t.dataType, n, out); break;
     case 'float_data': case 'double_data': for (let i = 0; i < n; i++) out[i] = s.values[i]!; break;
     case 'int32_data':
       if (t.dataType === DataType.FLOAT16) for (let i = 0; i < n; i++) out[i] = halfBitsToNumber(s.values[i]! & 0xffff);
@@ -193,6 +194,7 @@ export function encodeStorage(values: ArrayLike<number>, code: DataTypeCode, lik
       const size = n * bpe;
       const bytes = reuse && like.bytes.byteLength === size ? like.bytes : new Uint8Array(size);
       writeRaw(values, code, bytes);
+      markLoaded(bytes); // overwritten in memory: the file's old bytes must not be streamed back
       return like.kind === 'raw' ? { kind: 'raw', bytes } : { kind: 'external', entries: like.entries, bytes };
     }
     case 'float_data': return { kind: 'float_data', values: Float32Array.from(values) };
@@ -225,6 +227,14 @@ export function encodeStorage(values: ArrayLike<number>, code: DataTypeCode, lik
 /** Build a new raw_data tensor from values (used for tensors pleat creates). */
 export function makeTensor(name: string, dims: number[], dataType: DataTypeCode, values: ArrayLike<number>): Tensor {
   return { name, dims: [...dims], dataType, storage: encodeStorage(values, dataType, { kind: 'raw', bytes: new Uint8Array(0) }), docString: '', extra: [] };
+}
+
+/** A raw or external tensor's bytes, read from the file first if they were left unread. */
+export function tensorBytes(t: Tensor): Uint8Array {
+  const s = t.storage;
+  if (s.kind !== 'raw' && s.kind !== 'external') throw new PleatError('dtype-unsupported', `tensor '${t.name}' is not stored as raw bytes`);
+  ensureLoaded(s.bytes);
+  return s.bytes;
 }
 
 /** Bytes a tensor's data occupies (inline or external). */

@@ -1,7 +1,7 @@
 // IR -> bytes. A message whose modelled fields match what was read is re-emitted from its original bytes;
 // a changed one is re-encoded field by field in its original field order, with the fields pleat does not
 // model copied through untouched. Output files are written to temporary names and renamed into place.
-import { closeSync, openSync, renameSync, rmSync, writeSync } from 'node:fs';
+import { closeSync, copyFileSync, openSync, readSync, renameSync, rmSync, writeSync } from 'node:fs';
 import { basename, dirname, join, resolve } from 'node:path';
 import type { Attribute, Graph, Model, Node, OpsetImport, RawField, Tensor, ValueInfo, Dim } from '../graph/ir.js';
 import { PleatError } from '../errors.js';
@@ -12,6 +12,7 @@ import {
   attributeSig, graphSig, modelSig, nodeSig, opsetSig, tensorSig, typeSig, valueInfoSig,
 } from './signature.js';
 import { externalRef } from './external.js';
+import { ensureLoaded, lazySourceOf, pendingIn } from './sparse-read.js';
 
 interface Piece { chunks: Uint8Array[]; length: number; same: boolean }
 
@@ -341,7 +342,7 @@ export function serializeModel(model: Model): Uint8Array {
   if (parts.sideFiles.length) throw new PleatError('bad-input', 'model has external data: write it with writeModelFile');
   const out = new Uint8Array(parts.length);
   let o = 0;
-  for (const c of parts.chunks) { out.set(c, o); o += c.byteLength; }
+  for (const c of parts.chunks) { ensureLoaded(c); out.set(c, o); o += c.byteLength; }
   return out;
 }
 
@@ -350,14 +351,56 @@ function tempName(path: string): string {
   return join(dirname(path), `.${basename(path)}.${process.pid}.${tmpCounter++}.tmp`);
 }
 
+const STREAM_BLOCK = 8 * 1024 * 1024;
+
+/** Write bytes at a file position; parts of a sparsely read model still on disk are streamed from its file. */
+function writeAt(fd: number, bytes: Uint8Array, at: number, scratch: { buf?: Uint8Array }): void {
+  const src = lazySourceOf(bytes);
+  const pending = src ? pendingIn(src, bytes) : [];
+  const base = src ? bytes.byteOffset - src.byteOffset : 0;
+  let done = 0;
+  const plain = (upTo: number) => {
+    while (done < upTo) done += writeSync(fd, bytes, done, upTo - done, at + done);
+  };
+  if (!pending.length) { plain(bytes.byteLength); return; }
+  const inFd = openSync(src!.path, 'r');
+  try {
+    scratch.buf ??= new Uint8Array(STREAM_BLOCK);
+    const buf = scratch.buf;
+    for (const [s, e] of pending) {
+      plain(s - base);
+      for (let pos = s; pos < e;) {
+        const n = readSync(inFd, buf, 0, Math.min(buf.byteLength, e - pos), pos);
+        if (n <= 0) throw new PleatError('bad-input', `${src!.path}: the input changed while being copied`);
+        let w = 0;
+        while (w < n) w += writeSync(fd, buf, w, n - w, at + (pos - base) + w);
+        pos += n;
+      }
+      done = e - base;
+    }
+    plain(bytes.byteLength);
+  } finally {
+    closeSync(inFd);
+  }
+}
+
 function writeChunks(path: string, chunks: Iterable<{ offset?: number; bytes: Uint8Array }>): void {
+  const list = [...chunks];
+  // A model written with no change is its source file, byte for byte: let the kernel copy it.
+  if (list.length === 1 && list[0]!.offset === undefined) {
+    const src = lazySourceOf(list[0]!.bytes);
+    if (src && list[0]!.bytes.byteOffset === src.byteOffset && list[0]!.bytes.byteLength === src.size) {
+      copyFileSync(src.path, path);
+      return;
+    }
+  }
   const fd = openSync(path, 'w');
+  const scratch: { buf?: Uint8Array } = {};
   try {
     let pos = 0;
-    for (const c of chunks) {
+    for (const c of list) {
       const at = c.offset ?? pos;
-      let done = 0;
-      while (done < c.bytes.byteLength) done += writeSync(fd, c.bytes, done, c.bytes.byteLength - done, at + done);
+      writeAt(fd, c.bytes, at, scratch);
       pos = at + c.bytes.byteLength;
     }
   } finally {

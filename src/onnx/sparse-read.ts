@@ -1,0 +1,176 @@
+// Reading a model without reading its big weights. The file's structure (every message except the payload of
+// large raw_data fields) is read into a buffer the size of the file, at the same offsets; large payloads are
+// left unread ("pending") and fetched from the file the first time something needs their bytes. Untouched
+// memory costs nothing, so a model whose weights are never decoded is loaded and written back almost for free.
+//
+// Every reader of tensor bytes goes through ensureLoaded (tensorToFloat64 does) and every in-place overwrite
+// through markLoaded (encodeStorage does); the writer streams pending ranges straight from the source file.
+import { closeSync, fstatSync, openSync, readSync } from 'node:fs';
+import { PleatError } from '../errors.js';
+import { WireError } from './wire.js';
+
+/** Payloads at least this large are left unread until needed. */
+export const DEFER_MIN = 64 * 1024;
+/** Below this size a message is read whole, without walking its fields. */
+const WHOLE_MAX = 256 * 1024;
+/** How far ahead of a field header to read in one call (fewer system calls on graphs of many small nodes). */
+const READ_AHEAD = 64 * 1024;
+
+type Kind = 'model' | 'graph' | 'node' | 'attribute' | 'tensor';
+
+/** Sub-messages worth walking into, by message kind and field number; 'defer' marks a raw byte payload. */
+const SCHEMA: Record<Kind, Record<number, Kind | 'defer'>> = {
+  model: { 7: 'graph' },
+  graph: { 1: 'node', 5: 'tensor' },
+  node: { 5: 'attribute' },
+  attribute: { 5: 'tensor', 6: 'graph', 10: 'tensor', 11: 'graph' },
+  tensor: { 9: 'defer' },
+};
+
+export interface LazySource {
+  path: string;
+  size: number;
+  /** Byte ranges of the buffer not yet read from the file, sorted, non-overlapping. */
+  pending: Array<[number, number]>;
+  buffer: ArrayBufferLike;
+  byteOffset: number;
+}
+
+const sources = new WeakMap<ArrayBufferLike, LazySource>();
+
+export function lazySourceOf(view: Uint8Array): LazySource | undefined {
+  return sources.get(view.buffer);
+}
+
+/** Pending parts of a view, as [start, end) offsets into the file. */
+export function pendingIn(src: LazySource, view: Uint8Array): Array<[number, number]> {
+  const a = view.byteOffset - src.byteOffset, b = a + view.byteLength;
+  const out: Array<[number, number]> = [];
+  for (const [s, e] of src.pending) {
+    if (e <= a) continue;
+    if (s >= b) break;
+    out.push([Math.max(s, a), Math.min(e, b)]);
+  }
+  return out;
+}
+
+function removeRange(src: LazySource, a: number, b: number): void {
+  const next: Array<[number, number]> = [];
+  for (const [s, e] of src.pending) {
+    if (e <= a || s >= b) { next.push([s, e]); continue; }
+    if (s < a) next.push([s, a]);
+    if (e > b) next.push([b, e]);
+  }
+  src.pending = next;
+}
+
+/** Make sure a view's bytes are in memory (reads the pending parts from the file). */
+export function ensureLoaded(view: Uint8Array): void {
+  const src = sources.get(view.buffer);
+  if (!src || !src.pending.length) return;
+  const parts = pendingIn(src, view);
+  if (!parts.length) return;
+  const whole = new Uint8Array(src.buffer, src.byteOffset, src.size);
+  const fd = openSync(src.path, 'r');
+  try {
+    for (const [s, e] of parts) readFully(fd, whole, s, e, src.path);
+  } finally {
+    closeSync(fd);
+  }
+  for (const [s, e] of parts) removeRange(src, s, e);
+}
+
+/** The view's bytes were overwritten in memory: they no longer come from the file. */
+export function markLoaded(view: Uint8Array): void {
+  const src = sources.get(view.buffer);
+  if (!src || !src.pending.length) return;
+  const a = view.byteOffset - src.byteOffset;
+  removeRange(src, a, a + view.byteLength);
+}
+
+function readFully(fd: number, buf: Uint8Array, start: number, end: number, path: string): void {
+  let pos = start;
+  while (pos < end) {
+    const n = readSync(fd, buf, pos, end - pos, pos);
+    if (n <= 0) throw new PleatError('bad-input', `${path}: the file changed or shrank while being read`);
+    pos += n;
+  }
+}
+
+function varintAt(buf: Uint8Array, pos: number, end: number): [number, number] {
+  let v = 0, mul = 1, b: number;
+  do {
+    if (pos >= end) throw new WireError('truncated varint');
+    b = buf[pos++]!;
+    v += (b & 0x7f) * mul;
+    mul *= 128;
+    if (mul > 2 ** 70) throw new WireError('varint too long');
+  } while (b & 0x80);
+  return [v, pos];
+}
+
+/**
+ * Read a model file sparsely. Returns the buffer (same length as the file); structural bytes are filled,
+ * large payloads are pending. Malformed structure is left for the decoder to report: the walk stops
+ * descending where the bytes stop making sense and reads the rest plainly.
+ */
+export function readSparse(path: string, fd: number): Uint8Array {
+  const size = fstatSync(fd).size;
+  const buf = Buffer.allocUnsafeSlow(size);
+  const view = new Uint8Array(buf.buffer, buf.byteOffset, size);
+  const pending: Array<[number, number]> = [];
+  let hi = 0; // everything before hi is read or pending
+
+  const load = (a: number, b: number, ahead = 0) => {
+    if (b <= hi) return;
+    const to = Math.min(size, Math.max(b, hi + ahead));
+    readFully(fd, view, Math.max(a, hi), to, path);
+    hi = to;
+  };
+  const defer = (a: number, b: number) => {
+    if (b <= hi) return;
+    pending.push([Math.max(a, hi), b]);
+    hi = b;
+  };
+
+  const walk = (kind: Kind, start: number, end: number): void => {
+    if (end - start <= WHOLE_MAX) { load(start, end); return; }
+    let p = start;
+    while (p < end) {
+      load(p, Math.min(p + 20, end), READ_AHEAD);
+      let tag: number, q: number;
+      try {
+        [tag, q] = varintAt(view, p, end);
+        const no = Math.floor(tag / 8), wt = tag % 8;
+        if (wt === 2) {
+          let len: number;
+          [len, q] = varintAt(view, q, end);
+          const vend = q + len;
+          if (vend > end) throw new WireError('past end');
+          const what = SCHEMA[kind][no];
+          if (what === 'defer' && len >= DEFER_MIN) { load(p, q); defer(q, vend); }
+          else if (what && what !== 'defer') { load(p, q); walk(what, q, vend); }
+          else load(p, vend);
+          p = vend;
+        } else if (wt === 0) {
+          [, q] = varintAt(view, q, end);
+          p = q;
+        } else if (wt === 1) p = q + 8;
+        else if (wt === 5) p = q + 4;
+        else throw new WireError('wire type');
+      } catch (e) {
+        if (!(e instanceof WireError)) throw e;
+        load(p, end); // let the decoder find and report the problem
+        return;
+      }
+    }
+  };
+  walk('model', 0, size);
+  load(0, size); // anything after a malformed tail
+  if (pending.length) sources.set(view.buffer, { path, size, pending, buffer: view.buffer, byteOffset: view.byteOffset });
+  return view;
+}
+
+export function openForRead(path: string): number {
+  return openSync(path, 'r');
+}
