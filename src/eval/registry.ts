@@ -2,9 +2,151 @@
 // `Kernel` (or several, one per opset form) and add it to KERNELS below.
 import { PleatError } from '../errors.js';
 import type { Kernel } from './value.js';
+import * as activations from './kernels/activations.js';
+import * as binary from './kernels/binary.js';
+import * as cast from './kernels/cast.js';
+import * as concat from './kernels/concat.js';
+import * as constant from './kernels/constant.js';
+import * as expand from './kernels/expand.js';
+import * as gather from './kernels/gather.js';
+import * as identity from './kernels/identity.js';
+import * as logic from './kernels/logic.js';
+import * as reduce from './kernels/reduce.js';
+import * as reshape from './kernels/reshape.js';
+import * as shape from './kernels/shape.js';
+import * as slice from './kernels/slice.js';
+import * as softmax from './kernels/softmax.js';
+import * as transpose from './kernels/transpose.js';
+import * as unary from './kernels/unary.js';
+import * as variadic from './kernels/variadic.js';
+import { Conv } from './kernels/conv.js';
+import { ConvTranspose } from './kernels/convtranspose.js';
+import { BatchNormalization } from './kernels/batchnormalization.js';
+import { InstanceNormalization } from './kernels/instancenormalization.js';
+import { LayerNormalization } from './kernels/layernormalization.js';
+import { GroupNormalization } from './kernels/groupnormalization.js';
+import { Gemm } from './kernels/gemm.js';
+import { MatMul } from './kernels/matmul.js';
+import * as pool from './kernels/pool.js';
+import { PadV1, PadV11 } from './kernels/pad.js';
+import * as resize from './kernels/resize.js';
+import { If } from './kernels/if.js';
 
 const KERNELS: Kernel[] = [
   // (kernels are registered here, one line each)
+  binary.Add,
+  binary.Sub,
+  binary.Mul,
+  binary.Div,
+  binary.Pow,
+  unary.Sqrt,
+  unary.Exp,
+  unary.Log,
+  unary.Neg,
+  unary.Abs,
+  unary.Reciprocal,
+  unary.Erf,
+  unary.Floor,
+  unary.Ceil,
+  unary.Tanh,
+  unary.Sigmoid,
+  unary.Sign,
+  activations.Relu,
+  activations.LeakyRelu,
+  activations.PRelu,
+  activations.Elu,
+  activations.Selu,
+  activations.Clip,
+  activations.HardSigmoid,
+  activations.HardSwish,
+  activations.Softplus,
+  softmax.Softmax,
+  softmax.LogSoftmax,
+  reshape.Flatten,
+  reshape.Reshape,
+  reshape.Squeeze,
+  reshape.Unsqueeze,
+  transpose.Transpose,
+  concat.Concat,
+  concat.Split,
+  slice.Slice,
+  gather.Gather,
+  shape.Shape,
+  shape.Size,
+  shape.ConstantOfShape,
+  shape.Range,
+  constant.Constant,
+  identity.Identity,
+  identity.Dropout,
+  cast.Cast,
+  cast.CastLike,
+  reduce.ReduceMean,
+  reduce.ReduceSum,
+  reduce.ReduceMax,
+  reduce.ReduceMin,
+  reduce.ReduceL2,
+  reduce.ReduceL1,
+  reduce.ReduceSumSquare,
+  reduce.ReduceProd,
+  reduce.ArgMax,
+  reduce.ArgMin,
+  expand.Expand,
+  expand.Tile,
+  logic.Where,
+  logic.Equal,
+  logic.Less,
+  logic.Greater,
+  logic.LessOrEqual,
+  logic.GreaterOrEqual,
+  logic.Not,
+  logic.And,
+  logic.Or,
+  logic.Xor,
+  variadic.Sum,
+  variadic.Max,
+  variadic.Min,
+  variadic.Mean,
+  unary.Round,
+  unary.Softsign,
+  unary.Sin,
+  unary.Cos,
+  unary.Tan,
+  unary.Asin,
+  unary.Acos,
+  unary.Atan,
+  unary.Sinh,
+  unary.Cosh,
+  unary.Asinh,
+  unary.Acosh,
+  unary.Atanh,
+  activations.Celu,
+  activations.ThresholdedRelu,
+  activations.Shrink,
+  logic.IsNaN,
+  logic.IsInf,
+  reduce.ReduceLogSum,
+  reduce.ReduceLogSumExp,
+  softmax.Hardmax,
+  binary.Mod,
+  Conv,
+  ConvTranspose,
+  BatchNormalization,
+  InstanceNormalization,
+  LayerNormalization,
+  GroupNormalization,
+  Gemm,
+  MatMul,
+  pool.MaxPool,
+  pool.AveragePool,
+  pool.GlobalAveragePool,
+  pool.GlobalMaxPool,
+  PadV1,
+  PadV11,
+  resize.Resize10,
+  resize.Resize11,
+  resize.Upsample7,
+  resize.Upsample9,
+  If,
 ];
 
 const byKey = new Map<string, Kernel[]>();

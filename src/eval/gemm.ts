@@ -1,0 +1,236 @@
+// Cache-blocked matrix multiply on typed arrays, used by Gemm, MatMul, Conv (after im2col) and ConvTranspose.
+//
+//   gemm(M, N, K, A, a, B, b, C, cOff, ldc, accumulate)
+//   C[cOff + i*ldc + j] (+)= sum_k A(i,k) * B(k,j)   for i < M, j < N
+// where A(i,k) = A.data[a.off + i*a.rs + k*a.cs] and B(k,j) = B.data[b.off + k*b.rs + j*b.cs], so transposed
+// and strided operands need no copy by the caller. The blocks of A and B are packed into Float64Array panels
+// (4 rows / 4 columns interleaved along k) and a 4x4 register tile accumulates each output block, the usual
+// layout for a fast scalar matrix multiply. Sums are in float64; a Float32Array C rounds once per k-block.
+import type { NumArray } from './value.js';
+import { simdKernels, type SimdKernels } from './wasm-gemm.js';
+
+export interface Operand {
+  data: NumArray;
+  off: number;
+  /** Element stride between rows. */
+  rs: number;
+  /** Element stride between columns. */
+  cs: number;
+}
+
+const MR = 4, NR = 4;
+const KC = 256, MC = 128, NC = 1024;
+
+let packA = new Float64Array(MC * KC);
+let packB = new Float64Array(KC * NC);
+
+function packAPanel(A: Operand, i0: number, mc: number, k0: number, kc: number): void {
+  const need = Math.ceil(mc / MR) * MR * kc;
+  if (packA.length < need) packA = new Float64Array(need);
+  const d = A.data, rs = A.rs, cs = A.cs;
+  let p = 0;
+  for (let ir = 0; ir < mc; ir += MR) {
+    const rows = Math.min(MR, mc - ir);
+    const base = A.off + (i0 + ir) * rs + k0 * cs;
+    if (rows === MR) {
+      const r0 = base, r1 = base + rs, r2 = base + 2 * rs, r3 = base + 3 * rs;
+      for (let k = 0; k < kc; k++) {
+        const o = k * cs;
+        packA[p] = d[r0 + o]!; packA[p + 1] = d[r1 + o]!; packA[p + 2] = d[r2 + o]!; packA[p + 3] = d[r3 + o]!;
+        p += 4;
+      }
+    } else {
+      for (let k = 0; k < kc; k++) {
+        for (let r = 0; r < MR; r++) packA[p + r] = r < rows ? d[base + r * rs + k * cs]! : 0;
+        p += 4;
+      }
+    }
+  }
+}
+
+function packBPanel(B: Operand, k0: number, kc: number, j0: number, nc: number): void {
+  const need = Math.ceil(nc / NR) * NR * kc;
+  if (packB.length < need) packB = new Float64Array(need);
+  const d = B.data, rs = B.rs, cs = B.cs;
+  let p = 0;
+  for (let jr = 0; jr < nc; jr += NR) {
+    const cols = Math.min(NR, nc - jr);
+    const base = B.off + k0 * rs + (j0 + jr) * cs;
+    if (cols === NR && cs === 1) {
+      for (let k = 0; k < kc; k++) {
+        const o = base + k * rs;
+        packB[p] = d[o]!; packB[p + 1] = d[o + 1]!; packB[p + 2] = d[o + 2]!; packB[p + 3] = d[o + 3]!;
+        p += 4;
+      }
+    } else {
+      for (let k = 0; k < kc; k++) {
+        const o = base + k * rs;
+        for (let c = 0; c < NR; c++) packB[p + c] = c < cols ? d[o + c * cs]! : 0;
+        p += 4;
+      }
+    }
+  }
+}
+
+/** C (+)= A * B; see the header for the operand layout. */
+export function gemm(M: number, N: number, K: number, A: Operand, B: Operand, C: NumArray, cOff: number, ldc: number, accumulate: boolean): void {
+  if (M === 0 || N === 0) return;
+  if (K === 0) {
+    if (!accumulate) for (let i = 0; i < M; i++) C.fill(0, cOff + i * ldc, cOff + i * ldc + N);
+    return;
+  }
+  const simd = useSimd ? simdKernels() : undefined;
+  if (simd && M * N * K >= 512) { gemmSimd(simd, M, N, K, A, B, C, cOff, ldc, accumulate); return; }
+  for (let j0 = 0; j0 < N; j0 += NC) {
+    const nc = Math.min(NC, N - j0);
+    for (let k0 = 0; k0 < K; k0 += KC) {
+      const kc = Math.min(KC, K - k0);
+      packBPanel(B, k0, kc, j0, nc);
+      const add = accumulate || k0 > 0;
+      for (let i0 = 0; i0 < M; i0 += MC) {
+        const mc = Math.min(MC, M - i0);
+        packAPanel(A, i0, mc, k0, kc);
+        macroKernel(mc, nc, kc, C, cOff + i0 * ldc + j0, ldc, add);
+      }
+    }
+  }
+}
+
+function macroKernel(mc: number, nc: number, kc: number, C: NumArray, cOff: number, ldc: number, add: boolean): void {
+  const pa = packA, pb = packB;
+  for (let jr = 0; jr < nc; jr += NR) {
+    const cols = Math.min(NR, nc - jr);
+    const bBase = (jr / NR) * NR * kc;
+    for (let ir = 0; ir < mc; ir += MR) {
+      const rows = Math.min(MR, mc - ir);
+      let ia = (ir / MR) * MR * kc, ib = bBase;
+      let c00 = 0, c01 = 0, c02 = 0, c03 = 0, c10 = 0, c11 = 0, c12 = 0, c13 = 0;
+      let c20 = 0, c21 = 0, c22 = 0, c23 = 0, c30 = 0, c31 = 0, c32 = 0, c33 = 0;
+      for (let k = 0; k < kc; k++) {
+        const a0 = pa[ia]!, a1 = pa[ia + 1]!, a2 = pa[ia + 2]!, a3 = pa[ia + 3]!;
+        const b0 = pb[ib]!, b1 = pb[ib + 1]!, b2 = pb[ib + 2]!, b3 = pb[ib + 3]!;
+        c00 += a0 * b0; c01 += a0 * b1; c02 += a0 * b2; c03 += a0 * b3;
+        c10 += a1 * b0; c11 += a1 * b1; c12 += a1 * b2; c13 += a1 * b3;
+        c20 += a2 * b0; c21 += a2 * b1; c22 += a2 * b2; c23 += a2 * b3;
+        c30 += a3 * b0; c31 += a3 * b1; c32 += a3 * b2; c33 += a3 * b3;
+        ia += 4; ib += 4;
+      }
+      const o = cOff + ir * ldc + jr;
+      if (rows === MR && cols === NR) {
+        const o1 = o + ldc, o2 = o1 + ldc, o3 = o2 + ldc;
+        if (add) {
+          C[o] += c00; C[o + 1] += c01; C[o + 2] += c02; C[o + 3] += c03;
+          C[o1] += c10; C[o1 + 1] += c11; C[o1 + 2] += c12; C[o1 + 3] += c13;
+          C[o2] += c20; C[o2 + 1] += c21; C[o2 + 2] += c22; C[o2 + 3] += c23;
+          C[o3] += c30; C[o3 + 1] += c31; C[o3 + 2] += c32; C[o3 + 3] += c33;
+        } else {
+          C[o] = c00; C[o + 1] = c01; C[o + 2] = c02; C[o + 3] = c03;
+          C[o1] = c10; C[o1 + 1] = c11; C[o1 + 2] = c12; C[o1 + 3] = c13;
+          C[o2] = c20; C[o2 + 1] = c21; C[o2 + 2] = c22; C[o2 + 3] = c23;
+          C[o3] = c30; C[o3 + 1] = c31; C[o3 + 2] = c32; C[o3 + 3] = c33;
+        }
+      } else {
+        const t = [c00, c01, c02, c03, c10, c11, c12, c13, c20, c21, c22, c23, c30, c31, c32, c33];
+        for (let r = 0; r < rows; r++) {
+          for (let c = 0; c < cols; c++) {
+            const idx = o + r * ldc + c;
+            C[idx] = (add ? C[idx]! : 0) + t[r * 4 + c]!;
+          }
+        }
+      }
+    }
+  }
+}
+
+/** Row-major operand helper: a matrix stored row-major at `off` with `cols` columns, optionally transposed. */
+export function rowMajor(data: NumArray, off: number, cols: number, transposed = false): Operand {
+  return transposed ? { data, off, rs: 1, cs: cols } : { data, off, rs: cols, cs: 1 };
+}
+
+// ---- WebAssembly SIMD path ------------------------------------------------------------------------------
+
+let useSimd = true;
+/** Switch the SIMD path off or on (tests compare both paths). */
+export function setSimd(on: boolean): void { useSimd = on; }
+
+const SKC = 256, SMC = 128, SNC = 512;
+let views: { buffer: ArrayBuffer; f32: Float32Array; f64: Float64Array } | undefined;
+
+function memoryViews(simd: SimdKernels, bytes: number): { f32: Float32Array; f64: Float64Array } {
+  const mem = simd.memory;
+  if (mem.buffer.byteLength < bytes) mem.grow(Math.ceil((bytes - mem.buffer.byteLength) / 65536));
+  if (!views || views.buffer !== mem.buffer) {
+    views = { buffer: mem.buffer, f32: new Float32Array(mem.buffer), f64: new Float64Array(mem.buffer) };
+  }
+  return views;
+}
+
+/**
+ * The same blocking as the scalar path with the micro-kernel in WebAssembly: A and B blocks are packed into
+ * module memory, the kernel writes a row-major C block there, and it is added into C here. The kernel's
+ * element type follows C: a Float32Array C is computed in float32, anything else in float64.
+ */
+function gemmSimd(simd: SimdKernels, M: number, N: number, K: number, A: Operand, B: Operand, C: NumArray, cOff: number, ldc: number, accumulate: boolean): void {
+  const f64 = !(C instanceof Float32Array);
+  const es = f64 ? 8 : 4, nr = 32 / es;
+  const paBytes = SMC * SKC * es, pbBytes = SKC * SNC * es, pcBytes = SMC * SNC * es;
+  const { f32, f64: d64 } = memoryViews(simd, paBytes + pbBytes + pcBytes);
+  const mem = f64 ? d64 : f32;
+  const pa = 0, pb = paBytes, pc = paBytes + pbBytes;
+  const paE = pa / es, pbE = pb / es, pcE = pc / es;
+  const kern = f64 ? simd.k64 : simd.k32;
+  const ad = A.data, ars = A.rs, acs = A.cs, bd = B.data, brs = B.rs, bcs = B.cs;
+  for (let j0 = 0; j0 < N; j0 += SNC) {
+    const nc = Math.min(SNC, N - j0), nTiles = Math.ceil(nc / nr), ldcE = nTiles * nr;
+    for (let k0 = 0; k0 < K; k0 += SKC) {
+      const kc = Math.min(SKC, K - k0);
+      // pack B[k0:k0+kc, j0:j0+nc] as nTiles tiles of kc x nr
+      let p = pbE;
+      for (let t = 0; t < nTiles; t++) {
+        const jb = j0 + t * nr, cols = Math.min(nr, N - jb);
+        const base = B.off + k0 * brs + jb * bcs;
+        if (cols === nr && bcs === 1) {
+          for (let k = 0; k < kc; k++) {
+            const o = base + k * brs;
+            for (let c = 0; c < nr; c++) mem[p + c] = bd[o + c]!;
+            p += nr;
+          }
+        } else {
+          for (let k = 0; k < kc; k++) {
+            const o = base + k * brs;
+            for (let c = 0; c < nr; c++) mem[p + c] = c < cols ? bd[o + c * bcs]! : 0;
+            p += nr;
+          }
+        }
+      }
+      const add = accumulate || k0 > 0;
+      for (let i0 = 0; i0 < M; i0 += SMC) {
+        const mc = Math.min(SMC, M - i0), mTiles = Math.ceil(mc / 4);
+        let q = paE;
+        for (let t = 0; t < mTiles; t++) {
+          const ib = i0 + t * 4, rows = Math.min(4, M - ib);
+          const base = A.off + ib * ars + k0 * acs;
+          if (rows === 4) {
+            const r1 = base + ars, r2 = r1 + ars, r3 = r2 + ars;
+            for (let k = 0; k < kc; k++) {
+              const o = k * acs;
+              mem[q] = ad[base + o]!; mem[q + 1] = ad[r1 + o]!; mem[q + 2] = ad[r2 + o]!; mem[q + 3] = ad[r3 + o]!;
+              q += 4;
+            }
+          } else {
+            for (let k = 0; k < kc; k++) {
+              for (let r = 0; r < 4; r++) mem[q + r] = r < rows ? ad[base + r * ars + k * acs]! : 0;
+              q += 4;
+            }
+          }
+        }
+        kern(pa, pb, pc, mTiles, nTiles, kc, ldcE * es);
+        for (let r = 0; r < mc; r++) {
+          const dst = cOff + (i0 + r) * ldc + j0, src = pcE + r * ldcE;
+          if (add) for (let c = 0; c < nc; c++) C[dst + c] += mem[src + c]!;
+          else for (let c = 0; c < nc; c++) C[dst + c] = mem[src + c]!;
+        }
+      }
+    }
+  }
+}

@@ -1,0 +1,134 @@
+// Conv (all opsets: 1-D/2-D/3-D, groups, strides, dilations, pads, auto_pad, optional bias).
+// Grouped convolution with one input channel per group (depthwise, the MobileNet case) runs as direct loops
+// over the output plane; everything else is im2col + blocked GEMM per group, skipping im2col for 1x1 stride-1
+// unpadded kernels where the input already is the column matrix.
+import { attrInt, attrInts, elementCount } from '../../graph/ir.js';
+import { allocFloat, badModel, need, slidingWindow, to3 } from '../attrs.js';
+import { gemm, rowMajor } from '../gemm.js';
+import { im2col, type Geometry3 } from '../im2col.js';
+import type { Kernel, KernelContext, NumArray, Value } from '../value.js';
+
+let colBuf = new Float64Array(0);
+let planeBuf = new Float64Array(0);
+
+function scratch(n: number, which: 'col' | 'plane'): Float64Array {
+  if (which === 'col') { if (colBuf.length < n) colBuf = new Float64Array(n); return colBuf; }
+  if (planeBuf.length < n) planeBuf = new Float64Array(n);
+  return planeBuf;
+}
+
+export function geometry3(inSp: number[], outSp: number[], kernel: number[], strides: number[], dilations: number[], padBegin: number[]): Geometry3 {
+  const [inD, inH, inW] = to3(inSp, 1), [outD, outH, outW] = to3(outSp, 1), [kD, kH, kW] = to3(kernel, 1);
+  const [sD, sH, sW] = to3(strides, 1), [dD, dH, dW] = to3(dilations, 1), [pD, pH, pW] = to3(padBegin, 0);
+  return { inD, inH, inW, outD, outH, outW, kD, kH, kW, sD, sH, sW, dD, dH, dW, pD, pH, pW };
+}
+
+/** [lo, hi) of output positions o with 0 <= o*s + shift < n. */
+function span(n: number, outN: number, s: number, shift: number): [number, number] {
+  const lo = shift >= 0 ? 0 : Math.min(outN, Math.ceil(-shift / s));
+  const hi = Math.max(lo, Math.min(outN, Math.ceil((n - shift) / s)));
+  return [lo, hi];
+}
+
+/**
+ * One output channel of a single-input-channel convolution into out (outD*outH*outW, already holding the bias).
+ * Works one output row at a time so the row being summed stays in L1; a 3-wide kernel row is applied as one
+ * three-tap sum over the columns where all three taps are inside the input (the MobileNet 3x3 case).
+ */
+function directChannel(x: NumArray, xOff: number, w: NumArray, wOff: number, g: Geometry3, out: NumArray, oOff: number, row: Float64Array): void {
+  const { inD, inH, inW, outD, outH, outW, kD, kH, kW, sD, sH, sW, dD, dH, dW, pD, pH, pW } = g;
+  const inPlane = inH * inW, outPlane = outH * outW;
+  // per kernel column: the output columns where that tap lands inside the input
+  const wLo = new Int32Array(kW), wHi = new Int32Array(kW);
+  for (let kw = 0; kw < kW; kw++) { const [a, b] = span(inW, outW, sW, kw * dW - pW); wLo[kw] = a; wHi[kw] = b; }
+  const three = kW === 3;
+  const lo3 = three ? Math.max(wLo[0]!, wLo[1]!, wLo[2]!) : 0, hi3 = three ? Math.min(wHi[0]!, wHi[1]!, wHi[2]!) : 0;
+  for (let od = 0; od < outD; od++) {
+    for (let oh = 0; oh < outH; oh++) {
+      const o = oOff + od * outPlane + oh * outW;
+      for (let ow = 0; ow < outW; ow++) row[ow] = out[o + ow]!;
+      for (let kd = 0; kd < kD; kd++) {
+        const id = od * sD - pD + kd * dD;
+        if (id < 0 || id >= inD) continue;
+        for (let kh = 0; kh < kH; kh++) {
+          const ih = oh * sH - pH + kh * dH;
+          if (ih < 0 || ih >= inH) continue;
+          const wi = wOff + (kd * kH + kh) * kW;
+          const base = xOff + id * inPlane + ih * inW - pW;
+          if (three && lo3 < hi3) {
+            const w0 = w[wi]!, w1 = w[wi + 1]!, w2 = w[wi + 2]!;
+            const b1 = base + dW, b2 = base + 2 * dW;
+            if (sW === 1) for (let ow = lo3; ow < hi3; ow++) row[ow] += w0 * x[base + ow]! + w1 * x[b1 + ow]! + w2 * x[b2 + ow]!;
+            else for (let ow = lo3; ow < hi3; ow++) { const c = ow * sW; row[ow] += w0 * x[base + c]! + w1 * x[b1 + c]! + w2 * x[b2 + c]!; }
+            // the border columns where some tap falls in the padding
+            for (let kw = 0; kw < 3; kw++) {
+              const wv = w[wi + kw]!, b = base + kw * dW;
+              for (let ow = wLo[kw]!; ow < Math.min(lo3, wHi[kw]!); ow++) row[ow] += wv * x[b + ow * sW]!;
+              for (let ow = Math.max(hi3, wLo[kw]!); ow < wHi[kw]!; ow++) row[ow] += wv * x[b + ow * sW]!;
+            }
+          } else {
+            for (let kw = 0; kw < kW; kw++) {
+              const wv = w[wi + kw]!, b = base + kw * dW, e = wHi[kw]!;
+              if (sW === 1) for (let ow = wLo[kw]!; ow < e; ow++) row[ow] += wv * x[b + ow]!;
+              else for (let ow = wLo[kw]!; ow < e; ow++) row[ow] += wv * x[b + ow * sW]!;
+            }
+          }
+        }
+      }
+      for (let ow = 0; ow < outW; ow++) out[o + ow] = row[ow]!;
+    }
+  }
+}
+
+function run(inputs: Array<Value | undefined>, ctx: KernelContext): Value[] {
+  const X = need(inputs, 0, ctx, 'X'), W = need(inputs, 1, ctx, 'W'), B = inputs[2];
+  const rank = X.dims.length;
+  if (rank < 3 || rank > 5) throw badModel(ctx, `input X has rank ${rank}; Conv needs N x C x 1 to 3 spatial axes`);
+  if (W.dims.length !== rank) throw badModel(ctx, `weight W has rank ${W.dims.length}, input X has rank ${rank}`);
+  const [N, C] = X.dims as [number, number];
+  const M = W.dims[0]!, Cg = W.dims[1]!;
+  const group = attrInt(ctx.node, 'group', 1);
+  if (group < 1 || C !== Cg * group || M % group !== 0) {
+    throw badModel(ctx, `channels do not match groups: X has ${C} channels, W is [${W.dims.join(',')}], group ${group}`);
+  }
+  const kernel = attrInts(ctx.node, 'kernel_shape') ?? W.dims.slice(2);
+  for (let i = 0; i < kernel.length; i++) {
+    if (kernel[i] !== W.dims[2 + i]) throw badModel(ctx, `kernel_shape [${kernel.join(',')}] does not match W dims [${W.dims.join(',')}]`);
+  }
+  if (B && (B.dims.length !== 1 || B.dims[0] !== M)) throw badModel(ctx, `bias has dims [${B.dims.join(',')}], expected [${M}]`);
+  const inSp = X.dims.slice(2);
+  const win = slidingWindow(ctx, inSp, kernel);
+  const g3 = geometry3(inSp, win.out, kernel, win.strides, win.dilations, win.padBegin);
+  const outVol = elementCount(win.out), inVol = elementCount(inSp), kVol = elementCount(kernel);
+  const Mg = M / group, K = Cg * kVol;
+  const Y = allocFloat(N * M * outVol, ctx.precision);
+  const x = X.data, w = W.data;
+
+  if (Cg === 1) {
+    const row = scratch(g3.outW, 'plane');
+    for (let n = 0; n < N; n++) {
+      for (let oc = 0; oc < M; oc++) {
+        const yOff = (n * M + oc) * outVol;
+        if (B) Y.fill(B.data[oc]!, yOff, yOff + outVol);
+        directChannel(x, (n * C + Math.floor(oc / Mg)) * inVol, w, oc * kVol, g3, Y, yOff, row);
+      }
+    }
+  } else {
+    const pointwise = kVol === 1 && win.strides.every((s) => s === 1) && win.padBegin.every((p) => p === 0) && win.padEnd.every((p) => p === 0);
+    const col = pointwise ? undefined : scratch(K * outVol, 'col');
+    for (let n = 0; n < N; n++) {
+      for (let gi = 0; gi < group; gi++) {
+        const xOff = (n * C + gi * Cg) * inVol;
+        const yOff = (n * M + gi * Mg) * outVol;
+        const A = rowMajor(w, gi * Mg * K, K);
+        // the bias goes in first so the GEMM sum is rounded once (matters in float32 mode)
+        if (B) for (let m = 0; m < Mg; m++) Y.fill(B.data[gi * Mg + m]!, yOff + m * outVol, yOff + (m + 1) * outVol);
+        if (col) im2col(x, xOff, Cg, g3, col);
+        gemm(Mg, outVol, K, A, col ? rowMajor(col, 0, outVol) : rowMajor(x, xOff, inVol), Y, yOff, outVol, !!B);
+      }
+    }
+  }
+  return [{ type: X.type, dims: [N, M, ...win.out], data: Y }];
+}
+
+export const Conv: Kernel = { op: 'Conv', domain: '', sinceVersion: 1, run };

@@ -1,0 +1,140 @@
+// The reference evaluator: runs a graph's nodes in list order (ONNX requires topological order), each through
+// its registered kernel, freeing intermediate values once their last reader has run.
+import { PleatError } from '../errors.js';
+import { opsetVersion, subgraphsOf, elementCount, type Graph, type Model, type Node, type Tensor } from '../graph/ir.js';
+import { isFloatType, tensorToFloat64, dataTypeName } from '../onnx/tensor.js';
+import { getKernel } from './registry.js';
+import type { KernelContext, Precision, Value } from './value.js';
+
+export interface RunOptions { precision: Precision; }
+
+export interface GraphRunOptions extends RunOptions {
+  opsetOf: (domain: string) => number;
+  outer?: Map<string, Value>;
+}
+
+/** Turn an initializer/Constant tensor into a Value in the given precision. */
+export function tensorToValue(t: Tensor, precision: Precision): Value {
+  const f64 = tensorToFloat64(t);
+  const data = precision === 'float32' && isFloatType(t.dataType) ? Float32Array.from(f64) : f64;
+  return { type: t.dataType, dims: [...t.dims], data };
+}
+
+/** Hold a caller's value in the run's precision (float tensors as Float32Array in float32 mode). */
+function inPrecision(v: Value, precision: Precision): Value {
+  if (!isFloatType(v.type)) return v.data instanceof Float64Array ? v : { ...v, data: Float64Array.from(v.data) };
+  if (precision === 'float32') return v.data instanceof Float32Array ? v : { ...v, data: Float32Array.from(v.data) };
+  return v.data instanceof Float64Array ? v : { ...v, data: Float64Array.from(v.data) };
+}
+
+/** Names a subgraph reads from its enclosing scopes (anything it uses but does not define itself). */
+function outerReads(g: Graph, into: Set<string>): void {
+  const defined = new Set<string>();
+  for (const i of g.inputs) defined.add(i.name);
+  for (const t of g.initializers) defined.add(t.name);
+  for (const n of g.nodes) {
+    for (const i of n.inputs) if (i && !defined.has(i)) into.add(i);
+    for (const sg of subgraphsOf(n)) {
+      const inner = new Set<string>();
+      outerReads(sg, inner);
+      for (const i of inner) if (!defined.has(i)) into.add(i);
+    }
+    for (const o of n.outputs) if (o) defined.add(o);
+  }
+  for (const o of g.outputs) if (!defined.has(o.name)) into.add(o.name);
+}
+
+/** Every value name a node reads, including what its subgraphs read from this scope. */
+function readsOf(n: Node): string[] {
+  const subs = subgraphsOf(n);
+  if (subs.length === 0) return n.inputs.filter((x) => x !== '');
+  const s = new Set(n.inputs.filter((x) => x !== ''));
+  for (const g of subs) outerReads(g, s);
+  return [...s];
+}
+
+/** Evaluate a graph with outer-scope values (for subgraphs and for proving a fragment). */
+export function runGraph(graph: Graph, inputs: Map<string, Value>, opts: GraphRunOptions): Map<string, Value> {
+  const { precision, opsetOf } = opts;
+  const outer = opts.outer;
+  const env = new Map<string, Value>();
+  for (const t of graph.initializers) env.set(t.name, tensorToValue(t, precision));
+  for (const [k, v] of inputs) env.set(k, inPrecision(v, precision));
+
+  const lookup = (name: string): Value | undefined => env.get(name) ?? outer?.get(name);
+
+  // last reader of each value, so intermediates can be dropped as soon as nobody needs them
+  const keep = new Set(graph.outputs.map((o) => o.name));
+  const reads = graph.nodes.map(readsOf);
+  const lastUse = new Map<string, number>();
+  reads.forEach((names, i) => { for (const x of names) lastUse.set(x, i); });
+
+  graph.nodes.forEach((node, idx) => {
+    const args: Array<Value | undefined> = node.inputs.map((name) => {
+      if (name === '') return undefined;
+      const v = lookup(name);
+      if (!v) {
+        throw new PleatError('bad-model',
+          `node '${node.name || '(unnamed)'}' (${node.opType}) reads '${name}', which no graph input, initializer or earlier node defines`);
+      }
+      return v;
+    });
+    const domain = node.domain === 'ai.onnx' ? '' : node.domain;
+    const opset = opsetOf(domain);
+    const kernel = getKernel(domain, node.opType, opset, node.name || '(unnamed)');
+    const ctx: KernelContext = {
+      node, opset, precision,
+      runSubgraph(sub: Graph, extra?: Map<string, Value>): Value[] {
+        // the subgraph sees this scope's live values and everything outer to it
+        const scope = new Map<string, Value>(outer ?? []);
+        for (const [k, v] of env) scope.set(k, v);
+        const res = runGraph(sub, extra ?? new Map(), { precision, opsetOf, outer: scope });
+        return sub.outputs.map((o) => res.get(o.name)!);
+      },
+    };
+    const results = kernel.run(args, ctx);
+    node.outputs.forEach((name, i) => {
+      if (name === '') return;
+      const v = results[i];
+      if (!v) return; // an optional output the kernel does not produce; a later read reports it by name
+      if (v.data.length !== elementCount(v.dims)) {
+        throw new PleatError('bad-model', `node '${node.name}' (${node.opType}): output '${name}' has ${v.data.length} values for dims [${v.dims.join(',')}]`);
+      }
+      env.set(name, v);
+      if (!keep.has(name) && !lastUse.has(name)) env.delete(name);
+    });
+    for (const name of reads[idx]!) if (lastUse.get(name) === idx && !keep.has(name)) env.delete(name);
+  });
+
+  const out = new Map<string, Value>();
+  for (const o of graph.outputs) {
+    const v = lookup(o.name);
+    if (!v) throw new PleatError('bad-model', `graph '${graph.name}': output '${o.name}' is never computed`);
+    out.set(o.name, v);
+  }
+  return out;
+}
+
+/** Evaluate a whole model. inputs: graph inputs by name (initializer-backed inputs default to the initializer). Returns graph outputs in graph order. */
+export function runModel(model: Model, inputs: Map<string, Value>, opts: RunOptions): Map<string, Value> {
+  const g = model.graph;
+  const inits = new Set(g.initializers.map((t) => t.name));
+  for (const i of g.inputs) {
+    if (!inputs.has(i.name) && !inits.has(i.name)) {
+      throw new PleatError('bad-input', `model input '${i.name}' has no value: give it one (it has no initializer default)`);
+    }
+    const v = inputs.get(i.name);
+    if (v && i.elemType !== undefined && i.elemType !== v.type && !(isFloatType(i.elemType) && isFloatType(v.type))) {
+      throw new PleatError('bad-input', `model input '${i.name}' expects ${dataTypeName(i.elemType)} but was given ${dataTypeName(v.type)}`);
+    }
+  }
+  for (const name of inputs.keys()) {
+    if (!g.inputs.some((i) => i.name === name)) throw new PleatError('bad-input', `the model has no input named '${name}'`);
+  }
+  const opsetOf = (domain: string): number => {
+    const v = opsetVersion(model, domain);
+    if (v === undefined) throw new PleatError('bad-model', `the model uses domain '${domain || 'ai.onnx'}' but imports no opset for it`);
+    return v;
+  };
+  return runGraph(g, inputs, { precision: opts.precision, opsetOf });
+}
