@@ -1,0 +1,222 @@
+// `compare`: run two models on the same inputs and judge, output by output, whether B computes what A does.
+// A in float64 is the reference. B in float64 against it is what the gate judges by default; the error
+// budget adds A and B in float32 against the same reference, so a report can tell error the rewrite added
+// from rounding the model already had. Agreement on probe inputs is evidence, not proof, of agreement on real
+// data.
+import type { DataTypeCode, Model } from '../graph/ir.js';
+import { basename } from 'node:path';
+import type { Precision, Value } from '../eval/value.js';
+import { runModel } from '../eval/run.js';
+import { PleatError } from '../errors.js';
+import { dataTypeName } from '../onnx/tensor.js';
+import { computeMetrics, worstOf, type Metrics } from './metrics.js';
+import { BUDGET_NAMES, defaultGateFor, defaultGateKey, METRIC_NAMES, parseGate, type Gate, type GateScope } from './gate.js';
+import {
+  asMap, checkDimFlags, makeProbe, resolveInputs, summarizeInputs, type InputOptions, type InputSummary, type InputValue,
+} from './inputs.js';
+
+export interface CompareOptions extends InputOptions {
+  /** Number of seeded input sets (--probes); default 3. When every input is given, one run is enough. */
+  probes?: number;
+  /** One gate expression for every output (--gate); default: the gate for each output's element type. */
+  gate?: string;
+  /** Also run both models in float32 to measure the error budget; default true. */
+  budget?: boolean;
+}
+
+export const DEFAULT_PROBES = 3;
+
+/** 'compared', or why an output could not be compared (each is a failure). */
+export type OutputStatus = 'compared' | 'only-in-a' | 'only-in-b' | 'shape-differs';
+
+export interface ErrorBudget {
+  /** A in float32 against A in float64: the rounding the model already has. */
+  own: Metrics;
+  /** B in float32 against A in float64: what deploying B costs. */
+  deploy: Metrics;
+  /** max(0, deploy.maxAbs - own.maxAbs): absolute error B adds beyond A's own rounding. */
+  addedAbs: number;
+  /** max(0, deploy.maxRel - own.maxRel). */
+  addedRel: number;
+}
+
+export interface GateResult {
+  expr: string;
+  source: 'default' | 'user';
+  passed: boolean;
+}
+
+export interface OutputComparison {
+  name: string;
+  status: OutputStatus;
+  /** Element type in A (in B for an output only B has). */
+  dtype: string;
+  /** B's element type when it differs from A's. */
+  dtypeB?: string;
+  /** Dims in A on the first probe (in B for an output only B has). */
+  dims: number[];
+  /** B's dims when they differ. */
+  dimsB?: number[];
+  /** B (float64) against A (float64), worst over probes. */
+  metrics?: Metrics;
+  budget?: ErrorBudget;
+  gate?: GateResult;
+  passed: boolean;
+  /** One line saying what went wrong, when something did. */
+  problem?: string;
+}
+
+export interface CompareReport {
+  passed: boolean;
+  seed: number;
+  /** Input sets actually run. */
+  probes: number;
+  budget: boolean;
+  inputs: InputSummary[];
+  outputs: OutputComparison[];
+}
+
+const LOOSENESS = ['exact', 'float64', 'float32', 'float16', 'bfloat16'] as const;
+
+/** The default gate for an output whose two sides may have different types: the looser one. */
+function defaultGate(a: DataTypeCode, b: DataTypeCode | undefined): string {
+  if (b === undefined) return defaultGateFor(a);
+  return LOOSENESS.indexOf(defaultGateKey(b)) > LOOSENESS.indexOf(defaultGateKey(a)) ? defaultGateFor(b) : defaultGateFor(a);
+}
+
+const sameDims = (x: readonly number[], y: readonly number[]) => x.length === y.length && x.every((d, i) => d === y[i]);
+
+/** Check that B takes exactly the inputs A is given, with types and shapes its declarations accept. */
+function checkCandidateInputs(b: Model, first: Map<string, Value>): void {
+  const bInits = new Set(b.graph.initializers.map((t) => t.name));
+  const bInputs = new Set(b.graph.inputs.map((i) => i.name));
+  for (const name of first.keys()) {
+    if (!bInputs.has(name)) throw new PleatError('bad-input', `model B has no input '${name}', which model A takes: both models must take the same inputs`);
+  }
+  for (const i of b.graph.inputs) {
+    if (!first.has(i.name) && !bInits.has(i.name)) {
+      throw new PleatError('bad-input', `model B needs input '${i.name}', which model A does not take: both models must take the same inputs`);
+    }
+  }
+  const given = new Map<string, InputValue>();
+  for (const [k, v] of first) given.set(k, { ...v, file: "model A's input" });
+  try {
+    resolveInputs(b.graph, given);
+  } catch (e) {
+    if (e instanceof PleatError) throw new PleatError(e.kind, `model B: ${e.message}`);
+    throw e;
+  }
+}
+
+/** Run a model, prefixing any expected failure with which model it was ("model B (folded.onnx): ..."). */
+function runLabelled(model: Model, side: 'A' | 'B', inputs: Map<string, Value>, precision: Precision): Map<string, Value> {
+  try {
+    return runModel(model, inputs, { precision });
+  } catch (e) {
+    if (e instanceof PleatError) {
+      const file = model.sourcePath ? ` (${basename(model.sourcePath)})` : '';
+      throw new PleatError(e.kind, `model ${side}${file}, ${precision} run: ${e.message}`);
+    }
+    throw e;
+  }
+}
+
+/** Run A and B on the same inputs and judge each output against its gate. Never throws for disagreeing outputs. */
+export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareReport {
+  const seed = opts.seed ?? 0;
+  const budget = opts.budget ?? true;
+  const available = budget ? [...METRIC_NAMES, ...BUDGET_NAMES] : [...METRIC_NAMES];
+  const userGate = opts.gate !== undefined ? parseGate(opts.gate, available) : undefined;
+  const requested = opts.probes ?? DEFAULT_PROBES;
+  if (!Number.isInteger(requested) || requested < 1) throw new PleatError('usage', `--probes ${requested}: give a whole number of at least 1`);
+
+  const dims = asMap(opts.dims);
+  checkDimFlags(dims, [a.graph, b.graph]);
+  const specs = resolveInputs(a.graph, asMap(opts.inputs), asMap(opts.shapes), dims);
+  const probes = specs.every((s) => s.given) ? 1 : requested;
+
+  const aOut = a.graph.outputs;
+  const bOut = new Map(b.graph.outputs.map((o) => [o.name, o]));
+  const aNames = new Set(aOut.map((o) => o.name));
+
+  // Per output shared by both: metrics per probe, or the first shape difference.
+  interface Acc { metrics: Metrics[]; own: Metrics[]; deploy: Metrics[]; dimsA?: number[]; dimsB?: number[]; shapeDiffers: boolean; typeA?: DataTypeCode; typeB?: DataTypeCode }
+  const acc = new Map<string, Acc>();
+  for (const o of aOut) if (bOut.has(o.name)) acc.set(o.name, { metrics: [], own: [], deploy: [], shapeDiffers: false });
+  const onlyB = new Map<string, Value>();
+  const onlyA = new Map<string, Value>();
+
+  for (let p = 0; p < probes; p++) {
+    const inputs = makeProbe(specs, seed, p);
+    if (p === 0) checkCandidateInputs(b, inputs);
+    const ra = runLabelled(a, 'A', inputs, 'float64');
+    const rb = runLabelled(b, 'B', inputs, 'float64');
+    const ra32 = budget ? runLabelled(a, 'A', inputs, 'float32') : undefined;
+    const rb32 = budget ? runLabelled(b, 'B', inputs, 'float32') : undefined;
+    if (p === 0) {
+      for (const o of aOut) if (!bOut.has(o.name)) onlyA.set(o.name, ra.get(o.name)!);
+      for (const o of b.graph.outputs) if (!aNames.has(o.name)) onlyB.set(o.name, rb.get(o.name)!);
+    }
+    for (const [name, s] of acc) {
+      const va = ra.get(name)!, vb = rb.get(name)!;
+      if (p === 0) { s.dimsA = [...va.dims]; s.dimsB = [...vb.dims]; s.typeA = va.type; s.typeB = vb.type; }
+      if (s.shapeDiffers) continue;
+      if (!sameDims(va.dims, vb.dims)) { s.shapeDiffers = true; s.dimsA = [...va.dims]; s.dimsB = [...vb.dims]; continue; }
+      s.metrics.push(computeMetrics(vb.data, va.data));
+      if (ra32 && rb32) {
+        const a32 = ra32.get(name)!, b32 = rb32.get(name)!;
+        // float32 runs take the same shapes as float64 runs of the same model; B's were just checked against A's
+        s.own.push(computeMetrics(a32.data, va.data));
+        s.deploy.push(computeMetrics(b32.data, va.data));
+      }
+    }
+  }
+
+  const outputs: OutputComparison[] = [];
+  for (const o of aOut) {
+    const s = acc.get(o.name);
+    if (!s) {
+      const v = onlyA.get(o.name)!;
+      outputs.push({ name: o.name, status: 'only-in-a', dtype: dataTypeName(v.type), dims: [...v.dims], passed: false,
+        problem: `model B has no output '${o.name}'` });
+      continue;
+    }
+    const out: OutputComparison = { name: o.name, status: 'compared', dtype: dataTypeName(s.typeA!), dims: s.dimsA!, passed: false };
+    if (s.typeB !== s.typeA) out.dtypeB = dataTypeName(s.typeB!);
+    if (s.shapeDiffers) {
+      out.status = 'shape-differs';
+      out.dimsB = s.dimsB!;
+      out.problem = `output '${o.name}' has shape [${s.dimsA!.join(',')}] in model A but [${s.dimsB!.join(',')}] in model B`;
+      outputs.push(out);
+      continue;
+    }
+    const metrics = worstOf(s.metrics);
+    out.metrics = metrics;
+    const scope: GateScope = { ...metrics };
+    if (budget) {
+      const own = worstOf(s.own), deploy = worstOf(s.deploy);
+      const b: ErrorBudget = { own, deploy, addedAbs: Math.max(0, deploy.maxAbs - own.maxAbs), addedRel: Math.max(0, deploy.maxRel - own.maxRel) };
+      out.budget = b;
+      Object.assign(scope, { ownAbs: own.maxAbs, ownRel: own.maxRel, deployAbs: deploy.maxAbs, deployRel: deploy.maxRel, addedAbs: b.addedAbs, addedRel: b.addedRel });
+    }
+    const gate: Gate = userGate ?? parseGate(defaultGate(s.typeA!, s.typeB), available);
+    const passed = gate.test(scope);
+    out.gate = { expr: gate.expr, source: userGate ? 'user' : 'default', passed };
+    out.passed = passed;
+    if (!passed) out.problem = `output '${o.name}' fails the gate '${gate.expr}'`;
+    outputs.push(out);
+  }
+  for (const [name, v] of onlyB) {
+    outputs.push({ name, status: 'only-in-b', dtype: dataTypeName(v.type), dims: [...v.dims], passed: false,
+      problem: `model A has no output '${name}'` });
+  }
+  return { passed: outputs.every((o) => o.passed), seed, probes, budget, inputs: summarizeInputs(specs), outputs };
+}
+
+/**
+ * JSON text for a report (or any result): two-space indent, and non-finite numbers written as the strings
+ * "Infinity", "-Infinity" and "NaN", since plain JSON has no such numbers and would turn them into null.
+ */
+export function toJsonText(value: unknown): string {
+  return JSON.stringify(value, (_k, v) => (typeof v === 'number' && !Number.isFinite(v) ? String(v) : v), 2) + '\n';
+}

@@ -1,0 +1,110 @@
+// `evaluate`: run one model on given or seeded inputs, and save its outputs as .npy files with an index.
+import { mkdirSync, renameSync, rmSync, writeFileSync } from 'node:fs';
+import { join } from 'node:path';
+import type { Model } from '../graph/ir.js';
+import type { Precision, Value } from '../eval/value.js';
+import { runModel } from '../eval/run.js';
+import { PleatError } from '../errors.js';
+import { isFloatType } from '../onnx/tensor.js';
+import { DataType } from '../graph/ir.js';
+import { npyBytes } from './npy.js';
+import { asMap, checkDimFlags, makeProbe, resolveInputs, summarizeInputs, type InputOptions, type InputSummary } from './inputs.js';
+
+export interface EvaluateOptions extends InputOptions {
+  /** Arithmetic of the run: 'float64' (ground truth, the default) or 'float32' (deployment arithmetic). */
+  precision?: Precision;
+}
+
+export interface EvaluateResult {
+  precision: Precision;
+  seed: number;
+  /** What each input was and where it came from. */
+  inputSummary: InputSummary[];
+  /** The input values the model ran on, by name. */
+  inputs: Map<string, Value>;
+  /** Graph outputs in graph order. */
+  outputs: Map<string, Value>;
+}
+
+/** Run a model once on the given inputs, generating seeded values for the rest. */
+export function evaluate(model: Model, opts: EvaluateOptions = {}): EvaluateResult {
+  const precision = opts.precision ?? 'float64';
+  const seed = opts.seed ?? 0;
+  const dims = asMap(opts.dims);
+  checkDimFlags(dims, [model.graph]);
+  const specs = resolveInputs(model.graph, asMap(opts.inputs), asMap(opts.shapes), dims);
+  const inputs = makeProbe(specs, seed, 0);
+  const outputs = runModel(model, inputs, { precision });
+  return { precision, seed, inputSummary: summarizeInputs(specs), inputs, outputs };
+}
+
+/**
+ * File names for output names: keep [A-Za-z0-9._-], replace anything else with '_', never start with '.', and
+ * make names unique ignoring case (so they survive case-insensitive file systems) by adding -2, -3, ... in
+ * output order.
+ */
+export function safeFileNames(names: readonly string[], ext = '.npy'): string[] {
+  const used = new Set<string>(['outputs.json']);
+  return names.map((name) => {
+    let base = name.replace(/[^A-Za-z0-9._-]/g, '_').replace(/^\./, '_');
+    if (base === '') base = 'output';
+    let file = base + ext;
+    for (let k = 2; used.has(file.toLowerCase()); k++) file = `${base}-${k}${ext}`;
+    used.add(file.toLowerCase());
+    return file;
+  });
+}
+
+export interface SaveOptions {
+  /** Write floating-point outputs as float64 instead of their model type (keeps a float64 run's full precision). */
+  float64?: boolean;
+}
+
+export interface SavedOutputs {
+  dir: string;
+  /** Output name and the file (relative to dir) holding it, in output order. */
+  files: Array<{ name: string; file: string }>;
+}
+
+/** Write bytes to a temporary name in the same folder, then rename over the destination. */
+function tempPath(dest: string): string {
+  return `${dest}.tmp-${process.pid}`;
+}
+
+/**
+ * Write DIR/<safe name>.npy for each output and DIR/outputs.json mapping output name -> file. Every file is
+ * written to a temporary name first and renamed into place only after all of them were written, the index last,
+ * so a failure leaves no partial file behind.
+ */
+export function saveOutputs(dir: string, outputs: ReadonlyMap<string, Value>, opts: SaveOptions = {}): SavedOutputs {
+  const names = [...outputs.keys()];
+  const files = safeFileNames(names);
+  try {
+    mkdirSync(dir, { recursive: true });
+  } catch (e) {
+    throw new PleatError('bad-input', `${dir}: cannot create the output folder (${(e as NodeJS.ErrnoException).code ?? String(e)})`);
+  }
+  const index: Record<string, string> = {};
+  names.forEach((n, i) => { index[n] = files[i]!; });
+  const pending: Array<[string, string]> = [];
+  try {
+    names.forEach((name, i) => {
+      const v = outputs.get(name)!;
+      const out = opts.float64 && isFloatType(v.type) ? { ...v, type: DataType.DOUBLE } : v;
+      const dest = join(dir, files[i]!);
+      const tmp = tempPath(dest);
+      pending.push([tmp, dest]);
+      writeFileSync(tmp, npyBytes(out));
+    });
+    const dest = join(dir, 'outputs.json');
+    const tmp = tempPath(dest);
+    pending.push([tmp, dest]);
+    writeFileSync(tmp, JSON.stringify(index, null, 2) + '\n');
+  } catch (e) {
+    for (const [tmp] of pending) rmSync(tmp, { force: true });
+    if (e instanceof PleatError) throw e;
+    throw new PleatError('bad-input', `${dir}: cannot write outputs (${(e as NodeJS.ErrnoException).code ?? String(e)})`);
+  }
+  for (const [tmp, dest] of pending) renameSync(tmp, dest);
+  return { dir, files: names.map((name, i) => ({ name, file: files[i]! })) };
+}

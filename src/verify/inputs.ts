@@ -1,0 +1,312 @@
+// Model inputs for evaluate and compare: the --input/--shape/--dim flags, input files (.npy, or .pb holding a
+// serialized ONNX TensorProto), each graph input's concrete shape, and seeded probe values for inputs no file
+// gives.
+import { readFileSync } from 'node:fs';
+import { extname } from 'node:path';
+import { DataType, elementCount, type DataTypeCode, type Dim, type Graph, type ValueInfo } from '../graph/ir.js';
+import type { Value } from '../eval/value.js';
+import { PleatError } from '../errors.js';
+import { dataTypeName, isFloatType, roundToStorage, tensorToFloat64 } from '../onnx/tensor.js';
+import { parseTensor } from '../onnx/read.js';
+import { readNpy } from './npy.js';
+
+/** A value given for an input, with the file it came from (for messages). */
+export interface InputValue extends Value {
+  file?: string;
+}
+
+/** The raw flag strings as typed (each repeatable). */
+export interface InputFlags {
+  input?: readonly string[];
+  shape?: readonly string[];
+  dim?: readonly string[];
+}
+
+/** Parsed flags: input files by input name, shapes by input name, sizes by dim symbol. */
+export interface InputSettings {
+  files: Map<string, string>;
+  shapes: Map<string, number[]>;
+  dims: Map<string, number>;
+}
+
+function splitFlag(flag: string, text: string, form: string, last: boolean): [string, string] {
+  const at = last ? text.lastIndexOf('=') : text.indexOf('=');
+  if (at <= 0) throw new PleatError('usage', `--${flag} '${text}' should be ${form}`);
+  return [text.slice(0, at), text.slice(at + 1)];
+}
+
+function count(flag: string, text: string, s: string): number {
+  if (!/^\d+$/.test(s.trim())) throw new PleatError('usage', `--${flag} '${text}': '${s}' is not a non-negative whole number`);
+  return Number(s.trim());
+}
+
+/** Parse `--input NAME=FILE`, `--shape NAME=1x3x224x224` (empty for a scalar) and `--dim SYMBOL=N`. */
+export function parseInputFlags(flags: InputFlags): InputSettings {
+  const files = new Map<string, string>();
+  const shapes = new Map<string, number[]>();
+  const dims = new Map<string, number>();
+  for (const text of flags.input ?? []) {
+    const [name, file] = splitFlag('input', text, 'NAME=FILE (a .npy or .pb file)', false);
+    if (file === '') throw new PleatError('usage', `--input '${text}' names no file: write NAME=FILE`);
+    if (files.has(name)) throw new PleatError('usage', `--input for '${name}' is given twice`);
+    files.set(name, file);
+  }
+  for (const text of flags.shape ?? []) {
+    const [name, spec] = splitFlag('shape', text, 'NAME=DIMS, for example image=1x3x224x224', true);
+    if (shapes.has(name)) throw new PleatError('usage', `--shape for '${name}' is given twice`);
+    shapes.set(name, spec.trim() === '' ? [] : spec.split(/[x,]/).map((d) => count('shape', text, d)));
+  }
+  for (const text of flags.dim ?? []) {
+    const [sym, n] = splitFlag('dim', text, 'SYMBOL=N, for example batch=1', true);
+    if (dims.has(sym)) throw new PleatError('usage', `--dim '${sym}' is given twice`);
+    dims.set(sym, count('dim', text, n));
+  }
+  return { files, shapes, dims };
+}
+
+/** Read one input file: .npy, or .pb holding a serialized ONNX TensorProto. Errors name the file. */
+export function loadInputFile(path: string): InputValue {
+  const ext = extname(path).toLowerCase();
+  if (ext === '.npy') return { ...readNpy(path), file: path };
+  if (ext === '.pb') {
+    let bytes: Uint8Array;
+    try {
+      bytes = readFileSync(path);
+    } catch (e) {
+      throw new PleatError('bad-input', `${path}: cannot read (${(e as NodeJS.ErrnoException).code ?? String(e)})`);
+    }
+    try {
+      const t = parseTensor(bytes);
+      return { type: t.dataType, dims: [...t.dims], data: tensorToFloat64(t), file: path };
+    } catch (e) {
+      if (e instanceof PleatError) throw new PleatError('bad-input', `${path}: ${e.message}`);
+      throw e;
+    }
+  }
+  throw new PleatError('bad-input', `${path}: pleat reads input values from .npy files or .pb files (a serialized ONNX TensorProto)`);
+}
+
+/** Load every `--input` file. */
+export function loadInputFiles(files: ReadonlyMap<string, string>): Map<string, InputValue> {
+  const out = new Map<string, InputValue>();
+  for (const [name, path] of files) out.set(name, loadInputFile(path));
+  return out;
+}
+
+// ---- shapes -------------------------------------------------------------------------------------------
+
+/** One graph input the run needs, with its concrete shape and, when given, its value. */
+export interface InputSpec {
+  name: string;
+  type: DataTypeCode;
+  dims: number[];
+  /** The value from a file or the caller; absent means probes generate one. */
+  given?: InputValue;
+}
+
+const show = (dims: readonly Dim[]) => `[${dims.map((d) => (d === null ? '?' : d)).join(',')}]`;
+const template = (vi: ValueInfo) => (vi.shape ?? []).map((d) => (typeof d === 'number' ? d : '?')).join('x');
+
+/**
+ * Resolve the concrete shape of every graph input the run needs (inputs without an initializer default, plus
+ * defaulted ones the caller gives a value for). Symbolic dims are bound by --dim, then by --shape and given
+ * values; ONNX names the same symbol for the same size, so two sources disagreeing on a symbol is an error.
+ */
+export function resolveInputs(graph: Graph, given: ReadonlyMap<string, InputValue>, shapes: ReadonlyMap<string, number[]> = new Map(),
+  dims: ReadonlyMap<string, number> = new Map()): InputSpec[] {
+  const byName = new Map(graph.inputs.map((i) => [i.name, i]));
+  const inits = new Set(graph.initializers.map((t) => t.name));
+  const list = graph.inputs.map((i) => i.name).join(', ') || '(none)';
+  for (const [flag, names] of [['input', given.keys()], ['shape', shapes.keys()]] as const) {
+    for (const name of names) {
+      if (!byName.has(name)) throw new PleatError('bad-input', `--${flag} '${name}': the model has no input named '${name}' (its inputs: ${list})`);
+    }
+  }
+  const bound = new Map<string, { size: number; from: string }>();
+  for (const [sym, n] of dims) bound.set(sym, { size: n, from: `--dim ${sym}=${n}` });
+
+  // Check a concrete shape against the declared one, binding symbols it fixes.
+  const fit = (vi: ValueInfo, got: number[], source: string): void => {
+    const want = vi.shape;
+    if (!want) return;
+    const mismatch = () => new PleatError('bad-input', `input '${vi.name}' expects shape ${show(want)} but ${source} has [${got.join(',')}]`);
+    if (want.length !== got.length) throw mismatch();
+    want.forEach((d, k) => {
+      if (typeof d === 'number') { if (d !== got[k]) throw mismatch(); return; }
+      if (typeof d !== 'string' || d === '') return;
+      const b = bound.get(d);
+      if (!b) bound.set(d, { size: got[k]!, from: source });
+      else if (b.size !== got[k]) {
+        throw new PleatError('bad-input', `input '${vi.name}' dim '${d}' is ${got[k]} in ${source} but ${b.size} from ${b.from}`);
+      }
+    });
+  };
+
+  const needed = graph.inputs.filter((i) => !inits.has(i.name) || given.has(i.name));
+  for (const vi of needed) {
+    const s = shapes.get(vi.name);
+    if (s) fit(vi, s, `--shape ${vi.name}=${s.join('x')}`);
+  }
+  for (const vi of needed) {
+    const v = given.get(vi.name);
+    if (!v) continue;
+    const source = v.file ?? 'the given value';
+    if (v.data.length !== elementCount(v.dims)) {
+      throw new PleatError('bad-input', `input '${vi.name}': ${source} holds ${v.data.length} values for shape [${v.dims.join(',')}]`);
+    }
+    if (vi.elemType !== undefined && vi.elemType !== v.type) {
+      throw new PleatError('bad-input', `input '${vi.name}' expects ${dataTypeName(vi.elemType)} but ${source} holds ${dataTypeName(v.type)}`);
+    }
+    const s = shapes.get(vi.name);
+    if (s && (s.length !== v.dims.length || s.some((d, k) => d !== v.dims[k]))) {
+      throw new PleatError('bad-input', `input '${vi.name}': --shape says [${s.join(',')}] but ${source} has [${v.dims.join(',')}]`);
+    }
+    fit(vi, v.dims, source);
+  }
+
+  return needed.map((vi): InputSpec => {
+    if (vi.elemType === undefined) {
+      throw new PleatError('dtype-unsupported', `input '${vi.name}' is not a tensor (sequence, map or optional inputs are not supported)`);
+    }
+    const v = given.get(vi.name);
+    if (v) return { name: vi.name, type: vi.elemType, dims: [...v.dims], given: v };
+    const s = shapes.get(vi.name);
+    if (s) return { name: vi.name, type: vi.elemType, dims: [...s] };
+    if (!vi.shape) {
+      throw new PleatError('missing-shape', `input '${vi.name}' has no shape in the model: set it with --shape ${vi.name}=DIMS (for example 1x3x224x224) or --input ${vi.name}=FILE`);
+    }
+    const out = vi.shape.map((d, k): number => {
+      if (typeof d === 'number') return d;
+      if (typeof d === 'string' && d !== '') {
+        const b = bound.get(d);
+        if (b) return b.size;
+        throw new PleatError('missing-shape', `input '${vi.name}' dim '${d}' is dynamic: set it with --dim ${d}=N or --shape ${vi.name}=${template(vi)}`);
+      }
+      throw new PleatError('missing-shape', `input '${vi.name}' dim ${k} has no size or name: set it with --shape ${vi.name}=${template(vi)}`);
+    });
+    return { name: vi.name, type: vi.elemType, dims: out };
+  });
+}
+
+/** Dim symbols named in any input shape of these graphs. */
+export function dimSymbols(graphs: readonly Graph[]): Set<string> {
+  const out = new Set<string>();
+  for (const g of graphs) for (const i of g.inputs) for (const d of i.shape ?? []) if (typeof d === 'string' && d !== '') out.add(d);
+  return out;
+}
+
+/** A --dim naming no symbol of any model's inputs is almost always a typo: say so. */
+export function checkDimFlags(dims: ReadonlyMap<string, number>, graphs: readonly Graph[]): void {
+  const known = dimSymbols(graphs);
+  for (const sym of dims.keys()) {
+    if (!known.has(sym)) {
+      const list = [...known].sort().join(', ') || 'none';
+      throw new PleatError('usage', `--dim '${sym}' matches no dynamic dim of the model inputs (their dims: ${list})`);
+    }
+  }
+}
+
+// ---- probes -------------------------------------------------------------------------------------------
+
+/** splitmix32: a small, well-mixed 32-bit generator (public-domain construction); returns uniforms in [0, 1). */
+export function splitmix32(seed: number): () => number {
+  let a = seed | 0;
+  return () => {
+    a = (a + 0x9e3779b9) | 0;
+    let t = a ^ (a >>> 16);
+    t = Math.imul(t, 0x21f0aaad);
+    t ^= t >>> 15;
+    t = Math.imul(t, 0x735a2d97);
+    t ^= t >>> 15;
+    return (t >>> 0) / 4294967296;
+  };
+}
+
+/** FNV-1a over UTF-16 code units, to give each input name its own stream. */
+function hashName(s: string): number {
+  let h = 0x811c9dc5;
+  for (let i = 0; i < s.length; i++) { h ^= s.charCodeAt(i); h = Math.imul(h, 0x01000193); }
+  return h >>> 0;
+}
+
+/** The stream seed for (seed, probe, input): each input's values depend only on these, not on input order. */
+function streamSeed(seed: number, probe: number, name: string): number {
+  const r = splitmix32((seed | 0) ^ Math.imul(probe + 1, 0x85ebca6b));
+  r(); // one step so nearby seeds diverge
+  return (Math.floor(r() * 4294967296) ^ hashName(name)) | 0;
+}
+
+/** Largest integer drawn for integer inputs (values are 0..SMALL_INT_MAX), small enough to be a valid index for most axes. */
+export const SMALL_INT_MAX = 3;
+
+/** Generate one input's probe value: standard normal floats (rounded to the element type), small non-negative integers, random bools. */
+export function probeValue(spec: Pick<InputSpec, 'name' | 'type' | 'dims'>, seed: number, probe: number): Value {
+  const n = elementCount(spec.dims);
+  const rand = splitmix32(streamSeed(seed, probe, spec.name));
+  const data = new Float64Array(n);
+  if (isFloatType(spec.type)) {
+    for (let i = 0; i < n; i += 2) {
+      // Box-Muller: two uniforms give two independent standard normals; 1 - u keeps the log argument in (0, 1]
+      const u = 1 - rand(), v = rand();
+      const r = Math.sqrt(-2 * Math.log(u));
+      data[i] = r * Math.cos(2 * Math.PI * v);
+      if (i + 1 < n) data[i + 1] = r * Math.sin(2 * Math.PI * v);
+    }
+    return { type: spec.type, dims: [...spec.dims], data: roundToStorage(data, spec.type) };
+  }
+  if (spec.type === DataType.BOOL) {
+    for (let i = 0; i < n; i++) data[i] = rand() < 0.5 ? 0 : 1;
+  } else if (spec.type === DataType.STRING || spec.type === DataType.COMPLEX64 || spec.type === DataType.COMPLEX128) {
+    throw new PleatError('dtype-unsupported', `input '${spec.name}' is ${dataTypeName(spec.type)}: pleat cannot generate or hold such values`);
+  } else {
+    for (let i = 0; i < n; i++) data[i] = Math.floor(rand() * (SMALL_INT_MAX + 1));
+  }
+  return { type: spec.type, dims: [...spec.dims], data };
+}
+
+/** The input values of probe number `probe` (0-based): given values as they are, the rest generated. */
+export function makeProbe(specs: readonly InputSpec[], seed: number, probe: number): Map<string, Value> {
+  const out = new Map<string, Value>();
+  for (const s of specs) out.set(s.name, s.given ? { type: s.given.type, dims: s.given.dims, data: s.given.data } : probeValue(s, seed, probe));
+  return out;
+}
+
+// ---- options shared by evaluate and compare -----------------------------------------------------------
+
+type MapOrRecord<V> = ReadonlyMap<string, V> | Readonly<Record<string, V>>;
+
+/** How a run gets its inputs. Maps or plain objects are both accepted. */
+export interface InputOptions {
+  /** Values for graph inputs by name (for example from loadInputFiles); the rest are generated. */
+  inputs?: MapOrRecord<InputValue>;
+  /** Concrete shapes by input name (--shape). */
+  shapes?: MapOrRecord<number[]>;
+  /** Sizes of symbolic dims (--dim). */
+  dims?: MapOrRecord<number>;
+  /** Seed of the generated values (--seed); default 0. */
+  seed?: number;
+}
+
+/** One input as a report shows it. */
+export interface InputSummary {
+  name: string;
+  dtype: string;
+  dims: number[];
+  /** 'file' (from --input), 'value' (given by a library caller) or 'probe' (generated from the seed). */
+  source: 'file' | 'value' | 'probe';
+  file?: string;
+}
+
+export function asMap<V>(m: MapOrRecord<V> | undefined): Map<string, V> {
+  if (!m) return new Map();
+  if (m instanceof Map) return new Map(m as ReadonlyMap<string, V>);
+  return new Map(Object.entries(m as Record<string, V>));
+}
+
+export function summarizeInputs(specs: readonly InputSpec[]): InputSummary[] {
+  return specs.map((s) => {
+    const out: InputSummary = { name: s.name, dtype: dataTypeName(s.type), dims: [...s.dims], source: s.given ? (s.given.file ? 'file' : 'value') : 'probe' };
+    if (s.given?.file) out.file = s.given.file;
+    return out;
+  });
+}

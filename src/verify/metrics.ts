@@ -1,0 +1,98 @@
+// How far one output is from a reference output. All sums run in float64 on values scaled by the larger
+// magnitude, so huge outputs cannot overflow the squares.
+
+/** Agreement of a candidate array `a` with a reference array `b` (same length). */
+export interface Metrics {
+  /** Largest |a - b| over elements where neither side is NaN (Infinity if some element has a NaN mismatch). */
+  maxAbs: number;
+  /**
+   * Largest |a - b| / max(|b|, floor), with floor = REL_FLOOR * peak. Elements smaller than that share of the
+   * output's largest magnitude are judged against it, so values that cross zero cannot make the ratio explode.
+   * When the reference is all zeros the ratio is 0 if the candidate is too, else Infinity.
+   */
+  maxRel: number;
+  /** Root mean square of a - b over elements where neither side is NaN. */
+  rms: number;
+  /** Cosine similarity of a and b as vectors; 1 when both are all zeros, 0 when only one is. */
+  cosine: number;
+  /** Elements where exactly one side is NaN. Positions where both are NaN agree. */
+  nanMismatches: number;
+  /** Largest |b|: the reference's scale, so a gate can say `maxAbs <= 1e-5 * peak`. */
+  peak: number;
+  /** Number of elements compared. */
+  count: number;
+}
+
+/**
+ * Share of the output's peak magnitude used as the denominator floor of maxRel. 1e-3 is our choice (common
+ * practice for "relative to the output's scale" comparisons, not taken from a source): it is small enough that a
+ * sign or scale bug on any element of meaningful size shows up as an O(1) ratio, and large enough that the
+ * float32 rounding of a fold (about 1e-7 of the peak, spread over elements near zero) stays near 1e-4.
+ */
+export const REL_FLOOR = 1e-3;
+
+/** Metrics of candidate `a` against reference `b`. */
+export function computeMetrics(a: ArrayLike<number>, b: ArrayLike<number>): Metrics {
+  const n = a.length;
+  if (b.length !== n) throw new RangeError(`computeMetrics: lengths differ (${n} and ${b.length})`);
+  let peak = 0, scale = 0, nanMismatches = 0, infMismatch = false;
+  for (let i = 0; i < n; i++) {
+    const x = a[i]!, y = b[i]!;
+    const xn = Number.isNaN(x), yn = Number.isNaN(y);
+    if (xn || yn) { if (xn !== yn) nanMismatches++; continue; }
+    const ay = Math.abs(y), ax = Math.abs(x);
+    if (ay > peak) peak = ay;
+    if (ax !== Infinity && ax > scale) scale = ax;
+    if (ay !== Infinity && ay > scale) scale = ay;
+    if ((ax === Infinity || ay === Infinity) && x !== y) infMismatch = true;
+  }
+  const floor = REL_FLOOR * peak;
+  const inv = scale > 0 ? 1 / scale : 1;
+  let maxAbs = 0, maxRel = 0, sq = 0, dot = 0, na = 0, nb = 0, used = 0;
+  for (let i = 0; i < n; i++) {
+    const x = a[i]!, y = b[i]!;
+    if (Number.isNaN(x) || Number.isNaN(y)) continue;
+    used++;
+    if (x === y) { // also equal infinities, whose difference would be NaN
+      if (Number.isFinite(x)) { const s = x * inv; dot += s * s; na += s * s; nb += s * s; }
+      continue;
+    }
+    const d = Math.abs(x - y);
+    if (d > maxAbs) maxAbs = d;
+    const den = Math.max(Math.abs(y), floor);
+    const r = den > 0 ? d / den : Infinity;
+    if (r > maxRel) maxRel = r;
+    if (Number.isFinite(d)) {
+      const ds = d * inv, xs = x * inv, ys = y * inv;
+      sq += ds * ds; dot += xs * ys; na += xs * xs; nb += ys * ys;
+    }
+  }
+  let rms = used > 0 ? Math.sqrt(sq / used) * scale : 0;
+  let cosine: number;
+  if (na === 0 && nb === 0) cosine = 1;
+  else if (na === 0 || nb === 0) cosine = 0;
+  else cosine = Math.min(1, Math.max(-1, dot / Math.sqrt(na * nb)));
+  if (infMismatch) { maxAbs = Infinity; maxRel = Infinity; rms = Infinity; }
+  if (nanMismatches > 0) { maxAbs = Infinity; maxRel = Infinity; }
+  return { maxAbs, maxRel, rms, cosine, nanMismatches, peak, count: n };
+}
+
+/** The worst of several probes' metrics: largest errors, smallest cosine, most NaN mismatches. */
+export function worstOf(list: readonly Metrics[]): Metrics {
+  if (list.length === 0) throw new RangeError('worstOf: no metrics');
+  const w = { ...list[0]! };
+  for (const m of list.slice(1)) {
+    w.maxAbs = worse(w.maxAbs, m.maxAbs);
+    w.maxRel = worse(w.maxRel, m.maxRel);
+    w.rms = worse(w.rms, m.rms);
+    w.cosine = Math.min(w.cosine, m.cosine);
+    w.nanMismatches = Math.max(w.nanMismatches, m.nanMismatches);
+    w.peak = Math.max(w.peak, m.peak);
+    w.count = Math.max(w.count, m.count);
+  }
+  return w;
+}
+
+function worse(x: number, y: number): number {
+  return Number.isNaN(x) || Number.isNaN(y) ? NaN : Math.max(x, y);
+}

@@ -1,0 +1,293 @@
+// compare and evaluate end to end on models built with test/helpers/build.ts (onnx-proto's encoder) and read
+// by pleat. Outside references: the BatchNormalization formula of the ONNX operator documentation
+// (Y = (X - mean) / sqrt(var + epsilon) * scale + B), used to fold a Conv + BatchNormalization pair by hand;
+// onnxruntime-node for evaluate's outputs; numpy for the saved .npy files.
+import { describe, expect, it } from 'vitest';
+import { execFileSync } from 'node:child_process';
+import { existsSync, mkdtempSync, readdirSync, readFileSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { f, GraphBuilder, modelBytes, randn, rng, T } from '../helpers/build.js';
+import { runOrt } from '../helpers/ort.js';
+import * as ort from 'onnxruntime-node';
+import { parseModel } from '../../src/onnx/read.js';
+import { compare, toJsonText } from '../../src/verify/compare.js';
+import { evaluate, safeFileNames, saveOutputs } from '../../src/verify/evaluate.js';
+import { readNpy } from '../../src/verify/npy.js';
+import { DEFAULT_GATES } from '../../src/verify/gate.js';
+import { DataType } from '../../src/graph/ir.js';
+import { PleatError } from '../../src/errors.js';
+
+const dir = mkdtempSync(join(tmpdir(), 'pleat-compare-'));
+const CI = 3, CO = 4, K = 3;
+
+interface Params { w: Float32Array; b: Float32Array; scale: Float32Array; shift: Float32Array; mean: Float32Array; variance: Float32Array }
+function params(): Params {
+  const r = rng(7);
+  return {
+    w: randn(r, CO * CI * K * K, 0.3), b: randn(r, CO, 0.1), scale: randn(r, CO, 0.2, 1), shift: randn(r, CO, 0.5),
+    mean: randn(r, CO, 0.3), variance: Float32Array.from(randn(r, CO, 0.2, 1), Math.abs),
+  };
+}
+
+/** x [batch, 3, 6, 6] -> Conv 3x3 pad 1 -> BatchNormalization -> y, and Relu(y) -> z. */
+function convBn(p: Params, outNames = ['y', 'z']) {
+  const g = new GraphBuilder();
+  g.input('x', ['batch', CI, 6, 6]).output(outNames[0]!, ['batch', CO, 6, 6]).output(outNames[1]!, ['batch', CO, 6, 6]);
+  g.init('w', [CO, CI, K, K], p.w); g.init('b', [CO], p.b);
+  g.init('scale', [CO], p.scale); g.init('shift', [CO], p.shift); g.init('mean', [CO], p.mean); g.init('var', [CO], p.variance);
+  const c = g.node('Conv', ['x', 'w', 'b'], { pads: [1, 1, 1, 1] });
+  g.node('BatchNormalization', [c, 'scale', 'shift', 'mean', 'var'], { epsilon: f(1e-5) }, { outputs: [outNames[0]!] });
+  g.node('Relu', [outNames[0]!], {}, { outputs: [outNames[1]!] });
+  return parseModel(modelBytes(g), dir);
+}
+
+/** The same function with the BatchNormalization folded into the Conv by the ONNX formula, weights stored as float32. */
+function folded(p: Params, perturb = 0) {
+  const w = new Float32Array(p.w.length), b = new Float32Array(CO);
+  for (let c = 0; c < CO; c++) {
+    const s = p.scale[c]! / Math.sqrt(p.variance[c]! + Math.fround(1e-5));
+    for (let k = 0; k < CI * K * K; k++) w[c * CI * K * K + k] = p.w[c * CI * K * K + k]! * s;
+    b[c] = (p.b[c]! - p.mean[c]!) * s + p.shift[c]!;
+  }
+  b[1] = b[1]! + perturb;
+  const g = new GraphBuilder();
+  g.input('x', ['batch', CI, 6, 6]).output('y', ['batch', CO, 6, 6]).output('z', ['batch', CO, 6, 6]);
+  g.init('w', [CO, CI, K, K], w); g.init('b', [CO], b);
+  g.node('Conv', ['x', 'w', 'b'], { pads: [1, 1, 1, 1] }, { outputs: ['y'] });
+  g.node('Relu', ['y'], {}, { outputs: ['z'] });
+  return parseModel(modelBytes(g), dir);
+}
+
+describe('compare', () => {
+  const p = params();
+
+  it('a model against itself passes with zero error', () => {
+    const a = convBn(p);
+    const r = compare(a, a, { dims: { batch: 2 }, probes: 2 });
+    expect(r.passed).toBe(true);
+    expect(r.probes).toBe(2);
+    expect(r.inputs).toEqual([{ name: 'x', dtype: 'float32', dims: [2, 3, 6, 6], source: 'probe' }]);
+    for (const o of r.outputs) {
+      expect(o.status).toBe('compared');
+      expect(o.metrics!.maxAbs).toBe(0);
+      expect(o.metrics!.cosine).toBeCloseTo(1, 12);
+      expect(o.gate).toEqual({ expr: DEFAULT_GATES.float32, source: 'default', passed: true });
+      // A and B are the same model, so their float32 runs agree and the rewrite adds nothing
+      expect(o.budget!.addedAbs).toBe(0);
+      expect(o.budget!.own.maxAbs).toBeGreaterThan(0); // float32 arithmetic does round
+    }
+  });
+
+  it('the hand-folded model (ONNX BatchNormalization formula) passes the default gate', () => {
+    const r = compare(convBn(p), folded(p), { dims: { batch: 2 } });
+    expect(r.passed).toBe(true);
+    const y = r.outputs[0]!;
+    expect(y.metrics!.maxAbs).toBeGreaterThan(0); // folded weights are rounded to float32
+    expect(y.metrics!.maxRel).toBeLessThan(1e-4);
+    expect(y.budget!.deploy.maxRel).toBeLessThan(1e-3);
+  });
+
+  it('a perturbed fold fails the default gate and says which output and gate', () => {
+    const r = compare(convBn(p), folded(p, 1e-2), { dims: { batch: 1 } });
+    expect(r.passed).toBe(false);
+    const y = r.outputs.find((o) => o.name === 'y')!;
+    expect(y.passed).toBe(false);
+    expect(y.gate!.passed).toBe(false);
+    expect(y.metrics!.maxAbs).toBeCloseTo(1e-2, 6);
+    expect(y.problem).toBe(`output 'y' fails the gate '${DEFAULT_GATES.float32}'`);
+    expect(y.budget!.addedAbs).toBeGreaterThan(9e-3);
+  });
+
+  it('a user gate replaces the default, and budget names work in it', () => {
+    const a = convBn(p), b = folded(p);
+    const loose = compare(a, b, { dims: { batch: 1 }, gate: 'addedAbs <= 1e-4 and maxAbs < 1', probes: 1 });
+    expect(loose.passed).toBe(true);
+    expect(loose.outputs[0]!.gate!.source).toBe('user');
+    const strict = compare(a, b, { dims: { batch: 1 }, gate: 'maxAbs == 0', probes: 1 });
+    expect(strict.passed).toBe(false);
+    expect(() => compare(a, b, { dims: { batch: 1 }, gate: 'addedAbs < 1', budget: false })).toThrow(/not measured here/);
+    expect(() => compare(a, b, { dims: { batch: 1 }, gate: 'maxAbs <' })).toThrow(PleatError);
+  });
+
+  it('outputs with different names or shapes are reported failures, not exceptions', () => {
+    const r = compare(convBn(p), convBn(p, ['y', 'relu']), { dims: { batch: 1 }, probes: 1 });
+    expect(r.passed).toBe(false);
+    expect(r.outputs.map((o) => [o.name, o.status, o.passed])).toEqual([['y', 'compared', true], ['z', 'only-in-a', false], ['relu', 'only-in-b', false]]);
+    expect(r.outputs[1]!.problem).toBe("model B has no output 'z'");
+
+    const g = new GraphBuilder();
+    g.input('x', ['batch', CI, 6, 6]).output('y').output('z');
+    g.init('w', [CO, CI, K, K], p.w);
+    g.node('Conv', ['x', 'w'], { pads: [1, 1, 1, 1] }, { outputs: ['y'] });
+    g.node('Conv', ['x', 'w'], {}, { outputs: ['z'] }); // no padding: 4x4 instead of 6x6
+    const r2 = compare(convBn(p), parseModel(modelBytes(g), dir), { dims: { batch: 1 }, probes: 1 });
+    const z = r2.outputs.find((o) => o.name === 'z')!;
+    expect(z.status).toBe('shape-differs');
+    expect(z.problem).toBe("output 'z' has shape [1,4,6,6] in model A but [1,4,4,4] in model B");
+    expect(r2.passed).toBe(false);
+  });
+
+  it('given inputs make one run; B with other inputs is a clear error', () => {
+    const a = convBn(p);
+    const x = { type: DataType.FLOAT, dims: [1, 3, 6, 6], data: Float64Array.from(randn(rng(3), 108)) };
+    const r = compare(a, a, { inputs: { x }, probes: 5 });
+    expect(r.probes).toBe(1);
+    expect(r.inputs[0]!.source).toBe('value');
+    const g = new GraphBuilder();
+    g.input('image', [1, 3, 6, 6]).output('y');
+    g.node('Identity', ['image'], {}, { outputs: ['y'] });
+    expect(() => compare(a, parseModel(modelBytes(g), dir), { inputs: { x } })).toThrow("model B has no input 'x', which model A takes: both models must take the same inputs");
+  });
+
+  it('a model that cannot run is an error naming which model', () => {
+    const g = new GraphBuilder();
+    g.input('x', ['batch', CI, 6, 6]).output('y').output('z');
+    g.node('NoSuchOp', ['x'], {}, { outputs: ['y'], domain: 'example.unknown' });
+    g.node('Relu', ['x'], {}, { outputs: ['z'] });
+    const b = parseModel(modelBytes(g, { extraOpsets: [['example.unknown', 1]] }), dir);
+    expect(() => compare(convBn(p), b, { dims: { batch: 1 } })).toThrow(/^model B, float64 run: /);
+  });
+
+  it('when B stores an output in a lower precision, the looser default gate applies and dtypeB is reported', () => {
+    const g = new GraphBuilder();
+    g.input('x', ['batch', CI, 6, 6]).output('y', undefined, T.FLOAT16).output('z');
+    g.init('w', [CO, CI, K, K], p.w); g.init('b', [CO], p.b);
+    g.init('scale', [CO], p.scale); g.init('shift', [CO], p.shift); g.init('mean', [CO], p.mean); g.init('var', [CO], p.variance);
+    const c = g.node('Conv', ['x', 'w', 'b'], { pads: [1, 1, 1, 1] });
+    const bn = g.node('BatchNormalization', [c, 'scale', 'shift', 'mean', 'var'], { epsilon: f(1e-5) });
+    g.node('Cast', [bn], { to: T.FLOAT16 }, { outputs: ['y'] });
+    g.node('Relu', [bn], {}, { outputs: ['z'] });
+    const r = compare(convBn(p), parseModel(modelBytes(g), dir), { dims: { batch: 1 }, probes: 1 });
+    const y = r.outputs[0]!;
+    expect([y.dtype, y.dtypeB, y.gate!.expr]).toEqual(['float32', 'float16', DEFAULT_GATES.float16]);
+    expect(y.metrics!.maxAbs).toBeGreaterThan(0); // float16 rounding of the output
+    expect(y.passed).toBe(true);
+  });
+
+  it('the report is deterministic JSON, and non-finite metrics survive as strings', () => {
+    const a = convBn(p);
+    const one = toJsonText(compare(a, folded(p), { dims: { batch: 1 }, seed: 5 }));
+    const two = toJsonText(compare(a, folded(p), { dims: { batch: 1 }, seed: 5 }));
+    expect(one).toBe(two);
+    const parsed = JSON.parse(one);
+    expect(Object.keys(parsed)).toEqual(['passed', 'seed', 'probes', 'budget', 'inputs', 'outputs']);
+    expect(parsed.seed).toBe(5);
+    expect(toJsonText({ m: Infinity, n: NaN })).toBe('{\n  "m": "Infinity",\n  "n": "NaN"\n}\n');
+  });
+});
+
+describe('evaluate', () => {
+  const p = params();
+
+  it('matches onnxruntime-node in float32 and float64 runs', async () => {
+    const m = convBn(p);
+    const bytes = modelBytes((() => { // the same graph as convBn, for onnxruntime
+      const g = new GraphBuilder();
+      g.input('x', ['batch', CI, 6, 6]).output('y').output('z');
+      g.init('w', [CO, CI, K, K], p.w); g.init('b', [CO], p.b);
+      g.init('scale', [CO], p.scale); g.init('shift', [CO], p.shift); g.init('mean', [CO], p.mean); g.init('var', [CO], p.variance);
+      const c = g.node('Conv', ['x', 'w', 'b'], { pads: [1, 1, 1, 1] });
+      g.node('BatchNormalization', [c, 'scale', 'shift', 'mean', 'var'], { epsilon: f(1e-5) }, { outputs: ['y'] });
+      g.node('Relu', ['y'], {}, { outputs: ['z'] });
+      return g;
+    })());
+    for (const precision of ['float32', 'float64'] as const) {
+      const res = evaluate(m, { dims: { batch: 2 }, seed: 11, precision });
+      const x = res.inputs.get('x')!;
+      const ort = await runOrt(bytes, { x: { dims: x.dims, data: Float32Array.from(x.data) } });
+      for (const name of ['y', 'z']) {
+        const mine = res.outputs.get(name)!;
+        expect(mine.dims).toEqual(ort[name]!.dims);
+        let maxAbs = 0, peak = 0;
+        mine.data.forEach((v, i) => { maxAbs = Math.max(maxAbs, Math.abs(v - ort[name]!.data[i]!)); peak = Math.max(peak, Math.abs(v)); });
+        // onnxruntime computes in float32: agreement to a few float32 roundings of the output's scale
+        expect(maxAbs).toBeLessThan(1e-5 * peak);
+        expect(peak).toBeGreaterThan(0.1);
+      }
+    }
+  });
+
+  it('integer and bool probes are valid inputs that onnxruntime-node agrees on (Gather, Where, ArgMax)', async () => {
+    const g = new GraphBuilder();
+    g.input('ids', [5], T.INT64).input('mask', [5, 3], T.BOOL).input('x', [5, 3]).output('picked').output('sel').output('arg', undefined, T.INT64);
+    g.init('table', [4, 3], Float32Array.from({ length: 12 }, (_, i) => i * 0.5 - 2));
+    g.node('Gather', ['table', 'ids'], { axis: 0 }, { outputs: ['picked'] });
+    g.node('Where', ['mask', 'picked', 'x'], {}, { outputs: ['sel'] });
+    g.node('ArgMax', ['sel'], { axis: 1, keepdims: 0 }, { outputs: ['arg'] });
+    const bytes = modelBytes(g);
+    const res = evaluate(parseModel(bytes, dir), { seed: 4 });
+    const ids = res.inputs.get('ids')!, mask = res.inputs.get('mask')!, x = res.inputs.get('x')!;
+    expect(new Set(ids.data).size).toBeGreaterThan(1);
+    // runOrt has no bool feeds, so this test opens its own session (graph optimizations off, one thread)
+    const session = await ort.InferenceSession.create(bytes, { graphOptimizationLevel: 'disabled', intraOpNumThreads: 1, interOpNumThreads: 1 });
+    const got = await session.run({
+      ids: new ort.Tensor('int64', BigInt64Array.from(ids.data, (v) => BigInt(v)), ids.dims),
+      mask: new ort.Tensor('bool', Uint8Array.from(mask.data), mask.dims),
+      x: new ort.Tensor('float32', Float32Array.from(x.data), x.dims),
+    });
+    await session.release();
+    for (const name of ['picked', 'sel', 'arg']) {
+      expect(Array.from(res.outputs.get(name)!.data)).toEqual(Array.from(got[name]!.data as ArrayLike<number | bigint>, Number));
+    }
+    expect(res.outputs.get('arg')!.type).toBe(DataType.INT64);
+    // int64 outputs get the exact gate
+    const r = compare(parseModel(bytes, dir), parseModel(bytes, dir));
+    expect(r.outputs.find((o) => o.name === 'arg')!.gate!.expr).toBe(DEFAULT_GATES.exact);
+    expect(r.passed).toBe(true);
+  });
+
+  it('is deterministic for a seed and records where inputs came from', () => {
+    const m = convBn(p);
+    const a = evaluate(m, { dims: { batch: 1 } }), b = evaluate(m, { dims: { batch: 1 }, seed: 0 });
+    expect(Array.from(a.outputs.get('y')!.data)).toEqual(Array.from(b.outputs.get('y')!.data));
+    expect(a.inputSummary).toEqual([{ name: 'x', dtype: 'float32', dims: [1, 3, 6, 6], source: 'probe' }]);
+    expect(() => evaluate(m)).toThrow("input 'x' dim 'batch' is dynamic: set it with --dim batch=N or --shape x=?x3x6x6");
+  });
+});
+
+describe('saveOutputs', () => {
+  it('makes safe, unique file names deterministically', () => {
+    expect(safeFileNames(['y', 'a/b:0', 'a_b_0', 'A_B_0', '.hidden', '', 'outputs'])).toEqual(
+      ['y.npy', 'a_b_0.npy', 'a_b_0-2.npy', 'A_B_0-3.npy', '_hidden.npy', 'output.npy', 'outputs.npy']);
+  });
+
+  it('writes one .npy per output plus outputs.json, and leaves no temporary files', () => {
+    const out = join(dir, 'saved');
+    const outputs = new Map([
+      ['logits/0', { type: DataType.FLOAT, dims: [2], data: new Float64Array([0.1, -3]) }],
+      ['ids', { type: DataType.INT64, dims: [1], data: new Float64Array([42]) }],
+    ]);
+    const saved = saveOutputs(out, outputs);
+    expect(saved.files).toEqual([{ name: 'logits/0', file: 'logits_0.npy' }, { name: 'ids', file: 'ids.npy' }]);
+    expect(JSON.parse(readFileSync(join(out, 'outputs.json'), 'utf8'))).toEqual({ 'logits/0': 'logits_0.npy', ids: 'ids.npy' });
+    expect(readdirSync(out).sort()).toEqual(['ids.npy', 'logits_0.npy', 'outputs.json']);
+    expect(Array.from(readNpy(join(out, 'logits_0.npy')).data)).toEqual([Math.fround(0.1), -3]);
+    saveOutputs(out, outputs, { float64: true });
+    const f64 = readNpy(join(out, 'logits_0.npy'));
+    expect(f64.type).toBe(DataType.DOUBLE);
+    expect(Array.from(f64.data)).toEqual([0.1, -3]);
+  });
+
+  it.skipIf(!existsSync('/usr/bin/python3'))('numpy reads outputs.json and every file it names (Debian python3-numpy; skipped only without /usr/bin/python3)', () => {
+    const out = join(dir, 'saved-np');
+    saveOutputs(out, new Map([
+      ['logits/0', { type: DataType.FLOAT, dims: [2], data: new Float64Array([0.1, -3]) }],
+      ['ids', { type: DataType.INT64, dims: [1], data: new Float64Array([42]) }],
+    ]), { float64: true });
+    {
+      const got = execFileSync('/usr/bin/python3', ['-c', `
+import json, numpy as np
+d = ${JSON.stringify(out)}
+idx = json.load(open(d + '/outputs.json'))
+print(json.dumps({k: np.load(d + '/' + v).tolist() for k, v in idx.items()}))`], { encoding: 'utf8' });
+      expect(JSON.parse(got)).toEqual({ 'logits/0': [0.1, -3], ids: [42] });
+    }
+  });
+
+  it('a folder that cannot be created is a one-line bad-input error', () => {
+    const file = join(dir, 'plain-file');
+    writeFileSync(file, 'x');
+    expect(() => saveOutputs(join(file, 'sub'), new Map())).toThrow(/plain-file\/sub: cannot create the output folder \(ENOTDIR\)/);
+  });
+});

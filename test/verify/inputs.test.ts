@@ -1,0 +1,170 @@
+// Input flags, shape resolution and seeded probes. Models are built with test/helpers/build.ts (onnx-proto's
+// own encoder) and read with pleat's reader; .pb inputs are TensorProtos encoded by onnx-proto.
+import { describe, expect, it } from 'vitest';
+import { mkdtempSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import onnxProto from 'onnx-proto';
+import { GraphBuilder, modelBytes, T, tensor } from '../helpers/build.js';
+import { parseModel } from '../../src/onnx/read.js';
+import {
+  checkDimFlags, loadInputFile, makeProbe, parseInputFlags, probeValue, resolveInputs, splitmix32, SMALL_INT_MAX, type InputValue,
+} from '../../src/verify/inputs.js';
+import { npyBytes } from '../../src/verify/npy.js';
+import { DataType } from '../../src/graph/ir.js';
+import { PleatError } from '../../src/errors.js';
+
+const dir = mkdtempSync(join(tmpdir(), 'pleat-inputs-'));
+
+function err(f: () => unknown): PleatError {
+  try { f(); } catch (e) { expect(e).toBeInstanceOf(PleatError); expect((e as Error).message).not.toContain('\n'); return e as PleatError; }
+  throw new Error('expected an error');
+}
+
+/** image [batch, 3, h, 4] float, mask [batch] bool, ids [2] int64, w [3] with an initializer default. */
+function model() {
+  const g = new GraphBuilder();
+  g.input('image', ['batch', 3, 'h', 4]).input('mask', ['batch'], T.BOOL).input('ids', [2], T.INT64).input('w', [3]);
+  g.init('w', [3], [1, 2, 3]);
+  g.output('y', ['batch', 3, 'h', 4]);
+  g.node('Identity', ['image'], {}, { outputs: ['y'] });
+  return parseModel(modelBytes(g), dir);
+}
+
+const val = (type: number, dims: number[], file?: string): InputValue => ({ type, dims, data: new Float64Array(dims.reduce((a, b) => a * b, 1)), file });
+
+describe('parseInputFlags', () => {
+  it('parses --input, --shape and --dim', () => {
+    const s = parseInputFlags({ input: ['x=a/b=c.npy', 'y:0=t.pb'], shape: ['x=1x3x224x224', 's='], dim: ['batch=2'] });
+    expect([...s.files]).toEqual([['x', 'a/b=c.npy'], ['y:0', 't.pb']]);
+    expect(s.shapes.get('x')).toEqual([1, 3, 224, 224]);
+    expect(s.shapes.get('s')).toEqual([]);
+    expect(s.dims.get('batch')).toBe(2);
+  });
+
+  it('rejects malformed flags with a usage error naming the flag', () => {
+    expect(err(() => parseInputFlags({ input: ['x.npy'] })).message).toMatch(/--input 'x\.npy' should be NAME=FILE/);
+    expect(err(() => parseInputFlags({ shape: ['x=1x-3'] })).message).toMatch(/--shape 'x=1x-3': '-3' is not a non-negative whole number/);
+    expect(err(() => parseInputFlags({ dim: ['batch=two'] })).kind).toBe('usage');
+    expect(err(() => parseInputFlags({ dim: ['b=1', 'b=2'] })).message).toMatch(/given twice/);
+  });
+});
+
+describe('resolveInputs', () => {
+  it('resolves symbolic dims from --dim and --shape; initializer-backed inputs are not required', () => {
+    const m = model();
+    const specs = resolveInputs(m.graph, new Map(), new Map([['image', [2, 3, 5, 4]]]), new Map());
+    expect(specs.map((s) => [s.name, s.dims])).toEqual([['image', [2, 3, 5, 4]], ['mask', [2]], ['ids', [2]]]);
+    const viaDims = resolveInputs(m.graph, new Map(), new Map(), new Map([['batch', 1], ['h', 7]]));
+    expect(viaDims[0]!.dims).toEqual([1, 3, 7, 4]);
+  });
+
+  it('binds symbols from a given file and checks other inputs against them', () => {
+    const m = model();
+    const specs = resolveInputs(m.graph, new Map([['image', val(T.FLOAT, [4, 3, 2, 4], 'img.npy')]]));
+    expect(specs[1]!.dims).toEqual([4]); // mask takes batch from img.npy
+    const e = err(() => resolveInputs(m.graph, new Map([['image', val(T.FLOAT, [4, 3, 2, 4], 'img.npy')], ['mask', val(T.BOOL, [5], 'mask.npy')]])));
+    expect(e.message).toBe("input 'mask' dim 'batch' is 5 in mask.npy but 4 from img.npy");
+  });
+
+  it('a dynamic dim nothing resolves is missing-shape naming the input, the dim and the flags', () => {
+    const e = err(() => resolveInputs(model().graph, new Map()));
+    expect(e.kind).toBe('missing-shape');
+    expect(e.message).toBe("input 'image' dim 'batch' is dynamic: set it with --dim batch=N or --shape image=?x3x?x4");
+    const g = new GraphBuilder();
+    g.input('x', [null, 2]).input('z').output('x');
+    const m = parseModel(modelBytes(g), dir);
+    expect(err(() => resolveInputs(m.graph, new Map(), new Map([['z', [1]]]))).message).toBe("input 'x' dim 0 has no size or name: set it with --shape x=?x2");
+    expect(err(() => resolveInputs(m.graph, new Map(), new Map([['x', [1, 2]]]))).message).toMatch(/^input 'z' has no shape in the model: set it with --shape z=/);
+  });
+
+  it('a file of the wrong type or shape is a one-line error naming the input and both', () => {
+    const m = model();
+    const dims = new Map([['h', 2]]);
+    expect(err(() => resolveInputs(m.graph, new Map([['ids', val(T.INT32, [2], 'ids.npy')]]), new Map(), new Map([['batch', 1], ...dims]))).message)
+      .toBe("input 'ids' expects int64 but ids.npy holds int32");
+    expect(err(() => resolveInputs(m.graph, new Map([['image', val(T.FLOAT, [1, 4, 2, 4], 'img.npy')]]))).message)
+      .toBe("input 'image' expects shape [batch,3,h,4] but img.npy has [1,4,2,4]");
+    expect(err(() => resolveInputs(m.graph, new Map([['image', val(T.FLOAT, [1, 3, 2], 'img.npy')]]))).message)
+      .toBe("input 'image' expects shape [batch,3,h,4] but img.npy has [1,3,2]");
+    expect(err(() => resolveInputs(m.graph, new Map([['imag', val(T.FLOAT, [1])]]))).message)
+      .toBe("--input 'imag': the model has no input named 'imag' (its inputs: image, mask, ids, w)");
+    expect(err(() => resolveInputs(m.graph, new Map(), new Map([['image', [1, 3, 2, 4]]]), new Map([['batch', 2]]))).message)
+      .toBe("input 'image' dim 'batch' is 1 in --shape image=1x3x2x4 but 2 from --dim batch=2");
+  });
+
+  it('a --dim naming no symbol is a usage error', () => {
+    expect(err(() => checkDimFlags(new Map([['bach', 1]]), [model().graph])).message).toBe("--dim 'bach' matches no dynamic dim of the model inputs (their dims: batch, h)");
+    checkDimFlags(new Map([['batch', 1]]), [model().graph]);
+  });
+});
+
+describe('input files', () => {
+  it('reads .npy and .pb (TensorProto encoded by onnx-proto) files', () => {
+    const npy = join(dir, 'a.npy');
+    writeFileSync(npy, npyBytes({ type: DataType.FLOAT, dims: [2], data: new Float64Array([1.5, -2]) }));
+    const a = loadInputFile(npy);
+    expect([a.type, a.dims, Array.from(a.data), a.file]).toEqual([DataType.FLOAT, [2], [1.5, -2], npy]);
+    const pb = join(dir, 'input_0.pb');
+    writeFileSync(pb, onnxProto.onnx.TensorProto.encode(tensor('x', [2, 2], [1, 2, 3, 4], T.INT64)).finish());
+    const b = loadInputFile(pb);
+    expect([b.type, b.dims, Array.from(b.data)]).toEqual([DataType.INT64, [2, 2], [1, 2, 3, 4]]);
+    const typed = join(dir, 'typed.pb');
+    writeFileSync(typed, onnxProto.onnx.TensorProto.encode(tensor('x', [3], [0.5, 1, 2], T.FLOAT, 'typed')).finish());
+    expect(Array.from(loadInputFile(typed).data)).toEqual([0.5, 1, 2]);
+  });
+
+  it('names the file on errors', () => {
+    const bad = join(dir, 'bad.pb');
+    writeFileSync(bad, new Uint8Array([0xff, 0xff, 0xff]));
+    expect(err(() => loadInputFile(bad)).message).toMatch(new RegExp(`^${bad}: `));
+    expect(err(() => loadInputFile(join(dir, 'x.csv'))).message).toMatch(/x\.csv: pleat reads input values from \.npy files or \.pb files/);
+    expect(err(() => loadInputFile(join(dir, 'missing.pb'))).message).toMatch(/missing\.pb: cannot read \(ENOENT\)/);
+  });
+});
+
+describe('probes', () => {
+  it('splitmix32 is deterministic and roughly uniform', () => {
+    const r = splitmix32(0), s = splitmix32(0);
+    const xs = Array.from({ length: 10000 }, () => r());
+    expect(xs.slice(0, 5)).toEqual(Array.from({ length: 5 }, () => s()));
+    const mean = xs.reduce((a, b) => a + b, 0) / xs.length;
+    expect(Math.abs(mean - 0.5)).toBeLessThan(0.01); // standard error of the mean is 0.0029
+    expect(Math.min(...xs)).toBeGreaterThanOrEqual(0);
+    expect(Math.max(...xs)).toBeLessThan(1);
+  });
+
+  it('float probes are standard normal and rounded to the element type', () => {
+    const v = probeValue({ name: 'x', type: DataType.FLOAT, dims: [20000] }, 0, 0);
+    const d = Array.from(v.data);
+    const mean = d.reduce((a, b) => a + b, 0) / d.length;
+    const variance = d.reduce((a, b) => a + (b - mean) ** 2, 0) / d.length;
+    expect(Math.abs(mean)).toBeLessThan(0.03); // standard error 1/sqrt(20000) = 0.007
+    expect(Math.abs(variance - 1)).toBeLessThan(0.04);
+    expect(d.every((x) => Math.fround(x) === x)).toBe(true);
+    const h = probeValue({ name: 'x', type: DataType.FLOAT16, dims: [100] }, 0, 0);
+    expect(Array.from(h.data).every((x) => Math.fround(x) === x && Number.isInteger(x * 2 ** 24))).toBe(true);
+  });
+
+  it('integer probes are small non-negative ints, bools 0/1', () => {
+    const i = probeValue({ name: 'i', type: DataType.INT64, dims: [1000] }, 3, 0);
+    const seen = new Set(i.data);
+    expect([...seen].sort()).toEqual(Array.from({ length: SMALL_INT_MAX + 1 }, (_, k) => k));
+    const b = probeValue({ name: 'b', type: DataType.BOOL, dims: [1000] }, 3, 0);
+    expect([...new Set(b.data)].sort()).toEqual([0, 1]);
+  });
+
+  it('probes depend on seed, probe index and input name, not on input order; given values pass through', () => {
+    const spec = { name: 'x', type: DataType.FLOAT, dims: [8] };
+    const a = probeValue(spec, 0, 0).data, b = probeValue(spec, 0, 0).data;
+    expect(Array.from(a)).toEqual(Array.from(b));
+    expect(Array.from(probeValue(spec, 1, 0).data)).not.toEqual(Array.from(a));
+    expect(Array.from(probeValue(spec, 0, 1).data)).not.toEqual(Array.from(a));
+    expect(Array.from(probeValue({ ...spec, name: 'y' }, 0, 0).data)).not.toEqual(Array.from(a));
+    const given: InputValue = { type: DataType.FLOAT, dims: [2], data: new Float64Array([7, 8]), file: 'g.npy' };
+    const p1 = makeProbe([{ ...spec }, { name: 'g', type: DataType.FLOAT, dims: [2], given }], 0, 0);
+    const p2 = makeProbe([{ name: 'g', type: DataType.FLOAT, dims: [2], given }, { ...spec }], 0, 0);
+    expect(Array.from(p1.get('x')!.data)).toEqual(Array.from(p2.get('x')!.data));
+    expect(Array.from(p1.get('g')!.data)).toEqual([7, 8]);
+  });
+});
