@@ -3,10 +3,14 @@
 import { PleatError } from '../errors.js';
 import { attrInts, attrString, elementCount, type Node } from '../graph/ir.js';
 import type { KernelContext, NumArray, Precision, Value } from './value.js';
+import { takeFloat32, takeFloat64 } from './pool.js';
 
-/** A float buffer in the run's precision. */
-export function allocFloat(n: number, precision: Precision): NumArray {
-  return precision === 'float32' ? new Float32Array(n) : new Float64Array(n);
+/**
+ * A float buffer in the run's precision (reused from the evaluator's pool when one is free), zeroed unless
+ * `zero` is false, which kernels that write every element pass to save a pass over memory.
+ */
+export function allocFloat(n: number, precision: Precision, zero = true): NumArray {
+  return precision === 'float32' ? takeFloat32(n, zero) : takeFloat64(n, zero);
 }
 
 /** A float result value of `type` (the node's float element type) in the run's precision. */

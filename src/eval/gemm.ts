@@ -80,7 +80,9 @@ export function gemm(M: number, N: number, K: number, A: Operand, B: Operand, C:
     return;
   }
   const simd = useSimd ? simdKernels() : undefined;
-  if (simd && M * N * K >= 512) { gemmSimd(simd, M, N, K, A, B, C, cOff, ldc, accumulate); return; }
+  // the SIMD path packs all of A into module memory; very large operands stay on the scalar path
+  const simdBytes = (Math.ceil(M / 4) * 4 * K + K * SNC + SMC * SNC) * 8;
+  if (simd && M * N * K >= 512 && simdBytes <= 1 << 29) { gemmSimd(simd, M, N, K, A, B, C, cOff, ldc, accumulate); return; }
   for (let j0 = 0; j0 < N; j0 += NC) {
     const nc = Math.min(NC, N - j0);
     for (let k0 = 0; k0 < K; k0 += KC) {
@@ -150,13 +152,16 @@ export function rowMajor(data: NumArray, off: number, cols: number, transposed =
 // ---- WebAssembly SIMD path ------------------------------------------------------------------------------
 
 let useSimd = true;
+/** Whether kernels should take their WebAssembly SIMD paths. */
+export function simdOn(): boolean { return useSimd; }
 /** Switch the SIMD path off or on (tests compare both paths). */
 export function setSimd(on: boolean): void { useSimd = on; }
 
-const SKC = 256, SMC = 128, SNC = 512;
+const SMC = 128, SNC = 512;
 let views: { buffer: ArrayBuffer; f32: Float32Array; f64: Float64Array } | undefined;
 
-function memoryViews(simd: SimdKernels, bytes: number): { f32: Float32Array; f64: Float64Array } {
+/** Views of the SIMD module's memory with at least `bytes` bytes (each call lays out its data from offset 0). */
+export function memoryViews(simd: SimdKernels, bytes: number): { f32: Float32Array; f64: Float64Array } {
   const mem = simd.memory;
   if (mem.buffer.byteLength < bytes) mem.grow(Math.ceil((bytes - mem.buffer.byteLength) / 65536));
   if (!views || views.buffer !== mem.buffer) {
@@ -166,70 +171,71 @@ function memoryViews(simd: SimdKernels, bytes: number): { f32: Float32Array; f64
 }
 
 /**
- * The same blocking as the scalar path with the micro-kernel in WebAssembly: A and B blocks are packed into
- * module memory, the kernel writes a row-major C block there, and it is added into C here. The kernel's
- * element type follows C: a Float32Array C is computed in float32, anything else in float64.
+ * The micro-kernel in WebAssembly: all of A is packed once (4-row tiles over the whole k range), then for each
+ * panel of up to 512 columns B is packed and each 128-row block of C is computed in module memory with the sum
+ * over k kept in registers, and copied (or added) into C. The kernel's element type follows C: a Float32Array C
+ * is computed in float32, anything else in float64.
  */
 function gemmSimd(simd: SimdKernels, M: number, N: number, K: number, A: Operand, B: Operand, C: NumArray, cOff: number, ldc: number, accumulate: boolean): void {
   const f64 = !(C instanceof Float32Array);
   const es = f64 ? 8 : 4, nr = 32 / es;
-  const paBytes = SMC * SKC * es, pbBytes = SKC * SNC * es, pcBytes = SMC * SNC * es;
+  const mTilesAll = Math.ceil(M / 4);
+  const paBytes = mTilesAll * 4 * K * es, pbBytes = K * SNC * es, pcBytes = SMC * SNC * es;
   const { f32, f64: d64 } = memoryViews(simd, paBytes + pbBytes + pcBytes);
   const mem = f64 ? d64 : f32;
-  const pa = 0, pb = paBytes, pc = paBytes + pbBytes;
-  const paE = pa / es, pbE = pb / es, pcE = pc / es;
+  const pb = paBytes, pc = paBytes + pbBytes;
+  const pbE = pb / es, pcE = pc / es;
   const kern = f64 ? simd.k64 : simd.k32;
   const ad = A.data, ars = A.rs, acs = A.cs, bd = B.data, brs = B.rs, bcs = B.cs;
+  // pack A: tile t holds rows 4t..4t+3, k-major
+  let q = 0;
+  for (let t = 0; t < mTilesAll; t++) {
+    const ib = t * 4, rows = Math.min(4, M - ib);
+    const base = A.off + ib * ars;
+    if (rows === 4) {
+      const r1 = base + ars, r2 = r1 + ars, r3 = r2 + ars;
+      for (let k = 0; k < K; k++) {
+        const o = k * acs;
+        mem[q] = ad[base + o]!; mem[q + 1] = ad[r1 + o]!; mem[q + 2] = ad[r2 + o]!; mem[q + 3] = ad[r3 + o]!;
+        q += 4;
+      }
+    } else {
+      for (let k = 0; k < K; k++) {
+        for (let r = 0; r < 4; r++) mem[q + r] = r < rows ? ad[base + r * ars + k * acs]! : 0;
+        q += 4;
+      }
+    }
+  }
+  const sameType = f64 ? C instanceof Float64Array : true;
   for (let j0 = 0; j0 < N; j0 += SNC) {
     const nc = Math.min(SNC, N - j0), nTiles = Math.ceil(nc / nr), ldcE = nTiles * nr;
-    for (let k0 = 0; k0 < K; k0 += SKC) {
-      const kc = Math.min(SKC, K - k0);
-      // pack B[k0:k0+kc, j0:j0+nc] as nTiles tiles of kc x nr
-      let p = pbE;
-      for (let t = 0; t < nTiles; t++) {
-        const jb = j0 + t * nr, cols = Math.min(nr, N - jb);
-        const base = B.off + k0 * brs + jb * bcs;
-        if (cols === nr && bcs === 1) {
-          for (let k = 0; k < kc; k++) {
-            const o = base + k * brs;
-            for (let c = 0; c < nr; c++) mem[p + c] = bd[o + c]!;
-            p += nr;
-          }
-        } else {
-          for (let k = 0; k < kc; k++) {
-            const o = base + k * brs;
-            for (let c = 0; c < nr; c++) mem[p + c] = c < cols ? bd[o + c * bcs]! : 0;
-            p += nr;
-          }
+    // pack B[:, j0:j0+nc] as nTiles tiles of K x nr
+    let p = pbE;
+    for (let t = 0; t < nTiles; t++) {
+      const jb = j0 + t * nr, cols = Math.min(nr, N - jb);
+      const base = B.off + jb * bcs;
+      if (cols === nr && bcs === 1) {
+        for (let k = 0; k < K; k++) {
+          const o = base + k * brs;
+          for (let c = 0; c < nr; c++) mem[p + c] = bd[o + c]!;
+          p += nr;
+        }
+      } else {
+        for (let k = 0; k < K; k++) {
+          const o = base + k * brs;
+          for (let c = 0; c < nr; c++) mem[p + c] = c < cols ? bd[o + c * bcs]! : 0;
+          p += nr;
         }
       }
-      const add = accumulate || k0 > 0;
-      for (let i0 = 0; i0 < M; i0 += SMC) {
-        const mc = Math.min(SMC, M - i0), mTiles = Math.ceil(mc / 4);
-        let q = paE;
-        for (let t = 0; t < mTiles; t++) {
-          const ib = i0 + t * 4, rows = Math.min(4, M - ib);
-          const base = A.off + ib * ars + k0 * acs;
-          if (rows === 4) {
-            const r1 = base + ars, r2 = r1 + ars, r3 = r2 + ars;
-            for (let k = 0; k < kc; k++) {
-              const o = k * acs;
-              mem[q] = ad[base + o]!; mem[q + 1] = ad[r1 + o]!; mem[q + 2] = ad[r2 + o]!; mem[q + 3] = ad[r3 + o]!;
-              q += 4;
-            }
-          } else {
-            for (let k = 0; k < kc; k++) {
-              for (let r = 0; r < 4; r++) mem[q + r] = r < rows ? ad[base + r * ars + k * acs]! : 0;
-              q += 4;
-            }
-          }
-        }
-        kern(pa, pb, pc, mTiles, nTiles, kc, ldcE * es);
-        for (let r = 0; r < mc; r++) {
-          const dst = cOff + (i0 + r) * ldc + j0, src = pcE + r * ldcE;
-          if (add) for (let c = 0; c < nc; c++) C[dst + c] += mem[src + c]!;
-          else for (let c = 0; c < nc; c++) C[dst + c] = mem[src + c]!;
-        }
+    }
+    for (let i0 = 0; i0 < M; i0 += SMC) {
+      const mc = Math.min(SMC, M - i0), mTiles = Math.ceil(mc / 4);
+      kern((i0 / 4) * 4 * K * es, pb, pc, mTiles, nTiles, K, ldcE * es);
+      for (let r = 0; r < mc; r++) {
+        const dst = cOff + (i0 + r) * ldc + j0, src = pcE + r * ldcE;
+        if (accumulate) for (let c = 0; c < nc; c++) C[dst + c] += mem[src + c]!;
+        else if (sameType) C.set(mem.subarray(src, src + nc), dst);
+        else for (let c = 0; c < nc; c++) C[dst + c] = mem[src + c]!;
       }
     }
   }

@@ -4,7 +4,8 @@ import { PleatError } from '../errors.js';
 import { opsetVersion, subgraphsOf, elementCount, type Graph, type Model, type Node, type Tensor } from '../graph/ir.js';
 import { isFloatType, tensorToFloat64, dataTypeName } from '../onnx/tensor.js';
 import { getKernel } from './registry.js';
-import type { KernelContext, Precision, Value } from './value.js';
+import { giveBack, isPooled } from './pool.js';
+import type { KernelContext, NumArray, Precision, Value } from './value.js';
 
 export interface RunOptions { precision: Precision; }
 
@@ -17,6 +18,27 @@ export interface GraphRunOptions extends RunOptions {
 export function tensorToValue(t: Tensor, precision: Precision): Value {
   const f64 = tensorToFloat64(t);
   const data = precision === 'float32' && isFloatType(t.dataType) ? Float32Array.from(f64) : f64;
+  return { type: t.dataType, dims: [...t.dims], data };
+}
+
+// Decoded initializers, so repeated runs of one model (probes, both precisions) decode each weight once. Keyed
+// by the storage object, which every edit replaces (setTensorValues); dims and type are checked as well.
+interface Decoded { dims: string; type: number; f64?: Float64Array; f32?: Float32Array }
+const decoded = new WeakMap<object, Decoded>();
+const cachedArrays = new WeakSet<NumArray>();
+
+function initializerValue(t: Tensor, precision: Precision): Value {
+  const key = t.dims.join(',');
+  let d = decoded.get(t.storage);
+  if (!d || d.dims !== key || d.type !== t.dataType) { d = { dims: key, type: t.dataType }; decoded.set(t.storage, d); }
+  const f32 = precision === 'float32' && isFloatType(t.dataType);
+  let data: NumArray | undefined = f32 ? d.f32 : d.f64;
+  if (!data) {
+    const v = tensorToValue(t, precision);
+    data = v.data;
+    if (f32) d.f32 = data as Float32Array; else d.f64 = data as Float64Array;
+    cachedArrays.add(data);
+  }
   return { type: t.dataType, dims: [...t.dims], data };
 }
 
@@ -58,10 +80,28 @@ export function runGraph(graph: Graph, inputs: Map<string, Value>, opts: GraphRu
   const { precision, opsetOf } = opts;
   const outer = opts.outer;
   const env = new Map<string, Value>();
-  for (const t of graph.initializers) env.set(t.name, tensorToValue(t, precision));
+  for (const t of graph.initializers) env.set(t.name, initializerValue(t, precision));
   for (const [k, v] of inputs) env.set(k, inPrecision(v, precision));
 
   const lookup = (name: string): Value | undefined => env.get(name) ?? outer?.get(name);
+
+  // Buffers from the pool are handed back once no live value of this graph holds them. Arrays the caller or an
+  // enclosing scope can still see are never handed back.
+  const foreign = new Set<NumArray>();
+  for (const v of inputs.values()) foreign.add(v.data);
+  if (outer) for (const v of outer.values()) foreign.add(v.data);
+  const holders = new Map<NumArray, number>();
+  const hold = (v: Value) => { if (isPooled(v.data)) holders.set(v.data, (holders.get(v.data) ?? 0) + 1); };
+  const drop = (name: string) => {
+    const v = env.get(name);
+    if (!v) return;
+    env.delete(name);
+    const n = holders.get(v.data);
+    if (n === undefined) return;
+    if (n > 1) { holders.set(v.data, n - 1); return; }
+    holders.delete(v.data);
+    if (!foreign.has(v.data)) giveBack(v.data);
+  };
 
   // last reader of each value, so intermediates can be dropped as soon as nobody needs them
   const keep = new Set(graph.outputs.map((o) => o.name));
@@ -100,17 +140,20 @@ export function runGraph(graph: Graph, inputs: Map<string, Value>, opts: GraphRu
       if (v.data.length !== elementCount(v.dims)) {
         throw new PleatError('bad-model', `node '${node.name}' (${node.opType}): output '${name}' has ${v.data.length} values for dims [${v.dims.join(',')}]`);
       }
+      if (env.has(name)) drop(name); // a name defined twice (invalid SSA) must not leak its hold
       env.set(name, v);
-      if (!keep.has(name) && !lastUse.has(name)) env.delete(name);
+      hold(v);
     });
-    for (const name of reads[idx]!) if (lastUse.get(name) === idx && !keep.has(name)) env.delete(name);
+    node.outputs.forEach((name) => { if (name && !keep.has(name) && !lastUse.has(name)) drop(name); });
+    for (const name of reads[idx]!) if (lastUse.get(name) === idx && !keep.has(name)) drop(name);
   });
 
   const out = new Map<string, Value>();
   for (const o of graph.outputs) {
     const v = lookup(o.name);
     if (!v) throw new PleatError('bad-model', `graph '${graph.name}': output '${o.name}' is never computed`);
-    out.set(o.name, v);
+    // a cached initializer handed to the caller is a copy, so the caller may change it freely
+    out.set(o.name, cachedArrays.has(v.data) ? { ...v, data: v.data.slice() } : v);
   }
   return out;
 }
@@ -131,10 +174,16 @@ export function runModel(model: Model, inputs: Map<string, Value>, opts: RunOpti
   for (const name of inputs.keys()) {
     if (!g.inputs.some((i) => i.name === name)) throw new PleatError('bad-input', `the model has no input named '${name}'`);
   }
+  // a float value given for a float input of another width takes the model's declared type
+  const given = new Map<string, Value>();
+  for (const [name, v] of inputs) {
+    const decl = g.inputs.find((i) => i.name === name)?.elemType;
+    given.set(name, decl !== undefined && decl !== v.type && isFloatType(decl) && isFloatType(v.type) ? { ...v, type: decl } : v);
+  }
   const opsetOf = (domain: string): number => {
     const v = opsetVersion(model, domain);
     if (v === undefined) throw new PleatError('bad-model', `the model uses domain '${domain || 'ai.onnx'}' but imports no opset for it`);
     return v;
   };
-  return runGraph(g, inputs, { precision: opts.precision, opsetOf });
+  return runGraph(g, given, { precision: opts.precision, opsetOf });
 }

@@ -8,6 +8,12 @@
 
 export interface SimdKernels {
   memory: WebAssembly.Memory;
+  /**
+   * Depthwise (single-channel) stride-1 convolution over a zero-padded plane, one vector of outputs at a time:
+   * (inP, outP, wP, outH, outVecs, inRowBytes, outRowBytes, kH, kW, dHBytes, dWBytes), byte offsets and steps.
+   */
+  d32: (inP: number, outP: number, wP: number, outH: number, outVecs: number, inRow: number, outRow: number, kH: number, kW: number, dH: number, dW: number) => void;
+  d64: (inP: number, outP: number, wP: number, outH: number, outVecs: number, inRow: number, outRow: number, kH: number, kW: number, dH: number, dW: number) => void;
   /** (pa, pb, pc, mTiles, nTiles, kc, ldcBytes): byte offsets into memory. */
   k32: (pa: number, pb: number, pc: number, mTiles: number, nTiles: number, kc: number, ldcBytes: number) => void;
   k64: (pa: number, pb: number, pc: number, mTiles: number, nTiles: number, kc: number, ldcBytes: number) => void;
@@ -94,14 +100,55 @@ function kernelBody(f64: boolean): number[] {
   return [...uleb(body.length), ...body];
 }
 
+// depthwise params: inP 0, outP 1, wP 2, outH 3, outVecs 4, inRow 5, outRow 6, kH 7, kW 8, dH 9, dW 10;
+// locals: oh 11, v 12, kh 13, kw 14, p 15, pw 16, row 17, acc 18 (v128)
+function depthwiseBody(f64: boolean): number[] {
+  const es = f64 ? 8 : 4;
+  const add = simd(f64 ? F64X2_ADD : F32X4_ADD), mul = simd(f64 ? F64X2_MUL : F32X4_MUL);
+  const splat = f64 ? [...simd(LOAD64_SPLAT), 3, 0] : [...simd(LOAD32_SPLAT), 2, 0];
+  const get = (i: number) => [LOCAL_GET, i], set = (i: number) => [LOCAL_SET, i], tee = (i: number) => [0x22, i];
+  const c = (v: number) => [I32_CONST, ...sleb(v)];
+  const [IN, OUT, W, OH_N, VN, INROW, OUTROW, KH, KW, DH, DW] = [0, 1, 2, 3, 4, 5, 6, 7, 8, 9, 10];
+  const [OH, V, KHI, KWI, P, PW, ROW, ACC1] = [11, 12, 13, 14, 15, 16, 17, 18];
+  const code: number[] = [];
+  const emit = (...xs: number[][]) => { for (const x of xs) code.push(...x); };
+  emit(c(0), set(OH), [LOOP, VOID]);
+  emit(c(0), set(V), [LOOP, VOID]);
+  emit(simd(V128_CONST), new Array(16).fill(0), set(ACC1));
+  emit(get(W), set(PW));
+  // row = in + oh*inRow + v*16
+  emit(get(IN), get(OH), get(INROW), [I32_MUL], [I32_ADD], get(V), c(16), [I32_MUL], [I32_ADD], set(ROW));
+  emit(c(0), set(KHI), [LOOP, VOID]);
+  emit(get(ROW), set(P), c(0), set(KWI), [LOOP, VOID]);
+  emit(get(ACC1), get(PW), splat, get(P), simd(V128_LOAD), [4, 0], mul, add, set(ACC1));
+  emit(get(PW), c(es), [I32_ADD], set(PW));
+  emit(get(P), get(DW), [I32_ADD], set(P));
+  emit(get(KWI), c(1), [I32_ADD], tee(KWI), get(KW), [I32_LT_U], [BR_IF, 0], [END]);
+  emit(get(ROW), get(DH), [I32_ADD], set(ROW));
+  emit(get(KHI), c(1), [I32_ADD], tee(KHI), get(KH), [I32_LT_U], [BR_IF, 0], [END]);
+  // out + oh*outRow + v*16
+  emit(get(OUT), get(OH), get(OUTROW), [I32_MUL], [I32_ADD], get(V), c(16), [I32_MUL], [I32_ADD], get(ACC1), simd(V128_STORE), [4, 0]);
+  emit(get(V), c(1), [I32_ADD], tee(V), get(VN), [I32_LT_U], [BR_IF, 0], [END]);
+  emit(get(OH), c(1), [I32_ADD], tee(OH), get(OH_N), [I32_LT_U], [BR_IF, 0], [END]);
+  emit([END]);
+  const locals = vec([[...uleb(7), 0x7f], [...uleb(1), 0x7b]]);
+  const body = [...locals, ...code];
+  return [...uleb(body.length), ...body];
+}
+
 export function moduleBytes(): Uint8Array<ArrayBuffer> {
   const i32 = 0x7f;
-  const types = section(1, vec([[0x60, ...vec(new Array(7).fill([i32])), ...vec([])]]));
-  const funcs = section(3, vec([[0], [0]]));
+  const types = section(1, vec([
+    [0x60, ...vec(new Array(7).fill([i32])), ...vec([])],
+    [0x60, ...vec(new Array(11).fill([i32])), ...vec([])],
+  ]));
+  const funcs = section(3, vec([[0], [0], [1], [1]]));
   const memory = section(5, vec([[0x00, ...uleb(1)]]));
   const name = (s: string) => vec([...s].map((ch) => [ch.charCodeAt(0)]));
-  const exports = section(7, vec([[...name('mem'), 0x02, 0], [...name('k32'), 0x00, 0], [...name('k64'), 0x00, 1]]));
-  const code = section(10, vec([kernelBody(false), kernelBody(true)]));
+  const exports = section(7, vec([
+    [...name('mem'), 0x02, 0], [...name('k32'), 0x00, 0], [...name('k64'), 0x00, 1], [...name('d32'), 0x00, 2], [...name('d64'), 0x00, 3],
+  ]));
+  const code = section(10, vec([kernelBody(false), kernelBody(true), depthwiseBody(false), depthwiseBody(true)]));
   return new Uint8Array([0x00, 0x61, 0x73, 0x6d, 0x01, 0x00, 0x00, 0x00, ...types, ...funcs, ...memory, ...exports, ...code]);
 }
 
@@ -112,7 +159,7 @@ export function simdKernels(): SimdKernels | undefined {
     try {
       const inst = new WebAssembly.Instance(new WebAssembly.Module(moduleBytes()), {});
       const e = inst.exports as unknown as SimdKernels & { mem: WebAssembly.Memory };
-      cached = { memory: e.mem, k32: e.k32, k64: e.k64 };
+      cached = { memory: e.mem, k32: e.k32, k64: e.k64, d32: e.d32, d64: e.d64 };
     } catch {
       cached = null;
     }

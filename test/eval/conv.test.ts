@@ -7,6 +7,7 @@ import { runModel } from '../../src/eval/run.js';
 import { parseModel } from '../../src/onnx/read.js';
 import { modelBytes } from '../helpers/build.js';
 import { oneNode } from './harness.js';
+import { setSimd } from '../../src/eval/gemm.js';
 
 const int = (r: () => number, lo: number, hi: number) => lo + Math.floor(r() * (hi - lo + 1));
 
@@ -51,6 +52,18 @@ describe('Conv vs onnxruntime-node (seeded random geometries)', () => {
     for (let seed = 100; seed <= 140; seed++) {
       const c = randomConv(rng(seed), true);
       await checkOp('Conv', 11, c.ins, c.attrs, ['y'], 1e-5, `seed ${seed} ${c.label}`);
+    }
+  });
+  it('stride-1 depthwise (the SIMD path) and the same cases on the scalar path', async () => {
+    for (const simd of [true, false]) {
+      setSimd(simd);
+      try {
+        for (let seed = 200; seed <= 225; seed++) {
+          const c = randomConv(rng(seed), true);
+          c.attrs.strides = (c.attrs.strides as number[]).map(() => 1);
+          await checkOp('Conv', 11, c.ins, c.attrs, ['y'], 1e-5, `simd ${simd} seed ${seed} ${c.label}`);
+        }
+      } finally { setSimd(true); }
     }
   });
   it('1x1 pointwise and a larger 3x3 layer (GEMM blocking edges)', async () => {

@@ -2,7 +2,8 @@
 // formula of the ONNX operator documentation (Operators.md: Y = (X - mean) / sqrt(var + epsilon) * scale + B).
 import { describe, expect, it } from 'vitest';
 import { f, randn, rng, uniform, modelBytes } from '../helpers/build.js';
-import { checkOp, oneNode, type In } from './harness.js';
+import { checkOp, oneNode, runBoth, type In } from './harness.js';
+import { maxDiff } from '../helpers/ort.js';
 import { parseModel } from '../../src/onnx/read.js';
 import { runModel } from '../../src/eval/run.js';
 import { isPleatError } from '../../src/errors.js';
@@ -29,6 +30,22 @@ describe('BatchNormalization vs onnxruntime-node', () => {
         { name: 'v', dims: [C], data: uniform(r, C, 0.1, 3), init: true },
       ];
       await checkOp('BatchNormalization', opset, ins, seed % 3 ? { epsilon: f(1e-3) } : {}, ['y'], 1e-5, `seed ${seed} [${dims}]`);
+    }
+  });
+  it('opset 6 (is_test=1) against onnxruntime-node at opset 7, which has no opset-6 kernel; the operator docs give both one formula', async () => {
+    for (let seed = 1; seed <= 6; seed++) {
+      const r = rng(seed + 30);
+      const dims = randDims(r, 2, 4), C = dims[1]!;
+      const ins: In[] = [
+        { name: 'x', dims, data: randn(r, prod(dims)) },
+        { name: 's', dims: [C], data: randn(r, C), init: true }, { name: 'b', dims: [C], data: randn(r, C), init: true },
+        { name: 'm', dims: [C], data: randn(r, C), init: true }, { name: 'v', dims: [C], data: uniform(r, C, 0.1, 3), init: true },
+      ];
+      const ref = (await runBoth(oneNode('BatchNormalization', ins, {}, ['y']), ins, 7)).ort.y!;
+      const model = parseModel(modelBytes(oneNode('BatchNormalization', ins, { is_test: 1 }, ['y']), { opset: 6 }), '.');
+      const y = runModel(model, new Map([['x', { type: 1, dims, data: Float64Array.from(ins[0]!.data) }]]), { precision: 'float64' }).get('y')!;
+      const { maxAbs, scale } = maxDiff(y.data, ref.data);
+      expect(maxAbs).toBeLessThanOrEqual(1e-5 * Math.max(scale, 1e-3));
     }
   });
   it('legacy spatial=0 (per-activation statistics) at opset 7', async () => {

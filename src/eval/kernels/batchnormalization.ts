@@ -31,7 +31,7 @@ function run(inputs: Array<Value | undefined>, ctx: KernelContext): Value[] {
     b[c] = mean.data[c]!;
   }
   const inner = sample / P; // spatial size per channel (1 for per-activation)
-  const Y = allocFloat(X.data.length, ctx.precision);
+  const Y = allocFloat(X.data.length, ctx.precision, false);
   const x = X.data;
   for (let n = 0; n < N; n++) {
     for (let c = 0; c < P; c++) {

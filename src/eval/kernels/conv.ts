@@ -4,7 +4,8 @@
 // unpadded kernels where the input already is the column matrix.
 import { attrInt, attrInts, elementCount } from '../../graph/ir.js';
 import { allocFloat, badModel, need, slidingWindow, to3 } from '../attrs.js';
-import { gemm, rowMajor } from '../gemm.js';
+import { gemm, memoryViews, rowMajor, simdOn } from '../gemm.js';
+import { simdKernels } from '../wasm-gemm.js';
 import { im2col, type Geometry3 } from '../im2col.js';
 import type { Kernel, KernelContext, NumArray, Value } from '../value.js';
 
@@ -80,6 +81,47 @@ function directChannel(x: NumArray, xOff: number, w: NumArray, wOff: number, g: 
   }
 }
 
+/**
+ * Stride-1 2-D depthwise convolution of every channel with the WebAssembly SIMD kernel: each input plane is
+ * copied into module memory with its zero padding, the kernel sums kH x kW taps for a vector of outputs at a
+ * time, and the rows are copied (bias added) into Y. Returns false when SIMD is not available.
+ */
+function depthwiseSimd(x: NumArray, w: NumArray, B: Value | undefined, Y: NumArray, N: number, C: number, M: number, g: Geometry3): boolean {
+  const simd = simdOn() ? simdKernels() : undefined;
+  if (!simd) return false;
+  const f64 = !(Y instanceof Float32Array);
+  const es = f64 ? 8 : 4, lanes = 16 / es;
+  const { inH, inW, outH, outW, kH, kW, dH, dW, pH, pW } = g;
+  const outVecs = Math.ceil(outW / lanes), outRow = outVecs * lanes;
+  const rowsIn = outH + (kH - 1) * dH, inRow = outRow + (kW - 1) * dW;
+  const wLen = Math.ceil((kH * kW) / lanes) * lanes;
+  const inE = wLen, outE = inE + rowsIn * inRow, total = outE + outH * outRow;
+  const views = memoryViews(simd, total * es);
+  const mem = f64 ? views.f64 : views.f32;
+  const kern = f64 ? simd.d64 : simd.d32;
+  const Mg = M / C, kVol = kH * kW, inPlane = inH * inW, outPlane = outH * outW;
+  for (let n = 0; n < N; n++) {
+    for (let oc = 0; oc < M; oc++) {
+      const xOff = (n * C + Math.floor(oc / Mg)) * inPlane;
+      for (let i = 0; i < kVol; i++) mem[i] = w[oc * kVol + i]!;
+      mem.fill(0, inE, outE);
+      for (let ih = 0; ih < inH; ih++) {
+        const r = ih + pH;
+        if (r < 0 || r >= rowsIn) continue;
+        const dst = inE + r * inRow + pW, src = xOff + ih * inW;
+        for (let j = 0; j < inW; j++) mem[dst + j] = x[src + j]!;
+      }
+      kern(inE * es, outE * es, 0, outH, outVecs, inRow * es, outRow * es, kH, kW, dH * inRow * es, dW * es);
+      const yOff = (n * M + oc) * outPlane, b = B ? B.data[oc]! : 0;
+      for (let oh = 0; oh < outH; oh++) {
+        const src = outE + oh * outRow, dst = yOff + oh * outW;
+        for (let j = 0; j < outW; j++) Y[dst + j] = mem[src + j]! + b;
+      }
+    }
+  }
+  return true;
+}
+
 function run(inputs: Array<Value | undefined>, ctx: KernelContext): Value[] {
   const X = need(inputs, 0, ctx, 'X'), W = need(inputs, 1, ctx, 'W'), B = inputs[2];
   const rank = X.dims.length;
@@ -101,15 +143,18 @@ function run(inputs: Array<Value | undefined>, ctx: KernelContext): Value[] {
   const g3 = geometry3(inSp, win.out, kernel, win.strides, win.dilations, win.padBegin);
   const outVol = elementCount(win.out), inVol = elementCount(inSp), kVol = elementCount(kernel);
   const Mg = M / group, K = Cg * kVol;
-  const Y = allocFloat(N * M * outVol, ctx.precision);
+  const Y = allocFloat(N * M * outVol, ctx.precision, false);
   const x = X.data, w = W.data;
 
-  if (Cg === 1) {
+  const simdDepthwise = Cg === 1 && g3.inD === 1 && g3.outD === 1 && g3.kD === 1 && g3.pD === 0 && g3.sH === 1 && g3.sW === 1;
+  if (simdDepthwise && depthwiseSimd(x, w, B, Y, N, C, M, g3)) {
+    // done
+  } else if (Cg === 1) {
     const row = scratch(g3.outW, 'plane');
     for (let n = 0; n < N; n++) {
       for (let oc = 0; oc < M; oc++) {
         const yOff = (n * M + oc) * outVol;
-        if (B) Y.fill(B.data[oc]!, yOff, yOff + outVol);
+        Y.fill(B ? B.data[oc]! : 0, yOff, yOff + outVol);
         directChannel(x, (n * C + Math.floor(oc / Mg)) * inVol, w, oc * kVol, g3, Y, yOff, row);
       }
     }

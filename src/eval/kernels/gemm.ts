@@ -19,7 +19,7 @@ function run(inputs: Array<Value | undefined>, ctx: KernelContext): Value[] {
   const a = tA ? { data: A.data, off: 0, rs: 1, cs: M } : { data: A.data, off: 0, rs: K, cs: 1 };
   const b = tB ? { data: B.data, off: 0, rs: 1, cs: K } : { data: B.data, off: 0, rs: N, cs: 1 };
   gemm(M, N, K, a, b, acc, 0, N, false);
-  const Y = allocFloat(M * N, ctx.precision);
+  const Y = allocFloat(M * N, ctx.precision, false);
   if (C && beta !== 0) {
     const out = [M, N];
     const bd = broadcastShape([out, C.dims], `node '${ctx.node.name}' (Gemm)`);

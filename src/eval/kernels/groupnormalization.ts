@@ -17,7 +17,7 @@ function run(inputs: Array<Value | undefined>, ctx: KernelContext): Value[] {
   const P = perChannel ? C : G;
   if (S.data.length !== P || B.data.length !== P) throw badModel(ctx, `scale and bias need ${P} values (one per ${perChannel ? 'channel' : 'group'})`);
   const cg = C / G, size = cg * spatial;
-  const x = X.data, Y = allocFloat(x.length, ctx.precision);
+  const x = X.data, Y = allocFloat(x.length, ctx.precision, false);
   for (let n = 0; n < N; n++) {
     for (let g = 0; g < G; g++) {
       const off = (n * C + g * cg) * spatial;

@@ -10,7 +10,7 @@ function run(inputs: Array<Value | undefined>, ctx: KernelContext): Value[] {
   const N = X.dims[0]!, C = X.dims[1]!, inner = elementCount(X.dims.slice(2));
   if (S.data.length !== C || B.data.length !== C) throw badModel(ctx, `scale and B need ${C} values (one per channel)`);
   const eps = attrFloat(ctx.node, 'epsilon', 1e-5);
-  const x = X.data, Y = allocFloat(x.length, ctx.precision);
+  const x = X.data, Y = allocFloat(x.length, ctx.precision, false);
   for (let n = 0; n < N; n++) {
     for (let c = 0; c < C; c++) {
       const o = (n * C + c) * inner;

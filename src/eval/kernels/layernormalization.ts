@@ -20,7 +20,7 @@ function run(inputs: Array<Value | undefined>, ctx: KernelContext): Value[] {
     if (bd.length !== normDims.length || bd.some((d, i) => d !== normDims[i])) throw badModel(ctx, `Scale/B dims [${p.dims.join(',')}] do not broadcast to [${normDims.join(',')}]`);
   }
   const si = broadcastIndex(S.dims, normDims), bi = B ? broadcastIndex(B.dims, normDims) : undefined;
-  const x = X.data, Y = allocFloat(x.length, ctx.precision);
+  const x = X.data, Y = allocFloat(x.length, ctx.precision, false);
   const statDims = [...X.dims.slice(0, axis), ...normDims.map(() => 1)];
   const M = allocFloat(outer, ctx.precision), R = allocFloat(outer, ctx.precision);
   for (let o = 0; o < outer; o++) {

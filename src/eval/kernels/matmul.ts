@@ -17,7 +17,7 @@ function run(inputs: Array<Value | undefined>, ctx: KernelContext): Value[] {
   const aBatch = aD.slice(0, -2), bBatch = bD.slice(0, -2);
   const batch = broadcastShape([aBatch, bBatch], `node '${ctx.node.name}' (MatMul)`);
   const nb = elementCount(batch);
-  const Y = allocFloat(nb * M * N, ctx.precision);
+  const Y = allocFloat(nb * M * N, ctx.precision, false);
   if (elementCount(bBatch) === 1 && elementCount(aBatch) === nb) {
     gemm(nb * M, N, K, rowMajor(A.data, 0, K), rowMajor(B.data, 0, N), Y, 0, N, false);
   } else {

@@ -41,7 +41,7 @@ function pool(X: Value, win: Window, ctx: KernelContext, mode: 'max' | 'avg', co
   const tH = axisTaps(inH, oH, k[1], s[1], d[1], pb[1], pe[1]);
   const tW = axisTaps(inW, oW, k[2], s[2], d[2], pb[2], pe[2]);
   const inVol = inD * inH * inW, outVol = oD * oH * oW;
-  const Y = allocFloat(N * C * outVol, ctx.precision);
+  const Y = allocFloat(N * C * outVol, ctx.precision, false);
   const I = wantIdx ? new Float64Array(N * C * outVol) : undefined;
   const x: NumArray = X.data;
   let yo = 0;
@@ -127,7 +127,7 @@ function globalPool(inputs: Array<Value | undefined>, ctx: KernelContext, mode: 
   const X = need(inputs, 0, ctx, 'X');
   if (X.dims.length < 2) throw badModel(ctx, `input has rank ${X.dims.length}; global pooling needs N x C x ...`);
   const NC = X.dims[0]! * X.dims[1]!, inner = elementCount(X.dims.slice(2));
-  const Y = allocFloat(NC, ctx.precision), x = X.data;
+  const Y = allocFloat(NC, ctx.precision, false), x = X.data;
   for (let i = 0; i < NC; i++) {
     const o = i * inner;
     if (mode === 'avg') {

@@ -124,7 +124,7 @@ function resize(X: Value, plan: Plan, ctx: KernelContext): Value {
     dims = [...dims.slice(0, ax), m, ...dims.slice(ax + 1)];
   }
   const total = elementCount(plan.outDims);
-  const Y = allocFloat(total, ctx.precision);
+  const Y = allocFloat(total, ctx.precision, false);
   for (let i = 0; i < total; i++) Y[i] = cur[i]!;
   if (outsideMaps.some((m) => m && m.some((v) => v))) {
     // tf_crop_and_resize: any output whose source lies outside the input on some axis is extrapolation_value

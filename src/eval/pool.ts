@@ -1,0 +1,65 @@
+// Reuse of large result buffers during evaluation. Fresh large typed arrays are expensive where page faults
+// are (each new buffer is faulted in page by page), so the evaluator gives a freed intermediate's buffer back
+// here and the next kernel asking for the same length gets it, zero-filled, instead of a new one.
+//
+//   takeFloat32(n, zero?) / takeFloat64(n, zero?) -> an array of length n (pooled when n >= POOL_MIN), zeroed
+//                                       unless zero=false (for kernels that write every element)
+//   giveBack(arr)                    -> offer an array taken here back for reuse (run.ts does this when the
+//                                       last reader of a value has run and nothing else holds its buffer)
+//   isPooled(arr)                    -> whether arr came from takeFloat32/64 and has not been given back
+//   releasePool()                    -> drop every pooled buffer (memory goes back to the garbage collector)
+// Kernels allocate through allocFloat (attrs.ts) or these functions; they must not keep a taken array after
+// returning it as a result.
+import type { NumArray } from './value.js';
+
+const POOL_MIN = 4096;
+const POOL_MAX_BYTES = 512 * 1024 * 1024;
+
+const free32 = new Map<number, Float32Array[]>();
+const free64 = new Map<number, Float64Array[]>();
+const handedOut = new WeakSet<NumArray>();
+let pooledBytes = 0;
+
+export function takeFloat32(n: number, zero = true): Float32Array {
+  if (n < POOL_MIN) return new Float32Array(n);
+  const a = free32.get(n)?.pop();
+  if (a) { pooledBytes -= a.byteLength; if (zero) a.fill(0); handedOut.add(a); return a; }
+  const fresh = new Float32Array(n);
+  handedOut.add(fresh);
+  return fresh;
+}
+
+export function takeFloat64(n: number, zero = true): Float64Array {
+  if (n < POOL_MIN) return new Float64Array(n);
+  const a = free64.get(n)?.pop();
+  if (a) { pooledBytes -= a.byteLength; if (zero) a.fill(0); handedOut.add(a); return a; }
+  const fresh = new Float64Array(n);
+  handedOut.add(fresh);
+  return fresh;
+}
+
+export function isPooled(a: NumArray): boolean {
+  return handedOut.has(a);
+}
+
+export function giveBack(a: NumArray): void {
+  if (!handedOut.has(a)) return;
+  handedOut.delete(a);
+  if (pooledBytes + a.byteLength > POOL_MAX_BYTES) return;
+  pooledBytes += a.byteLength;
+  if (a instanceof Float32Array) {
+    const list = free32.get(a.length) ?? [];
+    list.push(a);
+    free32.set(a.length, list);
+  } else {
+    const list = free64.get(a.length) ?? [];
+    list.push(a);
+    free64.set(a.length, list);
+  }
+}
+
+export function releasePool(): void {
+  free32.clear();
+  free64.clear();
+  pooledBytes = 0;
+}
