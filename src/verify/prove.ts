@@ -39,15 +39,18 @@ function tolerance(graphs: Graph[]): number {
 
 const init = (g: Graph, name: string): Tensor | undefined => g.initializers.find((t) => t.name === name);
 
-/** A small valid shape for `value`, from the first node of the region that reads it. */
-function probeShape(g: Graph, value: string, declaredRank: number | undefined): number[] | undefined {
+/** Small valid shapes for `value`, most likely first, from the first node of the region that reads it. */
+function probeShapes(g: Graph, value: string, declaredRank: number | undefined): number[][] {
   for (const n of g.nodes) {
     const at = n.inputs.indexOf(value);
     if (at < 0) continue;
-    const shape = shapeFor(g, n, at, declaredRank);
-    if (shape) return shape;
+    // A norm's rank is only known from the declaration or from what reads it next: try the likely ones.
+    const ranks = declaredRank !== undefined ? [declaredRank] : [4, 2, 3, 5];
+    const shapes = ranks.map((r) => shapeFor(g, n, at, r)).filter((s): s is number[] => s !== undefined);
+    const unique = shapes.filter((s, i) => shapes.findIndex((t) => t.join() === s.join()) === i);
+    if (unique.length) return unique;
   }
-  return undefined;
+  return [];
 }
 
 function shapeFor(g: Graph, n: Node, at: number, rank: number | undefined): number[] | undefined {
@@ -106,12 +109,23 @@ export function proveFold(c: ProofCase, opts: { probes?: number; seed?: number }
   const probes = opts.probes ?? 2;
   const seed = opts.seed ?? 0;
   const tol = tolerance([c.before, c.after]);
-  const specs: Array<{ name: string; type: DataTypeCode; dims: number[] }> = [];
+  const options: Array<{ name: string; type: DataTypeCode; shapes: number[][] }> = [];
   for (const i of c.before.inputs) {
-    const dims = probeShape(c.before, i.name, i.shape?.length);
-    if (!dims) return { passed: false, maxAbs: NaN, scale: NaN, tolerance: tol, problem: `no probe shape for region input '${i.name}'` };
-    specs.push({ name: i.name, type: i.elemType ?? DataType.FLOAT, dims });
+    const shapes = probeShapes(c.before, i.name, i.shape?.length);
+    if (!shapes.length) return { passed: false, maxAbs: NaN, scale: NaN, tolerance: tol, problem: `no probe shape for region input '${i.name}'` };
+    options.push({ name: i.name, type: i.elemType ?? DataType.FLOAT, shapes });
   }
+  // The first combination of candidate shapes the original region accepts is the probe shape.
+  let specs: Array<{ name: string; type: DataTypeCode; dims: number[] }> | undefined;
+  const tries = Math.max(...options.map((o) => o.shapes.length), 1);
+  for (let k = 0; k < tries && !specs; k++) {
+    const candidate = options.map((o) => ({ name: o.name, type: o.type, dims: o.shapes[Math.min(k, o.shapes.length - 1)]! }));
+    try {
+      runGraph(c.before, new Map(candidate.map((s) => [s.name, probeValue(s, seed, 0)])), { precision: 'float64', opsetOf: c.opsetOf });
+      specs = candidate;
+    } catch { /* try the next shape */ }
+  }
+  if (!specs) return { passed: false, maxAbs: NaN, scale: NaN, tolerance: tol, problem: 'no probe shape the original region accepts' };
   let maxAbs = 0, scale = 0;
   try {
     for (let p = 0; p < probes; p++) {

@@ -1,0 +1,196 @@
+// Edits: what a rule's rewrite produces (tensors to replace, nodes to remove or add, names to rewire), applied
+// to the graph with an undo, plus the before/after regions a numeric proof runs.
+import type { Attribute, Graph, Node, Tensor, ValueInfo } from '../graph/ir.js';
+import { touch } from '../graph/edit.js';
+import { decodeValues, scaleTensor, storeValues } from './values.js';
+import { scaleWeights, type WeightView } from './weights.js';
+import { makeTensor } from '../onnx/tensor.js';
+import { constantOf, soleReader, valueInfoOf, type ConstRef, type Scope } from './scope.js';
+import { freshName, type FoldContext } from './context.js';
+
+export interface NodeChange {
+  node: Node;
+  opType?: string;
+  inputs?: string[];
+  outputs?: string[];
+  attributes?: Attribute[];
+}
+
+export interface Edit {
+  scope: Scope;
+  removeNodes: Node[];
+  changes: NodeChange[];
+  /** New nodes, each placed right after an existing node. */
+  inserts: Array<{ node: Node; after: Node }>;
+  tensorValues: Array<{ ref: ConstRef; values: Float64Array; dims: number[] }>;
+  /** Channel scalings of existing tensors (the weights): applied where the data lies. */
+  tensorScales: Array<{ ref: ConstRef; view: WeightView; map: Int32Array; scale: Float64Array }>;
+  newInitializers: Tensor[];
+  /** Values that no longer exist (their value_info is dropped at clean-up). */
+  goneValues: string[];
+  /** Constants that lost a reader (dropped at clean-up when nobody reads them any more). */
+  released: string[];
+  /** The values the rest of the graph reads from the edited region (proof outputs). */
+  regionOutputs: string[];
+}
+
+export function newEdit(scope: Scope): Edit {
+  return { scope, removeNodes: [], changes: [], inserts: [], tensorValues: [], tensorScales: [], newInitializers: [], goneValues: [], released: [], regionOutputs: [] };
+}
+
+/** The pending change record of a node (created on first use). */
+export function changeOf(edit: Edit, node: Node): NodeChange & { inputs: string[]; outputs: string[] } {
+  let c = edit.changes.find((x) => x.node === node);
+  if (!c) { c = { node, inputs: [...node.inputs], outputs: [...node.outputs] }; edit.changes.push(c); }
+  return c as NodeChange & { inputs: string[]; outputs: string[] };
+}
+
+/**
+ * New values for the constant read at input `index` of `node`: written into the tensor itself when this node
+ * is its only reader, else into a clone with a fresh deterministic name (`<name>.folded`, `<name>.folded.2`).
+ */
+export function replaceConstant(ctx: FoldContext, edit: Edit, node: Node, index: number, ref: ConstRef, values: Float64Array, dims: number[]): void {
+  if (soleReader(edit.scope, ref.name, node) && !ref.overridable) {
+    edit.tensorValues.push({ ref, values, dims });
+    return;
+  }
+  const name = freshName(ctx, `${ref.name}.folded`);
+  edit.newInitializers.push(makeTensor(name, dims, ref.tensor.dataType, values));
+  changeOf(edit, node).inputs[index] = name;
+  edit.released.push(ref.name);
+}
+
+/**
+ * Scale the weight read at input `index` of `node` by channel: in the tensor itself when this node is its only
+ * reader, else in a clone (see replaceConstant).
+ */
+export function scaleConstant(ctx: FoldContext, edit: Edit, node: Node, index: number, ref: ConstRef, view: WeightView, map: Int32Array, scale: Float64Array): void {
+  if (soleReader(edit.scope, ref.name, node) && !ref.overridable) {
+    edit.tensorScales.push({ ref, view, map, scale });
+    return;
+  }
+  const values = decodeValues(ref.tensor);
+  scaleWeights(values, view, map, scale, values);
+  replaceConstant(ctx, edit, node, index, ref, values, ref.tensor.dims);
+}
+
+/** A bias the layer did not have: a new initializer wired to input `index`. */
+export function addConstantInput(ctx: FoldContext, edit: Edit, node: Node, index: number, base: string, dataType: number, values: Float64Array, dims: number[]): void {
+  const name = freshName(ctx, base);
+  edit.newInitializers.push(makeTensor(name, dims, dataType, values));
+  const inputs = changeOf(edit, node).inputs;
+  while (inputs.length < index) inputs.push('');
+  inputs[index] = name;
+}
+
+export function makeNode(opType: string, name: string, inputs: string[], outputs: string[]): Node {
+  return { name, opType, domain: '', inputs, outputs, attributes: [], docString: '', extra: [] };
+}
+
+/** Apply an edit to its graph. Returns the undo (which restores every object, origins included). */
+export function applyEdit(ctx: FoldContext, edit: Edit, opts: { inPlace: boolean }): () => void {
+  const g = edit.scope.graph;
+  const undo: Array<() => void> = [];
+  const save = <T extends object>(obj: T, keys: Array<keyof T>) => {
+    const old = keys.map((k) => obj[k]);
+    const origin = (obj as { origin?: unknown }).origin;
+    undo.push(() => {
+      keys.forEach((k, i) => { obj[k] = old[i] as T[keyof T]; });
+      if (origin !== undefined) (obj as { origin?: unknown }).origin = origin;
+    });
+  };
+  const updates = [
+    ...edit.tensorValues.map((tv) => ({ ref: tv.ref, write: () => storeValues(tv.ref.tensor, tv.values, tv.dims, opts.inPlace) })),
+    ...edit.tensorScales.map((ts) => ({ ref: ts.ref, write: () => scaleTensor(ts.ref.tensor, ts.view, ts.map, ts.scale, opts.inPlace) })),
+  ];
+  for (const u of updates) {
+    const t = u.ref.tensor;
+    save(t, ['storage', 'dims', 'dataType']);
+    u.write();
+    const cn = u.ref.constantNode;
+    if (cn) {
+      save(cn, ['attributes']);
+      for (const a of cn.attributes) if (a.value.type === 'TENSOR' && a.value.t === t) { save(a, ['value']); touch(a); }
+      touch(cn);
+    }
+  }
+  for (const c of edit.changes) {
+    save(c.node, ['opType', 'inputs', 'outputs', 'attributes']);
+    if (c.opType !== undefined) c.node.opType = c.opType;
+    if (c.inputs) c.node.inputs = c.inputs;
+    if (c.outputs) c.node.outputs = c.outputs;
+    if (c.attributes) c.node.attributes = c.attributes;
+    touch(c.node);
+  }
+  if (edit.removeNodes.length || edit.inserts.length || edit.newInitializers.length) {
+    save(g, ['nodes', 'initializers']);
+    const removed = new Set(edit.removeNodes);
+    const nodes: Node[] = [];
+    for (const n of g.nodes) {
+      if (!removed.has(n)) nodes.push(n);
+      for (const ins of edit.inserts) if (ins.after === n) nodes.push(ins.node);
+    }
+    g.nodes = nodes;
+    if (edit.newInitializers.length) {
+      g.initializers = [...g.initializers, ...edit.newInitializers];
+      // Before IR version 4 every initializer of the main graph must also be a graph input.
+      if (ctx.irVersion < 4 && !edit.scope.parent) {
+        save(g, ['inputs']);
+        g.inputs = [...g.inputs, ...edit.newInitializers.map((t): ValueInfo => ({ name: t.name, elemType: t.dataType, shape: [...t.dims], docString: '', extra: [] }))];
+      }
+    }
+    touch(g);
+  }
+  for (const ins of edit.inserts) ctx.generated.add(ins.node);
+  return () => { for (let i = undo.length - 1; i >= 0; i--) undo[i]!(); };
+}
+
+// ---- proof regions ------------------------------------------------------------------------------------
+
+function snapshotNode(n: Node): Node {
+  return { ...n, inputs: [...n.inputs], outputs: [...n.outputs], attributes: [...n.attributes] };
+}
+
+/**
+ * A standalone graph of `nodes` (in graph order): constants they read become initializers (shallow copies,
+ * so later edits of the live tensors do not reach them), other reads become inputs.
+ */
+export function regionGraph(scope: Scope, nodes: Node[], outputs: string[], extraInits: Tensor[] = []): Graph {
+  const produced = new Set(nodes.flatMap((n) => n.outputs));
+  const inits: Tensor[] = [];
+  const inputs: ValueInfo[] = [];
+  const seen = new Set<string>();
+  const local = new Map(extraInits.map((t) => [t.name, t]));
+  for (const n of nodes) {
+    for (const v of n.inputs) {
+      if (!v || produced.has(v) || seen.has(v)) continue;
+      seen.add(v);
+      const own = local.get(v);
+      const ref = own ? undefined : constantOf(scope, v);
+      if (own || ref) {
+        const t = own ?? ref!.tensor;
+        inits.push({ ...t, name: v, dims: [...t.dims], extra: [...t.extra], origin: undefined });
+        continue;
+      }
+      const vi = valueInfoOf(scope, v);
+      inputs.push(vi ? { ...vi, shape: vi.shape ? [...vi.shape] : undefined, origin: undefined } : { name: v, docString: '', extra: [] });
+    }
+  }
+  const outs: ValueInfo[] = outputs.map((o) => {
+    const vi = valueInfoOf(scope, o);
+    return vi ? { ...vi, origin: undefined } : { name: o, docString: '', extra: [] };
+  });
+  return { name: 'fold_region', nodes: nodes.map(snapshotNode), initializers: inits, inputs, outputs: outs, valueInfo: [], docString: '', extra: [] };
+}
+
+/** The region an edit rewrites, before applying it. */
+export function regionBefore(edit: Edit): Graph {
+  const involved = new Set<Node>([...edit.removeNodes, ...edit.changes.map((c) => c.node)]);
+  return regionGraph(edit.scope, edit.scope.graph.nodes.filter((n) => involved.has(n)), edit.regionOutputs);
+}
+
+/** The same region after applying the edit. */
+export function regionAfter(edit: Edit): Graph {
+  const involved = new Set<Node>([...edit.changes.map((c) => c.node), ...edit.inserts.map((i) => i.node)]);
+  return regionGraph(edit.scope, edit.scope.graph.nodes.filter((n) => involved.has(n)), edit.regionOutputs, edit.newInitializers);
+}

@@ -1,0 +1,107 @@
+// The driver: applies the rules until nothing changes, in the main graph and in every If/Loop/Scan body,
+// proves each fold when a prover is given (a failed proof reverts that fold), cleans up, and returns the
+// ledger. Each match is rewritten right after it is found, so at most one decoded weight is alive at a time.
+import type { Model, Node } from '../graph/ir.js';
+import { attrTensor } from '../graph/ir.js';
+import { tensorByteSize } from '../onnx/tensor.js';
+import { validateModel } from '../graph/validate.js';
+import { makeContext, type FoldContext } from './context.js';
+import { cleanUp } from './cleanup.js';
+import { applyEdit, newEdit, regionAfter, regionBefore } from './apply.js';
+import { assessRun, findingsOf, foldHint } from './analyze.js';
+import { collectRun, isStep, stepOf } from './run.js';
+import { buildScopes, eachGraph } from './scope.js';
+import type { FoldLedger, FoldOptions, LedgerEntry } from './types.js';
+
+const MAX_PASSES = 64;
+
+export function countNodes(model: Model): number {
+  let n = 0;
+  eachGraph(model.graph, (g) => { n += g.nodes.length; });
+  return n;
+}
+
+/** Bytes of initializer and Constant-node tensor data, subgraphs included. */
+export function weightBytes(model: Model): number {
+  let b = 0;
+  eachGraph(model.graph, (g) => {
+    for (const t of g.initializers) b += tensorByteSize(t);
+    for (const n of g.nodes) {
+      if (n.opType !== 'Constant') continue;
+      const t = attrTensor(n, 'value');
+      if (t) b += tensorByteSize(t);
+    }
+  });
+  return b;
+}
+
+/** One sweep over every graph; returns whether anything changed or was put off to the next sweep. */
+function sweep(ctx: FoldContext, model: Model, folded: LedgerEntry[], released: Set<string>, gone: Set<string>): boolean {
+  let changed = false;
+  const prove = ctx.options.prove;
+  for (const scope of buildScopes(model, ctx.labels)) {
+    const cache = new Map();
+    const dirty = new Set<Node>();
+    for (const node of [...scope.graph.nodes]) {
+      if (dirty.has(node)) continue;
+      const s = stepOf(ctx, scope, cache, node);
+      if (!isStep(s)) continue;
+      const run = collectRun(ctx, scope, cache, s);
+      const involved: Node[] = run.steps.map((x) => x.node);
+      const p = scope.ud.producer(run.top);
+      if (p) involved.push(p);
+      involved.push(...scope.ud.consumers(run.bottom));
+      if (involved.some((n) => dirty.has(n))) { changed = true; continue; } // stale index: next sweep
+      const o = assessRun(ctx, run);
+      if (o.kind !== 'match') continue;
+      const m = o.match;
+      const edit = newEdit(scope);
+      m.rule.rewrite(ctx, m, edit);
+      const before = prove ? regionBefore(edit) : undefined;
+      const undo = applyEdit(ctx, edit, { inPlace: !prove && (ctx.options.reuseBuffers ?? true) });
+      const names = run.steps.map((x) => ctx.labels.get(x.node) ?? x.node.name);
+      for (const n of [...involved, m.layer.node]) dirty.add(n);
+      changed = true;
+      if (prove && !prove({ before: before!, after: regionAfter(edit), opsetOf: ctx.opsetOf, nodes: names, target: m.layer.label, direction: m.rule.direction, graph: scope.path })) {
+        undo();
+        for (const x of run.steps) ctx.proofFailed.add(x.node);
+        continue;
+      }
+      const hint = foldHint(m);
+      for (const x of run.steps) {
+        folded.push({ node: ctx.labels.get(x.node) ?? x.node.name, op: x.node.opType, status: 'folded', direction: m.rule.direction, target: m.layer.label, reason: null, hint, graph: scope.path });
+      }
+      for (const r of edit.released) released.add(r);
+      for (const v of edit.goneValues) gone.add(v);
+    }
+  }
+  return changed;
+}
+
+/**
+ * Fold every normalization that can be folded exactly. Edits `model` in place and returns it with the ledger:
+ * one entry per normalization (folded, or kept with its reason), node and weight-byte totals.
+ */
+export function foldModel(model: Model, options: FoldOptions = {}): { model: Model; ledger: FoldLedger } {
+  const ctx = makeContext(model, options);
+  const nodesBefore = countNodes(model);
+  const bytesBefore = weightBytes(model);
+  // Ledger order: where each node stood in the original model.
+  const order = new Map<string, number>();
+  for (const s of buildScopes(model, ctx.labels)) for (const n of s.graph.nodes) order.set(`${s.path}\u0000${s.labels.get(n)}`, order.size);
+  const folded: LedgerEntry[] = [];
+  const released = new Set<string>();
+  const gone = new Set<string>();
+  for (let pass = 0; pass < MAX_PASSES && sweep(ctx, model, folded, released, gone); pass++) { /* until nothing changes */ }
+  if (folded.length) {
+    cleanUp(model, released, gone);
+    validateModel(model);
+  }
+  // Every normalization still in the model, with its reason, from the same analysis audit runs.
+  const kept: LedgerEntry[] = findingsOf(ctx, model).map((f) => ({ ...f, status: 'kept' as const }));
+  const normalizations = [...folded, ...kept].sort((a, b) => (order.get(`${a.graph}\u0000${a.node}`) ?? 1e15) - (order.get(`${b.graph}\u0000${b.node}`) ?? 1e15));
+  return {
+    model,
+    ledger: { normalizations, nodesBefore, nodesAfter: countNodes(model), bytesBefore, bytesAfter: weightBytes(model) },
+  };
+}

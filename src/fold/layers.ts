@@ -1,0 +1,104 @@
+// Reading the linear layer next to a normalization: its constant weight and bias, and the geometry a fold
+// needs (channel counts, groups, transposes, padding). Weight conditions are checked here, once, for every rule.
+import type { Node } from '../graph/ir.js';
+import { attrFloat, attrInt, attrInts, attrString, elementCount } from '../graph/ir.js';
+import { isFloatType, dataTypeName } from '../onnx/tensor.js';
+import { DataType } from '../graph/ir.js';
+import { constantOf, rankOf, type ConstRef, type Scope } from './scope.js';
+import { refuse, type FoldContext, type Refusal } from './context.js';
+
+export type LayerOp = 'Conv' | 'ConvTranspose' | 'Gemm' | 'MatMul';
+
+export interface Layer {
+  node: Node;
+  op: LayerOp;
+  label: string;
+  /** The activation input (X of Conv, A of Gemm and MatMul). */
+  data: string;
+  weight: ConstRef;
+  /** Conv/ConvTranspose B or Gemm C, when given. */
+  bias?: ConstRef;
+  group: number;
+  /** Rank of the layer's activation input and output (undefined when the model does not say). */
+  rank: number | undefined;
+  outChannels: number;
+  inChannels: number;
+  alpha: number;
+  beta: number;
+  transA: boolean;
+  transB: boolean;
+  /** Conv only: no implicit or explicit padding of the input. */
+  unpadded: boolean;
+}
+
+const INTEGER_TYPES = new Set<number>([DataType.INT8, DataType.UINT8, DataType.INT16, DataType.UINT16, DataType.INT32, DataType.INT64, DataType.UINT32, DataType.UINT64]);
+
+const isDequantized = (scope: Scope, v: string) => {
+  const p = scope.ud.producer(v);
+  return p !== undefined && /^(DequantizeLinear|DynamicQuantizeLinear|QuantizeLinear)$/.test(p.opType);
+};
+
+function constantParam(ctx: FoldContext, scope: Scope, n: Node, v: string, what: string): ConstRef | Refusal {
+  if (isDequantized(scope, v)) return refuse('quantized-weights', `the ${what} of '${n.name}' is dequantized at run time; fold before quantizing`);
+  const ref = constantOf(scope, v);
+  if (!ref) return refuse('no-linear-neighbour', `the ${what} of '${n.name || n.opType}' is computed at run time; store it as an initializer`);
+  if (INTEGER_TYPES.has(ref.tensor.dataType)) return refuse('quantized-weights', `the ${what} '${v}' is ${dataTypeName(ref.tensor.dataType)}; fold before quantizing`);
+  if (!isFloatType(ref.tensor.dataType)) return refuse('dtype-unsupported', `the ${what} '${v}' is ${dataTypeName(ref.tensor.dataType)}, which pleat cannot rewrite exactly`);
+  if (ref.overridable && !ctx.allowOverridable) return refuse('overridable-weights', `'${v}' is also a graph input; remove it from the inputs or allow overridable weights`);
+  return ref;
+}
+
+const isRef = (x: ConstRef | Refusal): x is ConstRef => 'tensor' in x;
+
+/** The layer's constant weight and geometry, or why it cannot take a fold. */
+export function readLayer(ctx: FoldContext, scope: Scope, n: Node): Layer | Refusal {
+  const op = n.opType as LayerOp;
+  const label = scope.labels.get(n) ?? n.name;
+  const [x, w, b] = n.inputs;
+  if (!x || !w) return refuse('no-linear-neighbour', `'${label}' has no weight input`);
+  const weight = constantParam(ctx, scope, n, w, 'weight');
+  if (!isRef(weight)) return weight;
+  let bias: ConstRef | undefined;
+  if (b && op !== 'MatMul') {
+    const r = constantParam(ctx, scope, n, b, 'bias');
+    if (!isRef(r)) return r;
+    bias = r;
+  }
+  if (bias && bias.tensor.dataType !== weight.tensor.dataType) {
+    return refuse('dtype-unsupported', `bias and weight of '${label}' have different types`);
+  }
+  const dims = weight.tensor.dims;
+  const group = op === 'Conv' || op === 'ConvTranspose' ? attrInt(n, 'group', 1) : 1;
+  const base: Omit<Layer, 'rank' | 'outChannels' | 'inChannels'> = {
+    node: n, op, label, data: x, weight, bias, group,
+    alpha: attrFloat(n, 'alpha', 1), beta: attrFloat(n, 'beta', 1),
+    transA: attrInt(n, 'transA', 0) === 1, transB: attrInt(n, 'transB', 0) === 1, unpadded: true,
+  };
+  switch (op) {
+    case 'Conv': case 'ConvTranspose': {
+      if (dims.length < 3 || group < 1 || dims[0]! % group !== 0) return refuse('no-linear-neighbour', `weight of '${label}' has an unexpected shape [${dims.join(',')}]`);
+      const pads = attrInts(n, 'pads') ?? [];
+      const autoPad = attrString(n, 'auto_pad', 'NOTSET');
+      const unpadded = pads.every((p) => p === 0) && (autoPad === 'NOTSET' || autoPad === 'VALID');
+      const outChannels = op === 'Conv' ? dims[0]! : dims[1]! * group;
+      const inChannels = op === 'Conv' ? dims[1]! * group : dims[0]!;
+      if (bias && elementCount(bias.tensor.dims) !== outChannels) return refuse('no-linear-neighbour', `bias of '${label}' does not hold one value per output channel`);
+      return { ...base, rank: dims.length, outChannels, inChannels, unpadded };
+    }
+    case 'Gemm': {
+      if (dims.length !== 2) return refuse('no-linear-neighbour', `weight of '${label}' is not a matrix`);
+      const [k, nOut] = base.transB ? [dims[1]!, dims[0]!] : [dims[0]!, dims[1]!];
+      return { ...base, rank: 2, outChannels: nOut, inChannels: k };
+    }
+    case 'MatMul': {
+      if (dims.length !== 2) return refuse('no-linear-neighbour', `the weight of '${label}' is not a constant 2-D matrix`);
+      const ra = rankOf(scope, x);
+      return { ...base, rank: ra, outChannels: dims[1]!, inChannels: dims[0]!, beta: 1 };
+    }
+  }
+  return refuse('no-linear-neighbour', `'${label}' is not a Conv, ConvTranspose, Gemm or MatMul`);
+}
+
+export function isLayer(x: Layer | Refusal): x is Layer {
+  return 'weight' in x;
+}

@@ -1,0 +1,51 @@
+// Norm after a MatMul with a constant 2-D weight W [K, N], when the norm's channel axis is the output's last
+// axis: W' = W ⊙ s along columns. A shift t becomes the C of a Gemm when the input is 2-D, else a new Add.
+import { makeTensor } from '../../onnx/tensor.js';
+import { decodeValues, scaledMaxAbs } from '../values.js';
+import { hasShift } from '../affine.js';
+import { addConstantInput, scaleConstant, changeOf, makeNode, replaceConstant } from '../apply.js';
+import { freshName, isRefusal } from '../context.js';
+import { resolveRun } from '../run.js';
+import { layouts, maxAbs, weightView, type WeightView } from '../weights.js';
+import { fitsStorage, overflow, producerOutputFree, removeRun, takeOverRun, type FoldRule } from './rule.js';
+
+interface Data { view: WeightView; map: Int32Array; shift: Float64Array; form: 'scale-only' | 'gemm' | 'add' }
+
+export const matmulProducer: FoldRule<Data> = {
+  name: 'matmul-producer',
+  op: 'MatMul',
+  direction: 'into-producer',
+  match(_ctx, run, layer) {
+    const busy = producerOutputFree(layer, run);
+    if (busy) return busy;
+    const a = resolveRun(run, layer.rank, 0, layer.outChannels);
+    if (isRefusal(a)) return a;
+    const t = layer.weight.tensor;
+    const v = weightView(t.dims);
+    const map = layouts.columns(v);
+    if (!fitsStorage(scaledMaxAbs(t, v, map, a.scale), t.dataType)) return overflow('weights', t.dataType);
+    if (!fitsStorage(maxAbs(a.shift), t.dataType)) return overflow('bias', t.dataType);
+    const form = !hasShift(a) ? 'scale-only' : layer.rank === 2 ? 'gemm' : 'add';
+    return { rule: matmulProducer, run, layer, affine: a, adds: form === 'add' ? 1 : 0, data: { view: v, map, shift: a.shift, form } };
+  },
+  rewrite(ctx, m, edit) {
+    const { layer, run, data } = m;
+    const node = layer.node;
+    const dt = layer.weight.tensor.dataType;
+    scaleConstant(ctx, edit, node, 1, layer.weight, data.view, data.map, m.affine.scale);
+    edit.regionOutputs = [run.bottom];
+    if (data.form === 'add') {
+      const bias = freshName(ctx, `${layer.weight.name}.bias`);
+      edit.newInitializers.push(makeTensor(bias, [data.shift.length], dt, data.shift));
+      edit.inserts.push({ node: makeNode('Add', freshName(ctx, `${layer.label}.bias_add`), [node.outputs[0]!, bias], [run.bottom]), after: node });
+      removeRun(edit, run);
+      return;
+    }
+    if (data.form === 'gemm') {
+      changeOf(edit, node).opType = 'Gemm';
+      addConstantInput(ctx, edit, node, 2, `${layer.weight.name}.bias`, dt, data.shift, [data.shift.length]);
+    }
+    takeOverRun(edit, layer, run);
+  },
+};
+

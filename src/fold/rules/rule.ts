@@ -1,0 +1,82 @@
+// The shape every fold rule has: the layer op it folds into and the direction (its anchor is always a run of
+// affine steps), a match that checks every condition and returns a match or one refusal, and a rewrite that
+// turns a match into an edit without deciding anything.
+import type { DataTypeCode, Node } from '../../graph/ir.js';
+import { roundToStorage, dataTypeName } from '../../onnx/tensor.js';
+import type { Affine } from '../affine.js';
+import type { Edit } from '../apply.js';
+import { changeOf } from '../apply.js';
+import { refuse, type FoldContext, type Refusal } from '../context.js';
+import type { Layer, LayerOp } from '../layers.js';
+import type { Run } from '../run.js';
+import type { Direction } from '../types.js';
+
+export interface RuleMatch<D = unknown> {
+  rule: FoldRule<D>;
+  run: Run;
+  layer: Layer;
+  affine: Affine;
+  /** Nodes the fold adds (a bias Add): a run of elementwise steps only folds when it removes more than it adds. */
+  adds: number;
+  /** Rule-specific values computed while checking (new bias, decoded weight). */
+  data: D;
+}
+
+export interface FoldRule<D = unknown> {
+  name: string;
+  op: LayerOp;
+  direction: Direction;
+  match(ctx: FoldContext, run: Run, layer: Layer): RuleMatch<D> | Refusal;
+  rewrite(ctx: FoldContext, m: RuleMatch<D>, edit: Edit): void;
+}
+
+// ---- predicates shared by the rules -------------------------------------------------------------------
+
+/** Into the producer: the layer's output must reach nothing but the run. */
+export function producerOutputFree(layer: Layer, run: Run): Refusal | undefined {
+  const ud = run.scope.ud;
+  const out = layer.node.outputs[0]!;
+  if (layer.node.outputs.length !== 1) return refuse('shared-output', `'${layer.label}' has several outputs`);
+  if (ud.isGraphOutput(out)) return refuse('graph-output', `the output of '${layer.label}' is a model output; read it only through the norm`);
+  const readers = ud.consumers(out);
+  if (readers.length !== 1 || readers[0] !== run.steps[0]!.node) {
+    return refuse('shared-output', `the output of '${layer.label}' is read by ${readers.length} nodes; read it only through the norm`);
+  }
+  return undefined;
+}
+
+/** A folded value fits the storage type when it rounds to a finite number there (float16 max 65504). */
+export function fitsStorage(maxAbsValue: number, dataType: DataTypeCode): boolean {
+  if (!(maxAbsValue >= 0)) return false;
+  return Number.isFinite(roundToStorage(Float64Array.of(maxAbsValue), dataType)[0]!);
+}
+
+export function overflow(what: string, dataType: DataTypeCode): Refusal {
+  return refuse('storage-overflow', `the folded ${what} would exceed the ${dataTypeName(dataType)} range; store the weights in a wider type`);
+}
+
+/** Into the producer: the layer now writes what the run's last step wrote; the run disappears. */
+export function takeOverRun(edit: Edit, layer: Layer, run: Run, outputs = true): void {
+  if (outputs) changeOf(edit, layer.node).outputs[0] = run.bottom;
+  removeRun(edit, run);
+  edit.goneValues.push(layer.node.outputs[0]!);
+}
+
+export function removeRun(edit: Edit, run: Run): void {
+  for (const s of run.steps) {
+    edit.removeNodes.push(s.node);
+    if (s.output !== run.bottom) edit.goneValues.push(s.output);
+    for (const c of s.consts) edit.released.push(c.name);
+  }
+}
+
+/** Into the consumer: the layer reads what the run's first step read. */
+export function bypassRun(edit: Edit, layer: Layer, run: Run): void {
+  changeOf(edit, layer.node).inputs[0] = run.top;
+  removeRun(edit, run);
+  edit.goneValues.push(run.bottom);
+}
+
+export function labelOf(n: Node): string {
+  return n.name || n.opType;
+}

@@ -1,0 +1,82 @@
+// A run: the longest chain of foldable affine steps around a normalization (a norm feeding a norm, a bias
+// Add then a norm, Mul then Add). Every member sees the same run, so every member gets the same outcome
+// whichever one the analysis starts from, and audit and fold cannot disagree.
+import type { Node } from '../graph/ir.js';
+import { composeAffine, elementwiseAffine, broadcastAffine, fitsChannelAxis, type Affine } from './affine.js';
+import { readStep, type AffineStep } from './steps.js';
+import { refuse, type FoldContext, type Refusal } from './context.js';
+import type { Scope } from './scope.js';
+
+export interface Run {
+  scope: Scope;
+  /** Steps in data-flow order. */
+  steps: AffineStep[];
+  /** The activation the first step reads, and the one the last step writes. */
+  top: string;
+  bottom: string;
+  hasBatchNorm: boolean;
+}
+
+/** Per-pass cache of readStep, which decodes tensors. */
+export type StepCache = Map<Node, AffineStep | Refusal | undefined>;
+
+export function stepOf(ctx: FoldContext, scope: Scope, cache: StepCache, n: Node): AffineStep | Refusal | undefined {
+  if (!cache.has(n)) cache.set(n, readStep(ctx, scope, n));
+  return cache.get(n);
+}
+
+export const isStep = (x: AffineStep | Refusal | undefined): x is AffineStep => x !== undefined && 'kind' in x;
+
+/** The run containing a step: extended upward and downward through steps whose output has exactly one reader. */
+export function collectRun(ctx: FoldContext, scope: Scope, cache: StepCache, anchor: AffineStep): Run {
+  const steps = [anchor];
+  const single = (v: string, reader: Node) => {
+    const cs = scope.ud.consumers(v);
+    return cs.length === 1 && cs[0] === reader && !scope.ud.isGraphOutput(v);
+  };
+  for (let cur = anchor; ;) {
+    const p = scope.ud.producer(cur.data);
+    if (!p) break;
+    const s = stepOf(ctx, scope, cache, p);
+    if (!isStep(s) || !single(s.output, cur.node) || steps.includes(s)) break;
+    steps.unshift(s);
+    cur = s;
+  }
+  for (let cur = anchor; ;) {
+    const cs = scope.ud.consumers(cur.output);
+    if (cs.length !== 1 || scope.ud.isGraphOutput(cur.output)) break;
+    const s = stepOf(ctx, scope, cache, cs[0]!);
+    if (!isStep(s) || s.data !== cur.output || steps.includes(s)) break;
+    steps.push(s);
+    cur = s;
+  }
+  return {
+    scope, steps, top: steps[0]!.data, bottom: steps[steps.length - 1]!.output,
+    hasBatchNorm: steps.some((s) => s.kind === 'batch-norm'),
+  };
+}
+
+/**
+ * The run as one affine map on a layer's channel axis: `rank` is the activation's rank (undefined when
+ * unknown), `axisFromEnd` the layer's channel axis counted from the last axis, `channels` its channel count.
+ */
+export function resolveRun(run: Run, rank: number | undefined, axisFromEnd: number, channels: number): Affine | Refusal {
+  let acc: Affine | undefined;
+  for (const s of run.steps) {
+    let a: Affine | undefined;
+    const who = `'${s.node.name || s.node.opType}'`;
+    if (s.kind === 'batch-norm') {
+      if (rank === undefined) return refuse('axis-mismatch', `the rank at ${who} is not declared; add value_info so its channel axis can be checked`);
+      if (rank - 2 !== axisFromEnd) return refuse('axis-mismatch', `${who} normalizes axis 1 but the layer's channel axis is ${rank - 1 - axisFromEnd}`);
+      if (s.bn!.scale.length !== channels) return refuse('axis-mismatch', `${who} has ${s.bn!.scale.length} channels, the layer ${channels}`);
+      a = s.bn!;
+    } else {
+      if (!fitsChannelAxis(s.constDims!, rank, axisFromEnd, channels)) {
+        return refuse('axis-mismatch', `the constant of ${who} [${s.constDims!.join(',')}] is not per-channel on the layer's channel axis`);
+      }
+      a = broadcastAffine(elementwiseAffine(s.op!, s.constOnLeft!, s.constValues!)!, channels);
+    }
+    acc = acc ? composeAffine(acc, a) : a;
+  }
+  return acc!;
+}

@@ -1,0 +1,181 @@
+// The model seen by the fold rules: every graph (main and nested bodies) with its producer/consumer index,
+// a path for reports, and lookups that follow outer scopes (a body reads the outer graph's weights).
+import type { Graph, Model, Node, Tensor, ValueInfo } from '../graph/ir.js';
+import { subgraphsOf } from '../graph/ir.js';
+import { buildUseDef, outerRefs, type UseDef } from '../graph/usedef.js';
+
+export interface Scope {
+  graph: Graph;
+  /** 'main', or e.g. 'main/if_3.then_branch'. */
+  path: string;
+  parent?: Scope;
+  /** The node owning this body (undefined for the main graph). */
+  owner?: Node;
+  ud: UseDef;
+  /** Ledger name of each node: its name, or op#index when unnamed. */
+  labels: Map<Node, string>;
+  ranks: Map<string, number | undefined>;
+  infos?: Map<string, ValueInfo>;
+  /** Before IR version 4 every initializer had to be listed as an input too, so that was no sign of intent. */
+  inputsOverride: boolean;
+}
+
+/** A constant read by a node: where it is defined and whether others read it. */
+export interface ConstRef {
+  name: string;
+  tensor: Tensor;
+  /** Scope whose graph holds the initializer or the Constant node. */
+  home: Scope;
+  constantNode?: Node;
+  /** Also declared as a graph input: callers may replace it at run time. */
+  overridable: boolean;
+}
+
+export function nodeLabel(n: Node, index: number): string {
+  return n.name || `${n.opType}#${index}`;
+}
+
+export function isDefaultDomain(n: Node): boolean {
+  return n.domain === '' || n.domain === 'ai.onnx';
+}
+
+/** Every graph of the model, main first, bodies in node order (pre-order). */
+export function buildScopes(model: Model, fixedLabels?: Map<Node, string>): Scope[] {
+  const out: Scope[] = [];
+  const visit = (graph: Graph, path: string, parent?: Scope, owner?: Node) => {
+    const labels = new Map<Node, string>();
+    graph.nodes.forEach((n, i) => labels.set(n, fixedLabels?.get(n) ?? nodeLabel(n, i)));
+    const scope: Scope = { graph, path, parent, owner, ud: buildUseDef(graph), labels, ranks: new Map(), inputsOverride: model.irVersion >= 4 };
+    out.push(scope);
+    for (const n of graph.nodes) {
+      for (const a of n.attributes) {
+        const gs = a.value.type === 'GRAPH' ? [a.value.g] : a.value.type === 'GRAPHS' ? a.value.graphs : [];
+        gs.forEach((g, k) => visit(g, `${path}/${labels.get(n)}.${a.name}${gs.length > 1 ? `[${k}]` : ''}`, scope, n));
+      }
+    }
+  };
+  visit(model.graph, 'main');
+  return out;
+}
+
+/** True when the scope defines the value itself (input, initializer or node output). */
+function definesLocally(s: Scope, v: string): boolean {
+  return s.ud.producer(v) !== undefined || s.ud.initializer(v) !== undefined || s.ud.isGraphInput(v);
+}
+
+/** The scope that defines a value, following outer scopes. */
+export function homeOf(s: Scope, v: string): Scope | undefined {
+  for (let c: Scope | undefined = s; c; c = c.parent) if (definesLocally(c, v)) return c;
+  return undefined;
+}
+
+/** The constant behind a value (initializer or Constant node, in this or an outer scope), if any. */
+export function constantOf(s: Scope, v: string): ConstRef | undefined {
+  const home = homeOf(s, v);
+  if (!home) return undefined;
+  const init = home.ud.initializer(v);
+  if (init) return { name: v, tensor: init, home, overridable: home.inputsOverride && home.ud.isGraphInput(v) };
+  const p = home.ud.producer(v);
+  if (!p || p.opType !== 'Constant' || !isDefaultDomain(p)) return undefined;
+  const t = home.ud.constantTensor(v);
+  return t ? { name: v, tensor: t, home, constantNode: p, overridable: false } : undefined;
+}
+
+/**
+ * Whether `node` (in scope `s`) is the only reader of value `v`, counting reads from nested bodies and from
+ * every scope between `s` and the value's home. A value that is a graph output is never solely read.
+ */
+export function soleReader(s: Scope, v: string, node: Node): boolean {
+  const home = homeOf(s, v);
+  let reader: Node = node;
+  for (let c: Scope | undefined = s; c; c = c.parent) {
+    const readers = c.ud.consumers(v);
+    if (readers.length !== 1 || readers[0] !== reader || c.ud.isGraphOutput(v)) return false;
+    if (c === home) return true;
+    const owner = c.owner;
+    if (!owner) return false;
+    // The owner reads v for this body; it must not also read it itself or through its other bodies.
+    if (owner.inputs.includes(v)) return false;
+    if (subgraphsOf(owner).some((g) => g !== c.graph && outerRefs(g).has(v))) return false;
+    reader = owner;
+  }
+  return false;
+}
+
+function infoMap(s: Scope): Map<string, ValueInfo> {
+  if (!s.infos) {
+    s.infos = new Map();
+    for (const list of [s.graph.valueInfo, s.graph.outputs, s.graph.inputs]) for (const vi of list) s.infos.set(vi.name, vi);
+  }
+  return s.infos;
+}
+
+/** Declared type and shape of a value (value_info, graph inputs/outputs), following outer scopes. */
+export function valueInfoOf(s: Scope, v: string): ValueInfo | undefined {
+  for (let c: Scope | undefined = s; c; c = c.parent) {
+    const vi = infoMap(c).get(v);
+    if (vi) return vi;
+    if (definesLocally(c, v)) {
+      const t = c.ud.initializer(v);
+      if (t) return { name: v, elemType: t.dataType, shape: [...t.dims], docString: '', extra: [] };
+      return undefined;
+    }
+  }
+  return undefined;
+}
+
+const SAME_RANK = new Set([
+  'Relu', 'LeakyRelu', 'PRelu', 'Sigmoid', 'Tanh', 'HardSigmoid', 'HardSwish', 'Elu', 'Selu', 'Celu', 'Gelu', 'Erf',
+  'Softplus', 'Softsign', 'Clip', 'Identity', 'Dropout', 'Abs', 'Neg', 'Exp', 'Log', 'Sqrt', 'Reciprocal', 'Cast',
+  'Softmax', 'LogSoftmax', 'BatchNormalization', 'InstanceNormalization', 'LayerNormalization', 'GroupNormalization',
+  'LpNormalization', 'LRN', 'MeanVarianceNormalization', 'Floor', 'Ceil', 'Round', 'Sign', 'Mish',
+]);
+const BROADCASTING = new Set(['Add', 'Sub', 'Mul', 'Div', 'Pow', 'Max', 'Min', 'Sum', 'Mean', 'Where']);
+
+/** Rank of a value when it can be known from declarations or from how it was produced. */
+export function rankOf(s: Scope, v: string, depth = 0): number | undefined {
+  if (s.ranks.has(v)) return s.ranks.get(v);
+  let r: number | undefined;
+  const vi = valueInfoOf(s, v);
+  if (vi?.shape) r = vi.shape.length;
+  else if (depth < 64) {
+    const home = homeOf(s, v);
+    const p = home?.ud.producer(v);
+    if (home && p && isDefaultDomain(p)) {
+      const ins = p.inputs;
+      const w = ins[1] ? constantOf(home, ins[1]) : undefined;
+      if (p.opType === 'Conv' || p.opType === 'ConvTranspose') r = w ? w.tensor.dims.length : rankOf(home, ins[0]!, depth + 1);
+      else if (p.opType === 'Gemm') r = 2;
+      else if (p.opType === 'Constant') r = constantOf(home, v)?.tensor.dims.length;
+      else if (p.opType === 'MatMul') {
+        const a = rankOf(home, ins[0]!, depth + 1);
+        const b = ins[1] ? rankOf(home, ins[1], depth + 1) : undefined;
+        if (a !== undefined && b !== undefined) r = a === 1 && b === 1 ? 0 : Math.max(a, b) - (a === 1 || b === 1 ? 1 : 0);
+      } else if (SAME_RANK.has(p.opType) && p.outputs[0] === v) r = rankOf(home, ins[0]!, depth + 1);
+      else if (BROADCASTING.has(p.opType)) {
+        let m = 0;
+        for (const i of ins) {
+          if (!i) continue;
+          const ri = rankOf(home, i, depth + 1);
+          if (ri === undefined) { m = -1; break; }
+          m = Math.max(m, ri);
+        }
+        r = m < 0 ? undefined : m;
+      } else if (p.opType === 'Flatten') r = 2;
+    }
+  }
+  s.ranks.set(v, r);
+  return r;
+}
+
+export const LINEAR_OPS = new Set(['Conv', 'ConvTranspose', 'Gemm', 'MatMul']);
+
+export function isLinear(n: Node): boolean {
+  return isDefaultDomain(n) && LINEAR_OPS.has(n.opType);
+}
+
+/** Every graph of a scope's subtree is visited through buildScopes; this walks a single graph's bodies. */
+export function eachGraph(g: Graph, fn: (g: Graph) => void): void {
+  fn(g);
+  for (const n of g.nodes) for (const sg of subgraphsOf(n)) eachGraph(sg, fn);
+}

@@ -1,0 +1,106 @@
+// Recognising the per-channel affine steps a fold can remove: an inference-mode BatchNormalization, or an
+// Add/Sub/Mul/Div with a constant that varies along at most one axis. Each check is one named predicate so
+// every reason a norm is kept reads in one place.
+import type { Node } from '../graph/ir.js';
+import { attrFloat, attrInt, elementCount } from '../graph/ir.js';
+import { isFloatType, tensorToFloat64, dataTypeName } from '../onnx/tensor.js';
+import { batchNormAffine, channelAxisFromEnd, type Affine, type ElementwiseOp } from './affine.js';
+import { constantOf, isDefaultDomain, type ConstRef, type Scope } from './scope.js';
+import { refuse, type FoldContext, type Refusal } from './context.js';
+
+export interface AffineStep {
+  node: Node;
+  kind: 'batch-norm' | 'elementwise';
+  /** The activation the step reads, and the one it writes. */
+  data: string;
+  output: string;
+  /** BatchNormalization: its map over axis 1. */
+  bn?: Affine;
+  /** Elementwise: the operation and its constant. */
+  op?: ElementwiseOp;
+  constOnLeft?: boolean;
+  constDims?: number[];
+  constValues?: Float64Array;
+  consts: ConstRef[];
+}
+
+const ELEMENTWISE = new Set(['Add', 'Sub', 'Mul', 'Div']);
+
+export function isBatchNorm(n: Node): boolean {
+  return n.opType === 'BatchNormalization' && isDefaultDomain(n);
+}
+
+export function isElementwise(n: Node): boolean {
+  return ELEMENTWISE.has(n.opType) && isDefaultDomain(n) && n.inputs.length === 2 && n.outputs.length === 1;
+}
+
+// ---- predicates ---------------------------------------------------------------------------------------
+
+const keptByUser = (ctx: FoldContext, n: Node) => ctx.keep.has(n.name) || ctx.keep.has(ctx.labels.get(n) ?? n.name);
+const proofFailed = (ctx: FoldContext, n: Node) => ctx.proofFailed.has(n);
+const trainingMode = (n: Node) => attrInt(n, 'training_mode', 0) === 1 || n.outputs.slice(1).some((o) => o !== '');
+const perActivation = (n: Node) => attrInt(n, 'spatial', 1) === 0;
+const overridable = (ctx: FoldContext, refs: ConstRef[]) => !ctx.allowOverridable && refs.some((r) => r.overridable);
+
+/** The affine step a node is, a refusal saying why it cannot be folded, or undefined when it is no such step. */
+export function readStep(ctx: FoldContext, scope: Scope, n: Node): AffineStep | Refusal | undefined {
+  if (ctx.generated.has(n)) return undefined;
+  if (isBatchNorm(n)) return readBatchNorm(ctx, scope, n);
+  if (isElementwise(n)) return readElementwise(ctx, scope, n);
+  return undefined;
+}
+
+function userRefusal(ctx: FoldContext, n: Node): Refusal | undefined {
+  if (keptByUser(ctx, n)) return refuse('kept-by-user', `named with --keep; drop that flag to fold it`);
+  if (proofFailed(ctx, n)) return refuse('proof-failed', 'the folded model did not match the original on the proof inputs; kept as it was');
+  return undefined;
+}
+
+function readBatchNorm(ctx: FoldContext, scope: Scope, n: Node): AffineStep | Refusal {
+  const user = userRefusal(ctx, n);
+  if (user) return user;
+  if (trainingMode(n)) return refuse('training-mode', 'export the model in inference mode (training_mode=0, only output Y)');
+  if (perActivation(n)) return refuse('per-activation-stats', 'legacy spatial=0 form; re-export with per-channel statistics (spatial=1 or opset >= 9)');
+  const names = n.inputs.slice(1, 5);
+  if (names.length < 4 || names.some((x) => !x)) return refuse('params-not-constant', 'scale, B, mean and var must all be given as initializers or Constant nodes');
+  const refs: ConstRef[] = [];
+  for (const name of names) {
+    const r = constantOf(scope, name);
+    if (!r) return refuse('params-not-constant', `'${name}' is computed at run time; store it as an initializer`);
+    refs.push(r);
+  }
+  if (overridable(ctx, refs)) {
+    const r = refs.find((x) => x.overridable)!;
+    return refuse('overridable-weights', `'${r.name}' is also a graph input; remove it from the inputs or allow overridable weights`);
+  }
+  const bad = refs.find((r) => !isFloatType(r.tensor.dataType));
+  if (bad) return refuse('dtype-unsupported', `'${bad.name}' is ${dataTypeName(bad.tensor.dataType)}; only float parameters fold exactly`);
+  const c = elementCount(refs[0]!.tensor.dims);
+  if (refs.some((r) => r.tensor.dims.length !== 1 || elementCount(r.tensor.dims) !== c)) {
+    return refuse('axis-mismatch', 'scale, B, mean and var must each hold one value per channel');
+  }
+  const [gamma, beta, mean, variance] = refs.map((r) => tensorToFloat64(r.tensor)) as [Float64Array, Float64Array, Float64Array, Float64Array];
+  const bn = batchNormAffine(gamma, beta, mean, variance, attrFloat(n, 'epsilon', 1e-5));
+  return { node: n, kind: 'batch-norm', data: n.inputs[0]!, output: n.outputs[0]!, bn, consts: refs };
+}
+
+function readElementwise(ctx: FoldContext, scope: Scope, n: Node): AffineStep | Refusal | undefined {
+  const [a, b] = n.inputs as [string, string];
+  if (!a || !b) return undefined;
+  const ca = constantOf(scope, a);
+  const cb = constantOf(scope, b);
+  if ((ca === undefined) === (cb === undefined)) return undefined; // both constant (plain constant folding) or neither
+  const ref = (ca ?? cb)!;
+  const constOnLeft = ca !== undefined;
+  const op = n.opType as ElementwiseOp;
+  if (op === 'Div' && constOnLeft) return undefined; // c / x is not affine in x
+  if (!isFloatType(ref.tensor.dataType)) return undefined;
+  if (channelAxisFromEnd(ref.tensor.dims) === undefined) return undefined; // varies along several axes
+  const user = userRefusal(ctx, n);
+  if (user) return user;
+  if (overridable(ctx, [ref])) return refuse('overridable-weights', `'${ref.name}' is also a graph input; remove it from the inputs or allow overridable weights`);
+  return {
+    node: n, kind: 'elementwise', data: constOnLeft ? b : a, output: n.outputs[0]!, op, constOnLeft,
+    constDims: [...ref.tensor.dims], constValues: tensorToFloat64(ref.tensor), consts: [ref],
+  };
+}

@@ -1,0 +1,91 @@
+// Public shapes of the folding engine: options, audit findings and the fold ledger. Status, direction and
+// reason names come from shared/VOCABULARY.md.
+import type { Graph } from '../graph/ir.js';
+
+export type ReasonCode =
+  | 'shared-output'
+  | 'graph-output'
+  | 'params-not-constant'
+  | 'overridable-weights'
+  | 'training-mode'
+  | 'per-activation-stats'
+  | 'axis-mismatch'
+  | 'nonlinear-between'
+  | 'padded-consumer'
+  | 'no-linear-neighbour'
+  | 'quantized-weights'
+  | 'dtype-unsupported'
+  | 'storage-overflow'
+  | 'runtime-statistics'
+  | 'kept-by-user'
+  | 'proof-failed';
+
+export type Direction = 'into-producer' | 'into-consumer';
+
+/** What the numeric proof of one fold is given: the fold's region of the graph before and after the edit. */
+export interface ProofCase {
+  /**
+   * A small standalone graph: the nodes the fold replaces, the constants they read as initializers, the
+   * activations they read as inputs (with element type and shape where the model declares them), and the
+   * value(s) the rest of the model reads from the region as outputs.
+   */
+  before: Graph;
+  /** The same region after the fold, with the same inputs and outputs. */
+  after: Graph;
+  /** Opset version the model imports for a domain ('' is the default ONNX domain). */
+  opsetOf: (domain: string) => number;
+  /** The normalization nodes the fold removes (ledger names) and the layer it folds into. */
+  nodes: string[];
+  target: string;
+  direction: Direction;
+  /** Graph path, e.g. 'main' or 'main/if_3.then_branch'. */
+  graph: string;
+}
+
+export interface FoldOptions {
+  /** Node names to leave in place (--keep NODE). */
+  keep?: string[];
+  /** Fold weights and parameters that are also graph inputs (callers may replace them at run time). */
+  allowOverridable?: boolean;
+  /** Numeric proof of each fold; returning false reverts that fold and keeps the norm with reason proof-failed. */
+  prove?: (c: ProofCase) => boolean;
+  /**
+   * Write folded weights over their old bytes when nobody else reads the tensor (default true). This keeps
+   * memory near the file size, and changes the buffer the model was parsed from: parse a private copy.
+   */
+  reuseBuffers?: boolean;
+}
+
+/** One normalization as audit sees it. */
+export interface Finding {
+  node: string;
+  op: string;
+  status: 'foldable' | 'kept';
+  direction: Direction | null;
+  target: string | null;
+  reason: ReasonCode | null;
+  /** One line: for a kept norm, what would make it foldable; for a foldable one, what the fold does. */
+  hint: string;
+  graph: string;
+}
+
+/** One normalization as fold left it. */
+export interface LedgerEntry {
+  node: string;
+  op: string;
+  status: 'folded' | 'kept';
+  direction: Direction | null;
+  target: string | null;
+  reason: ReasonCode | null;
+  hint: string;
+  graph: string;
+}
+
+export interface FoldLedger {
+  normalizations: LedgerEntry[];
+  nodesBefore: number;
+  nodesAfter: number;
+  /** Bytes of initializer and Constant-node tensor data, subgraphs included. */
+  bytesBefore: number;
+  bytesAfter: number;
+}

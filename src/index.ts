@@ -1,0 +1,43 @@
+// pleat's library API: everything the CLI does, callable from a Node script with the same JSON shapes.
+import type { Model } from './graph/ir.js';
+import { readModelFile } from './onnx/read.js';
+import { compare as compareModels, type CompareOptions, type CompareReport } from './verify/compare.js';
+import { evaluate as evaluateModel, type EvaluateOptions, type EvaluateResult } from './verify/evaluate.js';
+import { foldFile } from './jobs/fold.js';
+import { auditFile } from './jobs/audit.js';
+import type { AuditJobOptions, AuditReport, FoldJobOptions, FoldReport } from './jobs/types.js';
+
+export { survey, surveyModel, type SurveyReport } from './survey.js';
+export { PleatError, isPleatError, type ErrorKind } from './errors.js';
+export { readModelFile, parseModel } from './onnx/read.js';
+export { writeModelFile, serializeModel, type WriteOptions } from './onnx/write.js';
+export { foldLoaded } from './jobs/fold.js';
+export { auditLoaded } from './jobs/audit.js';
+export { saveOutputs } from './verify/evaluate.js';
+export { loadInputFile, loadInputFiles, parseInputFlags } from './verify/inputs.js';
+export { DEFAULT_GATES } from './verify/gate.js';
+export type * from './jobs/types.js';
+export type { Finding, LedgerEntry, FoldLedger, ReasonCode, Direction } from './fold/types.js';
+export type { CompareOptions, CompareReport, EvaluateOptions, EvaluateResult, Model };
+
+const load = (m: string | Model): Model => (typeof m === 'string' ? readModelFile(m) : m);
+
+/** Fold every normalization that can be folded, prove it, and write `output` (unless a gate fails). */
+export function fold(input: string, output: string, options: FoldJobOptions = {}): FoldReport {
+  return foldFile(input, output, options);
+}
+
+/** Every normalization in the model, with its status, reason and hint; nothing is written. */
+export function audit(input: string, options: AuditJobOptions = {}): AuditReport {
+  return auditFile(input, options);
+}
+
+/** Run two models on the same inputs and judge their agreement. */
+export function compare(a: string | Model, b: string | Model, options: CompareOptions = {}): CompareReport {
+  return compareModels(load(a), load(b), options);
+}
+
+/** Run one model on given or seeded inputs. */
+export function evaluate(model: string | Model, options: EvaluateOptions = {}): EvaluateResult {
+  return evaluateModel(load(model), options);
+}

@@ -1,0 +1,24 @@
+// The audit job: the fold engine's own analysis, stopped before any rewrite, so audit and fold agree.
+import type { Model } from '../graph/ir.js';
+import { readModelFile } from '../onnx/read.js';
+import { analyze } from '../fold/index.js';
+import { SCHEMA_VERSION, type AuditJobOptions, type AuditReport } from './types.js';
+
+export function auditLoaded(model: Model, label: string, opts: AuditJobOptions = {}): AuditReport {
+  const findings = analyze(model, { keep: opts.keep, allowOverridable: opts.allowOverridable });
+  const kept = findings.filter((f) => f.status === 'kept').length;
+  return {
+    schemaVersion: SCHEMA_VERSION,
+    command: 'audit',
+    model: label,
+    normalizations: findings,
+    foldable: findings.length - kept,
+    kept,
+    failOn: opts.failOn ?? null,
+    failed: opts.failOn === 'kept' && kept > 0,
+  };
+}
+
+export function auditFile(input: string, opts: AuditJobOptions = {}): AuditReport {
+  return auditLoaded(readModelFile(input), input, opts);
+}

@@ -1,0 +1,87 @@
+// The fold job: read -> fold (each fold proven on its region) -> optional half-precision storage ->
+// whole-model check -> write -> report. A failing whole-model gate writes nothing.
+import type { Model } from '../graph/ir.js';
+import { readModelFile } from '../onnx/read.js';
+import { writeModelFile } from '../onnx/write.js';
+import { storeFloat16 } from '../onnx/store-float16.js';
+import { foldModel } from '../fold/index.js';
+import { proveFold } from '../verify/prove.js';
+import { compare } from '../verify/compare.js';
+import { DEFAULT_GATES } from '../verify/gate.js';
+import { PleatError } from '../errors.js';
+import { quantReadiness } from '../report/quant.js';
+import { SCHEMA_VERSION, type CheckSummary, type FoldJobOptions, type FoldReport, type StorageSummary } from './types.js';
+
+/** Compare the original and the folded model on seeded probes; skipped (not failed) when shapes are unknown. */
+export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOptions & { halfGate?: boolean }): CheckSummary {
+  const seed = opts.seed ?? 0;
+  const probes = opts.probes ?? 2;
+  const gate = opts.gate ?? (opts.halfGate ? DEFAULT_GATES.float16 : undefined);
+  try {
+    const r = compare(original, folded, {
+      inputs: opts.inputs, shapes: opts.shapes, dims: opts.dims, seed, probes, gate, budget: false,
+    });
+    return {
+      passed: r.passed,
+      skipped: null,
+      probes: r.probes,
+      seed,
+      gates: [...new Set(r.outputs.map((o) => o.gate?.expr).filter((g): g is string => !!g))],
+      outputs: r.outputs.map((o) => ({
+        name: o.name,
+        maxAbs: o.metrics?.maxAbs ?? NaN,
+        maxRel: o.metrics?.maxRel ?? NaN,
+        rms: o.metrics?.rms ?? NaN,
+        cosine: o.metrics?.cosine ?? NaN,
+        passed: o.passed,
+        ...(o.problem ? { problem: o.problem } : {}),
+      })),
+    };
+  } catch (e) {
+    if (e instanceof PleatError && (e.kind === 'missing-shape' || e.kind === 'unsupported-op')) {
+      return { passed: true, skipped: e.message, probes: 0, seed, gates: [], outputs: [] };
+    }
+    throw e;
+  }
+}
+
+/** Fold a model in memory (no files): returns the report; `model` is changed in place. */
+export function foldLoaded(model: Model, original: Model | undefined, label: string, opts: FoldJobOptions): FoldReport {
+  const { ledger } = foldModel(model, {
+    keep: opts.keep,
+    allowOverridable: opts.allowOverridable,
+    prove: opts.noProofs ? undefined : (c) => proveFold(c, { seed: opts.seed }).passed,
+  });
+  let storage: StorageSummary | null = null;
+  if (opts.store === 'float16') {
+    const r = storeFloat16(model);
+    storage = { store: 'float16', ...r };
+  }
+  const check = original && !opts.noProofs ? wholeModelCheck(original, model, { ...opts, halfGate: storage !== null }) : null;
+  const failed = check !== null && !check.passed;
+  return {
+    schemaVersion: SCHEMA_VERSION,
+    command: 'fold',
+    model: label,
+    output: null,
+    ...ledger,
+    bytesAfter: ledger.bytesAfter - (storage ? storage.bytesBefore - storage.bytesAfter : 0),
+    check,
+    quantization: original ? quantReadiness(original, model, ledger.normalizations) : [],
+    storage,
+    failed,
+  };
+}
+
+/** Read INPUT, fold, prove, and write OUTPUT unless a gate fails. The input file is never modified. */
+export function foldFile(input: string, output: string, opts: FoldJobOptions = {}): FoldReport {
+  const model = readModelFile(input);
+  // A second, untouched copy is the reference for the whole-model check and the quantization report.
+  const original = opts.noProofs ? undefined : readModelFile(input);
+  const report = foldLoaded(model, original, input, opts);
+  if (!report.failed) {
+    writeModelFile(model, output, { externalThreshold: opts.externalThreshold });
+    report.output = output;
+  }
+  return report;
+}
