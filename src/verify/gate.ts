@@ -2,7 +2,8 @@
 // restricted mathjs instance. Before anything runs, the parsed tree is checked against a short allow-list
 // (numbers, booleans, metric names, arithmetic, comparisons, and/or/not/xor, a few pure functions), so a gate
 // cannot assign, define functions, build units or matrices, or reach mathjs' own import/evaluate/parse.
-import { all, create, type MathNode } from 'mathjs';
+import { createRequire } from 'node:module';
+import type { MathJsInstance, MathNode } from 'mathjs';
 import { DataType, type DataTypeCode } from '../graph/ir.js';
 import { PleatError } from '../errors.js';
 
@@ -63,16 +64,25 @@ export function defaultGateFor(type: DataTypeCode): string {
 // relTol/absTol: mathjs compares numbers approximately by default (absTol 1e-15), which would make
 // `maxAbs <= 1e-20` true for maxAbs = 1e-16. Gates compare exactly (relTol must be > 0; the smallest double
 // makes it exact in practice).
-const math = create(all, { relTol: Number.MIN_VALUE, absTol: 0 });
-// Keep our handle on this instance's parser before blocking the namespace's copy; nodes it parses compile
-// against the restricted namespace below.
-const parse = math.parse;
-const blocked = (name: string) => () => { throw new Error(`${name} is disabled in gates`); };
-math.import({
-  import: blocked('import'), createUnit: blocked('createUnit'), evaluate: blocked('evaluate'),
-  parse: blocked('parse'), simplify: blocked('simplify'), derivative: blocked('derivative'),
-  resolve: blocked('resolve'), reviver: blocked('reviver'),
-}, { override: true });
+// mathjs is loaded on first use: it costs about 90 MB of memory, which a fold of a large model without a gate
+// should not pay.
+let instance: { math: MathJsInstance; parse: MathJsInstance['parse'] } | undefined;
+function restricted(): { math: MathJsInstance; parse: MathJsInstance['parse'] } {
+  if (instance) return instance;
+  const { all, create } = createRequire(import.meta.url)('mathjs') as typeof import('mathjs');
+  const math = create(all, { relTol: Number.MIN_VALUE, absTol: 0 });
+  // Keep our handle on this instance's parser before blocking the namespace's copy; nodes it parses compile
+  // against the restricted namespace below.
+  const parse = math.parse;
+  const blocked = (name: string) => () => { throw new Error(`${name} is disabled in gates`); };
+  math.import({
+    import: blocked('import'), createUnit: blocked('createUnit'), evaluate: blocked('evaluate'),
+    parse: blocked('parse'), simplify: blocked('simplify'), derivative: blocked('derivative'),
+    resolve: blocked('resolve'), reviver: blocked('reviver'),
+  }, { override: true });
+  instance = { math, parse };
+  return instance;
+}
 
 const OPERATORS = new Set([
   'add', 'subtract', 'multiply', 'divide', 'unaryMinus', 'unaryPlus', 'pow',
@@ -98,7 +108,7 @@ export function parseGate(expr: string, available: readonly string[] = [...METRI
   if (expr.trim() === '') fail('is empty: write a condition such as "maxRel <= 1e-4"');
   let node: MathNode;
   try {
-    node = parse(expr);
+    node = restricted().parse(expr);
   } catch (e) {
     return fail(`does not parse: ${(e as Error).message}`);
   }
@@ -167,4 +177,6 @@ export function parseGate(expr: string, available: readonly string[] = [...METRI
 }
 
 /** Exported for tests: the restricted instance, with import/evaluate/parse blocked. */
-export const gateMath = math;
+export function gateMath(): MathJsInstance {
+  return restricted().math;
+}

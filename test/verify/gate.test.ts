@@ -70,8 +70,8 @@ describe('parseGate', () => {
   });
 
   it('the restricted instance blocks import and evaluate', () => {
-    expect(() => gateMath.evaluate('1 + 1')).toThrow(/disabled/);
-    expect(() => gateMath.import({}, {})).toThrow(/disabled/);
+    expect(() => gateMath().evaluate('1 + 1')).toThrow(/disabled/);
+    expect(() => gateMath().import({}, {})).toThrow(/disabled/);
   });
 });
 
