@@ -12,6 +12,8 @@ export { PleatError, isPleatError, type ErrorKind } from './errors.js';
 export { readModelFile, parseModel } from './onnx/read.js';
 export { writeModelFile, serializeModel, type WriteOptions } from './onnx/write.js';
 export { foldLoaded } from './jobs/fold.js';
+export { exportFile, type ExportReport } from './jobs/export.js';
+export { exportBundle, BUNDLE_FORMATS, type BundleFormat, type BundleResult } from './onnx/bundle.js';
 export { auditLoaded } from './jobs/audit.js';
 export { saveOutputs } from './verify/evaluate.js';
 export { loadInputFile, loadInputFiles, parseInputFlags } from './verify/inputs.js';
