@@ -23,3 +23,33 @@ export const CAUTION = [
   'Validate the shipped model on representative data; safety-related deployments follow their own',
   'validation process and local rules.',
 ];
+
+/** A metric for a text report: 3 significant digits in exponent form, 0 as 0, non-finite values by name. */
+export function numText(x: number): string {
+  if (Number.isNaN(x)) return 'NaN';
+  if (!Number.isFinite(x)) return x > 0 ? 'inf' : '-inf';
+  if (x === 0) return '0';
+  return x.toExponential(2);
+}
+
+/** A ratio such as a channel-range spread: a plain number with up to 1 decimal, or inf. */
+export function ratioText(x: number): string {
+  if (Number.isNaN(x)) return 'NaN';
+  if (!Number.isFinite(x)) return 'inf';
+  return x >= 1000 ? x.toExponential(1) : x.toFixed(1);
+}
+
+/** Cosine similarity: shown as its distance from 1, which is what matters when it is near 1. */
+export function cosineText(c: number): string {
+  if (!Number.isFinite(c)) return String(c);
+  const d = 1 - c;
+  return d === 0 ? '1' : d > 0 && d < 1e-3 ? `1-${d.toExponential(1)}` : c.toFixed(6);
+}
+
+export function plural(n: number, one: string, many = `${one}s`): string {
+  return `${n} ${n === 1 ? one : many}`;
+}
+
+/** Report formats: stdout's --format and the --report files. */
+export const FORMATS = ['text', 'json', 'junit', 'markdown'] as const;
+export type Format = (typeof FORMATS)[number];

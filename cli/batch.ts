@@ -1,0 +1,73 @@
+// Running fold or audit over one or many models. One model runs in this process; several run on a pool of
+// worker threads (one per core, never more than there are models), each calling the same library job. Results
+// come back in input order whatever order the workers finish in, and a model that fails (bad input, or a bug)
+// becomes an error entry: it never stops the others. The batch's exit code is the worst of its models.
+import { Worker } from 'node:worker_threads';
+import { availableParallelism } from 'node:os';
+import { isPleatError } from '../src/errors.js';
+import { audit, fold } from '../src/index.js';
+import type { AuditJobOptions, AuditReport, FoldJobOptions, FoldReport } from '../src/jobs/types.js';
+import { EXIT } from '../src/report/exit-codes.js';
+import type { Outcome } from '../src/report/render.js';
+import type { Progress } from './progress.js';
+
+export type Job =
+  | { command: 'fold'; model: string; output: string; opts: FoldJobOptions }
+  | { command: 'audit'; model: string; opts: AuditJobOptions };
+
+export type JobOutcome = Outcome<FoldReport | AuditReport>;
+
+/** Run one job here and now; errors are thrown (a single model's error ends the command as usual). */
+export function runJob(job: Job): JobOutcome {
+  const report = job.command === 'fold' ? fold(job.model, job.output, job.opts) : audit(job.model, job.opts);
+  return { model: job.model, report, exitCode: report.failed ? EXIT.failed : EXIT.ok };
+}
+
+/** Run one job of a batch; expected failures and bugs both become an outcome. */
+export function runOne(job: Job): JobOutcome {
+  try {
+    return runJob(job);
+  } catch (e) {
+    if (isPleatError(e)) {
+      // in a batch every line must say which model it is about
+      const message = e.message.includes(job.model) ? e.message : `${job.model}: ${e.message}`;
+      return { model: job.model, error: { kind: e.kind, message }, exitCode: EXIT.badInput };
+    }
+    const msg = e instanceof Error ? e.message.split('\n')[0] : String(e);
+    return { model: job.model, error: { kind: 'internal', message: `internal error while processing ${job.model}: ${msg} (this is a bug; rerun with PLEAT_DEBUG=1 and report it)` }, exitCode: EXIT.internal };
+  }
+}
+
+const crashed = (job: Job, why: string): JobOutcome => ({
+  model: job.model, error: { kind: 'internal', message: `internal error: the worker processing ${job.model} stopped (${why}); this is a bug, please report it` }, exitCode: EXIT.internal,
+});
+
+/** Run jobs on `workers` threads (default: one per core); outcomes in the order of `jobs`. */
+export async function runBatch(jobs: readonly Job[], progress: Progress, workers = availableParallelism()): Promise<JobOutcome[]> {
+  const results: JobOutcome[] = new Array(jobs.length);
+  if (jobs.length === 1) {
+    results[0] = runJob(jobs[0]!);
+    progress.tick(jobs[0]!.model);
+    return results;
+  }
+  let next = 0;
+  const lane = (): Promise<void> => new Promise((resolve) => {
+    if (next >= jobs.length) { resolve(); return; }
+    const w = new Worker(new URL('./batch-worker.js', import.meta.url));
+    let current = -1;
+    const finish = (i: number, o: JobOutcome) => { results[i] = o; progress.tick(jobs[i]!.model); };
+    const feed = () => {
+      if (next >= jobs.length) { current = -1; void w.terminate().then(() => resolve()); return; }
+      current = next++;
+      w.postMessage({ index: current, job: jobs[current] });
+    };
+    w.on('message', (m: { index: number; outcome: JobOutcome }) => { finish(m.index, m.outcome); feed(); });
+    // a worker that dies takes only its current model with it; the lane starts over with a fresh worker
+    w.on('error', (e) => { if (current >= 0) finish(current, crashed(jobs[current]!, e.message.split('\n')[0]!)); current = -1; void lane().then(resolve); });
+    w.on('exit', (code) => { if (current >= 0) { finish(current, crashed(jobs[current]!, `exit code ${code}`)); current = -1; void lane().then(resolve); } });
+    feed();
+  });
+  const n = Math.max(1, Math.min(workers, jobs.length));
+  await Promise.all(Array.from({ length: n }, () => lane()));
+  return results;
+}

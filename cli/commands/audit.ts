@@ -1,0 +1,40 @@
+import type { Argv } from 'yargs';
+import { keepList, loadConfig } from '../config.js';
+import type { Job } from '../batch.js';
+import { emit, planReports, reportErrors } from '../output.js';
+import { startProgress } from '../progress.js';
+import { configFlags, EPILOGUE, many, reportFlags } from '../flags.js';
+
+export const command = 'audit <models..>';
+export const describe = 'The fold analysis without writing: every normalization, its status (foldable or kept), reason and hint';
+
+export function builder(y: Argv) {
+  return configFlags(reportFlags(y
+    .positional('models', { type: 'string', array: true, demandOption: true, describe: 'the .onnx file(s)' })
+    .option('fail-on', { type: 'string', choices: ['kept'], describe: 'exit 1 when a normalization is kept (JUnit: a failure per kept one)' })
+    .option('keep', { type: 'string', coerce: many, describe: 'treat this normalization node as kept by choice; repeatable' })
+    .option('quiet', { type: 'boolean', default: false, describe: 'no progress bar' })))
+    .epilogue(EPILOGUE);
+}
+
+interface Flags { models: string[]; failOn?: 'kept'; keep?: string[]; json?: boolean; format?: string; report?: string[]; config?: string; quiet: boolean }
+
+export async function handler(argv: Flags): Promise<void> {
+  const plan = planReports(argv);
+  const { config } = loadConfig(argv.config);
+  const opts = { keep: keepList(config, argv.keep), failOn: argv.failOn ?? config.failOn };
+  const jobs: Job[] = argv.models.map((model) => ({ command: 'audit', model, opts }));
+  // loaded here, not at start-up: the library is large, and --help or a usage error needs none of it
+  const { runBatch } = await import('../batch.js');
+  const { renderJobs, isJobError } = await import('../../src/report/render.js');
+  const progress = startProgress(jobs.length, 'audit', { quiet: argv.quiet });
+  let outcomes;
+  try {
+    outcomes = await runBatch(jobs, progress);
+  } finally {
+    progress.end(); // erase the bar before any output, error lines included
+  }
+  reportErrors(outcomes.filter(isJobError).map((o) => o.error.message));
+  await emit(plan, (format, colour) => renderJobs('audit', outcomes, format, colour));
+  process.exitCode = Math.max(0, ...outcomes.map((o) => o.exitCode));
+}

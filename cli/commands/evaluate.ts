@@ -1,0 +1,40 @@
+import type { Argv } from 'yargs';
+import { join } from 'node:path';
+import { SCHEMA_VERSION } from '../../src/jobs/types.js';
+import { loadConfig, runSettings } from '../config.js';
+import { out } from '../errors.js';
+import { configFlags, EPILOGUE, inputFlags } from '../flags.js';
+
+export const command = 'evaluate <model>';
+export const describe = 'Evaluate a model on given or seeded inputs and save each output as DIR/<output>.npy with an index';
+
+export function builder(y: Argv) {
+  return configFlags(inputFlags(y
+    .positional('model', { type: 'string', demandOption: true, describe: 'the .onnx file' })
+    .option('precision', { type: 'string', choices: ['float64', 'float32'], default: 'float64', describe: 'arithmetic: float64 (ground truth) or float32 (deployment)' })
+    .option('save', { type: 'string', demandOption: true, describe: 'folder for the .npy outputs and outputs.json' })
+    .option('json', { type: 'boolean', default: false, describe: 'print what was saved as JSON' })))
+    .epilogue(EPILOGUE);
+}
+
+interface Flags { model: string; precision: 'float64' | 'float32'; save: string; json: boolean; seed?: number; input?: string[]; shape?: string[]; dim?: string[]; config?: string }
+
+export async function handler(argv: Flags): Promise<void> {
+  const { config } = loadConfig(argv.config);
+  const run = runSettings(config, argv);
+  // loaded here, not at start-up (see compare.ts)
+  const { evaluate, saveOutputs } = await import('../../src/index.js');
+  const { toJsonText } = await import('../../src/verify/compare.js');
+  const r = evaluate(argv.model, { inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, precision: argv.precision });
+  const saved = saveOutputs(argv.save, r.outputs);
+  const outputs = saved.files.map((f) => ({ ...f, dtype: r.outputs.get(f.name)!.type, dims: [...r.outputs.get(f.name)!.dims] }));
+  if (argv.json) {
+    await out(toJsonText({ schemaVersion: SCHEMA_VERSION, command: 'evaluate', model: argv.model, precision: r.precision, seed: r.seed, inputs: r.inputSummary, dir: argv.save, outputs }));
+    return;
+  }
+  const lines = [`evaluate ${argv.model} (${r.precision}, seed ${r.seed}) -> ${argv.save}`];
+  for (const i of r.inputSummary) lines.push(`  input  ${i.name} [${i.dims.join('x')}] ${i.source === 'file' ? `from ${i.file}` : 'seeded probe'}`);
+  for (const o of outputs) lines.push(`  output ${o.name} [${o.dims.join('x')}] -> ${join(argv.save, o.file)}`);
+  lines.push(`  index  ${join(argv.save, 'outputs.json')}`);
+  await out(lines.join('\n') + '\n');
+}

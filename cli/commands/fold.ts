@@ -1,0 +1,75 @@
+import type { Argv } from 'yargs';
+import { mkdirSync } from 'node:fs';
+import { basename, join } from 'node:path';
+import { PleatError } from '../../src/errors.js';
+import type { FoldJobOptions } from '../../src/jobs/types.js';
+import { keepList, loadConfig, runSettings } from '../config.js';
+import type { Job } from '../batch.js';
+import { emit, planReports, reportErrors } from '../output.js';
+import { startProgress } from '../progress.js';
+import { configFlags, EPILOGUE, inputFlags, many, reportFlags } from '../flags.js';
+
+export const command = 'fold <models..>';
+export const describe = 'Fold every normalization it safely can, prove each fold, write the folded model, print the ledger';
+
+export function builder(y: Argv) {
+  return configFlags(reportFlags(inputFlags(y
+    .positional('models', { type: 'string', array: true, demandOption: true, describe: 'the .onnx file(s)' })
+    .option('out', { alias: 'o', type: 'string', describe: 'the folded model to write (one input model)' })
+    .option('out-dir', { type: 'string', describe: 'folder for the folded models, same file names (several input models)' })
+    .option('keep', { type: 'string', coerce: many, describe: 'leave this normalization node in place; repeatable' })
+    .option('store', { type: 'string', choices: ['float16'], describe: 'store folded weights in half precision' })
+    .option('gate', { type: 'string', describe: 'gate for the whole-model check, e.g. "maxAbs < 1e-4 and cosine > 0.99999"' })
+    .option('probes', { type: 'number', describe: 'number of seeded probes for the whole-model check (default 2)' })
+    .option('quiet', { type: 'boolean', default: false, describe: 'no progress bar' }))))
+    .epilogue(EPILOGUE);
+}
+
+interface Flags {
+  models: string[]; out?: string; outDir?: string; keep?: string[]; store?: 'float16'; gate?: string; probes?: number; seed?: number;
+  input?: string[]; shape?: string[]; dim?: string[]; json?: boolean; format?: string; report?: string[]; config?: string; quiet: boolean;
+}
+
+/** Where each model's folded copy goes: -o for one model, --out-dir for any number. */
+function outputsFor(models: string[], out: string | undefined, outDir: string | undefined): string[] {
+  if (out !== undefined && outDir !== undefined) throw new PleatError('usage', 'give either -o/--out or --out-dir, not both');
+  if (out !== undefined) {
+    if (models.length > 1) throw new PleatError('usage', `-o names one output but ${models.length} models were given; use --out-dir DIR`);
+    return [out];
+  }
+  if (outDir === undefined) throw new PleatError('usage', 'fold needs -o OUT (one model) or --out-dir DIR (any number of models)');
+  const names = models.map((m) => basename(m));
+  const twin = names.find((n, i) => names.indexOf(n) !== i);
+  if (twin) throw new PleatError('usage', `two input models are both named '${twin}', so --out-dir would write them to one file; fold them separately`);
+  try {
+    mkdirSync(outDir, { recursive: true });
+  } catch (e) {
+    throw new PleatError('bad-input', `--out-dir ${outDir}: cannot create the folder (${(e as NodeJS.ErrnoException).code ?? String(e)})`);
+  }
+  return names.map((n) => join(outDir, n));
+}
+
+export async function handler(argv: Flags): Promise<void> {
+  const plan = planReports(argv);
+  const { config } = loadConfig(argv.config);
+  const run = runSettings(config, argv);
+  const outputs = outputsFor(argv.models, argv.out, argv.outDir);
+  const opts: FoldJobOptions = {
+    inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, probes: run.probes, gate: run.gate,
+    keep: keepList(config, argv.keep), store: argv.store ?? config.store,
+  };
+  const jobs: Job[] = argv.models.map((model, i) => ({ command: 'fold', model, output: outputs[i]!, opts }));
+  // loaded here, not at start-up: the library is large, and --help or a usage error needs none of it
+  const { runBatch } = await import('../batch.js');
+  const { renderJobs, isJobError } = await import('../../src/report/render.js');
+  const progress = startProgress(jobs.length, 'fold', { quiet: argv.quiet });
+  let outcomes;
+  try {
+    outcomes = await runBatch(jobs, progress);
+  } finally {
+    progress.end(); // erase the bar before any output, error lines included
+  }
+  reportErrors(outcomes.filter(isJobError).map((o) => o.error.message));
+  await emit(plan, (format, colour) => renderJobs('fold', outcomes, format, colour));
+  process.exitCode = Math.max(0, ...outcomes.map((o) => o.exitCode));
+}

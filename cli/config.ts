@@ -1,0 +1,113 @@
+// Defaults from a config file (pleat.config.json in the working directory, or --config FILE), merged with
+// flags. Flags override the file: a --dim or --shape replaces the file's entry for that name, --gate, --probes,
+// --seed, --store and --fail-on replace the file's value, and --keep adds to the file's keep list (a node the
+// team chose to keep stays kept). Unknown keys are an error naming the key, so a typo never passes silently.
+import { existsSync, readFileSync } from 'node:fs';
+import { join } from 'node:path';
+import { PleatError } from '../src/errors.js';
+import { loadInputFiles, parseInputFlags, type InputValue } from '../src/verify/inputs.js';
+
+export const CONFIG_FILE = 'pleat.config.json';
+
+export interface PleatConfig {
+  /** Sizes of symbolic dims, e.g. { "batch": 1 }. */
+  dims?: Record<string, number>;
+  /** Input shapes, e.g. { "image": "1x3x224x224" } or { "image": [1, 3, 224, 224] }. */
+  shapes?: Record<string, string | number[]>;
+  /** Gate expression for whole-model checks and compare. */
+  gate?: string;
+  /** Nodes to leave in place. */
+  keep?: string[];
+  failOn?: 'kept';
+  probes?: number;
+  seed?: number;
+  store?: 'float16';
+}
+
+type Check = (v: unknown) => boolean;
+const isInt = (v: unknown) => typeof v === 'number' && Number.isInteger(v) && v >= 0;
+const isRecord = (v: unknown): v is Record<string, unknown> => typeof v === 'object' && v !== null && !Array.isArray(v);
+
+const KEYS: Record<keyof PleatConfig, { check: Check; want: string }> = {
+  dims: { check: (v) => isRecord(v) && Object.values(v).every(isInt), want: 'an object of whole numbers, e.g. {"batch": 1}' },
+  shapes: {
+    check: (v) => isRecord(v) && Object.values(v).every((s) => typeof s === 'string' || (Array.isArray(s) && s.every(isInt))),
+    want: 'an object of shapes, e.g. {"image": "1x3x224x224"}',
+  },
+  gate: { check: (v) => typeof v === 'string' && v.trim() !== '', want: 'a gate expression string' },
+  keep: { check: (v) => Array.isArray(v) && v.every((s) => typeof s === 'string'), want: 'an array of node names' },
+  failOn: { check: (v) => v === 'kept', want: '"kept"' },
+  probes: { check: (v) => isInt(v) && (v as number) >= 1, want: 'a whole number of at least 1' },
+  seed: { check: (v) => typeof v === 'number' && Number.isInteger(v), want: 'a whole number' },
+  store: { check: (v) => v === 'float16', want: '"float16"' },
+};
+
+/** Read and check a config file: --config FILE when given, else pleat.config.json in `cwd` when present. */
+export function loadConfig(explicit: string | undefined, cwd = process.cwd()): { config: PleatConfig; file: string | null } {
+  const file = explicit ?? join(cwd, CONFIG_FILE);
+  if (explicit === undefined && !existsSync(file)) return { config: {}, file: null };
+  let text: string;
+  try {
+    text = readFileSync(file, 'utf8');
+  } catch (e) {
+    throw new PleatError('bad-input', `--config ${file}: cannot read (${(e as NodeJS.ErrnoException).code ?? String(e)})`);
+  }
+  let raw: unknown;
+  try {
+    raw = JSON.parse(text);
+  } catch (e) {
+    throw new PleatError('bad-input', `${file}: not valid JSON (${(e as Error).message.split('\n')[0]})`);
+  }
+  if (!isRecord(raw)) throw new PleatError('bad-input', `${file}: expected a JSON object of settings`);
+  for (const [key, value] of Object.entries(raw)) {
+    const rule = (KEYS as Record<string, { check: Check; want: string } | undefined>)[key];
+    if (!rule) throw new PleatError('usage', `${file}: unknown key '${key}' (known keys: ${Object.keys(KEYS).join(', ')})`);
+    if (!rule.check(value)) throw new PleatError('usage', `${file}: '${key}' should be ${rule.want}`);
+  }
+  return { config: raw as PleatConfig, file };
+}
+
+/** The flags every command that runs a model shares (raw, as yargs parsed them). */
+export interface RunFlags {
+  input?: string[];
+  shape?: string[];
+  dim?: string[];
+  seed?: number;
+  probes?: number;
+  gate?: string;
+}
+
+export interface RunSettings {
+  inputs: Map<string, InputValue>;
+  shapes: Map<string, number[]>;
+  dims: Map<string, number>;
+  seed?: number;
+  probes?: number;
+  gate?: string;
+}
+
+/** Flags over config: input values loaded, shapes and dims merged per name, scalars taken from flags first. */
+export function runSettings(config: PleatConfig, flags: RunFlags): RunSettings {
+  const fromFlags = parseInputFlags({ input: flags.input, shape: flags.shape, dim: flags.dim });
+  const fromConfig = parseInputFlags({
+    shape: Object.entries(config.shapes ?? {}).map(([k, v]) => `${k}=${Array.isArray(v) ? v.join('x') : v}`),
+    dim: Object.entries(config.dims ?? {}).map(([k, v]) => `${k}=${v}`),
+  });
+  for (const [flag, v] of [['seed', flags.seed], ['probes', flags.probes]] as const) {
+    if (v !== undefined && !Number.isInteger(v)) throw new PleatError('usage', `--${flag}: give a whole number`);
+  }
+  return {
+    inputs: loadInputFiles(fromFlags.files),
+    shapes: new Map([...fromConfig.shapes, ...fromFlags.shapes]),
+    dims: new Map([...fromConfig.dims, ...fromFlags.dims]),
+    seed: flags.seed ?? config.seed,
+    probes: flags.probes ?? config.probes,
+    gate: flags.gate ?? config.gate,
+  };
+}
+
+/** --keep adds to the config's keep list (first appearance wins the order). */
+export function keepList(config: PleatConfig, flags: readonly string[] | undefined): string[] | undefined {
+  const all = [...(config.keep ?? []), ...(flags ?? [])];
+  return all.length ? [...new Set(all)] : undefined;
+}

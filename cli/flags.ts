@@ -1,0 +1,30 @@
+// Flag definitions shared by several commands, spelled as shared/VOCABULARY.md lists them.
+import type { Argv } from 'yargs';
+
+/**
+ * A repeatable flag taking one value each time (--keep a --keep b). Not yargs' `array`, which would swallow the
+ * model paths that follow the first value.
+ */
+export const many = (v: unknown): string[] => (v === undefined ? [] : (Array.isArray(v) ? v : [v]).map(String));
+import { EXIT_CODES_TEXT } from '../src/report/exit-codes.js';
+
+export function inputFlags<T>(y: Argv<T>) {
+  return y
+    .option('input', { type: 'string', coerce: many, describe: 'NAME=FILE.npy (or .pb TensorProto): a value for an input; repeatable' })
+    .option('shape', { type: 'string', coerce: many, describe: 'NAME=1x3x224x224: the shape of an input; repeatable' })
+    .option('dim', { type: 'string', coerce: many, describe: 'SYMBOL=N: the size of a dynamic dim; repeatable' })
+    .option('seed', { type: 'number', describe: 'seed of the generated probe values (default 0)' });
+}
+
+export function reportFlags<T>(y: Argv<T>) {
+  return y
+    .option('json', { type: 'boolean', describe: 'print the report as JSON (same as --format json)' })
+    .option('format', { type: 'string', choices: ['text', 'json', 'junit', 'markdown'], describe: 'report format on stdout (default text)' })
+    .option('report', { type: 'string', coerce: many, describe: 'also write a report file: FILE (.json, .xml = junit, .md, .txt) or FORMAT:FILE; repeatable, one per format' });
+}
+
+export function configFlags<T>(y: Argv<T>) {
+  return y.option('config', { type: 'string', describe: 'defaults from this JSON file (else pleat.config.json here, if present); flags override it' });
+}
+
+export const EPILOGUE = EXIT_CODES_TEXT;

@@ -1,0 +1,36 @@
+// Turning results into output: which format stdout gets (--format, or --json as its shorthand), the
+// --report files (each written atomically), and colour only for a person at a terminal.
+import { PleatError } from '../src/errors.js';
+import { FORMATS, useColour, type Format } from '../src/report/format.js';
+import { parseReportSpecs, writeReportFile } from '../src/report/files.js';
+import { out } from './errors.js';
+
+export interface ReportFlags {
+  json?: boolean;
+  format?: string;
+  report?: string[];
+}
+
+/** The stdout format: --format, with --json meaning --format json (the two must not disagree). */
+export function stdoutFormat(flags: ReportFlags): Format {
+  const f = flags.format ?? (flags.json ? 'json' : 'text');
+  if (!(FORMATS as readonly string[]).includes(f)) throw new PleatError('usage', `--format ${f}: choose one of ${FORMATS.join(', ')}`);
+  if (flags.json && f !== 'json') throw new PleatError('usage', `--json and --format ${f} disagree; give one of them`);
+  return f as Format;
+}
+
+/** Check flags before any work runs, so a usage error never costs a long job. */
+export function planReports(flags: ReportFlags): { format: Format; files: ReturnType<typeof parseReportSpecs> } {
+  return { format: stdoutFormat(flags), files: parseReportSpecs(flags.report ?? []) };
+}
+
+/** Print stdout's report (coloured only on a TTY without NO_COLOR) and write every --report file (never coloured). */
+export async function emit(plan: ReturnType<typeof planReports>, render: (format: Format, colour: boolean) => string): Promise<void> {
+  for (const spec of plan.files) writeReportFile(spec.file, render(spec.format, false));
+  await out(render(plan.format, plan.format === 'text' && useColour(process.stdout)));
+}
+
+/** One line per failed model on stderr, in input order, as a single-model run would print it. */
+export function reportErrors(lines: readonly string[]): void {
+  for (const l of lines) process.stderr.write(`pleat: ${l}\n`);
+}

@@ -1,0 +1,19 @@
+// export's report as text: fold's ledger (export folds first), then what the bundle holds and where, then the
+// caution lines.
+import type { ExportReport } from '../jobs/export.js';
+import { bytesText, CAUTION, plural } from './format.js';
+import { foldText } from './ledger-text.js';
+import { paint } from './paint.js';
+
+export function exportText(r: ExportReport, colour = false): string {
+  const p = paint(colour);
+  const lines: string[] = [];
+  const b = r.bundle;
+  if (b === null) lines.push(p.bad('bundle: nothing written (the whole-model check failed)'));
+  else {
+    lines.push(p.bold(`bundle ${b.format} -> ${b.dir}: ${plural(b.tensors, 'tensor')}, ${bytesText(b.bytes)}`));
+    for (const f of b.files) lines.push(`  wrote ${f}`);
+    for (const s of b.skipped) lines.push(`  ${p.warn('skipped')} ${s.name} (${s.reason}): ${s.note}`);
+  }
+  return foldText({ ...r.fold, output: b === null ? null : `bundle ${b.dir}` }, colour, false) + lines.join('\n') + '\n' + CAUTION.join('\n') + '\n';
+}

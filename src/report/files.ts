@@ -1,0 +1,48 @@
+// --report FILE: which format each report file gets, and writing it atomically (temporary file in the same
+// folder, then rename), so a reader never sees a partial report.
+import { renameSync, rmSync, writeFileSync } from 'node:fs';
+import { basename, dirname, extname, join } from 'node:path';
+import { PleatError } from '../errors.js';
+import { FORMATS, type Format } from './format.js';
+
+export interface ReportSpec { format: Format; file: string }
+
+const BY_EXTENSION: Record<string, Format> = {
+  '.json': 'json', '.xml': 'junit', '.md': 'markdown', '.markdown': 'markdown', '.txt': 'text', '.log': 'text',
+};
+
+/** Parse `--report FILE` (format from the extension) or `--report FORMAT:FILE`; one file per format. */
+export function parseReportSpecs(list: readonly string[]): ReportSpec[] {
+  const out: ReportSpec[] = [];
+  for (const text of list) {
+    const colon = text.indexOf(':');
+    const prefix = colon > 0 ? text.slice(0, colon) : '';
+    let spec: ReportSpec;
+    if ((FORMATS as readonly string[]).includes(prefix)) {
+      spec = { format: prefix as Format, file: text.slice(colon + 1) };
+    } else {
+      const format = BY_EXTENSION[extname(text).toLowerCase()];
+      if (!format) {
+        throw new PleatError('usage', `--report '${text}': cannot tell the format from the extension; use .json, .xml (junit), .md or .txt, or write FORMAT:FILE (formats: ${FORMATS.join(', ')})`);
+      }
+      spec = { format, file: text };
+    }
+    if (spec.file === '') throw new PleatError('usage', `--report '${text}' names no file`);
+    const twin = out.find((s) => s.format === spec.format);
+    if (twin) throw new PleatError('usage', `--report: two files for the ${spec.format} format ('${twin.file}' and '${spec.file}'); give one file per format`);
+    out.push(spec);
+  }
+  return out;
+}
+
+/** Write text to a temporary name beside the file, then rename it into place. */
+export function writeReportFile(file: string, text: string): void {
+  const tmp = join(dirname(file), `.${basename(file)}.tmp-${process.pid}`);
+  try {
+    writeFileSync(tmp, text);
+    renameSync(tmp, file);
+  } catch (e) {
+    rmSync(tmp, { force: true });
+    throw new PleatError('bad-input', `--report ${file}: cannot write (${(e as NodeJS.ErrnoException).code ?? String(e)})`);
+  }
+}

@@ -1,0 +1,77 @@
+// fold's report as text: a ledger with one line per normalization (folded into what, or kept and why, with
+// the hint), a totals line, then the whole-model check per output, quantization readiness, storage, and the
+// caution lines. Our own layout; nothing here compares operator counts side by side.
+import type { FoldReport, CheckSummary, QuantRow, StorageSummary } from '../jobs/types.js';
+import type { LedgerEntry } from '../fold/types.js';
+import { bytesText, CAUTION, cosineText, numText, plural, ratioText } from './format.js';
+import { paint, type Paint } from './paint.js';
+import { SPREAD_LIMIT } from './quant.js';
+
+const where = (graph: string) => (graph === 'main' ? '' : `  in ${graph}`);
+
+/** One ledger line per entry, columns padded to the widest node and op of this report. */
+export function ledgerLines(entries: ReadonlyArray<Pick<LedgerEntry, 'node' | 'op' | 'direction' | 'target' | 'reason' | 'hint' | 'graph'> & { status: string }>, p: Paint): string[] {
+  const nodeW = Math.max(0, ...entries.map((e) => e.node.length));
+  const opW = Math.max(0, ...entries.map((e) => e.op.length));
+  return entries.map((e) => {
+    const head = `${e.node.padEnd(nodeW)}  ${e.op.padEnd(opW)}`;
+    if (e.status === 'kept') {
+      return `  ${p.warn('kept     ')}${head}  ${p.warn(e.reason ?? 'kept')}: ${e.hint}${where(e.graph)}`;
+    }
+    const mark = e.status === 'folded' ? p.good('folded   ') : p.good('foldable ');
+    return `  ${mark}${head}  into ${e.target ?? '?'} (${e.direction ?? '?'}): ${e.hint}${where(e.graph)}`;
+  });
+}
+
+export function checkLines(c: CheckSummary | null, p: Paint): string[] {
+  if (c === null) return ['whole-model check: not run'];
+  if (c.skipped !== null) return [`whole-model check: ${p.warn('skipped')}: ${c.skipped}`];
+  const lines = [`whole-model check: ${c.passed ? p.good('passed') : p.bad('FAILED')} (${plural(c.probes, 'probe')}, seed ${c.seed})`];
+  const w = Math.max(0, ...c.outputs.map((o) => o.name.length));
+  for (const o of c.outputs) {
+    const verdict = o.passed ? p.good('pass') : p.bad('FAIL');
+    if (o.problem && Number.isNaN(o.maxAbs)) { // not compared at all (missing output, shape differs)
+      lines.push(`  ${o.name.padEnd(w)}  ${verdict}  ${o.problem}`);
+      continue;
+    }
+    lines.push(`  ${o.name.padEnd(w)}  ${verdict}  maxAbs ${numText(o.maxAbs)}  maxRel ${numText(o.maxRel)}  rms ${numText(o.rms)}  cosine ${cosineText(o.cosine)}`);
+  }
+  for (const g of c.gates) lines.push(`  gate: ${g}`);
+  return lines;
+}
+
+export function quantLines(rows: readonly QuantRow[], p: Paint): string[] {
+  if (rows.length === 0) return [];
+  const lines = [`quantization readiness (widest / median output-channel weight range; flagged above ${SPREAD_LIMIT})`];
+  const w = Math.max(0, ...rows.map((r) => r.target.length));
+  const cw = Math.max(0, ...rows.map((r) => plural(r.channels, 'channel').length));
+  for (const r of rows) {
+    const flag = r.flagged ? `  ${p.warn('flagged')}: per-tensor 8-bit weights would starve the narrow channels; use per-channel scales` : '';
+    lines.push(`  ${r.target.padEnd(w)}  ${plural(r.channels, 'channel').padEnd(cw)}  spread ${ratioText(r.spreadBefore)} -> ${ratioText(r.spreadAfter)}${flag}`);
+  }
+  return lines;
+}
+
+export function storageLines(s: StorageSummary | null): string[] {
+  if (s === null) return [];
+  const lines = [`storage ${s.store}: ${plural(s.tensorsConverted, 'tensor')} converted, ${bytesText(s.bytesBefore)} -> ${bytesText(s.bytesAfter)} (${bytesText(Math.max(0, s.bytesBefore - s.bytesAfter))} saved)`];
+  if (s.keptFloat32.length) lines.push(`  kept float32 (would overflow float16): ${s.keptFloat32.join(', ')}`);
+  return lines;
+}
+
+export function foldText(r: FoldReport, colour = false, caution = true): string {
+  const p = paint(colour);
+  const folded = r.normalizations.filter((e) => e.status === 'folded').length;
+  const kept = r.normalizations.length - folded;
+  const dest = r.output ?? (r.failed ? p.bad('nothing written (check failed)') : 'nothing written');
+  const lines = [p.bold(`fold ${r.model} -> ${dest}`)];
+  if (r.normalizations.length === 0) lines.push('  no normalizations found');
+  lines.push(...ledgerLines(r.normalizations, p));
+  const nodesRemoved = r.nodesBefore - r.nodesAfter;
+  const bytesRemoved = r.bytesBefore - r.bytesAfter;
+  lines.push(`  ${folded} folded, ${kept} kept; ${plural(nodesRemoved, 'node')} removed (${r.nodesBefore} -> ${r.nodesAfter}); ` +
+    `${bytesText(Math.max(0, bytesRemoved))} of weights saved (${bytesText(r.bytesBefore)} -> ${bytesText(r.bytesAfter)})`);
+  lines.push(...checkLines(r.check, p), ...quantLines(r.quantization, p), ...storageLines(r.storage));
+  if (caution) lines.push(...CAUTION);
+  return lines.join('\n') + '\n';
+}

@@ -1,0 +1,70 @@
+// Reports as Markdown for a pull-request comment: a heading with the verdict, one summary line, a table of
+// the normalizations (kept ones first, since those are what a reviewer asks about), flagged quantization rows,
+// and the caution as a quote.
+import type { AuditReport, FoldReport } from '../jobs/types.js';
+import type { CompareReport } from '../verify/compare.js';
+import { bytesText, CAUTION, cosineText, numText, ratioText } from './format.js';
+
+/** Text safe inside a table cell: pipes escaped, HTML-looking text neutralised, line breaks flattened. */
+export function cell(s: string): string {
+  return s.replace(/\\/g, '\\\\').replace(/\|/g, '\\|').replace(/</g, '&lt;').replace(/>/g, '&gt;').replace(/[\r\n]+/g, ' ');
+}
+const code = (s: string) => `\`${s.replace(/`/g, "'")}\``;
+
+interface Row { node: string; op: string; status: string; direction: string | null; target: string | null; reason: string | null; hint: string; graph: string }
+
+function table(rows: readonly Row[]): string[] {
+  if (rows.length === 0) return ['No normalizations found.'];
+  const order = [...rows].sort((x, y) => Number(y.status === 'kept') - Number(x.status === 'kept'));
+  const out = ['| normalization | op | status | detail |', '|---|---|---|---|'];
+  for (const e of order) {
+    const where = e.graph === 'main' ? '' : ` (in ${code(e.graph)})`;
+    const detail = e.status === 'kept' ? `${code(e.reason ?? 'kept')}: ${e.hint}` : `into ${code(e.target ?? '?')} (${e.direction ?? '?'})`;
+    out.push(`| ${cell(code(e.node) + where)} | ${cell(e.op)} | ${e.status} | ${cell(detail)} |`);
+  }
+  return out;
+}
+
+const caution = () => ['', `> ${CAUTION.join(' ')}`];
+
+export function foldMarkdown(r: FoldReport): string {
+  const folded = r.normalizations.filter((e) => e.status === 'folded').length;
+  const verdict = r.failed ? 'failed: nothing written' : 'done';
+  const out = [`### pleat fold ${code(r.model)}: ${verdict}`, ''];
+  const check = r.check === null ? 'not run' : r.check.skipped !== null ? `skipped (${r.check.skipped})`
+    : `${r.check.passed ? 'passed' : '**failed**'} on ${r.check.outputs.length} output(s), worst maxAbs ${numText(Math.max(0, ...r.check.outputs.map((o) => o.maxAbs)))}`;
+  out.push(`**${folded} folded, ${r.normalizations.length - folded} kept**; nodes ${r.nodesBefore} → ${r.nodesAfter}; ` +
+    `weights ${bytesText(r.bytesBefore)} → ${bytesText(r.bytesAfter)}; whole-model check ${check}.`, '');
+  out.push(...table(r.normalizations));
+  const flagged = r.quantization.filter((q) => q.flagged);
+  if (flagged.length) {
+    out.push('', `Quantization readiness: ${flagged.length} layer(s) flagged for per-tensor 8-bit weights: ` +
+      flagged.map((q) => `${code(q.target)} spread ${ratioText(q.spreadBefore)} → ${ratioText(q.spreadAfter)}`).join(', ') + '.');
+  }
+  if (r.storage) out.push('', `Half-precision storage: ${r.storage.tensorsConverted} tensor(s), ${bytesText(r.storage.bytesBefore)} → ${bytesText(r.storage.bytesAfter)}.`);
+  out.push(...caution());
+  return out.join('\n') + '\n';
+}
+
+export function auditMarkdown(r: AuditReport): string {
+  const verdict = r.failed ? 'failed (--fail-on kept)' : 'done';
+  const out = [`### pleat audit ${code(r.model)}: ${verdict}`, '', `**${r.foldable} foldable, ${r.kept} kept.**`, ''];
+  out.push(...table(r.normalizations), ...caution());
+  return out.join('\n') + '\n';
+}
+
+export function compareMarkdown(r: CompareReport, a: string, b: string): string {
+  const out = [`### pleat compare ${code(a)} with ${code(b)}: ${r.passed ? 'passed' : 'failed'}`, '',
+    `${r.probes} probe(s), seed ${r.seed}.`, '', '| output | result | maxAbs | maxRel | cosine |', '|---|---|---|---|---|'];
+  for (const o of r.outputs) {
+    const m = o.metrics;
+    out.push(`| ${cell(code(o.name))} | ${o.passed ? 'pass' : cell(`**fail**: ${o.problem ?? o.status}`)} | ${m ? numText(m.maxAbs) : ''} | ${m ? numText(m.maxRel) : ''} | ${m ? cosineText(m.cosine) : ''} |`);
+  }
+  out.push(...caution());
+  return out.join('\n') + '\n';
+}
+
+/** A model a batch could not process. */
+export function errorMarkdown(command: string, model: string, message: string): string {
+  return `### pleat ${command} ${code(model)}: error\n\n${message}\n`;
+}

@@ -1,0 +1,147 @@
+// Quantization readiness of folded layers (report only). Folding a normalization scales each output channel
+// of a layer's weights by its own factor gamma/sqrt(var + eps); channels whose running variance was tiny get
+// huge factors, so after the fold the per-channel weight ranges can differ by orders of magnitude (Nagel et al.
+// 2019, "Data-Free Quantization Through Weight Equalization and Bias Correction", arXiv:1906.04721, section 3).
+// A per-tensor 8-bit scale is set by the widest channel, so narrow channels keep only a few levels.
+//
+// spread = largest per-output-channel range / median per-output-channel range, where a channel's range is
+// max - min of its weights.
+import type { Model, Node } from '../graph/ir.js';
+import { attrInt } from '../graph/ir.js';
+import type { LedgerEntry } from '../fold/types.js';
+import type { QuantRow } from '../jobs/types.js';
+import { buildScopes, constantOf, type Scope } from '../fold/scope.js';
+import { layouts, weightView } from '../fold/weights.js';
+import { tensorToFloat64 } from '../onnx/tensor.js';
+
+/**
+ * Flag when the folded spread exceeds this. A rule of thumb, our own choice: per-tensor 8-bit quantization
+ * spreads 255 levels over the widest channel, so the median channel gets about 255 / spread levels; past a
+ * spread of 16 it gets fewer than 16 levels (under 4 effective bits), where per-tensor quantization of that
+ * layer is generally lossy enough to need per-channel scales or weight equalization.
+ */
+export const SPREAD_LIMIT = 16;
+
+/** max - min of each output channel's weights. `channelOf[k]` maps (axis0, axis1) pair k to its channel. */
+export function channelRanges(values: Float64Array, dims: readonly number[], channelOf: Int32Array, channels: number): Float64Array {
+  const v = weightView(dims);
+  const lo = new Float64Array(channels).fill(Infinity);
+  const hi = new Float64Array(channels).fill(-Infinity);
+  for (let p = 0; p < v.d0 * v.d1; p++) {
+    const c = channelOf[p]!;
+    const base = p * v.inner;
+    for (let i = 0; i < v.inner; i++) {
+      const x = values[base + i]!;
+      if (x < lo[c]!) lo[c] = x;
+      if (x > hi[c]!) hi[c] = x;
+    }
+  }
+  const out = new Float64Array(channels);
+  for (let c = 0; c < channels; c++) out[c] = hi[c]! >= lo[c]! ? hi[c]! - lo[c]! : 0;
+  return out;
+}
+
+/** Largest range / median range (median of an even count: mean of the two middle values). */
+export function spreadOf(ranges: Float64Array): number {
+  if (ranges.length === 0) return 1;
+  const sorted = Float64Array.from(ranges).sort();
+  const n = sorted.length;
+  const median = n % 2 ? sorted[(n - 1) / 2]! : (sorted[n / 2 - 1]! + sorted[n / 2]!) / 2;
+  const max = sorted[n - 1]!;
+  if (median === 0) return max === 0 ? 1 : Infinity;
+  return max / median;
+}
+
+interface LayerWeights { values: Float64Array; dims: number[]; map: Int32Array; channels: number }
+
+/** The weight of a Conv/ConvTranspose/Gemm/MatMul node with its output-channel map, or undefined. */
+function layerWeights(scope: Scope, n: Node): LayerWeights | undefined {
+  const w = n.inputs[1] ? constantOf(scope, n.inputs[1]) : undefined;
+  if (!w) return undefined;
+  const dims = [...w.tensor.dims];
+  const v = weightView(dims);
+  const values = tensorToFloat64(w.tensor);
+  switch (n.opType) {
+    case 'Conv': // W [Cout, Cin/group, k...]: output channel axis 0
+      if (dims.length < 3) return undefined;
+      return { values, dims, map: layouts.convOutput(v), channels: dims[0]! };
+    case 'ConvTranspose': { // W [Cin, Cout/group, k...]: output channel axis 1, times group
+      const group = attrInt(n, 'group', 1);
+      if (dims.length < 3 || group < 1 || dims[0]! % group !== 0) return undefined;
+      return { values, dims, map: layouts.convTransposeOutput(v, group), channels: dims[1]! * group };
+    }
+    case 'Gemm': // B is [K, N], or [N, K] with transB=1
+      if (dims.length !== 2) return undefined;
+      return attrInt(n, 'transB', 0) === 1
+        ? { values, dims, map: layouts.rows(v), channels: dims[0]! }
+        : { values, dims, map: layouts.columns(v), channels: dims[1]! };
+    case 'MatMul': // constant [K, N]: output channel is the last dim
+      if (dims.length !== 2) return undefined;
+      return { values, dims, map: layouts.columns(v), channels: dims[1]! };
+  }
+  return undefined;
+}
+
+function spreadOfLayer(scope: Scope, n: Node): { spread: number; channels: number } | undefined {
+  const lw = layerWeights(scope, n);
+  if (!lw) return undefined;
+  return { spread: spreadOf(channelRanges(lw.values, lw.dims, lw.map, lw.channels)), channels: lw.channels };
+}
+
+/** A scope's node by ledger label (name, or op#index when unnamed). */
+function byLabel(scope: Scope, label: string): Node | undefined {
+  for (const [n, l] of scope.labels) if (l === label) return n;
+  return undefined;
+}
+
+const LINEAR = new Set(['Conv', 'ConvTranspose', 'Gemm', 'MatMul']);
+
+/**
+ * The folded model's node for a target of the original. Named nodes keep their names through a fold; an
+ * unnamed one's op#index label shifts when nodes before it are removed, so it is found by the values it
+ * shares with the original: its output (kept by a fold into the consumer) or its data input (kept by a fold
+ * into the producer).
+ */
+function counterpart(after: Scope, original: Node): Node | undefined {
+  const linear = after.graph.nodes.filter((n) => LINEAR.has(n.opType));
+  if (original.name) return linear.find((n) => n.name === original.name);
+  return linear.find((n) => !n.name && n.outputs[0] === original.outputs[0])
+    ?? linear.find((n) => !n.name && n.inputs[0] === original.inputs[0]);
+}
+
+function scopeFor(scopes: Scope[], others: Scope[], path: string): Scope | undefined {
+  const i = others.findIndex((s) => s.path === path);
+  // fold never adds or removes subgraphs, so the pre-order position identifies a body even if a path's label moved
+  return scopes.find((s) => s.path === path) ?? (i >= 0 ? scopes[i] : undefined);
+}
+
+/** One row per folded target layer, in ledger order. `before` is the original model, `after` the folded one. */
+export function quantReadiness(before: Model, after: Model, ledger: readonly LedgerEntry[]): QuantRow[] {
+  const groups = new Map<string, { graph: string; target: string; norms: string[] }>();
+  for (const e of ledger) {
+    if (e.status !== 'folded' || e.target === null) continue;
+    const key = `${e.graph}\u0000${e.target}`;
+    const g = groups.get(key) ?? { graph: e.graph, target: e.target, norms: [] };
+    g.norms.push(e.node);
+    groups.set(key, g);
+  }
+  if (groups.size === 0) return [];
+  const sb = buildScopes(before), sa = buildScopes(after);
+  const rows: QuantRow[] = [];
+  for (const g of groups.values()) {
+    const scopeB = scopeFor(sb, sb, g.graph), scopeA = scopeFor(sa, sb, g.graph);
+    if (!scopeB || !scopeA) continue;
+    const nb = byLabel(scopeB, g.target);
+    if (!nb) continue;
+    const na = counterpart(scopeA, nb);
+    if (!na) continue;
+    const b = spreadOfLayer(scopeB, nb), a = spreadOfLayer(scopeA, na);
+    if (!b || !a) continue;
+    rows.push({
+      target: g.target, norms: g.norms, channels: a.channels, spreadBefore: b.spread, spreadAfter: a.spread,
+      // the fold "makes" quantization lossy only when it widened the spread past the limit
+      flagged: a.spread > SPREAD_LIMIT && a.spread > b.spread,
+    });
+  }
+  return rows;
+}

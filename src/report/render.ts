@@ -1,0 +1,79 @@
+// One place that turns job results into the four report formats, for one model or a batch. A batch of one
+// prints exactly the single-model report; a larger batch prints each model in input order, and models that
+// could not be processed appear as errors with their one-line message.
+import type { AuditReport, FoldReport } from '../jobs/types.js';
+import { SCHEMA_VERSION } from '../jobs/types.js';
+import type { CompareReport } from '../verify/compare.js';
+import { toJsonText } from '../verify/compare.js';
+import { auditText } from './audit-text.js';
+import { compareText } from './compare-text.js';
+import { CAUTION, type Format } from './format.js';
+import { auditSuite, compareSuite, errorSuite, foldSuite, junitXml, type Suite } from './junit.js';
+import { foldText } from './ledger-text.js';
+import { auditMarkdown, compareMarkdown, errorMarkdown, foldMarkdown } from './markdown.js';
+
+export { FORMATS, type Format } from './format.js';
+
+/** A model a batch could not process: its one-line message and the exit code it contributes. */
+export interface JobError {
+  model: string;
+  error: { kind: string; message: string };
+  exitCode: number;
+}
+
+export type Outcome<R> = { model: string; report: R; exitCode: number } | JobError;
+
+export const isJobError = <R>(o: Outcome<R>): o is JobError => 'error' in o;
+
+/** The JSON a batch prints: every model's report (or error) in input order, and the batch's exit code. */
+export interface BatchReport<R> {
+  schemaVersion: number;
+  command: 'fold' | 'audit';
+  exitCode: number;
+  results: Array<R | JobError>;
+}
+
+type Kind = 'fold' | 'audit';
+
+export function renderJobs(command: Kind, outcomes: ReadonlyArray<Outcome<FoldReport | AuditReport>>, format: Format, colour = false): string {
+  const single = outcomes.length === 1 ? outcomes[0] : undefined;
+  const textOf = (r: FoldReport | AuditReport, caution: boolean) =>
+    r.command === 'fold' ? foldText(r, colour, caution) : auditText(r, colour, caution);
+  switch (format) {
+    case 'json': {
+      if (single && !isJobError(single)) return toJsonText(single.report);
+      const batch: BatchReport<FoldReport | AuditReport> = {
+        schemaVersion: SCHEMA_VERSION, command, exitCode: Math.max(0, ...outcomes.map((o) => o.exitCode)),
+        results: outcomes.map((o) => (isJobError(o) ? o : o.report)),
+      };
+      return toJsonText(batch);
+    }
+    case 'text': {
+      if (single && !isJobError(single)) return textOf(single.report, true);
+      const parts = outcomes.map((o) => (isJobError(o) ? `${command} ${o.model}: error: ${o.error.message}\n` : textOf(o.report, false)));
+      return parts.join('\n') + CAUTION.join('\n') + '\n';
+    }
+    case 'markdown':
+      return outcomes.map((o) => (isJobError(o) ? errorMarkdown(command, o.model, o.error.message)
+        : o.report.command === 'fold' ? foldMarkdown(o.report) : auditMarkdown(o.report))).join('\n');
+    case 'junit': {
+      const suites: Suite[] = outcomes.map((o) => (isJobError(o) ? errorSuite(o.model, o.error.message, o.error.kind)
+        : o.report.command === 'fold' ? foldSuite(o.report) : auditSuite(o.report)));
+      return junitXml(`pleat ${command}`, suites);
+    }
+  }
+}
+
+/** compare's JSON: the library report with the schema version, the command and the two files. */
+export function compareJson(r: CompareReport, a: string, b: string): object {
+  return { schemaVersion: SCHEMA_VERSION, command: 'compare', a, b, ...r };
+}
+
+export function renderCompare(r: CompareReport, a: string, b: string, format: Format, colour = false): string {
+  switch (format) {
+    case 'json': return toJsonText(compareJson(r, a, b));
+    case 'text': return compareText(r, a, b, colour);
+    case 'markdown': return compareMarkdown(r, a, b);
+    case 'junit': return junitXml('pleat compare', [compareSuite(r, a, b)]);
+  }
+}

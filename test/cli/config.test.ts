@@ -1,0 +1,88 @@
+// Config file loading and merging, report-file specs and the progress bar's on/off rules, as units.
+import { describe, expect, it } from 'vitest';
+import { mkdtempSync, readdirSync, readFileSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { keepList, loadConfig, runSettings } from '../../cli/config.js';
+import { inCi, progressWanted, startProgress } from '../../cli/progress.js';
+import { parseReportSpecs, writeReportFile } from '../../src/report/files.js';
+
+const dir = mkdtempSync(join(tmpdir(), 'pleat-config-'));
+const write = (name: string, v: unknown) => { const p = join(dir, name); writeFileSync(p, typeof v === 'string' ? v : JSON.stringify(v)); return p; };
+
+describe('config file', () => {
+  it('absent pleat.config.json is fine; present one is read from the working directory', () => {
+    const empty = mkdtempSync(join(tmpdir(), 'pleat-noconf-'));
+    expect(loadConfig(undefined, empty)).toEqual({ config: {}, file: null });
+    const here = mkdtempSync(join(tmpdir(), 'pleat-conf-'));
+    writeFileSync(join(here, 'pleat.config.json'), JSON.stringify({ seed: 7 }));
+    expect(loadConfig(undefined, here).config).toEqual({ seed: 7 });
+  });
+
+  it('unknown keys and wrong types are usage errors naming the key', () => {
+    expect(() => loadConfig(write('typo.json', { seeds: 1 }))).toThrow(/unknown key 'seeds'/);
+    expect(() => loadConfig(write('type.json', { probes: 0 }))).toThrow(/'probes' should be a whole number of at least 1/);
+    expect(() => loadConfig(write('dims.json', { dims: { batch: 'one' } }))).toThrow(/'dims' should be/);
+    expect(() => loadConfig(write('bad.json', '{ nope'))).toThrow(/not valid JSON/);
+    expect(() => loadConfig(write('arr.json', [1]))).toThrow(/expected a JSON object/);
+    expect(() => loadConfig(join(dir, 'missing.json'))).toThrow(/cannot read \(ENOENT\)/);
+    try { loadConfig(write('typo2.json', { gates: 'x' })); } catch (e) { expect((e as { kind: string }).kind).toBe('usage'); }
+  });
+
+  it('flags override the file per name; keep lists are joined', () => {
+    const { config } = loadConfig(write('full.json', {
+      dims: { batch: 2, len: 16 }, shapes: { image: '1x3x8x8', extra: [2, 2] }, gate: 'maxAbs < 1', keep: ['a', 'b'],
+      failOn: 'kept', probes: 4, seed: 9, store: 'float16',
+    }));
+    const s = runSettings(config, { dim: ['batch=1'], shape: ['image=1x3x4x4'], seed: 3 });
+    expect([...s.dims]).toEqual([['batch', 1], ['len', 16]]);
+    expect([...s.shapes]).toEqual([['image', [1, 3, 4, 4]], ['extra', [2, 2]]]);
+    expect(s.seed).toBe(3);
+    expect(s.probes).toBe(4);
+    expect(s.gate).toBe('maxAbs < 1');
+    expect(runSettings(config, { gate: 'cosine > 0.5', probes: 1 })).toMatchObject({ gate: 'cosine > 0.5', probes: 1, seed: 9 });
+    expect(keepList(config, ['b', 'c'])).toEqual(['a', 'b', 'c']);
+    expect(keepList({}, [])).toBeUndefined();
+  });
+});
+
+describe('--report specs', () => {
+  it('format from the extension or FORMAT:FILE', () => {
+    expect(parseReportSpecs(['r.json', 'r.xml', 'markdown:pr.txt', 'text:log'])).toEqual([
+      { format: 'json', file: 'r.json' }, { format: 'junit', file: 'r.xml' }, { format: 'markdown', file: 'pr.txt' }, { format: 'text', file: 'log' },
+    ]);
+  });
+  it('one file per format; unknown extensions are usage errors', () => {
+    expect(() => parseReportSpecs(['a.json', 'json:b.out'])).toThrow(/two files for the json format/);
+    expect(() => parseReportSpecs(['report.html'])).toThrow(/cannot tell the format/);
+  });
+  it('writes atomically: no temporary file is left behind', () => {
+    const d = mkdtempSync(join(tmpdir(), 'pleat-rep-'));
+    writeReportFile(join(d, 'r.json'), '{}\n');
+    expect(readdirSync(d)).toEqual(['r.json']);
+    expect(readFileSync(join(d, 'r.json'), 'utf8')).toBe('{}\n');
+    expect(() => writeReportFile(join(d, 'no', 'such', 'r.json'), 'x')).toThrow(/cannot write \(ENOENT\)/);
+  });
+});
+
+describe('progress bar', () => {
+  const tty = () => { const chunks: string[] = []; return { isTTY: true, columns: 80, write: (s: string) => { chunks.push(s); }, chunks }; };
+  it('drawn on a TTY outside CI without --quiet, then erased', () => {
+    const s = tty();
+    const p = startProgress(2, 'fold', { stream: s, env: {} });
+    p.tick('a.onnx'); p.tick('b.onnx'); p.end();
+    expect(s.chunks.join('')).toMatch(/\[#{24}\] 2\/2 fold {2}last: b\.onnx/);
+    expect(s.chunks.at(-1)).toBe('\r\u001b[K');
+  });
+  it('never in CI, when piped, or with --quiet', () => {
+    expect(progressWanted({ isTTY: true, write: () => {} }, false, { CI: 'true' })).toBe(false);
+    expect(progressWanted({ isTTY: false, write: () => {} }, false, {})).toBe(false);
+    expect(progressWanted({ isTTY: true, write: () => {} }, true, {})).toBe(false);
+    expect(progressWanted({ isTTY: true, write: () => {} }, false, {})).toBe(true);
+    const s = tty();
+    startProgress(3, 'audit', { stream: s, env: { CI: 'true' } }).tick('x');
+    expect(s.chunks).toEqual([]);
+    expect(inCi({ CI: 'false' })).toBe(false);
+    expect(inCi({ CI: '1' })).toBe(true);
+  });
+});

@@ -1,0 +1,46 @@
+// `pleat export` end to end through the built CLI: the bundle is written after a passing fold, nothing is
+// written when the gate fails (exit 1), and --json validates against the shipped schema (ajv). The bundle's
+// bytes are checked against the folded model by the bundle tests in test/onnx/.
+import { describe, expect, it } from 'vitest';
+import { existsSync, mkdtempSync, readdirSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { pleat, ROOT } from '../helpers/cli.js';
+import { schemaValidator } from '../report/helpers.js';
+
+const dir = mkdtempSync(join(tmpdir(), 'pleat-export-cli-'));
+const model = join(ROOT, 'models', 'tray-edge.onnx');
+
+describe('pleat export', { timeout: 180_000 }, () => {
+  it('safetensors bundle: text report ends with the bundle and the caution', () => {
+    const out = join(dir, 'st');
+    const r = pleat(['export', model, '--bundle', out]);
+    expect(r.stderr).toBe('');
+    expect(r.code).toBe(0);
+    expect(readdirSync(out).sort()).toEqual(['manifest.json', 'weights.safetensors']);
+    expect(r.stdout).toMatch(/^fold .* -> bundle /);
+    expect(r.stdout).toMatch(/bundle safetensors -> .*: \d+ tensors/);
+    expect(r.stdout).toMatch(/^Caution:/m);
+  });
+
+  it('C bundle with --json, valid against the schema', () => {
+    const out = join(dir, 'c');
+    const r = pleat(['export', model, '--bundle', out, '--bundle-format', 'c', '--json']);
+    expect(r.code).toBe(0);
+    const j = JSON.parse(r.stdout);
+    expect(j.command).toBe('export');
+    expect(j.bundle.format).toBe('c');
+    expect(readdirSync(out).sort()).toEqual(['manifest.json', 'weights.c', 'weights.h']);
+    const validate = schemaValidator();
+    expect(validate(j), JSON.stringify(validate.errors)).toBe(true);
+  });
+
+  it('a failing gate writes no bundle and exits 1; an unknown format is a usage error', () => {
+    const out = join(dir, 'never');
+    const r = pleat(['export', model, '--bundle', out, '--gate', 'maxAbs < 0']);
+    expect(r.code).toBe(1);
+    expect(existsSync(join(out, 'manifest.json'))).toBe(false);
+    expect(r.stdout).toMatch(/nothing written/);
+    expect(pleat(['export', model, '--bundle', out, '--bundle-format', 'zip']).code).toBe(2);
+  });
+});

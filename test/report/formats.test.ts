@@ -1,0 +1,193 @@
+// The four report formats on hand-built reports. Outside checks: JSON against the shipped JSON Schema with
+// ajv (a general-purpose JSON Schema validator), JUnit XML parsed with fast-xml-parser (a general XML parser)
+// and checked for the structure CI tools read (testsuites > testsuite > testcase > failure/skipped, counts).
+import { describe, expect, it } from 'vitest';
+import { foldText } from '../../src/report/ledger-text.js';
+import { auditText } from '../../src/report/audit-text.js';
+import { compareText } from '../../src/report/compare-text.js';
+import { renderCompare, renderJobs, compareJson } from '../../src/report/render.js';
+import { escapeXml } from '../../src/report/junit.js';
+import { CAUTION } from '../../src/report/format.js';
+import { toJsonText } from '../../src/verify/compare.js';
+import { parseJunit, schemaValidator } from './helpers.js';
+import { auditReport, compareReport, foldReport } from './fixtures.js';
+
+const ESC = /\u001b\[/;
+
+describe('text', () => {
+  it('fold: one ledger line per normalization, totals, check, quantization, caution; no before/after op table', () => {
+    const t = foldText(foldReport());
+    const lines = t.split('\n');
+    expect(lines[0]).toBe('fold models/tray-sorter.onnx -> out/tray-sorter.onnx');
+    expect(lines.filter((l) => /^\s+(folded|kept)\s/.test(l))).toHaveLength(3);
+    expect(t).toMatch(/folded\s+stem_bn\s+BatchNormalization\s+into stem_conv \(into-producer\)/);
+    expect(t).toMatch(/kept\s+edge_bn\s+BatchNormalization\s+padded-consumer: remove the padding .* in main\/branch_if\.then_branch/);
+    expect(t).toMatch(/2 folded, 1 kept; 4 nodes removed \(41 -> 37\); 200 B of weights saved/);
+    expect(t).toMatch(/whole-model check: passed \(2 probes, seed 0\)/);
+    expect(t).toMatch(/tray_class\s+pass\s+maxAbs 1\.20e-7/);
+    expect(t).toMatch(/stem_conv\s+16 channels\s+spread 2\.4 -> 51\.2\s+flagged/);
+    expect(t.trimEnd().endsWith(CAUTION.at(-1)!)).toBe(true);
+    expect(t).not.toMatch(ESC);
+  });
+
+  it('colour only when asked (the CLI asks only on a TTY without NO_COLOR)', () => {
+    expect(foldText(foldReport(), true)).toMatch(ESC);
+    expect(auditText(auditReport(), true)).toMatch(ESC);
+    expect(auditText(auditReport(), false)).not.toMatch(ESC);
+  });
+
+  it('a failed check says nothing was written', () => {
+    const r = foldReport({
+      output: null, failed: true,
+      check: { passed: false, skipped: null, probes: 2, seed: 0, gates: ['maxAbs < 1e-9'], outputs: [{ name: 'y', maxAbs: 0.5, maxRel: 0.1, rms: 0.1, cosine: 0.9, passed: false }] },
+    });
+    const t = foldText(r);
+    expect(t).toMatch(/nothing written \(check failed\)/);
+    expect(t).toMatch(/whole-model check: FAILED/);
+    expect(t).toMatch(/y\s+FAIL/);
+  });
+
+  it('audit and compare', () => {
+    const a = auditText(auditReport({ failOn: 'kept', failed: true }));
+    expect(a).toMatch(/foldable\s+conv1_bn/);
+    expect(a).toMatch(/kept\s+ln\s+LayerNormalization\s+runtime-statistics: statistics come from each input/);
+    expect(a).toMatch(/1 foldable, 1 kept/);
+    expect(a).toMatch(/--fail-on kept: FAILED/);
+    const c = compareText(compareReport(), 'a.onnx', 'b.onnx');
+    expect(c).toMatch(/^compare a\.onnx with b\.onnx: FAILED \(3 probes, seed 0\)/);
+    expect(c).toMatch(/edges\s+FAIL\s+model B has no output 'edges'/);
+    expect(c).toMatch(/error budget: A float32 maxAbs 2\.00e-7, B float32 maxAbs 3\.00e-7, added 1\.00e-7/);
+  });
+
+  it('a batch prints each model in order, errors included, and the caution once', () => {
+    const t = renderJobs('audit', [
+      { model: 'a.onnx', report: auditReport({ model: 'a.onnx' }), exitCode: 0 },
+      { model: 'bad.onnx', error: { kind: 'bad-model', message: 'bad.onnx: not a readable ONNX model' }, exitCode: 2 },
+      { model: 'c.onnx', report: auditReport({ model: 'c.onnx' }), exitCode: 0 },
+    ], 'text');
+    expect(t.indexOf('audit a.onnx')).toBeLessThan(t.indexOf('audit bad.onnx: error'));
+    expect(t.indexOf('audit bad.onnx: error')).toBeLessThan(t.indexOf('audit c.onnx'));
+    expect(t.split(CAUTION[0]!)).toHaveLength(2);
+  });
+});
+
+describe('JSON against the shipped schema (ajv)', () => {
+  const validate = schemaValidator();
+  const ok = (v: unknown) => { const good = validate(JSON.parse(toJsonText(v))); expect(validate.errors ?? []).toEqual([]); expect(good).toBe(true); };
+
+  it('fold, audit, compare and batch reports validate', () => {
+    ok(foldReport());
+    ok(foldReport({ storage: { store: 'float16', tensorsConverted: 3, keptFloat32: ['big_w'], bytesBefore: 100, bytesAfter: 52 }, check: null }));
+    ok(auditReport());
+    ok(compareJson(compareReport(), 'a.onnx', 'b.onnx'));
+    ok(JSON.parse(renderJobs('fold', [
+      { model: 'x.onnx', report: foldReport(), exitCode: 0 },
+      { model: 'y.onnx', error: { kind: 'bad-input', message: 'y.onnx: no such file' }, exitCode: 2 },
+    ], 'json')));
+  });
+
+  it('non-finite metrics are written as strings the schema accepts', () => {
+    const r = foldReport({ quantization: [{ target: 'c', norms: ['b'], channels: 3, spreadBefore: 1, spreadAfter: Infinity, flagged: true }] });
+    const text = renderJobs('fold', [{ model: r.model, report: r, exitCode: 0 }], 'json');
+    expect(JSON.parse(text).quantization[0].spreadAfter).toBe('Infinity');
+    ok(JSON.parse(text));
+  });
+
+  it('the schema rejects what it should (it can fail)', () => {
+    expect(validate({ ...foldReport(), schemaVersion: 2 })).toBe(false);
+    expect(validate({ ...auditReport(), surprise: 1 })).toBe(false);
+    const bad = foldReport();
+    (bad.normalizations[2] as { reason: string }).reason = 'no-such-reason';
+    expect(validate(JSON.parse(toJsonText(bad)))).toBe(false);
+    const folded = foldReport();
+    (folded.normalizations[0] as { target: string | null }).target = null;
+    expect(validate(JSON.parse(toJsonText(folded)))).toBe(false);
+  });
+});
+
+describe('JUnit XML (fast-xml-parser)', () => {
+  it('audit: one testcase per normalization; kept is skipped, or a failure with --fail-on kept', () => {
+    for (const failOn of [null, 'kept'] as const) {
+      const xml = renderJobs('audit', [{ model: 'm.onnx', report: auditReport({ model: 'm.onnx', failOn, failed: failOn !== null }), exitCode: 0 }], 'junit');
+      const j = parseJunit(xml);
+      const suites = j.testsuites;
+      expect(suites['@tests']).toBe('2');
+      const suite = suites.testsuite[0];
+      expect(suite['@name']).toBe('m.onnx');
+      const cases = suite.testcase;
+      expect(cases).toHaveLength(2);
+      expect(cases.map((c: Record<string, string>) => c['@classname'])).toEqual(['m.onnx', 'm.onnx']);
+      expect(cases[0]['@name']).toBe('conv1_bn BatchNormalization');
+      expect(cases[0].failure).toBeUndefined();
+      if (failOn) {
+        expect(suites['@failures']).toBe('1');
+        expect(suites['@skipped']).toBe('0');
+        expect(cases[1].failure['@type']).toBe('kept');
+        expect(cases[1].failure['@message']).toMatch(/^runtime-statistics: /);
+      } else {
+        expect(suites['@failures']).toBe('0');
+        expect(suites['@skipped']).toBe('1');
+        expect(cases[1].skipped['@message']).toMatch(/^runtime-statistics: /);
+      }
+    }
+  });
+
+  it('fold: normalizations plus one case per checked output; escaping survives a parser', () => {
+    const r = foldReport({
+      check: { passed: false, skipped: null, probes: 1, seed: 0, gates: ['maxAbs < 1e-9'], outputs: [
+        { name: 'a<b>&"c"', maxAbs: 1, maxRel: 1, rms: 1, cosine: 0, passed: false },
+        { name: 'ok', maxAbs: 0, maxRel: 0, rms: 0, cosine: 1, passed: true },
+      ] }, failed: true, output: null,
+    });
+    const j = parseJunit(renderJobs('fold', [{ model: r.model, report: r, exitCode: 1 }], 'junit'));
+    const s = j.testsuites.testsuite[0];
+    expect(s['@tests']).toBe('5');
+    expect(s['@failures']).toBe('1');
+    expect(s['@skipped']).toBe('1');
+    const names = s.testcase.map((c: Record<string, string>) => c['@name']);
+    expect(names).toContain('check output a<b>&"c"');
+    expect(names).toContain('edge_bn BatchNormalization in main/branch_if.then_branch');
+    const kept = s.testcase.find((c: Record<string, string>) => c['@name'].startsWith('edge_bn'));
+    expect(kept.skipped['@message']).toBe('padded-consumer: remove the padding of the next convolution <pad=1> & "fold"');
+  });
+
+  it('a batch error is an <error> case; counts add up over suites', () => {
+    const j = parseJunit(renderJobs('audit', [
+      { model: 'a.onnx', report: auditReport({ model: 'a.onnx' }), exitCode: 0 },
+      { model: 'bad.onnx', error: { kind: 'bad-model', message: 'bad.onnx: not a readable ONNX model' }, exitCode: 2 },
+    ], 'junit'));
+    expect(j.testsuites['@tests']).toBe('3');
+    expect(j.testsuites['@errors']).toBe('1');
+    expect(j.testsuites.testsuite[1].testcase[0].error['@message']).toBe('bad.onnx: not a readable ONNX model');
+  });
+
+  it('compare: one case per output', () => {
+    const j = parseJunit(renderCompare(compareReport(), 'a.onnx', 'b.onnx', 'junit'));
+    expect(j.testsuites['@tests']).toBe('2');
+    expect(j.testsuites['@failures']).toBe('1');
+  });
+
+  it('escapeXml removes characters XML cannot hold', () => {
+    expect(escapeXml('a\u0001b<&>"\'\n')).toBe('a\ufffdb&lt;&amp;&gt;&quot;&apos;&#10;');
+  });
+});
+
+describe('Markdown', () => {
+  it('fold: heading, summary line, table with kept first, flagged quantization, caution quote', () => {
+    const md = renderJobs('fold', [{ model: 'm', report: foldReport(), exitCode: 0 }], 'markdown');
+    const lines = md.split('\n');
+    expect(lines[0]).toBe('### pleat fold `models/tray-sorter.onnx`: done');
+    expect(md).toMatch(/\*\*2 folded, 1 kept\*\*; nodes 41 → 37/);
+    const rows = lines.filter((l) => l.startsWith('| `'));
+    expect(rows).toHaveLength(3);
+    expect(rows[0]).toMatch(/^\| `edge_bn`/);
+    expect(md).toMatch(/`stem_conv` spread 2\.4 → 51\.2/);
+    expect(md).toMatch(/^> Caution:/m);
+  });
+
+  it('pipes in names cannot break the table', () => {
+    const md = renderJobs('audit', [{ model: 'm', report: auditReport({ normalizations: [{ ...auditReport().normalizations[1]!, node: 'a|b' }] }), exitCode: 0 }], 'markdown');
+    const row = md.split('\n').find((l) => l.includes('a\\|b'))!;
+    expect(row.split(/(?<!\\)\|/).length - 2).toBe(4); // four cells
+  });
+});

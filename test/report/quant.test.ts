@@ -1,0 +1,119 @@
+// Quantization readiness: per-output-channel weight ranges (max - min of each channel's weights) and their
+// spread (largest / median), checked against ranges computed by hand below. Method: Nagel et al. 2019,
+// "Data-Free Quantization Through Weight Equalization and Bias Correction", arXiv:1906.04721 (section 3: the
+// per-channel ranges of a folded layer can differ by orders of magnitude, which per-tensor quantization loses).
+import { describe, expect, it } from 'vitest';
+import { parseModel } from '../../src/onnx/read.js';
+import { foldModel } from '../../src/fold/index.js';
+import { channelRanges, quantReadiness, spreadOf, SPREAD_LIMIT } from '../../src/report/quant.js';
+import { layouts, weightView } from '../../src/fold/weights.js';
+import type { LedgerEntry } from '../../src/fold/types.js';
+import { GraphBuilder, modelBytes } from '../helpers/build.js';
+
+const close = (got: number, want: number) => expect(got).toBeCloseTo(want, 12);
+// weights stored in a model are float32: hand values like 0.1 are rounded to 24 bits first
+const close32 = (got: number, want: number) => expect(Math.abs(got - want)).toBeLessThanOrEqual(1e-6 * Math.abs(want));
+
+// A Conv weight [Cout=4, Cin=1, 1, 2], values chosen so each channel's range is easy to see:
+//   c0: [ 0.1, -0.1] -> range 0.2
+//   c1: [ 0.5,  0.3] -> range 0.2
+//   c2: [ 1.0, -1.0] -> range 2.0
+//   c3: [ 0.0,  0.4] -> range 0.4
+// sorted ranges 0.2, 0.2, 0.4, 2.0: median (0.2 + 0.4) / 2 = 0.3, spread 2.0 / 0.3 = 6.667
+const W = [0.1, -0.1, 0.5, 0.3, 1.0, -1.0, 0.0, 0.4];
+
+function convModel(w: number[], named = true): Uint8Array {
+  const g = new GraphBuilder();
+  g.input('x', [1, 1, 3, 4]).output('y', [1, 4, 3, 3]);
+  g.init('w', [4, 1, 1, 2], w);
+  g.node('Conv', ['x', 'w'], {}, { name: named ? 'conv' : '', outputs: ['c'] });
+  // scale 1, 1, 1, 100 on channel 3 (a near-dead channel's 1/sqrt(var + eps) is large, as in trained networks)
+  g.init('sc', [4], [1, 1, 1, 100]); g.init('sh', [4], [0, 0, 0, 0]); g.init('mu', [4], [0, 0, 0, 0]); g.init('va', [4], [1, 1, 1, 1]);
+  g.node('BatchNormalization', ['c', 'sc', 'sh', 'mu', 'va'], { epsilon: 0 } as never, { name: 'bn', outputs: ['y'] });
+  return modelBytes(g);
+}
+
+describe('channel ranges and spread (hand-computed)', () => {
+  it('Conv: output channel axis 0', () => {
+    const dims = [4, 1, 1, 2];
+    const r = channelRanges(Float64Array.from(W), dims, layouts.convOutput(weightView(dims)), 4);
+    [0.2, 0.2, 2.0, 0.4].forEach((want, c) => close(r[c]!, want));
+    close(spreadOf(r), 2.0 / 0.3);
+  });
+
+  it('ConvTranspose: output channel axis 1, times group', () => {
+    // W [Cin=2, Cout/group=2, k=2], group 1: channel j is W[:, j, :]
+    //   j0: W[0,0,:] = [1, 2], W[1,0,:] = [3, -1] -> range 3 - (-1) = 4
+    //   j1: W[0,1,:] = [0, 0], W[1,1,:] = [0.5, 0] -> range 0.5
+    const w = Float64Array.from([1, 2, 0, 0, 3, -1, 0.5, 0]);
+    const dims = [2, 2, 2];
+    const r1 = channelRanges(w, dims, layouts.convTransposeOutput(weightView(dims), 1), 2);
+    close(r1[0]!, 4); close(r1[1]!, 0.5);
+    // group 2: W [Cin=2, Cout/group=2, k=2] -> 4 output channels; input channel i feeds channels 2*i + j
+    //   c0 = W[0,0,:] = [1, 2] -> 1;  c1 = W[0,1,:] = [0, 0] -> 0;  c2 = W[1,0,:] = [3, -1] -> 4;  c3 = W[1,1,:] = [0.5, 0] -> 0.5
+    const r2 = channelRanges(w, dims, layouts.convTransposeOutput(weightView(dims), 2), 4);
+    [1, 0, 4, 0.5].forEach((want, c) => close(r2[c]!, want));
+    // sorted 0, 0.5, 1, 4: median 0.75, spread 4 / 0.75
+    close(spreadOf(r2), 4 / 0.75);
+  });
+
+  it('Gemm/MatMul: columns of [K, N], rows of [N, K] with transB', () => {
+    // [K=2, N=3] = [[1, 0, 5], [-1, 0.25, 5]]: column ranges 2, 0.25, 0
+    const w = Float64Array.from([1, 0, 5, -1, 0.25, 5]);
+    const cols = channelRanges(w, [2, 3], layouts.columns(weightView([2, 3])), 3);
+    [2, 0.25, 0].forEach((want, c) => close(cols[c]!, want));
+    // the same numbers read as [N=2, K=3] rows: [1, 0, 5] -> 5, [-1, 0.25, 5] -> 6
+    const rows = channelRanges(w, [2, 3], layouts.rows(weightView([2, 3])), 2);
+    close(rows[0]!, 5); close(rows[1]!, 6);
+  });
+
+  it('edge cases: an all-zero layer has spread 1; a zero median with a live channel is infinite', () => {
+    expect(spreadOf(Float64Array.from([0, 0, 0]))).toBe(1);
+    expect(spreadOf(Float64Array.from([0, 0, 3]))).toBe(Infinity);
+    expect(spreadOf(Float64Array.from([2]))).toBe(1);
+  });
+});
+
+describe('quantReadiness', () => {
+  const ledger: LedgerEntry[] = [{ node: 'bn', op: 'BatchNormalization', status: 'folded', direction: 'into-producer', target: 'conv', reason: null, hint: '', graph: 'main' }];
+
+  it('on a hand-folded model: spread 6.667 before, 36.36 after, flagged', () => {
+    // after the fold channel 3 holds 100 * [0, 0.4] = [0, 40] -> range 40; ranges 0.2, 0.2, 2, 40:
+    // median (0.2 + 2) / 2 = 1.1, spread 40 / 1.1 = 36.36 > 16
+    const folded = [...W.slice(0, 6), 0, 40];
+    const rows = quantReadiness(parseModel(convModel(W), '.'), parseModel(convModel(folded), '.'), ledger);
+    expect(rows).toHaveLength(1);
+    expect(rows[0]!.target).toBe('conv');
+    expect(rows[0]!.norms).toEqual(['bn']);
+    expect(rows[0]!.channels).toBe(4);
+    close32(rows[0]!.spreadBefore, 2 / 0.3);
+    close32(rows[0]!.spreadAfter, 40 / 1.1);
+    expect(rows[0]!.flagged).toBe(true);
+    expect(SPREAD_LIMIT).toBe(16);
+  });
+
+  it('not flagged when the folded spread stays under the limit', () => {
+    const rows = quantReadiness(parseModel(convModel(W), '.'), parseModel(convModel(W.map((v) => 2 * v)), '.'), ledger);
+    close32(rows[0]!.spreadAfter, 2 / 0.3);
+    expect(rows[0]!.flagged).toBe(false);
+  });
+
+  it('with the real fold engine, named and unnamed layers', () => {
+    for (const named of [true, false]) {
+      const bytes = convModel(W, named);
+      const before = parseModel(Uint8Array.from(bytes), '.');
+      const after = parseModel(Uint8Array.from(bytes), '.');
+      const { ledger: l } = foldModel(after, {});
+      const rows = quantReadiness(before, after, l.normalizations);
+      expect(rows).toHaveLength(1);
+      close32(rows[0]!.spreadBefore, 2 / 0.3);
+      close32(rows[0]!.spreadAfter, 40 / 1.1); // epsilon 0, variance 1: s = scale exactly
+      expect(rows[0]!.flagged).toBe(true);
+    }
+  });
+
+  it('kept entries give no rows', () => {
+    const kept: LedgerEntry[] = [{ ...ledger[0]!, status: 'kept', target: null, reason: 'kept-by-user' }];
+    expect(quantReadiness(parseModel(convModel(W), '.'), parseModel(convModel(W), '.'), kept)).toEqual([]);
+  });
+});
