@@ -18,6 +18,7 @@ export function builder(y: Argv) {
     .option('out', { alias: 'o', type: 'string', describe: 'the folded model to write (one input model)' })
     .option('out-dir', { type: 'string', describe: 'folder for the folded models, same file names (several input models)' })
     .option('keep', { type: 'string', coerce: many, describe: 'leave this normalization node in place; repeatable' })
+    .option('allow-overridable', { type: 'boolean', default: false, describe: 'also fold weights and norm parameters that are graph inputs with defaults (callers could replace them)' })
     .option('store', { type: 'string', choices: ['float16'], describe: 'store folded weights in half precision' })
     .option('gate', { type: 'string', describe: 'gate for the whole-model check, e.g. "maxAbs < 1e-4 and cosine > 0.99999"' })
     .option('probes', { type: 'number', describe: 'number of seeded probes for the whole-model check (default 2)' })
@@ -26,7 +27,7 @@ export function builder(y: Argv) {
 }
 
 interface Flags {
-  models: string[]; out?: string; outDir?: string; keep?: string[]; store?: 'float16'; gate?: string; probes?: number; seed?: number;
+  models: string[]; out?: string; outDir?: string; keep?: string[]; allowOverridable: boolean; store?: 'float16'; gate?: string; probes?: number; seed?: number;
   input?: string[]; shape?: string[]; dim?: string[]; json?: boolean; format?: string; report?: string[]; config?: string; quiet: boolean;
 }
 
@@ -56,7 +57,7 @@ export async function handler(argv: Flags): Promise<void> {
   const outputs = outputsFor(argv.models, argv.out, argv.outDir);
   const opts: FoldJobOptions = {
     inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, probes: run.probes, gate: run.gate,
-    keep: keepList(config, argv.keep), store: argv.store ?? config.store,
+    keep: keepList(config, argv.keep), store: argv.store ?? config.store, allowOverridable: argv.allowOverridable,
   };
   const jobs: Job[] = argv.models.map((model, i) => ({ command: 'fold', model, output: outputs[i]!, opts }));
   // loaded here, not at start-up: the library is large, and --help or a usage error needs none of it

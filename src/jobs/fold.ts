@@ -8,6 +8,7 @@ import { foldModel } from '../fold/index.js';
 import { proveFold } from '../verify/prove.js';
 import { compare } from '../verify/compare.js';
 import { DEFAULT_GATES } from '../verify/gate.js';
+import { asMap, dimSymbols } from '../verify/inputs.js';
 import { PleatError } from '../errors.js';
 import { quantReadiness } from '../report/quant.js';
 import { SCHEMA_VERSION, type CheckSummary, type FoldJobOptions, type FoldReport, type StorageSummary } from './types.js';
@@ -17,9 +18,14 @@ export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOpt
   const seed = opts.seed ?? 0;
   const probes = opts.probes ?? 2;
   const gate = opts.gate ?? (opts.halfGate ? DEFAULT_GATES.float16 : undefined);
+  // Dims and shapes may come from a config or a batch shared by several models: use those this model has.
+  const symbols = dimSymbols([original.graph]);
+  const inputNames = new Set(original.graph.inputs.map((i) => i.name));
+  const dims = new Map([...asMap(opts.dims)].filter(([k]) => symbols.has(k)));
+  const shapes = new Map([...asMap(opts.shapes)].filter(([k]) => inputNames.has(k)));
   try {
     const r = compare(original, folded, {
-      inputs: opts.inputs, shapes: opts.shapes, dims: opts.dims, seed, probes, gate, budget: false,
+      inputs: opts.inputs, shapes, dims, seed, probes, gate, budget: false,
     });
     return {
       passed: r.passed,
