@@ -2,9 +2,15 @@
 // (a Relu read by two convolutions that are added back) and If subgraphs, of about `target` nodes.
 import type { Attribute, Graph, Model, Node, Tensor, ValueInfo } from '../../src/graph/ir.js';
 
+// Tensor data lives in a few large pools (views, not one ArrayBuffer per tensor), as it does when pleat reads
+// a model file: every raw_data is a view into the file's buffer.
+let pool = new Float32Array(0), used = 0;
 const tensor = (name: string, dims: number[], v: number): Tensor => {
   const n = dims.reduce((a, b) => a * b, 1);
-  return { name, dims, dataType: 1, storage: { kind: 'raw', bytes: new Uint8Array(new Float32Array(n).fill(v).buffer) }, docString: '', extra: [] };
+  if (used + n > pool.length) { pool = new Float32Array(1 << 20); used = 0; }
+  const data = pool.subarray(used, used + n).fill(v);
+  used += n;
+  return { name, dims, dataType: 1, storage: { kind: 'raw', bytes: new Uint8Array(data.buffer, data.byteOffset, n * 4) }, docString: '', extra: [] };
 };
 const vi = (name: string, shape?: number[]): ValueInfo => ({ name, elemType: 1, shape, docString: '', extra: [] });
 const node = (opType: string, name: string, inputs: string[], outputs: string[], attributes: Attribute[] = []): Node =>
@@ -13,14 +19,17 @@ const node = (opType: string, name: string, inputs: string[], outputs: string[],
 export function wideModel(target: number): Model {
   const C = 4;
   const g: Graph = { name: 'wide', nodes: [], initializers: [], inputs: [vi('x', [1, C, 4, 4])], outputs: [], valueInfo: [], docString: '', extra: [] };
-  // shared parameters keep memory small: every conv reads the same weight, every norm the same statistics
-  g.initializers.push(tensor('W', [C, C, 1, 1], 0.5), tensor('one', [C], 1), tensor('zero', [C], 0), tensor('cond', [], 1));
-  g.initializers[3]!.dataType = 9;
-  g.initializers[3]!.storage = { kind: 'raw', bytes: new Uint8Array([1]) };
+  const cond = tensor('cond', [], 1);
+  cond.dataType = 9;
+  cond.storage = { kind: 'raw', bytes: new Uint8Array([1]) };
+  g.initializers.push(cond);
   let cur = 'x', k = 0;
+  // every layer has its own weight and statistics, as exported models do
   const block = (into: Graph, input: string, p: string): string => {
-    into.nodes.push(node('Conv', `${p}conv${k}`, [input, 'W'], [`${p}c${k}`]));
-    into.nodes.push(node('BatchNormalization', `${p}bn${k}`, [`${p}c${k}`, 'one', 'zero', 'zero', 'one'], [`${p}b${k}`]));
+    const q = `${p}${k}`;
+    into.initializers.push(tensor(`W${q}`, [C, C, 1, 1], 0.5), tensor(`s${q}`, [C], 1), tensor(`b${q}`, [C], 0), tensor(`m${q}`, [C], 0.1), tensor(`v${q}`, [C], 2));
+    into.nodes.push(node('Conv', `${p}conv${k}`, [input, `W${q}`], [`${p}c${k}`]));
+    into.nodes.push(node('BatchNormalization', `${p}bn${k}`, [`${p}c${k}`, `s${q}`, `b${q}`, `m${q}`, `v${q}`], [`${p}b${k}`]));
     into.nodes.push(node('Relu', `${p}relu${k}`, [`${p}b${k}`], [`${p}r${k}`]));
     return `${p}r${k++}`;
   };
