@@ -9,7 +9,6 @@ import { buildScopes, isLinear, type Scope } from './scope.js';
 import { runtimeNorm } from './norms.js';
 import { ruleFor, type RuleMatch } from './rules/index.js';
 import type { Direction, Finding, FoldOptions, ReasonCode } from './types.js';
-export { label as nodeName };
 
 export type Outcome =
   | { kind: 'match'; match: RuleMatch }
@@ -145,6 +144,7 @@ export function* assessScope(ctx: FoldContext, scope: Scope, cache: StepCache): 
       continue;
     }
     if (!runs.has(n)) {
+      if (runs.size >= 512) runs.clear(); // a member met later just assesses its run again, with the same result
       const run = collectRun(ctx, scope, cache, s);
       const o = assessRun(ctx, run);
       const summary = o.kind === 'ignore' ? undefined : summarize(o);

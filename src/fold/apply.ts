@@ -87,6 +87,24 @@ export function makeNode(opType: string, name: string, inputs: string[], outputs
   return { name, opType, domain: '', inputs, outputs, attributes: [], docString: '', extra: [] };
 }
 
+/** Apply the node and initializer list changes of every edited graph. */
+export function flushPending(ctx: FoldContext): void {
+  for (const [g, p] of ctx.pending) {
+    if (!p.removed.size && !p.inserts.size && !p.initializers.length && !p.inputs.length) continue;
+    const nodes: Node[] = [];
+    for (const n of g.nodes) {
+      if (!p.removed.has(n)) nodes.push(n);
+      const after = p.inserts.get(n);
+      if (after) nodes.push(...after);
+    }
+    g.nodes = nodes;
+    if (p.initializers.length) g.initializers = [...g.initializers, ...p.initializers];
+    if (p.inputs.length) g.inputs = [...g.inputs, ...p.inputs];
+    touch(g);
+  }
+  ctx.pending.clear();
+}
+
 /** Apply an edit to its graph. Returns the undo (which restores every object, origins included). */
 export function applyEdit(ctx: FoldContext, edit: Edit, opts: { inPlace: boolean }): () => void {
   const g = edit.scope.graph;
@@ -123,23 +141,24 @@ export function applyEdit(ctx: FoldContext, edit: Edit, opts: { inPlace: boolean
     touch(c.node);
   }
   if (edit.removeNodes.length || edit.inserts.length || edit.newInitializers.length) {
-    save(g, ['nodes', 'initializers']);
-    const removed = new Set(edit.removeNodes);
-    const nodes: Node[] = [];
-    for (const n of g.nodes) {
-      if (!removed.has(n)) nodes.push(n);
-      for (const ins of edit.inserts) if (ins.after === n) nodes.push(ins.node);
-    }
-    g.nodes = nodes;
-    if (edit.newInitializers.length) {
-      g.initializers = [...g.initializers, ...edit.newInitializers];
-      // Before IR version 4 every initializer of the main graph must also be a graph input.
-      if (ctx.irVersion < 4 && !edit.scope.parent) {
-        save(g, ['inputs']);
-        g.inputs = [...g.inputs, ...edit.newInitializers.map((t): ValueInfo => ({ name: t.name, elemType: t.dataType, shape: [...t.dims], docString: '', extra: [] }))];
-      }
-    }
-    touch(g);
+    // List changes wait for flushPending, so a sweep of many folds rebuilds each list once.
+    let p = ctx.pending.get(g);
+    if (!p) { p = { removed: new Set(), inserts: new Map(), initializers: [], inputs: [] }; ctx.pending.set(g, p); }
+    const pg = p;
+    for (const n of edit.removeNodes) pg.removed.add(n);
+    for (const ins of edit.inserts) pg.inserts.set(ins.after, [...(pg.inserts.get(ins.after) ?? []), ins.node]);
+    pg.initializers.push(...edit.newInitializers);
+    // Before IR version 4 every initializer of the main graph must also be a graph input.
+    const newInputs = ctx.irVersion < 4 && !edit.scope.parent
+      ? edit.newInitializers.map((t): ValueInfo => ({ name: t.name, elemType: t.dataType, shape: [...t.dims], docString: '', extra: [] }))
+      : [];
+    pg.inputs.push(...newInputs);
+    undo.push(() => {
+      for (const n of edit.removeNodes) pg.removed.delete(n);
+      for (const ins of edit.inserts) pg.inserts.set(ins.after, (pg.inserts.get(ins.after) ?? []).filter((x) => x !== ins.node));
+      pg.initializers = pg.initializers.filter((t) => !edit.newInitializers.includes(t));
+      pg.inputs = pg.inputs.filter((v) => !newInputs.includes(v));
+    });
   }
   for (const ins of edit.inserts) ctx.generated.add(ins.node);
   return () => { for (let i = undo.length - 1; i >= 0; i--) undo[i]!(); };
@@ -183,14 +202,24 @@ export function regionGraph(scope: Scope, nodes: Node[], outputs: string[], extr
   return { name: 'fold_region', nodes: nodes.map(snapshotNode), initializers: inits, inputs, outputs: outs, valueInfo: [], docString: '', extra: [] };
 }
 
+/** A handful of nodes in an order where each runs after the nodes it reads from. */
+function ordered(nodes: Node[]): Node[] {
+  const left = [...new Set(nodes)];
+  const out: Node[] = [];
+  while (left.length) {
+    const made = new Set(left.flatMap((n) => n.outputs));
+    const i = left.findIndex((n) => !n.inputs.some((v) => v && made.has(v)));
+    out.push(...left.splice(i < 0 ? 0 : i, 1));
+  }
+  return out;
+}
+
 /** The region an edit rewrites, before applying it. */
 export function regionBefore(edit: Edit): Graph {
-  const involved = new Set<Node>([...edit.removeNodes, ...edit.changes.map((c) => c.node)]);
-  return regionGraph(edit.scope, edit.scope.graph.nodes.filter((n) => involved.has(n)), edit.regionOutputs);
+  return regionGraph(edit.scope, ordered([...edit.removeNodes, ...edit.changes.map((c) => c.node)]), edit.regionOutputs);
 }
 
 /** The same region after applying the edit. */
 export function regionAfter(edit: Edit): Graph {
-  const involved = new Set<Node>([...edit.changes.map((c) => c.node), ...edit.inserts.map((i) => i.node)]);
-  return regionGraph(edit.scope, edit.scope.graph.nodes.filter((n) => involved.has(n)), edit.regionOutputs, edit.newInitializers);
+  return regionGraph(edit.scope, ordered([...edit.changes.map((c) => c.node), ...edit.inserts.map((i) => i.node)]), edit.regionOutputs, edit.newInitializers);
 }

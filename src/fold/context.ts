@@ -1,5 +1,5 @@
 // State shared by the analysis and the rewrites of one run over a model.
-import type { Model, Node } from '../graph/ir.js';
+import type { Graph, Model, Node, Tensor, ValueInfo } from '../graph/ir.js';
 import { opsetVersion } from '../graph/ir.js';
 import type { FoldOptions, ReasonCode } from './types.js';
 import { eachGraph, nodeLabel } from './scope.js';
@@ -14,10 +14,21 @@ export interface FoldContext {
   generated: Set<Node>;
   opsetOf: (domain: string) => number;
   /** Every name in use (values, nodes), for deterministic fresh names. */
-  names: Set<string>;
+  readonly names: Set<string>;
   /** Ledger names fixed at the start (an unnamed node keeps its op#index even after other nodes go). */
   labels: Map<Node, string>;
   irVersion: number;
+  /** Next suffix to try per fresh-name base (keeps naming linear when many clones share a base). */
+  nameCounters: Map<string, number>;
+  /** Node and initializer list changes, applied to each graph once per sweep (see flushPending). */
+  pending: Map<Graph, PendingGraph>;
+}
+
+export interface PendingGraph {
+  removed: Set<Node>;
+  inserts: Map<Node, Node[]>;
+  initializers: Tensor[];
+  inputs: ValueInfo[];
 }
 
 export interface Refusal {
@@ -34,10 +45,29 @@ export function refuse(reason: ReasonCode, hint: string): Refusal {
 }
 
 export function makeContext(model: Model, options: FoldOptions): FoldContext {
-  const names = new Set<string>();
   const labels = new Map<Node, string>();
+  eachGraph(model.graph, (g) => { g.nodes.forEach((n, i) => labels.set(n, nodeLabel(n, i))); });
+  let names: Set<string> | undefined;
+  // Only a fold needs every name in use (for fresh ones); an audit never builds the set.
+  const allNames = () => names ??= namesIn(model);
+  return {
+    options,
+    allowOverridable: options.allowOverridable ?? false,
+    keep: new Set(options.keep ?? []),
+    proofFailed: new Set(),
+    generated: new Set(),
+    opsetOf: (domain: string) => opsetVersion(model, domain) ?? 1,
+    get names() { return allNames(); },
+    labels,
+    irVersion: model.irVersion,
+    nameCounters: new Map(),
+    pending: new Map(),
+  };
+}
+
+function namesIn(model: Model): Set<string> {
+  const names = new Set<string>();
   eachGraph(model.graph, (g) => {
-    g.nodes.forEach((n, i) => labels.set(n, nodeLabel(n, i)));
     for (const v of g.inputs) names.add(v.name);
     for (const v of g.outputs) names.add(v.name);
     for (const v of g.valueInfo) names.add(v.name);
@@ -48,23 +78,15 @@ export function makeContext(model: Model, options: FoldOptions): FoldContext {
       for (const i of n.inputs) if (i) names.add(i);
     }
   });
-  return {
-    options,
-    allowOverridable: options.allowOverridable ?? false,
-    keep: new Set(options.keep ?? []),
-    proofFailed: new Set(),
-    generated: new Set(),
-    opsetOf: (domain: string) => opsetVersion(model, domain) ?? (domain === '' || domain === 'ai.onnx' ? 1 : 1),
-    names,
-    labels,
-    irVersion: model.irVersion,
-  };
+  return names;
 }
 
 /** `base`, or `base.2`, `base.3`, ... : the first name not yet used. Deterministic for a given model. */
 export function freshName(ctx: FoldContext, base: string): string {
   let name = base;
-  for (let k = 2; ctx.names.has(name); k++) name = `${base}.${k}`;
+  let k = ctx.nameCounters.get(base) ?? 2;
+  while (ctx.names.has(name)) name = `${base}.${k++}`;
+  ctx.nameCounters.set(base, k);
   ctx.names.add(name);
   return name;
 }

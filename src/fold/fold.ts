@@ -7,7 +7,7 @@ import { tensorByteSize } from '../onnx/tensor.js';
 import { validateModel } from '../graph/validate.js';
 import { makeContext, type FoldContext } from './context.js';
 import { cleanUp } from './cleanup.js';
-import { applyEdit, newEdit, regionAfter, regionBefore } from './apply.js';
+import { applyEdit, flushPending, newEdit, regionAfter, regionBefore } from './apply.js';
 import { assessRun, findingsOf, foldHint } from './analyze.js';
 import { collectRun, isStep, stepOf } from './run.js';
 import { buildScopes, eachGraph } from './scope.js';
@@ -75,6 +75,7 @@ function sweep(ctx: FoldContext, model: Model, folded: LedgerEntry[], released: 
       for (const v of edit.goneValues) gone.add(v);
     }
   }
+  flushPending(ctx);
   return changed;
 }
 

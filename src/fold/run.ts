@@ -20,9 +20,15 @@ export interface Run {
 /** Per-pass cache of readStep, which decodes tensors. */
 export type StepCache = Map<Node, AffineStep | Refusal | undefined>;
 
+/** Entries kept before the cache starts over: runs are local, and a big cache only slows the garbage collector. */
+const CACHE_MAX = 512;
+
 export function stepOf(ctx: FoldContext, scope: Scope, cache: StepCache, n: Node): AffineStep | Refusal | undefined {
-  if (!cache.has(n)) cache.set(n, readStep(ctx, scope, n));
-  return cache.get(n);
+  if (cache.has(n)) return cache.get(n);
+  if (cache.size >= CACHE_MAX) cache.clear();
+  const s = readStep(ctx, scope, n);
+  cache.set(n, s);
+  return s;
 }
 
 export const isStep = (x: AffineStep | Refusal | undefined): x is AffineStep => x !== undefined && 'kind' in x;

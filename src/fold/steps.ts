@@ -36,7 +36,7 @@ export function isElementwise(n: Node): boolean {
 
 // ---- predicates ---------------------------------------------------------------------------------------
 
-const keptByUser = (ctx: FoldContext, n: Node) => ctx.keep.has(n.name) || ctx.keep.has(ctx.labels.get(n) ?? n.name);
+const keptByUser = (ctx: FoldContext, n: Node) => ctx.keep.size > 0 && (ctx.keep.has(n.name) || ctx.keep.has(ctx.labels.get(n) ?? n.name));
 const proofFailed = (ctx: FoldContext, n: Node) => ctx.proofFailed.has(n);
 const trainingMode = (n: Node) => attrInt(n, 'training_mode', 0) === 1 || n.outputs.slice(1).some((o) => o !== '');
 const perActivation = (n: Node) => attrInt(n, 'spatial', 1) === 0;
@@ -94,6 +94,8 @@ function readElementwise(ctx: FoldContext, scope: Scope, n: Node): AffineStep | 
   const constOnLeft = ca !== undefined;
   const op = n.opType as ElementwiseOp;
   if (op === 'Div' && constOnLeft) return undefined; // c / x is not affine in x
+  // Before opset 7, broadcast=1 with an axis attribute aligned the constant to that axis, not to the end.
+  if (n.attributes.some((a) => a.name === 'axis' || a.name === 'broadcast')) return undefined;
   if (!isFloatType(ref.tensor.dataType)) return undefined;
   if (channelAxisFromEnd(ref.tensor.dims) === undefined) return undefined; // varies along several axes
   const user = userRefusal(ctx, n);

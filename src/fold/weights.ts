@@ -26,20 +26,31 @@ export function channelMap(v: WeightView, channelOf: (a: number, b: number) => n
   return out;
 }
 
+/** channel = a (rows of the first axis); filled a row at a time, since big weights have many pairs. */
+function byFirstAxis(v: WeightView): Int32Array {
+  const out = new Int32Array(v.d0 * v.d1);
+  for (let a = 0; a < v.d0; a++) out.fill(a, a * v.d1, (a + 1) * v.d1);
+  return out;
+}
+
+/** channel = group offset + b, where the group of a is floor(a / perGroup). */
+function grouped(v: WeightView, perGroup: number, width: number): Int32Array {
+  const out = new Int32Array(v.d0 * v.d1);
+  for (let a = 0; a < v.d0; a++) {
+    const base = Math.floor(a / perGroup) * width;
+    for (let b = 0, o = a * v.d1; b < v.d1; b++) out[o + b] = base + b;
+  }
+  return out;
+}
+
 // The layouts, by layer and side. Conv W is [Cout, Cin/group, k...]; ConvTranspose W is [Cin, Cout/group, k...]
 // with output channel g*(Cout/group) + j for input channel i in group g = floor(i / (Cin/group)).
 export const layouts = {
-  convOutput: (v: WeightView) => channelMap(v, (o) => o),
-  convInput: (v: WeightView, group: number) => {
-    const outPerGroup = v.d0 / group;
-    return channelMap(v, (o, j) => Math.floor(o / outPerGroup) * v.d1 + j);
-  },
-  convTransposeOutput: (v: WeightView, group: number) => {
-    const inPerGroup = v.d0 / group;
-    return channelMap(v, (i, j) => Math.floor(i / inPerGroup) * v.d1 + j);
-  },
-  rows: (v: WeightView) => channelMap(v, (a) => a),
-  columns: (v: WeightView) => channelMap(v, (_a, b) => b),
+  convOutput: (v: WeightView) => byFirstAxis(v),
+  convInput: (v: WeightView, group: number) => grouped(v, v.d0 / group, v.d1),
+  convTransposeOutput: (v: WeightView, group: number) => grouped(v, v.d0 / group, v.d1),
+  rows: (v: WeightView) => byFirstAxis(v),
+  columns: (v: WeightView) => grouped(v, Infinity, 0),
 };
 
 /**

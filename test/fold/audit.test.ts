@@ -4,7 +4,8 @@
 import { describe, expect, it } from 'vitest';
 import { GraphBuilder, f, modelBytes, randn, rng, T } from '../helpers/build.js';
 import { parseModel } from '../../src/onnx/read.js';
-import { tensorToFloat64, roundToStorage } from '../../src/onnx/tensor.js';
+import { tensorToFloat64, roundToStorage, numberToHalfBits, halfBitsToNumber } from '../../src/onnx/tensor.js';
+import * as ort from 'onnxruntime-node';
 import { analyze } from '../../src/fold/index.js';
 import { batchNormAffine } from '../../src/fold/affine.js';
 import { bnParams, dir, feedsFor, foldAndCheck, foldBytes, summary } from './harness.js';
@@ -149,4 +150,21 @@ describe('storage types', () => {
       void ps;
     });
   }
+
+  it('a folded float16 model runs in onnxruntime-node and agrees within float16 rounding (2e-2 of the output scale, common practice)', async () => {
+    const { g } = convBn(T.FLOAT16);
+    const bytes = modelBytes(g);
+    const folded = foldBytes(bytes).bytes;
+    const r = rng(21);
+    const x = new ort.Tensor('float16', Uint16Array.from(randn(r, 18), (v) => numberToHalfBits(v)), [1, 2, 3, 3]);
+    const run = async (b: Uint8Array) => {
+      const s = await ort.InferenceSession.create(b, { graphOptimizationLevel: 'disabled', executionProviders: ['cpu'] });
+      const y = (await s.run({ x })).y!.data as Uint16Array;
+      await s.release();
+      return Array.from(y, halfBitsToNumber);
+    };
+    const want = await run(bytes), got = await run(folded);
+    const scale = Math.max(...want.map(Math.abs));
+    got.forEach((v, i) => expect(Math.abs(v - want[i]!)).toBeLessThanOrEqual(2e-2 * scale));
+  });
 });

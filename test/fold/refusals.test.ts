@@ -6,6 +6,8 @@ import { describe, expect, it } from 'vitest';
 import { GraphBuilder, f, modelBytes, randn, rng, T } from '../helpers/build.js';
 import { maxDiff, runOrt } from '../helpers/ort.js';
 import { parseModel } from '../../src/onnx/read.js';
+import { halfBitsToNumber, numberToHalfBits } from '../../src/onnx/tensor.js';
+import * as ort from 'onnxruntime-node';
 import { analyze } from '../../src/fold/index.js';
 import { batchNormAffine } from '../../src/fold/affine.js';
 import { contractShift, layouts, producerBias, scaleWeights, weightView } from '../../src/fold/weights.js';
@@ -221,6 +223,21 @@ describe('refusals', () => {
     const out = foldBytes(bytes);
     expect(summary(out.ledger)).toEqual(['bn:kept:storage-overflow']);
     expect(Buffer.from(out.bytes).equals(Buffer.from(bytes))).toBe(true);
+    // The naive fold stores 1000 * 10000 = 1e7 in float16, which is infinity: onnxruntime-node then gives a
+    // non-finite output where the original gives a finite one.
+    const naive = new GraphBuilder();
+    naive.input('x', [1, 1, 2, 2], T.FLOAT16).output('y', [1, 1, 1, 1], T.FLOAT16);
+    naive.init('w', [1, 1, 2, 2], [1000, -1000, 500, 250].map((v) => v * 10000), T.FLOAT16);
+    naive.node('Conv', ['x', 'w'], {}, { name: 'conv', outputs: ['y'] });
+    const x = new ort.Tensor('float16', new Uint16Array(4).fill(numberToHalfBits(0.001)), [1, 1, 2, 2]);
+    const run = async (b: Uint8Array) => {
+      const sess = await ort.InferenceSession.create(b, { graphOptimizationLevel: 'disabled', executionProviders: ['cpu'] });
+      const y = halfBitsToNumber((await sess.run({ x })).y!.data[0] as number);
+      await sess.release();
+      return y;
+    };
+    expect(Number.isFinite(await run(out.bytes))).toBe(true);
+    expect(Number.isFinite(await run(modelBytes(naive)))).toBe(false);
   });
 
   it('kept-by-user: --keep NODE', async () => {
@@ -251,5 +268,19 @@ describe('refusals', () => {
     // The reverted spot is byte-for-byte the original: fold only bn1 by keeping bn2 and compare.
     const { bytes } = foldBytes(modelBytes(g), { keep: ['bn2'] });
     expect(Buffer.from(r.after).equals(Buffer.from(bytes))).toBe(true);
+  });
+
+  it('dtype-unsupported: norm parameters of an integer type (not a valid model; audit and fold leave it)', () => {
+    const g = new GraphBuilder();
+    g.input('x', [1, 2, 4, 4]).output('y', [1, 2, 2, 2]);
+    const c = g.node('Conv', ['x', w(g, 'w', [2, 2, 3, 3], 27)], {}, { name: 'conv' });
+    const [s, b, , v] = bnParams(g, 'bn', 2, 28);
+    g.init('int_mean', [2], [0, 1], T.INT64);
+    g.node('BatchNormalization', [c, s!, b!, 'int_mean', v!], {}, { name: 'bn', outputs: ['y'] });
+    const bytes = modelBytes(g);
+    expect(analyze(parseModel(bytes, dir)).map((x) => `${x.node}:${x.reason}`)).toEqual(['bn:dtype-unsupported']);
+    const out = foldBytes(bytes);
+    expect(summary(out.ledger)).toEqual(['bn:kept:dtype-unsupported']);
+    expect(Buffer.from(out.bytes).equals(Buffer.from(bytes))).toBe(true);
   });
 });

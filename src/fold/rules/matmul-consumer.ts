@@ -7,7 +7,7 @@ import { addConstantInput, scaleConstant, changeOf, makeNode, replaceConstant } 
 import { freshName, isRefusal } from '../context.js';
 import { resolveRun } from '../run.js';
 import { contractShift, layouts, maxAbs, scaleWeights, weightView, type WeightView } from '../weights.js';
-import { bypassRun, fitsStorage, overflow, type FoldRule } from './rule.js';
+import { bypassRun, fitsStorage, overflow, type FoldRule, withBroadcast } from './rule.js';
 
 interface Data { view: WeightView; map: Int32Array; bias: Float64Array; form: 'scale-only' | 'gemm' | 'add' }
 
@@ -15,7 +15,7 @@ export const matmulConsumer: FoldRule<Data> = {
   name: 'matmul-consumer',
   op: 'MatMul',
   direction: 'into-consumer',
-  match(_ctx, run, layer) {
+  match(ctx, run, layer) {
     const a = resolveRun(run, layer.rank, 0, layer.inChannels);
     if (isRefusal(a)) return a;
     const t = layer.weight.tensor;
@@ -25,7 +25,7 @@ export const matmulConsumer: FoldRule<Data> = {
     const bias = contractShift(weight, v, map, 'b', layer.outChannels, a.shift);
     if (!fitsStorage(maxAbs(bias), t.dataType)) return overflow('bias', t.dataType);
     if (!fitsStorage(scaleWeights(weight, v, map, a.scale), t.dataType)) return overflow('weights', t.dataType);
-    const form = !hasShift(a) ? 'scale-only' : layer.rank === 2 ? 'gemm' : 'add';
+    const form = !hasShift(a) ? 'scale-only' : layer.rank === 2 && ctx.opsetOf('') >= 11 ? 'gemm' : 'add';
     return { rule: matmulConsumer, run, layer, affine: a, adds: form === 'add' ? 1 : 0, data: { view: v, map, bias, form } };
   },
   rewrite(ctx, m, edit) {
@@ -44,7 +44,7 @@ export const matmulConsumer: FoldRule<Data> = {
       changeOf(edit, node).outputs[0] = unbiased;
       const bias = freshName(ctx, `${layer.weight.name}.bias`);
       edit.newInitializers.push(makeTensor(bias, [data.bias.length], dt, data.bias));
-      edit.inserts.push({ node: makeNode('Add', freshName(ctx, `${layer.label}.bias_add`), [unbiased, bias], [out]), after: node });
+      edit.inserts.push({ node: withBroadcast(ctx, makeNode('Add', freshName(ctx, `${layer.label}.bias_add`), [unbiased, bias], [out])), after: node });
     }
   },
 };

@@ -7,7 +7,7 @@ import { addConstantInput, scaleConstant, changeOf, makeNode, replaceConstant } 
 import { freshName, isRefusal } from '../context.js';
 import { resolveRun } from '../run.js';
 import { layouts, maxAbs, weightView, type WeightView } from '../weights.js';
-import { fitsStorage, overflow, producerOutputFree, removeRun, takeOverRun, type FoldRule } from './rule.js';
+import { fitsStorage, overflow, producerOutputFree, removeRun, takeOverRun, type FoldRule, withBroadcast } from './rule.js';
 
 interface Data { view: WeightView; map: Int32Array; shift: Float64Array; form: 'scale-only' | 'gemm' | 'add' }
 
@@ -15,7 +15,7 @@ export const matmulProducer: FoldRule<Data> = {
   name: 'matmul-producer',
   op: 'MatMul',
   direction: 'into-producer',
-  match(_ctx, run, layer) {
+  match(ctx, run, layer) {
     const busy = producerOutputFree(layer, run);
     if (busy) return busy;
     const a = resolveRun(run, layer.rank, 0, layer.outChannels);
@@ -25,7 +25,7 @@ export const matmulProducer: FoldRule<Data> = {
     const map = layouts.columns(v);
     if (!fitsStorage(scaledMaxAbs(t, v, map, a.scale), t.dataType)) return overflow('weights', t.dataType);
     if (!fitsStorage(maxAbs(a.shift), t.dataType)) return overflow('bias', t.dataType);
-    const form = !hasShift(a) ? 'scale-only' : layer.rank === 2 ? 'gemm' : 'add';
+    const form = !hasShift(a) ? 'scale-only' : layer.rank === 2 && ctx.opsetOf('') >= 11 ? 'gemm' : 'add';
     return { rule: matmulProducer, run, layer, affine: a, adds: form === 'add' ? 1 : 0, data: { view: v, map, shift: a.shift, form } };
   },
   rewrite(ctx, m, edit) {
@@ -37,7 +37,7 @@ export const matmulProducer: FoldRule<Data> = {
     if (data.form === 'add') {
       const bias = freshName(ctx, `${layer.weight.name}.bias`);
       edit.newInitializers.push(makeTensor(bias, [data.shift.length], dt, data.shift));
-      edit.inserts.push({ node: makeNode('Add', freshName(ctx, `${layer.label}.bias_add`), [node.outputs[0]!, bias], [run.bottom]), after: node });
+      edit.inserts.push({ node: withBroadcast(ctx, makeNode('Add', freshName(ctx, `${layer.label}.bias_add`), [node.outputs[0]!, bias], [run.bottom])), after: node });
       removeRun(edit, run);
       return;
     }

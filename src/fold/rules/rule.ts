@@ -2,7 +2,8 @@
 // affine steps), a match that checks every condition and returns a match or one refusal, and a rewrite that
 // turns a match into an edit without deciding anything.
 import type { DataTypeCode, Node } from '../../graph/ir.js';
-import { roundToStorage, dataTypeName } from '../../onnx/tensor.js';
+import { roundToStorage, dataTypeName, numberToHalfBits, numberToBfloatBits } from '../../onnx/tensor.js';
+import { DataType } from '../../graph/ir.js';
 import type { Affine } from '../affine.js';
 import type { Edit } from '../apply.js';
 import { changeOf } from '../apply.js';
@@ -48,7 +49,13 @@ export function producerOutputFree(layer: Layer, run: Run): Refusal | undefined 
 /** A folded value fits the storage type when it rounds to a finite number there (float16 max 65504). */
 export function fitsStorage(maxAbsValue: number, dataType: DataTypeCode): boolean {
   if (!(maxAbsValue >= 0)) return false;
-  return Number.isFinite(roundToStorage(Float64Array.of(maxAbsValue), dataType)[0]!);
+  switch (dataType) {
+    case DataType.DOUBLE: return Number.isFinite(maxAbsValue);
+    case DataType.FLOAT: return Number.isFinite(Math.fround(maxAbsValue));
+    case DataType.FLOAT16: return (numberToHalfBits(maxAbsValue) & 0x7c00) !== 0x7c00;
+    case DataType.BFLOAT16: return (numberToBfloatBits(maxAbsValue) & 0x7f80) !== 0x7f80;
+    default: return Number.isFinite(roundToStorage(Float64Array.of(maxAbsValue), dataType)[0]!);
+  }
 }
 
 export function overflow(what: string, dataType: DataTypeCode): Refusal {
@@ -79,4 +86,10 @@ export function bypassRun(edit: Edit, layer: Layer, run: Run): void {
 
 export function labelOf(n: Node): string {
   return n.name || n.opType;
+}
+
+/** Before opset 7 an Add broadcasts only with broadcast=1 (then the bias matches trailing axes). */
+export function withBroadcast(ctx: FoldContext, n: Node): Node {
+  if (ctx.opsetOf('') < 7) n.attributes.push({ name: 'broadcast', value: { type: 'INT', i: 1 }, docString: '', refAttrName: '', extra: [] });
+  return n;
 }
