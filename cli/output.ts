@@ -34,3 +34,23 @@ export async function emit(plan: ReturnType<typeof planReports>, render: (format
 export function reportErrors(lines: readonly string[]): void {
   for (const l of lines) process.stderr.write(`pleat: ${l}\n`);
 }
+
+/**
+ * Run fold or audit jobs (one worker per core), then print their reports and set the exit code to the worst
+ * of the batch. The library is loaded here, not at start-up: --help or a usage error needs none of it.
+ */
+export async function runAndReport(command: 'fold' | 'audit', jobs: import('./batch.js').Job[], plan: ReturnType<typeof planReports>, quiet: boolean): Promise<void> {
+  const { runBatch } = await import('./batch.js');
+  const { renderJobs, isJobError } = await import('../src/report/render.js');
+  const { startProgress } = await import('./progress.js');
+  const progress = startProgress(jobs.length, command, { quiet });
+  let outcomes;
+  try {
+    outcomes = await runBatch(jobs, progress);
+  } finally {
+    progress.end(); // erase the bar before any output, error lines included
+  }
+  reportErrors(outcomes.filter(isJobError).map((o) => o.error.message));
+  await emit(plan, (format, colour) => renderJobs(command, outcomes, format, colour));
+  process.exitCode = Math.max(0, ...outcomes.map((o) => o.exitCode));
+}

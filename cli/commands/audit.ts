@@ -1,8 +1,7 @@
 import type { Argv } from 'yargs';
 import { keepList, loadConfig } from '../config.js';
 import type { Job } from '../batch.js';
-import { emit, planReports, reportErrors } from '../output.js';
-import { startProgress } from '../progress.js';
+import { planReports, runAndReport } from '../output.js';
 import { configFlags, EPILOGUE, many, reportFlags } from '../flags.js';
 
 export const command = 'audit <models..>';
@@ -25,17 +24,5 @@ export async function handler(argv: Flags): Promise<void> {
   const { config } = loadConfig(argv.config);
   const opts = { keep: keepList(config, argv.keep), failOn: argv.failOn ?? config.failOn, allowOverridable: argv.allowOverridable };
   const jobs: Job[] = argv.models.map((model) => ({ command: 'audit', model, opts }));
-  // loaded here, not at start-up: the library is large, and --help or a usage error needs none of it
-  const { runBatch } = await import('../batch.js');
-  const { renderJobs, isJobError } = await import('../../src/report/render.js');
-  const progress = startProgress(jobs.length, 'audit', { quiet: argv.quiet });
-  let outcomes;
-  try {
-    outcomes = await runBatch(jobs, progress);
-  } finally {
-    progress.end(); // erase the bar before any output, error lines included
-  }
-  reportErrors(outcomes.filter(isJobError).map((o) => o.error.message));
-  await emit(plan, (format, colour) => renderJobs('audit', outcomes, format, colour));
-  process.exitCode = Math.max(0, ...outcomes.map((o) => o.exitCode));
+  await runAndReport('audit', jobs, plan, argv.quiet);
 }

@@ -5,8 +5,7 @@ import { PleatError } from '../../src/errors.js';
 import type { FoldJobOptions } from '../../src/jobs/types.js';
 import { keepList, loadConfig, runSettings } from '../config.js';
 import type { Job } from '../batch.js';
-import { emit, planReports, reportErrors } from '../output.js';
-import { startProgress } from '../progress.js';
+import { planReports, runAndReport } from '../output.js';
 import { configFlags, EPILOGUE, inputFlags, many, reportFlags } from '../flags.js';
 
 export const command = 'fold <models..>';
@@ -60,17 +59,5 @@ export async function handler(argv: Flags): Promise<void> {
     keep: keepList(config, argv.keep), store: argv.store ?? config.store, allowOverridable: argv.allowOverridable,
   };
   const jobs: Job[] = argv.models.map((model, i) => ({ command: 'fold', model, output: outputs[i]!, opts }));
-  // loaded here, not at start-up: the library is large, and --help or a usage error needs none of it
-  const { runBatch } = await import('../batch.js');
-  const { renderJobs, isJobError } = await import('../../src/report/render.js');
-  const progress = startProgress(jobs.length, 'fold', { quiet: argv.quiet });
-  let outcomes;
-  try {
-    outcomes = await runBatch(jobs, progress);
-  } finally {
-    progress.end(); // erase the bar before any output, error lines included
-  }
-  reportErrors(outcomes.filter(isJobError).map((o) => o.error.message));
-  await emit(plan, (format, colour) => renderJobs('fold', outcomes, format, colour));
-  process.exitCode = Math.max(0, ...outcomes.map((o) => o.exitCode));
+  await runAndReport('fold', jobs, plan, argv.quiet);
 }

@@ -2,17 +2,7 @@
 // random weights (about 378 MB). Built directly as IR and written with pleat's streaming writer.
 import type { Graph, Model, Node, Tensor, ValueInfo } from '../../src/graph/ir.js';
 import { writeModelFile } from '../../src/onnx/write.js';
-
-function rng(seed: number): () => number {
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
+import { rng } from '../../src/onnx/builder.js';
 
 function floatTensor(name: string, dims: number[], fill: (i: number) => number): Tensor {
   const n = dims.reduce((a, b) => a * b, 1);

@@ -7,7 +7,7 @@ import { GraphBuilder, modelBytes, randn, rng, uniform } from '../helpers/build.
 import { pleat } from '../helpers/cli.js';
 
 describe('--allow-overridable', () => {
-  it('keeps a norm whose layer weight is an overridable input, and folds it only with the flag', () => {
+  it('keeps a norm whose layer weight is an overridable input, and folds it only with the flag', { timeout: 60_000 }, () => {
     const dir = mkdtempSync(join(tmpdir(), 'pleat-ovr-'));
     const r = rng(5);
     const g = new GraphBuilder();
