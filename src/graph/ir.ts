@@ -66,6 +66,11 @@ export interface Tensor {
   docString: string;
   extra: RawField[];
   origin?: Origin;
+  /**
+   * Set by the reader on an initializer that is also listed as a graph input: a default value a caller may
+   * replace at run time (IR version 4 and later; before that every initializer had to be listed as an input).
+   */
+  overridable?: boolean;
 }
 
 export type AttributeValue =

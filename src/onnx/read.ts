@@ -232,6 +232,16 @@ export function decodeGraph(buf: Buf, start: number, end: number, depth = 0): Gr
   return g;
 }
 
+/** Mark initializers that are also graph inputs (defaults callers may replace), in every graph. */
+function markOverridable(g: Graph, irVersion: number): void {
+  const inputs = new Set(g.inputs.map((v) => v.name));
+  for (const t of g.initializers) if (irVersion >= 4 && inputs.has(t.name)) t.overridable = true;
+  for (const n of g.nodes) for (const a of n.attributes) {
+    if (a.value.type === 'GRAPH') markOverridable(a.value.g, irVersion);
+    else if (a.value.type === 'GRAPHS') a.value.graphs.forEach((sg) => markOverridable(sg, irVersion));
+  }
+}
+
 function decodeOpset(buf: Buf, start: number, end: number): OpsetImport {
   const fields = scanFields(buf, start, end);
   const o: OpsetImport = { domain: '', version: 0, extra: [] };
@@ -277,6 +287,7 @@ export function decodeModel(buf: Buf, baseDir: string): Model {
   }
   if (!graph) throw new PleatError('bad-model', 'no graph in the file: this is not an ONNX model');
   const model = { ...m, graph } as Model;
+  markOverridable(graph, model.irVersion);
   model.origin = origin(buf, 0, buf.byteLength, fields, modelSig(model));
   return model;
 }

@@ -226,3 +226,18 @@ describe('sparse reading of large weights', () => {
     expect(readFileSync(src).equals(Buffer.from(bytes))).toBe(true); // the input is never modified
   });
 });
+
+describe('overridable initializers', () => {
+  it('marks an initializer that is also a graph input (IR >= 4) as a default callers may replace', () => {
+    const g = new GraphBuilder();
+    g.input('x', [1, 2]).input('s', [2]).output('y', [1, 2]);
+    g.init('s', [2], [1, 2]);
+    g.init('t', [2], [3, 4]);
+    g.node('Mul', ['x', 's'], {}, { outputs: ['m'] });
+    g.node('Add', ['m', 't'], {}, { outputs: ['y'] });
+    const m = parseModel(modelBytes(g), '/x');
+    expect(m.graph.initializers.map((t) => [t.name, t.overridable ?? false])).toEqual([['s', true], ['t', false]]);
+    const old = parseModel(modelBytes(g, { irVersion: 3, opset: 7 }), '/x');
+    expect(old.graph.initializers.map((t) => t.overridable ?? false)).toEqual([false, false]);
+  });
+});
