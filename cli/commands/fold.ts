@@ -19,6 +19,7 @@ export function builder(y: Argv) {
     .option('keep', { type: 'string', coerce: many, describe: 'leave this normalization node in place; repeatable' })
     .option('allow-overridable', { type: 'boolean', default: false, describe: 'also fold weights and norm parameters that are graph inputs with defaults (callers could replace them)' })
     .option('store', { type: 'string', choices: ['float16'], describe: 'store folded weights in half precision' })
+    .option('external-data-min', { type: 'number', describe: 'store tensors of at least this many bytes in a side file OUT.data (ONNX external data)' })
     .option('gate', { type: 'string', describe: 'gate for the whole-model check, e.g. "maxAbs < 1e-4 and cosine > 0.99999"' })
     .option('probes', { type: 'number', describe: 'number of seeded probes for the whole-model check (default 2)' })
     .option('quiet', { type: 'boolean', default: false, describe: 'no progress bar' }))))
@@ -26,7 +27,7 @@ export function builder(y: Argv) {
 }
 
 interface Flags {
-  models: string[]; out?: string; outDir?: string; keep?: string[]; allowOverridable: boolean; store?: 'float16'; gate?: string; probes?: number; seed?: number;
+  models: string[]; out?: string; outDir?: string; keep?: string[]; allowOverridable: boolean; externalDataMin?: number; store?: 'float16'; gate?: string; probes?: number; seed?: number;
   input?: string[]; shape?: string[]; dim?: string[]; json?: boolean; format?: string; report?: string[]; config?: string; quiet: boolean;
 }
 
@@ -57,6 +58,7 @@ export async function handler(argv: Flags): Promise<void> {
   const opts: FoldJobOptions = {
     inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, probes: run.probes, gate: run.gate,
     keep: keepList(config, argv.keep), store: argv.store ?? config.store, allowOverridable: argv.allowOverridable,
+    externalThreshold: argv.externalDataMin,
   };
   const jobs: Job[] = argv.models.map((model, i) => ({ command: 'fold', model, output: outputs[i]!, opts }));
   await runAndReport('fold', jobs, plan, argv.quiet);
