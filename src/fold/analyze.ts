@@ -5,7 +5,7 @@ import { makeContext, isRefusal, refuse, type FoldContext, type Refusal } from '
 import { isLayer, readLayer } from './layers.js';
 import { collectRun, isStep, stepOf, type Run, type StepCache } from './run.js';
 import { isBatchNorm } from './steps.js';
-import { buildScopes, isLinear, type Scope } from './scope.js';
+import { buildScopes, isLinear, labelOf, type Scope } from './scope.js';
 import { runtimeNorm } from './norms.js';
 import { ruleFor, type RuleMatch } from './rules/index.js';
 import type { Direction, Finding, FoldOptions, ReasonCode } from './types.js';
@@ -17,7 +17,7 @@ export type Outcome =
 
 interface Side extends Refusal { direction: Direction; target: string }
 
-const label = (scope: Scope, n: Node) => scope.labels.get(n) ?? n.name ?? n.opType;
+const label = labelOf;
 
 /** A fold must leave fewer nodes, unless it removes a BatchNormalization (a bias Add is cheaper than a norm). */
 const worthIt = (m: RuleMatch) => m.run.hasBatchNorm || m.run.steps.length > m.adds;

@@ -15,7 +15,8 @@ export interface FoldContext {
   opsetOf: (domain: string) => number;
   /** Every name in use (values, nodes), for deterministic fresh names. */
   readonly names: Set<string>;
-  /** Ledger names fixed at the start (an unnamed node keeps its op#index even after other nodes go). */
+  /** Ledger names fixed at the start for unnamed nodes (an unnamed node keeps its op#index even after other
+   * nodes go); a node without an entry is its name. */
   labels: Map<Node, string>;
   irVersion: number;
   /** Next suffix to try per fresh-name base (keeps naming linear when many clones share a base). */
@@ -46,7 +47,8 @@ export function refuse(reason: ReasonCode, hint: string): Refusal {
 
 export function makeContext(model: Model, options: FoldOptions): FoldContext {
   const labels = new Map<Node, string>();
-  eachGraph(model.graph, (g) => { g.nodes.forEach((n, i) => labels.set(n, nodeLabel(n, i))); });
+  // Only unnamed nodes need an entry (their op#index must not shift as nodes go); a named node is its name.
+  eachGraph(model.graph, (g) => { g.nodes.forEach((n, i) => { if (!n.name) labels.set(n, nodeLabel(n, i)); }); });
   let names: Set<string> | undefined;
   // Only a fold needs every name in use (for fresh ones); an audit never builds the set.
   const allNames = () => names ??= namesIn(model);

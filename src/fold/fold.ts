@@ -10,7 +10,7 @@ import { cleanUp } from './cleanup.js';
 import { applyEdit, flushPending, newEdit, regionAfter, regionBefore } from './apply.js';
 import { assessRun, findingsOf, foldHint } from './analyze.js';
 import { collectRun, isStep, stepOf } from './run.js';
-import { buildScopes, eachGraph } from './scope.js';
+import { buildScopes, eachGraph, labelOf } from './scope.js';
 import type { FoldLedger, FoldOptions, LedgerEntry } from './types.js';
 
 const MAX_PASSES = 64;
@@ -89,7 +89,7 @@ export function foldModel(model: Model, options: FoldOptions = {}): { model: Mod
   const bytesBefore = weightBytes(model);
   // Ledger order: where each node stood in the original model.
   const order = new Map<string, number>();
-  for (const s of buildScopes(model, ctx.labels)) for (const n of s.graph.nodes) order.set(`${s.path}\u0000${s.labels.get(n)}`, order.size);
+  for (const s of buildScopes(model, ctx.labels)) for (const n of s.graph.nodes) order.set(`${s.path}\u0000${labelOf(s, n)}`, order.size);
   const folded: LedgerEntry[] = [];
   const released = new Set<string>();
   const gone = new Set<string>();

@@ -4,7 +4,7 @@ import type { Node } from '../graph/ir.js';
 import { attrFloat, attrInt, attrInts, attrString, elementCount } from '../graph/ir.js';
 import { isFloatType, dataTypeName } from '../onnx/tensor.js';
 import { DataType } from '../graph/ir.js';
-import { constantOf, rankOf, type ConstRef, type Scope } from './scope.js';
+import { constantOf, labelOf, rankOf, type ConstRef, type Scope } from './scope.js';
 import { refuse, type FoldContext, type Refusal } from './context.js';
 
 export type LayerOp = 'Conv' | 'ConvTranspose' | 'Gemm' | 'MatMul';
@@ -53,7 +53,7 @@ const isRef = (x: ConstRef | Refusal): x is ConstRef => 'tensor' in x;
 /** The layer's constant weight and geometry, or why it cannot take a fold. */
 export function readLayer(ctx: FoldContext, scope: Scope, n: Node): Layer | Refusal {
   const op = n.opType as LayerOp;
-  const label = scope.labels.get(n) ?? n.name;
+  const label = labelOf(scope, n);
   const [x, w, b] = n.inputs;
   if (!x || !w) return refuse('no-linear-neighbour', `'${label}' has no weight input`);
   const weight = constantParam(ctx, scope, n, w, 'weight');
@@ -69,11 +69,12 @@ export function readLayer(ctx: FoldContext, scope: Scope, n: Node): Layer | Refu
   }
   const dims = weight.tensor.dims;
   const group = op === 'Conv' || op === 'ConvTranspose' ? attrInt(n, 'group', 1) : 1;
-  const base: Omit<Layer, 'rank' | 'outChannels' | 'inChannels'> = {
-    node: n, op, label, data: x, weight, bias, group,
-    alpha: attrFloat(n, 'alpha', 1), beta: attrFloat(n, 'beta', 1),
-    transA: attrInt(n, 'transA', 0) === 1, transB: attrInt(n, 'transB', 0) === 1, unpadded: true,
-  };
+  const transB = attrInt(n, 'transB', 0) === 1;
+  // One literal per layer (no spread of a partial object): this runs for every layer of the model.
+  const layer = (rank: number | undefined, outChannels: number, inChannels: number, unpadded: boolean, beta = attrFloat(n, 'beta', 1)): Layer => ({
+    node: n, op, label, data: x, weight, bias, group, rank, outChannels, inChannels,
+    alpha: attrFloat(n, 'alpha', 1), beta, transA: attrInt(n, 'transA', 0) === 1, transB, unpadded,
+  });
   switch (op) {
     case 'Conv': case 'ConvTranspose': {
       if (dims.length < 3 || group < 1 || dims[0]! % group !== 0) return refuse('no-linear-neighbour', `weight of '${label}' has an unexpected shape [${dims.join(',')}]`);
@@ -83,17 +84,17 @@ export function readLayer(ctx: FoldContext, scope: Scope, n: Node): Layer | Refu
       const outChannels = op === 'Conv' ? dims[0]! : dims[1]! * group;
       const inChannels = op === 'Conv' ? dims[1]! * group : dims[0]!;
       if (bias && elementCount(bias.tensor.dims) !== outChannels) return refuse('no-linear-neighbour', `bias of '${label}' does not hold one value per output channel`);
-      return { ...base, rank: dims.length, outChannels, inChannels, unpadded };
+      return layer(dims.length, outChannels, inChannels, unpadded);
     }
     case 'Gemm': {
       if (dims.length !== 2) return refuse('no-linear-neighbour', `weight of '${label}' is not a matrix`);
-      const [k, nOut] = base.transB ? [dims[1]!, dims[0]!] : [dims[0]!, dims[1]!];
-      return { ...base, rank: 2, outChannels: nOut, inChannels: k };
+      const [k, nOut] = transB ? [dims[1]!, dims[0]!] : [dims[0]!, dims[1]!];
+      return layer(2, nOut, k, true);
     }
     case 'MatMul': {
       if (dims.length !== 2) return refuse('no-linear-neighbour', `the weight of '${label}' is not a constant 2-D matrix`);
       const ra = rankOf(scope, x);
-      return { ...base, rank: ra, outChannels: dims[1]!, inChannels: dims[0]!, beta: 1 };
+      return layer(ra, dims[1]!, dims[0]!, true, 1);
     }
   }
   return refuse('no-linear-neighbour', `'${label}' is not a Conv, ConvTranspose, Gemm or MatMul`);

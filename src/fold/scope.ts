@@ -12,7 +12,10 @@ export interface Scope {
   /** The node owning this body (undefined for the main graph). */
   owner?: Node;
   ud: UseDef;
-  /** Ledger name of each node: its name, or op#index when unnamed. */
+  /**
+   * Ledger names of the unnamed nodes (op#index, or the name fixed at the start); a named node is its name.
+   * Read through labelOf: a map of every node would be one more entry per node for the collector to trace.
+   */
   labels: Map<Node, string>;
   ranks: Map<string, number | undefined>;
   infos?: Map<string, ValueInfo>;
@@ -35,6 +38,11 @@ export function nodeLabel(n: Node, index: number): string {
   return n.name || `${n.opType}#${index}`;
 }
 
+/** Ledger name of a node of this scope. */
+export function labelOf(scope: Scope, n: Node): string {
+  return scope.labels.get(n) ?? n.name;
+}
+
 export function isDefaultDomain(n: Node): boolean {
   return n.domain === '' || n.domain === 'ai.onnx';
 }
@@ -44,13 +52,19 @@ export function buildScopes(model: Model, fixedLabels?: Map<Node, string>): Scop
   const out: Scope[] = [];
   const visit = (graph: Graph, path: string, parent?: Scope, owner?: Node) => {
     const labels = new Map<Node, string>();
-    graph.nodes.forEach((n, i) => labels.set(n, fixedLabels?.get(n) ?? nodeLabel(n, i)));
+    const nodes = graph.nodes;
+    for (let i = 0; i < nodes.length; i++) {
+      const n = nodes[i]!;
+      const fixed = fixedLabels?.get(n);
+      if (fixed !== undefined ? fixed !== n.name : !n.name) labels.set(n, fixed ?? nodeLabel(n, i));
+    }
     const scope: Scope = { graph, path, parent, owner, ud: buildUseDef(graph), labels, ranks: new Map(), inputsOverride: model.irVersion >= 4 };
     out.push(scope);
-    for (const n of graph.nodes) {
+    for (const n of nodes) {
       for (const a of n.attributes) {
-        const gs = a.value.type === 'GRAPH' ? [a.value.g] : a.value.type === 'GRAPHS' ? a.value.graphs : [];
-        gs.forEach((g, k) => visit(g, `${path}/${labels.get(n)}.${a.name}${gs.length > 1 ? `[${k}]` : ''}`, scope, n));
+        if (a.value.type !== 'GRAPH' && a.value.type !== 'GRAPHS') continue;
+        const gs = a.value.type === 'GRAPH' ? [a.value.g] : a.value.graphs;
+        gs.forEach((g, k) => visit(g, `${path}/${labelOf(scope, n)}.${a.name}${gs.length > 1 ? `[${k}]` : ''}`, scope, n));
       }
     }
   };
@@ -60,7 +74,7 @@ export function buildScopes(model: Model, fixedLabels?: Map<Node, string>): Scop
 
 /** True when the scope defines the value itself (input, initializer or node output). */
 function definesLocally(s: Scope, v: string): boolean {
-  return s.ud.producer(v) !== undefined || s.ud.initializer(v) !== undefined || s.ud.isGraphInput(v);
+  return s.ud.defines(v);
 }
 
 /** The scope that defines a value, following outer scopes. */
@@ -71,9 +85,11 @@ export function homeOf(s: Scope, v: string): Scope | undefined {
 
 /** The constant behind a value (initializer or Constant node, in this or an outer scope), if any. */
 export function constantOf(s: Scope, v: string): ConstRef | undefined {
-  const home = homeOf(s, v);
+  // The common case, a weight stored in the reader's own graph, in one lookup: an initializer defines v here.
+  let init = s.ud.initializer(v);
+  const home = init ? s : homeOf(s, v);
   if (!home) return undefined;
-  const init = home.ud.initializer(v);
+  init ??= home.ud.initializer(v);
   if (init) return { name: v, tensor: init, home, overridable: home.inputsOverride && home.ud.isGraphInput(v) };
   const p = home.ud.producer(v);
   if (!p || p.opType !== 'Constant' || !isDefaultDomain(p)) return undefined;

@@ -6,6 +6,7 @@ import { attrFloat, attrInt, elementCount } from '../graph/ir.js';
 import { isFloatType, tensorToFloat64, dataTypeName } from '../onnx/tensor.js';
 import { batchNormAffine, channelAxisFromEnd, type Affine, type ElementwiseOp } from './affine.js';
 import { constantOf, isDefaultDomain, type ConstRef, type Scope } from './scope.js';
+import { weightSource } from './values.js';
 import { refuse, type FoldContext, type Refusal } from './context.js';
 
 export interface AffineStep {
@@ -38,7 +39,12 @@ export function isElementwise(n: Node): boolean {
 
 const keptByUser = (ctx: FoldContext, n: Node) => ctx.keep.size > 0 && (ctx.keep.has(n.name) || ctx.keep.has(ctx.labels.get(n) ?? n.name));
 const proofFailed = (ctx: FoldContext, n: Node) => ctx.proofFailed.has(n);
-const trainingMode = (n: Node) => attrInt(n, 'training_mode', 0) === 1 || n.outputs.slice(1).some((o) => o !== '');
+const trainingMode = (n: Node) => attrInt(n, 'training_mode', 0) === 1 || hasExtraOutput(n);
+
+function hasExtraOutput(n: Node): boolean {
+  for (let i = 1; i < n.outputs.length; i++) if (n.outputs[i] !== '') return true;
+  return false;
+}
 const perActivation = (n: Node) => attrInt(n, 'spatial', 1) === 0;
 const overridable = (ctx: FoldContext, refs: ConstRef[]) => !ctx.allowOverridable && refs.some((r) => r.overridable);
 
@@ -79,8 +85,8 @@ function readBatchNorm(ctx: FoldContext, scope: Scope, n: Node): AffineStep | Re
   if (refs.some((r) => r.tensor.dims.length !== 1 || elementCount(r.tensor.dims) !== c)) {
     return refuse('axis-mismatch', 'scale, B, mean and var must each hold one value per channel');
   }
-  const [gamma, beta, mean, variance] = refs.map((r) => tensorToFloat64(r.tensor)) as [Float64Array, Float64Array, Float64Array, Float64Array];
-  const bn = batchNormAffine(gamma, beta, mean, variance, attrFloat(n, 'epsilon', 1e-5));
+  // Read in place (float32 raw data is exact in float64 arithmetic): a copy per parameter per norm is garbage.
+  const bn = batchNormAffine(weightSource(refs[0]!.tensor), weightSource(refs[1]!.tensor), weightSource(refs[2]!.tensor), weightSource(refs[3]!.tensor), attrFloat(n, 'epsilon', 1e-5));
   return { node: n, kind: 'batch-norm', data: n.inputs[0]!, output: n.outputs[0]!, bn, consts: refs };
 }
 

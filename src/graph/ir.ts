@@ -174,7 +174,8 @@ export function opsetVersion(model: Pick<Model, 'opsets'>, domain = ''): number 
 }
 
 export function attr(node: Node, name: string): AttributeValue | undefined {
-  return node.attributes.find((a) => a.name === name)?.value;
+  for (const a of node.attributes) if (a.name === name) return a.value; // a loop: called per node in analyses
+  return undefined;
 }
 
 export function attrInt(node: Node, name: string, dflt: number): number;

@@ -10,7 +10,7 @@ import type { Model, Node } from '../graph/ir.js';
 import { attrInt } from '../graph/ir.js';
 import type { LedgerEntry } from '../fold/types.js';
 import type { QuantRow } from '../jobs/types.js';
-import { buildScopes, constantOf, type Scope } from '../fold/scope.js';
+import { buildScopes, constantOf, labelOf, type Scope } from '../fold/scope.js';
 import { layouts, weightView } from '../fold/weights.js';
 import { tensorToFloat64 } from '../onnx/tensor.js';
 
@@ -90,8 +90,7 @@ function spreadOfLayer(scope: Scope, n: Node): { spread: number; channels: numbe
 
 /** A scope's node by ledger label (name, or op#index when unnamed). */
 function byLabel(scope: Scope, label: string): Node | undefined {
-  for (const [n, l] of scope.labels) if (l === label) return n;
-  return undefined;
+  return scope.graph.nodes.find((n) => labelOf(scope, n) === label);
 }
 
 const LINEAR = new Set(['Conv', 'ConvTranspose', 'Gemm', 'MatMul']);
