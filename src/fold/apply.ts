@@ -50,7 +50,7 @@ export function changeOf(edit: Edit, node: Node): NodeChange & { inputs: string[
  * is its only reader, else into a clone with a fresh deterministic name (`<name>.folded`, `<name>.folded.2`).
  */
 export function replaceConstant(ctx: FoldContext, edit: Edit, node: Node, index: number, ref: ConstRef, values: Float64Array, dims: number[]): void {
-  if (soleReader(edit.scope, ref.name, node) && !ref.overridable) {
+  if (soleReader(edit.scope, ref.name, node) && !ref.overridable && !ref.shorthand) {
     edit.tensorValues.push({ ref, values, dims });
     return;
   }
@@ -65,7 +65,7 @@ export function replaceConstant(ctx: FoldContext, edit: Edit, node: Node, index:
  * reader, else in a clone (see replaceConstant).
  */
 export function scaleConstant(ctx: FoldContext, edit: Edit, node: Node, index: number, ref: ConstRef, view: WeightView, map: Int32Array, scale: Float64Array): void {
-  if (soleReader(edit.scope, ref.name, node) && !ref.overridable) {
+  if (soleReader(edit.scope, ref.name, node) && !ref.overridable && !ref.shorthand) {
     edit.tensorScales.push({ ref, view, map, scale });
     return;
   }

@@ -1,5 +1,6 @@
 // The model seen by the fold rules: every graph (main and nested bodies) with its producer/consumer index,
 // a path for reports, and lookups that follow outer scopes (a body reads the outer graph's weights).
+import { isShorthandConstant } from '../graph/constants.js';
 import type { Graph, Model, Node, Tensor, ValueInfo } from '../graph/ir.js';
 import { subgraphsOf } from '../graph/ir.js';
 import { buildUseDef, outerRefs, type UseDef } from '../graph/usedef.js';
@@ -32,6 +33,8 @@ export interface ConstRef {
   constantNode?: Node;
   /** Also declared as a graph input: callers may replace it at run time. */
   overridable: boolean;
+  /** Held in a Constant node's value_float(s)/value_int(s) shorthand: new values go into a clone. */
+  shorthand?: boolean;
 }
 
 export function nodeLabel(n: Node, index: number): string {
@@ -94,7 +97,7 @@ export function constantOf(s: Scope, v: string): ConstRef | undefined {
   const p = home.ud.producer(v);
   if (!p || p.opType !== 'Constant' || !isDefaultDomain(p)) return undefined;
   const t = home.ud.constantTensor(v);
-  return t ? { name: v, tensor: t, home, constantNode: p, overridable: false } : undefined;
+  return t ? { name: v, tensor: t, home, constantNode: p, overridable: false, shorthand: isShorthandConstant(t) } : undefined;
 }
 
 /**

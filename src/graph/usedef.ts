@@ -1,8 +1,9 @@
 // Producer and consumer index of a graph. Reads from inside a subgraph (If branches, Loop/Scan bodies) of a
 // value defined outside it count as reads by the node that owns the subgraph: changing that value would
 // change what the subgraph sees.
+import { constantNodeTensor } from './constants.js';
 import type { Graph, Node, Tensor } from './ir.js';
-import { attrTensor, subgraphsOf } from './ir.js';
+import { subgraphsOf } from './ir.js';
 
 export interface UseDef {
   graph: Graph;
@@ -13,7 +14,7 @@ export interface UseDef {
   /** Defined here: a node output, an initializer or a graph input (one lookup for all three). */
   defines(value: string): boolean;
   initializer(value: string): Tensor | undefined;
-  /** An initializer or the tensor of a Constant node (value attribute only; other forms via constantOf). */
+  /** An initializer or the tensor of a Constant node (value, value_float(s) or value_int(s)). */
   constantTensor(value: string): Tensor | undefined;
 }
 
@@ -126,7 +127,7 @@ export function buildUseDef(graph: Graph): UseDef {
       const t = initializerOf(v);
       if (t) return t;
       const p = producerOf(v);
-      return p && p.opType === 'Constant' && (p.domain === '' || p.domain === 'ai.onnx') ? attrTensor(p, 'value') : undefined;
+      return p && p.opType === 'Constant' && (p.domain === '' || p.domain === 'ai.onnx') ? constantNodeTensor(p) : undefined;
     },
   };
 }

@@ -302,7 +302,10 @@ export function parseTensor(bytes: Uint8Array): Tensor {
   }
 }
 
-/** Parse model bytes, load external data relative to baseDir, and check the graph's structure. */
+/**
+ * Parse model bytes, load external data relative to baseDir, and check the graph's structure. Tensors are views
+ * into `bytes` (no copies), so an edit made in place writes into them: pass a copy to keep the original.
+ */
 export function parseModel(bytes: Uint8Array, baseDir: string, label = 'model'): Model {
   if (bytes.byteLength === 0) throw new PleatError('bad-model', `${label}: the file is empty`);
   let model: Model;
