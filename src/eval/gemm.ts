@@ -8,6 +8,7 @@
 // layout for a fast scalar matrix multiply. Sums are in float64; a Float32Array C rounds once per k-block.
 import type { NumArray } from './value.js';
 import { simdKernels, type SimdKernels } from './wasm-gemm.js';
+import { isConstant } from './pool.js';
 
 export interface Operand {
   data: NumArray;
@@ -82,7 +83,11 @@ export function gemm(M: number, N: number, K: number, A: Operand, B: Operand, C:
   const simd = useSimd ? simdKernels() : undefined;
   // the SIMD path packs all of A into module memory; very large operands stay on the scalar path
   const simdBytes = (Math.ceil(M / 4) * 4 * K + K * SNC + SMC * SNC) * 8;
-  if (simd && M * N * K >= 512 && simdBytes <= 1 << 29) { gemmSimd(simd, M, N, K, A, B, C, cOff, ldc, accumulate); return; }
+  if (simd && M * N * K >= 512 && simdBytes <= 1 << 29) {
+    if (M === 1 && !(C instanceof Float32Array)) gemv(N, K, A, B, C, cOff, accumulate);
+    else gemmSimd(simd, M, N, K, A, B, C, cOff, ldc, accumulate);
+    return;
+  }
   for (let j0 = 0; j0 < N; j0 += NC) {
     const nc = Math.min(NC, N - j0);
     for (let k0 = 0; k0 < K; k0 += KC) {
@@ -144,6 +149,35 @@ function macroKernel(mc: number, nc: number, kc: number, C: NumArray, cOff: numb
   }
 }
 
+/**
+ * One row of A times B (a dense layer on one sample) in float64, each sum taken over k in order from zero: the
+ * same arithmetic as the float64 SIMD kernel, without packing B (which for a transposed weight is a strided
+ * gather of the whole matrix) or computing a 4-row tile for one row.
+ */
+function gemv(N: number, K: number, A: Operand, B: Operand, C: NumArray, cOff: number, accumulate: boolean): void {
+  const ad = A.data, ao = A.off, acs = A.cs, bd = B.data, bo = B.off, brs = B.rs, bcs = B.cs;
+  if (brs === 1) {
+    for (let j = 0; j < N; j++) {
+      const s = dot(ad, ao, acs, bd, bo + j * bcs, K);
+      if (accumulate) C[cOff + j] += s; else C[cOff + j] = s;
+    }
+    return;
+  }
+  const row = new Float64Array(N);
+  for (let k = 0; k < K; k++) {
+    const a = ad[ao + k * acs]!, b = bo + k * brs;
+    for (let j = 0; j < N; j++) row[j] += a * bd[b + j * bcs]!;
+  }
+  for (let j = 0; j < N; j++) { if (accumulate) C[cOff + j] += row[j]!; else C[cOff + j] = row[j]!; }
+}
+
+/** sum over k < K of a[ao + k*sa] * b[bo + k], from zero in order (its own function: called per output, so optimized early). */
+function dot(a: NumArray, ao: number, sa: number, b: NumArray, bo: number, K: number): number {
+  let s = 0;
+  for (let k = 0; k < K; k++) s += a[ao + k * sa]! * b[bo + k]!;
+  return s;
+}
+
 /** Row-major operand helper: a matrix stored row-major at `off` with `cols` columns, optionally transposed. */
 export function rowMajor(data: NumArray, off: number, cols: number, transposed = false): Operand {
   return transposed ? { data, off, rs: 1, cs: cols } : { data, off, rs: cols, cs: 1 };
@@ -170,17 +204,30 @@ export function memoryViews(simd: SimdKernels, bytes: number): { f32: Float32Arr
   return views;
 }
 
+// Packed A of constant operands (weights), so repeated runs copy the packed tiles in with one memcpy. The copies
+// are capped in total size (a large model packs afresh past the cap rather than doubling its weight memory); an
+// entry's bytes return to the budget when its weight array is collected.
+const packedA = new WeakMap<NumArray, Map<string, Float32Array | Float64Array>>();
+const PACKED_MAX_BYTES = 128 * 1024 * 1024;
+let packedBytes = 0;
+const packedFreed = new FinalizationRegistry<number>((bytes) => { packedBytes -= bytes; });
+
+// B panel rows get two cache lines of padding, so the kernel's strided reads down a panel column spread over
+// the cache sets instead of landing in a few (a power-of-two row length halved float64 speed when measured)
+const B_PAD_BYTES = 128;
+
 /**
  * The micro-kernel in WebAssembly: all of A is packed once (4-row tiles over the whole k range), then for each
- * panel of up to 512 columns B is packed and each 128-row block of C is computed in module memory with the sum
- * over k kept in registers, and copied (or added) into C. The kernel's element type follows C: a Float32Array C
- * is computed in float32, anything else in float64.
+ * panel of up to 512 columns B is copied row-major and each 128-row block of C is computed in module memory with
+ * the sum over k kept in registers, and copied (or added) into C. The kernel's element type follows C: a
+ * Float32Array C is computed in float32, anything else in float64.
  */
 function gemmSimd(simd: SimdKernels, M: number, N: number, K: number, A: Operand, B: Operand, C: NumArray, cOff: number, ldc: number, accumulate: boolean): void {
   const f64 = !(C instanceof Float32Array);
   const es = f64 ? 8 : 4, nr = 32 / es;
   const mTilesAll = Math.ceil(M / 4);
-  const paBytes = mTilesAll * 4 * K * es, pbBytes = K * SNC * es, pcBytes = SMC * SNC * es;
+  const ldbMax = SNC + B_PAD_BYTES / es;
+  const paBytes = mTilesAll * 4 * K * es, pbBytes = K * ldbMax * es, pcBytes = SMC * SNC * es;
   const { f32, f64: d64 } = memoryViews(simd, paBytes + pbBytes + pcBytes);
   const mem = f64 ? d64 : f32;
   const pb = paBytes, pc = paBytes + pbBytes;
@@ -188,8 +235,11 @@ function gemmSimd(simd: SimdKernels, M: number, N: number, K: number, A: Operand
   const kern = f64 ? simd.k64 : simd.k32;
   const ad = A.data, ars = A.rs, acs = A.cs, bd = B.data, brs = B.rs, bcs = B.cs;
   // pack A: tile t holds rows 4t..4t+3, k-major
+  const aKey = isConstant(ad) ? `${A.off},${ars},${acs},${M},${K},${es}` : undefined;
+  const aCached = aKey === undefined ? undefined : packedA.get(ad)?.get(aKey);
+  if (aCached) mem.set(aCached, 0);
   let q = 0;
-  for (let t = 0; t < mTilesAll; t++) {
+  for (let t = 0; t < (aCached ? 0 : mTilesAll); t++) {
     const ib = t * 4, rows = Math.min(4, M - ib);
     const base = A.off + ib * ars;
     if (rows === 4) {
@@ -206,31 +256,27 @@ function gemmSimd(simd: SimdKernels, M: number, N: number, K: number, A: Operand
       }
     }
   }
+  if (aKey !== undefined && !aCached && packedBytes + paBytes <= PACKED_MAX_BYTES) {
+    let m = packedA.get(ad);
+    if (!m) { m = new Map(); packedA.set(ad, m); }
+    m.set(aKey, mem.slice(0, mTilesAll * 4 * K));
+    packedBytes += paBytes;
+    packedFreed.register(ad, paBytes);
+  }
   const sameType = f64 ? C instanceof Float64Array : true;
   for (let j0 = 0; j0 < N; j0 += SNC) {
     const nc = Math.min(SNC, N - j0), nTiles = Math.ceil(nc / nr), ldcE = nTiles * nr;
-    // pack B[:, j0:j0+nc] as nTiles tiles of K x nr
-    let p = pbE;
-    for (let t = 0; t < nTiles; t++) {
-      const jb = j0 + t * nr, cols = Math.min(nr, N - jb);
-      const base = B.off + jb * bcs;
-      if (cols === nr && bcs === 1) {
-        for (let k = 0; k < K; k++) {
-          const o = base + k * brs;
-          for (let c = 0; c < nr; c++) mem[p + c] = bd[o + c]!;
-          p += nr;
-        }
-      } else {
-        for (let k = 0; k < K; k++) {
-          const o = base + k * brs;
-          for (let c = 0; c < nr; c++) mem[p + c] = c < cols ? bd[o + c * bcs]! : 0;
-          p += nr;
-        }
-      }
+    const ldbE = ldcE + B_PAD_BYTES / es;
+    // copy B[:, j0:j0+nc] row-major (ldbE elements per row), zeroing the columns past nc
+    if (nc < ldcE) mem.fill(0, pbE, pbE + K * ldbE);
+    for (let k = 0; k < K; k++) {
+      const o = B.off + k * brs + j0 * bcs, dst = pbE + k * ldbE;
+      if (bcs === 1 && nc >= 16) mem.set(bd.subarray(o, o + nc), dst);
+      else for (let c = 0; c < nc; c++) mem[dst + c] = bd[o + c * bcs]!;
     }
     for (let i0 = 0; i0 < M; i0 += SMC) {
       const mc = Math.min(SMC, M - i0), mTiles = Math.ceil(mc / 4);
-      kern((i0 / 4) * 4 * K * es, pb, pc, mTiles, nTiles, K, ldcE * es);
+      kern((i0 / 4) * 4 * K * es, pb, pc, mTiles, nTiles, K, ldcE * es, ldbE * es);
       for (let r = 0; r < mc; r++) {
         const dst = cOff + (i0 + r) * ldc + j0, src = pcE + r * ldcE;
         if (accumulate) for (let c = 0; c < nc; c++) C[dst + c] += mem[src + c]!;

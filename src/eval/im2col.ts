@@ -27,6 +27,15 @@ function validRange(n: number, outN: number, s: number, p: number, kOff: number)
   return [lo, hi];
 }
 
+/**
+ * col[dst + o] = x[src + o*s] for o in [lo, hi). A separate small function so the engine optimizes it after a few
+ * calls and keeps it optimized across runs (inlined in one long loop nest it ran unoptimized on every new run).
+ */
+function copyRow(col: NumArray, dst: number, x: NumArray, src: number, lo: number, hi: number, s: number): void {
+  if (s === 1) { if (hi - lo >= 32) col.set(x.subarray(src + lo, src + hi), dst + lo); else for (let o = lo; o < hi; o++) col[dst + o] = x[src + o]!; return; }
+  for (let o = lo; o < hi; o++) col[dst + o] = x[src + o * s]!;
+}
+
 /** Fill col (rows C*kD*kH*kW, cols outD*outH*outW) from image x (C x inD x inH x inW at xOff). */
 export function im2col(x: NumArray, xOff: number, C: number, g: Geometry3, col: NumArray): void {
   const { inD, inH, inW, outD, outH, outW, kD, kH, kW, sD, sH, sW, dD, dH, dW, pD, pH, pW } = g;
@@ -48,8 +57,7 @@ export function im2col(x: NumArray, xOff: number, C: number, g: Geometry3, col: 
               const ih = oh * sH - pH + kh * dH;
               const src = xc + id * inPlane + ih * inW - pW + kw * dW;
               const dst = base + od * outPlane + oh * outW;
-              if (sW === 1) for (let ow = w0; ow < w1; ow++) col[dst + ow] = x[src + ow]!;
-              else for (let ow = w0; ow < w1; ow++) col[dst + ow] = x[src + ow * sW]!;
+              copyRow(col, dst, x, src, w0, w1, sW);
             }
           }
         }

@@ -8,6 +8,8 @@
 //                                       last reader of a value has run and nothing else holds its buffer)
 //   isPooled(arr)                    -> whether arr came from takeFloat32/64 and has not been given back
 //   releasePool()                    -> drop every pooled buffer (memory goes back to the garbage collector)
+//   markConstant(arr) / isConstant(arr) -> arrays that never change once made (decoded initializers), so
+//                                       kernels may cache data derived from them (gemm's packed weights)
 // Kernels allocate through allocFloat (attrs.ts) or these functions; they must not keep a taken array after
 // returning it as a result.
 import type { NumArray } from './value.js';
@@ -63,3 +65,9 @@ export function releasePool(): void {
   free64.clear();
   pooledBytes = 0;
 }
+
+const constants = new WeakSet<NumArray>();
+
+export function markConstant(a: NumArray): void { constants.add(a); }
+
+export function isConstant(a: NumArray): boolean { return constants.has(a); }

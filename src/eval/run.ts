@@ -4,7 +4,7 @@ import { PleatError } from '../errors.js';
 import { opsetVersion, subgraphsOf, elementCount, type Graph, type Model, type Node, type Tensor } from '../graph/ir.js';
 import { isFloatType, tensorToFloat64, dataTypeName } from '../onnx/tensor.js';
 import { getKernel } from './registry.js';
-import { giveBack, isPooled } from './pool.js';
+import { giveBack, isConstant, isPooled, markConstant } from './pool.js';
 import type { KernelContext, NumArray, Precision, Value } from './value.js';
 
 export interface RunOptions { precision: Precision; }
@@ -25,7 +25,6 @@ export function tensorToValue(t: Tensor, precision: Precision): Value {
 // by the storage object, which every edit replaces (setTensorValues); dims and type are checked as well.
 interface Decoded { dims: string; type: number; f64?: Float64Array; f32?: Float32Array }
 const decoded = new WeakMap<object, Decoded>();
-const cachedArrays = new WeakSet<NumArray>();
 
 function initializerValue(t: Tensor, precision: Precision): Value {
   const key = t.dims.join(',');
@@ -37,7 +36,7 @@ function initializerValue(t: Tensor, precision: Precision): Value {
     const v = tensorToValue(t, precision);
     data = v.data;
     if (f32) d.f32 = data as Float32Array; else d.f64 = data as Float64Array;
-    cachedArrays.add(data);
+    markConstant(data);
   }
   return { type: t.dataType, dims: [...t.dims], data };
 }
@@ -131,6 +130,16 @@ export function runGraph(graph: Graph, inputs: Map<string, Value>, opts: GraphRu
         const res = runGraph(sub, extra ?? new Map(), { precision, opsetOf, outer: scope });
         return sub.outputs.map((o) => res.get(o.name)!);
       },
+      reusable(i: number): boolean {
+        // the input's array is pooled, held by this one name only, which nothing reads after this node (no
+        // graph output, no later node, no second input slot, not redefined by this node) and which is not the
+        // caller's or an enclosing scope's
+        const name = node.inputs[i];
+        if (!name || keep.has(name) || lastUse.get(name) !== idx || !env.has(name)) return false;
+        if (node.inputs.indexOf(name) !== i || node.inputs.lastIndexOf(name) !== i || node.outputs.includes(name)) return false;
+        const data = env.get(name)!.data;
+        return holders.get(data) === 1 && !foreign.has(data);
+      },
     };
     const results = kernel.run(args, ctx);
     node.outputs.forEach((name, i) => {
@@ -153,7 +162,7 @@ export function runGraph(graph: Graph, inputs: Map<string, Value>, opts: GraphRu
     const v = lookup(o.name);
     if (!v) throw new PleatError('bad-model', `graph '${graph.name}': output '${o.name}' is never computed`);
     // a cached initializer handed to the caller is a copy, so the caller may change it freely
-    out.set(o.name, cachedArrays.has(v.data) ? { ...v, data: v.data.slice() } : v);
+    out.set(o.name, isConstant(v.data) ? { ...v, data: v.data.slice() } : v);
   }
   return out;
 }

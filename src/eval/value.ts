@@ -21,6 +21,11 @@ export interface KernelContext {
   precision: Precision;
   /** Run a subgraph (If branches) with outer-scope values visible; returns the subgraph's outputs. */
   runSubgraph(graph: Graph, extra?: Map<string, Value>): Value[];
+  /**
+   * Whether the kernel may overwrite input i's array and return it as its result: true only when no later
+   * node, graph output, outer scope or caller can read that array (the evaluator checks its holders).
+   */
+  reusable?(i: number): boolean;
 }
 
 export interface Kernel {

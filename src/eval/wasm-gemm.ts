@@ -1,7 +1,8 @@
 // SIMD micro-kernels for the blocked GEMM, as a tiny WebAssembly module assembled here byte by byte (no
 // toolchain, no binary blob: the instruction list below is the source). Packed panels live in the module's
-// memory; each kernel multiplies an A block (tiles of 4 rows, k-major) by a B panel (tiles of 32 bytes of
-// columns, k-major) into a row-major C block, accumulating in registers over the whole k range:
+// memory; each kernel multiplies an A block (tiles of 4 rows, k-major) by a row-major B panel (ldb bytes per
+// row, read 32 bytes of columns at a time) into a row-major C block, accumulating in registers over the whole
+// k range:
 //   f32: 4 x 8 tile, f32x4 lanes (float32 arithmetic, the deployment mode)
 //   f64: 4 x 4 tile, f64x2 lanes (float64 arithmetic, the ground-truth mode)
 // Returns undefined when the runtime has no WebAssembly SIMD; gemm.ts then uses its scalar path.
@@ -9,14 +10,17 @@
 export interface SimdKernels {
   memory: WebAssembly.Memory;
   /**
-   * Depthwise (single-channel) stride-1 convolution over a zero-padded plane, one vector of outputs at a time:
-   * (inP, outP, wP, outH, outVecs, inRowBytes, outRowBytes, kH, kW, dHBytes, dWBytes), byte offsets and steps.
+   * Depthwise (single-channel) convolution over a zero-padded plane, one vector of outputs at a time:
+   * (inP, outP, wP, tabP, taps, outH, outVecs, rowStep, outRow, biasP), byte offsets and steps. Output vector
+   * (oh, v) is bias + sum over taps t (in order) of w[t] * in[inP + oh*rowStep + v*16 + tab[t]], where tab holds
+   * one i32 byte offset per tap; strided convolutions lay each input row out as its column phases so that a
+   * vector of outputs still reads consecutive elements.
    */
-  d32: (inP: number, outP: number, wP: number, outH: number, outVecs: number, inRow: number, outRow: number, kH: number, kW: number, dH: number, dW: number) => void;
-  d64: (inP: number, outP: number, wP: number, outH: number, outVecs: number, inRow: number, outRow: number, kH: number, kW: number, dH: number, dW: number) => void;
-  /** (pa, pb, pc, mTiles, nTiles, kc, ldcBytes): byte offsets into memory. */
-  k32: (pa: number, pb: number, pc: number, mTiles: number, nTiles: number, kc: number, ldcBytes: number) => void;
-  k64: (pa: number, pb: number, pc: number, mTiles: number, nTiles: number, kc: number, ldcBytes: number) => void;
+  d32: (inP: number, outP: number, wP: number, tabP: number, taps: number, outH: number, outVecs: number, rowStep: number, outRow: number, biasP: number) => void;
+  d64: (inP: number, outP: number, wP: number, tabP: number, taps: number, outH: number, outVecs: number, rowStep: number, outRow: number, biasP: number) => void;
+  /** (pa, pb, pc, mTiles, nTiles, kc, ldcBytes, ldbBytes): byte offsets into memory. */
+  k32: (pa: number, pb: number, pc: number, mTiles: number, nTiles: number, kc: number, ldcBytes: number, ldbBytes: number) => void;
+  k64: (pa: number, pb: number, pc: number, mTiles: number, nTiles: number, kc: number, ldcBytes: number, ldbBytes: number) => void;
 }
 
 function uleb(n: number): number[] {
@@ -45,15 +49,15 @@ const section = (id: number, body: number[]): number[] => [id, ...uleb(body.leng
 
 // opcodes
 const LOCAL_GET = 0x20, LOCAL_SET = 0x21, I32_CONST = 0x41, I32_ADD = 0x6a, I32_SUB = 0x6b, I32_MUL = 0x6c;
-const I32_LT_U = 0x49, LOOP = 0x03, END = 0x0b, BR_IF = 0x0d, VOID = 0x40;
+const I32_LT_U = 0x49, I32_LOAD = 0x28, LOOP = 0x03, END = 0x0b, BR_IF = 0x0d, VOID = 0x40;
 const simd = (op: number): number[] => [0xfd, ...uleb(op)];
 const V128_LOAD = 0x00, V128_STORE = 0x0b, V128_CONST = 0x0c, LOAD32_SPLAT = 0x09, LOAD64_SPLAT = 0x0a;
 const F32X4_ADD = 0xe4, F32X4_MUL = 0xe6, F64X2_ADD = 0xf0, F64X2_MUL = 0xf2;
 
-// params: pa 0, pb 1, pc 2, mTiles 3, nTiles 4, kc 5, ldc 6; locals: jt 7, it 8, k 9, ap 10, bp 11, cp 12,
-// acc0..acc7 13..20, b0 21, b1 22, a 23
-const PA = 0, PB = 1, PC = 2, MT = 3, NT = 4, KC = 5, LDC = 6, JT = 7, IT = 8, K = 9, AP = 10, BP = 11, CP = 12;
-const ACC = 13, B0 = 21, B1 = 22, A = 23;
+// params: pa 0, pb 1, pc 2, mTiles 3, nTiles 4, kc 5, ldc 6, ldb 7; locals: jt 8, it 9, k 10, ap 11, bp 12,
+// cp 13, acc0..acc7 14..21, b0 22, b1 23, a 24
+const PA = 0, PB = 1, PC = 2, MT = 3, NT = 4, KC = 5, LDC = 6, LDB = 7, JT = 8, IT = 9, K = 10, AP = 11, BP = 12, CP = 13;
+const ACC = 14, B0 = 22, B1 = 23, A = 24;
 
 function kernelBody(f64: boolean): number[] {
   const es = f64 ? 8 : 4; // element size
@@ -68,9 +72,9 @@ function kernelBody(f64: boolean): number[] {
   emit([LOOP, VOID]); // j tiles
   emit(c(0), set(IT));
   emit([LOOP, VOID]); // i tiles
-  // ap = pa + it * kc * aTileBytes ; bp = pb + jt * kc * 32
+  // ap = pa + it * kc * aTileBytes ; bp = pb + jt * 32
   emit(get(PA), get(IT), get(KC), [I32_MUL], c(aTileBytes), [I32_MUL], [I32_ADD], set(AP));
-  emit(get(PB), get(JT), get(KC), [I32_MUL], c(32), [I32_MUL], [I32_ADD], set(BP));
+  emit(get(PB), get(JT), c(32), [I32_MUL], [I32_ADD], set(BP));
   for (let r = 0; r < 8; r++) emit(simd(V128_CONST), new Array(16).fill(0), set(ACC + r));
   emit(get(KC), set(K));
   emit([LOOP, VOID]); // k
@@ -82,7 +86,7 @@ function kernelBody(f64: boolean): number[] {
     emit(get(ACC + 2 * r + 1), get(A), get(B1), mul, add, set(ACC + 2 * r + 1));
   }
   emit(get(AP), c(aTileBytes), [I32_ADD], set(AP));
-  emit(get(BP), c(32), [I32_ADD], set(BP));
+  emit(get(BP), get(LDB), [I32_ADD], set(BP));
   emit(get(K), c(1), [I32_SUB], [0x22, K]); // local.tee k
   emit([BR_IF, 0], [END]);
   // cp = pc + it*4*ldc + jt*32
@@ -100,38 +104,37 @@ function kernelBody(f64: boolean): number[] {
   return [...uleb(body.length), ...body];
 }
 
-// depthwise params: inP 0, outP 1, wP 2, outH 3, outVecs 4, inRow 5, outRow 6, kH 7, kW 8, dH 9, dW 10;
-// locals: oh 11, v 12, kh 13, kw 14, p 15, pw 16, row 17, acc 18 (v128)
+// depthwise params: inP 0, outP 1, wP 2, tabP 3, taps 4, outH 5, outVecs 6, rowStep 7, outRow 8, biasP 9;
+// locals: oh 10, v 11, t 12, pw 13, pt 14, row 15, acc 16 (v128)
 function depthwiseBody(f64: boolean): number[] {
   const es = f64 ? 8 : 4;
   const add = simd(f64 ? F64X2_ADD : F32X4_ADD), mul = simd(f64 ? F64X2_MUL : F32X4_MUL);
   const splat = f64 ? [...simd(LOAD64_SPLAT), 3, 0] : [...simd(LOAD32_SPLAT), 2, 0];
   const get = (i: number) => [LOCAL_GET, i], set = (i: number) => [LOCAL_SET, i], tee = (i: number) => [0x22, i];
   const c = (v: number) => [I32_CONST, ...sleb(v)];
-  const [IN, OUT, W, OH_N, VN, INROW, OUTROW, KH, KW, DH, DW] = [0, 1, 2, 3, 4, 5, 6, 7, 8, 9, 10];
-  const [OH, V, KHI, KWI, P, PW, ROW, ACC1] = [11, 12, 13, 14, 15, 16, 17, 18];
+  const [IN, OUT, W, TAB, TAPS, OH_N, VN, ROWSTEP, OUTROW, BIAS] = [0, 1, 2, 3, 4, 5, 6, 7, 8, 9];
+  const [OH, V, T, PW, PT, ROW, ACC1] = [10, 11, 12, 13, 14, 15, 16];
   const code: number[] = [];
   const emit = (...xs: number[][]) => { for (const x of xs) code.push(...x); };
   emit(c(0), set(OH), [LOOP, VOID]);
   emit(c(0), set(V), [LOOP, VOID]);
   emit(simd(V128_CONST), new Array(16).fill(0), set(ACC1));
-  emit(get(W), set(PW));
-  // row = in + oh*inRow + v*16
-  emit(get(IN), get(OH), get(INROW), [I32_MUL], [I32_ADD], get(V), c(16), [I32_MUL], [I32_ADD], set(ROW));
-  emit(c(0), set(KHI), [LOOP, VOID]);
-  emit(get(ROW), set(P), c(0), set(KWI), [LOOP, VOID]);
-  emit(get(ACC1), get(PW), splat, get(P), simd(V128_LOAD), [4, 0], mul, add, set(ACC1));
+  emit(get(W), set(PW), get(TAB), set(PT), get(TAPS), set(T));
+  // row = in + oh*rowStep + v*16
+  emit(get(IN), get(OH), get(ROWSTEP), [I32_MUL], [I32_ADD], get(V), c(16), [I32_MUL], [I32_ADD], set(ROW));
+  emit([LOOP, VOID]);
+  // acc = acc + w[t] * in[row + tab[t]]
+  emit(get(ACC1), get(PW), splat, get(ROW), get(PT), [I32_LOAD, 2, 0], [I32_ADD], simd(V128_LOAD), [4, 0], mul, add, set(ACC1));
   emit(get(PW), c(es), [I32_ADD], set(PW));
-  emit(get(P), get(DW), [I32_ADD], set(P));
-  emit(get(KWI), c(1), [I32_ADD], tee(KWI), get(KW), [I32_LT_U], [BR_IF, 0], [END]);
-  emit(get(ROW), get(DH), [I32_ADD], set(ROW));
-  emit(get(KHI), c(1), [I32_ADD], tee(KHI), get(KH), [I32_LT_U], [BR_IF, 0], [END]);
-  // out + oh*outRow + v*16
-  emit(get(OUT), get(OH), get(OUTROW), [I32_MUL], [I32_ADD], get(V), c(16), [I32_MUL], [I32_ADD], get(ACC1), simd(V128_STORE), [4, 0]);
+  emit(get(PT), c(4), [I32_ADD], set(PT));
+  emit(get(T), c(1), [I32_SUB], tee(T), [BR_IF, 0], [END]);
+  // out + oh*outRow + v*16 = acc + bias (the bias added last, as a separate rounding)
+  emit(get(OUT), get(OH), get(OUTROW), [I32_MUL], [I32_ADD], get(V), c(16), [I32_MUL], [I32_ADD]);
+  emit(get(ACC1), get(BIAS), splat, add, simd(V128_STORE), [4, 0]);
   emit(get(V), c(1), [I32_ADD], tee(V), get(VN), [I32_LT_U], [BR_IF, 0], [END]);
   emit(get(OH), c(1), [I32_ADD], tee(OH), get(OH_N), [I32_LT_U], [BR_IF, 0], [END]);
   emit([END]);
-  const locals = vec([[...uleb(7), 0x7f], [...uleb(1), 0x7b]]);
+  const locals = vec([[...uleb(6), 0x7f], [...uleb(1), 0x7b]]);
   const body = [...locals, ...code];
   return [...uleb(body.length), ...body];
 }
@@ -139,8 +142,8 @@ function depthwiseBody(f64: boolean): number[] {
 export function moduleBytes(): Uint8Array<ArrayBuffer> {
   const i32 = 0x7f;
   const types = section(1, vec([
-    [0x60, ...vec(new Array(7).fill([i32])), ...vec([])],
-    [0x60, ...vec(new Array(11).fill([i32])), ...vec([])],
+    [0x60, ...vec(new Array(8).fill([i32])), ...vec([])],
+    [0x60, ...vec(new Array(10).fill([i32])), ...vec([])],
   ]));
   const funcs = section(3, vec([[0], [0], [1], [1]]));
   const memory = section(5, vec([[0x00, ...uleb(1)]]));

@@ -66,6 +66,28 @@ describe('Conv vs onnxruntime-node (seeded random geometries)', () => {
       } finally { setSimd(true); }
     }
   });
+  it('strided depthwise (the SIMD path stores each padded row as its column phases) and the scalar path', async () => {
+    for (const simd of [true, false]) {
+      setSimd(simd);
+      try {
+        for (let seed = 300; seed <= 330; seed++) {
+          const c = randomConv(rng(seed), true);
+          // strides 2 and 3 on every axis; dilations and pads stay random
+          c.attrs.strides = (c.attrs.strides as number[]).map((_, i) => 2 + ((seed + i) % 2));
+          await checkOp('Conv', 11, c.ins, c.attrs, ['y'], 1e-5, `simd ${simd} seed ${seed} ${c.label}`);
+        }
+        // the MobileNet shape: 3x3, stride 2, pads 1, on an even and an odd plane
+        for (const side of [16, 15]) {
+          const r = rng(side);
+          await checkOp('Conv', 13, [
+            { name: 'x', dims: [1, 6, side, side], data: randn(r, 6 * side * side) },
+            { name: 'w', dims: [6, 1, 3, 3], data: randn(r, 54), init: true },
+            { name: 'b', dims: [6], data: randn(r, 6), init: true },
+          ], { group: 6, strides: [2, 2], pads: [1, 1, 1, 1] }, ['y'], 1e-5, `simd ${simd} side ${side}`);
+        }
+      } finally { setSimd(true); }
+    }
+  });
   it('1x1 pointwise and a larger 3x3 layer (GEMM blocking edges)', async () => {
     const r = rng(7);
     await checkOp('Conv', 13, [

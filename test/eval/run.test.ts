@@ -6,7 +6,8 @@ import { GraphBuilder, T, modelBytes, randn, rng } from '../helpers/build.js';
 import { runOrt, maxDiff } from '../helpers/ort.js';
 import { parseModel } from '../../src/onnx/read.js';
 import { runModel, tensorToValue } from '../../src/eval/run.js';
-import { gemm, rowMajor, setSimd } from '../../src/eval/gemm.js';
+import { gemm, rowMajor, setSimd, type Operand } from '../../src/eval/gemm.js';
+import { markConstant } from '../../src/eval/pool.js';
 import { setTensorValues } from '../../src/graph/edit.js';
 import { isPleatError } from '../../src/errors.js';
 import type { Value } from '../../src/eval/value.js';
@@ -106,6 +107,43 @@ describe('runModel', () => {
   });
 });
 
+describe('results written over an input array that nothing else reads', () => {
+  it('BatchNormalization and Relu reuse only arrays no later node, graph output or caller can read (checked against onnxruntime-node)', async () => {
+    // a = Conv(x) feeds BN and a later Add, so BN must not write over it; b (BN) is read by Relu only, so Relu
+    // may; d is a graph output and also Relu's input; f = Relu(x) reads the caller's array, which must not change
+    const r = rng(21);
+    const g = new GraphBuilder();
+    g.input('x', [1, 4, 32, 32]).output('c').output('d').output('e').output('f');
+    g.init('w', [8, 4, 1, 1], randn(r, 32));
+    g.init('s', [8], randn(r, 8)); g.init('bb', [8], randn(r, 8)); g.init('m', [8], randn(r, 8));
+    g.init('v', [8], Array.from({ length: 8 }, () => 0.5 + r()));
+    g.init('w2', [4, 8, 1, 1], randn(r, 32));
+    g.node('Conv', ['x', 'w'], {}, { outputs: ['a'] });
+    g.node('BatchNormalization', ['a', 's', 'bb', 'm', 'v'], {}, { outputs: ['b'] });
+    g.node('Relu', ['b'], {}, { outputs: ['c'] });
+    g.node('Add', ['a', 'c'], {}, { outputs: ['d'] });
+    g.node('Relu', ['d'], {}, { outputs: ['e'] });
+    g.node('Relu', ['x'], {}, { outputs: ['f'] });
+    const bytes = modelBytes(g, { opset: 13 });
+    const x = randn(r, 4096);
+    const ref = await runOrt(bytes, { x: { dims: [1, 4, 32, 32], data: x } });
+    const model = parseModel(bytes, '.');
+    for (const p of ['float64', 'float32'] as const) {
+      for (let i = 0; i < 3; i++) {
+        const given = p === 'float32' ? Float32Array.from(x) : Float64Array.from(x);
+        const before = Array.from(given);
+        const out = runModel(model, new Map([['x', { type: T.FLOAT, dims: [1, 4, 32, 32], data: given }]]), { precision: p });
+        expect(Array.from(given), `caller's input (${p})`).toEqual(before);
+        for (const name of ['c', 'd', 'e', 'f']) {
+          const { maxAbs, scale } = maxDiff(out.get(name)!.data, ref[name]!.data);
+          expect(maxAbs, `${name} ${p} run ${i}`).toBeLessThanOrEqual(4e-6 * Math.max(scale, 1));
+        }
+        expect(out.get('d')!.data).not.toBe(out.get('e')!.data);
+      }
+    }
+  });
+});
+
 describe('subgraphs', () => {
   it('an If branch reads an outer value through Identity without its buffer being recycled (checked against onnxruntime-node)', async () => {
     const r = rng(8);
@@ -158,6 +196,57 @@ describe('gemm (both the WebAssembly SIMD path and the scalar path) against the 
           expect(maxAbs, `simd ${simd} f32 ${f32} M${M} N${N} K${K}`).toBeLessThanOrEqual((f32 ? 1e-5 : 1e-12) * Math.sqrt(K) * 10);
         }
       } finally { setSimd(true); }
+    }
+  });
+  it('several column panels (N > 512), a single row (the dense-layer case) and packed weights reused across calls', () => {
+    const r = rng(43);
+    const definition = (M: number, N: number, K: number, A: Operand, B: Operand, C0: Float64Array | undefined): Float64Array => {
+      const want = new Float64Array(M * N);
+      for (let i = 0; i < M; i++) for (let j = 0; j < N; j++) {
+        let s = C0 ? C0[i * N + j]! : 0;
+        for (let k = 0; k < K; k++) s += A.data[A.off + i * A.rs + k * A.cs]! * B.data[B.off + k * B.rs + j * B.cs]!;
+        want[i * N + j] = s;
+      }
+      return want;
+    };
+    const shapes: Array<[number, number, number]> = [[9, 1100, 33], [5, 512, 20], [1, 700, 90], [1, 3, 300], [6, 1, 200]];
+    for (const [M, N, K] of shapes) {
+      for (const f32 of [false, true]) {
+        for (const tB of [false, true]) {
+          for (const acc of [false, true]) {
+            const mk = (n: number) => (f32 ? Float32Array.from(randn(r, n)) : Float64Array.from(randn(r, n)));
+            const A = rowMajor(mk(M * K), 0, K), B = rowMajor(mk(K * N), 0, tB ? K : N, tB);
+            const C0 = Float64Array.from(randn(r, M * N));
+            const C = f32 ? Float32Array.from(C0) : Float64Array.from(C0);
+            gemm(M, N, K, A, B, C, 0, N, acc);
+            const { maxAbs } = maxDiff(C, definition(M, N, K, A, B, acc ? C0 : undefined));
+            expect(maxAbs, `f32 ${f32} tB ${tB} acc ${acc} M${M} N${N} K${K}`).toBeLessThanOrEqual((f32 ? 1e-5 : 1e-12) * Math.sqrt(K) * 10);
+          }
+        }
+      }
+    }
+    // a constant weight packed once is reused for other inputs; a same-sized array that changes is packed afresh
+    for (const f32 of [false, true]) {
+      const mk = (n: number) => (f32 ? Float32Array.from(randn(r, n)) : Float64Array.from(randn(r, n)));
+      const M = 13, N = 600, K = 40;
+      const W = mk(M * K);
+      markConstant(W);
+      const other = mk(M * K);
+      for (let t = 0; t < 3; t++) {
+        for (const [w, label] of [[W, 'constant'], [other, 'changing']] as const) {
+          const A = rowMajor(w, 0, K), B = rowMajor(mk(K * N), 0, N);
+          const C = f32 ? new Float32Array(M * N) : new Float64Array(M * N);
+          gemm(M, N, K, A, B, C, 0, N, false);
+          const { maxAbs } = maxDiff(C, definition(M, N, K, A, B, undefined));
+          expect(maxAbs, `${label} f32 ${f32} call ${t}`).toBeLessThanOrEqual((f32 ? 1e-5 : 1e-12) * Math.sqrt(K) * 10);
+        }
+        other.set(mk(M * K));
+      }
+      // the same constant array read as a smaller matrix at an offset is a different packing
+      const A = rowMajor(W, K, K), B = rowMajor(mk(K * N), 0, N);
+      const C = f32 ? new Float32Array(6 * N) : new Float64Array(6 * N);
+      gemm(6, N, K, A, B, C, 0, N, false);
+      expect(maxDiff(C, definition(6, N, K, A, B, undefined)).maxAbs).toBeLessThanOrEqual((f32 ? 1e-5 : 1e-12) * Math.sqrt(K) * 10);
     }
   });
 });

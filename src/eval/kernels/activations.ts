@@ -3,8 +3,8 @@
 // Formulas and attribute defaults are those of the ONNX operator docs.
 import { attrFloat } from '../../graph/ir.js';
 import { broadcastBinary, broadcastShape } from '../broadcast.js';
-import type { Kernel } from '../value.js';
-import { alloc, elementCount, need } from './common.js';
+import type { Kernel, NumArray } from '../value.js';
+import { alloc, allocLike, elementCount, need } from './common.js';
 import { unaryKernel } from './unary.js';
 
 /** A unary activation whose formula depends on the node's attributes. */
@@ -25,11 +25,16 @@ export const Relu: Kernel = {
   run(inputs, ctx) {
     const x = need(inputs, 0, ctx);
     const src = x.data, n = src.length;
-    const out = alloc(x.type, n, ctx);
-    for (let i = 0; i < n; i++) { const v = src[i]!; out[i] = v < 0 ? 0 : v; } // NaN stays NaN
+    const out = allocLike(inputs, 0, ctx, false); // may be src itself: each element is read before it is written
+    reluInto(out, src, n);
     return [{ type: x.type, dims: [...x.dims], data: out }];
   },
 };
+
+// a small function of its own, so it is optimized early and stays so across runs
+function reluInto(out: NumArray, src: NumArray, n: number): void {
+  for (let i = 0; i < n; i++) { const v = src[i]!; out[i] = v < 0 ? 0 : v; } // NaN stays NaN
+}
 
 export const LeakyRelu = withAttrs('LeakyRelu', (get) => {
   const alpha = get('alpha', 0.01);

@@ -4,7 +4,7 @@
 // running/saved statistics outputs) uses batch statistics and is refused.
 import { attrFloat, attrInt, elementCount } from '../../graph/ir.js';
 import { allocFloat, badModel, need, unsupported } from '../attrs.js';
-import type { Kernel, KernelContext, Value } from '../value.js';
+import type { Kernel, KernelContext, NumArray, Value } from '../value.js';
 
 function run(inputs: Array<Value | undefined>, ctx: KernelContext): Value[] {
   const X = need(inputs, 0, ctx, 'X');
@@ -31,16 +31,23 @@ function run(inputs: Array<Value | undefined>, ctx: KernelContext): Value[] {
     b[c] = mean.data[c]!;
   }
   const inner = sample / P; // spatial size per channel (1 for per-activation)
-  const Y = allocFloat(X.data.length, ctx.precision, false);
+  // X's own array when nothing else reads it (each element is read before it is written)
+  const reuse = ctx.reusable?.(0) && (ctx.precision === 'float32' ? X.data instanceof Float32Array : X.data instanceof Float64Array);
+  const Y = reuse ? X.data : allocFloat(X.data.length, ctx.precision, false);
   const x = X.data;
   for (let n = 0; n < N; n++) {
     for (let c = 0; c < P; c++) {
       const ac = a[c]!, mc = b[c]!, bc = B.data[c]!;
       const o = n * sample + c * inner;
-      for (let i = o; i < o + inner; i++) Y[i] = (x[i]! - mc) * ac + bc;
+      affineInto(Y, x, o, o + inner, mc, ac, bc);
     }
   }
   return [{ type: X.type, dims: [...X.dims], data: Y }];
+}
+
+// Y[i] = (x[i] - m) * a + b over [lo, hi): a small function of its own, so it is optimized early and stays so
+function affineInto(Y: NumArray, x: NumArray, lo: number, hi: number, m: number, a: number, b: number): void {
+  for (let i = lo; i < hi; i++) Y[i] = (x[i]! - m) * a + b;
 }
 
 export const BatchNormalization: Kernel = { op: 'BatchNormalization', domain: '', sinceVersion: 1, run };

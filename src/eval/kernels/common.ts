@@ -3,13 +3,28 @@
 import { DataType, elementCount, type DataTypeCode, type Tensor } from '../../graph/ir.js';
 import { badModel, unsupported } from '../attrs.js';
 import { dataTypeName, isFloatType, tensorToFloat64 } from '../../onnx/tensor.js';
+import { takeFloat32, takeFloat64 } from '../pool.js';
 import type { KernelContext, NumArray, Value } from '../value.js';
 
 export { isFloatType, badModel, unsupported };
 
-/** Storage for `n` elements of `type`: floats follow ctx.precision, integers and bools are always Float64Array. */
-export function alloc(type: DataTypeCode, n: number, ctx: Pick<KernelContext, 'precision'>): NumArray {
-  return isFloatType(type) && ctx.precision === 'float32' ? new Float32Array(n) : new Float64Array(n);
+/**
+ * Storage for `n` elements of `type`: floats follow ctx.precision, integers and bools are always Float64Array.
+ * Large buffers come from the evaluator's pool (fresh memory is slow to fault in), zeroed unless `zero` is false.
+ */
+export function alloc(type: DataTypeCode, n: number, ctx: Pick<KernelContext, 'precision'>, zero = true): NumArray {
+  return isFloatType(type) && ctx.precision === 'float32' ? takeFloat32(n, zero) : takeFloat64(n, zero);
+}
+
+/**
+ * Storage for an elementwise result of the same type and length as input i: input i's own array when the
+ * evaluator says nothing else can read it (see KernelContext.reusable), otherwise a pooled buffer.
+ */
+export function allocLike(inputs: Array<Value | undefined>, i: number, ctx: KernelContext, zero = true): NumArray {
+  const x = inputs[i]!;
+  const want32 = isFloatType(x.type) && ctx.precision === 'float32';
+  if (ctx.reusable?.(i) && (want32 ? x.data instanceof Float32Array : x.data instanceof Float64Array)) return x.data;
+  return alloc(x.type, x.data.length, ctx, zero);
 }
 
 /** A value with new dims sharing the same data (Reshape, Flatten, Squeeze, Identity...). */

@@ -1,6 +1,6 @@
 // Conv (all opsets: 1-D/2-D/3-D, groups, strides, dilations, pads, auto_pad, optional bias).
-// Grouped convolution with one input channel per group (depthwise, the MobileNet case) runs as direct loops
-// over the output plane; everything else is im2col + blocked GEMM per group, skipping im2col for 1x1 stride-1
+// Grouped convolution with one input channel per group (depthwise, the MobileNet case) runs with the SIMD
+// depthwise kernel for 1-D/2-D inputs (any stride and dilation), otherwise as direct loops over the output plane; everything else is im2col + blocked GEMM per group, skipping im2col for 1x1 stride-1
 // unpadded kernels where the input already is the column matrix.
 import { attrInt, attrInts, elementCount } from '../../graph/ir.js';
 import { allocFloat, badModel, need, slidingWindow, to3 } from '../attrs.js';
@@ -10,12 +10,20 @@ import { im2col, type Geometry3 } from '../im2col.js';
 import type { Kernel, KernelContext, NumArray, Value } from '../value.js';
 
 let colBuf = new Float64Array(0);
+let colBuf32 = new Float32Array(0);
 let planeBuf = new Float64Array(0);
 
 function scratch(n: number, which: 'col' | 'plane'): Float64Array {
   if (which === 'col') { if (colBuf.length < n) colBuf = new Float64Array(n); return colBuf; }
   if (planeBuf.length < n) planeBuf = new Float64Array(n);
   return planeBuf;
+}
+
+/** The im2col matrix in the input's element type (copies are exact), so GEMM copies its rows as they are. */
+function colScratch(n: number, like: NumArray): NumArray {
+  if (!(like instanceof Float32Array)) return scratch(n, 'col');
+  if (colBuf32.length < n) colBuf32 = new Float32Array(n);
+  return colBuf32;
 }
 
 export function geometry3(inSp: number[], outSp: number[], kernel: number[], strides: number[], dilations: number[], padBegin: number[]): Geometry3 {
@@ -81,42 +89,73 @@ function directChannel(x: NumArray, xOff: number, w: NumArray, wOff: number, g: 
   }
 }
 
+/** dst[d + i] = x[src + j] for j = lo, lo + s, ... < hi (one column phase of an input row). */
+function gather(dst: NumArray, d: number, x: NumArray, src: number, lo: number, hi: number, s: number): void {
+  for (let j = lo; j < hi; j += s) dst[d++] = x[src + j]!;
+}
+
 /**
- * Stride-1 2-D depthwise convolution of every channel with the WebAssembly SIMD kernel: each input plane is
- * copied into module memory with its zero padding, the kernel sums kH x kW taps for a vector of outputs at a
- * time, and the rows are copied (bias added) into Y. Returns false when SIMD is not available.
+ * 2-D depthwise convolution of every channel with the WebAssembly SIMD kernel: each input plane is copied into
+ * module memory with its zero padding, the kernel sums the kH x kW taps (in row-major tap order, then adds the
+ * bias) for a vector of outputs at a time, and the rows are copied into Y. With a column stride sW each padded
+ * input row is stored as its sW column phases (padded column c at phase c % sW, index floor(c / sW)), so the tap
+ * at column sW*ow + t of output column ow sits at index ow + floor(t / sW) of phase t % sW and a vector of
+ * outputs reads consecutive elements. Returns false when SIMD is not available.
  */
 function depthwiseSimd(x: NumArray, w: NumArray, B: Value | undefined, Y: NumArray, N: number, C: number, M: number, g: Geometry3): boolean {
   const simd = simdOn() ? simdKernels() : undefined;
   if (!simd) return false;
   const f64 = !(Y instanceof Float32Array);
   const es = f64 ? 8 : 4, lanes = 16 / es;
-  const { inH, inW, outH, outW, kH, kW, dH, dW, pH, pW } = g;
+  const { inH, inW, outH, outW, kH, kW, sH, sW, dH, dW, pH, pW } = g;
   const outVecs = Math.ceil(outW / lanes), outRow = outVecs * lanes;
-  const rowsIn = outH + (kH - 1) * dH, inRow = outRow + (kW - 1) * dW;
-  const wLen = Math.ceil((kH * kW) / lanes) * lanes;
-  const inE = wLen, outE = inE + rowsIn * inRow, total = outE + outH * outRow;
+  const reach = (kW - 1) * dW;
+  const phaseLen = outRow + Math.floor(reach / sW), inRow = sW * phaseLen;
+  const rowsIn = (outH - 1) * sH + (kH - 1) * dH + 1;
+  const kVol = kH * kW;
+  // layout in elements, each part starting on 16 bytes: tap offsets (i32), weights, bias, padded input, output
+  const al = (e: number) => Math.ceil(e / lanes) * lanes;
+  const wE = al(Math.ceil((kVol * 4) / es)), biasE = wE + al(kVol), inE = biasE + lanes;
+  const outE = inE + al(rowsIn * inRow), total = outE + outH * outRow;
   const views = memoryViews(simd, total * es);
   const mem = f64 ? views.f64 : views.f32;
+  const tab = new Int32Array(mem.buffer, 0, kVol);
+  for (let kh = 0; kh < kH; kh++) {
+    for (let kw = 0; kw < kW; kw++) {
+      const t = kw * dW;
+      tab[kh * kW + kw] = (kh * dH * inRow + (t % sW) * phaseLen + Math.floor(t / sW)) * es;
+    }
+  }
   const kern = f64 ? simd.d64 : simd.d32;
-  const Mg = M / C, kVol = kH * kW, inPlane = inH * inW, outPlane = outH * outW;
+  const Mg = M / C, inPlane = inH * inW, outPlane = outH * outW;
+  // input columns j whose padded column j + pW lies inside a stored row
+  const j0 = Math.max(0, -pW), j1 = Math.min(inW, inRow - pW);
+  // every channel writes the same input positions, so the zero padding around them is laid down once
+  mem.fill(0, inE, outE);
   for (let n = 0; n < N; n++) {
     for (let oc = 0; oc < M; oc++) {
       const xOff = (n * C + Math.floor(oc / Mg)) * inPlane;
-      for (let i = 0; i < kVol; i++) mem[i] = w[oc * kVol + i]!;
-      mem.fill(0, inE, outE);
+      for (let i = 0; i < kVol; i++) mem[wE + i] = w[oc * kVol + i]!;
+      mem[biasE] = B ? B.data[oc]! : 0;
       for (let ih = 0; ih < inH; ih++) {
         const r = ih + pH;
         if (r < 0 || r >= rowsIn) continue;
-        const dst = inE + r * inRow + pW, src = xOff + ih * inW;
-        for (let j = 0; j < inW; j++) mem[dst + j] = x[src + j]!;
+        const row = inE + r * inRow, src = xOff + ih * inW;
+        if (sW === 1) {
+          if (j1 - j0 >= 16) mem.set(x.subarray(src + j0, src + j1), row + pW + j0);
+          else for (let j = j0; j < j1; j++) mem[row + pW + j] = x[src + j]!;
+        } else {
+          for (let ph = 0; ph < sW; ph++) {
+            // the first input column at or after j0 whose padded column is in phase ph
+            const jf = j0 + ((((ph - j0 - pW) % sW) + sW) % sW);
+            gather(mem, row + ph * phaseLen + (jf + pW - ph) / sW, x, src, jf, j1, sW);
+          }
+        }
       }
-      kern(inE * es, outE * es, 0, outH, outVecs, inRow * es, outRow * es, kH, kW, dH * inRow * es, dW * es);
-      const yOff = (n * M + oc) * outPlane, b = B ? B.data[oc]! : 0;
-      for (let oh = 0; oh < outH; oh++) {
-        const src = outE + oh * outRow, dst = yOff + oh * outW;
-        for (let j = 0; j < outW; j++) Y[dst + j] = mem[src + j]! + b;
-      }
+      kern(inE * es, outE * es, wE * es, 0, kVol, outH, outVecs, sH * inRow * es, outRow * es, biasE * es);
+      const yOff = (n * M + oc) * outPlane;
+      if (outRow === outW) Y.set(mem.subarray(outE, outE + outPlane), yOff);
+      else for (let oh = 0; oh < outH; oh++) Y.set(mem.subarray(outE + oh * outRow, outE + oh * outRow + outW), yOff + oh * outW);
     }
   }
   return true;
@@ -146,7 +185,7 @@ function run(inputs: Array<Value | undefined>, ctx: KernelContext): Value[] {
   const Y = allocFloat(N * M * outVol, ctx.precision, false);
   const x = X.data, w = W.data;
 
-  const simdDepthwise = Cg === 1 && g3.inD === 1 && g3.outD === 1 && g3.kD === 1 && g3.pD === 0 && g3.sH === 1 && g3.sW === 1;
+  const simdDepthwise = Cg === 1 && g3.inD === 1 && g3.outD === 1 && g3.kD === 1 && g3.pD === 0;
   if (simdDepthwise && depthwiseSimd(x, w, B, Y, N, C, M, g3)) {
     // done
   } else if (Cg === 1) {
@@ -160,7 +199,7 @@ function run(inputs: Array<Value | undefined>, ctx: KernelContext): Value[] {
     }
   } else {
     const pointwise = kVol === 1 && win.strides.every((s) => s === 1) && win.padBegin.every((p) => p === 0) && win.padEnd.every((p) => p === 0);
-    const col = pointwise ? undefined : scratch(K * outVol, 'col');
+    const col = pointwise ? undefined : colScratch(K * outVol, x);
     for (let n = 0; n < N; n++) {
       for (let gi = 0; gi < group; gi++) {
         const xOff = (n * C + gi * Cg) * inVol;

@@ -123,6 +123,13 @@ export const AveragePool: Kernel = {
   },
 };
 
+/** x[lo] + ... + x[hi - 1] in order (its own function: called per channel, so optimized early). */
+function sumRange(x: NumArray, lo: number, hi: number): number {
+  let s = 0;
+  for (let j = lo; j < hi; j++) s += x[j]!;
+  return s;
+}
+
 function globalPool(inputs: Array<Value | undefined>, ctx: KernelContext, mode: 'max' | 'avg'): Value[] {
   const X = need(inputs, 0, ctx, 'X');
   if (X.dims.length < 2) throw badModel(ctx, `input has rank ${X.dims.length}; global pooling needs N x C x ...`);
@@ -131,9 +138,7 @@ function globalPool(inputs: Array<Value | undefined>, ctx: KernelContext, mode: 
   for (let i = 0; i < NC; i++) {
     const o = i * inner;
     if (mode === 'avg') {
-      let s = 0;
-      for (let j = o; j < o + inner; j++) s += x[j]!;
-      Y[i] = s / inner;
+      Y[i] = sumRange(x, o, o + inner) / inner;
     } else {
       let m = -Infinity;
       for (let j = o; j < o + inner; j++) { const v = x[j]!; if (v > m || v !== v) m = v; if (m !== m) break; }

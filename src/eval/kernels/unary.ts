@@ -1,14 +1,14 @@
 // Elementwise math on one tensor: Sqrt, Exp, Log, Neg, Abs, Reciprocal, Erf, Floor, Ceil, Tanh, Sigmoid,
 // plus Sign, Round (half to even), Softsign and the trigonometric and hyperbolic functions. The output keeps the input's element type (integer Neg/Abs wrap to the type's range).
 import type { Kernel } from '../value.js';
-import { alloc, isIntegerType, need, wrapAll } from './common.js';
+import { allocLike, isIntegerType, need, wrapAll } from './common.js';
 
 export function unaryKernel(op: string, fn: (x: number) => number, sinceVersion = 1): Kernel {
   return {
     op, domain: '', sinceVersion,
     run(inputs, ctx) {
       const x = need(inputs, 0, ctx);
-      const out = alloc(x.type, x.data.length, ctx);
+      const out = allocLike(inputs, 0, ctx, false); // may be src itself: each element is read before it is written
       const src = x.data;
       for (let i = 0; i < out.length; i++) out[i] = fn(src[i]!);
       if (isIntegerType(x.type)) wrapAll(x.type, out);
