@@ -1,37 +1,6 @@
 // Norm after a ConvTranspose (group >= 1): W is [Cin, Cout/group, k...] and output channel g*(Cout/group) + j
 // takes W[i, j, ...] for input channel i of group g; W' scales those by s of that channel, b' = s*b + t.
-import { decodeValues, scaledMaxAbs } from '../values.js';
-import { addConstantInput, scaleConstant, replaceConstant } from '../apply.js';
-import { isRefusal } from '../context.js';
-import { resolveRun } from '../run.js';
-import { layouts, maxAbs, producerBias, weightView, type WeightView } from '../weights.js';
-import { fitsStorage, overflow, producerOutputFree, takeOverRun, type FoldRule } from './rule.js';
+import { layouts } from '../weights.js';
+import { outputChannelScaling } from './output-channel-scaling.js';
 
-interface Data { view: WeightView; map: Int32Array; bias: Float64Array }
-
-export const convTransposeProducer: FoldRule<Data> = {
-  name: 'conv-transpose-producer',
-  op: 'ConvTranspose',
-  direction: 'into-producer',
-  match(_ctx, run, layer) {
-    const busy = producerOutputFree(layer, run);
-    if (busy) return busy;
-    const a = resolveRun(run, layer.rank, layer.rank! - 2, layer.outChannels);
-    if (isRefusal(a)) return a;
-    const t = layer.weight.tensor;
-    const v = weightView(t.dims);
-    const map = layouts.convTransposeOutput(v, layer.group);
-    if (!fitsStorage(scaledMaxAbs(t, v, map, a.scale), t.dataType)) return overflow('weights', t.dataType);
-    const bias = producerBias(layer.bias ? decodeValues(layer.bias.tensor) : undefined, a);
-    if (!fitsStorage(maxAbs(bias), t.dataType)) return overflow('bias', t.dataType);
-    return { rule: convTransposeProducer, run, layer, affine: a, adds: 0, data: { view: v, map, bias } };
-  },
-  rewrite(ctx, m, edit) {
-    const { layer, run, data } = m;
-    scaleConstant(ctx, edit, layer.node, 1, layer.weight, data.view, data.map, m.affine.scale);
-    if (layer.bias) replaceConstant(ctx, edit, layer.node, 2, layer.bias, data.bias, layer.bias.tensor.dims);
-    else addConstantInput(ctx, edit, layer.node, 2, `${layer.weight.name}.bias`, layer.weight.tensor.dataType, data.bias, [data.bias.length]);
-    takeOverRun(edit, layer, run);
-    edit.regionOutputs = [run.bottom];
-  },
-};
+export const convTransposeProducer = outputChannelScaling('conv-transpose-producer', 'ConvTranspose', (v, layer) => layouts.convTransposeOutput(v, layer.group));
