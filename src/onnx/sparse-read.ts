@@ -30,6 +30,8 @@ const SCHEMA: Record<Kind, Record<number, Kind | 'defer'>> = {
 export interface LazySource {
   path: string;
   size: number;
+  /** Modification time when read: pending bytes are only taken from the file while it is unchanged. */
+  mtimeMs: number;
   /** Byte ranges of the buffer not yet read from the file, sorted, non-overlapping. */
   pending: Array<[number, number]>;
   buffer: ArrayBufferLike;
@@ -64,6 +66,17 @@ function removeRange(src: LazySource, a: number, b: number): void {
   src.pending = next;
 }
 
+/** Open the source file again, refusing one that changed since it was read (its bytes would not match). */
+export function reopenSource(src: LazySource): number {
+  const fd = openSync(src.path, 'r');
+  const st = fstatSync(fd);
+  if (st.size !== src.size || st.mtimeMs !== src.mtimeMs) {
+    closeSync(fd);
+    throw new PleatError('bad-input', `${src.path}: the file changed while pleat was using it; run again`);
+  }
+  return fd;
+}
+
 /** Make sure a view's bytes are in memory (reads the pending parts from the file). */
 export function ensureLoaded(view: Uint8Array): void {
   const src = sources.get(view.buffer);
@@ -71,7 +84,7 @@ export function ensureLoaded(view: Uint8Array): void {
   const parts = pendingIn(src, view);
   if (!parts.length) return;
   const whole = new Uint8Array(src.buffer, src.byteOffset, src.size);
-  const fd = openSync(src.path, 'r');
+  const fd = reopenSource(src);
   try {
     for (const [s, e] of parts) readFully(fd, whole, s, e, src.path);
   } finally {
@@ -115,7 +128,7 @@ function varintAt(buf: Uint8Array, pos: number, end: number): [number, number] {
  * descending where the bytes stop making sense and reads the rest plainly.
  */
 export function readSparse(path: string, fd: number): Uint8Array {
-  const size = fstatSync(fd).size;
+  const { size, mtimeMs } = fstatSync(fd);
   const buf = Buffer.allocUnsafeSlow(size);
   const view = new Uint8Array(buf.buffer, buf.byteOffset, size);
   const pending: Array<[number, number]> = [];
@@ -167,7 +180,7 @@ export function readSparse(path: string, fd: number): Uint8Array {
   };
   walk('model', 0, size);
   load(0, size); // anything after a malformed tail
-  if (pending.length) sources.set(view.buffer, { path, size, pending, buffer: view.buffer, byteOffset: view.byteOffset });
+  if (pending.length) sources.set(view.buffer, { path, size, mtimeMs, pending, buffer: view.buffer, byteOffset: view.byteOffset });
   return view;
 }
 

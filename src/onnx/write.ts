@@ -12,7 +12,7 @@ import {
   attributeSig, graphSig, modelSig, nodeSig, opsetSig, tensorSig, typeSig, valueInfoSig,
 } from './signature.js';
 import { externalRef } from './external.js';
-import { ensureLoaded, lazySourceOf, pendingIn } from './sparse-read.js';
+import { ensureLoaded, lazySourceOf, pendingIn, reopenSource } from './sparse-read.js';
 
 interface Piece { chunks: Uint8Array[]; length: number; same: boolean }
 
@@ -363,7 +363,7 @@ function writeAt(fd: number, bytes: Uint8Array, at: number, scratch: { buf?: Uin
     while (done < upTo) done += writeSync(fd, bytes, done, upTo - done, at + done);
   };
   if (!pending.length) { plain(bytes.byteLength); return; }
-  const inFd = openSync(src!.path, 'r');
+  const inFd = reopenSource(src!);
   try {
     scratch.buf ??= new Uint8Array(STREAM_BLOCK);
     const buf = scratch.buf;
@@ -390,6 +390,7 @@ function writeChunks(path: string, chunks: Iterable<{ offset?: number; bytes: Ui
   if (list.length === 1 && list[0]!.offset === undefined) {
     const src = lazySourceOf(list[0]!.bytes);
     if (src && list[0]!.bytes.byteOffset === src.byteOffset && list[0]!.bytes.byteLength === src.size) {
+      closeSync(reopenSource(src)); // refuses a source that changed since it was read
       copyFileSync(src.path, path);
       return;
     }

@@ -1,7 +1,7 @@
 // Lossless I/O: a model written with no change is byte-identical; a changed one keeps every untouched
 // message byte for byte, including fields the bundled schema does not know.
 import { describe, expect, it } from 'vitest';
-import { mkdtempSync, readFileSync, writeFileSync, mkdirSync } from 'node:fs';
+import { existsSync, mkdtempSync, readFileSync, writeFileSync, mkdirSync, utimesSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import onnxProto from 'onnx-proto';
@@ -239,5 +239,23 @@ describe('overridable initializers', () => {
     expect(m.graph.initializers.map((t) => [t.name, t.overridable ?? false])).toEqual([['s', true], ['t', false]]);
     const old = parseModel(modelBytes(g, { irVersion: 3, opset: 7 }), '/x');
     expect(old.graph.initializers.map((t) => t.overridable ?? false)).toEqual([false, false]);
+  });
+});
+
+describe('a source file that changes while in use', () => {
+  it('is refused with one clear error instead of mixing old and new bytes', () => {
+    const dir = tmp();
+    const g = new GraphBuilder();
+    g.input('x', [1, 256]).output('y', [1, 512]);
+    g.init('w', [256, 512], randn(rng(1), 256 * 512));
+    g.node('MatMul', ['x', 'w'], {}, { outputs: ['y'] });
+    const src = join(dir, 'm.onnx');
+    writeFileSync(src, modelBytes(g));
+    const m = readModelFile(src); // the 512 KiB weight stays on disk
+    const later = new Date(Date.now() + 5000);
+    writeFileSync(src, modelBytes(g)); // same bytes, new modification time: pleat cannot know it is the same
+    utimesSync(src, later, later);
+    expect(() => writeModelFile(m, join(dir, 'out.onnx'))).toThrow(/changed while pleat was using it/);
+    expect(existsSync(join(dir, 'out.onnx'))).toBe(false);
   });
 });
