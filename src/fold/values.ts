@@ -4,7 +4,7 @@
 import { DataType, elementCount, type Tensor } from '../graph/ir.js';
 import { tensorToFloat64 } from '../onnx/tensor.js';
 import { setTensorValues, touch } from '../graph/edit.js';
-import { ensureLoaded } from '../onnx/sparse-read.js';
+import { deferTransform, ensureLoaded, scanView } from '../onnx/sparse-read.js';
 import { scaleRawFloat32, scaleWeights, type WeightView } from './weights.js';
 
 function rawFloat32(t: Tensor): Uint8Array | undefined {
@@ -35,10 +35,55 @@ export function weightSource(t: Tensor): Float32Array | Float64Array {
 export function scaledMaxAbs(t: Tensor, v: WeightView, map: Int32Array, scale: Float64Array): number {
   const bytes = rawFloat32(t);
   if (bytes) {
-    ensureLoaded(bytes);
-    return scaleRawFloat32(bytes, v, map, scale, false);
+    // one streaming look at weights still on disk: they need not be loaded just to check the range
+    let max = 0;
+    scanView(bytes, 4, (block, offset) => {
+      const m = scaleFloat32Block(block, offset / 4, v.inner, map, scale, false);
+      max = Number.isNaN(m) || Number.isNaN(max) ? NaN : Math.max(max, m);
+    });
+    return max;
   }
   return scaleWeights(tensorToFloat64(t), v, map, scale);
+}
+
+/**
+ * Scale (or, with write=false, only measure) float32 little-endian elements of a block that starts at element
+ * `first` of the weight: element i belongs to channel map[floor(i / inner)]. Returns the largest |result|.
+ */
+function scaleFloat32Block(block: Uint8Array, first: number, inner: number, map: Int32Array, scale: Float64Array, write: boolean): number {
+  const n = block.byteLength >> 2;
+  let max = 0, nan = false;
+  if ((block.byteOffset & 3) === 0) {
+    // aligned (always so for the streaming buffers): a Float32Array is several times faster than a DataView
+    const f = new Float32Array(block.buffer, block.byteOffset, n);
+    for (let j = 0; j < n;) {
+      const ab = Math.floor((first + j) / inner);
+      const s = scale[map[ab]!]!;
+      const stop = Math.min(n, (ab + 1) * inner - first); // the rest of this channel run within the block
+      for (; j < stop; j++) {
+        const r = f[j]! * s;
+        const m = Math.abs(r);
+        if (m > max) max = m;
+        else if (m !== m) nan = true;
+        if (write) f[j] = r;
+      }
+    }
+    return nan ? NaN : max;
+  }
+  const dv = new DataView(block.buffer, block.byteOffset, block.byteLength);
+  for (let j = 0; j < n;) {
+    const ab = Math.floor((first + j) / inner);
+    const s = scale[map[ab]!]!;
+    const stop = Math.min(n, (ab + 1) * inner - first);
+    for (; j < stop; j++) {
+      const r = dv.getFloat32(j * 4, true) * s;
+      const m = Math.abs(r);
+      if (m > max) max = m;
+      else if (m !== m) nan = true;
+      if (write) dv.setFloat32(j * 4, r, true);
+    }
+  }
+  return nan ? NaN : max;
 }
 
 /** A tensor's values in float64. */
@@ -59,8 +104,12 @@ export function storeValues(t: Tensor, values: Float64Array, dims: number[], inP
 export function scaleTensor(t: Tensor, v: WeightView, map: Int32Array, scale: Float64Array, inPlace: boolean): void {
   const bytes = rawFloat32(t);
   if (bytes && inPlace) {
-    ensureLoaded(bytes);
-    scaleRawFloat32(bytes, v, map, scale, true);
+    // Weights still on disk are scaled as the writer streams them out; the rest is scaled where it lies.
+    const change = (block: Uint8Array, offset: number) => { scaleFloat32Block(block, offset / 4, v.inner, map, scale, true); };
+    if (!deferTransform(bytes, 4, change)) {
+      ensureLoaded(bytes);
+      scaleRawFloat32(bytes, v, map, scale, true);
+    }
     touch(t);
     return;
   }

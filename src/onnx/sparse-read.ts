@@ -34,9 +34,19 @@ export interface LazySource {
   mtimeMs: number;
   /** Byte ranges of the buffer not yet read from the file, sorted, non-overlapping. */
   pending: Array<[number, number]>;
+  /** Changes to pending ranges, applied when their bytes are finally read (by ensureLoaded or the writer). */
+  deferred: Deferred[];
   buffer: ArrayBufferLike;
   byteOffset: number;
 }
+
+/**
+ * A change to bytes still on disk: `fn(block, offset)` rewrites a block of the view in place, `offset` being the
+ * block's position in the view (always a multiple of the view's element size).
+ */
+export type BlockTransform = (block: Uint8Array, offsetInView: number) => void;
+
+interface Deferred { start: number; end: number; viewStart: number; fn: BlockTransform }
 
 const sources = new WeakMap<ArrayBufferLike, LazySource>();
 
@@ -77,11 +87,8 @@ export function reopenSource(src: LazySource): number {
   return fd;
 }
 
-/** Make sure a view's bytes are in memory (reads the pending parts from the file). */
-export function ensureLoaded(view: Uint8Array): void {
-  const src = sources.get(view.buffer);
-  if (!src || !src.pending.length) return;
-  const parts = pendingIn(src, view);
+function loadRange(src: LazySource, a: number, b: number): void {
+  const parts = pendingIn(src, new Uint8Array(src.buffer, src.byteOffset + a, b - a));
   if (!parts.length) return;
   const whole = new Uint8Array(src.buffer, src.byteOffset, src.size);
   const fd = reopenSource(src);
@@ -93,18 +100,102 @@ export function ensureLoaded(view: Uint8Array): void {
   for (const [s, e] of parts) removeRange(src, s, e);
 }
 
-/** The view's bytes were overwritten in memory: they no longer come from the file. */
+/** Make sure a view's bytes are in memory (reads the pending parts from the file, applying deferred changes). */
+export function ensureLoaded(view: Uint8Array): void {
+  const src = sources.get(view.buffer);
+  if (!src || !src.pending.length) return;
+  let a = view.byteOffset - src.byteOffset, b = a + view.byteLength;
+  // a deferred change is applied to its whole range at once, so widen to the ranges this view touches
+  const hit = src.deferred.filter((d) => d.end > a && d.start < b);
+  for (const d of hit) { a = Math.min(a, d.start); b = Math.max(b, d.end); }
+  loadRange(src, a, b);
+  if (!hit.length) return;
+  const whole = new Uint8Array(src.buffer, src.byteOffset, src.size);
+  for (const d of hit) d.fn(whole.subarray(d.start, d.end), d.start - d.viewStart);
+  src.deferred = src.deferred.filter((d) => !hit.includes(d));
+}
+
+/** The view's bytes were overwritten in memory: they no longer come from the file (nor do changes deferred on them). */
 export function markLoaded(view: Uint8Array): void {
   const src = sources.get(view.buffer);
   if (!src || !src.pending.length) return;
-  const a = view.byteOffset - src.byteOffset;
-  removeRange(src, a, a + view.byteLength);
+  const a = view.byteOffset - src.byteOffset, b = a + view.byteLength;
+  if (src.deferred.some((d) => d.end > a && d.start < b && (d.start < a || d.end > b))) {
+    throw new Error('overwrite of part of a range with a deferred change'); // a bug: overwrites are whole tensors
+  }
+  src.deferred = src.deferred.filter((d) => d.end <= a || d.start >= b);
+  removeRange(src, a, b);
 }
 
-function readFully(fd: number, buf: Uint8Array, start: number, end: number, path: string): void {
+/**
+ * Change a view's bytes without reading them now: the part already in memory is changed at once, the part still
+ * on disk when it is read (the writer streams it through a small buffer, so a large weight never has to sit in
+ * memory). Returns false when the view is not backed by a sparsely read file (then change it in memory).
+ */
+export function deferTransform(view: Uint8Array, elementSize: number, fn: BlockTransform): boolean {
+  const src = sources.get(view.buffer);
+  if (!src) return false;
+  const a = view.byteOffset - src.byteOffset, b = a + view.byteLength;
+  if (src.deferred.some((d) => d.end > a && d.start < b)) ensureLoaded(view); // one change at a time per range
+  const parts = pendingIn(src, view);
+  // Only the simple shape is deferred: an in-memory head (read ahead with the message header) then one pending tail.
+  if (parts.length !== 1 || parts[0]![1] !== b) return false;
+  let tail = parts[0]![0];
+  const aligned = a + Math.ceil((tail - a) / elementSize) * elementSize;
+  if (aligned > tail) { loadRange(src, tail, Math.min(aligned, b)); tail = Math.min(aligned, b); }
+  const whole = new Uint8Array(src.buffer, src.byteOffset, src.size);
+  if (tail > a) fn(whole.subarray(a, tail), 0);
+  if (tail < b) src.deferred.push({ start: tail, end: b, viewStart: a, fn });
+  return true;
+}
+
+const SCAN_BLOCK = 4 * 1024 * 1024;
+let scanScratch: Uint8Array | undefined;
+
+/**
+ * Read a view's bytes block by block without keeping them: parts in memory are passed as they are, parts still
+ * on disk are read through a small reused buffer. `fn(block, offset)` sees blocks whose offsets are multiples of
+ * `elementSize`. Used for checks that only need one look at a large weight.
+ */
+export function scanView(view: Uint8Array, elementSize: number, fn: (block: Uint8Array, offsetInView: number) => void): void {
+  const src = sources.get(view.buffer);
+  const a = src ? view.byteOffset - src.byteOffset : 0, b = a + view.byteLength;
+  if (!src || src.deferred.some((d) => d.end > a && d.start < b)) { ensureLoaded(view); fn(view, 0); return; }
+  const parts = pendingIn(src, view);
+  if (!parts.length) { fn(view, 0); return; }
+  if (parts.length !== 1 || parts[0]![1] !== b) { ensureLoaded(view); fn(view, 0); return; }
+  let tail = parts[0]![0];
+  const aligned = a + Math.ceil((tail - a) / elementSize) * elementSize;
+  if (aligned > tail) { loadRange(src, tail, Math.min(aligned, b)); tail = Math.min(aligned, b); }
+  const whole = new Uint8Array(src.buffer, src.byteOffset, src.size);
+  if (tail > a) fn(whole.subarray(a, tail), 0);
+  if (tail >= b) return;
+  scanScratch ??= new Uint8Array(SCAN_BLOCK);
+  const buf = scanScratch;
+  const fd = reopenSource(src);
+  try {
+    for (let pos = tail; pos < b;) {
+      const n = Math.min(buf.byteLength, b - pos);
+      readFully(fd, buf, 0, n, src.path, pos);
+      fn(buf.subarray(0, n), pos - a);
+      pos += n;
+    }
+  } finally {
+    closeSync(fd);
+  }
+}
+
+/** Deferred changes overlapping [start, end) of the buffer, sorted by start. */
+export function deferredIn(src: LazySource, start: number, end: number): Array<{ start: number; end: number; apply(block: Uint8Array, at: number): void }> {
+  return src.deferred.filter((d) => d.end > start && d.start < end).sort((x, y) => x.start - y.start)
+    .map((d) => ({ start: d.start, end: d.end, apply: (block: Uint8Array, at: number) => d.fn(block, at - d.viewStart) }));
+}
+
+/** Read file bytes [filePos, filePos + (end - start)) into buf[start, end) (filePos defaults to start). */
+function readFully(fd: number, buf: Uint8Array, start: number, end: number, path: string, filePos = start): void {
   let pos = start;
   while (pos < end) {
-    const n = readSync(fd, buf, pos, end - pos, pos);
+    const n = readSync(fd, buf, pos, end - pos, filePos + (pos - start));
     if (n <= 0) throw new PleatError('bad-input', `${path}: the file changed or shrank while being read`);
     pos += n;
   }
@@ -180,7 +271,7 @@ export function readSparse(path: string, fd: number): Uint8Array {
   };
   walk('model', 0, size);
   load(0, size); // anything after a malformed tail
-  if (pending.length) sources.set(view.buffer, { path, size, mtimeMs, pending, buffer: view.buffer, byteOffset: view.byteOffset });
+  if (pending.length) sources.set(view.buffer, { path, size, mtimeMs, pending, deferred: [], buffer: view.buffer, byteOffset: view.byteOffset });
   return view;
 }
 

@@ -12,7 +12,7 @@ import {
   attributeSig, graphSig, modelSig, nodeSig, opsetSig, tensorSig, typeSig, valueInfoSig,
 } from './signature.js';
 import { externalRef } from './external.js';
-import { ensureLoaded, lazySourceOf, pendingIn, reopenSource } from './sparse-read.js';
+import { deferredIn, ensureLoaded, lazySourceOf, pendingIn, reopenSource } from './sparse-read.js';
 
 interface Piece { chunks: Uint8Array[]; length: number; same: boolean }
 
@@ -367,15 +367,34 @@ function writeAt(fd: number, bytes: Uint8Array, at: number, scratch: { buf?: Uin
   try {
     scratch.buf ??= new Uint8Array(STREAM_BLOCK);
     const buf = scratch.buf;
-    for (const [s, e] of pending) {
-      plain(s - base);
+    // Copy file bytes [s, e) to the output through the scratch buffer, applying `change` to each block read.
+    const stream = (s: number, e: number, change?: (block: Uint8Array, at: number) => void) => {
       for (let pos = s; pos < e;) {
-        const n = readSync(inFd, buf, 0, Math.min(buf.byteLength, e - pos), pos);
-        if (n <= 0) throw new PleatError('bad-input', `${src!.path}: the input changed while being copied`);
+        const want = Math.min(buf.byteLength, e - pos);
+        let n = 0;
+        while (n < want) {
+          const got = readSync(inFd, buf, n, want - n, pos + n);
+          if (got <= 0) throw new PleatError('bad-input', `${src!.path}: the input changed while being copied`);
+          n += got;
+        }
+        const block = buf.subarray(0, n);
+        change?.(block, pos);
         let w = 0;
-        while (w < n) w += writeSync(fd, buf, w, n - w, at + (pos - base) + w);
+        while (w < n) w += writeSync(fd, block, w, n - w, at + (pos - base) + w);
         pos += n;
       }
+    };
+    for (const [s, e] of pending) {
+      plain(s - base);
+      // split the pending part at deferred changes, so each change sees blocks starting at its own start
+      let pos = s;
+      for (const d of deferredIn(src!, s, e)) {
+        const from = Math.max(d.start, s), to = Math.min(d.end, e);
+        if (from > pos) stream(pos, from);
+        stream(from, to, d.apply);
+        pos = to;
+      }
+      if (pos < e) stream(pos, e);
       done = e - base;
     }
     plain(bytes.byteLength);
@@ -389,7 +408,7 @@ function writeChunks(path: string, chunks: Iterable<{ offset?: number; bytes: Ui
   // A model written with no change is its source file, byte for byte: let the kernel copy it.
   if (list.length === 1 && list[0]!.offset === undefined) {
     const src = lazySourceOf(list[0]!.bytes);
-    if (src && list[0]!.bytes.byteOffset === src.byteOffset && list[0]!.bytes.byteLength === src.size) {
+    if (src && !src.deferred.length && list[0]!.bytes.byteOffset === src.byteOffset && list[0]!.bytes.byteLength === src.size) {
       closeSync(reopenSource(src)); // refuses a source that changed since it was read
       copyFileSync(src.path, path);
       return;
