@@ -12,7 +12,13 @@ const here = dirname(fileURLToPath(import.meta.url));
 const work = join(tmpdir(), 'pleat-bench');
 mkdirSync(work, { recursive: true });
 
+/** Flush dirty pages first, so no measurement pays for writing back what an earlier one wrote. */
+function settle(): void {
+  try { execFileSync('sync'); } catch { /* no sync command: measure anyway */ }
+}
+
 function child(job: string, ...args: string[]): { seconds: number; maxRssBytes: number; [k: string]: unknown } {
+  settle();
   const out = execFileSync(process.execPath, [join(here, 'child.js'), job, ...args], { encoding: 'utf8', maxBuffer: 1 << 24 });
   return JSON.parse(out.trim().split('\n').pop()!);
 }
@@ -27,6 +33,7 @@ function copyTime(src: string, dst: string): number {
   let bestT = Infinity;
   for (let i = 0; i < 3; i++) {
     rmSync(dst, { force: true });
+    settle();
     const t0 = performance.now();
     copyFileSync(src, dst);
     bestT = Math.min(bestT, (performance.now() - t0) / 1000);
