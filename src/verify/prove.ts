@@ -41,17 +41,23 @@ const init = (g: Graph, name: string): Tensor | undefined => g.initializers.find
 
 /** Small valid shapes for `value`, most likely first, from the first node of the region that reads it. */
 function probeShapes(g: Graph, value: string, declaredRank: number | undefined): number[][] {
+  // A norm's rank is only known from the declaration or from what reads it next: try the likely ones.
+  const ranks = declaredRank !== undefined ? [declaredRank] : [4, 2, 3, 5];
+  const shapes: number[][] = [];
+  const add = (n: Node, at: number) => {
+    for (const r of ranks) { const s = shapeFor(g, n, at, r); if (s) shapes.push(s); }
+  };
+  // Norms and per-channel steps keep the shape they are given, so the linear layer of the region (whichever
+  // side it is on) says best what the activation looks like; then whatever reads the value first.
+  for (const n of g.nodes) if (LAYERS.has(n.opType)) add(n, 0);
   for (const n of g.nodes) {
     const at = n.inputs.indexOf(value);
-    if (at < 0) continue;
-    // A norm's rank is only known from the declaration or from what reads it next: try the likely ones.
-    const ranks = declaredRank !== undefined ? [declaredRank] : [4, 2, 3, 5];
-    const shapes = ranks.map((r) => shapeFor(g, n, at, r)).filter((s): s is number[] => s !== undefined);
-    const unique = shapes.filter((s, i) => shapes.findIndex((t) => t.join() === s.join()) === i);
-    if (unique.length) return unique;
+    if (at >= 0) { add(n, at); break; }
   }
-  return [];
+  return shapes.filter((s, i) => shapes.findIndex((t) => t.join() === s.join()) === i);
 }
+
+const LAYERS = new Set(['Conv', 'ConvTranspose', 'Gemm', 'MatMul']);
 
 function shapeFor(g: Graph, n: Node, at: number, rank: number | undefined): number[] | undefined {
   const other = (i: number) => (n.inputs[i] ? init(g, n.inputs[i]!) : undefined);

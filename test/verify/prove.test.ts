@@ -37,6 +37,24 @@ describe('per-fold proofs', () => {
     });
   }
 
+  it('derive the probe shape from the layer when a per-channel step reads the activation first', () => {
+    // A hard-swish tail written out as exporters do (x * clip(x + 3, 0, 6) / 6), read by a padded Conv: the
+    // scalar Div folds into the Conv (a pure scale commutes with zero padding). The region's input is read
+    // first by the Div, whose scalar constant says nothing about the shape: the Conv must.
+    const r = rng(12);
+    const g = new GraphBuilder();
+    g.input('x', ['batch', 6, 'h', 'w']).output('y');
+    const a = g.node('Conv', ['x', g.init('W0', [8, 6, 1, 1], randn(r, 48))], {}, { name: 'conv0' });
+    const c = g.node('Clip', [g.node('Add', [a, g.init('three', [], [3])])], {}, { name: 'clip' });
+    const m = g.node('Mul', [a, c], {}, { name: 'mul' });
+    const d = g.node('Div', [m, g.init('six', [], [6])], {}, { name: 'div' });
+    g.node('Conv', [d, g.init('W1', [4, 8, 3, 3], randn(r, 288))], { pads: [1, 1, 1, 1] }, { name: 'conv1', outputs: ['y'] });
+    const results: boolean[] = [];
+    const out = foldModel(parseModel(modelBytes(g, { opset: 11 }), '/x'), { prove: (pc) => { const p = proveFold(pc); results.push(p.passed); return p.passed; } });
+    expect(results).toEqual([true]);
+    expect(out.ledger.normalizations.filter((n) => n.node === 'div').map((n) => [n.status, n.target])).toEqual([['folded', 'conv1']]);
+  });
+
   it('fail a wrong fold (a weight off by 1% in one channel), so fold keeps the original with proof-failed', () => {
     const m = convBn(9, 4, false);
     let seen: ReturnType<typeof proveFold> | undefined;
