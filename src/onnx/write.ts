@@ -1,7 +1,7 @@
 // IR -> bytes. A message whose modelled fields match what was read is re-emitted from its original bytes;
 // a changed one is re-encoded field by field in its original field order, with the fields pleat does not
 // model copied through untouched. Output files are written to temporary names and renamed into place.
-import { closeSync, copyFileSync, openSync, readSync, renameSync, rmSync, writeSync } from 'node:fs';
+import { closeSync, copyFileSync, existsSync, openSync, readSync, renameSync, rmSync, writeSync } from 'node:fs';
 import { basename, dirname, join, resolve } from 'node:path';
 import type { Attribute, Graph, Model, Node, OpsetImport, RawField, Tensor, ValueInfo, Dim } from '../graph/ir.js';
 import { PleatError } from '../errors.js';
@@ -456,7 +456,9 @@ export function writeModelFile(model: Model, path: string, opts: WriteOptions = 
   } catch (e) {
     for (const [tmp] of temps) rmSync(tmp, { force: true });
     if (e instanceof PleatError) throw e;
-    throw new PleatError('bad-input', `${path}: cannot write (${(e as Error).message.split('\n')[0]})`);
+    const code = (e as NodeJS.ErrnoException).code;
+    if (code === 'ENOENT' && !existsSync(dirname(target))) throw new PleatError('bad-input', `${path}: the folder ${dirname(target)} does not exist`);
+    throw new PleatError('bad-input', `${path}: cannot write (${code ?? (e as Error).message.split('\n')[0]})`);
   }
   return { bytes: parts.length, sideFiles: parts.sideFiles.map((f) => resolve(dirname(target), f.location)) };
 }

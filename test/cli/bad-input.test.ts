@@ -1,6 +1,6 @@
 // Bad input gets one clear line on stderr and exit code 2, never a stack trace.
 import { describe, expect, it } from 'vitest';
-import { mkdtempSync, writeFileSync, mkdirSync } from 'node:fs';
+import { mkdtempSync, writeFileSync, mkdirSync, readFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import onnxProto from 'onnx-proto';
@@ -96,5 +96,19 @@ describe('survey', () => {
     expect(t.code).toBe(0);
     expect(t.stdout).toMatch(/image\s+float32 \[batch x 3 x 4 x 4\]/);
     expect(t.stdout).toMatch(/BatchNormalization 1/);
+  });
+});
+
+describe('output problems', () => {
+  it('an output folder that does not exist: one line, exit 2, nothing left behind', () => {
+    const p = file('ok-out.onnx', modelBytes(good()));
+    const r = pleat(['fold', p, '-o', join(dir, 'missing', 'out.onnx')]);
+    expectOneLine(r, /the folder .*missing does not exist/);
+  });
+  it('an output that is the input: refused, the input unchanged', () => {
+    const p = file('same.onnx', modelBytes(good()));
+    const before = readFileSync(p);
+    expectOneLine(pleat(['fold', p, '-o', p]), /refusing to overwrite the input model/);
+    expect(readFileSync(p).equals(before)).toBe(true);
   });
 });
