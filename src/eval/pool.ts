@@ -22,22 +22,22 @@ const free64 = new Map<number, Float64Array[]>();
 const handedOut = new WeakSet<NumArray>();
 let pooledBytes = 0;
 
-export function takeFloat32(n: number, zero = true): Float32Array {
-  if (n < POOL_MIN) return new Float32Array(n);
-  const a = free32.get(n)?.pop();
+/** A pooled array of length n from `free` (zeroed unless zero=false), or a new one made by `make`. */
+function take<T extends NumArray>(free: Map<number, T[]>, n: number, zero: boolean, make: (n: number) => T): T {
+  if (n < POOL_MIN) return make(n);
+  const a = free.get(n)?.pop();
   if (a) { pooledBytes -= a.byteLength; if (zero) a.fill(0); handedOut.add(a); return a; }
-  const fresh = new Float32Array(n);
+  const fresh = make(n);
   handedOut.add(fresh);
   return fresh;
 }
 
+export function takeFloat32(n: number, zero = true): Float32Array {
+  return take(free32, n, zero, (k) => new Float32Array(k));
+}
+
 export function takeFloat64(n: number, zero = true): Float64Array {
-  if (n < POOL_MIN) return new Float64Array(n);
-  const a = free64.get(n)?.pop();
-  if (a) { pooledBytes -= a.byteLength; if (zero) a.fill(0); handedOut.add(a); return a; }
-  const fresh = new Float64Array(n);
-  handedOut.add(fresh);
-  return fresh;
+  return take(free64, n, zero, (k) => new Float64Array(k));
 }
 
 export function isPooled(a: NumArray): boolean {
@@ -49,15 +49,12 @@ export function giveBack(a: NumArray): void {
   handedOut.delete(a);
   if (pooledBytes + a.byteLength > POOL_MAX_BYTES) return;
   pooledBytes += a.byteLength;
-  if (a instanceof Float32Array) {
-    const list = free32.get(a.length) ?? [];
-    list.push(a);
-    free32.set(a.length, list);
-  } else {
-    const list = free64.get(a.length) ?? [];
-    list.push(a);
-    free64.set(a.length, list);
-  }
+  const keep = <T extends NumArray>(free: Map<number, T[]>, x: T) => {
+    const list = free.get(x.length) ?? [];
+    list.push(x);
+    free.set(x.length, list);
+  };
+  if (a instanceof Float32Array) keep(free32, a); else keep(free64, a);
 }
 
 export function releasePool(): void {
