@@ -2,8 +2,8 @@
 // to the graph with an undo, plus the before/after regions a numeric proof runs.
 import type { Attribute, Graph, Node, Tensor, ValueInfo } from '../graph/ir.js';
 import { touch } from '../graph/edit.js';
-import { decodeValues, scaleTensor, storeValues } from './values.js';
-import { scaleWeights, type WeightView } from './weights.js';
+import { decodeValues, scaleTensor, storeValues, type ScaleGuard } from './values.js';
+import { scaleWeights, type ChannelMap } from './weights.js';
 import { makeTensor } from '../onnx/tensor.js';
 import { constantOf, soleReader, valueInfoOf, type ConstRef, type Scope } from './scope.js';
 import { freshName, type FoldContext } from './context.js';
@@ -24,7 +24,7 @@ export interface Edit {
   inserts: Array<{ node: Node; after: Node }>;
   tensorValues: Array<{ ref: ConstRef; values: Float64Array; dims: number[] }>;
   /** Channel scalings of existing tensors (the weights): applied where the data lies. */
-  tensorScales: Array<{ ref: ConstRef; view: WeightView; map: Int32Array; scale: Float64Array }>;
+  tensorScales: Array<{ ref: ConstRef; map: ChannelMap; scale: Float64Array; guard?: ScaleGuard }>;
   newInitializers: Tensor[];
   /** Values that no longer exist (their value_info is dropped at clean-up). */
   goneValues: string[];
@@ -64,13 +64,14 @@ export function replaceConstant(ctx: FoldContext, edit: Edit, node: Node, index:
  * Scale the weight read at input `index` of `node` by channel: in the tensor itself when this node is its only
  * reader, else in a clone (see replaceConstant).
  */
-export function scaleConstant(ctx: FoldContext, edit: Edit, node: Node, index: number, ref: ConstRef, view: WeightView, map: Int32Array, scale: Float64Array): void {
+export function scaleConstant(ctx: FoldContext, edit: Edit, node: Node, index: number, ref: ConstRef, map: ChannelMap, scale: Float64Array, guard?: ScaleGuard): void {
   if (soleReader(edit.scope, ref.name, node) && !ref.overridable && !ref.shorthand) {
-    edit.tensorScales.push({ ref, view, map, scale });
+    edit.tensorScales.push({ ref, map, scale, guard });
     return;
   }
   const values = decodeValues(ref.tensor);
-  scaleWeights(values, view, map, scale, values);
+  const m = scaleWeights(values, map, scale, values);
+  guard?.(m);
   replaceConstant(ctx, edit, node, index, ref, values, ref.tensor.dims);
 }
 
@@ -119,7 +120,7 @@ export function applyEdit(ctx: FoldContext, edit: Edit, opts: { inPlace: boolean
   };
   const updates = [
     ...edit.tensorValues.map((tv) => ({ ref: tv.ref, write: () => storeValues(tv.ref.tensor, tv.values, tv.dims, opts.inPlace) })),
-    ...edit.tensorScales.map((ts) => ({ ref: ts.ref, write: () => scaleTensor(ts.ref.tensor, ts.view, ts.map, ts.scale, opts.inPlace) })),
+    ...edit.tensorScales.map((ts) => ({ ref: ts.ref, write: () => scaleTensor(ts.ref.tensor, ts.map, ts.scale, opts.inPlace, ts.guard) })),
   ];
   for (const u of updates) {
     const t = u.ref.tensor;

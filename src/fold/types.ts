@@ -54,6 +54,12 @@ export interface FoldOptions {
    * memory near the file size, and changes the buffer the model was parsed from: parse a private copy.
    */
   reuseBuffers?: boolean;
+  /**
+   * Let the storage range check of float32 weights still on disk ride on their scaling (one read instead of
+   * two). A scaling that then finds a value out of range throws LateRangeCheckFailed: only for callers that can
+   * start again from the file with this off (the fold job does).
+   */
+  lateRangeCheck?: boolean;
 }
 
 /** One normalization as audit sees it. */

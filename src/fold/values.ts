@@ -4,8 +4,8 @@
 import { DataType, elementCount, type Tensor } from '../graph/ir.js';
 import { tensorToFloat64 } from '../onnx/tensor.js';
 import { setTensorValues, touch } from '../graph/edit.js';
-import { deferTransform, ensureLoaded, scanView } from '../onnx/sparse-read.js';
-import { scaleRawFloat32, scaleWeights, type WeightView } from './weights.js';
+import { deferTransform, ensureLoaded, isOnDisk, scanView } from '../onnx/sparse-read.js';
+import { scaleRawFloat32, scaleWeights, type ChannelMap } from './weights.js';
 
 function rawFloat32(t: Tensor): Uint8Array | undefined {
   const s = t.storage;
@@ -32,49 +32,79 @@ export function weightSource(t: Tensor): Float32Array | Float64Array {
 /**
  * The largest |W'| a channel scaling would give, without copying float32 raw data (the storage range check).
  */
-export function scaledMaxAbs(t: Tensor, v: WeightView, map: Int32Array, scale: Float64Array): number {
+export function scaledMaxAbs(t: Tensor, map: ChannelMap, scale: Float64Array): number {
   const bytes = rawFloat32(t);
   if (bytes) {
     // one streaming look at weights still on disk: they need not be loaded just to check the range
     let max = 0;
     scanView(bytes, 4, (block, offset) => {
-      const m = scaleFloat32Block(block, offset / 4, v.inner, map, scale, false);
+      const m = scaleFloat32Block(block, offset / 4, map, scale, false);
       max = Number.isNaN(m) || Number.isNaN(max) ? NaN : Math.max(max, m);
     });
     return max;
   }
-  return scaleWeights(tensorToFloat64(t), v, map, scale);
+  return scaleWeights(tensorToFloat64(t), map, scale);
 }
 
 /**
- * Scale (or, with write=false, only measure) float32 little-endian elements of a block that starts at element
- * `first` of the weight: element i belongs to channel map[floor(i / inner)]. Returns the largest |result|.
+ * Whether the storage range check of a channel scaling can ride on the scaling itself: float32 raw weights still
+ * on disk, which a fold written to a file scales as the writer streams them out. Checking them first would read
+ * the weights twice; instead the scaling checks every block and a failure makes the fold job start again with
+ * the check made up front (see jobs/fold.ts), so the result is the same either way.
  */
-function scaleFloat32Block(block: Uint8Array, first: number, inner: number, map: Int32Array, scale: Float64Array, write: boolean): number {
+export function rangeCheckCanWait(t: Tensor): boolean {
+  const bytes = rawFloat32(t);
+  return !!bytes && isOnDisk(bytes);
+}
+
+/** Thrown by a scaling whose range check was put off (see rangeCheckCanWait) when the result does not fit. */
+export class LateRangeCheckFailed extends Error {
+  constructor(readonly tensor: string) {
+    super(`scaled weight ${tensor} does not fit its storage type`);
+  }
+}
+
+/** Receives the largest |result| of a scaling (checks a range check that was put off). */
+export type ScaleGuard = (maxAbs: number) => void;
+
+/**
+ * Scale (or, with write=false, only measure) float32 little-endian elements of a block that starts at element
+ * `first` of the weight. Returns the largest |result|.
+ */
+function scaleFloat32Block(block: Uint8Array, first: number, map: ChannelMap, scale: Float64Array, write: boolean): number {
   const n = block.byteLength >> 2;
+  const unit = map.unit;
   let max = 0, nan = false;
   if ((block.byteOffset & 3) === 0) {
     // aligned (always so for the streaming buffers): a Float32Array is several times faster than a DataView
     const f = new Float32Array(block.buffer, block.byteOffset, n);
     for (let j = 0; j < n;) {
-      const ab = Math.floor((first + j) / inner);
-      const s = scale[map[ab]!]!;
-      const stop = Math.min(n, (ab + 1) * inner - first); // the rest of this channel run within the block
-      for (; j < stop; j++) {
-        const r = f[j]! * s;
-        const m = Math.abs(r);
-        if (m > max) max = m;
-        else if (m !== m) nan = true;
-        if (write) f[j] = r;
+      const e = Math.floor((first + j) / unit);
+      const s = scale[map.of[e]!]!;
+      const stop = Math.min(n, (e + 1) * unit - first); // the rest of this channel run within the block
+      if (write) {
+        for (; j < stop; j++) {
+          const r = f[j]! * s;
+          f[j] = r;
+          const m = Math.abs(r);
+          if (m > max) max = m;
+          else if (m !== m) nan = true;
+        }
+      } else {
+        for (; j < stop; j++) {
+          const m = Math.abs(f[j]! * s);
+          if (m > max) max = m;
+          else if (m !== m) nan = true;
+        }
       }
     }
     return nan ? NaN : max;
   }
   const dv = new DataView(block.buffer, block.byteOffset, block.byteLength);
   for (let j = 0; j < n;) {
-    const ab = Math.floor((first + j) / inner);
-    const s = scale[map[ab]!]!;
-    const stop = Math.min(n, (ab + 1) * inner - first);
+    const e = Math.floor((first + j) / unit);
+    const s = scale[map.of[e]!]!;
+    const stop = Math.min(n, (e + 1) * unit - first);
     for (; j < stop; j++) {
       const r = dv.getFloat32(j * 4, true) * s;
       const m = Math.abs(r);
@@ -100,20 +130,28 @@ export function storeValues(t: Tensor, values: Float64Array, dims: number[], inP
   setTensorValues(t, values, { dims, inPlace });
 }
 
-/** Scale a tensor's elements by channel, stored back in its own type; in place for float32 raw data when allowed. */
-export function scaleTensor(t: Tensor, v: WeightView, map: Int32Array, scale: Float64Array, inPlace: boolean): void {
+/**
+ * Scale a tensor's elements by channel, stored back in its own type; in place for float32 raw data when allowed.
+ * `guard` sees the largest |result| (of each streamed block, for weights scaled on their way to the output).
+ */
+export function scaleTensor(t: Tensor, map: ChannelMap, scale: Float64Array, inPlace: boolean, guard?: ScaleGuard): void {
   const bytes = rawFloat32(t);
   if (bytes && inPlace) {
     // Weights still on disk are scaled as the writer streams them out; the rest is scaled where it lies.
-    const change = (block: Uint8Array, offset: number) => { scaleFloat32Block(block, offset / 4, v.inner, map, scale, true); };
+    const change = (block: Uint8Array, offset: number) => {
+      const m = scaleFloat32Block(block, offset / 4, map, scale, true);
+      guard?.(m);
+    };
     if (!deferTransform(bytes, 4, change)) {
       ensureLoaded(bytes);
-      scaleRawFloat32(bytes, v, map, scale, true);
+      const m = scaleRawFloat32(bytes, map, scale, true); // (not inside guard?.(): that would skip it)
+      guard?.(m);
     }
     touch(t);
     return;
   }
   const values = tensorToFloat64(t);
-  scaleWeights(values, v, map, scale, values);
+  const m = scaleWeights(values, map, scale, values);
+  guard?.(m);
   setTensorValues(t, values, { inPlace });
 }

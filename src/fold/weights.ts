@@ -19,28 +19,43 @@ export function weightView(dims: readonly number[]): WeightView {
   return { d0: dims[0] ?? 1, d1: dims[1] ?? 1, inner };
 }
 
-/** Channel of each (a, b) pair of the first two axes, row-major. */
-export function channelMap(v: WeightView, channelOf: (a: number, b: number) => number): Int32Array {
-  const out = new Int32Array(v.d0 * v.d1);
-  for (let a = 0; a < v.d0; a++) for (let b = 0; b < v.d1; b++) out[a * v.d1 + b] = channelOf(a, b);
-  return out;
+/**
+ * Which channel each weight element belongs to: element i (row-major) belongs to channel of[floor(i / unit)].
+ * A layout whose whole first-axis row is one channel needs one entry per row (unit = d1 * inner), so a big
+ * convolution's map is a few hundred entries and the scaling loops run long stretches with one scale.
+ */
+export interface ChannelMap {
+  of: Int32Array;
+  unit: number;
 }
 
-/** channel = a (rows of the first axis); filled a row at a time, since big weights have many pairs. */
-function byFirstAxis(v: WeightView): Int32Array {
+/** Channel of each (a, b) pair of the first two axes, row-major. */
+export function channelMap(v: WeightView, channelOf: (a: number, b: number) => number): ChannelMap {
   const out = new Int32Array(v.d0 * v.d1);
-  for (let a = 0; a < v.d0; a++) out.fill(a, a * v.d1, (a + 1) * v.d1);
-  return out;
+  for (let a = 0; a < v.d0; a++) for (let b = 0; b < v.d1; b++) out[a * v.d1 + b] = channelOf(a, b);
+  return { of: out, unit: v.inner };
+}
+
+/** The channel of pair p = a * d1 + b. */
+export function pairChannel(map: ChannelMap, v: WeightView, p: number): number {
+  return map.of[Math.floor((p * v.inner) / map.unit)]!;
+}
+
+/** channel = a (rows of the first axis). */
+function byFirstAxis(v: WeightView): ChannelMap {
+  const of = new Int32Array(v.d0);
+  for (let a = 0; a < v.d0; a++) of[a] = a;
+  return { of, unit: v.d1 * v.inner };
 }
 
 /** channel = group offset + b, where the group of a is floor(a / perGroup). */
-function grouped(v: WeightView, perGroup: number, width: number): Int32Array {
+function grouped(v: WeightView, perGroup: number, width: number): ChannelMap {
   const out = new Int32Array(v.d0 * v.d1);
   for (let a = 0; a < v.d0; a++) {
     const base = Math.floor(a / perGroup) * width;
     for (let b = 0, o = a * v.d1; b < v.d1; b++) out[o + b] = base + b;
   }
-  return out;
+  return { of: out, unit: v.inner };
 }
 
 // The layouts, by layer and side. Conv W is [Cout, Cin/group, k...]; ConvTranspose W is [Cin, Cout/group, k...]
@@ -57,18 +72,17 @@ export const layouts = {
  * Multiply every element by the scale of its channel, writing into `out` (may be `w` itself) when given.
  * Returns the largest |result| (NaN if any result is NaN), so a caller can check the storage range first.
  */
-export function scaleWeights(w: Float32Array | Float64Array, v: WeightView, map: Int32Array, scale: Float64Array, out?: Float32Array | Float64Array): number {
+export function scaleWeights(w: Float32Array | Float64Array, map: ChannelMap, scale: Float64Array, out?: Float32Array | Float64Array): number {
   let max = 0;
   let nan = false;
-  for (let ab = 0; ab < map.length; ab++) {
-    const s = scale[map[ab]!]!;
-    const base = ab * v.inner;
-    for (let k = 0; k < v.inner; k++) {
-      const r = w[base + k]! * s; // float64 arithmetic; a Float32Array out rounds once on store
+  for (let e = 0, i = 0; e < map.of.length; e++) {
+    const s = scale[map.of[e]!]!;
+    for (const end = i + map.unit; i < end; i++) {
+      const r = w[i]! * s; // float64 arithmetic; a Float32Array out rounds once on store
       const m = Math.abs(r);
       if (m > max) max = m;
       else if (m !== m) nan = true;
-      if (out) out[base + k] = r;
+      if (out) out[i] = r;
     }
   }
   return nan ? NaN : max;
@@ -78,15 +92,13 @@ export function scaleWeights(w: Float32Array | Float64Array, v: WeightView, map:
  * scaleWeights over float32 little-endian raw bytes in place (or only measuring, with write=false), through a
  * DataView so unaligned data needs no copy. Each product is computed in float64 and rounded once on store.
  */
-export function scaleRawFloat32(bytes: Uint8Array, v: WeightView, map: Int32Array, scale: Float64Array, write: boolean): number {
+export function scaleRawFloat32(bytes: Uint8Array, map: ChannelMap, scale: Float64Array, write: boolean): number {
   const dv = new DataView(bytes.buffer, bytes.byteOffset, bytes.byteLength);
   let max = 0;
   let nan = false;
-  for (let ab = 0; ab < map.length; ab++) {
-    const s = scale[map[ab]!]!;
-    const base = ab * v.inner * 4;
-    const end = base + v.inner * 4;
-    for (let o = base; o < end; o += 4) {
+  for (let e = 0, o = 0; e < map.of.length; e++) {
+    const s = scale[map.of[e]!]!;
+    for (const end = o + map.unit * 4; o < end; o += 4) {
       const r = dv.getFloat32(o, true) * s;
       const m = Math.abs(r);
       if (m > max) max = m;
@@ -110,11 +122,11 @@ export function producerBias(bias: Float64Array | undefined, a: Affine): Float64
  * the first two weight axes is the output channel ('a' for Conv [Cout, ...] and transposed Gemm B, 'b' for
  * a [K, N] matrix).
  */
-export function contractShift(w: Float32Array | Float64Array, v: WeightView, inMap: Int32Array, outputOf: 'a' | 'b', outputs: number, shift: Float64Array): Float64Array {
+export function contractShift(w: Float32Array | Float64Array, v: WeightView, inMap: ChannelMap, outputOf: 'a' | 'b', outputs: number, shift: Float64Array): Float64Array {
   const out = new Float64Array(outputs);
   for (let a = 0; a < v.d0; a++) {
     for (let b = 0; b < v.d1; b++) {
-      const t = shift[inMap[a * v.d1 + b]!]!;
+      const t = shift[pairChannel(inMap, v, a * v.d1 + b)]!;
       if (t === 0) continue;
       const base = (a * v.d1 + b) * v.inner;
       let sum = 0;

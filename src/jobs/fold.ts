@@ -5,6 +5,7 @@ import { readModelFile } from '../onnx/read.js';
 import { writeModelFile } from '../onnx/write.js';
 import { storeFloat16 } from '../onnx/store-float16.js';
 import { foldModel } from '../fold/index.js';
+import { LateRangeCheckFailed } from '../fold/values.js';
 import { proveFold } from '../verify/prove.js';
 import { compare } from '../verify/compare.js';
 import { DEFAULT_GATES } from '../verify/gate.js';
@@ -51,11 +52,15 @@ export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOpt
   }
 }
 
-/** Fold a model in memory (no files): returns the report; `model` is changed in place. */
-export function foldLoaded(model: Model, original: Model | undefined, label: string, opts: FoldJobOptions): FoldReport {
+/**
+ * Fold a model in memory (no files): returns the report; `model` is changed in place. `lateRangeCheck` is for
+ * callers that can read the model again (see FoldOptions.lateRangeCheck).
+ */
+export function foldLoaded(model: Model, original: Model | undefined, label: string, opts: FoldJobOptions, lateRangeCheck = false): FoldReport {
   const { ledger } = foldModel(model, {
     keep: opts.keep,
     allowOverridable: opts.allowOverridable,
+    lateRangeCheck,
     prove: opts.noProofs ? undefined : (c) => proveFold(c, { seed: opts.seed }).passed,
   });
   let storage: StorageSummary | null = null;
@@ -81,10 +86,21 @@ export function foldLoaded(model: Model, original: Model | undefined, label: str
 
 /** Read INPUT, fold, prove, and write OUTPUT unless a gate fails. The input file is never modified. */
 export function foldFile(input: string, output: string, opts: FoldJobOptions = {}): FoldReport {
+  try {
+    return foldFileOnce(input, output, opts, true);
+  } catch (e) {
+    // A weight whose range check rode on its scaling does not fit after all: start again, checking up front,
+    // so that fold is refused with storage-overflow like any other (nothing was written: writes are atomic).
+    if (!(e instanceof LateRangeCheckFailed)) throw e;
+    return foldFileOnce(input, output, opts, false);
+  }
+}
+
+function foldFileOnce(input: string, output: string, opts: FoldJobOptions, lateRangeCheck: boolean): FoldReport {
   const model = readModelFile(input);
   // A second, untouched copy is the reference for the whole-model check and the quantization report.
   const original = opts.noProofs ? undefined : readModelFile(input);
-  const report = foldLoaded(model, original, input, opts);
+  const report = foldLoaded(model, original, input, opts, lateRangeCheck);
   if (!report.failed) {
     writeModelFile(model, output, { externalThreshold: opts.externalThreshold });
     report.output = output;

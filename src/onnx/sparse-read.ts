@@ -76,6 +76,12 @@ function removeRange(src: LazySource, a: number, b: number): void {
   src.pending = next;
 }
 
+/** Whether any of a view's bytes are still on disk. */
+export function isOnDisk(view: Uint8Array): boolean {
+  const src = sources.get(view.buffer);
+  return !!src && pendingIn(src, view).length > 0;
+}
+
 /** Open the source file again, refusing one that changed since it was read (its bytes would not match). */
 export function reopenSource(src: LazySource): number {
   const fd = openSync(src.path, 'r');

@@ -455,10 +455,10 @@ export function writeModelFile(model: Model, path: string, opts: WriteOptions = 
     for (const [tmp, dest] of temps) renameSync(tmp, dest);
   } catch (e) {
     for (const [tmp] of temps) rmSync(tmp, { force: true });
-    if (e instanceof PleatError) throw e;
     const code = (e as NodeJS.ErrnoException).code;
+    if (e instanceof PleatError || code === undefined) throw e; // ours, or a change that refused to finish
     if (code === 'ENOENT' && !existsSync(dirname(target))) throw new PleatError('bad-input', `${path}: the folder ${dirname(target)} does not exist`);
-    throw new PleatError('bad-input', `${path}: cannot write (${code ?? (e as Error).message.split('\n')[0]})`);
+    throw new PleatError('bad-input', `${path}: cannot write (${code})`);
   }
   return { bytes: parts.length, sideFiles: parts.sideFiles.map((f) => resolve(dirname(target), f.location)) };
 }

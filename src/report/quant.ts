@@ -11,7 +11,7 @@ import { attrInt } from '../graph/ir.js';
 import type { LedgerEntry } from '../fold/types.js';
 import type { QuantRow } from '../jobs/types.js';
 import { buildScopes, constantOf, labelOf, type Scope } from '../fold/scope.js';
-import { layouts, weightView } from '../fold/weights.js';
+import { layouts, weightView, type ChannelMap } from '../fold/weights.js';
 import { tensorToFloat64 } from '../onnx/tensor.js';
 
 /**
@@ -22,16 +22,14 @@ import { tensorToFloat64 } from '../onnx/tensor.js';
  */
 export const SPREAD_LIMIT = 16;
 
-/** max - min of each output channel's weights. `channelOf[k]` maps (axis0, axis1) pair k to its channel. */
-export function channelRanges(values: Float64Array, dims: readonly number[], channelOf: Int32Array, channels: number): Float64Array {
-  const v = weightView(dims);
+/** max - min of each output channel's weights (`channelOf` says which channel each element belongs to). */
+export function channelRanges(values: Float64Array, channelOf: ChannelMap, channels: number): Float64Array {
   const lo = new Float64Array(channels).fill(Infinity);
   const hi = new Float64Array(channels).fill(-Infinity);
-  for (let p = 0; p < v.d0 * v.d1; p++) {
-    const c = channelOf[p]!;
-    const base = p * v.inner;
-    for (let i = 0; i < v.inner; i++) {
-      const x = values[base + i]!;
+  for (let e = 0, i = 0; e < channelOf.of.length; e++) {
+    const c = channelOf.of[e]!;
+    for (const end = i + channelOf.unit; i < end; i++) {
+      const x = values[i]!;
       if (x < lo[c]!) lo[c] = x;
       if (x > hi[c]!) hi[c] = x;
     }
@@ -52,7 +50,7 @@ export function spreadOf(ranges: Float64Array): number {
   return max / median;
 }
 
-interface LayerWeights { values: Float64Array; dims: number[]; map: Int32Array; channels: number }
+interface LayerWeights { values: Float64Array; dims: number[]; map: ChannelMap; channels: number }
 
 /** The weight of a Conv/ConvTranspose/Gemm/MatMul node with its output-channel map, or undefined. */
 function layerWeights(scope: Scope, n: Node): LayerWeights | undefined {
@@ -85,7 +83,7 @@ function layerWeights(scope: Scope, n: Node): LayerWeights | undefined {
 function spreadOfLayer(scope: Scope, n: Node): { spread: number; channels: number } | undefined {
   const lw = layerWeights(scope, n);
   if (!lw) return undefined;
-  return { spread: spreadOf(channelRanges(lw.values, lw.dims, lw.map, lw.channels)), channels: lw.channels };
+  return { spread: spreadOf(channelRanges(lw.values, lw.map, lw.channels)), channels: lw.channels };
 }
 
 /** A scope's node by ledger label (name, or op#index when unnamed). */

@@ -16,7 +16,7 @@ describe('per-channel affine map', () => {
     // Folded into a 1x1 conv with W=[[3],[4]], b=[1,-1]: W' = [3, 2], b' = s*b + t = [-1, -0.5].
     const w = Float64Array.of(3, 4);
     const v = weightView([2, 1, 1, 1]);
-    scaleWeights(w, v, layouts.convOutput(v), a.scale, w);
+    scaleWeights(w, layouts.convOutput(v), a.scale, w);
     expect(Array.from(w)).toEqual([3, 2]);
     expect(Array.from(producerBias(Float64Array.of(1, -1), a))).toEqual([-1, -0.5]);
     // and at x = 2 both give the formula's values: conv [7, 7] -> BN [(7-3)/2*2+1, (7+2)/3*1.5-1] = [5, 3.5].
@@ -29,7 +29,7 @@ describe('per-channel affine map', () => {
     const w0 = Float64Array.from(randn(rng(1), 3 * 2 * 3 * 3));
     const w = Float64Array.from(w0);
     const v = weightView([3, 2, 3, 3]);
-    scaleWeights(w, v, layouts.convOutput(v), a.scale, w);
+    scaleWeights(w, layouts.convOutput(v), a.scale, w);
     for (let i = 0; i < w.length; i++) expect(w[i]).toBeCloseTo(w0[i]! / Math.sqrt(1 + eps), 14);
     expect(Array.from(a.shift)).toEqual([0, 0, 0]);
   });
@@ -111,7 +111,7 @@ describe('weight updates', () => {
     const want = apply(a, conv1x1Grouped(x, cin, w, cout, group, b));
     const v = weightView([cout, cin / group, 1, 1]);
     const w2 = new Float64Array(w.length);
-    scaleWeights(w, v, layouts.convOutput(v), a.scale, w2);
+    scaleWeights(w, layouts.convOutput(v), a.scale, w2);
     const got = conv1x1Grouped(x, cin, w2, cout, group, producerBias(b, a));
     got.forEach((g, i) => expect(g).toBeCloseTo(want[i]!, 12));
   });
@@ -123,7 +123,7 @@ describe('weight updates', () => {
     const want = apply(a, convT1x1Grouped(x, cin, w, cout, group, b));
     const v = weightView([cin, cout / group, 1]);
     const w2 = new Float64Array(w.length);
-    scaleWeights(w, v, layouts.convTransposeOutput(v, group), a.scale, w2);
+    scaleWeights(w, layouts.convTransposeOutput(v, group), a.scale, w2);
     const got = convT1x1Grouped(x, cin, w2, cout, group, producerBias(b, a));
     got.forEach((g, i) => expect(g).toBeCloseTo(want[i]!, 12));
   });
@@ -137,7 +137,7 @@ describe('weight updates', () => {
     const map = layouts.convInput(v, group);
     const shift = contractShift(w, v, map, 'a', cout, a.shift);
     const w2 = new Float64Array(w.length);
-    scaleWeights(w, v, map, a.scale, w2);
+    scaleWeights(w, map, a.scale, w2);
     const got = conv1x1Grouped(x, cin, w2, cout, group, b.map((bi, i) => bi + shift[i]!));
     got.forEach((g, i) => expect(g).toBeCloseTo(want[i]!, 12));
   });
@@ -154,7 +154,7 @@ describe('weight updates', () => {
 
   it('reports the largest folded magnitude, NaN included, for the storage range check', () => {
     const v = weightView([2, 1]);
-    expect(scaleWeights(Float64Array.of(1, -3), v, layouts.rows(v), Float64Array.of(2, 2))).toBe(6);
-    expect(scaleWeights(Float64Array.of(1, NaN), v, layouts.rows(v), Float64Array.of(2, 2))).toBeNaN();
+    expect(scaleWeights(Float64Array.of(1, -3), layouts.rows(v), Float64Array.of(2, 2))).toBe(6);
+    expect(scaleWeights(Float64Array.of(1, NaN), layouts.rows(v), Float64Array.of(2, 2))).toBeNaN();
   });
 });

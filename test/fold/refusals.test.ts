@@ -48,7 +48,7 @@ describe('refusals', () => {
       if (naive) {
         const a = batchNormAffine(p.gamma, p.beta, p.mean, p.variance, 1e-5);
         const v = weightView([2, 2, 3, 3]);
-        scaleWeights(wv, v, layouts.convOutput(v), a.scale, wv);
+        scaleWeights(wv, layouts.convOutput(v), a.scale, wv);
         g.init('w', [2, 2, 3, 3], wv); g.init('b', [2], producerBias(undefined, a));
         g.node('Conv', ['x', 'w', 'b'], { pads: [1, 1, 1, 1] }, { name: 'conv', outputs: ['y'] });
         g.node('Relu', ['y'], {}, { name: 'other', outputs: ['z'] });
@@ -152,7 +152,7 @@ describe('refusals', () => {
     const a = batchNormAffine(p.gamma, p.beta, p.mean, p.variance, 1e-5);
     const v = weightView([2, 2, 3, 3]);
     const w2 = new Float64Array(wv.length);
-    scaleWeights(wv, v, layouts.convOutput(v), a.scale, w2);
+    scaleWeights(wv, layouts.convOutput(v), a.scale, w2);
     naive.init('w', [2, 2, 3, 3], w2); naive.init('b', [2], producerBias(undefined, a));
     const c2 = naive.node('Conv', ['x', 'w', 'b'], {}, { name: 'conv' });
     naive.node('Relu', [c2], {}, { name: 'relu', outputs: ['y'] });
@@ -176,7 +176,7 @@ describe('refusals', () => {
     const map = layouts.convInput(v, 1);
     const bias = contractShift(wv, v, map, 'a', 3, a.shift);
     const w2 = new Float64Array(wv.length);
-    scaleWeights(wv, v, map, a.scale, w2);
+    scaleWeights(wv, map, a.scale, w2);
     const naive = new GraphBuilder();
     naive.input('x', [1, 2, 4, 4]).output('y', [1, 3, 4, 4]);
     const r1 = naive.node('Relu', ['x'], {}, { name: 'relu' });

@@ -36,7 +36,7 @@ function convModel(w: number[], named = true): Uint8Array {
 describe('channel ranges and spread (hand-computed)', () => {
   it('Conv: output channel axis 0', () => {
     const dims = [4, 1, 1, 2];
-    const r = channelRanges(Float64Array.from(W), dims, layouts.convOutput(weightView(dims)), 4);
+    const r = channelRanges(Float64Array.from(W), layouts.convOutput(weightView(dims)), 4);
     [0.2, 0.2, 2.0, 0.4].forEach((want, c) => close(r[c]!, want));
     close(spreadOf(r), 2.0 / 0.3);
   });
@@ -47,11 +47,11 @@ describe('channel ranges and spread (hand-computed)', () => {
     //   j1: W[0,1,:] = [0, 0], W[1,1,:] = [0.5, 0] -> range 0.5
     const w = Float64Array.from([1, 2, 0, 0, 3, -1, 0.5, 0]);
     const dims = [2, 2, 2];
-    const r1 = channelRanges(w, dims, layouts.convTransposeOutput(weightView(dims), 1), 2);
+    const r1 = channelRanges(w, layouts.convTransposeOutput(weightView(dims), 1), 2);
     close(r1[0]!, 4); close(r1[1]!, 0.5);
     // group 2: W [Cin=2, Cout/group=2, k=2] -> 4 output channels; input channel i feeds channels 2*i + j
     //   c0 = W[0,0,:] = [1, 2] -> 1;  c1 = W[0,1,:] = [0, 0] -> 0;  c2 = W[1,0,:] = [3, -1] -> 4;  c3 = W[1,1,:] = [0.5, 0] -> 0.5
-    const r2 = channelRanges(w, dims, layouts.convTransposeOutput(weightView(dims), 2), 4);
+    const r2 = channelRanges(w, layouts.convTransposeOutput(weightView(dims), 2), 4);
     [1, 0, 4, 0.5].forEach((want, c) => close(r2[c]!, want));
     // sorted 0, 0.5, 1, 4: median 0.75, spread 4 / 0.75
     close(spreadOf(r2), 4 / 0.75);
@@ -60,10 +60,10 @@ describe('channel ranges and spread (hand-computed)', () => {
   it('Gemm/MatMul: columns of [K, N], rows of [N, K] with transB', () => {
     // [K=2, N=3] = [[1, 0, 5], [-1, 0.25, 5]]: column ranges 2, 0.25, 0
     const w = Float64Array.from([1, 0, 5, -1, 0.25, 5]);
-    const cols = channelRanges(w, [2, 3], layouts.columns(weightView([2, 3])), 3);
+    const cols = channelRanges(w, layouts.columns(weightView([2, 3])), 3);
     [2, 0.25, 0].forEach((want, c) => close(cols[c]!, want));
     // the same numbers read as [N=2, K=3] rows: [1, 0, 5] -> 5, [-1, 0.25, 5] -> 6
-    const rows = channelRanges(w, [2, 3], layouts.rows(weightView([2, 3])), 2);
+    const rows = channelRanges(w, layouts.rows(weightView([2, 3])), 2);
     close(rows[0]!, 5); close(rows[1]!, 6);
   });
 

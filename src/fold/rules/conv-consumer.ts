@@ -6,10 +6,10 @@ import { hasShift } from '../affine.js';
 import { addConstantInput, scaleConstant, replaceConstant } from '../apply.js';
 import { isRefusal, refuse } from '../context.js';
 import { resolveRun } from '../run.js';
-import { contractShift, layouts, maxAbs, scaleWeights, weightView, type WeightView } from '../weights.js';
+import { contractShift, layouts, maxAbs, scaleWeights, weightView, type ChannelMap, type WeightView } from '../weights.js';
 import { bypassRun, fitsStorage, overflow, type FoldRule } from './rule.js';
 
-interface Data { view: WeightView; map: Int32Array; bias: Float64Array }
+interface Data { view: WeightView; map: ChannelMap; bias: Float64Array }
 
 const paddedInput = (unpadded: boolean, shifted: boolean) => !unpadded && shifted;
 
@@ -30,13 +30,13 @@ export const convConsumer: FoldRule<Data> = {
       const b = decodeValues(layer.bias.tensor);
       for (let i = 0; i < bias.length; i++) bias[i] += b[i]!;
     }
-    if (!fitsStorage(scaleWeights(weight, v, map, a.scale), t.dataType)) return overflow('weights', t.dataType);
+    if (!fitsStorage(scaleWeights(weight, map, a.scale), t.dataType)) return overflow('weights', t.dataType);
     if (!fitsStorage(maxAbs(bias), t.dataType)) return overflow('bias', t.dataType);
     return { rule: convConsumer, run, layer, affine: a, adds: 0, data: { view: v, map, bias } };
   },
   rewrite(ctx, m, edit) {
     const { layer, run, data } = m;
-    scaleConstant(ctx, edit, layer.node, 1, layer.weight, data.view, data.map, m.affine.scale);
+    scaleConstant(ctx, edit, layer.node, 1, layer.weight, data.map, m.affine.scale);
     if (layer.bias) replaceConstant(ctx, edit, layer.node, 2, layer.bias, data.bias, layer.bias.tensor.dims);
     else if (hasShift(m.affine)) addConstantInput(ctx, edit, layer.node, 2, `${layer.weight.name}.bias`, layer.weight.tensor.dataType, data.bias, [data.bias.length]);
     bypassRun(edit, layer, run);

@@ -5,10 +5,10 @@ import { hasShift } from '../affine.js';
 import { addConstantInput, scaleConstant, changeOf, replaceConstant } from '../apply.js';
 import { isRefusal } from '../context.js';
 import { resolveRun } from '../run.js';
-import { contractShift, gemmBias, layouts, maxAbs, scaleWeights, weightView, type WeightView } from '../weights.js';
+import { contractShift, gemmBias, layouts, maxAbs, scaleWeights, weightView, type ChannelMap, type WeightView } from '../weights.js';
 import { bypassRun, fitsStorage, overflow, type FoldRule } from './rule.js';
 
-interface Data { view: WeightView; map: Int32Array; bias?: { values: Float64Array; dims: number[] } }
+interface Data { view: WeightView; map: ChannelMap; bias?: { values: Float64Array; dims: number[] } }
 
 export const gemmConsumer: FoldRule<Data> = {
   name: 'gemm-consumer',
@@ -29,12 +29,12 @@ export const gemmConsumer: FoldRule<Data> = {
       bias = gemmBias(c, layer.beta, undefined, tb);
       if (!fitsStorage(maxAbs(bias.values), t.dataType)) return overflow('bias', t.dataType);
     }
-    if (!fitsStorage(scaleWeights(weight, v, map, a.scale), t.dataType)) return overflow('weights', t.dataType);
+    if (!fitsStorage(scaleWeights(weight, map, a.scale), t.dataType)) return overflow('weights', t.dataType);
     return { rule: gemmConsumer, run, layer, affine: a, adds: 0, data: { view: v, map, bias } };
   },
   rewrite(ctx, m, edit) {
     const { layer, run, data } = m;
-    scaleConstant(ctx, edit, layer.node, 1, layer.weight, data.view, data.map, m.affine.scale);
+    scaleConstant(ctx, edit, layer.node, 1, layer.weight, data.map, m.affine.scale);
     if (data.bias) {
       if (layer.bias) replaceConstant(ctx, edit, layer.node, 2, layer.bias, data.bias.values, data.bias.dims);
       else addConstantInput(ctx, edit, layer.node, 2, `${layer.weight.name}.bias`, layer.weight.tensor.dataType, data.bias.values, data.bias.dims);

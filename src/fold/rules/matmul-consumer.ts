@@ -6,10 +6,10 @@ import { hasShift } from '../affine.js';
 import { addConstantInput, scaleConstant, changeOf, makeNode, replaceConstant } from '../apply.js';
 import { freshName, isRefusal } from '../context.js';
 import { resolveRun } from '../run.js';
-import { contractShift, layouts, maxAbs, scaleWeights, weightView, type WeightView } from '../weights.js';
+import { contractShift, layouts, maxAbs, scaleWeights, weightView, type ChannelMap, type WeightView } from '../weights.js';
 import { bypassRun, fitsStorage, overflow, type FoldRule, withBroadcast } from './rule.js';
 
-interface Data { view: WeightView; map: Int32Array; bias: Float64Array; form: 'scale-only' | 'gemm' | 'add' }
+interface Data { view: WeightView; map: ChannelMap; bias: Float64Array; form: 'scale-only' | 'gemm' | 'add' }
 
 export const matmulConsumer: FoldRule<Data> = {
   name: 'matmul-consumer',
@@ -24,7 +24,7 @@ export const matmulConsumer: FoldRule<Data> = {
     const map = layouts.rows(v);
     const bias = contractShift(weight, v, map, 'b', layer.outChannels, a.shift);
     if (!fitsStorage(maxAbs(bias), t.dataType)) return overflow('bias', t.dataType);
-    if (!fitsStorage(scaleWeights(weight, v, map, a.scale), t.dataType)) return overflow('weights', t.dataType);
+    if (!fitsStorage(scaleWeights(weight, map, a.scale), t.dataType)) return overflow('weights', t.dataType);
     const form = !hasShift(a) ? 'scale-only' : layer.rank === 2 && ctx.opsetOf('') >= 11 ? 'gemm' : 'add';
     return { rule: matmulConsumer, run, layer, affine: a, adds: form === 'add' ? 1 : 0, data: { view: v, map, bias, form } };
   },
@@ -32,7 +32,7 @@ export const matmulConsumer: FoldRule<Data> = {
     const { layer, run, data } = m;
     const node = layer.node;
     const dt = layer.weight.tensor.dataType;
-    scaleConstant(ctx, edit, node, 1, layer.weight, data.view, data.map, m.affine.scale);
+    scaleConstant(ctx, edit, node, 1, layer.weight, data.map, m.affine.scale);
     bypassRun(edit, layer, run);
     edit.regionOutputs = [node.outputs[0]!];
     if (data.form === 'gemm') {

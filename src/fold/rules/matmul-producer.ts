@@ -1,15 +1,15 @@
 // Norm after a MatMul with a constant 2-D weight W [K, N], when the norm's channel axis is the output's last
 // axis: W' = W ⊙ s along columns. A shift t becomes the C of a Gemm when the input is 2-D, else a new Add.
 import { makeTensor } from '../../onnx/tensor.js';
-import { decodeValues, scaledMaxAbs } from '../values.js';
+import { decodeValues, type ScaleGuard } from '../values.js';
 import { hasShift } from '../affine.js';
 import { addConstantInput, scaleConstant, changeOf, makeNode, replaceConstant } from '../apply.js';
 import { freshName, isRefusal } from '../context.js';
 import { resolveRun } from '../run.js';
-import { layouts, maxAbs, weightView, type WeightView } from '../weights.js';
-import { fitsStorage, overflow, producerOutputFree, removeRun, takeOverRun, type FoldRule, withBroadcast } from './rule.js';
+import { layouts, maxAbs, weightView, type ChannelMap, type WeightView } from '../weights.js';
+import { fitsStorage, overflow, producerOutputFree, removeRun, takeOverRun, type FoldRule, weightRangeCheck, withBroadcast } from './rule.js';
 
-interface Data { view: WeightView; map: Int32Array; shift: Float64Array; form: 'scale-only' | 'gemm' | 'add' }
+interface Data { map: ChannelMap; guard?: ScaleGuard; shift: Float64Array; form: 'scale-only' | 'gemm' | 'add' }
 
 export const matmulProducer: FoldRule<Data> = {
   name: 'matmul-producer',
@@ -23,16 +23,17 @@ export const matmulProducer: FoldRule<Data> = {
     const t = layer.weight.tensor;
     const v = weightView(t.dims);
     const map = layouts.columns(v);
-    if (!fitsStorage(scaledMaxAbs(t, v, map, a.scale), t.dataType)) return overflow('weights', t.dataType);
+    const range = weightRangeCheck(ctx, t, map, a.scale);
+    if (isRefusal(range)) return range;
     if (!fitsStorage(maxAbs(a.shift), t.dataType)) return overflow('bias', t.dataType);
     const form = !hasShift(a) ? 'scale-only' : layer.rank === 2 && ctx.opsetOf('') >= 11 ? 'gemm' : 'add';
-    return { rule: matmulProducer, run, layer, affine: a, adds: form === 'add' ? 1 : 0, data: { view: v, map, shift: a.shift, form } };
+    return { rule: matmulProducer, run, layer, affine: a, adds: form === 'add' ? 1 : 0, data: { map, guard: range.guard, shift: a.shift, form } };
   },
   rewrite(ctx, m, edit) {
     const { layer, run, data } = m;
     const node = layer.node;
     const dt = layer.weight.tensor.dataType;
-    scaleConstant(ctx, edit, node, 1, layer.weight, data.view, data.map, m.affine.scale);
+    scaleConstant(ctx, edit, node, 1, layer.weight, data.map, m.affine.scale, data.guard);
     edit.regionOutputs = [run.bottom];
     if (data.form === 'add') {
       const bias = freshName(ctx, `${layer.weight.name}.bias`);

@@ -1,7 +1,7 @@
 // The shape every fold rule has: the layer op it folds into and the direction (its anchor is always a run of
 // affine steps), a match that checks every condition and returns a match or one refusal, and a rewrite that
 // turns a match into an edit without deciding anything.
-import type { DataTypeCode, Node } from '../../graph/ir.js';
+import type { DataTypeCode, Node, Tensor } from '../../graph/ir.js';
 import { roundToStorage, dataTypeName, numberToHalfBits, numberToBfloatBits } from '../../onnx/tensor.js';
 import { DataType } from '../../graph/ir.js';
 import type { Affine } from '../affine.js';
@@ -11,6 +11,8 @@ import { refuse, type FoldContext, type Refusal } from '../context.js';
 import type { Layer, LayerOp } from '../layers.js';
 import type { Run } from '../run.js';
 import type { Direction } from '../types.js';
+import type { ChannelMap } from '../weights.js';
+import { LateRangeCheckFailed, rangeCheckCanWait, scaledMaxAbs, type ScaleGuard } from '../values.js';
 
 export interface RuleMatch<D = unknown> {
   rule: FoldRule<D>;
@@ -56,6 +58,18 @@ export function fitsStorage(maxAbsValue: number, dataType: DataTypeCode): boolea
     case DataType.BFLOAT16: return (numberToBfloatBits(maxAbsValue) & 0x7f80) !== 0x7f80;
     default: return Number.isFinite(roundToStorage(Float64Array.of(maxAbsValue), dataType)[0]!);
   }
+}
+
+/**
+ * The storage range check of scaling weight `t` by channel: a refusal when it would overflow; otherwise the
+ * guard the scaling must run when the check was left to it (see rangeCheckCanWait), or undefined.
+ */
+export function weightRangeCheck(ctx: FoldContext, t: Tensor, map: ChannelMap, scale: Float64Array): Refusal | { guard?: ScaleGuard } {
+  if (ctx.options.lateRangeCheck && rangeCheckCanWait(t)) {
+    const dataType = t.dataType;
+    return { guard: (m) => { if (!fitsStorage(m, dataType)) throw new LateRangeCheckFailed(t.name); } };
+  }
+  return fitsStorage(scaledMaxAbs(t, map, scale), t.dataType) ? {} : overflow('weights', t.dataType);
 }
 
 export function overflow(what: string, dataType: DataTypeCode): Refusal {
