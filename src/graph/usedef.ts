@@ -4,6 +4,7 @@
 import { constantNodeTensor } from './constants.js';
 import type { Graph, Node, Tensor } from './ir.js';
 import { subgraphsOf } from './ir.js';
+import { nameTable } from './names.js';
 
 export interface UseDef {
   graph: Graph;
@@ -50,7 +51,7 @@ const IS_INPUT = 1;
 const IS_OUTPUT = 2;
 
 // Every value name of the graph gets a small integer id once; producers, initializers, flags and readers are
-// typed arrays indexed by that id. One Map of names instead of one per question, and no array per value, so
+// typed arrays indexed by that id. One table of names (see names.ts) instead of a Map per question, and no array per value, so
 // a graph of millions of nodes costs a few flat buffers the garbage collector never has to trace.
 export function buildUseDef(graph: Graph): UseDef {
   const nodes = graph.nodes.slice(); // the index answers for the graph as it was built, as a Map of nodes would
@@ -69,12 +70,8 @@ export function buildUseDef(graph: Graph): UseDef {
       reads += refs.length;
     }
   }
-  const ids = new Map<string, number>();
-  const idOf = (v: string): number => {
-    let id = ids.get(v);
-    if (id === undefined) { id = ids.size; ids.set(v, id); }
-    return id;
-  };
+  const ids = nameTable(bound);
+  const idOf = ids.add;
   const producer = new Int32Array(bound).fill(-1);
   const init = new Int32Array(bound).fill(-1);
   const flags = new Uint8Array(bound);
@@ -100,7 +97,7 @@ export function buildUseDef(graph: Graph): UseDef {
   for (const v of graph.inputs) flags[idOf(v.name)]! |= IS_INPUT;
   for (let k = 0; k < tensors.length; k++) init[idOf(tensors[k]!.name)] = k;
   const readers = csr(ids.size, edgeValue, edgeNode, edges);
-  const idIn = (v: string) => ids.get(v) ?? -1;
+  const idIn = ids.id;
   const producerOf = (v: string): Node | undefined => {
     const id = idIn(v);
     return id < 0 || producer[id]! < 0 ? undefined : nodes[producer[id]!];

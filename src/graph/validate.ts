@@ -2,7 +2,7 @@
 // matches its dims and type. Errors name the graph, node and value.
 import { PleatError } from '../errors.js';
 import type { Graph, Model, Tensor } from './ir.js';
-import { elementCount, subgraphsOf } from './ir.js';
+import { elementCount } from './ir.js';
 import { isKnownDataType, storedElementCount, dataTypeName } from '../onnx/tensor.js';
 import { topoOrder } from './topo.js';
 
@@ -18,8 +18,11 @@ function checkTensor(t: Tensor, where: string): void {
   }
 }
 
-function validateGraph(g: Graph, outer: Set<string>, path: string): void {
-  const defined = new Set<string>(outer);
+/**
+ * `outerHas` answers for the enclosing graphs: a subgraph may read their values. It is a lookup, not a copy of
+ * the outer names, so a graph with many If/Loop bodies costs time linear in its size.
+ */
+function validateGraph(g: Graph, outerHas: (v: string) => boolean, path: string): void {
   const writer = new Map<string, string>();
   const own = (v: string, who: string) => {
     const prev = writer.get(v);
@@ -28,11 +31,10 @@ function validateGraph(g: Graph, outer: Set<string>, path: string): void {
     }
     writer.set(v, who);
   };
-  for (const v of g.inputs) { own(v.name, `graph input '${v.name}'`); defined.add(v.name); }
+  for (const v of g.inputs) own(v.name, `graph input '${v.name}'`);
   for (const t of g.initializers) {
     checkTensor(t, path);
     if (!writer.has(t.name)) own(t.name, `initializer '${t.name}'`);
-    defined.add(t.name);
   }
   for (const n of g.nodes) {
     for (const o of n.outputs) if (o) own(o, `node '${n.name || n.opType}'`);
@@ -40,27 +42,26 @@ function validateGraph(g: Graph, outer: Set<string>, path: string): void {
       if (a.value.type === 'TENSOR') checkTensor(a.value.t, `${path} node '${n.name || n.opType}'`);
     }
   }
-  const all = new Set([...defined, ...g.nodes.flatMap((n) => n.outputs)]);
+  const has = (v: string): boolean => writer.has(v) || outerHas(v);
   for (const n of g.nodes) {
     for (const i of n.inputs) {
-      if (i && !all.has(i)) {
+      if (i && !has(i)) {
         throw new PleatError('bad-model', `${path}: node '${n.name || n.opType}' reads '${i}', which no node, input or initializer defines`);
       }
     }
   }
   topoOrder(g); // throws on a cycle
   for (const o of g.outputs) {
-    if (!all.has(o.name)) throw new PleatError('bad-model', `${path}: graph output '${o.name}' is never computed`);
+    if (!has(o.name)) throw new PleatError('bad-model', `${path}: graph output '${o.name}' is never computed`);
   }
   for (const n of g.nodes) {
     for (const a of n.attributes) {
       const sgs = a.value.type === 'GRAPH' ? [a.value.g] : a.value.type === 'GRAPHS' ? a.value.graphs : [];
-      sgs.forEach((sg, k) => validateGraph(sg, all, `${path}/${n.name || n.opType}.${a.name}${sgs.length > 1 ? `[${k}]` : ''}`));
+      sgs.forEach((sg, k) => validateGraph(sg, has, `${path}/${n.name || n.opType}.${a.name}${sgs.length > 1 ? `[${k}]` : ''}`));
     }
   }
-  void subgraphsOf;
 }
 
 export function validateModel(m: Model): void {
-  validateGraph(m.graph, new Set(), m.graph.name ? `graph '${m.graph.name}'` : 'main graph');
+  validateGraph(m.graph, () => false, m.graph.name ? `graph '${m.graph.name}'` : 'main graph');
 }

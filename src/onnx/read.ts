@@ -8,7 +8,7 @@ import type {
 import { PleatError } from '../errors.js';
 import {
   WT_LEN, WireError, readFloat, readInt, readPackedFixed32, readPackedFixed64, readPackedVarints,
-  readPackedVarintsBig, readString, scanFields, type WireField,
+  readPackedVarintsBig, readString, fieldsOf, type WireField,
 } from './wire.js';
 import {
   attributeSig, graphSig, modelSig, nodeSig, opsetSig, tensorSig, typeSig, valueInfoSig,
@@ -27,43 +27,43 @@ function expectLen(f: WireField, what: string): void {
   if (f.wt !== WT_LEN) throw new WireError(`${what}: field ${f.no} has wire type ${f.wt}, expected a length-delimited field`);
 }
 
-function origin(buf: Buf, start: number, end: number, fields: WireField[], sig: string) {
-  return { bytes: buf.subarray(start, end), sig, order: fields.map((f) => f.no) };
+function origin(buf: Buf, start: number, end: number, order: number[], sig: string) {
+  return { bytes: buf.subarray(start, end), sig, order };
 }
 
 export function decodeTensor(buf: Buf, start: number, end: number): Tensor {
-  const fields = scanFields(buf, start, end);
+  const f = fieldsOf(buf, start, end);
   const dims: number[] = [];
   let dataType = 0, name = '', docString = '';
   let storage: TensorStorage = { kind: 'empty' };
   const extra: RawField[] = [];
-  const floats: number[] = [], int32s: number[] = [], doubles: number[] = [];
-  const int64s: bigint[] = [], uint64s: bigint[] = [];
-  const strings: Uint8Array[] = [];
-  const external: Array<[string, string]> = [];
+  // arrays only for the *_data fields present (most tensors use raw_data and need none)
+  let floats: number[] | undefined, int32s: number[] | undefined, doubles: number[] | undefined;
+  let int64s: bigint[] | undefined, uint64s: bigint[] | undefined, strings: Uint8Array[] | undefined;
+  let external: Array<[string, string]> | undefined;
   let location = 0;
   let kind: TensorStorage['kind'] | undefined;
-  for (const f of fields) {
+  while (f.next()) {
     switch (f.no) {
       case 1: readPackedVarints(buf, f, dims); break;
       case 2: dataType = readInt(buf, f); break;
-      case 4: readPackedFixed32(buf, f, floats, true); kind = 'float_data'; break;
-      case 5: readPackedVarints(buf, f, int32s); kind = 'int32_data'; break;
-      case 6: expectLen(f, 'string_data'); strings.push(buf.subarray(f.vstart, f.vend)); kind = 'string_data'; break;
-      case 7: readPackedVarintsBig(buf, f, int64s); kind = 'int64_data'; break;
+      case 4: readPackedFixed32(buf, f, floats ??= [], true); kind = 'float_data'; break;
+      case 5: readPackedVarints(buf, f, int32s ??= []); kind = 'int32_data'; break;
+      case 6: expectLen(f, 'string_data'); (strings ??= []).push(buf.subarray(f.vstart, f.vend)); kind = 'string_data'; break;
+      case 7: readPackedVarintsBig(buf, f, int64s ??= []); kind = 'int64_data'; break;
       case 8: name = readString(buf, f); break;
       case 9: expectLen(f, 'raw_data'); storage = { kind: 'raw', bytes: buf.subarray(f.vstart, f.vend) }; kind = 'raw'; break;
-      case 10: readPackedFixed64(buf, f, doubles); kind = 'double_data'; break;
-      case 11: readPackedVarintsBig(buf, f, uint64s); kind = 'uint64_data'; break;
+      case 10: readPackedFixed64(buf, f, doubles ??= []); kind = 'double_data'; break;
+      case 11: readPackedVarintsBig(buf, f, uint64s ??= []); kind = 'uint64_data'; break;
       case 12: docString = readString(buf, f); break;
       case 13: {
         expectLen(f, 'external_data');
         let k = '', v = '';
-        for (const e of scanFields(buf, f.vstart, f.vend)) {
+        for (const e = fieldsOf(buf, f.vstart, f.vend); e.next();) {
           if (e.no === 1) k = readString(buf, e);
           else if (e.no === 2) v = readString(buf, e);
         }
-        external.push([k, v]);
+        (external ??= []).push([k, v]);
         break;
       }
       case 14: location = readInt(buf, f); break;
@@ -71,15 +71,15 @@ export function decodeTensor(buf: Buf, start: number, end: number): Tensor {
     }
   }
   if (location === 1) {
-    storage = { kind: 'external', entries: external, bytes: new Uint8Array(0) };
+    storage = { kind: 'external', entries: external ?? [], bytes: new Uint8Array(0) };
   } else {
     switch (kind) {
-      case 'float_data': storage = { kind, values: Float32Array.from(floats) }; break;
-      case 'int32_data': storage = { kind, values: Int32Array.from(int32s) }; break;
-      case 'double_data': storage = { kind, values: Float64Array.from(doubles) }; break;
-      case 'int64_data': storage = { kind, values: BigInt64Array.from(int64s) }; break;
-      case 'uint64_data': storage = { kind, values: BigUint64Array.from(uint64s) }; break;
-      case 'string_data': storage = { kind, values: strings }; break;
+      case 'float_data': storage = { kind, values: Float32Array.from(floats!) }; break;
+      case 'int32_data': storage = { kind, values: Int32Array.from(int32s!) }; break;
+      case 'double_data': storage = { kind, values: Float64Array.from(doubles!) }; break;
+      case 'int64_data': storage = { kind, values: BigInt64Array.from(int64s!) }; break;
+      case 'uint64_data': storage = { kind, values: BigUint64Array.from(uint64s!) }; break;
+      case 'string_data': storage = { kind, values: strings! }; break;
       default: break;
     }
   }
@@ -87,17 +87,17 @@ export function decodeTensor(buf: Buf, start: number, end: number): Tensor {
     throw new PleatError('bad-model', `tensor '${name}' has an invalid dimension in [${dims.join(',')}]`);
   }
   const t: Tensor = { name, dims, dataType, storage, docString, extra };
-  t.origin = origin(buf, start, end, fields, tensorSig(t));
+  t.origin = origin(buf, start, end, f.order, tensorSig(t));
   // data_location and external_data entries are modelled through storage
   return t;
 }
 
 function decodeDims(buf: Buf, start: number, end: number): Dim[] {
   const dims: Dim[] = [];
-  for (const f of scanFields(buf, start, end)) {
+  for (const f = fieldsOf(buf, start, end); f.next();) {
     if (f.no !== 1) continue;
     let d: Dim = null;
-    for (const g of scanFields(buf, f.vstart, f.vend)) {
+    for (const g = fieldsOf(buf, f.vstart, f.vend); g.next();) {
       if (g.no === 1) d = readInt(buf, g);
       else if (g.no === 2) d = readString(buf, g);
     }
@@ -107,17 +107,17 @@ function decodeDims(buf: Buf, start: number, end: number): Dim[] {
 }
 
 function decodeValueInfo(buf: Buf, start: number, end: number): ValueInfo {
-  const fields = scanFields(buf, start, end);
+  const f = fieldsOf(buf, start, end);
   const v: ValueInfo = { name: '', docString: '', extra: [] };
-  for (const f of fields) {
+  while (f.next()) {
     switch (f.no) {
       case 1: v.name = readString(buf, f); break;
       case 2: {
         expectLen(f, 'value type');
         v.typeBytes = buf.subarray(f.vstart, f.vend);
-        for (const t of scanFields(buf, f.vstart, f.vend)) {
+        for (const t = fieldsOf(buf, f.vstart, f.vend); t.next();) {
           if (t.no !== 1) continue; // not a tensor type
-          for (const tt of scanFields(buf, t.vstart, t.vend)) {
+          for (const tt = fieldsOf(buf, t.vstart, t.vend); tt.next();) {
             if (tt.no === 1) v.elemType = readInt(buf, tt);
             else if (tt.no === 2) v.shape = decodeDims(buf, tt.vstart, tt.vend);
           }
@@ -129,7 +129,7 @@ function decodeValueInfo(buf: Buf, start: number, end: number): ValueInfo {
     }
   }
   v.typeSig = typeSig(v);
-  v.origin = origin(buf, start, end, fields, valueInfoSig(v));
+  v.origin = origin(buf, start, end, f.order, valueInfoSig(v));
   return v;
 }
 
@@ -138,14 +138,14 @@ const ATTR_TYPES: Record<number, AttributeValue['type']> = {
 };
 
 function decodeAttribute(buf: Buf, start: number, end: number, depth: number): Attribute {
-  const fields = scanFields(buf, start, end);
+  const f = fieldsOf(buf, start, end);
   let name = '', docString = '', refAttrName = '', typeCode = 0;
   let f_ = 0, i_ = 0, s_: Uint8Array = new Uint8Array(0);
   let t_: Tensor | undefined, g_: Graph | undefined;
   const floats: number[] = [], ints: number[] = [], strings: Uint8Array[] = [], tensors: Tensor[] = [], graphs: Graph[] = [];
   const seen = new Set<number>();
   const extra: RawField[] = [];
-  for (const f of fields) {
+  while (f.next()) {
     seen.add(f.no);
     switch (f.no) {
       case 1: name = readString(buf, f); break;
@@ -189,14 +189,14 @@ function decodeAttribute(buf: Buf, start: number, end: number, depth: number): A
     default: value = { type: 'OTHER', code: typeCode };
   }
   const a: Attribute = { name, value, docString, refAttrName, extra };
-  a.origin = origin(buf, start, end, fields, attributeSig(a));
+  a.origin = origin(buf, start, end, f.order, attributeSig(a));
   return a;
 }
 
 function decodeNode(buf: Buf, start: number, end: number, depth: number): Node {
-  const fields = scanFields(buf, start, end);
+  const f = fieldsOf(buf, start, end);
   const n: Node = { name: '', opType: '', domain: '', inputs: [], outputs: [], attributes: [], docString: '', extra: [] };
-  for (const f of fields) {
+  while (f.next()) {
     switch (f.no) {
       case 1: n.inputs.push(readString(buf, f)); break;
       case 2: n.outputs.push(readString(buf, f)); break;
@@ -208,15 +208,15 @@ function decodeNode(buf: Buf, start: number, end: number, depth: number): Node {
       default: n.extra.push(raw(buf, f));
     }
   }
-  n.origin = origin(buf, start, end, fields, nodeSig(n));
+  n.origin = origin(buf, start, end, f.order, nodeSig(n));
   return n;
 }
 
 export function decodeGraph(buf: Buf, start: number, end: number, depth = 0): Graph {
   if (depth > 64) throw new PleatError('bad-model', 'subgraphs nested more than 64 deep');
-  const fields = scanFields(buf, start, end);
+  const f = fieldsOf(buf, start, end);
   const g: Graph = { name: '', nodes: [], initializers: [], inputs: [], outputs: [], valueInfo: [], docString: '', extra: [] };
-  for (const f of fields) {
+  while (f.next()) {
     switch (f.no) {
       case 1: expectLen(f, 'node'); g.nodes.push(decodeNode(buf, f.vstart, f.vend, depth)); break;
       case 2: g.name = readString(buf, f); break;
@@ -228,7 +228,7 @@ export function decodeGraph(buf: Buf, start: number, end: number, depth = 0): Gr
       default: g.extra.push(raw(buf, f));
     }
   }
-  g.origin = origin(buf, start, end, fields, graphSig(g));
+  g.origin = origin(buf, start, end, f.order, graphSig(g));
   return g;
 }
 
@@ -243,26 +243,26 @@ function markOverridable(g: Graph, irVersion: number): void {
 }
 
 function decodeOpset(buf: Buf, start: number, end: number): OpsetImport {
-  const fields = scanFields(buf, start, end);
+  const f = fieldsOf(buf, start, end);
   const o: OpsetImport = { domain: '', version: 0, extra: [] };
-  for (const f of fields) {
+  while (f.next()) {
     if (f.no === 1) o.domain = readString(buf, f);
     else if (f.no === 2) o.version = readInt(buf, f);
     else o.extra.push(raw(buf, f));
   }
-  o.origin = origin(buf, start, end, fields, opsetSig(o));
+  o.origin = origin(buf, start, end, f.order, opsetSig(o));
   return o;
 }
 
 /** Decode model bytes (no external data loaded; see parseModel). */
 export function decodeModel(buf: Buf, baseDir: string): Model {
-  const fields = scanFields(buf, 0, buf.byteLength);
+  const f = fieldsOf(buf, 0, buf.byteLength);
   let graph: Graph | undefined;
   const m: Omit<Model, 'graph'> & { graph?: Graph } = {
     irVersion: 0, opsets: [], producerName: '', producerVersion: '', domain: '', modelVersion: 0, docString: '',
     metadata: [], extra: [], baseDir,
   };
-  for (const f of fields) {
+  while (f.next()) {
     switch (f.no) {
       case 1: m.irVersion = readInt(buf, f); break;
       case 2: m.producerName = readString(buf, f); break;
@@ -275,7 +275,7 @@ export function decodeModel(buf: Buf, baseDir: string): Model {
       case 14: {
         expectLen(f, 'metadata_props');
         let k = '', v = '';
-        for (const e of scanFields(buf, f.vstart, f.vend)) {
+        for (const e = fieldsOf(buf, f.vstart, f.vend); e.next();) {
           if (e.no === 1) k = readString(buf, e);
           else if (e.no === 2) v = readString(buf, e);
         }
@@ -288,7 +288,7 @@ export function decodeModel(buf: Buf, baseDir: string): Model {
   if (!graph) throw new PleatError('bad-model', 'no graph in the file: this is not an ONNX model');
   const model = { ...m, graph } as Model;
   markOverridable(graph, model.irVersion);
-  model.origin = origin(buf, 0, buf.byteLength, fields, modelSig(model));
+  model.origin = origin(buf, 0, buf.byteLength, f.order, modelSig(model));
   return model;
 }
 

@@ -2,13 +2,12 @@
 // recomputes it and re-emits the original bytes when nothing modelled has changed.
 import type { Attribute, Graph, Model, Node, OpsetImport, Tensor, ValueInfo } from '../graph/ir.js';
 
-const ids = new WeakMap<object, number>();
+const ID = Symbol('pleat.id');
 let nextId = 1;
-/** A stable identity number for an object (storage arrays, child messages). */
+/** A stable identity number for an object (storage arrays, child messages), kept on the object itself. */
 export function idOf(o: object): number {
-  let id = ids.get(o);
-  if (id === undefined) { id = nextId++; ids.set(o, id); }
-  return id;
+  const h = o as { [ID]?: number };
+  return h[ID] ??= nextId++;
 }
 
 const SEP = '\u0001';

@@ -54,15 +54,57 @@ export function readVarintBig(buf: Uint8Array, pos: number, end: number): [bigin
   return [BigInt.asIntN(64, v), pos];
 }
 
-/** Split buf[start, end) into fields. Throws WireError on malformed or truncated bytes. */
-export function scanFields(buf: Uint8Array, start: number, end: number): WireField[] {
-  const out: WireField[] = [];
-  let pos = start;
-  while (pos < end) {
+/**
+ * An unsigned varint below 2^53 at pos (tags and lengths); the position after it is left in `varintEnd`.
+ * No tuple is returned: scanning runs once per field of every message, and the allocation showed.
+ */
+let varintEnd = 0;
+function readLength(buf: Uint8Array, pos: number, end: number): number {
+  if (pos < end) {
+    const b = buf[pos]!;
+    if (b < 0x80) { varintEnd = pos + 1; return b; } // the common case: one byte
+  }
+  let v = 0, mul = 1, b: number;
+  do {
+    if (pos >= end) throw new WireError('truncated varint');
+    b = buf[pos++]!;
+    v += (b & 0x7f) * mul;
+    mul *= 128;
+    if (mul > 2 ** 70) throw new WireError('varint too long');
+  } while (b & 0x80);
+  if (v > Number.MAX_SAFE_INTEGER) throw new WireError('varint out of range');
+  varintEnd = pos;
+  return v;
+}
+
+/**
+ * The fields of buf[start, end), one at a time: next() fills no/wt/start/end/vstart/vend in place. Decoding
+ * walks every field of every message, so this keeps one object per message rather than one per field (a
+ * graph of many small nodes allocated several times its file size otherwise). `order` lists the field
+ * numbers seen, in order. Throws WireError on malformed or truncated bytes.
+ */
+export class FieldCursor implements WireField {
+  no = 0;
+  wt = 0;
+  start = 0;
+  end = 0;
+  vstart = 0;
+  vend = 0;
+  readonly order: number[] = [];
+  private pos: number;
+
+  constructor(private readonly buf: Uint8Array, start: number, private readonly limit: number) {
+    this.pos = start;
+  }
+
+  next(): boolean {
+    const buf = this.buf, end = this.limit;
+    let pos = this.pos;
+    if (pos >= end) return false;
     const fstart = pos;
-    let tag: number;
-    [tag, pos] = readVarint(buf, pos, end);
-    const no = Math.floor(tag / 8), wt = tag & 7;
+    const tag = readLength(buf, pos, end);
+    pos = varintEnd;
+    const no = Math.floor(tag / 8), wt = tag % 8;
     if (no === 0) throw new WireError('field number 0');
     let vstart = pos, vend: number;
     switch (wt) {
@@ -77,9 +119,8 @@ export function scanFields(buf: Uint8Array, start: number, end: number): WireFie
       case WT_I64: vend = pos + 8; pos = vend; break;
       case WT_I32: vend = pos + 4; pos = vend; break;
       case WT_LEN: {
-        let len: number;
-        [len, pos] = readVarint(buf, pos, end);
-        if (len < 0) throw new WireError('negative length');
+        const len = readLength(buf, pos, end);
+        pos = varintEnd;
         vstart = pos;
         vend = pos + len;
         pos = vend;
@@ -88,8 +129,21 @@ export function scanFields(buf: Uint8Array, start: number, end: number): WireFie
       default: throw new WireError(`unsupported wire type ${wt}`);
     }
     if (vend > end) throw new WireError('field runs past the end of its message (truncated file?)');
-    out.push({ no, wt, start: fstart, end: pos, vstart, vend });
+    this.no = no; this.wt = wt; this.start = fstart; this.end = pos; this.vstart = vstart; this.vend = vend;
+    this.pos = pos;
+    this.order.push(no);
+    return true;
   }
+}
+
+export function fieldsOf(buf: Uint8Array, start: number, end: number): FieldCursor {
+  return new FieldCursor(buf, start, end);
+}
+
+/** Split buf[start, end) into fields (a list; decoding uses fieldsOf). Throws WireError on malformed bytes. */
+export function scanFields(buf: Uint8Array, start: number, end: number): WireField[] {
+  const out: WireField[] = [];
+  for (const c = fieldsOf(buf, start, end); c.next();) out.push({ no: c.no, wt: c.wt, start: c.start, end: c.end, vstart: c.vstart, vend: c.vend });
   return out;
 }
 

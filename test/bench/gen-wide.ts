@@ -23,25 +23,26 @@ export function wideModel(target: number): Model {
   cond.dataType = 9;
   cond.storage = { kind: 'raw', bytes: new Uint8Array([1]) };
   g.initializers.push(cond);
-  let cur = 'x', k = 0;
+  let cur = 'x', k = 0, blocks = 0; // k numbers every block (names); blocks counts main-chain blocks (schedule)
   // every layer has its own weight and statistics, as exported models do
   const block = (into: Graph, input: string, p: string): string => {
     const q = `${p}${k}`;
     into.initializers.push(tensor(`W${q}`, [C, C, 1, 1], 0.5), tensor(`s${q}`, [C], 1), tensor(`b${q}`, [C], 0), tensor(`m${q}`, [C], 0.1), tensor(`v${q}`, [C], 2));
     into.nodes.push(node('Conv', `${p}conv${k}`, [input, `W${q}`], [`${p}c${k}`]));
-    into.nodes.push(node('BatchNormalization', `${p}bn${k}`, [`${p}c${k}`, `s${q}`, `b${q}`, `m${q}`, `v${q}`], [`${p}b${k}`]));
-    into.nodes.push(node('Relu', `${p}relu${k}`, [`${p}b${k}`], [`${p}r${k}`]));
+    into.nodes.push(node('BatchNormalization', `${p}bn${k}`, [`${p}c${k}`, `s${q}`, `b${q}`, `m${q}`, `v${q}`], [`${p}y${k}`]));
+    into.nodes.push(node('Relu', `${p}relu${k}`, [`${p}y${k}`], [`${p}r${k}`]));
     return `${p}r${k++}`;
   };
   while (g.nodes.length < target) {
     cur = block(g, cur, '');
-    if (k % 10 === 0) {
+    blocks++;
+    if (blocks % 10 === 0) {
       // a branch: two convolutions read the same activation and are summed
       const a = block(g, cur, 'l'), b = block(g, cur, 'r');
       g.nodes.push(node('Add', `add${k}`, [a, b], [`sum${k}`]));
       cur = `sum${k}`;
     }
-    if (k % 100 === 0) {
+    if (blocks % 100 === 0) {
       const branch = (label: string): Graph => {
         const sg: Graph = { name: `${label}${k}`, nodes: [], initializers: [], inputs: [], outputs: [], valueInfo: [], docString: '', extra: [] };
         const out = block(sg, cur, `${label}`);
@@ -49,8 +50,9 @@ export function wideModel(target: number): Model {
         return sg;
       };
       const at = (name: string, gr: Graph): Attribute => ({ name, value: { type: 'GRAPH', g: gr }, docString: '', refAttrName: '', extra: [] });
-      g.nodes.push(node('If', `if${k}`, ['cond'], [`if_out${k}`], [at('then_branch', branch('t')), at('else_branch', branch('e'))]));
-      cur = `if_out${k}`;
+      const out = `if_out${k}`; // named before the branches number their blocks
+      g.nodes.push(node('If', `if${k}`, ['cond'], [out], [at('then_branch', branch('t')), at('else_branch', branch('e'))]));
+      cur = out;
     }
   }
   g.outputs.push(vi(cur));
