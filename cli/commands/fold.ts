@@ -22,12 +22,13 @@ export function builder(y: Argv) {
     .option('external-data-min', { type: 'number', describe: 'store tensors of at least this many bytes in a side file OUT.data (ONNX external data)' })
     .option('gate', { type: 'string', describe: 'gate for the whole-model check, e.g. "maxAbs < 1e-4 and cosine > 0.99999"' })
     .option('probes', { type: 'number', describe: 'number of seeded probes for the whole-model check (default 2)' })
+    .option('unproven', { type: 'boolean', default: false, describe: 'skip the per-fold proofs and the whole-model check (for models too large to check in memory); check the result with pleat compare before shipping it' })
     .option('quiet', { type: 'boolean', default: false, describe: 'no progress bar' }))))
     .epilogue(EPILOGUE);
 }
 
 interface Flags {
-  models: string[]; out?: string; outDir?: string; keep?: string[]; allowOverridable: boolean; externalDataMin?: number; store?: 'float16'; gate?: string; probes?: number; seed?: number;
+  models: string[]; out?: string; outDir?: string; keep?: string[]; allowOverridable: boolean; externalDataMin?: number; store?: 'float16'; gate?: string; probes?: number; seed?: number; unproven: boolean;
   input?: string[]; shape?: string[]; dim?: string[]; json?: boolean; format?: string; report?: string[]; config?: string; quiet: boolean;
 }
 
@@ -58,7 +59,7 @@ export async function handler(argv: Flags): Promise<void> {
   const opts: FoldJobOptions = {
     inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, probes: run.probes, gate: run.gate,
     keep: keepList(config, argv.keep), store: argv.store ?? config.store, allowOverridable: argv.allowOverridable,
-    externalThreshold: argv.externalDataMin,
+    externalThreshold: argv.externalDataMin, noProofs: argv.unproven,
   };
   const jobs: Job[] = argv.models.map((model, i) => ({ command: 'fold', model, output: outputs[i]!, opts }));
   await runAndReport('fold', jobs, plan, argv.quiet);

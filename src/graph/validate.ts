@@ -5,6 +5,7 @@ import type { Graph, Model, Tensor } from './ir.js';
 import { elementCount } from './ir.js';
 import { isKnownDataType, storedElementCount, dataTypeName } from '../onnx/tensor.js';
 import { topoOrder } from './topo.js';
+import { nameTable } from './names.js';
 
 function checkTensor(t: Tensor, where: string): void {
   if (!isKnownDataType(t.dataType)) {
@@ -23,26 +24,35 @@ function checkTensor(t: Tensor, where: string): void {
  * the outer names, so a graph with many If/Loop bodies costs time linear in its size.
  */
 function validateGraph(g: Graph, outerHas: (v: string) => boolean, path: string): void {
-  const writer = new Map<string, string>();
-  const own = (v: string, who: string) => {
-    const prev = writer.get(v);
-    if (prev !== undefined) {
-      throw new PleatError('bad-model', `${path}: value '${v}' is written by both ${prev} and ${who}`);
+  // Who writes each value, as (kind, index) by name id: the description is only built for an error.
+  let bound = g.inputs.length + g.initializers.length;
+  for (const n of g.nodes) bound += n.outputs.length;
+  const names = nameTable(bound);
+  const kind = new Uint8Array(bound); // 0 none, 1 graph input, 2 initializer, 3 node
+  const index = new Int32Array(bound);
+  const describe = (k: number, i: number): string => k === 1 ? `graph input '${g.inputs[i]!.name}'`
+    : k === 2 ? `initializer '${g.initializers[i]!.name}'` : `node '${g.nodes[i]!.name || g.nodes[i]!.opType}'`;
+  const own = (v: string, k: number, i: number, quietIfTaken = false) => {
+    const id = names.add(v);
+    if (kind[id] !== 0) {
+      if (quietIfTaken) return;
+      throw new PleatError('bad-model', `${path}: value '${v}' is written by both ${describe(kind[id]!, index[id]!)} and ${describe(k, i)}`);
     }
-    writer.set(v, who);
+    kind[id] = k;
+    index[id] = i;
   };
-  for (const v of g.inputs) own(v.name, `graph input '${v.name}'`);
-  for (const t of g.initializers) {
+  g.inputs.forEach((v, i) => own(v.name, 1, i));
+  g.initializers.forEach((t, i) => {
     checkTensor(t, path);
-    if (!writer.has(t.name)) own(t.name, `initializer '${t.name}'`);
-  }
-  for (const n of g.nodes) {
-    for (const o of n.outputs) if (o) own(o, `node '${n.name || n.opType}'`);
+    own(t.name, 2, i, true); // an initializer may give a graph input its default
+  });
+  g.nodes.forEach((n, j) => {
+    for (const o of n.outputs) if (o) own(o, 3, j);
     for (const a of n.attributes) {
       if (a.value.type === 'TENSOR') checkTensor(a.value.t, `${path} node '${n.name || n.opType}'`);
     }
-  }
-  const has = (v: string): boolean => writer.has(v) || outerHas(v);
+  });
+  const has = (v: string): boolean => names.id(v) >= 0 || outerHas(v);
   for (const n of g.nodes) {
     for (const i of n.inputs) {
       if (i && !has(i)) {

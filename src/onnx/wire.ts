@@ -191,26 +191,36 @@ export function readPackedFixed64(buf: Uint8Array, f: WireField, into: number[])
 
 // ---- writing ------------------------------------------------------------------------------------------
 
+const SCRATCH_MAX = 64 * 1024;
+
 /** Collects output as a list of chunks; big payloads are referenced, never copied. */
 export class Emitter {
   chunks: Uint8Array[] = [];
   length = 0;
-  private scratch = new Uint8Array(4096);
+  // Small fields collect in a scratch buffer that starts small and doubles as needed; a flush keeps a copy of
+  // the bytes used, so a written model of many small messages holds its own size, not a buffer per message.
+  private scratch = new Uint8Array(64);
   private used = 0;
 
   private flushScratch(): void {
     if (this.used > 0) {
-      this.chunks.push(this.scratch.subarray(0, this.used));
-      this.scratch = new Uint8Array(4096);
+      this.chunks.push(this.scratch.slice(0, this.used));
       this.used = 0;
     }
   }
 
   private room(n: number): void {
-    if (this.used + n > this.scratch.length) {
-      this.flushScratch();
-      if (n > this.scratch.length) this.scratch = new Uint8Array(n);
+    if (this.used + n <= this.scratch.length) return;
+    if (this.used + n <= SCRATCH_MAX) {
+      let size = this.scratch.length * 2;
+      while (size < this.used + n) size *= 2;
+      const next = new Uint8Array(size);
+      next.set(this.scratch.subarray(0, this.used));
+      this.scratch = next;
+      return;
     }
+    this.flushScratch();
+    if (n > this.scratch.length) this.scratch = new Uint8Array(n);
   }
 
   bytes(b: Uint8Array): void {

@@ -24,7 +24,7 @@ export function ledgerLines(entries: ReadonlyArray<Pick<LedgerEntry, 'node' | 'o
 }
 
 export function checkLines(c: CheckSummary | null, p: Paint): string[] {
-  if (c === null) return ['whole-model check: not run'];
+  if (c === null) return [`whole-model check: ${p.warn('not run')}: folds unproven; run pleat compare on the original and the folded model before shipping`];
   if (c.skipped !== null) return [`whole-model check: ${p.warn('skipped')}: ${c.skipped}`];
   const lines = [`whole-model check: ${c.passed ? p.good('passed') : p.bad('FAILED')} (${plural(c.probes, 'probe')}, seed ${c.seed})`];
   const w = Math.max(0, ...c.outputs.map((o) => o.name.length));

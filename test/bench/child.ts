@@ -52,7 +52,33 @@ jobs['audit-size'] = async ([n]) => {
   const { auditLoaded } = await import('../../src/jobs/audit.js');
   const m = wideModel(Number(n));
   const nodes = nodeCount(m);
-  return { runSeconds: await bestOf3(() => { auditLoaded(m, 'wide'); }), nodes };
+  // Yardstick for growth: one bare pass over every node's input and output names (no work at all), which
+  // shows what the memory hierarchy alone does to a pass over a graph ten times larger.
+  const walkSeconds = await bestOf3(() => {
+    let c = 0;
+    const walk = (g: typeof m.graph) => {
+      for (const x of g.nodes) {
+        for (const v of x.inputs) c += v.length;
+        for (const v of x.outputs) c += v.length;
+        for (const a of x.attributes) if (a.value.type === 'GRAPH') walk(a.value.g);
+      }
+    };
+    walk(m.graph);
+    if (c < 0) throw new Error('unreachable');
+  });
+  return { runSeconds: await bestOf3(() => { auditLoaded(m, 'wide'); }), nodes, walkSeconds };
+};
+
+// What `pleat audit FILE` costs: read, check and audit, in a process that did not build the file
+// (write-wide makes it first, in its own process).
+jobs['write-wide'] = async ([n, path]) => {
+  const { wideModel } = await import('./gen-wide.js');
+  writeModelFile(wideModel(Number(n)), path!);
+  return {};
+};
+jobs['audit-file'] = async ([path]) => {
+  const { auditFile } = await import('../../src/jobs/audit.js');
+  return { runSeconds: await bestOf3(() => { auditFile(path!); }) };
 };
 
 export async function runJob(name: string, args: string[]): Promise<void> {

@@ -1,0 +1,25 @@
+// --unproven: the same folded bytes as a proven run (proofs decide nothing when every fold is exact), no proof
+// or whole-model check in the report, and a text ledger that says the result still needs comparing.
+import { describe, expect, it } from 'vitest';
+import { mkdtempSync, readFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { pleat, ROOT } from '../helpers/cli.js';
+
+describe('pleat fold --unproven', () => {
+  it('writes what a proven fold writes and reports that nothing was checked', () => {
+    const dir = mkdtempSync(join(tmpdir(), 'pleat-unproven-'));
+    const model = join(ROOT, 'models', 'tray-sorter.onnx');
+    const proven = pleat(['fold', model, '-o', join(dir, 'proven.onnx'), '--json']);
+    const fast = pleat(['fold', model, '-o', join(dir, 'fast.onnx'), '--json', '--unproven']);
+    expect(proven.code).toBe(0);
+    expect(fast.code).toBe(0);
+    expect(readFileSync(join(dir, 'fast.onnx')).equals(readFileSync(join(dir, 'proven.onnx')))).toBe(true);
+    const p = JSON.parse(proven.stdout), f = JSON.parse(fast.stdout);
+    expect(f.normalizations).toEqual(p.normalizations);
+    expect(p.check).not.toBeNull();
+    expect(f.check).toBeNull();
+    const text = pleat(['fold', model, '-o', join(dir, 'fast2.onnx'), '--unproven']);
+    expect(text.stdout).toMatch(/whole-model check: not run: folds unproven; run pleat compare/);
+  });
+});
