@@ -220,6 +220,12 @@ export function attrTensor(node: Node, name: string): Tensor | undefined {
 }
 
 /** Every subgraph a node carries (If branches, Loop/Scan bodies, any GRAPH/GRAPHS attribute). */
+/** Whether a node carries subgraphs (without building a list for the many nodes that carry none). */
+export function hasSubgraphs(node: Node): boolean {
+  for (const a of node.attributes) if (a.value.type === 'GRAPH' || a.value.type === 'GRAPHS') return true;
+  return false;
+}
+
 export function subgraphsOf(node: Node): Graph[] {
   const out: Graph[] = [];
   for (const a of node.attributes) {

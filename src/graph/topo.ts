@@ -1,7 +1,7 @@
 // Topological order of a graph's nodes (Kahn's algorithm, stable: ties keep file order).
 import { PleatError } from '../errors.js';
 import type { Graph, Node } from './ir.js';
-import { subgraphsOf } from './ir.js';
+import { hasSubgraphs, subgraphsOf } from './ir.js';
 import { outerRefs } from './usedef.js';
 import { nameTable } from './names.js';
 
@@ -14,8 +14,7 @@ export function nodeNeeds(n: Node): string[] {
 
 /** Needs of a node without building a list for the many nodes that carry no subgraph. */
 function needsOf(n: Node): readonly string[] {
-  for (const a of n.attributes) if (a.value.type === 'GRAPH' || a.value.type === 'GRAPHS') return nodeNeeds(n);
-  return n.inputs;
+  return hasSubgraphs(n) ? nodeNeeds(n) : n.inputs;
 }
 
 export function topoOrder(g: Graph): Node[] {

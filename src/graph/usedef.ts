@@ -3,7 +3,7 @@
 // change what the subgraph sees.
 import { constantNodeTensor } from './constants.js';
 import type { Graph, Node, Tensor } from './ir.js';
-import { subgraphsOf } from './ir.js';
+import { hasSubgraphs, subgraphsOf } from './ir.js';
 import { nameTable } from './names.js';
 
 export interface UseDef {
@@ -34,12 +34,6 @@ export function outerRefs(g: Graph): Set<string> {
   return refs;
 }
 
-/** A node's subgraphs without building an array for the many nodes that carry none. */
-function hasSubgraph(n: Node): boolean {
-  for (const a of n.attributes) if (a.value.type === 'GRAPH' || a.value.type === 'GRAPHS') return true;
-  return false;
-}
-
 /** Names an owner node reads through its bodies, once per node (outerRefs walks the whole body). */
 function bodyReads(n: Node): string[] {
   const out = new Set<string>();
@@ -63,7 +57,7 @@ export function buildUseDef(graph: Graph): UseDef {
     const n = nodes[j]!;
     bound += n.inputs.length + n.outputs.length;
     reads += n.inputs.length;
-    if (hasSubgraph(n)) {
+    if (hasSubgraphs(n)) {
       const refs = bodyReads(n);
       bodies.set(j, refs);
       bound += refs.length;

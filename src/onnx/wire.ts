@@ -140,13 +140,6 @@ export function fieldsOf(buf: Uint8Array, start: number, end: number): FieldCurs
   return new FieldCursor(buf, start, end);
 }
 
-/** Split buf[start, end) into fields (a list; decoding uses fieldsOf). Throws WireError on malformed bytes. */
-export function scanFields(buf: Uint8Array, start: number, end: number): WireField[] {
-  const out: WireField[] = [];
-  for (const c = fieldsOf(buf, start, end); c.next();) out.push({ no: c.no, wt: c.wt, start: c.start, end: c.end, vstart: c.vstart, vend: c.vend });
-  return out;
-}
-
 const utf8d = new TextDecoder('utf-8');
 export function readString(buf: Uint8Array, f: WireField): string {
   return utf8d.decode(buf.subarray(f.vstart, f.vend));

@@ -26,7 +26,7 @@ export function outputChannelScaling(name: string, op: LayerOp, channelMap: (v: 
       const v = weightView(t.dims);
       const map = channelMap(v, layer);
       const range = weightRangeCheck(ctx, t, map, a.scale);
-    if (isRefusal(range)) return range;
+      if (isRefusal(range)) return range;
       const bias = producerBias(layer.bias ? decodeValues(layer.bias.tensor) : undefined, a);
       if (!fitsStorage(maxAbs(bias), t.dataType)) return overflow('bias', t.dataType);
       return { rule, run, layer, affine: a, adds: 0, data: { map, guard: range.guard, bias } };
