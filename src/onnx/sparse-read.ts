@@ -7,7 +7,7 @@
 // through markLoaded (encodeStorage does); the writer streams pending ranges straight from the source file.
 import { closeSync, fstatSync, openSync, readSync } from 'node:fs';
 import { PleatError } from '../errors.js';
-import { WireError } from './wire.js';
+import { WireError, WT_LEN, fieldsOf } from './wire.js';
 
 /** Payloads at least this large are left unread until needed. */
 export const DEFER_MIN = 64 * 1024;
@@ -207,18 +207,6 @@ function readFully(fd: number, buf: Uint8Array, start: number, end: number, path
   }
 }
 
-function varintAt(buf: Uint8Array, pos: number, end: number): [number, number] {
-  let v = 0, mul = 1, b: number;
-  do {
-    if (pos >= end) throw new WireError('truncated varint');
-    b = buf[pos++]!;
-    v += (b & 0x7f) * mul;
-    mul *= 128;
-    if (mul > 2 ** 70) throw new WireError('varint too long');
-  } while (b & 0x80);
-  return [v, pos];
-}
-
 /**
  * Read a model file sparsely. Returns the buffer (same length as the file); structural bytes are filled,
  * large payloads are pending. Malformed structure is left for the decoder to report: the walk stops
@@ -245,34 +233,20 @@ export function readSparse(path: string, fd: number): Uint8Array {
 
   const walk = (kind: Kind, start: number, end: number): void => {
     if (end - start <= WHOLE_MAX) { load(start, end); return; }
-    let p = start;
-    while (p < end) {
-      load(p, Math.min(p + 20, end), READ_AHEAD);
-      let tag: number, q: number;
-      try {
-        [tag, q] = varintAt(view, p, end);
-        const no = Math.floor(tag / 8), wt = tag % 8;
-        if (wt === 2) {
-          let len: number;
-          [len, q] = varintAt(view, q, end);
-          const vend = q + len;
-          if (vend > end) throw new WireError('past end');
-          const what = SCHEMA[kind][no];
-          if (what === 'defer' && len >= DEFER_MIN) { load(p, q); defer(q, vend); }
-          else if (what && what !== 'defer') { load(p, q); walk(what, q, vend); }
-          else load(p, vend);
-          p = vend;
-        } else if (wt === 0) {
-          [, q] = varintAt(view, q, end);
-          p = q;
-        } else if (wt === 1) p = q + 8;
-        else if (wt === 5) p = q + 4;
-        else throw new WireError('wire type');
-      } catch (e) {
-        if (!(e instanceof WireError)) throw e;
-        load(p, end); // let the decoder find and report the problem
-        return;
+    const f = fieldsOf(view, start, end);
+    try {
+      for (;;) {
+        load(f.at, Math.min(f.at + 20, end), READ_AHEAD); // a field header fits in 20 bytes
+        if (!f.next()) return;
+        if (f.wt !== WT_LEN) continue;
+        const what = SCHEMA[kind][f.no];
+        if (what === 'defer' && f.vend - f.vstart >= DEFER_MIN) { load(f.start, f.vstart); defer(f.vstart, f.vend); }
+        else if (what && what !== 'defer') { load(f.start, f.vstart); walk(what, f.vstart, f.vend); }
+        else load(f.start, f.vend);
       }
+    } catch (e) {
+      if (!(e instanceof WireError)) throw e;
+      load(f.at, end); // let the decoder find and report the problem
     }
   };
   walk('model', 0, size);

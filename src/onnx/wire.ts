@@ -97,6 +97,9 @@ export class FieldCursor implements WireField {
     this.pos = start;
   }
 
+  /** Where the next field starts (after a throwing next(), the start of the field that failed). */
+  get at(): number { return this.pos; }
+
   next(): boolean {
     const buf = this.buf, end = this.limit;
     let pos = this.pos;
