@@ -39,7 +39,7 @@ export const convConsumer: FoldRule<Data> = {
     scaleConstant(ctx, edit, layer.node, 1, layer.weight, data.map, m.affine.scale);
     if (layer.bias) replaceConstant(ctx, edit, layer.node, 2, layer.bias, data.bias, layer.bias.tensor.dims);
     else if (hasShift(m.affine)) addConstantInput(ctx, edit, layer.node, 2, `${layer.weight.name}.bias`, layer.weight.tensor.dataType, data.bias, [data.bias.length]);
-    bypassRun(edit, layer, run);
+    bypassRun(ctx, edit, layer, run);
     edit.regionOutputs = layer.node.outputs.filter((o) => o !== '');
   },
 };
