@@ -69,6 +69,7 @@ export const matmulConsumer: FoldRule<Data> = {
     if (data.form === 'bias-add') {
       const b = data.biasAdd!;
       replaceConstant(ctx, edit, b.node, b.index, b.ref, data.bias, b.ref.tensor.dims);
+      changeOf(edit, b.node); // (in the proof region even when only its constant changes)
       edit.regionOutputs = [b.node.outputs[0]!];
     } else if (data.form === 'gemm') {
       changeOf(edit, node).opType = 'Gemm';
