@@ -60,6 +60,7 @@ export function foldLoaded(model: Model, original: Model | undefined, label: str
   const { ledger } = foldModel(model, {
     keep: opts.keep,
     allowOverridable: opts.allowOverridable,
+    cloneShared: opts.cloneShared,
     lateRangeCheck,
     prove: opts.noProofs ? undefined : (c) => proveFold(c, { seed: opts.seed }).passed,
   });

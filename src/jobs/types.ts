@@ -6,7 +6,7 @@ import type { QuantRow } from '../fold/quant.js';
 
 export type { QuantRow };
 
-export const SCHEMA_VERSION = 1;
+export const SCHEMA_VERSION = 2;
 
 export interface OutputCheck {
   name: string;
@@ -63,9 +63,13 @@ export interface AuditReport {
   schemaVersion: number;
   command: 'audit';
   model: string;
+  /** Normalizations and other constant affine steps (see Finding.kind). */
   normalizations: Finding[];
+  /** Normalizations fold would fold, and those it keeps (affine steps are never kept). */
   foldable: number;
   kept: number;
+  /** Other constant affine steps fold would fold too (listed apart, as "also foldable"). */
+  alsoFoldable: number;
   failOn: 'kept' | null;
   /** True when --fail-on kept is set and a normalization is kept (exit 1). */
   failed: boolean;
@@ -73,6 +77,8 @@ export interface AuditReport {
 
 export interface FoldJobOptions extends InputOptions {
   keep?: string[];
+  /** Give a norm its own copy of a producer whose output has other readers (--clone-shared). */
+  cloneShared?: boolean;
   allowOverridable?: boolean;
   /** Store folded weights in half precision. */
   store?: 'float16';
@@ -87,6 +93,8 @@ export interface FoldJobOptions extends InputOptions {
 
 export interface AuditJobOptions {
   keep?: string[];
+  /** Judge as fold --clone-shared would. */
+  cloneShared?: boolean;
   allowOverridable?: boolean;
   failOn?: 'kept';
 }

@@ -19,10 +19,12 @@ describe('text', () => {
     const t = foldText(foldReport());
     const lines = t.split('\n');
     expect(lines[0]).toBe('fold models/tray-sorter.onnx -> out/tray-sorter.onnx');
-    expect(lines.filter((l) => /^\s+(folded|kept)\s/.test(l))).toHaveLength(3);
+    expect(lines.filter((l) => /^ {2}(folded|kept)\s/.test(l))).toHaveLength(3);
+    // other constant affine steps: their own section after the normalizations, not counted as folded norms
+    expect(t).toMatch(/also folded \(constant affine steps that are not normalizations\):\n\s+folded\s+act_half\s+Mul\s+into head_fc/);
     expect(t).toMatch(/folded\s+stem_bn\s+BatchNormalization\s+into stem_conv \(into-producer\)/);
     expect(t).toMatch(/kept\s+edge_bn\s+BatchNormalization\s+padded-consumer: remove the padding .* in main\/branch_if\.then_branch/);
-    expect(t).toMatch(/2 folded, 1 kept; 4 nodes removed \(41 -> 37\); 200 B of weights saved/);
+    expect(t).toMatch(/2 folded, 1 kept \(and 1 affine step also folded\); 4 nodes removed \(41 -> 37\); 200 B of weights saved/);
     expect(t).toMatch(/whole-model check: passed \(2 probes, seed 0\)/);
     expect(t).toMatch(/tray_class\s+pass\s+maxAbs 1\.20e-7/);
     expect(t).toMatch(/stem_conv\s+16 channels\s+spread 2\.4 -> 51\.2\s+flagged/);
@@ -94,11 +96,14 @@ describe('JSON against the shipped schema (ajv)', () => {
   });
 
   it('the schema rejects what it should (it can fail)', () => {
-    expect(validate({ ...foldReport(), schemaVersion: 2 })).toBe(false);
+    expect(validate({ ...foldReport(), schemaVersion: 1 })).toBe(false);
     expect(validate({ ...auditReport(), surprise: 1 })).toBe(false);
     const bad = foldReport();
-    (bad.normalizations[2] as { reason: string }).reason = 'no-such-reason';
+    (bad.normalizations[3] as { reason: string }).reason = 'no-such-reason';
     expect(validate(JSON.parse(toJsonText(bad)))).toBe(false);
+    const keptStep = foldReport();
+    Object.assign(keptStep.normalizations[2]!, { status: 'kept', reason: 'shared-output', target: null, direction: null });
+    expect(validate(JSON.parse(toJsonText(keptStep)))).toBe(false); // an affine step is never kept
     const folded = foldReport();
     (folded.normalizations[0] as { target: string | null }).target = null;
     expect(validate(JSON.parse(toJsonText(folded)))).toBe(false);
@@ -181,6 +186,7 @@ describe('Markdown', () => {
     const rows = lines.filter((l) => l.startsWith('| `'));
     expect(rows).toHaveLength(3);
     expect(rows[0]).toMatch(/^\| `edge_bn`/);
+    expect(md).toMatch(/^Also folded \(constant affine steps that are not normalizations\): `act_half` \(Mul\) into `head_fc`\.$/m);
     expect(md).toMatch(/`stem_conv` spread 2\.4 → 51\.2/);
     expect(md).toMatch(/^> Caution:/m);
   });
