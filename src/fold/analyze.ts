@@ -245,7 +245,7 @@ function writtenOutSummary(ctx: FoldContext, scope: Scope, cache: StepCache, n: 
 
 export function findingsOf(ctx: FoldContext, model: Model): Finding[] {
   const out: Finding[] = [];
-  for (const scope of buildScopes(model, ctx.labels)) {
+  for (const scope of buildScopes(model, ctx.labels, ctx.options.inputShapes)) {
     for (const f of assessScope(ctx, scope, new Map())) out.push({ node: label(scope, f.node), op: f.op, kind: f.kind, ...f.summary, graph: scope.path });
   }
   return out;

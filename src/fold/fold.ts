@@ -58,7 +58,7 @@ function cloneForRun(ctx: FoldContext, edit: Edit, m: RuleMatch): RuleMatch[] {
 function sweep(ctx: FoldContext, model: Model, folded: LedgerEntry[], released: Set<string>, gone: Set<string>): boolean {
   let changed = false;
   const prove = ctx.options.prove;
-  for (const scope of buildScopes(model, ctx.labels)) {
+  for (const scope of buildScopes(model, ctx.labels, ctx.options.inputShapes)) {
     const cache = new Map();
     const dirty = new Set<Node>();
     for (const node of [...scope.graph.nodes]) {
@@ -125,7 +125,7 @@ export function foldModel(model: Model, options: FoldOptions = {}): { model: Mod
   const bytesBefore = weightBytes(model);
   // Ledger order: where each node stood in the original model.
   const order = new Map<string, number>();
-  for (const s of buildScopes(model, ctx.labels)) for (const n of s.graph.nodes) order.set(`${s.path}\u0000${labelOf(s, n)}`, order.size);
+  for (const s of buildScopes(model, ctx.labels, ctx.options.inputShapes)) for (const n of s.graph.nodes) order.set(`${s.path}\u0000${labelOf(s, n)}`, order.size);
   const folded: LedgerEntry[] = [];
   const released = new Set<string>();
   const gone = new Set<string>();

@@ -61,6 +61,7 @@ export function foldLoaded(model: Model, original: Model | undefined, label: str
     keep: opts.keep,
     allowOverridable: opts.allowOverridable,
     cloneShared: opts.cloneShared,
+    inputShapes: asMap(opts.shapes),
     lateRangeCheck,
     prove: opts.noProofs ? undefined : (c) => proveFold(c, { seed: opts.seed }).passed,
   });

@@ -240,3 +240,28 @@ describe('--clone-shared', () => {
     expect(p.cases[0]!.before.outputs).toHaveLength(2);
   });
 });
+
+describe('ranks from shapes propagated through the graph when value_info is missing', () => {
+  // x [2, 3, 4] -> Reshape to [6, 4] -> BatchNormalization (channel axis 1 = the last) -> MatMul [4, 5]: the rank
+  // at the norm is declared nowhere, but follows from the input's declared shape through the Reshape.
+  const build = (shapeFromInput: boolean) => {
+    const g = new GraphBuilder();
+    g.input('x', [2, 3, 4]).output('y', [6, 5]);
+    if (shapeFromInput) g.input('target', [2], 7);
+    const rs = g.node('Reshape', ['x', shapeFromInput ? 'target' : g.init('shape', [2], [-1, 4], 7)], {}, { name: 'rs' });
+    g.node('MatMul', [bn(g, rs, 4, 'bn', 1), w(g, 'mw', [4, 5], 2)], {}, { name: 'fc', outputs: ['y'] });
+    return g;
+  };
+
+  it('folds when the rank can be inferred', async () => {
+    const res = await foldAndCheck(build(false), feedsFor({ x: [2, 3, 4] }), { prove: recordingProver().prove });
+    expect(summary(res.ledger)).toEqual(['bn:folded:into-consumer:fc']);
+  });
+
+  it('still refuses, saying what to give, when the shape is computed at run time', async () => {
+    const feeds = { ...feedsFor({ x: [2, 3, 4] }), target: { dims: [2], data: BigInt64Array.from([6n, 4n]) } };
+    const res = await foldAndCheck(build(true), feeds);
+    expect(summary(res.ledger)).toEqual(['bn:kept:axis-mismatch']);
+    expect(res.ledger.normalizations[0]!.hint).toMatch(/rank at 'bn' is not known; give the input shapes \(--shape\) or add value_info/);
+  });
+});
