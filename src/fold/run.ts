@@ -81,14 +81,14 @@ export function resolveRun(run: Run, rank: number | undefined, axisFromEnd: numb
     let a: Affine | undefined;
     const who = `'${s.node.name || s.node.opType}'`;
     if (s.kind === 'batch-norm') {
-      if (rank === undefined) return refuse('axis-mismatch', `the rank at ${who} is not known; give the input shapes (--shape) or add value_info so its channel axis can be checked`);
+      if (rank === undefined) return refuse('axis-mismatch', `the rank at ${who} is not declared and cannot be worked out from the model's input shapes; add value_info for its input (or give --shape when a model input's shape is not declared) so its axis can be checked`);
       if (rank - 2 !== axisFromEnd) return refuse('axis-mismatch', `${who} normalizes axis 1 but the layer's channel axis is ${rank - 1 - axisFromEnd}`);
       if (s.bn!.scale.length !== channels) return refuse('axis-mismatch', `${who} has ${s.bn!.scale.length} channels, the layer ${channels}`);
       a = s.bn!;
     } else if (s.kind === 'layer-norm') {
       const axis = s.lnAxis!;
       if (axis !== -1) {
-        if (rank === undefined) return refuse('axis-mismatch', `the rank at ${who} is not known; give the input shapes (--shape) or add value_info so its axis can be checked`);
+        if (rank === undefined) return refuse('axis-mismatch', `the rank at ${who} is not declared and cannot be worked out from the model's input shapes; add value_info for its input (or give --shape when a model input's shape is not declared) so its axis can be checked`);
         if (axis !== rank - 1) return refuse('axis-mismatch', `${who} normalizes from axis ${axis}, but its Scale and B must sit on the last axis, the one the layer reads as its features`);
       }
       if (axisFromEnd !== 0) return refuse('axis-mismatch', `${who} scales the last axis but the layer's channel axis is ${rank === undefined ? `${axisFromEnd} from the end` : rank - 1 - axisFromEnd}`);

@@ -262,6 +262,6 @@ describe('ranks from shapes propagated through the graph when value_info is miss
     const feeds = { ...feedsFor({ x: [2, 3, 4] }), target: { dims: [2], data: BigInt64Array.from([6n, 4n]) } };
     const res = await foldAndCheck(build(true), feeds);
     expect(summary(res.ledger)).toEqual(['bn:kept:axis-mismatch']);
-    expect(res.ledger.normalizations[0]!.hint).toMatch(/rank at 'bn' is not known; give the input shapes \(--shape\) or add value_info/);
+    expect(res.ledger.normalizations[0]!.hint).toMatch(/rank at 'bn' is not declared and cannot be worked out from the model's input shapes; add value_info/);
   });
 });
