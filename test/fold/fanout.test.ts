@@ -50,6 +50,32 @@ describe('fan-out into several linear readers', () => {
     });
   }
 
+  for (const seed of [1, 2, 3]) {
+    it(`seeded: a norm read by 2-4 unpadded convs of random kernel, group and bias (seed ${seed})`, async () => {
+      const r = rng(seed);
+      const pick = (lo: number, hi: number) => lo + Math.floor(r() * (hi - lo + 1));
+      const c = 2 * pick(1, 3), n = pick(2, 4);
+      const g = new GraphBuilder();
+      g.input('x', [1, c, 6, 6]);
+      // a per-channel Mul then Add by constant vectors (a run of two steps), after a non-linear op
+      const act = g.node('Relu', ['x'], {}, { name: 'relu' });
+      const m = g.node('Mul', [act, g.init('s', [c, 1, 1], randn(r, c, 0.5, 1))], {}, { name: 'scale' });
+      const b = g.node('Add', [m, g.init('t', [c, 1, 1], randn(r, c, 0.5))], {}, { name: 'shift' });
+      const names: string[] = [];
+      for (let i = 0; i < n; i++) {
+        const k = pick(1, 3), group = pick(0, 1) ? 2 : 1, cout = 2 * pick(1, 3);
+        const ins = [b, w(g, `w${i}`, [cout, c / group, k, k], 50 + 10 * seed + i)];
+        if (pick(0, 1)) ins.push(w(g, `b${i}`, [cout], 90 + 10 * seed + i));
+        g.node('Conv', ins, { group }, { name: `c${i}`, outputs: [`y${i}`] });
+        g.output(`y${i}`, [1, cout, 7 - k, 7 - k]);
+        names.push(`c${i}`);
+      }
+      const res = await foldAndCheck(g, feedsFor({ x: [1, c, 6, 6] }, seed), { prove: recordingProver().prove });
+      expect(summary(res.ledger)).toEqual(['scale', 'shift'].map((s) => `${s}:folded:into-consumer:${names.join(', ')}`));
+      expect(parseModel(res.after, dir).graph.nodes.map((x) => x.opType)).toEqual(['Relu', ...names.map(() => 'Conv')]);
+    });
+  }
+
   it('a padded reader keeps the norm, and the reason names it', async () => {
     const g = new GraphBuilder();
     g.input('x', [1, 4, 5, 5]).output('y0', [1, 3, 5, 5]).output('y1', [1, 3, 5, 5]);
