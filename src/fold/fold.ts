@@ -101,7 +101,8 @@ function sweep(ctx: FoldContext, model: Model, folded: LedgerEntry[], released: 
       // A normalization written out as primitive ops keeps its statistics; its tail moved, so it is listed as folded.
       const chain = scope.ud.producer(run.top);
       const written = chain ? writtenOutNorm(scope, chain) : undefined;
-      if (chain && written && run.steps[0]!.kind === 'elementwise' && entryKind(scope, run.steps[0]!.node) === 'normalization') {
+      const solelyTail = scope.ud.consumers(run.top).length === 1 && !scope.ud.isGraphOutput(run.top); // (as analyze.ts judges it)
+      if (chain && written && solelyTail && run.steps[0]!.kind === 'elementwise' && entryKind(scope, run.steps[0]!.node) === 'normalization') {
         folded.push(entry(chain, written, 'normalization', writtenOutHint(targets)));
       }
       run.steps.forEach((x, i) => {
