@@ -48,7 +48,7 @@ function unsuitableReader(ctx: FoldContext, run: Run, readers: Node[]): Refusal 
       return { node: r, ...refuse('shared-output', `'${name}' (${r.opType}) also reads its output and is no linear layer that could take the fold; it needs the values as they are, so the norm stays for it`) };
     }
     if (r.inputs[0] !== run.bottom || r.inputs.indexOf(run.bottom, 1) > 0) {
-      return { node: r, ...refuse('no-linear-neighbour', `'${name}' reads its output as a weight, not as its data input`) };
+      return { node: r, ...refuse('no-linear-neighbour', `'${name}' reads its output as a weight, not as its data input, so it cannot take the fold`) };
     }
   }
   return undefined;

@@ -90,7 +90,7 @@ function readLayerNormTail(ctx: FoldContext, scope: Scope, n: Node): AffineStep 
   if (user) return user;
   if (overridable(ctx, refs)) {
     const r = refs.find((x) => x.overridable)!;
-    return refuse('overridable-weights', `'${r.name}' is also a graph input; remove it from the inputs or allow overridable weights`);
+    return refuse('overridable-weights', `'${r.name}' is also a graph input, so callers may replace it; remove it from the graph inputs in the export, or pass --allow-overridable if callers never do`);
   }
   const y = n.outputs[0]!;
   return { node: n, kind: 'layer-norm', data: y, output: y, bn: { scale, shift }, lnAxis: attrInt(n, 'axis', -1), consts: refs };
@@ -130,7 +130,7 @@ function readBatchNorm(ctx: FoldContext, scope: Scope, n: Node): AffineStep | Re
   }
   if (overridable(ctx, refs)) {
     const r = refs.find((x) => x.overridable)!;
-    return refuse('overridable-weights', `'${r.name}' is also a graph input; remove it from the inputs or allow overridable weights`);
+    return refuse('overridable-weights', `'${r.name}' is also a graph input, so callers may replace it; remove it from the graph inputs in the export, or pass --allow-overridable if callers never do`);
   }
   const bad = refs.find((r) => !isFloatType(r.tensor.dataType));
   if (bad) return refuse('dtype-unsupported', `'${bad.name}' is ${dataTypeName(bad.tensor.dataType)}; only float parameters fold exactly`);
@@ -159,7 +159,7 @@ function readElementwise(ctx: FoldContext, scope: Scope, n: Node): AffineStep | 
   if (channelAxisFromEnd(ref.tensor.dims) === undefined) return undefined; // varies along several axes
   const user = userRefusal(ctx, n);
   if (user) return user;
-  if (overridable(ctx, [ref])) return refuse('overridable-weights', `'${ref.name}' is also a graph input; remove it from the inputs or allow overridable weights`);
+  if (overridable(ctx, [ref])) return refuse('overridable-weights', `'${ref.name}' is also a graph input, so callers may replace it; remove it from the graph inputs in the export, or pass --allow-overridable if callers never do`);
   return {
     node: n, kind: 'elementwise', data: constOnLeft ? b : a, output: n.outputs[0]!, op, constOnLeft,
     constDims: [...ref.tensor.dims], constValues: tensorToFloat64(ref.tensor), consts: [ref],

@@ -265,6 +265,19 @@ describe('--clone-shared', () => {
     // the proof checks the norm path and the original's output the residual reads
     expect(p.cases[0]!.before.outputs).toHaveLength(2);
   });
+
+  it('a producer whose output is also a model output: the copy feeds the norm path, the model output stays', async () => {
+    const g = new GraphBuilder();
+    g.input('x', [1, 3, 4, 4]).output('features', [1, 4, 4, 4]).output('y', [1, 4, 4, 4]);
+    g.node('Conv', ['x', w(g, 'cw', [4, 3, 1, 1], 5)], {}, { name: 'conv', outputs: ['features'] });
+    g.node('Relu', [bn(g, 'features', 4, 'bn', 6)], {}, { name: 'relu', outputs: ['y'] });
+    const plain = await foldAndCheck(g, feedsFor({ x: [1, 3, 4, 4] }));
+    expect(summary(plain.ledger)).toEqual(['bn:kept:graph-output']);
+    expect(plain.ledger.normalizations[0]!.hint).toMatch(/--clone-shared/);
+    const res = await foldAndCheck(g, feedsFor({ x: [1, 3, 4, 4] }), { cloneShared: true, prove: recordingProver().prove });
+    expect(summary(res.ledger)).toEqual(['bn:folded:into-producer:conv']);
+    expect(parseModel(res.after, dir).graph.nodes.map((n) => `${n.name}:${n.outputs[0]}`)).toEqual(['conv:features', 'conv.clone:bn_out', 'relu:y']);
+  });
 });
 
 describe('ranks from shapes propagated through the graph when value_info is missing', () => {

@@ -46,7 +46,8 @@ export function producerOutputFree(ctx: FoldContext, layer: Layer, run: Run): Re
   const norm = run.steps[0]!.node;
   const normName = norm.name || norm.opType;
   if (ud.isGraphOutput(out)) {
-    return refuse('graph-output', `the output of '${layer.label}' is also a model output, and a fold would change it; export the model so that the output is taken after '${normName}'`);
+    if (ctx.options.cloneShared) return undefined;
+    return refuse('graph-output', `the output of '${layer.label}' is also a model output, and a fold would change it; export the model so that the output is taken after '${normName}', or pass --clone-shared to give '${normName}' its own copy of '${layer.label}'`);
   }
   const readers = ud.consumers(out);
   if (readers.length === 1 && readers[0] === norm) return undefined;
@@ -57,10 +58,11 @@ export function producerOutputFree(ctx: FoldContext, layer: Layer, run: Run): Re
     `pass --clone-shared to give '${normName}' its own copy of '${layer.label}', or export the model with only the norm reading it`);
 }
 
-/** Into the producer: the layer's output has readers besides the run (the fold needs a --clone-shared copy). */
+/** Into the producer: the layer's output has readers besides the run, or is a model output (the fold needs a --clone-shared copy). */
 export function producerShared(layer: Layer, run: Run): boolean {
-  const readers = run.scope.ud.consumers(layer.node.outputs[0]!);
-  return readers.length !== 1 || readers[0] !== run.steps[0]!.node;
+  const out = layer.node.outputs[0]!;
+  const readers = run.scope.ud.consumers(out);
+  return readers.length !== 1 || readers[0] !== run.steps[0]!.node || run.scope.ud.isGraphOutput(out);
 }
 
 /** A folded value fits the storage type when it rounds to a finite number there (float16 max 65504). */
