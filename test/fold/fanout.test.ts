@@ -219,6 +219,33 @@ describe('pre-norm transformer blocks: the scale and shift move into q/k/v and t
     expect(parseModel(res.after, dir).graph.nodes.map((n) => n.name)).not.toContain('ln1.scale');
   });
 
+  for (const seed of [1, 2, 3]) {
+    it(`seeded: a LayerNormalization on [M, K] read by 2-3 MatMul/Gemm layers of random form (seed ${seed})`, async () => {
+      const r = rng(seed);
+      const pick = (lo: number, hi: number) => lo + Math.floor(r() * (hi - lo + 1));
+      const m = pick(2, 4), k = pick(3, 6), n = pick(2, 3);
+      const g = new GraphBuilder();
+      g.input('x', [m, k]);
+      const ln = g.node('LayerNormalization', ['x', g.init('s', [k], randn(r, k, 0.5, 1)), g.init('b', [k], randn(r, k, 0.5))], { axis: pick(0, 1) ? -1 : 1, epsilon: f(1e-5) }, { name: 'ln' });
+      const names: string[] = [];
+      for (let i = 0; i < n; i++) {
+        const out = pick(2, 5);
+        if (pick(0, 1)) {
+          g.node('MatMul', [ln, w(g, `w${i}`, [k, out], 200 + 10 * seed + i)], {}, { name: `r${i}`, outputs: [`y${i}`] });
+        } else {
+          const tb = pick(0, 1);
+          const ins = [ln, w(g, `w${i}`, tb ? [out, k] : [k, out], 200 + 10 * seed + i)];
+          if (pick(0, 1)) ins.push(w(g, `c${i}`, [out], 300 + 10 * seed + i));
+          g.node('Gemm', ins, { transB: tb, alpha: f(0.5 + r()) }, { name: `r${i}`, outputs: [`y${i}`] });
+        }
+        g.output(`y${i}`, [m, out]);
+        names.push(`r${i}`);
+      }
+      const res = await foldAndCheck(g, feedsFor({ x: [m, k] }, seed, 3), { prove: recordingProver().prove });
+      expect(summary(res.ledger)).toEqual([`ln:folded:into-consumer:${names.join(', ')}`]);
+    });
+  }
+
   it('a LayerNormalization read on another axis than the one it scales is refused with axis-mismatch', async () => {
     const g = new GraphBuilder();
     g.input('x', [1, 4, 3, 4]).output('y', [1, 2, 3, 4]);
