@@ -54,7 +54,14 @@ function probeShapes(g: Graph, value: string, declaredRank: number | undefined):
     const at = n.inputs.indexOf(value);
     if (at >= 0) { add(n, at); break; }
   }
-  return shapes.filter((s, i) => shapes.findIndex((t) => t.join() === s.join()) === i);
+  // Several layers reading the value (a fold into every reader): the smallest shape all of them accept, tried first.
+  const merged: number[][] = [];
+  for (const s of shapes) {
+    const same = shapes.filter((t) => t.length === s.length);
+    if (same.length > 1) merged.push(s.map((_, i) => Math.max(...same.map((t) => t[i]!))));
+  }
+  const all = [...merged, ...shapes];
+  return all.filter((s, i) => all.findIndex((t) => t.join() === s.join()) === i);
 }
 
 const LAYERS = new Set(['Conv', 'ConvTranspose', 'Gemm', 'MatMul']);

@@ -63,7 +63,7 @@ describe('fan-out into several linear readers', () => {
       const b = g.node('Add', [m, g.init('t', [c, 1, 1], randn(r, c, 0.5))], {}, { name: 'shift' });
       const names: string[] = [];
       for (let i = 0; i < n; i++) {
-        const k = pick(1, 3), group = pick(0, 1) ? 2 : 1, cout = 2 * pick(1, 3);
+        const k = pick(1, 5), group = pick(0, 1) ? 2 : 1, cout = 2 * pick(1, 3);
         const ins = [b, w(g, `w${i}`, [cout, c / group, k, k], 50 + 10 * seed + i)];
         if (pick(0, 1)) ins.push(w(g, `b${i}`, [cout], 90 + 10 * seed + i));
         g.node('Conv', ins, { group }, { name: `c${i}`, outputs: [`y${i}`] });
@@ -75,6 +75,17 @@ describe('fan-out into several linear readers', () => {
       expect(parseModel(res.after, dir).graph.nodes.map((x) => x.opType)).toEqual(['Relu', ...names.map(() => 'Conv')]);
     });
   }
+
+  it('the proof finds one probe shape every reader accepts (a 1x1 reader first, a 5x5 one after)', async () => {
+    const g = new GraphBuilder();
+    g.input('x', [1, 4, 7, 7]).output('y0', [1, 2, 7, 7]).output('y1', [1, 2, 3, 3]);
+    const b = bn(g, g.node('Relu', ['x'], {}, { name: 'relu' }), 4, 'bn', 12);
+    g.node('Conv', [b, w(g, 'w0', [2, 4, 1, 1], 13)], {}, { name: 'small', outputs: ['y0'] });
+    g.node('Conv', [b, w(g, 'w1', [2, 4, 5, 5], 14)], {}, { name: 'large', outputs: ['y1'] });
+    const p = recordingProver();
+    const res = await foldAndCheck(g, feedsFor({ x: [1, 4, 7, 7] }), { prove: p.prove });
+    expect(summary(res.ledger)).toEqual(['bn:folded:into-consumer:small, large']);
+  });
 
   it('a padded reader keeps the norm, and the reason names it', async () => {
     const g = new GraphBuilder();
