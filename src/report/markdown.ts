@@ -34,6 +34,12 @@ function table(all: readonly Row[]): string[] {
   return out;
 }
 
+/** The weight bytes --clone-shared copies added, as a clause ('' when nothing was cloned). */
+function cloneNote(entries: ReadonlyArray<{ cloneBytes: number }>): string {
+  const cloned = entries.filter((e) => e.cloneBytes > 0);
+  return cloned.length ? ` (${cloned.length} layer(s) cloned for --clone-shared: +${bytesText(cloned.reduce((a, e) => a + e.cloneBytes, 0))})` : '';
+}
+
 const caution = () => ['', `> ${CAUTION.join(' ')}`];
 
 export function foldMarkdown(r: FoldReport): string {
@@ -44,7 +50,7 @@ export function foldMarkdown(r: FoldReport): string {
   const check = r.check === null ? 'not run' : r.check.skipped !== null ? `skipped (${r.check.skipped})`
     : `${r.check.passed ? 'passed' : '**failed**'} on ${r.check.outputs.length} output(s), worst maxAbs ${numText(Math.max(0, ...r.check.outputs.map((o) => o.maxAbs)))}`;
   out.push(`**${folded} folded, ${norms.length - folded} kept**; nodes ${r.nodesBefore} → ${r.nodesAfter}; ` +
-    `weights ${bytesText(r.bytesBefore)} → ${bytesText(r.bytesAfter)}; whole-model check ${check}.`, '');
+    `weights ${bytesText(r.bytesBefore)} → ${bytesText(r.bytesAfter)}${cloneNote(r.normalizations)}; whole-model check ${check}.`, '');
   out.push(...table(r.normalizations), ...alsoLine(r.normalizations, 'folded'));
   const flagged = r.quantization.filter((q) => q.flagged);
   if (flagged.length) {

@@ -187,6 +187,11 @@ describe('Markdown', () => {
     const rows = lines.filter((l) => l.startsWith('| `'));
     expect(rows).toHaveLength(3);
     expect(rows[0]).toMatch(/^\| `edge_bn`/);
+    expect(md).not.toMatch(/cloned/);
+    const cloned = foldReport();
+    cloned.normalizations[0]!.cloneBytes = 2048;
+    expect(renderJobs('fold', [{ model: 'm', report: cloned, exitCode: 0 }], 'markdown')).toMatch(/weights 10\.0 KiB → 9\.8\d? KiB \(1 layer\(s\) cloned for --clone-shared: \+2\.00 KiB\)/);
+    expect(foldText(cloned)).toMatch(/1 layer cloned for --clone-shared \(\+2\.00 KiB of weights\)/);
     expect(md).toMatch(/^Also folded \(constant affine steps that are not normalizations\): `act_half` \(Mul\) into `head_fc`\.$/m);
     expect(md).toMatch(/`stem_conv` spread 2\.4 → 51\.2/);
     expect(md).toMatch(/^> Caution:/m);
