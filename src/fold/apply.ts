@@ -5,7 +5,7 @@ import { touch } from '../graph/edit.js';
 import { decodeValues, scaleTensor, storeValues, type ScaleGuard } from './values.js';
 import { scaleWeights, type ChannelMap } from './weights.js';
 import { makeTensor } from '../graph/tensor.js';
-import { constantOf, soleReader, valueInfoOf, type ConstRef, type Scope } from './scope.js';
+import { constantOf, inferredShape, soleReader, valueInfoOf, type ConstRef, type Scope } from './scope.js';
 import { freshName, type FoldContext } from './context.js';
 
 export interface NodeChange {
@@ -198,7 +198,10 @@ export function regionGraph(scope: Scope, nodes: Node[], outputs: string[], extr
         continue;
       }
       const vi = valueInfoOf(scope, v);
-      inputs.push(vi ? { ...vi, shape: vi.shape ? [...vi.shape] : undefined, origin: undefined } : { name: v, docString: '', extra: [] });
+      // Not declared: the shape propagated from the model's inputs, so the proof probes the rank the fold assumed.
+      const inferred = vi?.shape ? undefined : inferredShape(scope, v);
+      const shape = vi?.shape ? [...vi.shape] : inferred?.map((d) => (d >= 0 ? d : null));
+      inputs.push(vi ? { ...vi, shape, origin: undefined } : { name: v, shape, docString: '', extra: [] });
     }
   }
   const outs: ValueInfo[] = outputs.map((o) => {
