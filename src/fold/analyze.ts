@@ -187,7 +187,8 @@ const keptSummary = (reason: ReasonCode, hint: string): Summary => ({ status: 'k
  */
 function layerNormKept(s: Summary): Summary {
   if (s.status !== 'kept' || (s.reason !== 'no-linear-neighbour' && s.reason !== 'nonlinear-between')) return s;
-  return { ...keptSummary('runtime-statistics', `statistics come from each input and always stay; its learned scale and shift cannot move: ${s.hint}`) };
+  const why = s.reason === 'nonlinear-between' ? s.hint : 'no Conv, Gemm or MatMul with constant weights reads its output';
+  return keptSummary('runtime-statistics', `statistics come from each input and always stay; its learned scale and shift have nowhere to move: ${why}`);
 }
 
 /** Every normalization of one graph with its verdict, in node order. */
