@@ -5,10 +5,10 @@
 // scale (the float32 gate), and the ONNX reference checker passes on every written model. Each fold is also proven
 // by pleat's own per-fold proof (src/verify/prove.ts), whose region must hold every reader.
 import { describe, expect, it } from 'vitest';
-import { GraphBuilder, f, randn, rng } from '../helpers/build.js';
+import { GraphBuilder, f, modelBytes, randn, rng } from '../helpers/build.js';
 import { parseModel } from '../../src/onnx/read.js';
 import { tensorToFloat64 } from '../../src/graph/tensor.js';
-import type { ProofCase } from '../../src/fold/index.js';
+import { analyze, type ProofCase } from '../../src/fold/index.js';
 import { proveFold } from '../../src/verify/prove.js';
 import { bnParams, dir, feedsFor, foldAndCheck, summary } from './harness.js';
 
@@ -256,6 +256,19 @@ describe('pre-norm transformer blocks: the scale and shift move into q/k/v and t
       expect(summary(res.ledger)).toEqual([`ln:folded:into-consumer:${names.join(', ')}`]);
     });
   }
+
+  it('a LayerNormalization with no linear reader, or with a neutral tail, stays as runtime-statistics with a reason', () => {
+    const g = new GraphBuilder();
+    g.input('x', [2, 4]).output('y1', [2, 4]).output('y2', [2, 4]);
+    const ln = g.node('LayerNormalization', ['x', w(g, 's', [4], 1), w(g, 'b', [4], 2)], { axis: -1 }, { name: 'ln' });
+    g.node('Softmax', [ln], { axis: -1 }, { name: 'sm', outputs: ['y1'] });
+    const ln2 = g.node('LayerNormalization', ['x', g.init('ones', [4], [1, 1, 1, 1])], { axis: -1 }, { name: 'ln_unit' });
+    g.node('MatMul', [ln2, w(g, 'mw', [4, 4], 3)], {}, { name: 'proj', outputs: ['y2'] });
+    const found = analyze(parseModel(modelBytes(g), dir));
+    expect(found.map((x) => `${x.node}:${x.status}:${x.reason}`)).toEqual(['ln:kept:runtime-statistics', 'ln_unit:kept:runtime-statistics']);
+    expect(found[0]!.hint).toMatch(/scale and shift have nowhere to move: no Conv, Gemm or MatMul with constant weights reads its output/);
+    expect(found[1]!.hint).toMatch(/Scale is all ones and it has no shift, so nothing is left to move/);
+  });
 
   it('a LayerNormalization read on another axis than the one it scales is refused with axis-mismatch', async () => {
     const g = new GraphBuilder();
