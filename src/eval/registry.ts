@@ -31,6 +31,13 @@ import * as pool from './kernels/pool.js';
 import { PadV1, PadV11 } from './kernels/pad.js';
 import * as resize from './kernels/resize.js';
 import { If } from './kernels/if.js';
+import { QuantizeLinear } from './kernels/quantizelinear.js';
+import { DequantizeLinear } from './kernels/dequantizelinear.js';
+import { DynamicQuantizeLinear } from './kernels/dynamicquantizelinear.js';
+import { ConvInteger } from './kernels/convinteger.js';
+import { MatMulInteger } from './kernels/matmulinteger.js';
+import { QLinearConv } from './kernels/qlinearconv.js';
+import { QLinearMatMul } from './kernels/qlinearmatmul.js';
 
 const KERNELS: Kernel[] = [
   // (kernels are registered here, one line each)
@@ -147,6 +154,13 @@ const KERNELS: Kernel[] = [
   resize.Upsample7,
   resize.Upsample9,
   If,
+  QuantizeLinear,
+  DequantizeLinear,
+  DynamicQuantizeLinear,
+  ConvInteger,
+  MatMulInteger,
+  QLinearConv,
+  QLinearMatMul,
 ];
 
 const byKey = new Map<string, Kernel[]>();
