@@ -38,6 +38,18 @@ import { ConvInteger } from './kernels/convinteger.js';
 import { MatMulInteger } from './kernels/matmulinteger.js';
 import { QLinearConv } from './kernels/qlinearconv.js';
 import { QLinearMatMul } from './kernels/qlinearmatmul.js';
+import { TopK1, TopK10 } from './kernels/topk.js';
+import { GatherElements } from './kernels/gatherelements.js';
+import { GatherND } from './kernels/gathernd.js';
+import { ScatterElements, Scatter } from './kernels/scatterelements.js';
+import { ScatterND } from './kernels/scatternd.js';
+import { OneHot } from './kernels/onehot.js';
+import { Trilu } from './kernels/trilu.js';
+import { NonZero } from './kernels/nonzero.js';
+import { Compress } from './kernels/compress.js';
+import { Unique } from './kernels/unique.js';
+import { EyeLike } from './kernels/eyelike.js';
+import { DepthToSpace, SpaceToDepth } from './kernels/depthtospace.js';
 
 const KERNELS: Kernel[] = [
   // (kernels are registered here, one line each)
@@ -161,6 +173,21 @@ const KERNELS: Kernel[] = [
   MatMulInteger,
   QLinearConv,
   QLinearMatMul,
+  TopK1,
+  TopK10,
+  GatherElements,
+  GatherND,
+  ScatterElements,
+  Scatter,
+  ScatterND,
+  OneHot,
+  Trilu,
+  NonZero,
+  Compress,
+  Unique,
+  EyeLike,
+  DepthToSpace,
+  SpaceToDepth,
 ];
 
 const byKey = new Map<string, Kernel[]>();
