@@ -50,6 +50,15 @@ import { Compress } from './kernels/compress.js';
 import { Unique } from './kernels/unique.js';
 import { EyeLike } from './kernels/eyelike.js';
 import { DepthToSpace, SpaceToDepth } from './kernels/depthtospace.js';
+import { LRN } from './kernels/lrn.js';
+import { MeanVarianceNormalization } from './kernels/meanvariancenormalization.js';
+import { MaxUnpool } from './kernels/maxunpool.js';
+import { ReverseSequence } from './kernels/reversesequence.js';
+import { RoiAlign } from './kernels/roialign.js';
+import { GridSample } from './kernels/gridsample.js';
+import { NonMaxSuppression } from './kernels/nonmaxsuppression.js';
+import { BitShift } from './kernels/bitshift.js';
+import { Det } from './kernels/det.js';
 
 const KERNELS: Kernel[] = [
   // (kernels are registered here, one line each)
@@ -188,6 +197,15 @@ const KERNELS: Kernel[] = [
   EyeLike,
   DepthToSpace,
   SpaceToDepth,
+  LRN,
+  MeanVarianceNormalization,
+  MaxUnpool,
+  ReverseSequence,
+  RoiAlign,
+  GridSample,
+  NonMaxSuppression,
+  BitShift,
+  Det,
 ];
 
 const byKey = new Map<string, Kernel[]>();
