@@ -59,6 +59,7 @@ import { GridSample } from './kernels/gridsample.js';
 import { NonMaxSuppression } from './kernels/nonmaxsuppression.js';
 import { BitShift } from './kernels/bitshift.js';
 import { Det } from './kernels/det.js';
+import { TfIdfVectorizer } from './kernels/tfidfvectorizer.js';
 
 const KERNELS: Kernel[] = [
   // (kernels are registered here, one line each)
@@ -206,6 +207,7 @@ const KERNELS: Kernel[] = [
   NonMaxSuppression,
   BitShift,
   Det,
+  TfIdfVectorizer,
 ];
 
 const byKey = new Map<string, Kernel[]>();
