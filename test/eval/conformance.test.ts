@@ -13,7 +13,7 @@ import { parseTensor, readModelFile } from '../../src/onnx/read.js';
 import { runModel, tensorToValue } from '../../src/eval/run.js';
 import { findKernel } from '../../src/eval/registry.js';
 import { opsetVersion, subgraphsOf, type Graph, type Model } from '../../src/graph/ir.js';
-import { bfloatBitsToNumber, isFloatType } from '../../src/onnx/tensor.js';
+import { bfloatBitsToNumber, isFloatType } from '../../src/graph/tensor.js';
 import { DataType } from '../../src/graph/ir.js';
 import type { Value } from '../../src/eval/value.js';
 

@@ -2,7 +2,7 @@
 // `axis` default 1) or per block (opset 21, `block_size`). The output has the scale's element type (float32
 // before opset 19); an int32 input has no zero point. The product is exact in float64 for 8- and 16-bit inputs.
 import { DataType } from '../../graph/ir.js';
-import { dataTypeName } from '../../onnx/tensor.js';
+import { dataTypeName } from '../../graph/tensor.js';
 import { intRange } from '../quant.js';
 import type { Kernel } from '../value.js';
 import { alloc, need, unsupported } from './common.js';

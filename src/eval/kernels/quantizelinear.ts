@@ -4,7 +4,7 @@
 // quotient are rounded to float32, the types the model declares, so a float64 run gives the integers the
 // standard's float32 arithmetic gives (a float64 scale of 5/255 would turn -127.49999 into a tie at -127.5).
 import { DataType, attrInt } from '../../graph/ir.js';
-import { dataTypeName } from '../../onnx/tensor.js';
+import { dataTypeName } from '../../graph/tensor.js';
 import { intRange, roundHalfEven, saturate, scaleIndexer } from '../quant.js';
 import type { Kernel, KernelContext, Value } from '../value.js';
 import { alloc, badModel, need, normAxis, unsupported } from './common.js';
