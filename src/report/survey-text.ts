@@ -19,5 +19,11 @@ export function surveyText(r: SurveyReport): string {
     (r.constantNodes.count ? `; ${r.constantNodes.count} Constant nodes, ${bytesText(r.constantNodes.bytes)}` : '') +
     `; external ${bytesText(r.externalBytes)}`);
   lines.push(`  ${pad('norms')}${r.normalizations.length ? r.normalizations.map((n) => `${n.op} ${n.count}`).join(', ') : 'no normalization nodes'}`);
+  if (r.evaluator.runsAll) lines.push(`  ${pad('check')}the evaluator runs every operator, so the whole-model check can run`);
+  else {
+    const why = { 'no-kernel': 'no kernel', random: 'random draws' } as const;
+    lines.push(`  ${pad('check')}the whole-model check cannot run; the evaluator cannot run:`);
+    for (const g of r.evaluator.cannotRun) lines.push(`  ${pad('')}${g.op} (opset ${g.opset}) x${g.count}: ${why[g.reason]}`);
+  }
   return lines.join('\n') + '\n';
 }
