@@ -32,7 +32,41 @@ describe('QLinearMatMul (outside check: onnxruntime-node, exact integers)', () =
   });
 });
 
+describe('QLinearMatMul with per-column scales and zero points of b (outside check: onnxruntime-node)', () => {
+  it('uint8, 2-D', async () => {
+    for (const seed of SEEDS) {
+      const r = rng(30 + seed);
+      const M = 1 + Math.floor(r() * 4), K = 1 + Math.floor(r() * 6), N = 1 + Math.floor(r() * 5);
+      const ins: In[] = [
+        { name: 'a', dims: [M, K], data: randInt(r, M * K, 0, 255), type: T.UINT8 },
+        { name: 'as', dims: [], data: [0.01 + r() * 0.05], init: true },
+        { name: 'az', dims: [], data: randInt(r, 1, 0, 255), type: T.UINT8, init: true },
+        { name: 'b', dims: [K, N], data: randInt(r, K * N, 0, 255), type: T.UINT8, init: true },
+        { name: 'bs', dims: [N], data: Array.from({ length: N }, () => 0.01 + r() * 0.05), init: true },
+        { name: 'bz', dims: [N], data: randInt(r, N, 0, 255), type: T.UINT8, init: true },
+        { name: 'ys', dims: [], data: [0.05 + r() * 0.5], init: true },
+        { name: 'yz', dims: [], data: randInt(r, 1, 0, 255), type: T.UINT8, init: true },
+      ];
+      await vsOrt('QLinearMatMul', 10, ins, {}, [{ name: 'y', type: T.UINT8 }]);
+    }
+  });
+});
+
 describe('MatMulInteger (outside check: onnxruntime-node, exact int32)', () => {
+  it('per-column zero points of b', async () => {
+    for (const seed of SEEDS) {
+      const r = rng(70 + seed);
+      const M = 1 + Math.floor(r() * 4), K = 1 + Math.floor(r() * 6), N = 1 + Math.floor(r() * 5);
+      const ins: In[] = [
+        { name: 'a', dims: [M, K], data: randInt(r, M * K, 0, 255), type: T.UINT8 },
+        { name: 'b', dims: [K, N], data: randInt(r, K * N, 0, 255), type: T.UINT8, init: true },
+        { name: 'az', dims: [], data: randInt(r, 1, 0, 255), type: T.UINT8, init: true },
+        { name: 'bz', dims: [N], data: randInt(r, N, 0, 255), type: T.UINT8, init: true },
+      ];
+      await vsOrt('MatMulInteger', 10, ins, {}, [{ name: 'y', type: T.INT32 }]);
+    }
+  });
+
   it('uint8 x uint8/int8 with zero points', async () => {
     for (const seed of SEEDS) {
       const r = rng(50 + seed);
