@@ -32,6 +32,7 @@ export type EqualizeRefusal =
   | 'params-not-constant'
   | 'dtype-unsupported'
   | 'bias-not-per-channel'
+  | 'no-gain'
   | 'proof-failed';
 
 export interface EqualizedPair {
@@ -192,6 +193,8 @@ interface LivePair {
 
 const MAX_SWEEPS = 50;
 const SETTLED = 1e-6;
+/** The least rise of the chain's weakest channel SQNR that makes equalizing it worth a change of the weights. */
+const MIN_GAIN_DB = 0.1;
 
 /** One pass over a chain's pairs; returns the largest |log s| applied. */
 function sweep(pairs: LivePair[]): number {
@@ -318,13 +321,25 @@ function equalizeChain(chain: LivePair[], opsetOf: (d: string) => number, opts: 
   }
   // proven on the stored (rounded) weights, like a fold
   const afterFigures = new Map<Side, SqnrFigures>(layers.map((s) => [s, sqnrOf(tensorToFloat64(s.weight), s.outMap, s.outChannels)]));
+  // Balancing can move the weakest channel from one layer to the other; keep it only when the chain's weakest
+  // channel (under one per-tensor scale) comes out stronger than it went in.
+  const weakest = (m: Map<Side, SqnrFigures>) => Math.min(...[...m.values()].map((f) => f.worstChannel));
+  const was = weakest(before), now = weakest(afterFigures);
+  if (!(now > was + MIN_GAIN_DB)) {
+    restore(saved);
+    for (const p of chain) {
+      p.entry.reason = 'no-gain';
+      p.entry.hint = `equalizing this chain would not raise its weakest channel's 8-bit SQNR (${dbText(was)} dB -> ${dbText(now)} dB), so it was left as it was`;
+    }
+    return;
+  }
   const regionAfter = regionGraph(scope, regionNodes, regionOutputs);
   const proven = !opts.prove || opts.prove({
     before: regionBefore, after: regionAfter, opsetOf, nodes: chain.map((p) => p.entry.first), target: chain[chain.length - 1]!.entry.second,
     direction: 'into-consumer', graph: scope.path,
   });
   if (!proven) {
-    for (const [t, storage] of saved) { t.storage = storage; delete t.origin; }
+    restore(saved);
     for (const p of chain) {
       p.entry.status = 'refused'; p.entry.reason = 'proof-failed';
       p.entry.hint = 'the numeric proof of the equalized chain did not pass, so its weights were left as they were';
@@ -338,6 +353,13 @@ function equalizeChain(chain: LivePair[], opsetOf: (d: string) => number, opts: 
     p.entry.sqnr = { firstBefore: figuresOf(before, p.a), firstAfter: figuresOf(afterFigures, p.a), secondBefore: figuresOf(before, p.b), secondAfter: figuresOf(afterFigures, p.b) };
   }
 }
+
+/** Put the weights and biases of a chain back as they were read. */
+function restore(saved: Map<Tensor, Tensor['storage']>): void {
+  for (const [t, storage] of saved) { t.storage = storage; delete t.origin; }
+}
+
+const dbText = (x: number) => (Number.isFinite(x) ? x.toFixed(1) : x > 0 ? 'exact' : '-inf');
 
 /** The chain's nodes (layers and the steps between them) in graph order. */
 function orderedRegion(g: Graph, chain: LivePair[]): Node[] {

@@ -132,3 +132,64 @@ describe('fold --equalize', () => {
     expect(r.equalized).toEqual([]);
   });
 });
+
+/** A MobileNetV2-style stack (invented weights): stem 3x3 -> depthwise 3x3 -> pointwise 1x1 (linear) -> 1x1 -> head. */
+function mobileModel(seed: number, six: boolean): string {
+  const r = rng(seed);
+  const g = new GraphBuilder();
+  g.input('x', [1, 3, 8, 8]).output('y', [1, 5]);
+  const bn = (input: string, name: string, c: number) => {
+    g.init(`${name}_g`, [c], uniform(r, c, 0.05, 3)); g.init(`${name}_b`, [c], randn(r, c, 0.2));
+    g.init(`${name}_m`, [c], randn(r, c, 0.1)); g.init(`${name}_v`, [c], uniform(r, c, 0.2, 2));
+    return g.node('BatchNormalization', [input, `${name}_g`, `${name}_b`, `${name}_m`, `${name}_v`], {}, { name, outputs: [`${name}_y`] });
+  };
+  const act = (input: string, name: string) => {
+    if (!six) return g.node('Relu', [input], {}, { name, outputs: [`${name}_y`] });
+    g.init(`${name}_lo`, [], [0]); g.init(`${name}_hi`, [], [6]);
+    return g.node('Clip', [input, `${name}_lo`, `${name}_hi`], {}, { name, outputs: [`${name}_y`] });
+  };
+  const conv = (input: string, name: string, cin: number, cout: number, k: number, group = 1) => {
+    g.init(`${name}_w`, [cout, cin / group, k, k], randn(r, cout * (cin / group) * k * k, 0.4));
+    const pads = (k - 1) / 2;
+    return g.node('Conv', [input, `${name}_w`], { pads: [pads, pads, pads, pads], group }, { name, outputs: [`${name}_y`] });
+  };
+  let v = act(bn(conv('x', 'stem', 3, 16, 3), 'stem_bn', 16), 'stem_act');
+  v = act(bn(conv(v, 'dw', 16, 16, 3, 16), 'dw_bn', 16), 'dw_act');
+  v = bn(conv(v, 'pw', 16, 8, 1), 'pw_bn', 8);
+  v = act(bn(conv(v, 'expand', 8, 24, 1), 'expand_bn', 24), 'expand_act');
+  v = g.node('GlobalAveragePool', [v], {}, { name: 'gap', outputs: ['gap_y'] });
+  v = g.node('Flatten', [v], {}, { name: 'flat', outputs: ['flat_y'] });
+  g.init('fc_w', [24, 5], randn(r, 120, 0.3)); g.init('fc_b', [5], randn(r, 5, 0.1));
+  g.node('Gemm', [v, 'fc_w', 'fc_b'], {}, { name: 'fc', outputs: ['y'] });
+  const path = join(dir, `mobile-${six ? 'relu6' : 'relu'}-${seed}.onnx`);
+  writeFileSync(path, modelBytes(g));
+  return path;
+}
+
+describe('fold --equalize on a MobileNetV2-style model', () => {
+  it('Relu6 (Clip 0..6): every pair through a Clip is refused with its reason; the linear bottleneck pair is equalized', () => {
+    const r = foldFile(mobileModel(3, true), join(dir, 'mobile6.onnx'), { probes: 1, equalize: true });
+    const byPair = Object.fromEntries(r.equalized.map((p) => [`${p.first}->${p.second}`, p]));
+    expect(Object.keys(byPair).sort()).toEqual(['dw->pw', 'pw->expand', 'stem->dw']);
+    for (const k of ['stem->dw', 'dw->pw']) {
+      expect(byPair[k]!.status).toBe('refused');
+      expect(byPair[k]!.reason).toBe('activation-not-homogeneous');
+    }
+    expect(byPair['pw->expand']!.status).toBe('equalized');
+    expect(byPair['pw->expand']!.through).toEqual([]);
+    expect(r.check?.passed).toBe(true);
+  });
+
+  it('Relu: every eligible pair is equalized and proven; onnxruntime-node agrees with the original', async () => {
+    const src = mobileModel(3, false);
+    const r = foldFile(src, join(dir, 'mobile.onnx'), { probes: 2, equalize: true });
+    expect(r.equalized.map((p) => `${p.first}->${p.second}:${p.status}`).sort()).toEqual(['dw->pw:equalized', 'pw->expand:equalized', 'stem->dw:equalized']);
+    expect(r.check?.passed).toBe(true);
+    const x = Float32Array.from(randn(rng(5), 192, 1));
+    const a = await runOrt(src, { x: { dims: [1, 3, 8, 8], data: x } });
+    const b = await runOrt(r.output!, { x: { dims: [1, 3, 8, 8], data: x } });
+    const d = maxDiff(b.y!.data, a.y!.data);
+    expect(d.maxAbs).toBeLessThanOrEqual(1e-4 * Math.max(1, d.scale));
+    if (hasChecker) expect(onnxCheck(r.output!)).toBe('');
+  });
+});
