@@ -42,6 +42,15 @@ export function foldMarkdown(r: FoldReport): string {
       `(worst channel below ${dbText(r.quantThresholdDb)} dB SQNR): ` +
       flagged.map((q) => `${code(q.target)} worst channel ${dbText(q.sqnrBefore.worstChannel)} → ${dbText(q.sqnrAfter.worstChannel)} dB, spread ${ratioText(q.spreadBefore)} → ${ratioText(q.spreadAfter)}`).join(', ') + '.');
   }
+  const eq = r.equalized.filter((p) => p.status === 'equalized');
+  if (r.equalized.length) {
+    out.push('', `Equalization: ${eq.length} of ${r.equalized.length} layer pair(s) equalized` +
+      (eq.length ? ': ' + eq.map((p) => `${code(p.first)} → ${code(p.second)}`).join(', ') : '') + '.');
+  }
+  if (r.int8) {
+    const worst = (k: 'original' | 'folded') => Math.min(...r.int8!.outputs.map((o) => o[k]?.cosine ?? NaN));
+    out.push('', `8-bit weights (${r.int8.granularity === 'tensor' ? 'per tensor' : 'per channel'}): lowest output cosine ${cosineText(worst('original'))} for the original, ${cosineText(worst('folded'))} for the folded model.`);
+  }
   if (r.storage) out.push('', `Half-precision storage: ${r.storage.tensorsConverted} tensor(s), ${bytesText(r.storage.bytesBefore)} → ${bytesText(r.storage.bytesAfter)}.`);
   out.push(...caution());
   return out.join('\n') + '\n';

@@ -144,14 +144,16 @@ describe('JUnit XML (fast-xml-parser)', () => {
     });
     const j = parseJunit(renderJobs('fold', [{ model: r.model, report: r, exitCode: 1 }], 'junit'));
     const s = j.testsuites.testsuite[0];
-    expect(s['@tests']).toBe('5');
+    expect(s['@tests']).toBe('6'); // 3 norms, 2 outputs, 1 layer's 8-bit readiness
     expect(s['@failures']).toBe('1');
-    expect(s['@skipped']).toBe('1');
+    expect(s['@skipped']).toBe('2'); // the kept norm and the flagged layer
     const names = s.testcase.map((c: Record<string, string>) => c['@name']);
     expect(names).toContain('check output a<b>&"c"');
     expect(names).toContain('edge_bn BatchNormalization in main/branch_if.then_branch');
     const kept = s.testcase.find((c: Record<string, string>) => c['@name'].startsWith('edge_bn'));
     expect(kept.skipped['@message']).toBe('padded-consumer: remove the padding of the next convolution <pad=1> & "fold"');
+    const q = s.testcase.find((c: Record<string, string>) => c['@name'] === '8-bit readiness stem_conv');
+    expect(q.skipped['@message']).toBe('flagged: worst channel 30.1 -> 8.4 dB under one per-tensor 8-bit scale (threshold 20.0 dB)');
   });
 
   it('a batch error is an <error> case; counts add up over suites', () => {
