@@ -1,9 +1,9 @@
 // Normalizations whose statistics come from each input (instance, layer, group, Lp, LRN, mean-variance, and
-// the layer norm written as primitive ops): never folded into weights, but listed with what their learned
-// affine tail could do.
+// the layer norm and RMSNorm written as primitive ops): their statistics are never folded into weights. A
+// LayerNormalization's learned tail moves as an affine step (steps.ts), so does the Mul/Add after a written-out
+// one; what is left here is recognising the forms and saying why a tail stays.
 import type { Node } from '../graph/ir.js';
-import { attrInt } from '../graph/ir.js';
-import { elementCount } from '../graph/ir.js';
+import { attrInt, elementCount } from '../graph/ir.js';
 import { tensorToFloat64 } from '../graph/tensor.js';
 import { constantOf, isDefaultDomain, isLinear, rankOf, type Scope } from './scope.js';
 

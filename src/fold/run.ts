@@ -15,8 +15,9 @@ export interface Run {
   /** The activation the first step reads, and the one the last step writes. */
   top: string;
   bottom: string;
-  /** A normalization operator (BatchNormalization, or a LayerNormalization's tail) is part of the run: its fold
-   * is always worth it, even when the shift needs a new bias Add. */
+  /** A normalization operator (BatchNormalization, a LayerNormalization's tail, or the Mul/Add right after a
+   * written-out layer norm or RMSNorm) is part of the run: its fold is worth it even when the shift needs a new
+   * bias Add. */
   hasNormOp: boolean;
 }
 
