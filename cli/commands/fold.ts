@@ -1,11 +1,11 @@
 import type { Argv } from 'yargs';
 import { mkdirSync } from 'node:fs';
-import { basename, join } from 'node:path';
+import { basename, dirname, join } from 'node:path';
 import { PleatError } from '../../src/errors.js';
 import type { FoldJobOptions } from '../../src/jobs/types.js';
 import { keepList, loadConfig, runSettings } from '../config.js';
 import type { Job } from '../batch.js';
-import { planReports, runAndReport } from '../output.js';
+import { checkDestinations, planReports, runAndReport } from '../output.js';
 import { configFlags, EPILOGUE, inputFlags, many, reportFlags } from '../flags.js';
 
 export const command = 'fold <models..>';
@@ -61,6 +61,11 @@ export async function handler(argv: Flags): Promise<void> {
     keep: keepList(config, argv.keep), store: argv.store ?? config.store, allowOverridable: argv.allowOverridable,
     externalThreshold: argv.externalDataMin, noProofs: argv.unproven,
   };
+  const sides = outputs.map((o) => join(dirname(o), `${basename(o)}.data`));
+  await checkDestinations(plan, {
+    inputs: argv.models,
+    outputs: [...outputs.map((o) => [o, argv.out !== undefined ? '-o' : '--out-dir'] as const), ...sides.map((s) => [s, 'side file'] as const)],
+  });
   const jobs: Job[] = argv.models.map((model, i) => ({ command: 'fold', model, output: outputs[i]!, opts }));
   await runAndReport('fold', jobs, plan, argv.quiet);
 }
