@@ -40,7 +40,7 @@ export async function checkDestinations(plan: ReturnType<typeof planReports>, gu
   const { OutputSet } = await import('../src/jobs/outputs.js');
   const tx = new OutputSet();
   try {
-    for (const i of guard.inputs ?? []) tx.protect(i, 'input');
+    for (const i of guard.inputs ?? []) tx.protect(i, 'input model');
     for (const [o, flag] of guard.outputs ?? []) tx.reserve(o, flag);
     for (const spec of plan.files) tx.reserve(spec.file, '--report');
   } finally {
@@ -57,7 +57,7 @@ export async function emit(plan: ReturnType<typeof planReports>, render: (format
   const { OutputSet } = await import('../src/jobs/outputs.js'); // loaded when used: --help needs none of it
   const tx = new OutputSet();
   try {
-    for (const i of guard.inputs ?? []) tx.protect(i, 'input');
+    for (const i of guard.inputs ?? []) tx.protect(i, 'input model');
     for (const files of staged) if (files.length) tx.adopt(files, 'output');
     for (const spec of plan.files) {
       tx.reserve(spec.file, '--report');

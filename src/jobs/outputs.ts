@@ -112,7 +112,7 @@ export class OutputSet {
     const keys = fileKeys(full);
     for (const k of keys) {
       const input = this.protectedKeys.get(k);
-      if (input) throw new PleatError('bad-input', `${role} ${dest} would overwrite the ${input}; choose another path`);
+      if (input) throw new PleatError('bad-input', `${role} ${dest}: refusing to overwrite the ${input}; choose another path`);
       const other = this.reservedKeys.get(k);
       if (other === `${role} ${dest}`) return full; // claimed again by the same step (a fold started over)
       if (other) throw new PleatError('bad-input', `${role} ${dest} is also written as ${other}; give each output its own path`);
@@ -130,14 +130,15 @@ export class OutputSet {
     return join(dirname(dest), `.pleat-${process.pid}-${this.token}${this.counter++}-${basename(dest)}.tmp`);
   }
 
-  /** Stage text or bytes for a reserved destination. */
-  stage(dest: string, content: string | Uint8Array): void {
+  /** Stage text or bytes for a reserved destination (or let `write` write the temporary file). */
+  stage(dest: string, content: string | Uint8Array | ((tmp: string) => void)): void {
     const full = resolve(dest);
     const tmp = this.tempFor(full);
     this.staged.push({ tmp, dest: full });
     try {
-      writeFileSync(tmp, content);
+      if (typeof content === 'function') content(tmp); else writeFileSync(tmp, content);
     } catch (e) {
+      if (e instanceof PleatError) throw e;
       throw new PleatError('bad-input', `${dest}: cannot write (${(e as NodeJS.ErrnoException).code ?? String(e)})`);
     }
   }
