@@ -57,7 +57,7 @@ export async function handler(argv: Flags): Promise<void> {
   const run = runSettings(config, argv);
   const outputs = outputsFor(argv.models, argv.out, argv.outDir);
   const opts: FoldJobOptions = {
-    inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, probes: run.probes, gate: run.gate,
+    inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, probes: run.probes, gate: run.gate, maxProbeMemory: run.maxProbeMemory,
     keep: keepList(config, argv.keep), store: argv.store ?? config.store, allowOverridable: argv.allowOverridable,
     externalThreshold: argv.externalDataMin, noProofs: argv.unproven,
   };

@@ -6,6 +6,7 @@ import { sideFileName, stageModelFile, type StagedFile, type StagedModel } from 
 import { sideFilePaths } from '../onnx/external.js';
 import { basename, dirname, join } from 'node:path';
 import { OutputSet } from './outputs.js';
+import { withProbeMemory } from '../eval/budget.js';
 import { storeFloat16 } from '../ship/store-float16.js';
 import { foldModel } from '../fold/index.js';
 import { LateRangeCheckFailed } from '../fold/values.js';
@@ -29,7 +30,7 @@ export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOpt
   const shapes = new Map([...asMap(opts.shapes)].filter(([k]) => inputNames.has(k)));
   try {
     const r = compare(original, folded, {
-      inputs: opts.inputs, shapes, dims, seed, probes, gate, budget: false,
+      inputs: opts.inputs, shapes, dims, seed, probes, gate, budget: false, maxProbeMemory: opts.maxProbeMemory,
     });
     return {
       passed: r.passed,
@@ -60,6 +61,11 @@ export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOpt
  * callers that can read the model again (see FoldOptions.lateRangeCheck).
  */
 export function foldLoaded(model: Model, original: Model | undefined, label: string, opts: FoldJobOptions, lateRangeCheck = false, ship?: (m: Model) => Model): FoldReport {
+  // the proofs and the check run within the probe memory limit (src/eval/budget.ts)
+  return withProbeMemory(opts.maxProbeMemory, () => foldWithin(model, original, label, opts, lateRangeCheck, ship));
+}
+
+function foldWithin(model: Model, original: Model | undefined, label: string, opts: FoldJobOptions, lateRangeCheck: boolean, ship?: (m: Model) => Model): FoldReport {
   const { ledger } = foldModel(model, {
     keep: opts.keep,
     allowOverridable: opts.allowOverridable,

@@ -7,6 +7,7 @@ import type { DataTypeCode, Model } from '../graph/ir.js';
 import { basename } from 'node:path';
 import type { Precision, Value } from '../eval/value.js';
 import { runModel } from '../eval/run.js';
+import { withProbeMemory } from '../eval/budget.js';
 import { PleatError } from '../errors.js';
 import { dataTypeName } from '../graph/tensor.js';
 import { computeMetrics, worstOf, type Metrics } from './metrics.js';
@@ -22,6 +23,8 @@ export interface CompareOptions extends InputOptions {
   gate?: string;
   /** Also run both models in float32 to measure the error budget; default true. */
   budget?: boolean;
+  /** Probe memory limit in bytes (--max-probe-memory); default DEFAULT_PROBE_MEMORY (src/eval/budget.ts). */
+  maxProbeMemory?: number;
 }
 
 export const DEFAULT_PROBES = 3;
@@ -123,6 +126,10 @@ function runLabelled(model: Model, side: 'A' | 'B', inputs: Map<string, Value>, 
 
 /** Run A and B on the same inputs and judge each output against its gate. Never throws for disagreeing outputs. */
 export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareReport {
+  return withProbeMemory(opts.maxProbeMemory, () => compareWithin(a, b, opts));
+}
+
+function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport {
   const seed = opts.seed ?? 0;
   const budget = opts.budget ?? true;
   const available = budget ? [...METRIC_NAMES, ...BUDGET_NAMES] : [...METRIC_NAMES];
