@@ -13,7 +13,8 @@ import { LateRangeCheckFailed } from '../fold/values.js';
 import { proveFold } from '../verify/prove.js';
 import { compare } from '../verify/compare.js';
 import { DEFAULT_GATES } from '../verify/gate.js';
-import { asMap, dimSymbols } from '../verify/inputs.js';
+import { asMap, dimSymbols, resolveInputs } from '../verify/inputs.js';
+import { checkProbeEstimate } from '../verify/probe-budget.js';
 import { PleatError } from '../errors.js';
 import { quantReadiness } from '../fold/quant.js';
 import { SCHEMA_VERSION, type CheckSummary, type FoldJobOptions, type FoldReport, type StorageSummary } from './types.js';
@@ -65,7 +66,24 @@ export function foldLoaded(model: Model, original: Model | undefined, label: str
   return withProbeMemory(opts.maxProbeMemory, () => foldWithin(model, original, label, opts, lateRangeCheck, ship));
 }
 
+/** Refuse, before any fold, a whole-model check whose probe would go beyond the probe memory limit. */
+function checkProbeFits(original: Model, opts: FoldJobOptions): void {
+  const symbols = dimSymbols([original.graph]);
+  const inputNames = new Set(original.graph.inputs.map((i) => i.name));
+  const dims = new Map([...asMap(opts.dims)].filter(([k]) => symbols.has(k)));
+  const shapes = new Map([...asMap(opts.shapes)].filter(([k]) => inputNames.has(k)));
+  let specs;
+  try {
+    specs = resolveInputs(original.graph, asMap(opts.inputs), shapes, dims);
+  } catch (e) {
+    if (e instanceof PleatError) return; // the check itself reports it (or is skipped for it)
+    throw e;
+  }
+  checkProbeEstimate(original.graph, specs);
+}
+
 function foldWithin(model: Model, original: Model | undefined, label: string, opts: FoldJobOptions, lateRangeCheck: boolean, ship?: (m: Model) => Model): FoldReport {
+  if (original && !opts.noProofs) checkProbeFits(original, opts);
   const { ledger } = foldModel(model, {
     keep: opts.keep,
     allowOverridable: opts.allowOverridable,

@@ -8,6 +8,7 @@ import { basename } from 'node:path';
 import type { Precision, Value } from '../eval/value.js';
 import { runModel } from '../eval/run.js';
 import { withProbeMemory } from '../eval/budget.js';
+import { checkProbeEstimate } from './probe-budget.js';
 import { PleatError } from '../errors.js';
 import { dataTypeName } from '../graph/tensor.js';
 import { computeMetrics, worstOf, type Metrics } from './metrics.js';
@@ -141,6 +142,7 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
   checkDimFlags(dims, [a.graph, b.graph]);
   const specs = resolveInputs(a.graph, asMap(opts.inputs), asMap(opts.shapes), dims);
   const probes = specs.every((s) => s.given) ? 1 : requested;
+  checkProbeEstimate(a.graph, specs); // before anything runs: sizes, and the values a probe would make
 
   const aOut = a.graph.outputs;
   const bOut = new Map(b.graph.outputs.map((o) => [o.name, o]));

@@ -5,6 +5,7 @@ import type { Model } from '../graph/ir.js';
 import type { Precision, Value } from '../eval/value.js';
 import { runModel } from '../eval/run.js';
 import { withProbeMemory } from '../eval/budget.js';
+import { checkProbeEstimate } from './probe-budget.js';
 import { PleatError } from '../errors.js';
 import { isFloatType } from '../graph/tensor.js';
 import { DataType } from '../graph/ir.js';
@@ -38,6 +39,7 @@ function evaluateWithin(model: Model, opts: EvaluateOptions): EvaluateResult {
   const dims = asMap(opts.dims);
   checkDimFlags(dims, [model.graph]);
   const specs = resolveInputs(model.graph, asMap(opts.inputs), asMap(opts.shapes), dims);
+  checkProbeEstimate(model.graph, specs);
   const inputs = makeProbe(specs, seed, 0);
   const outputs = runModel(model, inputs, { precision });
   return { precision, seed, inputSummary: summarizeInputs(specs), inputs, outputs };
