@@ -25,13 +25,13 @@ export function formatBytes(n: number): string {
   return `${n} bytes`;
 }
 
-/** Run `fn` with this probe memory limit (bytes; undefined: the default). */
+/** Run `fn` with this probe memory limit (bytes; undefined: the limit already in force, at first the default). */
 export function withProbeMemory<T>(bytes: number | undefined, fn: () => T): T {
   if (bytes !== undefined && (!Number.isSafeInteger(bytes) || bytes <= 0)) {
     throw new PleatError('usage', `--max-probe-memory ${bytes}: give a whole number of bytes above 0`);
   }
   const before = limit;
-  limit = bytes ?? DEFAULT_PROBE_MEMORY;
+  limit = bytes ?? limit;
   try {
     return fn();
   } finally {
