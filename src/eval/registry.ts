@@ -31,6 +31,9 @@ import * as pool from './kernels/pool.js';
 import { PadV1, PadV11 } from './kernels/pad.js';
 import * as resize from './kernels/resize.js';
 import { If } from './kernels/if.js';
+import { LSTM } from './kernels/lstm.js';
+import { GRU } from './kernels/gru.js';
+import { RNN } from './kernels/rnn.js';
 
 const KERNELS: Kernel[] = [
   // (kernels are registered here, one line each)
@@ -147,6 +150,9 @@ const KERNELS: Kernel[] = [
   resize.Upsample7,
   resize.Upsample9,
   If,
+  LSTM,
+  GRU,
+  RNN,
 ];
 
 const byKey = new Map<string, Kernel[]>();
