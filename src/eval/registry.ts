@@ -34,6 +34,8 @@ import { If } from './kernels/if.js';
 import { LSTM } from './kernels/lstm.js';
 import { GRU } from './kernels/gru.js';
 import { RNN } from './kernels/rnn.js';
+import { Loop } from './kernels/loop.js';
+import { Scan8, Scan9 } from './kernels/scan.js';
 
 const KERNELS: Kernel[] = [
   // (kernels are registered here, one line each)
@@ -153,6 +155,9 @@ const KERNELS: Kernel[] = [
   LSTM,
   GRU,
   RNN,
+  Loop,
+  Scan8,
+  Scan9,
 ];
 
 const byKey = new Map<string, Kernel[]>();
