@@ -36,6 +36,8 @@ import { GRU } from './kernels/gru.js';
 import { RNN } from './kernels/rnn.js';
 import { Loop } from './kernels/loop.js';
 import { Scan8, Scan9 } from './kernels/scan.js';
+import { Einsum } from './kernels/einsum.js';
+import { CumSum } from './kernels/cumsum.js';
 
 const KERNELS: Kernel[] = [
   // (kernels are registered here, one line each)
@@ -158,6 +160,8 @@ const KERNELS: Kernel[] = [
   Loop,
   Scan8,
   Scan9,
+  Einsum,
+  CumSum,
 ];
 
 const byKey = new Map<string, Kernel[]>();
