@@ -38,6 +38,10 @@ import { Loop } from './kernels/loop.js';
 import { Scan8, Scan9 } from './kernels/scan.js';
 import { Einsum } from './kernels/einsum.js';
 import { CumSum } from './kernels/cumsum.js';
+import { DFT17, DFT20 } from './kernels/dft.js';
+import { STFT } from './kernels/stft.js';
+import * as windows from './kernels/windows.js';
+import { MelWeightMatrix } from './kernels/melweightmatrix.js';
 
 const KERNELS: Kernel[] = [
   // (kernels are registered here, one line each)
@@ -162,6 +166,13 @@ const KERNELS: Kernel[] = [
   Scan9,
   Einsum,
   CumSum,
+  DFT17,
+  DFT20,
+  STFT,
+  windows.HannWindow,
+  windows.HammingWindow,
+  windows.BlackmanWindow,
+  MelWeightMatrix,
 ];
 
 const byKey = new Map<string, Kernel[]>();
