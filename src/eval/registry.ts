@@ -189,9 +189,23 @@ export function findKernel(domain: string, op: string, opset: number): Kernel | 
   return byKey.get(`${d}::${op}`)?.find((k) => k.sinceVersion <= opset);
 }
 
+/**
+ * Operators of the default domain whose outputs are random draws by definition. Two runs of the same model give
+ * different values, so comparing the original with the folded model says nothing: they are refused with that
+ * reason rather than with the generic missing-kernel message.
+ */
+export const RANDOM_OPS: ReadonlySet<string> = new Set(['Bernoulli', 'Multinomial', 'RandomNormal', 'RandomNormalLike', 'RandomUniform', 'RandomUniformLike']);
+
+export function isRandomOp(domain: string, op: string): boolean {
+  return (domain === '' || domain === 'ai.onnx') && RANDOM_OPS.has(op);
+}
+
 export function getKernel(domain: string, op: string, opset: number, nodeName: string): Kernel {
   const k = findKernel(domain, op, opset);
   if (!k) {
+    if (isRandomOp(domain, op)) {
+      throw new PleatError('unsupported-op', `node '${nodeName}': '${op}' draws random numbers, so the whole-model check cannot compare two runs`);
+    }
     const dom = domain || 'ai.onnx';
     throw new PleatError('unsupported-op', `node '${nodeName}': operator ${dom}.${op} at opset ${opset} is not supported by pleat's evaluator`);
   }
