@@ -29,6 +29,8 @@ export interface CaseOptions {
   activations?: boolean;
   clip?: boolean;
   inputForget?: boolean;
+  /** Force batch entry 0 to an empty sequence (sequence_lens[0] = 0). */
+  zeroLength?: boolean;
 }
 
 /** One random node of `cell`; options force features, the seed picks the rest. */
@@ -53,7 +55,7 @@ export function randomCase(cell: Cell, seed: number, o: CaseOptions = {}): Case 
   ins.push(useB ? { name: 'B', dims: [nd, 2 * G * H], data: randn(r, nd * 2 * G * H, 0.5) } : { name: '', dims: [], data: [] });
   const seqLens = o.seqLens ?? r() < 0.5;
   ins.push(seqLens
-    ? { name: 'sequence_lens', dims: [batch], data: Array.from({ length: batch }, () => 1 + Math.floor(r() * seq)), type: T.INT32 }
+    ? { name: 'sequence_lens', dims: [batch], data: Array.from({ length: batch }, (_, b) => (b === 0 && o.zeroLength ? 0 : Math.floor(r() * (seq + 1)))), type: T.INT32 }
     : { name: '', dims: [], data: [] });
   ins.push(r() < 0.6 ? { name: 'initial_h', dims: sDims, data: randn(r, count(sDims), 0.5) } : { name: '', dims: [], data: [] });
   if (cell === 'LSTM') {

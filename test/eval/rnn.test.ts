@@ -22,6 +22,9 @@ describe('RNN vs onnxruntime-node', () => {
   it('layout 1 (batch-major) equals layout 0 with the axes moved', async () => {
     for (let seed = 41; seed <= 46; seed++) await checkBatchMajor('RNN', seed, 14, { seqLens: seed % 2 === 0 });
   });
+  it('an empty sequence (sequence_lens 0) gives zero Y_h as onnxruntime does', async () => {
+    for (let seed = 61; seed <= 64; seed++) await checkCase('RNN', seed, 14, { seqLens: true, zeroLength: true });
+  });
   it('random mixes (opset 22)', async () => {
     for (let seed = 51; seed <= 58; seed++) await checkCase('RNN', seed, 22);
   });

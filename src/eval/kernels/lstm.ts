@@ -50,8 +50,10 @@ function run(inputs: Array<Value | undefined>, ctx: KernelContext): Value[] {
         h = nh; c = nc;
         Y.set(h, yOffset(r, t, d, b));
       }
-      Yh!.set(h, stateOffset(r, d, b));
-      Yc!.set(c, stateOffset(r, d, b));
+      if (r.lens[b]! > 0) { // zero-length: zeros (see recurrent.ts)
+        Yh!.set(h, stateOffset(r, d, b));
+        Yc!.set(c, stateOffset(r, d, b));
+      }
     }
   }
   const type = r.X.type;

@@ -38,7 +38,11 @@ export interface Recurrence {
   /** Per direction: whether it runs from the last valid step back to the first. */
   reverse: boolean[];
   layout: number;
-  /** Valid steps per batch entry (sequence_lens, or seq everywhere). */
+  /**
+   * Valid steps per batch entry (sequence_lens, or seq everywhere). Y is zero past each entry's end. For a
+   * zero-length entry the standard says nothing about Y_h/Y_c; pleat gives zeros, as onnxruntime 1.30 does
+   * (measured), rather than the initial state.
+   */
   lens: number[];
   /** Activation functions per direction, `perDir` of them each. */
   acts: Activation[][];

@@ -24,7 +24,7 @@ function run(inputs: Array<Value | undefined>, ctx: KernelContext): Value[] {
         h = g;
         Y.set(h, yOffset(r, t, d, b));
       }
-      Yh!.set(h, stateOffset(r, d, b));
+      if (r.lens[b]! > 0) Yh!.set(h, stateOffset(r, d, b)); // zero-length: zeros (see recurrent.ts)
     }
   }
   return [{ type: r.X.type, dims: yDims(r), data: Y }, { type: r.X.type, dims: stateDims(r), data: Yh! }];
