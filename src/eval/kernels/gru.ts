@@ -9,8 +9,8 @@
 import type { Kernel, KernelContext, Value } from '../value.js';
 import { attrInt } from '../../graph/ir.js';
 import {
-  clipped, gatePreActivations, initialState, outputs, recurrence, settle, startState, stateDims, stateOffset, steps,
-  xOffset, yDims, yOffset,
+  clipped, dot, initialState, inputProjection, recurrentWeights, outputs, recurrence, settle, startState, stateDims, stateOffset, steps,
+  stepPreActivations, xRow, yDims, yOffset,
 } from './recurrent.js';
 
 function run(inputs: Array<Value | undefined>, ctx: KernelContext): Value[] {
@@ -18,34 +18,30 @@ function run(inputs: Array<Value | undefined>, ctx: KernelContext): Value[] {
   const h0 = initialState(inputs, 5, r, ctx, 'initial_h');
   const linearBeforeReset = ctx.opset >= 3 && attrInt(ctx.node, 'linear_before_reset', 0) !== 0;
   const { Y, S: [Yh] } = outputs(r, ctx, 1);
-  const H = r.hidden, G = 3 * H, R = r.R.data, Bd = r.B?.data;
+  const H = r.hidden, G = 3 * H, R = recurrentWeights(r), Bd = r.B?.data;
   for (let d = 0; d < r.numDir; d++) {
     const [f, g] = r.acts[d]!;
-    const rh = d * G * H + 2 * H * H; // Rh block of direction d
+    const rhBlock = d * G * H + 2 * H * H; // Rh block of direction d
     const rbh = d * 2 * G + G + 2 * H; // Rbh
+    const xw = inputProjection(r, 3, d, 2);
+    const pre = new Float64Array(G), next = new Float64Array(H), z = new Float64Array(H), rg = new Float64Array(H);
+    const resetH = new Float64Array(H); // rt (.) Ht-1
     for (let b = 0; b < r.batch; b++) {
-      let h = startState(h0, r, d, b);
+      const h = startState(h0, r, d, b);
       for (const t of steps(r.lens[b]!, r.reverse[d]!)) {
-        const pre = gatePreActivations(r, 3, d, xOffset(r, t, b), h, 2);
-        const next = new Float64Array(H);
-        const z = new Float64Array(H), rg = new Float64Array(H);
+        stepPreActivations(r, 3, d, xw, xRow(r, t, b), h, 2, pre);
         for (let j = 0; j < H; j++) { z[j] = f!(clipped(r, pre[j]!)); rg[j] = f!(clipped(r, pre[H + j]!)); }
+        if (!linearBeforeReset) for (let k = 0; k < H; k++) resetH[k] = rg[k]! * h[k]!;
         for (let j = 0; j < H; j++) {
-          let acc = 0;
-          const row = rh + j * H;
-          if (linearBeforeReset) {
-            for (let k = 0; k < H; k++) acc += h[k]! * R[row + k]!;
-            if (Bd) acc += Bd[rbh + j]!;
-            acc *= rg[j]!;
-          } else {
-            for (let k = 0; k < H; k++) acc += rg[k]! * h[k]! * R[row + k]!;
-            if (Bd) acc += Bd[rbh + j]!;
-          }
+          const row = rhBlock + j * H;
+          let acc: number;
+          if (linearBeforeReset) acc = rg[j]! * (dot(h, R, row, H) + (Bd ? Bd[rbh + j]! : 0));
+          else acc = dot(resetH, R, row, H) + (Bd ? Bd[rbh + j]! : 0);
           const hh = g!(clipped(r, pre[2 * H + j]! + acc));
           next[j] = (1 - z[j]!) * hh + z[j]! * h[j]!;
         }
         settle(next, ctx);
-        h = next;
+        h.set(next);
         Y.set(h, yOffset(r, t, d, b));
       }
       if (r.lens[b]! > 0) Yh!.set(h, stateOffset(r, d, b)); // zero-length: zeros (see recurrent.ts)

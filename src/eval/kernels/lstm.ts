@@ -12,8 +12,8 @@ import { attrInt } from '../../graph/ir.js';
 import { badModel } from '../attrs.js';
 import type { Kernel, KernelContext, Value } from '../value.js';
 import {
-  clipped, gatePreActivations, initialState, outputs, recurrence, settle, startState, stateDims, stateOffset, steps,
-  xOffset, yDims, yOffset,
+  clipped, initialState, inputProjection, outputs, recurrence, settle, startState, stateDims, stateOffset, steps,
+  stepPreActivations, xRow, yDims, yOffset,
 } from './recurrent.js';
 
 function run(inputs: Array<Value | undefined>, ctx: KernelContext): Value[] {
@@ -29,25 +29,25 @@ function run(inputs: Array<Value | undefined>, ctx: KernelContext): Value[] {
     const [f, g, hf] = r.acts[d]!;
     const po = d * 3 * H;
     const peep = (k: number, j: number) => (P ? P.data[po + k * H + j]! : 0);
+    const xw = inputProjection(r, 4, d, 4);
+    const pre = new Float64Array(4 * H);
     for (let b = 0; b < r.batch; b++) {
-      let h = startState(h0, r, d, b);
-      let c = startState(c0, r, d, b);
+      const h = startState(h0, r, d, b);
+      const c = startState(c0, r, d, b);
       for (const t of steps(r.lens[b]!, r.reverse[d]!)) {
-        const pre = gatePreActivations(r, 4, d, xOffset(r, t, b), h, 4);
-        const nh = new Float64Array(H), nc = new Float64Array(H);
+        stepPreActivations(r, 4, d, xw, xRow(r, t, b), h, 4, pre);
         for (let j = 0; j < H; j++) {
           const it = f!(clipped(r, pre[j]! + peep(0, j) * c[j]!));
           const ft = inputForget ? 1 - it : f!(clipped(r, pre[2 * H + j]! + peep(2, j) * c[j]!));
           const ct = g!(clipped(r, pre[3 * H + j]!));
-          nc[j] = ft * c[j]! + it * ct;
+          c[j] = ft * c[j]! + it * ct; // c[j] is read above before it is replaced
         }
-        settle(nc, ctx);
+        settle(c, ctx);
         for (let j = 0; j < H; j++) {
-          const ot = f!(clipped(r, pre[H + j]! + peep(1, j) * nc[j]!));
-          nh[j] = ot * hf!(nc[j]!);
+          const ot = f!(clipped(r, pre[H + j]! + peep(1, j) * c[j]!));
+          h[j] = ot * hf!(c[j]!); // h is no longer needed: pre already holds h·R
         }
-        settle(nh, ctx);
-        h = nh; c = nc;
+        settle(h, ctx);
         Y.set(h, yOffset(r, t, d, b));
       }
       if (r.lens[b]! > 0) { // zero-length: zeros (see recurrent.ts)

@@ -4,6 +4,7 @@
 import { attrFloat, attrFloats, attrInt, attrString, type Node } from '../../graph/ir.js';
 import { allocFloat, badModel, need, unsupported } from '../attrs.js';
 import type { KernelContext, NumArray, Value } from '../value.js';
+import { gemm } from '../gemm.js';
 
 export type Activation = (x: number) => number;
 
@@ -119,11 +120,6 @@ export function recurrence(inputs: Array<Value | undefined>, ctx: KernelContext,
   return { seq, batch, inSize, hidden, numDir, reverse, layout, lens, acts: activations(ctx, node, defaults, numDir), clip: clipAttr, X, W, R, B };
 }
 
-/** Offset of X[t, b, 0] for the layout. */
-export function xOffset(r: Recurrence, t: number, b: number): number {
-  return (r.layout === 0 ? t * r.batch + b : b * r.seq + t) * r.inSize;
-}
-
 /** Offset of a state tensor's [d, b, 0] (initial_h, initial_c, Y_h, Y_c) for the layout. */
 export function stateOffset(r: Recurrence, d: number, b: number): number {
   return (r.layout === 0 ? d * r.batch + b : b * r.numDir + d) * r.hidden;
@@ -159,27 +155,58 @@ export function startState(v: Value | undefined, r: Recurrence, d: number, b: nu
 }
 
 /**
- * The pre-activations of every gate for one step: g[k*H + j] = x·W[k*H+j] + h·R[k*H+j] + Wb + Rb, for gate
- * blocks k in the order W stacks them. `rGates` limits which blocks get the h·R term (GRU's hidden gate takes
- * it separately).
+ * The input part of every gate's pre-activation for every step at once, through the shared GEMM:
+ * row q (X's rows in memory order, see xRow) holds x·W[g] + Wb[g] (+ Rb[g] for the first `rGates` blocks, whose
+ * recurrent term is added per step by addRecurrent; GRU's hidden gate takes its Rb separately).
  */
-export function gatePreActivations(r: Recurrence, gates: number, d: number, xo: number, h: Float64Array, rGates: number): Float64Array {
-  const H = r.hidden, I = r.inSize, G = gates * H;
-  const out = new Float64Array(G);
-  const x = r.X.data, w = r.W.data, rw = r.R.data;
-  const wo = d * G * I, ro = d * G * H;
-  for (let g = 0; g < G; g++) {
-    let acc = 0;
-    const wr = wo + g * I;
-    for (let k = 0; k < I; k++) acc += x[xo + k]! * w[wr + k]!;
-    if (g < rGates * H) {
-      const rr = ro + g * H;
-      for (let k = 0; k < H; k++) acc += h[k]! * rw[rr + k]!;
-    }
-    if (r.B) acc += r.B.data[d * 2 * G + g]! + (g < rGates * H ? r.B.data[d * 2 * G + G + g]! : 0);
-    out[g] = acc;
+export function inputProjection(r: Recurrence, gates: number, d: number, rGates: number): Float64Array {
+  const I = r.inSize, G = gates * r.hidden, rows = r.seq * r.batch;
+  const out = new Float64Array(rows * G);
+  gemm(rows, G, I, { data: r.X.data, off: 0, rs: I, cs: 1 }, { data: r.W.data, off: d * G * I, rs: 1, cs: I }, out, 0, G, false);
+  if (r.B) {
+    const bias = new Float64Array(G);
+    for (let g = 0; g < G; g++) bias[g] = r.B.data[d * 2 * G + g]! + (g < rGates * r.hidden ? r.B.data[d * 2 * G + G + g]! : 0);
+    for (let q = 0; q < rows; q++) for (let g = 0; g < G; g++) out[q * G + g]! += bias[g]!;
   }
   return out;
+}
+
+/** Row of X[t, b] in inputProjection's result (X's memory order for the layout). */
+export function xRow(r: Recurrence, t: number, b: number): number {
+  return r.layout === 0 ? t * r.batch + b : b * r.seq + t;
+}
+
+/**
+ * One step's pre-activations into `out` (length gates*H): the projected input row plus h·R[g] for the first
+ * `rGates` gate blocks.
+ */
+export function stepPreActivations(r: Recurrence, gates: number, d: number, xw: Float64Array, row: number, h: Float64Array, rGates: number, out: Float64Array): void {
+  const H = r.hidden, G = gates * H, rw = recurrentWeights(r), ro = d * G * H, rG = rGates * H;
+  for (let g = 0; g < G; g++) out[g] = xw[row * G + g]!;
+  for (let g = 0; g < rG; g++) out[g]! += dot(h, rw, ro + g * H, H);
+}
+
+/** R as one Float64Array (cached per value), so the per-step dot products read a single array type. */
+const rCache = new WeakMap<object, Float64Array>();
+export function recurrentWeights(r: Recurrence): Float64Array {
+  const data = r.R.data;
+  if (data instanceof Float64Array) return data;
+  let c = rCache.get(data);
+  if (!c) { c = Float64Array.from(data); rCache.set(data, c); }
+  return c;
+}
+
+/** h · w[off .. off+n), unrolled by four (the recurrent product is most of a recurrent layer's work). */
+export function dot(h: Float64Array, w: Float64Array, off: number, n: number): number {
+  let a0 = 0, a1 = 0, a2 = 0, a3 = 0, k = 0;
+  for (; k + 3 < n; k += 4) {
+    a0 += h[k]! * w[off + k]!;
+    a1 += h[k + 1]! * w[off + k + 1]!;
+    a2 += h[k + 2]! * w[off + k + 2]!;
+    a3 += h[k + 3]! * w[off + k + 3]!;
+  }
+  for (; k < n; k++) a0 += h[k]! * w[off + k]!;
+  return (a0 + a1) + (a2 + a3);
 }
 
 /** Clip a pre-activation to [-clip, clip] when the node sets clip. */

@@ -4,8 +4,8 @@
 // clip come from recurrent.ts.
 import type { Kernel, KernelContext, Value } from '../value.js';
 import {
-  clipped, gatePreActivations, initialState, outputs, recurrence, settle, startState, stateDims, stateOffset, steps,
-  xOffset, yDims, yOffset,
+  clipped, initialState, inputProjection, outputs, recurrence, settle, startState, stateDims, stateOffset, steps,
+  stepPreActivations, xRow, yDims, yOffset,
 } from './recurrent.js';
 
 function run(inputs: Array<Value | undefined>, ctx: KernelContext): Value[] {
@@ -15,13 +15,14 @@ function run(inputs: Array<Value | undefined>, ctx: KernelContext): Value[] {
   const H = r.hidden;
   for (let d = 0; d < r.numDir; d++) {
     const [f] = r.acts[d]!;
+    const xw = inputProjection(r, 1, d, 1);
+    const g = new Float64Array(H);
     for (let b = 0; b < r.batch; b++) {
-      let h = startState(h0, r, d, b);
+      const h = startState(h0, r, d, b);
       for (const t of steps(r.lens[b]!, r.reverse[d]!)) {
-        const g = gatePreActivations(r, 1, d, xOffset(r, t, b), h, 1);
-        for (let j = 0; j < H; j++) g[j] = f!(clipped(r, g[j]!));
-        settle(g, ctx);
-        h = g;
+        stepPreActivations(r, 1, d, xw, xRow(r, t, b), h, 1, g);
+        for (let j = 0; j < H; j++) h[j] = f!(clipped(r, g[j]!));
+        settle(h, ctx);
         Y.set(h, yOffset(r, t, d, b));
       }
       if (r.lens[b]! > 0) Yh!.set(h, stateOffset(r, d, b)); // zero-length: zeros (see recurrent.ts)
