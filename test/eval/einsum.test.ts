@@ -68,6 +68,10 @@ describe('Einsum vs onnxruntime-node', () => {
       { equation: 'ii', dims: [[4, 4]] },
       { equation: 'i,j->ij', dims: [[3], [4]] },
       { equation: 'bii->bi', dims: [[2, 3, 3]] },
+      { equation: 'i,i', dims: [[5], [5]] },
+      { equation: 'ij->', dims: [[3, 4]] },
+      { equation: ',ij->ij', dims: [[], [2, 3]] },
+      { equation: 'ij,jk,kl->il', dims: [[2, 3], [3, 4], [4, 2]] },
     ];
     let seed = 60;
     for (const eq of cases) await check(eq, seed++);

@@ -4,7 +4,7 @@
 // is the ellipsis axes followed by the labels that appear exactly once, in ASCII order (as numpy.einsum does).
 import { attrString } from '../../graph/ir.js';
 import { badModel } from '../attrs.js';
-import type { Kernel, KernelContext, Value } from '../value.js';
+import type { Kernel, KernelContext, NumArray, Value } from '../value.js';
 import { alloc, elementCount, isIntegerType, wrapAll } from './common.js';
 
 /** Parsed term: letter labels, and where the ellipsis sits (index into labels) if any. */
@@ -91,28 +91,46 @@ function run(inputs: Array<Value | undefined>, ctx: KernelContext): Value[] {
   const nOut = elementCount(outDims);
   const y = alloc(type, nOut, ctx);
   const total = elementCount(dims);
-  if (total > 0) {
-    const R = order.length, K = ops.length;
-    const idx = new Array<number>(R).fill(0);
-    const off = new Array<number>(K).fill(0);
-    const datas = ops.map((v) => v.data);
-    const inner = nOut === 0 ? 1 : elementCount(dims.slice(out.length));
-    let acc = 0, n = 0, o = 0;
-    for (let it = 0; it < total; it++) {
-      let p = 1;
-      for (let k = 0; k < K; k++) p *= datas[k]![off[k]!]!;
-      acc += p;
-      if (++n === inner) { y[o++] = acc; acc = 0; n = 0; }
-      // odometer step over `order`, last label fastest
-      for (let a = R - 1; a >= 0; a--) {
-        if (++idx[a]! < dims[a]!) { for (let k = 0; k < K; k++) off[k]! += strides[k]![a]!; break; }
-        for (let k = 0; k < K; k++) off[k]! -= strides[k]![a]! * (dims[a]! - 1);
-        idx[a] = 0;
-      }
-    }
-  }
+  if (total > 0) contract(ops.map((v) => v.data), strides, dims, summed.length > 0, elementCount(dims.slice(out.length)), y);
   if (isIntegerType(type)) wrapAll(type, y);
   return [{ type, dims: outDims, data: y }];
+}
+
+/**
+ * Walk every combination of the labels (output labels first, last label fastest) and add the operands'
+ * products into y. The last label runs as a tight inner loop; the others advance as an odometer. `summing`:
+ * the last label is summed over (so `perOutput` consecutive products make one output element); otherwise each
+ * product is its own output element.
+ */
+function contract(datas: NumArray[], strides: number[][], dims: number[], summing: boolean, perOutput: number, y: NumArray): void {
+  const R = dims.length, K = datas.length;
+  if (R === 0) { let p = 1; for (const d of datas) p *= d[0]!; y[0] = p; return; } // scalars only
+  const L = dims[R - 1]!;
+  const idx = new Array<number>(R - 1).fill(0);
+  const off = new Array<number>(K).fill(0);
+  const last = strides.map((s) => s[R - 1]!);
+  const outer = elementCount(dims.slice(0, R - 1));
+  const a = datas[0]!, b = datas[1], sa = last[0]!, sb = last[1] ?? 0;
+  let acc = 0, n = 0, o = 0;
+  for (let it = 0; it < outer; it++) {
+    if (summing) {
+      let part = 0;
+      if (K === 1) { let p = off[0]!; for (let i = 0; i < L; i++, p += sa) part += a[p]!; }
+      else if (K === 2) { let p = off[0]!, q = off[1]!; for (let i = 0; i < L; i++, p += sa, q += sb) part += a[p]! * b![q]!; }
+      else for (let i = 0; i < L; i++) { let prod = 1; for (let k = 0; k < K; k++) prod *= datas[k]![off[k]! + i * last[k]!]!; part += prod; }
+      acc += part;
+      n += L;
+      if (n === perOutput) { y[o++] = acc; acc = 0; n = 0; }
+    } else {
+      for (let i = 0; i < L; i++) { let prod = 1; for (let k = 0; k < K; k++) prod *= datas[k]![off[k]! + i * last[k]!]!; y[o++] = prod; }
+    }
+    // odometer step over the other labels
+    for (let ax = R - 2; ax >= 0; ax--) {
+      if (++idx[ax]! < dims[ax]!) { for (let k = 0; k < K; k++) off[k]! += strides[k]![ax]!; break; }
+      for (let k = 0; k < K; k++) off[k]! -= strides[k]![ax]! * (dims[ax]! - 1);
+      idx[ax] = 0;
+    }
+  }
 }
 
 export const Einsum: Kernel = { op: 'Einsum', domain: '', sinceVersion: 12, run };
