@@ -7,7 +7,7 @@
 import { mkdirSync, renameSync, rmSync, writeFileSync } from 'node:fs';
 import { dirname, join, resolve } from 'node:path';
 import { fileURLToPath, pathToFileURL } from 'node:url';
-import { GraphBuilder, f, modelBytes, rng, type Dim } from '../src/onnx/builder.js';
+import { GraphBuilder, f, modelBytes, rng, type Dim } from './builder.js';
 
 /** Approximately standard normal: the Irwin-Hall sum of 12 uniforms, minus 6 (arithmetic only). */
 function gauss(r: () => number): number {

@@ -7,13 +7,13 @@ import { foldFile } from './jobs/fold.js';
 import { auditFile } from './jobs/audit.js';
 import type { AuditJobOptions, AuditReport, FoldJobOptions, FoldReport } from './jobs/types.js';
 
-export { survey, surveyModel, type SurveyReport } from './survey.js';
+export { survey, surveyModel, type SurveyReport } from './jobs/survey.js';
 export { PleatError, isPleatError, type ErrorKind } from './errors.js';
 export { readModelFile, parseModel } from './onnx/read.js';
 export { writeModelFile, serializeModel, type WriteOptions } from './onnx/write.js';
 export { foldLoaded } from './jobs/fold.js';
 export { exportFile, type ExportReport } from './jobs/export.js';
-export { exportBundle, BUNDLE_FORMATS, type BundleFormat, type BundleResult } from './onnx/bundle.js';
+export { exportBundle, BUNDLE_FORMATS, type BundleFormat, type BundleResult } from './ship/bundle.js';
 export { auditLoaded } from './jobs/audit.js';
 export { saveOutputs } from './verify/evaluate.js';
 export { loadInputFile, loadInputFiles, parseInputFlags } from './verify/inputs.js';

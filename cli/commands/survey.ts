@@ -1,5 +1,5 @@
 import type { Argv } from 'yargs';
-import { survey } from '../../src/survey.js';
+import { survey } from '../../src/jobs/survey.js';
 import { surveyText } from '../../src/report/survey-text.js';
 import { out } from '../errors.js';
 

@@ -2,7 +2,7 @@
 // its registered kernel, freeing intermediate values once their last reader has run.
 import { PleatError } from '../errors.js';
 import { opsetVersion, subgraphsOf, elementCount, type Graph, type Model, type Node, type Tensor } from '../graph/ir.js';
-import { isFloatType, tensorToFloat64, dataTypeName } from '../onnx/tensor.js';
+import { isFloatType, tensorToFloat64, dataTypeName } from '../graph/tensor.js';
 import { getKernel } from './registry.js';
 import { giveBack, isConstant, isPooled, markConstant } from './pool.js';
 import type { KernelContext, NumArray, Precision, Value } from './value.js';

@@ -4,7 +4,7 @@ import type { Attribute, Graph, Node, Tensor, ValueInfo } from '../graph/ir.js';
 import { touch } from '../graph/edit.js';
 import { decodeValues, scaleTensor, storeValues, type ScaleGuard } from './values.js';
 import { scaleWeights, type ChannelMap } from './weights.js';
-import { makeTensor } from '../onnx/tensor.js';
+import { makeTensor } from '../graph/tensor.js';
 import { constantOf, soleReader, valueInfoOf, type ConstRef, type Scope } from './scope.js';
 import { freshName, type FoldContext } from './context.js';
 

@@ -3,7 +3,7 @@
 // ledger. Each match is rewritten right after it is found, so at most one decoded weight is alive at a time.
 import type { Model, Node } from '../graph/ir.js';
 import { attrTensor } from '../graph/ir.js';
-import { tensorByteSize } from '../onnx/tensor.js';
+import { tensorByteSize } from '../graph/tensor.js';
 import { validateModel } from '../graph/validate.js';
 import { makeContext, type FoldContext } from './context.js';
 import { cleanUp } from './cleanup.js';

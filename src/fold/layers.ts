@@ -2,7 +2,7 @@
 // needs (channel counts, groups, transposes, padding). Weight conditions are checked here, once, for every rule.
 import type { Node } from '../graph/ir.js';
 import { attrFloat, attrInt, attrInts, attrString, elementCount } from '../graph/ir.js';
-import { isFloatType, dataTypeName } from '../onnx/tensor.js';
+import { isFloatType, dataTypeName } from '../graph/tensor.js';
 import { DataType } from '../graph/ir.js';
 import { constantOf, labelOf, rankOf, type ConstRef, type Scope } from './scope.js';
 import { refuse, type FoldContext, type Refusal } from './context.js';

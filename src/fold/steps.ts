@@ -3,7 +3,7 @@
 // every reason a norm is kept reads in one place.
 import type { Node } from '../graph/ir.js';
 import { attrFloat, attrInt, elementCount } from '../graph/ir.js';
-import { isFloatType, tensorToFloat64, dataTypeName } from '../onnx/tensor.js';
+import { isFloatType, tensorToFloat64, dataTypeName } from '../graph/tensor.js';
 import { batchNormAffine, channelAxisFromEnd, type Affine, type ElementwiseOp } from './affine.js';
 import { constantOf, isDefaultDomain, type ConstRef, type Scope } from './scope.js';
 import { weightSource } from './values.js';

@@ -1,8 +1,8 @@
 // Reading and writing the big weights. Float32 raw data (the common case) is read through a Float32Array view
 // and scaled where it lies, each product computed in float64 and rounded once on store, with no float64 copy
-// of the whole tensor; other types and storage forms go through the general codecs in src/onnx/tensor.ts.
+// of the whole tensor; other types and storage forms go through the general codecs in src/graph/tensor.ts.
 import { DataType, elementCount, type Tensor } from '../graph/ir.js';
-import { tensorToFloat64 } from '../onnx/tensor.js';
+import { tensorToFloat64 } from '../graph/tensor.js';
 import { setTensorValues, touch } from '../graph/edit.js';
 import { deferTransform, ensureLoaded, isOnDisk, scanView } from '../onnx/sparse-read.js';
 import { scaleRawFloat32, scaleWeights, type ChannelMap } from './weights.js';

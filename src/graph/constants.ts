@@ -2,7 +2,7 @@
 // value_float(s) and value_int(s) (opset 12+). Shorthand values are read into a tensor built here; edits
 // must not be written into it (the node would not see them), so rewrites clone such constants instead.
 import { DataType, type Node, type Tensor } from './ir.js';
-import { makeTensor } from '../onnx/tensor.js';
+import { makeTensor } from './tensor.js';
 
 const built = new WeakMap<Node, Tensor>();
 const synthetic = new WeakSet<Tensor>();

@@ -1,7 +1,7 @@
 // Edits that keep the lossless writer honest: anything changed in place is marked with touch(), so the
 // writer re-encodes it instead of re-emitting the bytes it was read from.
 import type { DataTypeCode, Tensor } from './ir.js';
-import { encodeStorage } from '../onnx/tensor.js';
+import { encodeStorage } from './tensor.js';
 
 /** Mark an IR object as changed (the writer will re-encode it). */
 export function touch(obj: { origin?: unknown }): void {

@@ -3,7 +3,7 @@
 import { PleatError } from '../errors.js';
 import type { Graph, Model, Tensor } from './ir.js';
 import { elementCount } from './ir.js';
-import { isKnownDataType, storedElementCount, dataTypeName } from '../onnx/tensor.js';
+import { isKnownDataType, storedElementCount, dataTypeName } from './tensor.js';
 import { topoOrder } from './topo.js';
 import { nameTable } from './names.js';
 

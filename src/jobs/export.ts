@@ -1,7 +1,7 @@
 // The export job: fold (with every proof and the whole-model check), then write the folded weights as a
 // bundle for device runtimes. Nothing is written when a gate fails.
 import { readModelFile } from '../onnx/read.js';
-import { exportBundle, type BundleFormat, type BundleResult } from '../onnx/bundle.js';
+import { exportBundle, type BundleFormat, type BundleResult } from '../ship/bundle.js';
 import { foldLoaded } from './fold.js';
 import type { FoldJobOptions, FoldReport } from './types.js';
 

@@ -3,7 +3,7 @@
 import type { Model } from '../graph/ir.js';
 import { readModelFile } from '../onnx/read.js';
 import { writeModelFile } from '../onnx/write.js';
-import { storeFloat16 } from '../onnx/store-float16.js';
+import { storeFloat16 } from '../ship/store-float16.js';
 import { foldModel } from '../fold/index.js';
 import { LateRangeCheckFailed } from '../fold/values.js';
 import { proveFold } from '../verify/prove.js';
@@ -11,7 +11,7 @@ import { compare } from '../verify/compare.js';
 import { DEFAULT_GATES } from '../verify/gate.js';
 import { asMap, dimSymbols } from '../verify/inputs.js';
 import { PleatError } from '../errors.js';
-import { quantReadiness } from '../report/quant.js';
+import { quantReadiness } from '../fold/quant.js';
 import { SCHEMA_VERSION, type CheckSummary, type FoldJobOptions, type FoldReport, type StorageSummary } from './types.js';
 
 /** Compare the original and the folded model on seeded probes; skipped (not failed) when shapes are unknown. */

@@ -2,6 +2,9 @@
 // src/report/schema/pleat-report.schema.json documents them. Bump SCHEMA_VERSION on any breaking change.
 import type { Finding, LedgerEntry } from '../fold/types.js';
 import type { InputOptions } from '../verify/inputs.js';
+import type { QuantRow } from '../fold/quant.js';
+
+export type { QuantRow };
 
 export const SCHEMA_VERSION = 1;
 
@@ -26,20 +29,6 @@ export interface CheckSummary {
   /** The gate expression used for each output (default per data type unless --gate). */
   gates: string[];
   outputs: OutputCheck[];
-}
-
-/** Quantization readiness of one folded layer (Nagel et al. 2019, arXiv:1906.04721). */
-export interface QuantRow {
-  /** The layer whose weights the fold changed. */
-  target: string;
-  /** Normalization(s) folded into it. */
-  norms: string[];
-  channels: number;
-  /** Largest per-output-channel weight range divided by the median one, before and after folding. */
-  spreadBefore: number;
-  spreadAfter: number;
-  /** True when the fold makes per-tensor 8-bit weight quantization lossy (see the threshold in report/quant.ts). */
-  flagged: boolean;
 }
 
 /** Half-precision storage (--store float16). */

@@ -8,6 +8,7 @@
 import { closeSync, fstatSync, openSync, readSync } from 'node:fs';
 import { PleatError } from '../errors.js';
 import { WireError, WT_LEN, fieldsOf } from './wire.js';
+import { setByteBacking } from '../graph/lazy-bytes.js';
 
 /** Payloads at least this large are left unread until needed. */
 export const DEFER_MIN = 64 * 1024;
@@ -258,3 +259,6 @@ export function readSparse(path: string, fd: number): Uint8Array {
 export function openForRead(path: string): number {
   return openSync(path, 'r');
 }
+
+// Tensor decoding in the graph layer reaches the file through these two (src/graph/lazy-bytes.ts).
+setByteBacking({ ensureLoaded, markLoaded });

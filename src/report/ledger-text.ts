@@ -5,7 +5,7 @@ import type { FoldReport, CheckSummary, QuantRow, StorageSummary } from '../jobs
 import type { LedgerEntry } from '../fold/types.js';
 import { bytesText, CAUTION, cosineText, numText, plural, ratioText } from './format.js';
 import { paint, type Paint } from './paint.js';
-import { SPREAD_LIMIT } from './quant.js';
+import { SPREAD_LIMIT } from '../fold/quant.js';
 
 const where = (graph: string) => (graph === 'main' ? '' : `  in ${graph}`);
 

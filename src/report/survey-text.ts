@@ -1,5 +1,5 @@
 // The survey as text: one labelled line per fact, our own compact layout.
-import type { SurveyReport } from '../survey.js';
+import type { SurveyReport } from '../jobs/survey.js';
 import { bytesText, dimsText } from './format.js';
 
 export function surveyText(r: SurveyReport): string {

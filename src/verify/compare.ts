@@ -8,7 +8,7 @@ import { basename } from 'node:path';
 import type { Precision, Value } from '../eval/value.js';
 import { runModel } from '../eval/run.js';
 import { PleatError } from '../errors.js';
-import { dataTypeName } from '../onnx/tensor.js';
+import { dataTypeName } from '../graph/tensor.js';
 import { computeMetrics, worstOf, type Metrics } from './metrics.js';
 import { BUDGET_NAMES, defaultGateFor, defaultGateKey, METRIC_NAMES, parseGate, type Gate, type GateScope } from './gate.js';
 import {

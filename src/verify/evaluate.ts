@@ -5,7 +5,7 @@ import type { Model } from '../graph/ir.js';
 import type { Precision, Value } from '../eval/value.js';
 import { runModel } from '../eval/run.js';
 import { PleatError } from '../errors.js';
-import { isFloatType } from '../onnx/tensor.js';
+import { isFloatType } from '../graph/tensor.js';
 import { DataType } from '../graph/ir.js';
 import { npyBytes } from './npy.js';
 import { asMap, checkDimFlags, makeProbe, resolveInputs, summarizeInputs, type InputOptions, type InputSummary } from './inputs.js';

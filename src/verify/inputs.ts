@@ -6,7 +6,7 @@ import { extname } from 'node:path';
 import { DataType, elementCount, type DataTypeCode, type Dim, type Graph, type ValueInfo } from '../graph/ir.js';
 import type { Value } from '../eval/value.js';
 import { PleatError } from '../errors.js';
-import { dataTypeName, isFloatType, roundToStorage, tensorToFloat64 } from '../onnx/tensor.js';
+import { dataTypeName, isFloatType, roundToStorage, tensorToFloat64 } from '../graph/tensor.js';
 import { parseTensor } from '../onnx/read.js';
 import { readNpy } from './npy.js';
 

@@ -8,7 +8,7 @@ import { readFileSync } from 'node:fs';
 import { DataType, elementCount, type DataTypeCode } from '../graph/ir.js';
 import type { Value } from '../eval/value.js';
 import { PleatError } from '../errors.js';
-import { bfloatBitsToNumber, dataTypeName, halfBitsToNumber, numberToBfloatBits, numberToHalfBits } from '../onnx/tensor.js';
+import { bfloatBitsToNumber, dataTypeName, halfBitsToNumber, numberToBfloatBits, numberToHalfBits } from '../graph/tensor.js';
 
 const MAGIC = [0x93, 0x4e, 0x55, 0x4d, 0x50, 0x59]; // \x93 N U M P Y
 

@@ -2,7 +2,7 @@
 // random weights (about 378 MB). Built directly as IR and written with pleat's streaming writer.
 import type { Graph, Model, Node, Tensor, ValueInfo } from '../../src/graph/ir.js';
 import { writeModelFile } from '../../src/onnx/write.js';
-import { rng } from '../../src/onnx/builder.js';
+import { rng } from '../../models/builder.js';
 
 function floatTensor(name: string, dims: number[], fill: (i: number) => number): Tensor {
   const n = dims.reduce((a, b) => a * b, 1);

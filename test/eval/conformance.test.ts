@@ -8,7 +8,7 @@ import { join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
 import { parseTensor, readModelFile } from '../../src/onnx/read.js';
 import { runModel, tensorToValue } from '../../src/eval/run.js';
-import { bfloatBitsToNumber, isFloatType } from '../../src/onnx/tensor.js';
+import { bfloatBitsToNumber, isFloatType } from '../../src/graph/tensor.js';
 import { DataType } from '../../src/graph/ir.js';
 import type { Value } from '../../src/eval/value.js';
 

@@ -4,7 +4,7 @@
 import { describe, expect, it } from 'vitest';
 import { GraphBuilder, f, modelBytes, randn, rng, T } from '../helpers/build.js';
 import { parseModel } from '../../src/onnx/read.js';
-import { tensorToFloat64, roundToStorage, numberToHalfBits, halfBitsToNumber } from '../../src/onnx/tensor.js';
+import { tensorToFloat64, roundToStorage, numberToHalfBits, halfBitsToNumber } from '../../src/graph/tensor.js';
 import * as ort from 'onnxruntime-node';
 import { analyze } from '../../src/fold/index.js';
 import { batchNormAffine } from '../../src/fold/affine.js';

@@ -6,7 +6,7 @@ import { describe, expect, it } from 'vitest';
 import { GraphBuilder, f, modelBytes, randn, rng, T } from '../helpers/build.js';
 import { maxDiff, runOrt } from '../helpers/ort.js';
 import { parseModel } from '../../src/onnx/read.js';
-import { halfBitsToNumber, numberToHalfBits } from '../../src/onnx/tensor.js';
+import { halfBitsToNumber, numberToHalfBits } from '../../src/graph/tensor.js';
 import * as ort from 'onnxruntime-node';
 import { analyze } from '../../src/fold/index.js';
 import { batchNormAffine } from '../../src/fold/affine.js';

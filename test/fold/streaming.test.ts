@@ -10,7 +10,7 @@ import { runOrt, maxDiff } from '../helpers/ort.js';
 import { readModelFile } from '../../src/onnx/read.js';
 import { serializeModel, writeModelFile } from '../../src/onnx/write.js';
 import { foldModel } from '../../src/fold/index.js';
-import { tensorToFloat64 } from '../../src/onnx/tensor.js';
+import { tensorToFloat64 } from '../../src/graph/tensor.js';
 import { lazySourceOf } from '../../src/onnx/sparse-read.js';
 import { foldFile, foldLoaded } from '../../src/jobs/fold.js';
 import { LateRangeCheckFailed } from '../../src/fold/values.js';

@@ -3,7 +3,7 @@ import { readFileSync } from 'node:fs';
 import { join, resolve } from 'node:path';
 import { buildDemoModels } from '../../models/build.js';
 import { parseModel } from '../../src/onnx/read.js';
-import { tensorToFloat64 } from '../../src/onnx/tensor.js';
+import { tensorToFloat64 } from '../../src/graph/tensor.js';
 import { attrInt, type Model } from '../../src/graph/ir.js';
 import { checkerAvailable, onnxCheck } from '../helpers/checker.js';
 import { runOrt, type Feeds } from '../helpers/ort.js';

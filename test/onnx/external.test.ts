@@ -9,7 +9,7 @@ import { GraphBuilder, modelBytes, tensor } from '../helpers/build.js';
 import { pleat } from '../helpers/cli.js';
 import { readModelFile } from '../../src/onnx/read.js';
 import { writeModelFile } from '../../src/onnx/write.js';
-import { tensorToFloat64 } from '../../src/onnx/tensor.js';
+import { tensorToFloat64 } from '../../src/graph/tensor.js';
 
 function modelWith(entries: Array<[string, string]>): Uint8Array {
   const g = new GraphBuilder();

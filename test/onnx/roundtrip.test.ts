@@ -9,7 +9,7 @@ import { GraphBuilder, modelBytes, T, f, randn, rng, tensor } from '../helpers/b
 import { parseModel, readModelFile } from '../../src/onnx/read.js';
 import { serializeModel, writeModelFile } from '../../src/onnx/write.js';
 import { setTensorValues } from '../../src/graph/edit.js';
-import { tensorToFloat64 } from '../../src/onnx/tensor.js';
+import { tensorToFloat64 } from '../../src/graph/tensor.js';
 import { checkerAvailable, onnxCheck } from '../helpers/checker.js';
 import { runOrt, maxDiff } from '../helpers/ort.js';
 

@@ -6,7 +6,7 @@ import { parseModel } from '../../src/onnx/read.js';
 import { foldModel } from '../../src/fold/index.js';
 import type { ProofCase } from '../../src/fold/types.js';
 import { proveFold } from '../../src/verify/prove.js';
-import { tensorToFloat64 } from '../../src/onnx/tensor.js';
+import { tensorToFloat64 } from '../../src/graph/tensor.js';
 import { setTensorValues } from '../../src/graph/edit.js';
 
 function convBn(seed: number, rank: 3 | 4 | 5, symbolic: boolean) {

@@ -2,7 +2,7 @@
 // "non-zero"; to FLOAT16/BFLOAT16 rounds to nearest even in that format, since the narrow format is the point
 // of such a cast. Casts to FLOAT/DOUBLE keep the evaluator's working precision (a float64 run stays exact).
 import { attr } from '../../graph/ir.js';
-import { bfloatBitsToNumber, dataTypeName, halfBitsToNumber, numberToBfloatBits, numberToHalfBits } from '../../onnx/tensor.js';
+import { bfloatBitsToNumber, dataTypeName, halfBitsToNumber, numberToBfloatBits, numberToHalfBits } from '../../graph/tensor.js';
 import type { Kernel, KernelContext, Value } from '../value.js';
 import { DataType, alloc, isFloatType, isIntegerType, need, unsupported, wrapInt } from './common.js';
 

@@ -2,7 +2,7 @@
 // precision, integer wrapping, axis normalisation, reading shape-like inputs, and the one-line errors.
 import { DataType, elementCount, type DataTypeCode, type Tensor } from '../../graph/ir.js';
 import { badModel, unsupported } from '../attrs.js';
-import { dataTypeName, isFloatType, tensorToFloat64 } from '../../onnx/tensor.js';
+import { dataTypeName, isFloatType, tensorToFloat64 } from '../../graph/tensor.js';
 import { takeFloat32, takeFloat64 } from '../pool.js';
 import type { KernelContext, NumArray, Value } from '../value.js';
 

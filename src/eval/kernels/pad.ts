@@ -5,7 +5,7 @@
 import { attr, attrFloat, attrInts, attrString, elementCount } from '../../graph/ir.js';
 import { badModel, need, normAxis, unsupported } from '../attrs.js';
 import type { Kernel, KernelContext, NumArray, Value } from '../value.js';
-import { isFloatType } from '../../onnx/tensor.js';
+import { isFloatType } from '../../graph/tensor.js';
 
 /** Source index along one axis for each output index (-1: take the constant). */
 function axisMap(n: number, pb: number, pe: number, mode: string, ctx: KernelContext): Int32Array {

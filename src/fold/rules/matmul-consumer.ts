@@ -1,6 +1,6 @@
 // Norm before a MatMul with a constant 2-D weight W [K, N], on the axis it contracts (the input's last):
 // rows of W are scaled by s and t·W becomes a bias: the C of a Gemm when the input is 2-D, else a new Add.
-import { makeTensor } from '../../onnx/tensor.js';
+import { makeTensor } from '../../graph/tensor.js';
 import { decodeValues, weightSource } from '../values.js';
 import { hasShift } from '../affine.js';
 import { addConstantInput, scaleConstant, changeOf, makeNode, replaceConstant } from '../apply.js';

@@ -1,6 +1,6 @@
 // Norm after a MatMul with a constant 2-D weight W [K, N], when the norm's channel axis is the output's last
 // axis: W' = W ⊙ s along columns. A shift t becomes the C of a Gemm when the input is 2-D, else a new Add.
-import { makeTensor } from '../../onnx/tensor.js';
+import { makeTensor } from '../../graph/tensor.js';
 import { decodeValues, type ScaleGuard } from '../values.js';
 import { hasShift } from '../affine.js';
 import { addConstantInput, scaleConstant, changeOf, makeNode, replaceConstant } from '../apply.js';

@@ -2,7 +2,7 @@
 // affine steps), a match that checks every condition and returns a match or one refusal, and a rewrite that
 // turns a match into an edit without deciding anything.
 import type { DataTypeCode, Node, Tensor } from '../../graph/ir.js';
-import { roundToStorage, dataTypeName, numberToHalfBits, numberToBfloatBits } from '../../onnx/tensor.js';
+import { roundToStorage, dataTypeName, numberToHalfBits, numberToBfloatBits } from '../../graph/tensor.js';
 import { DataType } from '../../graph/ir.js';
 import type { Affine } from '../affine.js';
 import type { Edit } from '../apply.js';

@@ -1,9 +1,9 @@
 // `survey`: what a model file holds, for people and scripts.
-import type { Dim, Graph, Model, ValueInfo } from './graph/ir.js';
-import { subgraphsOf } from './graph/ir.js';
-import { dataTypeName, tensorByteSize } from './onnx/tensor.js';
-import { externalBytes } from './onnx/external.js';
-import { readModelFile } from './onnx/read.js';
+import type { Dim, Graph, Model, ValueInfo } from '../graph/ir.js';
+import { subgraphsOf } from '../graph/ir.js';
+import { dataTypeName, tensorByteSize } from '../graph/tensor.js';
+import { externalBytes } from '../onnx/external.js';
+import { readModelFile } from '../onnx/read.js';
 
 export const NORMALIZATION_OPS = [
   'BatchNormalization', 'InstanceNormalization', 'LayerNormalization', 'GroupNormalization',

@@ -3,7 +3,7 @@
 // still sees the types the model declares. A tensor with a value beyond float16's range stays float32.
 import type { Graph, Model, Node, Tensor } from '../graph/ir.js';
 import { DataType, subgraphsOf } from '../graph/ir.js';
-import { FLOAT16_MAX, makeTensor, tensorByteSize, tensorToFloat64 } from './tensor.js';
+import { FLOAT16_MAX, makeTensor, tensorByteSize, tensorToFloat64 } from '../graph/tensor.js';
 import { touch } from '../graph/edit.js';
 
 const WEIGHT_READERS = new Set(['Conv', 'ConvTranspose', 'Gemm', 'MatMul']);

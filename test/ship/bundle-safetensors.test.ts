@@ -3,7 +3,7 @@ import { existsSync, mkdtempSync, readFileSync, readdirSync, rmSync, writeFileSy
 import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
 import onnxProto from 'onnx-proto';
-import { exportBundle } from '../../src/onnx/bundle.js';
+import { exportBundle } from '../../src/ship/bundle.js';
 import { parseModel, readModelFile } from '../../src/onnx/read.js';
 import { PleatError } from '../../src/errors.js';
 import { foldModel } from '../../src/fold/index.js';
@@ -20,7 +20,7 @@ import { GraphBuilder, modelBytes, f, fs } from '../helpers/build.js';
 //     plus an optional "__metadata__" object of string to string
 //   - the rest: the byte buffer; offsets are relative to its start; the tensors must cover it entirely,
 //     with no holes and no overlaps; data little-endian, row-major.
-// It deliberately shares no code with src/onnx/safetensors.ts.
+// It deliberately shares no code with src/ship/safetensors.ts.
 // ---------------------------------------------------------------------------------------------------
 const DTYPE_SIZE: Record<string, number> = {
   BOOL: 1, U8: 1, I8: 1, F8_E5M2: 1, F8_E4M3: 1, I16: 2, U16: 2, F16: 2, BF16: 2,

@@ -2,8 +2,8 @@
 // aligned const arrays. Floating-point elements are printed as C99 hexadecimal literals, which denote the
 // stored binary value exactly, so a compiler rebuilds every float and double bit for bit.
 import { DataType, type DataTypeCode } from '../graph/ir.js';
-import { dataTypeName } from './tensor.js';
-import type { BundleTensor } from './bundle.js';
+import { dataTypeName } from '../graph/tensor.js';
+import type { BundleTensor } from './bundle-tensor.js';
 
 const C_TYPES: Record<number, string> = {
   [DataType.FLOAT]: 'float', [DataType.DOUBLE]: 'double',

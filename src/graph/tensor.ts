@@ -1,8 +1,8 @@
 // Tensor element codecs: every TensorProto storage form decoded to Float64Array for math, and encoded back
 // in the tensor's own type and storage form.
-import { DataType, elementCount, type DataTypeCode, type Tensor, type TensorStorage } from '../graph/ir.js';
+import { DataType, elementCount, type DataTypeCode, type Tensor, type TensorStorage } from './ir.js';
 import { PleatError } from '../errors.js';
-import { ensureLoaded, markLoaded } from './sparse-read.js';
+import { ensureLoaded, markLoaded } from './lazy-bytes.js';
 
 const NAMES: Record<number, string> = {
   0: 'undefined', 1: 'float32', 2: 'uint8', 3: 'int8', 4: 'uint16', 5: 'int16', 6: 'int32', 7: 'int64',

@@ -8,11 +8,24 @@
 // max - min of its weights.
 import type { Model, Node } from '../graph/ir.js';
 import { attrInt } from '../graph/ir.js';
-import type { LedgerEntry } from '../fold/types.js';
-import type { QuantRow } from '../jobs/types.js';
-import { buildScopes, constantOf, labelOf, type Scope } from '../fold/scope.js';
-import { layouts, weightView, type ChannelMap } from '../fold/weights.js';
-import { tensorToFloat64 } from '../onnx/tensor.js';
+import type { LedgerEntry } from './types.js';
+import { buildScopes, constantOf, labelOf, type Scope } from './scope.js';
+import { layouts, weightView, type ChannelMap } from './weights.js';
+import { tensorToFloat64 } from '../graph/tensor.js';
+
+/** Quantization readiness of one folded layer (Nagel et al. 2019, arXiv:1906.04721). */
+export interface QuantRow {
+  /** The layer whose weights the fold changed. */
+  target: string;
+  /** Normalization(s) folded into it. */
+  norms: string[];
+  channels: number;
+  /** Largest per-output-channel weight range divided by the median one, before and after folding. */
+  spreadBefore: number;
+  spreadAfter: number;
+  /** True when the fold makes per-tensor 8-bit weight quantization lossy (see SPREAD_LIMIT below). */
+  flagged: boolean;
+}
 
 /**
  * Flag when the folded spread exceeds this. A rule of thumb, our own choice: per-tensor 8-bit quantization

@@ -2,27 +2,20 @@
 // tensors as one safetensors file or as C source, plus manifest.json, which maps every layer (node) to its
 // attributes, inputs, outputs and the tensors it reads. All files are written to temporary names first and
 // renamed into place together, so a failure leaves no partial bundle.
-import { ensureLoaded } from './sparse-read.js';
+import { ensureLoaded } from '../onnx/sparse-read.js';
 import { closeSync, mkdirSync, openSync, renameSync, rmSync, statSync, writeSync } from 'node:fs';
 import { basename, join, resolve } from 'node:path';
 import { DataType, elementCount, type Attribute, type DataTypeCode, type Graph, type Model, type Tensor, type ValueInfo } from '../graph/ir.js';
 import { PleatError } from '../errors.js';
-import { bfloatBitsToNumber, bytesPerElement, dataTypeName, halfBitsToNumber } from './tensor.js';
+import { bfloatBitsToNumber, bytesPerElement, dataTypeName, halfBitsToNumber } from '../graph/tensor.js';
 import { layoutSafetensors, safetensorsDtype } from './safetensors.js';
 import { cElementType, renderCSource } from './c-source.js';
+import type { BundleTensor } from './bundle-tensor.js';
+
+export type { BundleTensor };
 
 export type BundleFormat = 'safetensors' | 'c';
 export const BUNDLE_FORMATS: readonly BundleFormat[] = ['safetensors', 'c'];
-
-/** A tensor ready for a bundle: its little-endian element bytes in the tensor's own type. */
-export interface BundleTensor {
-  name: string;
-  dims: number[];
-  dataType: DataTypeCode;
-  count: number;
-  elementBytes: number;
-  bytes: Uint8Array;
-}
 
 export interface SkippedTensor {
   name: string;

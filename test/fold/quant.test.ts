@@ -5,7 +5,7 @@
 import { describe, expect, it } from 'vitest';
 import { parseModel } from '../../src/onnx/read.js';
 import { foldModel } from '../../src/fold/index.js';
-import { channelRanges, quantReadiness, spreadOf, SPREAD_LIMIT } from '../../src/report/quant.js';
+import { channelRanges, quantReadiness, spreadOf, SPREAD_LIMIT } from '../../src/fold/quant.js';
 import { layouts, weightView } from '../../src/fold/weights.js';
 import type { LedgerEntry } from '../../src/fold/types.js';
 import { GraphBuilder, modelBytes } from '../helpers/build.js';

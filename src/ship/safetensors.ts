@@ -2,7 +2,7 @@
 // UTF-8 JSON {name: {dtype, shape, data_offsets: [begin, end]}, "__metadata__": {string: string}}, then the
 // tensors' bytes back to back with no holes; offsets are relative to the first byte after the header.
 import { DataType, type DataTypeCode } from '../graph/ir.js';
-import type { BundleTensor } from './bundle.js';
+import type { BundleTensor } from './bundle-tensor.js';
 
 const DTYPES: Record<number, string> = {
   [DataType.FLOAT]: 'F32', [DataType.DOUBLE]: 'F64', [DataType.FLOAT16]: 'F16', [DataType.BFLOAT16]: 'BF16',

@@ -1,0 +1,24 @@
+// Tensor bytes may still sit in the model file when a tensor is decoded (the reader leaves large payloads on
+// disk until something needs them). The graph layer only needs two calls for that; the file layer that knows
+// where the bytes are (src/onnx/sparse-read.ts) installs them, so the graph imports nothing from the file layer.
+
+export interface ByteBacking {
+  /** Bring a view's bytes into memory (and apply changes deferred on them) before they are read. */
+  ensureLoaded(view: Uint8Array): void;
+  /** The view was overwritten in memory: its bytes no longer come from the file. */
+  markLoaded(view: Uint8Array): void;
+}
+
+let backing: ByteBacking | undefined;
+
+export function setByteBacking(b: ByteBacking): void {
+  backing = b;
+}
+
+export function ensureLoaded(view: Uint8Array): void {
+  backing?.ensureLoaded(view);
+}
+
+export function markLoaded(view: Uint8Array): void {
+  backing?.markLoaded(view);
+}
