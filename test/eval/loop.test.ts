@@ -80,6 +80,61 @@ describe('Loop vs onnxruntime-node', () => {
     }
   });
 
+  it('nested loops: the inner body reads the outer body\'s values and the graph\'s (seeded)', async () => {
+    for (let seed = 31; seed <= 34; seed++) {
+      const r = rng(seed);
+      const n = 1 + Math.floor(r() * 4);
+      // inner body: acc' = acc * 0.5 + x_outer (outer body's carried value) + fo (outer iteration as float)
+      const inner = new GraphBuilder('inner');
+      inner.input('j', [], T.INT64);
+      inner.input('cj', [], T.BOOL);
+      inner.input('acc', undefined, T.FLOAT);
+      inner.node('Mul', ['acc', 'half'], {}, { outputs: ['ah'] });
+      inner.node('Add', ['ah', 'xo'], {}, { outputs: ['ax'] });
+      inner.node('Add', ['ax', 'fo'], {}, { outputs: ['acc2'] });
+      inner.node('Identity', ['cj'], {}, { outputs: ['cj2'] });
+      inner.output('cj2', [], T.BOOL);
+      inner.output('acc2', undefined, T.FLOAT);
+      inner.output('ax', undefined, T.FLOAT);
+      // outer body: xo' = tanh(inner loop's result), scan output: the inner loop's scan output
+      const outer = new GraphBuilder('outer');
+      outer.input('i', [], T.INT64);
+      outer.input('ci', [], T.BOOL);
+      outer.input('xo', undefined, T.FLOAT);
+      outer.node('Cast', ['i'], { to: T.FLOAT }, { outputs: ['fo'] });
+      outer.node('Loop', ['K', '', 'start'], { body: inner }, { outputs: ['accK', 'axs'] });
+      outer.node('Tanh', ['accK'], {}, { outputs: ['xo2'] });
+      outer.node('Identity', ['ci'], {}, { outputs: ['ci2'] });
+      outer.output('ci2', [], T.BOOL);
+      outer.output('xo2', undefined, T.FLOAT);
+      outer.output('axs', undefined, T.FLOAT);
+      const g = new GraphBuilder();
+      g.input('x', [n]);
+      g.input('start', [n]);
+      g.output('xf');
+      g.output('all');
+      g.init('half', [], [0.5]);
+      g.init('K', [], [1 + Math.floor(r() * 3)], T.INT64);
+      g.init('M', [], [1 + Math.floor(r() * 3)], T.INT64);
+      g.node('Loop', ['M', '', 'x'], { body: outer }, { outputs: ['xf', 'all'] });
+      const bytes = modelBytes(g, { opset: 13 });
+      const x = randn(r, n), start = randn(r, n);
+      const ref = await runOrt(bytes, { x: { dims: [n], data: x }, start: { dims: [n], data: start } });
+      const m = parseModel(bytes, '.');
+      for (const precision of ['float64', 'float32'] as const) {
+        const out = runModel(m, new Map<string, Value>([
+          ['x', { type: T.FLOAT, dims: [n], data: Float64Array.from(x) }],
+          ['start', { type: T.FLOAT, dims: [n], data: Float64Array.from(start) }],
+        ]), { precision });
+        for (const name of ['xf', 'all']) {
+          expect(out.get(name)!.dims, `seed ${seed} ${name}`).toEqual(ref[name]!.dims);
+          const d = ref[name]!.data;
+          for (let k = 0; k < d.length; k++) expect(Math.abs(out.get(name)!.data[k]! - d[k]!), `seed ${seed} ${precision} ${name} ${k}`).toBeLessThanOrEqual(1e-5 * Math.max(1, Math.abs(d[k]!)));
+        }
+      }
+    }
+  });
+
   it(`stops a loop with no trip count and a condition that never turns false after ${MAX_LOOP_ITERATIONS} iterations`, () => {
     const b = new GraphBuilder('body');
     b.input('i', [], T.INT64);
