@@ -9,6 +9,7 @@ import { attrInt } from '../../graph/ir.js';
 import { badModel, unsupported } from '../attrs.js';
 import type { Kernel, KernelContext, Value } from '../value.js';
 import { alloc, elementCount, need } from './common.js';
+import { checkMade, checkSteps } from '../limits.js';
 
 /** cos and sin of 2 pi m / n for m in [0, n): exact per entry, indexed by (k * j) mod n. */
 export function twiddles(n: number): { cos: Float64Array; sin: Float64Array } {
@@ -57,6 +58,8 @@ function dft(x: Value, lengthIn: Value | undefined, axisGiven: number, ctx: Kern
   const outDims = [...x.dims.slice(0, r - 1), 2];
   outDims[axis] = bins;
   const outer = elementCount(x.dims.slice(0, axis)), inner = elementCount(x.dims.slice(axis + 1, r - 1));
+  checkMade(ctx, elementCount(outDims), 'the DFT output');
+  checkSteps(ctx, outer * inner * bins * Math.min(len, n), 'the DFT');
   const y = alloc(x.type, elementCount(outDims), ctx);
   const tw = twiddles(n);
   const re = new Float64Array(len), im = new Float64Array(len);

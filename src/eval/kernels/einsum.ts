@@ -6,6 +6,7 @@ import { attrString } from '../../graph/ir.js';
 import { badModel } from '../attrs.js';
 import type { Kernel, KernelContext, NumArray, Value } from '../value.js';
 import { alloc, elementCount, isIntegerType, wrapAll } from './common.js';
+import { checkSteps } from '../limits.js';
 
 /** Parsed term: letter labels, and where the ellipsis sits (index into labels) if any. */
 interface Term { labels: string[]; ellipsisAt: number }
@@ -91,6 +92,7 @@ function run(inputs: Array<Value | undefined>, ctx: KernelContext): Value[] {
   const nOut = elementCount(outDims);
   const y = alloc(type, nOut, ctx);
   const total = elementCount(dims);
+  checkSteps(ctx, total * ops.length, `equation '${eq}'`);
   if (total > 0) contract(ops.map((v) => v.data), strides, dims, summed.length > 0, elementCount(dims.slice(out.length)), y);
   if (isIntegerType(type)) wrapAll(type, y);
   return [{ type, dims: outDims, data: y }];

@@ -8,6 +8,7 @@ import { badModel } from '../attrs.js';
 import type { Kernel, KernelContext, Value } from '../value.js';
 import { DataType, need } from './common.js';
 import { castValue } from './cast.js';
+import { checkMade } from '../limits.js';
 
 function scalar(inputs: Array<Value | undefined>, i: number, what: string, ctx: KernelContext): number {
   const v = need(inputs, i, ctx);
@@ -23,6 +24,7 @@ function run(inputs: Array<Value | undefined>, ctx: KernelContext): Value[] {
   if (mels < 1 || dftLength < 1 || rate < 1) throw badModel(ctx, 'num_mel_bins, dft_length and sample_rate must be positive');
   if (!(lower >= 0 && lower <= upper)) throw badModel(ctx, `edges ${lower} and ${upper} Hz are not 0 <= lower <= upper`);
   const specBins = Math.floor(dftLength / 2) + 1;
+  checkMade(ctx, specBins * mels, 'the mel weight matrix');
   const toMel = (hz: number) => 2595 * Math.log10(1 + hz / 700);
   const lowMel = toMel(lower), highMel = toMel(upper);
   const step = (highMel - lowMel) / (mels + 2);

@@ -6,6 +6,7 @@ import { attrInt } from '../../graph/ir.js';
 import { badModel } from '../attrs.js';
 import type { Kernel, KernelContext, Value } from '../value.js';
 import { alloc, need } from './common.js';
+import { checkSteps } from '../limits.js';
 import { dftLine, twiddles } from './dft.js';
 
 function scalar(v: Value, what: string, ctx: KernelContext): number {
@@ -27,6 +28,7 @@ function run(inputs: Array<Value | undefined>, ctx: KernelContext): Value[] {
   const onesided = attrInt(ctx.node, 'onesided', 1) !== 0;
   const frames = Math.floor((sigLen - frameLen) / step) + 1;
   const bins = onesided ? Math.floor(frameLen / 2) + 1 : frameLen;
+  checkSteps(ctx, batch * frames * bins * frameLen, 'the STFT');
   const y = alloc(x.type, batch * frames * bins * 2, ctx);
   const tw = twiddles(frameLen);
   const re = new Float64Array(frameLen), im = new Float64Array(frameLen);

@@ -8,6 +8,7 @@ import { badModel } from '../attrs.js';
 import type { Kernel, Value } from '../value.js';
 import { DataType, need } from './common.js';
 import { castValue } from './cast.js';
+import { checkMade } from '../limits.js';
 
 function windowKernel(op: string, a0: number, a1: number, a2: number): Kernel {
   return {
@@ -17,6 +18,7 @@ function windowKernel(op: string, a0: number, a1: number, a2: number): Kernel {
       if (s.data.length !== 1) throw badModel(ctx, 'size must be a scalar');
       const size = Math.trunc(s.data[0]!);
       if (size < 1) throw badModel(ctx, `size ${size} is not positive`);
+      checkMade(ctx, size, 'the window');
       const periodic = attrInt(ctx.node, 'periodic', 1) !== 0;
       const N = periodic ? size : size - 1;
       const w = new Float64Array(size);
