@@ -4,7 +4,7 @@
 import { DataType, elementCount, type Tensor } from '../graph/ir.js';
 import { tensorToFloat64 } from '../graph/tensor.js';
 import { setTensorValues, touch } from '../graph/edit.js';
-import { deferTransform, ensureLoaded, isOnDisk, scanView } from '../onnx/sparse-read.js';
+import { deferTransform, ensureLoaded, isOnDisk, peekBytes, scanView } from '../onnx/sparse-read.js';
 import { scaleRawFloat32, scaleWeights, type ChannelMap } from './weights.js';
 
 function rawFloat32(t: Tensor): Uint8Array | undefined {
@@ -14,8 +14,9 @@ function rawFloat32(t: Tensor): Uint8Array | undefined {
 }
 
 /** A Float32Array over raw bytes: a view when aligned, else an aligned copy (Buffer.slice would only be a view). */
-function float32Of(bytes: Uint8Array): { f32: Float32Array; copied: boolean } {
-  ensureLoaded(bytes); // large payloads may still be on disk (see src/onnx/sparse-read.ts)
+function float32Of(view: Uint8Array): { f32: Float32Array; copied: boolean } {
+  // large payloads may still be on disk (see src/onnx/sparse-read.ts): read for this use, not kept in memory
+  const bytes = peekBytes(view);
   const n = bytes.byteLength / 4;
   if ((bytes.byteOffset & 3) === 0) return { f32: new Float32Array(bytes.buffer, bytes.byteOffset, n), copied: false };
   const aligned = new Uint8Array(bytes.byteLength);
