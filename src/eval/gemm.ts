@@ -8,7 +8,7 @@
 // layout for a fast scalar matrix multiply. Sums are in float64; a Float32Array C rounds once per k-block.
 import type { NumArray } from './value.js';
 import { simdKernels, type SimdKernels } from './wasm-gemm.js';
-import { isConstant } from './pool.js';
+import { isLasting } from './pool.js';
 
 export interface Operand {
   data: NumArray;
@@ -235,7 +235,7 @@ function gemmSimd(simd: SimdKernels, M: number, N: number, K: number, A: Operand
   const kern = f64 ? simd.k64 : simd.k32;
   const ad = A.data, ars = A.rs, acs = A.cs, bd = B.data, brs = B.rs, bcs = B.cs;
   // pack A: tile t holds rows 4t..4t+3, k-major
-  const aKey = isConstant(ad) ? `${A.off},${ars},${acs},${M},${K},${es}` : undefined;
+  const aKey = isLasting(ad) ? `${A.off},${ars},${acs},${M},${K},${es}` : undefined;
   const aCached = aKey === undefined ? undefined : packedA.get(ad)?.get(aKey);
   if (aCached) mem.set(aCached, 0);
   let q = 0;

@@ -148,6 +148,9 @@ export function scaleTensor(t: Tensor, map: ChannelMap, scale: Float64Array, inP
       const m = scaleRawFloat32(bytes, map, scale, true); // (not inside guard?.(): that would skip it)
       guard?.(m);
     }
+    // a new storage object over the same bytes: values decoded from the old one (the evaluator keeps small decoded
+    // tensors by storage object) must not be taken for the scaled ones
+    t.storage = { ...t.storage };
     touch(t);
     return;
   }
