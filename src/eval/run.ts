@@ -252,8 +252,8 @@ export function runGraph(graph: Graph, inputs: Map<string, Value>, opts: GraphRu
   return run.outputs();
 }
 
-/** Evaluate a whole model. inputs: graph inputs by name (initializer-backed inputs default to the initializer). Returns graph outputs in graph order. */
-export function runModel(model: Model, inputs: Map<string, Value>, opts: RunOptions): Map<string, Value> {
+/** A model's graph, inputs and opset lookup, checked for a run (see runModel). */
+export function prepareRun(model: Model, inputs: Map<string, Value>): { graph: Graph; given: Map<string, Value>; opsetOf: (domain: string) => number } {
   const g = model.graph;
   const inits = new Set(g.initializers.map((t) => t.name));
   for (const i of g.inputs) {
@@ -279,5 +279,11 @@ export function runModel(model: Model, inputs: Map<string, Value>, opts: RunOpti
     if (v === undefined) throw new PleatError('bad-model', `the model uses domain '${domain || 'ai.onnx'}' but imports no opset for it`);
     return v;
   };
-  return runGraph(g, given, { precision: opts.precision, opsetOf });
+  return { graph: g, given, opsetOf };
+}
+
+/** Evaluate a whole model. inputs: graph inputs by name (initializer-backed inputs default to the initializer). Returns graph outputs in graph order. */
+export function runModel(model: Model, inputs: Map<string, Value>, opts: RunOptions): Map<string, Value> {
+  const { graph, given, opsetOf } = prepareRun(model, inputs);
+  return runGraph(graph, given, { precision: opts.precision, opsetOf });
 }

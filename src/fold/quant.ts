@@ -11,7 +11,7 @@ import { attrInt } from '../graph/ir.js';
 import type { LedgerEntry } from './types.js';
 import { buildScopes, constantOf, labelOf, type Scope } from './scope.js';
 import { layouts, weightView, type ChannelMap } from './weights.js';
-import { tensorToFloat64 } from '../graph/tensor.js';
+import { weightSource } from './values.js';
 
 /** Quantization readiness of one folded layer (Nagel et al. 2019, arXiv:1906.04721). */
 export interface QuantRow {
@@ -36,7 +36,7 @@ export interface QuantRow {
 export const SPREAD_LIMIT = 16;
 
 /** max - min of each output channel's weights (`channelOf` says which channel each element belongs to). */
-export function channelRanges(values: Float64Array, channelOf: ChannelMap, channels: number): Float64Array {
+export function channelRanges(values: Float32Array | Float64Array, channelOf: ChannelMap, channels: number): Float64Array {
   const lo = new Float64Array(channels).fill(Infinity);
   const hi = new Float64Array(channels).fill(-Infinity);
   for (let e = 0, i = 0; e < channelOf.of.length; e++) {
@@ -63,7 +63,7 @@ export function spreadOf(ranges: Float64Array): number {
   return max / median;
 }
 
-interface LayerWeights { values: Float64Array; dims: number[]; map: ChannelMap; channels: number }
+interface LayerWeights { values: Float32Array | Float64Array; dims: number[]; map: ChannelMap; channels: number }
 
 /** The weight of a Conv/ConvTranspose/Gemm/MatMul node with its output-channel map, or undefined. */
 function layerWeights(scope: Scope, n: Node): LayerWeights | undefined {
@@ -71,7 +71,7 @@ function layerWeights(scope: Scope, n: Node): LayerWeights | undefined {
   if (!w) return undefined;
   const dims = [...w.tensor.dims];
   const v = weightView(dims);
-  const values = tensorToFloat64(w.tensor);
+  const values = weightSource(w.tensor); // float32 weights as they are stored (exact), read for this use only
   switch (n.opType) {
     case 'Conv': // W [Cout, Cin/group, k...]: output channel axis 0
       if (dims.length < 3) return undefined;

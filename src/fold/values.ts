@@ -1,7 +1,7 @@
 // Reading and writing the big weights. Float32 raw data (the common case) is read through a Float32Array view
 // and scaled where it lies, each product computed in float64 and rounded once on store, with no float64 copy
 // of the whole tensor; other types and storage forms go through the general codecs in src/graph/tensor.ts.
-import { DataType, elementCount, type Tensor } from '../graph/ir.js';
+import { DataType, elementCount, type Tensor, type TensorStorage } from '../graph/ir.js';
 import { tensorToFloat64 } from '../graph/tensor.js';
 import { setTensorValues, touch } from '../graph/edit.js';
 import { deferTransform, ensureLoaded, isOnDisk, peekBytes, scanView } from '../onnx/sparse-read.js';
@@ -151,6 +151,15 @@ export function scaleTensor(t: Tensor, map: ChannelMap, scale: Float64Array, inP
     // a new storage object over the same bytes: values decoded from the old one (the evaluator keeps small decoded
     // tensors by storage object) must not be taken for the scaled ones
     t.storage = { ...t.storage };
+    touch(t);
+    return;
+  }
+  if (bytes) {
+    // a scaled copy in the tensor's own float32 bytes: each product in float64, rounded once on store, as above
+    const copy = new Uint8Array(peekBytes(bytes));
+    guard?.(scaleFloat32Block(copy, 0, map, scale, true));
+    const s = t.storage as Extract<TensorStorage, { kind: 'raw' | 'external' }>;
+    t.storage = s.kind === 'raw' ? { kind: 'raw', bytes: copy } : { kind: 'external', entries: s.entries, bytes: copy };
     touch(t);
     return;
   }

@@ -1,6 +1,7 @@
 // The fold job: read -> fold (each fold proven on its region) -> optional half-precision storage ->
 // whole-model check -> write -> report. A failing whole-model gate writes nothing.
-import type { Model } from '../graph/ir.js';
+import { DataType, attrInt, type Model } from '../graph/ir.js';
+import { eachGraph } from '../fold/scope.js';
 import { readModelFile } from '../onnx/read.js';
 import { writeModelFile } from '../onnx/write.js';
 import { storeFloat16 } from '../ship/store-float16.js';
@@ -14,6 +15,30 @@ import { PleatError } from '../errors.js';
 import { quantReadiness } from '../fold/quant.js';
 import { SCHEMA_VERSION, type CheckSummary, type FoldJobOptions, type FoldReport, type StorageSummary } from './types.js';
 
+/** Whether a model computes in float64 anywhere (a double input, output, weight, declared value or Cast to double). */
+export function computesInFloat64(model: Model): boolean {
+  let found = false;
+  eachGraph(model.graph, (g) => {
+    if (found) return;
+    const vis = [...g.inputs, ...g.outputs, ...g.valueInfo];
+    if (vis.some((v) => v.elemType === DataType.DOUBLE) || g.initializers.some((t) => t.dataType === DataType.DOUBLE)) { found = true; return; }
+    for (const n of g.nodes) {
+      if ((n.opType === 'Cast' && attrInt(n, 'to', 0) === DataType.DOUBLE)
+        || n.attributes.some((a) => a.value.type === 'TENSOR' && a.value.t.dataType === DataType.DOUBLE)) { found = true; return; }
+    }
+  });
+  return found;
+}
+
+/**
+ * The arithmetic of fold's whole-model check: float32, as a deployment runtime computes, so the check costs
+ * about what one inference of each model costs; float64 for a model that computes in float64 (its gate is
+ * 1e-9, which float32 rounding alone would fail). The per-fold proofs are float64 either way.
+ */
+export function checkArithmetic(model: Model): 'float32' | 'float64' {
+  return computesInFloat64(model) ? 'float64' : 'float32';
+}
+
 /** Compare the original and the folded model on seeded probes; skipped (not failed) when shapes are unknown. */
 export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOptions & { halfGate?: boolean }): CheckSummary {
   const seed = opts.seed ?? 0;
@@ -26,12 +51,13 @@ export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOpt
   const shapes = new Map([...asMap(opts.shapes)].filter(([k]) => inputNames.has(k)));
   try {
     const r = compare(original, folded, {
-      inputs: opts.inputs, shapes, dims, seed, probes, gate, budget: false,
+      inputs: opts.inputs, shapes, dims, seed, probes, gate, budget: false, arithmetic: checkArithmetic(original),
     });
     return {
       passed: r.passed,
       skipped: null,
       probes: r.probes,
+      arithmetic: r.arithmetic,
       seed,
       gates: [...new Set(r.outputs.map((o) => o.gate?.expr).filter((g): g is string => !!g))],
       outputs: r.outputs.map((o) => ({

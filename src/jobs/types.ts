@@ -6,7 +6,7 @@ import type { QuantRow } from '../fold/quant.js';
 
 export type { QuantRow };
 
-export const SCHEMA_VERSION = 1;
+export const SCHEMA_VERSION = 2;
 
 export interface OutputCheck {
   name: string;
@@ -25,6 +25,8 @@ export interface CheckSummary {
   /** Set when no whole-model comparison ran, saying why (e.g. a dynamic dim no flag resolves). */
   skipped: string | null;
   probes: number;
+  /** The arithmetic both models ran in (float32 unless the model computes in float64); absent when skipped. */
+  arithmetic?: 'float32' | 'float64';
   seed: number;
   /** The gate expression used for each output (default per data type unless --gate). */
   gates: string[];

@@ -6,7 +6,7 @@
 import type { DataTypeCode, Model } from '../graph/ir.js';
 import { basename } from 'node:path';
 import type { Precision, Value } from '../eval/value.js';
-import { runModel } from '../eval/run.js';
+import { runLockstep } from '../eval/lockstep.js';
 import { PleatError } from '../errors.js';
 import { dataTypeName } from '../graph/tensor.js';
 import { computeMetrics, worstOf, type Metrics } from './metrics.js';
@@ -20,8 +20,13 @@ export interface CompareOptions extends InputOptions {
   probes?: number;
   /** One gate expression for every output (--gate); default: the gate for each output's element type. */
   gate?: string;
-  /** Also run both models in float32 to measure the error budget; default true. */
+  /** Also run both models in float32 to measure the error budget; default true (float64 arithmetic only). */
   budget?: boolean;
+  /**
+   * The arithmetic both models run in for the judged comparison; default float64 (B in float64 against A in
+   * float64). float32 runs both as a deployment runtime would (fold's default check: see checkArithmetic).
+   */
+  arithmetic?: Precision;
 }
 
 export const DEFAULT_PROBES = 3;
@@ -68,6 +73,8 @@ export interface OutputComparison {
 
 export interface CompareReport {
   passed: boolean;
+  /** The arithmetic of the judged runs. */
+  arithmetic: Precision;
   seed: number;
   /** Input sets actually run. */
   probes: number;
@@ -108,23 +115,19 @@ function checkCandidateInputs(b: Model, first: Map<string, Value>): void {
   }
 }
 
-/** Run a model, prefixing any expected failure with which model it was ("model B (folded.onnx): ..."). */
-function runLabelled(model: Model, side: 'A' | 'B', inputs: Map<string, Value>, precision: Precision): Map<string, Value> {
-  try {
-    return runModel(model, inputs, { precision });
-  } catch (e) {
-    if (e instanceof PleatError) {
-      const file = model.sourcePath ? ` (${basename(model.sourcePath)})` : '';
-      throw new PleatError(e.kind, `model ${side}${file}, ${precision} run: ${e.message}`);
-    }
-    throw e;
-  }
+/** Prefix an expected failure with which model it was ("model B (folded.onnx), float64 run: ..."). */
+function labelled(e: unknown, model: Model, side: 'A' | 'B', precision: Precision): unknown {
+  if (!(e instanceof PleatError)) return e;
+  const file = model.sourcePath ? ` (${basename(model.sourcePath)})` : '';
+  return new PleatError(e.kind, `model ${side}${file}, ${precision} run: ${e.message}`);
 }
 
 /** Run A and B on the same inputs and judge each output against its gate. Never throws for disagreeing outputs. */
 export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareReport {
   const seed = opts.seed ?? 0;
-  const budget = opts.budget ?? true;
+  const arithmetic: Precision = opts.arithmetic ?? 'float64';
+  // the budget measures float32 runs against float64 ones: nothing to measure when the judged runs are float32
+  const budget = arithmetic === 'float64' && (opts.budget ?? true);
   const available = budget ? [...METRIC_NAMES, ...BUDGET_NAMES] : [...METRIC_NAMES];
   const userGate = opts.gate !== undefined ? parseGate(opts.gate, available) : undefined;
   const requested = opts.probes ?? DEFAULT_PROBES;
@@ -146,13 +149,20 @@ export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareR
   const onlyB = new Map<string, Value>();
   const onlyA = new Map<string, Value>();
 
+  const probeInputs = Array.from({ length: probes }, (_, p) => makeProbe(specs, seed, p));
+  checkCandidateInputs(b, probeInputs[0]!);
+  // Both models run together, node by node, on every probe at once (src/eval/lockstep.ts): A and B in the judged
+  // arithmetic, then (for the error budget) both again in float32.
+  const sides: Array<{ model: Model; side: 'A' | 'B'; precision: Precision }> = [
+    { model: a, side: 'A', precision: arithmetic }, { model: b, side: 'B', precision: arithmetic },
+  ];
+  if (budget) sides.push({ model: a, side: 'A', precision: 'float32' }, { model: b, side: 'B', precision: 'float32' });
+  const results = runLockstep(sides.map((x) => ({ model: x.model, precision: x.precision, probes: probeInputs })),
+    (e, i) => labelled(e, sides[i]!.model, sides[i]!.side, sides[i]!.precision));
   for (let p = 0; p < probes; p++) {
-    const inputs = makeProbe(specs, seed, p);
-    if (p === 0) checkCandidateInputs(b, inputs);
-    const ra = runLabelled(a, 'A', inputs, 'float64');
-    const rb = runLabelled(b, 'B', inputs, 'float64');
-    const ra32 = budget ? runLabelled(a, 'A', inputs, 'float32') : undefined;
-    const rb32 = budget ? runLabelled(b, 'B', inputs, 'float32') : undefined;
+    const ra = results[0]![p]!, rb = results[1]![p]!;
+    const ra32 = budget ? results[2]![p] : undefined;
+    const rb32 = budget ? results[3]![p] : undefined;
     if (p === 0) {
       for (const o of aOut) if (!bOut.has(o.name)) onlyA.set(o.name, ra.get(o.name)!);
       for (const o of b.graph.outputs) if (!aNames.has(o.name)) onlyB.set(o.name, rb.get(o.name)!);
@@ -210,7 +220,7 @@ export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareR
     outputs.push({ name, status: 'only-in-b', dtype: dataTypeName(v.type), dims: [...v.dims], passed: false,
       problem: `model A has no output '${name}'` });
   }
-  return { passed: outputs.every((o) => o.passed), seed, probes, budget, inputs: summarizeInputs(specs), outputs };
+  return { passed: outputs.every((o) => o.passed), arithmetic, seed, probes, budget, inputs: summarizeInputs(specs), outputs };
 }
 
 /**
