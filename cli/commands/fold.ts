@@ -6,7 +6,7 @@ import type { FoldJobOptions } from '../../src/jobs/types.js';
 import { keepList, loadConfig, runSettings } from '../config.js';
 import type { Job } from '../batch.js';
 import { planReports, runAndReport } from '../output.js';
-import { configFlags, EPILOGUE, inputFlags, many, reportFlags } from '../flags.js';
+import { configFlags, EPILOGUE, inputFlags, many, reportFlags, threadsFlag } from '../flags.js';
 
 export const command = 'fold <models..>';
 export const describe = 'Fold every normalization it safely can, prove each fold, write the folded model, print the ledger';
@@ -28,7 +28,7 @@ export function builder(y: Argv) {
 }
 
 interface Flags {
-  models: string[]; out?: string; outDir?: string; keep?: string[]; allowOverridable: boolean; externalDataMin?: number; store?: 'float16'; gate?: string; probes?: number; seed?: number; unproven: boolean;
+  models: string[]; out?: string; outDir?: string; keep?: string[]; allowOverridable: boolean; externalDataMin?: number; store?: 'float16'; gate?: string; probes?: number; seed?: number; unproven: boolean; threads?: number;
   input?: string[]; shape?: string[]; dim?: string[]; json?: boolean; format?: string; report?: string[]; config?: string; quiet: boolean;
 }
 
@@ -59,7 +59,7 @@ export async function handler(argv: Flags): Promise<void> {
   const opts: FoldJobOptions = {
     inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, probes: run.probes, gate: run.gate,
     keep: keepList(config, argv.keep), store: argv.store ?? config.store, allowOverridable: argv.allowOverridable,
-    externalThreshold: argv.externalDataMin, noProofs: argv.unproven,
+    externalThreshold: argv.externalDataMin, noProofs: argv.unproven, threads: threadsFlag(argv.threads),
   };
   const jobs: Job[] = argv.models.map((model, i) => ({ command: 'fold', model, output: outputs[i]!, opts }));
   await runAndReport('fold', jobs, plan, argv.quiet);

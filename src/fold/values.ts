@@ -157,7 +157,8 @@ export function scaleTensor(t: Tensor, map: ChannelMap, scale: Float64Array, inP
   if (bytes) {
     // a scaled copy in the tensor's own float32 bytes: each product in float64, rounded once on store, as above
     const copy = new Uint8Array(peekBytes(bytes));
-    guard?.(scaleFloat32Block(copy, 0, map, scale, true));
+    const m = scaleFloat32Block(copy, 0, map, scale, true); // (not inside guard?.(): that would skip it)
+    guard?.(m);
     const s = t.storage as Extract<TensorStorage, { kind: 'raw' | 'external' }>;
     t.storage = s.kind === 'raw' ? { kind: 'raw', bytes: copy } : { kind: 'external', entries: s.entries, bytes: copy };
     touch(t);

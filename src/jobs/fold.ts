@@ -12,6 +12,7 @@ import { compare } from '../verify/compare.js';
 import { DEFAULT_GATES } from '../verify/gate.js';
 import { asMap, dimSymbols } from '../verify/inputs.js';
 import { PleatError } from '../errors.js';
+import { setThreads } from '../eval/threads.js';
 import { quantReadiness } from '../fold/quant.js';
 import { SCHEMA_VERSION, type CheckSummary, type FoldJobOptions, type FoldReport, type StorageSummary } from './types.js';
 
@@ -112,6 +113,7 @@ export function foldLoaded(model: Model, original: Model | undefined, label: str
 
 /** Read INPUT, fold, prove, and write OUTPUT unless a gate fails. The input file is never modified. */
 export function foldFile(input: string, output: string, opts: FoldJobOptions = {}): FoldReport {
+  if (opts.threads !== undefined) setThreads(opts.threads);
   try {
     return foldFileOnce(input, output, opts, true);
   } catch (e) {

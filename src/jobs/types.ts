@@ -85,6 +85,8 @@ export interface FoldJobOptions extends InputOptions {
   noProofs?: boolean;
   /** Tensors of at least this many bytes go to a side file. */
   externalThreshold?: number;
+  /** Threads for Conv, Gemm and MatMul in the proofs and the check (default: the available cores). */
+  threads?: number;
 }
 
 export interface AuditJobOptions {
