@@ -23,7 +23,7 @@ export type LockstepSide = (
 export function runLockstep(sides: LockstepSide[], wrap: (e: unknown, side: number) => unknown = (e) => e): Array<Array<Map<string, Value>>> {
   const state = sides.map((s, i) => {
     try {
-      const weights = new WeightCache();
+      const weights = new WeightCache(true);
       const runs = s.probes.map((inputs) => {
         const { graph, given, opsetOf } = 'model' in s ? prepareRun(s.model, inputs) : { graph: s.graph, given: inputs, opsetOf: s.opsetOf };
         return new GraphRun(graph, given, { precision: s.precision, opsetOf, weights });

@@ -57,16 +57,24 @@ function decodeFor(t: Tensor, precision: Precision): NumArray {
  */
 export class WeightCache {
   private readonly held = new Map<Tensor, NumArray>();
+  /** `shared`: the cache is the only one its runs use (no decoded tensor is kept across steps at all). */
+  constructor(readonly shared = false) {}
   get(t: Tensor, precision: Precision): NumArray {
     let d = this.held.get(t);
-    if (!d) { d = decodeFor(t, precision); markTransient(d); this.held.set(t, d); }
+    if (!d) {
+      d = decodeFor(t, precision);
+      // only large weights are marked (a weak set of every small tensor of a large graph costs the collector
+      // more than the whole evaluation); a kernel never writes over a decoded tensor, which is not pooled
+      if (elementCount(t.dims) > KEEP_DECODED_MAX) markTransient(d);
+      this.held.set(t, d);
+    }
     return d;
   }
   clear(): void { this.held.clear(); }
 }
 
 function initializerValue(t: Tensor, precision: Precision, weights: WeightCache): Value {
-  if (elementCount(t.dims) > KEEP_DECODED_MAX) return { type: t.dataType, dims: [...t.dims], data: weights.get(t, precision) };
+  if (weights.shared || elementCount(t.dims) > KEEP_DECODED_MAX) return { type: t.dataType, dims: [...t.dims], data: weights.get(t, precision) };
   const key = t.dims.join(',');
   let d = decoded.get(t.storage);
   if (!d || d.dims !== key || d.type !== t.dataType) { d = { dims: key, type: t.dataType }; decoded.set(t.storage, d); }
@@ -238,7 +246,7 @@ export class GraphRun {
       const v = this.lookup(o.name);
       if (!v) throw new PleatError('bad-model', `graph '${this.graph.name}': output '${o.name}' is never computed`);
       // a decoded initializer handed to the caller is a copy, so the caller may change it freely
-      out.set(o.name, isConstant(v.data) ? { ...v, data: v.data.slice() } : v);
+      out.set(o.name, isConstant(v.data) || (!this.env.has(o.name) && this.inits.has(o.name)) ? { ...v, data: v.data.slice() } : v);
     }
     if (this.ownWeights) this.weights.clear();
     return out;

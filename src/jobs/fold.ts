@@ -83,13 +83,16 @@ export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOpt
  * Fold a model in memory (no files): returns the report; `model` is changed in place. `lateRangeCheck` is for
  * callers that can read the model again (see FoldOptions.lateRangeCheck).
  */
-export function foldLoaded(model: Model, original: Model | undefined, label: string, opts: FoldJobOptions, lateRangeCheck = false): FoldReport {
+export function foldLoaded(model: Model, originalOrRead: Model | (() => Model) | undefined, label: string, opts: FoldJobOptions, lateRangeCheck = false): FoldReport {
   const { ledger } = foldModel(model, {
     keep: opts.keep,
     allowOverridable: opts.allowOverridable,
     lateRangeCheck,
     prove: opts.noProofs ? undefined : (c) => proveFold(c, { seed: opts.seed }).passed,
   });
+  // the reference may be read only now: a second copy of a large graph held through every proof makes each
+  // garbage collection of the proofs' small allocations walk it too
+  const original = typeof originalOrRead === 'function' ? originalOrRead() : originalOrRead;
   let storage: StorageSummary | null = null;
   if (opts.store === 'float16') {
     const r = storeFloat16(model);
@@ -126,9 +129,9 @@ export function foldFile(input: string, output: string, opts: FoldJobOptions = {
 
 function foldFileOnce(input: string, output: string, opts: FoldJobOptions, lateRangeCheck: boolean): FoldReport {
   const model = readModelFile(input);
-  // A second, untouched copy is the reference for the whole-model check and the quantization report.
-  const original = opts.noProofs ? undefined : readModelFile(input);
-  const report = foldLoaded(model, original, input, opts, lateRangeCheck);
+  // A second, untouched copy is the reference for the whole-model check and the quantization report, read once
+  // the folds are done (the input file is never written, so it still holds the original).
+  const report = foldLoaded(model, opts.noProofs ? undefined : () => readModelFile(input), input, opts, lateRangeCheck);
   if (!report.failed) {
     writeModelFile(model, output, { externalThreshold: opts.externalThreshold });
     report.output = output;
