@@ -18,6 +18,9 @@ export function setThreads(n: number): void {
 
 export function threadCount(): number { return wanted; }
 
+/** How long a band may take without any band finishing before the wait gives up (a dead worker). */
+const STALL_MS = 10 * 60_000;
+
 /** Products smaller than this many multiply-adds stay on the calling thread (a hand-off costs about 0.1 ms). */
 export const PARALLEL_MIN_WORK = 1 << 22;
 
@@ -89,8 +92,16 @@ export function inBands(M: number, threads: number, job: Omit<BandJob, 'i0' | 'i
   others.forEach(([i0, i1], k) => ws[k]!.postMessage({ ...job, i0, i1, done } satisfies BandJob));
   posted += others.length;
   own(bands[0]![0], bands[0]![1]);
-  // wait for every worker band (flag[0] counts finished bands, flag[1] counts failures)
-  for (let seen = Atomics.load(flag, 0); seen < others.length; seen = Atomics.load(flag, 0)) Atomics.wait(flag, 0, seen, 60_000);
+  // wait for every worker band (flag[0] counts finished bands, flag[1] counts failures); a worker that died
+  // without counting its band (it cannot report while this thread waits) ends the wait after STALL_MS
+  let idle = 0;
+  for (let seen = Atomics.load(flag, 0); seen < others.length;) {
+    if (Atomics.wait(flag, 0, seen, 1000) === 'timed-out') idle += 1000; else idle = 0;
+    const now = Atomics.load(flag, 0);
+    if (now !== seen) idle = 0;
+    seen = now;
+    if (idle >= STALL_MS) throw new Error('a matrix-product worker thread stopped answering');
+  }
   if (Atomics.load(flag, 1) > 0) throw new Error('a matrix-product worker thread failed');
 }
 

@@ -1,7 +1,6 @@
 // The fold job: read -> fold (each fold proven on its region) -> optional half-precision storage ->
 // whole-model check -> write -> report. A failing whole-model gate writes nothing.
-import { DataType, attrInt, type Model } from '../graph/ir.js';
-import { eachGraph } from '../fold/scope.js';
+import type { Model } from '../graph/ir.js';
 import { readModelFile } from '../onnx/read.js';
 import { writeModelFile } from '../onnx/write.js';
 import { storeFloat16 } from '../ship/store-float16.js';
@@ -18,29 +17,14 @@ import { equalizeModel } from '../fold/equalize.js';
 import type { Int8Granularity } from '../fold/int8.js';
 import { SCHEMA_VERSION, type CheckSummary, type FoldJobOptions, type FoldReport, type Int8Output, type Int8Simulation, type StorageSummary } from './types.js';
 
-/** Whether a model computes in float64 anywhere (a double input, output, weight, declared value or Cast to double). */
-export function computesInFloat64(model: Model): boolean {
-  let found = false;
-  eachGraph(model.graph, (g) => {
-    if (found) return;
-    const vis = [...g.inputs, ...g.outputs, ...g.valueInfo];
-    if (vis.some((v) => v.elemType === DataType.DOUBLE) || g.initializers.some((t) => t.dataType === DataType.DOUBLE)) { found = true; return; }
-    for (const n of g.nodes) {
-      if ((n.opType === 'Cast' && attrInt(n, 'to', 0) === DataType.DOUBLE)
-        || n.attributes.some((a) => a.value.type === 'TENSOR' && a.value.t.dataType === DataType.DOUBLE)) { found = true; return; }
-    }
-  });
-  return found;
-}
-
 /**
- * The arithmetic of fold's whole-model check: float32, as a deployment runtime computes, so the check costs
- * about what one inference of each model costs; float64 for a model that computes in float64 (its gate is
- * 1e-9, which float32 rounding alone would fail). The per-fold proofs are float64 either way.
+ * The arithmetic of fold's whole-model check: float64, so the default gates judge the fold's own error (the
+ * folded weights' rounding) and not the float32 rounding of two deep models. Measured on the 40-layer
+ * 512-channel benchmark model: both models run in float32 differ by maxRel 4.6e-3 (cosine 1 - 2.6e-11), which is
+ * float32 accumulation over 4,608-term sums in both models, not the fold; in float64 they differ by the folded
+ * weights' rounding alone. compare's `arithmetic: 'float32'` runs the float32 comparison when that is wanted.
  */
-export function checkArithmetic(model: Model): 'float32' | 'float64' {
-  return computesInFloat64(model) ? 'float64' : 'float32';
-}
+export const CHECK_ARITHMETIC = 'float64' as const;
 
 /** Compare the original and the folded model on seeded probes; skipped (not failed) when shapes are unknown. */
 export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOptions & { halfGate?: boolean; sqnr?: number }): CheckSummary {
@@ -50,7 +34,7 @@ export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOpt
   const { dims, shapes } = inputsOf(original, opts);
   try {
     const r = compare(original, folded, {
-      inputs: opts.inputs, shapes, dims, seed, probes, gate, budget: false, arithmetic: checkArithmetic(original), extraMetrics: opts.sqnr !== undefined ? { sqnr: opts.sqnr } : undefined,
+      inputs: opts.inputs, shapes, dims, seed, probes, gate, budget: false, arithmetic: CHECK_ARITHMETIC, extraMetrics: opts.sqnr !== undefined ? { sqnr: opts.sqnr } : undefined,
     });
     return {
       passed: r.passed,

@@ -27,7 +27,7 @@ export interface CheckSummary {
   /** Set when no whole-model comparison ran, saying why (e.g. a dynamic dim no flag resolves). */
   skipped: string | null;
   probes: number;
-  /** The arithmetic both models ran in (float32 unless the model computes in float64); absent when skipped. */
+  /** The arithmetic both models ran in (float64: see CHECK_ARITHMETIC in jobs/fold.ts); absent when skipped. */
   arithmetic?: 'float32' | 'float64';
   seed: number;
   /** The gate expression used for each output (default per data type unless --gate). */
