@@ -4,6 +4,7 @@
 // of each side plus the live activations, whatever the size of the models.
 import type { Graph, Model } from '../graph/ir.js';
 import { GraphRun, WeightCache, prepareRun } from './run.js';
+import { liveBytes, resetLive } from './budget.js';
 import type { Precision, Value } from './value.js';
 
 /** A model (its inputs checked as runModel does), or a bare graph with its opsets (a fold's proof region). */
@@ -21,6 +22,15 @@ export type LockstepSide = (
  * raised it (to name the model in the message) and rethrown as it returns.
  */
 export function runLockstep(sides: LockstepSide[], wrap: (e: unknown, side: number) => unknown = (e) => e): Array<Array<Map<string, Value>>> {
+  const liveAtStart = liveBytes();
+  try {
+    return lockstep(sides, wrap);
+  } finally {
+    resetLive(liveAtStart); // what is returned belongs to the caller; a failed run holds nothing
+  }
+}
+
+function lockstep(sides: LockstepSide[], wrap: (e: unknown, side: number) => unknown): Array<Array<Map<string, Value>>> {
   const state = sides.map((s, i) => {
     try {
       const weights = new WeightCache(true);

@@ -6,6 +6,7 @@ import { peekBytes } from '../graph/lazy-bytes.js';
 import { isFloatType, tensorToFloat64, dataTypeName } from '../graph/tensor.js';
 import { getKernel } from './registry.js';
 import { giveBack, isConstant, isPooled, markConstant, markTransient } from './pool.js';
+import { charge, evaluating, liveBytes, release, resetLive } from './budget.js';
 import type { KernelContext, NumArray, Precision, Value } from './value.js';
 
 export interface RunOptions { precision: Precision; }
@@ -171,8 +172,12 @@ export class GraphRun {
     return o;
   }
 
+  // values alive count against the probe memory limit (budget.ts) while some name holds them
   private hold(v: Value): void {
-    if (isPooled(v.data)) this.holders.set(v.data, (this.holders.get(v.data) ?? 0) + 1);
+    if (!isPooled(v.data)) return;
+    const n = this.holders.get(v.data) ?? 0;
+    if (n === 0) charge(v.data.byteLength);
+    this.holders.set(v.data, n + 1);
   }
 
   private drop(name: string): void {
@@ -183,6 +188,7 @@ export class GraphRun {
     if (n === undefined) return;
     if (n > 1) { this.holders.set(v.data, n - 1); return; }
     this.holders.delete(v.data);
+    release(v.data.byteLength);
     if (!this.foreign.has(v.data)) giveBack(v.data);
   }
 
@@ -192,6 +198,7 @@ export class GraphRun {
     const node = this.graph.nodes[idx]!;
     const { precision, opsetOf } = this.opts;
     const env = this.env, keep = this.keep, lastUse = this.lastUse;
+    evaluating(`node '${node.name || '(unnamed)'}' (${node.opType})`);
     const args: Array<Value | undefined> = node.inputs.map((name) => {
       if (name === '') return undefined;
       const v = this.lookup(name);
@@ -222,7 +229,14 @@ export class GraphRun {
         return this.holders.get(data) === 1 && !this.foreign.has(data);
       },
     };
-    const results = kernel.run(args, ctx);
+    let results: Value[];
+    try {
+      results = kernel.run(args, ctx);
+    } catch (e) {
+      // a typed array the engine cannot allocate is a size the budget check did not see: still the model's doing
+      if (e instanceof RangeError) throw new PleatError('bad-model', `node '${node.name || '(unnamed)'}' (${node.opType}): ${e.message}`);
+      throw e;
+    }
     node.outputs.forEach((name, i) => {
       if (name === '') return;
       const v = results[i];
@@ -255,9 +269,14 @@ export class GraphRun {
 
 /** Evaluate a graph with outer-scope values (for subgraphs and for proving a fragment). */
 export function runGraph(graph: Graph, inputs: Map<string, Value>, opts: GraphRunOptions): Map<string, Value> {
-  const run = new GraphRun(graph, inputs, opts);
-  while (!run.done) run.step();
-  return run.outputs();
+  const liveAtStart = liveBytes();
+  try {
+    const run = new GraphRun(graph, inputs, opts);
+    while (!run.done) run.step();
+    return run.outputs();
+  } finally {
+    resetLive(liveAtStart); // what is returned belongs to the caller; a failed run holds nothing
+  }
 }
 
 /** A model's graph, inputs and opset lookup, checked for a run (see runModel). */

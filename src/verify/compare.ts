@@ -7,6 +7,8 @@ import type { DataTypeCode, Model } from '../graph/ir.js';
 import { basename } from 'node:path';
 import type { Precision, Value } from '../eval/value.js';
 import { runLockstep } from '../eval/lockstep.js';
+import { withProbeMemory } from '../eval/budget.js';
+import { checkProbeEstimate } from './probe-budget.js';
 import { PleatError } from '../errors.js';
 import { dataTypeName } from '../graph/tensor.js';
 import { computeMetrics, worstOf, type Metrics } from './metrics.js';
@@ -24,6 +26,8 @@ export interface CompareOptions extends InputOptions {
   gate?: string;
   /** Also run both models in float32 to measure the error budget; default true (float64 arithmetic only). */
   budget?: boolean;
+  /** Probe memory limit in bytes (--max-probe-memory); default DEFAULT_PROBE_MEMORY (src/eval/budget.ts). */
+  maxProbeMemory?: number;
   /**
    * The arithmetic both models run in for the judged comparison; default float64 (B in float64 against A in
    * float64). float32 runs both as a deployment runtime would (fold's default check: see checkArithmetic).
@@ -135,6 +139,10 @@ function labelled(e: unknown, model: Model, side: 'A' | 'B', precision: Precisio
 
 /** Run A and B on the same inputs and judge each output against its gate. Never throws for disagreeing outputs. */
 export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareReport {
+  return withProbeMemory(opts.maxProbeMemory, () => compareWithin(a, b, opts));
+}
+
+function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport {
   const int8 = opts.simulateInt8 ? roundedWeightsModel(b, opts.simulateInt8) : undefined;
   if (int8) b = int8.model;
   const seed = opts.seed ?? 0;
@@ -151,6 +159,7 @@ export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareR
   checkDimFlags(dims, [a.graph, b.graph]);
   const specs = resolveInputs(a.graph, asMap(opts.inputs), asMap(opts.shapes), dims);
   const probes = specs.every((s) => s.given) ? 1 : requested;
+  checkProbeEstimate(a.graph, specs); // before anything runs: sizes, and the values a probe would make
 
   const aOut = a.graph.outputs;
   const bOut = new Map(b.graph.outputs.map((o) => [o.name, o]));
@@ -165,18 +174,19 @@ export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareR
 
   const probeInputs = Array.from({ length: probes }, (_, p) => makeProbe(specs, seed, p));
   checkCandidateInputs(b, probeInputs[0]!);
-  // Both models run together, node by node, on every probe at once (src/eval/lockstep.ts): A and B in the judged
-  // arithmetic, then (for the error budget) both again in float32.
-  const sides: Array<{ model: Model; side: 'A' | 'B'; precision: Precision }> = [
-    { model: a, side: 'A', precision: arithmetic }, { model: b, side: 'B', precision: arithmetic },
-  ];
-  if (budget) sides.push({ model: a, side: 'A', precision: 'float32' }, { model: b, side: 'B', precision: 'float32' });
-  const results = runLockstep(sides.map((x) => ({ model: x.model, precision: x.precision, probes: probeInputs })),
-    (e, i) => labelled(e, sides[i]!.model, sides[i]!.side, sides[i]!.precision));
+  // A and B run together, node by node (src/eval/lockstep.ts), one probe and one arithmetic at a time: the judged
+  // arithmetic, then (for the error budget) both again in float32. So at most one value set of each model is
+  // alive at once, within the same probe memory limit as a single run of each.
+  const pair = (model: 'judged' | 'float32', inputs: Map<string, Value>) => {
+    const precision: Precision = model === 'judged' ? arithmetic : 'float32';
+    const sides = [{ model: a, side: 'A' as const }, { model: b, side: 'B' as const }];
+    const out = runLockstep(sides.map((x) => ({ model: x.model, precision, probes: [inputs] })),
+      (e, i) => labelled(e, sides[i]!.model, sides[i]!.side, precision));
+    return [out[0]![0]!, out[1]![0]!] as const;
+  };
   for (let p = 0; p < probes; p++) {
-    const ra = results[0]![p]!, rb = results[1]![p]!;
-    const ra32 = budget ? results[2]![p] : undefined;
-    const rb32 = budget ? results[3]![p] : undefined;
+    const [ra, rb] = pair('judged', probeInputs[p]!);
+    const [ra32, rb32] = budget ? pair('float32', probeInputs[p]!) : [undefined, undefined];
     if (p === 0) {
       for (const o of aOut) if (!bOut.has(o.name)) onlyA.set(o.name, ra.get(o.name)!);
       for (const o of b.graph.outputs) if (!aNames.has(o.name)) onlyB.set(o.name, rb.get(o.name)!);
