@@ -9,7 +9,8 @@ import {
   Emitter, WT_LEN, emitBytes, emitFloat, emitInt, emitMessage, emitString,
 } from './wire.js';
 import {
-  attributeSig, graphSig, modelSig, nodeSig, opsetSig, tensorSig, typeSig, valueInfoSig,
+  attributeUnchanged, graphUnchanged, modelUnchanged, nodeUnchanged, opsetUnchanged, tensorUnchanged, typeUnchanged,
+  valueInfoUnchanged, type Kid,
 } from './signature.js';
 import { externalRef } from './external.js';
 import { deferredIn, ensureLoaded, lazySourceOf, pendingIn, reopenSource } from './sparse-read.js';
@@ -104,11 +105,13 @@ function sub(e: Emitter, no: number, p: Piece): void {
   emitMessage(e, no, p.chunks, p.length);
 }
 
-function unchanged(origin: { bytes: Uint8Array; sig: string } | undefined, sig: string, kids: Piece[]): Piece | undefined {
-  if (origin && origin.sig === sig && kids.every((k) => k.same)) {
-    return { chunks: [origin.bytes], length: origin.bytes.byteLength, same: true };
-  }
-  return undefined;
+/** A message re-emitted as the bytes it was read from (the caller checked that nothing changed). */
+function original(origin: { bytes: Uint8Array }): Piece {
+  return { chunks: [origin.bytes], length: origin.bytes.byteLength, same: true };
+}
+
+function kid(p: Piece): Kid {
+  return p.same ? p.chunks[0] : undefined;
 }
 
 class Encoder {
@@ -120,8 +123,7 @@ class Encoder {
     const sameEntries = placed !== undefined && wasExternal &&
       JSON.stringify(placed) === JSON.stringify((t.storage as { entries: unknown }).entries);
     if ((placed === undefined && !wasExternal) || sameEntries) {
-      const u = unchanged(t.origin, tensorSig(t), []);
-      if (u) return u;
+      if (tensorUnchanged(t)) return original(t.origin!);
     }
     const e = new Emitter();
     const s = t.storage;
@@ -168,10 +170,9 @@ class Encoder {
   }
 
   valueInfo(v: ValueInfo): Piece {
-    const u = unchanged(v.origin, valueInfoSig(v), []);
-    if (u) return u;
+    if (valueInfoUnchanged(v)) return original(v.origin!);
     const e = new Emitter();
-    const sameType = v.typeBytes !== undefined && v.typeSig === typeSig(v);
+    const sameType = typeUnchanged(v);
     assemble(e, v.origin?.order, v.extra, [
       [1, (e) => emitString(e, 1, v.name)],
       [2, (e) => {
@@ -196,8 +197,7 @@ class Encoder {
     else if (v.type === 'TENSORS') kids.push(...v.tensors.map((t) => this.tensor(t)));
     else if (v.type === 'GRAPH') kids.push(this.graph(v.g));
     else if (v.type === 'GRAPHS') kids.push(...v.graphs.map((g) => this.graph(g)));
-    const u = unchanged(a.origin, attributeSig(a), kids);
-    if (u) return u;
+    if (attributeUnchanged(a, kids.map(kid))) return original(a.origin!);
     const e = new Emitter();
     const codes: Record<string, number> = { FLOAT: 1, INT: 2, STRING: 3, TENSOR: 4, GRAPH: 5, FLOATS: 6, INTS: 7, STRINGS: 8, TENSORS: 9, GRAPHS: 10 };
     const fields: Array<[number, (e: Emitter) => void]> = [[1, (e) => emitString(e, 1, a.name)]];
@@ -223,8 +223,7 @@ class Encoder {
 
   node(n: Node): Piece {
     const kids = n.attributes.map((a) => this.attribute(a));
-    const u = unchanged(n.origin, nodeSig(n), kids);
-    if (u) return u;
+    if (nodeUnchanged(n, kids.map(kid))) return original(n.origin!);
     const e = new Emitter();
     assemble(e, n.origin?.order, n.extra, [
       [1, (e) => n.inputs.forEach((s) => emitString(e, 1, s))],
@@ -244,8 +243,9 @@ class Encoder {
     const ins = g.inputs.map((v) => this.valueInfo(v));
     const outs = g.outputs.map((v) => this.valueInfo(v));
     const infos = g.valueInfo.map((v) => this.valueInfo(v));
-    const u = unchanged(g.origin, graphSig(g), [...nodes, ...inits, ...ins, ...outs, ...infos]);
-    if (u) return u;
+    if (graphUnchanged(g, { nodes: nodes.map(kid), initializers: inits.map(kid), inputs: ins.map(kid), outputs: outs.map(kid), valueInfo: infos.map(kid) })) {
+      return original(g.origin!);
+    }
     const e = new Emitter();
     assemble(e, g.origin?.order, g.extra, [
       [1, (e) => nodes.forEach((p) => sub(e, 1, p))],
@@ -260,8 +260,7 @@ class Encoder {
   }
 
   opset(o: OpsetImport): Piece {
-    const u = unchanged(o.origin, opsetSig(o), []);
-    if (u) return u;
+    if (opsetUnchanged(o)) return original(o.origin!);
     const e = new Emitter();
     assemble(e, o.origin?.order, o.extra, [
       [1, (e) => { if (o.domain || o.origin?.order.includes(1)) emitString(e, 1, o.domain); }],
@@ -273,8 +272,7 @@ class Encoder {
   model(m: Model): Piece {
     const graph = this.graph(m.graph);
     const opsets = m.opsets.map((o) => this.opset(o));
-    const u = unchanged(m.origin, modelSig(m), [graph, ...opsets]);
-    if (u) return u;
+    if (modelUnchanged(m, kid(graph), opsets.map(kid))) return original(m.origin!);
     const e = new Emitter();
     const has = (no: number) => m.origin?.order.includes(no) ?? false;
     assemble(e, m.origin?.order, m.extra, [
