@@ -1,6 +1,6 @@
 // The in-memory form of an ONNX model that every other module works on.
 //
-// Lossless by construction: every message read from a file keeps `origin`, the exact bytes it came from,
+// Lossless by construction: every message read from a file keeps `origin`, where its exact bytes are,
 // plus `extra`, the fields pleat does not model (including fields newer than the bundled schema). The
 // writer re-emits `origin` for any message whose fields still match what its bytes decode to, so a model
 // with no change comes out byte-identical, and a changed one keeps every untouched message byte for byte.
@@ -13,13 +13,14 @@ export interface RawField {
 }
 
 /**
- * Where a message came from: its bytes. Nothing else is kept at read time; the writer decodes these bytes again
- * to decide whether the message changed (src/onnx/signature.ts).
+ * Where a message came from: buf[start, end), offsets into the buffer the file was read into (shared by every
+ * message of the model). Nothing else is kept at read time: the writer decodes these bytes again to decide
+ * whether the message changed and to recover its field order (src/onnx/signature.ts).
  */
 export interface Origin {
-  bytes: Uint8Array;
-  /** Field numbers in their original order (used to keep field order when a message is re-encoded). */
-  order: number[];
+  buf: Uint8Array;
+  start: number;
+  end: number;
   /** For a tensor with external data: the bytes the reader loaded (an unchanged tensor still holds them). */
   loaded?: Uint8Array;
 }

@@ -1,9 +1,9 @@
-// Bytes -> IR. Every message keeps its original bytes (views into the file buffer, no copies) and the
+// Bytes -> IR. Every message keeps where its original bytes are (offsets into the file buffer) and the
 // fields pleat does not model, so the writer can give them back unchanged.
 import { closeSync, statSync } from 'node:fs';
 import { dirname, resolve } from 'node:path';
 import type {
-  Attribute, AttributeValue, Dim, Graph, Model, Node, OpsetImport, RawField, Tensor, TensorStorage, ValueInfo,
+  Attribute, AttributeValue, Dim, Graph, Model, Node, OpsetImport, Origin, RawField, Tensor, TensorStorage, ValueInfo,
 } from '../graph/ir.js';
 import { PleatError } from '../errors.js';
 import {
@@ -24,8 +24,9 @@ function expectLen(f: WireField, what: string): void {
   if (f.wt !== WT_LEN) throw new WireError(`${what}: field ${f.no} has wire type ${f.wt}, expected a length-delimited field`);
 }
 
-function origin(buf: Buf, start: number, end: number, order: number[]) {
-  return { bytes: buf.subarray(start, end), order };
+/** Where a message's bytes are: offsets into the file buffer (no view, no copy). */
+function origin(buf: Buf, start: number, end: number): Origin {
+  return { buf, start, end };
 }
 
 /**
@@ -90,7 +91,7 @@ export function decodeTensor(buf: Buf, start: number, end: number): Tensor {
     throw new PleatError('bad-model', `tensor '${name}' has an invalid dimension in [${dims.join(',')}]`);
   }
   const t: Tensor = { name, dims, dataType, storage, docString, extra };
-  t.origin = origin(buf, start, end, f.order);
+  t.origin = origin(buf, start, end);
   // data_location and external_data entries are modelled through storage
   return t;
 }
@@ -136,7 +137,7 @@ export function decodeValueInfo(buf: Buf, start: number, end: number): ValueInfo
       default: v.extra.push(raw(buf, f));
     }
   }
-  v.origin = origin(buf, start, end, f.order);
+  v.origin = origin(buf, start, end);
   return v;
 }
 
@@ -205,7 +206,7 @@ export function decodeAttribute(buf: Buf, start: number, end: number, depth: num
     default: value = { type: 'OTHER', code: typeCode };
   }
   const a: Attribute = { name, value, docString, refAttrName, extra };
-  a.origin = origin(buf, start, end, f.order);
+  a.origin = origin(buf, start, end);
   return a;
 }
 
@@ -228,7 +229,7 @@ export function decodeNode(buf: Buf, start: number, end: number, depth: number, 
       default: n.extra.push(raw(buf, f));
     }
   }
-  n.origin = origin(buf, start, end, f.order);
+  n.origin = origin(buf, start, end);
   return n;
 }
 
@@ -253,7 +254,7 @@ export function decodeGraph(buf: Buf, start: number, end: number, depth = 0, kid
       default: g.extra.push(raw(buf, f));
     }
   }
-  g.origin = origin(buf, start, end, f.order);
+  g.origin = origin(buf, start, end);
   return g;
 }
 
@@ -275,14 +276,14 @@ export function decodeOpset(buf: Buf, start: number, end: number): OpsetImport {
     else if (f.no === 2) o.version = readInt(buf, f);
     else o.extra.push(raw(buf, f));
   }
-  o.origin = origin(buf, start, end, f.order);
+  o.origin = origin(buf, start, end);
   return o;
 }
 
 type ModelFields = Omit<Model, 'graph' | 'baseDir'> & { graph?: Graph };
 
 /** A ModelProto's fields; with `kids`, the graph and opset imports are recorded as byte ranges, not decoded. */
-export function decodeModelFields(buf: Buf, start: number, end: number, kids?: KidRanges): ModelFields & { order: number[] } {
+export function decodeModelFields(buf: Buf, start: number, end: number, kids?: KidRanges): ModelFields {
   const f = fieldsOf(buf, start, end);
   let graph: Graph | undefined;
   const m: ModelFields = {
@@ -318,16 +319,16 @@ export function decodeModelFields(buf: Buf, start: number, end: number, kids?: K
     }
   }
   if (graph) m.graph = graph;
-  return Object.assign(m, { order: f.order });
+  return m;
 }
 
 /** Decode model bytes (no external data loaded; see parseModel). */
 export function decodeModel(buf: Buf, baseDir: string): Model {
-  const { order, graph, ...m } = decodeModelFields(buf, 0, buf.byteLength);
+  const { graph, ...m } = decodeModelFields(buf, 0, buf.byteLength);
   if (!graph) throw new PleatError('bad-model', 'no graph in the file: this is not an ONNX model');
   const model: Model = { ...m, graph, baseDir };
   markOverridable(graph, model.irVersion);
-  model.origin = origin(buf, 0, buf.byteLength, order);
+  model.origin = origin(buf, 0, buf.byteLength);
   return model;
 }
 

@@ -7,7 +7,10 @@
 // exactly where the parent's bytes hold that child (same buffer, same offsets, same order). Values held in
 // place (raw tensor bytes, unknown fields) are compared by position too, so the check never reads payloads
 // that are still on disk; code that writes into such bytes in place calls touch() (src/graph/edit.ts).
-import type { Attribute, Dim, Graph, Model, Node, OpsetImport, RawField, Tensor, TensorStorage, ValueInfo } from '../graph/ir.js';
+import type {
+  Attribute, Dim, Graph, Model, Node, OpsetImport, Origin, RawField, Tensor, TensorStorage, ValueInfo,
+} from '../graph/ir.js';
+import { fieldsOf } from './wire.js';
 import {
   decodeAttribute, decodeGraph, decodeModelFields, decodeNode, decodeOpset, decodeTensor, decodeTensorType,
   decodeValueInfo, type KidRanges,
@@ -83,7 +86,7 @@ function sameStorage(now: TensorStorage, then: TensorStorage, loaded: Uint8Array
 export function tensorUnchanged(t: Tensor): boolean {
   const o = t.origin;
   if (!o) return false;
-  const was = decodeTensor(o.bytes, 0, o.bytes.byteLength);
+  const was = decodeTensor(o.buf, o.start, o.end);
   return t.name === was.name && t.dataType === was.dataType && t.docString === was.docString &&
     sameList(t.dims, was.dims) && sameExtra(t.extra, was.extra) && sameStorage(t.storage, was.storage, o.loaded);
 }
@@ -103,7 +106,7 @@ export function typeUnchanged(v: ValueInfo): boolean {
 export function valueInfoUnchanged(v: ValueInfo): boolean {
   const o = v.origin;
   if (!o) return false;
-  const was = decodeValueInfo(o.bytes, 0, o.bytes.byteLength);
+  const was = decodeValueInfo(o.buf, o.start, o.end);
   return v.name === was.name && v.docString === was.docString && v.elemType === was.elemType &&
     sameDims(v.shape, was.shape) && sameExtra(v.extra, was.extra);
 }
@@ -111,7 +114,7 @@ export function valueInfoUnchanged(v: ValueInfo): boolean {
 export function opsetUnchanged(op: OpsetImport): boolean {
   const o = op.origin;
   if (!o) return false;
-  const was = decodeOpset(o.bytes, 0, o.bytes.byteLength);
+  const was = decodeOpset(o.buf, o.start, o.end);
   return op.domain === was.domain && op.version === was.version && sameExtra(op.extra, was.extra);
 }
 
@@ -120,7 +123,7 @@ export function attributeUnchanged(a: Attribute, kids: readonly Kid[]): boolean 
   const o = a.origin;
   if (!o) return false;
   const ranges: KidRanges = [];
-  const was = decodeAttribute(o.bytes, 0, o.bytes.byteLength, 0, ranges);
+  const was = decodeAttribute(o.buf, o.start, o.end, 0, ranges);
   if (a.name !== was.name || a.docString !== was.docString || a.refAttrName !== was.refAttrName ||
     a.value.type !== was.value.type || !sameExtra(a.extra, was.extra)) return false;
   const v = a.value, w = was.value;
@@ -131,10 +134,10 @@ export function attributeUnchanged(a: Attribute, kids: readonly Kid[]): boolean 
     case 'FLOATS': return sameList(v.floats, (w as { floats: number[] }).floats);
     case 'INTS': return sameList(v.ints, (w as { ints: number[] }).ints);
     case 'STRINGS': return sameList(v.strings, (w as { strings: Uint8Array[] }).strings, sameBytes);
-    case 'TENSOR': return kids.length === 1 && sameLastKid(kids[0], ranges, 5, o.bytes);
-    case 'GRAPH': return kids.length === 1 && sameLastKid(kids[0], ranges, 6, o.bytes);
-    case 'TENSORS': return sameKids(kids, ranges, 10, o.bytes);
-    case 'GRAPHS': return sameKids(kids, ranges, 11, o.bytes);
+    case 'TENSOR': return kids.length === 1 && sameLastKid(kids[0], ranges, 5, o.buf);
+    case 'GRAPH': return kids.length === 1 && sameLastKid(kids[0], ranges, 6, o.buf);
+    case 'TENSORS': return sameKids(kids, ranges, 10, o.buf);
+    case 'GRAPHS': return sameKids(kids, ranges, 11, o.buf);
     case 'OTHER': return v.code === (w as { code: number }).code;
   }
 }
@@ -144,10 +147,10 @@ export function nodeUnchanged(n: Node, attrs: readonly Kid[]): boolean {
   const o = n.origin;
   if (!o) return false;
   const ranges: KidRanges = [];
-  const was = decodeNode(o.bytes, 0, o.bytes.byteLength, 0, ranges);
+  const was = decodeNode(o.buf, o.start, o.end, 0, ranges);
   return n.name === was.name && n.opType === was.opType && n.domain === was.domain && n.docString === was.docString &&
     sameList(n.inputs, was.inputs) && sameList(n.outputs, was.outputs) && sameExtra(n.extra, was.extra) &&
-    sameKids(attrs, ranges, 5, o.bytes);
+    sameKids(attrs, ranges, 5, o.buf);
 }
 
 export interface GraphKids { nodes: Kid[]; initializers: Kid[]; inputs: Kid[]; outputs: Kid[]; valueInfo: Kid[] }
@@ -156,21 +159,28 @@ export function graphUnchanged(g: Graph, kids: GraphKids): boolean {
   const o = g.origin;
   if (!o) return false;
   const ranges: KidRanges = [];
-  const was = decodeGraph(o.bytes, 0, o.bytes.byteLength, 0, ranges);
+  const was = decodeGraph(o.buf, o.start, o.end, 0, ranges);
   return g.name === was.name && g.docString === was.docString && sameExtra(g.extra, was.extra) &&
-    sameKids(kids.nodes, ranges, 1, o.bytes) && sameKids(kids.initializers, ranges, 5, o.bytes) &&
-    sameKids(kids.inputs, ranges, 11, o.bytes) && sameKids(kids.outputs, ranges, 12, o.bytes) &&
-    sameKids(kids.valueInfo, ranges, 13, o.bytes);
+    sameKids(kids.nodes, ranges, 1, o.buf) && sameKids(kids.initializers, ranges, 5, o.buf) &&
+    sameKids(kids.inputs, ranges, 11, o.buf) && sameKids(kids.outputs, ranges, 12, o.buf) &&
+    sameKids(kids.valueInfo, ranges, 13, o.buf);
 }
 
 export function modelUnchanged(m: Model, graph: Kid, opsets: readonly Kid[]): boolean {
   const o = m.origin;
   if (!o) return false;
   const ranges: KidRanges = [];
-  const was = decodeModelFields(o.bytes, 0, o.bytes.byteLength, ranges);
+  const was = decodeModelFields(o.buf, o.start, o.end, ranges);
   return m.irVersion === was.irVersion && m.producerName === was.producerName &&
     m.producerVersion === was.producerVersion && m.domain === was.domain && m.modelVersion === was.modelVersion &&
     m.docString === was.docString && sameExtra(m.extra, was.extra) &&
     sameList(m.metadata, was.metadata, (x, y) => x[0] === y[0] && x[1] === y[1]) &&
-    sameLastKid(graph, ranges, 7, o.bytes) && sameKids(opsets, ranges, 8, o.bytes);
+    sameLastKid(graph, ranges, 7, o.buf) && sameKids(opsets, ranges, 8, o.buf);
+}
+
+/** The field numbers of a message's original bytes, in order (kept when a changed message is re-encoded). */
+export function fieldOrder(o: Origin | undefined): number[] {
+  const order: number[] = [];
+  if (o) for (const f = fieldsOf(o.buf, o.start, o.end); f.next();) order.push(f.no);
+  return order;
 }

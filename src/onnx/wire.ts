@@ -80,8 +80,8 @@ function readLength(buf: Uint8Array, pos: number, end: number): number {
 /**
  * The fields of buf[start, end), one at a time: next() fills no/wt/start/end/vstart/vend in place. Decoding
  * walks every field of every message, so this keeps one object per message rather than one per field (a
- * graph of many small nodes allocated several times its file size otherwise). `order` lists the field
- * numbers seen, in order. Throws WireError on malformed or truncated bytes.
+ * graph of many small nodes allocated several times its file size otherwise). Throws WireError on malformed
+ * or truncated bytes.
  */
 export class FieldCursor implements WireField {
   no = 0;
@@ -90,7 +90,6 @@ export class FieldCursor implements WireField {
   end = 0;
   vstart = 0;
   vend = 0;
-  readonly order: number[] = [];
   private pos: number;
 
   constructor(private readonly buf: Uint8Array, start: number, private readonly limit: number) {
@@ -134,7 +133,6 @@ export class FieldCursor implements WireField {
     if (vend > end) throw new WireError('field runs past the end of its message (truncated file?)');
     this.no = no; this.wt = wt; this.start = fstart; this.end = pos; this.vstart = vstart; this.vend = vend;
     this.pos = pos;
-    this.order.push(no);
     return true;
   }
 }

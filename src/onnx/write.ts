@@ -3,14 +3,14 @@
 // model copied through untouched. Output files are written to temporary names and renamed into place.
 import { closeSync, copyFileSync, existsSync, openSync, readSync, renameSync, rmSync, writeSync } from 'node:fs';
 import { basename, dirname, join, resolve } from 'node:path';
-import type { Attribute, Graph, Model, Node, OpsetImport, RawField, Tensor, ValueInfo, Dim } from '../graph/ir.js';
+import type { Attribute, Graph, Model, Node, OpsetImport, Origin, RawField, Tensor, ValueInfo, Dim } from '../graph/ir.js';
 import { PleatError } from '../errors.js';
 import {
   Emitter, WT_LEN, emitBytes, emitFloat, emitInt, emitMessage, emitString,
 } from './wire.js';
 import {
   attributeUnchanged, graphUnchanged, modelUnchanged, nodeUnchanged, opsetUnchanged, tensorUnchanged, typeUnchanged,
-  valueInfoUnchanged, type Kid,
+  valueInfoUnchanged, fieldOrder, type Kid,
 } from './signature.js';
 import { externalRef } from './external.js';
 import { deferredIn, ensureLoaded, lazySourceOf, pendingIn, reopenSource } from './sparse-read.js';
@@ -106,8 +106,8 @@ function sub(e: Emitter, no: number, p: Piece): void {
 }
 
 /** A message re-emitted as the bytes it was read from (the caller checked that nothing changed). */
-function original(origin: { bytes: Uint8Array }): Piece {
-  return { chunks: [origin.bytes], length: origin.bytes.byteLength, same: true };
+function original(origin: Origin): Piece {
+  return { chunks: [origin.buf.subarray(origin.start, origin.end)], length: origin.end - origin.start, same: true };
 }
 
 function kid(p: Piece): Kid {
@@ -126,6 +126,7 @@ class Encoder {
       if (tensorUnchanged(t)) return original(t.origin!);
     }
     const e = new Emitter();
+    const order = fieldOrder(t.origin);
     const s = t.storage;
     const data: Array<[number, (e: Emitter) => void]> = [];
     if (placed) {
@@ -161,11 +162,11 @@ class Encoder {
       [1, (e) => t.dims.forEach((d) => emitInt(e, 1, d))],
       [2, (e) => emitInt(e, 2, t.dataType)],
       ...data,
-      [8, (e) => { if (t.name || t.origin?.order.includes(8)) emitString(e, 8, t.name); }],
+      [8, (e) => { if (t.name || order.includes(8)) emitString(e, 8, t.name); }],
       [12, (e) => { if (t.docString) emitString(e, 12, t.docString); }],
     ];
     fields.sort((a, b) => a[0] - b[0]);
-    assemble(e, t.origin?.order, t.extra, fields);
+    assemble(e, order, t.extra, fields);
     return piece(e);
   }
 
@@ -173,7 +174,7 @@ class Encoder {
     if (valueInfoUnchanged(v)) return original(v.origin!);
     const e = new Emitter();
     const sameType = typeUnchanged(v);
-    assemble(e, v.origin?.order, v.extra, [
+    assemble(e, fieldOrder(v.origin), v.extra, [
       [1, (e) => emitString(e, 1, v.name)],
       [2, (e) => {
         if (sameType) { emitBytes(e, 2, v.typeBytes!); return; }
@@ -217,7 +218,7 @@ class Encoder {
     fields.push([13, (e) => { if (a.docString) emitString(e, 13, a.docString); }]);
     fields.push([20, (e) => emitInt(e, 20, v.type === 'OTHER' ? v.code : codes[v.type]!)]);
     fields.push([21, (e) => { if (a.refAttrName) emitString(e, 21, a.refAttrName); }]);
-    assemble(e, a.origin?.order, a.extra, fields);
+    assemble(e, fieldOrder(a.origin), a.extra, fields);
     return piece(e);
   }
 
@@ -225,14 +226,15 @@ class Encoder {
     const kids = n.attributes.map((a) => this.attribute(a));
     if (nodeUnchanged(n, kids.map(kid))) return original(n.origin!);
     const e = new Emitter();
-    assemble(e, n.origin?.order, n.extra, [
+    const order = fieldOrder(n.origin);
+    assemble(e, order, n.extra, [
       [1, (e) => n.inputs.forEach((s) => emitString(e, 1, s))],
       [2, (e) => n.outputs.forEach((s) => emitString(e, 2, s))],
-      [3, (e) => { if (n.name || n.origin?.order.includes(3)) emitString(e, 3, n.name); }],
+      [3, (e) => { if (n.name || order.includes(3)) emitString(e, 3, n.name); }],
       [4, (e) => emitString(e, 4, n.opType)],
       [5, (e) => kids.forEach((k) => sub(e, 5, k))],
       [6, (e) => { if (n.docString) emitString(e, 6, n.docString); }],
-      [7, (e) => { if (n.domain || n.origin?.order.includes(7)) emitString(e, 7, n.domain); }],
+      [7, (e) => { if (n.domain || order.includes(7)) emitString(e, 7, n.domain); }],
     ]);
     return piece(e);
   }
@@ -247,9 +249,10 @@ class Encoder {
       return original(g.origin!);
     }
     const e = new Emitter();
-    assemble(e, g.origin?.order, g.extra, [
+    const order = fieldOrder(g.origin);
+    assemble(e, order, g.extra, [
       [1, (e) => nodes.forEach((p) => sub(e, 1, p))],
-      [2, (e) => { if (g.name || g.origin?.order.includes(2)) emitString(e, 2, g.name); }],
+      [2, (e) => { if (g.name || order.includes(2)) emitString(e, 2, g.name); }],
       [5, (e) => inits.forEach((p) => sub(e, 5, p))],
       [10, (e) => { if (g.docString) emitString(e, 10, g.docString); }],
       [11, (e) => ins.forEach((p) => sub(e, 11, p))],
@@ -262,8 +265,9 @@ class Encoder {
   opset(o: OpsetImport): Piece {
     if (opsetUnchanged(o)) return original(o.origin!);
     const e = new Emitter();
-    assemble(e, o.origin?.order, o.extra, [
-      [1, (e) => { if (o.domain || o.origin?.order.includes(1)) emitString(e, 1, o.domain); }],
+    const order = fieldOrder(o.origin);
+    assemble(e, order, o.extra, [
+      [1, (e) => { if (o.domain || order.includes(1)) emitString(e, 1, o.domain); }],
       [2, (e) => emitInt(e, 2, o.version)],
     ]);
     return piece(e);
@@ -274,8 +278,9 @@ class Encoder {
     const opsets = m.opsets.map((o) => this.opset(o));
     if (modelUnchanged(m, kid(graph), opsets.map(kid))) return original(m.origin!);
     const e = new Emitter();
-    const has = (no: number) => m.origin?.order.includes(no) ?? false;
-    assemble(e, m.origin?.order, m.extra, [
+    const order = fieldOrder(m.origin);
+    const has = (no: number) => order.includes(no);
+    assemble(e, order, m.extra, [
       [1, (e) => emitInt(e, 1, m.irVersion)],
       [2, (e) => { if (m.producerName || has(2)) emitString(e, 2, m.producerName); }],
       [3, (e) => { if (m.producerVersion || has(3)) emitString(e, 3, m.producerVersion); }],
