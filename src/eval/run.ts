@@ -7,7 +7,11 @@ import { getKernel } from './registry.js';
 import { giveBack, isConstant, isPooled, markConstant } from './pool.js';
 import type { KernelContext, NumArray, Precision, Value } from './value.js';
 
-export interface RunOptions { precision: Precision; }
+export interface RunOptions {
+  precision: Precision;
+  /** Called after each node has run, nodes of If branches and Loop/Scan bodies included (coverage of a check). */
+  onNode?: (node: Node) => void;
+}
 
 export interface GraphRunOptions extends RunOptions {
   opsetOf: (domain: string) => number;
@@ -127,7 +131,7 @@ export function runGraph(graph: Graph, inputs: Map<string, Value>, opts: GraphRu
         // the subgraph sees this scope's live values and everything outer to it
         const scope = new Map<string, Value>(outer ?? []);
         for (const [k, v] of env) scope.set(k, v);
-        const res = runGraph(sub, extra ?? new Map(), { precision, opsetOf, outer: scope });
+        const res = runGraph(sub, extra ?? new Map(), { precision, opsetOf, outer: scope, onNode: opts.onNode });
         return sub.outputs.map((o) => res.get(o.name)!);
       },
       reusable(i: number): boolean {
@@ -142,6 +146,7 @@ export function runGraph(graph: Graph, inputs: Map<string, Value>, opts: GraphRu
       },
     };
     const results = kernel.run(args, ctx);
+    opts.onNode?.(node);
     node.outputs.forEach((name, i) => {
       if (name === '') return;
       const v = results[i];
@@ -194,5 +199,5 @@ export function runModel(model: Model, inputs: Map<string, Value>, opts: RunOpti
     if (v === undefined) throw new PleatError('bad-model', `the model uses domain '${domain || 'ai.onnx'}' but imports no opset for it`);
     return v;
   };
-  return runGraph(g, given, { precision: opts.precision, opsetOf });
+  return runGraph(g, given, { precision: opts.precision, opsetOf, onNode: opts.onNode });
 }

@@ -11,7 +11,7 @@ import { applyEdit, flushPending, newEdit, regionAfter, regionBefore } from './a
 import { assessRun, findingsOf, foldHint } from './analyze.js';
 import { collectRun, isStep, stepOf } from './run.js';
 import { buildScopes, eachGraph, labelOf } from './scope.js';
-import type { FoldLedger, FoldOptions, LedgerEntry } from './types.js';
+import type { FoldLedger, FoldOptions, LedgerEntry, ProofFigures, RewrittenNode } from './types.js';
 
 const MAX_PASSES = 64;
 
@@ -36,7 +36,7 @@ export function weightBytes(model: Model): number {
 }
 
 /** One sweep over every graph; returns whether anything changed or was put off to the next sweep. */
-function sweep(ctx: FoldContext, model: Model, folded: LedgerEntry[], released: Set<string>, gone: Set<string>): boolean {
+function sweep(ctx: FoldContext, model: Model, folded: LedgerEntry[], released: Set<string>, gone: Set<string>, rewritten: Map<Node, RewrittenNode>): boolean {
   let changed = false;
   const prove = ctx.options.prove;
   for (const scope of buildScopes(model, ctx.labels)) {
@@ -62,14 +62,24 @@ function sweep(ctx: FoldContext, model: Model, folded: LedgerEntry[], released: 
       const names = run.steps.map((x) => ctx.labels.get(x.node) ?? x.node.name);
       for (const n of [...involved, m.layer.node]) dirty.add(n);
       changed = true;
-      if (prove && !prove({ before: before!, after: regionAfter(edit), opsetOf: ctx.opsetOf, nodes: names, target: m.layer.label, direction: m.rule.direction, graph: scope.path })) {
-        undo();
-        for (const x of run.steps) ctx.proofFailed.add(x.node);
-        continue;
+      let proof: ProofFigures | undefined;
+      if (prove) {
+        const r = prove({ before: before!, after: regionAfter(edit), opsetOf: ctx.opsetOf, nodes: names, target: m.layer.label, direction: m.rule.direction, graph: scope.path });
+        if (typeof r === 'boolean' ? !r : !r.passed) {
+          undo();
+          for (const x of run.steps) ctx.proofFailed.add(x.node);
+          continue;
+        }
+        if (typeof r !== 'boolean') proof = r.proof;
       }
       const hint = foldHint(m);
       for (const x of run.steps) {
-        folded.push({ node: ctx.labels.get(x.node) ?? x.node.name, op: x.node.opType, status: 'folded', direction: m.rule.direction, target: m.layer.label, reason: null, hint, graph: scope.path });
+        folded.push({ node: ctx.labels.get(x.node) ?? x.node.name, op: x.node.opType, status: 'folded', direction: m.rule.direction, target: m.layer.label, reason: null, hint, graph: scope.path, ...(proof ? { proof } : {}) });
+      }
+      // what the whole-model check watches: the layer whose weights changed, nodes created or changed in kind
+      const changedKind = edit.changes.filter((c) => c.opType !== undefined || c.attributes !== undefined).map((c) => c.node);
+      for (const n of [m.layer.node, ...edit.inserts.map((i) => i.node), ...changedKind]) {
+        if (!rewritten.has(n)) rewritten.set(n, { node: n, label: ctx.labels.get(n) ?? n.name, graph: scope.path });
       }
       for (const r of edit.released) released.add(r);
       for (const v of edit.goneValues) gone.add(v);
@@ -83,7 +93,7 @@ function sweep(ctx: FoldContext, model: Model, folded: LedgerEntry[], released: 
  * Fold every normalization that can be folded exactly. Edits `model` in place and returns it with the ledger:
  * one entry per normalization (folded, or kept with its reason), node and weight-byte totals.
  */
-export function foldModel(model: Model, options: FoldOptions = {}): { model: Model; ledger: FoldLedger } {
+export function foldModel(model: Model, options: FoldOptions = {}): { model: Model; ledger: FoldLedger; rewritten: RewrittenNode[] } {
   const ctx = makeContext(model, options);
   const nodesBefore = countNodes(model);
   const bytesBefore = weightBytes(model);
@@ -93,7 +103,8 @@ export function foldModel(model: Model, options: FoldOptions = {}): { model: Mod
   const folded: LedgerEntry[] = [];
   const released = new Set<string>();
   const gone = new Set<string>();
-  for (let pass = 0; pass < MAX_PASSES && sweep(ctx, model, folded, released, gone); pass++) { /* until nothing changes */ }
+  const touched = new Map<Node, RewrittenNode>();
+  for (let pass = 0; pass < MAX_PASSES && sweep(ctx, model, folded, released, gone, touched); pass++) { /* until nothing changes */ }
   if (folded.length) {
     cleanUp(model, released, gone);
     validateModel(model);
@@ -101,8 +112,12 @@ export function foldModel(model: Model, options: FoldOptions = {}): { model: Mod
   // Every normalization still in the model, with its reason, from the same analysis audit runs.
   const kept: LedgerEntry[] = findingsOf(ctx, model).map((f) => ({ ...f, status: 'kept' as const }));
   const normalizations = [...folded, ...kept].sort((a, b) => (order.get(`${a.graph}\u0000${a.node}`) ?? 1e15) - (order.get(`${b.graph}\u0000${b.node}`) ?? 1e15));
+  // a node a later fold or the clean-up removed is no longer in the model to be watched
+  const present = new Set<Node>();
+  eachGraph(model.graph, (g) => { for (const n of g.nodes) present.add(n); });
   return {
     model,
     ledger: { normalizations, nodesBefore, nodesAfter: countNodes(model), bytesBefore, bytesAfter: weightBytes(model) },
+    rewritten: [...touched.values()].filter((r) => present.has(r.node)),
   };
 }

@@ -7,69 +7,86 @@ import { storeFloat16 } from '../ship/store-float16.js';
 import { foldModel } from '../fold/index.js';
 import { LateRangeCheckFailed } from '../fold/values.js';
 import { proveFold } from '../verify/prove.js';
-import { compare } from '../verify/compare.js';
 import { DEFAULT_GATES } from '../verify/gate.js';
 import { asMap, dimSymbols } from '../verify/inputs.js';
 import { PleatError } from '../errors.js';
 import { quantReadiness } from '../fold/quant.js';
+import { compare, type ProbeRecord } from '../verify/compare.js';
+import { checkProbeDir, saveProbeSets } from '../verify/probe-files.js';
+import type { RewrittenNode } from '../fold/types.js';
+import { provenanceOf, setProvenance } from './provenance.js';
 import { SCHEMA_VERSION, type CheckSummary, type FoldJobOptions, type FoldReport, type StorageSummary } from './types.js';
 
-/** Compare the original and the folded model on seeded probes; skipped (not failed) when shapes are unknown. */
-export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOptions & { halfGate?: boolean }): CheckSummary {
+/** The gate the whole-model check applies to every output ('' means the default per data type). */
+function checkGate(opts: FoldJobOptions & { halfGate?: boolean }): string | undefined {
+  return opts.gate ?? (opts.halfGate ? DEFAULT_GATES.float16 : undefined);
+}
+
+/**
+ * Compare the original and the folded model on seeded probes, watching the rewritten nodes. The status follows
+ * the rules of compare (verify/status.ts): skipped, never passed, when nothing could be compared.
+ */
+export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOptions & { halfGate?: boolean; rewritten?: readonly RewrittenNode[]; onProbe?: (p: ProbeRecord) => void }): CheckSummary {
   const seed = opts.seed ?? 0;
   const probes = opts.probes ?? 2;
-  const gate = opts.gate ?? (opts.halfGate ? DEFAULT_GATES.float16 : undefined);
+  const gate = checkGate(opts);
   // Dims and shapes may come from a config or a batch shared by several models: use those this model has.
   const symbols = dimSymbols([original.graph]);
   const inputNames = new Set(original.graph.inputs.map((i) => i.name));
   const dims = new Map([...asMap(opts.dims)].filter(([k]) => symbols.has(k)));
   const shapes = new Map([...asMap(opts.shapes)].filter(([k]) => inputNames.has(k)));
-  try {
-    const r = compare(original, folded, {
-      inputs: opts.inputs, shapes, dims, seed, probes, gate, budget: false,
-    });
-    return {
-      passed: r.passed,
-      skipped: null,
-      probes: r.probes,
-      seed,
-      gates: [...new Set(r.outputs.map((o) => o.gate?.expr).filter((g): g is string => !!g))],
-      outputs: r.outputs.map((o) => ({
-        name: o.name,
-        maxAbs: o.metrics?.maxAbs ?? NaN,
-        maxRel: o.metrics?.maxRel ?? NaN,
-        rms: o.metrics?.rms ?? NaN,
-        cosine: o.metrics?.cosine ?? NaN,
-        passed: o.passed,
-        ...(o.problem ? { problem: o.problem } : {}),
-      })),
-    };
-  } catch (e) {
-    if (e instanceof PleatError && (e.kind === 'missing-shape' || e.kind === 'unsupported-op')) {
-      return { passed: true, skipped: e.message, probes: 0, seed, gates: [], outputs: [] };
-    }
-    throw e;
-  }
+  const watch = new Map((opts.rewritten ?? []).map((r) => [r.node, r.graph === 'main' ? r.label : `${r.label} in ${r.graph}`]));
+  const r = compare(original, folded, {
+    inputs: opts.inputs, shapes, dims, seed, probes, gate, budget: false, watch, onProbe: opts.onProbe,
+  });
+  return {
+    status: r.status,
+    passed: r.passed,
+    skipped: r.skipped,
+    strict: opts.strict ?? false,
+    probes: r.probes,
+    seed,
+    gates: [...new Set(r.outputs.map((o) => o.gate?.expr).filter((g): g is string => !!g))],
+    assumedDims: r.assumedDims,
+    coverage: r.coverage ?? { executed: 0, total: 0, missed: [], extraProbes: 0 },
+    outputs: r.outputs.map((o) => ({
+      name: o.name,
+      maxAbs: o.metrics?.maxAbs ?? NaN,
+      maxRel: o.metrics?.maxRel ?? NaN,
+      rms: o.metrics?.rms ?? NaN,
+      cosine: o.metrics?.cosine ?? NaN,
+      passed: o.passed,
+      status: o.status,
+      count: o.metrics?.count ?? 0,
+      ...(o.problem ? { problem: o.problem } : {}),
+      ...(o.observable !== undefined ? { observable: o.observable } : {}),
+    })),
+  };
 }
 
 /**
  * Fold a model in memory (no files): returns the report; `model` is changed in place. `lateRangeCheck` is for
  * callers that can read the model again (see FoldOptions.lateRangeCheck).
  */
-export function foldLoaded(model: Model, original: Model | undefined, label: string, opts: FoldJobOptions, lateRangeCheck = false): FoldReport {
-  const { ledger } = foldModel(model, {
+export function foldLoaded(model: Model, original: Model | undefined, label: string, opts: FoldJobOptions, lateRangeCheck = false,
+  onProbe?: (p: ProbeRecord) => void): FoldReport {
+  if (opts.strict && opts.noProofs) throw new PleatError('usage', '--strict needs the whole-model check, which --unproven leaves out: give one of them');
+  const { ledger, rewritten } = foldModel(model, {
     keep: opts.keep,
     allowOverridable: opts.allowOverridable,
     lateRangeCheck,
-    prove: opts.noProofs ? undefined : (c) => proveFold(c, { seed: opts.seed }).passed,
+    prove: opts.noProofs ? undefined : (c) => {
+      const r = proveFold(c, { seed: opts.seed });
+      return { passed: r.passed, proof: { maxAbs: r.maxAbs, maxRel: r.maxRel, shape: r.shape } };
+    },
   });
   let storage: StorageSummary | null = null;
   if (opts.store === 'float16') {
     const r = storeFloat16(model);
     storage = { store: 'float16', ...r };
   }
-  const check = original && !opts.noProofs ? wholeModelCheck(original, model, { ...opts, halfGate: storage !== null }) : null;
-  const failed = check !== null && !check.passed;
+  const check = original && !opts.noProofs ? wholeModelCheck(original, model, { ...opts, halfGate: storage !== null, rewritten, onProbe }) : null;
+  const failed = check !== null && (check.status === 'failed' || (check.status === 'skipped' && check.strict));
   return {
     schemaVersion: SCHEMA_VERSION,
     command: 'fold',
@@ -80,6 +97,7 @@ export function foldLoaded(model: Model, original: Model | undefined, label: str
     check,
     quantization: original ? quantReadiness(original, model, ledger.normalizations) : [],
     storage,
+    probesSaved: null,
     failed,
   };
 }
@@ -97,13 +115,17 @@ export function foldFile(input: string, output: string, opts: FoldJobOptions = {
 }
 
 function foldFileOnce(input: string, output: string, opts: FoldJobOptions, lateRangeCheck: boolean): FoldReport {
+  if (opts.saveProbes !== undefined) checkProbeDir(opts.saveProbes);
   const model = readModelFile(input);
   // A second, untouched copy is the reference for the whole-model check and the quantization report.
   const original = opts.noProofs ? undefined : readModelFile(input);
-  const report = foldLoaded(model, original, input, opts, lateRangeCheck);
+  const records: ProbeRecord[] = [];
+  const report = foldLoaded(model, original, input, opts, lateRangeCheck, opts.saveProbes !== undefined ? (p) => records.push(p) : undefined);
   if (!report.failed) {
+    setProvenance(model, provenanceOf(input, checkGate({ ...opts, halfGate: report.storage !== null }), opts, report.check));
     writeModelFile(model, output, { externalThreshold: opts.externalThreshold });
     report.output = output;
+    if (opts.saveProbes !== undefined && original) report.probesSaved = { dir: opts.saveProbes, sets: saveProbeSets(opts.saveProbes, original.graph, records) };
   }
   return report;
 }

@@ -1,12 +1,14 @@
 // The report shapes every job returns. The CLI's --json prints exactly these; the JSON Schema in
 // src/report/schema/pleat-report.schema.json documents them. Bump SCHEMA_VERSION on any breaking change.
 import type { Finding, LedgerEntry } from '../fold/types.js';
-import type { InputOptions } from '../verify/inputs.js';
+import type { AssumedDim, InputOptions } from '../verify/inputs.js';
+import type { CheckStatus, Coverage, SkipInfo } from '../verify/status.js';
+import type { OutputStatus } from '../verify/compare.js';
 import type { QuantRow } from '../fold/quant.js';
 
-export type { QuantRow };
+export type { QuantRow, AssumedDim, CheckStatus, Coverage, OutputStatus, SkipInfo };
 
-export const SCHEMA_VERSION = 1;
+export const SCHEMA_VERSION = 2;
 
 export interface OutputCheck {
   name: string;
@@ -15,19 +17,37 @@ export interface OutputCheck {
   rms: number;
   cosine: number;
   passed: boolean;
-  /** Why the output failed when it was not a metric (missing, shape differs). */
+  /** 'compared'; 'empty' (no elements on any probe: nothing compared, the check is skipped); or why it failed. */
+  status: OutputStatus;
+  /** Elements compared on a probe (the largest over probes); 0 means nothing was compared at this output. */
+  count: number;
+  /** Why the output failed when it was not a metric (missing, shape differs), or why it was not compared. */
   problem?: string;
+  /**
+   * false: bit-identical on every probe although a rewritten node upstream ran (e.g. a saturated sigmoid), so
+   * the change was not observable at this output; true: it was; absent: no rewritten node upstream ran.
+   */
+  observable?: boolean;
 }
 
 /** The whole-model comparison fold runs after folding (original float64 vs folded). */
 export interface CheckSummary {
+  /** 'passed' only when at least one probe compared at least one element of every output. */
+  status: CheckStatus;
+  /** status === 'passed'. */
   passed: boolean;
-  /** Set when no whole-model comparison ran, saying why (e.g. a dynamic dim no flag resolves). */
-  skipped: string | null;
+  /** Why nothing (or not every output) was compared: a reason code and one line; null unless skipped. */
+  skipped: SkipInfo | null;
+  /** --strict was on: a skipped check then fails the fold (exit 1, nothing written). */
+  strict: boolean;
   probes: number;
   seed: number;
   /** The gate expression used for each output (default per data type unless --gate). */
   gates: string[];
+  /** Symbolic dims no --dim, --shape or input set: the probes took each as 1. */
+  assumedDims: AssumedDim[];
+  /** Which rewritten nodes (layers the folds changed, nodes they created) the probes executed. */
+  coverage: Coverage;
   outputs: OutputCheck[];
 }
 
@@ -55,7 +75,9 @@ export interface FoldReport {
   check: CheckSummary | null;
   quantization: QuantRow[];
   storage: StorageSummary | null;
-  /** True when a gate failed (exit 1): then nothing was written. */
+  /** Where --save-probes wrote the probes (ONNX backend test-data layout), or null. */
+  probesSaved: { dir: string; sets: number } | null;
+  /** True when a gate failed, or --strict met a skipped check (exit 1): then nothing was written. */
   failed: boolean;
 }
 
@@ -83,6 +105,10 @@ export interface FoldJobOptions extends InputOptions {
   noProofs?: boolean;
   /** Tensors of at least this many bytes go to a side file. */
   externalThreshold?: number;
+  /** A skipped whole-model check fails the fold (exit 1, nothing written). */
+  strict?: boolean;
+  /** Write the check's probes and the original model's outputs here, in the ONNX backend test-data layout. */
+  saveProbes?: string;
 }
 
 export interface AuditJobOptions {

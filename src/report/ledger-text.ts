@@ -2,7 +2,7 @@
 // the hint), a totals line, then the whole-model check per output, quantization readiness, storage, and the
 // caution lines. Our own layout; nothing here compares operator counts side by side.
 import type { FoldReport, CheckSummary, QuantRow, StorageSummary } from '../jobs/types.js';
-import type { LedgerEntry } from '../fold/types.js';
+import type { LedgerEntry, ProofFigures } from '../fold/types.js';
 import { bytesText, CAUTION, cosineText, numText, plural, ratioText } from './format.js';
 import { paint, type Paint } from './paint.js';
 import { SPREAD_LIMIT } from '../fold/quant.js';
@@ -10,7 +10,7 @@ import { SPREAD_LIMIT } from '../fold/quant.js';
 const where = (graph: string) => (graph === 'main' ? '' : `  in ${graph}`);
 
 /** One ledger line per entry, columns padded to the widest node and op of this report. */
-export function ledgerLines(entries: ReadonlyArray<Pick<LedgerEntry, 'node' | 'op' | 'direction' | 'target' | 'reason' | 'hint' | 'graph'> & { status: string }>, p: Paint): string[] {
+export function ledgerLines(entries: ReadonlyArray<Pick<LedgerEntry, 'node' | 'op' | 'direction' | 'target' | 'reason' | 'hint' | 'graph'> & { status: string; proof?: ProofFigures }>, p: Paint): string[] {
   const nodeW = Math.max(0, ...entries.map((e) => e.node.length));
   const opW = Math.max(0, ...entries.map((e) => e.op.length));
   return entries.map((e) => {
@@ -19,14 +19,38 @@ export function ledgerLines(entries: ReadonlyArray<Pick<LedgerEntry, 'node' | 'o
       return `  ${p.warn('kept     ')}${head}  ${p.warn(e.reason ?? 'kept')}: ${e.hint}${where(e.graph)}`;
     }
     const mark = e.status === 'folded' ? p.good('folded   ') : p.good('foldable ');
-    return `  ${mark}${head}  into ${e.target ?? '?'} (${e.direction ?? '?'}): ${e.hint}${where(e.graph)}`;
+    return `  ${mark}${head}  into ${e.target ?? '?'} (${e.direction ?? '?'}): ${e.hint}${where(e.graph)}${e.proof ? `  ${proofText(e.proof)}` : ''}`;
   });
+}
+
+/** A fold's proof figures, compactly: the region's probe shape and its float64 errors. */
+export function proofText(f: ProofFigures): string {
+  return `[proof ${f.shape.join('x') || 'scalar'}: maxAbs ${numText(f.maxAbs)}, maxRel ${numText(f.maxRel)}]`;
+}
+
+/** The dims the probes took as 1 because nothing set them, one line each. */
+export function assumedDimLines(dims: CheckSummary['assumedDims']): string[] {
+  return dims.map((d) => `  probe dim ${d.symbol} = ${d.size} (no --dim given) for input ${d.inputs.join(', ')}`);
+}
+
+/** The coverage line, when some rewritten node never ran on any probe. */
+export function coverageLines(c: CheckSummary['coverage'], p: Paint): string[] {
+  if (c.missed.length === 0) return [];
+  const extra = c.extraProbes ? ` (after ${plural(c.extraProbes, 'extra probe')})` : '';
+  return [`  ${p.warn(`coverage ${c.executed}/${c.total}`)}: never executed by any probe${extra}: ${c.missed.join(', ')}; ` +
+    'the whole-model check says nothing about them (each fold was still proven on its own region)'];
 }
 
 export function checkLines(c: CheckSummary | null, p: Paint): string[] {
   if (c === null) return [`whole-model check: ${p.warn('not run')}: folds unproven; run pleat compare on the original and the folded model before shipping`];
-  if (c.skipped !== null) return [`whole-model check: ${p.warn('skipped')}: ${c.skipped}`];
-  const lines = [`whole-model check: ${c.passed ? p.good('passed') : p.bad('FAILED')} (${plural(c.probes, 'probe')}, seed ${c.seed})`];
+  if (c.skipped !== null) {
+    const lines = [`whole-model check: ${p.warn('skipped')} (${c.skipped.reason}): ${c.skipped.message}`, ...assumedDimLines(c.assumedDims)];
+    if (c.strict) lines.push(`  ${p.bad('--strict')}: a skipped check fails the fold; nothing written`);
+    return lines;
+  }
+  const cov = c.coverage.total ? `; coverage ${c.coverage.executed}/${c.coverage.total}` : '';
+  const lines = [`whole-model check: ${c.status === 'passed' ? p.good('passed') : p.bad('FAILED')} (${plural(c.probes, 'probe')}, seed ${c.seed}${cov})`];
+  lines.push(...assumedDimLines(c.assumedDims));
   const w = Math.max(0, ...c.outputs.map((o) => o.name.length));
   for (const o of c.outputs) {
     const verdict = o.passed ? p.good('pass') : p.bad('FAIL');
@@ -34,9 +58,11 @@ export function checkLines(c: CheckSummary | null, p: Paint): string[] {
       lines.push(`  ${o.name.padEnd(w)}  ${verdict}  ${o.problem}`);
       continue;
     }
-    lines.push(`  ${o.name.padEnd(w)}  ${verdict}  maxAbs ${numText(o.maxAbs)}  maxRel ${numText(o.maxRel)}  rms ${numText(o.rms)}  cosine ${cosineText(o.cosine)}`);
+    const note = o.observable === false ? `  ${p.warn('not observable')}: bit-identical on every probe although a rewritten node upstream ran` : '';
+    lines.push(`  ${o.name.padEnd(w)}  ${verdict}  maxAbs ${numText(o.maxAbs)}  maxRel ${numText(o.maxRel)}  rms ${numText(o.rms)}  cosine ${cosineText(o.cosine)}${note}`);
   }
   for (const g of c.gates) lines.push(`  gate: ${g}`);
+  lines.push(...coverageLines(c.coverage, p));
   return lines;
 }
 
@@ -63,7 +89,8 @@ export function foldText(r: FoldReport, colour = false, caution = true): string 
   const p = paint(colour);
   const folded = r.normalizations.filter((e) => e.status === 'folded').length;
   const kept = r.normalizations.length - folded;
-  const dest = r.output ?? (r.failed ? p.bad('nothing written (check failed)') : 'nothing written');
+  const why = r.check?.status === 'skipped' ? '--strict: check skipped' : 'check failed';
+  const dest = r.output ?? (r.failed ? p.bad(`nothing written (${why})`) : 'nothing written');
   const lines = [p.bold(`fold ${r.model} -> ${dest}`)];
   if (r.normalizations.length === 0) lines.push('  no normalizations found');
   lines.push(...ledgerLines(r.normalizations, p));
@@ -72,6 +99,7 @@ export function foldText(r: FoldReport, colour = false, caution = true): string 
   lines.push(`  ${folded} folded, ${kept} kept; ${plural(nodesRemoved, 'node')} removed (${r.nodesBefore} -> ${r.nodesAfter}); ` +
     `${bytesText(Math.max(0, bytesRemoved))} of weights saved (${bytesText(r.bytesBefore)} -> ${bytesText(r.bytesAfter)})`);
   lines.push(...checkLines(r.check, p), ...quantLines(r.quantization, p), ...storageLines(r.storage));
+  if (r.probesSaved) lines.push(`probes saved: ${plural(r.probesSaved.sets, 'set')} in ${r.probesSaved.dir} (ONNX backend test-data layout; float32-arithmetic outputs in ${r.probesSaved.dir}/float32)`);
   if (caution) lines.push(...CAUTION);
   return lines.join('\n') + '\n';
 }

@@ -3,7 +3,7 @@
 // budget adds A and B in float32 against the same reference, so a report can tell error the rewrite added
 // from rounding the model already had. Agreement on probe inputs is evidence, not proof, of agreement on real
 // data.
-import type { DataTypeCode, Model } from '../graph/ir.js';
+import type { DataTypeCode, Model, Node } from '../graph/ir.js';
 import { basename } from 'node:path';
 import type { Precision, Value } from '../eval/value.js';
 import { runModel } from '../eval/run.js';
@@ -12,8 +12,20 @@ import { dataTypeName } from '../graph/tensor.js';
 import { computeMetrics, worstOf, type Metrics } from './metrics.js';
 import { BUDGET_NAMES, defaultGateFor, defaultGateKey, METRIC_NAMES, parseGate, type Gate, type GateScope } from './gate.js';
 import {
-  asMap, checkDimFlags, makeProbe, resolveInputs, summarizeInputs, type InputOptions, type InputSummary, type InputValue,
+  asMap, checkDimFlags, makeProbe, refuseEmptyProbeDims, resolveInputs, summarizeInputs,
+  type AssumedDim, type InputOptions, type InputSpec, type InputSummary, type InputValue,
 } from './inputs.js';
+import { checkStatus, missedNodes, upstreamOfOutputs, type CheckStatus, type Coverage, type SkipInfo } from './status.js';
+
+export type { CheckStatus, Coverage, SkipInfo, SkipReason } from './status.js';
+
+/** One probe as --save-probes keeps it: the inputs, and model A's outputs in float64 and in float32. */
+export interface ProbeRecord {
+  index: number;
+  inputs: Map<string, Value>;
+  float64: Map<string, Value>;
+  float32: Map<string, Value>;
+}
 
 export interface CompareOptions extends InputOptions {
   /** Number of seeded input sets (--probes); default 3. When every input is given, one run is enough. */
@@ -22,12 +34,27 @@ export interface CompareOptions extends InputOptions {
   gate?: string;
   /** Also run both models in float32 to measure the error budget; default true. */
   budget?: boolean;
+  /**
+   * Nodes of model B to watch (a fold's rewritten nodes), each with the name the report gives it. The report
+   * then says which ran (coverage), draws extra probes while some have not, and marks outputs that stayed
+   * bit-identical although a watched node upstream ran.
+   */
+  watch?: ReadonlyMap<Node, string>;
+  /** Most extra seeded probes drawn while a watched node has not run; default 8. */
+  extraProbes?: number;
+  /** Receives every probe with A's outputs in float64 and float32 (for --save-probes). */
+  onProbe?: (p: ProbeRecord) => void;
 }
 
 export const DEFAULT_PROBES = 3;
+/** Bound on the extra probes drawn for coverage (our choice: a few seeded tries, not a search). */
+export const DEFAULT_EXTRA_PROBES = 8;
 
-/** 'compared', or why an output could not be compared (each is a failure). */
-export type OutputStatus = 'compared' | 'only-in-a' | 'only-in-b' | 'shape-differs';
+/**
+ * 'compared'; 'empty' when the output had no elements on any probe (nothing compared: the check is skipped);
+ * or why an output could not be compared (each is a failure).
+ */
+export type OutputStatus = 'compared' | 'empty' | 'only-in-a' | 'only-in-b' | 'shape-differs';
 
 export interface ErrorBudget {
   /** A in float32 against A in float64: the rounding the model already has. */
@@ -64,16 +91,33 @@ export interface OutputComparison {
   passed: boolean;
   /** One line saying what went wrong, when something did. */
   problem?: string;
+  /**
+   * With watched nodes: false when the output stayed bit-identical over every probe although a watched node
+   * upstream of it ran (saturation, e.g. a sigmoid at exactly 1.0): the change was not observable there.
+   * True when it differed; absent when no watched node upstream ran.
+   */
+  observable?: boolean;
 }
 
 export interface CompareReport {
+  /** 'passed' only when at least one probe compared at least one element of every output. */
+  status: CheckStatus;
+  /** Why nothing (or not every output) was compared; null unless status is 'skipped'. */
+  skipped: SkipInfo | null;
+  /** status === 'passed'. */
   passed: boolean;
   seed: number;
-  /** Input sets actually run. */
+  /** Input sets actually run (extra coverage probes included). */
   probes: number;
   budget: boolean;
+  /** Symbolic dims no flag or file set, which the probes took as 1. */
+  assumedDims: AssumedDim[];
   inputs: InputSummary[];
   outputs: OutputComparison[];
+  /** Which watched nodes ran; present when nodes were watched. */
+  coverage?: Coverage;
+  /** Where --save-probes wrote the probes; present when asked. */
+  probesSaved?: { dir: string; sets: number };
 }
 
 const LOOSENESS = ['exact', 'float64', 'float32', 'float16', 'bfloat16'] as const;
@@ -109,9 +153,9 @@ function checkCandidateInputs(b: Model, first: Map<string, Value>): void {
 }
 
 /** Run a model, prefixing any expected failure with which model it was ("model B (folded.onnx): ..."). */
-function runLabelled(model: Model, side: 'A' | 'B', inputs: Map<string, Value>, precision: Precision): Map<string, Value> {
+function runLabelled(model: Model, side: 'A' | 'B', inputs: Map<string, Value>, precision: Precision, onNode?: (n: Node) => void): Map<string, Value> {
   try {
-    return runModel(model, inputs, { precision });
+    return runModel(model, inputs, { precision, onNode });
   } catch (e) {
     if (e instanceof PleatError) {
       const file = model.sourcePath ? ` (${basename(model.sourcePath)})` : '';
@@ -131,9 +175,24 @@ export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareR
   if (!Number.isInteger(requested) || requested < 1) throw new PleatError('usage', `--probes ${requested}: give a whole number of at least 1`);
 
   const dims = asMap(opts.dims);
+  const shapes = asMap(opts.shapes);
   checkDimFlags(dims, [a.graph, b.graph]);
-  const specs = resolveInputs(a.graph, asMap(opts.inputs), asMap(opts.shapes), dims);
-  const probes = specs.every((s) => s.given) ? 1 : requested;
+  refuseEmptyProbeDims(dims, shapes);
+  const assumedDims: AssumedDim[] = [];
+  const skippedReport = (skipped: SkipInfo, specs: InputSpec[] = []): CompareReport => ({
+    status: 'skipped', skipped, passed: false, seed, probes: 0, budget, assumedDims, inputs: summarizeInputs(specs), outputs: [],
+    ...(opts.watch ? { coverage: { executed: 0, total: opts.watch.size, missed: missedNodes(opts.watch, new Set()), extraProbes: 0 } } : {}),
+  });
+  let specs: InputSpec[];
+  try {
+    specs = resolveInputs(a.graph, asMap(opts.inputs), shapes, dims, assumedDims);
+  } catch (e) {
+    if (e instanceof PleatError && e.kind === 'missing-shape') return skippedReport({ reason: 'no-shape', message: e.message });
+    throw e;
+  }
+  const allGiven = specs.every((s) => s.given);
+  const probes = allGiven ? 1 : requested;
+  const extraLimit = allGiven || !opts.watch ? 0 : opts.extraProbes ?? DEFAULT_EXTRA_PROBES;
 
   const aOut = a.graph.outputs;
   const bOut = new Map(b.graph.outputs.map((o) => [o.name, o]));
@@ -145,33 +204,47 @@ export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareR
   for (const o of aOut) if (bOut.has(o.name)) acc.set(o.name, { metrics: [], own: [], deploy: [], shapeDiffers: false });
   const onlyB = new Map<string, Value>();
   const onlyA = new Map<string, Value>();
+  const watch = opts.watch;
+  const executed = new Set<Node>();
+  const onNode = watch ? (n: Node) => { if (watch.has(n)) executed.add(n); } : undefined;
 
-  for (let p = 0; p < probes; p++) {
-    const inputs = makeProbe(specs, seed, p);
-    if (p === 0) checkCandidateInputs(b, inputs);
-    const ra = runLabelled(a, 'A', inputs, 'float64');
-    const rb = runLabelled(b, 'B', inputs, 'float64');
-    const ra32 = budget ? runLabelled(a, 'A', inputs, 'float32') : undefined;
-    const rb32 = budget ? runLabelled(b, 'B', inputs, 'float32') : undefined;
-    if (p === 0) {
-      for (const o of aOut) if (!bOut.has(o.name)) onlyA.set(o.name, ra.get(o.name)!);
-      for (const o of b.graph.outputs) if (!aNames.has(o.name)) onlyB.set(o.name, rb.get(o.name)!);
-    }
-    for (const [name, s] of acc) {
-      const va = ra.get(name)!, vb = rb.get(name)!;
-      if (p === 0) { s.dimsA = [...va.dims]; s.dimsB = [...vb.dims]; s.typeA = va.type; s.typeB = vb.type; }
-      if (s.shapeDiffers) continue;
-      if (!sameDims(va.dims, vb.dims)) { s.shapeDiffers = true; s.dimsA = [...va.dims]; s.dimsB = [...vb.dims]; continue; }
-      s.metrics.push(computeMetrics(vb.data, va.data));
-      if (ra32 && rb32) {
-        const a32 = ra32.get(name)!, b32 = rb32.get(name)!;
-        // float32 runs take the same shapes as float64 runs of the same model; B's were just checked against A's
-        s.own.push(computeMetrics(a32.data, va.data));
-        s.deploy.push(computeMetrics(b32.data, va.data));
+  let run = 0;
+  try {
+    for (let p = 0; p < probes + extraLimit; p++) {
+      if (p >= probes && executed.size === watch!.size) break;
+      const inputs = makeProbe(specs, seed, p);
+      if (p === 0) checkCandidateInputs(b, inputs);
+      const ra = runLabelled(a, 'A', inputs, 'float64');
+      const rb = runLabelled(b, 'B', inputs, 'float64', onNode);
+      const ra32 = budget || opts.onProbe ? runLabelled(a, 'A', inputs, 'float32') : undefined;
+      const rb32 = budget ? runLabelled(b, 'B', inputs, 'float32') : undefined;
+      opts.onProbe?.({ index: p, inputs, float64: ra, float32: ra32! });
+      run++;
+      if (p === 0) {
+        for (const o of aOut) if (!bOut.has(o.name)) onlyA.set(o.name, ra.get(o.name)!);
+        for (const o of b.graph.outputs) if (!aNames.has(o.name)) onlyB.set(o.name, rb.get(o.name)!);
+      }
+      for (const [name, s] of acc) {
+        const va = ra.get(name)!, vb = rb.get(name)!;
+        if (p === 0) { s.dimsA = [...va.dims]; s.dimsB = [...vb.dims]; s.typeA = va.type; s.typeB = vb.type; }
+        if (s.shapeDiffers) continue;
+        if (!sameDims(va.dims, vb.dims)) { s.shapeDiffers = true; s.dimsA = [...va.dims]; s.dimsB = [...vb.dims]; continue; }
+        s.metrics.push(computeMetrics(vb.data, va.data));
+        if (budget && ra32 && rb32) {
+          const a32 = ra32.get(name)!, b32 = rb32.get(name)!;
+          // float32 runs take the same shapes as float64 runs of the same model; B's were just checked against A's
+          s.own.push(computeMetrics(a32.data, va.data));
+          s.deploy.push(computeMetrics(b32.data, va.data));
+        }
       }
     }
+  } catch (e) {
+    // an operator pleat cannot evaluate leaves nothing compared: the check is skipped, never passed
+    if (e instanceof PleatError && e.kind === 'unsupported-op') return skippedReport({ reason: 'no-kernel', message: e.message }, specs);
+    throw e;
   }
 
+  const upstream = watch ? upstreamOfOutputs(b.graph, watch) : undefined;
   const outputs: OutputComparison[] = [];
   for (const o of aOut) {
     const s = acc.get(o.name);
@@ -192,6 +265,12 @@ export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareR
     }
     const metrics = worstOf(s.metrics);
     out.metrics = metrics;
+    if (s.metrics.every((m) => m.count === 0)) {
+      out.status = 'empty';
+      out.problem = `output '${o.name}' has no elements on any probe, so nothing was compared`;
+      outputs.push(out);
+      continue;
+    }
     const scope: GateScope = { ...metrics };
     if (budget) {
       const own = worstOf(s.own), deploy = worstOf(s.deploy);
@@ -204,13 +283,19 @@ export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareR
     out.gate = { expr: gate.expr, source: userGate ? 'user' : 'default', passed };
     out.passed = passed;
     if (!passed) out.problem = `output '${o.name}' fails the gate '${gate.expr}'`;
+    if (upstream && [...(upstream.get(o.name) ?? [])].some((n) => executed.has(n))) {
+      out.observable = !(metrics.maxAbs === 0 && metrics.nanMismatches === 0);
+    }
     outputs.push(out);
   }
   for (const [name, v] of onlyB) {
     outputs.push({ name, status: 'only-in-b', dtype: dataTypeName(v.type), dims: [...v.dims], passed: false,
       problem: `model A has no output '${name}'` });
   }
-  return { passed: outputs.every((o) => o.passed), seed, probes, budget, inputs: summarizeInputs(specs), outputs };
+  const { status, skipped } = checkStatus(outputs);
+  const report: CompareReport = { status, skipped, passed: status === 'passed', seed, probes: run, budget, assumedDims, inputs: summarizeInputs(specs), outputs };
+  if (watch) report.coverage = { executed: executed.size, total: watch.size, missed: missedNodes(watch, executed), extraProbes: run - Math.min(run, probes) };
+  return report;
 }
 
 /**
