@@ -4,19 +4,22 @@ import type { CompareReport } from '../../src/verify/compare.js';
 
 export function foldReport(over: Partial<FoldReport> = {}): FoldReport {
   return {
-    schemaVersion: 1, command: 'fold', model: 'models/tray-sorter.onnx', output: 'out/tray-sorter.onnx',
+    schemaVersion: 2, command: 'fold', model: 'models/tray-sorter.onnx', output: 'out/tray-sorter.onnx',
     normalizations: [
-      { node: 'stem_bn', op: 'BatchNormalization', status: 'folded', direction: 'into-producer', target: 'stem_conv', reason: null, hint: 'scaled 16 output channels of stem_conv', graph: 'main' },
+      { node: 'stem_bn', op: 'BatchNormalization', status: 'folded', direction: 'into-producer', target: 'stem_conv', reason: null, hint: 'scaled 16 output channels of stem_conv', graph: 'main',
+        proof: { maxAbs: 4.4e-16, maxRel: 2.1e-16, shape: [2, 3, 5, 5] } },
       { node: 'head_bn', op: 'BatchNormalization', status: 'folded', direction: 'into-consumer', target: 'head_fc', reason: null, hint: 'scaled the input columns of head_fc', graph: 'main' },
       { node: 'edge_bn', op: 'BatchNormalization', status: 'kept', direction: null, target: null, reason: 'padded-consumer', hint: 'remove the padding of the next convolution <pad=1> & "fold"', graph: 'main/branch_if.then_branch' },
     ],
     nodesBefore: 41, nodesAfter: 37, bytesBefore: 10240, bytesAfter: 10040,
     check: {
-      passed: true, skipped: null, probes: 2, seed: 0, gates: ['maxRel <= 1e-3 and cosine >= 0.99999'],
-      outputs: [{ name: 'tray_class', maxAbs: 1.2e-7, maxRel: 3.4e-6, rms: 2e-8, cosine: 0.9999999999, passed: true }],
+      status: 'passed', passed: true, skipped: null, strict: false, probes: 2, seed: 0, gates: ['maxRel <= 1e-3 and cosine >= 0.99999'],
+      assumedDims: [], coverage: { executed: 2, total: 2, missed: [], extraProbes: 0 },
+      outputs: [{ name: 'tray_class', maxAbs: 1.2e-7, maxRel: 3.4e-6, rms: 2e-8, cosine: 0.9999999999, passed: true, status: 'compared', count: 10 }],
     },
     quantization: [{ target: 'stem_conv', norms: ['stem_bn'], channels: 16, spreadBefore: 2.4, spreadAfter: 51.2, flagged: true }],
     storage: null,
+    probesSaved: null,
     failed: false,
     ...over,
   };
@@ -24,7 +27,7 @@ export function foldReport(over: Partial<FoldReport> = {}): FoldReport {
 
 export function auditReport(over: Partial<AuditReport> = {}): AuditReport {
   return {
-    schemaVersion: 1, command: 'audit', model: 'models/pump|monitor.onnx',
+    schemaVersion: 2, command: 'audit', model: 'models/pump|monitor.onnx',
     normalizations: [
       { node: 'conv1_bn', op: 'BatchNormalization', status: 'foldable', direction: 'into-producer', target: 'conv1', reason: null, hint: 'would scale conv1', graph: 'main' },
       { node: 'ln', op: 'LayerNormalization', status: 'kept', direction: null, target: null, reason: 'runtime-statistics', hint: 'statistics come from each input; its affine tail could fold into dense_2', graph: 'main' },
@@ -37,7 +40,7 @@ export function auditReport(over: Partial<AuditReport> = {}): AuditReport {
 export function compareReport(): CompareReport {
   const m = { maxAbs: 2e-7, maxRel: 1e-6, rms: 5e-8, cosine: 1, nanMismatches: 0, peak: 3.2, count: 10 };
   return {
-    passed: false, seed: 0, probes: 3, budget: true,
+    status: 'failed', skipped: null, passed: false, seed: 0, probes: 3, budget: true, assumedDims: [],
     inputs: [{ name: 'image', dtype: 'float32', dims: [1, 3, 8, 8], source: 'probe' }],
     outputs: [
       { name: 'tray_class', status: 'compared', dtype: 'float32', dims: [1, 10], metrics: m,
