@@ -63,6 +63,16 @@ describe('check status', { timeout: 180_000 }, () => {
     expect(j.check.probes).toBeGreaterThanOrEqual(1);
     expect(j.check.assumedDims).toEqual([{ symbol: 'batch', size: 1, inputs: ['image'] }]);
     for (const o of j.check.outputs) expect(o.count).toBeGreaterThan(0);
+    // every folded ledger entry carries its proof's figures
+    const folded = j.normalizations.filter((e: { status: string }) => e.status === 'folded');
+    expect(folded.length).toBeGreaterThan(0);
+    for (const e of folded) {
+      expect(Object.keys(e.proof)).toEqual(['maxAbs', 'maxRel', 'shape']);
+      expect(e.proof.maxAbs).toBeLessThan(1e-4);
+      expect(e.proof.shape.length).toBe(4);
+    }
+    expect(j.check.coverage.total).toBeGreaterThan(0);
+    expect(j.check.coverage.executed).toBe(j.check.coverage.total);
     const t = pleat(['fold', SORTER, '-o', out]);
     expect(t.stdout).toMatch(/whole-model check: passed/);
     expect(t.stdout).toMatch(/dim batch = 1 \(no --dim given\) for input image/);
