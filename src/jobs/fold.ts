@@ -1,6 +1,6 @@
 // The fold job: read -> fold (each fold proven on its region) -> optional half-precision storage ->
 // whole-model check -> write -> report. A failing whole-model gate writes nothing.
-import type { Model } from '../graph/ir.js';
+import type { Graph, Model, Node } from '../graph/ir.js';
 import { readModelFile } from '../onnx/read.js';
 import { writeModelFile } from '../onnx/write.js';
 import { storeFloat16 } from '../ship/store-float16.js';
@@ -15,7 +15,56 @@ import { compare, type ProbeRecord } from '../verify/compare.js';
 import { checkProbeDir, saveProbeSets } from '../verify/probe-files.js';
 import type { RewrittenNode } from '../fold/types.js';
 import { provenanceOf, setProvenance } from './provenance.js';
-import { SCHEMA_VERSION, type CheckSummary, type FoldJobOptions, type FoldReport, type StorageSummary } from './types.js';
+import { SCHEMA_VERSION, type CheckSummary, type Coverage, type FoldJobOptions, type FoldReport, type StorageSummary } from './types.js';
+
+/** A rewritten node as the check finds it again in any copy of the folded model: graph path and first output. */
+export interface RewrittenKey {
+  /** 'main' or e.g. 'main/gate_if.then_branch' (unnamed nodes on the path as op#index). */
+  path: string;
+  output: string;
+  /** How reports name it (its ledger name, with its graph when not main). */
+  name: string;
+}
+
+/** Every node of the model with its graph path, main first, bodies in node order. */
+function eachNodeWithPath(model: Model, visit: (n: Node, path: string) => void): void {
+  const walk = (g: Graph, path: string) => {
+    g.nodes.forEach((n, i) => {
+      visit(n, path);
+      for (const a of n.attributes) {
+        if (a.value.type !== 'GRAPH' && a.value.type !== 'GRAPHS') continue;
+        const gs = a.value.type === 'GRAPH' ? [a.value.g] : a.value.graphs;
+        gs.forEach((sg, k) => walk(sg, `${path}/${n.name || `${n.opType}#${i}`}.${a.name}${gs.length > 1 ? `[${k}]` : ''}`));
+      }
+    });
+  };
+  walk(model.graph, 'main');
+}
+
+/** Keys of the rewritten nodes in the folded model, so the check can watch them in a copy read back from disk. */
+export function rewrittenKeys(folded: Model, rewritten: readonly RewrittenNode[]): RewrittenKey[] {
+  const byNode = new Map(rewritten.map((r) => [r.node, r]));
+  const out: RewrittenKey[] = [];
+  eachNodeWithPath(folded, (n, path) => {
+    const r = byNode.get(n);
+    if (r && n.outputs[0]) out.push({ path, output: n.outputs[0], name: r.graph === 'main' ? r.label : `${r.label} in ${r.graph}` });
+  });
+  return out;
+}
+
+/** The nodes of `model` the keys name, with their report names. */
+function watchIn(model: Model, keys: readonly RewrittenKey[]): Map<Node, string> {
+  const want = new Map(keys.map((k) => [`${k.path}\u0000${k.output}`, k.name]));
+  const out = new Map<Node, string>();
+  eachNodeWithPath(model, (n, path) => {
+    const name = n.outputs[0] !== undefined ? want.get(`${path}\u0000${n.outputs[0]}`) : undefined;
+    if (name !== undefined) out.set(n, name);
+  });
+  return out;
+}
+
+/** A rewritten node the checked copy does not hold counts as never executed. */
+const withLost = (c: Coverage, lost: string[]): Coverage => (lost.length ? { ...c, total: c.total + lost.length, missed: [...c.missed, ...lost] } : c);
 
 /** The gate the whole-model check applies to every output ('' means the default per data type). */
 function checkGate(opts: FoldJobOptions & { halfGate?: boolean }): string | undefined {
@@ -26,7 +75,7 @@ function checkGate(opts: FoldJobOptions & { halfGate?: boolean }): string | unde
  * Compare the original and the folded model on seeded probes, watching the rewritten nodes. The status follows
  * the rules of compare (verify/status.ts): skipped, never passed, when nothing could be compared.
  */
-export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOptions & { halfGate?: boolean; rewritten?: readonly RewrittenNode[]; onProbe?: (p: ProbeRecord) => void }): CheckSummary {
+export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOptions & { halfGate?: boolean; rewritten?: readonly RewrittenKey[]; onProbe?: (p: ProbeRecord) => void }): CheckSummary {
   const seed = opts.seed ?? 0;
   const probes = opts.probes ?? 2;
   const gate = checkGate(opts);
@@ -35,7 +84,9 @@ export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOpt
   const inputNames = new Set(original.graph.inputs.map((i) => i.name));
   const dims = new Map([...asMap(opts.dims)].filter(([k]) => symbols.has(k)));
   const shapes = new Map([...asMap(opts.shapes)].filter(([k]) => inputNames.has(k)));
-  const watch = new Map((opts.rewritten ?? []).map((r) => [r.node, r.graph === 'main' ? r.label : `${r.label} in ${r.graph}`]));
+  const watch = watchIn(folded, opts.rewritten ?? []);
+  const found = new Set(watch.values());
+  const lost = (opts.rewritten ?? []).filter((k) => !found.has(k.name)).map((k) => k.name);
   const r = compare(original, folded, {
     inputs: opts.inputs, shapes, dims, seed, probes, gate, budget: false, watch, onProbe: opts.onProbe,
   });
@@ -48,7 +99,8 @@ export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOpt
     seed,
     gates: [...new Set(r.outputs.map((o) => o.gate?.expr).filter((g): g is string => !!g))],
     assumedDims: r.assumedDims,
-    coverage: r.coverage ?? { executed: 0, total: 0, missed: [], extraProbes: 0 },
+    // a rewritten node the folded copy no longer holds counts as never executed
+    coverage: r.coverage ? withLost(r.coverage, lost) : { executed: 0, total: 0, missed: [], extraProbes: 0 },
     outputs: r.outputs.map((o) => ({
       name: o.name,
       maxAbs: o.metrics?.maxAbs ?? NaN,
@@ -85,7 +137,8 @@ export function foldLoaded(model: Model, original: Model | undefined, label: str
     const r = storeFloat16(model);
     storage = { store: 'float16', ...r };
   }
-  const check = original && !opts.noProofs ? wholeModelCheck(original, model, { ...opts, halfGate: storage !== null, rewritten, onProbe }) : null;
+  const check = original && !opts.noProofs
+    ? wholeModelCheck(original, model, { ...opts, halfGate: storage !== null, rewritten: rewrittenKeys(model, rewritten), onProbe }) : null;
   const failed = check !== null && (check.status === 'failed' || (check.status === 'skipped' && check.strict));
   return {
     schemaVersion: SCHEMA_VERSION,

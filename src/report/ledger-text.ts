@@ -33,11 +33,16 @@ export function assumedDimLines(dims: CheckSummary['assumedDims']): string[] {
   return dims.map((d) => `  probe dim ${d.symbol} = ${d.size} (no --dim given) for input ${d.inputs.join(', ')}`);
 }
 
+/** A list of names, the first ten of a long one (the JSON report holds them all). */
+export function namesText(names: readonly string[], limit = 10): string {
+  return names.length <= limit ? names.join(', ') : `${names.slice(0, limit).join(', ')} and ${names.length - limit} more`;
+}
+
 /** The coverage line, when some rewritten node never ran on any probe. */
 export function coverageLines(c: CheckSummary['coverage'], p: Paint): string[] {
   if (c.missed.length === 0) return [];
   const extra = c.extraProbes ? ` (after ${plural(c.extraProbes, 'extra probe')})` : '';
-  return [`  ${p.warn(`coverage ${c.executed}/${c.total}`)}: never executed by any probe${extra}: ${c.missed.join(', ')}; ` +
+  return [`  ${p.warn(`coverage ${c.executed}/${c.total}`)}: never executed by any probe${extra}: ${namesText(c.missed)}; ` +
     'the whole-model check says nothing about them (each fold was still proven on its own region)'];
 }
 

@@ -43,7 +43,7 @@ export function foldMarkdown(r: FoldReport): string {
   if (c) {
     const notes: string[] = [];
     for (const d of c.assumedDims) notes.push(`Probe dim ${code(d.symbol)} = ${d.size} (no \`--dim\` given).`);
-    if (c.coverage.missed.length) notes.push(`Coverage ${c.coverage.executed}/${c.coverage.total}: no probe executed ${c.coverage.missed.map(code).join(', ')} (each fold was proven on its own region).`);
+    if (c.coverage.missed.length) notes.push(`Coverage ${c.coverage.executed}/${c.coverage.total}: no probe executed ${c.coverage.missed.slice(0, 10).map(code).join(', ')}${c.coverage.missed.length > 10 ? ` and ${c.coverage.missed.length - 10} more` : ''} (each fold was proven on its own region).`);
     for (const o of c.outputs) if (o.observable === false) notes.push(`Output ${code(o.name)}: not observable, bit-identical on every probe although a rewritten node upstream ran.`);
     if (notes.length) out.push(...notes, '');
   }

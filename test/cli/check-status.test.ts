@@ -159,6 +159,10 @@ describe('check status', { timeout: 180_000 }, () => {
     // the same model with a passing check is unaffected by --strict
     const ok = pleat(['fold', SORTER, '-o', join(dir, 'strict-ok.onnx'), '--strict']);
     expect(ok.code).toBe(0);
+    // --strict needs the check that --unproven leaves out
+    const u = pleat(['fold', SORTER, '-o', join(dir, 'u.onnx'), '--strict', '--unproven']);
+    expect(u.code).toBe(2);
+    expect(u.stderr).toMatch(/--strict .*--unproven/);
     // compare: skipped is exit 0 without --strict, exit 1 with it
     const e = emptyOutputModel();
     expect(pleat(['compare', e, e, '--strict']).code).toBe(1);
