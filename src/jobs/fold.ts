@@ -93,7 +93,8 @@ export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOpt
   return {
     status: r.status,
     passed: r.passed,
-    skipped: r.skipped,
+    // compare names its sides A and B; here they are the original and the folded model
+    skipped: r.skipped && { ...r.skipped, message: r.skipped.message.replace(/^model A\b/, 'the original model').replace(/^model B\b/, 'the folded model') },
     strict: opts.strict ?? false,
     probes: r.probes,
     seed,
