@@ -5,7 +5,7 @@ import { closeSync, openSync, readSync } from 'node:fs';
 import { createHash } from 'node:crypto';
 import type { Model } from '../graph/ir.js';
 import { PleatError } from '../errors.js';
-import { pleatVersion } from '../version.js';
+import { pleatVersion } from './version.js';
 import type { CheckSummary, FoldJobOptions } from './types.js';
 
 /** Keys pleat writes; an earlier fold's entries under these keys are replaced, everything else is kept. */
