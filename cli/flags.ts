@@ -30,6 +30,18 @@ export function checkFlags<T>(y: Argv<T>) {
     .option('save-probes', { type: 'string', describe: "write the probes and the original model's float64 and float32 outputs to this new or empty DIR (ONNX backend test-data layout: test_data_set_N/input_K.pb, output_K.pb)" });
 }
 
+/** --simulate-int8 weights and --int8-granularity tensor|channel (fold and compare). */
+export function int8Flags<T>(y: Argv<T>) {
+  return y
+    .option('simulate-int8', { type: 'string', choices: ['weights'], describe: 'also run with Conv/Gemm/MatMul weights rounded through symmetric 8-bit quantize-dequantize, and report the output error' })
+    .option('int8-granularity', { type: 'string', choices: ['tensor', 'channel'], default: 'tensor', describe: 'one 8-bit scale per weight tensor or per output channel (with --simulate-int8)' });
+}
+
+/** The granularity to simulate, or undefined without --simulate-int8. */
+export function int8Setting(flags: { simulateInt8?: string; int8Granularity?: string }): 'tensor' | 'channel' | undefined {
+  return flags.simulateInt8 === 'weights' ? (flags.int8Granularity === 'channel' ? 'channel' : 'tensor') : undefined;
+}
+
 export function configFlags<T>(y: Argv<T>) {
   return y.option('config', { type: 'string', describe: 'defaults from this JSON file (else pleat.config.json here, if present); flags override it' });
 }

@@ -5,10 +5,12 @@ import type { AssumedDim, InputOptions } from '../verify/inputs.js';
 import type { CheckStatus, Coverage, SkipInfo } from '../verify/status.js';
 import type { OutputStatus } from '../verify/compare.js';
 import type { QuantRow } from '../fold/quant.js';
+import type { EqualizedPair } from '../fold/equalize.js';
+import type { Int8Granularity } from '../fold/int8.js';
 
-export type { QuantRow, AssumedDim, CheckStatus, Coverage, OutputStatus, SkipInfo };
+export type { QuantRow, EqualizedPair, Int8Granularity, AssumedDim, CheckStatus, Coverage, OutputStatus, SkipInfo };
 
-export const SCHEMA_VERSION = 2;
+export const SCHEMA_VERSION = 3;
 
 export interface OutputCheck {
   name: string;
@@ -74,6 +76,12 @@ export interface FoldReport {
   bytesAfter: number;
   check: CheckSummary | null;
   quantization: QuantRow[];
+  /** --quant-threshold: a folded layer is flagged when a channel's per-tensor 8-bit SQNR falls below this (dB). */
+  quantThresholdDb: number;
+  /** --equalize: each pair of layers found, equalized or refused (empty without --equalize). */
+  equalized: EqualizedPair[];
+  /** --simulate-int8 weights: the output error of 8-bit weights, for the original and for the folded model. */
+  int8: Int8Simulation | null;
   storage: StorageSummary | null;
   /** Where --save-probes wrote the probes (ONNX backend test-data layout), or null. */
   probesSaved: { dir: string; sets: number } | null;
@@ -93,6 +101,22 @@ export interface AuditReport {
   failed: boolean;
 }
 
+/** One output of an 8-bit weight simulation: each model with rounded weights against the original in float64. */
+export interface Int8Output {
+  name: string;
+  /** The original model with its weights rounded, against itself unrounded: what 8 bits cost without the fold. */
+  original: { maxAbs: number; maxRel: number; cosine: number } | null;
+  /** The folded (and equalized) model with its weights rounded, against the unrounded original. */
+  folded: { maxAbs: number; maxRel: number; cosine: number } | null;
+  problem?: string;
+}
+
+export interface Int8Simulation {
+  granularity: Int8Granularity;
+  probes: number;
+  outputs: Int8Output[];
+}
+
 export interface FoldJobOptions extends InputOptions {
   keep?: string[];
   allowOverridable?: boolean;
@@ -105,6 +129,12 @@ export interface FoldJobOptions extends InputOptions {
   noProofs?: boolean;
   /** Tensors of at least this many bytes go to a side file. */
   externalThreshold?: number;
+  /** Flag folded layers whose worst channel's per-tensor 8-bit SQNR is below this (dB); default QUANT_THRESHOLD_DB. */
+  quantThresholdDb?: number;
+  /** Cross-layer equalization after folding (Nagel et al. 2019, section 4.1). */
+  equalize?: boolean;
+  /** Also report the output error of 8-bit weights (per tensor or per channel), before and after the fold. */
+  simulateInt8?: Int8Granularity;
   /** A skipped whole-model check fails the fold (exit 1, nothing written). */
   strict?: boolean;
   /** Write the check's probes and the original model's outputs here, in the ONNX backend test-data layout. */

@@ -10,6 +10,10 @@ export function compareText(r: CompareReport, a: string, b: string, colour = fal
   const lines = [p.bold(`compare ${a} with ${b}: `) + verdict + ` (${plural(r.probes, 'probe')}, seed ${r.seed})`];
   if (r.skipped) lines.push(`  ${r.skipped.message}`);
   for (const d of r.assumedDims) lines.push(`  probe dim ${d.symbol} = ${d.size} (no --dim given) for input ${d.inputs.join(', ')}`);
+  if (r.int8Weights) {
+    const g = r.int8Weights.granularity === 'tensor' ? 'one scale per tensor' : 'one scale per output channel';
+    lines.push(`  model B ran with 8-bit weights: ${plural(r.int8Weights.layers, 'Conv/Gemm/MatMul layer')} rounded through symmetric quantize-dequantize, ${g}`);
+  }
   for (const i of r.inputs) lines.push(`  input ${i.name}  ${i.dtype} [${i.dims.join('x')}]  ${i.source === 'file' ? `from ${i.file}` : i.source === 'probe' ? 'seeded probe' : 'given value'}`);
   const w = Math.max(0, ...r.outputs.map((o) => o.name.length));
   for (const o of r.outputs) {
