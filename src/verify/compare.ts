@@ -3,7 +3,8 @@
 // budget adds A and B in float32 against the same reference, so a report can tell error the rewrite added
 // from rounding the model already had. Agreement on probe inputs is evidence, not proof, of agreement on real
 // data.
-import type { DataTypeCode, Model, Node } from '../graph/ir.js';
+import { subgraphsOf, type DataTypeCode, type Graph, type Model, type Node } from '../graph/ir.js';
+import { isRandomOp } from '../eval/registry.js';
 import { basename } from 'node:path';
 import type { Precision, Value } from '../eval/value.js';
 import { runModel } from '../eval/run.js';
@@ -176,6 +177,12 @@ function runLabelled(model: Model, side: 'A' | 'B', inputs: Map<string, Value>, 
   }
 }
 
+/** True when some node, in any graph of the model, draws random numbers (two runs cannot be compared). */
+function hasRandomOp(m: Model): boolean {
+  const visit = (g: Graph): boolean => g.nodes.some((n) => isRandomOp(n.domain, n.opType) || subgraphsOf(n).some(visit));
+  return visit(m.graph);
+}
+
 /** Run A and B on the same inputs and judge each output against its gate. Never throws for disagreeing outputs. */
 export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareReport {
   const int8 = opts.simulateInt8 ? roundedWeightsModel(b, opts.simulateInt8) : undefined;
@@ -254,7 +261,9 @@ export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareR
     }
   } catch (e) {
     // an operator pleat cannot evaluate leaves nothing compared: the check is skipped, never passed
-    if (e instanceof PleatError && e.kind === 'unsupported-op') return skippedReport({ reason: 'no-kernel', message: e.message }, specs);
+    if (e instanceof PleatError && e.kind === 'unsupported-op') {
+      return skippedReport({ reason: hasRandomOp(a) || hasRandomOp(b) ? 'random-op' : 'no-kernel', message: e.message }, specs);
+    }
     throw e;
   }
 

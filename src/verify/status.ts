@@ -10,9 +10,10 @@ export type CheckStatus = 'passed' | 'failed' | 'skipped';
  * Why a check compared nothing (or not every output):
  * - `no-shape`: an input's shape is unknown and no flag sets it;
  * - `no-kernel`: the evaluator has no kernel for an operator (or attribute value) of the model;
+ * - `random-op`: the model draws random numbers (Bernoulli, RandomNormal, ...), so two runs cannot be compared;
  * - `no-elements`: an output had no elements on any probe, or the model has no outputs.
  */
-export type SkipReason = 'no-shape' | 'no-kernel' | 'no-elements';
+export type SkipReason = 'no-shape' | 'no-kernel' | 'random-op' | 'no-elements';
 
 export interface SkipInfo {
   reason: SkipReason;
