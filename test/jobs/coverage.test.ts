@@ -85,6 +85,29 @@ describe('coverage of rewritten nodes', { timeout: 120_000 }, () => {
     expect(c.outputs[0]!.observable).toBe(true);
   });
 
+  it('a Loop body: coverage counts the folded layer only when the body runs (0 trips: never; 2 trips: executed)', () => {
+    const loopModel = (trips: number) => {
+      const body = new GraphBuilder('body');
+      body.input('i', [], 7).input('c', [], 9).input('v', [1, 4, 4, 4]);
+      body.output('c_out', [], 9).output('v_out', [1, 4, 4, 4]);
+      body.node('Identity', ['c'], {}, { name: 'keep_going', outputs: ['c_out'] });
+      body.init('lw', [4, 4, 1, 1], randn(rng(11), 16, 0.5));
+      const c = body.node('Conv', ['v', 'lw'], {}, { name: 'step_conv' });
+      body.node('BatchNormalization', [c, ...bnParams(body, 'step_bn', 4, 12)], {}, { name: 'step_bn', outputs: ['v_out'] });
+      const g = new GraphBuilder();
+      g.input('x', [1, 4, 4, 4]).output('y', [1, 4, 4, 4]);
+      g.init('trips', [], [trips], 7); g.init('go', [], [1], 9);
+      g.node('Loop', ['trips', 'go', 'x'], { body }, { name: 'refine', outputs: ['y'] });
+      return modelBytes(g);
+    };
+    const never = foldFile(save('loop0.onnx', loopModel(0)), join(dir, 'loop0.out.onnx'));
+    expect(never.normalizations.find((e) => e.node === 'step_bn')!.status).toBe('folded');
+    expect(never.check!.coverage).toEqual({ executed: 0, total: 1, missed: ['step_conv in main/refine.body'], extraProbes: DEFAULT_EXTRA_PROBES });
+    const twice = foldFile(save('loop2.onnx', loopModel(2)), join(dir, 'loop2.out.onnx'));
+    expect(twice.check!.coverage).toEqual({ executed: 1, total: 1, missed: [], extraProbes: 0 });
+    expect(twice.check!.outputs[0]!.observable).toBe(true);
+  });
+
   it('a saturated output is reported as not observable; an unsaturated one beside it as observable', () => {
     const g = new GraphBuilder();
     g.input('x', [1, 3, 4, 4]).output('sure', [1, 4, 4, 4]).output('score', [1, 4, 4, 4]);
