@@ -79,6 +79,7 @@ export interface RunFlags {
   probes?: number;
   gate?: string;
   strict?: boolean;
+  maxProbeMemory?: string;
 }
 
 export interface RunSettings {
@@ -90,6 +91,15 @@ export interface RunSettings {
   gate?: string;
   /** --strict, else the config's strict, else false. */
   strict: boolean;
+  maxProbeMemory?: number;
+}
+
+/** `--max-probe-memory`: a whole number of bytes, or with a K, M or G suffix (powers of 1024). */
+export function parseBytes(flag: string, text: string): number {
+  const m = /^(\d+)([KMG]?)(i?B)?$/i.exec(text.trim());
+  const n = m ? Number(m[1]) * 1024 ** ' KMG'.indexOf((m[2] || ' ').toUpperCase()) : NaN;
+  if (!Number.isSafeInteger(n) || n <= 0) throw new PleatError('usage', `--${flag} '${text}': give a number of bytes above 0, e.g. 536870912 or 512M`);
+  return n;
 }
 
 /** Flags over config: input values loaded, shapes and dims merged per name, scalars taken from flags first. */
@@ -110,6 +120,7 @@ export function runSettings(config: PleatConfig, flags: RunFlags): RunSettings {
     probes: flags.probes ?? config.probes,
     gate: flags.gate ?? config.gate,
     strict: flags.strict ?? config.strict ?? false,
+    maxProbeMemory: flags.maxProbeMemory === undefined ? undefined : parseBytes('max-probe-memory', String(flags.maxProbeMemory)),
   };
 }
 

@@ -6,7 +6,7 @@ import { createHash } from 'node:crypto';
 import type { Model } from '../graph/ir.js';
 import { PleatError } from '../errors.js';
 import { pleatVersion } from './version.js';
-import type { CheckSummary, FoldJobOptions } from './types.js';
+import type { FoldJobOptions } from './types.js';
 
 /** Keys pleat writes; an earlier fold's entries under these keys are replaced, everything else is kept. */
 export const PROVENANCE_KEYS = ['pleat.version', 'pleat.source.sha256', 'pleat.check.status', 'pleat.check.gate', 'pleat.check.seed'] as const;
@@ -33,11 +33,12 @@ export function sha256File(path: string): string {
   return h.digest('hex');
 }
 
-export function provenanceOf(source: string, gate: string | undefined, opts: FoldJobOptions, check: CheckSummary | null): Array<[string, string]> {
+/** The entries for a fold of a source whose SHA-256 is `sha256`; `status` is the check's (or 'not-run'). */
+export function provenanceOf(sha256: string, gate: string | undefined, opts: FoldJobOptions, status: string): Array<[string, string]> {
   return [
     ['pleat.version', pleatVersion()],
-    ['pleat.source.sha256', sha256File(source)],
-    ['pleat.check.status', check === null ? 'not-run' : check.status],
+    ['pleat.source.sha256', sha256],
+    ['pleat.check.status', status],
     ['pleat.check.gate', gate ?? 'default per output type'],
     ['pleat.check.seed', String(opts.seed ?? 0)],
   ];

@@ -8,6 +8,8 @@ import { isRandomOp } from '../eval/registry.js';
 import { basename } from 'node:path';
 import type { Precision, Value } from '../eval/value.js';
 import { runModel } from '../eval/run.js';
+import { withProbeMemory } from '../eval/budget.js';
+import { checkProbeEstimate } from './probe-budget.js';
 import { PleatError } from '../errors.js';
 import { dataTypeName } from '../graph/tensor.js';
 import { computeMetrics, worstOf, type Metrics } from './metrics.js';
@@ -37,6 +39,8 @@ export interface CompareOptions extends InputOptions {
   gate?: string;
   /** Also run both models in float32 to measure the error budget; default true. */
   budget?: boolean;
+  /** Probe memory limit in bytes (--max-probe-memory); default DEFAULT_PROBE_MEMORY (src/eval/budget.ts). */
+  maxProbeMemory?: number;
   /**
    * Nodes of model B to watch (a fold's rewritten nodes), each with the name the report gives it. The report
    * then says which ran (coverage), draws extra probes while some have not, and marks outputs that stayed
@@ -185,6 +189,10 @@ function hasRandomOp(m: Model): boolean {
 
 /** Run A and B on the same inputs and judge each output against its gate. Never throws for disagreeing outputs. */
 export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareReport {
+  return withProbeMemory(opts.maxProbeMemory, () => compareWithin(a, b, opts));
+}
+
+function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport {
   const int8 = opts.simulateInt8 ? roundedWeightsModel(b, opts.simulateInt8) : undefined;
   if (int8) b = int8.model;
   const seed = opts.seed ?? 0;
@@ -214,6 +222,7 @@ export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareR
   const allGiven = specs.every((s) => s.given);
   const probes = allGiven ? 1 : requested;
   const extraLimit = allGiven || !opts.watch ? 0 : opts.extraProbes ?? DEFAULT_EXTRA_PROBES;
+  checkProbeEstimate(a.graph, specs); // before anything runs: sizes, and the values a probe would make
 
   const aOut = a.graph.outputs;
   const bOut = new Map(b.graph.outputs.map((o) => [o.name, o]));
