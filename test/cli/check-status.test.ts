@@ -11,6 +11,7 @@ import { join } from 'node:path';
 import { GraphBuilder, modelBytes, randn, rng, uniform } from '../helpers/build.js';
 import { ROOT, pleat } from '../helpers/cli.js';
 import { parseJunit, schemaValidator } from '../report/helpers.js';
+import { readModelFile } from '../../src/onnx/read.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'pleat-check-status-'));
 const save = (name: string, bytes: Uint8Array | string) => { const p = join(dir, name); writeFileSync(p, bytes); return p; };
@@ -102,6 +103,8 @@ describe('check status', { timeout: 180_000 }, () => {
     expect(j.check.skipped.reason).toBe('no-kernel');
     expect(j.check.skipped.message).toMatch(/Lens/);
     expect(existsSync(out)).toBe(true);
+    // the file written records the status the check ended with (it was staged before the check ran)
+    expect(readModelFile(out).metadata.find(([k]) => k === 'pleat.check.status')).toEqual(['pleat.check.status', 'skipped']);
 
     const t = pleat(['fold', m, '-o', out]);
     expect(t.stdout).toMatch(/whole-model check: skipped \(no-kernel\)/);
