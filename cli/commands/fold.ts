@@ -6,7 +6,7 @@ import type { FoldJobOptions } from '../../src/jobs/types.js';
 import { keepList, loadConfig, runSettings } from '../config.js';
 import type { Job } from '../batch.js';
 import { checkDestinations, planReports, runAndReport } from '../output.js';
-import { checkFlags, configFlags, EPILOGUE, inputFlags, int8Flags, int8Setting, many, reportFlags } from '../flags.js';
+import { checkFlags, configFlags, EPILOGUE, inputFlags, int8Flags, int8Setting, many, reportFlags, threadsFlag } from '../flags.js';
 
 export const command = 'fold <models..>';
 export const describe = 'Fold every normalization it safely can, prove each fold, write the folded model, print the ledger';
@@ -30,7 +30,7 @@ export function builder(y: Argv) {
 }
 
 interface Flags {
-  models: string[]; out?: string; outDir?: string; keep?: string[]; allowOverridable: boolean; externalDataMin?: number; store?: 'float16'; gate?: string; probes?: number; seed?: number; unproven: boolean;
+  models: string[]; out?: string; outDir?: string; keep?: string[]; allowOverridable: boolean; externalDataMin?: number; store?: 'float16'; gate?: string; probes?: number; seed?: number; unproven: boolean; threads?: number;
   equalize: boolean; quantThreshold?: number; simulateInt8?: string; int8Granularity?: string;
   input?: string[]; shape?: string[]; dim?: string[]; json?: boolean; format?: string; report?: string[]; config?: string; quiet: boolean;
   strict?: boolean; saveProbes?: string;
@@ -68,7 +68,7 @@ export async function handler(argv: Flags): Promise<void> {
   const opts: FoldJobOptions = {
     inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, probes: run.probes, gate: run.gate, maxProbeMemory: run.maxProbeMemory,
     keep: keepList(config, argv.keep), store: argv.store ?? config.store, allowOverridable: argv.allowOverridable,
-    externalThreshold: argv.externalDataMin, noProofs: argv.unproven, strict: run.strict, saveProbes: argv.saveProbes,
+    externalThreshold: argv.externalDataMin, noProofs: argv.unproven, threads: threadsFlag(argv.threads), strict: run.strict, saveProbes: argv.saveProbes,
     equalize: argv.equalize, quantThresholdDb: quantThreshold(argv.quantThreshold), simulateInt8: int8Setting(argv),
   };
   if (argv.saveProbes !== undefined && argv.models.length > 1) throw new PleatError('usage', `--save-probes names one folder but ${argv.models.length} models were given; fold them one at a time`);

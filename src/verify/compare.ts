@@ -7,7 +7,7 @@ import { subgraphsOf, type DataTypeCode, type Graph, type Model, type Node } fro
 import { isRandomOp } from '../eval/registry.js';
 import { basename } from 'node:path';
 import type { Precision, Value } from '../eval/value.js';
-import { runModel } from '../eval/run.js';
+import { runLockstep } from '../eval/lockstep.js';
 import { withProbeMemory } from '../eval/budget.js';
 import { checkProbeEstimate } from './probe-budget.js';
 import { PleatError } from '../errors.js';
@@ -37,7 +37,7 @@ export interface CompareOptions extends InputOptions {
   probes?: number;
   /** One gate expression for every output (--gate); default: the gate for each output's element type. */
   gate?: string;
-  /** Also run both models in float32 to measure the error budget; default true. */
+  /** Also run both models in float32 to measure the error budget; default true (float64 arithmetic only). */
   budget?: boolean;
   /** Probe memory limit in bytes (--max-probe-memory); default DEFAULT_PROBE_MEMORY (src/eval/budget.ts). */
   maxProbeMemory?: number;
@@ -51,6 +51,11 @@ export interface CompareOptions extends InputOptions {
   extraProbes?: number;
   /** Receives every probe with A's outputs in float64 and float32 (for --save-probes). */
   onProbe?: (p: ProbeRecord) => void;
+  /**
+   * The arithmetic both models run in for the judged comparison; default float64 (B in float64 against A in
+   * float64). float32 runs both as a deployment runtime would (fold's default check: see checkArithmetic).
+   */
+  arithmetic?: Precision;
   /**
    * Run B with its Conv/Gemm/MatMul weights rounded through symmetric 8-bit quantize-dequantize (per tensor or
    * per output channel), against A unrounded: what an 8-bit weight deployment of B would cost.
@@ -120,6 +125,8 @@ export interface CompareReport {
   skipped: SkipInfo | null;
   /** status === 'passed'. */
   passed: boolean;
+  /** The arithmetic of the judged runs. */
+  arithmetic: Precision;
   seed: number;
   /** Input sets actually run (extra coverage probes included). */
   probes: number;
@@ -168,17 +175,11 @@ function checkCandidateInputs(b: Model, first: Map<string, Value>): void {
   }
 }
 
-/** Run a model, prefixing any expected failure with which model it was ("model B (folded.onnx): ..."). */
-function runLabelled(model: Model, side: 'A' | 'B', inputs: Map<string, Value>, precision: Precision, onNode?: (n: Node) => void): Map<string, Value> {
-  try {
-    return runModel(model, inputs, { precision, onNode });
-  } catch (e) {
-    if (e instanceof PleatError) {
-      const file = model.sourcePath ? ` (${basename(model.sourcePath)})` : '';
-      throw new PleatError(e.kind, `model ${side}${file}, ${precision} run: ${e.message}`);
-    }
-    throw e;
-  }
+/** Prefix an expected failure with which model it was ("model B (folded.onnx), float64 run: ..."). */
+function labelled(e: unknown, model: Model, side: 'A' | 'B', precision: Precision): unknown {
+  if (!(e instanceof PleatError)) return e;
+  const file = model.sourcePath ? ` (${basename(model.sourcePath)})` : '';
+  return new PleatError(e.kind, `model ${side}${file}, ${precision} run: ${e.message}`);
 }
 
 /** True when some node, in any graph of the model, draws random numbers (two runs cannot be compared). */
@@ -196,7 +197,9 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
   const int8 = opts.simulateInt8 ? roundedWeightsModel(b, opts.simulateInt8) : undefined;
   if (int8) b = int8.model;
   const seed = opts.seed ?? 0;
-  const budget = opts.budget ?? true;
+  const arithmetic: Precision = opts.arithmetic ?? 'float64';
+  // the budget measures float32 runs against float64 ones: nothing to measure when the judged runs are float32
+  const budget = arithmetic === 'float64' && (opts.budget ?? true);
   const extra = opts.extraMetrics ?? {};
   const available = [...(budget ? [...METRIC_NAMES, ...BUDGET_NAMES] : [...METRIC_NAMES]), ...Object.keys(extra)];
   const userGate = opts.gate !== undefined ? parseGate(opts.gate, available) : undefined;
@@ -209,7 +212,7 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
   refuseEmptyProbeDims(dims, shapes);
   const assumedDims: AssumedDim[] = [];
   const skippedReport = (skipped: SkipInfo, specs: InputSpec[] = []): CompareReport => ({
-    status: 'skipped', skipped, passed: false, seed, probes: 0, budget, assumedDims, inputs: summarizeInputs(specs), outputs: [],
+    status: 'skipped', skipped, passed: false, arithmetic, seed, probes: 0, budget, assumedDims, inputs: summarizeInputs(specs), outputs: [],
     ...(opts.watch ? { coverage: { executed: 0, total: opts.watch.size, missed: missedNodes(opts.watch, new Set()), extraProbes: 0 } } : {}),
   });
   let specs: InputSpec[];
@@ -238,17 +241,34 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
   const executed = new Set<Node>();
   const onNode = watch ? (n: Node) => { if (watch.has(n)) executed.add(n); } : undefined;
 
+  const probeInputs = Array.from({ length: probes }, (_, p) => makeProbe(specs, seed, p));
+  checkCandidateInputs(b, probeInputs[0]!);
+  // A and B run together, node by node (src/eval/lockstep.ts), one probe and one arithmetic at a time: the judged
+  // arithmetic, then (for the error budget) both again in float32. So at most one value set of each model is
+  // alive at once, within the same probe memory limit as a single run of each. B's judged run reports the nodes
+  // it executes (coverage of the watched nodes).
+  const pair = (model: 'judged' | 'float32', inputs: Map<string, Value>) => {
+    const precision: Precision = model === 'judged' ? arithmetic : 'float32';
+    const sides = [{ model: a, side: 'A' as const }, { model: b, side: 'B' as const }];
+    const out = runLockstep(sides.map((x) => ({ model: x.model, precision, probes: [inputs], onNode: x.side === 'B' && model === 'judged' ? onNode : undefined })),
+      (e, i) => labelled(e, sides[i]!.model, sides[i]!.side, precision));
+    return [out[0]![0]!, out[1]![0]!] as const;
+  };
+  /** A alone in one arithmetic (the outputs --save-probes keeps that the comparison did not compute). */
+  const aAlone = (precision: Precision, inputs: Map<string, Value>) =>
+    runLockstep([{ model: a, precision, probes: [inputs] }], (e) => labelled(e, a, 'A', precision))[0]![0]!;
   let run = 0;
   try {
     for (let p = 0; p < probes + extraLimit; p++) {
       if (p >= probes && executed.size === watch!.size) break;
-      const inputs = makeProbe(specs, seed, p);
-      if (p === 0) checkCandidateInputs(b, inputs);
-      const ra = runLabelled(a, 'A', inputs, 'float64');
-      const rb = runLabelled(b, 'B', inputs, 'float64', onNode);
-      const ra32 = budget || opts.onProbe ? runLabelled(a, 'A', inputs, 'float32') : undefined;
-      const rb32 = budget ? runLabelled(b, 'B', inputs, 'float32') : undefined;
-      opts.onProbe?.({ index: p, inputs, float64: ra, float32: ra32! });
+      const inputs = probeInputs[p] ?? makeProbe(specs, seed, p);
+      const [ra, rb] = pair('judged', inputs);
+      const [ra32, rb32] = budget ? pair('float32', inputs) : [undefined, undefined];
+      if (opts.onProbe) {
+        const a64 = arithmetic === 'float64' ? ra : aAlone('float64', inputs);
+        const a32 = ra32 ?? (arithmetic === 'float32' ? ra : aAlone('float32', inputs));
+        opts.onProbe({ index: p, inputs, float64: a64, float32: a32 });
+      }
       run++;
       if (p === 0) {
         for (const o of aOut) if (!bOut.has(o.name)) onlyA.set(o.name, ra.get(o.name)!);
@@ -260,7 +280,7 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
         if (s.shapeDiffers) continue;
         if (!sameDims(va.dims, vb.dims)) { s.shapeDiffers = true; s.dimsA = [...va.dims]; s.dimsB = [...vb.dims]; continue; }
         s.metrics.push(computeMetrics(vb.data, va.data));
-        if (budget && ra32 && rb32) {
+        if (ra32 && rb32) {
           const a32 = ra32.get(name)!, b32 = rb32.get(name)!;
           // float32 runs take the same shapes as float64 runs of the same model; B's were just checked against A's
           s.own.push(computeMetrics(a32.data, va.data));
@@ -327,7 +347,7 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
   }
   const { status, skipped } = checkStatus(outputs);
   const report: CompareReport = {
-    status, skipped, passed: status === 'passed', seed, probes: run, budget, assumedDims, inputs: summarizeInputs(specs), outputs,
+    status, skipped, passed: status === 'passed', arithmetic, seed, probes: run, budget, assumedDims, inputs: summarizeInputs(specs), outputs,
     ...(int8 && opts.simulateInt8 ? { int8Weights: { granularity: opts.simulateInt8, layers: int8.layers } } : {}),
   };
   if (watch) report.coverage = { executed: executed.size, total: watch.size, missed: missedNodes(watch, executed), extraProbes: run - Math.min(run, probes) };
