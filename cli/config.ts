@@ -22,6 +22,8 @@ export interface PleatConfig {
   probes?: number;
   seed?: number;
   store?: 'float16';
+  /** A skipped check fails (as --strict). */
+  strict?: boolean;
 }
 
 type Check = (v: unknown) => boolean;
@@ -40,6 +42,7 @@ const KEYS: Record<keyof PleatConfig, { check: Check; want: string }> = {
   probes: { check: (v) => isInt(v) && (v as number) >= 1, want: 'a whole number of at least 1' },
   seed: { check: (v) => typeof v === 'number' && Number.isInteger(v), want: 'a whole number' },
   store: { check: (v) => v === 'float16', want: '"float16"' },
+  strict: { check: (v) => typeof v === 'boolean', want: 'true or false' },
 };
 
 /** Read and check a config file: --config FILE when given, else pleat.config.json in `cwd` when present. */
@@ -75,6 +78,7 @@ export interface RunFlags {
   seed?: number;
   probes?: number;
   gate?: string;
+  strict?: boolean;
   maxProbeMemory?: string;
 }
 
@@ -85,6 +89,8 @@ export interface RunSettings {
   seed?: number;
   probes?: number;
   gate?: string;
+  /** --strict, else the config's strict, else false. */
+  strict: boolean;
   maxProbeMemory?: number;
 }
 
@@ -113,6 +119,7 @@ export function runSettings(config: PleatConfig, flags: RunFlags): RunSettings {
     seed: flags.seed ?? config.seed,
     probes: flags.probes ?? config.probes,
     gate: flags.gate ?? config.gate,
+    strict: flags.strict ?? config.strict ?? false,
     maxProbeMemory: flags.maxProbeMemory === undefined ? undefined : parseBytes('max-probe-memory', String(flags.maxProbeMemory)),
   };
 }

@@ -33,6 +33,13 @@ export function reportFlags<T>(y: Argv<T>) {
     .option('report', { type: 'string', coerce: many, describe: 'also write a report file: FILE (.json, .xml = junit, .md, .txt) or FORMAT:FILE; repeatable, one per format' });
 }
 
+/** Flags of the commands that judge a comparison (fold's whole-model check, compare). */
+export function checkFlags<T>(y: Argv<T>) {
+  return y
+    .option('strict', { type: 'boolean', describe: 'a skipped check fails: exit 1, and fold writes nothing (also "strict": true in the config file)' })
+    .option('save-probes', { type: 'string', describe: "write the probes and the original model's float64 and float32 outputs to this new or empty DIR (ONNX backend test-data layout: test_data_set_N/input_K.pb, output_K.pb)" });
+}
+
 /** --simulate-int8 weights and --int8-granularity tensor|channel (fold and compare). */
 export function int8Flags<T>(y: Argv<T>) {
   return y

@@ -1,7 +1,8 @@
 // pleat's library API: everything the CLI does, callable from a Node script with the same JSON shapes.
 import type { Model } from './graph/ir.js';
 import { readModelFile } from './onnx/read.js';
-import { compare as compareModels, type CompareOptions, type CompareReport } from './verify/compare.js';
+import { compare as compareModels, type CompareOptions, type CompareReport, type ProbeRecord } from './verify/compare.js';
+import { checkProbeDir, saveProbeSets } from './verify/probe-files.js';
 import { evaluate as evaluateModel, type EvaluateOptions, type EvaluateResult } from './verify/evaluate.js';
 import { foldFile } from './jobs/fold.js';
 import { auditFile } from './jobs/audit.js';
@@ -36,9 +37,19 @@ export function audit(input: string, options: AuditJobOptions = {}): AuditReport
   return auditFile(input, options);
 }
 
-/** Run two models on the same inputs and judge their agreement. */
-export function compare(a: string | Model, b: string | Model, options: CompareOptions = {}): CompareReport {
-  return compareModels(load(a), load(b), options);
+/**
+ * Run two models on the same inputs and judge their agreement. With `saveProbes`, the probes and A's outputs are
+ * written to that new or empty folder (ONNX backend test-data layout, see verify/probe-files.ts).
+ */
+export function compare(a: string | Model, b: string | Model, options: CompareOptions & { saveProbes?: string } = {}): CompareReport {
+  const { saveProbes, ...opts } = options;
+  if (saveProbes === undefined) return compareModels(load(a), load(b), opts);
+  checkProbeDir(saveProbes);
+  const ma = load(a);
+  const records: ProbeRecord[] = [];
+  const report = compareModels(ma, load(b), { ...opts, onProbe: (p) => records.push(p) });
+  report.probesSaved = { dir: saveProbes, sets: saveProbeSets(saveProbes, ma.graph, records) };
+  return report;
 }
 
 /** Run one model on given or seeded inputs. */

@@ -28,7 +28,7 @@ describe("import { survey, fold, audit, compare, evaluate } from 'pleat'", () =>
       console.log(JSON.stringify({
         nodes: s.nodeCount, auditCommand: a.command, foldable: a.foldable, schema: f.schemaVersion,
         folded: f.normalizations.filter((n) => n.status === 'folded').length, written: f.output !== null,
-        checkPassed: f.check && f.check.passed, comparePassed: c.passed,
+        checkPassed: f.check && f.check.passed, checkStatus: f.check && f.check.status, comparePassed: c.passed, compareStatus: c.status,
         outputs: [...e.outputs.keys()], dims: e.outputs.get('fault_logits').dims,
         typed: err instanceof PleatError && isPleatError(err), kind: err && err.kind,
       }));
@@ -37,7 +37,7 @@ describe("import { survey, fold, audit, compare, evaluate } from 'pleat'", () =>
     expect(r.code).toBe(0);
     const j = JSON.parse(r.stdout);
     expect(j).toEqual({
-      nodes: 18, auditCommand: 'audit', foldable: 5, schema: SCHEMA_VERSION, folded: 5, written: true, checkPassed: true,
+      nodes: 18, auditCommand: 'audit', foldable: 5, schema: SCHEMA_VERSION, folded: 5, written: true, checkPassed: true, checkStatus: 'passed', compareStatus: 'passed',
       comparePassed: true, outputs: ['fault_logits'], dims: [1, 3], typed: true, kind: 'bad-input',
     });
   });

@@ -1,21 +1,21 @@
 import type { Argv } from 'yargs';
 import { loadConfig, runSettings } from '../config.js';
 import { checkDestinations, emit, planReports } from '../output.js';
-import { configFlags, EPILOGUE, inputFlags, int8Flags, int8Setting, reportFlags, threadsFlag } from '../flags.js';
+import { checkFlags, configFlags, EPILOGUE, inputFlags, int8Flags, int8Setting, reportFlags, threadsFlag } from '../flags.js';
 
 export const command = 'compare <a> <b>';
 export const describe = 'Run two models on the same inputs and judge their agreement, output by output, against a gate';
 
 export function builder(y: Argv) {
-  return configFlags(int8Flags(reportFlags(inputFlags(y
+  return configFlags(checkFlags(int8Flags(reportFlags(inputFlags(y
     .positional('a', { type: 'string', demandOption: true, describe: 'the reference model (run in float64)' })
     .positional('b', { type: 'string', demandOption: true, describe: 'the candidate model' })
     .option('probes', { type: 'number', describe: 'number of seeded input sets (default 3)' })
-    .option('gate', { type: 'string', describe: 'pass condition per output over maxAbs, maxRel, rms, cosine, peak and the budget names (default per data type)' })))))
+    .option('gate', { type: 'string', describe: 'pass condition per output over maxAbs, maxRel, rms, cosine, peak and the budget names (default per data type)' }))))))
     .epilogue(EPILOGUE);
 }
 
-interface Flags { a: string; b: string; threads?: number; simulateInt8?: string; int8Granularity?: string; probes?: number; gate?: string; seed?: number; input?: string[]; shape?: string[]; dim?: string[]; json?: boolean; format?: string; report?: string[]; config?: string }
+interface Flags { a: string; b: string; threads?: number; simulateInt8?: string; int8Granularity?: string; probes?: number; gate?: string; seed?: number; input?: string[]; shape?: string[]; dim?: string[]; json?: boolean; format?: string; report?: string[]; config?: string; strict?: boolean; saveProbes?: string }
 
 export async function handler(argv: Flags): Promise<void> {
   const plan = planReports(argv);
@@ -28,7 +28,8 @@ export async function handler(argv: Flags): Promise<void> {
   const { renderCompare } = await import('../../src/report/render.js');
   const { EXIT } = await import('../../src/report/exit-codes.js');
   await checkDestinations(plan, { inputs: [argv.a, argv.b] });
-  const report = compare(argv.a, argv.b, { ...run, simulateInt8: int8Setting(argv) });
+  const report = compare(argv.a, argv.b, { ...run, simulateInt8: int8Setting(argv), saveProbes: argv.saveProbes });
   await emit(plan, (format, colour) => renderCompare(report, argv.a, argv.b, format, colour), { inputs: [argv.a, argv.b] });
-  process.exitCode = report.passed ? EXIT.ok : EXIT.failed;
+  // skipped is not a failure unless --strict (or "strict" in the config) says so
+  process.exitCode = report.status === 'failed' || (report.status === 'skipped' && run.strict) ? EXIT.failed : EXIT.ok;
 }

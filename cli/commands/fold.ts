@@ -6,13 +6,13 @@ import type { FoldJobOptions } from '../../src/jobs/types.js';
 import { keepList, loadConfig, runSettings } from '../config.js';
 import type { Job } from '../batch.js';
 import { checkDestinations, planReports, runAndReport } from '../output.js';
-import { configFlags, EPILOGUE, inputFlags, int8Flags, int8Setting, many, reportFlags, threadsFlag } from '../flags.js';
+import { checkFlags, configFlags, EPILOGUE, inputFlags, int8Flags, int8Setting, many, reportFlags, threadsFlag } from '../flags.js';
 
 export const command = 'fold <models..>';
 export const describe = 'Fold every normalization it safely can, prove each fold, write the folded model, print the ledger';
 
 export function builder(y: Argv) {
-  return configFlags(int8Flags(reportFlags(inputFlags(y
+  return configFlags(checkFlags(int8Flags(reportFlags(inputFlags(y
     .positional('models', { type: 'string', array: true, demandOption: true, describe: 'the .onnx file(s)' })
     .option('out', { alias: 'o', type: 'string', describe: 'the folded model to write (one input model)' })
     .option('out-dir', { type: 'string', describe: 'folder for the folded models, same file names (several input models)' })
@@ -26,7 +26,7 @@ export function builder(y: Argv) {
     .option('unproven', { type: 'boolean', default: false, describe: 'skip the per-fold proofs and the whole-model check (for models too large to check in memory); check the result with pleat compare before shipping it' })
     .option('equalize', { type: 'boolean', default: false, describe: 'after folding, balance the channel ranges of layer pairs joined only by Relu-like steps (cross-layer equalization), proven like a fold' })
     .option('quant-threshold', { type: 'number', describe: 'flag a folded layer when a channel keeps less than this SQNR (dB) under one per-tensor 8-bit scale (default 20)' })
-    .option('quiet', { type: 'boolean', default: false, describe: 'no progress bar' })))))
+    .option('quiet', { type: 'boolean', default: false, describe: 'no progress bar' }))))))
     .epilogue(EPILOGUE);
 }
 
@@ -34,6 +34,7 @@ interface Flags {
   models: string[]; out?: string; outDir?: string; keep?: string[]; allowOverridable: boolean; cloneShared: boolean; externalDataMin?: number; store?: 'float16'; gate?: string; probes?: number; seed?: number; unproven: boolean; threads?: number;
   equalize: boolean; quantThreshold?: number; simulateInt8?: string; int8Granularity?: string;
   input?: string[]; shape?: string[]; dim?: string[]; json?: boolean; format?: string; report?: string[]; config?: string; quiet: boolean;
+  strict?: boolean; saveProbes?: string;
 }
 
 /** Where each model's folded copy goes: -o for one model, --out-dir for any number. */
@@ -69,8 +70,10 @@ export async function handler(argv: Flags): Promise<void> {
     inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, probes: run.probes, gate: run.gate, maxProbeMemory: run.maxProbeMemory,
     keep: keepList(config, argv.keep), store: argv.store ?? config.store, allowOverridable: argv.allowOverridable,
     cloneShared: argv.cloneShared, externalThreshold: argv.externalDataMin, noProofs: argv.unproven, threads: threadsFlag(argv.threads),
+    strict: run.strict, saveProbes: argv.saveProbes,
     equalize: argv.equalize, quantThresholdDb: quantThreshold(argv.quantThreshold), simulateInt8: int8Setting(argv),
   };
+  if (argv.saveProbes !== undefined && argv.models.length > 1) throw new PleatError('usage', `--save-probes names one folder but ${argv.models.length} models were given; fold them one at a time`);
   const sides = outputs.map((o) => join(dirname(o), `${basename(o)}.data`));
   await checkDestinations(plan, {
     inputs: argv.models,

@@ -2,7 +2,7 @@
 // at once, so a weight is decoded once per side and dropped as soon as its node has run for every probe, and the
 // sides advance in turn, the one furthest behind (by share of its nodes) first. Peak memory is then one weight
 // of each side plus the live activations, whatever the size of the models.
-import type { Graph, Model } from '../graph/ir.js';
+import type { Graph, Model, Node } from '../graph/ir.js';
 import { GraphRun, WeightCache, prepareRun } from './run.js';
 import { liveBytes, resetLive } from './budget.js';
 import type { Precision, Value } from './value.js';
@@ -15,6 +15,8 @@ export type LockstepSide = (
   precision: Precision;
   /** One input set per probe. */
   probes: Array<Map<string, Value>>;
+  /** Called after each node of this side has run (coverage of a check; see RunOptions.onNode). */
+  onNode?: (node: Node) => void;
 };
 
 /**
@@ -36,7 +38,7 @@ function lockstep(sides: LockstepSide[], wrap: (e: unknown, side: number) => unk
       const weights = new WeightCache(true);
       const runs = s.probes.map((inputs) => {
         const { graph, given, opsetOf } = 'model' in s ? prepareRun(s.model, inputs) : { graph: s.graph, given: inputs, opsetOf: s.opsetOf };
-        return new GraphRun(graph, given, { precision: s.precision, opsetOf, weights });
+        return new GraphRun(graph, given, { precision: s.precision, opsetOf, weights, onNode: s.onNode });
       });
       return { runs, weights };
     } catch (e) { throw wrap(e, i); }

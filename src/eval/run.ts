@@ -9,7 +9,11 @@ import { giveBack, isConstant, isPooled, markConstant, markTransient } from './p
 import { charge, evaluating, liveBytes, release, resetLive } from './budget.js';
 import type { KernelContext, NumArray, Precision, Value } from './value.js';
 
-export interface RunOptions { precision: Precision; }
+export interface RunOptions {
+  precision: Precision;
+  /** Called after each node has run, nodes of If branches and Loop/Scan bodies included (coverage of a check). */
+  onNode?: (node: Node) => void;
+}
 
 export interface GraphRunOptions extends RunOptions {
   opsetOf: (domain: string) => number;
@@ -215,7 +219,7 @@ export class GraphRun {
       node, opset, precision,
       runSubgraph: (sub: Graph, extra?: Map<string, Value>): Value[] => {
         // the subgraph sees this scope's live values and everything outer to it
-        const res = runGraph(sub, extra ?? new Map(), { precision, opsetOf, outer: { get: (k) => this.lookup(k) } });
+        const res = runGraph(sub, extra ?? new Map(), { precision, opsetOf, outer: { get: (k) => this.lookup(k) }, onNode: this.opts.onNode });
         return sub.outputs.map((o) => res.get(o.name)!);
       },
       reusable: (i: number): boolean => {
@@ -237,6 +241,7 @@ export class GraphRun {
       if (e instanceof RangeError) throw new PleatError('bad-model', `node '${node.name || '(unnamed)'}' (${node.opType}): ${e.message}`);
       throw e;
     }
+    this.opts.onNode?.(node);
     node.outputs.forEach((name, i) => {
       if (name === '') return;
       const v = results[i];
@@ -312,5 +317,5 @@ export function prepareRun(model: Model, inputs: Map<string, Value>): { graph: G
 /** Evaluate a whole model. inputs: graph inputs by name (initializer-backed inputs default to the initializer). Returns graph outputs in graph order. */
 export function runModel(model: Model, inputs: Map<string, Value>, opts: RunOptions): Map<string, Value> {
   const { graph, given, opsetOf } = prepareRun(model, inputs);
-  return runGraph(graph, given, { precision: opts.precision, opsetOf });
+  return runGraph(graph, given, { precision: opts.precision, opsetOf, onNode: opts.onNode });
 }

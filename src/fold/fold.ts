@@ -15,7 +15,7 @@ import { entryKind } from './steps.js';
 import type { RuleMatch } from './rules/index.js';
 import { collectRun, isStep, stepOf } from './run.js';
 import { buildScopes, eachGraph, labelOf } from './scope.js';
-import type { EntryKind, FoldLedger, FoldOptions, LedgerEntry } from './types.js';
+import type { EntryKind, FoldLedger, FoldOptions, LedgerEntry, ProofFigures, RewrittenNode } from './types.js';
 
 const MAX_PASSES = 64;
 
@@ -55,7 +55,7 @@ function cloneForRun(ctx: FoldContext, edit: Edit, m: RuleMatch): RuleMatch[] {
 }
 
 /** One sweep over every graph; returns whether anything changed or was put off to the next sweep. */
-function sweep(ctx: FoldContext, model: Model, folded: LedgerEntry[], released: Set<string>, gone: Set<string>): boolean {
+function sweep(ctx: FoldContext, model: Model, folded: LedgerEntry[], released: Set<string>, gone: Set<string>, rewritten: Map<Node, RewrittenNode>): boolean {
   let changed = false;
   const prove = ctx.options.prove;
   for (const scope of buildScopes(model, ctx.labels, ctx.options.inputShapes)) {
@@ -90,10 +90,15 @@ function sweep(ctx: FoldContext, model: Model, folded: LedgerEntry[], released: 
       const targets = o.matches.map((m) => m.layer.label);
       const target = targets.join(', ');
       const direction = o.matches[0]!.rule.direction;
-      if (prove && !prove({ before: before!, after: regionAfter(edit), opsetOf: ctx.opsetOf, nodes: names, target, direction, graph: scope.path })) {
-        undo();
-        for (const x of run.steps) ctx.proofFailed.add(x.node);
-        continue;
+      let proof: ProofFigures | undefined;
+      if (prove) {
+        const r = prove({ before: before!, after: regionAfter(edit), opsetOf: ctx.opsetOf, nodes: names, target, direction, graph: scope.path });
+        if (typeof r === 'boolean' ? !r : !r.passed) {
+          undo();
+          for (const x of run.steps) ctx.proofFailed.add(x.node);
+          continue;
+        }
+        if (typeof r !== 'boolean') proof = r.proof;
       }
       if (prove && inPlace) {
         // The proof ran on a scaled copy of each weight; once proven, the copy goes and the weight is scaled where
@@ -105,6 +110,7 @@ function sweep(ctx: FoldContext, model: Model, folded: LedgerEntry[], released: 
       const hint = foldHint(o.matches, o.clone);
       const entry = (node: Node, op: string, kind: EntryKind, h: string, cloneBytes = 0): LedgerEntry => ({
         node: ctx.labels.get(node) ?? node.name, op, kind, status: 'folded', direction, target, targets, reason: null, hint: h, graph: scope.path, cloneBytes,
+        ...(proof ? { proof } : {}),
       });
       // A normalization written out as primitive ops keeps its statistics; its tail moved, so it is listed as folded.
       const chain = scope.ud.producer(run.top);
@@ -112,6 +118,11 @@ function sweep(ctx: FoldContext, model: Model, folded: LedgerEntry[], released: 
       const solelyTail = scope.ud.consumers(run.top).length === 1 && !scope.ud.isGraphOutput(run.top); // (as analyze.ts judges it)
       if (chain && written && solelyTail && run.steps[0]!.kind === 'elementwise' && entryKind(scope, run.steps[0]!.node) === 'normalization') {
         folded.push(entry(chain, written, 'normalization', writtenOutHint(targets)));
+      }
+      // what the whole-model check watches: the layers whose weights changed, nodes created or changed in kind
+      const changedKind = edit.changes.filter((c) => c.opType !== undefined || c.attributes !== undefined).map((c) => c.node);
+      for (const n of [...o.matches.map((mm) => mm.layer.node), ...edit.inserts.map((i) => i.node), ...changedKind]) {
+        if (!rewritten.has(n)) rewritten.set(n, { node: n, label: ctx.labels.get(n) ?? n.name, graph: scope.path });
       }
       run.steps.forEach((x, i) => {
         folded.push(entry(x.node, x.node.opType, entryKind(scope, x.node), x.kind === 'layer-norm' ? layerNormHint(targets) : hint, i === 0 && o.clone ? cloneCost(o.matches[0]!) : 0));
@@ -128,7 +139,7 @@ function sweep(ctx: FoldContext, model: Model, folded: LedgerEntry[], released: 
  * Fold every normalization that can be folded exactly. Edits `model` in place and returns it with the ledger:
  * one entry per normalization (folded, or kept with its reason), node and weight-byte totals.
  */
-export function foldModel(model: Model, options: FoldOptions = {}): { model: Model; ledger: FoldLedger } {
+export function foldModel(model: Model, options: FoldOptions = {}): { model: Model; ledger: FoldLedger; rewritten: RewrittenNode[] } {
   const ctx = makeContext(model, options);
   const nodesBefore = countNodes(model);
   const bytesBefore = weightBytes(model);
@@ -138,7 +149,8 @@ export function foldModel(model: Model, options: FoldOptions = {}): { model: Mod
   const folded: LedgerEntry[] = [];
   const released = new Set<string>();
   const gone = new Set<string>();
-  for (let pass = 0; pass < MAX_PASSES && sweep(ctx, model, folded, released, gone); pass++) { /* until nothing changes */ }
+  const touched = new Map<Node, RewrittenNode>();
+  for (let pass = 0; pass < MAX_PASSES && sweep(ctx, model, folded, released, gone, touched); pass++) { /* until nothing changes */ }
   if (folded.length) {
     cleanUp(model, released, gone);
     validateModel(model);
@@ -149,8 +161,12 @@ export function foldModel(model: Model, options: FoldOptions = {}): { model: Mod
   const kept: LedgerEntry[] = findingsOf(ctx, model).filter((f) => !done.has(`${f.graph}\u0000${f.node}`))
     .map((f) => ({ ...f, status: 'kept' as const }));
   const normalizations = [...folded, ...kept].sort((a, b) => (order.get(`${a.graph}\u0000${a.node}`) ?? 1e15) - (order.get(`${b.graph}\u0000${b.node}`) ?? 1e15));
+  // a node a later fold or the clean-up removed is no longer in the model to be watched
+  const present = new Set<Node>();
+  eachGraph(model.graph, (g) => { for (const n of g.nodes) present.add(n); });
   return {
     model,
     ledger: { normalizations, nodesBefore, nodesAfter: countNodes(model), bytesBefore, bytesAfter: weightBytes(model) },
+    rewritten: [...touched.values()].filter((r) => present.has(r.node)),
   };
 }

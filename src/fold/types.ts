@@ -1,6 +1,6 @@
 // Public shapes of the folding engine: options, audit findings and the fold ledger. Status, direction and
 // reason names come from shared/VOCABULARY.md.
-import type { Graph } from '../graph/ir.js';
+import type { Graph, Node } from '../graph/ir.js';
 
 export type ReasonCode =
   | 'shared-output'
@@ -54,8 +54,11 @@ export interface FoldOptions {
   keep?: string[];
   /** Fold weights and parameters that are also graph inputs (callers may replace them at run time). */
   allowOverridable?: boolean;
-  /** Numeric proof of each fold; returning false reverts that fold and keeps the norm with reason proof-failed. */
-  prove?: (c: ProofCase) => boolean;
+  /**
+   * Numeric proof of each fold; a false (or not passed) result reverts that fold and keeps the norm with reason
+   * proof-failed. The figures of a passed proof go on the fold's ledger entries.
+   */
+  prove?: (c: ProofCase) => boolean | { passed: boolean; proof?: ProofFigures };
   /**
    * Write folded weights over their old bytes when nobody else reads the tensor (default true). This keeps
    * memory near the file size, and changes the buffer the model was parsed from: parse a private copy.
@@ -95,6 +98,25 @@ export interface Finding {
   graph: string;
 }
 
+/** What the numeric proof of one fold measured on its region, in float64. */
+export interface ProofFigures {
+  /** Largest |after - before| over the region's outputs and probes. */
+  maxAbs: number;
+  /** Largest relative error (the metric `maxRel`: |after - before| / max(|before|, floor)). */
+  maxRel: number;
+  /** The probe shape of the region's (first) input. */
+  shape: number[];
+}
+
+/** A node the folds changed (a layer whose weights were rescaled) or created, in the folded model. */
+export interface RewrittenNode {
+  node: Node;
+  /** Ledger name of the node. */
+  label: string;
+  /** Graph path, e.g. 'main' or 'main/if_3.then_branch'. */
+  graph: string;
+}
+
 /** One normalization as fold left it. */
 export interface LedgerEntry {
   node: string;
@@ -108,6 +130,8 @@ export interface LedgerEntry {
   reason: ReasonCode | null;
   hint: string;
   graph: string;
+  /** The figures of this fold's proof (folded entries, when proofs ran). */
+  proof?: ProofFigures;
 }
 
 export interface FoldLedger {

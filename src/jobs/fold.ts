@@ -1,6 +1,6 @@
 // The fold job: read -> fold (each fold proven on its region) -> optional half-precision storage ->
 // whole-model check -> write -> report. A failing whole-model gate writes nothing.
-import type { Model } from '../graph/ir.js';
+import type { Graph, Model, Node } from '../graph/ir.js';
 import { readModelFile } from '../onnx/read.js';
 import { sideFileName, stageModelFile, type StagedFile, type StagedModel } from '../onnx/write.js';
 import { sideFilePaths } from '../onnx/external.js';
@@ -11,7 +11,6 @@ import { storeFloat16 } from '../ship/store-float16.js';
 import { foldModel } from '../fold/index.js';
 import { LateRangeCheckFailed } from '../fold/values.js';
 import { proveFold } from '../verify/prove.js';
-import { compare } from '../verify/compare.js';
 import { DEFAULT_GATES } from '../verify/gate.js';
 import { asMap, dimSymbols, resolveInputs } from '../verify/inputs.js';
 import { checkProbeEstimate } from '../verify/probe-budget.js';
@@ -20,7 +19,67 @@ import { setThreads } from '../eval/threads.js';
 import { QUANT_THRESHOLD_DB, quantReadiness, roundedWeightsModel } from '../fold/quant.js';
 import { equalizeModel } from '../fold/equalize.js';
 import type { Int8Granularity } from '../fold/int8.js';
-import { SCHEMA_VERSION, type CheckSummary, type FoldJobOptions, type FoldReport, type Int8Output, type Int8Simulation, type StorageSummary } from './types.js';
+import { compare, type ProbeRecord } from '../verify/compare.js';
+import { checkProbeDir, saveProbeSets } from '../verify/probe-files.js';
+import type { RewrittenNode } from '../fold/types.js';
+import { provenanceOf, setProvenance, sha256File } from './provenance.js';
+import {
+  SCHEMA_VERSION, type CheckSummary, type Coverage, type FoldJobOptions, type FoldReport, type Int8Output, type Int8Simulation, type StorageSummary,
+} from './types.js';
+
+/** A rewritten node as the check finds it again in any copy of the folded model: graph path and first output. */
+export interface RewrittenKey {
+  /** 'main' or e.g. 'main/gate_if.then_branch' (unnamed nodes on the path as op#index). */
+  path: string;
+  output: string;
+  /** How reports name it (its ledger name, with its graph when not main). */
+  name: string;
+}
+
+/** Every node of the model with its graph path, main first, bodies in node order. */
+function eachNodeWithPath(model: Model, visit: (n: Node, path: string) => void): void {
+  const walk = (g: Graph, path: string) => {
+    g.nodes.forEach((n, i) => {
+      visit(n, path);
+      for (const a of n.attributes) {
+        if (a.value.type !== 'GRAPH' && a.value.type !== 'GRAPHS') continue;
+        const gs = a.value.type === 'GRAPH' ? [a.value.g] : a.value.graphs;
+        gs.forEach((sg, k) => walk(sg, `${path}/${n.name || `${n.opType}#${i}`}.${a.name}${gs.length > 1 ? `[${k}]` : ''}`));
+      }
+    });
+  };
+  walk(model.graph, 'main');
+}
+
+/** Keys of the rewritten nodes in the folded model, so the check can watch them in a copy read back from disk. */
+export function rewrittenKeys(folded: Model, rewritten: readonly RewrittenNode[]): RewrittenKey[] {
+  const byNode = new Map(rewritten.map((r) => [r.node, r]));
+  const out: RewrittenKey[] = [];
+  eachNodeWithPath(folded, (n, path) => {
+    const r = byNode.get(n);
+    if (r && n.outputs[0]) out.push({ path, output: n.outputs[0], name: r.graph === 'main' ? r.label : `${r.label} in ${r.graph}` });
+  });
+  return out;
+}
+
+/** The nodes of `model` the keys name, with their report names. */
+function watchIn(model: Model, keys: readonly RewrittenKey[]): Map<Node, string> {
+  const want = new Map(keys.map((k) => [`${k.path}\u0000${k.output}`, k.name]));
+  const out = new Map<Node, string>();
+  eachNodeWithPath(model, (n, path) => {
+    const name = n.outputs[0] !== undefined ? want.get(`${path}\u0000${n.outputs[0]}`) : undefined;
+    if (name !== undefined) out.set(n, name);
+  });
+  return out;
+}
+
+/** A rewritten node the checked copy does not hold counts as never executed. */
+const withLost = (c: Coverage, lost: string[]): Coverage => (lost.length ? { ...c, total: c.total + lost.length, missed: [...c.missed, ...lost] } : c);
+
+/** The gate the whole-model check applies to every output ('' means the default per data type). */
+function checkGate(opts: FoldJobOptions & { halfGate?: boolean }): string | undefined {
+  return opts.gate ?? (opts.halfGate ? DEFAULT_GATES.float16 : undefined);
+}
 
 /**
  * The arithmetic of fold's whole-model check: float64, so the default gates judge the fold's own error (the
@@ -31,40 +90,48 @@ import { SCHEMA_VERSION, type CheckSummary, type FoldJobOptions, type FoldReport
  */
 export const CHECK_ARITHMETIC = 'float64' as const;
 
-/** Compare the original and the folded model on seeded probes; skipped (not failed) when shapes are unknown. */
-export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOptions & { halfGate?: boolean; sqnr?: number }): CheckSummary {
+/**
+ * Compare the original and the folded model on seeded probes, watching the rewritten nodes. The status follows
+ * the rules of compare (verify/status.ts): skipped, never passed, when nothing could be compared.
+ */
+export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOptions & { halfGate?: boolean; sqnr?: number; rewritten?: readonly RewrittenKey[]; onProbe?: (p: ProbeRecord) => void }): CheckSummary {
   const seed = opts.seed ?? 0;
   const probes = opts.probes ?? 2;
-  const gate = opts.gate ?? (opts.halfGate ? DEFAULT_GATES.float16 : undefined);
+  const gate = checkGate(opts);
   const { dims, shapes } = inputsOf(original, opts);
-  try {
-    const r = compare(original, folded, {
-      inputs: opts.inputs, shapes, dims, seed, probes, gate, budget: false, maxProbeMemory: opts.maxProbeMemory, arithmetic: CHECK_ARITHMETIC,
-      extraMetrics: opts.sqnr !== undefined ? { sqnr: opts.sqnr } : undefined,
-    });
-    return {
-      passed: r.passed,
-      skipped: null,
-      probes: r.probes,
-      arithmetic: r.arithmetic,
-      seed,
-      gates: [...new Set(r.outputs.map((o) => o.gate?.expr).filter((g): g is string => !!g))],
-      outputs: r.outputs.map((o) => ({
-        name: o.name,
-        maxAbs: o.metrics?.maxAbs ?? NaN,
-        maxRel: o.metrics?.maxRel ?? NaN,
-        rms: o.metrics?.rms ?? NaN,
-        cosine: o.metrics?.cosine ?? NaN,
-        passed: o.passed,
-        ...(o.problem ? { problem: o.problem } : {}),
-      })),
-    };
-  } catch (e) {
-    if (e instanceof PleatError && (e.kind === 'missing-shape' || e.kind === 'unsupported-op')) {
-      return { passed: true, skipped: e.message, probes: 0, seed, gates: [], outputs: [] };
-    }
-    throw e;
-  }
+  const watch = watchIn(folded, opts.rewritten ?? []);
+  const found = new Set(watch.values());
+  const lost = (opts.rewritten ?? []).filter((k) => !found.has(k.name)).map((k) => k.name);
+  const r = compare(original, folded, {
+    inputs: opts.inputs, shapes, dims, seed, probes, gate, budget: false, watch, onProbe: opts.onProbe, maxProbeMemory: opts.maxProbeMemory, arithmetic: CHECK_ARITHMETIC,
+    extraMetrics: opts.sqnr !== undefined ? { sqnr: opts.sqnr } : undefined,
+  });
+  return {
+    status: r.status,
+    passed: r.passed,
+    // compare names its sides A and B; here they are the original and the folded model
+    skipped: r.skipped && { ...r.skipped, message: r.skipped.message.replace(/^model A\b/, 'the original model').replace(/^model B\b/, 'the folded model') },
+    strict: opts.strict ?? false,
+    probes: r.probes,
+    ...(r.arithmetic ? { arithmetic: r.arithmetic } : {}),
+    seed,
+    gates: [...new Set(r.outputs.map((o) => o.gate?.expr).filter((g): g is string => !!g))],
+    assumedDims: r.assumedDims,
+    // a rewritten node the folded copy no longer holds counts as never executed
+    coverage: r.coverage ? withLost(r.coverage, lost) : { executed: 0, total: 0, missed: [], extraProbes: 0 },
+    outputs: r.outputs.map((o) => ({
+      name: o.name,
+      maxAbs: o.metrics?.maxAbs ?? NaN,
+      maxRel: o.metrics?.maxRel ?? NaN,
+      rms: o.metrics?.rms ?? NaN,
+      cosine: o.metrics?.cosine ?? NaN,
+      passed: o.passed,
+      status: o.status,
+      count: o.metrics?.count ?? 0,
+      ...(o.problem ? { problem: o.problem } : {}),
+      ...(o.observable !== undefined ? { observable: o.observable } : {}),
+    })),
+  };
 }
 
 /** Dims and shapes may come from a config or a batch shared by several models: use those this model has. */
@@ -94,6 +161,8 @@ export function int8Simulation(original: Model, folded: Model, granularity: Int8
     if (e instanceof PleatError && (e.kind === 'missing-shape' || e.kind === 'unsupported-op')) return null;
     throw e;
   }
+  // compare reports a model it cannot run as skipped with nothing compared
+  if (before.outputs.length === 0 || after.outputs.length === 0) return null;
   const figures = (o: (typeof before.outputs)[number] | undefined) =>
     o?.metrics ? { maxAbs: o.metrics.maxAbs, maxRel: o.metrics.maxRel, cosine: o.metrics.cosine } : null;
   const outputs: Int8Output[] = before.outputs.map((o) => {
@@ -108,9 +177,11 @@ export function int8Simulation(original: Model, folded: Model, granularity: Int8
  * Fold a model in memory (no files): returns the report; `model` is changed in place. `lateRangeCheck` is for
  * callers that can read the model again (see FoldOptions.lateRangeCheck).
  */
-export function foldLoaded(model: Model, original: Model | undefined, label: string, opts: FoldJobOptions, lateRangeCheck = false, ship?: (m: Model) => Model): FoldReport {
+export function foldLoaded(model: Model, original: Model | undefined, label: string, opts: FoldJobOptions, lateRangeCheck = false, ship?: (m: Model) => Model,
+  onProbe?: (p: ProbeRecord) => void): FoldReport {
+  if (opts.strict && opts.noProofs) throw new PleatError('usage', '--strict needs the whole-model check, which --unproven leaves out: give one of them');
   // the proofs and the check run within the probe memory limit (src/eval/budget.ts)
-  return withProbeMemory(opts.maxProbeMemory, () => foldWithin(model, original, label, opts, lateRangeCheck, ship));
+  return withProbeMemory(opts.maxProbeMemory, () => foldWithin(model, original, label, opts, lateRangeCheck, ship, onProbe));
 }
 
 /** Refuse, before any fold, a whole-model check whose probe would go beyond the probe memory limit. */
@@ -126,15 +197,19 @@ function checkProbeFits(original: Model, opts: FoldJobOptions): void {
   checkProbeEstimate(original.graph, specs);
 }
 
-function foldWithin(model: Model, original: Model | undefined, label: string, opts: FoldJobOptions, lateRangeCheck: boolean, ship?: (m: Model) => Model): FoldReport {
+function foldWithin(model: Model, original: Model | undefined, label: string, opts: FoldJobOptions, lateRangeCheck: boolean, ship?: (m: Model) => Model,
+  onProbe?: (p: ProbeRecord) => void): FoldReport {
   if (original && !opts.noProofs) checkProbeFits(original, opts);
-  const { ledger } = foldModel(model, {
+  const { ledger, rewritten } = foldModel(model, {
     keep: opts.keep,
     allowOverridable: opts.allowOverridable,
     cloneShared: opts.cloneShared,
     inputShapes: asMap(opts.shapes),
     lateRangeCheck,
-    prove: opts.noProofs ? undefined : (c) => proveFold(c, { seed: opts.seed }).passed,
+    prove: opts.noProofs ? undefined : (c) => {
+      const r = proveFold(c, { seed: opts.seed });
+      return { passed: r.passed, proof: { maxAbs: r.maxAbs, maxRel: r.maxRel, shape: r.shape } };
+    },
   });
   const equalized = opts.equalize
     ? equalizeModel(model, { prove: opts.noProofs ? undefined : (c) => proveFold(c, { seed: opts.seed }).passed })
@@ -149,10 +224,13 @@ function foldWithin(model: Model, original: Model | undefined, label: string, op
   const quantization = original ? quantReadiness(original, model, ledger.normalizations, quantThresholdDb) : [];
   // the gate may name `sqnr`: the lowest worst-channel per-tensor 8-bit SQNR of the folded layers (dB)
   const sqnr = Math.min(Infinity, ...quantization.map((q) => q.sqnrAfter.worstChannel));
+  // the rewritten nodes, by graph path and output, so the check finds them again in the copy read from disk
+  const keys = original && !opts.noProofs ? rewrittenKeys(model, rewritten) : [];
   // `ship` writes the model and gives it back as read from disk: the check then judges what ships.
   const shipped = ship ? ship(model) : model;
-  const check = original && !opts.noProofs ? wholeModelCheck(original, shipped, { ...opts, halfGate: storage !== null, sqnr }) : null;
-  const failed = check !== null && !check.passed;
+  const check = original && !opts.noProofs
+    ? wholeModelCheck(original, shipped, { ...opts, halfGate: storage !== null, sqnr, rewritten: keys, onProbe }) : null;
+  const failed = check !== null && (check.status === 'failed' || (check.status === 'skipped' && check.strict));
   return {
     schemaVersion: SCHEMA_VERSION,
     command: 'fold',
@@ -166,6 +244,7 @@ function foldWithin(model: Model, original: Model | undefined, label: string, op
     equalized,
     int8,
     storage,
+    probesSaved: null,
     failed,
   };
 }
@@ -222,6 +301,7 @@ function foldStagedIn(tx: OutputSet, input: string, output: string, opts: FoldJo
 }
 
 function foldStagedOnce(tx: OutputSet, input: string, output: string, opts: FoldJobOptions, lateRangeCheck: boolean): Omit<StagedFold, 'staged'> {
+  if (opts.saveProbes !== undefined) checkProbeDir(opts.saveProbes);
   const model = readModelFile(input);
   const inputs = [model.sourcePath!, ...sideFilePaths(model)];
   inputs.forEach((p, i) => tx.protect(p, i === 0 ? 'input model' : `input model's side file`));
@@ -232,20 +312,36 @@ function foldStagedOnce(tx: OutputSet, input: string, output: string, opts: Fold
   if (mayHaveSide) tx.reserve(side, 'side file', dest);
   // A second, untouched copy is the reference for the whole-model check and the quantization report.
   const original = opts.noProofs ? undefined : readModelFile(input);
+  const gate = checkGate({ ...opts, halfGate: opts.store === 'float16' });
+  const sha256 = sha256File(input);
   let staged: StagedModel | undefined;
-  const ship = (m: Model): Model => {
+  const stage = (m: Model, status: string) => {
+    setProvenance(m, provenanceOf(sha256, gate, opts, status));
     staged = stageModelFile(m, dest, { externalThreshold: opts.externalThreshold }, (d) => tx.tempFor(d));
     tx.add(staged.files);
+  };
+  let shippedModel: Model | undefined;
+  const ship = (m: Model): Model => {
+    shippedModel = m;
+    // The file is staged before the check runs, so it says `passed`, the only status it can ship with unless
+    // the check is skipped; then it is staged again below with `skipped` (same weights, same bytes but that).
+    stage(m, opts.noProofs ? 'not-run' : 'passed');
     if (opts.noProofs) return m;
-    const back = readModelFile(staged.files[0]!.tmp, staged.redirect);
+    const back = readModelFile(staged!.files[0]!.tmp, staged!.redirect);
     back.sourcePath = dest;
     return back;
   };
-  const report = foldLoaded(model, original, input, opts, lateRangeCheck, ship);
+  const records: ProbeRecord[] = [];
+  const report = foldLoaded(model, original, input, opts, lateRangeCheck, ship, opts.saveProbes !== undefined ? (p) => records.push(p) : undefined);
   if (report.failed) {
     tx.discard(staged?.files ?? []);
   } else {
+    if (report.check && report.check.status !== 'passed' && shippedModel) {
+      tx.discard(staged?.files ?? []);
+      stage(shippedModel, report.check.status);
+    }
     report.output = output;
+    if (opts.saveProbes !== undefined && original) report.probesSaved = { dir: opts.saveProbes, sets: saveProbeSets(opts.saveProbes, original.graph, records) };
   }
   return { report, inputs };
 }

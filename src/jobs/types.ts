@@ -1,14 +1,16 @@
 // The report shapes every job returns. The CLI's --json prints exactly these; the JSON Schema in
 // src/report/schema/pleat-report.schema.json documents them. Bump SCHEMA_VERSION on any breaking change.
 import type { Finding, LedgerEntry } from '../fold/types.js';
-import type { InputOptions } from '../verify/inputs.js';
+import type { AssumedDim, InputOptions } from '../verify/inputs.js';
+import type { CheckStatus, Coverage, SkipInfo } from '../verify/status.js';
+import type { OutputStatus } from '../verify/compare.js';
 import type { QuantRow } from '../fold/quant.js';
 import type { EqualizedPair } from '../fold/equalize.js';
 import type { Int8Granularity } from '../fold/int8.js';
 
-export type { QuantRow, EqualizedPair, Int8Granularity };
+export type { QuantRow, EqualizedPair, Int8Granularity, AssumedDim, CheckStatus, Coverage, OutputStatus, SkipInfo };
 
-export const SCHEMA_VERSION = 4;
+export const SCHEMA_VERSION = 5;
 
 export interface OutputCheck {
   name: string;
@@ -17,21 +19,39 @@ export interface OutputCheck {
   rms: number;
   cosine: number;
   passed: boolean;
-  /** Why the output failed when it was not a metric (missing, shape differs). */
+  /** 'compared'; 'empty' (no elements on any probe: nothing compared, the check is skipped); or why it failed. */
+  status: OutputStatus;
+  /** Elements compared on a probe (the largest over probes); 0 means nothing was compared at this output. */
+  count: number;
+  /** Why the output failed when it was not a metric (missing, shape differs), or why it was not compared. */
   problem?: string;
+  /**
+   * false: bit-identical on every probe although a rewritten node upstream ran (e.g. a saturated sigmoid), so
+   * the change was not observable at this output; true: it was; absent: no rewritten node upstream ran.
+   */
+  observable?: boolean;
 }
 
 /** The whole-model comparison fold runs after folding (original float64 vs folded). */
 export interface CheckSummary {
+  /** 'passed' only when at least one probe compared at least one element of every output. */
+  status: CheckStatus;
+  /** status === 'passed'. */
   passed: boolean;
-  /** Set when no whole-model comparison ran, saying why (e.g. a dynamic dim no flag resolves). */
-  skipped: string | null;
+  /** Why nothing (or not every output) was compared: a reason code and one line; null unless skipped. */
+  skipped: SkipInfo | null;
+  /** --strict was on: a skipped check then fails the fold (exit 1, nothing written). */
+  strict: boolean;
   probes: number;
   /** The arithmetic both models ran in (float64: see CHECK_ARITHMETIC in jobs/fold.ts); absent when skipped. */
   arithmetic?: 'float32' | 'float64';
   seed: number;
   /** The gate expression used for each output (default per data type unless --gate). */
   gates: string[];
+  /** Symbolic dims no --dim, --shape or input set: the probes took each as 1. */
+  assumedDims: AssumedDim[];
+  /** Which rewritten nodes (layers the folds changed, nodes they created) the probes executed. */
+  coverage: Coverage;
   outputs: OutputCheck[];
 }
 
@@ -65,7 +85,9 @@ export interface FoldReport {
   /** --simulate-int8 weights: the output error of 8-bit weights, for the original and for the folded model. */
   int8: Int8Simulation | null;
   storage: StorageSummary | null;
-  /** True when a gate failed (exit 1): then nothing was written. */
+  /** Where --save-probes wrote the probes (ONNX backend test-data layout), or null. */
+  probesSaved: { dir: string; sets: number } | null;
+  /** True when a gate failed, or --strict met a skipped check (exit 1): then nothing was written. */
   failed: boolean;
 }
 
@@ -123,6 +145,10 @@ export interface FoldJobOptions extends InputOptions {
   equalize?: boolean;
   /** Also report the output error of 8-bit weights (per tensor or per channel), before and after the fold. */
   simulateInt8?: Int8Granularity;
+  /** A skipped whole-model check fails the fold (exit 1, nothing written). */
+  strict?: boolean;
+  /** Write the check's probes and the original model's outputs here, in the ONNX backend test-data layout. */
+  saveProbes?: string;
 }
 
 export interface AuditJobOptions {

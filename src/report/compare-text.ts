@@ -6,7 +6,10 @@ import { paint } from './paint.js';
 
 export function compareText(r: CompareReport, a: string, b: string, colour = false): string {
   const p = paint(colour);
-  const lines = [p.bold(`compare ${a} with ${b}: `) + (r.passed ? p.good('passed') : p.bad('FAILED')) + ` (${plural(r.probes, 'probe')}, seed ${r.seed})`];
+  const verdict = r.status === 'passed' ? p.good('passed') : r.status === 'skipped' ? p.warn('skipped') + ` (${r.skipped?.reason ?? 'no-elements'})` : p.bad('FAILED');
+  const lines = [p.bold(`compare ${a} with ${b}: `) + verdict + ` (${plural(r.probes, 'probe')}, seed ${r.seed})`];
+  if (r.skipped) lines.push(`  ${r.skipped.message}`);
+  for (const d of r.assumedDims) lines.push(`  probe dim ${d.symbol} = ${d.size} (no --dim given) for input ${d.inputs.join(', ')}`);
   if (r.int8Weights) {
     const g = r.int8Weights.granularity === 'tensor' ? 'one scale per tensor' : 'one scale per output channel';
     lines.push(`  model B ran with 8-bit weights: ${plural(r.int8Weights.layers, 'Conv/Gemm/MatMul layer')} rounded through symmetric quantize-dequantize, ${g}`);
@@ -14,8 +17,8 @@ export function compareText(r: CompareReport, a: string, b: string, colour = fal
   for (const i of r.inputs) lines.push(`  input ${i.name}  ${i.dtype} [${i.dims.join('x')}]  ${i.source === 'file' ? `from ${i.file}` : i.source === 'probe' ? 'seeded probe' : 'given value'}`);
   const w = Math.max(0, ...r.outputs.map((o) => o.name.length));
   for (const o of r.outputs) {
-    const verdict = o.passed ? p.good('pass') : p.bad('FAIL');
-    if (!o.metrics) {
+    const verdict = o.passed ? p.good('pass') : o.status === 'empty' ? p.warn('skip') : p.bad('FAIL');
+    if (!o.metrics || o.status === 'empty') {
       lines.push(`  ${o.name.padEnd(w)}  ${verdict}  ${o.problem ?? o.status}`);
       continue;
     }

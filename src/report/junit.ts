@@ -65,9 +65,17 @@ export function foldSuite(r: FoldReport): Suite {
     outcome: e.status === 'kept' ? { kind: 'skipped', message: `${e.reason ?? 'kept'}: ${e.hint}` } : { kind: 'pass' },
   }));
   const c = r.check;
-  if (c && c.skipped !== null) cases.push({ classname: r.model, name: 'whole-model check', outcome: { kind: 'skipped', message: c.skipped } });
-  else if (c) {
+  if (c && c.skipped !== null && c.outputs.length === 0) {
+    const message = `${c.skipped.reason}: ${c.skipped.message}`;
+    // under --strict a skipped check fails the build, so it is a failure there, never a pass
+    cases.push({ classname: r.model, name: 'whole-model check', outcome: c.strict ? { kind: 'failure', type: 'strict', message } : { kind: 'skipped', message } });
+  } else if (c) {
     for (const o of c.outputs) {
+      if (o.status === 'empty') {
+        const message = `${c.skipped?.reason ?? 'no-elements'}: ${o.problem ?? 'nothing compared'}`;
+        cases.push({ classname: r.model, name: `check output ${o.name}`, outcome: c.strict ? { kind: 'failure', type: 'strict', message } : { kind: 'skipped', message } });
+        continue;
+      }
       const metrics = `maxAbs ${numText(o.maxAbs)}, maxRel ${numText(o.maxRel)}, rms ${numText(o.rms)}, cosine ${o.cosine}`;
       cases.push({
         classname: r.model,
@@ -98,14 +106,18 @@ export function auditSuite(r: AuditReport): Suite {
 
 export function compareSuite(r: CompareReport, a: string, b: string): Suite {
   const name = `${a} vs ${b}`;
-  return {
+  const suite: Suite = {
     name,
     cases: r.outputs.map((o): Case => ({
       classname: name,
       name: `output ${o.name}`,
-      outcome: o.passed ? { kind: 'pass' } : { kind: 'failure', type: o.status === 'compared' ? 'gate' : o.status, message: o.problem ?? `output '${o.name}' failed` },
+      outcome: o.passed ? { kind: 'pass' }
+        : o.status === 'empty' ? { kind: 'skipped', message: `no-elements: ${o.problem ?? 'nothing compared'}` }
+          : { kind: 'failure', type: o.status === 'compared' ? 'gate' : o.status, message: o.problem ?? `output '${o.name}' failed` },
     })),
   };
+  if (r.outputs.length === 0 && r.skipped) suite.cases.push({ classname: name, name: 'comparison', outcome: { kind: 'skipped', message: `${r.skipped.reason}: ${r.skipped.message}` } });
+  return suite;
 }
 
 /** A model a batch could not process: one errored case, so the dashboard shows it. */

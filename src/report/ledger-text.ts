@@ -2,14 +2,14 @@
 // the hint), a totals line, then the whole-model check per output, quantization readiness, storage, and the
 // caution lines. Our own layout; nothing here compares operator counts side by side.
 import type { FoldReport, CheckSummary, QuantRow, StorageSummary, EqualizedPair, Int8Simulation } from '../jobs/types.js';
-import type { LedgerEntry } from '../fold/types.js';
+import type { LedgerEntry, ProofFigures } from '../fold/types.js';
 import { bytesText, CAUTION, cosineText, dbText, numText, plural, ratioText } from './format.js';
 import { paint, type Paint } from './paint.js';
 
 const where = (graph: string) => (graph === 'main' ? '' : `  in ${graph}`);
 
 /** One ledger line per entry, columns padded to the widest node and op of this report. */
-export function ledgerLines(entries: ReadonlyArray<Pick<LedgerEntry, 'node' | 'op' | 'direction' | 'target' | 'reason' | 'hint' | 'graph'> & { status: string }>, p: Paint): string[] {
+export function ledgerLines(entries: ReadonlyArray<Pick<LedgerEntry, 'node' | 'op' | 'direction' | 'target' | 'reason' | 'hint' | 'graph'> & { status: string; proof?: ProofFigures }>, p: Paint): string[] {
   const nodeW = Math.max(0, ...entries.map((e) => e.node.length));
   const opW = Math.max(0, ...entries.map((e) => e.op.length));
   return entries.map((e) => {
@@ -18,14 +18,43 @@ export function ledgerLines(entries: ReadonlyArray<Pick<LedgerEntry, 'node' | 'o
       return `  ${p.warn('kept     ')}${head}  ${p.warn(e.reason ?? 'kept')}: ${e.hint}${where(e.graph)}`;
     }
     const mark = e.status === 'folded' ? p.good('folded   ') : p.good('foldable ');
-    return `  ${mark}${head}  into ${e.target ?? '?'} (${e.direction ?? '?'}): ${e.hint}${where(e.graph)}`;
+    return `  ${mark}${head}  into ${e.target ?? '?'} (${e.direction ?? '?'}): ${e.hint}${where(e.graph)}${e.proof ? `  ${proofText(e.proof)}` : ''}`;
   });
+}
+
+/** A fold's proof figures, compactly: the region's probe shape and its float64 errors. */
+export function proofText(f: ProofFigures): string {
+  return `[proof ${f.shape.join('x') || 'scalar'}: maxAbs ${numText(f.maxAbs)}, maxRel ${numText(f.maxRel)}]`;
+}
+
+/** The dims the probes took as 1 because nothing set them, one line each. */
+export function assumedDimLines(dims: CheckSummary['assumedDims']): string[] {
+  return dims.map((d) => `  probe dim ${d.symbol} = ${d.size} (no --dim given) for input ${d.inputs.join(', ')}`);
+}
+
+/** A list of names, the first ten of a long one (the JSON report holds them all). */
+export function namesText(names: readonly string[], limit = 10): string {
+  return names.length <= limit ? names.join(', ') : `${names.slice(0, limit).join(', ')} and ${names.length - limit} more`;
+}
+
+/** The coverage line, when some rewritten node never ran on any probe. */
+export function coverageLines(c: CheckSummary['coverage'], p: Paint): string[] {
+  if (c.missed.length === 0) return [];
+  const extra = c.extraProbes ? ` (after ${plural(c.extraProbes, 'extra probe')})` : '';
+  return [`  ${p.warn(`coverage ${c.executed}/${c.total}`)}: never executed by any probe${extra}: ${namesText(c.missed)}; ` +
+    'the whole-model check says nothing about them (each fold was still proven on its own region)'];
 }
 
 export function checkLines(c: CheckSummary | null, p: Paint): string[] {
   if (c === null) return [`whole-model check: ${p.warn('not run')}: folds unproven; run pleat compare on the original and the folded model before shipping`];
-  if (c.skipped !== null) return [`whole-model check: ${p.warn('skipped')}: ${c.skipped}`];
-  const lines = [`whole-model check: ${c.passed ? p.good('passed') : p.bad('FAILED')} (${plural(c.probes, 'probe')}, seed ${c.seed})`];
+  if (c.skipped !== null) {
+    const lines = [`whole-model check: ${p.warn('skipped')} (${c.skipped.reason}): ${c.skipped.message}`, ...assumedDimLines(c.assumedDims)];
+    if (c.strict) lines.push(`  ${p.bad('--strict')}: a skipped check fails the fold; nothing written`);
+    return lines;
+  }
+  const cov = c.coverage.total ? `; coverage ${c.coverage.executed}/${c.coverage.total}` : '';
+  const lines = [`whole-model check: ${c.status === 'passed' ? p.good('passed') : p.bad('FAILED')} (${plural(c.probes, 'probe')}, seed ${c.seed}${cov})`];
+  lines.push(...assumedDimLines(c.assumedDims));
   const w = Math.max(0, ...c.outputs.map((o) => o.name.length));
   for (const o of c.outputs) {
     const verdict = o.passed ? p.good('pass') : p.bad('FAIL');
@@ -33,9 +62,11 @@ export function checkLines(c: CheckSummary | null, p: Paint): string[] {
       lines.push(`  ${o.name.padEnd(w)}  ${verdict}  ${o.problem}`);
       continue;
     }
-    lines.push(`  ${o.name.padEnd(w)}  ${verdict}  maxAbs ${numText(o.maxAbs)}  maxRel ${numText(o.maxRel)}  rms ${numText(o.rms)}  cosine ${cosineText(o.cosine)}`);
+    const note = o.observable === false ? `  ${p.warn('not observable')}: bit-identical on every probe although a rewritten node upstream ran` : '';
+    lines.push(`  ${o.name.padEnd(w)}  ${verdict}  maxAbs ${numText(o.maxAbs)}  maxRel ${numText(o.maxRel)}  rms ${numText(o.rms)}  cosine ${cosineText(o.cosine)}${note}`);
   }
   for (const g of c.gates) lines.push(`  gate: ${g}`);
+  lines.push(...coverageLines(c.coverage, p));
   return lines;
 }
 
@@ -117,7 +148,8 @@ export function foldText(r: FoldReport, colour = false, caution = true): string 
   const folded = norms.filter((e) => e.status === 'folded').length;
   const kept = norms.length - folded;
   const also = r.normalizations.length - norms.length;
-  const dest = r.output ?? (r.failed ? p.bad('nothing written (check failed)') : 'nothing written');
+  const why = r.check?.status === 'skipped' ? '--strict: check skipped' : 'check failed';
+  const dest = r.output ?? (r.failed ? p.bad(`nothing written (${why})`) : 'nothing written');
   const lines = [p.bold(`fold ${r.model} -> ${dest}`)];
   if (norms.length === 0) lines.push('  no normalizations found');
   lines.push(...ledgerLines(norms, p), ...alsoLines(r.normalizations, 'also folded', p));
@@ -127,6 +159,7 @@ export function foldText(r: FoldReport, colour = false, caution = true): string 
   lines.push(`  ${folded} folded, ${kept} kept${alsoText}; ${plural(nodesRemoved, 'node')} removed (${r.nodesBefore} -> ${r.nodesAfter}); ` +
     `${bytesText(Math.max(0, bytesRemoved))} of weights saved (${bytesText(r.bytesBefore)} -> ${bytesText(r.bytesAfter)})${cloneClause(r.normalizations)}`);
   lines.push(...checkLines(r.check, p), ...quantLines(r.quantization, r.quantThresholdDb, p), ...equalizeLines(r.equalized, p), ...int8Lines(r.int8), ...storageLines(r.storage));
+  if (r.probesSaved) lines.push(`probes saved: ${plural(r.probesSaved.sets, 'set')} in ${r.probesSaved.dir} (ONNX backend test-data layout; float32-arithmetic outputs in ${r.probesSaved.dir}/float32)`);
   if (caution) lines.push(...CAUTION);
   return lines.join('\n') + '\n';
 }

@@ -3,6 +3,7 @@
 // and the caution as a quote.
 import type { AuditReport, FoldReport } from '../jobs/types.js';
 import type { CompareReport } from '../verify/compare.js';
+import type { ProofFigures } from '../fold/types.js';
 import { bytesText, CAUTION, cosineText, dbText, numText, ratioText } from './format.js';
 
 /** Text safe inside a table cell: pipes escaped, HTML-looking text neutralised, line breaks flattened. */
@@ -11,7 +12,9 @@ export function cell(s: string): string {
 }
 const code = (s: string) => `\`${s.replace(/`/g, "'")}\``;
 
-interface Row { node: string; op: string; kind: string; status: string; direction: string | null; target: string | null; reason: string | null; hint: string; graph: string }
+interface Row { node: string; op: string; kind: string; status: string; direction: string | null; target: string | null; reason: string | null; hint: string; graph: string; proof?: ProofFigures }
+
+const proofCell = (f: ProofFigures) => `; proof on ${f.shape.join('x') || 'scalar'}: maxAbs ${numText(f.maxAbs)}, maxRel ${numText(f.maxRel)}`;
 
 /** The other constant affine steps, in one line after the table (they are never kept). */
 function alsoLine(rows: readonly Row[], verb: string): string[] {
@@ -28,7 +31,7 @@ function table(all: readonly Row[]): string[] {
   const out = ['| normalization | op | status | detail |', '|---|---|---|---|'];
   for (const e of order) {
     const where = e.graph === 'main' ? '' : ` (in ${code(e.graph)})`;
-    const detail = e.status === 'kept' ? `${code(e.reason ?? 'kept')}: ${e.hint}` : `into ${code(e.target ?? '?')} (${e.direction ?? '?'})`;
+    const detail = e.status === 'kept' ? `${code(e.reason ?? 'kept')}: ${e.hint}` : `into ${code(e.target ?? '?')} (${e.direction ?? '?'})${e.proof ? proofCell(e.proof) : ''}`;
     out.push(`| ${cell(code(e.node) + where)} | ${cell(e.op)} | ${e.status} | ${cell(detail)} |`);
   }
   return out;
@@ -47,10 +50,19 @@ export function foldMarkdown(r: FoldReport): string {
   const folded = norms.filter((e) => e.status === 'folded').length;
   const verdict = r.failed ? 'failed: nothing written' : 'done';
   const out = [`### pleat fold ${code(r.model)}: ${verdict}`, ''];
-  const check = r.check === null ? 'not run' : r.check.skipped !== null ? `skipped (${r.check.skipped})`
-    : `${r.check.passed ? 'passed' : '**failed**'} on ${r.check.outputs.length} output(s), worst maxAbs ${numText(Math.max(0, ...r.check.outputs.map((o) => o.maxAbs)))}`;
+  const c = r.check;
+  const cov = c && c.coverage.total ? `, coverage ${c.coverage.executed}/${c.coverage.total}` : '';
+  const check = c === null ? 'not run' : c.skipped !== null ? `skipped (${code(c.skipped.reason)}: ${cell(c.skipped.message)})${c.strict ? ', which fails under `--strict`' : ''}`
+    : `${c.status === 'passed' ? 'passed' : '**failed**'} on ${c.outputs.length} output(s), worst maxAbs ${numText(Math.max(0, ...c.outputs.map((o) => o.maxAbs)))}${cov}`;
   out.push(`**${folded} folded, ${norms.length - folded} kept**; nodes ${r.nodesBefore} → ${r.nodesAfter}; ` +
     `weights ${bytesText(r.bytesBefore)} → ${bytesText(r.bytesAfter)}${cloneNote(r.normalizations)}; whole-model check ${check}.`, '');
+  if (c) {
+    const notes: string[] = [];
+    for (const d of c.assumedDims) notes.push(`Probe dim ${code(d.symbol)} = ${d.size} (no \`--dim\` given).`);
+    if (c.coverage.missed.length) notes.push(`Coverage ${c.coverage.executed}/${c.coverage.total}: no probe executed ${c.coverage.missed.slice(0, 10).map(code).join(', ')}${c.coverage.missed.length > 10 ? ` and ${c.coverage.missed.length - 10} more` : ''} (each fold was proven on its own region).`);
+    for (const o of c.outputs) if (o.observable === false) notes.push(`Output ${code(o.name)}: not observable, bit-identical on every probe although a rewritten node upstream ran.`);
+    if (notes.length) out.push(...notes, '');
+  }
   out.push(...table(r.normalizations), ...alsoLine(r.normalizations, 'folded'));
   const flagged = r.quantization.filter((q) => q.flagged);
   if (flagged.length) {
@@ -80,11 +92,14 @@ export function auditMarkdown(r: AuditReport): string {
 }
 
 export function compareMarkdown(r: CompareReport, a: string, b: string): string {
-  const out = [`### pleat compare ${code(a)} with ${code(b)}: ${r.passed ? 'passed' : 'failed'}`, '',
-    `${r.probes} probe(s), seed ${r.seed}.`, '', '| output | result | maxAbs | maxRel | cosine |', '|---|---|---|---|---|'];
+  const out = [`### pleat compare ${code(a)} with ${code(b)}: ${r.status}`, '',
+    `${r.probes} probe(s), seed ${r.seed}.` + (r.skipped ? ` Skipped (${code(r.skipped.reason)}): ${cell(r.skipped.message)}` : ''), '',
+    ...r.assumedDims.map((d) => `Probe dim ${code(d.symbol)} = ${d.size} (no \`--dim\` given).`),
+    '| output | result | maxAbs | maxRel | cosine |', '|---|---|---|---|---|'];
   for (const o of r.outputs) {
     const m = o.metrics;
-    out.push(`| ${cell(code(o.name))} | ${o.passed ? 'pass' : cell(`**fail**: ${o.problem ?? o.status}`)} | ${m ? numText(m.maxAbs) : ''} | ${m ? numText(m.maxRel) : ''} | ${m ? cosineText(m.cosine) : ''} |`);
+    const result = o.passed ? 'pass' : o.status === 'empty' ? cell(`skipped: ${o.problem ?? 'no elements'}`) : cell(`**fail**: ${o.problem ?? o.status}`);
+    out.push(`| ${cell(code(o.name))} | ${result} | ${m ? numText(m.maxAbs) : ''} | ${m ? numText(m.maxRel) : ''} | ${m ? cosineText(m.cosine) : ''} |`);
   }
   out.push(...caution());
   return out.join('\n') + '\n';

@@ -3,7 +3,8 @@
 // budget adds A and B in float32 against the same reference, so a report can tell error the rewrite added
 // from rounding the model already had. Agreement on probe inputs is evidence, not proof, of agreement on real
 // data.
-import type { DataTypeCode, Model } from '../graph/ir.js';
+import { subgraphsOf, type DataTypeCode, type Graph, type Model, type Node } from '../graph/ir.js';
+import { isRandomOp } from '../eval/registry.js';
 import { basename } from 'node:path';
 import type { Precision, Value } from '../eval/value.js';
 import { runLockstep } from '../eval/lockstep.js';
@@ -16,8 +17,20 @@ import { BUDGET_NAMES, defaultGateFor, defaultGateKey, INT8_WEIGHTS_GATE, METRIC
 import { roundedWeightsModel } from '../fold/quant.js';
 import type { Int8Granularity } from '../fold/int8.js';
 import {
-  asMap, checkDimFlags, makeProbe, resolveInputs, summarizeInputs, type InputOptions, type InputSummary, type InputValue,
+  asMap, checkDimFlags, makeProbe, refuseEmptyProbeDims, resolveInputs, summarizeInputs,
+  type AssumedDim, type InputOptions, type InputSpec, type InputSummary, type InputValue,
 } from './inputs.js';
+import { checkStatus, missedNodes, upstreamOfOutputs, type CheckStatus, type Coverage, type SkipInfo } from './status.js';
+
+export type { CheckStatus, Coverage, SkipInfo, SkipReason } from './status.js';
+
+/** One probe as --save-probes keeps it: the inputs, and model A's outputs in float64 and in float32. */
+export interface ProbeRecord {
+  index: number;
+  inputs: Map<string, Value>;
+  float64: Map<string, Value>;
+  float32: Map<string, Value>;
+}
 
 export interface CompareOptions extends InputOptions {
   /** Number of seeded input sets (--probes); default 3. When every input is given, one run is enough. */
@@ -28,6 +41,16 @@ export interface CompareOptions extends InputOptions {
   budget?: boolean;
   /** Probe memory limit in bytes (--max-probe-memory); default DEFAULT_PROBE_MEMORY (src/eval/budget.ts). */
   maxProbeMemory?: number;
+  /**
+   * Nodes of model B to watch (a fold's rewritten nodes), each with the name the report gives it. The report
+   * then says which ran (coverage), draws extra probes while some have not, and marks outputs that stayed
+   * bit-identical although a watched node upstream ran.
+   */
+  watch?: ReadonlyMap<Node, string>;
+  /** Most extra seeded probes drawn while a watched node has not run; default 8. */
+  extraProbes?: number;
+  /** Receives every probe with A's outputs in float64 and float32 (for --save-probes). */
+  onProbe?: (p: ProbeRecord) => void;
   /**
    * The arithmetic both models run in for the judged comparison; default float64 (B in float64 against A in
    * float64). float32 runs both as a deployment runtime would (fold's default check: see checkArithmetic).
@@ -43,9 +66,14 @@ export interface CompareOptions extends InputOptions {
 }
 
 export const DEFAULT_PROBES = 3;
+/** Bound on the extra probes drawn for coverage (our choice: a few seeded tries, not a search). */
+export const DEFAULT_EXTRA_PROBES = 8;
 
-/** 'compared', or why an output could not be compared (each is a failure). */
-export type OutputStatus = 'compared' | 'only-in-a' | 'only-in-b' | 'shape-differs';
+/**
+ * 'compared'; 'empty' when the output had no elements on any probe (nothing compared: the check is skipped);
+ * or why an output could not be compared (each is a failure).
+ */
+export type OutputStatus = 'compared' | 'empty' | 'only-in-a' | 'only-in-b' | 'shape-differs';
 
 export interface ErrorBudget {
   /** A in float32 against A in float64: the rounding the model already has. */
@@ -82,18 +110,35 @@ export interface OutputComparison {
   passed: boolean;
   /** One line saying what went wrong, when something did. */
   problem?: string;
+  /**
+   * With watched nodes: false when the output stayed bit-identical over every probe although a watched node
+   * upstream of it ran (saturation, e.g. a sigmoid at exactly 1.0): the change was not observable there.
+   * True when it differed; absent when no watched node upstream ran.
+   */
+  observable?: boolean;
 }
 
 export interface CompareReport {
+  /** 'passed' only when at least one probe compared at least one element of every output. */
+  status: CheckStatus;
+  /** Why nothing (or not every output) was compared; null unless status is 'skipped'. */
+  skipped: SkipInfo | null;
+  /** status === 'passed'. */
   passed: boolean;
   /** The arithmetic of the judged runs. */
   arithmetic: Precision;
   seed: number;
-  /** Input sets actually run. */
+  /** Input sets actually run (extra coverage probes included). */
   probes: number;
   budget: boolean;
+  /** Symbolic dims no flag or file set, which the probes took as 1. */
+  assumedDims: AssumedDim[];
   inputs: InputSummary[];
   outputs: OutputComparison[];
+  /** Which watched nodes ran; present when nodes were watched. */
+  coverage?: Coverage;
+  /** Where --save-probes wrote the probes; present when asked. */
+  probesSaved?: { dir: string; sets: number };
   /** Set when B ran with 8-bit weights (--simulate-int8 weights): how, and how many layers were rounded. */
   int8Weights?: { granularity: Int8Granularity; layers: number };
 }
@@ -137,6 +182,12 @@ function labelled(e: unknown, model: Model, side: 'A' | 'B', precision: Precisio
   return new PleatError(e.kind, `model ${side}${file}, ${precision} run: ${e.message}`);
 }
 
+/** True when some node, in any graph of the model, draws random numbers (two runs cannot be compared). */
+function hasRandomOp(m: Model): boolean {
+  const visit = (g: Graph): boolean => g.nodes.some((n) => isRandomOp(n.domain, n.opType) || subgraphsOf(n).some(visit));
+  return visit(m.graph);
+}
+
 /** Run A and B on the same inputs and judge each output against its gate. Never throws for disagreeing outputs. */
 export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareReport {
   return withProbeMemory(opts.maxProbeMemory, () => compareWithin(a, b, opts));
@@ -156,9 +207,24 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
   if (!Number.isInteger(requested) || requested < 1) throw new PleatError('usage', `--probes ${requested}: give a whole number of at least 1`);
 
   const dims = asMap(opts.dims);
+  const shapes = asMap(opts.shapes);
   checkDimFlags(dims, [a.graph, b.graph]);
-  const specs = resolveInputs(a.graph, asMap(opts.inputs), asMap(opts.shapes), dims);
-  const probes = specs.every((s) => s.given) ? 1 : requested;
+  refuseEmptyProbeDims(dims, shapes);
+  const assumedDims: AssumedDim[] = [];
+  const skippedReport = (skipped: SkipInfo, specs: InputSpec[] = []): CompareReport => ({
+    status: 'skipped', skipped, passed: false, arithmetic, seed, probes: 0, budget, assumedDims, inputs: summarizeInputs(specs), outputs: [],
+    ...(opts.watch ? { coverage: { executed: 0, total: opts.watch.size, missed: missedNodes(opts.watch, new Set()), extraProbes: 0 } } : {}),
+  });
+  let specs: InputSpec[];
+  try {
+    specs = resolveInputs(a.graph, asMap(opts.inputs), shapes, dims, assumedDims);
+  } catch (e) {
+    if (e instanceof PleatError && e.kind === 'missing-shape') return skippedReport({ reason: 'no-shape', message: e.message });
+    throw e;
+  }
+  const allGiven = specs.every((s) => s.given);
+  const probes = allGiven ? 1 : requested;
+  const extraLimit = allGiven || !opts.watch ? 0 : opts.extraProbes ?? DEFAULT_EXTRA_PROBES;
   checkProbeEstimate(a.graph, specs); // before anything runs: sizes, and the values a probe would make
 
   const aOut = a.graph.outputs;
@@ -171,41 +237,66 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
   for (const o of aOut) if (bOut.has(o.name)) acc.set(o.name, { metrics: [], own: [], deploy: [], shapeDiffers: false });
   const onlyB = new Map<string, Value>();
   const onlyA = new Map<string, Value>();
+  const watch = opts.watch;
+  const executed = new Set<Node>();
+  const onNode = watch ? (n: Node) => { if (watch.has(n)) executed.add(n); } : undefined;
 
   const probeInputs = Array.from({ length: probes }, (_, p) => makeProbe(specs, seed, p));
   checkCandidateInputs(b, probeInputs[0]!);
   // A and B run together, node by node (src/eval/lockstep.ts), one probe and one arithmetic at a time: the judged
   // arithmetic, then (for the error budget) both again in float32. So at most one value set of each model is
-  // alive at once, within the same probe memory limit as a single run of each.
+  // alive at once, within the same probe memory limit as a single run of each. B's judged run reports the nodes
+  // it executes (coverage of the watched nodes).
   const pair = (model: 'judged' | 'float32', inputs: Map<string, Value>) => {
     const precision: Precision = model === 'judged' ? arithmetic : 'float32';
     const sides = [{ model: a, side: 'A' as const }, { model: b, side: 'B' as const }];
-    const out = runLockstep(sides.map((x) => ({ model: x.model, precision, probes: [inputs] })),
+    const out = runLockstep(sides.map((x) => ({ model: x.model, precision, probes: [inputs], onNode: x.side === 'B' && model === 'judged' ? onNode : undefined })),
       (e, i) => labelled(e, sides[i]!.model, sides[i]!.side, precision));
     return [out[0]![0]!, out[1]![0]!] as const;
   };
-  for (let p = 0; p < probes; p++) {
-    const [ra, rb] = pair('judged', probeInputs[p]!);
-    const [ra32, rb32] = budget ? pair('float32', probeInputs[p]!) : [undefined, undefined];
-    if (p === 0) {
-      for (const o of aOut) if (!bOut.has(o.name)) onlyA.set(o.name, ra.get(o.name)!);
-      for (const o of b.graph.outputs) if (!aNames.has(o.name)) onlyB.set(o.name, rb.get(o.name)!);
-    }
-    for (const [name, s] of acc) {
-      const va = ra.get(name)!, vb = rb.get(name)!;
-      if (p === 0) { s.dimsA = [...va.dims]; s.dimsB = [...vb.dims]; s.typeA = va.type; s.typeB = vb.type; }
-      if (s.shapeDiffers) continue;
-      if (!sameDims(va.dims, vb.dims)) { s.shapeDiffers = true; s.dimsA = [...va.dims]; s.dimsB = [...vb.dims]; continue; }
-      s.metrics.push(computeMetrics(vb.data, va.data));
-      if (ra32 && rb32) {
-        const a32 = ra32.get(name)!, b32 = rb32.get(name)!;
-        // float32 runs take the same shapes as float64 runs of the same model; B's were just checked against A's
-        s.own.push(computeMetrics(a32.data, va.data));
-        s.deploy.push(computeMetrics(b32.data, va.data));
+  /** A alone in one arithmetic (the outputs --save-probes keeps that the comparison did not compute). */
+  const aAlone = (precision: Precision, inputs: Map<string, Value>) =>
+    runLockstep([{ model: a, precision, probes: [inputs] }], (e) => labelled(e, a, 'A', precision))[0]![0]!;
+  let run = 0;
+  try {
+    for (let p = 0; p < probes + extraLimit; p++) {
+      if (p >= probes && executed.size === watch!.size) break;
+      const inputs = probeInputs[p] ?? makeProbe(specs, seed, p);
+      const [ra, rb] = pair('judged', inputs);
+      const [ra32, rb32] = budget ? pair('float32', inputs) : [undefined, undefined];
+      if (opts.onProbe) {
+        const a64 = arithmetic === 'float64' ? ra : aAlone('float64', inputs);
+        const a32 = ra32 ?? (arithmetic === 'float32' ? ra : aAlone('float32', inputs));
+        opts.onProbe({ index: p, inputs, float64: a64, float32: a32 });
+      }
+      run++;
+      if (p === 0) {
+        for (const o of aOut) if (!bOut.has(o.name)) onlyA.set(o.name, ra.get(o.name)!);
+        for (const o of b.graph.outputs) if (!aNames.has(o.name)) onlyB.set(o.name, rb.get(o.name)!);
+      }
+      for (const [name, s] of acc) {
+        const va = ra.get(name)!, vb = rb.get(name)!;
+        if (p === 0) { s.dimsA = [...va.dims]; s.dimsB = [...vb.dims]; s.typeA = va.type; s.typeB = vb.type; }
+        if (s.shapeDiffers) continue;
+        if (!sameDims(va.dims, vb.dims)) { s.shapeDiffers = true; s.dimsA = [...va.dims]; s.dimsB = [...vb.dims]; continue; }
+        s.metrics.push(computeMetrics(vb.data, va.data));
+        if (ra32 && rb32) {
+          const a32 = ra32.get(name)!, b32 = rb32.get(name)!;
+          // float32 runs take the same shapes as float64 runs of the same model; B's were just checked against A's
+          s.own.push(computeMetrics(a32.data, va.data));
+          s.deploy.push(computeMetrics(b32.data, va.data));
+        }
       }
     }
+  } catch (e) {
+    // an operator pleat cannot evaluate leaves nothing compared: the check is skipped, never passed
+    if (e instanceof PleatError && e.kind === 'unsupported-op') {
+      return skippedReport({ reason: hasRandomOp(a) || hasRandomOp(b) ? 'random-op' : 'no-kernel', message: e.message }, specs);
+    }
+    throw e;
   }
 
+  const upstream = watch ? upstreamOfOutputs(b.graph, watch) : undefined;
   const outputs: OutputComparison[] = [];
   for (const o of aOut) {
     const s = acc.get(o.name);
@@ -226,6 +317,12 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
     }
     const metrics = worstOf(s.metrics);
     out.metrics = metrics;
+    if (s.metrics.every((m) => m.count === 0)) {
+      out.status = 'empty';
+      out.problem = `output '${o.name}' has no elements on any probe, so nothing was compared`;
+      outputs.push(out);
+      continue;
+    }
     const scope: GateScope = { ...extra, ...metrics };
     if (budget) {
       const own = worstOf(s.own), deploy = worstOf(s.deploy);
@@ -239,16 +336,22 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
     out.gate = { expr: gate.expr, source: userGate ? 'user' : 'default', passed };
     out.passed = passed;
     if (!passed) out.problem = `output '${o.name}' fails the gate '${gate.expr}'`;
+    if (upstream && [...(upstream.get(o.name) ?? [])].some((n) => executed.has(n))) {
+      out.observable = !(metrics.maxAbs === 0 && metrics.nanMismatches === 0);
+    }
     outputs.push(out);
   }
   for (const [name, v] of onlyB) {
     outputs.push({ name, status: 'only-in-b', dtype: dataTypeName(v.type), dims: [...v.dims], passed: false,
       problem: `model A has no output '${name}'` });
   }
-  return {
-    passed: outputs.every((o) => o.passed), arithmetic, seed, probes, budget, inputs: summarizeInputs(specs), outputs,
+  const { status, skipped } = checkStatus(outputs);
+  const report: CompareReport = {
+    status, skipped, passed: status === 'passed', arithmetic, seed, probes: run, budget, assumedDims, inputs: summarizeInputs(specs), outputs,
     ...(int8 && opts.simulateInt8 ? { int8Weights: { granularity: opts.simulateInt8, layers: int8.layers } } : {}),
   };
+  if (watch) report.coverage = { executed: executed.size, total: watch.size, missed: missedNodes(watch, executed), extraProbes: run - Math.min(run, probes) };
+  return report;
 }
 
 /**

@@ -115,7 +115,7 @@ const template = (vi: ValueInfo) => (vi.shape ?? []).map((d) => (typeof d === 'n
  * values; ONNX names the same symbol for the same size, so two sources disagreeing on a symbol is an error.
  */
 export function resolveInputs(graph: Graph, given: ReadonlyMap<string, InputValue>, shapes: ReadonlyMap<string, number[]> = new Map(),
-  dims: ReadonlyMap<string, number> = new Map()): InputSpec[] {
+  dims: ReadonlyMap<string, number> = new Map(), assumed?: AssumedDim[]): InputSpec[] {
   const byName = new Map(graph.inputs.map((i) => [i.name, i]));
   const inits = new Set(graph.initializers.map((t) => t.name));
   const list = graph.inputs.map((i) => i.name).join(', ') || '(none)';
@@ -181,13 +181,42 @@ export function resolveInputs(graph: Graph, given: ReadonlyMap<string, InputValu
       if (typeof d === 'number') return d;
       if (typeof d === 'string' && d !== '') {
         const b = bound.get(d);
+        const chosen = assumed?.find((x) => x.symbol === d);
+        if (chosen && !chosen.inputs.includes(vi.name)) chosen.inputs.push(vi.name);
         if (b) return b.size;
+        if (assumed) {
+          // probes take size 1 for a symbol nothing sets; the report lists each one so chosen
+          bound.set(d, { size: 1, from: 'the probe default' });
+          assumed.push({ symbol: d, size: 1, inputs: [vi.name] });
+          return 1;
+        }
         throw new PleatError('missing-shape', `input '${vi.name}' dim '${d}' is dynamic: set it with --dim ${d}=N or --shape ${vi.name}=${template(vi)}`);
       }
       throw new PleatError('missing-shape', `input '${vi.name}' dim ${k} has no size or name: set it with --shape ${vi.name}=${template(vi)}`);
     });
     return { name: vi.name, type: vi.elemType, dims: out };
   });
+}
+
+/** A symbolic dim no --dim, --shape or input file set, which the probes took as 1. */
+export interface AssumedDim {
+  symbol: string;
+  size: number;
+  /** The inputs whose shape names the symbol. */
+  inputs: string[];
+}
+
+/**
+ * Probes of zero elements compare nothing, so a size 0 from --dim or --shape is refused for them (a run on
+ * given input files may still hold empty tensors).
+ */
+export function refuseEmptyProbeDims(dims: ReadonlyMap<string, number>, shapes: ReadonlyMap<string, number[]>): void {
+  for (const [sym, n] of dims) {
+    if (n === 0) throw new PleatError('usage', `--dim ${sym}=0: probes need at least one element; give ${sym} a size of 1 or more`);
+  }
+  for (const [name, s] of shapes) {
+    if (s.includes(0)) throw new PleatError('usage', `--shape ${name}=${s.join('x')}: probes need at least one element; give every dim a size of 1 or more`);
+  }
 }
 
 /** Dim symbols named in any input shape of these graphs. */

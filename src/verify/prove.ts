@@ -7,11 +7,16 @@ import type { ProofCase } from '../fold/types.js';
 import type { Value } from '../eval/value.js';
 import { runLockstep } from '../eval/lockstep.js';
 import { probeValue } from './inputs.js';
+import { computeMetrics } from './metrics.js';
 
 export interface ProofResult {
   passed: boolean;
   /** Largest |after - before| over outputs and probes. */
   maxAbs: number;
+  /** Largest relative error over outputs and probes (the metric maxRel of metrics.ts). */
+  maxRel: number;
+  /** The probe shape of the region's first input ([] when the proof found none). */
+  shape: number[];
   /** Largest |before| (the scale the tolerance is relative to). */
   scale: number;
   tolerance: number;
@@ -150,7 +155,7 @@ export function proveFold(c: ProofCase, opts: { probes?: number; seed?: number }
   const options: Array<{ name: string; type: DataTypeCode; shapes: number[][] }> = [];
   for (const i of c.before.inputs) {
     const shapes = probeShapes(c.before, i.name, i.shape?.length);
-    if (!shapes.length) return { passed: false, maxAbs: NaN, scale: NaN, tolerance: tol, problem: `no probe shape for region input '${i.name}'` };
+    if (!shapes.length) return { passed: false, maxAbs: NaN, maxRel: NaN, shape: [], scale: NaN, tolerance: tol, problem: `no probe shape for region input '${i.name}'` };
     options.push({ name: i.name, type: i.elemType ?? DataType.FLOAT, shapes });
   }
   // The first combination of candidate shapes the original region accepts is the probe shape. Each side runs
@@ -169,8 +174,9 @@ export function proveFold(c: ProofCase, opts: { probes?: number; seed?: number }
       probeSets = sets;
     } catch { /* try the next shape */ }
   }
-  if (!specs) return { passed: false, maxAbs: NaN, scale: NaN, tolerance: tol, problem: 'no probe shape the original region accepts' };
-  let maxAbs = 0, scale = 0;
+  if (!specs) return { passed: false, maxAbs: NaN, maxRel: NaN, shape: [], scale: NaN, tolerance: tol, problem: 'no probe shape the original region accepts' };
+  const shape = specs.length ? [...specs[0]!.dims] : [];
+  let maxAbs = 0, maxRel = 0, scale = 0;
   try {
     const afterOut = runAll(c.after, probeSets);
     for (let p = 0; p < probes; p++) {
@@ -178,8 +184,10 @@ export function proveFold(c: ProofCase, opts: { probes?: number; seed?: number }
       for (const o of c.before.outputs) {
         const a = before.get(o.name), b = after.get(o.name);
         if (!a || !b || !sameDims(a.dims, b.dims)) {
-          return { passed: false, maxAbs: Infinity, scale, tolerance: tol, problem: `region output '${o.name}' missing or reshaped after the fold` };
+          return { passed: false, maxAbs: Infinity, maxRel: Infinity, shape, scale, tolerance: tol, problem: `region output '${o.name}' missing or reshaped after the fold` };
         }
+        const rel = computeMetrics(b.data, a.data).maxRel;
+        if (!(rel <= maxRel)) maxRel = Number.isNaN(rel) ? Infinity : rel;
         for (let i = 0; i < a.data.length; i++) {
           const d = Math.abs(a.data[i]! - b.data[i]!);
           if (!(d <= maxAbs)) maxAbs = Number.isNaN(d) ? Infinity : d;
@@ -188,7 +196,7 @@ export function proveFold(c: ProofCase, opts: { probes?: number; seed?: number }
       }
     }
   } catch (e) {
-    return { passed: false, maxAbs: NaN, scale, tolerance: tol, problem: (e as Error).message.split('\n')[0] };
+    return { passed: false, maxAbs: NaN, maxRel: NaN, shape, scale, tolerance: tol, problem: (e as Error).message.split('\n')[0] };
   }
-  return { passed: maxAbs <= tol * Math.max(scale, 1e-12), maxAbs, scale, tolerance: tol };
+  return { passed: maxAbs <= tol * Math.max(scale, 1e-12), maxAbs, maxRel, shape, scale, tolerance: tol };
 }

@@ -44,7 +44,7 @@ describe('pleat compare', { timeout: 120_000 }, () => {
     expect(r.stderr).toBe('');
     expect(r.code).toBe(0);
     const j = JSON.parse(r.stdout);
-    expect(j).toMatchObject({ schemaVersion: SCHEMA_VERSION, command: 'compare', a, b: same, passed: true, probes: 3 });
+    expect(j).toMatchObject({ schemaVersion: SCHEMA_VERSION, command: 'compare', a, b: same, status: 'passed', passed: true, probes: 3, assumedDims: [] });
     expect(j.outputs[0].metrics.maxAbs).toBe(0);
     const validate = schemaValidator();
     expect(validate(j), JSON.stringify(validate.errors)).toBe(true);
@@ -69,10 +69,11 @@ describe('pleat compare', { timeout: 120_000 }, () => {
     expect(j.outputs.map((o: { status: string }) => o.status)).toEqual(['only-in-a', 'only-in-b']);
   });
 
-  it('a missing dim is bad input (exit 2) naming the flag; JUnit goes to --report atomically', () => {
+  it('a dim no flag sets takes 1 for the probes and is listed; JUnit goes to --report atomically', () => {
     const r = pleat(['compare', a, same]);
-    expect(r.code).toBe(2);
-    expect(r.stderr).toMatch(/^pleat: .*--dim batch=N/);
+    expect(r.code).toBe(0);
+    expect(r.stdout).toMatch(/passed/);
+    expect(r.stdout).toMatch(/probe dim batch = 1 \(no --dim given\) for input x/);
     const rep = join(dir, 'cmp.xml');
     expect(pleat(['compare', a, same, '--dim', 'batch=1', '--report', rep]).code).toBe(0);
     expect(readFileSync(rep, 'utf8')).toMatch(/<testsuites name="pleat compare" tests="1" failures="0"/);

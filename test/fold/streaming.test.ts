@@ -14,6 +14,7 @@ import { tensorToFloat64 } from '../../src/graph/tensor.js';
 import { lazySourceOf } from '../../src/onnx/sparse-read.js';
 import { foldFile, foldLoaded } from '../../src/jobs/fold.js';
 import { LateRangeCheckFailed } from '../../src/fold/values.js';
+import { provenanceOf, setProvenance, sha256File } from '../../src/jobs/provenance.js';
 
 /** Two 96-channel Conv+BN+Relu blocks; `hugeIn0` puts a weight of w0 near the float32 maximum. */
 function bigModel(dir: string, opts: { seed?: number; hugeIn0?: boolean } = {}): string {
@@ -86,6 +87,7 @@ describe('folding weights that are still on disk', () => {
       const late = foldFile(src, join(dir, 'late.onnx'), { noProofs: true });
       const m = readModelFile(src);
       foldLoaded(m, undefined, src, { noProofs: true }, false);
+      setProvenance(m, provenanceOf(sha256File(src), undefined, { noProofs: true }, 'not-run')); // as the fold job stamps it
       writeModelFile(m, join(dir, 'early.onnx'));
       expect(late.normalizations.map((n) => n.status)).toEqual(['folded', 'folded']);
       expect(readFileSync(join(dir, 'late.onnx')).equals(readFileSync(join(dir, 'early.onnx')))).toBe(true);
@@ -105,6 +107,7 @@ describe('folding weights that are still on disk', () => {
     expect(r.normalizations.map((n) => `${n.node}:${n.status}:${n.reason}`)).toEqual(['bn0:kept:storage-overflow', 'bn1:folded:null']);
     const early = readModelFile(src);
     foldLoaded(early, undefined, src, { noProofs: true }, false);
+    setProvenance(early, provenanceOf(sha256File(src), undefined, { noProofs: true }, 'not-run'));
     expect(readFileSync(join(dir, 'out.onnx')).equals(Buffer.from(serializeModel(early)))).toBe(true);
     // (no runtime comparison: weights this large overflow inside the original model too)
     const out = readModelFile(join(dir, 'out.onnx'));

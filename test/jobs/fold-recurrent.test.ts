@@ -42,6 +42,7 @@ describe('whole-model check with recurrent and random operators', () => {
     const out = join(dir, 'folded.onnx');
     const rep = foldFile(src, out, {});
     expect(rep.check!.skipped).toBeNull();
+    expect(rep.check!.status).toBe('passed');
     expect(rep.check!.passed).toBe(true);
     expect(rep.check!.probes).toBeGreaterThan(0);
     expect(rep.failed).toBe(false);
@@ -57,6 +58,9 @@ describe('whole-model check with recurrent and random operators', () => {
     const dir = mkdtempSync(join(tmpdir(), 'pleat-rand-'));
     const src = saveModel(join(dir, 'noisy.onnx'), audioModel(true), { opset: 14 });
     const rep = foldFile(src, join(dir, 'folded.onnx'), {});
-    expect(rep.check!.skipped).toMatch(/'RandomUniformLike' draws random numbers, so the whole-model check cannot compare two runs/);
+    expect(rep.check!.status).toBe('skipped');
+    expect(rep.check!.passed).toBe(false);
+    expect(rep.check!.skipped!.reason).toBe('random-op');
+    expect(rep.check!.skipped!.message).toMatch(/'RandomUniformLike' draws random numbers, so the whole-model check cannot compare two runs/);
   });
 });

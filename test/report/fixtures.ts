@@ -6,15 +6,17 @@ export function foldReport(over: Partial<FoldReport> = {}): FoldReport {
   return {
     schemaVersion: SCHEMA_VERSION, command: 'fold', model: 'models/tray-sorter.onnx', output: 'out/tray-sorter.onnx',
     normalizations: [
-      { node: 'stem_bn', op: 'BatchNormalization', kind: 'normalization', status: 'folded', direction: 'into-producer', target: 'stem_conv', targets: ['stem_conv'], cloneBytes: 0, reason: null, hint: 'scaled 16 output channels of stem_conv', graph: 'main' },
+      { node: 'stem_bn', op: 'BatchNormalization', kind: 'normalization', status: 'folded', direction: 'into-producer', target: 'stem_conv', targets: ['stem_conv'], cloneBytes: 0, reason: null, hint: 'scaled 16 output channels of stem_conv', graph: 'main',
+        proof: { maxAbs: 4.4e-16, maxRel: 2.1e-16, shape: [2, 3, 5, 5] } },
       { node: 'head_bn', op: 'BatchNormalization', kind: 'normalization', status: 'folded', direction: 'into-consumer', target: 'head_fc', targets: ['head_fc'], cloneBytes: 0, reason: null, hint: 'scaled the input columns of head_fc', graph: 'main' },
       { node: 'act_half', op: 'Mul', kind: 'affine-step', status: 'folded', direction: 'into-consumer', target: 'head_fc', targets: ['head_fc'], cloneBytes: 0, reason: null, hint: 'scales the input channels of \'head_fc\'', graph: 'main' },
       { node: 'edge_bn', op: 'BatchNormalization', kind: 'normalization', status: 'kept', direction: null, target: null, targets: [], cloneBytes: 0, reason: 'padded-consumer', hint: 'remove the padding of the next convolution <pad=1> & "fold"', graph: 'main/branch_if.then_branch' },
     ],
     nodesBefore: 41, nodesAfter: 37, bytesBefore: 10240, bytesAfter: 10040,
     check: {
-      passed: true, skipped: null, probes: 2, seed: 0, gates: ['maxRel <= 1e-3 and cosine >= 0.99999'],
-      outputs: [{ name: 'tray_class', maxAbs: 1.2e-7, maxRel: 3.4e-6, rms: 2e-8, cosine: 0.9999999999, passed: true }],
+      status: 'passed', passed: true, skipped: null, strict: false, probes: 2, seed: 0, gates: ['maxRel <= 1e-3 and cosine >= 0.99999'],
+      assumedDims: [], coverage: { executed: 2, total: 2, missed: [], extraProbes: 0 },
+      outputs: [{ name: 'tray_class', maxAbs: 1.2e-7, maxRel: 3.4e-6, rms: 2e-8, cosine: 0.9999999999, passed: true, status: 'compared', count: 10 }],
     },
     quantization: [{
       target: 'stem_conv', norms: ['stem_bn'], channels: 16, spreadBefore: 2.4, spreadAfter: 51.2,
@@ -24,6 +26,7 @@ export function foldReport(over: Partial<FoldReport> = {}): FoldReport {
     equalized: [],
     int8: null,
     storage: null,
+    probesSaved: null,
     failed: false,
     ...over,
   };
@@ -44,7 +47,7 @@ export function auditReport(over: Partial<AuditReport> = {}): AuditReport {
 export function compareReport(): CompareReport {
   const m = { maxAbs: 2e-7, maxRel: 1e-6, rms: 5e-8, cosine: 1, nanMismatches: 0, peak: 3.2, count: 10 };
   return {
-    passed: false, seed: 0, probes: 3, budget: true,
+    status: 'failed', skipped: null, passed: false, seed: 0, probes: 3, budget: true, assumedDims: [],
     inputs: [{ name: 'image', dtype: 'float32', dims: [1, 3, 8, 8], source: 'probe' }],
     outputs: [
       { name: 'tray_class', status: 'compared', dtype: 'float32', dims: [1, 10], metrics: m,

@@ -26,8 +26,10 @@ describe('text', () => {
     expect(t).toMatch(/folded\s+stem_bn\s+BatchNormalization\s+into stem_conv \(into-producer\)/);
     expect(t).toMatch(/kept\s+edge_bn\s+BatchNormalization\s+padded-consumer: remove the padding .* in main\/branch_if\.then_branch/);
     expect(t).toMatch(/2 folded, 1 kept \(and 1 affine step also folded\); 4 nodes removed \(41 -> 37\); 200 B of weights saved/);
-    expect(t).toMatch(/whole-model check: passed \(2 probes, seed 0\)/);
+    expect(t).toMatch(/whole-model check: passed \(2 probes, seed 0; coverage 2\/2\)/);
     expect(t).toMatch(/tray_class\s+pass\s+maxAbs 1\.20e-7/);
+    // each folded line carries its proof's figures
+    expect(t).toMatch(/folded\s+stem_bn .*\[proof 2x3x5x5: maxAbs 4\.40e-16, maxRel 2\.10e-16\]/);
     expect(t).toMatch(/stem_conv\s+16 channels\s+spread 2\.4 -> 51\.2\s+sqnr tensor 38\.2 -> 36\.9, channel 41\.5 -> 41\.5, worst channel 30\.1 -> 8\.4\s+flagged/);
     expect(t).toMatch(/flagged below 20\.0 dB/);
     expect(t.trimEnd().endsWith(CAUTION.at(-1)!)).toBe(true);
@@ -43,7 +45,7 @@ describe('text', () => {
   it('a failed check says nothing was written', () => {
     const r = foldReport({
       output: null, failed: true,
-      check: { passed: false, skipped: null, probes: 2, seed: 0, gates: ['maxAbs < 1e-9'], outputs: [{ name: 'y', maxAbs: 0.5, maxRel: 0.1, rms: 0.1, cosine: 0.9, passed: false }] },
+      check: { ...foldReport().check!, status: 'failed', passed: false, gates: ['maxAbs < 1e-9'], outputs: [{ name: 'y', maxAbs: 0.5, maxRel: 0.1, rms: 0.1, cosine: 0.9, passed: false, status: 'compared', count: 4 }] },
     });
     const t = foldText(r);
     expect(t).toMatch(/nothing written \(check failed\)/);
@@ -101,6 +103,8 @@ describe('JSON against the shipped schema (ajv)', () => {
   it('the schema rejects what it should (it can fail)', () => {
     expect(validate({ ...foldReport(), schemaVersion: SCHEMA_VERSION + 1 })).toBe(false);
     expect(validate({ ...foldReport(), schemaVersion: SCHEMA_VERSION - 1 })).toBe(false);
+    expect(validate({ ...foldReport(), check: { ...foldReport().check!, status: "ok" } })).toBe(false);
+    expect(validate({ ...foldReport(), check: { ...foldReport().check!, skipped: "a bare string" } })).toBe(false);
     expect(validate({ ...auditReport(), surprise: 1 })).toBe(false);
     const bad = foldReport();
     (bad.normalizations[3] as { reason: string }).reason = 'no-such-reason';
@@ -143,9 +147,9 @@ describe('JUnit XML (fast-xml-parser)', () => {
 
   it('fold: normalizations plus one case per checked output; escaping survives a parser', () => {
     const r = foldReport({
-      check: { passed: false, skipped: null, probes: 1, seed: 0, gates: ['maxAbs < 1e-9'], outputs: [
-        { name: 'a<b>&"c"', maxAbs: 1, maxRel: 1, rms: 1, cosine: 0, passed: false },
-        { name: 'ok', maxAbs: 0, maxRel: 0, rms: 0, cosine: 1, passed: true },
+      check: { ...foldReport().check!, status: 'failed', passed: false, probes: 1, gates: ['maxAbs < 1e-9'], outputs: [
+        { name: 'a<b>&"c"', maxAbs: 1, maxRel: 1, rms: 1, cosine: 0, passed: false, status: 'compared', count: 3 },
+        { name: 'ok', maxAbs: 0, maxRel: 0, rms: 0, cosine: 1, passed: true, status: 'compared', count: 3 },
       ] }, failed: true, output: null,
     });
     const j = parseJunit(renderJobs('fold', [{ model: r.model, report: r, exitCode: 1 }], 'junit'));
@@ -201,6 +205,8 @@ describe('Markdown', () => {
     expect(md).toMatch(/^Also folded \(constant affine steps that are not normalizations\): `act_half` \(Mul\) into `head_fc`\.$/m);
     expect(md).toMatch(/`stem_conv` worst channel 30\.1 → 8\.4 dB, spread 2\.4 → 51\.2/);
     expect(md).toMatch(/^> Caution:/m);
+    expect(md).toMatch(/whole-model check passed on 1 output\(s\), worst maxAbs 1\.20e-7, coverage 2\/2/);
+    expect(rows.find((r) => r.startsWith('| `stem_bn`'))).toMatch(/proof on 2x3x5x5: maxAbs 4\.40e-16, maxRel 2\.10e-16/);
   });
 
   it('pipes in names cannot break the table', () => {

@@ -140,13 +140,17 @@ describe('compare', () => {
     expect(() => compare(a, parseModel(modelBytes(g), dir), { inputs: { x } })).toThrow("model B has no input 'x', which model A takes: both models must take the same inputs");
   });
 
-  it('a model that cannot run is an error naming which model', () => {
+  it('a model that cannot run is a skipped comparison (no-kernel) naming which model, never passed', () => {
     const g = new GraphBuilder();
     g.input('x', ['batch', CI, 6, 6]).output('y').output('z');
     g.node('NoSuchOp', ['x'], {}, { outputs: ['y'], domain: 'example.unknown' });
     g.node('Relu', ['x'], {}, { outputs: ['z'] });
     const b = parseModel(modelBytes(g, { extraOpsets: [['example.unknown', 1]] }), dir);
-    expect(() => compare(convBn(p), b, { dims: { batch: 1 } })).toThrow(/^model B, float64 run: /);
+    const r = compare(convBn(p), b, { dims: { batch: 1 } });
+    expect(r.status).toBe('skipped');
+    expect(r.passed).toBe(false);
+    expect(r.skipped?.reason).toBe('no-kernel');
+    expect(r.skipped?.message).toMatch(/^model B, float64 run: /);
   });
 
   it('when B stores an output in a lower precision, the looser default gate applies and dtypeB is reported', () => {
@@ -171,7 +175,7 @@ describe('compare', () => {
     const two = toJsonText(compare(a, folded(p), { dims: { batch: 1 }, seed: 5 }));
     expect(one).toBe(two);
     const parsed = JSON.parse(one);
-    expect(Object.keys(parsed)).toEqual(['passed', 'arithmetic', 'seed', 'probes', 'budget', 'inputs', 'outputs']);
+    expect(Object.keys(parsed)).toEqual(['status', 'skipped', 'passed', 'arithmetic', 'seed', 'probes', 'budget', 'assumedDims', 'inputs', 'outputs']);
     expect(parsed.seed).toBe(5);
     expect(toJsonText({ m: Infinity, n: NaN })).toBe('{\n  "m": "Infinity",\n  "n": "NaN"\n}\n');
   });

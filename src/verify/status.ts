@@ -1,0 +1,97 @@
+// The rules one check status follows wherever a comparison runs (compare, and fold's whole-model check):
+// `passed` only when at least one probe compared at least one element of every output, `failed` when any output
+// failed, `skipped` (with a reason code) when something could not be compared at all. Also which rewritten nodes
+// sit upstream of each output, for coverage and for saying when a change was not observable at an output.
+import { subgraphsOf, type Graph, type Node } from '../graph/ir.js';
+
+export type CheckStatus = 'passed' | 'failed' | 'skipped';
+
+/**
+ * Why a check compared nothing (or not every output):
+ * - `no-shape`: an input's shape is unknown and no flag sets it;
+ * - `no-kernel`: the evaluator has no kernel for an operator (or attribute value) of the model;
+ * - `random-op`: the model draws random numbers (Bernoulli, RandomNormal, ...), so two runs cannot be compared;
+ * - `no-elements`: an output had no elements on any probe, or the model has no outputs.
+ */
+export type SkipReason = 'no-shape' | 'no-kernel' | 'random-op' | 'no-elements';
+
+export interface SkipInfo {
+  reason: SkipReason;
+  message: string;
+}
+
+/** Which watched (rewritten) nodes the probes executed. */
+export interface Coverage {
+  executed: number;
+  total: number;
+  /** Names of watched nodes no probe executed. */
+  missed: string[];
+  /** Probes drawn beyond those asked for, because some watched node had not run yet. */
+  extraProbes: number;
+}
+
+/** The status of a comparison from its outputs' results. */
+export function checkStatus(outputs: ReadonlyArray<{ name: string; status: string; passed: boolean }>): { status: CheckStatus; skipped: SkipInfo | null } {
+  if (outputs.some((o) => !o.passed && o.status !== 'empty')) return { status: 'failed', skipped: null };
+  if (outputs.length === 0) return { status: 'skipped', skipped: { reason: 'no-elements', message: 'the model has no outputs, so nothing was compared' } };
+  const empty = outputs.filter((o) => o.status === 'empty').map((o) => `'${o.name}'`);
+  if (empty.length) {
+    return { status: 'skipped', skipped: { reason: 'no-elements', message: `output ${empty.join(', ')} had no elements on any probe, so nothing was compared there` } };
+  }
+  return { status: 'passed', skipped: null };
+}
+
+export function missedNodes(watch: ReadonlyMap<Node, string>, executed: ReadonlySet<Node>): string[] {
+  return [...watch].filter(([n]) => !executed.has(n)).map(([, name]) => name);
+}
+
+/** Every value a node reads, including what its bodies read from enclosing scopes. */
+function readsOf(n: Node): string[] {
+  const out = new Set(n.inputs.filter((x) => x !== ''));
+  const visit = (g: Graph) => {
+    const defined = new Set([...g.inputs.map((i) => i.name), ...g.initializers.map((t) => t.name)]);
+    for (const m of g.nodes) {
+      for (const i of m.inputs) if (i && !defined.has(i)) out.add(i);
+      for (const sg of subgraphsOf(m)) visit(sg);
+      for (const o of m.outputs) if (o) defined.add(o);
+    }
+    for (const o of g.outputs) if (!defined.has(o.name)) out.add(o.name);
+  };
+  for (const g of subgraphsOf(n)) visit(g);
+  return [...out];
+}
+
+/** Watched nodes in a node's bodies, at any depth. */
+function nestedWatched(n: Node, watch: ReadonlyMap<Node, string>, into: Set<Node>): void {
+  for (const g of subgraphsOf(n)) {
+    for (const m of g.nodes) {
+      if (watch.has(m)) into.add(m);
+      nestedWatched(m, watch, into);
+    }
+  }
+}
+
+/**
+ * For each output of `graph`, the watched nodes its value depends on (through bodies of If/Loop/Scan too): a
+ * walk back from each output over producers, so the cost is outputs x nodes, never nodes x watched nodes.
+ */
+export function upstreamOfOutputs(graph: Graph, watch: ReadonlyMap<Node, string>): Map<string, Set<Node>> {
+  const producer = new Map<string, Node>();
+  for (const n of graph.nodes) for (const o of n.outputs) if (o) producer.set(o, n);
+  const out = new Map<string, Set<Node>>();
+  for (const o of graph.outputs) {
+    const found = new Set<Node>();
+    const seen = new Set<Node>();
+    const stack: Node[] = [];
+    const push = (v: string) => { const p = producer.get(v); if (p && !seen.has(p)) { seen.add(p); stack.push(p); } };
+    push(o.name);
+    while (stack.length) {
+      const n = stack.pop()!;
+      if (watch.has(n)) found.add(n);
+      nestedWatched(n, watch, found);
+      for (const v of readsOf(n)) push(v);
+    }
+    out.set(o.name, found);
+  }
+  return out;
+}
