@@ -7,6 +7,17 @@ import type { Argv } from 'yargs';
  */
 export const many = (v: unknown): string[] => (v === undefined ? [] : (Array.isArray(v) ? v : [v]).map(String));
 import { EXIT_CODES_TEXT } from '../src/report/exit-codes.js';
+import { FORMATS } from '../src/report/format.js';
+
+/** Options that may be given more than once (each adds one value); every other value option takes one value. */
+export const REPEATABLE: ReadonlySet<string> = new Set(['input', 'shape', 'dim', 'keep', 'report']);
+
+/** Number options: whole numbers, at least `min` (options not listed: 0 or more). */
+export const NUMBER_RULES: Record<string, { min: number; what: string }> = {
+  probes: { min: 1, what: 'a whole number of probe sets, 1 or more' },
+  seed: { min: -Number.MAX_SAFE_INTEGER, what: 'a whole number' },
+  'external-data-min': { min: 0, what: 'a whole number of bytes, 0 or more' },
+};
 
 export function inputFlags<T>(y: Argv<T>) {
   return y
@@ -19,7 +30,7 @@ export function inputFlags<T>(y: Argv<T>) {
 export function reportFlags<T>(y: Argv<T>) {
   return y
     .option('json', { type: 'boolean', describe: 'print the report as JSON (same as --format json)' })
-    .option('format', { type: 'string', choices: ['text', 'json', 'junit', 'markdown'], describe: 'report format on stdout (default text)' })
+    .option('format', { type: 'string', choices: [...FORMATS], describe: 'report format on stdout (default text)' })
     .option('report', { type: 'string', coerce: many, describe: 'also write a report file: FILE (.json, .xml = junit, .md, .txt) or FORMAT:FILE; repeatable, one per format' });
 }
 

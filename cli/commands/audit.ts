@@ -4,8 +4,6 @@ import type { Job } from '../batch.js';
 import { planReports, runAndReport } from '../output.js';
 import { configFlags, EPILOGUE, many, reportFlags } from '../flags.js';
 
-export const command = 'audit <models..>';
-export const describe = 'The fold analysis without writing: every normalization, its status (foldable or kept), reason and hint';
 
 export function builder(y: Argv) {
   return configFlags(reportFlags(y

@@ -3,8 +3,6 @@ import { loadConfig, runSettings } from '../config.js';
 import { emit, planReports } from '../output.js';
 import { configFlags, EPILOGUE, inputFlags, reportFlags } from '../flags.js';
 
-export const command = 'compare <a> <b>';
-export const describe = 'Run two models on the same inputs and judge their agreement, output by output, against a gate';
 
 export function builder(y: Argv) {
   return configFlags(reportFlags(inputFlags(y

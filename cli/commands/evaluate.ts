@@ -5,8 +5,6 @@ import { loadConfig, runSettings } from '../config.js';
 import { out } from '../errors.js';
 import { configFlags, EPILOGUE, inputFlags } from '../flags.js';
 
-export const command = 'evaluate <model>';
-export const describe = 'Evaluate a model on given or seeded inputs and save each output as DIR/<output>.npy with an index';
 
 export function builder(y: Argv) {
   return configFlags(inputFlags(y

@@ -5,8 +5,6 @@ import { keepList, loadConfig, runSettings } from '../config.js';
 import { out } from '../errors.js';
 import { configFlags, EPILOGUE, inputFlags, many } from '../flags.js';
 
-export const command = 'export <model>';
-export const describe = 'Fold and prove, then write the folded weights for device runtimes (safetensors + JSON manifest, or C source)';
 
 export function builder(y: Argv) {
   return configFlags(inputFlags(y

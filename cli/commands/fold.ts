@@ -8,8 +8,6 @@ import type { Job } from '../batch.js';
 import { planReports, runAndReport } from '../output.js';
 import { configFlags, EPILOGUE, inputFlags, many, reportFlags } from '../flags.js';
 
-export const command = 'fold <models..>';
-export const describe = 'Fold every normalization it safely can, prove each fold, write the folded model, print the ledger';
 
 export function builder(y: Argv) {
   return configFlags(reportFlags(inputFlags(y

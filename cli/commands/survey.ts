@@ -3,8 +3,6 @@ import { survey } from '../../src/jobs/survey.js';
 import { surveyText } from '../../src/report/survey-text.js';
 import { out } from '../errors.js';
 
-export const command = 'survey <model>';
-export const describe = 'What a model file holds: IR version, opsets, inputs and outputs, op counts, weight bytes, normalizations';
 
 export function builder(y: Argv) {
   return y
