@@ -74,6 +74,8 @@ if (existsSync(extraBenches)) {
   await more.run(on, rows);
 }
 
+(await import('./startup.js')).run(on, rows);
+
 console.log('\n| measure | time | ratio | target | memory | target |');
 console.log('|---|---|---|---|---|---|');
 for (const r of rows) console.log(`| ${r.join(' | ')} |`);
