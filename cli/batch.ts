@@ -8,6 +8,9 @@ import { isPleatError } from '../src/errors.js';
 import { audit, fold } from '../src/index.js';
 import type { AuditJobOptions, AuditReport, FoldJobOptions, FoldReport } from '../src/jobs/types.js';
 import { EXIT } from '../src/report/exit-codes.js';
+import { readModelFile } from '../src/onnx/read.js';
+import { checkNames, modelNames, type ModelNames } from '../src/jobs/names.js';
+import { asMap } from '../src/verify/inputs.js';
 import type { Outcome } from '../src/report/render.js';
 import type { Progress } from './progress.js';
 
@@ -16,6 +19,22 @@ export type Job =
   | { command: 'audit'; model: string; opts: AuditJobOptions };
 
 export type JobOutcome = Outcome<FoldReport | AuditReport>;
+
+/**
+ * Names given to a batch (--keep, --dim, --shape, or the config file) must each match in at least one of its
+ * models; checked before any job runs, which then skip their own one-model check. A model that cannot be read
+ * is left out here: its job reports why.
+ */
+export function checkBatchNames(jobs: readonly Job[]): Job[] {
+  const opts = jobs[0]!.opts as FoldJobOptions;
+  if (!(opts.keep ?? []).length && !asMap(opts.dims).size && !asMap(opts.shapes).size) return [...jobs];
+  const models: ModelNames[] = [];
+  for (const j of jobs) {
+    try { models.push(modelNames(readModelFile(j.model), j.model, (opts.keep ?? []).length > 0)); } catch (e) { if (!isPleatError(e)) throw e; }
+  }
+  if (models.length) checkNames(models, { keep: opts.keep, dims: asMap(opts.dims).keys(), shapes: asMap(opts.shapes).keys(), origins: opts.origins });
+  return jobs.map((j) => ({ ...j, opts: { ...j.opts, namesChecked: true } }) as Job);
+}
 
 /** Run one job here and now; errors are thrown (a single model's error ends the command as usual). */
 export function runJob(job: Job): JobOutcome {

@@ -1,5 +1,5 @@
 import type { Argv } from 'yargs';
-import { keepList, loadConfig } from '../config.js';
+import { keepList, loadConfig, nameOrigins } from '../config.js';
 import type { Job } from '../batch.js';
 import { planReports, runAndReport } from '../output.js';
 import { configFlags, EPILOGUE, many, reportFlags } from '../flags.js';
@@ -19,8 +19,8 @@ interface Flags { models: string[]; failOn?: 'kept'; keep?: string[]; allowOverr
 
 export async function handler(argv: Flags): Promise<void> {
   const plan = planReports(argv);
-  const { config } = loadConfig(argv.config);
-  const opts = { keep: keepList(config, argv.keep), failOn: argv.failOn ?? config.failOn, allowOverridable: argv.allowOverridable };
+  const { config, file } = loadConfig(argv.config);
+  const opts = { keep: keepList(config, argv.keep), failOn: argv.failOn ?? config.failOn, allowOverridable: argv.allowOverridable, origins: nameOrigins(config, file, argv) };
   const jobs: Job[] = argv.models.map((model) => ({ command: 'audit', model, opts }));
   await runAndReport('audit', jobs, plan, argv.quiet);
 }

@@ -1,7 +1,7 @@
 import type { Argv } from 'yargs';
 import { SCHEMA_VERSION } from '../../src/jobs/types.js';
 import { useColour } from '../../src/report/format.js';
-import { keepList, loadConfig, runSettings } from '../config.js';
+import { keepList, loadConfig, nameOrigins, runSettings } from '../config.js';
 import { out } from '../errors.js';
 import { configFlags, EPILOGUE, inputFlags, many } from '../flags.js';
 
@@ -24,7 +24,7 @@ interface Flags {
 }
 
 export async function handler(argv: Flags): Promise<void> {
-  const { config } = loadConfig(argv.config);
+  const { config, file } = loadConfig(argv.config);
   const run = runSettings(config, argv);
   // loaded here, not at start-up (see compare.ts)
   const { exportFile } = await import('../../src/index.js');
@@ -33,6 +33,7 @@ export async function handler(argv: Flags): Promise<void> {
   const { EXIT } = await import('../../src/report/exit-codes.js');
   const r = exportFile(argv.model, argv.bundle, argv.bundleFormat, {
     inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, probes: run.probes, gate: run.gate, keep: keepList(config, argv.keep),
+    origins: nameOrigins(config, file, argv),
   });
   await out(argv.json
     ? toJsonText({ schemaVersion: SCHEMA_VERSION, command: 'export', model: argv.model, ...r })

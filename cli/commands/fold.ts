@@ -3,7 +3,7 @@ import { mkdirSync } from 'node:fs';
 import { basename, join } from 'node:path';
 import { PleatError } from '../../src/errors.js';
 import type { FoldJobOptions } from '../../src/jobs/types.js';
-import { keepList, loadConfig, runSettings } from '../config.js';
+import { keepList, loadConfig, nameOrigins, runSettings } from '../config.js';
 import type { Job } from '../batch.js';
 import { planReports, runAndReport } from '../output.js';
 import { configFlags, EPILOGUE, inputFlags, many, reportFlags } from '../flags.js';
@@ -51,13 +51,13 @@ function outputsFor(models: string[], out: string | undefined, outDir: string | 
 
 export async function handler(argv: Flags): Promise<void> {
   const plan = planReports(argv);
-  const { config } = loadConfig(argv.config);
+  const { config, file } = loadConfig(argv.config);
   const run = runSettings(config, argv);
   const outputs = outputsFor(argv.models, argv.out, argv.outDir);
   const opts: FoldJobOptions = {
     inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, probes: run.probes, gate: run.gate,
     keep: keepList(config, argv.keep), store: argv.store ?? config.store, allowOverridable: argv.allowOverridable,
-    externalThreshold: argv.externalDataMin, noProofs: argv.unproven,
+    externalThreshold: argv.externalDataMin, noProofs: argv.unproven, origins: nameOrigins(config, file, argv),
   };
   const jobs: Job[] = argv.models.map((model, i) => ({ command: 'fold', model, output: outputs[i]!, opts }));
   await runAndReport('fold', jobs, plan, argv.quiet);

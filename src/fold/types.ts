@@ -45,6 +45,8 @@ export interface ProofCase {
 export interface FoldOptions {
   /** Node names to leave in place (--keep NODE). */
   keep?: string[];
+  /** Where each keep name came from when not from --keep (e.g. a config file), for the kept-by-user hint. */
+  keepOrigins?: Record<string, string>;
   /** Fold weights and parameters that are also graph inputs (callers may replace them at run time). */
   allowOverridable?: boolean;
   /** Numeric proof of each fold; returning false reverts that fold and keeps the norm with reason proof-failed. */

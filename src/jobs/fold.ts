@@ -12,6 +12,7 @@ import { DEFAULT_GATES } from '../verify/gate.js';
 import { asMap, dimSymbols } from '../verify/inputs.js';
 import { PleatError } from '../errors.js';
 import { quantReadiness } from '../fold/quant.js';
+import { checkJobNames } from './names.js';
 import { SCHEMA_VERSION, type CheckSummary, type FoldJobOptions, type FoldReport, type StorageSummary } from './types.js';
 
 /** Compare the original and the folded model on seeded probes; skipped (not failed) when shapes are unknown. */
@@ -57,8 +58,10 @@ export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOpt
  * callers that can read the model again (see FoldOptions.lateRangeCheck).
  */
 export function foldLoaded(model: Model, original: Model | undefined, label: string, opts: FoldJobOptions, lateRangeCheck = false): FoldReport {
+  checkJobNames(model, label, opts);
   const { ledger } = foldModel(model, {
     keep: opts.keep,
+    keepOrigins: opts.origins?.keep,
     allowOverridable: opts.allowOverridable,
     lateRangeCheck,
     prove: opts.noProofs ? undefined : (c) => proveFold(c, { seed: opts.seed }).passed,

@@ -3,6 +3,7 @@
 import type { Finding, LedgerEntry } from '../fold/types.js';
 import type { InputOptions } from '../verify/inputs.js';
 import type { QuantRow } from '../fold/quant.js';
+import type { NameOrigins } from './names.js';
 
 export type { QuantRow };
 
@@ -71,7 +72,15 @@ export interface AuditReport {
   failed: boolean;
 }
 
-export interface FoldJobOptions extends InputOptions {
+/** How the names the user gave are checked against the model (see jobs/names.ts). */
+export interface NameCheckOptions {
+  /** Where --keep, --dim and --shape names came from (flags unless listed), for messages and hints. */
+  origins?: NameOrigins;
+  /** The caller checked the names across a whole batch already (a name must match in at least one model). */
+  namesChecked?: boolean;
+}
+
+export interface FoldJobOptions extends InputOptions, NameCheckOptions {
   keep?: string[];
   allowOverridable?: boolean;
   /** Store folded weights in half precision. */
@@ -85,8 +94,10 @@ export interface FoldJobOptions extends InputOptions {
   externalThreshold?: number;
 }
 
-export interface AuditJobOptions {
+export interface AuditJobOptions extends NameCheckOptions {
   keep?: string[];
+  dims?: InputOptions['dims'];
+  shapes?: InputOptions['shapes'];
   allowOverridable?: boolean;
   failOn?: 'kept';
 }

@@ -273,7 +273,7 @@ export function makeProbe(specs: readonly InputSpec[], seed: number, probe: numb
 
 // ---- options shared by evaluate and compare -----------------------------------------------------------
 
-type MapOrRecord<V> = ReadonlyMap<string, V> | Readonly<Record<string, V>>;
+export type MapOrRecord<V> = ReadonlyMap<string, V> | Readonly<Record<string, V>>;
 
 /** How a run gets its inputs. Maps or plain objects are both accepted. */
 export interface InputOptions {

@@ -119,3 +119,40 @@ describe('start-up loads only what the command line needs', () => {
     expect(cmds.sort()).toEqual(['cli/commands/fold.js', 'cli/commands/table.js']);
   });
 });
+
+describe('names that match nothing are errors (item 9)', () => {
+  const E = join(ROOT, 'models', 'tray-edge.onnx');
+  it('--keep of a node that does not exist names the value', () => {
+    usage(['fold', M, '-o', OUT, '--keep', 'nosuch.bn'], /--keep nosuch\.bn: no normalization of that name in .*tray-sorter\.onnx/);
+    usage(['audit', M, '--keep', 'nosuch.bn'], /--keep nosuch\.bn: no normalization/);
+    usage(['export', M, '--bundle', join(ROOT, 'never-written'), '--keep', 'nosuch.bn'], /--keep nosuch\.bn: no normalization/);
+  });
+  it('--keep of a node that is no normalization says what it is', () => {
+    usage(['fold', M, '-o', OUT, '--keep', 'stem.conv'], /--keep stem\.conv: node 'stem\.conv' in .* is a Conv, not a normalization/);
+  });
+  it('--dim and --shape of names the model lacks', () => {
+    usage(['fold', M, '-o', OUT, '--dim', 'nosuch=1'], /--dim nosuch: no input of .*tray-sorter\.onnx has a dynamic dim named 'nosuch' \(dims: batch\)/);
+    usage(['fold', M, '-o', OUT, '--shape', 'nosuch=1x2'], /--shape nosuch: .* has no input named 'nosuch' \(inputs: image\)/);
+  });
+  it('a batch: a name must match in at least one of its models', () => {
+    expect(pleat(['audit', M, E, '--keep', 'stem.bn']).code).toBe(0);
+    usage(['audit', M, E, '--keep', 'nosuch.bn'], /--keep nosuch\.bn: no normalization of that name in any of the 2 models/);
+    usage(['fold', M, E, '--out-dir', join(ROOT, 'never-written'), '--dim', 'nosuch=1'], /--dim nosuch: no input of any of the 2 models/);
+  });
+  it('a keep from the config file is reported as coming from the config file', async () => {
+    const { mkdtempSync, writeFileSync } = await import('node:fs');
+    const { tmpdir } = await import('node:os');
+    const d = mkdtempSync(join(tmpdir(), 'pleat-names-'));
+    writeFileSync(join(d, 'pleat.config.json'), JSON.stringify({ keep: ['nosuch.bn'] }));
+    const r = pleat(['audit', M], { cwd: d });
+    expect(r.code).toBe(2);
+    expect(r.stderr).toMatch(/'nosuch\.bn' under "keep" in pleat\.config\.json: no normalization/);
+    expect(r.stderr).not.toMatch(/--keep/);
+    writeFileSync(join(d, 'team.json'), JSON.stringify({ keep: ['stem.bn'] }));
+    const ok = pleat(['audit', M, '--config', join(d, 'team.json'), '--json'], { cwd: d });
+    expect(ok.code).toBe(0);
+    const stem = JSON.parse(ok.stdout).normalizations.find((n: { node: string }) => n.node === 'stem.bn');
+    expect(stem.hint).toMatch(/listed under "keep" in .*team\.json/);
+    expect(stem.hint).not.toMatch(/--keep/);
+  });
+});
