@@ -22,7 +22,7 @@ export const NUMBER_RULES: Record<string, { min: number; what: string }> = {
 export function inputFlags<T>(y: Argv<T>) {
   return y
     .option('input', { type: 'string', coerce: many, describe: 'NAME=FILE.npy (or .pb TensorProto): a value for an input; repeatable' })
-    .option('shape', { type: 'string', coerce: many, describe: 'NAME=1x3x224x224: the shape of an input; repeatable' })
+    .option('shape', { type: 'string', coerce: many, describe: 'NAME=1x3x224x224 (or 1,3,224,224): the shape of an input; repeatable' })
     .option('dim', { type: 'string', coerce: many, describe: 'SYMBOL=N: the size of a dynamic dim; repeatable' })
     .option('seed', { type: 'number', describe: 'seed of the generated probe values (default 0)' });
 }

@@ -22,10 +22,11 @@ export async function handler(argv: Flags): Promise<void> {
   const run = runSettings(config, argv);
   // loaded here, not at start-up (see compare.ts)
   const { evaluate, saveOutputs } = await import('../../src/index.js');
+  const { dataTypeName } = await import('../../src/graph/tensor.js');
   const { toJsonText } = await import('../../src/verify/compare.js');
   const r = evaluate(argv.model, { inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, precision: argv.precision });
   const saved = saveOutputs(argv.save, r.outputs);
-  const outputs = saved.files.map((f) => ({ ...f, dtype: r.outputs.get(f.name)!.type, dims: [...r.outputs.get(f.name)!.dims] }));
+  const outputs = saved.files.map((f) => ({ ...f, dtype: dataTypeName(r.outputs.get(f.name)!.type), dims: [...r.outputs.get(f.name)!.dims] }));
   if (argv.json) {
     await out(toJsonText({ schemaVersion: SCHEMA_VERSION, command: 'evaluate', model: argv.model, precision: r.precision, seed: r.seed, inputs: r.inputSummary, dir: argv.save, outputs }));
     return;

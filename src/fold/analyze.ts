@@ -105,7 +105,7 @@ export function assessRun(ctx: FoldContext, run: Run): Outcome {
 }
 
 /** What a foldable run's fold does, in one line. */
-export function foldHint(m: RuleMatch): string {
+export function foldEffect(m: RuleMatch): string {
   const others = m.run.steps.length - 1;
   const withOthers = others ? ` together with ${others} neighbouring step${others > 1 ? 's' : ''}` : '';
   const bias = m.adds ? '; the shift becomes a bias Add' : (m.data as { form?: string }).form === 'gemm' ? '; the MatMul becomes a Gemm carrying the shift' : '';
@@ -117,10 +117,10 @@ export type Summary = Omit<Finding, 'node' | 'op' | 'graph'>;
 /** A finding's verdict without the match (which holds decoded weights and must not be kept around). */
 export function summarize(o: Outcome): Summary {
   if (o.kind === 'match') {
-    return { status: 'foldable', direction: o.match.rule.direction, target: o.match.layer.label, reason: null, hint: foldHint(o.match) };
+    return { status: 'foldable', direction: o.match.rule.direction, target: o.match.layer.label, reason: null, hint: null, effect: foldEffect(o.match) };
   }
   const k = o as Extract<Outcome, { kind: 'kept' }>;
-  return { status: 'kept', direction: k.direction, target: k.target, reason: k.reason, hint: k.hint };
+  return { status: 'kept', direction: k.direction, target: k.target, reason: k.reason, hint: k.hint, effect: null };
 }
 
 /** Every normalization of one graph with its verdict, in node order. */
@@ -129,7 +129,7 @@ export function* assessScope(ctx: FoldContext, scope: Scope, cache: StepCache): 
   for (const n of scope.graph.nodes) {
     const rt = runtimeNorm(scope, n);
     if (rt) {
-      yield { node: n, op: rt.op, summary: { status: 'kept', reason: 'runtime-statistics', hint: rt.hint, direction: null, target: null } };
+      yield { node: n, op: rt.op, summary: { status: 'kept', reason: 'runtime-statistics', hint: rt.hint, effect: null, direction: null, target: null } };
       continue;
     }
     const s = stepOf(ctx, scope, cache, n);
@@ -139,7 +139,7 @@ export function* assessScope(ctx: FoldContext, scope: Scope, cache: StepCache): 
       const beside = n.inputs.some((i) => { const p = i ? scope.ud.producer(i) : undefined; return p !== undefined && isLinear(p); })
         || scope.ud.consumers(n.outputs[0] ?? '').some(isLinear);
       if (isBatchNorm(n) || beside || s.reason === 'kept-by-user' || s.reason === 'proof-failed') {
-        yield { node: n, op: n.opType, summary: { status: 'kept', reason: s.reason, hint: s.hint, direction: null, target: null } };
+        yield { node: n, op: n.opType, summary: { status: 'kept', reason: s.reason, hint: s.hint, effect: null, direction: null, target: null } };
       }
       continue;
     }

@@ -8,7 +8,7 @@ import { validateModel } from '../graph/validate.js';
 import { makeContext, type FoldContext } from './context.js';
 import { cleanUp } from './cleanup.js';
 import { applyEdit, flushPending, newEdit, regionAfter, regionBefore } from './apply.js';
-import { assessRun, findingsOf, foldHint } from './analyze.js';
+import { assessRun, findingsOf, foldEffect } from './analyze.js';
 import { collectRun, isStep, stepOf } from './run.js';
 import { buildScopes, eachGraph, labelOf } from './scope.js';
 import type { FoldLedger, FoldOptions, LedgerEntry } from './types.js';
@@ -67,9 +67,9 @@ function sweep(ctx: FoldContext, model: Model, folded: LedgerEntry[], released: 
         for (const x of run.steps) ctx.proofFailed.add(x.node);
         continue;
       }
-      const hint = foldHint(m);
+      const effect = foldEffect(m);
       for (const x of run.steps) {
-        folded.push({ node: ctx.labels.get(x.node) ?? x.node.name, op: x.node.opType, status: 'folded', direction: m.rule.direction, target: m.layer.label, reason: null, hint, graph: scope.path });
+        folded.push({ node: ctx.labels.get(x.node) ?? x.node.name, op: x.node.opType, status: 'folded', direction: m.rule.direction, target: m.layer.label, reason: null, hint: null, effect, graph: scope.path });
       }
       for (const r of edit.released) released.add(r);
       for (const v of edit.goneValues) gone.add(v);

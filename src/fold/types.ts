@@ -72,8 +72,10 @@ export interface Finding {
   direction: Direction | null;
   target: string | null;
   reason: ReasonCode | null;
-  /** One line: for a kept norm, what would make it foldable; for a foldable one, what the fold does. */
-  hint: string;
+  /** For a kept norm, one line on what would make it foldable (null for a foldable one). */
+  hint: string | null;
+  /** For a foldable norm, what the fold does to its layer (null for a kept one). */
+  effect: string | null;
   graph: string;
 }
 
@@ -85,7 +87,10 @@ export interface LedgerEntry {
   direction: Direction | null;
   target: string | null;
   reason: ReasonCode | null;
-  hint: string;
+  /** For a kept norm, one line on what would make it foldable (null for a folded one). */
+  hint: string | null;
+  /** For a folded norm, what the fold did to its layer (null for a kept one). */
+  effect: string | null;
   graph: string;
 }
 

@@ -7,7 +7,7 @@ import type { NameOrigins } from './names.js';
 
 export type { QuantRow };
 
-export const SCHEMA_VERSION = 1;
+export const SCHEMA_VERSION = 2;
 
 export interface OutputCheck {
   name: string;

@@ -306,7 +306,7 @@ export function parseTensor(bytes: Uint8Array): Tensor {
  * Parse model bytes, load external data relative to baseDir, and check the graph's structure. Tensors are views
  * into `bytes` (no copies), so an edit made in place writes into them: pass a copy to keep the original.
  */
-export function parseModel(bytes: Uint8Array, baseDir: string, label = 'model'): Model {
+export function parseModel(bytes: Uint8Array, baseDir: string, label = 'model', opts: ReadOptions = {}): Model {
   if (bytes.byteLength === 0) throw new PleatError('bad-model', `${label}: the file is empty`);
   let model: Model;
   try {
@@ -319,9 +319,9 @@ export function parseModel(bytes: Uint8Array, baseDir: string, label = 'model'):
   if (model.irVersion <= 0 || model.opsets.length === 0 && model.irVersion >= 3) {
     throw new PleatError('bad-model', `${label}: not an ONNX model (no IR version or opset import)`);
   }
-  loadExternalData(model, label);
+  if (opts.externalData !== 'leave') loadExternalData(model, label);
   try {
-    validateModel(model);
+    validateModel(model, { externalLoaded: opts.externalData !== 'leave' });
   } catch (e) {
     if (e instanceof PleatError) throw new PleatError(e.kind, `${label}: ${e.message}`);
     throw e;
@@ -330,7 +330,10 @@ export function parseModel(bytes: Uint8Array, baseDir: string, label = 'model'):
 }
 
 /** Read a .onnx file. The file is read once and never written. */
-export function readModelFile(path: string): Model {
+/** `externalData: 'leave'` reads the structure only: external tensors keep no bytes (survey of a model whose side file is missing). */
+export interface ReadOptions { externalData?: 'load' | 'leave' }
+
+export function readModelFile(path: string, opts: ReadOptions = {}): Model {
   let st;
   try {
     st = statSync(path);
@@ -349,7 +352,7 @@ export function readModelFile(path: string): Model {
   } finally {
     if (fd !== undefined) closeSync(fd);
   }
-  const model = parseModel(bytes, dirname(resolve(path)), path);
+  const model = parseModel(bytes, dirname(resolve(path)), path, opts);
   model.sourcePath = resolve(path);
   return model;
 }

@@ -10,7 +10,7 @@ import { SPREAD_LIMIT } from '../fold/quant.js';
 const where = (graph: string) => (graph === 'main' ? '' : `  in ${graph}`);
 
 /** One ledger line per entry, columns padded to the widest node and op of this report. */
-export function ledgerLines(entries: ReadonlyArray<Pick<LedgerEntry, 'node' | 'op' | 'direction' | 'target' | 'reason' | 'hint' | 'graph'> & { status: string }>, p: Paint): string[] {
+export function ledgerLines(entries: ReadonlyArray<Pick<LedgerEntry, 'node' | 'op' | 'direction' | 'target' | 'reason' | 'hint' | 'effect' | 'graph'> & { status: string }>, p: Paint): string[] {
   const nodeW = Math.max(0, ...entries.map((e) => e.node.length));
   const opW = Math.max(0, ...entries.map((e) => e.op.length));
   return entries.map((e) => {
@@ -19,7 +19,7 @@ export function ledgerLines(entries: ReadonlyArray<Pick<LedgerEntry, 'node' | 'o
       return `  ${p.warn('kept     ')}${head}  ${p.warn(e.reason ?? 'kept')}: ${e.hint}${where(e.graph)}`;
     }
     const mark = e.status === 'folded' ? p.good('folded   ') : p.good('foldable ');
-    return `  ${mark}${head}  into ${e.target ?? '?'} (${e.direction ?? '?'}): ${e.hint}${where(e.graph)}`;
+    return `  ${mark}${head}  into ${e.target ?? '?'} (${e.direction ?? '?'}): ${e.effect}${where(e.graph)}`;
   });
 }
 

@@ -11,7 +11,7 @@ export function cell(s: string): string {
 }
 const code = (s: string) => `\`${s.replace(/`/g, "'")}\``;
 
-interface Row { node: string; op: string; status: string; direction: string | null; target: string | null; reason: string | null; hint: string; graph: string }
+interface Row { node: string; op: string; status: string; direction: string | null; target: string | null; reason: string | null; hint: string | null; graph: string }
 
 function table(rows: readonly Row[]): string[] {
   if (rows.length === 0) return ['No normalizations found.'];

@@ -115,7 +115,7 @@ describe('ledger, determinism and byte identity', () => {
     g.node('Relu', [b], {}, { name: 'relu', outputs: ['y'] });
     const m = parseModel(foldBytes(modelBytes(g)).bytes, dir);
     expect(m.graph.valueInfo.map((v) => v.name)).toEqual([b]);
-    expect(m.graph.initializers.map((t) => t.name)).toEqual(['w', 'w.bias']);
+    expect(m.graph.initializers.map((t) => t.name)).toEqual(['w', 'conv.bias']);
   });
 });
 
