@@ -1,5 +1,5 @@
 import type { Argv } from 'yargs';
-import { join } from 'node:path';
+import { sep } from 'node:path';
 import { SCHEMA_VERSION } from '../../src/jobs/types.js';
 import { loadConfig, runSettings } from '../config.js';
 import { out } from '../errors.js';
@@ -33,7 +33,9 @@ export async function handler(argv: Flags): Promise<void> {
   }
   const lines = [`evaluate ${argv.model} (${r.precision}, seed ${r.seed}) -> ${argv.save}`];
   for (const i of r.inputSummary) lines.push(`  input  ${i.name} [${i.dims.join('x')}] ${i.source === 'file' ? `from ${i.file}` : 'seeded probe'}`);
-  for (const o of outputs) lines.push(`  output ${o.name} [${o.dims.join('x')}] -> ${join(argv.save, o.file)}`);
-  lines.push(`  index  ${join(argv.save, 'outputs.json')}`);
+  // paths as given: the folder the user typed, then the file name
+  const under = (name: string) => (argv.save.endsWith('/') || argv.save.endsWith(sep) ? `${argv.save}${name}` : `${argv.save}/${name}`);
+  for (const o of outputs) lines.push(`  output ${o.name} [${o.dims.join('x')}] -> ${under(o.file)}`);
+  lines.push(`  index  ${under('outputs.json')}`);
   await out(lines.join('\n') + '\n');
 }

@@ -1,6 +1,6 @@
 import type { Argv } from 'yargs';
 import { mkdirSync } from 'node:fs';
-import { basename, join } from 'node:path';
+import { basename, sep } from 'node:path';
 import { PleatError } from '../../src/errors.js';
 import type { FoldJobOptions } from '../../src/jobs/types.js';
 import { keepList, loadConfig, nameOrigins, runSettings } from '../config.js';
@@ -46,7 +46,8 @@ function outputsFor(models: string[], out: string | undefined, outDir: string | 
   } catch (e) {
     throw new PleatError('bad-input', `--out-dir ${outDir}: cannot create the folder (${(e as NodeJS.ErrnoException).code ?? String(e)})`);
   }
-  return names.map((n) => join(outDir, n));
+  // paths as given: the folder the user typed, then the file name (join would rewrite ./out/ as out)
+  return names.map((n) => (outDir.endsWith('/') || outDir.endsWith(sep) ? `${outDir}${n}` : `${outDir}/${n}`));
 }
 
 export async function handler(argv: Flags): Promise<void> {

@@ -3,9 +3,11 @@ import type { Model } from '../graph/ir.js';
 import { readModelFile } from '../onnx/read.js';
 import { analyze } from '../fold/index.js';
 import { checkJobNames } from './names.js';
+import { checkOpset } from '../graph/opsets.js';
 import { SCHEMA_VERSION, type AuditJobOptions, type AuditReport } from './types.js';
 
 export function auditLoaded(model: Model, label: string, opts: AuditJobOptions = {}): AuditReport {
+  checkOpset(model, label);
   checkJobNames(model, label, opts);
   const findings = analyze(model, { keep: opts.keep, keepOrigins: opts.origins?.keep, allowOverridable: opts.allowOverridable });
   const kept = findings.filter((f) => f.status === 'kept').length;

@@ -13,6 +13,7 @@ import { asMap, dimSymbols } from '../verify/inputs.js';
 import { PleatError } from '../errors.js';
 import { quantReadiness } from '../fold/quant.js';
 import { checkJobNames } from './names.js';
+import { checkOpset } from '../graph/opsets.js';
 import { SCHEMA_VERSION, type CheckSummary, type FoldJobOptions, type FoldReport, type StorageSummary } from './types.js';
 
 /** Compare the original and the folded model on seeded probes; skipped (not failed) when shapes are unknown. */
@@ -58,6 +59,7 @@ export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOpt
  * callers that can read the model again (see FoldOptions.lateRangeCheck).
  */
 export function foldLoaded(model: Model, original: Model | undefined, label: string, opts: FoldJobOptions, lateRangeCheck = false): FoldReport {
+  checkOpset(model, label);
   checkJobNames(model, label, opts);
   const { ledger } = foldModel(model, {
     keep: opts.keep,

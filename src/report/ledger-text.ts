@@ -54,7 +54,7 @@ export function quantLines(rows: readonly QuantRow[], p: Paint): string[] {
 
 export function storageLines(s: StorageSummary | null): string[] {
   if (s === null) return [];
-  const lines = [`storage ${s.store}: ${plural(s.tensorsConverted, 'tensor')} converted, ${bytesText(s.bytesBefore)} -> ${bytesText(s.bytesAfter)} (${bytesText(Math.max(0, s.bytesBefore - s.bytesAfter))} saved)`];
+  const lines = [`storage ${s.store}: ${plural(s.tensorsConverted, 'tensor')} converted, ${bytesText(s.bytesBefore)} -> ${bytesText(s.bytesAfter)} (${s.bytesBefore >= s.bytesAfter ? `${bytesText(s.bytesBefore - s.bytesAfter)} saved` : `grew by ${bytesText(s.bytesAfter - s.bytesBefore)}`})`];
   if (s.keptFloat32.length) lines.push(`  kept float32 (would overflow float16): ${s.keptFloat32.join(', ')}`);
   return lines;
 }
@@ -69,8 +69,10 @@ export function foldText(r: FoldReport, colour = false, caution = true): string 
   lines.push(...ledgerLines(r.normalizations, p));
   const nodesRemoved = r.nodesBefore - r.nodesAfter;
   const bytesRemoved = r.bytesBefore - r.bytesAfter;
-  lines.push(`  ${folded} folded, ${kept} kept; ${plural(nodesRemoved, 'node')} removed (${r.nodesBefore} -> ${r.nodesAfter}); ` +
-    `${bytesText(Math.max(0, bytesRemoved))} of weights saved (${bytesText(r.bytesBefore)} -> ${bytesText(r.bytesAfter)})`);
+  // a fold can also grow a model (cloned shared weights, Cast nodes of half-precision storage): say which way
+  const nodes = nodesRemoved >= 0 ? `${plural(nodesRemoved, 'node')} removed` : `${plural(-nodesRemoved, 'node')} added`;
+  const weights = bytesRemoved >= 0 ? `${bytesText(bytesRemoved)} of weights saved` : `weights grew by ${bytesText(-bytesRemoved)}`;
+  lines.push(`  ${folded} folded, ${kept} kept; ${nodes} (${r.nodesBefore} -> ${r.nodesAfter}); ${weights} (${bytesText(r.bytesBefore)} -> ${bytesText(r.bytesAfter)})`);
   lines.push(...checkLines(r.check, p), ...quantLines(r.quantization, p), ...storageLines(r.storage));
   if (caution) lines.push(...CAUTION);
   return lines.join('\n') + '\n';

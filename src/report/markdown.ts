@@ -49,7 +49,7 @@ export function foldMarkdown(r: FoldReport): string {
 export function auditMarkdown(r: AuditReport): string {
   const verdict = r.failed ? 'failed (--fail-on kept)' : 'done';
   const out = [`### pleat audit ${code(r.model)}: ${verdict}`, '', `**${r.foldable} foldable, ${r.kept} kept.**`, ''];
-  out.push(...table(r.normalizations), ...caution());
+  out.push(...table(r.normalizations)); // no probe caution: audit runs no probes
   return out.join('\n') + '\n';
 }
 

@@ -4,7 +4,7 @@
 // renamed into place together, so a failure leaves no partial bundle.
 import { ensureLoaded } from '../onnx/sparse-read.js';
 import { closeSync, mkdirSync, openSync, renameSync, rmSync, statSync, writeSync } from 'node:fs';
-import { basename, join, resolve } from 'node:path';
+import { basename, join, resolve, sep } from 'node:path';
 import { DataType, elementCount, type Attribute, type DataTypeCode, type Graph, type Model, type Tensor, type ValueInfo } from '../graph/ir.js';
 import { PleatError } from '../errors.js';
 import { bfloatBitsToNumber, bytesPerElement, dataTypeName, halfBitsToNumber } from '../graph/tensor.js';
@@ -27,7 +27,7 @@ export interface SkippedTensor {
 export interface BundleResult {
   format: BundleFormat;
   dir: string;
-  /** Absolute paths of the files written, manifest last. */
+  /** Paths of the files written, under `dir` as the caller gave it, manifest last. */
   files: string[];
   tensors: number;
   /** Bytes of tensor data in the bundle. */
@@ -401,9 +401,11 @@ export function exportBundle(model: Model, dir: string, format: BundleFormat): B
   }
   const names = files.map(([n]) => n);
   files.push(['manifest.json', [manifest(model, format, names, collected, perTensor)]]);
-  const written = writeFilesAtomically(full, files, model.sourcePath);
+  writeFilesAtomically(full, files, model.sourcePath);
+  // paths as the caller gave them (a report names the folder the user typed, not where it resolved)
+  const under = (name: string) => (dir.endsWith('/') || dir.endsWith(sep) ? `${dir}${name}` : `${dir}/${name}`);
   return {
-    format, dir: full, files: written, tensors: collected.tensors.length,
+    format, dir, files: files.map(([name]) => under(name)), tensors: collected.tensors.length,
     bytes: collected.tensors.reduce((a, t) => a + t.bytes.byteLength, 0), skipped: collected.skipped,
   };
 }
