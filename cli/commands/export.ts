@@ -12,6 +12,7 @@ export function builder(y: Argv) {
     .option('bundle', { type: 'string', demandOption: true, describe: 'folder for the bundle files' })
     .option('bundle-format', { type: 'string', choices: ['safetensors', 'c'], default: 'safetensors', describe: 'weights.safetensors, or weights.h + weights.c; both with manifest.json' })
     .option('keep', { type: 'string', coerce: many, describe: 'leave this normalization node in place; repeatable' })
+    .option('store', { type: 'string', choices: ['float16'], describe: 'store the folded weights in half precision in the bundle (the whole-model check uses the float16 gate)' })
     .option('gate', { type: 'string', describe: 'gate for the whole-model check' })
     .option('probes', { type: 'number', describe: 'number of seeded probes for the whole-model check (default 2)' })
     .option('json', { type: 'boolean', default: false, describe: 'print the report as JSON' })))
@@ -19,7 +20,7 @@ export function builder(y: Argv) {
 }
 
 interface Flags {
-  model: string; bundle: string; bundleFormat: 'safetensors' | 'c'; keep?: string[]; gate?: string; probes?: number; seed?: number;
+  model: string; bundle: string; bundleFormat: 'safetensors' | 'c'; keep?: string[]; store?: 'float16'; gate?: string; probes?: number; seed?: number;
   input?: string[]; shape?: string[]; dim?: string[]; json: boolean; config?: string;
 }
 
@@ -32,7 +33,7 @@ export async function handler(argv: Flags): Promise<void> {
   const { exportText } = await import('../../src/report/export-text.js');
   const { EXIT } = await import('../../src/report/exit-codes.js');
   const r = exportFile(argv.model, argv.bundle, argv.bundleFormat, {
-    inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, probes: run.probes, gate: run.gate, keep: keepList(config, argv.keep),
+    inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, probes: run.probes, gate: run.gate, keep: keepList(config, argv.keep), store: argv.store ?? config.store,
     origins: nameOrigins(config, file, argv),
   });
   await out(argv.json

@@ -68,6 +68,8 @@ export function foldLoaded(model: Model, original: Model | undefined, label: str
     lateRangeCheck,
     prove: opts.noProofs ? undefined : (c) => proveFold(c, { seed: opts.seed }).passed,
   });
+  // quantization readiness reads the folded float32 weights, so it runs before half-precision storage
+  const quantization = original ? quantReadiness(original, model, ledger.normalizations) : [];
   let storage: StorageSummary | null = null;
   if (opts.store === 'float16') {
     const r = storeFloat16(model);
@@ -82,8 +84,10 @@ export function foldLoaded(model: Model, original: Model | undefined, label: str
     output: null,
     ...ledger,
     bytesAfter: ledger.bytesAfter - (storage ? storage.bytesBefore - storage.bytesAfter : 0),
+    // the Cast nodes half-precision storage adds are nodes of the written model
+    nodesAfter: ledger.nodesAfter + (storage?.castNodes ?? 0),
     check,
-    quantization: original ? quantReadiness(original, model, ledger.normalizations) : [],
+    quantization,
     storage,
     failed,
   };

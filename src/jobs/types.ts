@@ -38,6 +38,10 @@ export interface StorageSummary {
   tensorsConverted: number;
   /** Tensors that would overflow float16 and stayed float32. */
   keptFloat32: string[];
+  /** Other linear-layer weights that stayed float32, each with the reason. */
+  skipped: Array<{ tensor: string; reason: string }>;
+  /** Cast nodes added to read the half-precision weights back as float32 (counted in nodesAfter). */
+  castNodes: number;
   bytesBefore: number;
   bytesAfter: number;
 }

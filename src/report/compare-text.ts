@@ -7,6 +7,10 @@ import { paint } from './paint.js';
 export function compareText(r: CompareReport, a: string, b: string, colour = false): string {
   const p = paint(colour);
   const lines = [p.bold(`compare ${a} with ${b}: `) + (r.passed ? p.good('passed') : p.bad('FAILED')) + ` (${plural(r.probes, 'probe')}, seed ${r.seed})`];
+  const half = [['A', r.halfPrecisionWeights.a], ['B', r.halfPrecisionWeights.b]].filter(([, n]) => (n as number) > 0);
+  for (const [side, n] of half) {
+    lines.push(`  model ${side} stores ${plural(n as number, 'weight')} in half precision (cast to float32 where read): float32 outputs are judged by the float16 gate`);
+  }
   for (const i of r.inputs) lines.push(`  input ${i.name}  ${i.dtype} [${i.dims.join('x')}]  ${i.source === 'file' ? `from ${i.file}` : i.source === 'probe' ? 'seeded probe' : 'given value'}`);
   const w = Math.max(0, ...r.outputs.map((o) => o.name.length));
   for (const o of r.outputs) {

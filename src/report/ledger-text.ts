@@ -54,8 +54,9 @@ export function quantLines(rows: readonly QuantRow[], p: Paint): string[] {
 
 export function storageLines(s: StorageSummary | null): string[] {
   if (s === null) return [];
-  const lines = [`storage ${s.store}: ${plural(s.tensorsConverted, 'tensor')} converted, ${bytesText(s.bytesBefore)} -> ${bytesText(s.bytesAfter)} (${s.bytesBefore >= s.bytesAfter ? `${bytesText(s.bytesBefore - s.bytesAfter)} saved` : `grew by ${bytesText(s.bytesAfter - s.bytesBefore)}`})`];
+  const lines = [`storage ${s.store}: ${plural(s.tensorsConverted, 'tensor')} converted (${plural(s.castNodes, 'Cast node')} added), ${bytesText(s.bytesBefore)} -> ${bytesText(s.bytesAfter)} (${s.bytesBefore >= s.bytesAfter ? `${bytesText(s.bytesBefore - s.bytesAfter)} saved` : `grew by ${bytesText(s.bytesAfter - s.bytesBefore)}`})`];
   if (s.keptFloat32.length) lines.push(`  kept float32 (would overflow float16): ${s.keptFloat32.join(', ')}`);
+  for (const k of s.skipped) lines.push(`  kept float32: ${k.tensor} (${k.reason})`);
   return lines;
 }
 

@@ -55,7 +55,7 @@ export function auditMarkdown(r: AuditReport): string {
 
 export function compareMarkdown(r: CompareReport, a: string, b: string): string {
   const out = [`### pleat compare ${code(a)} with ${code(b)}: ${r.passed ? 'passed' : 'failed'}`, '',
-    `${r.probes} probe(s), seed ${r.seed}.`, '', '| output | result | maxAbs | maxRel | cosine |', '|---|---|---|---|---|'];
+    `${r.probes} probe(s), seed ${r.seed}.${r.halfPrecisionWeights.a + r.halfPrecisionWeights.b > 0 ? ' Weights stored in half precision: float32 outputs judged by the float16 gate.' : ''}`, '', '| output | result | maxAbs | maxRel | cosine |', '|---|---|---|---|---|'];
   for (const o of r.outputs) {
     const m = o.metrics;
     out.push(`| ${cell(code(o.name))} | ${o.passed ? 'pass' : cell(`**fail**: ${o.problem ?? o.status}`)} | ${m ? numText(m.maxAbs) : ''} | ${m ? numText(m.maxRel) : ''} | ${m ? cosineText(m.cosine) : ''} |`);

@@ -3,14 +3,15 @@
 // budget adds A and B in float32 against the same reference, so a report can tell error the rewrite added
 // from rounding the model already had. Agreement on probe inputs is evidence, not proof, of agreement on real
 // data.
-import type { DataTypeCode, Model } from '../graph/ir.js';
+import type { DataTypeCode, Graph, Model } from '../graph/ir.js';
+import { attrInt, DataType, subgraphsOf } from '../graph/ir.js';
 import { basename } from 'node:path';
 import type { Precision, Value } from '../eval/value.js';
 import { runModel } from '../eval/run.js';
 import { PleatError } from '../errors.js';
 import { dataTypeName } from '../graph/tensor.js';
 import { computeMetrics, worstOf, type Metrics } from './metrics.js';
-import { BUDGET_NAMES, defaultGateFor, defaultGateKey, METRIC_NAMES, parseGate, type Gate, type GateScope } from './gate.js';
+import { BUDGET_NAMES, DEFAULT_GATES, defaultGateFor, defaultGateKey, METRIC_NAMES, parseGate, type Gate, type GateScope } from './gate.js';
 import {
   asMap, checkDimFlags, makeProbe, resolveInputs, summarizeInputs, type InputOptions, type InputSummary, type InputValue,
 } from './inputs.js';
@@ -68,6 +69,11 @@ export interface OutputComparison {
 
 export interface CompareReport {
   passed: boolean;
+  /**
+   * Weights each model stores in half precision and casts to float32 where read (as fold --store float16
+   * writes them): then float32 outputs are judged by the float16 gate, since the weights carry float16 rounding.
+   */
+  halfPrecisionWeights: { a: number; b: number };
   seed: number;
   /** Input sets actually run. */
   probes: number;
@@ -82,6 +88,24 @@ const LOOSENESS = ['exact', 'float64', 'float32', 'float16', 'bfloat16'] as cons
 function defaultGate(a: DataTypeCode, b: DataTypeCode | undefined): string {
   if (b === undefined) return defaultGateFor(a);
   return LOOSENESS.indexOf(defaultGateKey(b)) > LOOSENESS.indexOf(defaultGateKey(a)) ? defaultGateFor(b) : defaultGateFor(a);
+}
+
+/** Initializers stored as float16 or bfloat16 that a Cast to float32 reads (in any graph of the model). */
+export function halfStoredWeights(model: Model): string[] {
+  const found: string[] = [];
+  const walk = (g: Graph, outer: ReadonlyMap<string, DataTypeCode>) => {
+    const types = new Map(outer);
+    for (const t of g.initializers) types.set(t.name, t.dataType);
+    for (const n of g.nodes) {
+      if (n.opType === 'Cast' && (n.domain === '' || n.domain === 'ai.onnx') && attrInt(n, 'to', 0) === DataType.FLOAT) {
+        const t = types.get(n.inputs[0] ?? '');
+        if (t === DataType.FLOAT16 || t === DataType.BFLOAT16) found.push(n.inputs[0]!);
+      }
+      for (const sg of subgraphsOf(n)) walk(sg, types);
+    }
+  };
+  walk(model.graph, new Map());
+  return [...new Set(found)];
 }
 
 const sameDims = (x: readonly number[], y: readonly number[]) => x.length === y.length && x.every((d, i) => d === y[i]);
@@ -172,6 +196,7 @@ export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareR
     }
   }
 
+  const half = { a: halfStoredWeights(a).length, b: halfStoredWeights(b).length };
   const outputs: OutputComparison[] = [];
   for (const o of aOut) {
     const s = acc.get(o.name);
@@ -199,7 +224,9 @@ export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareR
       out.budget = b;
       Object.assign(scope, { ownAbs: own.maxAbs, ownRel: own.maxRel, deployAbs: deploy.maxAbs, deployRel: deploy.maxRel, addedAbs: b.addedAbs, addedRel: b.addedRel });
     }
-    const gate: Gate = userGate ?? parseGate(defaultGate(s.typeA!, s.typeB), available);
+    // float32 outputs of a model whose weights are stored in half precision carry float16 rounding
+    const halfGate = (half.a > 0 || half.b > 0) && [s.typeA, s.typeB].every((t) => t === DataType.FLOAT);
+    const gate: Gate = userGate ?? parseGate(halfGate ? DEFAULT_GATES.float16 : defaultGate(s.typeA!, s.typeB), available);
     const passed = gate.test(scope);
     out.gate = { expr: gate.expr, source: userGate ? 'user' : 'default', passed };
     out.passed = passed;
@@ -210,7 +237,7 @@ export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareR
     outputs.push({ name, status: 'only-in-b', dtype: dataTypeName(v.type), dims: [...v.dims], passed: false,
       problem: `model A has no output '${name}'` });
   }
-  return { passed: outputs.every((o) => o.passed), seed, probes, budget, inputs: summarizeInputs(specs), outputs };
+  return { passed: outputs.every((o) => o.passed), halfPrecisionWeights: half, seed, probes, budget, inputs: summarizeInputs(specs), outputs };
 }
 
 /**

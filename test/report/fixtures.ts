@@ -37,7 +37,7 @@ export function auditReport(over: Partial<AuditReport> = {}): AuditReport {
 export function compareReport(): CompareReport {
   const m = { maxAbs: 2e-7, maxRel: 1e-6, rms: 5e-8, cosine: 1, nanMismatches: 0, peak: 3.2, count: 10 };
   return {
-    passed: false, seed: 0, probes: 3, budget: true,
+    passed: false, halfPrecisionWeights: { a: 0, b: 0 }, seed: 0, probes: 3, budget: true,
     inputs: [{ name: 'image', dtype: 'float32', dims: [1, 3, 8, 8], source: 'probe' }],
     outputs: [
       { name: 'tray_class', status: 'compared', dtype: 'float32', dims: [1, 10], metrics: m,
