@@ -5,6 +5,7 @@
 // Into the producer (norm after the layer): W' = s ⊙ W along output channels, b' = s*b + t.
 // Into the consumer (norm before the layer): W' = W ⊙ s along input channels, b' = b + Σ W·t.
 import type { Affine } from './affine.js';
+import { PleatError } from '../errors.js';
 
 /** A weight viewed as [d0, d1, inner]: the first two axes and the product of the rest. */
 export interface WeightView {
@@ -158,7 +159,8 @@ export function gemmBias(c: { values: Float64Array; dims: number[] } | undefined
   const n = add.length;
   if (!c) return { values: Float64Array.from(add), dims: [n] };
   const dims = broadcastDims(c.dims, [n]);
-  if (!dims) throw new Error(`Gemm bias of dims [${c.dims.join(',')}] does not broadcast to ${n} columns`);
+  // a malformed model, not a bug: the ONNX Gemm operator requires C to broadcast to [M, N]
+  if (!dims) throw new PleatError('bad-model', `a Gemm bias of dims [${c.dims.join(',')}] does not broadcast to its ${n} output columns`);
   const rank = dims.length;
   const size = dims.reduce((p, d) => p * d, 1);
   // Strides of C inside the broadcast shape (0 on broadcast axes).

@@ -176,7 +176,11 @@ export function resolveInputs(graph: Graph, given: ReadonlyMap<string, InputValu
       throw new PleatError('missing-shape', `input '${vi.name}' has no shape in the model: set it with --shape ${vi.name}=DIMS (for example 1x3x224x224) or --input ${vi.name}=FILE`);
     }
     const out = vi.shape.map((d, k): number => {
-      if (typeof d === 'number') return d;
+      // a declared size the probe would be allocated from: refuse what no tensor can have
+      if (typeof d === 'number') {
+        if (!Number.isSafeInteger(d) || d < 0) throw new PleatError('bad-model', `input '${vi.name}' declares dim ${k} as ${d}, which no tensor can have`);
+        return d;
+      }
       if (typeof d === 'string' && d !== '') {
         const b = bound.get(d);
         if (b) return b.size;
