@@ -23,4 +23,15 @@ describe('fuzz', () => {
     expect(r.ok).toBeGreaterThan(MUTANTS / 5);
     expect(r.pleatErrors['bad-model'] ?? 0).toBeGreaterThan(MUTANTS / 10);
   }, 600_000);
+
+  it('mutants a long campaign found crashing are PleatErrors now (negative input dim, Gemm bias that does not broadcast)', async () => {
+    const { buildBases } = await import(join(ROOT, 'dist', 'test', 'fuzz', 'driver.js')) as typeof import('./driver.js');
+    const { runMutant } = await import(join(ROOT, 'dist', 'test', 'fuzz', 'worker.js')) as typeof import('./worker.js');
+    const bases = buildBases();
+    for (const seed of [1002240, 1004196, 1004784]) {
+      const r = runMutant(bases, seed);
+      expect(r.result, `seed ${seed}: ${'message' in r ? r.message : ''}`).toBe('pleat-error');
+      expect(r.result === 'pleat-error' && r.kind).toBe('bad-model');
+    }
+  }, 120_000);
 });
