@@ -34,6 +34,18 @@ export function reportFlags<T>(y: Argv<T>) {
     .option('report', { type: 'string', coerce: many, describe: 'also write a report file: FILE (.json, .xml = junit, .md, .txt) or FORMAT:FILE; repeatable, one per format' });
 }
 
+/** --simulate-int8 weights and --int8-granularity tensor|channel (fold and compare). */
+export function int8Flags<T>(y: Argv<T>) {
+  return y
+    .option('simulate-int8', { type: 'string', choices: ['weights'], describe: 'also run with Conv/Gemm/MatMul weights rounded through symmetric 8-bit quantize-dequantize, and report the output error' })
+    .option('int8-granularity', { type: 'string', choices: ['tensor', 'channel'], default: 'tensor', describe: 'one 8-bit scale per weight tensor or per output channel (with --simulate-int8)' });
+}
+
+/** The granularity to simulate, or undefined without --simulate-int8. */
+export function int8Setting(flags: { simulateInt8?: string; int8Granularity?: string }): 'tensor' | 'channel' | undefined {
+  return flags.simulateInt8 === 'weights' ? (flags.int8Granularity === 'channel' ? 'channel' : 'tensor') : undefined;
+}
+
 export function configFlags<T>(y: Argv<T>) {
   return y.option('config', { type: 'string', describe: 'defaults from this JSON file (else pleat.config.json here, if present); flags override it' });
 }

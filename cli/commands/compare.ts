@@ -1,19 +1,19 @@
 import type { Argv } from 'yargs';
 import { loadConfig, runSettings } from '../config.js';
 import { emit, planReports } from '../output.js';
-import { configFlags, EPILOGUE, inputFlags, reportFlags } from '../flags.js';
+import { configFlags, EPILOGUE, inputFlags, int8Flags, int8Setting, reportFlags } from '../flags.js';
 
 
 export function builder(y: Argv) {
-  return configFlags(reportFlags(inputFlags(y
+  return configFlags(int8Flags(reportFlags(inputFlags(y
     .positional('a', { type: 'string', demandOption: true, describe: 'the reference model (run in float64)' })
     .positional('b', { type: 'string', demandOption: true, describe: 'the candidate model' })
     .option('probes', { type: 'number', describe: 'number of seeded input sets (default 3)' })
-    .option('gate', { type: 'string', describe: 'pass condition per output over maxAbs, maxRel, rms, cosine, peak and the budget names (default per data type)' }))))
+    .option('gate', { type: 'string', describe: 'pass condition per output over maxAbs, maxRel, rms, cosine, peak and the budget names (default per data type)' })))))
     .epilogue(EPILOGUE);
 }
 
-interface Flags { a: string; b: string; probes?: number; gate?: string; seed?: number; input?: string[]; shape?: string[]; dim?: string[]; json?: boolean; format?: string; report?: string[]; config?: string }
+interface Flags { a: string; b: string; simulateInt8?: string; int8Granularity?: string; probes?: number; gate?: string; seed?: number; input?: string[]; shape?: string[]; dim?: string[]; json?: boolean; format?: string; report?: string[]; config?: string }
 
 export async function handler(argv: Flags): Promise<void> {
   const plan = planReports(argv);
@@ -23,7 +23,7 @@ export async function handler(argv: Flags): Promise<void> {
   const { compare } = await import('../../src/index.js');
   const { renderCompare } = await import('../../src/report/render.js');
   const { EXIT } = await import('../../src/report/exit-codes.js');
-  const report = compare(argv.a, argv.b, run);
+  const report = compare(argv.a, argv.b, { ...run, simulateInt8: int8Setting(argv) });
   await emit(plan, (format, colour) => renderCompare(report, argv.a, argv.b, format, colour));
   process.exitCode = report.passed ? EXIT.ok : EXIT.failed;
 }

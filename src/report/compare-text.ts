@@ -11,6 +11,10 @@ export function compareText(r: CompareReport, a: string, b: string, colour = fal
   for (const [side, n] of half) {
     lines.push(`  model ${side} stores ${plural(n as number, 'weight')} in half precision (cast to float32 where read): float32 outputs are judged by the float16 gate`);
   }
+  if (r.int8Weights) {
+    const g = r.int8Weights.granularity === 'tensor' ? 'one scale per tensor' : 'one scale per output channel';
+    lines.push(`  model B ran with 8-bit weights: ${plural(r.int8Weights.layers, 'Conv/Gemm/MatMul layer')} rounded through symmetric quantize-dequantize, ${g}`);
+  }
   for (const i of r.inputs) lines.push(`  input ${i.name}  ${i.dtype} [${i.dims.join('x')}]  ${i.source === 'file' ? `from ${i.file}` : i.source === 'probe' ? 'seeded probe' : 'given value'}`);
   const w = Math.max(0, ...r.outputs.map((o) => o.name.length));
   for (const o of r.outputs) {

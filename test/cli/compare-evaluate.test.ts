@@ -3,6 +3,7 @@
 // read with a reader written from NumPy's format description (test/helpers/npy.ts); compare's JSON is
 // validated against the shipped JSON Schema with ajv.
 import { beforeAll, describe, expect, it } from 'vitest';
+import { SCHEMA_VERSION } from '../../src/jobs/types.js';
 import { existsSync, mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
