@@ -5,7 +5,7 @@ import { runCampaign } from './driver.js';
 
 const count = Number(process.argv[2] ?? 10200);
 const first = Number(process.argv[3] ?? 1_000_000);
-const r = await runCampaign(first, count, 15_000);
+const r = await runCampaign(first, count, 30_000);
 console.log(`fuzz: ${r.mutants} mutants (seeds ${first}..${first + count - 1}) in ${r.seconds.toFixed(1)} s`);
 console.log(`  ok ${r.ok}; PleatError ${Object.values(r.pleatErrors).reduce((a, b) => a + b, 0)} (${Object.entries(r.pleatErrors).map(([k, v]) => `${k} ${v}`).join(', ')})`);
 console.log(`  crashes ${r.crashes.length}; timeouts ${r.timeouts.length}; slowest mutant ${r.slowest.ms} ms (seed ${r.slowest.seed})`);
