@@ -12,8 +12,9 @@ import { FORMATS } from '../src/report/format.js';
 /** Options that may be given more than once (each adds one value); every other value option takes one value. */
 export const REPEATABLE: ReadonlySet<string> = new Set(['input', 'shape', 'dim', 'keep', 'report']);
 
-/** Number options: whole numbers, at least `min` (options not listed: 0 or more). */
-export const NUMBER_RULES: Record<string, { min: number; what: string }> = {
+/** Number options: whole numbers of at least `min` unless `real` (options not listed: whole, 0 or more). */
+export const NUMBER_RULES: Record<string, { min: number; what: string; real?: boolean }> = {
+  'quant-threshold': { min: -Infinity, what: 'a number of decibels, e.g. 20', real: true },
   probes: { min: 1, what: 'a whole number of probe sets, 1 or more' },
   seed: { min: -Number.MAX_SAFE_INTEGER, what: 'a whole number' },
   'external-data-min': { min: 0, what: 'a whole number of bytes, 0 or more' },

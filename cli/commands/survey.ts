@@ -16,8 +16,8 @@ export async function handler(argv: { model: string; json: boolean }): Promise<v
   // the structure is shown, but a model whose weights are missing is bad input all the same
   const missing = report.missingData;
   if (missing.length) {
-    const files = [...new Set(missing.map((m) => m.location))].map((l) => `'${l}'`).join(', ');
-    process.stderr.write(`pleat: ${argv.model}: the data of ${missing.length} tensor${missing.length > 1 ? 's' : ''} is missing (${files}: ${missing[0]!.problem})\n`);
+    const first = missing[0]!;
+    process.stderr.write(`pleat: ${argv.model}: the data of ${missing.length} tensor${missing.length > 1 ? 's' : ''} cannot be read (tensor '${first.tensor}': ${first.problem})\n`);
     process.exitCode = EXIT.badInput;
   }
 }

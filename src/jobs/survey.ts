@@ -69,14 +69,16 @@ function missingExternal(model: Model, label: string): MissingData[] {
       let size: number;
       try {
         const st = statSync(path);
-        if (!st.isFile()) { out.push({ tensor: t.name, location, problem: 'not a regular file' }); return; }
+        if (!st.isFile()) { out.push({ tensor: t.name, location, problem: `'${location}' cannot be opened (not a regular file)` }); return; }
         size = st.size;
       } catch {
-        out.push({ tensor: t.name, location, problem: 'no such file' });
+        out.push({ tensor: t.name, location, problem: `'${location}' cannot be opened (no such file)` });
         return;
       }
-      const need = ref.offset + (ref.length ?? declaredBytes(t));
-      if (need > size) out.push({ tensor: t.name, location, problem: `the file holds ${size} bytes, the tensor needs bytes up to ${need}` });
+      const length = ref.length ?? declaredBytes(t);
+      if (ref.offset + length > size) {
+        out.push({ tensor: t.name, location, problem: `offset ${ref.offset}, length ${length} runs past the end of '${location}' (${size} bytes)` });
+      }
     } catch (e) {
       if (!isPleatError(e)) throw e;
       out.push({ tensor: t.name, location, problem: e.message.replace(`${label}: `, '') });

@@ -20,7 +20,7 @@ export function surveyText(r: SurveyReport): string {
     (r.constantNodes.count ? `; ${r.constantNodes.count} Constant nodes, ${bytesText(r.constantNodes.bytes)}` : '') +
     `; external ${bytesText(r.externalBytes)}`);
   if (r.missingData.length) {
-    r.missingData.forEach((m, i) => lines.push(`  ${pad(i === 0 ? 'missing' : '')}${m.tensor}: data in '${m.location}': ${m.problem}`));
+    r.missingData.forEach((m, i) => lines.push(`  ${pad(i === 0 ? 'missing' : '')}${m.tensor}: ${m.problem}`));
   }
   lines.push(`  ${pad('norms')}${r.normalizations.length ? r.normalizations.map((n) => `${n.op} ${n.count}`).join(', ') : 'no normalization nodes'}`);
   return lines.join('\n') + '\n';

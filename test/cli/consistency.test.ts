@@ -100,9 +100,9 @@ describe('consistency of reports and messages', () => {
     const r = pleat(['survey', model]);
     expect(r.code).toBe(2);
     expect(r.stdout).toMatch(/inputs {4}image {2}float32/);
-    expect(r.stdout).toMatch(/missing {3}\S+: data in 'm\.onnx\.data': no such file/);
+    expect(r.stdout).toMatch(/missing {3}\S+: 'm\.onnx\.data' cannot be opened \(no such file\)/);
     expect(r.stderr.trim().split('\n')).toHaveLength(1);
-    expect(r.stderr).toMatch(/the data of \d+ tensors is missing \('m\.onnx\.data'/);
+    expect(r.stderr).toMatch(/the data of \d+ tensors cannot be read \(tensor '\S+': 'm\.onnx\.data' cannot be opened/);
     const j = JSON.parse(pleat(['survey', model, '--json']).stdout);
     expect(j.missingData.length).toBeGreaterThan(0);
     expect(validate(j), JSON.stringify(validate.errors)).toBe(true);

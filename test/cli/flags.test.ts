@@ -59,6 +59,9 @@ describe('choices, numbers, unknown options and commands', () => {
     usage(['fold', M, '-o', OUT, '--external-data-min', '-5'], /--external-data-min -5: give a whole number of bytes, 0 or more/);
     usage(['compare', M, M, '--probes', '0'], /--probes 0: give a whole number of probe sets, 1 or more/);
     usage(['compare', M, M, '--probes', '1.5'], /--probes 1.5/);
+    usage(['fold', M, '-o', OUT, '--quant-threshold', 'abc'], /--quant-threshold abc: give a number of decibels/);
+    // a real number is fine for decibels: the run gets past the flags (to the name check, here)
+    usage(['fold', M, '-o', OUT, '--quant-threshold', '12.5', '--keep', 'nosuch.bn'], /--keep nosuch\.bn/);
   });
   it('an option without its value', () => usage(['fold', M, '-o'], /-o needs a value/));
   it('unknown options print with their dashes and the nearest known option', () => {
