@@ -16,7 +16,7 @@ export class Fs { constructor(readonly v: number[]) {} }
 export const f = (v: number) => new F(v);
 export const fs = (v: number[]) => new Fs(v);
 
-export type AttrIn = number | number[] | string | F | Fs | GraphBuilder | onnxProto.onnx.ITensorProto;
+export type AttrIn = number | number[] | string | string[] | F | Fs | GraphBuilder | onnxProto.onnx.ITensorProto;
 export type Dim = number | string | null;
 
 /** Seeded random numbers (mulberry32), so tests are repeatable. */
@@ -85,6 +85,8 @@ export function tensor(name: string, dims: number[], values: ArrayLike<number>, 
     case T.INT64: { const d = dv(8); arr.forEach((v, i) => d.setBigInt64(i * 8, BigInt(v), true)); break; }
     case T.INT32: { const d = dv(4); arr.forEach((v, i) => d.setInt32(i * 4, v, true)); break; }
     case T.INT8: { const d = dv(1); arr.forEach((v, i) => d.setInt8(i, v)); break; }
+    case T.INT16: { const d = dv(2); arr.forEach((v, i) => d.setInt16(i * 2, v, true)); break; }
+    case T.UINT16: { const d = dv(2); arr.forEach((v, i) => d.setUint16(i * 2, v, true)); break; }
     case T.UINT8: case T.BOOL: { const d = dv(1); arr.forEach((v, i) => d.setUint8(i, v)); break; }
     default: throw new Error(`builder: no raw encoding for type ${dataType}`);
   }
@@ -117,8 +119,10 @@ function attribute(name: string, v: AttrIn): onnxProto.onnx.IAttributeProto {
   }
   if (typeof v === 'string') return { name, type: A.STRING, s: new TextEncoder().encode(v) };
   if (Array.isArray(v)) {
-    if (v.every(Number.isInteger)) return { name, type: A.INTS, ints: v };
-    return { name, type: A.FLOATS, floats: v };
+    if (v.length > 0 && v.every((x) => typeof x === 'string')) return { name, type: A.STRINGS, strings: (v as string[]).map((x) => new TextEncoder().encode(x)) };
+    const nums = v as number[];
+    if (nums.every(Number.isInteger)) return { name, type: A.INTS, ints: nums };
+    return { name, type: A.FLOATS, floats: nums };
   }
   return { name, type: A.TENSOR, t: v as onnxProto.onnx.ITensorProto };
 }

@@ -7,6 +7,7 @@ import { eachTensor, externalRef, resolveLocation } from '../onnx/external.js';
 import { readModelFile } from '../onnx/read.js';
 import { isPleatError } from '../errors.js';
 import { SCHEMA_VERSION } from './types.js';
+import { evaluatorGaps, type EvaluatorGap } from '../eval/coverage.js';
 
 export const NORMALIZATION_OPS = [
   'BatchNormalization', 'InstanceNormalization', 'LayerNormalization', 'GroupNormalization',
@@ -39,6 +40,11 @@ export interface SurveyReport {
   /** External tensors whose side file is missing or too short: empty when every byte is there. */
   missingData: MissingData[];
   normalizations: Array<{ op: string; count: number }>;
+  /**
+   * Whether pleat's evaluator can run every operator (so the whole-model check of a fold can run), and the
+   * operators it cannot run, with the reason for each.
+   */
+  evaluator: { runsAll: boolean; cannotRun: EvaluatorGap[] };
 }
 
 function describeValue(v: ValueInfo): SurveyValue {
@@ -104,6 +110,7 @@ export function surveyModel(model: Model, file: string | null = null, missingDat
     }
   };
   walk(model.graph);
+  const gaps = evaluatorGaps(model);
   const opCounts = [...counts].map(([op, count]) => ({ op, count }))
     .sort((a, b) => b.count - a.count || (a.op < b.op ? -1 : a.op > b.op ? 1 : 0));
   let external = 0;
@@ -125,6 +132,7 @@ export function surveyModel(model: Model, file: string | null = null, missingDat
     externalBytes: external,
     missingData,
     normalizations: opCounts.filter((c) => (NORMALIZATION_OPS as readonly string[]).includes(c.op)),
+    evaluator: { runsAll: gaps.length === 0, cannotRun: gaps },
   };
 }
 
