@@ -1,6 +1,6 @@
 import type { Argv } from 'yargs';
 import { loadConfig, runSettings } from '../config.js';
-import { emit, planReports } from '../output.js';
+import { checkDestinations, emit, planReports } from '../output.js';
 import { configFlags, EPILOGUE, inputFlags, int8Flags, int8Setting, reportFlags } from '../flags.js';
 
 
@@ -23,7 +23,8 @@ export async function handler(argv: Flags): Promise<void> {
   const { compare } = await import('../../src/index.js');
   const { renderCompare } = await import('../../src/report/render.js');
   const { EXIT } = await import('../../src/report/exit-codes.js');
+  await checkDestinations(plan, { inputs: [argv.a, argv.b] });
   const report = compare(argv.a, argv.b, { ...run, simulateInt8: int8Setting(argv) });
-  await emit(plan, (format, colour) => renderCompare(report, argv.a, argv.b, format, colour));
+  await emit(plan, (format, colour) => renderCompare(report, argv.a, argv.b, format, colour), { inputs: [argv.a, argv.b] });
   process.exitCode = report.passed ? EXIT.ok : EXIT.failed;
 }

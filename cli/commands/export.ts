@@ -33,8 +33,8 @@ export async function handler(argv: Flags): Promise<void> {
   const { exportText } = await import('../../src/report/export-text.js');
   const { EXIT } = await import('../../src/report/exit-codes.js');
   const r = exportFile(argv.model, argv.bundle, argv.bundleFormat, {
-    inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, probes: run.probes, gate: run.gate, keep: keepList(config, argv.keep), store: argv.store ?? config.store,
-    origins: nameOrigins(config, file, argv),
+    inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, probes: run.probes, gate: run.gate, maxProbeMemory: run.maxProbeMemory, keep: keepList(config, argv.keep),
+    store: argv.store ?? config.store, origins: nameOrigins(config, file, argv),
   });
   await out(argv.json
     ? toJsonText({ schemaVersion: SCHEMA_VERSION, command: 'export', model: argv.model, ...r })

@@ -147,7 +147,7 @@ export function survey(path: string): SurveyReport {
     if (!isPleatError(e)) throw e;
     let model: Model;
     try {
-      model = readModelFile(path, { externalData: 'leave' });
+      model = readModelFile(path, undefined, { externalData: 'leave' });
     } catch {
       throw e; // the structure itself is unreadable: the first error says why
     }
