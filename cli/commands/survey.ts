@@ -1,5 +1,5 @@
 import type { Argv } from 'yargs';
-import { survey } from '../../src/jobs/survey.js';
+import { surveyFile } from '../../src/jobs/survey.js';
 import { surveyText } from '../../src/report/survey-text.js';
 import { EXIT } from '../../src/report/exit-codes.js';
 import { out } from '../errors.js';
@@ -11,13 +11,12 @@ export function builder(y: Argv) {
 }
 
 export async function handler(argv: { model: string; json: boolean }): Promise<void> {
-  const report = survey(argv.model);
+  const { report, readError } = surveyFile(argv.model);
   await out(argv.json ? JSON.stringify(report, null, 2) + '\n' : surveyText(report));
   // the structure is shown, but a model whose weights are missing is bad input all the same
-  const missing = report.missingData;
-  if (missing.length) {
-    const first = missing[0]!;
-    process.stderr.write(`pleat: ${argv.model}: the data of ${missing.length} tensor${missing.length > 1 ? 's' : ''} cannot be read (tensor '${first.tensor}': ${first.problem})\n`);
+  if (readError !== null) {
+    // the reader's own line (it names the file, the tensor and what is wrong with its data)
+    process.stderr.write(`pleat: ${readError}\n`);
     process.exitCode = EXIT.badInput;
   }
 }

@@ -141,8 +141,13 @@ export function surveyModel(model: Model, file: string | null = null, missingDat
  * alone) and `missingData` lists each tensor whose bytes are missing.
  */
 export function survey(path: string): SurveyReport {
+  return surveyFile(path).report;
+}
+
+/** survey, plus the reader's own one-line message when some external data could not be read (else null). */
+export function surveyFile(path: string): { report: SurveyReport; readError: string | null } {
   try {
-    return surveyModel(readModelFile(path), path);
+    return { report: surveyModel(readModelFile(path), path), readError: null };
   } catch (e) {
     if (!isPleatError(e)) throw e;
     let model: Model;
@@ -153,6 +158,6 @@ export function survey(path: string): SurveyReport {
     }
     const missing = missingExternal(model, path);
     if (!missing.length) throw e;
-    return surveyModel(model, path, missing);
+    return { report: surveyModel(model, path, missing), readError: e.message };
   }
 }

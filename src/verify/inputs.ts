@@ -180,7 +180,7 @@ export function resolveInputs(graph: Graph, given: ReadonlyMap<string, InputValu
     const out = vi.shape.map((d, k): number => {
       // a declared size the probe would be allocated from: refuse what no tensor can have
       if (typeof d === 'number') {
-        if (!Number.isSafeInteger(d) || d < 0) throw new PleatError('bad-model', `input '${vi.name}' declares dim ${k} as ${d}, which no tensor can have`);
+        if (!Number.isSafeInteger(d) || d < 0) throw new PleatError('bad-model', `input '${vi.name}' dim ${k} is ${d}: a size must be a whole number of at least 0`);
         return d;
       }
       if (typeof d === 'string' && d !== '') {

@@ -102,7 +102,7 @@ describe('consistency of reports and messages', () => {
     expect(r.stdout).toMatch(/inputs {4}image {2}float32/);
     expect(r.stdout).toMatch(/missing {3}\S+: 'm\.onnx\.data' cannot be opened \(no such file\)/);
     expect(r.stderr.trim().split('\n')).toHaveLength(1);
-    expect(r.stderr).toMatch(/the data of \d+ tensors cannot be read \(tensor '\S+': 'm\.onnx\.data' cannot be opened/);
+    expect(r.stderr).toMatch(/m\.onnx: tensor '\S+' has external data in 'm\.onnx\.data'/);
     const j = JSON.parse(pleat(['survey', model, '--json']).stdout);
     expect(j.missingData.length).toBeGreaterThan(0);
     expect(validate(j), JSON.stringify(validate.errors)).toBe(true);
