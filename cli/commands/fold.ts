@@ -6,7 +6,7 @@ import type { FoldJobOptions } from '../../src/jobs/types.js';
 import { keepList, loadConfig, nameOrigins, runSettings } from '../config.js';
 import type { Job } from '../batch.js';
 import { checkDestinations, planReports, runAndReport } from '../output.js';
-import { configFlags, EPILOGUE, inputFlags, int8Flags, int8Setting, many, reportFlags } from '../flags.js';
+import { configFlags, EPILOGUE, inputFlags, int8Flags, int8Setting, many, reportFlags, threadsFlag } from '../flags.js';
 
 
 export function builder(y: Argv) {
@@ -28,7 +28,7 @@ export function builder(y: Argv) {
 }
 
 interface Flags {
-  models: string[]; out?: string; outDir?: string; keep?: string[]; allowOverridable: boolean; externalDataMin?: number; store?: 'float16'; gate?: string; probes?: number; seed?: number; unproven: boolean;
+  models: string[]; out?: string; outDir?: string; keep?: string[]; allowOverridable: boolean; externalDataMin?: number; store?: 'float16'; gate?: string; probes?: number; seed?: number; unproven: boolean; threads?: number;
   equalize: boolean; quantThreshold?: number; simulateInt8?: string; int8Granularity?: string;
   input?: string[]; shape?: string[]; dim?: string[]; json?: boolean; format?: string; report?: string[]; config?: string; quiet: boolean;
 }
@@ -66,7 +66,7 @@ export async function handler(argv: Flags): Promise<void> {
   const opts: FoldJobOptions = {
     inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, probes: run.probes, gate: run.gate, maxProbeMemory: run.maxProbeMemory,
     keep: keepList(config, argv.keep), store: argv.store ?? config.store, allowOverridable: argv.allowOverridable,
-    externalThreshold: argv.externalDataMin, noProofs: argv.unproven, origins: nameOrigins(config, file, argv),
+    externalThreshold: argv.externalDataMin, noProofs: argv.unproven, threads: threadsFlag(argv.threads), origins: nameOrigins(config, file, argv),
     equalize: argv.equalize, quantThresholdDb: quantThreshold(argv.quantThreshold), simulateInt8: int8Setting(argv),
   };
   const sides = outputs.map((o) => join(dirname(o), `${basename(o)}.data`));

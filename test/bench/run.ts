@@ -74,6 +74,8 @@ if (existsSync(extraBenches)) {
   await more.run(on, rows);
 }
 
+const proof = await import('./proof.js');
+await proof.run(on, rows);
 (await import('./startup.js')).run(on, rows);
 
 console.log('\n| measure | time | ratio | target | memory | target |');
