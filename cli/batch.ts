@@ -10,6 +10,9 @@ import { foldStaged } from '../src/jobs/fold.js';
 import type { StagedFile } from '../src/jobs/outputs.js';
 import type { AuditJobOptions, AuditReport, FoldJobOptions, FoldReport } from '../src/jobs/types.js';
 import { EXIT } from '../src/report/exit-codes.js';
+import { readModelFile } from '../src/onnx/read.js';
+import { checkNames, modelNames, type ModelNames } from '../src/jobs/names.js';
+import { asMap } from '../src/verify/inputs.js';
 import type { Outcome } from '../src/report/render.js';
 import type { Progress } from './progress.js';
 
@@ -19,6 +22,22 @@ export type Job =
 
 /** An outcome, plus (for fold) the staged output files to commit with the reports and the input files to guard. */
 export type JobOutcome = Outcome<FoldReport | AuditReport> & { staged?: StagedFile[]; inputs?: string[] };
+
+/**
+ * Names given to a batch (--keep, --dim, --shape, or the config file) must each match in at least one of its
+ * models; checked before any job runs, which then skip their own one-model check. A model that cannot be read
+ * is left out here: its job reports why.
+ */
+export function checkBatchNames(jobs: readonly Job[]): Job[] {
+  const opts = jobs[0]!.opts as FoldJobOptions;
+  if (!(opts.keep ?? []).length && !asMap(opts.dims).size && !asMap(opts.shapes).size) return [...jobs];
+  const models: ModelNames[] = [];
+  for (const j of jobs) {
+    try { models.push(modelNames(readModelFile(j.model), j.model, (opts.keep ?? []).length > 0)); } catch (e) { if (!isPleatError(e)) throw e; }
+  }
+  if (models.length) checkNames(models, { keep: opts.keep, dims: asMap(opts.dims).keys(), shapes: asMap(opts.shapes).keys(), origins: opts.origins });
+  return jobs.map((j) => ({ ...j, opts: { ...j.opts, namesChecked: true } }) as Job);
+}
 
 /** Run one job here and now; errors are thrown (a single model's error ends the command as usual). */
 export function runJob(job: Job): JobOutcome {

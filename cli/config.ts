@@ -6,6 +6,7 @@ import { existsSync, readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { PleatError } from '../src/errors.js';
 import { loadInputFiles, parseInputFlags, type InputValue } from '../src/verify/inputs.js';
+import type { NameOrigins } from '../src/jobs/names.js';
 
 export const CONFIG_FILE = 'pleat.config.json';
 
@@ -47,11 +48,13 @@ const KEYS: Record<keyof PleatConfig, { check: Check; want: string }> = {
 
 /** Read and check a config file: --config FILE when given, else pleat.config.json in `cwd` when present. */
 export function loadConfig(explicit: string | undefined, cwd = process.cwd()): { config: PleatConfig; file: string | null } {
-  const file = explicit ?? join(cwd, CONFIG_FILE);
-  if (explicit === undefined && !existsSync(file)) return { config: {}, file: null };
+  const path = explicit ?? join(cwd, CONFIG_FILE);
+  if (explicit === undefined && !existsSync(path)) return { config: {}, file: null };
+  // messages name the file as the user knows it: as given, or pleat.config.json (in the working directory)
+  const file = explicit ?? CONFIG_FILE;
   let text: string;
   try {
-    text = readFileSync(file, 'utf8');
+    text = readFileSync(path, 'utf8');
   } catch (e) {
     throw new PleatError('bad-input', `--config ${file}: cannot read (${(e as NodeJS.ErrnoException).code ?? String(e)})`);
   }
@@ -121,6 +124,22 @@ export function runSettings(config: PleatConfig, flags: RunFlags): RunSettings {
     gate: flags.gate ?? config.gate,
     strict: flags.strict ?? config.strict ?? false,
     maxProbeMemory: flags.maxProbeMemory === undefined ? undefined : parseBytes('max-probe-memory', String(flags.maxProbeMemory)),
+  };
+}
+
+/**
+ * Which keep, dim and shape names came from the config file rather than a flag (a flag naming the same dim or
+ * shape overrides the file's entry), so messages and hints can point at the file.
+ */
+export function nameOrigins(config: PleatConfig, file: string | null, flags: { keep?: readonly string[]; dim?: readonly string[]; shape?: readonly string[] }): NameOrigins {
+  if (file === null) return {};
+  const flagNames = (list: readonly string[] | undefined) => new Set((list ?? []).map((s) => s.split('=')[0]!.trim()));
+  const fromFile = (names: Iterable<string>, overridden: Set<string>) =>
+    Object.fromEntries([...names].filter((n) => !overridden.has(n)).map((n) => [n, file]));
+  return {
+    keep: fromFile(config.keep ?? [], new Set(flags.keep ?? [])),
+    dims: fromFile(Object.keys(config.dims ?? {}), flagNames(flags.dim)),
+    shapes: fromFile(Object.keys(config.shapes ?? {}), flagNames(flags.shape)),
   };
 }
 

@@ -8,11 +8,23 @@ import { PleatError } from '../src/errors.js';
  */
 export const many = (v: unknown): string[] => (v === undefined ? [] : (Array.isArray(v) ? v : [v]).map(String));
 import { EXIT_CODES_TEXT } from '../src/report/exit-codes.js';
+import { FORMATS } from '../src/report/format.js';
+
+/** Options that may be given more than once (each adds one value); every other value option takes one value. */
+export const REPEATABLE: ReadonlySet<string> = new Set(['input', 'shape', 'dim', 'keep', 'report']);
+
+/** Number options: whole numbers of at least `min` unless `real` (options not listed: whole, 0 or more). */
+export const NUMBER_RULES: Record<string, { min: number; what: string; real?: boolean }> = {
+  'quant-threshold': { min: -Infinity, what: 'a number of decibels, e.g. 20', real: true },
+  probes: { min: 1, what: 'a whole number of probe sets, 1 or more' },
+  seed: { min: -Number.MAX_SAFE_INTEGER, what: 'a whole number' },
+  'external-data-min': { min: 0, what: 'a whole number of bytes, 0 or more' },
+};
 
 export function inputFlags<T>(y: Argv<T>) {
   return y
     .option('input', { type: 'string', coerce: many, describe: 'NAME=FILE.npy (or .pb TensorProto): a value for an input; repeatable' })
-    .option('shape', { type: 'string', coerce: many, describe: 'NAME=1x3x224x224: the shape of an input; repeatable' })
+    .option('shape', { type: 'string', coerce: many, describe: 'NAME=1x3x224x224 (or 1,3,224,224): the shape of an input; repeatable' })
     .option('dim', { type: 'string', coerce: many, describe: 'SYMBOL=N: the size of a dynamic dim; repeatable' })
     .option('seed', { type: 'number', describe: 'seed of the generated probe values (default 0)' })
     .option('max-probe-memory', { type: 'string', describe: 'BYTES (or with K, M, G): most memory the values of a probe run may hold at once (default: 1/16 of the machine memory, 256 MiB to 1 GiB)' })
@@ -29,7 +41,7 @@ export function threadsFlag(v: number | undefined): number | undefined {
 export function reportFlags<T>(y: Argv<T>) {
   return y
     .option('json', { type: 'boolean', describe: 'print the report as JSON (same as --format json)' })
-    .option('format', { type: 'string', choices: ['text', 'json', 'junit', 'markdown'], describe: 'report format on stdout (default text)' })
+    .option('format', { type: 'string', choices: [...FORMATS], describe: 'report format on stdout (default text)' })
     .option('report', { type: 'string', coerce: many, describe: 'also write a report file: FILE (.json, .xml = junit, .md, .txt) or FORMAT:FILE; repeatable, one per format' });
 }
 

@@ -1,38 +1,81 @@
 #!/usr/bin/env node
-// pleat's command line: parse flags, call the library, print. No logic lives here.
+// pleat's command line: parse flags, call the library, print. No logic lives here. Only the module of the
+// command being run is imported (the table in commands/table.ts describes the others), so `pleat --help` and
+// usage errors start fast.
 import yargs from 'yargs';
 import { hideBin } from 'yargs/helpers';
-import { failAndExit } from './errors.js';
-import * as surveyCmd from './commands/survey.js';
-import * as foldCmd from './commands/fold.js';
-import * as auditCmd from './commands/audit.js';
-import * as compareCmd from './commands/compare.js';
-import * as evaluateCmd from './commands/evaluate.js';
-import * as exportCmd from './commands/export.js';
+import { PleatError } from '../src/errors.js';
 import { EXIT_CODES_TEXT } from '../src/report/exit-codes.js';
+import { checkFlags, type OptionTable } from './check-flags.js';
+import { COMMANDS, commandNames } from './commands/table.js';
+import { failAndExit } from './errors.js';
+import { nearest } from './suggest.js';
+
+/** Marks yargs' missing-positional message so the fail handler can name the command's own arguments. */
+const MISSING_ARGUMENT = 'missing argument';
+const TOP_FLAGS = new Set(['--help', '-h', '--version']);
+
+/** `pleat help` is `pleat --help`; `pleat help fold` is `pleat fold --help`. */
+function expandHelp(args: string[]): string[] {
+  if (args[0] !== 'help') return args;
+  if (args.length === 1) return ['--help'];
+  return [args[1]!, '--help'];
+}
+
+/** The command named first, or a usage error naming the word and the nearest command. */
+function commandOf(args: readonly string[]): (typeof COMMANDS)[number] | undefined {
+  const first = args[0];
+  if (first === undefined) return undefined;
+  if (first.startsWith('-')) {
+    if (TOP_FLAGS.has(first)) return undefined;
+    throw new PleatError('usage', `unknown option ${first.split('=')[0]} before a command; name a command first (pleat <command> [options], see pleat --help)`);
+  }
+  const entry = COMMANDS.find((c) => c.name === first);
+  if (entry) return entry;
+  const guess = nearest(first, commandNames());
+  throw new PleatError('usage', `'${first}' is not a pleat command${guess ? ` (did you mean '${guess}'?)` : ''}; commands: ${commandNames().join(', ')}, help`);
+}
 
 async function main(): Promise<void> {
-  const cli = yargs(hideBin(process.argv))
+  const args = expandHelp(hideBin(process.argv));
+  const chosen = commandOf(args);
+  const cli = yargs(args)
     .scriptName('pleat')
-    .usage('pleat <command> [options]\n\nFold inference-mode normalization into neighbouring layers of ONNX models, prove the result, audit what stays.')
-    .command(surveyCmd as never)
-    .command(foldCmd as never)
-    .command(auditCmd as never)
-    .command(compareCmd as never)
-    .command(evaluateCmd as never)
-    .command(exportCmd as never)
+    .usage('pleat <command> [options]\n\nFold inference-mode normalization into neighbouring layers of ONNX models, prove the result, audit what stays.\n`pleat help <command>` (or `pleat <command> -h`) shows a command\'s options.');
+  for (const c of COMMANDS) {
+    if (c === chosen) {
+      const mod = await c.load();
+      cli.command(c.usage, c.describe, mod.builder as never, mod.handler as never);
+    } else {
+      cli.command(c.usage, c.describe);
+    }
+  }
+  await cli
+    .middleware(((_argv: unknown, y: { getOptions(): OptionTable }) => {
+      if (chosen) checkFlags(args.slice(1), y.getOptions());
+    }) as never, true)
     .demandCommand(1, 'name a command (see pleat --help)')
     .strict()
-    .help()
+    .help('help', 'print the options of pleat or of one command')
+    .alias('h', 'help')
     .epilogue(EXIT_CODES_TEXT)
-    .version()
+    .version('version', "print pleat's version")
+    .updateStrings({
+      'Not enough non-option arguments: got %s, need at least %s': {
+        one: MISSING_ARGUMENT,
+        other: MISSING_ARGUMENT,
+      },
+      'Missing required argument: %s': { one: 'missing required option --%s', other: 'missing required options --%s' },
+      'Unknown argument: %s': { one: 'unexpected argument %s', other: 'unexpected arguments %s' },
+    } as never)
     .wrap(Math.min(110, process.stdout.columns || 110))
     .fail((msg, err) => {
       if (err) failAndExit(err);
-      process.stderr.write(`pleat: ${msg.split('\n')[0]}\n`);
+      const line = msg.startsWith(MISSING_ARGUMENT) && chosen ? `missing argument; usage: pleat ${chosen.usage} [options] (see pleat ${chosen.name} --help)` : msg.split('\n')[0];
+      process.stderr.write(`pleat: ${line}\n`);
       process.exit(2);
-    });
-  await cli.parseAsync();
+    })
+    .parseAsync();
 }
 
 // Ctrl-C or a TERM ends through process.exit, so the output transaction's exit hook removes its temporaries.

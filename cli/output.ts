@@ -81,7 +81,8 @@ export function reportErrors(lines: readonly string[]): void {
  * of the batch. The library is loaded here, not at start-up: --help or a usage error needs none of it.
  */
 export async function runAndReport(command: 'fold' | 'audit', jobs: import('./batch.js').Job[], plan: ReturnType<typeof planReports>, quiet: boolean): Promise<void> {
-  const { runBatch } = await import('./batch.js');
+  const { runBatch, checkBatchNames } = await import('./batch.js');
+  if (jobs.length > 1) jobs = checkBatchNames(jobs);
   const { renderJobs, isJobError } = await import('../src/report/render.js');
   const { startProgress } = await import('./progress.js');
   const progress = startProgress(jobs.length, command, { quiet });

@@ -1,6 +1,7 @@
 // pleat's library API: everything the CLI does, callable from a Node script with the same JSON shapes.
 import type { Model } from './graph/ir.js';
 import { readModelFile } from './onnx/read.js';
+import { checkOpset } from './graph/opsets.js';
 import { compare as compareModels, type CompareOptions, type CompareReport, type ProbeRecord } from './verify/compare.js';
 import { checkProbeDir, saveProbeSets } from './verify/probe-files.js';
 import { evaluate as evaluateModel, type EvaluateOptions, type EvaluateResult } from './verify/evaluate.js';
@@ -25,7 +26,11 @@ export type * from './jobs/types.js';
 export type { Finding, LedgerEntry, FoldLedger, ReasonCode, Direction } from './fold/types.js';
 export type { CompareOptions, CompareReport, EvaluateOptions, EvaluateResult, Model };
 
-const load = (m: string | Model): Model => (typeof m === 'string' ? readModelFile(m) : m);
+const load = (m: string | Model): Model => {
+  const model = typeof m === 'string' ? readModelFile(m) : m;
+  checkOpset(model, typeof m === 'string' ? m : 'model');
+  return model;
+};
 
 /** Fold every normalization that can be folded, prove it, and write `output` (unless a gate fails). */
 export function fold(input: string, output: string, options: FoldJobOptions = {}): FoldReport {

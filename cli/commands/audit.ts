@@ -1,11 +1,9 @@
 import type { Argv } from 'yargs';
-import { keepList, loadConfig } from '../config.js';
+import { keepList, loadConfig, nameOrigins } from '../config.js';
 import type { Job } from '../batch.js';
 import { checkDestinations, planReports, runAndReport } from '../output.js';
 import { configFlags, EPILOGUE, many, reportFlags } from '../flags.js';
 
-export const command = 'audit <models..>';
-export const describe = 'The fold analysis without writing: every normalization, its status (foldable or kept), reason and hint';
 
 export function builder(y: Argv) {
   return configFlags(reportFlags(y
@@ -22,8 +20,8 @@ interface Flags { models: string[]; failOn?: 'kept'; keep?: string[]; allowOverr
 
 export async function handler(argv: Flags): Promise<void> {
   const plan = planReports(argv);
-  const { config } = loadConfig(argv.config);
-  const opts = { keep: keepList(config, argv.keep), failOn: argv.failOn ?? config.failOn, allowOverridable: argv.allowOverridable, cloneShared: argv.cloneShared };
+  const { config, file } = loadConfig(argv.config);
+  const opts = { keep: keepList(config, argv.keep), failOn: argv.failOn ?? config.failOn, allowOverridable: argv.allowOverridable, cloneShared: argv.cloneShared, origins: nameOrigins(config, file, argv) };
   const jobs: Job[] = argv.models.map((model) => ({ command: 'audit', model, opts }));
   await checkDestinations(plan, { inputs: argv.models });
   await runAndReport('audit', jobs, plan, argv.quiet);

@@ -3,8 +3,6 @@ import { loadConfig, runSettings } from '../config.js';
 import { checkDestinations, emit, planReports } from '../output.js';
 import { checkFlags, configFlags, EPILOGUE, inputFlags, int8Flags, int8Setting, reportFlags, threadsFlag } from '../flags.js';
 
-export const command = 'compare <a> <b>';
-export const describe = 'Run two models on the same inputs and judge their agreement, output by output, against a gate';
 
 export function builder(y: Argv) {
   return configFlags(checkFlags(int8Flags(reportFlags(inputFlags(y

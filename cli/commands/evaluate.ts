@@ -1,12 +1,10 @@
 import type { Argv } from 'yargs';
-import { join } from 'node:path';
+import { sep } from 'node:path';
 import { SCHEMA_VERSION } from '../../src/jobs/types.js';
 import { loadConfig, runSettings } from '../config.js';
 import { out } from '../errors.js';
 import { configFlags, EPILOGUE, inputFlags, threadsFlag } from '../flags.js';
 
-export const command = 'evaluate <model>';
-export const describe = 'Evaluate a model on given or seeded inputs and save each output as DIR/<output>.npy with an index';
 
 export function builder(y: Argv) {
   return configFlags(inputFlags(y
@@ -25,18 +23,21 @@ export async function handler(argv: Flags): Promise<void> {
   const threads = threadsFlag(argv.threads);
   // loaded here, not at start-up (see compare.ts)
   const { evaluate, saveOutputs, setThreads } = await import('../../src/index.js');
+  const { dataTypeName } = await import('../../src/graph/tensor.js');
   if (threads !== undefined) setThreads(threads);
   const { toJsonText } = await import('../../src/verify/compare.js');
   const r = evaluate(argv.model, { inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, precision: argv.precision, maxProbeMemory: run.maxProbeMemory });
   const saved = saveOutputs(argv.save, r.outputs);
-  const outputs = saved.files.map((f) => ({ ...f, dtype: r.outputs.get(f.name)!.type, dims: [...r.outputs.get(f.name)!.dims] }));
+  const outputs = saved.files.map((f) => ({ ...f, dtype: dataTypeName(r.outputs.get(f.name)!.type), dims: [...r.outputs.get(f.name)!.dims] }));
   if (argv.json) {
     await out(toJsonText({ schemaVersion: SCHEMA_VERSION, command: 'evaluate', model: argv.model, precision: r.precision, seed: r.seed, inputs: r.inputSummary, dir: argv.save, outputs }));
     return;
   }
   const lines = [`evaluate ${argv.model} (${r.precision}, seed ${r.seed}) -> ${argv.save}`];
   for (const i of r.inputSummary) lines.push(`  input  ${i.name} [${i.dims.join('x')}] ${i.source === 'file' ? `from ${i.file}` : 'seeded probe'}`);
-  for (const o of outputs) lines.push(`  output ${o.name} [${o.dims.join('x')}] -> ${join(argv.save, o.file)}`);
-  lines.push(`  index  ${join(argv.save, 'outputs.json')}`);
+  // paths as given: the folder the user typed, then the file name
+  const under = (name: string) => (argv.save.endsWith('/') || argv.save.endsWith(sep) ? `${argv.save}${name}` : `${argv.save}/${name}`);
+  for (const o of outputs) lines.push(`  output ${o.name} [${o.dims.join('x')}] -> ${under(o.file)}`);
+  lines.push(`  index  ${under('outputs.json')}`);
   await out(lines.join('\n') + '\n');
 }

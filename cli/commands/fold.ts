@@ -1,15 +1,13 @@
 import type { Argv } from 'yargs';
 import { mkdirSync } from 'node:fs';
-import { basename, dirname, join } from 'node:path';
+import { basename, dirname, join, sep } from 'node:path';
 import { PleatError } from '../../src/errors.js';
 import type { FoldJobOptions } from '../../src/jobs/types.js';
-import { keepList, loadConfig, runSettings } from '../config.js';
+import { keepList, loadConfig, nameOrigins, runSettings } from '../config.js';
 import type { Job } from '../batch.js';
 import { checkDestinations, planReports, runAndReport } from '../output.js';
 import { checkFlags, configFlags, EPILOGUE, inputFlags, int8Flags, int8Setting, many, reportFlags, threadsFlag } from '../flags.js';
 
-export const command = 'fold <models..>';
-export const describe = 'Fold every normalization it safely can, prove each fold, write the folded model, print the ledger';
 
 export function builder(y: Argv) {
   return configFlags(checkFlags(int8Flags(reportFlags(inputFlags(y
@@ -53,7 +51,8 @@ function outputsFor(models: string[], out: string | undefined, outDir: string | 
   } catch (e) {
     throw new PleatError('bad-input', `--out-dir ${outDir}: cannot create the folder (${(e as NodeJS.ErrnoException).code ?? String(e)})`);
   }
-  return names.map((n) => join(outDir, n));
+  // paths as given: the folder the user typed, then the file name (join would rewrite ./out/ as out)
+  return names.map((n) => (outDir.endsWith('/') || outDir.endsWith(sep) ? `${outDir}${n}` : `${outDir}/${n}`));
 }
 
 function quantThreshold(db: number | undefined): number | undefined {
@@ -63,14 +62,14 @@ function quantThreshold(db: number | undefined): number | undefined {
 
 export async function handler(argv: Flags): Promise<void> {
   const plan = planReports(argv);
-  const { config } = loadConfig(argv.config);
+  const { config, file } = loadConfig(argv.config);
   const run = runSettings(config, argv);
   const outputs = outputsFor(argv.models, argv.out, argv.outDir);
   const opts: FoldJobOptions = {
     inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, probes: run.probes, gate: run.gate, maxProbeMemory: run.maxProbeMemory,
     keep: keepList(config, argv.keep), store: argv.store ?? config.store, allowOverridable: argv.allowOverridable,
     cloneShared: argv.cloneShared, externalThreshold: argv.externalDataMin, noProofs: argv.unproven, threads: threadsFlag(argv.threads),
-    strict: run.strict, saveProbes: argv.saveProbes,
+    strict: run.strict, saveProbes: argv.saveProbes, origins: nameOrigins(config, file, argv),
     equalize: argv.equalize, quantThresholdDb: quantThreshold(argv.quantThreshold), simulateInt8: int8Setting(argv),
   };
   if (argv.saveProbes !== undefined && argv.models.length > 1) throw new PleatError('usage', `--save-probes names one folder but ${argv.models.length} models were given; fold them one at a time`);

@@ -1,10 +1,8 @@
 import type { Argv } from 'yargs';
-import { survey } from '../../src/jobs/survey.js';
+import { surveyFile } from '../../src/jobs/survey.js';
 import { surveyText } from '../../src/report/survey-text.js';
+import { EXIT } from '../../src/report/exit-codes.js';
 import { out } from '../errors.js';
-
-export const command = 'survey <model>';
-export const describe = 'What a model file holds: IR version, opsets, inputs and outputs, op counts, weight bytes, normalizations';
 
 export function builder(y: Argv) {
   return y
@@ -13,6 +11,12 @@ export function builder(y: Argv) {
 }
 
 export async function handler(argv: { model: string; json: boolean }): Promise<void> {
-  const report = survey(argv.model);
+  const { report, readError } = surveyFile(argv.model);
   await out(argv.json ? JSON.stringify(report, null, 2) + '\n' : surveyText(report));
+  // the structure is shown, but a model whose weights are missing is bad input all the same
+  if (readError !== null) {
+    // the reader's own line (it names the file, the tensor and what is wrong with its data)
+    process.stderr.write(`pleat: ${readError}\n`);
+    process.exitCode = EXIT.badInput;
+  }
 }

@@ -172,14 +172,14 @@ export function summarize(o: Outcome): Summary {
     const targets = o.matches.map((m) => m.layer.label);
     return {
       status: 'foldable', direction: o.matches[0]!.rule.direction, target: targets.join(', '), targets, reason: null,
-      hint: foldHint(o.matches, o.clone), cloneBytes: o.clone ? cloneCost(o.matches[0]!) : 0,
+      hint: null, effect: foldHint(o.matches, o.clone), cloneBytes: o.clone ? cloneCost(o.matches[0]!) : 0,
     };
   }
   const k = o as Extract<Outcome, { kind: 'kept' }>;
-  return { status: 'kept', direction: k.direction, target: k.target, targets: k.target ? [k.target] : [], reason: k.reason, hint: k.hint, cloneBytes: 0 };
+  return { status: 'kept', direction: k.direction, target: k.target, targets: k.target ? [k.target] : [], reason: k.reason, hint: k.hint, effect: null, cloneBytes: 0 };
 }
 
-const keptSummary = (reason: ReasonCode, hint: string): Summary => ({ status: 'kept', reason, hint, direction: null, target: null, targets: [], cloneBytes: 0 });
+const keptSummary = (reason: ReasonCode, hint: string): Summary => ({ status: 'kept', reason, hint, effect: null, direction: null, target: null, targets: [], cloneBytes: 0 });
 
 /**
  * A LayerNormalization whose tail found no linear layer to move into is kept for its statistics, as any
@@ -224,7 +224,7 @@ export function* assessScope(ctx: FoldContext, scope: Scope, cache: StepCache): 
     }
     let summary = runSummary(s);
     if (!summary) continue;
-    if (s.kind === 'layer-norm') summary = summary.status === 'kept' ? layerNormKept(summary) : { ...summary, hint: layerNormHint(summary.targets) };
+    if (s.kind === 'layer-norm') summary = summary.status === 'kept' ? layerNormKept(summary) : { ...summary, effect: layerNormHint(summary.targets) };
     // Other constant affine steps are never listed as kept (they are listed when folded, as "also folded").
     if (kind === 'affine-step' && summary.status === 'kept') continue;
     yield { node: n, op: n.opType, kind, summary };
@@ -241,7 +241,7 @@ function writtenOutSummary(ctx: FoldContext, scope: Scope, cache: StepCache, n: 
   if (!isStep(t) || t.data !== out || entryKind(scope, t.node) !== 'normalization') return undefined;
   const summary = runSummary(t);
   if (summary?.status !== 'foldable') return undefined;
-  return { ...summary, hint: writtenOutHint(summary.targets), cloneBytes: 0 };
+  return { ...summary, effect: writtenOutHint(summary.targets), cloneBytes: 0 };
 }
 
 export function findingsOf(ctx: FoldContext, model: Model): Finding[] {

@@ -109,7 +109,7 @@ function sweep(ctx: FoldContext, model: Model, folded: LedgerEntry[], released: 
       }
       const hint = foldHint(o.matches, o.clone);
       const entry = (node: Node, op: string, kind: EntryKind, h: string, cloneBytes = 0): LedgerEntry => ({
-        node: ctx.labels.get(node) ?? node.name, op, kind, status: 'folded', direction, target, targets, reason: null, hint: h, graph: scope.path, cloneBytes,
+        node: ctx.labels.get(node) ?? node.name, op, kind, status: 'folded', direction, target, targets, reason: null, hint: null, effect: h, graph: scope.path, cloneBytes,
         ...(proof ? { proof } : {}),
       });
       // A normalization written out as primitive ops keeps its statistics; its tail moved, so it is listed as folded.

@@ -109,8 +109,17 @@ export function entryKind(scope: Scope, n: Node): EntryKind {
   return 'normalization';
 }
 
+/** Where the keep came from: the flag, or a config file the user can edit. */
+function keptHint(ctx: FoldContext, n: Node): string {
+  const origins = ctx.options.keepOrigins ?? {};
+  const from = origins[n.name] ?? origins[ctx.labels.get(n) ?? n.name];
+  return from === undefined || from.startsWith('--')
+    ? 'named with --keep; drop that flag to fold it'
+    : `listed under "keep" in ${from}; remove it there to fold it`;
+}
+
 function userRefusal(ctx: FoldContext, n: Node): Refusal | undefined {
-  if (keptByUser(ctx, n)) return refuse('kept-by-user', `named with --keep; drop that flag to fold it`);
+  if (keptByUser(ctx, n)) return refuse('kept-by-user', keptHint(ctx, n));
   if (proofFailed(ctx, n)) return refuse('proof-failed', 'the folded model did not match the original on the proof inputs; kept as it was');
   return undefined;
 }

@@ -52,6 +52,8 @@ export interface ProofCase {
 export interface FoldOptions {
   /** Node names to leave in place (--keep NODE). */
   keep?: string[];
+  /** Where each keep name came from when not from --keep (e.g. a config file), for the kept-by-user hint. */
+  keepOrigins?: Record<string, string>;
   /** Fold weights and parameters that are also graph inputs (callers may replace them at run time). */
   allowOverridable?: boolean;
   /**
@@ -93,8 +95,10 @@ export interface Finding {
   /** Weight bytes a --clone-shared copy of the layer adds (0 when nothing is cloned). */
   cloneBytes: number;
   reason: ReasonCode | null;
-  /** One line: for a kept norm, what would make it foldable; for a foldable one, what the fold does. */
-  hint: string;
+  /** For a kept norm, one line on what would make it foldable (null for a foldable one). */
+  hint: string | null;
+  /** For a foldable norm, what the fold does to its layer (null for a kept one). */
+  effect: string | null;
   graph: string;
 }
 
@@ -128,7 +132,10 @@ export interface LedgerEntry {
   targets: string[];
   cloneBytes: number;
   reason: ReasonCode | null;
-  hint: string;
+  /** For a kept norm, one line on what would make it foldable (null for a folded one). */
+  hint: string | null;
+  /** For a folded norm, what the fold did to its layer (null for a kept one). */
+  effect: string | null;
   graph: string;
   /** The figures of this fold's proof (folded entries, when proofs ran). */
   proof?: ProofFigures;

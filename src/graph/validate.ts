@@ -7,11 +7,12 @@ import { isKnownDataType, storedElementCount, dataTypeName } from './tensor.js';
 import { topoOrder } from './topo.js';
 import { nameTable } from './names.js';
 
-function checkTensor(t: Tensor, where: string): void {
+function checkTensor(t: Tensor, where: string, externalLoaded: boolean): void {
   if (!isKnownDataType(t.dataType)) {
     throw new PleatError('bad-model', `${where}: tensor '${t.name}' has unknown data type ${t.dataType}`);
   }
   if (t.storage.kind === 'string_data' || t.dataType === 8) return;
+  if (t.storage.kind === 'external' && !externalLoaded) return; // structure only: the bytes stay on disk
   const need = elementCount(t.dims);
   const have = storedElementCount(t);
   if (have < need) {
@@ -23,7 +24,7 @@ function checkTensor(t: Tensor, where: string): void {
  * `outerHas` answers for the enclosing graphs: a subgraph may read their values. It is a lookup, not a copy of
  * the outer names, so a graph with many If/Loop bodies costs time linear in its size.
  */
-function validateGraph(g: Graph, outerHas: (v: string) => boolean, path: string): void {
+function validateGraph(g: Graph, outerHas: (v: string) => boolean, path: string, externalLoaded: boolean): void {
   // Who writes each value, as (kind, index) by name id: the description is only built for an error.
   let bound = g.inputs.length + g.initializers.length;
   for (const n of g.nodes) bound += n.outputs.length;
@@ -43,13 +44,13 @@ function validateGraph(g: Graph, outerHas: (v: string) => boolean, path: string)
   };
   g.inputs.forEach((v, i) => own(v.name, 1, i));
   g.initializers.forEach((t, i) => {
-    checkTensor(t, path);
+    checkTensor(t, path, externalLoaded);
     own(t.name, 2, i, true); // two initializers of one name are refused: runtimes bind different ones
   });
   g.nodes.forEach((n, j) => {
     for (const o of n.outputs) if (o) own(o, 3, j);
     for (const a of n.attributes) {
-      if (a.value.type === 'TENSOR') checkTensor(a.value.t, `${path} node '${n.name || n.opType}'`);
+      if (a.value.type === 'TENSOR') checkTensor(a.value.t, `${path} node '${n.name || n.opType}'`, externalLoaded);
     }
   });
   const has = (v: string): boolean => names.id(v) >= 0 || outerHas(v);
@@ -67,11 +68,12 @@ function validateGraph(g: Graph, outerHas: (v: string) => boolean, path: string)
   for (const n of g.nodes) {
     for (const a of n.attributes) {
       const sgs = a.value.type === 'GRAPH' ? [a.value.g] : a.value.type === 'GRAPHS' ? a.value.graphs : [];
-      sgs.forEach((sg, k) => validateGraph(sg, has, `${path}/${n.name || n.opType}.${a.name}${sgs.length > 1 ? `[${k}]` : ''}`));
+      sgs.forEach((sg, k) => validateGraph(sg, has, `${path}/${n.name || n.opType}.${a.name}${sgs.length > 1 ? `[${k}]` : ''}`, externalLoaded));
     }
   }
 }
 
-export function validateModel(m: Model): void {
-  validateGraph(m.graph, () => false, m.graph.name ? `graph '${m.graph.name}'` : 'main graph');
+/** `externalLoaded: false` when external tensors were left on disk (their sizes are not checked then). */
+export function validateModel(m: Model, opts: { externalLoaded?: boolean } = {}): void {
+  validateGraph(m.graph, () => false, m.graph.name ? `graph '${m.graph.name}'` : 'main graph', opts.externalLoaded ?? true);
 }

@@ -2,10 +2,14 @@
 import type { Model } from '../graph/ir.js';
 import { readModelFile } from '../onnx/read.js';
 import { analyze } from '../fold/index.js';
+import { checkJobNames } from './names.js';
+import { checkOpset } from '../graph/opsets.js';
 import { SCHEMA_VERSION, type AuditJobOptions, type AuditReport } from './types.js';
 
 export function auditLoaded(model: Model, label: string, opts: AuditJobOptions = {}): AuditReport {
-  const findings = analyze(model, { keep: opts.keep, allowOverridable: opts.allowOverridable, cloneShared: opts.cloneShared });
+  checkOpset(model, label);
+  checkJobNames(model, label, opts);
+  const findings = analyze(model, { keep: opts.keep, keepOrigins: opts.origins?.keep, allowOverridable: opts.allowOverridable, cloneShared: opts.cloneShared });
   const norms = findings.filter((f) => f.kind === 'normalization');
   const kept = norms.filter((f) => f.status === 'kept').length;
   return {

@@ -2,7 +2,7 @@
 // bundle for device runtimes. Nothing is written when a gate fails.
 import { readModelFile } from '../onnx/read.js';
 import { join } from 'node:path';
-import { planBundle, writeAll, type BundleFormat, type BundleResult } from '../ship/bundle.js';
+import { asGiven, planBundle, writeAll, type BundleFormat, type BundleResult } from '../ship/bundle.js';
 import { sideFilePaths } from '../onnx/external.js';
 import { OutputSet } from './outputs.js';
 import { foldLoaded } from './fold.js';
@@ -31,5 +31,5 @@ export function exportFile(input: string, dir: string, format: BundleFormat = 's
     tx.abort();
     throw e;
   }
-  return { fold, bundle: planned.result };
+  return { fold, bundle: asGiven(planned.result, dir) };
 }

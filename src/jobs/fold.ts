@@ -19,6 +19,8 @@ import { setThreads } from '../eval/threads.js';
 import { QUANT_THRESHOLD_DB, quantReadiness, roundedWeightsModel } from '../fold/quant.js';
 import { equalizeModel } from '../fold/equalize.js';
 import type { Int8Granularity } from '../fold/int8.js';
+import { checkJobNames } from './names.js';
+import { checkOpset } from '../graph/opsets.js';
 import { compare, type ProbeRecord } from '../verify/compare.js';
 import { checkProbeDir, saveProbeSets } from '../verify/probe-files.js';
 import type { RewrittenNode } from '../fold/types.js';
@@ -180,6 +182,8 @@ export function int8Simulation(original: Model, folded: Model, granularity: Int8
 export function foldLoaded(model: Model, original: Model | undefined, label: string, opts: FoldJobOptions, lateRangeCheck = false, ship?: (m: Model) => Model,
   onProbe?: (p: ProbeRecord) => void): FoldReport {
   if (opts.strict && opts.noProofs) throw new PleatError('usage', '--strict needs the whole-model check, which --unproven leaves out: give one of them');
+  checkOpset(model, label);
+  checkJobNames(model, label, opts);
   // the proofs and the check run within the probe memory limit (src/eval/budget.ts)
   return withProbeMemory(opts.maxProbeMemory, () => foldWithin(model, original, label, opts, lateRangeCheck, ship, onProbe));
 }
@@ -202,6 +206,7 @@ function foldWithin(model: Model, original: Model | undefined, label: string, op
   if (original && !opts.noProofs) checkProbeFits(original, opts);
   const { ledger, rewritten } = foldModel(model, {
     keep: opts.keep,
+    keepOrigins: opts.origins?.keep,
     allowOverridable: opts.allowOverridable,
     cloneShared: opts.cloneShared,
     inputShapes: asMap(opts.shapes),
@@ -216,12 +221,13 @@ function foldWithin(model: Model, original: Model | undefined, label: string, op
     : [];
   const quantThresholdDb = opts.quantThresholdDb ?? QUANT_THRESHOLD_DB;
   const int8 = original && !opts.noProofs && opts.simulateInt8 ? int8Simulation(original, model, opts.simulateInt8, opts) : null;
+  // quantization readiness reads the folded float32 weights, so it runs before half-precision storage
+  const quantization = original ? quantReadiness(original, model, ledger.normalizations, quantThresholdDb) : [];
   let storage: StorageSummary | null = null;
   if (opts.store === 'float16') {
     const r = storeFloat16(model);
     storage = { store: 'float16', ...r };
   }
-  const quantization = original ? quantReadiness(original, model, ledger.normalizations, quantThresholdDb) : [];
   // the gate may name `sqnr`: the lowest worst-channel per-tensor 8-bit SQNR of the folded layers (dB)
   const sqnr = Math.min(Infinity, ...quantization.map((q) => q.sqnrAfter.worstChannel));
   // the rewritten nodes, by graph path and output, so the check finds them again in the copy read from disk
@@ -238,6 +244,8 @@ function foldWithin(model: Model, original: Model | undefined, label: string, op
     output: null,
     ...ledger,
     bytesAfter: ledger.bytesAfter - (storage ? storage.bytesBefore - storage.bytesAfter : 0),
+    // the Cast nodes half-precision storage adds are nodes of the written model
+    nodesAfter: ledger.nodesAfter + (storage?.castNodes ?? 0),
     check,
     quantization,
     quantThresholdDb,

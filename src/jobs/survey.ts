@@ -1,9 +1,12 @@
 // `survey`: what a model file holds, for people and scripts.
-import type { Dim, Graph, Model, ValueInfo } from '../graph/ir.js';
+import { statSync } from 'node:fs';
+import type { Dim, Graph, Model, Tensor, ValueInfo } from '../graph/ir.js';
 import { subgraphsOf } from '../graph/ir.js';
-import { dataTypeName, tensorByteSize } from '../graph/tensor.js';
-import { externalBytes } from '../onnx/external.js';
+import { bytesPerElement, dataTypeName, tensorByteSize } from '../graph/tensor.js';
+import { eachTensor, externalRef, resolveLocation } from '../onnx/external.js';
 import { readModelFile } from '../onnx/read.js';
+import { isPleatError } from '../errors.js';
+import { SCHEMA_VERSION } from './types.js';
 import { evaluatorGaps, type EvaluatorGap } from '../eval/coverage.js';
 
 export const NORMALIZATION_OPS = [
@@ -13,7 +16,12 @@ export const NORMALIZATION_OPS = [
 
 export interface SurveyValue { name: string; type: string; dims: Array<number | string | null> | null }
 
+/** An external tensor whose bytes survey could not find (the structure is still surveyed). */
+export interface MissingData { tensor: string; location: string; problem: string }
+
 export interface SurveyReport {
+  schemaVersion: number;
+  command: 'survey';
   file: string | null;
   irVersion: number;
   opsets: Array<{ domain: string; version: number }>;
@@ -27,7 +35,10 @@ export interface SurveyReport {
   opCounts: Array<{ op: string; count: number }>;
   initializers: { count: number; bytes: number };
   constantNodes: { count: number; bytes: number };
+  /** Bytes the external tensors declare (their dims times element size). */
   externalBytes: number;
+  /** External tensors whose side file is missing or too short: empty when every byte is there. */
+  missingData: MissingData[];
   normalizations: Array<{ op: string; count: number }>;
   /**
    * Whether pleat's evaluator can run every operator (so the whole-model check of a fold can run), and the
@@ -44,18 +55,56 @@ function describeValue(v: ValueInfo): SurveyValue {
   };
 }
 
-export function surveyModel(model: Model, file: string | null = null): SurveyReport {
+/** Bytes a tensor's dims need (external tensors left unloaded hold none yet). */
+function declaredBytes(t: Tensor): number {
+  if (t.storage.kind !== 'external' || t.storage.bytes.byteLength > 0) return tensorByteSize(t);
+  const per = bytesPerElement(t.dataType) ?? 0;
+  return t.dims.reduce((a, d) => a * Number(d), 1) * per;
+}
+
+/** External tensors whose side file cannot be opened or is shorter than offset + length. */
+function missingExternal(model: Model, label: string): MissingData[] {
+  const out: MissingData[] = [];
+  eachTensor(model.graph, (t) => {
+    if (t.storage.kind !== 'external' || t.storage.bytes.byteLength > 0) return;
+    let location = '?';
+    try {
+      const ref = externalRef(t, label);
+      location = ref.location;
+      const path = resolveLocation(model.baseDir, ref.location, label, t.name);
+      let size: number;
+      try {
+        const st = statSync(path);
+        if (!st.isFile()) { out.push({ tensor: t.name, location, problem: `'${location}' cannot be opened (not a regular file)` }); return; }
+        size = st.size;
+      } catch {
+        out.push({ tensor: t.name, location, problem: `'${location}' cannot be opened (no such file)` });
+        return;
+      }
+      const length = ref.length ?? declaredBytes(t);
+      if (ref.offset + length > size) {
+        out.push({ tensor: t.name, location, problem: `offset ${ref.offset}, length ${length} runs past the end of '${location}' (${size} bytes)` });
+      }
+    } catch (e) {
+      if (!isPleatError(e)) throw e;
+      out.push({ tensor: t.name, location, problem: e.message.replace(`${label}: `, '') });
+    }
+  });
+  return out;
+}
+
+export function surveyModel(model: Model, file: string | null = null, missingData: MissingData[] = []): SurveyReport {
   const counts = new Map<string, number>();
   let nodeCount = 0, subgraphCount = 0, initCount = 0, initBytes = 0, constCount = 0, constBytes = 0;
   const walk = (g: Graph) => {
-    for (const t of g.initializers) { initCount++; initBytes += tensorByteSize(t); }
+    for (const t of g.initializers) { initCount++; initBytes += declaredBytes(t); }
     for (const n of g.nodes) {
       nodeCount++;
       const op = n.domain && n.domain !== 'ai.onnx' ? `${n.domain}.${n.opType}` : n.opType;
       counts.set(op, (counts.get(op) ?? 0) + 1);
       if (n.opType === 'Constant') {
         constCount++;
-        for (const a of n.attributes) if (a.value.type === 'TENSOR') constBytes += tensorByteSize(a.value.t);
+        for (const a of n.attributes) if (a.value.type === 'TENSOR') constBytes += declaredBytes(a.value.t);
       }
       for (const sg of subgraphsOf(n)) { subgraphCount++; walk(sg); }
     }
@@ -64,7 +113,11 @@ export function surveyModel(model: Model, file: string | null = null): SurveyRep
   const gaps = evaluatorGaps(model);
   const opCounts = [...counts].map(([op, count]) => ({ op, count }))
     .sort((a, b) => b.count - a.count || (a.op < b.op ? -1 : a.op > b.op ? 1 : 0));
+  let external = 0;
+  eachTensor(model.graph, (t) => { if (t.storage.kind === 'external') external += declaredBytes(t); });
   return {
+    schemaVersion: SCHEMA_VERSION,
+    command: 'survey',
     file,
     irVersion: model.irVersion,
     opsets: model.opsets.map((o) => ({ domain: o.domain || 'ai.onnx', version: o.version })),
@@ -76,12 +129,35 @@ export function surveyModel(model: Model, file: string | null = null): SurveyRep
     opCounts,
     initializers: { count: initCount, bytes: initBytes },
     constantNodes: { count: constCount, bytes: constBytes },
-    externalBytes: externalBytes(model),
+    externalBytes: external,
+    missingData,
     normalizations: opCounts.filter((c) => (NORMALIZATION_OPS as readonly string[]).includes(c.op)),
     evaluator: { runsAll: gaps.length === 0, cannotRun: gaps },
   };
 }
 
+/**
+ * Survey a file. When some external data cannot be read, the structure is still surveyed (from the model file
+ * alone) and `missingData` lists each tensor whose bytes are missing.
+ */
 export function survey(path: string): SurveyReport {
-  return surveyModel(readModelFile(path), path);
+  return surveyFile(path).report;
+}
+
+/** survey, plus the reader's own one-line message when some external data could not be read (else null). */
+export function surveyFile(path: string): { report: SurveyReport; readError: string | null } {
+  try {
+    return { report: surveyModel(readModelFile(path), path), readError: null };
+  } catch (e) {
+    if (!isPleatError(e)) throw e;
+    let model: Model;
+    try {
+      model = readModelFile(path, undefined, { externalData: 'leave' });
+    } catch {
+      throw e; // the structure itself is unreadable: the first error says why
+    }
+    const missing = missingExternal(model, path);
+    if (!missing.length) throw e;
+    return { report: surveyModel(model, path, missing), readError: e.message };
+  }
 }

@@ -5,12 +5,13 @@ import type { AssumedDim, InputOptions } from '../verify/inputs.js';
 import type { CheckStatus, Coverage, SkipInfo } from '../verify/status.js';
 import type { OutputStatus } from '../verify/compare.js';
 import type { QuantRow } from '../fold/quant.js';
+import type { NameOrigins } from './names.js';
 import type { EqualizedPair } from '../fold/equalize.js';
 import type { Int8Granularity } from '../fold/int8.js';
 
 export type { QuantRow, EqualizedPair, Int8Granularity, AssumedDim, CheckStatus, Coverage, OutputStatus, SkipInfo };
 
-export const SCHEMA_VERSION = 5;
+export const SCHEMA_VERSION = 6;
 
 export interface OutputCheck {
   name: string;
@@ -61,6 +62,10 @@ export interface StorageSummary {
   tensorsConverted: number;
   /** Tensors that would overflow float16 and stayed float32. */
   keptFloat32: string[];
+  /** Other linear-layer weights that stayed float32, each with the reason. */
+  skipped: Array<{ tensor: string; reason: string }>;
+  /** Cast nodes added to read the half-precision weights back as float32 (counted in nodesAfter). */
+  castNodes: number;
   bytesBefore: number;
   bytesAfter: number;
 }
@@ -107,6 +112,14 @@ export interface AuditReport {
   failed: boolean;
 }
 
+/** How the names the user gave are checked against the model (see jobs/names.ts). */
+export interface NameCheckOptions {
+  /** Where --keep, --dim and --shape names came from (flags unless listed), for messages and hints. */
+  origins?: NameOrigins;
+  /** The caller checked the names across a whole batch already (a name must match in at least one model). */
+  namesChecked?: boolean;
+}
+
 /** One output of an 8-bit weight simulation: each model with rounded weights against the original in float64. */
 export interface Int8Output {
   name: string;
@@ -123,7 +136,7 @@ export interface Int8Simulation {
   outputs: Int8Output[];
 }
 
-export interface FoldJobOptions extends InputOptions {
+export interface FoldJobOptions extends InputOptions, NameCheckOptions {
   keep?: string[];
   /** Give a norm its own copy of a producer whose output has other readers (--clone-shared). */
   cloneShared?: boolean;
@@ -151,10 +164,12 @@ export interface FoldJobOptions extends InputOptions {
   saveProbes?: string;
 }
 
-export interface AuditJobOptions {
+export interface AuditJobOptions extends NameCheckOptions {
   keep?: string[];
   /** Judge as fold --clone-shared would. */
   cloneShared?: boolean;
+  dims?: InputOptions['dims'];
+  shapes?: InputOptions['shapes'];
   allowOverridable?: boolean;
   failOn?: 'kept';
 }

@@ -361,7 +361,7 @@ export function parseTensor(bytes: Uint8Array): Tensor {
  * Parse model bytes, load external data relative to baseDir, and check the graph's structure. Tensors are views
  * into `bytes` (no copies), so an edit made in place writes into them: pass a copy to keep the original.
  */
-export function parseModel(bytes: Uint8Array, baseDir: string, label = 'model', redirect?: ReadonlyMap<string, string>): Model {
+export function parseModel(bytes: Uint8Array, baseDir: string, label = 'model', redirect?: ReadonlyMap<string, string>, opts: ReadOptions = {}): Model {
   if (bytes.byteLength === 0) throw new PleatError('bad-model', `${label}: the file is empty`);
   let model: Model;
   try {
@@ -374,9 +374,9 @@ export function parseModel(bytes: Uint8Array, baseDir: string, label = 'model', 
   if (model.irVersion <= 0 || model.opsets.length === 0 && model.irVersion >= 3) {
     throw new PleatError('bad-model', `${label}: not an ONNX model (no IR version or opset import)`);
   }
-  loadExternalData(model, label, redirect);
+  if (opts.externalData !== 'leave') loadExternalData(model, label, redirect);
   try {
-    validateModel(model);
+    validateModel(model, { externalLoaded: opts.externalData !== 'leave' });
   } catch (e) {
     if (e instanceof PleatError) throw new PleatError(e.kind, `${label}: ${e.message}`);
     throw e;
@@ -384,11 +384,14 @@ export function parseModel(bytes: Uint8Array, baseDir: string, label = 'model', 
   return model;
 }
 
+/** `externalData: 'leave'` reads the structure only: external tensors keep no bytes (survey of a model whose side file is missing). */
+export interface ReadOptions { externalData?: 'load' | 'leave' }
+
 /**
  * Read a .onnx file. The file is read once and never written. `redirect` maps side-file paths (as the model names
  * them, resolved) to the files to read instead: a staged output is read back before its side files are renamed in.
  */
-export function readModelFile(path: string, redirect?: ReadonlyMap<string, string>): Model {
+export function readModelFile(path: string, redirect?: ReadonlyMap<string, string>, opts: ReadOptions = {}): Model {
   let st;
   try {
     st = statSync(path);
@@ -408,7 +411,7 @@ export function readModelFile(path: string, redirect?: ReadonlyMap<string, strin
   } finally {
     if (fd !== undefined) closeSync(fd);
   }
-  const model = parseModel(bytes, dirname(resolve(path)), path, redirect);
+  const model = parseModel(bytes, dirname(resolve(path)), path, redirect, opts);
   model.sourcePath = resolve(path);
   return model;
 }

@@ -1,12 +1,11 @@
 // audit's report as text: the same ledger lines fold prints (status foldable or kept), a totals line, the
-// --fail-on verdict, and the caution lines.
+// --fail-on verdict. No caution lines: they are about agreement on probe inputs, and audit runs no probes.
 import type { AuditReport } from '../jobs/types.js';
-import { CAUTION } from './format.js';
 import { alsoLines, cloneClause, ledgerLines } from './ledger-text.js';
 import { plural } from './format.js';
 import { paint } from './paint.js';
 
-export function auditText(r: AuditReport, colour = false, caution = true): string {
+export function auditText(r: AuditReport, colour = false): string {
   const p = paint(colour);
   const lines = [p.bold(`audit ${r.model}`)];
   const norms = r.normalizations.filter((e) => e.kind !== 'affine-step');
@@ -15,6 +14,5 @@ export function auditText(r: AuditReport, colour = false, caution = true): strin
   const also = r.alsoFoldable ? ` (and ${plural(r.alsoFoldable, 'affine step')} also foldable)` : '';
   lines.push(`  ${r.foldable} foldable, ${r.kept} kept${also}${cloneClause(r.normalizations)}`);
   if (r.failOn === 'kept') lines.push(r.failed ? p.bad(`--fail-on kept: FAILED (${r.kept} kept)`) : p.good('--fail-on kept: passed'));
-  if (caution) lines.push(...CAUTION);
   return lines.join('\n') + '\n';
 }

@@ -10,6 +10,10 @@ export function compareText(r: CompareReport, a: string, b: string, colour = fal
   const lines = [p.bold(`compare ${a} with ${b}: `) + verdict + ` (${plural(r.probes, 'probe')}, seed ${r.seed})`];
   if (r.skipped) lines.push(`  ${r.skipped.message}`);
   for (const d of r.assumedDims) lines.push(`  probe dim ${d.symbol} = ${d.size} (no --dim given) for input ${d.inputs.join(', ')}`);
+  const half = [['A', r.halfPrecisionWeights.a], ['B', r.halfPrecisionWeights.b]].filter(([, n]) => (n as number) > 0);
+  for (const [side, n] of half) {
+    lines.push(`  model ${side} stores ${plural(n as number, 'weight')} in half precision (cast to float32 where read): float32 outputs are judged by the float16 gate`);
+  }
   if (r.int8Weights) {
     const g = r.int8Weights.granularity === 'tensor' ? 'one scale per tensor' : 'one scale per output channel';
     lines.push(`  model B ran with 8-bit weights: ${plural(r.int8Weights.layers, 'Conv/Gemm/MatMul layer')} rounded through symmetric quantize-dequantize, ${g}`);

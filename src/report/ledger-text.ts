@@ -9,7 +9,7 @@ import { paint, type Paint } from './paint.js';
 const where = (graph: string) => (graph === 'main' ? '' : `  in ${graph}`);
 
 /** One ledger line per entry, columns padded to the widest node and op of this report. */
-export function ledgerLines(entries: ReadonlyArray<Pick<LedgerEntry, 'node' | 'op' | 'direction' | 'target' | 'reason' | 'hint' | 'graph'> & { status: string; proof?: ProofFigures }>, p: Paint): string[] {
+export function ledgerLines(entries: ReadonlyArray<Pick<LedgerEntry, 'node' | 'op' | 'direction' | 'target' | 'reason' | 'hint' | 'effect' | 'graph'> & { status: string; proof?: ProofFigures }>, p: Paint): string[] {
   const nodeW = Math.max(0, ...entries.map((e) => e.node.length));
   const opW = Math.max(0, ...entries.map((e) => e.op.length));
   return entries.map((e) => {
@@ -18,7 +18,7 @@ export function ledgerLines(entries: ReadonlyArray<Pick<LedgerEntry, 'node' | 'o
       return `  ${p.warn('kept     ')}${head}  ${p.warn(e.reason ?? 'kept')}: ${e.hint}${where(e.graph)}`;
     }
     const mark = e.status === 'folded' ? p.good('folded   ') : p.good('foldable ');
-    return `  ${mark}${head}  into ${e.target ?? '?'} (${e.direction ?? '?'}): ${e.hint}${where(e.graph)}${e.proof ? `  ${proofText(e.proof)}` : ''}`;
+    return `  ${mark}${head}  into ${e.target ?? '?'} (${e.direction ?? '?'}): ${e.effect}${where(e.graph)}${e.proof ? `  ${proofText(e.proof)}` : ''}`;
   });
 }
 
@@ -121,8 +121,9 @@ export function int8Lines(s: Int8Simulation | null): string[] {
 
 export function storageLines(s: StorageSummary | null): string[] {
   if (s === null) return [];
-  const lines = [`storage ${s.store}: ${plural(s.tensorsConverted, 'tensor')} converted, ${bytesText(s.bytesBefore)} -> ${bytesText(s.bytesAfter)} (${bytesText(Math.max(0, s.bytesBefore - s.bytesAfter))} saved)`];
+  const lines = [`storage ${s.store}: ${plural(s.tensorsConverted, 'tensor')} converted (${plural(s.castNodes, 'Cast node')} added), ${bytesText(s.bytesBefore)} -> ${bytesText(s.bytesAfter)} (${s.bytesBefore >= s.bytesAfter ? `${bytesText(s.bytesBefore - s.bytesAfter)} saved` : `grew by ${bytesText(s.bytesAfter - s.bytesBefore)}`})`];
   if (s.keptFloat32.length) lines.push(`  kept float32 (would overflow float16): ${s.keptFloat32.join(', ')}`);
+  for (const k of s.skipped) lines.push(`  kept float32: ${k.tensor} (${k.reason})`);
   return lines;
 }
 
@@ -156,8 +157,10 @@ export function foldText(r: FoldReport, colour = false, caution = true): string 
   const nodesRemoved = r.nodesBefore - r.nodesAfter;
   const bytesRemoved = r.bytesBefore - r.bytesAfter;
   const alsoText = also ? ` (and ${plural(also, 'affine step')} also folded)` : '';
-  lines.push(`  ${folded} folded, ${kept} kept${alsoText}; ${plural(nodesRemoved, 'node')} removed (${r.nodesBefore} -> ${r.nodesAfter}); ` +
-    `${bytesText(Math.max(0, bytesRemoved))} of weights saved (${bytesText(r.bytesBefore)} -> ${bytesText(r.bytesAfter)})${cloneClause(r.normalizations)}`);
+  // a fold can also grow a model (cloned shared weights, Cast nodes of half-precision storage): say which way
+  const nodes = nodesRemoved >= 0 ? `${plural(nodesRemoved, 'node')} removed` : `${plural(-nodesRemoved, 'node')} added`;
+  const weights = bytesRemoved >= 0 ? `${bytesText(bytesRemoved)} of weights saved` : `weights grew by ${bytesText(-bytesRemoved)}`;
+  lines.push(`  ${folded} folded, ${kept} kept${alsoText}; ${nodes} (${r.nodesBefore} -> ${r.nodesAfter}); ${weights} (${bytesText(r.bytesBefore)} -> ${bytesText(r.bytesAfter)})${cloneClause(r.normalizations)}`);
   lines.push(...checkLines(r.check, p), ...quantLines(r.quantization, r.quantThresholdDb, p), ...equalizeLines(r.equalized, p), ...int8Lines(r.int8), ...storageLines(r.storage));
   if (r.probesSaved) lines.push(`probes saved: ${plural(r.probesSaved.sets, 'set')} in ${r.probesSaved.dir} (ONNX backend test-data layout; float32-arithmetic outputs in ${r.probesSaved.dir}/float32)`);
   if (caution) lines.push(...CAUTION);

@@ -12,7 +12,7 @@ export function cell(s: string): string {
 }
 const code = (s: string) => `\`${s.replace(/`/g, "'")}\``;
 
-interface Row { node: string; op: string; kind: string; status: string; direction: string | null; target: string | null; reason: string | null; hint: string; graph: string; proof?: ProofFigures }
+interface Row { node: string; op: string; kind: string; status: string; direction: string | null; target: string | null; reason: string | null; hint: string | null; graph: string; proof?: ProofFigures }
 
 const proofCell = (f: ProofFigures) => `; proof on ${f.shape.join('x') || 'scalar'}: maxAbs ${numText(f.maxAbs)}, maxRel ${numText(f.maxRel)}`;
 
@@ -87,13 +87,14 @@ export function foldMarkdown(r: FoldReport): string {
 export function auditMarkdown(r: AuditReport): string {
   const verdict = r.failed ? 'failed (--fail-on kept)' : 'done';
   const out = [`### pleat audit ${code(r.model)}: ${verdict}`, '', `**${r.foldable} foldable, ${r.kept} kept.**`, ''];
-  out.push(...table(r.normalizations), ...alsoLine(r.normalizations, 'foldable'), ...caution());
+  out.push(...table(r.normalizations), ...alsoLine(r.normalizations, 'foldable')); // no probe caution: audit runs no probes
   return out.join('\n') + '\n';
 }
 
 export function compareMarkdown(r: CompareReport, a: string, b: string): string {
   const out = [`### pleat compare ${code(a)} with ${code(b)}: ${r.status}`, '',
-    `${r.probes} probe(s), seed ${r.seed}.` + (r.skipped ? ` Skipped (${code(r.skipped.reason)}): ${cell(r.skipped.message)}` : ''), '',
+    `${r.probes} probe(s), seed ${r.seed}.` + (r.skipped ? ` Skipped (${code(r.skipped.reason)}): ${cell(r.skipped.message)}` : '') +
+      (r.halfPrecisionWeights.a + r.halfPrecisionWeights.b > 0 ? ' Weights stored in half precision: float32 outputs judged by the float16 gate.' : ''), '',
     ...r.assumedDims.map((d) => `Probe dim ${code(d.symbol)} = ${d.size} (no \`--dim\` given).`),
     '| output | result | maxAbs | maxRel | cosine |', '|---|---|---|---|---|'];
   for (const o of r.outputs) {

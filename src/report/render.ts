@@ -38,7 +38,7 @@ type Kind = 'fold' | 'audit';
 export function renderJobs(command: Kind, outcomes: ReadonlyArray<Outcome<FoldReport | AuditReport>>, format: Format, colour = false): string {
   const single = outcomes.length === 1 ? outcomes[0] : undefined;
   const textOf = (r: FoldReport | AuditReport, caution: boolean) =>
-    r.command === 'fold' ? foldText(r, colour, caution) : auditText(r, colour, caution);
+    r.command === 'fold' ? foldText(r, colour, caution) : auditText(r, colour);
   switch (format) {
     case 'json': {
       if (single && !isJobError(single)) return toJsonText(single.report);
@@ -51,7 +51,8 @@ export function renderJobs(command: Kind, outcomes: ReadonlyArray<Outcome<FoldRe
     case 'text': {
       if (single && !isJobError(single)) return textOf(single.report, true);
       const parts = outcomes.map((o) => (isJobError(o) ? `${command} ${o.model}: error: ${o.error.message}\n` : textOf(o.report, false)));
-      return parts.join('\n') + CAUTION.join('\n') + '\n';
+      // the probe caution belongs to fold (audit runs no probes)
+      return parts.join('\n') + (command === 'fold' ? CAUTION.join('\n') + '\n' : '');
     }
     case 'markdown':
       return outcomes.map((o) => (isJobError(o) ? errorMarkdown(command, o.model, o.error.message)

@@ -6,7 +6,8 @@ export function surveyText(r: SurveyReport): string {
   const lines: string[] = [];
   const pad = (label: string) => label.padEnd(10);
   lines.push(`${r.file ?? 'model'}`);
-  lines.push(`  ${pad('format')}IR ${r.irVersion}; opsets ${r.opsets.map((o) => `${o.domain} ${o.version}`).join(', ')}`);
+  lines.push(`  ${pad('ir')}${r.irVersion}`);
+  r.opsets.forEach((o, i) => lines.push(`  ${pad(i === 0 ? 'opsets' : '')}${o.domain} ${o.version}`));
   lines.push(`  ${pad('producer')}${r.producer.name || '(none)'}${r.producer.version ? ` ${r.producer.version}` : ''}`);
   for (const [label, list] of [['inputs', r.inputs], ['outputs', r.outputs]] as const) {
     if (!list.length) lines.push(`  ${pad(label)}(none)`);
@@ -18,6 +19,9 @@ export function surveyText(r: SurveyReport): string {
   lines.push(`  ${pad('weights')}${r.initializers.count} initializers, ${bytesText(r.initializers.bytes)}` +
     (r.constantNodes.count ? `; ${r.constantNodes.count} Constant nodes, ${bytesText(r.constantNodes.bytes)}` : '') +
     `; external ${bytesText(r.externalBytes)}`);
+  if (r.missingData.length) {
+    r.missingData.forEach((m, i) => lines.push(`  ${pad(i === 0 ? 'missing' : '')}${m.tensor}: ${m.problem}`));
+  }
   lines.push(`  ${pad('norms')}${r.normalizations.length ? r.normalizations.map((n) => `${n.op} ${n.count}`).join(', ') : 'no normalization nodes'}`);
   if (r.evaluator.runsAll) lines.push(`  ${pad('check')}the evaluator can run every operator (the whole-model check needs no more than input shapes)`);
   else {

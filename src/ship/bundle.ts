@@ -4,7 +4,7 @@
 // renamed into place together, so a failure leaves no partial bundle.
 import { ensureLoaded } from '../onnx/sparse-read.js';
 import { closeSync, mkdirSync, openSync, renameSync, rmSync, statSync, writeSync } from 'node:fs';
-import { basename, join, resolve } from 'node:path';
+import { basename, join, resolve, sep } from 'node:path';
 import { DataType, elementCount, type Attribute, type DataTypeCode, type Graph, type Model, type Tensor, type ValueInfo } from '../graph/ir.js';
 import { PleatError } from '../errors.js';
 import { bfloatBitsToNumber, bytesPerElement, dataTypeName, halfBitsToNumber } from '../graph/tensor.js';
@@ -27,7 +27,7 @@ export interface SkippedTensor {
 export interface BundleResult {
   format: BundleFormat;
   dir: string;
-  /** Absolute paths of the files written, manifest last. */
+  /** Paths of the files written, under `dir` as the caller gave it, manifest last. */
   files: string[];
   tensors: number;
   /** Bytes of tensor data in the bundle. */
@@ -381,7 +381,13 @@ export function prepareDir(dir: string): string {
 export function exportBundle(model: Model, dir: string, format: BundleFormat): BundleResult {
   const planned = planBundle(model, dir, format);
   writeFilesAtomically(planned.result.dir, planned.files, model.sourcePath);
-  return planned.result;
+  return asGiven(planned.result, dir);
+}
+
+/** The result with the folder and files named as the caller gave the folder (reports print paths as given). */
+export function asGiven(result: BundleResult, dir: string): BundleResult {
+  const under = (name: string) => (dir.endsWith('/') || dir.endsWith(sep) ? `${dir}${name}` : `${dir}/${name}`);
+  return { ...result, dir, files: result.files.map((f) => under(basename(f))) };
 }
 
 /** Decide a bundle's files and their contents (nothing is written; the folder is created if missing). */

@@ -3,7 +3,7 @@
 // budget adds A and B in float32 against the same reference, so a report can tell error the rewrite added
 // from rounding the model already had. Agreement on probe inputs is evidence, not proof, of agreement on real
 // data.
-import { subgraphsOf, type DataTypeCode, type Graph, type Model, type Node } from '../graph/ir.js';
+import { attrInt, DataType, subgraphsOf, type DataTypeCode, type Graph, type Model, type Node } from '../graph/ir.js';
 import { isRandomOp } from '../eval/registry.js';
 import { basename } from 'node:path';
 import type { Precision, Value } from '../eval/value.js';
@@ -13,7 +13,7 @@ import { checkProbeEstimate } from './probe-budget.js';
 import { PleatError } from '../errors.js';
 import { dataTypeName } from '../graph/tensor.js';
 import { computeMetrics, worstOf, type Metrics } from './metrics.js';
-import { BUDGET_NAMES, defaultGateFor, defaultGateKey, INT8_WEIGHTS_GATE, METRIC_NAMES, parseGate, type Gate, type GateScope } from './gate.js';
+import { BUDGET_NAMES, DEFAULT_GATES, defaultGateFor, defaultGateKey, INT8_WEIGHTS_GATE, METRIC_NAMES, parseGate, type Gate, type GateScope } from './gate.js';
 import { roundedWeightsModel } from '../fold/quant.js';
 import type { Int8Granularity } from '../fold/int8.js';
 import {
@@ -125,6 +125,11 @@ export interface CompareReport {
   skipped: SkipInfo | null;
   /** status === 'passed'. */
   passed: boolean;
+  /**
+   * Weights each model stores in half precision and casts to float32 where read (as fold --store float16
+   * writes them): then float32 outputs are judged by the float16 gate, since the weights carry float16 rounding.
+   */
+  halfPrecisionWeights: { a: number; b: number };
   /** The arithmetic of the judged runs. */
   arithmetic: Precision;
   seed: number;
@@ -149,6 +154,24 @@ const LOOSENESS = ['exact', 'float64', 'float32', 'float16', 'bfloat16'] as cons
 function defaultGate(a: DataTypeCode, b: DataTypeCode | undefined): string {
   if (b === undefined) return defaultGateFor(a);
   return LOOSENESS.indexOf(defaultGateKey(b)) > LOOSENESS.indexOf(defaultGateKey(a)) ? defaultGateFor(b) : defaultGateFor(a);
+}
+
+/** Initializers stored as float16 or bfloat16 that a Cast to float32 reads (in any graph of the model). */
+export function halfStoredWeights(model: Model): string[] {
+  const found: string[] = [];
+  const walk = (g: Graph, outer: ReadonlyMap<string, DataTypeCode>) => {
+    const types = new Map(outer);
+    for (const t of g.initializers) types.set(t.name, t.dataType);
+    for (const n of g.nodes) {
+      if (n.opType === 'Cast' && (n.domain === '' || n.domain === 'ai.onnx') && attrInt(n, 'to', 0) === DataType.FLOAT) {
+        const t = types.get(n.inputs[0] ?? '');
+        if (t === DataType.FLOAT16 || t === DataType.BFLOAT16) found.push(n.inputs[0]!);
+      }
+      for (const sg of subgraphsOf(n)) walk(sg, types);
+    }
+  };
+  walk(model.graph, new Map());
+  return [...new Set(found)];
 }
 
 const sameDims = (x: readonly number[], y: readonly number[]) => x.length === y.length && x.every((d, i) => d === y[i]);
@@ -211,8 +234,9 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
   checkDimFlags(dims, [a.graph, b.graph]);
   refuseEmptyProbeDims(dims, shapes);
   const assumedDims: AssumedDim[] = [];
+  const half = { a: halfStoredWeights(a).length, b: halfStoredWeights(b).length };
   const skippedReport = (skipped: SkipInfo, specs: InputSpec[] = []): CompareReport => ({
-    status: 'skipped', skipped, passed: false, arithmetic, seed, probes: 0, budget, assumedDims, inputs: summarizeInputs(specs), outputs: [],
+    status: 'skipped', skipped, passed: false, halfPrecisionWeights: half, arithmetic, seed, probes: 0, budget, assumedDims, inputs: summarizeInputs(specs), outputs: [],
     ...(opts.watch ? { coverage: { executed: 0, total: opts.watch.size, missed: missedNodes(opts.watch, new Set()), extraProbes: 0 } } : {}),
   });
   let specs: InputSpec[];
@@ -330,7 +354,10 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
       out.budget = b;
       Object.assign(scope, { ownAbs: own.maxAbs, ownRel: own.maxRel, deployAbs: deploy.maxAbs, deployRel: deploy.maxRel, addedAbs: b.addedAbs, addedRel: b.addedRel });
     }
-    const fallback = int8 && defaultGateKey(s.typeA!) !== 'exact' ? INT8_WEIGHTS_GATE : defaultGate(s.typeA!, s.typeB);
+    // float32 outputs of a model whose weights are stored in half precision carry float16 rounding
+    const halfGate = (half.a > 0 || half.b > 0) && [s.typeA, s.typeB].every((t) => t === DataType.FLOAT);
+    const fallback = int8 && defaultGateKey(s.typeA!) !== 'exact' ? INT8_WEIGHTS_GATE
+      : halfGate ? DEFAULT_GATES.float16 : defaultGate(s.typeA!, s.typeB);
     const gate: Gate = userGate ?? parseGate(fallback, available);
     const passed = gate.test(scope);
     out.gate = { expr: gate.expr, source: userGate ? 'user' : 'default', passed };
@@ -347,7 +374,7 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
   }
   const { status, skipped } = checkStatus(outputs);
   const report: CompareReport = {
-    status, skipped, passed: status === 'passed', arithmetic, seed, probes: run, budget, assumedDims, inputs: summarizeInputs(specs), outputs,
+    status, skipped, passed: status === 'passed', halfPrecisionWeights: half, arithmetic, seed, probes: run, budget, assumedDims, inputs: summarizeInputs(specs), outputs,
     ...(int8 && opts.simulateInt8 ? { int8Weights: { granularity: opts.simulateInt8, layers: int8.layers } } : {}),
   };
   if (watch) report.coverage = { executed: executed.size, total: watch.size, missed: missedNodes(watch, executed), extraProbes: run - Math.min(run, probes) };

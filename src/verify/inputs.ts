@@ -178,7 +178,11 @@ export function resolveInputs(graph: Graph, given: ReadonlyMap<string, InputValu
       throw new PleatError('missing-shape', `input '${vi.name}' has no shape in the model: set it with --shape ${vi.name}=DIMS (for example 1x3x224x224) or --input ${vi.name}=FILE`);
     }
     const out = vi.shape.map((d, k): number => {
-      if (typeof d === 'number') return d;
+      // a declared size the probe would be allocated from: refuse what no tensor can have
+      if (typeof d === 'number') {
+        if (!Number.isSafeInteger(d) || d < 0) throw new PleatError('bad-model', `input '${vi.name}' dim ${k} is ${d}: a size must be a whole number of at least 0`);
+        return d;
+      }
       if (typeof d === 'string' && d !== '') {
         const b = bound.get(d);
         const chosen = assumed?.find((x) => x.symbol === d);
@@ -306,7 +310,7 @@ export function makeProbe(specs: readonly InputSpec[], seed: number, probe: numb
 
 // ---- options shared by evaluate and compare -----------------------------------------------------------
 
-type MapOrRecord<V> = ReadonlyMap<string, V> | Readonly<Record<string, V>>;
+export type MapOrRecord<V> = ReadonlyMap<string, V> | Readonly<Record<string, V>>;
 
 /** How a run gets its inputs. Maps or plain objects are both accepted. */
 export interface InputOptions {

@@ -76,6 +76,7 @@ if (existsSync(extraBenches)) {
 
 const proof = await import('./proof.js');
 await proof.run(on, rows);
+(await import('./startup.js')).run(on, rows);
 
 console.log('\n| measure | time | ratio | target | memory | target |');
 console.log('|---|---|---|---|---|---|');

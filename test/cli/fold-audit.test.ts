@@ -116,7 +116,7 @@ describe('pleat fold', { timeout: 180_000 }, () => {
   it('--store float16: storage summary in text and JSON, proven with the half-precision gate', () => {
     const r = pleat(['fold', tray, '-o', join(dir, 'half.onnx'), '--store', 'float16', '--report', join(dir, 'half.json')]);
     expect(r.code).toBe(0);
-    expect(r.stdout).toMatch(/storage float16: \d+ tensors? converted, .* saved\)/);
+    expect(r.stdout).toMatch(/storage float16: \d+ tensors? converted \(\d+ Cast nodes? added\), .* saved\)/);
     const j = JSON.parse(readFileSync(join(dir, 'half.json'), 'utf8'));
     expect(j.storage.store).toBe('float16');
     expect(j.storage.bytesAfter).toBeLessThan(j.storage.bytesBefore);

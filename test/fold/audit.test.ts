@@ -44,7 +44,7 @@ describe('audit', () => {
     ]);
     expect(byNode.inorm!.hint).toMatch(/could fold into 'after_inorm'/);
     // opset 17's LayerNormalization: statistics stay, the learned Scale and B move into the MatMul reading it
-    expect(byNode.ln!.hint).toMatch(/statistics stay .* scale and shift move into 'proj'/);
+    expect(byNode.ln!.effect).toMatch(/statistics stay .* scale and shift move into 'proj'/);
     expect([byNode.ln!.target, byNode.ln!.direction]).toEqual(['proj', 'into-consumer']);
     expect(byNode.lrn!.hint).toMatch(/no learned scale/);
     expect(byNode.bn_train!.hint).toMatch(/inference mode/);
@@ -117,7 +117,7 @@ describe('ledger, determinism and byte identity', () => {
     g.node('Relu', [b], {}, { name: 'relu', outputs: ['y'] });
     const m = parseModel(foldBytes(modelBytes(g)).bytes, dir);
     expect(m.graph.valueInfo.map((v) => v.name)).toEqual([b]);
-    expect(m.graph.initializers.map((t) => t.name)).toEqual(['w', 'w.bias']);
+    expect(m.graph.initializers.map((t) => t.name)).toEqual(['w', 'conv.bias']);
   });
 });
 

@@ -40,7 +40,7 @@ describe('fan-out into several linear readers', () => {
       const names = Array.from({ length: readers }, (_, i) => `pw${i}`);
       expect(summary(res.ledger)).toEqual([`bn:folded:into-consumer:${names.join(', ')}`]);
       expect(res.ledger.normalizations[0]!.targets).toEqual(names);
-      expect(res.ledger.normalizations[0]!.hint).toMatch(/each with its own copy of the scale/);
+      expect(res.ledger.normalizations[0]!.effect).toMatch(/each with its own copy of the scale/);
       const m = parseModel(res.after, dir);
       expect(m.graph.nodes.map((n) => n.opType)).toEqual(['Relu', ...names.map(() => 'Conv')]);
       // the proof region holds every reader
@@ -194,7 +194,7 @@ describe('pre-norm transformer blocks: the scale and shift move into q/k/v and t
     const res = await foldAndCheck(preNormBlock('fused'), feeds, { prove: p.prove });
     const norms = res.ledger.normalizations.filter((e) => e.kind === 'normalization');
     expect(norms.map((e) => `${e.node}:${e.status}:${e.targets.join('+')}`)).toEqual(['ln1:folded:q+k+v', 'ln2:folded:fc1']);
-    expect(norms[0]!.hint).toMatch(/statistics stay .* scale and shift move into 'q', 'k' and 'v'/);
+    expect(norms[0]!.effect).toMatch(/statistics stay .* scale and shift move into 'q', 'k' and 'v'/);
     const m = parseModel(res.after, dir);
     for (const ln of m.graph.nodes.filter((n) => n.opType === 'LayerNormalization')) {
       expect(ln.inputs.filter((i) => i)).toHaveLength(2); // no B
@@ -214,7 +214,7 @@ describe('pre-norm transformer blocks: the scale and shift move into q/k/v and t
       'ln1.div:ReduceMean/Sub/Pow/ReduceMean/Add/Sqrt/Div:folded:q+k+v', 'ln1.scale:Mul:folded:q+k+v', 'ln1.shift:Add:folded:q+k+v',
       'ln2.div:ReduceMean/Sub/Pow/ReduceMean/Add/Sqrt/Div:folded:fc1', 'ln2.scale:Mul:folded:fc1', 'ln2.shift:Add:folded:fc1',
     ]);
-    expect(norms[0]!.hint).toMatch(/statistics stay/);
+    expect(norms[0]!.effect).toMatch(/statistics stay/);
     const left = parseModel(res.after, dir).graph.nodes.map((n) => n.name);
     for (const gone of ['ln1.scale', 'ln1.shift', 'ln2.scale', 'ln2.shift']) expect(left).not.toContain(gone);
     expect(left).toContain('ln1.div');
@@ -307,7 +307,7 @@ describe('--clone-shared', () => {
     expect(summary(res.ledger)).toEqual(['bn:folded:into-producer:conv']);
     const e = res.ledger.normalizations[0]!;
     expect(e.cloneBytes).toBe((4 * 4 * 9 + 4) * 4);
-    expect(e.hint).toMatch(/a copy of it made for this norm \(\+592 bytes/);
+    expect(e.effect).toMatch(/a copy of it made for this norm \(\+592 bytes/);
     const m = parseModel(res.after, dir);
     expect(m.graph.nodes.map((n) => `${n.name}:${n.opType}`)).toEqual(['conv:Conv', 'conv.clone:Conv', 'relu:Relu', 'residual:Add']);
     expect(m.graph.nodes[0]!.inputs).toEqual(['x', 'cw', 'cb']); // the original is untouched

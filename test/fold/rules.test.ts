@@ -279,7 +279,7 @@ describe('chains and neighbours', () => {
     const r = await foldAndCheck(g, feedsFor({ x: [1, 2, 4, 4] }), {}, { opset: 7, irVersion: 3 });
     expect(summary(r.ledger)).toEqual(['bn:folded:into-producer:conv']);
     const m = parseModel(r.after, dir);
-    expect(m.graph.inputs.map((i) => i.name)).toContain('w.bias');
+    expect(m.graph.inputs.map((i) => i.name)).toContain('conv.bias');
   });
 
   it('--keep also accepts the ledger name of an unnamed node', async () => {

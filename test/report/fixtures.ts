@@ -6,11 +6,11 @@ export function foldReport(over: Partial<FoldReport> = {}): FoldReport {
   return {
     schemaVersion: SCHEMA_VERSION, command: 'fold', model: 'models/tray-sorter.onnx', output: 'out/tray-sorter.onnx',
     normalizations: [
-      { node: 'stem_bn', op: 'BatchNormalization', kind: 'normalization', status: 'folded', direction: 'into-producer', target: 'stem_conv', targets: ['stem_conv'], cloneBytes: 0, reason: null, hint: 'scaled 16 output channels of stem_conv', graph: 'main',
+      { node: 'stem_bn', op: 'BatchNormalization', kind: 'normalization', status: 'folded', direction: 'into-producer', target: 'stem_conv', targets: ['stem_conv'], cloneBytes: 0, reason: null, hint: null, effect: 'scaled 16 output channels of stem_conv', graph: 'main',
         proof: { maxAbs: 4.4e-16, maxRel: 2.1e-16, shape: [2, 3, 5, 5] } },
-      { node: 'head_bn', op: 'BatchNormalization', kind: 'normalization', status: 'folded', direction: 'into-consumer', target: 'head_fc', targets: ['head_fc'], cloneBytes: 0, reason: null, hint: 'scaled the input columns of head_fc', graph: 'main' },
-      { node: 'act_half', op: 'Mul', kind: 'affine-step', status: 'folded', direction: 'into-consumer', target: 'head_fc', targets: ['head_fc'], cloneBytes: 0, reason: null, hint: 'scales the input channels of \'head_fc\'', graph: 'main' },
-      { node: 'edge_bn', op: 'BatchNormalization', kind: 'normalization', status: 'kept', direction: null, target: null, targets: [], cloneBytes: 0, reason: 'padded-consumer', hint: 'remove the padding of the next convolution <pad=1> & "fold"', graph: 'main/branch_if.then_branch' },
+      { node: 'head_bn', op: 'BatchNormalization', kind: 'normalization', status: 'folded', direction: 'into-consumer', target: 'head_fc', targets: ['head_fc'], cloneBytes: 0, reason: null, hint: null, effect: 'scaled the input columns of head_fc', graph: 'main' },
+      { node: 'act_half', op: 'Mul', kind: 'affine-step', status: 'folded', direction: 'into-consumer', target: 'head_fc', targets: ['head_fc'], cloneBytes: 0, reason: null, hint: null, effect: 'scales the input channels of \'head_fc\'', graph: 'main' },
+      { node: 'edge_bn', op: 'BatchNormalization', kind: 'normalization', status: 'kept', direction: null, target: null, targets: [], cloneBytes: 0, reason: 'padded-consumer', hint: 'remove the padding of the next convolution <pad=1> & "fold"', effect: null, graph: 'main/branch_if.then_branch' },
     ],
     nodesBefore: 41, nodesAfter: 37, bytesBefore: 10240, bytesAfter: 10040,
     check: {
@@ -36,8 +36,8 @@ export function auditReport(over: Partial<AuditReport> = {}): AuditReport {
   return {
     schemaVersion: SCHEMA_VERSION, command: 'audit', model: 'models/pump|monitor.onnx',
     normalizations: [
-      { node: 'conv1_bn', op: 'BatchNormalization', kind: 'normalization', status: 'foldable', direction: 'into-producer', target: 'conv1', targets: ['conv1'], cloneBytes: 0, reason: null, hint: 'would scale conv1', graph: 'main' },
-      { node: 'ln', op: 'LayerNormalization', kind: 'normalization', status: 'kept', direction: null, target: null, targets: [], cloneBytes: 0, reason: 'runtime-statistics', hint: 'statistics come from each input; its affine tail could fold into dense_2', graph: 'main' },
+      { node: 'conv1_bn', op: 'BatchNormalization', kind: 'normalization', status: 'foldable', direction: 'into-producer', target: 'conv1', targets: ['conv1'], cloneBytes: 0, reason: null, hint: null, effect: 'would scale conv1', graph: 'main' },
+      { node: 'ln', op: 'LayerNormalization', kind: 'normalization', status: 'kept', direction: null, target: null, targets: [], cloneBytes: 0, reason: 'runtime-statistics', hint: 'statistics come from each input; its affine tail could fold into dense_2', effect: null, graph: 'main' },
     ],
     foldable: 1, kept: 1, alsoFoldable: 0, failOn: null, failed: false,
     ...over,
@@ -47,7 +47,7 @@ export function auditReport(over: Partial<AuditReport> = {}): AuditReport {
 export function compareReport(): CompareReport {
   const m = { maxAbs: 2e-7, maxRel: 1e-6, rms: 5e-8, cosine: 1, nanMismatches: 0, peak: 3.2, count: 10 };
   return {
-    status: 'failed', skipped: null, passed: false, seed: 0, probes: 3, budget: true, assumedDims: [],
+    status: 'failed', skipped: null, passed: false, halfPrecisionWeights: { a: 0, b: 0 }, seed: 0, probes: 3, budget: true, assumedDims: [],
     inputs: [{ name: 'image', dtype: 'float32', dims: [1, 3, 8, 8], source: 'probe' }],
     outputs: [
       { name: 'tray_class', status: 'compared', dtype: 'float32', dims: [1, 10], metrics: m,

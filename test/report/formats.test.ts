@@ -7,6 +7,7 @@ import { auditText } from '../../src/report/audit-text.js';
 import { compareText } from '../../src/report/compare-text.js';
 import { renderCompare, renderJobs, compareJson } from '../../src/report/render.js';
 import { escapeXml } from '../../src/report/junit.js';
+import { auditMarkdown } from '../../src/report/markdown.js';
 import { CAUTION } from '../../src/report/format.js';
 import { toJsonText } from '../../src/verify/compare.js';
 import { parseJunit, schemaValidator } from './helpers.js';
@@ -65,7 +66,7 @@ describe('text', () => {
     expect(c).toMatch(/error budget: A float32 maxAbs 2\.00e-7, B float32 maxAbs 3\.00e-7, added 1\.00e-7/);
   });
 
-  it('a batch prints each model in order, errors included, and the caution once', () => {
+  it('a batch prints each model in order, errors included; the probe caution once for fold, never for audit', () => {
     const t = renderJobs('audit', [
       { model: 'a.onnx', report: auditReport({ model: 'a.onnx' }), exitCode: 0 },
       { model: 'bad.onnx', error: { kind: 'bad-model', message: 'bad.onnx: not a readable ONNX model' }, exitCode: 2 },
@@ -73,7 +74,13 @@ describe('text', () => {
     ], 'text');
     expect(t.indexOf('audit a.onnx')).toBeLessThan(t.indexOf('audit bad.onnx: error'));
     expect(t.indexOf('audit bad.onnx: error')).toBeLessThan(t.indexOf('audit c.onnx'));
-    expect(t.split(CAUTION[0]!)).toHaveLength(2);
+    expect(t).not.toContain(CAUTION[0]!); // audit runs no probes
+    const f = renderJobs('fold', [
+      { model: 'a.onnx', report: foldReport({ model: 'a.onnx' }), exitCode: 0 },
+      { model: 'c.onnx', report: foldReport({ model: 'c.onnx' }), exitCode: 0 },
+    ], 'text');
+    expect(f.split(CAUTION[0]!)).toHaveLength(2);
+    expect(auditMarkdown(auditReport())).not.toMatch(/Caution/);
   });
 });
 
@@ -83,7 +90,7 @@ describe('JSON against the shipped schema (ajv)', () => {
 
   it('fold, audit, compare and batch reports validate', () => {
     ok(foldReport());
-    ok(foldReport({ storage: { store: 'float16', tensorsConverted: 3, keptFloat32: ['big_w'], bytesBefore: 100, bytesAfter: 52 }, check: null }));
+    ok(foldReport({ storage: { store: 'float16', tensorsConverted: 3, keptFloat32: ['big_w'], skipped: [{ tensor: 'w2', reason: 'also read by Add' }], castNodes: 3, bytesBefore: 100, bytesAfter: 52 }, check: null }));
     ok(auditReport());
     ok(compareJson(compareReport(), 'a.onnx', 'b.onnx'));
     ok(JSON.parse(renderJobs('fold', [

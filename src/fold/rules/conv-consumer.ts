@@ -7,7 +7,7 @@ import { addConstantInput, scaleConstant, replaceConstant } from '../apply.js';
 import { isRefusal, refuse } from '../context.js';
 import { resolveRun } from '../run.js';
 import { contractShift, layouts, maxAbs, scaleWeights, weightView, type ChannelMap, type WeightView } from '../weights.js';
-import { bypassRun, fitsStorage, overflow, type FoldRule } from './rule.js';
+import { biasName, bypassRun, fitsStorage, overflow, type FoldRule } from './rule.js';
 
 interface Data { view: WeightView; map: ChannelMap; bias: Float64Array }
 
@@ -38,7 +38,7 @@ export const convConsumer: FoldRule<Data> = {
     const { layer, run, data } = m;
     scaleConstant(ctx, edit, layer.node, 1, layer.weight, data.map, m.affine.scale);
     if (layer.bias) replaceConstant(ctx, edit, layer.node, 2, layer.bias, data.bias, layer.bias.tensor.dims);
-    else if (hasShift(m.affine)) addConstantInput(ctx, edit, layer.node, 2, `${layer.weight.name}.bias`, layer.weight.tensor.dataType, data.bias, [data.bias.length]);
+    else if (hasShift(m.affine)) addConstantInput(ctx, edit, layer.node, 2, biasName(layer), layer.weight.tensor.dataType, data.bias, [data.bias.length]);
     bypassRun(ctx, edit, layer, run);
     edit.regionOutputs = layer.node.outputs.filter((o) => o !== '');
   },

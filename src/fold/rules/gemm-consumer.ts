@@ -6,7 +6,7 @@ import { addConstantInput, scaleConstant, changeOf, replaceConstant } from '../a
 import { isRefusal } from '../context.js';
 import { resolveRun } from '../run.js';
 import { contractShift, gemmBias, layouts, maxAbs, scaleWeights, weightView, type ChannelMap, type WeightView } from '../weights.js';
-import { bypassRun, fitsStorage, overflow, type FoldRule } from './rule.js';
+import { biasName, bypassRun, fitsStorage, overflow, type FoldRule } from './rule.js';
 
 interface Data { view: WeightView; map: ChannelMap; bias?: { values: Float64Array; dims: number[] } }
 
@@ -37,7 +37,7 @@ export const gemmConsumer: FoldRule<Data> = {
     scaleConstant(ctx, edit, layer.node, 1, layer.weight, data.map, m.affine.scale);
     if (data.bias) {
       if (layer.bias) replaceConstant(ctx, edit, layer.node, 2, layer.bias, data.bias.values, data.bias.dims);
-      else addConstantInput(ctx, edit, layer.node, 2, `${layer.weight.name}.bias`, layer.weight.tensor.dataType, data.bias.values, data.bias.dims);
+      else addConstantInput(ctx, edit, layer.node, 2, biasName(layer), layer.weight.tensor.dataType, data.bias.values, data.bias.dims);
       if (layer.node.attributes.some((x) => x.name === 'beta')) changeOf(edit, layer.node).attributes = layer.node.attributes.filter((x) => x.name !== 'beta');
     }
     bypassRun(ctx, edit, layer, run);

@@ -6,7 +6,7 @@ import { addConstantInput, scaleConstant, changeOf, replaceConstant } from '../a
 import { isRefusal } from '../context.js';
 import { resolveRun } from '../run.js';
 import { gemmBias, layouts, maxAbs, weightView, type ChannelMap, type WeightView } from '../weights.js';
-import { fitsStorage, overflow, producerOutputFree, takeOverRun, type FoldRule, weightRangeCheck } from './rule.js';
+import { biasName, fitsStorage, overflow, producerOutputFree, takeOverRun, type FoldRule, weightRangeCheck } from './rule.js';
 
 interface Data { map: ChannelMap; guard?: ScaleGuard; bias: { values: Float64Array; dims: number[] } }
 
@@ -33,7 +33,7 @@ export const gemmProducer: FoldRule<Data> = {
     const { layer, run, data } = m;
     scaleConstant(ctx, edit, layer.node, 1, layer.weight, data.map, m.affine.scale, data.guard);
     if (layer.bias) replaceConstant(ctx, edit, layer.node, 2, layer.bias, data.bias.values, data.bias.dims);
-    else addConstantInput(ctx, edit, layer.node, 2, `${layer.weight.name}.bias`, layer.weight.tensor.dataType, data.bias.values, data.bias.dims);
+    else addConstantInput(ctx, edit, layer.node, 2, biasName(layer), layer.weight.tensor.dataType, data.bias.values, data.bias.dims);
     if (layer.node.attributes.some((x) => x.name === 'beta')) changeOf(edit, layer.node).attributes = layer.node.attributes.filter((x) => x.name !== 'beta');
     takeOverRun(ctx, edit, layer, run);
     edit.regionOutputs = [run.bottom];

@@ -14,7 +14,7 @@ import { addConstantInput, scaleConstant, changeOf, makeNode, replaceConstant } 
 import { freshName, isRefusal } from '../context.js';
 import { resolveRun } from '../run.js';
 import { contractShift, layouts, maxAbs, scaleWeights, weightView, type ChannelMap, type WeightView } from '../weights.js';
-import { bypassRun, fitsStorage, overflow, type FoldRule, withBroadcast } from './rule.js';
+import { biasName, bypassRun, fitsStorage, overflow, type FoldRule, withBroadcast } from './rule.js';
 
 interface BiasAdd { node: Node; index: number; ref: ConstRef }
 interface Data { view: WeightView; map: ChannelMap; bias: Float64Array; form: 'scale-only' | 'bias-add' | 'gemm' | 'add'; biasAdd?: BiasAdd }
@@ -73,12 +73,12 @@ export const matmulConsumer: FoldRule<Data> = {
       edit.regionOutputs = [b.node.outputs[0]!];
     } else if (data.form === 'gemm') {
       changeOf(edit, node).opType = 'Gemm';
-      addConstantInput(ctx, edit, node, 2, `${layer.weight.name}.bias`, dt, data.bias, [data.bias.length]);
+      addConstantInput(ctx, edit, node, 2, biasName(layer), dt, data.bias, [data.bias.length]);
     } else if (data.form === 'add') {
       const out = node.outputs[0]!;
       const unbiased = freshName(ctx, `${out}.unbiased`);
       changeOf(edit, node).outputs[0] = unbiased;
-      const bias = freshName(ctx, `${layer.weight.name}.bias`);
+      const bias = freshName(ctx, biasName(layer));
       edit.newInitializers.push(makeTensor(bias, [data.bias.length], dt, data.bias));
       edit.inserts.push({ node: withBroadcast(ctx, makeNode('Add', freshName(ctx, `${layer.label}.bias_add`), [unbiased, bias], [out])), after: node });
     }

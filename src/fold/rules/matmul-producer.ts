@@ -7,7 +7,7 @@ import { addConstantInput, scaleConstant, changeOf, makeNode, replaceConstant } 
 import { freshName, isRefusal } from '../context.js';
 import { resolveRun } from '../run.js';
 import { layouts, maxAbs, weightView, type ChannelMap, type WeightView } from '../weights.js';
-import { fitsStorage, overflow, producerOutputFree, removeRun, takeOverRun, type FoldRule, weightRangeCheck, withBroadcast } from './rule.js';
+import { biasName, fitsStorage, overflow, producerOutputFree, removeRun, takeOverRun, type FoldRule, weightRangeCheck, withBroadcast } from './rule.js';
 
 interface Data { map: ChannelMap; guard?: ScaleGuard; shift: Float64Array; form: 'scale-only' | 'gemm' | 'add' }
 
@@ -36,7 +36,7 @@ export const matmulProducer: FoldRule<Data> = {
     scaleConstant(ctx, edit, node, 1, layer.weight, data.map, m.affine.scale, data.guard);
     edit.regionOutputs = [run.bottom];
     if (data.form === 'add') {
-      const bias = freshName(ctx, `${layer.weight.name}.bias`);
+      const bias = freshName(ctx, biasName(layer));
       edit.newInitializers.push(makeTensor(bias, [data.shift.length], dt, data.shift));
       edit.inserts.push({ node: withBroadcast(ctx, makeNode('Add', freshName(ctx, `${layer.label}.bias_add`), [node.outputs[0]!, bias], [run.bottom])), after: node });
       removeRun(ctx, edit, run);
@@ -44,7 +44,7 @@ export const matmulProducer: FoldRule<Data> = {
     }
     if (data.form === 'gemm') {
       changeOf(edit, node).opType = 'Gemm';
-      addConstantInput(ctx, edit, node, 2, `${layer.weight.name}.bias`, dt, data.shift, [data.shift.length]);
+      addConstantInput(ctx, edit, node, 2, biasName(layer), dt, data.shift, [data.shift.length]);
     }
     takeOverRun(ctx, edit, layer, run);
   },

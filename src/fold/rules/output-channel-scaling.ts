@@ -7,7 +7,7 @@ import { isRefusal } from '../context.js';
 import { resolveRun } from '../run.js';
 import type { Layer, LayerOp } from '../layers.js';
 import { maxAbs, producerBias, weightView, type ChannelMap, type WeightView } from '../weights.js';
-import { fitsStorage, overflow, producerOutputFree, takeOverRun, type FoldRule, weightRangeCheck } from './rule.js';
+import { biasName, fitsStorage, overflow, producerOutputFree, takeOverRun, type FoldRule, weightRangeCheck } from './rule.js';
 
 export interface OutputScalingData { map: ChannelMap; guard?: ScaleGuard; bias: Float64Array }
 
@@ -35,7 +35,7 @@ export function outputChannelScaling(name: string, op: LayerOp, channelMap: (v: 
       const { layer, run, data } = m;
       scaleConstant(ctx, edit, layer.node, 1, layer.weight, data.map, m.affine.scale, data.guard);
       if (layer.bias) replaceConstant(ctx, edit, layer.node, 2, layer.bias, data.bias, layer.bias.tensor.dims);
-      else addConstantInput(ctx, edit, layer.node, 2, `${layer.weight.name}.bias`, layer.weight.tensor.dataType, data.bias, [data.bias.length]);
+      else addConstantInput(ctx, edit, layer.node, 2, biasName(layer), layer.weight.tensor.dataType, data.bias, [data.bias.length]);
       takeOverRun(ctx, edit, layer, run);
       edit.regionOutputs = [run.bottom];
     },

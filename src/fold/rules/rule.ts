@@ -140,3 +140,8 @@ export function withBroadcast(ctx: FoldContext, n: Node): Node {
   if (ctx.opsetOf('') < 7) n.attributes.push({ name: 'broadcast', value: { type: 'INT', i: 1 }, docString: '', refAttrName: '', extra: [] });
   return n;
 }
+
+/** The name of a bias pleat creates for a layer: `<layer>.bias` (named after the weight when the layer has no name). */
+export function biasName(layer: Layer): string {
+  return `${layer.node.name || layer.weight.name}.bias`;
+}

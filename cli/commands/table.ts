@@ -1,0 +1,48 @@
+// The command table: names, usage and one-line descriptions, without the command modules themselves. main.ts
+// imports only the module of the command being run, so `pleat --help` and usage errors load none of them.
+export interface CommandModule {
+  builder: (y: import('yargs').Argv) => import('yargs').Argv;
+  handler: (argv: never) => Promise<void>;
+}
+
+export interface CommandEntry {
+  name: string;
+  usage: string;
+  describe: string;
+  load: () => Promise<CommandModule>;
+}
+
+export const COMMANDS: readonly CommandEntry[] = [
+  {
+    name: 'survey', usage: 'survey <model>',
+    describe: 'What a model file holds: IR version, opsets, inputs and outputs, op counts, weight bytes, normalizations',
+    load: () => import('./survey.js') as Promise<CommandModule>,
+  },
+  {
+    name: 'fold', usage: 'fold <models..>',
+    describe: 'Fold every normalization it safely can, prove each fold, write the folded model, print the ledger',
+    load: () => import('./fold.js') as Promise<CommandModule>,
+  },
+  {
+    name: 'audit', usage: 'audit <models..>',
+    describe: 'The fold analysis without writing: every normalization, its status (foldable or kept), reason and hint',
+    load: () => import('./audit.js') as Promise<CommandModule>,
+  },
+  {
+    name: 'compare', usage: 'compare <a> <b>',
+    describe: 'Run two models on the same inputs and judge their agreement, output by output, against a gate',
+    load: () => import('./compare.js') as Promise<CommandModule>,
+  },
+  {
+    name: 'evaluate', usage: 'evaluate <model>',
+    describe: 'Evaluate a model on given or seeded inputs and save each output as DIR/<output>.npy with an index',
+    load: () => import('./evaluate.js') as Promise<CommandModule>,
+  },
+  {
+    name: 'export', usage: 'export <model>',
+    describe: 'Fold and prove, then write the folded weights for device runtimes (safetensors + JSON manifest, or C source)',
+    load: () => import('./export.js') as Promise<CommandModule>,
+  },
+];
+
+export const commandNames = (): string[] => COMMANDS.map((c) => c.name);

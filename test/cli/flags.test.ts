@@ -1,0 +1,161 @@
+// Command-line mistakes get one line of pleat's own wording and exit 2 (issue 11 items 8, 10, 11): a
+// single-value option given twice, a value outside its choices (listed from the code), unknown options with
+// their dashes and a nearest suggestion, mistyped commands; -h and `pleat help` everywhere; start-up loads
+// only the command being run.
+import { describe, expect, it } from 'vitest';
+import { spawnSync } from 'node:child_process';
+import { join } from 'node:path';
+import { FORMATS } from '../../src/report/format.js';
+import { CLI, ROOT, pleat } from '../helpers/cli.js';
+
+const M = join(ROOT, 'models', 'tray-sorter.onnx');
+const OUT = join(ROOT, 'never-written.onnx');
+
+function usage(args: string[], pattern: RegExp): void {
+  const r = pleat(args);
+  expect(r.stderr.trim().split('\n')).toHaveLength(1);
+  expect(r.stderr).toMatch(/^pleat: /);
+  expect(r.stderr).toMatch(pattern);
+  expect(r.code).toBe(2);
+}
+
+describe('single-value options given twice are exit 2 with "given twice"', () => {
+  const cases: Array<[string, string[]]> = [
+    ['-o', ['fold', M, '-o', 'a.onnx', '-o', 'b.onnx']],
+    ['--out / -o mixed', ['fold', M, '--out', 'a.onnx', '-o', 'b.onnx']],
+    ['--out-dir', ['fold', M, '--out-dir', 'a', '--out-dir', 'b']],
+    ['--gate on compare', ['compare', M, M, '--gate', 'maxAbs < 1', '--gate', 'maxAbs < 2']],
+    ['--gate on fold', ['fold', M, '-o', OUT, '--gate', 'maxAbs < 1', '--gate', 'maxAbs < 2']],
+    ['--bundle', ['export', M, '--bundle', 'x', '--bundle', 'y']],
+    ['--bundle-format', ['export', M, '--bundle', 'x', '--bundle-format', 'c', '--bundle-format', 'c']],
+    ['--save', ['evaluate', M, '--save', 'x', '--save', 'y']],
+    ['--probes', ['compare', M, M, '--probes', '2', '--probes', '3']],
+    ['--config', ['audit', M, '--config', 'a.json', '--config', 'b.json']],
+    ['--precision', ['evaluate', M, '--save', 'x', '--precision', 'float32', '--precision', 'float64']],
+    ['--seed', ['fold', M, '-o', OUT, '--seed', '1', '--seed', '2']],
+    ['--store', ['fold', M, '-o', OUT, '--store', 'float16', '--store', 'float16']],
+    ['--format', ['audit', M, '--format', 'json', '--format=text']],
+    ['--fail-on', ['audit', M, '--fail-on', 'kept', '--fail-on', 'kept']],
+    ['--external-data-min', ['fold', M, '-o', OUT, '--external-data-min', '1', '--external-data-min', '2']],
+  ];
+  for (const [name, args] of cases) it(name, () => usage(args, /given twice/));
+
+  it('repeatable options stay repeatable', () => {
+    const r = pleat(['audit', M, '--keep', 'stem.bn', '--keep', 'res1.bn_a', '--json']);
+    expect(r.code).toBe(0);
+    const kept = JSON.parse(r.stdout).normalizations.filter((n: { reason?: string }) => n.reason === 'kept-by-user');
+    expect(kept.map((n: { node: string }) => n.node).sort()).toEqual(['res1.bn_a', 'stem.bn']);
+  });
+});
+
+describe('choices, numbers, unknown options and commands', () => {
+  it('an invalid choice lists the allowed values, from the code', () => {
+    usage(['audit', M, '--format', 'nosuch'], new RegExp(`--format must be one of ${FORMATS.join(', ')} \\(got 'nosuch'\\)`));
+    usage(['evaluate', M, '--save', 'x', '--precision', 'float8'], /--precision must be one of float64, float32/);
+    usage(['export', M, '--bundle', 'x', '--bundle-format', 'zip'], /--bundle-format must be one of safetensors, c/);
+  });
+  it('numbers that are not whole or are out of range', () => {
+    usage(['fold', M, '-o', OUT, '--external-data-min', 'abc'], /--external-data-min abc: give a whole number of bytes/);
+    usage(['fold', M, '-o', OUT, '--external-data-min', '-5'], /--external-data-min -5: give a whole number of bytes, 0 or more/);
+    usage(['compare', M, M, '--probes', '0'], /--probes 0: give a whole number of probe sets, 1 or more/);
+    usage(['compare', M, M, '--probes', '1.5'], /--probes 1.5/);
+    usage(['fold', M, '-o', OUT, '--quant-threshold', 'abc'], /--quant-threshold abc: give a number of decibels/);
+    // a real number is fine for decibels: the run gets past the flags (to the name check, here)
+    usage(['fold', M, '-o', OUT, '--quant-threshold', '12.5', '--keep', 'nosuch.bn'], /--keep nosuch\.bn/);
+  });
+  it('an option without its value', () => usage(['fold', M, '-o'], /-o needs a value/));
+  it('unknown options print with their dashes and the nearest known option', () => {
+    usage(['audit', M, '--formt', 'json'], /unknown option --formt \(did you mean --format\?\)/);
+    usage(['fold', M, '-o', OUT, '--extrnal-data-min', '5'], /unknown option --extrnal-data-min \(did you mean --external-data-min\?\)/);
+    usage(['audit', M, '-x'], /unknown option -x;/);
+    usage(['--verbose'], /unknown option --verbose before a command/);
+  });
+  it('a mistyped command suggests the nearest command', () => {
+    usage(['fodl', M], /'fodl' is not a pleat command \(did you mean 'fold'\?\)/);
+    usage(['exprot', M], /did you mean 'export'\?/);
+    usage(['zzzzzz'], /'zzzzzz' is not a pleat command; commands: survey, fold/);
+  });
+  it('missing arguments name the command usage, missing options name the flag', () => {
+    usage(['survey'], /missing argument; usage: pleat survey <model>/);
+    usage(['evaluate', M], /missing required option --save/);
+  });
+});
+
+describe('help everywhere', () => {
+  for (const args of [['-h'], ['--help'], ['help']]) {
+    it(`pleat ${args.join(' ')} lists the commands`, () => {
+      const r = pleat(args);
+      expect(r.code).toBe(0);
+      for (const c of ['survey', 'fold', 'audit', 'compare', 'evaluate', 'export']) expect(r.stdout).toContain(`pleat ${c} `);
+      expect(r.stdout).toContain('pleat help <command>');
+    });
+  }
+  for (const args of [['fold', '-h'], ['fold', '--help'], ['help', 'fold']]) {
+    it(`pleat ${args.join(' ')} shows fold's options`, () => {
+      const r = pleat(args);
+      expect(r.code).toBe(0);
+      expect(r.stdout).toMatch(/^pleat fold <models\.\.>/);
+      expect(r.stdout).toContain('--external-data-min');
+    });
+  }
+  it('pleat help with an unknown command is a usage error', () => usage(['help', 'flod'], /did you mean 'fold'/));
+});
+
+/** The modules under dist/ that node loads for a command line (NODE_DEBUG=esm names each one). */
+function loaded(args: string[]): string[] {
+  const r = spawnSync(process.execPath, [CLI, ...args], { encoding: 'utf8', env: { ...process.env, NODE_DEBUG: 'esm' } });
+  const urls = new Set<string>();
+  for (const m of r.stderr.matchAll(/Storing file:\/\/\S*?\/dist\/(\S+\.js)/g)) urls.add(m[1]!);
+  return [...urls];
+}
+
+describe('start-up loads only what the command line needs', () => {
+  it('--help loads no command module and none of the library beyond errors and the exit-code text', () => {
+    const mods = loaded(['--help']);
+    expect(mods).toContain('cli/main.js');
+    expect(mods.filter((m) => m.startsWith('cli/commands/') && m !== 'cli/commands/table.js')).toEqual([]);
+    expect(mods.filter((m) => m.startsWith('src/')).sort()).toEqual(['src/errors.js', 'src/report/exit-codes.js', 'src/report/format.js'].filter((m) => mods.includes(m)));
+    expect(mods.some((m) => m.startsWith('src/jobs/') || m.startsWith('src/eval/') || m.startsWith('src/fold/'))).toBe(false);
+  });
+  it('fold -h loads the fold command and no other command module', () => {
+    const cmds = loaded(['fold', '-h']).filter((m) => m.startsWith('cli/commands/'));
+    expect(cmds.sort()).toEqual(['cli/commands/fold.js', 'cli/commands/table.js']);
+  });
+});
+
+describe('names that match nothing are errors (item 9)', () => {
+  const E = join(ROOT, 'models', 'tray-edge.onnx');
+  it('--keep of a node that does not exist names the value', () => {
+    usage(['fold', M, '-o', OUT, '--keep', 'nosuch.bn'], /--keep nosuch\.bn: no normalization of that name in .*tray-sorter\.onnx/);
+    usage(['audit', M, '--keep', 'nosuch.bn'], /--keep nosuch\.bn: no normalization/);
+    usage(['export', M, '--bundle', join(ROOT, 'never-written'), '--keep', 'nosuch.bn'], /--keep nosuch\.bn: no normalization/);
+  });
+  it('--keep of a node that is no normalization says what it is', () => {
+    usage(['fold', M, '-o', OUT, '--keep', 'stem.conv'], /--keep stem\.conv: node 'stem\.conv' in .* is a Conv, not a normalization/);
+  });
+  it('--dim and --shape of names the model lacks', () => {
+    usage(['fold', M, '-o', OUT, '--dim', 'nosuch=1'], /--dim nosuch: no input of .*tray-sorter\.onnx has a dynamic dim named 'nosuch' \(dims: batch\)/);
+    usage(['fold', M, '-o', OUT, '--shape', 'nosuch=1x2'], /--shape nosuch: .* has no input named 'nosuch' \(inputs: image\)/);
+  });
+  it('a batch: a name must match in at least one of its models', () => {
+    expect(pleat(['audit', M, E, '--keep', 'stem.bn']).code).toBe(0);
+    usage(['audit', M, E, '--keep', 'nosuch.bn'], /--keep nosuch\.bn: no normalization of that name in any of the 2 models/);
+    usage(['fold', M, E, '--out-dir', join(ROOT, 'never-written'), '--dim', 'nosuch=1'], /--dim nosuch: no input of any of the 2 models/);
+  });
+  it('a keep from the config file is reported as coming from the config file', async () => {
+    const { mkdtempSync, writeFileSync } = await import('node:fs');
+    const { tmpdir } = await import('node:os');
+    const d = mkdtempSync(join(tmpdir(), 'pleat-names-'));
+    writeFileSync(join(d, 'pleat.config.json'), JSON.stringify({ keep: ['nosuch.bn'] }));
+    const r = pleat(['audit', M], { cwd: d });
+    expect(r.code).toBe(2);
+    expect(r.stderr).toMatch(/'nosuch\.bn' under "keep" in pleat\.config\.json: no normalization/);
+    expect(r.stderr).not.toMatch(/--keep/);
+    writeFileSync(join(d, 'team.json'), JSON.stringify({ keep: ['stem.bn'] }));
+    const ok = pleat(['audit', M, '--config', join(d, 'team.json'), '--json'], { cwd: d });
+    expect(ok.code).toBe(0);
+    const stem = JSON.parse(ok.stdout).normalizations.find((n: { node: string }) => n.node === 'stem.bn');
+    expect(stem.hint).toMatch(/listed under "keep" in .*team\.json/);
+    expect(stem.hint).not.toMatch(/--keep/);
+  });
+});
