@@ -32,7 +32,7 @@ export interface QuantRow {
   /** SQNR (dB) of the weights under symmetric 8-bit quantization, before and after the fold. */
   sqnrBefore: SqnrFigures;
   sqnrAfter: SqnrFigures;
-  /** True when, after the fold, some output channel's SQNR under a per-tensor scale is below the threshold. */
+  /** True when the fold brought some output channel's SQNR under a per-tensor scale below the threshold. */
   flagged: boolean;
 }
 
@@ -210,7 +210,9 @@ export function quantReadiness(before: Model, after: Model, ledger: readonly Led
     rows.push({
       target: g.target, norms: g.norms, channels: a.channels, spreadBefore: b.spread, spreadAfter: a.spread,
       sqnrBefore: b.sqnr, sqnrAfter: a.sqnr,
-      flagged: a.sqnr.worstChannel < thresholdDb,
+      // flagged when the fold brought a channel below the threshold (a channel already that lossy before the fold,
+      // e.g. a dead one, is shown but not blamed on the fold)
+      flagged: a.sqnr.worstChannel < thresholdDb && a.sqnr.worstChannel < b.sqnr.worstChannel,
     });
   }
   return rows;
