@@ -10,16 +10,20 @@ import type { AuditJobOptions, AuditReport, FoldJobOptions, FoldReport } from '.
 import { EXIT } from '../src/report/exit-codes.js';
 import type { Outcome } from '../src/report/render.js';
 import type { Progress } from './progress.js';
+import { runFigures } from './output.js';
 
-export type Job =
+export type Job = (
   | { command: 'fold'; model: string; output: string; opts: FoldJobOptions }
-  | { command: 'audit'; model: string; opts: AuditJobOptions };
+  | { command: 'audit'; model: string; opts: AuditJobOptions }
+) & { runFigures?: boolean };
 
 export type JobOutcome = Outcome<FoldReport | AuditReport>;
 
 /** Run one job here and now; errors are thrown (a single model's error ends the command as usual). */
 export function runJob(job: Job): JobOutcome {
+  const started = process.hrtime.bigint();
   const report = job.command === 'fold' ? fold(job.model, job.output, job.opts) : audit(job.model, job.opts);
+  if (job.runFigures) report.run = runFigures(started);
   return { model: job.model, report, exitCode: report.failed ? EXIT.failed : EXIT.ok };
 }
 

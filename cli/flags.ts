@@ -19,8 +19,9 @@ export function inputFlags<T>(y: Argv<T>) {
 export function reportFlags<T>(y: Argv<T>) {
   return y
     .option('json', { type: 'boolean', describe: 'print the report as JSON (same as --format json)' })
-    .option('format', { type: 'string', choices: ['text', 'json', 'junit', 'markdown'], describe: 'report format on stdout (default text)' })
-    .option('report', { type: 'string', coerce: many, describe: 'also write a report file: FILE (.json, .xml = junit, .md, .txt) or FORMAT:FILE; repeatable, one per format' });
+    .option('format', { type: 'string', choices: ['text', 'json', 'junit', 'markdown', 'html'], describe: 'report format on stdout (default text)' })
+    .option('report', { type: 'string', coerce: many, describe: 'also write a report file: FILE (.json, .xml = junit, .md, .txt, .html) or FORMAT:FILE; repeatable, one per format' })
+    .option('run-figures', { type: 'boolean', default: false, describe: 'record the wall time and peak memory of the run in the report (then reports differ from run to run)' });
 }
 
 export function configFlags<T>(y: Argv<T>) {

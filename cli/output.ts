@@ -9,6 +9,7 @@ export interface ReportFlags {
   json?: boolean;
   format?: string;
   report?: string[];
+  runFigures?: boolean;
 }
 
 /** The stdout format: --format, with --json meaning --format json (the two must not disagree). */
@@ -19,13 +20,29 @@ export function stdoutFormat(flags: ReportFlags): Format {
   return f as Format;
 }
 
+export interface ReportPlan {
+  format: Format;
+  files: ReturnType<typeof parseReportSpecs>;
+  /** An HTML report is wanted: the jobs also record what the page shows beyond the ledger (SHA-256, sketches). */
+  pageDetail: boolean;
+  /** --run-figures: record wall time and peak memory. */
+  runFigures: boolean;
+}
+
 /** Check flags before any work runs, so a usage error never costs a long job. */
-export function planReports(flags: ReportFlags): { format: Format; files: ReturnType<typeof parseReportSpecs> } {
-  return { format: stdoutFormat(flags), files: parseReportSpecs(flags.report ?? []) };
+export function planReports(flags: ReportFlags): ReportPlan {
+  const format = stdoutFormat(flags), files = parseReportSpecs(flags.report ?? []);
+  return { format, files, pageDetail: format === 'html' || files.some((f) => f.format === 'html'), runFigures: flags.runFigures === true };
+}
+
+/** Wall time and peak resident memory of this process so far, for --run-figures. */
+export function runFigures(startedAt: bigint): { seconds: number; peakMemoryBytes: number } {
+  const seconds = Number(process.hrtime.bigint() - startedAt) / 1e9;
+  return { seconds: Math.round(seconds * 1000) / 1000, peakMemoryBytes: process.resourceUsage().maxRSS * 1024 };
 }
 
 /** Print stdout's report (coloured only on a TTY without NO_COLOR) and write every --report file (never coloured). */
-export async function emit(plan: ReturnType<typeof planReports>, render: (format: Format, colour: boolean) => string): Promise<void> {
+export async function emit(plan: ReportPlan, render: (format: Format, colour: boolean) => string): Promise<void> {
   for (const spec of plan.files) writeReportFile(spec.file, render(spec.format, false));
   await out(render(plan.format, plan.format === 'text' && useColour(process.stdout)));
 }
@@ -39,7 +56,7 @@ export function reportErrors(lines: readonly string[]): void {
  * Run fold or audit jobs (one worker per core), then print their reports and set the exit code to the worst
  * of the batch. The library is loaded here, not at start-up: --help or a usage error needs none of it.
  */
-export async function runAndReport(command: 'fold' | 'audit', jobs: import('./batch.js').Job[], plan: ReturnType<typeof planReports>, quiet: boolean): Promise<void> {
+export async function runAndReport(command: 'fold' | 'audit', jobs: import('./batch.js').Job[], plan: ReportPlan, quiet: boolean): Promise<void> {
   const { runBatch } = await import('./batch.js');
   const { renderJobs, isJobError } = await import('../src/report/render.js');
   const { startProgress } = await import('./progress.js');

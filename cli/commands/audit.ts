@@ -17,12 +17,12 @@ export function builder(y: Argv) {
     .epilogue(EPILOGUE);
 }
 
-interface Flags { models: string[]; failOn?: 'kept'; keep?: string[]; allowOverridable: boolean; json?: boolean; format?: string; report?: string[]; config?: string; quiet: boolean }
+interface Flags { models: string[]; failOn?: 'kept'; keep?: string[]; allowOverridable: boolean; json?: boolean; format?: string; report?: string[]; runFigures?: boolean; config?: string; quiet: boolean }
 
 export async function handler(argv: Flags): Promise<void> {
   const plan = planReports(argv);
   const { config } = loadConfig(argv.config);
-  const opts = { keep: keepList(config, argv.keep), failOn: argv.failOn ?? config.failOn, allowOverridable: argv.allowOverridable };
-  const jobs: Job[] = argv.models.map((model) => ({ command: 'audit', model, opts }));
+  const opts = { keep: keepList(config, argv.keep), failOn: argv.failOn ?? config.failOn, allowOverridable: argv.allowOverridable, pageDetail: plan.pageDetail };
+  const jobs: Job[] = argv.models.map((model) => ({ command: 'audit', model, opts, runFigures: plan.runFigures }));
   await runAndReport('audit', jobs, plan, argv.quiet);
 }

@@ -1,6 +1,6 @@
 import type { Argv } from 'yargs';
 import { loadConfig, runSettings } from '../config.js';
-import { emit, planReports } from '../output.js';
+import { emit, planReports, runFigures } from '../output.js';
 import { configFlags, EPILOGUE, inputFlags, reportFlags } from '../flags.js';
 
 export const command = 'compare <a> <b>';
@@ -15,7 +15,7 @@ export function builder(y: Argv) {
     .epilogue(EPILOGUE);
 }
 
-interface Flags { a: string; b: string; probes?: number; gate?: string; seed?: number; input?: string[]; shape?: string[]; dim?: string[]; json?: boolean; format?: string; report?: string[]; config?: string }
+interface Flags { a: string; b: string; probes?: number; gate?: string; seed?: number; input?: string[]; shape?: string[]; dim?: string[]; json?: boolean; format?: string; report?: string[]; runFigures?: boolean; config?: string }
 
 export async function handler(argv: Flags): Promise<void> {
   const plan = planReports(argv);
@@ -25,7 +25,13 @@ export async function handler(argv: Flags): Promise<void> {
   const { compare } = await import('../../src/index.js');
   const { renderCompare } = await import('../../src/report/render.js');
   const { EXIT } = await import('../../src/report/exit-codes.js');
+  const { fileSha256 } = await import('../../src/jobs/sha256.js');
+  const started = process.hrtime.bigint();
   const report = compare(argv.a, argv.b, run);
-  await emit(plan, (format, colour) => renderCompare(report, argv.a, argv.b, format, colour));
+  const extras = {
+    ...(plan.pageDetail ? { sha256: { a: fileSha256(argv.a), b: fileSha256(argv.b) } } : {}),
+    ...(plan.runFigures ? { run: runFigures(started) } : {}),
+  };
+  await emit(plan, (format, colour) => renderCompare(report, argv.a, argv.b, format, colour, extras));
   process.exitCode = report.passed ? EXIT.ok : EXIT.failed;
 }

@@ -29,7 +29,7 @@ export function builder(y: Argv) {
 
 interface Flags {
   models: string[]; out?: string; outDir?: string; keep?: string[]; allowOverridable: boolean; externalDataMin?: number; store?: 'float16'; gate?: string; probes?: number; seed?: number; unproven: boolean;
-  input?: string[]; shape?: string[]; dim?: string[]; json?: boolean; format?: string; report?: string[]; config?: string; quiet: boolean;
+  input?: string[]; shape?: string[]; dim?: string[]; json?: boolean; format?: string; report?: string[]; runFigures?: boolean; config?: string; quiet: boolean;
 }
 
 /** Where each model's folded copy goes: -o for one model, --out-dir for any number. */
@@ -59,8 +59,8 @@ export async function handler(argv: Flags): Promise<void> {
   const opts: FoldJobOptions = {
     inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, probes: run.probes, gate: run.gate,
     keep: keepList(config, argv.keep), store: argv.store ?? config.store, allowOverridable: argv.allowOverridable,
-    externalThreshold: argv.externalDataMin, noProofs: argv.unproven,
+    externalThreshold: argv.externalDataMin, noProofs: argv.unproven, pageDetail: plan.pageDetail,
   };
-  const jobs: Job[] = argv.models.map((model, i) => ({ command: 'fold', model, output: outputs[i]!, opts }));
+  const jobs: Job[] = argv.models.map((model, i) => ({ command: 'fold', model, output: outputs[i]!, opts, runFigures: plan.runFigures }));
   await runAndReport('fold', jobs, plan, argv.quiet);
 }

@@ -12,6 +12,8 @@ import { DEFAULT_GATES } from '../verify/gate.js';
 import { asMap, dimSymbols } from '../verify/inputs.js';
 import { PleatError } from '../errors.js';
 import { quantReadiness } from '../fold/quant.js';
+import { sketches } from '../fold/sketch.js';
+import { fileSha256 } from './sha256.js';
 import { SCHEMA_VERSION, type CheckSummary, type FoldJobOptions, type FoldReport, type StorageSummary } from './types.js';
 
 /** Compare the original and the folded model on seeded probes; skipped (not failed) when shapes are unknown. */
@@ -42,6 +44,8 @@ export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOpt
         cosine: o.metrics?.cosine ?? NaN,
         passed: o.passed,
         ...(o.problem ? { problem: o.problem } : {}),
+        ...(o.histogram ? { histogram: o.histogram } : {}),
+        ...(o.gate ? { limits: o.gate.limits } : {}),
       })),
     };
   } catch (e) {
@@ -101,6 +105,10 @@ function foldFileOnce(input: string, output: string, opts: FoldJobOptions, lateR
   // A second, untouched copy is the reference for the whole-model check and the quantization report.
   const original = opts.noProofs ? undefined : readModelFile(input);
   const report = foldLoaded(model, original, input, opts, lateRangeCheck);
+  if (opts.pageDetail) {
+    report.sha256 = fileSha256(input);
+    report.sketches = sketches(original ?? readModelFile(input), report.normalizations, model);
+  }
   if (!report.failed) {
     writeModelFile(model, output, { externalThreshold: opts.externalThreshold });
     report.output = output;

@@ -3,10 +3,13 @@
 import type { Finding, LedgerEntry } from '../fold/types.js';
 import type { InputOptions } from '../verify/inputs.js';
 import type { QuantRow } from '../fold/quant.js';
+import type { DiffHistogram } from '../verify/metrics.js';
+import type { GateLimit } from '../verify/gate.js';
+import type { Sketch } from '../fold/sketch.js';
 
-export type { QuantRow };
+export type { QuantRow, Sketch };
 
-export const SCHEMA_VERSION = 1;
+export const SCHEMA_VERSION = 2;
 
 export interface OutputCheck {
   name: string;
@@ -17,6 +20,19 @@ export interface OutputCheck {
   passed: boolean;
   /** Why the output failed when it was not a metric (missing, shape differs). */
   problem?: string;
+  /** How |folded - original| is spread over the elements of every probe (the values the metrics judge). */
+  histogram?: DiffHistogram;
+  /** The bounds this output's gate puts on maxAbs or maxRel, evaluated on its metrics. */
+  limits?: GateLimit[];
+}
+
+/**
+ * The run itself (only with --run-figures, since it differs from run to run): wall time of the job and the
+ * peak resident memory of the pleat process up to its end (in a batch, shared with the models running beside it).
+ */
+export interface RunFigures {
+  seconds: number;
+  peakMemoryBytes: number;
 }
 
 /** The whole-model comparison fold runs after folding (original float64 vs folded). */
@@ -57,6 +73,11 @@ export interface FoldReport {
   storage: StorageSummary | null;
   /** True when a gate failed (exit 1): then nothing was written. */
   failed: boolean;
+  /** SHA-256 of the model file (hex), recorded when an HTML report is asked for (the page shows it). */
+  sha256?: string;
+  /** The neighbourhood of each normalization, recorded when an HTML report is asked for (the page draws it). */
+  sketches?: Sketch[];
+  run?: RunFigures;
 }
 
 export interface AuditReport {
@@ -69,6 +90,9 @@ export interface AuditReport {
   failOn: 'kept' | null;
   /** True when --fail-on kept is set and a normalization is kept (exit 1). */
   failed: boolean;
+  sha256?: string;
+  sketches?: Sketch[];
+  run?: RunFigures;
 }
 
 export interface FoldJobOptions extends InputOptions {
@@ -83,10 +107,14 @@ export interface FoldJobOptions extends InputOptions {
   noProofs?: boolean;
   /** Tensors of at least this many bytes go to a side file. */
   externalThreshold?: number;
+  /** Record what an HTML report shows beyond the ledger: the model's SHA-256 and each norm's neighbourhood. */
+  pageDetail?: boolean;
 }
 
 export interface AuditJobOptions {
   keep?: string[];
   allowOverridable?: boolean;
   failOn?: 'kept';
+  /** See FoldJobOptions.pageDetail. */
+  pageDetail?: boolean;
 }

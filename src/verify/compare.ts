@@ -9,8 +9,8 @@ import type { Precision, Value } from '../eval/value.js';
 import { runModel } from '../eval/run.js';
 import { PleatError } from '../errors.js';
 import { dataTypeName } from '../graph/tensor.js';
-import { computeMetrics, worstOf, type Metrics } from './metrics.js';
-import { BUDGET_NAMES, defaultGateFor, defaultGateKey, METRIC_NAMES, parseGate, type Gate, type GateScope } from './gate.js';
+import { computeMetrics, diffHistogram, worstOf, type DiffHistogram, type Metrics } from './metrics.js';
+import { BUDGET_NAMES, defaultGateFor, defaultGateKey, METRIC_NAMES, parseGate, type Gate, type GateLimit, type GateScope } from './gate.js';
 import {
   asMap, checkDimFlags, makeProbe, resolveInputs, summarizeInputs, type InputOptions, type InputSummary, type InputValue,
 } from './inputs.js';
@@ -44,6 +44,8 @@ export interface GateResult {
   expr: string;
   source: 'default' | 'user';
   passed: boolean;
+  /** The bounds the expression puts on maxAbs or maxRel, evaluated on this output's metrics. */
+  limits: GateLimit[];
 }
 
 export interface OutputComparison {
@@ -60,6 +62,8 @@ export interface OutputComparison {
   /** B (float64) against A (float64), worst over probes. */
   metrics?: Metrics;
   budget?: ErrorBudget;
+  /** How |B - A| (float64, the values the metrics judge) is spread over the elements of every probe. */
+  histogram?: DiffHistogram;
   gate?: GateResult;
   passed: boolean;
   /** One line saying what went wrong, when something did. */
@@ -140,7 +144,7 @@ export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareR
   const aNames = new Set(aOut.map((o) => o.name));
 
   // Per output shared by both: metrics per probe, or the first shape difference.
-  interface Acc { metrics: Metrics[]; own: Metrics[]; deploy: Metrics[]; dimsA?: number[]; dimsB?: number[]; shapeDiffers: boolean; typeA?: DataTypeCode; typeB?: DataTypeCode }
+  interface Acc { histogram?: DiffHistogram; metrics: Metrics[]; own: Metrics[]; deploy: Metrics[]; dimsA?: number[]; dimsB?: number[]; shapeDiffers: boolean; typeA?: DataTypeCode; typeB?: DataTypeCode }
   const acc = new Map<string, Acc>();
   for (const o of aOut) if (bOut.has(o.name)) acc.set(o.name, { metrics: [], own: [], deploy: [], shapeDiffers: false });
   const onlyB = new Map<string, Value>();
@@ -163,6 +167,7 @@ export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareR
       if (s.shapeDiffers) continue;
       if (!sameDims(va.dims, vb.dims)) { s.shapeDiffers = true; s.dimsA = [...va.dims]; s.dimsB = [...vb.dims]; continue; }
       s.metrics.push(computeMetrics(vb.data, va.data));
+      s.histogram = diffHistogram(vb.data, va.data, s.histogram);
       if (ra32 && rb32) {
         const a32 = ra32.get(name)!, b32 = rb32.get(name)!;
         // float32 runs take the same shapes as float64 runs of the same model; B's were just checked against A's
@@ -192,6 +197,7 @@ export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareR
     }
     const metrics = worstOf(s.metrics);
     out.metrics = metrics;
+    if (s.histogram) out.histogram = s.histogram;
     const scope: GateScope = { ...metrics };
     if (budget) {
       const own = worstOf(s.own), deploy = worstOf(s.deploy);
@@ -201,7 +207,7 @@ export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareR
     }
     const gate: Gate = userGate ?? parseGate(defaultGate(s.typeA!, s.typeB), available);
     const passed = gate.test(scope);
-    out.gate = { expr: gate.expr, source: userGate ? 'user' : 'default', passed };
+    out.gate = { expr: gate.expr, source: userGate ? 'user' : 'default', passed, limits: gate.limits(scope) };
     out.passed = passed;
     if (!passed) out.problem = `output '${o.name}' fails the gate '${gate.expr}'`;
     outputs.push(out);
