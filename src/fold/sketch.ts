@@ -56,13 +56,14 @@ function viewAround(scope: Scope, centre: Node, norm: string, target: string | n
     return out;
   };
   const seen = new Set<Node>([centre]);
-  let frontier = [centre], omitted = 0;
+  const left = new Set<Node>();
+  let frontier = [centre];
   for (let hop = 0; hop < HOPS; hop++) {
     const next: Node[] = [];
     for (const n of frontier) {
       for (const m of neighbours(n)) {
         if (seen.has(m)) continue;
-        if (seen.size >= MAX_NODES) { omitted++; continue; }
+        if (seen.size >= MAX_NODES) { left.add(m); continue; }
         seen.add(m);
         next.push(m);
       }
@@ -81,7 +82,7 @@ function viewAround(scope: Scope, centre: Node, norm: string, target: string | n
       for (const c of ud.consumers(v)) if (seen.has(c)) edges.push({ from: labelOf(scope, n), to: labelOf(scope, c), value: v });
     }
   }
-  return { nodes, edges, omitted };
+  return { nodes, edges, omitted: left.size };
 }
 
 function findNode(scope: Scope, label: string): Node | undefined {

@@ -45,7 +45,7 @@ export interface GateResult {
   source: 'default' | 'user';
   passed: boolean;
   /** The bounds the expression puts on maxAbs or maxRel, evaluated on this output's metrics. */
-  limits: GateLimit[];
+  limits?: GateLimit[];
 }
 
 export interface OutputComparison {

@@ -43,7 +43,7 @@ describe('pleat compare', { timeout: 120_000 }, () => {
     expect(r.stderr).toBe('');
     expect(r.code).toBe(0);
     const j = JSON.parse(r.stdout);
-    expect(j).toMatchObject({ schemaVersion: 1, command: 'compare', a, b: same, passed: true, probes: 3 });
+    expect(j).toMatchObject({ schemaVersion: 2, command: 'compare', a, b: same, passed: true, probes: 3 });
     expect(j.outputs[0].metrics.maxAbs).toBe(0);
     const validate = schemaValidator();
     expect(validate(j), JSON.stringify(validate.errors)).toBe(true);

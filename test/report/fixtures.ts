@@ -4,7 +4,7 @@ import type { CompareReport } from '../../src/verify/compare.js';
 
 export function foldReport(over: Partial<FoldReport> = {}): FoldReport {
   return {
-    schemaVersion: 1, command: 'fold', model: 'models/tray-sorter.onnx', output: 'out/tray-sorter.onnx',
+    schemaVersion: 2, command: 'fold', model: 'models/tray-sorter.onnx', output: 'out/tray-sorter.onnx',
     normalizations: [
       { node: 'stem_bn', op: 'BatchNormalization', status: 'folded', direction: 'into-producer', target: 'stem_conv', reason: null, hint: 'scaled 16 output channels of stem_conv', graph: 'main' },
       { node: 'head_bn', op: 'BatchNormalization', status: 'folded', direction: 'into-consumer', target: 'head_fc', reason: null, hint: 'scaled the input columns of head_fc', graph: 'main' },
@@ -24,7 +24,7 @@ export function foldReport(over: Partial<FoldReport> = {}): FoldReport {
 
 export function auditReport(over: Partial<AuditReport> = {}): AuditReport {
   return {
-    schemaVersion: 1, command: 'audit', model: 'models/pump|monitor.onnx',
+    schemaVersion: 2, command: 'audit', model: 'models/pump|monitor.onnx',
     normalizations: [
       { node: 'conv1_bn', op: 'BatchNormalization', status: 'foldable', direction: 'into-producer', target: 'conv1', reason: null, hint: 'would scale conv1', graph: 'main' },
       { node: 'ln', op: 'LayerNormalization', status: 'kept', direction: null, target: null, reason: 'runtime-statistics', hint: 'statistics come from each input; its affine tail could fold into dense_2', graph: 'main' },
