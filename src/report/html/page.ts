@@ -50,7 +50,7 @@ function countsTile(entries: readonly Entry[]): string {
     for (const e of entries) { const k = key(e); if (k !== null) m.set(k, (m.get(k) ?? 0) + 1); }
     return [...m].sort(([a], [b]) => (a < b ? -1 : a > b ? 1 : 0));
   };
-  const statuses = by((e) => e.status).map(([s, n]) => `${tally(`status:${s}`, n)} ${badge(s)}`).join(' ');
+  const statuses = by((e) => e.status).map(([s, n]) => `${badge(s)} ${tally(`status:${s}`, n)}`).join(', ');
   const reasons = by((e) => e.reason).map(([r, n]) => `${tally(`reason:${r}`, n)} <code>${esc(r)}</code>`).join(', ');
   return tile('normalizations', `${tally('entries', entries.length)} in all${statuses ? `: ${statuses}` : ''}${reasons ? `<br>kept because: ${reasons}` : ''}`);
 }
