@@ -4,7 +4,7 @@
 // same input and flags give the same bytes, and every figure the page shows is the figure of the JSON report
 // of the same run. The screenshot for the README is saved to models/images/fold-report.png.
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { copyFileSync, mkdirSync, mkdtempSync, readFileSync, rmSync } from 'node:fs';
+import { copyFileSync, mkdirSync, mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { pathToFileURL } from 'node:url';
@@ -12,6 +12,10 @@ import type { BrowserContext, Page } from 'playwright-core';
 import { pleat, ROOT } from '../helpers/cli.js';
 import { browserAvailable, openBrowser } from '../helpers/browser.js';
 import { bytesText, cosineText, numText, ratioText } from '../../src/report/format.js';
+import { renderJobs } from '../../src/report/render.js';
+import { toJsonText } from '../../src/verify/compare.js';
+import type { FoldReport } from '../../src/jobs/types.js';
+import { foldReport } from './fixtures.js';
 
 // Runs work in a scratch folder holding a copy of the demo models, so the paths the page shows (and so the
 // screenshot) are the same on every machine.
@@ -69,6 +73,7 @@ function expectedText(path: string, v: unknown): string {
   if (key.startsWith('bytes') || key === 'peakMemoryBytes') return bytesText(n);
   if (key.startsWith('spread')) return ratioText(n);
   if (key === 'seconds') return `${n.toFixed(2)} s`;
+  if (key === 'sqnr') return `${n.toFixed(1)} dB`;
   return String(n);
 }
 
@@ -163,6 +168,51 @@ describe.skipIf(!browser)('HTML report in headless Chromium', () => {
     expect(problems).toEqual([]);
     await page.close();
   }, 120_000);
+
+  it('reflows at 200% zoom (no page-wide horizontal scroll) and prints without the navigation links', async () => {
+    const { page, problems } = await load(context, at('first.html'));
+    await page.setViewportSize({ width: 600, height: 900 }); // 1200 px of screen at 200% zoom
+    expect(await page.evaluate(() => document.documentElement.scrollWidth)).toBeLessThanOrEqual(600);
+    for (const c of await page.locator('article.card').all()) {
+      const box = (await c.boundingBox())!;
+      expect(box.x + box.width).toBeLessThanOrEqual(600);
+    }
+    await page.emulateMedia({ media: 'print' });
+    expect(await page.locator('a.back').first().isVisible()).toBe(false);
+    expect(await page.locator('article.card').first().isVisible()).toBe(true);
+    expect(problems).toEqual([]);
+    await page.close();
+  }, 60_000);
+
+  it('fields other reports add are shown when present: proof figures, check status, affine steps collapsed, sqnr', async () => {
+    const base = foldReport();
+    const report = {
+      ...base,
+      normalizations: [
+        { ...base.normalizations[0]!, kind: 'normalization', proof: { maxAbs: 2.5e-8, maxRel: 1.25e-7, shape: [1, 16, 8, 8] } },
+        ...base.normalizations.slice(1),
+        { node: 'scale_mul', op: 'Mul', status: 'folded', direction: 'into-producer', target: 'head_fc', reason: null, hint: 'a constant scale', graph: 'main', kind: 'affine-step' },
+      ],
+      check: { ...base.check!, passed: false, status: 'failed' },
+      quantization: [{ ...base.quantization[0]!, sqnr: 31.25 }, { target: 'wide', norms: ['w_bn'], channels: 4, spreadBefore: 3, spreadAfter: Infinity, flagged: true }],
+    } as unknown as FoldReport;
+    writeFileSync(at('fixture.html'), renderJobs('fold', [{ model: report.model, report, exitCode: 0 }], 'html'));
+    const { page, problems } = await load(context, at('fixture.html'));
+    expectFiguresMatch(await figuresOf(page), JSON.parse(toJsonText(report)));
+    const shown = new Set((await figuresOf(page)).map((f) => f.path));
+    for (const p of ['normalizations.0.proof.maxAbs', 'normalizations.0.proof.maxRel', 'quantization.0.sqnr', 'quantization.1.spreadAfter']) expect(shown).toContain(p);
+    // the affine step has its card in a collapsed section; the normalizations' cards are outside it
+    expect(await page.locator('details#affine').evaluate((d) => (d as HTMLDetailsElement).open)).toBe(false);
+    expect(await page.locator('details#affine article.card h3 code').allTextContents()).toEqual(['scale_mul']);
+    expect(await page.locator('#norm-cards > article.card h3 code').allTextContents()).toEqual(['stem_bn', 'head_bn', 'edge_bn']);
+    await page.locator('details#affine summary').click();
+    expect(await page.locator('details#affine article.card').isVisible()).toBe(true);
+    // check status from its own field; text that looks like markup stays text
+    expect(await page.locator('.tile', { hasText: 'whole-model check' }).locator('.badge').textContent()).toBe('✘ failed');
+    expect(await page.locator('#card-2 dd').allTextContents()).toContain(base.normalizations[2]!.hint);
+    expect(problems).toEqual([]);
+    await page.close();
+  }, 60_000);
 
   it('every figure on the fold page is the figure of the JSON report of the same run', async () => {
     const report = json('figures.json');

@@ -122,7 +122,7 @@ function cards(entries: readonly Entry[], sketches: readonly Sketch[] | undefine
   const list = (pick: (e: Entry) => boolean) => entries.map((e, i) => (pick(e) ? card(e, i, find(e), pre, at) : '')).join('');
   const norms = list((e) => !isAffineStep(e));
   const steps = entries.filter(isAffineStep).length;
-  let out = `<h2 id="${pre}cards">Normalizations, one card each</h2>${sketches ? LEGEND : ''}<div class="cards">${norms}</div>`;
+  let out = `<h2 id="${pre}cards">Normalizations, one card each</h2>${sketches ? LEGEND : ''}<div class="cards" id="${pre}norm-cards">${norms}</div>`;
   if (steps) out += `<details id="${pre}affine"><summary>Affine steps also folded (${steps})</summary><div class="cards">${list(isAffineStep)}</div></details>`;
   return out;
 }
