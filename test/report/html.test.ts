@@ -247,7 +247,9 @@ describe.skipIf(!browser)('HTML report in headless Chromium', () => {
     run(['audit', 'models/pump-vibration.onnx', '--report', 'audit.html', '--report', 'audit.json']);
     run(['fold', 'models/pump-vibration.onnx', '-o', 'pump.onnx']);
     run(['compare', 'models/pump-vibration.onnx', 'pump.onnx', '--report', 'compare.html', '--report', 'compare.json']);
-    for (const [html, j, cards, plots] of [['audit.html', 'audit.json', 5, 0], ['compare.html', 'compare.json', 0, 1]] as const) {
+    // a batch: one section per model, figures at their place in the batch JSON
+    run(['fold', 'models/pump-vibration.onnx', 'models/tray-sorter.onnx', '--out-dir', 'batch', '--dim', 'batch=1', '--report', 'batch.html', '--report', 'batch.json']);
+    for (const [html, j, cards, plots] of [['audit.html', 'audit.json', 5, 0], ['compare.html', 'compare.json', 0, 1], ['batch.html', 'batch.json', 16, 3]] as const) {
       const { page, problems } = await load(context, at(html));
       const report = json(j);
       expectFiguresMatch(await figuresOf(page), report);

@@ -62,11 +62,11 @@ function checkStatus(c: CheckSummary): string {
   return typeof s === 'string' ? s : c.skipped !== null ? 'skipped' : c.passed ? 'passed' : 'failed';
 }
 
-function checkTile(c: CheckSummary | null): string {
+function checkTile(c: CheckSummary | null, at: string): string {
   if (c === null) return tile('whole-model check', `${badge('skipped')} not run (<code>--unproven</code>)`);
   const status = checkStatus(c);
   const detail = c.skipped !== null ? esc(c.skipped)
-    : `${fig('check.probes', c.probes, String(c.probes))} probe${c.probes === 1 ? '' : 's'}, seed ${fig('check.seed', c.seed, String(c.seed))}; gate ${c.gates.map((g) => `<code>${esc(g)}</code>`).join(', ')}`;
+    : `${fig(`${at}check.probes`, c.probes, String(c.probes))} probe${c.probes === 1 ? '' : 's'}, seed ${fig(`${at}check.seed`, c.seed, String(c.seed))}; gate ${c.gates.map((g) => `<code>${esc(g)}</code>`).join(', ')}`;
   return tile('whole-model check', `${badge(status)} ${detail}`);
 }
 
@@ -176,7 +176,7 @@ export function foldBody(r: FoldReport, pre = '', at = ''): string {
     shaTile(r.sha256, `${at}sha256`),
     tile('nodes', `${fig(`${at}nodesBefore`, r.nodesBefore, String(r.nodesBefore))} before, ${fig(`${at}nodesAfter`, r.nodesAfter, String(r.nodesAfter))} after`),
     tile('weight bytes', `${fig(`${at}bytesBefore`, r.bytesBefore, bytesText(r.bytesBefore))} before, ${fig(`${at}bytesAfter`, r.bytesAfter, bytesText(r.bytesAfter))} after`),
-    countsTile(entries), checkTile(r.check), runTile(r.run, at),
+    countsTile(entries), checkTile(r.check, at), runTile(r.run, at),
   ];
   if (r.storage) overview.push(tile('storage', `${esc(r.storage.store)}: ${fig(`${at}storage.tensorsConverted`, r.storage.tensorsConverted, String(r.storage.tensorsConverted))} tensors converted`));
   return `<h1>pleat fold <code>${esc(r.model)}</code></h1><p class="sub">${r.failed ? `${badge('failed')} a gate failed; nothing was written` : 'Folded.'}</p>` +
