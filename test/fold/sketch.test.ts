@@ -7,6 +7,8 @@ import { analyze, foldModel } from '../../src/fold/index.js';
 import { MAX_NODES, sketches } from '../../src/fold/sketch.js';
 import type { Graph } from '../../src/graph/ir.js';
 import { ROOT } from '../helpers/cli.js';
+import { GraphBuilder, modelBytes, randn, rng } from '../helpers/build.js';
+import { parseModel } from '../../src/onnx/read.js';
 
 /** Names of the nodes within `hops` of `start` (a named node), walking through shared values both ways. */
 function walk(g: Graph, start: string, hops: number): Set<string> {
@@ -70,5 +72,24 @@ describe('sketches', () => {
     expect(stem.after!.nodes.map((n) => n.id)).not.toContain('stem.bn');
     expect(stem.after!.nodes.find((n) => n.id === 'stem.conv')!.role).toBe('target');
     expect(new Set(stem.after!.nodes.map((n) => n.id))).toEqual(walk(after.graph, 'stem.conv', 2));
+  });
+
+  it('a wide neighbourhood is cut at MAX_NODES and says how many neighbours were left out', () => {
+    // a conv whose output 40 Relu nodes read besides the norm (so the norm is kept, shared-output)
+    const g = new GraphBuilder();
+    g.input('x', [1, 2, 4, 4]);
+    const r = rng(3);
+    const c = g.node('Conv', ['x', g.init('w', [2, 2, 1, 1], randn(r, 4))], {}, { name: 'conv' });
+    const bn = g.node('BatchNormalization', [c, g.init('s', [2], [1, 2]), g.init('b', [2], [0, 1]), g.init('m', [2], [0, 0]), g.init('v', [2], [1, 1])], {}, { name: 'bn' });
+    g.output(bn);
+    for (let i = 0; i < 40; i++) g.output(g.node('Relu', [c], {}, { name: `reader${i}` }));
+    const model = parseModel(modelBytes(g), '/x');
+    const findings = analyze(model);
+    const [s] = sketches(model, findings);
+    const want = walk(model.graph, 'bn', 2);
+    expect(want.size).toBe(42);
+    expect(s!.before.nodes).toHaveLength(MAX_NODES);
+    expect(s!.before.omitted).toBe(42 - MAX_NODES);
+    expect(s!.before.nodes.map((n) => n.id)).toEqual(expect.arrayContaining(['conv', 'bn']));
   });
 });
