@@ -36,7 +36,7 @@ describe("import { survey, fold, audit, compare, evaluate } from 'pleat'", () =>
     expect(r.code).toBe(0);
     const j = JSON.parse(r.stdout);
     expect(j).toEqual({
-      nodes: 18, auditCommand: 'audit', foldable: 5, schema: 1, folded: 5, written: true, checkPassed: true,
+      nodes: 18, auditCommand: 'audit', foldable: 5, schema: 2, folded: 5, written: true, checkPassed: true,
       comparePassed: true, outputs: ['fault_logits'], dims: [1, 3], typed: true, kind: 'bad-input',
     });
   });
