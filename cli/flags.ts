@@ -24,6 +24,18 @@ export function reportFlags<T>(y: Argv<T>) {
     .option('run-figures', { type: 'boolean', default: false, describe: 'record the wall time and peak memory of the run in the report (then reports differ from run to run)' });
 }
 
+/** --simulate-int8 weights and --int8-granularity tensor|channel (fold and compare). */
+export function int8Flags<T>(y: Argv<T>) {
+  return y
+    .option('simulate-int8', { type: 'string', choices: ['weights'], describe: 'also run with Conv/Gemm/MatMul weights rounded through symmetric 8-bit quantize-dequantize, and report the output error' })
+    .option('int8-granularity', { type: 'string', choices: ['tensor', 'channel'], default: 'tensor', describe: 'one 8-bit scale per weight tensor or per output channel (with --simulate-int8)' });
+}
+
+/** The granularity to simulate, or undefined without --simulate-int8. */
+export function int8Setting(flags: { simulateInt8?: string; int8Granularity?: string }): 'tensor' | 'channel' | undefined {
+  return flags.simulateInt8 === 'weights' ? (flags.int8Granularity === 'channel' ? 'channel' : 'tensor') : undefined;
+}
+
 export function configFlags<T>(y: Argv<T>) {
   return y.option('config', { type: 'string', describe: 'defaults from this JSON file (else pleat.config.json here, if present); flags override it' });
 }

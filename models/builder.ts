@@ -85,6 +85,8 @@ export function tensor(name: string, dims: number[], values: ArrayLike<number>, 
     case T.INT64: { const d = dv(8); arr.forEach((v, i) => d.setBigInt64(i * 8, BigInt(v), true)); break; }
     case T.INT32: { const d = dv(4); arr.forEach((v, i) => d.setInt32(i * 4, v, true)); break; }
     case T.INT8: { const d = dv(1); arr.forEach((v, i) => d.setInt8(i, v)); break; }
+    case T.INT16: { const d = dv(2); arr.forEach((v, i) => d.setInt16(i * 2, v, true)); break; }
+    case T.UINT16: { const d = dv(2); arr.forEach((v, i) => d.setUint16(i * 2, v, true)); break; }
     case T.UINT8: case T.BOOL: { const d = dv(1); arr.forEach((v, i) => d.setUint8(i, v)); break; }
     default: throw new Error(`builder: no raw encoding for type ${dataType}`);
   }

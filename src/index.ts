@@ -8,6 +8,7 @@ import { auditFile } from './jobs/audit.js';
 import type { AuditJobOptions, AuditReport, FoldJobOptions, FoldReport } from './jobs/types.js';
 
 export { survey, surveyModel, type SurveyReport } from './jobs/survey.js';
+export type { EvaluatorGap } from './eval/coverage.js';
 export { PleatError, isPleatError, type ErrorKind } from './errors.js';
 export { readModelFile, parseModel } from './onnx/read.js';
 export { writeModelFile, serializeModel, type WriteOptions } from './onnx/write.js';

@@ -6,6 +6,7 @@ import { mkdtempSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { ROOT } from './helpers/cli.js';
+import { SCHEMA_VERSION } from '../src/jobs/types.js';
 
 function runScript(code: string): { code: number; stdout: string; stderr: string } {
   const r = spawnSync(process.execPath, ['--input-type=module', '-e', code], { cwd: ROOT, encoding: 'utf8' });
@@ -36,7 +37,7 @@ describe("import { survey, fold, audit, compare, evaluate } from 'pleat'", () =>
     expect(r.code).toBe(0);
     const j = JSON.parse(r.stdout);
     expect(j).toEqual({
-      nodes: 18, auditCommand: 'audit', foldable: 5, schema: 2, folded: 5, written: true, checkPassed: true,
+      nodes: 18, auditCommand: 'audit', foldable: 5, schema: SCHEMA_VERSION, folded: 5, written: true, checkPassed: true,
       comparePassed: true, outputs: ['fault_logits'], dims: [1, 3], typed: true, kind: 'bad-input',
     });
   });

@@ -1,21 +1,21 @@
 import type { Argv } from 'yargs';
 import { loadConfig, runSettings } from '../config.js';
 import { emit, planReports, runFigures } from '../output.js';
-import { configFlags, EPILOGUE, inputFlags, reportFlags } from '../flags.js';
+import { configFlags, EPILOGUE, inputFlags, int8Flags, int8Setting, reportFlags } from '../flags.js';
 
 export const command = 'compare <a> <b>';
 export const describe = 'Run two models on the same inputs and judge their agreement, output by output, against a gate';
 
 export function builder(y: Argv) {
-  return configFlags(reportFlags(inputFlags(y
+  return configFlags(int8Flags(reportFlags(inputFlags(y
     .positional('a', { type: 'string', demandOption: true, describe: 'the reference model (run in float64)' })
     .positional('b', { type: 'string', demandOption: true, describe: 'the candidate model' })
     .option('probes', { type: 'number', describe: 'number of seeded input sets (default 3)' })
-    .option('gate', { type: 'string', describe: 'pass condition per output over maxAbs, maxRel, rms, cosine, peak and the budget names (default per data type)' }))))
+    .option('gate', { type: 'string', describe: 'pass condition per output over maxAbs, maxRel, rms, cosine, peak and the budget names (default per data type)' })))))
     .epilogue(EPILOGUE);
 }
 
-interface Flags { a: string; b: string; probes?: number; gate?: string; seed?: number; input?: string[]; shape?: string[]; dim?: string[]; json?: boolean; format?: string; report?: string[]; runFigures?: boolean; config?: string }
+interface Flags { a: string; b: string; simulateInt8?: string; int8Granularity?: string; probes?: number; gate?: string; seed?: number; input?: string[]; shape?: string[]; dim?: string[]; json?: boolean; format?: string; report?: string[]; runFigures?: boolean; config?: string }
 
 export async function handler(argv: Flags): Promise<void> {
   const plan = planReports(argv);
@@ -27,7 +27,7 @@ export async function handler(argv: Flags): Promise<void> {
   const { EXIT } = await import('../../src/report/exit-codes.js');
   const { fileSha256 } = await import('../../src/jobs/sha256.js');
   const started = process.hrtime.bigint();
-  const report = compare(argv.a, argv.b, run);
+  const report = compare(argv.a, argv.b, { ...run, simulateInt8: int8Setting(argv) });
   const extras = {
     ...(plan.pageDetail ? { sha256: { a: fileSha256(argv.a), b: fileSha256(argv.b) } } : {}),
     ...(plan.runFigures ? { run: runFigures(started) } : {}),

@@ -6,13 +6,13 @@ import type { FoldJobOptions } from '../../src/jobs/types.js';
 import { keepList, loadConfig, runSettings } from '../config.js';
 import type { Job } from '../batch.js';
 import { planReports, runAndReport } from '../output.js';
-import { configFlags, EPILOGUE, inputFlags, many, reportFlags } from '../flags.js';
+import { configFlags, EPILOGUE, inputFlags, int8Flags, int8Setting, many, reportFlags } from '../flags.js';
 
 export const command = 'fold <models..>';
 export const describe = 'Fold every normalization it safely can, prove each fold, write the folded model, print the ledger';
 
 export function builder(y: Argv) {
-  return configFlags(reportFlags(inputFlags(y
+  return configFlags(int8Flags(reportFlags(inputFlags(y
     .positional('models', { type: 'string', array: true, demandOption: true, describe: 'the .onnx file(s)' })
     .option('out', { alias: 'o', type: 'string', describe: 'the folded model to write (one input model)' })
     .option('out-dir', { type: 'string', describe: 'folder for the folded models, same file names (several input models)' })
@@ -23,12 +23,15 @@ export function builder(y: Argv) {
     .option('gate', { type: 'string', describe: 'gate for the whole-model check, e.g. "maxAbs < 1e-4 and cosine > 0.99999"' })
     .option('probes', { type: 'number', describe: 'number of seeded probes for the whole-model check (default 2)' })
     .option('unproven', { type: 'boolean', default: false, describe: 'skip the per-fold proofs and the whole-model check (for models too large to check in memory); check the result with pleat compare before shipping it' })
-    .option('quiet', { type: 'boolean', default: false, describe: 'no progress bar' }))))
+    .option('equalize', { type: 'boolean', default: false, describe: 'after folding, balance the channel ranges of layer pairs joined only by Relu-like steps (cross-layer equalization), proven like a fold' })
+    .option('quant-threshold', { type: 'number', describe: 'flag a folded layer when a channel keeps less than this SQNR (dB) under one per-tensor 8-bit scale (default 20)' })
+    .option('quiet', { type: 'boolean', default: false, describe: 'no progress bar' })))))
     .epilogue(EPILOGUE);
 }
 
 interface Flags {
   models: string[]; out?: string; outDir?: string; keep?: string[]; allowOverridable: boolean; externalDataMin?: number; store?: 'float16'; gate?: string; probes?: number; seed?: number; unproven: boolean;
+  equalize: boolean; quantThreshold?: number; simulateInt8?: string; int8Granularity?: string;
   input?: string[]; shape?: string[]; dim?: string[]; json?: boolean; format?: string; report?: string[]; runFigures?: boolean; config?: string; quiet: boolean;
 }
 
@@ -51,6 +54,11 @@ function outputsFor(models: string[], out: string | undefined, outDir: string | 
   return names.map((n) => join(outDir, n));
 }
 
+function quantThreshold(db: number | undefined): number | undefined {
+  if (db !== undefined && !Number.isFinite(db)) throw new PleatError('usage', `--quant-threshold ${db}: give a number of decibels, e.g. 20`);
+  return db;
+}
+
 export async function handler(argv: Flags): Promise<void> {
   const plan = planReports(argv);
   const { config } = loadConfig(argv.config);
@@ -60,6 +68,7 @@ export async function handler(argv: Flags): Promise<void> {
     inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, probes: run.probes, gate: run.gate,
     keep: keepList(config, argv.keep), store: argv.store ?? config.store, allowOverridable: argv.allowOverridable,
     externalThreshold: argv.externalDataMin, noProofs: argv.unproven, pageDetail: plan.pageDetail,
+    equalize: argv.equalize, quantThresholdDb: quantThreshold(argv.quantThreshold), simulateInt8: int8Setting(argv),
   };
   const jobs: Job[] = argv.models.map((model, i) => ({ command: 'fold', model, output: outputs[i]!, opts, runFigures: plan.runFigures }));
   await runAndReport('fold', jobs, plan, argv.quiet);

@@ -31,6 +31,35 @@ import * as pool from './kernels/pool.js';
 import { PadV1, PadV11 } from './kernels/pad.js';
 import * as resize from './kernels/resize.js';
 import { If } from './kernels/if.js';
+import { QuantizeLinear } from './kernels/quantizelinear.js';
+import { DequantizeLinear } from './kernels/dequantizelinear.js';
+import { DynamicQuantizeLinear } from './kernels/dynamicquantizelinear.js';
+import { ConvInteger } from './kernels/convinteger.js';
+import { MatMulInteger } from './kernels/matmulinteger.js';
+import { QLinearConv } from './kernels/qlinearconv.js';
+import { QLinearMatMul } from './kernels/qlinearmatmul.js';
+import { TopK1, TopK10 } from './kernels/topk.js';
+import { GatherElements } from './kernels/gatherelements.js';
+import { GatherND } from './kernels/gathernd.js';
+import { ScatterElements, Scatter } from './kernels/scatterelements.js';
+import { ScatterND } from './kernels/scatternd.js';
+import { OneHot } from './kernels/onehot.js';
+import { Trilu } from './kernels/trilu.js';
+import { NonZero } from './kernels/nonzero.js';
+import { Compress } from './kernels/compress.js';
+import { Unique } from './kernels/unique.js';
+import { EyeLike } from './kernels/eyelike.js';
+import { DepthToSpace, SpaceToDepth } from './kernels/depthtospace.js';
+import { LRN } from './kernels/lrn.js';
+import { MeanVarianceNormalization } from './kernels/meanvariancenormalization.js';
+import { MaxUnpool } from './kernels/maxunpool.js';
+import { ReverseSequence } from './kernels/reversesequence.js';
+import { RoiAlign } from './kernels/roialign.js';
+import { GridSample } from './kernels/gridsample.js';
+import { NonMaxSuppression } from './kernels/nonmaxsuppression.js';
+import { BitShift } from './kernels/bitshift.js';
+import { Det } from './kernels/det.js';
+import { TfIdfVectorizer } from './kernels/tfidfvectorizer.js';
 
 const KERNELS: Kernel[] = [
   // (kernels are registered here, one line each)
@@ -147,6 +176,38 @@ const KERNELS: Kernel[] = [
   resize.Upsample7,
   resize.Upsample9,
   If,
+  QuantizeLinear,
+  DequantizeLinear,
+  DynamicQuantizeLinear,
+  ConvInteger,
+  MatMulInteger,
+  QLinearConv,
+  QLinearMatMul,
+  TopK1,
+  TopK10,
+  GatherElements,
+  GatherND,
+  ScatterElements,
+  Scatter,
+  ScatterND,
+  OneHot,
+  Trilu,
+  NonZero,
+  Compress,
+  Unique,
+  EyeLike,
+  DepthToSpace,
+  SpaceToDepth,
+  LRN,
+  MeanVarianceNormalization,
+  MaxUnpool,
+  ReverseSequence,
+  RoiAlign,
+  GridSample,
+  NonMaxSuppression,
+  BitShift,
+  Det,
+  TfIdfVectorizer,
 ];
 
 const byKey = new Map<string, Kernel[]>();

@@ -5,13 +5,19 @@
 // A per-tensor 8-bit scale is set by the widest channel, so narrow channels keep only a few levels.
 //
 // spread = largest per-output-channel range / median per-output-channel range, where a channel's range is
-// max - min of its weights.
+// max - min of its weights. Beside it, what the spread costs: the SQNR of the layer's weights under symmetric
+// 8-bit quantization per tensor and per output channel, and the worst single channel under the per-tensor
+// scale (src/fold/int8.ts), before and after the fold. A layer is flagged on that worst channel.
 import type { Model, Node } from '../graph/ir.js';
-import { attrInt } from '../graph/ir.js';
+import { attrInt, DataType } from '../graph/ir.js';
 import type { LedgerEntry } from './types.js';
 import { buildScopes, constantOf, labelOf, type Scope } from './scope.js';
 import { layouts, weightView, type ChannelMap } from './weights.js';
 import { tensorToFloat64 } from '../graph/tensor.js';
+import { roundedInt8, sqnrOf, type Int8Granularity, type SqnrFigures } from './int8.js';
+import { makeTensor } from '../graph/tensor.js';
+import { withSwappedTensors } from '../graph/replace-tensors.js';
+import type { Tensor } from '../graph/ir.js';
 
 /** Quantization readiness of one folded layer (Nagel et al. 2019, arXiv:1906.04721). */
 export interface QuantRow {
@@ -23,17 +29,20 @@ export interface QuantRow {
   /** Largest per-output-channel weight range divided by the median one, before and after folding. */
   spreadBefore: number;
   spreadAfter: number;
-  /** True when the fold makes per-tensor 8-bit weight quantization lossy (see SPREAD_LIMIT below). */
+  /** SQNR (dB) of the weights under symmetric 8-bit quantization, before and after the fold. */
+  sqnrBefore: SqnrFigures;
+  sqnrAfter: SqnrFigures;
+  /** True when, after the fold, some output channel's SQNR under a per-tensor scale is below the threshold. */
   flagged: boolean;
 }
 
 /**
- * Flag when the folded spread exceeds this. A rule of thumb, our own choice: per-tensor 8-bit quantization
- * spreads 255 levels over the widest channel, so the median channel gets about 255 / spread levels; past a
- * spread of 16 it gets fewer than 16 levels (under 4 effective bits), where per-tensor quantization of that
- * layer is generally lossy enough to need per-channel scales or weight equalization.
+ * Default --quant-threshold: flag a folded layer when, under one per-tensor 8-bit scale, its worst output channel
+ * keeps less than 20 dB SQNR, i.e. the rounding noise is more than a tenth of that channel's weights (rms).
+ * Our own choice: a layer of well-spread weights keeps about 35-45 dB in every channel at 8 bits, so 20 dB means
+ * a channel has lost more than two to four bits to the widest channel's scale; near the spread limit below.
  */
-export const SPREAD_LIMIT = 16;
+export const QUANT_THRESHOLD_DB = 20;
 
 /** max - min of each output channel's weights (`channelOf` says which channel each element belongs to). */
 export function channelRanges(values: Float64Array, channelOf: ChannelMap, channels: number): Float64Array {
@@ -63,40 +72,48 @@ export function spreadOf(ranges: Float64Array): number {
   return max / median;
 }
 
-interface LayerWeights { values: Float64Array; dims: number[]; map: ChannelMap; channels: number }
+export interface LayerWeights { values: Float64Array; dims: number[]; map: ChannelMap; channels: number; tensor: Tensor }
 
 /** The weight of a Conv/ConvTranspose/Gemm/MatMul node with its output-channel map, or undefined. */
-function layerWeights(scope: Scope, n: Node): LayerWeights | undefined {
+export function layerWeights(scope: Scope, n: Node): LayerWeights | undefined {
   const w = n.inputs[1] ? constantOf(scope, n.inputs[1]) : undefined;
   if (!w) return undefined;
   const dims = [...w.tensor.dims];
   const v = weightView(dims);
-  const values = tensorToFloat64(w.tensor);
+  if (!FLOAT_TYPES.has(w.tensor.dataType)) return undefined;
+  const tensor = w.tensor;
+  const values = () => tensorToFloat64(tensor);
   switch (n.opType) {
     case 'Conv': // W [Cout, Cin/group, k...]: output channel axis 0
       if (dims.length < 3) return undefined;
-      return { values, dims, map: layouts.convOutput(v), channels: dims[0]! };
+      return { values: values(), dims, map: layouts.convOutput(v), channels: dims[0]!, tensor };
     case 'ConvTranspose': { // W [Cin, Cout/group, k...]: output channel axis 1, times group
       const group = attrInt(n, 'group', 1);
       if (dims.length < 3 || group < 1 || dims[0]! % group !== 0) return undefined;
-      return { values, dims, map: layouts.convTransposeOutput(v, group), channels: dims[1]! * group };
+      return { values: values(), dims, map: layouts.convTransposeOutput(v, group), channels: dims[1]! * group, tensor };
     }
     case 'Gemm': // B is [K, N], or [N, K] with transB=1
       if (dims.length !== 2) return undefined;
       return attrInt(n, 'transB', 0) === 1
-        ? { values, dims, map: layouts.rows(v), channels: dims[0]! }
-        : { values, dims, map: layouts.columns(v), channels: dims[1]! };
+        ? { values: values(), dims, map: layouts.rows(v), channels: dims[0]!, tensor }
+        : { values: values(), dims, map: layouts.columns(v), channels: dims[1]!, tensor };
     case 'MatMul': // constant [K, N]: output channel is the last dim
       if (dims.length !== 2) return undefined;
-      return { values, dims, map: layouts.columns(v), channels: dims[1]! };
+      return { values: values(), dims, map: layouts.columns(v), channels: dims[1]!, tensor };
   }
   return undefined;
 }
 
-function spreadOfLayer(scope: Scope, n: Node): { spread: number; channels: number } | undefined {
+interface LayerFigures { spread: number; channels: number; sqnr: SqnrFigures }
+
+function figuresOfLayer(scope: Scope, n: Node): LayerFigures | undefined {
   const lw = layerWeights(scope, n);
   if (!lw) return undefined;
-  return { spread: spreadOf(channelRanges(lw.values, lw.map, lw.channels)), channels: lw.channels };
+  return {
+    spread: spreadOf(channelRanges(lw.values, lw.map, lw.channels)),
+    channels: lw.channels,
+    sqnr: sqnrOf(lw.values, lw.map, lw.channels),
+  };
 }
 
 /** A scope's node by ledger label (name, or op#index when unnamed). */
@@ -105,6 +122,26 @@ function byLabel(scope: Scope, label: string): Node | undefined {
 }
 
 const LINEAR = new Set(['Conv', 'ConvTranspose', 'Gemm', 'MatMul']);
+const FLOAT_TYPES = new Set<number>([DataType.FLOAT, DataType.DOUBLE, DataType.FLOAT16, DataType.BFLOAT16]);
+
+/**
+ * The model as an 8-bit weight deployment would run it: the constant weights of every Conv, ConvTranspose, Gemm
+ * and MatMul (subgraphs included) rounded through symmetric 8-bit quantize-dequantize, per tensor or per output
+ * channel; everything else as it is. `model` is not changed. Returns the view and the number of layers rounded.
+ */
+export function roundedWeightsModel(model: Model, granularity: Int8Granularity): { model: Model; layers: number } {
+  const rounded = new Map<Tensor, Tensor>();
+  for (const scope of buildScopes(model)) {
+    for (const n of scope.graph.nodes) {
+      if (!LINEAR.has(n.opType)) continue;
+      const lw = layerWeights(scope, n);
+      if (!lw || rounded.has(lw.tensor)) continue; // a weight shared by two layers is rounded once, by the first
+      const q = roundedInt8(lw.values, lw.map, lw.channels, granularity);
+      rounded.set(lw.tensor, { ...makeTensor(lw.tensor.name, lw.dims, lw.tensor.dataType, q), docString: lw.tensor.docString });
+    }
+  }
+  return { model: withSwappedTensors(model, (t) => rounded.get(t)), layers: rounded.size };
+}
 
 /**
  * The folded model's node for a target of the original. Named nodes keep their names through a fold; an
@@ -126,7 +163,7 @@ function scopeFor(scopes: Scope[], others: Scope[], path: string): Scope | undef
 }
 
 /** One row per folded target layer, in ledger order. `before` is the original model, `after` the folded one. */
-export function quantReadiness(before: Model, after: Model, ledger: readonly LedgerEntry[]): QuantRow[] {
+export function quantReadiness(before: Model, after: Model, ledger: readonly LedgerEntry[], thresholdDb = QUANT_THRESHOLD_DB): QuantRow[] {
   const groups = new Map<string, { graph: string; target: string; norms: string[] }>();
   for (const e of ledger) {
     if (e.status !== 'folded' || e.target === null) continue;
@@ -145,12 +182,12 @@ export function quantReadiness(before: Model, after: Model, ledger: readonly Led
     if (!nb) continue;
     const na = counterpart(scopeA, nb);
     if (!na) continue;
-    const b = spreadOfLayer(scopeB, nb), a = spreadOfLayer(scopeA, na);
+    const b = figuresOfLayer(scopeB, nb), a = figuresOfLayer(scopeA, na);
     if (!b || !a) continue;
     rows.push({
       target: g.target, norms: g.norms, channels: a.channels, spreadBefore: b.spread, spreadAfter: a.spread,
-      // the fold "makes" quantization lossy only when it widened the spread past the limit
-      flagged: a.spread > SPREAD_LIMIT && a.spread > b.spread,
+      sqnrBefore: b.sqnr, sqnrAfter: a.sqnr,
+      flagged: a.sqnr.worstChannel < thresholdDb,
     });
   }
   return rows;

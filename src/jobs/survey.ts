@@ -4,6 +4,7 @@ import { subgraphsOf } from '../graph/ir.js';
 import { dataTypeName, tensorByteSize } from '../graph/tensor.js';
 import { externalBytes } from '../onnx/external.js';
 import { readModelFile } from '../onnx/read.js';
+import { evaluatorGaps, type EvaluatorGap } from '../eval/coverage.js';
 
 export const NORMALIZATION_OPS = [
   'BatchNormalization', 'InstanceNormalization', 'LayerNormalization', 'GroupNormalization',
@@ -28,6 +29,11 @@ export interface SurveyReport {
   constantNodes: { count: number; bytes: number };
   externalBytes: number;
   normalizations: Array<{ op: string; count: number }>;
+  /**
+   * Whether pleat's evaluator can run every operator (so the whole-model check of a fold can run), and the
+   * operators it cannot run, with the reason for each.
+   */
+  evaluator: { runsAll: boolean; cannotRun: EvaluatorGap[] };
 }
 
 function describeValue(v: ValueInfo): SurveyValue {
@@ -55,6 +61,7 @@ export function surveyModel(model: Model, file: string | null = null): SurveyRep
     }
   };
   walk(model.graph);
+  const gaps = evaluatorGaps(model);
   const opCounts = [...counts].map(([op, count]) => ({ op, count }))
     .sort((a, b) => b.count - a.count || (a.op < b.op ? -1 : a.op > b.op ? 1 : 0));
   return {
@@ -71,6 +78,7 @@ export function surveyModel(model: Model, file: string | null = null): SurveyRep
     constantNodes: { count: constCount, bytes: constBytes },
     externalBytes: externalBytes(model),
     normalizations: opCounts.filter((c) => (NORMALIZATION_OPS as readonly string[]).includes(c.op)),
+    evaluator: { runsAll: gaps.length === 0, cannotRun: gaps },
   };
 }
 

@@ -6,10 +6,12 @@ import type { QuantRow } from '../fold/quant.js';
 import type { DiffHistogram } from '../verify/metrics.js';
 import type { GateLimit } from '../verify/gate.js';
 import type { Sketch } from '../fold/sketch.js';
+import type { EqualizedPair } from '../fold/equalize.js';
+import type { Int8Granularity } from '../fold/int8.js';
 
-export type { QuantRow, Sketch };
+export type { QuantRow, EqualizedPair, Int8Granularity, Sketch };
 
-export const SCHEMA_VERSION = 2;
+export const SCHEMA_VERSION = 3;
 
 export interface OutputCheck {
   name: string;
@@ -70,6 +72,12 @@ export interface FoldReport {
   bytesAfter: number;
   check: CheckSummary | null;
   quantization: QuantRow[];
+  /** --quant-threshold: a folded layer is flagged when a channel's per-tensor 8-bit SQNR falls below this (dB). */
+  quantThresholdDb: number;
+  /** --equalize: each pair of layers found, equalized or refused (empty without --equalize). */
+  equalized: EqualizedPair[];
+  /** --simulate-int8 weights: the output error of 8-bit weights, for the original and for the folded model. */
+  int8: Int8Simulation | null;
   storage: StorageSummary | null;
   /** True when a gate failed (exit 1): then nothing was written. */
   failed: boolean;
@@ -95,6 +103,22 @@ export interface AuditReport {
   run?: RunFigures;
 }
 
+/** One output of an 8-bit weight simulation: each model with rounded weights against the original in float64. */
+export interface Int8Output {
+  name: string;
+  /** The original model with its weights rounded, against itself unrounded: what 8 bits cost without the fold. */
+  original: { maxAbs: number; maxRel: number; cosine: number } | null;
+  /** The folded (and equalized) model with its weights rounded, against the unrounded original. */
+  folded: { maxAbs: number; maxRel: number; cosine: number } | null;
+  problem?: string;
+}
+
+export interface Int8Simulation {
+  granularity: Int8Granularity;
+  probes: number;
+  outputs: Int8Output[];
+}
+
 export interface FoldJobOptions extends InputOptions {
   keep?: string[];
   allowOverridable?: boolean;
@@ -107,6 +131,12 @@ export interface FoldJobOptions extends InputOptions {
   noProofs?: boolean;
   /** Tensors of at least this many bytes go to a side file. */
   externalThreshold?: number;
+  /** Flag folded layers whose worst channel's per-tensor 8-bit SQNR is below this (dB); default QUANT_THRESHOLD_DB. */
+  quantThresholdDb?: number;
+  /** Cross-layer equalization after folding (Nagel et al. 2019, section 4.1). */
+  equalize?: boolean;
+  /** Also report the output error of 8-bit weights (per tensor or per channel), before and after the fold. */
+  simulateInt8?: Int8Granularity;
   /** Record what an HTML report shows beyond the ledger: the model's SHA-256 and each norm's neighbourhood. */
   pageDetail?: boolean;
 }

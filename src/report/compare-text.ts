@@ -7,6 +7,10 @@ import { paint } from './paint.js';
 export function compareText(r: CompareReport, a: string, b: string, colour = false): string {
   const p = paint(colour);
   const lines = [p.bold(`compare ${a} with ${b}: `) + (r.passed ? p.good('passed') : p.bad('FAILED')) + ` (${plural(r.probes, 'probe')}, seed ${r.seed})`];
+  if (r.int8Weights) {
+    const g = r.int8Weights.granularity === 'tensor' ? 'one scale per tensor' : 'one scale per output channel';
+    lines.push(`  model B ran with 8-bit weights: ${plural(r.int8Weights.layers, 'Conv/Gemm/MatMul layer')} rounded through symmetric quantize-dequantize, ${g}`);
+  }
   for (const i of r.inputs) lines.push(`  input ${i.name}  ${i.dtype} [${i.dims.join('x')}]  ${i.source === 'file' ? `from ${i.file}` : i.source === 'probe' ? 'seeded probe' : 'given value'}`);
   const w = Math.max(0, ...r.outputs.map((o) => o.name.length));
   for (const o of r.outputs) {

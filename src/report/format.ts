@@ -39,6 +39,13 @@ export function ratioText(x: number): string {
   return x >= 1000 ? x.toExponential(1) : x.toFixed(1);
 }
 
+/** A level in decibels with one decimal; an infinite SQNR (the rounding changed nothing) reads 'exact'. */
+export function dbText(x: number): string {
+  if (Number.isNaN(x)) return 'NaN';
+  if (!Number.isFinite(x)) return x > 0 ? 'exact' : '-inf';
+  return x.toFixed(1);
+}
+
 /** Cosine similarity: shown as its distance from 1, which is what matters when it is near 1. */
 export function cosineText(c: number): string {
   if (!Number.isFinite(c)) return String(c);

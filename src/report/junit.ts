@@ -7,11 +7,12 @@
 // - otherwise: a <skipped> case whose message is the reason code and hint: visible on the dashboard as "not
 //   done", without failing the build, since keeping a norm is a correct outcome.
 // Folded and foldable ones pass. A failing whole-model output is a <failure type="gate">; a skipped check
-// is <skipped>. A model that could not be read in a batch is one <testcase name="process model"> with an
+// is <skipped>. Each folded layer's 8-bit readiness is one case: flagged layers are <skipped> with their SQNR
+// (a warning for the dashboard, not a failed build, like a kept norm). A model that could not be read in a batch is one <testcase name="process model"> with an
 // <error>. No timestamps or durations are written, so the same input gives the same bytes.
 import type { AuditReport, FoldReport } from '../jobs/types.js';
 import type { CompareReport } from '../verify/compare.js';
-import { numText } from './format.js';
+import { dbText, numText } from './format.js';
 
 export type Outcome =
   | { kind: 'pass' }
@@ -73,6 +74,10 @@ export function foldSuite(r: FoldReport): Suite {
         outcome: o.passed ? { kind: 'pass' } : { kind: 'failure', type: 'gate', message: o.problem ?? `fails the gate (${c.gates.join('; ')}): ${metrics}` },
       });
     }
+  }
+  for (const q of r.quantization) {
+    const figures = `worst channel ${dbText(q.sqnrBefore.worstChannel)} -> ${dbText(q.sqnrAfter.worstChannel)} dB under one per-tensor 8-bit scale (threshold ${dbText(r.quantThresholdDb)} dB)`;
+    cases.push({ classname: r.model, name: `8-bit readiness ${q.target}`, outcome: q.flagged ? { kind: 'skipped', message: `flagged: ${figures}` } : { kind: 'pass' } });
   }
   return { name: r.model, cases };
 }

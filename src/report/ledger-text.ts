@@ -1,11 +1,10 @@
 // fold's report as text: a ledger with one line per normalization (folded into what, or kept and why, with
 // the hint), a totals line, then the whole-model check per output, quantization readiness, storage, and the
 // caution lines. Our own layout; nothing here compares operator counts side by side.
-import type { FoldReport, CheckSummary, QuantRow, StorageSummary } from '../jobs/types.js';
+import type { FoldReport, CheckSummary, QuantRow, StorageSummary, EqualizedPair, Int8Simulation } from '../jobs/types.js';
 import type { LedgerEntry } from '../fold/types.js';
-import { bytesText, CAUTION, cosineText, numText, plural, ratioText } from './format.js';
+import { bytesText, CAUTION, cosineText, dbText, numText, plural, ratioText } from './format.js';
 import { paint, type Paint } from './paint.js';
-import { SPREAD_LIMIT } from '../fold/quant.js';
 
 const where = (graph: string) => (graph === 'main' ? '' : `  in ${graph}`);
 
@@ -40,14 +39,51 @@ export function checkLines(c: CheckSummary | null, p: Paint): string[] {
   return lines;
 }
 
-export function quantLines(rows: readonly QuantRow[], p: Paint): string[] {
+export function quantLines(rows: readonly QuantRow[], thresholdDb: number, p: Paint): string[] {
   if (rows.length === 0) return [];
-  const lines = [`quantization readiness (widest / median output-channel weight range; flagged above ${SPREAD_LIMIT})`];
+  const lines = [
+    'quantization readiness (symmetric 8-bit weights, before -> after the fold; spread = widest / median channel range;',
+    `  sqnr in dB per tensor, per channel, and the worst channel under one per-tensor scale; flagged below ${dbText(thresholdDb)} dB)`,
+  ];
   const w = Math.max(0, ...rows.map((r) => r.target.length));
   const cw = Math.max(0, ...rows.map((r) => plural(r.channels, 'channel').length));
   for (const r of rows) {
-    const flag = r.flagged ? `  ${p.warn('flagged')}: per-tensor 8-bit weights would starve the narrow channels; use per-channel scales` : '';
-    lines.push(`  ${r.target.padEnd(w)}  ${plural(r.channels, 'channel').padEnd(cw)}  spread ${ratioText(r.spreadBefore)} -> ${ratioText(r.spreadAfter)}${flag}`);
+    const flag = r.flagged ? `  ${p.warn('flagged')}: per-tensor 8-bit weights starve its narrow channels; use per-channel scales or --equalize` : '';
+    const b = r.sqnrBefore, a = r.sqnrAfter;
+    lines.push(`  ${r.target.padEnd(w)}  ${plural(r.channels, 'channel').padEnd(cw)}  spread ${ratioText(r.spreadBefore)} -> ${ratioText(r.spreadAfter)}` +
+      `  sqnr tensor ${dbText(b.tensor)} -> ${dbText(a.tensor)}, channel ${dbText(b.channel)} -> ${dbText(a.channel)}, worst channel ${dbText(b.worstChannel)} -> ${dbText(a.worstChannel)}${flag}`);
+  }
+  return lines;
+}
+
+export function equalizeLines(pairs: readonly EqualizedPair[], p: Paint): string[] {
+  if (pairs.length === 0) return [];
+  const lines = ['equalized pairs (cross-layer equalization; sqnr of the worst channel under one per-tensor 8-bit scale, dB, before -> after)'];
+  const w = Math.max(0, ...pairs.map((e) => `${e.first} -> ${e.second}`.length));
+  for (const e of pairs) {
+    const pair = `${e.first} -> ${e.second}`.padEnd(w);
+    const via = e.through.length ? `  through ${e.through.join(', ')}` : '';
+    if (e.status === 'equalized' && e.sqnr) {
+      const q = e.sqnr;
+      lines.push(`  ${p.good('equalized')}  ${pair}  ${plural(e.channels, 'channel')}  ${e.first} ${dbText(q.firstBefore.worstChannel)} -> ${dbText(q.firstAfter.worstChannel)}, ` +
+        `${e.second} ${dbText(q.secondBefore.worstChannel)} -> ${dbText(q.secondAfter.worstChannel)}${via}${where(e.graph)}`);
+    } else {
+      lines.push(`  ${p.warn('refused  ')}  ${pair}  ${p.warn(e.reason ?? 'refused')}: ${e.hint}${where(e.graph)}`);
+    }
+  }
+  return lines;
+}
+
+export function int8Lines(s: Int8Simulation | null): string[] {
+  if (s === null) return [];
+  const lines = [`8-bit weights, ${s.granularity === 'tensor' ? 'one scale per tensor' : 'one scale per output channel'} ` +
+    `(${plural(s.probes, 'probe')}; each model with its Conv/Gemm/MatMul weights rounded, against the unrounded original in float64; no gate)`];
+  const w = Math.max(0, ...s.outputs.map((o) => o.name.length));
+  const fig = (f: { maxAbs: number; maxRel: number; cosine: number } | null) =>
+    f ? `maxAbs ${numText(f.maxAbs)}  maxRel ${numText(f.maxRel)}  cosine ${cosineText(f.cosine)}` : 'not compared';
+  for (const o of s.outputs) {
+    if (o.problem) { lines.push(`  ${o.name.padEnd(w)}  ${o.problem}`); continue; }
+    lines.push(`  ${o.name.padEnd(w)}  original: ${fig(o.original)}`, `  ${''.padEnd(w)}  folded:   ${fig(o.folded)}`);
   }
   return lines;
 }
@@ -71,7 +107,7 @@ export function foldText(r: FoldReport, colour = false, caution = true): string 
   const bytesRemoved = r.bytesBefore - r.bytesAfter;
   lines.push(`  ${folded} folded, ${kept} kept; ${plural(nodesRemoved, 'node')} removed (${r.nodesBefore} -> ${r.nodesAfter}); ` +
     `${bytesText(Math.max(0, bytesRemoved))} of weights saved (${bytesText(r.bytesBefore)} -> ${bytesText(r.bytesAfter)})`);
-  lines.push(...checkLines(r.check, p), ...quantLines(r.quantization, p), ...storageLines(r.storage));
+  lines.push(...checkLines(r.check, p), ...quantLines(r.quantization, r.quantThresholdDb, p), ...equalizeLines(r.equalized, p), ...int8Lines(r.int8), ...storageLines(r.storage));
   if (caution) lines.push(...CAUTION);
   return lines.join('\n') + '\n';
 }

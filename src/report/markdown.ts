@@ -3,7 +3,7 @@
 // and the caution as a quote.
 import type { AuditReport, FoldReport } from '../jobs/types.js';
 import type { CompareReport } from '../verify/compare.js';
-import { bytesText, CAUTION, cosineText, numText, ratioText } from './format.js';
+import { bytesText, CAUTION, cosineText, dbText, numText, ratioText } from './format.js';
 
 /** Text safe inside a table cell: pipes escaped, HTML-looking text neutralised, line breaks flattened. */
 export function cell(s: string): string {
@@ -38,8 +38,18 @@ export function foldMarkdown(r: FoldReport): string {
   out.push(...table(r.normalizations));
   const flagged = r.quantization.filter((q) => q.flagged);
   if (flagged.length) {
-    out.push('', `Quantization readiness: ${flagged.length} layer(s) flagged for per-tensor 8-bit weights: ` +
-      flagged.map((q) => `${code(q.target)} spread ${ratioText(q.spreadBefore)} → ${ratioText(q.spreadAfter)}`).join(', ') + '.');
+    out.push('', `Quantization readiness: ${flagged.length} layer(s) flagged for per-tensor 8-bit weights ` +
+      `(worst channel below ${dbText(r.quantThresholdDb)} dB SQNR): ` +
+      flagged.map((q) => `${code(q.target)} worst channel ${dbText(q.sqnrBefore.worstChannel)} → ${dbText(q.sqnrAfter.worstChannel)} dB, spread ${ratioText(q.spreadBefore)} → ${ratioText(q.spreadAfter)}`).join(', ') + '.');
+  }
+  const eq = r.equalized.filter((p) => p.status === 'equalized');
+  if (r.equalized.length) {
+    out.push('', `Equalization: ${eq.length} of ${r.equalized.length} layer pair(s) equalized` +
+      (eq.length ? ': ' + eq.map((p) => `${code(p.first)} → ${code(p.second)}`).join(', ') : '') + '.');
+  }
+  if (r.int8) {
+    const worst = (k: 'original' | 'folded') => Math.min(...r.int8!.outputs.map((o) => o[k]?.cosine ?? NaN));
+    out.push('', `8-bit weights (${r.int8.granularity === 'tensor' ? 'per tensor' : 'per channel'}): lowest output cosine ${cosineText(worst('original'))} for the original, ${cosineText(worst('folded'))} for the folded model.`);
   }
   if (r.storage) out.push('', `Half-precision storage: ${r.storage.tensorsConverted} tensor(s), ${bytesText(r.storage.bytesBefore)} → ${bytesText(r.storage.bytesAfter)}.`);
   out.push(...caution());

@@ -10,7 +10,9 @@ import { runModel } from '../eval/run.js';
 import { PleatError } from '../errors.js';
 import { dataTypeName } from '../graph/tensor.js';
 import { computeMetrics, diffHistogram, worstOf, type DiffHistogram, type Metrics } from './metrics.js';
-import { BUDGET_NAMES, defaultGateFor, defaultGateKey, METRIC_NAMES, parseGate, type Gate, type GateLimit, type GateScope } from './gate.js';
+import { BUDGET_NAMES, defaultGateFor, defaultGateKey, INT8_WEIGHTS_GATE, METRIC_NAMES, parseGate, type Gate, type GateLimit, type GateScope } from './gate.js';
+import { roundedWeightsModel } from '../fold/quant.js';
+import type { Int8Granularity } from '../fold/int8.js';
 import {
   asMap, checkDimFlags, makeProbe, resolveInputs, summarizeInputs, type InputOptions, type InputSummary, type InputValue,
 } from './inputs.js';
@@ -22,6 +24,13 @@ export interface CompareOptions extends InputOptions {
   gate?: string;
   /** Also run both models in float32 to measure the error budget; default true. */
   budget?: boolean;
+  /**
+   * Run B with its Conv/Gemm/MatMul weights rounded through symmetric 8-bit quantize-dequantize (per tensor or
+   * per output channel), against A unrounded: what an 8-bit weight deployment of B would cost.
+   */
+  simulateInt8?: Int8Granularity;
+  /** More names a gate may use, with one value for every output (fold's check adds `sqnr`). */
+  extraMetrics?: Record<string, number>;
 }
 
 export const DEFAULT_PROBES = 3;
@@ -78,6 +87,8 @@ export interface CompareReport {
   budget: boolean;
   inputs: InputSummary[];
   outputs: OutputComparison[];
+  /** Set when B ran with 8-bit weights (--simulate-int8 weights): how, and how many layers were rounded. */
+  int8Weights?: { granularity: Int8Granularity; layers: number };
 }
 
 const LOOSENESS = ['exact', 'float64', 'float32', 'float16', 'bfloat16'] as const;
@@ -127,9 +138,12 @@ function runLabelled(model: Model, side: 'A' | 'B', inputs: Map<string, Value>, 
 
 /** Run A and B on the same inputs and judge each output against its gate. Never throws for disagreeing outputs. */
 export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareReport {
+  const int8 = opts.simulateInt8 ? roundedWeightsModel(b, opts.simulateInt8) : undefined;
+  if (int8) b = int8.model;
   const seed = opts.seed ?? 0;
   const budget = opts.budget ?? true;
-  const available = budget ? [...METRIC_NAMES, ...BUDGET_NAMES] : [...METRIC_NAMES];
+  const extra = opts.extraMetrics ?? {};
+  const available = [...(budget ? [...METRIC_NAMES, ...BUDGET_NAMES] : [...METRIC_NAMES]), ...Object.keys(extra)];
   const userGate = opts.gate !== undefined ? parseGate(opts.gate, available) : undefined;
   const requested = opts.probes ?? DEFAULT_PROBES;
   if (!Number.isInteger(requested) || requested < 1) throw new PleatError('usage', `--probes ${requested}: give a whole number of at least 1`);
@@ -198,14 +212,15 @@ export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareR
     const metrics = worstOf(s.metrics);
     out.metrics = metrics;
     if (s.histogram) out.histogram = s.histogram;
-    const scope: GateScope = { ...metrics };
+    const scope: GateScope = { ...extra, ...metrics };
     if (budget) {
       const own = worstOf(s.own), deploy = worstOf(s.deploy);
       const b: ErrorBudget = { own, deploy, addedAbs: Math.max(0, deploy.maxAbs - own.maxAbs), addedRel: Math.max(0, deploy.maxRel - own.maxRel) };
       out.budget = b;
       Object.assign(scope, { ownAbs: own.maxAbs, ownRel: own.maxRel, deployAbs: deploy.maxAbs, deployRel: deploy.maxRel, addedAbs: b.addedAbs, addedRel: b.addedRel });
     }
-    const gate: Gate = userGate ?? parseGate(defaultGate(s.typeA!, s.typeB), available);
+    const fallback = int8 && defaultGateKey(s.typeA!) !== 'exact' ? INT8_WEIGHTS_GATE : defaultGate(s.typeA!, s.typeB);
+    const gate: Gate = userGate ?? parseGate(fallback, available);
     const passed = gate.test(scope);
     out.gate = { expr: gate.expr, source: userGate ? 'user' : 'default', passed, limits: gate.limits(scope) };
     out.passed = passed;
@@ -216,7 +231,10 @@ export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareR
     outputs.push({ name, status: 'only-in-b', dtype: dataTypeName(v.type), dims: [...v.dims], passed: false,
       problem: `model A has no output '${name}'` });
   }
-  return { passed: outputs.every((o) => o.passed), seed, probes, budget, inputs: summarizeInputs(specs), outputs };
+  return {
+    passed: outputs.every((o) => o.passed), seed, probes, budget, inputs: summarizeInputs(specs), outputs,
+    ...(int8 && opts.simulateInt8 ? { int8Weights: { granularity: opts.simulateInt8, layers: int8.layers } } : {}),
+  };
 }
 
 /**

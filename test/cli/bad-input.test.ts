@@ -96,6 +96,27 @@ describe('survey', () => {
     expect(t.code).toBe(0);
     expect(t.stdout).toMatch(/image\s+float32 \[batch x 3 x 4 x 4\]/);
     expect(t.stdout).toMatch(/BatchNormalization 1/);
+    expect(j.evaluator).toEqual({ runsAll: true, cannotRun: [] });
+    expect(t.stdout).toMatch(/check\s+the evaluator can run every operator/);
+  });
+
+  it('lists the operators the evaluator cannot run, so the user knows the whole-model check cannot run', () => {
+    const g = new GraphBuilder();
+    g.input('x', [1, 4]).output('y').output('z');
+    g.node('Relu', ['x'], {}, { name: 'r', outputs: ['a'] });
+    g.node('NotAnOnnxOp', ['a'], {}, { name: 'u', outputs: ['y'] });
+    g.node('Bernoulli', ['x'], {}, { name: 'b', outputs: ['z'] });
+    const p = file('gaps.onnx', modelBytes(g));
+    const j = JSON.parse(pleat(['survey', p, '--json']).stdout);
+    expect(j.evaluator).toEqual({
+      runsAll: false,
+      cannotRun: [{ op: 'Bernoulli', opset: 17, count: 1, reason: 'random' }, { op: 'NotAnOnnxOp', opset: 17, count: 1, reason: 'no-kernel' }],
+    });
+    const t = pleat(['survey', p]);
+    expect(t.code).toBe(0);
+    expect(t.stdout).toMatch(/check\s+the evaluator cannot run these operators, so the whole-model check will be skipped/);
+    expect(t.stdout).toMatch(/NotAnOnnxOp \(opset 17\) x1: no kernel/);
+    expect(t.stdout).toMatch(/Bernoulli \(opset 17\) x1: random draws/);
   });
 });
 

@@ -3,6 +3,7 @@
 // read with a reader written from NumPy's format description (test/helpers/npy.ts); compare's JSON is
 // validated against the shipped JSON Schema with ajv.
 import { beforeAll, describe, expect, it } from 'vitest';
+import { SCHEMA_VERSION } from '../../src/jobs/types.js';
 import { existsSync, mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
@@ -43,7 +44,7 @@ describe('pleat compare', { timeout: 120_000 }, () => {
     expect(r.stderr).toBe('');
     expect(r.code).toBe(0);
     const j = JSON.parse(r.stdout);
-    expect(j).toMatchObject({ schemaVersion: 2, command: 'compare', a, b: same, passed: true, probes: 3 });
+    expect(j).toMatchObject({ schemaVersion: SCHEMA_VERSION, command: 'compare', a, b: same, passed: true, probes: 3 });
     expect(j.outputs[0].metrics.maxAbs).toBe(0);
     const validate = schemaValidator();
     expect(validate(j), JSON.stringify(validate.errors)).toBe(true);

@@ -1,13 +1,18 @@
 // ONNX backend conformance: every case copied into test/fixtures/onnx-conformance/ (source: the ONNX project's
-// onnx 1.12.0 backend test data, Apache-2.0, generated from Debian python3-onnx; see the README there) is run
-// through pleat's evaluator in float64 and compared with the expected outputs the ONNX project computed with its
-// reference implementations. Float outputs must agree within float32 rounding (|a-b| <= 1e-4 * max(1, |b|));
-// integer and bool outputs must be exact.
+// onnx 1.12.0 backend test data, Apache-2.0, generated from Debian python3-onnx; see the README there for the
+// selection, which does not depend on pleat's kernels) is run through pleat's evaluator in float64 and compared
+// with the expected outputs the ONNX project computed with its reference implementations. Float outputs must
+// agree within float32 rounding (|a-b| <= 1e-4 * max(1, |b|)); integer and bool outputs must be exact.
+//
+// A case that needs an operator in PENDING (kernels being written on another branch) is reported as skipped,
+// not passed, and counted in the summary line; any other missing kernel fails the case.
 import { existsSync, readdirSync, readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
 import { parseTensor, readModelFile } from '../../src/onnx/read.js';
 import { runModel, tensorToValue } from '../../src/eval/run.js';
+import { findKernel } from '../../src/eval/registry.js';
+import { opsetVersion, subgraphsOf, type Graph, type Model } from '../../src/graph/ir.js';
 import { bfloatBitsToNumber, isFloatType } from '../../src/graph/tensor.js';
 import { DataType } from '../../src/graph/ir.js';
 import type { Value } from '../../src/eval/value.js';
@@ -44,16 +49,49 @@ function mismatch(got: Value, want: Value): string {
   return '';
 }
 
+// Operators whose kernels are being written on another branch (recurrent cells, control flow, Einsum, CumSum,
+// spectral operators). The check below fails once one of them has a kernel, so the list only shrinks.
+const PENDING = new Set([
+  'LSTM', 'GRU', 'RNN', 'Loop', 'Scan', 'Einsum', 'CumSum', 'DFT', 'STFT', 'HannWindow', 'HammingWindow',
+  'BlackmanWindow', 'MelWeightMatrix',
+]);
+
+/** Operators of the model (subgraphs included) that have no kernel at the model's opset. */
+function missingKernels(model: Model): Set<string> {
+  const missing = new Set<string>();
+  const walk = (g: Graph) => {
+    for (const n of g.nodes) {
+      const domain = n.domain === 'ai.onnx' ? '' : n.domain;
+      if (!findKernel(domain, n.opType, opsetVersion(model, domain) ?? 0)) missing.add(n.opType);
+      for (const sg of subgraphsOf(n)) walk(sg);
+    }
+  };
+  walk(model.graph);
+  return missing;
+}
+
 let passed = 0;
+const pending = new Map<string, number>();
 
 describe('ONNX backend conformance cases (onnx 1.12.0 test data)', () => {
   it('has the copied fixtures', () => {
     expect(cases.length).toBeGreaterThan(100);
   });
 
-  it.each(cases)('%s', (name) => {
+  it('lists as pending only operators that still have no kernel', () => {
+    expect([...PENDING].filter((op) => findKernel('', op, 100) !== undefined), 'these have kernels now: remove them from PENDING').toEqual([]);
+  });
+
+  it.for(cases)('%s', (name, ctx) => {
     const dir = join(DIR, name);
     const model = readModelFile(join(dir, 'model.onnx'));
+    const missing = missingKernels(model);
+    if (missing.size > 0) {
+      const other = [...missing].filter((op) => !PENDING.has(op));
+      expect(other, `${name}: operators without a kernel`).toEqual([]);
+      for (const op of missing) pending.set(op, (pending.get(op) ?? 0) + 1);
+      ctx.skip(`waits for kernels: ${[...missing].join(', ')}`);
+    }
     const sets = readdirSync(dir).filter((d) => d.startsWith('test_data_set_')).sort();
     expect(sets.length).toBeGreaterThan(0);
     for (const set of sets) {
@@ -74,6 +112,8 @@ describe('ONNX backend conformance cases (onnx 1.12.0 test data)', () => {
   });
 
   afterAll(() => {
-    console.log(`onnx conformance: ${passed}/${cases.length} cases passed`);
+    const waiting = [...pending.values()].length ? ` (operators: ${[...pending].map(([op, n]) => `${op} ${n}`).join(', ')})` : '';
+    const skipped = cases.length - passed;
+    console.log(`onnx conformance: ${passed}/${cases.length} selected cases passed; ${skipped} not passed${waiting}`);
   });
 });

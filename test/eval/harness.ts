@@ -30,6 +30,11 @@ function feedOf(i: In): Feeds[string] {
   if (type === T.INT64) return { dims: i.dims, data: BigInt64Array.from(Array.from(i.data, (v) => BigInt(v))) };
   if (type === T.INT32) return { dims: i.dims, data: Int32Array.from(i.data) };
   if (type === T.BOOL || type === T.UINT8) return { dims: i.dims, data: Uint8Array.from(i.data) };
+  if (type === T.INT8) return { dims: i.dims, data: Int8Array.from(i.data) };
+  if (type === T.INT16) return { dims: i.dims, data: Int16Array.from(i.data) };
+  if (type === T.UINT16) return { dims: i.dims, data: Uint16Array.from(i.data) };
+  if (type === T.UINT32) return { dims: i.dims, data: Uint32Array.from(i.data) };
+  if (type === T.UINT64) return { dims: i.dims, data: BigUint64Array.from(Array.from(i.data, (v) => BigInt(v))) };
   throw new Error(`harness: no feed for type ${type}`);
 }
 

@@ -22,8 +22,12 @@ export async function vsOrt(op: string, opset: number, ins: In[], attrs: Record<
   }
   for (const o of outs) if (o.name) g.output(o.name, undefined, o.type ?? T.FLOAT);
   g.node(op, ins.map((i) => i.name), attrs, { name: `${op.toLowerCase()}_under_test`, outputs: outs.map((o) => o.name) });
+  return vsOrtGraph(g, ins, opset, outs, rel, `${op}@${opset} ${JSON.stringify(attrs)} inputs ${ins.map((i) => `[${i.dims}]`).join(' ')}`);
+}
+
+/** Run a built graph in onnxruntime-node and pleat and compare the outputs `outs` (floats within rel, integers exactly). */
+export async function vsOrtGraph(g: GraphBuilder, ins: In[], opset: number, outs: Out[], rel = REL64, what = ''): Promise<Outcome> {
   const res = await runBoth(g, ins, opset);
-  const what = `${op}@${opset} ${JSON.stringify(attrs)} inputs ${ins.map((i) => `[${i.dims}]`).join(' ')}`;
   for (const o of outs) {
     if (!o.name) continue;
     const ref = res.ort[o.name]!;

@@ -5,7 +5,7 @@
 import { describe, expect, it } from 'vitest';
 import { parseModel } from '../../src/onnx/read.js';
 import { foldModel } from '../../src/fold/index.js';
-import { channelRanges, quantReadiness, spreadOf, SPREAD_LIMIT } from '../../src/fold/quant.js';
+import { channelRanges, quantReadiness, spreadOf, QUANT_THRESHOLD_DB } from '../../src/fold/quant.js';
 import { layouts, weightView } from '../../src/fold/weights.js';
 import type { LedgerEntry } from '../../src/fold/types.js';
 import { GraphBuilder, modelBytes } from '../helpers/build.js';
@@ -79,7 +79,8 @@ describe('quantReadiness', () => {
 
   it('on a hand-folded model: spread 6.667 before, 36.36 after, flagged', () => {
     // after the fold channel 3 holds 100 * [0, 0.4] = [0, 40] -> range 40; ranges 0.2, 0.2, 2, 40:
-    // median (0.2 + 2) / 2 = 1.1, spread 40 / 1.1 = 36.36 > 16
+    // median (0.2 + 2) / 2 = 1.1, spread 40 / 1.1 = 36.36. One per-tensor scale 40 / 127 = 0.315 rounds
+    // channel 0's +-0.1 (0.317 steps) to 0: its noise equals its signal, SQNR 0 dB < 20 dB: flagged.
     const folded = [...W.slice(0, 6), 0, 40];
     const rows = quantReadiness(parseModel(convModel(W), '.'), parseModel(convModel(folded), '.'), ledger);
     expect(rows).toHaveLength(1);
@@ -88,14 +89,18 @@ describe('quantReadiness', () => {
     expect(rows[0]!.channels).toBe(4);
     close32(rows[0]!.spreadBefore, 2 / 0.3);
     close32(rows[0]!.spreadAfter, 40 / 1.1);
+    expect(rows[0]!.sqnrAfter.worstChannel).toBeCloseTo(0, 12);
     expect(rows[0]!.flagged).toBe(true);
-    expect(SPREAD_LIMIT).toBe(16);
+    expect(QUANT_THRESHOLD_DB).toBe(20);
   });
 
-  it('not flagged when the folded spread stays under the limit', () => {
-    const rows = quantReadiness(parseModel(convModel(W), '.'), parseModel(convModel(W.map((v) => 2 * v)), '.'), ledger);
+  it('not flagged when every channel keeps its SQNR above the threshold; a higher threshold flags it', () => {
+    const before = () => parseModel(convModel(W), '.'), after = () => parseModel(convModel(W.map((v) => 2 * v)), '.');
+    const rows = quantReadiness(before(), after(), ledger);
     close32(rows[0]!.spreadAfter, 2 / 0.3);
     expect(rows[0]!.flagged).toBe(false);
+    expect(rows[0]!.sqnrAfter.worstChannel).toBeGreaterThan(20);
+    expect(quantReadiness(before(), after(), ledger, 80)[0]!.flagged).toBe(true);
   });
 
   it('with the real fold engine, named and unnamed layers', () => {

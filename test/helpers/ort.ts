@@ -1,10 +1,11 @@
 // onnxruntime-node as an independent reference runtime: graph optimizations disabled, one thread, CPU.
 import * as ort from 'onnxruntime-node';
 
-export type Feeds = Record<string, { dims: number[]; data: Float32Array | Float64Array | BigInt64Array | Int32Array | Uint8Array }>;
+export type Feeds = Record<string, { dims: number[]; data: Float32Array | Float64Array | BigInt64Array | Int32Array | Uint8Array | Int8Array | Int16Array | Uint16Array | Uint32Array | BigUint64Array }>;
 
 const TYPE_OF: Record<string, ort.Tensor.Type> = {
   Float32Array: 'float32', Float64Array: 'float64', BigInt64Array: 'int64', Int32Array: 'int32', Uint8Array: 'uint8',
+  Int8Array: 'int8', Int16Array: 'int16', Uint16Array: 'uint16', Uint32Array: 'uint32', BigUint64Array: 'uint64',
 };
 
 export async function runOrt(model: Uint8Array | string, feeds: Feeds): Promise<Record<string, { dims: number[]; data: Float64Array }>> {

@@ -1,10 +1,10 @@
 // Hand-built reports for the formatter tests (invented data in our own scenario: a tray-sorting camera model).
-import type { AuditReport, FoldReport } from '../../src/jobs/types.js';
+import { SCHEMA_VERSION, type AuditReport, type FoldReport } from '../../src/jobs/types.js';
 import type { CompareReport } from '../../src/verify/compare.js';
 
 export function foldReport(over: Partial<FoldReport> = {}): FoldReport {
   return {
-    schemaVersion: 2, command: 'fold', model: 'models/tray-sorter.onnx', output: 'out/tray-sorter.onnx',
+    schemaVersion: SCHEMA_VERSION, command: 'fold', model: 'models/tray-sorter.onnx', output: 'out/tray-sorter.onnx',
     normalizations: [
       { node: 'stem_bn', op: 'BatchNormalization', status: 'folded', direction: 'into-producer', target: 'stem_conv', reason: null, hint: 'scaled 16 output channels of stem_conv', graph: 'main' },
       { node: 'head_bn', op: 'BatchNormalization', status: 'folded', direction: 'into-consumer', target: 'head_fc', reason: null, hint: 'scaled the input columns of head_fc', graph: 'main' },
@@ -15,7 +15,13 @@ export function foldReport(over: Partial<FoldReport> = {}): FoldReport {
       passed: true, skipped: null, probes: 2, seed: 0, gates: ['maxRel <= 1e-3 and cosine >= 0.99999'],
       outputs: [{ name: 'tray_class', maxAbs: 1.2e-7, maxRel: 3.4e-6, rms: 2e-8, cosine: 0.9999999999, passed: true }],
     },
-    quantization: [{ target: 'stem_conv', norms: ['stem_bn'], channels: 16, spreadBefore: 2.4, spreadAfter: 51.2, flagged: true }],
+    quantization: [{
+      target: 'stem_conv', norms: ['stem_bn'], channels: 16, spreadBefore: 2.4, spreadAfter: 51.2,
+      sqnrBefore: { tensor: 38.2, channel: 41.5, worstChannel: 30.1 }, sqnrAfter: { tensor: 36.9, channel: 41.5, worstChannel: 8.4 }, flagged: true,
+    }],
+    quantThresholdDb: 20,
+    equalized: [],
+    int8: null,
     storage: null,
     failed: false,
     ...over,
@@ -24,7 +30,7 @@ export function foldReport(over: Partial<FoldReport> = {}): FoldReport {
 
 export function auditReport(over: Partial<AuditReport> = {}): AuditReport {
   return {
-    schemaVersion: 2, command: 'audit', model: 'models/pump|monitor.onnx',
+    schemaVersion: SCHEMA_VERSION, command: 'audit', model: 'models/pump|monitor.onnx',
     normalizations: [
       { node: 'conv1_bn', op: 'BatchNormalization', status: 'foldable', direction: 'into-producer', target: 'conv1', reason: null, hint: 'would scale conv1', graph: 'main' },
       { node: 'ln', op: 'LayerNormalization', status: 'kept', direction: null, target: null, reason: 'runtime-statistics', hint: 'statistics come from each input; its affine tail could fold into dense_2', graph: 'main' },

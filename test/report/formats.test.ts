@@ -11,6 +11,7 @@ import { CAUTION } from '../../src/report/format.js';
 import { toJsonText } from '../../src/verify/compare.js';
 import { parseJunit, schemaValidator } from './helpers.js';
 import { auditReport, compareReport, foldReport } from './fixtures.js';
+import { SCHEMA_VERSION } from '../../src/jobs/types.js';
 
 const ESC = /\u001b\[/;
 
@@ -25,7 +26,8 @@ describe('text', () => {
     expect(t).toMatch(/2 folded, 1 kept; 4 nodes removed \(41 -> 37\); 200 B of weights saved/);
     expect(t).toMatch(/whole-model check: passed \(2 probes, seed 0\)/);
     expect(t).toMatch(/tray_class\s+pass\s+maxAbs 1\.20e-7/);
-    expect(t).toMatch(/stem_conv\s+16 channels\s+spread 2\.4 -> 51\.2\s+flagged/);
+    expect(t).toMatch(/stem_conv\s+16 channels\s+spread 2\.4 -> 51\.2\s+sqnr tensor 38\.2 -> 36\.9, channel 41\.5 -> 41\.5, worst channel 30\.1 -> 8\.4\s+flagged/);
+    expect(t).toMatch(/flagged below 20\.0 dB/);
     expect(t.trimEnd().endsWith(CAUTION.at(-1)!)).toBe(true);
     expect(t).not.toMatch(ESC);
   });
@@ -87,14 +89,15 @@ describe('JSON against the shipped schema (ajv)', () => {
   });
 
   it('non-finite metrics are written as strings the schema accepts', () => {
-    const r = foldReport({ quantization: [{ target: 'c', norms: ['b'], channels: 3, spreadBefore: 1, spreadAfter: Infinity, flagged: true }] });
+    const sq = { tensor: 40, channel: Infinity, worstChannel: -Infinity };
+    const r = foldReport({ quantization: [{ target: 'c', norms: ['b'], channels: 3, spreadBefore: 1, spreadAfter: Infinity, sqnrBefore: sq, sqnrAfter: sq, flagged: true }] });
     const text = renderJobs('fold', [{ model: r.model, report: r, exitCode: 0 }], 'json');
     expect(JSON.parse(text).quantization[0].spreadAfter).toBe('Infinity');
     ok(JSON.parse(text));
   });
 
   it('the schema rejects what it should (it can fail)', () => {
-    expect(validate({ ...foldReport(), schemaVersion: 3 })).toBe(false);
+    expect(validate({ ...foldReport(), schemaVersion: SCHEMA_VERSION + 1 })).toBe(false);
     expect(validate({ ...auditReport(), surprise: 1 })).toBe(false);
     const bad = foldReport();
     (bad.normalizations[2] as { reason: string }).reason = 'no-such-reason';
@@ -141,14 +144,16 @@ describe('JUnit XML (fast-xml-parser)', () => {
     });
     const j = parseJunit(renderJobs('fold', [{ model: r.model, report: r, exitCode: 1 }], 'junit'));
     const s = j.testsuites.testsuite[0];
-    expect(s['@tests']).toBe('5');
+    expect(s['@tests']).toBe('6'); // 3 norms, 2 outputs, 1 layer's 8-bit readiness
     expect(s['@failures']).toBe('1');
-    expect(s['@skipped']).toBe('1');
+    expect(s['@skipped']).toBe('2'); // the kept norm and the flagged layer
     const names = s.testcase.map((c: Record<string, string>) => c['@name']);
     expect(names).toContain('check output a<b>&"c"');
     expect(names).toContain('edge_bn BatchNormalization in main/branch_if.then_branch');
     const kept = s.testcase.find((c: Record<string, string>) => c['@name'].startsWith('edge_bn'));
     expect(kept.skipped['@message']).toBe('padded-consumer: remove the padding of the next convolution <pad=1> & "fold"');
+    const q = s.testcase.find((c: Record<string, string>) => c['@name'] === '8-bit readiness stem_conv');
+    expect(q.skipped['@message']).toBe('flagged: worst channel 30.1 -> 8.4 dB under one per-tensor 8-bit scale (threshold 20.0 dB)');
   });
 
   it('a batch error is an <error> case; counts add up over suites', () => {
@@ -181,7 +186,7 @@ describe('Markdown', () => {
     const rows = lines.filter((l) => l.startsWith('| `'));
     expect(rows).toHaveLength(3);
     expect(rows[0]).toMatch(/^\| `edge_bn`/);
-    expect(md).toMatch(/`stem_conv` spread 2\.4 → 51\.2/);
+    expect(md).toMatch(/`stem_conv` worst channel 30\.1 → 8\.4 dB, spread 2\.4 → 51\.2/);
     expect(md).toMatch(/^> Caution:/m);
   });
 

@@ -11,7 +11,7 @@ import { pathToFileURL } from 'node:url';
 import type { BrowserContext, Page } from 'playwright-core';
 import { pleat, ROOT } from '../helpers/cli.js';
 import { browserAvailable, openBrowser } from '../helpers/browser.js';
-import { bytesText, cosineText, numText, ratioText } from '../../src/report/format.js';
+import { bytesText, cosineText, dbText, numText, ratioText } from '../../src/report/format.js';
 import { renderJobs } from '../../src/report/render.js';
 import { toJsonText } from '../../src/verify/compare.js';
 import type { FoldReport } from '../../src/jobs/types.js';
@@ -73,7 +73,7 @@ function expectedText(path: string, v: unknown): string {
   if (key.startsWith('bytes') || key === 'peakMemoryBytes') return bytesText(n);
   if (key.startsWith('spread')) return ratioText(n);
   if (key === 'seconds') return `${n.toFixed(2)} s`;
-  if (key === 'sqnr') return `${n.toFixed(1)} dB`;
+  if (path.includes('.sqnr') || key === 'quantThresholdDb') return dbText(n);
   return String(n);
 }
 
@@ -184,7 +184,7 @@ describe.skipIf(!browser)('HTML report in headless Chromium', () => {
     await page.close();
   }, 60_000);
 
-  it('fields other reports add are shown when present: proof figures, check status, affine steps collapsed, sqnr', async () => {
+  it('fields other reports add are shown when present: proof figures, check status, affine steps collapsed; non-finite figures', async () => {
     const base = foldReport();
     const report = {
       ...base,
@@ -194,13 +194,13 @@ describe.skipIf(!browser)('HTML report in headless Chromium', () => {
         { node: 'scale_mul', op: 'Mul', status: 'folded', direction: 'into-producer', target: 'head_fc', reason: null, hint: 'a constant scale', graph: 'main', kind: 'affine-step' },
       ],
       check: { ...base.check!, passed: false, status: 'failed' },
-      quantization: [{ ...base.quantization[0]!, sqnr: 31.25 }, { target: 'wide', norms: ['w_bn'], channels: 4, spreadBefore: 3, spreadAfter: Infinity, flagged: true }],
+      quantization: [base.quantization[0]!, { ...base.quantization[0]!, target: 'wide', spreadAfter: Infinity, sqnrAfter: { tensor: Infinity, channel: 12.5, worstChannel: -Infinity } }],
     } as unknown as FoldReport;
     writeFileSync(at('fixture.html'), renderJobs('fold', [{ model: report.model, report, exitCode: 0 }], 'html'));
     const { page, problems } = await load(context, at('fixture.html'));
     expectFiguresMatch(await figuresOf(page), JSON.parse(toJsonText(report)));
     const shown = new Set((await figuresOf(page)).map((f) => f.path));
-    for (const p of ['normalizations.0.proof.maxAbs', 'normalizations.0.proof.maxRel', 'quantization.0.sqnr', 'quantization.1.spreadAfter']) expect(shown).toContain(p);
+    for (const p of ['normalizations.0.proof.maxAbs', 'normalizations.0.proof.maxRel', 'quantization.0.sqnrAfter.worstChannel', 'quantization.1.spreadAfter', 'quantThresholdDb']) expect(shown).toContain(p);
     // the affine step has its card in a collapsed section; the normalizations' cards are outside it
     expect(await page.locator('details#affine').evaluate((d) => (d as HTMLDetailsElement).open)).toBe(false);
     expect(await page.locator('details#affine article.card h3 code').allTextContents()).toEqual(['scale_mul']);
@@ -226,7 +226,7 @@ describe.skipIf(!browser)('HTML report in headless Chromium', () => {
       for (const k of ['maxAbs', 'maxRel', 'rms', 'cosine']) expect(paths).toContain(`check.outputs.${i}.${k}`);
     });
     report.quantization.forEach((_: unknown, i: number) => {
-      for (const k of ['spreadBefore', 'spreadAfter']) expect(paths).toContain(`quantization.${i}.${k}`);
+      for (const k of ['spreadBefore', 'spreadAfter', 'sqnrBefore.worstChannel', 'sqnrAfter.worstChannel']) expect(paths).toContain(`quantization.${i}.${k}`);
     });
     // tallies the page derives (counts by status and reason) recounted from the JSON
     const counts = Object.fromEntries(await page.$$eval('[data-count]', (els) => els.map((e) => [e.getAttribute('data-count')!, Number(e.textContent)])));

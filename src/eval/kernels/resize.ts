@@ -29,7 +29,9 @@ function sourceCoord(o: number, n: number, m: number, s: number, ctm: string, ro
       return center * (1 - adj) + (o + 0.5) / s - 0.5;
     }
     case 'pytorch_half_pixel': return m > 1 ? (o + 0.5) / s - 0.5 : 0;
-    case 'align_corners': return m === 1 ? 0 : (o * (n - 1)) / (m - 1);
+    // the resized length is n * scale before rounding, as in the ONNX reference implementation that produced
+    // the backend cases (onnxruntime uses the rounded length m; the two agree when n * scale is whole)
+    case 'align_corners': return m === 1 || n * s === 1 ? 0 : (o * (n - 1)) / (n * s - 1);
     case 'asymmetric': return o / s;
     case 'tf_half_pixel_for_nearest': return (o + 0.5) / s;
     case 'tf_crop_and_resize':

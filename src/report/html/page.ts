@@ -3,14 +3,13 @@
 // normalization (affine steps in their own collapsed section), the whole-model check with a histogram per
 // output, and quantization readiness. Every figure the page shows carries `data-figure` (its path in the JSON
 // report of the same run) and `data-value` (the JSON value), so a test can hold the page to the JSON.
-// Fields other branches add (per-fold `proof`, check `status`, entry `kind`, quantization `sqnr`) are shown
-// when the report has them.
+// Fields other branches add (per-fold `proof`, check `status`, entry `kind`) are shown when the report has them.
 import type { AuditReport, CheckSummary, FoldReport, OutputCheck, RunFigures } from '../../jobs/types.js';
 import type { Sketch } from '../../fold/sketch.js';
 import type { CompareReport } from '../../verify/compare.js';
 import type { GateLimit } from '../../verify/gate.js';
 import type { DiffHistogram } from '../../verify/metrics.js';
-import { bytesText, CAUTION, cosineText, numText, ratioText } from '../format.js';
+import { bytesText, CAUTION, cosineText, dbText, numText, ratioText } from '../format.js';
 import { drawView } from './drawing.js';
 import { esc } from './escape.js';
 import { histogramPlot, spreadPlot } from './plots.js';
@@ -150,18 +149,23 @@ function checkSection(c: CheckSummary | null, pre: string, at: string): string {
   return `<h2 id="${pre}check">Whole-model check, per output</h2><p class="sub">Original and folded model on the same seeded probes; the differences are those the metrics judge.</p>${blocks.join('')}`;
 }
 
-function quantSection(rows: FoldReport['quantization'], pre: string, at: string): string {
+function quantSection(r: FoldReport, pre: string, at: string): string {
+  const rows = r.quantization;
   if (rows.length === 0) return '';
-  const sqnr = rows.some((r) => 'sqnr' in r);
-  const body = rows.map((r, i) => {
+  const hasSqnr = rows.some((q) => 'sqnrBefore' in q && 'sqnrAfter' in q);
+  const db = (path: string, v: number) => fig(path, v, dbText(v));
+  const body = rows.map((row, i) => {
     const q = `${at}quantization.${i}`;
-    const extra = sqnr ? `<td>${typeof (r as unknown as Record<string, unknown>).sqnr === 'number' ? fig(`${q}.sqnr`, (r as unknown as { sqnr: number }).sqnr, `${(r as unknown as { sqnr: number }).sqnr.toFixed(1)} dB`) : ''}</td>` : '';
-    return `<tr><td><code>${esc(r.target)}</code></td><td>${fig(`${q}.channels`, r.channels, String(r.channels))}</td>` +
-      `<td>${fig(`${q}.spreadBefore`, r.spreadBefore, ratioText(r.spreadBefore))}</td><td>${fig(`${q}.spreadAfter`, r.spreadAfter, ratioText(r.spreadAfter))}</td>` +
-      `<td>${r.flagged ? badge('flagged').replace('s-flagged', 's-failed').replace('•', '▲') : 'no'}</td>${extra}</tr>`;
+    const sqnr = hasSqnr ? `<td>${db(`${q}.sqnrBefore.worstChannel`, row.sqnrBefore.worstChannel)} → ${db(`${q}.sqnrAfter.worstChannel`, row.sqnrAfter.worstChannel)}</td>` +
+      `<td>${db(`${q}.sqnrAfter.tensor`, row.sqnrAfter.tensor)} / ${db(`${q}.sqnrAfter.channel`, row.sqnrAfter.channel)}</td>` : '';
+    return `<tr><td><code>${esc(row.target)}</code></td><td>${fig(`${q}.channels`, row.channels, String(row.channels))}</td>` +
+      `<td>${fig(`${q}.spreadBefore`, row.spreadBefore, ratioText(row.spreadBefore))} → ${fig(`${q}.spreadAfter`, row.spreadAfter, ratioText(row.spreadAfter))}</td>` +
+      `${sqnr}<td>${row.flagged ? '<span class="badge s-failed">▲ flagged</span>' : 'no'}</td></tr>`;
   }).join('');
-  return `<h2 id="${pre}quant">Quantization readiness</h2><p class="sub">Per folded layer: widest / median output-channel weight range (Nagel et al. 2019, arXiv:1906.04721). Flagged layers: consider per-channel quantization.</p>` +
-    `<figure>${spreadPlot(rows, `${pre}spread`)}</figure><div class="scroll"><table><thead><tr><th>layer</th><th>channels</th><th>spread before</th><th>spread after</th><th>flagged</th>${sqnr ? '<th>sqnr</th>' : ''}</tr></thead><tbody>${body}</tbody></table></div>`;
+  const threshold = 'quantThresholdDb' in r ? ` Flagged: some output channel keeps less than ${fig(`${at}quantThresholdDb`, r.quantThresholdDb, dbText(r.quantThresholdDb))} dB SQNR under one per-tensor 8-bit scale; consider per-channel quantization.` : '';
+  return `<h2 id="${pre}quant">Quantization readiness</h2><p class="sub">Per folded layer: spread = widest / median output-channel weight range, before and after the fold (Nagel et al. 2019, arXiv:1906.04721).${threshold}</p>` +
+    `<figure>${spreadPlot(rows, `${pre}spread`)}</figure><div class="scroll"><table><thead><tr><th>layer</th><th>channels</th><th>spread before → after</th>` +
+    `${hasSqnr ? '<th>worst-channel SQNR, per-tensor scale (dB) before → after</th><th>SQNR after, per tensor / per channel (dB)</th>' : ''}<th>flagged</th></tr></thead><tbody>${body}</tbody></table></div>`;
 }
 
 // ---- bodies -------------------------------------------------------------------------------------------
@@ -182,7 +186,7 @@ export function foldBody(r: FoldReport, pre = '', at = ''): string {
   return `<h1>pleat fold <code>${esc(r.model)}</code></h1><p class="sub">${r.failed ? `${badge('failed')} a gate failed; nothing was written` : 'Folded.'}</p>` +
     `<h2 id="${pre}overview">Overview</h2><dl class="tiles">${overview.join('')}</dl>` +
     `<h2 id="${pre}ledger">Ledger</h2>${ledger(entries, pre)}${cards(entries, r.sketches, pre, at)}` +
-    checkSection(r.check, pre, at) + quantSection(r.quantization, pre, at);
+    checkSection(r.check, pre, at) + quantSection(r, pre, at);
 }
 
 export function auditBody(r: AuditReport, pre = '', at = ''): string {

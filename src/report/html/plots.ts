@@ -1,7 +1,6 @@
 // Plots as inline SVG: the spread of folded layers' channel ranges, and histograms of element differences.
 // Both use a log axis; marks differ in shape and line style as well as colour.
 import type { QuantRow } from '../../fold/quant.js';
-import { SPREAD_LIMIT } from '../../fold/quant.js';
 import type { GateLimit } from '../../verify/gate.js';
 import { REL_FLOOR, type DiffHistogram } from '../../verify/metrics.js';
 import { numText, ratioText } from '../format.js';
@@ -17,23 +16,21 @@ function decades(lo: number, hi: number, every = 1): number[] {
   return out;
 }
 
-/** One row per folded layer: spread before (hollow circle) and after (filled dot), the flag limit dashed. */
+/** One row per folded layer: spread before (hollow circle) and after (filled dot); flagged layers marked. */
 export function spreadPlot(rows: readonly QuantRow[], key: string): string {
   const labelW = Math.min(220, 12 + 7.3 * Math.max(4, ...rows.map((r) => r.target.length)));
   const left = labelW + 8, right = 86, top = 28, rowH = 26;
   const h = top + rows.length * rowH + 30;
   const finite = rows.flatMap((r) => [r.spreadBefore, r.spreadAfter]).filter((x) => Number.isFinite(x) && x > 0);
-  const hiExp = Math.max(Math.log10(SPREAD_LIMIT) + 0.5, Math.log10(Math.max(1, ...finite)) + 0.3);
+  const hiExp = Math.max(1, Math.log10(Math.max(1, ...finite)) + 0.3);
   const x = (v: number) => left + (Math.min(hiExp, Math.max(0, Number.isFinite(v) ? Math.log10(Math.max(v, 1)) : hiExp)) / hiExp) * (W - left - right);
   const p: string[] = [`<svg class="plot spread" viewBox="0 0 ${W} ${f(h)}" role="img" aria-labelledby="${key}-t">`,
-    `<title id="${key}-t">Spread of per-output-channel weight ranges (widest / median) before and after folding, per folded layer; flag limit ${SPREAD_LIMIT}</title>`];
+    `<title id="${key}-t">Spread of per-output-channel weight ranges (widest / median) before and after folding, per folded layer</title>`];
   const axisY = top + rows.length * rowH + 4;
   for (const e of decades(0, hiExp)) {
     p.push(`<line class="grid" x1="${f(x(10 ** e))}" x2="${f(x(10 ** e))}" y1="${top - 6}" y2="${f(axisY)}"/>`,
       `<text class="tick" x="${f(x(10 ** e))}" y="${f(axisY + 14)}">${10 ** e}</text>`);
   }
-  p.push(`<line class="limit" x1="${f(x(SPREAD_LIMIT))}" x2="${f(x(SPREAD_LIMIT))}" y1="${top - 14}" y2="${f(axisY)}"/>`,
-    `<text class="limit-label" x="${f(x(SPREAD_LIMIT) + 4)}" y="${top - 16}">flag above ${SPREAD_LIMIT}</text>`);
   rows.forEach((r, i) => {
     const y = top + i * rowH + rowH / 2;
     const xb = x(r.spreadBefore), xa = x(r.spreadAfter);
@@ -44,7 +41,7 @@ export function spreadPlot(rows: readonly QuantRow[], key: string): string {
     if (r.flagged) p.push(`<text class="flag" x="${f(W - right + 8)}" y="${f(y + 4)}">▲ flagged</text>`);
     p.push('</g>');
   });
-  p.push(`<text class="axis-label" x="${f(left)}" y="${f(h - 2)}">spread (log scale) · ○ before fold · ● after fold</text>`, '</svg>');
+  p.push(`<text class="axis-label" x="${f(left)}" y="${f(h - 2)}">spread (log scale) · ○ before fold · ● after fold · ▲ flagged (8-bit SQNR)</text>`, '</svg>');
   return p.join('');
 }
 

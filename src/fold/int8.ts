@@ -1,0 +1,105 @@
+// Symmetric 8-bit weight quantization, simulated: each weight goes through QuantizeLinear then
+// DequantizeLinear with zero point 0 and scale max|w| / 127 (per tensor, or per output channel), in float32
+// arithmetic as a runtime does it. The rounding rules are the ONNX QuantizeLinear operator's: the quotient
+// x / scale is rounded half to even, then saturated to the int8 range [-128, 127]. The signal-to-quantization-
+// noise ratio (SQNR) compares the weights with their rounded copy (Nagel et al. 2019, "Data-Free Quantization
+// Through Weight Equalization and Bias Correction", arXiv:1906.04721, uses it to judge per-tensor scales).
+import type { ChannelMap } from './weights.js';
+
+export type Int8Granularity = 'tensor' | 'channel';
+export const INT8_GRANULARITIES: readonly Int8Granularity[] = ['tensor', 'channel'];
+
+/** The largest code of the symmetric range: scales map max|w| to 127, so -128 is never reached from a weight. */
+const QMAX = 127;
+
+/** Round half to even (IEEE 754 roundTiesToEven), as QuantizeLinear does. */
+export function roundHalfEven(x: number): number {
+  const r = Math.round(x);
+  // Math.round takes ties up (towards +inf): pull back the ties that landed on an odd integer
+  return Math.abs(x % 1) === 0.5 && r % 2 !== 0 ? r - 1 : r;
+}
+
+/** The float32 scale a symmetric quantizer gives a range of max|w| (0 when every weight is 0). */
+export function symmetricScale(maxAbs: number): number {
+  return Math.fround(Math.fround(maxAbs) / QMAX);
+}
+
+/** One weight through QuantizeLinear(scale, zero point 0, int8) then DequantizeLinear, in float32. */
+export function quantizeDequantize(x: number, scale: number): number {
+  if (scale === 0) return 0;
+  // + 0 turns a -0 code into 0: an int8 has no negative zero, so neither has its dequantized value
+  const q = Math.min(127, Math.max(-128, roundHalfEven(Math.fround(Math.fround(x) / scale)))) + 0;
+  return Math.fround(q * scale);
+}
+
+/** max |w| of each output channel. */
+export function channelMaxAbs(values: Float64Array, map: ChannelMap, channels: number): Float64Array {
+  const out = new Float64Array(channels);
+  for (let e = 0, i = 0; e < map.of.length; e++) {
+    const c = map.of[e]!;
+    let m = out[c]!;
+    for (const end = i + map.unit; i < end; i++) { const a = Math.abs(values[i]!); if (a > m) m = a; }
+    out[c] = m;
+  }
+  return out;
+}
+
+/** The scale of each output channel for a granularity (the same one everywhere for 'tensor'). */
+export function channelScales(values: Float64Array, map: ChannelMap, channels: number, granularity: Int8Granularity): Float64Array {
+  const maxAbs = channelMaxAbs(values, map, channels);
+  if (granularity === 'channel') return maxAbs.map(symmetricScale);
+  let m = 0;
+  for (const a of maxAbs) if (a > m) m = a;
+  return new Float64Array(channels).fill(symmetricScale(m));
+}
+
+/** The weights after 8-bit quantize-dequantize at the given granularity. */
+export function roundedInt8(values: Float64Array, map: ChannelMap, channels: number, granularity: Int8Granularity): Float64Array {
+  const scales = channelScales(values, map, channels, granularity);
+  const out = new Float64Array(values.length);
+  for (let e = 0, i = 0; e < map.of.length; e++) {
+    const s = scales[map.of[e]!]!;
+    for (const end = i + map.unit; i < end; i++) out[i] = quantizeDequantize(values[i]!, s);
+  }
+  return out;
+}
+
+/** 10 log10(signal energy / noise energy) in dB; Infinity when the rounding changed nothing. */
+export function sqnrDb(signal: number, noise: number): number {
+  if (noise === 0) return Infinity;
+  if (signal === 0) return -Infinity;
+  return 10 * Math.log10(signal / noise);
+}
+
+export interface SqnrFigures {
+  /** Whole layer, one scale for the tensor. */
+  tensor: number;
+  /** Whole layer, one scale per output channel. */
+  channel: number;
+  /** The lowest SQNR of any single output channel under the per-tensor scale (where per-tensor scales starve). */
+  worstChannel: number;
+}
+
+/** SQNR of a layer's weights under symmetric 8-bit quantization (float32 weights as stored). */
+export function sqnrOf(values: Float64Array, map: ChannelMap, channels: number): SqnrFigures {
+  const perTensor = roundedInt8(values, map, channels, 'tensor');
+  const perChannel = roundedInt8(values, map, channels, 'channel');
+  const sig = new Float64Array(channels), noiseT = new Float64Array(channels);
+  let noiseC = 0;
+  for (let e = 0, i = 0; e < map.of.length; e++) {
+    const c = map.of[e]!;
+    for (const end = i + map.unit; i < end; i++) {
+      const x = Math.fround(values[i]!);
+      sig[c] += x * x;
+      const dt = x - perTensor[i]!, dc = x - perChannel[i]!;
+      noiseT[c] += dt * dt;
+      noiseC += dc * dc;
+    }
+  }
+  let signal = 0, noise = 0, worst = Infinity;
+  for (let c = 0; c < channels; c++) {
+    signal += sig[c]!; noise += noiseT[c]!;
+    if (sig[c]! > 0) worst = Math.min(worst, sqnrDb(sig[c]!, noiseT[c]!));
+  }
+  return { tensor: sqnrDb(signal, noise), channel: sqnrDb(signal, noiseC), worstChannel: worst };
+}

@@ -1,0 +1,48 @@
+// evaluatorGaps: the operators of a model the evaluator cannot run, looked up in the registry at the model's
+// opset (subgraphs included), with random operators named as such.
+import { describe, expect, it } from 'vitest';
+import { GraphBuilder, modelBytes } from '../helpers/build.js';
+import { parseModel } from '../../src/onnx/read.js';
+import { evaluatorGaps } from '../../src/eval/coverage.js';
+
+function model(build: (g: GraphBuilder) => void, opset = 17, extra: Array<[string, number]> = []) {
+  const g = new GraphBuilder();
+  build(g);
+  return parseModel(modelBytes(g, { opset, extraOpsets: extra }), '.');
+}
+
+describe('evaluatorGaps', () => {
+  it('is empty when every operator has a kernel', () => {
+    const m = model((g) => {
+      g.input('x', [1, 4]).output('y');
+      g.node('Relu', ['x'], {}, { outputs: ['r'] });
+      g.node('TopK', ['r', 'k'], {}, { outputs: ['y', 'i'] });
+      g.init('k', [1], [2], 7);
+    });
+    expect(evaluatorGaps(m)).toEqual([]);
+  });
+
+  it('names operators without a kernel, random ones and other domains, counting nodes in subgraphs', () => {
+    const branch = new GraphBuilder('then');
+    branch.output('b');
+    branch.node('NoSuchOp', ['x'], {}, { outputs: ['b'] });
+    const m = model((g) => {
+      g.input('x', [1, 4]).input('c', [], 9).output('y').output('z').output('w');
+      g.node('NoSuchOp', ['x'], {}, { outputs: ['n'] });
+      g.node('If', ['c'], { then_branch: branch, else_branch: branch }, { outputs: ['y'] });
+      g.node('RandomUniformLike', ['n'], {}, { outputs: ['z'] });
+      g.node('Thing', ['x'], {}, { outputs: ['w'], domain: 'example.custom' });
+    }, 17, [['example.custom', 1]]);
+    expect(evaluatorGaps(m)).toEqual([
+      { op: 'NoSuchOp', opset: 17, count: 3, reason: 'no-kernel' },
+      { op: 'RandomUniformLike', opset: 17, count: 1, reason: 'random' },
+      { op: 'example.custom.Thing', opset: 1, count: 1, reason: 'no-kernel' },
+    ]);
+  });
+
+  it('looks kernels up at the model opset (Trilu exists from opset 14)', () => {
+    const build = (g: GraphBuilder) => { g.input('x', [2, 2]).output('y'); g.node('Trilu', ['x'], {}, { outputs: ['y'] }); };
+    expect(evaluatorGaps(model(build, 13))).toEqual([{ op: 'Trilu', opset: 13, count: 1, reason: 'no-kernel' }]);
+    expect(evaluatorGaps(model(build, 14))).toEqual([]);
+  });
+});
