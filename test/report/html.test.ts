@@ -245,16 +245,19 @@ describe.skipIf(!browser)('HTML report in headless Chromium', () => {
 
   it('audit and compare pages: figures are those of their JSON reports; no console error or request', async () => {
     run(['audit', 'models/pump-vibration.onnx', '--report', 'audit.html', '--report', 'audit.json']);
-    run(['fold', 'models/pump-vibration.onnx', '-o', 'pump.onnx']);
+    run(['fold', 'models/pump-vibration.onnx', '-o', 'pump.onnx', '--equalize', '--simulate-int8', 'weights', '--report', 'pump.html', '--report', 'pump.json']);
     run(['compare', 'models/pump-vibration.onnx', 'pump.onnx', '--report', 'compare.html', '--report', 'compare.json']);
     // a batch: one section per model, figures at their place in the batch JSON
     run(['fold', 'models/pump-vibration.onnx', 'models/tray-sorter.onnx', '--out-dir', 'batch', '--dim', 'batch=1', '--report', 'batch.html', '--report', 'batch.json']);
-    for (const [html, j, cards, plots] of [['audit.html', 'audit.json', 5, 0], ['compare.html', 'compare.json', 0, 1], ['batch.html', 'batch.json', 16, 3]] as const) {
+    for (const [html, j, cards, plots] of [['audit.html', 'audit.json', 5, 0], ['compare.html', 'compare.json', 0, 1], ['batch.html', 'batch.json', 16, 3], ['pump.html', 'pump.json', 5, 1]] as const) {
       const { page, problems } = await load(context, at(html));
       const report = json(j);
       expectFiguresMatch(await figuresOf(page), report);
       expect(await page.locator('article.card').count()).toBe(cards);
       expect(await page.locator('svg.plot.histogram').count()).toBe(plots);
+      // the sections of --equalize and --simulate-int8 (text report's figures, here as tables)
+      expect(await page.locator('#equalize').count()).toBe(report.equalized?.length ? 1 : 0);
+      expect(await page.locator('#int8').count()).toBe(report.int8 ? 1 : 0);
       for (const c of await page.locator('article.card, svg.plot').all()) expect(await c.isVisible()).toBe(true);
       expect(problems).toEqual([]);
       await page.close();

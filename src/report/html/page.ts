@@ -17,7 +17,7 @@ import { CSS } from './style.js';
 
 type Entry = (FoldReport['normalizations'][number] | AuditReport['normalizations'][number]) & Record<string, unknown>;
 
-const SHAPES: Record<string, string> = { folded: '✔', foldable: '◇', kept: '■', passed: '✔', failed: '✘', skipped: '○' };
+const SHAPES: Record<string, string> = { folded: '✔', foldable: '◇', kept: '■', passed: '✔', failed: '✘', skipped: '○', equalized: '✔', refused: '■' };
 
 export const badge = (status: string) => `<span class="badge s-${esc(status)}">${SHAPES[status] ?? '•'} ${esc(status)}</span>`;
 
@@ -168,6 +168,35 @@ function quantSection(r: FoldReport, pre: string, at: string): string {
     `${hasSqnr ? '<th>worst-channel SQNR, per-tensor scale (dB) before → after</th><th>SQNR after, per tensor / per channel (dB)</th>' : ''}<th>flagged</th></tr></thead><tbody>${body}</tbody></table></div>`;
 }
 
+/** --equalize: each pair, equalized (worst-channel SQNR of both layers before -> after) or refused and why. */
+function equalizeSection(r: FoldReport, pre: string, at: string): string {
+  const pairs = 'equalized' in r ? r.equalized : [];
+  if (!pairs.length) return '';
+  const db = (path: string, v: number) => fig(path, v, dbText(v));
+  const rows = pairs.map((e, i) => {
+    const q = `${at}equalized.${i}.sqnr`;
+    const detail = e.status === 'equalized' && e.sqnr
+      ? `<code>${esc(e.first)}</code> ${db(`${q}.firstBefore.worstChannel`, e.sqnr.firstBefore.worstChannel)} → ${db(`${q}.firstAfter.worstChannel`, e.sqnr.firstAfter.worstChannel)}; ` +
+        `<code>${esc(e.second)}</code> ${db(`${q}.secondBefore.worstChannel`, e.sqnr.secondBefore.worstChannel)} → ${db(`${q}.secondAfter.worstChannel`, e.sqnr.secondAfter.worstChannel)}`
+      : `<code>${esc(e.reason ?? 'refused')}</code>: ${esc(e.hint)}`;
+    return `<tr><td>${badge(e.status === 'equalized' ? 'equalized' : 'refused')}</td><td><code>${esc(e.first)}</code> → <code>${esc(e.second)}</code></td><td>${detail}</td></tr>`;
+  }).join('');
+  return `<h2 id="${pre}equalize">Equalized pairs</h2><p class="sub">Cross-layer equalization; worst-channel SQNR under one per-tensor 8-bit scale (dB), before → after.</p>` +
+    `<div class="scroll"><table><thead><tr><th>status</th><th>pair</th><th>SQNR, or why refused</th></tr></thead><tbody>${rows}</tbody></table></div>`;
+}
+
+/** --simulate-int8 weights: each output's error with 8-bit weights, original and folded model. */
+function int8Section(r: FoldReport, pre: string, at: string): string {
+  const s = 'int8' in r ? r.int8 : null;
+  if (!s) return '';
+  const figs = (f: { maxAbs: number; maxRel: number; cosine: number } | null, path: string) => (f
+    ? metricFigures(f as unknown as Record<string, unknown>, path) : 'not compared');
+  const rows = s.outputs.map((o, i) => `<tr><td><code>${esc(o.name)}</code></td>` + (o.problem ? `<td colspan="2">${esc(o.problem)}</td>`
+    : `<td>${figs(o.original, `${at}int8.outputs.${i}.original`)}</td><td>${figs(o.folded, `${at}int8.outputs.${i}.folded`)}</td>`) + '</tr>').join('');
+  return `<h2 id="${pre}int8">8-bit weights</h2><p class="sub">Each model with its Conv/Gemm/MatMul weights rounded to 8 bits (${s.granularity === 'tensor' ? 'one scale per tensor' : 'one scale per output channel'}), against the unrounded original in float64; no gate.</p>` +
+    `<div class="scroll"><table><thead><tr><th>output</th><th>original model</th><th>folded model</th></tr></thead><tbody>${rows}</tbody></table></div>`;
+}
+
 // ---- bodies -------------------------------------------------------------------------------------------
 
 const cautions = () => `<p class="caution">${esc(CAUTION.join(' '))}</p>`;
@@ -186,7 +215,7 @@ export function foldBody(r: FoldReport, pre = '', at = ''): string {
   return `<h1>pleat fold <code>${esc(r.model)}</code></h1><p class="sub">${r.failed ? `${badge('failed')} a gate failed; nothing was written` : 'Folded.'}</p>` +
     `<h2 id="${pre}overview">Overview</h2><dl class="tiles">${overview.join('')}</dl>` +
     `<h2 id="${pre}ledger">Ledger</h2>${ledger(entries, pre)}${cards(entries, r.sketches, pre, at)}` +
-    checkSection(r.check, pre, at) + quantSection(r, pre, at);
+    checkSection(r.check, pre, at) + quantSection(r, pre, at) + equalizeSection(r, pre, at) + int8Section(r, pre, at);
 }
 
 export function auditBody(r: AuditReport, pre = '', at = ''): string {

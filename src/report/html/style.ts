@@ -15,7 +15,7 @@ a{color:var(--foldable)}a:focus-visible,.card:focus-visible,summary:focus-visibl
 .tile{background:var(--card);border:1px solid var(--line);border-left:5px solid var(--muted);padding:.5rem .75rem;border-radius:4px}
 .tile dt{font-size:.8rem;text-transform:uppercase;letter-spacing:.04em;color:var(--muted)}.tile dd{margin:.15rem 0 0}
 .badge{display:inline-block;font-weight:600;padding:0 .4rem;border:1.5px solid currentColor;border-radius:3px;white-space:nowrap}
-.s-folded,.s-passed{color:var(--folded)}.s-foldable{color:var(--foldable)}.s-kept,.s-skipped{color:var(--kept)}.s-failed{color:var(--failed)}
+.s-folded,.s-passed,.s-equalized{color:var(--folded)}.s-foldable{color:var(--foldable)}.s-kept,.s-skipped,.s-refused{color:var(--kept)}.s-failed{color:var(--failed)}
 .scroll{overflow-x:auto}
 table{border-collapse:collapse;width:100%;background:var(--card)}th,td{text-align:left;padding:.3rem .5rem;border-bottom:1px solid var(--line);vertical-align:top}
 th{font-size:.85rem;color:var(--muted)}tr:target{outline:3px solid var(--focus)}
