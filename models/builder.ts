@@ -16,7 +16,7 @@ export class Fs { constructor(readonly v: number[]) {} }
 export const f = (v: number) => new F(v);
 export const fs = (v: number[]) => new Fs(v);
 
-export type AttrIn = number | number[] | string | F | Fs | GraphBuilder | onnxProto.onnx.ITensorProto;
+export type AttrIn = number | number[] | string | string[] | F | Fs | GraphBuilder | onnxProto.onnx.ITensorProto;
 export type Dim = number | string | null;
 
 /** Seeded random numbers (mulberry32), so tests are repeatable. */
@@ -119,8 +119,10 @@ function attribute(name: string, v: AttrIn): onnxProto.onnx.IAttributeProto {
   }
   if (typeof v === 'string') return { name, type: A.STRING, s: new TextEncoder().encode(v) };
   if (Array.isArray(v)) {
-    if (v.every(Number.isInteger)) return { name, type: A.INTS, ints: v };
-    return { name, type: A.FLOATS, floats: v };
+    if (v.length > 0 && v.every((x) => typeof x === 'string')) return { name, type: A.STRINGS, strings: (v as string[]).map((x) => new TextEncoder().encode(x)) };
+    const nums = v as number[];
+    if (nums.every(Number.isInteger)) return { name, type: A.INTS, ints: nums };
+    return { name, type: A.FLOATS, floats: nums };
   }
   return { name, type: A.TENSOR, t: v as onnxProto.onnx.ITensorProto };
 }

@@ -4,10 +4,7 @@
 // refuse a particular attribute value when it runs (e.g. Resize antialias when shrinking); those show up in the
 // check's status.
 import { opsetVersion, subgraphsOf, type Graph, type Model } from '../graph/ir.js';
-import { findKernel } from './registry.js';
-
-/** Operators whose outputs are random draws by definition: two runs differ, so no check can compare them. */
-const RANDOM = new Set(['Bernoulli', 'Multinomial', 'RandomNormal', 'RandomNormalLike', 'RandomUniform', 'RandomUniformLike']);
+import { findKernel, isRandomOp } from './registry.js';
 
 export interface EvaluatorGap {
   /** Operator, domain-qualified outside the default domain. */
@@ -26,7 +23,7 @@ export function evaluatorGaps(model: Model): EvaluatorGap[] {
     for (const n of g.nodes) {
       const domain = n.domain === 'ai.onnx' ? '' : n.domain;
       const opset = opsetVersion(model, domain) ?? 0;
-      const random = domain === '' && RANDOM.has(n.opType);
+      const random = isRandomOp(domain, n.opType); // outputs are random draws: two runs differ
       if (random || !findKernel(domain, n.opType, opset)) {
         const op = domain ? `${domain}.${n.opType}` : n.opType;
         const gap = gaps.get(op) ?? { op, opset, count: 0, reason: random ? 'random' : 'no-kernel' };

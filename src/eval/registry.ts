@@ -60,6 +60,17 @@ import { NonMaxSuppression } from './kernels/nonmaxsuppression.js';
 import { BitShift } from './kernels/bitshift.js';
 import { Det } from './kernels/det.js';
 import { TfIdfVectorizer } from './kernels/tfidfvectorizer.js';
+import { LSTM } from './kernels/lstm.js';
+import { GRU } from './kernels/gru.js';
+import { RNN } from './kernels/rnn.js';
+import { Loop } from './kernels/loop.js';
+import { Scan8, Scan9 } from './kernels/scan.js';
+import { Einsum } from './kernels/einsum.js';
+import { CumSum } from './kernels/cumsum.js';
+import { DFT17, DFT20 } from './kernels/dft.js';
+import { STFT } from './kernels/stft.js';
+import * as windows from './kernels/windows.js';
+import { MelWeightMatrix } from './kernels/melweightmatrix.js';
 
 const KERNELS: Kernel[] = [
   // (kernels are registered here, one line each)
@@ -208,6 +219,21 @@ const KERNELS: Kernel[] = [
   BitShift,
   Det,
   TfIdfVectorizer,
+  LSTM,
+  GRU,
+  RNN,
+  Loop,
+  Scan8,
+  Scan9,
+  Einsum,
+  CumSum,
+  DFT17,
+  DFT20,
+  STFT,
+  windows.HannWindow,
+  windows.HammingWindow,
+  windows.BlackmanWindow,
+  MelWeightMatrix,
 ];
 
 const byKey = new Map<string, Kernel[]>();
@@ -224,9 +250,23 @@ export function findKernel(domain: string, op: string, opset: number): Kernel | 
   return byKey.get(`${d}::${op}`)?.find((k) => k.sinceVersion <= opset);
 }
 
+/**
+ * Operators of the default domain whose outputs are random draws by definition. Two runs of the same model give
+ * different values, so comparing the original with the folded model says nothing: they are refused with that
+ * reason rather than with the generic missing-kernel message.
+ */
+export const RANDOM_OPS: ReadonlySet<string> = new Set(['Bernoulli', 'Multinomial', 'RandomNormal', 'RandomNormalLike', 'RandomUniform', 'RandomUniformLike']);
+
+export function isRandomOp(domain: string, op: string): boolean {
+  return (domain === '' || domain === 'ai.onnx') && RANDOM_OPS.has(op);
+}
+
 export function getKernel(domain: string, op: string, opset: number, nodeName: string): Kernel {
   const k = findKernel(domain, op, opset);
   if (!k) {
+    if (isRandomOp(domain, op)) {
+      throw new PleatError('unsupported-op', `node '${nodeName}': '${op}' draws random numbers, so the whole-model check cannot compare two runs`);
+    }
     const dom = domain || 'ai.onnx';
     throw new PleatError('unsupported-op', `node '${nodeName}': operator ${dom}.${op} at opset ${opset} is not supported by pleat's evaluator`);
   }

@@ -3,9 +3,7 @@
 // selection, which does not depend on pleat's kernels) is run through pleat's evaluator in float64 and compared
 // with the expected outputs the ONNX project computed with its reference implementations. Float outputs must
 // agree within float32 rounding (|a-b| <= 1e-4 * max(1, |b|)); integer and bool outputs must be exact.
-//
-// A case that needs an operator in PENDING (kernels being written on another branch) is reported as skipped,
-// not passed, and counted in the summary line; any other missing kernel fails the case.
+// A case whose operator has no kernel fails, naming the operator.
 import { existsSync, readdirSync, readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
@@ -49,13 +47,6 @@ function mismatch(got: Value, want: Value): string {
   return '';
 }
 
-// Operators whose kernels are being written on another branch (recurrent cells, control flow, Einsum, CumSum,
-// spectral operators). The check below fails once one of them has a kernel, so the list only shrinks.
-const PENDING = new Set([
-  'LSTM', 'GRU', 'RNN', 'Loop', 'Scan', 'Einsum', 'CumSum', 'DFT', 'STFT', 'HannWindow', 'HammingWindow',
-  'BlackmanWindow', 'MelWeightMatrix',
-]);
-
 /** Operators of the model (subgraphs included) that have no kernel at the model's opset. */
 function missingKernels(model: Model): Set<string> {
   const missing = new Set<string>();
@@ -71,27 +62,17 @@ function missingKernels(model: Model): Set<string> {
 }
 
 let passed = 0;
-const pending = new Map<string, number>();
 
 describe('ONNX backend conformance cases (onnx 1.12.0 test data)', () => {
   it('has the copied fixtures', () => {
     expect(cases.length).toBeGreaterThan(100);
   });
 
-  it('lists as pending only operators that still have no kernel', () => {
-    expect([...PENDING].filter((op) => findKernel('', op, 100) !== undefined), 'these have kernels now: remove them from PENDING').toEqual([]);
-  });
-
-  it.for(cases)('%s', (name, ctx) => {
+  it.for(cases)('%s', (name) => {
     const dir = join(DIR, name);
     const model = readModelFile(join(dir, 'model.onnx'));
     const missing = missingKernels(model);
-    if (missing.size > 0) {
-      const other = [...missing].filter((op) => !PENDING.has(op));
-      expect(other, `${name}: operators without a kernel`).toEqual([]);
-      for (const op of missing) pending.set(op, (pending.get(op) ?? 0) + 1);
-      ctx.skip(`waits for kernels: ${[...missing].join(', ')}`);
-    }
+    expect([...missing], `${name}: operators without a kernel`).toEqual([]);
     const sets = readdirSync(dir).filter((d) => d.startsWith('test_data_set_')).sort();
     expect(sets.length).toBeGreaterThan(0);
     for (const set of sets) {
@@ -112,8 +93,6 @@ describe('ONNX backend conformance cases (onnx 1.12.0 test data)', () => {
   });
 
   afterAll(() => {
-    const waiting = [...pending.values()].length ? ` (operators: ${[...pending].map(([op, n]) => `${op} ${n}`).join(', ')})` : '';
-    const skipped = cases.length - passed;
-    console.log(`onnx conformance: ${passed}/${cases.length} selected cases passed; ${skipped} not passed${waiting}`);
+    console.log(`onnx conformance: ${passed}/${cases.length} selected cases passed`);
   });
 });
