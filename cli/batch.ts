@@ -5,7 +5,9 @@
 import { Worker } from 'node:worker_threads';
 import { availableParallelism } from 'node:os';
 import { isPleatError } from '../src/errors.js';
-import { audit, fold } from '../src/index.js';
+import { audit } from '../src/index.js';
+import { foldStaged } from '../src/jobs/fold.js';
+import type { StagedFile } from '../src/jobs/outputs.js';
 import type { AuditJobOptions, AuditReport, FoldJobOptions, FoldReport } from '../src/jobs/types.js';
 import { EXIT } from '../src/report/exit-codes.js';
 import type { Outcome } from '../src/report/render.js';
@@ -17,12 +19,18 @@ export type Job = (
   | { command: 'audit'; model: string; opts: AuditJobOptions }
 ) & { runFigures?: boolean };
 
-export type JobOutcome = Outcome<FoldReport | AuditReport>;
+/** An outcome, plus (for fold) the staged output files to commit with the reports and the input files to guard. */
+export type JobOutcome = Outcome<FoldReport | AuditReport> & { staged?: StagedFile[]; inputs?: string[] };
 
 /** Run one job here and now; errors are thrown (a single model's error ends the command as usual). */
 export function runJob(job: Job): JobOutcome {
   const started = process.hrtime.bigint();
-  const report = job.command === 'fold' ? fold(job.model, job.output, job.opts) : audit(job.model, job.opts);
+  if (job.command === 'fold') {
+    const r = foldStaged(job.model, job.output, job.opts);
+    if (job.runFigures) r.report.run = runFigures(started);
+    return { model: job.model, report: r.report, exitCode: r.report.failed ? EXIT.failed : EXIT.ok, staged: r.staged, inputs: r.inputs };
+  }
+  const report = audit(job.model, job.opts);
   if (job.runFigures) report.run = runFigures(started);
   return { model: job.model, report, exitCode: report.failed ? EXIT.failed : EXIT.ok };
 }

@@ -75,6 +75,7 @@ export interface RunFlags {
   seed?: number;
   probes?: number;
   gate?: string;
+  maxProbeMemory?: string;
 }
 
 export interface RunSettings {
@@ -84,6 +85,15 @@ export interface RunSettings {
   seed?: number;
   probes?: number;
   gate?: string;
+  maxProbeMemory?: number;
+}
+
+/** `--max-probe-memory`: a whole number of bytes, or with a K, M or G suffix (powers of 1024). */
+export function parseBytes(flag: string, text: string): number {
+  const m = /^(\d+)([KMG]?)(i?B)?$/i.exec(text.trim());
+  const n = m ? Number(m[1]) * 1024 ** ' KMG'.indexOf((m[2] || ' ').toUpperCase()) : NaN;
+  if (!Number.isSafeInteger(n) || n <= 0) throw new PleatError('usage', `--${flag} '${text}': give a number of bytes above 0, e.g. 536870912 or 512M`);
+  return n;
 }
 
 /** Flags over config: input values loaded, shapes and dims merged per name, scalars taken from flags first. */
@@ -103,6 +113,7 @@ export function runSettings(config: PleatConfig, flags: RunFlags): RunSettings {
     seed: flags.seed ?? config.seed,
     probes: flags.probes ?? config.probes,
     gate: flags.gate ?? config.gate,
+    maxProbeMemory: flags.maxProbeMemory === undefined ? undefined : parseBytes('max-probe-memory', String(flags.maxProbeMemory)),
   };
 }
 

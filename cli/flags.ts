@@ -13,7 +13,8 @@ export function inputFlags<T>(y: Argv<T>) {
     .option('input', { type: 'string', coerce: many, describe: 'NAME=FILE.npy (or .pb TensorProto): a value for an input; repeatable' })
     .option('shape', { type: 'string', coerce: many, describe: 'NAME=1x3x224x224: the shape of an input; repeatable' })
     .option('dim', { type: 'string', coerce: many, describe: 'SYMBOL=N: the size of a dynamic dim; repeatable' })
-    .option('seed', { type: 'number', describe: 'seed of the generated probe values (default 0)' });
+    .option('seed', { type: 'number', describe: 'seed of the generated probe values (default 0)' })
+    .option('max-probe-memory', { type: 'string', describe: 'BYTES (or with K, M, G): most memory the values of a probe run may hold at once (default: 1/16 of the machine memory, 256 MiB to 1 GiB)' });
 }
 
 export function reportFlags<T>(y: Argv<T>) {

@@ -35,4 +35,7 @@ async function main(): Promise<void> {
   await cli.parseAsync();
 }
 
+// Ctrl-C or a TERM ends through process.exit, so the output transaction's exit hook removes its temporaries.
+for (const [sig, code] of [['SIGINT', 130], ['SIGTERM', 143]] as const) process.once(sig, () => process.exit(code));
+
 main().catch(failAndExit);

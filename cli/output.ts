@@ -2,7 +2,8 @@
 // --report files (each written atomically), and colour only for a person at a terminal.
 import { PleatError } from '../src/errors.js';
 import { FORMATS, useColour, type Format } from '../src/report/format.js';
-import { parseReportSpecs, writeReportFile } from '../src/report/files.js';
+import { parseReportSpecs } from '../src/report/files.js';
+import type { StagedFile } from '../src/jobs/outputs.js';
 import { out } from './errors.js';
 
 export interface ReportFlags {
@@ -41,9 +42,49 @@ export function runFigures(startedAt: bigint): { seconds: number; peakMemoryByte
   return { seconds: Math.round(seconds * 1000) / 1000, peakMemoryBytes: process.resourceUsage().maxRSS * 1024 };
 }
 
-/** Print stdout's report (coloured only on a TTY without NO_COLOR) and write every --report file (never coloured). */
-export async function emit(plan: ReportPlan, render: (format: Format, colour: boolean) => string): Promise<void> {
-  for (const spec of plan.files) writeReportFile(spec.file, render(spec.format, false));
+/** What a command's outputs must respect: files read (never written) and output files already decided. */
+export interface OutputGuard {
+  inputs?: readonly string[];
+  /** Outputs of the run as [path, flag]: a report may not take their place. */
+  outputs?: ReadonlyArray<readonly [string, string]>;
+}
+
+/**
+ * Check every destination before any work runs (folders exist and are writable, no report replaces an input or
+ * an output, no two outputs share a file), so a usage mistake never costs a long job or writes anything.
+ */
+export async function checkDestinations(plan: ReportPlan, guard: OutputGuard): Promise<void> {
+  const { OutputSet } = await import('../src/jobs/outputs.js');
+  const tx = new OutputSet();
+  try {
+    for (const i of guard.inputs ?? []) tx.protect(i, 'input model');
+    for (const [o, flag] of guard.outputs ?? []) tx.reserve(o, flag);
+    for (const spec of plan.files) tx.reserve(spec.file, '--report');
+  } finally {
+    tx.abort();
+  }
+}
+
+/**
+ * Print stdout's report (coloured only on a TTY without NO_COLOR) and write every --report file (never coloured)
+ * together with the files `staged` by the jobs, in one transaction: all are renamed in, or none.
+ */
+export async function emit(plan: ReportPlan, render: (format: Format, colour: boolean) => string,
+  guard: OutputGuard = {}, staged: ReadonlyArray<readonly StagedFile[]> = []): Promise<void> {
+  const { OutputSet } = await import('../src/jobs/outputs.js'); // loaded when used: --help needs none of it
+  const tx = new OutputSet();
+  try {
+    for (const i of guard.inputs ?? []) tx.protect(i, 'input model');
+    for (const files of staged) if (files.length) tx.adopt(files, 'output');
+    for (const spec of plan.files) {
+      tx.reserve(spec.file, '--report');
+      tx.stage(spec.file, render(spec.format, false));
+    }
+    tx.commit();
+  } catch (e) {
+    tx.abort();
+    throw e;
+  }
   await out(render(plan.format, plan.format === 'text' && useColour(process.stdout)));
 }
 
@@ -68,6 +109,7 @@ export async function runAndReport(command: 'fold' | 'audit', jobs: import('./ba
     progress.end(); // erase the bar before any output, error lines included
   }
   reportErrors(outcomes.filter(isJobError).map((o) => o.error.message));
-  await emit(plan, (format, colour) => renderJobs(command, outcomes, format, colour));
+  const inputs = [...jobs.map((j) => j.model), ...outcomes.flatMap((o) => o.inputs ?? [])];
+  await emit(plan, (format, colour) => renderJobs(command, outcomes, format, colour), { inputs }, outcomes.map((o) => o.staged ?? []));
   process.exitCode = Math.max(0, ...outcomes.map((o) => o.exitCode));
 }

@@ -1,7 +1,7 @@
 import type { Argv } from 'yargs';
 import { keepList, loadConfig } from '../config.js';
 import type { Job } from '../batch.js';
-import { planReports, runAndReport } from '../output.js';
+import { checkDestinations, planReports, runAndReport } from '../output.js';
 import { configFlags, EPILOGUE, many, reportFlags } from '../flags.js';
 
 export const command = 'audit <models..>';
@@ -24,5 +24,6 @@ export async function handler(argv: Flags): Promise<void> {
   const { config } = loadConfig(argv.config);
   const opts = { keep: keepList(config, argv.keep), failOn: argv.failOn ?? config.failOn, allowOverridable: argv.allowOverridable, pageDetail: plan.pageDetail };
   const jobs: Job[] = argv.models.map((model) => ({ command: 'audit', model, opts, runFigures: plan.runFigures }));
+  await checkDestinations(plan, { inputs: argv.models });
   await runAndReport('audit', jobs, plan, argv.quiet);
 }

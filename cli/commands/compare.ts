@@ -1,6 +1,6 @@
 import type { Argv } from 'yargs';
 import { loadConfig, runSettings } from '../config.js';
-import { emit, planReports, runFigures } from '../output.js';
+import { checkDestinations, emit, planReports, runFigures } from '../output.js';
 import { configFlags, EPILOGUE, inputFlags, int8Flags, int8Setting, reportFlags } from '../flags.js';
 
 export const command = 'compare <a> <b>';
@@ -25,6 +25,7 @@ export async function handler(argv: Flags): Promise<void> {
   const { compare } = await import('../../src/index.js');
   const { renderCompare } = await import('../../src/report/render.js');
   const { EXIT } = await import('../../src/report/exit-codes.js');
+  await checkDestinations(plan, { inputs: [argv.a, argv.b] });
   const { fileSha256 } = await import('../../src/jobs/sha256.js');
   const started = process.hrtime.bigint();
   const report = compare(argv.a, argv.b, { ...run, simulateInt8: int8Setting(argv) });
@@ -32,6 +33,6 @@ export async function handler(argv: Flags): Promise<void> {
     ...(plan.pageDetail ? { sha256: { a: fileSha256(argv.a), b: fileSha256(argv.b) } } : {}),
     ...(plan.runFigures ? { run: runFigures(started) } : {}),
   };
-  await emit(plan, (format, colour) => renderCompare(report, argv.a, argv.b, format, colour, extras));
+  await emit(plan, (format, colour) => renderCompare(report, argv.a, argv.b, format, colour, extras), { inputs: [argv.a, argv.b] });
   process.exitCode = report.passed ? EXIT.ok : EXIT.failed;
 }

@@ -25,7 +25,7 @@ export async function handler(argv: Flags): Promise<void> {
   // loaded here, not at start-up (see compare.ts)
   const { evaluate, saveOutputs } = await import('../../src/index.js');
   const { toJsonText } = await import('../../src/verify/compare.js');
-  const r = evaluate(argv.model, { inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, precision: argv.precision });
+  const r = evaluate(argv.model, { inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, precision: argv.precision, maxProbeMemory: run.maxProbeMemory });
   const saved = saveOutputs(argv.save, r.outputs);
   const outputs = saved.files.map((f) => ({ ...f, dtype: r.outputs.get(f.name)!.type, dims: [...r.outputs.get(f.name)!.dims] }));
   if (argv.json) {

@@ -34,7 +34,7 @@ export async function handler(argv: Flags): Promise<void> {
   const { exportText } = await import('../../src/report/export-text.js');
   const { EXIT } = await import('../../src/report/exit-codes.js');
   const r = exportFile(argv.model, argv.bundle, argv.bundleFormat, {
-    inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, probes: run.probes, gate: run.gate, keep: keepList(config, argv.keep),
+    inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, probes: run.probes, gate: run.gate, maxProbeMemory: run.maxProbeMemory, keep: keepList(config, argv.keep),
   });
   await out(argv.json
     ? toJsonText({ schemaVersion: SCHEMA_VERSION, command: 'export', model: argv.model, ...r })

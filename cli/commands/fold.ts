@@ -1,11 +1,11 @@
 import type { Argv } from 'yargs';
 import { mkdirSync } from 'node:fs';
-import { basename, join } from 'node:path';
+import { basename, dirname, join } from 'node:path';
 import { PleatError } from '../../src/errors.js';
 import type { FoldJobOptions } from '../../src/jobs/types.js';
 import { keepList, loadConfig, runSettings } from '../config.js';
 import type { Job } from '../batch.js';
-import { planReports, runAndReport } from '../output.js';
+import { checkDestinations, planReports, runAndReport } from '../output.js';
 import { configFlags, EPILOGUE, inputFlags, int8Flags, int8Setting, many, reportFlags } from '../flags.js';
 
 export const command = 'fold <models..>';
@@ -65,11 +65,16 @@ export async function handler(argv: Flags): Promise<void> {
   const run = runSettings(config, argv);
   const outputs = outputsFor(argv.models, argv.out, argv.outDir);
   const opts: FoldJobOptions = {
-    inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, probes: run.probes, gate: run.gate,
+    inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, probes: run.probes, gate: run.gate, maxProbeMemory: run.maxProbeMemory,
     keep: keepList(config, argv.keep), store: argv.store ?? config.store, allowOverridable: argv.allowOverridable,
     externalThreshold: argv.externalDataMin, noProofs: argv.unproven, pageDetail: plan.pageDetail,
     equalize: argv.equalize, quantThresholdDb: quantThreshold(argv.quantThreshold), simulateInt8: int8Setting(argv),
   };
+  const sides = outputs.map((o) => join(dirname(o), `${basename(o)}.data`));
+  await checkDestinations(plan, {
+    inputs: argv.models,
+    outputs: [...outputs.map((o) => [o, argv.out !== undefined ? '-o' : '--out-dir'] as const), ...sides.map((s) => [s, 'side file'] as const)],
+  });
   const jobs: Job[] = argv.models.map((model, i) => ({ command: 'fold', model, output: outputs[i]!, opts, runFigures: plan.runFigures }));
   await runAndReport('fold', jobs, plan, argv.quiet);
 }

@@ -13,6 +13,7 @@
 // Kernels allocate through allocFloat (attrs.ts) or these functions; they must not keep a taken array after
 // returning it as a result.
 import type { NumArray } from './value.js';
+import { checkAllocation } from './budget.js';
 
 const POOL_MIN = 4096;
 const POOL_MAX_BYTES = 512 * 1024 * 1024;
@@ -23,7 +24,8 @@ const handedOut = new WeakSet<NumArray>();
 let pooledBytes = 0;
 
 /** A pooled array of length n from `free` (zeroed unless zero=false), or a new one made by `make`. */
-function take<T extends NumArray>(free: Map<number, T[]>, n: number, zero: boolean, make: (n: number) => T): T {
+function take<T extends NumArray>(free: Map<number, T[]>, n: number, zero: boolean, make: (n: number) => T, bytesPer: number): T {
+  checkAllocation(n, bytesPer); // before allocating: a size no machine holds, or beyond the probe memory limit
   if (n < POOL_MIN) return make(n);
   const a = free.get(n)?.pop();
   if (a) { pooledBytes -= a.byteLength; if (zero) a.fill(0); handedOut.add(a); return a; }
@@ -33,11 +35,11 @@ function take<T extends NumArray>(free: Map<number, T[]>, n: number, zero: boole
 }
 
 export function takeFloat32(n: number, zero = true): Float32Array {
-  return take(free32, n, zero, (k) => new Float32Array(k));
+  return take(free32, n, zero, (k) => new Float32Array(k), 4);
 }
 
 export function takeFloat64(n: number, zero = true): Float64Array {
-  return take(free64, n, zero, (k) => new Float64Array(k));
+  return take(free64, n, zero, (k) => new Float64Array(k), 8);
 }
 
 export function isPooled(a: NumArray): boolean {

@@ -5,6 +5,7 @@ import { opsetVersion, subgraphsOf, elementCount, type Graph, type Model, type N
 import { isFloatType, tensorToFloat64, dataTypeName } from '../graph/tensor.js';
 import { getKernel } from './registry.js';
 import { giveBack, isConstant, isPooled, markConstant } from './pool.js';
+import { charge, evaluating, liveBytes, release, resetLive } from './budget.js';
 import type { KernelContext, NumArray, Precision, Value } from './value.js';
 
 export interface RunOptions { precision: Precision; }
@@ -76,6 +77,15 @@ function readsOf(n: Node): string[] {
 
 /** Evaluate a graph with outer-scope values (for subgraphs and for proving a fragment). */
 export function runGraph(graph: Graph, inputs: Map<string, Value>, opts: GraphRunOptions): Map<string, Value> {
+  const liveAtStart = liveBytes();
+  try {
+    return runNodes(graph, inputs, opts);
+  } finally {
+    resetLive(liveAtStart); // what is returned belongs to the caller; a failed run holds nothing
+  }
+}
+
+function runNodes(graph: Graph, inputs: Map<string, Value>, opts: GraphRunOptions): Map<string, Value> {
   const { precision, opsetOf } = opts;
   const outer = opts.outer;
   const env = new Map<string, Value>();
@@ -90,7 +100,13 @@ export function runGraph(graph: Graph, inputs: Map<string, Value>, opts: GraphRu
   for (const v of inputs.values()) foreign.add(v.data);
   if (outer) for (const v of outer.values()) foreign.add(v.data);
   const holders = new Map<NumArray, number>();
-  const hold = (v: Value) => { if (isPooled(v.data)) holders.set(v.data, (holders.get(v.data) ?? 0) + 1); };
+  // values alive count against the probe memory limit (budget.ts) while some name holds them
+  const hold = (v: Value) => {
+    if (!isPooled(v.data)) return;
+    const n = holders.get(v.data) ?? 0;
+    if (n === 0) charge(v.data.byteLength);
+    holders.set(v.data, n + 1);
+  };
   const drop = (name: string) => {
     const v = env.get(name);
     if (!v) return;
@@ -99,6 +115,7 @@ export function runGraph(graph: Graph, inputs: Map<string, Value>, opts: GraphRu
     if (n === undefined) return;
     if (n > 1) { holders.set(v.data, n - 1); return; }
     holders.delete(v.data);
+    release(v.data.byteLength);
     if (!foreign.has(v.data)) giveBack(v.data);
   };
 
@@ -109,6 +126,7 @@ export function runGraph(graph: Graph, inputs: Map<string, Value>, opts: GraphRu
   reads.forEach((names, i) => { for (const x of names) lastUse.set(x, i); });
 
   graph.nodes.forEach((node, idx) => {
+    evaluating(`node '${node.name || '(unnamed)'}' (${node.opType})`);
     const args: Array<Value | undefined> = node.inputs.map((name) => {
       if (name === '') return undefined;
       const v = lookup(name);
@@ -141,7 +159,14 @@ export function runGraph(graph: Graph, inputs: Map<string, Value>, opts: GraphRu
         return holders.get(data) === 1 && !foreign.has(data);
       },
     };
-    const results = kernel.run(args, ctx);
+    let results: Value[];
+    try {
+      results = kernel.run(args, ctx);
+    } catch (e) {
+      // a typed array the engine cannot allocate is a size the budget check did not see: still the model's doing
+      if (e instanceof RangeError) throw new PleatError('bad-model', `node '${node.name || '(unnamed)'}' (${node.opType}): ${e.message}`);
+      throw e;
+    }
     node.outputs.forEach((name, i) => {
       if (name === '') return;
       const v = results[i];

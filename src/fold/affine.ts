@@ -4,6 +4,7 @@
 // BatchNormalization at inference (ONNX Operators, BatchNormalization: Y = (X - mean) / sqrt(var + epsilon)
 // * scale + B; Ioffe & Szegedy 2015, arXiv:1502.03167) is that map with
 //   scale' = gamma / sqrt(var + epsilon),   shift' = beta - mean * scale'.
+import { PleatError } from '../errors.js';
 
 export interface Affine {
   scale: Float64Array;
@@ -56,7 +57,7 @@ export function elementwiseAffine(op: ElementwiseOp, constOnLeft: boolean, c: Ar
 /** Repeat a one-channel map over `channels` channels (a scalar constant applies to every channel). */
 export function broadcastAffine(a: Affine, channels: number): Affine {
   if (a.scale.length === channels) return a;
-  if (a.scale.length !== 1) throw new Error(`affine of ${a.scale.length} channels cannot cover ${channels}`);
+  if (a.scale.length !== 1) throw new PleatError('bad-model', `a per-channel constant of ${a.scale.length} values cannot cover ${channels} channels`);
   return { scale: new Float64Array(channels).fill(a.scale[0]!), shift: new Float64Array(channels).fill(a.shift[0]!) };
 }
 

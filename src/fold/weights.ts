@@ -4,6 +4,7 @@
 //
 // Into the producer (norm after the layer): W' = s ⊙ W along output channels, b' = s*b + t.
 // Into the consumer (norm before the layer): W' = W ⊙ s along input channels, b' = b + Σ W·t.
+import { PleatError } from '../errors.js';
 import type { Affine } from './affine.js';
 
 /** A weight viewed as [d0, d1, inner]: the first two axes and the product of the rest. */
@@ -154,11 +155,11 @@ export function broadcastDims(x: readonly number[], y: readonly number[]): numbe
  * A Gemm bias after a fold: C'[.., n] = factor * colScale[n] * C[..] + add[n], shaped as C broadcast against
  * [N] so it still broadcasts to the output [M, N]. With no C, C' = add with dims [N].
  */
-export function gemmBias(c: { values: Float64Array; dims: number[] } | undefined, factor: number, colScale: Float64Array | undefined, add: Float64Array): { values: Float64Array; dims: number[] } {
+export function gemmBias(c: { values: Float64Array; dims: number[]; name?: string } | undefined, factor: number, colScale: Float64Array | undefined, add: Float64Array): { values: Float64Array; dims: number[] } {
   const n = add.length;
   if (!c) return { values: Float64Array.from(add), dims: [n] };
   const dims = broadcastDims(c.dims, [n]);
-  if (!dims) throw new Error(`Gemm bias of dims [${c.dims.join(',')}] does not broadcast to ${n} columns`);
+  if (!dims) throw new PleatError('bad-model', `Gemm bias '${c.name ?? ''}' of dims [${c.dims.join(',')}] does not broadcast to the layer's ${n} output columns`);
   const rank = dims.length;
   const size = dims.reduce((p, d) => p * d, 1);
   // Strides of C inside the broadcast shape (0 on broadcast axes).

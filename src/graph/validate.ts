@@ -32,10 +32,10 @@ function validateGraph(g: Graph, outerHas: (v: string) => boolean, path: string)
   const index = new Int32Array(bound);
   const describe = (k: number, i: number): string => k === 1 ? `graph input '${g.inputs[i]!.name}'`
     : k === 2 ? `initializer '${g.initializers[i]!.name}'` : `node '${g.nodes[i]!.name || g.nodes[i]!.opType}'`;
-  const own = (v: string, k: number, i: number, quietIfTaken = false) => {
+  const own = (v: string, k: number, i: number, quietIfInput = false) => {
     const id = names.add(v);
     if (kind[id] !== 0) {
-      if (quietIfTaken) return;
+      if (quietIfInput && kind[id] === 1) return; // an initializer giving a graph input its default
       throw new PleatError('bad-model', `${path}: value '${v}' is written by both ${describe(kind[id]!, index[id]!)} and ${describe(k, i)}`);
     }
     kind[id] = k;
@@ -44,7 +44,7 @@ function validateGraph(g: Graph, outerHas: (v: string) => boolean, path: string)
   g.inputs.forEach((v, i) => own(v.name, 1, i));
   g.initializers.forEach((t, i) => {
     checkTensor(t, path);
-    own(t.name, 2, i, true); // an initializer may give a graph input its default
+    own(t.name, 2, i, true); // two initializers of one name are refused: runtimes bind different ones
   });
   g.nodes.forEach((n, j) => {
     for (const o of n.outputs) if (o) own(o, 3, j);

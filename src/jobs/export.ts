@@ -1,7 +1,10 @@
 // The export job: fold (with every proof and the whole-model check), then write the folded weights as a
 // bundle for device runtimes. Nothing is written when a gate fails.
 import { readModelFile } from '../onnx/read.js';
-import { exportBundle, type BundleFormat, type BundleResult } from '../ship/bundle.js';
+import { join } from 'node:path';
+import { planBundle, writeAll, type BundleFormat, type BundleResult } from '../ship/bundle.js';
+import { sideFilePaths } from '../onnx/external.js';
+import { OutputSet } from './outputs.js';
 import { foldLoaded } from './fold.js';
 import type { FoldJobOptions, FoldReport } from './types.js';
 
@@ -16,5 +19,17 @@ export function exportFile(input: string, dir: string, format: BundleFormat = 's
   const original = opts.noProofs ? undefined : readModelFile(input);
   const fold = foldLoaded(model, original, input, opts);
   if (fold.failed) return { fold, bundle: null };
-  return { fold, bundle: exportBundle(model, dir, format) };
+  // Every bundle file goes through one transaction: staged, then all renamed in (see outputs.ts).
+  const planned = planBundle(model, dir, format);
+  const tx = new OutputSet();
+  try {
+    [model.sourcePath!, ...sideFilePaths(model)].forEach((p, i) => tx.protect(p, i === 0 ? 'input model' : "input model's side file"));
+    const targets = planned.files.map(([name]) => tx.reserve(join(planned.result.dir, name), '--bundle'));
+    planned.files.forEach(([, content], i) => tx.stage(targets[i]!, (tmp) => writeAll(tmp, content)));
+    tx.commit();
+  } catch (e) {
+    tx.abort();
+    throw e;
+  }
+  return { fold, bundle: planned.result };
 }

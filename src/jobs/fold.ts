@@ -2,14 +2,19 @@
 // whole-model check -> write -> report. A failing whole-model gate writes nothing.
 import type { Model } from '../graph/ir.js';
 import { readModelFile } from '../onnx/read.js';
-import { writeModelFile } from '../onnx/write.js';
+import { sideFileName, stageModelFile, type StagedFile, type StagedModel } from '../onnx/write.js';
+import { sideFilePaths } from '../onnx/external.js';
+import { basename, dirname, join } from 'node:path';
+import { OutputSet } from './outputs.js';
+import { withProbeMemory } from '../eval/budget.js';
 import { storeFloat16 } from '../ship/store-float16.js';
 import { foldModel } from '../fold/index.js';
 import { LateRangeCheckFailed } from '../fold/values.js';
 import { proveFold } from '../verify/prove.js';
 import { compare } from '../verify/compare.js';
 import { DEFAULT_GATES } from '../verify/gate.js';
-import { asMap, dimSymbols } from '../verify/inputs.js';
+import { asMap, dimSymbols, resolveInputs } from '../verify/inputs.js';
+import { checkProbeEstimate } from '../verify/probe-budget.js';
 import { PleatError } from '../errors.js';
 import { QUANT_THRESHOLD_DB, quantReadiness, roundedWeightsModel } from '../fold/quant.js';
 import { equalizeModel } from '../fold/equalize.js';
@@ -26,7 +31,8 @@ export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOpt
   const { dims, shapes } = inputsOf(original, opts);
   try {
     const r = compare(original, folded, {
-      inputs: opts.inputs, shapes, dims, seed, probes, gate, budget: false, extraMetrics: opts.sqnr !== undefined ? { sqnr: opts.sqnr } : undefined,
+      inputs: opts.inputs, shapes, dims, seed, probes, gate, budget: false, maxProbeMemory: opts.maxProbeMemory,
+      extraMetrics: opts.sqnr !== undefined ? { sqnr: opts.sqnr } : undefined,
     });
     return {
       passed: r.passed,
@@ -95,7 +101,26 @@ export function int8Simulation(original: Model, folded: Model, granularity: Int8
  * Fold a model in memory (no files): returns the report; `model` is changed in place. `lateRangeCheck` is for
  * callers that can read the model again (see FoldOptions.lateRangeCheck).
  */
-export function foldLoaded(model: Model, original: Model | undefined, label: string, opts: FoldJobOptions, lateRangeCheck = false): FoldReport {
+export function foldLoaded(model: Model, original: Model | undefined, label: string, opts: FoldJobOptions, lateRangeCheck = false, ship?: (m: Model) => Model): FoldReport {
+  // the proofs and the check run within the probe memory limit (src/eval/budget.ts)
+  return withProbeMemory(opts.maxProbeMemory, () => foldWithin(model, original, label, opts, lateRangeCheck, ship));
+}
+
+/** Refuse, before any fold, a whole-model check whose probe would go beyond the probe memory limit. */
+function checkProbeFits(original: Model, opts: FoldJobOptions): void {
+  const { dims, shapes } = inputsOf(original, opts);
+  let specs;
+  try {
+    specs = resolveInputs(original.graph, asMap(opts.inputs), shapes, dims);
+  } catch (e) {
+    if (e instanceof PleatError) return; // the check itself reports it (or is skipped for it)
+    throw e;
+  }
+  checkProbeEstimate(original.graph, specs);
+}
+
+function foldWithin(model: Model, original: Model | undefined, label: string, opts: FoldJobOptions, lateRangeCheck: boolean, ship?: (m: Model) => Model): FoldReport {
+  if (original && !opts.noProofs) checkProbeFits(original, opts);
   const { ledger } = foldModel(model, {
     keep: opts.keep,
     allowOverridable: opts.allowOverridable,
@@ -115,7 +140,9 @@ export function foldLoaded(model: Model, original: Model | undefined, label: str
   const quantization = original ? quantReadiness(original, model, ledger.normalizations, quantThresholdDb) : [];
   // the gate may name `sqnr`: the lowest worst-channel per-tensor 8-bit SQNR of the folded layers (dB)
   const sqnr = Math.min(Infinity, ...quantization.map((q) => q.sqnrAfter.worstChannel));
-  const check = original && !opts.noProofs ? wholeModelCheck(original, model, { ...opts, halfGate: storage !== null, sqnr }) : null;
+  // `ship` writes the model and gives it back as read from disk: the check then judges what ships.
+  const shipped = ship ? ship(model) : model;
+  const check = original && !opts.noProofs ? wholeModelCheck(original, shipped, { ...opts, halfGate: storage !== null, sqnr }) : null;
   const failed = check !== null && !check.passed;
   return {
     schemaVersion: SCHEMA_VERSION,
@@ -134,30 +161,84 @@ export function foldLoaded(model: Model, original: Model | undefined, label: str
   };
 }
 
+/** A fold whose outputs are staged (temporary names, checked) but not yet renamed in. */
+export interface StagedFold {
+  report: FoldReport;
+  /** The staged model and side file, to commit with the run's other outputs (empty when the gate failed). */
+  staged: StagedFile[];
+  /** Real paths of the input model and its side files: no output of the run may overwrite them. */
+  inputs: string[];
+}
+
 /** Read INPUT, fold, prove, and write OUTPUT unless a gate fails. The input file is never modified. */
 export function foldFile(input: string, output: string, opts: FoldJobOptions = {}): FoldReport {
+  const tx = new OutputSet();
   try {
-    return foldFileOnce(input, output, opts, true);
+    const r = foldStagedIn(tx, input, output, opts);
+    tx.commit();
+    return r.report;
   } catch (e) {
-    // A weight whose range check rode on its scaling does not fit after all: start again, checking up front,
-    // so that fold is refused with storage-overflow like any other (nothing was written: writes are atomic).
-    if (!(e instanceof LateRangeCheckFailed)) throw e;
-    return foldFileOnce(input, output, opts, false);
+    tx.abort();
+    throw e;
   }
 }
 
-function foldFileOnce(input: string, output: string, opts: FoldJobOptions, lateRangeCheck: boolean): FoldReport {
+/**
+ * Fold INPUT and stage OUTPUT (model and side file at temporary names, read back and checked), without renaming
+ * anything in: the caller commits them together with its reports (see outputs.ts). Used by the CLI's workers.
+ */
+export function foldStaged(input: string, output: string, opts: FoldJobOptions = {}): StagedFold {
+  const tx = new OutputSet();
+  try {
+    const r = foldStagedIn(tx, input, output, opts);
+    return { ...r, staged: tx.handOver() };
+  } catch (e) {
+    tx.abort();
+    throw e;
+  }
+}
+
+function foldStagedIn(tx: OutputSet, input: string, output: string, opts: FoldJobOptions): Omit<StagedFold, 'staged'> {
+  try {
+    return foldStagedOnce(tx, input, output, opts, true);
+  } catch (e) {
+    // A weight whose range check rode on its scaling does not fit after all: start again, checking up front,
+    // so that fold is refused with storage-overflow like any other (nothing staged is kept).
+    if (!(e instanceof LateRangeCheckFailed)) throw e;
+    tx.discard(tx.handOverPending());
+    return foldStagedOnce(tx, input, output, opts, false);
+  }
+}
+
+function foldStagedOnce(tx: OutputSet, input: string, output: string, opts: FoldJobOptions, lateRangeCheck: boolean): Omit<StagedFold, 'staged'> {
   const model = readModelFile(input);
+  const inputs = [model.sourcePath!, ...sideFilePaths(model)];
+  inputs.forEach((p, i) => tx.protect(p, i === 0 ? 'input model' : `input model's side file`));
+  // Decide every destination before any work: the model, and its side file if one may be written.
+  const dest = tx.reserve(output, 'output');
+  const side = join(dirname(dest), sideFileName(basename(dest)));
+  const mayHaveSide = opts.externalThreshold !== undefined || inputs.length > 1;
+  if (mayHaveSide) tx.reserve(side, 'side file', dest);
   // A second, untouched copy is the reference for the whole-model check and the quantization report.
   const original = opts.noProofs ? undefined : readModelFile(input);
-  const report = foldLoaded(model, original, input, opts, lateRangeCheck);
+  let staged: StagedModel | undefined;
+  const ship = (m: Model): Model => {
+    staged = stageModelFile(m, dest, { externalThreshold: opts.externalThreshold }, (d) => tx.tempFor(d));
+    tx.add(staged.files);
+    if (opts.noProofs) return m;
+    const back = readModelFile(staged.files[0]!.tmp, staged.redirect);
+    back.sourcePath = dest;
+    return back;
+  };
+  const report = foldLoaded(model, original, input, opts, lateRangeCheck, ship);
   if (opts.pageDetail) {
     report.sha256 = fileSha256(input);
     report.sketches = sketches(original ?? readModelFile(input), report.normalizations, model);
   }
-  if (!report.failed) {
-    writeModelFile(model, output, { externalThreshold: opts.externalThreshold });
+  if (report.failed) {
+    tx.discard(staged?.files ?? []);
+  } else {
     report.output = output;
   }
-  return report;
+  return { report, inputs };
 }

@@ -1,16 +1,17 @@
 // External data: tensor bytes kept in side files next to the model (keys location, offset, length).
 // Locations are relative to the model's folder; absolute ones and ones that climb out of it are refused.
-import { closeSync, fstatSync, openSync, readSync } from 'node:fs';
+import { closeSync, constants, fstatSync, openSync, readSync, realpathSync } from 'node:fs';
 import { isAbsolute, relative, resolve, sep } from 'node:path';
 import type { Graph, Model, Tensor } from '../graph/ir.js';
-import { subgraphsOf } from '../graph/ir.js';
+import { elementCount, subgraphsOf } from '../graph/ir.js';
+import { bytesPerElement, dataTypeName } from '../graph/tensor.js';
 import { PleatError } from '../errors.js';
 import { tensorSig } from './signature.js';
 
 export interface ExternalRef { location: string; offset: number; length?: number }
 
 export function externalRef(t: Tensor, label: string): ExternalRef {
-  if (t.storage.kind !== 'external') throw new Error('not an external tensor');
+  if (t.storage.kind !== 'external') throw new PleatError('bad-model', `${label}: tensor '${t.name}' is not stored externally`);
   let location = '', offset = 0, length: number | undefined;
   for (const [k, v] of t.storage.entries) {
     if (k === 'location') location = v;
@@ -47,28 +48,61 @@ function eachTensor(g: Graph, visit: (t: Tensor) => void): void {
   }
 }
 
-/** Read every external tensor's bytes into memory (one open file per location). */
-export function loadExternalData(model: Model, label: string): void {
-  const files = new Map<string, { fd: number; size: number }>();
+/**
+ * Read every external tensor's bytes into memory (one open file per location). Each location must resolve, after
+ * following symlinks, to a regular file inside the model's folder; each tensor reads exactly the bytes its dims
+ * need, and no byte of a side file is read twice (many tensors naming one large range would multiply memory).
+ * `redirect` maps a location's path to the file to read instead (a staged side file not yet renamed in).
+ */
+export function loadExternalData(model: Model, label: string, redirect?: ReadonlyMap<string, string>): void {
+  const files = new Map<string, { fd: number; size: number; read: number; location: string }>();
+  let folder: string | undefined;
   try {
     eachTensor(model.graph, (t) => {
       if (t.storage.kind !== 'external') return;
       const ref = externalRef(t, label);
-      const path = resolveLocation(model.baseDir, ref.location, label, t.name);
+      const named = resolveLocation(model.baseDir, ref.location, label, t.name);
+      const path = redirect?.get(named) ?? named;
       let file = files.get(path);
       if (!file) {
-        let fd: number;
+        let real: string;
         try {
-          fd = openSync(path, 'r');
+          real = realpathSync(path);
         } catch {
           throw new PleatError('bad-model', `${label}: tensor '${t.name}' has external data in '${ref.location}', which cannot be opened`);
         }
-        file = { fd, size: fstatSync(fd).size };
+        folder ??= realpathSync(model.baseDir);
+        const rel = relative(folder, real);
+        if (rel === '' || rel === '..' || rel.startsWith('..' + sep) || isAbsolute(rel)) {
+          throw new PleatError('bad-model', `${label}: tensor '${t.name}' has external data location '${ref.location}', a link to ${real}, outside the model's folder`);
+        }
+        let fd: number;
+        try {
+          fd = openSync(path, constants.O_RDONLY | constants.O_NONBLOCK); // a FIFO must be refused, not waited on
+        } catch {
+          throw new PleatError('bad-model', `${label}: tensor '${t.name}' has external data in '${ref.location}', which cannot be opened`);
+        }
+        const st = fstatSync(fd);
+        if (!st.isFile()) {
+          closeSync(fd);
+          const what = st.isDirectory() ? 'a folder' : st.isFIFO() ? 'a FIFO' : 'not a regular file';
+          throw new PleatError('bad-model', `${label}: tensor '${t.name}' has external data location '${ref.location}', which is ${what}; external data must be a regular file`);
+        }
+        file = { fd, size: st.size, read: 0, location: ref.location };
         files.set(path, file);
       }
-      const length = ref.length ?? file.size - ref.offset;
+      const bpe = bytesPerElement(t.dataType);
+      const need = bpe === undefined ? undefined : elementCount(t.dims) * bpe;
+      if (need !== undefined && ref.length !== undefined && ref.length !== need) {
+        throw new PleatError('bad-model', `${label}: tensor '${t.name}' declares external data length ${ref.length} but its dims [${t.dims.join(',')}] of ${dataTypeName(t.dataType)} need ${need} bytes`);
+      }
+      const length = need ?? ref.length ?? file.size - ref.offset;
       if (ref.offset > file.size || ref.offset + length > file.size || length < 0) {
         throw new PleatError('bad-model', `${label}: tensor '${t.name}' external data (offset ${ref.offset}, length ${length}) runs past the end of '${ref.location}' (${file.size} bytes)`);
+      }
+      file.read += length;
+      if (file.read > file.size) {
+        throw new PleatError('bad-model', `${label}: tensors read ${file.read} bytes from '${ref.location}', which holds ${file.size}: several tensors (the latest '${t.name}') name the same bytes; give each tensor its own range`);
       }
       const bytes = new Uint8Array(length);
       let got = 0;
@@ -84,6 +118,18 @@ export function loadExternalData(model: Model, label: string): void {
   } finally {
     for (const f of files.values()) closeSync(f.fd);
   }
+}
+
+/** The real paths of every side file a model names (for guarding them against being overwritten). */
+export function sideFilePaths(model: Model): string[] {
+  const out = new Set<string>();
+  eachTensor(model.graph, (t) => {
+    if (t.storage.kind !== 'external') return;
+    const ref = externalRef(t, 'model');
+    const p = resolve(model.baseDir, ref.location);
+    try { out.add(realpathSync(p)); } catch { out.add(p); }
+  });
+  return [...out];
 }
 
 export function externalBytes(model: Model): number {

@@ -43,18 +43,19 @@ export function decodeTensor(buf: Buf, start: number, end: number): Tensor {
   let external: Array<[string, string]> | undefined;
   let location = 0;
   let kind: TensorStorage['kind'] | undefined;
+  const typed = new Set<string>(); // typed data fields present (a second one, or one beside raw_data, is invalid)
   while (f.next()) {
     switch (f.no) {
       case 1: readPackedVarints(buf, f, dims); break;
       case 2: dataType = readInt(buf, f); break;
-      case 4: readPackedFixed32(buf, f, floats ??= [], true); kind = 'float_data'; break;
-      case 5: readPackedVarints(buf, f, int32s ??= []); kind = 'int32_data'; break;
-      case 6: expectLen(f, 'string_data'); (strings ??= []).push(buf.subarray(f.vstart, f.vend)); kind = 'string_data'; break;
-      case 7: readPackedVarintsBig(buf, f, int64s ??= []); kind = 'int64_data'; break;
+      case 4: readPackedFixed32(buf, f, floats ??= [], true); kind = 'float_data'; typed.add(kind); break;
+      case 5: readPackedVarints(buf, f, int32s ??= []); kind = 'int32_data'; typed.add(kind); break;
+      case 6: expectLen(f, 'string_data'); (strings ??= []).push(buf.subarray(f.vstart, f.vend)); kind = 'string_data'; typed.add(kind); break;
+      case 7: readPackedVarintsBig(buf, f, int64s ??= []); kind = 'int64_data'; typed.add(kind); break;
       case 8: name = readString(buf, f); break;
       case 9: expectLen(f, 'raw_data'); storage = { kind: 'raw', bytes: buf.subarray(f.vstart, f.vend) }; kind = 'raw'; break;
-      case 10: readPackedFixed64(buf, f, doubles ??= []); kind = 'double_data'; break;
-      case 11: readPackedVarintsBig(buf, f, uint64s ??= []); kind = 'uint64_data'; break;
+      case 10: readPackedFixed64(buf, f, doubles ??= []); kind = 'double_data'; typed.add(kind); break;
+      case 11: readPackedVarintsBig(buf, f, uint64s ??= []); kind = 'uint64_data'; typed.add(kind); break;
       case 12: docString = readString(buf, f); break;
       case 13: {
         expectLen(f, 'external_data');
@@ -69,6 +70,12 @@ export function decodeTensor(buf: Buf, start: number, end: number): Tensor {
       case 14: location = readInt(buf, f); break;
       default: extra.push(raw(buf, f));
     }
+  }
+  // ONNX IR: a tensor's data lives in raw_data or in one typed *_data field, not both; runtimes disagree on
+  // which one wins when several are present (onnx/onnx.proto3, TensorProto; the checker refuses it).
+  const held = [...typed, ...(storage.kind === 'raw' ? ['raw_data'] : [])];
+  if (held.length > 1) {
+    throw new PleatError('bad-model', `tensor '${name}' holds its data in both ${held.slice(0, -1).join(', ')} and ${held[held.length - 1]}; a tensor must use exactly one`);
   }
   if (location === 1) {
     storage = { kind: 'external', entries: external ?? [], bytes: new Uint8Array(0) };
@@ -306,7 +313,7 @@ export function parseTensor(bytes: Uint8Array): Tensor {
  * Parse model bytes, load external data relative to baseDir, and check the graph's structure. Tensors are views
  * into `bytes` (no copies), so an edit made in place writes into them: pass a copy to keep the original.
  */
-export function parseModel(bytes: Uint8Array, baseDir: string, label = 'model'): Model {
+export function parseModel(bytes: Uint8Array, baseDir: string, label = 'model', redirect?: ReadonlyMap<string, string>): Model {
   if (bytes.byteLength === 0) throw new PleatError('bad-model', `${label}: the file is empty`);
   let model: Model;
   try {
@@ -319,7 +326,7 @@ export function parseModel(bytes: Uint8Array, baseDir: string, label = 'model'):
   if (model.irVersion <= 0 || model.opsets.length === 0 && model.irVersion >= 3) {
     throw new PleatError('bad-model', `${label}: not an ONNX model (no IR version or opset import)`);
   }
-  loadExternalData(model, label);
+  loadExternalData(model, label, redirect);
   try {
     validateModel(model);
   } catch (e) {
@@ -329,8 +336,11 @@ export function parseModel(bytes: Uint8Array, baseDir: string, label = 'model'):
   return model;
 }
 
-/** Read a .onnx file. The file is read once and never written. */
-export function readModelFile(path: string): Model {
+/**
+ * Read a .onnx file. The file is read once and never written. `redirect` maps side-file paths (as the model names
+ * them, resolved) to the files to read instead: a staged output is read back before its side files are renamed in.
+ */
+export function readModelFile(path: string, redirect?: ReadonlyMap<string, string>): Model {
   let st;
   try {
     st = statSync(path);
@@ -338,6 +348,7 @@ export function readModelFile(path: string): Model {
     throw new PleatError('bad-input', `${path}: no such file`);
   }
   if (st.isDirectory()) throw new PleatError('bad-input', `${path}: is a directory, expected an .onnx file`);
+  if (!st.isFile()) throw new PleatError('bad-input', `${path}: not a regular file (a FIFO, socket or device), expected an .onnx file`);
   let bytes: Uint8Array;
   let fd: number | undefined;
   try {
@@ -349,7 +360,7 @@ export function readModelFile(path: string): Model {
   } finally {
     if (fd !== undefined) closeSync(fd);
   }
-  const model = parseModel(bytes, dirname(resolve(path)), path);
+  const model = parseModel(bytes, dirname(resolve(path)), path, redirect);
   model.sourcePath = resolve(path);
   return model;
 }

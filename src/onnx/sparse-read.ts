@@ -5,7 +5,7 @@
 //
 // Every reader of tensor bytes goes through ensureLoaded (tensorToFloat64 does) and every in-place overwrite
 // through markLoaded (encodeStorage does); the writer streams pending ranges straight from the source file.
-import { closeSync, fstatSync, openSync, readSync } from 'node:fs';
+import { closeSync, constants, fstatSync, openSync, readSync } from 'node:fs';
 import { PleatError } from '../errors.js';
 import { WireError, WT_LEN, fieldsOf } from './wire.js';
 import { setByteBacking } from '../graph/lazy-bytes.js';
@@ -257,7 +257,13 @@ export function readSparse(path: string, fd: number): Uint8Array {
 }
 
 export function openForRead(path: string): number {
-  return openSync(path, 'r');
+  // O_NONBLOCK: a FIFO or device at the path must be refused, not waited on
+  const fd = openSync(path, constants.O_RDONLY | constants.O_NONBLOCK);
+  if (!fstatSync(fd).isFile()) {
+    closeSync(fd);
+    throw new PleatError('bad-input', `${path}: not a regular file`);
+  }
+  return fd;
 }
 
 // Tensor decoding in the graph layer reaches the file through these two (src/graph/lazy-bytes.ts).

@@ -2,7 +2,7 @@
 // a changed one is re-encoded field by field in its original field order, with the fields pleat does not
 // model copied through untouched. Output files are written to temporary names and renamed into place.
 import { closeSync, copyFileSync, existsSync, openSync, readSync, renameSync, rmSync, writeSync } from 'node:fs';
-import { basename, dirname, join, resolve } from 'node:path';
+import { basename, dirname, join, posix, resolve } from 'node:path';
 import type { Attribute, Graph, Model, Node, OpsetImport, RawField, Tensor, ValueInfo, Dim } from '../graph/ir.js';
 import { PleatError } from '../errors.js';
 import {
@@ -11,7 +11,8 @@ import {
 import {
   attributeSig, graphSig, modelSig, nodeSig, opsetSig, tensorSig, typeSig, valueInfoSig,
 } from './signature.js';
-import { externalRef } from './external.js';
+import { externalRef, sideFilePaths } from './external.js';
+import { sameFile } from './paths.js';
 import { deferredIn, ensureLoaded, lazySourceOf, pendingIn, reopenSource } from './sparse-read.js';
 
 interface Piece { chunks: Uint8Array[]; length: number; same: boolean }
@@ -24,9 +25,17 @@ export interface WriteOptions {
 /** A side file to write: named pieces at offsets. */
 interface SideFile { location: string; pieces: Array<{ offset: number; bytes: Uint8Array }>; end: number }
 
+/**
+ * Where external data goes: one side file named after the output (`OUT.data`), never the input's side-file name.
+ * Two outputs in one folder then never share a side file, two spellings of one input location (ext.bin and
+ * ./ext.bin) become two separate ranges, and a side file can never be named like the output itself.
+ */
 class ExternalPlan {
   files = new Map<string, SideFile>();
-  constructor(private outName: string, private sourceDir: string | undefined, private outDir: string, private opts: WriteOptions) {}
+  readonly location: string;
+  constructor(outName: string, private opts: WriteOptions) {
+    this.location = sideFileName(outName);
+  }
 
   /** Where a tensor's data goes: undefined = inline; else the entries to write. */
   place(t: Tensor): Array<[string, string]> | undefined {
@@ -34,42 +43,44 @@ class ExternalPlan {
     const threshold = this.opts.externalThreshold;
     if (threshold !== undefined) {
       if (size < threshold || size < 0) return undefined;
-      return this.append(`${this.outName}.data`, t, 64);
+      return this.append(t, 64);
     }
     if (t.storage.kind !== 'external') return undefined;
     const ref = externalRef(t, 'model');
-    let location = ref.location;
-    // Never write over the input's own side file.
-    if (this.sourceDir !== undefined && resolve(this.sourceDir, location) === resolve(this.outDir, location)) {
-      location = `${this.outName}.data`;
-    }
-    const file = this.file(location);
+    const file = this.file();
     const len = t.storage.bytes.byteLength;
-    const fits = ref.length === undefined || ref.length === len;
+    // An input side file already named like ours (folding in/m.onnx with in/m.onnx.data to out/m.onnx): keep each
+    // tensor's offset where it is free, so its entries stay exactly as they were.
+    const same = posix.normalize(ref.location.replace(/\\/g, '/')) === this.location;
+    const fits = same && (ref.length === undefined || ref.length === len) && ref.offset % 16 === 0;
     const free = fits && file.pieces.every((p) => p.offset + p.bytes.byteLength <= ref.offset || p.offset >= ref.offset + len);
     if (free) {
       file.pieces.push({ offset: ref.offset, bytes: t.storage.bytes });
       file.end = Math.max(file.end, ref.offset + len);
-      // keep the entries exactly as they were when nothing about them changed
-      return t.storage.entries.map(([k, v]) => [k, k === 'location' ? location : v]);
+      return t.storage.entries.map(([k, v]) => [k, k === 'location' ? this.location : v]);
     }
-    return this.append(location, t, 16);
+    return this.append(t, 16);
   }
 
-  private file(location: string): SideFile {
-    let f = this.files.get(location);
-    if (!f) { f = { location, pieces: [], end: 0 }; this.files.set(location, f); }
+  private file(): SideFile {
+    let f = this.files.get(this.location);
+    if (!f) { f = { location: this.location, pieces: [], end: 0 }; this.files.set(this.location, f); }
     return f;
   }
 
-  private append(location: string, t: Tensor, align: number): Array<[string, string]> {
-    const f = this.file(location);
+  private append(t: Tensor, align: number): Array<[string, string]> {
+    const f = this.file();
     const bytes = t.storage.kind === 'raw' || t.storage.kind === 'external' ? t.storage.bytes : new Uint8Array(0);
     const offset = Math.ceil(f.end / align) * align;
     f.pieces.push({ offset, bytes });
     f.end = offset + bytes.byteLength;
-    return [['location', location], ['offset', String(offset)], ['length', String(bytes.byteLength)]];
+    return [['location', this.location], ['offset', String(offset)], ['length', String(bytes.byteLength)]];
   }
+}
+
+/** The side file an output model's external data goes to: the output's file name plus `.data`. */
+export function sideFileName(outName: string): string {
+  return `${outName}.data`;
 }
 
 /** Emit modelled fields and untouched extra fields, following the original field order where there is one. */
@@ -330,8 +341,7 @@ export interface Serialized {
 
 /** Encode a model; `outPath` decides the names of side files for external data. */
 export function serializeModelParts(model: Model, outPath: string, opts: WriteOptions = {}): Serialized {
-  const outDir = dirname(resolve(outPath));
-  const plan = new ExternalPlan(basename(outPath), model.sourcePath ? model.baseDir : undefined, outDir, opts);
+  const plan = new ExternalPlan(basename(outPath), opts);
   const p = new Encoder(plan).model(model);
   return { chunks: p.chunks, length: p.length, sideFiles: [...plan.files.values()] };
 }
@@ -348,7 +358,7 @@ export function serializeModel(model: Model): Uint8Array {
 
 let tmpCounter = 0;
 function tempName(path: string): string {
-  return join(dirname(path), `.${basename(path)}.${process.pid}.${tmpCounter++}.tmp`);
+  return join(dirname(path), `.pleat-${process.pid}-w${tmpCounter++}-${basename(path)}.tmp`);
 }
 
 const STREAM_BLOCK = 8 * 1024 * 1024;
@@ -428,37 +438,64 @@ function writeChunks(path: string, chunks: Iterable<{ offset?: number; bytes: Ui
   }
 }
 
+/** A file written to a temporary name, to be renamed to `dest` once everything is decided and checked. */
+export interface StagedFile { tmp: string; dest: string }
+
+export interface StagedModel {
+  /** The model file, then its side file (when it has one). */
+  files: StagedFile[];
+  bytes: number;
+  /** Side-file destination -> its temporary name, for reading the staged model back (readModelFile's redirect). */
+  redirect: Map<string, string>;
+}
+
 /**
- * Write a model (and its side files) atomically: everything goes to temporary files first, then each is
- * renamed into place, so a failure never leaves a partial output. The model's own source is never overwritten.
+ * Write a model and its side file to temporary names given by `tempFor(dest)` (in the destination's folder). The
+ * caller renames them in (or removes them). On failure nothing staged is left behind.
  */
-export function writeModelFile(model: Model, path: string, opts: WriteOptions = {}): { bytes: number; sideFiles: string[] } {
+export function stageModelFile(model: Model, path: string, opts: WriteOptions, tempFor: (dest: string) => string): StagedModel {
   const target = resolve(path);
-  if (model.sourcePath && resolve(model.sourcePath) === target) {
-    throw new PleatError('bad-input', `${path}: refusing to overwrite the input model; choose another output path`);
-  }
   const parts = serializeModelParts(model, target, opts);
-  const temps: Array<[string, string]> = [];
+  const files: StagedFile[] = [];
   try {
     for (const f of parts.sideFiles) {
       const dest = resolve(dirname(target), f.location);
-      if (model.sourcePath && dest === resolve(model.sourcePath)) {
-        throw new PleatError('bad-input', `${path}: a side file would overwrite the input model`);
-      }
-      const tmp = tempName(dest);
-      temps.push([tmp, dest]);
+      const tmp = tempFor(dest);
+      files.push({ tmp, dest });
       writeChunks(tmp, [...f.pieces].sort((a, b) => a.offset - b.offset));
     }
-    const tmp = tempName(target);
-    temps.push([tmp, target]);
+    const tmp = tempFor(target);
+    files.unshift({ tmp, dest: target });
     writeChunks(tmp, parts.chunks.map((bytes) => ({ bytes })));
-    for (const [tmp, dest] of temps) renameSync(tmp, dest);
   } catch (e) {
-    for (const [tmp] of temps) rmSync(tmp, { force: true });
+    for (const f of files) rmSync(f.tmp, { force: true });
     const code = (e as NodeJS.ErrnoException).code;
     if (e instanceof PleatError || code === undefined) throw e; // ours, or a change that refused to finish
     if (code === 'ENOENT' && !existsSync(dirname(target))) throw new PleatError('bad-input', `${path}: the folder ${dirname(target)} does not exist`);
     throw new PleatError('bad-input', `${path}: cannot write (${code})`);
   }
-  return { bytes: parts.length, sideFiles: parts.sideFiles.map((f) => resolve(dirname(target), f.location)) };
+  return { files, bytes: parts.length, redirect: new Map(files.slice(1).map((f) => [f.dest, f.tmp])) };
+}
+
+/**
+ * Write a model (and its side file) atomically: everything goes to temporary files first, then each is renamed
+ * into place, so a failure never leaves a partial output. The model's own source and side files are never
+ * overwritten (compared by real path and inode, so links and other spellings are caught).
+ */
+export function writeModelFile(model: Model, path: string, opts: WriteOptions = {}): { bytes: number; sideFiles: string[] } {
+  const target = resolve(path);
+  const inputs = model.sourcePath ? [model.sourcePath, ...sideFilePaths(model)] : [];
+  const guard = (dest: string, what: string) => {
+    for (const i of inputs) if (sameFile(dest, i)) throw new PleatError('bad-input', `${path}: ${what} ${dest} is the input ${i}; choose another output path`);
+  };
+  guard(target, 'the output');
+  guard(resolve(dirname(target), sideFileName(basename(target))), 'its side file');
+  const staged = stageModelFile(model, target, opts, tempName);
+  try {
+    for (const f of staged.files) renameSync(f.tmp, f.dest);
+  } catch (e) {
+    for (const f of staged.files) rmSync(f.tmp, { force: true });
+    throw new PleatError('bad-input', `${path}: cannot write (${(e as NodeJS.ErrnoException).code ?? String(e)})`);
+  }
+  return { bytes: staged.bytes, sideFiles: staged.files.slice(1).map((f) => f.dest) };
 }

@@ -1,7 +1,6 @@
-// --report FILE: which format each report file gets, and writing it atomically (temporary file in the same
-// folder, then rename), so a reader never sees a partial report.
-import { renameSync, rmSync, writeFileSync } from 'node:fs';
-import { basename, dirname, extname, join } from 'node:path';
+// --report FILE: which format each report file gets. Writing happens in the output transaction
+// (src/jobs/outputs.ts), with the model and its side file, so a report always belongs to the files beside it.
+import { extname } from 'node:path';
 import { PleatError } from '../errors.js';
 import { FORMATS, type Format } from './format.js';
 
@@ -33,16 +32,4 @@ export function parseReportSpecs(list: readonly string[]): ReportSpec[] {
     out.push(spec);
   }
   return out;
-}
-
-/** Write text to a temporary name beside the file, then rename it into place. */
-export function writeReportFile(file: string, text: string): void {
-  const tmp = join(dirname(file), `.${basename(file)}.tmp-${process.pid}`);
-  try {
-    writeFileSync(tmp, text);
-    renameSync(tmp, file);
-  } catch (e) {
-    rmSync(tmp, { force: true });
-    throw new PleatError('bad-input', `--report ${file}: cannot write (${(e as NodeJS.ErrnoException).code ?? String(e)})`);
-  }
 }

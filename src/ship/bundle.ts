@@ -303,9 +303,9 @@ function manifest(model: Model, format: BundleFormat, files: string[], c: Collec
 
 let tmpCounter = 0;
 
-type Content = Iterable<Uint8Array | string>;
+export type Content = Iterable<Uint8Array | string>;
 
-function writeAll(path: string, content: Content): void {
+export function writeAll(path: string, content: Content): void {
   const fd = openSync(path, 'w');
   try {
     for (const piece of content) {
@@ -361,7 +361,7 @@ function writeFilesAtomically(dir: string, files: Array<[string, Content]>, sour
   return targets;
 }
 
-function prepareDir(dir: string): string {
+export function prepareDir(dir: string): string {
   const full = resolve(dir);
   try {
     const st = statSync(full, { throwIfNoEntry: false });
@@ -379,6 +379,13 @@ function prepareDir(dir: string): string {
  * `weights.h` + `weights.c` + `manifest.json` (format 'c'). Same model and format, same bytes.
  */
 export function exportBundle(model: Model, dir: string, format: BundleFormat): BundleResult {
+  const planned = planBundle(model, dir, format);
+  writeFilesAtomically(planned.result.dir, planned.files, model.sourcePath);
+  return planned.result;
+}
+
+/** Decide a bundle's files and their contents (nothing is written; the folder is created if missing). */
+export function planBundle(model: Model, dir: string, format: BundleFormat): { files: Array<[string, Content]>; result: BundleResult } {
   if (!BUNDLE_FORMATS.includes(format)) {
     throw new PleatError('bad-input', `--bundle-format '${String(format)}' is not known; choose ${BUNDLE_FORMATS.join(' or ')}`);
   }
@@ -401,9 +408,11 @@ export function exportBundle(model: Model, dir: string, format: BundleFormat): B
   }
   const names = files.map(([n]) => n);
   files.push(['manifest.json', [manifest(model, format, names, collected, perTensor)]]);
-  const written = writeFilesAtomically(full, files, model.sourcePath);
   return {
-    format, dir: full, files: written, tensors: collected.tensors.length,
-    bytes: collected.tensors.reduce((a, t) => a + t.bytes.byteLength, 0), skipped: collected.skipped,
+    files,
+    result: {
+      format, dir: full, files: files.map(([n]) => join(full, n)), tensors: collected.tensors.length,
+      bytes: collected.tensors.reduce((a, t) => a + t.bytes.byteLength, 0), skipped: collected.skipped,
+    },
   };
 }

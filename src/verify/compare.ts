@@ -7,6 +7,8 @@ import type { DataTypeCode, Model } from '../graph/ir.js';
 import { basename } from 'node:path';
 import type { Precision, Value } from '../eval/value.js';
 import { runModel } from '../eval/run.js';
+import { withProbeMemory } from '../eval/budget.js';
+import { checkProbeEstimate } from './probe-budget.js';
 import { PleatError } from '../errors.js';
 import { dataTypeName } from '../graph/tensor.js';
 import { computeMetrics, diffHistogram, worstOf, type DiffHistogram, type Metrics } from './metrics.js';
@@ -24,6 +26,8 @@ export interface CompareOptions extends InputOptions {
   gate?: string;
   /** Also run both models in float32 to measure the error budget; default true. */
   budget?: boolean;
+  /** Probe memory limit in bytes (--max-probe-memory); default DEFAULT_PROBE_MEMORY (src/eval/budget.ts). */
+  maxProbeMemory?: number;
   /**
    * Run B with its Conv/Gemm/MatMul weights rounded through symmetric 8-bit quantize-dequantize (per tensor or
    * per output channel), against A unrounded: what an 8-bit weight deployment of B would cost.
@@ -138,6 +142,10 @@ function runLabelled(model: Model, side: 'A' | 'B', inputs: Map<string, Value>, 
 
 /** Run A and B on the same inputs and judge each output against its gate. Never throws for disagreeing outputs. */
 export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareReport {
+  return withProbeMemory(opts.maxProbeMemory, () => compareWithin(a, b, opts));
+}
+
+function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport {
   const int8 = opts.simulateInt8 ? roundedWeightsModel(b, opts.simulateInt8) : undefined;
   if (int8) b = int8.model;
   const seed = opts.seed ?? 0;
@@ -152,6 +160,7 @@ export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareR
   checkDimFlags(dims, [a.graph, b.graph]);
   const specs = resolveInputs(a.graph, asMap(opts.inputs), asMap(opts.shapes), dims);
   const probes = specs.every((s) => s.given) ? 1 : requested;
+  checkProbeEstimate(a.graph, specs); // before anything runs: sizes, and the values a probe would make
 
   const aOut = a.graph.outputs;
   const bOut = new Map(b.graph.outputs.map((o) => [o.name, o]));

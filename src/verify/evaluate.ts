@@ -4,6 +4,8 @@ import { join } from 'node:path';
 import type { Model } from '../graph/ir.js';
 import type { Precision, Value } from '../eval/value.js';
 import { runModel } from '../eval/run.js';
+import { withProbeMemory } from '../eval/budget.js';
+import { checkProbeEstimate } from './probe-budget.js';
 import { PleatError } from '../errors.js';
 import { isFloatType } from '../graph/tensor.js';
 import { DataType } from '../graph/ir.js';
@@ -28,11 +30,16 @@ export interface EvaluateResult {
 
 /** Run a model once on the given inputs, generating seeded values for the rest. */
 export function evaluate(model: Model, opts: EvaluateOptions = {}): EvaluateResult {
+  return withProbeMemory(opts.maxProbeMemory, () => evaluateWithin(model, opts));
+}
+
+function evaluateWithin(model: Model, opts: EvaluateOptions): EvaluateResult {
   const precision = opts.precision ?? 'float64';
   const seed = opts.seed ?? 0;
   const dims = asMap(opts.dims);
   checkDimFlags(dims, [model.graph]);
   const specs = resolveInputs(model.graph, asMap(opts.inputs), asMap(opts.shapes), dims);
+  checkProbeEstimate(model.graph, specs);
   const inputs = makeProbe(specs, seed, 0);
   const outputs = runModel(model, inputs, { precision });
   return { precision, seed, inputSummary: summarizeInputs(specs), inputs, outputs };

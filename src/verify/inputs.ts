@@ -6,6 +6,8 @@ import { extname } from 'node:path';
 import { DataType, elementCount, type DataTypeCode, type Dim, type Graph, type ValueInfo } from '../graph/ir.js';
 import type { Value } from '../eval/value.js';
 import { PleatError } from '../errors.js';
+import { checkAllocation } from '../eval/budget.js';
+import { checkProbeShapes } from './probe-budget.js';
 import { dataTypeName, isFloatType, roundToStorage, tensorToFloat64 } from '../graph/tensor.js';
 import { parseTensor } from '../onnx/read.js';
 import { readNpy } from './npy.js';
@@ -242,6 +244,7 @@ export const SMALL_INT_MAX = 3;
 /** Generate one input's probe value: standard normal floats (rounded to the element type), small non-negative integers, random bools. */
 export function probeValue(spec: Pick<InputSpec, 'name' | 'type' | 'dims'>, seed: number, probe: number): Value {
   const n = elementCount(spec.dims);
+  checkAllocation(n, 8, `input '${spec.name}'`);
   const rand = splitmix32(streamSeed(seed, probe, spec.name));
   const data = new Float64Array(n);
   if (isFloatType(spec.type)) {
@@ -266,6 +269,7 @@ export function probeValue(spec: Pick<InputSpec, 'name' | 'type' | 'dims'>, seed
 
 /** The input values of probe number `probe` (0-based): given values as they are, the rest generated. */
 export function makeProbe(specs: readonly InputSpec[], seed: number, probe: number): Map<string, Value> {
+  if (probe === 0) checkProbeShapes(specs); // sizes and the memory limit, before anything is allocated
   const out = new Map<string, Value>();
   for (const s of specs) out.set(s.name, s.given ? { type: s.given.type, dims: s.given.dims, data: s.given.data } : probeValue(s, seed, probe));
   return out;
@@ -285,6 +289,8 @@ export interface InputOptions {
   dims?: MapOrRecord<number>;
   /** Seed of the generated values (--seed); default 0. */
   seed?: number;
+  /** Limit in bytes on the values a probe run holds at once (--max-probe-memory); default in src/eval/budget.ts. */
+  maxProbeMemory?: number;
 }
 
 /** One input as a report shows it. */

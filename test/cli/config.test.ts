@@ -5,7 +5,8 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { keepList, loadConfig, runSettings } from '../../cli/config.js';
 import { inCi, progressWanted, startProgress } from '../../cli/progress.js';
-import { parseReportSpecs, writeReportFile } from '../../src/report/files.js';
+import { parseReportSpecs } from '../../src/report/files.js';
+import { OutputSet } from '../../src/jobs/outputs.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'pleat-config-'));
 const write = (name: string, v: unknown) => { const p = join(dir, name); writeFileSync(p, typeof v === 'string' ? v : JSON.stringify(v)); return p; };
@@ -61,10 +62,12 @@ describe('--report specs', () => {
   });
   it('writes atomically: no temporary file is left behind', () => {
     const d = mkdtempSync(join(tmpdir(), 'pleat-rep-'));
-    writeReportFile(join(d, 'r.json'), '{}\n');
+    const tx = new OutputSet();
+    tx.stage(tx.reserve(join(d, 'r.json'), '--report'), '{}\n');
+    tx.commit();
     expect(readdirSync(d)).toEqual(['r.json']);
     expect(readFileSync(join(d, 'r.json'), 'utf8')).toBe('{}\n');
-    expect(() => writeReportFile(join(d, 'no', 'such', 'r.json'), 'x')).toThrow(/cannot write \(ENOENT\)/);
+    expect(() => new OutputSet().reserve(join(d, 'no', 'such', 'r.json'), '--report')).toThrow(/the folder .*such does not exist/);
   });
 });
 

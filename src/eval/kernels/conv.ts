@@ -2,6 +2,7 @@
 // Grouped convolution with one input channel per group (depthwise, the MobileNet case) runs with the SIMD
 // depthwise kernel for 1-D/2-D inputs (any stride and dilation), otherwise as direct loops over the output plane; everything else is im2col + blocked GEMM per group, skipping im2col for 1x1 stride-1
 // unpadded kernels where the input already is the column matrix.
+import { checkAllocation } from '../budget.js';
 import { attrInt, attrInts, elementCount } from '../../graph/ir.js';
 import { allocFloat, badModel, need, slidingWindow, to3 } from '../attrs.js';
 import { gemm, memoryViews, rowMajor, simdOn } from '../gemm.js';
@@ -14,6 +15,7 @@ let colBuf32 = new Float32Array(0);
 let planeBuf = new Float64Array(0);
 
 function scratch(n: number, which: 'col' | 'plane'): Float64Array {
+  checkAllocation(n, 8);
   if (which === 'col') { if (colBuf.length < n) colBuf = new Float64Array(n); return colBuf; }
   if (planeBuf.length < n) planeBuf = new Float64Array(n);
   return planeBuf;
@@ -22,6 +24,7 @@ function scratch(n: number, which: 'col' | 'plane'): Float64Array {
 /** The im2col matrix in the input's element type (copies are exact), so GEMM copies its rows as they are. */
 function colScratch(n: number, like: NumArray): NumArray {
   if (!(like instanceof Float32Array)) return scratch(n, 'col');
+  checkAllocation(n, 4);
   if (colBuf32.length < n) colBuf32 = new Float32Array(n);
   return colBuf32;
 }

@@ -3,6 +3,7 @@
 //   out = s*(in-1) + output_padding + ((k-1)*d+1) - pad_begin - pad_end
 // and with output_shape (or SAME_*) total_padding = s*(in-1) + output_padding + ((k-1)*d+1) - out, split
 // with the extra one at the end for SAME_UPPER and at the beginning otherwise.
+import { checkAllocation } from '../budget.js';
 import { attrInt, attrInts, attrString, elementCount } from '../../graph/ir.js';
 import { allocFloat, badModel, intsOr, need, unsupported } from '../attrs.js';
 import { gemm, rowMajor } from '../gemm.js';
@@ -58,6 +59,7 @@ function run(inputs: Array<Value | undefined>, ctx: KernelContext): Value[] {
   // col2im treats the ConvTranspose output as the "image" and the input grid as the window positions
   const g3 = geometry3(outSp, inSp, kernel, strides, dilations, padBegin);
   const rows = Mg * kVol;
+  checkAllocation(rows * inVol + Mg * outVol, 8); // scratch and accumulator, before the output itself
   if (colBuf.length < rows * inVol) colBuf = new Float64Array(rows * inVol);
   const col = colBuf;
   const acc = new Float64Array(Mg * outVol);

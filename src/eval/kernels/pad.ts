@@ -2,6 +2,7 @@
 // (opset 1 calls them 'paddings'); from 11 pads and constant_value are inputs, from 18 an optional axes input
 // selects the padded axes. Negative pads crop. Each output axis is mapped to its source index once, then rows
 // are copied through the maps.
+import { checkAllocation } from '../budget.js';
 import { attr, attrFloat, attrInts, attrString, elementCount } from '../../graph/ir.js';
 import { badModel, need, normAxis, unsupported } from '../attrs.js';
 import type { Kernel, KernelContext, NumArray, Value } from '../value.js';
@@ -36,6 +37,9 @@ function axisMap(n: number, pb: number, pe: number, mode: string, ctx: KernelCon
 export function padValue(X: Value, pads: number[], mode: string, value: number, ctx: KernelContext, alloc: (n: number) => NumArray): Value {
   const r = X.dims.length;
   if (pads.length !== 2 * r) throw badModel(ctx, `pads has ${pads.length} values for a rank-${r} input (need ${2 * r})`);
+  // the output's size first: pads of 2^62 must be refused before any map or buffer is made
+  for (let i = 0; i < r; i++) checkAllocation(X.dims[i]! + pads[i]! + pads[r + i]!, 4);
+  checkAllocation(elementCount(X.dims.map((n, i) => Math.max(0, n + pads[i]! + pads[r + i]!))), 8);
   const maps = X.dims.map((n, i) => axisMap(n, pads[i]!, pads[r + i]!, mode, ctx));
   const dims = maps.map((m) => m.length);
   const total = elementCount(dims);

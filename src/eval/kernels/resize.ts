@@ -5,6 +5,7 @@
 // weights, so the tensor is resized one axis at a time with per-axis tap tables; this equals the n-linear /
 // n-cubic formula of the operator docs. Opset 10 Resize and Upsample use the older rules: asymmetric
 // coordinates and nearest = truncate when enlarging, ceil when shrinking (as onnxruntime does for them).
+import { checkAllocation } from '../budget.js';
 import { attrFloat, attrFloats, attrInt, attrInts, attrString, elementCount } from '../../graph/ir.js';
 import { allocFloat, badModel, need, normAxis, unsupported } from '../attrs.js';
 import type { Kernel, KernelContext, Value } from '../value.js';
@@ -67,6 +68,7 @@ interface Taps { count: number; idx: Int32Array; w: Float64Array; outside: Uint8
 function axisTaps(axis: number, n: number, plan: Plan, ctx: KernelContext): Taps {
   const m = plan.outDims[axis]!, s = plan.scales[axis]!, r = plan.outDims.length;
   const count = plan.mode === 'nearest' ? 1 : plan.mode === 'linear' ? 2 : 4;
+  checkAllocation(m * count, 13); // index, weight and flag per tap, before allocating them
   const idx = new Int32Array(m * count), w = new Float64Array(m * count), outside = new Uint8Array(m);
   const roiStart = plan.roi ? plan.roi[axis]! : 0, roiEnd = plan.roi ? plan.roi[r + axis]! : 1;
   for (let o = 0; o < m; o++) {
@@ -109,6 +111,7 @@ function resize(X: Value, plan: Plan, ctx: KernelContext): Value {
     if (m === n && taps.count === 1 && taps.idx.every((v, i) => v === i)) continue;
     if (m === n && taps.count > 1 && taps.idx.every((v, i) => (i % taps.count === 0 ? v === i / taps.count : true)) && taps.w.every((v, i) => (i % taps.count === 0 ? v === 1 : v === 0))) continue;
     const outer = elementCount(dims.slice(0, ax)), inner = elementCount(dims.slice(ax + 1));
+    checkAllocation(outer * m * inner, 8);
     const next = new Float64Array(outer * m * inner);
     const T = taps.count, ti = taps.idx, tw = taps.w;
     for (let p = 0; p < outer; p++) {

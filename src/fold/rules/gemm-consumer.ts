@@ -25,7 +25,7 @@ export const gemmConsumer: FoldRule<Data> = {
     if (hasShift(a)) {
       const tb = contractShift(weight, v, map, layer.transB ? 'a' : 'b', layer.outChannels, a.shift);
       for (let i = 0; i < tb.length; i++) tb[i] *= layer.alpha;
-      const c = layer.bias ? { values: decodeValues(layer.bias.tensor), dims: layer.bias.tensor.dims } : undefined;
+      const c = layer.bias ? { values: decodeValues(layer.bias.tensor), dims: layer.bias.tensor.dims, name: layer.bias.tensor.name } : undefined;
       bias = gemmBias(c, layer.beta, undefined, tb);
       if (!fitsStorage(maxAbs(bias.values), t.dataType)) return overflow('bias', t.dataType);
     }

@@ -24,7 +24,7 @@ export const gemmProducer: FoldRule<Data> = {
     const map = layer.transB ? layouts.rows(v) : layouts.columns(v);
     const range = weightRangeCheck(ctx, t, map, a.scale);
     if (isRefusal(range)) return range;
-    const c = layer.bias ? { values: decodeValues(layer.bias.tensor), dims: layer.bias.tensor.dims } : undefined;
+    const c = layer.bias ? { values: decodeValues(layer.bias.tensor), dims: layer.bias.tensor.dims, name: layer.bias.tensor.name } : undefined;
     const bias = gemmBias(c, layer.beta, a.scale, a.shift);
     if (!fitsStorage(maxAbs(bias.values), t.dataType)) return overflow('bias', t.dataType);
     return { rule: gemmProducer, run, layer, affine: a, adds: 0, data: { map, guard: range.guard, bias } };

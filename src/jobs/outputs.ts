@@ -1,0 +1,222 @@
+// The output transaction: every file a command writes (folded model, its side file, reports, bundle files) goes
+// through one OutputSet. First every destination is decided and checked (its folder exists and is writable, it
+// is no input, no other output, no file pleat was not asked to write); then each file is written to a temporary
+// name in its own folder; then, once everything is staged (and the staged model read back and checked), all are
+// renamed in. A failure on any path removes the temporaries.
+//
+// Temporary names are unmistakably pleat's: `.pleat-<pid>-<token>-<name>.tmp`. Before the renames a commit record
+// `.pleat-<pid>-<token>.commit` lists them, and it is removed after the last one. A run killed before the record
+// leaves only temporaries, which the next run writing to that folder removes (their process is gone); a run
+// killed during the renames leaves the record, and the next run finishes those renames first, so the files
+// written together end up together.
+import { accessSync, constants, readdirSync, readFileSync, renameSync, rmSync, statSync, writeFileSync } from 'node:fs';
+import { randomBytes } from 'node:crypto';
+import { basename, dirname, join, resolve } from 'node:path';
+import { PleatError } from '../errors.js';
+import { fileKeys } from '../onnx/paths.js';
+import { ownsSideFile } from '../onnx/side-owner.js';
+import type { StagedFile } from '../onnx/write.js';
+
+export type { StagedFile };
+
+const TEMP = /^\.pleat-(\d+)-([0-9a-z]+)-.+\.tmp$/;
+const RECORD = /^\.pleat-(\d+)-([0-9a-z]+)\.commit$/;
+
+/** Test hook: PLEAT_KILL_AT=<point> kills the process at that point of a commit (the SIGKILL test). */
+function killPoint(point: string): void {
+  if (process.env.PLEAT_KILL_AT === point) process.kill(process.pid, 'SIGKILL');
+}
+
+function alive(pid: number): boolean {
+  if (pid === process.pid) return true;
+  try {
+    process.kill(pid, 0);
+    return true;
+  } catch (e) {
+    return (e as NodeJS.ErrnoException).code === 'EPERM';
+  }
+}
+
+/**
+ * Finish or clear what a killed pleat run left in `dir`: commit records of dead processes are carried out (their
+ * files were complete and checked), then their temporaries are removed. Live runs' files are left alone.
+ */
+export function recoverFolder(dir: string): void {
+  let names: string[];
+  try { names = readdirSync(dir); } catch { return; }
+  for (const n of names) {
+    const m = RECORD.exec(n);
+    if (!m || alive(Number(m[1]))) continue;
+    try {
+      const list = JSON.parse(readFileSync(join(dir, n), 'utf8')) as StagedFile[];
+      for (const f of list) {
+        // only pleat temporaries of that process, each onto the name it carries, in its own folder
+        const t = TEMP.exec(basename(f.tmp));
+        const fits = t && t[1] === m[1] && dirname(f.tmp) === dirname(f.dest) && basename(f.tmp).endsWith(`-${basename(f.dest)}.tmp`);
+        if (fits && statSync(f.tmp, { throwIfNoEntry: false })) renameSync(f.tmp, f.dest);
+      }
+    } catch { /* an unreadable record: its temporaries are removed below */ }
+    rmSync(join(dir, n), { force: true });
+  }
+  for (const n of readdirSync(dir)) {
+    const m = TEMP.exec(n);
+    if (m && !alive(Number(m[1]))) rmSync(join(dir, n), { force: true });
+  }
+}
+
+const live = new Set<OutputSet>();
+let exitHook = false;
+
+/** Remove the temporaries of every transaction not yet committed (the CLI calls this on SIGINT/SIGTERM). */
+export function abortAllOutputs(): void {
+  for (const s of [...live]) s.abort();
+}
+
+export class OutputSet {
+  private readonly token = randomBytes(5).toString('hex').replace(/[^0-9a-z]/g, '');
+  private counter = 0;
+  private readonly protectedKeys = new Map<string, string>();
+  private readonly reservedKeys = new Map<string, string>();
+  private staged: StagedFile[] = [];
+  private readonly dirs = new Set<string>();
+
+  constructor() {
+    live.add(this);
+    if (!exitHook) {
+      exitHook = true;
+      process.on('exit', abortAllOutputs);
+    }
+  }
+
+  /** A file that must never be written: an input model or one of its side files. */
+  protect(path: string, what: string): void {
+    for (const k of fileKeys(path)) if (!this.protectedKeys.has(k)) this.protectedKeys.set(k, `${what} ${path}`);
+  }
+
+  /**
+   * Claim a destination, or refuse it (exit 2) naming the flag and the file: it must be in an existing writable
+   * folder, not be a folder, not be an input, not be claimed twice. `sideOf` marks a side file of that output
+   * model: an existing file there is replaced only when it is pleat's own output for that model.
+   */
+  reserve(dest: string, role: string, sideOf?: string): string {
+    const full = resolve(dest);
+    const dir = dirname(full);
+    const st = statSync(dir, { throwIfNoEntry: false });
+    if (!st) throw new PleatError('bad-input', `${role} ${dest}: the folder ${dir} does not exist`);
+    if (!st.isDirectory()) throw new PleatError('bad-input', `${role} ${dest}: ${dir} is not a folder`);
+    try { accessSync(dir, constants.W_OK); } catch {
+      throw new PleatError('bad-input', `${role} ${dest}: cannot write in the folder ${dir}`);
+    }
+    const here = statSync(full, { throwIfNoEntry: false });
+    if (here?.isDirectory()) throw new PleatError('bad-input', `${role} ${dest}: is a folder`);
+    const keys = fileKeys(full);
+    for (const k of keys) {
+      const input = this.protectedKeys.get(k);
+      if (input) throw new PleatError('bad-input', `${role} ${dest}: refusing to overwrite the ${input}; choose another path`);
+      const other = this.reservedKeys.get(k);
+      if (other === `${role} ${dest}`) return full; // claimed again by the same step (a fold started over)
+      if (other) throw new PleatError('bad-input', `${role} ${dest} is also written as ${other}; give each output its own path`);
+    }
+    if (sideOf !== undefined && here && !ownsSideFile(sideOf, full)) {
+      throw new PleatError('bad-input', `${role} ${dest}: a file of that name exists and is not pleat's side file for ${sideOf}; move it away or choose another output name`);
+    }
+    for (const k of keys) this.reservedKeys.set(k, `${role} ${dest}`);
+    if (!this.dirs.has(dir)) { this.dirs.add(dir); recoverFolder(dir); }
+    return full;
+  }
+
+  /** A temporary name for `dest`, in its folder. */
+  tempFor(dest: string): string {
+    return join(dirname(dest), `.pleat-${process.pid}-${this.token}${this.counter++}-${basename(dest)}.tmp`);
+  }
+
+  /** Stage text or bytes for a reserved destination (or let `write` write the temporary file). */
+  stage(dest: string, content: string | Uint8Array | ((tmp: string) => void)): void {
+    const full = resolve(dest);
+    const tmp = this.tempFor(full);
+    this.staged.push({ tmp, dest: full });
+    try {
+      if (typeof content === 'function') content(tmp); else writeFileSync(tmp, content);
+    } catch (e) {
+      if (e instanceof PleatError) throw e;
+      throw new PleatError('bad-input', `${dest}: cannot write (${(e as NodeJS.ErrnoException).code ?? String(e)})`);
+    }
+  }
+
+  /** Take over files another set (a worker's) staged; their destinations are reserved here again. */
+  adopt(files: readonly StagedFile[], role: string): void {
+    files.forEach((f, i) => {
+      this.staged.push(f);
+      this.reserve(f.dest, i === 0 ? role : `${role}'s side file`, i === 0 ? undefined : files[0]!.dest);
+    });
+  }
+
+  /** Give the staged files to the caller (who adopts them into its own set); this set then owns nothing. */
+  handOver(): StagedFile[] {
+    const files = this.staged;
+    this.staged = [];
+    live.delete(this);
+    return files;
+  }
+
+  /** The staged files, taken out of this set (for discard). */
+  handOverPending(): StagedFile[] {
+    return [...this.staged];
+  }
+
+  /** Add files staged by a lower-level writer (already at temporary names from tempFor). */
+  add(files: readonly StagedFile[]): void {
+    this.staged.push(...files);
+  }
+
+  /** Drop staged files that will not be committed (a failed check), removing their temporaries. */
+  discard(files: readonly StagedFile[]): void {
+    for (const f of files) rmSync(f.tmp, { force: true });
+    this.staged = this.staged.filter((f) => !files.includes(f));
+  }
+
+  /** Rename every staged file into place; the commit record lets a later run finish if this one is killed. */
+  commit(): string[] {
+    if (!this.staged.length) { this.close(); return []; }
+    killPoint('staged');
+    const record = join(dirname(this.staged[0]!.dest), `.pleat-${process.pid}-${this.token}.commit`);
+    try {
+      writeFileSync(record, JSON.stringify(this.staged));
+      killPoint('recorded');
+      this.staged.forEach((f, i) => {
+        renameSync(f.tmp, f.dest);
+        if (i === 0) killPoint('renamed-one');
+      });
+    } catch (e) {
+      this.abort();
+      rmSync(record, { force: true });
+      throw new PleatError('bad-input', `cannot move the outputs into place (${(e as NodeJS.ErrnoException).code ?? String(e)})`);
+    }
+    killPoint('renamed-all');
+    rmSync(record, { force: true });
+    const done = this.staged.map((f) => f.dest);
+    this.staged = [];
+    this.close();
+    return done;
+  }
+
+  /** Remove every temporary of this set (and any this process left in its folders, e.g. from a crashed worker). */
+  abort(): void {
+    for (const f of this.staged) rmSync(f.tmp, { force: true });
+    this.staged = [];
+    this.close();
+  }
+
+  private close(): void {
+    live.delete(this);
+    const mine = `.pleat-${process.pid}-`;
+    const others = [...live].map((s) => `${mine}${s.token}`);
+    for (const dir of this.dirs) {
+      let names: string[];
+      try { names = readdirSync(dir); } catch { continue; }
+      for (const n of names) {
+        if (n.startsWith(mine) && TEMP.test(n) && !others.some((o) => n.startsWith(o))) rmSync(join(dir, n), { force: true });
+      }
+    }
+  }
+}

@@ -1,0 +1,193 @@
+// What fold writes, and what it never touches (issue 11 items 1, 2 and 4): side files named after the output,
+// no file overwritten that pleat was not asked to write (inputs compared by real path and inode), and every
+// output of a run (model, side file, reports) staged and renamed in together, or nothing written at all.
+import { describe, expect, it } from 'vitest';
+import { existsSync, linkSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, symlinkSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import onnxProto from 'onnx-proto';
+import { GraphBuilder, modelBytes, tensor } from '../helpers/build.js';
+import { pleat } from '../helpers/cli.js';
+import { readModelFile } from '../../src/onnx/read.js';
+import { tensorToFloat64 } from '../../src/graph/tensor.js';
+import { checkerAvailable, onnxCheck } from '../helpers/checker.js';
+
+const tmp = () => mkdtempSync(join(tmpdir(), 'pleat-out-'));
+
+interface Ext { name: string; location: string; offset: number; values: number[] }
+
+/** y = x * s0 (+ s1): every weight in side files (written here at the offsets given). */
+function extModel(dir: string, file: string, weights: Ext[]): string {
+  const g = new GraphBuilder();
+  g.input('x', [1, 4]).output('y', [1, 4]);
+  const sides = new Map<string, Uint8Array>();
+  for (const w of weights) {
+    const t = tensor(w.name, [4], w.values);
+    const bytes = t.rawData!;
+    const path = join(dir, w.location);
+    const old = sides.get(path) ?? (existsSync(path) ? new Uint8Array(readFileSync(path)) : new Uint8Array(0));
+    const next = new Uint8Array(Math.max(old.byteLength, w.offset + 16));
+    next.set(old);
+    next.set(bytes, w.offset);
+    sides.set(path, next);
+    delete t.rawData;
+    t.dataLocation = onnxProto.onnx.TensorProto.DataLocation.EXTERNAL;
+    t.externalData = [{ key: 'location', value: w.location }, { key: 'offset', value: String(w.offset) }, { key: 'length', value: '16' }];
+    g.inits.push(t);
+  }
+  for (const [p, b] of sides) writeFileSync(p, b);
+  if (weights.length === 1) g.node('Mul', ['x', weights[0]!.name], {}, { outputs: ['y'] });
+  else {
+    g.node('Mul', ['x', weights[0]!.name], {}, { outputs: ['m'] });
+    g.node('Add', ['m', weights[1]!.name], {}, { outputs: ['y'] });
+  }
+  const path = join(dir, file);
+  writeFileSync(path, modelBytes(g));
+  return path;
+}
+
+const weightsOf = (path: string) => readModelFile(path).graph.initializers.map((t) => Array.from(tensorToFloat64(t)));
+
+describe('side files of written models (issue 11 item 1)', () => {
+  it('two models with side files of one name folded into one folder each keep their own weights', () => {
+    const dir = tmp();
+    mkdirSync(join(dir, 'a')); mkdirSync(join(dir, 'b'));
+    const a = extModel(join(dir, 'a'), 'a.onnx', [{ name: 's', location: 'weights.bin', offset: 0, values: [1, 2, 3, 4] }]);
+    const b = extModel(join(dir, 'b'), 'b.onnx', [{ name: 's', location: 'weights.bin', offset: 0, values: [5, 6, 7, 8] }]);
+    const r = pleat(['fold', a, b, '--out-dir', join(dir, 'out'), '--quiet']);
+    expect(r.code, r.stderr).toBe(0);
+    expect(weightsOf(join(dir, 'out', 'a.onnx'))).toEqual([[1, 2, 3, 4]]);
+    expect(weightsOf(join(dir, 'out', 'b.onnx'))).toEqual([[5, 6, 7, 8]]);
+    // and in two separate runs into one folder
+    mkdirSync(join(dir, 'two'));
+    expect(pleat(['fold', a, '-o', join(dir, 'two', 'a.onnx')]).code).toBe(0);
+    expect(pleat(['fold', b, '-o', join(dir, 'two', 'b.onnx')]).code).toBe(0);
+    expect(weightsOf(join(dir, 'two', 'a.onnx'))).toEqual([[1, 2, 3, 4]]);
+    expect(weightsOf(join(dir, 'two', 'b.onnx'))).toEqual([[5, 6, 7, 8]]);
+  });
+
+  it('two spellings of one location (ext.bin and ./ext.bin) keep both weights', () => {
+    const dir = tmp();
+    const m = extModel(dir, 'm.onnx', [
+      { name: 's0', location: 'ext.bin', offset: 0, values: [1, 2, 3, 4] },
+      { name: 's1', location: './ext.bin', offset: 16, values: [5, 6, 7, 8] },
+    ]);
+    mkdirSync(join(dir, 'out'));
+    const r = pleat(['fold', m, '-o', join(dir, 'out', 'm.onnx')]);
+    expect(r.code, r.stderr).toBe(0);
+    expect(weightsOf(join(dir, 'out', 'm.onnx'))).toEqual([[1, 2, 3, 4], [5, 6, 7, 8]]);
+  });
+
+  it('an input side file named like the output file does not corrupt the output', () => {
+    const dir = tmp();
+    const m = extModel(dir, 'm.onnx', [{ name: 's', location: 'folded.onnx', offset: 0, values: [1, 2, 3, 4] }]);
+    mkdirSync(join(dir, 'out'));
+    const out = join(dir, 'out', 'folded.onnx');
+    const r = pleat(['fold', m, '-o', out]);
+    expect(r.code, r.stderr).toBe(0);
+    expect(weightsOf(out)).toEqual([[1, 2, 3, 4]]);
+    // the ONNX checker (Debian python3-onnx) accepts the written model
+    if (checkerAvailable()) expect(onnxCheck(out)).toBe('');
+  });
+});
+
+describe('never overwrite what was not asked for (issue 11 item 2)', () => {
+  it("leaves an unrelated file with the input's side-file name alone, and refuses one with the output's", () => {
+    const dir = tmp();
+    const m = extModel(dir, 'm.onnx', [{ name: 's', location: 'weights.bin', offset: 0, values: [1, 2, 3, 4] }]);
+    mkdirSync(join(dir, 'out'));
+    writeFileSync(join(dir, 'out', 'weights.bin'), 'precious');
+    expect(pleat(['fold', m, '-o', join(dir, 'out', 'm.onnx')]).code).toBe(0);
+    expect(readFileSync(join(dir, 'out', 'weights.bin'), 'utf8')).toBe('precious');
+    // a file named like the side file pleat would write, not written by pleat for that output: refused by name
+    writeFileSync(join(dir, 'out', 'n.onnx.data'), 'precious too');
+    const r = pleat(['fold', m, '-o', join(dir, 'out', 'n.onnx')]);
+    expect(r.code).toBe(2);
+    expect(r.stderr.trim().split('\n')).toHaveLength(1);
+    expect(r.stderr).toContain('n.onnx.data');
+    expect(readFileSync(join(dir, 'out', 'n.onnx.data'), 'utf8')).toBe('precious too');
+    expect(existsSync(join(dir, 'out', 'n.onnx'))).toBe(false);
+    // pleat's own side file for that same output is replaced on the next run
+    expect(pleat(['fold', m, '-o', join(dir, 'out', 'm.onnx')]).code).toBe(0);
+    expect(weightsOf(join(dir, 'out', 'm.onnx'))).toEqual([[1, 2, 3, 4]]);
+  });
+
+  it("--external-data-min does not overwrite OUT.data when it is the input's own side file", () => {
+    const dir = tmp();
+    const a = extModel(dir, 'a.onnx', [{ name: 's', location: 'b.onnx.data', offset: 0, values: [1, 2, 3, 4] }]);
+    const before = readFileSync(join(dir, 'b.onnx.data'));
+    const r = pleat(['fold', a, '-o', join(dir, 'b.onnx'), '--external-data-min', '4']);
+    expect(r.code).toBe(2);
+    expect(r.stderr).toMatch(/b\.onnx\.data.*input model's side file/);
+    expect(readFileSync(join(dir, 'b.onnx.data')).equals(before)).toBe(true);
+    expect(weightsOf(a)).toEqual([[1, 2, 3, 4]]);
+  });
+
+  it('a report never replaces the input model or the folded model', () => {
+    const dir = tmp();
+    const a = join(dir, 'a.onnx');
+    writeFileSync(a, readFileSync('models/tray-edge.onnx'));
+    const before = readFileSync(a);
+    let r = pleat(['fold', a, '-o', join(dir, 'b.onnx'), '--report', `json:${a}`]);
+    expect(r.code).toBe(2);
+    expect(r.stderr).toMatch(/--report .*a\.onnx: refusing to overwrite the input model/);
+    expect(readFileSync(a).equals(before)).toBe(true);
+    expect(existsSync(join(dir, 'b.onnx'))).toBe(false);
+    r = pleat(['fold', a, '-o', join(dir, 'x.onnx'), '--report', `text:${join(dir, 'x.onnx')}`]);
+    expect(r.code).toBe(2);
+    expect(r.stderr).toMatch(/--report .*x\.onnx is also written as -o/);
+    expect(existsSync(join(dir, 'x.onnx'))).toBe(false);
+    // compare and audit guard their inputs the same way
+    expect(pleat(['compare', a, a, '--report', `json:${a}`]).code).toBe(2);
+    expect(pleat(['audit', a, '--report', `json:${a}`]).code).toBe(2);
+    expect(readFileSync(a).equals(before)).toBe(true);
+  });
+
+  it('a symlink or a hard link to the input is refused as an output', () => {
+    const dir = tmp();
+    const a = join(dir, 'a.onnx');
+    writeFileSync(a, readFileSync('models/tray-edge.onnx'));
+    symlinkSync(a, join(dir, 'link.onnx'));
+    linkSync(a, join(dir, 'hard.onnx'));
+    for (const out of ['link.onnx', 'hard.onnx', `sub/../a.onnx`]) {
+      if (out.startsWith('sub')) mkdirSync(join(dir, 'sub'), { recursive: true });
+      const r = pleat(['fold', a, '-o', join(dir, out)]);
+      expect(r.code, out).toBe(2);
+      expect(r.stderr).toMatch(/refusing to overwrite the input model/);
+    }
+    expect(readdirSync(dir).sort()).toEqual(['a.onnx', 'hard.onnx', 'link.onnx', 'sub']);
+  });
+});
+
+describe('one output transaction (issue 11 item 4)', () => {
+  it('a missing report folder is refused before anything is written', () => {
+    const dir = tmp();
+    const r = pleat(['fold', 'models/tray-edge.onnx', '-o', join(dir, 'b.onnx'), '--report', join(dir, 'nope', 'r.json')]);
+    expect(r.code).toBe(2);
+    expect(r.stderr).toMatch(/--report .*r\.json: the folder .*nope does not exist/);
+    expect(readdirSync(dir)).toEqual([]);
+  });
+
+  it('model, side file and reports are written together, and no temporary file stays', () => {
+    const dir = tmp();
+    const m = extModel(dir, 'm.onnx', [{ name: 's', location: 'w.bin', offset: 0, values: [1, 2, 3, 4] }]);
+    mkdirSync(join(dir, 'out'));
+    const r = pleat(['fold', m, '-o', join(dir, 'out', 'm.onnx'), '--report', join(dir, 'out', 'r.json'), '--report', join(dir, 'out', 'r.xml')]);
+    expect(r.code, r.stderr).toBe(0);
+    expect(readdirSync(join(dir, 'out')).sort()).toEqual(['m.onnx', 'm.onnx.data', 'r.json', 'r.xml']);
+    expect(JSON.parse(readFileSync(join(dir, 'out', 'r.json'), 'utf8')).output).toBe(join(dir, 'out', 'm.onnx'));
+  });
+
+  it('a later run removes temporaries a killed run left, and finishes a commit it had begun', () => {
+    const dir = tmp();
+    const dead = 2 ** 22 + 12345; // above the usual pid_max: no live process has it
+    writeFileSync(join(dir, `.pleat-${dead}-abc0-b.onnx.tmp`), 'partial');
+    writeFileSync(join(dir, `.pleat-${dead}-abc1-r.json.tmp`), '{"complete": true}');
+    writeFileSync(join(dir, `.pleat-${dead}-abc.commit`), JSON.stringify([{ tmp: join(dir, `.pleat-${dead}-abc1-r.json.tmp`), dest: join(dir, 'r.json') }]));
+    writeFileSync(join(dir, 'notes.tmp'), 'not ours');
+    const r = pleat(['fold', 'models/tray-edge.onnx', '-o', join(dir, 'c.onnx')]);
+    expect(r.code, r.stderr).toBe(0);
+    expect(readdirSync(dir).sort()).toEqual(['c.onnx', 'notes.tmp', 'r.json']);
+    expect(readFileSync(join(dir, 'r.json'), 'utf8')).toBe('{"complete": true}');
+  });
+});
