@@ -1,5 +1,6 @@
 // Flag definitions shared by several commands, spelled as shared/VOCABULARY.md lists them.
 import type { Argv } from 'yargs';
+import { PleatError } from '../src/errors.js';
 
 /**
  * A repeatable flag taking one value each time (--keep a --keep b). Not yargs' `array`, which would swallow the
@@ -14,7 +15,15 @@ export function inputFlags<T>(y: Argv<T>) {
     .option('shape', { type: 'string', coerce: many, describe: 'NAME=1x3x224x224: the shape of an input; repeatable' })
     .option('dim', { type: 'string', coerce: many, describe: 'SYMBOL=N: the size of a dynamic dim; repeatable' })
     .option('seed', { type: 'number', describe: 'seed of the generated probe values (default 0)' })
-    .option('max-probe-memory', { type: 'string', describe: 'BYTES (or with K, M, G): most memory the values of a probe run may hold at once (default: 1/16 of the machine memory, 256 MiB to 1 GiB)' });
+    .option('max-probe-memory', { type: 'string', describe: 'BYTES (or with K, M, G): most memory the values of a probe run may hold at once (default: 1/16 of the machine memory, 256 MiB to 1 GiB)' })
+    .option('threads', { type: 'number', describe: 'threads for Conv, Gemm and MatMul during evaluation (default: the available cores); results are identical for any count' });
+}
+
+/** Check --threads (a whole number of at least 1); undefined keeps the default. */
+export function threadsFlag(v: number | undefined): number | undefined {
+  if (v === undefined) return undefined;
+  if (!Number.isInteger(v) || v < 1) throw new PleatError('usage', `--threads ${v}: give a whole number of at least 1`);
+  return v;
 }
 
 export function reportFlags<T>(y: Argv<T>) {

@@ -19,6 +19,7 @@ export { auditLoaded } from './jobs/audit.js';
 export { saveOutputs } from './verify/evaluate.js';
 export { loadInputFile, loadInputFiles, parseInputFlags } from './verify/inputs.js';
 export { DEFAULT_GATES } from './verify/gate.js';
+export { setThreads } from './eval/threads.js';
 export type * from './jobs/types.js';
 export type { Finding, LedgerEntry, FoldLedger, ReasonCode, Direction } from './fold/types.js';
 export type { CompareOptions, CompareReport, EvaluateOptions, EvaluateResult, Model };

@@ -1,7 +1,7 @@
 import type { Argv } from 'yargs';
 import { loadConfig, runSettings } from '../config.js';
 import { checkDestinations, emit, planReports, runFigures } from '../output.js';
-import { configFlags, EPILOGUE, inputFlags, int8Flags, int8Setting, reportFlags } from '../flags.js';
+import { configFlags, EPILOGUE, inputFlags, int8Flags, int8Setting, reportFlags, threadsFlag } from '../flags.js';
 
 export const command = 'compare <a> <b>';
 export const describe = 'Run two models on the same inputs and judge their agreement, output by output, against a gate';
@@ -15,14 +15,16 @@ export function builder(y: Argv) {
     .epilogue(EPILOGUE);
 }
 
-interface Flags { a: string; b: string; simulateInt8?: string; int8Granularity?: string; probes?: number; gate?: string; seed?: number; input?: string[]; shape?: string[]; dim?: string[]; json?: boolean; format?: string; report?: string[]; runFigures?: boolean; config?: string }
+interface Flags { a: string; b: string; threads?: number; simulateInt8?: string; int8Granularity?: string; probes?: number; gate?: string; seed?: number; input?: string[]; shape?: string[]; dim?: string[]; json?: boolean; format?: string; report?: string[]; runFigures?: boolean; config?: string }
 
 export async function handler(argv: Flags): Promise<void> {
   const plan = planReports(argv);
   const { config } = loadConfig(argv.config);
   const run = runSettings(config, argv);
+  const threads = threadsFlag(argv.threads);
   // loaded here, not at start-up: the gate's expression library is large, and --help or a usage error needs none of it
-  const { compare } = await import('../../src/index.js');
+  const { compare, setThreads } = await import('../../src/index.js');
+  if (threads !== undefined) setThreads(threads);
   const { renderCompare } = await import('../../src/report/render.js');
   const { EXIT } = await import('../../src/report/exit-codes.js');
   await checkDestinations(plan, { inputs: [argv.a, argv.b] });

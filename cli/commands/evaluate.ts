@@ -3,7 +3,7 @@ import { join } from 'node:path';
 import { SCHEMA_VERSION } from '../../src/jobs/types.js';
 import { loadConfig, runSettings } from '../config.js';
 import { out } from '../errors.js';
-import { configFlags, EPILOGUE, inputFlags } from '../flags.js';
+import { configFlags, EPILOGUE, inputFlags, threadsFlag } from '../flags.js';
 
 export const command = 'evaluate <model>';
 export const describe = 'Evaluate a model on given or seeded inputs and save each output as DIR/<output>.npy with an index';
@@ -17,13 +17,15 @@ export function builder(y: Argv) {
     .epilogue(EPILOGUE);
 }
 
-interface Flags { model: string; precision: 'float64' | 'float32'; save: string; json: boolean; seed?: number; input?: string[]; shape?: string[]; dim?: string[]; config?: string }
+interface Flags { model: string; precision: 'float64' | 'float32'; threads?: number; save: string; json: boolean; seed?: number; input?: string[]; shape?: string[]; dim?: string[]; config?: string }
 
 export async function handler(argv: Flags): Promise<void> {
   const { config } = loadConfig(argv.config);
   const run = runSettings(config, argv);
+  const threads = threadsFlag(argv.threads);
   // loaded here, not at start-up (see compare.ts)
-  const { evaluate, saveOutputs } = await import('../../src/index.js');
+  const { evaluate, saveOutputs, setThreads } = await import('../../src/index.js');
+  if (threads !== undefined) setThreads(threads);
   const { toJsonText } = await import('../../src/verify/compare.js');
   const r = evaluate(argv.model, { inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, precision: argv.precision, maxProbeMemory: run.maxProbeMemory });
   const saved = saveOutputs(argv.save, r.outputs);

@@ -3,7 +3,7 @@ import { SCHEMA_VERSION } from '../../src/jobs/types.js';
 import { useColour } from '../../src/report/format.js';
 import { keepList, loadConfig, runSettings } from '../config.js';
 import { out } from '../errors.js';
-import { configFlags, EPILOGUE, inputFlags, many } from '../flags.js';
+import { configFlags, EPILOGUE, inputFlags, many, threadsFlag } from '../flags.js';
 
 export const command = 'export <model>';
 export const describe = 'Fold and prove, then write the folded weights for device runtimes (safetensors + JSON manifest, or C source)';
@@ -22,14 +22,16 @@ export function builder(y: Argv) {
 
 interface Flags {
   model: string; bundle: string; bundleFormat: 'safetensors' | 'c'; keep?: string[]; gate?: string; probes?: number; seed?: number;
-  input?: string[]; shape?: string[]; dim?: string[]; json: boolean; config?: string;
+  input?: string[]; shape?: string[]; dim?: string[]; json: boolean; config?: string; threads?: number;
 }
 
 export async function handler(argv: Flags): Promise<void> {
   const { config } = loadConfig(argv.config);
   const run = runSettings(config, argv);
+  const threads = threadsFlag(argv.threads);
   // loaded here, not at start-up (see compare.ts)
-  const { exportFile } = await import('../../src/index.js');
+  const { exportFile, setThreads } = await import('../../src/index.js');
+  if (threads !== undefined) setThreads(threads);
   const { toJsonText } = await import('../../src/verify/compare.js');
   const { exportText } = await import('../../src/report/export-text.js');
   const { EXIT } = await import('../../src/report/exit-codes.js');

@@ -8,6 +8,7 @@
 // layout for a fast scalar matrix multiply. Sums are in float64; a Float32Array C rounds once per k-block.
 import type { NumArray } from './value.js';
 import { simdKernels, type SimdKernels } from './wasm-gemm.js';
+import { inBands, PARALLEL_MIN_WORK, sharedArray, threadCount } from './threads.js';
 import { isConstant } from './pool.js';
 
 export interface Operand {
@@ -84,7 +85,9 @@ export function gemm(M: number, N: number, K: number, A: Operand, B: Operand, C:
   // the SIMD path packs all of A into module memory; very large operands stay on the scalar path
   const simdBytes = (Math.ceil(M / 4) * 4 * K + K * SNC + SMC * SNC) * 8;
   if (simd && M * N * K >= 512 && simdBytes <= 1 << 29) {
+    const threads = threadCount();
     if (M === 1 && !(C instanceof Float32Array)) gemv(N, K, A, B, C, cOff, accumulate);
+    else if (threads > 1 && M >= 8 && M * N * K >= PARALLEL_MIN_WORK) gemmThreaded(simd, threads, M, N, K, A, B, C, cOff, ldc, accumulate);
     else gemmSimd(simd, M, N, K, A, B, C, cOff, ldc, accumulate);
     return;
   }
@@ -285,4 +288,39 @@ function gemmSimd(simd: SimdKernels, M: number, N: number, K: number, A: Operand
       }
     }
   }
+}
+
+/** Copy an operand's M x K elements into a row-major array (exact when widening; the same rounding a pack does when narrowing). */
+function copyRowMajor(X: Operand, rows: number, cols: number, out: Float32Array | Float64Array): void {
+  const d = X.data, rs = X.rs, cs = X.cs;
+  if (cs === 1 && rs === cols) { out.set(d.subarray(X.off, X.off + rows * cols)); return; }
+  for (let i = 0; i < rows; i++) {
+    const base = X.off + i * rs, o = i * cols;
+    if (cs === 1) out.set(d.subarray(base, base + cols), o);
+    else for (let k = 0; k < cols; k++) out[o + k] = d[base + k * cs]!;
+  }
+}
+
+/**
+ * gemmSimd split into bands of rows across worker threads (src/eval/threads.ts). The operands are copied into
+ * shared memory in the kernel's element type (C's), which is what packing them would do, and every element is
+ * the same sum over k as on one thread: bit-identical results for any thread count.
+ */
+function gemmThreaded(simd: SimdKernels, threads: number, M: number, N: number, K: number, A: Operand, B: Operand, C: NumArray, cOff: number, ldc: number, accumulate: boolean): void {
+  const f64 = !(C instanceof Float32Array);
+  const sa = sharedArray('a', M * K, f64), sb = sharedArray('b', K * N, f64), sc = sharedArray('c', M * N, f64);
+  copyRowMajor(A, M, K, sa);
+  copyRowMajor(B, K, N, sb);
+  inBands(M, threads, { f64, M, N, K, a: sa.buffer as SharedArrayBuffer, b: sb.buffer as SharedArrayBuffer, c: sc.buffer as SharedArrayBuffer },
+    (i0, i1) => gemmBand(simd, i0, i1, N, K, sa, sb, sc));
+  for (let i = 0; i < M; i++) {
+    const dst = cOff + i * ldc, src = i * N;
+    if (accumulate) for (let j = 0; j < N; j++) C[dst + j] += sc[src + j]!;
+    else C.set(sc.subarray(src, src + N), dst);
+  }
+}
+
+/** Rows [i0, i1) of C = A * B over row-major shared operands (a worker's band, or the calling thread's). */
+export function gemmBand(simd: SimdKernels, i0: number, i1: number, N: number, K: number, A: Float32Array | Float64Array, B: Float32Array | Float64Array, C: Float32Array | Float64Array): void {
+  gemmSimd(simd, i1 - i0, N, K, rowMajor(A, i0 * K, K), rowMajor(B, 0, N), C, i0 * N, N, false);
 }

@@ -10,6 +10,7 @@
 //   releasePool()                    -> drop every pooled buffer (memory goes back to the garbage collector)
 //   markConstant(arr) / isConstant(arr) -> arrays that never change once made (decoded initializers), so
 //                                       kernels may cache data derived from them (gemm's packed weights)
+//   markTransient(arr)               -> a large weight decoded for one node only (constant while it lives)
 // Kernels allocate through allocFloat (attrs.ts) or these functions; they must not keep a taken array after
 // returning it as a result.
 import type { NumArray } from './value.js';
@@ -69,4 +70,11 @@ const constants = new WeakSet<NumArray>();
 
 export function markConstant(a: NumArray): void { constants.add(a); }
 
-export function isConstant(a: NumArray): boolean { return constants.has(a); }
+export function isConstant(a: NumArray): boolean { return constants.has(a) || transients.has(a); }
+
+// Large weights decoded for one node and dropped after it: constant while they live (never reused, copied when
+// handed out); data derived from them (gemm's packed tiles) lives as long as they do.
+const transients = new WeakSet<NumArray>();
+
+export function markTransient(a: NumArray): void { transients.add(a); }
+

@@ -1,10 +1,11 @@
 // The reference evaluator: runs a graph's nodes in list order (ONNX requires topological order), each through
 // its registered kernel, freeing intermediate values once their last reader has run.
 import { PleatError } from '../errors.js';
-import { opsetVersion, subgraphsOf, elementCount, type Graph, type Model, type Node, type Tensor } from '../graph/ir.js';
+import { DataType, opsetVersion, subgraphsOf, elementCount, type Graph, type Model, type Node, type Tensor } from '../graph/ir.js';
+import { peekBytes } from '../graph/lazy-bytes.js';
 import { isFloatType, tensorToFloat64, dataTypeName } from '../graph/tensor.js';
 import { getKernel } from './registry.js';
-import { giveBack, isConstant, isPooled, markConstant } from './pool.js';
+import { giveBack, isConstant, isPooled, markConstant, markTransient } from './pool.js';
 import { charge, evaluating, liveBytes, release, resetLive } from './budget.js';
 import type { KernelContext, NumArray, Precision, Value } from './value.js';
 
@@ -12,7 +13,7 @@ export interface RunOptions { precision: Precision; }
 
 export interface GraphRunOptions extends RunOptions {
   opsetOf: (domain: string) => number;
-  outer?: Map<string, Value>;
+  outer?: OuterValues;
 }
 
 /** Turn an initializer/Constant tensor into a Value in the given precision. */
@@ -22,20 +23,66 @@ export function tensorToValue(t: Tensor, precision: Precision): Value {
   return { type: t.dataType, dims: [...t.dims], data };
 }
 
-// Decoded initializers, so repeated runs of one model (probes, both precisions) decode each weight once. Keyed
-// by the storage object, which every edit replaces (setTensorValues); dims and type are checked as well.
+// Small decoded initializers are kept, so repeated runs of one model (probes, both precisions) decode each once.
+// Keyed by the storage object, which every edit replaces (setTensorValues); dims and type are checked as well.
+// Large ones are decoded when the node reading them runs and dropped after it (a model's weights may not fit
+// in memory twice over, and most sit on disk until read: see src/onnx/sparse-read.ts).
 interface Decoded { dims: string; type: number; f64?: Float64Array; f32?: Float32Array }
 const decoded = new WeakMap<object, Decoded>();
 
-function initializerValue(t: Tensor, precision: Precision): Value {
+/** Initializers with more elements than this are decoded per use and not kept. */
+export const KEEP_DECODED_MAX = 1 << 16;
+
+/** A float32 tensor's values straight from its raw bytes (a view when aligned: no conversion, no copy). */
+function rawFloat32(t: Tensor): Float32Array | undefined {
+  const s = t.storage;
+  if (t.dataType !== DataType.FLOAT || (s.kind !== 'raw' && s.kind !== 'external')) return undefined;
+  const n = elementCount(t.dims);
+  if (s.bytes.byteLength < n * 4) return undefined; // the general decoder reports it
+  const bytes = peekBytes(s.bytes.subarray(0, n * 4));
+  if ((bytes.byteOffset & 3) === 0) return new Float32Array(bytes.buffer, bytes.byteOffset, n);
+  return new Float32Array(new Uint8Array(bytes).buffer, 0, n); // a copy (a Buffer's slice would be a view)
+}
+
+function decodeFor(t: Tensor, precision: Precision): NumArray {
+  if (precision === 'float32') {
+    const raw = rawFloat32(t);
+    if (raw) return raw;
+  }
+  return tensorToValue(t, precision).data;
+}
+
+/**
+ * Decoded large weights shared by several runs stepping through one model together (the probes of a lockstep
+ * check): the driver clears it after every run has taken the node, so each weight is decoded once per pass.
+ */
+export class WeightCache {
+  private readonly held = new Map<Tensor, NumArray>();
+  /** `shared`: the cache is the only one its runs use (no decoded tensor is kept across steps at all). */
+  constructor(readonly shared = false) {}
+  get(t: Tensor, precision: Precision): NumArray {
+    let d = this.held.get(t);
+    if (!d) {
+      d = decodeFor(t, precision);
+      // only large weights are marked (a weak set of every small tensor of a large graph costs the collector
+      // more than the whole evaluation); a kernel never writes over a decoded tensor, which is not pooled
+      if (elementCount(t.dims) > KEEP_DECODED_MAX) markTransient(d);
+      this.held.set(t, d);
+    }
+    return d;
+  }
+  clear(): void { this.held.clear(); }
+}
+
+function initializerValue(t: Tensor, precision: Precision, weights: WeightCache): Value {
+  if (weights.shared || elementCount(t.dims) > KEEP_DECODED_MAX) return { type: t.dataType, dims: [...t.dims], data: weights.get(t, precision) };
   const key = t.dims.join(',');
   let d = decoded.get(t.storage);
   if (!d || d.dims !== key || d.type !== t.dataType) { d = { dims: key, type: t.dataType }; decoded.set(t.storage, d); }
   const f32 = precision === 'float32' && isFloatType(t.dataType);
   let data: NumArray | undefined = f32 ? d.f32 : d.f64;
   if (!data) {
-    const v = tensorToValue(t, precision);
-    data = v.data;
+    data = decodeFor(t, precision);
     if (f32) d.f32 = data as Float32Array; else d.f64 = data as Float64Array;
     markConstant(data);
   }
@@ -75,61 +122,86 @@ function readsOf(n: Node): string[] {
   return [...s];
 }
 
-/** Evaluate a graph with outer-scope values (for subgraphs and for proving a fragment). */
-export function runGraph(graph: Graph, inputs: Map<string, Value>, opts: GraphRunOptions): Map<string, Value> {
-  const liveAtStart = liveBytes();
-  try {
-    return runNodes(graph, inputs, opts);
-  } finally {
-    resetLive(liveAtStart); // what is returned belongs to the caller; a failed run holds nothing
+/** Values visible from enclosing scopes (a Map is one). */
+export interface OuterValues { get(name: string): Value | undefined }
+
+/**
+ * One run of a graph, a node at a time (`step`), so several runs can advance together: the probes of a check,
+ * and the original and folded model in lockstep. Intermediate values are dropped once their last reader has
+ * run; large weights are decoded when their node runs and dropped after it.
+ */
+export class GraphRun {
+  private readonly env = new Map<string, Value>();
+  private readonly inits = new Map<string, Tensor>();
+  private readonly keep: Set<string>;
+  private readonly reads: string[][];
+  private readonly lastUse = new Map<string, number>();
+  private readonly foreign = new Set<NumArray>();
+  private readonly holders = new Map<NumArray, number>();
+  private readonly weights: WeightCache;
+  private readonly ownWeights: boolean;
+  private idx = 0;
+
+  constructor(readonly graph: Graph, inputs: Map<string, Value>, private readonly opts: GraphRunOptions & { weights?: WeightCache }) {
+    for (const t of graph.initializers) this.inits.set(t.name, t);
+    for (const [k, v] of inputs) this.env.set(k, inPrecision(v, opts.precision));
+    // Buffers from the pool are handed back once no live value of this graph holds them. Arrays the caller or
+    // an enclosing scope can still see are never handed back.
+    for (const v of inputs.values()) this.foreign.add(v.data);
+    this.weights = opts.weights ?? new WeightCache();
+    this.ownWeights = !opts.weights;
+    // last reader of each value, so intermediates can be dropped as soon as nobody needs them
+    this.keep = new Set(graph.outputs.map((o) => o.name));
+    this.reads = graph.nodes.map(readsOf);
+    this.reads.forEach((names, i) => { for (const x of names) this.lastUse.set(x, i); });
   }
-}
 
-function runNodes(graph: Graph, inputs: Map<string, Value>, opts: GraphRunOptions): Map<string, Value> {
-  const { precision, opsetOf } = opts;
-  const outer = opts.outer;
-  const env = new Map<string, Value>();
-  for (const t of graph.initializers) env.set(t.name, initializerValue(t, precision));
-  for (const [k, v] of inputs) env.set(k, inPrecision(v, precision));
+  get done(): boolean { return this.idx >= this.graph.nodes.length; }
+  /** Share of the nodes run so far. */
+  get progress(): number { return this.graph.nodes.length ? this.idx / this.graph.nodes.length : 1; }
+  /** The node the next step runs. */
+  get next(): Node | undefined { return this.graph.nodes[this.idx]; }
 
-  const lookup = (name: string): Value | undefined => env.get(name) ?? outer?.get(name);
+  private lookup(name: string): Value | undefined {
+    const v = this.env.get(name);
+    if (v) return v;
+    const t = this.inits.get(name);
+    if (t) return initializerValue(t, this.opts.precision, this.weights);
+    const o = this.opts.outer?.get(name);
+    if (o) this.foreign.add(o.data);
+    return o;
+  }
 
-  // Buffers from the pool are handed back once no live value of this graph holds them. Arrays the caller or an
-  // enclosing scope can still see are never handed back.
-  const foreign = new Set<NumArray>();
-  for (const v of inputs.values()) foreign.add(v.data);
-  if (outer) for (const v of outer.values()) foreign.add(v.data);
-  const holders = new Map<NumArray, number>();
   // values alive count against the probe memory limit (budget.ts) while some name holds them
-  const hold = (v: Value) => {
+  private hold(v: Value): void {
     if (!isPooled(v.data)) return;
-    const n = holders.get(v.data) ?? 0;
+    const n = this.holders.get(v.data) ?? 0;
     if (n === 0) charge(v.data.byteLength);
-    holders.set(v.data, n + 1);
-  };
-  const drop = (name: string) => {
-    const v = env.get(name);
+    this.holders.set(v.data, n + 1);
+  }
+
+  private drop(name: string): void {
+    const v = this.env.get(name);
     if (!v) return;
-    env.delete(name);
-    const n = holders.get(v.data);
+    this.env.delete(name);
+    const n = this.holders.get(v.data);
     if (n === undefined) return;
-    if (n > 1) { holders.set(v.data, n - 1); return; }
-    holders.delete(v.data);
+    if (n > 1) { this.holders.set(v.data, n - 1); return; }
+    this.holders.delete(v.data);
     release(v.data.byteLength);
-    if (!foreign.has(v.data)) giveBack(v.data);
-  };
+    if (!this.foreign.has(v.data)) giveBack(v.data);
+  }
 
-  // last reader of each value, so intermediates can be dropped as soon as nobody needs them
-  const keep = new Set(graph.outputs.map((o) => o.name));
-  const reads = graph.nodes.map(readsOf);
-  const lastUse = new Map<string, number>();
-  reads.forEach((names, i) => { for (const x of names) lastUse.set(x, i); });
-
-  graph.nodes.forEach((node, idx) => {
+  /** Run the next node. */
+  step(): void {
+    const idx = this.idx++;
+    const node = this.graph.nodes[idx]!;
+    const { precision, opsetOf } = this.opts;
+    const env = this.env, keep = this.keep, lastUse = this.lastUse;
     evaluating(`node '${node.name || '(unnamed)'}' (${node.opType})`);
     const args: Array<Value | undefined> = node.inputs.map((name) => {
       if (name === '') return undefined;
-      const v = lookup(name);
+      const v = this.lookup(name);
       if (!v) {
         throw new PleatError('bad-model',
           `node '${node.name || '(unnamed)'}' (${node.opType}) reads '${name}', which no graph input, initializer or earlier node defines`);
@@ -141,14 +213,12 @@ function runNodes(graph: Graph, inputs: Map<string, Value>, opts: GraphRunOption
     const kernel = getKernel(domain, node.opType, opset, node.name || '(unnamed)');
     const ctx: KernelContext = {
       node, opset, precision,
-      runSubgraph(sub: Graph, extra?: Map<string, Value>): Value[] {
+      runSubgraph: (sub: Graph, extra?: Map<string, Value>): Value[] => {
         // the subgraph sees this scope's live values and everything outer to it
-        const scope = new Map<string, Value>(outer ?? []);
-        for (const [k, v] of env) scope.set(k, v);
-        const res = runGraph(sub, extra ?? new Map(), { precision, opsetOf, outer: scope });
+        const res = runGraph(sub, extra ?? new Map(), { precision, opsetOf, outer: { get: (k) => this.lookup(k) } });
         return sub.outputs.map((o) => res.get(o.name)!);
       },
-      reusable(i: number): boolean {
+      reusable: (i: number): boolean => {
         // the input's array is pooled, held by this one name only, which nothing reads after this node (no
         // graph output, no later node, no second input slot, not redefined by this node) and which is not the
         // caller's or an enclosing scope's
@@ -156,7 +226,7 @@ function runNodes(graph: Graph, inputs: Map<string, Value>, opts: GraphRunOption
         if (!name || keep.has(name) || lastUse.get(name) !== idx || !env.has(name)) return false;
         if (node.inputs.indexOf(name) !== i || node.inputs.lastIndexOf(name) !== i || node.outputs.includes(name)) return false;
         const data = env.get(name)!.data;
-        return holders.get(data) === 1 && !foreign.has(data);
+        return this.holders.get(data) === 1 && !this.foreign.has(data);
       },
     };
     let results: Value[];
@@ -174,26 +244,43 @@ function runNodes(graph: Graph, inputs: Map<string, Value>, opts: GraphRunOption
       if (v.data.length !== elementCount(v.dims)) {
         throw new PleatError('bad-model', `node '${node.name}' (${node.opType}): output '${name}' has ${v.data.length} values for dims [${v.dims.join(',')}]`);
       }
-      if (env.has(name)) drop(name); // a name defined twice (invalid SSA) must not leak its hold
+      if (env.has(name)) this.drop(name); // a name defined twice (invalid SSA) must not leak its hold
       env.set(name, v);
-      hold(v);
+      this.hold(v);
     });
-    node.outputs.forEach((name) => { if (name && !keep.has(name) && !lastUse.has(name)) drop(name); });
-    for (const name of reads[idx]!) if (lastUse.get(name) === idx && !keep.has(name)) drop(name);
-  });
-
-  const out = new Map<string, Value>();
-  for (const o of graph.outputs) {
-    const v = lookup(o.name);
-    if (!v) throw new PleatError('bad-model', `graph '${graph.name}': output '${o.name}' is never computed`);
-    // a cached initializer handed to the caller is a copy, so the caller may change it freely
-    out.set(o.name, isConstant(v.data) ? { ...v, data: v.data.slice() } : v);
+    node.outputs.forEach((name) => { if (name && !keep.has(name) && !lastUse.has(name)) this.drop(name); });
+    for (const name of this.reads[idx]!) if (lastUse.get(name) === idx && !keep.has(name)) this.drop(name);
+    if (this.ownWeights) this.weights.clear();
   }
-  return out;
+
+  /** The graph's outputs (after the last step). */
+  outputs(): Map<string, Value> {
+    const out = new Map<string, Value>();
+    for (const o of this.graph.outputs) {
+      const v = this.lookup(o.name);
+      if (!v) throw new PleatError('bad-model', `graph '${this.graph.name}': output '${o.name}' is never computed`);
+      // a decoded initializer handed to the caller is a copy, so the caller may change it freely
+      out.set(o.name, isConstant(v.data) || (!this.env.has(o.name) && this.inits.has(o.name)) ? { ...v, data: v.data.slice() } : v);
+    }
+    if (this.ownWeights) this.weights.clear();
+    return out;
+  }
 }
 
-/** Evaluate a whole model. inputs: graph inputs by name (initializer-backed inputs default to the initializer). Returns graph outputs in graph order. */
-export function runModel(model: Model, inputs: Map<string, Value>, opts: RunOptions): Map<string, Value> {
+/** Evaluate a graph with outer-scope values (for subgraphs and for proving a fragment). */
+export function runGraph(graph: Graph, inputs: Map<string, Value>, opts: GraphRunOptions): Map<string, Value> {
+  const liveAtStart = liveBytes();
+  try {
+    const run = new GraphRun(graph, inputs, opts);
+    while (!run.done) run.step();
+    return run.outputs();
+  } finally {
+    resetLive(liveAtStart); // what is returned belongs to the caller; a failed run holds nothing
+  }
+}
+
+/** A model's graph, inputs and opset lookup, checked for a run (see runModel). */
+export function prepareRun(model: Model, inputs: Map<string, Value>): { graph: Graph; given: Map<string, Value>; opsetOf: (domain: string) => number } {
   const g = model.graph;
   const inits = new Set(g.initializers.map((t) => t.name));
   for (const i of g.inputs) {
@@ -219,5 +306,11 @@ export function runModel(model: Model, inputs: Map<string, Value>, opts: RunOpti
     if (v === undefined) throw new PleatError('bad-model', `the model uses domain '${domain || 'ai.onnx'}' but imports no opset for it`);
     return v;
   };
-  return runGraph(g, given, { precision: opts.precision, opsetOf });
+  return { graph: g, given, opsetOf };
+}
+
+/** Evaluate a whole model. inputs: graph inputs by name (initializer-backed inputs default to the initializer). Returns graph outputs in graph order. */
+export function runModel(model: Model, inputs: Map<string, Value>, opts: RunOptions): Map<string, Value> {
+  const { graph, given, opsetOf } = prepareRun(model, inputs);
+  return runGraph(graph, given, { precision: opts.precision, opsetOf });
 }

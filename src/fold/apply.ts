@@ -148,6 +148,7 @@ export function applyEdit(ctx: FoldContext, edit: Edit, opts: { inPlace: boolean
     const pg = p;
     for (const n of edit.removeNodes) pg.removed.add(n);
     for (const ins of edit.inserts) pg.inserts.set(ins.after, [...(pg.inserts.get(ins.after) ?? []), ins.node]);
+    const initsAt = pg.initializers.length, inputsAt = pg.inputs.length;
     pg.initializers.push(...edit.newInitializers);
     // Before IR version 4 every initializer of the main graph must also be a graph input.
     const newInputs = ctx.irVersion < 4 && !edit.scope.parent
@@ -157,8 +158,13 @@ export function applyEdit(ctx: FoldContext, edit: Edit, opts: { inPlace: boolean
     undo.push(() => {
       for (const n of edit.removeNodes) pg.removed.delete(n);
       for (const ins of edit.inserts) pg.inserts.set(ins.after, (pg.inserts.get(ins.after) ?? []).filter((x) => x !== ins.node));
-      pg.initializers = pg.initializers.filter((t) => !edit.newInitializers.includes(t));
-      pg.inputs = pg.inputs.filter((v) => !newInputs.includes(v));
+      // undone right after it was applied (a failed proof, or a proven fold applied again in place), the edit's
+      // additions are still the tail of the lists: cut them off instead of filtering lists as long as the graph
+      const tail = <T>(list: T[], at: number, added: T[]) => list.length === at + added.length && added.every((x, i) => list[at + i] === x);
+      if (tail(pg.initializers, initsAt, edit.newInitializers)) pg.initializers.length = initsAt;
+      else pg.initializers = pg.initializers.filter((t) => !edit.newInitializers.includes(t));
+      if (tail(pg.inputs, inputsAt, newInputs)) pg.inputs.length = inputsAt;
+      else pg.inputs = pg.inputs.filter((v) => !newInputs.includes(v));
     });
   }
   for (const ins of edit.inserts) ctx.generated.add(ins.node);

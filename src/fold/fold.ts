@@ -58,7 +58,8 @@ function sweep(ctx: FoldContext, model: Model, folded: LedgerEntry[], released: 
       const edit = newEdit(scope);
       m.rule.rewrite(ctx, m, edit);
       const before = prove ? regionBefore(edit) : undefined;
-      const undo = applyEdit(ctx, edit, { inPlace: !prove && (ctx.options.reuseBuffers ?? true) });
+      const inPlace = ctx.options.reuseBuffers ?? true;
+      const undo = applyEdit(ctx, edit, { inPlace: !prove && inPlace });
       const names = run.steps.map((x) => ctx.labels.get(x.node) ?? x.node.name);
       for (const n of [...involved, m.layer.node]) dirty.add(n);
       changed = true;
@@ -66,6 +67,13 @@ function sweep(ctx: FoldContext, model: Model, folded: LedgerEntry[], released: 
         undo();
         for (const x of run.steps) ctx.proofFailed.add(x.node);
         continue;
+      }
+      if (prove && inPlace) {
+        // The proof ran on a scaled copy of each weight; once proven, the copy goes and the weight is scaled where
+        // it lies (on its way to the output, for weights still on disk), as an unproven fold does: the same
+        // products rounded the same way, without holding every folded weight in memory.
+        undo();
+        applyEdit(ctx, edit, { inPlace: true });
       }
       const hint = foldHint(m);
       for (const x of run.steps) {

@@ -116,11 +116,6 @@ function figuresOfLayer(scope: Scope, n: Node): LayerFigures | undefined {
   };
 }
 
-/** A scope's node by ledger label (name, or op#index when unnamed). */
-function byLabel(scope: Scope, label: string): Node | undefined {
-  return scope.graph.nodes.find((n) => labelOf(scope, n) === label);
-}
-
 const LINEAR = new Set(['Conv', 'ConvTranspose', 'Gemm', 'MatMul']);
 const FLOAT_TYPES = new Set<number>([DataType.FLOAT, DataType.DOUBLE, DataType.FLOAT16, DataType.BFLOAT16]);
 
@@ -143,17 +138,41 @@ export function roundedWeightsModel(model: Model, granularity: Int8Granularity):
   return { model: withSwappedTensors(model, (t) => rounded.get(t)), layers: rounded.size };
 }
 
+/** Index of a scope's nodes, built once per scope (a lookup per folded layer would make the report quadratic). */
+interface NodeIndex {
+  /** Node by ledger label (name, or op#index when unnamed); the first one wins. */
+  byLabel: Map<string, Node>;
+  /** Linear nodes by name; unnamed ones by their output and by their data input (the first one wins). */
+  linearByName: Map<string, Node>;
+  unnamedByOutput: Map<string, Node>;
+  unnamedByInput: Map<string, Node>;
+}
+
+function indexOf(scope: Scope, cache: Map<Scope, NodeIndex>): NodeIndex {
+  let ix = cache.get(scope);
+  if (ix) return ix;
+  ix = { byLabel: new Map(), linearByName: new Map(), unnamedByOutput: new Map(), unnamedByInput: new Map() };
+  for (const n of scope.graph.nodes) {
+    const label = labelOf(scope, n);
+    if (!ix.byLabel.has(label)) ix.byLabel.set(label, n);
+    if (!LINEAR.has(n.opType)) continue;
+    if (n.name) { if (!ix.linearByName.has(n.name)) ix.linearByName.set(n.name, n); continue; }
+    if (n.outputs[0] !== undefined && !ix.unnamedByOutput.has(n.outputs[0])) ix.unnamedByOutput.set(n.outputs[0], n);
+    if (n.inputs[0] !== undefined && !ix.unnamedByInput.has(n.inputs[0])) ix.unnamedByInput.set(n.inputs[0], n);
+  }
+  cache.set(scope, ix);
+  return ix;
+}
+
 /**
  * The folded model's node for a target of the original. Named nodes keep their names through a fold; an
  * unnamed one's op#index label shifts when nodes before it are removed, so it is found by the values it
  * shares with the original: its output (kept by a fold into the consumer) or its data input (kept by a fold
  * into the producer).
  */
-function counterpart(after: Scope, original: Node): Node | undefined {
-  const linear = after.graph.nodes.filter((n) => LINEAR.has(n.opType));
-  if (original.name) return linear.find((n) => n.name === original.name);
-  return linear.find((n) => !n.name && n.outputs[0] === original.outputs[0])
-    ?? linear.find((n) => !n.name && n.inputs[0] === original.inputs[0]);
+function counterpart(after: NodeIndex, original: Node): Node | undefined {
+  if (original.name) return after.linearByName.get(original.name);
+  return after.unnamedByOutput.get(original.outputs[0]!) ?? after.unnamedByInput.get(original.inputs[0]!);
 }
 
 function scopeFor(scopes: Scope[], others: Scope[], path: string): Scope | undefined {
@@ -174,13 +193,14 @@ export function quantReadiness(before: Model, after: Model, ledger: readonly Led
   }
   if (groups.size === 0) return [];
   const sb = buildScopes(before), sa = buildScopes(after);
+  const index = new Map<Scope, NodeIndex>();
   const rows: QuantRow[] = [];
   for (const g of groups.values()) {
     const scopeB = scopeFor(sb, sb, g.graph), scopeA = scopeFor(sa, sb, g.graph);
     if (!scopeB || !scopeA) continue;
-    const nb = byLabel(scopeB, g.target);
+    const nb = indexOf(scopeB, index).byLabel.get(g.target);
     if (!nb) continue;
-    const na = counterpart(scopeA, nb);
+    const na = counterpart(indexOf(scopeA, index), nb);
     if (!na) continue;
     const b = figuresOfLayer(scopeB, nb), a = figuresOfLayer(scopeA, na);
     if (!b || !a) continue;

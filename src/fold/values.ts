@@ -1,10 +1,10 @@
 // Reading and writing the big weights. Float32 raw data (the common case) is read through a Float32Array view
 // and scaled where it lies, each product computed in float64 and rounded once on store, with no float64 copy
 // of the whole tensor; other types and storage forms go through the general codecs in src/graph/tensor.ts.
-import { DataType, elementCount, type Tensor } from '../graph/ir.js';
+import { DataType, elementCount, type Tensor, type TensorStorage } from '../graph/ir.js';
 import { tensorToFloat64 } from '../graph/tensor.js';
 import { setTensorValues, touch } from '../graph/edit.js';
-import { deferTransform, ensureLoaded, isOnDisk, scanView } from '../onnx/sparse-read.js';
+import { deferTransform, ensureLoaded, isOnDisk, peekBytes, scanView } from '../onnx/sparse-read.js';
 import { scaleRawFloat32, scaleWeights, type ChannelMap } from './weights.js';
 
 function rawFloat32(t: Tensor): Uint8Array | undefined {
@@ -14,8 +14,9 @@ function rawFloat32(t: Tensor): Uint8Array | undefined {
 }
 
 /** A Float32Array over raw bytes: a view when aligned, else an aligned copy (Buffer.slice would only be a view). */
-function float32Of(bytes: Uint8Array): { f32: Float32Array; copied: boolean } {
-  ensureLoaded(bytes); // large payloads may still be on disk (see src/onnx/sparse-read.ts)
+function float32Of(view: Uint8Array): { f32: Float32Array; copied: boolean } {
+  // large payloads may still be on disk (see src/onnx/sparse-read.ts): read for this use, not kept in memory
+  const bytes = peekBytes(view);
   const n = bytes.byteLength / 4;
   if ((bytes.byteOffset & 3) === 0) return { f32: new Float32Array(bytes.buffer, bytes.byteOffset, n), copied: false };
   const aligned = new Uint8Array(bytes.byteLength);
@@ -147,6 +148,19 @@ export function scaleTensor(t: Tensor, map: ChannelMap, scale: Float64Array, inP
       const m = scaleRawFloat32(bytes, map, scale, true); // (not inside guard?.(): that would skip it)
       guard?.(m);
     }
+    // a new storage object over the same bytes: values decoded from the old one (the evaluator keeps small decoded
+    // tensors by storage object) must not be taken for the scaled ones
+    t.storage = { ...t.storage };
+    touch(t);
+    return;
+  }
+  if (bytes) {
+    // a scaled copy in the tensor's own float32 bytes: each product in float64, rounded once on store, as above
+    const copy = new Uint8Array(peekBytes(bytes));
+    const m = scaleFloat32Block(copy, 0, map, scale, true); // (not inside guard?.(): that would skip it)
+    guard?.(m);
+    const s = t.storage as Extract<TensorStorage, { kind: 'raw' | 'external' }>;
+    t.storage = s.kind === 'raw' ? { kind: 'raw', bytes: copy } : { kind: 'external', entries: s.entries, bytes: copy };
     touch(t);
     return;
   }

@@ -2,7 +2,7 @@
 // in the tensor's own type and storage form.
 import { DataType, elementCount, type DataTypeCode, type Tensor, type TensorStorage } from './ir.js';
 import { PleatError } from '../errors.js';
-import { ensureLoaded, markLoaded } from './lazy-bytes.js';
+import { ensureLoaded, markLoaded, peekBytes } from './lazy-bytes.js';
 
 const NAMES: Record<number, string> = {
   0: 'undefined', 1: 'float32', 2: 'uint8', 3: 'int8', 4: 'uint16', 5: 'int16', 6: 'int32', 7: 'int64',
@@ -144,7 +144,7 @@ export function tensorToFloat64(t: Tensor): Float64Array {
   const out = new Float64Array(n);
   const s = t.storage;
   switch (s.kind) {
-    case 'raw': case 'external': ensureLoaded(s.bytes); readRaw(s.bytes, t.dataType, n, out); break;
+    case 'raw': case 'external': readRaw(peekBytes(s.bytes), t.dataType, n, out); break; // on-disk bytes are read, not kept
     case 'float_data': case 'double_data': for (let i = 0; i < n; i++) out[i] = s.values[i]!; break;
     case 'int32_data':
       if (t.dataType === DataType.FLOAT16) for (let i = 0; i < n; i++) out[i] = halfBitsToNumber(s.values[i]! & 0xffff);

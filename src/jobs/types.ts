@@ -43,6 +43,8 @@ export interface CheckSummary {
   /** Set when no whole-model comparison ran, saying why (e.g. a dynamic dim no flag resolves). */
   skipped: string | null;
   probes: number;
+  /** The arithmetic both models ran in (float64: see CHECK_ARITHMETIC in jobs/fold.ts); absent when skipped. */
+  arithmetic?: 'float32' | 'float64';
   seed: number;
   /** The gate expression used for each output (default per data type unless --gate). */
   gates: string[];
@@ -131,6 +133,8 @@ export interface FoldJobOptions extends InputOptions {
   noProofs?: boolean;
   /** Tensors of at least this many bytes go to a side file. */
   externalThreshold?: number;
+  /** Threads for Conv, Gemm and MatMul in the proofs and the check (default: the available cores). */
+  threads?: number;
   /** Flag folded layers whose worst channel's per-tensor 8-bit SQNR is below this (dB); default QUANT_THRESHOLD_DB. */
   quantThresholdDb?: number;
   /** Cross-layer equalization after folding (Nagel et al. 2019, section 4.1). */

@@ -122,6 +122,37 @@ export function ensureLoaded(view: Uint8Array): void {
   src.deferred = src.deferred.filter((d) => !hit.includes(d));
 }
 
+/**
+ * A view's bytes as they would be loaded (deferred changes applied), without keeping them: bytes still on disk are
+ * read into a fresh buffer that the caller may drop, so decoding a large weight for one use does not leave it in
+ * the file's buffer. Returns the view itself when nothing of it is on disk.
+ */
+export function peekBytes(view: Uint8Array): Uint8Array {
+  const src = sources.get(view.buffer);
+  if (!src || !src.pending.length) return view;
+  const a = view.byteOffset - src.byteOffset, b = a + view.byteLength;
+  const parts = pendingIn(src, view);
+  if (!parts.length) return view;
+  // a deferred change covers its whole range at once: one that reaches outside this view is applied the usual way
+  const hit = src.deferred.filter((d) => d.end > a && d.start < b);
+  if (hit.some((d) => d.start < a || d.end > b)) { ensureLoaded(view); return view; }
+  const out = new Uint8Array(view.byteLength);
+  // the parts already in memory (untouched pending pages of the file's buffer are not read, so they stay unmapped)
+  let at = a;
+  for (const [s, e] of [...parts, [b, b] as [number, number]]) {
+    if (s > at) out.set(view.subarray(at - a, s - a), at - a);
+    at = e;
+  }
+  const fd = reopenSource(src);
+  try {
+    for (const [s, e] of parts) readFully(fd, out, s - a, e - a, src.path, s);
+  } finally {
+    closeSync(fd);
+  }
+  for (const d of hit) d.fn(out.subarray(d.start - a, d.end - a), d.start - d.viewStart);
+  return out;
+}
+
 /** The view's bytes were overwritten in memory: they no longer come from the file (nor do changes deferred on them). */
 export function markLoaded(view: Uint8Array): void {
   const src = sources.get(view.buffer);
@@ -267,4 +298,4 @@ export function openForRead(path: string): number {
 }
 
 // Tensor decoding in the graph layer reaches the file through these two (src/graph/lazy-bytes.ts).
-setByteBacking({ ensureLoaded, markLoaded });
+setByteBacking({ ensureLoaded, markLoaded, peekBytes });

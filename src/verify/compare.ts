@@ -6,7 +6,7 @@
 import type { DataTypeCode, Model } from '../graph/ir.js';
 import { basename } from 'node:path';
 import type { Precision, Value } from '../eval/value.js';
-import { runModel } from '../eval/run.js';
+import { runLockstep } from '../eval/lockstep.js';
 import { withProbeMemory } from '../eval/budget.js';
 import { checkProbeEstimate } from './probe-budget.js';
 import { PleatError } from '../errors.js';
@@ -24,10 +24,15 @@ export interface CompareOptions extends InputOptions {
   probes?: number;
   /** One gate expression for every output (--gate); default: the gate for each output's element type. */
   gate?: string;
-  /** Also run both models in float32 to measure the error budget; default true. */
+  /** Also run both models in float32 to measure the error budget; default true (float64 arithmetic only). */
   budget?: boolean;
   /** Probe memory limit in bytes (--max-probe-memory); default DEFAULT_PROBE_MEMORY (src/eval/budget.ts). */
   maxProbeMemory?: number;
+  /**
+   * The arithmetic both models run in for the judged comparison; default float64 (B in float64 against A in
+   * float64). float32 runs both as a deployment runtime would (fold's default check: see checkArithmetic).
+   */
+  arithmetic?: Precision;
   /**
    * Run B with its Conv/Gemm/MatMul weights rounded through symmetric 8-bit quantize-dequantize (per tensor or
    * per output channel), against A unrounded: what an 8-bit weight deployment of B would cost.
@@ -85,6 +90,8 @@ export interface OutputComparison {
 
 export interface CompareReport {
   passed: boolean;
+  /** The arithmetic of the judged runs. */
+  arithmetic: Precision;
   seed: number;
   /** Input sets actually run. */
   probes: number;
@@ -127,17 +134,11 @@ function checkCandidateInputs(b: Model, first: Map<string, Value>): void {
   }
 }
 
-/** Run a model, prefixing any expected failure with which model it was ("model B (folded.onnx): ..."). */
-function runLabelled(model: Model, side: 'A' | 'B', inputs: Map<string, Value>, precision: Precision): Map<string, Value> {
-  try {
-    return runModel(model, inputs, { precision });
-  } catch (e) {
-    if (e instanceof PleatError) {
-      const file = model.sourcePath ? ` (${basename(model.sourcePath)})` : '';
-      throw new PleatError(e.kind, `model ${side}${file}, ${precision} run: ${e.message}`);
-    }
-    throw e;
-  }
+/** Prefix an expected failure with which model it was ("model B (folded.onnx), float64 run: ..."). */
+function labelled(e: unknown, model: Model, side: 'A' | 'B', precision: Precision): unknown {
+  if (!(e instanceof PleatError)) return e;
+  const file = model.sourcePath ? ` (${basename(model.sourcePath)})` : '';
+  return new PleatError(e.kind, `model ${side}${file}, ${precision} run: ${e.message}`);
 }
 
 /** Run A and B on the same inputs and judge each output against its gate. Never throws for disagreeing outputs. */
@@ -149,7 +150,9 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
   const int8 = opts.simulateInt8 ? roundedWeightsModel(b, opts.simulateInt8) : undefined;
   if (int8) b = int8.model;
   const seed = opts.seed ?? 0;
-  const budget = opts.budget ?? true;
+  const arithmetic: Precision = opts.arithmetic ?? 'float64';
+  // the budget measures float32 runs against float64 ones: nothing to measure when the judged runs are float32
+  const budget = arithmetic === 'float64' && (opts.budget ?? true);
   const extra = opts.extraMetrics ?? {};
   const available = [...(budget ? [...METRIC_NAMES, ...BUDGET_NAMES] : [...METRIC_NAMES]), ...Object.keys(extra)];
   const userGate = opts.gate !== undefined ? parseGate(opts.gate, available) : undefined;
@@ -173,13 +176,21 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
   const onlyB = new Map<string, Value>();
   const onlyA = new Map<string, Value>();
 
+  const probeInputs = Array.from({ length: probes }, (_, p) => makeProbe(specs, seed, p));
+  checkCandidateInputs(b, probeInputs[0]!);
+  // A and B run together, node by node (src/eval/lockstep.ts), one probe and one arithmetic at a time: the judged
+  // arithmetic, then (for the error budget) both again in float32. So at most one value set of each model is
+  // alive at once, within the same probe memory limit as a single run of each.
+  const pair = (model: 'judged' | 'float32', inputs: Map<string, Value>) => {
+    const precision: Precision = model === 'judged' ? arithmetic : 'float32';
+    const sides = [{ model: a, side: 'A' as const }, { model: b, side: 'B' as const }];
+    const out = runLockstep(sides.map((x) => ({ model: x.model, precision, probes: [inputs] })),
+      (e, i) => labelled(e, sides[i]!.model, sides[i]!.side, precision));
+    return [out[0]![0]!, out[1]![0]!] as const;
+  };
   for (let p = 0; p < probes; p++) {
-    const inputs = makeProbe(specs, seed, p);
-    if (p === 0) checkCandidateInputs(b, inputs);
-    const ra = runLabelled(a, 'A', inputs, 'float64');
-    const rb = runLabelled(b, 'B', inputs, 'float64');
-    const ra32 = budget ? runLabelled(a, 'A', inputs, 'float32') : undefined;
-    const rb32 = budget ? runLabelled(b, 'B', inputs, 'float32') : undefined;
+    const [ra, rb] = pair('judged', probeInputs[p]!);
+    const [ra32, rb32] = budget ? pair('float32', probeInputs[p]!) : [undefined, undefined];
     if (p === 0) {
       for (const o of aOut) if (!bOut.has(o.name)) onlyA.set(o.name, ra.get(o.name)!);
       for (const o of b.graph.outputs) if (!aNames.has(o.name)) onlyB.set(o.name, rb.get(o.name)!);
@@ -241,7 +252,7 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
       problem: `model A has no output '${name}'` });
   }
   return {
-    passed: outputs.every((o) => o.passed), seed, probes, budget, inputs: summarizeInputs(specs), outputs,
+    passed: outputs.every((o) => o.passed), arithmetic, seed, probes, budget, inputs: summarizeInputs(specs), outputs,
     ...(int8 && opts.simulateInt8 ? { int8Weights: { granularity: opts.simulateInt8, layers: int8.layers } } : {}),
   };
 }

@@ -6,6 +6,7 @@ import { createRequire } from 'node:module';
 import type { MathJsInstance, MathNode } from 'mathjs';
 import { DataType, type DataTypeCode } from '../graph/ir.js';
 import { PleatError } from '../errors.js';
+import { parsePlainGate, testPlain } from './gate-plain.js';
 
 /** Metric names every gate can use (see Metrics in metrics.ts: candidate float64 vs reference float64). */
 export const METRIC_NAMES = ['maxAbs', 'maxRel', 'rms', 'cosine', 'nanMismatches', 'peak', 'count'] as const;
@@ -143,10 +144,31 @@ function limitsOf(node: MathNode, scope: GateScope): GateLimit[] {
 /**
  * Parse and check a gate. `available` are the names it may use (default: metrics and budget names); a syntax
  * error, a disallowed construct or an unknown name is a one-line PleatError('usage') naming the gate.
+ * `plainForm: false` sends even a plain gate through mathjs (tests compare the two evaluations).
  */
-export function parseGate(expr: string, available: readonly string[] = [...METRIC_NAMES, ...BUDGET_NAMES]): Gate {
+export function parseGate(expr: string, available: readonly string[] = [...METRIC_NAMES, ...BUDGET_NAMES], opts: { plainForm?: boolean } = {}): Gate {
   const fail = (why: string): never => { throw new PleatError('usage', `gate '${expr}' ${why}`); };
   if (expr.trim() === '') fail('is empty: write a condition such as "maxRel <= 1e-4"');
+  // the common plain form needs no expression library (loading mathjs is most of a small model's start-up)
+  const plain = opts.plainForm === false ? undefined : parsePlainGate(expr, available);
+  if (plain) {
+    const names = [...new Set(plain.flatMap((c) => (c.factorOf ? [c.name, c.factorOf] : [c.name])))].sort();
+    return {
+      expr,
+      names,
+      test(scope: GateScope): boolean {
+        for (const n of names) {
+          if (typeof scope[n as keyof GateScope] !== 'number') fail(`needs '${n}', which was not measured`);
+        }
+        return testPlain(plain, scope);
+      },
+      limits(scope: GateScope): GateLimit[] {
+        return plain.filter((c) => BOUNDED.has(c.name) && ['<', '<=', '=='].includes(c.op) && !(c.factorOf && BOUNDED.has(c.factorOf)))
+          .map((c) => ({ metric: c.name as GateLimit['metric'], limit: c.factorOf ? c.value * (scope[c.factorOf as keyof GateScope] ?? NaN) : c.value }))
+          .filter((l) => !Number.isNaN(l.limit));
+      },
+    };
+  }
   let node: MathNode;
   try {
     node = restricted().parse(expr);

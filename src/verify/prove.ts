@@ -5,7 +5,7 @@ import type { DataTypeCode, Graph, Node, Tensor } from '../graph/ir.js';
 import { DataType, attrInt, attrInts } from '../graph/ir.js';
 import type { ProofCase } from '../fold/types.js';
 import type { Value } from '../eval/value.js';
-import { runGraph } from '../eval/run.js';
+import { runLockstep } from '../eval/lockstep.js';
 import { probeValue } from './inputs.js';
 
 export interface ProofResult {
@@ -69,7 +69,10 @@ function shapeFor(g: Graph, n: Node, at: number, rank: number | undefined): numb
       const k = w.dims.slice(2);
       const dil = attrInts(n, 'dilations') ?? k.map(() => 1);
       const str = attrInts(n, 'strides') ?? k.map(() => 1);
-      return [2, w.dims[1]! * group, ...k.map((kk, i) => (kk - 1) * dil[i]! + 1 + 2 * str[i]!)];
+      // one sample; each spatial axis the kernel's reach plus one stride, so every tap meets data at two output
+      // positions per axis and the border positions meet the padding (the cost of a proof is the weight times
+      // the output positions, and a large layer's proof is the bulk of a proven fold's work)
+      return [1, w.dims[1]! * group, ...k.map((kk, i) => (kk - 1) * dil[i]! + 1 + str[i]!)];
     }
     case 'ConvTranspose': {
       const w = other(1);
@@ -121,23 +124,28 @@ export function proveFold(c: ProofCase, opts: { probes?: number; seed?: number }
     if (!shapes.length) return { passed: false, maxAbs: NaN, scale: NaN, tolerance: tol, problem: `no probe shape for region input '${i.name}'` };
     options.push({ name: i.name, type: i.elemType ?? DataType.FLOAT, shapes });
   }
-  // The first combination of candidate shapes the original region accepts is the probe shape.
+  // The first combination of candidate shapes the original region accepts is the probe shape. Each side runs
+  // all its probes together (src/eval/lockstep.ts): the region's weights are decoded once per side.
+  const runAll = (g: Graph, sets: Array<Map<string, Value>>) => runLockstep([{ graph: g, opsetOf: c.opsetOf, precision: 'float64', probes: sets }])[0]!;
   let specs: Array<{ name: string; type: DataTypeCode; dims: number[] }> | undefined;
+  let probeSets: Array<Map<string, Value>> = [];
+  let beforeOut: Array<Map<string, Value>> = [];
   const tries = Math.max(...options.map((o) => o.shapes.length), 1);
   for (let k = 0; k < tries && !specs; k++) {
     const candidate = options.map((o) => ({ name: o.name, type: o.type, dims: o.shapes[Math.min(k, o.shapes.length - 1)]! }));
+    const sets = Array.from({ length: probes }, (_, p) => new Map<string, Value>(candidate.map((s) => [s.name, probeValue(s, seed, p)])));
     try {
-      runGraph(c.before, new Map(candidate.map((s) => [s.name, probeValue(s, seed, 0)])), { precision: 'float64', opsetOf: c.opsetOf });
+      beforeOut = runAll(c.before, sets);
       specs = candidate;
+      probeSets = sets;
     } catch { /* try the next shape */ }
   }
   if (!specs) return { passed: false, maxAbs: NaN, scale: NaN, tolerance: tol, problem: 'no probe shape the original region accepts' };
   let maxAbs = 0, scale = 0;
   try {
+    const afterOut = runAll(c.after, probeSets);
     for (let p = 0; p < probes; p++) {
-      const inputs = new Map<string, Value>(specs.map((s) => [s.name, probeValue(s, seed, p)]));
-      const run = (g: Graph) => runGraph(g, inputs, { precision: 'float64', opsetOf: c.opsetOf });
-      const before = run(c.before), after = run(c.after);
+      const before = beforeOut[p]!, after = afterOut[p]!;
       for (const o of c.before.outputs) {
         const a = before.get(o.name), b = after.get(o.name);
         if (!a || !b || !sameDims(a.dims, b.dims)) {

@@ -81,6 +81,22 @@ jobs['audit-file'] = async ([path]) => {
   return { runSeconds: await bestOf3(() => { auditFile(path!); }) };
 };
 
+// The yardstick's second half: onnxruntime-node (default session options, as a user's script would have) runs
+// the original and the folded model once on one seeded probe and compares the outputs.
+jobs['ort-pair'] = async ([a, b]) => {
+  const ort = await import('onnxruntime-node');
+  const sa = await ort.InferenceSession.create(a!);
+  const sb = await ort.InferenceSession.create(b!);
+  const meta = sa.inputNames[0]!;
+  const dims = [1, 512, 8, 8];
+  const x = new ort.Tensor('float32', new Float32Array(dims.reduce((p, d) => p * d, 1)).map((_, i) => Math.sin(i * 0.37)), dims);
+  const ya = (await sa.run({ [meta]: x }))[sa.outputNames[0]!]!.data as Float32Array;
+  const yb = (await sb.run({ [meta]: x }))[sb.outputNames[0]!]!.data as Float32Array;
+  let maxAbs = 0;
+  for (let i = 0; i < ya.length; i++) maxAbs = Math.max(maxAbs, Math.abs(ya[i]! - yb[i]!));
+  return { maxAbs };
+};
+
 export async function runJob(name: string, args: string[]): Promise<void> {
   const job = jobs[name];
   if (!job) throw new Error(`unknown bench job ${name}`);

@@ -74,6 +74,9 @@ if (existsSync(extraBenches)) {
   await more.run(on, rows);
 }
 
+const proof = await import('./proof.js');
+await proof.run(on, rows);
+
 console.log('\n| measure | time | ratio | target | memory | target |');
 console.log('|---|---|---|---|---|---|');
 for (const r of rows) console.log(`| ${r.join(' | ')} |`);

@@ -171,7 +171,7 @@ describe('compare', () => {
     const two = toJsonText(compare(a, folded(p), { dims: { batch: 1 }, seed: 5 }));
     expect(one).toBe(two);
     const parsed = JSON.parse(one);
-    expect(Object.keys(parsed)).toEqual(['passed', 'seed', 'probes', 'budget', 'inputs', 'outputs']);
+    expect(Object.keys(parsed)).toEqual(['passed', 'arithmetic', 'seed', 'probes', 'budget', 'inputs', 'outputs']);
     expect(parsed.seed).toBe(5);
     expect(toJsonText({ m: Infinity, n: NaN })).toBe('{\n  "m": "Infinity",\n  "n": "NaN"\n}\n');
   });

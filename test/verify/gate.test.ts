@@ -122,4 +122,11 @@ describe('gate limits (the bounds a report draws)', () => {
     expect(parseGate('maxAbs <= maxRel * peak').limits(scope)).toEqual([]); // depends on the other metric
     expect(parseGate('cosine >= 0.999').limits(scope)).toEqual([]);
   });
+  it('the plain form (no expression library) and the mathjs form give the same bounds', () => {
+    const gates = [...Object.values(DEFAULT_GATES), 'maxAbs < 3e-5 * peak and maxRel <= 0.01', 'maxAbs >= 1e-9', 'cosine >= 0.999', 'maxAbs == 0 and maxRel < 1'];
+    for (const g of gates) {
+      expect(parseGate(g).limits(scope), g).toEqual(parseGate(g, undefined, { plainForm: false }).limits(scope));
+    }
+    expect(parseGate('maxAbs < 3e-5 * peak and maxRel <= 0.01').limits(scope)).toEqual([{ metric: 'maxAbs', limit: 3e-5 * 20 }, { metric: 'maxRel', limit: 0.01 }]);
+  });
 });
