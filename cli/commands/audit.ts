@@ -13,16 +13,17 @@ export function builder(y: Argv) {
     .option('fail-on', { type: 'string', choices: ['kept'], describe: 'exit 1 when a normalization is kept (JUnit: a failure per kept one)' })
     .option('keep', { type: 'string', coerce: many, describe: 'treat this normalization node as kept by choice; repeatable' })
     .option('allow-overridable', { type: 'boolean', default: false, describe: 'judge as fold --allow-overridable would' })
+    .option('clone-shared', { type: 'boolean', default: false, describe: 'judge as fold --clone-shared would' })
     .option('quiet', { type: 'boolean', default: false, describe: 'no progress bar' })))
     .epilogue(EPILOGUE);
 }
 
-interface Flags { models: string[]; failOn?: 'kept'; keep?: string[]; allowOverridable: boolean; json?: boolean; format?: string; report?: string[]; runFigures?: boolean; config?: string; quiet: boolean }
+interface Flags { models: string[]; failOn?: 'kept'; keep?: string[]; allowOverridable: boolean; cloneShared: boolean; json?: boolean; format?: string; report?: string[]; runFigures?: boolean; config?: string; quiet: boolean }
 
 export async function handler(argv: Flags): Promise<void> {
   const plan = planReports(argv);
   const { config } = loadConfig(argv.config);
-  const opts = { keep: keepList(config, argv.keep), failOn: argv.failOn ?? config.failOn, allowOverridable: argv.allowOverridable, pageDetail: plan.pageDetail };
+  const opts = { keep: keepList(config, argv.keep), failOn: argv.failOn ?? config.failOn, allowOverridable: argv.allowOverridable, cloneShared: argv.cloneShared, pageDetail: plan.pageDetail };
   const jobs: Job[] = argv.models.map((model) => ({ command: 'audit', model, opts, runFigures: plan.runFigures }));
   await checkDestinations(plan, { inputs: argv.models });
   await runAndReport('audit', jobs, plan, argv.quiet);

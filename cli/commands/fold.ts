@@ -18,6 +18,7 @@ export function builder(y: Argv) {
     .option('out-dir', { type: 'string', describe: 'folder for the folded models, same file names (several input models)' })
     .option('keep', { type: 'string', coerce: many, describe: 'leave this normalization node in place; repeatable' })
     .option('allow-overridable', { type: 'boolean', default: false, describe: 'also fold weights and norm parameters that are graph inputs with defaults (callers could replace them)' })
+    .option('clone-shared', { type: 'boolean', default: false, describe: 'fold a norm into a layer whose output has other readers by giving the norm its own copy of the layer (costs weight bytes, shown in the ledger)' })
     .option('store', { type: 'string', choices: ['float16'], describe: 'store folded weights in half precision' })
     .option('external-data-min', { type: 'number', describe: 'store tensors of at least this many bytes in a side file OUT.data (ONNX external data)' })
     .option('gate', { type: 'string', describe: 'gate for the whole-model check, e.g. "maxAbs < 1e-4 and cosine > 0.99999"' })
@@ -30,7 +31,7 @@ export function builder(y: Argv) {
 }
 
 interface Flags {
-  models: string[]; out?: string; outDir?: string; keep?: string[]; allowOverridable: boolean; externalDataMin?: number; store?: 'float16'; gate?: string; probes?: number; seed?: number; unproven: boolean; threads?: number;
+  models: string[]; out?: string; outDir?: string; keep?: string[]; allowOverridable: boolean; cloneShared: boolean; externalDataMin?: number; store?: 'float16'; gate?: string; probes?: number; seed?: number; unproven: boolean; threads?: number;
   equalize: boolean; quantThreshold?: number; simulateInt8?: string; int8Granularity?: string;
   input?: string[]; shape?: string[]; dim?: string[]; json?: boolean; format?: string; report?: string[]; runFigures?: boolean; config?: string; quiet: boolean;
 }
@@ -67,7 +68,7 @@ export async function handler(argv: Flags): Promise<void> {
   const opts: FoldJobOptions = {
     inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, probes: run.probes, gate: run.gate, maxProbeMemory: run.maxProbeMemory,
     keep: keepList(config, argv.keep), store: argv.store ?? config.store, allowOverridable: argv.allowOverridable,
-    externalThreshold: argv.externalDataMin, noProofs: argv.unproven, threads: threadsFlag(argv.threads), pageDetail: plan.pageDetail,
+    cloneShared: argv.cloneShared, externalThreshold: argv.externalDataMin, noProofs: argv.unproven, threads: threadsFlag(argv.threads), pageDetail: plan.pageDetail,
     equalize: argv.equalize, quantThresholdDb: quantThreshold(argv.quantThreshold), simulateInt8: int8Setting(argv),
   };
   const sides = outputs.map((o) => join(dirname(o), `${basename(o)}.data`));

@@ -4,14 +4,16 @@ import type { Model, Node } from '../graph/ir.js';
 import { makeContext, isRefusal, refuse, type FoldContext, type Refusal } from './context.js';
 import { isLayer, readLayer } from './layers.js';
 import { collectRun, isStep, stepOf, type Run, type StepCache } from './run.js';
-import { isBatchNorm } from './steps.js';
+import { entryKind, isBatchNorm, isLayerNorm, type AffineStep } from './steps.js';
 import { buildScopes, isLinear, labelOf, type Scope } from './scope.js';
-import { runtimeNorm } from './norms.js';
+import { runtimeNorm, writtenOutNorm } from './norms.js';
 import { ruleFor, type RuleMatch } from './rules/index.js';
-import type { Direction, Finding, FoldOptions, ReasonCode } from './types.js';
+import { producerShared } from './rules/rule.js';
+import { tensorByteSize } from '../graph/tensor.js';
+import type { Direction, EntryKind, Finding, FoldOptions, ReasonCode } from './types.js';
 
 export type Outcome =
-  | { kind: 'match'; match: RuleMatch }
+  | { kind: 'match'; matches: RuleMatch[]; clone: boolean }
   | { kind: 'kept'; reason: ReasonCode; hint: string; direction: Direction | null; target: string | null }
   | { kind: 'ignore' };
 
@@ -19,10 +21,12 @@ interface Side extends Refusal { direction: Direction; target: string }
 
 const label = labelOf;
 
-/** A fold must leave fewer nodes, unless it removes a BatchNormalization (a bias Add is cheaper than a norm). */
-const worthIt = (m: RuleMatch) => m.run.hasBatchNorm || m.run.steps.length > m.adds;
+/** A fold must leave fewer nodes, unless it removes a normalization operator (a bias Add is cheaper than a norm). */
+const worthIt = (run: Run, ms: RuleMatch[]) => run.hasNormOp || run.steps.length > ms.reduce((a, m) => a + m.adds, 0);
 
-function trySide(ctx: FoldContext, run: Run, n: Node, direction: Direction): RuleMatch | Side | 'no-gain' {
+const isMatch = (x: RuleMatch | Side): x is RuleMatch => 'rule' in x;
+
+function trySide(ctx: FoldContext, run: Run, n: Node, direction: Direction): RuleMatch | Side {
   const scope = run.scope;
   const side = (r: Refusal): Side => ({ ...r, direction, target: label(scope, n) });
   const layer = readLayer(ctx, scope, n);
@@ -32,8 +36,22 @@ function trySide(ctx: FoldContext, run: Run, n: Node, direction: Direction): Rul
     return side(refuse('padded-consumer', `'${label(scope, n)}' is a ConvTranspose: its border outputs receive fewer kernel taps, so a shift cannot become its bias`));
   }
   const m = rule.match(ctx, run, layer);
-  if (isRefusal(m)) return side(m);
-  return worthIt(m) ? m : 'no-gain';
+  return isRefusal(m) ? side(m) : m;
+}
+
+/** The reader of the run's output that cannot take the fold whatever its weights (not a linear layer), if any. */
+function unsuitableReader(ctx: FoldContext, run: Run, readers: Node[]): Refusal & { node: Node } | undefined {
+  const scope = run.scope;
+  for (const r of readers) {
+    const name = label(scope, r);
+    if (!isLinear(r) || ctx.generated.has(r)) {
+      return { node: r, ...refuse('shared-output', `'${name}' (${r.opType}) also reads its output and is no linear layer that could take the fold; it needs the values as they are, so the norm stays for it`) };
+    }
+    if (r.inputs[0] !== run.bottom || r.inputs.indexOf(run.bottom, 1) > 0) {
+      return { node: r, ...refuse('no-linear-neighbour', `'${name}' reads its output as a weight, not as its data input, so it cannot take the fold`) };
+    }
+  }
+  return undefined;
 }
 
 /** Walks a few nodes away from the run looking for a linear layer behind a non-affine node. */
@@ -50,7 +68,10 @@ function linearBeyond(scope: Scope, start: Node | undefined, up: boolean): Node 
   return undefined;
 }
 
-/** The outcome of a run: a match (producer side first), or the most telling refusal. */
+/**
+ * The outcome of a run: a match (producer side first; on the consumer side, one match per reader, since every
+ * reader must take the fold for the norm to go), or the most telling refusal.
+ */
 export function assessRun(ctx: FoldContext, run: Run): Outcome {
   const scope = run.scope;
   const ud = scope.ud;
@@ -60,26 +81,32 @@ export function assessRun(ctx: FoldContext, run: Run): Outcome {
   const p = ud.producer(run.top);
   if (p && isLinear(p) && !ctx.generated.has(p)) {
     const r = trySide(ctx, run, p, 'into-producer');
-    if (r === 'no-gain') noGain = true;
-    else if ('rule' in r) return { kind: 'match', match: r };
-    else rp = r;
+    if (!isMatch(r)) rp = r;
+    else if (worthIt(run, [r])) return { kind: 'match', matches: [r], clone: producerShared(r.layer, run) };
+    else noGain = true;
   }
   const readers = ud.consumers(run.bottom);
   const linear = readers.filter((n) => isLinear(n) && !ctx.generated.has(n));
   if (linear.length) {
-    const c = linear[0]!;
-    const side = (r: Refusal): Side => ({ ...r, direction: 'into-consumer', target: label(scope, c) });
-    if (ud.isGraphOutput(run.bottom)) rc = side(refuse('graph-output', `its output is also a model output; read it only through '${label(scope, c)}'`));
-    else if (readers.length > 1) rc = side(refuse('shared-output', `its output is read by ${readers.length} nodes; folding into '${label(scope, c)}' needs it to be the only reader`));
-    else if (c.inputs[0] !== run.bottom || c.inputs.indexOf(run.bottom, 1) > 0) rc = side(refuse('no-linear-neighbour', `'${label(scope, c)}' reads it as a weight, not as its data input`));
+    const side = (n: Node, r: Refusal): Side => ({ ...r, direction: 'into-consumer', target: label(scope, n) });
+    const odd = unsuitableReader(ctx, run, readers);
+    if (ud.isGraphOutput(run.bottom)) {
+      rc = side(linear[0]!, refuse('graph-output', `its output is also a model output, which must keep the values as they are; export the model so that the output is taken before the norm or after '${label(scope, linear[0]!)}'`));
+    } else if (odd) rc = side(odd.node, odd);
     else {
-      const r = trySide(ctx, run, c, 'into-consumer');
-      if (r === 'no-gain') noGain = true;
-      else if ('rule' in r) return { kind: 'match', match: r };
-      else rc = r;
+      const ms: RuleMatch[] = [];
+      for (const c of linear) {
+        const r = trySide(ctx, run, c, 'into-consumer');
+        if (!isMatch(r)) { rc = linear.length > 1 ? { ...r, hint: `${r.hint} (one of ${linear.length} readers; every reader must take the fold)` } : r; break; }
+        ms.push(r);
+      }
+      if (!rc) {
+        if (worthIt(run, ms)) return { kind: 'match', matches: ms, clone: false };
+        noGain = true;
+      }
     }
   }
-  if (!run.hasBatchNorm) {
+  if (!run.hasNormOp) {
     // A constant Mul/Add is only a normalization worth listing next to a layer it could fold into.
     if (noGain) return { kind: 'ignore' };
     const real = [rp, rc].filter((s): s is Side => s !== undefined && s.reason !== 'no-linear-neighbour');
@@ -98,67 +125,129 @@ export function assessRun(ctx: FoldContext, run: Run): Outcome {
     const between = up ? p! : readers.find((n) => linearBeyond(scope, n, false))!;
     return {
       kind: 'kept', reason: 'nonlinear-between', direction: null, target: label(scope, beyond),
-      hint: `'${label(scope, between)}' (${between.opType}) sits between it and '${label(scope, beyond)}'; move the norm next to the layer`,
+      hint: `'${label(scope, between)}' (${between.opType}) sits between it and '${label(scope, beyond)}'; move the norm next to the layer in the exported model`,
     };
   }
   return { kind: 'kept', reason: 'no-linear-neighbour', direction: null, target: null, hint: 'no Conv, ConvTranspose, Gemm or MatMul with constant weights writes its input or reads its output' };
 }
 
-/** What a foldable run's fold does, in one line. */
-export function foldHint(m: RuleMatch): string {
-  const others = m.run.steps.length - 1;
-  const withOthers = others ? ` together with ${others} neighbouring step${others > 1 ? 's' : ''}` : '';
-  const bias = m.adds ? '; the shift becomes a bias Add' : (m.data as { form?: string }).form === 'gemm' ? '; the MatMul becomes a Gemm carrying the shift' : '';
-  return `${m.rule.direction === 'into-producer' ? 'scales the output channels' : 'scales the input channels'} of '${m.layer.label}'${withOthers}${bias}`;
+/** 'a', 'a' and 'b', 'a', 'b' and 'c'. */
+export function nameList(names: readonly string[]): string {
+  const q = names.map((n) => `'${n}'`);
+  return q.length <= 1 ? (q[0] ?? '') : `${q.slice(0, -1).join(', ')} and ${q[q.length - 1]}`;
 }
 
-export type Summary = Omit<Finding, 'node' | 'op' | 'graph'>;
+/** Weight bytes a --clone-shared copy of the match's layer adds. */
+export function cloneCost(m: RuleMatch): number {
+  return tensorByteSize(m.layer.weight.tensor) + (m.layer.bias ? tensorByteSize(m.layer.bias.tensor) : 0);
+}
+
+/** The hint of a LayerNormalization whose scale and shift move into its readers. */
+export const layerNormHint = (targets: readonly string[]) =>
+  `statistics stay (computed from each input); its learned scale and shift move into ${nameList(targets)}, leaving Scale at ones and no B`;
+
+/** The hint of a normalization written out as primitive ops whose per-feature Mul/Add moves into its readers. */
+export const writtenOutHint = (targets: readonly string[]) =>
+  `statistics stay (computed from each input, written as primitive ops); the learned scale and shift after it move into ${nameList(targets)}`;
+
+/** What a foldable run's fold does, in one line. */
+export function foldHint(ms: RuleMatch[], clone: boolean): string {
+  const m = ms[0]!;
+  const others = m.run.steps.length - 1;
+  const withOthers = others ? ` together with ${others} neighbouring step${others > 1 ? 's' : ''}` : '';
+  const form = (f: string) => ms.some((x) => (x.data as { form?: string }).form === f);
+  const bias = ms.some((x) => x.adds) ? '; the shift becomes a bias Add'
+    : form('bias-add') ? '; the shift joins the bias Add that follows'
+      : form('gemm') ? '; the MatMul becomes a Gemm carrying the shift' : '';
+  const copy = clone ? `, a copy of it made for this norm (+${cloneCost(m)} bytes of weights; its other readers keep the original)` : '';
+  const each = ms.length > 1 ? ', each with its own copy of the scale and its own bias' : '';
+  return `${m.rule.direction === 'into-producer' ? 'scales the output channels' : 'scales the input channels'} of ${nameList(ms.map((x) => x.layer.label))}${copy}${each}${withOthers}${bias}`;
+}
+
+export type Summary = Omit<Finding, 'node' | 'op' | 'graph' | 'kind'>;
 
 /** A finding's verdict without the match (which holds decoded weights and must not be kept around). */
 export function summarize(o: Outcome): Summary {
   if (o.kind === 'match') {
-    return { status: 'foldable', direction: o.match.rule.direction, target: o.match.layer.label, reason: null, hint: foldHint(o.match) };
+    const targets = o.matches.map((m) => m.layer.label);
+    return {
+      status: 'foldable', direction: o.matches[0]!.rule.direction, target: targets.join(', '), targets, reason: null,
+      hint: foldHint(o.matches, o.clone), cloneBytes: o.clone ? cloneCost(o.matches[0]!) : 0,
+    };
   }
   const k = o as Extract<Outcome, { kind: 'kept' }>;
-  return { status: 'kept', direction: k.direction, target: k.target, reason: k.reason, hint: k.hint };
+  return { status: 'kept', direction: k.direction, target: k.target, targets: k.target ? [k.target] : [], reason: k.reason, hint: k.hint, cloneBytes: 0 };
+}
+
+const keptSummary = (reason: ReasonCode, hint: string): Summary => ({ status: 'kept', reason, hint, direction: null, target: null, targets: [], cloneBytes: 0 });
+
+/**
+ * A LayerNormalization whose tail found no linear layer to move into is kept for its statistics, as any
+ * runtime-statistics norm, with the refusal's words as the hint.
+ */
+function layerNormKept(s: Summary): Summary {
+  if (s.status !== 'kept' || (s.reason !== 'no-linear-neighbour' && s.reason !== 'nonlinear-between')) return s;
+  const why = s.reason === 'nonlinear-between' ? s.hint : 'no Conv, Gemm or MatMul with constant weights reads its output';
+  return keptSummary('runtime-statistics', `statistics come from each input and always stay; its learned scale and shift have nowhere to move: ${why}`);
 }
 
 /** Every normalization of one graph with its verdict, in node order. */
-export function* assessScope(ctx: FoldContext, scope: Scope, cache: StepCache): Generator<{ node: Node; op: string; summary: Summary }> {
+export function* assessScope(ctx: FoldContext, scope: Scope, cache: StepCache): Generator<{ node: Node; op: string; kind: EntryKind; summary: Summary }> {
   const runs = new Map<Node, Summary | undefined>();
-  for (const n of scope.graph.nodes) {
-    const rt = runtimeNorm(scope, n);
-    if (rt) {
-      yield { node: n, op: rt.op, summary: { status: 'kept', reason: 'runtime-statistics', hint: rt.hint, direction: null, target: null } };
-      continue;
-    }
-    const s = stepOf(ctx, scope, cache, n);
-    if (s === undefined) continue;
-    if (!isStep(s)) {
-      // A refused step: always listed for a BatchNormalization, for a Mul/Add only beside a linear layer.
-      const beside = n.inputs.some((i) => { const p = i ? scope.ud.producer(i) : undefined; return p !== undefined && isLinear(p); })
-        || scope.ud.consumers(n.outputs[0] ?? '').some(isLinear);
-      if (isBatchNorm(n) || beside || s.reason === 'kept-by-user' || s.reason === 'proof-failed') {
-        yield { node: n, op: n.opType, summary: { status: 'kept', reason: s.reason, hint: s.hint, direction: null, target: null } };
-      }
-      continue;
-    }
-    if (!runs.has(n)) {
+  const runSummary = (s: AffineStep): Summary | undefined => {
+    if (!runs.has(s.node)) {
       if (runs.size >= 512) runs.clear(); // a member met later just assesses its run again, with the same result
       const run = collectRun(ctx, scope, cache, s);
       const o = assessRun(ctx, run);
       const summary = o.kind === 'ignore' ? undefined : summarize(o);
       for (const m of run.steps) runs.set(m.node, summary);
     }
-    const summary = runs.get(n);
-    if (summary) yield { node: n, op: n.opType, summary };
+    return runs.get(s.node);
+  };
+  for (const n of scope.graph.nodes) {
+    const s = stepOf(ctx, scope, cache, n);
+    if (s === undefined) {
+      const rt = runtimeNorm(scope, n);
+      if (!rt) continue;
+      yield { node: n, op: rt.op, kind: 'normalization', summary: writtenOutSummary(ctx, scope, cache, n, runSummary) ?? keptSummary('runtime-statistics', rt.hint) };
+      continue;
+    }
+    const kind = entryKind(scope, n);
+    if (!isStep(s)) {
+      // A refused step: always listed for a normalization operator, for a Mul/Add only beside a linear layer.
+      const beside = n.inputs.some((i) => { const p = i ? scope.ud.producer(i) : undefined; return p !== undefined && isLinear(p); })
+        || scope.ud.consumers(n.outputs[0] ?? '').some(isLinear);
+      if (kind === 'normalization' && (isBatchNorm(n) || isLayerNorm(n) || beside || s.reason === 'kept-by-user' || s.reason === 'proof-failed')) {
+        yield { node: n, op: n.opType, kind, summary: keptSummary(s.reason, s.hint) };
+      }
+      continue;
+    }
+    let summary = runSummary(s);
+    if (!summary) continue;
+    if (s.kind === 'layer-norm') summary = summary.status === 'kept' ? layerNormKept(summary) : { ...summary, hint: layerNormHint(summary.targets) };
+    // Other constant affine steps are never listed as kept (they are listed when folded, as "also folded").
+    if (kind === 'affine-step' && summary.status === 'kept') continue;
+    yield { node: n, op: n.opType, kind, summary };
   }
+}
+
+/** A written-out layer norm or RMSNorm whose per-feature Mul/Add tail would move into the readers: foldable. */
+function writtenOutSummary(ctx: FoldContext, scope: Scope, cache: StepCache, n: Node, runSummary: (s: AffineStep) => Summary | undefined): Summary | undefined {
+  if (!writtenOutNorm(scope, n)) return undefined;
+  const out = n.outputs[0]!;
+  const readers = scope.ud.consumers(out);
+  if (readers.length !== 1 || scope.ud.isGraphOutput(out)) return undefined;
+  const t = stepOf(ctx, scope, cache, readers[0]!);
+  if (!isStep(t) || t.data !== out || entryKind(scope, t.node) !== 'normalization') return undefined;
+  const summary = runSummary(t);
+  if (summary?.status !== 'foldable') return undefined;
+  return { ...summary, hint: writtenOutHint(summary.targets), cloneBytes: 0 };
 }
 
 export function findingsOf(ctx: FoldContext, model: Model): Finding[] {
   const out: Finding[] = [];
-  for (const scope of buildScopes(model, ctx.labels)) {
-    for (const f of assessScope(ctx, scope, new Map())) out.push({ node: label(scope, f.node), op: f.op, ...f.summary, graph: scope.path });
+  for (const scope of buildScopes(model, ctx.labels, ctx.options.inputShapes)) {
+    for (const f of assessScope(ctx, scope, new Map())) out.push({ node: label(scope, f.node), op: f.op, kind: f.kind, ...f.summary, graph: scope.path });
   }
   return out;
 }

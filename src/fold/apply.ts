@@ -5,7 +5,7 @@ import { touch } from '../graph/edit.js';
 import { decodeValues, scaleTensor, storeValues, type ScaleGuard } from './values.js';
 import { scaleWeights, type ChannelMap } from './weights.js';
 import { makeTensor } from '../graph/tensor.js';
-import { constantOf, soleReader, valueInfoOf, type ConstRef, type Scope } from './scope.js';
+import { constantOf, inferredShape, soleReader, valueInfoOf, type ConstRef, type Scope } from './scope.js';
 import { freshName, type FoldContext } from './context.js';
 
 export interface NodeChange {
@@ -32,10 +32,14 @@ export interface Edit {
   released: string[];
   /** The values the rest of the graph reads from the edited region (proof outputs). */
   regionOutputs: string[];
+  /** Runs already removed by this edit (several readers of one run each take it). */
+  removedRuns: Set<object>;
+  /** Unchanged nodes the proof region must hold too (the original of a cloned layer). */
+  regionNodes: Node[];
 }
 
 export function newEdit(scope: Scope): Edit {
-  return { scope, removeNodes: [], changes: [], inserts: [], tensorValues: [], tensorScales: [], newInitializers: [], goneValues: [], released: [], regionOutputs: [] };
+  return { scope, removeNodes: [], changes: [], inserts: [], tensorValues: [], tensorScales: [], newInitializers: [], goneValues: [], released: [], regionOutputs: [], removedRuns: new Set(), regionNodes: [] };
 }
 
 /** The pending change record of a node (created on first use). */
@@ -93,11 +97,12 @@ export function flushPending(ctx: FoldContext): void {
   for (const [g, p] of ctx.pending) {
     if (!p.removed.size && !p.inserts.size && !p.initializers.length && !p.inputs.length) continue;
     const nodes: Node[] = [];
-    for (const n of g.nodes) {
+    // An inserted node may have inserts of its own (the bias Add after a cloned layer).
+    const emit = (n: Node) => {
       if (!p.removed.has(n)) nodes.push(n);
-      const after = p.inserts.get(n);
-      if (after) nodes.push(...after);
-    }
+      for (const a of p.inserts.get(n) ?? []) emit(a);
+    };
+    for (const n of g.nodes) emit(n);
     g.nodes = nodes;
     if (p.initializers.length) g.initializers = [...g.initializers, ...p.initializers];
     if (p.inputs.length) g.inputs = [...g.inputs, ...p.inputs];
@@ -199,7 +204,10 @@ export function regionGraph(scope: Scope, nodes: Node[], outputs: string[], extr
         continue;
       }
       const vi = valueInfoOf(scope, v);
-      inputs.push(vi ? { ...vi, shape: vi.shape ? [...vi.shape] : undefined, origin: undefined } : { name: v, docString: '', extra: [] });
+      // Not declared: the shape propagated from the model's inputs, so the proof probes the rank the fold assumed.
+      const inferred = vi?.shape ? undefined : inferredShape(scope, v);
+      const shape = vi?.shape ? [...vi.shape] : inferred?.map((d) => (d >= 0 ? d : null));
+      inputs.push(vi ? { ...vi, shape, origin: undefined } : { name: v, shape, docString: '', extra: [] });
     }
   }
   const outs: ValueInfo[] = outputs.map((o) => {
@@ -223,10 +231,12 @@ function ordered(nodes: Node[]): Node[] {
 
 /** The region an edit rewrites, before applying it. */
 export function regionBefore(edit: Edit): Graph {
-  return regionGraph(edit.scope, ordered([...edit.removeNodes, ...edit.changes.map((c) => c.node)]), edit.regionOutputs);
+  const inserted = new Set(edit.inserts.map((i) => i.node));
+  const changed = edit.changes.map((c) => c.node).filter((n) => !inserted.has(n));
+  return regionGraph(edit.scope, ordered([...edit.regionNodes, ...edit.removeNodes, ...changed]), edit.regionOutputs);
 }
 
 /** The same region after applying the edit. */
 export function regionAfter(edit: Edit): Graph {
-  return regionGraph(edit.scope, ordered([...edit.changes.map((c) => c.node), ...edit.inserts.map((i) => i.node)]), edit.regionOutputs, edit.newInitializers);
+  return regionGraph(edit.scope, ordered([...edit.regionNodes, ...edit.changes.map((c) => c.node), ...edit.inserts.map((i) => i.node)]), edit.regionOutputs, edit.newInitializers);
 }

@@ -7,11 +7,15 @@ import { tensorByteSize } from '../graph/tensor.js';
 import { validateModel } from '../graph/validate.js';
 import { makeContext, type FoldContext } from './context.js';
 import { cleanUp } from './cleanup.js';
-import { applyEdit, flushPending, newEdit, regionAfter, regionBefore } from './apply.js';
-import { assessRun, findingsOf, foldHint } from './analyze.js';
+import { applyEdit, flushPending, newEdit, regionAfter, regionBefore, type Edit } from './apply.js';
+import { assessRun, cloneCost, findingsOf, foldHint, layerNormHint, writtenOutHint } from './analyze.js';
+import { freshName } from './context.js';
+import { writtenOutNorm } from './norms.js';
+import { entryKind } from './steps.js';
+import type { RuleMatch } from './rules/index.js';
 import { collectRun, isStep, stepOf } from './run.js';
 import { buildScopes, eachGraph, labelOf } from './scope.js';
-import type { FoldLedger, FoldOptions, LedgerEntry } from './types.js';
+import type { EntryKind, FoldLedger, FoldOptions, LedgerEntry } from './types.js';
 
 const MAX_PASSES = 64;
 
@@ -35,11 +39,26 @@ export function weightBytes(model: Model): number {
   return b;
 }
 
+/**
+ * --clone-shared: a copy of the producer for the norm path alone (same inputs, a fresh output), placed right after
+ * it; the match is rewritten on the copy, and the original joins the proof region so its other readers are checked.
+ */
+function cloneForRun(ctx: FoldContext, edit: Edit, m: RuleMatch): RuleMatch[] {
+  const orig = m.layer.node;
+  const clone: Node = {
+    name: freshName(ctx, `${m.layer.label}.clone`), opType: orig.opType, domain: orig.domain, inputs: [...orig.inputs],
+    outputs: [freshName(ctx, `${orig.outputs[0]!}.clone`)], attributes: [...orig.attributes], docString: '', extra: [],
+  };
+  edit.inserts.push({ node: clone, after: orig });
+  edit.regionNodes.push(orig);
+  return [{ ...m, layer: { ...m.layer, node: clone } }];
+}
+
 /** One sweep over every graph; returns whether anything changed or was put off to the next sweep. */
 function sweep(ctx: FoldContext, model: Model, folded: LedgerEntry[], released: Set<string>, gone: Set<string>): boolean {
   let changed = false;
   const prove = ctx.options.prove;
-  for (const scope of buildScopes(model, ctx.labels)) {
+  for (const scope of buildScopes(model, ctx.labels, ctx.options.inputShapes)) {
     const cache = new Map();
     const dirty = new Set<Node>();
     for (const node of [...scope.graph.nodes]) {
@@ -54,16 +73,24 @@ function sweep(ctx: FoldContext, model: Model, folded: LedgerEntry[], released: 
       if (involved.some((n) => dirty.has(n))) { changed = true; continue; } // stale index: next sweep
       const o = assessRun(ctx, run);
       if (o.kind !== 'match') continue;
-      const m = o.match;
       const edit = newEdit(scope);
-      m.rule.rewrite(ctx, m, edit);
+      const matches = o.clone ? cloneForRun(ctx, edit, o.matches[0]!) : o.matches;
+      const outputs: string[] = [];
+      for (const m of matches) {
+        m.rule.rewrite(ctx, m, edit);
+        outputs.push(...edit.regionOutputs);
+      }
+      edit.regionOutputs = [...new Set([...outputs, ...edit.regionNodes.flatMap((n) => n.outputs.filter((v) => v !== ''))])];
       const before = prove ? regionBefore(edit) : undefined;
       const inPlace = ctx.options.reuseBuffers ?? true;
       const undo = applyEdit(ctx, edit, { inPlace: !prove && inPlace });
       const names = run.steps.map((x) => ctx.labels.get(x.node) ?? x.node.name);
-      for (const n of [...involved, m.layer.node]) dirty.add(n);
+      for (const n of [...involved, ...matches.map((m) => m.layer.node), ...edit.changes.map((c) => c.node)]) dirty.add(n);
       changed = true;
-      if (prove && !prove({ before: before!, after: regionAfter(edit), opsetOf: ctx.opsetOf, nodes: names, target: m.layer.label, direction: m.rule.direction, graph: scope.path })) {
+      const targets = o.matches.map((m) => m.layer.label);
+      const target = targets.join(', ');
+      const direction = o.matches[0]!.rule.direction;
+      if (prove && !prove({ before: before!, after: regionAfter(edit), opsetOf: ctx.opsetOf, nodes: names, target, direction, graph: scope.path })) {
         undo();
         for (const x of run.steps) ctx.proofFailed.add(x.node);
         continue;
@@ -75,10 +102,20 @@ function sweep(ctx: FoldContext, model: Model, folded: LedgerEntry[], released: 
         undo();
         applyEdit(ctx, edit, { inPlace: true });
       }
-      const hint = foldHint(m);
-      for (const x of run.steps) {
-        folded.push({ node: ctx.labels.get(x.node) ?? x.node.name, op: x.node.opType, status: 'folded', direction: m.rule.direction, target: m.layer.label, reason: null, hint, graph: scope.path });
+      const hint = foldHint(o.matches, o.clone);
+      const entry = (node: Node, op: string, kind: EntryKind, h: string, cloneBytes = 0): LedgerEntry => ({
+        node: ctx.labels.get(node) ?? node.name, op, kind, status: 'folded', direction, target, targets, reason: null, hint: h, graph: scope.path, cloneBytes,
+      });
+      // A normalization written out as primitive ops keeps its statistics; its tail moved, so it is listed as folded.
+      const chain = scope.ud.producer(run.top);
+      const written = chain ? writtenOutNorm(scope, chain) : undefined;
+      const solelyTail = scope.ud.consumers(run.top).length === 1 && !scope.ud.isGraphOutput(run.top); // (as analyze.ts judges it)
+      if (chain && written && solelyTail && run.steps[0]!.kind === 'elementwise' && entryKind(scope, run.steps[0]!.node) === 'normalization') {
+        folded.push(entry(chain, written, 'normalization', writtenOutHint(targets)));
       }
+      run.steps.forEach((x, i) => {
+        folded.push(entry(x.node, x.node.opType, entryKind(scope, x.node), x.kind === 'layer-norm' ? layerNormHint(targets) : hint, i === 0 && o.clone ? cloneCost(o.matches[0]!) : 0));
+      });
       for (const r of edit.released) released.add(r);
       for (const v of edit.goneValues) gone.add(v);
     }
@@ -97,7 +134,7 @@ export function foldModel(model: Model, options: FoldOptions = {}): { model: Mod
   const bytesBefore = weightBytes(model);
   // Ledger order: where each node stood in the original model.
   const order = new Map<string, number>();
-  for (const s of buildScopes(model, ctx.labels)) for (const n of s.graph.nodes) order.set(`${s.path}\u0000${labelOf(s, n)}`, order.size);
+  for (const s of buildScopes(model, ctx.labels, ctx.options.inputShapes)) for (const n of s.graph.nodes) order.set(`${s.path}\u0000${labelOf(s, n)}`, order.size);
   const folded: LedgerEntry[] = [];
   const released = new Set<string>();
   const gone = new Set<string>();
@@ -107,7 +144,10 @@ export function foldModel(model: Model, options: FoldOptions = {}): { model: Mod
     validateModel(model);
   }
   // Every normalization still in the model, with its reason, from the same analysis audit runs.
-  const kept: LedgerEntry[] = findingsOf(ctx, model).map((f) => ({ ...f, status: 'kept' as const }));
+  // (A norm whose statistics stay shows up again after its tail moved: the folded entry stands.)
+  const done = new Set(folded.map((e) => `${e.graph}\u0000${e.node}`));
+  const kept: LedgerEntry[] = findingsOf(ctx, model).filter((f) => !done.has(`${f.graph}\u0000${f.node}`))
+    .map((f) => ({ ...f, status: 'kept' as const }));
   const normalizations = [...folded, ...kept].sort((a, b) => (order.get(`${a.graph}\u0000${a.node}`) ?? 1e15) - (order.get(`${b.graph}\u0000${b.node}`) ?? 1e15));
   return {
     model,

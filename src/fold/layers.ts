@@ -44,7 +44,7 @@ function constantParam(ctx: FoldContext, scope: Scope, n: Node, v: string, what:
   if (!ref) return refuse('no-linear-neighbour', `the ${what} of '${n.name || n.opType}' is computed at run time; store it as an initializer`);
   if (INTEGER_TYPES.has(ref.tensor.dataType)) return refuse('quantized-weights', `the ${what} '${v}' is ${dataTypeName(ref.tensor.dataType)}; fold before quantizing`);
   if (!isFloatType(ref.tensor.dataType)) return refuse('dtype-unsupported', `the ${what} '${v}' is ${dataTypeName(ref.tensor.dataType)}, which pleat cannot rewrite exactly`);
-  if (ref.overridable && !ctx.allowOverridable) return refuse('overridable-weights', `'${v}' is also a graph input; remove it from the inputs or allow overridable weights`);
+  if (ref.overridable && !ctx.allowOverridable) return refuse('overridable-weights', `'${v}' is also a graph input, so callers may replace it; remove it from the graph inputs in the export, or pass --allow-overridable if callers never do`);
   return ref;
 }
 

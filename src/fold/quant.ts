@@ -186,10 +186,13 @@ export function quantReadiness(before: Model, after: Model, ledger: readonly Led
   const groups = new Map<string, { graph: string; target: string; norms: string[] }>();
   for (const e of ledger) {
     if (e.status !== 'folded' || e.target === null) continue;
-    const key = `${e.graph}\u0000${e.target}`;
-    const g = groups.get(key) ?? { graph: e.graph, target: e.target, norms: [] };
-    g.norms.push(e.node);
-    groups.set(key, g);
+    // a norm read by several layers folded into each of them: one row per layer
+    for (const target of e.targets?.length ? e.targets : [e.target]) {
+      const key = `${e.graph}\u0000${target}`;
+      const g = groups.get(key) ?? { graph: e.graph, target, norms: [] };
+      if (!g.norms.includes(e.node)) g.norms.push(e.node);
+      groups.set(key, g);
+    }
   }
   if (groups.size === 0) return [];
   const sb = buildScopes(before), sa = buildScopes(after);

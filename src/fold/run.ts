@@ -2,7 +2,8 @@
 // Add then a norm, Mul then Add). Every member sees the same run, so every member gets the same outcome
 // whichever one the analysis starts from, and audit and fold cannot disagree.
 import type { Node } from '../graph/ir.js';
-import { composeAffine, elementwiseAffine, broadcastAffine, fitsChannelAxis, type Affine } from './affine.js';
+import { channelAxisFromEnd, composeAffine, elementwiseAffine, broadcastAffine, fitsChannelAxis, type Affine } from './affine.js';
+import { writtenOutNorm } from './norms.js';
 import { readStep, type AffineStep } from './steps.js';
 import { refuse, type FoldContext, type Refusal } from './context.js';
 import type { Scope } from './scope.js';
@@ -14,7 +15,10 @@ export interface Run {
   /** The activation the first step reads, and the one the last step writes. */
   top: string;
   bottom: string;
-  hasBatchNorm: boolean;
+  /** A normalization operator (BatchNormalization, a LayerNormalization's tail, or the Mul/Add right after a
+   * written-out layer norm or RMSNorm) is part of the run: its fold is worth it even when the shift needs a new
+   * bias Add. */
+  hasNormOp: boolean;
 }
 
 /** Per-pass cache of readStep, which decodes tensors. */
@@ -58,8 +62,14 @@ export function collectRun(ctx: FoldContext, scope: Scope, cache: StepCache, anc
   }
   return {
     scope, steps, top: steps[0]!.data, bottom: steps[steps.length - 1]!.output,
-    hasBatchNorm: steps.some((s) => s.kind === 'batch-norm'),
+    hasNormOp: steps.some((s) => s.kind !== 'elementwise') || tailOfWrittenOutNorm(scope, steps[0]!),
   };
+}
+
+/** The per-feature scale-and-shift right after a layer norm or RMSNorm written out as primitive ops. */
+function tailOfWrittenOutNorm(scope: Scope, first: AffineStep): boolean {
+  const p = scope.ud.producer(first.data);
+  return p !== undefined && first.kind === 'elementwise' && writtenOutNorm(scope, p) !== undefined && channelAxisFromEnd(first.constDims!) !== null;
 }
 
 /**
@@ -72,9 +82,18 @@ export function resolveRun(run: Run, rank: number | undefined, axisFromEnd: numb
     let a: Affine | undefined;
     const who = `'${s.node.name || s.node.opType}'`;
     if (s.kind === 'batch-norm') {
-      if (rank === undefined) return refuse('axis-mismatch', `the rank at ${who} is not declared; add value_info so its channel axis can be checked`);
+      if (rank === undefined) return refuse('axis-mismatch', `the rank at ${who} is not declared and cannot be worked out from the model's input shapes; add value_info for its input (or give --shape when a model input's shape is not declared) so its axis can be checked`);
       if (rank - 2 !== axisFromEnd) return refuse('axis-mismatch', `${who} normalizes axis 1 but the layer's channel axis is ${rank - 1 - axisFromEnd}`);
       if (s.bn!.scale.length !== channels) return refuse('axis-mismatch', `${who} has ${s.bn!.scale.length} channels, the layer ${channels}`);
+      a = s.bn!;
+    } else if (s.kind === 'layer-norm') {
+      const axis = s.lnAxis!;
+      if (axis !== -1) {
+        if (rank === undefined) return refuse('axis-mismatch', `the rank at ${who} is not declared and cannot be worked out from the model's input shapes; add value_info for its input (or give --shape when a model input's shape is not declared) so its axis can be checked`);
+        if (axis !== rank - 1) return refuse('axis-mismatch', `${who} normalizes from axis ${axis}, but its Scale and B must sit on the last axis, the one the layer reads as its features`);
+      }
+      if (axisFromEnd !== 0) return refuse('axis-mismatch', `${who} scales the last axis but the layer's channel axis is ${rank === undefined ? `${axisFromEnd} from the end` : rank - 1 - axisFromEnd}`);
+      if (s.bn!.scale.length !== channels) return refuse('axis-mismatch', `${who} has ${s.bn!.scale.length} features, the layer reads ${channels}`);
       a = s.bn!;
     } else {
       if (!fitsChannelAxis(s.constDims!, rank, axisFromEnd, channels)) {

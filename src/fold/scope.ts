@@ -4,6 +4,7 @@ import { isShorthandConstant } from '../graph/constants.js';
 import type { Graph, Model, Node, Tensor, ValueInfo } from '../graph/ir.js';
 import { subgraphsOf } from '../graph/ir.js';
 import { buildUseDef, outerRefs, type UseDef } from '../graph/usedef.js';
+import { inferShapes, type Shape } from '../graph/shapes.js';
 
 export interface Scope {
   graph: Graph;
@@ -22,6 +23,10 @@ export interface Scope {
   infos?: Map<string, ValueInfo>;
   /** Before IR version 4 every initializer had to be listed as an input too, so that was no sign of intent. */
   inputsOverride: boolean;
+  /** Main graph: shapes given for the model's inputs (see FoldOptions.inputShapes). */
+  inputShapes?: ReadonlyMap<string, Shape>;
+  /** Shapes propagated from the inputs (src/graph/shapes.ts), worked out on first need. */
+  inferred?: Map<string, Shape>;
 }
 
 /** A constant read by a node: where it is defined and whether others read it. */
@@ -51,7 +56,7 @@ export function isDefaultDomain(n: Node): boolean {
 }
 
 /** Every graph of the model, main first, bodies in node order (pre-order). */
-export function buildScopes(model: Model, fixedLabels?: Map<Node, string>): Scope[] {
+export function buildScopes(model: Model, fixedLabels?: Map<Node, string>, inputShapes?: ReadonlyMap<string, Shape>): Scope[] {
   const out: Scope[] = [];
   const visit = (graph: Graph, path: string, parent?: Scope, owner?: Node) => {
     const labels = new Map<Node, string>();
@@ -61,7 +66,7 @@ export function buildScopes(model: Model, fixedLabels?: Map<Node, string>): Scop
       const fixed = fixedLabels?.get(n);
       if (fixed !== undefined ? fixed !== n.name : !n.name) labels.set(n, fixed ?? nodeLabel(n, i));
     }
-    const scope: Scope = { graph, path, parent, owner, ud: buildUseDef(graph), labels, ranks: new Map(), inputsOverride: model.irVersion >= 4 };
+    const scope: Scope = { graph, path, parent, owner, ud: buildUseDef(graph), labels, ranks: new Map(), inputsOverride: model.irVersion >= 4, inputShapes: parent ? undefined : inputShapes };
     out.push(scope);
     for (const n of nodes) {
       for (const a of n.attributes) {
@@ -183,8 +188,20 @@ export function rankOf(s: Scope, v: string, depth = 0): number | undefined {
       } else if (p.opType === 'Flatten') r = 2;
     }
   }
+  // Not declared and not evident from the producer: propagate shapes from the model's inputs.
+  if (r === undefined) r = inferredShape(s, v)?.length;
   s.ranks.set(v, r);
   return r;
+}
+
+/** The shape of a value propagated from the graph's inputs (and the enclosing graphs' values), if it can be. */
+export function inferredShape(s: Scope, v: string): Shape | undefined {
+  return shapesOf(homeOf(s, v) ?? s).get(v);
+}
+
+function shapesOf(s: Scope): Map<string, Shape> {
+  s.inferred ??= inferShapes(s.graph, s.inputShapes, s.parent ? shapesOf(s.parent) : undefined);
+  return s.inferred;
 }
 
 export const LINEAR_OPS = new Set(['Conv', 'ConvTranspose', 'Gemm', 'MatMul']);

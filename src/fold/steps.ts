@@ -8,15 +8,19 @@ import { batchNormAffine, channelAxisFromEnd, type Affine, type ElementwiseOp } 
 import { constantOf, isDefaultDomain, type ConstRef, type Scope } from './scope.js';
 import { weightSource } from './values.js';
 import { refuse, type FoldContext, type Refusal } from './context.js';
+import type { EntryKind } from './types.js';
 
 export interface AffineStep {
   node: Node;
-  kind: 'batch-norm' | 'elementwise';
+  /** layer-norm: the learned scale and shift of a fused LayerNormalization (its statistics stay in place). */
+  kind: 'batch-norm' | 'elementwise' | 'layer-norm';
   /** The activation the step reads, and the one it writes. */
   data: string;
   output: string;
-  /** BatchNormalization: its map over axis 1. */
+  /** BatchNormalization: its map over axis 1; LayerNormalization: its Scale and B over the axis it normalizes. */
   bn?: Affine;
+  /** LayerNormalization: its axis attribute as written (-1 when absent). */
+  lnAxis?: number;
   /** Elementwise: the operation and its constant. */
   op?: ElementwiseOp;
   constOnLeft?: boolean;
@@ -29,6 +33,10 @@ const ELEMENTWISE = new Set(['Add', 'Sub', 'Mul', 'Div']);
 
 export function isBatchNorm(n: Node): boolean {
   return n.opType === 'BatchNormalization' && isDefaultDomain(n);
+}
+
+export function isLayerNorm(n: Node): boolean {
+  return n.opType === 'LayerNormalization' && isDefaultDomain(n);
 }
 
 export function isElementwise(n: Node): boolean {
@@ -53,7 +61,52 @@ export function readStep(ctx: FoldContext, scope: Scope, n: Node): AffineStep | 
   if (ctx.generated.has(n)) return undefined;
   if (isBatchNorm(n)) return readBatchNorm(ctx, scope, n);
   if (isElementwise(n)) return readElementwise(ctx, scope, n);
+  if (isLayerNorm(n)) return readLayerNormTail(ctx, scope, n);
   return undefined;
+}
+
+/**
+ * The learned tail of a fused LayerNormalization (ONNX Operators, LayerNormalization, opset 17: Y = normalized
+ * * Scale + B over the axes from `axis` on). Its statistics come from each input and stay; only Scale and B can
+ * move into the readers. Undefined when there is nothing to move or it cannot be read as a per-feature vector.
+ */
+function readLayerNormTail(ctx: FoldContext, scope: Scope, n: Node): AffineStep | Refusal | undefined {
+  if (ctx.opsetOf('') < 17 || hasExtraOutput(n)) return undefined;
+  const [, sName, bName] = n.inputs;
+  if (!sName) return undefined;
+  const refs: ConstRef[] = [];
+  for (const name of [sName, bName]) {
+    if (!name) continue;
+    const r = constantOf(scope, name);
+    if (!r || !isFloatType(r.tensor.dataType) || r.tensor.dims.length !== 1) return undefined;
+    refs.push(r);
+  }
+  const c = elementCount(refs[0]!.tensor.dims);
+  if (refs.some((r) => elementCount(r.tensor.dims) !== c)) return undefined;
+  const scale = tensorToFloat64(refs[0]!.tensor);
+  const shift = bName ? tensorToFloat64(refs[1]!.tensor) : new Float64Array(c);
+  if (scale.every((v) => v === 1) && shift.every((v) => v === 0)) return undefined; // nothing left to move
+  const user = userRefusal(ctx, n);
+  if (user) return user;
+  if (overridable(ctx, refs)) {
+    const r = refs.find((x) => x.overridable)!;
+    return refuse('overridable-weights', `'${r.name}' is also a graph input, so callers may replace it; remove it from the graph inputs in the export, or pass --allow-overridable if callers never do`);
+  }
+  const y = n.outputs[0]!;
+  return { node: n, kind: 'layer-norm', data: y, output: y, bn: { scale, shift }, lnAxis: attrInt(n, 'axis', -1), consts: refs };
+}
+
+/**
+ * Whether a node is a normalization (an operator, or a per-channel scale-and-shift by a constant vector) or
+ * another constant affine step (a scalar constant): the line between listed-and-kept and "also folded".
+ */
+export function entryKind(scope: Scope, n: Node): EntryKind {
+  if (!isElementwise(n)) return 'normalization';
+  for (const v of n.inputs) {
+    const r = v ? constantOf(scope, v) : undefined;
+    if (r) return channelAxisFromEnd(r.tensor.dims) === null ? 'affine-step' : 'normalization';
+  }
+  return 'normalization';
 }
 
 function userRefusal(ctx: FoldContext, n: Node): Refusal | undefined {
@@ -77,7 +130,7 @@ function readBatchNorm(ctx: FoldContext, scope: Scope, n: Node): AffineStep | Re
   }
   if (overridable(ctx, refs)) {
     const r = refs.find((x) => x.overridable)!;
-    return refuse('overridable-weights', `'${r.name}' is also a graph input; remove it from the inputs or allow overridable weights`);
+    return refuse('overridable-weights', `'${r.name}' is also a graph input, so callers may replace it; remove it from the graph inputs in the export, or pass --allow-overridable if callers never do`);
   }
   const bad = refs.find((r) => !isFloatType(r.tensor.dataType));
   if (bad) return refuse('dtype-unsupported', `'${bad.name}' is ${dataTypeName(bad.tensor.dataType)}; only float parameters fold exactly`);
@@ -106,7 +159,7 @@ function readElementwise(ctx: FoldContext, scope: Scope, n: Node): AffineStep | 
   if (channelAxisFromEnd(ref.tensor.dims) === undefined) return undefined; // varies along several axes
   const user = userRefusal(ctx, n);
   if (user) return user;
-  if (overridable(ctx, [ref])) return refuse('overridable-weights', `'${ref.name}' is also a graph input; remove it from the inputs or allow overridable weights`);
+  if (overridable(ctx, [ref])) return refuse('overridable-weights', `'${ref.name}' is also a graph input, so callers may replace it; remove it from the graph inputs in the export, or pass --allow-overridable if callers never do`);
   return {
     node: n, kind: 'elementwise', data: constOnLeft ? b : a, output: n.outputs[0]!, op, constOnLeft,
     constDims: [...ref.tensor.dims], constValues: tensorToFloat64(ref.tensor), consts: [ref],

@@ -22,6 +22,13 @@ export type ReasonCode =
 
 export type Direction = 'into-producer' | 'into-consumer';
 
+/**
+ * What an entry is: a normalization (a normalization operator, its written-out form, or a per-channel
+ * scale-and-shift by a constant vector) or another constant affine step (a scalar Mul/Add/Sub/Div, e.g. inside
+ * an activation), which is folded when it can be but never listed as kept.
+ */
+export type EntryKind = 'normalization' | 'affine-step';
+
 /** What the numeric proof of one fold is given: the fold's region of the graph before and after the edit. */
 export interface ProofCase {
   /**
@@ -60,15 +67,28 @@ export interface FoldOptions {
    * start again from the file with this off (the fold job does).
    */
   lateRangeCheck?: boolean;
+  /**
+   * Fold a normalization into a producer whose output has other readers by giving the norm path its own copy
+   * of the layer (--clone-shared); the other readers keep the original.
+   */
+  cloneShared?: boolean;
+  /** Shapes of the model's inputs (given, or the probe's defaults) for shape inference where value_info is missing. */
+  inputShapes?: Map<string, number[]>;
 }
 
 /** One normalization as audit sees it. */
 export interface Finding {
   node: string;
   op: string;
+  kind: EntryKind;
   status: 'foldable' | 'kept';
   direction: Direction | null;
+  /** The layer it folds into; several readers are listed joined by ', ' (each is in `targets`). */
   target: string | null;
+  /** Every layer it folds into (several when its output has several readers). */
+  targets: string[];
+  /** Weight bytes a --clone-shared copy of the layer adds (0 when nothing is cloned). */
+  cloneBytes: number;
   reason: ReasonCode | null;
   /** One line: for a kept norm, what would make it foldable; for a foldable one, what the fold does. */
   hint: string;
@@ -79,9 +99,12 @@ export interface Finding {
 export interface LedgerEntry {
   node: string;
   op: string;
+  kind: EntryKind;
   status: 'folded' | 'kept';
   direction: Direction | null;
   target: string | null;
+  targets: string[];
+  cloneBytes: number;
   reason: ReasonCode | null;
   hint: string;
   graph: string;

@@ -1,8 +1,8 @@
 // The in-memory form of an ONNX model that every other module works on.
 //
-// Lossless by construction: every message read from a file keeps `origin`, the exact bytes it came from,
+// Lossless by construction: every message read from a file keeps `origin`, where its exact bytes are,
 // plus `extra`, the fields pleat does not model (including fields newer than the bundled schema). The
-// writer re-emits `origin` for any message whose modelled fields still match what was read, so a model
+// writer re-emits `origin` for any message whose fields still match what its bytes decode to, so a model
 // with no change comes out byte-identical, and a changed one keeps every untouched message byte for byte.
 // Code that changes tensor data in place must call `touch(tensor)` (see src/graph/edit.ts).
 
@@ -12,13 +12,17 @@ export interface RawField {
   bytes: Uint8Array;
 }
 
-/** Where a message came from: its bytes, its unmodelled fields, and a signature of its modelled ones. */
+/**
+ * Where a message came from: buf[start, end), offsets into the buffer the file was read into (shared by every
+ * message of the model). Nothing else is kept at read time: the writer decodes these bytes again to decide
+ * whether the message changed and to recover its field order (src/onnx/signature.ts).
+ */
 export interface Origin {
-  bytes: Uint8Array;
-  /** Signature of the modelled fields at read time; the writer compares it to decide whether to re-emit `bytes`. */
-  sig: string;
-  /** Field numbers in their original order (used to keep field order when a message is re-encoded). */
-  order: number[];
+  buf: Uint8Array;
+  start: number;
+  end: number;
+  /** For a tensor with external data: the bytes the reader loaded (an unchanged tensor still holds them). */
+  loaded?: Uint8Array;
 }
 
 /** ONNX TensorProto.DataType codes. */
@@ -119,7 +123,6 @@ export interface ValueInfo {
   docString: string;
   /** The TypeProto exactly as read (re-emitted when elemType/shape are unchanged). */
   typeBytes?: Uint8Array;
-  typeSig?: string;
   extra: RawField[];
   origin?: Origin;
 }

@@ -7,15 +7,17 @@ import { fileSha256 } from './sha256.js';
 import { SCHEMA_VERSION, type AuditJobOptions, type AuditReport } from './types.js';
 
 export function auditLoaded(model: Model, label: string, opts: AuditJobOptions = {}): AuditReport {
-  const findings = analyze(model, { keep: opts.keep, allowOverridable: opts.allowOverridable });
-  const kept = findings.filter((f) => f.status === 'kept').length;
+  const findings = analyze(model, { keep: opts.keep, allowOverridable: opts.allowOverridable, cloneShared: opts.cloneShared });
+  const norms = findings.filter((f) => f.kind === 'normalization');
+  const kept = norms.filter((f) => f.status === 'kept').length;
   return {
     schemaVersion: SCHEMA_VERSION,
     command: 'audit',
     model: label,
     normalizations: findings,
-    foldable: findings.length - kept,
+    foldable: norms.length - kept,
     kept,
+    alsoFoldable: findings.length - norms.length,
     failOn: opts.failOn ?? null,
     failed: opts.failOn === 'kept' && kept > 0,
   };

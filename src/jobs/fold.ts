@@ -135,6 +135,8 @@ function foldWithin(model: Model, original: Model | undefined, label: string, op
   const { ledger } = foldModel(model, {
     keep: opts.keep,
     allowOverridable: opts.allowOverridable,
+    cloneShared: opts.cloneShared,
+    inputShapes: asMap(opts.shapes),
     lateRangeCheck,
     prove: opts.noProofs ? undefined : (c) => proveFold(c, { seed: opts.seed }).passed,
   });

@@ -11,7 +11,7 @@ import type { Int8Granularity } from '../fold/int8.js';
 
 export type { QuantRow, EqualizedPair, Int8Granularity, Sketch };
 
-export const SCHEMA_VERSION = 3;
+export const SCHEMA_VERSION = 5;
 
 export interface OutputCheck {
   name: string;
@@ -94,9 +94,13 @@ export interface AuditReport {
   schemaVersion: number;
   command: 'audit';
   model: string;
+  /** Normalizations and other constant affine steps (see Finding.kind). */
   normalizations: Finding[];
+  /** Normalizations fold would fold, and those it keeps (affine steps are never kept). */
   foldable: number;
   kept: number;
+  /** Other constant affine steps fold would fold too (listed apart, as "also foldable"). */
+  alsoFoldable: number;
   failOn: 'kept' | null;
   /** True when --fail-on kept is set and a normalization is kept (exit 1). */
   failed: boolean;
@@ -123,6 +127,8 @@ export interface Int8Simulation {
 
 export interface FoldJobOptions extends InputOptions {
   keep?: string[];
+  /** Give a norm its own copy of a producer whose output has other readers (--clone-shared). */
+  cloneShared?: boolean;
   allowOverridable?: boolean;
   /** Store folded weights in half precision. */
   store?: 'float16';
@@ -147,6 +153,8 @@ export interface FoldJobOptions extends InputOptions {
 
 export interface AuditJobOptions {
   keep?: string[];
+  /** Judge as fold --clone-shared would. */
+  cloneShared?: boolean;
   allowOverridable?: boolean;
   failOn?: 'kept';
   /** See FoldJobOptions.pageDetail. */

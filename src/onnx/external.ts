@@ -6,7 +6,6 @@ import type { Graph, Model, Tensor } from '../graph/ir.js';
 import { elementCount, subgraphsOf } from '../graph/ir.js';
 import { bytesPerElement, dataTypeName } from '../graph/tensor.js';
 import { PleatError } from '../errors.js';
-import { tensorSig } from './signature.js';
 
 export interface ExternalRef { location: string; offset: number; length?: number }
 
@@ -112,8 +111,8 @@ export function loadExternalData(model: Model, label: string, redirect?: Readonl
         got += n;
       }
       t.storage = { kind: 'external', entries: t.storage.entries, bytes };
-      // Loading is not a change: keep the signature in step so an untouched tensor re-emits its bytes.
-      if (t.origin) t.origin.sig = tensorSig(t);
+      // Loading is not a change: remember what was loaded so an untouched tensor re-emits its bytes.
+      if (t.origin) t.origin.loaded = bytes;
     });
   } finally {
     for (const f of files.values()) closeSync(f.fd);

@@ -1,18 +1,15 @@
-// Bytes -> IR. Every message keeps its original bytes (views into the file buffer, no copies) and the
+// Bytes -> IR. Every message keeps where its original bytes are (offsets into the file buffer) and the
 // fields pleat does not model, so the writer can give them back unchanged.
 import { closeSync, statSync } from 'node:fs';
 import { dirname, resolve } from 'node:path';
 import type {
-  Attribute, AttributeValue, Dim, Graph, Model, Node, OpsetImport, RawField, Tensor, TensorStorage, ValueInfo,
+  Attribute, AttributeValue, Dim, Graph, Model, Node, OpsetImport, Origin, RawField, Tensor, TensorStorage, ValueInfo,
 } from '../graph/ir.js';
 import { PleatError } from '../errors.js';
 import {
   WT_LEN, WireError, readFloat, readInt, readPackedFixed32, readPackedFixed64, readPackedVarints,
   readPackedVarintsBig, readString, fieldsOf, type WireField,
 } from './wire.js';
-import {
-  attributeSig, graphSig, modelSig, nodeSig, opsetSig, tensorSig, typeSig, valueInfoSig,
-} from './signature.js';
 import { loadExternalData } from './external.js';
 import { validateModel } from '../graph/validate.js';
 import { openForRead, readSparse } from './sparse-read.js';
@@ -27,8 +24,21 @@ function expectLen(f: WireField, what: string): void {
   if (f.wt !== WT_LEN) throw new WireError(`${what}: field ${f.no} has wire type ${f.wt}, expected a length-delimited field`);
 }
 
-function origin(buf: Buf, start: number, end: number, order: number[], sig: string) {
-  return { bytes: buf.subarray(start, end), sig, order };
+/** Where a message's bytes are: offsets into the file buffer (no view, no copy). */
+function origin(buf: Buf, start: number, end: number): Origin {
+  return { buf, start, end };
+}
+
+/**
+ * Child messages recorded as byte ranges instead of decoded: flat [field, start, end, ...]. The writer's change
+ * check (src/onnx/signature.ts) decodes a message's own fields again this way, without its children.
+ */
+export type KidRanges = number[];
+
+function withOnce(list: string[] | undefined, k: string): string[] {
+  if (!list) return [k];
+  if (!list.includes(k)) list.push(k);
+  return list;
 }
 
 export function decodeTensor(buf: Buf, start: number, end: number): Tensor {
@@ -43,19 +53,21 @@ export function decodeTensor(buf: Buf, start: number, end: number): Tensor {
   let external: Array<[string, string]> | undefined;
   let location = 0;
   let kind: TensorStorage['kind'] | undefined;
-  const typed = new Set<string>(); // typed data fields present (a second one, or one beside raw_data, is invalid)
+  // typed data fields present, in the order first seen (a second one, or one beside raw_data, is invalid); a
+  // list made only when there is one, since most tensors hold raw_data
+  let typed: string[] | undefined;
   while (f.next()) {
     switch (f.no) {
       case 1: readPackedVarints(buf, f, dims); break;
       case 2: dataType = readInt(buf, f); break;
-      case 4: readPackedFixed32(buf, f, floats ??= [], true); kind = 'float_data'; typed.add(kind); break;
-      case 5: readPackedVarints(buf, f, int32s ??= []); kind = 'int32_data'; typed.add(kind); break;
-      case 6: expectLen(f, 'string_data'); (strings ??= []).push(buf.subarray(f.vstart, f.vend)); kind = 'string_data'; typed.add(kind); break;
-      case 7: readPackedVarintsBig(buf, f, int64s ??= []); kind = 'int64_data'; typed.add(kind); break;
+      case 4: readPackedFixed32(buf, f, floats ??= [], true); kind = 'float_data'; typed = withOnce(typed, kind); break;
+      case 5: readPackedVarints(buf, f, int32s ??= []); kind = 'int32_data'; typed = withOnce(typed, kind); break;
+      case 6: expectLen(f, 'string_data'); (strings ??= []).push(buf.subarray(f.vstart, f.vend)); kind = 'string_data'; typed = withOnce(typed, kind); break;
+      case 7: readPackedVarintsBig(buf, f, int64s ??= []); kind = 'int64_data'; typed = withOnce(typed, kind); break;
       case 8: name = readString(buf, f); break;
       case 9: expectLen(f, 'raw_data'); storage = { kind: 'raw', bytes: buf.subarray(f.vstart, f.vend) }; kind = 'raw'; break;
-      case 10: readPackedFixed64(buf, f, doubles ??= []); kind = 'double_data'; typed.add(kind); break;
-      case 11: readPackedVarintsBig(buf, f, uint64s ??= []); kind = 'uint64_data'; typed.add(kind); break;
+      case 10: readPackedFixed64(buf, f, doubles ??= []); kind = 'double_data'; typed = withOnce(typed, kind); break;
+      case 11: readPackedVarintsBig(buf, f, uint64s ??= []); kind = 'uint64_data'; typed = withOnce(typed, kind); break;
       case 12: docString = readString(buf, f); break;
       case 13: {
         expectLen(f, 'external_data');
@@ -73,7 +85,7 @@ export function decodeTensor(buf: Buf, start: number, end: number): Tensor {
   }
   // ONNX IR: a tensor's data lives in raw_data or in one typed *_data field, not both; runtimes disagree on
   // which one wins when several are present (onnx/onnx.proto3, TensorProto; the checker refuses it).
-  const held = [...typed, ...(storage.kind === 'raw' ? ['raw_data'] : [])];
+  const held = [...(typed ?? []), ...(storage.kind === 'raw' ? ['raw_data'] : [])];
   if (held.length > 1) {
     throw new PleatError('bad-model', `tensor '${name}' holds its data in both ${held.slice(0, -1).join(', ')} and ${held[held.length - 1]}; a tensor must use exactly one`);
   }
@@ -94,7 +106,7 @@ export function decodeTensor(buf: Buf, start: number, end: number): Tensor {
     throw new PleatError('bad-model', `tensor '${name}' has an invalid dimension in [${dims.join(',')}]`);
   }
   const t: Tensor = { name, dims, dataType, storage, docString, extra };
-  t.origin = origin(buf, start, end, f.order, tensorSig(t));
+  t.origin = origin(buf, start, end);
   // data_location and external_data entries are modelled through storage
   return t;
 }
@@ -113,7 +125,18 @@ function decodeDims(buf: Buf, start: number, end: number): Dim[] {
   return dims;
 }
 
-function decodeValueInfo(buf: Buf, start: number, end: number): ValueInfo {
+/** The element type and shape of a TypeProto holding a tensor type (other types leave both undefined). */
+export function decodeTensorType(buf: Buf, start: number, end: number, into: Pick<ValueInfo, 'elemType' | 'shape'>): void {
+  for (const t = fieldsOf(buf, start, end); t.next();) {
+    if (t.no !== 1) continue; // not a tensor type
+    for (const tt = fieldsOf(buf, t.vstart, t.vend); tt.next();) {
+      if (tt.no === 1) into.elemType = readInt(buf, tt);
+      else if (tt.no === 2) into.shape = decodeDims(buf, tt.vstart, tt.vend);
+    }
+  }
+}
+
+export function decodeValueInfo(buf: Buf, start: number, end: number): ValueInfo {
   const f = fieldsOf(buf, start, end);
   const v: ValueInfo = { name: '', docString: '', extra: [] };
   while (f.next()) {
@@ -122,21 +145,14 @@ function decodeValueInfo(buf: Buf, start: number, end: number): ValueInfo {
       case 2: {
         expectLen(f, 'value type');
         v.typeBytes = buf.subarray(f.vstart, f.vend);
-        for (const t = fieldsOf(buf, f.vstart, f.vend); t.next();) {
-          if (t.no !== 1) continue; // not a tensor type
-          for (const tt = fieldsOf(buf, t.vstart, t.vend); tt.next();) {
-            if (tt.no === 1) v.elemType = readInt(buf, tt);
-            else if (tt.no === 2) v.shape = decodeDims(buf, tt.vstart, tt.vend);
-          }
-        }
+        decodeTensorType(buf, f.vstart, f.vend, v);
         break;
       }
       case 3: v.docString = readString(buf, f); break;
       default: v.extra.push(raw(buf, f));
     }
   }
-  v.typeSig = typeSig(v);
-  v.origin = origin(buf, start, end, f.order, valueInfoSig(v));
+  v.origin = origin(buf, start, end);
   return v;
 }
 
@@ -144,16 +160,25 @@ const ATTR_TYPES: Record<number, AttributeValue['type']> = {
   1: 'FLOAT', 2: 'INT', 3: 'STRING', 4: 'TENSOR', 5: 'GRAPH', 6: 'FLOATS', 7: 'INTS', 8: 'STRINGS', 9: 'TENSORS', 10: 'GRAPHS',
 };
 
-function decodeAttribute(buf: Buf, start: number, end: number, depth: number): Attribute {
+const NO_BYTES = new Uint8Array(0);
+
+export function decodeAttribute(buf: Buf, start: number, end: number, depth: number, kids?: KidRanges): Attribute {
   const f = fieldsOf(buf, start, end);
   let name = '', docString = '', refAttrName = '', typeCode = 0;
-  let f_ = 0, i_ = 0, s_: Uint8Array = new Uint8Array(0);
+  let f_ = 0, i_ = 0, s_: Uint8Array = NO_BYTES;
   let t_: Tensor | undefined, g_: Graph | undefined;
-  const floats: number[] = [], ints: number[] = [], strings: Uint8Array[] = [], tensors: Tensor[] = [], graphs: Graph[] = [];
-  const seen = new Set<number>();
+  // arrays only for the repeated fields present: most attributes hold one number or one list
+  let floats: number[] | undefined, ints: number[] | undefined, strings: Uint8Array[] | undefined;
+  let tensors: Tensor[] | undefined, graphs: Graph[] | undefined;
+  let seen = 0; // bit i: field i+1 present (fields 2..11 decide the type of IR < 2 attributes)
   const extra: RawField[] = [];
   while (f.next()) {
-    seen.add(f.no);
+    if (f.no <= 31) seen |= 1 << (f.no - 1);
+    if (kids && f.no >= 5 && f.no <= 11 && f.no !== 7 && f.no !== 8 && f.no !== 9) {
+      expectLen(f, 'attribute value');
+      kids.push(f.no, f.vstart, f.vend);
+      continue;
+    }
     switch (f.no) {
       case 1: name = readString(buf, f); break;
       case 2: f_ = readFloat(buf, f); break;
@@ -161,11 +186,11 @@ function decodeAttribute(buf: Buf, start: number, end: number, depth: number): A
       case 4: expectLen(f, 'attribute s'); s_ = buf.subarray(f.vstart, f.vend); break;
       case 5: expectLen(f, 'attribute t'); t_ = decodeTensor(buf, f.vstart, f.vend); break;
       case 6: expectLen(f, 'attribute g'); g_ = decodeGraph(buf, f.vstart, f.vend, depth + 1); break;
-      case 7: readPackedFixed32(buf, f, floats, true); break;
-      case 8: readPackedVarints(buf, f, ints); break;
-      case 9: expectLen(f, 'attribute strings'); strings.push(buf.subarray(f.vstart, f.vend)); break;
-      case 10: expectLen(f, 'attribute tensors'); tensors.push(decodeTensor(buf, f.vstart, f.vend)); break;
-      case 11: expectLen(f, 'attribute graphs'); graphs.push(decodeGraph(buf, f.vstart, f.vend, depth + 1)); break;
+      case 7: readPackedFixed32(buf, f, floats ??= [], true); break;
+      case 8: readPackedVarints(buf, f, ints ??= []); break;
+      case 9: expectLen(f, 'attribute strings'); (strings ??= []).push(buf.subarray(f.vstart, f.vend)); break;
+      case 10: expectLen(f, 'attribute tensors'); (tensors ??= []).push(decodeTensor(buf, f.vstart, f.vend)); break;
+      case 11: expectLen(f, 'attribute graphs'); (graphs ??= []).push(decodeGraph(buf, f.vstart, f.vend, depth + 1)); break;
       case 13: docString = readString(buf, f); break;
       case 20: typeCode = readInt(buf, f); break;
       case 21: refAttrName = readString(buf, f); break;
@@ -175,7 +200,7 @@ function decodeAttribute(buf: Buf, start: number, end: number, depth: number): A
   // IR < 2 files may omit `type`: infer it from the field present.
   if (typeCode === 0) {
     const inferred: Array<[number, number]> = [[2, 1], [3, 2], [4, 3], [5, 4], [6, 5], [7, 6], [8, 7], [9, 8], [10, 9], [11, 10]];
-    for (const [field, code] of inferred) if (seen.has(field)) { typeCode = code; break; }
+    for (const [field, code] of inferred) if (seen & (1 << (field - 1))) { typeCode = code; break; }
   }
   let value: AttributeValue;
   switch (ATTR_TYPES[typeCode]) {
@@ -183,24 +208,24 @@ function decodeAttribute(buf: Buf, start: number, end: number, depth: number): A
     case 'INT': value = { type: 'INT', i: i_ }; break;
     case 'STRING': value = { type: 'STRING', s: s_ }; break;
     case 'TENSOR':
-      if (!t_) throw new PleatError('bad-model', `attribute '${name}' is a TENSOR but holds no tensor`);
-      value = { type: 'TENSOR', t: t_ }; break;
+      if (!t_ && !kids) throw new PleatError('bad-model', `attribute '${name}' is a TENSOR but holds no tensor`);
+      value = { type: 'TENSOR', t: t_! }; break;
     case 'GRAPH':
-      if (!g_) throw new PleatError('bad-model', `attribute '${name}' is a GRAPH but holds no graph`);
-      value = { type: 'GRAPH', g: g_ }; break;
-    case 'FLOATS': value = { type: 'FLOATS', floats }; break;
-    case 'INTS': value = { type: 'INTS', ints }; break;
-    case 'STRINGS': value = { type: 'STRINGS', strings }; break;
-    case 'TENSORS': value = { type: 'TENSORS', tensors }; break;
-    case 'GRAPHS': value = { type: 'GRAPHS', graphs }; break;
+      if (!g_ && !kids) throw new PleatError('bad-model', `attribute '${name}' is a GRAPH but holds no graph`);
+      value = { type: 'GRAPH', g: g_! }; break;
+    case 'FLOATS': value = { type: 'FLOATS', floats: floats ?? [] }; break;
+    case 'INTS': value = { type: 'INTS', ints: ints ?? [] }; break;
+    case 'STRINGS': value = { type: 'STRINGS', strings: strings ?? [] }; break;
+    case 'TENSORS': value = { type: 'TENSORS', tensors: tensors ?? [] }; break;
+    case 'GRAPHS': value = { type: 'GRAPHS', graphs: graphs ?? [] }; break;
     default: value = { type: 'OTHER', code: typeCode };
   }
   const a: Attribute = { name, value, docString, refAttrName, extra };
-  a.origin = origin(buf, start, end, f.order, attributeSig(a));
+  a.origin = origin(buf, start, end);
   return a;
 }
 
-function decodeNode(buf: Buf, start: number, end: number, depth: number): Node {
+export function decodeNode(buf: Buf, start: number, end: number, depth: number, kids?: KidRanges): Node {
   const f = fieldsOf(buf, start, end);
   const n: Node = { name: '', opType: '', domain: '', inputs: [], outputs: [], attributes: [], docString: '', extra: [] };
   while (f.next()) {
@@ -209,21 +234,30 @@ function decodeNode(buf: Buf, start: number, end: number, depth: number): Node {
       case 2: n.outputs.push(readString(buf, f)); break;
       case 3: n.name = readString(buf, f); break;
       case 4: n.opType = readString(buf, f); break;
-      case 5: expectLen(f, 'attribute'); n.attributes.push(decodeAttribute(buf, f.vstart, f.vend, depth)); break;
+      case 5:
+        expectLen(f, 'attribute');
+        if (kids) kids.push(5, f.vstart, f.vend);
+        else n.attributes.push(decodeAttribute(buf, f.vstart, f.vend, depth));
+        break;
       case 6: n.docString = readString(buf, f); break;
       case 7: n.domain = readString(buf, f); break;
       default: n.extra.push(raw(buf, f));
     }
   }
-  n.origin = origin(buf, start, end, f.order, nodeSig(n));
+  n.origin = origin(buf, start, end);
   return n;
 }
 
-export function decodeGraph(buf: Buf, start: number, end: number, depth = 0): Graph {
+export function decodeGraph(buf: Buf, start: number, end: number, depth = 0, kids?: KidRanges): Graph {
   if (depth > 64) throw new PleatError('bad-model', 'subgraphs nested more than 64 deep');
   const f = fieldsOf(buf, start, end);
   const g: Graph = { name: '', nodes: [], initializers: [], inputs: [], outputs: [], valueInfo: [], docString: '', extra: [] };
   while (f.next()) {
+    if (kids && (f.no === 1 || f.no === 5 || f.no >= 11 && f.no <= 13)) {
+      expectLen(f, 'graph member');
+      kids.push(f.no, f.vstart, f.vend);
+      continue;
+    }
     switch (f.no) {
       case 1: expectLen(f, 'node'); g.nodes.push(decodeNode(buf, f.vstart, f.vend, depth)); break;
       case 2: g.name = readString(buf, f); break;
@@ -235,7 +269,7 @@ export function decodeGraph(buf: Buf, start: number, end: number, depth = 0): Gr
       default: g.extra.push(raw(buf, f));
     }
   }
-  g.origin = origin(buf, start, end, f.order, graphSig(g));
+  g.origin = origin(buf, start, end);
   return g;
 }
 
@@ -249,7 +283,7 @@ function markOverridable(g: Graph, irVersion: number): void {
   }
 }
 
-function decodeOpset(buf: Buf, start: number, end: number): OpsetImport {
+export function decodeOpset(buf: Buf, start: number, end: number): OpsetImport {
   const f = fieldsOf(buf, start, end);
   const o: OpsetImport = { domain: '', version: 0, extra: [] };
   while (f.next()) {
@@ -257,19 +291,26 @@ function decodeOpset(buf: Buf, start: number, end: number): OpsetImport {
     else if (f.no === 2) o.version = readInt(buf, f);
     else o.extra.push(raw(buf, f));
   }
-  o.origin = origin(buf, start, end, f.order, opsetSig(o));
+  o.origin = origin(buf, start, end);
   return o;
 }
 
-/** Decode model bytes (no external data loaded; see parseModel). */
-export function decodeModel(buf: Buf, baseDir: string): Model {
-  const f = fieldsOf(buf, 0, buf.byteLength);
+type ModelFields = Omit<Model, 'graph' | 'baseDir'> & { graph?: Graph };
+
+/** A ModelProto's fields; with `kids`, the graph and opset imports are recorded as byte ranges, not decoded. */
+export function decodeModelFields(buf: Buf, start: number, end: number, kids?: KidRanges): ModelFields {
+  const f = fieldsOf(buf, start, end);
   let graph: Graph | undefined;
-  const m: Omit<Model, 'graph'> & { graph?: Graph } = {
+  const m: ModelFields = {
     irVersion: 0, opsets: [], producerName: '', producerVersion: '', domain: '', modelVersion: 0, docString: '',
-    metadata: [], extra: [], baseDir,
+    metadata: [], extra: [],
   };
   while (f.next()) {
+    if (kids && (f.no === 7 || f.no === 8)) {
+      expectLen(f, 'model member');
+      kids.push(f.no, f.vstart, f.vend);
+      continue;
+    }
     switch (f.no) {
       case 1: m.irVersion = readInt(buf, f); break;
       case 2: m.producerName = readString(buf, f); break;
@@ -292,10 +333,17 @@ export function decodeModel(buf: Buf, baseDir: string): Model {
       default: m.extra.push(raw(buf, f));
     }
   }
+  if (graph) m.graph = graph;
+  return m;
+}
+
+/** Decode model bytes (no external data loaded; see parseModel). */
+export function decodeModel(buf: Buf, baseDir: string): Model {
+  const { graph, ...m } = decodeModelFields(buf, 0, buf.byteLength);
   if (!graph) throw new PleatError('bad-model', 'no graph in the file: this is not an ONNX model');
-  const model = { ...m, graph } as Model;
+  const model: Model = { ...m, graph, baseDir };
   markOverridable(graph, model.irVersion);
-  model.origin = origin(buf, 0, buf.byteLength, f.order, modelSig(model));
+  model.origin = origin(buf, 0, buf.byteLength);
   return model;
 }
 

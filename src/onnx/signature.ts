@@ -1,74 +1,186 @@
-// Signatures of the modelled fields of each IR message. The reader records one per message; the writer
-// recomputes it and re-emits the original bytes when nothing modelled has changed.
-import type { Attribute, Graph, Model, Node, OpsetImport, Tensor, ValueInfo } from '../graph/ir.js';
+// Change detection for the lossless writer. Nothing is recorded when a model is read (survey and audit never
+// write, so they pay nothing): when the writer meets a message that still has its origin, it decodes the
+// message's original bytes again, its own fields only (children stay byte ranges), and compares them with the
+// current object. Equal means re-encoding would give those bytes back, so the writer re-emits them.
+//
+// Children are compared by position: an unchanged child re-emits its own original bytes, and those must sit
+// exactly where the parent's bytes hold that child (same buffer, same offsets, same order). Values held in
+// place (raw tensor bytes, unknown fields) are compared by position too, so the check never reads payloads
+// that are still on disk; code that writes into such bytes in place calls touch() (src/graph/edit.ts).
+import type {
+  Attribute, Dim, Graph, Model, Node, OpsetImport, Origin, RawField, Tensor, TensorStorage, ValueInfo,
+} from '../graph/ir.js';
+import { fieldsOf } from './wire.js';
+import {
+  decodeAttribute, decodeGraph, decodeModelFields, decodeNode, decodeOpset, decodeTensor, decodeTensorType,
+  decodeValueInfo, type KidRanges,
+} from './read.js';
 
-const ID = Symbol('pleat.id');
-let nextId = 1;
-/** A stable identity number for an object (storage arrays, child messages), kept on the object itself. */
-export function idOf(o: object): number {
-  const h = o as { [ID]?: number };
-  return h[ID] ??= nextId++;
+/** A child as the writer encoded it: its original bytes when it is unchanged, else undefined. */
+export type Kid = Uint8Array | undefined;
+
+/** Whether `v` is exactly buf[start, end) (the same memory, not merely equal bytes). */
+function sameView(v: Uint8Array, buf: Uint8Array, start: number, end: number): boolean {
+  return v.buffer === buf.buffer && v.byteOffset === buf.byteOffset + start && v.byteLength === end - start;
 }
 
-const SEP = '\u0001';
-
-export function tensorSig(t: Tensor): string {
-  const s = t.storage;
-  const data = s.kind === 'external' ? `ext:${s.entries.map((e) => e.join('=')).join(',')}:${idOf(s.bytes)}`
-    : s.kind === 'raw' ? `raw:${idOf(s.bytes)}`
-    : s.kind === 'empty' ? 'empty'
-    : `${s.kind}:${idOf(s.values)}`;
-  return [t.name, t.dims.join(','), t.dataType, t.docString, data].join(SEP);
+function sameBytes(a: Uint8Array, b: Uint8Array): boolean {
+  if (a.byteLength !== b.byteLength) return false;
+  for (let i = 0; i < a.byteLength; i++) if (a[i] !== b[i]) return false;
+  return true;
 }
 
-function latin1(b: Uint8Array): string {
-  let s = '';
-  for (let i = 0; i < b.length; i++) s += String.fromCharCode(b[i]!);
-  return s;
+function sameList<T>(a: readonly T[], b: readonly T[], eq: (x: T, y: T) => boolean = Object.is): boolean {
+  if (a.length !== b.length) return false;
+  for (let i = 0; i < a.length; i++) if (!eq(a[i]!, b[i]!)) return false;
+  return true;
 }
 
-export function attributeSig(a: Attribute): string {
-  const v = a.value;
-  let val: string;
-  switch (v.type) {
-    case 'FLOAT': val = String(v.f); break;
-    case 'INT': val = String(v.i); break;
-    case 'STRING': val = latin1(v.s); break;
-    case 'TENSOR': val = String(idOf(v.t)); break;
-    case 'GRAPH': val = String(idOf(v.g)); break;
-    case 'FLOATS': val = v.floats.join(','); break;
-    case 'INTS': val = v.ints.join(','); break;
-    case 'STRINGS': val = v.strings.map(latin1).join(SEP); break;
-    case 'TENSORS': val = v.tensors.map(idOf).join(','); break;
-    case 'GRAPHS': val = v.graphs.map(idOf).join(','); break;
-    case 'OTHER': val = String(v.code); break;
+function sameExtra(now: RawField[], then: RawField[]): boolean {
+  return sameList(now, then, (x, y) => x.field === y.field && x.bytes.buffer === y.bytes.buffer &&
+    x.bytes.byteOffset === y.bytes.byteOffset && x.bytes.byteLength === y.bytes.byteLength);
+}
+
+/** The children of field `no`, in order, are exactly the original ones, each unchanged. */
+function sameKids(kids: readonly Kid[], ranges: KidRanges, no: number, buf: Uint8Array): boolean {
+  let k = 0;
+  for (let i = 0; i < ranges.length; i += 3) {
+    if (ranges[i] !== no) continue;
+    const kid = kids[k++];
+    if (!kid || !sameView(kid, buf, ranges[i + 1]!, ranges[i + 2]!)) return false;
   }
-  return [a.name, v.type, val, a.docString, a.refAttrName].join(SEP);
+  return k === kids.length;
 }
 
-export function nodeSig(n: Node): string {
-  return [n.name, n.opType, n.domain, n.inputs.join(SEP + SEP), n.outputs.join(SEP + SEP), n.docString,
-    n.attributes.map(idOf).join(',')].join(SEP);
+/** The last child of field `no` (a singular message field: the last occurrence wins, as when decoding). */
+function sameLastKid(kid: Kid, ranges: KidRanges, no: number, buf: Uint8Array): boolean {
+  for (let i = ranges.length - 3; i >= 0; i -= 3) {
+    if (ranges[i] === no) return kid !== undefined && sameView(kid, buf, ranges[i + 1]!, ranges[i + 2]!);
+  }
+  return false;
 }
 
-export function typeSig(v: ValueInfo): string {
-  return `${v.elemType ?? ''}:${v.shape === undefined ? 'none' : v.shape.map((d) => (d === null ? '?' : typeof d === 'string' ? `$${d}` : d)).join(',')}`;
+function sameTyped(a: ArrayBufferView, b: ArrayBufferView): boolean {
+  return sameBytes(new Uint8Array(a.buffer, a.byteOffset, a.byteLength), new Uint8Array(b.buffer, b.byteOffset, b.byteLength));
 }
 
-export function valueInfoSig(v: ValueInfo): string {
-  return [v.name, v.docString, typeSig(v)].join(SEP);
+function sameStorage(now: TensorStorage, then: TensorStorage, loaded: Uint8Array | undefined): boolean {
+  if (now.kind !== then.kind) return false;
+  switch (now.kind) {
+    case 'empty': return true;
+    case 'raw': {
+      const b = (then as { bytes: Uint8Array }).bytes;
+      return now.bytes.buffer === b.buffer && now.bytes.byteOffset === b.byteOffset && now.bytes.byteLength === b.byteLength;
+    }
+    case 'external': {
+      const t = then as Extract<TensorStorage, { kind: 'external' }>;
+      const sameEntries = sameList(now.entries, t.entries, (x, y) => x[0] === y[0] && x[1] === y[1]);
+      // the loaded bytes are the object the reader put there, or nothing was loaded at all
+      return sameEntries && (loaded !== undefined ? now.bytes === loaded : now.bytes.byteLength === 0);
+    }
+    case 'string_data': return sameList(now.values, (then as { values: Uint8Array[] }).values, sameBytes);
+    default: return sameTyped(now.values, (then as { values: ArrayBufferView }).values);
+  }
 }
 
-export function graphSig(g: Graph): string {
-  return [g.name, g.docString, g.nodes.map(idOf).join(','), g.initializers.map(idOf).join(','),
-    g.inputs.map(idOf).join(','), g.outputs.map(idOf).join(','), g.valueInfo.map(idOf).join(',')].join(SEP);
+export function tensorUnchanged(t: Tensor): boolean {
+  const o = t.origin;
+  if (!o) return false;
+  const was = decodeTensor(o.buf, o.start, o.end);
+  return t.name === was.name && t.dataType === was.dataType && t.docString === was.docString &&
+    sameList(t.dims, was.dims) && sameExtra(t.extra, was.extra) && sameStorage(t.storage, was.storage, o.loaded);
 }
 
-export function opsetSig(o: OpsetImport): string {
-  return `${o.domain}${SEP}${o.version}`;
+function sameDims(a: Dim[] | undefined, b: Dim[] | undefined): boolean {
+  return a === undefined || b === undefined ? a === b : sameList(a, b);
 }
 
-export function modelSig(m: Model): string {
-  return [m.irVersion, m.opsets.map(idOf).join(','), m.producerName, m.producerVersion, m.domain, m.modelVersion,
-    m.docString, idOf(m.graph), m.metadata.map((kv) => kv.join('=')).join(SEP)].join(SEP);
+/** Whether a value's type still reads as the TypeProto it was read with (`typeBytes`). */
+export function typeUnchanged(v: ValueInfo): boolean {
+  if (v.typeBytes === undefined) return false;
+  const was: Pick<ValueInfo, 'elemType' | 'shape'> = {};
+  decodeTensorType(v.typeBytes, 0, v.typeBytes.byteLength, was);
+  return v.elemType === was.elemType && sameDims(v.shape, was.shape);
+}
+
+export function valueInfoUnchanged(v: ValueInfo): boolean {
+  const o = v.origin;
+  if (!o) return false;
+  const was = decodeValueInfo(o.buf, o.start, o.end);
+  return v.name === was.name && v.docString === was.docString && v.elemType === was.elemType &&
+    sameDims(v.shape, was.shape) && sameExtra(v.extra, was.extra);
+}
+
+export function opsetUnchanged(op: OpsetImport): boolean {
+  const o = op.origin;
+  if (!o) return false;
+  const was = decodeOpset(o.buf, o.start, o.end);
+  return op.domain === was.domain && op.version === was.version && sameExtra(op.extra, was.extra);
+}
+
+/** `kids`: the attribute's tensors or graphs as encoded (empty for other types). */
+export function attributeUnchanged(a: Attribute, kids: readonly Kid[]): boolean {
+  const o = a.origin;
+  if (!o) return false;
+  const ranges: KidRanges = [];
+  const was = decodeAttribute(o.buf, o.start, o.end, 0, ranges);
+  if (a.name !== was.name || a.docString !== was.docString || a.refAttrName !== was.refAttrName ||
+    a.value.type !== was.value.type || !sameExtra(a.extra, was.extra)) return false;
+  const v = a.value, w = was.value;
+  switch (v.type) {
+    case 'FLOAT': return Object.is(v.f, (w as { f: number }).f);
+    case 'INT': return v.i === (w as { i: number }).i;
+    case 'STRING': return sameBytes(v.s, (w as { s: Uint8Array }).s);
+    case 'FLOATS': return sameList(v.floats, (w as { floats: number[] }).floats);
+    case 'INTS': return sameList(v.ints, (w as { ints: number[] }).ints);
+    case 'STRINGS': return sameList(v.strings, (w as { strings: Uint8Array[] }).strings, sameBytes);
+    case 'TENSOR': return kids.length === 1 && sameLastKid(kids[0], ranges, 5, o.buf);
+    case 'GRAPH': return kids.length === 1 && sameLastKid(kids[0], ranges, 6, o.buf);
+    case 'TENSORS': return sameKids(kids, ranges, 10, o.buf);
+    case 'GRAPHS': return sameKids(kids, ranges, 11, o.buf);
+    case 'OTHER': return v.code === (w as { code: number }).code;
+  }
+}
+
+/** `attrs`: the node's attributes as encoded. */
+export function nodeUnchanged(n: Node, attrs: readonly Kid[]): boolean {
+  const o = n.origin;
+  if (!o) return false;
+  const ranges: KidRanges = [];
+  const was = decodeNode(o.buf, o.start, o.end, 0, ranges);
+  return n.name === was.name && n.opType === was.opType && n.domain === was.domain && n.docString === was.docString &&
+    sameList(n.inputs, was.inputs) && sameList(n.outputs, was.outputs) && sameExtra(n.extra, was.extra) &&
+    sameKids(attrs, ranges, 5, o.buf);
+}
+
+export interface GraphKids { nodes: Kid[]; initializers: Kid[]; inputs: Kid[]; outputs: Kid[]; valueInfo: Kid[] }
+
+export function graphUnchanged(g: Graph, kids: GraphKids): boolean {
+  const o = g.origin;
+  if (!o) return false;
+  const ranges: KidRanges = [];
+  const was = decodeGraph(o.buf, o.start, o.end, 0, ranges);
+  return g.name === was.name && g.docString === was.docString && sameExtra(g.extra, was.extra) &&
+    sameKids(kids.nodes, ranges, 1, o.buf) && sameKids(kids.initializers, ranges, 5, o.buf) &&
+    sameKids(kids.inputs, ranges, 11, o.buf) && sameKids(kids.outputs, ranges, 12, o.buf) &&
+    sameKids(kids.valueInfo, ranges, 13, o.buf);
+}
+
+export function modelUnchanged(m: Model, graph: Kid, opsets: readonly Kid[]): boolean {
+  const o = m.origin;
+  if (!o) return false;
+  const ranges: KidRanges = [];
+  const was = decodeModelFields(o.buf, o.start, o.end, ranges);
+  return m.irVersion === was.irVersion && m.producerName === was.producerName &&
+    m.producerVersion === was.producerVersion && m.domain === was.domain && m.modelVersion === was.modelVersion &&
+    m.docString === was.docString && sameExtra(m.extra, was.extra) &&
+    sameList(m.metadata, was.metadata, (x, y) => x[0] === y[0] && x[1] === y[1]) &&
+    sameLastKid(graph, ranges, 7, o.buf) && sameKids(opsets, ranges, 8, o.buf);
+}
+
+/** The field numbers of a message's original bytes, in order (kept when a changed message is re-encoded). */
+export function fieldOrder(o: Origin | undefined): number[] {
+  const order: number[] = [];
+  if (o) for (const f = fieldsOf(o.buf, o.start, o.end); f.next();) order.push(f.no);
+  return order;
 }

@@ -3,13 +3,14 @@
 // model copied through untouched. Output files are written to temporary names and renamed into place.
 import { closeSync, copyFileSync, existsSync, openSync, readSync, renameSync, rmSync, writeSync } from 'node:fs';
 import { basename, dirname, join, posix, resolve } from 'node:path';
-import type { Attribute, Graph, Model, Node, OpsetImport, RawField, Tensor, ValueInfo, Dim } from '../graph/ir.js';
+import type { Attribute, Graph, Model, Node, OpsetImport, Origin, RawField, Tensor, ValueInfo, Dim } from '../graph/ir.js';
 import { PleatError } from '../errors.js';
 import {
   Emitter, WT_LEN, emitBytes, emitFloat, emitInt, emitMessage, emitString,
 } from './wire.js';
 import {
-  attributeSig, graphSig, modelSig, nodeSig, opsetSig, tensorSig, typeSig, valueInfoSig,
+  attributeUnchanged, graphUnchanged, modelUnchanged, nodeUnchanged, opsetUnchanged, tensorUnchanged, typeUnchanged,
+  valueInfoUnchanged, fieldOrder, type Kid,
 } from './signature.js';
 import { externalRef, sideFilePaths } from './external.js';
 import { sameFile } from './paths.js';
@@ -115,11 +116,13 @@ function sub(e: Emitter, no: number, p: Piece): void {
   emitMessage(e, no, p.chunks, p.length);
 }
 
-function unchanged(origin: { bytes: Uint8Array; sig: string } | undefined, sig: string, kids: Piece[]): Piece | undefined {
-  if (origin && origin.sig === sig && kids.every((k) => k.same)) {
-    return { chunks: [origin.bytes], length: origin.bytes.byteLength, same: true };
-  }
-  return undefined;
+/** A message re-emitted as the bytes it was read from (the caller checked that nothing changed). */
+function original(origin: Origin): Piece {
+  return { chunks: [origin.buf.subarray(origin.start, origin.end)], length: origin.end - origin.start, same: true };
+}
+
+function kid(p: Piece): Kid {
+  return p.same ? p.chunks[0] : undefined;
 }
 
 class Encoder {
@@ -131,10 +134,10 @@ class Encoder {
     const sameEntries = placed !== undefined && wasExternal &&
       JSON.stringify(placed) === JSON.stringify((t.storage as { entries: unknown }).entries);
     if ((placed === undefined && !wasExternal) || sameEntries) {
-      const u = unchanged(t.origin, tensorSig(t), []);
-      if (u) return u;
+      if (tensorUnchanged(t)) return original(t.origin!);
     }
     const e = new Emitter();
+    const order = fieldOrder(t.origin);
     const s = t.storage;
     const data: Array<[number, (e: Emitter) => void]> = [];
     if (placed) {
@@ -170,20 +173,19 @@ class Encoder {
       [1, (e) => t.dims.forEach((d) => emitInt(e, 1, d))],
       [2, (e) => emitInt(e, 2, t.dataType)],
       ...data,
-      [8, (e) => { if (t.name || t.origin?.order.includes(8)) emitString(e, 8, t.name); }],
+      [8, (e) => { if (t.name || order.includes(8)) emitString(e, 8, t.name); }],
       [12, (e) => { if (t.docString) emitString(e, 12, t.docString); }],
     ];
     fields.sort((a, b) => a[0] - b[0]);
-    assemble(e, t.origin?.order, t.extra, fields);
+    assemble(e, order, t.extra, fields);
     return piece(e);
   }
 
   valueInfo(v: ValueInfo): Piece {
-    const u = unchanged(v.origin, valueInfoSig(v), []);
-    if (u) return u;
+    if (valueInfoUnchanged(v)) return original(v.origin!);
     const e = new Emitter();
-    const sameType = v.typeBytes !== undefined && v.typeSig === typeSig(v);
-    assemble(e, v.origin?.order, v.extra, [
+    const sameType = typeUnchanged(v);
+    assemble(e, fieldOrder(v.origin), v.extra, [
       [1, (e) => emitString(e, 1, v.name)],
       [2, (e) => {
         if (sameType) { emitBytes(e, 2, v.typeBytes!); return; }
@@ -207,8 +209,7 @@ class Encoder {
     else if (v.type === 'TENSORS') kids.push(...v.tensors.map((t) => this.tensor(t)));
     else if (v.type === 'GRAPH') kids.push(this.graph(v.g));
     else if (v.type === 'GRAPHS') kids.push(...v.graphs.map((g) => this.graph(g)));
-    const u = unchanged(a.origin, attributeSig(a), kids);
-    if (u) return u;
+    if (attributeUnchanged(a, kids.map(kid))) return original(a.origin!);
     const e = new Emitter();
     const codes: Record<string, number> = { FLOAT: 1, INT: 2, STRING: 3, TENSOR: 4, GRAPH: 5, FLOATS: 6, INTS: 7, STRINGS: 8, TENSORS: 9, GRAPHS: 10 };
     const fields: Array<[number, (e: Emitter) => void]> = [[1, (e) => emitString(e, 1, a.name)]];
@@ -228,23 +229,23 @@ class Encoder {
     fields.push([13, (e) => { if (a.docString) emitString(e, 13, a.docString); }]);
     fields.push([20, (e) => emitInt(e, 20, v.type === 'OTHER' ? v.code : codes[v.type]!)]);
     fields.push([21, (e) => { if (a.refAttrName) emitString(e, 21, a.refAttrName); }]);
-    assemble(e, a.origin?.order, a.extra, fields);
+    assemble(e, fieldOrder(a.origin), a.extra, fields);
     return piece(e);
   }
 
   node(n: Node): Piece {
     const kids = n.attributes.map((a) => this.attribute(a));
-    const u = unchanged(n.origin, nodeSig(n), kids);
-    if (u) return u;
+    if (nodeUnchanged(n, kids.map(kid))) return original(n.origin!);
     const e = new Emitter();
-    assemble(e, n.origin?.order, n.extra, [
+    const order = fieldOrder(n.origin);
+    assemble(e, order, n.extra, [
       [1, (e) => n.inputs.forEach((s) => emitString(e, 1, s))],
       [2, (e) => n.outputs.forEach((s) => emitString(e, 2, s))],
-      [3, (e) => { if (n.name || n.origin?.order.includes(3)) emitString(e, 3, n.name); }],
+      [3, (e) => { if (n.name || order.includes(3)) emitString(e, 3, n.name); }],
       [4, (e) => emitString(e, 4, n.opType)],
       [5, (e) => kids.forEach((k) => sub(e, 5, k))],
       [6, (e) => { if (n.docString) emitString(e, 6, n.docString); }],
-      [7, (e) => { if (n.domain || n.origin?.order.includes(7)) emitString(e, 7, n.domain); }],
+      [7, (e) => { if (n.domain || order.includes(7)) emitString(e, 7, n.domain); }],
     ]);
     return piece(e);
   }
@@ -255,12 +256,14 @@ class Encoder {
     const ins = g.inputs.map((v) => this.valueInfo(v));
     const outs = g.outputs.map((v) => this.valueInfo(v));
     const infos = g.valueInfo.map((v) => this.valueInfo(v));
-    const u = unchanged(g.origin, graphSig(g), [...nodes, ...inits, ...ins, ...outs, ...infos]);
-    if (u) return u;
+    if (graphUnchanged(g, { nodes: nodes.map(kid), initializers: inits.map(kid), inputs: ins.map(kid), outputs: outs.map(kid), valueInfo: infos.map(kid) })) {
+      return original(g.origin!);
+    }
     const e = new Emitter();
-    assemble(e, g.origin?.order, g.extra, [
+    const order = fieldOrder(g.origin);
+    assemble(e, order, g.extra, [
       [1, (e) => nodes.forEach((p) => sub(e, 1, p))],
-      [2, (e) => { if (g.name || g.origin?.order.includes(2)) emitString(e, 2, g.name); }],
+      [2, (e) => { if (g.name || order.includes(2)) emitString(e, 2, g.name); }],
       [5, (e) => inits.forEach((p) => sub(e, 5, p))],
       [10, (e) => { if (g.docString) emitString(e, 10, g.docString); }],
       [11, (e) => ins.forEach((p) => sub(e, 11, p))],
@@ -271,11 +274,11 @@ class Encoder {
   }
 
   opset(o: OpsetImport): Piece {
-    const u = unchanged(o.origin, opsetSig(o), []);
-    if (u) return u;
+    if (opsetUnchanged(o)) return original(o.origin!);
     const e = new Emitter();
-    assemble(e, o.origin?.order, o.extra, [
-      [1, (e) => { if (o.domain || o.origin?.order.includes(1)) emitString(e, 1, o.domain); }],
+    const order = fieldOrder(o.origin);
+    assemble(e, order, o.extra, [
+      [1, (e) => { if (o.domain || order.includes(1)) emitString(e, 1, o.domain); }],
       [2, (e) => emitInt(e, 2, o.version)],
     ]);
     return piece(e);
@@ -284,11 +287,11 @@ class Encoder {
   model(m: Model): Piece {
     const graph = this.graph(m.graph);
     const opsets = m.opsets.map((o) => this.opset(o));
-    const u = unchanged(m.origin, modelSig(m), [graph, ...opsets]);
-    if (u) return u;
+    if (modelUnchanged(m, kid(graph), opsets.map(kid))) return original(m.origin!);
     const e = new Emitter();
-    const has = (no: number) => m.origin?.order.includes(no) ?? false;
-    assemble(e, m.origin?.order, m.extra, [
+    const order = fieldOrder(m.origin);
+    const has = (no: number) => order.includes(no);
+    assemble(e, order, m.extra, [
       [1, (e) => emitInt(e, 1, m.irVersion)],
       [2, (e) => { if (m.producerName || has(2)) emitString(e, 2, m.producerName); }],
       [3, (e) => { if (m.producerVersion || has(3)) emitString(e, 3, m.producerVersion); }],

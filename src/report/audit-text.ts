@@ -2,15 +2,18 @@
 // --fail-on verdict, and the caution lines.
 import type { AuditReport } from '../jobs/types.js';
 import { CAUTION } from './format.js';
-import { ledgerLines } from './ledger-text.js';
+import { alsoLines, cloneClause, ledgerLines } from './ledger-text.js';
+import { plural } from './format.js';
 import { paint } from './paint.js';
 
 export function auditText(r: AuditReport, colour = false, caution = true): string {
   const p = paint(colour);
   const lines = [p.bold(`audit ${r.model}`)];
-  if (r.normalizations.length === 0) lines.push('  no normalizations found');
-  lines.push(...ledgerLines(r.normalizations, p));
-  lines.push(`  ${r.foldable} foldable, ${r.kept} kept`);
+  const norms = r.normalizations.filter((e) => e.kind !== 'affine-step');
+  if (norms.length === 0) lines.push('  no normalizations found');
+  lines.push(...ledgerLines(norms, p), ...alsoLines(r.normalizations, 'also foldable', p));
+  const also = r.alsoFoldable ? ` (and ${plural(r.alsoFoldable, 'affine step')} also foldable)` : '';
+  lines.push(`  ${r.foldable} foldable, ${r.kept} kept${also}${cloneClause(r.normalizations)}`);
   if (r.failOn === 'kept') lines.push(r.failed ? p.bad(`--fail-on kept: FAILED (${r.kept} kept)`) : p.good('--fail-on kept: passed'));
   if (caution) lines.push(...CAUTION);
   return lines.join('\n') + '\n';

@@ -95,18 +95,37 @@ export function storageLines(s: StorageSummary | null): string[] {
   return lines;
 }
 
+/**
+ * The other constant affine steps (kind affine-step: scalar Mul/Add/Sub/Div, e.g. inside activations), listed
+ * after the normalizations under their own heading; they are never kept.
+ */
+export function alsoLines(entries: ReadonlyArray<Parameters<typeof ledgerLines>[0][number] & { kind: string }>, heading: string, p: Paint): string[] {
+  const also = entries.filter((e) => e.kind === 'affine-step');
+  return also.length ? [`  ${heading} (constant affine steps that are not normalizations):`, ...ledgerLines(also, p).map((l) => `  ${l}`)] : [];
+}
+
+/** Weight bytes --clone-shared copies added, as a clause for the totals line ('' when none). */
+export function cloneClause(entries: ReadonlyArray<{ cloneBytes: number }>): string {
+  const n = entries.filter((e) => e.cloneBytes > 0);
+  const bytes = n.reduce((a, e) => a + e.cloneBytes, 0);
+  return n.length ? `; ${plural(n.length, 'layer')} cloned for --clone-shared (+${bytesText(bytes)} of weights)` : '';
+}
+
 export function foldText(r: FoldReport, colour = false, caution = true): string {
   const p = paint(colour);
-  const folded = r.normalizations.filter((e) => e.status === 'folded').length;
-  const kept = r.normalizations.length - folded;
+  const norms = r.normalizations.filter((e) => e.kind !== 'affine-step');
+  const folded = norms.filter((e) => e.status === 'folded').length;
+  const kept = norms.length - folded;
+  const also = r.normalizations.length - norms.length;
   const dest = r.output ?? (r.failed ? p.bad('nothing written (check failed)') : 'nothing written');
   const lines = [p.bold(`fold ${r.model} -> ${dest}`)];
-  if (r.normalizations.length === 0) lines.push('  no normalizations found');
-  lines.push(...ledgerLines(r.normalizations, p));
+  if (norms.length === 0) lines.push('  no normalizations found');
+  lines.push(...ledgerLines(norms, p), ...alsoLines(r.normalizations, 'also folded', p));
   const nodesRemoved = r.nodesBefore - r.nodesAfter;
   const bytesRemoved = r.bytesBefore - r.bytesAfter;
-  lines.push(`  ${folded} folded, ${kept} kept; ${plural(nodesRemoved, 'node')} removed (${r.nodesBefore} -> ${r.nodesAfter}); ` +
-    `${bytesText(Math.max(0, bytesRemoved))} of weights saved (${bytesText(r.bytesBefore)} -> ${bytesText(r.bytesAfter)})`);
+  const alsoText = also ? ` (and ${plural(also, 'affine step')} also folded)` : '';
+  lines.push(`  ${folded} folded, ${kept} kept${alsoText}; ${plural(nodesRemoved, 'node')} removed (${r.nodesBefore} -> ${r.nodesAfter}); ` +
+    `${bytesText(Math.max(0, bytesRemoved))} of weights saved (${bytesText(r.bytesBefore)} -> ${bytesText(r.bytesAfter)})${cloneClause(r.normalizations)}`);
   lines.push(...checkLines(r.check, p), ...quantLines(r.quantization, r.quantThresholdDb, p), ...equalizeLines(r.equalized, p), ...int8Lines(r.int8), ...storageLines(r.storage));
   if (caution) lines.push(...CAUTION);
   return lines.join('\n') + '\n';

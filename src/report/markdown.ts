@@ -11,9 +11,18 @@ export function cell(s: string): string {
 }
 const code = (s: string) => `\`${s.replace(/`/g, "'")}\``;
 
-interface Row { node: string; op: string; status: string; direction: string | null; target: string | null; reason: string | null; hint: string; graph: string }
+interface Row { node: string; op: string; kind: string; status: string; direction: string | null; target: string | null; reason: string | null; hint: string; graph: string }
 
-function table(rows: readonly Row[]): string[] {
+/** The other constant affine steps, in one line after the table (they are never kept). */
+function alsoLine(rows: readonly Row[], verb: string): string[] {
+  const also = rows.filter((e) => e.kind === 'affine-step');
+  if (!also.length) return [];
+  return ['', `Also ${verb} (constant affine steps that are not normalizations): ` +
+    also.map((e) => `${code(e.node)} (${e.op}) into ${code(e.target ?? '?')}`).join(', ') + '.'];
+}
+
+function table(all: readonly Row[]): string[] {
+  const rows = all.filter((e) => e.kind !== 'affine-step');
   if (rows.length === 0) return ['No normalizations found.'];
   const order = [...rows].sort((x, y) => Number(y.status === 'kept') - Number(x.status === 'kept'));
   const out = ['| normalization | op | status | detail |', '|---|---|---|---|'];
@@ -25,17 +34,24 @@ function table(rows: readonly Row[]): string[] {
   return out;
 }
 
+/** The weight bytes --clone-shared copies added, as a clause ('' when nothing was cloned). */
+function cloneNote(entries: ReadonlyArray<{ cloneBytes: number }>): string {
+  const cloned = entries.filter((e) => e.cloneBytes > 0);
+  return cloned.length ? ` (${cloned.length} layer(s) cloned for --clone-shared: +${bytesText(cloned.reduce((a, e) => a + e.cloneBytes, 0))})` : '';
+}
+
 const caution = () => ['', `> ${CAUTION.join(' ')}`];
 
 export function foldMarkdown(r: FoldReport): string {
-  const folded = r.normalizations.filter((e) => e.status === 'folded').length;
+  const norms = r.normalizations.filter((e) => e.kind !== 'affine-step');
+  const folded = norms.filter((e) => e.status === 'folded').length;
   const verdict = r.failed ? 'failed: nothing written' : 'done';
   const out = [`### pleat fold ${code(r.model)}: ${verdict}`, ''];
   const check = r.check === null ? 'not run' : r.check.skipped !== null ? `skipped (${r.check.skipped})`
     : `${r.check.passed ? 'passed' : '**failed**'} on ${r.check.outputs.length} output(s), worst maxAbs ${numText(Math.max(0, ...r.check.outputs.map((o) => o.maxAbs)))}`;
-  out.push(`**${folded} folded, ${r.normalizations.length - folded} kept**; nodes ${r.nodesBefore} → ${r.nodesAfter}; ` +
-    `weights ${bytesText(r.bytesBefore)} → ${bytesText(r.bytesAfter)}; whole-model check ${check}.`, '');
-  out.push(...table(r.normalizations));
+  out.push(`**${folded} folded, ${norms.length - folded} kept**; nodes ${r.nodesBefore} → ${r.nodesAfter}; ` +
+    `weights ${bytesText(r.bytesBefore)} → ${bytesText(r.bytesAfter)}${cloneNote(r.normalizations)}; whole-model check ${check}.`, '');
+  out.push(...table(r.normalizations), ...alsoLine(r.normalizations, 'folded'));
   const flagged = r.quantization.filter((q) => q.flagged);
   if (flagged.length) {
     out.push('', `Quantization readiness: ${flagged.length} layer(s) flagged for per-tensor 8-bit weights ` +
@@ -59,7 +75,7 @@ export function foldMarkdown(r: FoldReport): string {
 export function auditMarkdown(r: AuditReport): string {
   const verdict = r.failed ? 'failed (--fail-on kept)' : 'done';
   const out = [`### pleat audit ${code(r.model)}: ${verdict}`, '', `**${r.foldable} foldable, ${r.kept} kept.**`, ''];
-  out.push(...table(r.normalizations), ...caution());
+  out.push(...table(r.normalizations), ...alsoLine(r.normalizations, 'foldable'), ...caution());
   return out.join('\n') + '\n';
 }
 

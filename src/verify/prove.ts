@@ -54,10 +54,39 @@ function probeShapes(g: Graph, value: string, declaredRank: number | undefined):
     const at = n.inputs.indexOf(value);
     if (at >= 0) { add(n, at); break; }
   }
-  return shapes.filter((s, i) => shapes.findIndex((t) => t.join() === s.join()) === i);
+  // Several layers reading the value (a fold into every reader): for each rank, the smallest shape all of them
+  // accept goes before that rank's shape.
+  const layerShapes = new Map<number, number[][]>();
+  for (const n of g.nodes) {
+    if (!LAYERS.has(n.opType) || (!n.inputs.includes(value) && !readsThroughSteps(g, n, value))) continue;
+    for (const r of ranks) {
+      const s = shapeFor(g, n, 0, r);
+      if (s) layerShapes.set(s.length, [...(layerShapes.get(s.length) ?? []), s]);
+    }
+  }
+  const all: number[][] = [];
+  for (const s of shapes) {
+    const same = layerShapes.get(s.length) ?? [];
+    if (same.length > 1) all.push(s.map((d, i) => Math.max(d, ...same.map((t) => t[i]!))));
+    all.push(s);
+  }
+  return all.filter((s, i) => all.findIndex((t) => t.join() === s.join()) === i);
 }
 
 const LAYERS = new Set(['Conv', 'ConvTranspose', 'Gemm', 'MatMul']);
+
+/** Whether layer `n` reads `value` through shape-keeping steps of the region (a norm, a Mul/Add by a constant). */
+function readsThroughSteps(g: Graph, n: Node, value: string): boolean {
+  const seen = new Set<string>();
+  const visit = (v: string | undefined): boolean => {
+    if (!v || seen.has(v)) return false;
+    seen.add(v);
+    if (v === value) return true;
+    const p = g.nodes.find((m) => m.outputs.includes(v));
+    return p !== undefined && !LAYERS.has(p.opType) && p.inputs.some(visit);
+  };
+  return visit(n.inputs[0]);
+}
 
 function shapeFor(g: Graph, n: Node, at: number, rank: number | undefined): number[] | undefined {
   const other = (i: number) => (n.inputs[i] ? init(g, n.inputs[i]!) : undefined);

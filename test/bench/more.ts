@@ -44,7 +44,60 @@ function child(job: string, ...args: string[]): { seconds: number; maxRssBytes: 
   return JSON.parse(out.trim().split('\n').pop()!);
 }
 
+const PYTHON = '/usr/bin/python3'; // Debian's python3-onnx (plain `python3` may lack onnx)
+const cli = join(here, '..', '..', 'cli', 'main.js');
+
+/**
+ * Time and peak RSS of a command as a user runs it, start to exit (interpreter start-up included). A Python
+ * wrapper measures it: Node cannot read a child's peak RSS, getrusage(RUSAGE_CHILDREN) can. Best of `n` runs.
+ */
+function commandLine(cmd: string[], n = 3): { seconds: number; maxRssBytes: number } {
+  const script = [
+    'import json, resource, subprocess, sys, time',
+    't0 = time.perf_counter()',
+    'subprocess.run(sys.argv[1:], stdout=subprocess.DEVNULL, check=True)',
+    't = time.perf_counter() - t0',
+    'print(json.dumps({"seconds": t, "maxRssBytes": resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss * 1024}))',
+  ].join('\n');
+  let best: { seconds: number; maxRssBytes: number } | undefined;
+  for (let i = 0; i < n; i++) {
+    const r = JSON.parse(execFileSync(PYTHON, ['-c', script, ...cmd], { encoding: 'utf8' }).trim()) as { seconds: number; maxRssBytes: number };
+    if (!best || r.seconds < best.seconds) best = { seconds: r.seconds, maxRssBytes: best ? Math.min(best.maxRssBytes, r.maxRssBytes) : r.maxRssBytes };
+    else best.maxRssBytes = Math.min(best.maxRssBytes, r.maxRssBytes);
+  }
+  return best!;
+}
+
+/**
+ * `pleat survey` and `pleat audit` of generated 10^4- and 10^5-node files from the command line, against the
+ * ONNX Python library's `onnx.load` of the same file in the same run (the script a user would write).
+ */
+function largeGraphRows(rows: string[][]): void {
+  const mib = (b: number) => `${(b / 2 ** 20).toFixed(0)} MiB`;
+  const at: Record<number, Record<string, { seconds: number; maxRssBytes: number }>> = {};
+  for (const n of [1e4, 1e5]) {
+    const file = join(work, `wide-${n}.onnx`);
+    child('write-wide', String(n), file);
+    const onnxLoad = commandLine([PYTHON, '-c', 'import sys, onnx; onnx.load(sys.argv[1])', file]);
+    const survey = commandLine([process.execPath, cli, 'survey', file]);
+    const audit = commandLine([process.execPath, cli, 'audit', file]);
+    at[n] = { onnxLoad, survey, audit };
+  }
+  const big = at[1e5]!, small = at[1e4]!;
+  const y = big.onnxLoad!;
+  rows.push(['onnx.load of the 100,000-node file (Python, start to exit)', `${y.seconds.toFixed(3)} s`, 'yardstick', '', `${mib(y.maxRssBytes)} peak`, '']);
+  for (const cmd of ['survey', 'audit']) {
+    const r = big[cmd]!, s = small[cmd]!;
+    rows.push([`pleat ${cmd} of the 100,000-node file (start to exit)`, `${r.seconds.toFixed(3)} s`,
+      `${(r.seconds / y.seconds).toFixed(2)}x onnx.load; 10^4 -> 10^5 nodes: ${(r.seconds / s.seconds).toFixed(1)}x time, ${(r.maxRssBytes / s.maxRssBytes).toFixed(1)}x memory (onnx.load: ${(y.seconds / small.onnxLoad!.seconds).toFixed(1)}x, ${(y.maxRssBytes / small.onnxLoad!.maxRssBytes).toFixed(1)}x)`,
+      '<= 1x; linear', `${mib(r.maxRssBytes)} peak, ${(r.maxRssBytes / y.maxRssBytes).toFixed(2)}x onnx.load`, '<= 1.5x']);
+  }
+}
+
 export async function run(on: (k: string) => boolean, rows: string[][]): Promise<void> {
+  if (on('large')) {
+    try { largeGraphRows(rows); } catch (e) { rows.push(['survey/audit of large graphs', 'failed', String((e as Error).message).split('\n')[0]!, '', '', '']); }
+  }
   mkdirSync(work, { recursive: true });
   if (on('eval')) {
     const path = join(work, 'mobilenet-like.onnx');

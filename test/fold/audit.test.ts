@@ -36,14 +36,16 @@ describe('audit', () => {
     const byNode = Object.fromEntries(found.map((x) => [x.node, x]));
     expect(found.map((x) => `${x.node}:${x.op}:${x.status}:${x.reason}`)).toEqual([
       'inorm:InstanceNormalization:kept:runtime-statistics',
-      'ln:LayerNormalization:kept:runtime-statistics',
+      'ln:LayerNormalization:foldable:null',
       'lrn:LRN:kept:runtime-statistics',
       'lp:LpNormalization:kept:runtime-statistics',
       'div:ReduceMean/Sub/Pow/ReduceMean/Add/Sqrt/Div:kept:runtime-statistics',
       'bn_train:BatchNormalization:kept:training-mode',
     ]);
     expect(byNode.inorm!.hint).toMatch(/could fold into 'after_inorm'/);
-    expect(byNode.ln!.hint).toMatch(/could fold into 'proj'/);
+    // opset 17's LayerNormalization: statistics stay, the learned Scale and B move into the MatMul reading it
+    expect(byNode.ln!.hint).toMatch(/statistics stay .* scale and shift move into 'proj'/);
+    expect([byNode.ln!.target, byNode.ln!.direction]).toEqual(['proj', 'into-consumer']);
     expect(byNode.lrn!.hint).toMatch(/no learned scale/);
     expect(byNode.bn_train!.hint).toMatch(/inference mode/);
     for (const x of found) expect(x.graph).toBe('main');

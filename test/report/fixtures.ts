@@ -6,9 +6,10 @@ export function foldReport(over: Partial<FoldReport> = {}): FoldReport {
   return {
     schemaVersion: SCHEMA_VERSION, command: 'fold', model: 'models/tray-sorter.onnx', output: 'out/tray-sorter.onnx',
     normalizations: [
-      { node: 'stem_bn', op: 'BatchNormalization', status: 'folded', direction: 'into-producer', target: 'stem_conv', reason: null, hint: 'scaled 16 output channels of stem_conv', graph: 'main' },
-      { node: 'head_bn', op: 'BatchNormalization', status: 'folded', direction: 'into-consumer', target: 'head_fc', reason: null, hint: 'scaled the input columns of head_fc', graph: 'main' },
-      { node: 'edge_bn', op: 'BatchNormalization', status: 'kept', direction: null, target: null, reason: 'padded-consumer', hint: 'remove the padding of the next convolution <pad=1> & "fold"', graph: 'main/branch_if.then_branch' },
+      { node: 'stem_bn', op: 'BatchNormalization', kind: 'normalization', status: 'folded', direction: 'into-producer', target: 'stem_conv', targets: ['stem_conv'], cloneBytes: 0, reason: null, hint: 'scaled 16 output channels of stem_conv', graph: 'main' },
+      { node: 'head_bn', op: 'BatchNormalization', kind: 'normalization', status: 'folded', direction: 'into-consumer', target: 'head_fc', targets: ['head_fc'], cloneBytes: 0, reason: null, hint: 'scaled the input columns of head_fc', graph: 'main' },
+      { node: 'act_half', op: 'Mul', kind: 'affine-step', status: 'folded', direction: 'into-consumer', target: 'head_fc', targets: ['head_fc'], cloneBytes: 0, reason: null, hint: 'scales the input channels of \'head_fc\'', graph: 'main' },
+      { node: 'edge_bn', op: 'BatchNormalization', kind: 'normalization', status: 'kept', direction: null, target: null, targets: [], cloneBytes: 0, reason: 'padded-consumer', hint: 'remove the padding of the next convolution <pad=1> & "fold"', graph: 'main/branch_if.then_branch' },
     ],
     nodesBefore: 41, nodesAfter: 37, bytesBefore: 10240, bytesAfter: 10040,
     check: {
@@ -32,10 +33,10 @@ export function auditReport(over: Partial<AuditReport> = {}): AuditReport {
   return {
     schemaVersion: SCHEMA_VERSION, command: 'audit', model: 'models/pump|monitor.onnx',
     normalizations: [
-      { node: 'conv1_bn', op: 'BatchNormalization', status: 'foldable', direction: 'into-producer', target: 'conv1', reason: null, hint: 'would scale conv1', graph: 'main' },
-      { node: 'ln', op: 'LayerNormalization', status: 'kept', direction: null, target: null, reason: 'runtime-statistics', hint: 'statistics come from each input; its affine tail could fold into dense_2', graph: 'main' },
+      { node: 'conv1_bn', op: 'BatchNormalization', kind: 'normalization', status: 'foldable', direction: 'into-producer', target: 'conv1', targets: ['conv1'], cloneBytes: 0, reason: null, hint: 'would scale conv1', graph: 'main' },
+      { node: 'ln', op: 'LayerNormalization', kind: 'normalization', status: 'kept', direction: null, target: null, targets: [], cloneBytes: 0, reason: 'runtime-statistics', hint: 'statistics come from each input; its affine tail could fold into dense_2', graph: 'main' },
     ],
-    foldable: 1, kept: 1, failOn: null, failed: false,
+    foldable: 1, kept: 1, alsoFoldable: 0, failOn: null, failed: false,
     ...over,
   };
 }

@@ -20,10 +20,12 @@ describe('text', () => {
     const t = foldText(foldReport());
     const lines = t.split('\n');
     expect(lines[0]).toBe('fold models/tray-sorter.onnx -> out/tray-sorter.onnx');
-    expect(lines.filter((l) => /^\s+(folded|kept)\s/.test(l))).toHaveLength(3);
+    expect(lines.filter((l) => /^ {2}(folded|kept)\s/.test(l))).toHaveLength(3);
+    // other constant affine steps: their own section after the normalizations, not counted as folded norms
+    expect(t).toMatch(/also folded \(constant affine steps that are not normalizations\):\n\s+folded\s+act_half\s+Mul\s+into head_fc/);
     expect(t).toMatch(/folded\s+stem_bn\s+BatchNormalization\s+into stem_conv \(into-producer\)/);
     expect(t).toMatch(/kept\s+edge_bn\s+BatchNormalization\s+padded-consumer: remove the padding .* in main\/branch_if\.then_branch/);
-    expect(t).toMatch(/2 folded, 1 kept; 4 nodes removed \(41 -> 37\); 200 B of weights saved/);
+    expect(t).toMatch(/2 folded, 1 kept \(and 1 affine step also folded\); 4 nodes removed \(41 -> 37\); 200 B of weights saved/);
     expect(t).toMatch(/whole-model check: passed \(2 probes, seed 0\)/);
     expect(t).toMatch(/tray_class\s+pass\s+maxAbs 1\.20e-7/);
     expect(t).toMatch(/stem_conv\s+16 channels\s+spread 2\.4 -> 51\.2\s+sqnr tensor 38\.2 -> 36\.9, channel 41\.5 -> 41\.5, worst channel 30\.1 -> 8\.4\s+flagged/);
@@ -98,10 +100,14 @@ describe('JSON against the shipped schema (ajv)', () => {
 
   it('the schema rejects what it should (it can fail)', () => {
     expect(validate({ ...foldReport(), schemaVersion: SCHEMA_VERSION + 1 })).toBe(false);
+    expect(validate({ ...foldReport(), schemaVersion: SCHEMA_VERSION - 1 })).toBe(false);
     expect(validate({ ...auditReport(), surprise: 1 })).toBe(false);
     const bad = foldReport();
-    (bad.normalizations[2] as { reason: string }).reason = 'no-such-reason';
+    (bad.normalizations[3] as { reason: string }).reason = 'no-such-reason';
     expect(validate(JSON.parse(toJsonText(bad)))).toBe(false);
+    const keptStep = foldReport();
+    Object.assign(keptStep.normalizations[2]!, { status: 'kept', reason: 'shared-output', target: null, direction: null });
+    expect(validate(JSON.parse(toJsonText(keptStep)))).toBe(false); // an affine step is never kept
     const folded = foldReport();
     (folded.normalizations[0] as { target: string | null }).target = null;
     expect(validate(JSON.parse(toJsonText(folded)))).toBe(false);
@@ -144,11 +150,12 @@ describe('JUnit XML (fast-xml-parser)', () => {
     });
     const j = parseJunit(renderJobs('fold', [{ model: r.model, report: r, exitCode: 1 }], 'junit'));
     const s = j.testsuites.testsuite[0];
-    expect(s['@tests']).toBe('6'); // 3 norms, 2 outputs, 1 layer's 8-bit readiness
+    expect(s['@tests']).toBe('6'); // 3 norms, 2 outputs, 1 layer's 8-bit readiness (the affine step act_half is no test case)
     expect(s['@failures']).toBe('1');
     expect(s['@skipped']).toBe('2'); // the kept norm and the flagged layer
     const names = s.testcase.map((c: Record<string, string>) => c['@name']);
     expect(names).toContain('check output a<b>&"c"');
+    expect(names).not.toContain('act_half Mul');
     expect(names).toContain('edge_bn BatchNormalization in main/branch_if.then_branch');
     const kept = s.testcase.find((c: Record<string, string>) => c['@name'].startsWith('edge_bn'));
     expect(kept.skipped['@message']).toBe('padded-consumer: remove the padding of the next convolution <pad=1> & "fold"');
@@ -186,6 +193,12 @@ describe('Markdown', () => {
     const rows = lines.filter((l) => l.startsWith('| `'));
     expect(rows).toHaveLength(3);
     expect(rows[0]).toMatch(/^\| `edge_bn`/);
+    expect(md).not.toMatch(/cloned/);
+    const cloned = foldReport();
+    cloned.normalizations[0]!.cloneBytes = 2048;
+    expect(renderJobs('fold', [{ model: 'm', report: cloned, exitCode: 0 }], 'markdown')).toMatch(/weights 10\.0 KiB → 9\.8\d? KiB \(1 layer\(s\) cloned for --clone-shared: \+2\.00 KiB\)/);
+    expect(foldText(cloned)).toMatch(/1 layer cloned for --clone-shared \(\+2\.00 KiB of weights\)/);
+    expect(md).toMatch(/^Also folded \(constant affine steps that are not normalizations\): `act_half` \(Mul\) into `head_fc`\.$/m);
     expect(md).toMatch(/`stem_conv` worst channel 30\.1 → 8\.4 dB, spread 2\.4 → 51\.2/);
     expect(md).toMatch(/^> Caution:/m);
   });

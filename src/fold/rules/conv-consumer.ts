@@ -20,7 +20,7 @@ export const convConsumer: FoldRule<Data> = {
   match(_ctx, run, layer) {
     const a = resolveRun(run, layer.rank, layer.rank! - 2, layer.inChannels);
     if (isRefusal(a)) return a;
-    if (paddedInput(layer.unpadded, hasShift(a))) return refuse('padded-consumer', `'${layer.label}' pads its input; remove its padding (pad explicitly before the norm) to fold`);
+    if (paddedInput(layer.unpadded, hasShift(a))) return refuse('padded-consumer', `'${layer.label}' pads its input with zeros, and after a fold its border would see the norm's shift there; the norm can only fold into the layer that writes its input, or into '${layer.label}' if it is exported without padding`);
     const t = layer.weight.tensor;
     const weight = weightSource(t);
     const v = weightView(t.dims);
@@ -39,7 +39,7 @@ export const convConsumer: FoldRule<Data> = {
     scaleConstant(ctx, edit, layer.node, 1, layer.weight, data.map, m.affine.scale);
     if (layer.bias) replaceConstant(ctx, edit, layer.node, 2, layer.bias, data.bias, layer.bias.tensor.dims);
     else if (hasShift(m.affine)) addConstantInput(ctx, edit, layer.node, 2, `${layer.weight.name}.bias`, layer.weight.tensor.dataType, data.bias, [data.bias.length]);
-    bypassRun(edit, layer, run);
+    bypassRun(ctx, edit, layer, run);
     edit.regionOutputs = layer.node.outputs.filter((o) => o !== '');
   },
 };

@@ -40,7 +40,7 @@ export const gemmConsumer: FoldRule<Data> = {
       else addConstantInput(ctx, edit, layer.node, 2, `${layer.weight.name}.bias`, layer.weight.tensor.dataType, data.bias.values, data.bias.dims);
       if (layer.node.attributes.some((x) => x.name === 'beta')) changeOf(edit, layer.node).attributes = layer.node.attributes.filter((x) => x.name !== 'beta');
     }
-    bypassRun(edit, layer, run);
+    bypassRun(ctx, edit, layer, run);
     edit.regionOutputs = layer.node.outputs.filter((o) => o !== '');
   },
 };

@@ -15,7 +15,7 @@ export const gemmProducer: FoldRule<Data> = {
   op: 'Gemm',
   direction: 'into-producer',
   match(ctx, run, layer) {
-    const busy = producerOutputFree(layer, run);
+    const busy = producerOutputFree(ctx, layer, run);
     if (busy) return busy;
     const a = resolveRun(run, 2, 0, layer.outChannels);
     if (isRefusal(a)) return a;
@@ -35,7 +35,7 @@ export const gemmProducer: FoldRule<Data> = {
     if (layer.bias) replaceConstant(ctx, edit, layer.node, 2, layer.bias, data.bias.values, data.bias.dims);
     else addConstantInput(ctx, edit, layer.node, 2, `${layer.weight.name}.bias`, layer.weight.tensor.dataType, data.bias.values, data.bias.dims);
     if (layer.node.attributes.some((x) => x.name === 'beta')) changeOf(edit, layer.node).attributes = layer.node.attributes.filter((x) => x.name !== 'beta');
-    takeOverRun(edit, layer, run);
+    takeOverRun(ctx, edit, layer, run);
     edit.regionOutputs = [run.bottom];
   },
 };

@@ -16,7 +16,7 @@ export const matmulProducer: FoldRule<Data> = {
   op: 'MatMul',
   direction: 'into-producer',
   match(ctx, run, layer) {
-    const busy = producerOutputFree(layer, run);
+    const busy = producerOutputFree(ctx, layer, run);
     if (busy) return busy;
     const a = resolveRun(run, layer.rank, 0, layer.outChannels);
     if (isRefusal(a)) return a;
@@ -39,14 +39,14 @@ export const matmulProducer: FoldRule<Data> = {
       const bias = freshName(ctx, `${layer.weight.name}.bias`);
       edit.newInitializers.push(makeTensor(bias, [data.shift.length], dt, data.shift));
       edit.inserts.push({ node: withBroadcast(ctx, makeNode('Add', freshName(ctx, `${layer.label}.bias_add`), [node.outputs[0]!, bias], [run.bottom])), after: node });
-      removeRun(edit, run);
+      removeRun(ctx, edit, run);
       return;
     }
     if (data.form === 'gemm') {
       changeOf(edit, node).opType = 'Gemm';
       addConstantInput(ctx, edit, node, 2, `${layer.weight.name}.bias`, dt, data.shift, [data.shift.length]);
     }
-    takeOverRun(edit, layer, run);
+    takeOverRun(ctx, edit, layer, run);
   },
 };
 

@@ -18,7 +18,7 @@ export function outputChannelScaling(name: string, op: LayerOp, channelMap: (v: 
     op,
     direction: 'into-producer',
     match(ctx, run, layer) {
-      const busy = producerOutputFree(layer, run);
+      const busy = producerOutputFree(ctx, layer, run);
       if (busy) return busy;
       const a = resolveRun(run, layer.rank, layer.rank! - 2, layer.outChannels);
       if (isRefusal(a)) return a;
@@ -36,7 +36,7 @@ export function outputChannelScaling(name: string, op: LayerOp, channelMap: (v: 
       scaleConstant(ctx, edit, layer.node, 1, layer.weight, data.map, m.affine.scale, data.guard);
       if (layer.bias) replaceConstant(ctx, edit, layer.node, 2, layer.bias, data.bias, layer.bias.tensor.dims);
       else addConstantInput(ctx, edit, layer.node, 2, `${layer.weight.name}.bias`, layer.weight.tensor.dataType, data.bias, [data.bias.length]);
-      takeOverRun(edit, layer, run);
+      takeOverRun(ctx, edit, layer, run);
       edit.regionOutputs = [run.bottom];
     },
   };

@@ -6,7 +6,7 @@ import { roundToStorage, dataTypeName, numberToHalfBits, numberToBfloatBits } fr
 import { DataType } from '../../graph/ir.js';
 import type { Affine } from '../affine.js';
 import type { Edit } from '../apply.js';
-import { changeOf } from '../apply.js';
+import { changeOf, replaceConstant } from '../apply.js';
 import { refuse, type FoldContext, type Refusal } from '../context.js';
 import type { Layer, LayerOp } from '../layers.js';
 import type { Run } from '../run.js';
@@ -35,17 +35,34 @@ export interface FoldRule<D = unknown> {
 
 // ---- predicates shared by the rules -------------------------------------------------------------------
 
-/** Into the producer: the layer's output must reach nothing but the run. */
-export function producerOutputFree(layer: Layer, run: Run): Refusal | undefined {
+/**
+ * Into the producer: the layer's output must reach nothing but the run, unless --clone-shared lets the norm
+ * path take its own copy of the layer (then the driver clones it before the rewrite; see fold.ts).
+ */
+export function producerOutputFree(ctx: FoldContext, layer: Layer, run: Run): Refusal | undefined {
   const ud = run.scope.ud;
   const out = layer.node.outputs[0]!;
   if (layer.node.outputs.length !== 1) return refuse('shared-output', `'${layer.label}' has several outputs`);
-  if (ud.isGraphOutput(out)) return refuse('graph-output', `the output of '${layer.label}' is a model output; read it only through the norm`);
-  const readers = ud.consumers(out);
-  if (readers.length !== 1 || readers[0] !== run.steps[0]!.node) {
-    return refuse('shared-output', `the output of '${layer.label}' is read by ${readers.length} nodes; read it only through the norm`);
+  const norm = run.steps[0]!.node;
+  const normName = norm.name || norm.opType;
+  if (ud.isGraphOutput(out)) {
+    if (ctx.options.cloneShared) return undefined;
+    return refuse('graph-output', `the output of '${layer.label}' is also a model output, and a fold would change it; export the model so that the output is taken after '${normName}', or pass --clone-shared to give '${normName}' its own copy of '${layer.label}'`);
   }
-  return undefined;
+  const readers = ud.consumers(out);
+  if (readers.length === 1 && readers[0] === norm) return undefined;
+  if (!readers.includes(norm)) return refuse('shared-output', `'${layer.label}' does not feed '${normName}' directly`);
+  if (ctx.options.cloneShared) return undefined;
+  const others = readers.filter((r) => r !== norm).map((r) => `'${r.name || r.opType}' (${r.opType})`);
+  return refuse('shared-output', `the output of '${layer.label}' is also read by ${others.join(', ')}, which must keep the unscaled values; ` +
+    `pass --clone-shared to give '${normName}' its own copy of '${layer.label}', or export the model with only the norm reading it`);
+}
+
+/** Into the producer: the layer's output has readers besides the run, or is a model output (the fold needs a --clone-shared copy). */
+export function producerShared(layer: Layer, run: Run): boolean {
+  const out = layer.node.outputs[0]!;
+  const readers = run.scope.ud.consumers(out);
+  return readers.length !== 1 || readers[0] !== run.steps[0]!.node || run.scope.ud.isGraphOutput(out);
 }
 
 /** A folded value fits the storage type when it rounds to a finite number there (float16 max 65504). */
@@ -77,14 +94,30 @@ export function overflow(what: string, dataType: DataTypeCode): Refusal {
 }
 
 /** Into the producer: the layer now writes what the run's last step wrote; the run disappears. */
-export function takeOverRun(edit: Edit, layer: Layer, run: Run, outputs = true): void {
+export function takeOverRun(ctx: FoldContext, edit: Edit, layer: Layer, run: Run, outputs = true): void {
   if (outputs) changeOf(edit, layer.node).outputs[0] = run.bottom;
-  removeRun(edit, run);
+  removeRun(ctx, edit, run);
   edit.goneValues.push(layer.node.outputs[0]!);
 }
 
-export function removeRun(edit: Edit, run: Run): void {
+/**
+ * The run's nodes go (once per edit, however many readers take it). A LayerNormalization's tail cannot go with
+ * its node, whose statistics stay: its Scale becomes ones and its B is dropped.
+ */
+export function removeRun(ctx: FoldContext, edit: Edit, run: Run): void {
+  if (edit.removedRuns.has(run)) return;
+  edit.removedRuns.add(run);
   for (const s of run.steps) {
+    if (s.kind === 'layer-norm') {
+      const scale = s.consts[0]!;
+      replaceConstant(ctx, edit, s.node, 1, scale, new Float64Array(s.bn!.scale.length).fill(1), scale.tensor.dims);
+      const c = changeOf(edit, s.node);
+      if (c.inputs.length > 2) {
+        c.inputs = c.inputs.slice(0, 2);
+        edit.released.push(s.consts[1]!.name);
+      }
+      continue;
+    }
     edit.removeNodes.push(s.node);
     if (s.output !== run.bottom) edit.goneValues.push(s.output);
     for (const c of s.consts) edit.released.push(c.name);
@@ -92,10 +125,10 @@ export function removeRun(edit: Edit, run: Run): void {
 }
 
 /** Into the consumer: the layer reads what the run's first step read. */
-export function bypassRun(edit: Edit, layer: Layer, run: Run): void {
+export function bypassRun(ctx: FoldContext, edit: Edit, layer: Layer, run: Run): void {
   changeOf(edit, layer.node).inputs[0] = run.top;
-  removeRun(edit, run);
-  edit.goneValues.push(run.bottom);
+  removeRun(ctx, edit, run);
+  if (run.steps[run.steps.length - 1]!.kind !== 'layer-norm') edit.goneValues.push(run.bottom);
 }
 
 export function labelOf(n: Node): string {

@@ -1,0 +1,68 @@
+// Shapes propagated from the inputs (src/graph/shapes.ts) against the shapes onnxruntime-node produces for the
+// same graph (graph optimizations off): every intermediate value is made a model output, so the runtime reports
+// its shape. Seeded random sizes, several draws.
+import { describe, expect, it } from 'vitest';
+import { GraphBuilder, modelBytes, randn, rng } from '../helpers/build.js';
+import { parseModel } from '../../src/onnx/read.js';
+import { inferShapes } from '../../src/graph/shapes.js';
+import { runOrt } from '../helpers/ort.js';
+import { mkdtempSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+
+const dir = mkdtempSync(join(tmpdir(), 'pleat-shapes-'));
+
+function build(seed: number): { g: GraphBuilder; x: number[]; values: string[] } {
+  const r = rng(seed);
+  const pick = (lo: number, hi: number) => lo + Math.floor(r() * (hi - lo + 1));
+  const n = pick(1, 2), c = pick(2, 4), h = pick(5, 9), w = pick(5, 9), co = pick(2, 5);
+  const g = new GraphBuilder();
+  g.input('x', [n, c, h, w]);
+  const values: string[] = [];
+  const v = (name: string) => { values.push(name); return name; };
+  const k = pick(1, 3), s = pick(1, 2);
+  const conv = v(g.node('Conv', ['x', g.init('cw', [co, c, k, k], randn(r, co * c * k * k))], { strides: [s, s], pads: [1, 0, 1, 0] }, { name: 'conv' }));
+  const pool = v(g.node('MaxPool', [conv], { kernel_shape: [2, 2], ceil_mode: pick(0, 1) }, { name: 'pool' }));
+  const red = v(g.node('ReduceMean', [pool], { axes: [-1], keepdims: pick(0, 1) }, { name: 'rm' }));
+  const tr = v(g.node('Transpose', [pool], { perm: [0, 2, 3, 1] }, { name: 'tr' }));
+  const flat = v(g.node('Flatten', [tr], { axis: 2 }, { name: 'flat' }));
+  const rs = v(g.node('Reshape', [tr, g.init('shape', [3], [0, -1, co], 7)], {}, { name: 'rs' }));
+  const mm = v(g.node('MatMul', [rs, g.init('mw', [co, 3], randn(r, co * 3))], {}, { name: 'mm' }));
+  const un = v(g.node('Unsqueeze', [mm, g.init('ax', [1], [1], 7)], {}, { name: 'un' }));
+  const sq = v(g.node('Squeeze', [un, g.init('ax2', [1], [1], 7)], {}, { name: 'sq' }));
+  const cat = v(g.node('Concat', [sq, mm], { axis: -1 }, { name: 'cat' }));
+  const gap = v(g.node('GlobalAveragePool', [conv], {}, { name: 'gap' }));
+  const fl = v(g.node('Flatten', [gap], {}, { name: 'fl' }));
+  const gm = v(g.node('Gemm', [fl, g.init('gw', [3, co], randn(r, 3 * co))], { transB: 1 }, { name: 'gemm' }));
+  const add = v(g.node('Add', [gm, g.init('gb', [1, 3], randn(r, 3))], {}, { name: 'add' }));
+  const up = v(g.node('ConvTranspose', [conv, g.init('tw', [co, 2, 3, 3], randn(r, co * 18))], { strides: [2, 2], pads: [1, 1, 1, 1], output_padding: [1, 1] }, { name: 'up' }));
+  const pad = v(g.node('Pad', [up, g.init('pads', [8], [0, 0, 1, 2, 0, 0, 2, 1], 7)], {}, { name: 'pad' }));
+  void red; void flat; void cat; void add; void pad;
+  for (const name of values) g.output(name);
+  return { g, x: [n, c, h, w], values };
+}
+
+describe('inferShapes', () => {
+  for (const seed of [1, 2, 3, 4]) {
+    it(`agrees with onnxruntime-node on every value (seed ${seed})`, async () => {
+      const { g, x, values } = build(seed);
+      const bytes = modelBytes(g, { opset: 13 });
+      const model = parseModel(bytes, dir);
+      const inferred = inferShapes(model.graph);
+      const got = await runOrt(bytes, { x: { dims: x, data: Float32Array.from(randn(rng(seed), x.reduce((a, b) => a * b, 1))) } });
+      for (const name of values) expect(inferred.get(name), name).toEqual(got[name]!.dims);
+    });
+  }
+
+  it('leaves a shape unknown when it depends on values computed at run time, and marks symbolic dims -1', () => {
+    const g = new GraphBuilder();
+    g.input('x', ['batch', 4, 6]).input('target', [2], 7).output('y').output('z');
+    g.node('Reshape', ['x', 'target'], {}, { name: 'rs', outputs: ['y'] });
+    g.node('Transpose', ['x'], { perm: [2, 0, 1] }, { name: 'tr', outputs: ['z'] });
+    const shapes = inferShapes(parseModel(modelBytes(g), dir).graph);
+    expect(shapes.get('y')).toBeUndefined();
+    expect(shapes.get('z')).toEqual([6, -1, 4]);
+    // a given shape replaces the declared one
+    expect(inferShapes(parseModel(modelBytes(g), dir).graph, new Map([['x', [3, 4, 6]]])).get('z')).toEqual([6, 3, 4]);
+  });
+});
