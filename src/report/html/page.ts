@@ -96,7 +96,11 @@ function card(e: Entry, i: number, sketch: Sketch | undefined, pre: string, at: 
   const rows: string[] = [`<dt>op</dt><dd>${esc(e.op)}</dd>`];
   if (e.graph !== 'main') rows.push(`<dt>graph</dt><dd><code>${esc(e.graph)}</code></dd>`);
   if (e.status === 'kept') rows.push(`<dt>reason</dt><dd><code>${esc(e.reason ?? '')}</code></dd>`);
-  else rows.push(`<dt>into</dt><dd><code>${esc(e.target ?? '?')}</code> (${esc(e.direction ?? '?')})</dd>`);
+  else {
+    // a fold into several readers (fan-out) names each of them in `targets`
+    const targets = Array.isArray(e.targets) && e.targets.length > 1 ? (e.targets as string[]) : [e.target ?? '?'];
+    rows.push(`<dt>into</dt><dd>${targets.map((t) => `<code>${esc(t)}</code>`).join(', ')} (${esc(e.direction ?? '?')})</dd>`);
+  }
   rows.push(`<dt>${e.status === 'kept' ? 'hint' : 'does'}</dt><dd>${esc(e.hint)}</dd>`);
   if ('proof' in e && e.proof && typeof e.proof === 'object') {
     rows.push(`<dt>proof</dt><dd>${figureList(e.proof as Record<string, unknown>, `${at}normalizations.${i}.proof`)}</dd>`);
