@@ -15,10 +15,12 @@ import { checkNames, modelNames, type ModelNames } from '../src/jobs/names.js';
 import { asMap } from '../src/verify/inputs.js';
 import type { Outcome } from '../src/report/render.js';
 import type { Progress } from './progress.js';
+import { runFigures } from './output.js';
 
-export type Job =
+export type Job = (
   | { command: 'fold'; model: string; output: string; opts: FoldJobOptions }
-  | { command: 'audit'; model: string; opts: AuditJobOptions };
+  | { command: 'audit'; model: string; opts: AuditJobOptions }
+) & { runFigures?: boolean };
 
 /** An outcome, plus (for fold) the staged output files to commit with the reports and the input files to guard. */
 export type JobOutcome = Outcome<FoldReport | AuditReport> & { staged?: StagedFile[]; inputs?: string[] };
@@ -41,11 +43,14 @@ export function checkBatchNames(jobs: readonly Job[]): Job[] {
 
 /** Run one job here and now; errors are thrown (a single model's error ends the command as usual). */
 export function runJob(job: Job): JobOutcome {
+  const started = process.hrtime.bigint();
   if (job.command === 'fold') {
     const r = foldStaged(job.model, job.output, job.opts);
+    if (job.runFigures) r.report.run = runFigures(started);
     return { model: job.model, report: r.report, exitCode: r.report.failed ? EXIT.failed : EXIT.ok, staged: r.staged, inputs: r.inputs };
   }
   const report = audit(job.model, job.opts);
+  if (job.runFigures) report.run = runFigures(started);
   return { model: job.model, report, exitCode: report.failed ? EXIT.failed : EXIT.ok };
 }
 

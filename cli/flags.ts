@@ -42,7 +42,8 @@ export function reportFlags<T>(y: Argv<T>) {
   return y
     .option('json', { type: 'boolean', describe: 'print the report as JSON (same as --format json)' })
     .option('format', { type: 'string', choices: [...FORMATS], describe: 'report format on stdout (default text)' })
-    .option('report', { type: 'string', coerce: many, describe: 'also write a report file: FILE (.json, .xml = junit, .md, .txt) or FORMAT:FILE; repeatable, one per format' });
+    .option('report', { type: 'string', coerce: many, describe: 'also write a report file: FILE (.json, .xml = junit, .md, .txt, .html) or FORMAT:FILE; repeatable, one per format' })
+    .option('run-figures', { type: 'boolean', default: false, describe: 'record the wall time and peak memory of the run in the report (then reports differ from run to run)' });
 }
 
 /** Flags of the commands that judge a comparison (fold's whole-model check, compare). */

@@ -10,6 +10,7 @@ export interface ReportFlags {
   json?: boolean;
   format?: string;
   report?: string[];
+  runFigures?: boolean;
 }
 
 /** The stdout format: --format, with --json meaning --format json (the two must not disagree). */
@@ -20,9 +21,25 @@ export function stdoutFormat(flags: ReportFlags): Format {
   return f as Format;
 }
 
+export interface ReportPlan {
+  format: Format;
+  files: ReturnType<typeof parseReportSpecs>;
+  /** An HTML report is wanted: the jobs also record what the page shows beyond the ledger (SHA-256, sketches). */
+  pageDetail: boolean;
+  /** --run-figures: record wall time and peak memory. */
+  runFigures: boolean;
+}
+
 /** Check flags before any work runs, so a usage error never costs a long job. */
-export function planReports(flags: ReportFlags): { format: Format; files: ReturnType<typeof parseReportSpecs> } {
-  return { format: stdoutFormat(flags), files: parseReportSpecs(flags.report ?? []) };
+export function planReports(flags: ReportFlags): ReportPlan {
+  const format = stdoutFormat(flags), files = parseReportSpecs(flags.report ?? []);
+  return { format, files, pageDetail: format === 'html' || files.some((f) => f.format === 'html'), runFigures: flags.runFigures === true };
+}
+
+/** Wall time and peak resident memory of this process so far, for --run-figures. */
+export function runFigures(startedAt: bigint): { seconds: number; peakMemoryBytes: number } {
+  const seconds = Number(process.hrtime.bigint() - startedAt) / 1e9;
+  return { seconds: Math.round(seconds * 1000) / 1000, peakMemoryBytes: process.resourceUsage().maxRSS * 1024 };
 }
 
 /** What a command's outputs must respect: files read (never written) and output files already decided. */
@@ -36,7 +53,7 @@ export interface OutputGuard {
  * Check every destination before any work runs (folders exist and are writable, no report replaces an input or
  * an output, no two outputs share a file), so a usage mistake never costs a long job or writes anything.
  */
-export async function checkDestinations(plan: ReturnType<typeof planReports>, guard: OutputGuard): Promise<void> {
+export async function checkDestinations(plan: ReportPlan, guard: OutputGuard): Promise<void> {
   const { OutputSet } = await import('../src/jobs/outputs.js');
   const tx = new OutputSet();
   try {
@@ -52,7 +69,7 @@ export async function checkDestinations(plan: ReturnType<typeof planReports>, gu
  * Print stdout's report (coloured only on a TTY without NO_COLOR) and write every --report file (never coloured)
  * together with the files `staged` by the jobs, in one transaction: all are renamed in, or none.
  */
-export async function emit(plan: ReturnType<typeof planReports>, render: (format: Format, colour: boolean) => string,
+export async function emit(plan: ReportPlan, render: (format: Format, colour: boolean) => string,
   guard: OutputGuard = {}, staged: ReadonlyArray<readonly StagedFile[]> = []): Promise<void> {
   const { OutputSet } = await import('../src/jobs/outputs.js'); // loaded when used: --help needs none of it
   const tx = new OutputSet();
@@ -80,7 +97,7 @@ export function reportErrors(lines: readonly string[]): void {
  * Run fold or audit jobs (one worker per core), then print their reports and set the exit code to the worst
  * of the batch. The library is loaded here, not at start-up: --help or a usage error needs none of it.
  */
-export async function runAndReport(command: 'fold' | 'audit', jobs: import('./batch.js').Job[], plan: ReturnType<typeof planReports>, quiet: boolean): Promise<void> {
+export async function runAndReport(command: 'fold' | 'audit', jobs: import('./batch.js').Job[], plan: ReportPlan, quiet: boolean): Promise<void> {
   const { runBatch, checkBatchNames } = await import('./batch.js');
   if (jobs.length > 1) jobs = checkBatchNames(jobs);
   const { renderJobs, isJobError } = await import('../src/report/render.js');

@@ -3,7 +3,7 @@
 // project's own config without a warning (no unknown .npmrc key).
 import { describe, expect, it } from 'vitest';
 import { spawnSync } from 'node:child_process';
-import { existsSync, mkdtempSync, readFileSync, readdirSync, writeFileSync } from 'node:fs';
+import { existsSync, mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { ROOT } from './helpers/cli.js';
@@ -34,9 +34,10 @@ describe('packaging', () => {
     writeFileSync(join(project, 'package.json'), JSON.stringify({ name: 'consumer', version: '1.0.0', private: true }));
     const installed = npm(['install', '--prefer-offline', '--no-audit', '--no-fund', tgz], project);
     expect(installed.status, installed.stderr).toBe(0);
-    const mods = readdirSync(join(project, 'node_modules'));
-    for (const dep of Object.keys(pkg.dependencies)) expect(mods).toContain(dep);
-    for (const dev of Object.keys(pkg.devDependencies)) expect(mods, `${dev} is a devDependency`).not.toContain(dev.split('/')[0]);
+    // scoped packages live one folder down (node_modules/@scope/name)
+    const has = (name: string) => existsSync(join(project, 'node_modules', ...name.split('/'), 'package.json'));
+    for (const dep of Object.keys(pkg.dependencies)) expect(has(dep), `${dep} is a dependency`).toBe(true);
+    for (const dev of Object.keys(pkg.devDependencies)) expect(has(dev), `${dev} is a devDependency`).toBe(false);
 
     const run = spawnSync('npx', ['--no', 'pleat', 'survey', join(ROOT, 'models', 'tray-edge.onnx'), '--json'], { cwd: project, encoding: 'utf8' });
     expect(run.status, run.stderr).toBe(0);

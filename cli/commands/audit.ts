@@ -16,13 +16,13 @@ export function builder(y: Argv) {
     .epilogue(EPILOGUE);
 }
 
-interface Flags { models: string[]; failOn?: 'kept'; keep?: string[]; allowOverridable: boolean; cloneShared: boolean; json?: boolean; format?: string; report?: string[]; config?: string; quiet: boolean }
+interface Flags { models: string[]; failOn?: 'kept'; keep?: string[]; allowOverridable: boolean; cloneShared: boolean; json?: boolean; format?: string; report?: string[]; runFigures?: boolean; config?: string; quiet: boolean }
 
 export async function handler(argv: Flags): Promise<void> {
   const plan = planReports(argv);
   const { config, file } = loadConfig(argv.config);
-  const opts = { keep: keepList(config, argv.keep), failOn: argv.failOn ?? config.failOn, allowOverridable: argv.allowOverridable, cloneShared: argv.cloneShared, origins: nameOrigins(config, file, argv) };
-  const jobs: Job[] = argv.models.map((model) => ({ command: 'audit', model, opts }));
+  const opts = { keep: keepList(config, argv.keep), failOn: argv.failOn ?? config.failOn, allowOverridable: argv.allowOverridable, cloneShared: argv.cloneShared, origins: nameOrigins(config, file, argv), pageDetail: plan.pageDetail };
+  const jobs: Job[] = argv.models.map((model) => ({ command: 'audit', model, opts, runFigures: plan.runFigures }));
   await checkDestinations(plan, { inputs: argv.models });
   await runAndReport('audit', jobs, plan, argv.quiet);
 }

@@ -1,6 +1,6 @@
 import type { Argv } from 'yargs';
 import { loadConfig, runSettings } from '../config.js';
-import { checkDestinations, emit, planReports } from '../output.js';
+import { checkDestinations, emit, planReports, runFigures } from '../output.js';
 import { checkFlags, configFlags, EPILOGUE, inputFlags, int8Flags, int8Setting, reportFlags, threadsFlag } from '../flags.js';
 
 
@@ -13,7 +13,7 @@ export function builder(y: Argv) {
     .epilogue(EPILOGUE);
 }
 
-interface Flags { a: string; b: string; threads?: number; simulateInt8?: string; int8Granularity?: string; probes?: number; gate?: string; seed?: number; input?: string[]; shape?: string[]; dim?: string[]; json?: boolean; format?: string; report?: string[]; config?: string; strict?: boolean; saveProbes?: string }
+interface Flags { a: string; b: string; threads?: number; simulateInt8?: string; int8Granularity?: string; probes?: number; gate?: string; seed?: number; input?: string[]; shape?: string[]; dim?: string[]; json?: boolean; format?: string; report?: string[]; runFigures?: boolean; config?: string; strict?: boolean; saveProbes?: string }
 
 export async function handler(argv: Flags): Promise<void> {
   const plan = planReports(argv);
@@ -26,8 +26,14 @@ export async function handler(argv: Flags): Promise<void> {
   const { renderCompare } = await import('../../src/report/render.js');
   const { EXIT } = await import('../../src/report/exit-codes.js');
   await checkDestinations(plan, { inputs: [argv.a, argv.b] });
+  const { fileSha256 } = await import('../../src/jobs/sha256.js');
+  const started = process.hrtime.bigint();
   const report = compare(argv.a, argv.b, { ...run, simulateInt8: int8Setting(argv), saveProbes: argv.saveProbes });
-  await emit(plan, (format, colour) => renderCompare(report, argv.a, argv.b, format, colour), { inputs: [argv.a, argv.b] });
+  const extras = {
+    ...(plan.pageDetail ? { sha256: { a: fileSha256(argv.a), b: fileSha256(argv.b) } } : {}),
+    ...(plan.runFigures ? { run: runFigures(started) } : {}),
+  };
+  await emit(plan, (format, colour) => renderCompare(report, argv.a, argv.b, format, colour, extras), { inputs: [argv.a, argv.b] });
   // skipped is not a failure unless --strict (or "strict" in the config) says so
   process.exitCode = report.status === 'failed' || (report.status === 'skipped' && run.strict) ? EXIT.failed : EXIT.ok;
 }

@@ -31,7 +31,7 @@ export function builder(y: Argv) {
 interface Flags {
   models: string[]; out?: string; outDir?: string; keep?: string[]; allowOverridable: boolean; cloneShared: boolean; externalDataMin?: number; store?: 'float16'; gate?: string; probes?: number; seed?: number; unproven: boolean; threads?: number;
   equalize: boolean; quantThreshold?: number; simulateInt8?: string; int8Granularity?: string;
-  input?: string[]; shape?: string[]; dim?: string[]; json?: boolean; format?: string; report?: string[]; config?: string; quiet: boolean;
+  input?: string[]; shape?: string[]; dim?: string[]; json?: boolean; format?: string; report?: string[]; runFigures?: boolean; config?: string; quiet: boolean;
   strict?: boolean; saveProbes?: string;
 }
 
@@ -68,7 +68,7 @@ export async function handler(argv: Flags): Promise<void> {
   const opts: FoldJobOptions = {
     inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, probes: run.probes, gate: run.gate, maxProbeMemory: run.maxProbeMemory,
     keep: keepList(config, argv.keep), store: argv.store ?? config.store, allowOverridable: argv.allowOverridable,
-    cloneShared: argv.cloneShared, externalThreshold: argv.externalDataMin, noProofs: argv.unproven, threads: threadsFlag(argv.threads),
+    cloneShared: argv.cloneShared, externalThreshold: argv.externalDataMin, noProofs: argv.unproven, threads: threadsFlag(argv.threads), pageDetail: plan.pageDetail,
     strict: run.strict, saveProbes: argv.saveProbes, origins: nameOrigins(config, file, argv),
     equalize: argv.equalize, quantThresholdDb: quantThreshold(argv.quantThreshold), simulateInt8: int8Setting(argv),
   };
@@ -78,6 +78,6 @@ export async function handler(argv: Flags): Promise<void> {
     inputs: argv.models,
     outputs: [...outputs.map((o) => [o, argv.out !== undefined ? '-o' : '--out-dir'] as const), ...sides.map((s) => [s, 'side file'] as const)],
   });
-  const jobs: Job[] = argv.models.map((model, i) => ({ command: 'fold', model, output: outputs[i]!, opts }));
+  const jobs: Job[] = argv.models.map((model, i) => ({ command: 'fold', model, output: outputs[i]!, opts, runFigures: plan.runFigures }));
   await runAndReport('fold', jobs, plan, argv.quiet);
 }

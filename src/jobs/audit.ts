@@ -4,6 +4,8 @@ import { readModelFile } from '../onnx/read.js';
 import { analyze } from '../fold/index.js';
 import { checkJobNames } from './names.js';
 import { checkOpset } from '../graph/opsets.js';
+import { sketches } from '../fold/sketch.js';
+import { fileSha256 } from './sha256.js';
 import { SCHEMA_VERSION, type AuditJobOptions, type AuditReport } from './types.js';
 
 export function auditLoaded(model: Model, label: string, opts: AuditJobOptions = {}): AuditReport {
@@ -26,5 +28,11 @@ export function auditLoaded(model: Model, label: string, opts: AuditJobOptions =
 }
 
 export function auditFile(input: string, opts: AuditJobOptions = {}): AuditReport {
-  return auditLoaded(readModelFile(input), input, opts);
+  const model = readModelFile(input);
+  const report = auditLoaded(model, input, opts);
+  if (opts.pageDetail) {
+    report.sha256 = fileSha256(input);
+    report.sketches = sketches(model, report.normalizations);
+  }
+  return report;
 }

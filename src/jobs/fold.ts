@@ -82,6 +82,8 @@ const withLost = (c: Coverage, lost: string[]): Coverage => (lost.length ? { ...
 function checkGate(opts: FoldJobOptions & { halfGate?: boolean }): string | undefined {
   return opts.gate ?? (opts.halfGate ? DEFAULT_GATES.float16 : undefined);
 }
+import { sketches } from '../fold/sketch.js';
+import { fileSha256 } from './sha256.js';
 
 /**
  * The arithmetic of fold's whole-model check: float64, so the default gates judge the fold's own error (the
@@ -132,6 +134,8 @@ export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOpt
       count: o.metrics?.count ?? 0,
       ...(o.problem ? { problem: o.problem } : {}),
       ...(o.observable !== undefined ? { observable: o.observable } : {}),
+      ...(o.histogram ? { histogram: o.histogram } : {}),
+      ...(o.gate?.limits ? { limits: o.gate.limits } : {}),
     })),
   };
 }
@@ -341,6 +345,10 @@ function foldStagedOnce(tx: OutputSet, input: string, output: string, opts: Fold
   };
   const records: ProbeRecord[] = [];
   const report = foldLoaded(model, original, input, opts, lateRangeCheck, ship, opts.saveProbes !== undefined ? (p) => records.push(p) : undefined);
+  if (opts.pageDetail) {
+    report.sha256 = fileSha256(input);
+    report.sketches = sketches(original ?? readModelFile(input), report.normalizations, model);
+  }
   if (report.failed) {
     tx.discard(staged?.files ?? []);
   } else {

@@ -6,12 +6,15 @@ import type { CheckStatus, Coverage, SkipInfo } from '../verify/status.js';
 import type { OutputStatus } from '../verify/compare.js';
 import type { QuantRow } from '../fold/quant.js';
 import type { NameOrigins } from './names.js';
+import type { DiffHistogram } from '../verify/metrics.js';
+import type { GateLimit } from '../verify/gate.js';
+import type { Sketch } from '../fold/sketch.js';
 import type { EqualizedPair } from '../fold/equalize.js';
 import type { Int8Granularity } from '../fold/int8.js';
 
-export type { QuantRow, EqualizedPair, Int8Granularity, AssumedDim, CheckStatus, Coverage, OutputStatus, SkipInfo };
+export type { QuantRow, EqualizedPair, Int8Granularity, AssumedDim, CheckStatus, Coverage, OutputStatus, SkipInfo, Sketch };
 
-export const SCHEMA_VERSION = 6;
+export const SCHEMA_VERSION = 7;
 
 export interface OutputCheck {
   name: string;
@@ -31,6 +34,19 @@ export interface OutputCheck {
    * the change was not observable at this output; true: it was; absent: no rewritten node upstream ran.
    */
   observable?: boolean;
+  /** How |folded - original| is spread over the elements of every probe (the values the metrics judge). */
+  histogram?: DiffHistogram;
+  /** The bounds this output's gate puts on maxAbs or maxRel, evaluated on its metrics. */
+  limits?: GateLimit[];
+}
+
+/**
+ * The run itself (only with --run-figures, since it differs from run to run): wall time of the job and the
+ * peak resident memory of the pleat process up to its end (in a batch, shared with the models running beside it).
+ */
+export interface RunFigures {
+  seconds: number;
+  peakMemoryBytes: number;
 }
 
 /** The whole-model comparison fold runs after folding (original float64 vs folded). */
@@ -94,6 +110,11 @@ export interface FoldReport {
   probesSaved: { dir: string; sets: number } | null;
   /** True when a gate failed, or --strict met a skipped check (exit 1): then nothing was written. */
   failed: boolean;
+  /** SHA-256 of the model file (hex), recorded when an HTML report is asked for (the page shows it). */
+  sha256?: string;
+  /** The neighbourhood of each normalization, recorded when an HTML report is asked for (the page draws it). */
+  sketches?: Sketch[];
+  run?: RunFigures;
 }
 
 export interface AuditReport {
@@ -110,6 +131,9 @@ export interface AuditReport {
   failOn: 'kept' | null;
   /** True when --fail-on kept is set and a normalization is kept (exit 1). */
   failed: boolean;
+  sha256?: string;
+  sketches?: Sketch[];
+  run?: RunFigures;
 }
 
 /** How the names the user gave are checked against the model (see jobs/names.ts). */
@@ -162,6 +186,8 @@ export interface FoldJobOptions extends InputOptions, NameCheckOptions {
   strict?: boolean;
   /** Write the check's probes and the original model's outputs here, in the ONNX backend test-data layout. */
   saveProbes?: string;
+  /** Record what an HTML report shows beyond the ledger: the model's SHA-256 and each norm's neighbourhood. */
+  pageDetail?: boolean;
 }
 
 export interface AuditJobOptions extends NameCheckOptions {
@@ -172,4 +198,6 @@ export interface AuditJobOptions extends NameCheckOptions {
   shapes?: InputOptions['shapes'];
   allowOverridable?: boolean;
   failOn?: 'kept';
+  /** See FoldJobOptions.pageDetail. */
+  pageDetail?: boolean;
 }

@@ -7,7 +7,7 @@ import { FORMATS, type Format } from './format.js';
 export interface ReportSpec { format: Format; file: string }
 
 const BY_EXTENSION: Record<string, Format> = {
-  '.json': 'json', '.xml': 'junit', '.md': 'markdown', '.markdown': 'markdown', '.txt': 'text', '.log': 'text',
+  '.json': 'json', '.xml': 'junit', '.md': 'markdown', '.markdown': 'markdown', '.txt': 'text', '.log': 'text', '.html': 'html', '.htm': 'html',
 };
 
 /** Parse `--report FILE` (format from the extension) or `--report FORMAT:FILE`; one file per format. */
@@ -22,7 +22,7 @@ export function parseReportSpecs(list: readonly string[]): ReportSpec[] {
     } else {
       const format = BY_EXTENSION[extname(text).toLowerCase()];
       if (!format) {
-        throw new PleatError('usage', `--report '${text}': cannot tell the format from the extension; use .json, .xml (junit), .md or .txt, or write FORMAT:FILE (formats: ${FORMATS.join(', ')})`);
+        throw new PleatError('usage', `--report '${text}': cannot tell the format from the extension; use .json, .xml (junit), .md, .txt or .html, or write FORMAT:FILE (formats: ${FORMATS.join(', ')})`);
       }
       spec = { format, file: text };
     }

@@ -58,5 +58,5 @@ export function plural(n: number, one: string, many = `${one}s`): string {
 }
 
 /** Report formats: stdout's --format and the --report files. */
-export const FORMATS = ['text', 'json', 'junit', 'markdown'] as const;
+export const FORMATS = ['text', 'json', 'junit', 'markdown', 'html'] as const;
 export type Format = (typeof FORMATS)[number];

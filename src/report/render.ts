@@ -10,6 +10,7 @@ import { compareText } from './compare-text.js';
 import { CAUTION, type Format } from './format.js';
 import { auditSuite, compareSuite, errorSuite, foldSuite, junitXml, type Suite } from './junit.js';
 import { foldText } from './ledger-text.js';
+import { auditBody, compareBody, errorBody, foldBody, htmlDocument, type CompareExtras } from './html/page.js';
 import { auditMarkdown, compareMarkdown, errorMarkdown, foldMarkdown } from './markdown.js';
 
 export { FORMATS, type Format } from './format.js';
@@ -62,17 +63,30 @@ export function renderJobs(command: Kind, outcomes: ReadonlyArray<Outcome<FoldRe
         : o.report.command === 'fold' ? foldSuite(o.report) : auditSuite(o.report)));
       return junitXml(`pleat ${command}`, suites);
     }
+    case 'html': {
+      const batch = outcomes.length > 1;
+      const bodies = outcomes.map((o, i) => {
+        if (isJobError(o)) return errorBody(command, o.model, o.error.message);
+        const [pre, at] = batch ? [`m${i}-`, `results.${i}.`] : ['', ''];
+        return o.report.command === 'fold' ? foldBody(o.report, pre, at) : auditBody(o.report, pre, at);
+      });
+      return htmlDocument(`pleat ${command} ${outcomes.map((o) => o.model).join(', ')}`, bodies);
+    }
   }
 }
 
-/** compare's JSON: the library report with the schema version, the command and the two files. */
-export function compareJson(r: CompareReport, a: string, b: string): object {
-  return { schemaVersion: SCHEMA_VERSION, command: 'compare', a, b, ...r };
+/**
+ * compare's JSON: the library report with the schema version, the command and the two files, and what the CLI
+ * recorded beside it (the files' SHA-256 when an HTML report is asked for, the run's figures with --run-figures).
+ */
+export function compareJson(r: CompareReport, a: string, b: string, extras: CompareExtras = {}): object {
+  return { schemaVersion: SCHEMA_VERSION, command: 'compare', a, b, ...r, ...extras };
 }
 
-export function renderCompare(r: CompareReport, a: string, b: string, format: Format, colour = false): string {
+export function renderCompare(r: CompareReport, a: string, b: string, format: Format, colour = false, extras: CompareExtras = {}): string {
   switch (format) {
-    case 'json': return toJsonText(compareJson(r, a, b));
+    case 'html': return htmlDocument(`pleat compare ${a} ${b}`, [compareBody(r, a, b, extras)]);
+    case 'json': return toJsonText(compareJson(r, a, b, extras));
     case 'text': return compareText(r, a, b, colour);
     case 'markdown': return compareMarkdown(r, a, b);
     case 'junit': return junitXml('pleat compare', [compareSuite(r, a, b)]);

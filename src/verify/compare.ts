@@ -12,8 +12,8 @@ import { withProbeMemory } from '../eval/budget.js';
 import { checkProbeEstimate } from './probe-budget.js';
 import { PleatError } from '../errors.js';
 import { dataTypeName } from '../graph/tensor.js';
-import { computeMetrics, worstOf, type Metrics } from './metrics.js';
-import { BUDGET_NAMES, DEFAULT_GATES, defaultGateFor, defaultGateKey, INT8_WEIGHTS_GATE, METRIC_NAMES, parseGate, type Gate, type GateScope } from './gate.js';
+import { computeMetrics, diffHistogram, worstOf, type DiffHistogram, type Metrics } from './metrics.js';
+import { BUDGET_NAMES, DEFAULT_GATES, defaultGateFor, defaultGateKey, INT8_WEIGHTS_GATE, METRIC_NAMES, parseGate, type Gate, type GateLimit, type GateScope } from './gate.js';
 import { roundedWeightsModel } from '../fold/quant.js';
 import type { Int8Granularity } from '../fold/int8.js';
 import {
@@ -90,6 +90,8 @@ export interface GateResult {
   expr: string;
   source: 'default' | 'user';
   passed: boolean;
+  /** The bounds the expression puts on maxAbs or maxRel, evaluated on this output's metrics. */
+  limits?: GateLimit[];
 }
 
 export interface OutputComparison {
@@ -106,6 +108,8 @@ export interface OutputComparison {
   /** B (float64) against A (float64), worst over probes. */
   metrics?: Metrics;
   budget?: ErrorBudget;
+  /** How |B - A| (float64, the values the metrics judge) is spread over the elements of every probe. */
+  histogram?: DiffHistogram;
   gate?: GateResult;
   passed: boolean;
   /** One line saying what went wrong, when something did. */
@@ -256,7 +260,7 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
   const aNames = new Set(aOut.map((o) => o.name));
 
   // Per output shared by both: metrics per probe, or the first shape difference.
-  interface Acc { metrics: Metrics[]; own: Metrics[]; deploy: Metrics[]; dimsA?: number[]; dimsB?: number[]; shapeDiffers: boolean; typeA?: DataTypeCode; typeB?: DataTypeCode }
+  interface Acc { histogram?: DiffHistogram; metrics: Metrics[]; own: Metrics[]; deploy: Metrics[]; dimsA?: number[]; dimsB?: number[]; shapeDiffers: boolean; typeA?: DataTypeCode; typeB?: DataTypeCode }
   const acc = new Map<string, Acc>();
   for (const o of aOut) if (bOut.has(o.name)) acc.set(o.name, { metrics: [], own: [], deploy: [], shapeDiffers: false });
   const onlyB = new Map<string, Value>();
@@ -304,6 +308,7 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
         if (s.shapeDiffers) continue;
         if (!sameDims(va.dims, vb.dims)) { s.shapeDiffers = true; s.dimsA = [...va.dims]; s.dimsB = [...vb.dims]; continue; }
         s.metrics.push(computeMetrics(vb.data, va.data));
+        s.histogram = diffHistogram(vb.data, va.data, s.histogram);
         if (ra32 && rb32) {
           const a32 = ra32.get(name)!, b32 = rb32.get(name)!;
           // float32 runs take the same shapes as float64 runs of the same model; B's were just checked against A's
@@ -347,6 +352,7 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
       outputs.push(out);
       continue;
     }
+    if (s.histogram) out.histogram = s.histogram;
     const scope: GateScope = { ...extra, ...metrics };
     if (budget) {
       const own = worstOf(s.own), deploy = worstOf(s.deploy);
@@ -360,7 +366,7 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
       : halfGate ? DEFAULT_GATES.float16 : defaultGate(s.typeA!, s.typeB);
     const gate: Gate = userGate ?? parseGate(fallback, available);
     const passed = gate.test(scope);
-    out.gate = { expr: gate.expr, source: userGate ? 'user' : 'default', passed };
+    out.gate = { expr: gate.expr, source: userGate ? 'user' : 'default', passed, limits: gate.limits(scope) };
     out.passed = passed;
     if (!passed) out.problem = `output '${o.name}' fails the gate '${gate.expr}'`;
     if (upstream && [...(upstream.get(o.name) ?? [])].some((n) => executed.has(n))) {

@@ -106,6 +106,39 @@ export interface Gate {
   names: string[];
   /** True when the metrics pass. Missing names in the scope are an error, not a silent pass. */
   test(scope: GateScope): boolean;
+  /** The bounds the gate puts on maxAbs or maxRel directly (see GateLimit), for reports that draw them. */
+  limits(scope: GateScope): GateLimit[];
+}
+
+/**
+ * A bound a gate puts on one metric: `maxAbs <= 1e-2 * peak` gives metric maxAbs and limit 1e-2 * peak. Only
+ * comparisons joined by `and` (at the top) count; a bound under `or` or `not` is no bound on its own.
+ */
+export interface GateLimit {
+  metric: 'maxAbs' | 'maxRel';
+  limit: number;
+}
+
+const BOUNDED = new Set(['maxAbs', 'maxRel']);
+const UPPER = new Set(['smaller', 'smallerEq', 'equal']);
+const LOWER = new Set(['larger', 'largerEq', 'equal']);
+
+function limitsOf(node: MathNode, scope: GateScope): GateLimit[] {
+  const n = node as unknown as { type: string; fn?: string; args?: MathNode[]; content?: MathNode; name?: string };
+  if (n.type === 'ParenthesisNode') return limitsOf(n.content!, scope);
+  if (n.type !== 'OperatorNode') return [];
+  if (n.fn === 'and') return n.args!.flatMap((a) => limitsOf(a, scope));
+  const [l, r] = n.args ?? [];
+  const symbol = (m: MathNode | undefined) => (m?.type === 'SymbolNode' ? (m as unknown as { name: string }).name : '');
+  const reads = (m: MathNode) => m.filter((x) => x.type === 'SymbolNode' && BOUNDED.has((x as unknown as { name: string }).name)).length > 0;
+  const bound = (metric: string, other: MathNode): GateLimit[] => {
+    if (reads(other)) return [];
+    const v: unknown = other.compile().evaluate({ ...scope });
+    return typeof v === 'number' ? [{ metric: metric as GateLimit['metric'], limit: v }] : [];
+  };
+  if (l && r && UPPER.has(n.fn!) && BOUNDED.has(symbol(l))) return bound(symbol(l), r);
+  if (l && r && LOWER.has(n.fn!) && BOUNDED.has(symbol(r))) return bound(symbol(r), l);
+  return [];
 }
 
 /**
@@ -128,6 +161,11 @@ export function parseGate(expr: string, available: readonly string[] = [...METRI
           if (typeof scope[n as keyof GateScope] !== 'number') fail(`needs '${n}', which was not measured`);
         }
         return testPlain(plain, scope);
+      },
+      limits(scope: GateScope): GateLimit[] {
+        return plain.filter((c) => BOUNDED.has(c.name) && ['<', '<=', '=='].includes(c.op) && !(c.factorOf && BOUNDED.has(c.factorOf)))
+          .map((c) => ({ metric: c.name as GateLimit['metric'], limit: c.factorOf ? c.value * (scope[c.factorOf as keyof GateScope] ?? NaN) : c.value }))
+          .filter((l) => !Number.isNaN(l.limit));
       },
     };
   }
@@ -197,6 +235,9 @@ export function parseGate(expr: string, available: readonly string[] = [...METRI
         if (typeof scope[n as keyof GateScope] !== 'number') fail(`needs '${n}', which was not measured`);
       }
       return run(scope) === true;
+    },
+    limits(scope: GateScope): GateLimit[] {
+      try { return limitsOf(node, scope); } catch { return []; } // a bound that cannot be evaluated is not drawn
     },
   };
 }

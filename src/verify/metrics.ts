@@ -96,3 +96,57 @@ export function worstOf(list: readonly Metrics[]): Metrics {
 function worse(x: number, y: number): number {
   return Number.isNaN(x) || Number.isNaN(y) ? NaN : Math.max(x, y);
 }
+
+/**
+ * How the element differences |a - b| of one output are spread: counts in log-spaced bins (BINS_PER_DECADE per
+ * power of ten), so a report can draw them without keeping the elements. Bounded: the bins run from
+ * 10^HIST_MIN_EXP to 10^HIST_MAX_EXP; a difference below the first edge is counted in the first bin, one above
+ * the last edge in the last bin. Equal elements (both NaN included) count as `zero`; a difference that is not a
+ * finite number (NaN on one side only, or unequal infinities) counts as `nonFinite`.
+ */
+export interface DiffHistogram {
+  binsPerDecade: number;
+  /** counts[i] holds differences in [10^((first + i) / binsPerDecade), 10^((first + i + 1) / binsPerDecade)). */
+  first: number;
+  counts: number[];
+  zero: number;
+  nonFinite: number;
+  /** Largest |reference| over the elements binned (the scale the differences are judged against). */
+  peak: number;
+}
+
+export const BINS_PER_DECADE = 4;
+const HIST_MIN_EXP = -30, HIST_MAX_EXP = 10;
+const BIN_LO = HIST_MIN_EXP * BINS_PER_DECADE, BIN_HI = HIST_MAX_EXP * BINS_PER_DECADE - 1;
+
+/** Bin index (in units of 1/BINS_PER_DECADE decade) of a positive finite difference, clamped to the bounds. */
+export function diffBin(d: number): number {
+  let k = Math.floor(Math.log10(d) * BINS_PER_DECADE);
+  // log10 rounds: make sure the bin's lower edge is <= d < its upper edge
+  if (10 ** (k / BINS_PER_DECADE) > d) k--;
+  else if (10 ** ((k + 1) / BINS_PER_DECADE) <= d) k++;
+  return Math.min(BIN_HI, Math.max(BIN_LO, k));
+}
+
+/** Add the differences of candidate `a` against reference `b` to a histogram (new one when `into` is absent). */
+export function diffHistogram(a: ArrayLike<number>, b: ArrayLike<number>, into?: DiffHistogram): DiffHistogram {
+  const bins = new Map<number, number>();
+  const h = into ?? { binsPerDecade: BINS_PER_DECADE, first: 0, counts: [], zero: 0, nonFinite: 0, peak: 0 };
+  h.counts.forEach((c, i) => { if (c) bins.set(h.first + i, c); });
+  for (let i = 0; i < a.length; i++) {
+    const x = a[i]!, y = b[i]!;
+    const xn = Number.isNaN(x), yn = Number.isNaN(y);
+    if (!yn && Math.abs(y) > h.peak && Number.isFinite(y)) h.peak = Math.abs(y);
+    if (x === y || (xn && yn)) { h.zero++; continue; }
+    const d = Math.abs(x - y);
+    if (!Number.isFinite(d)) { h.nonFinite++; continue; }
+    const k = diffBin(d);
+    bins.set(k, (bins.get(k) ?? 0) + 1);
+  }
+  const keys = [...bins.keys()];
+  if (keys.length === 0) { h.first = 0; h.counts = []; return h; }
+  const lo = Math.min(...keys), hi = Math.max(...keys);
+  h.first = lo;
+  h.counts = Array.from({ length: hi - lo + 1 }, (_, i) => bins.get(lo + i) ?? 0);
+  return h;
+}

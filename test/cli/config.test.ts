@@ -55,7 +55,10 @@ describe('--report specs', () => {
   });
   it('one file per format; unknown extensions are usage errors', () => {
     expect(() => parseReportSpecs(['a.json', 'json:b.out'])).toThrow(/two files for the json format/);
-    expect(() => parseReportSpecs(['report.html'])).toThrow(/cannot tell the format/);
+    expect(() => parseReportSpecs(['report.pdf'])).toThrow(/cannot tell the format/);
+    expect(parseReportSpecs(['report.html', 'x.md'])).toEqual([{ format: 'html', file: 'report.html' }, { format: 'markdown', file: 'x.md' }]);
+    expect(parseReportSpecs(['page.htm'])).toEqual([{ format: 'html', file: 'page.htm' }]);
+    expect(() => parseReportSpecs(['a.html', 'html:b.out'])).toThrow(/two files for the html format/);
   });
   it('writes atomically: no temporary file is left behind', () => {
     const d = mkdtempSync(join(tmpdir(), 'pleat-rep-'));

@@ -27,7 +27,7 @@ describe('compare --simulate-int8 weights', () => {
     const err = (j: { outputs: Array<{ metrics: { maxAbs: number } }> }) => j.outputs[0]!.metrics.maxAbs;
     expect(err(t)).toBeGreaterThan(0);
     expect(err(c)).toBeLessThanOrEqual(err(t));
-    expect(t.outputs[0].gate).toEqual({ expr: 'cosine >= 0.999', source: 'default', passed: expect.any(Boolean) });
+    expect(t.outputs[0].gate).toEqual({ expr: 'cosine >= 0.999', source: 'default', passed: expect.any(Boolean), limits: [] });
     const text = pleat(['compare', MODEL, MODEL, '--simulate-int8', 'weights', '--probes', '1']);
     expect(text.stdout).toMatch(/model B ran with 8-bit weights: 6 Conv\/Gemm\/MatMul layers rounded .* one scale per tensor/);
   });

@@ -72,7 +72,7 @@ describe('compare', () => {
       expect(o.status).toBe('compared');
       expect(o.metrics!.maxAbs).toBe(0);
       expect(o.metrics!.cosine).toBeCloseTo(1, 12);
-      expect(o.gate).toEqual({ expr: DEFAULT_GATES.float32, source: 'default', passed: true });
+      expect(o.gate).toEqual({ expr: DEFAULT_GATES.float32, source: 'default', passed: true, limits: [{ metric: 'maxRel', limit: 1e-3 }] });
       // A and B are the same model, so their float32 runs agree and the rewrite adds nothing
       expect(o.budget!.addedAbs).toBe(0);
       expect(o.budget!.own.maxAbs).toBeGreaterThan(0); // float32 arithmetic does round

@@ -105,3 +105,28 @@ describe('default gates', () => {
     expect(gate.test({ ...computeMetrics([1, 2, 4], [1, 2, 3]) })).toBe(false);
   });
 });
+
+describe('gate limits (the bounds a report draws)', () => {
+  const scope = { maxAbs: 1e-6, maxRel: 1e-7, rms: 1e-7, cosine: 1, nanMismatches: 0, peak: 20, count: 10 };
+  it('read the bound on maxAbs or maxRel from comparisons joined by and, either way round, evaluated on the metrics', () => {
+    expect(parseGate(DEFAULT_GATES.float32).limits(scope)).toEqual([{ metric: 'maxRel', limit: 1e-3 }]);
+    expect(parseGate(DEFAULT_GATES.float16).limits(scope)).toEqual([{ metric: 'maxAbs', limit: 1e-2 * 20 }]);
+    expect(parseGate(DEFAULT_GATES.exact).limits(scope)).toEqual([{ metric: 'maxAbs', limit: 0 }]);
+    expect(parseGate('(1e-4 > maxAbs) and (maxRel < 2e-3 and cosine > 0.9)').limits(scope))
+      .toEqual([{ metric: 'maxAbs', limit: 1e-4 }, { metric: 'maxRel', limit: 2e-3 }]);
+  });
+  it('give no bound where the expression does not bound the metric on its own', () => {
+    expect(parseGate('maxAbs <= 1e-4 or cosine > 0.99').limits(scope)).toEqual([]);
+    expect(parseGate('not (maxAbs > 1e-4)').limits(scope)).toEqual([]);
+    expect(parseGate('maxAbs >= 1e-9').limits(scope)).toEqual([]); // a lower bound
+    expect(parseGate('maxAbs <= maxRel * peak').limits(scope)).toEqual([]); // depends on the other metric
+    expect(parseGate('cosine >= 0.999').limits(scope)).toEqual([]);
+  });
+  it('the plain form (no expression library) and the mathjs form give the same bounds', () => {
+    const gates = [...Object.values(DEFAULT_GATES), 'maxAbs < 3e-5 * peak and maxRel <= 0.01', 'maxAbs >= 1e-9', 'cosine >= 0.999', 'maxAbs == 0 and maxRel < 1'];
+    for (const g of gates) {
+      expect(parseGate(g).limits(scope), g).toEqual(parseGate(g, undefined, { plainForm: false }).limits(scope));
+    }
+    expect(parseGate('maxAbs < 3e-5 * peak and maxRel <= 0.01').limits(scope)).toEqual([{ metric: 'maxAbs', limit: 3e-5 * 20 }, { metric: 'maxRel', limit: 0.01 }]);
+  });
+});

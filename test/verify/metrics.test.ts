@@ -1,7 +1,7 @@
 // Metrics checked against numbers worked out by hand in the comments (the formulas are the definitions in
 // src/verify/metrics.ts: maxAbs, maxRel with a floor of 1e-3 of the peak, RMS, cosine similarity).
 import { describe, expect, it } from 'vitest';
-import { computeMetrics, REL_FLOOR, worstOf } from '../../src/verify/metrics.js';
+import { BINS_PER_DECADE, computeMetrics, diffBin, diffHistogram, REL_FLOOR, worstOf } from '../../src/verify/metrics.js';
 
 describe('computeMetrics', () => {
   it('matches hand-computed values on a small vector', () => {
@@ -73,5 +73,63 @@ describe('computeMetrics', () => {
     expect(w.rms).toBeCloseTo(Math.sqrt(0.5), 15);
     expect(w.cosine).toBeCloseTo(1 / Math.SQRT2, 15);
     expect(w.maxRel).toBeCloseTo(1, 15);
+  });
+});
+
+describe('diffHistogram', () => {
+  // seeded generator (mulberry32), so the cases are the same on every run
+  const rng = (seed: number) => () => {
+    seed = (seed + 0x6d2b79f5) | 0;
+    let t = Math.imul(seed ^ (seed >>> 15), 1 | seed);
+    t = (t + Math.imul(t ^ (t >>> 7), 61 | t)) ^ t;
+    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
+  };
+
+  it('every element lands in exactly one place, each bin holds only differences inside its edges, and the top bin holds maxAbs', () => {
+    for (let seed = 1; seed <= 20; seed++) {
+      const r = rng(seed);
+      const n = 50 + Math.floor(r() * 400);
+      const b = Float64Array.from({ length: n }, () => (r() - 0.5) * 10 ** Math.floor(r() * 6 - 3));
+      // differences over many decades, some elements exactly equal
+      const a = b.map((y) => (r() < 0.1 ? y : y + (r() - 0.5) * 10 ** Math.floor(r() * 14 - 12)));
+      const h = diffHistogram(a, b);
+      expect(h.binsPerDecade).toBe(BINS_PER_DECADE);
+      expect(h.counts.reduce((s, c) => s + c, 0) + h.zero + h.nonFinite).toBe(n);
+      const expected = new Map<number, number>();
+      for (let i = 0; i < n; i++) {
+        const d = Math.abs(a[i]! - b[i]!);
+        if (d === 0) continue;
+        const k = diffBin(d);
+        expect(10 ** (k / BINS_PER_DECADE)).toBeLessThanOrEqual(d);
+        expect(d).toBeLessThan(10 ** ((k + 1) / BINS_PER_DECADE));
+        expected.set(k, (expected.get(k) ?? 0) + 1);
+      }
+      h.counts.forEach((c, i) => expect(c).toBe(expected.get(h.first + i) ?? 0));
+      const top = h.first + h.counts.length - 1;
+      const maxAbs = computeMetrics(a, b).maxAbs;
+      expect(diffBin(maxAbs)).toBe(top);
+      expect(h.counts[0]).toBeGreaterThan(0);
+      expect(h.peak).toBe(computeMetrics(a, b).peak);
+    }
+  });
+
+  it('adding probes one by one gives the histogram of all of them', () => {
+    const r = rng(7);
+    const b = Float64Array.from({ length: 300 }, () => r() * 4 - 2);
+    const a = b.map((y) => y + (r() - 0.5) * 10 ** Math.floor(r() * 8 - 9));
+    const whole = diffHistogram(a, b);
+    const parts = diffHistogram(a.subarray(150), b.subarray(150), diffHistogram(a.subarray(0, 150), b.subarray(0, 150)));
+    expect(parts).toEqual(whole);
+  });
+
+  it('equal elements (NaN on both sides too) count as zero; a NaN on one side or unequal infinities as not finite; bounds clamp', () => {
+    const h = diffHistogram([1, NaN, NaN, Infinity, 5, 1e-40, 1e30], [1, NaN, 2, -Infinity, 5, 0, 0]);
+    expect(h.zero).toBe(3);
+    expect(h.nonFinite).toBe(2);
+    // 1e-40 is below the lowest edge (1e-30) and 1e30 above the highest (1e10): both kept, in the end bins
+    expect(h.first).toBe(-30 * BINS_PER_DECADE);
+    expect(h.counts[0]).toBe(1);
+    expect(h.counts.at(-1)).toBe(1);
+    expect(h.first + h.counts.length).toBe(10 * BINS_PER_DECADE);
   });
 });
