@@ -5,6 +5,7 @@ import type { AssumedDim, InputOptions } from '../verify/inputs.js';
 import type { CheckStatus, Coverage, SkipInfo } from '../verify/status.js';
 import type { OutputStatus } from '../verify/compare.js';
 import type { QuantRow } from '../fold/quant.js';
+import type { Float16Result } from '../ship/store-float16.js';
 import type { NameOrigins } from './names.js';
 import type { DiffHistogram } from '../verify/metrics.js';
 import type { GateLimit } from '../verify/gate.js';
@@ -72,18 +73,9 @@ export interface CheckSummary {
   outputs: OutputCheck[];
 }
 
-/** Half-precision storage (--store float16). */
-export interface StorageSummary {
+/** Half-precision storage (--store float16): what the storage rewrite reports (src/ship/store-float16.ts). */
+export interface StorageSummary extends Float16Result {
   store: 'float16';
-  tensorsConverted: number;
-  /** Tensors that would overflow float16 and stayed float32. */
-  keptFloat32: string[];
-  /** Other linear-layer weights that stayed float32, each with the reason. */
-  skipped: Array<{ tensor: string; reason: string }>;
-  /** Cast nodes added to read the half-precision weights back as float32 (counted in nodesAfter). */
-  castNodes: number;
-  bytesBefore: number;
-  bytesAfter: number;
 }
 
 export interface FoldReport {

@@ -17,7 +17,7 @@ export interface Float16Result {
   keptFloat32: string[];
   /** Other float32 weights that stayed float32, each with the reason. */
   skipped: Array<{ tensor: string; reason: string }>;
-  /** Cast nodes added (one per converted tensor). */
+  /** Cast nodes added to read the half-precision weights back as float32, one per converted tensor (counted in nodesAfter). */
   castNodes: number;
   bytesBefore: number;
   bytesAfter: number;
