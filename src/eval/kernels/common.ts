@@ -81,6 +81,32 @@ export function stridesOf(dims: readonly number[]): number[] {
   return s;
 }
 
+/**
+ * For GatherElements and ScatterElements: the flat offset in `data` that element i of `indices` addresses (i's own
+ * coordinates, with its `axis` coordinate replaced by indices[i]; negative indices count from the end). An index
+ * out of range is a bad model naming it.
+ */
+export function elementOffsets(dataDims: readonly number[], indices: Value, axis: number, ctx: KernelContext): Float64Array {
+  const rank = dataDims.length;
+  const len = dataDims[axis]!;
+  const ds = stridesOf(dataDims), is = stridesOf(indices.dims);
+  const n = elementCount(indices.dims);
+  const out = new Float64Array(n);
+  for (let i = 0; i < n; i++) {
+    let off = 0, rem = i;
+    for (let d = 0; d < rank; d++) {
+      const c = Math.floor(rem / is[d]!);
+      rem -= c * is[d]!;
+      if (d !== axis) off += c * ds[d]!;
+    }
+    let idx = indices.data[i]!;
+    if (idx < 0) idx += len;
+    if (!(idx >= 0 && idx < len)) throw badModel(ctx, `index ${indices.data[i]} is out of range for axis ${axis} of length ${len}`);
+    out[i] = off + idx * ds[axis]!;
+  }
+  return out;
+}
+
 /** A constant tensor (Constant/ConstantOfShape attributes) as a runtime value. */
 export function tensorValue(t: Tensor, ctx: KernelContext): Value {
   if (t.dataType === DataType.STRING) throw unsupported(ctx, `a ${dataTypeName(t.dataType)} tensor`);

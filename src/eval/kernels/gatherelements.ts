@@ -2,7 +2,7 @@
 // (default 0) from `indices`, which has data's rank; negative indices count from the end.
 import { attrInt } from '../../graph/ir.js';
 import type { Kernel } from '../value.js';
-import { alloc, badModel, elementCount, need, normAxis, stridesOf } from './common.js';
+import { alloc, badModel, elementOffsets, need, normAxis } from './common.js';
 
 export const GatherElements: Kernel = {
   op: 'GatherElements', domain: '', sinceVersion: 11,
@@ -11,22 +11,9 @@ export const GatherElements: Kernel = {
     const rank = data.dims.length;
     if (indices.dims.length !== rank) throw badModel(ctx, `indices have rank ${indices.dims.length}, data rank ${rank}`);
     const axis = normAxis(attrInt(ctx.node, 'axis', 0), rank, ctx);
-    const len = data.dims[axis]!;
-    const ds = stridesOf(data.dims), is = stridesOf(indices.dims);
-    const n = elementCount(indices.dims);
-    const out = alloc(data.type, n, ctx, false);
-    for (let i = 0; i < n; i++) {
-      let off = 0, rem = i;
-      for (let d = 0; d < rank; d++) {
-        const c = Math.floor(rem / is[d]!);
-        rem -= c * is[d]!;
-        if (d !== axis) off += c * ds[d]!;
-      }
-      let idx = indices.data[i]!;
-      if (idx < 0) idx += len;
-      if (!(idx >= 0 && idx < len)) throw badModel(ctx, `index ${indices.data[i]} is out of range for axis ${axis} of length ${len}`);
-      out[i] = data.data[off + idx * ds[axis]!]!;
-    }
+    const at = elementOffsets(data.dims, indices, axis, ctx);
+    const out = alloc(data.type, at.length, ctx, false);
+    for (let i = 0; i < at.length; i++) out[i] = data.data[at[i]!]!;
     return [{ type: data.type, dims: [...indices.dims], data: out }];
   },
 };

@@ -4,7 +4,7 @@
 // Duplicate indices without reduction: the last update wins, as in the ONNX reference implementation.
 import { attrInt, attrString } from '../../graph/ir.js';
 import type { Kernel, KernelContext, Value } from '../value.js';
-import { alloc, badModel, elementCount, need, normAxis, stridesOf, unsupported } from './common.js';
+import { alloc, badModel, elementOffsets, need, normAxis, unsupported } from './common.js';
 
 /** The reduction of the opset's form (none before opset 16; max/min from 18). */
 export function reducer(ctx: KernelContext): ((a: number, b: number) => number) | undefined {
@@ -27,22 +27,11 @@ function scatterElements(inputs: Array<Value | undefined>, ctx: KernelContext): 
   }
   const axis = normAxis(attrInt(ctx.node, 'axis', 0), rank, ctx);
   const reduce = reducer(ctx);
-  const len = data.dims[axis]!;
-  const ds = stridesOf(data.dims), is = stridesOf(indices.dims);
   const out = alloc(data.type, data.data.length, ctx, false);
   out.set(data.data);
-  const n = elementCount(indices.dims);
-  for (let i = 0; i < n; i++) {
-    let off = 0, rem = i;
-    for (let d = 0; d < rank; d++) {
-      const c = Math.floor(rem / is[d]!);
-      rem -= c * is[d]!;
-      if (d !== axis) off += c * ds[d]!;
-    }
-    let idx = indices.data[i]!;
-    if (idx < 0) idx += len;
-    if (!(idx >= 0 && idx < len)) throw badModel(ctx, `index ${indices.data[i]} is out of range for axis ${axis} of length ${len}`);
-    const at = off + idx * ds[axis]!;
+  const offsets = elementOffsets(data.dims, indices, axis, ctx);
+  for (let i = 0; i < offsets.length; i++) {
+    const at = offsets[i]!;
     out[at] = reduce ? reduce(out[at]!, updates.data[i]!) : updates.data[i]!;
   }
   return [{ type: data.type, dims: [...data.dims], data: out }];
