@@ -25,14 +25,16 @@ function checkTensor(t: Tensor, where: string, externalLoaded: boolean): void {
  * the outer names, so a graph with many If/Loop bodies costs time linear in its size.
  */
 function validateGraph(g: Graph, outerHas: (v: string) => boolean, path: string, externalLoaded: boolean): void {
-  // Who writes each value, as (kind, index) by name id: the description is only built for an error.
+  // Who writes each value, as (kind, index) by name id: the description is only built for an error. One name
+  // table serves every check below, the order check included (a second table of the same names cost as much).
+  const nodes = g.nodes;
   let bound = g.inputs.length + g.initializers.length;
-  for (const n of g.nodes) bound += n.outputs.length;
+  for (let j = 0; j < nodes.length; j++) bound += nodes[j]!.outputs.length;
   const names = nameTable(bound);
   const kind = new Uint8Array(bound); // 0 none, 1 graph input, 2 initializer, 3 node
   const index = new Int32Array(bound);
   const describe = (k: number, i: number): string => k === 1 ? `graph input '${g.inputs[i]!.name}'`
-    : k === 2 ? `initializer '${g.initializers[i]!.name}'` : `node '${g.nodes[i]!.name || g.nodes[i]!.opType}'`;
+    : k === 2 ? `initializer '${g.initializers[i]!.name}'` : `node '${nodes[i]!.name || nodes[i]!.opType}'`;
   const own = (v: string, k: number, i: number, quietIfInput = false) => {
     const id = names.add(v);
     if (kind[id] !== 0) {
@@ -47,25 +49,42 @@ function validateGraph(g: Graph, outerHas: (v: string) => boolean, path: string,
     checkTensor(t, path, externalLoaded);
     own(t.name, 2, i, true); // two initializers of one name are refused: runtimes bind different ones
   });
-  g.nodes.forEach((n, j) => {
-    for (const o of n.outputs) if (o) own(o, 3, j);
-    for (const a of n.attributes) {
-      if (a.value.type === 'TENSOR') checkTensor(a.value.t, `${path} node '${n.name || n.opType}'`, externalLoaded);
-    }
-  });
-  const has = (v: string): boolean => names.id(v) >= 0 || outerHas(v);
-  for (const n of g.nodes) {
-    for (const i of n.inputs) {
-      if (i && !has(i)) {
-        throw new PleatError('bad-model', `${path}: node '${n.name || n.opType}' reads '${i}', which no node, input or initializer defines`);
-      }
+  let nested = false;
+  for (let j = 0; j < nodes.length; j++) {
+    const n = nodes[j]!;
+    const outs = n.outputs;
+    for (let k = 0; k < outs.length; k++) if (outs[k]) own(outs[k]!, 3, j);
+    const attrs = n.attributes;
+    for (let k = 0; k < attrs.length; k++) {
+      const v = attrs[k]!.value;
+      if (v.type === 'TENSOR') checkTensor(v.t, `${path} node '${n.name || n.opType}'`, externalLoaded);
+      else if (v.type === 'GRAPH' || v.type === 'GRAPHS') nested = true;
     }
   }
-  topoOrder(g); // throws on a cycle
+  const has = (v: string): boolean => names.id(v) >= 0 || outerHas(v);
+  // Every read value is defined; and when every node reads only values written before it (the common case,
+  // told by the same look-ups) there is no cycle, so the topological sort is needed only otherwise.
+  let inFileOrder = true;
+  for (let j = 0; j < nodes.length; j++) {
+    const n = nodes[j]!;
+    const ins = n.inputs;
+    for (let k = 0; k < ins.length; k++) {
+      const i = ins[k]!;
+      if (!i) continue;
+      const id = names.id(i);
+      if (id < 0) {
+        if (!outerHas(i)) {
+          throw new PleatError('bad-model', `${path}: node '${n.name || n.opType}' reads '${i}', which no node, input or initializer defines`);
+        }
+      } else if (kind[id] === 3 && index[id]! >= j) inFileOrder = false;
+    }
+  }
+  if (!inFileOrder || nested) topoOrder(g); // throws on a cycle (subgraphs' outer reads count as inputs there)
   for (const o of g.outputs) {
     if (!has(o.name)) throw new PleatError('bad-model', `${path}: graph output '${o.name}' is never computed`);
   }
-  for (const n of g.nodes) {
+  if (!nested) return;
+  for (const n of nodes) {
     for (const a of n.attributes) {
       const sgs = a.value.type === 'GRAPH' ? [a.value.g] : a.value.type === 'GRAPHS' ? a.value.graphs : [];
       sgs.forEach((sg, k) => validateGraph(sg, has, `${path}/${n.name || n.opType}.${a.name}${sgs.length > 1 ? `[${k}]` : ''}`, externalLoaded));

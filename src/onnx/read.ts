@@ -7,7 +7,7 @@ import type {
 } from '../graph/ir.js';
 import { PleatError } from '../errors.js';
 import {
-  WT_LEN, WireError, readFloat, readInt, readPackedFixed32, readPackedFixed64, readPackedVarints,
+  NameCache, WT_LEN, WireError, readFloat, readInt, readPackedFixed32, readPackedFixed64, readPackedVarints,
   readPackedVarintsBig, readString, fieldsOf, type WireField,
 } from './wire.js';
 import { loadExternalData } from './external.js';
@@ -18,6 +18,43 @@ type Buf = Uint8Array;
 
 function raw(buf: Buf, f: WireField): RawField {
   return { field: f.no, bytes: buf.subarray(f.start, f.end) };
+}
+
+// Allocation matters here: a 10^5-node graph is some 3 x 10^5 messages, and every object the reader leaves behind
+// is copied by the garbage collector while the rest is read. So lists are made at their final length (a list
+// grown by push from empty keeps room for 17), messages are built in one literal with every field (a field added
+// later moves to a side store), and a message without unknown fields shares one frozen empty `extra`.
+
+/** The `extra` of a message with no unknown fields (shared; code that adds fields replaces the list). */
+const NO_NAMES: readonly string[] = [];
+const NO_EXTRA: RawField[] = Object.freeze([]) as unknown as RawField[];
+
+/** While a model is read, the cache its names are decoded through (see NameCache); undefined otherwise. */
+let interner: NameCache | undefined;
+
+function name(buf: Buf, f: WireField): string {
+  return interner !== undefined && interner.buf === buf ? interner.name(f.vstart, f.vend) : readString(buf, f);
+}
+
+/**
+ * Scratch lists shared by every message, used as stacks: a message pushes above the length it found and takes
+ * its part back out at the exact length, so a message decoded in between (a subgraph in an attribute) leaves
+ * the part below it as it was.
+ */
+const scratchIn: string[] = [];
+const scratchOut: string[] = [];
+const scratchN: number[] = [];
+
+function take<T>(scratch: T[], base: number): T[] {
+  if (scratch.length === base) return [];
+  const out = scratch.slice(base);
+  scratch.length = base;
+  return out;
+}
+
+/** A list at its exact length (a list grown by push keeps spare room). */
+function exact<T>(list: T[] | undefined): T[] {
+  return list === undefined || list.length === 0 ? [] : list.slice();
 }
 
 function expectLen(f: WireField, what: string): void {
@@ -43,10 +80,10 @@ function withOnce(list: string[] | undefined, k: string): string[] {
 
 export function decodeTensor(buf: Buf, start: number, end: number): Tensor {
   const f = fieldsOf(buf, start, end);
-  const dims: number[] = [];
-  let dataType = 0, name = '', docString = '';
-  let storage: TensorStorage = { kind: 'empty' };
-  const extra: RawField[] = [];
+  const dimBase = scratchN.length;
+  let dataType = 0, tname = '', docString = '';
+  let storage: TensorStorage | undefined;
+  let extra: RawField[] | undefined;
   // arrays only for the *_data fields present (most tensors use raw_data and need none)
   let floats: number[] | undefined, int32s: number[] | undefined, doubles: number[] | undefined;
   let int64s: bigint[] | undefined, uint64s: bigint[] | undefined, strings: Uint8Array[] | undefined;
@@ -58,13 +95,13 @@ export function decodeTensor(buf: Buf, start: number, end: number): Tensor {
   let typed: string[] | undefined;
   while (f.next()) {
     switch (f.no) {
-      case 1: readPackedVarints(buf, f, dims); break;
+      case 1: readPackedVarints(buf, f, scratchN); break;
       case 2: dataType = readInt(buf, f); break;
       case 4: readPackedFixed32(buf, f, floats ??= [], true); kind = 'float_data'; typed = withOnce(typed, kind); break;
       case 5: readPackedVarints(buf, f, int32s ??= []); kind = 'int32_data'; typed = withOnce(typed, kind); break;
       case 6: expectLen(f, 'string_data'); (strings ??= []).push(buf.subarray(f.vstart, f.vend)); kind = 'string_data'; typed = withOnce(typed, kind); break;
       case 7: readPackedVarintsBig(buf, f, int64s ??= []); kind = 'int64_data'; typed = withOnce(typed, kind); break;
-      case 8: name = readString(buf, f); break;
+      case 8: tname = name(buf, f); break;
       case 9: expectLen(f, 'raw_data'); storage = { kind: 'raw', bytes: buf.subarray(f.vstart, f.vend) }; kind = 'raw'; break;
       case 10: readPackedFixed64(buf, f, doubles ??= []); kind = 'double_data'; typed = withOnce(typed, kind); break;
       case 11: readPackedVarintsBig(buf, f, uint64s ??= []); kind = 'uint64_data'; typed = withOnce(typed, kind); break;
@@ -80,14 +117,15 @@ export function decodeTensor(buf: Buf, start: number, end: number): Tensor {
         break;
       }
       case 14: location = readInt(buf, f); break;
-      default: extra.push(raw(buf, f));
+      default: (extra ??= []).push(raw(buf, f));
     }
   }
+  const dims = take(scratchN, dimBase);
   // ONNX IR: a tensor's data lives in raw_data or in one typed *_data field, not both; runtimes disagree on
   // which one wins when several are present (onnx/onnx.proto3, TensorProto; the checker refuses it).
-  const held = [...(typed ?? []), ...(storage.kind === 'raw' ? ['raw_data'] : [])];
+  const held = typed === undefined ? NO_NAMES : [...typed, ...(storage?.kind === 'raw' ? ['raw_data'] : [])];
   if (held.length > 1) {
-    throw new PleatError('bad-model', `tensor '${name}' holds its data in both ${held.slice(0, -1).join(', ')} and ${held[held.length - 1]}; a tensor must use exactly one`);
+    throw new PleatError('bad-model', `tensor '${tname}' holds its data in both ${held.slice(0, -1).join(', ')} and ${held[held.length - 1]}; a tensor must use exactly one`);
   }
   if (location === 1) {
     storage = { kind: 'external', entries: external ?? [], bytes: new Uint8Array(0) };
@@ -102,13 +140,13 @@ export function decodeTensor(buf: Buf, start: number, end: number): Tensor {
       default: break;
     }
   }
-  if (dims.some((d) => d < 0 || !Number.isSafeInteger(d))) {
-    throw new PleatError('bad-model', `tensor '${name}' has an invalid dimension in [${dims.join(',')}]`);
+  let badDim = false;
+  for (let i = 0; i < dims.length; i++) if (dims[i]! < 0 || !Number.isSafeInteger(dims[i])) badDim = true;
+  if (badDim) {
+    throw new PleatError('bad-model', `tensor '${tname}' has an invalid dimension in [${dims.join(',')}]`);
   }
-  const t: Tensor = { name, dims, dataType, storage, docString, extra };
-  t.origin = origin(buf, start, end);
   // data_location and external_data entries are modelled through storage
-  return t;
+  return { name: tname, dims, dataType, storage: storage ?? { kind: 'empty' }, docString, extra: extra ?? NO_EXTRA, origin: origin(buf, start, end) };
 }
 
 function decodeDims(buf: Buf, start: number, end: number): Dim[] {
@@ -138,10 +176,10 @@ export function decodeTensorType(buf: Buf, start: number, end: number, into: Pic
 
 export function decodeValueInfo(buf: Buf, start: number, end: number): ValueInfo {
   const f = fieldsOf(buf, start, end);
-  const v: ValueInfo = { name: '', docString: '', extra: [] };
+  const v: ValueInfo = { name: '', docString: '', extra: NO_EXTRA };
   while (f.next()) {
     switch (f.no) {
-      case 1: v.name = readString(buf, f); break;
+      case 1: v.name = name(buf, f); break;
       case 2: {
         expectLen(f, 'value type');
         v.typeBytes = buf.subarray(f.vstart, f.vend);
@@ -149,7 +187,7 @@ export function decodeValueInfo(buf: Buf, start: number, end: number): ValueInfo
         break;
       }
       case 3: v.docString = readString(buf, f); break;
-      default: v.extra.push(raw(buf, f));
+      default: (v.extra === NO_EXTRA ? v.extra = [] : v.extra).push(raw(buf, f));
     }
   }
   v.origin = origin(buf, start, end);
@@ -164,14 +202,14 @@ const NO_BYTES = new Uint8Array(0);
 
 export function decodeAttribute(buf: Buf, start: number, end: number, depth: number, kids?: KidRanges): Attribute {
   const f = fieldsOf(buf, start, end);
-  let name = '', docString = '', refAttrName = '', typeCode = 0;
+  let aname = '', docString = '', refAttrName = '', typeCode = 0;
   let f_ = 0, i_ = 0, s_: Uint8Array = NO_BYTES;
   let t_: Tensor | undefined, g_: Graph | undefined;
   // arrays only for the repeated fields present: most attributes hold one number or one list
   let floats: number[] | undefined, ints: number[] | undefined, strings: Uint8Array[] | undefined;
   let tensors: Tensor[] | undefined, graphs: Graph[] | undefined;
   let seen = 0; // bit i: field i+1 present (fields 2..11 decide the type of IR < 2 attributes)
-  const extra: RawField[] = [];
+  let extra: RawField[] | undefined;
   while (f.next()) {
     if (f.no <= 31) seen |= 1 << (f.no - 1);
     if (kids && f.no >= 5 && f.no <= 11 && f.no !== 7 && f.no !== 8 && f.no !== 9) {
@@ -180,7 +218,7 @@ export function decodeAttribute(buf: Buf, start: number, end: number, depth: num
       continue;
     }
     switch (f.no) {
-      case 1: name = readString(buf, f); break;
+      case 1: aname = name(buf, f); break;
       case 2: f_ = readFloat(buf, f); break;
       case 3: i_ = readInt(buf, f); break;
       case 4: expectLen(f, 'attribute s'); s_ = buf.subarray(f.vstart, f.vend); break;
@@ -194,7 +232,7 @@ export function decodeAttribute(buf: Buf, start: number, end: number, depth: num
       case 13: docString = readString(buf, f); break;
       case 20: typeCode = readInt(buf, f); break;
       case 21: refAttrName = readString(buf, f); break;
-      default: extra.push(raw(buf, f));
+      default: (extra ??= []).push(raw(buf, f));
     }
   }
   // IR < 2 files may omit `type`: infer it from the field present.
@@ -208,44 +246,46 @@ export function decodeAttribute(buf: Buf, start: number, end: number, depth: num
     case 'INT': value = { type: 'INT', i: i_ }; break;
     case 'STRING': value = { type: 'STRING', s: s_ }; break;
     case 'TENSOR':
-      if (!t_ && !kids) throw new PleatError('bad-model', `attribute '${name}' is a TENSOR but holds no tensor`);
+      if (!t_ && !kids) throw new PleatError('bad-model', `attribute '${aname}' is a TENSOR but holds no tensor`);
       value = { type: 'TENSOR', t: t_! }; break;
     case 'GRAPH':
-      if (!g_ && !kids) throw new PleatError('bad-model', `attribute '${name}' is a GRAPH but holds no graph`);
+      if (!g_ && !kids) throw new PleatError('bad-model', `attribute '${aname}' is a GRAPH but holds no graph`);
       value = { type: 'GRAPH', g: g_! }; break;
-    case 'FLOATS': value = { type: 'FLOATS', floats: floats ?? [] }; break;
-    case 'INTS': value = { type: 'INTS', ints: ints ?? [] }; break;
+    case 'FLOATS': value = { type: 'FLOATS', floats: exact(floats) }; break;
+    case 'INTS': value = { type: 'INTS', ints: exact(ints) }; break;
     case 'STRINGS': value = { type: 'STRINGS', strings: strings ?? [] }; break;
     case 'TENSORS': value = { type: 'TENSORS', tensors: tensors ?? [] }; break;
     case 'GRAPHS': value = { type: 'GRAPHS', graphs: graphs ?? [] }; break;
     default: value = { type: 'OTHER', code: typeCode };
   }
-  const a: Attribute = { name, value, docString, refAttrName, extra };
-  a.origin = origin(buf, start, end);
-  return a;
+  return { name: aname, value, docString, refAttrName, extra: extra ?? NO_EXTRA, origin: origin(buf, start, end) };
 }
 
 export function decodeNode(buf: Buf, start: number, end: number, depth: number, kids?: KidRanges): Node {
   const f = fieldsOf(buf, start, end);
-  const n: Node = { name: '', opType: '', domain: '', inputs: [], outputs: [], attributes: [], docString: '', extra: [] };
+  const inBase = scratchIn.length, outBase = scratchOut.length;
+  let attributes: Attribute[] | undefined, extra: RawField[] | undefined;
+  let nname = '', opType = '', domain = '', docString = '';
   while (f.next()) {
     switch (f.no) {
-      case 1: n.inputs.push(readString(buf, f)); break;
-      case 2: n.outputs.push(readString(buf, f)); break;
-      case 3: n.name = readString(buf, f); break;
-      case 4: n.opType = readString(buf, f); break;
+      case 1: scratchIn.push(name(buf, f)); break;
+      case 2: scratchOut.push(name(buf, f)); break;
+      case 3: nname = name(buf, f); break;
+      case 4: opType = name(buf, f); break;
       case 5:
         expectLen(f, 'attribute');
         if (kids) kids.push(5, f.vstart, f.vend);
-        else n.attributes.push(decodeAttribute(buf, f.vstart, f.vend, depth));
+        else (attributes ??= []).push(decodeAttribute(buf, f.vstart, f.vend, depth));
         break;
-      case 6: n.docString = readString(buf, f); break;
-      case 7: n.domain = readString(buf, f); break;
-      default: n.extra.push(raw(buf, f));
+      case 6: docString = readString(buf, f); break;
+      case 7: domain = name(buf, f); break;
+      default: (extra ??= []).push(raw(buf, f));
     }
   }
-  n.origin = origin(buf, start, end);
-  return n;
+  return {
+    name: nname, opType, domain, inputs: take(scratchIn, inBase), outputs: take(scratchOut, outBase), attributes: exact(attributes), docString,
+    extra: extra ?? NO_EXTRA, origin: origin(buf, start, end),
+  };
 }
 
 export function decodeGraph(buf: Buf, start: number, end: number, depth = 0, kids?: KidRanges): Graph {
@@ -339,7 +379,15 @@ export function decodeModelFields(buf: Buf, start: number, end: number, kids?: K
 
 /** Decode model bytes (no external data loaded; see parseModel). */
 export function decodeModel(buf: Buf, baseDir: string): Model {
-  const { graph, ...m } = decodeModelFields(buf, 0, buf.byteLength);
+  scratchIn.length = 0; scratchOut.length = 0; scratchN.length = 0; // a read that threw may have left entries
+  interner = new NameCache(buf);
+  let fields: ModelFields;
+  try {
+    fields = decodeModelFields(buf, 0, buf.byteLength);
+  } finally {
+    interner = undefined;
+  }
+  const { graph, ...m } = fields;
   if (!graph) throw new PleatError('bad-model', 'no graph in the file: this is not an ONNX model');
   const model: Model = { ...m, graph, baseDir };
   markOverridable(graph, model.irVersion);

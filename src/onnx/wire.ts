@@ -161,6 +161,47 @@ export function readString(buf: Uint8Array, f: WireField): string {
   return utf8Slice ? utf8Slice.call(buf, f.vstart, f.vend) : utf8d.decode(buf.subarray(f.vstart, f.vend));
 }
 
+function decodeRange(buf: Uint8Array, start: number, end: number): string {
+  return utf8Slice ? utf8Slice.call(buf, start, end) : utf8d.decode(buf.subarray(start, end));
+}
+
+/** Slots of the name cache: small enough to stay in the processor's cache (a big table missed it on every look-up). */
+const NAME_SLOTS = 8192;
+
+/**
+ * Decodes names while a model is read, giving back the string made last time for the same bytes when it is still
+ * in a small cache. A graph repeats op types and attribute names on every node and spells a value's name again
+ * at the nodes that read it, usually soon after the one that writes it: decoding each occurrence made a new
+ * string, so a 10^5-node graph held far more strings than names (more to allocate and for the garbage collector
+ * to copy). A direct-mapped cache keyed by the bytes catches most repeats at the cost of hashing a few bytes; a
+ * table of every name was slower than decoding (a look-up in a table of 10^5 names misses the processor's cache).
+ */
+export class NameCache {
+  private readonly starts = new Int32Array(NAME_SLOTS);
+  private readonly lens = new Int32Array(NAME_SLOTS); // 0: empty slot (the empty name is never cached)
+  private readonly strings: string[] = new Array<string>(NAME_SLOTS).fill('');
+
+  constructor(readonly buf: Uint8Array) {}
+
+  name(start: number, end: number): string {
+    const len = end - start;
+    if (len === 0) return '';
+    const buf = this.buf;
+    let h = len;
+    for (let i = start; i < end; i++) h = Math.imul(h ^ buf[i]!, 0x01000193);
+    h = (h ^ (h >>> 13)) & (NAME_SLOTS - 1);
+    if (this.lens[h] === len) {
+      const s = this.starts[h]!;
+      let j = 0;
+      while (j < len && buf[s + j] === buf[start + j]) j++;
+      if (j === len) return this.strings[h]!;
+    }
+    const str = decodeRange(buf, start, end);
+    this.starts[h] = start; this.lens[h] = len; this.strings[h] = str;
+    return str;
+  }
+}
+
 export function readInt(buf: Uint8Array, f: WireField): number {
   if (f.wt !== WT_VARINT) throw new WireError(`field ${f.no}: expected a varint`);
   return varintAt(buf, f.vstart, f.vend);
