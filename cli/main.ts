@@ -22,6 +22,11 @@ function expandHelp(args: string[]): string[] {
   return [args[1]!, '--help'];
 }
 
+/** Whether the command line asks for help (only then is the help text shown, so only then is it laid out). */
+function wantsHelp(args: readonly string[]): boolean {
+  return args.length === 0 || args.some((a) => a === '--help' || a === '-h' || a.startsWith('--help='));
+}
+
 /** The command named first, or a usage error naming the word and the nearest command. */
 function commandOf(args: readonly string[]): (typeof COMMANDS)[number] | undefined {
   const first = args[0];
@@ -68,7 +73,9 @@ async function main(): Promise<void> {
       'Missing required argument: %s': { one: 'missing required option --%s', other: 'missing required options --%s' },
       'Unknown argument: %s': { one: 'unexpected argument %s', other: 'unexpected arguments %s' },
     } as never)
-    .wrap(Math.min(110, process.stdout.columns || 110))
+    // Help is laid out to the terminal's width only when it is printed: yargs also renders it (and caches it)
+    // on every run of a command, and wrapping it to a width took tens of milliseconds of each start-up.
+    .wrap(wantsHelp(args) ? Math.min(110, process.stdout.columns || 110) : null)
     .fail((msg, err) => {
       if (err) failAndExit(err);
       const line = msg.startsWith(MISSING_ARGUMENT) && chosen ? `missing argument; usage: pleat ${chosen.usage} [options] (see pleat ${chosen.name} --help)` : msg.split('\n')[0];

@@ -41,14 +41,27 @@ function name(buf: Buf, f: WireField): string {
  * its part back out at the exact length, so a message decoded in between (a subgraph in an attribute) leaves
  * the part below it as it was.
  */
-const scratchIn: string[] = [];
-const scratchOut: string[] = [];
+class Scratch<T> {
+  private items: T[] = [];
+  top = 0;
+  push(v: T): void { this.items[this.top++] = v; }
+  /** The entries above `base`, as a new list of exactly that length; the stack goes back to `base`. */
+  take(base: number): T[] {
+    if (this.top === base) return [];
+    const out = this.items.slice(base, this.top);
+    this.top = base; // entries above stay until overwritten (setting a list's length shrinks it, and then it regrows)
+    return out;
+  }
+}
+const scratchIn = new Scratch<string>();
+const scratchOut = new Scratch<string>();
 const scratchN: number[] = [];
 
-function take<T>(scratch: T[], base: number): T[] {
-  if (scratch.length === base) return [];
-  const out = scratch.slice(base);
-  scratch.length = base;
+/** The numbers pushed on `scratchN` above `base`, at their exact length. */
+function takeNumbers(base: number): number[] {
+  if (scratchN.length === base) return [];
+  const out = scratchN.slice(base);
+  while (scratchN.length > base) scratchN.pop();
   return out;
 }
 
@@ -120,7 +133,7 @@ export function decodeTensor(buf: Buf, start: number, end: number): Tensor {
       default: (extra ??= []).push(raw(buf, f));
     }
   }
-  const dims = take(scratchN, dimBase);
+  const dims = takeNumbers(dimBase);
   // ONNX IR: a tensor's data lives in raw_data or in one typed *_data field, not both; runtimes disagree on
   // which one wins when several are present (onnx/onnx.proto3, TensorProto; the checker refuses it).
   const held = typed === undefined ? NO_NAMES : [...typed, ...(storage?.kind === 'raw' ? ['raw_data'] : [])];
@@ -263,7 +276,7 @@ export function decodeAttribute(buf: Buf, start: number, end: number, depth: num
 
 export function decodeNode(buf: Buf, start: number, end: number, depth: number, kids?: KidRanges): Node {
   const f = fieldsOf(buf, start, end);
-  const inBase = scratchIn.length, outBase = scratchOut.length;
+  const inBase = scratchIn.top, outBase = scratchOut.top;
   let attributes: Attribute[] | undefined, extra: RawField[] | undefined;
   let nname = '', opType = '', domain = '', docString = '';
   while (f.next()) {
@@ -283,7 +296,7 @@ export function decodeNode(buf: Buf, start: number, end: number, depth: number, 
     }
   }
   return {
-    name: nname, opType, domain, inputs: take(scratchIn, inBase), outputs: take(scratchOut, outBase), attributes: exact(attributes), docString,
+    name: nname, opType, domain, inputs: scratchIn.take(inBase), outputs: scratchOut.take(outBase), attributes: exact(attributes), docString,
     extra: extra ?? NO_EXTRA, origin: origin(buf, start, end),
   };
 }
@@ -379,7 +392,7 @@ export function decodeModelFields(buf: Buf, start: number, end: number, kids?: K
 
 /** Decode model bytes (no external data loaded; see parseModel). */
 export function decodeModel(buf: Buf, baseDir: string): Model {
-  scratchIn.length = 0; scratchOut.length = 0; scratchN.length = 0; // a read that threw may have left entries
+  scratchIn.top = 0; scratchOut.top = 0; scratchN.length = 0; // a read that threw may have left entries
   interner = new NameCache(buf);
   let fields: ModelFields;
   try {
