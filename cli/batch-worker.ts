@@ -1,7 +1,7 @@
 // A batch worker thread: receives jobs one at a time and answers with their outcome (see batch.ts).
 import { parentPort } from 'node:worker_threads';
-import { runOne, type Job } from './batch.js';
+import { loadJob, runOne, type Job } from './batch.js';
 
 parentPort?.on('message', (m: { index: number; job: Job }) => {
-  parentPort!.postMessage({ index: m.index, outcome: runOne(m.job) });
+  void loadJob(m.job.command).then(() => parentPort!.postMessage({ index: m.index, outcome: runOne(m.job) }));
 });

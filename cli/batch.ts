@@ -5,8 +5,6 @@
 import { Worker } from 'node:worker_threads';
 import { availableParallelism } from 'node:os';
 import { isPleatError } from '../src/errors.js';
-import { audit } from '../src/index.js';
-import { foldStaged } from '../src/jobs/fold.js';
 import type { StagedFile } from '../src/jobs/outputs.js';
 import type { AuditJobOptions, AuditReport, FoldJobOptions, FoldReport } from '../src/jobs/types.js';
 import { EXIT } from '../src/report/exit-codes.js';
@@ -41,15 +39,28 @@ export function checkBatchNames(jobs: readonly Job[]): Job[] {
   return jobs.map((j) => ({ ...j, opts: { ...j.opts, namesChecked: true } }) as Job);
 }
 
+// The job modules, loaded for the command being run only (audit needs none of fold's proof and check machinery,
+// and loading modules is a good part of a command's start-up).
+let foldJob: typeof import('../src/jobs/fold.js') | undefined;
+let auditJob: typeof import('../src/jobs/audit.js') | undefined;
+
+/** Load the job module of a command; runJob and runOne need it loaded first. */
+export async function loadJob(command: Job['command']): Promise<void> {
+  if (command === 'fold') foldJob ??= await import('../src/jobs/fold.js');
+  else auditJob ??= await import('../src/jobs/audit.js');
+}
+
 /** Run one job here and now; errors are thrown (a single model's error ends the command as usual). */
 export function runJob(job: Job): JobOutcome {
   const started = process.hrtime.bigint();
   if (job.command === 'fold') {
-    const r = foldStaged(job.model, job.output, job.opts);
+    if (!foldJob) throw new Error('runJob: the fold job is not loaded (call loadJob first)');
+    const r = foldJob.foldStaged(job.model, job.output, job.opts);
     if (job.runFigures) r.report.run = runFigures(started);
     return { model: job.model, report: r.report, exitCode: r.report.failed ? EXIT.failed : EXIT.ok, staged: r.staged, inputs: r.inputs };
   }
-  const report = audit(job.model, job.opts);
+  if (!auditJob) throw new Error('runJob: the audit job is not loaded (call loadJob first)');
+  const report = auditJob.auditFile(job.model, job.opts);
   if (job.runFigures) report.run = runFigures(started);
   return { model: job.model, report, exitCode: report.failed ? EXIT.failed : EXIT.ok };
 }
@@ -76,7 +87,9 @@ const crashed = (job: Job, why: string): JobOutcome => ({
 /** Run jobs on `workers` threads (default: one per core); outcomes in the order of `jobs`. */
 export async function runBatch(jobs: readonly Job[], progress: Progress, workers = availableParallelism()): Promise<JobOutcome[]> {
   const results: JobOutcome[] = new Array(jobs.length);
+  if (jobs.length === 0) return results;
   if (jobs.length === 1) {
+    await loadJob(jobs[0]!.command);
     results[0] = runJob(jobs[0]!);
     progress.tick(jobs[0]!.model);
     return results;

@@ -113,6 +113,11 @@ export function surveyModel(model: Model, file: string | null = null, missingDat
   const gaps = evaluatorGaps(model);
   const opCounts = [...counts].map(([op, count]) => ({ op, count }))
     .sort((a, b) => b.count - a.count || (a.op < b.op ? -1 : a.op > b.op ? 1 : 0));
+  // graph inputs that an initializer gives a default: one pass over the initializers against a set of the inputs
+  // (older exports list every weight as a graph input too, and a search per input grew with their product)
+  const inputNames = new Set(model.graph.inputs.map((v) => v.name));
+  const initialized = new Set<string>();
+  for (const t of model.graph.initializers) if (inputNames.has(t.name)) initialized.add(t.name);
   let external = 0;
   eachTensor(model.graph, (t) => { if (t.storage.kind === 'external') external += declaredBytes(t); });
   return {
@@ -122,7 +127,7 @@ export function surveyModel(model: Model, file: string | null = null, missingDat
     irVersion: model.irVersion,
     opsets: model.opsets.map((o) => ({ domain: o.domain || 'ai.onnx', version: o.version })),
     producer: { name: model.producerName, version: model.producerVersion },
-    inputs: model.graph.inputs.filter((v) => !model.graph.initializers.some((t) => t.name === v.name)).map(describeValue),
+    inputs: model.graph.inputs.filter((v) => !initialized.has(v.name)).map(describeValue),
     outputs: model.graph.outputs.map(describeValue),
     nodeCount,
     subgraphCount,

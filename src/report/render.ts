@@ -4,7 +4,8 @@
 import type { AuditReport, FoldReport } from '../jobs/types.js';
 import { SCHEMA_VERSION } from '../jobs/types.js';
 import type { CompareReport } from '../verify/compare.js';
-import { toJsonText } from '../verify/compare.js';
+// here, not from verify/compare.ts: importing that loads the evaluator, which audit and survey never run
+import { toJsonText } from './json.js';
 import { auditText } from './audit-text.js';
 import { compareText } from './compare-text.js';
 import { CAUTION, type Format } from './format.js';
