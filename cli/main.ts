@@ -55,6 +55,14 @@ async function main(): Promise<void> {
       cli.command(c.usage, c.describe);
     }
   }
+  // yargs lays out the whole help text on every run of a command, to have it ready should the command fail; a
+  // failing pleat command prints one line, never the help, so that work (tens of milliseconds) is skipped. The
+  // hook is yargs' internal interface: when it is not there, the help is merely laid out as before.
+  if (!wantsHelp(args)) {
+    const usage = (cli as unknown as { getInternalMethods?(): { getUsageInstance?(): { cacheHelpMessage?: () => void } } })
+      .getInternalMethods?.().getUsageInstance?.();
+    if (usage?.cacheHelpMessage) usage.cacheHelpMessage = () => {};
+  }
   await cli
     .middleware(((_argv: unknown, y: { getOptions(): OptionTable }) => {
       if (chosen) checkFlags(args.slice(1), y.getOptions());
