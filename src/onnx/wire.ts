@@ -322,6 +322,23 @@ export class Emitter {
 
   tag(no: number, wt: number): void { this.varint(no * 8 + wt); }
 
+  /**
+   * A length-prefixed string of at most 128 characters written straight into the scratch buffer when every
+   * character is ASCII (its UTF-8 bytes are its character codes); false, with nothing written, otherwise.
+   */
+  ascii(s: string): boolean {
+    const n = s.length;
+    for (let i = 0; i < n; i++) if (s.charCodeAt(i) >= 0x80) return false;
+    this.varint(n);
+    this.room(n);
+    const sc = this.scratch;
+    let u = this.used;
+    for (let i = 0; i < n; i++) sc[u++] = s.charCodeAt(i);
+    this.used = u;
+    this.length += n;
+    return true;
+  }
+
   fixed32f(v: number): void {
     this.room(4);
     new DataView(this.scratch.buffer).setFloat32(this.used, v, true);
@@ -349,8 +366,10 @@ export class Emitter {
 const utf8e = new TextEncoder();
 
 export function emitString(e: Emitter, no: number, s: string): void {
+  e.tag(no, WT_LEN);
+  if (s.length <= 128 && e.ascii(s)) return; // names: written in place, no encoded copy made first
   const b = utf8e.encode(s);
-  e.tag(no, WT_LEN); e.varint(b.byteLength); e.bytes(b);
+  e.varint(b.byteLength); e.bytes(b);
 }
 
 export function emitBytes(e: Emitter, no: number, b: Uint8Array): void {

@@ -84,27 +84,33 @@ export function sideFileName(outName: string): string {
   return `${outName}.data`;
 }
 
-/** Emit modelled fields and untouched extra fields, following the original field order where there is one. */
+/**
+ * Emit modelled fields and untouched extra fields, following the original field order where there is one.
+ * Runs once per changed message (tens of thousands in a large fold), so it keeps to small arrays and a bit set.
+ */
 function assemble(e: Emitter, order: number[] | undefined, extra: RawField[], modelled: Array<[number, (e: Emitter) => void]>): void {
-  const done = new Set<number>();
-  const emitters = new Map(modelled);
-  const extraQueue = new Map<number, RawField[]>();
-  for (const r of extra) {
-    const q = extraQueue.get(r.field) ?? [];
-    q.push(r);
-    extraQueue.set(r.field, q);
-  }
-  for (const no of order ?? []) {
-    const fn = emitters.get(no);
-    if (fn) {
-      if (!done.has(no)) { fn(e); done.add(no); }
-    } else {
-      const r = extraQueue.get(no)?.shift();
-      if (r) e.bytes(r.bytes);
+  let done = 0; // bit i: modelled[i] emitted (a message models fewer than 31 fields)
+  const used = extra.length ? new Array<boolean>(extra.length).fill(false) : undefined;
+  if (order) {
+    for (const no of order) {
+      let i = 0;
+      while (i < modelled.length && modelled[i]![0] !== no) i++;
+      if (i < modelled.length) {
+        if (!(done & (1 << i))) { modelled[i]![1](e); done |= 1 << i; }
+      } else if (used) {
+        // the next unused extra field of this number, in the order they were kept
+        for (let k = 0; k < extra.length; k++) {
+          if (!used[k] && extra[k]!.field === no) { used[k] = true; e.bytes(extra[k]!.bytes); break; }
+        }
+      }
     }
   }
-  for (const [no, fn] of modelled) if (!done.has(no)) fn(e);
-  for (const q of extraQueue.values()) for (const r of q) e.bytes(r.bytes);
+  for (let i = 0; i < modelled.length; i++) if (!(done & (1 << i))) modelled[i]![1](e);
+  if (!used) return;
+  // extra fields left over, grouped by field number in order of first appearance (as they were queued)
+  const seen: number[] = [];
+  for (const r of extra) if (!seen.includes(r.field)) seen.push(r.field);
+  for (const no of seen) for (let k = 0; k < extra.length; k++) if (!used[k] && extra[k]!.field === no) e.bytes(extra[k]!.bytes);
 }
 
 function piece(e: Emitter): Piece {
