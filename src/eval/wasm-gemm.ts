@@ -7,6 +7,12 @@
 //   f64: 4 x 4 tile, f64x2 lanes (float64 arithmetic, the ground-truth mode)
 // Returns undefined when the runtime has no WebAssembly SIMD; gemm.ts then uses its scalar path.
 
+import {
+  BR_IF, END, F32X4_ADD, F32X4_MUL, F64X2_ADD, F64X2_MUL, I32_ADD, I32_CONST, I32_LOAD, I32_LT_U, I32_MUL, I32_SUB,
+  LOAD32_SPLAT, LOAD64_SPLAT, LOCAL_GET, LOCAL_SET, LOOP, section, simd, sleb, uleb, V128_CONST, V128_LOAD, V128_STORE, vec, VOID,
+  WASM_HEADER, wasmName,
+} from '../wasm.js';
+
 export interface SimdKernels {
   memory: WebAssembly.Memory;
   /**
@@ -22,37 +28,6 @@ export interface SimdKernels {
   k32: (pa: number, pb: number, pc: number, mTiles: number, nTiles: number, kc: number, ldcBytes: number, ldbBytes: number) => void;
   k64: (pa: number, pb: number, pc: number, mTiles: number, nTiles: number, kc: number, ldcBytes: number, ldbBytes: number) => void;
 }
-
-function uleb(n: number): number[] {
-  const out: number[] = [];
-  do {
-    let b = n & 0x7f;
-    n >>>= 7;
-    if (n !== 0) b |= 0x80;
-    out.push(b);
-  } while (n !== 0);
-  return out;
-}
-
-function sleb(n: number): number[] {
-  const out: number[] = [];
-  for (;;) {
-    const b = n & 0x7f;
-    n >>= 7;
-    if ((n === 0 && (b & 0x40) === 0) || (n === -1 && (b & 0x40) !== 0)) { out.push(b); return out; }
-    out.push(b | 0x80);
-  }
-}
-
-const vec = (items: number[][]): number[] => [...uleb(items.length), ...items.flat()];
-const section = (id: number, body: number[]): number[] => [id, ...uleb(body.length), ...body];
-
-// opcodes
-const LOCAL_GET = 0x20, LOCAL_SET = 0x21, I32_CONST = 0x41, I32_ADD = 0x6a, I32_SUB = 0x6b, I32_MUL = 0x6c;
-const I32_LT_U = 0x49, I32_LOAD = 0x28, LOOP = 0x03, END = 0x0b, BR_IF = 0x0d, VOID = 0x40;
-const simd = (op: number): number[] => [0xfd, ...uleb(op)];
-const V128_LOAD = 0x00, V128_STORE = 0x0b, V128_CONST = 0x0c, LOAD32_SPLAT = 0x09, LOAD64_SPLAT = 0x0a;
-const F32X4_ADD = 0xe4, F32X4_MUL = 0xe6, F64X2_ADD = 0xf0, F64X2_MUL = 0xf2;
 
 // params: pa 0, pb 1, pc 2, mTiles 3, nTiles 4, kc 5, ldc 6, ldb 7; locals: jt 8, it 9, k 10, ap 11, bp 12,
 // cp 13, acc0..acc7 14..21, b0 22, b1 23, a 24
@@ -148,7 +123,7 @@ export function moduleBytes(): Uint8Array<ArrayBuffer> {
     [0x60, ...vec(new Array(8).fill([i32])), ...vec([])],
     [0x60, ...vec(new Array(10).fill([i32])), ...vec([])],
   ]));
-  const name = (s: string) => vec([...s].map((ch) => [ch.charCodeAt(0)]));
+  const name = wasmName;
   // the memory is imported, shared (limits flag 3: shared, with a maximum), so every worker thread's instance
   // runs its kernels on the operands the calling thread laid out, with no copy
   const imports = section(2, vec([[...name('e'), ...name('m'), 0x02, 0x03, ...uleb(1), ...uleb(MAX_PAGES)]]));
@@ -157,7 +132,7 @@ export function moduleBytes(): Uint8Array<ArrayBuffer> {
     [...name('k32'), 0x00, 0], [...name('k64'), 0x00, 1], [...name('d32'), 0x00, 2], [...name('d64'), 0x00, 3],
   ]));
   const code = section(10, vec([kernelBody(false), kernelBody(true), depthwiseBody(false), depthwiseBody(true)]));
-  return new Uint8Array([0x00, 0x61, 0x73, 0x6d, 0x01, 0x00, 0x00, 0x00, ...types, ...imports, ...funcs, ...exports, ...code]);
+  return new Uint8Array([...WASM_HEADER, ...types, ...imports, ...funcs, ...exports, ...code]);
 }
 
 let compiled: WebAssembly.Module | null | undefined;
