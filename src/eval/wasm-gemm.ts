@@ -1,8 +1,8 @@
 // SIMD micro-kernels for the blocked GEMM, as a tiny WebAssembly module assembled here byte by byte (no
 // toolchain, no binary blob: the instruction list below is the source). Packed panels live in the module's
-// memory; each kernel multiplies an A block (tiles of 4 rows, k-major) by a row-major B panel (ldb bytes per
-// row, read 32 bytes of columns at a time) into a row-major C block, accumulating in registers over the whole
-// k range:
+// memory; each kernel multiplies an A block (tiles of 4 rows, k-major) by a B panel packed in tiles of 32 bytes
+// of columns, k-major (ldb bytes from one column tile to the next, so both operands are read in order, a cache
+// line after another), into a row-major C block, accumulating in registers over the whole k range:
 //   f32: 4 x 8 tile, f32x4 lanes (float32 arithmetic, the deployment mode)
 //   f64: 4 x 4 tile, f64x2 lanes (float64 arithmetic, the ground-truth mode)
 // Returns undefined when the runtime has no WebAssembly SIMD; gemm.ts then uses its scalar path.
@@ -47,9 +47,9 @@ function kernelBody(f64: boolean): number[] {
   emit([LOOP, VOID]); // j tiles
   emit(c(0), set(IT));
   emit([LOOP, VOID]); // i tiles
-  // ap = pa + it * kc * aTileBytes ; bp = pb + jt * 32
+  // ap = pa + it * kc * aTileBytes ; bp = pb + jt * ldb (B is packed in column tiles of 32 bytes, k-major)
   emit(get(PA), get(IT), get(KC), [I32_MUL], c(aTileBytes), [I32_MUL], [I32_ADD], set(AP));
-  emit(get(PB), get(JT), c(32), [I32_MUL], [I32_ADD], set(BP));
+  emit(get(PB), get(JT), get(LDB), [I32_MUL], [I32_ADD], set(BP));
   for (let r = 0; r < 8; r++) emit(simd(V128_CONST), new Array(16).fill(0), set(ACC + r));
   emit(get(KC), set(K));
   emit([LOOP, VOID]); // k
@@ -61,7 +61,7 @@ function kernelBody(f64: boolean): number[] {
     emit(get(ACC + 2 * r + 1), get(A), get(B1), mul, add, set(ACC + 2 * r + 1));
   }
   emit(get(AP), c(aTileBytes), [I32_ADD], set(AP));
-  emit(get(BP), get(LDB), [I32_ADD], set(BP));
+  emit(get(BP), c(32), [I32_ADD], set(BP));
   emit(get(K), c(1), [I32_SUB], [0x22, K]); // local.tee k
   emit([BR_IF, 0], [END]);
   // cp = pc + it*4*ldc + jt*32
@@ -181,5 +181,14 @@ export function runTiles(k: SimdKernels, s: TileSpan): void {
   for (let t = s.t0; t < s.t1; t += s.chunk) {
     const n = Math.min(s.chunk, s.t1 - t);
     kern(s.pa + t * 4 * s.K * es, s.pb, s.pc + t * 4 * s.ldcBytes, n, s.nTiles, s.K, s.ldcBytes, s.ldbBytes);
+  }
+}
+
+/** Take chunks of a span's tiles from a shared counter until none is left, running each (see threads.ts). */
+export function runChunks(k: SimdKernels, s: TileSpan, counter: Int32Array): void {
+  for (;;) {
+    const t = s.t0 + Atomics.add(counter, 0, 1) * s.chunk;
+    if (t >= s.t1) return;
+    runTiles(k, { ...s, t0: t, t1: Math.min(s.t1, t + s.chunk) });
   }
 }
