@@ -22,7 +22,7 @@ import type { Int8Granularity } from '../fold/int8.js';
 import { checkJobNames } from './names.js';
 import { checkOpset } from '../graph/opsets.js';
 import { compare, type ProbeRecord } from '../verify/compare.js';
-import { checkProbeDir, saveProbeSets } from '../verify/probe-files.js';
+import { saveProbeSets } from '../verify/probe-files.js';
 import type { RewrittenNode } from '../fold/types.js';
 import { provenanceOf, setProvenance, sha256File } from './provenance.js';
 import {
@@ -313,10 +313,11 @@ function foldStagedIn(tx: OutputSet, input: string, output: string, opts: FoldJo
 }
 
 function foldStagedOnce(tx: OutputSet, input: string, output: string, opts: FoldJobOptions, lateRangeCheck: boolean): Omit<StagedFold, 'staged'> {
-  if (opts.saveProbes !== undefined) checkProbeDir(opts.saveProbes);
   const model = readModelFile(input);
   const inputs = [model.sourcePath!, ...sideFilePaths(model)];
   inputs.forEach((p, i) => tx.protect(p, i === 0 ? 'input model' : `input model's side file`));
+  // the probe folder is an output like the model: claimed first, written at a temporary name, renamed in with it
+  if (opts.saveProbes !== undefined) tx.reserveFolder(opts.saveProbes, '--save-probes');
   // Decide every destination before any work: the model, and its side file if one may be written.
   const dest = tx.reserve(output, 'output');
   const side = join(dirname(dest), sideFileName(basename(dest)));
@@ -357,7 +358,11 @@ function foldStagedOnce(tx: OutputSet, input: string, output: string, opts: Fold
       stage(shippedModel, report.check.status);
     }
     report.output = output;
-    if (opts.saveProbes !== undefined && original) report.probesSaved = { dir: opts.saveProbes, sets: saveProbeSets(opts.saveProbes, original.graph, records) };
+    if (opts.saveProbes !== undefined && original) {
+      let sets = 0;
+      tx.stageFolder(opts.saveProbes, (tmp) => { sets = saveProbeSets(tmp, original.graph, records); });
+      report.probesSaved = { dir: opts.saveProbes, sets };
+    }
   }
   return { report, inputs };
 }
