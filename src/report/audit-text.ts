@@ -2,7 +2,7 @@
 // --fail-on verdict. No caution lines: they are about agreement on probe inputs, and audit runs no probes.
 import type { AuditReport } from '../jobs/types.js';
 import { alsoLines, cloneClause, ledgerLines } from './ledger-text.js';
-import { plural } from './format.js';
+import { append, plural } from './format.js';
 import { paint } from './paint.js';
 
 export function auditText(r: AuditReport, colour = false): string {
@@ -10,7 +10,7 @@ export function auditText(r: AuditReport, colour = false): string {
   const lines = [p.bold(`audit ${r.model}`)];
   const norms = r.normalizations.filter((e) => e.kind !== 'affine-step');
   if (norms.length === 0) lines.push('  no normalizations found');
-  lines.push(...ledgerLines(norms, p), ...alsoLines(r.normalizations, 'also foldable', p));
+  append(lines, ledgerLines(norms, p), alsoLines(r.normalizations, 'also foldable', p));
   const also = r.alsoFoldable ? ` (and ${plural(r.alsoFoldable, 'affine step')} also foldable)` : '';
   lines.push(`  ${r.foldable} foldable, ${r.kept} kept${also}${cloneClause(r.normalizations)}`);
   if (r.failOn === 'kept') lines.push(r.failed ? p.bad(`--fail-on kept: FAILED (${r.kept} kept)`) : p.good('--fail-on kept: passed'));

@@ -8,6 +8,21 @@ export function bytesText(n: number): string {
   return `${v >= 100 ? v.toFixed(0) : v >= 10 ? v.toFixed(1) : v.toFixed(2)} ${units[u]}`;
 }
 
+/**
+ * The greatest length among texts (0 for none). A loop: spreading one value per ledger entry into Math.max
+ * overflows the call stack at some 10^5 entries, and large graphs reach that.
+ */
+export function widest<T>(items: readonly T[], text: (x: T) => string): number {
+  let w = 0;
+  for (const x of items) w = Math.max(w, text(x).length);
+  return w;
+}
+
+/** Append groups of lines in place (push(...lines) overflows the call stack at some 10^5 lines). */
+export function append(lines: string[], ...groups: ReadonlyArray<readonly string[]>): void {
+  for (const g of groups) for (const l of g) lines.push(l);
+}
+
 export function dimsText(dims: Array<number | string | null> | null): string {
   if (dims === null) return 'rank unknown';
   return `[${dims.map((d) => (d === null ? '?' : String(d))).join(' x ')}]`;

@@ -3,15 +3,15 @@
 // caution lines. Our own layout; nothing here compares operator counts side by side.
 import type { FoldReport, CheckSummary, QuantRow, StorageSummary, EqualizedPair, Int8Simulation } from '../jobs/types.js';
 import type { LedgerEntry, ProofFigures } from '../fold/types.js';
-import { bytesText, CAUTION, cosineText, dbText, numText, plural, ratioText } from './format.js';
+import { append, bytesText, CAUTION, cosineText, dbText, numText, plural, ratioText, widest } from './format.js';
 import { paint, type Paint } from './paint.js';
 
 const where = (graph: string) => (graph === 'main' ? '' : `  in ${graph}`);
 
 /** One ledger line per entry, columns padded to the widest node and op of this report. */
 export function ledgerLines(entries: ReadonlyArray<Pick<LedgerEntry, 'node' | 'op' | 'direction' | 'target' | 'reason' | 'hint' | 'effect' | 'graph'> & { status: string; proof?: ProofFigures }>, p: Paint): string[] {
-  const nodeW = Math.max(0, ...entries.map((e) => e.node.length));
-  const opW = Math.max(0, ...entries.map((e) => e.op.length));
+  const nodeW = widest(entries, (e) => e.node);
+  const opW = widest(entries, (e) => e.op);
   return entries.map((e) => {
     const head = `${e.node.padEnd(nodeW)}  ${e.op.padEnd(opW)}`;
     if (e.status === 'kept') {
@@ -76,8 +76,8 @@ export function quantLines(rows: readonly QuantRow[], thresholdDb: number, p: Pa
     'quantization readiness (symmetric 8-bit weights, before -> after the fold; spread = widest / median channel range;',
     `  sqnr in dB per tensor, per channel, and the worst channel under one per-tensor scale; flagged below ${dbText(thresholdDb)} dB)`,
   ];
-  const w = Math.max(0, ...rows.map((r) => r.target.length));
-  const cw = Math.max(0, ...rows.map((r) => plural(r.channels, 'channel').length));
+  const w = widest(rows, (r) => r.target);
+  const cw = widest(rows, (r) => plural(r.channels, 'channel'));
   for (const r of rows) {
     const flag = r.flagged ? `  ${p.warn('flagged')}: per-tensor 8-bit weights starve its narrow channels; use per-channel scales or --equalize` : '';
     const b = r.sqnrBefore, a = r.sqnrAfter;
@@ -90,7 +90,7 @@ export function quantLines(rows: readonly QuantRow[], thresholdDb: number, p: Pa
 export function equalizeLines(pairs: readonly EqualizedPair[], p: Paint): string[] {
   if (pairs.length === 0) return [];
   const lines = ['equalized pairs (cross-layer equalization; sqnr of the worst channel under one per-tensor 8-bit scale, dB, before -> after)'];
-  const w = Math.max(0, ...pairs.map((e) => `${e.first} -> ${e.second}`.length));
+  const w = widest(pairs, (e) => `${e.first} -> ${e.second}`);
   for (const e of pairs) {
     const pair = `${e.first} -> ${e.second}`.padEnd(w);
     const via = e.through.length ? `  through ${e.through.join(', ')}` : '';
@@ -153,7 +153,7 @@ export function foldText(r: FoldReport, colour = false, caution = true): string 
   const dest = r.output ?? (r.failed ? p.bad(`nothing written (${why})`) : 'nothing written');
   const lines = [p.bold(`fold ${r.model} -> ${dest}`)];
   if (norms.length === 0) lines.push('  no normalizations found');
-  lines.push(...ledgerLines(norms, p), ...alsoLines(r.normalizations, 'also folded', p));
+  append(lines, ledgerLines(norms, p), alsoLines(r.normalizations, 'also folded', p));
   const nodesRemoved = r.nodesBefore - r.nodesAfter;
   const bytesRemoved = r.bytesBefore - r.bytesAfter;
   const alsoText = also ? ` (and ${plural(also, 'affine step')} also folded)` : '';
@@ -161,7 +161,7 @@ export function foldText(r: FoldReport, colour = false, caution = true): string 
   const nodes = nodesRemoved >= 0 ? `${plural(nodesRemoved, 'node')} removed` : `${plural(-nodesRemoved, 'node')} added`;
   const weights = bytesRemoved >= 0 ? `${bytesText(bytesRemoved)} of weights saved` : `weights grew by ${bytesText(-bytesRemoved)}`;
   lines.push(`  ${folded} folded, ${kept} kept${alsoText}; ${nodes} (${r.nodesBefore} -> ${r.nodesAfter}); ${weights} (${bytesText(r.bytesBefore)} -> ${bytesText(r.bytesAfter)})${cloneClause(r.normalizations)}`);
-  lines.push(...checkLines(r.check, p), ...quantLines(r.quantization, r.quantThresholdDb, p), ...equalizeLines(r.equalized, p), ...int8Lines(r.int8), ...storageLines(r.storage));
+  append(lines, checkLines(r.check, p), quantLines(r.quantization, r.quantThresholdDb, p), equalizeLines(r.equalized, p), int8Lines(r.int8), storageLines(r.storage));
   if (r.probesSaved) lines.push(`probes saved: ${plural(r.probesSaved.sets, 'set')} in ${r.probesSaved.dir} (ONNX backend test-data layout; float32-arithmetic outputs in ${r.probesSaved.dir}/float32)`);
   if (caution) lines.push(...CAUTION);
   return lines.join('\n') + '\n';

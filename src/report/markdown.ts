@@ -4,7 +4,7 @@
 import type { AuditReport, FoldReport } from '../jobs/types.js';
 import type { CompareReport } from '../verify/compare.js';
 import type { ProofFigures } from '../fold/types.js';
-import { bytesText, CAUTION, cosineText, dbText, numText, ratioText } from './format.js';
+import { append, bytesText, CAUTION, cosineText, dbText, numText, ratioText } from './format.js';
 
 /** Text safe inside a table cell: pipes escaped, HTML-looking text neutralised, line breaks flattened. */
 export function cell(s: string): string {
@@ -63,7 +63,7 @@ export function foldMarkdown(r: FoldReport): string {
     for (const o of c.outputs) if (o.observable === false) notes.push(`Output ${code(o.name)}: not observable, bit-identical on every probe although a rewritten node upstream ran.`);
     if (notes.length) out.push(...notes, '');
   }
-  out.push(...table(r.normalizations), ...alsoLine(r.normalizations, 'folded'));
+  append(out, table(r.normalizations), alsoLine(r.normalizations, 'folded'));
   const flagged = r.quantization.filter((q) => q.flagged);
   if (flagged.length) {
     out.push('', `Quantization readiness: ${flagged.length} layer(s) flagged for per-tensor 8-bit weights ` +
@@ -87,7 +87,7 @@ export function foldMarkdown(r: FoldReport): string {
 export function auditMarkdown(r: AuditReport): string {
   const verdict = r.failed ? 'failed (--fail-on kept)' : 'done';
   const out = [`### pleat audit ${code(r.model)}: ${verdict}`, '', `**${r.foldable} foldable, ${r.kept} kept.**`, ''];
-  out.push(...table(r.normalizations), ...alsoLine(r.normalizations, 'foldable')); // no probe caution: audit runs no probes
+  append(out, table(r.normalizations), alsoLine(r.normalizations, 'foldable')); // no probe caution: audit runs no probes
   return out.join('\n') + '\n';
 }
 

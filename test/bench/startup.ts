@@ -24,4 +24,10 @@ export function run(on: (k: string) => boolean, rows: string[][]): void {
   const bare = wall(['-e', '0']);
   const help = wall([cli, '--help']);
   rows.push(['pleat --help (command line, wall)', `${help.toFixed(3)} s`, `${(help / bare).toFixed(2)}x bare node start (${bare.toFixed(3)} s)`, '<= 0.3 s', '', '']);
+  // a command on a small model is start-up and module loading almost entirely (the modules its command needs)
+  const small = join(dirname(fileURLToPath(import.meta.url)), '..', '..', '..', 'models', 'pump-vibration.onnx');
+  for (const cmd of ['survey', 'audit']) {
+    const t = wall([cli, cmd, small]);
+    rows.push([`pleat ${cmd} of a small demo model (command line, wall)`, `${t.toFixed(3)} s`, `${(t / bare).toFixed(2)}x bare node start`, '<= 0.3 s', '', '']);
+  }
 }
