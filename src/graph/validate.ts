@@ -2,10 +2,11 @@
 // matches its dims and type. Errors name the graph, node and value.
 import { PleatError } from '../errors.js';
 import type { Graph, Model, Tensor } from './ir.js';
-import { elementCount } from './ir.js';
+import { elementCount, hasSubgraphs, subgraphsOf } from './ir.js';
 import { isKnownDataType, storedElementCount, dataTypeName } from './tensor.js';
 import { topoOrder } from './topo.js';
 import { nameTable } from './names.js';
+import { outerRefs } from './usedef.js';
 
 function checkTensor(t: Tensor, where: string, externalLoaded: boolean): void {
   if (!isKnownDataType(t.dataType)) {
@@ -78,8 +79,17 @@ function validateGraph(g: Graph, outerHas: (v: string) => boolean, path: string,
         }
       } else if (kind[id] === 3 && index[id]! >= j) inFileOrder = false;
     }
+    // a subgraph's reads of this graph's values are the node's needs too (topoOrder counts them the same way)
+    if (inFileOrder && nested && hasSubgraphs(n)) {
+      for (const sg of subgraphsOf(n)) {
+        for (const v of outerRefs(sg)) {
+          const id = names.id(v);
+          if (id >= 0 && kind[id] === 3 && index[id]! >= j) inFileOrder = false;
+        }
+      }
+    }
   }
-  if (!inFileOrder || nested) topoOrder(g); // throws on a cycle (subgraphs' outer reads count as inputs there)
+  if (!inFileOrder) topoOrder(g); // throws on a cycle
   for (const o of g.outputs) {
     if (!has(o.name)) throw new PleatError('bad-model', `${path}: graph output '${o.name}' is never computed`);
   }
