@@ -199,7 +199,9 @@ let views: { buffer: ArrayBufferLike; f32: Float32Array; f64: Float64Array } | u
 
 // Which A the kernel memory holds packed at offset 0, so the next product with the same constant operand (a
 // weight, for the next probe of a lockstep side) skips packing. Anything else that writes there clears it.
-let packedNow: { data: WeakRef<NumArray>; key: string } | undefined;
+// (A plain reference: a WeakRef's target stays alive until the current job ends, and a whole fold is one job,
+// so every weight ever referenced would be kept. This keeps one weight alive at most.)
+let packedNow: { data: NumArray; key: string } | undefined;
 
 function viewsOf(simd: SimdKernels, bytes: number): { f32: Float32Array; f64: Float64Array } {
   const mem = simd.memory;
@@ -212,7 +214,7 @@ function viewsOf(simd: SimdKernels, bytes: number): { f32: Float32Array; f64: Fl
 
 /** Forget the packed copy of `data` (its array now holds other values). */
 export function forgetPacked(data: NumArray): void {
-  if (packedNow?.data.deref() === data) packedNow = undefined;
+  if (packedNow?.data === data) packedNow = undefined;
 }
 
 /** Views of the SIMD module's memory with at least `bytes` bytes (each call lays out its data from offset 0). */
@@ -298,9 +300,9 @@ function gemmSimd(simd: SimdKernels, M: number, N: number, K: number, A: Operand
     const pbE = pb / es, pcE = pc / es;
     // the whole of a constant A packed by the last product is still there
     const key = rows === M && isConstant(A.data) ? `${A.off},${A.rs},${A.cs},${M},${K},${es}` : undefined;
-    if (key === undefined || packedNow?.key !== key || packedNow.data.deref() !== A.data) {
+    if (key === undefined || packedNow?.key !== key || packedNow.data !== A.data) {
       copyARows(mem, A, r0, rows, K);
-      packedNow = key === undefined ? undefined : { data: new WeakRef(A.data), key };
+      packedNow = key === undefined ? undefined : { data: A.data, key };
     }
     for (let j0 = 0; j0 < N; j0 += SNC) {
       const nc = Math.min(SNC, N - j0), nTiles = Math.ceil(nc / nr), ldcE = nTiles * nr;
