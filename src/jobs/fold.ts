@@ -24,7 +24,7 @@ import { checkOpset } from '../graph/opsets.js';
 import { compare, type ProbeRecord } from '../verify/compare.js';
 import { saveProbeSets } from '../verify/probe-files.js';
 import type { RewrittenNode } from '../fold/types.js';
-import { provenanceOf, setProvenance, sha256File } from './provenance.js';
+import { provenanceOf, setProvenance } from './provenance.js';
 import {
   SCHEMA_VERSION, type CheckSummary, type Coverage, type FoldJobOptions, type FoldReport, type Int8Output, type Int8Simulation, type StorageSummary,
 } from './types.js';
@@ -83,7 +83,7 @@ function checkGate(opts: FoldJobOptions & { halfGate?: boolean }): string | unde
   return opts.gate ?? (opts.halfGate ? DEFAULT_GATES.float16 : undefined);
 }
 import { sketches } from '../fold/sketch.js';
-import { fileSha256 } from './sha256.js';
+import { sha256Later } from './sha256.js';
 
 /**
  * The arithmetic of fold's whole-model check: float64, so the default gates judge the fold's own error (the
@@ -326,10 +326,10 @@ function foldStagedOnce(tx: OutputSet, input: string, output: string, opts: Fold
   // A second, untouched copy is the reference for the whole-model check and the quantization report.
   const original = opts.noProofs ? undefined : readModelFile(input);
   const gate = checkGate({ ...opts, halfGate: opts.store === 'float16' });
-  const sha256 = sha256File(input);
+  const sha256 = sha256Later(input); // worked out beside the fold for a large file; needed when the model is staged
   let staged: StagedModel | undefined;
   const stage = (m: Model, status: string) => {
-    setProvenance(m, provenanceOf(sha256, gate, opts, status));
+    setProvenance(m, provenanceOf(sha256(), gate, opts, status));
     staged = stageModelFile(m, dest, { externalThreshold: opts.externalThreshold }, (d) => tx.tempFor(d));
     tx.add(staged.files);
   };
@@ -347,7 +347,7 @@ function foldStagedOnce(tx: OutputSet, input: string, output: string, opts: Fold
   const records: ProbeRecord[] = [];
   const report = foldLoaded(model, original, input, opts, lateRangeCheck, ship, opts.saveProbes !== undefined ? (p) => records.push(p) : undefined);
   if (opts.pageDetail) {
-    report.sha256 = fileSha256(input);
+    report.sha256 = sha256();
     report.sketches = sketches(original ?? readModelFile(input), report.normalizations, model);
   }
   if (report.failed) {
