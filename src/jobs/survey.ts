@@ -1,7 +1,7 @@
 // `survey`: what a model file holds, for people and scripts.
 import { statSync } from 'node:fs';
 import type { Dim, Graph, Model, Tensor, ValueInfo } from '../graph/ir.js';
-import { subgraphsOf } from '../graph/ir.js';
+import { hasSubgraphs, subgraphsOf } from '../graph/ir.js';
 import { bytesPerElement, dataTypeName, tensorByteSize } from '../graph/tensor.js';
 import { eachTensor, externalRef, resolveLocation } from '../onnx/external.js';
 import { readModelFile } from '../onnx/read.js';
@@ -106,7 +106,7 @@ export function surveyModel(model: Model, file: string | null = null, missingDat
         constCount++;
         for (const a of n.attributes) if (a.value.type === 'TENSOR') constBytes += declaredBytes(a.value.t);
       }
-      for (const sg of subgraphsOf(n)) { subgraphCount++; walk(sg); }
+      if (hasSubgraphs(n)) for (const sg of subgraphsOf(n)) { subgraphCount++; walk(sg); }
     }
   };
   walk(model.graph);

@@ -3,7 +3,7 @@
 import { closeSync, constants, fstatSync, openSync, readSync, realpathSync } from 'node:fs';
 import { isAbsolute, relative, resolve, sep } from 'node:path';
 import type { Graph, Model, Tensor } from '../graph/ir.js';
-import { elementCount, subgraphsOf } from '../graph/ir.js';
+import { elementCount, hasSubgraphs, subgraphsOf } from '../graph/ir.js';
 import { bytesPerElement, dataTypeName } from '../graph/tensor.js';
 import { PleatError } from '../errors.js';
 
@@ -43,7 +43,7 @@ function eachTensor(g: Graph, visit: (t: Tensor) => void): void {
       if (a.value.type === 'TENSOR') visit(a.value.t);
       else if (a.value.type === 'TENSORS') a.value.tensors.forEach(visit);
     }
-    for (const sg of subgraphsOf(n)) eachTensor(sg, visit);
+    if (hasSubgraphs(n)) for (const sg of subgraphsOf(n)) eachTensor(sg, visit); // no list made for the many nodes without
   }
 }
 
