@@ -4,10 +4,10 @@
 // depends on values computed at run time, leaves its outputs unknown (and whatever is read from them).
 // A dim that is not known (a symbolic dim no flag sizes) is -1: the rank is still known.
 import type { Graph, Node, Tensor } from './ir.js';
-import { attrInt, attrInts, attrString } from './ir.js';
+import { attrInt, attrInts, attrString, hasSubgraphs } from './ir.js';
 import { constantNodeTensor } from './constants.js';
 import { tensorToFloat64 } from './tensor.js';
-import { topoOrder } from './topo.js';
+import { nodeNeeds, topoOrder } from './topo.js';
 
 export type Shape = number[];
 
@@ -47,34 +47,60 @@ const normAxis = (a: number, rank: number) => (a < 0 ? a + rank : a);
  * -1). `outer` holds the shapes of values an enclosing graph defines.
  */
 export function inferShapes(g: Graph, inputs: ReadonlyMap<string, Shape> = new Map(), outer?: ReadonlyMap<string, Shape>): Map<string, Shape> {
-  const shapes = new Map<string, Shape>(outer ?? []);
-  for (const t of g.initializers) shapes.set(t.name, [...t.dims]);
-  for (const vi of g.inputs) {
-    const given = inputs.get(vi.name);
-    if (given) shapes.set(vi.name, [...given]);
-    else if (vi.shape && !shapes.has(vi.name)) shapes.set(vi.name, vi.shape.map((d) => (typeof d === 'number' && d >= 0 ? d : -1)));
-  }
-  const constants = new Map<string, Tensor>();
-  for (const t of g.initializers) constants.set(t.name, t);
+  const start = () => {
+    const shapes = new Map<string, Shape>(outer ?? []);
+    for (const t of g.initializers) shapes.set(t.name, [...t.dims]);
+    for (const vi of g.inputs) {
+      const given = inputs.get(vi.name);
+      if (given) shapes.set(vi.name, [...given]);
+      else if (vi.shape && !shapes.has(vi.name)) shapes.set(vi.name, vi.shape.map((d) => (typeof d === 'number' && d >= 0 ? d : -1)));
+    }
+    const constants = new Map<string, Tensor>();
+    for (const t of g.initializers) constants.set(t.name, t);
+    return { shapes, constants };
+  };
+  // The common case, a graph in topological order, in list order and one pass: a node reading a value that is
+  // neither shaped nor defined yet (one a later node makes) sends the whole graph through topoOrder instead,
+  // which gives the same order for a sorted graph.
+  const first = start();
+  const unshaped = new Set<string>(); // values defined so far without a shape
+  for (const vi of g.inputs) if (!first.shapes.has(vi.name)) unshaped.add(vi.name);
+  if (propagate(g.nodes, first.shapes, first.constants, unshaped)) return first.shapes;
+  const { shapes, constants } = start();
   let order: Node[];
   try { order = topoOrder(g); } catch { order = g.nodes; }
-  for (const n of order) {
-    if (n.opType === 'Constant') {
-      const t = constantNodeTensor(n);
-      if (t && n.outputs[0]) { shapes.set(n.outputs[0], [...t.dims]); constants.set(n.outputs[0], t); }
-      continue;
-    }
-    if (n.domain !== '' && n.domain !== 'ai.onnx') continue;
-    const ins = n.inputs.map((v) => (v ? shapes.get(v) : undefined));
-    const values = (i: number): number[] | undefined => {
-      const t = n.inputs[i] ? constants.get(n.inputs[i]!) : undefined;
-      return t ? Array.from(tensorToFloat64(t)) : undefined;
-    };
-    let out: Shape | undefined;
-    try { out = outputShape(n, ins, values); } catch { out = undefined; }
-    if (out && n.outputs[0]) shapes.set(n.outputs[0], out);
-  }
+  propagate(order, shapes, constants, undefined);
   return shapes;
+}
+
+/** Shapes of `order`'s outputs into `shapes`; with `unshaped`, false as soon as a node reads a value not defined before it. */
+function propagate(order: readonly Node[], shapes: Map<string, Shape>, constants: Map<string, Tensor>, unshaped: Set<string> | undefined): boolean {
+  for (const n of order) {
+    if (unshaped) {
+      for (const v of n.inputs) if (v && !shapes.has(v) && !unshaped.has(v)) return false;
+      if (hasSubgraphs(n)) for (const v of nodeNeeds(n)) if (!shapes.has(v) && !unshaped.has(v)) return false;
+    }
+    const out = nodeShape(n, shapes, constants);
+    if (out && n.outputs[0]) shapes.set(n.outputs[0], out);
+    if (unshaped) n.outputs.forEach((o, k) => { if (o && !(k === 0 && out)) unshaped.add(o); });
+  }
+  return true;
+}
+
+/** The shape of a node's first output (a Constant's tensor is kept in `constants` too). */
+function nodeShape(n: Node, shapes: Map<string, Shape>, constants: Map<string, Tensor>): Shape | undefined {
+  if (n.opType === 'Constant') {
+    const t = constantNodeTensor(n);
+    if (t && n.outputs[0]) { constants.set(n.outputs[0], t); return [...t.dims]; }
+    return undefined;
+  }
+  if (n.domain !== '' && n.domain !== 'ai.onnx') return undefined;
+  const ins = n.inputs.map((v) => (v ? shapes.get(v) : undefined));
+  const values = (i: number): number[] | undefined => {
+    const t = n.inputs[i] ? constants.get(n.inputs[i]!) : undefined;
+    return t ? Array.from(tensorToFloat64(t)) : undefined;
+  };
+  try { return outputShape(n, ins, values); } catch { return undefined; }
 }
 
 function outputShape(n: Node, ins: Array<Shape | undefined>, values: (i: number) => number[] | undefined): Shape | undefined {

@@ -117,7 +117,9 @@ const template = (vi: ValueInfo) => (vi.shape ?? []).map((d) => (typeof d === 'n
 export function resolveInputs(graph: Graph, given: ReadonlyMap<string, InputValue>, shapes: ReadonlyMap<string, number[]> = new Map(),
   dims: ReadonlyMap<string, number> = new Map(), assumed?: AssumedDim[]): InputSpec[] {
   const byName = new Map(graph.inputs.map((i) => [i.name, i]));
-  const inits = new Set(graph.initializers.map((t) => t.name));
+  // initializers that are also inputs (defaults): a set of the few input names, not of every initializer
+  const inits = new Set<string>();
+  for (const t of graph.initializers) if (byName.has(t.name)) inits.add(t.name);
   const list = graph.inputs.map((i) => i.name).join(', ') || '(none)';
   for (const [flag, names] of [['input', given.keys()], ['shape', shapes.keys()]] as const) {
     for (const name of names) {
