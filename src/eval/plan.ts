@@ -176,12 +176,31 @@ const plans = new WeakMap<Graph, Plan>();
  */
 export const KEEP_PLAN_MIN_NODES = 64;
 
+// Inside withGraphsHeldStill, a plan made or checked once is trusted for the rest of that call.
+let heldDepth = 0;
+let heldSession = 0;
+const trustedIn = new WeakMap<Plan, number>();
+
+/**
+ * Run `fn`, which evaluates graphs without editing them (a comparison: estimate, probes, coverage walk): each
+ * graph's plan is made or checked once and then reused as it is.
+ */
+export function withGraphsHeldStill<T>(fn: () => T): T {
+  if (heldDepth++ === 0) heldSession++;
+  try {
+    return fn();
+  } finally {
+    heldDepth--;
+  }
+}
+
 /** The plan of `g`: the one made before if the graph still matches it, else a new one. */
 export function planOf(g: Graph): Plan {
   if (g.nodes.length < KEEP_PLAN_MIN_NODES) return build(g);
   const p = plans.get(g);
-  if (p && matches(p, g)) return p;
-  const fresh = build(g);
-  plans.set(g, fresh);
-  return fresh;
+  if (p && heldDepth > 0 && trustedIn.get(p) === heldSession) return p;
+  const plan = p && matches(p, g) ? p : build(g);
+  if (plan !== p) plans.set(g, plan);
+  if (heldDepth > 0) trustedIn.set(plan, heldSession);
+  return plan;
 }

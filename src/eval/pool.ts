@@ -11,6 +11,8 @@
 //   markConstant(arr) / isConstant(arr) -> arrays that never change once made (decoded initializers), so
 //                                       kernels may cache data derived from them (gemm's packed weights)
 //   markTransient(arr)               -> a large weight decoded for one node only (constant while it lives)
+//   freshFloat32(n) / freshFloat64(n) -> a new zeroed array, from a slab when small, outside the pool (probe
+//                                       values, decoded weights)
 // Kernels allocate through allocFloat (attrs.ts) or these functions; they must not keep a taken array after
 // returning it as a result.
 //
@@ -54,21 +56,24 @@ function take<T extends NumArray>(free: Map<number, T[]>, n: number, zero: boole
   return fresh;
 }
 
-const make32 = (k: number): Float32Array => {
+/** A new zeroed array of length k, a slab view when small; not pooled (never handed back, not counted). */
+export function freshFloat32(k: number): Float32Array {
   const at = slabView(k * 4);
   return at === undefined ? new Float32Array(k) : new Float32Array(slab, at, k);
-};
-const make64 = (k: number): Float64Array => {
+}
+
+/** A new zeroed array of length k, a slab view when small; not pooled (never handed back, not counted). */
+export function freshFloat64(k: number): Float64Array {
   const at = slabView(k * 8);
   return at === undefined ? new Float64Array(k) : new Float64Array(slab, at, k);
-};
+}
 
 export function takeFloat32(n: number, zero = true): Float32Array {
-  return take(free32, n, zero, make32, 4);
+  return take(free32, n, zero, freshFloat32, 4);
 }
 
 export function takeFloat64(n: number, zero = true): Float64Array {
-  return take(free64, n, zero, make64, 8);
+  return take(free64, n, zero, freshFloat64, 8);
 }
 
 export function isPooled(a: NumArray): boolean {

@@ -5,7 +5,7 @@ import { DataType, opsetVersion, elementCount, type Graph, type Model, type Node
 import { peekBytes } from '../graph/lazy-bytes.js';
 import { isFloatType, tensorToFloat64, dataTypeName } from '../graph/tensor.js';
 import { getKernel } from './registry.js';
-import { giveBack, isConstant, isPooled, markConstant, markTransient } from './pool.js';
+import { freshFloat64, giveBack, isConstant, isPooled, markConstant, markTransient } from './pool.js';
 import { charge, evaluatingNode, liveBytes, release, resetLive } from './budget.js';
 import { planOf, type Plan } from './plan.js';
 import type { Kernel, KernelContext, NumArray, Precision, Value } from './value.js';
@@ -23,7 +23,7 @@ export interface GraphRunOptions extends RunOptions {
 
 /** Turn an initializer/Constant tensor into a Value in the given precision. */
 export function tensorToValue(t: Tensor, precision: Precision): Value {
-  const f64 = tensorToFloat64(t);
+  const f64 = tensorToFloat64(t, freshFloat64);
   const data = precision === 'float32' && isFloatType(t.dataType) ? Float32Array.from(f64) : f64;
   return { type: t.dataType, dims: [...t.dims], data };
 }

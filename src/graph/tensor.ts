@@ -91,15 +91,14 @@ export const FLOAT16_MAX = 65504;
 // ---- decode -------------------------------------------------------------------------------------------
 
 function readRaw(bytes: Uint8Array, code: DataTypeCode, n: number, out: Float64Array): void {
+  if (code === DataType.FLOAT && (bytes.byteOffset & 3) === 0) {
+    const src = new Float32Array(bytes.buffer, bytes.byteOffset, n);
+    for (let i = 0; i < n; i++) out[i] = src[i]!;
+    return;
+  }
   const dv = new DataView(bytes.buffer, bytes.byteOffset, bytes.byteLength);
   switch (code) {
-    case DataType.FLOAT: {
-      if ((bytes.byteOffset & 3) === 0) {
-        const src = new Float32Array(bytes.buffer, bytes.byteOffset, n);
-        for (let i = 0; i < n; i++) out[i] = src[i]!;
-      } else for (let i = 0; i < n; i++) out[i] = dv.getFloat32(i * 4, true);
-      return;
-    }
+    case DataType.FLOAT: for (let i = 0; i < n; i++) out[i] = dv.getFloat32(i * 4, true); return;
     case DataType.DOUBLE: for (let i = 0; i < n; i++) out[i] = dv.getFloat64(i * 8, true); return;
     case DataType.FLOAT16: for (let i = 0; i < n; i++) out[i] = halfBitsToNumber(dv.getUint16(i * 2, true)); return;
     case DataType.BFLOAT16: for (let i = 0; i < n; i++) out[i] = bfloatBitsToNumber(dv.getUint16(i * 2, true)); return;
@@ -131,7 +130,8 @@ export function storedElementCount(t: Tensor): number {
 }
 
 /** Decode any numeric tensor to float64 values (int64 beyond 2^53 loses precision; fine for shapes and indices). */
-export function tensorToFloat64(t: Tensor): Float64Array {
+/** `alloc`: where the values go (the evaluator passes its small-array allocator, src/eval/pool.ts). */
+export function tensorToFloat64(t: Tensor, alloc: (n: number) => Float64Array = (n) => new Float64Array(n)): Float64Array {
   const n = elementCount(t.dims);
   if (!isKnownDataType(t.dataType)) {
     throw new PleatError('bad-model', `tensor '${t.name}' has unknown data type ${t.dataType}`);
@@ -141,7 +141,7 @@ export function tensorToFloat64(t: Tensor): Float64Array {
     throw new PleatError('bad-model',
       `tensor '${t.name}' holds ${have} elements but its dims [${t.dims.join(',')}] need ${n}`);
   }
-  const out = new Float64Array(n);
+  const out = alloc(n);
   const s = t.storage;
   switch (s.kind) {
     case 'raw': case 'external': readRaw(peekBytes(s.bytes), t.dataType, n, out); break; // on-disk bytes are read, not kept

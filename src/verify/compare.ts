@@ -8,6 +8,7 @@ import { isRandomOp } from '../eval/registry.js';
 import { basename } from 'node:path';
 import type { Precision, Value } from '../eval/value.js';
 import { runLockstep } from '../eval/lockstep.js';
+import { withGraphsHeldStill } from '../eval/plan.js';
 import { withProbeMemory } from '../eval/budget.js';
 import { checkProbeEstimate } from './probe-budget.js';
 import { PleatError } from '../errors.js';
@@ -217,7 +218,8 @@ function hasRandomOp(m: Model): boolean {
 
 /** Run A and B on the same inputs and judge each output against its gate. Never throws for disagreeing outputs. */
 export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareReport {
-  return withProbeMemory(opts.maxProbeMemory, () => compareWithin(a, b, opts));
+  // neither model is edited while it is compared: each graph is planned for evaluation once (src/eval/plan.ts)
+  return withProbeMemory(opts.maxProbeMemory, () => withGraphsHeldStill(() => compareWithin(a, b, opts)));
 }
 
 function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport {
