@@ -5,6 +5,7 @@ import { DataType, opsetVersion, elementCount, type Graph, type Model, type Node
 import { peekBytes } from '../graph/lazy-bytes.js';
 import { isFloatType, tensorToFloat64, dataTypeName } from '../graph/tensor.js';
 import { getKernel } from './registry.js';
+import { forgetPacked } from './gemm.js';
 import { freshFloat64, giveBack, isConstant, isPooled, markConstant, markTransient } from './pool.js';
 import { charge, evaluatingNode, liveBytes, release, resetLive } from './budget.js';
 import { planOf, type Plan } from './plan.js';
@@ -23,7 +24,7 @@ export interface GraphRunOptions extends RunOptions {
 
 /** Turn an initializer/Constant tensor into a Value in the given precision. */
 export function tensorToValue(t: Tensor, precision: Precision): Value {
-  const f64 = tensorToFloat64(t, freshFloat64);
+  const f64 = tensorToFloat64(t);
   const data = precision === 'float32' && isFloatType(t.dataType) ? Float32Array.from(f64) : f64;
   return { type: t.dataType, dims: [...t.dims], data };
 }
@@ -49,12 +50,34 @@ function rawFloat32(t: Tensor): Float32Array | undefined {
   return new Float32Array(new Uint8Array(bytes).buffer, 0, n); // a copy (a Buffer's slice would be a view)
 }
 
-function decodeFor(t: Tensor, precision: Precision): NumArray {
+function decodeFor(t: Tensor, precision: Precision, into?: Float64Array): NumArray {
   if (precision === 'float32') {
     const raw = rawFloat32(t);
     if (raw) return raw;
+    return tensorToValue(t, precision).data;
   }
-  return tensorToValue(t, precision).data;
+  return tensorToFloat64(t, into);
+}
+
+// Float64 buffers of large weights dropped after their step, reused for the next weight of the same size: a
+// fresh array per weight (tens of MiB each on a large model) is faulted in page by page and lingers until the
+// collector runs, which multiplied a proven fold's peak memory.
+const spare = new Map<number, Float64Array[]>();
+const SPARE_MAX_BYTES = 256 * 1024 * 1024;
+let spareBytes = 0;
+
+function takeSpare(n: number): Float64Array | undefined {
+  const a = spare.get(n)?.pop();
+  if (a) { spareBytes -= a.byteLength; forgetPacked(a); } // its packed tiles belong to the weight it held
+  return a;
+}
+
+function putSpare(a: Float64Array): void {
+  if (spareBytes + a.byteLength > SPARE_MAX_BYTES) return;
+  spareBytes += a.byteLength;
+  const list = spare.get(a.length) ?? [];
+  list.push(a);
+  spare.set(a.length, list);
 }
 
 /**
@@ -63,20 +86,35 @@ function decodeFor(t: Tensor, precision: Precision): NumArray {
  */
 export class WeightCache {
   private readonly held = new Map<Tensor, NumArray>();
+  /** Decoded arrays some node's result holds (a kernel that passes its input through): never reused. */
+  private readonly escaped = new Set<NumArray>();
   /** `shared`: the cache is the only one its runs use (no decoded tensor is kept across steps at all). */
   constructor(readonly shared = false) {}
   get(t: Tensor, precision: Precision): NumArray {
     let d = this.held.get(t);
     if (!d) {
-      d = decodeFor(t, precision);
+      const large = elementCount(t.dims) > KEEP_DECODED_MAX;
+      // small ones into a slab view (pool.ts): an array of its own per small weight per step costs the collector more
+      const n = elementCount(t.dims);
+      d = decodeFor(t, precision, precision !== 'float64' ? undefined : large ? takeSpare(n) : n <= 256 ? freshFloat64(n) : undefined);
       // only large weights are marked (a weak set of every small tensor of a large graph costs the collector
       // more than the whole evaluation); a kernel never writes over a decoded tensor, which is not pooled
-      if (elementCount(t.dims) > KEEP_DECODED_MAX) markTransient(d);
+      if (large) markTransient(d);
       this.held.set(t, d);
     }
     return d;
   }
-  clear(): void { this.held.clear(); }
+  /** A result of the node just run holds this array. */
+  noteResult(data: NumArray): void {
+    if (this.held.size > 0) for (const d of this.held.values()) if (d === data) this.escaped.add(d);
+  }
+  clear(): void {
+    for (const d of this.held.values()) {
+      if (d instanceof Float64Array && d.length > KEEP_DECODED_MAX && !this.escaped.has(d)) putSpare(d);
+    }
+    this.held.clear();
+    this.escaped.clear();
+  }
 }
 
 function initializerValue(t: Tensor, precision: Precision, weights: WeightCache): Value {
@@ -271,6 +309,7 @@ export class GraphRun {
       if (env[s]) this.drop(s); // a name defined twice (invalid SSA) must not leak its hold
       env[s] = v;
       this.hold(v);
+      this.weights.noteResult(v.data); // a weight passed through must outlive the step
     }
     for (let k = plan.dropStart[idx]!, end = plan.dropStart[idx + 1]!; k < end; k++) this.drop(plan.dropSlot[k]!);
     if (this.ownWeights) this.weights.clear();
