@@ -5,7 +5,7 @@
 // left out, so the estimate is a lower bound: it never refuses more than evaluation itself would (budget.ts
 // checks each allocation as it comes).
 import { attrInt, attrInts, attrString, elementCount, type Graph, type Node } from '../graph/ir.js';
-import { planOf } from './plan.js';
+import { heldStillCall, planOf, type Plan } from './plan.js';
 
 type Dims = number[] | undefined;
 
@@ -127,10 +127,24 @@ function outputDims(node: Node, ins: Dims[], constDims: (name: string) => Dims):
   }
 }
 
+// While graphs are held still (a comparison), an estimate asked for twice is worked out once.
+const kept = new WeakMap<Plan, { call: number; byDims: Map<string, Estimate> }>();
+
 /** Estimate one evaluation of `g` given the dims of its inputs. Subgraphs (If, Loop) are not entered. */
 export function estimateRun(g: Graph, inputDims: ReadonlyMap<string, number[]>): Estimate {
-  // by slot (plan.ts): the dims of each value while it is alive, and the last node reading it (inputs only)
   const plan = planOf(g);
+  const call = heldStillCall();
+  if (call === undefined) return estimate(g, plan, inputDims);
+  let k = kept.get(plan);
+  if (!k || k.call !== call) { k = { call, byDims: new Map() }; kept.set(plan, k); }
+  const key = JSON.stringify([...inputDims]);
+  let e = k.byDims.get(key);
+  if (!e) { e = estimate(g, plan, inputDims); k.byDims.set(key, e); }
+  return { ...e, ...(e.largest ? { largest: { node: e.largest.node, dims: [...e.largest.dims] } } : {}) };
+}
+
+function estimate(g: Graph, plan: Plan, inputDims: ReadonlyMap<string, number[]>): Estimate {
+  // by slot (plan.ts): the dims of each value while it is alive, and the last node reading it (inputs only)
   const { inStart, inSlot, keep } = plan;
   const dims: Dims[] = new Array(plan.names.length);
   const constDims = (name: string): Dims => { const s = plan.slotOf.get(name); return s === undefined ? undefined : plan.init[s]?.dims; };

@@ -133,7 +133,9 @@ function build(g: Graph): Plan {
   return {
     graph: g, slotOf, names, init, keep, lastUse, inStart, inSlot, outStart, outSlot, dropStart, dropSlot: Int32Array.from(drops),
     kernel: new Array(n), kernelOpset: new Int32Array(n).fill(-1),
-    nodes: [...nodes], initializers: [...g.initializers], outputNames, withBodies, bodyReads,
+    // what matches() compares with; a small graph's plan is never kept, so never compared
+    nodes: n >= KEEP_PLAN_MIN_NODES ? [...nodes] : nodes, initializers: n >= KEEP_PLAN_MIN_NODES ? [...g.initializers] : g.initializers,
+    outputNames, withBodies, bodyReads,
   };
 }
 
@@ -192,6 +194,11 @@ export function withGraphsHeldStill<T>(fn: () => T): T {
   } finally {
     heldDepth--;
   }
+}
+
+/** Inside withGraphsHeldStill: a number naming the current call (results derived from a graph may be kept for it), else undefined. */
+export function heldStillCall(): number | undefined {
+  return heldDepth > 0 ? heldSession : undefined;
 }
 
 /** The plan of `g`: the one made before if the graph still matches it, else a new one. */

@@ -47,17 +47,16 @@ const normAxis = (a: number, rank: number) => (a < 0 ? a + rank : a);
  * -1). `outer` holds the shapes of values an enclosing graph defines.
  */
 export function inferShapes(g: Graph, inputs: ReadonlyMap<string, Shape> = new Map(), outer?: ReadonlyMap<string, Shape>): Map<string, Shape> {
+  const inits = new Map<string, Tensor>();
+  for (const t of g.initializers) inits.set(t.name, t);
   const start = () => {
-    const shapes = new Map<string, Shape>(outer ?? []);
-    for (const t of g.initializers) shapes.set(t.name, [...t.dims]);
+    const shapes = new ShapeMap(inits, outer);
     for (const vi of g.inputs) {
       const given = inputs.get(vi.name);
       if (given) shapes.set(vi.name, [...given]);
       else if (vi.shape && !shapes.has(vi.name)) shapes.set(vi.name, vi.shape.map((d) => (typeof d === 'number' && d >= 0 ? d : -1)));
     }
-    const constants = new Map<string, Tensor>();
-    for (const t of g.initializers) constants.set(t.name, t);
-    return { shapes, constants };
+    return { shapes, constants: new Constants(inits) };
   };
   // The common case, a graph in topological order, in list order and one pass: a node reading a value that is
   // neither shaped nor defined yet (one a later node makes) sends the whole graph through topoOrder instead,
@@ -73,8 +72,33 @@ export function inferShapes(g: Graph, inputs: ReadonlyMap<string, Shape> = new M
   return shapes;
 }
 
+/**
+ * Shapes by value name: those set here (inputs, node outputs), else an initializer's dims (copied the first time
+ * they are asked for), else the enclosing graph's. Nothing is copied up front: a graph of 10^5 weights would
+ * otherwise copy every weight's dims, and a subgraph every shape of its enclosing graph. Read it with get/has.
+ */
+class ShapeMap extends Map<string, Shape> {
+  constructor(private readonly inits: ReadonlyMap<string, Tensor>, private readonly outer: ReadonlyMap<string, Shape> | undefined) { super(); }
+  override get(k: string): Shape | undefined {
+    const own = super.get(k);
+    if (own !== undefined) return own;
+    const t = this.inits.get(k);
+    if (t) { const d = [...t.dims]; super.set(k, d); return d; }
+    return this.outer?.get(k);
+  }
+  override has(k: string): boolean { return this.get(k) !== undefined; }
+}
+
+/** Constant tensors by name: Constant nodes' outputs, then the initializers. */
+class Constants {
+  private readonly made = new Map<string, Tensor>();
+  constructor(private readonly inits: ReadonlyMap<string, Tensor>) {}
+  get(k: string): Tensor | undefined { return this.made.get(k) ?? this.inits.get(k); }
+  set(k: string, t: Tensor): void { this.made.set(k, t); }
+}
+
 /** Shapes of `order`'s outputs into `shapes`; with `unshaped`, false as soon as a node reads a value not defined before it. */
-function propagate(order: readonly Node[], shapes: Map<string, Shape>, constants: Map<string, Tensor>, unshaped: Set<string> | undefined): boolean {
+function propagate(order: readonly Node[], shapes: Map<string, Shape>, constants: Constants, unshaped: Set<string> | undefined): boolean {
   for (const n of order) {
     if (unshaped) {
       for (const v of n.inputs) if (v && !shapes.has(v) && !unshaped.has(v)) return false;
@@ -88,7 +112,7 @@ function propagate(order: readonly Node[], shapes: Map<string, Shape>, constants
 }
 
 /** The shape of a node's first output (a Constant's tensor is kept in `constants` too). */
-function nodeShape(n: Node, shapes: Map<string, Shape>, constants: Map<string, Tensor>): Shape | undefined {
+function nodeShape(n: Node, shapes: Map<string, Shape>, constants: Constants): Shape | undefined {
   if (n.opType === 'Constant') {
     const t = constantNodeTensor(n);
     if (t && n.outputs[0]) { constants.set(n.outputs[0], t); return [...t.dims]; }
