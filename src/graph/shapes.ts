@@ -97,16 +97,28 @@ class Constants {
   set(k: string, t: Tensor): void { this.made.set(k, t); }
 }
 
-/** Shapes of `order`'s outputs into `shapes`; with `unshaped`, false as soon as a node reads a value not defined before it. */
+/**
+ * Shapes of `order`'s outputs into `shapes`. With `unshaped` (the list-order pass): false when a node reads a
+ * value a later node makes. A value nothing makes (a fold's new weight not yet added) is only unknown, as it is
+ * in any order.
+ */
 function propagate(order: readonly Node[], shapes: Map<string, Shape>, constants: Constants, unshaped: Set<string> | undefined): boolean {
+  const undefinedYet = new Set<string>();
   for (const n of order) {
     if (unshaped) {
-      for (const v of n.inputs) if (v && !shapes.has(v) && !unshaped.has(v)) return false;
-      if (hasSubgraphs(n)) for (const v of nodeNeeds(n)) if (!shapes.has(v) && !unshaped.has(v)) return false;
+      for (const v of n.inputs) if (v && !shapes.has(v) && !unshaped.has(v)) undefinedYet.add(v);
+      if (hasSubgraphs(n)) for (const v of nodeNeeds(n)) if (!shapes.has(v) && !unshaped.has(v)) undefinedYet.add(v);
     }
     const out = nodeShape(n, shapes, constants);
     if (out && n.outputs[0]) shapes.set(n.outputs[0], out);
-    if (unshaped) n.outputs.forEach((o, k) => { if (o && !(k === 0 && out)) unshaped.add(o); });
+    if (unshaped) {
+      n.outputs.forEach((o, k) => {
+        if (!o) return;
+        if (undefinedYet.size > 0 && undefinedYet.has(o)) return; // read before it was made: not in order
+        if (!(k === 0 && out)) unshaped.add(o);
+      });
+      if (undefinedYet.size > 0 && n.outputs.some((o) => o && undefinedYet.has(o))) return false;
+    }
   }
   return true;
 }
