@@ -7,7 +7,7 @@
 // (4 rows / 4 columns interleaved along k) and a 4x4 register tile accumulates each output block, the usual
 // layout for a fast scalar matrix multiply. Sums are in float64; a Float32Array C rounds once per k-block.
 import type { NumArray } from './value.js';
-import { runTiles, simdKernels, type SimdKernels, type TileSpan } from './wasm-gemm.js';
+import { runChunks, runTiles, simdKernels, type SimdKernels, type TileSpan } from './wasm-gemm.js';
 import { inBands, PARALLEL_MIN_WORK, threadCount } from './threads.js';
 import { isConstant } from './pool.js';
 
@@ -191,6 +191,8 @@ export function simdOn(): boolean { return useSimd; }
 export function setSimd(on: boolean): void { useSimd = on; }
 
 const SMC = 128, SNC = 512;
+/** Tiles per chunk when threads share a product: small enough that a thread slowed down takes fewer of them. */
+const SHARED_CHUNK = 8;
 /** Bytes the SIMD path lays out in the kernel memory at once; a product needing more goes in row blocks. */
 const SIMD_MAX_BYTES = 1 << 29;
 let views: { buffer: ArrayBufferLike; f32: Float32Array; f64: Float64Array } | undefined;
@@ -219,9 +221,22 @@ export function memoryViews(simd: SimdKernels, bytes: number): { f32: Float32Arr
   return viewsOf(simd, bytes);
 }
 
-// B panel rows get two cache lines of padding, so the kernel's strided reads down a panel column spread over
-// the cache sets instead of landing in a few (a power-of-two row length halved float64 speed when measured)
-const B_PAD_BYTES = 128;
+/**
+ * Copy columns [j0, j0 + nc) of B into tiles of nr columns (32 bytes), each tile k-major: element (k, c) goes to
+ * tile floor(c / nr), row k, lane c % nr. Lanes past nc are 0.
+ */
+function packBTiles(mem: Float32Array | Float64Array, at: number, B: Operand, j0: number, nc: number, nr: number, K: number): void {
+  const bd = B.data, brs = B.rs, bcs = B.cs;
+  const tiles = Math.ceil(nc / nr);
+  if (nc % nr) mem.fill(0, at + (tiles - 1) * K * nr, at + tiles * K * nr);
+  for (let t = 0; t < tiles; t++) {
+    const cols = Math.min(nr, nc - t * nr), base = at + t * K * nr;
+    for (let k = 0; k < K; k++) {
+      const o = B.off + k * brs + (j0 + t * nr) * bcs, d = base + k * nr;
+      for (let c = 0; c < cols; c++) mem[d + c] = bd[o + c * bcs]!;
+    }
+  }
+}
 
 /** Pack rows [r0, r0 + rows) of A into 4-row tiles, k-major, from offset 0 of `mem` (rows past the end are 0). */
 function packATiles(mem: Float32Array | Float64Array, A: Operand, r0: number, rows: number, K: number): void {
@@ -263,12 +278,11 @@ function gemmSimd(simd: SimdKernels, M: number, N: number, K: number, A: Operand
   const f64 = !(C instanceof Float32Array);
   const es = f64 ? 8 : 4, nr = 32 / es;
   const ldcMax = Math.ceil(Math.min(N, SNC) / nr) * nr;
-  const pbBytes = K * (ldcMax + B_PAD_BYTES / es) * es;
+  const pbBytes = K * ldcMax * es;
   const rowBytes = (K + ldcMax) * es; // a packed row of A and a row of C
   const room = SIMD_MAX_BYTES - pbBytes;
   if (room < 4 * rowBytes) return false;
   const block = Math.min(Math.ceil(M / 4) * 4, Math.floor(room / rowBytes / 4) * 4);
-  const bd = B.data, brs = B.rs, bcs = B.cs;
   const sameType = f64 ? C instanceof Float64Array : true;
   const threads = threadCount();
   for (let r0 = 0; r0 < M; r0 += block) {
@@ -285,17 +299,10 @@ function gemmSimd(simd: SimdKernels, M: number, N: number, K: number, A: Operand
     }
     for (let j0 = 0; j0 < N; j0 += SNC) {
       const nc = Math.min(SNC, N - j0), nTiles = Math.ceil(nc / nr), ldcE = nTiles * nr;
-      const ldbE = ldcE + B_PAD_BYTES / es;
-      // copy B[:, j0:j0+nc] row-major (ldbE elements per row), zeroing the columns past nc
-      if (nc < ldcE) mem.fill(0, pbE, pbE + K * ldbE);
-      for (let k = 0; k < K; k++) {
-        const o = B.off + k * brs + j0 * bcs, dst = pbE + k * ldbE;
-        if (bcs === 1 && nc >= 16) mem.set(bd.subarray(o, o + nc), dst);
-        else for (let c = 0; c < nc; c++) mem[dst + c] = bd[o + c * bcs]!;
-      }
+      packBTiles(mem, pbE, B, j0, nc, nr, K);
       const span = (t0: number, t1: number): TileSpan =>
-        ({ f64, pa: 0, pb, pc, nTiles, K, ldcBytes: ldcE * es, ldbBytes: ldbE * es, t0, t1, chunk: SMC / 4 });
-      if (threads > 1 && rows >= 8 && rows * nc * K >= PARALLEL_MIN_WORK) inBands(tiles, threads, span, (s) => runTiles(simd, s));
+        ({ f64, pa: 0, pb, pc, nTiles, K, ldcBytes: ldcE * es, ldbBytes: K * 32, t0, t1, chunk: SMC / 4 });
+      if (threads > 1 && rows >= 8 && rows * nc * K >= PARALLEL_MIN_WORK) inBands({ ...span(0, tiles), chunk: SHARED_CHUNK }, threads, (sp, counter) => runChunks(simd, sp, counter));
       else runTiles(simd, span(0, tiles));
       for (let r = 0; r < rows; r++) {
         const dst = cOff + (r0 + r) * ldc + j0, src = pcE + r * ldcE;
