@@ -105,11 +105,12 @@ class Constants {
 function propagate(order: readonly Node[], shapes: Map<string, Shape>, constants: Constants, unshaped: Set<string> | undefined): boolean {
   const undefinedYet = new Set<string>();
   for (const n of order) {
+    const ins = n.inputs.map((v) => (v ? shapes.get(v) : undefined));
     if (unshaped) {
-      for (const v of n.inputs) if (v && !shapes.has(v) && !unshaped.has(v)) undefinedYet.add(v);
+      n.inputs.forEach((v, k) => { if (v && ins[k] === undefined && !unshaped.has(v)) undefinedYet.add(v); });
       if (hasSubgraphs(n)) for (const v of nodeNeeds(n)) if (!shapes.has(v) && !unshaped.has(v)) undefinedYet.add(v);
     }
-    const out = nodeShape(n, shapes, constants);
+    const out = nodeShape(n, ins, constants);
     if (out && n.outputs[0]) shapes.set(n.outputs[0], out);
     if (unshaped) {
       n.outputs.forEach((o, k) => {
@@ -123,15 +124,14 @@ function propagate(order: readonly Node[], shapes: Map<string, Shape>, constants
   return true;
 }
 
-/** The shape of a node's first output (a Constant's tensor is kept in `constants` too). */
-function nodeShape(n: Node, shapes: Map<string, Shape>, constants: Constants): Shape | undefined {
+/** The shape of a node's first output from its inputs' shapes (a Constant's tensor is kept in `constants` too). */
+function nodeShape(n: Node, ins: Array<Shape | undefined>, constants: Constants): Shape | undefined {
   if (n.opType === 'Constant') {
     const t = constantNodeTensor(n);
     if (t && n.outputs[0]) { constants.set(n.outputs[0], t); return [...t.dims]; }
     return undefined;
   }
   if (n.domain !== '' && n.domain !== 'ai.onnx') return undefined;
-  const ins = n.inputs.map((v) => (v ? shapes.get(v) : undefined));
   const values = (i: number): number[] | undefined => {
     const t = n.inputs[i] ? constants.get(n.inputs[i]!) : undefined;
     return t ? Array.from(tensorToFloat64(t)) : undefined;
