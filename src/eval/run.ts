@@ -160,9 +160,13 @@ export class GraphRun {
   private readonly plan: Plan;
   private readonly env: Array<Value | undefined>;
   /** Values given for names the graph never mentions (an enclosing scope may still ask for them by name). */
-  private readonly extra = new Map<string, Value>();
-  private readonly foreign = new Set<NumArray>();
-  private readonly holders = new Map<NumArray, number>();
+  private extra: Map<string, Value> | undefined;
+  /**
+   * Pooled arrays the caller or an enclosing scope can still see (only pooled arrays are ever held, so only they
+   * are asked about). The three collections are made when first needed: a fold's proof runs thousands of tiny graphs.
+   */
+  private foreign: Set<NumArray> | undefined;
+  private holders: Map<NumArray, number> | undefined;
   private readonly weights: WeightCache;
   private readonly ownWeights: boolean;
   /** The context handed to every kernel of this run (its node and opset change per step). */
@@ -178,11 +182,11 @@ export class GraphRun {
     for (const [k, v] of inputs) {
       const value = inPrecision(v, opts.precision);
       const s = plan.slotOf.get(k);
-      if (s === undefined) this.extra.set(k, value); else this.env[s] = value;
+      if (s === undefined) (this.extra ??= new Map()).set(k, value); else this.env[s] = value;
     }
     // Buffers from the pool are handed back once no live value of this graph holds them. Arrays the caller or
     // an enclosing scope can still see are never handed back.
-    for (const v of inputs.values()) this.foreign.add(v.data);
+    for (const v of inputs.values()) this.markForeign(v.data);
     this.weights = opts.weights ?? new WeightCache();
     this.ownWeights = !opts.weights;
     const { precision, opsetOf } = opts;
@@ -209,38 +213,43 @@ export class GraphRun {
     const t = this.plan.init[s];
     if (t) return initializerValue(t, this.opts.precision, this.weights);
     const o = this.opts.outer?.get(this.plan.names[s]!);
-    if (o) this.foreign.add(o.data);
+    if (o) this.markForeign(o.data);
     return o;
   }
 
   private lookup(name: string): Value | undefined {
     const s = this.plan.slotOf.get(name);
     if (s !== undefined) return this.slotValue(s);
-    const v = this.extra.get(name);
+    const v = this.extra?.get(name);
     if (v) return v;
     const o = this.opts.outer?.get(name);
-    if (o) this.foreign.add(o.data);
+    if (o) this.markForeign(o.data);
     return o;
+  }
+
+  private markForeign(data: NumArray): void {
+    if (isPooled(data)) (this.foreign ??= new Set()).add(data);
   }
 
   // values alive count against the probe memory limit (budget.ts) while some name holds them
   private hold(v: Value): void {
     if (!isPooled(v.data)) return;
-    const n = this.holders.get(v.data) ?? 0;
+    const holders = (this.holders ??= new Map());
+    const n = holders.get(v.data) ?? 0;
     if (n === 0) charge(v.data.byteLength);
-    this.holders.set(v.data, n + 1);
+    holders.set(v.data, n + 1);
   }
 
   private drop(s: number): void {
     const v = this.env[s];
     if (!v) return;
     this.env[s] = undefined;
-    const n = this.holders.get(v.data);
+    const n = this.holders?.get(v.data);
     if (n === undefined) return;
-    if (n > 1) { this.holders.set(v.data, n - 1); return; }
-    this.holders.delete(v.data);
+    if (n > 1) { this.holders!.set(v.data, n - 1); return; }
+    this.holders!.delete(v.data);
     release(v.data.byteLength);
-    if (!this.foreign.has(v.data)) giveBack(v.data);
+    if (!this.foreign?.has(v.data)) giveBack(v.data);
   }
 
   /**
@@ -258,7 +267,7 @@ export class GraphRun {
     if (plan.keep[s] || plan.lastUse[s] !== idx || !this.env[s]) return false;
     if (node.inputs.indexOf(name) !== i || node.inputs.lastIndexOf(name) !== i || node.outputs.includes(name)) return false;
     const data = this.env[s]!.data;
-    return this.holders.get(data) === 1 && !this.foreign.has(data);
+    return this.holders?.get(data) === 1 && !this.foreign?.has(data);
   }
 
   private kernelFor(idx: number, node: Node): { kernel: Kernel; opset: number } {
