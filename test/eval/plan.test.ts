@@ -139,6 +139,33 @@ describe('runs by slot', () => {
   });
 });
 
+describe("a caller's pooled array", () => {
+  it('is never overwritten or handed back, even when passed through to a value a later node could reuse', () => {
+    const dims = [64, 80];
+    const n = 64 * 80;
+    // a previous run's output is a pooled array the caller now holds
+    const first: Graph = {
+      name: 'first', nodes: [node('Neg', 'neg', ['x'], ['y'])], initializers: [], valueInfo: [], docString: '', extra: [],
+      inputs: [{ name: 'x', elemType: FLOAT, shape: dims, docString: '', extra: [] }], outputs: [{ name: 'y', docString: '', extra: [] }],
+    };
+    const x0 = Float64Array.from({ length: n }, (_, i) => (i % 7) - 3);
+    const held = runGraph(first, new Map([['x', { type: FLOAT, dims, data: x0 }]]), { precision: 'float64', opsetOf }).get('y')!;
+    const before = Array.from(held.data);
+    // Identity passes it through; Relu is the last reader of the pass-through and could write over it
+    const second: Graph = {
+      name: 'second', nodes: [node('Identity', 'id', ['x'], ['a']), node('Relu', 'relu', ['a'], ['b']), node('Neg', 'neg2', ['b'], ['c'])],
+      initializers: [], valueInfo: [], docString: '', extra: [],
+      inputs: [{ name: 'x', elemType: FLOAT, shape: dims, docString: '', extra: [] }], outputs: [{ name: 'c', docString: '', extra: [] }],
+    };
+    const want = Array.from(plainRun(second, new Map([['x', held]])).get('c')!.data);
+    for (let k = 0; k < 3; k++) {
+      const c = runGraph(second, new Map([['x', held]]), { precision: 'float64', opsetOf }).get('c')!;
+      expect(Array.from(c.data)).toEqual(want);
+      expect(Array.from(held.data)).toEqual(before);
+    }
+  });
+});
+
 describe('small arrays as slab views', () => {
   it('are zeroed, of the asked length, and independent of each other', () => {
     const made = [takeFloat64(9), takeFloat32(17), freshFloat64(40), freshFloat32(100), takeFloat64(256), takeFloat64(3)];
