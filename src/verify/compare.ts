@@ -166,6 +166,8 @@ function defaultGate(a: DataTypeCode, b: DataTypeCode | undefined): string {
 export function halfStoredWeights(model: Model): string[] {
   const found: string[] = [];
   const walk = (g: Graph, outer: ReadonlyMap<string, DataTypeCode>) => {
+    // the initializers' types are needed only where some node is a Cast or holds a subgraph (most graphs: none)
+    if (!g.nodes.some((n) => n.opType === 'Cast' || subgraphsOf(n).length > 0)) return;
     const types = new Map(outer);
     for (const t of g.initializers) types.set(t.name, t.dataType);
     for (const n of g.nodes) {
