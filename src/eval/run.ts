@@ -40,15 +40,20 @@ const decoded = new WeakMap<object, Decoded>();
 export const KEEP_DECODED_MAX = 1 << 16;
 
 /** A float32 tensor's values straight from its raw bytes (a view when aligned: no conversion, no copy). */
-function rawFloat32(t: Tensor): Float32Array | undefined {
+function rawFloat32(t: Tensor, into?: Uint8Array): Float32Array | undefined {
   const s = t.storage;
   if (t.dataType !== DataType.FLOAT || (s.kind !== 'raw' && s.kind !== 'external')) return undefined;
   const n = elementCount(t.dims);
   if (s.bytes.byteLength < n * 4) return undefined; // the general decoder reports it
-  const bytes = peekBytes(s.bytes.subarray(0, n * 4));
+  const bytes = peekBytes(s.bytes.subarray(0, n * 4), into);
   if ((bytes.byteOffset & 3) === 0) return new Float32Array(bytes.buffer, bytes.byteOffset, n);
   return new Float32Array(new Uint8Array(bytes).buffer, 0, n); // a copy (a Buffer's slice would be a view)
 }
+
+// Byte buffers that large float32 weights still on disk are read into, reused from weight to weight like the
+// float64 spares below (a fresh buffer per read is faulted in page by page).
+const spareRaw = new Map<number, Uint8Array[]>();
+let spareRawBytes = 0;
 
 function decodeFor(t: Tensor, precision: Precision, into?: Float64Array): NumArray {
   if (precision === 'float32') {
@@ -75,6 +80,14 @@ function takeSpare(n: number): Float64Array | undefined {
   return a;
 }
 
+function putSpareRaw(b: Uint8Array): void {
+  if (spareRawBytes + b.byteLength > SPARE_MAX_BYTES) return;
+  spareRawBytes += b.byteLength;
+  const list = spareRaw.get(b.byteLength) ?? [];
+  list.push(b);
+  spareRaw.set(b.byteLength, list);
+}
+
 function putSpare(a: Float64Array): void {
   if (spareBytes + a.byteLength > SPARE_MAX_BYTES) return;
   spareBytes += a.byteLength;
@@ -91,6 +104,8 @@ export class WeightCache {
   private readonly held = new Map<Tensor, NumArray>();
   /** Decoded arrays some node's result holds (a kernel that passes its input through): never reused. */
   private readonly escaped = new Set<NumArray>();
+  /** Weights read as stored into a reused byte buffer, with that buffer (it goes back when they are dropped). */
+  private readonly readInto = new Map<NumArray, Uint8Array>();
   /** `shared`: the cache is the only one its runs use (no decoded tensor is kept across steps at all). */
   constructor(readonly shared = false) {}
   /** The node about to run (set by GraphRun.step). */
@@ -101,8 +116,15 @@ export class WeightCache {
       const large = elementCount(t.dims) > KEEP_DECODED_MAX;
       // A matrix product's float32 weight goes in as stored even in a float64 run: its kernel widens each value
       // exactly as it copies the operand into its own memory, so no float64 copy of the weight is made at all.
-      const asStored = large && precision === 'float64' && this.reader !== undefined && WIDENING_KERNELS.has(this.reader.opType) && (this.reader.domain === '' || this.reader.domain === 'ai.onnx')
-        ? rawFloat32(t) : undefined;
+      let asStored: Float32Array | undefined;
+      if (large && precision === 'float64' && this.reader !== undefined && WIDENING_KERNELS.has(this.reader.opType) && (this.reader.domain === '' || this.reader.domain === 'ai.onnx')) {
+        const bytes = elementCount(t.dims) * 4;
+        let into = spareRaw.get(bytes)?.pop();
+        if (into) spareRawBytes -= bytes; else into = new Uint8Array(bytes);
+        asStored = rawFloat32(t, into);
+        if (asStored && asStored.buffer === into.buffer) this.readInto.set(asStored, into);
+        else putSpareRaw(into); // the bytes were in memory: the buffer was not needed
+      }
       // small ones into a slab view (pool.ts): an array of its own per small weight per step costs the collector more
       const n = elementCount(t.dims);
       d = asStored ?? decodeFor(t, precision, precision !== 'float64' ? undefined : large ? takeSpare(n) : n <= 256 ? freshFloat64(n) : undefined);
@@ -119,10 +141,14 @@ export class WeightCache {
   }
   clear(): void {
     for (const d of this.held.values()) {
-      if (d instanceof Float64Array && d.length > KEEP_DECODED_MAX && !this.escaped.has(d)) putSpare(d);
+      if (this.escaped.has(d)) continue;
+      if (d instanceof Float64Array && d.length > KEEP_DECODED_MAX) putSpare(d);
+      const raw = this.readInto.get(d);
+      if (raw) { forgetPacked(d); putSpareRaw(raw); }
     }
     this.held.clear();
     this.escaped.clear();
+    this.readInto.clear();
   }
 }
 
