@@ -3,11 +3,13 @@
 // branches, fan-out, shared weights and statistics, Constant parameters, If bodies, IR version 3, --keep,
 // --clone-shared, proofs that fail and are undone), a 60-block chain and the demo models, the folded model, the
 // ledger, the rewritten nodes and audit's findings hash to what the engine gave before the change
-// (engine-expected.json, recorded then; PLEAT_WRITE_ENGINE_HASHES=1 records it again).
+// (engine-expected.json, recorded then; PLEAT_WRITE_ENGINE_HASHES=1 records it again), and the written bytes are
+// those of the old driver (reference-engine.ts) run in the same test.
 import { describe, expect, it } from 'vitest';
 import { readFileSync, writeFileSync, existsSync } from 'node:fs';
 import { join } from 'node:path';
 import { engineCases, runEngineCase } from './engine-cases.js';
+import { referenceFoldModel } from './reference-engine.js';
 
 const file = join(import.meta.dirname, 'engine-expected.json');
 const cases = engineCases();
@@ -27,8 +29,11 @@ describe('fold engine results are those recorded before the incremental index', 
   const expected = existsSync(file) ? JSON.parse(readFileSync(file, 'utf8')) as Record<string, unknown> : {};
   for (const c of cases) {
     it(c.id, () => {
-      const { bytes: _b, ...r } = runEngineCase(c);
+      const { bytes, ...r } = runEngineCase(c);
       expect(r).toEqual(expected[c.id]);
+      // and the written bytes are those of the driver that rebuilt its index every sweep (same run, same writer)
+      const ref = runEngineCase(c, referenceFoldModel);
+      expect(Buffer.from(bytes).equals(Buffer.from(ref.bytes))).toBe(true);
     });
   }
 });
