@@ -4,35 +4,60 @@
 import type { Graph, Model, Node } from '../graph/ir.js';
 import { touch } from '../graph/edit.js';
 import { buildScopes, type Scope } from './scope.js';
+import type { FoldContext } from './context.js';
 
-export function cleanUp(model: Model, released: Set<string>, gone: Set<string>): void {
-  const scopes = buildScopes(model);
+/**
+ * With the fold driver's context (its scopes' indexes current), the clean-up looks up the released names instead
+ * of rebuilding every index, and tells the indexes what it dropped.
+ */
+export function cleanUp(model: Model, released: Set<string>, gone: Set<string>, ctx?: FoldContext): void {
+  const scopes = ctx?.live ? [...ctx.live.values()].map((l) => l.scope) : buildScopes(model);
   const dropInits = new Map<Graph, Set<string>>();
   const dropNodes = new Map<Graph, Set<Node>>();
   const unread = (s: Scope, v: string) => s.ud.consumers(v).length === 0 && !s.ud.isGraphOutput(v) && !s.ud.isGraphInput(v);
+  const dropInit = (s: Scope, name: string) => {
+    if (!dropInits.has(s.graph)) dropInits.set(s.graph, new Set());
+    dropInits.get(s.graph)!.add(name);
+    gone.add(name);
+  };
+  const dropConstant = (s: Scope, n: Node, v: string) => {
+    if (!dropNodes.has(s.graph)) dropNodes.set(s.graph, new Set());
+    dropNodes.get(s.graph)!.add(n);
+    gone.add(v);
+  };
   for (const s of scopes) {
-    for (const t of s.graph.initializers) {
-      if (!released.has(t.name) || !unread(s, t.name)) continue;
-      if (!dropInits.has(s.graph)) dropInits.set(s.graph, new Set());
-      dropInits.get(s.graph)!.add(t.name);
-      gone.add(t.name);
+    if (released.size < s.graph.initializers.length + s.graph.nodes.length) {
+      // fewer names released than the graph holds: look each one up
+      for (const v of released) {
+        if (!s.ud.defines(v) || !unread(s, v)) continue;
+        if (s.ud.initializer(v)) dropInit(s, v);
+        const p = s.ud.producer(v);
+        if (p && p.opType === 'Constant' && p.outputs[0] === v) dropConstant(s, p, v);
+      }
+      continue;
     }
+    for (const t of s.graph.initializers) if (released.has(t.name) && unread(s, t.name)) dropInit(s, t.name);
     for (const n of s.graph.nodes) {
       const v = n.outputs[0];
-      if (n.opType !== 'Constant' || !v || !released.has(v) || !unread(s, v)) continue;
-      if (!dropNodes.has(s.graph)) dropNodes.set(s.graph, new Set());
-      dropNodes.get(s.graph)!.add(n);
-      gone.add(v);
+      if (n.opType === 'Constant' && v && released.has(v) && unread(s, v)) dropConstant(s, n, v);
     }
   }
   for (const [g, names] of dropInits) { g.initializers = g.initializers.filter((t) => !names.has(t.name)); touch(g); }
   for (const [g, nodes] of dropNodes) { g.nodes = g.nodes.filter((n) => !nodes.has(n)); touch(g); }
-  if (!gone.size) return;
-  for (const s of scopes) {
-    const g = s.graph;
-    const defined = (v: string) => (s.ud.producer(v) !== undefined && !dropNodes.get(g)?.has(s.ud.producer(v)!))
-      || (s.ud.initializer(v) !== undefined && !dropInits.get(g)?.has(v)) || s.ud.isGraphInput(v);
-    const keep = g.valueInfo.filter((vi) => !gone.has(vi.name) || defined(vi.name));
-    if (keep.length !== g.valueInfo.length) { g.valueInfo = keep; touch(g); }
+  if (gone.size) {
+    for (const s of scopes) {
+      const g = s.graph;
+      if (!g.valueInfo.length) continue;
+      const defined = (v: string) => (s.ud.producer(v) !== undefined && !dropNodes.get(g)?.has(s.ud.producer(v)!))
+        || (s.ud.initializer(v) !== undefined && !dropInits.get(g)?.has(v)) || s.ud.isGraphInput(v);
+      const keep = g.valueInfo.filter((vi) => !gone.has(vi.name) || defined(vi.name));
+      if (keep.length !== g.valueInfo.length) { g.valueInfo = keep; touch(g); }
+    }
+  }
+  if (!ctx?.live) return;
+  for (const [g, names] of dropInits) { const ud = ctx.live.get(g)!.ud; for (const v of names) ud.removeInitializer(v); }
+  for (const [g, nodes] of dropNodes) {
+    const ud = ctx.live.get(g)!.ud;
+    for (const n of nodes) { ud.removeNode(n); ctx.removedNodes.add(n); }
   }
 }

@@ -1,8 +1,9 @@
 // State shared by the analysis and the rewrites of one run over a model.
 import type { Graph, Model, Node, Tensor, ValueInfo } from '../graph/ir.js';
+import type { EditableUseDef, Wiring } from '../graph/usedef.js';
 import { opsetVersion } from '../graph/ir.js';
 import type { FoldOptions, ReasonCode } from './types.js';
-import { eachGraph, nodeLabel } from './scope.js';
+import { eachGraph, nodeLabel, type Scope } from './scope.js';
 
 export interface FoldContext {
   options: FoldOptions;
@@ -23,9 +24,23 @@ export interface FoldContext {
   nameCounters: Map<string, number>;
   /** Node and initializer list changes, applied to each graph once per sweep (see flushPending). */
   pending: Map<Graph, PendingGraph>;
+  /**
+   * The fold driver's scopes, built once per run: their use-def indexes follow the edits (flushPending tells each
+   * index what changed in its graph), so no sweep rebuilds them.
+   */
+  live?: Map<Graph, LiveScope>;
+  /** Nodes the folds and the clean-up took out of their graphs. */
+  removedNodes: Set<Node>;
+}
+
+export interface LiveScope {
+  scope: Scope;
+  ud: EditableUseDef;
 }
 
 export interface PendingGraph {
+  /** Nodes whose inputs or outputs an edit changed in place, with their wiring before the first such change. */
+  rewired: Map<Node, Wiring>;
   removed: Set<Node>;
   inserts: Map<Node, Node[]>;
   initializers: Tensor[];
@@ -64,6 +79,7 @@ export function makeContext(model: Model, options: FoldOptions): FoldContext {
     irVersion: model.irVersion,
     nameCounters: new Map(),
     pending: new Map(),
+    removedNodes: new Set(),
   };
 }
 

@@ -14,7 +14,8 @@ import { writtenOutNorm } from './norms.js';
 import { entryKind } from './steps.js';
 import type { RuleMatch } from './rules/index.js';
 import { collectRun, isStep, stepOf } from './run.js';
-import { buildScopes, eachGraph, labelOf } from './scope.js';
+import { buildScopes, eachGraph, forgetDerived, labelOf, type Scope } from './scope.js';
+import { editableUseDef, type EditableUseDef } from '../graph/usedef.js';
 import type { EntryKind, FoldLedger, FoldOptions, LedgerEntry, ProofFigures, RewrittenNode } from './types.js';
 
 const MAX_PASSES = 64;
@@ -55,10 +56,12 @@ function cloneForRun(ctx: FoldContext, edit: Edit, m: RuleMatch): RuleMatch[] {
 }
 
 /** One sweep over every graph; returns whether anything changed or was put off to the next sweep. */
-function sweep(ctx: FoldContext, model: Model, folded: LedgerEntry[], released: Set<string>, gone: Set<string>, rewritten: Map<Node, RewrittenNode>): boolean {
+function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], released: Set<string>, gone: Set<string>, rewritten: Map<Node, RewrittenNode>): boolean {
   let changed = false;
   const prove = ctx.options.prove;
-  for (const scope of buildScopes(model, ctx.labels, ctx.options.inputShapes)) {
+  // what a scope built afresh would know: the index is current (flushPending keeps it so), derived caches start over
+  for (const scope of scopes) forgetDerived(scope);
+  for (const scope of scopes) {
     const cache = new Map();
     const dirty = new Set<Node>();
     for (const node of [...scope.graph.nodes]) {
@@ -143,30 +146,42 @@ export function foldModel(model: Model, options: FoldOptions = {}): { model: Mod
   const ctx = makeContext(model, options);
   const nodesBefore = countNodes(model);
   const bytesBefore = weightBytes(model);
-  // Ledger order: where each node stood in the original model.
-  const order = new Map<string, number>();
-  for (const s of buildScopes(model, ctx.labels, ctx.options.inputShapes)) for (const n of s.graph.nodes) order.set(`${s.path}\u0000${labelOf(s, n)}`, order.size);
+  // One set of scopes for the whole run: each graph's index is built once and follows the edits.
+  const scopes = buildScopes(model, ctx.labels, ctx.options.inputShapes, editableUseDef);
+  ctx.live = new Map(scopes.map((scope) => [scope.graph, { scope, ud: scope.ud as EditableUseDef }]));
+  // Ledger order: where each node stood in the original model (by graph path, then ledger name).
+  const order = new Map<string, Map<string, number>>();
+  let placed = 0;
+  for (const s of scopes) {
+    let inPath = order.get(s.path);
+    if (!inPath) order.set(s.path, inPath = new Map());
+    for (const n of s.graph.nodes) {
+      const label = labelOf(s, n);
+      // (a name seen again takes the place after the distinct names so far, as one map of both keys would give)
+      inPath.set(label, inPath.has(label) ? placed : placed++);
+    }
+  }
   const folded: LedgerEntry[] = [];
   const released = new Set<string>();
   const gone = new Set<string>();
   const touched = new Map<Node, RewrittenNode>();
-  for (let pass = 0; pass < MAX_PASSES && sweep(ctx, model, folded, released, gone, touched); pass++) { /* until nothing changes */ }
+  for (let pass = 0; pass < MAX_PASSES && sweep(ctx, scopes, folded, released, gone, touched); pass++) { /* until nothing changes */ }
   if (folded.length) {
-    cleanUp(model, released, gone);
+    cleanUp(model, released, gone, ctx);
     validateModel(model);
   }
   // Every normalization still in the model, with its reason, from the same analysis audit runs.
   // (A norm whose statistics stay shows up again after its tail moved: the folded entry stands.)
+  for (const s of scopes) forgetDerived(s);
   const done = new Set(folded.map((e) => `${e.graph}\u0000${e.node}`));
-  const kept: LedgerEntry[] = findingsOf(ctx, model).filter((f) => !done.has(`${f.graph}\u0000${f.node}`))
+  const kept: LedgerEntry[] = findingsOf(ctx, model, scopes).filter((f) => !done.has(`${f.graph}\u0000${f.node}`))
     .map((f) => ({ ...f, status: 'kept' as const }));
-  const normalizations = [...folded, ...kept].sort((a, b) => (order.get(`${a.graph}\u0000${a.node}`) ?? 1e15) - (order.get(`${b.graph}\u0000${b.node}`) ?? 1e15));
+  const at = (e: LedgerEntry) => order.get(e.graph)?.get(e.node) ?? 1e15;
+  const normalizations = [...folded, ...kept].sort((a, b) => at(a) - at(b));
   // a node a later fold or the clean-up removed is no longer in the model to be watched
-  const present = new Set<Node>();
-  eachGraph(model.graph, (g) => { for (const n of g.nodes) present.add(n); });
   return {
     model,
     ledger: { normalizations, nodesBefore, nodesAfter: countNodes(model), bytesBefore, bytesAfter: weightBytes(model) },
-    rewritten: [...touched.values()].filter((r) => present.has(r.node)),
+    rewritten: [...touched.values()].filter((r) => !ctx.removedNodes.has(r.node)),
   };
 }
