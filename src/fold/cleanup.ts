@@ -10,23 +10,26 @@ import type { FoldContext } from './context.js';
  * With the fold driver's context (its scopes' indexes current), the clean-up looks up the released names instead
  * of rebuilding every index, and tells the indexes what it dropped.
  */
-export function cleanUp(model: Model, released: Set<string>, gone: Set<string>, ctx?: FoldContext): void {
+export function cleanUp(model: Model, released: readonly string[], goneValues: readonly string[], ctx?: FoldContext): void {
   const scopes = ctx?.live ? [...ctx.live.values()].map((l) => l.scope) : buildScopes(model);
   const dropInits = new Map<Graph, Set<string>>();
   const dropNodes = new Map<Graph, Set<Node>>();
-  const unread = (s: Scope, v: string) => s.ud.consumers(v).length === 0 && !s.ud.isGraphOutput(v) && !s.ud.isGraphInput(v);
+  const gone = [...goneValues];
+  let releasedSet: Set<string> | undefined;
+  const unread = (s: Scope, v: string) => (ctx?.live ? ctx.live.get(s.graph)!.ud.readerCount(v) : s.ud.consumers(v).length) === 0
+    && !s.ud.isGraphOutput(v) && !s.ud.isGraphInput(v);
   const dropInit = (s: Scope, name: string) => {
     if (!dropInits.has(s.graph)) dropInits.set(s.graph, new Set());
     dropInits.get(s.graph)!.add(name);
-    gone.add(name);
+    gone.push(name);
   };
   const dropConstant = (s: Scope, n: Node, v: string) => {
     if (!dropNodes.has(s.graph)) dropNodes.set(s.graph, new Set());
     dropNodes.get(s.graph)!.add(n);
-    gone.add(v);
+    gone.push(v);
   };
   for (const s of scopes) {
-    if (released.size < s.graph.initializers.length + s.graph.nodes.length) {
+    if (released.length < s.graph.initializers.length + s.graph.nodes.length) {
       // fewer names released than the graph holds: look each one up
       for (const v of released) {
         if (!s.ud.defines(v) || !unread(s, v)) continue;
@@ -36,21 +39,24 @@ export function cleanUp(model: Model, released: Set<string>, gone: Set<string>, 
       }
       continue;
     }
-    for (const t of s.graph.initializers) if (released.has(t.name) && unread(s, t.name)) dropInit(s, t.name);
+    const isReleased = releasedSet ??= new Set(released);
+    for (const t of s.graph.initializers) if (isReleased.has(t.name) && unread(s, t.name)) dropInit(s, t.name);
     for (const n of s.graph.nodes) {
       const v = n.outputs[0];
-      if (n.opType === 'Constant' && v && released.has(v) && unread(s, v)) dropConstant(s, n, v);
+      if (n.opType === 'Constant' && v && isReleased.has(v) && unread(s, v)) dropConstant(s, n, v);
     }
   }
   for (const [g, names] of dropInits) { g.initializers = g.initializers.filter((t) => !names.has(t.name)); touch(g); }
   for (const [g, nodes] of dropNodes) { g.nodes = g.nodes.filter((n) => !nodes.has(n)); touch(g); }
-  if (gone.size) {
+  // the names of values that no longer exist matter only to graphs that declare value_info
+  const goneSet = gone.length && scopes.some((s) => s.graph.valueInfo.length > 0) ? new Set(gone) : undefined;
+  if (goneSet) {
     for (const s of scopes) {
       const g = s.graph;
       if (!g.valueInfo.length) continue;
       const defined = (v: string) => (s.ud.producer(v) !== undefined && !dropNodes.get(g)?.has(s.ud.producer(v)!))
         || (s.ud.initializer(v) !== undefined && !dropInits.get(g)?.has(v)) || s.ud.isGraphInput(v);
-      const keep = g.valueInfo.filter((vi) => !gone.has(vi.name) || defined(vi.name));
+      const keep = g.valueInfo.filter((vi) => !goneSet.has(vi.name) || defined(vi.name));
       if (keep.length !== g.valueInfo.length) { g.valueInfo = keep; touch(g); }
     }
   }

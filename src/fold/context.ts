@@ -2,6 +2,7 @@
 import type { Graph, Model, Node, Tensor, ValueInfo } from '../graph/ir.js';
 import type { EditableUseDef, Wiring } from '../graph/usedef.js';
 import { opsetVersion } from '../graph/ir.js';
+import { nameTable } from '../graph/names.js';
 import type { FoldOptions, ReasonCode } from './types.js';
 import { eachGraph, nodeLabel, type Scope } from './scope.js';
 
@@ -15,7 +16,7 @@ export interface FoldContext {
   generated: Set<Node>;
   opsetOf: (domain: string) => number;
   /** Every name in use (values, nodes), for deterministic fresh names. */
-  readonly names: Set<string>;
+  readonly names: NameSet;
   /** Ledger names fixed at the start for unnamed nodes (an unnamed node keeps its op#index even after other
    * nodes go); a node without an entry is its name. */
   labels: Map<Node, string>;
@@ -31,6 +32,12 @@ export interface FoldContext {
   live?: Map<Graph, LiveScope>;
   /** Nodes the folds and the clean-up took out of their graphs. */
   removedNodes: Set<Node>;
+}
+
+/** The names a fold may not take: a lookup and an add, nothing else. */
+export interface NameSet {
+  has(name: string): boolean;
+  add(name: string): void;
 }
 
 export interface LiveScope {
@@ -64,7 +71,7 @@ export function makeContext(model: Model, options: FoldOptions): FoldContext {
   const labels = new Map<Node, string>();
   // Only unnamed nodes need an entry (their op#index must not shift as nodes go); a named node is its name.
   eachGraph(model.graph, (g) => { g.nodes.forEach((n, i) => { if (!n.name) labels.set(n, nodeLabel(n, i)); }); });
-  let names: Set<string> | undefined;
+  let names: NameSet | undefined;
   // Only a fold needs every name in use (for fresh ones); an audit never builds the set.
   const allNames = () => names ??= namesIn(model);
   return {
@@ -83,20 +90,29 @@ export function makeContext(model: Model, options: FoldOptions): FoldContext {
   };
 }
 
-function namesIn(model: Model): Set<string> {
-  const names = new Set<string>();
+function namesIn(model: Model): NameSet {
+  // One flat table of every name (see graph/names.ts; a Set of a few hundred thousand strings costs several
+  // times more to fill), and a small set for the names the folds make.
+  let bound = 0;
   eachGraph(model.graph, (g) => {
-    for (const v of g.inputs) names.add(v.name);
-    for (const v of g.outputs) names.add(v.name);
-    for (const v of g.valueInfo) names.add(v.name);
-    for (const t of g.initializers) names.add(t.name);
+    bound += g.inputs.length + g.outputs.length + g.valueInfo.length + g.initializers.length;
+    for (const n of g.nodes) bound += 1 + n.outputs.length + n.inputs.length;
+  });
+  const table = nameTable(bound);
+  const add = table.add;
+  eachGraph(model.graph, (g) => {
+    for (const v of g.inputs) add(v.name);
+    for (const v of g.outputs) add(v.name);
+    for (const v of g.valueInfo) add(v.name);
+    for (const t of g.initializers) add(t.name);
     for (const n of g.nodes) {
-      if (n.name) names.add(n.name);
-      for (const o of n.outputs) if (o) names.add(o);
-      for (const i of n.inputs) if (i) names.add(i);
+      if (n.name) add(n.name);
+      for (const o of n.outputs) if (o) add(o);
+      for (const i of n.inputs) if (i) add(i);
     }
   });
-  return names;
+  const made = new Set<string>();
+  return { has: (v) => table.id(v) >= 0 || made.has(v), add: (v) => { made.add(v); } };
 }
 
 /** `base`, or `base.2`, `base.3`, ... : the first name not yet used. Deterministic for a given model. */

@@ -56,7 +56,7 @@ function cloneForRun(ctx: FoldContext, edit: Edit, m: RuleMatch): RuleMatch[] {
 }
 
 /** One sweep over every graph; returns whether anything changed or was put off to the next sweep. */
-function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], released: Set<string>, gone: Set<string>, rewritten: Map<Node, RewrittenNode>): boolean {
+function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], released: string[], gone: string[], rewritten: Map<Node, RewrittenNode>): boolean {
   let changed = false;
   const prove = ctx.options.prove;
   // what a scope built afresh would know: the index is current (flushPending keeps it so), derived caches start over
@@ -130,8 +130,8 @@ function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], release
       run.steps.forEach((x, i) => {
         folded.push(entry(x.node, x.node.opType, entryKind(scope, x.node), x.kind === 'layer-norm' ? layerNormHint(targets) : hint, i === 0 && o.clone ? cloneCost(o.matches[0]!) : 0));
       });
-      for (const r of edit.released) released.add(r);
-      for (const v of edit.goneValues) gone.add(v);
+      for (const r of edit.released) released.push(r);
+      for (const v of edit.goneValues) gone.push(v);
     }
   }
   flushPending(ctx);
@@ -162,8 +162,9 @@ export function foldModel(model: Model, options: FoldOptions = {}): { model: Mod
     }
   }
   const folded: LedgerEntry[] = [];
-  const released = new Set<string>();
-  const gone = new Set<string>();
+  // (names collected as lists: the clean-up looks them up, and needs a set only for a graph with value_info)
+  const released: string[] = [];
+  const gone: string[] = [];
   const touched = new Map<Node, RewrittenNode>();
   for (let pass = 0; pass < MAX_PASSES && sweep(ctx, scopes, folded, released, gone, touched); pass++) { /* until nothing changes */ }
   if (folded.length) {

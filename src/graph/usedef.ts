@@ -149,6 +149,8 @@ export interface Wiring {
  * exactly as buildUseDef of the graph as it then is (reader lists in node order included).
  */
 export interface EditableUseDef extends UseDef {
+  /** How many nodes read the value (consumers(v).length without the list). */
+  readerCount(v: string): number;
   /** `n` left the graph (`was`: its wiring as last told, when it changed since). */
   removeNode(n: Node, was?: Wiring): void;
   /** `n` joined the graph, wired as it is now. */
@@ -167,42 +169,41 @@ export interface EditableUseDef extends UseDef {
 export function editableUseDef(graph: Graph): EditableUseDef {
   const { nodes, tensors, ids, producer, init, flags, readers, bodies } = indexGraph(graph);
   const baseSize = ids.size;
-  // Changes live beside the flat arrays, for the few values edits touch; names new since the build get ids
-  // past the table's.
+  // Producer and initializer per id as plain arrays (edits set them); reader lists stay compressed rows until a
+  // value's readers change; names new since the build get ids past the table's.
+  const prod: Array<Node | undefined> = new Array(baseSize);
+  const inits: Array<Tensor | undefined> = new Array(baseSize);
+  for (let id = 0; id < baseSize; id++) {
+    prod[id] = producer[id]! >= 0 ? nodes[producer[id]!] : undefined;
+    inits[id] = init[id]! >= 0 ? tensors[init[id]!] : undefined;
+  }
   const extra = new Map<string, number>();
-  const prodOver = new Map<number, Node | null>();
-  const initOver = new Map<number, Tensor | null>();
   const flagOver = new Map<number, number>();
-  const readOver = new Map<number, Node[]>();
+  const readOver: Array<Node[] | undefined> = [];
   const ownerReads = new Map<Node, string[]>();
   for (const [j, refs] of bodies) ownerReads.set(nodes[j]!, refs);
   const unsorted = new Set<number>();
   const idIn = (v: string): number => { const id = ids.id(v); return id >= 0 ? id : (extra.get(v) ?? -1); };
   const idAdd = (v: string): number => {
     let id = idIn(v);
-    if (id < 0) { id = baseSize + extra.size; extra.set(v, id); }
+    if (id < 0) { id = baseSize + extra.size; extra.set(v, id); prod[id] = undefined; inits[id] = undefined; }
     return id;
   };
-  const producerAt = (id: number): Node | undefined => {
-    const o = prodOver.get(id);
-    if (o !== undefined) return o ?? undefined;
-    return id < baseSize && producer[id]! >= 0 ? nodes[producer[id]!] : undefined;
-  };
-  const initAt = (id: number): Tensor | undefined => {
-    const o = initOver.get(id);
-    if (o !== undefined) return o ?? undefined;
-    return id < baseSize && init[id]! >= 0 ? tensors[init[id]!] : undefined;
-  };
   const flagsAt = (id: number): number => flagOver.get(id) ?? (id < baseSize ? flags[id]! : 0);
+  const readerCountAt = (id: number): number => {
+    const o = readOver[id];
+    if (o) return o.length;
+    return id < baseSize ? readers.start[id + 1]! - readers.start[id]! : 0;
+  };
   const readersAt = (id: number): Node[] => {
-    const o = readOver.get(id);
+    const o = readOver[id];
     if (o) return o;
     const out: Node[] = [];
     if (id < baseSize) for (let k = readers.start[id]!, end = readers.start[id + 1]!; k < end; k++) out.push(nodes[readers.node[k]!]!);
     return out;
   };
-  const producerOf = (v: string) => { const id = idIn(v); return id < 0 ? undefined : producerAt(id); };
-  const initializerOf = (v: string) => { const id = idIn(v); return id < 0 ? undefined : initAt(id); };
+  const producerOf = (v: string) => { const id = idIn(v); return id < 0 ? undefined : prod[id]; };
+  const initializerOf = (v: string) => { const id = idIn(v); return id < 0 ? undefined : inits[id]; };
   /** The values a node reads, once each: its inputs and what its bodies read from outside. */
   const readSet = (inputs: readonly string[], n: Node): Set<string> => {
     const s = new Set<string>();
@@ -212,32 +213,33 @@ export function editableUseDef(graph: Graph): EditableUseDef {
   };
   const dropReader = (v: string, n: Node) => {
     const id = idIn(v);
-    if (id < 0) return;
-    readOver.set(id, readersAt(id).filter((x) => x !== n));
+    if (id < 0 || readerCountAt(id) === 0) return;
+    readOver[id] = readersAt(id).filter((x) => x !== n);
   };
   const addReader = (v: string, n: Node) => {
     const id = idAdd(v);
     const list = readersAt(id);
     if (list.includes(n)) return;
     list.push(n);
-    readOver.set(id, list);
+    readOver[id] = list;
     if (list.length > 1) unsorted.add(id);
   };
   const dropOutput = (o: string, n: Node) => {
     const id = idIn(o);
-    if (id >= 0 && producerAt(id) === n) prodOver.set(id, null);
+    if (id >= 0 && prod[id] === n) prod[id] = undefined;
   };
   const wire = (n: Node, inputs: readonly string[], outputs: readonly string[], on: boolean) => {
-    for (const o of outputs) if (o) { if (on) prodOver.set(idAdd(o), n); else dropOutput(o, n); }
+    for (const o of outputs) if (o) { if (on) prod[idAdd(o)] = n; else dropOutput(o, n); }
     for (const v of readSet(inputs, n)) if (on) addReader(v, n); else dropReader(v, n);
   };
   return {
     graph,
     producer: producerOf,
     consumers: (v) => { const id = idIn(v); return id < 0 ? [] : readersAt(id).slice(); },
+    readerCount: (v) => { const id = idIn(v); return id < 0 ? 0 : readerCountAt(id); },
     isGraphOutput: (v) => { const id = idIn(v); return id >= 0 && (flagsAt(id) & IS_OUTPUT) !== 0; },
     isGraphInput: (v) => { const id = idIn(v); return id >= 0 && (flagsAt(id) & IS_INPUT) !== 0; },
-    defines: (v) => { const id = idIn(v); return id >= 0 && (producerAt(id) !== undefined || initAt(id) !== undefined || (flagsAt(id) & IS_INPUT) !== 0); },
+    defines: (v) => { const id = idIn(v); return id >= 0 && (prod[id] !== undefined || inits[id] !== undefined || (flagsAt(id) & IS_INPUT) !== 0); },
     initializer: initializerOf,
     constantTensor: (v) => initializerOf(v) ?? constantOfNode(producerOf(v)),
     removeNode(n, was) {
@@ -249,11 +251,18 @@ export function editableUseDef(graph: Graph): EditableUseDef {
       wire(n, n.inputs, n.outputs, true);
     },
     rewire(n, was) {
-      const before = readSet(was.inputs, n), after = readSet(n.inputs, n);
-      for (const v of before) if (!after.has(v)) dropReader(v, n);
       for (const o of was.outputs) if (o && !n.outputs.includes(o)) dropOutput(o, n);
-      for (const o of n.outputs) if (o) prodOver.set(idAdd(o), n);
-      for (const v of after) if (!before.has(v)) addReader(v, n);
+      for (const o of n.outputs) if (o) prod[idAdd(o)] = n;
+      // (a node's inputs rarely repeat a value: compare the short lists directly)
+      const bodyRefs = ownerReads.get(n);
+      if (bodyRefs) {
+        const before = readSet(was.inputs, n), after = readSet(n.inputs, n);
+        for (const v of before) if (!after.has(v)) dropReader(v, n);
+        for (const v of after) if (!before.has(v)) addReader(v, n);
+        return;
+      }
+      for (const v of was.inputs) if (v && !n.inputs.includes(v)) dropReader(v, n);
+      for (const v of n.inputs) if (v && !was.inputs.includes(v)) addReader(v, n);
     },
     refreshBodyReads(n) {
       const before = readSet(n.inputs, n);
@@ -262,14 +271,14 @@ export function editableUseDef(graph: Graph): EditableUseDef {
       for (const v of before) if (!after.has(v)) dropReader(v, n);
       for (const v of after) if (!before.has(v)) addReader(v, n);
     },
-    addInitializer(t) { initOver.set(idAdd(t.name), t); },
-    removeInitializer(name) { const id = idIn(name); if (id >= 0) initOver.set(id, null); },
+    addInitializer(t) { inits[idAdd(t.name)] = t; },
+    removeInitializer(name) { const id = idIn(name); if (id >= 0) inits[id] = undefined; },
     addGraphInput(name) { const id = idAdd(name); flagOver.set(id, flagsAt(id) | IS_INPUT); },
     settle() {
       if (!unsorted.size) return;
       const at = new Map<Node, number>();
       graph.nodes.forEach((n, i) => at.set(n, i));
-      for (const id of unsorted) readOver.get(id)?.sort((a, b) => (at.get(a) ?? -1) - (at.get(b) ?? -1));
+      for (const id of unsorted) readOver[id]?.sort((a, b) => (at.get(a) ?? -1) - (at.get(b) ?? -1));
       unsorted.clear();
     },
   };
