@@ -97,6 +97,7 @@ export function makeNode(opType: string, name: string, inputs: string[], outputs
  * it keeps them, see FoldContext.live) what changed: each index then answers for the graph as it now is.
  */
 export function flushPending(ctx: FoldContext): void {
+  ctx.flushed = true;
   for (const [g, p] of ctx.pending) {
     const lists = p.removed.size > 0 || p.inserts.size > 0 || p.initializers.length > 0 || p.inputs.length > 0;
     const inserted: Node[] = [];

@@ -32,6 +32,8 @@ export interface FoldContext {
   live?: Map<Graph, LiveScope>;
   /** Nodes the folds and the clean-up took out of their graphs. */
   removedNodes: Set<Node>;
+  /** Whether a sweep's list changes were applied yet (see flushPending). */
+  flushed: boolean;
 }
 
 /** The names a fold may not take: a lookup and an add, nothing else. */
@@ -73,8 +75,9 @@ export function makeContext(model: Model, options: FoldOptions): FoldContext {
   eachGraph(model.graph, (g) => { g.nodes.forEach((n, i) => { if (!n.name) labels.set(n, nodeLabel(n, i)); }); });
   let names: NameSet | undefined;
   // Only a fold needs every name in use (for fresh ones); an audit never builds the set.
-  const allNames = () => names ??= namesIn(model);
-  return {
+  // (with many bodies, asking each index would cost more per fresh name than one table of every name)
+  const allNames = () => names ??= (ctx.live && !ctx.flushed && ctx.live.size <= 16 ? namesBeforeFlush(model, ctx.live) : namesIn(model));
+  const ctx: FoldContext = {
     options,
     allowOverridable: options.allowOverridable ?? false,
     keep: new Set(options.keep ?? []),
@@ -87,7 +90,9 @@ export function makeContext(model: Model, options: FoldOptions): FoldContext {
     nameCounters: new Map(),
     pending: new Map(),
     removedNodes: new Set(),
+    flushed: false,
   };
+  return ctx;
 }
 
 function namesIn(model: Model): NameSet {
@@ -113,6 +118,27 @@ function namesIn(model: Model): NameSet {
   });
   const made = new Set<string>();
   return { has: (v) => table.id(v) >= 0 || made.has(v), add: (v) => { made.add(v); } };
+}
+
+/**
+ * The names in use while no sweep has applied its list changes yet: every value name is still in its graph's
+ * index (a node a fold rewired away from a name leaves it to a node still listed, until the sweep ends), so
+ * only node names and value_info names need a table of their own. Same answers as namesIn, less hashing.
+ */
+function namesBeforeFlush(model: Model, live: Map<Graph, LiveScope>): NameSet {
+  let bound = 0;
+  eachGraph(model.graph, (g) => { bound += g.nodes.length + g.valueInfo.length; });
+  const table = nameTable(bound);
+  eachGraph(model.graph, (g) => {
+    for (const v of g.valueInfo) table.add(v.name);
+    for (const n of g.nodes) if (n.name) table.add(n.name);
+  });
+  const indexes = [...live.values()].map((l) => l.ud);
+  const made = new Set<string>();
+  return {
+    has: (v) => made.has(v) || table.id(v) >= 0 || indexes.some((ud) => ud.knows(v)),
+    add: (v) => { made.add(v); },
+  };
 }
 
 /** `base`, or `base.2`, `base.3`, ... : the first name not yet used. Deterministic for a given model. */

@@ -105,12 +105,30 @@ function indexGraph(graph: Graph): Built {
   return { nodes, tensors, ids, producer, init, flags, readers: csr(ids.size, edgeValue, edgeNode, edges), bodies };
 }
 
+/**
+ * The analysis asks several questions about one value in a row (producer, readers, output, initializer): the id
+ * of the last name found is kept, so those cost one hash of the name instead of one each. (Ids never change.)
+ */
+function lastLookup(id: (v: string) => number): (v: string) => number {
+  let lastName: string | undefined;
+  let lastId = -1;
+  return (v) => {
+    if (v === lastName) return lastId;
+    const k = id(v);
+    if (k >= 0) { lastName = v; lastId = k; }
+    return k;
+  };
+}
+
+/** The reader list of a value nobody reads any more (shared, never changed: adding a reader makes a new list). */
+const NO_READERS: Node[] = [];
+
 const constantOfNode = (p: Node | undefined): Tensor | undefined =>
   p && p.opType === 'Constant' && (p.domain === '' || p.domain === 'ai.onnx') ? constantNodeTensor(p) : undefined;
 
 export function buildUseDef(graph: Graph): UseDef {
   const { nodes, tensors, ids, producer, init, flags, readers } = indexGraph(graph);
-  const idIn = ids.id;
+  const idIn = lastLookup(ids.id);
   const producerOf = (v: string): Node | undefined => {
     const id = idIn(v);
     return id < 0 || producer[id]! < 0 ? undefined : nodes[producer[id]!];
@@ -151,6 +169,8 @@ export interface Wiring {
 export interface EditableUseDef extends UseDef {
   /** How many nodes read the value (consumers(v).length without the list). */
   readerCount(v: string): number;
+  /** Whether the name was ever a value name of the graph (an input, output, initializer or node input/output). */
+  knows(v: string): boolean;
   /** `n` left the graph (`was`: its wiring as last told, when it changed since). */
   removeNode(n: Node, was?: Wiring): void;
   /** `n` joined the graph, wired as it is now. */
@@ -183,7 +203,8 @@ export function editableUseDef(graph: Graph): EditableUseDef {
   const ownerReads = new Map<Node, string[]>();
   for (const [j, refs] of bodies) ownerReads.set(nodes[j]!, refs);
   const unsorted = new Set<number>();
-  const idIn = (v: string): number => { const id = ids.id(v); return id >= 0 ? id : (extra.get(v) ?? -1); };
+  const tableId = lastLookup(ids.id);
+  const idIn = (v: string): number => { const id = tableId(v); return id >= 0 ? id : (extra.get(v) ?? -1); };
   const idAdd = (v: string): number => {
     let id = idIn(v);
     if (id < 0) { id = baseSize + extra.size; extra.set(v, id); prod[id] = undefined; inits[id] = undefined; }
@@ -213,12 +234,17 @@ export function editableUseDef(graph: Graph): EditableUseDef {
   };
   const dropReader = (v: string, n: Node) => {
     const id = idIn(v);
-    if (id < 0 || readerCountAt(id) === 0) return;
+    if (id < 0) return;
+    const count = readerCountAt(id);
+    if (count === 0) return;
+    // (most values have one reader: no list to filter then)
+    if (count === 1) { if (readerAt0(id) === n) readOver[id] = NO_READERS; return; }
     readOver[id] = readersAt(id).filter((x) => x !== n);
   };
+  const readerAt0 = (id: number): Node => readOver[id]?.[0] ?? nodes[readers.node[readers.start[id]!]!]!;
   const addReader = (v: string, n: Node) => {
     const id = idAdd(v);
-    const list = readersAt(id);
+    const list = readerCountAt(id) === 0 ? [] : readersAt(id);
     if (list.includes(n)) return;
     list.push(n);
     readOver[id] = list;
@@ -230,13 +256,16 @@ export function editableUseDef(graph: Graph): EditableUseDef {
   };
   const wire = (n: Node, inputs: readonly string[], outputs: readonly string[], on: boolean) => {
     for (const o of outputs) if (o) { if (on) prod[idAdd(o)] = n; else dropOutput(o, n); }
-    for (const v of readSet(inputs, n)) if (on) addReader(v, n); else dropReader(v, n);
+    // (reading a value twice is one read: adding checks the list, and dropping a reader twice is harmless)
+    const reads = ownerReads.has(n) ? readSet(inputs, n) : inputs;
+    for (const v of reads) if (v) { if (on) addReader(v, n); else dropReader(v, n); }
   };
   return {
     graph,
     producer: producerOf,
     consumers: (v) => { const id = idIn(v); return id < 0 ? [] : readersAt(id).slice(); },
     readerCount: (v) => { const id = idIn(v); return id < 0 ? 0 : readerCountAt(id); },
+    knows: (v) => idIn(v) >= 0,
     isGraphOutput: (v) => { const id = idIn(v); return id >= 0 && (flagsAt(id) & IS_OUTPUT) !== 0; },
     isGraphInput: (v) => { const id = idIn(v); return id >= 0 && (flagsAt(id) & IS_INPUT) !== 0; },
     defines: (v) => { const id = idIn(v); return id >= 0 && (prod[id] !== undefined || inits[id] !== undefined || (flagsAt(id) & IS_INPUT) !== 0); },
