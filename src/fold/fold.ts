@@ -83,18 +83,21 @@ function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], release
         m.rule.rewrite(ctx, m, edit);
         outputs.push(...edit.regionOutputs);
       }
-      edit.regionOutputs = [...new Set([...outputs, ...edit.regionNodes.flatMap((n) => n.outputs.filter((v) => v !== ''))])];
+      // (the region's outputs and the nodes' names are for the proof alone)
+      if (prove) edit.regionOutputs = [...new Set([...outputs, ...edit.regionNodes.flatMap((n) => n.outputs.filter((v) => v !== ''))])];
       const before = prove ? regionBefore(edit) : undefined;
       const inPlace = ctx.options.reuseBuffers ?? true;
       const undo = applyEdit(ctx, edit, { inPlace: !prove && inPlace });
-      const names = run.steps.map((x) => ctx.labels.get(x.node) ?? x.node.name);
-      for (const n of [...involved, ...matches.map((m) => m.layer.node), ...edit.changes.map((c) => c.node)]) dirty.add(n);
+      for (const n of involved) dirty.add(n);
+      for (const m of matches) dirty.add(m.layer.node);
+      for (const c of edit.changes) dirty.add(c.node);
       changed = true;
       const targets = o.matches.map((m) => m.layer.label);
       const target = targets.join(', ');
       const direction = o.matches[0]!.rule.direction;
       let proof: ProofFigures | undefined;
       if (prove) {
+        const names = run.steps.map((x) => ctx.labels.get(x.node) ?? x.node.name);
         const r = prove({ before: before!, after: regionAfter(edit), opsetOf: ctx.opsetOf, nodes: names, target, direction, graph: scope.path });
         if (typeof r === 'boolean' ? !r : !r.passed) {
           undo();
@@ -177,8 +180,9 @@ export function foldModel(model: Model, options: FoldOptions = {}): { model: Mod
   const done = new Set(folded.map((e) => `${e.graph}\u0000${e.node}`));
   const kept: LedgerEntry[] = findingsOf(ctx, model, scopes).filter((f) => !done.has(`${f.graph}\u0000${f.node}`))
     .map((f) => ({ ...f, status: 'kept' as const }));
-  const at = (e: LedgerEntry) => order.get(e.graph)?.get(e.node) ?? 1e15;
-  const normalizations = [...folded, ...kept].sort((a, b) => at(a) - at(b));
+  // each entry's place looked up once (the sort is stable, as before)
+  const placedAt = [...folded, ...kept].map((e) => ({ e, at: order.get(e.graph)?.get(e.node) ?? 1e15 }));
+  const normalizations = placedAt.sort((a, b) => a.at - b.at).map((x) => x.e);
   // a node a later fold or the clean-up removed is no longer in the model to be watched
   return {
     model,
