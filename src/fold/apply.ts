@@ -2,6 +2,7 @@
 // to the graph with an undo, plus the before/after regions a numeric proof runs.
 import type { Attribute, Graph, Node, Tensor, ValueInfo } from '../graph/ir.js';
 import { touch } from '../graph/edit.js';
+import type { EditableUseDef } from '../graph/usedef.js';
 import { decodeValues, scaleTensor, storeValues, type ScaleGuard } from './values.js';
 import { scaleWeights, type ChannelMap } from './weights.js';
 import { makeTensor } from '../graph/tensor.js';
@@ -98,6 +99,7 @@ export function makeNode(opType: string, name: string, inputs: string[], outputs
  */
 export function flushPending(ctx: FoldContext): void {
   ctx.flushed = true;
+  const edited = new Set<EditableUseDef>();
   for (const [g, p] of ctx.pending) {
     const lists = p.removed.size > 0 || p.inserts.size > 0 || p.initializers.length > 0 || p.inputs.length > 0;
     const inserted: Node[] = [];
@@ -117,25 +119,27 @@ export function flushPending(ctx: FoldContext): void {
     }
     for (const n of p.removed) ctx.removedNodes.add(n);
     const live = ctx.live?.get(g);
-    if (live) updateIndex(ctx, live, p, inserted);
+    if (live) updateIndex(ctx, live, p, inserted, edited);
   }
   ctx.pending.clear();
+  // reader lists back in node order, once per graph (a graph with many edited bodies is not walked per body)
+  for (const ud of edited) ud.settle();
 }
 
 /** One graph's index follows a sweep's edits; owners of an edited body read what the body now reads. */
-function updateIndex(ctx: FoldContext, live: LiveScope, p: PendingGraph, inserted: Node[]): void {
+function updateIndex(ctx: FoldContext, live: LiveScope, p: PendingGraph, inserted: Node[], edited: Set<EditableUseDef>): void {
   const ud = live.ud;
+  edited.add(ud);
   const added = new Set(inserted);
   for (const n of p.removed) ud.removeNode(n, p.rewired.get(n));
   for (const [n, was] of p.rewired) if (!p.removed.has(n) && !added.has(n)) ud.rewire(n, was);
   for (const n of inserted) ud.addNode(n);
   for (const t of p.initializers) ud.addInitializer(t);
   for (const v of p.inputs) ud.addGraphInput(v.name);
-  ud.settle();
   for (let s = live.scope; s.owner && s.parent; s = s.parent) {
     const outer = ctx.live!.get(s.parent.graph)!.ud;
     outer.refreshBodyReads(s.owner);
-    outer.settle();
+    edited.add(outer);
   }
 }
 
