@@ -17,8 +17,12 @@ export function cleanUp(model: Model, released: readonly string[], goneValues: r
   const dropNodes = new Map<Graph, Set<Node>>();
   const gone = [...goneValues];
   let releasedSet: Set<string> | undefined;
-  const unread = (s: Scope, v: string) => (ctx?.live ? ctx.live.get(s.graph)!.ud.readerCount(v) : s.ud.consumers(v).length) === 0
-    && !s.ud.isGraphOutput(v) && !s.ud.isGraphInput(v);
+  // (the driver's indexes count readers without making the list)
+  const readerCount = new Map(scopes.map((s) => {
+    const live = ctx?.live?.get(s.graph);
+    return [s, live ? live.ud.readerCount : (v: string) => s.ud.consumers(v).length] as const;
+  }));
+  const unread = (s: Scope, v: string) => readerCount.get(s)!(v) === 0 && !s.ud.isGraphOutput(v) && !s.ud.isGraphInput(v);
   const dropInit = (s: Scope, t: Tensor) => {
     let d = dropInits.get(s.graph);
     if (!d) dropInits.set(s.graph, d = { tensors: new Set(), names: [] });
