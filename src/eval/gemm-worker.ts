@@ -1,21 +1,25 @@
-// A worker thread of src/eval/threads.ts: computes bands of C = A * B over shared row-major operands with the
-// same kernel as the calling thread, then counts its band done.
-import { parentPort } from 'node:worker_threads';
-import { gemmBand } from './gemm.js';
-import { simdKernels } from './wasm-gemm.js';
-import type { BandJob } from './threads.js';
+// A worker thread of src/eval/threads.ts: waits on its control block for a band of kernel tiles, runs it on the
+// calling thread's shared kernel memory (the operands are already laid out there), then counts it done.
+import { workerData } from 'node:worker_threads';
+import { runTiles, simdKernelsOn, type TileSpan } from './wasm-gemm.js';
+import { SPAN_FIELDS, type WorkerSetup } from './threads.js';
 
-parentPort!.on('message', (job: BandJob) => {
-  const flag = new Int32Array(job.done);
+const setup = workerData as WorkerSetup;
+const simd = simdKernelsOn(setup.memory);
+const control = new Int32Array(setup.control), done = new Int32Array(setup.done);
+
+// this thread only ever waits for work (Worker.terminate interrupts the wait)
+for (let seq = 0; ;) {
+  Atomics.wait(control, 0, seq);
+  seq = Atomics.load(control, 0);
+  const span = {} as Record<(typeof SPAN_FIELDS)[number], number>;
+  SPAN_FIELDS.forEach((f, i) => { span[f] = control[1 + i]!; });
   try {
-    const view = (buf: SharedArrayBuffer, n: number) => (job.f64 ? new Float64Array(buf, 0, n) : new Float32Array(buf, 0, n));
-    const A = view(job.a, job.M * job.K), B = view(job.b, job.K * job.N), C = view(job.c, job.M * job.N);
-    const simd = simdKernels();
     if (!simd) throw new Error('no WebAssembly SIMD in this thread');
-    gemmBand(simd, job.i0, job.i1, job.N, job.K, A, B, C);
+    runTiles(simd, { ...span, f64: span.f64 === 1 } as TileSpan);
   } catch {
-    Atomics.add(flag, 1, 1);
+    Atomics.add(done, 1, 1);
   }
-  Atomics.add(flag, 0, 1);
-  Atomics.notify(flag, 0);
-});
+  Atomics.add(done, 0, 1);
+  Atomics.notify(done, 0);
+}

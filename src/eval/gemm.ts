@@ -7,8 +7,8 @@
 // (4 rows / 4 columns interleaved along k) and a 4x4 register tile accumulates each output block, the usual
 // layout for a fast scalar matrix multiply. Sums are in float64; a Float32Array C rounds once per k-block.
 import type { NumArray } from './value.js';
-import { simdKernels, type SimdKernels } from './wasm-gemm.js';
-import { inBands, PARALLEL_MIN_WORK, sharedArray, threadCount } from './threads.js';
+import { runTiles, simdKernels, type SimdKernels, type TileSpan } from './wasm-gemm.js';
+import { inBands, PARALLEL_MIN_WORK, threadCount } from './threads.js';
 import { isConstant } from './pool.js';
 
 export interface Operand {
@@ -82,14 +82,10 @@ export function gemm(M: number, N: number, K: number, A: Operand, B: Operand, C:
     return;
   }
   const simd = useSimd ? simdKernels() : undefined;
-  // the SIMD path packs all of A into module memory; very large operands stay on the scalar path
-  const simdBytes = (Math.ceil(M / 4) * 4 * K + K * SNC + SMC * SNC) * 8;
-  if (simd && M * N * K >= 512 && simdBytes <= 1 << 29) {
-    const threads = threadCount();
-    if (M === 1 && !(C instanceof Float32Array)) gemv(N, K, A, B, C, cOff, accumulate);
-    else if (threads > 1 && M >= 8 && M * N * K >= PARALLEL_MIN_WORK) gemmThreaded(simd, threads, M, N, K, A, B, C, cOff, ldc, accumulate);
-    else gemmSimd(simd, M, N, K, A, B, C, cOff, ldc, accumulate);
-    return;
+  if (simd && M * N * K >= 512) {
+    if (M === 1 && !(C instanceof Float32Array)) { gemv(N, K, A, B, C, cOff, accumulate); return; }
+    // very large operands (past the kernel memory's room even in row blocks) stay on the scalar path
+    if (gemmSimd(simd, M, N, K, A, B, C, cOff, ldc, accumulate)) return;
   }
   for (let j0 = 0; j0 < N; j0 += NC) {
     const nc = Math.min(NC, N - j0);
@@ -195,10 +191,15 @@ export function simdOn(): boolean { return useSimd; }
 export function setSimd(on: boolean): void { useSimd = on; }
 
 const SMC = 128, SNC = 512;
-let views: { buffer: ArrayBuffer; f32: Float32Array; f64: Float64Array } | undefined;
+/** Bytes the SIMD path lays out in the kernel memory at once; a product needing more goes in row blocks. */
+const SIMD_MAX_BYTES = 1 << 29;
+let views: { buffer: ArrayBufferLike; f32: Float32Array; f64: Float64Array } | undefined;
 
-/** Views of the SIMD module's memory with at least `bytes` bytes (each call lays out its data from offset 0). */
-export function memoryViews(simd: SimdKernels, bytes: number): { f32: Float32Array; f64: Float64Array } {
+// Which A the kernel memory holds packed at offset 0, so the next product with the same constant operand (a
+// weight, for the next probe of a lockstep side) skips packing. Anything else that writes there clears it.
+let packedNow: { data: WeakRef<NumArray>; key: string } | undefined;
+
+function viewsOf(simd: SimdKernels, bytes: number): { f32: Float32Array; f64: Float64Array } {
   const mem = simd.memory;
   if (mem.buffer.byteLength < bytes) mem.grow(Math.ceil((bytes - mem.buffer.byteLength) / 65536));
   if (!views || views.buffer !== mem.buffer) {
@@ -207,45 +208,35 @@ export function memoryViews(simd: SimdKernels, bytes: number): { f32: Float32Arr
   return views;
 }
 
-// Packed A of constant operands (weights), so repeated runs copy the packed tiles in with one memcpy. The copies
-// are capped in total size (a large model packs afresh past the cap rather than doubling its weight memory); an
-// entry's bytes return to the budget when its weight array is collected.
-const packedA = new WeakMap<NumArray, Map<string, Float32Array | Float64Array>>();
-const PACKED_MAX_BYTES = 128 * 1024 * 1024;
-let packedBytes = 0;
-const packedFreed = new FinalizationRegistry<number>((bytes) => { packedBytes -= bytes; });
+/** Forget the packed copy of `data` (its array now holds other values). */
+export function forgetPacked(data: NumArray): void {
+  if (packedNow?.data.deref() === data) packedNow = undefined;
+}
+
+/** Views of the SIMD module's memory with at least `bytes` bytes (each call lays out its data from offset 0). */
+export function memoryViews(simd: SimdKernels, bytes: number): { f32: Float32Array; f64: Float64Array } {
+  packedNow = undefined; // the caller overwrites the packed operand
+  return viewsOf(simd, bytes);
+}
 
 // B panel rows get two cache lines of padding, so the kernel's strided reads down a panel column spread over
 // the cache sets instead of landing in a few (a power-of-two row length halved float64 speed when measured)
 const B_PAD_BYTES = 128;
 
-/**
- * The micro-kernel in WebAssembly: all of A is packed once (4-row tiles over the whole k range), then for each
- * panel of up to 512 columns B is copied row-major and each 128-row block of C is computed in module memory with
- * the sum over k kept in registers, and copied (or added) into C. The kernel's element type follows C: a
- * Float32Array C is computed in float32, anything else in float64.
- */
-function gemmSimd(simd: SimdKernels, M: number, N: number, K: number, A: Operand, B: Operand, C: NumArray, cOff: number, ldc: number, accumulate: boolean): void {
-  const f64 = !(C instanceof Float32Array);
-  const es = f64 ? 8 : 4, nr = 32 / es;
-  const mTilesAll = Math.ceil(M / 4);
-  const ldbMax = SNC + B_PAD_BYTES / es;
-  const paBytes = mTilesAll * 4 * K * es, pbBytes = K * ldbMax * es, pcBytes = SMC * SNC * es;
-  const { f32, f64: d64 } = memoryViews(simd, paBytes + pbBytes + pcBytes);
-  const mem = f64 ? d64 : f32;
-  const pb = paBytes, pc = paBytes + pbBytes;
-  const pbE = pb / es, pcE = pc / es;
-  const kern = f64 ? simd.k64 : simd.k32;
-  const ad = A.data, ars = A.rs, acs = A.cs, bd = B.data, brs = B.rs, bcs = B.cs;
-  // pack A: tile t holds rows 4t..4t+3, k-major
-  const aKey = isConstant(ad) ? `${A.off},${ars},${acs},${M},${K},${es}` : undefined;
-  const aCached = aKey === undefined ? undefined : packedA.get(ad)?.get(aKey);
-  if (aCached) mem.set(aCached, 0);
+/** Pack rows [r0, r0 + rows) of A into 4-row tiles, k-major, from offset 0 of `mem` (rows past the end are 0). */
+function packATiles(mem: Float32Array | Float64Array, A: Operand, r0: number, rows: number, K: number): void {
+  const ad = A.data, ars = A.rs, acs = A.cs;
   let q = 0;
-  for (let t = 0; t < (aCached ? 0 : mTilesAll); t++) {
-    const ib = t * 4, rows = Math.min(4, M - ib);
-    const base = A.off + ib * ars;
-    if (rows === 4) {
+  for (let ib = 0; ib < rows; ib += 4) {
+    const n = Math.min(4, rows - ib);
+    const base = A.off + (r0 + ib) * ars;
+    if (n === 4 && acs === 1) {
+      const r1 = base + ars, r2 = r1 + ars, r3 = r2 + ars;
+      for (let k = 0; k < K; k++) {
+        mem[q] = ad[base + k]!; mem[q + 1] = ad[r1 + k]!; mem[q + 2] = ad[r2 + k]!; mem[q + 3] = ad[r3 + k]!;
+        q += 4;
+      }
+    } else if (n === 4) {
       const r1 = base + ars, r2 = r1 + ars, r3 = r2 + ars;
       for (let k = 0; k < K; k++) {
         const o = k * acs;
@@ -254,73 +245,65 @@ function gemmSimd(simd: SimdKernels, M: number, N: number, K: number, A: Operand
       }
     } else {
       for (let k = 0; k < K; k++) {
-        for (let r = 0; r < 4; r++) mem[q + r] = r < rows ? ad[base + r * ars + k * acs]! : 0;
+        for (let r = 0; r < 4; r++) mem[q + r] = r < n ? ad[base + r * ars + k * acs]! : 0;
         q += 4;
       }
     }
   }
-  if (aKey !== undefined && !aCached && packedBytes + paBytes <= PACKED_MAX_BYTES) {
-    let m = packedA.get(ad);
-    if (!m) { m = new Map(); packedA.set(ad, m); }
-    m.set(aKey, mem.slice(0, mTilesAll * 4 * K));
-    packedBytes += paBytes;
-    packedFreed.register(ad, paBytes);
-  }
+}
+
+/**
+ * The micro-kernel in WebAssembly: A is packed into 4-row tiles over the whole k range, then for each panel of
+ * up to 512 columns B is copied row-major and C's rows are computed in the kernel memory with the sum over k
+ * kept in registers, in bands of tiles across threads (src/eval/threads.ts) when the product is large, and
+ * copied (or added) into C. The kernel's element type follows C: a Float32Array C is computed in float32,
+ * anything else in float64. Returns false when even a block of 4 rows does not fit the kernel memory.
+ */
+function gemmSimd(simd: SimdKernels, M: number, N: number, K: number, A: Operand, B: Operand, C: NumArray, cOff: number, ldc: number, accumulate: boolean): boolean {
+  const f64 = !(C instanceof Float32Array);
+  const es = f64 ? 8 : 4, nr = 32 / es;
+  const ldcMax = Math.ceil(Math.min(N, SNC) / nr) * nr;
+  const pbBytes = K * (ldcMax + B_PAD_BYTES / es) * es;
+  const rowBytes = (K + ldcMax) * es; // a packed row of A and a row of C
+  const room = SIMD_MAX_BYTES - pbBytes;
+  if (room < 4 * rowBytes) return false;
+  const block = Math.min(Math.ceil(M / 4) * 4, Math.floor(room / rowBytes / 4) * 4);
+  const bd = B.data, brs = B.rs, bcs = B.cs;
   const sameType = f64 ? C instanceof Float64Array : true;
-  for (let j0 = 0; j0 < N; j0 += SNC) {
-    const nc = Math.min(SNC, N - j0), nTiles = Math.ceil(nc / nr), ldcE = nTiles * nr;
-    const ldbE = ldcE + B_PAD_BYTES / es;
-    // copy B[:, j0:j0+nc] row-major (ldbE elements per row), zeroing the columns past nc
-    if (nc < ldcE) mem.fill(0, pbE, pbE + K * ldbE);
-    for (let k = 0; k < K; k++) {
-      const o = B.off + k * brs + j0 * bcs, dst = pbE + k * ldbE;
-      if (bcs === 1 && nc >= 16) mem.set(bd.subarray(o, o + nc), dst);
-      else for (let c = 0; c < nc; c++) mem[dst + c] = bd[o + c * bcs]!;
+  const threads = threadCount();
+  for (let r0 = 0; r0 < M; r0 += block) {
+    const rows = Math.min(block, M - r0), tiles = Math.ceil(rows / 4);
+    const pb = tiles * 4 * K * es, pc = pb + pbBytes;
+    const { f32, f64: d64 } = viewsOf(simd, pc + tiles * 4 * ldcMax * es);
+    const mem = f64 ? d64 : f32;
+    const pbE = pb / es, pcE = pc / es;
+    // the whole of a constant A packed by the last product is still there
+    const key = rows === M && isConstant(A.data) ? `${A.off},${A.rs},${A.cs},${M},${K},${es}` : undefined;
+    if (key === undefined || packedNow?.key !== key || packedNow.data.deref() !== A.data) {
+      packATiles(mem, A, r0, rows, K);
+      packedNow = key === undefined ? undefined : { data: new WeakRef(A.data), key };
     }
-    for (let i0 = 0; i0 < M; i0 += SMC) {
-      const mc = Math.min(SMC, M - i0), mTiles = Math.ceil(mc / 4);
-      kern((i0 / 4) * 4 * K * es, pb, pc, mTiles, nTiles, K, ldcE * es, ldbE * es);
-      for (let r = 0; r < mc; r++) {
-        const dst = cOff + (i0 + r) * ldc + j0, src = pcE + r * ldcE;
+    for (let j0 = 0; j0 < N; j0 += SNC) {
+      const nc = Math.min(SNC, N - j0), nTiles = Math.ceil(nc / nr), ldcE = nTiles * nr;
+      const ldbE = ldcE + B_PAD_BYTES / es;
+      // copy B[:, j0:j0+nc] row-major (ldbE elements per row), zeroing the columns past nc
+      if (nc < ldcE) mem.fill(0, pbE, pbE + K * ldbE);
+      for (let k = 0; k < K; k++) {
+        const o = B.off + k * brs + j0 * bcs, dst = pbE + k * ldbE;
+        if (bcs === 1 && nc >= 16) mem.set(bd.subarray(o, o + nc), dst);
+        else for (let c = 0; c < nc; c++) mem[dst + c] = bd[o + c * bcs]!;
+      }
+      const span = (t0: number, t1: number): TileSpan =>
+        ({ f64, pa: 0, pb, pc, nTiles, K, ldcBytes: ldcE * es, ldbBytes: ldbE * es, t0, t1, chunk: SMC / 4 });
+      if (threads > 1 && rows >= 8 && rows * nc * K >= PARALLEL_MIN_WORK) inBands(tiles, threads, span, (s) => runTiles(simd, s));
+      else runTiles(simd, span(0, tiles));
+      for (let r = 0; r < rows; r++) {
+        const dst = cOff + (r0 + r) * ldc + j0, src = pcE + r * ldcE;
         if (accumulate) for (let c = 0; c < nc; c++) C[dst + c] += mem[src + c]!;
         else if (sameType) C.set(mem.subarray(src, src + nc), dst);
         else for (let c = 0; c < nc; c++) C[dst + c] = mem[src + c]!;
       }
     }
   }
-}
-
-/** Copy an operand's M x K elements into a row-major array (exact when widening; the same rounding a pack does when narrowing). */
-function copyRowMajor(X: Operand, rows: number, cols: number, out: Float32Array | Float64Array): void {
-  const d = X.data, rs = X.rs, cs = X.cs;
-  if (cs === 1 && rs === cols) { out.set(d.subarray(X.off, X.off + rows * cols)); return; }
-  for (let i = 0; i < rows; i++) {
-    const base = X.off + i * rs, o = i * cols;
-    if (cs === 1) out.set(d.subarray(base, base + cols), o);
-    else for (let k = 0; k < cols; k++) out[o + k] = d[base + k * cs]!;
-  }
-}
-
-/**
- * gemmSimd split into bands of rows across worker threads (src/eval/threads.ts). The operands are copied into
- * shared memory in the kernel's element type (C's), which is what packing them would do, and every element is
- * the same sum over k as on one thread: bit-identical results for any thread count.
- */
-function gemmThreaded(simd: SimdKernels, threads: number, M: number, N: number, K: number, A: Operand, B: Operand, C: NumArray, cOff: number, ldc: number, accumulate: boolean): void {
-  const f64 = !(C instanceof Float32Array);
-  const sa = sharedArray('a', M * K, f64), sb = sharedArray('b', K * N, f64), sc = sharedArray('c', M * N, f64);
-  copyRowMajor(A, M, K, sa);
-  copyRowMajor(B, K, N, sb);
-  inBands(M, threads, { f64, M, N, K, a: sa.buffer as SharedArrayBuffer, b: sb.buffer as SharedArrayBuffer, c: sc.buffer as SharedArrayBuffer },
-    (i0, i1) => gemmBand(simd, i0, i1, N, K, sa, sb, sc));
-  for (let i = 0; i < M; i++) {
-    const dst = cOff + i * ldc, src = i * N;
-    if (accumulate) for (let j = 0; j < N; j++) C[dst + j] += sc[src + j]!;
-    else C.set(sc.subarray(src, src + N), dst);
-  }
-}
-
-/** Rows [i0, i1) of C = A * B over row-major shared operands (a worker's band, or the calling thread's). */
-export function gemmBand(simd: SimdKernels, i0: number, i1: number, N: number, K: number, A: Float32Array | Float64Array, B: Float32Array | Float64Array, C: Float32Array | Float64Array): void {
-  gemmSimd(simd, i1 - i0, N, K, rowMajor(A, i0 * K, K), rowMajor(B, 0, N), C, i0 * N, N, false);
+  return true;
 }

@@ -5,6 +5,7 @@ import { DataType, opsetVersion, subgraphsOf, elementCount, type Graph, type Mod
 import { peekBytes } from '../graph/lazy-bytes.js';
 import { isFloatType, tensorToFloat64, dataTypeName } from '../graph/tensor.js';
 import { getKernel } from './registry.js';
+import { forgetPacked } from './gemm.js';
 import { giveBack, isConstant, isPooled, markConstant, markTransient } from './pool.js';
 import { charge, evaluating, liveBytes, release, resetLive } from './budget.js';
 import type { KernelContext, NumArray, Precision, Value } from './value.js';
@@ -48,12 +49,34 @@ function rawFloat32(t: Tensor): Float32Array | undefined {
   return new Float32Array(new Uint8Array(bytes).buffer, 0, n); // a copy (a Buffer's slice would be a view)
 }
 
-function decodeFor(t: Tensor, precision: Precision): NumArray {
+function decodeFor(t: Tensor, precision: Precision, into?: Float64Array): NumArray {
   if (precision === 'float32') {
     const raw = rawFloat32(t);
     if (raw) return raw;
+    return tensorToValue(t, precision).data;
   }
-  return tensorToValue(t, precision).data;
+  return tensorToFloat64(t, into);
+}
+
+// Float64 buffers of large weights dropped after their step, reused for the next weight of the same size: a
+// fresh array per weight (tens of MiB each on a large model) is faulted in page by page and lingers until the
+// collector runs, which multiplied a proven fold's peak memory.
+const spare = new Map<number, Float64Array[]>();
+const SPARE_MAX_BYTES = 256 * 1024 * 1024;
+let spareBytes = 0;
+
+function takeSpare(n: number): Float64Array | undefined {
+  const a = spare.get(n)?.pop();
+  if (a) { spareBytes -= a.byteLength; forgetPacked(a); } // its packed tiles belong to the weight it held
+  return a;
+}
+
+function putSpare(a: Float64Array): void {
+  if (spareBytes + a.byteLength > SPARE_MAX_BYTES) return;
+  spareBytes += a.byteLength;
+  const list = spare.get(a.length) ?? [];
+  list.push(a);
+  spare.set(a.length, list);
 }
 
 /**
@@ -62,20 +85,33 @@ function decodeFor(t: Tensor, precision: Precision): NumArray {
  */
 export class WeightCache {
   private readonly held = new Map<Tensor, NumArray>();
+  /** Decoded arrays some node's result holds (a kernel that passes its input through): never reused. */
+  private readonly escaped = new Set<NumArray>();
   /** `shared`: the cache is the only one its runs use (no decoded tensor is kept across steps at all). */
   constructor(readonly shared = false) {}
   get(t: Tensor, precision: Precision): NumArray {
     let d = this.held.get(t);
     if (!d) {
-      d = decodeFor(t, precision);
+      const large = elementCount(t.dims) > KEEP_DECODED_MAX;
+      d = decodeFor(t, precision, large && precision === 'float64' ? takeSpare(elementCount(t.dims)) : undefined);
       // only large weights are marked (a weak set of every small tensor of a large graph costs the collector
       // more than the whole evaluation); a kernel never writes over a decoded tensor, which is not pooled
-      if (elementCount(t.dims) > KEEP_DECODED_MAX) markTransient(d);
+      if (large) markTransient(d);
       this.held.set(t, d);
     }
     return d;
   }
-  clear(): void { this.held.clear(); }
+  /** A result of the node just run holds this array. */
+  noteResult(data: NumArray): void {
+    if (this.held.size > 0) for (const d of this.held.values()) if (d === data) this.escaped.add(d);
+  }
+  clear(): void {
+    for (const d of this.held.values()) {
+      if (d instanceof Float64Array && d.length > KEEP_DECODED_MAX && !this.escaped.has(d)) putSpare(d);
+    }
+    this.held.clear();
+    this.escaped.clear();
+  }
 }
 
 function initializerValue(t: Tensor, precision: Precision, weights: WeightCache): Value {
@@ -252,6 +288,7 @@ export class GraphRun {
       if (env.has(name)) this.drop(name); // a name defined twice (invalid SSA) must not leak its hold
       env.set(name, v);
       this.hold(v);
+      this.weights.noteResult(v.data); // a weight passed through must outlive the step
     });
     node.outputs.forEach((name) => { if (name && !keep.has(name) && !lastUse.has(name)) this.drop(name); });
     for (const name of this.reads[idx]!) if (lastUse.get(name) === idx && !keep.has(name)) this.drop(name);

@@ -1,12 +1,14 @@
-// Matrix products split across worker threads that share memory. The calling thread copies the operands into
-// SharedArrayBuffers, each worker computes a band of output rows with the same kernel the calling thread uses
-// (src/eval/gemm.ts), and the calling thread takes a band itself, then waits for the rest. Every output element
-// is one sum over k in the same order whoever computes it, so results are bit-identical for any thread count.
+// Matrix products split across worker threads that share memory. Every thread's kernel instance runs on one
+// shared WebAssembly memory (src/eval/wasm-gemm.ts): the calling thread lays out the packed operands once, each
+// worker computes a band of 4-row tiles of the output in place, and the calling thread takes a band itself, then
+// waits for the rest. Every output element is one sum over k in the same order whoever computes it, so results
+// are bit-identical for any thread count.
 import { Worker } from 'node:worker_threads';
 import { existsSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 import { availableParallelism } from 'node:os';
 import type { NumArray } from './value.js';
+import { simdKernels, type TileSpan } from './wasm-gemm.js';
 
 let wanted = Math.max(1, availableParallelism());
 
@@ -24,16 +26,19 @@ const STALL_MS = 10 * 60_000;
 /** Products smaller than this many multiply-adds stay on the calling thread (a hand-off costs about 0.1 ms). */
 export const PARALLEL_MIN_WORK = 1 << 22;
 
-export interface BandJob {
-  f64: boolean;
-  M: number; N: number; K: number;
-  a: SharedArrayBuffer; b: SharedArrayBuffer; c: SharedArrayBuffer;
-  /** Rows [i0, i1) of C to compute. */
-  i0: number; i1: number;
-  done: SharedArrayBuffer;
-}
+// Hand-off without messages: each worker owns a control block of shared integers ([0] counts the jobs posted to
+// it, then the span's fields) and waits on it with Atomics.wait; all count their bands done in one shared pair
+// ([0] finished, [1] failed). A message per band (a structured clone, a fresh shared buffer) cost more than a
+// small product's band itself.
+export const SPAN_FIELDS = ['f64', 'pa', 'pb', 'pc', 'nTiles', 'K', 'ldcBytes', 'ldbBytes', 't0', 't1', 'chunk'] as const;
+export const CONTROL_INTS = 1 + SPAN_FIELDS.length;
 
-let workers: Worker[] = [];
+/** What a worker is started with. */
+export interface WorkerSetup { memory: WebAssembly.Memory; control: SharedArrayBuffer; done: SharedArrayBuffer }
+
+const done = new Int32Array(new SharedArrayBuffer(8));
+
+let workers: Array<{ worker: Worker; control: Int32Array }> = [];
 let posted = 0;
 
 /** Bands handed to worker threads so far (tests check the threads really ran). */
@@ -46,11 +51,14 @@ function workerUrl(): URL {
   return new URL('../../dist/src/eval/gemm-worker.js', import.meta.url);
 }
 
-function pool(n: number): Worker[] {
+function pool(n: number): Array<{ worker: Worker; control: Int32Array }> {
   while (workers.length < n) {
-    const w = new Worker(workerUrl());
-    w.unref(); // idle workers never keep the process alive
-    workers.push(w);
+    // each worker instantiates the kernels over this thread's shared memory and waits on its control block
+    const control = new SharedArrayBuffer(CONTROL_INTS * 4);
+    const setup: WorkerSetup = { memory: simdKernels()!.memory, control, done: done.buffer as SharedArrayBuffer };
+    const worker = new Worker(workerUrl(), { workerData: setup });
+    worker.unref(); // idle workers never keep the process alive
+    workers.push({ worker, control: new Int32Array(control) });
   }
   return workers.slice(0, n);
 }
@@ -59,50 +67,39 @@ function pool(n: number): Worker[] {
 export async function stopThreads(): Promise<void> {
   const ws = workers;
   workers = [];
-  await Promise.all(ws.map((w) => w.terminate()));
-}
-
-interface Shared { buf: SharedArrayBuffer; f32: Float32Array; f64: Float64Array }
-const shared: Record<'a' | 'b' | 'c', Shared | undefined> = { a: undefined, b: undefined, c: undefined };
-
-/** A shared array of at least n elements of the given width, reused across calls (calls never overlap). */
-export function sharedArray(role: 'a' | 'b' | 'c', n: number, f64: boolean): Float32Array | Float64Array {
-  const bytes = n * 8;
-  let s = shared[role];
-  if (!s || s.buf.byteLength < bytes) {
-    const buf = new SharedArrayBuffer(Math.max(bytes, 1 << 16));
-    s = { buf, f32: new Float32Array(buf), f64: new Float64Array(buf) };
-    shared[role] = s;
-  }
-  return f64 ? s.f64.subarray(0, n) : s.f32.subarray(0, n);
+  await Promise.all(ws.map((w) => w.worker.terminate()));
 }
 
 /**
- * Compute C rows in bands: `own(i0, i1)` computes a band on this thread; bands [i0, i1) for the workers go out
- * as jobs over the shared operands. Bands start at multiples of 4 rows (the kernel's tile height).
+ * Run tiles [0, tiles) of a kernel span in bands: the first band on this thread (`own`), the others on worker
+ * threads over the shared kernel memory. `span(t0, t1)` gives the kernel span of a band.
  */
-export function inBands(M: number, threads: number, job: Omit<BandJob, 'i0' | 'i1' | 'done'>, own: (i0: number, i1: number) => void): void {
-  const per = Math.ceil(M / threads / 4) * 4;
+export function inBands(tiles: number, threads: number, span: (t0: number, t1: number) => TileSpan, own: (s: TileSpan) => void): void {
+  const per = Math.ceil(tiles / threads);
   const bands: Array<[number, number]> = [];
-  for (let i0 = 0; i0 < M; i0 += per) bands.push([i0, Math.min(M, i0 + per)]);
+  for (let t0 = 0; t0 < tiles; t0 += per) bands.push([t0, Math.min(tiles, t0 + per)]);
   const others = bands.slice(1);
-  const done = new SharedArrayBuffer(8);
-  const flag = new Int32Array(done);
   const ws = pool(others.length);
-  others.forEach(([i0, i1], k) => ws[k]!.postMessage({ ...job, i0, i1, done } satisfies BandJob));
+  Atomics.store(done, 0, 0);
+  Atomics.store(done, 1, 0);
+  others.forEach(([t0, t1], k) => {
+    const c = ws[k]!.control, job = span(t0, t1);
+    SPAN_FIELDS.forEach((f, i) => { c[1 + i] = f === 'f64' ? (job.f64 ? 1 : 0) : job[f]; });
+    Atomics.add(c, 0, 1); // the fields above are published by this atomic write
+    Atomics.notify(c, 0);
+  });
   posted += others.length;
-  own(bands[0]![0], bands[0]![1]);
-  // wait for every worker band (flag[0] counts finished bands, flag[1] counts failures); a worker that died
-  // without counting its band (it cannot report while this thread waits) ends the wait after STALL_MS
+  own(span(bands[0]![0], bands[0]![1]));
+  // wait for every worker band; a worker that died without counting its band ends the wait after STALL_MS
   let idle = 0;
-  for (let seen = Atomics.load(flag, 0); seen < others.length;) {
-    if (Atomics.wait(flag, 0, seen, 1000) === 'timed-out') idle += 1000; else idle = 0;
-    const now = Atomics.load(flag, 0);
+  for (let seen = Atomics.load(done, 0); seen < others.length;) {
+    if (Atomics.wait(done, 0, seen, 1000) === 'timed-out') idle += 1000; else idle = 0;
+    const now = Atomics.load(done, 0);
     if (now !== seen) idle = 0;
     seen = now;
     if (idle >= STALL_MS) throw new Error('a matrix-product worker thread stopped answering');
   }
-  if (Atomics.load(flag, 1) > 0) throw new Error('a matrix-product worker thread failed');
+  if (Atomics.load(done, 1) > 0) throw new Error('a matrix-product worker thread failed');
 }
 
 export type { NumArray };

@@ -139,33 +139,72 @@ function depthwiseBody(f64: boolean): number[] {
   return [...uleb(body.length), ...body];
 }
 
+/** Pages (64 KiB) the kernels' memory may grow to: 1 GiB of address space, reserved, not committed. */
+export const MAX_PAGES = 16384;
+
 export function moduleBytes(): Uint8Array<ArrayBuffer> {
   const i32 = 0x7f;
   const types = section(1, vec([
     [0x60, ...vec(new Array(8).fill([i32])), ...vec([])],
     [0x60, ...vec(new Array(10).fill([i32])), ...vec([])],
   ]));
-  const funcs = section(3, vec([[0], [0], [1], [1]]));
-  const memory = section(5, vec([[0x00, ...uleb(1)]]));
   const name = (s: string) => vec([...s].map((ch) => [ch.charCodeAt(0)]));
+  // the memory is imported, shared (limits flag 3: shared, with a maximum), so every worker thread's instance
+  // runs its kernels on the operands the calling thread laid out, with no copy
+  const imports = section(2, vec([[...name('e'), ...name('m'), 0x02, 0x03, ...uleb(1), ...uleb(MAX_PAGES)]]));
+  const funcs = section(3, vec([[0], [0], [1], [1]]));
   const exports = section(7, vec([
-    [...name('mem'), 0x02, 0], [...name('k32'), 0x00, 0], [...name('k64'), 0x00, 1], [...name('d32'), 0x00, 2], [...name('d64'), 0x00, 3],
+    [...name('k32'), 0x00, 0], [...name('k64'), 0x00, 1], [...name('d32'), 0x00, 2], [...name('d64'), 0x00, 3],
   ]));
   const code = section(10, vec([kernelBody(false), kernelBody(true), depthwiseBody(false), depthwiseBody(true)]));
-  return new Uint8Array([0x00, 0x61, 0x73, 0x6d, 0x01, 0x00, 0x00, 0x00, ...types, ...funcs, ...memory, ...exports, ...code]);
+  return new Uint8Array([0x00, 0x61, 0x73, 0x6d, 0x01, 0x00, 0x00, 0x00, ...types, ...imports, ...funcs, ...exports, ...code]);
 }
 
+let compiled: WebAssembly.Module | null | undefined;
 let cached: SimdKernels | null | undefined;
 
+/** The kernels running on a given shared memory (a worker thread's instance over the calling thread's memory). */
+export function simdKernelsOn(memory: WebAssembly.Memory): SimdKernels | undefined {
+  try {
+    compiled ??= new WebAssembly.Module(moduleBytes());
+    const inst = new WebAssembly.Instance(compiled, { e: { m: memory } });
+    const e = inst.exports as unknown as SimdKernels;
+    return { memory, k32: e.k32, k64: e.k64, d32: e.d32, d64: e.d64 };
+  } catch {
+    compiled = null;
+    return undefined;
+  }
+}
+
+/** This thread's kernels and their memory (made once); undefined when the runtime has no WebAssembly SIMD. */
 export function simdKernels(): SimdKernels | undefined {
   if (cached === undefined) {
     try {
-      const inst = new WebAssembly.Instance(new WebAssembly.Module(moduleBytes()), {});
-      const e = inst.exports as unknown as SimdKernels & { mem: WebAssembly.Memory };
-      cached = { memory: e.mem, k32: e.k32, k64: e.k64, d32: e.d32, d64: e.d64 };
+      cached = simdKernelsOn(new WebAssembly.Memory({ initial: 1, maximum: MAX_PAGES, shared: true })) ?? null;
     } catch {
       cached = null;
     }
   }
   return cached ?? undefined;
+}
+
+/** A run of the matrix kernel over tiles [t0, t1) of a packed A (4 rows each), against one B panel. */
+export interface TileSpan {
+  f64: boolean;
+  /** Byte offsets in the kernel memory: packed A (tile 0), the B panel, C's row 0. */
+  pa: number; pb: number; pc: number;
+  nTiles: number; K: number; ldcBytes: number; ldbBytes: number;
+  t0: number; t1: number;
+  /** Tiles per kernel call (a block of A that stays in cache while the panel's columns pass over it). */
+  chunk: number;
+}
+
+/** Compute C's rows for tiles [t0, t1) of a span (the calling thread's band, or a worker's). */
+export function runTiles(k: SimdKernels, s: TileSpan): void {
+  const kern = s.f64 ? k.k64 : k.k32;
+  const es = s.f64 ? 8 : 4;
+  for (let t = s.t0; t < s.t1; t += s.chunk) {
+    const n = Math.min(s.chunk, s.t1 - t);
+    kern(s.pa + t * 4 * s.K * es, s.pb, s.pc + t * 4 * s.ldcBytes, n, s.nTiles, s.K, s.ldcBytes, s.ldbBytes);
+  }
 }

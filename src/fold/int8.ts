@@ -15,8 +15,11 @@ const QMAX = 127;
 /** Round half to even (IEEE 754 roundTiesToEven), as QuantizeLinear does. */
 export function roundHalfEven(x: number): number {
   const r = Math.round(x);
-  // Math.round takes ties up (towards +inf): pull back the ties that landed on an odd integer
-  return Math.abs(x % 1) === 0.5 && r % 2 !== 0 ? r - 1 : r;
+  // Math.round takes ties up (towards +inf): pull back the ties that landed on an odd integer (r - x is exactly
+  // 0.5 only for a tie; the bit test needs an int32, so huge quotients take the general remainder test)
+  if (r - x !== 0.5) return r;
+  if (Math.abs(r) < 0x40000000) return (r & 1) !== 0 ? r - 1 : r;
+  return r % 2 !== 0 ? r - 1 : r;
 }
 
 /** The float32 scale a symmetric quantizer gives a range of max|w| (0 when every weight is 0). */
@@ -82,19 +85,26 @@ export interface SqnrFigures {
 
 /** SQNR of a layer's weights under symmetric 8-bit quantization (float32 weights as stored). */
 export function sqnrOf(values: Float64Array, map: ChannelMap, channels: number): SqnrFigures {
-  const perTensor = roundedInt8(values, map, channels, 'tensor');
-  const perChannel = roundedInt8(values, map, channels, 'channel');
+  // one pass over the weights, both roundings at once (a layer of millions of weights is read once, and no
+  // rounded copy is made); sums taken in element order, as the two rounded copies would be read
+  const maxAbs = channelMaxAbs(values, map, channels);
+  const scaleC = maxAbs.map(symmetricScale);
+  let m = 0;
+  for (const a of maxAbs) if (a > m) m = a;
+  const scaleT = symmetricScale(m);
   const sig = new Float64Array(channels), noiseT = new Float64Array(channels);
   let noiseC = 0;
   for (let e = 0, i = 0; e < map.of.length; e++) {
-    const c = map.of[e]!;
+    const c = map.of[e]!, sc = scaleC[c]!;
+    let s = sig[c]!, nt = noiseT[c]!;
     for (const end = i + map.unit; i < end; i++) {
       const x = Math.fround(values[i]!);
-      sig[c] += x * x;
-      const dt = x - perTensor[i]!, dc = x - perChannel[i]!;
-      noiseT[c] += dt * dt;
+      s += x * x;
+      const dt = x - quantizeDequantize(x, scaleT), dc = x - quantizeDequantize(x, sc);
+      nt += dt * dt;
       noiseC += dc * dc;
     }
+    sig[c] = s; noiseT[c] = nt;
   }
   let signal = 0, noise = 0, worst = Infinity;
   for (let c = 0; c < channels; c++) {

@@ -8,7 +8,8 @@ import { isRandomOp } from '../eval/registry.js';
 import { basename } from 'node:path';
 import type { Precision, Value } from '../eval/value.js';
 import { runLockstep } from '../eval/lockstep.js';
-import { withProbeMemory } from '../eval/budget.js';
+import { probeMemoryLimit, withProbeMemory } from '../eval/budget.js';
+import { estimateRun } from '../eval/estimate.js';
 import { checkProbeEstimate } from './probe-budget.js';
 import { PleatError } from '../errors.js';
 import { dataTypeName } from '../graph/tensor.js';
@@ -271,49 +272,58 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
 
   const probeInputs = Array.from({ length: probes }, (_, p) => makeProbe(specs, seed, p));
   checkCandidateInputs(b, probeInputs[0]!);
-  // A and B run together, node by node (src/eval/lockstep.ts), one probe and one arithmetic at a time: the judged
-  // arithmetic, then (for the error budget) both again in float32. So at most one value set of each model is
-  // alive at once, within the same probe memory limit as a single run of each. B's judged run reports the nodes
-  // it executes (coverage of the watched nodes).
-  const pair = (model: 'judged' | 'float32', inputs: Map<string, Value>) => {
+  // A and B run together, node by node (src/eval/lockstep.ts), in the judged arithmetic, then (for the error
+  // budget) both again in float32. The probes of a pass run together, so each weight is decoded and laid out for
+  // the kernels once per model and pass, when the values they hold at once (estimated from the shapes, as if none
+  // were freed) fit in half the probe memory limit; otherwise one probe per pass, so at most one value set of
+  // each model is alive at once. B's judged run reports the nodes it executes (coverage of the watched nodes).
+  const pair = (model: 'judged' | 'float32', batch: Array<Map<string, Value>>) => {
     const precision: Precision = model === 'judged' ? arithmetic : 'float32';
     const sides = [{ model: a, side: 'A' as const }, { model: b, side: 'B' as const }];
-    const out = runLockstep(sides.map((x) => ({ model: x.model, precision, probes: [inputs], onNode: x.side === 'B' && model === 'judged' ? onNode : undefined })),
+    const out = runLockstep(sides.map((x) => ({ model: x.model, precision, probes: batch, onNode: x.side === 'B' && model === 'judged' ? onNode : undefined })),
       (e, i) => labelled(e, sides[i]!.model, sides[i]!.side, precision));
-    return [out[0]![0]!, out[1]![0]!] as const;
+    return batch.map((_, q) => [out[0]![q]!, out[1]![q]!] as const);
   };
   /** A alone in one arithmetic (the outputs --save-probes keeps that the comparison did not compute). */
   const aAlone = (precision: Precision, inputs: Map<string, Value>) =>
     runLockstep([{ model: a, precision, probes: [inputs] }], (e) => labelled(e, a, 'A', precision))[0]![0]!;
+  const dimsOf = new Map(specs.map((s) => [s.name, s.given ? s.given.dims : s.dims]));
+  const together = probes > 1 && probes * (estimateRun(a.graph, dimsOf).totalBytes + estimateRun(b.graph, dimsOf).totalBytes) <= probeMemoryLimit() / 2;
   let run = 0;
   try {
-    for (let p = 0; p < probes + extraLimit; p++) {
+    for (let p = 0; p < probes + extraLimit;) {
       if (p >= probes && executed.size === watch!.size) break;
-      const inputs = probeInputs[p] ?? makeProbe(specs, seed, p);
-      const [ra, rb] = pair('judged', inputs);
-      const [ra32, rb32] = budget ? pair('float32', inputs) : [undefined, undefined];
-      if (opts.onProbe) {
-        const a64 = arithmetic === 'float64' ? ra : aAlone('float64', inputs);
-        const a32 = ra32 ?? (arithmetic === 'float32' ? ra : aAlone('float32', inputs));
-        opts.onProbe({ index: p, inputs, float64: a64, float32: a32 });
-      }
-      run++;
-      if (p === 0) {
-        for (const o of aOut) if (!bOut.has(o.name)) onlyA.set(o.name, ra.get(o.name)!);
-        for (const o of b.graph.outputs) if (!aNames.has(o.name)) onlyB.set(o.name, rb.get(o.name)!);
-      }
-      for (const [name, s] of acc) {
-        const va = ra.get(name)!, vb = rb.get(name)!;
-        if (p === 0) { s.dimsA = [...va.dims]; s.dimsB = [...vb.dims]; s.typeA = va.type; s.typeB = vb.type; }
-        if (s.shapeDiffers) continue;
-        if (!sameDims(va.dims, vb.dims)) { s.shapeDiffers = true; s.dimsA = [...va.dims]; s.dimsB = [...vb.dims]; continue; }
-        s.metrics.push(computeMetrics(vb.data, va.data));
-        s.histogram = diffHistogram(vb.data, va.data, s.histogram);
-        if (ra32 && rb32) {
-          const a32 = ra32.get(name)!, b32 = rb32.get(name)!;
-          // float32 runs take the same shapes as float64 runs of the same model; B's were just checked against A's
-          s.own.push(computeMetrics(a32.data, va.data));
-          s.deploy.push(computeMetrics(b32.data, va.data));
+      const count = p < probes && together ? probes - p : 1;
+      const batch = Array.from({ length: count }, (_, q) => probeInputs[p + q] ?? makeProbe(specs, seed, p + q));
+      const judged = pair('judged', batch);
+      const f32 = budget ? pair('float32', batch) : undefined;
+      for (let q = 0; q < count; q++, p++) {
+        const inputs = batch[q]!;
+        const [ra, rb] = judged[q]!;
+        const [ra32, rb32] = f32 ? f32[q]! : [undefined, undefined];
+        if (opts.onProbe) {
+          const a64 = arithmetic === 'float64' ? ra : aAlone('float64', inputs);
+          const a32 = ra32 ?? (arithmetic === 'float32' ? ra : aAlone('float32', inputs));
+          opts.onProbe({ index: p, inputs, float64: a64, float32: a32 });
+        }
+        run++;
+        if (p === 0) {
+          for (const o of aOut) if (!bOut.has(o.name)) onlyA.set(o.name, ra.get(o.name)!);
+          for (const o of b.graph.outputs) if (!aNames.has(o.name)) onlyB.set(o.name, rb.get(o.name)!);
+        }
+        for (const [name, s] of acc) {
+          const va = ra.get(name)!, vb = rb.get(name)!;
+          if (p === 0) { s.dimsA = [...va.dims]; s.dimsB = [...vb.dims]; s.typeA = va.type; s.typeB = vb.type; }
+          if (s.shapeDiffers) continue;
+          if (!sameDims(va.dims, vb.dims)) { s.shapeDiffers = true; s.dimsA = [...va.dims]; s.dimsB = [...vb.dims]; continue; }
+          s.metrics.push(computeMetrics(vb.data, va.data));
+          s.histogram = diffHistogram(vb.data, va.data, s.histogram);
+          if (ra32 && rb32) {
+            const a32 = ra32.get(name)!, b32 = rb32.get(name)!;
+            // float32 runs take the same shapes as float64 runs of the same model; B's were just checked against A's
+            s.own.push(computeMetrics(a32.data, va.data));
+            s.deploy.push(computeMetrics(b32.data, va.data));
+          }
         }
       }
     }

@@ -92,6 +92,46 @@ describe('SQNR', () => {
   });
 });
 
+describe('one-pass SQNR', () => {
+  /** The definition, spelled out over the two rounded copies (sqnrOf computes it in one pass without them). */
+  function reference(values: Float64Array, map: { of: Int32Array; unit: number }, channels: number) {
+    const t = roundedInt8(values, map, channels, 'tensor'), c = roundedInt8(values, map, channels, 'channel');
+    const sig = new Float64Array(channels), nt = new Float64Array(channels);
+    let nc = 0;
+    for (let e = 0, i = 0; e < map.of.length; e++) {
+      for (const end = i + map.unit; i < end; i++) {
+        const x = Math.fround(values[i]!), ch = map.of[e]!;
+        sig[ch] += x * x; nt[ch] += (x - t[i]!) ** 2; nc += (x - c[i]!) ** 2;
+      }
+    }
+    const db = (s: number, n: number) => (n === 0 ? Infinity : 10 * Math.log10(s / n));
+    let s = 0, n = 0, worst = Infinity;
+    for (let ch = 0; ch < channels; ch++) { s += sig[ch]!; n += nt[ch]!; if (sig[ch]! > 0) worst = Math.min(worst, db(sig[ch]!, nt[ch]!)); }
+    return { tensor: db(s, n), channel: db(s, nc), worstChannel: worst };
+  }
+
+  it('equals the figures of the two rounded copies, bit for bit (seeded layers, ties and zero channels included)', () => {
+    for (const seed of [11, 12, 13, 14, 15]) {
+      const r = rng(seed);
+      const channels = 3 + (seed % 5), inner = 2 + seed, dims = [channels, inner, 1, 1];
+      const w = Float64Array.from(randn(r, channels * inner, 0.5), (x, i) => Math.fround(x * (1 + 100 * ((i / inner | 0) % 2))));
+      w[0] = Math.fround(w[1]! / 2); // a likely half step
+      if (seed % 2) w.fill(0, inner, 2 * inner); // a channel of zeros
+      const map = layouts.convOutput(weightView(dims));
+      expect(sqnrOf(w, map, channels)).toEqual(reference(w, map, channels));
+    }
+  });
+
+  it('round half to even: the bit test agrees with the remainder test on ties and near-ties of every sign', () => {
+    const slow = (x: number) => { const r = Math.round(x); return Math.abs(x % 1) === 0.5 && r % 2 !== 0 ? r - 1 : r; };
+    for (let k = -300; k <= 300; k++) {
+      for (const x of [k + 0.5, k - 0.5, k + 0.49999999, k + 0.50000001, k, k * 1e7 + 0.5, k * 3e9 + 0.5]) {
+        expect(Object.is(roundHalfEven(x), slow(x)), String(x)).toBe(true);
+      }
+    }
+  });
+});
+
 describe('roundedWeightsModel', () => {
   it('rounds Conv and Gemm weights in a view, leaves the model and other tensors alone', () => {
     const r = rng(9);

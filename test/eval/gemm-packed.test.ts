@@ -1,0 +1,51 @@
+// The SIMD matrix product keeps the last constant A it packed in the kernel memory, so the next product with the
+// same weight (the next probe of a lockstep side) skips packing. It must never reuse a packing that something
+// else has overwritten: another weight, a non-constant operand, a depthwise convolution laid out in the same
+// memory. The reference is the same product on a fresh copy of A, which is never constant and so always packed.
+import { afterAll, describe, expect, it } from 'vitest';
+import { gemm, rowMajor, simdOn } from '../../src/eval/gemm.js';
+import { markConstant } from '../../src/eval/pool.js';
+import { runModel } from '../../src/eval/run.js';
+import { parseModel } from '../../src/onnx/read.js';
+import { setThreads, stopThreads } from '../../src/eval/threads.js';
+import { availableParallelism } from 'node:os';
+import { GraphBuilder, modelBytes, randn, rng } from '../helpers/build.js';
+
+afterAll(async () => { setThreads(Math.max(1, availableParallelism())); await stopThreads(); });
+
+function product(M: number, N: number, K: number, A: Float64Array, B: Float64Array): string {
+  const C = new Float64Array(M * N);
+  gemm(M, N, K, rowMajor(A, 0, K), rowMajor(B, 0, N), C, 0, N, false);
+  return Buffer.from(C.buffer).toString('base64');
+}
+
+describe('packed weights reused across products', () => {
+  it('a seeded sequence of products over two constant weights, a plain operand and a depthwise conv gives the bits of a fresh packing', () => {
+    expect(simdOn()).toBe(true);
+    for (const threads of [1, 2]) {
+      setThreads(threads);
+      const r = rng(31 + threads);
+      const M = 64, K = 300;
+      const w1 = Float64Array.from(randn(r, M * K, 1)), w2 = Float64Array.from(randn(r, M * K, 1));
+      markConstant(w1); markConstant(w2);
+      const plain = Float64Array.from(randn(r, M * K, 1));
+      // a depthwise conv runs in the same kernel memory between products
+      const g = new GraphBuilder();
+      g.input('x', [1, 8, 9, 9]).output('y');
+      g.node('Conv', ['x', g.init('dw', [8, 1, 3, 3], randn(r, 72, 0.3))], { group: 8, pads: [1, 1, 1, 1] }, { outputs: ['y'] });
+      const dw = parseModel(modelBytes(g), '.');
+      const x = Float64Array.from(randn(r, 8 * 81, 1));
+      for (let step = 0; step < 12; step++) {
+        const A = [w1, w1, w2, plain][step % 4 === 2 ? 0 : Math.floor(r() * 4)]!; // right after the depthwise conv: w1
+        const N = 1 + Math.floor(r() * 90) + (step % 3 === 0 ? 600 : 0); // some span two column panels
+        const B = Float64Array.from(randn(r, K * N, 1));
+        // first with whatever the step before left in the kernel memory, then against a fresh packing
+        const got = product(M, N, K, A, B), again = product(M, N, K, A, B);
+        const fresh = product(M, N, K, Float64Array.from(A), B);
+        expect(got, `step ${step}`).toBe(fresh);
+        expect(again, `step ${step}, again`).toBe(fresh);
+        if (step % 4 === 1) { product(M, 5, K, w1, Float64Array.from(randn(r, K * 5, 1))); runModel(dw, new Map([['x', { type: 1, dims: [1, 8, 9, 9], data: x }]]), { precision: 'float64' }); }
+      }
+    }
+  });
+});
