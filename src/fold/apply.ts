@@ -143,11 +143,16 @@ function updateIndex(ctx: FoldContext, live: LiveScope, p: PendingGraph, inserte
   }
 }
 
-/** Apply an edit to its graph. Returns the undo (which restores every object, origins included). */
-export function applyEdit(ctx: FoldContext, edit: Edit, opts: { inPlace: boolean }): () => void {
+/**
+ * Apply an edit to its graph. Returns the undo (which restores every object, origins included); with
+ * `undoable: false` (a fold that will not be proven) nothing is recorded for it and the undo does nothing.
+ */
+export function applyEdit(ctx: FoldContext, edit: Edit, opts: { inPlace: boolean; undoable?: boolean }): () => void {
   const g = edit.scope.graph;
+  const undoable = opts.undoable ?? true;
   const undo: Array<() => void> = [];
   const save = <T extends object>(obj: T, keys: Array<keyof T>) => {
+    if (!undoable) return;
     const old = keys.map((k) => obj[k]);
     const origin = (obj as { origin?: unknown }).origin;
     undo.push(() => {
@@ -199,7 +204,7 @@ export function applyEdit(ctx: FoldContext, edit: Edit, opts: { inPlace: boolean
       ? edit.newInitializers.map((t): ValueInfo => ({ name: t.name, elemType: t.dataType, shape: [...t.dims], docString: '', extra: [] }))
       : [];
     pg.inputs.push(...newInputs);
-    undo.push(() => {
+    if (undoable) undo.push(() => {
       for (const n of edit.removeNodes) pg.removed.delete(n);
       for (const ins of edit.inserts) pg.inserts.set(ins.after, (pg.inserts.get(ins.after) ?? []).filter((x) => x !== ins.node));
       // undone right after it was applied (a failed proof, or a proven fold applied again in place), the edit's

@@ -87,7 +87,7 @@ function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], release
       if (prove) edit.regionOutputs = [...new Set([...outputs, ...edit.regionNodes.flatMap((n) => n.outputs.filter((v) => v !== ''))])];
       const before = prove ? regionBefore(edit) : undefined;
       const inPlace = ctx.options.reuseBuffers ?? true;
-      const undo = applyEdit(ctx, edit, { inPlace: !prove && inPlace });
+      const undo = applyEdit(ctx, edit, { inPlace: !prove && inPlace, undoable: prove !== undefined });
       for (const n of involved) dirty.add(n);
       for (const m of matches) dirty.add(m.layer.node);
       for (const c of edit.changes) dirty.add(c.node);
@@ -111,7 +111,7 @@ function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], release
         // it lies (on its way to the output, for weights still on disk), as an unproven fold does: the same
         // products rounded the same way, without holding every folded weight in memory.
         undo();
-        applyEdit(ctx, edit, { inPlace: true });
+        applyEdit(ctx, edit, { inPlace: true, undoable: false });
       }
       const hint = foldHint(o.matches, o.clone);
       const entry = (node: Node, op: string, kind: EntryKind, h: string, cloneBytes = 0): LedgerEntry => ({
