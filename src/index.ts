@@ -3,7 +3,9 @@ import type { Model } from './graph/ir.js';
 import { readModelFile } from './onnx/read.js';
 import { checkOpset } from './graph/opsets.js';
 import { compare as compareModels, type CompareOptions, type CompareReport, type ProbeRecord } from './verify/compare.js';
-import { checkProbeDir, saveProbeSets } from './verify/probe-files.js';
+import { saveProbeSets } from './verify/probe-files.js';
+import { OutputSet } from './jobs/outputs.js';
+import { sideFilePaths } from './onnx/external.js';
 import { evaluate as evaluateModel, type EvaluateOptions, type EvaluateResult } from './verify/evaluate.js';
 import { foldFile } from './jobs/fold.js';
 import { auditFile } from './jobs/audit.js';
@@ -49,12 +51,23 @@ export function audit(input: string, options: AuditJobOptions = {}): AuditReport
 export function compare(a: string | Model, b: string | Model, options: CompareOptions & { saveProbes?: string } = {}): CompareReport {
   const { saveProbes, ...opts } = options;
   if (saveProbes === undefined) return compareModels(load(a), load(b), opts);
-  checkProbeDir(saveProbes);
-  const ma = load(a);
-  const records: ProbeRecord[] = [];
-  const report = compareModels(ma, load(b), { ...opts, onProbe: (p) => records.push(p) });
-  report.probesSaved = { dir: saveProbes, sets: saveProbeSets(saveProbes, ma.graph, records) };
-  return report;
+  const ma = load(a), mb = load(b);
+  // the probe folder goes through the output transaction: checked first, written beside, renamed in whole
+  const tx = new OutputSet();
+  try {
+    for (const m of [ma, mb]) if (m.sourcePath) [m.sourcePath, ...sideFilePaths(m)].forEach((p) => tx.protect(p, 'input model'));
+    tx.reserveFolder(saveProbes, '--save-probes');
+    const records: ProbeRecord[] = [];
+    const report = compareModels(ma, mb, { ...opts, onProbe: (p) => records.push(p) });
+    let sets = 0;
+    tx.stageFolder(saveProbes, (tmp) => { sets = saveProbeSets(tmp, ma.graph, records); });
+    tx.commit();
+    report.probesSaved = { dir: saveProbes, sets };
+    return report;
+  } catch (e) {
+    tx.abort();
+    throw e;
+  }
 }
 
 /** Run one model on given or seeded inputs. */

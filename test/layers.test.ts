@@ -7,7 +7,7 @@ import { dirname, join, relative, resolve } from 'node:path';
 import { describe, expect, it } from 'vitest';
 
 const SRC = resolve(import.meta.dirname, '..', 'src');
-const ORDER = ['errors', 'graph', 'onnx', 'fold', 'eval', 'verify', 'ship', 'jobs', 'report', 'index'];
+const ORDER = ['errors', 'wasm', 'graph', 'onnx', 'fold', 'eval', 'verify', 'ship', 'jobs', 'report', 'index'];
 
 function filesUnder(dir: string): string[] {
   return readdirSync(dir, { withFileTypes: true }).flatMap((e) =>

@@ -15,13 +15,14 @@ export function builder(y: Argv) {
     .option('store', { type: 'string', choices: ['float16'], describe: 'store the folded weights in half precision in the bundle (the whole-model check uses the float16 gate)' })
     .option('gate', { type: 'string', describe: 'gate for the whole-model check' })
     .option('probes', { type: 'number', describe: 'number of seeded probes for the whole-model check (default 2)' })
+    .option('strict', { type: 'boolean', describe: 'a skipped check fails: exit 1, and no bundle is written (also "strict": true in the config file)' })
     .option('json', { type: 'boolean', default: false, describe: 'print the report as JSON' })))
     .epilogue(EPILOGUE);
 }
 
 interface Flags {
   model: string; bundle: string; bundleFormat: 'safetensors' | 'c'; keep?: string[]; store?: 'float16'; gate?: string; probes?: number; seed?: number;
-  input?: string[]; shape?: string[]; dim?: string[]; json: boolean; config?: string; threads?: number;
+  input?: string[]; shape?: string[]; dim?: string[]; json: boolean; config?: string; threads?: number; strict?: boolean;
 }
 
 export async function handler(argv: Flags): Promise<void> {
@@ -36,7 +37,7 @@ export async function handler(argv: Flags): Promise<void> {
   const { EXIT } = await import('../../src/report/exit-codes.js');
   const r = exportFile(argv.model, argv.bundle, argv.bundleFormat, {
     inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, probes: run.probes, gate: run.gate, maxProbeMemory: run.maxProbeMemory, keep: keepList(config, argv.keep),
-    store: argv.store ?? config.store, origins: nameOrigins(config, file, argv),
+    store: argv.store ?? config.store, strict: run.strict, origins: nameOrigins(config, file, argv),
   });
   await out(argv.json
     ? toJsonText({ schemaVersion: SCHEMA_VERSION, command: 'export', model: argv.model, ...r })

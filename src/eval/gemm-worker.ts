@@ -1,7 +1,8 @@
-// A worker thread of src/eval/threads.ts: waits on its control block for a band of kernel tiles, runs it on the
-// calling thread's shared kernel memory (the operands are already laid out there), then counts it done.
+// A worker thread of src/eval/threads.ts: waits on its control block for a kernel span, takes chunks of its tiles
+// from the shared counter and runs them on the calling thread's shared kernel memory (the operands are already
+// laid out there), then counts itself done.
 import { workerData } from 'node:worker_threads';
-import { runTiles, simdKernelsOn, type TileSpan } from './wasm-gemm.js';
+import { runChunks, simdKernelsOn, type TileSpan } from './wasm-gemm.js';
 import { SPAN_FIELDS, type WorkerSetup } from './threads.js';
 
 const setup = workerData as WorkerSetup;
@@ -16,7 +17,7 @@ for (let seq = 0; ;) {
   SPAN_FIELDS.forEach((f, i) => { span[f] = control[1 + i]!; });
   try {
     if (!simd) throw new Error('no WebAssembly SIMD in this thread');
-    runTiles(simd, { ...span, f64: span.f64 === 1 } as TileSpan);
+    runChunks(simd, { ...span, f64: span.f64 === 1 } as TileSpan, done.subarray(2, 3));
   } catch {
     Atomics.add(done, 1, 1);
   }

@@ -7,7 +7,7 @@
 // (4 rows / 4 columns interleaved along k) and a 4x4 register tile accumulates each output block, the usual
 // layout for a fast scalar matrix multiply. Sums are in float64; a Float32Array C rounds once per k-block.
 import type { NumArray } from './value.js';
-import { runTiles, simdKernels, type SimdKernels, type TileSpan } from './wasm-gemm.js';
+import { runChunks, runTiles, simdKernels, type SimdKernels, type TileSpan } from './wasm-gemm.js';
 import { inBands, PARALLEL_MIN_WORK, threadCount } from './threads.js';
 import { isConstant } from './pool.js';
 
@@ -191,13 +191,17 @@ export function simdOn(): boolean { return useSimd; }
 export function setSimd(on: boolean): void { useSimd = on; }
 
 const SMC = 128, SNC = 512;
+/** Tiles per chunk when threads share a product: small enough that a thread slowed down takes fewer of them. */
+const SHARED_CHUNK = 8;
 /** Bytes the SIMD path lays out in the kernel memory at once; a product needing more goes in row blocks. */
 const SIMD_MAX_BYTES = 1 << 29;
 let views: { buffer: ArrayBufferLike; f32: Float32Array; f64: Float64Array } | undefined;
 
 // Which A the kernel memory holds packed at offset 0, so the next product with the same constant operand (a
 // weight, for the next probe of a lockstep side) skips packing. Anything else that writes there clears it.
-let packedNow: { data: WeakRef<NumArray>; key: string } | undefined;
+// (A plain reference: a WeakRef's target stays alive until the current job ends, and a whole fold is one job,
+// so every weight ever referenced would be kept. This keeps one weight alive at most.)
+let packedNow: { data: NumArray; key: string } | undefined;
 
 function viewsOf(simd: SimdKernels, bytes: number): { f32: Float32Array; f64: Float64Array } {
   const mem = simd.memory;
@@ -210,7 +214,7 @@ function viewsOf(simd: SimdKernels, bytes: number): { f32: Float32Array; f64: Fl
 
 /** Forget the packed copy of `data` (its array now holds other values). */
 export function forgetPacked(data: NumArray): void {
-  if (packedNow?.data.deref() === data) packedNow = undefined;
+  if (packedNow?.data === data) packedNow = undefined;
 }
 
 /** Views of the SIMD module's memory with at least `bytes` bytes (each call lays out its data from offset 0). */
@@ -219,41 +223,59 @@ export function memoryViews(simd: SimdKernels, bytes: number): { f32: Float32Arr
   return viewsOf(simd, bytes);
 }
 
-// B panel rows get two cache lines of padding, so the kernel's strided reads down a panel column spread over
-// the cache sets instead of landing in a few (a power-of-two row length halved float64 speed when measured)
-const B_PAD_BYTES = 128;
-
-/** Pack rows [r0, r0 + rows) of A into 4-row tiles, k-major, from offset 0 of `mem` (rows past the end are 0). */
-function packATiles(mem: Float32Array | Float64Array, A: Operand, r0: number, rows: number, K: number): void {
-  const ad = A.data, ars = A.rs, acs = A.cs;
-  let q = 0;
-  for (let ib = 0; ib < rows; ib += 4) {
-    const n = Math.min(4, rows - ib);
-    const base = A.off + (r0 + ib) * ars;
-    if (n === 4 && acs === 1) {
-      const r1 = base + ars, r2 = r1 + ars, r3 = r2 + ars;
-      for (let k = 0; k < K; k++) {
-        mem[q] = ad[base + k]!; mem[q + 1] = ad[r1 + k]!; mem[q + 2] = ad[r2 + k]!; mem[q + 3] = ad[r3 + k]!;
-        q += 4;
+/**
+ * Copy columns [j0, j0 + nc) of B into tiles of nr columns (32 bytes), each tile k-major: element (k, c) goes to
+ * tile floor(c / nr), row k, lane c % nr. Lanes past nc are 0.
+ */
+function packBTiles(mem: Float32Array | Float64Array, at: number, B: Operand, j0: number, nc: number, nr: number, K: number): void {
+  const bd = B.data, brs = B.rs, bcs = B.cs;
+  const tiles = Math.ceil(nc / nr), full = Math.floor(nc / nr), step = K * nr;
+  if (nc % nr) mem.fill(0, at + (tiles - 1) * step, at + tiles * step);
+  if (bcs === 1) {
+    // rows of B in order (each read once, front to back), spread over the tiles
+    for (let k = 0; k < K; k++) {
+      const o = B.off + k * brs + j0;
+      let d = at + k * nr;
+      if (nr === 4) {
+        for (let t = 0, c = o; t < full; t++, c += 4, d += step) {
+          mem[d] = bd[c]!; mem[d + 1] = bd[c + 1]!; mem[d + 2] = bd[c + 2]!; mem[d + 3] = bd[c + 3]!;
+        }
+      } else {
+        for (let t = 0, c = o; t < full; t++, c += nr, d += step) for (let l = 0; l < nr; l++) mem[d + l] = bd[c + l]!;
       }
-    } else if (n === 4) {
-      const r1 = base + ars, r2 = r1 + ars, r3 = r2 + ars;
-      for (let k = 0; k < K; k++) {
-        const o = k * acs;
-        mem[q] = ad[base + o]!; mem[q + 1] = ad[r1 + o]!; mem[q + 2] = ad[r2 + o]!; mem[q + 3] = ad[r3 + o]!;
-        q += 4;
-      }
-    } else {
-      for (let k = 0; k < K; k++) {
-        for (let r = 0; r < 4; r++) mem[q + r] = r < n ? ad[base + r * ars + k * acs]! : 0;
-        q += 4;
-      }
+      for (let c = full * nr; c < nc; c++) mem[at + full * step + k * nr + (c - full * nr)] = bd[o + c]!;
+    }
+    return;
+  }
+  for (let t = 0; t < tiles; t++) {
+    const cols = Math.min(nr, nc - t * nr), base = at + t * step;
+    for (let k = 0; k < K; k++) {
+      const o = B.off + k * brs + (j0 + t * nr) * bcs, d = base + k * nr;
+      for (let c = 0; c < cols; c++) mem[d + c] = bd[o + c * bcs]!;
     }
   }
 }
 
 /**
- * The micro-kernel in WebAssembly: A is packed into 4-row tiles over the whole k range, then for each panel of
+ * Copy rows [r0, r0 + rows) of A into `mem` from offset 0, row-major (K elements per row; one copy per row, a
+ * conversion when the element types differ), and zero the rows up to the next multiple of 4 (the kernel's tile).
+ */
+function copyARows(mem: Float32Array | Float64Array, A: Operand, r0: number, rows: number, K: number): void {
+  const ad = A.data, ars = A.rs, acs = A.cs;
+  if (acs === 1 && ars === K) mem.set(ad.subarray(A.off + r0 * K, A.off + (r0 + rows) * K), 0);
+  else {
+    for (let r = 0; r < rows; r++) {
+      const base = A.off + (r0 + r) * ars, o = r * K;
+      if (acs === 1) mem.set(ad.subarray(base, base + K), o);
+      else for (let k = 0; k < K; k++) mem[o + k] = ad[base + k * acs]!;
+    }
+  }
+  const padded = Math.ceil(rows / 4) * 4;
+  if (padded > rows) mem.fill(0, rows * K, padded * K);
+}
+
+/**
+ * The micro-kernel in WebAssembly: A's rows are copied in (row-major, padded to a multiple of 4), then for each panel of
  * up to 512 columns B is copied row-major and C's rows are computed in the kernel memory with the sum over k
  * kept in registers, in bands of tiles across threads (src/eval/threads.ts) when the product is large, and
  * copied (or added) into C. The kernel's element type follows C: a Float32Array C is computed in float32,
@@ -263,12 +285,11 @@ function gemmSimd(simd: SimdKernels, M: number, N: number, K: number, A: Operand
   const f64 = !(C instanceof Float32Array);
   const es = f64 ? 8 : 4, nr = 32 / es;
   const ldcMax = Math.ceil(Math.min(N, SNC) / nr) * nr;
-  const pbBytes = K * (ldcMax + B_PAD_BYTES / es) * es;
+  const pbBytes = K * ldcMax * es;
   const rowBytes = (K + ldcMax) * es; // a packed row of A and a row of C
   const room = SIMD_MAX_BYTES - pbBytes;
   if (room < 4 * rowBytes) return false;
   const block = Math.min(Math.ceil(M / 4) * 4, Math.floor(room / rowBytes / 4) * 4);
-  const bd = B.data, brs = B.rs, bcs = B.cs;
   const sameType = f64 ? C instanceof Float64Array : true;
   const threads = threadCount();
   for (let r0 = 0; r0 < M; r0 += block) {
@@ -279,23 +300,16 @@ function gemmSimd(simd: SimdKernels, M: number, N: number, K: number, A: Operand
     const pbE = pb / es, pcE = pc / es;
     // the whole of a constant A packed by the last product is still there
     const key = rows === M && isConstant(A.data) ? `${A.off},${A.rs},${A.cs},${M},${K},${es}` : undefined;
-    if (key === undefined || packedNow?.key !== key || packedNow.data.deref() !== A.data) {
-      packATiles(mem, A, r0, rows, K);
-      packedNow = key === undefined ? undefined : { data: new WeakRef(A.data), key };
+    if (key === undefined || packedNow?.key !== key || packedNow.data !== A.data) {
+      copyARows(mem, A, r0, rows, K);
+      packedNow = key === undefined ? undefined : { data: A.data, key };
     }
     for (let j0 = 0; j0 < N; j0 += SNC) {
       const nc = Math.min(SNC, N - j0), nTiles = Math.ceil(nc / nr), ldcE = nTiles * nr;
-      const ldbE = ldcE + B_PAD_BYTES / es;
-      // copy B[:, j0:j0+nc] row-major (ldbE elements per row), zeroing the columns past nc
-      if (nc < ldcE) mem.fill(0, pbE, pbE + K * ldbE);
-      for (let k = 0; k < K; k++) {
-        const o = B.off + k * brs + j0 * bcs, dst = pbE + k * ldbE;
-        if (bcs === 1 && nc >= 16) mem.set(bd.subarray(o, o + nc), dst);
-        else for (let c = 0; c < nc; c++) mem[dst + c] = bd[o + c * bcs]!;
-      }
+      packBTiles(mem, pbE, B, j0, nc, nr, K);
       const span = (t0: number, t1: number): TileSpan =>
-        ({ f64, pa: 0, pb, pc, nTiles, K, ldcBytes: ldcE * es, ldbBytes: ldbE * es, t0, t1, chunk: SMC / 4 });
-      if (threads > 1 && rows >= 8 && rows * nc * K >= PARALLEL_MIN_WORK) inBands(tiles, threads, span, (s) => runTiles(simd, s));
+        ({ f64, pa: 0, pb, pc, nTiles, K, ldcBytes: ldcE * es, ldbBytes: K * 32, t0, t1, chunk: SMC / 4 });
+      if (threads > 1 && rows >= 8 && rows * nc * K >= PARALLEL_MIN_WORK) inBands({ ...span(0, tiles), chunk: SHARED_CHUNK }, threads, (sp, counter) => runChunks(simd, sp, counter));
       else runTiles(simd, span(0, tiles));
       for (let r = 0; r < rows; r++) {
         const dst = cOff + (r0 + r) * ldc + j0, src = pcE + r * ldcE;

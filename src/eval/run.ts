@@ -58,6 +58,9 @@ function decodeFor(t: Tensor, precision: Precision, into?: Float64Array): NumArr
   return tensorToFloat64(t, into);
 }
 
+/** Kernels that read their operands element by element into float64 arithmetic, whatever the input array type. */
+const WIDENING_KERNELS = new Set(['Conv', 'ConvTranspose', 'Gemm', 'MatMul']);
+
 // Float64 buffers of large weights dropped after their step, reused for the next weight of the same size: a
 // fresh array per weight (tens of MiB each on a large model) is faulted in page by page and lingers until the
 // collector runs, which multiplied a proven fold's peak memory.
@@ -89,11 +92,17 @@ export class WeightCache {
   private readonly escaped = new Set<NumArray>();
   /** `shared`: the cache is the only one its runs use (no decoded tensor is kept across steps at all). */
   constructor(readonly shared = false) {}
+  /** The node about to run (set by GraphRun.step). */
+  reader: Node | undefined;
   get(t: Tensor, precision: Precision): NumArray {
     let d = this.held.get(t);
     if (!d) {
       const large = elementCount(t.dims) > KEEP_DECODED_MAX;
-      d = decodeFor(t, precision, large && precision === 'float64' ? takeSpare(elementCount(t.dims)) : undefined);
+      // A matrix product's float32 weight goes in as stored even in a float64 run: its kernel widens each value
+      // exactly as it copies the operand into its own memory, so no float64 copy of the weight is made at all.
+      const asStored = large && precision === 'float64' && this.reader !== undefined && WIDENING_KERNELS.has(this.reader.opType) && (this.reader.domain === '' || this.reader.domain === 'ai.onnx')
+        ? rawFloat32(t) : undefined;
+      d = asStored ?? decodeFor(t, precision, large && precision === 'float64' ? takeSpare(elementCount(t.dims)) : undefined);
       // only large weights are marked (a weak set of every small tensor of a large graph costs the collector
       // more than the whole evaluation); a kernel never writes over a decoded tensor, which is not pooled
       if (large) markTransient(d);
@@ -239,6 +248,7 @@ export class GraphRun {
     const { precision, opsetOf } = this.opts;
     const env = this.env, keep = this.keep, lastUse = this.lastUse;
     evaluating(`node '${node.name || '(unnamed)'}' (${node.opType})`);
+    this.weights.reader = node; // (lets a product's float32 weight go in as stored: see WeightCache.get)
     const args: Array<Value | undefined> = node.inputs.map((name) => {
       if (name === '') return undefined;
       const v = this.lookup(name);

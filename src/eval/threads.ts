@@ -27,8 +27,8 @@ const STALL_MS = 10 * 60_000;
 export const PARALLEL_MIN_WORK = 1 << 22;
 
 // Hand-off without messages: each worker owns a control block of shared integers ([0] counts the jobs posted to
-// it, then the span's fields) and waits on it with Atomics.wait; all count their bands done in one shared pair
-// ([0] finished, [1] failed). A message per band (a structured clone, a fresh shared buffer) cost more than a
+// it, then the span's fields) and waits on it with Atomics.wait; all take chunks from one shared counter and count
+// themselves done in one shared block ([0] finished, [1] failed, [2] the next chunk). A message per band (a structured clone, a fresh shared buffer) cost more than a
 // small product's band itself.
 export const SPAN_FIELDS = ['f64', 'pa', 'pb', 'pc', 'nTiles', 'K', 'ldcBytes', 'ldbBytes', 't0', 't1', 'chunk'] as const;
 export const CONTROL_INTS = 1 + SPAN_FIELDS.length;
@@ -36,7 +36,7 @@ export const CONTROL_INTS = 1 + SPAN_FIELDS.length;
 /** What a worker is started with. */
 export interface WorkerSetup { memory: WebAssembly.Memory; control: SharedArrayBuffer; done: SharedArrayBuffer }
 
-const done = new Int32Array(new SharedArrayBuffer(8));
+const done = new Int32Array(new SharedArrayBuffer(12)); // finished, failed, next chunk
 
 let workers: Array<{ worker: Worker; control: Int32Array }> = [];
 let posted = 0;
@@ -71,25 +71,26 @@ export async function stopThreads(): Promise<void> {
 }
 
 /**
- * Run tiles [0, tiles) of a kernel span in bands: the first band on this thread (`own`), the others on worker
- * threads over the shared kernel memory. `span(t0, t1)` gives the kernel span of a band.
+ * Run the tiles of a kernel span on this thread and the worker threads together: each thread takes the next
+ * chunk of tiles from a shared counter until none is left (`take`, src/eval/wasm-gemm.ts runChunks), so a thread
+ * slowed by other work on the machine simply takes fewer chunks.
  */
-export function inBands(tiles: number, threads: number, span: (t0: number, t1: number) => TileSpan, own: (s: TileSpan) => void): void {
-  const per = Math.ceil(tiles / threads);
-  const bands: Array<[number, number]> = [];
-  for (let t0 = 0; t0 < tiles; t0 += per) bands.push([t0, Math.min(tiles, t0 + per)]);
-  const others = bands.slice(1);
-  const ws = pool(others.length);
+export function inBands(span: TileSpan, threads: number, own: (s: TileSpan, counter: Int32Array) => void): void {
+  const chunks = Math.ceil((span.t1 - span.t0) / span.chunk);
+  const helpers = Math.min(threads, chunks) - 1;
+  const ws = pool(helpers);
   Atomics.store(done, 0, 0);
   Atomics.store(done, 1, 0);
-  others.forEach(([t0, t1], k) => {
-    const c = ws[k]!.control, job = span(t0, t1);
-    SPAN_FIELDS.forEach((f, i) => { c[1 + i] = f === 'f64' ? (job.f64 ? 1 : 0) : job[f]; });
+  Atomics.store(done, 2, 0);
+  for (const w of ws) {
+    const c = w.control;
+    SPAN_FIELDS.forEach((f, i) => { c[1 + i] = f === 'f64' ? (span.f64 ? 1 : 0) : span[f]; });
     Atomics.add(c, 0, 1); // the fields above are published by this atomic write
     Atomics.notify(c, 0);
-  });
-  posted += others.length;
-  own(span(bands[0]![0], bands[0]![1]));
+  }
+  posted += helpers;
+  own(span, done.subarray(2, 3));
+  const others = ws;
   // wait for every worker band; a worker that died without counting its band ends the wait after STALL_MS
   let idle = 0;
   for (let seen = Atomics.load(done, 0); seen < others.length;) {

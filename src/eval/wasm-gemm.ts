@@ -1,11 +1,17 @@
 // SIMD micro-kernels for the blocked GEMM, as a tiny WebAssembly module assembled here byte by byte (no
 // toolchain, no binary blob: the instruction list below is the source). Packed panels live in the module's
-// memory; each kernel multiplies an A block (tiles of 4 rows, k-major) by a row-major B panel (ldb bytes per
-// row, read 32 bytes of columns at a time) into a row-major C block, accumulating in registers over the whole
-// k range:
+// memory; each kernel multiplies a row-major A block, 4 rows at a time, by a B panel packed in tiles of 32 bytes
+// of columns, k-major (ldb bytes from one column tile to the next, so both operands are read in order, a cache
+// line after another), into a row-major C block, accumulating in registers over the whole k range:
 //   f32: 4 x 8 tile, f32x4 lanes (float32 arithmetic, the deployment mode)
 //   f64: 4 x 4 tile, f64x2 lanes (float64 arithmetic, the ground-truth mode)
 // Returns undefined when the runtime has no WebAssembly SIMD; gemm.ts then uses its scalar path.
+
+import {
+  BR_IF, END, F32X4_ADD, F32X4_MUL, F64X2_ADD, F64X2_MUL, I32_ADD, I32_CONST, I32_LOAD, I32_LT_U, I32_MUL, I32_SUB,
+  LOAD32_SPLAT, LOAD64_SPLAT, LOCAL_GET, LOCAL_SET, LOOP, section, simd, sleb, uleb, V128_CONST, V128_LOAD, V128_STORE, vec, VOID,
+  WASM_HEADER, wasmName,
+} from '../wasm.js';
 
 export interface SimdKernels {
   memory: WebAssembly.Memory;
@@ -18,75 +24,45 @@ export interface SimdKernels {
    */
   d32: (inP: number, outP: number, wP: number, tabP: number, taps: number, outH: number, outVecs: number, rowStep: number, outRow: number, biasP: number) => void;
   d64: (inP: number, outP: number, wP: number, tabP: number, taps: number, outH: number, outVecs: number, rowStep: number, outRow: number, biasP: number) => void;
-  /** (pa, pb, pc, mTiles, nTiles, kc, ldcBytes, ldbBytes): byte offsets into memory. */
-  k32: (pa: number, pb: number, pc: number, mTiles: number, nTiles: number, kc: number, ldcBytes: number, ldbBytes: number) => void;
-  k64: (pa: number, pb: number, pc: number, mTiles: number, nTiles: number, kc: number, ldcBytes: number, ldbBytes: number) => void;
+  /** (pa, pb, pc, mTiles, nTiles, kc, ldcBytes, ldbBytes, ldaBytes): byte offsets into memory and row/tile strides. */
+  k32: (pa: number, pb: number, pc: number, mTiles: number, nTiles: number, kc: number, ldcBytes: number, ldbBytes: number, ldaBytes: number) => void;
+  k64: (pa: number, pb: number, pc: number, mTiles: number, nTiles: number, kc: number, ldcBytes: number, ldbBytes: number, ldaBytes: number) => void;
 }
 
-function uleb(n: number): number[] {
-  const out: number[] = [];
-  do {
-    let b = n & 0x7f;
-    n >>>= 7;
-    if (n !== 0) b |= 0x80;
-    out.push(b);
-  } while (n !== 0);
-  return out;
-}
-
-function sleb(n: number): number[] {
-  const out: number[] = [];
-  for (;;) {
-    const b = n & 0x7f;
-    n >>= 7;
-    if ((n === 0 && (b & 0x40) === 0) || (n === -1 && (b & 0x40) !== 0)) { out.push(b); return out; }
-    out.push(b | 0x80);
-  }
-}
-
-const vec = (items: number[][]): number[] => [...uleb(items.length), ...items.flat()];
-const section = (id: number, body: number[]): number[] => [id, ...uleb(body.length), ...body];
-
-// opcodes
-const LOCAL_GET = 0x20, LOCAL_SET = 0x21, I32_CONST = 0x41, I32_ADD = 0x6a, I32_SUB = 0x6b, I32_MUL = 0x6c;
-const I32_LT_U = 0x49, I32_LOAD = 0x28, LOOP = 0x03, END = 0x0b, BR_IF = 0x0d, VOID = 0x40;
-const simd = (op: number): number[] => [0xfd, ...uleb(op)];
-const V128_LOAD = 0x00, V128_STORE = 0x0b, V128_CONST = 0x0c, LOAD32_SPLAT = 0x09, LOAD64_SPLAT = 0x0a;
-const F32X4_ADD = 0xe4, F32X4_MUL = 0xe6, F64X2_ADD = 0xf0, F64X2_MUL = 0xf2;
-
-// params: pa 0, pb 1, pc 2, mTiles 3, nTiles 4, kc 5, ldc 6, ldb 7; locals: jt 8, it 9, k 10, ap 11, bp 12,
-// cp 13, acc0..acc7 14..21, b0 22, b1 23, a 24
-const PA = 0, PB = 1, PC = 2, MT = 3, NT = 4, KC = 5, LDC = 6, LDB = 7, JT = 8, IT = 9, K = 10, AP = 11, BP = 12, CP = 13;
-const ACC = 14, B0 = 22, B1 = 23, A = 24;
+// params: pa 0, pb 1, pc 2, mTiles 3, nTiles 4, kc 5, ldc 6, ldb 7, lda 8; locals: jt 9, it 10, k 11, ap 12,
+// bp 13, cp 14, l2 15, l3 16, acc0..acc7 17..24, b0 25, b1 26, a 27
+const PA = 0, PB = 1, PC = 2, MT = 3, NT = 4, KC = 5, LDC = 6, LDB = 7, LDA = 8, JT = 9, IT = 10, K = 11, AP = 12, BP = 13, CP = 14;
+const L2 = 15, L3 = 16, ACC = 17, B0 = 25, B1 = 26, A = 27;
 
 function kernelBody(f64: boolean): number[] {
   const es = f64 ? 8 : 4; // element size
-  const aTileBytes = 4 * es; // one k step of an A tile (4 rows)
   const add = simd(f64 ? F64X2_ADD : F32X4_ADD), mul = simd(f64 ? F64X2_MUL : F32X4_MUL);
-  const splat = f64 ? [...simd(LOAD64_SPLAT), 3] : [...simd(LOAD32_SPLAT), 2];
+  const splat = f64 ? [...simd(LOAD64_SPLAT), 3, 0] : [...simd(LOAD32_SPLAT), 2, 0];
   const get = (i: number) => [LOCAL_GET, i], set = (i: number) => [LOCAL_SET, i];
   const c = (v: number) => [I32_CONST, ...sleb(v)];
   const code: number[] = [];
   const emit = (...xs: number[][]) => { for (const x of xs) code.push(...x); };
+  emit(get(LDA), get(LDA), [I32_ADD], set(L2), get(L2), get(LDA), [I32_ADD], set(L3));
   emit(c(0), set(JT));
   emit([LOOP, VOID]); // j tiles
   emit(c(0), set(IT));
   emit([LOOP, VOID]); // i tiles
-  // ap = pa + it * kc * aTileBytes ; bp = pb + jt * 32
-  emit(get(PA), get(IT), get(KC), [I32_MUL], c(aTileBytes), [I32_MUL], [I32_ADD], set(AP));
-  emit(get(PB), get(JT), c(32), [I32_MUL], [I32_ADD], set(BP));
+  // A is row-major (lda bytes per row): ap = pa + it * 4 * lda, rows at ap, ap + lda, ap + 2 lda, ap + 3 lda;
+  // bp = pb + jt * ldb (B is packed in column tiles of 32 bytes, k-major)
+  emit(get(PA), get(IT), c(4), [I32_MUL], get(LDA), [I32_MUL], [I32_ADD], set(AP));
+  emit(get(PB), get(JT), get(LDB), [I32_MUL], [I32_ADD], set(BP));
   for (let r = 0; r < 8; r++) emit(simd(V128_CONST), new Array(16).fill(0), set(ACC + r));
   emit(get(KC), set(K));
   emit([LOOP, VOID]); // k
   emit(get(BP), simd(V128_LOAD), [4, ...uleb(0)], set(B0));
   emit(get(BP), simd(V128_LOAD), [4, ...uleb(16)], set(B1));
   for (let r = 0; r < 4; r++) {
-    emit(get(AP), splat, uleb(r * es), set(A));
+    emit(get(AP), r === 0 ? [] : [...get([0, LDA, L2, L3][r]!), I32_ADD], splat, set(A));
     emit(get(ACC + 2 * r), get(A), get(B0), mul, add, set(ACC + 2 * r));
     emit(get(ACC + 2 * r + 1), get(A), get(B1), mul, add, set(ACC + 2 * r + 1));
   }
-  emit(get(AP), c(aTileBytes), [I32_ADD], set(AP));
-  emit(get(BP), get(LDB), [I32_ADD], set(BP));
+  emit(get(AP), c(es), [I32_ADD], set(AP));
+  emit(get(BP), c(32), [I32_ADD], set(BP));
   emit(get(K), c(1), [I32_SUB], [0x22, K]); // local.tee k
   emit([BR_IF, 0], [END]);
   // cp = pc + it*4*ldc + jt*32
@@ -99,7 +75,7 @@ function kernelBody(f64: boolean): number[] {
   emit(get(IT), c(1), [I32_ADD], [0x22, IT], get(MT), [I32_LT_U], [BR_IF, 0], [END]);
   emit(get(JT), c(1), [I32_ADD], [0x22, JT], get(NT), [I32_LT_U], [BR_IF, 0], [END]);
   emit([END]);
-  const locals = vec([[...uleb(6), 0x7f], [...uleb(11), 0x7b]]);
+  const locals = vec([[...uleb(8), 0x7f], [...uleb(11), 0x7b]]);
   const body = [...locals, ...code];
   return [...uleb(body.length), ...body];
 }
@@ -145,10 +121,10 @@ export const MAX_PAGES = 16384;
 export function moduleBytes(): Uint8Array<ArrayBuffer> {
   const i32 = 0x7f;
   const types = section(1, vec([
-    [0x60, ...vec(new Array(8).fill([i32])), ...vec([])],
+    [0x60, ...vec(new Array(9).fill([i32])), ...vec([])],
     [0x60, ...vec(new Array(10).fill([i32])), ...vec([])],
   ]));
-  const name = (s: string) => vec([...s].map((ch) => [ch.charCodeAt(0)]));
+  const name = wasmName;
   // the memory is imported, shared (limits flag 3: shared, with a maximum), so every worker thread's instance
   // runs its kernels on the operands the calling thread laid out, with no copy
   const imports = section(2, vec([[...name('e'), ...name('m'), 0x02, 0x03, ...uleb(1), ...uleb(MAX_PAGES)]]));
@@ -157,7 +133,7 @@ export function moduleBytes(): Uint8Array<ArrayBuffer> {
     [...name('k32'), 0x00, 0], [...name('k64'), 0x00, 1], [...name('d32'), 0x00, 2], [...name('d64'), 0x00, 3],
   ]));
   const code = section(10, vec([kernelBody(false), kernelBody(true), depthwiseBody(false), depthwiseBody(true)]));
-  return new Uint8Array([0x00, 0x61, 0x73, 0x6d, 0x01, 0x00, 0x00, 0x00, ...types, ...imports, ...funcs, ...exports, ...code]);
+  return new Uint8Array([...WASM_HEADER, ...types, ...imports, ...funcs, ...exports, ...code]);
 }
 
 let compiled: WebAssembly.Module | null | undefined;
@@ -205,6 +181,15 @@ export function runTiles(k: SimdKernels, s: TileSpan): void {
   const es = s.f64 ? 8 : 4;
   for (let t = s.t0; t < s.t1; t += s.chunk) {
     const n = Math.min(s.chunk, s.t1 - t);
-    kern(s.pa + t * 4 * s.K * es, s.pb, s.pc + t * 4 * s.ldcBytes, n, s.nTiles, s.K, s.ldcBytes, s.ldbBytes);
+    kern(s.pa + t * 4 * s.K * es, s.pb, s.pc + t * 4 * s.ldcBytes, n, s.nTiles, s.K, s.ldcBytes, s.ldbBytes, s.K * es);
+  }
+}
+
+/** Take chunks of a span's tiles from a shared counter until none is left, running each (see threads.ts). */
+export function runChunks(k: SimdKernels, s: TileSpan, counter: Int32Array): void {
+  for (;;) {
+    const t = s.t0 + Atomics.add(counter, 0, 1) * s.chunk;
+    if (t >= s.t1) return;
+    runTiles(k, { ...s, t0: t, t1: Math.min(s.t1, t + s.chunk) });
   }
 }

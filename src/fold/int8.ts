@@ -93,23 +93,52 @@ export function sqnrOf(values: Float64Array, map: ChannelMap, channels: number):
   for (const a of maxAbs) if (a > m) m = a;
   const scaleT = symmetricScale(m);
   const sig = new Float64Array(channels), noiseT = new Float64Array(channels);
-  let noiseC = 0;
-  for (let e = 0, i = 0; e < map.of.length; e++) {
-    const c = map.of[e]!, sc = scaleC[c]!;
-    let s = sig[c]!, nt = noiseT[c]!;
-    for (const end = i + map.unit; i < end; i++) {
-      const x = Math.fround(values[i]!);
-      s += x * x;
-      const dt = x - quantizeDequantize(x, scaleT), dc = x - quantizeDequantize(x, sc);
-      nt += dt * dt;
-      noiseC += dc * dc;
-    }
-    sig[c] = s; noiseT[c] = nt;
+  const acc = new Float64Array(3); // signal and per-tensor noise of the run's channel, per-channel noise overall
+  for (let e = 0, i = 0; e < map.of.length; e++, i += map.unit) {
+    const c = map.of[e]!;
+    acc[0] = sig[c]!; acc[1] = noiseT[c]!;
+    noiseOfRun(values, i, i + map.unit, scaleT, scaleC[c]!, acc);
+    sig[c] = acc[0]; noiseT[c] = acc[1];
   }
+  return sqnrFromSums(sig, noiseT, acc[2]!);
+}
+
+/**
+ * The figures from the sums: each channel's signal energy and rounding noise under the per-tensor scale, and the
+ * whole layer's noise under per-channel scales.
+ */
+export function sqnrFromSums(sig: Float64Array, noiseT: Float64Array, noiseC: number): SqnrFigures {
   let signal = 0, noise = 0, worst = Infinity;
-  for (let c = 0; c < channels; c++) {
+  for (let c = 0; c < sig.length; c++) {
     signal += sig[c]!; noise += noiseT[c]!;
     if (sig[c]! > 0) worst = Math.min(worst, sqnrDb(sig[c]!, noiseT[c]!));
   }
   return { tensor: sqnrDb(signal, noise), channel: sqnrDb(signal, noiseC), worstChannel: worst };
+}
+
+/** One 8-bit rounding, quantizeDequantize written out for the common case (a quotient within the int8 range). */
+function roundTrip(x: number, scale: number): number {
+  const y = Math.fround(x / scale);
+  // quotients far outside the range, NaN and a zero scale take the general function
+  if (!(Math.abs(y) < 1024)) return quantizeDequantize(x, scale);
+  let r = Math.round(y);
+  if (r - y === 0.5 && (r & 1) !== 0) r -= 1;
+  return Math.fround((r > 127 ? 127 : r < -128 ? -128 : r) * scale);
+}
+
+/**
+ * Add the signal and both rounding noises of weights [i, end) (one channel's run) to acc, in element order. Its
+ * own small function, called once per run: the engine optimizes it after a few calls with the whole loop's type
+ * feedback (one long loop in sqnrOf was optimized on the fly and thrown away again several times per layer).
+ */
+export function noiseOfRun(values: Float32Array | Float64Array, i: number, end: number, scaleT: number, scaleC: number, acc: Float64Array): void {
+  let s = acc[0]!, nt = acc[1]!, nc = acc[2]!;
+  for (; i < end; i++) {
+    const x = Math.fround(values[i]!);
+    s += x * x;
+    const dt = x - roundTrip(x, scaleT), dc = x - roundTrip(x, scaleC);
+    nt += dt * dt;
+    nc += dc * dc;
+  }
+  acc[0] = s; acc[1] = nt; acc[2] = nc;
 }

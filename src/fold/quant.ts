@@ -9,12 +9,14 @@
 // 8-bit quantization per tensor and per output channel, and the worst single channel under the per-tensor
 // scale (src/fold/int8.ts), before and after the fold. A layer is flagged on that worst channel.
 import type { Model, Node } from '../graph/ir.js';
-import { attrInt, DataType } from '../graph/ir.js';
+import { attrInt, DataType, elementCount } from '../graph/ir.js';
 import type { LedgerEntry } from './types.js';
 import { buildScopes, constantOf, labelOf, type Scope } from './scope.js';
 import { layouts, weightView, type ChannelMap } from './weights.js';
 import { tensorToFloat64 } from '../graph/tensor.js';
-import { roundedInt8, sqnrOf, type Int8Granularity, type SqnrFigures } from './int8.js';
+import { noiseOfRun, quantizeDequantize, roundedInt8, sqnrFromSums, sqnrOf, symmetricScale, type Int8Granularity, type SqnrFigures } from './int8.js';
+import { minmaxRun, noiseRun, stageFloat32 } from './int8-simd.js';
+import { peekBytes } from '../graph/lazy-bytes.js';
 import { makeTensor } from '../graph/tensor.js';
 import { withSwappedTensors } from '../graph/replace-tensors.js';
 import type { Tensor } from '../graph/ir.js';
@@ -73,47 +75,108 @@ export function spreadOf(ranges: Float64Array): number {
 }
 
 export interface LayerWeights { values: Float64Array; dims: number[]; map: ChannelMap; channels: number; tensor: Tensor }
+/** A layer's weight tensor and its output-channel map, not yet decoded. */
+export type LayerShape = Omit<LayerWeights, 'values'>;
 
 /** The weight of a Conv/ConvTranspose/Gemm/MatMul node with its output-channel map, or undefined. */
 export function layerWeights(scope: Scope, n: Node): LayerWeights | undefined {
+  const l = layerShape(scope, n);
+  return l ? { ...l, values: tensorToFloat64(l.tensor) } : undefined;
+}
+
+/** layerWeights without decoding the values. */
+export function layerShape(scope: Scope, n: Node): LayerShape | undefined {
   const w = n.inputs[1] ? constantOf(scope, n.inputs[1]) : undefined;
   if (!w) return undefined;
   const dims = [...w.tensor.dims];
   const v = weightView(dims);
   if (!FLOAT_TYPES.has(w.tensor.dataType)) return undefined;
   const tensor = w.tensor;
-  const values = () => tensorToFloat64(tensor);
   switch (n.opType) {
     case 'Conv': // W [Cout, Cin/group, k...]: output channel axis 0
       if (dims.length < 3) return undefined;
-      return { values: values(), dims, map: layouts.convOutput(v), channels: dims[0]!, tensor };
+      return { dims, map: layouts.convOutput(v), channels: dims[0]!, tensor };
     case 'ConvTranspose': { // W [Cin, Cout/group, k...]: output channel axis 1, times group
       const group = attrInt(n, 'group', 1);
       if (dims.length < 3 || group < 1 || dims[0]! % group !== 0) return undefined;
-      return { values: values(), dims, map: layouts.convTransposeOutput(v, group), channels: dims[1]! * group, tensor };
+      return { dims, map: layouts.convTransposeOutput(v, group), channels: dims[1]! * group, tensor };
     }
     case 'Gemm': // B is [K, N], or [N, K] with transB=1
       if (dims.length !== 2) return undefined;
       return attrInt(n, 'transB', 0) === 1
-        ? { values: values(), dims, map: layouts.rows(v), channels: dims[0]!, tensor }
-        : { values: values(), dims, map: layouts.columns(v), channels: dims[1]!, tensor };
+        ? { dims, map: layouts.rows(v), channels: dims[0]!, tensor }
+        : { dims, map: layouts.columns(v), channels: dims[1]!, tensor };
     case 'MatMul': // constant [K, N]: output channel is the last dim
       if (dims.length !== 2) return undefined;
-      return { values: values(), dims, map: layouts.columns(v), channels: dims[1]!, tensor };
+      return { dims, map: layouts.columns(v), channels: dims[1]!, tensor };
   }
   return undefined;
 }
 
-interface LayerFigures { spread: number; channels: number; sqnr: SqnrFigures }
+export interface LayerFigures { spread: number; channels: number; sqnr: SqnrFigures }
 
 function figuresOfLayer(scope: Scope, n: Node): LayerFigures | undefined {
-  const lw = layerWeights(scope, n);
-  if (!lw) return undefined;
+  const l = layerShape(scope, n);
+  return l ? layerFigures(l) : undefined;
+}
+
+/** Spread and SQNR figures of a layer's weights: in SIMD where it applies, else the scalar definitions. */
+export function layerFigures(l: LayerShape, simd = true): LayerFigures {
+  const fast = simd ? simdFigures(l) : undefined;
+  if (fast) return fast;
+  const values = tensorToFloat64(l.tensor);
   return {
-    spread: spreadOf(channelRanges(lw.values, lw.map, lw.channels)),
-    channels: lw.channels,
-    sqnr: sqnrOf(lw.values, lw.map, lw.channels),
+    spread: spreadOf(channelRanges(values, l.map, l.channels)),
+    channels: l.channels,
+    sqnr: sqnrOf(values, l.map, l.channels),
   };
+}
+
+/** Weight types whose every value is a float32, so the float32 SIMD figures see exactly the stored values. */
+const FLOAT32_EXACT = new Set<number>([DataType.FLOAT, DataType.FLOAT16, DataType.BFLOAT16]);
+
+/**
+ * figuresOfLayer in WebAssembly SIMD (src/fold/int8-simd.ts) for float32-exact weights whose channels lie in
+ * runs of at least 16 weights (Conv, ConvTranspose, Gemm with transB); undefined otherwise. Float32 raw bytes are
+ * copied into the kernels' memory as they are, never decoded to float64.
+ */
+function simdFigures(l: LayerShape): LayerFigures | undefined {
+  const t = l.tensor, n = elementCount(l.dims), { map, channels } = l;
+  if (!FLOAT32_EXACT.has(t.dataType) || map.unit < 16 || map.of.length * map.unit !== n) return undefined;
+  const s = t.storage;
+  const raw = t.dataType === DataType.FLOAT && (s.kind === 'raw' || s.kind === 'external') && s.bytes.byteLength >= n * 4 ? s.bytes : undefined;
+  const staged = stageFloat32(n, (view) => {
+    if (raw) new Uint8Array(view.buffer, view.byteOffset, n * 4).set(peekBytes(raw.subarray(0, n * 4)));
+    else view.set(tensorToFloat64(t));
+  });
+  if (!staged) return undefined;
+  const lo = new Float64Array(channels).fill(Infinity), hi = new Float64Array(channels).fill(-Infinity);
+  const run = new Float64Array(2);
+  for (let e = 0; e < map.of.length; e++) {
+    const c = map.of[e]!;
+    minmaxRun(staged, e * map.unit, map.unit, run);
+    if (run[0]! < lo[c]!) lo[c] = run[0]!;
+    if (run[1]! > hi[c]!) hi[c] = run[1]!;
+  }
+  const ranges = new Float64Array(channels), maxAbs = new Float64Array(channels);
+  let widest = 0;
+  for (let c = 0; c < channels; c++) {
+    if (!(hi[c]! >= lo[c]!)) continue; // no number in the channel: range 0, max |w| 0, as the scalar loops give
+    ranges[c] = hi[c]! - lo[c]!;
+    maxAbs[c] = Math.max(Math.abs(lo[c]!), Math.abs(hi[c]!));
+    if (maxAbs[c]! > widest) widest = maxAbs[c]!;
+  }
+  const scaleT = symmetricScale(widest), scaleC = maxAbs.map(symmetricScale);
+  const sig = new Float64Array(channels), noiseT = new Float64Array(channels), acc = new Float64Array(3);
+  for (let e = 0; e < map.of.length; e++) {
+    const c = map.of[e]!, sc = scaleC[c]!, i = e * map.unit;
+    acc[0] = sig[c]!; acc[1] = noiseT[c]!;
+    // a zero scale (a channel of zeros, or of weights too small for float32 to scale) takes the scalar rounding
+    if (scaleT > 0 && sc > 0) noiseRun(staged, i, map.unit, scaleT, sc, acc, (x) => [quantizeDequantize(x, scaleT), quantizeDequantize(x, sc)]);
+    else noiseOfRun(staged, i, i + map.unit, scaleT, sc, acc);
+    sig[c] = acc[0]; noiseT[c] = acc[1];
+  }
+  return { spread: spreadOf(ranges), channels, sqnr: sqnrFromSums(sig, noiseT, acc[2]!) };
 }
 
 const LINEAR = new Set(['Conv', 'ConvTranspose', 'Gemm', 'MatMul']);

@@ -22,9 +22,9 @@ import type { Int8Granularity } from '../fold/int8.js';
 import { checkJobNames } from './names.js';
 import { checkOpset } from '../graph/opsets.js';
 import { compare, type ProbeRecord } from '../verify/compare.js';
-import { checkProbeDir, saveProbeSets } from '../verify/probe-files.js';
+import { saveProbeSets } from '../verify/probe-files.js';
 import type { RewrittenNode } from '../fold/types.js';
-import { provenanceOf, setProvenance, sha256File } from './provenance.js';
+import { provenanceOf, setProvenance } from './provenance.js';
 import {
   SCHEMA_VERSION, type CheckSummary, type Coverage, type FoldJobOptions, type FoldReport, type Int8Output, type Int8Simulation, type StorageSummary,
 } from './types.js';
@@ -83,7 +83,7 @@ function checkGate(opts: FoldJobOptions & { halfGate?: boolean }): string | unde
   return opts.gate ?? (opts.halfGate ? DEFAULT_GATES.float16 : undefined);
 }
 import { sketches } from '../fold/sketch.js';
-import { fileSha256 } from './sha256.js';
+import { sha256Later } from './sha256.js';
 
 /**
  * The arithmetic of fold's whole-model check: float64, so the default gates judge the fold's own error (the
@@ -313,10 +313,11 @@ function foldStagedIn(tx: OutputSet, input: string, output: string, opts: FoldJo
 }
 
 function foldStagedOnce(tx: OutputSet, input: string, output: string, opts: FoldJobOptions, lateRangeCheck: boolean): Omit<StagedFold, 'staged'> {
-  if (opts.saveProbes !== undefined) checkProbeDir(opts.saveProbes);
   const model = readModelFile(input);
   const inputs = [model.sourcePath!, ...sideFilePaths(model)];
   inputs.forEach((p, i) => tx.protect(p, i === 0 ? 'input model' : `input model's side file`));
+  // the probe folder is an output like the model: claimed first, written at a temporary name, renamed in with it
+  if (opts.saveProbes !== undefined) tx.reserveFolder(opts.saveProbes, '--save-probes');
   // Decide every destination before any work: the model, and its side file if one may be written.
   const dest = tx.reserve(output, 'output');
   const side = join(dirname(dest), sideFileName(basename(dest)));
@@ -325,10 +326,10 @@ function foldStagedOnce(tx: OutputSet, input: string, output: string, opts: Fold
   // A second, untouched copy is the reference for the whole-model check and the quantization report.
   const original = opts.noProofs ? undefined : readModelFile(input);
   const gate = checkGate({ ...opts, halfGate: opts.store === 'float16' });
-  const sha256 = sha256File(input);
+  const sha256 = sha256Later(input); // worked out beside the fold for a large file; needed when the model is staged
   let staged: StagedModel | undefined;
   const stage = (m: Model, status: string) => {
-    setProvenance(m, provenanceOf(sha256, gate, opts, status));
+    setProvenance(m, provenanceOf(sha256(), gate, opts, status));
     staged = stageModelFile(m, dest, { externalThreshold: opts.externalThreshold }, (d) => tx.tempFor(d));
     tx.add(staged.files);
   };
@@ -346,7 +347,7 @@ function foldStagedOnce(tx: OutputSet, input: string, output: string, opts: Fold
   const records: ProbeRecord[] = [];
   const report = foldLoaded(model, original, input, opts, lateRangeCheck, ship, opts.saveProbes !== undefined ? (p) => records.push(p) : undefined);
   if (opts.pageDetail) {
-    report.sha256 = fileSha256(input);
+    report.sha256 = sha256();
     report.sketches = sketches(original ?? readModelFile(input), report.normalizations, model);
   }
   if (report.failed) {
@@ -357,7 +358,11 @@ function foldStagedOnce(tx: OutputSet, input: string, output: string, opts: Fold
       stage(shippedModel, report.check.status);
     }
     report.output = output;
-    if (opts.saveProbes !== undefined && original) report.probesSaved = { dir: opts.saveProbes, sets: saveProbeSets(opts.saveProbes, original.graph, records) };
+    if (opts.saveProbes !== undefined && original) {
+      let sets = 0;
+      tx.stageFolder(opts.saveProbes, (tmp) => { sets = saveProbeSets(tmp, original.graph, records); });
+      report.probesSaved = { dir: opts.saveProbes, sets };
+    }
   }
   return { report, inputs };
 }

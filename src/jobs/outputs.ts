@@ -60,7 +60,7 @@ export function recoverFolder(dir: string): void {
   }
   for (const n of readdirSync(dir)) {
     const m = TEMP.exec(n);
-    if (m && !alive(Number(m[1]))) rmSync(join(dir, n), { force: true });
+    if (m && !alive(Number(m[1]))) rmSync(join(dir, n), { force: true, recursive: true });
   }
 }
 
@@ -147,8 +147,45 @@ export class OutputSet {
   adopt(files: readonly StagedFile[], role: string): void {
     files.forEach((f, i) => {
       this.staged.push(f);
-      this.reserve(f.dest, i === 0 ? role : `${role}'s side file`, i === 0 ? undefined : files[0]!.dest);
+      if (f.folder) this.reserveFolder(f.dest, '--save-probes');
+      else this.reserve(f.dest, i === 0 ? role : `${role}'s side file`, i === 0 ? undefined : files[0]!.dest);
     });
+  }
+
+  /**
+   * Claim a folder to be written whole (--save-probes), or refuse it (exit 2) naming the flag: its parent must be an
+   * existing writable folder, and the folder itself new or empty, an input's path or claimed by no other output.
+   * It is written at a temporary name beside it and renamed in at commit with the other outputs.
+   */
+  reserveFolder(dest: string, role: string): string {
+    const full = resolve(dest);
+    const parent = dirname(full);
+    const st = statSync(parent, { throwIfNoEntry: false });
+    if (!st?.isDirectory()) throw new PleatError('bad-input', `${role} ${dest}: the folder ${parent} does not exist`);
+    try { accessSync(parent, constants.W_OK); } catch {
+      throw new PleatError('bad-input', `${role} ${dest}: cannot write in the folder ${parent}`);
+    }
+    const here = statSync(full, { throwIfNoEntry: false });
+    if (here && !here.isDirectory()) throw new PleatError('bad-input', `${role} ${dest}: a file of that name exists; give a new or empty folder`);
+    if (here && readdirSync(full).length) throw new PleatError('usage', `${role} ${dest}: the folder is not empty; give a new or empty folder`);
+    for (const k of fileKeys(full)) {
+      const input = this.protectedKeys.get(k);
+      if (input) throw new PleatError('bad-input', `${role} ${dest}: refusing to overwrite the ${input}; choose another path`);
+      const other = this.reservedKeys.get(k);
+      if (other === `${role} ${dest}`) return full;
+      if (other) throw new PleatError('bad-input', `${role} ${dest} is also written as ${other}; give each output its own path`);
+    }
+    for (const k of fileKeys(full)) this.reservedKeys.set(k, `${role} ${dest}`);
+    if (!this.dirs.has(parent)) { this.dirs.add(parent); recoverFolder(parent); }
+    return full;
+  }
+
+  /** Write a reserved folder at a temporary name beside it (`write` creates and fills the folder it is given). */
+  stageFolder(dest: string, write: (tmp: string) => void): void {
+    const full = resolve(dest);
+    const tmp = this.tempFor(full);
+    this.staged.push({ tmp, dest: full, folder: true });
+    write(tmp);
   }
 
   /** Give the staged files to the caller (who adopts them into its own set); this set then owns nothing. */
@@ -171,7 +208,7 @@ export class OutputSet {
 
   /** Drop staged files that will not be committed (a failed check), removing their temporaries. */
   discard(files: readonly StagedFile[]): void {
-    for (const f of files) rmSync(f.tmp, { force: true });
+    for (const f of files) rmSync(f.tmp, { force: true, recursive: true });
     this.staged = this.staged.filter((f) => !files.includes(f));
   }
 
@@ -202,7 +239,7 @@ export class OutputSet {
 
   /** Remove every temporary of this set (and any this process left in its folders, e.g. from a crashed worker). */
   abort(): void {
-    for (const f of this.staged) rmSync(f.tmp, { force: true });
+    for (const f of this.staged) rmSync(f.tmp, { force: true, recursive: true });
     this.staged = [];
     this.close();
   }
@@ -215,7 +252,7 @@ export class OutputSet {
       let names: string[];
       try { names = readdirSync(dir); } catch { continue; }
       for (const n of names) {
-        if (n.startsWith(mine) && TEMP.test(n) && !others.some((o) => n.startsWith(o))) rmSync(join(dir, n), { force: true });
+        if (n.startsWith(mine) && TEMP.test(n) && !others.some((o) => n.startsWith(o))) rmSync(join(dir, n), { force: true, recursive: true });
       }
     }
   }

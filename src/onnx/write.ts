@@ -442,7 +442,8 @@ function writeChunks(path: string, chunks: Iterable<{ offset?: number; bytes: Ui
 }
 
 /** A file written to a temporary name, to be renamed to `dest` once everything is decided and checked. */
-export interface StagedFile { tmp: string; dest: string }
+/** A file (or, with `folder`, a folder of files) written at a temporary name, renamed to `dest` at commit. */
+export interface StagedFile { tmp: string; dest: string; folder?: true }
 
 export interface StagedModel {
   /** The model file, then its side file (when it has one). */

@@ -254,7 +254,7 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
   const allGiven = specs.every((s) => s.given);
   const probes = allGiven ? 1 : requested;
   const extraLimit = allGiven || !opts.watch ? 0 : opts.extraProbes ?? DEFAULT_EXTRA_PROBES;
-  checkProbeEstimate(a.graph, specs); // before anything runs: sizes, and the values a probe would make
+  const estimateA = checkProbeEstimate(a.graph, specs); // before anything runs: sizes, and the values a probe would make
 
   const aOut = a.graph.outputs;
   const bOut = new Map(b.graph.outputs.map((o) => [o.name, o]));
@@ -287,8 +287,8 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
   /** A alone in one arithmetic (the outputs --save-probes keeps that the comparison did not compute). */
   const aAlone = (precision: Precision, inputs: Map<string, Value>) =>
     runLockstep([{ model: a, precision, probes: [inputs] }], (e) => labelled(e, a, 'A', precision))[0]![0]!;
-  const dimsOf = new Map(specs.map((s) => [s.name, s.given ? s.given.dims : s.dims]));
-  const together = probes > 1 && probes * (estimateRun(a.graph, dimsOf).totalBytes + estimateRun(b.graph, dimsOf).totalBytes) <= probeMemoryLimit() / 2;
+  const together = probes > 1 && probes * 2 * estimateA.totalBytes <= probeMemoryLimit() / 2
+    && probes * (estimateA.totalBytes + estimateRun(b.graph, new Map(specs.map((s) => [s.name, s.given ? s.given.dims : s.dims]))).totalBytes) <= probeMemoryLimit() / 2;
   let run = 0;
   try {
     for (let p = 0; p < probes + extraLimit;) {

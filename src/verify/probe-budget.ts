@@ -5,7 +5,7 @@ import { PleatError } from '../errors.js';
 import { elementCount } from '../graph/ir.js';
 import { formatBytes, probeMemoryLimit } from '../eval/budget.js';
 import type { Graph } from '../graph/ir.js';
-import { estimateRun } from '../eval/estimate.js';
+import { estimateRun, type Estimate } from '../eval/estimate.js';
 import type { InputSpec } from './inputs.js';
 
 export function checkProbeShapes(specs: readonly InputSpec[]): void {
@@ -33,7 +33,7 @@ export function checkProbeShapes(specs: readonly InputSpec[]): void {
  * in float64, as if none were freed), goes beyond the probe memory limit: a bound on both its memory and its
  * work, known before anything runs.
  */
-export function checkProbeEstimate(graph: Graph, specs: readonly InputSpec[]): void {
+export function checkProbeEstimate(graph: Graph, specs: readonly InputSpec[]): Estimate {
   checkProbeShapes(specs);
   const e = estimateRun(graph, new Map(specs.map((s) => [s.name, s.given ? s.given.dims : s.dims])));
   const limit = probeMemoryLimit();
@@ -41,4 +41,5 @@ export function checkProbeEstimate(graph: Graph, specs: readonly InputSpec[]): v
     const big = e.largest ? ` (the largest, node '${e.largest.node}', makes [${e.largest.dims.join(',')}])` : '';
     throw new PleatError('bad-input', `a probe of this model would make values of ${formatBytes(e.totalBytes)} in float64${big}, above the probe memory limit of ${formatBytes(limit)}; lower the probe shape (--dim, --shape) or raise --max-probe-memory`);
   }
+  return e;
 }

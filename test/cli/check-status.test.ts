@@ -170,4 +170,20 @@ describe('check status', { timeout: 180_000 }, () => {
     const e = emptyOutputModel();
     expect(pleat(['compare', e, e, '--strict']).code).toBe(1);
   });
+
+  it('export --strict: a skipped check exits 1 and writes no bundle; without it the bundle ships and the report says skipped', () => {
+    const m = noKernelModel();
+    const strictDir = join(dir, 'bundle-strict');
+    const r = pleat(['export', m, '--bundle', strictDir, '--strict', '--json']);
+    expect(r.code).toBe(1);
+    expect(existsSync(strictDir)).toBe(false);
+    const j = json(r.stdout);
+    expect(j.bundle).toBeNull();
+    expect(j.fold.check.status).toBe('skipped');
+    const loose = join(dir, 'bundle-loose');
+    const l = pleat(['export', m, '--bundle', loose, '--json']);
+    expect(l.code).toBe(0);
+    expect(json(l.stdout).fold.check.status).toBe('skipped');
+    expect(existsSync(join(loose, 'manifest.json'))).toBe(true);
+  });
 });

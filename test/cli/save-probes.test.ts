@@ -7,7 +7,7 @@
 import { describe, expect, it } from 'vitest';
 import { spawnSync } from 'node:child_process';
 import { createHash } from 'node:crypto';
-import { existsSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, writeFileSync } from 'node:fs';
+import { chmodSync, existsSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { ROOT, pleat } from '../helpers/cli.js';
@@ -124,5 +124,41 @@ print(json.dumps([[p.key, p.value] for p in m.metadata_props]))`));
     expect(c.code).toBe(0);
     expect(JSON.parse(c.stdout).probesSaved).toEqual({ dir: cdir, sets: 2 });
     expect(readdirSync(join(cdir, 'test_data_set_1')).sort()).toEqual(['input_0.pb', 'output_0.pb', 'output_1.pb']);
+  });
+
+  it('the probe folder is an output of the transaction: written beside, renamed in with the model, never alone', () => {
+    // the model's destination collides with the probe folder's parent being read-only: refused before any work
+    const ro = join(dir, 'ro');
+    mkdirSync(ro);
+    chmodSync(ro, 0o555);
+    try {
+      const r = pleat(['fold', SORTER, '-o', join(dir, 'ro-model.onnx'), '--save-probes', join(ro, 'probes')]);
+      if (process.getuid?.() !== 0) { // root writes anywhere
+        expect(r.code).toBe(2);
+        expect(r.stderr).toMatch(/--save-probes .*cannot write in the folder/);
+        expect(existsSync(join(dir, 'ro-model.onnx'))).toBe(false);
+      }
+    } finally { chmodSync(ro, 0o755); }
+    // a failing check writes neither the model nor the probes
+    const probes = join(dir, 'failing-probes'), out = join(dir, 'failing.onnx');
+    const f = pleat(['fold', SORTER, '-o', out, '--save-probes', probes, '--gate', 'maxAbs < 0']);
+    expect(f.code).toBe(1);
+    expect(existsSync(out)).toBe(false);
+    expect(existsSync(probes)).toBe(false);
+    // the same folder named as the model's output and as the probe folder is refused
+    const same = pleat(['fold', SORTER, '-o', join(dir, 'twice'), '--save-probes', join(dir, 'twice')]);
+    expect(same.code).toBe(2);
+    expect(same.stderr).toMatch(/also written as/);
+    // killed after staging, before the renames: neither the model nor the probe folder appears, and the next run
+    // writing there removes the temporaries (their process is gone)
+    const kdir = join(dir, 'killed');
+    mkdirSync(kdir);
+    const k = pleat(['fold', SORTER, '-o', join(kdir, 'm.onnx'), '--save-probes', join(kdir, 'probes')], { env: { PLEAT_KILL_AT: 'staged' } });
+    expect(k.code).not.toBe(0);
+    expect(readdirSync(kdir).filter((n) => !n.startsWith('.pleat-'))).toEqual([]);
+    expect(readdirSync(kdir).some((n) => n.endsWith('-probes.tmp'))).toBe(true);
+    expect(pleat(['fold', SORTER, '-o', join(kdir, 'm.onnx'), '--save-probes', join(kdir, 'probes')]).code).toBe(0);
+    expect(readdirSync(kdir).sort()).toEqual(['m.onnx', 'probes']);
+    expect(readdirSync(join(kdir, 'probes')).sort()).toEqual(['float32', 'test_data_set_0', 'test_data_set_1']);
   });
 });

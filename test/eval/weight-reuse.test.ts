@@ -70,4 +70,28 @@ describe('reused weight buffers', () => {
     for (let i = 0; i < y.length; i++) if (!(Math.abs(y[i]! - ort.y!.data[i]!) < 1e-4 * (1 + Math.abs(ort.y!.data[i]!)))) off++;
     expect(off).toBe(0);
   });
+
+  it('a large float32 weight read by a matrix product as stored (no float64 copy) gives the bits of the decoded weight', () => {
+    for (const op of ['Conv', 'Gemm', 'MatMul'] as const) {
+      const build = (form: 'raw' | 'typed') => {
+        const r = rng(21);
+        const g = new GraphBuilder();
+        if (op === 'Conv') {
+          g.input('x', [1, 96, 5, 5]).output('y');
+          g.node('Conv', ['x', g.init('w', [96, 96, 3, 3], randn(r, 96 * 96 * 9, 0.05), 1, form)], { pads: [1, 1, 1, 1] }, { outputs: ['y'] });
+        } else {
+          g.input('x', [3, 300]).output('y');
+          const w = g.init('w', [300, 300], randn(r, 90000, 0.05), 1, form);
+          g.node(op, ['x', w], op === 'Gemm' ? { transB: 1 } : {}, { outputs: ['y'] });
+        }
+        return parseModel(modelBytes(g, { opset: 13 }), '.');
+      };
+      const dims = op === 'Conv' ? [1, 96, 5, 5] : [3, 300];
+      const x = Float64Array.from(randn(rng(22), dims.reduce((a, b) => a * b), 1));
+      const run = (form: 'raw' | 'typed') => runModel(build(form), new Map([['x', { type: 1, dims, data: x }]]), { precision: 'float64' }).get('y')!.data;
+      const asStored = run('raw'), decoded = run('typed'); // float_data never takes the as-stored path
+      expect(asStored).toBeInstanceOf(Float64Array);
+      expect(differing(asStored, decoded), op).toBe(0);
+    }
+  });
 });
