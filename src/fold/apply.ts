@@ -244,7 +244,10 @@ export function regionGraph(scope: Scope, nodes: Node[], outputs: string[], extr
       const ref = own ? undefined : constantOf(scope, v);
       if (own || ref) {
         const t = own ?? ref!.tensor;
-        inits.push({ ...t, name: v, dims: [...t.dims], extra: [...t.extra], origin: undefined });
+        // field by field: spreading a tensor object costs more than the rest of a small proof's set-up
+        const copy: Tensor = { name: v, dims: [...t.dims], dataType: t.dataType, storage: t.storage, docString: t.docString, extra: [...t.extra], origin: undefined };
+        if (t.overridable !== undefined) copy.overridable = t.overridable;
+        inits.push(copy);
         continue;
       }
       const vi = valueInfoOf(scope, v);
