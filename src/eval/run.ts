@@ -50,11 +50,6 @@ function rawFloat32(t: Tensor, into?: Uint8Array): Float32Array | undefined {
   return new Float32Array(new Uint8Array(bytes).buffer, 0, n); // a copy (a Buffer's slice would be a view)
 }
 
-// Byte buffers that large float32 weights still on disk are read into, reused from weight to weight like the
-// float64 spares below (a fresh buffer per read is faulted in page by page).
-const spareRaw = new Map<number, Uint8Array[]>();
-let spareRawBytes = 0;
-
 function decodeFor(t: Tensor, precision: Precision, into?: Float64Array): NumArray {
   if (precision === 'float32') {
     const raw = rawFloat32(t);
@@ -67,33 +62,35 @@ function decodeFor(t: Tensor, precision: Precision, into?: Float64Array): NumArr
 /** Kernels that read their operands element by element into float64 arithmetic, whatever the input array type. */
 const WIDENING_KERNELS = new Set(['Conv', 'ConvTranspose', 'Gemm', 'MatMul']);
 
-// Float64 buffers of large weights dropped after their step, reused for the next weight of the same size: a
-// fresh array per weight (tens of MiB each on a large model) is faulted in page by page and lingers until the
-// collector runs, which multiplied a proven fold's peak memory.
-const spare = new Map<number, Float64Array[]>();
-const SPARE_MAX_BYTES = 256 * 1024 * 1024;
-let spareBytes = 0;
+/**
+ * Buffers of large weights dropped after their step, kept by size for the next weight of that size: a fresh
+ * buffer per weight (tens of MiB each on a large model) is faulted in page by page and lingers until the
+ * collector runs, which multiplied a proven fold's peak memory. Up to 256 MiB are kept.
+ */
+class SpareBuffers<T extends Float64Array | Uint8Array> {
+  private readonly bySize = new Map<number, T[]>();
+  private bytes = 0;
+  take(length: number): T | undefined {
+    const a = this.bySize.get(length)?.pop();
+    if (a) this.bytes -= a.byteLength;
+    return a;
+  }
+  put(a: T): void {
+    if (this.bytes + a.byteLength > 256 * 1024 * 1024) return;
+    this.bytes += a.byteLength;
+    const list = this.bySize.get(a.length) ?? [];
+    list.push(a);
+    this.bySize.set(a.length, list);
+  }
+}
+
+/** Float64 buffers of decoded weights; byte buffers that float32 weights on disk are read into as stored. */
+const spare = new SpareBuffers<Float64Array>(), spareRaw = new SpareBuffers<Uint8Array>();
 
 function takeSpare(n: number): Float64Array | undefined {
-  const a = spare.get(n)?.pop();
-  if (a) { spareBytes -= a.byteLength; forgetPacked(a); } // its packed tiles belong to the weight it held
+  const a = spare.take(n);
+  if (a) forgetPacked(a); // its packed copy in the kernel memory belongs to the weight it held
   return a;
-}
-
-function putSpareRaw(b: Uint8Array): void {
-  if (spareRawBytes + b.byteLength > SPARE_MAX_BYTES) return;
-  spareRawBytes += b.byteLength;
-  const list = spareRaw.get(b.byteLength) ?? [];
-  list.push(b);
-  spareRaw.set(b.byteLength, list);
-}
-
-function putSpare(a: Float64Array): void {
-  if (spareBytes + a.byteLength > SPARE_MAX_BYTES) return;
-  spareBytes += a.byteLength;
-  const list = spare.get(a.length) ?? [];
-  list.push(a);
-  spare.set(a.length, list);
 }
 
 /**
@@ -119,11 +116,10 @@ export class WeightCache {
       let asStored: Float32Array | undefined;
       if (large && precision === 'float64' && this.reader !== undefined && WIDENING_KERNELS.has(this.reader.opType) && (this.reader.domain === '' || this.reader.domain === 'ai.onnx')) {
         const bytes = elementCount(t.dims) * 4;
-        let into = spareRaw.get(bytes)?.pop();
-        if (into) spareRawBytes -= bytes; else into = new Uint8Array(bytes);
+        const into = spareRaw.take(bytes) ?? new Uint8Array(bytes);
         asStored = rawFloat32(t, into);
         if (asStored && asStored.buffer === into.buffer) this.readInto.set(asStored, into);
-        else putSpareRaw(into); // the bytes were in memory: the buffer was not needed
+        else spareRaw.put(into); // the bytes were in memory: the buffer was not needed
       }
       // small ones into a slab view (pool.ts): an array of its own per small weight per step costs the collector more
       const n = elementCount(t.dims);
@@ -142,9 +138,9 @@ export class WeightCache {
   clear(): void {
     for (const d of this.held.values()) {
       if (this.escaped.has(d)) continue;
-      if (d instanceof Float64Array && d.length > KEEP_DECODED_MAX) putSpare(d);
+      if (d instanceof Float64Array && d.length > KEEP_DECODED_MAX) spare.put(d);
       const raw = this.readInto.get(d);
-      if (raw) { forgetPacked(d); putSpareRaw(raw); }
+      if (raw) { forgetPacked(d); spareRaw.put(raw); }
     }
     this.held.clear();
     this.escaped.clear();
