@@ -10,6 +10,7 @@
 // evaluator's buffer pool and the runtime, and a release pipeline often runs several jobs on one machine.
 import { totalmem } from 'node:os';
 import { PleatError } from '../errors.js';
+import type { Node } from '../graph/ir.js';
 
 const MiB = 1024 * 1024;
 
@@ -18,6 +19,8 @@ export const DEFAULT_PROBE_MEMORY = Math.min(1024 * MiB, Math.max(256 * MiB, Mat
 let limit = DEFAULT_PROBE_MEMORY;
 let live = 0;
 let where = '';
+// the node being run, named only when a message needs it (a label per step costs a string per node)
+let whereNode: Node | undefined;
 
 export function formatBytes(n: number): string {
   if (n >= 1024 * MiB) return `${(n / (1024 * MiB)).toFixed(1)} GiB`;
@@ -43,18 +46,31 @@ export function probeMemoryLimit(): number {
   return limit;
 }
 
-/** What the evaluator is running, for messages (set by run.ts before each node). */
+/** What the evaluator is running, for messages. */
 export function evaluating(label: string): void {
   where = label;
+  whereNode = undefined;
+}
+
+/** The node the evaluator is running, for messages (set by run.ts before each node). */
+export function evaluatingNode(node: Node): void {
+  whereNode = node;
+}
+
+function currentWhere(): string {
+  if (whereNode) { where = `node '${whereNode.name || '(unnamed)'}' (${whereNode.opType})`; whereNode = undefined; }
+  return where;
 }
 
 /** Refuse an allocation of `elements` values of `bytesPer` bytes that is not a valid size or breaks the limit. */
-export function checkAllocation(elements: number, bytesPer: number, what = where): void {
+export function checkAllocation(elements: number, bytesPer: number, what?: string): void {
   if (!Number.isSafeInteger(elements) || elements < 0) {
+    what ??= currentWhere();
     throw new PleatError('bad-model', `${what || 'evaluation'}: a value of ${elements} elements cannot exist (check the model's shapes, pads and strides)`);
   }
   const bytes = elements * bytesPer;
   if (live + bytes > limit) {
+    what ??= currentWhere();
     throw new PleatError('bad-input', `${what || 'evaluation'}: a value of ${elements} elements (${formatBytes(bytes)}, with ${formatBytes(live)} already held) would exceed the probe memory limit of ${formatBytes(limit)}; lower the probe shape (--dim, --shape) or raise --max-probe-memory`);
   }
 }

@@ -5,6 +5,7 @@
 // left out, so the estimate is a lower bound: it never refuses more than evaluation itself would (budget.ts
 // checks each allocation as it comes).
 import { attrInt, attrInts, attrString, elementCount, type Graph, type Node } from '../graph/ir.js';
+import { heldStillCall, planOf, type Plan } from './plan.js';
 
 type Dims = number[] | undefined;
 
@@ -126,35 +127,58 @@ function outputDims(node: Node, ins: Dims[], constDims: (name: string) => Dims):
   }
 }
 
+// While graphs are held still (a comparison), an estimate asked for twice is worked out once.
+const kept = new WeakMap<Plan, { call: number; byDims: Map<string, Estimate> }>();
+
 /** Estimate one evaluation of `g` given the dims of its inputs. Subgraphs (If, Loop) are not entered. */
 export function estimateRun(g: Graph, inputDims: ReadonlyMap<string, number[]>): Estimate {
-  const dims = new Map<string, Dims>();
-  for (const [k, v] of inputDims) dims.set(k, v);
-  const inits = new Map(g.initializers.map((t) => [t.name, t.dims]));
-  const constDims = (name: string): Dims => inits.get(name);
-  const lastUse = new Map<string, number>();
-  g.nodes.forEach((n, i) => { for (const x of n.inputs) if (x) lastUse.set(x, i); });
-  const outputs = new Set(g.outputs.map((o) => o.name));
+  const plan = planOf(g);
+  const call = heldStillCall();
+  if (call === undefined) return estimate(g, plan, inputDims);
+  let k = kept.get(plan);
+  if (!k || k.call !== call) { k = { call, byDims: new Map() }; kept.set(plan, k); }
+  const key = JSON.stringify([...inputDims]);
+  let e = k.byDims.get(key);
+  if (!e) { e = estimate(g, plan, inputDims); k.byDims.set(key, e); }
+  return { ...e, ...(e.largest ? { largest: { node: e.largest.node, dims: [...e.largest.dims] } } : {}) };
+}
+
+function estimate(g: Graph, plan: Plan, inputDims: ReadonlyMap<string, number[]>): Estimate {
+  // by slot (plan.ts): the dims of each value while it is alive, and the last node reading it (inputs only)
+  const { inStart, inSlot, keep } = plan;
+  const dims: Dims[] = new Array(plan.names.length);
+  const constDims = (name: string): Dims => { const s = plan.slotOf.get(name); return s === undefined ? undefined : plan.init[s]?.dims; };
+  const nodes = g.nodes;
+  const lastUse = new Int32Array(plan.names.length).fill(-1);
+  for (let i = 0; i < nodes.length; i++) for (let k = inStart[i]!; k < inStart[i + 1]!; k++) { const s = inSlot[k]!; if (s >= 0) lastUse[s] = i; }
   const bytes = (d: Dims) => (d ? elementCount(d) * 8 : 0);
   let live = 0;
-  for (const [, d] of dims) live += bytes(d);
+  for (const [k, v] of inputDims) {
+    live += bytes(v);
+    const s = plan.slotOf.get(k);
+    if (s !== undefined) dims[s] = v;
+  }
   let peak = live;
   let total = live;
   let largest: Estimate['largest'];
-  g.nodes.forEach((n, i) => {
-    const ins = n.inputs.map((x) => (x ? dims.get(x) ?? inits.get(x) : undefined));
+  for (let i = 0; i < nodes.length; i++) {
+    const n = nodes[i]!;
+    const a = inStart[i]!, b = inStart[i + 1]!;
+    const ins: Dims[] = new Array(b - a);
+    for (let k = a; k < b; k++) { const s = inSlot[k]!; ins[k - a] = s < 0 ? undefined : dims[s] ?? plan.init[s]?.dims; }
     const out = outputDims(n, ins, constDims);
-    for (const o of n.outputs.slice(0, 1)) {
-      if (!o || !out) continue;
-      dims.set(o, out);
+    const o = n.outputs[0];
+    if (o && out) {
+      dims[plan.outSlot[plan.outStart[i]!]!] = out;
       live += bytes(out);
       total += bytes(out);
       if (!largest || bytes(out) > elementCount(largest.dims) * 8) largest = { node: n.name || n.opType, dims: out };
     }
     peak = Math.max(peak, live);
-    for (const x of n.inputs) {
-      if (x && lastUse.get(x) === i && !outputs.has(x) && dims.has(x)) { live -= bytes(dims.get(x)); dims.delete(x); }
+    for (let k = a; k < b; k++) {
+      const s = inSlot[k]!;
+      if (s >= 0 && lastUse[s] === i && !keep[s] && dims[s] !== undefined) { live -= bytes(dims[s]); dims[s] = undefined; }
     }
-  });
+  }
   return { peakBytes: peak, totalBytes: total, largest };
 }

@@ -81,12 +81,40 @@ export function gemm(M: number, N: number, K: number, A: Operand, B: Operand, C:
     if (!accumulate) for (let i = 0; i < M; i++) C.fill(0, cOff + i * ldc, cOff + i * ldc + N);
     return;
   }
+  if (M * N * K < SMALL_WORK) { gemmSmall(M, N, K, A, B, C, cOff, ldc, accumulate); return; }
   const simd = useSimd ? simdKernels() : undefined;
-  if (simd && M * N * K >= 512) {
+  if (simd) {
     if (M === 1 && !(C instanceof Float32Array)) { gemv(N, K, A, B, C, cOff, accumulate); return; }
     // very large operands (past the kernel memory's room even in row blocks) stay on the scalar path
     if (gemmSimd(simd, M, N, K, A, B, C, cOff, ldc, accumulate)) return;
   }
+  gemmScalar(M, N, K, A, B, C, cOff, ldc, accumulate);
+}
+
+/** Products smaller than this many multiply-adds take gemmSmall (packing costs more than the sums). */
+export const SMALL_WORK = 512;
+
+/**
+ * A small product without packing: the same sums as gemmScalar, element for element (each over k-blocks of KC,
+ * each block summed from zero in k order and then stored or added to C), so the result is bit-identical.
+ */
+export function gemmSmall(M: number, N: number, K: number, A: Operand, B: Operand, C: NumArray, cOff: number, ldc: number, accumulate: boolean): void {
+  const ad = A.data, bd = B.data, acs = A.cs, brs = B.rs;
+  for (let i = 0; i < M; i++) {
+    for (let j = 0; j < N; j++) {
+      const o = cOff + i * ldc + j;
+      for (let k0 = 0; k0 < K; k0 += KC) {
+        const k1 = Math.min(K, k0 + KC);
+        let s = 0;
+        for (let k = k0, ai = A.off + i * A.rs + k0 * acs, bi = B.off + k0 * brs + j * B.cs; k < k1; k++, ai += acs, bi += brs) s += ad[ai]! * bd[bi]!;
+        if (accumulate || k0 > 0) C[o] += s; else C[o] = s;
+      }
+    }
+  }
+}
+
+/** The blocked scalar product (4x4 register tiles over packed panels), for runtimes without WebAssembly SIMD. */
+export function gemmScalar(M: number, N: number, K: number, A: Operand, B: Operand, C: NumArray, cOff: number, ldc: number, accumulate: boolean): void {
   for (let j0 = 0; j0 < N; j0 += NC) {
     const nc = Math.min(NC, N - j0);
     for (let k0 = 0; k0 < K; k0 += KC) {

@@ -5,6 +5,7 @@
 import type { Graph, Model, Node } from '../graph/ir.js';
 import { GraphRun, WeightCache, prepareRun } from './run.js';
 import { liveBytes, resetLive } from './budget.js';
+import { planOf, type Plan } from './plan.js';
 import type { Precision, Value } from './value.js';
 
 /** A model (its inputs checked as runModel does), or a bare graph with its opsets (a fold's proof region). */
@@ -36,9 +37,11 @@ function lockstep(sides: LockstepSide[], wrap: (e: unknown, side: number) => unk
   const state = sides.map((s, i) => {
     try {
       const weights = new WeightCache(true);
+      let plan: Plan | undefined; // every probe of a side runs the same graph: one plan (plan.ts)
       const runs = s.probes.map((inputs) => {
         const { graph, given, opsetOf } = 'model' in s ? prepareRun(s.model, inputs) : { graph: s.graph, given: inputs, opsetOf: s.opsetOf };
-        return new GraphRun(graph, given, { precision: s.precision, opsetOf, weights, onNode: s.onNode });
+        if (plan?.graph !== graph) plan = planOf(graph);
+        return new GraphRun(graph, given, { precision: s.precision, opsetOf, weights, onNode: s.onNode, plan });
       });
       return { runs, weights };
     } catch (e) { throw wrap(e, i); }

@@ -11,8 +11,14 @@
 //   markConstant(arr) / isConstant(arr) -> arrays that never change once made (decoded initializers), so
 //                                       kernels may cache data derived from them (gemm's packed weights)
 //   markTransient(arr)               -> a large weight decoded for one node only (constant while it lives)
+//   freshFloat32(n) / freshFloat64(n) -> a new zeroed array, from a slab when small, outside the pool (probe
+//                                       values, decoded weights)
 // Kernels allocate through allocFloat (attrs.ts) or these functions; they must not keep a taken array after
 // returning it as a result.
+//
+// Small arrays (up to SLAB_MAX_BYTES) are views into a shared, fresh (so zeroed) slab, never reused: a typed
+// array with its own buffer costs an off-heap allocation and a finalizer for the collector, which on a graph of
+// 10^5 small nodes was the larger part of a whole-model check. A view keeps its slab alive, so the slabs are small.
 import type { NumArray } from './value.js';
 import { checkAllocation } from './budget.js';
 
@@ -23,6 +29,21 @@ const free32 = new Map<number, Float32Array[]>();
 const free64 = new Map<number, Float64Array[]>();
 const handedOut = new WeakSet<NumArray>();
 let pooledBytes = 0;
+
+/** Arrays of more bytes than this (and fewer than 64, which the engine keeps on its heap) get their own buffer. */
+const SLAB_MAX_BYTES = 2048;
+const SLAB_BYTES = 64 * 1024;
+let slab = new ArrayBuffer(0);
+let slabUsed = 0;
+
+/** A fresh, zeroed view of `bytes` bytes (a multiple of 8) in the current slab, or undefined when too large. */
+function slabView(bytes: number): number | undefined {
+  if (bytes <= 64 || bytes > SLAB_MAX_BYTES) return undefined;
+  if (slabUsed + bytes > slab.byteLength) { slab = new ArrayBuffer(SLAB_BYTES); slabUsed = 0; }
+  const at = slabUsed;
+  slabUsed += (bytes + 7) & ~7;
+  return at;
+}
 
 /** A pooled array of length n from `free` (zeroed unless zero=false), or a new one made by `make`. */
 function take<T extends NumArray>(free: Map<number, T[]>, n: number, zero: boolean, make: (n: number) => T, bytesPer: number): T {
@@ -35,12 +56,24 @@ function take<T extends NumArray>(free: Map<number, T[]>, n: number, zero: boole
   return fresh;
 }
 
+/** A new zeroed array of length k, a slab view when small; not pooled (never handed back, not counted). */
+export function freshFloat32(k: number): Float32Array {
+  const at = slabView(k * 4);
+  return at === undefined ? new Float32Array(k) : new Float32Array(slab, at, k);
+}
+
+/** A new zeroed array of length k, a slab view when small; not pooled (never handed back, not counted). */
+export function freshFloat64(k: number): Float64Array {
+  const at = slabView(k * 8);
+  return at === undefined ? new Float64Array(k) : new Float64Array(slab, at, k);
+}
+
 export function takeFloat32(n: number, zero = true): Float32Array {
-  return take(free32, n, zero, (k) => new Float32Array(k), 4);
+  return take(free32, n, zero, freshFloat32, 4);
 }
 
 export function takeFloat64(n: number, zero = true): Float64Array {
-  return take(free64, n, zero, (k) => new Float64Array(k), 8);
+  return take(free64, n, zero, freshFloat64, 8);
 }
 
 export function isPooled(a: NumArray): boolean {

@@ -1,14 +1,15 @@
 // The reference evaluator: runs a graph's nodes in list order (ONNX requires topological order), each through
 // its registered kernel, freeing intermediate values once their last reader has run.
 import { PleatError } from '../errors.js';
-import { DataType, opsetVersion, subgraphsOf, elementCount, type Graph, type Model, type Node, type Tensor } from '../graph/ir.js';
+import { DataType, opsetVersion, elementCount, type Graph, type Model, type Node, type Tensor } from '../graph/ir.js';
 import { peekBytes } from '../graph/lazy-bytes.js';
 import { isFloatType, tensorToFloat64, dataTypeName } from '../graph/tensor.js';
 import { getKernel } from './registry.js';
 import { forgetPacked } from './gemm.js';
-import { giveBack, isConstant, isPooled, markConstant, markTransient } from './pool.js';
-import { charge, evaluating, liveBytes, release, resetLive } from './budget.js';
-import type { KernelContext, NumArray, Precision, Value } from './value.js';
+import { freshFloat64, giveBack, isConstant, isPooled, markConstant, markTransient } from './pool.js';
+import { charge, evaluatingNode, liveBytes, release, resetLive } from './budget.js';
+import { planOf, type Plan } from './plan.js';
+import type { Kernel, KernelContext, NumArray, Precision, Value } from './value.js';
 
 export interface RunOptions {
   precision: Precision;
@@ -39,12 +40,12 @@ const decoded = new WeakMap<object, Decoded>();
 export const KEEP_DECODED_MAX = 1 << 16;
 
 /** A float32 tensor's values straight from its raw bytes (a view when aligned: no conversion, no copy). */
-function rawFloat32(t: Tensor): Float32Array | undefined {
+function rawFloat32(t: Tensor, into?: Uint8Array): Float32Array | undefined {
   const s = t.storage;
   if (t.dataType !== DataType.FLOAT || (s.kind !== 'raw' && s.kind !== 'external')) return undefined;
   const n = elementCount(t.dims);
   if (s.bytes.byteLength < n * 4) return undefined; // the general decoder reports it
-  const bytes = peekBytes(s.bytes.subarray(0, n * 4));
+  const bytes = peekBytes(s.bytes.subarray(0, n * 4), into);
   if ((bytes.byteOffset & 3) === 0) return new Float32Array(bytes.buffer, bytes.byteOffset, n);
   return new Float32Array(new Uint8Array(bytes).buffer, 0, n); // a copy (a Buffer's slice would be a view)
 }
@@ -61,25 +62,35 @@ function decodeFor(t: Tensor, precision: Precision, into?: Float64Array): NumArr
 /** Kernels that read their operands element by element into float64 arithmetic, whatever the input array type. */
 const WIDENING_KERNELS = new Set(['Conv', 'ConvTranspose', 'Gemm', 'MatMul']);
 
-// Float64 buffers of large weights dropped after their step, reused for the next weight of the same size: a
-// fresh array per weight (tens of MiB each on a large model) is faulted in page by page and lingers until the
-// collector runs, which multiplied a proven fold's peak memory.
-const spare = new Map<number, Float64Array[]>();
-const SPARE_MAX_BYTES = 256 * 1024 * 1024;
-let spareBytes = 0;
-
-function takeSpare(n: number): Float64Array | undefined {
-  const a = spare.get(n)?.pop();
-  if (a) { spareBytes -= a.byteLength; forgetPacked(a); } // its packed tiles belong to the weight it held
-  return a;
+/**
+ * Buffers of large weights dropped after their step, kept by size for the next weight of that size: a fresh
+ * buffer per weight (tens of MiB each on a large model) is faulted in page by page and lingers until the
+ * collector runs, which multiplied a proven fold's peak memory. Up to 256 MiB are kept.
+ */
+class SpareBuffers<T extends Float64Array | Uint8Array> {
+  private readonly bySize = new Map<number, T[]>();
+  private bytes = 0;
+  take(length: number): T | undefined {
+    const a = this.bySize.get(length)?.pop();
+    if (a) this.bytes -= a.byteLength;
+    return a;
+  }
+  put(a: T): void {
+    if (this.bytes + a.byteLength > 256 * 1024 * 1024) return;
+    this.bytes += a.byteLength;
+    const list = this.bySize.get(a.length) ?? [];
+    list.push(a);
+    this.bySize.set(a.length, list);
+  }
 }
 
-function putSpare(a: Float64Array): void {
-  if (spareBytes + a.byteLength > SPARE_MAX_BYTES) return;
-  spareBytes += a.byteLength;
-  const list = spare.get(a.length) ?? [];
-  list.push(a);
-  spare.set(a.length, list);
+/** Float64 buffers of decoded weights; byte buffers that float32 weights on disk are read into as stored. */
+const spare = new SpareBuffers<Float64Array>(), spareRaw = new SpareBuffers<Uint8Array>();
+
+function takeSpare(n: number): Float64Array | undefined {
+  const a = spare.take(n);
+  if (a) forgetPacked(a); // its packed copy in the kernel memory belongs to the weight it held
+  return a;
 }
 
 /**
@@ -90,6 +101,8 @@ export class WeightCache {
   private readonly held = new Map<Tensor, NumArray>();
   /** Decoded arrays some node's result holds (a kernel that passes its input through): never reused. */
   private readonly escaped = new Set<NumArray>();
+  /** Weights read as stored into a reused byte buffer, with that buffer (it goes back when they are dropped). */
+  private readonly readInto = new Map<NumArray, Uint8Array>();
   /** `shared`: the cache is the only one its runs use (no decoded tensor is kept across steps at all). */
   constructor(readonly shared = false) {}
   /** The node about to run (set by GraphRun.step). */
@@ -100,9 +113,17 @@ export class WeightCache {
       const large = elementCount(t.dims) > KEEP_DECODED_MAX;
       // A matrix product's float32 weight goes in as stored even in a float64 run: its kernel widens each value
       // exactly as it copies the operand into its own memory, so no float64 copy of the weight is made at all.
-      const asStored = large && precision === 'float64' && this.reader !== undefined && WIDENING_KERNELS.has(this.reader.opType) && (this.reader.domain === '' || this.reader.domain === 'ai.onnx')
-        ? rawFloat32(t) : undefined;
-      d = asStored ?? decodeFor(t, precision, large && precision === 'float64' ? takeSpare(elementCount(t.dims)) : undefined);
+      let asStored: Float32Array | undefined;
+      if (large && precision === 'float64' && this.reader !== undefined && WIDENING_KERNELS.has(this.reader.opType) && (this.reader.domain === '' || this.reader.domain === 'ai.onnx')) {
+        const bytes = elementCount(t.dims) * 4;
+        const into = spareRaw.take(bytes) ?? new Uint8Array(bytes);
+        asStored = rawFloat32(t, into);
+        if (asStored && asStored.buffer === into.buffer) this.readInto.set(asStored, into);
+        else spareRaw.put(into); // the bytes were in memory: the buffer was not needed
+      }
+      // small ones into a slab view (pool.ts): an array of its own per small weight per step costs the collector more
+      const n = elementCount(t.dims);
+      d = asStored ?? decodeFor(t, precision, precision !== 'float64' ? undefined : large ? takeSpare(n) : n <= 256 ? freshFloat64(n) : undefined);
       // only large weights are marked (a weak set of every small tensor of a large graph costs the collector
       // more than the whole evaluation); a kernel never writes over a decoded tensor, which is not pooled
       if (large) markTransient(d);
@@ -116,10 +137,14 @@ export class WeightCache {
   }
   clear(): void {
     for (const d of this.held.values()) {
-      if (d instanceof Float64Array && d.length > KEEP_DECODED_MAX && !this.escaped.has(d)) putSpare(d);
+      if (this.escaped.has(d)) continue;
+      if (d instanceof Float64Array && d.length > KEEP_DECODED_MAX) spare.put(d);
+      const raw = this.readInto.get(d);
+      if (raw) { forgetPacked(d); spareRaw.put(raw); }
     }
     this.held.clear();
     this.escaped.clear();
+    this.readInto.clear();
   }
 }
 
@@ -145,64 +170,57 @@ function inPrecision(v: Value, precision: Precision): Value {
   return v.data instanceof Float64Array ? v : { ...v, data: Float64Array.from(v.data) };
 }
 
-/** Names a subgraph reads from its enclosing scopes (anything it uses but does not define itself). */
-function outerReads(g: Graph, into: Set<string>): void {
-  const defined = new Set<string>();
-  for (const i of g.inputs) defined.add(i.name);
-  for (const t of g.initializers) defined.add(t.name);
-  for (const n of g.nodes) {
-    for (const i of n.inputs) if (i && !defined.has(i)) into.add(i);
-    for (const sg of subgraphsOf(n)) {
-      const inner = new Set<string>();
-      outerReads(sg, inner);
-      for (const i of inner) if (!defined.has(i)) into.add(i);
-    }
-    for (const o of n.outputs) if (o) defined.add(o);
-  }
-  for (const o of g.outputs) if (!defined.has(o.name)) into.add(o.name);
-}
-
-/** Every value name a node reads, including what its subgraphs read from this scope. */
-function readsOf(n: Node): string[] {
-  const subs = subgraphsOf(n);
-  if (subs.length === 0) return n.inputs.filter((x) => x !== '');
-  const s = new Set(n.inputs.filter((x) => x !== ''));
-  for (const g of subs) outerReads(g, s);
-  return [...s];
-}
-
 /** Values visible from enclosing scopes (a Map is one). */
 export interface OuterValues { get(name: string): Value | undefined }
 
 /**
  * One run of a graph, a node at a time (`step`), so several runs can advance together: the probes of a check,
  * and the original and folded model in lockstep. Intermediate values are dropped once their last reader has
- * run; large weights are decoded when their node runs and dropped after it.
+ * run; large weights are decoded when their node runs and dropped after it. Values are held by slot (plan.ts).
  */
 export class GraphRun {
-  private readonly env = new Map<string, Value>();
-  private readonly inits = new Map<string, Tensor>();
-  private readonly keep: Set<string>;
-  private readonly reads: string[][];
-  private readonly lastUse = new Map<string, number>();
-  private readonly foreign = new Set<NumArray>();
-  private readonly holders = new Map<NumArray, number>();
+  private readonly plan: Plan;
+  private readonly env: Array<Value | undefined>;
+  /** Values given for names the graph never mentions (an enclosing scope may still ask for them by name). */
+  private extra: Map<string, Value> | undefined;
+  /**
+   * Pooled arrays the caller or an enclosing scope can still see (only pooled arrays are ever held, so only they
+   * are asked about). The three collections are made when first needed: a fold's proof runs thousands of tiny graphs.
+   */
+  private foreign: Set<NumArray> | undefined;
+  private holders: Map<NumArray, number> | undefined;
   private readonly weights: WeightCache;
   private readonly ownWeights: boolean;
+  /** The context handed to every kernel of this run (its node and opset change per step). */
+  private readonly ctx: KernelContext;
   private idx = 0;
+  private domain: string | undefined;
+  private opset = 0;
 
-  constructor(readonly graph: Graph, inputs: Map<string, Value>, private readonly opts: GraphRunOptions & { weights?: WeightCache }) {
-    for (const t of graph.initializers) this.inits.set(t.name, t);
-    for (const [k, v] of inputs) this.env.set(k, inPrecision(v, opts.precision));
+  /** `plan`: the graph's plan, when the caller made it already (runs of one graph side by side share it). */
+  constructor(readonly graph: Graph, inputs: Map<string, Value>, private readonly opts: GraphRunOptions & { weights?: WeightCache; plan?: Plan }) {
+    const plan = this.plan = opts.plan?.graph === graph ? opts.plan : planOf(graph);
+    this.env = new Array<Value | undefined>(plan.names.length);
+    for (const [k, v] of inputs) {
+      const value = inPrecision(v, opts.precision);
+      const s = plan.slotOf.get(k);
+      if (s === undefined) (this.extra ??= new Map()).set(k, value); else this.env[s] = value;
+    }
     // Buffers from the pool are handed back once no live value of this graph holds them. Arrays the caller or
     // an enclosing scope can still see are never handed back.
-    for (const v of inputs.values()) this.foreign.add(v.data);
+    for (const v of inputs.values()) this.markForeign(v.data);
     this.weights = opts.weights ?? new WeightCache();
     this.ownWeights = !opts.weights;
-    // last reader of each value, so intermediates can be dropped as soon as nobody needs them
-    this.keep = new Set(graph.outputs.map((o) => o.name));
-    this.reads = graph.nodes.map(readsOf);
-    this.reads.forEach((names, i) => { for (const x of names) this.lastUse.set(x, i); });
+    const { precision, opsetOf } = opts;
+    this.ctx = {
+      node: graph.nodes[0]!, opset: 0, precision,
+      // the subgraph sees this scope's live values and everything outer to it
+      runSubgraph: (sub: Graph, extra?: Map<string, Value>): Value[] => {
+        const res = runGraph(sub, extra ?? new Map(), { precision, opsetOf, outer: { get: (k) => this.lookup(k) }, onNode: this.opts.onNode });
+        return sub.outputs.map((o) => res.get(o.name)!);
+      },
+      reusable: (i: number): boolean => this.reusable(i),
+    };
   }
 
   get done(): boolean { return this.idx >= this.graph.nodes.length; }
@@ -211,74 +229,106 @@ export class GraphRun {
   /** The node the next step runs. */
   get next(): Node | undefined { return this.graph.nodes[this.idx]; }
 
-  private lookup(name: string): Value | undefined {
-    const v = this.env.get(name);
+  private slotValue(s: number): Value | undefined {
+    const v = this.env[s];
     if (v) return v;
-    const t = this.inits.get(name);
+    const t = this.plan.init[s];
     if (t) return initializerValue(t, this.opts.precision, this.weights);
-    const o = this.opts.outer?.get(name);
-    if (o) this.foreign.add(o.data);
+    const o = this.opts.outer?.get(this.plan.names[s]!);
+    if (o) this.markForeign(o.data);
     return o;
+  }
+
+  private lookup(name: string): Value | undefined {
+    const s = this.plan.slotOf.get(name);
+    if (s !== undefined) return this.slotValue(s);
+    const v = this.extra?.get(name);
+    if (v) return v;
+    const o = this.opts.outer?.get(name);
+    if (o) this.markForeign(o.data);
+    return o;
+  }
+
+  private markForeign(data: NumArray): void {
+    if (isPooled(data)) (this.foreign ??= new Set()).add(data);
   }
 
   // values alive count against the probe memory limit (budget.ts) while some name holds them
   private hold(v: Value): void {
     if (!isPooled(v.data)) return;
-    const n = this.holders.get(v.data) ?? 0;
+    const holders = (this.holders ??= new Map());
+    const n = holders.get(v.data) ?? 0;
     if (n === 0) charge(v.data.byteLength);
-    this.holders.set(v.data, n + 1);
+    holders.set(v.data, n + 1);
   }
 
-  private drop(name: string): void {
-    const v = this.env.get(name);
+  private drop(s: number): void {
+    const v = this.env[s];
     if (!v) return;
-    this.env.delete(name);
-    const n = this.holders.get(v.data);
+    this.env[s] = undefined;
+    const n = this.holders?.get(v.data);
     if (n === undefined) return;
-    if (n > 1) { this.holders.set(v.data, n - 1); return; }
-    this.holders.delete(v.data);
+    if (n > 1) { this.holders!.set(v.data, n - 1); return; }
+    this.holders!.delete(v.data);
     release(v.data.byteLength);
-    if (!this.foreign.has(v.data)) giveBack(v.data);
+    if (!this.foreign?.has(v.data)) giveBack(v.data);
+  }
+
+  /**
+   * Whether the node being run may overwrite input i: its array is pooled, held by this one name only, which
+   * nothing reads after this node (no graph output, no later node, no second input slot, not redefined by this
+   * node) and which is not the caller's or an enclosing scope's.
+   */
+  private reusable(i: number): boolean {
+    const idx = this.idx - 1;
+    const node = this.graph.nodes[idx]!;
+    const plan = this.plan;
+    const name = node.inputs[i];
+    if (!name) return false;
+    const s = plan.inSlot[plan.inStart[idx]! + i]!;
+    if (plan.keep[s] || plan.lastUse[s] !== idx || !this.env[s]) return false;
+    if (node.inputs.indexOf(name) !== i || node.inputs.lastIndexOf(name) !== i || node.outputs.includes(name)) return false;
+    const data = this.env[s]!.data;
+    return this.holders?.get(data) === 1 && !this.foreign?.has(data);
+  }
+
+  private kernelFor(idx: number, node: Node): { kernel: Kernel; opset: number } {
+    const domain = node.domain === 'ai.onnx' ? '' : node.domain;
+    if (domain !== this.domain) { this.opset = this.opts.opsetOf(domain); this.domain = domain; }
+    const opset = this.opset;
+    const plan = this.plan;
+    let kernel = plan.kernel[idx];
+    if (!kernel || plan.kernelOpset[idx] !== opset || kernel.op !== node.opType || kernel.domain !== domain) {
+      kernel = getKernel(domain, node.opType, opset, node.name || '(unnamed)');
+      plan.kernel[idx] = kernel;
+      plan.kernelOpset[idx] = opset;
+    }
+    return { kernel, opset };
   }
 
   /** Run the next node. */
   step(): void {
     const idx = this.idx++;
     const node = this.graph.nodes[idx]!;
-    const { precision, opsetOf } = this.opts;
-    const env = this.env, keep = this.keep, lastUse = this.lastUse;
-    evaluating(`node '${node.name || '(unnamed)'}' (${node.opType})`);
+    const plan = this.plan, env = this.env;
+    evaluatingNode(node);
     this.weights.reader = node; // (lets a product's float32 weight go in as stored: see WeightCache.get)
-    const args: Array<Value | undefined> = node.inputs.map((name) => {
-      if (name === '') return undefined;
-      const v = this.lookup(name);
+    const a = plan.inStart[idx]!, b = plan.inStart[idx + 1]!;
+    const args = new Array<Value | undefined>(b - a);
+    for (let k = a; k < b; k++) {
+      const s = plan.inSlot[k]!;
+      if (s < 0) { args[k - a] = undefined; continue; }
+      const v = this.slotValue(s);
       if (!v) {
         throw new PleatError('bad-model',
-          `node '${node.name || '(unnamed)'}' (${node.opType}) reads '${name}', which no graph input, initializer or earlier node defines`);
+          `node '${node.name || '(unnamed)'}' (${node.opType}) reads '${plan.names[s]}', which no graph input, initializer or earlier node defines`);
       }
-      return v;
-    });
-    const domain = node.domain === 'ai.onnx' ? '' : node.domain;
-    const opset = opsetOf(domain);
-    const kernel = getKernel(domain, node.opType, opset, node.name || '(unnamed)');
-    const ctx: KernelContext = {
-      node, opset, precision,
-      runSubgraph: (sub: Graph, extra?: Map<string, Value>): Value[] => {
-        // the subgraph sees this scope's live values and everything outer to it
-        const res = runGraph(sub, extra ?? new Map(), { precision, opsetOf, outer: { get: (k) => this.lookup(k) }, onNode: this.opts.onNode });
-        return sub.outputs.map((o) => res.get(o.name)!);
-      },
-      reusable: (i: number): boolean => {
-        // the input's array is pooled, held by this one name only, which nothing reads after this node (no
-        // graph output, no later node, no second input slot, not redefined by this node) and which is not the
-        // caller's or an enclosing scope's
-        const name = node.inputs[i];
-        if (!name || keep.has(name) || lastUse.get(name) !== idx || !env.has(name)) return false;
-        if (node.inputs.indexOf(name) !== i || node.inputs.lastIndexOf(name) !== i || node.outputs.includes(name)) return false;
-        const data = env.get(name)!.data;
-        return this.holders.get(data) === 1 && !this.foreign.has(data);
-      },
-    };
+      args[k - a] = v;
+    }
+    const { kernel, opset } = this.kernelFor(idx, node);
+    const ctx = this.ctx;
+    ctx.node = node;
+    ctx.opset = opset;
     let results: Value[];
     try {
       results = kernel.run(args, ctx);
@@ -288,20 +338,21 @@ export class GraphRun {
       throw e;
     }
     this.opts.onNode?.(node);
-    node.outputs.forEach((name, i) => {
-      if (name === '') return;
-      const v = results[i];
-      if (!v) return; // an optional output the kernel does not produce; a later read reports it by name
+    const oa = plan.outStart[idx]!, ob = plan.outStart[idx + 1]!;
+    for (let k = oa; k < ob; k++) {
+      const s = plan.outSlot[k]!;
+      if (s < 0) continue;
+      const v = results[k - oa];
+      if (!v) continue; // an optional output the kernel does not produce; a later read reports it by name
       if (v.data.length !== elementCount(v.dims)) {
-        throw new PleatError('bad-model', `node '${node.name}' (${node.opType}): output '${name}' has ${v.data.length} values for dims [${v.dims.join(',')}]`);
+        throw new PleatError('bad-model', `node '${node.name}' (${node.opType}): output '${plan.names[s]}' has ${v.data.length} values for dims [${v.dims.join(',')}]`);
       }
-      if (env.has(name)) this.drop(name); // a name defined twice (invalid SSA) must not leak its hold
-      env.set(name, v);
+      if (env[s]) this.drop(s); // a name defined twice (invalid SSA) must not leak its hold
+      env[s] = v;
       this.hold(v);
       this.weights.noteResult(v.data); // a weight passed through must outlive the step
-    });
-    node.outputs.forEach((name) => { if (name && !keep.has(name) && !lastUse.has(name)) this.drop(name); });
-    for (const name of this.reads[idx]!) if (lastUse.get(name) === idx && !keep.has(name)) this.drop(name);
+    }
+    for (let k = plan.dropStart[idx]!, end = plan.dropStart[idx + 1]!; k < end; k++) this.drop(plan.dropSlot[k]!);
     if (this.ownWeights) this.weights.clear();
   }
 
@@ -312,7 +363,8 @@ export class GraphRun {
       const v = this.lookup(o.name);
       if (!v) throw new PleatError('bad-model', `graph '${this.graph.name}': output '${o.name}' is never computed`);
       // a decoded initializer handed to the caller is a copy, so the caller may change it freely
-      out.set(o.name, isConstant(v.data) || (!this.env.has(o.name) && this.inits.has(o.name)) ? { ...v, data: v.data.slice() } : v);
+      const s = this.plan.slotOf.get(o.name)!;
+      out.set(o.name, isConstant(v.data) || (!this.env[s] && this.plan.init[s] !== undefined) ? { ...v, data: v.data.slice() } : v);
     }
     if (this.ownWeights) this.weights.clear();
     return out;
@@ -334,9 +386,11 @@ export function runGraph(graph: Graph, inputs: Map<string, Value>, opts: GraphRu
 /** A model's graph, inputs and opset lookup, checked for a run (see runModel). */
 export function prepareRun(model: Model, inputs: Map<string, Value>): { graph: Graph; given: Map<string, Value>; opsetOf: (domain: string) => number } {
   const g = model.graph;
-  const inits = new Set(g.initializers.map((t) => t.name));
+  // the initializer names only matter for inputs given no value (a set of every name costs as much as a run of a small graph)
+  let inits: Set<string> | undefined;
+  const isInit = (name: string) => (inits ??= new Set(g.initializers.map((t) => t.name))).has(name);
   for (const i of g.inputs) {
-    if (!inputs.has(i.name) && !inits.has(i.name)) {
+    if (!inputs.has(i.name) && !isInit(i.name)) {
       throw new PleatError('bad-input', `model input '${i.name}' has no value: give it one (it has no initializer default)`);
     }
     const v = inputs.get(i.name);
@@ -344,13 +398,15 @@ export function prepareRun(model: Model, inputs: Map<string, Value>): { graph: G
       throw new PleatError('bad-input', `model input '${i.name}' expects ${dataTypeName(i.elemType)} but was given ${dataTypeName(v.type)}`);
     }
   }
+  const declared = new Map<string, Graph['inputs'][number]>();
+  for (const i of g.inputs) if (!declared.has(i.name)) declared.set(i.name, i);
   for (const name of inputs.keys()) {
-    if (!g.inputs.some((i) => i.name === name)) throw new PleatError('bad-input', `the model has no input named '${name}'`);
+    if (!declared.has(name)) throw new PleatError('bad-input', `the model has no input named '${name}'`);
   }
   // a float value given for a float input of another width takes the model's declared type
   const given = new Map<string, Value>();
   for (const [name, v] of inputs) {
-    const decl = g.inputs.find((i) => i.name === name)?.elemType;
+    const decl = declared.get(name)?.elemType;
     given.set(name, decl !== undefined && decl !== v.type && isFloatType(decl) && isFloatType(v.type) ? { ...v, type: decl } : v);
   }
   const opsetOf = (domain: string): number => {

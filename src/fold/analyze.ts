@@ -244,9 +244,10 @@ function writtenOutSummary(ctx: FoldContext, scope: Scope, cache: StepCache, n: 
   return { ...summary, effect: writtenOutHint(summary.targets), cloneBytes: 0 };
 }
 
-export function findingsOf(ctx: FoldContext, model: Model): Finding[] {
+/** `scopes`: the fold driver's own (current, derived caches forgotten), else built here. */
+export function findingsOf(ctx: FoldContext, model: Model, scopes = buildScopes(model, ctx.labels, ctx.options.inputShapes)): Finding[] {
   const out: Finding[] = [];
-  for (const scope of buildScopes(model, ctx.labels, ctx.options.inputShapes)) {
+  for (const scope of scopes) {
     for (const f of assessScope(ctx, scope, new Map())) out.push({ node: label(scope, f.node), op: f.op, kind: f.kind, ...f.summary, graph: scope.path });
   }
   return out;

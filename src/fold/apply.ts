@@ -2,11 +2,12 @@
 // to the graph with an undo, plus the before/after regions a numeric proof runs.
 import type { Attribute, Graph, Node, Tensor, ValueInfo } from '../graph/ir.js';
 import { touch } from '../graph/edit.js';
+import type { EditableUseDef } from '../graph/usedef.js';
 import { decodeValues, scaleTensor, storeValues, type ScaleGuard } from './values.js';
 import { scaleWeights, type ChannelMap } from './weights.js';
 import { makeTensor } from '../graph/tensor.js';
 import { constantOf, inferredShape, soleReader, valueInfoOf, type ConstRef, type Scope } from './scope.js';
-import { freshName, type FoldContext } from './context.js';
+import { freshName, type FoldContext, type LiveScope, type PendingGraph } from './context.js';
 
 export interface NodeChange {
   node: Node;
@@ -92,30 +93,66 @@ export function makeNode(opType: string, name: string, inputs: string[], outputs
   return { name, opType, domain: '', inputs, outputs, attributes: [], docString: '', extra: [] };
 }
 
-/** Apply the node and initializer list changes of every edited graph. */
+/**
+ * Apply the node and initializer list changes of every edited graph, and tell the driver's use-def indexes (when
+ * it keeps them, see FoldContext.live) what changed: each index then answers for the graph as it now is.
+ */
 export function flushPending(ctx: FoldContext): void {
+  ctx.flushed = true;
+  const edited = new Set<EditableUseDef>();
   for (const [g, p] of ctx.pending) {
-    if (!p.removed.size && !p.inserts.size && !p.initializers.length && !p.inputs.length) continue;
-    const nodes: Node[] = [];
-    // An inserted node may have inserts of its own (the bias Add after a cloned layer).
-    const emit = (n: Node) => {
-      if (!p.removed.has(n)) nodes.push(n);
-      for (const a of p.inserts.get(n) ?? []) emit(a);
-    };
-    for (const n of g.nodes) emit(n);
-    g.nodes = nodes;
-    if (p.initializers.length) g.initializers = [...g.initializers, ...p.initializers];
-    if (p.inputs.length) g.inputs = [...g.inputs, ...p.inputs];
-    touch(g);
+    const lists = p.removed.size > 0 || p.inserts.size > 0 || p.initializers.length > 0 || p.inputs.length > 0;
+    const inserted: Node[] = [];
+    if (lists) {
+      const nodes: Node[] = [];
+      // An inserted node may have inserts of its own (the bias Add after a cloned layer).
+      const emit = (n: Node, isNew: boolean) => {
+        if (!p.removed.has(n)) nodes.push(n);
+        if (isNew) inserted.push(n);
+        for (const a of p.inserts.get(n) ?? []) emit(a, true);
+      };
+      for (const n of g.nodes) emit(n, false);
+      g.nodes = nodes;
+      if (p.initializers.length) g.initializers = [...g.initializers, ...p.initializers];
+      if (p.inputs.length) g.inputs = [...g.inputs, ...p.inputs];
+      touch(g);
+    }
+    for (const n of p.removed) ctx.removedNodes.add(n);
+    const live = ctx.live?.get(g);
+    if (live) updateIndex(ctx, live, p, inserted, edited);
   }
   ctx.pending.clear();
+  // reader lists back in node order, once per graph (a graph with many edited bodies is not walked per body)
+  for (const ud of edited) ud.settle();
 }
 
-/** Apply an edit to its graph. Returns the undo (which restores every object, origins included). */
-export function applyEdit(ctx: FoldContext, edit: Edit, opts: { inPlace: boolean }): () => void {
+/** One graph's index follows a sweep's edits; owners of an edited body read what the body now reads. */
+function updateIndex(ctx: FoldContext, live: LiveScope, p: PendingGraph, inserted: Node[], edited: Set<EditableUseDef>): void {
+  const ud = live.ud;
+  edited.add(ud);
+  const added = new Set(inserted);
+  for (const n of p.removed) ud.removeNode(n, p.rewired.get(n));
+  for (const [n, was] of p.rewired) if (!p.removed.has(n) && !added.has(n)) ud.rewire(n, was);
+  for (const n of inserted) ud.addNode(n);
+  for (const t of p.initializers) ud.addInitializer(t);
+  for (const v of p.inputs) ud.addGraphInput(v.name);
+  for (let s = live.scope; s.owner && s.parent; s = s.parent) {
+    const outer = ctx.live!.get(s.parent.graph)!.ud;
+    outer.refreshBodyReads(s.owner);
+    edited.add(outer);
+  }
+}
+
+/**
+ * Apply an edit to its graph. Returns the undo (which restores every object, origins included); with
+ * `undoable: false` (a fold that will not be proven) nothing is recorded for it and the undo does nothing.
+ */
+export function applyEdit(ctx: FoldContext, edit: Edit, opts: { inPlace: boolean; undoable?: boolean }): () => void {
   const g = edit.scope.graph;
+  const undoable = opts.undoable ?? true;
   const undo: Array<() => void> = [];
   const save = <T extends object>(obj: T, keys: Array<keyof T>) => {
+    if (!undoable) return;
     const old = keys.map((k) => obj[k]);
     const origin = (obj as { origin?: unknown }).origin;
     undo.push(() => {
@@ -138,8 +175,17 @@ export function applyEdit(ctx: FoldContext, edit: Edit, opts: { inPlace: boolean
       touch(cn);
     }
   }
+  const pending = (): PendingGraph => {
+    let p = ctx.pending.get(g);
+    if (!p) { p = { rewired: new Map(), removed: new Set(), inserts: new Map(), initializers: [], inputs: [] }; ctx.pending.set(g, p); }
+    return p;
+  };
   for (const c of edit.changes) {
     save(c.node, ['opType', 'inputs', 'outputs', 'attributes']);
+    if ((c.inputs || c.outputs) && ctx.live) {
+      const rewired = pending().rewired;
+      if (!rewired.has(c.node)) rewired.set(c.node, { inputs: c.node.inputs, outputs: c.node.outputs });
+    }
     if (c.opType !== undefined) c.node.opType = c.opType;
     if (c.inputs) c.node.inputs = c.inputs;
     if (c.outputs) c.node.outputs = c.outputs;
@@ -148,9 +194,7 @@ export function applyEdit(ctx: FoldContext, edit: Edit, opts: { inPlace: boolean
   }
   if (edit.removeNodes.length || edit.inserts.length || edit.newInitializers.length) {
     // List changes wait for flushPending, so a sweep of many folds rebuilds each list once.
-    let p = ctx.pending.get(g);
-    if (!p) { p = { removed: new Set(), inserts: new Map(), initializers: [], inputs: [] }; ctx.pending.set(g, p); }
-    const pg = p;
+    const pg = pending();
     for (const n of edit.removeNodes) pg.removed.add(n);
     for (const ins of edit.inserts) pg.inserts.set(ins.after, [...(pg.inserts.get(ins.after) ?? []), ins.node]);
     const initsAt = pg.initializers.length, inputsAt = pg.inputs.length;
@@ -160,7 +204,7 @@ export function applyEdit(ctx: FoldContext, edit: Edit, opts: { inPlace: boolean
       ? edit.newInitializers.map((t): ValueInfo => ({ name: t.name, elemType: t.dataType, shape: [...t.dims], docString: '', extra: [] }))
       : [];
     pg.inputs.push(...newInputs);
-    undo.push(() => {
+    if (undoable) undo.push(() => {
       for (const n of edit.removeNodes) pg.removed.delete(n);
       for (const ins of edit.inserts) pg.inserts.set(ins.after, (pg.inserts.get(ins.after) ?? []).filter((x) => x !== ins.node));
       // undone right after it was applied (a failed proof, or a proven fold applied again in place), the edit's
@@ -200,7 +244,10 @@ export function regionGraph(scope: Scope, nodes: Node[], outputs: string[], extr
       const ref = own ? undefined : constantOf(scope, v);
       if (own || ref) {
         const t = own ?? ref!.tensor;
-        inits.push({ ...t, name: v, dims: [...t.dims], extra: [...t.extra], origin: undefined });
+        // field by field: spreading a tensor object costs more than the rest of a small proof's set-up
+        const copy: Tensor = { name: v, dims: [...t.dims], dataType: t.dataType, storage: t.storage, docString: t.docString, extra: [...t.extra], origin: undefined };
+        if (t.overridable !== undefined) copy.overridable = t.overridable;
+        inits.push(copy);
         continue;
       }
       const vi = valueInfoOf(scope, v);

@@ -1,38 +1,79 @@
 // After folding: drop initializers and Constant nodes nobody reads any more, and the value_info of values
 // that no longer exist. Graph inputs and outputs, metadata, doc strings and opsets are left as they were;
 // only what a fold released is considered, so unused tensors the model already had stay.
-import type { Graph, Model, Node } from '../graph/ir.js';
+import type { Graph, Model, Node, Tensor } from '../graph/ir.js';
 import { touch } from '../graph/edit.js';
 import { buildScopes, type Scope } from './scope.js';
+import type { FoldContext } from './context.js';
 
-export function cleanUp(model: Model, released: Set<string>, gone: Set<string>): void {
-  const scopes = buildScopes(model);
-  const dropInits = new Map<Graph, Set<string>>();
+/**
+ * With the fold driver's context (its scopes' indexes current), the clean-up looks up the released names instead
+ * of rebuilding every index, and tells the indexes what it dropped.
+ */
+export function cleanUp(model: Model, released: readonly string[], goneValues: readonly string[], ctx?: FoldContext): void {
+  const scopes = ctx?.live ? [...ctx.live.values()].map((l) => l.scope) : buildScopes(model);
+  // the tensors to drop, and their names (initializer names are unique in a valid graph)
+  const dropInits = new Map<Graph, { tensors: Set<Tensor>; names: string[] }>();
   const dropNodes = new Map<Graph, Set<Node>>();
-  const unread = (s: Scope, v: string) => s.ud.consumers(v).length === 0 && !s.ud.isGraphOutput(v) && !s.ud.isGraphInput(v);
+  const gone = [...goneValues];
+  let releasedSet: Set<string> | undefined;
+  // (the driver's indexes count readers without making the list)
+  const readerCount = new Map(scopes.map((s) => {
+    const live = ctx?.live?.get(s.graph);
+    return [s, live ? live.ud.readerCount : (v: string) => s.ud.consumers(v).length] as const;
+  }));
+  const unread = (s: Scope, v: string) => readerCount.get(s)!(v) === 0 && !s.ud.isGraphOutput(v) && !s.ud.isGraphInput(v);
+  const dropInit = (s: Scope, t: Tensor) => {
+    let d = dropInits.get(s.graph);
+    if (!d) dropInits.set(s.graph, d = { tensors: new Set(), names: [] });
+    if (d.tensors.has(t)) return;
+    d.tensors.add(t);
+    d.names.push(t.name);
+    gone.push(t.name);
+  };
+  const dropConstant = (s: Scope, n: Node, v: string) => {
+    if (!dropNodes.has(s.graph)) dropNodes.set(s.graph, new Set());
+    dropNodes.get(s.graph)!.add(n);
+    gone.push(v);
+  };
   for (const s of scopes) {
-    for (const t of s.graph.initializers) {
-      if (!released.has(t.name) || !unread(s, t.name)) continue;
-      if (!dropInits.has(s.graph)) dropInits.set(s.graph, new Set());
-      dropInits.get(s.graph)!.add(t.name);
-      gone.add(t.name);
+    if (released.length < s.graph.initializers.length + s.graph.nodes.length) {
+      // fewer names released than the graph holds: look each one up
+      for (const v of released) {
+        if (!s.ud.defines(v) || !unread(s, v)) continue;
+        const t = s.ud.initializer(v);
+        if (t) dropInit(s, t);
+        const p = s.ud.producer(v);
+        if (p && p.opType === 'Constant' && p.outputs[0] === v) dropConstant(s, p, v);
+      }
+      continue;
     }
+    const isReleased = releasedSet ??= new Set(released);
+    for (const t of s.graph.initializers) if (isReleased.has(t.name) && unread(s, t.name)) dropInit(s, t);
     for (const n of s.graph.nodes) {
       const v = n.outputs[0];
-      if (n.opType !== 'Constant' || !v || !released.has(v) || !unread(s, v)) continue;
-      if (!dropNodes.has(s.graph)) dropNodes.set(s.graph, new Set());
-      dropNodes.get(s.graph)!.add(n);
-      gone.add(v);
+      if (n.opType === 'Constant' && v && isReleased.has(v) && unread(s, v)) dropConstant(s, n, v);
     }
   }
-  for (const [g, names] of dropInits) { g.initializers = g.initializers.filter((t) => !names.has(t.name)); touch(g); }
+  for (const [g, d] of dropInits) { g.initializers = g.initializers.filter((t) => !d.tensors.has(t)); touch(g); }
   for (const [g, nodes] of dropNodes) { g.nodes = g.nodes.filter((n) => !nodes.has(n)); touch(g); }
-  if (!gone.size) return;
-  for (const s of scopes) {
-    const g = s.graph;
-    const defined = (v: string) => (s.ud.producer(v) !== undefined && !dropNodes.get(g)?.has(s.ud.producer(v)!))
-      || (s.ud.initializer(v) !== undefined && !dropInits.get(g)?.has(v)) || s.ud.isGraphInput(v);
-    const keep = g.valueInfo.filter((vi) => !gone.has(vi.name) || defined(vi.name));
-    if (keep.length !== g.valueInfo.length) { g.valueInfo = keep; touch(g); }
+  // the names of values that no longer exist matter only to graphs that declare value_info
+  const goneSet = gone.length && scopes.some((s) => s.graph.valueInfo.length > 0) ? new Set(gone) : undefined;
+  if (goneSet) {
+    for (const s of scopes) {
+      const g = s.graph;
+      if (!g.valueInfo.length) continue;
+      const droppedNames = new Set(dropInits.get(g)?.names);
+      const defined = (v: string) => (s.ud.producer(v) !== undefined && !dropNodes.get(g)?.has(s.ud.producer(v)!))
+        || (s.ud.initializer(v) !== undefined && !droppedNames.has(v)) || s.ud.isGraphInput(v);
+      const keep = g.valueInfo.filter((vi) => !goneSet.has(vi.name) || defined(vi.name));
+      if (keep.length !== g.valueInfo.length) { g.valueInfo = keep; touch(g); }
+    }
+  }
+  if (!ctx?.live) return;
+  for (const [g, d] of dropInits) { const ud = ctx.live.get(g)!.ud; for (const v of d.names) ud.removeInitializer(v); }
+  for (const [g, nodes] of dropNodes) {
+    const ud = ctx.live.get(g)!.ud;
+    for (const n of nodes) { ud.removeNode(n); ctx.removedNodes.add(n); }
   }
 }

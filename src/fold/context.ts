@@ -1,8 +1,10 @@
 // State shared by the analysis and the rewrites of one run over a model.
 import type { Graph, Model, Node, Tensor, ValueInfo } from '../graph/ir.js';
+import type { EditableUseDef, Wiring } from '../graph/usedef.js';
 import { opsetVersion } from '../graph/ir.js';
+import { nameTable } from '../graph/names.js';
 import type { FoldOptions, ReasonCode } from './types.js';
-import { eachGraph, nodeLabel } from './scope.js';
+import { eachGraph, nodeLabel, type Scope } from './scope.js';
 
 export interface FoldContext {
   options: FoldOptions;
@@ -14,7 +16,7 @@ export interface FoldContext {
   generated: Set<Node>;
   opsetOf: (domain: string) => number;
   /** Every name in use (values, nodes), for deterministic fresh names. */
-  readonly names: Set<string>;
+  readonly names: NameSet;
   /** Ledger names fixed at the start for unnamed nodes (an unnamed node keeps its op#index even after other
    * nodes go); a node without an entry is its name. */
   labels: Map<Node, string>;
@@ -23,9 +25,31 @@ export interface FoldContext {
   nameCounters: Map<string, number>;
   /** Node and initializer list changes, applied to each graph once per sweep (see flushPending). */
   pending: Map<Graph, PendingGraph>;
+  /**
+   * The fold driver's scopes, built once per run: their use-def indexes follow the edits (flushPending tells each
+   * index what changed in its graph), so no sweep rebuilds them.
+   */
+  live?: Map<Graph, LiveScope>;
+  /** Nodes the folds and the clean-up took out of their graphs. */
+  removedNodes: Set<Node>;
+  /** Whether a sweep's list changes were applied yet (see flushPending). */
+  flushed: boolean;
+}
+
+/** The names a fold may not take: a lookup and an add, nothing else. */
+export interface NameSet {
+  has(name: string): boolean;
+  add(name: string): void;
+}
+
+export interface LiveScope {
+  scope: Scope;
+  ud: EditableUseDef;
 }
 
 export interface PendingGraph {
+  /** Nodes whose inputs or outputs an edit changed in place, with their wiring before the first such change. */
+  rewired: Map<Node, Wiring>;
   removed: Set<Node>;
   inserts: Map<Node, Node[]>;
   initializers: Tensor[];
@@ -49,10 +73,11 @@ export function makeContext(model: Model, options: FoldOptions): FoldContext {
   const labels = new Map<Node, string>();
   // Only unnamed nodes need an entry (their op#index must not shift as nodes go); a named node is its name.
   eachGraph(model.graph, (g) => { g.nodes.forEach((n, i) => { if (!n.name) labels.set(n, nodeLabel(n, i)); }); });
-  let names: Set<string> | undefined;
+  let names: NameSet | undefined;
   // Only a fold needs every name in use (for fresh ones); an audit never builds the set.
-  const allNames = () => names ??= namesIn(model);
-  return {
+  // (with many bodies, asking each index would cost more per fresh name than one table of every name)
+  const allNames = () => names ??= (ctx.live && !ctx.flushed && ctx.live.size <= 16 ? namesBeforeFlush(model, ctx.live) : namesIn(model));
+  const ctx: FoldContext = {
     options,
     allowOverridable: options.allowOverridable ?? false,
     keep: new Set(options.keep ?? []),
@@ -64,23 +89,56 @@ export function makeContext(model: Model, options: FoldOptions): FoldContext {
     irVersion: model.irVersion,
     nameCounters: new Map(),
     pending: new Map(),
+    removedNodes: new Set(),
+    flushed: false,
   };
+  return ctx;
 }
 
-function namesIn(model: Model): Set<string> {
-  const names = new Set<string>();
+function namesIn(model: Model): NameSet {
+  // One flat table of every name (see graph/names.ts; a Set of a few hundred thousand strings costs several
+  // times more to fill), and a small set for the names the folds make.
+  let bound = 0;
   eachGraph(model.graph, (g) => {
-    for (const v of g.inputs) names.add(v.name);
-    for (const v of g.outputs) names.add(v.name);
-    for (const v of g.valueInfo) names.add(v.name);
-    for (const t of g.initializers) names.add(t.name);
+    bound += g.inputs.length + g.outputs.length + g.valueInfo.length + g.initializers.length;
+    for (const n of g.nodes) bound += 1 + n.outputs.length + n.inputs.length;
+  });
+  const table = nameTable(bound);
+  const add = table.add;
+  eachGraph(model.graph, (g) => {
+    for (const v of g.inputs) add(v.name);
+    for (const v of g.outputs) add(v.name);
+    for (const v of g.valueInfo) add(v.name);
+    for (const t of g.initializers) add(t.name);
     for (const n of g.nodes) {
-      if (n.name) names.add(n.name);
-      for (const o of n.outputs) if (o) names.add(o);
-      for (const i of n.inputs) if (i) names.add(i);
+      if (n.name) add(n.name);
+      for (const o of n.outputs) if (o) add(o);
+      for (const i of n.inputs) if (i) add(i);
     }
   });
-  return names;
+  const made = new Set<string>();
+  return { has: (v) => table.id(v) >= 0 || made.has(v), add: (v) => { made.add(v); } };
+}
+
+/**
+ * The names in use while no sweep has applied its list changes yet: every value name is still in its graph's
+ * index (a node a fold rewired away from a name leaves it to a node still listed, until the sweep ends), so
+ * only node names and value_info names need a table of their own. Same answers as namesIn, less hashing.
+ */
+function namesBeforeFlush(model: Model, live: Map<Graph, LiveScope>): NameSet {
+  let bound = 0;
+  eachGraph(model.graph, (g) => { bound += g.nodes.length + g.valueInfo.length; });
+  const table = nameTable(bound);
+  eachGraph(model.graph, (g) => {
+    for (const v of g.valueInfo) table.add(v.name);
+    for (const n of g.nodes) if (n.name) table.add(n.name);
+  });
+  const indexes = [...live.values()].map((l) => l.ud);
+  const made = new Set<string>();
+  return {
+    has: (v) => made.has(v) || table.id(v) >= 0 || indexes.some((ud) => ud.knows(v)),
+    add: (v) => { made.add(v); },
+  };
 }
 
 /** `base`, or `base.2`, `base.3`, ... : the first name not yet used. Deterministic for a given model. */

@@ -14,7 +14,8 @@ import { writtenOutNorm } from './norms.js';
 import { entryKind } from './steps.js';
 import type { RuleMatch } from './rules/index.js';
 import { collectRun, isStep, stepOf } from './run.js';
-import { buildScopes, eachGraph, labelOf } from './scope.js';
+import { buildScopes, eachGraph, forgetDerived, labelOf, type Scope } from './scope.js';
+import { editableUseDef, type EditableUseDef } from '../graph/usedef.js';
 import type { EntryKind, FoldLedger, FoldOptions, LedgerEntry, ProofFigures, RewrittenNode } from './types.js';
 
 const MAX_PASSES = 64;
@@ -55,10 +56,12 @@ function cloneForRun(ctx: FoldContext, edit: Edit, m: RuleMatch): RuleMatch[] {
 }
 
 /** One sweep over every graph; returns whether anything changed or was put off to the next sweep. */
-function sweep(ctx: FoldContext, model: Model, folded: LedgerEntry[], released: Set<string>, gone: Set<string>, rewritten: Map<Node, RewrittenNode>): boolean {
+function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], released: string[], gone: string[], rewritten: Map<Node, RewrittenNode>): boolean {
   let changed = false;
   const prove = ctx.options.prove;
-  for (const scope of buildScopes(model, ctx.labels, ctx.options.inputShapes)) {
+  // what a scope built afresh would know: the index is current (flushPending keeps it so), derived caches start over
+  for (const scope of scopes) forgetDerived(scope);
+  for (const scope of scopes) {
     const cache = new Map();
     const dirty = new Set<Node>();
     for (const node of [...scope.graph.nodes]) {
@@ -80,18 +83,21 @@ function sweep(ctx: FoldContext, model: Model, folded: LedgerEntry[], released: 
         m.rule.rewrite(ctx, m, edit);
         outputs.push(...edit.regionOutputs);
       }
-      edit.regionOutputs = [...new Set([...outputs, ...edit.regionNodes.flatMap((n) => n.outputs.filter((v) => v !== ''))])];
+      // (the region's outputs and the nodes' names are for the proof alone)
+      if (prove) edit.regionOutputs = [...new Set([...outputs, ...edit.regionNodes.flatMap((n) => n.outputs.filter((v) => v !== ''))])];
       const before = prove ? regionBefore(edit) : undefined;
       const inPlace = ctx.options.reuseBuffers ?? true;
-      const undo = applyEdit(ctx, edit, { inPlace: !prove && inPlace });
-      const names = run.steps.map((x) => ctx.labels.get(x.node) ?? x.node.name);
-      for (const n of [...involved, ...matches.map((m) => m.layer.node), ...edit.changes.map((c) => c.node)]) dirty.add(n);
+      const undo = applyEdit(ctx, edit, { inPlace: !prove && inPlace, undoable: prove !== undefined });
+      for (const n of involved) dirty.add(n);
+      for (const m of matches) dirty.add(m.layer.node);
+      for (const c of edit.changes) dirty.add(c.node);
       changed = true;
       const targets = o.matches.map((m) => m.layer.label);
       const target = targets.join(', ');
       const direction = o.matches[0]!.rule.direction;
       let proof: ProofFigures | undefined;
       if (prove) {
+        const names = run.steps.map((x) => ctx.labels.get(x.node) ?? x.node.name);
         const r = prove({ before: before!, after: regionAfter(edit), opsetOf: ctx.opsetOf, nodes: names, target, direction, graph: scope.path });
         if (typeof r === 'boolean' ? !r : !r.passed) {
           undo();
@@ -105,7 +111,7 @@ function sweep(ctx: FoldContext, model: Model, folded: LedgerEntry[], released: 
         // it lies (on its way to the output, for weights still on disk), as an unproven fold does: the same
         // products rounded the same way, without holding every folded weight in memory.
         undo();
-        applyEdit(ctx, edit, { inPlace: true });
+        applyEdit(ctx, edit, { inPlace: true, undoable: false });
       }
       const hint = foldHint(o.matches, o.clone);
       const entry = (node: Node, op: string, kind: EntryKind, h: string, cloneBytes = 0): LedgerEntry => ({
@@ -127,8 +133,8 @@ function sweep(ctx: FoldContext, model: Model, folded: LedgerEntry[], released: 
       run.steps.forEach((x, i) => {
         folded.push(entry(x.node, x.node.opType, entryKind(scope, x.node), x.kind === 'layer-norm' ? layerNormHint(targets) : hint, i === 0 && o.clone ? cloneCost(o.matches[0]!) : 0));
       });
-      for (const r of edit.released) released.add(r);
-      for (const v of edit.goneValues) gone.add(v);
+      for (const r of edit.released) released.push(r);
+      for (const v of edit.goneValues) gone.push(v);
     }
   }
   flushPending(ctx);
@@ -143,30 +149,44 @@ export function foldModel(model: Model, options: FoldOptions = {}): { model: Mod
   const ctx = makeContext(model, options);
   const nodesBefore = countNodes(model);
   const bytesBefore = weightBytes(model);
-  // Ledger order: where each node stood in the original model.
-  const order = new Map<string, number>();
-  for (const s of buildScopes(model, ctx.labels, ctx.options.inputShapes)) for (const n of s.graph.nodes) order.set(`${s.path}\u0000${labelOf(s, n)}`, order.size);
+  // One set of scopes for the whole run: each graph's index is built once and follows the edits.
+  const scopes = buildScopes(model, ctx.labels, ctx.options.inputShapes, editableUseDef);
+  ctx.live = new Map(scopes.map((scope) => [scope.graph, { scope, ud: scope.ud as EditableUseDef }]));
+  // Ledger order: where each node stood in the original model (by graph path, then ledger name).
+  const order = new Map<string, Map<string, number>>();
+  let placed = 0;
+  for (const s of scopes) {
+    let inPath = order.get(s.path);
+    if (!inPath) order.set(s.path, inPath = new Map());
+    for (const n of s.graph.nodes) {
+      const label = labelOf(s, n);
+      // (a name seen again takes the place after the distinct names so far, as one map of both keys would give)
+      inPath.set(label, inPath.has(label) ? placed : placed++);
+    }
+  }
   const folded: LedgerEntry[] = [];
-  const released = new Set<string>();
-  const gone = new Set<string>();
+  // (names collected as lists: the clean-up looks them up, and needs a set only for a graph with value_info)
+  const released: string[] = [];
+  const gone: string[] = [];
   const touched = new Map<Node, RewrittenNode>();
-  for (let pass = 0; pass < MAX_PASSES && sweep(ctx, model, folded, released, gone, touched); pass++) { /* until nothing changes */ }
+  for (let pass = 0; pass < MAX_PASSES && sweep(ctx, scopes, folded, released, gone, touched); pass++) { /* until nothing changes */ }
   if (folded.length) {
-    cleanUp(model, released, gone);
+    cleanUp(model, released, gone, ctx);
     validateModel(model);
   }
   // Every normalization still in the model, with its reason, from the same analysis audit runs.
   // (A norm whose statistics stay shows up again after its tail moved: the folded entry stands.)
+  for (const s of scopes) forgetDerived(s);
   const done = new Set(folded.map((e) => `${e.graph}\u0000${e.node}`));
-  const kept: LedgerEntry[] = findingsOf(ctx, model).filter((f) => !done.has(`${f.graph}\u0000${f.node}`))
+  const kept: LedgerEntry[] = findingsOf(ctx, model, scopes).filter((f) => !done.has(`${f.graph}\u0000${f.node}`))
     .map((f) => ({ ...f, status: 'kept' as const }));
-  const normalizations = [...folded, ...kept].sort((a, b) => (order.get(`${a.graph}\u0000${a.node}`) ?? 1e15) - (order.get(`${b.graph}\u0000${b.node}`) ?? 1e15));
+  // each entry's place looked up once (the sort is stable, as before)
+  const placedAt = [...folded, ...kept].map((e) => ({ e, at: order.get(e.graph)?.get(e.node) ?? 1e15 }));
+  const normalizations = placedAt.sort((a, b) => a.at - b.at).map((x) => x.e);
   // a node a later fold or the clean-up removed is no longer in the model to be watched
-  const present = new Set<Node>();
-  eachGraph(model.graph, (g) => { for (const n of g.nodes) present.add(n); });
   return {
     model,
     ledger: { normalizations, nodesBefore, nodesAfter: countNodes(model), bytesBefore, bytesAfter: weightBytes(model) },
-    rewritten: [...touched.values()].filter((r) => present.has(r.node)),
+    rewritten: [...touched.values()].filter((r) => !ctx.removedNodes.has(r.node)),
   };
 }

@@ -33,9 +33,11 @@ export interface Layer {
 
 const INTEGER_TYPES = new Set<number>([DataType.INT8, DataType.UINT8, DataType.INT16, DataType.UINT16, DataType.INT32, DataType.INT64, DataType.UINT32, DataType.UINT64]);
 
+const QUANTIZING = new Set(['DequantizeLinear', 'DynamicQuantizeLinear', 'QuantizeLinear']);
+
 const isDequantized = (scope: Scope, v: string) => {
   const p = scope.ud.producer(v);
-  return p !== undefined && /^(DequantizeLinear|DynamicQuantizeLinear|QuantizeLinear)$/.test(p.opType);
+  return p !== undefined && QUANTIZING.has(p.opType);
 };
 
 function constantParam(ctx: FoldContext, scope: Scope, n: Node, v: string, what: string): ConstRef | Refusal {

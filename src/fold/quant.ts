@@ -146,7 +146,12 @@ function simdFigures(l: LayerShape): LayerFigures | undefined {
   const s = t.storage;
   const raw = t.dataType === DataType.FLOAT && (s.kind === 'raw' || s.kind === 'external') && s.bytes.byteLength >= n * 4 ? s.bytes : undefined;
   const staged = stageFloat32(n, (view) => {
-    if (raw) new Uint8Array(view.buffer, view.byteOffset, n * 4).set(peekBytes(raw.subarray(0, n * 4)));
+    if (raw) {
+      // read straight into the kernels' memory when the bytes are on disk (no fresh buffer per weight)
+      const dest = new Uint8Array(view.buffer, view.byteOffset, n * 4);
+      const got = peekBytes(raw.subarray(0, n * 4), dest);
+      if (got !== dest) dest.set(got);
+    }
     else view.set(tensorToFloat64(t));
   });
   if (!staged) return undefined;

@@ -27,7 +27,11 @@ export type StepCache = Map<Node, AffineStep | Refusal | undefined>;
 /** Entries kept before the cache starts over: runs are local, and a big cache only slows the garbage collector. */
 const CACHE_MAX = 512;
 
+/** The op types readStep can make a step of (any other node is none, with nothing to cache). */
+const STEP_OPS = new Set(['BatchNormalization', 'LayerNormalization', 'Add', 'Sub', 'Mul', 'Div']);
+
 export function stepOf(ctx: FoldContext, scope: Scope, cache: StepCache, n: Node): AffineStep | Refusal | undefined {
+  if (!STEP_OPS.has(n.opType)) return undefined;
   if (cache.has(n)) return cache.get(n);
   if (cache.size >= CACHE_MAX) cache.clear();
   const s = readStep(ctx, scope, n);

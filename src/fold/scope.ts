@@ -55,8 +55,11 @@ export function isDefaultDomain(n: Node): boolean {
   return n.domain === '' || n.domain === 'ai.onnx';
 }
 
-/** Every graph of the model, main first, bodies in node order (pre-order). */
-export function buildScopes(model: Model, fixedLabels?: Map<Node, string>, inputShapes?: ReadonlyMap<string, Shape>): Scope[] {
+/**
+ * Every graph of the model, main first, bodies in node order (pre-order). `index` makes each graph's use-def index
+ * (the fold driver passes editableUseDef, which its edits then keep current).
+ */
+export function buildScopes(model: Model, fixedLabels?: Map<Node, string>, inputShapes?: ReadonlyMap<string, Shape>, index: (g: Graph) => UseDef = buildUseDef): Scope[] {
   const out: Scope[] = [];
   const visit = (graph: Graph, path: string, parent?: Scope, owner?: Node) => {
     const labels = new Map<Node, string>();
@@ -66,7 +69,7 @@ export function buildScopes(model: Model, fixedLabels?: Map<Node, string>, input
       const fixed = fixedLabels?.get(n);
       if (fixed !== undefined ? fixed !== n.name : !n.name) labels.set(n, fixed ?? nodeLabel(n, i));
     }
-    const scope: Scope = { graph, path, parent, owner, ud: buildUseDef(graph), labels, ranks: new Map(), inputsOverride: model.irVersion >= 4, inputShapes: parent ? undefined : inputShapes };
+    const scope: Scope = { graph, path, parent, owner, ud: index(graph), labels, ranks: new Map(), inputsOverride: model.irVersion >= 4, inputShapes: parent ? undefined : inputShapes };
     out.push(scope);
     for (const n of nodes) {
       for (const a of n.attributes) {
@@ -78,6 +81,16 @@ export function buildScopes(model: Model, fixedLabels?: Map<Node, string>, input
   };
   visit(model.graph, 'main');
   return out;
+}
+
+/**
+ * Forget what a scope worked out from its graph (declared infos, ranks, propagated shapes), as a newly built scope
+ * would not know them: the fold driver reuses its scopes from one sweep to the next while the graph changes.
+ */
+export function forgetDerived(s: Scope): void {
+  s.ranks = new Map();
+  s.infos = undefined;
+  s.inferred = undefined;
 }
 
 /** True when the scope defines the value itself (input, initializer or node output). */

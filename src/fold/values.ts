@@ -24,10 +24,35 @@ function float32Of(view: Uint8Array): { f32: Float32Array; copied: boolean } {
   return { f32: new Float32Array(aligned.buffer, 0, n), copied: true };
 }
 
+// A four-byte window for reading one unaligned float32 (little-endian, as ONNX raw data is stored).
+const oneF32 = new Float32Array(1);
+const oneBytes = new Uint8Array(oneF32.buffer);
+const littleEndian = new Uint8Array(Uint16Array.of(1).buffer)[0] === 1;
+
+/** Up to this many elements, an unaligned float32 vector is read element by element into float64. */
+const SMALL = 64;
+
+/**
+ * Small unaligned float32 data (a norm's statistics, a bias) read into float64 directly: one small array instead
+ * of an aligned copy and a view over it. The same values (float32 to float64 is exact).
+ */
+function smallFloat32(bytes: Uint8Array): Float64Array {
+  const n = bytes.byteLength >> 2;
+  const out = new Float64Array(n);
+  for (let i = 0, k = 0; i < n; i++, k += 4) {
+    if (littleEndian) { oneBytes[0] = bytes[k]!; oneBytes[1] = bytes[k + 1]!; oneBytes[2] = bytes[k + 2]!; oneBytes[3] = bytes[k + 3]!; }
+    else { oneBytes[3] = bytes[k]!; oneBytes[2] = bytes[k + 1]!; oneBytes[1] = bytes[k + 2]!; oneBytes[0] = bytes[k + 3]!; }
+    out[i] = oneF32[0]!;
+  }
+  return out;
+}
+
 /** A tensor's values for reading: float32 data as-is (exact in float64 arithmetic), anything else decoded to float64. */
 export function weightSource(t: Tensor): Float32Array | Float64Array {
   const bytes = rawFloat32(t);
-  return bytes ? float32Of(bytes).f32 : tensorToFloat64(t);
+  if (!bytes) return tensorToFloat64(t);
+  if (bytes.byteLength <= SMALL * 4 && (bytes.byteOffset & 3) !== 0) return smallFloat32(peekBytes(bytes));
+  return float32Of(bytes).f32;
 }
 
 /**

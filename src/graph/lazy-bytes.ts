@@ -7,8 +7,8 @@ export interface ByteBacking {
   ensureLoaded(view: Uint8Array): void;
   /** The view was overwritten in memory: its bytes no longer come from the file. */
   markLoaded(view: Uint8Array): void;
-  /** The view's bytes with deferred changes applied, read into a fresh buffer when on disk (not kept). */
-  peekBytes(view: Uint8Array): Uint8Array;
+  /** The view's bytes with deferred changes applied, read into `into` or a fresh buffer when on disk (not kept). */
+  peekBytes(view: Uint8Array, into?: Uint8Array): Uint8Array;
 }
 
 let backing: ByteBacking | undefined;
@@ -25,7 +25,10 @@ export function markLoaded(view: Uint8Array): void {
   backing?.markLoaded(view);
 }
 
-/** A view's bytes for one read: the view itself when in memory, else a fresh copy the caller drops after use. */
-export function peekBytes(view: Uint8Array): Uint8Array {
-  return backing ? backing.peekBytes(view) : view;
+/**
+ * A view's bytes for one read: the view itself when in memory, else a copy the caller drops after use, read into
+ * `into` when it is given with the view's length (a buffer the caller reuses).
+ */
+export function peekBytes(view: Uint8Array, into?: Uint8Array): Uint8Array {
+  return backing ? backing.peekBytes(view, into) : view;
 }

@@ -4,10 +4,10 @@
 // depends on values computed at run time, leaves its outputs unknown (and whatever is read from them).
 // A dim that is not known (a symbolic dim no flag sizes) is -1: the rank is still known.
 import type { Graph, Node, Tensor } from './ir.js';
-import { attrInt, attrInts, attrString } from './ir.js';
+import { attrInt, attrInts, attrString, hasSubgraphs } from './ir.js';
 import { constantNodeTensor } from './constants.js';
 import { tensorToFloat64 } from './tensor.js';
-import { topoOrder } from './topo.js';
+import { nodeNeeds, topoOrder } from './topo.js';
 
 export type Shape = number[];
 
@@ -47,34 +47,96 @@ const normAxis = (a: number, rank: number) => (a < 0 ? a + rank : a);
  * -1). `outer` holds the shapes of values an enclosing graph defines.
  */
 export function inferShapes(g: Graph, inputs: ReadonlyMap<string, Shape> = new Map(), outer?: ReadonlyMap<string, Shape>): Map<string, Shape> {
-  const shapes = new Map<string, Shape>(outer ?? []);
-  for (const t of g.initializers) shapes.set(t.name, [...t.dims]);
-  for (const vi of g.inputs) {
-    const given = inputs.get(vi.name);
-    if (given) shapes.set(vi.name, [...given]);
-    else if (vi.shape && !shapes.has(vi.name)) shapes.set(vi.name, vi.shape.map((d) => (typeof d === 'number' && d >= 0 ? d : -1)));
-  }
-  const constants = new Map<string, Tensor>();
-  for (const t of g.initializers) constants.set(t.name, t);
+  const inits = new Map<string, Tensor>();
+  for (const t of g.initializers) inits.set(t.name, t);
+  const start = () => {
+    const shapes = new ShapeMap(inits, outer);
+    for (const vi of g.inputs) {
+      const given = inputs.get(vi.name);
+      if (given) shapes.set(vi.name, [...given]);
+      else if (vi.shape && !shapes.has(vi.name)) shapes.set(vi.name, vi.shape.map((d) => (typeof d === 'number' && d >= 0 ? d : -1)));
+    }
+    return { shapes, constants: new Constants(inits) };
+  };
+  // The common case, a graph in topological order, in list order and one pass: a node reading a value that is
+  // neither shaped nor defined yet (one a later node makes) sends the whole graph through topoOrder instead,
+  // which gives the same order for a sorted graph.
+  const first = start();
+  const unshaped = new Set<string>(); // values defined so far without a shape
+  for (const vi of g.inputs) if (!first.shapes.has(vi.name)) unshaped.add(vi.name);
+  if (propagate(g.nodes, first.shapes, first.constants, unshaped)) return first.shapes;
+  const { shapes, constants } = start();
   let order: Node[];
   try { order = topoOrder(g); } catch { order = g.nodes; }
-  for (const n of order) {
-    if (n.opType === 'Constant') {
-      const t = constantNodeTensor(n);
-      if (t && n.outputs[0]) { shapes.set(n.outputs[0], [...t.dims]); constants.set(n.outputs[0], t); }
-      continue;
-    }
-    if (n.domain !== '' && n.domain !== 'ai.onnx') continue;
-    const ins = n.inputs.map((v) => (v ? shapes.get(v) : undefined));
-    const values = (i: number): number[] | undefined => {
-      const t = n.inputs[i] ? constants.get(n.inputs[i]!) : undefined;
-      return t ? Array.from(tensorToFloat64(t)) : undefined;
-    };
-    let out: Shape | undefined;
-    try { out = outputShape(n, ins, values); } catch { out = undefined; }
-    if (out && n.outputs[0]) shapes.set(n.outputs[0], out);
-  }
+  propagate(order, shapes, constants, undefined);
   return shapes;
+}
+
+/**
+ * Shapes by value name: those set here (inputs, node outputs), else an initializer's dims (copied the first time
+ * they are asked for), else the enclosing graph's. Nothing is copied up front: a graph of 10^5 weights would
+ * otherwise copy every weight's dims, and a subgraph every shape of its enclosing graph. Read it with get/has.
+ */
+class ShapeMap extends Map<string, Shape> {
+  constructor(private readonly inits: ReadonlyMap<string, Tensor>, private readonly outer: ReadonlyMap<string, Shape> | undefined) { super(); }
+  override get(k: string): Shape | undefined {
+    const own = super.get(k);
+    if (own !== undefined) return own;
+    const t = this.inits.get(k);
+    if (t) { const d = [...t.dims]; super.set(k, d); return d; }
+    return this.outer?.get(k);
+  }
+  override has(k: string): boolean { return this.get(k) !== undefined; }
+}
+
+/** Constant tensors by name: Constant nodes' outputs, then the initializers. */
+class Constants {
+  private readonly made = new Map<string, Tensor>();
+  constructor(private readonly inits: ReadonlyMap<string, Tensor>) {}
+  get(k: string): Tensor | undefined { return this.made.get(k) ?? this.inits.get(k); }
+  set(k: string, t: Tensor): void { this.made.set(k, t); }
+}
+
+/**
+ * Shapes of `order`'s outputs into `shapes`. With `unshaped` (the list-order pass): false when a node reads a
+ * value a later node makes. A value nothing makes (a fold's new weight not yet added) is only unknown, as it is
+ * in any order.
+ */
+function propagate(order: readonly Node[], shapes: Map<string, Shape>, constants: Constants, unshaped: Set<string> | undefined): boolean {
+  const undefinedYet = new Set<string>();
+  for (const n of order) {
+    const ins = n.inputs.map((v) => (v ? shapes.get(v) : undefined));
+    if (unshaped) {
+      n.inputs.forEach((v, k) => { if (v && ins[k] === undefined && !unshaped.has(v)) undefinedYet.add(v); });
+      if (hasSubgraphs(n)) for (const v of nodeNeeds(n)) if (!shapes.has(v) && !unshaped.has(v)) undefinedYet.add(v);
+    }
+    const out = nodeShape(n, ins, constants);
+    if (out && n.outputs[0]) shapes.set(n.outputs[0], out);
+    if (unshaped) {
+      n.outputs.forEach((o, k) => {
+        if (!o) return;
+        if (undefinedYet.size > 0 && undefinedYet.has(o)) return; // read before it was made: not in order
+        if (!(k === 0 && out)) unshaped.add(o);
+      });
+      if (undefinedYet.size > 0 && n.outputs.some((o) => o && undefinedYet.has(o))) return false;
+    }
+  }
+  return true;
+}
+
+/** The shape of a node's first output from its inputs' shapes (a Constant's tensor is kept in `constants` too). */
+function nodeShape(n: Node, ins: Array<Shape | undefined>, constants: Constants): Shape | undefined {
+  if (n.opType === 'Constant') {
+    const t = constantNodeTensor(n);
+    if (t && n.outputs[0]) { constants.set(n.outputs[0], t); return [...t.dims]; }
+    return undefined;
+  }
+  if (n.domain !== '' && n.domain !== 'ai.onnx') return undefined;
+  const values = (i: number): number[] | undefined => {
+    const t = n.inputs[i] ? constants.get(n.inputs[i]!) : undefined;
+    return t ? Array.from(tensorToFloat64(t)) : undefined;
+  };
+  try { return outputShape(n, ins, values); } catch { return undefined; }
 }
 
 function outputShape(n: Node, ins: Array<Shape | undefined>, values: (i: number) => number[] | undefined): Shape | undefined {

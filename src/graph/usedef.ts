@@ -4,7 +4,7 @@
 import { constantNodeTensor } from './constants.js';
 import type { Graph, Node, Tensor } from './ir.js';
 import { hasSubgraphs, subgraphsOf } from './ir.js';
-import { nameTable } from './names.js';
+import { nameTable, type NameTable } from './names.js';
 
 export interface UseDef {
   graph: Graph;
@@ -47,7 +47,19 @@ const IS_OUTPUT = 2;
 // Every value name of the graph gets a small integer id once; producers, initializers, flags and readers are
 // typed arrays indexed by that id. One table of names (see names.ts) instead of a Map per question, and no array per value, so
 // a graph of millions of nodes costs a few flat buffers the garbage collector never has to trace.
-export function buildUseDef(graph: Graph): UseDef {
+interface Built {
+  nodes: Node[];
+  tensors: Tensor[];
+  ids: NameTable;
+  producer: Int32Array;
+  init: Int32Array;
+  flags: Uint8Array;
+  readers: { start: Int32Array; node: Int32Array };
+  /** Owner nodes (by index) and the outer names their bodies read. */
+  bodies: Map<number, string[]>;
+}
+
+function indexGraph(graph: Graph): Built {
   const nodes = graph.nodes.slice(); // the index answers for the graph as it was built, as a Map of nodes would
   const tensors = graph.initializers.slice();
   const bodies = new Map<number, string[]>();
@@ -90,8 +102,33 @@ export function buildUseDef(graph: Graph): UseDef {
   for (const o of graph.outputs) flags[idOf(o.name)]! |= IS_OUTPUT;
   for (const v of graph.inputs) flags[idOf(v.name)]! |= IS_INPUT;
   for (let k = 0; k < tensors.length; k++) init[idOf(tensors[k]!.name)] = k;
-  const readers = csr(ids.size, edgeValue, edgeNode, edges);
-  const idIn = ids.id;
+  return { nodes, tensors, ids, producer, init, flags, readers: csr(ids.size, edgeValue, edgeNode, edges), bodies };
+}
+
+/**
+ * The analysis asks several questions about one value in a row (producer, readers, output, initializer): the id
+ * of the last name found is kept, so those cost one hash of the name instead of one each. (Ids never change.)
+ */
+function lastLookup(id: (v: string) => number): (v: string) => number {
+  let lastName: string | undefined;
+  let lastId = -1;
+  return (v) => {
+    if (v === lastName) return lastId;
+    const k = id(v);
+    if (k >= 0) { lastName = v; lastId = k; }
+    return k;
+  };
+}
+
+/** The reader list of a value nobody reads any more (shared, never changed: adding a reader makes a new list). */
+const NO_READERS: Node[] = [];
+
+const constantOfNode = (p: Node | undefined): Tensor | undefined =>
+  p && p.opType === 'Constant' && (p.domain === '' || p.domain === 'ai.onnx') ? constantNodeTensor(p) : undefined;
+
+export function buildUseDef(graph: Graph): UseDef {
+  const { nodes, tensors, ids, producer, init, flags, readers } = indexGraph(graph);
+  const idIn = lastLookup(ids.id);
   const producerOf = (v: string): Node | undefined => {
     const id = idIn(v);
     return id < 0 || producer[id]! < 0 ? undefined : nodes[producer[id]!];
@@ -114,11 +151,164 @@ export function buildUseDef(graph: Graph): UseDef {
     isGraphInput: (v) => { const id = idIn(v); return id >= 0 && (flags[id]! & IS_INPUT) !== 0; },
     defines: (v) => { const id = idIn(v); return id >= 0 && (producer[id]! >= 0 || init[id]! >= 0 || (flags[id]! & IS_INPUT) !== 0); },
     initializer: initializerOf,
-    constantTensor: (v) => {
-      const t = initializerOf(v);
-      if (t) return t;
-      const p = producerOf(v);
-      return p && p.opType === 'Constant' && (p.domain === '' || p.domain === 'ai.onnx') ? constantNodeTensor(p) : undefined;
+    constantTensor: (v) => initializerOf(v) ?? constantOfNode(producerOf(v)),
+  };
+}
+
+/** A node's inputs and outputs as the index last saw them. */
+export interface Wiring {
+  inputs: readonly string[];
+  outputs: readonly string[];
+}
+
+/**
+ * A use-def index that follows edits of its graph: each change is told to it and updates only the values it
+ * touches, so a run of many small folds never rebuilds the index of the whole graph. Between edits it answers
+ * exactly as buildUseDef of the graph as it then is (reader lists in node order included).
+ */
+export interface EditableUseDef extends UseDef {
+  /** How many nodes read the value (consumers(v).length without the list). */
+  readerCount(v: string): number;
+  /** Whether the name was ever a value name of the graph (an input, output, initializer or node input/output). */
+  knows(v: string): boolean;
+  /** `n` left the graph (`was`: its wiring as last told, when it changed since). */
+  removeNode(n: Node, was?: Wiring): void;
+  /** `n` joined the graph, wired as it is now. */
+  addNode(n: Node): void;
+  /** `n` was wired as `was` and is now wired as it is. */
+  rewire(n: Node, was: Wiring): void;
+  /** The bodies of owner node `n` were edited: what they read from outside may have changed. */
+  refreshBodyReads(n: Node): void;
+  addInitializer(t: Tensor): void;
+  removeInitializer(name: string): void;
+  addGraphInput(name: string): void;
+  /** Put reader lists that gained a reader back in node order; call once the graph's node list is final. */
+  settle(): void;
+}
+
+export function editableUseDef(graph: Graph): EditableUseDef {
+  const { nodes, tensors, ids, producer, init, flags, readers, bodies } = indexGraph(graph);
+  const baseSize = ids.size;
+  // Producer and initializer per id as plain arrays (edits set them); reader lists stay compressed rows until a
+  // value's readers change; names new since the build get ids past the table's.
+  const prod: Array<Node | undefined> = new Array(baseSize);
+  const inits: Array<Tensor | undefined> = new Array(baseSize);
+  for (let id = 0; id < baseSize; id++) {
+    prod[id] = producer[id]! >= 0 ? nodes[producer[id]!] : undefined;
+    inits[id] = init[id]! >= 0 ? tensors[init[id]!] : undefined;
+  }
+  const extra = new Map<string, number>();
+  const flagOver = new Map<number, number>();
+  const readOver: Array<Node[] | undefined> = [];
+  const ownerReads = new Map<Node, string[]>();
+  for (const [j, refs] of bodies) ownerReads.set(nodes[j]!, refs);
+  const unsorted = new Set<number>();
+  const tableId = lastLookup(ids.id);
+  const idIn = (v: string): number => { const id = tableId(v); return id >= 0 ? id : (extra.get(v) ?? -1); };
+  const idAdd = (v: string): number => {
+    let id = idIn(v);
+    if (id < 0) { id = baseSize + extra.size; extra.set(v, id); prod[id] = undefined; inits[id] = undefined; }
+    return id;
+  };
+  const flagsAt = (id: number): number => flagOver.get(id) ?? (id < baseSize ? flags[id]! : 0);
+  const readerCountAt = (id: number): number => {
+    const o = readOver[id];
+    if (o) return o.length;
+    return id < baseSize ? readers.start[id + 1]! - readers.start[id]! : 0;
+  };
+  const readersAt = (id: number): Node[] => {
+    const o = readOver[id];
+    if (o) return o;
+    const out: Node[] = [];
+    if (id < baseSize) for (let k = readers.start[id]!, end = readers.start[id + 1]!; k < end; k++) out.push(nodes[readers.node[k]!]!);
+    return out;
+  };
+  const producerOf = (v: string) => { const id = idIn(v); return id < 0 ? undefined : prod[id]; };
+  const initializerOf = (v: string) => { const id = idIn(v); return id < 0 ? undefined : inits[id]; };
+  /** The values a node reads, once each: its inputs and what its bodies read from outside. */
+  const readSet = (inputs: readonly string[], n: Node): Set<string> => {
+    const s = new Set<string>();
+    for (const i of inputs) if (i) s.add(i);
+    for (const r of ownerReads.get(n) ?? []) s.add(r);
+    return s;
+  };
+  const dropReader = (v: string, n: Node) => {
+    const id = idIn(v);
+    if (id < 0) return;
+    const count = readerCountAt(id);
+    if (count === 0) return;
+    // (most values have one reader: no list to filter then)
+    if (count === 1) { if (readerAt0(id) === n) readOver[id] = NO_READERS; return; }
+    readOver[id] = readersAt(id).filter((x) => x !== n);
+  };
+  const readerAt0 = (id: number): Node => readOver[id]?.[0] ?? nodes[readers.node[readers.start[id]!]!]!;
+  const addReader = (v: string, n: Node) => {
+    const id = idAdd(v);
+    const list = readerCountAt(id) === 0 ? [] : readersAt(id);
+    if (list.includes(n)) return;
+    list.push(n);
+    readOver[id] = list;
+    if (list.length > 1) unsorted.add(id);
+  };
+  const dropOutput = (o: string, n: Node) => {
+    const id = idIn(o);
+    if (id >= 0 && prod[id] === n) prod[id] = undefined;
+  };
+  const wire = (n: Node, inputs: readonly string[], outputs: readonly string[], on: boolean) => {
+    for (const o of outputs) if (o) { if (on) prod[idAdd(o)] = n; else dropOutput(o, n); }
+    // (reading a value twice is one read: adding checks the list, and dropping a reader twice is harmless)
+    const reads = ownerReads.has(n) ? readSet(inputs, n) : inputs;
+    for (const v of reads) if (v) { if (on) addReader(v, n); else dropReader(v, n); }
+  };
+  return {
+    graph,
+    producer: producerOf,
+    consumers: (v) => { const id = idIn(v); return id < 0 ? [] : readersAt(id).slice(); },
+    readerCount: (v) => { const id = idIn(v); return id < 0 ? 0 : readerCountAt(id); },
+    knows: (v) => idIn(v) >= 0,
+    isGraphOutput: (v) => { const id = idIn(v); return id >= 0 && (flagsAt(id) & IS_OUTPUT) !== 0; },
+    isGraphInput: (v) => { const id = idIn(v); return id >= 0 && (flagsAt(id) & IS_INPUT) !== 0; },
+    defines: (v) => { const id = idIn(v); return id >= 0 && (prod[id] !== undefined || inits[id] !== undefined || (flagsAt(id) & IS_INPUT) !== 0); },
+    initializer: initializerOf,
+    constantTensor: (v) => initializerOf(v) ?? constantOfNode(producerOf(v)),
+    removeNode(n, was) {
+      wire(n, was?.inputs ?? n.inputs, was?.outputs ?? n.outputs, false);
+      ownerReads.delete(n);
+    },
+    addNode(n) {
+      if (hasSubgraphs(n)) ownerReads.set(n, bodyReads(n));
+      wire(n, n.inputs, n.outputs, true);
+    },
+    rewire(n, was) {
+      for (const o of was.outputs) if (o && !n.outputs.includes(o)) dropOutput(o, n);
+      for (const o of n.outputs) if (o) prod[idAdd(o)] = n;
+      // (a node's inputs rarely repeat a value: compare the short lists directly)
+      const bodyRefs = ownerReads.get(n);
+      if (bodyRefs) {
+        const before = readSet(was.inputs, n), after = readSet(n.inputs, n);
+        for (const v of before) if (!after.has(v)) dropReader(v, n);
+        for (const v of after) if (!before.has(v)) addReader(v, n);
+        return;
+      }
+      for (const v of was.inputs) if (v && !n.inputs.includes(v)) dropReader(v, n);
+      for (const v of n.inputs) if (v && !was.inputs.includes(v)) addReader(v, n);
+    },
+    refreshBodyReads(n) {
+      const before = readSet(n.inputs, n);
+      ownerReads.set(n, bodyReads(n));
+      const after = readSet(n.inputs, n);
+      for (const v of before) if (!after.has(v)) dropReader(v, n);
+      for (const v of after) if (!before.has(v)) addReader(v, n);
+    },
+    addInitializer(t) { inits[idAdd(t.name)] = t; },
+    removeInitializer(name) { const id = idIn(name); if (id >= 0) inits[id] = undefined; },
+    addGraphInput(name) { const id = idAdd(name); flagOver.set(id, flagsAt(id) | IS_INPUT); },
+    settle() {
+      if (!unsorted.size) return;
+      const at = new Map<Node, number>();
+      graph.nodes.forEach((n, i) => at.set(n, i));
+      for (const id of unsorted) readOver[id]?.sort((a, b) => (at.get(a) ?? -1) - (at.get(b) ?? -1));
+      unsorted.clear();
     },
   };
 }

@@ -124,10 +124,11 @@ export function ensureLoaded(view: Uint8Array): void {
 
 /**
  * A view's bytes as they would be loaded (deferred changes applied), without keeping them: bytes still on disk are
- * read into a fresh buffer that the caller may drop, so decoding a large weight for one use does not leave it in
- * the file's buffer. Returns the view itself when nothing of it is on disk.
+ * read into a fresh buffer that the caller may drop (or into `into`, when it has the view's length), so decoding a
+ * large weight for one use does not leave it in the file's buffer. Returns the view itself when nothing of it is
+ * on disk (then `into` is untouched).
  */
-export function peekBytes(view: Uint8Array): Uint8Array {
+export function peekBytes(view: Uint8Array, into?: Uint8Array): Uint8Array {
   const src = sources.get(view.buffer);
   if (!src || !src.pending.length) return view;
   const a = view.byteOffset - src.byteOffset, b = a + view.byteLength;
@@ -136,7 +137,8 @@ export function peekBytes(view: Uint8Array): Uint8Array {
   // a deferred change covers its whole range at once: one that reaches outside this view is applied the usual way
   const hit = src.deferred.filter((d) => d.end > a && d.start < b);
   if (hit.some((d) => d.start < a || d.end > b)) { ensureLoaded(view); return view; }
-  const out = new Uint8Array(view.byteLength);
+  // into a buffer the caller reuses (already in memory: no page faults), or a fresh one
+  const out = into?.byteLength === view.byteLength ? into : new Uint8Array(view.byteLength);
   // the parts already in memory (untouched pending pages of the file's buffer are not read, so they stay unmapped)
   let at = a;
   for (const [s, e] of [...parts, [b, b] as [number, number]]) {

@@ -8,6 +8,7 @@ import { isRandomOp } from '../eval/registry.js';
 import { basename } from 'node:path';
 import type { Precision, Value } from '../eval/value.js';
 import { runLockstep } from '../eval/lockstep.js';
+import { withGraphsHeldStill } from '../eval/plan.js';
 import { probeMemoryLimit, withProbeMemory } from '../eval/budget.js';
 import { estimateRun } from '../eval/estimate.js';
 import { checkProbeEstimate } from './probe-budget.js';
@@ -165,6 +166,8 @@ function defaultGate(a: DataTypeCode, b: DataTypeCode | undefined): string {
 export function halfStoredWeights(model: Model): string[] {
   const found: string[] = [];
   const walk = (g: Graph, outer: ReadonlyMap<string, DataTypeCode>) => {
+    // the initializers' types are needed only where some node is a Cast or holds a subgraph (most graphs: none)
+    if (!g.nodes.some((n) => n.opType === 'Cast' || subgraphsOf(n).length > 0)) return;
     const types = new Map(outer);
     for (const t of g.initializers) types.set(t.name, t.dataType);
     for (const n of g.nodes) {
@@ -218,7 +221,8 @@ function hasRandomOp(m: Model): boolean {
 
 /** Run A and B on the same inputs and judge each output against its gate. Never throws for disagreeing outputs. */
 export function compare(a: Model, b: Model, opts: CompareOptions = {}): CompareReport {
-  return withProbeMemory(opts.maxProbeMemory, () => compareWithin(a, b, opts));
+  // neither model is edited while it is compared: each graph is planned for evaluation once (src/eval/plan.ts)
+  return withProbeMemory(opts.maxProbeMemory, () => withGraphsHeldStill(() => compareWithin(a, b, opts)));
 }
 
 function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport {

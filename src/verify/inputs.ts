@@ -7,6 +7,7 @@ import { DataType, elementCount, type DataTypeCode, type Dim, type Graph, type V
 import type { Value } from '../eval/value.js';
 import { PleatError } from '../errors.js';
 import { checkAllocation } from '../eval/budget.js';
+import { freshFloat64 } from '../eval/pool.js';
 import { checkProbeShapes } from './probe-budget.js';
 import { dataTypeName, isFloatType, roundToStorage, tensorToFloat64 } from '../graph/tensor.js';
 import { parseTensor } from '../onnx/read.js';
@@ -117,7 +118,9 @@ const template = (vi: ValueInfo) => (vi.shape ?? []).map((d) => (typeof d === 'n
 export function resolveInputs(graph: Graph, given: ReadonlyMap<string, InputValue>, shapes: ReadonlyMap<string, number[]> = new Map(),
   dims: ReadonlyMap<string, number> = new Map(), assumed?: AssumedDim[]): InputSpec[] {
   const byName = new Map(graph.inputs.map((i) => [i.name, i]));
-  const inits = new Set(graph.initializers.map((t) => t.name));
+  // initializers that are also inputs (defaults): a set of the few input names, not of every initializer
+  const inits = new Set<string>();
+  for (const t of graph.initializers) if (byName.has(t.name)) inits.add(t.name);
   const list = graph.inputs.map((i) => i.name).join(', ') || '(none)';
   for (const [flag, names] of [['input', given.keys()], ['shape', shapes.keys()]] as const) {
     for (const name of names) {
@@ -279,7 +282,7 @@ export function probeValue(spec: Pick<InputSpec, 'name' | 'type' | 'dims'>, seed
   const n = elementCount(spec.dims);
   checkAllocation(n, 8, `input '${spec.name}'`);
   const rand = splitmix32(streamSeed(seed, probe, spec.name));
-  const data = new Float64Array(n);
+  const data = freshFloat64(n);
   if (isFloatType(spec.type)) {
     for (let i = 0; i < n; i += 2) {
       // Box-Muller: two uniforms give two independent standard normals; 1 - u keeps the log argument in (0, 1]
@@ -288,7 +291,10 @@ export function probeValue(spec: Pick<InputSpec, 'name' | 'type' | 'dims'>, seed
       data[i] = r * Math.cos(2 * Math.PI * v);
       if (i + 1 < n) data[i + 1] = r * Math.sin(2 * Math.PI * v);
     }
-    return { type: spec.type, dims: [...spec.dims], data: roundToStorage(data, spec.type) };
+    // rounded to the element type (float32 and float64 in place, as roundToStorage would round them)
+    if (spec.type === DataType.FLOAT) for (let i = 0; i < n; i++) data[i] = Math.fround(data[i]!);
+    else if (spec.type !== DataType.DOUBLE) return { type: spec.type, dims: [...spec.dims], data: roundToStorage(data, spec.type) };
+    return { type: spec.type, dims: [...spec.dims], data };
   }
   if (spec.type === DataType.BOOL) {
     for (let i = 0; i < n; i++) data[i] = rand() < 0.5 ? 0 : 1;

@@ -2,7 +2,8 @@
 // `passed` only when at least one probe compared at least one element of every output, `failed` when any output
 // failed, `skipped` (with a reason code) when something could not be compared at all. Also which rewritten nodes
 // sit upstream of each output, for coverage and for saying when a change was not observable at an output.
-import { subgraphsOf, type Graph, type Node } from '../graph/ir.js';
+import { hasSubgraphs, subgraphsOf, type Graph, type Node } from '../graph/ir.js';
+import { planOf } from '../eval/plan.js';
 
 export type CheckStatus = 'passed' | 'failed' | 'skipped';
 
@@ -73,25 +74,37 @@ function nestedWatched(n: Node, watch: ReadonlyMap<Node, string>, into: Set<Node
 
 /**
  * For each output of `graph`, the watched nodes its value depends on (through bodies of If/Loop/Scan too): a
- * walk back from each output over producers, so the cost is outputs x nodes, never nodes x watched nodes.
+ * walk back from each output over producers, so the cost is outputs x nodes, never nodes x watched nodes. Values
+ * are followed by slot (src/eval/plan.ts), so the walk makes no map of names.
  */
 export function upstreamOfOutputs(graph: Graph, watch: ReadonlyMap<Node, string>): Map<string, Set<Node>> {
-  const producer = new Map<string, Node>();
-  for (const n of graph.nodes) for (const o of n.outputs) if (o) producer.set(o, n);
+  const plan = planOf(graph);
+  const nodes = graph.nodes;
+  const { inStart, inSlot, outStart, outSlot, slotOf } = plan;
+  const producer = new Int32Array(plan.names.length).fill(-1);
+  for (let i = 0; i < nodes.length; i++) for (let k = outStart[i]!; k < outStart[i + 1]!; k++) { const s = outSlot[k]!; if (s >= 0) producer[s] = i; }
+  const seenIn = new Int32Array(nodes.length).fill(-1); // the output whose walk last reached each node
   const out = new Map<string, Set<Node>>();
-  for (const o of graph.outputs) {
+  graph.outputs.forEach((o, walk) => {
     const found = new Set<Node>();
-    const seen = new Set<Node>();
-    const stack: Node[] = [];
-    const push = (v: string) => { const p = producer.get(v); if (p && !seen.has(p)) { seen.add(p); stack.push(p); } };
-    push(o.name);
+    const stack: number[] = [];
+    const push = (s: number | undefined) => {
+      const p = s === undefined || s < 0 ? -1 : producer[s]!;
+      if (p >= 0 && seenIn[p] !== walk) { seenIn[p] = walk; stack.push(p); }
+    };
+    push(slotOf.get(o.name));
     while (stack.length) {
-      const n = stack.pop()!;
+      const i = stack.pop()!;
+      const n = nodes[i]!;
       if (watch.has(n)) found.add(n);
-      nestedWatched(n, watch, found);
-      for (const v of readsOf(n)) push(v);
+      if (hasSubgraphs(n)) {
+        nestedWatched(n, watch, found);
+        for (const v of readsOf(n)) push(slotOf.get(v));
+      } else {
+        for (let k = inStart[i]!; k < inStart[i + 1]!; k++) push(inSlot[k]);
+      }
     }
     out.set(o.name, found);
-  }
+  });
   return out;
 }

@@ -3,7 +3,7 @@
 // else has overwritten: another weight, a non-constant operand, a depthwise convolution laid out in the same
 // memory. The reference is the same product on a fresh copy of A, which is never constant and so always packed.
 import { afterAll, describe, expect, it } from 'vitest';
-import { gemm, rowMajor, simdOn } from '../../src/eval/gemm.js';
+import { gemm, gemmScalar, gemmSmall, rowMajor, simdOn } from '../../src/eval/gemm.js';
 import { markConstant } from '../../src/eval/pool.js';
 import { runModel } from '../../src/eval/run.js';
 import { parseModel } from '../../src/onnx/read.js';
@@ -46,6 +46,25 @@ describe('packed weights reused across products', () => {
         expect(again, `step ${step}, again`).toBe(fresh);
         if (step % 4 === 1) { product(M, 5, K, w1, Float64Array.from(randn(r, K * 5, 1))); runModel(dw, new Map([['x', { type: 1, dims: [1, 8, 9, 9], data: x }]]), { precision: 'float64' }); }
       }
+    }
+  });
+});
+
+describe('small products without packing', () => {
+  it('gemmSmall gives the bits of the blocked scalar product on seeded small shapes (k past one block, strides, accumulate, float32)', () => {
+    const r = rng(77);
+    for (let trial = 0; trial < 200; trial++) {
+      const K = trial % 10 === 0 ? 257 + Math.floor(r() * 250) : 1 + Math.floor(r() * 40);
+      const M = K > 256 ? 1 : 1 + Math.floor(r() * 6), N = K > 256 ? 1 : 1 + Math.floor(r() * 6);
+      const transA = trial % 3 === 0, transB = trial % 4 === 1, acc = trial % 5 === 2, f32 = trial % 2 === 0;
+      const A = Float64Array.from(randn(r, M * K, 1)), B = Float64Array.from(randn(r, K * N, 1));
+      const start = randn(r, M * N, 1);
+      const out = (f: typeof gemmSmall) => {
+        const C = f32 ? Float32Array.from(start) : Float64Array.from(start);
+        f(M, N, K, rowMajor(A, 0, transA ? M : K, transA), rowMajor(B, 0, transB ? K : N, transB), C, 0, N, acc);
+        return Buffer.from(C.buffer).toString('base64');
+      };
+      expect(out(gemmSmall), `trial ${trial} M=${M} N=${N} K=${K}`).toBe(out(gemmScalar));
     }
   });
 });

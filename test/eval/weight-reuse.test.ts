@@ -8,6 +8,10 @@ import { runLockstep } from '../../src/eval/lockstep.js';
 import { parseModel } from '../../src/onnx/read.js';
 import { GraphBuilder, modelBytes, randn, rng } from '../helpers/build.js';
 import { runOrt } from '../helpers/ort.js';
+import { readModelFile } from '../../src/onnx/read.js';
+import { mkdtempSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
 
 const S = 300;
 /** Positions where two arrays differ (a count, so a failure prints one number, not 90,000). */
@@ -92,6 +96,29 @@ describe('reused weight buffers', () => {
       const asStored = run('raw'), decoded = run('typed'); // float_data never takes the as-stored path
       expect(asStored).toBeInstanceOf(Float64Array);
       expect(differing(asStored, decoded), op).toBe(0);
+    }
+  });
+
+  it('weights still on disk, read as stored into reused buffers: the same bits as the model held in memory, run after run', () => {
+    const r = rng(23);
+    const C = 96, dims = [C, C, 3, 3];
+    const g = new GraphBuilder();
+    g.input('x', [1, C, 5, 5]).output('y');
+    const c1 = g.node('Conv', ['x', g.init('w1', dims, randn(r, C * C * 9, 0.05))], { pads: [1, 1, 1, 1] });
+    const c2 = g.node('Conv', [c1, g.init('w2', dims, randn(r, C * C * 9, 0.05))], { pads: [1, 1, 1, 1] });
+    g.node('Conv', [c2, g.init('w3', dims, randn(r, C * C * 9, 0.05))], { pads: [1, 1, 1, 1] }, { outputs: ['y'] });
+    const bytes = modelBytes(g, { opset: 13 });
+    const file = join(mkdtempSync(join(tmpdir(), 'pleat-reuse-')), 'three.onnx');
+    writeFileSync(file, bytes);
+    const x = Float64Array.from(randn(r, C * 25, 1));
+    const inputs = new Map([['x', { type: 1, dims: [1, C, 5, 5], data: x }]]);
+    const want = runModel(parseModel(bytes, '.'), inputs, { precision: 'float64' }).get('y')!.data;
+    const onDisk = readModelFile(file);
+    for (let round = 0; round < 3; round++) {
+      const [[a, b]] = runLockstep([{ model: onDisk, precision: 'float64', probes: [inputs, inputs] }]);
+      expect(differing(a!.get('y')!.data, want), `round ${round}`).toBe(0);
+      expect(differing(b!.get('y')!.data, want), `round ${round}`).toBe(0);
+      expect(differing(runModel(onDisk, inputs, { precision: 'float64' }).get('y')!.data, want)).toBe(0);
     }
   });
 });

@@ -54,6 +54,22 @@ describe('inferShapes', () => {
     });
   }
 
+  it('a graph whose nodes are listed out of order gets the same shapes as the sorted graph (one pass in list order only when sorted)', () => {
+    for (const seed of [1, 2, 3, 4, 5, 6]) {
+      const { g, values } = build(seed);
+      const graph = parseModel(modelBytes(g, { opset: 13 }), dir).graph;
+      const sorted = inferShapes(graph);
+      const r = rng(seed + 50);
+      const shuffled = { ...graph, nodes: [...graph.nodes] };
+      for (let i = shuffled.nodes.length - 1; i > 0; i--) {
+        const j = Math.floor(r() * (i + 1));
+        [shuffled.nodes[i], shuffled.nodes[j]] = [shuffled.nodes[j]!, shuffled.nodes[i]!];
+      }
+      const got = inferShapes(shuffled);
+      for (const name of values) expect(got.get(name), `seed ${seed}: ${name}`).toEqual(sorted.get(name));
+    }
+  });
+
   it('leaves a shape unknown when it depends on values computed at run time, and marks symbolic dims -1', () => {
     const g = new GraphBuilder();
     g.input('x', ['batch', 4, 6]).input('target', [2], 7).output('y').output('z');

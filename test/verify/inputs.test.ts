@@ -11,6 +11,7 @@ import {
   checkDimFlags, loadInputFile, makeProbe, parseInputFlags, probeValue, resolveInputs, splitmix32, SMALL_INT_MAX, type InputValue,
 } from '../../src/verify/inputs.js';
 import { npyBytes } from '../../src/verify/npy.js';
+import { roundToStorage } from '../../src/graph/tensor.js';
 import { DataType } from '../../src/graph/ir.js';
 import { PleatError } from '../../src/errors.js';
 
@@ -166,5 +167,23 @@ describe('probes', () => {
     const p2 = makeProbe([{ name: 'g', type: DataType.FLOAT, dims: [2], given }, { ...spec }], 0, 0);
     expect(Array.from(p1.get('x')!.data)).toEqual(Array.from(p2.get('x')!.data));
     expect(Array.from(p1.get('g')!.data)).toEqual([7, 8]);
+  });
+
+  it('a float probe is the float64 draw rounded to its type, made afresh in an array of its own each time (small ones are slab views)', () => {
+    for (const dims of [[1, 4, 2, 2], [3], [2, 5, 7], [64, 70]]) {
+      for (const seed of [0, 9]) {
+        const exact = probeValue({ name: 'r7', type: DataType.DOUBLE, dims }, seed, 1).data;
+        const f32 = probeValue({ name: 'r7', type: DataType.FLOAT, dims }, seed, 1).data;
+        const f16 = probeValue({ name: 'r7', type: DataType.FLOAT16, dims }, seed, 1).data;
+        expect(Array.from(f32)).toEqual(Array.from(roundToStorage(Float64Array.from(exact), DataType.FLOAT)));
+        expect(Array.from(f16)).toEqual(Array.from(roundToStorage(Float64Array.from(exact), DataType.FLOAT16)));
+        expect(Array.from(f32)).toEqual(Array.from(exact, (v) => Math.fround(v)));
+        // the same probe made again is equal, and a separate array: changing one leaves the other as it was
+        const again = probeValue({ name: 'r7', type: DataType.FLOAT, dims }, seed, 1).data;
+        expect(Array.from(again)).toEqual(Array.from(f32));
+        again.fill(0);
+        expect(Array.from(f32)).toEqual(Array.from(exact, (v) => Math.fround(v)));
+      }
+    }
   });
 });
