@@ -5,6 +5,7 @@
 import { describe, expect, it } from 'vitest';
 import { spawnSync } from 'node:child_process';
 import { join } from 'node:path';
+import { readFileSync } from 'node:fs';
 import { FORMATS } from '../../src/report/format.js';
 import { CLI, ROOT, pleat } from '../helpers/cli.js';
 
@@ -157,5 +158,14 @@ describe('names that match nothing are errors (item 9)', () => {
     const stem = JSON.parse(ok.stdout).normalizations.find((n: { node: string }) => n.node === 'stem.bn');
     expect(stem.hint).toMatch(/listed under "keep" in .*team\.json/);
     expect(stem.hint).not.toMatch(/--keep/);
+  });
+});
+
+describe('--version', () => {
+  it("prints the version in package.json, alone on a line", () => {
+    const pkg = JSON.parse(readFileSync(join(ROOT, 'package.json'), 'utf8')) as { version: string };
+    const r = pleat(['--version']);
+    expect(r.code).toBe(0);
+    expect(r.stdout).toBe(`${pkg.version}\n`);
   });
 });
