@@ -10,7 +10,6 @@ import { checkFlags, type OptionTable } from './check-flags.js';
 import { COMMANDS, commandNames } from './commands/table.js';
 import { failAndExit } from './errors.js';
 import { nearest } from './suggest.js';
-import { pleatVersion } from '../src/jobs/version.js';
 
 /** Marks yargs' missing-positional message so the fail handler can name the command's own arguments. */
 const MISSING_ARGUMENT = 'missing argument';
@@ -73,7 +72,7 @@ async function main(): Promise<void> {
     .help('help', 'print the options of pleat or of one command')
     .alias('h', 'help')
     .epilogue(EXIT_CODES_TEXT)
-    .version('version', "print pleat's version", pleatVersion())
+    .version('version', "print pleat's version", args.includes('--version') ? (await import('../src/jobs/version.js')).pleatVersion() : '')
     .updateStrings({
       'Not enough non-option arguments: got %s, need at least %s': {
         one: MISSING_ARGUMENT,
