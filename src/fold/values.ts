@@ -6,6 +6,7 @@ import { tensorToFloat64 } from '../graph/tensor.js';
 import { setTensorValues, touch } from '../graph/edit.js';
 import { deferTransform, ensureLoaded, isOnDisk, peekBytes, scanView } from '../onnx/sparse-read.js';
 import { scaleRawFloat32, scaleWeights, type ChannelMap } from './weights.js';
+import { scaleRunsSimd } from './scale-simd.js';
 
 function rawFloat32(t: Tensor): Uint8Array | undefined {
   const s = t.storage;
@@ -97,13 +98,25 @@ export type ScaleGuard = (maxAbs: number) => void;
  * Scale (or, with write=false, only measure) float32 little-endian elements of a block that starts at element
  * `first` of the weight. Returns the largest |result|.
  */
-function scaleFloat32Block(block: Uint8Array, first: number, map: ChannelMap, scale: Float64Array, write: boolean): number {
+export function scaleFloat32Block(block: Uint8Array, first: number, map: ChannelMap, scale: Float64Array, write: boolean): number {
   const n = block.byteLength >> 2;
   const unit = map.unit;
   let max = 0, nan = false;
   if ((block.byteOffset & 3) === 0) {
     // aligned (always so for the streaming buffers): a Float32Array is several times faster than a DataView
     const f = new Float32Array(block.buffer, block.byteOffset, n);
+    if (unit >= 64) {
+      // long channel runs (Conv, ConvTranspose, Gemm rows): four weights at a time (src/fold/scale-simd.ts)
+      const fast = scaleRunsSimd(f, (visit) => {
+        for (let j = 0; j < n;) {
+          const e = Math.floor((first + j) / unit);
+          const stop = Math.min(n, (e + 1) * unit - first);
+          visit(j, stop - j, scale[map.of[e]!]!);
+          j = stop;
+        }
+      }, write);
+      if (fast !== undefined) return fast;
+    }
     for (let j = 0; j < n;) {
       const e = Math.floor((first + j) / unit);
       const s = scale[map.of[e]!]!;

@@ -1,0 +1,42 @@
+// Scaling float32 weights by channel in SIMD (src/fold/scale-simd.ts, through scaleFloat32Block) against the
+// scalar definition written out here: each weight times its channel's float64 factor, rounded once to float32
+// (what storing into a Float32Array does, IEEE 754 round to nearest even), and the largest |product| before that
+// rounding, NaN when some product is NaN. Seeded blocks starting mid-run, runs whose length is not a multiple of
+// four, NaN, infinities, subnormals and products past the float32 range.
+import { describe, expect, it } from 'vitest';
+import { scaleFloat32Block } from '../../src/fold/values.js';
+import { randn, rng } from '../helpers/build.js';
+
+function reference(f: Float32Array, first: number, of: Int32Array, unit: number, scale: Float64Array, write: boolean): number {
+  let max = 0, nan = false;
+  for (let j = 0; j < f.length; j++) {
+    const r = f[j]! * scale[of[Math.floor((first + j) / unit)]!]!;
+    if (write) f[j] = r;
+    const m = Math.abs(r);
+    if (m > max) max = m; else if (m !== m) nan = true;
+  }
+  return nan ? NaN : max;
+}
+
+describe('scaling float32 weights in SIMD', () => {
+  it('gives the bits and the largest product of the scalar definition', () => {
+    const r = rng(41);
+    for (let trial = 0; trial < 60; trial++) {
+      const unit = 64 + Math.floor(r() * 300), runs = 2 + Math.floor(r() * 6);
+      const of = Int32Array.from({ length: runs }, (_, e) => (e * 7) % runs);
+      const scale = Float64Array.from(randn(r, runs, 3), (x, c) => (c === 1 && trial % 5 === 0 ? 1e39 : x));
+      const first = Math.floor(r() * unit);
+      const n = Math.min(runs * unit - first, 1 + Math.floor(r() * (runs * unit - first)));
+      const values = Float32Array.from(randn(r, n, 1));
+      if (trial % 3 === 0) { values[Math.floor(r() * n)] = NaN; values[Math.floor(r() * n)] = Infinity; values[Math.floor(r() * n)] = 1e-44; }
+      for (const write of [true, false]) {
+        const mine = values.slice(), want = values.slice();
+        const bytes = new Uint8Array(mine.buffer);
+        const got = scaleFloat32Block(bytes, first, { of, unit }, scale, write);
+        const exp = reference(want, first, of, unit, scale, write);
+        expect(Object.is(got, exp) || got === exp, `trial ${trial} write ${write}: ${got} vs ${exp}`).toBe(true);
+        expect(Buffer.from(mine.buffer).equals(Buffer.from(want.buffer)), `trial ${trial} write ${write}`).toBe(true);
+      }
+    }
+  });
+});
