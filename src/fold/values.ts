@@ -194,7 +194,9 @@ export function scaleTensor(t: Tensor, map: ChannelMap, scale: Float64Array, inP
   }
   if (bytes) {
     // a scaled copy in the tensor's own float32 bytes: each product in float64, rounded once on store, as above
-    const copy = new Uint8Array(peekBytes(bytes));
+    const copy = new Uint8Array(bytes.byteLength);
+    const got = peekBytes(bytes, copy); // read straight into the copy when the bytes are on disk
+    if (got !== copy) copy.set(got);
     const m = scaleFloat32Block(copy, 0, map, scale, true); // (not inside guard?.(): that would skip it)
     guard?.(m);
     const s = t.storage as Extract<TensorStorage, { kind: 'raw' | 'external' }>;
