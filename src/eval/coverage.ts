@@ -1,10 +1,10 @@
 // Which operators of a model the evaluator cannot run, found before running anything (for `pleat survey`), so a
 // user knows ahead of a fold whether the whole-model check will be able to run. Looks each node up in the
-// registry (findKernel) at the opset the model imports for its domain, subgraphs included. A kernel may still
+// kernel table (kernel-table.ts, the registry's list without the kernels' code) at the opset the model imports for its domain, subgraphs included. A kernel may still
 // refuse a particular attribute value when it runs (e.g. Resize antialias when shrinking); those show up in the
 // check's status.
 import { opsetVersion, subgraphsOf, type Graph, type Model } from '../graph/ir.js';
-import { findKernel, isRandomOp } from './registry.js';
+import { hasKernel, isRandomOp } from './kernel-table.js';
 
 export interface EvaluatorGap {
   /** Operator, domain-qualified outside the default domain. */
@@ -24,7 +24,7 @@ export function evaluatorGaps(model: Model): EvaluatorGap[] {
       const domain = n.domain === 'ai.onnx' ? '' : n.domain;
       const opset = opsetVersion(model, domain) ?? 0;
       const random = isRandomOp(domain, n.opType); // outputs are random draws: two runs differ
-      if (random || !findKernel(domain, n.opType, opset)) {
+      if (random || !hasKernel(domain, n.opType, opset)) {
         const op = domain ? `${domain}.${n.opType}` : n.opType;
         const gap = gaps.get(op) ?? { op, opset, count: 0, reason: random ? 'random' : 'no-kernel' };
         gap.count++;

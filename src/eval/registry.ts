@@ -2,6 +2,7 @@
 // `Kernel` (or several, one per opset form) and add it to KERNELS below.
 import { PleatError } from '../errors.js';
 import type { Kernel } from './value.js';
+import { isRandomOp } from './kernel-table.js';
 import * as activations from './kernels/activations.js';
 import * as binary from './kernels/binary.js';
 import * as cast from './kernels/cast.js';
@@ -250,15 +251,11 @@ export function findKernel(domain: string, op: string, opset: number): Kernel | 
   return byKey.get(`${d}::${op}`)?.find((k) => k.sinceVersion <= opset);
 }
 
-/**
- * Operators of the default domain whose outputs are random draws by definition. Two runs of the same model give
- * different values, so comparing the original with the folded model says nothing: they are refused with that
- * reason rather than with the generic missing-kernel message.
- */
-export const RANDOM_OPS: ReadonlySet<string> = new Set(['Bernoulli', 'Multinomial', 'RandomNormal', 'RandomNormalLike', 'RandomUniform', 'RandomUniformLike']);
+export { RANDOM_OPS, isRandomOp } from './kernel-table.js';
 
-export function isRandomOp(domain: string, op: string): boolean {
-  return (domain === '' || domain === 'ai.onnx') && RANDOM_OPS.has(op);
+/** Every registered kernel as (domain, op, first opset), for the table survey reads (test/eval/kernel-table.test.ts). */
+export function kernelList(): Array<[string, string, number]> {
+  return KERNELS.map((k) => [k.domain, k.op, k.sinceVersion]);
 }
 
 export function getKernel(domain: string, op: string, opset: number, nodeName: string): Kernel {
