@@ -25,7 +25,7 @@ export async function handler(argv: Flags): Promise<void> {
   const { evaluate, saveOutputs, setThreads } = await import('../../src/index.js');
   const { dataTypeName } = await import('../../src/graph/tensor.js');
   if (threads !== undefined) setThreads(threads);
-  const { toJsonText } = await import('../../src/verify/compare.js');
+  const { toJsonText } = await import('../../src/report/json.js');
   const r = evaluate(argv.model, { inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, precision: argv.precision, maxProbeMemory: run.maxProbeMemory });
   const saved = saveOutputs(argv.save, r.outputs);
   const outputs = saved.files.map((f) => ({ ...f, dtype: dataTypeName(r.outputs.get(f.name)!.type), dims: [...r.outputs.get(f.name)!.dims] }));

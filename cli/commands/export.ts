@@ -32,7 +32,7 @@ export async function handler(argv: Flags): Promise<void> {
   // loaded here, not at start-up (see compare.ts)
   const { exportFile, setThreads } = await import('../../src/index.js');
   if (threads !== undefined) setThreads(threads);
-  const { toJsonText } = await import('../../src/verify/compare.js');
+  const { toJsonText } = await import('../../src/report/json.js');
   const { exportText } = await import('../../src/report/export-text.js');
   const { EXIT } = await import('../../src/report/exit-codes.js');
   const r = exportFile(argv.model, argv.bundle, argv.bundleFormat, {

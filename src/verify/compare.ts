@@ -401,10 +401,3 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
   return report;
 }
 
-/**
- * JSON text for a report (or any result): two-space indent, and non-finite numbers written as the strings
- * "Infinity", "-Infinity" and "NaN", since plain JSON has no such numbers and would turn them into null.
- */
-export function toJsonText(value: unknown): string {
-  return JSON.stringify(value, (_k, v) => (typeof v === 'number' && !Number.isFinite(v) ? String(v) : v), 2) + '\n';
-}

@@ -13,7 +13,7 @@ import { pleat, ROOT } from '../helpers/cli.js';
 import { browserAvailable, openBrowser } from '../helpers/browser.js';
 import { bytesText, cosineText, dbText, numText, ratioText } from '../../src/report/format.js';
 import { renderJobs } from '../../src/report/render.js';
-import { toJsonText } from '../../src/verify/compare.js';
+import { toJsonText } from '../../src/report/json.js';
 import type { FoldReport } from '../../src/jobs/types.js';
 import { foldReport } from './fixtures.js';
 
