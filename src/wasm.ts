@@ -37,3 +37,22 @@ export const V128_LOAD = 0x00, V128_STORE = 0x0b, V128_CONST = 0x0c, I8X16_SHUFF
 export const F32X4_SPLAT = 0x13, F32X4_NEAREST = 0x6a, F64X2_PROMOTE_LOW_F32X4 = 0x5f;
 export const F32X4_ADD = 0xe4, F32X4_SUB = 0xe5, F32X4_MUL = 0xe6, F32X4_DIV = 0xe7, F32X4_MIN = 0xe8, F32X4_MAX = 0xe9;
 export const F64X2_ADD = 0xf0, F64X2_SUB = 0xf1, F64X2_MUL = 0xf2;
+
+/**
+ * A lazily made instance of a module with its own memory (exported as `mem`): the exports, with the memory as
+ * `memory`, made on first call; undefined, once and for all, where the runtime cannot compile it (no SIMD).
+ */
+export function lazyInstance<T extends { memory: WebAssembly.Memory }>(bytes: () => Uint8Array<ArrayBuffer>): () => T | undefined {
+  let made: T | null | undefined;
+  return () => {
+    if (made === undefined) {
+      try {
+        const e = new WebAssembly.Instance(new WebAssembly.Module(bytes()), {}).exports as Record<string, unknown>;
+        made = { ...e, memory: e.mem } as unknown as T;
+      } catch {
+        made = null;
+      }
+    }
+    return made ?? undefined;
+  };
+}

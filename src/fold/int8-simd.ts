@@ -11,7 +11,7 @@ import {
   BLOCK, BR_IF, END, F32, F32X4_DIV, F32X4_MAX, F32X4_MIN, F32X4_MUL, F32X4_NEAREST, F32X4_SPLAT, F64X2_ADD,
   F64X2_MUL, F64X2_PROMOTE_LOW_F32X4, F64X2_SUB, I32, I32_ADD, I32_CONST, I32_EQZ, I32_SUB, I8X16_SHUFFLE, LOCAL_GET,
   LOCAL_SET, LOCAL_TEE, LOOP, section, simd, sleb, uleb, V128, V128_CONST, V128_LOAD, V128_STORE, vec, VOID,
-  WASM_HEADER, wasmName,
+  WASM_HEADER, wasmName, lazyInstance,
 } from '../wasm.js';
 
 const F32X4_PMIN = 0xea, F32X4_PMAX = 0xeb;
@@ -97,19 +97,7 @@ interface Kernels {
   noise: (p: number, groups: number, scaleT: number, scaleC: number, out: number) => void;
 }
 
-let cached: Kernels | null | undefined;
-
-function kernels(): Kernels | undefined {
-  if (cached === undefined) {
-    try {
-      const e = new WebAssembly.Instance(new WebAssembly.Module(moduleBytes()), {}).exports as unknown as { mem: WebAssembly.Memory } & Kernels;
-      cached = { memory: e.mem, minmax: e.minmax, noise: e.noise };
-    } catch {
-      cached = null;
-    }
-  }
-  return cached ?? undefined;
-}
+const kernels = lazyInstance<Kernels>(moduleBytes);
 
 /** Whether the SIMD figures are available here (tests compare them with the scalar ones). */
 export function int8SimdAvailable(): boolean { return kernels() !== undefined; }

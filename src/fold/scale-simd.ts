@@ -7,7 +7,7 @@
 import {
   BLOCK, BR_IF, END, F64X2_MUL, F64X2_PROMOTE_LOW_F32X4, I32, I32_ADD, I32_CONST, I32_EQZ, I32_SUB, I8X16_SHUFFLE,
   LOCAL_GET, LOCAL_SET, LOCAL_TEE, LOOP, section, simd, sleb, uleb, V128, V128_CONST, V128_LOAD, V128_STORE, vec, VOID,
-  WASM_HEADER, wasmName,
+  WASM_HEADER, wasmName, lazyInstance,
 } from '../wasm.js';
 
 const F64 = 0x7c;
@@ -57,19 +57,7 @@ function moduleBytes(): Uint8Array<ArrayBuffer> {
 }
 
 interface Kernel { memory: WebAssembly.Memory; scale: (p: number, groups: number, s: number, write: number, out: number) => void }
-let cached: Kernel | null | undefined;
-
-function kernel(): Kernel | undefined {
-  if (cached === undefined) {
-    try {
-      const e = new WebAssembly.Instance(new WebAssembly.Module(moduleBytes()), {}).exports as unknown as { mem: WebAssembly.Memory } & Kernel;
-      cached = { memory: e.mem, scale: e.scale };
-    } catch {
-      cached = null;
-    }
-  }
-  return cached ?? undefined;
-}
+const kernel = lazyInstance<Kernel>(moduleBytes);
 
 const OUT = 0, DATA = 64;
 
