@@ -1,8 +1,8 @@
 // Matrix products split across worker threads that share memory. Every thread's kernel instance runs on one
-// shared WebAssembly memory (src/eval/wasm-gemm.ts): the calling thread lays out the packed operands once, each
-// worker computes a band of 4-row tiles of the output in place, and the calling thread takes a band itself, then
-// waits for the rest. Every output element is one sum over k in the same order whoever computes it, so results
-// are bit-identical for any thread count.
+// shared WebAssembly memory (src/eval/wasm-gemm.ts): the calling thread lays out the operands once, then it and
+// the workers take chunks of 4-row output tiles from a shared counter and compute them in place, and the calling
+// thread waits for the workers to finish. Every output element is one sum over k in the same order whoever
+// computes it, so results are bit-identical for any thread count.
 import { Worker } from 'node:worker_threads';
 import { existsSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
@@ -20,7 +20,7 @@ export function setThreads(n: number): void {
 
 export function threadCount(): number { return wanted; }
 
-/** How long a band may take without any band finishing before the wait gives up (a dead worker). */
+/** How long the wait for the workers may go without any finishing before it gives up (a dead worker). */
 const STALL_MS = 10 * 60_000;
 
 /** Products smaller than this many multiply-adds stay on the calling thread (a hand-off costs about 0.1 ms). */
@@ -28,8 +28,8 @@ export const PARALLEL_MIN_WORK = 1 << 22;
 
 // Hand-off without messages: each worker owns a control block of shared integers ([0] counts the jobs posted to
 // it, then the span's fields) and waits on it with Atomics.wait; all take chunks from one shared counter and count
-// themselves done in one shared block ([0] finished, [1] failed, [2] the next chunk). A message per band (a structured clone, a fresh shared buffer) cost more than a
-// small product's band itself.
+// themselves done in one shared block ([0] finished, [1] failed, [2] the next chunk). A message per product (a
+// structured clone, a fresh shared buffer) cost more than a small product's share of work.
 export const SPAN_FIELDS = ['f64', 'pa', 'pb', 'pc', 'nTiles', 'K', 'ldcBytes', 'ldbBytes', 't0', 't1', 'chunk'] as const;
 export const CONTROL_INTS = 1 + SPAN_FIELDS.length;
 
@@ -41,7 +41,7 @@ const done = new Int32Array(new SharedArrayBuffer(12)); // finished, failed, nex
 let workers: Array<{ worker: Worker; control: Int32Array }> = [];
 let posted = 0;
 
-/** Bands handed to worker threads so far (tests check the threads really ran). */
+/** Worker hand-offs so far (tests check the threads really ran). */
 export function bandsPosted(): number { return posted; }
 
 function workerUrl(): URL {
@@ -91,7 +91,7 @@ export function inBands(span: TileSpan, threads: number, own: (s: TileSpan, coun
   posted += helpers;
   own(span, done.subarray(2, 3));
   const others = ws;
-  // wait for every worker band; a worker that died without counting its band ends the wait after STALL_MS
+  // wait for every worker; one that died without counting itself done ends the wait after STALL_MS
   let idle = 0;
   for (let seen = Atomics.load(done, 0); seen < others.length;) {
     if (Atomics.wait(done, 0, seen, 1000) === 'timed-out') idle += 1000; else idle = 0;
