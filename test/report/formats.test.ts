@@ -9,7 +9,7 @@ import { renderCompare, renderJobs, compareJson } from '../../src/report/render.
 import { escapeXml } from '../../src/report/junit.js';
 import { auditMarkdown } from '../../src/report/markdown.js';
 import { CAUTION } from '../../src/report/format.js';
-import { toJsonText } from '../../src/verify/compare.js';
+import { toJsonText } from '../../src/report/json.js';
 import { parseJunit, schemaValidator } from './helpers.js';
 import { auditReport, compareReport, foldReport } from './fixtures.js';
 import { SCHEMA_VERSION } from '../../src/jobs/types.js';

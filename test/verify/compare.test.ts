@@ -11,7 +11,8 @@ import { f, GraphBuilder, modelBytes, randn, rng, T } from '../helpers/build.js'
 import { runOrt } from '../helpers/ort.js';
 import * as ort from 'onnxruntime-node';
 import { parseModel } from '../../src/onnx/read.js';
-import { compare, toJsonText } from '../../src/verify/compare.js';
+import { compare } from '../../src/verify/compare.js';
+import { toJsonText } from '../../src/report/json.js';
 import { evaluate, safeFileNames, saveOutputs } from '../../src/verify/evaluate.js';
 import { readNpy } from '../../src/verify/npy.js';
 import { DEFAULT_GATES } from '../../src/verify/gate.js';
