@@ -56,3 +56,16 @@ export function lazyInstance<T extends { memory: WebAssembly.Memory }>(bytes: ()
     return made ?? undefined;
   };
 }
+
+/**
+ * A loop over `groups` vectors of 16 bytes: `body` runs with local `p` at each vector's byte offset, then p moves
+ * 16 bytes on and `groups` counts down; nothing runs when groups is 0. p and groups are i32 locals.
+ */
+export function vectorLoop(p: number, groups: number, body: number[]): number[] {
+  return [
+    BLOCK, VOID, LOCAL_GET, groups, I32_EQZ, BR_IF, 0, LOOP, VOID,
+    ...body,
+    LOCAL_GET, p, I32_CONST, ...sleb(16), I32_ADD, LOCAL_SET, p,
+    LOCAL_GET, groups, I32_CONST, 1, I32_SUB, LOCAL_TEE, groups, BR_IF, 0, END, END,
+  ];
+}

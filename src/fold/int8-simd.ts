@@ -8,10 +8,9 @@
 // scalar ones to rounding. A folded layer of millions of weights is read twice per model, so this runs over
 // every weight of a large model four times per fold.
 import {
-  BLOCK, BR_IF, END, F32, F32X4_DIV, F32X4_MAX, F32X4_MIN, F32X4_MUL, F32X4_NEAREST, F32X4_SPLAT, F64X2_ADD,
-  F64X2_MUL, F64X2_PROMOTE_LOW_F32X4, F64X2_SUB, I32, I32_ADD, I32_CONST, I32_EQZ, I32_SUB, I8X16_SHUFFLE, LOCAL_GET,
-  LOCAL_SET, LOCAL_TEE, LOOP, section, simd, sleb, uleb, V128, V128_CONST, V128_LOAD, V128_STORE, vec, VOID,
-  WASM_HEADER, wasmName, lazyInstance,
+  END, F32, F32X4_DIV, F32X4_MAX, F32X4_MIN, F32X4_MUL, F32X4_NEAREST, F32X4_SPLAT, F64X2_ADD, F64X2_MUL,
+  F64X2_PROMOTE_LOW_F32X4, F64X2_SUB, I32, I8X16_SHUFFLE, LOCAL_GET, LOCAL_SET, section, simd, uleb, V128,
+  V128_CONST, V128_LOAD, V128_STORE, vec, WASM_HEADER, wasmName, lazyInstance, vectorLoop,
 } from '../wasm.js';
 
 const F32X4_PMIN = 0xea, F32X4_PMAX = 0xeb;
@@ -26,12 +25,11 @@ function minmaxBody(): number[] {
   const get = (i: number) => [LOCAL_GET, i], set = (i: number) => [LOCAL_SET, i];
   const code = [
     ...simd(V128_CONST), ...f32x4(Infinity), ...set(LO), ...simd(V128_CONST), ...f32x4(-Infinity), ...set(HI),
-    BLOCK, VOID, ...get(G), I32_EQZ, BR_IF, 0, LOOP, VOID,
-    ...get(P), ...simd(V128_LOAD), 0, 0, ...set(X),
-    ...get(LO), ...get(X), ...simd(F32X4_PMIN), ...set(LO),
-    ...get(HI), ...get(X), ...simd(F32X4_PMAX), ...set(HI),
-    ...get(P), I32_CONST, ...sleb(16), I32_ADD, ...set(P),
-    ...get(G), I32_CONST, 1, I32_SUB, LOCAL_TEE, G, BR_IF, 0, END, END,
+    ...vectorLoop(P, G, [
+      ...get(P), ...simd(V128_LOAD), 0, 0, ...set(X),
+      ...get(LO), ...get(X), ...simd(F32X4_PMIN), ...set(LO),
+      ...get(HI), ...get(X), ...simd(F32X4_PMAX), ...set(HI),
+    ]),
     ...get(OUT), ...get(LO), ...simd(V128_STORE), 4, 0,
     ...get(OUT), ...get(HI), ...simd(V128_STORE), 4, 16,
     END,
@@ -61,16 +59,15 @@ function noiseBody(): number[] {
   const code = [
     ...get(ST), ...simd(F32X4_SPLAT), ...set(VT), ...get(SC), ...simd(F32X4_SPLAT), ...set(VC),
     ...simd(V128_CONST), ...f32x4(-128), ...set(LO), ...simd(V128_CONST), ...f32x4(127), ...set(HI),
-    BLOCK, VOID, ...get(G), I32_EQZ, BR_IF, 0, LOOP, VOID,
-    ...get(P), ...simd(V128_LOAD), 0, 0, ...set(X),
-    ...get(X), ...simd(F64X2_PROMOTE_LOW_F32X4), ...set(XL),
-    ...promoteHigh(X), ...set(XH),
-    ...get(ACC), ...get(XL), ...get(XL), ...simd(F64X2_MUL), ...simd(F64X2_ADD), ...set(ACC),
-    ...get(ACC + 1), ...get(XH), ...get(XH), ...simd(F64X2_MUL), ...simd(F64X2_ADD), ...set(ACC + 1),
-    ...rounded(VT), ...noise(ACC + 2),
-    ...rounded(VC), ...noise(ACC + 4),
-    ...get(P), I32_CONST, ...sleb(16), I32_ADD, ...set(P),
-    ...get(G), I32_CONST, 1, I32_SUB, LOCAL_TEE, G, BR_IF, 0, END, END,
+    ...vectorLoop(P, G, [
+      ...get(P), ...simd(V128_LOAD), 0, 0, ...set(X),
+      ...get(X), ...simd(F64X2_PROMOTE_LOW_F32X4), ...set(XL),
+      ...promoteHigh(X), ...set(XH),
+      ...get(ACC), ...get(XL), ...get(XL), ...simd(F64X2_MUL), ...simd(F64X2_ADD), ...set(ACC),
+      ...get(ACC + 1), ...get(XH), ...get(XH), ...simd(F64X2_MUL), ...simd(F64X2_ADD), ...set(ACC + 1),
+      ...rounded(VT), ...noise(ACC + 2),
+      ...rounded(VC), ...noise(ACC + 4),
+    ]),
     ...[0, 1, 2, 3, 4, 5].flatMap((k) => [...get(OUT), ...get(ACC + k), ...simd(V128_STORE), 4, ...uleb(16 * k)]),
     END,
   ];

@@ -5,9 +5,8 @@
 // product was NaN. A fold rewrites every weight of a large model on its way to the output, and the quantization
 // figures and the check read the scaled weights again, so this runs over each weight several times.
 import {
-  BLOCK, BR_IF, END, F64X2_MUL, F64X2_PROMOTE_LOW_F32X4, I32, I32_ADD, I32_CONST, I32_EQZ, I32_SUB, I8X16_SHUFFLE,
-  LOCAL_GET, LOCAL_SET, LOCAL_TEE, LOOP, section, simd, sleb, uleb, V128, V128_CONST, V128_LOAD, V128_STORE, vec, VOID,
-  WASM_HEADER, wasmName, lazyInstance,
+  BLOCK, BR_IF, END, F64X2_MUL, F64X2_PROMOTE_LOW_F32X4, I32, I32_EQZ, I8X16_SHUFFLE, LOCAL_GET, LOCAL_SET,
+  section, simd, uleb, V128, V128_LOAD, V128_STORE, vec, VOID, WASM_HEADER, wasmName, lazyInstance, vectorLoop,
 } from '../wasm.js';
 
 const F64 = 0x7c;
@@ -27,17 +26,16 @@ function scaleBody(): number[] {
   ];
   const code = [
     ...get(S), ...simd(F64X2_SPLAT), ...set(VS),
-    BLOCK, VOID, ...get(G), I32_EQZ, BR_IF, 0, LOOP, VOID,
-    ...get(P), ...simd(V128_LOAD), 0, 0, ...set(X),
-    ...get(X), ...simd(F64X2_PROMOTE_LOW_F32X4), ...get(VS), ...simd(F64X2_MUL), ...set(RL),
-    ...get(X), ...get(X), ...simd(I8X16_SHUFFLE), ...HIGH_TO_LOW, ...simd(F64X2_PROMOTE_LOW_F32X4), ...get(VS), ...simd(F64X2_MUL), ...set(RH),
-    ...track(RL), ...track(RH),
-    BLOCK, VOID, ...get(W), I32_EQZ, BR_IF, 0,
-    ...get(P), ...get(RL), ...simd(F32X4_DEMOTE_F64X2_ZERO), ...get(RH), ...simd(F32X4_DEMOTE_F64X2_ZERO),
-    ...simd(I8X16_SHUFFLE), ...JOIN_LOW_HALVES, ...simd(V128_STORE), 2, 0,
-    END,
-    ...get(P), I32_CONST, ...sleb(16), I32_ADD, ...set(P),
-    ...get(G), I32_CONST, 1, I32_SUB, LOCAL_TEE, G, BR_IF, 0, END, END,
+    ...vectorLoop(P, G, [
+      ...get(P), ...simd(V128_LOAD), 0, 0, ...set(X),
+      ...get(X), ...simd(F64X2_PROMOTE_LOW_F32X4), ...get(VS), ...simd(F64X2_MUL), ...set(RL),
+      ...get(X), ...get(X), ...simd(I8X16_SHUFFLE), ...HIGH_TO_LOW, ...simd(F64X2_PROMOTE_LOW_F32X4), ...get(VS), ...simd(F64X2_MUL), ...set(RH),
+      ...track(RL), ...track(RH),
+      BLOCK, VOID, ...get(W), I32_EQZ, BR_IF, 0,
+      ...get(P), ...get(RL), ...simd(F32X4_DEMOTE_F64X2_ZERO), ...get(RH), ...simd(F32X4_DEMOTE_F64X2_ZERO),
+      ...simd(I8X16_SHUFFLE), ...JOIN_LOW_HALVES, ...simd(V128_STORE), 2, 0,
+      END,
+    ]),
     ...get(OUT), ...get(MAX), ...simd(V128_STORE), 4, 0,
     ...get(OUT), ...get(NAN), ...simd(V128_STORE), 4, 16,
     END,
