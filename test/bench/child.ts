@@ -76,6 +76,17 @@ jobs['write-wide'] = async ([n, path]) => {
   writeModelFile(wideModel(Number(n)), path!);
   return {};
 };
+// The big benchmark models are generated in a child too: a parent that built 378 MB in memory hands its peak
+// RSS down to every process it starts afterwards (Linux keeps the larger of the two across fork and exec), and
+// the children's memory figures would be the generator's.
+jobs['write-big'] = async ([path]) => {
+  (await import('./gen-big.js')).writeBigModel(path!);
+  return {};
+};
+jobs['write-chain'] = async ([path]) => {
+  (await import('./gen-chain.js')).writeChainModel(path!);
+  return {};
+};
 jobs['audit-file'] = async ([path]) => {
   const { auditFile } = await import('../../src/jobs/audit.js');
   return { runSeconds: await bestOf3(() => { auditFile(path!); }) };

@@ -7,12 +7,15 @@ import { performance } from 'node:perf_hooks';
 import { tmpdir } from 'node:os';
 import { dirname, join } from 'node:path';
 import { fileURLToPath } from 'node:url';
-import { writeBigModel } from './gen-big.js';
-import { writeChainModel } from './gen-chain.js';
 import { writeFoldScript } from './yardstick.js';
 
 const here = dirname(fileURLToPath(import.meta.url));
 const work = join(tmpdir(), 'pleat-bench');
+
+/** Make a benchmark model in a child process (see child.ts: the generator's memory must not reach the measured runs). */
+function generate(job: string, path: string): void {
+  execFileSync(process.execPath, [join(here, 'child.js'), job, path], { stdio: 'ignore' });
+}
 const repo = join(here, '..', '..', '..');
 
 interface Timed { seconds: number; maxRssBytes: number; exitCode: number; out: string }
@@ -46,7 +49,7 @@ export async function run(on: (k: string) => boolean, rows: string[][]): Promise
 
   // (1) the 378 MB model: default proven fold against the user's own script
   const big = join(work, 'big-40x512.onnx');
-  if (!existsSync(big)) { console.log('generating the 40-block benchmark model ...'); writeBigModel(big); }
+  if (!existsSync(big)) { console.log('generating the 40-block benchmark model ...'); generate('write-big', big); }
   const size = statSync(big).size;
   try {
     const out = join(work, 'proven.onnx');
@@ -92,7 +95,7 @@ export async function run(on: (k: string) => boolean, rows: string[][]): Promise
   // (3) many small folds: 33,334 blocks of 4-channel 1x1 Conv + BatchNormalization + Relu (100,002 nodes)
   try {
     const chain = join(work, 'chain-100k.onnx');
-    if (!existsSync(chain)) writeChainModel(chain);
+    if (!existsSync(chain)) generate('write-chain', chain);
     const out = join(work, 'chain-folded.onnx');
     const p = pleat('fold', chain, '-o', out, '--quiet');
     const u = pleat('fold', chain, '-o', out, '--quiet', '--unproven');
