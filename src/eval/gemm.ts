@@ -320,6 +320,7 @@ function gemmSimd(simd: SimdKernels, M: number, N: number, K: number, A: Operand
   const block = Math.min(Math.ceil(M / 4) * 4, Math.floor(room / rowBytes / 4) * 4);
   const sameType = f64 ? C instanceof Float64Array : true;
   const threads = threadCount();
+  if (f64 && A.data instanceof Float32Array && gemmWidening(simd, M, N, K, A, B, C, cOff, ldc, accumulate, threads)) return true;
   for (let r0 = 0; r0 < M; r0 += block) {
     const rows = Math.min(block, M - r0), tiles = Math.ceil(rows / 4);
     const pb = tiles * 4 * K * es, pc = pb + pbBytes;
@@ -336,7 +337,7 @@ function gemmSimd(simd: SimdKernels, M: number, N: number, K: number, A: Operand
       const nc = Math.min(SNC, N - j0), nTiles = Math.ceil(nc / nr), ldcE = nTiles * nr;
       packBTiles(mem, pbE, B, j0, nc, nr, K);
       const span = (t0: number, t1: number): TileSpan =>
-        ({ f64, pa: 0, pb, pc, nTiles, K, ldcBytes: ldcE * es, ldbBytes: K * 32, t0, t1, chunk: SMC / 4 });
+        ({ f64, pa: 0, pb, pc, nTiles, K, ldcBytes: ldcE * es, ldbBytes: K * 32, t0, t1, chunk: SMC / 4, a32: -1, roomStep: 0 });
       if (threads > 1 && rows >= 8 && rows * nc * K >= PARALLEL_MIN_WORK) inBands({ ...span(0, tiles), chunk: SHARED_CHUNK }, threads, (sp, counter) => runChunks(simd, sp, counter));
       else runTiles(simd, span(0, tiles));
       for (let r = 0; r < rows; r++) {
@@ -345,6 +346,46 @@ function gemmSimd(simd: SimdKernels, M: number, N: number, K: number, A: Operand
         else if (sameType) C.set(mem.subarray(src, src + nc), dst);
         else for (let c = 0; c < nc; c++) C[dst + c] = mem[src + c]!;
       }
+    }
+  }
+  return true;
+}
+
+/**
+ * gemmSimd in float64 for a float32 A (a weight as stored), all of A at once: A's rows are copied in as they are
+ * (float32, no conversion), and each kernel call widens its own tiles' rows to float64 first, on whichever thread
+ * runs it, into that thread's room (src/eval/wasm-gemm.ts runTiles). The kernel sees the same float64 values as
+ * when A is widened up front (float32 to float64 is exact), so the sums and C are the same bit for bit; the
+ * widening is shared among the threads instead of done on this one before they start. False when it does not fit.
+ */
+function gemmWidening(simd: SimdKernels, M: number, N: number, K: number, A: Operand, B: Operand, C: NumArray, cOff: number, ldc: number, accumulate: boolean, threads: number): boolean {
+  const nr = 4, tiles = Math.ceil(M / 4);
+  const ldcMax = Math.ceil(Math.min(N, SNC) / nr) * nr;
+  const roomTiles = Math.min(tiles, Math.max(SMC / 4, SHARED_CHUNK));
+  const aBytes = tiles * 4 * K * 4, roomBytes = roomTiles * 4 * K * 8;
+  const rooms = aBytes, pb = rooms + threads * roomBytes, pc = pb + K * ldcMax * 8;
+  const need = pc + tiles * 4 * ldcMax * 8;
+  if (need > SIMD_MAX_BYTES) return false;
+  const { f32, f64: mem } = viewsOf(simd, need);
+  // the whole of a constant A copied in by the last product is still there
+  const key = isConstant(A.data) ? `${A.off},${A.rs},${A.cs},${M},${K},widen` : undefined;
+  if (key === undefined || packedNow?.key !== key || packedNow.data !== A.data) {
+    copyARows(f32, A, 0, M, K);
+    packedNow = key === undefined ? undefined : { data: A.data, key };
+  }
+  const sameType = C instanceof Float64Array;
+  const pbE = pb / 8, pcE = pc / 8;
+  for (let j0 = 0; j0 < N; j0 += SNC) {
+    const nc = Math.min(SNC, N - j0), nTiles = Math.ceil(nc / nr), ldcE = nTiles * nr;
+    packBTiles(mem, pbE, B, j0, nc, nr, K);
+    const span: TileSpan = { f64: true, pa: rooms, pb, pc, nTiles, K, ldcBytes: ldcE * 8, ldbBytes: K * 32, t0: 0, t1: tiles, chunk: SMC / 4, a32: 0, roomStep: roomBytes };
+    if (threads > 1 && M >= 8 && M * nc * K >= PARALLEL_MIN_WORK) inBands({ ...span, chunk: SHARED_CHUNK }, threads, (sp, counter) => runChunks(simd, sp, counter));
+    else runTiles(simd, span);
+    for (let r = 0; r < M; r++) {
+      const dst = cOff + r * ldc + j0, src = pcE + r * ldcE;
+      if (accumulate) for (let c = 0; c < nc; c++) C[dst + c] += mem[src + c]!;
+      else if (sameType) C.set(mem.subarray(src, src + nc), dst);
+      else for (let c = 0; c < nc; c++) C[dst + c] = mem[src + c]!;
     }
   }
   return true;

@@ -41,6 +41,31 @@ describe('threaded matrix products', () => {
     expect(bandsPosted()).toBeGreaterThan(posted);
   });
 
+  it('float32 weights in float64 products (widened tile by tile on each thread): the bits of the weights widened up front, any thread count', () => {
+    const r = rng(13);
+    const posted = bandsPosted();
+    for (let trial = 0; trial < 8; trial++) {
+      // rows past a multiple of 4 and of the 32-row chunks, long sums, panels past 512 columns now and then
+      const M = (trial < 4 ? 9 : 250) + Math.floor(r() * 260), N = (trial < 4 ? 1 : 60) + Math.floor(r() * (trial === 3 ? 700 : 120)), K = 100 + Math.floor(r() * 2000);
+      const transA = trial % 3 === 2, acc = trial % 4 === 1;
+      const A32 = Float32Array.from(randn(r, M * K, 1)), A64 = Float64Array.from(A32);
+      const B = Float64Array.from(randn(r, K * N, 1)), start = Float64Array.from(randn(r, M * N, 1));
+      const run = (A: Float32Array | Float64Array) => {
+        const C = Float64Array.from(start);
+        gemm(M, N, K, rowMajor(A, 0, transA ? M : K, transA), rowMajor(B, 0, N), C, 0, N, acc);
+        return bits(C);
+      };
+      setThreads(1);
+      const want = run(A64);
+      for (const t of [1, 2, 3]) {
+        setThreads(t);
+        expect(run(A32), `trial ${trial} threads ${t} M=${M} N=${N} K=${K}`).toBe(want);
+        expect(run(A32), `trial ${trial} threads ${t}, again`).toBe(want); // (the weight already in the kernel memory)
+      }
+    }
+    expect(bandsPosted()).toBeGreaterThan(posted);
+  });
+
   it('a conv stack and a dense head: identical outputs for 1, 2 and 3 threads, in float32 and float64', () => {
     const r = rng(12);
     const g = new GraphBuilder();
