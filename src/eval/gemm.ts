@@ -18,6 +18,12 @@ export interface Operand {
   rs: number;
   /** Element stride between columns. */
   cs: number;
+  /**
+   * An operand made on demand (Conv's column matrix): `fill` writes `data` before a path that reads it, and
+   * `tiles` lays out columns [j0, j0 + nc) straight in the SIMD kernel's tiles instead (packBTiles' layout).
+   */
+  fill?: () => void;
+  tiles?: (mem: Float32Array | Float64Array, at: number, j0: number, nc: number, nr: number) => void;
 }
 
 const MR = 4, NR = 4;
@@ -81,13 +87,14 @@ export function gemm(M: number, N: number, K: number, A: Operand, B: Operand, C:
     if (!accumulate) for (let i = 0; i < M; i++) C.fill(0, cOff + i * ldc, cOff + i * ldc + N);
     return;
   }
-  if (M * N * K < SMALL_WORK) { gemmSmall(M, N, K, A, B, C, cOff, ldc, accumulate); return; }
+  if (M * N * K < SMALL_WORK) { B.fill?.(); gemmSmall(M, N, K, A, B, C, cOff, ldc, accumulate); return; }
   const simd = useSimd ? simdKernels() : undefined;
   if (simd) {
-    if (M === 1 && !(C instanceof Float32Array)) { gemv(N, K, A, B, C, cOff, accumulate); return; }
+    if (M === 1 && !(C instanceof Float32Array)) { B.fill?.(); gemv(N, K, A, B, C, cOff, accumulate); return; }
     // very large operands (past the kernel memory's room even in row blocks) stay on the scalar path
     if (gemmSimd(simd, M, N, K, A, B, C, cOff, ldc, accumulate)) return;
   }
+  B.fill?.();
   gemmScalar(M, N, K, A, B, C, cOff, ldc, accumulate);
 }
 
@@ -335,7 +342,7 @@ function gemmSimd(simd: SimdKernels, M: number, N: number, K: number, A: Operand
     }
     for (let j0 = 0; j0 < N; j0 += SNC) {
       const nc = Math.min(SNC, N - j0), nTiles = Math.ceil(nc / nr), ldcE = nTiles * nr;
-      packBTiles(mem, pbE, B, j0, nc, nr, K);
+      if (B.tiles) B.tiles(mem, pbE, j0, nc, nr); else packBTiles(mem, pbE, B, j0, nc, nr, K);
       const span = (t0: number, t1: number): TileSpan =>
         ({ f64, pa: 0, pb, pc, nTiles, K, ldcBytes: ldcE * es, ldbBytes: K * 32, t0, t1, chunk: SMC / 4, a32: -1, roomStep: 0 });
       if (threads > 1 && rows >= 8 && rows * nc * K >= PARALLEL_MIN_WORK) inBands({ ...span(0, tiles), chunk: SHARED_CHUNK }, threads, (sp, counter) => runChunks(simd, sp, counter));
@@ -377,7 +384,7 @@ function gemmWidening(simd: SimdKernels, M: number, N: number, K: number, A: Ope
   const pbE = pb / 8, pcE = pc / 8;
   for (let j0 = 0; j0 < N; j0 += SNC) {
     const nc = Math.min(SNC, N - j0), nTiles = Math.ceil(nc / nr), ldcE = nTiles * nr;
-    packBTiles(mem, pbE, B, j0, nc, nr, K);
+    if (B.tiles) B.tiles(mem, pbE, j0, nc, nr); else packBTiles(mem, pbE, B, j0, nc, nr, K);
     const span: TileSpan = { f64: true, pa: rooms, pb, pc, nTiles, K, ldcBytes: ldcE * 8, ldbBytes: K * 32, t0: 0, t1: tiles, chunk: SMC / 4, a32: 0, roomStep: roomBytes };
     if (threads > 1 && M >= 8 && M * nc * K >= PARALLEL_MIN_WORK) inBands({ ...span, chunk: SHARED_CHUNK }, threads, (sp, counter) => runChunks(simd, sp, counter));
     else runTiles(simd, span);
