@@ -344,7 +344,7 @@ function gemmSimd(simd: SimdKernels, M: number, N: number, K: number, A: Operand
       const nc = Math.min(SNC, N - j0), nTiles = Math.ceil(nc / nr), ldcE = nTiles * nr;
       if (B.tiles) B.tiles(mem, pbE, j0, nc, nr); else packBTiles(mem, pbE, B, j0, nc, nr, K);
       const span = (t0: number, t1: number): TileSpan =>
-        ({ f64, pa: 0, pb, pc, nTiles, K, ldcBytes: ldcE * es, ldbBytes: K * 32, t0, t1, chunk: SMC / 4, a32: -1, roomStep: 0 });
+        ({ f64, pa: 0, pb, pc, nTiles, K, ldcBytes: ldcE * es, ldbBytes: K * 32, t0, t1, chunk: SMC / 4, a32: -1 });
       if (threads > 1 && rows >= 8 && rows * nc * K >= PARALLEL_MIN_WORK) inBands({ ...span(0, tiles), chunk: SHARED_CHUNK }, threads, (sp, counter) => runChunks(simd, sp, counter));
       else runTiles(simd, span(0, tiles));
       for (let r = 0; r < rows; r++) {
@@ -360,34 +360,36 @@ function gemmSimd(simd: SimdKernels, M: number, N: number, K: number, A: Operand
 
 /**
  * gemmSimd in float64 for a float32 A (a weight as stored), all of A at once: A's rows are copied in as they are
- * (float32, no conversion), and each kernel call widens its own tiles' rows to float64 first, on whichever thread
- * runs it, into that thread's room (src/eval/wasm-gemm.ts runTiles). The kernel sees the same float64 values as
- * when A is widened up front (float32 to float64 is exact), so the sums and C are the same bit for bit; the
- * widening is shared among the threads instead of done on this one before they start. False when it does not fit.
+ * (float32, no conversion), and the first product widens them to float64 tile by tile, each on the thread that
+ * computes that tile, into the float64 A the kernel reads (kept for the next product with this A). The kernel sees
+ * the values widening up front gives (float32 to float64 is exact), so C is the same bit for bit; the widening is
+ * shared among the threads instead of done on this one before they start. False when it does not fit.
  */
 function gemmWidening(simd: SimdKernels, M: number, N: number, K: number, A: Operand, B: Operand, C: NumArray, cOff: number, ldc: number, accumulate: boolean, threads: number): boolean {
   const nr = 4, tiles = Math.ceil(M / 4);
   const ldcMax = Math.ceil(Math.min(N, SNC) / nr) * nr;
-  const roomTiles = Math.min(tiles, Math.max(SMC / 4, SHARED_CHUNK));
-  const aBytes = tiles * 4 * K * 4, roomBytes = roomTiles * 4 * K * 8;
-  const rooms = aBytes, pb = rooms + threads * roomBytes, pc = pb + K * ldcMax * 8;
+  const pa = tiles * 4 * K * 4, pb = pa + tiles * 4 * K * 8, pc = pb + K * ldcMax * 8;
   const need = pc + tiles * 4 * ldcMax * 8;
   if (need > SIMD_MAX_BYTES) return false;
   const { f32, f64: mem } = viewsOf(simd, need);
-  // the whole of a constant A copied in by the last product is still there
+  // a constant A copied in, and widened, by the last product is still there
   const key = isConstant(A.data) ? `${A.off},${A.rs},${A.cs},${M},${K},widen` : undefined;
+  let a32 = -1;
   if (key === undefined || packedNow?.key !== key || packedNow.data !== A.data) {
+    packedNow = undefined;
     copyARows(f32, A, 0, M, K);
-    packedNow = key === undefined ? undefined : { data: A.data, key };
+    a32 = 0;
   }
   const sameType = C instanceof Float64Array;
   const pbE = pb / 8, pcE = pc / 8;
   for (let j0 = 0; j0 < N; j0 += SNC) {
     const nc = Math.min(SNC, N - j0), nTiles = Math.ceil(nc / nr), ldcE = nTiles * nr;
     if (B.tiles) B.tiles(mem, pbE, j0, nc, nr); else packBTiles(mem, pbE, B, j0, nc, nr, K);
-    const span: TileSpan = { f64: true, pa: rooms, pb, pc, nTiles, K, ldcBytes: ldcE * 8, ldbBytes: K * 32, t0: 0, t1: tiles, chunk: SMC / 4, a32: 0, roomStep: roomBytes };
+    const span: TileSpan = { f64: true, pa, pb, pc, nTiles, K, ldcBytes: ldcE * 8, ldbBytes: K * 32, t0: 0, t1: tiles, chunk: SMC / 4, a32 };
     if (threads > 1 && M >= 8 && M * nc * K >= PARALLEL_MIN_WORK) inBands({ ...span, chunk: SHARED_CHUNK }, threads, (sp, counter) => runChunks(simd, sp, counter));
     else runTiles(simd, span);
+    a32 = -1; // every tile is widened now (the next panel, and the next product with this A, find it done)
+    if (key !== undefined) packedNow = { data: A.data, key };
     for (let r = 0; r < M; r++) {
       const dst = cOff + r * ldc + j0, src = pcE + r * ldcE;
       if (accumulate) for (let c = 0; c < nc; c++) C[dst + c] += mem[src + c]!;

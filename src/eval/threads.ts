@@ -30,7 +30,7 @@ export const PARALLEL_MIN_WORK = 1 << 22;
 // it, then the span's fields) and waits on it with Atomics.wait; all take chunks from one shared counter and count
 // themselves done in one shared block ([0] finished, [1] failed, [2] the next chunk). A message per product (a
 // structured clone, a fresh shared buffer) cost more than a small product's share of work.
-export const SPAN_FIELDS = ['f64', 'pa', 'pb', 'pc', 'nTiles', 'K', 'ldcBytes', 'ldbBytes', 't0', 't1', 'chunk', 'a32', 'roomStep'] as const;
+export const SPAN_FIELDS = ['f64', 'pa', 'pb', 'pc', 'nTiles', 'K', 'ldcBytes', 'ldbBytes', 't0', 't1', 'chunk', 'a32'] as const;
 export const CONTROL_INTS = 1 + SPAN_FIELDS.length;
 
 /** What a worker is started with. */
@@ -82,14 +82,12 @@ export function inBands(span: TileSpan, threads: number, own: (s: TileSpan, coun
   Atomics.store(done, 0, 0);
   Atomics.store(done, 1, 0);
   Atomics.store(done, 2, 0);
-  ws.forEach((w, k) => {
+  for (const w of ws) {
     const c = w.control;
-    // a span whose A is widened as it goes gives each thread its own room for it (this thread's is room 0)
-    const own = { ...span, pa: span.a32 >= 0 ? span.pa + (k + 1) * span.roomStep : span.pa };
-    SPAN_FIELDS.forEach((f, i) => { c[1 + i] = f === 'f64' ? (own.f64 ? 1 : 0) : own[f]; });
+    SPAN_FIELDS.forEach((f, i) => { c[1 + i] = f === 'f64' ? (span.f64 ? 1 : 0) : span[f]; });
     Atomics.add(c, 0, 1); // the fields above are published by this atomic write
     Atomics.notify(c, 0);
-  });
+  }
   posted += helpers;
   own(span, done.subarray(2, 3));
   const others = ws;

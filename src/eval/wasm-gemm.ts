@@ -197,12 +197,10 @@ export interface TileSpan {
   chunk: number;
   /**
    * -1: A is laid out at pa in the kernel's element type. Else (float64 kernel only) the byte offset of A's rows
-   * in float32: each kernel call first widens its tiles' rows into the running thread's own room at pa (room for
-   * `chunk` tiles), so the widening is shared among the threads and each block of A is widened in cache.
+   * in float32, not yet widened: each kernel call first widens its own tiles' rows into their place at pa, so the
+   * widening is shared among the threads (and the next product with this A finds it done).
    */
   a32: number;
-  /** Bytes from one thread's room for widened rows to the next (thread i's room is at pa + i * roomStep). */
-  roomStep: number;
 }
 
 /** Compute C's rows for tiles [t0, t1) of a span (the calling thread's band, or a worker's). */
@@ -211,11 +209,8 @@ export function runTiles(k: SimdKernels, s: TileSpan): void {
   const es = s.f64 ? 8 : 4;
   for (let t = s.t0; t < s.t1; t += s.chunk) {
     const n = Math.min(s.chunk, s.t1 - t);
-    let pa = s.pa + t * 4 * s.K * es;
-    if (s.a32 >= 0) {
-      k.p64(s.a32 + t * 4 * s.K * 4, s.pa, n * s.K); // n tiles of 4 rows of K float32: n * K groups of 4
-      pa = s.pa;
-    }
+    const pa = s.pa + t * 4 * s.K * es;
+    if (s.a32 >= 0) k.p64(s.a32 + t * 4 * s.K * 4, pa, n * s.K); // n tiles of 4 rows of K float32: n * K groups of 4
     kern(pa, s.pb, s.pc + t * 4 * s.ldcBytes, n, s.nTiles, s.K, s.ldcBytes, s.ldbBytes, s.K * es);
   }
 }
