@@ -215,11 +215,22 @@ export function runTiles(k: SimdKernels, s: TileSpan): void {
   }
 }
 
+/**
+ * Tiles [from, to) of chunk i of a span: chunks of s.chunk tiles over the first three quarters, then chunks a
+ * quarter that size, so the thread that finishes first waits at most a small chunk for the others. Every thread
+ * maps an index to the same tiles; to <= from once the span is used up.
+ */
+export function chunkTiles(s: TileSpan, i: number): [number, number] {
+  const big = Math.floor((s.t1 - s.t0) * 0.75 / s.chunk), small = Math.max(1, s.chunk >> 2);
+  const from = i < big ? s.t0 + i * s.chunk : s.t0 + big * s.chunk + (i - big) * small;
+  return [from, Math.min(s.t1, from + (i < big ? s.chunk : small))];
+}
+
 /** Take chunks of a span's tiles from a shared counter until none is left, running each (see threads.ts). */
 export function runChunks(k: SimdKernels, s: TileSpan, counter: Int32Array): void {
   for (;;) {
-    const t = s.t0 + Atomics.add(counter, 0, 1) * s.chunk;
-    if (t >= s.t1) return;
-    runTiles(k, { ...s, t0: t, t1: Math.min(s.t1, t + s.chunk) });
+    const [t0, t1] = chunkTiles(s, Atomics.add(counter, 0, 1));
+    if (t0 >= t1) return;
+    runTiles(k, { ...s, t0, t1 });
   }
 }

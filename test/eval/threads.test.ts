@@ -5,6 +5,7 @@ import { afterAll, describe, expect, it } from 'vitest';
 import { gemm, rowMajor, simdOn } from '../../src/eval/gemm.js';
 import { bandsPosted, setThreads, stopThreads, PARALLEL_MIN_WORK } from '../../src/eval/threads.js';
 import { runModel } from '../../src/eval/run.js';
+import { chunkTiles, type TileSpan } from '../../src/eval/wasm-gemm.js';
 import { parseModel } from '../../src/onnx/read.js';
 import { GraphBuilder, modelBytes, randn, rng } from '../helpers/build.js';
 import { availableParallelism } from 'node:os';
@@ -39,6 +40,21 @@ describe('threaded matrix products', () => {
     // the bands really went to workers on some of the shapes
     expect(big).toBeGreaterThan(0);
     expect(bandsPosted()).toBeGreaterThan(posted);
+  });
+
+  it('the chunks threads take cover every tile once, smaller towards the end', () => {
+    for (const [t0, t1, chunk] of [[0, 128, 8], [3, 4, 8], [0, 37, 8], [5, 300, 32], [0, 9, 1], [0, 1000, 3]] as const) {
+      const span = { t0, t1, chunk } as TileSpan;
+      const seen: number[] = [];
+      let i = 0, last = Infinity;
+      for (let [a, b] = chunkTiles(span, i); a < b; [a, b] = chunkTiles(span, ++i)) {
+        expect(b - a).toBeLessThanOrEqual(Math.min(chunk, last)); // never larger than the chunk before
+        last = b - a;
+        for (let t = a; t < b; t++) seen.push(t);
+      }
+      expect(seen, `${t0}..${t1} by ${chunk}`).toEqual(Array.from({ length: t1 - t0 }, (_, k) => t0 + k));
+      expect(chunkTiles(span, i + 5)[0]).toBeGreaterThanOrEqual(chunkTiles(span, i + 5)[1]); // and then nothing
+    }
   });
 
   it('float32 weights in float64 products (widened tile by tile on each thread): the bits of the weights widened up front, any thread count', () => {
