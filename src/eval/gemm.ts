@@ -18,6 +18,12 @@ export interface Operand {
   rs: number;
   /** Element stride between columns. */
   cs: number;
+  /**
+   * An operand made on demand (Conv's column matrix): `fill` writes `data` before a path that reads it, and
+   * `tiles` lays out columns [j0, j0 + nc) straight in the SIMD kernel's tiles instead (packBTiles' layout).
+   */
+  fill?: () => void;
+  tiles?: (mem: Float32Array | Float64Array, at: number, j0: number, nc: number, nr: number) => void;
 }
 
 const MR = 4, NR = 4;
@@ -81,13 +87,14 @@ export function gemm(M: number, N: number, K: number, A: Operand, B: Operand, C:
     if (!accumulate) for (let i = 0; i < M; i++) C.fill(0, cOff + i * ldc, cOff + i * ldc + N);
     return;
   }
-  if (M * N * K < SMALL_WORK) { gemmSmall(M, N, K, A, B, C, cOff, ldc, accumulate); return; }
+  if (M * N * K < SMALL_WORK) { B.fill?.(); gemmSmall(M, N, K, A, B, C, cOff, ldc, accumulate); return; }
   const simd = useSimd ? simdKernels() : undefined;
   if (simd) {
-    if (M === 1 && !(C instanceof Float32Array)) { gemv(N, K, A, B, C, cOff, accumulate); return; }
+    if (M === 1 && !(C instanceof Float32Array)) { B.fill?.(); gemv(N, K, A, B, C, cOff, accumulate); return; }
     // very large operands (past the kernel memory's room even in row blocks) stay on the scalar path
     if (gemmSimd(simd, M, N, K, A, B, C, cOff, ldc, accumulate)) return;
   }
+  B.fill?.();
   gemmScalar(M, N, K, A, B, C, cOff, ldc, accumulate);
 }
 
@@ -320,6 +327,7 @@ function gemmSimd(simd: SimdKernels, M: number, N: number, K: number, A: Operand
   const block = Math.min(Math.ceil(M / 4) * 4, Math.floor(room / rowBytes / 4) * 4);
   const sameType = f64 ? C instanceof Float64Array : true;
   const threads = threadCount();
+  if (f64 && A.data instanceof Float32Array && gemmWidening(simd, M, N, K, A, B, C, cOff, ldc, accumulate, threads)) return true;
   for (let r0 = 0; r0 < M; r0 += block) {
     const rows = Math.min(block, M - r0), tiles = Math.ceil(rows / 4);
     const pb = tiles * 4 * K * es, pc = pb + pbBytes;
@@ -334,9 +342,9 @@ function gemmSimd(simd: SimdKernels, M: number, N: number, K: number, A: Operand
     }
     for (let j0 = 0; j0 < N; j0 += SNC) {
       const nc = Math.min(SNC, N - j0), nTiles = Math.ceil(nc / nr), ldcE = nTiles * nr;
-      packBTiles(mem, pbE, B, j0, nc, nr, K);
+      if (B.tiles) B.tiles(mem, pbE, j0, nc, nr); else packBTiles(mem, pbE, B, j0, nc, nr, K);
       const span = (t0: number, t1: number): TileSpan =>
-        ({ f64, pa: 0, pb, pc, nTiles, K, ldcBytes: ldcE * es, ldbBytes: K * 32, t0, t1, chunk: SMC / 4 });
+        ({ f64, pa: 0, pb, pc, nTiles, K, ldcBytes: ldcE * es, ldbBytes: K * 32, t0, t1, chunk: SMC / 4, a32: -1 });
       if (threads > 1 && rows >= 8 && rows * nc * K >= PARALLEL_MIN_WORK) inBands({ ...span(0, tiles), chunk: SHARED_CHUNK }, threads, (sp, counter) => runChunks(simd, sp, counter));
       else runTiles(simd, span(0, tiles));
       for (let r = 0; r < rows; r++) {
@@ -345,6 +353,48 @@ function gemmSimd(simd: SimdKernels, M: number, N: number, K: number, A: Operand
         else if (sameType) C.set(mem.subarray(src, src + nc), dst);
         else for (let c = 0; c < nc; c++) C[dst + c] = mem[src + c]!;
       }
+    }
+  }
+  return true;
+}
+
+/**
+ * gemmSimd in float64 for a float32 A (a weight as stored), all of A at once: A's rows are copied in as they are
+ * (float32, no conversion), and the first product widens them to float64 tile by tile, each on the thread that
+ * computes that tile, into the float64 A the kernel reads (kept for the next product with this A). The kernel sees
+ * the values widening up front gives (float32 to float64 is exact), so C is the same bit for bit; the widening is
+ * shared among the threads instead of done on this one before they start. False when it does not fit.
+ */
+function gemmWidening(simd: SimdKernels, M: number, N: number, K: number, A: Operand, B: Operand, C: NumArray, cOff: number, ldc: number, accumulate: boolean, threads: number): boolean {
+  const nr = 4, tiles = Math.ceil(M / 4);
+  const ldcMax = Math.ceil(Math.min(N, SNC) / nr) * nr;
+  const pa = tiles * 4 * K * 4, pb = pa + tiles * 4 * K * 8, pc = pb + K * ldcMax * 8;
+  const need = pc + tiles * 4 * ldcMax * 8;
+  if (need > SIMD_MAX_BYTES) return false;
+  const { f32, f64: mem } = viewsOf(simd, need);
+  // a constant A copied in, and widened, by the last product is still there
+  const key = isConstant(A.data) ? `${A.off},${A.rs},${A.cs},${M},${K},widen` : undefined;
+  let a32 = -1;
+  if (key === undefined || packedNow?.key !== key || packedNow.data !== A.data) {
+    packedNow = undefined;
+    copyARows(f32, A, 0, M, K);
+    a32 = 0;
+  }
+  const sameType = C instanceof Float64Array;
+  const pbE = pb / 8, pcE = pc / 8;
+  for (let j0 = 0; j0 < N; j0 += SNC) {
+    const nc = Math.min(SNC, N - j0), nTiles = Math.ceil(nc / nr), ldcE = nTiles * nr;
+    if (B.tiles) B.tiles(mem, pbE, j0, nc, nr); else packBTiles(mem, pbE, B, j0, nc, nr, K);
+    const span: TileSpan = { f64: true, pa, pb, pc, nTiles, K, ldcBytes: ldcE * 8, ldbBytes: K * 32, t0: 0, t1: tiles, chunk: SMC / 4, a32 };
+    if (threads > 1 && M >= 8 && M * nc * K >= PARALLEL_MIN_WORK) inBands({ ...span, chunk: SHARED_CHUNK }, threads, (sp, counter) => runChunks(simd, sp, counter));
+    else runTiles(simd, span);
+    a32 = -1; // every tile is widened now (the next panel, and the next product with this A, find it done)
+    if (key !== undefined) packedNow = { data: A.data, key };
+    for (let r = 0; r < M; r++) {
+      const dst = cOff + r * ldc + j0, src = pcE + r * ldcE;
+      if (accumulate) for (let c = 0; c < nc; c++) C[dst + c] += mem[src + c]!;
+      else if (sameType) C.set(mem.subarray(src, src + nc), dst);
+      else for (let c = 0; c < nc; c++) C[dst + c] = mem[src + c]!;
     }
   }
   return true;

@@ -66,6 +66,45 @@ export function im2col(x: NumArray, xOff: number, C: number, g: Geometry3, col: 
   }
 }
 
+/**
+ * im2col laid out straight in a matrix kernel's tiles (see packBTiles in src/eval/gemm.ts): columns [j0, j0 + nc)
+ * of the column matrix in tiles of nr columns, each tile k-major, so element (k, j) goes to
+ * mem[at + t*K*nr + k*nr + l] with t = floor((j - j0) / nr), l = (j - j0) % nr; lanes past nc are 0. The values
+ * im2col and then packing would give, without the column matrix in between.
+ */
+export function im2colTiles(x: NumArray, xOff: number, C: number, g: Geometry3, mem: Float32Array | Float64Array, at: number, j0: number, nc: number, nr: number): void {
+  const { inD, inH, inW, outH, outW, kD, kH, kW, sD, sH, sW, dD, dH, dW, pD, pH, pW } = g;
+  const outPlane = outH * outW, inPlane = inH * inW, inVol = inD * inPlane, kVol = kD * kH * kW;
+  // Tile by tile, each written front to back: for the tile's columns, where each kernel offset reads within an
+  // input channel (or -1 for padding and lanes past nc), then channel by channel through that table.
+  const offs = new Int32Array(kVol * nr);
+  let d = at;
+  for (let t0 = 0; t0 < nc; t0 += nr) {
+    for (let l = 0; l < nr; l++) {
+      const j = j0 + t0 + l;
+      const od = Math.floor(j / outPlane), oh = Math.floor((j % outPlane) / outW), ow = j % outW;
+      let kk = 0;
+      for (let kd = 0; kd < kD; kd++) {
+        const id = od * sD - pD + kd * dD;
+        for (let kh = 0; kh < kH; kh++) {
+          const ih = oh * sH - pH + kh * dH;
+          for (let kw = 0; kw < kW; kw++, kk++) {
+            const iw = ow * sW - pW + kw * dW;
+            const inside = t0 + l < nc && id >= 0 && id < inD && ih >= 0 && ih < inH && iw >= 0 && iw < inW;
+            offs[kk * nr + l] = inside ? id * inPlane + ih * inW + iw : -1;
+          }
+        }
+      }
+    }
+    for (let c = 0, xc = xOff; c < C; c++, xc += inVol) {
+      for (let i = 0; i < offs.length; i++, d++) {
+        const o = offs[i]!;
+        mem[d] = o >= 0 ? x[xc + o]! : 0;
+      }
+    }
+  }
+}
+
 /** Adjoint of im2col: add col (rows C*k, cols outD*outH*outW) into image y (C x inD x inH x inW at yOff). */
 export function col2im(col: NumArray, C: number, g: Geometry3, y: NumArray, yOff: number): void {
   const { inD, inH, inW, outD, outH, outW, kD, kH, kW, sD, sH, sW, dD, dH, dW, pD, pH, pW } = g;

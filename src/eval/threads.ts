@@ -30,7 +30,7 @@ export const PARALLEL_MIN_WORK = 1 << 22;
 // it, then the span's fields) and waits on it with Atomics.wait; all take chunks from one shared counter and count
 // themselves done in one shared block ([0] finished, [1] failed, [2] the next chunk). A message per product (a
 // structured clone, a fresh shared buffer) cost more than a small product's share of work.
-export const SPAN_FIELDS = ['f64', 'pa', 'pb', 'pc', 'nTiles', 'K', 'ldcBytes', 'ldbBytes', 't0', 't1', 'chunk'] as const;
+export const SPAN_FIELDS = ['f64', 'pa', 'pb', 'pc', 'nTiles', 'K', 'ldcBytes', 'ldbBytes', 't0', 't1', 'chunk', 'a32'] as const;
 export const CONTROL_INTS = 1 + SPAN_FIELDS.length;
 
 /** What a worker is started with. */

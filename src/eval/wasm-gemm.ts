@@ -8,9 +8,9 @@
 // Returns undefined when the runtime has no WebAssembly SIMD; gemm.ts then uses its scalar path.
 
 import {
-  BR_IF, END, F32X4_ADD, F32X4_MUL, F64X2_ADD, F64X2_MUL, I32_ADD, I32_CONST, I32_LOAD, I32_LT_U, I32_MUL, I32_SUB,
-  LOAD32_SPLAT, LOAD64_SPLAT, LOCAL_GET, LOCAL_SET, LOOP, section, simd, sleb, uleb, V128_CONST, V128_LOAD, V128_STORE, vec, VOID,
-  WASM_HEADER, wasmName,
+  BR_IF, END, F32X4_ADD, F32X4_MUL, F64X2_ADD, F64X2_MUL, F64X2_PROMOTE_LOW_F32X4, I8X16_SHUFFLE, I32_ADD, I32_CONST, I32_LOAD,
+  I32_LT_U, I32_MUL, I32_SUB, LOAD32_SPLAT, LOAD64_SPLAT, LOCAL_GET, LOCAL_SET, LOOP, section, simd, sleb, uleb, V128_CONST, V128_LOAD,
+  V128_STORE, vec, vectorLoop, VOID, WASM_HEADER, wasmName,
 } from '../wasm.js';
 
 export interface SimdKernels {
@@ -27,6 +27,8 @@ export interface SimdKernels {
   /** (pa, pb, pc, mTiles, nTiles, kc, ldcBytes, ldbBytes, ldaBytes): byte offsets into memory and row/tile strides. */
   k32: (pa: number, pb: number, pc: number, mTiles: number, nTiles: number, kc: number, ldcBytes: number, ldbBytes: number, ldaBytes: number) => void;
   k64: (pa: number, pb: number, pc: number, mTiles: number, nTiles: number, kc: number, ldcBytes: number, ldbBytes: number, ldaBytes: number) => void;
+  /** (src, dst, groups): widen groups of 4 float32 at byte src to float64 at byte dst (exact). */
+  p64: (src: number, dst: number, groups: number) => void;
 }
 
 // params: pa 0, pb 1, pc 2, mTiles 3, nTiles 4, kc 5, ldc 6, ldb 7, lda 8; locals: jt 9, it 10, k 11, ap 12,
@@ -115,6 +117,25 @@ function depthwiseBody(f64: boolean): number[] {
   return [...uleb(body.length), ...body];
 }
 
+// widen params: src 0, dst 1, groups 2; locals: x 3 (v128)
+function widenBody(): number[] {
+  const [SRC, DST, G, X] = [0, 1, 2, 3];
+  const get = (i: number) => [LOCAL_GET, i], set = (i: number) => [LOCAL_SET, i];
+  const HIGH_TO_LOW = [8, 9, 10, 11, 12, 13, 14, 15, 0, 1, 2, 3, 4, 5, 6, 7];
+  const code = [
+    ...vectorLoop(SRC, G, [
+      ...get(SRC), ...simd(V128_LOAD), 2, 0, ...set(X),
+      ...get(DST), ...get(X), ...simd(F64X2_PROMOTE_LOW_F32X4), ...simd(V128_STORE), 3, 0,
+      ...get(DST), ...get(X), ...get(X), ...simd(I8X16_SHUFFLE), ...HIGH_TO_LOW, ...simd(F64X2_PROMOTE_LOW_F32X4), ...simd(V128_STORE), 3, 16,
+      ...get(DST), I32_CONST, ...sleb(32), I32_ADD, ...set(DST),
+    ]),
+    END,
+  ];
+  const locals = vec([[...uleb(1), 0x7b]]);
+  const body = [...locals, ...code];
+  return [...uleb(body.length), ...body];
+}
+
 /** Pages (64 KiB) the kernels' memory may grow to: 1 GiB of address space, reserved, not committed. */
 export const MAX_PAGES = 16384;
 
@@ -123,16 +144,17 @@ export function moduleBytes(): Uint8Array<ArrayBuffer> {
   const types = section(1, vec([
     [0x60, ...vec(new Array(9).fill([i32])), ...vec([])],
     [0x60, ...vec(new Array(10).fill([i32])), ...vec([])],
+    [0x60, ...vec(new Array(3).fill([i32])), ...vec([])],
   ]));
   const name = wasmName;
   // the memory is imported, shared (limits flag 3: shared, with a maximum), so every worker thread's instance
   // runs its kernels on the operands the calling thread laid out, with no copy
   const imports = section(2, vec([[...name('e'), ...name('m'), 0x02, 0x03, ...uleb(1), ...uleb(MAX_PAGES)]]));
-  const funcs = section(3, vec([[0], [0], [1], [1]]));
+  const funcs = section(3, vec([[0], [0], [1], [1], [2]]));
   const exports = section(7, vec([
-    [...name('k32'), 0x00, 0], [...name('k64'), 0x00, 1], [...name('d32'), 0x00, 2], [...name('d64'), 0x00, 3],
+    [...name('k32'), 0x00, 0], [...name('k64'), 0x00, 1], [...name('d32'), 0x00, 2], [...name('d64'), 0x00, 3], [...name('p64'), 0x00, 4],
   ]));
-  const code = section(10, vec([kernelBody(false), kernelBody(true), depthwiseBody(false), depthwiseBody(true)]));
+  const code = section(10, vec([kernelBody(false), kernelBody(true), depthwiseBody(false), depthwiseBody(true), widenBody()]));
   return new Uint8Array([...WASM_HEADER, ...types, ...imports, ...funcs, ...exports, ...code]);
 }
 
@@ -145,7 +167,7 @@ export function simdKernelsOn(memory: WebAssembly.Memory): SimdKernels | undefin
     compiled ??= new WebAssembly.Module(moduleBytes());
     const inst = new WebAssembly.Instance(compiled, { e: { m: memory } });
     const e = inst.exports as unknown as SimdKernels;
-    return { memory, k32: e.k32, k64: e.k64, d32: e.d32, d64: e.d64 };
+    return { memory, k32: e.k32, k64: e.k64, d32: e.d32, d64: e.d64, p64: e.p64 };
   } catch {
     compiled = null;
     return undefined;
@@ -173,6 +195,12 @@ export interface TileSpan {
   t0: number; t1: number;
   /** Tiles per kernel call (a block of A that stays in cache while the panel's columns pass over it). */
   chunk: number;
+  /**
+   * -1: A is laid out at pa in the kernel's element type. Else (float64 kernel only) the byte offset of A's rows
+   * in float32, not yet widened: each kernel call first widens its own tiles' rows into their place at pa, so the
+   * widening is shared among the threads (and the next product with this A finds it done).
+   */
+  a32: number;
 }
 
 /** Compute C's rows for tiles [t0, t1) of a span (the calling thread's band, or a worker's). */
@@ -181,15 +209,28 @@ export function runTiles(k: SimdKernels, s: TileSpan): void {
   const es = s.f64 ? 8 : 4;
   for (let t = s.t0; t < s.t1; t += s.chunk) {
     const n = Math.min(s.chunk, s.t1 - t);
-    kern(s.pa + t * 4 * s.K * es, s.pb, s.pc + t * 4 * s.ldcBytes, n, s.nTiles, s.K, s.ldcBytes, s.ldbBytes, s.K * es);
+    const pa = s.pa + t * 4 * s.K * es;
+    if (s.a32 >= 0) k.p64(s.a32 + t * 4 * s.K * 4, pa, n * s.K); // n tiles of 4 rows of K float32: n * K groups of 4
+    kern(pa, s.pb, s.pc + t * 4 * s.ldcBytes, n, s.nTiles, s.K, s.ldcBytes, s.ldbBytes, s.K * es);
   }
+}
+
+/**
+ * Tiles [from, to) of chunk i of a span: chunks of s.chunk tiles over the first three quarters, then chunks a
+ * quarter that size, so the thread that finishes first waits at most a small chunk for the others. Every thread
+ * maps an index to the same tiles; to <= from once the span is used up.
+ */
+export function chunkTiles(s: TileSpan, i: number): [number, number] {
+  const big = Math.floor((s.t1 - s.t0) * 0.75 / s.chunk), small = Math.max(1, s.chunk >> 2);
+  const from = i < big ? s.t0 + i * s.chunk : s.t0 + big * s.chunk + (i - big) * small;
+  return [from, Math.min(s.t1, from + (i < big ? s.chunk : small))];
 }
 
 /** Take chunks of a span's tiles from a shared counter until none is left, running each (see threads.ts). */
 export function runChunks(k: SimdKernels, s: TileSpan, counter: Int32Array): void {
   for (;;) {
-    const t = s.t0 + Atomics.add(counter, 0, 1) * s.chunk;
-    if (t >= s.t1) return;
-    runTiles(k, { ...s, t0: t, t1: Math.min(s.t1, t + s.chunk) });
+    const [t0, t1] = chunkTiles(s, Atomics.add(counter, 0, 1));
+    if (t0 >= t1) return;
+    runTiles(k, { ...s, t0, t1 });
   }
 }

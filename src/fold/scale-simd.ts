@@ -59,36 +59,51 @@ const kernel = lazyInstance<Kernel>(moduleBytes);
 
 const OUT = 0, DATA = 64;
 
+/** Elements staged in the kernel's memory at a time: a window that stays in cache between copy-in, scaling and copy-out. */
+const WINDOW = 1 << 15;
+
 /**
  * Scale (or only measure) runs of a float32 block in SIMD: `runs` gives each run's first element and length
  * within the block and its factor. Returns the largest |product| (NaN when some product is NaN), or undefined when
- * SIMD is not available (the caller then takes its scalar loop).
+ * SIMD is not available (the caller then takes its scalar loop). The block goes through the kernel's memory a
+ * window at a time (each product stands alone, so where a run is cut does not change any result).
  */
 export function scaleRunsSimd(block: Float32Array, runs: (visit: (start: number, length: number, s: number) => void) => void, write: boolean): number | undefined {
   const k = kernel();
   if (!k) return undefined;
-  const need = DATA + block.byteLength;
+  const window = Math.min(WINDOW, block.length);
+  const need = DATA + window * 4;
   if (k.memory.buffer.byteLength < need) k.memory.grow(Math.ceil((need - k.memory.buffer.byteLength) / 65536));
-  const mem = new Float32Array(k.memory.buffer, DATA, block.length);
-  mem.set(block);
+  const mem = new Float32Array(k.memory.buffer, DATA, window);
   let max = 0, nan = false;
   const res = new Float64Array(k.memory.buffer, OUT, 4);
-  runs((start, length, s) => {
-    const groups = length >> 2;
+  // the window now staged: block elements [w0, w0 + window)
+  let w0 = -1, w1 = -1;
+  const flush = () => { if (write && w1 > w0) block.set(mem.subarray(0, w1 - w0), w0); };
+  const part = (start: number, length: number, s: number) => {
+    if (start < w0 || start + length > w1) {
+      flush();
+      w0 = start; w1 = Math.min(block.length, start + window);
+      mem.set(block.subarray(w0, w1));
+    }
+    const at = start - w0, groups = length >> 2;
     if (groups > 0) {
-      k.scale(DATA + start * 4, groups, s, write ? 1 : 0, OUT);
+      k.scale(DATA + at * 4, groups, s, write ? 1 : 0, OUT);
       if (res[0]! > max) max = res[0]!;
       if (res[1]! > max) max = res[1]!;
       if (res[2] !== 0 || res[3] !== 0) nan = true; // (the mask lanes are all-ones bit patterns: a NaN double)
     }
-    for (let j = start + groups * 4; j < start + length; j++) {
+    for (let j = at + groups * 4; j < at + length; j++) {
       const r = mem[j]! * s;
       if (write) mem[j] = r;
       const m = Math.abs(r);
       if (m > max) max = m;
       else if (m !== m) nan = true;
     }
+  };
+  runs((start, length, s) => {
+    for (let p = start; p < start + length; p += window) part(p, Math.min(window, start + length - p), s);
   });
-  if (write) block.set(mem);
+  flush();
   return nan ? NaN : max;
 }

@@ -169,6 +169,22 @@ export function storeValues(t: Tensor, values: Float64Array, dims: number[], inP
   setTensorValues(t, values, { dims, inPlace });
 }
 
+// A proven fold scales a copy of each weight for its proof, and once proven drops it and scales the weight where
+// it lies (src/fold/fold.ts): the copies of a large model come one after another, each as large as the last. A
+// fresh buffer per weight is faulted in page by page (it cost more than reading the weight into it), so the last
+// copy's buffer is taken again for the next one of its size once its tensor no longer holds it.
+let lastCopy: { bytes: Uint8Array; tensor: Tensor } | undefined;
+
+function copyBuffer(length: number): Uint8Array {
+  const last = lastCopy;
+  if (last && last.bytes.byteLength === length) {
+    const s = last.tensor.storage;
+    const held = (s.kind === 'raw' || s.kind === 'external') && s.bytes.buffer === last.bytes.buffer;
+    if (!held) return last.bytes;
+  }
+  return new Uint8Array(length);
+}
+
 /**
  * Scale a tensor's elements by channel, stored back in its own type; in place for float32 raw data when allowed.
  * `guard` sees the largest |result| (of each streamed block, for weights scaled on their way to the output).
@@ -194,7 +210,7 @@ export function scaleTensor(t: Tensor, map: ChannelMap, scale: Float64Array, inP
   }
   if (bytes) {
     // a scaled copy in the tensor's own float32 bytes: each product in float64, rounded once on store, as above
-    const copy = new Uint8Array(bytes.byteLength);
+    const copy = copyBuffer(bytes.byteLength);
     const got = peekBytes(bytes, copy); // read straight into the copy when the bytes are on disk
     if (got !== copy) copy.set(got);
     const m = scaleFloat32Block(copy, 0, map, scale, true); // (not inside guard?.(): that would skip it)
@@ -202,6 +218,7 @@ export function scaleTensor(t: Tensor, map: ChannelMap, scale: Float64Array, inP
     const s = t.storage as Extract<TensorStorage, { kind: 'raw' | 'external' }>;
     t.storage = s.kind === 'raw' ? { kind: 'raw', bytes: copy } : { kind: 'external', entries: s.entries, bytes: copy };
     touch(t);
+    lastCopy = { bytes: copy, tensor: t };
     return;
   }
   const values = tensorToFloat64(t);

@@ -24,7 +24,7 @@ import { checkOpset } from '../graph/opsets.js';
 import { compare, type ProbeRecord } from '../verify/compare.js';
 import { saveProbeSets } from '../verify/probe-files.js';
 import type { RewrittenNode } from '../fold/types.js';
-import { provenanceOf, setProvenance } from './provenance.js';
+import { PROVENANCE_KEYS, provenanceOf, setProvenance } from './provenance.js';
 import {
   SCHEMA_VERSION, type CheckSummary, type Coverage, type FoldJobOptions, type FoldReport, type Int8Output, type Int8Simulation, type StorageSummary,
 } from './types.js';
@@ -83,7 +83,7 @@ function checkGate(opts: FoldJobOptions & { halfGate?: boolean }): string | unde
   return opts.gate ?? (opts.halfGate ? DEFAULT_GATES.float16 : undefined);
 }
 import { sketches } from '../fold/sketch.js';
-import { sha256Later } from './sha256.js';
+import { DIGEST_PLACEHOLDER, fillDigest, sha256Later } from './sha256.js';
 
 /**
  * The arithmetic of fold's whole-model check: float64, so the default gates judge the fold's own error (the
@@ -329,7 +329,16 @@ function foldStagedOnce(tx: OutputSet, input: string, output: string, opts: Fold
   const sha256 = sha256Later(input); // worked out beside the fold for a large file; needed when the model is staged
   let staged: StagedModel | undefined;
   const stage = (m: Model, status: string) => {
+    // A digest still being worked out is not waited for: the file is written with a placeholder of its length,
+    // and the digest goes over it once known (the hash of a large input then runs beside the writing).
+    const known = sha256.ready();
+    setProvenance(m, provenanceOf(known ? sha256() : DIGEST_PLACEHOLDER, gate, opts, status));
+    staged = stageModelFile(m, dest, { externalThreshold: opts.externalThreshold }, (d) => tx.tempFor(d));
+    tx.add(staged.files);
+    if (known) return;
     setProvenance(m, provenanceOf(sha256(), gate, opts, status));
+    if (fillDigest(staged.files[0]!.tmp, PROVENANCE_KEYS[1], sha256())) return;
+    tx.discard(staged.files);
     staged = stageModelFile(m, dest, { externalThreshold: opts.externalThreshold }, (d) => tx.tempFor(d));
     tx.add(staged.files);
   };

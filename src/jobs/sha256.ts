@@ -1,7 +1,7 @@
 // SHA-256 of a file, read in chunks so a large model never sits in memory twice; for a large file, optionally
 // worked out on a worker thread while the fold goes on (the digest is the same either way).
 import { createHash } from 'node:crypto';
-import { closeSync, openSync, readSync, statSync } from 'node:fs';
+import { closeSync, fstatSync, openSync, readSync, statSync, writeSync } from 'node:fs';
 import { Worker } from 'node:worker_threads';
 import { PleatError } from '../errors.js';
 
@@ -40,12 +40,19 @@ try {
 Atomics.notify(flag, 0);
 `;
 
+/** A digest worked out beside other work: call it for the hex digest (waiting if need be); `ready` never waits. */
+export interface LaterDigest {
+  (): string;
+  /** Whether the digest is known, so that calling for it would not wait. */
+  ready(): boolean;
+}
+
 /** Start hashing a file; the returned function gives the hex digest (waiting for it if it is not done yet). */
-export function sha256Later(file: string): () => string {
+export function sha256Later(file: string): LaterDigest {
   let size = 0;
   try { size = statSync(file).size; } catch { /* the synchronous hash reports it */ }
   let digest: string | undefined;
-  if (size < BACKGROUND_MIN_BYTES) return () => (digest ??= fileSha256(file));
+  if (size < BACKGROUND_MIN_BYTES) return Object.assign(() => (digest ??= fileSha256(file)), { ready: () => true });
   const sab = new SharedArrayBuffer(8 + 64);
   const flag = new Int32Array(sab, 0, 1);
   let worker: Worker | undefined;
@@ -53,11 +60,53 @@ export function sha256Later(file: string): () => string {
     worker = new Worker(WORKER, { eval: true, workerData: { path: file, sab } });
     worker.unref();
   } catch { Atomics.store(flag, 0, 2); }
-  return () => {
+  const get = () => {
     if (digest !== undefined) return digest;
     while (Atomics.load(flag, 0) === 0) Atomics.wait(flag, 0, 0, 1000);
     digest = Atomics.load(flag, 0) === 1 ? Buffer.from(new Uint8Array(sab, 8, 64)).toString('latin1') : fileSha256(file);
     void worker?.terminate();
     return digest;
   };
+  return Object.assign(get, { ready: () => digest !== undefined || Atomics.load(flag, 0) !== 0 });
+}
+
+/**
+ * Stands for a digest not known yet where a file is written: as long as a hex digest (64 characters), so the
+ * file's bytes around it are those the real digest gives, and it is written over once known (see fillDigest).
+ */
+export const DIGEST_PLACEHOLDER = '?'.repeat(64);
+
+/** How far from the end of a written model its metadata entries are looked for (they follow the graph). */
+const TAIL_BYTES = 1 << 20;
+
+/**
+ * Write `digest` over the placeholder of a metadata entry `key` in the last MiB of a written file: the entry's
+ * encoding (key, then the value's field tag and length, then the placeholder) must occur there exactly once.
+ * Returns false, changing nothing, when it does not (the caller then writes the file again with the digest).
+ */
+export function fillDigest(file: string, key: string, digest: string): boolean {
+  if (digest.length !== DIGEST_PLACEHOLDER.length) return false;
+  const k = Buffer.from(key, 'utf8');
+  if (k.length > 127) return false;
+  // StringStringEntryProto: field 1 (key) then field 2 (value), each a length-delimited string
+  const entry = Buffer.concat([Buffer.from([0x0a, k.length]), k, Buffer.from([0x12, 64]), Buffer.from(DIGEST_PLACEHOLDER, 'latin1')]);
+  const fd = openSync(file, 'r+');
+  try {
+    const size = fstatSync(fd).size;
+    const start = Math.max(0, size - TAIL_BYTES);
+    const tail = Buffer.allocUnsafe(size - start);
+    for (let n = 0; n < tail.length;) {
+      const got = readSync(fd, tail, n, tail.length - n, start + n);
+      if (got <= 0) return false;
+      n += got;
+    }
+    const at = tail.indexOf(entry);
+    if (at < 0 || tail.indexOf(entry, at + 1) >= 0) return false;
+    const bytes = Buffer.from(digest, 'latin1');
+    const pos = start + at + entry.length - 64;
+    for (let w = 0; w < 64;) w += writeSync(fd, bytes, w, 64 - w, pos + w);
+    return true;
+  } finally {
+    closeSync(fd);
+  }
 }

@@ -13,7 +13,7 @@ import { GraphBuilder, modelBytes, randn, rng } from '../helpers/build.js';
 
 afterAll(async () => { setThreads(Math.max(1, availableParallelism())); await stopThreads(); });
 
-function product(M: number, N: number, K: number, A: Float64Array, B: Float64Array): string {
+function product(M: number, N: number, K: number, A: Float64Array | Float32Array, B: Float64Array): string {
   const C = new Float64Array(M * N);
   gemm(M, N, K, rowMajor(A, 0, K), rowMajor(B, 0, N), C, 0, N, false);
   return Buffer.from(C.buffer).toString('base64');
@@ -27,16 +27,18 @@ describe('packed weights reused across products', () => {
       const r = rng(31 + threads);
       const M = 64, K = 300;
       const w1 = Float64Array.from(randn(r, M * K, 1)), w2 = Float64Array.from(randn(r, M * K, 1));
-      markConstant(w1); markConstant(w2);
-      const plain = Float64Array.from(randn(r, M * K, 1));
+      // float32 weights in float64 products are copied in as stored and widened by the first product that uses them
+      const w3 = Float32Array.from(randn(r, M * K, 1)), w4 = Float32Array.from(randn(r, M * K, 1));
+      markConstant(w1); markConstant(w2); markConstant(w3); markConstant(w4);
+      const plain = Float64Array.from(randn(r, M * K, 1)), plain32 = Float32Array.from(randn(r, M * K, 1));
       // a depthwise conv runs in the same kernel memory between products
       const g = new GraphBuilder();
       g.input('x', [1, 8, 9, 9]).output('y');
       g.node('Conv', ['x', g.init('dw', [8, 1, 3, 3], randn(r, 72, 0.3))], { group: 8, pads: [1, 1, 1, 1] }, { outputs: ['y'] });
       const dw = parseModel(modelBytes(g), '.');
       const x = Float64Array.from(randn(r, 8 * 81, 1));
-      for (let step = 0; step < 12; step++) {
-        const A = [w1, w1, w2, plain][step % 4 === 2 ? 0 : Math.floor(r() * 4)]!; // right after the depthwise conv: w1
+      for (let step = 0; step < 24; step++) {
+        const A = [w1, w1, w2, plain, w3, w3, w4, plain32][step % 4 === 2 ? (step % 8 === 2 ? 0 : 4) : Math.floor(r() * 8)]!; // right after the depthwise conv: w1 or w3
         const N = 1 + Math.floor(r() * 90) + (step % 3 === 0 ? 600 : 0); // some span two column panels
         const B = Float64Array.from(randn(r, K * N, 1));
         // first with whatever the step before left in the kernel memory, then against a fresh packing

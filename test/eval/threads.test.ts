@@ -5,6 +5,7 @@ import { afterAll, describe, expect, it } from 'vitest';
 import { gemm, rowMajor, simdOn } from '../../src/eval/gemm.js';
 import { bandsPosted, setThreads, stopThreads, PARALLEL_MIN_WORK } from '../../src/eval/threads.js';
 import { runModel } from '../../src/eval/run.js';
+import { chunkTiles, type TileSpan } from '../../src/eval/wasm-gemm.js';
 import { parseModel } from '../../src/onnx/read.js';
 import { GraphBuilder, modelBytes, randn, rng } from '../helpers/build.js';
 import { availableParallelism } from 'node:os';
@@ -38,6 +39,46 @@ describe('threaded matrix products', () => {
     }
     // the bands really went to workers on some of the shapes
     expect(big).toBeGreaterThan(0);
+    expect(bandsPosted()).toBeGreaterThan(posted);
+  });
+
+  it('the chunks threads take cover every tile once, smaller towards the end', () => {
+    for (const [t0, t1, chunk] of [[0, 128, 8], [3, 4, 8], [0, 37, 8], [5, 300, 32], [0, 9, 1], [0, 1000, 3]] as const) {
+      const span = { t0, t1, chunk } as TileSpan;
+      const seen: number[] = [];
+      let i = 0, last = Infinity;
+      for (let [a, b] = chunkTiles(span, i); a < b; [a, b] = chunkTiles(span, ++i)) {
+        expect(b - a).toBeLessThanOrEqual(Math.min(chunk, last)); // never larger than the chunk before
+        last = b - a;
+        for (let t = a; t < b; t++) seen.push(t);
+      }
+      expect(seen, `${t0}..${t1} by ${chunk}`).toEqual(Array.from({ length: t1 - t0 }, (_, k) => t0 + k));
+      expect(chunkTiles(span, i + 5)[0]).toBeGreaterThanOrEqual(chunkTiles(span, i + 5)[1]); // and then nothing
+    }
+  });
+
+  it('float32 weights in float64 products (widened tile by tile on each thread): the bits of the weights widened up front, any thread count', () => {
+    const r = rng(13);
+    const posted = bandsPosted();
+    for (let trial = 0; trial < 8; trial++) {
+      // rows past a multiple of 4 and of the 32-row chunks, long sums, panels past 512 columns now and then
+      const M = (trial < 4 ? 9 : 250) + Math.floor(r() * 260), N = (trial < 4 ? 1 : 60) + Math.floor(r() * (trial === 3 ? 700 : 120)), K = 100 + Math.floor(r() * 2000);
+      const transA = trial % 3 === 2, acc = trial % 4 === 1;
+      const A32 = Float32Array.from(randn(r, M * K, 1)), A64 = Float64Array.from(A32);
+      const B = Float64Array.from(randn(r, K * N, 1)), start = Float64Array.from(randn(r, M * N, 1));
+      const run = (A: Float32Array | Float64Array) => {
+        const C = Float64Array.from(start);
+        gemm(M, N, K, rowMajor(A, 0, transA ? M : K, transA), rowMajor(B, 0, N), C, 0, N, acc);
+        return bits(C);
+      };
+      setThreads(1);
+      const want = run(A64);
+      for (const t of [1, 2, 3]) {
+        setThreads(t);
+        expect(run(A32), `trial ${trial} threads ${t} M=${M} N=${N} K=${K}`).toBe(want);
+        expect(run(A32), `trial ${trial} threads ${t}, again`).toBe(want); // (the weight already in the kernel memory)
+      }
+    }
     expect(bandsPosted()).toBeGreaterThan(posted);
   });
 

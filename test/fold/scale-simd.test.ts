@@ -39,4 +39,25 @@ describe('scaling float32 weights in SIMD', () => {
       }
     }
   });
+
+  it('gives the same on blocks larger than the staging window, runs cut across its edges', () => {
+    const r = rng(43);
+    for (let trial = 0; trial < 6; trial++) {
+      // runs from shorter to much longer than the 32768-element window, starting off any multiple of four
+      const unit = [4099, 20001, 40000, 70001, 33333, 65536][trial]!, runs = 3 + (trial % 3);
+      const of = Int32Array.from({ length: runs }, (_, e) => (e * 5) % runs);
+      const scale = Float64Array.from(randn(r, runs, 3), (x, c) => (c === 2 && trial === 3 ? 1e39 : x));
+      const first = Math.floor(r() * unit);
+      const n = runs * unit - first - Math.floor(r() * unit);
+      const values = Float32Array.from(randn(r, n, 1));
+      if (trial % 2 === 0) values[Math.floor(r() * n)] = NaN;
+      for (const write of [true, false]) {
+        const mine = values.slice(), want = values.slice();
+        const got = scaleFloat32Block(new Uint8Array(mine.buffer), first, { of, unit }, scale, write);
+        const exp = reference(want, first, of, unit, scale, write);
+        expect(Object.is(got, exp) || got === exp, `trial ${trial} write ${write}: ${got} vs ${exp}`).toBe(true);
+        expect(Buffer.from(mine.buffer).equals(Buffer.from(want.buffer)), `trial ${trial} write ${write}`).toBe(true);
+      }
+    }
+  });
 });

@@ -2,10 +2,15 @@
 // node:crypto gives the whole file at once (the standard's own algorithm, FIPS 180-4, as Node ships it).
 import { describe, expect, it } from 'vitest';
 import { createHash } from 'node:crypto';
-import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
+import { mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { fileSha256, sha256Later } from '../../src/jobs/sha256.js';
+import { DIGEST_PLACEHOLDER, fileSha256, fillDigest, sha256Later } from '../../src/jobs/sha256.js';
+import { GraphBuilder, modelBytes, randn, rng, uniform } from '../helpers/build.js';
+import { readModelFile } from '../../src/onnx/read.js';
+import { writeModelFile } from '../../src/onnx/write.js';
+import { foldFile, foldLoaded } from '../../src/jobs/fold.js';
+import { PROVENANCE_KEYS, provenanceOf, setProvenance } from '../../src/jobs/provenance.js';
 import { PleatError } from '../../src/errors.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'pleat-sha-'));
@@ -31,4 +36,45 @@ describe('file SHA-256', () => {
     expect(() => sha256Later(f)()).toThrow(PleatError);
     expect(() => fileSha256(f)).toThrow(/missing\.onnx: cannot read/);
   });
+
+  it('a placeholder entry written over with the digest gives the bytes the digest written at once gives', () => {
+    const entry = (v: string) => Buffer.concat([Buffer.from([0x0a, 19]), Buffer.from('pleat.source.sha256'), Buffer.from([0x12, 64]), Buffer.from(v)]);
+    const digest = 'ab'.repeat(32);
+    const head = Buffer.alloc(3 * 1024 * 1024, 7); // the entry sits near the end of a file of a few MiB
+    const f = join(dir, 'placeholder.bin');
+    writeFileSync(f, Buffer.concat([head, entry(DIGEST_PLACEHOLDER), Buffer.from([1, 2, 3])]));
+    expect(fillDigest(f, 'pleat.source.sha256', digest)).toBe(true);
+    expect(readFileSync(f).equals(Buffer.concat([head, entry(digest), Buffer.from([1, 2, 3])]))).toBe(true);
+    // not found, or found twice: nothing is changed and the caller writes the file again
+    for (const body of [Buffer.concat([entry(digest), head]), Buffer.concat([entry(DIGEST_PLACEHOLDER), entry(DIGEST_PLACEHOLDER)]), Buffer.concat([entry(DIGEST_PLACEHOLDER), head])]) {
+      writeFileSync(f, body);
+      expect(fillDigest(f, 'pleat.source.sha256', digest)).toBe(false);
+      expect(readFileSync(f).equals(body)).toBe(true);
+    }
+    rmSync(f);
+  });
+
+  it('a fold of a model large enough to be hashed beside the work records the digest node:crypto gives', () => {
+    // one 1024-channel 4x4 Conv: 64 MiB of float32 weight, past the size hashed on a worker thread
+    const r = rng(3);
+    const g = new GraphBuilder();
+    g.input('x', [1, 1024, 4, 4]).output('y');
+    const w = g.init('w', [1024, 1024, 4, 4], Float32Array.from({ length: 1024 * 1024 * 16 }, (_, i) => ((i * 7919) % 2001 - 1000) * 2e-5));
+    const c = g.node('Conv', ['x', w], {}, { name: 'conv' });
+    const p = (n: string, v: Float32Array) => g.init(n, [1024], v);
+    g.node('BatchNormalization', [c, p('s', uniform(r, 1024, 0.5, 1.5)), p('b', randn(r, 1024, 0.2)), p('m', randn(r, 1024, 0.3)), p('v', uniform(r, 1024, 0.3, 2))], {}, { name: 'bn', outputs: ['y'] });
+    const src = join(dir, 'large.onnx');
+    const bytes = modelBytes(g);
+    writeFileSync(src, bytes);
+    foldFile(src, join(dir, 'late.onnx'), { noProofs: true });
+    const m = readModelFile(src);
+    foldLoaded(m, undefined, src, { noProofs: true }, false);
+    const want = createHash('sha256').update(bytes).digest('hex');
+    setProvenance(m, provenanceOf(want, undefined, { noProofs: true }, 'not-run'));
+    writeModelFile(m, join(dir, 'early.onnx'));
+    const late = readFileSync(join(dir, 'late.onnx'));
+    expect(late.equals(readFileSync(join(dir, 'early.onnx')))).toBe(true);
+    expect(readModelFile(join(dir, 'late.onnx')).metadata.find(([k]) => k === PROVENANCE_KEYS[1])?.[1]).toBe(want);
+    rmSync(dir, { recursive: true, force: true });
+  }, 120_000);
 });

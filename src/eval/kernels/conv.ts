@@ -7,7 +7,7 @@ import { attrInt, attrInts, elementCount } from '../../graph/ir.js';
 import { allocFloat, badModel, need, slidingWindow, to3 } from '../attrs.js';
 import { gemm, memoryViews, rowMajor, simdOn } from '../gemm.js';
 import { simdKernels } from '../wasm-gemm.js';
-import { im2col, type Geometry3 } from '../im2col.js';
+import { im2col, im2colTiles, type Geometry3 } from '../im2col.js';
 import type { Kernel, KernelContext, NumArray, Value } from '../value.js';
 
 let colBuf = new Float64Array(0);
@@ -210,8 +210,13 @@ function run(inputs: Array<Value | undefined>, ctx: KernelContext): Value[] {
         const A = rowMajor(w, gi * Mg * K, K);
         // the bias goes in first so the GEMM sum is rounded once (matters in float32 mode)
         if (B) for (let m = 0; m < Mg; m++) Y.fill(B.data[gi * Mg + m]!, yOff + m * outVol, yOff + (m + 1) * outVol);
-        if (col) im2col(x, xOff, Cg, g3, col);
-        gemm(Mg, outVol, K, A, col ? rowMajor(col, 0, outVol) : rowMajor(x, xOff, inVol), Y, yOff, outVol, !!B);
+        // the column matrix is made only for a path that reads it; the SIMD path gets it laid out in its tiles
+        const colOp = col && {
+          ...rowMajor(col, 0, outVol),
+          fill: () => im2col(x, xOff, Cg, g3, col),
+          tiles: (mem: Float32Array | Float64Array, at: number, j0: number, nc: number, nr: number) => im2colTiles(x, xOff, Cg, g3, mem, at, j0, nc, nr),
+        };
+        gemm(Mg, outVol, K, A, colOp || rowMajor(x, xOff, inVol), Y, yOff, outVol, !!B);
       }
     }
   }
