@@ -77,6 +77,84 @@ export interface Tensor {
   overridable?: boolean;
 }
 
+/**
+ * A tensor as the reader makes it. A 10^5-node graph holds some 10^5 small tensors, nearly all raw_data, and
+ * most commands never look at their bytes: so raw_data stays two offsets into the file buffer, and the view
+ * (`storage.bytes`) is made the first time something asks for `storage`, then kept (caches key on it). Own
+ * fields are the Tensor fields but `storage`, which is a property of the class: code that copies a tensor
+ * names `storage` (no spread of a tensor, which would drop it). storageKind and rawByteLength answer without
+ * making the view.
+ */
+export class FileTensor implements Tensor {
+  declare overridable?: boolean;
+  name: string;
+  dims: number[];
+  dataType: DataTypeCode;
+  docString: string;
+  extra: RawField[];
+  origin?: Origin;
+  #storage: TensorStorage | undefined;
+  /** While `#storage` is unset: raw_data is buf[start, end). */
+  #buf: Uint8Array | undefined;
+  #start: number;
+  #end: number;
+
+  /** `storage` undefined: raw_data at buf[start, end). */
+  constructor(name: string, dims: number[], dataType: DataTypeCode, storage: TensorStorage | undefined, buf: Uint8Array | undefined,
+    start: number, end: number, docString: string, extra: RawField[], origin: Origin | undefined) {
+    this.name = name;
+    this.dims = dims;
+    this.dataType = dataType;
+    this.docString = docString;
+    this.extra = extra;
+    this.origin = origin;
+    this.#storage = storage;
+    this.#buf = storage === undefined ? buf : undefined;
+    this.#start = start;
+    this.#end = end;
+  }
+
+  get storage(): TensorStorage {
+    return this.#storage ??= { kind: 'raw', bytes: this.#buf!.subarray(this.#start, this.#end) };
+  }
+
+  set storage(s: TensorStorage) {
+    this.#storage = s;
+    this.#buf = undefined;
+  }
+
+  /** The storage kind, without making a view of raw bytes. */
+  get storageKind(): TensorStorage['kind'] {
+    return this.#storage === undefined ? 'raw' : this.#storage.kind;
+  }
+
+  /** Bytes of raw or external storage (-1 for other kinds), without making a view. */
+  get rawByteLength(): number {
+    const s = this.#storage;
+    if (s === undefined) return this.#end - this.#start;
+    return s.kind === 'raw' || s.kind === 'external' ? s.bytes.byteLength : -1;
+  }
+}
+
+/** A tensor's storage kind (a tensor read from a file answers without making a view of its bytes). */
+export function storageKind(t: Tensor): TensorStorage['kind'] {
+  return t instanceof FileTensor ? t.storageKind : t.storage.kind;
+}
+
+/** A tensor's external storage, or undefined when it is held otherwise (without making a view of raw bytes). */
+export function externalStorage(t: Tensor): Extract<TensorStorage, { kind: 'external' }> | undefined {
+  if (storageKind(t) !== 'external') return undefined;
+  const s = t.storage;
+  return s.kind === 'external' ? s : undefined;
+}
+
+/** Bytes of a tensor's raw or external storage, -1 for other kinds (read tensors answer without a view). */
+export function rawByteLength(t: Tensor): number {
+  if (t instanceof FileTensor) return t.rawByteLength;
+  const s = t.storage;
+  return s.kind === 'raw' || s.kind === 'external' ? s.bytes.byteLength : -1;
+}
+
 export type AttributeValue =
   | { type: 'FLOAT'; f: number }
   | { type: 'INT'; i: number }

@@ -1,7 +1,7 @@
 // `survey`: what a model file holds, for people and scripts.
 import { statSync } from 'node:fs';
 import type { Dim, Graph, Model, Tensor, ValueInfo } from '../graph/ir.js';
-import { hasSubgraphs, subgraphsOf } from '../graph/ir.js';
+import { externalStorage, hasSubgraphs, storageKind, subgraphsOf } from '../graph/ir.js';
 import { bytesPerElement, dataTypeName, tensorByteSize } from '../graph/tensor.js';
 import { eachTensor, externalRef, resolveLocation } from '../onnx/external.js';
 import { readModelFile } from '../onnx/read.js';
@@ -57,7 +57,8 @@ function describeValue(v: ValueInfo): SurveyValue {
 
 /** Bytes a tensor's dims need (external tensors left unloaded hold none yet). */
 function declaredBytes(t: Tensor): number {
-  if (t.storage.kind !== 'external' || t.storage.bytes.byteLength > 0) return tensorByteSize(t);
+  const ext = externalStorage(t);
+  if (!ext || ext.bytes.byteLength > 0) return tensorByteSize(t);
   const per = bytesPerElement(t.dataType) ?? 0;
   return t.dims.reduce((a, d) => a * Number(d), 1) * per;
 }
@@ -66,7 +67,8 @@ function declaredBytes(t: Tensor): number {
 function missingExternal(model: Model, label: string): MissingData[] {
   const out: MissingData[] = [];
   eachTensor(model.graph, (t) => {
-    if (t.storage.kind !== 'external' || t.storage.bytes.byteLength > 0) return;
+    const ext = externalStorage(t);
+    if (!ext || ext.bytes.byteLength > 0) return;
     let location = '?';
     try {
       const ref = externalRef(t, label);
@@ -119,7 +121,7 @@ export function surveyModel(model: Model, file: string | null = null, missingDat
   const initialized = new Set<string>();
   for (const t of model.graph.initializers) if (inputNames.has(t.name)) initialized.add(t.name);
   let external = 0;
-  eachTensor(model.graph, (t) => { if (t.storage.kind === 'external') external += declaredBytes(t); });
+  eachTensor(model.graph, (t) => { if (storageKind(t) === 'external') external += declaredBytes(t); });
   return {
     schemaVersion: SCHEMA_VERSION,
     command: 'survey',

@@ -5,6 +5,7 @@ import { dirname, resolve } from 'node:path';
 import type {
   Attribute, AttributeValue, Dim, Graph, Model, Node, OpsetImport, Origin, RawField, Tensor, TensorStorage, ValueInfo,
 } from '../graph/ir.js';
+import { FileTensor } from '../graph/ir.js';
 import { PleatError } from '../errors.js';
 import {
   NameCache, WT_LEN, WireError, readFloat, readInt, readPackedFixed32, readPackedFixed64, readPackedVarints,
@@ -65,6 +66,35 @@ function takeNumbers(base: number): number[] {
   return out;
 }
 
+/** Slots of the dims cache (a graph has few distinct shapes; a repeat usually follows soon). */
+const DIMS_SLOTS = 1024;
+let dimsCache: Array<readonly number[] | undefined> | undefined;
+
+/**
+ * The dims pushed on `scratchN` above `base`. While a model is read they come from a small cache of frozen lists,
+ * one per shape: 10^5 tensors of a few shapes made 10^5 lists otherwise. Frozen, so code that changed one in place
+ * (none does: dims are replaced, see setTensorValues) would fail loudly rather than reshape other tensors.
+ */
+function takeDims(base: number): number[] {
+  if (dimsCache === undefined) return takeNumbers(base);
+  const n = scratchN.length - base;
+  let h = n;
+  for (let i = base; i < scratchN.length; i++) h = Math.imul(h ^ (scratchN[i]! | 0), 0x01000193) ^ Math.floor(scratchN[i]! / 4294967296);
+  h = (h ^ (h >>> 13)) & (DIMS_SLOTS - 1);
+  const hit = dimsCache[h];
+  if (hit !== undefined && hit.length === n) {
+    let j = 0;
+    while (j < n && hit[j] === scratchN[base + j]) j++;
+    if (j === n) {
+      while (scratchN.length > base) scratchN.pop();
+      return hit as number[];
+    }
+  }
+  const dims = Object.freeze(takeNumbers(base));
+  dimsCache[h] = dims;
+  return dims as number[];
+}
+
 /** A list at its exact length (a list grown by push keeps spare room). */
 function exact<T>(list: T[] | undefined): T[] {
   return list === undefined || list.length === 0 ? [] : list.slice();
@@ -101,7 +131,7 @@ export function decodeTensor(buf: Buf, start: number, end: number): Tensor {
   let floats: number[] | undefined, int32s: number[] | undefined, doubles: number[] | undefined;
   let int64s: bigint[] | undefined, uint64s: bigint[] | undefined, strings: Uint8Array[] | undefined;
   let external: Array<[string, string]> | undefined;
-  let location = 0;
+  let location = 0, rawStart = 0, rawEnd = 0, sawRaw = false;
   let kind: TensorStorage['kind'] | undefined;
   // typed data fields present, in the order first seen (a second one, or one beside raw_data, is invalid); a
   // list made only when there is one, since most tensors hold raw_data
@@ -115,7 +145,7 @@ export function decodeTensor(buf: Buf, start: number, end: number): Tensor {
       case 6: expectLen(f, 'string_data'); (strings ??= []).push(buf.subarray(f.vstart, f.vend)); kind = 'string_data'; typed = withOnce(typed, kind); break;
       case 7: readPackedVarintsBig(buf, f, int64s ??= []); kind = 'int64_data'; typed = withOnce(typed, kind); break;
       case 8: tname = name(buf, f); break;
-      case 9: expectLen(f, 'raw_data'); storage = { kind: 'raw', bytes: buf.subarray(f.vstart, f.vend) }; kind = 'raw'; break;
+      case 9: expectLen(f, 'raw_data'); rawStart = f.vstart; rawEnd = f.vend; sawRaw = true; kind = 'raw'; break;
       case 10: readPackedFixed64(buf, f, doubles ??= []); kind = 'double_data'; typed = withOnce(typed, kind); break;
       case 11: readPackedVarintsBig(buf, f, uint64s ??= []); kind = 'uint64_data'; typed = withOnce(typed, kind); break;
       case 12: docString = readString(buf, f); break;
@@ -133,10 +163,10 @@ export function decodeTensor(buf: Buf, start: number, end: number): Tensor {
       default: (extra ??= []).push(raw(buf, f));
     }
   }
-  const dims = takeNumbers(dimBase);
+  const dims = takeDims(dimBase);
   // ONNX IR: a tensor's data lives in raw_data or in one typed *_data field, not both; runtimes disagree on
   // which one wins when several are present (onnx/onnx.proto3, TensorProto; the checker refuses it).
-  const held = typed === undefined ? NO_NAMES : [...typed, ...(storage?.kind === 'raw' ? ['raw_data'] : [])];
+  const held = typed === undefined ? NO_NAMES : [...typed, ...(sawRaw ? ['raw_data'] : [])];
   if (held.length > 1) {
     throw new PleatError('bad-model', `tensor '${tname}' holds its data in both ${held.slice(0, -1).join(', ')} and ${held[held.length - 1]}; a tensor must use exactly one`);
   }
@@ -158,8 +188,9 @@ export function decodeTensor(buf: Buf, start: number, end: number): Tensor {
   if (badDim) {
     throw new PleatError('bad-model', `tensor '${tname}' has an invalid dimension in [${dims.join(',')}]`);
   }
-  // data_location and external_data entries are modelled through storage
-  return { name: tname, dims, dataType, storage: storage ?? { kind: 'empty' }, docString, extra: extra ?? NO_EXTRA, origin: origin(buf, start, end) };
+  // data_location and external_data entries are modelled through storage; raw_data stays offsets until used
+  return new FileTensor(tname, dims, dataType, sawRaw && location !== 1 ? undefined : storage ?? { kind: 'empty' }, buf, rawStart, rawEnd,
+    docString, extra ?? NO_EXTRA, origin(buf, start, end));
 }
 
 function decodeDims(buf: Buf, start: number, end: number): Dim[] {
@@ -394,11 +425,13 @@ export function decodeModelFields(buf: Buf, start: number, end: number, kids?: K
 export function decodeModel(buf: Buf, baseDir: string): Model {
   scratchIn.top = 0; scratchOut.top = 0; scratchN.length = 0; // a read that threw may have left entries
   interner = new NameCache(buf);
+  dimsCache = new Array<readonly number[] | undefined>(DIMS_SLOTS);
   let fields: ModelFields;
   try {
     fields = decodeModelFields(buf, 0, buf.byteLength);
   } finally {
     interner = undefined;
+    dimsCache = undefined;
   }
   const { graph, ...m } = fields;
   if (!graph) throw new PleatError('bad-model', 'no graph in the file: this is not an ONNX model');
