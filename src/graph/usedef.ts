@@ -59,7 +59,84 @@ interface Built {
   bodies: Map<number, string[]>;
 }
 
+/**
+ * The name ids validation gave a graph without bodies (src/graph/validate.ts): its table, and per node the ids of
+ * its outputs and inputs (-1 for ''), in flat lists with a start per node; per initializer its id. Reading a
+ * graph hashes every name once for validation; the first index of that graph takes these instead of hashing them
+ * all again.
+ */
+export interface ValidatedIds {
+  table: NameTable;
+  initIds: Int32Array;
+  outStart: Int32Array;
+  outIds: Int32Array;
+  inStart: Int32Array;
+  inIds: Int32Array;
+}
+
+const validated = new WeakMap<Graph, ValidatedIds>();
+
+export function rememberIds(graph: Graph, ids: ValidatedIds): void {
+  validated.set(graph, ids);
+}
+
+/**
+ * The index built from validation's ids, taken once; undefined (and the ids dropped) unless every name of the
+ * graph is still the one validation saw at that place. The check compares the names themselves (the same
+ * strings, usually the same objects), so any edit since, in place or not, falls back to hashing.
+ */
+function indexFromIds(graph: Graph): Built | undefined {
+  const v = validated.get(graph);
+  if (!v) return undefined;
+  validated.delete(graph);
+  const { table, initIds, outStart, outIds, inStart, inIds } = v;
+  const nodes = graph.nodes.slice();
+  const tensors = graph.initializers.slice();
+  if (nodes.length + 1 !== outStart.length || tensors.length !== initIds.length) return undefined;
+  const size = table.size;
+  const producer = new Int32Array(size).fill(-1);
+  const init = new Int32Array(size).fill(-1);
+  const flags = new Uint8Array(size);
+  const lastReader = new Int32Array(size).fill(-1);
+  const edgeValue = new Int32Array(inIds.length);
+  const edgeNode = new Int32Array(inIds.length);
+  let edges = 0;
+  const named = (name: string, id: number) => name ? id >= 0 && table.name(id) === name : id === -1;
+  for (let j = 0; j < nodes.length; j++) {
+    const n = nodes[j]!;
+    if (hasSubgraphs(n)) return undefined;
+    const outs = n.outputs, ins = n.inputs;
+    let e = outStart[j]!;
+    if (outStart[j + 1]! - e !== outs.length) return undefined;
+    for (let k = 0; k < outs.length; k++, e++) {
+      const id = outIds[e]!;
+      if (!named(outs[k]!, id)) return undefined;
+      if (id >= 0) producer[id] = j;
+    }
+    e = inStart[j]!;
+    if (inStart[j + 1]! - e !== ins.length) return undefined;
+    for (let k = 0; k < ins.length; k++, e++) {
+      const id = inIds[e]!;
+      if (!named(ins[k]!, id)) return undefined;
+      if (id < 0 || lastReader[id] === j) continue; // a node reading a value twice is one reader
+      lastReader[id] = j;
+      edgeValue[edges] = id;
+      edgeNode[edges++] = j;
+    }
+  }
+  for (const o of graph.outputs) { const id = table.id(o.name); if (id < 0) return undefined; flags[id]! |= IS_OUTPUT; }
+  for (const i of graph.inputs) { const id = table.id(i.name); if (id < 0) return undefined; flags[id]! |= IS_INPUT; }
+  for (let k = 0; k < tensors.length; k++) {
+    const id = initIds[k]!;
+    if (table.name(id) !== tensors[k]!.name) return undefined;
+    init[id] = k;
+  }
+  return { nodes, tensors, ids: table, producer, init, flags, readers: csr(size, edgeValue, edgeNode, edges), bodies: new Map() };
+}
+
 function indexGraph(graph: Graph): Built {
+  const fromIds = indexFromIds(graph);
+  if (fromIds) return fromIds;
   const nodes = graph.nodes.slice(); // the index answers for the graph as it was built, as a Map of nodes would
   const tensors = graph.initializers.slice();
   const bodies = new Map<number, string[]>();
