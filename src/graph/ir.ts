@@ -128,6 +128,16 @@ export class FileTensor implements Tensor {
     return this.#storage === undefined ? 'raw' : this.#storage.kind;
   }
 
+  /**
+   * A view of raw or external bytes (undefined for other kinds). While `storage` was never asked for, a new view
+   * each time that the tensor does not keep: an analysis reading every weight once leaves no view per tensor.
+   */
+  rawView(): Uint8Array | undefined {
+    const s = this.#storage;
+    if (s === undefined) return this.#buf!.subarray(this.#start, this.#end);
+    return s.kind === 'raw' || s.kind === 'external' ? s.bytes : undefined;
+  }
+
   /** Bytes of raw or external storage (-1 for other kinds), without making a view. */
   get rawByteLength(): number {
     const s = this.#storage;
@@ -146,6 +156,16 @@ export function externalStorage(t: Tensor): Extract<TensorStorage, { kind: 'exte
   if (storageKind(t) !== 'external') return undefined;
   const s = t.storage;
   return s.kind === 'external' ? s : undefined;
+}
+
+/**
+ * A view of a tensor's raw or external bytes, undefined for other kinds (the same memory as `storage.bytes`; a
+ * tensor read from a file does not keep it, see FileTensor.rawView).
+ */
+export function rawBytesOf(t: Tensor): Uint8Array | undefined {
+  if (t instanceof FileTensor) return t.rawView();
+  const s = t.storage;
+  return s.kind === 'raw' || s.kind === 'external' ? s.bytes : undefined;
 }
 
 /** Bytes of a tensor's raw or external storage, -1 for other kinds (read tensors answer without a view). */

@@ -5,7 +5,7 @@ import onnxProto from 'onnx-proto';
 import { GraphBuilder, modelBytes, rng, tensor } from '../helpers/build.js';
 import { decodeModel, parseTensor } from '../../src/onnx/read.js';
 import { serializeModel } from '../../src/onnx/write.js';
-import { FileTensor, externalStorage, rawByteLength, storageKind, type Tensor } from '../../src/graph/ir.js';
+import { FileTensor, externalStorage, rawByteLength, rawBytesOf, storageKind, type Tensor } from '../../src/graph/ir.js';
 import { storedElementCount, tensorByteSize, tensorToFloat64 } from '../../src/graph/tensor.js';
 import { setTensorValues } from '../../src/graph/edit.js';
 
@@ -36,6 +36,20 @@ describe('FileTensor', () => {
       expect(at.buffer).toBe(bytes.buffer);
       expect(Buffer.from(at).equals(Buffer.from(new Float32Array(values).buffer))).toBe(true);
     }
+  });
+
+  it('gives views of its raw bytes without keeping one until storage is asked for', () => {
+    const bytes = tensorBytes(tensor('w', [3], [1.5, -2, 4]));
+    const t = parseTensor(bytes);
+    const a = rawBytesOf(t)!, b = rawBytesOf(t)!;
+    expect(a).not.toBe(b); // a new view each time: nothing kept on the tensor
+    expect(a.buffer).toBe(b.buffer);
+    expect([a.byteOffset, a.byteLength]).toEqual([b.byteOffset, b.byteLength]);
+    expect(Array.from(tensorToFloat64(t))).toEqual([1.5, -2, 4]);
+    const s = t.storage as { bytes: Uint8Array };
+    expect(rawBytesOf(t)).toBe(s.bytes); // once made, the storage's own view
+    expect([s.bytes.byteOffset, s.bytes.byteLength]).toEqual([a.byteOffset, a.byteLength]);
+    expect(rawBytesOf(parseTensor(tensorBytes(tensor('f', [1], [1], 1, 'typed'))))).toBeUndefined();
   });
 
   it('answers for typed and empty storage as a plain tensor does', () => {
