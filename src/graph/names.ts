@@ -7,8 +7,6 @@ export interface NameTable {
   add(name: string): number;
   /** The id of a name, or -1. */
   id(name: string): number;
-  /** The name of an id (0 <= id < size). */
-  name(id: number): string;
   readonly size: number;
 }
 
@@ -48,7 +46,6 @@ export function nameTable(capacity: number): NameTable {
   return {
     add: (name) => find(name, true),
     id: (name) => find(name, false),
-    name: (id) => names[id]!,
     get size() { return names.length; },
   };
 }

@@ -6,7 +6,7 @@ import { elementCount, hasSubgraphs, storageKind, subgraphsOf } from './ir.js';
 import { isKnownDataType, storedElementCount, dataTypeName } from './tensor.js';
 import { topoOrder } from './topo.js';
 import { nameTable } from './names.js';
-import { outerRefs, rememberIds, type ValidatedIds } from './usedef.js';
+import { outerRefs } from './usedef.js';
 
 function checkTensor(t: Tensor, where: string, externalLoaded: boolean): void {
   if (!isKnownDataType(t.dataType)) {
@@ -30,40 +30,32 @@ function validateGraph(g: Graph, outerHas: (v: string) => boolean, path: string,
   // Who writes each value, as (kind, index) by name id: the description is only built for an error. One name
   // table serves every check below, the order check included (a second table of the same names cost as much).
   const nodes = g.nodes;
-  let bound = g.inputs.length + g.initializers.length, reads = 0;
-  for (let j = 0; j < nodes.length; j++) { bound += nodes[j]!.outputs.length; reads += nodes[j]!.inputs.length; }
+  let bound = g.inputs.length + g.initializers.length;
+  for (let j = 0; j < nodes.length; j++) bound += nodes[j]!.outputs.length;
   const names = nameTable(bound);
-  // the id of every name as met, handed to the use-def index (src/graph/usedef.ts) so it need not hash them again
-  const ids: ValidatedIds = {
-    table: names, initIds: new Int32Array(g.initializers.length),
-    outStart: new Int32Array(nodes.length + 1), outIds: new Int32Array(bound - g.inputs.length - g.initializers.length),
-    inStart: new Int32Array(nodes.length + 1), inIds: new Int32Array(reads),
-  };
   const kind = new Uint8Array(bound); // 0 none, 1 graph input, 2 initializer, 3 node
   const index = new Int32Array(bound);
   const describe = (k: number, i: number): string => k === 1 ? `graph input '${g.inputs[i]!.name}'`
     : k === 2 ? `initializer '${g.initializers[i]!.name}'` : `node '${nodes[i]!.name || nodes[i]!.opType}'`;
-  const own = (v: string, k: number, i: number, quietIfInput = false): number => {
+  const own = (v: string, k: number, i: number, quietIfInput = false) => {
     const id = names.add(v);
     if (kind[id] !== 0) {
-      if (quietIfInput && kind[id] === 1) return id; // an initializer giving a graph input its default
+      if (quietIfInput && kind[id] === 1) return; // an initializer giving a graph input its default
       throw new PleatError('bad-model', `${path}: value '${v}' is written by both ${describe(kind[id]!, index[id]!)} and ${describe(k, i)}`);
     }
     kind[id] = k;
     index[id] = i;
-    return id;
   };
   g.inputs.forEach((v, i) => own(v.name, 1, i));
   g.initializers.forEach((t, i) => {
     checkTensor(t, path, externalLoaded);
-    ids.initIds[i] = own(t.name, 2, i, true); // two initializers of one name are refused: runtimes bind different ones
+    own(t.name, 2, i, true); // two initializers of one name are refused: runtimes bind different ones
   });
   let nested = false;
-  for (let j = 0, e = 0; j < nodes.length; j++) {
+  for (let j = 0; j < nodes.length; j++) {
     const n = nodes[j]!;
     const outs = n.outputs;
-    for (let k = 0; k < outs.length; k++) ids.outIds[e++] = outs[k] ? own(outs[k]!, 3, j) : -1;
-    ids.outStart[j + 1] = e;
+    for (let k = 0; k < outs.length; k++) if (outs[k]) own(outs[k]!, 3, j);
     const attrs = n.attributes;
     for (let k = 0; k < attrs.length; k++) {
       const v = attrs[k]!.value;
@@ -74,17 +66,15 @@ function validateGraph(g: Graph, outerHas: (v: string) => boolean, path: string,
   const has = (v: string): boolean => names.id(v) >= 0 || outerHas(v);
   // Every read value is defined; and when every node reads only values written before it (the common case,
   // told by the same look-ups) there is no cycle, so the topological sort is needed only otherwise.
-  let inFileOrder = true, outer = false;
-  for (let j = 0, e = 0; j < nodes.length; j++) {
+  let inFileOrder = true;
+  for (let j = 0; j < nodes.length; j++) {
     const n = nodes[j]!;
     const ins = n.inputs;
     for (let k = 0; k < ins.length; k++) {
       const i = ins[k]!;
-      if (!i) { ids.inIds[e++] = -1; continue; }
+      if (!i) continue;
       const id = names.id(i);
-      ids.inIds[e++] = id;
       if (id < 0) {
-        outer = true;
         if (!outerHas(i)) {
           throw new PleatError('bad-model', `${path}: node '${n.name || n.opType}' reads '${i}', which no node, input or initializer defines`);
         }
@@ -99,17 +89,12 @@ function validateGraph(g: Graph, outerHas: (v: string) => boolean, path: string,
         }
       }
     }
-    ids.inStart[j + 1] = e;
   }
   if (!inFileOrder) topoOrder(g); // throws on a cycle
   for (const o of g.outputs) {
     if (!has(o.name)) throw new PleatError('bad-model', `${path}: graph output '${o.name}' is never computed`);
   }
-  if (!nested) {
-    // (a graph with bodies, or reading outer values, has names from outside too: its index hashes them itself)
-    if (!outer) rememberIds(g, ids);
-    return;
-  }
+  if (!nested) return;
   for (const n of nodes) {
     for (const a of n.attributes) {
       const sgs = a.value.type === 'GRAPH' ? [a.value.g] : a.value.type === 'GRAPHS' ? a.value.graphs : [];
