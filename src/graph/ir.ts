@@ -80,10 +80,11 @@ export interface Tensor {
 /**
  * A tensor as the reader makes it. A 10^5-node graph holds some 10^5 small tensors, nearly all raw_data, and
  * most commands never look at their bytes: so raw_data stays two offsets into the file buffer, and the view
- * (`storage.bytes`) is made the first time something asks for `storage`, then kept (caches key on it). Own
- * fields are the Tensor fields but `storage`, which is a property of the class: code that copies a tensor
- * names `storage` (no spread of a tensor, which would drop it). storageKind and rawByteLength answer without
- * making the view.
+ * (`storage.bytes`) is made the first time something asks for `storage`, then kept (caches key on it). `origin`
+ * is offsets too, its object made when first asked for (by the writer). Own fields are the Tensor fields but
+ * these two, which are properties of the class: code that copies a tensor names them (no spread of a tensor),
+ * and code that clears `origin` assigns undefined (touch() does; `delete` would not reach the class's property).
+ * storageKind, rawByteLength and rawBytesOf answer without keeping a view.
  */
 export class FileTensor implements Tensor {
   declare overridable?: boolean;
@@ -92,40 +93,48 @@ export class FileTensor implements Tensor {
   dataType: DataTypeCode;
   docString: string;
   extra: RawField[];
-  origin?: Origin;
   #storage: TensorStorage | undefined;
-  /** While `#storage` is unset: raw_data is buf[start, end). */
-  #buf: Uint8Array | undefined;
+  /** The file buffer: raw_data is buf[start, end) while `#storage` is unset; the message is buf[ostart, oend). */
+  #buf: Uint8Array;
   #start: number;
   #end: number;
+  #ostart: number;
+  #oend: number;
+  /** The origin once made or set; null once cleared. */
+  #origin: Origin | undefined | null;
 
-  /** `storage` undefined: raw_data at buf[start, end). */
-  constructor(name: string, dims: number[], dataType: DataTypeCode, storage: TensorStorage | undefined, buf: Uint8Array | undefined,
-    start: number, end: number, docString: string, extra: RawField[], origin: Origin | undefined) {
+  /** `storage` undefined: raw_data at buf[start, end). The message itself is buf[ostart, oend). */
+  constructor(name: string, dims: number[], dataType: DataTypeCode, storage: TensorStorage | undefined, buf: Uint8Array,
+    start: number, end: number, docString: string, extra: RawField[], ostart: number, oend: number) {
     this.name = name;
     this.dims = dims;
     this.dataType = dataType;
     this.docString = docString;
     this.extra = extra;
-    this.origin = origin;
     this.#storage = storage;
-    this.#buf = storage === undefined ? buf : undefined;
+    this.#buf = buf;
     this.#start = start;
     this.#end = end;
+    this.#ostart = ostart;
+    this.#oend = oend;
+    this.#origin = undefined;
   }
 
   get storage(): TensorStorage {
-    return this.#storage ??= { kind: 'raw', bytes: this.#buf!.subarray(this.#start, this.#end) };
+    return this.#storage ??= { kind: 'raw', bytes: this.#buf.subarray(this.#start, this.#end) };
   }
 
   set storage(s: TensorStorage) {
     this.#storage = s;
-    this.#buf = undefined;
   }
 
-  /** The storage kind, without making a view of raw bytes. */
-  get storageKind(): TensorStorage['kind'] {
-    return this.#storage === undefined ? 'raw' : this.#storage.kind;
+  get origin(): Origin | undefined {
+    if (this.#origin === null) return undefined;
+    return this.#origin ??= { buf: this.#buf, start: this.#ostart, end: this.#oend };
+  }
+
+  set origin(o: Origin | undefined) {
+    this.#origin = o ?? null;
   }
 
   /**
@@ -134,8 +143,13 @@ export class FileTensor implements Tensor {
    */
   rawView(): Uint8Array | undefined {
     const s = this.#storage;
-    if (s === undefined) return this.#buf!.subarray(this.#start, this.#end);
+    if (s === undefined) return this.#buf.subarray(this.#start, this.#end);
     return s.kind === 'raw' || s.kind === 'external' ? s.bytes : undefined;
+  }
+
+  /** The storage kind, without making a view of raw bytes. */
+  get storageKind(): TensorStorage['kind'] {
+    return this.#storage === undefined ? 'raw' : this.#storage.kind;
   }
 
   /** Bytes of raw or external storage (-1 for other kinds), without making a view. */

@@ -190,7 +190,7 @@ export function decodeTensor(buf: Buf, start: number, end: number): Tensor {
   }
   // data_location and external_data entries are modelled through storage; raw_data stays offsets until used
   return new FileTensor(tname, dims, dataType, sawRaw && location !== 1 ? undefined : storage ?? { kind: 'empty' }, buf, rawStart, rawEnd,
-    docString, extra ?? NO_EXTRA, origin(buf, start, end));
+    docString, extra ?? NO_EXTRA, start, end);
 }
 
 function decodeDims(buf: Buf, start: number, end: number): Dim[] {

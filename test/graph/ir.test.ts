@@ -7,7 +7,10 @@ import { decodeModel, parseTensor } from '../../src/onnx/read.js';
 import { serializeModel } from '../../src/onnx/write.js';
 import { FileTensor, externalStorage, rawByteLength, rawBytesOf, storageKind, type Tensor } from '../../src/graph/ir.js';
 import { storedElementCount, tensorByteSize, tensorToFloat64 } from '../../src/graph/tensor.js';
-import { setTensorValues } from '../../src/graph/edit.js';
+import { setTensorValues, touch } from '../../src/graph/edit.js';
+import { readdirSync, readFileSync } from 'node:fs';
+import { join } from 'node:path';
+import { fileURLToPath } from 'node:url';
 
 const { onnx } = onnxProto;
 
@@ -73,6 +76,27 @@ describe('FileTensor', () => {
     expect(storageKind(t)).toBe('float_data');
     expect(rawByteLength(t)).toBe(-1);
     expect(Array.from(tensorToFloat64(t))).toEqual([7, 8]);
+  });
+
+  it('holds its origin as offsets, made on first use, cleared by touch and set back by assignment', () => {
+    const bytes = tensorBytes(tensor('w', [2], [1, 2]));
+    const t = parseTensor(bytes);
+    const o = t.origin!;
+    expect([o.buf, o.start, o.end]).toEqual([bytes, 0, bytes.byteLength]);
+    expect(t.origin).toBe(o); // kept once made (the reader of external data notes what it loaded on it)
+    touch(t);
+    expect(t.origin).toBeUndefined();
+    t.origin = o; // an undo puts it back
+    expect(t.origin).toBe(o);
+  });
+
+  it('no code deletes an origin (a tensor read from a file keeps it on its class, out of reach of delete)', () => {
+    const files = (dir: string): string[] => readdirSync(dir, { withFileTypes: true })
+      .flatMap((e) => (e.isDirectory() ? files(join(dir, e.name)) : e.name.endsWith('.ts') ? [join(dir, e.name)] : []));
+    const root = join(fileURLToPath(new URL('.', import.meta.url)), '..', '..');
+    const offenders = [...files(join(root, 'src')), ...files(join(root, 'test'))]
+      .filter((f) => /\bdelete\s+[^;\n]*\.origin\b/.test(readFileSync(f, 'utf8')));
+    expect(offenders).toEqual([]);
   });
 
   it('refuses raw_data beside a typed field in either order', () => {

@@ -80,9 +80,9 @@ function plainOf(v: unknown): unknown {
   if (Array.isArray(v)) return v.map(plainOf);
   if (v && typeof v === 'object') {
     const out: Record<string, unknown> = {};
-    // a tensor read from a file holds `storage` on its class (made on first use), not as an own field
+    // a tensor read from a file holds `storage` and `origin` on its class (made on first use), not as own fields
     const keys = Object.keys(v);
-    if ('storage' in v && !keys.includes('storage')) keys.push('storage');
+    for (const k of ['storage', 'origin']) if (k in v && !keys.includes(k) && (v as Record<string, unknown>)[k] !== undefined) keys.push(k);
     for (const k of keys.sort()) out[k] = k === 'origin' ? [(v as { origin: { start: number; end: number } }).origin.start, (v as { origin: { end: number } }).origin.end] : plainOf((v as Record<string, unknown>)[k]);
     return out;
   }
