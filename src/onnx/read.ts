@@ -30,6 +30,9 @@ function raw(buf: Buf, f: WireField): RawField {
 const NO_NAMES: readonly string[] = [];
 const NO_EXTRA: RawField[] = Object.freeze([]) as unknown as RawField[];
 
+/** Tensors with external data met since decodeModel began (none: parseModel skips the walk that loads them). */
+let externalSeen = 0;
+
 /** While a model is read, the cache its names are decoded through (see NameCache); undefined otherwise. */
 let interner: NameCache | undefined;
 
@@ -171,6 +174,7 @@ export function decodeTensor(buf: Buf, start: number, end: number): Tensor {
     throw new PleatError('bad-model', `tensor '${tname}' holds its data in both ${held.slice(0, -1).join(', ')} and ${held[held.length - 1]}; a tensor must use exactly one`);
   }
   if (location === 1) {
+    externalSeen++;
     storage = { kind: 'external', entries: external ?? [], bytes: new Uint8Array(0) };
   } else {
     switch (kind) {
@@ -425,6 +429,7 @@ export function decodeModelFields(buf: Buf, start: number, end: number, kids?: K
 export function decodeModel(buf: Buf, baseDir: string): Model {
   scratchIn.top = 0; scratchOut.top = 0; scratchN.length = 0; // a read that threw may have left entries
   interner = new NameCache(buf);
+  externalSeen = 0;
   dimsCache = new Array<readonly number[] | undefined>(DIMS_SLOTS);
   let fields: ModelFields;
   try {
@@ -468,7 +473,8 @@ export function parseModel(bytes: Uint8Array, baseDir: string, label = 'model', 
   if (model.irVersion <= 0 || model.opsets.length === 0 && model.irVersion >= 3) {
     throw new PleatError('bad-model', `${label}: not an ONNX model (no IR version or opset import)`);
   }
-  if (opts.externalData !== 'leave') loadExternalData(model, label, redirect);
+  // (the walk over every tensor is skipped when the read met no external data: 10^5 tensors make it show)
+  if (opts.externalData !== 'leave' && externalSeen > 0) loadExternalData(model, label, redirect);
   try {
     validateModel(model, { externalLoaded: opts.externalData !== 'leave' });
   } catch (e) {
