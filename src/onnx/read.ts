@@ -5,7 +5,7 @@ import { dirname, resolve } from 'node:path';
 import type {
   Attribute, AttributeValue, Dim, Graph, Model, Node, OpsetImport, Origin, RawField, Tensor, TensorStorage, ValueInfo,
 } from '../graph/ir.js';
-import { FileTensor } from '../graph/ir.js';
+import { FileNode, FileTensor } from '../graph/ir.js';
 import { PleatError } from '../errors.js';
 import {
   NameCache, WT_LEN, WireError, readFloat, readInt, readPackedFixed32, readPackedFixed64, readPackedVarints,
@@ -26,6 +26,11 @@ function raw(buf: Buf, f: WireField): RawField {
 // grown by push from empty keeps room for 17), messages are built in one literal with every field (a field added
 // later moves to a side store), and a message without unknown fields shares one frozen empty `extra`.
 
+/**
+ * The attributes of a node that has none (shared and frozen: code that adds an attribute to a node read from a
+ * file replaces the list; none pushes into it, and one that did would fail loudly rather than reach every node).
+ */
+const NO_ATTRIBUTES: Attribute[] = Object.freeze([]) as unknown as Attribute[];
 /** The `extra` of a message with no unknown fields (shared; code that adds fields replaces the list). */
 const NO_NAMES: readonly string[] = [];
 const NO_EXTRA: RawField[] = Object.freeze([]) as unknown as RawField[];
@@ -330,10 +335,8 @@ export function decodeNode(buf: Buf, start: number, end: number, depth: number, 
       default: (extra ??= []).push(raw(buf, f));
     }
   }
-  return {
-    name: nname, opType, domain, inputs: scratchIn.take(inBase), outputs: scratchOut.take(outBase), attributes: exact(attributes), docString,
-    extra: extra ?? NO_EXTRA, origin: origin(buf, start, end),
-  };
+  return new FileNode(nname, opType, domain, scratchIn.take(inBase), scratchOut.take(outBase),
+    attributes === undefined ? NO_ATTRIBUTES : exact(attributes), docString, extra ?? NO_EXTRA, buf, start, end);
 }
 
 export function decodeGraph(buf: Buf, start: number, end: number, depth = 0, kids?: KidRanges): Graph {

@@ -5,7 +5,7 @@ import onnxProto from 'onnx-proto';
 import { GraphBuilder, modelBytes, rng, tensor } from '../helpers/build.js';
 import { decodeModel, parseTensor } from '../../src/onnx/read.js';
 import { serializeModel } from '../../src/onnx/write.js';
-import { FileTensor, externalStorage, rawByteLength, rawBytesOf, storageKind, type Tensor } from '../../src/graph/ir.js';
+import { FileNode, FileTensor, externalStorage, rawByteLength, rawBytesOf, storageKind, type Node, type Tensor } from '../../src/graph/ir.js';
 import { storedElementCount, tensorByteSize, tensorToFloat64 } from '../../src/graph/tensor.js';
 import { setTensorValues, touch } from '../../src/graph/edit.js';
 import { readdirSync, readFileSync } from 'node:fs';
@@ -88,6 +88,29 @@ describe('FileTensor', () => {
     expect(t.origin).toBeUndefined();
     t.origin = o; // an undo puts it back
     expect(t.origin).toBe(o);
+  });
+
+  it('a node read from a file holds its origin the same way, and shares one frozen empty attribute list', () => {
+    const g = new GraphBuilder();
+    g.input('x', [1, 4]).output('y', [1, 4]);
+    g.node('Relu', ['x'], {}, { name: 'r', outputs: ['a'] });
+    g.node('LeakyRelu', ['a'], { alpha: 0.5 }, { name: 'l', outputs: ['y'] });
+    const bytes = modelBytes(g);
+    const m = decodeModel(bytes, '/x');
+    const [r, l] = m.graph.nodes as [Node, Node];
+    expect(r).toBeInstanceOf(FileNode);
+    const o = r.origin!;
+    expect(o.buf).toBe(bytes);
+    expect(r.origin).toBe(o);
+    expect(Buffer.from(bytes.subarray(o.start, o.end)).equals(Buffer.from(onnx.NodeProto.encode(onnx.ModelProto.decode(bytes).graph!.node![0]!).finish()))).toBe(true);
+    expect(Object.isFrozen(r.attributes)).toBe(true);
+    expect(l.attributes.map((a) => a.name)).toEqual(['alpha']);
+    // an edit writes the node anew: the writer sees it changed, and the model still reads back
+    touch(r);
+    expect(r.origin).toBeUndefined();
+    r.attributes = [...r.attributes, { name: 'note', value: { type: 'INT', i: 1 }, docString: '', refAttrName: '', extra: [] }];
+    const back = decodeModel(serializeModel(m), '/x');
+    expect(back.graph.nodes[0]!.attributes.map((a) => a.name)).toEqual(['note']);
   });
 
   it('no code deletes an origin (a tensor read from a file keeps it on its class, out of reach of delete)', () => {
