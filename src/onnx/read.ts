@@ -339,10 +339,42 @@ export function decodeNode(buf: Buf, start: number, end: number, depth: number, 
     attributes === undefined ? NO_ATTRIBUTES : exact(attributes), docString, extra ?? NO_EXTRA, buf, start, end);
 }
 
+/** How far ReaderNames looks ahead for an initializer's name among the node inputs. */
+const READER_WINDOW = 16;
+
+/**
+ * The string a node already holds for an initializer's name. Exporters write the nodes first and the initializers
+ * after, mostly in the order the nodes read them: by then the name cache has long dropped the node's string, so
+ * each weight's name was held twice (10^5 more strings for a 10^5-node graph, and string compares of equal names
+ * that could be one pointer). A cursor walks the node inputs in file order: the next few are compared, and a
+ * match moves the cursor past it. Initializers in another order just keep their own string.
+ */
+class ReaderNames {
+  private j = 0;
+  private k = 0;
+  constructor(private readonly nodes: readonly Node[]) {}
+
+  same(name: string): string {
+    const nodes = this.nodes;
+    let j = this.j, k = this.k;
+    for (let step = 0; step < READER_WINDOW && j < nodes.length; step++) {
+      const ins = nodes[j]!.inputs;
+      if (k >= ins.length) { j++; k = 0; continue; }
+      if (ins[k] === name) {
+        this.j = j; this.k = k + 1;
+        return ins[k]!;
+      }
+      k++;
+    }
+    return name;
+  }
+}
+
 export function decodeGraph(buf: Buf, start: number, end: number, depth = 0, kids?: KidRanges): Graph {
   if (depth > 64) throw new PleatError('bad-model', 'subgraphs nested more than 64 deep');
   const f = fieldsOf(buf, start, end);
   const g: Graph = { name: '', nodes: [], initializers: [], inputs: [], outputs: [], valueInfo: [], docString: '', extra: [] };
+  const readers = new ReaderNames(g.nodes);
   while (f.next()) {
     if (kids && (f.no === 1 || f.no === 5 || f.no >= 11 && f.no <= 13)) {
       expectLen(f, 'graph member');
@@ -352,7 +384,13 @@ export function decodeGraph(buf: Buf, start: number, end: number, depth = 0, kid
     switch (f.no) {
       case 1: expectLen(f, 'node'); g.nodes.push(decodeNode(buf, f.vstart, f.vend, depth)); break;
       case 2: g.name = readString(buf, f); break;
-      case 5: expectLen(f, 'initializer'); g.initializers.push(decodeTensor(buf, f.vstart, f.vend)); break;
+      case 5: {
+        expectLen(f, 'initializer');
+        const t = decodeTensor(buf, f.vstart, f.vend);
+        t.name = readers.same(t.name);
+        g.initializers.push(t);
+        break;
+      }
       case 10: g.docString = readString(buf, f); break;
       case 11: expectLen(f, 'input'); g.inputs.push(decodeValueInfo(buf, f.vstart, f.vend)); break;
       case 12: expectLen(f, 'output'); g.outputs.push(decodeValueInfo(buf, f.vstart, f.vend)); break;

@@ -164,6 +164,40 @@ describe('lean reader', () => {
     });
   }
 
+  for (const seed of [1, 2, 3, 4, 5, 6]) {
+    it(`gives each initializer its own name whatever order the weights follow (seed ${seed})`, () => {
+      // Initializers after the nodes (as exporters write them), in node order, shuffled, or partly so; weights
+      // that share a name's prefix or length, omitted inputs ('') and weights read by no node among them.
+      const r = rng(100 + seed);
+      const g = new GraphBuilder('w');
+      g.input('x', [1, 2]);
+      let last = 'x';
+      const weights: string[] = [];
+      const count = 100 + Math.floor(r() * 200);
+      for (let i = 0; i < count; i++) {
+        const w = r() < 0.5 ? `w${i}` : `${r() < 0.5 ? 'w' : 'wb'}${i}${r() < 0.5 ? '.b' : ''}`;
+        weights.push(w);
+        const out = `a${i}`;
+        const kind = r();
+        if (kind < 0.2) g.node('Clip', [last, '', w], {}, { outputs: [out] });
+        else if (kind < 0.4) g.node('Identity', [last], {}, { outputs: [out] });
+        else g.node('Add', r() < 0.5 ? [last, w] : [w, last], {}, { outputs: [out] });
+        last = out;
+      }
+      g.output(last, [1, 2]);
+      const order = weights.map((w, i) => [w, i] as const);
+      const mode = seed % 3;
+      for (let i = order.length - 1; i > 0; i--) {
+        if (mode === 0 || (mode === 2 && r() < 0.2)) {
+          const j = Math.floor(r() * (i + 1));
+          [order[i], order[j]] = [order[j]!, order[i]!];
+        }
+      }
+      for (const [w] of order) g.init(w, [1, 2], [1, 2]);
+      checkLean(modelBytes(g));
+    });
+  }
+
   it('the name cache gives back exactly the bytes it is asked for', () => {
     // direct: every range of a buffer of few distinct bytes (many equal-length names, many collisions)
     const r = rng(11);
