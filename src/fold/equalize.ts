@@ -356,7 +356,7 @@ function equalizeChain(chain: LivePair[], opsetOf: (d: string) => number, opts: 
 
 /** Put the weights and biases of a chain back as they were read. */
 function restore(saved: Map<Tensor, Tensor['storage']>): void {
-  for (const [t, storage] of saved) { t.storage = storage; delete t.origin; }
+  for (const [t, storage] of saved) { t.storage = storage; t.origin = undefined; }
 }
 
 const dbText = (x: number) => (Number.isFinite(x) ? x.toFixed(1) : x > 0 ? 'exact' : '-inf');

@@ -1,7 +1,7 @@
 // Reading and writing the big weights. Float32 raw data (the common case) is read through a Float32Array view
 // and scaled where it lies, each product computed in float64 and rounded once on store, with no float64 copy
 // of the whole tensor; other types and storage forms go through the general codecs in src/graph/tensor.ts.
-import { DataType, elementCount, type Tensor, type TensorStorage } from '../graph/ir.js';
+import { DataType, elementCount, rawBytesOf, type Tensor, type TensorStorage } from '../graph/ir.js';
 import { tensorToFloat64 } from '../graph/tensor.js';
 import { setTensorValues, touch } from '../graph/edit.js';
 import { deferTransform, ensureLoaded, isOnDisk, peekBytes, scanView } from '../onnx/sparse-read.js';
@@ -9,9 +9,9 @@ import { scaleRawFloat32, scaleWeights, type ChannelMap } from './weights.js';
 import { scaleRunsSimd } from './scale-simd.js';
 
 function rawFloat32(t: Tensor): Uint8Array | undefined {
-  const s = t.storage;
-  if (t.dataType !== DataType.FLOAT || (s.kind !== 'raw' && s.kind !== 'external')) return undefined;
-  return s.bytes.byteLength === elementCount(t.dims) * 4 ? s.bytes : undefined;
+  if (t.dataType !== DataType.FLOAT) return undefined;
+  const bytes = rawBytesOf(t); // (a tensor read from a file keeps no view for this: audit reads every weight once)
+  return bytes && bytes.byteLength === elementCount(t.dims) * 4 ? bytes : undefined;
 }
 
 /** A Float32Array over raw bytes: a view when aligned, else an aligned copy (Buffer.slice would only be a view). */

@@ -3,9 +3,12 @@
 import type { DataTypeCode, Tensor } from './ir.js';
 import { encodeStorage } from './tensor.js';
 
-/** Mark an IR object as changed (the writer will re-encode it). */
+/**
+ * Mark an IR object as changed (the writer will re-encode it). Assigns rather than deletes: a tensor read from a
+ * file holds its origin on its class (see FileTensor), where `delete` would not reach it.
+ */
 export function touch(obj: { origin?: unknown }): void {
-  delete obj.origin;
+  obj.origin = undefined;
 }
 
 /**

@@ -77,6 +77,165 @@ export interface Tensor {
   overridable?: boolean;
 }
 
+/**
+ * A tensor as the reader makes it. A 10^5-node graph holds some 10^5 small tensors, nearly all raw_data, and
+ * most commands never look at their bytes: so raw_data stays two offsets into the file buffer, and the view
+ * (`storage.bytes`) is made the first time something asks for `storage`, then kept (caches key on it). `origin`
+ * is offsets too, its object made when first asked for (by the writer). Own fields are the Tensor fields but
+ * these two, which are properties of the class: code that copies a tensor names them (no spread of a tensor),
+ * and code that clears `origin` assigns undefined (touch() does; `delete` would not reach the class's property).
+ * storageKind, rawByteLength and rawBytesOf answer without keeping a view.
+ */
+export class FileTensor implements Tensor {
+  declare overridable?: boolean;
+  name: string;
+  dims: number[];
+  dataType: DataTypeCode;
+  docString: string;
+  extra: RawField[];
+  #storage: TensorStorage | undefined;
+  /** The file buffer: raw_data is buf[start, end) while `#storage` is unset; the message is buf[ostart, oend). */
+  #buf: Uint8Array;
+  #start: number;
+  #end: number;
+  #ostart: number;
+  #oend: number;
+  /** The origin once made or set; null once cleared. */
+  #origin: Origin | undefined | null;
+
+  /** `storage` undefined: raw_data at buf[start, end). The message itself is buf[ostart, oend). */
+  constructor(name: string, dims: number[], dataType: DataTypeCode, storage: TensorStorage | undefined, buf: Uint8Array,
+    start: number, end: number, docString: string, extra: RawField[], ostart: number, oend: number) {
+    this.name = name;
+    this.dims = dims;
+    this.dataType = dataType;
+    this.docString = docString;
+    this.extra = extra;
+    this.#storage = storage;
+    this.#buf = buf;
+    this.#start = start;
+    this.#end = end;
+    this.#ostart = ostart;
+    this.#oend = oend;
+    this.#origin = undefined;
+  }
+
+  get storage(): TensorStorage {
+    return this.#storage ??= { kind: 'raw', bytes: this.#buf.subarray(this.#start, this.#end) };
+  }
+
+  set storage(s: TensorStorage) {
+    this.#storage = s;
+  }
+
+  get origin(): Origin | undefined {
+    if (this.#origin === null) return undefined;
+    return this.#origin ??= { buf: this.#buf, start: this.#ostart, end: this.#oend };
+  }
+
+  set origin(o: Origin | undefined) {
+    this.#origin = o ?? null;
+  }
+
+  /**
+   * A view of raw or external bytes (undefined for other kinds). While `storage` was never asked for, a new view
+   * each time that the tensor does not keep: an analysis reading every weight once leaves no view per tensor.
+   */
+  rawView(): Uint8Array | undefined {
+    const s = this.#storage;
+    if (s === undefined) return this.#buf.subarray(this.#start, this.#end);
+    return s.kind === 'raw' || s.kind === 'external' ? s.bytes : undefined;
+  }
+
+  /** The storage kind, without making a view of raw bytes. */
+  get storageKind(): TensorStorage['kind'] {
+    return this.#storage === undefined ? 'raw' : this.#storage.kind;
+  }
+
+  /** Bytes of raw or external storage (-1 for other kinds), without making a view. */
+  get rawByteLength(): number {
+    const s = this.#storage;
+    if (s === undefined) return this.#end - this.#start;
+    return s.kind === 'raw' || s.kind === 'external' ? s.bytes.byteLength : -1;
+  }
+}
+
+/**
+ * A node as the reader makes it: the Node fields as own fields, and `origin` as offsets into the file buffer, its
+ * object made when first asked for (by the writer), as for FileTensor: a graph of 10^5 nodes otherwise held 10^5
+ * origin objects for the garbage collector to copy. Code that copies a node names `origin` if it means to keep
+ * it (a spread does not carry it), and code that clears it assigns undefined (touch() does).
+ */
+export class FileNode implements Node {
+  name: string;
+  opType: string;
+  domain: string;
+  inputs: string[];
+  outputs: string[];
+  attributes: Attribute[];
+  docString: string;
+  extra: RawField[];
+  #buf: Uint8Array;
+  #start: number;
+  #end: number;
+  /** The origin once made or set; null once cleared. */
+  #origin: Origin | undefined | null;
+
+  constructor(name: string, opType: string, domain: string, inputs: string[], outputs: string[], attributes: Attribute[],
+    docString: string, extra: RawField[], buf: Uint8Array, start: number, end: number) {
+    this.name = name;
+    this.opType = opType;
+    this.domain = domain;
+    this.inputs = inputs;
+    this.outputs = outputs;
+    this.attributes = attributes;
+    this.docString = docString;
+    this.extra = extra;
+    this.#buf = buf;
+    this.#start = start;
+    this.#end = end;
+    this.#origin = undefined;
+  }
+
+  get origin(): Origin | undefined {
+    if (this.#origin === null) return undefined;
+    return this.#origin ??= { buf: this.#buf, start: this.#start, end: this.#end };
+  }
+
+  set origin(o: Origin | undefined) {
+    this.#origin = o ?? null;
+  }
+}
+
+/** A tensor's storage kind (a tensor read from a file answers without making a view of its bytes). */
+export function storageKind(t: Tensor): TensorStorage['kind'] {
+  return t instanceof FileTensor ? t.storageKind : t.storage.kind;
+}
+
+/** A tensor's external storage, or undefined when it is held otherwise (without making a view of raw bytes). */
+export function externalStorage(t: Tensor): Extract<TensorStorage, { kind: 'external' }> | undefined {
+  if (storageKind(t) !== 'external') return undefined;
+  const s = t.storage;
+  return s.kind === 'external' ? s : undefined;
+}
+
+/**
+ * A view of a tensor's raw or external bytes, undefined for other kinds (the same memory as `storage.bytes`; a
+ * tensor read from a file does not keep it, see FileTensor.rawView).
+ */
+export function rawBytesOf(t: Tensor): Uint8Array | undefined {
+  if (t instanceof FileTensor) return t.rawView();
+  const s = t.storage;
+  return s.kind === 'raw' || s.kind === 'external' ? s.bytes : undefined;
+}
+
+/** Bytes of a tensor's raw or external storage, -1 for other kinds (read tensors answer without a view). */
+export function rawByteLength(t: Tensor): number {
+  if (t instanceof FileTensor) return t.rawByteLength;
+  const s = t.storage;
+  return s.kind === 'raw' || s.kind === 'external' ? s.bytes.byteLength : -1;
+}
+
 export type AttributeValue =
   | { type: 'FLOAT'; f: number }
   | { type: 'INT'; i: number }

@@ -19,22 +19,49 @@ function hashOf(s: string): number {
   return h ^ (h >>> 16);
 }
 
-/** A table for at most `capacity` distinct names (adding more is a bug in the caller and throws). */
-export function nameTable(capacity: number): NameTable {
-  let slotsLen = 16;
-  while (slotsLen < capacity * 2) slotsLen *= 2; // load factor at most 1/2: short probe runs
-  const mask = slotsLen - 1;
+/** Slots for `count` names: a power of two, at least twice as many (load factor at most 1/2: short probe runs). */
+function slotsFor(count: number): number {
+  let n = 16;
+  while (n < count * 2) n *= 2;
+  return n;
+}
+
+/**
+ * A table for at most `capacity` distinct names (adding more is a bug in the caller and throws); with `grow`,
+ * `capacity` is a first guess and the table doubles when it fills (for callers that can only bound the count
+ * loosely: a table sized by every occurrence of every name was several times too big, and its memory resident).
+ */
+export function nameTable(capacity: number, grow = false): NameTable {
+  let slotsLen = slotsFor(capacity);
+  let mask = slotsLen - 1;
   // slot i is the pair [2i] = id + 1 (0: empty), [2i + 1] = the name's hash: one memory line per probe (a table
   // of 10^5 names is larger than the processor's cache, so each probe that reads two arrays misses twice)
-  const slots = new Int32Array(slotsLen * 2);
+  let slots = new Int32Array(slotsLen * 2);
   const names: string[] = [];
+  /** Twice the slots, every name put back by its kept hash (no string is read again). */
+  const double = () => {
+    const old = slots;
+    slotsLen *= 2;
+    mask = slotsLen - 1;
+    slots = new Int32Array(slotsLen * 2);
+    for (let s = 0; s < old.length; s += 2) {
+      const k = old[s]!;
+      if (k === 0) continue;
+      const h = old[s + 1]!;
+      let i = h & mask;
+      while (slots[2 * i] !== 0) i = (i + 1) & mask;
+      slots[2 * i] = k;
+      slots[2 * i + 1] = h;
+    }
+  };
   const find = (name: string, add: boolean): number => {
     const h = hashOf(name);
     for (let i = h & mask; ; i = (i + 1) & mask) {
       const k = slots[2 * i]! - 1;
       if (k < 0) {
         if (!add) return -1;
-        if (names.length >= capacity) throw new Error('name table over capacity');
+        if (!grow && names.length >= capacity) throw new Error('name table over capacity');
+        if ((names.length + 1) * 2 > slotsLen) { double(); return find(name, true); } // (never without grow)
         slots[2 * i] = names.length + 1;
         slots[2 * i + 1] = h;
         names.push(name);

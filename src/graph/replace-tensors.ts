@@ -25,7 +25,8 @@ function swapAttribute(a: Attribute, swap: TensorSwap): Attribute {
 
 function swapNode(n: Node, swap: TensorSwap): Node {
   const attrs = n.attributes.map((a) => swapAttribute(a, swap));
-  return attrs.some((a, i) => a !== n.attributes[i]) ? { ...n, attributes: attrs } : n;
+  // (origin named: a node read from a file holds it on its class, where a spread does not reach)
+  return attrs.some((a, i) => a !== n.attributes[i]) ? { ...n, attributes: attrs, origin: n.origin } : n;
 }
 
 function swapGraph(g: Graph, swap: TensorSwap): Graph {

@@ -1,6 +1,6 @@
 // Tensor element codecs: every TensorProto storage form decoded to Float64Array for math, and encoded back
 // in the tensor's own type and storage form.
-import { DataType, elementCount, type DataTypeCode, type Tensor, type TensorStorage } from './ir.js';
+import { DataType, elementCount, rawByteLength, rawBytesOf, type DataTypeCode, type Tensor, type TensorStorage } from './ir.js';
 import { PleatError } from '../errors.js';
 import { ensureLoaded, markLoaded, peekBytes } from './lazy-bytes.js';
 
@@ -126,6 +126,11 @@ function readRaw(bytes: Uint8Array, code: DataTypeCode, n: number, out: Float64A
 
 /** Number of elements actually present in a tensor's storage (for the "data shorter than dims" check). */
 export function storedElementCount(t: Tensor): number {
+  const raw = rawByteLength(t); // a tensor read from a file answers without a view of its bytes
+  if (raw >= 0) {
+    const b = bytesPerElement(t.dataType);
+    return b ? Math.floor(raw / b) : 0;
+  }
   const s = t.storage;
   switch (s.kind) {
     case 'raw': case 'external': {
@@ -154,9 +159,14 @@ export function tensorToFloat64(t: Tensor, into?: Float64Array): Float64Array {
       `tensor '${t.name}' holds ${have} elements but its dims [${t.dims.join(',')}] need ${n}`);
   }
   const out = into?.length === n ? into : new Float64Array(n);
+  const raw = rawBytesOf(t); // (a tensor read from a file keeps no view for this)
+  if (raw) {
+    readRaw(peekBytes(raw), t.dataType, n, out); // on-disk bytes are read, not kept
+    return out;
+  }
   const s = t.storage;
   switch (s.kind) {
-    case 'raw': case 'external': readRaw(peekBytes(s.bytes), t.dataType, n, out); break; // on-disk bytes are read, not kept
+    case 'raw': case 'external': break; // (read above)
     case 'float_data': case 'double_data': for (let i = 0; i < n; i++) out[i] = s.values[i]!; break;
     case 'int32_data':
       if (t.dataType === DataType.FLOAT16) for (let i = 0; i < n; i++) out[i] = halfBitsToNumber(s.values[i]! & 0xffff);
@@ -251,6 +261,8 @@ export function tensorBytes(t: Tensor): Uint8Array {
 
 /** Bytes a tensor's data occupies (inline or external). */
 export function tensorByteSize(t: Tensor): number {
+  const raw = rawByteLength(t);
+  if (raw >= 0) return raw;
   const s = t.storage;
   switch (s.kind) {
     case 'raw': case 'external': return s.bytes.byteLength;

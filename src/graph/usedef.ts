@@ -63,46 +63,58 @@ function indexGraph(graph: Graph): Built {
   const nodes = graph.nodes.slice(); // the index answers for the graph as it was built, as a Map of nodes would
   const tensors = graph.initializers.slice();
   const bodies = new Map<number, string[]>();
-  let bound = tensors.length + graph.inputs.length + graph.outputs.length;
-  let reads = 0;
+  let writes = 0, reads = 0;
   for (let j = 0; j < nodes.length; j++) {
     const n = nodes[j]!;
-    bound += n.inputs.length + n.outputs.length;
+    writes += n.outputs.length;
     reads += n.inputs.length;
     if (hasSubgraphs(n)) {
       const refs = bodyReads(n);
       bodies.set(j, refs);
-      bound += refs.length;
       reads += refs.length;
     }
   }
-  const ids = nameTable(bound);
+  // Names first, then the arrays at the number of names found. Each value is written once, so the writers bound
+  // the names well (a table sized by every occurrence was several times too big: 16 MB resident for 10^5 nodes);
+  // the table grows for names only read (from outside, or never written).
+  const ids = nameTable(tensors.length + graph.inputs.length + writes + 16, true);
   const idOf = ids.add;
-  const producer = new Int32Array(bound).fill(-1);
-  const init = new Int32Array(bound).fill(-1);
-  const flags = new Uint8Array(bound);
-  const lastReader = new Int32Array(bound).fill(-1);
+  const outIds = new Int32Array(writes);
+  const readIds = new Int32Array(reads);
+  for (let j = 0, w = 0, e = 0; j < nodes.length; j++) {
+    const n = nodes[j]!;
+    for (const o of n.outputs) outIds[w++] = o ? idOf(o) : -1;
+    for (const i of n.inputs) readIds[e++] = i ? idOf(i) : -1;
+    const refs = bodies.get(j);
+    if (refs) for (const r of refs) readIds[e++] = idOf(r);
+  }
+  const outputIds = graph.outputs.map((o) => idOf(o.name));
+  const inputIds = graph.inputs.map((v) => idOf(v.name));
+  const tensorIds = tensors.map((t) => idOf(t.name));
+  const size = ids.size;
+  const producer = new Int32Array(size).fill(-1);
+  const init = new Int32Array(size).fill(-1);
+  const flags = new Uint8Array(size);
+  const lastReader = new Int32Array(size).fill(-1);
   const edgeValue = new Int32Array(reads);
   const edgeNode = new Int32Array(reads);
   let edges = 0;
-  const addReader = (v: string, j: number) => {
-    const id = idOf(v);
-    if (lastReader[id] === j) return; // a node reading a value twice is one reader
-    lastReader[id] = j;
-    edgeValue[edges] = id;
-    edgeNode[edges++] = j;
-  };
-  for (let j = 0; j < nodes.length; j++) {
+  for (let j = 0, w = 0, e = 0; j < nodes.length; j++) {
     const n = nodes[j]!;
-    for (const o of n.outputs) if (o) producer[idOf(o)] = j;
-    for (const i of n.inputs) if (i) addReader(i, j);
+    for (let k = n.outputs.length; k > 0; k--) { const id = outIds[w++]!; if (id >= 0) producer[id] = j; }
     const refs = bodies.get(j);
-    if (refs) for (const r of refs) addReader(r, j);
+    for (let k = n.inputs.length + (refs ? refs.length : 0); k > 0; k--) {
+      const id = readIds[e++]!;
+      if (id < 0 || lastReader[id] === j) continue; // a node reading a value twice is one reader
+      lastReader[id] = j;
+      edgeValue[edges] = id;
+      edgeNode[edges++] = j;
+    }
   }
-  for (const o of graph.outputs) flags[idOf(o.name)]! |= IS_OUTPUT;
-  for (const v of graph.inputs) flags[idOf(v.name)]! |= IS_INPUT;
-  for (let k = 0; k < tensors.length; k++) init[idOf(tensors[k]!.name)] = k;
-  return { nodes, tensors, ids, producer, init, flags, readers: csr(ids.size, edgeValue, edgeNode, edges), bodies };
+  for (const id of outputIds) flags[id]! |= IS_OUTPUT;
+  for (const id of inputIds) flags[id]! |= IS_INPUT;
+  for (let k = 0; k < tensors.length; k++) init[tensorIds[k]!] = k;
+  return { nodes, tensors, ids, producer, init, flags, readers: csr(size, edgeValue, edgeNode, edges), bodies };
 }
 
 /**

@@ -2,7 +2,7 @@
 // matches its dims and type. Errors name the graph, node and value.
 import { PleatError } from '../errors.js';
 import type { Graph, Model, Tensor } from './ir.js';
-import { elementCount, hasSubgraphs, subgraphsOf } from './ir.js';
+import { elementCount, hasSubgraphs, storageKind, subgraphsOf } from './ir.js';
 import { isKnownDataType, storedElementCount, dataTypeName } from './tensor.js';
 import { topoOrder } from './topo.js';
 import { nameTable } from './names.js';
@@ -12,8 +12,9 @@ function checkTensor(t: Tensor, where: string, externalLoaded: boolean): void {
   if (!isKnownDataType(t.dataType)) {
     throw new PleatError('bad-model', `${where}: tensor '${t.name}' has unknown data type ${t.dataType}`);
   }
-  if (t.storage.kind === 'string_data' || t.dataType === 8) return;
-  if (t.storage.kind === 'external' && !externalLoaded) return; // structure only: the bytes stay on disk
+  const kind = storageKind(t); // not t.storage: a tensor read from a file would make a view of its bytes
+  if (kind === 'string_data' || t.dataType === 8) return;
+  if (kind === 'external' && !externalLoaded) return; // structure only: the bytes stay on disk
   const need = elementCount(t.dims);
   const have = storedElementCount(t);
   if (have < need) {

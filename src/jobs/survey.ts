@@ -1,7 +1,7 @@
 // `survey`: what a model file holds, for people and scripts.
 import { statSync } from 'node:fs';
 import type { Dim, Graph, Model, Tensor, ValueInfo } from '../graph/ir.js';
-import { hasSubgraphs, subgraphsOf } from '../graph/ir.js';
+import { externalStorage, hasSubgraphs, storageKind, subgraphsOf } from '../graph/ir.js';
 import { bytesPerElement, dataTypeName, tensorByteSize } from '../graph/tensor.js';
 import { eachTensor, externalRef, resolveLocation } from '../onnx/external.js';
 import { readModelFile } from '../onnx/read.js';
@@ -57,7 +57,8 @@ function describeValue(v: ValueInfo): SurveyValue {
 
 /** Bytes a tensor's dims need (external tensors left unloaded hold none yet). */
 function declaredBytes(t: Tensor): number {
-  if (t.storage.kind !== 'external' || t.storage.bytes.byteLength > 0) return tensorByteSize(t);
+  const ext = externalStorage(t);
+  if (!ext || ext.bytes.byteLength > 0) return tensorByteSize(t);
   const per = bytesPerElement(t.dataType) ?? 0;
   return t.dims.reduce((a, d) => a * Number(d), 1) * per;
 }
@@ -66,7 +67,8 @@ function declaredBytes(t: Tensor): number {
 function missingExternal(model: Model, label: string): MissingData[] {
   const out: MissingData[] = [];
   eachTensor(model.graph, (t) => {
-    if (t.storage.kind !== 'external' || t.storage.bytes.byteLength > 0) return;
+    const ext = externalStorage(t);
+    if (!ext || ext.bytes.byteLength > 0) return;
     let location = '?';
     try {
       const ref = externalRef(t, label);
@@ -95,16 +97,38 @@ function missingExternal(model: Model, label: string): MissingData[] {
 
 export function surveyModel(model: Model, file: string | null = null, missingData: MissingData[] = []): SurveyReport {
   const counts = new Map<string, number>();
-  let nodeCount = 0, subgraphCount = 0, initCount = 0, initBytes = 0, constCount = 0, constBytes = 0;
+  let nodeCount = 0, subgraphCount = 0, initCount = 0, initBytes = 0, constCount = 0, constBytes = 0, external = 0;
+  // graph inputs that an initializer gives a default: the initializers against a set of the inputs (older exports
+  // list every weight as a graph input too, and a search per input grew with their product)
+  const inputNames = new Set(model.graph.inputs.map((v) => v.name));
+  const initialized = new Set<string>();
+  // One walk over every tensor (a graph of 10^5 nodes holds some 10^5 tensors: each pass over them shows)
   const walk = (g: Graph) => {
-    for (const t of g.initializers) { initCount++; initBytes += declaredBytes(t); }
+    const main = g === model.graph;
+    for (const t of g.initializers) {
+      initCount++;
+      const bytes = declaredBytes(t);
+      initBytes += bytes;
+      if (storageKind(t) === 'external') external += bytes;
+      if (main && inputNames.has(t.name)) initialized.add(t.name);
+    }
     for (const n of g.nodes) {
       nodeCount++;
       const op = n.domain && n.domain !== 'ai.onnx' ? `${n.domain}.${n.opType}` : n.opType;
       counts.set(op, (counts.get(op) ?? 0) + 1);
-      if (n.opType === 'Constant') {
-        constCount++;
-        for (const a of n.attributes) if (a.value.type === 'TENSOR') constBytes += declaredBytes(a.value.t);
+      const constant = n.opType === 'Constant';
+      if (constant) constCount++;
+      for (const a of n.attributes) {
+        const v = a.value;
+        if (v.type === 'TENSOR') {
+          const ext = storageKind(v.t) === 'external';
+          if (!constant && !ext) continue;
+          const bytes = declaredBytes(v.t);
+          if (constant) constBytes += bytes;
+          if (ext) external += bytes;
+        } else if (v.type === 'TENSORS') {
+          for (const t of v.tensors) if (storageKind(t) === 'external') external += declaredBytes(t);
+        }
       }
       if (hasSubgraphs(n)) for (const sg of subgraphsOf(n)) { subgraphCount++; walk(sg); }
     }
@@ -113,13 +137,6 @@ export function surveyModel(model: Model, file: string | null = null, missingDat
   const gaps = evaluatorGaps(model);
   const opCounts = [...counts].map(([op, count]) => ({ op, count }))
     .sort((a, b) => b.count - a.count || (a.op < b.op ? -1 : a.op > b.op ? 1 : 0));
-  // graph inputs that an initializer gives a default: one pass over the initializers against a set of the inputs
-  // (older exports list every weight as a graph input too, and a search per input grew with their product)
-  const inputNames = new Set(model.graph.inputs.map((v) => v.name));
-  const initialized = new Set<string>();
-  for (const t of model.graph.initializers) if (inputNames.has(t.name)) initialized.add(t.name);
-  let external = 0;
-  eachTensor(model.graph, (t) => { if (t.storage.kind === 'external') external += declaredBytes(t); });
   return {
     schemaVersion: SCHEMA_VERSION,
     command: 'survey',

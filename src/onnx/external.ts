@@ -3,7 +3,7 @@
 import { closeSync, constants, fstatSync, openSync, readSync, realpathSync } from 'node:fs';
 import { isAbsolute, relative, resolve, sep } from 'node:path';
 import type { Graph, Model, Tensor } from '../graph/ir.js';
-import { elementCount, hasSubgraphs, subgraphsOf } from '../graph/ir.js';
+import { elementCount, externalStorage, hasSubgraphs, storageKind, subgraphsOf } from '../graph/ir.js';
 import { bytesPerElement, dataTypeName } from '../graph/tensor.js';
 import { PleatError } from '../errors.js';
 
@@ -58,7 +58,8 @@ export function loadExternalData(model: Model, label: string, redirect?: Readonl
   let folder: string | undefined;
   try {
     eachTensor(model.graph, (t) => {
-      if (t.storage.kind !== 'external') return;
+      const ext = externalStorage(t);
+      if (!ext) return;
       const ref = externalRef(t, label);
       const named = resolveLocation(model.baseDir, ref.location, label, t.name);
       const path = redirect?.get(named) ?? named;
@@ -110,7 +111,7 @@ export function loadExternalData(model: Model, label: string, redirect?: Readonl
         if (n <= 0) break;
         got += n;
       }
-      t.storage = { kind: 'external', entries: t.storage.entries, bytes };
+      t.storage = { kind: 'external', entries: ext.entries, bytes };
       // Loading is not a change: remember what was loaded so an untouched tensor re-emits its bytes.
       if (t.origin) t.origin.loaded = bytes;
     });
@@ -123,7 +124,7 @@ export function loadExternalData(model: Model, label: string, redirect?: Readonl
 export function sideFilePaths(model: Model): string[] {
   const out = new Set<string>();
   eachTensor(model.graph, (t) => {
-    if (t.storage.kind !== 'external') return;
+    if (storageKind(t) !== 'external') return;
     const ref = externalRef(t, 'model');
     const p = resolve(model.baseDir, ref.location);
     try { out.add(realpathSync(p)); } catch { out.add(p); }
@@ -133,7 +134,7 @@ export function sideFilePaths(model: Model): string[] {
 
 export function externalBytes(model: Model): number {
   let n = 0;
-  eachTensor(model.graph, (t) => { if (t.storage.kind === 'external') n += t.storage.bytes.byteLength; });
+  eachTensor(model.graph, (t) => { n += externalStorage(t)?.bytes.byteLength ?? 0; });
   return n;
 }
 

@@ -5,6 +5,7 @@ import { dirname, resolve } from 'node:path';
 import type {
   Attribute, AttributeValue, Dim, Graph, Model, Node, OpsetImport, Origin, RawField, Tensor, TensorStorage, ValueInfo,
 } from '../graph/ir.js';
+import { FileNode, FileTensor } from '../graph/ir.js';
 import { PleatError } from '../errors.js';
 import {
   NameCache, WT_LEN, WireError, readFloat, readInt, readPackedFixed32, readPackedFixed64, readPackedVarints,
@@ -25,9 +26,17 @@ function raw(buf: Buf, f: WireField): RawField {
 // grown by push from empty keeps room for 17), messages are built in one literal with every field (a field added
 // later moves to a side store), and a message without unknown fields shares one frozen empty `extra`.
 
+/**
+ * The attributes of a node that has none (shared and frozen: code that adds an attribute to a node read from a
+ * file replaces the list; none pushes into it, and one that did would fail loudly rather than reach every node).
+ */
+const NO_ATTRIBUTES: Attribute[] = Object.freeze([]) as unknown as Attribute[];
 /** The `extra` of a message with no unknown fields (shared; code that adds fields replaces the list). */
 const NO_NAMES: readonly string[] = [];
 const NO_EXTRA: RawField[] = Object.freeze([]) as unknown as RawField[];
+
+/** Tensors with external data met since decodeModel began (none: parseModel skips the walk that loads them). */
+let externalSeen = 0;
 
 /** While a model is read, the cache its names are decoded through (see NameCache); undefined otherwise. */
 let interner: NameCache | undefined;
@@ -63,6 +72,35 @@ function takeNumbers(base: number): number[] {
   const out = scratchN.slice(base);
   while (scratchN.length > base) scratchN.pop();
   return out;
+}
+
+/** Slots of the dims cache (a graph has few distinct shapes; a repeat usually follows soon). */
+const DIMS_SLOTS = 1024;
+let dimsCache: Array<readonly number[] | undefined> | undefined;
+
+/**
+ * The dims pushed on `scratchN` above `base`. While a model is read they come from a small cache of frozen lists,
+ * one per shape: 10^5 tensors of a few shapes made 10^5 lists otherwise. Frozen, so code that changed one in place
+ * (none does: dims are replaced, see setTensorValues) would fail loudly rather than reshape other tensors.
+ */
+function takeDims(base: number): number[] {
+  if (dimsCache === undefined) return takeNumbers(base);
+  const n = scratchN.length - base;
+  let h = n;
+  for (let i = base; i < scratchN.length; i++) h = Math.imul(h ^ (scratchN[i]! | 0), 0x01000193) ^ Math.floor(scratchN[i]! / 4294967296);
+  h = (h ^ (h >>> 13)) & (DIMS_SLOTS - 1);
+  const hit = dimsCache[h];
+  if (hit !== undefined && hit.length === n) {
+    let j = 0;
+    while (j < n && hit[j] === scratchN[base + j]) j++;
+    if (j === n) {
+      while (scratchN.length > base) scratchN.pop();
+      return hit as number[];
+    }
+  }
+  const dims = Object.freeze(takeNumbers(base));
+  dimsCache[h] = dims;
+  return dims as number[];
 }
 
 /** A list at its exact length (a list grown by push keeps spare room). */
@@ -101,7 +139,7 @@ export function decodeTensor(buf: Buf, start: number, end: number): Tensor {
   let floats: number[] | undefined, int32s: number[] | undefined, doubles: number[] | undefined;
   let int64s: bigint[] | undefined, uint64s: bigint[] | undefined, strings: Uint8Array[] | undefined;
   let external: Array<[string, string]> | undefined;
-  let location = 0;
+  let location = 0, rawStart = 0, rawEnd = 0, sawRaw = false;
   let kind: TensorStorage['kind'] | undefined;
   // typed data fields present, in the order first seen (a second one, or one beside raw_data, is invalid); a
   // list made only when there is one, since most tensors hold raw_data
@@ -115,7 +153,7 @@ export function decodeTensor(buf: Buf, start: number, end: number): Tensor {
       case 6: expectLen(f, 'string_data'); (strings ??= []).push(buf.subarray(f.vstart, f.vend)); kind = 'string_data'; typed = withOnce(typed, kind); break;
       case 7: readPackedVarintsBig(buf, f, int64s ??= []); kind = 'int64_data'; typed = withOnce(typed, kind); break;
       case 8: tname = name(buf, f); break;
-      case 9: expectLen(f, 'raw_data'); storage = { kind: 'raw', bytes: buf.subarray(f.vstart, f.vend) }; kind = 'raw'; break;
+      case 9: expectLen(f, 'raw_data'); rawStart = f.vstart; rawEnd = f.vend; sawRaw = true; kind = 'raw'; break;
       case 10: readPackedFixed64(buf, f, doubles ??= []); kind = 'double_data'; typed = withOnce(typed, kind); break;
       case 11: readPackedVarintsBig(buf, f, uint64s ??= []); kind = 'uint64_data'; typed = withOnce(typed, kind); break;
       case 12: docString = readString(buf, f); break;
@@ -133,14 +171,15 @@ export function decodeTensor(buf: Buf, start: number, end: number): Tensor {
       default: (extra ??= []).push(raw(buf, f));
     }
   }
-  const dims = takeNumbers(dimBase);
+  const dims = takeDims(dimBase);
   // ONNX IR: a tensor's data lives in raw_data or in one typed *_data field, not both; runtimes disagree on
   // which one wins when several are present (onnx/onnx.proto3, TensorProto; the checker refuses it).
-  const held = typed === undefined ? NO_NAMES : [...typed, ...(storage?.kind === 'raw' ? ['raw_data'] : [])];
+  const held = typed === undefined ? NO_NAMES : [...typed, ...(sawRaw ? ['raw_data'] : [])];
   if (held.length > 1) {
     throw new PleatError('bad-model', `tensor '${tname}' holds its data in both ${held.slice(0, -1).join(', ')} and ${held[held.length - 1]}; a tensor must use exactly one`);
   }
   if (location === 1) {
+    externalSeen++;
     storage = { kind: 'external', entries: external ?? [], bytes: new Uint8Array(0) };
   } else {
     switch (kind) {
@@ -158,8 +197,9 @@ export function decodeTensor(buf: Buf, start: number, end: number): Tensor {
   if (badDim) {
     throw new PleatError('bad-model', `tensor '${tname}' has an invalid dimension in [${dims.join(',')}]`);
   }
-  // data_location and external_data entries are modelled through storage
-  return { name: tname, dims, dataType, storage: storage ?? { kind: 'empty' }, docString, extra: extra ?? NO_EXTRA, origin: origin(buf, start, end) };
+  // data_location and external_data entries are modelled through storage; raw_data stays offsets until used
+  return new FileTensor(tname, dims, dataType, sawRaw && location !== 1 ? undefined : storage ?? { kind: 'empty' }, buf, rawStart, rawEnd,
+    docString, extra ?? NO_EXTRA, start, end);
 }
 
 function decodeDims(buf: Buf, start: number, end: number): Dim[] {
@@ -295,16 +335,46 @@ export function decodeNode(buf: Buf, start: number, end: number, depth: number, 
       default: (extra ??= []).push(raw(buf, f));
     }
   }
-  return {
-    name: nname, opType, domain, inputs: scratchIn.take(inBase), outputs: scratchOut.take(outBase), attributes: exact(attributes), docString,
-    extra: extra ?? NO_EXTRA, origin: origin(buf, start, end),
-  };
+  return new FileNode(nname, opType, domain, scratchIn.take(inBase), scratchOut.take(outBase),
+    attributes === undefined ? NO_ATTRIBUTES : exact(attributes), docString, extra ?? NO_EXTRA, buf, start, end);
+}
+
+/** How far ReaderNames looks ahead for an initializer's name among the node inputs. */
+const READER_WINDOW = 16;
+
+/**
+ * The string a node already holds for an initializer's name. Exporters write the nodes first and the initializers
+ * after, mostly in the order the nodes read them: by then the name cache has long dropped the node's string, so
+ * each weight's name was held twice (10^5 more strings for a 10^5-node graph, and string compares of equal names
+ * that could be one pointer). A cursor walks the node inputs in file order: the next few are compared, and a
+ * match moves the cursor past it. Initializers in another order just keep their own string.
+ */
+class ReaderNames {
+  private j = 0;
+  private k = 0;
+  constructor(private readonly nodes: readonly Node[]) {}
+
+  same(name: string): string {
+    const nodes = this.nodes;
+    let j = this.j, k = this.k;
+    for (let step = 0; step < READER_WINDOW && j < nodes.length; step++) {
+      const ins = nodes[j]!.inputs;
+      if (k >= ins.length) { j++; k = 0; continue; }
+      if (ins[k] === name) {
+        this.j = j; this.k = k + 1;
+        return ins[k]!;
+      }
+      k++;
+    }
+    return name;
+  }
 }
 
 export function decodeGraph(buf: Buf, start: number, end: number, depth = 0, kids?: KidRanges): Graph {
   if (depth > 64) throw new PleatError('bad-model', 'subgraphs nested more than 64 deep');
   const f = fieldsOf(buf, start, end);
   const g: Graph = { name: '', nodes: [], initializers: [], inputs: [], outputs: [], valueInfo: [], docString: '', extra: [] };
+  const readers = new ReaderNames(g.nodes);
   while (f.next()) {
     if (kids && (f.no === 1 || f.no === 5 || f.no >= 11 && f.no <= 13)) {
       expectLen(f, 'graph member');
@@ -314,7 +384,13 @@ export function decodeGraph(buf: Buf, start: number, end: number, depth = 0, kid
     switch (f.no) {
       case 1: expectLen(f, 'node'); g.nodes.push(decodeNode(buf, f.vstart, f.vend, depth)); break;
       case 2: g.name = readString(buf, f); break;
-      case 5: expectLen(f, 'initializer'); g.initializers.push(decodeTensor(buf, f.vstart, f.vend)); break;
+      case 5: {
+        expectLen(f, 'initializer');
+        const t = decodeTensor(buf, f.vstart, f.vend);
+        t.name = readers.same(t.name);
+        g.initializers.push(t);
+        break;
+      }
       case 10: g.docString = readString(buf, f); break;
       case 11: expectLen(f, 'input'); g.inputs.push(decodeValueInfo(buf, f.vstart, f.vend)); break;
       case 12: expectLen(f, 'output'); g.outputs.push(decodeValueInfo(buf, f.vstart, f.vend)); break;
@@ -394,11 +470,14 @@ export function decodeModelFields(buf: Buf, start: number, end: number, kids?: K
 export function decodeModel(buf: Buf, baseDir: string): Model {
   scratchIn.top = 0; scratchOut.top = 0; scratchN.length = 0; // a read that threw may have left entries
   interner = new NameCache(buf);
+  externalSeen = 0;
+  dimsCache = new Array<readonly number[] | undefined>(DIMS_SLOTS);
   let fields: ModelFields;
   try {
     fields = decodeModelFields(buf, 0, buf.byteLength);
   } finally {
     interner = undefined;
+    dimsCache = undefined;
   }
   const { graph, ...m } = fields;
   if (!graph) throw new PleatError('bad-model', 'no graph in the file: this is not an ONNX model');
@@ -435,7 +514,8 @@ export function parseModel(bytes: Uint8Array, baseDir: string, label = 'model', 
   if (model.irVersion <= 0 || model.opsets.length === 0 && model.irVersion >= 3) {
     throw new PleatError('bad-model', `${label}: not an ONNX model (no IR version or opset import)`);
   }
-  if (opts.externalData !== 'leave') loadExternalData(model, label, redirect);
+  // (the walk over every tensor is skipped when the read met no external data: 10^5 tensors make it show)
+  if (opts.externalData !== 'leave' && externalSeen > 0) loadExternalData(model, label, redirect);
   try {
     validateModel(model, { externalLoaded: opts.externalData !== 'leave' });
   } catch (e) {

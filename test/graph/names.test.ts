@@ -27,6 +27,22 @@ describe('name table', () => {
     });
   }
 
+  for (const seed of [4, 5]) {
+    it(`a growing table started small assigns the same ids as a Map (seed ${seed})`, () => {
+      const r = rng(seed);
+      const t = nameTable(1, true);
+      const m = new Map<string, number>();
+      for (let k = 0; k < 20000; k++) {
+        const s = `${'ab/é_0'[Math.floor(r() * 6)]}${Math.floor(r() * 8000)}`;
+        if (!m.has(s)) m.set(s, m.size);
+        expect(t.add(s)).toBe(m.get(s));
+      }
+      expect(t.size).toBe(m.size);
+      for (const [s, id] of m) expect(t.id(s)).toBe(id);
+      expect(t.id('not-there')).toBe(-1);
+    });
+  }
+
   it('refuses more names than its capacity (a caller bug, not silent corruption)', () => {
     const t = nameTable(2);
     t.add('a'); t.add('b');

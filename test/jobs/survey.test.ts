@@ -5,6 +5,10 @@ import { describe, expect, it } from 'vitest';
 import { GraphBuilder, modelBytes, rng, T } from '../helpers/build.js';
 import { parseModel } from '../../src/onnx/read.js';
 import { surveyModel } from '../../src/jobs/survey.js';
+import { eachTensor } from '../../src/onnx/external.js';
+import { elementCount, storageKind, subgraphsOf, type Graph, type Tensor } from '../../src/graph/ir.js';
+import { bytesPerElement, tensorByteSize } from '../../src/graph/tensor.js';
+import { randomCase } from '../fold/random-graphs.js';
 
 describe('survey inputs', () => {
   for (const seed of [1, 2, 3, 4, 5]) {
@@ -33,4 +37,36 @@ describe('survey inputs', () => {
       expect(report.inputs.map((v) => v.name)).toEqual(['x', ...plain]);
     });
   }
+});
+
+describe('survey figures', () => {
+  // Reference: a separate pass per figure over every tensor (eachTensor), as survey once counted them.
+  it('counts tensors, constants and external bytes as separate passes would (seeded graphs with bodies)', () => {
+    for (let seed = 1; seed <= 25; seed++) {
+      const m = parseModel(randomCase(seed).bytes, '/x', `seed ${seed}`);
+      // make some tensors external (left unloaded: their dims say their size), bodies and Constant nodes included
+      const r = rng(seed);
+      eachTensor(m.graph, (t) => {
+        if (r() < 0.3) t.storage = { kind: 'external', entries: [['location', 'w.bin']], bytes: new Uint8Array(0) };
+      });
+      const size = (t: Tensor) => storageKind(t) === 'external' ? elementCount(t.dims) * bytesPerElement(t.dataType)! : tensorByteSize(t);
+      let external = 0, inits = 0, initBytes = 0, consts = 0, constBytes = 0, nodes = 0;
+      eachTensor(m.graph, (t) => { if (storageKind(t) === 'external') external += size(t); });
+      const walk = (g: Graph) => {
+        for (const t of g.initializers) { inits++; initBytes += size(t); }
+        for (const n of g.nodes) {
+          nodes++;
+          if (n.opType === 'Constant') { consts++; for (const a of n.attributes) if (a.value.type === 'TENSOR') constBytes += size(a.value.t); }
+          subgraphsOf(n).forEach(walk);
+        }
+      };
+      walk(m.graph);
+      const report = surveyModel(m);
+      expect(report.externalBytes, `seed ${seed}`).toBe(external);
+      expect(external).toBeGreaterThan(0);
+      expect(report.initializers).toEqual({ count: inits, bytes: initBytes });
+      expect(report.constantNodes).toEqual({ count: consts, bytes: constBytes });
+      expect(report.nodeCount).toBe(nodes);
+    }
+  });
 });
