@@ -143,9 +143,10 @@ function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], release
 
 /**
  * Fold every normalization that can be folded exactly. Edits `model` in place and returns it with the ledger:
- * one entry per normalization (folded, or kept with its reason), node and weight-byte totals.
+ * one entry per normalization (folded, or kept with its reason), node and weight-byte totals; and the scopes the
+ * run kept, whose indexes answer for the folded model until it is edited again.
  */
-export function foldModel(model: Model, options: FoldOptions = {}): { model: Model; ledger: FoldLedger; rewritten: RewrittenNode[] } {
+export function foldModel(model: Model, options: FoldOptions = {}): { model: Model; ledger: FoldLedger; rewritten: RewrittenNode[]; scopes: Scope[] } {
   const ctx = makeContext(model, options);
   const nodesBefore = countNodes(model);
   const bytesBefore = weightBytes(model);
@@ -188,5 +189,7 @@ export function foldModel(model: Model, options: FoldOptions = {}): { model: Mod
     model,
     ledger: { normalizations, nodesBefore, nodesAfter: countNodes(model), bytesBefore, bytesAfter: weightBytes(model) },
     rewritten: [...touched.values()].filter((r) => !ctx.removedNodes.has(r.node)),
+    // the run's scopes, current for the model as returned (until it is edited again)
+    scopes,
   };
 }

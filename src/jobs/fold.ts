@@ -208,7 +208,7 @@ function checkProbeFits(original: Model, opts: FoldJobOptions): void {
 function foldWithin(model: Model, original: Model | undefined, label: string, opts: FoldJobOptions, lateRangeCheck: boolean, ship?: (m: Model) => Model,
   onProbe?: (p: ProbeRecord) => void): FoldReport {
   if (original && !opts.noProofs) checkProbeFits(original, opts);
-  const { ledger, rewritten } = foldModel(model, {
+  const { ledger, rewritten, scopes } = foldModel(model, {
     keep: opts.keep,
     keepOrigins: opts.origins?.keep,
     allowOverridable: opts.allowOverridable,
@@ -226,7 +226,8 @@ function foldWithin(model: Model, original: Model | undefined, label: string, op
   const quantThresholdDb = opts.quantThresholdDb ?? QUANT_THRESHOLD_DB;
   const int8 = original && !opts.noProofs && opts.simulateInt8 ? int8Simulation(original, model, opts.simulateInt8, opts) : null;
   // quantization readiness reads the folded float32 weights, so it runs before half-precision storage
-  const quantization = original ? quantReadiness(original, model, ledger.normalizations, quantThresholdDb) : [];
+  // (the fold's scopes answer for the model as folded; equalization edits it after them)
+  const quantization = original ? quantReadiness(original, model, ledger.normalizations, quantThresholdDb, opts.equalize ? undefined : scopes) : [];
   let storage: StorageSummary | null = null;
   if (opts.store === 'float16') {
     const r = storeFloat16(model);
