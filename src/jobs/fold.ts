@@ -24,6 +24,7 @@ import { checkOpset } from '../graph/opsets.js';
 import { compare, type ProbeRecord } from '../verify/compare.js';
 import { saveProbeSets } from '../verify/probe-files.js';
 import type { RewrittenNode } from '../fold/types.js';
+import type { Scope } from '../fold/scope.js';
 import { provenanceOf, setProvenance } from './provenance.js';
 import {
   SCHEMA_VERSION, type CheckSummary, type Coverage, type FoldJobOptions, type FoldReport, type Int8Output, type Int8Simulation, type StorageSummary,
@@ -205,10 +206,19 @@ function checkProbeFits(original: Model, opts: FoldJobOptions): void {
   checkProbeEstimate(original.graph, specs);
 }
 
+/** The fold's result without its scopes, which go to `take`. */
+function keepScopes<T extends { scopes: Scope[] }>(r: T, take: (s: Scope[]) => void): Omit<T, 'scopes'> {
+  const { scopes, ...rest } = r;
+  take(scopes);
+  return rest;
+}
+
 function foldWithin(model: Model, original: Model | undefined, label: string, opts: FoldJobOptions, lateRangeCheck: boolean, ship?: (m: Model) => Model,
   onProbe?: (p: ProbeRecord) => void): FoldReport {
   if (original && !opts.noProofs) checkProbeFits(original, opts);
-  const { ledger, rewritten, scopes } = foldModel(model, {
+  // the fold's scopes (their indexes answer for the folded model) serve the quantization report, then go
+  let foldScopes: Scope[] | undefined;
+  const { ledger, rewritten } = keepScopes(foldModel(model, {
     keep: opts.keep,
     keepOrigins: opts.origins?.keep,
     allowOverridable: opts.allowOverridable,
@@ -219,15 +229,16 @@ function foldWithin(model: Model, original: Model | undefined, label: string, op
       const r = proveFold(c, { seed: opts.seed });
       return { passed: r.passed, proof: { maxAbs: r.maxAbs, maxRel: r.maxRel, shape: r.shape } };
     },
-  });
+  }), (s) => { foldScopes = s; });
   const equalized = opts.equalize
     ? equalizeModel(model, { prove: opts.noProofs ? undefined : (c) => proveFold(c, { seed: opts.seed }).passed })
     : [];
   const quantThresholdDb = opts.quantThresholdDb ?? QUANT_THRESHOLD_DB;
   const int8 = original && !opts.noProofs && opts.simulateInt8 ? int8Simulation(original, model, opts.simulateInt8, opts) : null;
   // quantization readiness reads the folded float32 weights, so it runs before half-precision storage
-  // (the fold's scopes answer for the model as folded; equalization edits it after them)
-  const quantization = original ? quantReadiness(original, model, ledger.normalizations, quantThresholdDb, opts.equalize ? undefined : scopes) : [];
+  // (the fold's scopes answer for the model as folded, unless equalization edited it since)
+  const quantization = original ? quantReadiness(original, model, ledger.normalizations, quantThresholdDb, opts.equalize ? undefined : foldScopes) : [];
+  foldScopes = undefined; // not held through the whole-model check
   let storage: StorageSummary | null = null;
   if (opts.store === 'float16') {
     const r = storeFloat16(model);
