@@ -108,7 +108,8 @@ function slotTable(g: Graph, names: string[]): { slot: (name: string) => number;
     if (s === names.length) names.push(name);
     return s;
   };
-  return { slot, slotOf: { get: (name) => { const s = table.id(name); return s < 0 ? undefined : s; } } };
+  // (asked for a name that is no string, as a map would be, it answers undefined)
+  return { slot, slotOf: { get: (name) => { const s = typeof name === 'string' ? table.id(name) : -1; return s < 0 ? undefined : s; } } };
 }
 
 /** Up to this many name mentions, a plan finds slots by scanning its names. */

@@ -107,7 +107,8 @@ class ShapeTable implements ShapeLookup {
     this.own = new Array<Shape | undefined>(names.ids.size).fill(undefined);
   }
   get(k: string): Shape | undefined {
-    const id = this.names.ids.id(k);
+    // (a name that is no string, e.g. a missing input, has no shape, as a map would answer)
+    const id = typeof k === 'string' ? this.names.ids.id(k) : -1;
     if (id >= 0) {
       const own = this.own[id];
       if (own !== undefined) return own;
@@ -128,7 +129,7 @@ class Constants {
   get(k: string): Tensor | undefined {
     const t = this.made.size ? this.made.get(k) : undefined;
     if (t) return t;
-    const id = this.names.ids.id(k);
+    const id = typeof k === 'string' ? this.names.ids.id(k) : -1;
     return id >= 0 ? this.names.init[id] : undefined;
   }
   set(k: string, t: Tensor): void { this.made.set(k, t); }
