@@ -67,10 +67,19 @@ export function rewrittenKeys(folded: Model, rewritten: readonly RewrittenNode[]
 
 /** The nodes of `model` the keys name, with their report names. */
 function watchIn(model: Model, keys: readonly RewrittenKey[]): Map<Node, string> {
-  const want = new Map(keys.map((k) => [`${k.path}\u0000${k.output}`, k.name]));
+  // by path, then output (no joined key per node of the model: a graph of 10^5 nodes made as many strings)
+  const want = new Map<string, Map<string, string>>();
+  for (const k of keys) {
+    let inPath = want.get(k.path);
+    if (!inPath) want.set(k.path, inPath = new Map());
+    inPath.set(k.output, k.name);
+  }
   const out = new Map<Node, string>();
+  let lastPath: string | undefined;
+  let inPath: Map<string, string> | undefined;
   eachNodeWithPath(model, (n, path) => {
-    const name = n.outputs[0] !== undefined ? want.get(`${path}\u0000${n.outputs[0]}`) : undefined;
+    if (path !== lastPath) { lastPath = path; inPath = want.get(path); }
+    const name = inPath && n.outputs[0] !== undefined ? inPath.get(n.outputs[0]) : undefined;
     if (name !== undefined) out.set(n, name);
   });
   return out;
