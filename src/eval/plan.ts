@@ -95,7 +95,11 @@ function slotTable(g: Graph, names: string[]): { slot: (name: string) => number;
       slotOf: { get: (name) => { const s = find(name); return s < 0 ? undefined : s; } },
     };
   }
-  let table = nameTable(Math.max(bound, 1));
+  // (sized for the names a graph defines, each read names one of those; more, e.g. outer names, grow the table)
+  let distinct = g.initializers.length + g.inputs.length + g.outputs.length + 16;
+  for (const node of g.nodes) distinct += node.outputs.length;
+  bound = Math.min(bound, distinct);
+  let table = nameTable(bound);
   const slot = (name: string): number => {
     if (names.length === bound) {
       // (a body's reads can name more than the nodes do: move to a larger table)
