@@ -7,12 +7,18 @@
 // each use, which is cheap next to planning): the runs of a check (probes, both arithmetics) and the estimate
 // before them share one.
 import { subgraphsOf, type Graph, type Node, type Tensor } from '../graph/ir.js';
+import { nameTable } from '../graph/names.js';
 import type { Kernel } from './value.js';
+
+/** Slot by value name (undefined: the graph never mentions the name). */
+export interface SlotLookup {
+  get(name: string): number | undefined;
+}
 
 export interface Plan {
   graph: Graph;
   /** Slot of every value name the graph's nodes, initializers and outputs mention. */
-  slotOf: Map<string, number>;
+  slotOf: SlotLookup;
   /** Name of each slot. */
   names: string[];
   /** The initializer a slot holds, if any (the last of that name, as a map by name would keep). */
@@ -72,14 +78,50 @@ const hasBody = (n: Node): boolean => {
   return false;
 };
 
-function build(g: Graph): Plan {
-  const slotOf = new Map<string, number>();
-  const names: string[] = [];
+/**
+ * Slots by name: a flat table of names for a large graph (graph/names.ts; a Map of 10^5 strings costs several
+ * times more to fill), a scan of the few names for a proof region's handful of nodes (no table to allocate).
+ */
+function slotTable(g: Graph, names: string[]): { slot: (name: string) => number; slotOf: SlotLookup } {
+  let bound = g.initializers.length + g.outputs.length;
+  for (const node of g.nodes) bound += node.inputs.length + node.outputs.length;
+  if (bound <= SMALL_SLOTS) {
+    const find = (name: string): number => {
+      for (let i = 0; i < names.length; i++) if (names[i] === name) return i;
+      return -1;
+    };
+    return {
+      slot: (name) => { const s = find(name); if (s >= 0) return s; names.push(name); return names.length - 1; },
+      slotOf: { get: (name) => { const s = find(name); return s < 0 ? undefined : s; } },
+    };
+  }
+  // (sized for the names a graph defines, each read names one of those; more, e.g. outer names, grow the table)
+  let distinct = g.initializers.length + g.inputs.length + g.outputs.length + 16;
+  for (const node of g.nodes) distinct += node.outputs.length;
+  bound = Math.min(bound, distinct);
+  let table = nameTable(bound);
   const slot = (name: string): number => {
-    let s = slotOf.get(name);
-    if (s === undefined) { s = names.length; slotOf.set(name, s); names.push(name); }
+    if (names.length === bound) {
+      // (a body's reads can name more than the nodes do: move to a larger table)
+      bound *= 2;
+      const bigger = nameTable(bound);
+      for (const n of names) bigger.add(n);
+      table = bigger;
+    }
+    const s = table.add(name);
+    if (s === names.length) names.push(name);
     return s;
   };
+  // (asked for a name that is no string, as a map would be, it answers undefined)
+  return { slot, slotOf: { get: (name) => { const s = typeof name === 'string' ? table.id(name) : -1; return s < 0 ? undefined : s; } } };
+}
+
+/** Up to this many name mentions, a plan finds slots by scanning its names. */
+const SMALL_SLOTS = 24;
+
+function build(g: Graph): Plan {
+  const names: string[] = [];
+  const { slot, slotOf } = slotTable(g, names);
   const init: Array<Tensor | undefined> = [];
   for (const t of g.initializers) init[slot(t.name)] = t;
   const nodes = g.nodes;
@@ -112,7 +154,7 @@ function build(g: Graph): Plan {
   const count = names.length;
   init.length = count;
   const keep = new Uint8Array(count);
-  for (const o of outputNames) keep[slotOf.get(o)!] = 1;
+  for (const o of outputNames) keep[slot(o)] = 1;
   const lastUse = new Int32Array(count).fill(-1);
   for (let i = 0; i < n; i++) {
     for (let k = inStart[i]!; k < inStart[i + 1]!; k++) { const s = inSlot[k]!; if (s >= 0) lastUse[s] = i; }
@@ -120,18 +162,22 @@ function build(g: Graph): Plan {
     if (extra) for (const s of extra) lastUse[s] = i;
   }
   // after node i: its outputs nothing reads, then the values i was the last reader of (graph outputs stay)
+  // (at most one entry per input, output and body read: written straight into a typed array of that size)
+  let dropBound = nIn + nOut;
+  for (const r of bodyReads) dropBound += r.length;
   const dropStart = new Int32Array(n + 1);
-  const drops: number[] = [];
+  const drops = new Int32Array(dropBound);
+  let nd = 0;
   for (let i = 0; i < n; i++) {
-    dropStart[i] = drops.length;
-    for (let k = outStart[i]!; k < outStart[i + 1]!; k++) { const s = outSlot[k]!; if (s >= 0 && !keep[s] && lastUse[s] === -1) drops.push(s); }
-    for (let k = inStart[i]!; k < inStart[i + 1]!; k++) { const s = inSlot[k]!; if (s >= 0 && lastUse[s] === i && !keep[s]) drops.push(s); }
+    dropStart[i] = nd;
+    for (let k = outStart[i]!; k < outStart[i + 1]!; k++) { const s = outSlot[k]!; if (s >= 0 && !keep[s] && lastUse[s] === -1) drops[nd++] = s; }
+    for (let k = inStart[i]!; k < inStart[i + 1]!; k++) { const s = inSlot[k]!; if (s >= 0 && lastUse[s] === i && !keep[s]) drops[nd++] = s; }
     const extra = extraReads[i];
-    if (extra) for (const s of extra) if (lastUse[s] === i && !keep[s]) drops.push(s);
+    if (extra) for (const s of extra) if (lastUse[s] === i && !keep[s]) drops[nd++] = s;
   }
-  dropStart[n] = drops.length;
+  dropStart[n] = nd;
   return {
-    graph: g, slotOf, names, init, keep, lastUse, inStart, inSlot, outStart, outSlot, dropStart, dropSlot: Int32Array.from(drops),
+    graph: g, slotOf, names, init, keep, lastUse, inStart, inSlot, outStart, outSlot, dropStart, dropSlot: nd === dropBound ? drops : drops.slice(0, nd),
     kernel: new Array(n), kernelOpset: new Int32Array(n).fill(-1),
     // what matches() compares with; a small graph's plan is never kept, so never compared
     nodes: n >= KEEP_PLAN_MIN_NODES ? [...nodes] : nodes, initializers: n >= KEEP_PLAN_MIN_NODES ? [...g.initializers] : g.initializers,

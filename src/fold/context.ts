@@ -144,9 +144,13 @@ function namesBeforeFlush(model: Model, live: Map<Graph, LiveScope>): NameSet {
 /** `base`, or `base.2`, `base.3`, ... : the first name not yet used. Deterministic for a given model. */
 export function freshName(ctx: FoldContext, base: string): string {
   let name = base;
-  let k = ctx.nameCounters.get(base) ?? 2;
-  while (ctx.names.has(name)) name = `${base}.${k++}`;
-  ctx.nameCounters.set(base, k);
-  ctx.names.add(name);
+  const names = ctx.names;
+  const from = ctx.nameCounters.get(base) ?? 2;
+  let k = from;
+  while (names.has(name)) name = `${base}.${k++}`;
+  // (a base taken at once needs no counter: the next call finds it taken and starts from 2 all the same; most
+  // bases, one per folded layer, are asked for once)
+  if (k !== from) ctx.nameCounters.set(base, k);
+  names.add(name);
   return name;
 }

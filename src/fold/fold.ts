@@ -16,6 +16,7 @@ import type { RuleMatch } from './rules/index.js';
 import { collectRun, isStep, stepOf } from './run.js';
 import { buildScopes, eachGraph, forgetDerived, labelOf, type Scope } from './scope.js';
 import { editableUseDef, type EditableUseDef } from '../graph/usedef.js';
+import { nameTable, type NameTable } from '../graph/names.js';
 import type { EntryKind, FoldLedger, FoldOptions, LedgerEntry, ProofFigures, RewrittenNode } from './types.js';
 
 const MAX_PASSES = 64;
@@ -143,9 +144,10 @@ function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], release
 
 /**
  * Fold every normalization that can be folded exactly. Edits `model` in place and returns it with the ledger:
- * one entry per normalization (folded, or kept with its reason), node and weight-byte totals.
+ * one entry per normalization (folded, or kept with its reason), node and weight-byte totals; and the scopes the
+ * run kept, whose indexes answer for the folded model until it is edited again.
  */
-export function foldModel(model: Model, options: FoldOptions = {}): { model: Model; ledger: FoldLedger; rewritten: RewrittenNode[] } {
+export function foldModel(model: Model, options: FoldOptions = {}): { model: Model; ledger: FoldLedger; rewritten: RewrittenNode[]; scopes: Scope[] } {
   const ctx = makeContext(model, options);
   const nodesBefore = countNodes(model);
   const bytesBefore = weightBytes(model);
@@ -153,17 +155,27 @@ export function foldModel(model: Model, options: FoldOptions = {}): { model: Mod
   const scopes = buildScopes(model, ctx.labels, ctx.options.inputShapes, editableUseDef);
   ctx.live = new Map(scopes.map((scope) => [scope.graph, { scope, ud: scope.ud as EditableUseDef }]));
   // Ledger order: where each node stood in the original model (by graph path, then ledger name).
-  const order = new Map<string, Map<string, number>>();
+  // (per path a flat table of labels, names.ts, and each label's place: a Map of 10^5 labels costs more to fill)
+  const order = new Map<string, { labels: NameTable; at: number[] }>();
+  const bound = new Map<string, number>();
+  for (const s of scopes) bound.set(s.path, (bound.get(s.path) ?? 0) + s.graph.nodes.length);
   let placed = 0;
   for (const s of scopes) {
     let inPath = order.get(s.path);
-    if (!inPath) order.set(s.path, inPath = new Map());
+    if (!inPath) order.set(s.path, inPath = { labels: nameTable(Math.max(bound.get(s.path)!, 1)), at: [] });
+    const { labels, at } = inPath;
     for (const n of s.graph.nodes) {
-      const label = labelOf(s, n);
+      const known = labels.size;
+      const id = labels.add(labelOf(s, n));
       // (a name seen again takes the place after the distinct names so far, as one map of both keys would give)
-      inPath.set(label, inPath.has(label) ? placed : placed++);
+      at[id] = id < known ? placed : placed++;
     }
   }
+  const placeOf = (graph: string, label: string): number | undefined => {
+    const inPath = order.get(graph);
+    const id = inPath ? inPath.labels.id(label) : -1;
+    return id < 0 ? undefined : inPath!.at[id];
+  };
   const folded: LedgerEntry[] = [];
   // (names collected as lists: the clean-up looks them up, and needs a set only for a graph with value_info)
   const released: string[] = [];
@@ -181,12 +193,14 @@ export function foldModel(model: Model, options: FoldOptions = {}): { model: Mod
   const kept: LedgerEntry[] = findingsOf(ctx, model, scopes).filter((f) => !done.has(`${f.graph}\u0000${f.node}`))
     .map((f) => ({ ...f, status: 'kept' as const }));
   // each entry's place looked up once (the sort is stable, as before)
-  const placedAt = [...folded, ...kept].map((e) => ({ e, at: order.get(e.graph)?.get(e.node) ?? 1e15 }));
+  const placedAt = [...folded, ...kept].map((e) => ({ e, at: placeOf(e.graph, e.node) ?? 1e15 }));
   const normalizations = placedAt.sort((a, b) => a.at - b.at).map((x) => x.e);
   // a node a later fold or the clean-up removed is no longer in the model to be watched
   return {
     model,
     ledger: { normalizations, nodesBefore, nodesAfter: countNodes(model), bytesBefore, bytesAfter: weightBytes(model) },
     rewritten: [...touched.values()].filter((r) => !ctx.removedNodes.has(r.node)),
+    // the run's scopes, current for the model as returned (until it is edited again)
+    scopes,
   };
 }

@@ -216,13 +216,16 @@ interface NodeIndex {
   unnamedByInput: Map<string, Node>;
 }
 
-function indexOf(scope: Scope, cache: Map<Scope, NodeIndex>): NodeIndex {
+function indexOf(scope: Scope, cache: Map<Scope, NodeIndex>, byLabel = true): NodeIndex {
   let ix = cache.get(scope);
   if (ix) return ix;
   ix = { byLabel: new Map(), linearByName: new Map(), unnamedByOutput: new Map(), unnamedByInput: new Map() };
   for (const n of scope.graph.nodes) {
-    const label = labelOf(scope, n);
-    if (!ix.byLabel.has(label)) ix.byLabel.set(label, n);
+    // (the folded model's index is only asked for counterparts: no map of every label)
+    if (byLabel) {
+      const label = labelOf(scope, n);
+      if (!ix.byLabel.has(label)) ix.byLabel.set(label, n);
+    }
     if (!LINEAR.has(n.opType)) continue;
     if (n.name) { if (!ix.linearByName.has(n.name)) ix.linearByName.set(n.name, n); continue; }
     if (n.outputs[0] !== undefined && !ix.unnamedByOutput.has(n.outputs[0])) ix.unnamedByOutput.set(n.outputs[0], n);
@@ -249,8 +252,11 @@ function scopeFor(scopes: Scope[], others: Scope[], path: string): Scope | undef
   return scopes.find((s) => s.path === path) ?? (i >= 0 ? scopes[i] : undefined);
 }
 
-/** One row per folded target layer, in ledger order. `before` is the original model, `after` the folded one. */
-export function quantReadiness(before: Model, after: Model, ledger: readonly LedgerEntry[], thresholdDb = QUANT_THRESHOLD_DB): QuantRow[] {
+/**
+ * One row per folded target layer, in ledger order. `before` is the original model, `after` the folded one;
+ * `afterScopes` may give scopes of `after` already built (and current).
+ */
+export function quantReadiness(before: Model, after: Model, ledger: readonly LedgerEntry[], thresholdDb = QUANT_THRESHOLD_DB, afterScopes?: Scope[]): QuantRow[] {
   const groups = new Map<string, { graph: string; target: string; norms: string[] }>();
   for (const e of ledger) {
     if (e.status !== 'folded' || e.target === null) continue;
@@ -263,7 +269,8 @@ export function quantReadiness(before: Model, after: Model, ledger: readonly Led
     }
   }
   if (groups.size === 0) return [];
-  const sb = buildScopes(before), sa = buildScopes(after);
+  // (`afterScopes`: the fold's own scopes of `after`, still current, so its graphs are not indexed again)
+  const sb = buildScopes(before), sa = afterScopes ?? buildScopes(after);
   const index = new Map<Scope, NodeIndex>();
   const rows: QuantRow[] = [];
   for (const g of groups.values()) {
@@ -271,7 +278,7 @@ export function quantReadiness(before: Model, after: Model, ledger: readonly Led
     if (!scopeB || !scopeA) continue;
     const nb = indexOf(scopeB, index).byLabel.get(g.target);
     if (!nb) continue;
-    const na = counterpart(indexOf(scopeA, index), nb);
+    const na = counterpart(indexOf(scopeA, index, false), nb);
     if (!na) continue;
     const b = figuresOfLayer(scopeB, nb), a = figuresOfLayer(scopeA, na);
     if (!b || !a) continue;

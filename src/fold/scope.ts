@@ -4,7 +4,7 @@ import { isShorthandConstant } from '../graph/constants.js';
 import type { Graph, Model, Node, Tensor, ValueInfo } from '../graph/ir.js';
 import { subgraphsOf } from '../graph/ir.js';
 import { buildUseDef, outerRefs, type UseDef } from '../graph/usedef.js';
-import { inferShapes, type Shape } from '../graph/shapes.js';
+import { inferShapes, type Shape, type ShapeLookup } from '../graph/shapes.js';
 
 export interface Scope {
   graph: Graph;
@@ -26,7 +26,7 @@ export interface Scope {
   /** Main graph: shapes given for the model's inputs (see FoldOptions.inputShapes). */
   inputShapes?: ReadonlyMap<string, Shape>;
   /** Shapes propagated from the inputs (src/graph/shapes.ts), worked out on first need. */
-  inferred?: Map<string, Shape>;
+  inferred?: ShapeLookup;
 }
 
 /** A constant read by a node: where it is defined and whether others read it. */
@@ -212,7 +212,7 @@ export function inferredShape(s: Scope, v: string): Shape | undefined {
   return shapesOf(homeOf(s, v) ?? s).get(v);
 }
 
-function shapesOf(s: Scope): Map<string, Shape> {
+function shapesOf(s: Scope): ShapeLookup {
   s.inferred ??= inferShapes(s.graph, s.inputShapes, s.parent ? shapesOf(s.parent) : undefined);
   return s.inferred;
 }

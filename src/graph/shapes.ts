@@ -8,6 +8,7 @@ import { attrInt, attrInts, attrString, hasSubgraphs } from './ir.js';
 import { constantNodeTensor } from './constants.js';
 import { tensorToFloat64 } from './tensor.js';
 import { nodeNeeds, topoOrder } from './topo.js';
+import { nameTable, type NameTable } from './names.js';
 
 export type Shape = number[];
 
@@ -46,17 +47,16 @@ const normAxis = (a: number, rank: number) => (a < 0 ? a + rank : a);
  * graph inputs (given ones, or the probe's defaults); the other inputs use their declared shape (symbolic dims as
  * -1). `outer` holds the shapes of values an enclosing graph defines.
  */
-export function inferShapes(g: Graph, inputs: ReadonlyMap<string, Shape> = new Map(), outer?: ReadonlyMap<string, Shape>): Map<string, Shape> {
-  const inits = new Map<string, Tensor>();
-  for (const t of g.initializers) inits.set(t.name, t);
+export function inferShapes(g: Graph, inputs: ReadonlyMap<string, Shape> = new Map(), outer?: ShapeLookup): ShapeLookup {
+  const names = new GraphNames(g);
   const start = () => {
-    const shapes = new ShapeMap(inits, outer);
+    const shapes = new ShapeTable(names, outer);
     for (const vi of g.inputs) {
       const given = inputs.get(vi.name);
       if (given) shapes.set(vi.name, [...given]);
       else if (vi.shape && !shapes.has(vi.name)) shapes.set(vi.name, vi.shape.map((d) => (typeof d === 'number' && d >= 0 ? d : -1)));
     }
-    return { shapes, constants: new Constants(inits) };
+    return { shapes, constants: new Constants(names) };
   };
   // The common case, a graph in topological order, in list order and one pass: a node reading a value that is
   // neither shaped nor defined yet (one a later node makes) sends the whole graph through topoOrder instead,
@@ -72,28 +72,66 @@ export function inferShapes(g: Graph, inputs: ReadonlyMap<string, Shape> = new M
   return shapes;
 }
 
+/** What inferShapes answers: the shape of a value by name (get), and whether it has one (has). */
+export interface ShapeLookup {
+  get(k: string): Shape | undefined;
+  has(k: string): boolean;
+}
+
 /**
- * Shapes by value name: those set here (inputs, node outputs), else an initializer's dims (copied the first time
- * they are asked for), else the enclosing graph's. Nothing is copied up front: a graph of 10^5 weights would
- * otherwise copy every weight's dims, and a subgraph every shape of its enclosing graph. Read it with get/has.
+ * The names a graph defines (initializers, inputs, node outputs), each with an id, and the initializer of each
+ * (the last of a name, as a map by name would keep): a flat name table (names.ts) instead of maps, since a graph
+ * of 10^5 nodes has several hundred thousand names.
  */
-class ShapeMap extends Map<string, Shape> {
-  constructor(private readonly inits: ReadonlyMap<string, Tensor>, private readonly outer: ReadonlyMap<string, Shape> | undefined) { super(); }
-  override get(k: string): Shape | undefined {
-    const own = super.get(k);
-    if (own !== undefined) return own;
-    const t = this.inits.get(k);
-    if (t) { const d = [...t.dims]; super.set(k, d); return d; }
+class GraphNames {
+  readonly ids: NameTable;
+  readonly init: Array<Tensor | undefined>;
+  constructor(g: Graph) {
+    let bound = g.initializers.length + g.inputs.length;
+    for (const n of g.nodes) bound += n.outputs.length;
+    const ids = this.ids = nameTable(Math.max(bound, 1));
+    this.init = new Array<Tensor | undefined>(bound).fill(undefined);
+    for (const t of g.initializers) this.init[ids.add(t.name)] = t;
+    for (const vi of g.inputs) ids.add(vi.name);
+    for (const n of g.nodes) for (const o of n.outputs) if (o) ids.add(o);
+  }
+}
+
+/**
+ * Shapes by value name: those set here (inputs, node outputs), else an initializer's dims (a copy each time: a
+ * weight is read once or twice, and nothing is copied up front), else the enclosing graph's.
+ */
+class ShapeTable implements ShapeLookup {
+  private readonly own: Array<Shape | undefined>;
+  constructor(private readonly names: GraphNames, private readonly outer: ShapeLookup | undefined) {
+    this.own = new Array<Shape | undefined>(names.ids.size).fill(undefined);
+  }
+  get(k: string): Shape | undefined {
+    // (a name that is no string, e.g. a missing input, has no shape, as a map would answer)
+    const id = typeof k === 'string' ? this.names.ids.id(k) : -1;
+    if (id >= 0) {
+      const own = this.own[id];
+      if (own !== undefined) return own;
+      const t = this.names.init[id];
+      if (t) return t.dims.slice();
+    }
     return this.outer?.get(k);
   }
-  override has(k: string): boolean { return this.get(k) !== undefined; }
+  has(k: string): boolean { return this.get(k) !== undefined; }
+  /** `k` is a name the graph defines (an input or a node output). */
+  set(k: string, shape: Shape): void { this.own[this.names.ids.id(k)] = shape; }
 }
 
 /** Constant tensors by name: Constant nodes' outputs, then the initializers. */
 class Constants {
   private readonly made = new Map<string, Tensor>();
-  constructor(private readonly inits: ReadonlyMap<string, Tensor>) {}
-  get(k: string): Tensor | undefined { return this.made.get(k) ?? this.inits.get(k); }
+  constructor(private readonly names: GraphNames) {}
+  get(k: string): Tensor | undefined {
+    const t = this.made.size ? this.made.get(k) : undefined;
+    if (t) return t;
+    const id = typeof k === 'string' ? this.names.ids.id(k) : -1;
+    return id >= 0 ? this.names.init[id] : undefined;
+  }
   set(k: string, t: Tensor): void { this.made.set(k, t); }
 }
 
@@ -102,23 +140,28 @@ class Constants {
  * value a later node makes. A value nothing makes (a fold's new weight not yet added) is only unknown, as it is
  * in any order.
  */
-function propagate(order: readonly Node[], shapes: Map<string, Shape>, constants: Constants, unshaped: Set<string> | undefined): boolean {
+function propagate(order: readonly Node[], shapes: ShapeTable, constants: Constants, unshaped: Set<string> | undefined): boolean {
   const undefinedYet = new Set<string>();
+  // (plain loops: this runs once per node of graphs of 10^5 nodes)
   for (const n of order) {
-    const ins = n.inputs.map((v) => (v ? shapes.get(v) : undefined));
+    const inputs = n.inputs, outputs = n.outputs;
+    const ins = new Array<Shape | undefined>(inputs.length);
+    for (let k = 0; k < inputs.length; k++) { const v = inputs[k]!; ins[k] = v ? shapes.get(v) : undefined; }
     if (unshaped) {
-      n.inputs.forEach((v, k) => { if (v && ins[k] === undefined && !unshaped.has(v)) undefinedYet.add(v); });
+      for (let k = 0; k < inputs.length; k++) { const v = inputs[k]!; if (v && ins[k] === undefined && !unshaped.has(v)) undefinedYet.add(v); }
       if (hasSubgraphs(n)) for (const v of nodeNeeds(n)) if (!shapes.has(v) && !unshaped.has(v)) undefinedYet.add(v);
     }
     const out = nodeShape(n, ins, constants);
-    if (out && n.outputs[0]) shapes.set(n.outputs[0], out);
+    if (out && outputs[0]) shapes.set(outputs[0], out);
     if (unshaped) {
-      n.outputs.forEach((o, k) => {
-        if (!o) return;
-        if (undefinedYet.size > 0 && undefinedYet.has(o)) return; // read before it was made: not in order
+      let readEarlier = false;
+      for (let k = 0; k < outputs.length; k++) {
+        const o = outputs[k]!;
+        if (!o) continue;
+        if (undefinedYet.size > 0 && undefinedYet.has(o)) { readEarlier = true; continue; } // read before it was made: not in order
         if (!(k === 0 && out)) unshaped.add(o);
-      });
-      if (undefinedYet.size > 0 && n.outputs.some((o) => o && undefinedYet.has(o))) return false;
+      }
+      if (readEarlier) return false;
     }
   }
   return true;

@@ -24,6 +24,7 @@ import { checkOpset } from '../graph/opsets.js';
 import { compare, type ProbeRecord } from '../verify/compare.js';
 import { saveProbeSets } from '../verify/probe-files.js';
 import type { RewrittenNode } from '../fold/types.js';
+import type { Scope } from '../fold/scope.js';
 import { PROVENANCE_KEYS, provenanceOf, setProvenance } from './provenance.js';
 import {
   SCHEMA_VERSION, type CheckSummary, type Coverage, type FoldJobOptions, type FoldReport, type Int8Output, type Int8Simulation, type StorageSummary,
@@ -66,10 +67,19 @@ export function rewrittenKeys(folded: Model, rewritten: readonly RewrittenNode[]
 
 /** The nodes of `model` the keys name, with their report names. */
 function watchIn(model: Model, keys: readonly RewrittenKey[]): Map<Node, string> {
-  const want = new Map(keys.map((k) => [`${k.path}\u0000${k.output}`, k.name]));
+  // by path, then output (no joined key per node of the model: a graph of 10^5 nodes made as many strings)
+  const want = new Map<string, Map<string, string>>();
+  for (const k of keys) {
+    let inPath = want.get(k.path);
+    if (!inPath) want.set(k.path, inPath = new Map());
+    inPath.set(k.output, k.name);
+  }
   const out = new Map<Node, string>();
+  let lastPath: string | undefined;
+  let inPath: Map<string, string> | undefined;
   eachNodeWithPath(model, (n, path) => {
-    const name = n.outputs[0] !== undefined ? want.get(`${path}\u0000${n.outputs[0]}`) : undefined;
+    if (path !== lastPath) { lastPath = path; inPath = want.get(path); }
+    const name = inPath && n.outputs[0] !== undefined ? inPath.get(n.outputs[0]) : undefined;
     if (name !== undefined) out.set(n, name);
   });
   return out;
@@ -205,10 +215,19 @@ function checkProbeFits(original: Model, opts: FoldJobOptions): void {
   checkProbeEstimate(original.graph, specs);
 }
 
+/** The fold's result without its scopes, which go to `take`. */
+function keepScopes<T extends { scopes: Scope[] }>(r: T, take: (s: Scope[]) => void): Omit<T, 'scopes'> {
+  const { scopes, ...rest } = r;
+  take(scopes);
+  return rest;
+}
+
 function foldWithin(model: Model, original: Model | undefined, label: string, opts: FoldJobOptions, lateRangeCheck: boolean, ship?: (m: Model) => Model,
   onProbe?: (p: ProbeRecord) => void): FoldReport {
   if (original && !opts.noProofs) checkProbeFits(original, opts);
-  const { ledger, rewritten } = foldModel(model, {
+  // the fold's scopes (their indexes answer for the folded model) serve the quantization report, then go
+  let foldScopes: Scope[] | undefined;
+  const { ledger, rewritten } = keepScopes(foldModel(model, {
     keep: opts.keep,
     keepOrigins: opts.origins?.keep,
     allowOverridable: opts.allowOverridable,
@@ -219,14 +238,16 @@ function foldWithin(model: Model, original: Model | undefined, label: string, op
       const r = proveFold(c, { seed: opts.seed });
       return { passed: r.passed, proof: { maxAbs: r.maxAbs, maxRel: r.maxRel, shape: r.shape } };
     },
-  });
+  }), (s) => { foldScopes = s; });
   const equalized = opts.equalize
     ? equalizeModel(model, { prove: opts.noProofs ? undefined : (c) => proveFold(c, { seed: opts.seed }).passed })
     : [];
   const quantThresholdDb = opts.quantThresholdDb ?? QUANT_THRESHOLD_DB;
   const int8 = original && !opts.noProofs && opts.simulateInt8 ? int8Simulation(original, model, opts.simulateInt8, opts) : null;
   // quantization readiness reads the folded float32 weights, so it runs before half-precision storage
-  const quantization = original ? quantReadiness(original, model, ledger.normalizations, quantThresholdDb) : [];
+  // (the fold's scopes answer for the model as folded, unless equalization edited it since)
+  const quantization = original ? quantReadiness(original, model, ledger.normalizations, quantThresholdDb, opts.equalize ? undefined : foldScopes) : [];
+  foldScopes = undefined; // not held through the whole-model check
   let storage: StorageSummary | null = null;
   if (opts.store === 'float16') {
     const r = storeFloat16(model);

@@ -142,6 +142,8 @@ class Encoder {
     if ((placed === undefined && !wasExternal) || sameEntries) {
       if (tensorUnchanged(t)) return original(t.origin!);
     }
+    // the common changed tensor (a folded weight, a new bias): no field order to follow, nothing unknown to keep
+    if (!placed && !t.origin && !t.extra.length && (t.storage.kind === 'raw' || t.storage.kind === 'external')) return plainTensor(t, t.storage.bytes);
     const e = new Emitter();
     const order = fieldOrder(t.origin);
     const s = t.storage;
@@ -241,6 +243,8 @@ class Encoder {
 
   node(n: Node): Piece {
     const kids = n.attributes.map((a) => this.attribute(a));
+    // a changed node with no field order to follow and nothing unknown to keep, whose attributes are all small
+    if (!n.origin && !n.extra.length && kids.every(smallPiece)) return plainNode(n, kids);
     if (nodeUnchanged(n, kids.map(kid))) return original(n.origin!);
     const e = new Emitter();
     const order = fieldOrder(n.origin);
@@ -314,6 +318,124 @@ class Encoder {
     ]);
     return piece(e);
   }
+}
+
+// ---- changed messages with no original bytes, written at their exact size ----------------------------
+// A fold changes tens of thousands of tensors and nodes, each without an origin (touched) and with no unknown
+// fields: they are written straight into one array of their exact size, in the field order the general path
+// gives them (field number order), instead of through an emitter, a closure per field and a sort per message.
+// Payloads larger than an emitter copies stay their own chunk, as the emitter leaves them.
+
+/** Largest payload copied into a message's own bytes (Emitter.bytes copies up to this size too). */
+const COPY_MAX = 256;
+
+const varintSize = (v: number): number => {
+  let n = 1;
+  while (v >= 128) { v = Math.floor(v / 128); n++; }
+  return n;
+};
+
+/** Field bytes of short strings: ASCII as is, else UTF-8 (as emitString writes them). */
+function utf8Of(s: string): Uint8Array | string {
+  for (let i = 0; i < s.length; i++) if (s.charCodeAt(i) >= 0x80) return utf8e.encode(s);
+  return s;
+}
+const utf8e = new TextEncoder();
+const byteLen = (x: Uint8Array | string): number => (typeof x === 'string' ? x.length : x.byteLength);
+
+/** Writes fields into an array sized beforehand. */
+class Fill {
+  at = 0;
+  constructor(readonly buf: Uint8Array) {}
+  varint(v: number): void {
+    const b = this.buf;
+    while (v >= 128) { b[this.at++] = (v % 128) | 0x80; v = Math.floor(v / 128); }
+    b[this.at++] = v;
+  }
+  str(no: number, x: Uint8Array | string): void {
+    this.varint(no * 8 + WT_LEN);
+    if (typeof x === 'string') {
+      this.varint(x.length);
+      const b = this.buf;
+      for (let i = 0; i < x.length; i++) b[this.at++] = x.charCodeAt(i);
+    } else {
+      this.varint(x.byteLength);
+      this.buf.set(x, this.at);
+      this.at += x.byteLength;
+    }
+  }
+}
+
+const strField = (no: number, x: Uint8Array | string): number => varintSize(no * 8 + WT_LEN) + varintSize(byteLen(x)) + byteLen(x);
+
+/** A tensor with raw data: dims (1), data type (2), name (8) when set, raw data (9), doc string (12) when set. */
+function plainTensor(t: Tensor, raw: Uint8Array): Piece {
+  if (t.dataType < 0 || t.dims.some((d) => d < 0)) return generalTensor(t, raw); // (negative varints: the emitter's way)
+  const name = t.name ? utf8Of(t.name) : undefined;
+  const doc = t.docString ? utf8Of(t.docString) : undefined;
+  let head = 1 + varintSize(t.dataType);
+  for (const d of t.dims) head += 1 + varintSize(d);
+  if (name !== undefined) head += strField(8, name);
+  head += 1 + varintSize(raw.byteLength);
+  const inline = raw.byteLength <= COPY_MAX;
+  const tail = doc !== undefined ? strField(12, doc) : 0;
+  const f = new Fill(new Uint8Array(head + (inline ? raw.byteLength + tail : 0)));
+  for (const d of t.dims) { f.varint(8); f.varint(d); }
+  f.varint(16); f.varint(t.dataType);
+  if (name !== undefined) f.str(8, name);
+  f.varint(9 * 8 + WT_LEN); f.varint(raw.byteLength);
+  const length = head + raw.byteLength + tail;
+  if (inline) {
+    f.buf.set(raw, f.at); f.at += raw.byteLength;
+    if (doc !== undefined) f.str(12, doc);
+    return { chunks: [f.buf], length, same: false };
+  }
+  const chunks = [f.buf, raw];
+  if (doc !== undefined) { const g = new Fill(new Uint8Array(tail)); g.str(12, doc); chunks.push(g.buf); }
+  return { chunks, length, same: false };
+}
+
+/** The emitter's way for a plain tensor (negative dims or type: ten-byte varints). */
+function generalTensor(t: Tensor, raw: Uint8Array): Piece {
+  const e = new Emitter();
+  t.dims.forEach((d) => emitInt(e, 1, d));
+  emitInt(e, 2, t.dataType);
+  if (t.name) emitString(e, 8, t.name);
+  emitBytes(e, 9, raw);
+  if (t.docString) emitString(e, 12, t.docString);
+  return piece(e);
+}
+
+/** Every chunk one an emitter would copy (a larger one stays a chunk of its own, read from disk when written). */
+const smallPiece = (p: Piece): boolean => p.chunks.every((c) => c.byteLength <= COPY_MAX);
+
+/** A node: inputs (1), outputs (2), name (3) when set, op type (4), attributes (5), doc string (6), domain (7) when set. */
+function plainNode(n: Node, kids: Piece[]): Piece {
+  const ins = n.inputs.map(utf8Of), outs = n.outputs.map(utf8Of);
+  const name = n.name ? utf8Of(n.name) : undefined;
+  const op = utf8Of(n.opType);
+  const doc = n.docString ? utf8Of(n.docString) : undefined;
+  const domain = n.domain ? utf8Of(n.domain) : undefined;
+  let size = 0;
+  for (const x of ins) size += strField(1, x);
+  for (const x of outs) size += strField(2, x);
+  if (name !== undefined) size += strField(3, name);
+  size += strField(4, op);
+  for (const k of kids) size += 1 + varintSize(k.length) + k.length;
+  if (doc !== undefined) size += strField(6, doc);
+  if (domain !== undefined) size += strField(7, domain);
+  const f = new Fill(new Uint8Array(size));
+  for (const x of ins) f.str(1, x);
+  for (const x of outs) f.str(2, x);
+  if (name !== undefined) f.str(3, name);
+  f.str(4, op);
+  for (const k of kids) {
+    f.varint(5 * 8 + WT_LEN); f.varint(k.length);
+    for (const c of k.chunks) { f.buf.set(c, f.at); f.at += c.byteLength; }
+  }
+  if (doc !== undefined) f.str(6, doc);
+  if (domain !== undefined) f.str(7, domain);
+  return { chunks: [f.buf], length: size, same: false };
 }
 
 function encodeShape(shape: Dim[]): Piece {

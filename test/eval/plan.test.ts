@@ -133,6 +133,28 @@ describe('runs by slot', () => {
     expect(planOf(g)).not.toBe(p);
   });
 
+  it('answers a name the graph never mentions, or no name at all, with no slot (small and large graphs)', () => {
+    // (a node asked for an input it does not have passes undefined; found by the fuzz campaign, seed 584)
+    for (const size of [3, KEEP_PLAN_MIN_NODES + 40]) {
+      const p = planOf(randomGraph(11, size, [2, 3]));
+      expect(p.slotOf.get(undefined as unknown as string)).toBeUndefined();
+      expect(p.slotOf.get('not-in-the-graph')).toBeUndefined();
+      for (const [s, name] of p.names.entries()) expect(p.slotOf.get(name)).toBe(s);
+    }
+  });
+
+  it('numbers every name once, also when nodes read far more names than the graph defines (outer names)', () => {
+    // (the slot table is sized for the names a graph defines, and grows past that)
+    const g = randomGraph(12, KEEP_PLAN_MIN_NODES + 20, [2, 3]);
+    g.nodes.forEach((n, i) => { if (i % 2) n.inputs = [...n.inputs, `outer${i}a`, `outer${i}b`, `outer${i}c`]; });
+    const p = planOf(g);
+    const mentioned = new Set([...g.initializers.map((t) => t.name), ...g.nodes.flatMap((n) => [...n.inputs, ...n.outputs]), ...g.outputs.map((o) => o.name)]);
+    mentioned.delete('');
+    expect(new Set(p.names)).toEqual(mentioned);
+    expect(p.names.length).toBe(mentioned.size);
+    for (const [s, name] of p.names.entries()) expect(p.slotOf.get(name)).toBe(s);
+  });
+
   it('tiny graphs are planned afresh each time (no kept entry)', () => {
     const g = randomGraph(9, 3, [2, 3]);
     expect(planOf(g)).not.toBe(planOf(g));

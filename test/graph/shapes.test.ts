@@ -77,6 +77,8 @@ describe('inferShapes', () => {
     g.node('Transpose', ['x'], { perm: [2, 0, 1] }, { name: 'tr', outputs: ['z'] });
     const shapes = inferShapes(parseModel(modelBytes(g), dir).graph);
     expect(shapes.get('y')).toBeUndefined();
+    expect(shapes.get('not-in-the-graph')).toBeUndefined();
+    expect(shapes.get(undefined as unknown as string)).toBeUndefined(); // a missing input asked for: no shape
     expect(shapes.get('z')).toEqual([6, -1, 4]);
     // a given shape replaces the declared one
     expect(inferShapes(parseModel(modelBytes(g), dir).graph, new Map([['x', [3, 4, 6]]])).get('z')).toEqual([6, 3, 4]);
