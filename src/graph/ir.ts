@@ -78,54 +78,22 @@ export interface Tensor {
 }
 
 /**
- * A tensor as the reader makes it. A 10^5-node graph holds some 10^5 small tensors, nearly all raw_data, and
- * most commands never look at their bytes: so raw_data stays two offsets into the file buffer, and the view
- * (`storage.bytes`) is made the first time something asks for `storage`, then kept (caches key on it). `origin`
- * is offsets too, its object made when first asked for (by the writer). Own fields are the Tensor fields but
- * these two, which are properties of the class: code that copies a tensor names them (no spread of a tensor),
- * and code that clears `origin` assigns undefined (touch() does; `delete` would not reach the class's property).
- * storageKind, rawByteLength and rawBytesOf answer without keeping a view.
+ * What FileTensor and FileNode share: the message's own bytes are offsets into the file buffer, and its `origin`
+ * object is made the first time something asks for it (the writer does). Code that clears `origin` assigns
+ * undefined (touch() does): `delete` would not reach a property of the class.
  */
-export class FileTensor implements Tensor {
-  declare overridable?: boolean;
-  name: string;
-  dims: number[];
-  dataType: DataTypeCode;
-  docString: string;
-  extra: RawField[];
-  #storage: TensorStorage | undefined;
-  /** The file buffer: raw_data is buf[start, end) while `#storage` is unset; the message is buf[ostart, oend). */
+abstract class FileMessage {
   #buf: Uint8Array;
-  #start: number;
-  #end: number;
   #ostart: number;
   #oend: number;
   /** The origin once made or set; null once cleared. */
   #origin: Origin | undefined | null;
 
-  /** `storage` undefined: raw_data at buf[start, end). The message itself is buf[ostart, oend). */
-  constructor(name: string, dims: number[], dataType: DataTypeCode, storage: TensorStorage | undefined, buf: Uint8Array,
-    start: number, end: number, docString: string, extra: RawField[], ostart: number, oend: number) {
-    this.name = name;
-    this.dims = dims;
-    this.dataType = dataType;
-    this.docString = docString;
-    this.extra = extra;
-    this.#storage = storage;
+  constructor(buf: Uint8Array, ostart: number, oend: number) {
     this.#buf = buf;
-    this.#start = start;
-    this.#end = end;
     this.#ostart = ostart;
     this.#oend = oend;
     this.#origin = undefined;
-  }
-
-  get storage(): TensorStorage {
-    return this.#storage ??= { kind: 'raw', bytes: this.#buf.subarray(this.#start, this.#end) };
-  }
-
-  set storage(s: TensorStorage) {
-    this.#storage = s;
   }
 
   get origin(): Origin | undefined {
@@ -137,13 +105,61 @@ export class FileTensor implements Tensor {
     this.#origin = o ?? null;
   }
 
+  /** A view of the file buffer (no own property holds it: a tensor or node has only its IR fields as own fields). */
+  protected fileBytes(start: number, end: number): Uint8Array {
+    return this.#buf.subarray(start, end);
+  }
+}
+
+/**
+ * A tensor as the reader makes it. A 10^5-node graph holds some 10^5 small tensors, nearly all raw_data, and
+ * most commands never look at their bytes: so raw_data stays two offsets into the file buffer, and the view
+ * (`storage.bytes`) is made the first time something asks for `storage`, then kept (caches key on it). `origin`
+ * is offsets too (FileMessage). Own fields are the Tensor fields but these two, which are properties of the
+ * class: code that copies a tensor names them (no spread of a tensor). storageKind, rawByteLength and rawBytesOf
+ * answer without keeping a view.
+ */
+export class FileTensor extends FileMessage implements Tensor {
+  declare overridable?: boolean;
+  name: string;
+  dims: number[];
+  dataType: DataTypeCode;
+  docString: string;
+  extra: RawField[];
+  #storage: TensorStorage | undefined;
+  /** raw_data is the file buffer's [start, end) while `#storage` is unset. */
+  #start: number;
+  #end: number;
+
+  /** `storage` undefined: raw_data at buf[start, end). The message itself is buf[ostart, oend). */
+  constructor(name: string, dims: number[], dataType: DataTypeCode, storage: TensorStorage | undefined, buf: Uint8Array,
+    start: number, end: number, docString: string, extra: RawField[], ostart: number, oend: number) {
+    super(buf, ostart, oend);
+    this.name = name;
+    this.dims = dims;
+    this.dataType = dataType;
+    this.docString = docString;
+    this.extra = extra;
+    this.#storage = storage;
+    this.#start = start;
+    this.#end = end;
+  }
+
+  get storage(): TensorStorage {
+    return this.#storage ??= { kind: 'raw', bytes: this.fileBytes(this.#start, this.#end) };
+  }
+
+  set storage(s: TensorStorage) {
+    this.#storage = s;
+  }
+
   /**
    * A view of raw or external bytes (undefined for other kinds). While `storage` was never asked for, a new view
    * each time that the tensor does not keep: an analysis reading every weight once leaves no view per tensor.
    */
   rawView(): Uint8Array | undefined {
     const s = this.#storage;
-    if (s === undefined) return this.#buf.subarray(this.#start, this.#end);
+    if (s === undefined) return this.fileBytes(this.#start, this.#end);
     return s.kind === 'raw' || s.kind === 'external' ? s.bytes : undefined;
   }
 
@@ -161,12 +177,11 @@ export class FileTensor implements Tensor {
 }
 
 /**
- * A node as the reader makes it: the Node fields as own fields, and `origin` as offsets into the file buffer, its
- * object made when first asked for (by the writer), as for FileTensor: a graph of 10^5 nodes otherwise held 10^5
- * origin objects for the garbage collector to copy. Code that copies a node names `origin` if it means to keep
- * it (a spread does not carry it), and code that clears it assigns undefined (touch() does).
+ * A node as the reader makes it: the Node fields as own fields, and `origin` as offsets into the file buffer
+ * (FileMessage): a graph of 10^5 nodes otherwise held 10^5 origin objects for the garbage collector to copy. Code
+ * that copies a node names `origin` if it means to keep it (a spread does not carry it).
  */
-export class FileNode implements Node {
+export class FileNode extends FileMessage implements Node {
   name: string;
   opType: string;
   domain: string;
@@ -175,14 +190,10 @@ export class FileNode implements Node {
   attributes: Attribute[];
   docString: string;
   extra: RawField[];
-  #buf: Uint8Array;
-  #start: number;
-  #end: number;
-  /** The origin once made or set; null once cleared. */
-  #origin: Origin | undefined | null;
 
   constructor(name: string, opType: string, domain: string, inputs: string[], outputs: string[], attributes: Attribute[],
     docString: string, extra: RawField[], buf: Uint8Array, start: number, end: number) {
+    super(buf, start, end);
     this.name = name;
     this.opType = opType;
     this.domain = domain;
@@ -191,19 +202,6 @@ export class FileNode implements Node {
     this.attributes = attributes;
     this.docString = docString;
     this.extra = extra;
-    this.#buf = buf;
-    this.#start = start;
-    this.#end = end;
-    this.#origin = undefined;
-  }
-
-  get origin(): Origin | undefined {
-    if (this.#origin === null) return undefined;
-    return this.#origin ??= { buf: this.#buf, start: this.#start, end: this.#end };
-  }
-
-  set origin(o: Origin | undefined) {
-    this.#origin = o ?? null;
   }
 }
 
