@@ -38,6 +38,9 @@ const NO_EXTRA: RawField[] = Object.freeze([]) as unknown as RawField[];
 /** Tensors with external data met since decodeModel began (none: parseModel skips the walk that loads them). */
 let externalSeen = 0;
 
+/** While decodeModel runs, every graph it decodes (main graph and subgraphs); undefined otherwise. */
+let graphsRead: Graph[] | undefined;
+
 /** While a model is read, the cache its names are decoded through (see NameCache); undefined otherwise. */
 let interner: NameCache | undefined;
 
@@ -399,16 +402,20 @@ export function decodeGraph(buf: Buf, start: number, end: number, depth = 0, kid
     }
   }
   g.origin = origin(buf, start, end);
+  graphsRead?.push(g);
   return g;
 }
 
-/** Mark initializers that are also graph inputs (defaults callers may replace), in every graph. */
-function markOverridable(g: Graph, irVersion: number): void {
-  const inputs = new Set(g.inputs.map((v) => v.name));
-  for (const t of g.initializers) if (irVersion >= 4 && inputs.has(t.name)) t.overridable = true;
-  for (const n of g.nodes) for (const a of n.attributes) {
-    if (a.value.type === 'GRAPH') markOverridable(a.value.g, irVersion);
-    else if (a.value.type === 'GRAPHS') a.value.graphs.forEach((sg) => markOverridable(sg, irVersion));
+/**
+ * Mark initializers that are also graph inputs (defaults callers may replace), in every graph decodeModel read
+ * (listed as they were decoded: a walk over every node's attributes to find the subgraphs cost more than the marking).
+ */
+function markOverridable(graphs: readonly Graph[], irVersion: number): void {
+  if (irVersion < 4) return; // before IR 4 every initializer had to be listed as an input too: none is a default
+  for (const g of graphs) {
+    if (g.inputs.length === 0 || g.initializers.length === 0) continue;
+    const inputs = new Set(g.inputs.map((v) => v.name));
+    for (const t of g.initializers) if (inputs.has(t.name)) t.overridable = true;
   }
 }
 
@@ -472,17 +479,19 @@ export function decodeModel(buf: Buf, baseDir: string): Model {
   interner = new NameCache(buf);
   externalSeen = 0;
   dimsCache = new Array<readonly number[] | undefined>(DIMS_SLOTS);
+  const graphs: Graph[] = graphsRead = [];
   let fields: ModelFields;
   try {
     fields = decodeModelFields(buf, 0, buf.byteLength);
   } finally {
     interner = undefined;
     dimsCache = undefined;
+    graphsRead = undefined;
   }
   const { graph, ...m } = fields;
   if (!graph) throw new PleatError('bad-model', 'no graph in the file: this is not an ONNX model');
   const model: Model = { ...m, graph, baseDir };
-  markOverridable(graph, model.irVersion);
+  markOverridable(graphs, model.irVersion);
   model.origin = origin(buf, 0, buf.byteLength);
   return model;
 }

@@ -247,6 +247,32 @@ describe('overridable initializers', () => {
     const old = parseModel(modelBytes(g, { irVersion: 3, opset: 7 }), '/x');
     expect(old.graph.initializers.map((t) => t.overridable ?? false)).toEqual([false, false]);
   });
+
+  it('marks them inside subgraphs too, at any depth (a Loop body whose initializer gives a body input a default)', () => {
+    const body = (depth: number): GraphBuilder => {
+      const b = new GraphBuilder();
+      b.input('i', [], T.INT64).input('c', [], T.BOOL).input('k', [2]).output('c_out', [], T.BOOL).output('k_out', [2]);
+      b.init('k', [2], [5, 6]);
+      b.init('u', [2], [7, 8]);
+      b.node('Identity', ['c'], {}, { outputs: ['c_out'] });
+      if (depth === 0) b.node('Add', ['k', 'u'], {}, { outputs: ['k_out'] });
+      else b.node('Loop', ['', 'c', 'k'], { body: body(depth - 1) }, { outputs: ['k_out'] });
+      return b;
+    };
+    const g = new GraphBuilder();
+    g.input('x', [2]).output('y', [2]);
+    g.init('trip', [], [1], T.INT64);
+    g.init('cond', [], [1], T.BOOL);
+    g.node('Loop', ['trip', 'cond', 'x'], { body: body(1) }, { outputs: ['y'] });
+    const m = parseModel(modelBytes(g), '/x');
+    const marks: Array<[string, boolean]> = [];
+    const walk = (gr: typeof m.graph): void => {
+      for (const t of gr.initializers) marks.push([t.name, t.overridable ?? false]);
+      for (const n of gr.nodes) for (const a of n.attributes) if (a.value.type === 'GRAPH') walk(a.value.g);
+    };
+    walk(m.graph);
+    expect(marks).toEqual([['trip', false], ['cond', false], ['k', true], ['u', false], ['k', true], ['u', false]]);
+  });
 });
 
 describe('a source file that changes while in use', () => {
