@@ -7,7 +7,7 @@ import { eachTensor, externalRef, resolveLocation } from '../onnx/external.js';
 import { readModelFile } from '../onnx/read.js';
 import { isPleatError } from '../errors.js';
 import { SCHEMA_VERSION } from './types.js';
-import { evaluatorGaps, type EvaluatorGap } from '../eval/coverage.js';
+import { evaluatorGaps, type EvaluatorGap, type OpTally } from '../eval/coverage.js';
 
 export const NORMALIZATION_OPS = [
   'BatchNormalization', 'InstanceNormalization', 'LayerNormalization', 'GroupNormalization',
@@ -96,7 +96,7 @@ function missingExternal(model: Model, label: string): MissingData[] {
 }
 
 export function surveyModel(model: Model, file: string | null = null, missingData: MissingData[] = []): SurveyReport {
-  const counts = new Map<string, number>();
+  const counts = new Map<string, OpTally>(); // by op, domain-qualified outside the default domain
   let nodeCount = 0, subgraphCount = 0, initCount = 0, initBytes = 0, constCount = 0, constBytes = 0, external = 0;
   // graph inputs that an initializer gives a default: the initializers against a set of the inputs (older exports
   // list every weight as a graph input too, and a search per input grew with their product)
@@ -114,8 +114,11 @@ export function surveyModel(model: Model, file: string | null = null, missingDat
     }
     for (const n of g.nodes) {
       nodeCount++;
-      const op = n.domain && n.domain !== 'ai.onnx' ? `${n.domain}.${n.opType}` : n.opType;
-      counts.set(op, (counts.get(op) ?? 0) + 1);
+      const domain = n.domain === 'ai.onnx' ? '' : n.domain;
+      const op = domain ? `${domain}.${n.opType}` : n.opType;
+      const tally = counts.get(op);
+      if (tally) tally.count++;
+      else counts.set(op, { domain, opType: n.opType, count: 1 });
       const constant = n.opType === 'Constant';
       if (constant) constCount++;
       for (const a of n.attributes) {
@@ -134,8 +137,8 @@ export function surveyModel(model: Model, file: string | null = null, missingDat
     }
   };
   walk(model.graph);
-  const gaps = evaluatorGaps(model);
-  const opCounts = [...counts].map(([op, count]) => ({ op, count }))
+  const gaps = evaluatorGaps(model, [...counts.values()]);
+  const opCounts = [...counts].map(([op, t]) => ({ op, count: t.count }))
     .sort((a, b) => b.count - a.count || (a.op < b.op ? -1 : a.op > b.op ? 1 : 0));
   return {
     schemaVersion: SCHEMA_VERSION,
