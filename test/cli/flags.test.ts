@@ -5,7 +5,7 @@
 import { describe, expect, it } from 'vitest';
 import { spawnSync } from 'node:child_process';
 import { join } from 'node:path';
-import { readFileSync } from 'node:fs';
+import { existsSync, readFileSync } from 'node:fs';
 import { FORMATS } from '../../src/report/format.js';
 import { CLI, ROOT, pleat } from '../helpers/cli.js';
 
@@ -18,6 +18,9 @@ function usage(args: string[], pattern: RegExp): void {
   expect(r.stderr).toMatch(/^pleat: /);
   expect(r.stderr).toMatch(pattern);
   expect(r.code).toBe(2);
+  // a refused command line writes nothing (a file of this name once reached the repository)
+  expect(existsSync(OUT)).toBe(false);
+  expect(existsSync(`${OUT}.data`)).toBe(false);
 }
 
 describe('single-value options given twice are exit 2 with "given twice"', () => {
