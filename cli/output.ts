@@ -69,7 +69,7 @@ export async function checkDestinations(plan: ReportPlan, guard: OutputGuard): P
  * Print stdout's report (coloured only on a TTY without NO_COLOR) and write every --report file (never coloured)
  * together with the files `staged` by the jobs, in one transaction: all are renamed in, or none.
  */
-export async function emit(plan: ReportPlan, render: (format: Format, colour: boolean) => string,
+export async function emit(plan: ReportPlan, render: (format: Format, colour: boolean) => string | Promise<string>,
   guard: OutputGuard = {}, staged: ReadonlyArray<readonly StagedFile[]> = []): Promise<void> {
   const { OutputSet } = await import('../src/jobs/outputs.js'); // loaded when used: --help needs none of it
   const tx = new OutputSet();
@@ -78,14 +78,14 @@ export async function emit(plan: ReportPlan, render: (format: Format, colour: bo
     for (const files of staged) if (files.length) tx.adopt(files, 'output');
     for (const spec of plan.files) {
       tx.reserve(spec.file, '--report');
-      tx.stage(spec.file, render(spec.format, false));
+      tx.stage(spec.file, await render(spec.format, false));
     }
     tx.commit();
   } catch (e) {
     tx.abort();
     throw e;
   }
-  await out(render(plan.format, plan.format === 'text' && useColour(process.stdout)));
+  await out(await render(plan.format, plan.format === 'text' && useColour(process.stdout)));
 }
 
 /** One line per failed model on stderr, in input order, as a single-model run would print it. */

@@ -11,7 +11,7 @@ import { compareText } from './compare-text.js';
 import { CAUTION, type Format } from './format.js';
 import { auditSuite, compareSuite, errorSuite, foldSuite, junitXml, type Suite } from './junit.js';
 import { foldText } from './ledger-text.js';
-import { auditBody, compareBody, errorBody, foldBody, htmlDocument, type CompareExtras } from './html/page.js';
+import type { CompareExtras } from './html/page.js';
 import { auditMarkdown, compareMarkdown, errorMarkdown, foldMarkdown } from './markdown.js';
 
 export { FORMATS, type Format } from './format.js';
@@ -37,7 +37,13 @@ export interface BatchReport<R> {
 
 type Kind = 'fold' | 'audit';
 
-export function renderJobs(command: Kind, outcomes: ReadonlyArray<Outcome<FoldReport | AuditReport>>, format: Format, colour = false): string {
+/**
+ * The HTML page code (and its graph layout library) is loaded only when a page is asked for: the other formats are
+ * what most runs print, and loading it took some 20 ms of every fold and audit.
+ */
+const htmlPages = () => import('./html/page.js');
+
+export async function renderJobs(command: Kind, outcomes: ReadonlyArray<Outcome<FoldReport | AuditReport>>, format: Format, colour = false): Promise<string> {
   const single = outcomes.length === 1 ? outcomes[0] : undefined;
   const textOf = (r: FoldReport | AuditReport, caution: boolean) =>
     r.command === 'fold' ? foldText(r, colour, caution) : auditText(r, colour);
@@ -65,6 +71,7 @@ export function renderJobs(command: Kind, outcomes: ReadonlyArray<Outcome<FoldRe
       return junitXml(`pleat ${command}`, suites);
     }
     case 'html': {
+      const { auditBody, errorBody, foldBody, htmlDocument } = await htmlPages();
       const batch = outcomes.length > 1;
       const bodies = outcomes.map((o, i) => {
         if (isJobError(o)) return errorBody(command, o.model, o.error.message);
@@ -84,9 +91,12 @@ export function compareJson(r: CompareReport, a: string, b: string, extras: Comp
   return { schemaVersion: SCHEMA_VERSION, command: 'compare', a, b, ...r, ...extras };
 }
 
-export function renderCompare(r: CompareReport, a: string, b: string, format: Format, colour = false, extras: CompareExtras = {}): string {
+export async function renderCompare(r: CompareReport, a: string, b: string, format: Format, colour = false, extras: CompareExtras = {}): Promise<string> {
   switch (format) {
-    case 'html': return htmlDocument(`pleat compare ${a} ${b}`, [compareBody(r, a, b, extras)]);
+    case 'html': {
+      const { compareBody, htmlDocument } = await htmlPages();
+      return htmlDocument(`pleat compare ${a} ${b}`, [compareBody(r, a, b, extras)]);
+    }
     case 'json': return toJsonText(compareJson(r, a, b, extras));
     case 'text': return compareText(r, a, b, colour);
     case 'markdown': return compareMarkdown(r, a, b);

@@ -66,8 +66,8 @@ describe('text', () => {
     expect(c).toMatch(/error budget: A float32 maxAbs 2\.00e-7, B float32 maxAbs 3\.00e-7, added 1\.00e-7/);
   });
 
-  it('a batch prints each model in order, errors included; the probe caution once for fold, never for audit', () => {
-    const t = renderJobs('audit', [
+  it('a batch prints each model in order, errors included; the probe caution once for fold, never for audit', async () => {
+    const t = await renderJobs('audit', [
       { model: 'a.onnx', report: auditReport({ model: 'a.onnx' }), exitCode: 0 },
       { model: 'bad.onnx', error: { kind: 'bad-model', message: 'bad.onnx: not a readable ONNX model' }, exitCode: 2 },
       { model: 'c.onnx', report: auditReport({ model: 'c.onnx' }), exitCode: 0 },
@@ -75,7 +75,7 @@ describe('text', () => {
     expect(t.indexOf('audit a.onnx')).toBeLessThan(t.indexOf('audit bad.onnx: error'));
     expect(t.indexOf('audit bad.onnx: error')).toBeLessThan(t.indexOf('audit c.onnx'));
     expect(t).not.toContain(CAUTION[0]!); // audit runs no probes
-    const f = renderJobs('fold', [
+    const f = await renderJobs('fold', [
       { model: 'a.onnx', report: foldReport({ model: 'a.onnx' }), exitCode: 0 },
       { model: 'c.onnx', report: foldReport({ model: 'c.onnx' }), exitCode: 0 },
     ], 'text');
@@ -88,21 +88,21 @@ describe('JSON against the shipped schema (ajv)', () => {
   const validate = schemaValidator();
   const ok = (v: unknown) => { const good = validate(JSON.parse(toJsonText(v))); expect(validate.errors ?? []).toEqual([]); expect(good).toBe(true); };
 
-  it('fold, audit, compare and batch reports validate', () => {
+  it('fold, audit, compare and batch reports validate', async () => {
     ok(foldReport());
     ok(foldReport({ storage: { store: 'float16', tensorsConverted: 3, keptFloat32: ['big_w'], skipped: [{ tensor: 'w2', reason: 'also read by Add' }], castNodes: 3, bytesBefore: 100, bytesAfter: 52 }, check: null }));
     ok(auditReport());
     ok(compareJson(compareReport(), 'a.onnx', 'b.onnx'));
-    ok(JSON.parse(renderJobs('fold', [
+    ok(JSON.parse(await renderJobs('fold', [
       { model: 'x.onnx', report: foldReport(), exitCode: 0 },
       { model: 'y.onnx', error: { kind: 'bad-input', message: 'y.onnx: no such file' }, exitCode: 2 },
     ], 'json')));
   });
 
-  it('non-finite metrics are written as strings the schema accepts', () => {
+  it('non-finite metrics are written as strings the schema accepts', async () => {
     const sq = { tensor: 40, channel: Infinity, worstChannel: -Infinity };
     const r = foldReport({ quantization: [{ target: 'c', norms: ['b'], channels: 3, spreadBefore: 1, spreadAfter: Infinity, sqnrBefore: sq, sqnrAfter: sq, flagged: true }] });
-    const text = renderJobs('fold', [{ model: r.model, report: r, exitCode: 0 }], 'json');
+    const text = await renderJobs('fold', [{ model: r.model, report: r, exitCode: 0 }], 'json');
     expect(JSON.parse(text).quantization[0].spreadAfter).toBe('Infinity');
     ok(JSON.parse(text));
   });
@@ -126,9 +126,9 @@ describe('JSON against the shipped schema (ajv)', () => {
 });
 
 describe('JUnit XML (fast-xml-parser)', () => {
-  it('audit: one testcase per normalization; kept is skipped, or a failure with --fail-on kept', () => {
+  it('audit: one testcase per normalization; kept is skipped, or a failure with --fail-on kept', async () => {
     for (const failOn of [null, 'kept'] as const) {
-      const xml = renderJobs('audit', [{ model: 'm.onnx', report: auditReport({ model: 'm.onnx', failOn, failed: failOn !== null }), exitCode: 0 }], 'junit');
+      const xml = await renderJobs('audit', [{ model: 'm.onnx', report: auditReport({ model: 'm.onnx', failOn, failed: failOn !== null }), exitCode: 0 }], 'junit');
       const j = parseJunit(xml);
       const suites = j.testsuites;
       expect(suites['@tests']).toBe('2');
@@ -152,14 +152,14 @@ describe('JUnit XML (fast-xml-parser)', () => {
     }
   });
 
-  it('fold: normalizations plus one case per checked output; escaping survives a parser', () => {
+  it('fold: normalizations plus one case per checked output; escaping survives a parser', async () => {
     const r = foldReport({
       check: { ...foldReport().check!, status: 'failed', passed: false, probes: 1, gates: ['maxAbs < 1e-9'], outputs: [
         { name: 'a<b>&"c"', maxAbs: 1, maxRel: 1, rms: 1, cosine: 0, passed: false, status: 'compared', count: 3 },
         { name: 'ok', maxAbs: 0, maxRel: 0, rms: 0, cosine: 1, passed: true, status: 'compared', count: 3 },
       ] }, failed: true, output: null,
     });
-    const j = parseJunit(renderJobs('fold', [{ model: r.model, report: r, exitCode: 1 }], 'junit'));
+    const j = parseJunit(await renderJobs('fold', [{ model: r.model, report: r, exitCode: 1 }], 'junit'));
     const s = j.testsuites.testsuite[0];
     expect(s['@tests']).toBe('6'); // 3 norms, 2 outputs, 1 layer's 8-bit readiness (the affine step act_half is no test case)
     expect(s['@failures']).toBe('1');
@@ -174,8 +174,8 @@ describe('JUnit XML (fast-xml-parser)', () => {
     expect(q.skipped['@message']).toBe('flagged: worst channel 30.1 -> 8.4 dB under one per-tensor 8-bit scale (threshold 20.0 dB)');
   });
 
-  it('a batch error is an <error> case; counts add up over suites', () => {
-    const j = parseJunit(renderJobs('audit', [
+  it('a batch error is an <error> case; counts add up over suites', async () => {
+    const j = parseJunit(await renderJobs('audit', [
       { model: 'a.onnx', report: auditReport({ model: 'a.onnx' }), exitCode: 0 },
       { model: 'bad.onnx', error: { kind: 'bad-model', message: 'bad.onnx: not a readable ONNX model' }, exitCode: 2 },
     ], 'junit'));
@@ -184,8 +184,8 @@ describe('JUnit XML (fast-xml-parser)', () => {
     expect(j.testsuites.testsuite[1].testcase[0].error['@message']).toBe('bad.onnx: not a readable ONNX model');
   });
 
-  it('compare: one case per output', () => {
-    const j = parseJunit(renderCompare(compareReport(), 'a.onnx', 'b.onnx', 'junit'));
+  it('compare: one case per output', async () => {
+    const j = parseJunit(await renderCompare(compareReport(), 'a.onnx', 'b.onnx', 'junit'));
     expect(j.testsuites['@tests']).toBe('2');
     expect(j.testsuites['@failures']).toBe('1');
   });
@@ -196,8 +196,8 @@ describe('JUnit XML (fast-xml-parser)', () => {
 });
 
 describe('Markdown', () => {
-  it('fold: heading, summary line, table with kept first, flagged quantization, caution quote', () => {
-    const md = renderJobs('fold', [{ model: 'm', report: foldReport(), exitCode: 0 }], 'markdown');
+  it('fold: heading, summary line, table with kept first, flagged quantization, caution quote', async () => {
+    const md = await renderJobs('fold', [{ model: 'm', report: foldReport(), exitCode: 0 }], 'markdown');
     const lines = md.split('\n');
     expect(lines[0]).toBe('### pleat fold `models/tray-sorter.onnx`: done');
     expect(md).toMatch(/\*\*2 folded, 1 kept\*\*; nodes 41 → 37/);
@@ -207,7 +207,7 @@ describe('Markdown', () => {
     expect(md).not.toMatch(/cloned/);
     const cloned = foldReport();
     cloned.normalizations[0]!.cloneBytes = 2048;
-    expect(renderJobs('fold', [{ model: 'm', report: cloned, exitCode: 0 }], 'markdown')).toMatch(/weights 10\.0 KiB → 9\.8\d? KiB \(1 layer\(s\) cloned for --clone-shared: \+2\.00 KiB\)/);
+    expect(await renderJobs('fold', [{ model: 'm', report: cloned, exitCode: 0 }], 'markdown')).toMatch(/weights 10\.0 KiB → 9\.8\d? KiB \(1 layer\(s\) cloned for --clone-shared: \+2\.00 KiB\)/);
     expect(foldText(cloned)).toMatch(/1 layer cloned for --clone-shared \(\+2\.00 KiB of weights\)/);
     expect(md).toMatch(/^Also folded \(constant affine steps that are not normalizations\): `act_half` \(Mul\) into `head_fc`\.$/m);
     expect(md).toMatch(/`stem_conv` worst channel 30\.1 → 8\.4 dB, spread 2\.4 → 51\.2/);
@@ -216,8 +216,8 @@ describe('Markdown', () => {
     expect(rows.find((r) => r.startsWith('| `stem_bn`'))).toMatch(/proof on 2x3x5x5: maxAbs 4\.40e-16, maxRel 2\.10e-16/);
   });
 
-  it('pipes in names cannot break the table', () => {
-    const md = renderJobs('audit', [{ model: 'm', report: auditReport({ normalizations: [{ ...auditReport().normalizations[1]!, node: 'a|b' }] }), exitCode: 0 }], 'markdown');
+  it('pipes in names cannot break the table', async () => {
+    const md = await renderJobs('audit', [{ model: 'm', report: auditReport({ normalizations: [{ ...auditReport().normalizations[1]!, node: 'a|b' }] }), exitCode: 0 }], 'markdown');
     const row = md.split('\n').find((l) => l.includes('a\\|b'))!;
     expect(row.split(/(?<!\\)\|/).length - 2).toBe(4); // four cells
   });

@@ -199,7 +199,7 @@ describe.skipIf(!browser)('HTML report in headless Chromium', () => {
       check: { ...base.check!, passed: false, status: 'failed' },
       quantization: [base.quantization[0]!, { ...base.quantization[0]!, target: 'wide', spreadAfter: Infinity, sqnrAfter: { tensor: Infinity, channel: 12.5, worstChannel: -Infinity } }],
     } as unknown as FoldReport;
-    writeFileSync(at('fixture.html'), renderJobs('fold', [{ model: report.model, report, exitCode: 0 }], 'html'));
+    writeFileSync(at('fixture.html'), await renderJobs('fold', [{ model: report.model, report, exitCode: 0 }], 'html'));
     const { page, problems } = await load(context, at('fixture.html'));
     expectFiguresMatch(await figuresOf(page), JSON.parse(toJsonText(report)));
     const shown = new Set((await figuresOf(page)).map((f) => f.path));
