@@ -211,7 +211,8 @@ export function editableUseDef(graph: Graph): EditableUseDef {
   }
   const extra = new Map<string, number>();
   const flagOver = new Map<number, number>();
-  const readOver: Array<Node[] | undefined> = [];
+  // (filled from the start: an array set at scattered ids, or one mostly holes that grows, turns into a slow dictionary)
+  const readOver: Array<Node[] | undefined> = new Array<Node[] | undefined>(baseSize).fill(undefined);
   const ownerReads = new Map<Node, string[]>();
   for (const [j, refs] of bodies) ownerReads.set(nodes[j]!, refs);
   const unsorted = new Set<number>();
@@ -219,7 +220,7 @@ export function editableUseDef(graph: Graph): EditableUseDef {
   const idIn = (v: string): number => { const id = tableId(v); return id >= 0 ? id : (extra.get(v) ?? -1); };
   const idAdd = (v: string): number => {
     let id = idIn(v);
-    if (id < 0) { id = baseSize + extra.size; extra.set(v, id); prod[id] = undefined; inits[id] = undefined; }
+    if (id < 0) { id = baseSize + extra.size; extra.set(v, id); prod[id] = undefined; inits[id] = undefined; readOver[id] = undefined; }
     return id;
   };
   const flagsAt = (id: number): number => flagOver.get(id) ?? (id < baseSize ? flags[id]! : 0);
