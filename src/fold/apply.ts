@@ -113,8 +113,8 @@ export function flushPending(ctx: FoldContext): void {
       };
       for (const n of g.nodes) emit(n, false);
       g.nodes = nodes;
-      if (p.initializers.length) g.initializers = [...g.initializers, ...p.initializers];
-      if (p.inputs.length) g.inputs = [...g.inputs, ...p.inputs];
+      if (p.initializers.length) g.initializers = g.initializers.concat(p.initializers);
+      if (p.inputs.length) g.inputs = g.inputs.concat(p.inputs);
       touch(g);
     }
     for (const n of p.removed) ctx.removedNodes.add(n);

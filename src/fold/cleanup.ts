@@ -23,11 +23,18 @@ export function cleanUp(model: Model, released: readonly string[], goneValues: r
     return [s, live ? live.ud.readerCount : (v: string) => s.ud.consumers(v).length] as const;
   }));
   const unread = (s: Scope, v: string) => readerCount.get(s)!(v) === 0 && !s.ud.isGraphOutput(v) && !s.ud.isGraphInput(v);
+  // the names of values that no longer exist matter only to graphs that declare value_info
+  const withInfos = scopes.some((s) => s.graph.valueInfo.length > 0);
   const dropInit = (s: Scope, t: Tensor) => {
     let d = dropInits.get(s.graph);
     if (!d) dropInits.set(s.graph, d = { tensors: new Set(), names: [] });
-    if (d.tensors.has(t)) return;
+    const had = d.tensors.size;
     d.tensors.add(t);
+    if (d.tensors.size === had) return;
+    // the driver's index is told at once, while the name was just looked up (a lookup later would hash it again);
+    // a name released twice then no longer defines an initializer, as the set above would also have told
+    ctx?.live?.get(s.graph)?.ud.removeInitializer(t.name);
+    if (!withInfos) return;
     d.names.push(t.name);
     gone.push(t.name);
   };
@@ -57,8 +64,7 @@ export function cleanUp(model: Model, released: readonly string[], goneValues: r
   }
   for (const [g, d] of dropInits) { g.initializers = g.initializers.filter((t) => !d.tensors.has(t)); touch(g); }
   for (const [g, nodes] of dropNodes) { g.nodes = g.nodes.filter((n) => !nodes.has(n)); touch(g); }
-  // the names of values that no longer exist matter only to graphs that declare value_info
-  const goneSet = gone.length && scopes.some((s) => s.graph.valueInfo.length > 0) ? new Set(gone) : undefined;
+  const goneSet = gone.length && withInfos ? new Set(gone) : undefined;
   if (goneSet) {
     for (const s of scopes) {
       const g = s.graph;
@@ -71,7 +77,6 @@ export function cleanUp(model: Model, released: readonly string[], goneValues: r
     }
   }
   if (!ctx?.live) return;
-  for (const [g, d] of dropInits) { const ud = ctx.live.get(g)!.ud; for (const v of d.names) ud.removeInitializer(v); }
   for (const [g, nodes] of dropNodes) {
     const ud = ctx.live.get(g)!.ud;
     for (const n of nodes) { ud.removeNode(n); ctx.removedNodes.add(n); }

@@ -65,7 +65,7 @@ function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], release
   for (const scope of scopes) {
     const cache = new Map();
     const dirty = new Set<Node>();
-    for (const node of [...scope.graph.nodes]) {
+    for (const node of scope.graph.nodes.slice()) {
       if (dirty.has(node)) continue;
       const s = stepOf(ctx, scope, cache, node);
       if (!isStep(s)) continue;
@@ -89,9 +89,11 @@ function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], release
       const before = prove ? regionBefore(edit) : undefined;
       const inPlace = ctx.options.reuseBuffers ?? true;
       const undo = applyEdit(ctx, edit, { inPlace: !prove && inPlace, undoable: prove !== undefined });
+      // (the layers and changed nodes are mostly among the involved already: each add is a probe into a set of
+      // every node touched this sweep)
       for (const n of involved) dirty.add(n);
-      for (const m of matches) dirty.add(m.layer.node);
-      for (const c of edit.changes) dirty.add(c.node);
+      for (const m of matches) if (!involved.includes(m.layer.node)) dirty.add(m.layer.node);
+      for (const c of edit.changes) if (!involved.includes(c.node)) dirty.add(c.node);
       changed = true;
       const targets = o.matches.map((m) => m.layer.label);
       const target = targets.join(', ');
@@ -127,10 +129,10 @@ function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], release
         folded.push(entry(chain, written, 'normalization', writtenOutHint(targets)));
       }
       // what the whole-model check watches: the layers whose weights changed, nodes created or changed in kind
-      const changedKind = edit.changes.filter((c) => c.opType !== undefined || c.attributes !== undefined).map((c) => c.node);
-      for (const n of [...o.matches.map((mm) => mm.layer.node), ...edit.inserts.map((i) => i.node), ...changedKind]) {
-        if (!rewritten.has(n)) rewritten.set(n, { node: n, label: ctx.labels.get(n) ?? n.name, graph: scope.path });
-      }
+      const watch = (n: Node) => { if (!rewritten.has(n)) rewritten.set(n, { node: n, label: ctx.labels.get(n) ?? n.name, graph: scope.path }); };
+      for (const mm of o.matches) watch(mm.layer.node);
+      for (const i of edit.inserts) watch(i.node);
+      for (const c of edit.changes) if (c.opType !== undefined || c.attributes !== undefined) watch(c.node);
       run.steps.forEach((x, i) => {
         folded.push(entry(x.node, x.node.opType, entryKind(scope, x.node), x.kind === 'layer-norm' ? layerNormHint(targets) : hint, i === 0 && o.clone ? cloneCost(o.matches[0]!) : 0));
       });
@@ -189,8 +191,9 @@ export function foldModel(model: Model, options: FoldOptions = {}): { model: Mod
   // Every normalization still in the model, with its reason, from the same analysis audit runs.
   // (A norm whose statistics stay shows up again after its tail moved: the folded entry stands.)
   for (const s of scopes) forgetDerived(s);
-  const done = new Set(folded.map((e) => `${e.graph}\u0000${e.node}`));
-  const kept: LedgerEntry[] = findingsOf(ctx, model, scopes).filter((f) => !done.has(`${f.graph}\u0000${f.node}`))
+  // (the set of folded names is made only when some normalization is still there to be checked against it)
+  let done: Set<string> | undefined;
+  const kept: LedgerEntry[] = findingsOf(ctx, model, scopes).filter((f) => !(done ??= new Set(folded.map((e) => `${e.graph}\u0000${e.node}`))).has(`${f.graph}\u0000${f.node}`))
     .map((f) => ({ ...f, status: 'kept' as const }));
   // each entry's place looked up once (the sort is stable, as before)
   const placedAt = [...folded, ...kept].map((e) => ({ e, at: placeOf(e.graph, e.node) ?? 1e15 }));
