@@ -381,22 +381,30 @@ export function attrTensor(node: Node, name: string): Tensor | undefined {
 
 /** Every subgraph a node carries (If branches, Loop/Scan bodies, any GRAPH/GRAPHS attribute). */
 /** Whether a node carries subgraphs (without building a list for the many nodes that carry none). */
+// (indexed loops in these helpers: they run per node or per tensor over graphs of 10^5 nodes, often from code not yet
+// optimized, where each step of a for-of makes an iterator result object; dims lists may be frozen and shared)
 export function hasSubgraphs(node: Node): boolean {
-  for (const a of node.attributes) if (a.value.type === 'GRAPH' || a.value.type === 'GRAPHS') return true;
+  const attrs = node.attributes;
+  for (let i = 0; i < attrs.length; i++) {
+    const t = attrs[i]!.value.type;
+    if (t === 'GRAPH' || t === 'GRAPHS') return true;
+  }
   return false;
 }
 
 export function subgraphsOf(node: Node): Graph[] {
   const out: Graph[] = [];
-  for (const a of node.attributes) {
-    if (a.value.type === 'GRAPH') out.push(a.value.g);
-    else if (a.value.type === 'GRAPHS') out.push(...a.value.graphs);
+  const attrs = node.attributes;
+  for (let i = 0; i < attrs.length; i++) {
+    const v = attrs[i]!.value;
+    if (v.type === 'GRAPH') out.push(v.g);
+    else if (v.type === 'GRAPHS') out.push(...v.graphs);
   }
   return out;
 }
 
 export function elementCount(dims: readonly number[]): number {
   let n = 1;
-  for (const d of dims) n *= d;
+  for (let i = 0; i < dims.length; i++) n *= dims[i]!;
   return n;
 }
