@@ -109,9 +109,11 @@ export function flushPending(ctx: FoldContext): void {
       const emit = (n: Node, isNew: boolean) => {
         if (!p.removed.has(n)) nodes.push(n);
         if (isNew) inserted.push(n);
-        for (const a of p.inserts.get(n) ?? []) emit(a, true);
+        const after = p.inserts.size ? p.inserts.get(n) : undefined; // (no empty list made per node)
+        if (after) for (const a of after) emit(a, true);
       };
-      for (const n of g.nodes) emit(n, false);
+      const old = g.nodes;
+      for (let i = 0; i < old.length; i++) emit(old[i]!, false);
       g.nodes = nodes;
       if (p.initializers.length) g.initializers = g.initializers.concat(p.initializers);
       if (p.inputs.length) g.inputs = g.inputs.concat(p.inputs);

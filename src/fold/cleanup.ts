@@ -46,7 +46,8 @@ export function cleanUp(model: Model, released: readonly string[], goneValues: r
   for (const s of scopes) {
     if (released.length < s.graph.initializers.length + s.graph.nodes.length) {
       // fewer names released than the graph holds: look each one up
-      for (const v of released) {
+      for (let i = 0; i < released.length; i++) {
+        const v = released[i]!;
         if (!s.ud.defines(v) || !unread(s, v)) continue;
         const t = s.ud.initializer(v);
         if (t) dropInit(s, t);

@@ -31,8 +31,10 @@ export function countNodes(model: Model): number {
 export function weightBytes(model: Model): number {
   let b = 0;
   eachGraph(model.graph, (g) => {
-    for (const t of g.initializers) b += tensorByteSize(t);
-    for (const n of g.nodes) {
+    const inits = g.initializers, nodes = g.nodes;
+    for (let i = 0; i < inits.length; i++) b += tensorByteSize(inits[i]!);
+    for (let i = 0; i < nodes.length; i++) {
+      const n = nodes[i]!;
       if (n.opType !== 'Constant') continue;
       const t = attrTensor(n, 'value');
       if (t) b += tensorByteSize(t);
@@ -65,7 +67,9 @@ function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], release
   for (const scope of scopes) {
     const cache = new Map();
     const dirty = new Set<Node>();
-    for (const node of scope.graph.nodes.slice()) {
+    const nodes = scope.graph.nodes.slice();
+    for (let i = 0; i < nodes.length; i++) {
+      const node = nodes[i]!;
       if (dirty.has(node)) continue;
       const s = stepOf(ctx, scope, cache, node);
       if (!isStep(s)) continue;
@@ -166,7 +170,9 @@ export function foldModel(model: Model, options: FoldOptions = {}): { model: Mod
     let inPath = order.get(s.path);
     if (!inPath) order.set(s.path, inPath = { labels: nameTable(Math.max(bound.get(s.path)!, 1)), at: [] });
     const { labels, at } = inPath;
-    for (const n of s.graph.nodes) {
+    const nodes = s.graph.nodes;
+    for (let i = 0; i < nodes.length; i++) {
+      const n = nodes[i]!;
       const known = labels.size;
       const id = labels.add(labelOf(s, n));
       // (a name seen again takes the place after the distinct names so far, as one map of both keys would give)

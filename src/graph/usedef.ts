@@ -304,7 +304,8 @@ export function editableUseDef(graph: Graph): EditableUseDef {
   return {
     graph,
     producer: producerOf,
-    consumers: (v) => { const id = idIn(v); return id < 0 ? [] : readersAt(id).slice(); },
+    // (a list the caller owns: an override copied, a list made from the compressed rows as it is)
+    consumers: (v) => { const id = idIn(v); if (id < 0) return []; const o = readOver[id]; return o ? o.slice() : readersAt(id); },
     readerCount: (v) => { const id = idIn(v); return id < 0 ? 0 : readerCountAt(id); },
     knows: (v) => idIn(v) >= 0,
     isGraphOutput: (v) => { const id = idIn(v); return id >= 0 && (flagsAt(id) & IS_OUTPUT) !== 0; },
