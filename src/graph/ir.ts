@@ -334,7 +334,8 @@ export function opsetVersion(model: Pick<Model, 'opsets'>, domain = ''): number 
 }
 
 export function attr(node: Node, name: string): AttributeValue | undefined {
-  for (const a of node.attributes) if (a.name === name) return a.value; // a loop: called per node in analyses
+  const attrs = node.attributes; // a loop, and indexed: called per node in analyses
+  for (let i = 0; i < attrs.length; i++) if (attrs[i]!.name === name) return attrs[i]!.value;
   return undefined;
 }
 
@@ -366,8 +367,9 @@ export function attrString(node: Node, name: string, dflt: string): string;
 export function attrString(node: Node, name: string): string | undefined;
 export function attrString(node: Node, name: string, dflt?: string): string | undefined {
   const v = attr(node, name);
-  return v && v.type === 'STRING' ? new TextDecoder().decode(v.s) : dflt;
+  return v && v.type === 'STRING' ? attrText.decode(v.s) : dflt;
 }
+const attrText = new TextDecoder();
 
 export function attrGraph(node: Node, name: string): Graph | undefined {
   const v = attr(node, name);
