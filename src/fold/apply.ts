@@ -119,7 +119,7 @@ export function flushPending(ctx: FoldContext): void {
       if (p.inputs.length) g.inputs = g.inputs.concat(p.inputs);
       touch(g);
     }
-    for (const n of p.removed) ctx.removedNodes.add(n);
+    p.removed.forEach((n) => ctx.removedNodes.add(n)); // (forEach: no entry or iterator result made per node)
     const live = ctx.live?.get(g);
     if (live) updateIndex(ctx, live, p, inserted, edited);
   }
@@ -133,8 +133,9 @@ function updateIndex(ctx: FoldContext, live: LiveScope, p: PendingGraph, inserte
   const ud = live.ud;
   edited.add(ud);
   const added = new Set(inserted);
-  for (const n of p.removed) ud.removeNode(n, p.rewired.get(n));
-  for (const [n, was] of p.rewired) if (!p.removed.has(n) && !added.has(n)) ud.rewire(n, was);
+  // (forEach over the set and map: a for-of makes an entry array and an iterator result per node)
+  p.removed.forEach((n) => ud.removeNode(n, p.rewired.get(n)));
+  p.rewired.forEach((was, n) => { if (!p.removed.has(n) && !added.has(n)) ud.rewire(n, was); });
   for (const n of inserted) ud.addNode(n);
   for (const t of p.initializers) ud.addInitializer(t);
   for (const v of p.inputs) ud.addGraphInput(v.name);

@@ -84,8 +84,8 @@ function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], release
       const edit = newEdit(scope);
       const matches = o.clone ? cloneForRun(ctx, edit, o.matches[0]!) : o.matches;
       const outputs: string[] = [];
-      for (const m of matches) {
-        m.rule.rewrite(ctx, m, edit);
+      for (let k = 0; k < matches.length; k++) {
+        matches[k]!.rule.rewrite(ctx, matches[k]!, edit);
         outputs.push(...edit.regionOutputs);
       }
       // (the region's outputs and the nodes' names are for the proof alone)
@@ -95,9 +95,10 @@ function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], release
       const undo = applyEdit(ctx, edit, { inPlace: !prove && inPlace, undoable: prove !== undefined });
       // (the layers and changed nodes are mostly among the involved already: each add is a probe into a set of
       // every node touched this sweep)
-      for (const n of involved) dirty.add(n);
-      for (const m of matches) if (!involved.includes(m.layer.node)) dirty.add(m.layer.node);
-      for (const c of edit.changes) if (!involved.includes(c.node)) dirty.add(c.node);
+      // (indexed loops here and below: per fold, in a function the engine may not have optimized yet)
+      for (let k = 0; k < involved.length; k++) dirty.add(involved[k]!);
+      for (let k = 0; k < matches.length; k++) if (!involved.includes(matches[k]!.layer.node)) dirty.add(matches[k]!.layer.node);
+      for (let k = 0; k < edit.changes.length; k++) if (!involved.includes(edit.changes[k]!.node)) dirty.add(edit.changes[k]!.node);
       changed = true;
       const targets = o.matches.map((m) => m.layer.label);
       const target = targets.join(', ');
@@ -134,14 +135,17 @@ function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], release
       }
       // what the whole-model check watches: the layers whose weights changed, nodes created or changed in kind
       const watch = (n: Node) => { if (!rewritten.has(n)) rewritten.set(n, { node: n, label: ctx.labels.get(n) ?? n.name, graph: scope.path }); };
-      for (const mm of o.matches) watch(mm.layer.node);
-      for (const i of edit.inserts) watch(i.node);
-      for (const c of edit.changes) if (c.opType !== undefined || c.attributes !== undefined) watch(c.node);
+      for (let k = 0; k < o.matches.length; k++) watch(o.matches[k]!.layer.node);
+      for (let k = 0; k < edit.inserts.length; k++) watch(edit.inserts[k]!.node);
+      for (let k = 0; k < edit.changes.length; k++) {
+        const c = edit.changes[k]!;
+        if (c.opType !== undefined || c.attributes !== undefined) watch(c.node);
+      }
       run.steps.forEach((x, i) => {
         folded.push(entry(x.node, x.node.opType, entryKind(scope, x.node), x.kind === 'layer-norm' ? layerNormHint(targets) : hint, i === 0 && o.clone ? cloneCost(o.matches[0]!) : 0));
       });
-      for (const r of edit.released) released.push(r);
-      for (const v of edit.goneValues) gone.push(v);
+      for (let k = 0; k < edit.released.length; k++) released.push(edit.released[k]!);
+      for (let k = 0; k < edit.goneValues.length; k++) gone.push(edit.goneValues[k]!);
     }
   }
   flushPending(ctx);
