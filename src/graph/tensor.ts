@@ -252,13 +252,13 @@ export function encodeStorage(values: ArrayLike<number>, code: DataTypeCode, lik
 // is never written again once handed out, so each view keeps its bytes; views start at multiples of 8 (aligned
 // for any element type).
 const SLAB = 64 * 1024;
-let slab = new Uint8Array(0);
+let slab = new ArrayBuffer(0);
 let slabAt = 0;
 
 function freshBytes(n: number): Uint8Array {
   if (n > SLAB / 16) return new Uint8Array(n);
-  if (slabAt + n > slab.byteLength) { slab = new Uint8Array(SLAB); slabAt = 0; }
-  const out = slab.subarray(slabAt, slabAt + n);
+  if (slabAt + n > slab.byteLength) { slab = new ArrayBuffer(SLAB); slabAt = 0; }
+  const out = new Uint8Array(slab, slabAt, n); // (a view made by its constructor: subarray costs twice that)
   slabAt += (n + 7) & ~7;
   return out;
 }

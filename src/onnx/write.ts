@@ -347,14 +347,16 @@ const byteLen = (x: Uint8Array | string): number => (typeof x === 'string' ? x.l
 // bytes has its own buffer outside the heap, which the garbage collector tracks one by one (a fold of 10^5 small
 // layers made as many). A slab is never written again once handed out, so each view keeps its bytes.
 const SLAB = 64 * 1024;
-let slab = new Uint8Array(0);
+let slab = new ArrayBuffer(0);
 let slabAt = 0;
 
-/** `n` fresh bytes (zeros) that no other piece shares. */
+/** `n` fresh bytes (zeros) that no other piece shares. (A view made by its constructor: subarray costs twice that.) */
 function slabBytes(n: number): Uint8Array {
   if (n > SLAB / 8) return new Uint8Array(n);
-  if (slabAt + n > slab.byteLength) { slab = new Uint8Array(SLAB); slabAt = 0; }
-  return slab.subarray(slabAt, slabAt += n);
+  if (slabAt + n > slab.byteLength) { slab = new ArrayBuffer(SLAB); slabAt = 0; }
+  const out = new Uint8Array(slab, slabAt, n);
+  slabAt += n;
+  return out;
 }
 
 /** Writes fields into an array sized beforehand. */
