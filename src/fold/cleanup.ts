@@ -12,8 +12,9 @@ import type { FoldContext } from './context.js';
  */
 export function cleanUp(model: Model, released: readonly string[], goneValues: readonly string[], ctx?: FoldContext): void {
   const scopes = ctx?.live ? [...ctx.live.values()].map((l) => l.scope) : buildScopes(model);
-  // the tensors to drop, and their names (initializer names are unique in a valid graph)
-  const dropInits = new Map<Graph, { tensors: Set<Tensor>; names: string[] }>();
+  // the tensors to drop, and their names (initializer names are unique in a valid graph); `seen` keeps a tensor from
+  // coming twice when there is no driver's index to tell
+  const dropInits = new Map<Graph, { list: Tensor[]; seen?: Set<Tensor>; names: string[] }>();
   const dropNodes = new Map<Graph, Set<Node>>();
   const gone = [...goneValues];
   let releasedSet: Set<string> | undefined;
@@ -26,14 +27,18 @@ export function cleanUp(model: Model, released: readonly string[], goneValues: r
   // the names of values that no longer exist matter only to graphs that declare value_info
   const withInfos = scopes.some((s) => s.graph.valueInfo.length > 0);
   const dropInit = (s: Scope, t: Tensor) => {
+    const ud = ctx?.live?.get(s.graph)?.ud;
     let d = dropInits.get(s.graph);
-    if (!d) dropInits.set(s.graph, d = { tensors: new Set(), names: [] });
-    const had = d.tensors.size;
-    d.tensors.add(t);
-    if (d.tensors.size === had) return;
-    // the driver's index is told at once, while the name was just looked up (a lookup later would hash it again);
-    // a name released twice then no longer defines an initializer, as the set above would also have told
-    ctx?.live?.get(s.graph)?.ud.removeInitializer(t.name);
+    if (!d) dropInits.set(s.graph, d = { list: [], seen: ud ? undefined : new Set(), names: [] });
+    if (ud) {
+      // the driver's index is told at once, while the name was just looked up (a lookup later would hash it again);
+      // the name then defines no initializer, so a tensor comes here once (a set of 10^5 tensors grew slowly)
+      ud.removeInitializer(t.name);
+    } else {
+      if (d.seen!.has(t)) return;
+      d.seen!.add(t);
+    }
+    d.list.push(t);
     if (!withInfos) return;
     d.names.push(t.name);
     gone.push(t.name);
@@ -63,7 +68,7 @@ export function cleanUp(model: Model, released: readonly string[], goneValues: r
       if (n.opType === 'Constant' && v && isReleased.has(v) && unread(s, v)) dropConstant(s, n, v);
     }
   }
-  for (const [g, d] of dropInits) { g.initializers = g.initializers.filter((t) => !d.tensors.has(t)); touch(g); }
+  for (const [g, d] of dropInits) { g.initializers = without(g.initializers, d.list); touch(g); }
   for (const [g, nodes] of dropNodes) { g.nodes = g.nodes.filter((n) => !nodes.has(n)); touch(g); }
   const goneSet = gone.length && withInfos ? new Set(gone) : undefined;
   if (goneSet) {
@@ -82,4 +87,21 @@ export function cleanUp(model: Model, released: readonly string[], goneValues: r
     const ud = ctx.live.get(g)!.ud;
     for (const n of nodes) { ud.removeNode(n); ctx.removedNodes.add(n); }
   }
+}
+
+/**
+ * `all` without the tensors of `drop`. They mostly come in the order of the list (released fold by fold, in node
+ * order): one pass that steps through both; a set of them only when that pass does not meet each one in turn.
+ */
+function without(all: readonly Tensor[], drop: readonly Tensor[]): Tensor[] {
+  const out: Tensor[] = [];
+  let j = 0;
+  for (let i = 0; i < all.length; i++) {
+    const t = all[i]!;
+    if (j < drop.length && t === drop[j]) { j++; continue; }
+    out.push(t);
+  }
+  if (j === drop.length) return out;
+  const gone = new Set(drop);
+  return all.filter((t) => !gone.has(t));
 }
