@@ -119,7 +119,7 @@ export function flushPending(ctx: FoldContext): void {
       if (p.inputs.length) g.inputs = g.inputs.concat(p.inputs);
       touch(g);
     }
-    p.removed.forEach((n) => ctx.removedNodes.add(n)); // (forEach: no entry or iterator result made per node)
+    p.removed.forEach((n) => { ctx.removedNodes.push(n); }); // (forEach: no entry or iterator result made per node)
     const live = ctx.live?.get(g);
     if (live) updateIndex(ctx, live, p, inserted, edited);
   }

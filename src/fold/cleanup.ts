@@ -85,7 +85,7 @@ export function cleanUp(model: Model, released: readonly string[], goneValues: r
   if (!ctx?.live) return;
   for (const [g, nodes] of dropNodes) {
     const ud = ctx.live.get(g)!.ud;
-    for (const n of nodes) { ud.removeNode(n); ctx.removedNodes.add(n); }
+    for (const n of nodes) { ud.removeNode(n); ctx.removedNodes.push(n); }
   }
 }
 

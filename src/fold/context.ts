@@ -30,8 +30,11 @@ export interface FoldContext {
    * index what changed in its graph), so no sweep rebuilds them.
    */
   live?: Map<Graph, LiveScope>;
-  /** Nodes the folds and the clean-up took out of their graphs. */
-  removedNodes: Set<Node>;
+  /**
+   * Nodes the folds and the clean-up took out of their graphs, in the order they went (a list: the driver only walks
+   * it once at the end, and a set of 10^5 nodes grew slowly).
+   */
+  removedNodes: Node[];
   /** Whether a sweep's list changes were applied yet (see flushPending). */
   flushed: boolean;
 }
@@ -89,7 +92,7 @@ export function makeContext(model: Model, options: FoldOptions): FoldContext {
     irVersion: model.irVersion,
     nameCounters: new Map(),
     pending: new Map(),
-    removedNodes: new Set(),
+    removedNodes: [],
     flushed: false,
   };
   return ctx;

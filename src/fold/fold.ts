@@ -152,6 +152,12 @@ function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], release
   return changed;
 }
 
+/** The watched nodes still in the model, in the order they were first rewritten (the map is emptied of the others). */
+function watchedStill(touched: Map<Node, RewrittenNode>, removed: readonly Node[]): RewrittenNode[] {
+  for (let i = 0; i < removed.length; i++) touched.delete(removed[i]!);
+  return [...touched.values()];
+}
+
 /**
  * Fold every normalization that can be folded exactly. Edits `model` in place and returns it with the ledger:
  * one entry per normalization (folded, or kept with its reason), node and weight-byte totals; and the scopes the
@@ -212,7 +218,7 @@ export function foldModel(model: Model, options: FoldOptions = {}): { model: Mod
   return {
     model,
     ledger: { normalizations, nodesBefore, nodesAfter: countNodes(model), bytesBefore, bytesAfter: weightBytes(model) },
-    rewritten: [...touched.values()].filter((r) => !ctx.removedNodes.has(r.node)),
+    rewritten: watchedStill(touched, ctx.removedNodes),
     // the run's scopes, current for the model as returned (until it is edited again)
     scopes,
   };
