@@ -93,9 +93,9 @@ function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], release
       const before = prove ? regionBefore(edit) : undefined;
       const inPlace = ctx.options.reuseBuffers ?? true;
       const undo = applyEdit(ctx, edit, { inPlace: !prove && inPlace, undoable: prove !== undefined });
-      // (the layers and changed nodes are mostly among the involved already: each add is a probe into a set of
-      // every node touched this sweep)
-      // (indexed loops here and below: per fold, in a function the engine may not have optimized yet)
+      // (the layers and changed nodes are mostly among the involved already, and each add is a probe into a set of
+      // every node touched this sweep; indexed loops here and below: per fold, in a function the engine may not have
+      // optimized yet)
       for (let k = 0; k < involved.length; k++) dirty.add(involved[k]!);
       for (let k = 0; k < matches.length; k++) if (!involved.includes(matches[k]!.layer.node)) dirty.add(matches[k]!.layer.node);
       for (let k = 0; k < edit.changes.length; k++) if (!involved.includes(edit.changes[k]!.node)) dirty.add(edit.changes[k]!.node);
