@@ -109,15 +109,17 @@ export function flushPending(ctx: FoldContext): void {
       const emit = (n: Node, isNew: boolean) => {
         if (!p.removed.has(n)) nodes.push(n);
         if (isNew) inserted.push(n);
-        for (const a of p.inserts.get(n) ?? []) emit(a, true);
+        const after = p.inserts.size ? p.inserts.get(n) : undefined; // (no empty list made per node)
+        if (after) for (const a of after) emit(a, true);
       };
-      for (const n of g.nodes) emit(n, false);
+      const old = g.nodes;
+      for (let i = 0; i < old.length; i++) emit(old[i]!, false);
       g.nodes = nodes;
-      if (p.initializers.length) g.initializers = [...g.initializers, ...p.initializers];
-      if (p.inputs.length) g.inputs = [...g.inputs, ...p.inputs];
+      if (p.initializers.length) g.initializers = g.initializers.concat(p.initializers);
+      if (p.inputs.length) g.inputs = g.inputs.concat(p.inputs);
       touch(g);
     }
-    for (const n of p.removed) ctx.removedNodes.add(n);
+    p.removed.forEach((n) => { ctx.removedNodes.push(n); }); // (forEach: no entry or iterator result made per node)
     const live = ctx.live?.get(g);
     if (live) updateIndex(ctx, live, p, inserted, edited);
   }
@@ -131,8 +133,9 @@ function updateIndex(ctx: FoldContext, live: LiveScope, p: PendingGraph, inserte
   const ud = live.ud;
   edited.add(ud);
   const added = new Set(inserted);
-  for (const n of p.removed) ud.removeNode(n, p.rewired.get(n));
-  for (const [n, was] of p.rewired) if (!p.removed.has(n) && !added.has(n)) ud.rewire(n, was);
+  // (forEach over the set and map: a for-of makes an entry array and an iterator result per node)
+  p.removed.forEach((n) => ud.removeNode(n, p.rewired.get(n)));
+  p.rewired.forEach((was, n) => { if (!p.removed.has(n) && !added.has(n)) ud.rewire(n, was); });
   for (const n of inserted) ud.addNode(n);
   for (const t of p.initializers) ud.addInitializer(t);
   for (const v of p.inputs) ud.addGraphInput(v.name);

@@ -30,8 +30,11 @@ export interface FoldContext {
    * index what changed in its graph), so no sweep rebuilds them.
    */
   live?: Map<Graph, LiveScope>;
-  /** Nodes the folds and the clean-up took out of their graphs. */
-  removedNodes: Set<Node>;
+  /**
+   * Nodes the folds and the clean-up took out of their graphs, in the order they went (a list: the driver only walks
+   * it once at the end, and a set of 10^5 nodes grew slowly).
+   */
+  removedNodes: Node[];
   /** Whether a sweep's list changes were applied yet (see flushPending). */
   flushed: boolean;
 }
@@ -89,7 +92,7 @@ export function makeContext(model: Model, options: FoldOptions): FoldContext {
     irVersion: model.irVersion,
     nameCounters: new Map(),
     pending: new Map(),
-    removedNodes: new Set(),
+    removedNodes: [],
     flushed: false,
   };
   return ctx;
@@ -101,7 +104,8 @@ function namesIn(model: Model): NameSet {
   let bound = 0;
   eachGraph(model.graph, (g) => {
     bound += g.inputs.length + g.outputs.length + g.valueInfo.length + g.initializers.length;
-    for (const n of g.nodes) bound += 1 + n.outputs.length + n.inputs.length;
+    const nodes = g.nodes;
+    for (let i = 0; i < nodes.length; i++) bound += 1 + nodes[i]!.outputs.length + nodes[i]!.inputs.length;
   });
   const table = nameTable(bound);
   const add = table.add;
@@ -110,10 +114,13 @@ function namesIn(model: Model): NameSet {
     for (const v of g.outputs) add(v.name);
     for (const v of g.valueInfo) add(v.name);
     for (const t of g.initializers) add(t.name);
-    for (const n of g.nodes) {
+    const nodes = g.nodes;
+    for (let j = 0; j < nodes.length; j++) {
+      const n = nodes[j]!;
       if (n.name) add(n.name);
-      for (const o of n.outputs) if (o) add(o);
-      for (const i of n.inputs) if (i) add(i);
+      const outs = n.outputs, ins = n.inputs;
+      for (let k = 0; k < outs.length; k++) if (outs[k]) add(outs[k]!);
+      for (let k = 0; k < ins.length; k++) if (ins[k]) add(ins[k]!);
     }
   });
   const made = new Set<string>();
@@ -131,7 +138,8 @@ function namesBeforeFlush(model: Model, live: Map<Graph, LiveScope>): NameSet {
   const table = nameTable(bound);
   eachGraph(model.graph, (g) => {
     for (const v of g.valueInfo) table.add(v.name);
-    for (const n of g.nodes) if (n.name) table.add(n.name);
+    const nodes = g.nodes;
+    for (let i = 0; i < nodes.length; i++) if (nodes[i]!.name) table.add(nodes[i]!.name);
   });
   const indexes = [...live.values()].map((l) => l.ud);
   const made = new Set<string>();

@@ -31,8 +31,10 @@ export function countNodes(model: Model): number {
 export function weightBytes(model: Model): number {
   let b = 0;
   eachGraph(model.graph, (g) => {
-    for (const t of g.initializers) b += tensorByteSize(t);
-    for (const n of g.nodes) {
+    const inits = g.initializers, nodes = g.nodes;
+    for (let i = 0; i < inits.length; i++) b += tensorByteSize(inits[i]!);
+    for (let i = 0; i < nodes.length; i++) {
+      const n = nodes[i]!;
       if (n.opType !== 'Constant') continue;
       const t = attrTensor(n, 'value');
       if (t) b += tensorByteSize(t);
@@ -65,7 +67,9 @@ function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], release
   for (const scope of scopes) {
     const cache = new Map();
     const dirty = new Set<Node>();
-    for (const node of [...scope.graph.nodes]) {
+    const nodes = scope.graph.nodes.slice();
+    for (let i = 0; i < nodes.length; i++) {
+      const node = nodes[i]!;
       if (dirty.has(node)) continue;
       const s = stepOf(ctx, scope, cache, node);
       if (!isStep(s)) continue;
@@ -80,8 +84,8 @@ function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], release
       const edit = newEdit(scope);
       const matches = o.clone ? cloneForRun(ctx, edit, o.matches[0]!) : o.matches;
       const outputs: string[] = [];
-      for (const m of matches) {
-        m.rule.rewrite(ctx, m, edit);
+      for (let k = 0; k < matches.length; k++) {
+        matches[k]!.rule.rewrite(ctx, matches[k]!, edit);
         outputs.push(...edit.regionOutputs);
       }
       // (the region's outputs and the nodes' names are for the proof alone)
@@ -89,9 +93,12 @@ function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], release
       const before = prove ? regionBefore(edit) : undefined;
       const inPlace = ctx.options.reuseBuffers ?? true;
       const undo = applyEdit(ctx, edit, { inPlace: !prove && inPlace, undoable: prove !== undefined });
-      for (const n of involved) dirty.add(n);
-      for (const m of matches) dirty.add(m.layer.node);
-      for (const c of edit.changes) dirty.add(c.node);
+      // (the layers and changed nodes are mostly among the involved already, and each add is a probe into a set of
+      // every node touched this sweep; indexed loops here and below: per fold, in a function the engine may not have
+      // optimized yet)
+      for (let k = 0; k < involved.length; k++) dirty.add(involved[k]!);
+      for (let k = 0; k < matches.length; k++) if (!involved.includes(matches[k]!.layer.node)) dirty.add(matches[k]!.layer.node);
+      for (let k = 0; k < edit.changes.length; k++) if (!involved.includes(edit.changes[k]!.node)) dirty.add(edit.changes[k]!.node);
       changed = true;
       const targets = o.matches.map((m) => m.layer.label);
       const target = targets.join(', ');
@@ -127,19 +134,28 @@ function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], release
         folded.push(entry(chain, written, 'normalization', writtenOutHint(targets)));
       }
       // what the whole-model check watches: the layers whose weights changed, nodes created or changed in kind
-      const changedKind = edit.changes.filter((c) => c.opType !== undefined || c.attributes !== undefined).map((c) => c.node);
-      for (const n of [...o.matches.map((mm) => mm.layer.node), ...edit.inserts.map((i) => i.node), ...changedKind]) {
-        if (!rewritten.has(n)) rewritten.set(n, { node: n, label: ctx.labels.get(n) ?? n.name, graph: scope.path });
+      const watch = (n: Node) => { if (!rewritten.has(n)) rewritten.set(n, { node: n, label: ctx.labels.get(n) ?? n.name, graph: scope.path }); };
+      for (let k = 0; k < o.matches.length; k++) watch(o.matches[k]!.layer.node);
+      for (let k = 0; k < edit.inserts.length; k++) watch(edit.inserts[k]!.node);
+      for (let k = 0; k < edit.changes.length; k++) {
+        const c = edit.changes[k]!;
+        if (c.opType !== undefined || c.attributes !== undefined) watch(c.node);
       }
       run.steps.forEach((x, i) => {
         folded.push(entry(x.node, x.node.opType, entryKind(scope, x.node), x.kind === 'layer-norm' ? layerNormHint(targets) : hint, i === 0 && o.clone ? cloneCost(o.matches[0]!) : 0));
       });
-      for (const r of edit.released) released.push(r);
-      for (const v of edit.goneValues) gone.push(v);
+      for (let k = 0; k < edit.released.length; k++) released.push(edit.released[k]!);
+      for (let k = 0; k < edit.goneValues.length; k++) gone.push(edit.goneValues[k]!);
     }
   }
   flushPending(ctx);
   return changed;
+}
+
+/** The watched nodes still in the model, in the order they were first rewritten (the map is emptied of the others). */
+function watchedStill(touched: Map<Node, RewrittenNode>, removed: readonly Node[]): RewrittenNode[] {
+  for (let i = 0; i < removed.length; i++) touched.delete(removed[i]!);
+  return [...touched.values()];
 }
 
 /**
@@ -164,7 +180,9 @@ export function foldModel(model: Model, options: FoldOptions = {}): { model: Mod
     let inPath = order.get(s.path);
     if (!inPath) order.set(s.path, inPath = { labels: nameTable(Math.max(bound.get(s.path)!, 1)), at: [] });
     const { labels, at } = inPath;
-    for (const n of s.graph.nodes) {
+    const nodes = s.graph.nodes;
+    for (let i = 0; i < nodes.length; i++) {
+      const n = nodes[i]!;
       const known = labels.size;
       const id = labels.add(labelOf(s, n));
       // (a name seen again takes the place after the distinct names so far, as one map of both keys would give)
@@ -189,8 +207,9 @@ export function foldModel(model: Model, options: FoldOptions = {}): { model: Mod
   // Every normalization still in the model, with its reason, from the same analysis audit runs.
   // (A norm whose statistics stay shows up again after its tail moved: the folded entry stands.)
   for (const s of scopes) forgetDerived(s);
-  const done = new Set(folded.map((e) => `${e.graph}\u0000${e.node}`));
-  const kept: LedgerEntry[] = findingsOf(ctx, model, scopes).filter((f) => !done.has(`${f.graph}\u0000${f.node}`))
+  // (the set of folded names is made only when some normalization is still there to be checked against it)
+  let done: Set<string> | undefined;
+  const kept: LedgerEntry[] = findingsOf(ctx, model, scopes).filter((f) => !(done ??= new Set(folded.map((e) => `${e.graph}\u0000${e.node}`))).has(`${f.graph}\u0000${f.node}`))
     .map((f) => ({ ...f, status: 'kept' as const }));
   // each entry's place looked up once (the sort is stable, as before)
   const placedAt = [...folded, ...kept].map((e) => ({ e, at: placeOf(e.graph, e.node) ?? 1e15 }));
@@ -199,7 +218,7 @@ export function foldModel(model: Model, options: FoldOptions = {}): { model: Mod
   return {
     model,
     ledger: { normalizations, nodesBefore, nodesAfter: countNodes(model), bytesBefore, bytesAfter: weightBytes(model) },
-    rewritten: [...touched.values()].filter((r) => !ctx.removedNodes.has(r.node)),
+    rewritten: watchedStill(touched, ctx.removedNodes),
     // the run's scopes, current for the model as returned (until it is edited again)
     scopes,
   };

@@ -24,8 +24,12 @@ export interface Run {
 /** Per-pass cache of readStep, which decodes tensors. */
 export type StepCache = Map<Node, AffineStep | Refusal | undefined>;
 
-/** Entries kept before the cache starts over: runs are local, and a big cache only slows the garbage collector. */
-const CACHE_MAX = 512;
+/**
+ * Entries kept before the cache starts over: runs are local (a step is asked for again by its neighbours, a few
+ * nodes away), and whatever the cache holds when the collector runs is copied: at 512 entries most of the steps of
+ * a long chain of small folds were.
+ */
+const CACHE_MAX = 32;
 
 /** The op types readStep can make a step of (any other node is none, with nothing to cache). */
 const STEP_OPS = new Set(['BatchNormalization', 'LayerNormalization', 'Add', 'Sub', 'Mul', 'Div']);

@@ -2,7 +2,7 @@
 // a path for reports, and lookups that follow outer scopes (a body reads the outer graph's weights).
 import { isShorthandConstant } from '../graph/constants.js';
 import type { Graph, Model, Node, Tensor, ValueInfo } from '../graph/ir.js';
-import { subgraphsOf } from '../graph/ir.js';
+import { hasSubgraphs, subgraphsOf } from '../graph/ir.js';
 import { buildUseDef, outerRefs, type UseDef } from '../graph/usedef.js';
 import { inferShapes, type Shape, type ShapeLookup } from '../graph/shapes.js';
 
@@ -71,7 +71,9 @@ export function buildScopes(model: Model, fixedLabels?: Map<Node, string>, input
     }
     const scope: Scope = { graph, path, parent, owner, ud: index(graph), labels, ranks: new Map(), inputsOverride: model.irVersion >= 4, inputShapes: parent ? undefined : inputShapes };
     out.push(scope);
-    for (const n of nodes) {
+    for (let i = 0; i < nodes.length; i++) {
+      const n = nodes[i]!;
+      if (!hasSubgraphs(n)) continue;
       for (const a of n.attributes) {
         if (a.value.type !== 'GRAPH' && a.value.type !== 'GRAPHS') continue;
         const gs = a.value.type === 'GRAPH' ? [a.value.g] : a.value.graphs;
@@ -226,5 +228,7 @@ export function isLinear(n: Node): boolean {
 /** Every graph of a scope's subtree is visited through buildScopes; this walks a single graph's bodies. */
 export function eachGraph(g: Graph, fn: (g: Graph) => void): void {
   fn(g);
-  for (const n of g.nodes) for (const sg of subgraphsOf(n)) eachGraph(sg, fn);
+  // (no list of bodies made per node: nearly every node has none)
+  const nodes = g.nodes;
+  for (let i = 0; i < nodes.length; i++) if (hasSubgraphs(nodes[i]!)) for (const sg of subgraphsOf(nodes[i]!)) eachGraph(sg, fn);
 }

@@ -334,7 +334,8 @@ export function opsetVersion(model: Pick<Model, 'opsets'>, domain = ''): number 
 }
 
 export function attr(node: Node, name: string): AttributeValue | undefined {
-  for (const a of node.attributes) if (a.name === name) return a.value; // a loop: called per node in analyses
+  const attrs = node.attributes; // a loop, and indexed: called per node in analyses
+  for (let i = 0; i < attrs.length; i++) if (attrs[i]!.name === name) return attrs[i]!.value;
   return undefined;
 }
 
@@ -366,8 +367,9 @@ export function attrString(node: Node, name: string, dflt: string): string;
 export function attrString(node: Node, name: string): string | undefined;
 export function attrString(node: Node, name: string, dflt?: string): string | undefined {
   const v = attr(node, name);
-  return v && v.type === 'STRING' ? new TextDecoder().decode(v.s) : dflt;
+  return v && v.type === 'STRING' ? attrText.decode(v.s) : dflt;
 }
+const attrText = new TextDecoder();
 
 export function attrGraph(node: Node, name: string): Graph | undefined {
   const v = attr(node, name);
@@ -381,22 +383,30 @@ export function attrTensor(node: Node, name: string): Tensor | undefined {
 
 /** Every subgraph a node carries (If branches, Loop/Scan bodies, any GRAPH/GRAPHS attribute). */
 /** Whether a node carries subgraphs (without building a list for the many nodes that carry none). */
+// (indexed loops in these helpers: they run per node or per tensor over graphs of 10^5 nodes, often from code not yet
+// optimized, where each step of a for-of makes an iterator result object; dims lists may be frozen and shared)
 export function hasSubgraphs(node: Node): boolean {
-  for (const a of node.attributes) if (a.value.type === 'GRAPH' || a.value.type === 'GRAPHS') return true;
+  const attrs = node.attributes;
+  for (let i = 0; i < attrs.length; i++) {
+    const t = attrs[i]!.value.type;
+    if (t === 'GRAPH' || t === 'GRAPHS') return true;
+  }
   return false;
 }
 
 export function subgraphsOf(node: Node): Graph[] {
   const out: Graph[] = [];
-  for (const a of node.attributes) {
-    if (a.value.type === 'GRAPH') out.push(a.value.g);
-    else if (a.value.type === 'GRAPHS') out.push(...a.value.graphs);
+  const attrs = node.attributes;
+  for (let i = 0; i < attrs.length; i++) {
+    const v = attrs[i]!.value;
+    if (v.type === 'GRAPH') out.push(v.g);
+    else if (v.type === 'GRAPHS') out.push(...v.graphs);
   }
   return out;
 }
 
 export function elementCount(dims: readonly number[]): number {
   let n = 1;
-  for (const d of dims) n *= d;
+  for (let i = 0; i < dims.length; i++) n *= dims[i]!;
   return n;
 }

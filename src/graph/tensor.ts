@@ -246,9 +246,31 @@ export function encodeStorage(values: ArrayLike<number>, code: DataTypeCode, lik
   }
 }
 
+// The bytes of small tensors pleat creates (a fold of many small layers makes a bias each) are views into shared
+// slabs. An array of its own would be small enough to live in the heap until its first `.buffer` (writing floats
+// asks for it), which moves it out to a buffer of its own that the garbage collector then tracks one by one. A slab
+// is never written again once handed out, so each view keeps its bytes; views start at multiples of 8 (aligned
+// for any element type).
+const SLAB = 64 * 1024;
+let slab = new ArrayBuffer(0);
+let slabAt = 0;
+
+function freshBytes(n: number): Uint8Array {
+  if (n > SLAB / 16) return new Uint8Array(n);
+  if (slabAt + n > slab.byteLength) { slab = new ArrayBuffer(SLAB); slabAt = 0; }
+  const out = new Uint8Array(slab, slabAt, n); // (a view made by its constructor: subarray costs twice that)
+  slabAt += (n + 7) & ~7;
+  return out;
+}
+
 /** Build a new raw_data tensor from values (used for tensors pleat creates). */
 export function makeTensor(name: string, dims: number[], dataType: DataTypeCode, values: ArrayLike<number>): Tensor {
-  return { name, dims: [...dims], dataType, storage: encodeStorage(values, dataType, { kind: 'raw', bytes: new Uint8Array(0) }), docString: '', extra: [] };
+  const bpe = bytesPerElement(dataType);
+  if (bpe === undefined) throw new PleatError('dtype-unsupported', `cannot encode ${dataTypeName(dataType)} tensor data`);
+  // (new memory: no part of a file, so nothing for markLoaded to do, as encodeStorage would do it)
+  const bytes = freshBytes(values.length * bpe);
+  writeRaw(values, dataType, bytes);
+  return { name, dims: [...dims], dataType, storage: { kind: 'raw', bytes }, docString: '', extra: [] };
 }
 
 /** A raw or external tensor's bytes, read from the file first if they were left unread. */

@@ -132,6 +132,34 @@ function lastLookup(id: (v: string) => number): (v: string) => number {
   };
 }
 
+/**
+ * lastLookup over the last four names found: a fold asks about the few values around it (the norm's input and
+ * output, the layer's weight) several times, with other names in between, and in a graph of 10^5 nodes each
+ * lookup that misses this costs a hash of the name and a probe into a table larger than the processor's cache.
+ * (Ids never change once given, and a name not found is not remembered: it may be added later.)
+ */
+function recentLookup(id: (v: string) => number): (v: string) => number {
+  let n0: string | undefined, n1: string | undefined, n2: string | undefined, n3: string | undefined;
+  let i0 = -1, i1 = -1, i2 = -1, i3 = -1;
+  let next = 0;
+  return (v) => {
+    if (v === n0) return i0;
+    if (v === n1) return i1;
+    if (v === n2) return i2;
+    if (v === n3) return i3;
+    const k = id(v);
+    if (k < 0) return k;
+    switch (next) {
+      case 0: n0 = v; i0 = k; break;
+      case 1: n1 = v; i1 = k; break;
+      case 2: n2 = v; i2 = k; break;
+      default: n3 = v; i3 = k;
+    }
+    next = (next + 1) & 3;
+    return k;
+  };
+}
+
 /** The reader list of a value nobody reads any more (shared, never changed: adding a reader makes a new list). */
 const NO_READERS: Node[] = [];
 
@@ -211,15 +239,16 @@ export function editableUseDef(graph: Graph): EditableUseDef {
   }
   const extra = new Map<string, number>();
   const flagOver = new Map<number, number>();
-  const readOver: Array<Node[] | undefined> = [];
+  // (filled from the start: an array set at scattered ids, or one mostly holes that grows, turns into a slow dictionary)
+  const readOver: Array<Node[] | undefined> = new Array<Node[] | undefined>(baseSize).fill(undefined);
   const ownerReads = new Map<Node, string[]>();
   for (const [j, refs] of bodies) ownerReads.set(nodes[j]!, refs);
   const unsorted = new Set<number>();
-  const tableId = lastLookup(ids.id);
-  const idIn = (v: string): number => { const id = tableId(v); return id >= 0 ? id : (extra.get(v) ?? -1); };
+  const tableId = ids.id;
+  const idIn = recentLookup((v: string): number => { const id = tableId(v); return id >= 0 ? id : (extra.get(v) ?? -1); });
   const idAdd = (v: string): number => {
     let id = idIn(v);
-    if (id < 0) { id = baseSize + extra.size; extra.set(v, id); prod[id] = undefined; inits[id] = undefined; }
+    if (id < 0) { id = baseSize + extra.size; extra.set(v, id); prod[id] = undefined; inits[id] = undefined; readOver[id] = undefined; }
     return id;
   };
   const flagsAt = (id: number): number => flagOver.get(id) ?? (id < baseSize ? flags[id]! : 0);
@@ -275,7 +304,8 @@ export function editableUseDef(graph: Graph): EditableUseDef {
   return {
     graph,
     producer: producerOf,
-    consumers: (v) => { const id = idIn(v); return id < 0 ? [] : readersAt(id).slice(); },
+    // (a list the caller owns: an override copied, a list made from the compressed rows as it is)
+    consumers: (v) => { const id = idIn(v); if (id < 0) return []; const o = readOver[id]; return o ? o.slice() : readersAt(id); },
     readerCount: (v) => { const id = idIn(v); return id < 0 ? 0 : readerCountAt(id); },
     knows: (v) => idIn(v) >= 0,
     isGraphOutput: (v) => { const id = idIn(v); return id >= 0 && (flagsAt(id) & IS_OUTPUT) !== 0; },

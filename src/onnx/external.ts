@@ -37,8 +37,12 @@ export function resolveLocation(baseDir: string, location: string, label: string
 }
 
 function eachTensor(g: Graph, visit: (t: Tensor) => void): void {
-  for (const t of g.initializers) visit(t);
-  for (const n of g.nodes) {
+  // (indexed loops: this runs once per job over every tensor and node, before the engine optimizes it, where a
+  // for-of makes an iterator result per step)
+  const inits = g.initializers, nodes = g.nodes;
+  for (let i = 0; i < inits.length; i++) visit(inits[i]!);
+  for (let j = 0; j < nodes.length; j++) {
+    const n = nodes[j]!;
     for (const a of n.attributes) {
       if (a.value.type === 'TENSOR') visit(a.value.t);
       else if (a.value.type === 'TENSORS') a.value.tensors.forEach(visit);

@@ -343,6 +343,22 @@ function utf8Of(s: string): Uint8Array | string {
 const utf8e = new TextEncoder();
 const byteLen = (x: Uint8Array | string): number => (typeof x === 'string' ? x.length : x.byteLength);
 
+// The bytes of these messages are views into shared slabs, never arrays of their own: an array of more than 64
+// bytes has its own buffer outside the heap, which the garbage collector tracks one by one (a fold of 10^5 small
+// layers made as many). A slab is never written again once handed out, so each view keeps its bytes.
+const SLAB = 64 * 1024;
+let slab = new ArrayBuffer(0);
+let slabAt = 0;
+
+/** `n` fresh bytes (zeros) that no other piece shares. (A view made by its constructor: subarray costs twice that.) */
+function slabBytes(n: number): Uint8Array {
+  if (n > SLAB / 8) return new Uint8Array(n);
+  if (slabAt + n > slab.byteLength) { slab = new ArrayBuffer(SLAB); slabAt = 0; }
+  const out = new Uint8Array(slab, slabAt, n);
+  slabAt += n;
+  return out;
+}
+
 /** Writes fields into an array sized beforehand. */
 class Fill {
   at = 0;
@@ -370,7 +386,7 @@ const strField = (no: number, x: Uint8Array | string): number => varintSize(no *
 
 /** A tensor with raw data: dims (1), data type (2), name (8) when set, raw data (9), doc string (12) when set. */
 function plainTensor(t: Tensor, raw: Uint8Array): Piece {
-  if (t.dataType < 0 || t.dims.some((d) => d < 0)) return generalTensor(t, raw); // (negative varints: the emitter's way)
+  if (t.dataType < 0 || hasNegative(t.dims)) return generalTensor(t, raw); // (negative varints: the emitter's way)
   const name = t.name ? utf8Of(t.name) : undefined;
   const doc = t.docString ? utf8Of(t.docString) : undefined;
   let head = 1 + varintSize(t.dataType);
@@ -379,7 +395,7 @@ function plainTensor(t: Tensor, raw: Uint8Array): Piece {
   head += 1 + varintSize(raw.byteLength);
   const inline = raw.byteLength <= COPY_MAX;
   const tail = doc !== undefined ? strField(12, doc) : 0;
-  const f = new Fill(new Uint8Array(head + (inline ? raw.byteLength + tail : 0)));
+  const f = new Fill(slabBytes(head + (inline ? raw.byteLength + tail : 0)));
   for (const d of t.dims) { f.varint(8); f.varint(d); }
   f.varint(16); f.varint(t.dataType);
   if (name !== undefined) f.str(8, name);
@@ -391,8 +407,14 @@ function plainTensor(t: Tensor, raw: Uint8Array): Piece {
     return { chunks: [f.buf], length, same: false };
   }
   const chunks = [f.buf, raw];
-  if (doc !== undefined) { const g = new Fill(new Uint8Array(tail)); g.str(12, doc); chunks.push(g.buf); }
+  if (doc !== undefined) { const g = new Fill(slabBytes(tail)); g.str(12, doc); chunks.push(g.buf); }
   return { chunks, length, same: false };
+}
+
+/** (a loop: dims lists read from a file may be frozen and shared, and a callback per tensor showed) */
+function hasNegative(dims: readonly number[]): boolean {
+  for (let i = 0; i < dims.length; i++) if (dims[i]! < 0) return true;
+  return false;
 }
 
 /** The emitter's way for a plain tensor (negative dims or type: ten-byte varints). */
@@ -424,7 +446,7 @@ function plainNode(n: Node, kids: Piece[]): Piece {
   for (const k of kids) size += 1 + varintSize(k.length) + k.length;
   if (doc !== undefined) size += strField(6, doc);
   if (domain !== undefined) size += strField(7, domain);
-  const f = new Fill(new Uint8Array(size));
+  const f = new Fill(slabBytes(size));
   for (const x of ins) f.str(1, x);
   for (const x of outs) f.str(2, x);
   if (name !== undefined) f.str(3, name);

@@ -56,3 +56,44 @@ describe('use-def index', () => {
     }
   });
 });
+
+describe('editable use-def index', () => {
+  // Lookups remember the ids of the last names found (src/graph/usedef.ts): a name asked for before it exists
+  // must be found once added, and a remembered name must give the index's current answer after each edit.
+  it('answers as a scan does between edits, names asked for before and after they exist', () => {
+    for (let seed = 1; seed <= 12; seed++) {
+      const m = read(seed);
+      const g = m.graph;
+      const ud = editableUseDef(g);
+      const some = namesOf(g).filter((v) => v !== '' && v !== 'no such value');
+      for (let k = 0; k < 6; k++) {
+        const out = `added.${k}`, w = `added.w.${k}`;
+        const src = some[(k * 7) % some.length]!;
+        // asked for before they exist, with known names between (what the lookup remembers)
+        expect(ud.producer(out)).toBeUndefined();
+        expect(ud.initializer(w)).toBeUndefined();
+        ud.consumers(src);
+        const n = { name: `n.${k}`, opType: 'Add', domain: '', inputs: [src, w], outputs: [out], attributes: [], docString: '', extra: [] };
+        g.nodes = [...g.nodes, n];
+        const t = { name: w, dims: [1], dataType: 1, storage: { kind: 'raw' as const, bytes: new Uint8Array(4) }, docString: '', extra: [] };
+        g.initializers = [...g.initializers, t];
+        ud.addNode(n);
+        ud.addInitializer(t);
+        expect(ud.producer(out)).toBe(n);
+        expect(ud.initializer(w)).toBe(t);
+        expect(ud.consumers(w)).toEqual([n]);
+        if (k % 2 === 1) {
+          // and an initializer gone again while its name is among the remembered ones
+          g.initializers = g.initializers.filter((x) => x !== t);
+          g.nodes = g.nodes.filter((x) => x !== n);
+          ud.removeNode(n);
+          ud.removeInitializer(w);
+          expect(ud.initializer(w)).toBeUndefined();
+          expect(ud.producer(out)).toBeUndefined();
+        }
+      }
+      ud.settle();
+      expectAnswersOf(ud, g);
+    }
+  });
+});
