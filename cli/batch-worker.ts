@@ -3,5 +3,5 @@ import { parentPort } from 'node:worker_threads';
 import { loadJob, runOne, type Job } from './batch.js';
 
 parentPort?.on('message', (m: { index: number; job: Job }) => {
-  void loadJob(m.job.command).then(() => parentPort!.postMessage({ index: m.index, outcome: runOne(m.job) }));
+  void loadJob(m.job).then(() => parentPort!.postMessage({ index: m.index, outcome: runOne(m.job) }));
 });

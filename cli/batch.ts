@@ -44,10 +44,14 @@ export function checkBatchNames(jobs: readonly Job[]): Job[] {
 let foldJob: typeof import('../src/jobs/fold.js') | undefined;
 let auditJob: typeof import('../src/jobs/audit.js') | undefined;
 
-/** Load the job module of a command; runJob and runOne need it loaded first. */
-export async function loadJob(command: Job['command']): Promise<void> {
-  if (command === 'fold') foldJob ??= await import('../src/jobs/fold.js');
-  else auditJob ??= await import('../src/jobs/audit.js');
+/** Load the job module of a job's command (and a proven fold's checks); runJob and runOne need it loaded first. */
+export async function loadJob(job: Job): Promise<void> {
+  if (job.command === 'fold') {
+    foldJob ??= await import('../src/jobs/fold.js');
+    if (!job.opts.noProofs) await (await import('../src/jobs/check-kit.js')).loadCheckKit();
+  } else {
+    auditJob ??= await import('../src/jobs/audit.js');
+  }
 }
 
 /** Run one job here and now; errors are thrown (a single model's error ends the command as usual). */
@@ -89,7 +93,7 @@ export async function runBatch(jobs: readonly Job[], progress: Progress, workers
   const results: JobOutcome[] = new Array(jobs.length);
   if (jobs.length === 0) return results;
   if (jobs.length === 1) {
-    await loadJob(jobs[0]!.command);
+    await loadJob(jobs[0]!);
     results[0] = runJob(jobs[0]!);
     progress.tick(jobs[0]!.model);
     return results;

@@ -8,6 +8,7 @@ import { OutputSet } from './jobs/outputs.js';
 import { sideFilePaths } from './onnx/external.js';
 import { evaluate as evaluateModel, type EvaluateOptions, type EvaluateResult } from './verify/evaluate.js';
 import { foldFile } from './jobs/fold.js';
+import './jobs/with-checks.js'; // the library folds with proofs: load them (see jobs/check-kit.ts)
 import { auditFile } from './jobs/audit.js';
 import type { AuditJobOptions, AuditReport, FoldJobOptions, FoldReport } from './jobs/types.js';
 

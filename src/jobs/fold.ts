@@ -10,7 +10,6 @@ import { withProbeMemory } from '../eval/budget.js';
 import { storeFloat16 } from '../ship/store-float16.js';
 import { foldModel } from '../fold/index.js';
 import { LateRangeCheckFailed } from '../fold/values.js';
-import { proveFold } from '../verify/prove.js';
 import { DEFAULT_GATES } from '../verify/gate.js';
 import { asMap, dimSymbols, resolveInputs } from '../verify/inputs.js';
 import { checkProbeEstimate } from '../verify/probe-budget.js';
@@ -21,8 +20,8 @@ import { equalizeModel } from '../fold/equalize.js';
 import type { Int8Granularity } from '../fold/int8.js';
 import { checkJobNames } from './names.js';
 import { checkOpset } from '../graph/opsets.js';
-import { compare, type ProbeRecord } from '../verify/compare.js';
-import { saveProbeSets } from '../verify/probe-files.js';
+import type { ProbeRecord } from '../verify/compare.js';
+import { checkKit } from './check-kit.js';
 import type { RewrittenNode } from '../fold/types.js';
 import type { Scope } from '../fold/scope.js';
 import { PROVENANCE_KEYS, provenanceOf, setProvenance } from './provenance.js';
@@ -116,7 +115,7 @@ export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOpt
   const watch = watchIn(folded, opts.rewritten ?? []);
   const found = new Set(watch.values());
   const lost = (opts.rewritten ?? []).filter((k) => !found.has(k.name)).map((k) => k.name);
-  const r = compare(original, folded, {
+  const r = checkKit().compare(original, folded, {
     inputs: opts.inputs, shapes, dims, seed, probes, gate, budget: false, watch, onProbe: opts.onProbe, maxProbeMemory: opts.maxProbeMemory, arithmetic: CHECK_ARITHMETIC,
     extraMetrics: opts.sqnr !== undefined ? { sqnr: opts.sqnr } : undefined,
   });
@@ -166,7 +165,7 @@ function inputsOf(original: Model, opts: FoldJobOptions) {
  */
 export function int8Simulation(original: Model, folded: Model, granularity: Int8Granularity, opts: FoldJobOptions): Int8Simulation | null {
   const { dims, shapes } = inputsOf(original, opts);
-  const run = (m: Model) => compare(original, roundedWeightsModel(m, granularity).model, {
+  const run = (m: Model) => checkKit().compare(original, roundedWeightsModel(m, granularity).model, {
     inputs: opts.inputs, shapes, dims, seed: opts.seed ?? 0, probes: opts.probes ?? 2, budget: false,
   });
   let before, after;
@@ -235,12 +234,12 @@ function foldWithin(model: Model, original: Model | undefined, label: string, op
     inputShapes: asMap(opts.shapes),
     lateRangeCheck,
     prove: opts.noProofs ? undefined : (c) => {
-      const r = proveFold(c, { seed: opts.seed });
+      const r = checkKit().proveFold(c, { seed: opts.seed });
       return { passed: r.passed, proof: { maxAbs: r.maxAbs, maxRel: r.maxRel, shape: r.shape } };
     },
   }), (s) => { foldScopes = s; });
   const equalized = opts.equalize
-    ? equalizeModel(model, { prove: opts.noProofs ? undefined : (c) => proveFold(c, { seed: opts.seed }).passed })
+    ? equalizeModel(model, { prove: opts.noProofs ? undefined : (c) => checkKit().proveFold(c, { seed: opts.seed }).passed })
     : [];
   const quantThresholdDb = opts.quantThresholdDb ?? QUANT_THRESHOLD_DB;
   const int8 = original && !opts.noProofs && opts.simulateInt8 ? int8Simulation(original, model, opts.simulateInt8, opts) : null;
@@ -390,7 +389,7 @@ function foldStagedOnce(tx: OutputSet, input: string, output: string, opts: Fold
     report.output = output;
     if (opts.saveProbes !== undefined && original) {
       let sets = 0;
-      tx.stageFolder(opts.saveProbes, (tmp) => { sets = saveProbeSets(tmp, original.graph, records); });
+      tx.stageFolder(opts.saveProbes, (tmp) => { sets = checkKit().saveProbeSets(tmp, original.graph, records); });
       report.probesSaved = { dir: opts.saveProbes, sets };
     }
   }

@@ -5,6 +5,7 @@ import { readModelFile } from '../../src/onnx/read.js';
 import { writeModelFile } from '../../src/onnx/write.js';
 // loaded before any timing starts, like read/write above: module loading is start-up, not work on the file
 import { foldFile } from '../../src/jobs/fold.js';
+import '../../src/jobs/with-checks.js'; // proven folds need the check modules loaded (src/jobs/check-kit.ts)
 
 type Job = (args: string[]) => Promise<Record<string, unknown>> | Record<string, unknown>;
 

@@ -8,6 +8,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { foldFile } from '../../src/jobs/fold.js';
+import '../../src/jobs/with-checks.js'; // proven folds need the check modules loaded (src/jobs/check-kit.ts)
 import { f, GraphBuilder, modelBytes, randn, rng, uniform } from '../helpers/build.js';
 import { maxDiff, runOrt } from '../helpers/ort.js';
 import { checkerAvailable, onnxCheck } from '../helpers/checker.js';

@@ -11,6 +11,7 @@ import { runOrt, maxDiff } from '../helpers/ort.js';
 import { readModelFile } from '../../src/onnx/read.js';
 import { serializeModel } from '../../src/onnx/write.js';
 import { foldFile, foldLoaded } from '../../src/jobs/fold.js';
+import '../../src/jobs/with-checks.js'; // proven folds need the check modules loaded (src/jobs/check-kit.ts)
 import { isOnDisk } from '../../src/onnx/sparse-read.js';
 
 function convBnModel(dir: string, seed: number, channels: number): string {

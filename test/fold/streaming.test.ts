@@ -13,6 +13,7 @@ import { foldModel } from '../../src/fold/index.js';
 import { tensorToFloat64 } from '../../src/graph/tensor.js';
 import { lazySourceOf } from '../../src/onnx/sparse-read.js';
 import { foldFile, foldLoaded } from '../../src/jobs/fold.js';
+import '../../src/jobs/with-checks.js'; // proven folds need the check modules loaded (src/jobs/check-kit.ts)
 import { LateRangeCheckFailed } from '../../src/fold/values.js';
 import { provenanceOf, setProvenance, sha256File } from '../../src/jobs/provenance.js';
 

@@ -7,6 +7,7 @@ import { tmpdir } from 'node:os';
 import { join, dirname } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { foldFile } from '../../src/jobs/fold.js';
+import '../../src/jobs/with-checks.js'; // proven folds need the check modules loaded (src/jobs/check-kit.ts)
 import { GraphBuilder, modelBytes, randn, rng, T, uniform } from '../helpers/build.js';
 import type { Base, Outcome } from './worker.js';
 

@@ -8,6 +8,7 @@ import { serializeModel } from '../../src/onnx/write.js';
 import { surveyModel } from '../../src/jobs/survey.js';
 import { auditLoaded } from '../../src/jobs/audit.js';
 import { foldLoaded } from '../../src/jobs/fold.js';
+import '../../src/jobs/with-checks.js'; // proven folds need the check modules loaded (src/jobs/check-kit.ts)
 import { mutate } from './mutate.js';
 
 export interface Base { label: string; bytes: Uint8Array; dir: string }

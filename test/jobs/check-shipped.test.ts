@@ -22,6 +22,7 @@ vi.mock('../../src/onnx/write.js', async (importOriginal) => {
 });
 
 const { foldFile } = await import('../../src/jobs/fold.js');
+await import('../../src/jobs/with-checks.js'); // proven folds need the check modules loaded (src/jobs/check-kit.ts)
 
 function extModel(dir: string): string {
   const g = new GraphBuilder();

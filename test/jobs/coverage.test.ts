@@ -11,6 +11,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { GraphBuilder, modelBytes, randn, rng, uniform } from '../helpers/build.js';
 import { foldFile } from '../../src/jobs/fold.js';
+import '../../src/jobs/with-checks.js'; // proven folds need the check modules loaded (src/jobs/check-kit.ts)
 import { probeValue } from '../../src/verify/inputs.js';
 import { DEFAULT_EXTRA_PROBES } from '../../src/verify/compare.js';
 import { foldText } from '../../src/report/ledger-text.js';

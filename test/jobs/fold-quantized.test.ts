@@ -9,6 +9,7 @@ import { join } from 'node:path';
 import { GraphBuilder, T, f, modelBytes, randn, rng, uniform } from '../helpers/build.js';
 import { maxDiff, runOrt } from '../helpers/ort.js';
 import { foldFile } from '../../src/jobs/fold.js';
+import '../../src/jobs/with-checks.js'; // proven folds need the check modules loaded (src/jobs/check-kit.ts)
 
 function qdqModel(): Uint8Array {
   const r = rng(5);

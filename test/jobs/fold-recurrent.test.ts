@@ -9,6 +9,7 @@ import { join } from 'node:path';
 import { GraphBuilder, randn, rng, uniform, saveModel } from '../helpers/build.js';
 import { runOrt, maxDiff } from '../helpers/ort.js';
 import { foldFile } from '../../src/jobs/fold.js';
+import '../../src/jobs/with-checks.js'; // proven folds need the check modules loaded (src/jobs/check-kit.ts)
 
 function audioModel(withRandom: boolean): GraphBuilder {
   const r = rng(5);

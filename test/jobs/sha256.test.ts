@@ -10,6 +10,7 @@ import { GraphBuilder, modelBytes, randn, rng, uniform } from '../helpers/build.
 import { readModelFile } from '../../src/onnx/read.js';
 import { writeModelFile } from '../../src/onnx/write.js';
 import { foldFile, foldLoaded } from '../../src/jobs/fold.js';
+import '../../src/jobs/with-checks.js'; // proven folds need the check modules loaded (src/jobs/check-kit.ts)
 import { PROVENANCE_KEYS, provenanceOf, setProvenance } from '../../src/jobs/provenance.js';
 import { PleatError } from '../../src/errors.js';
 

@@ -8,6 +8,7 @@ import { GraphBuilder, modelBytes, randn, rng, uniform, f } from '../helpers/bui
 import { runOrt, maxDiff } from '../helpers/ort.js';
 import { checkerAvailable, onnxCheck } from '../helpers/checker.js';
 import { foldFile } from '../../src/jobs/fold.js';
+import '../../src/jobs/with-checks.js'; // proven folds need the check modules loaded (src/jobs/check-kit.ts)
 import { readModelFile } from '../../src/onnx/read.js';
 import { ROOT } from '../helpers/cli.js';
 

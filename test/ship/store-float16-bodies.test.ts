@@ -12,6 +12,7 @@ import { maxDiff, runOrt } from '../helpers/ort.js';
 import { checkerAvailable, onnxCheck } from '../helpers/checker.js';
 import { pleat, ROOT } from '../helpers/cli.js';
 import { foldFile } from '../../src/jobs/fold.js';
+import '../../src/jobs/with-checks.js'; // proven folds need the check modules loaded (src/jobs/check-kit.ts)
 import { readModelFile } from '../../src/onnx/read.js';
 import { surveyModel } from '../../src/jobs/survey.js';
 

@@ -10,6 +10,7 @@ import { describe, expect, it } from 'vitest';
 import { chainModel } from '../bench/gen-chain.js';
 import { foldModel } from '../../src/fold/index.js';
 import { foldLoaded } from '../../src/jobs/fold.js';
+import '../../src/jobs/with-checks.js'; // proven folds need the check modules loaded (src/jobs/check-kit.ts)
 import { readModelFile } from '../../src/onnx/read.js';
 import { proveFold } from '../../src/verify/prove.js';
 import { probeValue } from '../../src/verify/inputs.js';
