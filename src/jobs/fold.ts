@@ -16,7 +16,7 @@ import { asMap, dimSymbols, resolveInputs } from '../verify/inputs.js';
 import { checkProbeEstimate } from '../verify/probe-budget.js';
 import { PleatError } from '../errors.js';
 import { setThreads } from '../eval/threads.js';
-import { QUANT_THRESHOLD_DB, quantReadiness, roundedWeightsModel } from '../fold/quant.js';
+import { QUANT_THRESHOLD_DB, quantReadiness, roundedWeightsModel, type QuantRow } from '../fold/quant.js';
 import { equalizeModel } from '../fold/equalize.js';
 import type { Int8Granularity } from '../fold/int8.js';
 import { checkJobNames } from './names.js';
@@ -93,6 +93,7 @@ function checkGate(opts: FoldJobOptions & { halfGate?: boolean }): string | unde
   return opts.gate ?? (opts.halfGate ? DEFAULT_GATES.float16 : undefined);
 }
 import { sketches } from '../fold/sketch.js';
+import { quantBeside, type ShippedFile } from './quant-beside.js';
 import { DIGEST_PLACEHOLDER, fillDigest, sha256Later } from './sha256.js';
 
 /**
@@ -194,12 +195,12 @@ export function int8Simulation(original: Model, folded: Model, granularity: Int8
  * callers that can read the model again (see FoldOptions.lateRangeCheck).
  */
 export function foldLoaded(model: Model, original: Model | undefined, label: string, opts: FoldJobOptions, lateRangeCheck = false, ship?: (m: Model) => Model,
-  onProbe?: (p: ProbeRecord) => void): FoldReport {
+  onProbe?: (p: ProbeRecord) => void, files?: JobFiles): FoldReport {
   if (opts.strict && opts.noProofs) throw new PleatError('usage', '--strict needs the whole-model check, which --unproven leaves out: give one of them');
   checkOpset(model, label);
   checkJobNames(model, label, opts);
   // the proofs and the check run within the probe memory limit (src/eval/budget.ts)
-  return withProbeMemory(opts.maxProbeMemory, () => foldWithin(model, original, label, opts, lateRangeCheck, ship, onProbe));
+  return withProbeMemory(opts.maxProbeMemory, () => foldWithin(model, original, label, opts, lateRangeCheck, ship, onProbe, files));
 }
 
 /** Refuse, before any fold, a whole-model check whose probe would go beyond the probe memory limit. */
@@ -222,8 +223,14 @@ function keepScopes<T extends { scopes: Scope[] }>(r: T, take: (s: Scope[]) => v
   return rest;
 }
 
+/** The files of a file job: the input, and where `ship` wrote the folded model (known once it has). */
+export interface JobFiles { input: string; shipped(): ShippedFile }
+
+/** Whether a gate names the metric `sqnr` (then the quantization figures are needed before the check). */
+const namesSqnr = (gate: string | undefined) => gate !== undefined && /\bsqnr\b/.test(gate);
+
 function foldWithin(model: Model, original: Model | undefined, label: string, opts: FoldJobOptions, lateRangeCheck: boolean, ship?: (m: Model) => Model,
-  onProbe?: (p: ProbeRecord) => void): FoldReport {
+  onProbe?: (p: ProbeRecord) => void, files?: JobFiles): FoldReport {
   if (original && !opts.noProofs) checkProbeFits(original, opts);
   // the fold's scopes (their indexes answer for the folded model) serve the quantization report, then go
   let foldScopes: Scope[] | undefined;
@@ -244,23 +251,38 @@ function foldWithin(model: Model, original: Model | undefined, label: string, op
     : [];
   const quantThresholdDb = opts.quantThresholdDb ?? QUANT_THRESHOLD_DB;
   const int8 = original && !opts.noProofs && opts.simulateInt8 ? int8Simulation(original, model, opts.simulateInt8, opts) : null;
-  // quantization readiness reads the folded float32 weights, so it runs before half-precision storage
-  // (the fold's scopes answer for the model as folded, unless equalization edited it since)
-  const quantization = original ? quantReadiness(original, model, ledger.normalizations, quantThresholdDb, opts.equalize ? undefined : foldScopes) : [];
-  foldScopes = undefined; // not held through the whole-model check
+  // A file job whose written weights are the folded float32 ones works the quantization report out on a thread
+  // beside the writing and the check, from the input and the written file (src/jobs/quant-beside.ts); a gate
+  // naming `sqnr` needs the figures before the check, so it keeps them on this thread.
+  const beside = original && ship && files && opts.store !== 'float16' && !namesSqnr(opts.gate)
+    ? quantBeside(files.input, ledger.normalizations, quantThresholdDb) : undefined;
+  let quantization: QuantRow[] = [];
   let storage: StorageSummary | null = null;
-  if (opts.store === 'float16') {
-    const r = storeFloat16(model);
-    storage = { store: 'float16', ...r };
+  let check: CheckSummary | null;
+  try {
+    // quantization readiness reads the folded float32 weights, so it runs before half-precision storage
+    // (the fold's scopes answer for the model as folded, unless equalization edited it since)
+    if (original && !beside) quantization = quantReadiness(original, model, ledger.normalizations, quantThresholdDb, opts.equalize ? undefined : foldScopes);
+    foldScopes = undefined; // not held through the whole-model check
+    if (opts.store === 'float16') {
+      const r = storeFloat16(model);
+      storage = { store: 'float16', ...r };
+    }
+    // the gate may name `sqnr`: the lowest worst-channel per-tensor 8-bit SQNR of the folded layers (dB) (with the
+    // report on its thread the gate does not name it, and the value is never read)
+    const sqnr = beside ? NaN : Math.min(Infinity, ...quantization.map((q) => q.sqnrAfter.worstChannel));
+    // the rewritten nodes, by graph path and output, so the check finds them again in the copy read from disk
+    const keys = original && !opts.noProofs ? rewrittenKeys(model, rewritten) : [];
+    // `ship` writes the model and gives it back as read from disk: the check then judges what ships.
+    const shipped = ship ? ship(model) : model;
+    beside?.shipped(files!.shipped());
+    check = original && !opts.noProofs
+      ? wholeModelCheck(original, shipped, { ...opts, halfGate: storage !== null, sqnr, rewritten: keys, onProbe }) : null;
+    // (a thread that failed: the same figures here, from the same written file)
+    if (beside) quantization = beside.rows() ?? quantReadiness(original!, shipped, ledger.normalizations, quantThresholdDb);
+  } finally {
+    beside?.stop();
   }
-  // the gate may name `sqnr`: the lowest worst-channel per-tensor 8-bit SQNR of the folded layers (dB)
-  const sqnr = Math.min(Infinity, ...quantization.map((q) => q.sqnrAfter.worstChannel));
-  // the rewritten nodes, by graph path and output, so the check finds them again in the copy read from disk
-  const keys = original && !opts.noProofs ? rewrittenKeys(model, rewritten) : [];
-  // `ship` writes the model and gives it back as read from disk: the check then judges what ships.
-  const shipped = ship ? ship(model) : model;
-  const check = original && !opts.noProofs
-    ? wholeModelCheck(original, shipped, { ...opts, halfGate: storage !== null, sqnr, rewritten: keys, onProbe }) : null;
   const failed = check !== null && (check.status === 'failed' || (check.status === 'skipped' && check.strict));
   return {
     schemaVersion: SCHEMA_VERSION,
@@ -375,7 +397,8 @@ function foldStagedOnce(tx: OutputSet, input: string, output: string, opts: Fold
     return back;
   };
   const records: ProbeRecord[] = [];
-  const report = foldLoaded(model, original, input, opts, lateRangeCheck, ship, opts.saveProbes !== undefined ? (p) => records.push(p) : undefined);
+  const files: JobFiles = { input, shipped: () => ({ path: staged!.files[0]!.tmp, redirect: staged!.redirect }) };
+  const report = foldLoaded(model, original, input, opts, lateRangeCheck, ship, opts.saveProbes !== undefined ? (p) => records.push(p) : undefined, files);
   if (opts.pageDetail) {
     report.sha256 = sha256();
     report.sketches = sketches(original ?? readModelFile(input), report.normalizations, model);
