@@ -217,8 +217,8 @@ export interface TileSpan {
   a32: number;
 }
 
-export let KBLOCK = 256;
-export function setKBlock(n: number): void { KBLOCK = n; }
+/** k per kernel call (runTiles): a block of 4 rows of A and of a B tile in float64 is 8 KiB. */
+export const KBLOCK = 256;
 
 /** Compute C's rows for tiles [t0, t1) of a span (the calling thread's band, or a worker's). */
 export function runTiles(k: SimdKernels, s: TileSpan): void {

@@ -15,7 +15,7 @@ import { DEFAULT_GATES } from '../verify/gate.js';
 import { asMap, dimSymbols, resolveInputs } from '../verify/inputs.js';
 import { checkProbeEstimate } from '../verify/probe-budget.js';
 import { PleatError } from '../errors.js';
-import { setThreads } from '../eval/threads.js';
+import { setThreads, threadCount } from '../eval/threads.js';
 import { QUANT_THRESHOLD_DB, quantReadiness, roundedWeightsModel, type QuantRow } from '../fold/quant.js';
 import { equalizeModel } from '../fold/equalize.js';
 import type { Int8Granularity } from '../fold/int8.js';
@@ -94,6 +94,7 @@ function checkGate(opts: FoldJobOptions & { halfGate?: boolean }): string | unde
 }
 import { sketches } from '../fold/sketch.js';
 import { quantBeside, type ShippedFile } from './quant-beside.js';
+import { startOriginalRuns, type OriginalRuns } from '../verify/original-runs.js';
 import { DIGEST_PLACEHOLDER, fillDigest, sha256Later } from './sha256.js';
 
 /**
@@ -109,7 +110,8 @@ export const CHECK_ARITHMETIC = 'float64' as const;
  * Compare the original and the folded model on seeded probes, watching the rewritten nodes. The status follows
  * the rules of compare (verify/status.ts): skipped, never passed, when nothing could be compared.
  */
-export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOptions & { halfGate?: boolean; sqnr?: number; rewritten?: readonly RewrittenKey[]; onProbe?: (p: ProbeRecord) => void }): CheckSummary {
+export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOptions & { halfGate?: boolean; sqnr?: number; rewritten?: readonly RewrittenKey[]; onProbe?: (p: ProbeRecord) => void;
+  originalRuns?: OriginalRuns }): CheckSummary {
   const seed = opts.seed ?? 0;
   const probes = opts.probes ?? 2;
   const gate = checkGate(opts);
@@ -120,6 +122,7 @@ export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOpt
   const r = compare(original, folded, {
     inputs: opts.inputs, shapes, dims, seed, probes, gate, budget: false, watch, onProbe: opts.onProbe, maxProbeMemory: opts.maxProbeMemory, arithmetic: CHECK_ARITHMETIC,
     extraMetrics: opts.sqnr !== undefined ? { sqnr: opts.sqnr } : undefined,
+    outputsOfA: opts.originalRuns ? (p) => opts.originalRuns!.probe(p) : undefined,
   });
   return {
     status: r.status,
@@ -223,8 +226,11 @@ function keepScopes<T extends { scopes: Scope[] }>(r: T, take: (s: Scope[]) => v
   return rest;
 }
 
-/** The files of a file job: the input, and where `ship` wrote the folded model (known once it has). */
-export interface JobFiles { input: string; shipped(): ShippedFile }
+/**
+ * The files of a file job: the input, where `ship` wrote the folded model (known once it has), and the original
+ * model's check runs when a thread works them out from the input (src/verify/original-runs.ts).
+ */
+export interface JobFiles { input: string; shipped(): ShippedFile; originalRuns?: OriginalRuns }
 
 /** Whether a gate names the metric `sqnr` (then the quantization figures are needed before the check). */
 const namesSqnr = (gate: string | undefined) => gate !== undefined && /\bsqnr\b/.test(gate);
@@ -277,7 +283,7 @@ function foldWithin(model: Model, original: Model | undefined, label: string, op
     const shipped = ship ? ship(model) : model;
     beside?.shipped(files!.shipped());
     check = original && !opts.noProofs
-      ? wholeModelCheck(original, shipped, { ...opts, halfGate: storage !== null, sqnr, rewritten: keys, onProbe }) : null;
+      ? wholeModelCheck(original, shipped, { ...opts, halfGate: storage !== null, sqnr, rewritten: keys, onProbe, originalRuns: files?.originalRuns }) : null;
     // (a thread that failed: the same figures here, from the same written file)
     if (beside) quantization = beside.rows() ?? quantReadiness(original!, shipped, ledger.normalizations, quantThresholdDb);
   } finally {
@@ -397,8 +403,17 @@ function foldStagedOnce(tx: OutputSet, input: string, output: string, opts: Fold
     return back;
   };
   const records: ProbeRecord[] = [];
-  const files: JobFiles = { input, shipped: () => ({ path: staged!.files[0]!.tmp, redirect: staged!.redirect }) };
-  const report = foldLoaded(model, original, input, opts, lateRangeCheck, ship, opts.saveProbes !== undefined ? (p) => records.push(p) : undefined, files);
+  // The original model's side of the check needs nothing of the fold: with threads to spare, a thread runs it
+  // from the input while this one folds, proves and writes (given inputs and saved probes keep it here).
+  const originalRuns = original && asMap(opts.inputs).size === 0 && opts.saveProbes === undefined && threadCount() > 1
+    ? startOriginalRuns(input, { ...inputsOf(original, opts), seed: opts.seed ?? 0, probes: opts.probes ?? 2, maxProbeMemory: opts.maxProbeMemory }) : undefined;
+  const files: JobFiles = { input, shipped: () => ({ path: staged!.files[0]!.tmp, redirect: staged!.redirect }), originalRuns };
+  let report: FoldReport;
+  try {
+    report = foldLoaded(model, original, input, opts, lateRangeCheck, ship, opts.saveProbes !== undefined ? (p) => records.push(p) : undefined, files);
+  } finally {
+    originalRuns?.stop();
+  }
   if (opts.pageDetail) {
     report.sha256 = sha256();
     report.sketches = sketches(original ?? readModelFile(input), report.normalizations, model);
