@@ -67,10 +67,18 @@ export interface CompareOptions extends InputOptions {
   extraMetrics?: Record<string, number>;
   /**
    * Model A's runs in the judged arithmetic, done elsewhere (fold's check runs the original model on its own
-   * thread, src/verify/original-runs.ts): probe p's inputs and A's outputs, or undefined. Used for a probe only
-   * when those inputs are this comparison's bit for bit and no error budget is measured; otherwise A runs here.
+   * thread, src/verify/original-runs.ts). Used for a probe only when its inputs there are this comparison's bit
+   * for bit and no error budget is measured; otherwise A runs here.
    */
-  outputsOfA?: (probe: number) => { inputs: Map<string, Value>; outputs: Map<string, Value> } | undefined;
+  outputsOfA?: RunsElsewhere;
+}
+
+/** Runs of a model done elsewhere, per probe index. */
+export interface RunsElsewhere {
+  /** Whether probe p is (being) run there; never waits. */
+  has(probe: number): boolean;
+  /** Probe p's inputs and the model's outputs (waiting for them), or undefined when there are none. */
+  get(probe: number): { inputs: Map<string, Value>; outputs: Map<string, Value> } | undefined;
 }
 
 export const DEFAULT_PROBES = 3;
@@ -311,23 +319,34 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
     return batch.map((_, q) => [out[0]![q]!, out[1]![q]!] as const);
   };
   /** A's outputs for probes first.. of a batch from opts.outputsOfA, when it has every one for these very inputs. */
-  const doneElsewhere = (first: number, batch: Array<Map<string, Value>>): Array<Map<string, Value>> | undefined => {
-    if (!opts.outputsOfA || budget) return undefined;
+  const doneElsewhere = (elsewhere: RunsElsewhere, first: number, batch: Array<Map<string, Value>>): Array<Map<string, Value>> | undefined => {
     const outs: Array<Map<string, Value>> = [];
     for (let q = 0; q < batch.length; q++) {
-      const got = opts.outputsOfA(first + q);
+      const got = elsewhere.get(first + q);
       if (!got || !sameValues(got.inputs, batch[q]!)) return undefined;
       outs.push(got.outputs);
     }
     return outs;
   };
-  /** The judged pair for a batch: B alone against A's outputs done elsewhere, or both here. */
+  /**
+   * The judged pair for a batch: B alone against A's outputs done elsewhere, or both here. B runs first (A's runs
+   * may still be under way); whenever A's outputs turn out not to be there, the pair runs here as it would have
+   * without them, so the results and any error are the same. B failing while A ran fine is B's error either way.
+   */
   const judgedPair = (first: number, batch: Array<Map<string, Value>>) => {
-    const a = doneElsewhere(first, batch);
+    const elsewhere = opts.outputsOfA;
+    if (!elsewhere || budget || !batch.every((_, q) => elsewhere.has(first + q))) return pair('judged', batch);
+    let outB;
+    try {
+      outB = runLockstep([{ model: b, precision: arithmetic, probes: batch, onNode }], (e) => labelled(e, b, 'B', arithmetic))[0]!;
+    } catch (e) {
+      if (doneElsewhere(elsewhere, first, batch)) throw e;
+      return pair('judged', batch);
+    }
+    const a = doneElsewhere(elsewhere, first, batch);
     if (!a) return pair('judged', batch);
     takenElsewhere += a.length;
-    const out = runLockstep([{ model: b, precision: arithmetic, probes: batch, onNode }], (e) => labelled(e, b, 'B', arithmetic));
-    return batch.map((_, q) => [a[q]!, out[0]![q]!] as const);
+    return batch.map((_, q) => [a[q]!, outB[q]!] as const);
   };
   /** A alone in one arithmetic (the outputs --save-probes keeps that the comparison did not compute). */
   const aAlone = (precision: Precision, inputs: Map<string, Value>) =>

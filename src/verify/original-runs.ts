@@ -8,6 +8,7 @@ import { MessageChannel, receiveMessageOnPort, Worker, type MessagePort } from '
 import { existsSync, statSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 import type { Value } from '../eval/value.js';
+import type { RunsElsewhere } from './compare.js';
 
 /** Shared state: [0] 1 once the outputs are posted, 2 when the thread failed. */
 const DONE = 0;
@@ -27,9 +28,8 @@ export interface OriginalRunsSetup {
 /** One probe of the original model as the thread ran it. */
 export interface OriginalProbe { inputs: Map<string, Value>; outputs: Map<string, Value> }
 
-/** The runs under way: the outputs of probe p (waiting for them), undefined when the thread has none. */
-export interface OriginalRuns {
-  probe(p: number): OriginalProbe | undefined;
+/** The runs under way (see RunsElsewhere), and a way to end the thread. */
+export interface OriginalRuns extends RunsElsewhere {
   stop(): void;
 }
 
@@ -93,5 +93,10 @@ export function startOriginalRuns(input: string, o: { seed: number; probes: numb
     }
     stop();
   };
-  return { probe: (p) => { wait(); return result?.[p]; }, stop };
+  return {
+    // (probes the thread runs, unless it has failed already)
+    has: (p) => Number.isInteger(p) && p >= 0 && p < o.probes && Atomics.load(state, DONE) !== 2 && (!finished || result !== undefined),
+    get: (p) => { wait(); return result?.[p]; },
+    stop,
+  };
 }

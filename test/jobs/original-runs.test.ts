@@ -82,11 +82,14 @@ describe("the original model's check runs on their own thread", () => {
     expect(runs).toBeDefined();
     const plain = compare(a, b, { probes: 2, budget: false });
     // the thread's own outputs: the same report
-    expect(compare(a, b, { probes: 2, budget: false, outputsOfA: (p) => runs.probe(p) })).toEqual(plain);
+    expect(compare(a, b, { probes: 2, budget: false, outputsOfA: runs })).toEqual(plain);
     // outputs changed on the way: compare used them (B now differs from "A")
-    const shifted = (p: number) => {
-      const got = runs.probe(p)!;
-      return { inputs: got.inputs, outputs: new Map([...got.outputs].map(([k, v]) => [k, { ...v, data: v.data.map((e) => e + 1) }])) };
+    const shifted = {
+      has: (p: number) => runs.has(p),
+      get: (p: number) => {
+        const got = runs.get(p)!;
+        return { inputs: got.inputs, outputs: new Map([...got.outputs].map(([k, v]) => [k, { ...v, data: v.data.map((e) => e + 1) }])) };
+      },
     };
     const taken = probesOfATakenElsewhere();
     const used = compare(a, b, { probes: 2, budget: false, outputsOfA: shifted });
