@@ -406,7 +406,7 @@ function foldStagedOnce(tx: OutputSet, input: string, output: string, opts: Fold
   // The original model's side of the check needs nothing of the fold: with threads to spare, a thread runs it
   // from the input while this one folds, proves and writes (given inputs and saved probes keep it here).
   const originalRuns = original && asMap(opts.inputs).size === 0 && opts.saveProbes === undefined && threadCount() > 1
-    ? startOriginalRuns(input, { ...inputsOf(original, opts), seed: opts.seed ?? 0, probes: opts.probes ?? 2, maxProbeMemory: opts.maxProbeMemory }) : undefined;
+    ? startOriginalRuns(input, original, { ...inputsOf(original, opts), seed: opts.seed ?? 0, probes: opts.probes ?? 2, maxProbeMemory: opts.maxProbeMemory }) : undefined;
   const files: JobFiles = { input, shipped: () => ({ path: staged!.files[0]!.tmp, redirect: staged!.redirect }), originalRuns };
   let report: FoldReport;
   try {

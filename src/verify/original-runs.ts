@@ -9,6 +9,10 @@ import { existsSync, statSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 import type { Value } from '../eval/value.js';
 import type { RunsElsewhere } from './compare.js';
+import type { Model } from '../graph/ir.js';
+import { probeMemoryLimit } from '../eval/budget.js';
+import { estimateRun } from '../eval/estimate.js';
+import { resolveInputs } from './inputs.js';
 
 /** Shared state: [0] 1 once the outputs are posted, 2 when the thread failed. */
 const DONE = 0;
@@ -20,7 +24,7 @@ export interface OriginalRunsSetup {
   probes: number;
   shapes: Array<[string, number[]]>;
   dims: Array<[string, number]>;
-  maxProbeMemory?: number;
+  maxProbeMemory: number;
   state: SharedArrayBuffer;
   port: MessagePort;
 }
@@ -50,19 +54,29 @@ function workerUrl(): URL {
 }
 
 /**
- * Start running the model in `input` on probes 0..probes-1 (seeded as compare seeds them) in float64 on a worker
- * thread. Undefined when the file is small or no thread can start.
+ * Start running `original` (read from `input`) on probes 0..probes-1, seeded as compare seeds them, in float64 on
+ * a worker thread. Undefined when the file is small, its probes' values (estimated from the shapes) might need
+ * more than a quarter of the probe memory limit, or no thread can start. The thread runs within half the limit,
+ * so it and the folded model's runs here together stay about where the two models' runs in lockstep stood.
  */
-export function startOriginalRuns(input: string, o: { seed: number; probes: number; shapes: ReadonlyMap<string, number[]>; dims: ReadonlyMap<string, number>; maxProbeMemory?: number }): OriginalRuns | undefined {
+export function startOriginalRuns(input: string, original: Model, o: { seed: number; probes: number; shapes: ReadonlyMap<string, number[]>; dims: ReadonlyMap<string, number>; maxProbeMemory?: number }): OriginalRuns | undefined {
   let size = 0;
   try { size = statSync(input).size; } catch { return undefined; }
   if (size < minBytes) return undefined;
+  const limit = o.maxProbeMemory ?? probeMemoryLimit();
+  try {
+    const specs = resolveInputs(original.graph, new Map(), o.shapes, o.dims);
+    const bytes = estimateRun(original.graph, new Map(specs.map((s) => [s.name, s.dims]))).totalBytes;
+    if (!(o.probes * bytes <= limit / 4)) return undefined;
+  } catch {
+    return undefined; // the check itself reports it
+  }
   const state = new Int32Array(new SharedArrayBuffer(4));
   const { port1, port2 } = new MessageChannel();
   let worker: Worker;
   try {
     const setup: OriginalRunsSetup = {
-      input, seed: o.seed, probes: o.probes, shapes: [...o.shapes], dims: [...o.dims], maxProbeMemory: o.maxProbeMemory,
+      input, seed: o.seed, probes: o.probes, shapes: [...o.shapes], dims: [...o.dims], maxProbeMemory: Math.floor(limit / 2),
       state: state.buffer as SharedArrayBuffer, port: port2,
     };
     worker = new Worker(workerUrl(), { workerData: setup, transferList: [port2] });

@@ -73,12 +73,25 @@ describe("the original model's check runs on their own thread", () => {
     expect(originalRunsStarted()).toBe(before);
   });
 
+  it('probes whose values might need more than a quarter of the probe memory limit keep the check here', () => {
+    setThreads(2);
+    const src = convBnModel(dir, 6, 48);
+    setOriginalRunsMinBytes(0);
+    const before = originalRunsStarted();
+    // 1 x 48 x 6 x 6 float64 values are 13.5 KiB each; the graph holds about a dozen of them per probe
+    const small = foldFile(src, join(dir, 'small.onnx'), { maxProbeMemory: 1 << 20 });
+    expect(originalRunsStarted()).toBe(before);
+    expect(small.check?.status).toBe('passed');
+    foldFile(src, join(dir, 'roomy.onnx'), { maxProbeMemory: 64 << 20 });
+    expect(originalRunsStarted()).toBe(before + 1);
+  });
+
   it("compare takes A's outputs from the thread only for its very probe inputs", () => {
     setThreads(2);
     const src = convBnModel(dir, 5, 16);
     const a = readModelFile(src), b = readModelFile(src);
     setOriginalRunsMinBytes(0);
-    const runs = startOriginalRuns(src, { seed: 0, probes: 2, shapes: new Map(), dims: new Map() })!;
+    const runs = startOriginalRuns(src, a, { seed: 0, probes: 2, shapes: new Map(), dims: new Map() })!;
     expect(runs).toBeDefined();
     const plain = compare(a, b, { probes: 2, budget: false });
     // the thread's own outputs: the same report
