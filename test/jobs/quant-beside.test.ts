@@ -55,6 +55,19 @@ describe('the quantization report on its own thread', () => {
     });
   }
 
+  it('a folded model written with a side file: the thread reads the staged side file too', () => {
+    const src = convBnModel(dir, 6, 48);
+    setQuantBesideMinBytes(Infinity);
+    const here = foldFile(src, join(dir, 'ext-here.onnx'), { externalThreshold: 1024 });
+    setQuantBesideMinBytes(0);
+    const answered = quantThreadsAnswered();
+    const beside = foldFile(src, join(dir, 'ext-beside.onnx'), { externalThreshold: 1024 });
+    expect(quantThreadsAnswered()).toBe(answered + 1);
+    expect(beside.quantization).toHaveLength(2);
+    expect(beside.quantization).toEqual(here.quantization);
+    expect(Buffer.compare(readFileSync(join(dir, 'ext-beside.onnx.data')), readFileSync(join(dir, 'ext-here.onnx.data')))).toBe(0);
+  });
+
   it('a gate naming sqnr gets the figures before the check, on the main thread', () => {
     const src = convBnModel(dir, 4, 32);
     setQuantBesideMinBytes(0);
