@@ -12,6 +12,8 @@ try {
   // loaded here, not at the top, so a module that fails to load is counted as a failure like any other
   const { readModelFile } = await import('../onnx/read.js');
   const { quantAfter, quantBefore } = await import('../fold/quant.js');
+  const { lowerThreadPriority } = await import('../eval/background.js');
+  lowerThreadPriority(); // its results are needed only at the end (src/eval/background.ts)
   const start = quantBefore(readModelFile(setup.input), setup.ledger);
   while (Atomics.load(state, SHIPPED) === 0) Atomics.wait(state, SHIPPED, 0);
   if (Atomics.load(state, SHIPPED) === 1) {

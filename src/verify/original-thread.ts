@@ -16,6 +16,8 @@ try {
   const { runLockstep } = await import('../eval/lockstep.js');
   const { checkProbeEstimate } = await import('./probe-budget.js');
   const { makeProbe, resolveInputs } = await import('./inputs.js');
+  const { lowerThreadPriority } = await import('../eval/background.js');
+  lowerThreadPriority(); // its results are needed only at the end (src/eval/background.ts)
   // one thread: this is the second thread beside the main one (and the kernel is bit-identical for any count)
   setThreads(1);
   const model = readModelFile(setup.input);
