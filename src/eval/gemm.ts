@@ -250,13 +250,44 @@ function viewsOf(simd: SimdKernels, bytes: number): { f32: Float32Array; f64: Fl
 /** Forget the packed copy of `data` (its array now holds other values). */
 export function forgetPacked(data: NumArray): void {
   if (packedNow?.data === data) packedNow = undefined;
+  if (staged === data) staged = undefined;
 }
 
 /** Views of the SIMD module's memory with at least `bytes` bytes (each call lays out its data from offset 0). */
 export function memoryViews(simd: SimdKernels, bytes: number): { f32: Float32Array; f64: Float64Array } {
   packedNow = undefined; // the caller overwrites the packed operand
+  staged = undefined;
   return viewsOf(simd, bytes);
 }
+
+// A float32 weight read from disk straight into the kernel memory's float32 staging area (offset 0), where
+// gemmWidening would copy it: that product then skips the copy. Only the evaluator stages a weight, for the one
+// Conv node about to take it as A (src/eval/run.ts WeightCache); anything else that writes there forgets it.
+let staged: NumArray | undefined;
+
+/**
+ * The staging area for a float32 A of M rows of K, as bytes to read the weight into, or undefined when a float64
+ * product with it might not take the widening path (no SIMD, or too large for the kernel memory at the widest
+ * panel). What the area held before is gone: call markStaged with the array read into it.
+ */
+export function stagingFor(M: number, K: number): Uint8Array | undefined {
+  const simd = useSimd ? simdKernels() : undefined;
+  if (!simd || M * K < SMALL_WORK || M < 2) return undefined;
+  const rows = Math.ceil(M / 4) * 4;
+  const widest = rows * K * 4 + rows * K * 8 + K * SNC * 8 + rows * SNC * 8; // gemmWidening's layout at N >= SNC
+  if (widest > SIMD_MAX_BYTES) return undefined;
+  packedNow = undefined;
+  staged = undefined;
+  const { f32 } = viewsOf(simd, rows * K * 4);
+  return new Uint8Array(f32.buffer, 0, M * K * 4);
+}
+
+let stagedUsed = 0;
+/** Products that found their weight staged so far (tests check staging really happened). */
+export function stagedProducts(): number { return stagedUsed; }
+
+/** `a` (M x K, row-major) now fills the staging area stagingFor gave. */
+export function markStaged(a: Float32Array): void { staged = a; }
 
 /**
  * Copy columns [j0, j0 + nc) of B into tiles of nr columns (32 bytes), each tile k-major: element (k, c) goes to
@@ -337,6 +368,7 @@ function gemmSimd(simd: SimdKernels, M: number, N: number, K: number, A: Operand
     // the whole of a constant A packed by the last product is still there
     const key = rows === M && isConstant(A.data) ? `${A.off},${A.rs},${A.cs},${M},${K},${es}` : undefined;
     if (key === undefined || packedNow?.key !== key || packedNow.data !== A.data) {
+      staged = undefined;
       copyARows(mem, A, r0, rows, K);
       packedNow = key === undefined ? undefined : { data: A.data, key };
     }
@@ -377,7 +409,9 @@ function gemmWidening(simd: SimdKernels, M: number, N: number, K: number, A: Ope
   let a32 = -1;
   if (key === undefined || packedNow?.key !== key || packedNow.data !== A.data) {
     packedNow = undefined;
-    copyARows(f32, A, 0, M, K);
+    // a weight read straight into the staging area is there already (only the rows' padding is left to zero)
+    if (staged === A.data && A.off === 0 && A.rs === K && A.cs === 1 && A.data.length === M * K) { f32.fill(0, M * K, tiles * 4 * K); stagedUsed++; }
+    else { staged = undefined; copyARows(f32, A, 0, M, K); }
     a32 = 0;
   }
   const sameType = C instanceof Float64Array;

@@ -1,11 +1,12 @@
 // The reference evaluator: runs a graph's nodes in list order (ONNX requires topological order), each through
 // its registered kernel, freeing intermediate values once their last reader has run.
 import { PleatError } from '../errors.js';
-import { DataType, opsetVersion, elementCount, type Graph, type Model, type Node, type Tensor } from '../graph/ir.js';
+import { DataType, attrInt, opsetVersion, elementCount, type Graph, type Model, type Node, type Tensor } from '../graph/ir.js';
 import { peekBytes } from '../graph/lazy-bytes.js';
+import { isOnDisk } from '../onnx/sparse-read.js';
 import { isFloatType, tensorToFloat64, dataTypeName } from '../graph/tensor.js';
 import { getKernel } from './registry.js';
-import { forgetPacked } from './gemm.js';
+import { forgetPacked, markStaged, stagingFor } from './gemm.js';
 import { freshFloat64, giveBack, isConstant, isPooled, markConstant, markTransient } from './pool.js';
 import { charge, evaluatingNode, liveBytes, release, resetLive } from './budget.js';
 import { planOf, type Plan } from './plan.js';
@@ -57,6 +58,21 @@ function decodeFor(t: Tensor, precision: Precision, into?: Float64Array): NumArr
     return tensorToValue(t, precision).data;
   }
   return tensorToFloat64(t, into);
+}
+
+/**
+ * Where the weight of Conv node `n` can be read straight into the matrix kernel's memory (gemm.ts stagingFor): a
+ * float32 weight on disk that the node reads as W only, with one group and more than one input channel per group
+ * (so its one product, A = W as a whole, is all the kernel memory holds while the weight is alive: no depthwise
+ * layout, no product per group). Undefined otherwise.
+ */
+function convStaging(n: Node, t: Tensor): Uint8Array | undefined {
+  if (n.opType !== 'Conv' || t.dataType !== DataType.FLOAT || t.dims.length < 3) return undefined;
+  if (n.inputs[1] !== t.name || n.inputs.indexOf(t.name) !== 1 || n.inputs.lastIndexOf(t.name) !== 1) return undefined;
+  if (attrInt(n, 'group', 1) !== 1 || t.dims[1]! < 2) return undefined;
+  const s = t.storage;
+  if ((s.kind !== 'raw' && s.kind !== 'external') || !isOnDisk(s.bytes)) return undefined;
+  return stagingFor(t.dims[0]!, elementCount(t.dims) / t.dims[0]!);
 }
 
 /** Kernels that read their operands element by element into float64 arithmetic, whatever the input array type. */
@@ -115,11 +131,18 @@ export class WeightCache {
       // exactly as it copies the operand into its own memory, so no float64 copy of the weight is made at all.
       let asStored: Float32Array | undefined;
       if (large && precision === 'float64' && this.reader !== undefined && WIDENING_KERNELS.has(this.reader.opType) && (this.reader.domain === '' || this.reader.domain === 'ai.onnx')) {
-        const bytes = elementCount(t.dims) * 4;
-        const into = spareRaw.take(bytes) ?? new Uint8Array(bytes);
-        asStored = rawFloat32(t, into);
-        if (asStored && asStored.buffer === into.buffer) this.readInto.set(asStored, into);
-        else spareRaw.put(into); // the bytes were in memory: the buffer was not needed
+        // a Conv's weight goes straight into the kernel memory where its product would copy it (see convStaging)
+        const staging = convStaging(this.reader, t);
+        if (staging) {
+          asStored = rawFloat32(t, staging);
+          if (asStored && asStored.buffer === staging.buffer && asStored.byteOffset === staging.byteOffset) markStaged(asStored);
+        } else {
+          const bytes = elementCount(t.dims) * 4;
+          const into = spareRaw.take(bytes) ?? new Uint8Array(bytes);
+          asStored = rawFloat32(t, into);
+          if (asStored && asStored.buffer === into.buffer) this.readInto.set(asStored, into);
+          else spareRaw.put(into); // the bytes were in memory: the buffer was not needed
+        }
       }
       // small ones into a slab view (pool.ts): an array of its own per small weight per step costs the collector more
       const n = elementCount(t.dims);

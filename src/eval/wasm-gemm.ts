@@ -24,17 +24,21 @@ export interface SimdKernels {
    */
   d32: (inP: number, outP: number, wP: number, tabP: number, taps: number, outH: number, outVecs: number, rowStep: number, outRow: number, biasP: number) => void;
   d64: (inP: number, outP: number, wP: number, tabP: number, taps: number, outH: number, outVecs: number, rowStep: number, outRow: number, biasP: number) => void;
-  /** (pa, pb, pc, mTiles, nTiles, kc, ldcBytes, ldbBytes, ldaBytes): byte offsets into memory and row/tile strides. */
-  k32: (pa: number, pb: number, pc: number, mTiles: number, nTiles: number, kc: number, ldcBytes: number, ldbBytes: number, ldaBytes: number) => void;
-  k64: (pa: number, pb: number, pc: number, mTiles: number, nTiles: number, kc: number, ldcBytes: number, ldbBytes: number, ldaBytes: number) => void;
+  /**
+   * (pa, pb, pc, mTiles, nTiles, kc, ldcBytes, ldbBytes, ldaBytes, add): byte offsets into memory and row/tile
+   * strides; with add = 1 each sum starts from the value C holds (a previous block of k) instead of 0.
+   */
+  k32: (pa: number, pb: number, pc: number, mTiles: number, nTiles: number, kc: number, ldcBytes: number, ldbBytes: number, ldaBytes: number, add: number) => void;
+  k64: (pa: number, pb: number, pc: number, mTiles: number, nTiles: number, kc: number, ldcBytes: number, ldbBytes: number, ldaBytes: number, add: number) => void;
   /** (src, dst, groups): widen groups of 4 float32 at byte src to float64 at byte dst (exact). */
   p64: (src: number, dst: number, groups: number) => void;
 }
 
-// params: pa 0, pb 1, pc 2, mTiles 3, nTiles 4, kc 5, ldc 6, ldb 7, lda 8; locals: jt 9, it 10, k 11, ap 12,
-// bp 13, cp 14, l2 15, l3 16, acc0..acc7 17..24, b0 25, b1 26, a 27
-const PA = 0, PB = 1, PC = 2, MT = 3, NT = 4, KC = 5, LDC = 6, LDB = 7, LDA = 8, JT = 9, IT = 10, K = 11, AP = 12, BP = 13, CP = 14;
-const L2 = 15, L3 = 16, ACC = 17, B0 = 25, B1 = 26, A = 27;
+// params: pa 0, pb 1, pc 2, mTiles 3, nTiles 4, kc 5, ldc 6, ldb 7, lda 8, add 9; locals: jt 10, it 11, k 12,
+// ap 13, bp 14, cp 15, l2 16, l3 17, acc0..acc7 18..25, b0 26, b1 27, a 28
+const PA = 0, PB = 1, PC = 2, MT = 3, NT = 4, KC = 5, LDC = 6, LDB = 7, LDA = 8, ADD = 9, JT = 10, IT = 11, K = 12, AP = 13, BP = 14, CP = 15;
+const L2 = 16, L3 = 17, ACC = 18, B0 = 26, B1 = 27, A = 28;
+const IF = 0x04, ELSE = 0x05;
 
 function kernelBody(f64: boolean): number[] {
   const es = f64 ? 8 : 4; // element size
@@ -53,7 +57,19 @@ function kernelBody(f64: boolean): number[] {
   // bp = pb + jt * ldb (B is packed in column tiles of 32 bytes, k-major)
   emit(get(PA), get(IT), c(4), [I32_MUL], get(LDA), [I32_MUL], [I32_ADD], set(AP));
   emit(get(PB), get(JT), get(LDB), [I32_MUL], [I32_ADD], set(BP));
+  // cp = pc + it*4*ldc + jt*32
+  const cAt = () => emit(get(PC), get(IT), c(4), [I32_MUL], get(LDC), [I32_MUL], [I32_ADD], get(JT), c(32), [I32_MUL], [I32_ADD], set(CP));
+  // the sums start from C's values (add: a later block of k, continuing the sums exactly) or from 0
+  cAt();
+  emit(get(ADD), [IF, VOID]);
+  for (let r = 0; r < 4; r++) {
+    emit(get(CP), simd(V128_LOAD), [4, ...uleb(0)], set(ACC + 2 * r));
+    emit(get(CP), simd(V128_LOAD), [4, ...uleb(16)], set(ACC + 2 * r + 1));
+    if (r < 3) emit(get(CP), get(LDC), [I32_ADD], set(CP));
+  }
+  emit([ELSE]);
   for (let r = 0; r < 8; r++) emit(simd(V128_CONST), new Array(16).fill(0), set(ACC + r));
+  emit([END]);
   emit(get(KC), set(K));
   emit([LOOP, VOID]); // k
   emit(get(BP), simd(V128_LOAD), [4, ...uleb(0)], set(B0));
@@ -67,8 +83,7 @@ function kernelBody(f64: boolean): number[] {
   emit(get(BP), c(32), [I32_ADD], set(BP));
   emit(get(K), c(1), [I32_SUB], [0x22, K]); // local.tee k
   emit([BR_IF, 0], [END]);
-  // cp = pc + it*4*ldc + jt*32
-  emit(get(PC), get(IT), c(4), [I32_MUL], get(LDC), [I32_MUL], [I32_ADD], get(JT), c(32), [I32_MUL], [I32_ADD], set(CP));
+  cAt();
   for (let r = 0; r < 4; r++) {
     emit(get(CP), get(ACC + 2 * r), simd(V128_STORE), [4, ...uleb(0)]);
     emit(get(CP), get(ACC + 2 * r + 1), simd(V128_STORE), [4, ...uleb(16)]);
@@ -142,7 +157,6 @@ export const MAX_PAGES = 16384;
 export function moduleBytes(): Uint8Array<ArrayBuffer> {
   const i32 = 0x7f;
   const types = section(1, vec([
-    [0x60, ...vec(new Array(9).fill([i32])), ...vec([])],
     [0x60, ...vec(new Array(10).fill([i32])), ...vec([])],
     [0x60, ...vec(new Array(3).fill([i32])), ...vec([])],
   ]));
@@ -150,7 +164,7 @@ export function moduleBytes(): Uint8Array<ArrayBuffer> {
   // the memory is imported, shared (limits flag 3: shared, with a maximum), so every worker thread's instance
   // runs its kernels on the operands the calling thread laid out, with no copy
   const imports = section(2, vec([[...name('e'), ...name('m'), 0x02, 0x03, ...uleb(1), ...uleb(MAX_PAGES)]]));
-  const funcs = section(3, vec([[0], [0], [1], [1], [2]]));
+  const funcs = section(3, vec([[0], [0], [0], [0], [1]]));
   const exports = section(7, vec([
     [...name('k32'), 0x00, 0], [...name('k64'), 0x00, 1], [...name('d32'), 0x00, 2], [...name('d64'), 0x00, 3], [...name('p64'), 0x00, 4],
   ]));
@@ -203,6 +217,9 @@ export interface TileSpan {
   a32: number;
 }
 
+/** k per kernel call (runTiles): a block of 4 rows of A and of a B tile in float64 is 8 KiB. */
+export const KBLOCK = 256;
+
 /** Compute C's rows for tiles [t0, t1) of a span (the calling thread's band, or a worker's). */
 export function runTiles(k: SimdKernels, s: TileSpan): void {
   const kern = s.f64 ? k.k64 : k.k32;
@@ -211,7 +228,11 @@ export function runTiles(k: SimdKernels, s: TileSpan): void {
     const n = Math.min(s.chunk, s.t1 - t);
     const pa = s.pa + t * 4 * s.K * es;
     if (s.a32 >= 0) k.p64(s.a32 + t * 4 * s.K * 4, pa, n * s.K); // n tiles of 4 rows of K float32: n * K groups of 4
-    kern(pa, s.pb, s.pc + t * 4 * s.ldcBytes, n, s.nTiles, s.K, s.ldcBytes, s.ldbBytes, s.K * es);
+    // k in blocks: the block of the chunk's rows of A and of each B tile stays in cache while the kernel passes
+    // over them, and each block's sums go on from C's values (exact), so the result is the unblocked one
+    for (let k0 = 0; k0 < s.K; k0 += KBLOCK) {
+      kern(pa + k0 * es, s.pb + k0 * 32, s.pc + t * 4 * s.ldcBytes, n, s.nTiles, Math.min(KBLOCK, s.K - k0), s.ldcBytes, s.ldbBytes, s.K * es, k0 > 0 ? 1 : 0);
+    }
   }
 }
 

@@ -252,11 +252,27 @@ function scopeFor(scopes: Scope[], others: Scope[], path: string): Scope | undef
   return scopes.find((s) => s.path === path) ?? (i >= 0 ? scopes[i] : undefined);
 }
 
+/** What the quantization report reads of a ledger entry. */
+export type FoldedTargets = Pick<LedgerEntry, 'node' | 'status' | 'target' | 'targets' | 'graph'>;
+
+/** A folded target with the figures of its original weights: the first half of a quantization row. */
+export interface TargetBefore {
+  graph: string;
+  target: string;
+  norms: string[];
+  /** The target node in the original model (the folded model's node is found from it). */
+  node: Node;
+  figures: LayerFigures;
+}
+
+/** The original model's half of the quantization report: its scopes and each folded target's figures. */
+export interface QuantBefore { scopes: Scope[]; targets: TargetBefore[] }
+
 /**
- * One row per folded target layer, in ledger order. `before` is the original model, `after` the folded one;
- * `afterScopes` may give scopes of `after` already built (and current).
+ * The figures of the original weights of every folded target layer, in ledger order (quantReadiness's first
+ * half; it needs nothing of the folded model, so a file job works it out while the folded model is written).
  */
-export function quantReadiness(before: Model, after: Model, ledger: readonly LedgerEntry[], thresholdDb = QUANT_THRESHOLD_DB, afterScopes?: Scope[]): QuantRow[] {
+export function quantBefore(before: Model, ledger: readonly FoldedTargets[]): QuantBefore {
   const groups = new Map<string, { graph: string; target: string; norms: string[] }>();
   for (const e of ledger) {
     if (e.status !== 'folded' || e.target === null) continue;
@@ -268,22 +284,40 @@ export function quantReadiness(before: Model, after: Model, ledger: readonly Led
       groups.set(key, g);
     }
   }
-  if (groups.size === 0) return [];
+  if (groups.size === 0) return { scopes: [], targets: [] };
+  const sb = buildScopes(before);
+  const index = new Map<Scope, NodeIndex>();
+  const targets: TargetBefore[] = [];
+  for (const g of groups.values()) {
+    const scopeB = scopeFor(sb, sb, g.graph);
+    if (!scopeB) continue;
+    const node = indexOf(scopeB, index).byLabel.get(g.target);
+    if (!node) continue;
+    const figures = figuresOfLayer(scopeB, node);
+    if (figures) targets.push({ ...g, node, figures });
+  }
+  return { scopes: sb, targets };
+}
+
+/**
+ * quantReadiness's second half: the figures of each target's folded weights in `after`, and the rows.
+ * `afterScopes` may give scopes of `after` already built (and current).
+ */
+export function quantAfter(start: QuantBefore, after: Model, thresholdDb = QUANT_THRESHOLD_DB, afterScopes?: Scope[]): QuantRow[] {
+  if (start.targets.length === 0) return [];
   // (`afterScopes`: the fold's own scopes of `after`, still current, so its graphs are not indexed again)
-  const sb = buildScopes(before), sa = afterScopes ?? buildScopes(after);
+  const sb = start.scopes, sa = afterScopes ?? buildScopes(after);
   const index = new Map<Scope, NodeIndex>();
   const rows: QuantRow[] = [];
-  for (const g of groups.values()) {
-    const scopeB = scopeFor(sb, sb, g.graph), scopeA = scopeFor(sa, sb, g.graph);
-    if (!scopeB || !scopeA) continue;
-    const nb = indexOf(scopeB, index).byLabel.get(g.target);
-    if (!nb) continue;
-    const na = counterpart(indexOf(scopeA, index, false), nb);
+  for (const t of start.targets) {
+    const scopeA = scopeFor(sa, sb, t.graph);
+    if (!scopeA) continue;
+    const na = counterpart(indexOf(scopeA, index, false), t.node);
     if (!na) continue;
-    const b = figuresOfLayer(scopeB, nb), a = figuresOfLayer(scopeA, na);
-    if (!b || !a) continue;
+    const b = t.figures, a = figuresOfLayer(scopeA, na);
+    if (!a) continue;
     rows.push({
-      target: g.target, norms: g.norms, channels: a.channels, spreadBefore: b.spread, spreadAfter: a.spread,
+      target: t.target, norms: t.norms, channels: a.channels, spreadBefore: b.spread, spreadAfter: a.spread,
       sqnrBefore: b.sqnr, sqnrAfter: a.sqnr,
       // flagged when the fold brought a channel below the threshold (a channel already that lossy before the fold,
       // e.g. a dead one, is shown but not blamed on the fold)
@@ -291,4 +325,12 @@ export function quantReadiness(before: Model, after: Model, ledger: readonly Led
     });
   }
   return rows;
+}
+
+/**
+ * One row per folded target layer, in ledger order. `before` is the original model, `after` the folded one;
+ * `afterScopes` may give scopes of `after` already built (and current).
+ */
+export function quantReadiness(before: Model, after: Model, ledger: readonly LedgerEntry[], thresholdDb = QUANT_THRESHOLD_DB, afterScopes?: Scope[]): QuantRow[] {
+  return quantAfter(quantBefore(before, ledger), after, thresholdDb, afterScopes);
 }

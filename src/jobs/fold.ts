@@ -14,8 +14,8 @@ import { DEFAULT_GATES } from '../verify/gate.js';
 import { asMap, dimSymbols, resolveInputs } from '../verify/inputs.js';
 import { checkProbeEstimate } from '../verify/probe-budget.js';
 import { PleatError } from '../errors.js';
-import { setThreads } from '../eval/threads.js';
-import { QUANT_THRESHOLD_DB, quantReadiness, roundedWeightsModel } from '../fold/quant.js';
+import { setThreads, threadCount } from '../eval/threads.js';
+import { QUANT_THRESHOLD_DB, quantReadiness, roundedWeightsModel, type QuantRow } from '../fold/quant.js';
 import { equalizeModel } from '../fold/equalize.js';
 import type { Int8Granularity } from '../fold/int8.js';
 import { checkJobNames } from './names.js';
@@ -92,6 +92,8 @@ function checkGate(opts: FoldJobOptions & { halfGate?: boolean }): string | unde
   return opts.gate ?? (opts.halfGate ? DEFAULT_GATES.float16 : undefined);
 }
 import { sketches } from '../fold/sketch.js';
+import { quantBeside, type ShippedFile } from './quant-beside.js';
+import { startOriginalRuns, type OriginalRuns } from '../verify/original-runs.js';
 import { DIGEST_PLACEHOLDER, fillDigest, sha256Later } from './sha256.js';
 
 /**
@@ -107,7 +109,8 @@ export const CHECK_ARITHMETIC = 'float64' as const;
  * Compare the original and the folded model on seeded probes, watching the rewritten nodes. The status follows
  * the rules of compare (verify/status.ts): skipped, never passed, when nothing could be compared.
  */
-export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOptions & { halfGate?: boolean; sqnr?: number; rewritten?: readonly RewrittenKey[]; onProbe?: (p: ProbeRecord) => void }): CheckSummary {
+export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOptions & { halfGate?: boolean; sqnr?: number; rewritten?: readonly RewrittenKey[]; onProbe?: (p: ProbeRecord) => void;
+  originalRuns?: OriginalRuns }): CheckSummary {
   const seed = opts.seed ?? 0;
   const probes = opts.probes ?? 2;
   const gate = checkGate(opts);
@@ -118,6 +121,7 @@ export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOpt
   const r = checkKit().compare(original, folded, {
     inputs: opts.inputs, shapes, dims, seed, probes, gate, budget: false, watch, onProbe: opts.onProbe, maxProbeMemory: opts.maxProbeMemory, arithmetic: CHECK_ARITHMETIC,
     extraMetrics: opts.sqnr !== undefined ? { sqnr: opts.sqnr } : undefined,
+    outputsOfA: opts.originalRuns,
   });
   return {
     status: r.status,
@@ -193,12 +197,12 @@ export function int8Simulation(original: Model, folded: Model, granularity: Int8
  * callers that can read the model again (see FoldOptions.lateRangeCheck).
  */
 export function foldLoaded(model: Model, original: Model | undefined, label: string, opts: FoldJobOptions, lateRangeCheck = false, ship?: (m: Model) => Model,
-  onProbe?: (p: ProbeRecord) => void): FoldReport {
+  onProbe?: (p: ProbeRecord) => void, files?: JobFiles): FoldReport {
   if (opts.strict && opts.noProofs) throw new PleatError('usage', '--strict needs the whole-model check, which --unproven leaves out: give one of them');
   checkOpset(model, label);
   checkJobNames(model, label, opts);
   // the proofs and the check run within the probe memory limit (src/eval/budget.ts)
-  return withProbeMemory(opts.maxProbeMemory, () => foldWithin(model, original, label, opts, lateRangeCheck, ship, onProbe));
+  return withProbeMemory(opts.maxProbeMemory, () => foldWithin(model, original, label, opts, lateRangeCheck, ship, onProbe, files));
 }
 
 /** Refuse, before any fold, a whole-model check whose probe would go beyond the probe memory limit. */
@@ -221,8 +225,17 @@ function keepScopes<T extends { scopes: Scope[] }>(r: T, take: (s: Scope[]) => v
   return rest;
 }
 
+/**
+ * The files of a file job: the input, where `ship` wrote the folded model (known once it has), and the original
+ * model's check runs when a thread works them out from the input (src/verify/original-runs.ts).
+ */
+export interface JobFiles { input: string; shipped(): ShippedFile; originalRuns?: OriginalRuns }
+
+/** Whether a gate names the metric `sqnr` (then the quantization figures are needed before the check). */
+const namesSqnr = (gate: string | undefined) => gate !== undefined && /\bsqnr\b/.test(gate);
+
 function foldWithin(model: Model, original: Model | undefined, label: string, opts: FoldJobOptions, lateRangeCheck: boolean, ship?: (m: Model) => Model,
-  onProbe?: (p: ProbeRecord) => void): FoldReport {
+  onProbe?: (p: ProbeRecord) => void, files?: JobFiles): FoldReport {
   if (original && !opts.noProofs) checkProbeFits(original, opts);
   // the fold's scopes (their indexes answer for the folded model) serve the quantization report, then go
   let foldScopes: Scope[] | undefined;
@@ -243,23 +256,38 @@ function foldWithin(model: Model, original: Model | undefined, label: string, op
     : [];
   const quantThresholdDb = opts.quantThresholdDb ?? QUANT_THRESHOLD_DB;
   const int8 = original && !opts.noProofs && opts.simulateInt8 ? int8Simulation(original, model, opts.simulateInt8, opts) : null;
-  // quantization readiness reads the folded float32 weights, so it runs before half-precision storage
-  // (the fold's scopes answer for the model as folded, unless equalization edited it since)
-  const quantization = original ? quantReadiness(original, model, ledger.normalizations, quantThresholdDb, opts.equalize ? undefined : foldScopes) : [];
-  foldScopes = undefined; // not held through the whole-model check
+  // A file job whose written weights are the folded float32 ones works the quantization report out on a thread
+  // beside the writing and the check, from the input and the written file (src/jobs/quant-beside.ts); a gate
+  // naming `sqnr` needs the figures before the check, so it keeps them on this thread.
+  const beside = original && ship && files && opts.store !== 'float16' && !namesSqnr(opts.gate)
+    ? quantBeside(files.input, ledger.normalizations, quantThresholdDb) : undefined;
+  let quantization: QuantRow[] = [];
   let storage: StorageSummary | null = null;
-  if (opts.store === 'float16') {
-    const r = storeFloat16(model);
-    storage = { store: 'float16', ...r };
+  let check: CheckSummary | null;
+  try {
+    // quantization readiness reads the folded float32 weights, so it runs before half-precision storage
+    // (the fold's scopes answer for the model as folded, unless equalization edited it since)
+    if (original && !beside) quantization = quantReadiness(original, model, ledger.normalizations, quantThresholdDb, opts.equalize ? undefined : foldScopes);
+    foldScopes = undefined; // not held through the whole-model check
+    if (opts.store === 'float16') {
+      const r = storeFloat16(model);
+      storage = { store: 'float16', ...r };
+    }
+    // the gate may name `sqnr`: the lowest worst-channel per-tensor 8-bit SQNR of the folded layers (dB) (with the
+    // report on its thread the gate does not name it, and the value is never read)
+    const sqnr = beside ? NaN : Math.min(Infinity, ...quantization.map((q) => q.sqnrAfter.worstChannel));
+    // the rewritten nodes, by graph path and output, so the check finds them again in the copy read from disk
+    const keys = original && !opts.noProofs ? rewrittenKeys(model, rewritten) : [];
+    // `ship` writes the model and gives it back as read from disk: the check then judges what ships.
+    const shipped = ship ? ship(model) : model;
+    beside?.shipped(files!.shipped());
+    check = original && !opts.noProofs
+      ? wholeModelCheck(original, shipped, { ...opts, halfGate: storage !== null, sqnr, rewritten: keys, onProbe, originalRuns: files?.originalRuns }) : null;
+    // (a thread that failed: the same figures here, from the same written file)
+    if (beside) quantization = beside.rows() ?? quantReadiness(original!, shipped, ledger.normalizations, quantThresholdDb);
+  } finally {
+    beside?.stop();
   }
-  // the gate may name `sqnr`: the lowest worst-channel per-tensor 8-bit SQNR of the folded layers (dB)
-  const sqnr = Math.min(Infinity, ...quantization.map((q) => q.sqnrAfter.worstChannel));
-  // the rewritten nodes, by graph path and output, so the check finds them again in the copy read from disk
-  const keys = original && !opts.noProofs ? rewrittenKeys(model, rewritten) : [];
-  // `ship` writes the model and gives it back as read from disk: the check then judges what ships.
-  const shipped = ship ? ship(model) : model;
-  const check = original && !opts.noProofs
-    ? wholeModelCheck(original, shipped, { ...opts, halfGate: storage !== null, sqnr, rewritten: keys, onProbe }) : null;
   const failed = check !== null && (check.status === 'failed' || (check.status === 'skipped' && check.strict));
   return {
     schemaVersion: SCHEMA_VERSION,
@@ -374,7 +402,17 @@ function foldStagedOnce(tx: OutputSet, input: string, output: string, opts: Fold
     return back;
   };
   const records: ProbeRecord[] = [];
-  const report = foldLoaded(model, original, input, opts, lateRangeCheck, ship, opts.saveProbes !== undefined ? (p) => records.push(p) : undefined);
+  // The original model's side of the check needs nothing of the fold: with threads to spare, a thread runs it
+  // from the input while this one folds, proves and writes (given inputs and saved probes keep it here).
+  const originalRuns = original && asMap(opts.inputs).size === 0 && opts.saveProbes === undefined && threadCount() > 1
+    ? startOriginalRuns(input, original, { ...inputsOf(original, opts), seed: opts.seed ?? 0, probes: opts.probes ?? 2, maxProbeMemory: opts.maxProbeMemory }) : undefined;
+  const files: JobFiles = { input, shipped: () => ({ path: staged!.files[0]!.tmp, redirect: staged!.redirect }), originalRuns };
+  let report: FoldReport;
+  try {
+    report = foldLoaded(model, original, input, opts, lateRangeCheck, ship, opts.saveProbes !== undefined ? (p) => records.push(p) : undefined, files);
+  } finally {
+    originalRuns?.stop();
+  }
   if (opts.pageDetail) {
     report.sha256 = sha256();
     report.sketches = sketches(original ?? readModelFile(input), report.normalizations, model);

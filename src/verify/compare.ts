@@ -65,6 +65,20 @@ export interface CompareOptions extends InputOptions {
   simulateInt8?: Int8Granularity;
   /** More names a gate may use, with one value for every output (fold's check adds `sqnr`). */
   extraMetrics?: Record<string, number>;
+  /**
+   * Model A's runs in the judged arithmetic, done elsewhere (fold's check runs the original model on its own
+   * thread, src/verify/original-runs.ts). Used for a probe only when its inputs there are this comparison's bit
+   * for bit and no error budget is measured; otherwise A runs here.
+   */
+  outputsOfA?: RunsElsewhere;
+}
+
+/** Runs of a model done elsewhere, per probe index. */
+export interface RunsElsewhere {
+  /** Whether probe p is (being) run there; never waits. */
+  has(probe: number): boolean;
+  /** Probe p's inputs and the model's outputs (waiting for them), or undefined when there are none. */
+  get(probe: number): { inputs: Map<string, Value>; outputs: Map<string, Value> } | undefined;
 }
 
 export const DEFAULT_PROBES = 3;
@@ -184,6 +198,22 @@ export function halfStoredWeights(model: Model): string[] {
 
 const sameDims = (x: readonly number[], y: readonly number[]) => x.length === y.length && x.every((d, i) => d === y[i]);
 
+let takenElsewhere = 0;
+/** Probes whose model A outputs came from CompareOptions.outputsOfA so far (tests check they were used). */
+export function probesOfATakenElsewhere(): number { return takenElsewhere; }
+
+/** Whether two value sets hold the same names, types, dims and element bits. */
+function sameValues(x: ReadonlyMap<string, Value>, y: ReadonlyMap<string, Value>): boolean {
+  if (x.size !== y.size) return false;
+  for (const [name, v] of x) {
+    const w = y.get(name);
+    if (!w || w.type !== v.type || !sameDims(v.dims, w.dims) || v.data.constructor !== w.data.constructor || v.data.length !== w.data.length) return false;
+    const a = new Uint8Array(v.data.buffer, v.data.byteOffset, v.data.byteLength), b = new Uint8Array(w.data.buffer, w.data.byteOffset, w.data.byteLength);
+    for (let i = 0; i < a.length; i++) if (a[i] !== b[i]) return false;
+  }
+  return true;
+}
+
 /** Check that B takes exactly the inputs A is given, with types and shapes its declarations accept. */
 function checkCandidateInputs(b: Model, first: Map<string, Value>): void {
   const bInits = new Set(b.graph.initializers.map((t) => t.name));
@@ -288,6 +318,36 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
       (e, i) => labelled(e, sides[i]!.model, sides[i]!.side, precision));
     return batch.map((_, q) => [out[0]![q]!, out[1]![q]!] as const);
   };
+  /** A's outputs for probes first.. of a batch from opts.outputsOfA, when it has every one for these very inputs. */
+  const doneElsewhere = (elsewhere: RunsElsewhere, first: number, batch: Array<Map<string, Value>>): Array<Map<string, Value>> | undefined => {
+    const outs: Array<Map<string, Value>> = [];
+    for (let q = 0; q < batch.length; q++) {
+      const got = elsewhere.get(first + q);
+      if (!got || !sameValues(got.inputs, batch[q]!)) return undefined;
+      outs.push(got.outputs);
+    }
+    return outs;
+  };
+  /**
+   * The judged pair for a batch: B alone against A's outputs done elsewhere, or both here. B runs first (A's runs
+   * may still be under way); whenever A's outputs turn out not to be there, the pair runs here as it would have
+   * without them, so the results and any error are the same. B failing while A ran fine is B's error either way.
+   */
+  const judgedPair = (first: number, batch: Array<Map<string, Value>>) => {
+    const elsewhere = opts.outputsOfA;
+    if (!elsewhere || budget || !batch.every((_, q) => elsewhere.has(first + q))) return pair('judged', batch);
+    let outB;
+    try {
+      outB = runLockstep([{ model: b, precision: arithmetic, probes: batch, onNode }], (e) => labelled(e, b, 'B', arithmetic))[0]!;
+    } catch (e) {
+      if (doneElsewhere(elsewhere, first, batch)) throw e;
+      return pair('judged', batch);
+    }
+    const a = doneElsewhere(elsewhere, first, batch);
+    if (!a) return pair('judged', batch);
+    takenElsewhere += a.length;
+    return batch.map((_, q) => [a[q]!, outB[q]!] as const);
+  };
   /** A alone in one arithmetic (the outputs --save-probes keeps that the comparison did not compute). */
   const aAlone = (precision: Precision, inputs: Map<string, Value>) =>
     runLockstep([{ model: a, precision, probes: [inputs] }], (e) => labelled(e, a, 'A', precision))[0]![0]!;
@@ -299,7 +359,7 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
       if (p >= probes && executed.size === watch!.size) break;
       const count = p < probes && together ? probes - p : 1;
       const batch = Array.from({ length: count }, (_, q) => probeInputs[p + q] ?? makeProbe(specs, seed, p + q));
-      const judged = pair('judged', batch);
+      const judged = judgedPair(p, batch);
       const f32 = budget ? pair('float32', batch) : undefined;
       for (let q = 0; q < count; q++, p++) {
         const inputs = batch[q]!;

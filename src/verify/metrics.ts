@@ -33,8 +33,14 @@ export const REL_FLOOR = 1e-3;
 
 /** Metrics of candidate `a` against reference `b`. */
 export function computeMetrics(a: ArrayLike<number>, b: ArrayLike<number>): Metrics {
+  if (b.length !== a.length) throw new RangeError(`computeMetrics: lengths differ (${a.length} and ${b.length})`);
+  // one element type for the loops (float32 and integer values widen exactly), so they stay compiled for it
+  // whatever arrays the callers pass (a loop over ArrayLike seen with several types ran several times slower)
+  return metricsOf(a instanceof Float64Array ? a : Float64Array.from(a), b instanceof Float64Array ? b : Float64Array.from(b));
+}
+
+function metricsOf(a: Float64Array, b: Float64Array): Metrics {
   const n = a.length;
-  if (b.length !== n) throw new RangeError(`computeMetrics: lengths differ (${n} and ${b.length})`);
   let peak = 0, scale = 0, nanMismatches = 0, infMismatch = false;
   for (let i = 0; i < n; i++) {
     const x = a[i]!, y = b[i]!;
