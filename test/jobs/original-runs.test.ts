@@ -8,6 +8,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { GraphBuilder, modelBytes, randn, rng, uniform, f } from '../helpers/build.js';
 import { foldFile } from '../../src/jobs/fold.js';
+import '../../src/jobs/with-checks.js'; // proven folds need the check modules loaded (src/jobs/check-kit.ts)
 import { originalRunsStarted, setOriginalRunsMinBytes, startOriginalRuns } from '../../src/verify/original-runs.js';
 import { compare, probesOfATakenElsewhere } from '../../src/verify/compare.js';
 import { readModelFile } from '../../src/onnx/read.js';

@@ -9,6 +9,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { GraphBuilder, modelBytes, randn, rng, uniform, f } from '../helpers/build.js';
 import { foldFile } from '../../src/jobs/fold.js';
+import '../../src/jobs/with-checks.js'; // proven folds need the check modules loaded (src/jobs/check-kit.ts)
 import { quantThreadsAnswered, quantThreadsStarted, setQuantBesideMinBytes } from '../../src/jobs/quant-beside.js';
 
 const DEFAULT_MIN = 64 * 1024 * 1024;
