@@ -3,6 +3,7 @@
 import { DataType, elementCount, rawByteLength, rawBytesOf, type DataTypeCode, type Tensor, type TensorStorage } from './ir.js';
 import { PleatError } from '../errors.js';
 import { ensureLoaded, markLoaded, peekBytes } from './lazy-bytes.js';
+import { slabBytes } from './slab.js';
 
 const NAMES: Record<number, string> = {
   0: 'undefined', 1: 'float32', 2: 'uint8', 3: 'int8', 4: 'uint16', 5: 'int16', 6: 'int32', 7: 'int64',
@@ -246,29 +247,12 @@ export function encodeStorage(values: ArrayLike<number>, code: DataTypeCode, lik
   }
 }
 
-// The bytes of small tensors pleat creates (a fold of many small layers makes a bias each) are views into shared
-// slabs. An array of its own would be small enough to live in the heap until its first `.buffer` (writing floats
-// asks for it), which moves it out to a buffer of its own that the garbage collector then tracks one by one. A slab
-// is never written again once handed out, so each view keeps its bytes; views start at multiples of 8 (aligned
-// for any element type).
-const SLAB = 64 * 1024;
-let slab = new ArrayBuffer(0);
-let slabAt = 0;
-
-function freshBytes(n: number): Uint8Array {
-  if (n > SLAB / 16) return new Uint8Array(n);
-  if (slabAt + n > slab.byteLength) { slab = new ArrayBuffer(SLAB); slabAt = 0; }
-  const out = new Uint8Array(slab, slabAt, n); // (a view made by its constructor: subarray costs twice that)
-  slabAt += (n + 7) & ~7;
-  return out;
-}
-
 /** Build a new raw_data tensor from values (used for tensors pleat creates). */
 export function makeTensor(name: string, dims: number[], dataType: DataTypeCode, values: ArrayLike<number>): Tensor {
   const bpe = bytesPerElement(dataType);
   if (bpe === undefined) throw new PleatError('dtype-unsupported', `cannot encode ${dataTypeName(dataType)} tensor data`);
   // (new memory: no part of a file, so nothing for markLoaded to do, as encodeStorage would do it)
-  const bytes = freshBytes(values.length * bpe);
+  const bytes = slabBytes(values.length * bpe, 8); // aligned for any element type (see slab.ts)
   writeRaw(values, dataType, bytes);
   return { name, dims: [...dims], dataType, storage: { kind: 'raw', bytes }, docString: '', extra: [] };
 }

@@ -14,6 +14,7 @@ import {
 } from './signature.js';
 import { externalRef, sideFilePaths } from './external.js';
 import { sameFile } from './paths.js';
+import { slabBytes } from '../graph/slab.js';
 import { deferredIn, ensureLoaded, lazySourceOf, pendingIn, reopenSource } from './sparse-read.js';
 
 interface Piece { chunks: Uint8Array[]; length: number; same: boolean }
@@ -343,22 +344,7 @@ function utf8Of(s: string): Uint8Array | string {
 const utf8e = new TextEncoder();
 const byteLen = (x: Uint8Array | string): number => (typeof x === 'string' ? x.length : x.byteLength);
 
-// The bytes of these messages are views into shared slabs, never arrays of their own: an array of more than 64
-// bytes has its own buffer outside the heap, which the garbage collector tracks one by one (a fold of 10^5 small
-// layers made as many). A slab is never written again once handed out, so each view keeps its bytes.
-const SLAB = 64 * 1024;
-let slab = new ArrayBuffer(0);
-let slabAt = 0;
-
-/** `n` fresh bytes (zeros) that no other piece shares. (A view made by its constructor: subarray costs twice that.) */
-function slabBytes(n: number): Uint8Array {
-  if (n > SLAB / 8) return new Uint8Array(n);
-  if (slabAt + n > slab.byteLength) { slab = new ArrayBuffer(SLAB); slabAt = 0; }
-  const out = new Uint8Array(slab, slabAt, n);
-  slabAt += n;
-  return out;
-}
-
+// Re-encoded messages are written into shared slabs (src/graph/slab.ts), not an array each.
 /** Writes fields into an array sized beforehand. */
 class Fill {
   at = 0;
