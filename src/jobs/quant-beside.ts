@@ -4,7 +4,8 @@
 // while the main thread runs the whole-model check. So the report judges the bytes that ship, and its reading and
 // arithmetic (a large model's every weight, twice) leave the main thread. The figures are the same computation as
 // quantReadiness on the main thread (src/fold/quant.ts: quantBefore, quantAfter), so the rows are identical.
-import { MessageChannel, receiveMessageOnPort, Worker, type MessagePort } from 'node:worker_threads';
+import { receiveMessageOnPort, type MessagePort } from 'node:worker_threads';
+import { startBackgroundThread } from '../eval/background.js';
 import { existsSync, statSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 import type { LedgerEntry } from '../fold/types.js';
@@ -59,19 +60,12 @@ export function quantBeside(input: string, ledger: readonly LedgerEntry[], thres
   try { size = statSync(input).size; } catch { return undefined; }
   if (size < minBytes) return undefined;
   const state = new Int32Array(new SharedArrayBuffer(8));
-  const { port1, port2 } = new MessageChannel();
-  let worker: Worker;
-  try {
-    const setup: QuantThreadSetup = {
-      input, thresholdDb, state: state.buffer as SharedArrayBuffer, port: port2,
-      ledger: ledger.map((e) => ({ node: e.node, status: e.status, target: e.target, targets: e.targets, graph: e.graph })),
-    };
-    worker = new Worker(workerUrl(), { workerData: setup, transferList: [port2] });
-    worker.unref(); // never keeps the process alive
-  } catch {
-    port1.close();
-    return undefined;
-  }
+  const thread = startBackgroundThread(workerUrl(), (port): QuantThreadSetup => ({
+    input, thresholdDb, state: state.buffer as SharedArrayBuffer, port,
+    ledger: ledger.map((e) => ({ node: e.node, status: e.status, target: e.target, targets: e.targets, graph: e.graph })),
+  }));
+  if (!thread) return undefined;
+  const { worker, port: port1 } = thread;
   started++;
   let result: QuantRow[] | undefined;
   let finished = false;

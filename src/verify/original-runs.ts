@@ -4,7 +4,8 @@
 // model and takes the original's outputs from here (CompareOptions.outputsOfA), after checking that the thread's
 // probe inputs are this run's bit for bit. Each side's values are the same computation whichever thread runs it,
 // and the matrix kernel is bit-identical for any thread count, so the report is the same.
-import { MessageChannel, receiveMessageOnPort, Worker, type MessagePort } from 'node:worker_threads';
+import { receiveMessageOnPort, type MessagePort } from 'node:worker_threads';
+import { startBackgroundThread } from '../eval/background.js';
 import { existsSync, statSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 import type { Value } from '../eval/value.js';
@@ -72,19 +73,12 @@ export function startOriginalRuns(input: string, original: Model, o: { seed: num
     return undefined; // the check itself reports it
   }
   const state = new Int32Array(new SharedArrayBuffer(4));
-  const { port1, port2 } = new MessageChannel();
-  let worker: Worker;
-  try {
-    const setup: OriginalRunsSetup = {
-      input, seed: o.seed, probes: o.probes, shapes: [...o.shapes], dims: [...o.dims], maxProbeMemory: Math.floor(limit / 2),
-      state: state.buffer as SharedArrayBuffer, port: port2,
-    };
-    worker = new Worker(workerUrl(), { workerData: setup, transferList: [port2] });
-    worker.unref(); // never keeps the process alive
-  } catch {
-    port1.close();
-    return undefined;
-  }
+  const thread = startBackgroundThread(workerUrl(), (port): OriginalRunsSetup => ({
+    input, seed: o.seed, probes: o.probes, shapes: [...o.shapes], dims: [...o.dims], maxProbeMemory: Math.floor(limit / 2),
+    state: state.buffer as SharedArrayBuffer, port,
+  }));
+  if (!thread) return undefined;
+  const { worker, port: port1 } = thread;
   started++;
   let result: OriginalProbe[] | undefined;
   let finished = false;
