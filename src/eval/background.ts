@@ -3,9 +3,10 @@
 // product workers (whose chunks the main thread waits for) run first and the background fills the gaps: those
 // threads' results are needed only at the end. Linux only (a thread's nice value, by its thread id); elsewhere,
 // and wherever the change is refused, nothing happens.
-import { readlinkSync } from 'node:fs';
+import { existsSync, readlinkSync } from 'node:fs';
+import { fileURLToPath } from 'node:url';
 import { getPriority, setPriority } from 'node:os';
-import { MessageChannel, Worker, type MessagePort } from 'node:worker_threads';
+import { MessageChannel, receiveMessageOnPort, Worker, type MessagePort } from 'node:worker_threads';
 
 /** How much a background thread raises its nice value (higher is lower priority; raising it needs no privilege). */
 export const BACKGROUND_NICE = 10;
@@ -34,4 +35,30 @@ export function startBackgroundThread(url: URL, setup: (port: MessagePort) => ob
     port1.close();
     return undefined;
   }
+}
+
+/**
+ * The URL of a thread's module `file`, beside the module whose import.meta.url is `from` once built; tests that run
+ * the TypeScript sources get the built copy in dist/ (`room`: the module's folder under src/).
+ */
+export function threadModuleUrl(from: string, room: string, file: string): URL {
+  const here = new URL(`./${file}`, from);
+  if (existsSync(fileURLToPath(here))) return here;
+  return new URL(`../../dist/src/${room}/${file}`, from);
+}
+
+/**
+ * Wait until `state[at]` leaves 0. At 1 the other thread posted a message on `port` just before setting it: take
+ * it (a message can take a moment to reach this side of the channel). Undefined at any other value (the other
+ * side failed, or none comes) or when nothing arrives within about a second.
+ */
+export function takePosted(state: Int32Array, at: number, port: MessagePort): unknown {
+  while (Atomics.load(state, at) === 0) Atomics.wait(state, at, 0, 1000);
+  if (Atomics.load(state, at) !== 1) return undefined;
+  for (let tries = 0; tries < 1000; tries++) {
+    const m = receiveMessageOnPort(port);
+    if (m) return m.message;
+    Atomics.wait(state, at, 1, 1); // a 1 ms pause (state[at] stays 1)
+  }
+  return undefined;
 }

@@ -4,11 +4,10 @@
 // thread waits for the workers to finish. Every output element is one sum over k in the same order whoever
 // computes it, so results are bit-identical for any thread count.
 import { Worker } from 'node:worker_threads';
-import { existsSync } from 'node:fs';
-import { fileURLToPath } from 'node:url';
 import { availableParallelism } from 'node:os';
 import type { NumArray } from './value.js';
 import { simdKernels, type TileSpan } from './wasm-gemm.js';
+import { threadModuleUrl } from './background.js';
 
 let wanted = Math.max(1, availableParallelism());
 
@@ -44,12 +43,7 @@ let posted = 0;
 /** Worker hand-offs so far (tests check the threads really ran). */
 export function bandsPosted(): number { return posted; }
 
-function workerUrl(): URL {
-  // beside this file once built; tests that run the TypeScript sources use the built copy
-  const here = new URL('./gemm-worker.js', import.meta.url);
-  if (existsSync(fileURLToPath(here))) return here;
-  return new URL('../../dist/src/eval/gemm-worker.js', import.meta.url);
-}
+const workerUrl = (): URL => threadModuleUrl(import.meta.url, 'eval', 'gemm-worker.js');
 
 function pool(n: number): Array<{ worker: Worker; control: Int32Array }> {
   while (workers.length < n) {

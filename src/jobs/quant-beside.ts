@@ -4,10 +4,9 @@
 // while the main thread runs the whole-model check. So the report judges the bytes that ship, and its reading and
 // arithmetic (a large model's every weight, twice) leave the main thread. The figures are the same computation as
 // quantReadiness on the main thread (src/fold/quant.ts: quantBefore, quantAfter), so the rows are identical.
-import { receiveMessageOnPort, type MessagePort } from 'node:worker_threads';
-import { startBackgroundThread } from '../eval/background.js';
-import { existsSync, statSync } from 'node:fs';
-import { fileURLToPath } from 'node:url';
+import type { MessagePort } from 'node:worker_threads';
+import { startBackgroundThread, takePosted, threadModuleUrl } from '../eval/background.js';
+import { statSync } from 'node:fs';
 import type { LedgerEntry } from '../fold/types.js';
 import type { FoldedTargets, QuantRow } from '../fold/quant.js';
 
@@ -47,20 +46,13 @@ let started = 0, answered = 0;
 export function quantThreadsStarted(): number { return started; }
 export function quantThreadsAnswered(): number { return answered; }
 
-function workerUrl(): URL {
-  // beside this file once built; tests that run the TypeScript sources use the built copy
-  const here = new URL('./quant-thread.js', import.meta.url);
-  if (existsSync(fileURLToPath(here))) return here;
-  return new URL('../../dist/src/jobs/quant-thread.js', import.meta.url);
-}
-
 /** Start the report's thread for a fold of `input`; undefined when the input is small or no thread can start. */
 export function quantBeside(input: string, ledger: readonly LedgerEntry[], thresholdDb: number): QuantBeside | undefined {
   let size = 0;
   try { size = statSync(input).size; } catch { return undefined; }
   if (size < minBytes) return undefined;
   const state = new Int32Array(new SharedArrayBuffer(8));
-  const thread = startBackgroundThread(workerUrl(), (port): QuantThreadSetup => ({
+  const thread = startBackgroundThread(threadModuleUrl(import.meta.url, 'jobs', 'quant-thread.js'), (port): QuantThreadSetup => ({
     input, thresholdDb, state: state.buffer as SharedArrayBuffer, port,
     ledger: ledger.map((e) => ({ node: e.node, status: e.status, target: e.target, targets: e.targets, graph: e.graph })),
   }));
@@ -85,15 +77,8 @@ export function quantBeside(input: string, ledger: readonly LedgerEntry[], thres
     },
     rows() {
       if (finished) return result;
-      while (Atomics.load(state, DONE) === 0) Atomics.wait(state, DONE, 0, 1000);
-      if (Atomics.load(state, DONE) === 1) {
-        // posted before DONE was set; a message can take a moment to reach this side of the channel
-        for (let tries = 0; tries < 1000 && result === undefined; tries++) {
-          const m = receiveMessageOnPort(port1);
-          if (m) { result = m.message as QuantRow[]; answered++; }
-          else Atomics.wait(state, SHIPPED, Atomics.load(state, SHIPPED), 1);
-        }
-      }
+      result = takePosted(state, DONE, port1) as QuantRow[] | undefined;
+      if (result) answered++;
       stop();
       return result;
     },

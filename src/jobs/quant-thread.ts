@@ -2,7 +2,7 @@
 // model's folded target layers, waits for the main thread to say where the folded model is written, reads that
 // file back and figures the folded weights, then posts the rows. Any failure is only counted (DONE = 2): the main
 // thread then works the report out itself, and reports errors the usual way.
-import { receiveMessageOnPort, workerData } from 'node:worker_threads';
+import { workerData } from 'node:worker_threads';
 import type { QuantThreadSetup } from './quant-beside.js';
 
 const SHIPPED = 0, DONE = 1; // as in quant-beside.ts (not imported: a failure to load must still be counted)
@@ -12,16 +12,13 @@ try {
   // loaded here, not at the top, so a module that fails to load is counted as a failure like any other
   const { readModelFile } = await import('../onnx/read.js');
   const { quantAfter, quantBefore } = await import('../fold/quant.js');
-  const { lowerThreadPriority } = await import('../eval/background.js');
+  const { lowerThreadPriority, takePosted } = await import('../eval/background.js');
   lowerThreadPriority(); // its results are needed only at the end (src/eval/background.ts)
   const start = quantBefore(readModelFile(setup.input), setup.ledger);
-  while (Atomics.load(state, SHIPPED) === 0) Atomics.wait(state, SHIPPED, 0);
-  if (Atomics.load(state, SHIPPED) === 1) {
-    let m: { message: { path: string; redirect: Array<[string, string]> } } | undefined;
-    // posted before SHIPPED was set; a message can take a moment to reach this side of the channel
-    for (let tries = 0; tries < 1000 && !(m = receiveMessageOnPort(setup.port)); tries++) Atomics.wait(state, DONE, 0, 1);
-    if (!m) throw new Error('no file to read');
-    const rows = quantAfter(start, readModelFile(m.message.path, new Map(m.message.redirect)), setup.thresholdDb);
+  // where the folded model is written (none comes when the job ends early: then this thread just ends)
+  const m = takePosted(state, SHIPPED, setup.port) as { path: string; redirect: Array<[string, string]> } | undefined;
+  if (m) {
+    const rows = quantAfter(start, readModelFile(m.path, new Map(m.redirect)), setup.thresholdDb);
     setup.port.postMessage(rows);
     Atomics.store(state, DONE, 1);
   } else {

@@ -4,10 +4,9 @@
 // model and takes the original's outputs from here (CompareOptions.outputsOfA), after checking that the thread's
 // probe inputs are this run's bit for bit. Each side's values are the same computation whichever thread runs it,
 // and the matrix kernel is bit-identical for any thread count, so the report is the same.
-import { receiveMessageOnPort, type MessagePort } from 'node:worker_threads';
-import { startBackgroundThread } from '../eval/background.js';
-import { existsSync, statSync } from 'node:fs';
-import { fileURLToPath } from 'node:url';
+import type { MessagePort } from 'node:worker_threads';
+import { startBackgroundThread, takePosted, threadModuleUrl } from '../eval/background.js';
+import { statSync } from 'node:fs';
 import type { Value } from '../eval/value.js';
 import type { RunsElsewhere } from './compare.js';
 import type { Model } from '../graph/ir.js';
@@ -47,13 +46,6 @@ let started = 0;
 /** Threads started so far (tests check the thread really ran). */
 export function originalRunsStarted(): number { return started; }
 
-function workerUrl(): URL {
-  // beside this file once built; tests that run the TypeScript sources use the built copy
-  const here = new URL('./original-thread.js', import.meta.url);
-  if (existsSync(fileURLToPath(here))) return here;
-  return new URL('../../dist/src/verify/original-thread.js', import.meta.url);
-}
-
 /**
  * Start running `original` (read from `input`) on probes 0..probes-1, seeded as compare seeds them, in float64 on
  * a worker thread. Undefined when the file is small, its probes' values (estimated from the shapes) might need
@@ -73,7 +65,7 @@ export function startOriginalRuns(input: string, original: Model, o: { seed: num
     return undefined; // the check itself reports it
   }
   const state = new Int32Array(new SharedArrayBuffer(4));
-  const thread = startBackgroundThread(workerUrl(), (port): OriginalRunsSetup => ({
+  const thread = startBackgroundThread(threadModuleUrl(import.meta.url, 'verify', 'original-thread.js'), (port): OriginalRunsSetup => ({
     input, seed: o.seed, probes: o.probes, shapes: [...o.shapes], dims: [...o.dims], maxProbeMemory: Math.floor(limit / 2),
     state: state.buffer as SharedArrayBuffer, port,
   }));
@@ -90,15 +82,8 @@ export function startOriginalRuns(input: string, original: Model, o: { seed: num
   };
   const wait = () => {
     if (finished) return;
-    while (Atomics.load(state, DONE) === 0) Atomics.wait(state, DONE, 0, 1000);
-    if (Atomics.load(state, DONE) === 1) {
-      // posted before DONE was set; a message can take a moment to reach this side of the channel
-      for (let tries = 0; tries < 1000 && result === undefined; tries++) {
-        const m = receiveMessageOnPort(port1);
-        if (m) result = (m.message as Array<{ inputs: Array<[string, Value]>; outputs: Array<[string, Value]> }>).map((r) => ({ inputs: new Map(r.inputs), outputs: new Map(r.outputs) }));
-        else Atomics.wait(state, DONE, 1, 1);
-      }
-    }
+    const posted = takePosted(state, DONE, port1) as Array<{ inputs: Array<[string, Value]>; outputs: Array<[string, Value]> }> | undefined;
+    result = posted?.map((r) => ({ inputs: new Map(r.inputs), outputs: new Map(r.outputs) }));
     stop();
   };
   return {
