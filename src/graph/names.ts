@@ -7,6 +7,8 @@ export interface NameTable {
   add(name: string): number;
   /** The id of a name, or -1. */
   id(name: string): number;
+  /** The name of an id (0 <= id < size). */
+  nameOf(id: number): string;
   readonly size: number;
 }
 
@@ -73,6 +75,7 @@ export function nameTable(capacity: number, grow = false): NameTable {
   return {
     add: (name) => find(name, true),
     id: (name) => find(name, false),
+    nameOf: (id) => names[id]!,
     get size() { return names.length; },
   };
 }

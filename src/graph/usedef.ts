@@ -5,6 +5,7 @@ import { constantNodeTensor } from './constants.js';
 import type { Graph, Node, Tensor } from './ir.js';
 import { hasSubgraphs, subgraphsOf } from './ir.js';
 import { nameTable, type NameTable } from './names.js';
+import { keptIds } from './kept-ids.js';
 
 export interface UseDef {
   graph: Graph;
@@ -74,23 +75,39 @@ function indexGraph(graph: Graph): Built {
       reads += refs.length;
     }
   }
-  // Names first, then the arrays at the number of names found. Each value is written once, so the writers bound
-  // the names well (a table sized by every occurrence was several times too big: 16 MB resident for 10^5 nodes);
-  // the table grows for names only read (from outside, or never written).
-  const ids = nameTable(tensors.length + graph.inputs.length + writes + 16, true);
+  // Names first, then the arrays at the number of names found: the ids validation found, when the graph is still
+  // as it was then (kept-ids.ts), else a table of our own. Each value is written once, so the writers bound the
+  // names well (a table sized by every occurrence was several times too big: 16 MB resident for 10^5 nodes); the
+  // table grows for names only read (from outside, or never written).
+  const given = keptIds(graph);
+  const ids = given?.table ?? nameTable(tensors.length + graph.inputs.length + writes + 16, true);
   const idOf = ids.add;
-  const outIds = new Int32Array(writes);
-  const readIds = new Int32Array(reads);
-  for (let j = 0, w = 0, e = 0; j < nodes.length; j++) {
-    const n = nodes[j]!;
-    for (const o of n.outputs) outIds[w++] = o ? idOf(o) : -1;
-    for (const i of n.inputs) readIds[e++] = i ? idOf(i) : -1;
-    const refs = bodies.get(j);
-    if (refs) for (const r of refs) readIds[e++] = idOf(r);
+  let outIds: Int32Array, readIds: Int32Array;
+  let outputIds: ArrayLike<number>, inputIds: ArrayLike<number>, tensorIds: ArrayLike<number>;
+  if (given && bodies.size === 0) {
+    ({ outIds, readIds, outputIds, inputIds, tensorIds } = given);
+  } else {
+    outIds = new Int32Array(writes);
+    readIds = new Int32Array(reads);
+    for (let j = 0, w = 0, e = 0; j < nodes.length; j++) {
+      const n = nodes[j]!;
+      if (given) {
+        // (validation's ids for the node's own wiring; what its bodies read from outside is added here)
+        const o = given.outStart[j]!, r = given.readStart[j]!;
+        outIds.set(given.outIds.subarray(o, given.outStart[j + 1]!), w);
+        readIds.set(given.readIds.subarray(r, given.readStart[j + 1]!), e);
+        w += n.outputs.length; e += n.inputs.length;
+      } else {
+        for (const o of n.outputs) outIds[w++] = o ? idOf(o) : -1;
+        for (const i of n.inputs) readIds[e++] = i ? idOf(i) : -1;
+      }
+      const refs = bodies.get(j);
+      if (refs) for (const r of refs) readIds[e++] = idOf(r);
+    }
+    outputIds = given?.outputIds ?? graph.outputs.map((o) => idOf(o.name));
+    inputIds = given?.inputIds ?? graph.inputs.map((v) => idOf(v.name));
+    tensorIds = given?.tensorIds ?? tensors.map((t) => idOf(t.name));
   }
-  const outputIds = graph.outputs.map((o) => idOf(o.name));
-  const inputIds = graph.inputs.map((v) => idOf(v.name));
-  const tensorIds = tensors.map((t) => idOf(t.name));
   const size = ids.size;
   const producer = new Int32Array(size).fill(-1);
   const init = new Int32Array(size).fill(-1);
@@ -111,8 +128,8 @@ function indexGraph(graph: Graph): Built {
       edgeNode[edges++] = j;
     }
   }
-  for (const id of outputIds) flags[id]! |= IS_OUTPUT;
-  for (const id of inputIds) flags[id]! |= IS_INPUT;
+  for (let k = 0; k < outputIds.length; k++) flags[outputIds[k]!]! |= IS_OUTPUT;
+  for (let k = 0; k < inputIds.length; k++) flags[inputIds[k]!]! |= IS_INPUT;
   for (let k = 0; k < tensors.length; k++) init[tensorIds[k]!] = k;
   return { nodes, tensors, ids, producer, init, flags, readers: csr(size, edgeValue, edgeNode, edges), bodies };
 }

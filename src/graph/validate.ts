@@ -6,6 +6,7 @@ import { elementCount, hasSubgraphs, storageKind, subgraphsOf } from './ir.js';
 import { isKnownDataType, storedElementCount, dataTypeName } from './tensor.js';
 import { topoOrder } from './topo.js';
 import { nameTable } from './names.js';
+import { keepIds } from './kept-ids.js';
 import { outerRefs } from './usedef.js';
 
 function checkTensor(t: Tensor, where: string, externalLoaded: boolean): void {
@@ -32,30 +33,43 @@ function validateGraph(g: Graph, outerHas: (v: string) => boolean, path: string,
   const nodes = g.nodes;
   let bound = g.inputs.length + g.initializers.length;
   for (let j = 0; j < nodes.length; j++) bound += nodes[j]!.outputs.length;
-  const names = nameTable(bound);
+  const names = nameTable(bound, true); // (grows only when a taker of the kept ids adds names: see kept-ids.ts)
   const kind = new Uint8Array(bound); // 0 none, 1 graph input, 2 initializer, 3 node
   const index = new Int32Array(bound);
   const describe = (k: number, i: number): string => k === 1 ? `graph input '${g.inputs[i]!.name}'`
     : k === 2 ? `initializer '${g.initializers[i]!.name}'` : `node '${nodes[i]!.name || nodes[i]!.opType}'`;
-  const own = (v: string, k: number, i: number, quietIfInput = false) => {
+  const own = (v: string, k: number, i: number, quietIfInput = false): number => {
     const id = names.add(v);
     if (kind[id] !== 0) {
-      if (quietIfInput && kind[id] === 1) return; // an initializer giving a graph input its default
+      if (quietIfInput && kind[id] === 1) return id; // an initializer giving a graph input its default
       throw new PleatError('bad-model', `${path}: value '${v}' is written by both ${describe(kind[id]!, index[id]!)} and ${describe(k, i)}`);
     }
     kind[id] = k;
     index[id] = i;
+    return id;
   };
-  g.inputs.forEach((v, i) => own(v.name, 1, i));
+  // the ids found on the way, kept for the use-def index (kept-ids.ts) when the graph reads nothing from outside
+  const inputIds = new Int32Array(g.inputs.length);
+  const tensorIds = new Int32Array(g.initializers.length);
+  const outStart = new Int32Array(nodes.length + 1), readStart = new Int32Array(nodes.length + 1);
+  let writes = 0, reads = 0;
+  for (let j = 0; j < nodes.length; j++) {
+    outStart[j] = writes; readStart[j] = reads;
+    writes += nodes[j]!.outputs.length; reads += nodes[j]!.inputs.length;
+  }
+  outStart[nodes.length] = writes; readStart[nodes.length] = reads;
+  const outIds = new Int32Array(writes), readIds = new Int32Array(reads);
+  let outer = false;
+  g.inputs.forEach((v, i) => { inputIds[i] = own(v.name, 1, i); });
   g.initializers.forEach((t, i) => {
     checkTensor(t, path, externalLoaded);
-    own(t.name, 2, i, true); // two initializers of one name are refused: runtimes bind different ones
+    tensorIds[i] = own(t.name, 2, i, true); // two initializers of one name are refused: runtimes bind different ones
   });
   let nested = false;
-  for (let j = 0; j < nodes.length; j++) {
+  for (let j = 0, w = 0; j < nodes.length; j++) {
     const n = nodes[j]!;
     const outs = n.outputs;
-    for (let k = 0; k < outs.length; k++) if (outs[k]) own(outs[k]!, 3, j);
+    for (let k = 0; k < outs.length; k++) outIds[w++] = outs[k] ? own(outs[k]!, 3, j) : -1;
     const attrs = n.attributes;
     for (let k = 0; k < attrs.length; k++) {
       const v = attrs[k]!.value;
@@ -67,17 +81,18 @@ function validateGraph(g: Graph, outerHas: (v: string) => boolean, path: string,
   // Every read value is defined; and when every node reads only values written before it (the common case,
   // told by the same look-ups) there is no cycle, so the topological sort is needed only otherwise.
   let inFileOrder = true;
-  for (let j = 0; j < nodes.length; j++) {
+  for (let j = 0, e = 0; j < nodes.length; j++) {
     const n = nodes[j]!;
     const ins = n.inputs;
     for (let k = 0; k < ins.length; k++) {
       const i = ins[k]!;
-      if (!i) continue;
-      const id = names.id(i);
+      if (!i) { readIds[e++] = -1; continue; }
+      const id = readIds[e++] = names.id(i);
       if (id < 0) {
         if (!outerHas(i)) {
           throw new PleatError('bad-model', `${path}: node '${n.name || n.opType}' reads '${i}', which no node, input or initializer defines`);
         }
+        outer = true;
       } else if (kind[id] === 3 && index[id]! >= j) inFileOrder = false;
     }
     // a subgraph's reads of this graph's values are the node's needs too (topoOrder counts them the same way)
@@ -91,8 +106,17 @@ function validateGraph(g: Graph, outerHas: (v: string) => boolean, path: string,
     }
   }
   if (!inFileOrder) topoOrder(g); // throws on a cycle
-  for (const o of g.outputs) {
+  const outputIds = new Int32Array(g.outputs.length);
+  g.outputs.forEach((o, k) => {
     if (!has(o.name)) throw new PleatError('bad-model', `${path}: graph output '${o.name}' is never computed`);
+    outputIds[k] = names.id(o.name);
+    if (outputIds[k]! < 0) outer = true;
+  });
+  if (!outer) {
+    keepIds(g, {
+      table: names, nodes: nodes.slice(), outStart, outIds, readStart, readIds, tensors: g.initializers.slice(), tensorIds,
+      inputs: g.inputs.slice(), inputIds, outputs: g.outputs.slice(), outputIds,
+    });
   }
   if (!nested) return;
   for (const n of nodes) {

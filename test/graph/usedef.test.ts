@@ -5,6 +5,8 @@ import { buildUseDef, editableUseDef, type UseDef } from '../../src/graph/usedef
 import type { Graph, Model } from '../../src/graph/ir.js';
 import { hasSubgraphs, subgraphsOf } from '../../src/graph/ir.js';
 import { randomCase } from '../fold/random-graphs.js';
+import { keptIds } from '../../src/graph/kept-ids.js';
+import { rng } from '../helpers/build.js';
 
 /** Every value name of a graph, and names that are none. */
 function namesOf(g: Graph): string[] {
@@ -94,6 +96,52 @@ describe('editable use-def index', () => {
       }
       ud.settle();
       expectAnswersOf(ud, g);
+    }
+  });
+});
+
+describe('ids kept from validation (src/graph/kept-ids.ts)', () => {
+  // The index takes the name ids validation found only while the graph is exactly as validated; each kind of
+  // in-place edit below must make it build its own, and answer as a scan of the edited graph does.
+  const edits: Array<[string, (g: Graph, r: () => number) => void]> = [
+    ['an input replaced in place', (g, r) => {
+      const some = g.nodes.filter((x) => x.inputs.length > 0 && x.inputs[0] !== g.inputs[0]!.name);
+      some[Math.floor(r() * some.length)]!.inputs[0] = g.inputs[0]!.name;
+    }],
+    ['an output renamed in place', (g) => { const n = g.nodes.find((x) => x.outputs[0])!; n.outputs[0] = 'renamed.out'; }],
+    ['a node replaced by a copy', (g) => { const j = g.nodes.length >> 1; g.nodes[j] = { ...g.nodes[j]!, inputs: [...g.nodes[j]!.inputs] }; }],
+    ['an input added to a node', (g) => { const n = g.nodes[0]!; n.inputs.push(g.inputs[0]!.name); }],
+    ['an input and an output moved between neighbours', (g) => {
+      const a = g.nodes.find((x, j) => x.inputs.length > 1 && g.nodes[j + 1] !== undefined);
+      if (!a) { g.nodes.reverse(); return; }
+      const b = g.nodes[g.nodes.indexOf(a) + 1]!;
+      b.inputs.unshift(a.inputs.pop()!);
+    }],
+    ['the nodes reordered', (g) => { g.nodes.reverse(); }],
+    ['an initializer renamed', (g) => { if (g.initializers[0]) g.initializers[0].name = 'renamed.init'; else g.nodes.reverse(); }],
+    ['a graph output renamed', (g) => { g.outputs[0]!.name = g.inputs[0]!.name; }],
+  ];
+  it('answers for the graph as edited after validation, never from stale ids (seeded random graphs)', () => {
+    let kept = 0;
+    for (let seed = 1; seed <= 40; seed++) {
+      const m = read(seed);
+      if (keptIds(m.graph)) kept++;
+      const r = rng(seed);
+      const [what, edit] = edits[seed % edits.length]!;
+      edit(m.graph, r);
+      expect(keptIds(m.graph), what).toBeUndefined();
+      expectAnswersOf(buildUseDef(m.graph), m.graph);
+      expectAnswersOf(editableUseDef(m.graph), m.graph);
+    }
+    expect(kept).toBeGreaterThan(30); // graphs that read nothing from outside keep their ids
+  });
+
+  it('takes the kept ids while the graph is unchanged, with the same answers', () => {
+    for (let seed = 1; seed <= 20; seed++) {
+      const m = read(seed);
+      if (!keptIds(m.graph)) continue;
+      expectAnswersOf(buildUseDef(m.graph), m.graph);
+      expect(keptIds(m.graph)).toBeDefined(); // taking them leaves them for the next index
     }
   });
 });
