@@ -8,6 +8,7 @@
 // before them share one.
 import { subgraphsOf, type Graph, type Node, type Tensor } from '../graph/ir.js';
 import { nameTable } from '../graph/names.js';
+import { keptIds } from '../graph/kept-ids.js';
 import type { Kernel } from './value.js';
 
 /** Slot by value name (undefined: the graph never mentions the name). */
@@ -119,27 +120,52 @@ function slotTable(g: Graph, names: string[]): { slot: (name: string) => number;
 /** Up to this many name mentions, a plan finds slots by scanning its names. */
 const SMALL_SLOTS = 24;
 
+/**
+ * The slots of a graph whose names validation numbered and kept (graph/kept-ids.ts), while the graph is exactly as
+ * validated: the kept ids are the slots, so no name is hashed again (a graph just read, or never edited since: the
+ * original model and the written one read back, in a check). Undefined when there are none, or when a body reads a
+ * name the kept table does not hold.
+ */
+function keptSlots(g: Graph): { names: string[]; slot: (name: string) => number; slotOf: SlotLookup; inStart: Int32Array; inSlot: Int32Array; outStart: Int32Array; outSlot: Int32Array } | undefined {
+  const k = keptIds(g);
+  if (!k) return undefined;
+  const table = k.table, count = table.size;
+  const id = (name: string): number => { const s = typeof name === 'string' ? table.id(name) : -1; return s < count ? s : -1; };
+  for (const node of g.nodes) if (hasBody(node) && bodyReadsOf(node).some((x) => id(x) < 0)) return undefined;
+  for (const o of g.outputs) if (id(o.name) < 0) return undefined;
+  const names = new Array<string>(count);
+  for (let s = 0; s < count; s++) names[s] = table.nameOf(s);
+  return {
+    names, slot: id, slotOf: { get: (name) => { const s = id(name); return s < 0 ? undefined : s; } },
+    inStart: k.readStart, inSlot: k.readIds, outStart: k.outStart, outSlot: k.outIds,
+  };
+}
+
 function build(g: Graph): Plan {
-  const names: string[] = [];
-  const { slot, slotOf } = slotTable(g, names);
-  const init: Array<Tensor | undefined> = [];
-  for (const t of g.initializers) init[slot(t.name)] = t;
   const nodes = g.nodes;
   const n = nodes.length;
+  const kept = n >= KEEP_PLAN_MIN_NODES ? keptSlots(g) : undefined;
+  const names: string[] = kept?.names ?? [];
+  const { slot, slotOf } = kept ?? slotTable(g, names);
+  // (filled up front when the slots are known: slots far apart would make a sparse array, slow to read)
+  const init: Array<Tensor | undefined> = kept ? new Array<Tensor | undefined>(names.length).fill(undefined) : [];
+  for (const t of g.initializers) init[slot(t.name)] = t;
   let nIn = 0, nOut = 0;
   for (const node of nodes) { nIn += node.inputs.length; nOut += node.outputs.length; }
-  const inStart = new Int32Array(n + 1), inSlot = new Int32Array(nIn);
-  const outStart = new Int32Array(n + 1), outSlot = new Int32Array(nOut);
+  const inStart = kept?.inStart ?? new Int32Array(n + 1), inSlot = kept?.inSlot ?? new Int32Array(nIn);
+  const outStart = kept?.outStart ?? new Int32Array(n + 1), outSlot = kept?.outSlot ?? new Int32Array(nOut);
   const withBodies: number[] = [];
   const bodyReads: string[][] = [];
   const extraReads: Array<number[] | undefined> = [];
   let pi = 0, po = 0;
   for (let i = 0; i < n; i++) {
     const node = nodes[i]!;
-    inStart[i] = pi;
-    for (const x of node.inputs) inSlot[pi++] = x === '' ? -1 : slot(x);
-    outStart[i] = po;
-    for (const x of node.outputs) outSlot[po++] = x === '' ? -1 : slot(x);
+    if (!kept) {
+      inStart[i] = pi;
+      for (const x of node.inputs) inSlot[pi++] = x === '' ? -1 : slot(x);
+      outStart[i] = po;
+      for (const x of node.outputs) outSlot[po++] = x === '' ? -1 : slot(x);
+    }
     if (hasBody(node)) {
       const reads = bodyReadsOf(node);
       withBodies.push(i);
@@ -147,8 +173,10 @@ function build(g: Graph): Plan {
       extraReads[i] = reads.map(slot);
     }
   }
-  inStart[n] = pi;
-  outStart[n] = po;
+  if (!kept) {
+    inStart[n] = pi;
+    outStart[n] = po;
+  }
   const outputNames = g.outputs.map((o) => o.name);
   for (const o of outputNames) slot(o);
   const count = names.length;

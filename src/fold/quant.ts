@@ -122,14 +122,49 @@ function figuresOfLayer(scope: Scope, n: Node): LayerFigures | undefined {
 
 /** Spread and SQNR figures of a layer's weights: in SIMD where it applies, else the scalar definitions. */
 export function layerFigures(l: LayerShape, simd = true): LayerFigures {
-  const fast = simd ? simdFigures(l) : undefined;
-  if (fast) return fast;
-  const values = tensorToFloat64(l.tensor);
-  return {
-    spread: spreadOf(channelRanges(values, l.map, l.channels)),
-    channels: l.channels,
-    sqnr: sqnrOf(values, l.map, l.channels),
-  };
+  if (!simd) {
+    // the definitions, one figure at a time (what the faster paths below are tested against)
+    const values = tensorToFloat64(l.tensor);
+    return { spread: spreadOf(channelRanges(values, l.map, l.channels)), channels: l.channels, sqnr: sqnrOf(values, l.map, l.channels) };
+  }
+  return simdFigures(l) ?? scalarFigures(tensorToFloat64(l.tensor), l.map, l.channels);
+}
+
+/**
+ * channelRanges, spreadOf and sqnrOf in fewer passes: each channel's max |w| is max(|min|, |max|), so the pass
+ * that finds the ranges finds the scales too (many small layers: the passes and arrays were most of the cost).
+ */
+function scalarFigures(values: Float64Array, map: ChannelMap, channels: number): LayerFigures {
+  const lo = new Float64Array(channels).fill(Infinity), hi = new Float64Array(channels).fill(-Infinity);
+  const of = map.of, unit = map.unit;
+  for (let e = 0, i = 0; e < of.length; e++) {
+    const c = of[e]!;
+    let l = lo[c]!, h = hi[c]!;
+    for (const end = i + unit; i < end; i++) {
+      const x = values[i]!;
+      if (x < l) l = x;
+      if (x > h) h = x;
+    }
+    lo[c] = l; hi[c] = h;
+  }
+  // lo becomes the ranges and hi the scales (no number in a channel: range 0, max |w| 0, as the definitions give)
+  let widest = 0;
+  for (let c = 0; c < channels; c++) {
+    const a = lo[c]!, b = hi[c]!;
+    const m = b >= a ? Math.max(Math.abs(a), Math.abs(b)) : 0;
+    lo[c] = b >= a ? b - a : 0;
+    hi[c] = symmetricScale(m);
+    if (m > widest) widest = m;
+  }
+  const scaleT = symmetricScale(widest);
+  const sig = new Float64Array(channels), noiseT = new Float64Array(channels), acc = new Float64Array(3);
+  for (let e = 0, i = 0; e < of.length; e++, i += unit) {
+    const c = of[e]!;
+    acc[0] = sig[c]!; acc[1] = noiseT[c]!;
+    noiseOfRun(values, i, i + unit, scaleT, hi[c]!, acc);
+    sig[c] = acc[0]; noiseT[c] = acc[1];
+  }
+  return { spread: spreadOf(lo), channels, sqnr: sqnrFromSums(sig, noiseT, acc[2]!) };
 }
 
 /** Weight types whose every value is a float32, so the float32 SIMD figures see exactly the stored values. */
@@ -206,26 +241,19 @@ export function roundedWeightsModel(model: Model, granularity: Int8Granularity):
   return { model: withSwappedTensors(model, (t) => rounded.get(t)), layers: rounded.size };
 }
 
-/** Index of a scope's nodes, built once per scope (a lookup per folded layer would make the report quadratic). */
+/** Index of a scope's linear nodes, built once per scope (a lookup per folded layer would make the report quadratic). */
 interface NodeIndex {
-  /** Node by ledger label (name, or op#index when unnamed); the first one wins. */
-  byLabel: Map<string, Node>;
   /** Linear nodes by name; unnamed ones by their output and by their data input (the first one wins). */
   linearByName: Map<string, Node>;
   unnamedByOutput: Map<string, Node>;
   unnamedByInput: Map<string, Node>;
 }
 
-function indexOf(scope: Scope, cache: Map<Scope, NodeIndex>, byLabel = true): NodeIndex {
+function indexOf(scope: Scope, cache: Map<Scope, NodeIndex>): NodeIndex {
   let ix = cache.get(scope);
   if (ix) return ix;
-  ix = { byLabel: new Map(), linearByName: new Map(), unnamedByOutput: new Map(), unnamedByInput: new Map() };
+  ix = { linearByName: new Map(), unnamedByOutput: new Map(), unnamedByInput: new Map() };
   for (const n of scope.graph.nodes) {
-    // (the folded model's index is only asked for counterparts: no map of every label)
-    if (byLabel) {
-      const label = labelOf(scope, n);
-      if (!ix.byLabel.has(label)) ix.byLabel.set(label, n);
-    }
     if (!LINEAR.has(n.opType)) continue;
     if (n.name) { if (!ix.linearByName.has(n.name)) ix.linearByName.set(n.name, n); continue; }
     if (n.outputs[0] !== undefined && !ix.unnamedByOutput.has(n.outputs[0])) ix.unnamedByOutput.set(n.outputs[0], n);
@@ -233,6 +261,19 @@ function indexOf(scope: Scope, cache: Map<Scope, NodeIndex>, byLabel = true): No
   }
   cache.set(scope, ix);
   return ix;
+}
+
+/**
+ * The nodes of a scope with the given ledger labels (name, or op#index when unnamed; the first one wins): one
+ * pass over the graph, keeping only the labels asked for (no map of every label).
+ */
+function nodesByLabel(scope: Scope, labels: ReadonlyMap<string, unknown>): Map<string, Node> {
+  const found = new Map<string, Node>();
+  for (const n of scope.graph.nodes) {
+    const label = labelOf(scope, n);
+    if (labels.has(label) && !found.has(label)) found.set(label, n);
+  }
+  return found;
 }
 
 /**
@@ -273,28 +314,35 @@ export interface QuantBefore { scopes: Scope[]; targets: TargetBefore[] }
  * half; it needs nothing of the folded model, so a file job works it out while the folded model is written).
  */
 export function quantBefore(before: Model, ledger: readonly FoldedTargets[]): QuantBefore {
-  const groups = new Map<string, { graph: string; target: string; norms: string[] }>();
+  // by graph, then target (no joined key per entry); `order` keeps the ledger's order across graphs
+  const byGraph = new Map<string, Map<string, { graph: string; target: string; norms: string[] }>>();
+  const order: Array<{ graph: string; target: string; norms: string[] }> = [];
   for (const e of ledger) {
     if (e.status !== 'folded' || e.target === null) continue;
+    let inGraph = byGraph.get(e.graph);
+    if (!inGraph) byGraph.set(e.graph, inGraph = new Map());
     // a norm read by several layers folded into each of them: one row per layer
-    for (const target of e.targets?.length ? e.targets : [e.target]) {
-      const key = `${e.graph}\u0000${target}`;
-      const g = groups.get(key) ?? { graph: e.graph, target, norms: [] };
+    const add = (target: string) => {
+      let g = inGraph!.get(target);
+      if (!g) { inGraph!.set(target, g = { graph: e.graph, target, norms: [] }); order.push(g); }
       if (!g.norms.includes(e.node)) g.norms.push(e.node);
-      groups.set(key, g);
-    }
+    };
+    if (e.targets?.length) for (const t of e.targets) add(t);
+    else add(e.target);
   }
-  if (groups.size === 0) return { scopes: [], targets: [] };
+  if (order.length === 0) return { scopes: [], targets: [] };
   const sb = buildScopes(before);
-  const index = new Map<Scope, NodeIndex>();
+  const found = new Map<string, { scope: Scope; nodes: Map<string, Node> }>();
+  for (const [graph, wanted] of byGraph) {
+    const scope = scopeFor(sb, sb, graph);
+    if (scope) found.set(graph, { scope, nodes: nodesByLabel(scope, wanted) });
+  }
   const targets: TargetBefore[] = [];
-  for (const g of groups.values()) {
-    const scopeB = scopeFor(sb, sb, g.graph);
-    if (!scopeB) continue;
-    const node = indexOf(scopeB, index).byLabel.get(g.target);
+  for (const g of order) {
+    const at = found.get(g.graph), node = at?.nodes.get(g.target);
     if (!node) continue;
-    const figures = figuresOfLayer(scopeB, node);
-    if (figures) targets.push({ ...g, node, figures });
+    const figures = figuresOfLayer(at!.scope, node);
+    if (figures) targets.push({ graph: g.graph, target: g.target, norms: g.norms, node, figures });
   }
   return { scopes: sb, targets };
 }
@@ -308,11 +356,13 @@ export function quantAfter(start: QuantBefore, after: Model, thresholdDb = QUANT
   // (`afterScopes`: the fold's own scopes of `after`, still current, so its graphs are not indexed again)
   const sb = start.scopes, sa = afterScopes ?? buildScopes(after);
   const index = new Map<Scope, NodeIndex>();
+  const scopes = new Map<string, Scope | undefined>(); // by graph path, looked up once per graph
   const rows: QuantRow[] = [];
   for (const t of start.targets) {
-    const scopeA = scopeFor(sa, sb, t.graph);
+    let scopeA = scopes.get(t.graph);
+    if (scopeA === undefined && !scopes.has(t.graph)) scopes.set(t.graph, scopeA = scopeFor(sa, sb, t.graph));
     if (!scopeA) continue;
-    const na = counterpart(indexOf(scopeA, index, false), t.node);
+    const na = counterpart(indexOf(scopeA, index), t.node);
     if (!na) continue;
     const b = t.figures, a = figuresOfLayer(scopeA, na);
     if (!a) continue;

@@ -9,6 +9,7 @@ import { constantNodeTensor } from './constants.js';
 import { tensorToFloat64 } from './tensor.js';
 import { nodeNeeds, topoOrder } from './topo.js';
 import { nameTable, type NameTable } from './names.js';
+import { keptIds } from './kept-ids.js';
 
 export type Shape = number[];
 
@@ -87,6 +88,14 @@ class GraphNames {
   readonly ids: NameTable;
   readonly init: Array<Tensor | undefined>;
   constructor(g: Graph) {
+    // a graph still exactly as validation numbered it (kept-ids.ts): its names are not hashed again
+    const kept = keptIds(g);
+    if (kept) {
+      this.ids = kept.table;
+      this.init = new Array<Tensor | undefined>(kept.table.size).fill(undefined);
+      for (let i = 0; i < g.initializers.length; i++) this.init[kept.tensorIds[i]!] = g.initializers[i]!;
+      return;
+    }
     let bound = g.initializers.length + g.inputs.length;
     for (const n of g.nodes) bound += n.outputs.length;
     const ids = this.ids = nameTable(Math.max(bound, 1));

@@ -99,17 +99,18 @@ function alignedFloat32(bytes: Uint8Array, n: number): Float32Array {
 }
 
 function readRaw(bytes: Uint8Array, code: DataTypeCode, n: number, out: Float64Array): void {
+  if (code === DataType.FLOAT) {
+    // a misaligned view is copied to an aligned buffer first: one memcpy is far cheaper than a DataView read
+    // per element on a weight of millions
+    const src = (bytes.byteOffset & 3) === 0 ? new Float32Array(bytes.buffer, bytes.byteOffset, n)
+      : n < 64 ? undefined : alignedFloat32(bytes, n);
+    if (src) out.set(src);
+    else { const dv = new DataView(bytes.buffer, bytes.byteOffset, bytes.byteLength); for (let i = 0; i < n; i++) out[i] = dv.getFloat32(i * 4, true); }
+    return;
+  }
+  // (made only here: the float32 case above, nearly every weight, needs no DataView)
   const dv = new DataView(bytes.buffer, bytes.byteOffset, bytes.byteLength);
   switch (code) {
-    case DataType.FLOAT: {
-      // a misaligned view is copied to an aligned buffer first: one memcpy is far cheaper than a DataView read
-      // per element on a weight of millions
-      const src = (bytes.byteOffset & 3) === 0 ? new Float32Array(bytes.buffer, bytes.byteOffset, n)
-        : n < 64 ? undefined : alignedFloat32(bytes, n);
-      if (src) out.set(src);
-      else for (let i = 0; i < n; i++) out[i] = dv.getFloat32(i * 4, true);
-      return;
-    }
     case DataType.DOUBLE: for (let i = 0; i < n; i++) out[i] = dv.getFloat64(i * 8, true); return;
     case DataType.FLOAT16: for (let i = 0; i < n; i++) out[i] = halfBitsToNumber(dv.getUint16(i * 2, true)); return;
     case DataType.BFLOAT16: for (let i = 0; i < n; i++) out[i] = bfloatBitsToNumber(dv.getUint16(i * 2, true)); return;

@@ -21,6 +21,7 @@ import type { Int8Granularity } from '../fold/int8.js';
 import { checkJobNames } from './names.js';
 import { checkOpset } from '../graph/opsets.js';
 import type { ProbeRecord } from '../verify/compare.js';
+import type { Estimate } from '../eval/estimate.js';
 import { checkKit } from './check-kit.js';
 import type { RewrittenNode } from '../fold/types.js';
 import type { Scope } from '../fold/scope.js';
@@ -110,7 +111,7 @@ export const CHECK_ARITHMETIC = 'float64' as const;
  * the rules of compare (verify/status.ts): skipped, never passed, when nothing could be compared.
  */
 export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOptions & { halfGate?: boolean; sqnr?: number; rewritten?: readonly RewrittenKey[]; onProbe?: (p: ProbeRecord) => void;
-  originalRuns?: OriginalRuns }): CheckSummary {
+  originalRuns?: OriginalRuns; estimateOfOriginal?: Estimate }): CheckSummary {
   const seed = opts.seed ?? 0;
   const probes = opts.probes ?? 2;
   const gate = checkGate(opts);
@@ -121,7 +122,7 @@ export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOpt
   const r = checkKit().compare(original, folded, {
     inputs: opts.inputs, shapes, dims, seed, probes, gate, budget: false, watch, onProbe: opts.onProbe, maxProbeMemory: opts.maxProbeMemory, arithmetic: CHECK_ARITHMETIC,
     extraMetrics: opts.sqnr !== undefined ? { sqnr: opts.sqnr } : undefined,
-    outputsOfA: opts.originalRuns,
+    outputsOfA: opts.originalRuns, estimateOfA: opts.estimateOfOriginal,
   });
   return {
     status: r.status,
@@ -205,17 +206,20 @@ export function foldLoaded(model: Model, original: Model | undefined, label: str
   return withProbeMemory(opts.maxProbeMemory, () => foldWithin(model, original, label, opts, lateRangeCheck, ship, onProbe, files));
 }
 
-/** Refuse, before any fold, a whole-model check whose probe would go beyond the probe memory limit. */
-function checkProbeFits(original: Model, opts: FoldJobOptions): void {
+/**
+ * Refuse, before any fold, a whole-model check whose probe would go beyond the probe memory limit. Returns the
+ * estimate of the original model's run, which the check then uses as it is (the original is never edited).
+ */
+function checkProbeFits(original: Model, opts: FoldJobOptions): Estimate | undefined {
   const { dims, shapes } = inputsOf(original, opts);
   let specs;
   try {
     specs = resolveInputs(original.graph, asMap(opts.inputs), shapes, dims);
   } catch (e) {
-    if (e instanceof PleatError) return; // the check itself reports it (or is skipped for it)
+    if (e instanceof PleatError) return undefined; // the check itself reports it (or is skipped for it)
     throw e;
   }
-  checkProbeEstimate(original.graph, specs);
+  return checkProbeEstimate(original.graph, specs);
 }
 
 /** The fold's result without its scopes, which go to `take`. */
@@ -236,7 +240,7 @@ const namesSqnr = (gate: string | undefined) => gate !== undefined && /\bsqnr\b/
 
 function foldWithin(model: Model, original: Model | undefined, label: string, opts: FoldJobOptions, lateRangeCheck: boolean, ship?: (m: Model) => Model,
   onProbe?: (p: ProbeRecord) => void, files?: JobFiles): FoldReport {
-  if (original && !opts.noProofs) checkProbeFits(original, opts);
+  const estimateOfOriginal = original && !opts.noProofs ? checkProbeFits(original, opts) : undefined;
   // the fold's scopes (their indexes answer for the folded model) serve the quantization report, then go
   let foldScopes: Scope[] | undefined;
   const { ledger, rewritten } = keepScopes(foldModel(model, {
@@ -282,7 +286,7 @@ function foldWithin(model: Model, original: Model | undefined, label: string, op
     const shipped = ship ? ship(model) : model;
     beside?.shipped(files!.shipped());
     check = original && !opts.noProofs
-      ? wholeModelCheck(original, shipped, { ...opts, halfGate: storage !== null, sqnr, rewritten: keys, onProbe, originalRuns: files?.originalRuns }) : null;
+      ? wholeModelCheck(original, shipped, { ...opts, halfGate: storage !== null, sqnr, rewritten: keys, onProbe, originalRuns: files?.originalRuns, estimateOfOriginal }) : null;
     // (a thread that failed: the same figures here, from the same written file)
     if (beside) quantization = beside.rows() ?? quantReadiness(original!, shipped, ledger.normalizations, quantThresholdDb);
   } finally {

@@ -10,8 +10,8 @@ import type { Precision, Value } from '../eval/value.js';
 import { runLockstep } from '../eval/lockstep.js';
 import { withGraphsHeldStill } from '../eval/plan.js';
 import { probeMemoryLimit, withProbeMemory } from '../eval/budget.js';
-import { estimateRun } from '../eval/estimate.js';
-import { checkProbeEstimate } from './probe-budget.js';
+import { estimateRun, type Estimate } from '../eval/estimate.js';
+import { checkProbeEstimate, checkProbeShapes } from './probe-budget.js';
 import { PleatError } from '../errors.js';
 import { dataTypeName } from '../graph/tensor.js';
 import { computeMetrics, diffHistogram, worstOf, type DiffHistogram, type Metrics } from './metrics.js';
@@ -71,6 +71,11 @@ export interface CompareOptions extends InputOptions {
    * for bit and no error budget is measured; otherwise A runs here.
    */
   outputsOfA?: RunsElsewhere;
+  /**
+   * The estimate of one run of A on these very inputs, already worked out by the caller (fold refuses a probe
+   * too large before folding, from the same inputs): A's graph is not estimated again.
+   */
+  estimateOfA?: Estimate;
 }
 
 /** Runs of a model done elsewhere, per probe index. */
@@ -288,7 +293,8 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
   const allGiven = specs.every((s) => s.given);
   const probes = allGiven ? 1 : requested;
   const extraLimit = allGiven || !opts.watch ? 0 : opts.extraProbes ?? DEFAULT_EXTRA_PROBES;
-  const estimateA = checkProbeEstimate(a.graph, specs); // before anything runs: sizes, and the values a probe would make
+  // before anything runs: sizes, and the values a probe would make
+  const estimateA = opts.estimateOfA ? (checkProbeShapes(specs), opts.estimateOfA) : checkProbeEstimate(a.graph, specs);
 
   const aOut = a.graph.outputs;
   const bOut = new Map(b.graph.outputs.map((o) => [o.name, o]));

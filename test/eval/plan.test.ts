@@ -12,6 +12,8 @@ import { planOf, withGraphsHeldStill, KEEP_PLAN_MIN_NODES } from '../../src/eval
 import { getKernel } from '../../src/eval/registry.js';
 import { freshFloat32, freshFloat64, takeFloat32, takeFloat64 } from '../../src/eval/pool.js';
 import { tensorToFloat64 } from '../../src/graph/tensor.js';
+import { validateModel } from '../../src/graph/validate.js';
+import { keptIds } from '../../src/graph/kept-ids.js';
 import type { KernelContext, Value } from '../../src/eval/value.js';
 
 const FLOAT = 1;
@@ -95,6 +97,30 @@ describe('runs by slot', () => {
       }
     });
   }
+
+  it('a graph as validation numbered it takes its slots from the kept ids, and runs as the plain interpreter does', () => {
+    const dims = [2, 3];
+    const validated = (seed: number): Graph => {
+      const g = randomGraph(seed, KEEP_PLAN_MIN_NODES + 20, dims);
+      validateModel({ irVersion: 8, opsets: [{ domain: '', version: 17 }], producerName: '', producerVersion: '', domain: '', modelVersion: 0, docString: '', graph: g, metadata: [], extra: [], baseDir: '/' });
+      return g;
+    };
+    for (let seed = 1; seed <= 8; seed++) {
+      const ins = probes(200 + seed, dims);
+      const g = validated(seed);
+      const kept = keptIds(g)!;
+      expect(kept, `seed ${seed}`).toBeDefined();
+      // the plan's slots are validation's ids (its own numbering puts the initializers first, validation's does not)
+      expect(planOf(g).names).toEqual(Array.from({ length: kept.table.size }, (_, i) => kept.table.nameOf(i)));
+      expect(plain(runGraph(g, ins, { precision: 'float64', opsetOf })), `seed ${seed}`).toEqual(plain(plainRun(g, ins)));
+      // edited in place after validation, before any plan: the kept ids no longer fit and the plan numbers the names itself
+      const h = validated(seed);
+      h.nodes[h.nodes.length - 1]!.inputs[0] = 'y';
+      expect(keptIds(h)).toBeUndefined();
+      expect(planOf(h).names[0]).toBe('c0');
+      expect(plain(runGraph(h, ins, { precision: 'float64', opsetOf })), `seed ${seed}, edited`).toEqual(plain(plainRun(h, ins)));
+    }
+  });
 
   it('a kept plan is used only while the graph matches it: edits in place are seen', () => {
     const dims = [2, 3];

@@ -64,4 +64,35 @@ describe('SIMD quantization-readiness figures', () => {
     expect(fast.spread).toBe(ref.spread);
     for (const k of ['tensor', 'channel', 'worstChannel'] as const) expect(close(fast.sqnr[k], ref.sqnr[k]), k).toBe(true);
   });
+
+  // layers whose runs are too short for SIMD take the scalar path that finds ranges and scales in one pass:
+  // the figures must be the definitions' (channelRanges, spreadOf, sqnrOf) exactly, sums in the same order
+  const small: Array<[string, number[], 'conv' | 'rows' | 'columns', number?]> = [
+    ['conv 1x1 of 4 channels, runs of 4', [4, 4, 1, 1], 'conv'],
+    ['conv 3x3 of one input channel, runs of 9', [6, 1, 3, 3], 'conv'],
+    ['MatMul columns', [5, 7], 'columns'],
+    ['Gemm rows of 3', [9, 3], 'rows'],
+    ['double conv', [4, 2, 1, 1], 'conv', DataType.DOUBLE],
+    ['float16 conv', [4, 3, 1, 1], 'conv', DataType.FLOAT16],
+  ];
+  for (const [name, dims, layout, type] of small) {
+    it(`scalar path, exactly the definitions: ${name}`, () => {
+      for (const seed of [1, 2, 3, 4, 5]) {
+        const l = layer(seed, dims, layout, type);
+        expect(layerFigures(l, true)).toEqual(layerFigures(l, false));
+      }
+    });
+  }
+
+  it('scalar path, exactly the definitions: NaN, infinities, a channel of NaN only, -0', () => {
+    const dims = [4, 3, 1, 1];
+    const l = layer(4, dims, 'conv');
+    for (const poison of [[NaN, 1], [Infinity, 7], [-Infinity, 2]] as const) {
+      const w = new Float32Array(12).map((_, i) => Math.cos(i) * (i % 4 === 0 ? -0 : 1));
+      w[poison[1]] = poison[0];
+      w[9] = NaN; w[10] = NaN; w[11] = NaN; // channel 3: no number at all
+      const t = makeTensor('w', dims, DataType.FLOAT, w);
+      expect(layerFigures({ ...l, tensor: t }, true), String(poison[0])).toEqual(layerFigures({ ...l, tensor: t }, false));
+    }
+  });
 });

@@ -54,6 +54,23 @@ describe('inferShapes', () => {
     });
   }
 
+  it('a graph edited in place after it was read gets the shapes of the graph as edited (validation\'s kept name ids are not taken)', () => {
+    for (const seed of [1, 2, 3, 4]) {
+      const { g, values } = build(seed);
+      const graph = parseModel(modelBytes(g, { opset: 13 }), dir).graph;
+      const asRead = inferShapes(graph);
+      // rename the Conv's output in place, in the node and in every reader (same node objects, same arrays)
+      for (const n of graph.nodes) {
+        n.outputs.forEach((o, k) => { if (o === 'conv') n.outputs[k] = 'conv_renamed'; });
+        n.inputs.forEach((v, k) => { if (v === 'conv') n.inputs[k] = 'conv_renamed'; });
+      }
+      const edited = inferShapes(graph);
+      expect(edited.get('conv_renamed'), `seed ${seed}`).toEqual(asRead.get('conv'));
+      expect(edited.get('conv')).toBeUndefined();
+      for (const name of values.filter((v) => v !== 'conv')) expect(edited.get(name), `seed ${seed}: ${name}`).toEqual(asRead.get(name));
+    }
+  });
+
   it('a graph whose nodes are listed out of order gets the same shapes as the sorted graph (one pass in list order only when sorted)', () => {
     for (const seed of [1, 2, 3, 4, 5, 6]) {
       const { g, values } = build(seed);
