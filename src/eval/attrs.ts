@@ -40,7 +40,9 @@ export function badModel(ctx: KernelContext, what: string): PleatError {
 }
 
 /** Integer list attribute with a default, checked for length. */
-export function intsOr(ctx: KernelContext, name: string, dflt: number[], len?: number): number[] {
+export function intsOr(ctx: KernelContext, name: string, dflt: number[], len?: number): number[];
+export function intsOr(ctx: KernelContext, name: string, dflt: undefined, len?: number): number[] | undefined;
+export function intsOr(ctx: KernelContext, name: string, dflt: number[] | undefined, len?: number): number[] | undefined {
   const v = attrInts(ctx.node, name);
   if (v === undefined) return dflt;
   if (len !== undefined && v.length !== len) throw badModel(ctx, `attribute ${name} has ${v.length} values, expected ${len}`);
@@ -64,6 +66,11 @@ export interface Window {
   out: number[];
 }
 
+const ONES = [0, 1, 2, 3].map((r) => Object.freeze(new Array<number>(r).fill(1)));
+const ZEROS = [0, 1, 2, 3, 4, 5, 6].map((r) => Object.freeze(new Array<number>(r).fill(0)));
+const ones = (r: number): number[] => (ONES[r] as number[] | undefined) ?? new Array<number>(r).fill(1);
+const zeros = (r: number): number[] => (ZEROS[r] as number[] | undefined) ?? new Array<number>(r).fill(0);
+
 /**
  * Resolve kernel/strides/dilations/pads/auto_pad into output sizes (ONNX Conv and pooling formulas).
  * `ceil` is the pooling ceil_mode. Pads for SAME_* follow the operator docs: total = max(0, (out-1)*s + dk - in),
@@ -72,9 +79,10 @@ export interface Window {
 export function slidingWindow(ctx: KernelContext, inDims: number[], kernel: number[], ceil = false): Window {
   const r = inDims.length;
   if (kernel.length !== r) throw badModel(ctx, `kernel_shape has ${kernel.length} values for ${r} spatial axes`);
-  const strides = intsOr(ctx, 'strides', new Array(r).fill(1), r);
-  const dilations = intsOr(ctx, 'dilations', new Array(r).fill(1), r);
-  const pads = intsOr(ctx, 'pads', new Array(2 * r).fill(0), 2 * r);
+  // (absent attributes take shared, frozen defaults: this runs once per node per probe)
+  const strides = intsOr(ctx, 'strides', undefined, r) ?? ones(r);
+  const dilations = intsOr(ctx, 'dilations', undefined, r) ?? ones(r);
+  const pads = intsOr(ctx, 'pads', undefined, 2 * r) ?? zeros(2 * r);
   const autoPad = attrString(ctx.node, 'auto_pad', 'NOTSET');
   const padBegin = pads.slice(0, r), padEnd = pads.slice(r);
   const out: number[] = [];
@@ -112,8 +120,13 @@ export function slidingWindow(ctx: KernelContext, inDims: number[], kernel: numb
   return { kernel, strides, dilations, padBegin, padEnd, out };
 }
 
+/** Element i (0 to 2) of a spatial list (1-D/2-D/3-D) padded to three axes with `fill` in front, without the padded copy. */
+export function axis3(v: readonly number[], i: number, fill: number): number {
+  const k = i - (3 - v.length);
+  return k >= 0 ? v[k]! : fill;
+}
+
 /** Pad a spatial list (1-D/2-D/3-D) to three axes by putting size-1 axes in front. */
-export function to3(v: number[], fill: number): [number, number, number] {
-  const a = [...new Array(3 - v.length).fill(fill), ...v];
-  return [a[0]!, a[1]!, a[2]!];
+export function to3(v: readonly number[], fill: number): [number, number, number] {
+  return [axis3(v, 0, fill), axis3(v, 1, fill), axis3(v, 2, fill)];
 }

@@ -4,7 +4,7 @@
 // unpadded kernels where the input already is the column matrix.
 import { checkAllocation } from '../budget.js';
 import { attrInt, attrInts, elementCount } from '../../graph/ir.js';
-import { allocFloat, badModel, need, slidingWindow, to3 } from '../attrs.js';
+import { allocFloat, axis3, badModel, need, slidingWindow } from '../attrs.js';
 import { gemm, memoryViews, rowMajor, simdOn } from '../gemm.js';
 import { simdKernels } from '../wasm-gemm.js';
 import { im2col, im2colTiles, type Geometry3 } from '../im2col.js';
@@ -30,9 +30,15 @@ function colScratch(n: number, like: NumArray): NumArray {
 }
 
 export function geometry3(inSp: number[], outSp: number[], kernel: number[], strides: number[], dilations: number[], padBegin: number[]): Geometry3 {
-  const [inD, inH, inW] = to3(inSp, 1), [outD, outH, outW] = to3(outSp, 1), [kD, kH, kW] = to3(kernel, 1);
-  const [sD, sH, sW] = to3(strides, 1), [dD, dH, dW] = to3(dilations, 1), [pD, pH, pW] = to3(padBegin, 0);
-  return { inD, inH, inW, outD, outH, outW, kD, kH, kW, sD, sH, sW, dD, dH, dW, pD, pH, pW };
+  // (element by element: a padded copy of each list per call was most of what a small convolution allocated)
+  return {
+    inD: axis3(inSp, 0, 1), inH: axis3(inSp, 1, 1), inW: axis3(inSp, 2, 1),
+    outD: axis3(outSp, 0, 1), outH: axis3(outSp, 1, 1), outW: axis3(outSp, 2, 1),
+    kD: axis3(kernel, 0, 1), kH: axis3(kernel, 1, 1), kW: axis3(kernel, 2, 1),
+    sD: axis3(strides, 0, 1), sH: axis3(strides, 1, 1), sW: axis3(strides, 2, 1),
+    dD: axis3(dilations, 0, 1), dH: axis3(dilations, 1, 1), dW: axis3(dilations, 2, 1),
+    pD: axis3(padBegin, 0, 0), pH: axis3(padBegin, 1, 0), pW: axis3(padBegin, 2, 0),
+  };
 }
 
 /** [lo, hi) of output positions o with 0 <= o*s + shift < n. */
