@@ -2,6 +2,7 @@
 // worked out on a worker thread while the fold goes on (the digest is the same either way).
 import { createHash } from 'node:crypto';
 import { closeSync, fstatSync, openSync, readSync, statSync, writeSync } from 'node:fs';
+import { resolve } from 'node:path';
 import { Worker } from 'node:worker_threads';
 import { PleatError } from '../errors.js';
 
@@ -47,8 +48,40 @@ export interface LaterDigest {
   ready(): boolean;
 }
 
+/** What tells a file apart from a later version of it (device, inode, size, change times), or undefined. */
+function identityOf(file: string): string | undefined {
+  try {
+    const s = statSync(file, { bigint: true });
+    return `${s.dev}:${s.ino}:${s.size}:${s.mtimeNs}:${s.ctimeNs}`;
+  } catch {
+    return undefined;
+  }
+}
+
+/** Digests started before the job that needs them (startSha256), by absolute path, with the file's identity then. */
+const ahead = new Map<string, { identity: string; digest: LaterDigest }>();
+
+/**
+ * Start hashing a large file now, before the job that records its digest has loaded its modules or read the
+ * model (the command line calls it right after parsing flags): the hash thread then runs beside that work and
+ * is done by the time the output is written. sha256Later takes the digest over if the file is unchanged.
+ */
+export function startSha256(file: string): void {
+  const key = resolve(file);
+  if (ahead.has(key)) return;
+  const identity = identityOf(file);
+  const digest = sha256Later(file);
+  // a small file is hashed when asked for (nothing runs ahead), and a file that cannot be read is reported then
+  if (identity !== undefined && !digest.ready()) ahead.set(key, { identity, digest });
+}
+
 /** Start hashing a file; the returned function gives the hex digest (waiting for it if it is not done yet). */
 export function sha256Later(file: string): LaterDigest {
+  const key = resolve(file), early = ahead.get(key);
+  if (early) {
+    if (early.identity === identityOf(file)) return early.digest;
+    ahead.delete(key); // the file changed since: that digest is of another version
+  }
   let size = 0;
   try { size = statSync(file).size; } catch { /* the synchronous hash reports it */ }
   let digest: string | undefined;

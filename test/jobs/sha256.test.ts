@@ -5,7 +5,8 @@ import { createHash } from 'node:crypto';
 import { mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { DIGEST_PLACEHOLDER, fileSha256, fillDigest, sha256Later } from '../../src/jobs/sha256.js';
+import { DIGEST_PLACEHOLDER, fileSha256, fillDigest, sha256Later, startSha256 } from '../../src/jobs/sha256.js';
+import { execFileSync } from 'node:child_process';
 import { GraphBuilder, modelBytes, randn, rng, uniform } from '../helpers/build.js';
 import { readModelFile } from '../../src/onnx/read.js';
 import { writeModelFile } from '../../src/onnx/write.js';
@@ -30,6 +31,49 @@ describe('file SHA-256', () => {
       expect(fileSha256(f)).toBe(want);
       rmSync(f);
     }
+  });
+
+  // coreutils' sha256sum, a digest worked out outside Node
+  const sha256sum = (f: string) => execFileSync('sha256sum', [f], { encoding: 'utf8' }).slice(0, 64);
+  const seeded = (size: number, seed: number) => {
+    const bytes = Buffer.alloc(size);
+    for (let i = 0; i < size; i += 4093) bytes[i] = (i * 31 + seed) & 255;
+    return bytes;
+  };
+
+  it('a hash started ahead of the job is the one the job takes, and gives the digest sha256sum gives', () => {
+    for (const [size, seed] of [[70 * 1024 * 1024 + 5, 1], [65 * 1024 * 1024, 2]] as const) {
+      const f = join(dir, `ahead${seed}`);
+      writeFileSync(f, seeded(size, seed));
+      startSha256(f);
+      const later = sha256Later(f);
+      expect(sha256Later(f)).toBe(later); // taken over, not started again
+      expect(later()).toBe(sha256sum(f));
+      rmSync(f);
+    }
+  });
+
+  it('a file changed after its hash was started is hashed again: the digest is of the bytes the job reads', () => {
+    const f = join(dir, 'changed');
+    const size = 66 * 1024 * 1024;
+    writeFileSync(f, seeded(size, 5));
+    startSha256(f);
+    writeFileSync(f, seeded(size, 6)); // the same size: only the times tell the versions apart
+    const later = sha256Later(f);
+    expect(later()).toBe(sha256sum(f));
+    expect(later()).toBe(createHash('sha256').update(seeded(size, 6)).digest('hex'));
+    rmSync(f);
+  });
+
+  it('a small or missing file starts nothing ahead: it is hashed (or reported) when asked for', () => {
+    const small = join(dir, 'small');
+    writeFileSync(small, seeded(5000, 3));
+    startSha256(small);
+    expect(sha256Later(small)()).toBe(sha256sum(small));
+    const missing = join(dir, 'missing-ahead.onnx');
+    startSha256(missing);
+    expect(() => sha256Later(missing)()).toThrow(/missing-ahead\.onnx: cannot read/);
+    rmSync(small);
   });
 
   it('a missing file is a bad-input error naming it', () => {
