@@ -6,7 +6,7 @@ import { tensorToFloat64 } from '../graph/tensor.js';
 import { setTensorValues, touch } from '../graph/edit.js';
 import { deferTransform, ensureLoaded, isOnDisk, peekBytes, scanView } from '../onnx/sparse-read.js';
 import { scaleRawFloat32, scaleWeights, type ChannelMap } from './weights.js';
-import { scaleRunsSimd } from './scale-simd.js';
+import { scaleRunsSimd, simdScratch } from './scale-simd.js';
 
 function rawFloat32(t: Tensor): Uint8Array | undefined {
   if (t.dataType !== DataType.FLOAT) return undefined;
@@ -197,7 +197,7 @@ export function scaleTensor(t: Tensor, map: ChannelMap, scale: Float64Array, inP
       const m = scaleFloat32Block(block, offset / 4, map, scale, true);
       guard?.(m);
     };
-    if (!deferTransform(bytes, 4, change)) {
+    if (!deferTransform(bytes, 4, change, simdScratch)) {
       ensureLoaded(bytes);
       const m = scaleRawFloat32(bytes, map, scale, true); // (not inside guard?.(): that would skip it)
       guard?.(m);
