@@ -66,6 +66,32 @@ describe('scaling float32 weights in SIMD', () => {
     }
   });
 
+  it('gives the same on blocks that do not start on a multiple of four bytes (weights where the file put them)', () => {
+    const r = rng(53);
+    for (let trial = 0; trial < 24; trial++) {
+      // some blocks longer than the 1 MiB aligned chunk they are scaled through, so runs cross its edges too
+      const unit = [64, 999, 4608, 300001][trial % 4]!, runs = 2 + (trial % 3);
+      const of = Int32Array.from({ length: runs }, (_, e) => (e * 5 + 1) % runs);
+      const scale = Float64Array.from(randn(r, runs, 3), (x, c) => (c === 0 && trial % 6 === 0 ? 1e39 : x));
+      const first = Math.floor(r() * unit);
+      const n = Math.min(runs * unit - first, 1 + Math.floor(r() * (runs * unit - first)));
+      const values = Float32Array.from(randn(r, n, 1));
+      if (trial % 4 === 1) { values[Math.floor(r() * n)] = NaN; values[Math.floor(r() * n)] = Infinity; values[Math.floor(r() * n)] = -1e-44; }
+      for (const write of [true, false]) {
+        const shift = 1 + (trial % 3);
+        const held = new Uint8Array(n * 4 + 8).fill(0xa5);
+        const block = held.subarray(shift, shift + n * 4);
+        block.set(new Uint8Array(values.buffer));
+        const want = values.slice();
+        const got = scaleFloat32Block(block, first, { of, unit }, scale, write);
+        const exp = reference(want, first, of, unit, scale, write);
+        expect(Object.is(got, exp) || got === exp, `trial ${trial} write ${write}: ${got} vs ${exp}`).toBe(true);
+        expect(Buffer.from(block).equals(Buffer.from(want.buffer)), `trial ${trial} write ${write}`).toBe(true);
+        expect(held.subarray(0, shift).every((x) => x === 0xa5) && held.subarray(shift + n * 4).every((x) => x === 0xa5)).toBe(true);
+      }
+    }
+  });
+
   it('gives the same on blocks larger than the staging window, runs cut across its edges', () => {
     const r = rng(43);
     for (let trial = 0; trial < 6; trial++) {
