@@ -46,6 +46,8 @@ export interface LaterDigest {
   (): string;
   /** Whether the digest is known, so that calling for it would not wait. */
   ready(): boolean;
+  /** Stop the thread working it out (the digest is not asked for). */
+  stop(): void;
 }
 
 /** What tells a file apart from a later version of it (device, inode, size, change times), or undefined. */
@@ -75,6 +77,12 @@ export function startSha256(file: string): void {
   if (identity !== undefined && !digest.ready()) ahead.set(key, { identity, digest });
 }
 
+/** Drop every digest started ahead (its thread stopped): the run turned out not to need them here. */
+export function stopSha256Ahead(): void {
+  for (const { digest } of ahead.values()) digest.stop();
+  ahead.clear();
+}
+
 /** Start hashing a file; the returned function gives the hex digest (waiting for it if it is not done yet). */
 export function sha256Later(file: string): LaterDigest {
   const key = resolve(file), early = ahead.get(key);
@@ -85,7 +93,7 @@ export function sha256Later(file: string): LaterDigest {
   let size = 0;
   try { size = statSync(file).size; } catch { /* the synchronous hash reports it */ }
   let digest: string | undefined;
-  if (size < BACKGROUND_MIN_BYTES) return Object.assign(() => (digest ??= fileSha256(file)), { ready: () => true });
+  if (size < BACKGROUND_MIN_BYTES) return Object.assign(() => (digest ??= fileSha256(file)), { ready: () => true, stop: () => {} });
   const sab = new SharedArrayBuffer(8 + 64);
   const flag = new Int32Array(sab, 0, 1);
   let worker: Worker | undefined;
@@ -100,7 +108,10 @@ export function sha256Later(file: string): LaterDigest {
     void worker?.terminate();
     return digest;
   };
-  return Object.assign(get, { ready: () => digest !== undefined || Atomics.load(flag, 0) !== 0 });
+  return Object.assign(get, { ready: () => digest !== undefined || Atomics.load(flag, 0) !== 0, stop: () => {
+    void worker?.terminate();
+    Atomics.compareExchange(flag, 0, 0, 2); // a digest asked for after all is then worked out on this thread
+  } });
 }
 
 /**

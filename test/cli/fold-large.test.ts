@@ -40,6 +40,16 @@ describe('pleat fold of a large model', () => {
     expect(readFileSync(join(dir, 'cli.onnx')).equals(readFileSync(join(dir, 'lib.onnx')))).toBe(true);
   }, 120_000);
 
+  it('folds of several large models (a batch: the hash started for the first is dropped) record their own digests', () => {
+    const models = [5, 6].map((seed) => { const p = join(dir, `batch${seed}.onnx`); writeFileSync(p, largeModel(seed)); return p; });
+    const r = pleat(['fold', ...models, '--out-dir', join(dir, 'batch-out'), '--unproven', '--quiet']);
+    expect(r.code).toBe(0);
+    for (const m of models) {
+      const meta = readModelFile(join(dir, 'batch-out', m.split('/').pop()!)).metadata;
+      expect(meta.find(([k]) => k === PROVENANCE_KEYS[1])?.[1]).toBe(sha256sum(m));
+    }
+  }, 120_000);
+
   it('a large input that is no model: one line, exit 2, nothing written, the hash thread does not hold the exit', () => {
     const src = join(dir, 'noise.onnx');
     const bytes = Buffer.alloc(70 * 1024 * 1024, 0xff); // a varint that never ends

@@ -5,7 +5,7 @@ import { createHash } from 'node:crypto';
 import { mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { DIGEST_PLACEHOLDER, fileSha256, fillDigest, sha256Later, startSha256 } from '../../src/jobs/sha256.js';
+import { DIGEST_PLACEHOLDER, fileSha256, fillDigest, sha256Later, startSha256, stopSha256Ahead } from '../../src/jobs/sha256.js';
 import { execFileSync } from 'node:child_process';
 import { GraphBuilder, modelBytes, randn, rng, uniform } from '../helpers/build.js';
 import { readModelFile } from '../../src/onnx/read.js';
@@ -62,6 +62,22 @@ describe('file SHA-256', () => {
     const later = sha256Later(f);
     expect(later()).toBe(sha256sum(f));
     expect(later()).toBe(createHash('sha256').update(seeded(size, 6)).digest('hex'));
+    rmSync(f);
+  });
+
+  it('digests dropped ahead are not taken, and a stopped digest asked for after all is still right', () => {
+    const f = join(dir, 'dropped');
+    writeFileSync(f, seeded(67 * 1024 * 1024, 7));
+    startSha256(f);
+    const early = sha256Later(f);
+    stopSha256Ahead();
+    const later = sha256Later(f);
+    expect(later).not.toBe(early); // started again
+    expect(later()).toBe(sha256sum(f));
+    expect(early()).toBe(sha256sum(f)); // its thread stopped: worked out here instead
+    const stopped = sha256Later(f);
+    stopped.stop();
+    expect(stopped()).toBe(sha256sum(f));
     rmSync(f);
   });
 
