@@ -500,7 +500,9 @@ function tempName(path: string): string {
   return join(dirname(path), `.pleat-${process.pid}-w${tmpCounter++}-${basename(path)}.tmp`);
 }
 
-const STREAM_BLOCK = 8 * 1024 * 1024;
+// 1 MiB: a block read, changed and written stays in the core's cache between the three (8 MiB blocks, leaving
+// it, made the three passes over the 378 MB benchmark model ~190 ms against ~150 ms).
+const STREAM_BLOCK = 1024 * 1024;
 
 /** Write bytes at a file position; parts of a sparsely read model still on disk are streamed from its file. */
 function writeAt(fd: number, bytes: Uint8Array, at: number, scratch: { buf?: Uint8Array }): void {
