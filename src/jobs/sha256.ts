@@ -122,6 +122,7 @@ export const DIGEST_PLACEHOLDER = '?'.repeat(64);
 
 /** How far from the end of a written model its metadata entries are looked for (they follow the graph). */
 const TAIL_BYTES = 1 << 20;
+const TAIL_PIECE = 64 * 1024;
 
 /**
  * Write `digest` over the placeholder of a metadata entry `key` in the last MiB of a written file: the entry's
@@ -138,16 +139,27 @@ export function fillDigest(file: string, key: string, digest: string): boolean {
   try {
     const size = fstatSync(fd).size;
     const start = Math.max(0, size - TAIL_BYTES);
-    const tail = Buffer.allocUnsafe(size - start);
-    for (let n = 0; n < tail.length;) {
-      const got = readSync(fd, tail, n, tail.length - n, start + n);
-      if (got <= 0) return false;
-      n += got;
+    // read through one small buffer, last piece first (a fresh buffer of the whole tail cost more in page faults
+    // than the search); each piece reads on into the next by one byte less than an entry, so an entry across a seam
+    // is whole in the piece where it starts, and in no other
+    const buf = Buffer.allocUnsafe(TAIL_PIECE + entry.length - 1);
+    let at = -1;
+    for (let hi = size; hi > start; hi -= TAIL_PIECE) {
+      const lo = Math.max(start, hi - TAIL_PIECE), end = Math.min(size, hi + entry.length - 1);
+      for (let n = 0; n < end - lo;) {
+        const got = readSync(fd, buf, n, end - lo - n, lo + n);
+        if (got <= 0) return false;
+        n += got;
+      }
+      const piece = buf.subarray(0, end - lo);
+      for (let i = piece.indexOf(entry); i >= 0; i = piece.indexOf(entry, i + 1)) {
+        if (at >= 0) return false; // twice
+        at = lo + i;
+      }
     }
-    const at = tail.indexOf(entry);
-    if (at < 0 || tail.indexOf(entry, at + 1) >= 0) return false;
+    if (at < 0) return false;
     const bytes = Buffer.from(digest, 'latin1');
-    const pos = start + at + entry.length - 64;
+    const pos = at + entry.length - 64;
     for (let w = 0; w < 64;) w += writeSync(fd, bytes, w, 64 - w, pos + w);
     return true;
   } finally {

@@ -115,6 +115,39 @@ describe('file SHA-256', () => {
     rmSync(f);
   });
 
+  it('the placeholder is found wherever it lies in the last MiB (across the seams of the pieces read), once or not at all', () => {
+    const key = 'pleat.source.sha256', digest = 'cd'.repeat(32);
+    const entry = (v: string) => Buffer.concat([Buffer.from([0x0a, 19]), Buffer.from(key), Buffer.from([0x12, 64]), Buffer.from(v)]);
+    const placeholder = entry(DIGEST_PLACEHOLDER);
+    // what the rule says, written out once over the whole tail: exactly one occurrence in the last MiB is filled
+    const expected = (body: Buffer): Buffer | undefined => {
+      const start = Math.max(0, body.length - (1 << 20)), tail = body.subarray(start);
+      const at = tail.indexOf(placeholder);
+      if (at < 0 || tail.indexOf(placeholder, at + 1) >= 0) return undefined;
+      const out = Buffer.from(body);
+      out.write(digest, start + at + placeholder.length - 64, 'latin1');
+      return out;
+    };
+    const r = rng(61);
+    const f = join(dir, 'seams.bin');
+    for (let trial = 0; trial < 40; trial++) {
+      const size = (1 << 20) + Math.floor(r() * (1 << 20)) - (trial % 4 === 0 ? 900_000 : 0);
+      const body = Buffer.alloc(size, 0x3f); // '?' all around, as weights' high bytes often are
+      const places = trial % 5 === 4 ? 2 : trial % 7 === 6 ? 0 : 1;
+      for (let p = 0; p < places; p++) {
+        // near a 64 KiB seam counted from the end, or anywhere in the last ~1.1 MiB
+        const fromEnd = trial % 2 === 0 ? 65536 * (1 + Math.floor(r() * 15)) + Math.floor(r() * 180) - 90 : Math.floor(r() * 1.1 * (1 << 20));
+        const at = Math.max(0, Math.min(size - placeholder.length, size - fromEnd));
+        placeholder.copy(body, at);
+      }
+      writeFileSync(f, body);
+      const want = expected(body);
+      expect(fillDigest(f, key, digest), `trial ${trial}`).toBe(want !== undefined);
+      expect(readFileSync(f).equals(want ?? body), `trial ${trial}`).toBe(true);
+    }
+    rmSync(f);
+  });
+
   it('a fold of a model large enough to be hashed beside the work records the digest node:crypto gives', () => {
     // one 1024-channel 4x4 Conv: 64 MiB of float32 weight, past the size hashed on a worker thread
     const r = rng(3);
