@@ -47,8 +47,9 @@ function commandOf(args: readonly string[]): (typeof COMMANDS)[number] | undefin
 }
 
 async function main(): Promise<void> {
-  const { hideBin } = require('yargs/helpers') as { hideBin(argv: string[]): string[] };
-  const args = expandHelp(hideBin(process.argv));
+  // the arguments after node and the script (what yargs' hideBin gives outside Electron; its module loads all
+  // of yargs, which waits here until the command's early work has started)
+  const args = expandHelp(process.argv.slice(2));
   const chosen = commandOf(args);
   await chosen?.ahead?.(args);
   const yargs = require('yargs') as typeof yargsType;
