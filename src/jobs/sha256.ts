@@ -26,11 +26,14 @@ export function fileSha256(file: string): string {
 /** Files at least this large are hashed on a worker thread (below it, starting the thread costs more than it saves). */
 const BACKGROUND_MIN_BYTES = 64 * 1024 * 1024;
 
-// The worker reads and hashes the file, writes the hex digest after an 8-byte header of the shared buffer and sets
-// the flag (1 done, 2 failed; the caller then hashes on its own thread, which reports the error properly).
+// The worker reads and hashes the file and writes the hex digest after an 8-byte header of the shared buffer. The
+// flag: 0 until the worker's first statement, 3 while it hashes, then 1 (done) or 2 (failed, stopped, or never
+// started: the caller then hashes on its own thread, which reports any error properly).
 const WORKER = `
 const { workerData } = require('node:worker_threads');
 const flag = new Int32Array(workerData.sab, 0, 1);
+Atomics.compareExchange(flag, 0, 0, 3);
+Atomics.notify(flag, 0);
 try {
   const fs = require('node:fs'), h = require('node:crypto').createHash('sha256'), buf = Buffer.allocUnsafe(1 << 20);
   const fd = fs.openSync(workerData.path, 'r');
@@ -83,8 +86,17 @@ export function stopSha256Ahead(): void {
   ahead.clear();
 }
 
-/** Start hashing a file; the returned function gives the hex digest (waiting for it if it is not done yet). */
-export function sha256Later(file: string): LaterDigest {
+/**
+ * How long a worker may take to run its first statement before the digest is worked out here instead: one that
+ * fails to start (its 'error' event cannot arrive while this thread waits) must not leave the job waiting forever.
+ */
+const START_LIMIT_MS = 5000;
+
+/**
+ * Start hashing a file; the returned function gives the hex digest (waiting for it if it is not done yet).
+ * `workerSource` is the worker's code (tests give one that never starts).
+ */
+export function sha256Later(file: string, workerSource = WORKER): LaterDigest {
   const key = resolve(file), early = ahead.get(key);
   if (early) {
     if (early.identity === identityOf(file)) return early.digest;
@@ -97,20 +109,29 @@ export function sha256Later(file: string): LaterDigest {
   const sab = new SharedArrayBuffer(8 + 64);
   const flag = new Int32Array(sab, 0, 1);
   let worker: Worker | undefined;
+  const created = performance.now();
   try {
-    worker = new Worker(WORKER, { eval: true, workerData: { path: file, sab } });
+    worker = new Worker(workerSource, { eval: true, workerData: { path: file, sab } });
     worker.unref();
+    // a worker that fails to start says so here (when this thread is not waiting): hash here, nothing thrown
+    worker.on('error', () => Atomics.compareExchange(flag, 0, 0, 2));
   } catch { Atomics.store(flag, 0, 2); }
   const get = () => {
     if (digest !== undefined) return digest;
-    while (Atomics.load(flag, 0) === 0) Atomics.wait(flag, 0, 0, 1000);
+    for (let s; (s = Atomics.load(flag, 0)) === 0 || s === 3;) {
+      if (s === 0 && performance.now() - created > START_LIMIT_MS) Atomics.compareExchange(flag, 0, 0, 2);
+      else Atomics.wait(flag, 0, s, s === 0 ? 100 : 1000);
+    }
     digest = Atomics.load(flag, 0) === 1 ? Buffer.from(new Uint8Array(sab, 8, 64)).toString('latin1') : fileSha256(file);
     void worker?.terminate();
     return digest;
   };
-  return Object.assign(get, { ready: () => digest !== undefined || Atomics.load(flag, 0) !== 0, stop: () => {
+  const settled = () => { const s = Atomics.load(flag, 0); return s === 1 || s === 2; };
+  return Object.assign(get, { ready: () => digest !== undefined || settled(), stop: () => {
     void worker?.terminate();
-    Atomics.compareExchange(flag, 0, 0, 2); // a digest asked for after all is then worked out on this thread
+    // a digest asked for after all is then worked out on this thread (or taken, if the worker finished first)
+    Atomics.compareExchange(flag, 0, 0, 2);
+    Atomics.compareExchange(flag, 0, 3, 2);
   } });
 }
 

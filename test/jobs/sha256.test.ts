@@ -81,6 +81,21 @@ describe('file SHA-256', () => {
     rmSync(f);
   });
 
+  it('a worker that never starts, or is stopped while hashing, leaves the digest to this thread instead of a wait forever', () => {
+    const f = join(dir, 'nostart');
+    writeFileSync(f, seeded(65 * 1024 * 1024, 9));
+    const want = sha256sum(f);
+    const never = sha256Later(f, 'this is not JavaScript (');
+    expect(never.ready()).toBe(false);
+    expect(never()).toBe(want); // after the start limit (5 s), worked out here
+    const stopped = sha256Later(f);
+    const pause = new Int32Array(new SharedArrayBuffer(4));
+    Atomics.wait(pause, 0, 0, 300); // the worker is hashing by now
+    stopped.stop();
+    expect(stopped()).toBe(want);
+    rmSync(f);
+  }, 60_000);
+
   it('a small or missing file starts nothing ahead: it is hashed (or reported) when asked for', () => {
     const small = join(dir, 'small');
     writeFileSync(small, seeded(5000, 3));
