@@ -13,9 +13,8 @@ import { nearest } from './suggest.js';
 
 // yargs 17 through its CommonJS build: about 35 ms to load here, against 65 ms for its ES module build (which
 // also wraps help text mid-word) and 130 ms for yargs 18 (whose width measuring builds Unicode tables at load).
+// Loaded in main, after the chosen command's early work has started (see CommandEntry.ahead).
 const require = createRequire(import.meta.url);
-const yargs = require('yargs') as typeof yargsType;
-const { hideBin } = require('yargs/helpers') as { hideBin(argv: string[]): string[] };
 
 /** Marks yargs' missing-positional message so the fail handler can name the command's own arguments. */
 const MISSING_ARGUMENT = 'missing argument';
@@ -48,8 +47,12 @@ function commandOf(args: readonly string[]): (typeof COMMANDS)[number] | undefin
 }
 
 async function main(): Promise<void> {
-  const args = expandHelp(hideBin(process.argv));
+  // the arguments after node and the script (what yargs' hideBin gives outside Electron; its module loads all
+  // of yargs, which waits here until the command's early work has started)
+  const args = expandHelp(process.argv.slice(2));
   const chosen = commandOf(args);
+  await chosen?.ahead?.(args);
+  const yargs = require('yargs') as typeof yargsType;
   const cli = yargs(args)
     .scriptName('pleat')
     .usage('pleat <command> [options]\n\nFold inference-mode normalization into neighbouring layers of ONNX models, prove the result, audit what stays.\n`pleat help <command>` (or `pleat <command> -h`) shows a command\'s options.');

@@ -3,6 +3,7 @@ import { mkdirSync } from 'node:fs';
 import { basename, dirname, join, sep } from 'node:path';
 import { PleatError } from '../../src/errors.js';
 import type { FoldJobOptions } from '../../src/jobs/types.js';
+import { startSha256, stopSha256Ahead } from '../../src/jobs/sha256.js';
 import { keepList, loadConfig, nameOrigins, runSettings } from '../config.js';
 import type { Job } from '../batch.js';
 import { checkDestinations, planReports, runAndReport } from '../output.js';
@@ -73,6 +74,11 @@ export async function handler(argv: Flags): Promise<void> {
     equalize: argv.equalize, quantThresholdDb: quantThreshold(argv.quantThreshold), simulateInt8: int8Setting(argv),
   };
   if (argv.saveProbes !== undefined && argv.models.length > 1) throw new PleatError('usage', `--save-probes names one folder but ${argv.models.length} models were given; fold them one at a time`);
+  // One model is folded in this process: its input's digest (recorded in the output) is worked out on a thread
+  // beside the loading of the fold's modules and the reading, started now unless main.ts started it already (see
+  // the table's `ahead`). A batch's jobs hash their inputs on their workers: nothing started here is needed.
+  if (argv.models.length === 1) startSha256(argv.models[0]!);
+  else stopSha256Ahead();
   const sides = outputs.map((o) => join(dirname(o), `${basename(o)}.data`));
   await checkDestinations(plan, {
     inputs: argv.models,

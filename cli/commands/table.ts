@@ -10,6 +10,11 @@ export interface CommandEntry {
   usage: string;
   describe: string;
   load: () => Promise<CommandModule>;
+  /**
+   * Work started from the raw arguments before yargs and the command's module are loaded, for what the command
+   * will surely need; the handler confirms or stops it once the flags are parsed.
+   */
+  ahead?: (args: readonly string[]) => Promise<void>;
 }
 
 export const COMMANDS: readonly CommandEntry[] = [
@@ -22,6 +27,12 @@ export const COMMANDS: readonly CommandEntry[] = [
     name: 'fold', usage: 'fold <models..>',
     describe: 'Fold every normalization it safely can, prove each fold, write the folded model, print the ledger',
     load: () => import('./fold.js') as Promise<CommandModule>,
+    // the word right after `fold`, when it is no option, is its first model (no option before it can have taken
+    // it as its value): the input's digest, recorded in the output, starts on a thread now
+    ahead: async (args) => {
+      const first = args[1];
+      if (first !== undefined && !first.startsWith('-')) (await import('../../src/jobs/sha256.js')).startSha256(first);
+    },
   },
   {
     name: 'audit', usage: 'audit <models..>',

@@ -62,6 +62,22 @@ const OUT = 0, DATA = 64;
 /** Elements staged in the kernel's memory at a time: a window that stays in cache between copy-in, scaling and copy-out. */
 const WINDOW = 1 << 15;
 
+/** Where simdScratch's buffer starts: past the staging window. */
+const SCRATCH = DATA + WINDOW * 4;
+
+/**
+ * A buffer of `bytes` bytes inside the kernel's memory (undefined without SIMD): a float32 block streamed through
+ * it is scaled where it lies, with no copy into the kernel's memory and back. Valid until the next call (growing
+ * the memory detaches views of the old one), so it suits one reused buffer, such as the writer's stream buffer.
+ */
+export function simdScratch(bytes: number): Uint8Array | undefined {
+  const k = kernel();
+  if (!k) return undefined;
+  const need = SCRATCH + bytes;
+  if (k.memory.buffer.byteLength < need) k.memory.grow(Math.ceil((need - k.memory.buffer.byteLength) / 65536));
+  return new Uint8Array(k.memory.buffer, SCRATCH, bytes);
+}
+
 /**
  * Scale (or only measure) runs of a float32 block in SIMD: `runs` gives each run's first element and length
  * within the block and its factor. Returns the largest |product| (NaN when some product is NaN), or undefined when
@@ -71,6 +87,7 @@ const WINDOW = 1 << 15;
 export function scaleRunsSimd(block: Float32Array, runs: (visit: (start: number, length: number, s: number) => void) => void, write: boolean): number | undefined {
   const k = kernel();
   if (!k) return undefined;
+  if (block.buffer === k.memory.buffer && block.byteOffset >= SCRATCH) return scaleInPlace(k, block, runs, write);
   const window = Math.min(WINDOW, block.length);
   const need = DATA + window * 4;
   if (k.memory.buffer.byteLength < need) k.memory.grow(Math.ceil((need - k.memory.buffer.byteLength) / 65536));
@@ -105,5 +122,28 @@ export function scaleRunsSimd(block: Float32Array, runs: (visit: (start: number,
     for (let p = start; p < start + length; p += window) part(p, Math.min(window, start + length - p), s);
   });
   flush();
+  return nan ? NaN : max;
+}
+
+/** scaleRunsSimd for a block in simdScratch's buffer: the kernel works on it where it lies. */
+function scaleInPlace(k: Kernel, block: Float32Array, runs: (visit: (start: number, length: number, s: number) => void) => void, write: boolean): number {
+  let max = 0, nan = false;
+  const res = new Float64Array(k.memory.buffer, OUT, 4);
+  runs((start, length, s) => {
+    const groups = length >> 2;
+    if (groups > 0) {
+      k.scale(block.byteOffset + start * 4, groups, s, write ? 1 : 0, OUT);
+      if (res[0]! > max) max = res[0]!;
+      if (res[1]! > max) max = res[1]!;
+      if (res[2] !== 0 || res[3] !== 0) nan = true; // (the mask lanes are all-ones bit patterns: a NaN double)
+    }
+    for (let j = start + groups * 4; j < start + length; j++) {
+      const r = block[j]! * s;
+      if (write) block[j] = r;
+      const m = Math.abs(r);
+      if (m > max) max = m;
+      else if (m !== m) nan = true;
+    }
+  });
   return nan ? NaN : max;
 }

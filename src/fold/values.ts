@@ -6,7 +6,7 @@ import { tensorToFloat64 } from '../graph/tensor.js';
 import { setTensorValues, touch } from '../graph/edit.js';
 import { deferTransform, ensureLoaded, isOnDisk, peekBytes, scanView } from '../onnx/sparse-read.js';
 import { scaleRawFloat32, scaleWeights, type ChannelMap } from './weights.js';
-import { scaleRunsSimd } from './scale-simd.js';
+import { scaleRunsSimd, simdScratch } from './scale-simd.js';
 
 function rawFloat32(t: Tensor): Uint8Array | undefined {
   if (t.dataType !== DataType.FLOAT) return undefined;
@@ -139,6 +139,7 @@ export function scaleFloat32Block(block: Uint8Array, first: number, map: Channel
     }
     return nan ? NaN : max;
   }
+  if (unit >= 64) return scaleUnaligned(block, first, map, scale, write);
   const dv = new DataView(block.buffer, block.byteOffset, block.byteLength);
   for (let j = 0; j < n;) {
     const e = Math.floor((first + j) / unit);
@@ -151,6 +152,30 @@ export function scaleFloat32Block(block: Uint8Array, first: number, map: Channel
       else if (m !== m) nan = true;
       if (write) dv.setFloat32(j * 4, r, true);
     }
+  }
+  return nan ? NaN : max;
+}
+
+/** Bytes of an unaligned block scaled at a time through an aligned copy. */
+const ALIGNED_CHUNK = 1 << 20;
+let alignedChunk: Uint8Array | undefined;
+
+/**
+ * scaleFloat32Block for a block that does not start on a multiple of four bytes (the part of a weight read with
+ * its message header lies where the file put it): chunk by chunk through an aligned copy, so the SIMD kernel
+ * scales it too (each product stands alone: the same bytes and the same largest |product| as in place).
+ */
+function scaleUnaligned(block: Uint8Array, first: number, map: ChannelMap, scale: Float64Array, write: boolean): number {
+  alignedChunk ??= new Uint8Array(ALIGNED_CHUNK);
+  let max = 0, nan = false;
+  for (let at = 0; at < block.byteLength; at += ALIGNED_CHUNK) {
+    const part = block.subarray(at, Math.min(block.byteLength, at + ALIGNED_CHUNK));
+    const copy = alignedChunk.subarray(0, part.byteLength);
+    copy.set(part);
+    const m = scaleFloat32Block(copy, first + at / 4, map, scale, write);
+    if (write) part.set(copy);
+    if (m !== m) nan = true;
+    else if (m > max) max = m;
   }
   return nan ? NaN : max;
 }
@@ -197,7 +222,7 @@ export function scaleTensor(t: Tensor, map: ChannelMap, scale: Float64Array, inP
       const m = scaleFloat32Block(block, offset / 4, map, scale, true);
       guard?.(m);
     };
-    if (!deferTransform(bytes, 4, change)) {
+    if (!deferTransform(bytes, 4, change, simdScratch)) {
       ensureLoaded(bytes);
       const m = scaleRawFloat32(bytes, map, scale, true); // (not inside guard?.(): that would skip it)
       guard?.(m);

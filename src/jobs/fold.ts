@@ -365,6 +365,9 @@ function foldStagedIn(tx: OutputSet, input: string, output: string, opts: FoldJo
 }
 
 function foldStagedOnce(tx: OutputSet, input: string, output: string, opts: FoldJobOptions, lateRangeCheck: boolean): Omit<StagedFold, 'staged'> {
+  // the input's digest goes into the written model: for a large file it is worked out on a thread beside the
+  // reading and the fold (or was started before, see startSha256), and waited for only when the model is staged
+  const sha256 = sha256Later(input);
   const model = readModelFile(input);
   const inputs = [model.sourcePath!, ...sideFilePaths(model)];
   inputs.forEach((p, i) => tx.protect(p, i === 0 ? 'input model' : `input model's side file`));
@@ -378,7 +381,6 @@ function foldStagedOnce(tx: OutputSet, input: string, output: string, opts: Fold
   // A second, untouched copy is the reference for the whole-model check and the quantization report.
   const original = opts.noProofs ? undefined : readModelFile(input);
   const gate = checkGate({ ...opts, halfGate: opts.store === 'float16' });
-  const sha256 = sha256Later(input); // worked out beside the fold for a large file; needed when the model is staged
   let staged: StagedModel | undefined;
   const stage = (m: Model, status: string) => {
     // A digest still being worked out is not waited for: the file is written with a placeholder of its length,

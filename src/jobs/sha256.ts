@@ -2,6 +2,7 @@
 // worked out on a worker thread while the fold goes on (the digest is the same either way).
 import { createHash } from 'node:crypto';
 import { closeSync, fstatSync, openSync, readSync, statSync, writeSync } from 'node:fs';
+import { resolve } from 'node:path';
 import { Worker } from 'node:worker_threads';
 import { PleatError } from '../errors.js';
 
@@ -25,11 +26,14 @@ export function fileSha256(file: string): string {
 /** Files at least this large are hashed on a worker thread (below it, starting the thread costs more than it saves). */
 const BACKGROUND_MIN_BYTES = 64 * 1024 * 1024;
 
-// The worker reads and hashes the file, writes the hex digest after an 8-byte header of the shared buffer and sets
-// the flag (1 done, 2 failed; the caller then hashes on its own thread, which reports the error properly).
+// The worker reads and hashes the file and writes the hex digest after an 8-byte header of the shared buffer. The
+// flag: 0 until the worker's first statement, 3 while it hashes, then 1 (done) or 2 (failed, stopped, or never
+// started: the caller then hashes on its own thread, which reports any error properly).
 const WORKER = `
 const { workerData } = require('node:worker_threads');
 const flag = new Int32Array(workerData.sab, 0, 1);
+Atomics.compareExchange(flag, 0, 0, 3);
+Atomics.notify(flag, 0);
 try {
   const fs = require('node:fs'), h = require('node:crypto').createHash('sha256'), buf = Buffer.allocUnsafe(1 << 20);
   const fd = fs.openSync(workerData.path, 'r');
@@ -45,29 +49,90 @@ export interface LaterDigest {
   (): string;
   /** Whether the digest is known, so that calling for it would not wait. */
   ready(): boolean;
+  /** Stop the thread working it out (the digest is not asked for). */
+  stop(): void;
 }
 
-/** Start hashing a file; the returned function gives the hex digest (waiting for it if it is not done yet). */
-export function sha256Later(file: string): LaterDigest {
+/** What tells a file apart from a later version of it (device, inode, size, change times), or undefined. */
+function identityOf(file: string): string | undefined {
+  try {
+    const s = statSync(file, { bigint: true });
+    return `${s.dev}:${s.ino}:${s.size}:${s.mtimeNs}:${s.ctimeNs}`;
+  } catch {
+    return undefined;
+  }
+}
+
+/** Digests started before the job that needs them (startSha256), by absolute path, with the file's identity then. */
+const ahead = new Map<string, { identity: string; digest: LaterDigest }>();
+
+/**
+ * Start hashing a large file now, before the job that records its digest has loaded its modules or read the
+ * model (the command line calls it right after parsing flags): the hash thread then runs beside that work and
+ * is done by the time the output is written. sha256Later takes the digest over if the file is unchanged.
+ */
+export function startSha256(file: string): void {
+  const key = resolve(file);
+  if (ahead.has(key)) return;
+  const identity = identityOf(file);
+  const digest = sha256Later(file);
+  // a small file is hashed when asked for (nothing runs ahead), and a file that cannot be read is reported then
+  if (identity !== undefined && !digest.ready()) ahead.set(key, { identity, digest });
+}
+
+/** Drop every digest started ahead (its thread stopped): the run turned out not to need them here. */
+export function stopSha256Ahead(): void {
+  for (const { digest } of ahead.values()) digest.stop();
+  ahead.clear();
+}
+
+/**
+ * How long a worker may take to run its first statement before the digest is worked out here instead: one that
+ * fails to start (its 'error' event cannot arrive while this thread waits) must not leave the job waiting forever.
+ */
+const START_LIMIT_MS = 5000;
+
+/**
+ * Start hashing a file; the returned function gives the hex digest (waiting for it if it is not done yet).
+ * `workerSource` is the worker's code (tests give one that never starts).
+ */
+export function sha256Later(file: string, workerSource = WORKER): LaterDigest {
+  const key = resolve(file), early = ahead.get(key);
+  if (early) {
+    if (early.identity === identityOf(file)) return early.digest;
+    ahead.delete(key); // the file changed since: that digest is of another version
+  }
   let size = 0;
   try { size = statSync(file).size; } catch { /* the synchronous hash reports it */ }
   let digest: string | undefined;
-  if (size < BACKGROUND_MIN_BYTES) return Object.assign(() => (digest ??= fileSha256(file)), { ready: () => true });
+  if (size < BACKGROUND_MIN_BYTES) return Object.assign(() => (digest ??= fileSha256(file)), { ready: () => true, stop: () => {} });
   const sab = new SharedArrayBuffer(8 + 64);
   const flag = new Int32Array(sab, 0, 1);
   let worker: Worker | undefined;
+  const created = performance.now();
   try {
-    worker = new Worker(WORKER, { eval: true, workerData: { path: file, sab } });
+    worker = new Worker(workerSource, { eval: true, workerData: { path: file, sab } });
     worker.unref();
+    // a worker that fails to start says so here (when this thread is not waiting): hash here, nothing thrown
+    worker.on('error', () => Atomics.compareExchange(flag, 0, 0, 2));
   } catch { Atomics.store(flag, 0, 2); }
   const get = () => {
     if (digest !== undefined) return digest;
-    while (Atomics.load(flag, 0) === 0) Atomics.wait(flag, 0, 0, 1000);
+    for (let s; (s = Atomics.load(flag, 0)) === 0 || s === 3;) {
+      if (s === 0 && performance.now() - created > START_LIMIT_MS) Atomics.compareExchange(flag, 0, 0, 2);
+      else Atomics.wait(flag, 0, s, s === 0 ? 100 : 1000);
+    }
     digest = Atomics.load(flag, 0) === 1 ? Buffer.from(new Uint8Array(sab, 8, 64)).toString('latin1') : fileSha256(file);
     void worker?.terminate();
     return digest;
   };
-  return Object.assign(get, { ready: () => digest !== undefined || Atomics.load(flag, 0) !== 0 });
+  const settled = () => { const s = Atomics.load(flag, 0); return s === 1 || s === 2; };
+  return Object.assign(get, { ready: () => digest !== undefined || settled(), stop: () => {
+    void worker?.terminate();
+    // a digest asked for after all is then worked out on this thread (or taken, if the worker finished first)
+    Atomics.compareExchange(flag, 0, 0, 2);
+    Atomics.compareExchange(flag, 0, 3, 2);
+  } });
 }
 
 /**
@@ -78,6 +143,7 @@ export const DIGEST_PLACEHOLDER = '?'.repeat(64);
 
 /** How far from the end of a written model its metadata entries are looked for (they follow the graph). */
 const TAIL_BYTES = 1 << 20;
+const TAIL_PIECE = 64 * 1024;
 
 /**
  * Write `digest` over the placeholder of a metadata entry `key` in the last MiB of a written file: the entry's
@@ -94,16 +160,27 @@ export function fillDigest(file: string, key: string, digest: string): boolean {
   try {
     const size = fstatSync(fd).size;
     const start = Math.max(0, size - TAIL_BYTES);
-    const tail = Buffer.allocUnsafe(size - start);
-    for (let n = 0; n < tail.length;) {
-      const got = readSync(fd, tail, n, tail.length - n, start + n);
-      if (got <= 0) return false;
-      n += got;
+    // read through one small buffer, last piece first (a fresh buffer of the whole tail cost more in page faults
+    // than the search); each piece reads on into the next by one byte less than an entry, so an entry across a seam
+    // is whole in the piece where it starts, and in no other
+    const buf = Buffer.allocUnsafe(TAIL_PIECE + entry.length - 1);
+    let at = -1;
+    for (let hi = size; hi > start; hi -= TAIL_PIECE) {
+      const lo = Math.max(start, hi - TAIL_PIECE), end = Math.min(size, hi + entry.length - 1);
+      for (let n = 0; n < end - lo;) {
+        const got = readSync(fd, buf, n, end - lo - n, lo + n);
+        if (got <= 0) return false;
+        n += got;
+      }
+      const piece = buf.subarray(0, end - lo);
+      for (let i = piece.indexOf(entry); i >= 0; i = piece.indexOf(entry, i + 1)) {
+        if (at >= 0) return false; // twice
+        at = lo + i;
+      }
     }
-    const at = tail.indexOf(entry);
-    if (at < 0 || tail.indexOf(entry, at + 1) >= 0) return false;
+    if (at < 0) return false;
     const bytes = Buffer.from(digest, 'latin1');
-    const pos = start + at + entry.length - 64;
+    const pos = at + entry.length - 64;
     for (let w = 0; w < 64;) w += writeSync(fd, bytes, w, 64 - w, pos + w);
     return true;
   } finally {

@@ -53,7 +53,13 @@ export interface LazySource {
  */
 export type BlockTransform = (block: Uint8Array, offsetInView: number) => void;
 
-interface Deferred { start: number; end: number; viewStart: number; fn: BlockTransform }
+/**
+ * A buffer of `bytes` bytes the change works fastest on (e.g. one inside its SIMD kernel's memory), valid until
+ * asked again; undefined for none. The writer streams the change's blocks through it (any buffer gives the same bytes).
+ */
+export type BlockBuffer = (bytes: number) => Uint8Array | undefined;
+
+interface Deferred { start: number; end: number; viewStart: number; fn: BlockTransform; buffer?: BlockBuffer }
 
 const sources = new WeakMap<ArrayBufferLike, LazySource>();
 
@@ -178,7 +184,7 @@ export function markLoaded(view: Uint8Array): void {
  * on disk when it is read (the writer streams it through a small buffer, so a large weight never has to sit in
  * memory). Returns false when the view is not backed by a sparsely read file (then change it in memory).
  */
-export function deferTransform(view: Uint8Array, elementSize: number, fn: BlockTransform): boolean {
+export function deferTransform(view: Uint8Array, elementSize: number, fn: BlockTransform, buffer?: BlockBuffer): boolean {
   const src = sources.get(view.buffer);
   if (!src) return false;
   const a = view.byteOffset - src.byteOffset, b = a + view.byteLength;
@@ -191,7 +197,7 @@ export function deferTransform(view: Uint8Array, elementSize: number, fn: BlockT
   if (aligned > tail) { loadRange(src, tail, Math.min(aligned, b)); tail = Math.min(aligned, b); }
   const whole = new Uint8Array(src.buffer, src.byteOffset, src.size);
   if (tail > a) fn(whole.subarray(a, tail), 0);
-  if (tail < b) src.deferred.push({ start: tail, end: b, viewStart: a, fn });
+  if (tail < b) src.deferred.push({ start: tail, end: b, viewStart: a, fn, buffer });
   return true;
 }
 
@@ -232,9 +238,9 @@ export function scanView(view: Uint8Array, elementSize: number, fn: (block: Uint
 }
 
 /** Deferred changes overlapping [start, end) of the buffer, sorted by start. */
-export function deferredIn(src: LazySource, start: number, end: number): Array<{ start: number; end: number; apply(block: Uint8Array, at: number): void }> {
+export function deferredIn(src: LazySource, start: number, end: number): Array<{ start: number; end: number; apply(block: Uint8Array, at: number): void; buffer?: BlockBuffer }> {
   return src.deferred.filter((d) => d.end > start && d.start < end).sort((x, y) => x.start - y.start)
-    .map((d) => ({ start: d.start, end: d.end, apply: (block: Uint8Array, at: number) => d.fn(block, at - d.viewStart) }));
+    .map((d) => ({ start: d.start, end: d.end, apply: (block: Uint8Array, at: number) => d.fn(block, at - d.viewStart), buffer: d.buffer }));
 }
 
 /** Read file bytes [filePos, filePos + (end - start)) into buf[start, end) (filePos defaults to start). */

@@ -5,6 +5,7 @@
 // four, NaN, infinities, subnormals and products past the float32 range.
 import { describe, expect, it } from 'vitest';
 import { scaleFloat32Block } from '../../src/fold/values.js';
+import { simdScratch } from '../../src/fold/scale-simd.js';
 import { randn, rng } from '../helpers/build.js';
 
 function reference(f: Float32Array, first: number, of: Int32Array, unit: number, scale: Float64Array, write: boolean): number {
@@ -36,6 +37,57 @@ describe('scaling float32 weights in SIMD', () => {
         const exp = reference(want, first, of, unit, scale, write);
         expect(Object.is(got, exp) || got === exp, `trial ${trial} write ${write}: ${got} vs ${exp}`).toBe(true);
         expect(Buffer.from(mine.buffer).equals(Buffer.from(want.buffer)), `trial ${trial} write ${write}`).toBe(true);
+      }
+    }
+  });
+
+  it('gives the same on blocks lying in the kernel\'s own memory (scaled where they lie, as the writer streams them)', () => {
+    const r = rng(47);
+    for (let trial = 0; trial < 30; trial++) {
+      const unit = [64, 4099, 40000, 70001][trial % 4]! + Math.floor(r() * 50), runs = 2 + Math.floor(r() * 4);
+      const of = Int32Array.from({ length: runs }, (_, e) => (e * 3) % runs);
+      const scale = Float64Array.from(randn(r, runs, 3), (x, c) => (c === 1 && trial % 7 === 0 ? 1e39 : x));
+      const first = Math.floor(r() * unit);
+      const n = Math.min(runs * unit - first, 1 + Math.floor(r() * (runs * unit - first)));
+      const values = Float32Array.from(randn(r, n, 1));
+      if (trial % 3 === 0) { values[Math.floor(r() * n)] = NaN; values[Math.floor(r() * n)] = -Infinity; values[Math.floor(r() * n)] = 1e-44; }
+      for (const write of [true, false]) {
+        const buf = simdScratch(n * 4 + 16);
+        expect(buf).toBeDefined(); // Node 20 runs WebAssembly SIMD
+        const at = 4 * Math.floor(r() * 4); // the block need not start the buffer
+        const block = buf!.subarray(at, at + n * 4);
+        new Float32Array(block.buffer, block.byteOffset, n).set(values);
+        const want = values.slice();
+        const got = scaleFloat32Block(block, first, { of, unit }, scale, write);
+        const exp = reference(want, first, of, unit, scale, write);
+        expect(Object.is(got, exp) || got === exp, `trial ${trial} write ${write}: ${got} vs ${exp}`).toBe(true);
+        expect(Buffer.from(block).equals(Buffer.from(want.buffer)), `trial ${trial} write ${write}`).toBe(true);
+      }
+    }
+  });
+
+  it('gives the same on blocks that do not start on a multiple of four bytes (weights where the file put them)', () => {
+    const r = rng(53);
+    for (let trial = 0; trial < 24; trial++) {
+      // some blocks longer than the 1 MiB aligned chunk they are scaled through, so runs cross its edges too
+      const unit = [64, 999, 4608, 300001][trial % 4]!, runs = 2 + (trial % 3);
+      const of = Int32Array.from({ length: runs }, (_, e) => (e * 5 + 1) % runs);
+      const scale = Float64Array.from(randn(r, runs, 3), (x, c) => (c === 0 && trial % 6 === 0 ? 1e39 : x));
+      const first = Math.floor(r() * unit);
+      const n = Math.min(runs * unit - first, 1 + Math.floor(r() * (runs * unit - first)));
+      const values = Float32Array.from(randn(r, n, 1));
+      if (trial % 4 === 1) { values[Math.floor(r() * n)] = NaN; values[Math.floor(r() * n)] = Infinity; values[Math.floor(r() * n)] = -1e-44; }
+      for (const write of [true, false]) {
+        const shift = 1 + (trial % 3);
+        const held = new Uint8Array(n * 4 + 8).fill(0xa5);
+        const block = held.subarray(shift, shift + n * 4);
+        block.set(new Uint8Array(values.buffer));
+        const want = values.slice();
+        const got = scaleFloat32Block(block, first, { of, unit }, scale, write);
+        const exp = reference(want, first, of, unit, scale, write);
+        expect(Object.is(got, exp) || got === exp, `trial ${trial} write ${write}: ${got} vs ${exp}`).toBe(true);
+        expect(Buffer.from(block).equals(Buffer.from(want.buffer)), `trial ${trial} write ${write}`).toBe(true);
+        expect(held.subarray(0, shift).every((x) => x === 0xa5) && held.subarray(shift + n * 4).every((x) => x === 0xa5)).toBe(true);
       }
     }
   });

@@ -11,7 +11,7 @@ import { readModelFile } from '../../src/onnx/read.js';
 import { serializeModel, writeModelFile } from '../../src/onnx/write.js';
 import { foldModel } from '../../src/fold/index.js';
 import { tensorToFloat64 } from '../../src/graph/tensor.js';
-import { lazySourceOf } from '../../src/onnx/sparse-read.js';
+import { ensureLoaded, lazySourceOf } from '../../src/onnx/sparse-read.js';
 import { foldFile, foldLoaded } from '../../src/jobs/fold.js';
 import '../../src/jobs/with-checks.js'; // proven folds need the check modules loaded (src/jobs/check-kit.ts)
 import { LateRangeCheckFailed } from '../../src/fold/values.js';
@@ -61,6 +61,21 @@ describe('folding weights that are still on disk', () => {
     expect(source.deferred.length).toBe(2); // both scalings wait for the writer
     writeModelFile(m, join(dir, 'out.onnx'));
     await agrees(src, readFileSync(join(dir, 'out.onnx')));
+  });
+
+  it('streams a deferred scaling through the kernel\'s memory to the bytes of the scaling done in memory', () => {
+    for (const seed of [11, 12]) {
+      const dir = mkdtempSync(join(tmpdir(), 'pleat-stream-mem-'));
+      const src = bigModel(dir, { seed });
+      const streamed = readModelFile(src);
+      foldModel(streamed);
+      writeModelFile(streamed, join(dir, 'streamed.onnx'));
+      const inMemory = readModelFile(src);
+      for (const t of inMemory.graph.initializers) ensureLoaded((t.storage as { bytes: Uint8Array }).bytes); // every weight read before the fold
+      foldModel(inMemory);
+      expect(lazySourceOf((inMemory.graph.initializers.find((t) => t.name === 'w0')!.storage as { bytes: Uint8Array }).bytes)?.pending ?? []).toEqual([]);
+      expect(readFileSync(join(dir, 'streamed.onnx')).equals(Buffer.from(serializeModel(inMemory)))).toBe(true);
+    }
   });
 
   it('applies a deferred scaling when the weight is read before writing, exactly once', async () => {
