@@ -92,7 +92,7 @@ export function scaleRunsSimd(block: Float32Array, runs: (visit: (start: number,
   const need = DATA + window * 4;
   if (k.memory.buffer.byteLength < need) k.memory.grow(Math.ceil((need - k.memory.buffer.byteLength) / 65536));
   const mem = new Float32Array(k.memory.buffer, DATA, window);
-  let max = 0, nan = false;
+  const acc = { max: 0, nan: false };
   const res = new Float64Array(k.memory.buffer, OUT, 4);
   // the window now staged: block elements [w0, w0 + window)
   let w0 = -1, w1 = -1;
@@ -103,47 +103,40 @@ export function scaleRunsSimd(block: Float32Array, runs: (visit: (start: number,
       w0 = start; w1 = Math.min(block.length, start + window);
       mem.set(block.subarray(w0, w1));
     }
-    const at = start - w0, groups = length >> 2;
-    if (groups > 0) {
-      k.scale(DATA + at * 4, groups, s, write ? 1 : 0, OUT);
-      if (res[0]! > max) max = res[0]!;
-      if (res[1]! > max) max = res[1]!;
-      if (res[2] !== 0 || res[3] !== 0) nan = true; // (the mask lanes are all-ones bit patterns: a NaN double)
-    }
-    for (let j = at + groups * 4; j < at + length; j++) {
-      const r = mem[j]! * s;
-      if (write) mem[j] = r;
-      const m = Math.abs(r);
-      if (m > max) max = m;
-      else if (m !== m) nan = true;
-    }
+    scaleRun(k, res, mem, start - w0, length, s, write, acc);
   };
   runs((start, length, s) => {
     for (let p = start; p < start + length; p += window) part(p, Math.min(window, start + length - p), s);
   });
   flush();
-  return nan ? NaN : max;
+  return acc.nan ? NaN : acc.max;
+}
+
+/**
+ * One run of `length` elements of `arr` (a view of the kernel's memory) from element `at`, times s: groups of four
+ * in SIMD, the rest here. The largest |product| and whether one was NaN go into `acc`.
+ */
+function scaleRun(k: Kernel, res: Float64Array, arr: Float32Array, at: number, length: number, s: number, write: boolean, acc: { max: number; nan: boolean }): void {
+  const groups = length >> 2;
+  if (groups > 0) {
+    k.scale(arr.byteOffset + at * 4, groups, s, write ? 1 : 0, OUT);
+    if (res[0]! > acc.max) acc.max = res[0]!;
+    if (res[1]! > acc.max) acc.max = res[1]!;
+    if (res[2] !== 0 || res[3] !== 0) acc.nan = true; // (the mask lanes are all-ones bit patterns: a NaN double)
+  }
+  for (let j = at + groups * 4; j < at + length; j++) {
+    const r = arr[j]! * s;
+    if (write) arr[j] = r;
+    const m = Math.abs(r);
+    if (m > acc.max) acc.max = m;
+    else if (m !== m) acc.nan = true;
+  }
 }
 
 /** scaleRunsSimd for a block in simdScratch's buffer: the kernel works on it where it lies. */
 function scaleInPlace(k: Kernel, block: Float32Array, runs: (visit: (start: number, length: number, s: number) => void) => void, write: boolean): number {
-  let max = 0, nan = false;
+  const acc = { max: 0, nan: false };
   const res = new Float64Array(k.memory.buffer, OUT, 4);
-  runs((start, length, s) => {
-    const groups = length >> 2;
-    if (groups > 0) {
-      k.scale(block.byteOffset + start * 4, groups, s, write ? 1 : 0, OUT);
-      if (res[0]! > max) max = res[0]!;
-      if (res[1]! > max) max = res[1]!;
-      if (res[2] !== 0 || res[3] !== 0) nan = true; // (the mask lanes are all-ones bit patterns: a NaN double)
-    }
-    for (let j = start + groups * 4; j < start + length; j++) {
-      const r = block[j]! * s;
-      if (write) block[j] = r;
-      const m = Math.abs(r);
-      if (m > max) max = m;
-      else if (m !== m) nan = true;
-    }
-  });
-  return nan ? NaN : max;
+  runs((start, length, s) => scaleRun(k, res, block, start, length, s, write, acc));
+  return acc.nan ? NaN : acc.max;
 }
