@@ -126,18 +126,25 @@ const SMALL_SLOTS = 24;
  * original model and the written one read back, in a check). Undefined when there are none, or when a body reads a
  * name the kept table does not hold.
  */
-function keptSlots(g: Graph): { names: string[]; slot: (name: string) => number; slotOf: SlotLookup; inStart: Int32Array; inSlot: Int32Array; outStart: Int32Array; outSlot: Int32Array } | undefined {
+function keptSlots(g: Graph): { names: string[]; slot: (name: string) => number; slotOf: SlotLookup; inStart: Int32Array; inSlot: Int32Array; outStart: Int32Array; outSlot: Int32Array; bodyReads: Map<number, string[]> } | undefined {
   const k = keptIds(g);
   if (!k) return undefined;
   const table = k.table, count = table.size;
   const id = (name: string): number => { const s = typeof name === 'string' ? table.id(name) : -1; return s < count ? s : -1; };
-  for (const node of g.nodes) if (hasBody(node) && bodyReadsOf(node).some((x) => id(x) < 0)) return undefined;
+  // what each body reads from here, worked out once (build takes it from here)
+  const bodyReads = new Map<number, string[]>();
+  for (let i = 0; i < g.nodes.length; i++) {
+    if (!hasBody(g.nodes[i]!)) continue;
+    const reads = bodyReadsOf(g.nodes[i]!);
+    if (reads.some((x) => id(x) < 0)) return undefined;
+    bodyReads.set(i, reads);
+  }
   for (const o of g.outputs) if (id(o.name) < 0) return undefined;
   const names = new Array<string>(count);
   for (let s = 0; s < count; s++) names[s] = table.nameOf(s);
   return {
     names, slot: id, slotOf: { get: (name) => { const s = id(name); return s < 0 ? undefined : s; } },
-    inStart: k.readStart, inSlot: k.readIds, outStart: k.outStart, outSlot: k.outIds,
+    inStart: k.readStart, inSlot: k.readIds, outStart: k.outStart, outSlot: k.outIds, bodyReads,
   };
 }
 
@@ -167,7 +174,7 @@ function build(g: Graph): Plan {
       for (const x of node.outputs) outSlot[po++] = x === '' ? -1 : slot(x);
     }
     if (hasBody(node)) {
-      const reads = bodyReadsOf(node);
+      const reads = kept?.bodyReads.get(i) ?? bodyReadsOf(node);
       withBodies.push(i);
       bodyReads.push(reads);
       extraReads[i] = reads.map(slot);
