@@ -120,7 +120,10 @@ function figuresOfLayer(scope: Scope, n: Node): LayerFigures | undefined {
   return l ? layerFigures(l) : undefined;
 }
 
-/** Spread and SQNR figures of a layer's weights: in SIMD where it applies, else the scalar definitions. */
+/**
+ * Spread and SQNR figures of a layer's weights: in SIMD where it applies, else in scalar passes that give the
+ * definitions' figures exactly; `simd` false computes the definitions one figure at a time.
+ */
 export function layerFigures(l: LayerShape, simd = true): LayerFigures {
   if (!simd) {
     // the definitions, one figure at a time (what the faster paths below are tested against)
