@@ -11,7 +11,7 @@ import { runLockstep } from '../eval/lockstep.js';
 import { withGraphsHeldStill } from '../eval/plan.js';
 import { probeMemoryLimit, withProbeMemory } from '../eval/budget.js';
 import { estimateRun, type Estimate } from '../eval/estimate.js';
-import { checkProbeEstimate, checkProbeShapes } from './probe-budget.js';
+import { checkEstimateFits, checkProbeEstimate, checkProbeShapes } from './probe-budget.js';
 import { PleatError } from '../errors.js';
 import { dataTypeName } from '../graph/tensor.js';
 import { computeMetrics, diffHistogram, worstOf, type DiffHistogram, type Metrics } from './metrics.js';
@@ -294,7 +294,8 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
   const probes = allGiven ? 1 : requested;
   const extraLimit = allGiven || !opts.watch ? 0 : opts.extraProbes ?? DEFAULT_EXTRA_PROBES;
   // before anything runs: sizes, and the values a probe would make
-  const estimateA = opts.estimateOfA ? (checkProbeShapes(specs), opts.estimateOfA) : checkProbeEstimate(a.graph, specs);
+  // (a given estimate is held to the limit in force here, as one worked out here would be)
+  const estimateA = opts.estimateOfA ? (checkProbeShapes(specs), checkEstimateFits(opts.estimateOfA)) : checkProbeEstimate(a.graph, specs);
 
   const aOut = a.graph.outputs;
   const bOut = new Map(b.graph.outputs.map((o) => [o.name, o]));

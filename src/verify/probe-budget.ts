@@ -35,7 +35,11 @@ export function checkProbeShapes(specs: readonly InputSpec[]): void {
  */
 export function checkProbeEstimate(graph: Graph, specs: readonly InputSpec[]): Estimate {
   checkProbeShapes(specs);
-  const e = estimateRun(graph, new Map(specs.map((s) => [s.name, s.given ? s.given.dims : s.dims])));
+  return checkEstimateFits(estimateRun(graph, new Map(specs.map((s) => [s.name, s.given ? s.given.dims : s.dims]))));
+}
+
+/** Refuse an estimate (worked out here or given) beyond the probe memory limit now in force; returns it. */
+export function checkEstimateFits(e: Estimate): Estimate {
   const limit = probeMemoryLimit();
   if (e.totalBytes > limit) {
     const big = e.largest ? ` (the largest, node '${e.largest.node}', makes [${e.largest.dims.join(',')}])` : '';

@@ -12,6 +12,8 @@ import { runOrt } from '../helpers/ort.js';
 import * as ort from 'onnxruntime-node';
 import { parseModel } from '../../src/onnx/read.js';
 import { compare } from '../../src/verify/compare.js';
+import { resolveInputs } from '../../src/verify/inputs.js';
+import { checkProbeEstimate } from '../../src/verify/probe-budget.js';
 import { toJsonText } from '../../src/report/json.js';
 import { evaluate, safeFileNames, saveOutputs } from '../../src/verify/evaluate.js';
 import { readNpy } from '../../src/verify/npy.js';
@@ -62,6 +64,20 @@ function folded(p: Params, perturb = 0) {
 
 describe('compare', () => {
   const p = params();
+
+  it("an estimate of A given by the caller is held to the probe memory limit in force, as one worked out here is", () => {
+    const a = convBn(p), b = folded(p);
+    // the estimate fold works out before folding (src/jobs/fold.ts), here under the default limit
+    const specs = resolveInputs(a.graph, new Map(), new Map(), new Map([['batch', 2]]));
+    const estimate = checkProbeEstimate(a.graph, specs);
+    const limit = Math.floor(estimate.totalBytes / 2);
+    const own = () => compare(a, b, { dims: { batch: 2 }, maxProbeMemory: limit, budget: false });
+    const given = () => compare(a, b, { dims: { batch: 2 }, maxProbeMemory: limit, budget: false, estimateOfA: estimate });
+    expect(own).toThrow(/a probe of this model would make values/);
+    expect(given).toThrow(/a probe of this model would make values/);
+    // within the limit, the given estimate changes nothing in the report
+    expect(compare(a, b, { dims: { batch: 2 }, budget: false, estimateOfA: estimate })).toEqual(compare(a, b, { dims: { batch: 2 }, budget: false }));
+  });
 
   it('a model against itself passes with zero error', () => {
     const a = convBn(p);
