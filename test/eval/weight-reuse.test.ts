@@ -2,7 +2,7 @@
 // through to its result (Reshape and the other shape-only kernels) lives on in that result, so
 // its buffer must not be handed to the next weight of the same size; and the matrix kernel's packed copy of a
 // reused buffer must be forgotten. Checked against the weights themselves and against onnxruntime-node.
-import { describe, expect, it } from 'vitest';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { runModel } from '../../src/eval/run.js';
 import { runLockstep } from '../../src/eval/lockstep.js';
 import { parseModel } from '../../src/onnx/read.js';
@@ -12,6 +12,7 @@ import { readModelFile } from '../../src/onnx/read.js';
 import { mkdtempSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
+import { readWholeUpTo } from '../../src/onnx/sparse-read.js';
 
 const S = 300;
 /** Positions where two arrays differ (a count, so a failure prints one number, not 90,000). */
@@ -30,6 +31,11 @@ function model(seed: number): { bytes: Uint8Array; w1: number[]; w2: number[]; w
   g.node('MatMul', [m3, W2], {}, { outputs: ['y'] }); // W2 again, after W3 took a reused buffer
   return { bytes: modelBytes(g, { opset: 13 }), w1, w2, w3 };
 }
+
+// The models here are small; they are read sparsely, as files over the whole-read size are (sparse-read.ts).
+let wholeUpTo = 0;
+beforeAll(() => { wholeUpTo = readWholeUpTo(0); });
+afterAll(() => { readWholeUpTo(wholeUpTo); });
 
 describe('reused weight buffers', () => {
   for (const seed of [1, 2]) {

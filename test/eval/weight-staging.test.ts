@@ -3,7 +3,7 @@
 // clobber it while it is alive, and a product that finds another weight there must copy its own in. Checked bit
 // for bit against the same models with every weight in memory (never staged), run alone and in lockstep with
 // several probes, with depthwise and grouped convolutions and a second Conv in between, over seeded shapes.
-import { afterAll, describe, expect, it } from 'vitest';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { mkdtempSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
@@ -15,6 +15,7 @@ import { stagedProducts } from '../../src/eval/gemm.js';
 import { setThreads, stopThreads } from '../../src/eval/threads.js';
 import { availableParallelism } from 'node:os';
 import type { Value } from '../../src/eval/value.js';
+import { readWholeUpTo } from '../../src/onnx/sparse-read.js';
 
 afterAll(async () => { setThreads(Math.max(1, availableParallelism())); await stopThreads(); });
 
@@ -38,6 +39,11 @@ function model(seed: number): Uint8Array {
   g.node('Conv', [d, w3], { pads: [1, 1, 1, 1] }, { name: 'conv3', outputs: ['y'] });
   return modelBytes(g);
 }
+
+// The models here are small; they are read sparsely, as files over the whole-read size are (sparse-read.ts).
+let wholeUpTo = 0;
+beforeAll(() => { wholeUpTo = readWholeUpTo(0); });
+afterAll(() => { readWholeUpTo(wholeUpTo); });
 
 describe('Conv weights read straight into the kernel memory', () => {
   const dir = mkdtempSync(join(tmpdir(), 'pleat-staging-'));

@@ -2,7 +2,7 @@
 // where it lies, as an unproven fold does. So proven and unproven folds of a model write identical bytes, and a
 // proven fold keeps no folded weight in memory: weights still on disk stay pending (src/onnx/sparse-read.ts).
 // The written model is checked against the original in onnxruntime-node (graph optimizations disabled).
-import { describe, expect, it } from 'vitest';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
@@ -12,7 +12,7 @@ import { readModelFile } from '../../src/onnx/read.js';
 import { serializeModel } from '../../src/onnx/write.js';
 import { foldFile, foldLoaded } from '../../src/jobs/fold.js';
 import '../../src/jobs/with-checks.js'; // proven folds need the check modules loaded (src/jobs/check-kit.ts)
-import { isOnDisk } from '../../src/onnx/sparse-read.js';
+import { readWholeUpTo, isOnDisk } from '../../src/onnx/sparse-read.js';
 
 function convBnModel(dir: string, seed: number, channels: number): string {
   const r = rng(seed);
@@ -30,6 +30,11 @@ function convBnModel(dir: string, seed: number, channels: number): string {
   writeFileSync(path, modelBytes(g));
   return path;
 }
+
+// The models here are small; they are read sparsely, as files over the whole-read size are (sparse-read.ts).
+let wholeUpTo = 0;
+beforeAll(() => { wholeUpTo = readWholeUpTo(0); });
+afterAll(() => { readWholeUpTo(wholeUpTo); });
 
 describe('proven folds scale weights where they lie', () => {
   const dir = mkdtempSync(join(tmpdir(), 'pleat-proven-'));

@@ -1,7 +1,7 @@
 // Folding a model whose large weights are still on disk (sparse reading): the channel scaling is deferred and
 // applied as the writer streams the weights out, or when something reads them first. Either way the written
 // model must compute what the original does (onnxruntime-node, graph optimizations disabled).
-import { describe, expect, it } from 'vitest';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { mkdtempSync, readdirSync, readFileSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
@@ -11,7 +11,7 @@ import { readModelFile } from '../../src/onnx/read.js';
 import { serializeModel, writeModelFile } from '../../src/onnx/write.js';
 import { foldModel } from '../../src/fold/index.js';
 import { tensorToFloat64 } from '../../src/graph/tensor.js';
-import { ensureLoaded, lazySourceOf } from '../../src/onnx/sparse-read.js';
+import { readWholeUpTo, ensureLoaded, lazySourceOf } from '../../src/onnx/sparse-read.js';
 import { foldFile, foldLoaded } from '../../src/jobs/fold.js';
 import '../../src/jobs/with-checks.js'; // proven folds need the check modules loaded (src/jobs/check-kit.ts)
 import { LateRangeCheckFailed } from '../../src/fold/values.js';
@@ -47,6 +47,11 @@ async function agrees(original: string, folded: Uint8Array): Promise<void> {
   const d = maxDiff(b.y!.data, a.y!.data);
   expect(d.maxAbs).toBeLessThanOrEqual(1e-4 * d.scale);
 }
+
+// The models here are small; they are read sparsely, as files over the whole-read size are (sparse-read.ts).
+let wholeUpTo = 0;
+beforeAll(() => { wholeUpTo = readWholeUpTo(0); });
+afterAll(() => { readWholeUpTo(wholeUpTo); });
 
 describe('folding weights that are still on disk', () => {
   it('defers the scaling to the writer and writes a model that agrees with the original', async () => {

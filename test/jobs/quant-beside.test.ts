@@ -3,7 +3,7 @@
 // main thread gives from the model in memory (quantReadiness, src/fold/quant.ts), write the same bytes, and stay
 // on the main thread where the figures are needed first (a gate naming sqnr) or differ from the written weights
 // (--store float16). Small models here: the thread is switched on for them through setQuantBesideMinBytes.
-import { afterEach, describe, expect, it } from 'vitest';
+import { afterAll, afterEach, beforeAll, describe, expect, it } from 'vitest';
 import { mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
@@ -11,6 +11,7 @@ import { GraphBuilder, modelBytes, randn, rng, uniform, f } from '../helpers/bui
 import { foldFile } from '../../src/jobs/fold.js';
 import '../../src/jobs/with-checks.js'; // proven folds need the check modules loaded (src/jobs/check-kit.ts)
 import { quantThreadsAnswered, quantThreadsStarted, setQuantBesideMinBytes } from '../../src/jobs/quant-beside.js';
+import { readWholeUpTo } from '../../src/onnx/sparse-read.js';
 
 const DEFAULT_MIN = 64 * 1024 * 1024;
 
@@ -32,6 +33,11 @@ function convBnModel(dir: string, seed: number, channels: number, named = true):
   writeFileSync(path, modelBytes(g));
   return path;
 }
+
+// The models here are small; they are read sparsely, as files over the whole-read size are (sparse-read.ts).
+let wholeUpTo = 0;
+beforeAll(() => { wholeUpTo = readWholeUpTo(0); });
+afterAll(() => { readWholeUpTo(wholeUpTo); });
 
 describe('the quantization report on its own thread', () => {
   const dir = mkdtempSync(join(tmpdir(), 'pleat-quant-beside-'));

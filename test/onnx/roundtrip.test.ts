@@ -1,12 +1,13 @@
 // Lossless I/O: a model written with no change is byte-identical; a changed one keeps every untouched
 // message byte for byte, including fields the bundled schema does not know.
-import { describe, expect, it } from 'vitest';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { existsSync, mkdtempSync, readFileSync, writeFileSync, mkdirSync, utimesSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import onnxProto from 'onnx-proto';
 import { GraphBuilder, modelBytes, T, f, randn, rng, tensor } from '../helpers/build.js';
 import { parseModel, readModelFile } from '../../src/onnx/read.js';
+import { readWholeUpTo } from '../../src/onnx/sparse-read.js';
 import { serializeModel, writeModelFile } from '../../src/onnx/write.js';
 import { setTensorValues } from '../../src/graph/edit.js';
 import { tensorToFloat64 } from '../../src/graph/tensor.js';
@@ -38,6 +39,11 @@ function withUnknownField(bytes: Uint8Array): Uint8Array {
   const extra = [0x9a, 0x06, 0x03, 0x61, 0x62, 0x63]; // tag (99<<3|2) as varint 0x9a 0x06, len 3, "abc"
   return new Uint8Array([...bytes, ...extra]);
 }
+
+// The models here are small; they are read sparsely, as files over the whole-read size are (sparse-read.ts).
+let wholeUpTo = 0;
+beforeAll(() => { wholeUpTo = readWholeUpTo(0); });
+afterAll(() => { readWholeUpTo(wholeUpTo); });
 
 describe('lossless model I/O', () => {
   for (const form of ['raw', 'typed'] as const) {
