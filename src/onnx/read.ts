@@ -414,6 +414,11 @@ function markOverridable(graphs: readonly Graph[], irVersion: number): void {
   if (irVersion < 4) return; // before IR 4 every initializer had to be listed as an input too: none is a default
   for (const g of graphs) {
     if (g.inputs.length === 0 || g.initializers.length === 0) continue;
+    if (g.inputs.length <= 8) {
+      // a few inputs (the usual case) are compared directly: a set hashed each of 10^5 initializer names
+      for (const t of g.initializers) for (const v of g.inputs) if (v.name === t.name) { t.overridable = true; break; }
+      continue;
+    }
     const inputs = new Set(g.inputs.map((v) => v.name));
     for (const t of g.initializers) if (inputs.has(t.name)) t.overridable = true;
   }

@@ -279,6 +279,27 @@ describe('overridable initializers', () => {
     walk(m.graph);
     expect(marks).toEqual([['trip', false], ['cond', false], ['k', true], ['u', false], ['k', true], ['u', false]]);
   });
+
+  it('marks exactly the initializers listed as inputs, with few inputs or many (seeded)', () => {
+    const r = rng(17);
+    for (const inputs of [1, 3, 8, 9, 20]) {
+      const g = new GraphBuilder();
+      const want: Array<[string, boolean]> = [];
+      let h = 'x0';
+      g.input('x0', [2]).output('y', [2]);
+      for (let k = 0; k < 30; k++) {
+        const name = `w${k}`;
+        const listed = want.filter(([, o]) => o).length < inputs - 1 && r() < 0.5;
+        if (listed) g.input(name, [2]);
+        g.init(name, [2], [k, k + 1]);
+        want.push([name, listed]);
+        h = g.node('Add', [h, name], {}, { outputs: [k === 29 ? 'y' : `a${k}`] });
+      }
+      const m = parseModel(modelBytes(g), '/x');
+      expect(m.graph.inputs.length).toBeLessThanOrEqual(inputs);
+      expect(m.graph.initializers.map((t) => [t.name, t.overridable ?? false])).toEqual(want);
+    }
+  });
 });
 
 describe('a source file that changes while in use', () => {
