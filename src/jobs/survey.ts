@@ -101,6 +101,9 @@ export function surveyModel(model: Model, file: string | null = null, missingDat
   // graph inputs that an initializer gives a default: the initializers against a set of the inputs (older exports
   // list every weight as a graph input too, and a search per input grew with their product)
   const inputNames = new Set(model.graph.inputs.map((v) => v.name));
+  // (with a few inputs, the usual case, each initializer is compared with them directly: the set hashed each name)
+  const fewInputs = model.graph.inputs.length <= 8 ? model.graph.inputs.map((v) => v.name) : undefined;
+  const isInput = (name: string): boolean => fewInputs ? fewInputs.includes(name) : inputNames.has(name);
   const initialized = new Set<string>();
   // One walk over every tensor (a graph of 10^5 nodes holds some 10^5 tensors: each pass over them shows)
   const walk = (g: Graph) => {
@@ -110,7 +113,7 @@ export function surveyModel(model: Model, file: string | null = null, missingDat
       const bytes = declaredBytes(t);
       initBytes += bytes;
       if (storageKind(t) === 'external') external += bytes;
-      if (main && inputNames.has(t.name)) initialized.add(t.name);
+      if (main && isInput(t.name)) initialized.add(t.name);
     }
     for (const n of g.nodes) {
       nodeCount++;
