@@ -162,7 +162,39 @@ export function readString(buf: Uint8Array, f: WireField): string {
 }
 
 function decodeRange(buf: Uint8Array, start: number, end: number): string {
+  if (end - start <= 12) {
+    const ascii = shortAscii(buf, start, end);
+    if (ascii !== undefined) return ascii;
+  }
   return utf8Slice ? utf8Slice.call(buf, start, end) : utf8d.decode(buf.subarray(start, end));
+}
+
+const fromCodes = String.fromCharCode;
+
+/**
+ * A short ASCII name made in JavaScript: the native decoder costs a call into C++ each (some 600 instructions
+ * before the first byte), and a graph of 10^5 nodes decodes several hundred thousand names of a few characters.
+ */
+function shortAscii(b: Uint8Array, s: number, end: number): string | undefined {
+  let or = 0;
+  for (let i = s; i < end; i++) or |= b[i]!;
+  if (or >= 0x80) return undefined;
+  switch (end - s) {
+    case 0: return '';
+    case 1: return fromCodes(b[s]!);
+    case 2: return fromCodes(b[s]!, b[s + 1]!);
+    case 3: return fromCodes(b[s]!, b[s + 1]!, b[s + 2]!);
+    case 4: return fromCodes(b[s]!, b[s + 1]!, b[s + 2]!, b[s + 3]!);
+    case 5: return fromCodes(b[s]!, b[s + 1]!, b[s + 2]!, b[s + 3]!, b[s + 4]!);
+    case 6: return fromCodes(b[s]!, b[s + 1]!, b[s + 2]!, b[s + 3]!, b[s + 4]!, b[s + 5]!);
+    case 7: return fromCodes(b[s]!, b[s + 1]!, b[s + 2]!, b[s + 3]!, b[s + 4]!, b[s + 5]!, b[s + 6]!);
+    case 8: return fromCodes(b[s]!, b[s + 1]!, b[s + 2]!, b[s + 3]!, b[s + 4]!, b[s + 5]!, b[s + 6]!, b[s + 7]!);
+    case 9: return fromCodes(b[s]!, b[s + 1]!, b[s + 2]!, b[s + 3]!, b[s + 4]!, b[s + 5]!, b[s + 6]!, b[s + 7]!, b[s + 8]!);
+    case 10: return fromCodes(b[s]!, b[s + 1]!, b[s + 2]!, b[s + 3]!, b[s + 4]!, b[s + 5]!, b[s + 6]!, b[s + 7]!, b[s + 8]!, b[s + 9]!);
+    case 11: return fromCodes(b[s]!, b[s + 1]!, b[s + 2]!, b[s + 3]!, b[s + 4]!, b[s + 5]!, b[s + 6]!, b[s + 7]!, b[s + 8]!, b[s + 9]!, b[s + 10]!);
+    case 12: return fromCodes(b[s]!, b[s + 1]!, b[s + 2]!, b[s + 3]!, b[s + 4]!, b[s + 5]!, b[s + 6]!, b[s + 7]!, b[s + 8]!, b[s + 9]!, b[s + 10]!, b[s + 11]!);
+    default: return undefined;
+  }
 }
 
 /** Slots of the name cache: small enough to stay in the processor's cache (a big table missed it on every look-up). */

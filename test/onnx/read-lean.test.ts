@@ -210,4 +210,20 @@ describe('lean reader', () => {
       expect(cache.name(s, e)).toBe(plain.decode(buf.subarray(s, e)));
     }
   });
+
+  it('decodes names of every length as UTF-8 does: ASCII, multi-byte and invalid sequences (seeded)', () => {
+    // short ASCII names are made in JavaScript, the rest by the native decoder: both must give what
+    // TextDecoder gives (invalid sequences become U+FFFD)
+    const r = rng(12);
+    const pools = [[0x30, 0x39, 0x5f, 0x61, 0x7a, 0x2f], [0x61, 0x7f, 0x00, 0x41], [0x61, 0xc3, 0xa9, 0xe2, 0x82, 0xac, 0x80, 0xff]];
+    const plain = new TextDecoder();
+    for (let k = 0; k < 4000; k++) {
+      const pool = pools[k % pools.length]!;
+      const len = Math.floor(r() * 20);
+      const buf = new Uint8Array(len + 6);
+      for (let i = 0; i < buf.length; i++) buf[i] = pool[Math.floor(r() * pool.length)]!;
+      const cache = new NameCache(buf);
+      expect(cache.name(3, 3 + len)).toBe(plain.decode(buf.subarray(3, 3 + len)));
+    }
+  });
 });
