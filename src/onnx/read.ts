@@ -416,7 +416,11 @@ function markOverridable(graphs: readonly Graph[], irVersion: number): void {
     if (g.inputs.length === 0 || g.initializers.length === 0) continue;
     if (g.inputs.length <= 8) {
       // a few inputs (the usual case) are compared directly: a set hashed each of 10^5 initializer names
-      for (const t of g.initializers) for (const v of g.inputs) if (v.name === t.name) { t.overridable = true; break; }
+      const inits = g.initializers, inputs = g.inputs;
+      for (let i = 0; i < inits.length; i++) {
+        const t = inits[i]!;
+        for (let k = 0; k < inputs.length; k++) if (inputs[k]!.name === t.name) { t.overridable = true; break; }
+      }
       continue;
     }
     const inputs = new Set(g.inputs.map((v) => v.name));
