@@ -191,8 +191,21 @@ function layerNormKept(s: Summary): Summary {
   return keptSummary('runtime-statistics', `statistics come from each input and always stay; its learned scale and shift have nowhere to move: ${why}`);
 }
 
-/** Every normalization of one graph with its verdict, in node order. */
-export function* assessScope(ctx: FoldContext, scope: Scope, cache: StepCache): Generator<{ node: Node; op: string; kind: EntryKind; summary: Summary }> {
+/**
+ * A finding: the node, then its summary's fields in the summary's own order (the JSON report prints them in that
+ * order), then the graph. A foldable summary always has summarize's order and is written out field by field (a
+ * spread between other fields copies property by property, and audit makes one finding per norm); a kept one
+ * may have keptSummary's order and is spread.
+ */
+function findingOf(node: string, op: string, kind: EntryKind, s: Summary, graph: string): Finding {
+  if (s.status === 'foldable') {
+    return { node, op, kind, status: s.status, direction: s.direction, target: s.target, targets: s.targets, reason: s.reason, hint: s.hint, effect: s.effect, cloneBytes: s.cloneBytes, graph };
+  }
+  return { node, op, kind, ...s, graph };
+}
+
+/** Every normalization of one graph with its verdict, in node order, added to `out`. */
+function assessScope(ctx: FoldContext, scope: Scope, cache: StepCache, out: Finding[]): void {
   const runs = new Map<Node, Summary | undefined>();
   const runSummary = (s: AffineStep): Summary | undefined => {
     if (!runs.has(s.node)) {
@@ -204,12 +217,13 @@ export function* assessScope(ctx: FoldContext, scope: Scope, cache: StepCache): 
     }
     return runs.get(s.node);
   };
+  const add = (n: Node, op: string, kind: EntryKind, summary: Summary) => { out.push(findingOf(label(scope, n), op, kind, summary, scope.path)); };
   for (const n of scope.graph.nodes) {
     const s = stepOf(ctx, scope, cache, n);
     if (s === undefined) {
       const rt = runtimeNorm(scope, n);
       if (!rt) continue;
-      yield { node: n, op: rt.op, kind: 'normalization', summary: writtenOutSummary(ctx, scope, cache, n, runSummary) ?? keptSummary('runtime-statistics', rt.hint) };
+      add(n, rt.op, 'normalization', writtenOutSummary(ctx, scope, cache, n, runSummary) ?? keptSummary('runtime-statistics', rt.hint));
       continue;
     }
     const kind = entryKind(scope, n);
@@ -218,7 +232,7 @@ export function* assessScope(ctx: FoldContext, scope: Scope, cache: StepCache): 
       const beside = n.inputs.some((i) => { const p = i ? scope.ud.producer(i) : undefined; return p !== undefined && isLinear(p); })
         || scope.ud.consumers(n.outputs[0] ?? '').some(isLinear);
       if (kind === 'normalization' && (isBatchNorm(n) || isLayerNorm(n) || beside || s.reason === 'kept-by-user' || s.reason === 'proof-failed')) {
-        yield { node: n, op: n.opType, kind, summary: keptSummary(s.reason, s.hint) };
+        add(n, n.opType, kind, keptSummary(s.reason, s.hint));
       }
       continue;
     }
@@ -227,7 +241,7 @@ export function* assessScope(ctx: FoldContext, scope: Scope, cache: StepCache): 
     if (s.kind === 'layer-norm') summary = summary.status === 'kept' ? layerNormKept(summary) : { ...summary, effect: layerNormHint(summary.targets) };
     // Other constant affine steps are never listed as kept (they are listed when folded, as "also folded").
     if (kind === 'affine-step' && summary.status === 'kept') continue;
-    yield { node: n, op: n.opType, kind, summary };
+    add(n, n.opType, kind, summary);
   }
 }
 
@@ -247,9 +261,7 @@ function writtenOutSummary(ctx: FoldContext, scope: Scope, cache: StepCache, n: 
 /** `scopes`: the fold driver's own (current, derived caches forgotten), else built here. */
 export function findingsOf(ctx: FoldContext, model: Model, scopes = buildScopes(model, ctx.labels, ctx.options.inputShapes)): Finding[] {
   const out: Finding[] = [];
-  for (const scope of scopes) {
-    for (const f of assessScope(ctx, scope, new Map())) out.push({ node: label(scope, f.node), op: f.op, kind: f.kind, ...f.summary, graph: scope.path });
-  }
+  for (const scope of scopes) assessScope(ctx, scope, new Map(), out);
   return out;
 }
 
