@@ -3,11 +3,13 @@
 // (with the views made to read them) were a good part of what an audit of a wide graph left to the collector.
 import { DataType, elementCount, rawBytesOf, type Tensor } from '../graph/ir.js';
 import { tensorToFloat64 } from '../graph/tensor.js';
-import { peekBytes } from '../onnx/sparse-read.js';
+import { DEFER_MIN, peekBytes } from '../onnx/sparse-read.js';
 
 const slots: Float64Array[] = [];
 
-// Raw float32 data sits at any offset of the file's buffer: it is copied here (one memcpy) to be read aligned.
+// Raw float32 data sits at any offset of the file's buffer: it is copied here to be read aligned, up to
+// SMALL_BYTES by hand (TypedArray set's checks cost more than copying a norm's few channels).
+const SMALL_BYTES = 256;
 let aligned = new Float32Array(64);
 let alignedBytes = new Uint8Array(aligned.buffer);
 
@@ -23,12 +25,14 @@ export function vectorInSlot(t: Tensor, slot: number): Float64Array {
   if (out === undefined || out.length !== n) slots[slot] = out = new Float64Array(n);
   const raw = t.dataType === DataType.FLOAT && littleEndian ? rawBytesOf(t) : undefined;
   if (raw === undefined || raw.byteLength !== n * 4) return tensorToFloat64(t, out);
-  const bytes = peekBytes(raw); // (bytes still on disk are read for this use, not kept)
+  // Bytes still on disk are read for this use, not kept; a payload under DEFER_MIN never is (nothing to ask).
+  const bytes = raw.byteLength < DEFER_MIN ? raw : peekBytes(raw);
   if (alignedBytes.byteLength < bytes.byteLength) {
     aligned = new Float32Array(n);
     alignedBytes = new Uint8Array(aligned.buffer);
   }
-  alignedBytes.set(bytes);
+  if (bytes.byteLength <= SMALL_BYTES) for (let i = 0; i < bytes.byteLength; i++) alignedBytes[i] = bytes[i]!;
+  else alignedBytes.set(bytes);
   for (let i = 0; i < n; i++) out[i] = aligned[i]!;
   return out;
 }

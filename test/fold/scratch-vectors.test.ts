@@ -2,10 +2,15 @@
 // tensorToFloat64 gives, whatever the storage form, byte offset or length, and a slot must not disturb another.
 // Seeded: raw float32 at every offset modulo 4 (as raw_data sits in a file), float_data, double and float16.
 import { describe, expect, it } from 'vitest';
-import { DataType, type Tensor } from '../../src/graph/ir.js';
+import { mkdtempSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { DataType, rawBytesOf, type Tensor } from '../../src/graph/ir.js';
 import { makeTensor, tensorToFloat64 } from '../../src/graph/tensor.js';
+import { readModelFile } from '../../src/onnx/read.js';
+import { isOnDisk } from '../../src/onnx/sparse-read.js';
 import { vectorInSlot } from '../../src/fold/scratch-vectors.js';
-import { randn, rng } from '../helpers/build.js';
+import { GraphBuilder, modelBytes, randn, rng } from '../helpers/build.js';
 
 /** Raw float32 bytes at `offset` into a larger buffer, as a tensor read from a file holds them. */
 function rawAt(name: string, values: Float32Array, offset: number): Tensor {
@@ -40,6 +45,20 @@ describe('scratch parameter vectors', () => {
     expect([...vb]).toEqual([4, 5, 6, 7, 8]);
     expect([...vectorInSlot(b, 0)]).toEqual([4, 5, 6, 7, 8]); // slot 0 now holds five values
     expect([...vb]).toEqual([4, 5, 6, 7, 8]);
+  });
+
+  it('read a long vector still on disk (a model file read sparsely) as the decoder does, and leave it on disk', () => {
+    const n = 1 << 20; // 4 MiB of float32: a read leaves most of it on disk
+    const g = new GraphBuilder();
+    g.input('x', [1, n]).output('y');
+    g.init('s', [n], randn(rng(3), n, 1));
+    g.node('Mul', ['x', 's'], {}, { outputs: ['y'] });
+    const file = join(mkdtempSync(join(tmpdir(), 'pleat-scratch-')), 'long.onnx');
+    writeFileSync(file, modelBytes(g));
+    const t = readModelFile(file).graph.initializers[0]!;
+    expect(isOnDisk(rawBytesOf(t)!)).toBe(true);
+    expect(same(vectorInSlot(t, 2), tensorToFloat64(t))).toBe(true);
+    expect(isOnDisk(rawBytesOf(t)!)).toBe(true);
   });
 
   it('refuse a tensor whose data is shorter than its dims, as tensorToFloat64 does', () => {
