@@ -7,9 +7,7 @@ import { DEFER_MIN, peekBytes } from '../onnx/sparse-read.js';
 
 const slots: Float64Array[] = [];
 
-// Raw float32 data sits at any offset of the file's buffer: it is copied here to be read aligned, up to
-// SMALL_BYTES by hand (TypedArray set's checks cost more than copying a norm's few channels).
-const SMALL_BYTES = 256;
+// Raw float32 data sits at any offset of the file's buffer: it is copied here (one memcpy) to be read aligned.
 let aligned = new Float32Array(64);
 let alignedBytes = new Uint8Array(aligned.buffer);
 
@@ -31,8 +29,7 @@ export function vectorInSlot(t: Tensor, slot: number): Float64Array {
     aligned = new Float32Array(n);
     alignedBytes = new Uint8Array(aligned.buffer);
   }
-  if (bytes.byteLength <= SMALL_BYTES) for (let i = 0; i < bytes.byteLength; i++) alignedBytes[i] = bytes[i]!;
-  else alignedBytes.set(bytes);
+  alignedBytes.set(bytes);
   for (let i = 0; i < n; i++) out[i] = aligned[i]!;
   return out;
 }
