@@ -104,6 +104,16 @@ async function print(text: string): Promise<void> {
   }
 }
 
+/**
+ * End the process once stdout and stderr have taken everything written to them. Returning instead lets Node take
+ * the whole heap down first: some 60 ms after the last line of an audit of 10^5 nodes, for nothing the user sees.
+ * Exit handlers still run (the output transaction's among them); the exit code is process.exitCode.
+ */
+export async function exitWhenWritten(): Promise<never> {
+  await Promise.all([process.stdout, process.stderr].map((s) => new Promise<void>((res) => { s.write('', () => res()); })));
+  process.exit();
+}
+
 /** One line per failed model on stderr, in input order, as a single-model run would print it. */
 export function reportErrors(lines: readonly string[]): void {
   for (const l of lines) process.stderr.write(`pleat: ${l}\n`);
