@@ -85,7 +85,33 @@ export async function emit(plan: ReportPlan, render: (format: Format, colour: bo
     tx.abort();
     throw e;
   }
-  await out(await render(plan.format, plan.format === 'text' && useColour(process.stdout)));
+  await print(await render(plan.format, plan.format === 'text' && useColour(process.stdout)));
+}
+
+/** Pieces of stdout text: each ends at the first line end past this many characters. */
+const PIECE = 64 * 1024;
+
+/**
+ * Write text to stdout in pieces that end at line ends: a report of 10^5 lines written at once was first copied
+ * whole into one buffer of several MB, every page of it new memory, only to be handed over.
+ */
+async function print(text: string): Promise<void> {
+  for (let start = 0; start < text.length;) {
+    const nl = text.indexOf('\n', start + PIECE);
+    const end = nl < 0 ? text.length : nl + 1;
+    await out(text.slice(start, end));
+    start = end;
+  }
+}
+
+/**
+ * End the process once stdout and stderr have taken everything written to them. Returning instead lets Node take
+ * the whole heap down first: some 60 ms after the last line of an audit of 10^5 nodes, for nothing the user sees.
+ * Exit handlers still run (the output transaction's among them); the exit code is process.exitCode.
+ */
+export async function exitWhenWritten(): Promise<never> {
+  await Promise.all([process.stdout, process.stderr].map((s) => new Promise<void>((res) => { s.write('', () => res()); })));
+  process.exit();
 }
 
 /** One line per failed model on stderr, in input order, as a single-model run would print it. */

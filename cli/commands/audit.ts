@@ -1,7 +1,7 @@
 import type { Argv } from 'yargs';
 import { keepList, loadConfig, nameOrigins } from '../config.js';
 import type { Job } from '../batch.js';
-import { checkDestinations, planReports, runAndReport } from '../output.js';
+import { checkDestinations, exitWhenWritten, planReports, runAndReport } from '../output.js';
 import { configFlags, EPILOGUE, many, reportFlags } from '../flags.js';
 
 
@@ -25,4 +25,5 @@ export async function handler(argv: Flags): Promise<void> {
   const jobs: Job[] = argv.models.map((model) => ({ command: 'audit', model, opts, runFigures: plan.runFigures }));
   await checkDestinations(plan, { inputs: argv.models });
   await runAndReport('audit', jobs, plan, argv.quiet);
+  await exitWhenWritten();
 }

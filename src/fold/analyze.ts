@@ -26,17 +26,18 @@ const worthIt = (run: Run, ms: RuleMatch[]) => run.hasNormOp || run.steps.length
 
 const isMatch = (x: RuleMatch | Side): x is RuleMatch => 'rule' in x;
 
+const sideOf = (r: Refusal, direction: Direction, scope: Scope, n: Node): Side => ({ ...r, direction, target: label(scope, n) });
+
 function trySide(ctx: FoldContext, run: Run, n: Node, direction: Direction): RuleMatch | Side {
   const scope = run.scope;
-  const side = (r: Refusal): Side => ({ ...r, direction, target: label(scope, n) });
   const layer = readLayer(ctx, scope, n);
-  if (!isLayer(layer)) return side(layer);
+  if (!isLayer(layer)) return sideOf(layer, direction, scope, n);
   const rule = ruleFor(n.opType, direction);
   if (!rule) {
-    return side(refuse('padded-consumer', `'${label(scope, n)}' is a ConvTranspose: its border outputs receive fewer kernel taps, so a shift cannot become its bias`));
+    return sideOf(refuse('padded-consumer', `'${label(scope, n)}' is a ConvTranspose: its border outputs receive fewer kernel taps, so a shift cannot become its bias`), direction, scope, n);
   }
   const m = rule.match(ctx, run, layer);
-  return isRefusal(m) ? side(m) : m;
+  return isRefusal(m) ? sideOf(m, direction, scope, n) : m;
 }
 
 /** The reader of the run's output that cannot take the fold whatever its weights (not a linear layer), if any. */
@@ -133,8 +134,9 @@ export function assessRun(ctx: FoldContext, run: Run): Outcome {
 
 /** 'a', 'a' and 'b', 'a', 'b' and 'c'. */
 export function nameList(names: readonly string[]): string {
+  if (names.length <= 1) return names.length ? `'${names[0]}'` : ''; // (most lists: one per foldable norm)
   const q = names.map((n) => `'${n}'`);
-  return q.length <= 1 ? (q[0] ?? '') : `${q.slice(0, -1).join(', ')} and ${q[q.length - 1]}`;
+  return `${q.slice(0, -1).join(', ')} and ${q[q.length - 1]}`;
 }
 
 /** Weight bytes a --clone-shared copy of the match's layer adds. */
@@ -150,8 +152,8 @@ export const layerNormHint = (targets: readonly string[]) =>
 export const writtenOutHint = (targets: readonly string[]) =>
   `statistics stay (computed from each input, written as primitive ops); the learned scale and shift after it move into ${nameList(targets)}`;
 
-/** What a foldable run's fold does, in one line. */
-export function foldHint(ms: RuleMatch[], clone: boolean): string {
+/** What a foldable run's fold does, in one line (`targets`: the matches' layer labels, when already listed). */
+export function foldHint(ms: RuleMatch[], clone: boolean, targets = ms.map((x) => x.layer.label)): string {
   const m = ms[0]!;
   const others = m.run.steps.length - 1;
   const withOthers = others ? ` together with ${others} neighbouring step${others > 1 ? 's' : ''}` : '';
@@ -161,7 +163,7 @@ export function foldHint(ms: RuleMatch[], clone: boolean): string {
       : form('gemm') ? '; the MatMul becomes a Gemm carrying the shift' : '';
   const copy = clone ? `, a copy of it made for this norm (+${cloneCost(m)} bytes of weights; its other readers keep the original)` : '';
   const each = ms.length > 1 ? ', each with its own copy of the scale and its own bias' : '';
-  return `${m.rule.direction === 'into-producer' ? 'scales the output channels' : 'scales the input channels'} of ${nameList(ms.map((x) => x.layer.label))}${copy}${each}${withOthers}${bias}`;
+  return `${m.rule.direction === 'into-producer' ? 'scales the output channels' : 'scales the input channels'} of ${nameList(targets)}${copy}${each}${withOthers}${bias}`;
 }
 
 export type Summary = Omit<Finding, 'node' | 'op' | 'graph' | 'kind'>;
@@ -172,7 +174,7 @@ export function summarize(o: Outcome): Summary {
     const targets = o.matches.map((m) => m.layer.label);
     return {
       status: 'foldable', direction: o.matches[0]!.rule.direction, target: targets.join(', '), targets, reason: null,
-      hint: null, effect: foldHint(o.matches, o.clone), cloneBytes: o.clone ? cloneCost(o.matches[0]!) : 0,
+      hint: null, effect: foldHint(o.matches, o.clone, targets), cloneBytes: o.clone ? cloneCost(o.matches[0]!) : 0,
     };
   }
   const k = o as Extract<Outcome, { kind: 'kept' }>;
@@ -191,8 +193,21 @@ function layerNormKept(s: Summary): Summary {
   return keptSummary('runtime-statistics', `statistics come from each input and always stay; its learned scale and shift have nowhere to move: ${why}`);
 }
 
-/** Every normalization of one graph with its verdict, in node order. */
-export function* assessScope(ctx: FoldContext, scope: Scope, cache: StepCache): Generator<{ node: Node; op: string; kind: EntryKind; summary: Summary }> {
+/**
+ * A finding: the node, then its summary's fields in the summary's own order (the JSON report prints them in that
+ * order), then the graph. A foldable summary always has summarize's order and is written out field by field (a
+ * spread between other fields copies property by property, and audit makes one finding per norm); a kept one
+ * may have keptSummary's order and is spread.
+ */
+function findingOf(node: string, op: string, kind: EntryKind, s: Summary, graph: string): Finding {
+  if (s.status === 'foldable') {
+    return { node, op, kind, status: s.status, direction: s.direction, target: s.target, targets: s.targets, reason: s.reason, hint: s.hint, effect: s.effect, cloneBytes: s.cloneBytes, graph };
+  }
+  return { node, op, kind, ...s, graph };
+}
+
+/** Every normalization of one graph with its verdict, in node order, added to `out`. */
+function assessScope(ctx: FoldContext, scope: Scope, cache: StepCache, out: Finding[]): void {
   const runs = new Map<Node, Summary | undefined>();
   const runSummary = (s: AffineStep): Summary | undefined => {
     if (!runs.has(s.node)) {
@@ -204,12 +219,13 @@ export function* assessScope(ctx: FoldContext, scope: Scope, cache: StepCache): 
     }
     return runs.get(s.node);
   };
+  const add = (n: Node, op: string, kind: EntryKind, summary: Summary) => { out.push(findingOf(label(scope, n), op, kind, summary, scope.path)); };
   for (const n of scope.graph.nodes) {
     const s = stepOf(ctx, scope, cache, n);
     if (s === undefined) {
       const rt = runtimeNorm(scope, n);
       if (!rt) continue;
-      yield { node: n, op: rt.op, kind: 'normalization', summary: writtenOutSummary(ctx, scope, cache, n, runSummary) ?? keptSummary('runtime-statistics', rt.hint) };
+      add(n, rt.op, 'normalization', writtenOutSummary(ctx, scope, cache, n, runSummary) ?? keptSummary('runtime-statistics', rt.hint));
       continue;
     }
     const kind = entryKind(scope, n);
@@ -218,7 +234,7 @@ export function* assessScope(ctx: FoldContext, scope: Scope, cache: StepCache): 
       const beside = n.inputs.some((i) => { const p = i ? scope.ud.producer(i) : undefined; return p !== undefined && isLinear(p); })
         || scope.ud.consumers(n.outputs[0] ?? '').some(isLinear);
       if (kind === 'normalization' && (isBatchNorm(n) || isLayerNorm(n) || beside || s.reason === 'kept-by-user' || s.reason === 'proof-failed')) {
-        yield { node: n, op: n.opType, kind, summary: keptSummary(s.reason, s.hint) };
+        add(n, n.opType, kind, keptSummary(s.reason, s.hint));
       }
       continue;
     }
@@ -227,7 +243,7 @@ export function* assessScope(ctx: FoldContext, scope: Scope, cache: StepCache): 
     if (s.kind === 'layer-norm') summary = summary.status === 'kept' ? layerNormKept(summary) : { ...summary, effect: layerNormHint(summary.targets) };
     // Other constant affine steps are never listed as kept (they are listed when folded, as "also folded").
     if (kind === 'affine-step' && summary.status === 'kept') continue;
-    yield { node: n, op: n.opType, kind, summary };
+    add(n, n.opType, kind, summary);
   }
 }
 
@@ -247,9 +263,7 @@ function writtenOutSummary(ctx: FoldContext, scope: Scope, cache: StepCache, n: 
 /** `scopes`: the fold driver's own (current, derived caches forgotten), else built here. */
 export function findingsOf(ctx: FoldContext, model: Model, scopes = buildScopes(model, ctx.labels, ctx.options.inputShapes)): Finding[] {
   const out: Finding[] = [];
-  for (const scope of scopes) {
-    for (const f of assessScope(ctx, scope, new Map())) out.push({ node: label(scope, f.node), op: f.op, kind: f.kind, ...f.summary, graph: scope.path });
-  }
+  for (const scope of scopes) assessScope(ctx, scope, new Map(), out);
   return out;
 }
 

@@ -6,7 +6,7 @@ import { attrFloat, attrInt, elementCount } from '../graph/ir.js';
 import { isFloatType, tensorToFloat64, dataTypeName } from '../graph/tensor.js';
 import { batchNormAffine, channelAxisFromEnd, type Affine, type ElementwiseOp } from './affine.js';
 import { constantOf, isDefaultDomain, type ConstRef, type Scope } from './scope.js';
-import { weightSource } from './values.js';
+import { vectorInSlot } from './scratch-vectors.js';
 import { refuse, type FoldContext, type Refusal } from './context.js';
 import type { EntryKind } from './types.js';
 
@@ -129,13 +129,13 @@ function readBatchNorm(ctx: FoldContext, scope: Scope, n: Node): AffineStep | Re
   if (user) return user;
   if (trainingMode(n)) return refuse('training-mode', 'export the model in inference mode (training_mode=0, only output Y)');
   if (perActivation(n)) return refuse('per-activation-stats', 'legacy spatial=0 form; re-export with per-channel statistics (spatial=1 or opset >= 9)');
-  const names = n.inputs.slice(1, 5);
-  if (names.length < 4 || names.some((x) => !x)) return refuse('params-not-constant', 'scale, B, mean and var must all be given as initializers or Constant nodes');
-  const refs: ConstRef[] = [];
-  for (const name of names) {
-    const r = constantOf(scope, name);
-    if (!r) return refuse('params-not-constant', `'${name}' is computed at run time; store it as an initializer`);
-    refs.push(r);
+  const ins = n.inputs;
+  if (ins.length < 5 || !ins[1] || !ins[2] || !ins[3] || !ins[4]) return refuse('params-not-constant', 'scale, B, mean and var must all be given as initializers or Constant nodes');
+  const refs = new Array<ConstRef>(4); // (sized once: an array grown by push holds room for 17)
+  for (let k = 0; k < 4; k++) {
+    const r = constantOf(scope, ins[k + 1]!);
+    if (!r) return refuse('params-not-constant', `'${ins[k + 1]}' is computed at run time; store it as an initializer`);
+    refs[k] = r;
   }
   if (overridable(ctx, refs)) {
     const r = refs.find((x) => x.overridable)!;
@@ -147,8 +147,8 @@ function readBatchNorm(ctx: FoldContext, scope: Scope, n: Node): AffineStep | Re
   if (refs.some((r) => r.tensor.dims.length !== 1 || elementCount(r.tensor.dims) !== c)) {
     return refuse('axis-mismatch', 'scale, B, mean and var must each hold one value per channel');
   }
-  // Read in place (float32 raw data is exact in float64 arithmetic): a copy per parameter per norm is garbage.
-  const bn = batchNormAffine(weightSource(refs[0]!.tensor), weightSource(refs[1]!.tensor), weightSource(refs[2]!.tensor), weightSource(refs[3]!.tensor), attrFloat(n, 'epsilon', 1e-5));
+  // The parameters are read into reused scratch vectors: only the scale and shift made from them are kept.
+  const bn = batchNormAffine(vectorInSlot(refs[0]!.tensor, 0), vectorInSlot(refs[1]!.tensor, 1), vectorInSlot(refs[2]!.tensor, 2), vectorInSlot(refs[3]!.tensor, 3), attrFloat(n, 'epsilon', 1e-5));
   return { node: n, kind: 'batch-norm', data: n.inputs[0]!, output: n.outputs[0]!, bn, consts: refs };
 }
 

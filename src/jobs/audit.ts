@@ -12,16 +12,20 @@ export function auditLoaded(model: Model, label: string, opts: AuditJobOptions =
   checkOpset(model, label);
   checkJobNames(model, label, opts);
   const findings = analyze(model, { keep: opts.keep, keepOrigins: opts.origins?.keep, allowOverridable: opts.allowOverridable, cloneShared: opts.cloneShared });
-  const norms = findings.filter((f) => f.kind === 'normalization');
-  const kept = norms.filter((f) => f.status === 'kept').length;
+  let norms = 0, kept = 0;
+  for (const f of findings) {
+    if (f.kind !== 'normalization') continue;
+    norms++;
+    if (f.status === 'kept') kept++;
+  }
   return {
     schemaVersion: SCHEMA_VERSION,
     command: 'audit',
     model: label,
     normalizations: findings,
-    foldable: norms.length - kept,
+    foldable: norms - kept,
     kept,
-    alsoFoldable: findings.length - norms.length,
+    alsoFoldable: findings.length - norms,
     failOn: opts.failOn ?? null,
     failed: opts.failOn === 'kept' && kept > 0,
   };

@@ -14,5 +14,6 @@ export function auditText(r: AuditReport, colour = false): string {
   const also = r.alsoFoldable ? ` (and ${plural(r.alsoFoldable, 'affine step')} also foldable)` : '';
   lines.push(`  ${r.foldable} foldable, ${r.kept} kept${also}${cloneClause(r.normalizations)}`);
   if (r.failOn === 'kept') lines.push(r.failed ? p.bad(`--fail-on kept: FAILED (${r.kept} kept)`) : p.good('--fail-on kept: passed'));
-  return lines.join('\n') + '\n';
+  lines.push(''); // the closing newline, inside the join: the text comes out as one flat string, not joined again
+  return lines.join('\n');
 }
