@@ -33,21 +33,23 @@ export interface Edit {
   released: string[];
   /** The values the rest of the graph reads from the edited region (proof outputs). */
   regionOutputs: string[];
-  /** Runs already removed by this edit (several readers of one run each take it). */
-  removedRuns: Set<object>;
+  /** Runs already removed by this edit (several readers of one run each take it; mostly one, so a list). */
+  removedRuns: object[];
   /** Unchanged nodes the proof region must hold too (the original of a cloned layer). */
   regionNodes: Node[];
 }
 
 export function newEdit(scope: Scope): Edit {
-  return { scope, removeNodes: [], changes: [], inserts: [], tensorValues: [], tensorScales: [], newInitializers: [], goneValues: [], released: [], regionOutputs: [], removedRuns: new Set(), regionNodes: [] };
+  return { scope, removeNodes: [], changes: [], inserts: [], tensorValues: [], tensorScales: [], newInitializers: [], goneValues: [], released: [], regionOutputs: [], removedRuns: [], regionNodes: [] };
 }
 
 /** The pending change record of a node (created on first use). */
 export function changeOf(edit: Edit, node: Node): NodeChange & { inputs: string[]; outputs: string[] } {
-  let c = edit.changes.find((x) => x.node === node);
-  if (!c) { c = { node, inputs: [...node.inputs], outputs: [...node.outputs] }; edit.changes.push(c); }
-  return c as NodeChange & { inputs: string[]; outputs: string[] };
+  const changes = edit.changes;
+  for (let k = 0; k < changes.length; k++) if (changes[k]!.node === node) return changes[k] as NodeChange & { inputs: string[]; outputs: string[] };
+  const c = { node, inputs: node.inputs.slice(), outputs: node.outputs.slice() };
+  changes.push(c);
+  return c;
 }
 
 /**
@@ -84,9 +86,14 @@ export function scaleConstant(ctx: FoldContext, edit: Edit, node: Node, index: n
 export function addConstantInput(ctx: FoldContext, edit: Edit, node: Node, index: number, base: string, dataType: number, values: Float64Array, dims: number[]): void {
   const name = freshName(ctx, base);
   edit.newInitializers.push(makeTensor(name, dims, dataType, values));
-  const inputs = changeOf(edit, node).inputs;
-  while (inputs.length < index) inputs.push('');
-  inputs[index] = name;
+  const c = changeOf(edit, node);
+  // (a list of the new length, '' in any gap: it becomes the node's inputs, and one grown by push holds room for 17)
+  if (index >= c.inputs.length) {
+    const inputs = new Array<string>(index + 1).fill('');
+    for (let k = 0; k < c.inputs.length; k++) inputs[k] = c.inputs[k]!;
+    c.inputs = inputs;
+  }
+  c.inputs[index] = name;
 }
 
 export function makeNode(opType: string, name: string, inputs: string[], outputs: string[]): Node {
@@ -148,45 +155,31 @@ function updateIndex(ctx: FoldContext, live: LiveScope, p: PendingGraph, inserte
 
 /**
  * Apply an edit to its graph. Returns the undo (which restores every object, origins included); with
- * `undoable: false` (a fold that will not be proven) nothing is recorded for it and the undo does nothing.
+ * `undoable` false (a fold that will not be proven) nothing is recorded for it and the undo does nothing.
  */
-export function applyEdit(ctx: FoldContext, edit: Edit, opts: { inPlace: boolean; undoable?: boolean }): () => void {
-  const g = edit.scope.graph;
-  const undoable = opts.undoable ?? true;
-  const undo: Array<() => void> = [];
-  const save = <T extends object>(obj: T, keys: Array<keyof T>) => {
-    if (!undoable) return;
-    const old = keys.map((k) => obj[k]);
-    const origin = (obj as { origin?: unknown }).origin;
-    undo.push(() => {
-      keys.forEach((k, i) => { obj[k] = old[i] as T[keyof T]; });
-      if (origin !== undefined) (obj as { origin?: unknown }).origin = origin;
-    });
-  };
-  const updates = [
-    ...edit.tensorValues.map((tv) => ({ ref: tv.ref, write: () => storeValues(tv.ref.tensor, tv.values, tv.dims, opts.inPlace) })),
-    ...edit.tensorScales.map((ts) => ({ ref: ts.ref, write: () => scaleTensor(ts.ref.tensor, ts.map, ts.scale, opts.inPlace, ts.guard) })),
-  ];
-  for (const u of updates) {
-    const t = u.ref.tensor;
-    save(t, ['storage', 'dims', 'dataType']);
-    u.write();
-    const cn = u.ref.constantNode;
-    if (cn) {
-      save(cn, ['attributes']);
-      for (const a of cn.attributes) if (a.value.type === 'TENSOR' && a.value.t === t) { save(a, ['value']); touch(a); }
-      touch(cn);
-    }
+export function applyEdit(ctx: FoldContext, edit: Edit, inPlace: boolean, undoable = true): () => void {
+  // (an unproven fold takes the plain path: no undo, so no closure or saved copy made per fold)
+  const undo: Array<() => void> | undefined = undoable ? [] : undefined;
+  for (let k = 0; k < edit.tensorValues.length; k++) {
+    const tv = edit.tensorValues[k]!;
+    const t = tv.ref.tensor;
+    if (undo) save(undo, t, ['storage', 'dims', 'dataType']);
+    storeValues(t, tv.values, tv.dims, inPlace);
+    touchConstantNode(undo, tv.ref);
   }
-  const pending = (): PendingGraph => {
-    let p = ctx.pending.get(g);
-    if (!p) { p = { rewired: new Map(), removed: new Set(), inserts: new Map(), initializers: [], inputs: [] }; ctx.pending.set(g, p); }
-    return p;
-  };
-  for (const c of edit.changes) {
-    save(c.node, ['opType', 'inputs', 'outputs', 'attributes']);
+  for (let k = 0; k < edit.tensorScales.length; k++) {
+    const ts = edit.tensorScales[k]!;
+    const t = ts.ref.tensor;
+    if (undo) save(undo, t, ['storage', 'dims', 'dataType']);
+    scaleTensor(t, ts.map, ts.scale, inPlace, ts.guard);
+    touchConstantNode(undo, ts.ref);
+  }
+  const g = edit.scope.graph;
+  for (let k = 0; k < edit.changes.length; k++) {
+    const c = edit.changes[k]!;
+    if (undo) save(undo, c.node, ['opType', 'inputs', 'outputs', 'attributes']);
     if ((c.inputs || c.outputs) && ctx.live) {
-      const rewired = pending().rewired;
+      const rewired = pendingOf(ctx, g).rewired;
       if (!rewired.has(c.node)) rewired.set(c.node, { inputs: c.node.inputs, outputs: c.node.outputs });
     }
     if (c.opType !== undefined) c.node.opType = c.opType;
@@ -197,17 +190,17 @@ export function applyEdit(ctx: FoldContext, edit: Edit, opts: { inPlace: boolean
   }
   if (edit.removeNodes.length || edit.inserts.length || edit.newInitializers.length) {
     // List changes wait for flushPending, so a sweep of many folds rebuilds each list once.
-    const pg = pending();
-    for (const n of edit.removeNodes) pg.removed.add(n);
+    const pg = pendingOf(ctx, g);
+    for (let k = 0; k < edit.removeNodes.length; k++) pg.removed.add(edit.removeNodes[k]!);
     for (const ins of edit.inserts) pg.inserts.set(ins.after, [...(pg.inserts.get(ins.after) ?? []), ins.node]);
     const initsAt = pg.initializers.length, inputsAt = pg.inputs.length;
-    pg.initializers.push(...edit.newInitializers);
+    for (let k = 0; k < edit.newInitializers.length; k++) pg.initializers.push(edit.newInitializers[k]!);
     // Before IR version 4 every initializer of the main graph must also be a graph input.
     const newInputs = ctx.irVersion < 4 && !edit.scope.parent
       ? edit.newInitializers.map((t): ValueInfo => ({ name: t.name, elemType: t.dataType, shape: [...t.dims], docString: '', extra: [] }))
       : [];
-    pg.inputs.push(...newInputs);
-    if (undoable) undo.push(() => {
+    for (let k = 0; k < newInputs.length; k++) pg.inputs.push(newInputs[k]!);
+    if (undo) undo.push(() => {
       for (const n of edit.removeNodes) pg.removed.delete(n);
       for (const ins of edit.inserts) pg.inserts.set(ins.after, (pg.inserts.get(ins.after) ?? []).filter((x) => x !== ins.node));
       // undone right after it was applied (a failed proof, or a proven fold applied again in place), the edit's
@@ -219,8 +212,41 @@ export function applyEdit(ctx: FoldContext, edit: Edit, opts: { inPlace: boolean
       else pg.inputs = pg.inputs.filter((v) => !newInputs.includes(v));
     });
   }
-  for (const ins of edit.inserts) ctx.generated.add(ins.node);
-  return () => { for (let i = undo.length - 1; i >= 0; i--) undo[i]!(); };
+  for (let k = 0; k < edit.inserts.length; k++) ctx.generated.add(edit.inserts[k]!.node);
+  return undo ? () => { for (let i = undo.length - 1; i >= 0; i--) undo[i]!(); } : NO_UNDO;
+}
+
+const NO_UNDO = (): void => {};
+
+/** Record how `obj` is now (the named fields and its origin), for the undo. */
+function save<T extends object>(undo: Array<() => void>, obj: T, keys: Array<keyof T>): void {
+  const old = keys.map((k) => obj[k]);
+  const origin = (obj as { origin?: unknown }).origin;
+  undo.push(() => {
+    keys.forEach((k, i) => { obj[k] = old[i] as T[keyof T]; });
+    if (origin !== undefined) (obj as { origin?: unknown }).origin = origin;
+  });
+}
+
+/** A tensor held by a Constant node changed: the node and its attribute are re-encoded too. */
+function touchConstantNode(undo: Array<() => void> | undefined, ref: ConstRef): void {
+  const cn = ref.constantNode;
+  if (!cn) return;
+  if (undo) save(undo, cn, ['attributes']);
+  for (const a of cn.attributes) {
+    if (a.value.type === 'TENSOR' && a.value.t === ref.tensor) {
+      if (undo) save(undo, a, ['value']);
+      touch(a);
+    }
+  }
+  touch(cn);
+}
+
+/** The pending list changes of a graph (made on first use). */
+function pendingOf(ctx: FoldContext, g: Graph): PendingGraph {
+  let p = ctx.pending.get(g);
+  if (!p) { p = { rewired: new Map(), removed: new Set(), inserts: new Map(), initializers: [], inputs: [] }; ctx.pending.set(g, p); }
+  return p;
 }
 
 // ---- proof regions ------------------------------------------------------------------------------------

@@ -34,9 +34,15 @@ const CACHE_MAX = 32;
 /** The op types readStep can make a step of (any other node is none, with nothing to cache). */
 const STEP_OPS = new Set(['BatchNormalization', 'LayerNormalization', 'Add', 'Sub', 'Mul', 'Div']);
 
+/** Whether readStep could make a step of the node (a cheap look at its op type; most nodes are no step). */
+export function mayBeStep(n: Node): boolean {
+  return STEP_OPS.has(n.opType);
+}
+
 export function stepOf(ctx: FoldContext, scope: Scope, cache: StepCache, n: Node): AffineStep | Refusal | undefined {
   if (!STEP_OPS.has(n.opType)) return undefined;
-  if (cache.has(n)) return cache.get(n);
+  const known = cache.get(n);
+  if (known !== undefined || cache.has(n)) return known;
   if (cache.size >= CACHE_MAX) cache.clear();
   const s = readStep(ctx, scope, n);
   cache.set(n, s);

@@ -199,10 +199,7 @@ export function buildUseDef(graph: Graph): UseDef {
     producer: producerOf,
     consumers: (v) => {
       const id = idIn(v);
-      if (id < 0) return [];
-      const out: Node[] = [];
-      for (let k = readers.start[id]!, end = readers.start[id + 1]!; k < end; k++) out.push(nodes[readers.node[k]!]!);
-      return out;
+      return id < 0 ? [] : rowOf(readers, nodes, id);
     },
     isGraphOutput: (v) => { const id = idIn(v); return id >= 0 && (flags[id]! & IS_OUTPUT) !== 0; },
     isGraphInput: (v) => { const id = idIn(v); return id >= 0 && (flags[id]! & IS_INPUT) !== 0; },
@@ -277,9 +274,7 @@ export function editableUseDef(graph: Graph): EditableUseDef {
   const readersAt = (id: number): Node[] => {
     const o = readOver[id];
     if (o) return o;
-    const out: Node[] = [];
-    if (id < baseSize) for (let k = readers.start[id]!, end = readers.start[id + 1]!; k < end; k++) out.push(nodes[readers.node[k]!]!);
-    return out;
+    return id < baseSize ? rowOf(readers, nodes, id) : [];
   };
   const producerOf = (v: string) => { const id = idIn(v); return id < 0 ? undefined : prod[id]; };
   const initializerOf = (v: string) => { const id = idIn(v); return id < 0 ? undefined : inits[id]; };
@@ -302,11 +297,13 @@ export function editableUseDef(graph: Graph): EditableUseDef {
   const readerAt0 = (id: number): Node => readOver[id]?.[0] ?? nodes[readers.node[readers.start[id]!]!]!;
   const addReader = (v: string, n: Node) => {
     const id = idAdd(v);
-    const list = readerCountAt(id) === 0 ? [] : readersAt(id);
+    // (a first reader gets a list of its own size: it is kept, and a list grown by push holds room for 17)
+    if (readerCountAt(id) === 0) { readOver[id] = [n]; return; }
+    const list = readersAt(id);
     if (list.includes(n)) return;
     list.push(n);
     readOver[id] = list;
-    if (list.length > 1) unsorted.add(id);
+    unsorted.add(id);
   };
   const dropOutput = (o: string, n: Node) => {
     const id = idIn(o);
@@ -370,6 +367,18 @@ export function editableUseDef(graph: Graph): EditableUseDef {
       unsorted.clear();
     },
   };
+}
+
+/**
+ * The readers of value `id` from the compressed rows, in a list of their exact number (asked for several times per
+ * fold; a list grown by push from empty holds room for 17).
+ */
+function rowOf(readers: { start: Int32Array; node: Int32Array }, nodes: readonly Node[], id: number): Node[] {
+  const start = readers.start[id]!, end = readers.start[id + 1]!;
+  if (end - start === 1) return [nodes[readers.node[start]!]!];
+  const out = new Array<Node>(end - start);
+  for (let k = start; k < end; k++) out[k - start] = nodes[readers.node[k]!]!;
+  return out;
 }
 
 /** Readers grouped by value (compressed rows), keeping node order within each value. */
