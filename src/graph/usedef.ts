@@ -150,29 +150,30 @@ function lastLookup(id: (v: string) => number): (v: string) => number {
 }
 
 /**
- * lastLookup over the last four names found: a fold asks about the few values around it (the norm's input and
- * output, the layer's weight) several times, with other names in between, and in a graph of 10^5 nodes each
- * lookup that misses this costs a hash of the name and a probe into a table larger than the processor's cache.
- * (Ids never change once given, and a name not found is not remembered: it may be added later.)
+ * lastLookup over the last four names found, the most recent first: a fold asks about the few values around it (the
+ * norm's input and output, the layer's weight) several times, with other names in between, and in a graph of 10^5
+ * nodes each lookup that misses this costs a hash of the name and a probe into a table larger than the processor's
+ * cache. Most questions repeat the name just asked about: it is compared first, since comparing two different
+ * names of one length (c17, y17, s17, ...) reads their characters. (Ids never change once given, and a name not
+ * found is not remembered: it may be added later.)
  */
 function recentLookup(id: (v: string) => number): (v: string) => number {
   let n0: string | undefined, n1: string | undefined, n2: string | undefined, n3: string | undefined;
   let i0 = -1, i1 = -1, i2 = -1, i3 = -1;
-  let next = 0;
   return (v) => {
     if (v === n0) return i0;
-    if (v === n1) return i1;
-    if (v === n2) return i2;
-    if (v === n3) return i3;
-    const k = id(v);
-    if (k < 0) return k;
-    switch (next) {
-      case 0: n0 = v; i0 = k; break;
-      case 1: n1 = v; i1 = k; break;
-      case 2: n2 = v; i2 = k; break;
-      default: n3 = v; i3 = k;
+    let k: number;
+    // a name found again moves to the front; a new one goes there and the oldest drops out
+    if (v === n1) { k = i1; n1 = n0; i1 = i0; } else if (v === n2) {
+      k = i2; n2 = n1; i2 = i1; n1 = n0; i1 = i0;
+    } else if (v === n3) {
+      k = i3; n3 = n2; i3 = i2; n2 = n1; i2 = i1; n1 = n0; i1 = i0;
+    } else {
+      k = id(v);
+      if (k < 0) return k;
+      n3 = n2; i3 = i2; n2 = n1; i2 = i1; n1 = n0; i1 = i0;
     }
-    next = (next + 1) & 3;
+    n0 = v; i0 = k;
     return k;
   };
 }
