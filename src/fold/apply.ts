@@ -109,18 +109,16 @@ export function flushPending(ctx: FoldContext): void {
   const edited = new Set<EditableUseDef>();
   for (const [g, p] of ctx.pending) {
     const lists = p.removed.size > 0 || p.inserts.size > 0 || p.initializers.length > 0 || p.inputs.length > 0;
-    const inserted: Node[] = [];
     if (lists) {
       const nodes: Node[] = [];
       // An inserted node may have inserts of its own (the bias Add after a cloned layer).
-      const emit = (n: Node, isNew: boolean) => {
+      const emit = (n: Node) => {
         if (!p.removed.has(n)) nodes.push(n);
-        if (isNew) inserted.push(n);
         const after = p.inserts.size ? p.inserts.get(n) : undefined; // (no empty list made per node)
-        if (after) for (const a of after) emit(a, true);
+        if (after) for (const a of after) emit(a);
       };
       const old = g.nodes;
-      for (let i = 0; i < old.length; i++) emit(old[i]!, false);
+      for (let i = 0; i < old.length; i++) emit(old[i]!);
       g.nodes = nodes;
       if (p.initializers.length) g.initializers = g.initializers.concat(p.initializers);
       if (p.inputs.length) g.inputs = g.inputs.concat(p.inputs);
@@ -128,28 +126,85 @@ export function flushPending(ctx: FoldContext): void {
     }
     p.removed.forEach((n) => { ctx.removedNodes.push(n); }); // (forEach: no entry or iterator result made per node)
     const live = ctx.live?.get(g);
-    if (live) updateIndex(ctx, live, p, inserted, edited);
+    if (live) updateIndex(ctx, live, p, edited);
   }
   ctx.pending.clear();
   // reader lists back in node order, once per graph (a graph with many edited bodies is not walked per body)
   for (const ud of edited) ud.settle();
 }
 
-/** One graph's index follows a sweep's edits; owners of an edited body read what the body now reads. */
-function updateIndex(ctx: FoldContext, live: LiveScope, p: PendingGraph, inserted: Node[], edited: Set<EditableUseDef>): void {
+/**
+ * One graph's index follows a sweep's edits; owners of an edited body read what the body now reads. The edits are
+ * told one at a time, in the order they were applied, each layer's rewiring before the nodes it replaces go (see
+ * logEdit): the
+ * few names one fold touches are then asked about together, and the index's last-name look-up answers most of
+ * them without hashing the name again (the same changes told as a removal pass, a rewiring pass and an addition
+ * pass over the whole sweep asked about every name afresh, each a probe into a table larger than the cache).
+ */
+function updateIndex(ctx: FoldContext, live: LiveScope, p: PendingGraph, edited: Set<EditableUseDef>): void {
   const ud = live.ud;
   edited.add(ud);
-  const added = new Set(inserted);
-  // (forEach over the set and map: a for-of makes an entry array and an iterator result per node)
-  p.removed.forEach((n) => ud.removeNode(n, p.rewired.get(n)));
-  p.rewired.forEach((was, n) => { if (!p.removed.has(n) && !added.has(n)) ud.rewire(n, was); });
-  for (const n of inserted) ud.addNode(n);
-  for (const t of p.initializers) ud.addInitializer(t);
+  let added: Set<Node> | undefined; // nodes inserted by this sweep (added as they are now, never rewired)
+  const log = p.log, kinds = p.logKinds;
+  for (let k = 0; k < log.length; k++) {
+    switch (kinds[k]) {
+      case LOG_INSERT: (added ??= new Set()).add(log[k] as Node); ud.addNode(log[k] as Node); break;
+      case LOG_CHANGE: {
+        const n = log[k] as Node;
+        // a node removed as well is told once, as removed, with the wiring the index knows
+        if (p.removed.has(n) || added?.has(n)) break;
+        // (a node changed by two edits of the sweep is told twice, from the same wiring: the second time changes
+        // nothing; deleting it from the map instead made the map shrink and rehash as a sweep's entries went)
+        const was = p.rewired.get(n);
+        if (was !== undefined) ud.rewire(n, was);
+        break;
+      }
+      case LOG_INITIALIZER: ud.addInitializer(log[k] as Tensor); break;
+      case LOG_REMOVE: {
+        const n = log[k] as Node;
+        ud.removeNode(n, p.rewired.get(n));
+        break;
+      }
+    }
+  }
   for (const v of p.inputs) ud.addGraphInput(v.name);
   for (let s = live.scope; s.owner && s.parent; s = s.parent) {
     const outer = ctx.live!.get(s.parent.graph)!.ud;
     outer.refreshBodyReads(s.owner);
     edited.add(outer);
+  }
+}
+
+// What PendingGraph.log holds at each place (in logKinds).
+const LOG_INSERT = 0, LOG_CHANGE = 1, LOG_INITIALIZER = 2, LOG_REMOVE = 3;
+
+/**
+ * Log an edit for the driver's index (see updateIndex): inserted nodes, changed nodes, new initializers, then the
+ * nodes removed, so that a layer's rewiring and new bias are told before the norm it replaces goes. Returns where
+ * its entries start (for unlogEdit).
+ */
+function logEdit(p: PendingGraph, edit: Edit): number {
+  const log = p.log, kinds = p.logKinds, at = log.length;
+  for (let k = 0; k < edit.inserts.length; k++) { log.push(edit.inserts[k]!.node); kinds.push(LOG_INSERT); }
+  for (let k = 0; k < edit.changes.length; k++) { log.push(edit.changes[k]!.node); kinds.push(LOG_CHANGE); }
+  for (let k = 0; k < edit.newInitializers.length; k++) { log.push(edit.newInitializers[k]!); kinds.push(LOG_INITIALIZER); }
+  for (let k = 0; k < edit.removeNodes.length; k++) { log.push(edit.removeNodes[k]!); kinds.push(LOG_REMOVE); }
+  return at;
+}
+
+/** Take back the entries logEdit made for an edit from `at` on (an edit undone right after it was applied: the last ones). */
+function unlogEdit(p: PendingGraph, edit: Edit, at: number): void {
+  const entries: Array<[Node | Tensor, number]> = [
+    ...edit.inserts.map((i): [Node, number] => [i.node, LOG_INSERT]), ...edit.changes.map((c): [Node, number] => [c.node, LOG_CHANGE]),
+    ...edit.newInitializers.map((t): [Tensor, number] => [t, LOG_INITIALIZER]), ...edit.removeNodes.map((n): [Node, number] => [n, LOG_REMOVE]),
+  ];
+  const log = p.log, kinds = p.logKinds;
+  if (log.length === at + entries.length) { log.length = at; kinds.length = at; return; }
+  // (not the last edit any more: each entry is taken out where it is, the latest first)
+  for (let k = entries.length - 1; k >= 0; k--) {
+    let i = log.length - 1;
+    while (i >= 0 && !(log[i] === entries[k]![0] && kinds[i] === entries[k]![1])) i--;
+    if (i >= 0) { log.splice(i, 1); kinds.splice(i, 1); }
   }
 }
 
@@ -175,6 +230,12 @@ export function applyEdit(ctx: FoldContext, edit: Edit, inPlace: boolean, undoab
     touchConstantNode(undo, ts.ref);
   }
   const g = edit.scope.graph;
+  // (the index is told the edits in the order they were applied, see updateIndex)
+  if (ctx.live) {
+    const p = pendingOf(ctx, g);
+    const at = logEdit(p, edit);
+    if (undo) undo.push(() => unlogEdit(p, edit, at));
+  }
   for (let k = 0; k < edit.changes.length; k++) {
     const c = edit.changes[k]!;
     if (undo) save(undo, c.node, ['opType', 'inputs', 'outputs', 'attributes']);
@@ -245,7 +306,7 @@ function touchConstantNode(undo: Array<() => void> | undefined, ref: ConstRef): 
 /** The pending list changes of a graph (made on first use). */
 function pendingOf(ctx: FoldContext, g: Graph): PendingGraph {
   let p = ctx.pending.get(g);
-  if (!p) { p = { rewired: new Map(), removed: new Set(), inserts: new Map(), initializers: [], inputs: [] }; ctx.pending.set(g, p); }
+  if (!p) { p = { log: [], logKinds: [], rewired: new Map(), removed: new Set(), inserts: new Map(), initializers: [], inputs: [] }; ctx.pending.set(g, p); }
   return p;
 }
 

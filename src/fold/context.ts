@@ -51,6 +51,13 @@ export interface LiveScope {
 }
 
 export interface PendingGraph {
+  /**
+   * For the driver's index (see FoldContext.live): the nodes and initializers each edit added, changed or removed,
+   * edit by edit in the order they were applied (a flat list, no object per edit: a sweep of 10^5 folds kept every
+   * edit alive until its end), and what each entry is (see apply.ts, logEdit).
+   */
+  log: Array<Node | Tensor>;
+  logKinds: number[];
   /** Nodes whose inputs or outputs an edit changed in place, with their wiring before the first such change. */
   rewired: Map<Node, Wiring>;
   removed: Set<Node>;

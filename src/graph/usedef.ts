@@ -154,13 +154,14 @@ function lastLookup(id: (v: string) => number): (v: string) => number {
  * norm's input and output, the layer's weight) several times, with other names in between, and in a graph of 10^5
  * nodes each lookup that misses this costs a hash of the name and a probe into a table larger than the processor's
  * cache. Most questions repeat the name just asked about: it is compared first, since comparing two different
- * names of one length (c17, y17, s17, ...) reads their characters. (Ids never change once given, and a name not
- * found is not remembered: it may be added later.)
+ * names of one length (c17, y17, s17, ...) reads their characters. `find(v, add)` gives the id (with `add`, a new
+ * one for a name not known yet; else -1 for it, which is not remembered: the name may be added later). Ids never
+ * change once given.
  */
-function recentLookup(id: (v: string) => number): (v: string) => number {
+function recentLookup(find: (v: string, add: boolean) => number): (v: string, add?: boolean) => number {
   let n0: string | undefined, n1: string | undefined, n2: string | undefined, n3: string | undefined;
   let i0 = -1, i1 = -1, i2 = -1, i3 = -1;
-  return (v) => {
+  return (v, add = false) => {
     if (v === n0) return i0;
     let k: number;
     // a name found again moves to the front; a new one goes there and the oldest drops out
@@ -169,7 +170,7 @@ function recentLookup(id: (v: string) => number): (v: string) => number {
     } else if (v === n3) {
       k = i3; n3 = n2; i3 = i2; n2 = n1; i2 = i1; n1 = n0; i1 = i0;
     } else {
-      k = id(v);
+      k = find(v, add);
       if (k < 0) return k;
       n3 = n2; i3 = i2; n2 = n1; i2 = i1; n1 = n0; i1 = i0;
     }
@@ -260,12 +261,18 @@ export function editableUseDef(graph: Graph): EditableUseDef {
   for (const [j, refs] of bodies) ownerReads.set(nodes[j]!, refs);
   const unsorted = new Set<number>();
   const tableId = ids.id;
-  const idIn = recentLookup((v: string): number => { const id = tableId(v); return id >= 0 ? id : (extra.get(v) ?? -1); });
-  const idAdd = (v: string): number => {
-    let id = idIn(v);
-    if (id < 0) { id = baseSize + extra.size; extra.set(v, id); prod[id] = undefined; inits[id] = undefined; readOver[id] = undefined; }
+  const lookup = recentLookup((v: string, add: boolean): number => {
+    let id = tableId(v);
+    if (id >= 0) return id;
+    id = extra.get(v) ?? -1;
+    if (id >= 0 || !add) return id;
+    // a name new since the build (a bias a fold made): remembered by the look-up like any other
+    id = baseSize + extra.size;
+    extra.set(v, id); prod[id] = undefined; inits[id] = undefined; readOver[id] = undefined;
     return id;
-  };
+  });
+  const idIn = (v: string): number => lookup(v);
+  const idAdd = (v: string): number => lookup(v, true);
   const flagsAt = (id: number): number => flagOver.get(id) ?? (id < baseSize ? flags[id]! : 0);
   const readerCountAt = (id: number): number => {
     const o = readOver[id];
