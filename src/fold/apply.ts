@@ -135,34 +135,28 @@ export function flushPending(ctx: FoldContext): void {
 
 /**
  * One graph's index follows a sweep's edits; owners of an edited body read what the body now reads. The edits are
- * told one at a time, in the order they were applied, each layer's rewiring before the nodes it replaces go (see
- * logEdit): the
- * few names one fold touches are then asked about together, and the index's last-name look-up answers most of
- * them without hashing the name again (the same changes told as a removal pass, a rewiring pass and an addition
- * pass over the whole sweep asked about every name afresh, each a probe into a table larger than the cache).
+ * told one at a time, in the order they were applied (see logEdit), each node brought from the wiring it had
+ * before to the wiring it has now, which keeps the index exact whatever came before: a node changed by a later
+ * edit too, or removed by one, is then told again with nothing left to change, or removed as it now is. Told
+ * together, the few names one fold touches are mostly answered by the index's last-name look-up without being
+ * hashed again (told as a removal pass, a rewiring pass and an addition pass over the whole sweep, every name was
+ * a probe into a table larger than the processor's cache).
  */
 function updateIndex(ctx: FoldContext, live: LiveScope, p: PendingGraph, edited: Set<EditableUseDef>): void {
   const ud = live.ud;
   edited.add(ud);
-  let added: Set<Node> | undefined; // nodes inserted by this sweep (added as they are now, never rewired)
   const log = p.log, kinds = p.logKinds;
   for (let k = 0; k < log.length; k++) {
     switch (kinds[k]) {
-      case LOG_INSERT: (added ??= new Set()).add(log[k] as Node); ud.addNode(log[k] as Node); break;
-      case LOG_CHANGE: {
-        const n = log[k] as Node;
-        // a node removed as well is told once, as removed, with the wiring the index knows
-        if (p.removed.has(n) || added?.has(n)) break;
-        // (a node changed by two edits of the sweep is told twice, from the same wiring: the second time changes
-        // nothing; deleting it from the map instead made the map shrink and rehash as a sweep's entries went)
-        const was = p.rewired.get(n);
-        if (was !== undefined) ud.rewire(n, was);
-        break;
-      }
+      case LOG_INSERT: ud.addNode(log[k] as Node); break;
+      case LOG_REWIRE: ud.rewire(log[k] as Node, { inputs: log[k + 1] as string[], outputs: log[k + 2] as string[] }); k += 2; break;
       case LOG_INITIALIZER: ud.addInitializer(log[k] as Tensor); break;
-      case LOG_REMOVE: {
-        const n = log[k] as Node;
-        ud.removeNode(n, p.rewired.get(n));
+      case LOG_REMOVE: ud.removeNode(log[k] as Node); break;
+      case LOG_RELEASED: {
+        // (the parameters of the norm just removed: the look-up still holds them)
+        const v = log[k] as string;
+        live.released.push(v);
+        live.releasedIds.push(ud.idOf(v));
         break;
       }
     }
@@ -175,37 +169,29 @@ function updateIndex(ctx: FoldContext, live: LiveScope, p: PendingGraph, edited:
   }
 }
 
-// What PendingGraph.log holds at each place (in logKinds).
-const LOG_INSERT = 0, LOG_CHANGE = 1, LOG_INITIALIZER = 2, LOG_REMOVE = 3;
+// What PendingGraph.log holds at each place (in logKinds). A rewired node is followed by the inputs and outputs it
+// had before (two places of kind LOG_WIRING).
+const LOG_INSERT = 0, LOG_REWIRE = 1, LOG_WIRING = 2, LOG_INITIALIZER = 3, LOG_REMOVE = 4, LOG_RELEASED = 5;
 
 /**
- * Log an edit for the driver's index (see updateIndex): inserted nodes, changed nodes, new initializers, then the
- * nodes removed, so that a layer's rewiring and new bias are told before the norm it replaces goes. Returns where
- * its entries start (for unlogEdit).
+ * Log an edit for the driver's index (see updateIndex), before it is applied: inserted nodes, rewired nodes with
+ * their wiring before, new initializers, the nodes removed, then the names released; so a layer's rewiring and
+ * new bias are told before the norm it replaces goes, and the norm's parameters are numbered right after the
+ * index dropped them as its inputs. Returns where its entries start.
  */
 function logEdit(p: PendingGraph, edit: Edit): number {
   const log = p.log, kinds = p.logKinds, at = log.length;
   for (let k = 0; k < edit.inserts.length; k++) { log.push(edit.inserts[k]!.node); kinds.push(LOG_INSERT); }
-  for (let k = 0; k < edit.changes.length; k++) { log.push(edit.changes[k]!.node); kinds.push(LOG_CHANGE); }
+  for (let k = 0; k < edit.changes.length; k++) {
+    const c = edit.changes[k]!;
+    if (!c.inputs && !c.outputs) continue;
+    log.push(c.node, c.node.inputs, c.node.outputs);
+    kinds.push(LOG_REWIRE, LOG_WIRING, LOG_WIRING);
+  }
   for (let k = 0; k < edit.newInitializers.length; k++) { log.push(edit.newInitializers[k]!); kinds.push(LOG_INITIALIZER); }
   for (let k = 0; k < edit.removeNodes.length; k++) { log.push(edit.removeNodes[k]!); kinds.push(LOG_REMOVE); }
+  for (let k = 0; k < edit.released.length; k++) { log.push(edit.released[k]!); kinds.push(LOG_RELEASED); }
   return at;
-}
-
-/** Take back the entries logEdit made for an edit from `at` on (an edit undone right after it was applied: the last ones). */
-function unlogEdit(p: PendingGraph, edit: Edit, at: number): void {
-  const entries: Array<[Node | Tensor, number]> = [
-    ...edit.inserts.map((i): [Node, number] => [i.node, LOG_INSERT]), ...edit.changes.map((c): [Node, number] => [c.node, LOG_CHANGE]),
-    ...edit.newInitializers.map((t): [Tensor, number] => [t, LOG_INITIALIZER]), ...edit.removeNodes.map((n): [Node, number] => [n, LOG_REMOVE]),
-  ];
-  const log = p.log, kinds = p.logKinds;
-  if (log.length === at + entries.length) { log.length = at; kinds.length = at; return; }
-  // (not the last edit any more: each entry is taken out where it is, the latest first)
-  for (let k = entries.length - 1; k >= 0; k--) {
-    let i = log.length - 1;
-    while (i >= 0 && !(log[i] === entries[k]![0] && kinds[i] === entries[k]![1])) i--;
-    if (i >= 0) { log.splice(i, 1); kinds.splice(i, 1); }
-  }
 }
 
 /**
@@ -233,16 +219,13 @@ export function applyEdit(ctx: FoldContext, edit: Edit, inPlace: boolean, undoab
   // (the index is told the edits in the order they were applied, see updateIndex)
   if (ctx.live) {
     const p = pendingOf(ctx, g);
-    const at = logEdit(p, edit);
-    if (undo) undo.push(() => unlogEdit(p, edit, at));
+    const at = logEdit(p, edit), end = p.log.length;
+    // (undone in the order applied, last first: the edit's entries are where they were put)
+    if (undo) undo.push(() => { p.log.splice(at, end - at); p.logKinds.splice(at, end - at); });
   }
   for (let k = 0; k < edit.changes.length; k++) {
     const c = edit.changes[k]!;
     if (undo) save(undo, c.node, ['opType', 'inputs', 'outputs', 'attributes']);
-    if ((c.inputs || c.outputs) && ctx.live) {
-      const rewired = pendingOf(ctx, g).rewired;
-      if (!rewired.has(c.node)) rewired.set(c.node, { inputs: c.node.inputs, outputs: c.node.outputs });
-    }
     if (c.opType !== undefined) c.node.opType = c.opType;
     if (c.inputs) c.node.inputs = c.inputs;
     if (c.outputs) c.node.outputs = c.outputs;
@@ -306,7 +289,7 @@ function touchConstantNode(undo: Array<() => void> | undefined, ref: ConstRef): 
 /** The pending list changes of a graph (made on first use). */
 function pendingOf(ctx: FoldContext, g: Graph): PendingGraph {
   let p = ctx.pending.get(g);
-  if (!p) { p = { log: [], logKinds: [], rewired: new Map(), removed: new Set(), inserts: new Map(), initializers: [], inputs: [] }; ctx.pending.set(g, p); }
+  if (!p) { p = { log: [], logKinds: [], removed: new Set(), inserts: new Map(), initializers: [], inputs: [] }; ctx.pending.set(g, p); }
   return p;
 }
 

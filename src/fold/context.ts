@@ -1,6 +1,6 @@
 // State shared by the analysis and the rewrites of one run over a model.
 import type { Graph, Model, Node, Tensor, ValueInfo } from '../graph/ir.js';
-import type { EditableUseDef, Wiring } from '../graph/usedef.js';
+import type { EditableUseDef } from '../graph/usedef.js';
 import { opsetVersion } from '../graph/ir.js';
 import { nameTable } from '../graph/names.js';
 import type { FoldOptions, ReasonCode } from './types.js';
@@ -48,18 +48,23 @@ export interface NameSet {
 export interface LiveScope {
   scope: Scope;
   ud: EditableUseDef;
+  /**
+   * Constants this graph's folds released (see Edit.released), for the clean-up, each with the number this index
+   * gave it when the fold was told (-1: unknown to it), so the clean-up need not hash the name again.
+   */
+  released: string[];
+  releasedIds: number[];
 }
 
 export interface PendingGraph {
   /**
-   * For the driver's index (see FoldContext.live): the nodes and initializers each edit added, changed or removed,
-   * edit by edit in the order they were applied (a flat list, no object per edit: a sweep of 10^5 folds kept every
-   * edit alive until its end), and what each entry is (see apply.ts, logEdit).
+   * For the driver's index (see FoldContext.live): what each edit added, rewired (with the wiring before) or
+   * removed, and the names it released, edit by edit in the order they were applied; a flat list, no object per
+   * edit (a sweep of 10^5 folds kept every edit alive until its end), with what each entry is in logKinds (see
+   * apply.ts, logEdit).
    */
-  log: Array<Node | Tensor>;
+  log: Array<Node | Tensor | string | readonly string[]>;
   logKinds: number[];
-  /** Nodes whose inputs or outputs an edit changed in place, with their wiring before the first such change. */
-  rewired: Map<Node, Wiring>;
   removed: Set<Node>;
   inserts: Map<Node, Node[]>;
   initializers: Tensor[];

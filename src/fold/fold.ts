@@ -59,7 +59,7 @@ function cloneForRun(ctx: FoldContext, edit: Edit, m: RuleMatch): RuleMatch[] {
 }
 
 /** One sweep over every graph; returns whether anything changed or was put off to the next sweep. */
-function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], released: string[], gone: string[], watched: Watched): boolean {
+function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], gone: string[], watched: Watched): boolean {
   let changed = false;
   const prove = ctx.options.prove;
   const inPlace = ctx.options.reuseBuffers ?? true;
@@ -147,7 +147,6 @@ function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], release
         folded.push(ledgerEntry(ctx, fold, x.node, x.node.opType, entryKind(scope, x.node), x.kind === 'layer-norm' ? layerNormHint(targets) : hint,
           k === 0 && o.clone ? cloneCost(o.matches[0]!) : 0));
       }
-      for (let k = 0; k < edit.released.length; k++) released.push(edit.released[k]!);
       for (let k = 0; k < edit.goneValues.length; k++) gone.push(edit.goneValues[k]!);
     }
   }
@@ -218,7 +217,7 @@ export function foldModel(model: Model, options: FoldOptions = {}): { model: Mod
   const bytesBefore = weightBytes(model);
   // One set of scopes for the whole run: each graph's index is built once and follows the edits.
   const scopes = buildScopes(model, ctx.labels, ctx.options.inputShapes, editableUseDef);
-  ctx.live = new Map(scopes.map((scope) => [scope.graph, { scope, ud: scope.ud as EditableUseDef }]));
+  ctx.live = new Map(scopes.map((scope) => [scope.graph, { scope, ud: scope.ud as EditableUseDef, released: [], releasedIds: [] }]));
   // Ledger order: where each node stood in the original model (by graph path, then ledger name).
   // (per path a flat table of labels, names.ts, and each label's place: a Map of 10^5 labels costs more to fill)
   const order = new Map<string, { labels: NameTable; at: number[] }>();
@@ -244,13 +243,13 @@ export function foldModel(model: Model, options: FoldOptions = {}): { model: Mod
     return id < 0 ? undefined : inPath!.at[id];
   };
   const folded: LedgerEntry[] = [];
-  // (names collected as lists: the clean-up looks them up, and needs a set only for a graph with value_info)
-  const released: string[] = [];
+  // (the names of values gone, as a list: the clean-up needs a set of them only for a graph with value_info; the
+  // names each fold released are kept by the index of its graph, see LiveScope)
   const gone: string[] = [];
   const watched: Watched = { nodes: [], graphs: [] };
-  for (let pass = 0; pass < MAX_PASSES && sweep(ctx, scopes, folded, released, gone, watched); pass++) { /* until nothing changes */ }
+  for (let pass = 0; pass < MAX_PASSES && sweep(ctx, scopes, folded, gone, watched); pass++) { /* until nothing changes */ }
   if (folded.length) {
-    cleanUp(model, released, gone, ctx);
+    cleanUp(gone, ctx);
     validateModel(model);
   }
   // Every normalization still in the model, with its reason, from the same analysis audit runs.

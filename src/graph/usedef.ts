@@ -158,10 +158,14 @@ function lastLookup(id: (v: string) => number): (v: string) => number {
  * one for a name not known yet; else -1 for it, which is not remembered: the name may be added later). Ids never
  * change once given.
  */
-function recentLookup(find: (v: string, add: boolean) => number): (v: string, add?: boolean) => number {
+function recentLookup(find: (v: string, add: boolean) => number): { lookup: (v: string, add?: boolean) => number; remember: (v: string, id: number) => void } {
   let n0: string | undefined, n1: string | undefined, n2: string | undefined, n3: string | undefined;
   let i0 = -1, i1 = -1, i2 = -1, i3 = -1;
-  return (v, add = false) => {
+  const remember = (v: string, id: number): void => {
+    n3 = n2; i3 = i2; n2 = n1; i2 = i1; n1 = n0; i1 = i0;
+    n0 = v; i0 = id;
+  };
+  const lookup = (v: string, add = false): number => {
     if (v === n0) return i0;
     let k: number;
     // a name found again moves to the front; a new one goes there and the oldest drops out
@@ -177,6 +181,7 @@ function recentLookup(find: (v: string, add: boolean) => number): (v: string, ad
     n0 = v; i0 = k;
     return k;
   };
+  return { lookup, remember };
 }
 
 /** The reader list of a value nobody reads any more (shared, never changed: adding a reader makes a new list). */
@@ -227,6 +232,14 @@ export interface EditableUseDef extends UseDef {
   readerCount(v: string): number;
   /** Whether the name was ever a value name of the graph (an input, output, initializer or node input/output). */
   knows(v: string): boolean;
+  /**
+   * The index's number for a value name, -1 for a name it never knew (a number, once given, never changes). With
+   * remember(), a caller that will ask about a name long after it last did is answered without the name being
+   * hashed again.
+   */
+  idOf(v: string): number;
+  /** Answer the next questions about `v` as about number `id`, which idOf(v) gave on this index. */
+  remember(v: string, id: number): void;
   /** `n` left the graph (`was`: its wiring as last told, when it changed since). */
   removeNode(n: Node, was?: Wiring): void;
   /** `n` joined the graph, wired as it is now. */
@@ -261,7 +274,7 @@ export function editableUseDef(graph: Graph): EditableUseDef {
   for (const [j, refs] of bodies) ownerReads.set(nodes[j]!, refs);
   const unsorted = new Set<number>();
   const tableId = ids.id;
-  const lookup = recentLookup((v: string, add: boolean): number => {
+  const { lookup, remember } = recentLookup((v: string, add: boolean): number => {
     let id = tableId(v);
     if (id >= 0) return id;
     id = extra.get(v) ?? -1;
@@ -330,6 +343,8 @@ export function editableUseDef(graph: Graph): EditableUseDef {
     consumers: (v) => { const id = idIn(v); if (id < 0) return []; const o = readOver[id]; return o ? o.slice() : readersAt(id); },
     readerCount: (v) => { const id = idIn(v); return id < 0 ? 0 : readerCountAt(id); },
     knows: (v) => idIn(v) >= 0,
+    idOf: idIn,
+    remember,
     isGraphOutput: (v) => { const id = idIn(v); return id >= 0 && (flagsAt(id) & IS_OUTPUT) !== 0; },
     isGraphInput: (v) => { const id = idIn(v); return id >= 0 && (flagsAt(id) & IS_INPUT) !== 0; },
     defines: (v) => { const id = idIn(v); return id >= 0 && (prod[id] !== undefined || inits[id] !== undefined || (flagsAt(id) & IS_INPUT) !== 0); },
