@@ -154,18 +154,17 @@ function lastLookup(id: (v: string) => number): (v: string) => number {
  * norm's input and output, the layer's weight) several times, with other names in between, and in a graph of 10^5
  * nodes each lookup that misses this costs a hash of the name and a probe into a table larger than the processor's
  * cache. Most questions repeat the name just asked about: it is compared first, since comparing two different
- * names of one length (c17, y17, s17, ...) reads their characters. `find(v, add)` gives the id (with `add`, a new
- * one for a name not known yet; else -1 for it, which is not remembered: the name may be added later). Ids never
- * change once given.
+ * names of one length (c17, y17, s17, ...) reads their characters. (Ids never change once given, and a name not
+ * found is not remembered: it may be added later, and is then remembered by whoever adds it.)
  */
-function recentLookup(find: (v: string, add: boolean) => number): { lookup: (v: string, add?: boolean) => number; remember: (v: string, id: number) => void } {
+function recentLookup(find: (v: string) => number): { lookup: (v: string) => number; remember: (v: string, id: number) => void } {
   let n0: string | undefined, n1: string | undefined, n2: string | undefined, n3: string | undefined;
   let i0 = -1, i1 = -1, i2 = -1, i3 = -1;
   const remember = (v: string, id: number): void => {
     n3 = n2; i3 = i2; n2 = n1; i2 = i1; n1 = n0; i1 = i0;
     n0 = v; i0 = id;
   };
-  const lookup = (v: string, add = false): number => {
+  const lookup = (v: string): number => {
     if (v === n0) return i0;
     let k: number;
     // a name found again moves to the front; a new one goes there and the oldest drops out
@@ -174,7 +173,7 @@ function recentLookup(find: (v: string, add: boolean) => number): { lookup: (v: 
     } else if (v === n3) {
       k = i3; n3 = n2; i3 = i2; n2 = n1; i2 = i1; n1 = n0; i1 = i0;
     } else {
-      k = find(v, add);
+      k = find(v);
       if (k < 0) return k;
       n3 = n2; i3 = i2; n2 = n1; i2 = i1; n1 = n0; i1 = i0;
     }
@@ -260,32 +259,35 @@ export function editableUseDef(graph: Graph): EditableUseDef {
   const baseSize = ids.size;
   // Producer and initializer per id as plain arrays (edits set them); reader lists stay compressed rows until a
   // value's readers change; names new since the build get ids past the table's.
-  const prod: Array<Node | undefined> = new Array(baseSize);
-  const inits: Array<Tensor | undefined> = new Array(baseSize);
+  // (The arrays have room for new names, a bias per layer or so: one that grows copies all of its 10^5 places.
+  // Filled from the start: an array set at scattered ids, or one mostly holes that grows, turns into a slow
+  // dictionary.)
+  const room = baseSize + (nodes.length >> 1) + 16;
+  const prod = new Array<Node | undefined>(room).fill(undefined);
+  const inits = new Array<Tensor | undefined>(room).fill(undefined);
   for (let id = 0; id < baseSize; id++) {
-    prod[id] = producer[id]! >= 0 ? nodes[producer[id]!] : undefined;
-    inits[id] = init[id]! >= 0 ? tensors[init[id]!] : undefined;
+    if (producer[id]! >= 0) prod[id] = nodes[producer[id]!];
+    if (init[id]! >= 0) inits[id] = tensors[init[id]!];
   }
+  // (a map: the names it holds are asked about again, and the engine keeps a string's hash with the string)
   const extra = new Map<string, number>();
   const flagOver = new Map<number, number>();
-  // (filled from the start: an array set at scattered ids, or one mostly holes that grows, turns into a slow dictionary)
-  const readOver: Array<Node[] | undefined> = new Array<Node[] | undefined>(baseSize).fill(undefined);
+  const readOver = new Array<Node[] | undefined>(room).fill(undefined);
   const ownerReads = new Map<Node, string[]>();
   for (const [j, refs] of bodies) ownerReads.set(nodes[j]!, refs);
   const unsorted = new Set<number>();
   const tableId = ids.id;
-  const { lookup, remember } = recentLookup((v: string, add: boolean): number => {
-    let id = tableId(v);
+  const { lookup: idIn, remember } = recentLookup((v: string): number => { const id = tableId(v); return id >= 0 ? id : (extra.get(v) ?? -1); });
+  const idAdd = (v: string): number => {
+    let id = idIn(v);
     if (id >= 0) return id;
-    id = extra.get(v) ?? -1;
-    if (id >= 0 || !add) return id;
     // a name new since the build (a bias a fold made): remembered by the look-up like any other
     id = baseSize + extra.size;
-    extra.set(v, id); prod[id] = undefined; inits[id] = undefined; readOver[id] = undefined;
+    extra.set(v, id);
+    if (id >= prod.length) { prod.push(undefined); inits.push(undefined); readOver.push(undefined); }
+    remember(v, id);
     return id;
-  });
-  const idIn = (v: string): number => lookup(v);
-  const idAdd = (v: string): number => lookup(v, true);
+  };
   const flagsAt = (id: number): number => flagOver.get(id) ?? (id < baseSize ? flags[id]! : 0);
   const readerCountAt = (id: number): number => {
     const o = readOver[id];
@@ -333,7 +335,7 @@ export function editableUseDef(graph: Graph): EditableUseDef {
   const wire = (n: Node, inputs: readonly string[], outputs: readonly string[], on: boolean) => {
     for (const o of outputs) if (o) { if (on) prod[idAdd(o)] = n; else dropOutput(o, n); }
     // (reading a value twice is one read: adding checks the list, and dropping a reader twice is harmless)
-    const reads = ownerReads.has(n) ? readSet(inputs, n) : inputs;
+    const reads = ownerReads.size > 0 && ownerReads.has(n) ? readSet(inputs, n) : inputs; // (most graphs own no bodies)
     for (const v of reads) if (v) { if (on) addReader(v, n); else dropReader(v, n); }
   };
   return {
@@ -352,7 +354,7 @@ export function editableUseDef(graph: Graph): EditableUseDef {
     constantTensor: (v) => initializerOf(v) ?? constantOfNode(producerOf(v)),
     removeNode(n, was) {
       wire(n, was?.inputs ?? n.inputs, was?.outputs ?? n.outputs, false);
-      ownerReads.delete(n);
+      if (ownerReads.size > 0) ownerReads.delete(n);
     },
     addNode(n) {
       if (hasSubgraphs(n)) ownerReads.set(n, bodyReads(n));
@@ -362,7 +364,7 @@ export function editableUseDef(graph: Graph): EditableUseDef {
       for (const o of was.outputs) if (o && !n.outputs.includes(o)) dropOutput(o, n);
       for (const o of n.outputs) if (o) prod[idAdd(o)] = n;
       // (a node's inputs rarely repeat a value: compare the short lists directly)
-      const bodyRefs = ownerReads.get(n);
+      const bodyRefs = ownerReads.size > 0 ? ownerReads.get(n) : undefined;
       if (bodyRefs) {
         const before = readSet(was.inputs, n), after = readSet(n.inputs, n);
         for (const v of before) if (!after.has(v)) dropReader(v, n);
