@@ -33,21 +33,23 @@ export interface Edit {
   released: string[];
   /** The values the rest of the graph reads from the edited region (proof outputs). */
   regionOutputs: string[];
-  /** Runs already removed by this edit (several readers of one run each take it). */
-  removedRuns: Set<object>;
+  /** Runs already removed by this edit (several readers of one run each take it; mostly one, so a list). */
+  removedRuns: object[];
   /** Unchanged nodes the proof region must hold too (the original of a cloned layer). */
   regionNodes: Node[];
 }
 
 export function newEdit(scope: Scope): Edit {
-  return { scope, removeNodes: [], changes: [], inserts: [], tensorValues: [], tensorScales: [], newInitializers: [], goneValues: [], released: [], regionOutputs: [], removedRuns: new Set(), regionNodes: [] };
+  return { scope, removeNodes: [], changes: [], inserts: [], tensorValues: [], tensorScales: [], newInitializers: [], goneValues: [], released: [], regionOutputs: [], removedRuns: [], regionNodes: [] };
 }
 
 /** The pending change record of a node (created on first use). */
 export function changeOf(edit: Edit, node: Node): NodeChange & { inputs: string[]; outputs: string[] } {
-  let c = edit.changes.find((x) => x.node === node);
-  if (!c) { c = { node, inputs: [...node.inputs], outputs: [...node.outputs] }; edit.changes.push(c); }
-  return c as NodeChange & { inputs: string[]; outputs: string[] };
+  const changes = edit.changes;
+  for (let k = 0; k < changes.length; k++) if (changes[k]!.node === node) return changes[k] as NodeChange & { inputs: string[]; outputs: string[] };
+  const c = { node, inputs: node.inputs.slice(), outputs: node.outputs.slice() };
+  changes.push(c);
+  return c;
 }
 
 /**
@@ -84,9 +86,14 @@ export function scaleConstant(ctx: FoldContext, edit: Edit, node: Node, index: n
 export function addConstantInput(ctx: FoldContext, edit: Edit, node: Node, index: number, base: string, dataType: number, values: Float64Array, dims: number[]): void {
   const name = freshName(ctx, base);
   edit.newInitializers.push(makeTensor(name, dims, dataType, values));
-  const inputs = changeOf(edit, node).inputs;
-  while (inputs.length < index) inputs.push('');
-  inputs[index] = name;
+  const c = changeOf(edit, node);
+  // (a list of the new length, '' in any gap: it becomes the node's inputs, and one grown by push holds room for 17)
+  if (index >= c.inputs.length) {
+    const inputs = new Array<string>(index + 1).fill('');
+    for (let k = 0; k < c.inputs.length; k++) inputs[k] = c.inputs[k]!;
+    c.inputs = inputs;
+  }
+  c.inputs[index] = name;
 }
 
 export function makeNode(opType: string, name: string, inputs: string[], outputs: string[]): Node {
@@ -102,18 +109,16 @@ export function flushPending(ctx: FoldContext): void {
   const edited = new Set<EditableUseDef>();
   for (const [g, p] of ctx.pending) {
     const lists = p.removed.size > 0 || p.inserts.size > 0 || p.initializers.length > 0 || p.inputs.length > 0;
-    const inserted: Node[] = [];
     if (lists) {
       const nodes: Node[] = [];
       // An inserted node may have inserts of its own (the bias Add after a cloned layer).
-      const emit = (n: Node, isNew: boolean) => {
+      const emit = (n: Node) => {
         if (!p.removed.has(n)) nodes.push(n);
-        if (isNew) inserted.push(n);
         const after = p.inserts.size ? p.inserts.get(n) : undefined; // (no empty list made per node)
-        if (after) for (const a of after) emit(a, true);
+        if (after) for (const a of after) emit(a);
       };
       const old = g.nodes;
-      for (let i = 0; i < old.length; i++) emit(old[i]!, false);
+      for (let i = 0; i < old.length; i++) emit(old[i]!);
       g.nodes = nodes;
       if (p.initializers.length) g.initializers = g.initializers.concat(p.initializers);
       if (p.inputs.length) g.inputs = g.inputs.concat(p.inputs);
@@ -121,23 +126,41 @@ export function flushPending(ctx: FoldContext): void {
     }
     p.removed.forEach((n) => { ctx.removedNodes.push(n); }); // (forEach: no entry or iterator result made per node)
     const live = ctx.live?.get(g);
-    if (live) updateIndex(ctx, live, p, inserted, edited);
+    if (live) updateIndex(ctx, live, p, edited);
   }
   ctx.pending.clear();
   // reader lists back in node order, once per graph (a graph with many edited bodies is not walked per body)
   for (const ud of edited) ud.settle();
 }
 
-/** One graph's index follows a sweep's edits; owners of an edited body read what the body now reads. */
-function updateIndex(ctx: FoldContext, live: LiveScope, p: PendingGraph, inserted: Node[], edited: Set<EditableUseDef>): void {
+/**
+ * One graph's index follows a sweep's edits; owners of an edited body read what the body now reads. The edits are
+ * told one at a time, in the order they were applied (see logEdit), each node brought from the wiring it had
+ * before to the wiring it has now, which keeps the index exact whatever came before: a node changed by a later
+ * edit too, or removed by one, is then told again with nothing left to change, or removed as it now is. Told
+ * together, the few names one fold touches are mostly answered by the index's last-name look-up without being
+ * hashed again (told as a removal pass, a rewiring pass and an addition pass over the whole sweep, every name was
+ * a probe into a table larger than the processor's cache).
+ */
+function updateIndex(ctx: FoldContext, live: LiveScope, p: PendingGraph, edited: Set<EditableUseDef>): void {
   const ud = live.ud;
   edited.add(ud);
-  const added = new Set(inserted);
-  // (forEach over the set and map: a for-of makes an entry array and an iterator result per node)
-  p.removed.forEach((n) => ud.removeNode(n, p.rewired.get(n)));
-  p.rewired.forEach((was, n) => { if (!p.removed.has(n) && !added.has(n)) ud.rewire(n, was); });
-  for (const n of inserted) ud.addNode(n);
-  for (const t of p.initializers) ud.addInitializer(t);
+  const log = p.log, kinds = p.logKinds;
+  for (let k = 0; k < log.length; k++) {
+    switch (kinds[k]) {
+      case LOG_INSERT: ud.addNode(log[k] as Node); break;
+      case LOG_REWIRE: ud.rewire(log[k] as Node, { inputs: log[k + 1] as string[], outputs: log[k + 2] as string[] }); k += 2; break;
+      case LOG_INITIALIZER: ud.addInitializer(log[k] as Tensor); break;
+      case LOG_REMOVE: ud.removeNode(log[k] as Node); break;
+      case LOG_RELEASED: {
+        // (the parameters of the norm just removed: the look-up still holds them)
+        const v = log[k] as string;
+        live.released.push(v);
+        live.releasedIds.push(ud.idOf(v));
+        break;
+      }
+    }
+  }
   for (const v of p.inputs) ud.addGraphInput(v.name);
   for (let s = live.scope; s.owner && s.parent; s = s.parent) {
     const outer = ctx.live!.get(s.parent.graph)!.ud;
@@ -146,49 +169,63 @@ function updateIndex(ctx: FoldContext, live: LiveScope, p: PendingGraph, inserte
   }
 }
 
+// What PendingGraph.log holds at each place (in logKinds). A rewired node is followed by the inputs and outputs it
+// had before (two places of kind LOG_WIRING).
+const LOG_INSERT = 0, LOG_REWIRE = 1, LOG_WIRING = 2, LOG_INITIALIZER = 3, LOG_REMOVE = 4, LOG_RELEASED = 5;
+
+/**
+ * Log an edit for the driver's index (see updateIndex), before it is applied: inserted nodes, rewired nodes with
+ * their wiring before, new initializers, the nodes removed, then the names released; so a layer's rewiring and
+ * new bias are told before the norm it replaces goes, and the norm's parameters are numbered right after the
+ * index dropped them as its inputs. Returns where its entries start.
+ */
+function logEdit(p: PendingGraph, edit: Edit): number {
+  const log = p.log, kinds = p.logKinds, at = log.length;
+  for (let k = 0; k < edit.inserts.length; k++) { log.push(edit.inserts[k]!.node); kinds.push(LOG_INSERT); }
+  for (let k = 0; k < edit.changes.length; k++) {
+    const c = edit.changes[k]!;
+    if (!c.inputs && !c.outputs) continue;
+    log.push(c.node, c.node.inputs, c.node.outputs);
+    kinds.push(LOG_REWIRE, LOG_WIRING, LOG_WIRING);
+  }
+  for (let k = 0; k < edit.newInitializers.length; k++) { log.push(edit.newInitializers[k]!); kinds.push(LOG_INITIALIZER); }
+  for (let k = 0; k < edit.removeNodes.length; k++) { log.push(edit.removeNodes[k]!); kinds.push(LOG_REMOVE); }
+  for (let k = 0; k < edit.released.length; k++) { log.push(edit.released[k]!); kinds.push(LOG_RELEASED); }
+  return at;
+}
+
 /**
  * Apply an edit to its graph. Returns the undo (which restores every object, origins included); with
- * `undoable: false` (a fold that will not be proven) nothing is recorded for it and the undo does nothing.
+ * `undoable` false (a fold that will not be proven) nothing is recorded for it and the undo does nothing.
  */
-export function applyEdit(ctx: FoldContext, edit: Edit, opts: { inPlace: boolean; undoable?: boolean }): () => void {
-  const g = edit.scope.graph;
-  const undoable = opts.undoable ?? true;
-  const undo: Array<() => void> = [];
-  const save = <T extends object>(obj: T, keys: Array<keyof T>) => {
-    if (!undoable) return;
-    const old = keys.map((k) => obj[k]);
-    const origin = (obj as { origin?: unknown }).origin;
-    undo.push(() => {
-      keys.forEach((k, i) => { obj[k] = old[i] as T[keyof T]; });
-      if (origin !== undefined) (obj as { origin?: unknown }).origin = origin;
-    });
-  };
-  const updates = [
-    ...edit.tensorValues.map((tv) => ({ ref: tv.ref, write: () => storeValues(tv.ref.tensor, tv.values, tv.dims, opts.inPlace) })),
-    ...edit.tensorScales.map((ts) => ({ ref: ts.ref, write: () => scaleTensor(ts.ref.tensor, ts.map, ts.scale, opts.inPlace, ts.guard) })),
-  ];
-  for (const u of updates) {
-    const t = u.ref.tensor;
-    save(t, ['storage', 'dims', 'dataType']);
-    u.write();
-    const cn = u.ref.constantNode;
-    if (cn) {
-      save(cn, ['attributes']);
-      for (const a of cn.attributes) if (a.value.type === 'TENSOR' && a.value.t === t) { save(a, ['value']); touch(a); }
-      touch(cn);
-    }
+export function applyEdit(ctx: FoldContext, edit: Edit, inPlace: boolean, undoable = true): () => void {
+  // (an unproven fold takes the plain path: no undo, so no closure or saved copy made per fold)
+  const undo: Array<() => void> | undefined = undoable ? [] : undefined;
+  for (let k = 0; k < edit.tensorValues.length; k++) {
+    const tv = edit.tensorValues[k]!;
+    const t = tv.ref.tensor;
+    if (undo) save(undo, t, ['storage', 'dims', 'dataType']);
+    storeValues(t, tv.values, tv.dims, inPlace);
+    touchConstantNode(undo, tv.ref);
   }
-  const pending = (): PendingGraph => {
-    let p = ctx.pending.get(g);
-    if (!p) { p = { rewired: new Map(), removed: new Set(), inserts: new Map(), initializers: [], inputs: [] }; ctx.pending.set(g, p); }
-    return p;
-  };
-  for (const c of edit.changes) {
-    save(c.node, ['opType', 'inputs', 'outputs', 'attributes']);
-    if ((c.inputs || c.outputs) && ctx.live) {
-      const rewired = pending().rewired;
-      if (!rewired.has(c.node)) rewired.set(c.node, { inputs: c.node.inputs, outputs: c.node.outputs });
-    }
+  for (let k = 0; k < edit.tensorScales.length; k++) {
+    const ts = edit.tensorScales[k]!;
+    const t = ts.ref.tensor;
+    if (undo) save(undo, t, ['storage', 'dims', 'dataType']);
+    scaleTensor(t, ts.map, ts.scale, inPlace, ts.guard);
+    touchConstantNode(undo, ts.ref);
+  }
+  const g = edit.scope.graph;
+  // (the index is told the edits in the order they were applied, see updateIndex)
+  if (ctx.live) {
+    const p = pendingOf(ctx, g);
+    const at = logEdit(p, edit), end = p.log.length;
+    // (undone in the order applied, last first: the edit's entries are where they were put)
+    if (undo) undo.push(() => { p.log.splice(at, end - at); p.logKinds.splice(at, end - at); });
+  }
+  for (let k = 0; k < edit.changes.length; k++) {
+    const c = edit.changes[k]!;
+    if (undo) save(undo, c.node, ['opType', 'inputs', 'outputs', 'attributes']);
     if (c.opType !== undefined) c.node.opType = c.opType;
     if (c.inputs) c.node.inputs = c.inputs;
     if (c.outputs) c.node.outputs = c.outputs;
@@ -197,17 +234,17 @@ export function applyEdit(ctx: FoldContext, edit: Edit, opts: { inPlace: boolean
   }
   if (edit.removeNodes.length || edit.inserts.length || edit.newInitializers.length) {
     // List changes wait for flushPending, so a sweep of many folds rebuilds each list once.
-    const pg = pending();
-    for (const n of edit.removeNodes) pg.removed.add(n);
+    const pg = pendingOf(ctx, g);
+    for (let k = 0; k < edit.removeNodes.length; k++) pg.removed.add(edit.removeNodes[k]!);
     for (const ins of edit.inserts) pg.inserts.set(ins.after, [...(pg.inserts.get(ins.after) ?? []), ins.node]);
     const initsAt = pg.initializers.length, inputsAt = pg.inputs.length;
-    pg.initializers.push(...edit.newInitializers);
+    for (let k = 0; k < edit.newInitializers.length; k++) pg.initializers.push(edit.newInitializers[k]!);
     // Before IR version 4 every initializer of the main graph must also be a graph input.
     const newInputs = ctx.irVersion < 4 && !edit.scope.parent
       ? edit.newInitializers.map((t): ValueInfo => ({ name: t.name, elemType: t.dataType, shape: [...t.dims], docString: '', extra: [] }))
       : [];
-    pg.inputs.push(...newInputs);
-    if (undoable) undo.push(() => {
+    for (let k = 0; k < newInputs.length; k++) pg.inputs.push(newInputs[k]!);
+    if (undo) undo.push(() => {
       for (const n of edit.removeNodes) pg.removed.delete(n);
       for (const ins of edit.inserts) pg.inserts.set(ins.after, (pg.inserts.get(ins.after) ?? []).filter((x) => x !== ins.node));
       // undone right after it was applied (a failed proof, or a proven fold applied again in place), the edit's
@@ -219,8 +256,41 @@ export function applyEdit(ctx: FoldContext, edit: Edit, opts: { inPlace: boolean
       else pg.inputs = pg.inputs.filter((v) => !newInputs.includes(v));
     });
   }
-  for (const ins of edit.inserts) ctx.generated.add(ins.node);
-  return () => { for (let i = undo.length - 1; i >= 0; i--) undo[i]!(); };
+  for (let k = 0; k < edit.inserts.length; k++) ctx.generated.add(edit.inserts[k]!.node);
+  return undo ? () => { for (let i = undo.length - 1; i >= 0; i--) undo[i]!(); } : NO_UNDO;
+}
+
+const NO_UNDO = (): void => {};
+
+/** Record how `obj` is now (the named fields and its origin), for the undo. */
+function save<T extends object>(undo: Array<() => void>, obj: T, keys: Array<keyof T>): void {
+  const old = keys.map((k) => obj[k]);
+  const origin = (obj as { origin?: unknown }).origin;
+  undo.push(() => {
+    keys.forEach((k, i) => { obj[k] = old[i] as T[keyof T]; });
+    if (origin !== undefined) (obj as { origin?: unknown }).origin = origin;
+  });
+}
+
+/** A tensor held by a Constant node changed: the node and its attribute are re-encoded too. */
+function touchConstantNode(undo: Array<() => void> | undefined, ref: ConstRef): void {
+  const cn = ref.constantNode;
+  if (!cn) return;
+  if (undo) save(undo, cn, ['attributes']);
+  for (const a of cn.attributes) {
+    if (a.value.type === 'TENSOR' && a.value.t === ref.tensor) {
+      if (undo) save(undo, a, ['value']);
+      touch(a);
+    }
+  }
+  touch(cn);
+}
+
+/** The pending list changes of a graph (made on first use). */
+function pendingOf(ctx: FoldContext, g: Graph): PendingGraph {
+  let p = ctx.pending.get(g);
+  if (!p) { p = { log: [], logKinds: [], removed: new Set(), inserts: new Map(), initializers: [], inputs: [] }; ctx.pending.set(g, p); }
+  return p;
 }
 
 // ---- proof regions ------------------------------------------------------------------------------------

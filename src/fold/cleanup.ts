@@ -1,43 +1,35 @@
 // After folding: drop initializers and Constant nodes nobody reads any more, and the value_info of values
 // that no longer exist. Graph inputs and outputs, metadata, doc strings and opsets are left as they were;
 // only what a fold released is considered, so unused tensors the model already had stay.
-import type { Graph, Model, Node, Tensor } from '../graph/ir.js';
+import type { Graph, Node, Tensor } from '../graph/ir.js';
 import { touch } from '../graph/edit.js';
-import { buildScopes, type Scope } from './scope.js';
-import type { FoldContext } from './context.js';
+import type { EditableUseDef } from '../graph/usedef.js';
+import type { Scope } from './scope.js';
+import type { FoldContext, LiveScope } from './context.js';
 
 /**
- * With the fold driver's context (its scopes' indexes current), the clean-up looks up the released names instead
- * of rebuilding every index, and tells the indexes what it dropped.
+ * With the fold driver's context (its scopes' indexes current, and the names each graph's folds released, see
+ * LiveScope), the clean-up looks up the released names instead of rebuilding every index, and tells the indexes
+ * what it dropped. A name is looked for in every graph, as a body's fold may release a weight of the graph around it.
  */
-export function cleanUp(model: Model, released: readonly string[], goneValues: readonly string[], ctx?: FoldContext): void {
-  const scopes = ctx?.live ? [...ctx.live.values()].map((l) => l.scope) : buildScopes(model);
-  // the tensors to drop, and their names (initializer names are unique in a valid graph); `seen` keeps a tensor from
-  // coming twice when there is no driver's index to tell
-  const dropInits = new Map<Graph, { list: Tensor[]; seen?: Set<Tensor>; names: string[] }>();
+export function cleanUp(goneValues: readonly string[], ctx: FoldContext): void {
+  const lives = [...ctx.live!.values()];
+  let releasedCount = 0;
+  for (const l of lives) releasedCount += l.released.length;
+  // the tensors to drop, and their names (initializer names are unique in a valid graph; the index is told at once,
+  // so a tensor comes here once)
+  const dropInits = new Map<Graph, { list: Tensor[]; names: string[] }>();
   const dropNodes = new Map<Graph, Set<Node>>();
   const gone = [...goneValues];
   let releasedSet: Set<string> | undefined;
-  // (the driver's indexes count readers without making the list)
-  const readerCount = new Map(scopes.map((s) => {
-    const live = ctx?.live?.get(s.graph);
-    return [s, live ? live.ud.readerCount : (v: string) => s.ud.consumers(v).length] as const;
-  }));
-  const unread = (s: Scope, v: string) => readerCount.get(s)!(v) === 0 && !s.ud.isGraphOutput(v) && !s.ud.isGraphInput(v);
+  const unread = (ud: EditableUseDef, v: string) => ud.readerCount(v) === 0 && !ud.isGraphOutput(v) && !ud.isGraphInput(v);
   // the names of values that no longer exist matter only to graphs that declare value_info
-  const withInfos = scopes.some((s) => s.graph.valueInfo.length > 0);
-  const dropInit = (s: Scope, t: Tensor) => {
-    const ud = ctx?.live?.get(s.graph)?.ud;
+  const withInfos = lives.some((l) => l.scope.graph.valueInfo.length > 0);
+  const dropInit = (s: Scope, ud: EditableUseDef, t: Tensor) => {
+    // the driver's index is told at once, while the name was just looked up (a lookup later would hash it again)
+    ud.removeInitializer(t.name);
     let d = dropInits.get(s.graph);
-    if (!d) dropInits.set(s.graph, d = { list: [], seen: ud ? undefined : new Set(), names: [] });
-    if (ud) {
-      // the driver's index is told at once, while the name was just looked up (a lookup later would hash it again);
-      // the name then defines no initializer, so a tensor comes here once (a set of 10^5 tensors grew slowly)
-      ud.removeInitializer(t.name);
-    } else {
-      if (d.seen!.has(t)) return;
-      d.seen!.add(t);
-    }
+    if (!d) dropInits.set(s.graph, d = { list: [], names: [] });
     d.list.push(t);
     if (!withInfos) return;
     d.names.push(t.name);
@@ -48,31 +40,39 @@ export function cleanUp(model: Model, released: readonly string[], goneValues: r
     dropNodes.get(s.graph)!.add(n);
     gone.push(v);
   };
-  for (const s of scopes) {
-    if (released.length < s.graph.initializers.length + s.graph.nodes.length) {
-      // fewer names released than the graph holds: look each one up
-      for (let i = 0; i < released.length; i++) {
-        const v = released[i]!;
-        if (!s.ud.defines(v) || !unread(s, v)) continue;
-        const t = s.ud.initializer(v);
-        if (t) dropInit(s, t);
-        const p = s.ud.producer(v);
-        if (p && p.opType === 'Constant' && p.outputs[0] === v) dropConstant(s, p, v);
+  const consider = (s: Scope, ud: EditableUseDef, v: string) => {
+    if (!ud.defines(v) || !unread(ud, v)) return;
+    const t = ud.initializer(v);
+    if (t) dropInit(s, ud, t);
+    const p = ud.producer(v);
+    if (p && p.opType === 'Constant' && p.outputs[0] === v) dropConstant(s, p, v);
+  };
+  for (const live of lives) {
+    const s = live.scope, ud = live.ud;
+    if (releasedCount < s.graph.initializers.length + s.graph.nodes.length) {
+      // fewer names released than the graph holds: look each one up (a name this graph's folds released by the
+      // number its index gave it then: not hashed again)
+      for (const by of lives) {
+        for (let i = 0; i < by.released.length; i++) {
+          const v = by.released[i]!;
+          if (by === live && by.releasedIds[i]! >= 0) ud.remember(v, by.releasedIds[i]!);
+          consider(s, ud, v);
+        }
       }
       continue;
     }
-    const isReleased = releasedSet ??= new Set(released);
-    for (const t of s.graph.initializers) if (isReleased.has(t.name) && unread(s, t.name)) dropInit(s, t);
+    const isReleased = releasedSet ??= new Set(lives.flatMap((l) => l.released));
+    for (const t of s.graph.initializers) if (isReleased.has(t.name) && unread(ud, t.name)) dropInit(s, ud, t);
     for (const n of s.graph.nodes) {
       const v = n.outputs[0];
-      if (n.opType === 'Constant' && v && isReleased.has(v) && unread(s, v)) dropConstant(s, n, v);
+      if (n.opType === 'Constant' && v && isReleased.has(v) && unread(ud, v)) dropConstant(s, n, v);
     }
   }
   for (const [g, d] of dropInits) { g.initializers = without(g.initializers, d.list); touch(g); }
   for (const [g, nodes] of dropNodes) { g.nodes = g.nodes.filter((n) => !nodes.has(n)); touch(g); }
   const goneSet = gone.length && withInfos ? new Set(gone) : undefined;
   if (goneSet) {
-    for (const s of scopes) {
+    for (const { scope: s } of lives) {
       const g = s.graph;
       if (!g.valueInfo.length) continue;
       const droppedNames = new Set(dropInits.get(g)?.names);
@@ -82,9 +82,8 @@ export function cleanUp(model: Model, released: readonly string[], goneValues: r
       if (keep.length !== g.valueInfo.length) { g.valueInfo = keep; touch(g); }
     }
   }
-  if (!ctx?.live) return;
   for (const [g, nodes] of dropNodes) {
-    const ud = ctx.live.get(g)!.ud;
+    const ud = ctx.live!.get(g)!.ud;
     for (const n of nodes) { ud.removeNode(n); ctx.removedNodes.push(n); }
   }
 }

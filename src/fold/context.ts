@@ -1,8 +1,8 @@
 // State shared by the analysis and the rewrites of one run over a model.
 import type { Graph, Model, Node, Tensor, ValueInfo } from '../graph/ir.js';
-import type { EditableUseDef, Wiring } from '../graph/usedef.js';
+import type { EditableUseDef } from '../graph/usedef.js';
 import { opsetVersion } from '../graph/ir.js';
-import { nameTable } from '../graph/names.js';
+import { nameTable, type NameTable } from '../graph/names.js';
 import type { FoldOptions, ReasonCode } from './types.js';
 import { eachGraph, nodeLabel, type Scope } from './scope.js';
 
@@ -48,11 +48,23 @@ export interface NameSet {
 export interface LiveScope {
   scope: Scope;
   ud: EditableUseDef;
+  /**
+   * Constants this graph's folds released (see Edit.released), for the clean-up, each with the number this index
+   * gave it when the fold was told (-1: unknown to it), so the clean-up need not hash the name again.
+   */
+  released: string[];
+  releasedIds: number[];
 }
 
 export interface PendingGraph {
-  /** Nodes whose inputs or outputs an edit changed in place, with their wiring before the first such change. */
-  rewired: Map<Node, Wiring>;
+  /**
+   * For the driver's index (see FoldContext.live): what each edit added, rewired (with the wiring before) or
+   * removed, and the names it released, edit by edit in the order they were applied; a flat list, no object per
+   * edit (a sweep of 10^5 folds kept every edit alive until its end), with what each entry is in logKinds (see
+   * apply.ts, logEdit).
+   */
+  log: Array<Node | Tensor | string | readonly string[]>;
+  logKinds: number[];
   removed: Set<Node>;
   inserts: Map<Node, Node[]>;
   initializers: Tensor[];
@@ -131,20 +143,33 @@ function namesIn(model: Model): NameSet {
  * The names in use while no sweep has applied its list changes yet: every value name is still in its graph's
  * index (a node a fold rewired away from a name leaves it to a node still listed, until the sweep ends), so
  * only node names and value_info names need a table of their own. Same answers as namesIn, less hashing.
+ * Every name a fold makes has a '.' in it (`conv3.bias`, `w.folded`), so only the node and value_info names with
+ * one can be the same: those go in the table (a graph of 10^5 nodes exported with plain names had all of its node
+ * names hashed for none), and every one only if a name without a '.' is ever asked about.
  */
 function namesBeforeFlush(model: Model, live: Map<Graph, LiveScope>): NameSet {
-  let bound = 0;
-  eachGraph(model.graph, (g) => { bound += g.nodes.length + g.valueInfo.length; });
-  const table = nameTable(bound);
-  eachGraph(model.graph, (g) => {
-    for (const v of g.valueInfo) table.add(v.name);
-    const nodes = g.nodes;
-    for (let i = 0; i < nodes.length; i++) if (nodes[i]!.name) table.add(nodes[i]!.name);
-  });
+  const tableOf = (keep: (name: string) => boolean): NameTable => {
+    let bound = 0;
+    eachGraph(model.graph, (g) => {
+      for (const v of g.valueInfo) if (keep(v.name)) bound++;
+      const nodes = g.nodes;
+      for (let i = 0; i < nodes.length; i++) if (nodes[i]!.name && keep(nodes[i]!.name)) bound++;
+    });
+    const table = nameTable(bound);
+    eachGraph(model.graph, (g) => {
+      for (const v of g.valueInfo) if (keep(v.name)) table.add(v.name);
+      const nodes = g.nodes;
+      for (let i = 0; i < nodes.length; i++) if (nodes[i]!.name && keep(nodes[i]!.name)) table.add(nodes[i]!.name);
+    });
+    return table;
+  };
+  const dotted = tableOf((name) => name.includes('.'));
+  let all: NameTable | undefined;
   const indexes = [...live.values()].map((l) => l.ud);
   const made = new Set<string>();
+  const known = (v: string) => (v.includes('.') ? dotted : (all ??= tableOf(() => true))).id(v) >= 0;
   return {
-    has: (v) => made.has(v) || table.id(v) >= 0 || indexes.some((ud) => ud.knows(v)),
+    has: (v) => made.has(v) || known(v) || indexes.some((ud) => ud.knows(v)),
     add: (v) => { made.add(v); },
   };
 }

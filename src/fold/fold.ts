@@ -11,13 +11,13 @@ import { applyEdit, flushPending, newEdit, regionAfter, regionBefore, type Edit 
 import { assessRun, cloneCost, findingsOf, foldHint, layerNormHint, writtenOutHint } from './analyze.js';
 import { freshName } from './context.js';
 import { writtenOutNorm } from './norms.js';
-import { entryKind } from './steps.js';
+import { entryKind, type AffineStep } from './steps.js';
 import type { RuleMatch } from './rules/index.js';
-import { collectRun, isStep, stepOf } from './run.js';
+import { collectRun, isStep, mayBeStep, stepOf } from './run.js';
 import { buildScopes, eachGraph, forgetDerived, labelOf, type Scope } from './scope.js';
 import { editableUseDef, type EditableUseDef } from '../graph/usedef.js';
 import { nameTable, type NameTable } from '../graph/names.js';
-import type { EntryKind, FoldLedger, FoldOptions, LedgerEntry, ProofFigures, RewrittenNode } from './types.js';
+import type { Direction, EntryKind, FoldLedger, FoldOptions, LedgerEntry, ProofFigures, RewrittenNode } from './types.js';
 
 const MAX_PASSES = 64;
 
@@ -59,26 +59,31 @@ function cloneForRun(ctx: FoldContext, edit: Edit, m: RuleMatch): RuleMatch[] {
 }
 
 /** One sweep over every graph; returns whether anything changed or was put off to the next sweep. */
-function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], released: string[], gone: string[], rewritten: Map<Node, RewrittenNode>): boolean {
+function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], gone: string[], watched: Watched): boolean {
   let changed = false;
   const prove = ctx.options.prove;
+  const inPlace = ctx.options.reuseBuffers ?? true;
   // what a scope built afresh would know: the index is current (flushPending keeps it so), derived caches start over
   for (const scope of scopes) forgetDerived(scope);
+  // (indexed loops and no closures made per fold: this body runs once per fold, 10^5 times in a large graph, and
+  // what it allocates is what the collector spends its time on)
   for (const scope of scopes) {
     const cache = new Map();
+    // every node a fold of this sweep touched: the index answers for the graph as the sweep found it, so a run
+    // that meets one of them waits for the next sweep
     const dirty = new Set<Node>();
     const nodes = scope.graph.nodes.slice();
+    const ud = scope.ud;
     for (let i = 0; i < nodes.length; i++) {
       const node = nodes[i]!;
-      if (dirty.has(node)) continue;
+      if (!mayBeStep(node) || dirty.has(node)) continue;
       const s = stepOf(ctx, scope, cache, node);
       if (!isStep(s)) continue;
       const run = collectRun(ctx, scope, cache, s);
-      const involved: Node[] = run.steps.map((x) => x.node);
-      const p = scope.ud.producer(run.top);
-      if (p) involved.push(p);
-      involved.push(...scope.ud.consumers(run.bottom));
-      if (involved.some((n) => dirty.has(n))) { changed = true; continue; } // stale index: next sweep
+      const steps = run.steps;
+      const p = ud.producer(run.top);
+      const readers = ud.consumers(run.bottom);
+      if (anyDirty(dirty, steps, p, readers)) { changed = true; continue; } // stale index: next sweep
       const o = assessRun(ctx, run);
       if (o.kind !== 'match') continue;
       const edit = newEdit(scope);
@@ -86,30 +91,31 @@ function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], release
       const outputs: string[] = [];
       for (let k = 0; k < matches.length; k++) {
         matches[k]!.rule.rewrite(ctx, matches[k]!, edit);
-        outputs.push(...edit.regionOutputs);
+        if (prove) outputs.push(...edit.regionOutputs);
       }
       // (the region's outputs and the nodes' names are for the proof alone)
       if (prove) edit.regionOutputs = [...new Set([...outputs, ...edit.regionNodes.flatMap((n) => n.outputs.filter((v) => v !== ''))])];
       const before = prove ? regionBefore(edit) : undefined;
-      const inPlace = ctx.options.reuseBuffers ?? true;
-      const undo = applyEdit(ctx, edit, { inPlace: !prove && inPlace, undoable: prove !== undefined });
-      // (the layers and changed nodes are mostly among the involved already, and each add is a probe into a set of
-      // every node touched this sweep; indexed loops here and below: per fold, in a function the engine may not have
-      // optimized yet)
-      for (let k = 0; k < involved.length; k++) dirty.add(involved[k]!);
-      for (let k = 0; k < matches.length; k++) if (!involved.includes(matches[k]!.layer.node)) dirty.add(matches[k]!.layer.node);
-      for (let k = 0; k < edit.changes.length; k++) if (!involved.includes(edit.changes[k]!.node)) dirty.add(edit.changes[k]!.node);
+      const undo = applyEdit(ctx, edit, !prove && inPlace, prove !== undefined);
+      for (let k = 0; k < steps.length; k++) dirty.add(steps[k]!.node);
+      if (p) dirty.add(p);
+      for (let k = 0; k < readers.length; k++) dirty.add(readers[k]!);
+      // (the layers and changed nodes are mostly among those already: each add is a probe into a set of every node
+      // touched this sweep)
+      for (let k = 0; k < matches.length; k++) if (!isAround(matches[k]!.layer.node, steps, p, readers)) dirty.add(matches[k]!.layer.node);
+      for (let k = 0; k < edit.changes.length; k++) if (!isAround(edit.changes[k]!.node, steps, p, readers)) dirty.add(edit.changes[k]!.node);
       changed = true;
-      const targets = o.matches.map((m) => m.layer.label);
-      const target = targets.join(', ');
+      const targets: string[] = [];
+      for (let k = 0; k < o.matches.length; k++) targets.push(o.matches[k]!.layer.label);
+      const target = targets.length === 1 ? targets[0]! : targets.join(', ');
       const direction = o.matches[0]!.rule.direction;
       let proof: ProofFigures | undefined;
       if (prove) {
-        const names = run.steps.map((x) => ctx.labels.get(x.node) ?? x.node.name);
+        const names = steps.map((x) => ctx.labels.get(x.node) ?? x.node.name);
         const r = prove({ before: before!, after: regionAfter(edit), opsetOf: ctx.opsetOf, nodes: names, target, direction, graph: scope.path });
         if (typeof r === 'boolean' ? !r : !r.passed) {
           undo();
-          for (const x of run.steps) ctx.proofFailed.add(x.node);
+          for (const x of steps) ctx.proofFailed.add(x.node);
           continue;
         }
         if (typeof r !== 'boolean') proof = r.proof;
@@ -119,32 +125,28 @@ function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], release
         // it lies (on its way to the output, for weights still on disk), as an unproven fold does: the same
         // products rounded the same way, without holding every folded weight in memory.
         undo();
-        applyEdit(ctx, edit, { inPlace: true, undoable: false });
+        applyEdit(ctx, edit, true, false);
       }
       const hint = foldHint(o.matches, o.clone);
-      const entry = (node: Node, op: string, kind: EntryKind, h: string, cloneBytes = 0): LedgerEntry => ({
-        node: ctx.labels.get(node) ?? node.name, op, kind, status: 'folded', direction, target, targets, reason: null, hint: null, effect: h, graph: scope.path, cloneBytes,
-        ...(proof ? { proof } : {}),
-      });
+      const fold: FoldFacts = { direction, target, targets, graph: scope.path, proof };
       // A normalization written out as primitive ops keeps its statistics; its tail moved, so it is listed as folded.
-      const chain = scope.ud.producer(run.top);
-      const written = chain ? writtenOutNorm(scope, chain) : undefined;
-      const solelyTail = scope.ud.consumers(run.top).length === 1 && !scope.ud.isGraphOutput(run.top); // (as analyze.ts judges it)
-      if (chain && written && solelyTail && run.steps[0]!.kind === 'elementwise' && entryKind(scope, run.steps[0]!.node) === 'normalization') {
-        folded.push(entry(chain, written, 'normalization', writtenOutHint(targets)));
+      // (the index still answers for the graph as the sweep found it: p is the producer of the run's input)
+      const written = p && steps[0]!.kind === 'elementwise' ? writtenOutNorm(scope, p) : undefined;
+      if (written && ud.consumers(run.top).length === 1 && !ud.isGraphOutput(run.top) && entryKind(scope, steps[0]!.node) === 'normalization') { // (as analyze.ts judges it)
+        folded.push(ledgerEntry(ctx, fold, p!, written, 'normalization', writtenOutHint(targets), 0));
       }
       // what the whole-model check watches: the layers whose weights changed, nodes created or changed in kind
-      const watch = (n: Node) => { if (!rewritten.has(n)) rewritten.set(n, { node: n, label: ctx.labels.get(n) ?? n.name, graph: scope.path }); };
-      for (let k = 0; k < o.matches.length; k++) watch(o.matches[k]!.layer.node);
-      for (let k = 0; k < edit.inserts.length; k++) watch(edit.inserts[k]!.node);
+      for (let k = 0; k < o.matches.length; k++) watch(watched, o.matches[k]!.layer.node, scope.path);
+      for (let k = 0; k < edit.inserts.length; k++) watch(watched, edit.inserts[k]!.node, scope.path);
       for (let k = 0; k < edit.changes.length; k++) {
         const c = edit.changes[k]!;
-        if (c.opType !== undefined || c.attributes !== undefined) watch(c.node);
+        if (c.opType !== undefined || c.attributes !== undefined) watch(watched, c.node, scope.path);
       }
-      run.steps.forEach((x, i) => {
-        folded.push(entry(x.node, x.node.opType, entryKind(scope, x.node), x.kind === 'layer-norm' ? layerNormHint(targets) : hint, i === 0 && o.clone ? cloneCost(o.matches[0]!) : 0));
-      });
-      for (let k = 0; k < edit.released.length; k++) released.push(edit.released[k]!);
+      for (let k = 0; k < steps.length; k++) {
+        const x = steps[k]!;
+        folded.push(ledgerEntry(ctx, fold, x.node, x.node.opType, entryKind(scope, x.node), x.kind === 'layer-norm' ? layerNormHint(targets) : hint,
+          k === 0 && o.clone ? cloneCost(o.matches[0]!) : 0));
+      }
       for (let k = 0; k < edit.goneValues.length; k++) gone.push(edit.goneValues[k]!);
     }
   }
@@ -152,10 +154,56 @@ function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], release
   return changed;
 }
 
-/** The watched nodes still in the model, in the order they were first rewritten (the map is emptied of the others). */
-function watchedStill(touched: Map<Node, RewrittenNode>, removed: readonly Node[]): RewrittenNode[] {
-  for (let i = 0; i < removed.length; i++) touched.delete(removed[i]!);
-  return [...touched.values()];
+/** Whether `n` is one of the run's nodes or its neighbours. */
+function isAround(n: Node, steps: readonly AffineStep[], p: Node | undefined, readers: readonly Node[]): boolean {
+  if (n === p || readers.includes(n)) return true;
+  for (let k = 0; k < steps.length; k++) if (steps[k]!.node === n) return true;
+  return false;
+}
+
+/** Whether a fold of this sweep touched any node of the run or its neighbours. */
+function anyDirty(dirty: Set<Node>, steps: readonly AffineStep[], p: Node | undefined, readers: readonly Node[]): boolean {
+  if (dirty.size === 0) return false;
+  for (let k = 0; k < steps.length; k++) if (dirty.has(steps[k]!.node)) return true;
+  if (p && dirty.has(p)) return true;
+  for (let k = 0; k < readers.length; k++) if (dirty.has(readers[k]!)) return true;
+  return false;
+}
+
+/** What every ledger entry of one fold shares. */
+interface FoldFacts { direction: Direction; target: string; targets: string[]; graph: string; proof: ProofFigures | undefined }
+
+function ledgerEntry(ctx: FoldContext, f: FoldFacts, node: Node, op: string, kind: EntryKind, effect: string, cloneBytes: number): LedgerEntry {
+  const e: LedgerEntry = {
+    node: ctx.labels.get(node) ?? node.name, op, kind, status: 'folded', direction: f.direction, target: f.target, targets: f.targets, reason: null, hint: null,
+    effect, graph: f.graph, cloneBytes,
+  };
+  if (f.proof) e.proof = f.proof; // (last, as the report lists it)
+  return e;
+}
+
+/**
+ * What the whole-model check watches, as the folds rewrote it: each node with its graph's path, a node again each
+ * time it is rewritten (lists, not a map: only a proven fold's check asks, see watchedStill).
+ */
+interface Watched { nodes: Node[]; graphs: string[] }
+
+function watch(w: Watched, n: Node, graph: string): void {
+  w.nodes.push(n);
+  w.graphs.push(graph);
+}
+
+/** The watched nodes still in the model, once each, in the order they were first rewritten. */
+function watchedStill(ctx: FoldContext, w: Watched, removed: readonly Node[]): RewrittenNode[] {
+  const seen = new Set<Node>(removed);
+  const out: RewrittenNode[] = [];
+  for (let i = 0; i < w.nodes.length; i++) {
+    const node = w.nodes[i]!;
+    if (seen.has(node)) continue;
+    seen.add(node);
+    out.push({ node, label: ctx.labels.get(node) ?? node.name, graph: w.graphs[i]! });
+  }
+  return out;
 }
 
 /**
@@ -169,7 +217,7 @@ export function foldModel(model: Model, options: FoldOptions = {}): { model: Mod
   const bytesBefore = weightBytes(model);
   // One set of scopes for the whole run: each graph's index is built once and follows the edits.
   const scopes = buildScopes(model, ctx.labels, ctx.options.inputShapes, editableUseDef);
-  ctx.live = new Map(scopes.map((scope) => [scope.graph, { scope, ud: scope.ud as EditableUseDef }]));
+  ctx.live = new Map(scopes.map((scope) => [scope.graph, { scope, ud: scope.ud as EditableUseDef, released: [], releasedIds: [] }]));
   // Ledger order: where each node stood in the original model (by graph path, then ledger name).
   // (per path a flat table of labels, names.ts, and each label's place: a Map of 10^5 labels costs more to fill)
   const order = new Map<string, { labels: NameTable; at: number[] }>();
@@ -195,13 +243,13 @@ export function foldModel(model: Model, options: FoldOptions = {}): { model: Mod
     return id < 0 ? undefined : inPath!.at[id];
   };
   const folded: LedgerEntry[] = [];
-  // (names collected as lists: the clean-up looks them up, and needs a set only for a graph with value_info)
-  const released: string[] = [];
+  // (the names of values gone, as a list: the clean-up needs a set of them only for a graph with value_info; the
+  // names each fold released are kept by the index of its graph, see LiveScope)
   const gone: string[] = [];
-  const touched = new Map<Node, RewrittenNode>();
-  for (let pass = 0; pass < MAX_PASSES && sweep(ctx, scopes, folded, released, gone, touched); pass++) { /* until nothing changes */ }
+  const watched: Watched = { nodes: [], graphs: [] };
+  for (let pass = 0; pass < MAX_PASSES && sweep(ctx, scopes, folded, gone, watched); pass++) { /* until nothing changes */ }
   if (folded.length) {
-    cleanUp(model, released, gone, ctx);
+    cleanUp(gone, ctx);
     validateModel(model);
   }
   // Every normalization still in the model, with its reason, from the same analysis audit runs.
@@ -215,10 +263,13 @@ export function foldModel(model: Model, options: FoldOptions = {}): { model: Mod
   const placedAt = [...folded, ...kept].map((e) => ({ e, at: placeOf(e.graph, e.node) ?? 1e15 }));
   const normalizations = placedAt.sort((a, b) => a.at - b.at).map((x) => x.e);
   // a node a later fold or the clean-up removed is no longer in the model to be watched
+  // (worked out when first asked for: only the whole-model check of a proven fold watches them)
+  const removed = ctx.removedNodes;
+  let rewritten: RewrittenNode[] | undefined;
   return {
     model,
     ledger: { normalizations, nodesBefore, nodesAfter: countNodes(model), bytesBefore, bytesAfter: weightBytes(model) },
-    rewritten: watchedStill(touched, ctx.removedNodes),
+    get rewritten() { return rewritten ??= watchedStill(ctx, watched, removed); },
     // the run's scopes, current for the model as returned (until it is edited again)
     scopes,
   };

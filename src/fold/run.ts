@@ -21,8 +21,11 @@ export interface Run {
   hasNormOp: boolean;
 }
 
-/** Per-pass cache of readStep, which decodes tensors. */
-export type StepCache = Map<Node, AffineStep | Refusal | undefined>;
+/** Per-pass cache of readStep, which decodes tensors (NO_STEP: the node is none). */
+export type StepCache = Map<Node, AffineStep | Refusal | typeof NO_STEP>;
+
+/** What the cache holds for a node that is no step (so one look-up answers, found or not). */
+const NO_STEP = null;
 
 /**
  * Entries kept before the cache starts over: runs are local (a step is asked for again by its neighbours, a few
@@ -34,12 +37,18 @@ const CACHE_MAX = 32;
 /** The op types readStep can make a step of (any other node is none, with nothing to cache). */
 const STEP_OPS = new Set(['BatchNormalization', 'LayerNormalization', 'Add', 'Sub', 'Mul', 'Div']);
 
+/** Whether readStep could make a step of the node (a cheap look at its op type; most nodes are no step). */
+export function mayBeStep(n: Node): boolean {
+  return STEP_OPS.has(n.opType);
+}
+
 export function stepOf(ctx: FoldContext, scope: Scope, cache: StepCache, n: Node): AffineStep | Refusal | undefined {
   if (!STEP_OPS.has(n.opType)) return undefined;
-  if (cache.has(n)) return cache.get(n);
+  const known = cache.get(n);
+  if (known !== undefined) return known === NO_STEP ? undefined : known;
   if (cache.size >= CACHE_MAX) cache.clear();
   const s = readStep(ctx, scope, n);
-  cache.set(n, s);
+  cache.set(n, s ?? NO_STEP);
   return s;
 }
 

@@ -150,31 +150,37 @@ function lastLookup(id: (v: string) => number): (v: string) => number {
 }
 
 /**
- * lastLookup over the last four names found: a fold asks about the few values around it (the norm's input and
- * output, the layer's weight) several times, with other names in between, and in a graph of 10^5 nodes each
- * lookup that misses this costs a hash of the name and a probe into a table larger than the processor's cache.
- * (Ids never change once given, and a name not found is not remembered: it may be added later.)
+ * lastLookup over the last four names found, the most recent first: a fold asks about the few values around it (the
+ * norm's input and output, the layer's weight) several times, with other names in between, and in a graph of 10^5
+ * nodes each lookup that misses this costs a hash of the name and a probe into a table larger than the processor's
+ * cache. Most questions repeat the name just asked about: it is compared first, since comparing two different
+ * names of one length (c17, y17, s17, ...) reads their characters. (Ids never change once given, and a name not
+ * found is not remembered: it may be added later, and is then remembered by whoever adds it.)
  */
-function recentLookup(id: (v: string) => number): (v: string) => number {
+function recentLookup(find: (v: string) => number): { lookup: (v: string) => number; remember: (v: string, id: number) => void } {
   let n0: string | undefined, n1: string | undefined, n2: string | undefined, n3: string | undefined;
   let i0 = -1, i1 = -1, i2 = -1, i3 = -1;
-  let next = 0;
-  return (v) => {
+  const remember = (v: string, id: number): void => {
+    n3 = n2; i3 = i2; n2 = n1; i2 = i1; n1 = n0; i1 = i0;
+    n0 = v; i0 = id;
+  };
+  const lookup = (v: string): number => {
     if (v === n0) return i0;
-    if (v === n1) return i1;
-    if (v === n2) return i2;
-    if (v === n3) return i3;
-    const k = id(v);
-    if (k < 0) return k;
-    switch (next) {
-      case 0: n0 = v; i0 = k; break;
-      case 1: n1 = v; i1 = k; break;
-      case 2: n2 = v; i2 = k; break;
-      default: n3 = v; i3 = k;
+    let k: number;
+    // a name found again moves to the front; a new one goes there and the oldest drops out
+    if (v === n1) { k = i1; n1 = n0; i1 = i0; } else if (v === n2) {
+      k = i2; n2 = n1; i2 = i1; n1 = n0; i1 = i0;
+    } else if (v === n3) {
+      k = i3; n3 = n2; i3 = i2; n2 = n1; i2 = i1; n1 = n0; i1 = i0;
+    } else {
+      k = find(v);
+      if (k < 0) return k;
+      n3 = n2; i3 = i2; n2 = n1; i2 = i1; n1 = n0; i1 = i0;
     }
-    next = (next + 1) & 3;
+    n0 = v; i0 = k;
     return k;
   };
+  return { lookup, remember };
 }
 
 /** The reader list of a value nobody reads any more (shared, never changed: adding a reader makes a new list). */
@@ -199,10 +205,7 @@ export function buildUseDef(graph: Graph): UseDef {
     producer: producerOf,
     consumers: (v) => {
       const id = idIn(v);
-      if (id < 0) return [];
-      const out: Node[] = [];
-      for (let k = readers.start[id]!, end = readers.start[id + 1]!; k < end; k++) out.push(nodes[readers.node[k]!]!);
-      return out;
+      return id < 0 ? [] : rowOf(readers, nodes, id);
     },
     isGraphOutput: (v) => { const id = idIn(v); return id >= 0 && (flags[id]! & IS_OUTPUT) !== 0; },
     isGraphInput: (v) => { const id = idIn(v); return id >= 0 && (flags[id]! & IS_INPUT) !== 0; },
@@ -228,6 +231,14 @@ export interface EditableUseDef extends UseDef {
   readerCount(v: string): number;
   /** Whether the name was ever a value name of the graph (an input, output, initializer or node input/output). */
   knows(v: string): boolean;
+  /**
+   * The index's number for a value name, -1 for a name it never knew (a number, once given, never changes). With
+   * remember(), a caller that will ask about a name long after it last did is answered without the name being
+   * hashed again.
+   */
+  idOf(v: string): number;
+  /** Answer the next questions about `v` as about number `id`, which idOf(v) gave on this index. */
+  remember(v: string, id: number): void;
   /** `n` left the graph (`was`: its wiring as last told, when it changed since). */
   removeNode(n: Node, was?: Wiring): void;
   /** `n` joined the graph, wired as it is now. */
@@ -248,24 +259,33 @@ export function editableUseDef(graph: Graph): EditableUseDef {
   const baseSize = ids.size;
   // Producer and initializer per id as plain arrays (edits set them); reader lists stay compressed rows until a
   // value's readers change; names new since the build get ids past the table's.
-  const prod: Array<Node | undefined> = new Array(baseSize);
-  const inits: Array<Tensor | undefined> = new Array(baseSize);
+  // (The arrays have room for new names, a bias per layer or so: one that grows copies all of its 10^5 places.
+  // Filled from the start: an array set at scattered ids, or one mostly holes that grows, turns into a slow
+  // dictionary.)
+  const room = baseSize + (nodes.length >> 1) + 16;
+  const prod = new Array<Node | undefined>(room).fill(undefined);
+  const inits = new Array<Tensor | undefined>(room).fill(undefined);
   for (let id = 0; id < baseSize; id++) {
-    prod[id] = producer[id]! >= 0 ? nodes[producer[id]!] : undefined;
-    inits[id] = init[id]! >= 0 ? tensors[init[id]!] : undefined;
+    if (producer[id]! >= 0) prod[id] = nodes[producer[id]!];
+    if (init[id]! >= 0) inits[id] = tensors[init[id]!];
   }
+  // (a map: the names it holds are asked about again, and the engine keeps a string's hash with the string)
   const extra = new Map<string, number>();
   const flagOver = new Map<number, number>();
-  // (filled from the start: an array set at scattered ids, or one mostly holes that grows, turns into a slow dictionary)
-  const readOver: Array<Node[] | undefined> = new Array<Node[] | undefined>(baseSize).fill(undefined);
+  const readOver = new Array<Node[] | undefined>(room).fill(undefined);
   const ownerReads = new Map<Node, string[]>();
   for (const [j, refs] of bodies) ownerReads.set(nodes[j]!, refs);
   const unsorted = new Set<number>();
   const tableId = ids.id;
-  const idIn = recentLookup((v: string): number => { const id = tableId(v); return id >= 0 ? id : (extra.get(v) ?? -1); });
+  const { lookup: idIn, remember } = recentLookup((v: string): number => { const id = tableId(v); return id >= 0 ? id : (extra.get(v) ?? -1); });
   const idAdd = (v: string): number => {
     let id = idIn(v);
-    if (id < 0) { id = baseSize + extra.size; extra.set(v, id); prod[id] = undefined; inits[id] = undefined; readOver[id] = undefined; }
+    if (id >= 0) return id;
+    // a name new since the build (a bias a fold made): remembered by the look-up like any other
+    id = baseSize + extra.size;
+    extra.set(v, id);
+    if (id >= prod.length) { prod.push(undefined); inits.push(undefined); readOver.push(undefined); }
+    remember(v, id);
     return id;
   };
   const flagsAt = (id: number): number => flagOver.get(id) ?? (id < baseSize ? flags[id]! : 0);
@@ -277,9 +297,7 @@ export function editableUseDef(graph: Graph): EditableUseDef {
   const readersAt = (id: number): Node[] => {
     const o = readOver[id];
     if (o) return o;
-    const out: Node[] = [];
-    if (id < baseSize) for (let k = readers.start[id]!, end = readers.start[id + 1]!; k < end; k++) out.push(nodes[readers.node[k]!]!);
-    return out;
+    return id < baseSize ? rowOf(readers, nodes, id) : [];
   };
   const producerOf = (v: string) => { const id = idIn(v); return id < 0 ? undefined : prod[id]; };
   const initializerOf = (v: string) => { const id = idIn(v); return id < 0 ? undefined : inits[id]; };
@@ -302,11 +320,13 @@ export function editableUseDef(graph: Graph): EditableUseDef {
   const readerAt0 = (id: number): Node => readOver[id]?.[0] ?? nodes[readers.node[readers.start[id]!]!]!;
   const addReader = (v: string, n: Node) => {
     const id = idAdd(v);
-    const list = readerCountAt(id) === 0 ? [] : readersAt(id);
+    // (a first reader gets a list of its own size: it is kept, and a list grown by push holds room for 17)
+    if (readerCountAt(id) === 0) { readOver[id] = [n]; return; }
+    const list = readersAt(id);
     if (list.includes(n)) return;
     list.push(n);
     readOver[id] = list;
-    if (list.length > 1) unsorted.add(id);
+    unsorted.add(id);
   };
   const dropOutput = (o: string, n: Node) => {
     const id = idIn(o);
@@ -315,7 +335,7 @@ export function editableUseDef(graph: Graph): EditableUseDef {
   const wire = (n: Node, inputs: readonly string[], outputs: readonly string[], on: boolean) => {
     for (const o of outputs) if (o) { if (on) prod[idAdd(o)] = n; else dropOutput(o, n); }
     // (reading a value twice is one read: adding checks the list, and dropping a reader twice is harmless)
-    const reads = ownerReads.has(n) ? readSet(inputs, n) : inputs;
+    const reads = ownerReads.size > 0 && ownerReads.has(n) ? readSet(inputs, n) : inputs; // (most graphs own no bodies)
     for (const v of reads) if (v) { if (on) addReader(v, n); else dropReader(v, n); }
   };
   return {
@@ -325,6 +345,8 @@ export function editableUseDef(graph: Graph): EditableUseDef {
     consumers: (v) => { const id = idIn(v); if (id < 0) return []; const o = readOver[id]; return o ? o.slice() : readersAt(id); },
     readerCount: (v) => { const id = idIn(v); return id < 0 ? 0 : readerCountAt(id); },
     knows: (v) => idIn(v) >= 0,
+    idOf: idIn,
+    remember,
     isGraphOutput: (v) => { const id = idIn(v); return id >= 0 && (flagsAt(id) & IS_OUTPUT) !== 0; },
     isGraphInput: (v) => { const id = idIn(v); return id >= 0 && (flagsAt(id) & IS_INPUT) !== 0; },
     defines: (v) => { const id = idIn(v); return id >= 0 && (prod[id] !== undefined || inits[id] !== undefined || (flagsAt(id) & IS_INPUT) !== 0); },
@@ -332,7 +354,7 @@ export function editableUseDef(graph: Graph): EditableUseDef {
     constantTensor: (v) => initializerOf(v) ?? constantOfNode(producerOf(v)),
     removeNode(n, was) {
       wire(n, was?.inputs ?? n.inputs, was?.outputs ?? n.outputs, false);
-      ownerReads.delete(n);
+      if (ownerReads.size > 0) ownerReads.delete(n);
     },
     addNode(n) {
       if (hasSubgraphs(n)) ownerReads.set(n, bodyReads(n));
@@ -342,7 +364,7 @@ export function editableUseDef(graph: Graph): EditableUseDef {
       for (const o of was.outputs) if (o && !n.outputs.includes(o)) dropOutput(o, n);
       for (const o of n.outputs) if (o) prod[idAdd(o)] = n;
       // (a node's inputs rarely repeat a value: compare the short lists directly)
-      const bodyRefs = ownerReads.get(n);
+      const bodyRefs = ownerReads.size > 0 ? ownerReads.get(n) : undefined;
       if (bodyRefs) {
         const before = readSet(was.inputs, n), after = readSet(n.inputs, n);
         for (const v of before) if (!after.has(v)) dropReader(v, n);
@@ -370,6 +392,18 @@ export function editableUseDef(graph: Graph): EditableUseDef {
       unsorted.clear();
     },
   };
+}
+
+/**
+ * The readers of value `id` from the compressed rows, in a list of their exact number (asked for several times per
+ * fold; a list grown by push from empty holds room for 17).
+ */
+function rowOf(readers: { start: Int32Array; node: Int32Array }, nodes: readonly Node[], id: number): Node[] {
+  const start = readers.start[id]!, end = readers.start[id + 1]!;
+  if (end - start === 1) return [nodes[readers.node[start]!]!];
+  const out = new Array<Node>(end - start);
+  for (let k = start; k < end; k++) out[k - start] = nodes[readers.node[k]!]!;
+  return out;
 }
 
 /** Readers grouped by value (compressed rows), keeping node order within each value. */

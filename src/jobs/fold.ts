@@ -23,7 +23,7 @@ import { checkOpset } from '../graph/opsets.js';
 import type { ProbeRecord } from '../verify/compare.js';
 import type { Estimate } from '../eval/estimate.js';
 import { checkKit } from './check-kit.js';
-import type { RewrittenNode } from '../fold/types.js';
+import type { FoldLedger, RewrittenNode } from '../fold/types.js';
 import type { Scope } from '../fold/scope.js';
 import { PROVENANCE_KEYS, provenanceOf, setProvenance } from './provenance.js';
 import {
@@ -222,11 +222,13 @@ function checkProbeFits(original: Model, opts: FoldJobOptions): Estimate | undef
   return checkProbeEstimate(original.graph, specs);
 }
 
-/** The fold's result without its scopes, which go to `take`. */
-function keepScopes<T extends { scopes: Scope[] }>(r: T, take: (s: Scope[]) => void): Omit<T, 'scopes'> {
-  const { scopes, ...rest } = r;
-  take(scopes);
-  return rest;
+/**
+ * The fold's ledger, and its rewritten nodes when the whole-model check will watch them (they are worked out only
+ * when asked for); the scopes go to `take`.
+ */
+function keepScopes(r: ReturnType<typeof foldModel>, watch: boolean, take: (s: Scope[]) => void): { ledger: FoldLedger; rewritten: readonly RewrittenNode[] } {
+  take(r.scopes);
+  return { ledger: r.ledger, rewritten: watch ? r.rewritten : [] };
 }
 
 /**
@@ -254,7 +256,7 @@ function foldWithin(model: Model, original: Model | undefined, label: string, op
       const r = checkKit().proveFold(c, { seed: opts.seed });
       return { passed: r.passed, proof: { maxAbs: r.maxAbs, maxRel: r.maxRel, shape: r.shape } };
     },
-  }), (s) => { foldScopes = s; });
+  }), original !== undefined && !opts.noProofs, (s) => { foldScopes = s; });
   const equalized = opts.equalize
     ? equalizeModel(model, { prove: opts.noProofs ? undefined : (c) => checkKit().proveFold(c, { seed: opts.seed }).passed })
     : [];

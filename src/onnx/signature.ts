@@ -10,9 +10,9 @@
 import type {
   Attribute, Dim, Graph, Model, Node, OpsetImport, Origin, RawField, Tensor, TensorStorage, ValueInfo,
 } from '../graph/ir.js';
-import { fieldsOf } from './wire.js';
+import { WT_LEN, WireError, fieldsOf, readString, type WireField } from './wire.js';
 import {
-  decodeAttribute, decodeGraph, decodeModelFields, decodeNode, decodeOpset, decodeTensor, decodeTensorType,
+  decodeAttribute, decodeGraph, decodeModelFields, decodeOpset, decodeTensor, decodeTensorType,
   decodeValueInfo, type KidRanges,
 } from './read.js';
 
@@ -142,15 +142,62 @@ export function attributeUnchanged(a: Attribute, kids: readonly Kid[]): boolean 
   }
 }
 
-/** `attrs`: the node's attributes as encoded. */
+/**
+ * Whether `s` is what buf[start, end) decodes to (as readString decodes it). ASCII bytes are compared with the
+ * characters in place: a graph's unchanged nodes are some 10^5 names, and decoding each to compare it made as
+ * many strings.
+ */
+function sameString(s: string, buf: Uint8Array, start: number, end: number): boolean {
+  for (let i = start; i < end; i++) {
+    const b = buf[i]!;
+    if (b >= 0x80) return readString(buf, { vstart: start, vend: end } as WireField) === s; // (up to here every byte was one character)
+    if (b !== s.charCodeAt(i - start)) return false;
+  }
+  return s.length === end - start;
+}
+
+/** A singular string field: the last occurrence at [start, end), or '' when there was none (start -1). */
+function sameLast(s: string, buf: Uint8Array, start: number, end: number): boolean {
+  return start < 0 ? s === '' : sameString(s, buf, start, end);
+}
+
+/** Whether a node's kept unknown field is exactly the field read at `f` (same bytes, same place). */
+function sameRaw(r: RawField | undefined, buf: Uint8Array, f: WireField): boolean {
+  return r !== undefined && r.field === f.no && sameView(r.bytes, buf, f.start, f.end);
+}
+
+/**
+ * `attrs`: the node's attributes as encoded. The node's fields are compared with its original bytes as they are
+ * walked (what decodeNode would give, field by field, the last of a repeated singular field winning), without
+ * decoding a node to compare it with.
+ */
 export function nodeUnchanged(n: Node, attrs: readonly Kid[]): boolean {
   const o = n.origin;
   if (!o) return false;
-  const ranges: KidRanges = [];
-  const was = decodeNode(o.buf, o.start, o.end, 0, ranges);
-  return n.name === was.name && n.opType === was.opType && n.domain === was.domain && n.docString === was.docString &&
-    sameList(n.inputs, was.inputs) && sameList(n.outputs, was.outputs) && sameExtra(n.extra, was.extra) &&
-    sameKids(attrs, ranges, 5, o.buf);
+  const buf = o.buf;
+  let ins = 0, outs = 0, kids = 0, extras = 0;
+  // where the last name (3), op type (4), doc string (6) and domain (7) are: [start, end] each, -1 when absent
+  let name0 = -1, name1 = -1, op0 = -1, op1 = -1, doc0 = -1, doc1 = -1, dom0 = -1, dom1 = -1;
+  for (const f = fieldsOf(buf, o.start, o.end); f.next();) {
+    switch (f.no) {
+      case 1: if (ins >= n.inputs.length || !sameString(n.inputs[ins++]!, buf, f.vstart, f.vend)) return false; break;
+      case 2: if (outs >= n.outputs.length || !sameString(n.outputs[outs++]!, buf, f.vstart, f.vend)) return false; break;
+      case 3: name0 = f.vstart; name1 = f.vend; break;
+      case 4: op0 = f.vstart; op1 = f.vend; break;
+      case 5: {
+        if (f.wt !== WT_LEN) throw new WireError(`attribute: field ${f.no} has wire type ${f.wt}, expected a length-delimited field`);
+        const kid = attrs[kids++];
+        if (!kid || !sameView(kid, buf, f.vstart, f.vend)) return false;
+        break;
+      }
+      case 6: doc0 = f.vstart; doc1 = f.vend; break;
+      case 7: dom0 = f.vstart; dom1 = f.vend; break;
+      default: if (!sameRaw(n.extra[extras++], buf, f)) return false;
+    }
+  }
+  return ins === n.inputs.length && outs === n.outputs.length && kids === attrs.length && extras === n.extra.length &&
+    sameLast(n.name, buf, name0, name1) && sameLast(n.opType, buf, op0, op1) && sameLast(n.docString, buf, doc0, doc1) &&
+    sameLast(n.domain, buf, dom0, dom1);
 }
 
 export interface GraphKids { nodes: Kid[]; initializers: Kid[]; inputs: Kid[]; outputs: Kid[]; valueInfo: Kid[] }

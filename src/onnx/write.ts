@@ -14,7 +14,6 @@ import {
 } from './signature.js';
 import { externalRef, sideFilePaths } from './external.js';
 import { sameFile } from './paths.js';
-import { slabBytes } from '../graph/slab.js';
 import { deferredIn, ensureLoaded, lazySourceOf, pendingIn, reopenSource, type BlockBuffer } from './sparse-read.js';
 
 interface Piece { chunks: Uint8Array[]; length: number; same: boolean }
@@ -120,6 +119,13 @@ function piece(e: Emitter): Piece {
 }
 
 function sub(e: Emitter, no: number, p: Piece): void {
+  if (p instanceof PlainNode || p instanceof PlainTensor) {
+    e.tag(no, WT_LEN); e.varint(p.length);
+    const at = e.length;
+    p.write(e);
+    if (e.length - at !== p.length) throw new Error(`writer: a message of ${p.length} bytes came out as ${e.length - at}`);
+    return;
+  }
   emitMessage(e, no, p.chunks, p.length);
 }
 
@@ -144,7 +150,7 @@ class Encoder {
       if (tensorUnchanged(t)) return original(t.origin!);
     }
     // the common changed tensor (a folded weight, a new bias): no field order to follow, nothing unknown to keep
-    if (!placed && !t.origin && !t.extra.length && (t.storage.kind === 'raw' || t.storage.kind === 'external')) return plainTensor(t, t.storage.bytes);
+    if (!placed && !t.origin && !t.extra.length && (t.storage.kind === 'raw' || t.storage.kind === 'external')) return new PlainTensor(t, t.storage.bytes);
     const e = new Emitter();
     const order = fieldOrder(t.origin);
     const s = t.storage;
@@ -244,8 +250,8 @@ class Encoder {
 
   node(n: Node): Piece {
     const kids = n.attributes.map((a) => this.attribute(a));
-    // a changed node with no field order to follow and nothing unknown to keep, whose attributes are all small
-    if (!n.origin && !n.extra.length && kids.every(smallPiece)) return plainNode(n, kids);
+    // a changed node with no field order to follow and nothing unknown to keep
+    if (!n.origin && !n.extra.length) return new PlainNode(n, kids);
     if (nodeUnchanged(n, kids.map(kid))) return original(n.origin!);
     const e = new Emitter();
     const order = fieldOrder(n.origin);
@@ -321,14 +327,72 @@ class Encoder {
   }
 }
 
-// ---- changed messages with no original bytes, written at their exact size ----------------------------
+// ---- changed messages with no original bytes, written straight into their parent ----------------------
 // A fold changes tens of thousands of tensors and nodes, each without an origin (touched) and with no unknown
-// fields: they are written straight into one array of their exact size, in the field order the general path
-// gives them (field number order), instead of through an emitter, a closure per field and a sort per message.
-// Payloads larger than an emitter copies stay their own chunk, as the emitter leaves them.
+// fields. Such a message is not encoded on its own: its exact size is worked out, and its fields are written
+// into the bytes of the graph that holds it when the graph is encoded (see sub), in the field order the general
+// path gives them (field number order). Encoded apart, each was written three times (its own array, a view of
+// it, the graph's copy), with an array and a view made per message.
 
-/** Largest payload copied into a message's own bytes (Emitter.bytes copies up to this size too). */
-const COPY_MAX = 256;
+/** A changed node with nothing to keep of how it was read: inputs (1), outputs (2), name (3) when set, op type
+ * (4), attributes (5), doc string (6) when set, domain (7) when set. */
+class PlainNode implements Piece {
+  readonly chunks = NO_CHUNKS;
+  readonly same = false;
+  readonly length: number;
+  constructor(readonly node: Node, readonly kids: Piece[]) {
+    const n = node;
+    let size = 0;
+    for (let i = 0; i < n.inputs.length; i++) size += stringField(n.inputs[i]!);
+    for (let i = 0; i < n.outputs.length; i++) size += stringField(n.outputs[i]!);
+    if (n.name) size += stringField(n.name);
+    size += stringField(n.opType);
+    for (let i = 0; i < kids.length; i++) size += 1 + varintSize(kids[i]!.length) + kids[i]!.length;
+    if (n.docString) size += stringField(n.docString);
+    if (n.domain) size += stringField(n.domain);
+    this.length = size;
+  }
+
+  write(e: Emitter): void {
+    const n = this.node;
+    for (let i = 0; i < n.inputs.length; i++) emitString(e, 1, n.inputs[i]!);
+    for (let i = 0; i < n.outputs.length; i++) emitString(e, 2, n.outputs[i]!);
+    if (n.name) emitString(e, 3, n.name);
+    emitString(e, 4, n.opType);
+    for (let i = 0; i < this.kids.length; i++) sub(e, 5, this.kids[i]!);
+    if (n.docString) emitString(e, 6, n.docString);
+    if (n.domain) emitString(e, 7, n.domain);
+  }
+}
+
+/** A changed tensor with raw data and nothing to keep of how it was read: dims (1), data type (2), name (8) when
+ * set, raw data (9), doc string (12) when set. */
+class PlainTensor implements Piece {
+  readonly chunks = NO_CHUNKS;
+  readonly same = false;
+  readonly length: number;
+  constructor(readonly tensor: Tensor, readonly raw: Uint8Array) {
+    const t = tensor;
+    let size = 1 + varintLength(t.dataType);
+    // (indexed loops: dims lists read from a file may be frozen and shared, and an iterator per tensor showed)
+    for (let i = 0; i < t.dims.length; i++) size += 1 + varintLength(t.dims[i]!);
+    if (t.name) size += stringField(t.name);
+    size += 1 + varintSize(raw.byteLength) + raw.byteLength;
+    if (t.docString) size += stringField(t.docString);
+    this.length = size;
+  }
+
+  write(e: Emitter): void {
+    const t = this.tensor;
+    for (let i = 0; i < t.dims.length; i++) emitInt(e, 1, t.dims[i]!);
+    emitInt(e, 2, t.dataType);
+    if (t.name) emitString(e, 8, t.name);
+    emitBytes(e, 9, this.raw); // (payloads past the emitter's copy size stay views, read from disk when written)
+    if (t.docString) emitString(e, 12, t.docString);
+  }
+}
+
+const NO_CHUNKS: Uint8Array[] = Object.freeze([]) as unknown as Uint8Array[];
 
 const varintSize = (v: number): number => {
   let n = 1;
@@ -336,114 +400,18 @@ const varintSize = (v: number): number => {
   return n;
 };
 
-/** Field bytes of short strings: ASCII as is, else UTF-8 (as emitString writes them). */
-function utf8Of(s: string): Uint8Array | string {
-  for (let i = 0; i < s.length; i++) if (s.charCodeAt(i) >= 0x80) return utf8e.encode(s);
-  return s;
-}
+/** Bytes of a varint as emitInt writes it (a negative number takes ten: int64 two's complement). */
+const varintLength = (v: number): number => (v < 0 ? 10 : varintSize(v));
+
 const utf8e = new TextEncoder();
-const byteLen = (x: Uint8Array | string): number => (typeof x === 'string' ? x.length : x.byteLength);
 
-// Re-encoded messages are written into shared slabs (src/graph/slab.ts), not an array each.
-/** Writes fields into an array sized beforehand. */
-class Fill {
-  at = 0;
-  constructor(readonly buf: Uint8Array) {}
-  varint(v: number): void {
-    const b = this.buf;
-    while (v >= 128) { b[this.at++] = (v % 128) | 0x80; v = Math.floor(v / 128); }
-    b[this.at++] = v;
+/** Bytes of a string field with a one-byte tag (every field number here is below 16), as emitString writes it. */
+function stringField(s: string): number {
+  let n = s.length;
+  for (let i = 0; i < s.length; i++) {
+    if (s.charCodeAt(i) >= 0x80) { n = utf8e.encode(s).byteLength; break; }
   }
-  str(no: number, x: Uint8Array | string): void {
-    this.varint(no * 8 + WT_LEN);
-    if (typeof x === 'string') {
-      this.varint(x.length);
-      const b = this.buf;
-      for (let i = 0; i < x.length; i++) b[this.at++] = x.charCodeAt(i);
-    } else {
-      this.varint(x.byteLength);
-      this.buf.set(x, this.at);
-      this.at += x.byteLength;
-    }
-  }
-}
-
-const strField = (no: number, x: Uint8Array | string): number => varintSize(no * 8 + WT_LEN) + varintSize(byteLen(x)) + byteLen(x);
-
-/** A tensor with raw data: dims (1), data type (2), name (8) when set, raw data (9), doc string (12) when set. */
-function plainTensor(t: Tensor, raw: Uint8Array): Piece {
-  if (t.dataType < 0 || hasNegative(t.dims)) return generalTensor(t, raw); // (negative varints: the emitter's way)
-  const name = t.name ? utf8Of(t.name) : undefined;
-  const doc = t.docString ? utf8Of(t.docString) : undefined;
-  let head = 1 + varintSize(t.dataType);
-  for (const d of t.dims) head += 1 + varintSize(d);
-  if (name !== undefined) head += strField(8, name);
-  head += 1 + varintSize(raw.byteLength);
-  const inline = raw.byteLength <= COPY_MAX;
-  const tail = doc !== undefined ? strField(12, doc) : 0;
-  const f = new Fill(slabBytes(head + (inline ? raw.byteLength + tail : 0)));
-  for (const d of t.dims) { f.varint(8); f.varint(d); }
-  f.varint(16); f.varint(t.dataType);
-  if (name !== undefined) f.str(8, name);
-  f.varint(9 * 8 + WT_LEN); f.varint(raw.byteLength);
-  const length = head + raw.byteLength + tail;
-  if (inline) {
-    f.buf.set(raw, f.at); f.at += raw.byteLength;
-    if (doc !== undefined) f.str(12, doc);
-    return { chunks: [f.buf], length, same: false };
-  }
-  const chunks = [f.buf, raw];
-  if (doc !== undefined) { const g = new Fill(slabBytes(tail)); g.str(12, doc); chunks.push(g.buf); }
-  return { chunks, length, same: false };
-}
-
-/** (a loop: dims lists read from a file may be frozen and shared, and a callback per tensor showed) */
-function hasNegative(dims: readonly number[]): boolean {
-  for (let i = 0; i < dims.length; i++) if (dims[i]! < 0) return true;
-  return false;
-}
-
-/** The emitter's way for a plain tensor (negative dims or type: ten-byte varints). */
-function generalTensor(t: Tensor, raw: Uint8Array): Piece {
-  const e = new Emitter();
-  t.dims.forEach((d) => emitInt(e, 1, d));
-  emitInt(e, 2, t.dataType);
-  if (t.name) emitString(e, 8, t.name);
-  emitBytes(e, 9, raw);
-  if (t.docString) emitString(e, 12, t.docString);
-  return piece(e);
-}
-
-/** Every chunk one an emitter would copy (a larger one stays a chunk of its own, read from disk when written). */
-const smallPiece = (p: Piece): boolean => p.chunks.every((c) => c.byteLength <= COPY_MAX);
-
-/** A node: inputs (1), outputs (2), name (3) when set, op type (4), attributes (5), doc string (6), domain (7) when set. */
-function plainNode(n: Node, kids: Piece[]): Piece {
-  const ins = n.inputs.map(utf8Of), outs = n.outputs.map(utf8Of);
-  const name = n.name ? utf8Of(n.name) : undefined;
-  const op = utf8Of(n.opType);
-  const doc = n.docString ? utf8Of(n.docString) : undefined;
-  const domain = n.domain ? utf8Of(n.domain) : undefined;
-  let size = 0;
-  for (const x of ins) size += strField(1, x);
-  for (const x of outs) size += strField(2, x);
-  if (name !== undefined) size += strField(3, name);
-  size += strField(4, op);
-  for (const k of kids) size += 1 + varintSize(k.length) + k.length;
-  if (doc !== undefined) size += strField(6, doc);
-  if (domain !== undefined) size += strField(7, domain);
-  const f = new Fill(slabBytes(size));
-  for (const x of ins) f.str(1, x);
-  for (const x of outs) f.str(2, x);
-  if (name !== undefined) f.str(3, name);
-  f.str(4, op);
-  for (const k of kids) {
-    f.varint(5 * 8 + WT_LEN); f.varint(k.length);
-    for (const c of k.chunks) { f.buf.set(c, f.at); f.at += c.byteLength; }
-  }
-  if (doc !== undefined) f.str(6, doc);
-  if (domain !== undefined) f.str(7, domain);
-  return { chunks: [f.buf], length: size, same: false };
+  return 1 + varintSize(n) + n;
 }
 
 function encodeShape(shape: Dim[]): Piece {

@@ -12,14 +12,20 @@ const where = (graph: string) => (graph === 'main' ? '' : `  in ${graph}`);
 export function ledgerLines(entries: ReadonlyArray<Pick<LedgerEntry, 'node' | 'op' | 'direction' | 'target' | 'reason' | 'hint' | 'effect' | 'graph'> & { status: string; proof?: ProofFigures }>, p: Paint): string[] {
   const nodeW = widest(entries, (e) => e.node);
   const opW = widest(entries, (e) => e.op);
-  return entries.map((e) => {
+  // (the marks painted once, and a list of the final length: a ledger has up to 10^5 lines)
+  const kept = p.warn('kept     '), folded = p.good('folded   '), foldable = p.good('foldable ');
+  const lines = new Array<string>(entries.length);
+  for (let i = 0; i < entries.length; i++) {
+    const e = entries[i]!;
     const head = `${e.node.padEnd(nodeW)}  ${e.op.padEnd(opW)}`;
     if (e.status === 'kept') {
-      return `  ${p.warn('kept     ')}${head}  ${p.warn(e.reason ?? 'kept')}: ${e.hint}${where(e.graph)}`;
+      lines[i] = `  ${kept}${head}  ${p.warn(e.reason ?? 'kept')}: ${e.hint}${where(e.graph)}`;
+      continue;
     }
-    const mark = e.status === 'folded' ? p.good('folded   ') : p.good('foldable ');
-    return `  ${mark}${head}  into ${e.target ?? '?'} (${e.direction ?? '?'}): ${e.effect}${where(e.graph)}${e.proof ? `  ${proofText(e.proof)}` : ''}`;
-  });
+    const mark = e.status === 'folded' ? folded : foldable;
+    lines[i] = `  ${mark}${head}  into ${e.target ?? '?'} (${e.direction ?? '?'}): ${e.effect}${where(e.graph)}${e.proof ? `  ${proofText(e.proof)}` : ''}`;
+  }
+  return lines;
 }
 
 /** A fold's proof figures, compactly: the region's probe shape and its float64 errors. */
@@ -145,8 +151,10 @@ export function cloneClause(entries: ReadonlyArray<{ cloneBytes: number }>): str
 
 export function foldText(r: FoldReport, colour = false, caution = true): string {
   const p = paint(colour);
-  const norms = r.normalizations.filter((e) => e.kind !== 'affine-step');
-  const folded = norms.filter((e) => e.status === 'folded').length;
+  // (no copy of the list when it holds normalizations only, as it mostly does)
+  const norms = r.normalizations.some((e) => e.kind === 'affine-step') ? r.normalizations.filter((e) => e.kind !== 'affine-step') : r.normalizations;
+  let folded = 0;
+  for (let i = 0; i < norms.length; i++) if (norms[i]!.status === 'folded') folded++;
   const kept = norms.length - folded;
   const also = r.normalizations.length - norms.length;
   const why = r.check?.status === 'skipped' ? '--strict: check skipped' : 'check failed';

@@ -133,7 +133,7 @@ function sweep(ctx: FoldContext, model: Model, folded: LedgerEntry[], released: 
       edit.regionOutputs = [...new Set([...outputs, ...edit.regionNodes.flatMap((n) => n.outputs.filter((v) => v !== ''))])];
       const before = prove ? regionBefore(edit) : undefined;
       const inPlace = ctx.options.reuseBuffers ?? true;
-      const undo = applyEdit(ctx, edit, { inPlace: !prove && inPlace });
+      const undo = applyEdit(ctx, edit, !prove && inPlace);
       const names = run.steps.map((x) => ctx.labels.get(x.node) ?? x.node.name);
       for (const n of [...involved, ...matches.map((m) => m.layer.node), ...edit.changes.map((c) => c.node)]) dirty.add(n);
       changed = true;
@@ -155,7 +155,7 @@ function sweep(ctx: FoldContext, model: Model, folded: LedgerEntry[], released: 
         // it lies (on its way to the output, for weights still on disk), as an unproven fold does: the same
         // products rounded the same way, without holding every folded weight in memory.
         undo();
-        applyEdit(ctx, edit, { inPlace: true });
+        applyEdit(ctx, edit, true);
       }
       const hint = foldHint(o.matches, o.clone);
       const entry = (node: Node, op: string, kind: EntryKind, h: string, cloneBytes = 0): LedgerEntry => ({

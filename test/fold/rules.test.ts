@@ -177,6 +177,21 @@ describe('chains and neighbours', () => {
     expect(parseModel(r.after, dir).graph.nodes.map((n) => n.opType)).toEqual(['Conv', 'Relu', 'Conv', 'Relu', 'Conv']);
   });
 
+  it('a new bias takes a name no node, value_info or value has, plain or dotted (the names a fold makes all have a dot)', async () => {
+    const g = new GraphBuilder();
+    g.input('x', [1, 3, 5, 5]).output('y', [1, 4, 3, 3]).output('z', [1, 3, 5, 5]);
+    const c = g.node('Conv', ['x', w(g, 'wc', [4, 3, 3, 3], 47)], {}, { name: 'conv' });
+    bn(g, c, 4, 'bn', 48, 'y');
+    // a node named as the bias would be, a value_info and a value named as its next two choices
+    const n = g.node('Relu', ['x'], {}, { name: 'conv.bias', outputs: ['conv.bias.3'] });
+    g.node('Identity', [n], {}, { name: 'plain', outputs: ['z'] });
+    g.info('conv.bias.2', [1, 3, 5, 5]);
+    const r = await foldAndCheck(g, feedsFor({ x: [1, 3, 5, 5] }));
+    expect(summary(r.ledger)).toEqual(['bn:folded:into-producer:conv']);
+    const m = parseModel(r.after, dir);
+    expect(m.graph.nodes.find((x) => x.name === 'conv')!.inputs[2]).toBe('conv.bias.4');
+  });
+
   it('a weight shared by two layers is cloned with deterministic names; the other reader is untouched', async () => {
     const g = new GraphBuilder();
     g.input('x', [1, 3, 5, 5]).output('y1', [1, 4, 3, 3]).output('y2', [1, 4, 3, 3]);

@@ -105,8 +105,8 @@ export function takeOverRun(ctx: FoldContext, edit: Edit, layer: Layer, run: Run
  * its node, whose statistics stay: its Scale becomes ones and its B is dropped.
  */
 export function removeRun(ctx: FoldContext, edit: Edit, run: Run): void {
-  if (edit.removedRuns.has(run)) return;
-  edit.removedRuns.add(run);
+  if (edit.removedRuns.includes(run)) return;
+  edit.removedRuns.push(run);
   for (const s of run.steps) {
     if (s.kind === 'layer-norm') {
       const scale = s.consts[0]!;
