@@ -9,14 +9,7 @@ import { decodeNode, type KidRanges } from '../../src/onnx/read.js';
 import { nodeUnchanged, type Kid } from '../../src/onnx/signature.js';
 import type { Node } from '../../src/graph/ir.js';
 import { rng } from '../helpers/build.js';
-
-function bytesOf(e: Emitter): Uint8Array {
-  const { chunks, length } = e.take();
-  const out = new Uint8Array(length);
-  let o = 0;
-  for (const c of chunks) { out.set(c, o); o += c.byteLength; }
-  return out;
-}
+import { bytesOf } from '../helpers/emitted.js';
 
 /** The comparison as it was: decode the original bytes again and compare field by field. */
 function byDecoding(n: Node, attrs: readonly Kid[]): boolean {

@@ -3,14 +3,7 @@
 import { describe, expect, it } from 'vitest';
 import { Emitter, WT_LEN, emitInt, emitString, fieldsOf, readInt, readPackedVarints, readString } from '../../src/onnx/wire.js';
 import { rng } from '../helpers/build.js';
-
-function bytesOf(e: Emitter): Uint8Array {
-  const { chunks, length } = e.take();
-  const out = new Uint8Array(length);
-  let o = 0;
-  for (const c of chunks) { out.set(c, o); o += c.byteLength; }
-  return out;
-}
+import { bytesOf } from '../helpers/emitted.js';
 
 describe('wire reader', () => {
   it('reads back every varint the emitter writes (seeded, with negatives and 2^53 - 1)', () => {
