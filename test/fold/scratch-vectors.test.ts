@@ -1,14 +1,14 @@
 // A norm's parameter vectors read into reused scratch arrays (src/fold/scratch-vectors.ts) must be the numbers
 // tensorToFloat64 gives, whatever the storage form, byte offset or length, and a slot must not disturb another.
 // Seeded: raw float32 at every offset modulo 4 (as raw_data sits in a file), float_data, double and float16.
-import { describe, expect, it } from 'vitest';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { mkdtempSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { DataType, rawBytesOf, type Tensor } from '../../src/graph/ir.js';
 import { makeTensor, tensorToFloat64 } from '../../src/graph/tensor.js';
 import { readModelFile } from '../../src/onnx/read.js';
-import { isOnDisk } from '../../src/onnx/sparse-read.js';
+import { isOnDisk, readWholeUpTo } from '../../src/onnx/sparse-read.js';
 import { vectorInSlot } from '../../src/fold/scratch-vectors.js';
 import { GraphBuilder, modelBytes, randn, rng } from '../helpers/build.js';
 
@@ -20,6 +20,11 @@ function rawAt(name: string, values: Float32Array, offset: number): Tensor {
 }
 
 const same = (a: Float64Array, b: Float64Array) => a.length === b.length && a.every((x, i) => Object.is(x, b[i]));
+
+// The model here is small; it is read sparsely, as files over the whole-read size are (sparse-read.ts).
+let wholeUpTo = 0;
+beforeAll(() => { wholeUpTo = readWholeUpTo(0); });
+afterAll(() => { readWholeUpTo(wholeUpTo); });
 
 describe('scratch parameter vectors', () => {
   it('hold the values tensorToFloat64 gives, for every storage form, offset and length', () => {
