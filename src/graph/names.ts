@@ -79,3 +79,18 @@ export function nameTable(capacity: number, grow = false): NameTable {
     get size() { return names.length; },
   };
 }
+
+/**
+ * A test of membership in `names`: a few (up to 8, the usual graph inputs) are compared directly, more go in a
+ * set. Asked for each of 10^5 initializer names, the set hashed every one of them.
+ */
+export function memberOf(names: readonly string[]): (name: string) => boolean {
+  if (names.length > 8) {
+    const set = new Set(names);
+    return (name) => set.has(name);
+  }
+  return (name) => {
+    for (let k = 0; k < names.length; k++) if (names[k] === name) return true;
+    return false;
+  };
+}

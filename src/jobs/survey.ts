@@ -3,6 +3,7 @@ import { statSync } from 'node:fs';
 import type { Dim, Graph, Model, Tensor, ValueInfo } from '../graph/ir.js';
 import { externalStorage, hasSubgraphs, storageKind, subgraphsOf } from '../graph/ir.js';
 import { bytesPerElement, dataTypeName, tensorByteSize } from '../graph/tensor.js';
+import { memberOf } from '../graph/names.js';
 import { eachTensor, externalRef, resolveLocation } from '../onnx/external.js';
 import { readModelFile } from '../onnx/read.js';
 import { isPleatError } from '../errors.js';
@@ -100,10 +101,7 @@ export function surveyModel(model: Model, file: string | null = null, missingDat
   let nodeCount = 0, subgraphCount = 0, initCount = 0, initBytes = 0, constCount = 0, constBytes = 0, external = 0;
   // graph inputs that an initializer gives a default: the initializers against a set of the inputs (older exports
   // list every weight as a graph input too, and a search per input grew with their product)
-  const inputNames = new Set(model.graph.inputs.map((v) => v.name));
-  // (with a few inputs, the usual case, each initializer is compared with them directly: the set hashed each name)
-  const fewInputs = model.graph.inputs.length <= 8 ? model.graph.inputs.map((v) => v.name) : undefined;
-  const isInput = (name: string): boolean => fewInputs ? fewInputs.includes(name) : inputNames.has(name);
+  const isInput = memberOf(model.graph.inputs.map((v) => v.name));
   const initialized = new Set<string>();
   // One walk over every tensor (a graph of 10^5 nodes holds some 10^5 tensors: each pass over them shows)
   const walk = (g: Graph) => {

@@ -14,6 +14,7 @@ import {
 import { loadExternalData } from './external.js';
 import { validateModel } from '../graph/validate.js';
 import { openForRead, readSparse } from './sparse-read.js';
+import { memberOf } from '../graph/names.js';
 
 type Buf = Uint8Array;
 
@@ -414,17 +415,9 @@ function markOverridable(graphs: readonly Graph[], irVersion: number): void {
   if (irVersion < 4) return; // before IR 4 every initializer had to be listed as an input too: none is a default
   for (const g of graphs) {
     if (g.inputs.length === 0 || g.initializers.length === 0) continue;
-    if (g.inputs.length <= 8) {
-      // a few inputs (the usual case) are compared directly: a set hashed each of 10^5 initializer names
-      const inits = g.initializers, inputs = g.inputs;
-      for (let i = 0; i < inits.length; i++) {
-        const t = inits[i]!;
-        for (let k = 0; k < inputs.length; k++) if (inputs[k]!.name === t.name) { t.overridable = true; break; }
-      }
-      continue;
-    }
-    const inputs = new Set(g.inputs.map((v) => v.name));
-    for (const t of g.initializers) if (inputs.has(t.name)) t.overridable = true;
+    const isInput = memberOf(g.inputs.map((v) => v.name));
+    const inits = g.initializers;
+    for (let i = 0; i < inits.length; i++) if (isInput(inits[i]!.name)) inits[i]!.overridable = true;
   }
 }
 
