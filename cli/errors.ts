@@ -13,7 +13,41 @@ export function failAndExit(e: unknown): never {
   process.exit(3);
 }
 
-/** Write text to stdout and resolve once it is flushed (so process.exit cannot cut it off). */
+/** Whether the reader of stdout (or stderr) went away, as `pleat audit m.onnx | head -1` does after one line. */
+function gone(s: NodeJS.WriteStream): boolean {
+  return s.destroyed || s.writableEnded;
+}
+
+/**
+ * When the reader of stdout or stderr closes its end early (`| head`), the rest of that stream's text is
+ * dropped and the command carries on: files are still written as a whole or not at all, and the exit code is the
+ * job's own, not an error about the pipe. Any other failure to write is an internal error, in one line. (Node
+ * ignores SIGPIPE, so each write to a closed pipe fails with EPIPE; unhandled, that ended in a stack trace.)
+ */
+export function dropOutputWhenReaderLeaves(): void {
+  for (const s of [process.stdout, process.stderr]) {
+    s.on('error', (e: NodeJS.ErrnoException) => {
+      if (e.code === 'EPIPE') { s.destroy(); return; }
+      if (s === process.stderr) process.exit(3); // nowhere left to say why
+      failAndExit(e);
+    });
+  }
+}
+
+/** Write text to stdout and resolve once it is flushed (so process.exit cannot cut it off), or once stdout is gone. */
 export function out(text: string): Promise<void> {
-  return new Promise((res) => { if (process.stdout.write(text)) res(); else process.stdout.once('drain', () => res()); });
+  const s = process.stdout;
+  if (gone(s)) return Promise.resolve();
+  return new Promise((res) => {
+    if (s.write(text)) { res(); return; }
+    const done = (): void => { s.off('drain', done); s.off('close', done); res(); };
+    s.once('drain', done);
+    s.once('close', done);
+  });
+}
+
+/** Resolve once a stream has taken everything written to it (at once when it is gone). */
+export function flushed(s: NodeJS.WriteStream): Promise<void> {
+  if (gone(s)) return Promise.resolve();
+  return new Promise((res) => { s.write('', () => res()); });
 }

@@ -4,7 +4,7 @@ import { PleatError } from '../src/errors.js';
 import { FORMATS, useColour, type Format } from '../src/report/format.js';
 import { parseReportSpecs } from '../src/report/files.js';
 import type { StagedFile } from '../src/jobs/outputs.js';
-import { out } from './errors.js';
+import { flushed, out } from './errors.js';
 
 export interface ReportFlags {
   json?: boolean;
@@ -110,7 +110,7 @@ async function print(text: string): Promise<void> {
  * Exit handlers still run (the output transaction's among them); the exit code is process.exitCode.
  */
 export async function exitWhenWritten(): Promise<never> {
-  await Promise.all([process.stdout, process.stderr].map((s) => new Promise<void>((res) => { s.write('', () => res()); })));
+  await Promise.all([flushed(process.stdout), flushed(process.stderr)]);
   process.exit();
 }
 

@@ -5,7 +5,7 @@ import { describe, expect, it } from 'vitest';
 import { mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { GraphBuilder, modelBytes, randn, rng, uniform } from '../helpers/build.js';
+import { longChain } from '../helpers/long-chain.js';
 import { pleat } from '../helpers/cli.js';
 import { auditFile } from '../../src/jobs/audit.js';
 import { auditText } from '../../src/report/audit-text.js';
@@ -13,27 +13,10 @@ import { toJsonText } from '../../src/report/json.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'pleat-long-report-'));
 
-/** A chain of `blocks` Conv -> BatchNormalization -> Relu, some names in other scripts (seeded weights). */
-function chain(blocks: number): Uint8Array {
-  const r = rng(5);
-  const g = new GraphBuilder();
-  g.input('x', [1, 2, 3, 3]).output('y');
-  let cur = 'x';
-  for (let k = 0; k < blocks; k++) {
-    const tag = k % 3 === 0 ? `förderband_Ω_🚚_${k}` : `line_${k}`;
-    g.init(`w${k}`, [2, 2, 1, 1], randn(r, 4, 0.5));
-    const c = g.node('Conv', [cur, `w${k}`], {}, { name: `conv_${tag}` });
-    const p = (n: string, v: Float32Array) => g.init(`${n}${k}`, [2], v);
-    const b = g.node('BatchNormalization', [c, p('s', uniform(r, 2, 0.5, 1.5)), p('b', randn(r, 2, 0.2)), p('m', randn(r, 2, 0.3)), p('v', uniform(r, 2, 0.2, 2))], {}, { name: `bn_${tag}` });
-    cur = g.node('Relu', [b], {}, { name: `relu_${k}`, outputs: k === blocks - 1 ? ['y'] : undefined });
-  }
-  return modelBytes(g);
-}
-
 describe('a long audit report on stdout', { timeout: 120_000 }, () => {
   it('is the report the library renders and the one --report writes, byte for byte', () => {
     const model = join(dir, 'chain.onnx');
-    writeFileSync(model, chain(2000));
+    writeFileSync(model, longChain(2000));
     const text = join(dir, 'audit.txt'), json = join(dir, 'audit.json');
     const r = pleat(['audit', model, '--quiet', '--report', `text:${text}`, '--report', json]);
     expect(r.stderr).toBe('');
