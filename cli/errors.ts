@@ -1,6 +1,6 @@
 // How the CLI ends: expected failures print one line and exit 2; bugs print one line asking for a report
 // (the stack only with PLEAT_DEBUG=1).
-import { isPleatError } from '../src/errors.js';
+import { PleatError, isPleatError } from '../src/errors.js';
 
 export function failAndExit(e: unknown): never {
   if (isPleatError(e)) {
@@ -21,15 +21,16 @@ function gone(s: NodeJS.WriteStream): boolean {
 /**
  * When the reader of stdout or stderr closes its end early (`| head`), the rest of that stream's text is
  * dropped and the command carries on: files are still written as a whole or not at all, and the exit code is the
- * job's own, not an error about the pipe. Any other failure to write is an internal error, in one line. (Node
- * ignores SIGPIPE, so each write to a closed pipe fails with EPIPE; unhandled, that ended in a stack trace.)
+ * job's own, not an error about the pipe. (Node ignores SIGPIPE, so each write to a closed pipe fails with EPIPE;
+ * unhandled, that ended in a stack trace and exit 1.) Stdout that cannot take the text for another reason (a full
+ * disk) is not a bug in pleat: one line and exit 2, like any output file that cannot be written.
  */
-export function dropOutputWhenReaderLeaves(): void {
-  for (const s of [process.stdout, process.stderr]) {
+export function guardStandardStreams(): void {
+  for (const [s, label] of [[process.stdout, 'standard output'], [process.stderr, 'standard error']] as const) {
     s.on('error', (e: NodeJS.ErrnoException) => {
       if (e.code === 'EPIPE') { s.destroy(); return; }
-      if (s === process.stderr) process.exit(3); // nowhere left to say why
-      failAndExit(e);
+      if (s === process.stderr) process.exit(2); // nowhere left to say why
+      failAndExit(new PleatError('bad-input', `cannot write to ${label} (${e.code ?? e.message.split('\n')[0]})`));
     });
   }
 }

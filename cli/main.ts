@@ -8,7 +8,7 @@ import { PleatError } from '../src/errors.js';
 import { EXIT_CODES_TEXT } from '../src/report/exit-codes.js';
 import { checkFlags, type OptionTable } from './check-flags.js';
 import { COMMANDS, commandNames } from './commands/table.js';
-import { dropOutputWhenReaderLeaves, failAndExit } from './errors.js';
+import { guardStandardStreams, failAndExit } from './errors.js';
 import { nearest } from './suggest.js';
 
 // yargs 17 through its CommonJS build: about 35 ms to load here, against 65 ms for its ES module build (which
@@ -105,5 +105,5 @@ async function main(): Promise<void> {
 // Ctrl-C or a TERM ends through process.exit, so the output transaction's exit hook removes its temporaries.
 for (const [sig, code] of [['SIGINT', 130], ['SIGTERM', 143]] as const) process.once(sig, () => process.exit(code));
 
-dropOutputWhenReaderLeaves();
+guardStandardStreams();
 main().catch(failAndExit);

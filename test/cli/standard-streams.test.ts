@@ -1,10 +1,12 @@
+// What pleat does when its standard output cannot take the text (cli/errors.ts, guardStandardStreams).
+//
 // A reader that closes stdout early (`pleat audit m.onnx | head -1`): pleat drops the rest of its report and ends
 // as the job would have ended, with no stack trace and no exit code about the pipe; a fold still writes its model
 // whole. (Node ignores SIGPIPE, so each write to the closed pipe fails with EPIPE; unhandled, that printed a stack
 // trace and exited 1, which is pleat's code for a failed gate.)
 import { describe, expect, it } from 'vitest';
-import { spawn } from 'node:child_process';
-import { mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
+import { spawn, spawnSync } from 'node:child_process';
+import { closeSync, existsSync, mkdtempSync, openSync, readFileSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { CLI, ROOT, pleat } from '../helpers/cli.js';
@@ -53,4 +55,23 @@ describe('stdout closed by its reader', { timeout: 120_000 }, () => {
     expect(r.code).toBe(0);
     expect(Buffer.compare(readFileSync(got), readFileSync(want))).toBe(0);
   });
+});
+
+// A stdout that fails for another reason (Linux's /dev/full answers every write with ENOSPC) is not a bug in
+// pleat: one line naming the stream and the cause, and exit 2 (it was an internal error, exit 3, before).
+describe.skipIf(!existsSync('/dev/full'))('stdout on a full disk', { timeout: 120_000 }, () => {
+  for (const args of [['survey', model], ['audit', model, '--quiet']]) {
+    it(`pleat ${args[0]} says so in one line and exits 2`, () => {
+      const full = openSync('/dev/full', 'w');
+      try {
+        const r = spawnSync(process.execPath, [CLI, ...args], {
+          cwd: ROOT, encoding: 'utf8', env: { ...process.env, NO_COLOR: '1', CI: 'true' }, stdio: ['ignore', full, 'pipe'],
+        });
+        expect(r.stderr).toBe('pleat: cannot write to standard output (ENOSPC)\n');
+        expect(r.status).toBe(2);
+      } finally {
+        closeSync(full);
+      }
+    });
+  }
 });
