@@ -13,7 +13,7 @@ import { accessSync, constants, readdirSync, readFileSync, renameSync, rmSync, s
 import { randomBytes } from 'node:crypto';
 import { basename, dirname, join, resolve } from 'node:path';
 import { PleatError } from '../errors.js';
-import { fileKeys } from '../onnx/paths.js';
+import { fileKeys, specialKind } from '../onnx/paths.js';
 import { ownsSideFile } from '../onnx/side-owner.js';
 import type { StagedFile } from '../onnx/write.js';
 
@@ -109,6 +109,11 @@ export class OutputSet {
     }
     const here = statSync(full, { throwIfNoEntry: false });
     if (here?.isDirectory()) throw new PleatError('bad-input', `${role} ${dest}: is a folder`);
+    const special = specialKind(here);
+    if (special) {
+      const hint = role === '--report' ? '; for the report on stdout, use --format' : '';
+      throw new PleatError('bad-input', `${role} ${dest}: is ${special}, not a file; pleat writes whole files into place and would replace it${hint}`);
+    }
     const keys = fileKeys(full);
     for (const k of keys) {
       const input = this.protectedKeys.get(k);

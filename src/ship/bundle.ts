@@ -3,6 +3,7 @@
 // attributes, inputs, outputs and the tensors it reads. All files are written to temporary names first and
 // renamed into place together, so a failure leaves no partial bundle.
 import { ensureLoaded } from '../onnx/sparse-read.js';
+import { specialKind } from '../onnx/paths.js';
 import { closeSync, mkdirSync, openSync, renameSync, rmSync, statSync, writeSync } from 'node:fs';
 import { basename, join, resolve, sep } from 'node:path';
 import { DataType, elementCount, type Attribute, type DataTypeCode, type Graph, type Model, type Tensor, type ValueInfo } from '../graph/ir.js';
@@ -327,9 +328,12 @@ function writeFilesAtomically(dir: string, files: Array<[string, Content]>, sour
   const targets = files.map(([name]) => join(dir, name));
   for (const target of targets) {
     if (source && resolve(source) === target) throw new PleatError('bad-input', `${target}: refusing to overwrite the input model; choose another --bundle folder`);
-    if (statSync(target, { throwIfNoEntry: false })?.isDirectory()) {
+    const st = statSync(target, { throwIfNoEntry: false });
+    if (st?.isDirectory()) {
       throw new PleatError('bad-input', `${target}: is a folder, so the bundle cannot be written there; remove it or choose another --bundle folder`);
     }
+    const special = specialKind(st);
+    if (special) throw new PleatError('bad-input', `${target}: is ${special}, not a file; writing the bundle into place would replace it`);
   }
   const tag = `${process.pid}.${tmpCounter++}`;
   const temps: string[] = [];

@@ -1,5 +1,5 @@
 // `evaluate`: run one model on given or seeded inputs, and save its outputs as .npy files with an index.
-import { mkdirSync, renameSync, rmSync, writeFileSync } from 'node:fs';
+import { mkdirSync, renameSync, rmSync, statSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import type { Model } from '../graph/ir.js';
 import type { Precision, Value } from '../eval/value.js';
@@ -10,6 +10,7 @@ import { PleatError } from '../errors.js';
 import { isFloatType } from '../graph/tensor.js';
 import { DataType } from '../graph/ir.js';
 import { npyBytes } from './npy.js';
+import { specialKind } from '../onnx/paths.js';
 import { asMap, checkDimFlags, makeProbe, resolveInputs, summarizeInputs, type InputOptions, type InputSummary } from './inputs.js';
 
 export interface EvaluateOptions extends InputOptions {
@@ -90,6 +91,13 @@ export function saveOutputs(dir: string, outputs: ReadonlyMap<string, Value>, op
     mkdirSync(dir, { recursive: true });
   } catch (e) {
     throw new PleatError('bad-input', `${dir}: cannot create the output folder (${(e as NodeJS.ErrnoException).code ?? String(e)})`);
+  }
+  // each file is written whole at a temporary name and renamed into place: over a FIFO or a device, that would
+  // replace the pipe or device itself with a plain file
+  for (const f of [...files, 'outputs.json']) {
+    const dest = join(dir, f);
+    const special = specialKind(statSync(dest, { throwIfNoEntry: false }));
+    if (special) throw new PleatError('bad-input', `${dest}: is ${special}, not a file; saving the outputs into place would replace it`);
   }
   const index: Record<string, string> = {};
   names.forEach((n, i) => { index[n] = files[i]!; });

@@ -4,7 +4,8 @@
 // validated against the shipped JSON Schema with ajv.
 import { beforeAll, describe, expect, it } from 'vitest';
 import { SCHEMA_VERSION } from '../../src/jobs/types.js';
-import { existsSync, mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
+import { existsSync, lstatSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, writeFileSync } from 'node:fs';
+import { execFileSync } from 'node:child_process';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { GraphBuilder, modelBytes, randn, rng } from '../helpers/build.js';
@@ -121,6 +122,17 @@ describe('pleat evaluate', { timeout: 120_000 }, () => {
     expect(j.outputs[0]).toMatchObject({ name: 'y', file: 'y.npy', dims: [1, 3, 5, 5] });
     pleat(['evaluate', a, '--shape', 'x=1x2x5x5', '--seed', '4', '--precision', 'float32', '--save', o2]);
     expect(readFileSync(join(o1, 'y.npy'))).toEqual(readFileSync(join(o2, 'y.npy')));
+  });
+
+  it('a FIFO where --save would put a file is refused, and left a FIFO', () => {
+    const out = join(dir, 'eval-fifo');
+    mkdirSync(out);
+    execFileSync('mkfifo', [join(out, 'outputs.json')]);
+    const r = pleat(['evaluate', a, '--shape', 'x=1x2x5x5', '--save', out]);
+    expect(r.code).toBe(2);
+    expect(r.stderr).toMatch(/^pleat: .*outputs\.json: is a FIFO, not a file;/);
+    expect(readdirSync(out)).toEqual(['outputs.json']);
+    expect(lstatSync(join(out, 'outputs.json')).isFIFO()).toBe(true);
   });
 
   it('--save is required; a wrong input shape is bad input naming both shapes', () => {

@@ -2,13 +2,15 @@
 // no file overwritten that pleat was not asked to write (inputs compared by real path and inode), and every
 // output of a run (model, side file, reports) staged and renamed in together, or nothing written at all.
 import { describe, expect, it } from 'vitest';
-import { existsSync, linkSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, symlinkSync, writeFileSync } from 'node:fs';
+import { execFileSync } from 'node:child_process';
+import { existsSync, linkSync, lstatSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, symlinkSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import onnxProto from 'onnx-proto';
 import { GraphBuilder, modelBytes, tensor } from '../helpers/build.js';
 import { pleat } from '../helpers/cli.js';
 import { readModelFile } from '../../src/onnx/read.js';
+import { writeModelFile } from '../../src/onnx/write.js';
 import { tensorToFloat64 } from '../../src/graph/tensor.js';
 import { checkerAvailable, onnxCheck } from '../helpers/checker.js';
 
@@ -156,6 +158,43 @@ describe('never overwrite what was not asked for (issue 11 item 2)', () => {
       expect(r.stderr).toMatch(/refusing to overwrite the input model/);
     }
     expect(readdirSync(dir).sort()).toEqual(['a.onnx', 'hard.onnx', 'link.onnx', 'sub']);
+  });
+});
+
+describe('a destination that is not a file', () => {
+  // An output is written whole at a temporary name and renamed over its destination: over a FIFO or a device
+  // that rename replaced the pipe or device itself with a plain file (over /dev/full when run as root). FIFOs
+  // made here, and a symlink to /dev/null (were the refusal missing, only the symlink would be replaced).
+  const isFifo = (p: string) => lstatSync(p).isFIFO();
+
+  it('-o, --report and the side file naming a FIFO or a device are refused, and nothing is written', () => {
+    const dir = tmp();
+    const fifo = join(dir, 'pipe.onnx'), report = join(dir, 'pipe.json'), side = join(dir, 'b.onnx.data');
+    for (const p of [fifo, report, side]) execFileSync('mkfifo', [p]);
+    symlinkSync('/dev/null', join(dir, 'null.onnx'));
+    const cases: Array<[string[], RegExp]> = [
+      [['-o', fifo], /^pleat: -o .*pipe\.onnx: is a FIFO, not a file;/],
+      [['-o', join(dir, 'null.onnx')], /^pleat: -o .*null\.onnx: is a device, not a file;/],
+      [['-o', join(dir, 'a.onnx'), '--report', report], /^pleat: --report .*pipe\.json: is a FIFO, not a file;.*use --format/],
+      [['-o', join(dir, 'b.onnx'), '--external-data-min', '0'], /^pleat: side file .*b\.onnx\.data: is a FIFO, not a file;/],
+    ];
+    for (const [args, msg] of cases) {
+      const r = pleat(['fold', 'models/tray-edge.onnx', ...args, '--quiet']);
+      expect(r.code, args.join(' ')).toBe(2);
+      expect(r.stderr).toMatch(msg);
+      expect(r.stderr.trim().split('\n')).toHaveLength(1);
+    }
+    for (const p of [fifo, report, side]) expect(isFifo(p)).toBe(true);
+    expect(lstatSync(join(dir, 'null.onnx')).isSymbolicLink()).toBe(true);
+    expect(readdirSync(dir).sort()).toEqual(['b.onnx.data', 'null.onnx', 'pipe.json', 'pipe.onnx']);
+  });
+
+  it('the library refuses to write a model over a FIFO', () => {
+    const dir = tmp();
+    const fifo = join(dir, 'pipe.onnx');
+    execFileSync('mkfifo', [fifo]);
+    expect(() => writeModelFile(readModelFile('models/tray-edge.onnx'), fifo)).toThrow(/is a FIFO, not a file/);
+    expect(isFifo(fifo)).toBe(true);
   });
 });
 

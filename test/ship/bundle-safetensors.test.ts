@@ -1,5 +1,6 @@
 import { afterAll, describe, expect, it } from 'vitest';
-import { existsSync, mkdtempSync, readFileSync, readdirSync, rmSync, writeFileSync, mkdirSync } from 'node:fs';
+import { existsSync, lstatSync, mkdtempSync, readFileSync, readdirSync, rmSync, writeFileSync, mkdirSync } from 'node:fs';
+import { execFileSync } from 'node:child_process';
 import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
 import onnxProto from 'onnx-proto';
@@ -219,6 +220,13 @@ describe('safetensors bundle', () => {
     mkdirSync(join(blocked, 'manifest.json'), { recursive: true });
     expectPleat(() => exportBundle(model, blocked, 'safetensors'), /is a folder/);
     expect(readdirSync(blocked)).toEqual(['manifest.json']); // nothing else was written
+    // a FIFO where a bundle file goes: the rename would replace the pipe itself with a plain file
+    const piped = join(work, 'piped');
+    mkdirSync(piped);
+    execFileSync('mkfifo', [join(piped, 'weights.safetensors')]);
+    expectPleat(() => exportBundle(model, piped, 'safetensors'), /weights\.safetensors: is a FIFO, not a file/);
+    expect(readdirSync(piped)).toEqual(['weights.safetensors']);
+    expect(lstatSync(join(piped, 'weights.safetensors')).isFIFO()).toBe(true);
     expectPleat(() => exportBundle(model, join(work, 'x'), 'onnx' as never), /--bundle-format 'onnx'/);
     // a tensor whose data is shorter than its dims: refused before anything is created
     const damaged = readModelFile(fixtureModelPath());
