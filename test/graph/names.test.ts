@@ -38,7 +38,7 @@ describe('name table', () => {
         expect(t.add(s)).toBe(m.get(s));
       }
       expect(t.size).toBe(m.size);
-      for (const [s, id] of m) expect(t.id(s)).toBe(id);
+      for (const [s, id] of m) { expect(t.id(s)).toBe(id); expect(t.nameOf(id)).toBe(s); }
       expect(t.id('not-there')).toBe(-1);
     });
   }
