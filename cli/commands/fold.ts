@@ -6,7 +6,7 @@ import type { FoldJobOptions } from '../../src/jobs/types.js';
 import { startSha256, stopSha256Ahead } from '../../src/jobs/sha256.js';
 import { keepList, loadConfig, nameOrigins, runSettings } from '../config.js';
 import type { Job } from '../batch.js';
-import { checkDestinations, planReports, runAndReport } from '../output.js';
+import { checkDestinations, exitWhenWritten, planReports, runAndReport } from '../output.js';
 import { checkFlags, configFlags, EPILOGUE, inputFlags, int8Flags, int8Setting, many, reportFlags, threadsFlag } from '../flags.js';
 
 
@@ -86,4 +86,5 @@ export async function handler(argv: Flags): Promise<void> {
   });
   const jobs: Job[] = argv.models.map((model, i) => ({ command: 'fold', model, output: outputs[i]!, opts, runFigures: plan.runFigures }));
   await runAndReport('fold', jobs, plan, argv.quiet);
+  await exitWhenWritten(); // (every file is renamed in and the report printed: nothing is left for the exit to wait on)
 }
