@@ -14,7 +14,7 @@ import { estimateRun, type Estimate } from '../eval/estimate.js';
 import { checkEstimateFits, checkProbeEstimate, checkProbeShapes } from './probe-budget.js';
 import { PleatError } from '../errors.js';
 import { dataTypeName } from '../graph/tensor.js';
-import { computeMetrics, diffHistogram, worstOf, type DiffHistogram, type Metrics } from './metrics.js';
+import { computeMetrics, diffHistogram, finiteInBoth, worstOf, type DiffHistogram, type Metrics } from './metrics.js';
 import { BUDGET_NAMES, DEFAULT_GATES, defaultGateFor, defaultGateKey, INT8_WEIGHTS_GATE, METRIC_NAMES, parseGate, type Gate, type GateLimit, type GateScope } from './gate.js';
 import { roundedWeightsModel } from '../fold/quant.js';
 import type { Int8Granularity } from '../fold/int8.js';
@@ -91,7 +91,8 @@ export const DEFAULT_PROBES = 3;
 export const DEFAULT_EXTRA_PROBES = 8;
 
 /**
- * 'compared'; 'empty' when the output had no elements on any probe (nothing compared: the check is skipped);
+ * 'compared'; 'empty' when the output had no elements on any probe, or none that is a finite number in both
+ * models (nothing compared: the check is skipped);
  * or why an output could not be compared (each is a failure).
  */
 export type OutputStatus = 'compared' | 'empty' | 'only-in-a' | 'only-in-b' | 'shape-differs';
@@ -302,9 +303,9 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
   const aNames = new Set(aOut.map((o) => o.name));
 
   // Per output shared by both: metrics per probe, or the first shape difference.
-  interface Acc { histogram?: DiffHistogram; metrics: Metrics[]; own: Metrics[]; deploy: Metrics[]; dimsA?: number[]; dimsB?: number[]; shapeDiffers: boolean; typeA?: DataTypeCode; typeB?: DataTypeCode }
+  interface Acc { histogram?: DiffHistogram; metrics: Metrics[]; finite: number; own: Metrics[]; deploy: Metrics[]; dimsA?: number[]; dimsB?: number[]; shapeDiffers: boolean; typeA?: DataTypeCode; typeB?: DataTypeCode }
   const acc = new Map<string, Acc>();
-  for (const o of aOut) if (bOut.has(o.name)) acc.set(o.name, { metrics: [], own: [], deploy: [], shapeDiffers: false });
+  for (const o of aOut) if (bOut.has(o.name)) acc.set(o.name, { metrics: [], finite: 0, own: [], deploy: [], shapeDiffers: false });
   const onlyB = new Map<string, Value>();
   const onlyA = new Map<string, Value>();
   const watch = opts.watch;
@@ -388,6 +389,7 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
           if (s.shapeDiffers) continue;
           if (!sameDims(va.dims, vb.dims)) { s.shapeDiffers = true; s.dimsA = [...va.dims]; s.dimsB = [...vb.dims]; continue; }
           s.metrics.push(computeMetrics(vb.data, va.data));
+          if (s.finite === 0) s.finite = finiteInBoth(vb.data, va.data); // (only whether there is one matters)
           s.histogram = diffHistogram(vb.data, va.data, s.histogram);
           if (ra32 && rb32) {
             const a32 = ra32.get(name)!, b32 = rb32.get(name)!;
@@ -430,6 +432,14 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
     if (s.metrics.every((m) => m.count === 0)) {
       out.status = 'empty';
       out.problem = `output '${o.name}' has no elements on any probe, so nothing was compared`;
+      outputs.push(out);
+      continue;
+    }
+    // NaN or the same infinity everywhere on both sides agrees, but compares nothing: skipped, never passed (a
+    // difference there, NaN on one side only or unequal infinities, still fails below)
+    if (s.finite === 0 && metrics.maxAbs === 0 && metrics.nanMismatches === 0) {
+      out.status = 'empty';
+      out.problem = `output '${o.name}' has no element that is a finite number in both models on any probe (NaN or infinite throughout), so nothing was compared`;
       outputs.push(out);
       continue;
     }

@@ -83,6 +83,16 @@ function metricsOf(a: Float64Array, b: Float64Array): Metrics {
   return { maxAbs, maxRel, rms, cosine, nanMismatches, peak, count: n };
 }
 
+/**
+ * How many elements are finite numbers on both sides. Elements that are NaN (or the same infinity) on both sides
+ * agree, but compare nothing: an output with none of these on any probe was not checked at all.
+ */
+export function finiteInBoth(a: ArrayLike<number>, b: ArrayLike<number>): number {
+  let n = 0;
+  for (let i = 0; i < a.length; i++) if (Number.isFinite(a[i]!) && Number.isFinite(b[i]!)) n++;
+  return n;
+}
+
 /** The worst of several probes' metrics: largest errors, smallest cosine, most NaN mismatches. */
 export function worstOf(list: readonly Metrics[]): Metrics {
   if (list.length === 0) throw new RangeError('worstOf: no metrics');

@@ -12,7 +12,8 @@ export type CheckStatus = 'passed' | 'failed' | 'skipped';
  * - `no-shape`: an input's shape is unknown and no flag sets it;
  * - `no-kernel`: the evaluator has no kernel for an operator (or attribute value) of the model;
  * - `random-op`: the model draws random numbers (Bernoulli, RandomNormal, ...), so two runs cannot be compared;
- * - `no-elements`: an output had no elements on any probe, or the model has no outputs.
+ * - `no-elements`: an output had no elements on any probe, or none that is a finite number in both models (NaN
+ *   or infinite throughout: those agree but compare nothing), or the model has no outputs.
  */
 export type SkipReason = 'no-shape' | 'no-kernel' | 'random-op' | 'no-elements';
 
@@ -32,12 +33,19 @@ export interface Coverage {
 }
 
 /** The status of a comparison from its outputs' results. */
-export function checkStatus(outputs: ReadonlyArray<{ name: string; status: string; passed: boolean }>): { status: CheckStatus; skipped: SkipInfo | null } {
+export function checkStatus(outputs: ReadonlyArray<{ name: string; status: string; passed: boolean; metrics?: { count: number } }>): { status: CheckStatus; skipped: SkipInfo | null } {
   if (outputs.some((o) => !o.passed && o.status !== 'empty')) return { status: 'failed', skipped: null };
   if (outputs.length === 0) return { status: 'skipped', skipped: { reason: 'no-elements', message: 'the model has no outputs, so nothing was compared' } };
-  const empty = outputs.filter((o) => o.status === 'empty').map((o) => `'${o.name}'`);
+  const empty = outputs.filter((o) => o.status === 'empty');
   if (empty.length) {
-    return { status: 'skipped', skipped: { reason: 'no-elements', message: `output ${empty.join(', ')} had no elements on any probe, so nothing was compared there` } };
+    // (an empty output with elements had none that was a finite number in both models)
+    const none = empty.filter((o) => !o.metrics || o.metrics.count === 0).map((o) => `'${o.name}'`);
+    const nonFinite = empty.filter((o) => o.metrics && o.metrics.count > 0).map((o) => `'${o.name}'`);
+    const parts = [
+      ...(none.length ? [`output ${none.join(', ')} had no elements on any probe`] : []),
+      ...(nonFinite.length ? [`output ${nonFinite.join(', ')} had no element that is a finite number in both models on any probe (NaN or infinite throughout)`] : []),
+    ];
+    return { status: 'skipped', skipped: { reason: 'no-elements', message: `${parts.join('; ')}, so nothing was compared there` } };
   }
   return { status: 'passed', skipped: null };
 }

@@ -312,3 +312,49 @@ print(json.dumps({k: np.load(d + '/' + v).tolist() for k, v in idx.items()}))`],
     expect(() => saveOutputs(join(file, 'sub'), new Map())).toThrow(/plain-file\/sub: cannot create the output folder \(ENOTDIR\)/);
   });
 });
+
+// Outputs that are NaN (or one infinity) at every element on both sides agree element by element but compare
+// nothing: such a check is skipped, never passed (a weight scaled by -7 upstream of Sqrt(-(|u| + c)) went
+// unnoticed, reported as maxAbs 0, cosine 1). A NaN on one side only, or unequal infinities, still fails.
+describe('outputs with no finite element', () => {
+  /** y = tail(x * w + c) for x [1, 4]: the tail decides whether y is NaN, infinite or finite. */
+  function tailModel(w: number, tail: 'nan' | 'inf' | 'finite'): ReturnType<typeof parseModel> {
+    const g = new GraphBuilder();
+    g.input('x', [1, 4]).output('y', [1, 4]);
+    g.init('w', [4], new Float32Array([w, w, w, w]));
+    g.init('c', [4], new Float32Array([1, 1, 1, 1]));
+    g.init('big', [1], new Float32Array([1000]));
+    const u = g.node('Mul', ['x', 'w']);
+    const a = g.node('Abs', [u]);
+    const v = g.node('Add', [a, 'c']);
+    if (tail === 'nan') {
+      g.node('Sqrt', [g.node('Neg', [v])], {}, { outputs: ['y'] }); // sqrt of a number below zero is NaN (ONNX Sqrt)
+    } else if (tail === 'inf') {
+      g.node('Exp', [g.node('Add', [v, 'big'])], {}, { outputs: ['y'] }); // e^(>1000) overflows float32 and float64
+    } else {
+      g.node('Identity', [v], {}, { outputs: ['y'] });
+    }
+    return parseModel(modelBytes(g), dir);
+  }
+
+  for (const tail of ['nan', 'inf'] as const) {
+    it(`all ${tail === 'nan' ? 'NaN' : 'infinite'} on both sides: skipped (no-elements), even with a changed weight`, () => {
+      const r = compare(tailModel(1, tail), tailModel(-7, tail), { probes: 3 });
+      expect(r.status).toBe('skipped');
+      expect(r.skipped?.reason).toBe('no-elements');
+      expect(r.skipped?.message).toMatch(/'y' had no element that is a finite number in both models/);
+      expect(r.outputs[0]!.status).toBe('empty');
+      expect(r.outputs[0]!.passed).toBe(false);
+    });
+  }
+
+  it('finite somewhere: compared as before (passed when equal, failed on a changed weight)', () => {
+    expect(compare(tailModel(1, 'finite'), tailModel(1, 'finite'), { probes: 2 }).status).toBe('passed');
+    expect(compare(tailModel(1, 'finite'), tailModel(-7, 'finite'), { probes: 2 }).status).toBe('failed');
+  });
+
+  it('NaN on one side only fails', () => {
+    const r = compare(tailModel(1, 'finite'), tailModel(1, 'nan'), { probes: 2 });
+    expect(r.status).toBe('failed');
+  });
+});
