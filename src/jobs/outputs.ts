@@ -40,22 +40,38 @@ function alive(pid: number): boolean {
 /**
  * Finish or clear what a killed pleat run left in `dir`: commit records of dead processes are carried out (their
  * files were complete and checked), then their temporaries are removed. Live runs' files are left alone.
+ *
+ * A record is carried out only as pleat writes one: kept in the folder of its first file, listing that run's own
+ * temporaries (same process), each beside the name it carries. A record copied elsewhere (a folder
+ * copied whole) or put together by hand is dropped, not carried out. `inputOf` names the files the current run
+ * reads: a record that would replace one of them is refused, loudly, rather than swapping the input under the run.
  */
-export function recoverFolder(dir: string): void {
+export function recoverFolder(dir: string, inputOf: (path: string) => string | undefined = () => undefined): void {
   let names: string[];
   try { names = readdirSync(dir); } catch { return; }
   for (const n of names) {
     const m = RECORD.exec(n);
     if (!m || alive(Number(m[1]))) continue;
+    let list: StagedFile[] = [];
     try {
-      const list = JSON.parse(readFileSync(join(dir, n), 'utf8')) as StagedFile[];
-      for (const f of list) {
-        // only pleat temporaries of that process, each onto the name it carries, in its own folder
-        const t = TEMP.exec(basename(f.tmp));
-        const fits = t && t[1] === m[1] && dirname(f.tmp) === dirname(f.dest) && basename(f.tmp).endsWith(`-${basename(f.dest)}.tmp`);
-        if (fits && statSync(f.tmp, { throwIfNoEntry: false })) renameSync(f.tmp, f.dest);
-      }
+      const parsed = JSON.parse(readFileSync(join(dir, n), 'utf8')) as unknown;
+      if (Array.isArray(parsed)) list = parsed.filter((f): f is StagedFile => typeof f?.tmp === 'string' && typeof f?.dest === 'string');
     } catch { /* an unreadable record: its temporaries are removed below */ }
+    const ours = list.length > 0 && resolve(dirname(list[0]!.dest)) === resolve(dir) && list.every((f) => {
+      const t = TEMP.exec(basename(f.tmp));
+      return t !== null && t[1] === m[1] && dirname(resolve(f.tmp)) === dirname(resolve(f.dest))
+        && basename(f.tmp).endsWith(`-${basename(f.dest)}.tmp`);
+    });
+    if (ours) {
+      const pending = list.filter((f) => statSync(f.tmp, { throwIfNoEntry: false }));
+      for (const f of pending) {
+        const input = inputOf(f.dest);
+        if (input) {
+          throw new PleatError('bad-input', `${join(dir, n)}: a killed pleat run (process ${m[1]}) left this unfinished commit, which would replace the ${input}; remove the record to drop that commit, or run again reading another file`);
+        }
+      }
+      for (const f of pending) renameSync(f.tmp, f.dest);
+    }
     rmSync(join(dir, n), { force: true });
   }
   for (const n of readdirSync(dir)) {
@@ -86,6 +102,15 @@ export class OutputSet {
       exitHook = true;
       process.on('exit', abortAllOutputs);
     }
+  }
+
+  /** What a path is when it is a protected input (as protect() named it), else undefined. */
+  private inputAt(path: string): string | undefined {
+    for (const k of fileKeys(path)) {
+      const what = this.protectedKeys.get(k);
+      if (what) return what;
+    }
+    return undefined;
   }
 
   /** A file that must never be written: an input model or one of its side files. */
@@ -126,7 +151,7 @@ export class OutputSet {
       throw new PleatError('bad-input', `${role} ${dest}: a file of that name exists and is not pleat's side file for ${sideOf}; move it away or choose another output name`);
     }
     for (const k of keys) this.reservedKeys.set(k, `${role} ${dest}`);
-    if (!this.dirs.has(dir)) { this.dirs.add(dir); recoverFolder(dir); }
+    if (!this.dirs.has(dir)) { this.dirs.add(dir); recoverFolder(dir, (p) => this.inputAt(p)); }
     return full;
   }
 
@@ -181,7 +206,7 @@ export class OutputSet {
       if (other) throw new PleatError('bad-input', `${role} ${dest} is also written as ${other}; give each output its own path`);
     }
     for (const k of fileKeys(full)) this.reservedKeys.set(k, `${role} ${dest}`);
-    if (!this.dirs.has(parent)) { this.dirs.add(parent); recoverFolder(parent); }
+    if (!this.dirs.has(parent)) { this.dirs.add(parent); recoverFolder(parent, (p) => this.inputAt(p)); }
     return full;
   }
 

@@ -229,4 +229,60 @@ describe('one output transaction (issue 11 item 4)', () => {
     expect(readdirSync(dir).sort()).toEqual(['c.onnx', 'notes.tmp', 'r.json']);
     expect(readFileSync(join(dir, 'r.json'), 'utf8')).toBe('{"complete": true}');
   });
+
+  // A commit record is carried out only as pleat writes one (in the folder of its first file, naming that run's
+  // own temporaries): a record copied from elsewhere or put together by hand replaced the run's own input model
+  // and files in folders the run never named.
+  it('a record naming files in another folder is dropped, not carried out', () => {
+    const dir = tmp();
+    const dead = 2 ** 22 + 12346;
+    mkdirSync(join(dir, 'models')); mkdirSync(join(dir, 'out')); mkdirSync(join(dir, 'elsewhere'));
+    const input = join(dir, 'models', 'm.onnx');
+    writeFileSync(input, readFileSync('models/pump-vibration.onnx'));
+    const keep = join(dir, 'elsewhere', 'keep.txt');
+    writeFileSync(keep, 'keep me');
+    const plant = (folder: string, name: string, body: string) => {
+      const tmp = join(folder, `.pleat-${dead}-zz1-${name}.tmp`);
+      writeFileSync(tmp, body);
+      return { tmp, dest: join(folder, name) };
+    };
+    const entries = [plant(join(dir, 'models'), 'm.onnx', 'not a model'), plant(join(dir, 'elsewhere'), 'keep.txt', 'replaced')];
+    writeFileSync(join(dir, 'out', `.pleat-${dead}-zz.commit`), JSON.stringify(entries));
+    const before = readFileSync(input);
+    const r = pleat(['fold', input, '-o', join(dir, 'out', 'x.onnx'), '--quiet']);
+    expect(r.code, r.stderr).toBe(0);
+    expect(readFileSync(input).equals(before)).toBe(true);
+    expect(readFileSync(keep, 'utf8')).toBe('keep me');
+    expect(readdirSync(join(dir, 'out'))).toEqual(['x.onnx']);
+  });
+
+  it("a record that would replace the run's own input is refused in one line, and nothing is replaced", () => {
+    const dir = tmp();
+    const dead = 2 ** 22 + 12347;
+    const input = join(dir, 'm.onnx');
+    writeFileSync(input, readFileSync('models/pump-vibration.onnx'));
+    const tmpFile = join(dir, `.pleat-${dead}-yy0-m.onnx.tmp`);
+    writeFileSync(tmpFile, readFileSync('models/tray-edge.onnx'));
+    writeFileSync(join(dir, `.pleat-${dead}-yy.commit`), JSON.stringify([{ tmp: tmpFile, dest: input }]));
+    const before = readFileSync(input);
+    const r = pleat(['fold', input, '-o', join(dir, 'x.onnx'), '--quiet']);
+    expect(r.code).toBe(2);
+    expect(r.stderr).toMatch(/^pleat: .*\.commit: a killed pleat run \(process \d+\) left this unfinished commit, which would replace the input model .*m\.onnx;/);
+    expect(r.stderr.trim().split('\n')).toHaveLength(1);
+    expect(readFileSync(input).equals(before)).toBe(true);
+    expect(existsSync(join(dir, 'x.onnx'))).toBe(false);
+  });
+
+  it("a record naming another process's temporaries is dropped", () => {
+    const dir = tmp();
+    const dead = 2 ** 22 + 12348;
+    const tmpFile = join(dir, `.pleat-${dead + 1}-abc0-r.json.tmp`);
+    writeFileSync(tmpFile, '{"planted": true}');
+    writeFileSync(join(dir, 'r.json'), '{"mine": true}');
+    writeFileSync(join(dir, `.pleat-${dead}-abc.commit`), JSON.stringify([{ tmp: tmpFile, dest: join(dir, 'r.json') }]));
+    const r = pleat(['fold', 'models/tray-edge.onnx', '-o', join(dir, 'c.onnx'), '--quiet']);
+    expect(r.code, r.stderr).toBe(0);
+    expect(readFileSync(join(dir, 'r.json'), 'utf8')).toBe('{"mine": true}');
+    expect(readdirSync(dir).sort()).toEqual(['c.onnx', 'r.json']);
+  });
 });
