@@ -2,7 +2,7 @@
 // flags. Flags override the file: a --dim or --shape replaces the file's entry for that name, --gate, --probes,
 // --seed, --store and --fail-on replace the file's value, and --keep adds to the file's keep list (a node the
 // team chose to keep stays kept). Unknown keys are an error naming the key, so a typo never passes silently.
-import { existsSync, readFileSync } from 'node:fs';
+import { lstatSync, readFileSync, statSync } from 'node:fs';
 import { join } from 'node:path';
 import { PleatError } from '../src/errors.js';
 import { loadInputFiles, parseInputFlags, type InputValue } from '../src/verify/inputs.js';
@@ -49,14 +49,21 @@ const KEYS: Record<keyof PleatConfig, { check: Check; want: string }> = {
 /** Read and check a config file: --config FILE when given, else pleat.config.json in `cwd` when present. */
 export function loadConfig(explicit: string | undefined, cwd = process.cwd()): { config: PleatConfig; file: string | null } {
   const path = explicit ?? join(cwd, CONFIG_FILE);
-  if (explicit === undefined && !existsSync(path)) return { config: {}, file: null };
+  // Only a name with nothing behind it means "no config file": a symlink to a file moved away, or a link loop, is
+  // a config that cannot be read (read as absent, its settings, "strict" among them, were silently lost).
+  if (explicit === undefined && !lstatSync(path, { throwIfNoEntry: false })) return { config: {}, file: null };
   // messages name the file as the user knows it: as given, or pleat.config.json (in the working directory)
   const file = explicit ?? CONFIG_FILE;
+  const cannot = (why: string) => new PleatError('bad-input', `--config ${file}: cannot read (${why})`);
   let text: string;
   try {
+    const st = statSync(path);
+    // (a FIFO or device would block the read until something writes to it, or forever)
+    if (!st.isFile()) throw cannot(st.isDirectory() ? 'a folder, not a file' : 'not a regular file: a FIFO, socket or device');
     text = readFileSync(path, 'utf8');
   } catch (e) {
-    throw new PleatError('bad-input', `--config ${file}: cannot read (${(e as NodeJS.ErrnoException).code ?? String(e)})`);
+    if (e instanceof PleatError) throw e;
+    throw cannot((e as NodeJS.ErrnoException).code ?? String(e));
   }
   let raw: unknown;
   try {
@@ -66,7 +73,8 @@ export function loadConfig(explicit: string | undefined, cwd = process.cwd()): {
   }
   if (!isRecord(raw)) throw new PleatError('bad-input', `${file}: expected a JSON object of settings`);
   for (const [key, value] of Object.entries(raw)) {
-    const rule = (KEYS as Record<string, { check: Check; want: string } | undefined>)[key];
+    // (own keys only: 'constructor' or 'toString' would otherwise find the object's inherited members)
+    const rule = Object.hasOwn(KEYS, key) ? (KEYS as Record<string, { check: Check; want: string }>)[key] : undefined;
     if (!rule) throw new PleatError('usage', `${file}: unknown key '${key}' (known keys: ${Object.keys(KEYS).join(', ')})`);
     if (!rule.check(value)) throw new PleatError('usage', `${file}: '${key}' should be ${rule.want}`);
   }

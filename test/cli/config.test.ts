@@ -1,6 +1,7 @@
 // Config file loading and merging, report-file specs and the progress bar's on/off rules, as units.
 import { describe, expect, it } from 'vitest';
-import { mkdtempSync, readdirSync, readFileSync, writeFileSync } from 'node:fs';
+import { mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync, symlinkSync, writeFileSync } from 'node:fs';
+import { execFileSync } from 'node:child_process';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { keepList, loadConfig, runSettings } from '../../cli/config.js';
@@ -29,6 +30,36 @@ describe('config file', () => {
     expect(() => loadConfig(join(dir, 'missing.json'))).toThrow(/cannot read \(ENOENT\)/);
     try { loadConfig(write('typo2.json', { gates: 'x' })); } catch (e) { expect((e as { kind: string }).kind).toBe('usage'); }
   });
+
+  // A config that is there but cannot be read is an error, never "no config" (its "strict": true was lost when a
+  // dangling symlink read as absent); a FIFO is refused without waiting (the read blocked for ever); a key that
+  // names a member every object inherits ('constructor', 'toString', '__proto__') is unknown, not exit 3.
+  it('a dangling or looping symlink, a FIFO or a folder is refused in one line', () => {
+    const here = mkdtempSync(join(tmpdir(), 'pleat-conf-'));
+    const at = join(here, 'pleat.config.json');
+    symlinkSync(join(here, 'moved-away.json'), at);
+    expect(() => loadConfig(undefined, here)).toThrow(/^--config pleat\.config\.json: cannot read \(ENOENT\)$/);
+    rmSync(at);
+    symlinkSync(at, at); // a link to itself
+    expect(() => loadConfig(undefined, here)).toThrow(/^--config pleat\.config\.json: cannot read \(ELOOP\)$/);
+    rmSync(at);
+    execFileSync('mkfifo', [at]);
+    expect(() => loadConfig(undefined, here)).toThrow(/cannot read \(not a regular file: a FIFO, socket or device\)$/);
+    expect(() => loadConfig(at)).toThrow(/cannot read \(not a regular file/);
+    rmSync(at);
+    mkdirSync(at);
+    expect(() => loadConfig(undefined, here)).toThrow(/cannot read \(a folder, not a file\)$/);
+  });
+
+  for (const key of ['constructor', 'toString', 'hasOwnProperty', 'valueOf', '__proto__', '__defineGetter__']) {
+    it(`the key '${key}' is unknown (a usage error), not a member every object inherits`, () => {
+      const p = write(`proto-${key}.json`, `{"${key}": 1}`);
+      let err: unknown;
+      try { loadConfig(p); } catch (e) { err = e; }
+      expect((err as { kind?: string }).kind).toBe('usage');
+      expect((err as Error).message).toMatch(new RegExp(`unknown key '${key}'`));
+    });
+  }
 
   it('flags override the file per name; keep lists are joined', () => {
     const { config } = loadConfig(write('full.json', {
