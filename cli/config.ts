@@ -47,11 +47,11 @@ const KEYS: Record<keyof PleatConfig, { check: Check; want: string }> = {
 };
 
 /** Read and check a config file: --config FILE when given, else pleat.config.json in `cwd` when present. */
-export function loadConfig(explicit: string | undefined, cwd = process.cwd()): { config: PleatConfig; file: string | null } {
+export function loadConfig(explicit: string | undefined, cwd = process.cwd()): { config: PleatConfig; file: string | null; path: string | null } {
   const path = explicit ?? join(cwd, CONFIG_FILE);
   // Only a name with nothing behind it means "no config file": a symlink to a file moved away, or a link loop, is
   // a config that cannot be read (read as absent, its settings, "strict" among them, were silently lost).
-  if (explicit === undefined && !lstatSync(path, { throwIfNoEntry: false })) return { config: {}, file: null };
+  if (explicit === undefined && !lstatSync(path, { throwIfNoEntry: false })) return { config: {}, file: null, path: null };
   // messages name the file as the user knows it: as given, or pleat.config.json (in the working directory)
   const file = explicit ?? CONFIG_FILE;
   const cannot = (why: string) => new PleatError('bad-input', `--config ${file}: cannot read (${why})`);
@@ -78,7 +78,17 @@ export function loadConfig(explicit: string | undefined, cwd = process.cwd()): {
     if (!rule) throw new PleatError('usage', `${file}: unknown key '${key}' (known keys: ${Object.keys(KEYS).join(', ')})`);
     if (!rule.check(value)) throw new PleatError('usage', `${file}: '${key}' should be ${rule.want}`);
   }
-  return { config: raw as PleatConfig, file };
+  return { config: raw as PleatConfig, file, path };
+}
+
+/**
+ * The files a run reads besides its models, as [path, what] for the output guard: the config file and every
+ * --input value file. No output may replace one (a --report onto the --input .npy overwrote it).
+ */
+export function filesRead(configPath: string | null, inputs: ReadonlyMap<string, InputValue> = new Map()): Array<[string, string]> {
+  const out: Array<[string, string]> = configPath === null ? [] : [[configPath, 'config file']];
+  for (const [name, v] of inputs) if (v.file !== undefined) out.push([v.file, `--input file of '${name}'`]);
+  return out;
 }
 
 /** The flags every command that runs a model shares (raw, as yargs parsed them). */

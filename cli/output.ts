@@ -45,6 +45,8 @@ export function runFigures(startedAt: bigint): { seconds: number; peakMemoryByte
 /** What a command's outputs must respect: files read (never written) and output files already decided. */
 export interface OutputGuard {
   inputs?: readonly string[];
+  /** Other files the run reads, as [path, what] (config file, --input files): never replaced either. */
+  reads?: ReadonlyArray<readonly [string, string]>;
   /** Outputs of the run as [path, flag]: a report may not take their place. */
   outputs?: ReadonlyArray<readonly [string, string]>;
 }
@@ -58,6 +60,7 @@ export async function checkDestinations(plan: ReportPlan, guard: OutputGuard): P
   const tx = new OutputSet();
   try {
     for (const i of guard.inputs ?? []) tx.protect(i, 'input model');
+    for (const [p, what] of guard.reads ?? []) tx.protect(p, what);
     for (const [o, flag] of guard.outputs ?? []) tx.reserve(o, flag);
     for (const spec of plan.files) tx.reserve(spec.file, '--report');
   } finally {
@@ -75,6 +78,7 @@ export async function emit(plan: ReportPlan, render: (format: Format, colour: bo
   const tx = new OutputSet();
   try {
     for (const i of guard.inputs ?? []) tx.protect(i, 'input model');
+    for (const [p, what] of guard.reads ?? []) tx.protect(p, what);
     for (const files of staged) if (files.length) tx.adopt(files, 'output');
     for (const spec of plan.files) {
       tx.reserve(spec.file, '--report');
@@ -123,7 +127,8 @@ export function reportErrors(lines: readonly string[]): void {
  * Run fold or audit jobs (one worker per core), then print their reports and set the exit code to the worst
  * of the batch. The library is loaded here, not at start-up: --help or a usage error needs none of it.
  */
-export async function runAndReport(command: 'fold' | 'audit', jobs: import('./batch.js').Job[], plan: ReportPlan, quiet: boolean): Promise<void> {
+export async function runAndReport(command: 'fold' | 'audit', jobs: import('./batch.js').Job[], plan: ReportPlan, quiet: boolean,
+  reads: ReadonlyArray<readonly [string, string]> = []): Promise<void> {
   const { runBatch, checkBatchNames } = await import('./batch.js');
   if (jobs.length > 1) jobs = checkBatchNames(jobs);
   const { renderJobs, isJobError } = await import('../src/report/render.js');
@@ -137,6 +142,6 @@ export async function runAndReport(command: 'fold' | 'audit', jobs: import('./ba
   }
   reportErrors(outcomes.filter(isJobError).map((o) => o.error.message));
   const inputs = [...jobs.map((j) => j.model), ...outcomes.flatMap((o) => o.inputs ?? [])];
-  await emit(plan, (format, colour) => renderJobs(command, outcomes, format, colour), { inputs }, outcomes.map((o) => o.staged ?? []));
+  await emit(plan, (format, colour) => renderJobs(command, outcomes, format, colour), { inputs, reads }, outcomes.map((o) => o.staged ?? []));
   process.exitCode = Math.max(0, ...outcomes.map((o) => o.exitCode));
 }

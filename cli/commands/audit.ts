@@ -1,5 +1,5 @@
 import type { Argv } from 'yargs';
-import { keepList, loadConfig, nameOrigins } from '../config.js';
+import { filesRead, keepList, loadConfig, nameOrigins } from '../config.js';
 import type { Job } from '../batch.js';
 import { checkDestinations, exitWhenWritten, planReports, runAndReport } from '../output.js';
 import { configFlags, EPILOGUE, many, reportFlags } from '../flags.js';
@@ -20,10 +20,11 @@ interface Flags { models: string[]; failOn?: 'kept'; keep?: string[]; allowOverr
 
 export async function handler(argv: Flags): Promise<void> {
   const plan = planReports(argv);
-  const { config, file } = loadConfig(argv.config);
+  const { config, file, path } = loadConfig(argv.config);
+  const reads = filesRead(path);
   const opts = { keep: keepList(config, argv.keep), failOn: argv.failOn ?? config.failOn, allowOverridable: argv.allowOverridable, cloneShared: argv.cloneShared, origins: nameOrigins(config, file, argv), pageDetail: plan.pageDetail };
   const jobs: Job[] = argv.models.map((model) => ({ command: 'audit', model, opts, runFigures: plan.runFigures }));
-  await checkDestinations(plan, { inputs: argv.models });
-  await runAndReport('audit', jobs, plan, argv.quiet);
+  await checkDestinations(plan, { inputs: argv.models, reads });
+  await runAndReport('audit', jobs, plan, argv.quiet, reads);
   await exitWhenWritten();
 }

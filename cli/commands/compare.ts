@@ -1,5 +1,5 @@
 import type { Argv } from 'yargs';
-import { loadConfig, runSettings } from '../config.js';
+import { filesRead, loadConfig, runSettings } from '../config.js';
 import { checkDestinations, emit, planReports, runFigures } from '../output.js';
 import { checkFlags, configFlags, EPILOGUE, inputFlags, int8Flags, int8Setting, reportFlags, threadsFlag } from '../flags.js';
 
@@ -17,15 +17,16 @@ interface Flags { a: string; b: string; threads?: number; simulateInt8?: string;
 
 export async function handler(argv: Flags): Promise<void> {
   const plan = planReports(argv);
-  const { config } = loadConfig(argv.config);
+  const { config, path } = loadConfig(argv.config);
   const run = runSettings(config, argv);
+  const reads = filesRead(path, run.inputs);
   const threads = threadsFlag(argv.threads);
   // loaded here, not at start-up: the gate's expression library is large, and --help or a usage error needs none of it
   const { compare, setThreads } = await import('../../src/index.js');
   if (threads !== undefined) setThreads(threads);
   const { renderCompare } = await import('../../src/report/render.js');
   const { EXIT } = await import('../../src/report/exit-codes.js');
-  await checkDestinations(plan, { inputs: [argv.a, argv.b] });
+  await checkDestinations(plan, { inputs: [argv.a, argv.b], reads });
   const { fileSha256 } = await import('../../src/jobs/sha256.js');
   const started = process.hrtime.bigint();
   const report = compare(argv.a, argv.b, { ...run, simulateInt8: int8Setting(argv), saveProbes: argv.saveProbes });
@@ -33,7 +34,7 @@ export async function handler(argv: Flags): Promise<void> {
     ...(plan.pageDetail ? { sha256: { a: fileSha256(argv.a), b: fileSha256(argv.b) } } : {}),
     ...(plan.runFigures ? { run: runFigures(started) } : {}),
   };
-  await emit(plan, (format, colour) => renderCompare(report, argv.a, argv.b, format, colour, extras), { inputs: [argv.a, argv.b] });
+  await emit(plan, (format, colour) => renderCompare(report, argv.a, argv.b, format, colour, extras), { inputs: [argv.a, argv.b], reads });
   // skipped is not a failure unless --strict (or "strict" in the config) says so
   process.exitCode = report.status === 'failed' || (report.status === 'skipped' && run.strict) ? EXIT.failed : EXIT.ok;
 }

@@ -1,7 +1,7 @@
 import type { Argv } from 'yargs';
 import { sep } from 'node:path';
 import { SCHEMA_VERSION } from '../../src/jobs/types.js';
-import { loadConfig, runSettings } from '../config.js';
+import { filesRead, loadConfig, runSettings } from '../config.js';
 import { out } from '../errors.js';
 import { configFlags, EPILOGUE, inputFlags, threadsFlag } from '../flags.js';
 
@@ -18,7 +18,7 @@ export function builder(y: Argv) {
 interface Flags { model: string; precision: 'float64' | 'float32'; threads?: number; save: string; json: boolean; seed?: number; input?: string[]; shape?: string[]; dim?: string[]; config?: string }
 
 export async function handler(argv: Flags): Promise<void> {
-  const { config } = loadConfig(argv.config);
+  const { config, path } = loadConfig(argv.config);
   const run = runSettings(config, argv);
   const threads = threadsFlag(argv.threads);
   // loaded here, not at start-up (see compare.ts)
@@ -27,7 +27,7 @@ export async function handler(argv: Flags): Promise<void> {
   if (threads !== undefined) setThreads(threads);
   const { toJsonText } = await import('../../src/report/json.js');
   const r = evaluate(argv.model, { inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, precision: argv.precision, maxProbeMemory: run.maxProbeMemory });
-  const saved = saveOutputs(argv.save, r.outputs);
+  const saved = saveOutputs(argv.save, r.outputs, { reads: filesRead(path, run.inputs) });
   const outputs = saved.files.map((f) => ({ ...f, dtype: dataTypeName(r.outputs.get(f.name)!.type), dims: [...r.outputs.get(f.name)!.dims] }));
   if (argv.json) {
     await out(toJsonText({ schemaVersion: SCHEMA_VERSION, command: 'evaluate', model: argv.model, precision: r.precision, seed: r.seed, inputs: r.inputSummary, dir: argv.save, outputs }));

@@ -4,7 +4,7 @@ import { basename, dirname, join, sep } from 'node:path';
 import { PleatError } from '../../src/errors.js';
 import type { FoldJobOptions } from '../../src/jobs/types.js';
 import { startSha256, stopSha256Ahead } from '../../src/jobs/sha256.js';
-import { keepList, loadConfig, nameOrigins, runSettings } from '../config.js';
+import { filesRead, keepList, loadConfig, nameOrigins, runSettings } from '../config.js';
 import type { Job } from '../batch.js';
 import { checkDestinations, exitWhenWritten, planReports, runAndReport } from '../output.js';
 import { checkFlags, configFlags, EPILOGUE, inputFlags, int8Flags, int8Setting, many, reportFlags, threadsFlag } from '../flags.js';
@@ -63,8 +63,9 @@ function quantThreshold(db: number | undefined): number | undefined {
 
 export async function handler(argv: Flags): Promise<void> {
   const plan = planReports(argv);
-  const { config, file } = loadConfig(argv.config);
+  const { config, file, path } = loadConfig(argv.config);
   const run = runSettings(config, argv);
+  const reads = filesRead(path, run.inputs);
   const outputs = outputsFor(argv.models, argv.out, argv.outDir);
   const opts: FoldJobOptions = {
     inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, probes: run.probes, gate: run.gate, maxProbeMemory: run.maxProbeMemory,
@@ -82,9 +83,10 @@ export async function handler(argv: Flags): Promise<void> {
   const sides = outputs.map((o) => join(dirname(o), `${basename(o)}.data`));
   await checkDestinations(plan, {
     inputs: argv.models,
+    reads,
     outputs: [...outputs.map((o) => [o, argv.out !== undefined ? '-o' : '--out-dir'] as const), ...sides.map((s) => [s, 'side file'] as const)],
   });
   const jobs: Job[] = argv.models.map((model, i) => ({ command: 'fold', model, output: outputs[i]!, opts, runFigures: plan.runFigures }));
-  await runAndReport('fold', jobs, plan, argv.quiet);
+  await runAndReport('fold', jobs, plan, argv.quiet, reads);
   await exitWhenWritten(); // (every file is renamed in and the report printed: nothing is left for the exit to wait on)
 }

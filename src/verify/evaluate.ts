@@ -10,7 +10,7 @@ import { PleatError } from '../errors.js';
 import { isFloatType } from '../graph/tensor.js';
 import { DataType } from '../graph/ir.js';
 import { npyBytes } from './npy.js';
-import { specialKind } from '../onnx/paths.js';
+import { sameFile, specialKind } from '../onnx/paths.js';
 import { asMap, checkDimFlags, makeProbe, resolveInputs, summarizeInputs, type InputOptions, type InputSummary } from './inputs.js';
 
 export interface EvaluateOptions extends InputOptions {
@@ -66,6 +66,8 @@ export function safeFileNames(names: readonly string[], ext = '.npy'): string[] 
 export interface SaveOptions {
   /** Write floating-point outputs as float64 instead of their model type (keeps a float64 run's full precision). */
   float64?: boolean;
+  /** Files the run read, as [path, what] (its --input files): no saved output may replace one. */
+  reads?: ReadonlyArray<readonly [string, string]>;
 }
 
 export interface SavedOutputs {
@@ -98,6 +100,8 @@ export function saveOutputs(dir: string, outputs: ReadonlyMap<string, Value>, op
     const dest = join(dir, f);
     const special = specialKind(statSync(dest, { throwIfNoEntry: false }));
     if (special) throw new PleatError('bad-input', `${dest}: is ${special}, not a file; saving the outputs into place would replace it`);
+    const read = opts.reads?.find(([p]) => sameFile(dest, p));
+    if (read) throw new PleatError('bad-input', `${dest}: refusing to overwrite the ${read[1]} ${read[0]}; choose another --save folder`);
   }
   const index: Record<string, string> = {};
   names.forEach((n, i) => { index[n] = files[i]!; });

@@ -1,7 +1,7 @@
 // Model inputs for evaluate and compare: the --input/--shape/--dim flags, input files (.npy, or .pb holding a
 // serialized ONNX TensorProto), each graph input's concrete shape, and seeded probe values for inputs no file
 // gives.
-import { readFileSync } from 'node:fs';
+import { readFileSync, statSync } from 'node:fs';
 import { extname } from 'node:path';
 import { DataType, elementCount, type DataTypeCode, type Dim, type Graph, type ValueInfo } from '../graph/ir.js';
 import type { Value } from '../eval/value.js';
@@ -70,23 +70,30 @@ export function parseInputFlags(flags: InputFlags): InputSettings {
 /** Read one input file: .npy, or .pb holding a serialized ONNX TensorProto. Errors name the file. */
 export function loadInputFile(path: string): InputValue {
   const ext = extname(path).toLowerCase();
-  if (ext === '.npy') return { ...readNpy(path), file: path };
-  if (ext === '.pb') {
-    let bytes: Uint8Array;
-    try {
-      bytes = readFileSync(path);
-    } catch (e) {
-      throw new PleatError('bad-input', `${path}: cannot read (${(e as NodeJS.ErrnoException).code ?? String(e)})`);
-    }
-    try {
-      const t = parseTensor(bytes);
-      return { type: t.dataType, dims: [...t.dims], data: tensorToFloat64(t), file: path };
-    } catch (e) {
-      if (e instanceof PleatError) throw new PleatError('bad-input', `${path}: ${e.message}`);
-      throw e;
-    }
+  if (ext !== '.npy' && ext !== '.pb') {
+    throw new PleatError('bad-input', `${path}: pleat reads input values from .npy files or .pb files (a serialized ONNX TensorProto)`);
   }
-  throw new PleatError('bad-input', `${path}: pleat reads input values from .npy files or .pb files (a serialized ONNX TensorProto)`);
+  // (a FIFO or device would block the read until something writes to it, or for ever)
+  let st;
+  try { st = statSync(path); } catch (e) {
+    throw new PleatError('bad-input', `${path}: cannot read (${(e as NodeJS.ErrnoException).code ?? String(e)})`);
+  }
+  if (st.isDirectory()) throw new PleatError('bad-input', `${path}: is a folder, expected an input value file (.npy or .pb)`);
+  if (!st.isFile()) throw new PleatError('bad-input', `${path}: not a regular file (a FIFO, socket or device), expected an input value file (.npy or .pb)`);
+  if (ext === '.npy') return { ...readNpy(path), file: path };
+  let bytes: Uint8Array;
+  try {
+    bytes = readFileSync(path);
+  } catch (e) {
+    throw new PleatError('bad-input', `${path}: cannot read (${(e as NodeJS.ErrnoException).code ?? String(e)})`);
+  }
+  try {
+    const t = parseTensor(bytes); // .pb: a serialized ONNX TensorProto
+    return { type: t.dataType, dims: [...t.dims], data: tensorToFloat64(t), file: path };
+  } catch (e) {
+    if (e instanceof PleatError) throw new PleatError('bad-input', `${path}: ${e.message}`);
+    throw e;
+  }
 }
 
 /** Load every `--input` file. */

@@ -9,6 +9,7 @@ import { join } from 'node:path';
 import onnxProto from 'onnx-proto';
 import { GraphBuilder, modelBytes, tensor } from '../helpers/build.js';
 import { pleat } from '../helpers/cli.js';
+import { npyFloat32 } from '../helpers/npy.js';
 import { readModelFile } from '../../src/onnx/read.js';
 import { writeModelFile } from '../../src/onnx/write.js';
 import { tensorToFloat64 } from '../../src/graph/tensor.js';
@@ -195,6 +196,49 @@ describe('a destination that is not a file', () => {
     execFileSync('mkfifo', [fifo]);
     expect(() => writeModelFile(readModelFile('models/tray-edge.onnx'), fifo)).toThrow(/is a FIFO, not a file/);
     expect(isFifo(fifo)).toBe(true);
+  });
+});
+
+describe('files the run reads besides its models', () => {
+  // The --input value files and the config file are inputs too: a --report or -o naming one replaced it, and
+  // evaluate --save into the folder of an --input file named like an output overwrote that input.
+  const setUp = () => {
+    const dir = tmp();
+    const v = join(dir, 'v.npy'), c = join(dir, 'c.json');
+    writeFileSync(v, npyFloat32([1, 2, 256], Float32Array.from({ length: 512 }, (_, i) => Math.sin(i / 7))));
+    writeFileSync(c, '{"probes": 2}');
+    return { dir, v, c, before: [readFileSync(v), readFileSync(c)] };
+  };
+
+  it('fold and compare refuse an output or report onto an --input file or the config file, writing nothing', () => {
+    const { dir, v, c, before } = setUp();
+    const run = ['--input', `vibration=${v}`, '--config', c];
+    const cases: Array<[string[], RegExp]> = [
+      [['fold', 'models/pump-vibration.onnx', '-o', join(dir, 'x.onnx'), ...run, '--report', `json:${v}`], /--report .*v\.npy: refusing to overwrite the --input file of 'vibration'/],
+      [['fold', 'models/pump-vibration.onnx', '-o', join(dir, 'x.onnx'), ...run, '--report', `markdown:${c}`], /--report .*c\.json: refusing to overwrite the config file/],
+      [['fold', 'models/pump-vibration.onnx', '-o', v, ...run], /-o .*v\.npy: refusing to overwrite the --input file of 'vibration'/],
+      [['compare', 'models/pump-vibration.onnx', 'models/pump-vibration.onnx', ...run, '--report', `json:${v}`], /--report .*v\.npy: refusing to overwrite the --input file/],
+      [['audit', 'models/pump-vibration.onnx', '--config', c, '--report', `json:${c}`], /--report .*c\.json: refusing to overwrite the config file/],
+    ];
+    for (const [args, msg] of cases) {
+      const r = pleat(args);
+      expect(r.code, args.join(' ')).toBe(2);
+      expect(r.stderr).toMatch(msg);
+      expect(r.stderr.trim().split('\n')).toHaveLength(1);
+    }
+    expect([readFileSync(v), readFileSync(c)]).toEqual(before);
+    expect(readdirSync(dir).sort()).toEqual(['c.json', 'v.npy']);
+  });
+
+  it('evaluate --save does not overwrite an --input file named like an output', () => {
+    const { dir, before } = setUp();
+    const input = join(dir, 'fault_logits.npy'); // the model's output is named fault_logits
+    writeFileSync(input, before[0]!);
+    const r = pleat(['evaluate', 'models/pump-vibration.onnx', '--input', `vibration=${input}`, '--save', dir]);
+    expect(r.code).toBe(2);
+    expect(r.stderr).toMatch(/fault_logits\.npy: refusing to overwrite the --input file of 'vibration'/);
+    expect(readFileSync(input).equals(before[0]!)).toBe(true);
+    expect(readdirSync(dir).sort()).toEqual(['c.json', 'fault_logits.npy', 'v.npy']);
   });
 });
 

@@ -1,7 +1,8 @@
 // Input flags, shape resolution and seeded probes. Models are built with test/helpers/build.ts (onnx-proto's
 // own encoder) and read with pleat's reader; .pb inputs are TensorProtos encoded by onnx-proto.
 import { describe, expect, it } from 'vitest';
-import { mkdtempSync, writeFileSync } from 'node:fs';
+import { mkdirSync, mkdtempSync, writeFileSync } from 'node:fs';
+import { execFileSync } from 'node:child_process';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import onnxProto from 'onnx-proto';
@@ -121,6 +122,18 @@ describe('input files', () => {
     expect(err(() => loadInputFile(bad)).message).toMatch(new RegExp(`^${bad}: `));
     expect(err(() => loadInputFile(join(dir, 'x.csv'))).message).toMatch(/x\.csv: pleat reads input values from \.npy files or \.pb files/);
     expect(err(() => loadInputFile(join(dir, 'missing.pb'))).message).toMatch(/missing\.pb: cannot read \(ENOENT\)/);
+  });
+
+  // a FIFO blocked the read until something wrote to it, or for ever (and SIGTERM could not end it)
+  it('refuses a FIFO or a folder without waiting', () => {
+    for (const name of ['pipe.npy', 'pipe.pb']) {
+      const p = join(dir, name);
+      execFileSync('mkfifo', [p]);
+      expect(err(() => loadInputFile(p)).message).toBe(`${p}: not a regular file (a FIFO, socket or device), expected an input value file (.npy or .pb)`);
+    }
+    const folder = join(dir, 'folder.npy');
+    mkdirSync(folder);
+    expect(err(() => loadInputFile(folder)).message).toMatch(/folder\.npy: is a folder/);
   });
 });
 
