@@ -13,7 +13,7 @@ import { accessSync, constants, readdirSync, readFileSync, renameSync, rmSync, s
 import { randomBytes } from 'node:crypto';
 import { basename, dirname, join, resolve } from 'node:path';
 import { PleatError } from '../errors.js';
-import { fileKeys, specialKind } from '../onnx/paths.js';
+import { entryAt, fileKeys, specialKind } from '../onnx/paths.js';
 import { ownsSideFile } from '../onnx/side-owner.js';
 import type { StagedFile } from '../onnx/write.js';
 
@@ -126,13 +126,13 @@ export class OutputSet {
   reserve(dest: string, role: string, sideOf?: string): string {
     const full = resolve(dest);
     const dir = dirname(full);
-    const st = statSync(dir, { throwIfNoEntry: false });
+    const st = entryAt(dir, `${role} ${dest}`);
     if (!st) throw new PleatError('bad-input', `${role} ${dest}: the folder ${dir} does not exist`);
     if (!st.isDirectory()) throw new PleatError('bad-input', `${role} ${dest}: ${dir} is not a folder`);
     try { accessSync(dir, constants.W_OK); } catch {
       throw new PleatError('bad-input', `${role} ${dest}: cannot write in the folder ${dir}`);
     }
-    const here = statSync(full, { throwIfNoEntry: false });
+    const here = entryAt(full, `${role} ${dest}`);
     if (here?.isDirectory()) throw new PleatError('bad-input', `${role} ${dest}: is a folder`);
     const special = specialKind(here);
     if (special) {
@@ -190,12 +190,12 @@ export class OutputSet {
   reserveFolder(dest: string, role: string): string {
     const full = resolve(dest);
     const parent = dirname(full);
-    const st = statSync(parent, { throwIfNoEntry: false });
+    const st = entryAt(parent, `${role} ${dest}`);
     if (!st?.isDirectory()) throw new PleatError('bad-input', `${role} ${dest}: the folder ${parent} does not exist`);
     try { accessSync(parent, constants.W_OK); } catch {
       throw new PleatError('bad-input', `${role} ${dest}: cannot write in the folder ${parent}`);
     }
-    const here = statSync(full, { throwIfNoEntry: false });
+    const here = entryAt(full, `${role} ${dest}`);
     if (here && !here.isDirectory()) throw new PleatError('bad-input', `${role} ${dest}: a file of that name exists; give a new or empty folder`);
     if (here && readdirSync(full).length) throw new PleatError('usage', `${role} ${dest}: the folder is not empty; give a new or empty folder`);
     for (const k of fileKeys(full)) {

@@ -2,6 +2,28 @@
 // device and inode (hard links), so no spelling, link or relative path slips past a guard.
 import { realpathSync, statSync, type Stats } from 'node:fs';
 import { basename, dirname, join, resolve } from 'node:path';
+import { PleatError } from '../errors.js';
+
+/** Why a path cannot be followed, in words (a loop of symbolic links, a file where a folder should be, ...). */
+export function pathProblem(e: unknown): string {
+  const code = (e as NodeJS.ErrnoException).code;
+  if (code === 'ELOOP') return 'a loop of symbolic links (ELOOP)';
+  if (code === 'ENOTDIR') return 'a part of the path is a file, not a folder (ENOTDIR)';
+  if (code === 'ENAMETOOLONG') return 'the path is too long (ENAMETOOLONG)';
+  return `cannot be reached (${code ?? String(e)})`;
+}
+
+/**
+ * What is at a path (symlinks followed), undefined when nothing is; a path that cannot be followed (a link loop,
+ * a file where a folder should be) is bad input naming `label` (statSync throws for those even when asked not to).
+ */
+export function entryAt(path: string, label: string): Stats | undefined {
+  try {
+    return statSync(path, { throwIfNoEntry: false });
+  } catch (e) {
+    throw new PleatError('bad-input', `${label}: ${pathProblem(e)}`);
+  }
+}
 
 /** Keys naming the file a path reaches: its real path, and `dev:ino` when it exists. */
 export function fileKeys(path: string): string[] {
@@ -13,7 +35,8 @@ export function fileKeys(path: string): string[] {
     // not there yet: the real folder plus the name
     try { keys.push(join(realpathSync(dirname(full)), basename(full))); } catch { keys.push(full); }
   }
-  const st = statSync(full, { throwIfNoEntry: false });
+  let st: Stats | undefined;
+  try { st = statSync(full, { throwIfNoEntry: false }); } catch { /* a path that cannot be followed: its real path is the key */ }
   if (st) keys.push(`${st.dev}:${st.ino}`);
   return keys;
 }

@@ -15,6 +15,7 @@ import { loadExternalData } from './external.js';
 import { validateModel } from '../graph/validate.js';
 import { openForRead, readSparse } from './sparse-read.js';
 import { memberOf } from '../graph/names.js';
+import { pathProblem } from './paths.js';
 
 type Buf = Uint8Array;
 
@@ -547,8 +548,8 @@ export function readModelFile(path: string, redirect?: ReadonlyMap<string, strin
   let st;
   try {
     st = statSync(path);
-  } catch {
-    throw new PleatError('bad-input', `${path}: no such file`);
+  } catch (e) {
+    throw new PleatError('bad-input', `${path}: ${(e as NodeJS.ErrnoException).code === 'ENOENT' ? 'no such file' : pathProblem(e)}`);
   }
   if (st.isDirectory()) throw new PleatError('bad-input', `${path}: is a directory, expected an .onnx file`);
   if (!st.isFile()) throw new PleatError('bad-input', `${path}: not a regular file (a FIFO, socket or device), expected an .onnx file`);

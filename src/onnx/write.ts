@@ -1,7 +1,7 @@
 // IR -> bytes. A message whose modelled fields match what was read is re-emitted from its original bytes;
 // a changed one is re-encoded field by field in its original field order, with the fields pleat does not
 // model copied through untouched. Output files are written to temporary names and renamed into place.
-import { closeSync, copyFileSync, existsSync, openSync, readSync, renameSync, rmSync, statSync, writeSync } from 'node:fs';
+import { closeSync, copyFileSync, existsSync, openSync, readSync, renameSync, rmSync, writeSync } from 'node:fs';
 import { basename, dirname, join, posix, resolve } from 'node:path';
 import type { Attribute, Graph, Model, Node, OpsetImport, Origin, RawField, Tensor, ValueInfo, Dim } from '../graph/ir.js';
 import { PleatError } from '../errors.js';
@@ -13,7 +13,7 @@ import {
   valueInfoUnchanged, fieldOrder, type Kid,
 } from './signature.js';
 import { externalRef, sideFilePaths } from './external.js';
-import { sameFile, specialKind } from './paths.js';
+import { entryAt, sameFile, specialKind } from './paths.js';
 import { deferredIn, ensureLoaded, lazySourceOf, pendingIn, reopenSource, type BlockBuffer } from './sparse-read.js';
 
 interface Piece { chunks: Uint8Array[]; length: number; same: boolean }
@@ -597,7 +597,7 @@ export function writeModelFile(model: Model, path: string, opts: WriteOptions = 
   const inputs = model.sourcePath ? [model.sourcePath, ...sideFilePaths(model)] : [];
   const guard = (dest: string, what: string) => {
     for (const i of inputs) if (sameFile(dest, i)) throw new PleatError('bad-input', `${path}: ${what} ${dest} is the input ${i}; choose another output path`);
-    const special = specialKind(statSync(dest, { throwIfNoEntry: false }));
+    const special = specialKind(entryAt(dest, `${path}: ${what} ${dest}`));
     if (special) throw new PleatError('bad-input', `${path}: ${what} ${dest} is ${special}, not a file; writing the model into place would replace it`);
   };
   guard(target, 'the output');

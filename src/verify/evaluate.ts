@@ -1,5 +1,5 @@
 // `evaluate`: run one model on given or seeded inputs, and save its outputs as .npy files with an index.
-import { mkdirSync, renameSync, rmSync, statSync, writeFileSync } from 'node:fs';
+import { mkdirSync, renameSync, rmSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import type { Model } from '../graph/ir.js';
 import type { Precision, Value } from '../eval/value.js';
@@ -10,7 +10,7 @@ import { PleatError } from '../errors.js';
 import { isFloatType } from '../graph/tensor.js';
 import { DataType } from '../graph/ir.js';
 import { npyBytes } from './npy.js';
-import { sameFile, specialKind } from '../onnx/paths.js';
+import { entryAt, sameFile, specialKind } from '../onnx/paths.js';
 import { asMap, checkDimFlags, makeProbe, resolveInputs, summarizeInputs, type InputOptions, type InputSummary } from './inputs.js';
 
 export interface EvaluateOptions extends InputOptions {
@@ -98,7 +98,7 @@ export function saveOutputs(dir: string, outputs: ReadonlyMap<string, Value>, op
   // replace the pipe or device itself with a plain file
   for (const f of [...files, 'outputs.json']) {
     const dest = join(dir, f);
-    const special = specialKind(statSync(dest, { throwIfNoEntry: false }));
+    const special = specialKind(entryAt(dest, dest));
     if (special) throw new PleatError('bad-input', `${dest}: is ${special}, not a file; saving the outputs into place would replace it`);
     const read = opts.reads?.find(([p]) => sameFile(dest, p));
     if (read) throw new PleatError('bad-input', `${dest}: refusing to overwrite the ${read[1]} ${read[0]}; choose another --save folder`);
