@@ -85,7 +85,7 @@ export function checkFlags(args: readonly string[], table: OptionTable): void {
     if (table.number.includes(name)) {
       const rule = NUMBER_RULES[name] ?? { min: 0, what: 'a whole number (0 or more)' };
       const v = Number(first.value);
-      if (first.value!.trim() === '' || !(rule.real ? Number.isFinite(v) : Number.isInteger(v)) || v < rule.min) {
+      if (first.value!.trim() === '' || !(rule.real ? Number.isFinite(v) : Number.isInteger(v)) || v < rule.min || v > (rule.max ?? Infinity)) {
         throw new PleatError('usage', `${first.spelled} ${first.value}: give ${rule.what}`);
       }
     }

@@ -5,7 +5,8 @@
 import { lstatSync, readFileSync, statSync } from 'node:fs';
 import { join } from 'node:path';
 import { PleatError } from '../src/errors.js';
-import { loadInputFiles, parseInputFlags, type InputValue } from '../src/verify/inputs.js';
+import { checkProbeCount, checkSeed, loadInputFiles, parseInputFlags, type InputValue } from '../src/verify/inputs.js';
+import { MAX_PROBES, MAX_SEED } from '../src/verify/probe-bounds.js';
 import type { NameOrigins } from '../src/jobs/names.js';
 
 export const CONFIG_FILE = 'pleat.config.json';
@@ -40,8 +41,8 @@ const KEYS: Record<keyof PleatConfig, { check: Check; want: string }> = {
   gate: { check: (v) => typeof v === 'string' && v.trim() !== '', want: 'a gate expression string' },
   keep: { check: (v) => Array.isArray(v) && v.every((s) => typeof s === 'string'), want: 'an array of node names' },
   failOn: { check: (v) => v === 'kept', want: '"kept"' },
-  probes: { check: (v) => isInt(v) && (v as number) >= 1, want: 'a whole number of at least 1' },
-  seed: { check: (v) => typeof v === 'number' && Number.isInteger(v), want: 'a whole number' },
+  probes: { check: (v) => isInt(v) && (v as number) >= 1 && (v as number) <= MAX_PROBES, want: `a whole number from 1 to ${MAX_PROBES}` },
+  seed: { check: (v) => isInt(v) && (v as number) <= MAX_SEED, want: `a whole number from 0 to ${MAX_SEED}` },
   store: { check: (v) => v === 'float16', want: '"float16"' },
   strict: { check: (v) => typeof v === 'boolean', want: 'true or false' },
 };
@@ -130,9 +131,9 @@ export function runSettings(config: PleatConfig, flags: RunFlags): RunSettings {
     shape: Object.entries(config.shapes ?? {}).map(([k, v]) => `${k}=${Array.isArray(v) ? v.join('x') : v}`),
     dim: Object.entries(config.dims ?? {}).map(([k, v]) => `${k}=${v}`),
   });
-  for (const [flag, v] of [['seed', flags.seed], ['probes', flags.probes]] as const) {
-    if (v !== undefined && !Number.isInteger(v)) throw new PleatError('usage', `--${flag}: give a whole number`);
-  }
+  // (checked here, before any work, not first when the whole-model check starts after a long fold)
+  if (flags.seed !== undefined) checkSeed(flags.seed);
+  if (flags.probes !== undefined) checkProbeCount(flags.probes);
   return {
     inputs: loadInputFiles(fromFlags.files),
     shapes: new Map([...fromConfig.shapes, ...fromFlags.shapes]),

@@ -9,15 +9,21 @@ import { PleatError } from '../src/errors.js';
 export const many = (v: unknown): string[] => (v === undefined ? [] : (Array.isArray(v) ? v : [v]).map(String));
 import { EXIT_CODES_TEXT } from '../src/report/exit-codes.js';
 import { FORMATS } from '../src/report/format.js';
+import { MAX_PROBES, MAX_SEED } from '../src/verify/probe-bounds.js';
 
 /** Options that may be given more than once (each adds one value); every other value option takes one value. */
 export const REPEATABLE: ReadonlySet<string> = new Set(['input', 'shape', 'dim', 'keep', 'report']);
 
-/** Number options: whole numbers of at least `min` unless `real` (options not listed: whole, 0 or more). */
-export const NUMBER_RULES: Record<string, { min: number; what: string; real?: boolean }> = {
+/**
+ * Number options: whole numbers from `min` to `max` unless `real` (options not listed: whole, 0 or more). A probe
+ * count or seed past its bound is refused here, before any work (it was an internal error, or a seed silently
+ * taken modulo 2^32).
+ */
+export const NUMBER_RULES: Record<string, { min: number; max?: number; what: string; real?: boolean }> = {
   'quant-threshold': { min: -Infinity, what: 'a number of decibels, e.g. 20', real: true },
-  probes: { min: 1, what: 'a whole number of probe sets, 1 or more' },
-  seed: { min: -Number.MAX_SAFE_INTEGER, what: 'a whole number' },
+  probes: { min: 1, max: MAX_PROBES, what: `a whole number of probe sets, from 1 to ${MAX_PROBES}` },
+  seed: { min: 0, max: MAX_SEED, what: `a whole number from 0 to ${MAX_SEED} (the probe generator takes 32 bits)` },
+  threads: { min: 1, what: 'a whole number of threads, 1 or more' },
   'external-data-min': { min: 0, what: 'a whole number of bytes, 0 or more' },
 };
 
@@ -34,7 +40,7 @@ export function inputFlags<T>(y: Argv<T>) {
 /** Check --threads (a whole number of at least 1); undefined keeps the default. */
 export function threadsFlag(v: number | undefined): number | undefined {
   if (v === undefined) return undefined;
-  if (!Number.isInteger(v) || v < 1) throw new PleatError('usage', `--threads ${v}: give a whole number of at least 1`);
+  if (!Number.isInteger(v) || v < 1) throw new PleatError('usage', `--threads ${v}: give ${NUMBER_RULES.threads!.what}`);
   return v;
 }
 

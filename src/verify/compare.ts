@@ -19,7 +19,7 @@ import { BUDGET_NAMES, DEFAULT_GATES, defaultGateFor, defaultGateKey, INT8_WEIGH
 import { roundedWeightsModel } from '../fold/quant.js';
 import type { Int8Granularity } from '../fold/int8.js';
 import {
-  asMap, checkDimFlags, makeProbe, refuseEmptyProbeDims, resolveInputs, summarizeInputs,
+  asMap, checkDimFlags, checkProbeCount, checkSeed, makeProbe, refuseEmptyProbeDims, resolveInputs, summarizeInputs,
   type AssumedDim, type InputOptions, type InputSpec, type InputSummary, type InputValue,
 } from './inputs.js';
 import { checkStatus, missedNodes, upstreamOfOutputs, type CheckStatus, type Coverage, type SkipInfo } from './status.js';
@@ -272,7 +272,8 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
   const available = [...(budget ? [...METRIC_NAMES, ...BUDGET_NAMES] : [...METRIC_NAMES]), ...Object.keys(extra)];
   const userGate = opts.gate !== undefined ? parseGate(opts.gate, available) : undefined;
   const requested = opts.probes ?? DEFAULT_PROBES;
-  if (!Number.isInteger(requested) || requested < 1) throw new PleatError('usage', `--probes ${requested}: give a whole number of at least 1`);
+  checkProbeCount(requested);
+  checkSeed(seed);
 
   const dims = asMap(opts.dims);
   const shapes = asMap(opts.shapes);

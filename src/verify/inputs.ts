@@ -2,6 +2,7 @@
 // serialized ONNX TensorProto), each graph input's concrete shape, and seeded probe values for inputs no file
 // gives.
 import { readFileSync, statSync } from 'node:fs';
+import { MAX_PROBES, MAX_SEED } from './probe-bounds.js';
 import { extname } from 'node:path';
 import { DataType, elementCount, type DataTypeCode, type Dim, type Graph, type ValueInfo } from '../graph/ir.js';
 import type { Value } from '../eval/value.js';
@@ -252,6 +253,18 @@ export function checkDimFlags(dims: ReadonlyMap<string, number>, graphs: readonl
 }
 
 // ---- probes -------------------------------------------------------------------------------------------
+
+/** Refuse a probe count outside 1..MAX_PROBES (`flag` names where it came from). */
+export function checkProbeCount(n: number, flag = '--probes'): void {
+  if (!Number.isInteger(n) || n < 1 || n > MAX_PROBES) throw new PleatError('usage', `${flag} ${n}: give a whole number from 1 to ${MAX_PROBES}`);
+}
+
+/** Refuse a seed outside 0..MAX_SEED: the report records the seed given, so it must be the one the probes used. */
+export function checkSeed(seed: number, flag = '--seed'): void {
+  if (!Number.isInteger(seed) || seed < 0 || seed > MAX_SEED) {
+    throw new PleatError('usage', `${flag} ${seed}: give a whole number from 0 to ${MAX_SEED} (the probe generator takes 32 bits)`);
+  }
+}
 
 /** splitmix32: a small, well-mixed 32-bit generator (public-domain construction); returns uniforms in [0, 1). */
 export function splitmix32(seed: number): () => number {

@@ -15,7 +15,7 @@ const write = (name: string, v: unknown) => { const p = join(dir, name); writeFi
 describe('config file', () => {
   it('absent pleat.config.json is fine; present one is read from the working directory', () => {
     const empty = mkdtempSync(join(tmpdir(), 'pleat-noconf-'));
-    expect(loadConfig(undefined, empty)).toEqual({ config: {}, file: null });
+    expect(loadConfig(undefined, empty)).toEqual({ config: {}, file: null, path: null });
     const here = mkdtempSync(join(tmpdir(), 'pleat-conf-'));
     writeFileSync(join(here, 'pleat.config.json'), JSON.stringify({ seed: 7 }));
     expect(loadConfig(undefined, here).config).toEqual({ seed: 7 });
@@ -23,7 +23,7 @@ describe('config file', () => {
 
   it('unknown keys and wrong types are usage errors naming the key', () => {
     expect(() => loadConfig(write('typo.json', { seeds: 1 }))).toThrow(/unknown key 'seeds'/);
-    expect(() => loadConfig(write('type.json', { probes: 0 }))).toThrow(/'probes' should be a whole number of at least 1/);
+    expect(() => loadConfig(write('type.json', { probes: 0 }))).toThrow(/'probes' should be a whole number from 1 to 10000/);
     expect(() => loadConfig(write('dims.json', { dims: { batch: 'one' } }))).toThrow(/'dims' should be/);
     expect(() => loadConfig(write('bad.json', '{ nope'))).toThrow(/not valid JSON/);
     expect(() => loadConfig(write('arr.json', [1]))).toThrow(/expected a JSON object/);

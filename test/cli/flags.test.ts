@@ -61,7 +61,16 @@ describe('choices, numbers, unknown options and commands', () => {
   it('numbers that are not whole or are out of range', () => {
     usage(['fold', M, '-o', OUT, '--external-data-min', 'abc'], /--external-data-min abc: give a whole number of bytes/);
     usage(['fold', M, '-o', OUT, '--external-data-min', '-5'], /--external-data-min -5: give a whole number of bytes, 0 or more/);
-    usage(['compare', M, M, '--probes', '0'], /--probes 0: give a whole number of probe sets, 1 or more/);
+    usage(['compare', M, M, '--probes', '0'], /--probes 0: give a whole number of probe sets, from 1 to 10000/);
+    // past their bounds: a probe count was an internal error (an array of 1e300), a seed was taken modulo 2^32
+    // while the report recorded the seed given (seed 4294967303 drew the probes of seed 7)
+    usage(['fold', M, '-o', OUT, '--probes', '1e300'], /^pleat: --probes 1e300: give a whole number of probe sets, from 1 to 10000/);
+    usage(['compare', M, M, '--probes', '10001'], /--probes 10001: give a whole number of probe sets, from 1 to 10000/);
+    usage(['compare', M, M, '--seed', '4294967303'], /^pleat: --seed 4294967303: give a whole number from 0 to 4294967295 \(the probe generator takes 32 bits\)/);
+    usage(['compare', M, M, '--seed', '-1'], /--seed -1: give a whole number from 0 to 4294967295/);
+    usage(['evaluate', M, '--save', OUT, '--seed', '1e300'], /--seed 1e300: give a whole number from 0 to 4294967295/);
+    usage(['compare', M, M, '--threads', '0'], /--threads 0: give a whole number of threads, 1 or more/);
+    usage(['compare', M, M, '--threads', '-1'], /--threads -1: give a whole number of threads, 1 or more/);
     usage(['compare', M, M, '--probes', '1.5'], /--probes 1.5/);
     usage(['fold', M, '-o', OUT, '--quant-threshold', 'abc'], /--quant-threshold abc: give a number of decibels/);
     // a real number is fine for decibels: the run gets past the flags (to the name check, here)
@@ -118,7 +127,7 @@ describe('start-up loads only what the command line needs', () => {
     const mods = loaded(['--help']);
     expect(mods).toContain('cli/main.js');
     expect(mods.filter((m) => m.startsWith('cli/commands/') && m !== 'cli/commands/table.js')).toEqual([]);
-    expect(mods.filter((m) => m.startsWith('src/')).sort()).toEqual(['src/errors.js', 'src/report/exit-codes.js', 'src/report/format.js'].filter((m) => mods.includes(m)));
+    expect(mods.filter((m) => m.startsWith('src/')).sort()).toEqual(['src/errors.js', 'src/report/exit-codes.js', 'src/report/format.js', 'src/verify/probe-bounds.js'].filter((m) => mods.includes(m)));
     expect(mods.some((m) => m.startsWith('src/jobs/') || m.startsWith('src/eval/') || m.startsWith('src/fold/'))).toBe(false);
   });
   it('fold -h loads the fold command and no other command module', () => {
