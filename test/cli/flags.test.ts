@@ -76,6 +76,14 @@ describe('choices, numbers, unknown options and commands', () => {
     // a real number is fine for decibels: the run gets past the flags (to the name check, here)
     usage(['fold', M, '-o', OUT, '--quant-threshold', '12.5', '--keep', 'nosuch.bn'], /--keep nosuch\.bn/);
   });
+  it('survey takes --format text|json, as the README lists it (it was an unknown option)', () => {
+    const j = pleat(['survey', M, '--format', 'json']);
+    expect(j.code).toBe(0);
+    expect(j.stdout).toBe(pleat(['survey', M, '--json']).stdout);
+    expect(pleat(['survey', M, '--format', 'text']).stdout).toBe(pleat(['survey', M]).stdout);
+    usage(['survey', M, '--format', 'xml'], /--format must be one of text, json \(got 'xml'\)/);
+    usage(['survey', M, '--json', '--format', 'text'], /--json and --format text disagree/);
+  });
   it('an option without its value', () => usage(['fold', M, '-o'], /-o needs a value/));
   it('unknown options print with their dashes and the nearest known option', () => {
     usage(['audit', M, '--formt', 'json'], /unknown option --formt \(did you mean --format\?\)/);
