@@ -27,6 +27,27 @@ function expandHelp(args: string[]): string[] {
   return [args[1]!, '--help'];
 }
 
+/** A negative number, in any notation (-2, -2.5, -.5, -1e2, -2E-3). */
+const NEGATIVE_NUMBER = /^-(\d+\.?\d*|\.\d+)(e[+-]?\d+)?$/i;
+
+/**
+ * `--quant-threshold -1e2` as `--quant-threshold=-1e2`: yargs reads a negative number in exponent notation after
+ * an option as short flags (-1 -e -2), and the command failed naming none of them ("unexpected arguments 1, e").
+ */
+function joinNegativeValues(args: readonly string[]): string[] {
+  const out: string[] = [];
+  for (let i = 0; i < args.length; i++) {
+    const a = args[i]!, next = args[i + 1];
+    if (a.startsWith('--') && a.length > 2 && !a.includes('=') && next !== undefined && NEGATIVE_NUMBER.test(next)) {
+      out.push(`${a}=${next}`);
+      i++;
+    } else {
+      out.push(a);
+    }
+  }
+  return out;
+}
+
 /** Whether the command line asks for help (only then is the help text shown, so only then is it laid out). */
 function wantsHelp(args: readonly string[]): boolean {
   return args.length === 0 || args.some((a) => a === '--help' || a === '-h' || a.startsWith('--help='));
@@ -49,7 +70,7 @@ function commandOf(args: readonly string[]): (typeof COMMANDS)[number] | undefin
 async function main(): Promise<void> {
   // the arguments after node and the script (what yargs' hideBin gives outside Electron; its module loads all
   // of yargs, which waits here until the command's early work has started)
-  const args = expandHelp(process.argv.slice(2));
+  const args = joinNegativeValues(expandHelp(process.argv.slice(2)));
   const chosen = commandOf(args);
   await chosen?.ahead?.(args);
   const yargs = require('yargs') as typeof yargsType;

@@ -71,6 +71,9 @@ describe('choices, numbers, unknown options and commands', () => {
     usage(['evaluate', M, '--save', OUT, '--seed', '1e300'], /--seed 1e300: give a whole number from 0 to 4294967295/);
     usage(['compare', M, M, '--threads', '0'], /--threads 0: give a whole number of threads, 1 or more/);
     usage(['compare', M, M, '--threads', '-1'], /--threads -1: give a whole number of threads, 1 or more/);
+    // a negative number in exponent notation is the option's value, not short flags (it was "unexpected arguments 2, e")
+    usage(['compare', M, M, '--seed', '-2e3'], /^pleat: --seed -2e3: give a whole number from 0 to 4294967295/);
+    usage(['fold', M, '-o', OUT, '--quant-threshold', '-1e2', '--keep', 'nosuch.bn'], /--keep nosuch\.bn/);
     usage(['compare', M, M, '--probes', '1.5'], /--probes 1.5/);
     usage(['fold', M, '-o', OUT, '--quant-threshold', 'abc'], /--quant-threshold abc: give a number of decibels/);
     // a real number is fine for decibels: the run gets past the flags (to the name check, here)
