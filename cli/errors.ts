@@ -2,13 +2,26 @@
 // (the stack only with PLEAT_DEBUG=1).
 import { PleatError, isPleatError } from '../src/errors.js';
 
+/**
+ * A message as one line: a path or name holding a line break (or another control character) would split it, and
+ * a script reading the first line of stderr would lose the rest; such characters are shown escaped (\n, \x1b).
+ */
+export function oneLine(text: string): string {
+  return text.replace(/[\u0000-\u001f\u007f]/g, (c) => c === '\n' ? '\\n' : c === '\r' ? '\\r' : c === '\t' ? '\\t' : `\\x${c.charCodeAt(0).toString(16).padStart(2, '0')}`);
+}
+
+/** Write one `pleat: ` line to stderr. */
+export function sayError(text: string): void {
+  process.stderr.write(`pleat: ${oneLine(text)}\n`);
+}
+
 export function failAndExit(e: unknown): never {
   if (isPleatError(e)) {
-    process.stderr.write(`pleat: ${e.message}\n`);
+    sayError(e.message);
     process.exit(2);
   }
   const msg = e instanceof Error ? e.message.split('\n')[0] : String(e);
-  process.stderr.write(`pleat: internal error: ${msg} (this is a bug; rerun with PLEAT_DEBUG=1 and report it)\n`);
+  sayError(`internal error: ${msg} (this is a bug; rerun with PLEAT_DEBUG=1 and report it)`);
   if (process.env.PLEAT_DEBUG) process.stderr.write(`${(e as Error)?.stack ?? ''}\n`);
   process.exit(3);
 }

@@ -8,7 +8,7 @@ import { PleatError } from '../src/errors.js';
 import { EXIT_CODES_TEXT } from '../src/report/exit-codes.js';
 import { checkFlags, type OptionTable } from './check-flags.js';
 import { COMMANDS, commandNames } from './commands/table.js';
-import { guardStandardStreams, failAndExit } from './errors.js';
+import { guardStandardStreams, failAndExit, sayError } from './errors.js';
 import { nearest } from './suggest.js';
 
 // yargs 17 through its CommonJS build: about 35 ms to load here, against 65 ms for its ES module build (which
@@ -117,7 +117,7 @@ async function main(): Promise<void> {
     .fail((msg, err) => {
       if (err) failAndExit(err);
       const line = msg.startsWith(MISSING_ARGUMENT) && chosen ? `missing argument; usage: pleat ${chosen.usage} [options] (see pleat ${chosen.name} --help)` : msg.split('\n')[0];
-      process.stderr.write(`pleat: ${line}\n`);
+      sayError(line!);
       process.exit(2);
     })
     .parseAsync();

@@ -4,7 +4,7 @@ import { PleatError } from '../src/errors.js';
 import { FORMATS, useColour, type Format } from '../src/report/format.js';
 import { parseReportSpecs } from '../src/report/files.js';
 import type { StagedFile } from '../src/jobs/outputs.js';
-import { flushed, out } from './errors.js';
+import { flushed, out, sayError } from './errors.js';
 
 export interface ReportFlags {
   json?: boolean;
@@ -120,7 +120,7 @@ export async function exitWhenWritten(): Promise<never> {
 
 /** One line per failed model on stderr, in input order, as a single-model run would print it. */
 export function reportErrors(lines: readonly string[]): void {
-  for (const l of lines) process.stderr.write(`pleat: ${l}\n`);
+  for (const l of lines) sayError(l);
 }
 
 /**

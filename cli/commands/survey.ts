@@ -2,7 +2,7 @@ import type { Argv } from 'yargs';
 import { surveyFile } from '../../src/jobs/survey.js';
 import { surveyText } from '../../src/report/survey-text.js';
 import { EXIT } from '../../src/report/exit-codes.js';
-import { out } from '../errors.js';
+import { out, sayError } from '../errors.js';
 import { PleatError } from '../../src/errors.js';
 
 export function builder(y: Argv) {
@@ -20,7 +20,7 @@ export async function handler(argv: { model: string; json: boolean; format?: 'te
   // the structure is shown, but a model whose weights are missing is bad input all the same
   if (readError !== null) {
     // the reader's own line (it names the file, the tensor and what is wrong with its data)
-    process.stderr.write(`pleat: ${readError}\n`);
+    sayError(readError);
     process.exitCode = EXIT.badInput;
   }
 }

@@ -152,3 +152,18 @@ describe('paths that cannot be followed: one line, exit 2', () => {
   ];
   for (const [what, args, msg] of cases) it(what, () => expectOneLine(pleat(args), msg));
 });
+
+// A path holding a line break split the one line in two (a script reading the first line of stderr lost the rest):
+// control characters in a message are shown escaped.
+describe('a message stays one line whatever the path holds', () => {
+  for (const name of ['bad\nline.onnx', 'tab\there\r.onnx', 'esc\u001b[31m.onnx']) {
+    it(JSON.stringify(name), () => {
+      const p = file(name, 'not a model');
+      for (const cmd of [['survey', p], ['audit', p], ['fold', p, '-o', join(dir, 'never.onnx')]]) {
+        const r = pleat(cmd);
+        expectOneLine(r, /not an ONNX model|not a readable ONNX model/);
+        expect(r.stderr).toContain(JSON.stringify(name).slice(1, -1).replace('\\u001b', '\\x1b'));
+      }
+    });
+  }
+});
