@@ -116,7 +116,8 @@ export interface InputSpec {
 }
 
 const show = (dims: readonly Dim[]) => `[${dims.map((d) => (d === null ? '?' : d)).join(',')}]`;
-const template = (vi: ValueInfo) => (vi.shape ?? []).map((d) => (typeof d === 'number' ? d : '?')).join('x');
+/** The --shape to give, with N for each size to choose (a '?' there was copied as is, and refused). */
+const template = (vi: ValueInfo) => `${(vi.shape ?? []).map((d) => (typeof d === 'number' ? d : 'N')).join('x')} (each N a size of 1 or more)`;
 
 /**
  * Resolve the concrete shape of every graph input the run needs (inputs without an initializer default, plus

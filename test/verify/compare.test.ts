@@ -263,7 +263,7 @@ describe('evaluate', () => {
     const a = evaluate(m, { dims: { batch: 1 } }), b = evaluate(m, { dims: { batch: 1 }, seed: 0 });
     expect(Array.from(a.outputs.get('y')!.data)).toEqual(Array.from(b.outputs.get('y')!.data));
     expect(a.inputSummary).toEqual([{ name: 'x', dtype: 'float32', dims: [1, 3, 6, 6], source: 'probe' }]);
-    expect(() => evaluate(m)).toThrow("input 'x' dim 'batch' is dynamic: set it with --dim batch=N or --shape x=?x3x6x6");
+    expect(() => evaluate(m)).toThrow("input 'x' dim 'batch' is dynamic: set it with --dim batch=N or --shape x=Nx3x6x6 (each N a size of 1 or more)");
   });
 });
 

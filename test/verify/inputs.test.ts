@@ -72,11 +72,11 @@ describe('resolveInputs', () => {
   it('a dynamic dim nothing resolves is missing-shape naming the input, the dim and the flags', () => {
     const e = err(() => resolveInputs(model().graph, new Map()));
     expect(e.kind).toBe('missing-shape');
-    expect(e.message).toBe("input 'image' dim 'batch' is dynamic: set it with --dim batch=N or --shape image=?x3x?x4");
+    expect(e.message).toBe("input 'image' dim 'batch' is dynamic: set it with --dim batch=N or --shape image=Nx3xNx4 (each N a size of 1 or more)");
     const g = new GraphBuilder();
     g.input('x', [null, 2]).input('z').output('x');
     const m = parseModel(modelBytes(g), dir);
-    expect(err(() => resolveInputs(m.graph, new Map(), new Map([['z', [1]]]))).message).toBe("input 'x' dim 0 has no size or name: set it with --shape x=?x2");
+    expect(err(() => resolveInputs(m.graph, new Map(), new Map([['z', [1]]]))).message).toBe("input 'x' dim 0 has no size or name: set it with --shape x=Nx2 (each N a size of 1 or more)");
     expect(err(() => resolveInputs(m.graph, new Map(), new Map([['x', [1, 2]]]))).message).toMatch(/^input 'z' has no shape in the model: set it with --shape z=/);
   });
 
