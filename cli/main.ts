@@ -48,6 +48,17 @@ function joinNegativeValues(args: readonly string[]): string[] {
   return out;
 }
 
+/**
+ * After `--` every word is a file, even one that starts with a dash (`pleat survey -- -old.onnx`): such a word is
+ * passed as `./-old.onnx`, the same file, which no option parser takes for an option. (yargs left the words after
+ * `--` unassigned, and the command said its argument was missing.)
+ */
+function filesAfterDoubleDash(args: readonly string[]): string[] {
+  const at = args.indexOf('--');
+  if (at < 0) return [...args];
+  return [...args.slice(0, at), ...args.slice(at + 1).map((a) => (a.startsWith('-') ? `./${a}` : a))];
+}
+
 /** Whether the command line asks for help (only then is the help text shown, so only then is it laid out). */
 function wantsHelp(args: readonly string[]): boolean {
   return args.length === 0 || args.some((a) => a === '--help' || a === '-h' || a.startsWith('--help='));
@@ -70,7 +81,7 @@ function commandOf(args: readonly string[]): (typeof COMMANDS)[number] | undefin
 async function main(): Promise<void> {
   // the arguments after node and the script (what yargs' hideBin gives outside Electron; its module loads all
   // of yargs, which waits here until the command's early work has started)
-  const args = joinNegativeValues(expandHelp(process.argv.slice(2)));
+  const args = joinNegativeValues(filesAfterDoubleDash(expandHelp(process.argv.slice(2))));
   const chosen = commandOf(args);
   await chosen?.ahead?.(args);
   const yargs = require('yargs') as typeof yargsType;

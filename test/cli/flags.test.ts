@@ -5,7 +5,8 @@
 import { describe, expect, it } from 'vitest';
 import { spawnSync } from 'node:child_process';
 import { join } from 'node:path';
-import { existsSync, readFileSync } from 'node:fs';
+import { existsSync, mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
 import { FORMATS } from '../../src/report/format.js';
 import { CLI, ROOT, pleat } from '../helpers/cli.js';
 
@@ -86,6 +87,16 @@ describe('choices, numbers, unknown options and commands', () => {
     expect(pleat(['survey', M, '--format', 'text']).stdout).toBe(pleat(['survey', M]).stdout);
     usage(['survey', M, '--format', 'xml'], /--format must be one of text, json \(got 'xml'\)/);
     usage(['survey', M, '--json', '--format', 'text'], /--json and --format text disagree/);
+  });
+  it('after --, a word that starts with a dash is a file (it was left unassigned: "missing argument")', () => {
+    const d = mkdtempSync(join(tmpdir(), 'pleat-dashdash-'));
+    writeFileSync(join(d, '-old.onnx'), readFileSync(M));
+    const r = pleat(['survey', '--json', '--', '-old.onnx'], { cwd: d });
+    expect(r.stderr).toBe('');
+    expect(r.code).toBe(0);
+    expect(JSON.parse(r.stdout).nodeCount).toBe(JSON.parse(pleat(['survey', M, '--json']).stdout).nodeCount);
+    const a = pleat(['audit', '--quiet', '--json', '--', '-old.onnx'], { cwd: d });
+    expect(a.code, a.stderr).toBe(0);
   });
   it('an option without its value', () => usage(['fold', M, '-o'], /-o needs a value/));
   it('unknown options print with their dashes and the nearest known option', () => {
