@@ -14,7 +14,7 @@ import { estimateRun, type Estimate } from '../eval/estimate.js';
 import { checkEstimateFits, checkProbeEstimate, checkProbeShapes } from './probe-budget.js';
 import { PleatError } from '../errors.js';
 import { dataTypeName } from '../graph/tensor.js';
-import { computeMetrics, diffHistogram, finiteInBoth, worstOf, type DiffHistogram, type Metrics } from './metrics.js';
+import { atOutputScale, computeMetrics, diffHistogram, finiteInBoth, worstOf, type DiffHistogram, type Metrics } from './metrics.js';
 import { BUDGET_NAMES, DEFAULT_GATES, defaultGateFor, defaultGateKey, INT8_WEIGHTS_GATE, METRIC_NAMES, parseGate, type Gate, type GateLimit, type GateScope } from './gate.js';
 import { roundedWeightsModel } from '../fold/quant.js';
 import type { Int8Granularity } from '../fold/int8.js';
@@ -428,7 +428,7 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
       outputs.push(out);
       continue;
     }
-    const metrics = worstOf(s.metrics);
+    const metrics = worstOf(atOutputScale(s.metrics));
     out.metrics = metrics;
     if (s.metrics.every((m) => m.count === 0)) {
       out.status = 'empty';
@@ -447,7 +447,7 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
     if (s.histogram) out.histogram = s.histogram;
     const scope: GateScope = { ...extra, ...metrics };
     if (budget) {
-      const own = worstOf(s.own), deploy = worstOf(s.deploy);
+      const own = worstOf(atOutputScale(s.own)), deploy = worstOf(atOutputScale(s.deploy));
       const b: ErrorBudget = { own, deploy, addedAbs: Math.max(0, deploy.maxAbs - own.maxAbs), addedRel: Math.max(0, deploy.maxRel - own.maxRel) };
       out.budget = b;
       Object.assign(scope, { ownAbs: own.maxAbs, ownRel: own.maxRel, deployAbs: deploy.maxAbs, deployRel: deploy.maxRel, addedAbs: b.addedAbs, addedRel: b.addedRel });

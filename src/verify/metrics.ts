@@ -8,7 +8,8 @@ export interface Metrics {
   /**
    * Largest |a - b| / max(|b|, floor), with floor = REL_FLOOR * peak. Elements smaller than that share of the
    * output's largest magnitude are judged against it, so values that cross zero cannot make the ratio explode.
-   * When the reference is all zeros the ratio is 0 if the candidate is too, else Infinity.
+   * When the reference is all zeros the ratio is 0 if the candidate is too, else Infinity (across probes,
+   * atOutputScale judges such a probe at the output's floor instead).
    */
   maxRel: number;
   /** Root mean square of a - b over elements where neither side is NaN. */
@@ -91,6 +92,23 @@ export function finiteInBoth(a: ArrayLike<number>, b: ArrayLike<number>): number
   let n = 0;
   for (let i = 0; i < a.length; i++) if (Number.isFinite(a[i]!) && Number.isFinite(b[i]!)) n++;
   return n;
+}
+
+/**
+ * Per-probe metrics of one output, judged at the output's scale. On a probe whose reference is zero everywhere
+ * (peak 0) the floor of maxRel was 0, so any difference at all made maxRel infinite and the cosine (of a zero
+ * vector) 0, failing a fold whose error is far below the output's scale on every other probe. There, maxRel uses
+ * the floor of the output's peak over all probes (exact: every |b| is 0 below it, so it is maxAbs / floor) and the
+ * cosine, undefined against a zero vector, is left to the other probes. When every probe's reference is zero,
+ * nothing changes: any difference still fails. NaN and infinity mismatches stay infinite.
+ */
+export function atOutputScale(list: readonly Metrics[]): Metrics[] {
+  let peak = 0;
+  for (const m of list) if (m.peak > peak) peak = m.peak;
+  if (!(peak > 0 && Number.isFinite(peak))) return [...list];
+  const floor = REL_FLOOR * peak;
+  return list.map((m) => m.peak !== 0 || m.count === 0 || m.nanMismatches > 0 || !Number.isFinite(m.maxAbs)
+    ? m : { ...m, maxRel: m.maxAbs / floor, cosine: 1 });
 }
 
 /** The worst of several probes' metrics: largest errors, smallest cosine, most NaN mismatches. */

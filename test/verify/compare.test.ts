@@ -358,3 +358,34 @@ describe('outputs with no finite element', () => {
     expect(r.status).toBe('failed');
   });
 });
+
+// An output that is zero everywhere on some probes (a Relu of a sum, here) and moved by 1e-9 in model B: judged
+// at the output's scale it passes the float32 gate; maxRel was infinite and the cosine 0 on those probes.
+describe('a probe whose reference output is all zeros', () => {
+  function reluOfSum(shift: number): ReturnType<typeof parseModel> {
+    const g = new GraphBuilder();
+    g.input('x', [1, 4]).output('y', [1, 4]);
+    g.init('ones', [1, 4], new Float32Array([1, 1, 1, 1]));
+    g.init('shift', [1], new Float32Array([shift]));
+    const s = g.node('ReduceSum', ['x'], { keepdims: 1 }); // [1, 1]: zero after the Relu when the sum is negative
+    const y = g.node('Relu', [g.node('Mul', [s, 'ones'])]);
+    g.node('Add', [y, 'shift'], {}, { outputs: ['y'] });
+    return parseModel(modelBytes(g), dir);
+  }
+
+  it('passes the default gate when the difference is far below the output scale on every probe', () => {
+    const references: number[][] = [];
+    const r = compare(reluOfSum(0), reluOfSum(1e-9), { probes: 8, onProbe: (p) => { references.push(Array.from(p.float64.get('y')!.data)); } });
+    // the probes did include all-zero references and others (else this test would prove nothing)
+    expect(references).toHaveLength(8);
+    expect(references.some((y) => y.every((v) => v === 0))).toBe(true);
+    expect(references.some((y) => y.some((v) => v > 0))).toBe(true);
+    expect(r.outputs[0]!.metrics!.maxRel).toBeLessThan(1e-5);
+    expect(r.outputs[0]!.metrics!.cosine).toBeGreaterThan(0.99999);
+    expect(r.status).toBe('passed');
+  });
+
+  it('still fails a difference at the output scale on the all-zero probes', () => {
+    expect(compare(reluOfSum(0), reluOfSum(0.5), { probes: 8 }).status).toBe('failed');
+  });
+});

@@ -1,7 +1,7 @@
 // Metrics checked against numbers worked out by hand in the comments (the formulas are the definitions in
 // src/verify/metrics.ts: maxAbs, maxRel with a floor of 1e-3 of the peak, RMS, cosine similarity).
 import { describe, expect, it } from 'vitest';
-import { BINS_PER_DECADE, computeMetrics, diffBin, diffHistogram, REL_FLOOR, worstOf } from '../../src/verify/metrics.js';
+import { atOutputScale, BINS_PER_DECADE, computeMetrics, diffBin, diffHistogram, REL_FLOOR, worstOf } from '../../src/verify/metrics.js';
 
 describe('computeMetrics', () => {
   it('matches hand-computed values on a small vector', () => {
@@ -131,5 +131,45 @@ describe('diffHistogram', () => {
     expect(h.counts[0]).toBe(1);
     expect(h.counts.at(-1)).toBe(1);
     expect(h.first + h.counts.length).toBe(10 * BINS_PER_DECADE);
+  });
+});
+
+// A probe whose reference output is zero everywhere: its maxRel is judged against the floor of the output's peak
+// over all probes (every |b| is below that floor, so maxRel = maxAbs / floor exactly) and its cosine, undefined
+// against a zero vector, is left to the other probes. Checked on seeded random probes against the definition
+// evaluated element by element with the output's floor.
+describe('atOutputScale', () => {
+  const rng = (seed: number) => () => { seed = (seed * 1664525 + 1013904223) >>> 0; return seed / 2 ** 32; };
+  for (const seed of [1, 2, 3, 4, 5]) {
+    it(`a zero-reference probe's maxRel is the definition at the output's floor (seed ${seed})`, () => {
+      const r = rng(seed);
+      const n = 5 + Math.floor(r() * 20);
+      const probes = Array.from({ length: 4 }, (_, p) => {
+        const zero = p === 1 || (p > 1 && r() < 0.3); // probe 0 never, probe 1 always has a zero reference
+        const b = Array.from({ length: n }, () => (zero ? 0 : (r() - 0.5) * 10));
+        const a = b.map((v) => v + (r() - 0.5) * 1e-6);
+        return { a, b, zero };
+      });
+      const list = probes.map((p) => computeMetrics(p.a, p.b));
+      const peak = Math.max(...probes.flatMap((p) => p.b.map(Math.abs)));
+      const got = atOutputScale(list);
+      probes.forEach((p, k) => {
+        if (!p.zero) { expect(got[k]).toBe(list[k]); return; }
+        const floor = REL_FLOOR * peak;
+        const want = Math.max(...p.a.map((x, i) => Math.abs(x - p.b[i]!) / Math.max(Math.abs(p.b[i]!), floor)));
+        expect(got[k]!.maxRel).toBeCloseTo(want, 12);
+        expect(got[k]!.cosine).toBe(1);
+        expect(list[k]!.maxRel).toBe(Infinity); // as it was: the floor of a zero peak is 0
+      });
+      expect(worstOf(got).maxRel).toBeLessThan(1e-3);
+    });
+  }
+
+  it('changes nothing when every probe is zero, or on a NaN mismatch', () => {
+    const allZero = [computeMetrics([1e-9, 0], [0, 0]), computeMetrics([0, 0], [0, 0])];
+    expect(atOutputScale(allZero)).toEqual(allZero);
+    expect(worstOf(atOutputScale(allZero)).maxRel).toBe(Infinity);
+    const nan = [computeMetrics([NaN, 0], [0, 0]), computeMetrics([1, 2], [1, 2])];
+    expect(atOutputScale(nan)[0]).toBe(nan[0]);
   });
 });
