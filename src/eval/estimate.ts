@@ -25,8 +25,6 @@ const SAME_SHAPE = new Set([
   'PRelu', 'Sin', 'Cos', 'Not', 'Sign', 'Mish',
 ]);
 const BROADCAST = new Set(['Add', 'Sub', 'Mul', 'Div', 'Pow', 'Max', 'Min', 'Sum', 'Mean', 'Equal', 'Less', 'Greater', 'And', 'Or', 'Where']);
-const POOL = new Set(['MaxPool', 'AveragePool', 'LpPool']);
-const GLOBAL_POOL = new Set(['GlobalAveragePool', 'GlobalMaxPool', 'GlobalLpPool']);
 
 function broadcast(all: Dims[]): Dims {
   if (all.some((d) => d === undefined)) return undefined;

@@ -5,7 +5,7 @@ import type { Graph, Node, Tensor } from '../graph/ir.js';
 import { touch } from '../graph/edit.js';
 import type { EditableUseDef } from '../graph/usedef.js';
 import type { Scope } from './scope.js';
-import type { FoldContext, LiveScope } from './context.js';
+import type { FoldContext } from './context.js';
 
 /**
  * With the fold driver's context (its scopes' indexes current, and the names each graph's folds released, see

@@ -5,7 +5,7 @@ import { decodeValues, type ScaleGuard } from '../values.js';
 import { addConstantInput, scaleConstant, changeOf, replaceConstant } from '../apply.js';
 import { isRefusal } from '../context.js';
 import { resolveRun } from '../run.js';
-import { gemmBias, layouts, maxAbs, weightView, type ChannelMap, type WeightView } from '../weights.js';
+import { gemmBias, layouts, maxAbs, weightView, type ChannelMap } from '../weights.js';
 import { biasName, fitsStorage, overflow, producerOutputFree, takeOverRun, type FoldRule, weightRangeCheck } from './rule.js';
 
 interface Data { map: ChannelMap; guard?: ScaleGuard; bias: { values: Float64Array; dims: number[] } }

@@ -1,12 +1,12 @@
 // Norm after a MatMul with a constant 2-D weight W [K, N], when the norm's channel axis is the output's last
 // axis: W' = W ⊙ s along columns. A shift t becomes the C of a Gemm when the input is 2-D, else a new Add.
 import { makeTensor } from '../../graph/tensor.js';
-import { decodeValues, type ScaleGuard } from '../values.js';
+import type { ScaleGuard } from '../values.js';
 import { hasShift } from '../affine.js';
-import { addConstantInput, scaleConstant, changeOf, makeNode, replaceConstant } from '../apply.js';
+import { addConstantInput, scaleConstant, changeOf, makeNode } from '../apply.js';
 import { freshName, isRefusal } from '../context.js';
 import { resolveRun } from '../run.js';
-import { layouts, maxAbs, weightView, type ChannelMap, type WeightView } from '../weights.js';
+import { layouts, maxAbs, weightView, type ChannelMap } from '../weights.js';
 import { biasName, fitsStorage, overflow, producerOutputFree, removeRun, takeOverRun, type FoldRule, weightRangeCheck, withBroadcast } from './rule.js';
 
 interface Data { map: ChannelMap; guard?: ScaleGuard; shift: Float64Array; form: 'scale-only' | 'gemm' | 'add' }
