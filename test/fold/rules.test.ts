@@ -5,6 +5,7 @@ import { describe, expect, it } from 'vitest';
 import { GraphBuilder, f, randn, rng, T } from '../helpers/build.js';
 import { parseModel } from '../../src/onnx/read.js';
 import { bnParams, dir, feedsFor, foldAndCheck, summary } from './harness.js';
+import { proveFold } from '../../src/verify/prove.js';
 
 function bn(g: GraphBuilder, x: string, c: number, name: string, seed: number, out?: string): string {
   return g.node('BatchNormalization', [x, ...bnParams(g, name, c, seed, { nearZeroVar: true })], { epsilon: f(1e-3) }, { name, outputs: out ? [out] : undefined });
@@ -93,10 +94,25 @@ describe('into the producer', () => {
     const y = g.node('MatMul', ['a', w(g, 'W', [4, 5], 17)], {}, { name: 'mm' });
     const m1 = g.node('Mul', [y, w(g, 'gamma', [5], 18)], {}, { name: 'scale' });
     g.node('Add', [m1, w(g, 'beta', [5], 19)], {}, { name: 'shift', outputs: ['y'] });
-    const r = await foldAndCheck(g, feedsFor({ a: [2, 3, 4] }));
+    // proven, as a default fold is: the MatMul whose weight is scaled must be inside the proof's region (left out,
+    // the region compared s*t0 + t with t0 + t' and every such fold was refused as proof-failed)
+    const r = await foldAndCheck(g, feedsFor({ a: [2, 3, 4] }), { prove: (c) => proveFold(c, { seed: 1 }).passed });
     expect(summary(r.ledger)).toEqual(['scale:folded:into-producer:mm', 'shift:folded:into-producer:mm']);
     expect(parseModel(r.after, dir).graph.nodes.map((n) => n.opType)).toEqual(['MatMul', 'Add']);
   });
+
+  for (const dims of [[3, 4], [4], [2, 2, 3, 4]]) {
+    it(`MatMul with a ${dims.length}-D input and a per-column Mul/Add folds, proven`, async () => {
+      const g = new GraphBuilder();
+      const out = [...dims.slice(0, -1), 5];
+      g.input('a', dims).output('y', out);
+      const y = g.node('MatMul', ['a', w(g, 'W', [4, 5], 21)], {}, { name: 'mm' });
+      const m1 = g.node('Mul', [y, w(g, 'gamma', [5], 22)], {}, { name: 'scale' });
+      g.node('Add', [m1, w(g, 'beta', [5], 23)], {}, { name: 'shift', outputs: ['y'] });
+      const r = await foldAndCheck(g, feedsFor({ a: dims }), { prove: (c) => proveFold(c, { seed: 2 }).passed });
+      expect(summary(r.ledger)).toEqual(['scale:folded:into-producer:mm', 'shift:folded:into-producer:mm']);
+    });
+  }
 });
 
 describe('into the consumer', () => {

@@ -36,6 +36,9 @@ export const matmulProducer: FoldRule<Data> = {
     scaleConstant(ctx, edit, node, 1, layer.weight, data.map, m.affine.scale, data.guard);
     edit.regionOutputs = [run.bottom];
     if (data.form === 'add') {
+      // the MatMul keeps its wiring but not its weight: it belongs to the proof's region (left out, the region
+      // compared s*t0 + t with t0 + t' and refused every such fold, while --unproven applied it)
+      changeOf(edit, node);
       const bias = freshName(ctx, biasName(layer));
       edit.newInitializers.push(makeTensor(bias, [data.shift.length], dt, data.shift));
       edit.inserts.push({ node: withBroadcast(ctx, makeNode('Add', freshName(ctx, `${layer.label}.bias_add`), [node.outputs[0]!, bias], [run.bottom])), after: node });
