@@ -6,6 +6,7 @@ import type { Node } from '../graph/ir.js';
 import { attrInt, elementCount } from '../graph/ir.js';
 import { tensorToFloat64 } from '../graph/tensor.js';
 import { constantOf, isDefaultDomain, isLinear, rankOf, type Scope } from './scope.js';
+import { perFeature } from './steps.js';
 
 export const PRIMITIVE_CHAIN = 'ReduceMean/Sub/Pow/ReduceMean/Add/Sqrt/Div';
 
@@ -105,7 +106,7 @@ function layerNormHint(scope: Scope, n: Node): string {
   const refs = [sName, bName].filter((v): v is string => !!v).map((v) => ({ v, r: constantOf(scope, v) }));
   const computed = refs.find((x) => !x.r);
   if (computed) return `statistics come from each input and always stay; its '${computed.v}' is computed at run time, so its scale and shift cannot move; store it as an initializer`;
-  if (refs.some((x) => x.r!.tensor.dims.length !== 1)) return 'statistics come from each input and always stay; its Scale spans several axes, so it is no per-feature vector a linear layer could take';
+  if (refs.some((x) => !perFeature(x.r!.tensor.dims, rankOf(scope, n.inputs[0]!)))) return 'statistics come from each input and always stay; its Scale spans several axes, so it is no per-feature vector a linear layer could take';
   for (let i = 1; i < n.outputs.length; i++) {
     if (n.outputs[i]) return `statistics come from each input and always stay; its Mean or InvStdDev output is read, so it is left as exported`;
   }

@@ -5,7 +5,7 @@ import type { Node } from '../graph/ir.js';
 import { attrFloat, attrInt, elementCount } from '../graph/ir.js';
 import { isFloatType, tensorToFloat64, dataTypeName } from '../graph/tensor.js';
 import { batchNormAffine, channelAxisFromEnd, type Affine, type ElementwiseOp } from './affine.js';
-import { constantOf, isDefaultDomain, type ConstRef, type Scope } from './scope.js';
+import { constantOf, isDefaultDomain, rankOf, type ConstRef, type Scope } from './scope.js';
 import { vectorInSlot } from './scratch-vectors.js';
 import { refuse, type FoldContext, type Refusal } from './context.js';
 import type { EntryKind } from './types.js';
@@ -66,6 +66,15 @@ export function readStep(ctx: FoldContext, scope: Scope, n: Node): AffineStep | 
 }
 
 /**
+ * Whether a LayerNormalization's Scale or B of these dims is one value per feature of the last axis: [D], or
+ * [1, ..., 1, D] of no more axes than the input (which broadcasts the same; more axes would add to the output's).
+ */
+export function perFeature(dims: readonly number[], inputRank: number | undefined): boolean {
+  if (dims.length === 1) return true;
+  return dims.length > 1 && inputRank !== undefined && dims.length <= inputRank && dims.slice(0, -1).every((d) => d === 1);
+}
+
+/**
  * The learned tail of a fused LayerNormalization (ONNX Operators, LayerNormalization, opset 17: Y = normalized
  * * Scale + B over the axes from `axis` on). Its statistics come from each input and stay; only Scale and B can
  * move into the readers. Undefined when there is nothing to move or it cannot be read as a per-feature vector.
@@ -78,7 +87,7 @@ function readLayerNormTail(ctx: FoldContext, scope: Scope, n: Node): AffineStep 
   for (const name of [sName, bName]) {
     if (!name) continue;
     const r = constantOf(scope, name);
-    if (!r || !isFloatType(r.tensor.dataType) || r.tensor.dims.length !== 1) return undefined;
+    if (!r || !isFloatType(r.tensor.dataType) || !perFeature(r.tensor.dims, rankOf(scope, n.inputs[0]!))) return undefined;
     refs.push(r);
   }
   const c = elementCount(refs[0]!.tensor.dims);

@@ -106,6 +106,40 @@ describe('InstanceNormalization, LayerNormalization, GroupNormalization vs onnxr
       await checkOp('LayerNormalization', 17, ins, { axis }, ['y', 'mean', 'istd'], 1e-5, `seed ${seed} [${dims}] axis ${axis}`);
     }
   });
+  // Scale and B with leading size-1 axes ([1, D] for [D]) were refused as "do not broadcast to [D]", although
+  // onnxruntime runs them (it takes Scale/B broadcastable to X.shape[axis:], of rank at most X's).
+  it('LayerNormalization with Scale/B of leading size-1 axes', async () => {
+    for (let seed = 1; seed <= 12; seed++) {
+      const r = rng(seed + 350);
+      const dims = [int(r, 1, 3), int(r, 2, 4), int(r, 2, 5)];
+      const axis = seed % 3 === 0 ? -2 : -1, nd = dims.slice(axis + 3);
+      const pdims = seed % 2 ? [1, ...nd] : [...new Array<number>(3 - nd.length).fill(1), ...nd];
+      const ins: In[] = [{ name: 'x', dims, data: randn(r, prod(dims), 2, 1) }, { name: 's', dims: pdims, data: randn(r, prod(pdims)), init: true }];
+      if (seed % 4 < 2) ins.push({ name: 'b', dims: pdims, data: randn(r, prod(pdims)), init: true });
+      await checkOp('LayerNormalization', 17, ins, { axis }, ['y'], 1e-5, `seed ${seed} [${dims}] axis ${axis} scale [${pdims}]`);
+    }
+  });
+  // A Scale that varies over the leading axes too: the function body's Mul and Add (numpy rules) take it, though
+  // onnxruntime does not; checked against the formula Y = (x - mean) / sqrt(var + eps) * Scale + B per element.
+  it('LayerNormalization with a Scale varying over a leading axis, against the formula', () => {
+    const r = rng(377);
+    const dims = [2, 3, 4], eps = 1e-5;
+    const x = randn(r, 24, 2, 1), sc = randn(r, 12), b = randn(r, 12);
+    const g = oneNode('LayerNormalization', [
+      { name: 'x', dims, data: x }, { name: 's', dims: [3, 4], data: sc, init: true }, { name: 'b', dims: [3, 4], data: b, init: true },
+    ], { axis: -1, epsilon: f(eps) }, ['y']);
+    const model = parseModel(modelBytes(g, { opset: 17 }), '.');
+    const got = runModel(model, new Map([['x', { type: 1, dims, data: Float64Array.from(x) }]]), { precision: 'float64' }).get('y')!.data;
+    for (let row = 0; row < 6; row++) {
+      const xs = Array.from(x.subarray(row * 4, row * 4 + 4));
+      const mean = xs.reduce((a, v) => a + v, 0) / 4;
+      const v = xs.reduce((a, u) => a + (u - mean) ** 2, 0) / 4;
+      for (let i = 0; i < 4; i++) {
+        const k = (row % 3) * 4 + i; // the Scale row for this row of X (axis 1 of X), as numpy broadcasting picks
+        expect(got[row * 4 + i]!).toBeCloseTo((xs[i]! - mean) / Math.sqrt(v + eps) * sc[k]! + b[k]!, 6);
+      }
+    }
+  });
   it('GroupNormalization (opset 18 per-group scale, opset 21 per-channel scale)', async () => {
     for (let seed = 1; seed <= 12; seed++) {
       const r = rng(seed + 400);

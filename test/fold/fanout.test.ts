@@ -207,6 +207,18 @@ describe('pre-norm transformer blocks: the scale and shift move into q/k/v and t
     expect(p.cases.find((c) => c.nodes.includes('ln1'))!.before.outputs).toHaveLength(3);
   });
 
+  // Scale and B of shape [1, D] are one value per feature as [D] is (they broadcast the same over [B, T, D]): the
+  // evaluator refused them (exit 2) and audit kept the norm as "spans several axes".
+  it('fused LayerNormalization whose Scale and B are [1, D] folds as with [D]', async () => {
+    const g = new GraphBuilder();
+    g.input('x', [2, 5, 8]).output('y', [2, 5, 3]);
+    const ln = g.node('LayerNormalization', ['x', g.init('s', [1, 8], randn(rng(41), 8, 0.5, 1)), g.init('b', [1, 8], randn(rng(42), 8, 0.5))],
+      { axis: -1, epsilon: f(1e-5) }, { name: 'ln' });
+    g.node('MatMul', [ln, w(g, 'W', [8, 3], 43)], {}, { name: 'mm', outputs: ['y'] });
+    const res = await foldAndCheck(g, feeds, { prove: recordingProver().prove });
+    expect(res.ledger.normalizations.map((e) => `${e.node}:${e.status}:${e.targets.join('+')}`)).toEqual(['ln:folded:mm']);
+  });
+
   it('LayerNorm written out as primitive ops (opset 13): the Mul and Add go, the chain stays', async () => {
     const res = await foldAndCheck(preNormBlock('written'), feeds, { prove: recordingProver().prove }, { opset: 13 });
     const norms = res.ledger.normalizations.filter((e) => e.kind === 'normalization');

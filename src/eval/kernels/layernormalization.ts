@@ -1,5 +1,5 @@
 // LayerNormalization (opset 17): normalize over axes [axis, rank) with mean and (biased) variance, then
-// Y = normalized * Scale + B, Scale and B broadcast to the normalized shape. Optional outputs Mean and
+// Y = normalized * Scale + B, Scale and B broadcast against X (as the function body's Mul and Add do). Optional outputs Mean and
 // InvStdDev have the input's leading dims and size-1 normalized axes.
 import { attrFloat, attrInt, elementCount } from '../../graph/ir.js';
 import { DataType } from '../../graph/ir.js';
@@ -15,11 +15,21 @@ function run(inputs: Array<Value | undefined>, ctx: KernelContext): Value[] {
   const normDims = X.dims.slice(axis);
   const inner = elementCount(normDims), outer = elementCount(X.dims.slice(0, axis));
   const where = `node '${ctx.node.name}' (LayerNormalization)`;
+  // Scale and B broadcast against X as the operator's function body multiplies and adds them (numpy rules): the
+  // result must keep X's shape. Leading size-1 axes aside ([1, D] for [D]), they usually span the normalized
+  // axes only and are indexed by position within them; one that varies over the leading axes is indexed by the
+  // element's position in X.
+  let acrossRows = false;
   for (const p of B ? [S, B] : [S]) {
-    const bd = broadcastShape([normDims, p.dims], where);
-    if (bd.length !== normDims.length || bd.some((d, i) => d !== normDims[i])) throw badModel(ctx, `Scale/B dims [${p.dims.join(',')}] do not broadcast to [${normDims.join(',')}]`);
+    const bd = broadcastShape([X.dims, p.dims], where);
+    if (bd.length !== rank || bd.some((d, i) => d !== X.dims[i])) throw badModel(ctx, `Scale/B dims [${p.dims.join(',')}] do not broadcast to the input's [${X.dims.join(',')}]`);
+    const first = p.dims.findIndex((d) => d !== 1);
+    if (first >= 0 && p.dims.length - first > normDims.length) acrossRows = true;
   }
-  const si = broadcastIndex(S.dims, normDims), bi = B ? broadcastIndex(B.dims, normDims) : undefined;
+  const rowDims = (p: Value) => p.dims.slice(Math.max(0, p.dims.length - normDims.length));
+  const [si, bi] = acrossRows
+    ? [broadcastIndex(S.dims, X.dims), B ? broadcastIndex(B.dims, X.dims) : undefined]
+    : [broadcastIndex(rowDims(S), normDims), B ? broadcastIndex(rowDims(B), normDims) : undefined];
   const x = X.data, Y = allocFloat(x.length, ctx.precision, false);
   const statDims = [...X.dims.slice(0, axis), ...normDims.map(() => 1)];
   const M = allocFloat(outer, ctx.precision), R = allocFloat(outer, ctx.precision);
@@ -32,8 +42,9 @@ function run(inputs: Array<Value | undefined>, ctx: KernelContext): Value[] {
     for (let i = 0; i < inner; i++) { const d = x[off + i]! - mean; sq += d * d; }
     const inv = 1 / Math.sqrt(sq / inner + eps);
     M[o] = mean; R[o] = inv;
+    const at = acrossRows ? off : 0; // (index arrays over all of X, or over one row of normalized axes)
     for (let i = 0; i < inner; i++) {
-      Y[off + i] = (x[off + i]! - mean) * inv * S.data[si[i]!]! + (B ? B.data[bi![i]!]! : 0);
+      Y[off + i] = (x[off + i]! - mean) * inv * S.data[si[at + i]!]! + (B ? B.data[bi![at + i]!]! : 0);
     }
   }
   if (inner === 0) throw badModel(ctx, 'normalized axes are empty');
