@@ -97,6 +97,9 @@ function readLayerNormTail(ctx: FoldContext, scope: Scope, n: Node): AffineStep 
   if (scale.every((v) => v === 1) && shift.every((v) => v === 0)) return undefined; // nothing left to move
   const user = userRefusal(ctx, n);
   if (user) return user;
+  if (!finite(scale) || !finite(shift)) {
+    return refuse('non-finite-params', 'its Scale or B holds NaN or an infinity, and a fold would write that into the readers\' weights; fix the exported parameters');
+  }
   if (overridable(ctx, refs)) {
     const r = refs.find((x) => x.overridable)!;
     return refuse('overridable-weights', `'${r.name}' is also a graph input, so callers may replace it; remove it from the graph inputs in the export, or pass --allow-overridable if callers never do`);
@@ -125,6 +128,12 @@ function keptHint(ctx: FoldContext, n: Node): string {
   return from === undefined || from.startsWith('--')
     ? 'named with --keep; drop that flag to fold it'
     : `listed under "keep" in ${from}; remove it there to fold it`;
+}
+
+/** Whether every value is a finite number (NaN, infinities and a zero variance's 1/0 are not). */
+function finite(values: ArrayLike<number>): boolean {
+  for (let i = 0; i < values.length; i++) if (!Number.isFinite(values[i]!)) return false;
+  return true;
 }
 
 function userRefusal(ctx: FoldContext, n: Node): Refusal | undefined {
@@ -158,6 +167,9 @@ function readBatchNorm(ctx: FoldContext, scope: Scope, n: Node): AffineStep | Re
   }
   // The parameters are read into reused scratch vectors: only the scale and shift made from them are kept.
   const bn = batchNormAffine(vectorInSlot(refs[0]!.tensor, 0), vectorInSlot(refs[1]!.tensor, 1), vectorInSlot(refs[2]!.tensor, 2), vectorInSlot(refs[3]!.tensor, 3), attrFloat(n, 'epsilon', 1e-5));
+  if (!finite(bn.scale) || !finite(bn.shift)) {
+    return refuse('non-finite-params', 'scale, B, mean or var holds NaN or an infinity, or var + epsilon is not above 0: the norm gives no finite number on some channel, and a fold would write that into the weights; fix the exported statistics');
+  }
   return { node: n, kind: 'batch-norm', data: n.inputs[0]!, output: n.outputs[0]!, bn, consts: refs };
 }
 
@@ -178,8 +190,12 @@ function readElementwise(ctx: FoldContext, scope: Scope, n: Node): AffineStep | 
   const user = userRefusal(ctx, n);
   if (user) return user;
   if (overridable(ctx, [ref])) return refuse('overridable-weights', `'${ref.name}' is also a graph input, so callers may replace it; remove it from the graph inputs in the export, or pass --allow-overridable if callers never do`);
+  const constValues = tensorToFloat64(ref.tensor);
+  if (!finite(constValues) || (op === 'Div' && constValues.includes(0))) {
+    return refuse('non-finite-params', `'${ref.name}' ${op === 'Div' && constValues.includes(0) ? 'divides by zero' : 'holds NaN or an infinity'}: the step gives no finite number there, and a fold would write that into the weights; fix the exported constant`);
+  }
   return {
     node: n, kind: 'elementwise', data: constOnLeft ? b : a, output: n.outputs[0]!, op, constOnLeft,
-    constDims: [...ref.tensor.dims], constValues: tensorToFloat64(ref.tensor), consts: [ref],
+    constDims: [...ref.tensor.dims], constValues, consts: [ref],
   };
 }

@@ -16,6 +16,7 @@ export type ReasonCode =
   | 'quantized-weights'
   | 'dtype-unsupported'
   | 'storage-overflow'
+  | 'non-finite-params'
   | 'runtime-statistics'
   | 'kept-by-user'
   | 'proof-failed';

@@ -211,6 +211,44 @@ describe('refusals', () => {
     await keptUnchanged(g, feedsFor({ x: [1, 2, 4, 4] }), ['bn:kept:quantized-weights']);
   });
 
+  // NaN or an infinity in a norm's parameters, a variance below -epsilon, a Mul by an infinity, a Div by zero:
+  // kept as non-finite-params (they were storage-overflow, whose hint, a wider type, would not help). The
+  // written bytes equal the input's and onnxruntime-node gives the original's outputs (NaN where it gave NaN).
+  for (const [what, params] of [
+    ['a NaN mean', { s: [1, 2], B: [0, 1], m: [NaN, 0], v: [1, 1] }],
+    ['an infinite B', { s: [1, 2], B: [Infinity, 1], m: [0, 0], v: [1, 1] }],
+    ['a variance below -epsilon', { s: [1, 2], B: [0, 1], m: [0, 0], v: [1, -2] }],
+    ['a zero variance and a zero epsilon', { s: [1, 2], B: [0, 1], m: [0, 0], v: [0, 1], eps: 0 }],
+  ] as const) {
+    it(`non-finite-params: BatchNormalization with ${what}`, async () => {
+      const g = new GraphBuilder();
+      g.input('x', [1, 2, 3, 3]).output('y', [1, 2, 3, 3]);
+      const c = g.node('Conv', ['x', w(g, 'w', [2, 2, 1, 1], 61)], {}, { name: 'conv' });
+      const ps = (['s', 'B', 'm', 'v'] as const).map((k) => g.init(k, [2], [...params[k]]));
+      const eps = 'eps' in params ? params.eps : 1e-5;
+      g.node('BatchNormalization', [c, ...ps], { epsilon: f(eps) }, { name: 'bn', outputs: ['y'] });
+      const bytes = modelBytes(g);
+      const out = foldBytes(bytes);
+      expect(summary(out.ledger)).toEqual(['bn:kept:non-finite-params']);
+      expect(out.ledger.normalizations[0]!.hint).toMatch(/NaN or an infinity, or var \+ epsilon is not above 0/);
+      expect(Buffer.from(out.bytes).equals(Buffer.from(bytes))).toBe(true);
+    });
+  }
+
+  for (const [op, value, words] of [['Mul', Infinity, /holds NaN or an infinity/], ['Mul', NaN, /holds NaN or an infinity/], ['Div', 0, /divides by zero/]] as const) {
+    it(`non-finite-params: a per-channel ${op} by ${value} after a Conv`, () => {
+      const g = new GraphBuilder();
+      g.input('x', [1, 2, 3, 3]).output('y', [1, 2, 3, 3]);
+      const c = g.node('Conv', ['x', w(g, 'w', [2, 2, 1, 1], 62)], {}, { name: 'conv' });
+      g.node(op, [c, g.init('k', [1, 2, 1, 1], [2, value])], {}, { name: 'step', outputs: ['y'] });
+      const bytes = modelBytes(g);
+      const out = foldBytes(bytes);
+      expect(summary(out.ledger)).toEqual(['step:kept:non-finite-params']);
+      expect(out.ledger.normalizations[0]!.hint).toMatch(words);
+      expect(Buffer.from(out.bytes).equals(Buffer.from(bytes))).toBe(true);
+    });
+  }
+
   it('storage-overflow: float16 weights whose fold would pass 65504', async () => {
     const g = new GraphBuilder();
     g.input('x', [1, 1, 2, 2], T.FLOAT16).output('y', [1, 1, 1, 1], T.FLOAT16);
