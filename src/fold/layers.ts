@@ -58,6 +58,10 @@ export function readLayer(ctx: FoldContext, scope: Scope, n: Node): Layer | Refu
   const label = labelOf(scope, n);
   const [x, w, b] = n.inputs;
   if (!x || !w) return refuse('no-linear-neighbour', `'${label}' has no weight input`);
+  // a MatMul or Gemm whose constant is its first operand: the weight is there, but on the side pleat does not fold
+  if ((op === 'MatMul' || op === 'Gemm') && !constantOf(scope, w) && constantOf(scope, x)) {
+    return refuse('no-linear-neighbour', `'${label}' takes its constant as the first operand (A) and the activations as the second; pleat folds into a constant second operand (B) only`);
+  }
   const weight = constantParam(ctx, scope, n, w, 'weight');
   if (!isRef(weight)) return weight;
   let bias: ConstRef | undefined;

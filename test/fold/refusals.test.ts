@@ -194,6 +194,20 @@ describe('refusals', () => {
     await keptUnchanged(g, feedsFor({ x: [1, 2, 3, 3] }), ['bn:kept:padded-consumer']);
   });
 
+  // The hint said the weight "is computed at run time; store it as an initializer" although it was one: it only
+  // sat in the first slot, which pleat does not fold into.
+  for (const op of ['MatMul', 'Gemm'] as const) {
+    it(`no-linear-neighbour: a ${op} whose constant is its first operand says so`, async () => {
+      const g = new GraphBuilder();
+      g.input('x', [4, 3]).output('y', [2, 3]);
+      const mm = g.node(op, [w(g, 'A', [2, 4], 64), 'x'], {}, { name: 'mm' });
+      g.node('BatchNormalization', [mm, ...bnParams(g, 'bn', 3, 63)], {}, { name: 'bn', outputs: ['y'] });
+      const r = await foldAndCheck(g, feedsFor({ x: [4, 3] }));
+      expect(summary(r.ledger)).toEqual(['bn:kept:no-linear-neighbour']);
+      expect(r.ledger.normalizations[0]!.hint).toMatch(/'mm' takes its constant as the first operand \(A\)/);
+    });
+  }
+
   it('no-linear-neighbour: a norm between an input and an output', async () => {
     const g = new GraphBuilder();
     g.input('x', [1, 2, 3, 3]).output('y', [1, 2, 3, 3]);
