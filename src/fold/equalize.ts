@@ -1,7 +1,7 @@
 // Cross-layer equalization (opt-in: fold --equalize). Folding a normalization scales each output channel of a
 // layer by its own factor, so one channel's weights can span a thousand times another's, and one per-tensor
 // 8-bit scale then rounds the narrow channels away. When two linear layers are joined only by positively
-// homogeneous steps (f(s x) = s f(x) for s > 0: Relu, LeakyRelu, PRelu with a non-negative constant slope,
+// homogeneous steps (f(s x) = s f(x) for s > 0: Relu, LeakyRelu, PRelu with a non-negative constant slope, Abs,
 // Identity, or nothing), output channel i of the first can be divided by s_i and input channel i of the second
 // multiplied by s_i without changing the function. With r1_i the range of the first layer's output channel i and
 // r2_i the range of the second layer's input channel i, s_i = sqrt(r1_i * r2_i) / r2_i gives both channels the
@@ -51,7 +51,7 @@ export interface EqualizedPair {
   sqnr: { firstBefore: SqnrFigures; firstAfter: SqnrFigures; secondBefore: SqnrFigures; secondAfter: SqnrFigures } | null;
 }
 
-const HOMOGENEOUS = new Set(['Relu', 'LeakyRelu', 'PRelu', 'Identity']);
+const HOMOGENEOUS = new Set(['Relu', 'LeakyRelu', 'PRelu', 'Abs', 'Identity']);
 /** Single-input activations a pair may meet; anything else simply ends the search (not a pair). */
 const OTHER_ACTIVATIONS = new Set([
   'Clip', 'Sigmoid', 'Tanh', 'HardSigmoid', 'HardSwish', 'Elu', 'Selu', 'Celu', 'Softplus', 'Softsign', 'Gelu',

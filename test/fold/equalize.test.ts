@@ -21,7 +21,7 @@ const hasChecker = checkerAvailable();
  * conv1 -> BN (scales spanning 10^3) -> act -> conv2 -> act2 -> conv3: after the fold conv1's output channels
  * span a thousand-fold range, the case equalization is for. Invented data for this test.
  */
-function chainModel(seed: number, act: 'Relu' | 'Clip' | 'LeakyRelu' | 'PRelu', channels = 8): string {
+function chainModel(seed: number, act: 'Relu' | 'Clip' | 'LeakyRelu' | 'PRelu' | 'Abs', channels = 8): string {
   const r = rng(seed);
   const C = channels;
   const g = new GraphBuilder();
@@ -91,8 +91,8 @@ describe('fold --equalize', () => {
     });
   }
 
-  it('LeakyRelu and PRelu with non-negative slopes are homogeneous: equalized and proven', async () => {
-    for (const act of ['LeakyRelu', 'PRelu'] as const) {
+  it('LeakyRelu and PRelu with non-negative slopes, and Abs (|s x| = s |x|), are homogeneous: equalized and proven', async () => {
+    for (const act of ['LeakyRelu', 'PRelu', 'Abs'] as const) {
       const src = chainModel(7, act);
       const r = foldFile(src, join(dir, `eq-${act}.onnx`), { probes: 2, equalize: true });
       expect(r.equalized.map((p) => p.status), act).toEqual(['equalized', 'equalized']);
