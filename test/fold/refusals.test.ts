@@ -249,6 +249,18 @@ describe('refusals', () => {
     });
   }
 
+  it('non-finite-params: a Conv whose own weight holds NaN, before a BatchNormalization', () => {
+    const g = new GraphBuilder();
+    g.input('x', [1, 2, 3, 3]).output('y', [1, 2, 3, 3]);
+    const c = g.node('Conv', ['x', g.init('w', [2, 2, 1, 1], [1, NaN, 0.5, 2])], {}, { name: 'conv' });
+    g.node('BatchNormalization', [c, ...bnParams(g, 'bn', 2, 65)], {}, { name: 'bn', outputs: ['y'] });
+    const bytes = modelBytes(g);
+    const out = foldBytes(bytes);
+    expect(summary(out.ledger)).toEqual(['bn:kept:non-finite-params']);
+    expect(out.ledger.normalizations[0]!.hint).toMatch(/the weight 'w' holds NaN or an infinity/);
+    expect(Buffer.from(out.bytes).equals(Buffer.from(bytes))).toBe(true);
+  });
+
   for (const [op, value, words] of [['Mul', Infinity, /holds NaN or an infinity/], ['Mul', NaN, /holds NaN or an infinity/], ['Div', 0, /divides by zero/]] as const) {
     it(`non-finite-params: a per-channel ${op} by ${value} after a Conv`, () => {
       const g = new GraphBuilder();

@@ -86,7 +86,12 @@ export function weightRangeCheck(ctx: FoldContext, t: Tensor, map: ChannelMap, s
     const dataType = t.dataType;
     return { guard: (m) => { if (!fitsStorage(m, dataType)) throw new LateRangeCheckFailed(t.name); } };
   }
-  return fitsStorage(scaledMaxAbs(t, map, scale), t.dataType) ? {} : overflow('weights', t.dataType);
+  if (fitsStorage(scaledMaxAbs(t, map, scale), t.dataType)) return {};
+  // (on this rare path only: were the weights already NaN or infinite, no wider type would help)
+  if (!Number.isFinite(scaledMaxAbs(t, map, new Float64Array(scale.length).fill(1)))) {
+    return refuse('non-finite-params', `the weight '${t.name}' holds NaN or an infinity, and a fold would spread it over the channel; fix the exported weights`);
+  }
+  return overflow('weights', t.dataType);
 }
 
 export function overflow(what: string, dataType: DataTypeCode): Refusal {
