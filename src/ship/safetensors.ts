@@ -2,6 +2,7 @@
 // UTF-8 JSON {name: {dtype, shape, data_offsets: [begin, end]}, "__metadata__": {string: string}}, then the
 // tensors' bytes back to back with no holes; offsets are relative to the first byte after the header.
 import { DataType, type DataTypeCode } from '../graph/ir.js';
+import { PleatError } from '../errors.js';
 import type { BundleTensor } from './bundle-tensor.js';
 
 const DTYPES: Record<number, string> = {
@@ -31,6 +32,11 @@ export interface SafetensorsLayout {
  * to a multiple of 8, so the data section itself starts 8-aligned). Header keys are sorted.
  */
 export function layoutSafetensors(tensors: BundleTensor[], metadata: Record<string, string>): SafetensorsLayout {
+  // the header's `__metadata__` key holds string metadata only: a tensor of that name made a file loaders refuse
+  // (and our own metadata was lost under it)
+  if (tensors.some((t) => t.name === '__metadata__')) {
+    throw new PleatError('bad-input', `tensor '__metadata__': safetensors reserves that name for the file's metadata, so no tensor may have it; rename the initializer, or use --bundle-format c`);
+  }
   const byName = (a: BundleTensor, b: BundleTensor) => (a.name < b.name ? -1 : a.name > b.name ? 1 : 0);
   const sorted = [...tensors].sort((a, b) => b.elementBytes - a.elementBytes || byName(a, b));
   const order: SafetensorsLayout['order'] = [];

@@ -195,6 +195,19 @@ describe('safetensors bundle', () => {
     expect(tensors.size).toBe(0); // no weights: an empty but valid file
   });
 
+  // The header's __metadata__ key holds string metadata only: a tensor of that name made a file loaders refuse,
+  // and pleat's own metadata was lost under it (exit 0).
+  it("refuses a tensor named '__metadata__' before writing anything", () => {
+    const g = new GraphBuilder('reserved');
+    g.input('x', [3]);
+    g.init('__metadata__', [3], [1, 2, 3]);
+    g.node('Mul', ['x', '__metadata__'], {}, { name: 'mul', outputs: ['y'] });
+    g.output('y');
+    const dir = join(work, 'reserved');
+    expectPleat(() => exportBundle(parseModel(modelBytes(g), work), dir, 'safetensors'), /tensor '__metadata__': safetensors reserves that name/);
+    expect(existsSync(join(dir, 'weights.safetensors'))).toBe(false);
+  });
+
   it('is deterministic: the same model gives the same bytes', () => {
     const model = readModelFile(fixtureModelPath());
     exportBundle(model, join(work, 'det-a'), 'safetensors');
