@@ -9,7 +9,8 @@ export function exportText(r: ExportReport, colour = false): string {
   const p = paint(colour);
   const lines: string[] = [];
   const b = r.bundle;
-  if (b === null) lines.push(p.bad('bundle: nothing written (the whole-model check failed)'));
+  // (with --strict a skipped check stops the export too: say which it was)
+  if (b === null) lines.push(p.bad(`bundle: nothing written (${r.fold.check?.status === 'skipped' ? '--strict: the whole-model check was skipped' : 'the whole-model check failed'})`));
   else {
     lines.push(p.bold(`bundle ${b.format} -> ${b.dir}: ${plural(b.tensors, 'tensor')}, ${bytesText(b.bytes)}`));
     for (const f of b.files) lines.push(`  wrote ${f}`);

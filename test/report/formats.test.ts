@@ -5,6 +5,7 @@ import { describe, expect, it } from 'vitest';
 import { foldText } from '../../src/report/ledger-text.js';
 import { auditText } from '../../src/report/audit-text.js';
 import { compareText } from '../../src/report/compare-text.js';
+import { exportText } from '../../src/report/export-text.js';
 import { renderCompare, renderJobs, compareJson } from '../../src/report/render.js';
 import { escapeXml } from '../../src/report/junit.js';
 import { auditMarkdown } from '../../src/report/markdown.js';
@@ -220,5 +221,35 @@ describe('Markdown', () => {
     const md = await renderJobs('audit', [{ model: 'm', report: auditReport({ normalizations: [{ ...auditReport().normalizations[1]!, node: 'a|b' }] }), exitCode: 0 }], 'markdown');
     const row = md.split('\n').find((l) => l.includes('a\\|b'))!;
     expect(row.split(/(?<!\\)\|/).length - 2).toBe(4); // four cells
+  });
+});
+
+// The HTML page says what every other format says: a compare that compared nothing was badged "failed" with no
+// reason, an empty output "failed", and a fold stopped by --strict on a skipped check blamed a gate.
+describe('HTML statuses agree with the other formats', () => {
+  const skippedCompare = () => ({
+    ...compareReport(), status: 'skipped' as const, passed: false,
+    skipped: { reason: 'no-shape' as const, message: "input 'x' has no shape in the model" },
+    outputs: [{ name: 'y', status: 'empty' as const, dtype: 'float32', dims: [0], passed: false, problem: "output 'y' has no elements on any probe" }],
+  });
+
+  it('a skipped compare is skipped, with its reason, in HTML as in text, JSON and JUnit', async () => {
+    const r = skippedCompare();
+    const html = await renderCompare(r, 'a.onnx', 'b.onnx', 'html');
+    expect(html).toMatch(/verdict[\s\S]*?class="badge s-skipped"[^>]*>[^<]*skipped<\/span> <code>no-shape<\/code>/);
+    expect(html).not.toMatch(/class="badge s-failed"/);
+    expect(compareText(r)).toMatch(/skipped \(no-shape\)/);
+    expect((compareJson(r) as { status: string }).status).toBe('skipped');
+    expect(await renderCompare(r, 'a.onnx', 'b.onnx', 'junit')).toMatch(/<skipped/);
+  });
+
+  it('a fold that --strict stopped on a skipped check says so, not that a gate failed', async () => {
+    const base = foldReport();
+    const r = foldReport({ failed: true, output: null, check: { ...base.check!, status: 'skipped', passed: false, skipped: { reason: 'no-shape', message: 'no shape' }, strict: true } as never });
+    const html = await renderJobs('fold', [{ model: 'a.onnx', report: r, exitCode: 1 }], 'html');
+    expect(html).toContain('--strict: the whole-model check was skipped; nothing was written');
+    expect(html).not.toContain('a gate failed');
+    const text = exportText({ fold: r, bundle: null } as never);
+    expect(text).toContain('bundle: nothing written (--strict: the whole-model check was skipped)');
   });
 });

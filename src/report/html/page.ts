@@ -216,7 +216,8 @@ export function foldBody(r: FoldReport, pre = '', at = ''): string {
     countsTile(entries), checkTile(r.check, at), runTile(r.run, at),
   ];
   if (r.storage) overview.push(tile('storage', `${esc(r.storage.store)}: ${fig(`${at}storage.tensorsConverted`, r.storage.tensorsConverted, String(r.storage.tensorsConverted))} tensors converted`));
-  return `<h1>pleat fold <code>${esc(r.model)}</code></h1><p class="sub">${r.failed ? `${badge('failed')} a gate failed; nothing was written` : 'Folded.'}</p>` +
+  const why = r.check?.status === 'skipped' ? '--strict: the whole-model check was skipped' : 'a gate failed';
+  return `<h1>pleat fold <code>${esc(r.model)}</code></h1><p class="sub">${r.failed ? `${badge('failed')} ${esc(why)}; nothing was written` : 'Folded.'}</p>` +
     `<h2 id="${pre}overview">Overview</h2><dl class="tiles">${overview.join('')}</dl>` +
     `<h2 id="${pre}ledger">Ledger</h2>${ledger(entries, pre)}${cards(entries, r.sketches, pre, at)}` +
     checkSection(r.check, pre, at) + quantSection(r, pre, at) + equalizeSection(r, pre, at) + int8Section(r, pre, at);
@@ -241,12 +242,13 @@ export function compareBody(r: CompareReport, a: string, b: string, x: CompareEx
   const overview = [
     tile('model A (reference, float64)', `<code>${esc(a)}</code>`), tile('model B (candidate)', `<code>${esc(b)}</code>`),
     shaTile(x.sha256?.a, 'sha256.a', 'SHA-256 of A'), shaTile(x.sha256?.b, 'sha256.b', 'SHA-256 of B'),
-    tile('verdict', `${badge(r.passed ? 'passed' : 'failed')} ${fig('probes', r.probes, String(r.probes))} probe${r.probes === 1 ? '' : 's'}, seed ${fig('seed', r.seed, String(r.seed))}`),
+    // (the status as every other format gives it: a check that compared nothing is skipped, with its reason)
+    tile('verdict', `${badge(r.status)} ${r.skipped ? `<code>${esc(r.skipped.reason)}</code>: ${esc(r.skipped.message)}; ` : ''}${fig('probes', r.probes, String(r.probes))} probe${r.probes === 1 ? '' : 's'}, seed ${fig('seed', r.seed, String(r.seed))}`),
     runTile(x.run, ''),
   ];
   const blocks = r.outputs.map((o, i) => {
     const at = `outputs.${i}`;
-    let figs = `${badge(o.passed ? 'passed' : 'failed')} ${esc(o.status)}`;
+    let figs = `${badge(o.status === 'empty' ? 'skipped' : o.passed ? 'passed' : 'failed')} ${esc(o.status)}`;
     if (o.metrics) figs += ` · ${metricFigures(o.metrics as unknown as Record<string, unknown>, `${at}.metrics`)}`;
     if (o.budget) figs += ` · added by B ${fig(`${at}.budget.addedAbs`, o.budget.addedAbs, numText(o.budget.addedAbs))} abs, ${fig(`${at}.budget.addedRel`, o.budget.addedRel, numText(o.budget.addedRel))} rel`;
     if (o.gate) figs += ` · gate <code>${esc(o.gate.expr)}</code>`;
