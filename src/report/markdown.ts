@@ -6,11 +6,18 @@ import type { CompareReport } from '../verify/compare.js';
 import type { ProofFigures } from '../fold/types.js';
 import { append, bytesText, CAUTION, cosineText, dbText, numText, ratioText } from './format.js';
 
-/** Text safe inside a table cell: pipes escaped, HTML-looking text neutralised, line breaks flattened. */
+/**
+ * Plain text safe inside a table cell: pipes escaped, HTML-looking text neutralised (`&` too, so a name holding
+ * `&lt;` does not read as `<`), line breaks flattened. Never applied to a code span: a code span decodes no entity,
+ * so `&lt;` there showed as written.
+ */
 export function cell(s: string): string {
-  return s.replace(/\\/g, '\\\\').replace(/\|/g, '\\|').replace(/</g, '&lt;').replace(/>/g, '&gt;').replace(/[\r\n]+/g, ' ');
+  return s.replace(/\\/g, '\\\\').replace(/\|/g, '\\|').replace(/&/g, '&amp;').replace(/</g, '&lt;').replace(/>/g, '&gt;').replace(/[\r\n]+/g, ' ');
 }
-const code = (s: string) => `\`${s.replace(/`/g, "'")}\``;
+/** A name as a code span: shown as it is (backticks as ', line breaks flattened). */
+const code = (s: string) => `\`${s.replace(/`/g, "'").replace(/[\r\n]+/g, ' ')}\``;
+/** The same inside a table cell, where a pipe must be escaped even within a code span (GFM tables). */
+const codeInCell = (s: string) => code(s).replace(/\|/g, '\\|');
 
 interface Row { node: string; op: string; kind: string; status: string; direction: string | null; target: string | null; reason: string | null; hint: string | null; graph: string; proof?: ProofFigures }
 
@@ -30,9 +37,10 @@ function table(all: readonly Row[]): string[] {
   const order = [...rows].sort((x, y) => Number(y.status === 'kept') - Number(x.status === 'kept'));
   const out = ['| normalization | op | status | detail |', '|---|---|---|---|'];
   for (const e of order) {
-    const where = e.graph === 'main' ? '' : ` (in ${code(e.graph)})`;
-    const detail = e.status === 'kept' ? `${code(e.reason ?? 'kept')}: ${e.hint}` : `into ${code(e.target ?? '?')} (${e.direction ?? '?'})${e.proof ? proofCell(e.proof) : ''}`;
-    out.push(`| ${cell(code(e.node) + where)} | ${cell(e.op)} | ${e.status} | ${cell(detail)} |`);
+    const where = e.graph === 'main' ? '' : ` (in ${codeInCell(e.graph)})`;
+    const detail = e.status === 'kept' ? `${codeInCell(e.reason ?? 'kept')}: ${cell(e.hint ?? '')}`
+      : `into ${codeInCell(e.target ?? '?')} (${cell(e.direction ?? '?')})${e.proof ? proofCell(e.proof) : ''}`;
+    out.push(`| ${codeInCell(e.node)}${where} | ${cell(e.op)} | ${e.status} | ${detail} |`);
   }
   return out;
 }
@@ -100,7 +108,7 @@ export function compareMarkdown(r: CompareReport, a: string, b: string): string 
   for (const o of r.outputs) {
     const m = o.metrics;
     const result = o.passed ? 'pass' : o.status === 'empty' ? cell(`skipped: ${o.problem ?? 'no elements'}`) : cell(`**fail**: ${o.problem ?? o.status}`);
-    out.push(`| ${cell(code(o.name))} | ${result} | ${m ? numText(m.maxAbs) : ''} | ${m ? numText(m.maxRel) : ''} | ${m ? cosineText(m.cosine) : ''} |`);
+    out.push(`| ${codeInCell(o.name)} | ${result} | ${m ? numText(m.maxAbs) : ''} | ${m ? numText(m.maxRel) : ''} | ${m ? cosineText(m.cosine) : ''} |`);
   }
   out.push(...caution());
   return out.join('\n') + '\n';

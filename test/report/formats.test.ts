@@ -222,6 +222,16 @@ describe('Markdown', () => {
     const row = md.split('\n').find((l) => l.includes('a\\|b'))!;
     expect(row.split(/(?<!\\)\|/).length - 2).toBe(4); // four cells
   });
+
+  // A code span decodes no entity (CommonMark): a name escaped as `kept&lt;/td&gt;` showed those characters as
+  // written. Names in code spans stay as they are; plain text escapes & as well as < and >.
+  it('names in code spans are shown as they are; plain text escapes &, < and >', async () => {
+    const kept = { ...auditReport().normalizations[1]!, node: 'kept</td><b>&lt;', hint: 'pads <1> & "more"' };
+    const md = await renderJobs('audit', [{ model: 'm', report: auditReport({ normalizations: [kept] }), exitCode: 0 }], 'markdown');
+    const row = md.split('\n').find((l) => l.startsWith('| `kept'))!;
+    expect(row).toContain('| `kept</td><b>&lt;` |');
+    expect(row).toContain('pads &lt;1&gt; &amp; "more"');
+  });
 });
 
 // The HTML page says what every other format says: a compare that compared nothing was badged "failed" with no
