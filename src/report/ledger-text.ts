@@ -70,6 +70,8 @@ export function checkLines(c: CheckSummary | null, p: Paint): string[] {
     }
     const note = o.observable === false ? `  ${p.warn('not observable')}: bit-identical on every probe although a rewritten node upstream ran` : '';
     lines.push(`  ${o.name.padEnd(w)}  ${verdict}  maxAbs ${numText(o.maxAbs)}  maxRel ${numText(o.maxRel)}  rms ${numText(o.rms)}  cosine ${cosineText(o.cosine)}${note}`);
+    // (a gate may fail on a figure not shown above, such as the model-wide sqnr: the problem names it)
+    if (!o.passed && o.problem) lines.push(`  ${' '.repeat(w)}  ${o.problem}`);
   }
   for (const g of c.gates) lines.push(`  gate: ${g}`);
   lines.push(...coverageLines(c.coverage, p));

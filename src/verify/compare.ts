@@ -460,7 +460,12 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
     const passed = gate.test(scope);
     out.gate = { expr: gate.expr, source: userGate ? 'user' : 'default', passed, limits: gate.limits(scope) };
     out.passed = passed;
-    if (!passed) out.problem = `output '${o.name}' fails the gate '${gate.expr}'`;
+    if (!passed) {
+      // the gate may read figures that are not this output's own (sqnr, of the weights): name them, or the
+      // failure reads as this output's while every figure shown for it passes
+      const wide = gate.names.filter((n) => Object.hasOwn(extra, n)).map((n) => `${n} = ${extra[n]}`);
+      out.problem = `output '${o.name}' fails the gate '${gate.expr}'${wide.length ? ` (with the model-wide ${wide.join(', ')})` : ''}`;
+    }
     if (upstream && [...(upstream.get(o.name) ?? [])].some((n) => executed.has(n))) {
       out.observable = !(metrics.maxAbs === 0 && metrics.nanMismatches === 0);
     }

@@ -3,6 +3,7 @@
 // main thread gives from the model in memory (quantReadiness, src/fold/quant.ts), write the same bytes, and stay
 // on the main thread where the figures are needed first (a gate naming sqnr) or differ from the written weights
 // (--store float16). Small models here: the thread is switched on for them through setQuantBesideMinBytes.
+import { foldText } from '../../src/report/ledger-text.js';
 import { afterAll, afterEach, beforeAll, describe, expect, it } from 'vitest';
 import { mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
@@ -83,6 +84,10 @@ describe('the quantization report on its own thread', () => {
     expect(passes.check?.status).toBe('passed');
     const fails = foldFile(src, join(dir, 'sqnr-fail.onnx'), { gate: 'maxRel <= 1e-3 and sqnr >= 1000' });
     expect(fails.check?.status).toBe('failed');
+    // every figure of the output passes: the problem names the model-wide figure the gate failed on (it blamed
+    // the output alone, in JUnit and Markdown too)
+    expect(fails.check!.outputs[0]!.problem).toMatch(/fails the gate 'maxRel <= 1e-3 and sqnr >= 1000' \(with the model-wide sqnr = -?[\d.e+-]+\)$/);
+    expect(foldText(fails)).toMatch(/\n\s+output '.+' fails the gate .*\(with the model-wide sqnr = /);
     expect(quantThreadsStarted()).toBe(before);
     expect(passes.quantization).toHaveLength(2);
   });
