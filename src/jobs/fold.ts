@@ -122,7 +122,7 @@ export function wholeModelCheck(original: Model, folded: Model, opts: FoldJobOpt
   const r = checkKit().compare(original, folded, {
     inputs: opts.inputs, shapes, dims, seed, probes, gate, budget: false, watch, onProbe: opts.onProbe, maxProbeMemory: opts.maxProbeMemory, arithmetic: CHECK_ARITHMETIC,
     extraMetrics: opts.sqnr !== undefined ? { sqnr: opts.sqnr } : undefined,
-    outputsOfA: opts.originalRuns, estimateOfA: opts.estimateOfOriginal,
+    outputsOfA: opts.originalRuns, estimateOfA: opts.estimateOfOriginal, sideNames: ['the original model', 'the folded model'],
   });
   return {
     status: r.status,

@@ -15,7 +15,8 @@ export function parseReportSpecs(list: readonly string[]): ReportSpec[] {
   const out: ReportSpec[] = [];
   for (const text of list) {
     const colon = text.indexOf(':');
-    const prefix = colon > 0 ? text.slice(0, colon) : '';
+    // (any case: JSON:r.json is json, not a folder named 'JSON:r')
+    const prefix = colon > 0 ? text.slice(0, colon).toLowerCase() : '';
     let spec: ReportSpec;
     if ((FORMATS as readonly string[]).includes(prefix)) {
       spec = { format: prefix as Format, file: text.slice(colon + 1) };

@@ -63,6 +63,8 @@ export interface CompareOptions extends InputOptions {
    * per output channel), against A unrounded: what an 8-bit weight deployment of B would cost.
    */
   simulateInt8?: Int8Granularity;
+  /** What a message calls the two models (default 'model A' and 'model B'; fold's check: the original and the folded model). */
+  sideNames?: readonly [string, string];
   /** More names a gate may use, with one value for every output (fold's check adds `sqnr`). */
   extraMetrics?: Record<string, number>;
   /**
@@ -243,10 +245,10 @@ function checkCandidateInputs(b: Model, first: Map<string, Value>): void {
 }
 
 /** Prefix an expected failure with which model it was ("model B (folded.onnx), float64 run: ..."). */
-function labelled(e: unknown, model: Model, side: 'A' | 'B', precision: Precision): unknown {
+function labelled(e: unknown, model: Model, side: string, precision: Precision): unknown {
   if (!(e instanceof PleatError)) return e;
   const file = model.sourcePath ? ` (${basename(model.sourcePath)})` : '';
-  return new PleatError(e.kind, `model ${side}${file}, ${precision} run: ${e.message}`);
+  return new PleatError(e.kind, `${side}${file}, ${precision} run: ${e.message}`);
 }
 
 /** True when some node, in any graph of the model, draws random numbers (two runs cannot be compared). */
@@ -269,6 +271,7 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
   // the budget measures float32 runs against float64 ones: nothing to measure when the judged runs are float32
   const budget = arithmetic === 'float64' && (opts.budget ?? true);
   const extra = opts.extraMetrics ?? {};
+  const sideName = opts.sideNames ?? ['model A', 'model B'] as const;
   const available = [...(budget ? [...METRIC_NAMES, ...BUDGET_NAMES] : [...METRIC_NAMES]), ...Object.keys(extra)];
   const userGate = opts.gate !== undefined ? parseGate(opts.gate, available) : undefined;
   const requested = opts.probes ?? DEFAULT_PROBES;
@@ -324,7 +327,7 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
     const precision: Precision = model === 'judged' ? arithmetic : 'float32';
     const sides = [{ model: a, side: 'A' as const }, { model: b, side: 'B' as const }];
     const out = runLockstep(sides.map((x) => ({ model: x.model, precision, probes: batch, onNode: x.side === 'B' && model === 'judged' ? onNode : undefined })),
-      (e, i) => labelled(e, sides[i]!.model, sides[i]!.side, precision));
+      (e, i) => labelled(e, sides[i]!.model, sideName[i]!, precision));
     return batch.map((_, q) => [out[0]![q]!, out[1]![q]!] as const);
   };
   /** A's outputs for probes first.. of a batch from opts.outputsOfA, when it has every one for these very inputs. */
@@ -347,7 +350,7 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
     if (!elsewhere || budget || !batch.every((_, q) => elsewhere.has(first + q))) return pair('judged', batch);
     let outB;
     try {
-      outB = runLockstep([{ model: b, precision: arithmetic, probes: batch, onNode }], (e) => labelled(e, b, 'B', arithmetic))[0]!;
+      outB = runLockstep([{ model: b, precision: arithmetic, probes: batch, onNode }], (e) => labelled(e, b, sideName[1], arithmetic))[0]!;
     } catch (e) {
       if (doneElsewhere(elsewhere, first, batch)) throw e;
       return pair('judged', batch);
@@ -359,7 +362,7 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
   };
   /** A alone in one arithmetic (the outputs --save-probes keeps that the comparison did not compute). */
   const aAlone = (precision: Precision, inputs: Map<string, Value>) =>
-    runLockstep([{ model: a, precision, probes: [inputs] }], (e) => labelled(e, a, 'A', precision))[0]![0]!;
+    runLockstep([{ model: a, precision, probes: [inputs] }], (e) => labelled(e, a, sideName[0], precision))[0]![0]!;
   const together = probes > 1 && probes * 2 * estimateA.totalBytes <= probeMemoryLimit() / 2
     && probes * (estimateA.totalBytes + estimateRun(b.graph, new Map(specs.map((s) => [s.name, s.given ? s.given.dims : s.dims]))).totalBytes) <= probeMemoryLimit() / 2;
   let run = 0;

@@ -167,3 +167,17 @@ describe('a message stays one line whatever the path holds', () => {
     });
   }
 });
+
+// fold's check names its two models as fold knows them; it said "model B (x.onnx)", compare's words
+describe("a fold check's error names the original or the folded model", () => {
+  it('a Conv whose weight input is empty', () => {
+    const g = new GraphBuilder();
+    g.input('x', [1, 2, 3, 3]).output('y', [1, 2, 3, 3]);
+    g.init('b', [2], [0.1, 0.2]);
+    const c = g.node('Conv', ['x', '', 'b'], {}, { name: 'conv' });
+    g.node('BatchNormalization', [c, g.init('s', [2], [1, 2]), g.init('t', [2], [0, 1]), g.init('m', [2], [0, 0]), g.init('v', [2], [1, 1])], {}, { name: 'bn', outputs: ['y'] });
+    const p = file('empty-weight.onnx', modelBytes(g));
+    const r = pleat(['fold', p, '-o', join(dir, 'empty-weight.folded.onnx'), '--quiet']);
+    expectOneLine(r, /^pleat: the (original|folded) model \(empty-weight(\.folded)?\.onnx\), float64 run: node 'conv' \(Conv\): required input 1 \(W\) is missing/);
+  });
+});

@@ -86,6 +86,8 @@ describe('--report specs', () => {
   });
   it('one file per format; unknown extensions are usage errors', () => {
     expect(() => parseReportSpecs(['a.json', 'json:b.out'])).toThrow(/two files for the json format/);
+    // a format prefix in any case (JSON:f/x.json was read as a path in a folder named 'JSON:f')
+    expect(parseReportSpecs(['JSON:f/x.json', 'Markdown:pr.txt'])).toEqual([{ format: 'json', file: 'f/x.json' }, { format: 'markdown', file: 'pr.txt' }]);
     expect(() => parseReportSpecs(['report.pdf'])).toThrow(/cannot tell the format/);
     expect(parseReportSpecs(['report.html', 'x.md'])).toEqual([{ format: 'html', file: 'report.html' }, { format: 'markdown', file: 'x.md' }]);
     expect(parseReportSpecs(['page.htm'])).toEqual([{ format: 'html', file: 'page.htm' }]);
