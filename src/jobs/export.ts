@@ -5,6 +5,8 @@ import { join } from 'node:path';
 import { asGiven, planBundle, writeAll, type BundleFormat, type BundleResult } from '../ship/bundle.js';
 import { sideFilePaths } from '../onnx/external.js';
 import { OutputSet } from './outputs.js';
+import { provenanceOf, setProvenance } from './provenance.js';
+import { fileSha256 } from './sha256.js';
 import { foldLoaded } from './fold.js';
 import type { FoldJobOptions, FoldReport } from './types.js';
 
@@ -19,6 +21,9 @@ export function exportFile(input: string, dir: string, format: BundleFormat = 's
   const original = opts.noProofs ? undefined : readModelFile(input);
   const fold = foldLoaded(model, original, input, opts);
   if (fold.failed) return { fold, bundle: null };
+  // what the folded .onnx would record (its source, the check's status, gate and seed) goes into the bundle too:
+  // a bundle from a skipped check looked the same as one from a passed check
+  setProvenance(model, provenanceOf(fileSha256(input), opts.gate, opts, fold.check?.status ?? 'not-run'));
   // Every bundle file goes through one transaction: staged, then all renamed in (see outputs.ts).
   const planned = planBundle(model, dir, format);
   const tx = new OutputSet();

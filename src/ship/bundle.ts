@@ -256,7 +256,16 @@ export function stableJson(v: Json, indent = ''): string {
  *            symbol and c_type}}
  *   layers: [{index, name, op, domain?, attributes (plain JSON), inputs, outputs, tensors (bundle tensors it reads)}]
  *   skipped: [{name, reason, note}] for tensors not in the bundle
+ *   provenance: the model's pleat.* metadata_props (version, source SHA-256, check status, gate and seed) when
+ *               it has them, so a bundle says whether the fold behind it was checked, as the folded .onnx does
  */
+/** The model's pleat.* metadata_props (what pleat recorded of the fold that made it), as an object. */
+function provenanceOfModel(model: Model): { [k: string]: string } {
+  const out: { [k: string]: string } = {};
+  for (const [k, v] of model.metadata) if (k.startsWith('pleat.')) out[k] = v;
+  return out;
+}
+
 function manifest(model: Model, format: BundleFormat, files: string[], c: Collected, perTensor: Map<string, { [k: string]: Json }>): string {
   const g = model.graph;
   const inBundle = new Set(c.tensors.map((t) => t.name));
@@ -297,6 +306,8 @@ function manifest(model: Model, format: BundleFormat, files: string[], c: Collec
     layers,
     skipped: c.skipped.map((s) => ({ name: s.name, reason: s.reason, note: s.note })),
   };
+  const provenance = provenanceOfModel(model);
+  if (Object.keys(provenance).length) doc.provenance = provenance;
   return stableJson(doc) + '\n';
 }
 
@@ -405,7 +416,7 @@ export function planBundle(model: Model, dir: string, format: BundleFormat): { f
   const about = `graph '${model.graph.name}'${model.sourcePath ? ` from ${basename(model.sourcePath)}` : ''}`;
   let files: Array<[string, Content]>;
   if (format === 'safetensors') {
-    const metadata: Record<string, string> = { producer: 'pleat', manifest: 'manifest.json', graph: model.graph.name };
+    const metadata: Record<string, string> = { producer: 'pleat', manifest: 'manifest.json', graph: model.graph.name, ...provenanceOfModel(model) };
     const layout = layoutSafetensors(collected.tensors, metadata);
     for (const o of layout.order) {
       perTensor.set(o.tensor.name, { file: 'weights.safetensors', data_offsets: [o.begin, o.end], safetensors_dtype: safetensorsDtype(o.tensor.dataType)! });

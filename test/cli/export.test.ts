@@ -2,11 +2,13 @@
 // written when the gate fails (exit 1), and --json validates against the shipped schema (ajv). The bundle's
 // bytes are checked against the folded model by the bundle tests in test/onnx/.
 import { describe, expect, it } from 'vitest';
-import { existsSync, mkdtempSync, readdirSync } from 'node:fs';
+import { existsSync, mkdtempSync, readdirSync, readFileSync } from 'node:fs';
+import { createHash } from 'node:crypto';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { pleat, ROOT } from '../helpers/cli.js';
 import { schemaValidator } from '../report/helpers.js';
+import { exportFile } from '../../src/jobs/export.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'pleat-export-cli-'));
 const model = join(ROOT, 'models', 'tray-edge.onnx');
@@ -21,6 +23,25 @@ describe('pleat export', { timeout: 180_000 }, () => {
     expect(r.stdout).toMatch(/^fold .* -> bundle /);
     expect(r.stdout).toMatch(/bundle safetensors -> .*: \d+ tensors/);
     expect(r.stdout).toMatch(/^Caution:/m);
+  });
+
+  // The bundle says what the folded .onnx says of its fold (source SHA-256, check status, gate, seed): a bundle
+  // made after a skipped check looked the same as one made after a passed check.
+  it("the manifest and the safetensors metadata record the fold's provenance, the check's status included", () => {
+    const out = join(dir, 'prov');
+    const made = pleat(['export', model, '--bundle', out, '--seed', '5']);
+    expect(made.code, made.stderr).toBe(0);
+    const want = {
+      'pleat.check.gate': 'default per output type', 'pleat.check.seed': '5', 'pleat.check.status': 'passed',
+      'pleat.source.sha256': createHash('sha256').update(readFileSync(model)).digest('hex'), 'pleat.version': JSON.parse(readFileSync(join(ROOT, 'package.json'), 'utf8')).version,
+    };
+    expect(JSON.parse(readFileSync(join(out, 'manifest.json'), 'utf8')).provenance).toEqual(want);
+    const st = readFileSync(join(out, 'weights.safetensors'));
+    const n = Number(st.readBigUInt64LE(0));
+    expect(JSON.parse(st.subarray(8, 8 + n).toString('utf8')).__metadata__).toMatchObject(want);
+    const unproven = join(dir, 'prov-unproven'); // (the library's export without the check)
+    expect(exportFile(model, unproven, 'safetensors', { noProofs: true }).bundle).not.toBeNull();
+    expect(JSON.parse(readFileSync(join(unproven, 'manifest.json'), 'utf8')).provenance['pleat.check.status']).toBe('not-run');
   });
 
   it('C bundle with --json, valid against the schema', () => {
