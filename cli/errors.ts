@@ -1,18 +1,14 @@
 // How the CLI ends: expected failures print one line and exit 2; bugs print one line asking for a report
 // (the stack only with PLEAT_DEBUG=1).
 import { PleatError, isPleatError } from '../src/errors.js';
+import { visible } from '../src/report/format.js';
 
 /**
- * A message as one line: a path or name holding a line break (or another control character) would split it, and
- * a script reading the first line of stderr would lose the rest; such characters are shown escaped (\n, \x1b).
+ * Write one `pleat: ` line to stderr: a path or name holding a line break would split it (a script reading the
+ * first line of stderr lost the rest), so control characters are shown escaped (visible, src/report/format.ts).
  */
-export function oneLine(text: string): string {
-  return text.replace(/[\u0000-\u001f\u007f]/g, (c) => c === '\n' ? '\\n' : c === '\r' ? '\\r' : c === '\t' ? '\\t' : `\\x${c.charCodeAt(0).toString(16).padStart(2, '0')}`);
-}
-
-/** Write one `pleat: ` line to stderr. */
 export function sayError(text: string): void {
-  process.stderr.write(`pleat: ${oneLine(text)}\n`);
+  process.stderr.write(`pleat: ${visible(text)}\n`);
 }
 
 export function failAndExit(e: unknown): never {

@@ -2,7 +2,7 @@
 // --fail-on verdict. No caution lines: they are about agreement on probe inputs, and audit runs no probes.
 import type { AuditReport } from '../jobs/types.js';
 import { alsoLines, cloneClause, ledgerLines } from './ledger-text.js';
-import { append, plural } from './format.js';
+import { append, plural, joinLines } from './format.js';
 import { paint } from './paint.js';
 
 export function auditText(r: AuditReport, colour = false): string {
@@ -15,5 +15,5 @@ export function auditText(r: AuditReport, colour = false): string {
   lines.push(`  ${r.foldable} foldable, ${r.kept} kept${also}${cloneClause(r.normalizations)}`);
   if (r.failOn === 'kept') lines.push(r.failed ? p.bad(`--fail-on kept: FAILED (${r.kept} kept)`) : p.good('--fail-on kept: passed'));
   lines.push(''); // the closing newline, inside the join: the text comes out as one flat string, not joined again
-  return lines.join('\n');
+  return joinLines(lines, colour);
 }

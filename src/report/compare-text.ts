@@ -1,7 +1,7 @@
 // compare's report as text: the verdict, the inputs the models ran on, then per output its metrics, its
 // error budget (each model's float32 run against A in float64) and the gate that judged it.
 import type { CompareReport } from '../verify/compare.js';
-import { CAUTION, cosineText, numText, plural } from './format.js';
+import { CAUTION, cosineText, numText, plural, joinLines } from './format.js';
 import { paint } from './paint.js';
 
 export function compareText(r: CompareReport, a: string, b: string, colour = false): string {
@@ -36,5 +36,5 @@ export function compareText(r: CompareReport, a: string, b: string, colour = fal
     if (o.gate) lines.push(`  ${pad}gate (${o.gate.source}): ${o.gate.expr}`);
   }
   lines.push(...CAUTION);
-  return lines.join('\n') + '\n';
+  return joinLines(lines, colour) + '\n';
 }

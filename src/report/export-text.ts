@@ -1,7 +1,7 @@
 // export's report as text: fold's ledger (export folds first), then what the bundle holds and where, then the
 // caution lines.
 import type { ExportReport } from '../jobs/export.js';
-import { bytesText, CAUTION, plural } from './format.js';
+import { bytesText, CAUTION, plural, joinLines } from './format.js';
 import { foldText } from './ledger-text.js';
 import { paint } from './paint.js';
 
@@ -16,5 +16,5 @@ export function exportText(r: ExportReport, colour = false): string {
     for (const f of b.files) lines.push(`  wrote ${f}`);
     for (const s of b.skipped) lines.push(`  ${p.warn('skipped')} ${s.name} (${s.reason}): ${s.note}`);
   }
-  return foldText({ ...r.fold, output: b === null ? null : `bundle ${b.dir}` }, colour, false) + lines.join('\n') + '\n' + CAUTION.join('\n') + '\n';
+  return foldText({ ...r.fold, output: b === null ? null : `bundle ${b.dir}` }, colour, false) + joinLines(lines, colour) + '\n' + CAUTION.join('\n') + '\n';
 }

@@ -75,3 +75,43 @@ export function plural(n: number, one: string, many = `${one}s`): string {
 /** Report formats: stdout's --format and the --report files. */
 export const FORMATS = ['text', 'json', 'junit', 'markdown', 'html'] as const;
 export type Format = (typeof FORMATS)[number];
+
+/** Control characters (a line break in a node name, an escape, a tab). */
+const CONTROL = /[\u0000-\u001f\u007f]/;
+
+/**
+ * Text as one visible line: control characters shown escaped (\n, \r, \t, \x1b). A line-oriented report or
+ * message takes names from the model, and a name holding a line break split its line in two (a script reading
+ * the lines lost the rest) or one holding an escape recoloured the terminal. Text without any is returned as is.
+ */
+export function visible(text: string): string {
+  if (!CONTROL.test(text)) return text;
+  return text.replace(/[\u0000-\u001f\u007f]/g, (c) => c === '\n' ? '\\n' : c === '\r' ? '\\r' : c === '\t' ? '\\t' : `\\x${c.charCodeAt(0).toString(16).padStart(2, '0')}`);
+}
+
+/** A colour sequence paint() writes (select graphic rendition); any other control character is the data's. */
+const PAINT = /\u001b\[[0-9;]*m/g;
+
+/**
+ * The lines of a text report joined, each line visible (see visible): a line holds one entry, so a control
+ * character inside it came from a name, a hint or a path, never from the layout. With `colour`, the colour
+ * sequences paint() wrote are kept (without it paint() wrote none, so every escape is the data's).
+ */
+export function joinLines(lines: readonly string[], colour = false): string {
+  const out = new Array<string>(lines.length);
+  for (let i = 0; i < lines.length; i++) {
+    const l = lines[i]!;
+    out[i] = !CONTROL.test(l) ? l : colour ? keepPaint(l) : visible(l);
+  }
+  return out.join('\n');
+}
+
+/** A line with paint()'s colour sequences kept and every other control character made visible. */
+function keepPaint(line: string): string {
+  let out = '', at = 0;
+  for (const m of line.matchAll(PAINT)) {
+    out += visible(line.slice(at, m.index)) + m[0];
+    at = m.index! + m[0].length;
+  }
+  return out + visible(line.slice(at));
+}

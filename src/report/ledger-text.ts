@@ -3,7 +3,7 @@
 // caution lines. Our own layout; nothing here compares operator counts side by side.
 import type { FoldReport, CheckSummary, QuantRow, StorageSummary, EqualizedPair, Int8Simulation } from '../jobs/types.js';
 import type { LedgerEntry, ProofFigures } from '../fold/types.js';
-import { append, bytesText, CAUTION, cosineText, dbText, numText, plural, ratioText, widest } from './format.js';
+import { append, bytesText, CAUTION, cosineText, dbText, numText, plural, ratioText, widest, joinLines } from './format.js';
 import { paint, type Paint } from './paint.js';
 
 const where = (graph: string) => (graph === 'main' ? '' : `  in ${graph}`);
@@ -174,5 +174,5 @@ export function foldText(r: FoldReport, colour = false, caution = true): string 
   append(lines, checkLines(r.check, p), quantLines(r.quantization, r.quantThresholdDb, p), equalizeLines(r.equalized, p), int8Lines(r.int8), storageLines(r.storage));
   if (r.probesSaved) lines.push(`probes saved: ${plural(r.probesSaved.sets, 'set')} in ${r.probesSaved.dir} (ONNX backend test-data layout; float32-arithmetic outputs in ${r.probesSaved.dir}/float32)`);
   if (caution) lines.push(...CAUTION);
-  return lines.join('\n') + '\n';
+  return joinLines(lines, colour) + '\n';
 }

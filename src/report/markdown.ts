@@ -4,7 +4,7 @@
 import type { AuditReport, FoldReport } from '../jobs/types.js';
 import type { CompareReport } from '../verify/compare.js';
 import type { ProofFigures } from '../fold/types.js';
-import { append, bytesText, CAUTION, cosineText, dbText, numText, ratioText } from './format.js';
+import { append, bytesText, CAUTION, cosineText, dbText, numText, ratioText, visible } from './format.js';
 
 /**
  * Plain text safe inside a table cell: pipes escaped, HTML-looking text neutralised (`&` too, so a name holding
@@ -12,10 +12,10 @@ import { append, bytesText, CAUTION, cosineText, dbText, numText, ratioText } fr
  * so `&lt;` there showed as written.
  */
 export function cell(s: string): string {
-  return s.replace(/\\/g, '\\\\').replace(/\|/g, '\\|').replace(/&/g, '&amp;').replace(/</g, '&lt;').replace(/>/g, '&gt;').replace(/[\r\n]+/g, ' ');
+  return visible(s.replace(/\\/g, '\\\\').replace(/\|/g, '\\|').replace(/&/g, '&amp;').replace(/</g, '&lt;').replace(/>/g, '&gt;').replace(/[\r\n]+/g, ' '));
 }
 /** A name as a code span: shown as it is (backticks as ', line breaks flattened). */
-const code = (s: string) => `\`${s.replace(/`/g, "'").replace(/[\r\n]+/g, ' ')}\``;
+const code = (s: string) => `\`${visible(s.replace(/`/g, "'").replace(/[\r\n]+/g, ' '))}\``;
 /** The same inside a table cell, where a pipe must be escaped even within a code span (GFM tables). */
 const codeInCell = (s: string) => code(s).replace(/\|/g, '\\|');
 

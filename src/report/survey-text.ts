@@ -1,6 +1,6 @@
 // The survey as text: one labelled line per fact, our own compact layout.
 import type { SurveyReport } from '../jobs/survey.js';
-import { bytesText, dimsText } from './format.js';
+import { bytesText, dimsText, joinLines } from './format.js';
 
 export function surveyText(r: SurveyReport): string {
   const lines: string[] = [];
@@ -29,5 +29,5 @@ export function surveyText(r: SurveyReport): string {
     lines.push(`  ${pad('check')}the evaluator cannot run these operators, so the whole-model check will be skipped:`);
     for (const g of r.evaluator.cannotRun) lines.push(`  ${pad('')}${g.op} (opset ${g.opset}) x${g.count}: ${why[g.reason]}`);
   }
-  return lines.join('\n') + '\n';
+  return joinLines(lines) + '\n';
 }

@@ -263,3 +263,30 @@ describe('HTML statuses agree with the other formats', () => {
     expect(text).toContain('bundle: nothing written (--strict: the whole-model check was skipped)');
   });
 });
+
+// Names come from the model: one holding a line break split its ledger line in two, one holding an escape
+// recoloured the terminal (even with NO_COLOR). Text and Markdown show control characters escaped; a report
+// painted for a terminal keeps colour sequences (a name's own among them) and escapes every other control.
+describe('control characters in names', () => {
+  const named = () => {
+    const r = auditReport();
+    r.normalizations = r.normalizations.map((e, i) => (i === 0 ? { ...e, node: 'bn2\n#evil', hint: e.hint && 'tab\there' } : i === 1 ? { ...e, node: 'bn\u001b[31mRED\u001b[0m' } : e));
+    return r;
+  };
+  it('text: every entry stays on its line and no control character but the line breaks is left', async () => {
+    const t = await renderJobs('audit', [{ model: 'm', report: named(), exitCode: 0 }], 'text');
+    expect(t.split('\n').filter((l) => l.startsWith('  ') && /(foldable|kept|folded) /.test(l))).toHaveLength(named().normalizations.filter((e) => e.kind !== 'affine-step').length);
+    expect(t).toContain('bn2\\n#evil');
+    expect(t).toContain('bn\\x1b[31mRED\\x1b[0m');
+    expect(t).not.toMatch(/[\u0000-\u0009\u000b-\u001f\u007f]/);
+    const painted = await renderJobs('audit', [{ model: 'm', report: named(), exitCode: 0 }], 'text', true);
+    // painted for a terminal: colour sequences stay (a name's own look the same), any other control is escaped
+    expect(painted).toContain('bn2\\n#evil');
+    expect(painted).toMatch(/\u001b\[/);
+  });
+  it('markdown: no raw control character', async () => {
+    const md = await renderJobs('audit', [{ model: 'm', report: named(), exitCode: 0 }], 'markdown');
+    expect(md).not.toMatch(/[\u0000-\u0009\u000b-\u001f\u007f]/);
+    expect(md).toContain('`bn\\x1b[31mRED\\x1b[0m`');
+  });
+});
