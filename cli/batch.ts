@@ -5,7 +5,7 @@
 import { Worker } from 'node:worker_threads';
 import { availableParallelism } from 'node:os';
 import { isPleatError } from '../src/errors.js';
-import type { StagedFile } from '../src/jobs/outputs.js';
+import { workerOutputEnv, type StagedFile } from '../src/jobs/outputs.js';
 import type { AuditJobOptions, AuditReport, FoldJobOptions, FoldReport } from '../src/jobs/types.js';
 import { EXIT } from '../src/report/exit-codes.js';
 import { readModelFile } from '../src/onnx/read.js';
@@ -101,7 +101,7 @@ export async function runBatch(jobs: readonly Job[], progress: Progress, workers
   let next = 0;
   const lane = (): Promise<void> => new Promise((resolve) => {
     if (next >= jobs.length) { resolve(); return; }
-    const w = new Worker(new URL('./batch-worker.js', import.meta.url));
+    const w = new Worker(new URL('./batch-worker.js', import.meta.url), { env: workerOutputEnv() });
     let current = -1;
     const finish = (i: number, o: JobOutcome) => { results[i] = o; progress.tick(jobs[i]!.model); };
     const feed = () => {

@@ -11,6 +11,7 @@
 // written together end up together.
 import { accessSync, constants, readdirSync, readFileSync, renameSync, rmSync, statSync, writeFileSync } from 'node:fs';
 import { randomBytes } from 'node:crypto';
+import { isMainThread } from 'node:worker_threads';
 import { basename, dirname, join, resolve } from 'node:path';
 import { PleatError } from '../errors.js';
 import { entryAt, fileKeys, specialKind } from '../onnx/paths.js';
@@ -26,6 +27,26 @@ const RECORD = /^\.pleat-(\d+)-([0-9a-z]+)\.commit$/;
 function killPoint(point: string): void {
   if (process.env.PLEAT_KILL_AT === point) process.kill(process.pid, 'SIGKILL');
 }
+
+/**
+ * What every transaction of this process starts its token with (its worker threads are given it, see
+ * workerOutputEnv). A process number alone does not tell runs apart: in containers every job's pleat may be
+ * process 2, and a run once took another container's live temporaries in a shared folder for its own and removed
+ * them. (Made anew in each process's main thread, never taken from a parent's environment.)
+ */
+const PROCESS_TAG = (!isMainThread && process.env.PLEAT_OUTPUT_TAG) || randomBytes(4).toString('hex');
+
+/** The environment for a worker thread whose outputs belong to this process (it takes the process's tag). */
+export function workerOutputEnv(): NodeJS.ProcessEnv {
+  return { ...process.env, PLEAT_OUTPUT_TAG: PROCESS_TAG };
+}
+
+/**
+ * A commit record older than this has no live writer: a run writes its record right before its renames and
+ * removes it right after (milliseconds). Past it, a record is carried out whatever its process number says (the
+ * number may be another container's, or reused), where before it could stay unfinished for good.
+ */
+const RECORD_STALE_MS = 60_000;
 
 function alive(pid: number): boolean {
   if (pid === process.pid) return true;
@@ -51,7 +72,11 @@ export function recoverFolder(dir: string, inputOf: (path: string) => string | u
   try { names = readdirSync(dir); } catch { return; }
   for (const n of names) {
     const m = RECORD.exec(n);
-    if (!m || alive(Number(m[1]))) continue;
+    if (!m) continue;
+    const pid = Number(m[1]);
+    // ours (this process's) or a live writer's, unless it is old enough that no writer can be behind it
+    if (pid === process.pid && m[2]!.startsWith(PROCESS_TAG)) continue;
+    if (alive(pid) && !staleRecord(join(dir, n))) continue; // (alive: any record of this process number)
     let list: StagedFile[] = [];
     try {
       const parsed = JSON.parse(readFileSync(join(dir, n), 'utf8')) as unknown;
@@ -74,6 +99,8 @@ export function recoverFolder(dir: string, inputOf: (path: string) => string | u
     }
     rmSync(join(dir, n), { force: true });
   }
+  // temporaries of dead processes go; those carrying this process's number but not its tag may be another
+  // container's live run, and stay
   for (const n of readdirSync(dir)) {
     const m = TEMP.exec(n);
     if (m && !alive(Number(m[1]))) rmSync(join(dir, n), { force: true, recursive: true });
@@ -83,13 +110,19 @@ export function recoverFolder(dir: string, inputOf: (path: string) => string | u
 const live = new Set<OutputSet>();
 let exitHook = false;
 
+/** Whether a commit record was written long enough ago that its writer is gone (see RECORD_STALE_MS). */
+function staleRecord(path: string): boolean {
+  const st = statSync(path, { throwIfNoEntry: false });
+  return st !== undefined && Date.now() - st.mtimeMs > RECORD_STALE_MS;
+}
+
 /** Remove the temporaries of every transaction not yet committed (the CLI calls this on SIGINT/SIGTERM). */
 export function abortAllOutputs(): void {
   for (const s of [...live]) s.abort();
 }
 
 export class OutputSet {
-  private readonly token = randomBytes(5).toString('hex').replace(/[^0-9a-z]/g, '');
+  private readonly token = `${PROCESS_TAG}${randomBytes(3).toString('hex')}`;
   private counter = 0;
   private readonly protectedKeys = new Map<string, string>();
   private readonly reservedKeys = new Map<string, string>();
@@ -276,8 +309,8 @@ export class OutputSet {
 
   private close(): void {
     live.delete(this);
-    const mine = `.pleat-${process.pid}-`;
-    const others = [...live].map((s) => `${mine}${s.token}`);
+    const mine = `.pleat-${process.pid}-${PROCESS_TAG}`; // (this process's, worker threads' included: not another container's)
+    const others = [...live].map((s) => `.pleat-${process.pid}-${s.token}`);
     for (const dir of this.dirs) {
       let names: string[];
       try { names = readdirSync(dir); } catch { continue; }

@@ -3,7 +3,8 @@
 // output of a run (model, side file, reports) staged and renamed in together, or nothing written at all.
 import { describe, expect, it } from 'vitest';
 import { execFileSync } from 'node:child_process';
-import { existsSync, linkSync, lstatSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, symlinkSync, writeFileSync } from 'node:fs';
+import { existsSync, linkSync, lstatSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, symlinkSync, utimesSync, writeFileSync } from 'node:fs';
+import { OutputSet } from '../../src/jobs/outputs.js';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import onnxProto from 'onnx-proto';
@@ -315,6 +316,34 @@ describe('one output transaction (issue 11 item 4)', () => {
     expect(r.stderr.trim().split('\n')).toHaveLength(1);
     expect(readFileSync(input).equals(before)).toBe(true);
     expect(existsSync(join(dir, 'x.onnx'))).toBe(false);
+  });
+
+  // Process numbers repeat across containers (every job's pleat may be process 2) and are reused: a run took
+  // another container's live temporaries for its own and removed them, and a dead run's record whose number was
+  // a live process's (or this one's) stayed unfinished for good, leaving the folder mixed.
+  it("this process's number with another run's token: its temporaries stay, its stale record is carried out", () => {
+    const dir = tmp();
+    const pid = process.pid;
+    const foreignTmp = join(dir, `.pleat-${pid}-0ther0ne1-live.onnx.tmp`);
+    writeFileSync(foreignTmp, 'another container is writing this');
+    const recTmp = join(dir, `.pleat-${pid}-0ld0ne0-r.json.tmp`);
+    writeFileSync(recTmp, '{"finished": true}');
+    const record = join(dir, `.pleat-${pid}-0ld0ne.commit`);
+    writeFileSync(record, JSON.stringify([{ tmp: recTmp, dest: join(dir, 'r.json') }]));
+    const fresh = join(dir, `.pleat-1-fresh0.commit`); // process 1 is alive: a fresh record of it is left alone
+    const freshTmp = join(dir, '.pleat-1-fresh00-f.json.tmp');
+    writeFileSync(freshTmp, '{}');
+    writeFileSync(fresh, JSON.stringify([{ tmp: freshTmp, dest: join(dir, 'f.json') }]));
+    const old = (Date.now() - 5 * 60_000) / 1000;
+    utimesSync(record, old, old);
+    const tx = new OutputSet();
+    tx.stage(tx.reserve(join(dir, 'mine.json'), '--report'), '{}');
+    tx.commit();
+    expect(readFileSync(join(dir, 'r.json'), 'utf8')).toBe('{"finished": true}'); // the stale record, carried out
+    expect(existsSync(record)).toBe(false);
+    expect(existsSync(foreignTmp)).toBe(true); // not this run's, though it carries this process's number
+    expect(existsSync(fresh) && existsSync(freshTmp)).toBe(true);
+    expect(existsSync(join(dir, 'mine.json'))).toBe(true);
   });
 
   it("a record naming another process's temporaries is dropped", () => {
