@@ -79,6 +79,10 @@ function commandOf(args: readonly string[]): (typeof COMMANDS)[number] | undefin
 }
 
 async function main(): Promise<void> {
+  // (the argument parser asks for the working folder while it loads: gone, that was an internal error, exit 3)
+  try { process.cwd(); } catch (e) {
+    throw new PleatError('bad-input', `the working folder no longer exists (${(e as NodeJS.ErrnoException).code ?? String(e)}); run pleat from an existing folder`);
+  }
   // the arguments after node and the script (what yargs' hideBin gives outside Electron; its module loads all
   // of yargs, which waits here until the command's early work has started)
   const args = joinNegativeValues(filesAfterDoubleDash(expandHelp(process.argv.slice(2))));

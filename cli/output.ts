@@ -84,6 +84,11 @@ export async function emit(plan: ReportPlan, render: (format: Format, colour: bo
       tx.reserve(spec.file, '--report');
       tx.stage(spec.file, await render(spec.format, false));
     }
+    // A fold runs without yielding, so a TERM or Ctrl-C that came during it waits in the event loop: let it run
+    // now, before anything is renamed in (it exits 143 or 130 and the temporaries go), rather than commit and
+    // report success for a cancelled job. (PLEAT_SIGNAL_BEFORE_COMMIT: test hook sending TERM at this point.)
+    if (process.env.PLEAT_SIGNAL_BEFORE_COMMIT) process.kill(process.pid, 'SIGTERM');
+    await new Promise<void>((res) => setTimeout(() => setImmediate(res), 0)); // (one full turn of the loop: its poll reads signals)
     tx.commit();
   } catch (e) {
     tx.abort();

@@ -21,6 +21,9 @@ import type { StagedFile } from '../onnx/write.js';
 export type { StagedFile };
 
 const TEMP = /^\.pleat-(\d+)-([0-9a-z]+)-.+\.tmp$/;
+
+/** The longest name of a folder entry (Linux and most file systems: 255 bytes). */
+const NAME_MAX = 255;
 const RECORD = /^\.pleat-(\d+)-([0-9a-z]+)\.commit$/;
 
 /** Test hook: PLEAT_KILL_AT=<point> kills the process at that point of a commit (the SIGKILL test). */
@@ -167,6 +170,11 @@ export class OutputSet {
     }
     const here = entryAt(full, `${role} ${dest}`);
     if (here?.isDirectory()) throw new PleatError('bad-input', `${role} ${dest}: is a folder`);
+    // the file is written beside it under a longer temporary name first: that name must fit a folder entry
+    const tempLength = Buffer.byteLength(`.pleat-${process.pid}-${this.token}${this.counter + 99}-${basename(full)}.tmp`);
+    if (tempLength > NAME_MAX) {
+      throw new PleatError('bad-input', `${role} ${dest}: the file name is too long to write (${Buffer.byteLength(basename(full))} bytes; at most ${Buffer.byteLength(basename(full)) - (tempLength - NAME_MAX)} here, since it is written under a longer temporary name first)`);
+    }
     const special = specialKind(here);
     if (special) {
       const hint = role === '--report' ? '; for the report on stdout, use --format' : '';

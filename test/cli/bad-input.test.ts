@@ -5,7 +5,8 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import onnxProto from 'onnx-proto';
 import { GraphBuilder, modelBytes } from '../helpers/build.js';
-import { pleat } from '../helpers/cli.js';
+import { CLI, ROOT, pleat } from '../helpers/cli.js';
+import { spawnSync } from 'node:child_process';
 
 const dir = mkdtempSync(join(tmpdir(), 'pleat-bad-'));
 const file = (name: string, bytes: Uint8Array | string) => { const p = join(dir, name); writeFileSync(p, bytes); return p; };
@@ -179,5 +180,16 @@ describe("a fold check's error names the original or the folded model", () => {
     const p = file('empty-weight.onnx', modelBytes(g));
     const r = pleat(['fold', p, '-o', join(dir, 'empty-weight.folded.onnx'), '--quiet']);
     expectOneLine(r, /^pleat: the (original|folded) model \(empty-weight(\.folded)?\.onnx\), float64 run: node 'conv' \(Conv\): required input 1 \(W\) is missing/);
+  });
+});
+
+// The argument parser asks for the working folder while it loads: a folder removed under the shell was an
+// internal error (exit 3), even for --help.
+describe('a working folder that no longer exists', () => {
+  it('is one line and exit 2', () => {
+    const gone = mkdtempSync(join(tmpdir(), 'pleat-gone-'));
+    const r = spawnSync('sh', ['-c', `cd '${gone}' && rmdir '${gone}' && exec '${process.execPath}' '${CLI}' survey '${join(ROOT, 'models', 'pump-vibration.onnx')}'`], { encoding: 'utf8' });
+    expect(r.status).toBe(2);
+    expect(r.stderr).toBe('pleat: the working folder no longer exists (ENOENT); run pleat from an existing folder\n');
   });
 });

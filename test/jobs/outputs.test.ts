@@ -359,3 +359,18 @@ describe('one output transaction (issue 11 item 4)', () => {
     expect(readdirSync(dir).sort()).toEqual(['c.onnx', 'r.json']);
   });
 });
+
+// An output name that fits a folder entry but not once lengthened into its temporary name was an internal error
+// (ENAMETOOLONG, exit 3, the line printed twice): refused up front naming the limit.
+describe('a file name too long for its temporary name', () => {
+  it('-o and --report are refused in one line before any work', () => {
+    const dir = tmp();
+    const long = 'q'.repeat(232);
+    for (const args of [['-o', join(dir, `${long}.onnx`)], ['-o', join(dir, 'ok.onnx'), '--report', join(dir, `${long}.json`)]]) {
+      const r = pleat(['fold', 'models/tray-edge.onnx', ...args, '--quiet']);
+      expect(r.code, r.stderr).toBe(2);
+      expect(r.stderr).toMatch(/^pleat: (-o|--report) .*: the file name is too long to write \(\d+ bytes; at most \d+ here, since it is written under a longer temporary name first\)\n$/);
+    }
+    expect(readdirSync(dir)).toEqual([]);
+  });
+});

@@ -8,7 +8,7 @@ import { spawn, spawnSync } from 'node:child_process';
 import { copyFileSync, existsSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { CLI, pleat } from '../helpers/cli.js';
+import { CLI, ROOT, pleat } from '../helpers/cli.js';
 import { readModelFile } from '../../src/onnx/read.js';
 
 const MODEL = 'models/tray-edge.onnx';
@@ -119,5 +119,19 @@ describe('export killed at every step of its commit', () => {
     const manifest = JSON.parse(readFileSync(join(bundle, 'manifest.json'), 'utf8'));
     expect(Object.keys(manifest.tensors).sort()).toEqual(safetensorNames(join(bundle, 'weights.safetensors')));
     expect(temporaries(bundle)).toEqual([]);
+  });
+});
+
+// A fold runs without yielding to the event loop, so a TERM (a cancelled CI job) or Ctrl-C that came during it
+// was only handled after everything was renamed in: the run wrote its files and exited 0. Now the signal is
+// handled before the commit: exit 143, nothing written, no temporary left. (The hook sends TERM just before.)
+describe('a TERM during the fold', () => {
+  it('exits 143 before anything is renamed in', () => {
+    const dir = mkdtempSync(join(tmpdir(), 'pleat-term-'));
+    const r = spawnSync(process.execPath, [CLI, 'fold', 'models/tray-sorter.onnx', '-o', join(dir, 't.onnx'), '--report', join(dir, 't.json'), '--quiet'], {
+      cwd: ROOT, encoding: 'utf8', env: { ...process.env, NO_COLOR: '1', CI: 'true', PLEAT_SIGNAL_BEFORE_COMMIT: '1' },
+    });
+    expect(r.status).toBe(143);
+    expect(readdirSync(dir)).toEqual([]);
   });
 });
