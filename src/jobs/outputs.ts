@@ -21,10 +21,10 @@ import type { StagedFile } from '../onnx/write.js';
 export type { StagedFile };
 
 const TEMP = /^\.pleat-(\d+)-([0-9a-z]+)-.+\.tmp$/;
+const RECORD = /^\.pleat-(\d+)-([0-9a-z]+)\.commit$/;
 
 /** The longest name of a folder entry (Linux and most file systems: 255 bytes). */
 const NAME_MAX = 255;
-const RECORD = /^\.pleat-(\d+)-([0-9a-z]+)\.commit$/;
 
 /** Test hook: PLEAT_KILL_AT=<point> kills the process at that point of a commit (the SIGKILL test). */
 function killPoint(point: string): void {
