@@ -51,6 +51,12 @@ export interface OutputGuard {
   outputs?: ReadonlyArray<readonly [string, string]>;
 }
 
+/** Claim every file the run reads (models, config file, --input files) as never to be written. */
+function protectReads(tx: import('../src/jobs/outputs.js').OutputSet, guard: OutputGuard): void {
+  for (const i of guard.inputs ?? []) tx.protect(i, 'input model');
+  for (const [p, what] of guard.reads ?? []) tx.protect(p, what);
+}
+
 /**
  * Check every destination before any work runs (folders exist and are writable, no report replaces an input or
  * an output, no two outputs share a file), so a usage mistake never costs a long job or writes anything.
@@ -59,8 +65,7 @@ export async function checkDestinations(plan: ReportPlan, guard: OutputGuard): P
   const { OutputSet } = await import('../src/jobs/outputs.js');
   const tx = new OutputSet();
   try {
-    for (const i of guard.inputs ?? []) tx.protect(i, 'input model');
-    for (const [p, what] of guard.reads ?? []) tx.protect(p, what);
+    protectReads(tx, guard);
     for (const [o, flag] of guard.outputs ?? []) tx.reserve(o, flag);
     for (const spec of plan.files) tx.reserve(spec.file, '--report');
   } finally {
@@ -77,8 +82,7 @@ export async function emit(plan: ReportPlan, render: (format: Format, colour: bo
   const { OutputSet } = await import('../src/jobs/outputs.js'); // loaded when used: --help needs none of it
   const tx = new OutputSet();
   try {
-    for (const i of guard.inputs ?? []) tx.protect(i, 'input model');
-    for (const [p, what] of guard.reads ?? []) tx.protect(p, what);
+    protectReads(tx, guard);
     for (const files of staged) if (files.length) tx.adopt(files, 'output');
     for (const spec of plan.files) {
       tx.reserve(spec.file, '--report');

@@ -191,8 +191,9 @@ function readElementwise(ctx: FoldContext, scope: Scope, n: Node): AffineStep | 
   if (user) return user;
   if (overridable(ctx, [ref])) return refuse('overridable-weights', `'${ref.name}' is also a graph input, so callers may replace it; remove it from the graph inputs in the export, or pass --allow-overridable if callers never do`);
   const constValues = tensorToFloat64(ref.tensor);
-  if (!finite(constValues) || (op === 'Div' && constValues.includes(0))) {
-    return refuse('non-finite-params', `'${ref.name}' ${op === 'Div' && constValues.includes(0) ? 'divides by zero' : 'holds NaN or an infinity'}: the step gives no finite number there, and a fold would write that into the weights; fix the exported constant`);
+  const byZero = op === 'Div' && constValues.includes(0);
+  if (byZero || !finite(constValues)) {
+    return refuse('non-finite-params', `'${ref.name}' ${byZero ? 'divides by zero' : 'holds NaN or an infinity'}: the step gives no finite number there, and a fold would write that into the weights; fix the exported constant`);
   }
   return {
     node: n, kind: 'elementwise', data: constOnLeft ? b : a, output: n.outputs[0]!, op, constOnLeft,

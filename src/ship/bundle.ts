@@ -3,7 +3,7 @@
 // attributes, inputs, outputs and the tensors it reads. All files are written to temporary names first and
 // renamed into place together, so a failure leaves no partial bundle.
 import { ensureLoaded } from '../onnx/sparse-read.js';
-import { specialKind } from '../onnx/paths.js';
+import { entryAt, specialKind } from '../onnx/paths.js';
 import { closeSync, mkdirSync, openSync, renameSync, rmSync, statSync, writeSync } from 'node:fs';
 import { basename, join, resolve, sep } from 'node:path';
 import { DataType, elementCount, type Attribute, type DataTypeCode, type Graph, type Model, type Tensor, type ValueInfo } from '../graph/ir.js';
@@ -339,7 +339,7 @@ function writeFilesAtomically(dir: string, files: Array<[string, Content]>, sour
   const targets = files.map(([name]) => join(dir, name));
   for (const target of targets) {
     if (source && resolve(source) === target) throw new PleatError('bad-input', `${target}: refusing to overwrite the input model; choose another --bundle folder`);
-    const st = statSync(target, { throwIfNoEntry: false });
+    const st = entryAt(target, target); // (a link loop there is bad input, not an internal error)
     if (st?.isDirectory()) {
       throw new PleatError('bad-input', `${target}: is a folder, so the bundle cannot be written there; remove it or choose another --bundle folder`);
     }
