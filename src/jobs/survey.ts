@@ -1,7 +1,7 @@
 // `survey`: what a model file holds, for people and scripts.
 import { statSync } from 'node:fs';
 import type { Dim, Graph, Model, Tensor, ValueInfo } from '../graph/ir.js';
-import { externalStorage, hasSubgraphs, storageKind, subgraphsOf } from '../graph/ir.js';
+import { externalStorage, storageKind } from '../graph/ir.js';
 import { bytesPerElement, dataTypeName, tensorByteSize } from '../graph/tensor.js';
 import { memberOf } from '../graph/names.js';
 import { eachTensor, externalRef, resolveLocation } from '../onnx/external.js';
@@ -96,48 +96,88 @@ function missingExternal(model: Model, label: string): MissingData[] {
   return out;
 }
 
+/** What the walk over every graph counts. */
+interface Tally {
+  counts: Map<string, OpTally>; // by op, domain-qualified outside the default domain
+  nodeCount: number;
+  subgraphCount: number;
+  initCount: number;
+  initBytes: number;
+  constCount: number;
+  constBytes: number;
+  external: number;
+}
+
+// One walk over every tensor (a graph of 10^5 nodes holds some 10^5 tensors: each pass over them shows). Each loop
+// is a function of its own, and subgraphs wait in a list rather than being walked from inside the loop over the
+// nodes: one function holding both loops and the recursion was compiled again for each and fell back to the
+// interpreter on each small subgraph.
+
+function tallyInitializers(t: Tally, g: Graph, isInput: ((name: string) => boolean) | undefined, initialized: Set<string>): void {
+  const inits = g.initializers;
+  for (let i = 0; i < inits.length; i++) {
+    const init = inits[i]!;
+    t.initCount++;
+    const bytes = declaredBytes(init);
+    t.initBytes += bytes;
+    if (storageKind(init) === 'external') t.external += bytes;
+    if (isInput !== undefined && isInput(init.name)) initialized.add(init.name);
+  }
+}
+
+function tallyNodes(t: Tally, g: Graph, subgraphs: Graph[]): void {
+  const nodes = g.nodes;
+  for (let j = 0; j < nodes.length; j++) {
+    const n = nodes[j]!;
+    t.nodeCount++;
+    const domain = n.domain === 'ai.onnx' ? '' : n.domain;
+    const op = domain ? `${domain}.${n.opType}` : n.opType;
+    const tally = t.counts.get(op);
+    if (tally) tally.count++;
+    else t.counts.set(op, { domain, opType: n.opType, count: 1 });
+    const constant = n.opType === 'Constant';
+    if (constant) t.constCount++;
+    const attrs = n.attributes;
+    for (let k = 0; k < attrs.length; k++) {
+      const v = attrs[k]!.value;
+      if (v.type === 'TENSOR') {
+        const ext = storageKind(v.t) === 'external';
+        if (!constant && !ext) continue;
+        const bytes = declaredBytes(v.t);
+        if (constant) t.constBytes += bytes;
+        if (ext) t.external += bytes;
+      } else if (v.type === 'TENSORS') {
+        for (const x of v.tensors) if (storageKind(x) === 'external') t.external += declaredBytes(x);
+      } else if (v.type === 'GRAPH') {
+        subgraphs.push(v.g);
+      } else if (v.type === 'GRAPHS') {
+        for (const sg of v.graphs) subgraphs.push(sg);
+      }
+    }
+  }
+}
+
 export function surveyModel(model: Model, file: string | null = null, missingData: MissingData[] = []): SurveyReport {
-  const counts = new Map<string, OpTally>(); // by op, domain-qualified outside the default domain
-  let nodeCount = 0, subgraphCount = 0, initCount = 0, initBytes = 0, constCount = 0, constBytes = 0, external = 0;
+  const t: Tally = {
+    counts: new Map(), nodeCount: 0, subgraphCount: 0, initCount: 0, initBytes: 0, constCount: 0, constBytes: 0, external: 0,
+  };
   // graph inputs that an initializer gives a default: the initializers against a set of the inputs (older exports
   // list every weight as a graph input too, and a search per input grew with their product)
   const isInput = memberOf(model.graph.inputs.map((v) => v.name));
   const initialized = new Set<string>();
-  // One walk over every tensor (a graph of 10^5 nodes holds some 10^5 tensors: each pass over them shows)
-  const walk = (g: Graph) => {
-    const main = g === model.graph;
-    for (const t of g.initializers) {
-      initCount++;
-      const bytes = declaredBytes(t);
-      initBytes += bytes;
-      if (storageKind(t) === 'external') external += bytes;
-      if (main && isInput(t.name)) initialized.add(t.name);
-    }
-    for (const n of g.nodes) {
-      nodeCount++;
-      const domain = n.domain === 'ai.onnx' ? '' : n.domain;
-      const op = domain ? `${domain}.${n.opType}` : n.opType;
-      const tally = counts.get(op);
-      if (tally) tally.count++;
-      else counts.set(op, { domain, opType: n.opType, count: 1 });
-      const constant = n.opType === 'Constant';
-      if (constant) constCount++;
-      for (const a of n.attributes) {
-        const v = a.value;
-        if (v.type === 'TENSOR') {
-          const ext = storageKind(v.t) === 'external';
-          if (!constant && !ext) continue;
-          const bytes = declaredBytes(v.t);
-          if (constant) constBytes += bytes;
-          if (ext) external += bytes;
-        } else if (v.type === 'TENSORS') {
-          for (const t of v.tensors) if (storageKind(t) === 'external') external += declaredBytes(t);
-        }
-      }
-      if (hasSubgraphs(n)) for (const sg of subgraphsOf(n)) { subgraphCount++; walk(sg); }
-    }
-  };
-  walk(model.graph);
+  // graphs in the order a depth-first walk meets them (a stack, each graph's subgraphs pushed in reverse)
+  const todo: Graph[] = [model.graph];
+  const found: Graph[] = [];
+  while (todo.length > 0) {
+    const g = todo.pop()!;
+    tallyInitializers(t, g, g === model.graph ? isInput : undefined, initialized);
+    found.length = 0;
+    tallyNodes(t, g, found);
+    t.subgraphCount += found.length;
+    for (let k = found.length - 1; k >= 0; k--) todo.push(found[k]!);
+  }
+  const counts = t.counts;
+  const { nodeCount, subgraphCount, initCount, initBytes, constCount, constBytes, external } = t;
   const gaps = evaluatorGaps(model, [...counts.values()]);
   const opCounts = [...counts].map(([op, t]) => ({ op, count: t.count }))
     .sort((a, b) => b.count - a.count || (a.op < b.op ? -1 : a.op > b.op ? 1 : 0));

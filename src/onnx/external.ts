@@ -117,7 +117,9 @@ export function loadExternalData(model: Model, label: string, redirect?: Readonl
       }
       t.storage = { kind: 'external', entries: ext.entries, bytes };
       // Loading is not a change: remember what was loaded so an untouched tensor re-emits its bytes.
-      if (t.origin) t.origin.loaded = bytes;
+      // (a new origin given, not the one asked for changed: a tensor read from a file makes one per asking)
+      const o = t.origin;
+      if (o) t.origin = { ...o, loaded: bytes };
     });
   } finally {
     for (const f of files.values()) closeSync(f.fd);

@@ -5,7 +5,7 @@ import { dirname, resolve } from 'node:path';
 import type {
   Attribute, AttributeValue, Dim, Graph, Model, Node, OpsetImport, Origin, RawField, Tensor, TensorStorage, ValueInfo,
 } from '../graph/ir.js';
-import { FileNode, FileTensor } from '../graph/ir.js';
+import { FileNode, FileSpans, FileTensor } from '../graph/ir.js';
 import { PleatError } from '../errors.js';
 import {
   NameCache, WT_LEN, WireError, readFloat, readInt, readPackedFixed32, readPackedFixed64, readPackedVarints,
@@ -45,6 +45,14 @@ let graphsRead: Graph[] | undefined;
 
 /** While a model is read, the cache its names are decoded through (see NameCache); undefined otherwise. */
 let interner: NameCache | undefined;
+
+/** While a model is read, where its tensors' and nodes' bytes are (see FileSpans); undefined otherwise. */
+let spans: FileSpans | undefined;
+
+/** The spans of the model being read, or new ones for a message decoded on its own (a .pb tensor, the writer's checks). */
+function spansFor(buf: Buf): FileSpans {
+  return spans !== undefined && spans.buf === buf ? spans : new FileSpans(buf);
+}
 
 function name(buf: Buf, f: WireField): string {
   return interner !== undefined && interner.buf === buf ? interner.name(f.vstart, f.vend) : readString(buf, f);
@@ -203,8 +211,9 @@ export function decodeTensor(buf: Buf, start: number, end: number): Tensor {
     throw new PleatError('bad-model', `tensor '${tname}' has an invalid dimension in [${dims.join(',')}]`);
   }
   // data_location and external_data entries are modelled through storage; raw_data stays offsets until used
-  return new FileTensor(tname, dims, dataType, sawRaw && location !== 1 ? undefined : storage ?? { kind: 'empty' }, buf, rawStart, rawEnd,
-    docString, extra ?? NO_EXTRA, start, end);
+  const sp = spansFor(buf);
+  return new FileTensor(tname, dims, dataType, sawRaw && location !== 1 ? undefined : storage ?? { kind: 'empty' }, sp,
+    sp.add(start, end, rawStart, rawEnd), docString, extra ?? NO_EXTRA);
 }
 
 function decodeDims(buf: Buf, start: number, end: number): Dim[] {
@@ -340,8 +349,9 @@ export function decodeNode(buf: Buf, start: number, end: number, depth: number, 
       default: (extra ??= []).push(raw(buf, f));
     }
   }
+  const sp = spansFor(buf);
   return new FileNode(nname, opType, domain, scratchIn.take(inBase), scratchOut.take(outBase),
-    attributes === undefined ? NO_ATTRIBUTES : exact(attributes), docString, extra ?? NO_EXTRA, buf, start, end);
+    attributes === undefined ? NO_ATTRIBUTES : exact(attributes), docString, extra ?? NO_EXTRA, sp, sp.add(start, end, 0, 0));
 }
 
 /** How far ReaderNames looks ahead for an initializer's name among the node inputs. */
@@ -480,6 +490,7 @@ export function decodeModelFields(buf: Buf, start: number, end: number, kids?: K
 export function decodeModel(buf: Buf, baseDir: string): Model {
   scratchIn.top = 0; scratchOut.top = 0; scratchN.length = 0; // a read that threw may have left entries
   interner = new NameCache(buf);
+  spans = new FileSpans(buf);
   externalSeen = 0;
   dimsCache = new Array<readonly number[] | undefined>(DIMS_SLOTS);
   const graphs: Graph[] = graphsRead = [];
@@ -488,6 +499,7 @@ export function decodeModel(buf: Buf, baseDir: string): Model {
     fields = decodeModelFields(buf, 0, buf.byteLength);
   } finally {
     interner = undefined;
+    spans = undefined;
     dimsCache = undefined;
     graphsRead = undefined;
   }
