@@ -4,6 +4,7 @@
 // or out of range, and an option missing its value. The table comes from the command's builder, so new
 // options and choices are checked without edits here.
 import { PleatError } from '../src/errors.js';
+import { numberFits } from '../src/verify/option-values.js';
 import { NUMBER_RULES, REPEATABLE } from './flags.js';
 import { nearest } from './suggest.js';
 
@@ -84,8 +85,7 @@ export function checkFlags(args: readonly string[], table: OptionTable): void {
     }
     if (table.number.includes(name)) {
       const rule = NUMBER_RULES[name] ?? { min: 0, what: 'a whole number (0 or more)' };
-      const v = Number(first.value);
-      if (first.value!.trim() === '' || !(rule.real ? Number.isFinite(v) : Number.isInteger(v)) || v < rule.min || v > (rule.max ?? Infinity)) {
+      if (first.value!.trim() === '' || !numberFits(rule, Number(first.value))) {
         throw new PleatError('usage', `${first.spelled} ${first.value}: give ${rule.what}`);
       }
     }

@@ -9,23 +9,19 @@ import { PleatError } from '../src/errors.js';
 export const many = (v: unknown): string[] => (v === undefined ? [] : (Array.isArray(v) ? v : [v]).map(String));
 import { EXIT_CODES_TEXT } from '../src/report/exit-codes.js';
 import { FORMATS } from '../src/report/format.js';
-import { MAX_PROBES, MAX_SEED } from '../src/verify/probe-bounds.js';
+import { CHOICE_OPTIONS, NUMBER_OPTIONS, numberFits, type NumberRule } from '../src/verify/option-values.js';
 
 /** Options that may be given more than once (each adds one value); every other value option takes one value. */
 export const REPEATABLE: ReadonlySet<string> = new Set(['input', 'shape', 'dim', 'keep', 'report']);
 
 /**
- * Number options: whole numbers from `min` to `max` unless `real` (options not listed: whole, 0 or more). A probe
- * count or seed past its bound is refused here, before any work (it was an internal error, or a seed silently
- * taken modulo 2^32).
+ * Number flags, by flag name, from the library's table (src/verify/option-values.ts): whole numbers from `min` to `max`
+ * unless `real` (flags not listed: whole, 0 or more). A probe count or seed past its bound is refused here,
+ * before any work (it was an internal error, or a seed silently taken modulo 2^32).
  */
-export const NUMBER_RULES: Record<string, { min: number; max?: number; what: string; real?: boolean }> = {
-  'quant-threshold': { min: -Infinity, what: 'a number of decibels, e.g. 20', real: true },
-  probes: { min: 1, max: MAX_PROBES, what: `a whole number of probe sets, from 1 to ${MAX_PROBES}` },
-  seed: { min: 0, max: MAX_SEED, what: `a whole number from 0 to ${MAX_SEED} (the probe generator takes 32 bits)` },
-  threads: { min: 1, what: 'a whole number of threads, 1 or more' },
-  'external-data-min': { min: 0, what: 'a whole number of bytes, 0 or more' },
-};
+export const NUMBER_RULES: Record<string, NumberRule> = Object.fromEntries(
+  Object.values(NUMBER_OPTIONS as Record<string, NumberRule>).filter((r) => r.flag !== undefined).map((r) => [r.flag!, r]),
+);
 
 export function inputFlags<T>(y: Argv<T>) {
   return y
@@ -40,7 +36,7 @@ export function inputFlags<T>(y: Argv<T>) {
 /** Check --threads (a whole number of at least 1); undefined keeps the default. */
 export function threadsFlag(v: number | undefined): number | undefined {
   if (v === undefined) return undefined;
-  if (!Number.isInteger(v) || v < 1) throw new PleatError('usage', `--threads ${v}: give ${NUMBER_RULES.threads!.what}`);
+  if (!numberFits(NUMBER_OPTIONS.threads, v)) throw new PleatError('usage', `--threads ${v}: give ${NUMBER_OPTIONS.threads.what}`);
   return v;
 }
 
@@ -63,7 +59,7 @@ export function checkFlags<T>(y: Argv<T>) {
 export function int8Flags<T>(y: Argv<T>) {
   return y
     .option('simulate-int8', { type: 'string', choices: ['weights'], describe: 'also run with Conv/Gemm/MatMul weights rounded through symmetric 8-bit quantize-dequantize, and report the output error' })
-    .option('int8-granularity', { type: 'string', choices: ['tensor', 'channel'], default: 'tensor', describe: 'one 8-bit scale per weight tensor or per output channel (with --simulate-int8)' });
+    .option('int8-granularity', { type: 'string', choices: [...CHOICE_OPTIONS.simulateInt8.values], default: 'tensor', describe: 'one 8-bit scale per weight tensor or per output channel (with --simulate-int8)' });
 }
 
 /** The granularity to simulate, or undefined without --simulate-int8. */

@@ -10,7 +10,8 @@ import { evaluate as evaluateModel, type EvaluateOptions, type EvaluateResult } 
 import { foldFile } from './jobs/fold.js';
 import './jobs/with-checks.js'; // the library folds with proofs: load them (see jobs/check-kit.ts)
 import { auditFile } from './jobs/audit.js';
-import type { AuditJobOptions, AuditReport, FoldJobOptions, FoldReport } from './jobs/types.js';
+import { SCHEMA_VERSION, type AuditJobOptions, type AuditReport, type FoldJobOptions, type FoldReport } from './jobs/types.js';
+import { checkOptionValues } from './verify/option-values.js';
 
 export { survey, surveyModel, type SurveyReport } from './jobs/survey.js';
 export type { EvaluatorGap } from './eval/coverage.js';
@@ -25,9 +26,18 @@ export { saveOutputs } from './verify/evaluate.js';
 export { loadInputFile, loadInputFiles, parseInputFlags } from './verify/inputs.js';
 export { DEFAULT_GATES } from './verify/gate.js';
 export { setThreads } from './eval/threads.js';
+// the JSON text `--json` prints: a script that saves a result with it writes the same bytes (non-finite numbers as
+// the strings "Infinity", "-Infinity", "NaN", as the schema says; JSON.stringify would write null)
+export { toJsonText } from './report/json.js';
 export type * from './jobs/types.js';
 export type { Finding, LedgerEntry, FoldLedger, ReasonCode, Direction } from './fold/types.js';
 export type { CompareOptions, CompareReport, EvaluateOptions, EvaluateResult, Model };
+
+/** What compare() returns and `pleat compare --json` prints: the comparison, with the schema version, the command and the two models. */
+export type CompareJobReport = { schemaVersion: number; command: 'compare'; a: string; b: string } & CompareReport;
+
+/** How a report names a model: the path as given, or a Model's source file ('(model in memory)' when it has none). */
+const nameOf = (m: string | Model): string => (typeof m === 'string' ? m : m.sourcePath ?? '(model in memory)');
 
 const load = (m: string | Model): Model => {
   const model = typeof m === 'string' ? readModelFile(m) : m;
@@ -49,9 +59,11 @@ export function audit(input: string, options: AuditJobOptions = {}): AuditReport
  * Run two models on the same inputs and judge their agreement. With `saveProbes`, the probes and A's outputs are
  * written to that new or empty folder (ONNX backend test-data layout, see verify/probe-files.ts).
  */
-export function compare(a: string | Model, b: string | Model, options: CompareOptions & { saveProbes?: string } = {}): CompareReport {
+export function compare(a: string | Model, b: string | Model, options: CompareOptions & { saveProbes?: string } = {}): CompareJobReport {
+  checkOptionValues(options);
+  const named = (r: CompareReport): CompareJobReport => ({ schemaVersion: SCHEMA_VERSION, command: 'compare', a: nameOf(a), b: nameOf(b), ...r });
   const { saveProbes, ...opts } = options;
-  if (saveProbes === undefined) return compareModels(load(a), load(b), opts);
+  if (saveProbes === undefined) return named(compareModels(load(a), load(b), opts));
   const ma = load(a), mb = load(b);
   // the probe folder goes through the output transaction: checked first, written beside, renamed in whole
   const tx = new OutputSet();
@@ -64,7 +76,7 @@ export function compare(a: string | Model, b: string | Model, options: CompareOp
     tx.stageFolder(saveProbes, (tmp) => { sets = saveProbeSets(tmp, ma.graph, records); });
     tx.commit();
     report.probesSaved = { dir: saveProbes, sets };
-    return report;
+    return named(report);
   } catch (e) {
     tx.abort();
     throw e;
@@ -73,5 +85,6 @@ export function compare(a: string | Model, b: string | Model, options: CompareOp
 
 /** Run one model on given or seeded inputs. */
 export function evaluate(model: string | Model, options: EvaluateOptions = {}): EvaluateResult {
+  checkOptionValues(options);
   return evaluateModel(load(model), options);
 }

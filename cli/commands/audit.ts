@@ -3,12 +3,13 @@ import { filesRead, keepList, loadConfig, nameOrigins } from '../config.js';
 import type { Job } from '../batch.js';
 import { checkDestinations, exitWhenWritten, planReports, runAndReport } from '../output.js';
 import { configFlags, EPILOGUE, many, reportFlags } from '../flags.js';
+import { CHOICE_OPTIONS } from '../../src/verify/option-values.js';
 
 
 export function builder(y: Argv) {
   return configFlags(reportFlags(y
     .positional('models', { type: 'string', array: true, demandOption: true, describe: 'the .onnx file(s)' })
-    .option('fail-on', { type: 'string', choices: ['kept'], describe: 'exit 1 when a normalization is kept (JUnit: a failure per kept one)' })
+    .option('fail-on', { type: 'string', choices: [...CHOICE_OPTIONS.failOn.values], describe: 'exit 1 when a normalization is kept (JUnit: a failure per kept one)' })
     .option('keep', { type: 'string', coerce: many, describe: 'treat this normalization node as kept by choice; repeatable' })
     .option('allow-overridable', { type: 'boolean', default: false, describe: 'judge as fold --allow-overridable would' })
     .option('clone-shared', { type: 'boolean', default: false, describe: 'judge as fold --clone-shared would' })

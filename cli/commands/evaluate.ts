@@ -4,12 +4,13 @@ import { SCHEMA_VERSION } from '../../src/jobs/types.js';
 import { filesRead, loadConfig, runSettings } from '../config.js';
 import { out } from '../errors.js';
 import { configFlags, EPILOGUE, inputFlags, threadsFlag } from '../flags.js';
+import { CHOICE_OPTIONS } from '../../src/verify/option-values.js';
 
 
 export function builder(y: Argv) {
   return configFlags(inputFlags(y
     .positional('model', { type: 'string', demandOption: true, describe: 'the .onnx file' })
-    .option('precision', { type: 'string', choices: ['float64', 'float32'], default: 'float64', describe: 'arithmetic: float64 (ground truth) or float32 (deployment)' })
+    .option('precision', { type: 'string', choices: [...CHOICE_OPTIONS.precision.values], default: 'float64', describe: 'arithmetic: float64 (ground truth) or float32 (deployment)' })
     .option('save', { type: 'string', demandOption: true, describe: 'folder for the .npy outputs and outputs.json' })
     .option('json', { type: 'boolean', default: false, describe: 'print what was saved as JSON' })))
     .epilogue(EPILOGUE);

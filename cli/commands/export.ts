@@ -1,9 +1,9 @@
 import type { Argv } from 'yargs';
-import { SCHEMA_VERSION } from '../../src/jobs/types.js';
 import { useColour } from '../../src/report/format.js';
 import { keepList, loadConfig, nameOrigins, runSettings } from '../config.js';
 import { out } from '../errors.js';
 import { configFlags, EPILOGUE, inputFlags, many, threadsFlag } from '../flags.js';
+import { CHOICE_OPTIONS } from '../../src/verify/option-values.js';
 
 
 export function builder(y: Argv) {
@@ -12,7 +12,7 @@ export function builder(y: Argv) {
     .option('bundle', { type: 'string', demandOption: true, describe: 'folder for the bundle files' })
     .option('bundle-format', { type: 'string', choices: ['safetensors', 'c'], default: 'safetensors', describe: 'weights.safetensors, or weights.h + weights.c; both with manifest.json' })
     .option('keep', { type: 'string', coerce: many, describe: 'leave this normalization node in place; repeatable' })
-    .option('store', { type: 'string', choices: ['float16'], describe: 'store the folded weights in half precision in the bundle (the whole-model check uses the float16 gate)' })
+    .option('store', { type: 'string', choices: [...CHOICE_OPTIONS.store.values], describe: 'store the folded weights in half precision in the bundle (the whole-model check uses the float16 gate)' })
     .option('gate', { type: 'string', describe: 'gate for the whole-model check' })
     .option('probes', { type: 'number', describe: 'number of seeded probes for the whole-model check (default 2)' })
     .option('strict', { type: 'boolean', describe: 'a skipped check fails: exit 1, and no bundle is written (also "strict": true in the config file)' })
@@ -39,8 +39,6 @@ export async function handler(argv: Flags): Promise<void> {
     inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, probes: run.probes, gate: run.gate, maxProbeMemory: run.maxProbeMemory, keep: keepList(config, argv.keep),
     store: argv.store ?? config.store, strict: run.strict, origins: nameOrigins(config, file, argv),
   });
-  await out(argv.json
-    ? toJsonText({ schemaVersion: SCHEMA_VERSION, command: 'export', model: argv.model, ...r })
-    : exportText(r, useColour(process.stdout)));
+  await out(argv.json ? toJsonText(r) : exportText(r, useColour(process.stdout)));
   process.exitCode = r.bundle === null ? EXIT.failed : EXIT.ok;
 }

@@ -8,6 +8,7 @@ import { filesRead, keepList, loadConfig, nameOrigins, runSettings } from '../co
 import type { Job } from '../batch.js';
 import { checkDestinations, exitWhenWritten, planReports, runAndReport } from '../output.js';
 import { checkFlags, configFlags, EPILOGUE, inputFlags, int8Flags, int8Setting, many, reportFlags, threadsFlag } from '../flags.js';
+import { CHOICE_OPTIONS } from '../../src/verify/option-values.js';
 
 
 export function builder(y: Argv) {
@@ -18,7 +19,7 @@ export function builder(y: Argv) {
     .option('keep', { type: 'string', coerce: many, describe: 'leave this normalization node in place; repeatable' })
     .option('allow-overridable', { type: 'boolean', default: false, describe: 'also fold weights and norm parameters that are graph inputs with defaults (callers could replace them)' })
     .option('clone-shared', { type: 'boolean', default: false, describe: 'fold a norm into a layer whose output has other readers by giving the norm its own copy of the layer (costs weight bytes, shown in the ledger)' })
-    .option('store', { type: 'string', choices: ['float16'], describe: 'store folded weights in half precision' })
+    .option('store', { type: 'string', choices: [...CHOICE_OPTIONS.store.values], describe: 'store folded weights in half precision' })
     .option('external-data-min', { type: 'number', describe: 'store tensors of at least this many bytes in a side file OUT.data (ONNX external data)' })
     .option('gate', { type: 'string', describe: 'gate for the whole-model check, e.g. "maxAbs < 1e-4 and cosine > 0.99999"' })
     .option('probes', { type: 'number', describe: 'number of seeded probes for the whole-model check (default 2)' })

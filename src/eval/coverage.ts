@@ -13,8 +13,32 @@ export interface EvaluatorGap {
   opset: number;
   /** Nodes of this operator in the model, subgraphs included. */
   count: number;
-  /** `no-kernel`: the evaluator has no kernel for it at that opset; `random`: its output is a random draw. */
-  reason: 'no-kernel' | 'random';
+  /**
+   * `no-kernel`: the evaluator has no kernel for it at that opset; `random`: its output is a random draw;
+   * `value-form`: Constant nodes whose value form the Constant kernel does not take (sparse_value, strings).
+   */
+  reason: 'no-kernel' | 'random' | 'value-form';
+}
+
+/** The one value attribute a Constant may carry for the Constant kernel (kernels/constant.ts) to run it, with its type. */
+const CONSTANT_FORMS: ReadonlyMap<string, string> = new Map([
+  ['value', 'TENSOR'], ['value_float', 'FLOAT'], ['value_floats', 'FLOATS'], ['value_int', 'INT'], ['value_ints', 'INTS'],
+]);
+
+/** Constant nodes (subgraphs included) the Constant kernel would refuse by their attribute (a sparse_value, a string). */
+function constantsInOtherForms(model: Model): number {
+  let count = 0;
+  const walk = (g: Graph) => {
+    for (const n of g.nodes) {
+      if (n.opType === 'Constant' && (n.domain === '' || n.domain === 'ai.onnx')) {
+        const a = n.attributes.length === 1 ? n.attributes[0]! : undefined;
+        if (!a || CONSTANT_FORMS.get(a.name) !== a.value.type) count++;
+      }
+      for (const sg of subgraphsOf(n)) walk(sg);
+    }
+  };
+  walk(model.graph);
+  return count;
 }
 
 /** How many nodes of one operator a model holds, subgraphs included (domain '' for the default domain). */
@@ -48,6 +72,10 @@ export function evaluatorGaps(model: Model, ops: readonly OpTally[] = opTally(mo
     const random = isRandomOp(domain, opType); // outputs are random draws: two runs differ
     if (random || !hasKernel(domain, opType, opset)) {
       gaps.push({ op: domain ? `${domain}.${opType}` : opType, opset, count, reason: random ? 'random' : 'no-kernel' });
+    } else if (domain === '' && opType === 'Constant') {
+      // a kernel for the op is not a kernel for every form of its value (walked only when the model has Constants)
+      const other = constantsInOtherForms(model);
+      if (other) gaps.push({ op: opType, opset, count: other, reason: 'value-form' });
     }
   }
   return gaps.sort((a, b) => (a.op < b.op ? -1 : a.op > b.op ? 1 : 0));

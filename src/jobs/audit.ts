@@ -7,8 +7,10 @@ import { checkOpset } from '../graph/opsets.js';
 import { sketches } from '../fold/sketch.js';
 import { fileSha256 } from './sha256.js';
 import { SCHEMA_VERSION, type AuditJobOptions, type AuditReport } from './types.js';
+import { checkOptionValues } from '../verify/option-values.js';
 
 export function auditLoaded(model: Model, label: string, opts: AuditJobOptions = {}): AuditReport {
+  checkOptionValues(opts);
   checkOpset(model, label);
   checkJobNames(model, label, opts);
   const findings = analyze(model, { keep: opts.keep, keepOrigins: opts.origins?.keep, allowOverridable: opts.allowOverridable, cloneShared: opts.cloneShared });
@@ -32,6 +34,7 @@ export function auditLoaded(model: Model, label: string, opts: AuditJobOptions =
 }
 
 export function auditFile(input: string, opts: AuditJobOptions = {}): AuditReport {
+  checkOptionValues(opts);
   const model = readModelFile(input);
   const report = auditLoaded(model, input, opts);
   if (opts.pageDetail) {

@@ -1,40 +1,61 @@
 // The export job: fold (with every proof and the whole-model check), then write the folded weights as a
 // bundle for device runtimes. Nothing is written when a gate fails.
 import { readModelFile } from '../onnx/read.js';
+import { rmdirSync } from 'node:fs';
 import { join } from 'node:path';
-import { asGiven, planBundle, writeAll, type BundleFormat, type BundleResult } from '../ship/bundle.js';
+import { asGiven, BUNDLE_FILES, checkBundleFolder, createBundleFolder, planBundle, writeAll, type BundleFormat, type BundleResult } from '../ship/bundle.js';
 import { sideFilePaths } from '../onnx/external.js';
 import { OutputSet } from './outputs.js';
 import { provenanceOf, setProvenance } from './provenance.js';
 import { fileSha256 } from './sha256.js';
-import { foldLoaded } from './fold.js';
-import type { FoldJobOptions, FoldReport } from './types.js';
+import { foldLoaded, withThreads } from './fold.js';
+import { checkOptionValues } from '../verify/option-values.js';
+import { SCHEMA_VERSION, type FoldJobOptions, type FoldReport } from './types.js';
 
+/** What `pleat export --json` prints, and what exportFile returns. */
 export interface ExportReport {
+  schemaVersion: number;
+  command: 'export';
+  /** The input model, as given. */
+  model: string;
   fold: FoldReport;
   /** The bundle written, or null when the fold's check failed. */
   bundle: BundleResult | null;
 }
 
 export function exportFile(input: string, dir: string, format: BundleFormat = 'safetensors', opts: FoldJobOptions = {}): ExportReport {
-  const model = readModelFile(input);
-  const original = opts.noProofs ? undefined : readModelFile(input);
-  const fold = foldLoaded(model, original, input, opts);
-  if (fold.failed) return { fold, bundle: null };
-  // what the folded .onnx would record (its source, the check's status, gate and seed) goes into the bundle too:
-  // a bundle from a skipped check looked the same as one from a passed check
-  setProvenance(model, provenanceOf(fileSha256(input), opts.gate, opts, fold.check?.status ?? 'not-run'));
-  // Every bundle file goes through one transaction: staged, then all renamed in (see outputs.ts).
-  const planned = planBundle(model, dir, format);
-  const tx = new OutputSet();
-  try {
-    [model.sourcePath!, ...sideFilePaths(model)].forEach((p, i) => tx.protect(p, i === 0 ? 'input model' : "input model's side file"));
-    const targets = planned.files.map(([name]) => tx.reserve(join(planned.result.dir, name), '--bundle'));
-    planned.files.forEach(([, content], i) => tx.stage(targets[i]!, (tmp) => writeAll(tmp, content)));
-    tx.commit();
-  } catch (e) {
-    tx.abort();
-    throw e;
-  }
-  return { fold, bundle: asGiven(planned.result, dir) };
+  checkOptionValues(opts);
+  // the bundle folder is checked before any work, like fold's -o: a bad destination found after a long fold and
+  // check wasted them (and was never reported at all when the check failed)
+  const folder = checkBundleFolder(dir, format);
+  return withThreads(opts.threads, () => {
+    const tx = new OutputSet();
+    let created = false;
+    try {
+      const model = readModelFile(input);
+      [model.sourcePath!, ...sideFilePaths(model)].forEach((p, i) => tx.protect(p, i === 0 ? 'input model' : "input model's side file"));
+      // (a folder not there yet holds nothing to check; it is created only when the bundle is written)
+      if (folder.exists) for (const name of BUNDLE_FILES[format]) tx.reserve(join(folder.full, name), '--bundle');
+      const original = opts.noProofs ? undefined : readModelFile(input);
+      const fold = foldLoaded(model, original, input, opts);
+      if (fold.failed) {
+        tx.abort();
+        return { schemaVersion: SCHEMA_VERSION, command: 'export', model: input, fold, bundle: null };
+      }
+      // what the folded .onnx would record (its source, the check's status, gate and seed) goes into the bundle too:
+      // a bundle from a skipped check looked the same as one from a passed check
+      setProvenance(model, provenanceOf(fileSha256(input), opts.gate, opts, fold.check?.status ?? 'not-run'));
+      const planned = planBundle(model, folder.full, format);
+      if (!folder.exists) { createBundleFolder(folder.full); created = true; }
+      // Every bundle file goes through one transaction: staged, then all renamed in (see outputs.ts).
+      const targets = planned.files.map(([name]) => tx.reserve(join(folder.full, name), '--bundle'));
+      planned.files.forEach(([, content], i) => tx.stage(targets[i]!, (tmp) => writeAll(tmp, content)));
+      tx.commit();
+      return { schemaVersion: SCHEMA_VERSION, command: 'export', model: input, fold, bundle: asGiven(planned.result, dir) };
+    } catch (e) {
+      tx.abort();
+      if (created) try { rmdirSync(folder.full); } catch { /* not empty: leave it */ } // (only the empty folder this run made)
+      throw e;
+    }
+  });
 }

@@ -15,6 +15,7 @@ import { asMap, dimSymbols, resolveInputs } from '../verify/inputs.js';
 import { checkProbeEstimate } from '../verify/probe-budget.js';
 import { PleatError } from '../errors.js';
 import { setThreads, threadCount } from '../eval/threads.js';
+import { checkOptionValues } from '../verify/option-values.js';
 import { QUANT_THRESHOLD_DB, quantReadiness, roundedWeightsModel, type QuantRow } from '../fold/quant.js';
 import { equalizeModel } from '../fold/equalize.js';
 import type { Int8Granularity } from '../fold/int8.js';
@@ -200,6 +201,7 @@ export function int8Simulation(original: Model, folded: Model, granularity: Int8
 export function foldLoaded(model: Model, original: Model | undefined, label: string, opts: FoldJobOptions, lateRangeCheck = false, ship?: (m: Model) => Model,
   onProbe?: (p: ProbeRecord) => void, files?: JobFiles): FoldReport {
   if (opts.strict && opts.noProofs) throw new PleatError('usage', '--strict needs the whole-model check, which --unproven leaves out: give one of them');
+  checkOptionValues(opts);
   checkOpset(model, label);
   checkJobNames(model, label, opts);
   // the proofs and the check run within the probe memory limit (src/eval/budget.ts)
@@ -324,18 +326,35 @@ export interface StagedFold {
   inputs: string[];
 }
 
+/**
+ * Run `fn` with the evaluator's thread count set to `threads` (when given), then put back the count it had: a
+ * library call's `threads` applies to that call only (it stayed set for every later call in the process).
+ */
+export function withThreads<T>(threads: number | undefined, fn: () => T): T {
+  if (threads === undefined) return fn();
+  const before = threadCount();
+  setThreads(threads);
+  try {
+    return fn();
+  } finally {
+    setThreads(before);
+  }
+}
+
 /** Read INPUT, fold, prove, and write OUTPUT unless a gate fails. The input file is never modified. */
 export function foldFile(input: string, output: string, opts: FoldJobOptions = {}): FoldReport {
-  if (opts.threads !== undefined) setThreads(opts.threads);
-  const tx = new OutputSet();
-  try {
-    const r = foldStagedIn(tx, input, output, opts);
-    tx.commit();
-    return r.report;
-  } catch (e) {
-    tx.abort();
-    throw e;
-  }
+  checkOptionValues(opts);
+  return withThreads(opts.threads, () => {
+    const tx = new OutputSet();
+    try {
+      const r = foldStagedIn(tx, input, output, opts);
+      tx.commit();
+      return r.report;
+    } catch (e) {
+      tx.abort();
+      throw e;
+    }
+  });
 }
 
 /**
@@ -343,15 +362,17 @@ export function foldFile(input: string, output: string, opts: FoldJobOptions = {
  * anything in: the caller commits them together with its reports (see outputs.ts). Used by the CLI's workers.
  */
 export function foldStaged(input: string, output: string, opts: FoldJobOptions = {}): StagedFold {
-  if (opts.threads !== undefined) setThreads(opts.threads);
-  const tx = new OutputSet();
-  try {
-    const r = foldStagedIn(tx, input, output, opts);
-    return { ...r, staged: tx.handOver() };
-  } catch (e) {
-    tx.abort();
-    throw e;
-  }
+  checkOptionValues(opts);
+  return withThreads(opts.threads, () => {
+    const tx = new OutputSet();
+    try {
+      const r = foldStagedIn(tx, input, output, opts);
+      return { ...r, staged: tx.handOver() };
+    } catch (e) {
+      tx.abort();
+      throw e;
+    }
+  });
 }
 
 function foldStagedIn(tx: OutputSet, input: string, output: string, opts: FoldJobOptions): Omit<StagedFold, 'staged'> {

@@ -25,7 +25,7 @@ export function surveyText(r: SurveyReport): string {
   lines.push(`  ${pad('norms')}${r.normalizations.length ? r.normalizations.map((n) => `${n.op} ${n.count}`).join(', ') : 'no normalization nodes'}`);
   if (r.evaluator.runsAll) lines.push(`  ${pad('check')}the evaluator can run every operator (the whole-model check needs no more than input shapes)`);
   else {
-    const why = { 'no-kernel': 'no kernel', random: 'random draws' } as const;
+    const why = { 'no-kernel': 'no kernel', random: 'random draws', 'value-form': 'a value form the evaluator does not take (sparse_value, strings)' } as const;
     lines.push(`  ${pad('check')}the evaluator cannot run these operators, so the whole-model check will be skipped:`);
     for (const g of r.evaluator.cannotRun) lines.push(`  ${pad('')}${g.op} (opset ${g.opset}) x${g.count}: ${why[g.reason]}`);
   }

@@ -4,9 +4,9 @@
 // renamed into place together, so a failure leaves no partial bundle.
 import { ensureLoaded } from '../onnx/sparse-read.js';
 import { entryAt, specialKind } from '../onnx/paths.js';
-import { closeSync, mkdirSync, openSync, renameSync, rmSync, statSync, writeSync } from 'node:fs';
-import { basename, join, resolve, sep } from 'node:path';
-import { DataType, elementCount, type Attribute, type DataTypeCode, type Graph, type Model, type Tensor, type ValueInfo } from '../graph/ir.js';
+import { accessSync, closeSync, constants, lstatSync, mkdirSync, openSync, renameSync, rmSync, statSync, writeSync } from 'node:fs';
+import { basename, dirname, join, resolve, sep } from 'node:path';
+import { DataType, elementCount, type Attribute, type DataTypeCode, type Graph, type Model, type Node, type Tensor, type ValueInfo } from '../graph/ir.js';
 import { PleatError } from '../errors.js';
 import { bfloatBitsToNumber, bytesPerElement, dataTypeName, halfBitsToNumber } from '../graph/tensor.js';
 import { layoutSafetensors, safetensorsDtype } from './safetensors.js';
@@ -20,8 +20,11 @@ export const BUNDLE_FORMATS: readonly BundleFormat[] = ['safetensors', 'c'];
 
 export interface SkippedTensor {
   name: string;
-  /** `dtype-unsupported` (no safetensors/C form, e.g. strings) or `in-subgraph` (weights of an If/Loop/Scan body). */
-  reason: 'dtype-unsupported' | 'in-subgraph';
+  /**
+   * `dtype-unsupported` (no safetensors/C form, e.g. strings), `in-subgraph` (an initializer or Constant of an
+   * If/Loop/Scan body) or `sparse-value` (a Constant holding a sparse tensor: bundles hold dense tensors only).
+   */
+  reason: 'dtype-unsupported' | 'in-subgraph' | 'sparse-value';
   note: string;
 }
 
@@ -105,12 +108,21 @@ function toBundleTensor(t: Tensor, name: string): BundleTensor {
   };
 }
 
-function subgraphInitializers(g: Graph, where: string, skipped: SkippedTensor[]): void {
+const isConstantNode = (n: Node) => n.opType === 'Constant' && (n.domain === '' || n.domain === 'ai.onnx');
+
+/**
+ * Every constant of a subgraph (initializers, and Constant nodes in any value form), nested bodies included:
+ * bundles hold the main graph's weights only, so each is listed as skipped rather than left out unsaid.
+ */
+function subgraphConstants(g: Graph, where: string, skipped: SkippedTensor[]): void {
   for (const t of g.initializers) skipped.push({ name: t.name, reason: 'in-subgraph', note: `initializer of a subgraph (${where}); bundles hold the main graph's weights` });
   for (const n of g.nodes) {
+    if (isConstantNode(n) && n.outputs[0]) {
+      skipped.push({ name: n.outputs[0], reason: 'in-subgraph', note: `Constant node '${n.name}' of a subgraph (${where}); bundles hold the main graph's weights` });
+    }
     for (const a of n.attributes) {
       const graphs = a.value.type === 'GRAPH' ? [a.value.g] : a.value.type === 'GRAPHS' ? a.value.graphs : [];
-      for (const sg of graphs) subgraphInitializers(sg, `node '${n.name}' attribute '${a.name}'`, skipped);
+      for (const sg of graphs) subgraphConstants(sg, `node '${n.name}' attribute '${a.name}'`, skipped);
     }
   }
 }
@@ -142,12 +154,16 @@ export function collectBundleTensors(model: Model): Collected {
   };
   for (const t of g.initializers) add(t, t.name);
   g.nodes.forEach((n, i) => {
-    const value = n.opType === 'Constant' && (n.domain === '' || n.domain === 'ai.onnx')
-      ? n.attributes.find((a) => a.name === 'value' && a.value.type === 'TENSOR') : undefined;
+    const constant = isConstantNode(n);
+    const value = constant ? n.attributes.find((a) => a.name === 'value' && a.value.type === 'TENSOR') : undefined;
     if (value && value.value.type === 'TENSOR' && n.outputs[0] && add(value.value.t, n.outputs[0])) constants.set(i, n.outputs[0]);
+    // (the manifest shows only the attribute's type for a SparseTensorProto: its values are in no file)
+    if (constant && n.outputs[0] && n.attributes.some((a) => a.name === 'sparse_value')) {
+      skipped.push({ name: n.outputs[0], reason: 'sparse-value', note: `Constant node '${n.name}' holds a sparse tensor (sparse_value); bundles hold dense tensors only` });
+    }
     for (const a of n.attributes) {
       const graphs = a.value.type === 'GRAPH' ? [a.value.g] : a.value.type === 'GRAPHS' ? a.value.graphs : [];
-      for (const sg of graphs) subgraphInitializers(sg, `node '${n.name}' attribute '${a.name}'`, skipped);
+      for (const sg of graphs) subgraphConstants(sg, `node '${n.name}' attribute '${a.name}'`, skipped);
     }
   });
   return { tensors, skipped, constants };
@@ -255,7 +271,8 @@ export function stableJson(v: Json, indent = ''): string {
  *   tensors: {name: {dtype, shape, count, bytes, file, overridable?, + data_offsets and safetensors_dtype, or
  *            symbol and c_type}}
  *   layers: [{index, name, op, domain?, attributes (plain JSON), inputs, outputs, tensors (bundle tensors it reads)}]
- *   skipped: [{name, reason, note}] for tensors not in the bundle
+ *   skipped: [{name, reason, note}] for every constant not in the bundle (reasons: dtype-unsupported, in-subgraph,
+ *            sparse-value)
  *   provenance: the model's pleat.* metadata_props (version, source SHA-256, check status, gate and seed) when
  *               it has them, so a bundle says whether the fold behind it was checked, as the folded .onnx does
  */
@@ -376,17 +393,57 @@ function writeFilesAtomically(dir: string, files: Array<[string, Content]>, sour
   return targets;
 }
 
-export function prepareDir(dir: string): string {
-  const full = resolve(dir);
-  try {
-    const st = statSync(full, { throwIfNoEntry: false });
-    if (st && !st.isDirectory()) throw new PleatError('bad-input', `${dir}: exists and is not a folder; give --bundle a folder path`);
-    if (!st) mkdirSync(full, { recursive: true });
-  } catch (e) {
-    if (e instanceof PleatError) throw e;
-    throw new PleatError('bad-input', `${dir}: cannot create the bundle folder (${(e as Error).message.split('\n')[0]})`);
+/** The files each bundle format writes, manifest last. */
+export const BUNDLE_FILES: Readonly<Record<BundleFormat, readonly string[]>> = {
+  safetensors: ['weights.safetensors', 'manifest.json'],
+  c: ['weights.h', 'weights.c', 'manifest.json'],
+};
+
+export function checkBundleFormat(format: BundleFormat): void {
+  if (!BUNDLE_FORMATS.includes(format)) {
+    throw new PleatError('bad-input', `--bundle-format '${String(format)}' is not known; choose ${BUNDLE_FORMATS.join(' or ')}`);
   }
-  return full;
+}
+
+/**
+ * Check a bundle folder before any work: it is an existing folder, or a new name in an existing writable folder
+ * (pleat creates the bundle folder itself, never the folders above it, as fold never creates -o's folder); and it
+ * holds no file of the other format's bundle, which the new bundle would not replace and its manifest would not
+ * list (another model's weights left beside it). Nothing is removed: the user empties the folder. The files
+ * themselves are checked where they are claimed (OutputSet.reserve, or writeFilesAtomically).
+ */
+export function checkBundleFolder(dir: string, format: BundleFormat): { full: string; exists: boolean } {
+  checkBundleFormat(format);
+  const full = resolve(dir);
+  const label = `--bundle ${dir}`;
+  const st = entryAt(full, label);
+  if (st && !st.isDirectory()) throw new PleatError('bad-input', `${label}: exists and is not a folder; give --bundle a folder path`);
+  if (!st) {
+    const parent = dirname(full);
+    const up = entryAt(parent, label);
+    if (!up) throw new PleatError('bad-input', `${label}: the folder ${parent} does not exist (pleat creates the bundle folder, not the folders above it)`);
+    if (!up.isDirectory()) throw new PleatError('bad-input', `${label}: ${parent} is not a folder`);
+    try { accessSync(parent, constants.W_OK); } catch {
+      throw new PleatError('bad-input', `${label}: cannot create the bundle folder in ${parent} (not writable)`);
+    }
+    return { full, exists: false };
+  }
+  const own = new Set(BUNDLE_FILES[format]);
+  for (const name of new Set(Object.values(BUNDLE_FILES).flat())) {
+    if (own.has(name) || !lstatSync(join(full, name), { throwIfNoEntry: false })) continue;
+    throw new PleatError('bad-input', `${label}: holds ${name}, which a ${format} bundle does not write, so it would stay beside a manifest that does not list it; use an empty folder or remove ${name}`);
+  }
+  return { full, exists: true };
+}
+
+/** Create the bundle folder checked by checkBundleFolder (its parent exists). */
+export function createBundleFolder(full: string): void {
+  try {
+    mkdirSync(full);
+  } catch (e) {
+    if ((e as NodeJS.ErrnoException).code === 'EEXIST' && statSync(full).isDirectory()) return;
+    throw new PleatError('bad-input', `${full}: cannot create the bundle folder (${(e as Error).message.split('\n')[0]})`);
+  }
 }
 
 /**
@@ -394,7 +451,9 @@ export function prepareDir(dir: string): string {
  * `weights.h` + `weights.c` + `manifest.json` (format 'c'). Same model and format, same bytes.
  */
 export function exportBundle(model: Model, dir: string, format: BundleFormat): BundleResult {
-  const planned = planBundle(model, dir, format);
+  const folder = checkBundleFolder(dir, format);
+  const planned = planBundle(model, folder.full, format);
+  if (!folder.exists) createBundleFolder(folder.full);
   writeFilesAtomically(planned.result.dir, planned.files, model.sourcePath);
   return asGiven(planned.result, dir);
 }
@@ -405,13 +464,10 @@ export function asGiven(result: BundleResult, dir: string): BundleResult {
   return { ...result, dir, files: result.files.map((f) => under(basename(f))) };
 }
 
-/** Decide a bundle's files and their contents (nothing is written; the folder is created if missing). */
-export function planBundle(model: Model, dir: string, format: BundleFormat): { files: Array<[string, Content]>; result: BundleResult } {
-  if (!BUNDLE_FORMATS.includes(format)) {
-    throw new PleatError('bad-input', `--bundle-format '${String(format)}' is not known; choose ${BUNDLE_FORMATS.join(' or ')}`);
-  }
+/** Decide a bundle's files and their contents for the folder `full` (an absolute path); nothing is written. */
+export function planBundle(model: Model, full: string, format: BundleFormat): { files: Array<[string, Content]>; result: BundleResult } {
+  checkBundleFormat(format);
   const collected = collectBundleTensors(model);
-  const full = prepareDir(dir);
   const perTensor = new Map<string, { [k: string]: Json }>();
   const about = `graph '${model.graph.name}'${model.sourcePath ? ` from ${basename(model.sourcePath)}` : ''}`;
   let files: Array<[string, Content]>;

@@ -42,12 +42,16 @@ export function cIdentifiers(names: string[]): Map<string, string> {
   return out;
 }
 
-/** Text safe inside a C block comment: printable ASCII only, no comment end, no trigraph. */
-function commentText(s: string, quote = true): string {
+/**
+ * Text safe inside a C block comment: printable ASCII only, no comment end, no comment start (gcc -Wcomment), no
+ * two question marks in a row (a trigraph). Each step only inserts a backslash, which forms none of these.
+ */
+export function commentText(s: string, quote = true): string {
   return (quote ? JSON.stringify(s) : s.replace(/[\x00-\x1f]/g, ' '))
     .replace(/[^\x20-\x7e]/g, (c) => `\\u${c.charCodeAt(0).toString(16).padStart(4, '0')}`)
     .replace(/\*\//g, '*\\/')
-    .replace(/\?\?/g, '?\\?');
+    .replace(/\/\*/g, '/\\*')
+    .replace(/\?(?=\?)/g, '?\\');
 }
 
 // ---- exact literals -------------------------------------------------------------------------------
@@ -90,53 +94,53 @@ function hasNonFinite(t: BundleTensor): boolean {
   return false;
 }
 
-function literals(t: BundleTensor): string[] {
+/** C literals of elements [from, to) of the tensor (a slice at a time: a whole large tensor as strings took ~50 bytes per element). */
+function literals(t: BundleTensor, from: number, to: number): string[] {
   const b = t.bytes;
   const dv = new DataView(b.buffer, b.byteOffset, b.byteLength);
-  const n = t.count;
-  const values = new Array<string>(n);
+  const values = new Array<string>(to - from);
   switch (t.dataType) {
     case DataType.FLOAT:
-      for (let i = 0; i < n; i++) {
+      for (let i = from; i < to; i++) {
         const bits = dv.getUint32(i * 4, true);
-        values[i] = hexFloat32(bits);
+        values[i - from] = hexFloat32(bits);
       }
       break;
     case DataType.DOUBLE:
-      for (let i = 0; i < n; i++) {
+      for (let i = from; i < to; i++) {
         const hi = dv.getUint32(i * 8 + 4, true);
-        values[i] = hexFloat64(hi, dv.getUint32(i * 8, true));
+        values[i - from] = hexFloat64(hi, dv.getUint32(i * 8, true));
       }
       break;
     case DataType.FLOAT16: case DataType.BFLOAT16: case DataType.UINT16:
-      for (let i = 0; i < n; i++) values[i] = `0x${dv.getUint16(i * 2, true).toString(16).padStart(4, '0')}`;
+      for (let i = from; i < to; i++) values[i - from] = `0x${dv.getUint16(i * 2, true).toString(16).padStart(4, '0')}`;
       break;
     case DataType.UINT8: case DataType.BOOL:
-      for (let i = 0; i < n; i++) values[i] = String(dv.getUint8(i));
+      for (let i = from; i < to; i++) values[i - from] = String(dv.getUint8(i));
       break;
-    case DataType.INT8: for (let i = 0; i < n; i++) values[i] = String(dv.getInt8(i)); break;
-    case DataType.INT16: for (let i = 0; i < n; i++) values[i] = String(dv.getInt16(i * 2, true)); break;
+    case DataType.INT8: for (let i = from; i < to; i++) values[i - from] = String(dv.getInt8(i)); break;
+    case DataType.INT16: for (let i = from; i < to; i++) values[i - from] = String(dv.getInt16(i * 2, true)); break;
     case DataType.INT32:
-      for (let i = 0; i < n; i++) {
+      for (let i = from; i < to; i++) {
         const v = dv.getInt32(i * 4, true);
-        values[i] = v === I32_MIN ? '(-2147483647 - 1)' : String(v); // 2147483648 alone is not an int
+        values[i - from] = v === I32_MIN ? '(-2147483647 - 1)' : String(v); // 2147483648 alone is not an int
       }
       break;
     case DataType.UINT32:
-      for (let i = 0; i < n; i++) values[i] = `${dv.getUint32(i * 4, true)}u`;
+      for (let i = from; i < to; i++) values[i - from] = `${dv.getUint32(i * 4, true)}u`;
       break;
     case DataType.INT64:
-      for (let i = 0; i < n; i++) {
+      for (let i = from; i < to; i++) {
         const v = dv.getBigInt64(i * 8, true);
-        if (v >= -2147483647n && v <= 2147483647n) values[i] = String(v);
-        else if (v === -(2n ** 63n)) values[i] = '(-INT64_C(9223372036854775807) - 1)';
-        else values[i] = v < 0n ? `(-INT64_C(${-v}))` : `INT64_C(${v})`;
+        if (v >= -2147483647n && v <= 2147483647n) values[i - from] = String(v);
+        else if (v === -(2n ** 63n)) values[i - from] = '(-INT64_C(9223372036854775807) - 1)';
+        else values[i - from] = v < 0n ? `(-INT64_C(${-v}))` : `INT64_C(${v})`;
       }
       break;
     case DataType.UINT64:
-      for (let i = 0; i < n; i++) {
+      for (let i = from; i < to; i++) {
         const v = dv.getBigUint64(i * 8, true);
-        values[i] = v <= 2147483647n ? `${v}u` : `UINT64_C(${v})`;
+        values[i - from] = v <= 2147483647n ? `${v}u` : `UINT64_C(${v})`;
       }
       break;
     default:
@@ -147,13 +151,15 @@ function literals(t: BundleTensor): string[] {
 
 export interface CSource {
   header: string;
-  /** The .c file, one piece per tensor, so a large model never sits in memory as a single string. */
+  /** The .c file in pieces (at most PER_PIECE elements each), so a large tensor never sits in memory as one string. */
   source: Iterable<string>;
   /** Tensor name -> C identifier. */
   symbols: Map<string, string>;
 }
 
 const PER_LINE = 8;
+/** Elements rendered at a time (a whole number of lines). */
+const PER_PIECE = PER_LINE * 8192;
 
 /** Render the header and source for the tensors (already filtered to types with a C element type). */
 export function renderCSource(tensors: BundleTensor[], about: string): CSource {
@@ -215,16 +221,16 @@ export function renderCSource(tensors: BundleTensor[], about: string): CSource {
     );
     yield c.join('\n');
     for (const t of sorted) {
-      const values = literals(t);
-      if (values.length === 0) values.push('0');
-      const lines = [
-        '',
-        `/* ${commentText(t.name)} */`,
-        `PLEAT_ALIGN16 const ${cElementType(t.dataType)!} ${symbols.get(t.name)!}[${Math.max(t.count, 1)}] = {`,
-      ];
-      for (let i = 0; i < values.length; i += PER_LINE) lines.push(`  ${values.slice(i, i + PER_LINE).join(', ')},`);
-      lines.push('};', '');
-      yield lines.join('\n');
+      yield `\n/* ${commentText(t.name)} */\nPLEAT_ALIGN16 const ${cElementType(t.dataType)!} ${symbols.get(t.name)!}[${Math.max(t.count, 1)}] = {\n`;
+      if (t.count === 0) yield '  0,\n';
+      // in slices of whole lines, so memory stays near the tensor's own size whatever its length
+      for (let from = 0; from < t.count; from += PER_PIECE) {
+        const values = literals(t, from, Math.min(t.count, from + PER_PIECE));
+        const lines: string[] = [];
+        for (let i = 0; i < values.length; i += PER_LINE) lines.push(`  ${values.slice(i, i + PER_LINE).join(', ')},\n`);
+        yield lines.join('');
+      }
+      yield '};\n';
     }
   }
   return { header: h.join('\n'), source: source(), symbols };

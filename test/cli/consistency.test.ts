@@ -73,6 +73,7 @@ describe('consistency of reports and messages', () => {
     const ev = pleat(['evaluate', EDGE, '--save', './out/../ev/'], { cwd });
     expect(ev.code).toBe(0);
     expect(ev.stdout).toContain('-> ./out/../ev/edge_mask.npy');
+    mkdirSync(join(cwd, 'b')); // (export creates the bundle folder, not the folders above it)
     const ex = pleat(['export', EDGE, '--bundle', './b/./x'], { cwd });
     expect(ex.code).toBe(0);
     expect(ex.stdout).toContain('bundle safetensors -> ./b/./x:');

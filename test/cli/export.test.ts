@@ -56,6 +56,20 @@ describe('pleat export', { timeout: 180_000 }, () => {
     expect(validate(j), JSON.stringify(validate.errors)).toBe(true);
   });
 
+  it("a folder holding the other format's bundle file, or a missing parent folder: exit 2, one line, before any work", () => {
+    const out = join(dir, 'mixed');
+    expect(pleat(['export', model, '--bundle', out]).code).toBe(0);
+    const r = pleat(['export', model, '--bundle', out, '--bundle-format', 'c']);
+    expect(r.code).toBe(2);
+    expect(r.stderr.trim().split('\n')).toHaveLength(1);
+    expect(r.stderr).toMatch(/^pleat: --bundle .*mixed: holds weights\.safetensors, .*use an empty folder or remove weights\.safetensors/);
+    expect(readdirSync(out).sort()).toEqual(['manifest.json', 'weights.safetensors']);
+    const deep = pleat(['export', model, '--bundle', join(dir, 'no', 'such')]);
+    expect(deep.code).toBe(2);
+    expect(deep.stderr).toMatch(/the folder .*no does not exist \(pleat creates the bundle folder, not the folders above it\)/);
+    expect(existsSync(join(dir, 'no'))).toBe(false);
+  });
+
   it('a failing gate writes no bundle and exits 1; an unknown format is a usage error', () => {
     const out = join(dir, 'never');
     const r = pleat(['export', model, '--bundle', out, '--gate', 'maxAbs < 0']);

@@ -149,7 +149,7 @@ describe('start-up loads only what the command line needs', () => {
     const mods = loaded(['--help']);
     expect(mods).toContain('cli/main.js');
     expect(mods.filter((m) => m.startsWith('cli/commands/') && m !== 'cli/commands/table.js')).toEqual([]);
-    expect(mods.filter((m) => m.startsWith('src/')).sort()).toEqual(['src/errors.js', 'src/report/exit-codes.js', 'src/report/format.js', 'src/verify/probe-bounds.js'].filter((m) => mods.includes(m)));
+    expect(mods.filter((m) => m.startsWith('src/')).sort()).toEqual(['src/errors.js', 'src/report/exit-codes.js', 'src/report/format.js', 'src/verify/option-values.js', 'src/verify/probe-bounds.js'].filter((m) => mods.includes(m)));
     expect(mods.some((m) => m.startsWith('src/jobs/') || m.startsWith('src/eval/') || m.startsWith('src/fold/'))).toBe(false);
   });
   it('fold -h loads the fold command and no other command module', () => {

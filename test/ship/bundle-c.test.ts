@@ -5,9 +5,10 @@ import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
 import onnxProto from 'onnx-proto';
 import { exportBundle } from '../../src/ship/bundle.js';
-import { cIdentifiers } from '../../src/ship/c-source.js';
+import { cIdentifiers, commentText } from '../../src/ship/c-source.js';
 import { readModelFile } from '../../src/onnx/read.js';
 import { bundleFixture, fnv1a64, type Expected } from './bundle-fixture.js';
+import { GraphBuilder, modelBytes, rng, T } from '../helpers/build.js';
 
 // The machine's C compiler is the outside check: it must accept the generated source under strict ISO C
 // settings, and a program linked against it must see exactly the model's bytes.
@@ -176,6 +177,64 @@ int main() { std::printf("%d %.9g\\n", (int)W_FC2_WEIGHT_COUNT, (double)w_fc2_we
     expect(Number(count)).toBe(3 * 24);
     // %.9g prints enough digits to identify a float32 exactly (9 significant digits, IEEE 754 binary32)
     expect(Math.fround(Number(first))).toBe(new DataView(w.rawData!.buffer, w.rawData!.byteOffset).getFloat32(0, true));
+  });
+
+  it('comment text never opens or closes a comment, nor holds two question marks in a row (seeded strings)', () => {
+    // C99 6.4.9: a comment starts with /* and ends at the first */; 5.2.1.1: ??/ is a trigraph (a backslash)
+    const r = rng(23);
+    const alphabet = ['/', '*', '?', 'a', '\\', ' ', '\n', 'é', '"'];
+    for (let k = 0; k < 2000; k++) {
+      const s = Array.from({ length: 1 + Math.floor(r() * 12) }, () => alphabet[Math.floor(r() * alphabet.length)]).join('');
+      for (const quote of [true, false]) {
+        const c = commentText(s, quote);
+        expect(c, JSON.stringify(s)).not.toMatch(/\/\*|\*\/|\?\?|[^\x20-\x7e]/);
+      }
+    }
+  });
+
+  it.skipIf(!CC)('names, graph name and file name that would open or close a comment compile with -Wall -Wextra -pedantic -Werror', () => {
+    const names = ['a/*b', '/*/', 'x*/y/*z', '???/', 'q??/', 'end/', '*start', '/**/'];
+    const g = new GraphBuilder('graph/*name*/??/');
+    g.input('x', [1]);
+    let y = 'x';
+    names.forEach((n, i) => { g.init(n, [1], [i + 0.5]); y = g.node('Add', [y, n], {}, { name: `add${i}/*` }); });
+    g.output(y);
+    const src = join(work, 'odd*name?.onnx');
+    writeFileSync(src, modelBytes(g));
+    const dir = join(work, 'comment-c');
+    exportBundle(readModelFile(src), dir, 'c');
+    const m = JSON.parse(readFileSync(join(dir, 'manifest.json'), 'utf8'));
+    // (probe compiles weights.c and a program including weights.h under -Werror, and reads every array back)
+    const seen = probe(dir, names.map((name) => ({ name, symbol: m.tensors[name].symbol as string, isFloat: true })));
+    names.forEach((n, i) => expect(seen.get(m.tensors[n].symbol)!.firsts[0], n).toBe(i + 0.5));
+  });
+
+  it.skipIf(!CC)('a tensor longer than one rendered piece keeps every element bit for bit (seeded values)', () => {
+    // 2 pieces of 65536 elements and a part line, in float32 and uint8: the pieces join into the same lines
+    const r = rng(31);
+    const n = 2 * 65536 + 13;
+    const f = new Float32Array(n).map(() => (r() - 0.5) * 10 ** Math.floor(r() * 8 - 4));
+    const u = new Uint8Array(70001).map(() => Math.floor(r() * 256));
+    const g = new GraphBuilder('long');
+    g.input('x', [1]);
+    g.init('long.f32', [n], f);
+    g.init('long.u8', [u.length], u, T.UINT8);
+    g.output('x');
+    const src = join(work, 'long.onnx');
+    writeFileSync(src, modelBytes(g));
+    const dir = join(work, 'long-c');
+    exportBundle(readModelFile(src), dir, 'c');
+    const m = JSON.parse(readFileSync(join(dir, 'manifest.json'), 'utf8'));
+    const seen = probe(dir, [{ name: 'long.f32', symbol: m.tensors['long.f32'].symbol, isFloat: true }, { name: 'long.u8', symbol: m.tensors['long.u8'].symbol, isFloat: false }]);
+    expect(seen.get(m.tensors['long.f32'].symbol)!.hash).toBe(fnv1a64(new Uint8Array(f.buffer)));
+    expect(seen.get(m.tensors['long.u8'].symbol)!.hash).toBe(fnv1a64(u));
+    // eight elements a line throughout, the last line partial
+    const body = readFileSync(join(dir, 'weights.c'), 'utf8').split('\n');
+    const first = body.findIndex((l) => l.includes(`${m.tensors['long.f32'].symbol}[${n}] = {`));
+    const end = body.indexOf('};', first);
+    expect(end - first - 1).toBe(Math.ceil(n / 8));
+    expect(body.slice(first + 1, end - 1).every((l) => l.split(', ').length === 8)).toBe(true);
+    expect(body[end - 1]!.split(', ').length).toBe(n % 8);
   });
 
   it('is deterministic: the same model gives the same files', () => {
