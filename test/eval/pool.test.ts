@@ -89,6 +89,17 @@ describe('auto_pad=VALID with ceil_mode=1 vs onnxruntime-node', () => {
   });
 });
 
+describe('MaxPool Indices with storage_order=1 (column-major, MaxPool operator doc) vs onnxruntime-node', () => {
+  it('1-D, 2-D and 3-D pools, opsets 8, 10, 11, 12', async () => {
+    for (let seed = 1; seed <= 36; seed++) {
+      const opset = [8, 10, 11, 12][seed % 4]!;
+      const c = randomPool(rng(seed + 1700), { dilations: opset >= 10, ceil: opset >= 10 });
+      c.attrs.storage_order = 1;
+      await checkOp('MaxPool', opset, [c.x], c.attrs, ['y', 'i:int64'], 1e-6, `seed ${seed} ${c.label}`);
+    }
+  });
+});
+
 describe('GlobalAveragePool, GlobalMaxPool vs onnxruntime-node', () => {
   it('rank 3 to 5', async () => {
     for (let seed = 1; seed <= 12; seed++) {

@@ -3,9 +3,9 @@
 // AveragePool divides by the number of window taps inside the input, or with count_include_pad=1 by the
 // taps inside the explicitly padded input (taps that ceil_mode pushes past the end padding never count).
 // MaxPool's optional Indices output is the flat row-major index into X (storage_order=1: column-major
-// within the 2-D plane).
+// within each N x C plane, for 1 to 3 spatial axes).
 import { attrInt, attrInts, DataType, elementCount } from '../../graph/ir.js';
-import { allocFloat, badModel, need, slidingWindow, to3, unsupported, type Window } from '../attrs.js';
+import { allocFloat, badModel, need, slidingWindow, to3, type Window } from '../attrs.js';
 import type { Kernel, KernelContext, NumArray, Value } from '../value.js';
 
 interface AxisTaps {
@@ -31,6 +31,18 @@ function axisTaps(n: number, out: number, k: number, s: number, d: number, pb: n
   }
   start[out] = idx.length;
   return { start, idx: Int32Array.from(idx), padded };
+}
+
+/**
+ * A row-major offset within one pooled plane (spatial axes padded in front to D x H x W) as the column-major
+ * offset over the model's own spatial axes: the first spatial axis varies fastest (MaxPool doc, storage_order;
+ * onnxruntime-node gives the same for 1-D, 2-D and 3-D pools, and for a 1-D pool the two orders are one).
+ */
+function columnMajor(local: number, inD: number, inH: number, inW: number, spatial: number): number {
+  const d = Math.floor(local / (inH * inW)), h = Math.floor(local / inW) % inH, w = local % inW;
+  if (spatial === 1) return w;
+  if (spatial === 2) return h + w * inH;
+  return d + h * inD + w * inD * inH;
 }
 
 function pool(X: Value, win: Window, ctx: KernelContext, mode: 'max' | 'avg', countPad: boolean, wantIdx: boolean, storageOrder: number): Value[] {
@@ -67,12 +79,7 @@ function pool(X: Value, win: Window, ctx: KernelContext, mode: 'max' | 'avg', co
               }
             }
             Y[yo] = best;
-            if (I) {
-              if (storageOrder === 1) {
-                const local = at - base, h = Math.floor(local / inW), w = local % inW;
-                I[yo] = base + w * inH + h;
-              } else I[yo] = at;
-            }
+            if (I) I[yo] = storageOrder === 1 ? base + columnMajor(at - base, inD, inH, inW, inSp.length) : at;
           } else {
             let sum = 0;
             for (let a = d0; a < d1; a++) {
@@ -110,7 +117,6 @@ export const MaxPool: Kernel = {
     const X = need(inputs, 0, ctx, 'X');
     const wantIdx = ctx.node.outputs.length > 1 && ctx.node.outputs[1] !== '';
     const order = attrInt(ctx.node, 'storage_order', 0);
-    if (wantIdx && order === 1 && X.dims.length !== 4) throw unsupported(ctx, 'storage_order=1 Indices for a non-2-D pool');
     return pool(X, windowOf(X, ctx), ctx, 'max', false, wantIdx, order);
   },
 };
