@@ -60,6 +60,17 @@ describe('what survey calls runnable runs', () => {
         g.node('Resize', ['x', 'roi', 's'], { mode: 'nearest', coordinate_transformation_mode: 'tf_half_pixel_for_nn' }, { outputs: ['y'] });
       },
     })),
+    ...[2, 11, 18].map((opset) => ({
+      what: `LpPool (LpPool-${opset} operator doc)`, opset, x: [1, 2, 5],
+      build: (g: GraphBuilder) => {
+        g.input('x', [1, 2, 5]).output('y');
+        g.node('LpPool', ['x'], { kernel_shape: [2], p: 3 }, { outputs: ['y'] });
+      },
+    })),
+    {
+      what: 'GlobalLpPool (GlobalLpPool-2 operator doc)', opset: 2, x: [1, 2, 3, 3],
+      build: (g: GraphBuilder) => { g.input('x', [1, 2, 3, 3]).output('y'); g.node('GlobalLpPool', ['x'], {}, { outputs: ['y'] }); },
+    },
   ];
   for (const c of cases) {
     it(c.what, () => {

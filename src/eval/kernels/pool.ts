@@ -8,7 +8,7 @@ import { attrInt, attrInts, DataType, elementCount } from '../../graph/ir.js';
 import { allocFloat, badModel, need, slidingWindow, to3, type Window } from '../attrs.js';
 import type { Kernel, KernelContext, NumArray, Value } from '../value.js';
 
-interface AxisTaps {
+export interface AxisTaps {
   /** For output position o: input indices of its valid taps are idx[start[o] .. start[o+1]). */
   start: Int32Array;
   idx: Int32Array;
@@ -16,7 +16,8 @@ interface AxisTaps {
   padded: Int32Array;
 }
 
-function axisTaps(n: number, out: number, k: number, s: number, d: number, pb: number, pe: number): AxisTaps {
+/** The input taps of each output position along one spatial axis (shared with LpPool, lppool.ts). */
+export function axisTaps(n: number, out: number, k: number, s: number, d: number, pb: number, pe: number): AxisTaps {
   const start = new Int32Array(out + 1), padded = new Int32Array(out);
   const idx: number[] = [];
   for (let o = 0; o < out; o++) {
@@ -104,11 +105,12 @@ function pool(X: Value, win: Window, ctx: KernelContext, mode: 'max' | 'avg', co
   return out;
 }
 
-function windowOf(X: Value, ctx: KernelContext): Window {
+/** The pooling window of node ctx.node over X (N x C x 1 to 3 spatial axes); `ceil` is its ceil_mode. */
+export function windowOf(X: Value, ctx: KernelContext, ceil = attrInt(ctx.node, 'ceil_mode', 0) !== 0): Window {
   if (X.dims.length < 3 || X.dims.length > 5) throw badModel(ctx, `input has rank ${X.dims.length}; pooling needs N x C x 1 to 3 spatial axes`);
   const kernel = attrInts(ctx.node, 'kernel_shape');
   if (!kernel) throw badModel(ctx, 'attribute kernel_shape is required');
-  return slidingWindow(ctx, X.dims.slice(2), kernel, attrInt(ctx.node, 'ceil_mode', 0) !== 0);
+  return slidingWindow(ctx, X.dims.slice(2), kernel, ceil);
 }
 
 export const MaxPool: Kernel = {
