@@ -14,6 +14,7 @@ import { estimateRun, type Estimate } from '../eval/estimate.js';
 import { checkEstimateFits, checkProbeEstimate, checkProbeShapes } from './probe-budget.js';
 import { PleatError } from '../errors.js';
 import { dataTypeName } from '../graph/tensor.js';
+import { wideOutputValue } from './wide-integers.js';
 import { atOutputScale, computeMetrics, diffHistogram, finiteInBoth, worstOf, type DiffHistogram, type Metrics } from './metrics.js';
 import { BUDGET_NAMES, DEFAULT_GATES, defaultGateFor, defaultGateKey, INT8_WEIGHTS_GATE, METRIC_NAMES, parseGate, type Gate, type GateLimit, type GateScope } from './gate.js';
 import { roundedWeightsModel } from '../fold/quant.js';
@@ -94,10 +95,10 @@ export const DEFAULT_EXTRA_PROBES = 8;
 
 /**
  * 'compared'; 'empty' when the output had no elements on any probe, or none that is a finite number in both
- * models (nothing compared: the check is skipped);
- * or why an output could not be compared (each is a failure).
+ * models, and 'wide-integers' when an int64/uint64 output held a value at or beyond 2^53 (nothing compared: the
+ * check is skipped); or why an output could not be compared (each is a failure).
  */
-export type OutputStatus = 'compared' | 'empty' | 'only-in-a' | 'only-in-b' | 'shape-differs';
+export type OutputStatus = 'compared' | 'empty' | 'wide-integers' | 'only-in-a' | 'only-in-b' | 'shape-differs';
 
 export interface ErrorBudget {
   /** A in float32 against A in float64: the rounding the model already has. */
@@ -307,7 +308,12 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
   const aNames = new Set(aOut.map((o) => o.name));
 
   // Per output shared by both: metrics per probe, or the first shape difference.
-  interface Acc { histogram?: DiffHistogram; metrics: Metrics[]; finite: number; own: Metrics[]; deploy: Metrics[]; dimsA?: number[]; dimsB?: number[]; shapeDiffers: boolean; typeA?: DataTypeCode; typeB?: DataTypeCode }
+  interface Acc {
+    histogram?: DiffHistogram; metrics: Metrics[]; finite: number; own: Metrics[]; deploy: Metrics[]; dimsA?: number[]; dimsB?: number[];
+    shapeDiffers: boolean; typeA?: DataTypeCode; typeB?: DataTypeCode;
+    /** The first int64/uint64 value at or beyond 2^53 either model gave here (float64 may have rounded it). */
+    wide?: string;
+  }
   const acc = new Map<string, Acc>();
   for (const o of aOut) if (bOut.has(o.name)) acc.set(o.name, { metrics: [], finite: 0, own: [], deploy: [], shapeDiffers: false });
   const onlyB = new Map<string, Value>();
@@ -392,6 +398,10 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
           if (p === 0) { s.dimsA = [...va.dims]; s.dimsB = [...vb.dims]; s.typeA = va.type; s.typeB = vb.type; }
           if (s.shapeDiffers) continue;
           if (!sameDims(va.dims, vb.dims)) { s.shapeDiffers = true; s.dimsA = [...va.dims]; s.dimsB = [...vb.dims]; continue; }
+          if (!s.wide) {
+            const wa = wideOutputValue(va.type, va.data), wb = wa ? undefined : wideOutputValue(vb.type, vb.data);
+            if (wa || wb) s.wide = `${(wa ?? wb)!.text} (model ${wa ? 'A' : 'B'}, probe ${p}, element ${(wa ?? wb)!.index})`;
+          }
           s.metrics.push(computeMetrics(vb.data, va.data));
           if (s.finite === 0) s.finite = finiteInBoth(vb.data, va.data); // (only whether there is one matters)
           s.histogram = diffHistogram(vb.data, va.data, s.histogram);
@@ -444,6 +454,13 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
     if (s.finite === 0 && metrics.maxAbs === 0 && metrics.nanMismatches === 0) {
       out.status = 'empty';
       out.problem = `output '${o.name}' has no element that is a finite number in both models on any probe (NaN or infinite throughout), so nothing was compared`;
+      outputs.push(out);
+      continue;
+    }
+    // an integer at or beyond 2^53 may be float64's rounding of the true value: not compared, never passed
+    if (s.wide) {
+      out.status = 'wide-integers';
+      out.problem = `output '${o.name}' holds ${s.wide}, at or beyond 2^53 where float64 no longer holds every integer, so it was not compared`;
       outputs.push(out);
       continue;
     }
