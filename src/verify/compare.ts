@@ -332,9 +332,34 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
   const pair = (model: 'judged' | 'float32', batch: Array<Map<string, Value>>) => {
     const precision: Precision = model === 'judged' ? arithmetic : 'float32';
     const sides = [{ model: a, side: 'A' as const }, { model: b, side: 'B' as const }];
-    const out = runLockstep(sides.map((x) => ({ model: x.model, precision, probes: batch, onNode: x.side === 'B' && model === 'judged' ? onNode : undefined })),
-      (e, i) => labelled(e, sides[i]!.model, sideName[i]!, precision));
+    let failed = -1;
+    let out;
+    try {
+      out = runLockstep(sides.map((x) => ({ model: x.model, precision, probes: batch, onNode: x.side === 'B' && model === 'judged' ? onNode : undefined })),
+        (e, i) => { failed = i; return labelled(e, sides[i]!.model, sideName[i]!, precision); });
+    } catch (e) {
+      throw failed === 1 ? originalFailsToo(e, batch, precision) : withDimHint(e, failed);
+    }
     return batch.map((_, q) => [out[0]![q]!, out[1]![q]!] as const);
+  };
+  /**
+   * B failed on a batch: when A fails on it too, A's error is the one to show (the probe inputs are what neither
+   * model can run, not the fold), else B's. (The two run in lockstep, so either may meet the problem first.)
+   */
+  const originalFailsToo = (eB: unknown, batch: Array<Map<string, Value>>, precision: Precision): unknown => {
+    if (!(eB instanceof PleatError) || eB.kind === 'unsupported-op') return eB;
+    try {
+      runLockstep([{ model: a, precision, probes: batch }], (e) => labelled(e, a, sideName[0], precision));
+    } catch (eA) {
+      if (eA instanceof PleatError) return withDimHint(eA, 0);
+    }
+    return eB;
+  };
+  /** A's failure at probe shapes that took size 1 for symbolic dims no flag set: say so, and name --dim. */
+  const withDimHint = (e: unknown, side: number): unknown => {
+    if (side !== 0 || !(e instanceof PleatError) || e.kind === 'unsupported-op' || !assumedDims.length) return e;
+    const syms = assumedDims.map((d) => d.symbol);
+    return new PleatError(e.kind, `${e.message}; the probe inputs took size 1 for the symbolic dim${syms.length === 1 ? '' : 's'} ${syms.join(', ')} (no --dim given), a shape the original model cannot run: set sizes it runs at with ${syms.map((d) => `--dim ${d}=<size>`).join(' ')}`);
   };
   /** A's outputs for probes first.. of a batch from opts.outputsOfA, when it has every one for these very inputs. */
   const doneElsewhere = (elsewhere: RunsElsewhere, first: number, batch: Array<Map<string, Value>>): Array<Map<string, Value>> | undefined => {

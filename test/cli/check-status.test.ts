@@ -196,6 +196,27 @@ describe('check status', { timeout: 180_000 }, () => {
     }
   });
 
+  it('a probe shape the original cannot run (symbolic H, W took size 1 under a 3x3 Conv): the original is named, with --dim', () => {
+    // BatchNormalization -> Conv folds into the Conv, which then comes first in the folded model and so meets the
+    // 1x1 probe before the original's does (the two run node by node together)
+    const g = new GraphBuilder();
+    g.input('x', ['N', 3, 'H', 'W']).output('y');
+    const r = rng(9);
+    g.init('s', [3], uniform(r, 3, 0.5, 1.5)); g.init('t', [3], randn(r, 3)); g.init('m', [3], randn(r, 3)); g.init('v', [3], uniform(r, 3, 0.5, 2));
+    const n = g.node('BatchNormalization', ['x', 's', 't', 'm', 'v'], {}, { name: 'bn' });
+    g.init('w', [4, 3, 3, 3], randn(r, 108, 0.3));
+    g.node('Conv', [n, 'w'], {}, { name: 'conv', outputs: ['y'] });
+    const m = save('small-probe.onnx', modelBytes(g));
+    const out = join(dir, 'small-probe-folded.onnx');
+    const f = pleat(['fold', m, '-o', out]);
+    expect(f.code).toBe(2);
+    expect(f.stderr).toMatch(/^pleat: the original model \(small-probe\.onnx\), float64 run: node 'conv' \(Conv\): input spatial size 1 is too small for kernel 3/);
+    expect(f.stderr).toContain('--dim H=<size>');
+    expect(f.stderr).not.toMatch(/folded model/);
+    expect(existsSync(out)).toBe(false);
+    expect(pleat(['fold', m, '-o', out, '--dim', 'H=5', '--dim', 'W=4']).code).toBe(0);
+  });
+
   it('--strict: a skipped check exits 1 and writes nothing; strict in the config file does the same', () => {
     const m = noKernelModel();
     const out = join(dir, 'strict.onnx');
