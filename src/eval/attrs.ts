@@ -2,6 +2,7 @@
 // errors that name the node, and the spatial geometry (pads, strides, dilations, auto_pad) of Conv and pooling.
 import { PleatError } from '../errors.js';
 import { attrInts, attrString, elementCount, type Node } from '../graph/ir.js';
+import { windowCount } from '../graph/shapes.js';
 import type { KernelContext, NumArray, Precision, Value } from './value.js';
 import { takeFloat32, takeFloat64 } from './pool.js';
 
@@ -92,16 +93,12 @@ export function slidingWindow(ctx: KernelContext, inDims: number[], kernel: numb
     if (s < 1 || dilations[i]! < 1) throw badModel(ctx, 'strides and dilations must be positive');
     switch (autoPad) {
       case 'NOTSET': case '': {
-        const span = n + padBegin[i]! + padEnd[i]! - dk;
-        let o = (ceil ? Math.ceil(span / s) : Math.floor(span / s)) + 1;
-        // ceil_mode: a last window that starts inside the end padding only is dropped (as ONNX and onnxruntime do)
-        if (ceil && (o - 1) * s >= n + padBegin[i]!) o--;
-        out.push(o);
+        out.push(windowCount(n, dk, s, padBegin[i]!, padEnd[i]!, ceil));
         break;
       }
       case 'VALID': {
         padBegin[i] = 0; padEnd[i] = 0;
-        out.push(ceil ? Math.ceil((n - dk) / s) + 1 : Math.floor((n - dk) / s) + 1);
+        out.push(windowCount(n, dk, s, 0, 0, ceil));
         break;
       }
       case 'SAME_UPPER': case 'SAME_LOWER': {

@@ -5,6 +5,7 @@
 // left out, so the estimate is a lower bound: it never refuses more than evaluation itself would (budget.ts
 // checks each allocation as it comes).
 import { attrInt, attrInts, attrString, elementCount, type Graph, type Node } from '../graph/ir.js';
+import { windowCount } from '../graph/shapes.js';
 import { heldStillCall, planOf, type Plan } from './plan.js';
 
 type Dims = number[] | undefined;
@@ -52,8 +53,8 @@ function window(node: Node, x: number[], kernel: number[], ceil = false): number
     const len = x[2 + i]!, s = strides[i] ?? 1;
     if (auto === 'SAME_UPPER' || auto === 'SAME_LOWER') return Math.ceil(len / s);
     const span = (dil[i] ?? 1) * (k - 1) + 1;
-    const padded = len + (pads[i] ?? 0) + (pads[i + n] ?? 0) - span;
-    return (ceil ? Math.ceil(padded / s) : Math.floor(padded / s)) + 1;
+    if (auto === 'VALID') return windowCount(len, span, s, 0, 0, ceil);
+    return windowCount(len, span, s, pads[i] ?? 0, pads[i + n] ?? 0, ceil);
   });
 }
 

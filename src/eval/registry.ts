@@ -29,6 +29,8 @@ import { GroupNormalization } from './kernels/groupnormalization.js';
 import { Gemm } from './kernels/gemm.js';
 import { MatMul } from './kernels/matmul.js';
 import * as pool from './kernels/pool.js';
+import { LpPool } from './kernels/lppool.js';
+import { GlobalLpPool } from './kernels/globallppool.js';
 import { PadV1, PadV11 } from './kernels/pad.js';
 import * as resize from './kernels/resize.js';
 import { If } from './kernels/if.js';
@@ -181,6 +183,8 @@ const KERNELS: Kernel[] = [
   pool.AveragePool,
   pool.GlobalAveragePool,
   pool.GlobalMaxPool,
+  LpPool,
+  GlobalLpPool,
   PadV1,
   PadV11,
   resize.Resize10,

@@ -5,7 +5,7 @@ import { makeContext, isRefusal, refuse, type FoldContext, type Refusal } from '
 import { isLayer, readLayer } from './layers.js';
 import { collectRun, isStep, stepOf, type Run, type StepCache } from './run.js';
 import { entryKind, isBatchNorm, isLayerNorm, type AffineStep } from './steps.js';
-import { buildScopes, isLinear, labelOf, type Scope } from './scope.js';
+import { buildScopes, constantOf, isLinear, labelOf, type Scope } from './scope.js';
 import { runtimeNorm, writtenOutNorm } from './norms.js';
 import { ruleFor, type RuleMatch } from './rules/index.js';
 import { producerShared } from './rules/rule.js';
@@ -49,7 +49,10 @@ function unsuitableReader(ctx: FoldContext, run: Run, readers: Node[]): Refusal 
       return { node: r, ...refuse('shared-output', `'${name}' (${r.opType}) also reads its output and is no linear layer that could take the fold; it needs the values as they are, so the norm stays for it`) };
     }
     if (r.inputs[0] !== run.bottom || r.inputs.indexOf(run.bottom, 1) > 0) {
-      return { node: r, ...refuse('no-linear-neighbour', `'${name}' reads its output as a weight, not as its data input, so it cannot take the fold`) };
+      const refusal = refuse('no-linear-neighbour', `'${name}' reads its output as a weight, not as its data input, so it cannot take the fold`);
+      // (a MatMul or Gemm whose first operand is the constant: a layer with weights, in a form no rule takes)
+      const held = r.inputs[0] !== run.bottom && r.inputs[0] !== undefined && constantOf(scope, r.inputs[0]) !== undefined;
+      return { node: r, ...refusal, ...(held ? { heldWeights: true as const } : {}) };
     }
   }
   return undefined;
@@ -108,9 +111,10 @@ export function assessRun(ctx: FoldContext, run: Run): Outcome {
     }
   }
   if (!run.hasNormOp) {
-    // A constant Mul/Add is only a normalization worth listing next to a layer it could fold into.
+    // A constant Mul/Add is only a normalization worth listing next to a layer it could fold into, or one that
+    // holds constant weights in a form no rule takes (listed as kept, so no per-channel step goes unmentioned).
     if (noGain) return { kind: 'ignore' };
-    const real = [rp, rc].filter((s): s is Side => s !== undefined && s.reason !== 'no-linear-neighbour');
+    const real = [rp, rc].filter((s): s is Side => s !== undefined && (s.reason !== 'no-linear-neighbour' || s.heldWeights === true));
     if (!real.length) return { kind: 'ignore' };
     const s = real[0]!;
     return { kind: 'kept', reason: s.reason, hint: s.hint, direction: s.direction, target: s.target };

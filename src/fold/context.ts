@@ -74,6 +74,11 @@ export interface PendingGraph {
 export interface Refusal {
   reason: ReasonCode;
   hint: string;
+  /**
+   * Set when the layer does hold constant weights, only in a form no rule folds into (the first operand of a
+   * MatMul, a 3-D MatMul weight): a constant Mul/Add beside it is then a normalization to list as kept, not ignored.
+   */
+  heldWeights?: true;
 }
 
 export function isRefusal(x: unknown): x is Refusal {

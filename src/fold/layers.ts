@@ -52,6 +52,9 @@ function constantParam(ctx: FoldContext, scope: Scope, n: Node, v: string, what:
 
 const isRef = (x: ConstRef | Refusal): x is ConstRef => 'tensor' in x;
 
+/** A layer with constant weights in a form no rule folds into (see Refusal.heldWeights). */
+const heldWeights = (hint: string): Refusal => ({ ...refuse('no-linear-neighbour', hint), heldWeights: true });
+
 /** The layer's constant weight and geometry, or why it cannot take a fold. */
 export function readLayer(ctx: FoldContext, scope: Scope, n: Node): Layer | Refusal {
   const op = n.opType as LayerOp;
@@ -60,7 +63,7 @@ export function readLayer(ctx: FoldContext, scope: Scope, n: Node): Layer | Refu
   if (!x || !w) return refuse('no-linear-neighbour', `'${label}' has no weight input`);
   // a MatMul or Gemm whose constant is its first operand: the weight is there, but on the side pleat does not fold
   if ((op === 'MatMul' || op === 'Gemm') && !constantOf(scope, w) && constantOf(scope, x)) {
-    return refuse('no-linear-neighbour', `'${label}' takes its constant as the first operand (A) and the activations as the second; pleat folds into a constant second operand (B) only`);
+    return heldWeights(`'${label}' takes its constant as the first operand (A) and the activations as the second; pleat folds into a constant second operand (B) only`);
   }
   const weight = constantParam(ctx, scope, n, w, 'weight');
   if (!isRef(weight)) return weight;
@@ -83,22 +86,22 @@ export function readLayer(ctx: FoldContext, scope: Scope, n: Node): Layer | Refu
   });
   switch (op) {
     case 'Conv': case 'ConvTranspose': {
-      if (dims.length < 3 || group < 1 || dims[0]! % group !== 0) return refuse('no-linear-neighbour', `weight of '${label}' has an unexpected shape [${dims.join(',')}]`);
+      if (dims.length < 3 || group < 1 || dims[0]! % group !== 0) return heldWeights(`weight of '${label}' has an unexpected shape [${dims.join(',')}]`);
       const pads = attrInts(n, 'pads') ?? [];
       const autoPad = attrString(n, 'auto_pad', 'NOTSET');
       const unpadded = pads.every((p) => p === 0) && (autoPad === 'NOTSET' || autoPad === 'VALID');
       const outChannels = op === 'Conv' ? dims[0]! : dims[1]! * group;
       const inChannels = op === 'Conv' ? dims[1]! * group : dims[0]!;
-      if (bias && elementCount(bias.tensor.dims) !== outChannels) return refuse('no-linear-neighbour', `bias of '${label}' does not hold one value per output channel`);
+      if (bias && elementCount(bias.tensor.dims) !== outChannels) return heldWeights(`bias of '${label}' does not hold one value per output channel`);
       return layer(dims.length, outChannels, inChannels, unpadded);
     }
     case 'Gemm': {
-      if (dims.length !== 2) return refuse('no-linear-neighbour', `weight of '${label}' is not a matrix`);
+      if (dims.length !== 2) return heldWeights(`weight of '${label}' is not a matrix`);
       const [k, nOut] = transB ? [dims[1]!, dims[0]!] : [dims[0]!, dims[1]!];
       return layer(2, nOut, k, true);
     }
     case 'MatMul': {
-      if (dims.length !== 2) return refuse('no-linear-neighbour', `the weight of '${label}' is not a constant 2-D matrix`);
+      if (dims.length !== 2) return heldWeights(`the weight of '${label}' is not a constant 2-D matrix`);
       const ra = rankOf(scope, x);
       return layer(ra, dims[1]!, dims[0]!, true, 1);
     }

@@ -276,6 +276,19 @@ function outputShape(n: Node, ins: Array<Shape | undefined>, values: (i: number)
   }
 }
 
+/**
+ * Number of window positions along one axis of length n (ONNX Operators, Conv / MaxPool / AveragePool output
+ * shape): floor((n + pads - dk) / s) + 1, or ceil(...) + 1 with ceil_mode, where a last window that would start
+ * past the input and its begin padding is dropped, as onnxruntime does. auto_pad=VALID is this with zero pads, which
+ * makes ceil_mode's count ceil((n - dk + 1) / s), the VALID formula of the MaxPool operator doc.
+ */
+export function windowCount(n: number, dk: number, s: number, padBegin: number, padEnd: number, ceil: boolean): number {
+  const span = n + padBegin + padEnd - dk;
+  if (!ceil) return Math.floor(span / s) + 1;
+  const o = Math.ceil(span / s) + 1;
+  return (o - 1) * s >= n + padBegin ? o - 1 : o;
+}
+
 /** Conv, ConvTranspose and pooling output shapes (ONNX Operators, Conv / ConvTranspose / MaxPool). */
 function windowShape(n: Node, x: Shape, w: Shape | undefined): Shape | undefined {
   const conv = n.opType === 'Conv' || n.opType === 'ConvTranspose';
@@ -304,9 +317,8 @@ function windowShape(n: Node, x: Shape, w: Shape | undefined): Shape | undefined
       continue;
     }
     if (autoPad === 'SAME_UPPER' || autoPad === 'SAME_LOWER') { out.push(Math.ceil(d / strides[i]!)); continue; }
-    const padded = autoPad === 'VALID' ? d : d + pads[i]! + pads[i + spatial]!;
-    const ceil = attrInt(n, 'ceil_mode', 0) === 1;
-    out.push((ceil ? Math.ceil : Math.floor)((padded - k) / strides[i]!) + 1);
+    const valid = autoPad === 'VALID';
+    out.push(windowCount(d, k, strides[i]!, valid ? 0 : pads[i]!, valid ? 0 : pads[i + spatial]!, attrInt(n, 'ceil_mode', 0) === 1));
   }
   return out;
 }

@@ -1,6 +1,7 @@
 // compare's report as text: the verdict, the inputs the models ran on, then per output its metrics, its
 // error budget (each model's float32 run against A in float64) and the gate that judged it.
 import type { CompareReport } from '../verify/compare.js';
+import { outputSkipped } from '../verify/status.js';
 import { CAUTION, cosineText, numText, plural, joinLines } from './format.js';
 import { paint } from './paint.js';
 
@@ -21,8 +22,8 @@ export function compareText(r: CompareReport, a: string, b: string, colour = fal
   for (const i of r.inputs) lines.push(`  input ${i.name}  ${i.dtype} [${i.dims.join('x')}]  ${i.source === 'file' ? `from ${i.file}` : i.source === 'probe' ? 'seeded probe' : 'given value'}`);
   const w = Math.max(0, ...r.outputs.map((o) => o.name.length));
   for (const o of r.outputs) {
-    const verdict = o.passed ? p.good('pass') : o.status === 'empty' ? p.warn('skip') : p.bad('FAIL');
-    if (!o.metrics || o.status === 'empty') {
+    const verdict = o.passed ? p.good('pass') : outputSkipped(o.status) ? p.warn('skip') : p.bad('FAIL');
+    if (!o.metrics || outputSkipped(o.status)) {
       lines.push(`  ${o.name.padEnd(w)}  ${verdict}  ${o.problem ?? o.status}`);
       continue;
     }

@@ -12,6 +12,7 @@
 // <error>. No timestamps or durations are written, so the same input gives the same bytes.
 import type { AuditReport, FoldReport } from '../jobs/types.js';
 import type { CompareReport } from '../verify/compare.js';
+import { outputSkipped, outputSkipReason } from '../verify/status.js';
 import { dbText, numText } from './format.js';
 
 export type Outcome =
@@ -71,8 +72,8 @@ export function foldSuite(r: FoldReport): Suite {
     cases.push({ classname: r.model, name: 'whole-model check', outcome: c.strict ? { kind: 'failure', type: 'strict', message } : { kind: 'skipped', message } });
   } else if (c) {
     for (const o of c.outputs) {
-      if (o.status === 'empty') {
-        const message = `${c.skipped?.reason ?? 'no-elements'}: ${o.problem ?? 'nothing compared'}`;
+      if (outputSkipped(o.status)) {
+        const message = `${outputSkipReason(o.status)}: ${o.problem ?? 'nothing compared'}`;
         cases.push({ classname: r.model, name: `check output ${o.name}`, outcome: c.strict ? { kind: 'failure', type: 'strict', message } : { kind: 'skipped', message } });
         continue;
       }
@@ -112,7 +113,7 @@ export function compareSuite(r: CompareReport, a: string, b: string): Suite {
       classname: name,
       name: `output ${o.name}`,
       outcome: o.passed ? { kind: 'pass' }
-        : o.status === 'empty' ? { kind: 'skipped', message: `no-elements: ${o.problem ?? 'nothing compared'}` }
+        : outputSkipped(o.status) ? { kind: 'skipped', message: `${outputSkipReason(o.status)}: ${o.problem ?? 'nothing compared'}` }
           : { kind: 'failure', type: o.status === 'compared' ? 'gate' : o.status, message: o.problem ?? `output '${o.name}' failed` },
     })),
   };

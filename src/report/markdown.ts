@@ -3,6 +3,7 @@
 // and the caution as a quote.
 import type { AuditReport, FoldReport } from '../jobs/types.js';
 import type { CompareReport } from '../verify/compare.js';
+import { outputSkipped } from '../verify/status.js';
 import type { ProofFigures } from '../fold/types.js';
 import { append, bytesText, CAUTION, cosineText, dbText, numText, ratioText, visible } from './format.js';
 
@@ -107,7 +108,7 @@ export function compareMarkdown(r: CompareReport, a: string, b: string): string 
     '| output | result | maxAbs | maxRel | cosine |', '|---|---|---|---|---|'];
   for (const o of r.outputs) {
     const m = o.metrics;
-    const result = o.passed ? 'pass' : o.status === 'empty' ? cell(`skipped: ${o.problem ?? 'no elements'}`) : cell(`**fail**: ${o.problem ?? o.status}`);
+    const result = o.passed ? 'pass' : outputSkipped(o.status) ? cell(`skipped: ${o.problem ?? 'no elements'}`) : cell(`**fail**: ${o.problem ?? o.status}`);
     out.push(`| ${codeInCell(o.name)} | ${result} | ${m ? numText(m.maxAbs) : ''} | ${m ? numText(m.maxRel) : ''} | ${m ? cosineText(m.cosine) : ''} |`);
   }
   out.push(...caution());

@@ -14,6 +14,7 @@ import { estimateRun, type Estimate } from '../eval/estimate.js';
 import { checkEstimateFits, checkProbeEstimate, checkProbeShapes } from './probe-budget.js';
 import { PleatError } from '../errors.js';
 import { dataTypeName } from '../graph/tensor.js';
+import { wideOutputValue } from './wide-integers.js';
 import { atOutputScale, computeMetrics, diffHistogram, finiteInBoth, worstOf, type DiffHistogram, type Metrics } from './metrics.js';
 import { BUDGET_NAMES, DEFAULT_GATES, defaultGateFor, defaultGateKey, INT8_WEIGHTS_GATE, METRIC_NAMES, parseGate, type Gate, type GateLimit, type GateScope } from './gate.js';
 import { roundedWeightsModel } from '../fold/quant.js';
@@ -94,10 +95,10 @@ export const DEFAULT_EXTRA_PROBES = 8;
 
 /**
  * 'compared'; 'empty' when the output had no elements on any probe, or none that is a finite number in both
- * models (nothing compared: the check is skipped);
- * or why an output could not be compared (each is a failure).
+ * models, and 'wide-integers' when an int64/uint64 output held a value at or beyond 2^53 (nothing compared: the
+ * check is skipped); or why an output could not be compared (each is a failure).
  */
-export type OutputStatus = 'compared' | 'empty' | 'only-in-a' | 'only-in-b' | 'shape-differs';
+export type OutputStatus = 'compared' | 'empty' | 'wide-integers' | 'only-in-a' | 'only-in-b' | 'shape-differs';
 
 export interface ErrorBudget {
   /** A in float32 against A in float64: the rounding the model already has. */
@@ -307,7 +308,12 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
   const aNames = new Set(aOut.map((o) => o.name));
 
   // Per output shared by both: metrics per probe, or the first shape difference.
-  interface Acc { histogram?: DiffHistogram; metrics: Metrics[]; finite: number; own: Metrics[]; deploy: Metrics[]; dimsA?: number[]; dimsB?: number[]; shapeDiffers: boolean; typeA?: DataTypeCode; typeB?: DataTypeCode }
+  interface Acc {
+    histogram?: DiffHistogram; metrics: Metrics[]; finite: number; own: Metrics[]; deploy: Metrics[]; dimsA?: number[]; dimsB?: number[];
+    shapeDiffers: boolean; typeA?: DataTypeCode; typeB?: DataTypeCode;
+    /** The first int64/uint64 value at or beyond 2^53 either model gave here (float64 may have rounded it). */
+    wide?: string;
+  }
   const acc = new Map<string, Acc>();
   for (const o of aOut) if (bOut.has(o.name)) acc.set(o.name, { metrics: [], finite: 0, own: [], deploy: [], shapeDiffers: false });
   const onlyB = new Map<string, Value>();
@@ -326,9 +332,34 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
   const pair = (model: 'judged' | 'float32', batch: Array<Map<string, Value>>) => {
     const precision: Precision = model === 'judged' ? arithmetic : 'float32';
     const sides = [{ model: a, side: 'A' as const }, { model: b, side: 'B' as const }];
-    const out = runLockstep(sides.map((x) => ({ model: x.model, precision, probes: batch, onNode: x.side === 'B' && model === 'judged' ? onNode : undefined })),
-      (e, i) => labelled(e, sides[i]!.model, sideName[i]!, precision));
+    let failed = -1;
+    let out;
+    try {
+      out = runLockstep(sides.map((x) => ({ model: x.model, precision, probes: batch, onNode: x.side === 'B' && model === 'judged' ? onNode : undefined })),
+        (e, i) => { failed = i; return labelled(e, sides[i]!.model, sideName[i]!, precision); });
+    } catch (e) {
+      throw failed === 1 ? originalFailsToo(e, batch, precision) : withDimHint(e, failed);
+    }
     return batch.map((_, q) => [out[0]![q]!, out[1]![q]!] as const);
+  };
+  /**
+   * B failed on a batch: when A fails on it too, A's error is the one to show (the probe inputs are what neither
+   * model can run, not the fold), else B's. (The two run in lockstep, so either may meet the problem first.)
+   */
+  const originalFailsToo = (eB: unknown, batch: Array<Map<string, Value>>, precision: Precision): unknown => {
+    if (!(eB instanceof PleatError) || eB.kind === 'unsupported-op') return eB;
+    try {
+      runLockstep([{ model: a, precision, probes: batch }], (e) => labelled(e, a, sideName[0], precision));
+    } catch (eA) {
+      if (eA instanceof PleatError) return withDimHint(eA, 0);
+    }
+    return eB;
+  };
+  /** A's failure at probe shapes that took size 1 for symbolic dims no flag set: say so, and name --dim. */
+  const withDimHint = (e: unknown, side: number): unknown => {
+    if (side !== 0 || !(e instanceof PleatError) || e.kind === 'unsupported-op' || !assumedDims.length) return e;
+    const syms = assumedDims.map((d) => d.symbol);
+    return new PleatError(e.kind, `${e.message}; the probe inputs took size 1 for the symbolic dim${syms.length === 1 ? '' : 's'} ${syms.join(', ')} (no --dim given), a shape the original model cannot run: set sizes it runs at with ${syms.map((d) => `--dim ${d}=<size>`).join(' ')}`);
   };
   /** A's outputs for probes first.. of a batch from opts.outputsOfA, when it has every one for these very inputs. */
   const doneElsewhere = (elsewhere: RunsElsewhere, first: number, batch: Array<Map<string, Value>>): Array<Map<string, Value>> | undefined => {
@@ -392,6 +423,10 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
           if (p === 0) { s.dimsA = [...va.dims]; s.dimsB = [...vb.dims]; s.typeA = va.type; s.typeB = vb.type; }
           if (s.shapeDiffers) continue;
           if (!sameDims(va.dims, vb.dims)) { s.shapeDiffers = true; s.dimsA = [...va.dims]; s.dimsB = [...vb.dims]; continue; }
+          if (!s.wide) {
+            const wa = wideOutputValue(va.type, va.data), wb = wa ? undefined : wideOutputValue(vb.type, vb.data);
+            if (wa || wb) s.wide = `${(wa ?? wb)!.text} (model ${wa ? 'A' : 'B'}, probe ${p}, element ${(wa ?? wb)!.index})`;
+          }
           s.metrics.push(computeMetrics(vb.data, va.data));
           if (s.finite === 0) s.finite = finiteInBoth(vb.data, va.data); // (only whether there is one matters)
           s.histogram = diffHistogram(vb.data, va.data, s.histogram);
@@ -444,6 +479,13 @@ function compareWithin(a: Model, b: Model, opts: CompareOptions): CompareReport 
     if (s.finite === 0 && metrics.maxAbs === 0 && metrics.nanMismatches === 0) {
       out.status = 'empty';
       out.problem = `output '${o.name}' has no element that is a finite number in both models on any probe (NaN or infinite throughout), so nothing was compared`;
+      outputs.push(out);
+      continue;
+    }
+    // an integer at or beyond 2^53 may be float64's rounding of the true value: not compared, never passed
+    if (s.wide) {
+      out.status = 'wide-integers';
+      out.problem = `output '${o.name}' holds ${s.wide}, at or beyond 2^53 where float64 no longer holds every integer, so it was not compared`;
       outputs.push(out);
       continue;
     }

@@ -10,6 +10,7 @@ import { PleatError } from '../errors.js';
 import { isFloatType } from '../graph/tensor.js';
 import { DataType } from '../graph/ir.js';
 import { npyBytes } from './npy.js';
+import { EXACT_INTEGER_LIMIT, wideOutputValue } from './wide-integers.js';
 import { entryAt, sameFile, specialKind } from '../onnx/paths.js';
 import { asMap, checkDimFlags, makeProbe, resolveInputs, summarizeInputs, type InputOptions, type InputSummary } from './inputs.js';
 
@@ -43,6 +44,12 @@ function evaluateWithin(model: Model, opts: EvaluateOptions): EvaluateResult {
   checkProbeEstimate(model.graph, specs);
   const inputs = makeProbe(specs, seed, 0);
   const outputs = runModel(model, inputs, { precision });
+  for (const [name, v] of outputs) {
+    const wide = wideOutputValue(v.type, v.data);
+    if (wide) {
+      throw new PleatError('dtype-unsupported', `output '${name}' holds ${wide.text} (element ${wide.index}), at or beyond 2^53 = ${EXACT_INTEGER_LIMIT}: pleat's evaluator holds integers in float64, which may have rounded it; nothing saved`);
+    }
+  }
   return { precision, seed, inputSummary: summarizeInputs(specs), inputs, outputs };
 }
 

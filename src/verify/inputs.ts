@@ -13,10 +13,13 @@ import { checkProbeShapes } from './probe-budget.js';
 import { dataTypeName, isFloatType, roundToStorage, tensorToFloat64 } from '../graph/tensor.js';
 import { parseTensor } from '../onnx/read.js';
 import { readNpy } from './npy.js';
+import { canBeWide, EXACT_INTEGER_LIMIT, firstWideInTensor, firstWideValue, type WideValue } from './wide-integers.js';
 
 /** A value given for an input, with the file it came from (for messages). */
 export interface InputValue extends Value {
   file?: string;
+  /** Read from a file: its first int64/uint64 element beyond 2^53, exactly (that element is rounded in `data`). */
+  wide?: WideValue;
 }
 
 /** The raw flag strings as typed (each repeatable). */
@@ -90,7 +93,8 @@ export function loadInputFile(path: string): InputValue {
   }
   try {
     const t = parseTensor(bytes); // .pb: a serialized ONNX TensorProto
-    return { type: t.dataType, dims: [...t.dims], data: tensorToFloat64(t), file: path };
+    const wide = firstWideInTensor(t);
+    return { type: t.dataType, dims: [...t.dims], data: tensorToFloat64(t), file: path, ...(wide ? { wide } : {}) };
   } catch (e) {
     if (e instanceof PleatError) throw new PleatError('bad-input', `${path}: ${e.message}`);
     throw e;
@@ -176,6 +180,10 @@ export function resolveInputs(graph: Graph, given: ReadonlyMap<string, InputValu
       throw new PleatError('bad-input', `input '${vi.name}': --shape says [${s.join(',')}] but ${source} has [${v.dims.join(',')}]`);
     }
     fit(vi, v.dims, source);
+    const wide = canBeWide(v.type) ? v.wide ?? firstWideValue(v.data) : undefined;
+    if (wide) {
+      throw new PleatError('bad-input', `input '${vi.name}': ${source} holds ${wide.text} (element ${wide.index}), beyond 2^53 = ${EXACT_INTEGER_LIMIT}; pleat's evaluator holds integers in float64, which would round it`);
+    }
   }
 
   return needed.map((vi): InputSpec => {

@@ -7,6 +7,7 @@
 import { readFileSync } from 'node:fs';
 import { DataType, elementCount, type DataTypeCode } from '../graph/ir.js';
 import type { Value } from '../eval/value.js';
+import { firstWideInRaw, type WideValue } from './wide-integers.js';
 import { PleatError } from '../errors.js';
 import { bfloatBitsToNumber, dataTypeName, halfBitsToNumber, numberToBfloatBits, numberToHalfBits } from '../graph/tensor.js';
 
@@ -100,7 +101,10 @@ function parseLiteral(text: string, file: string): Lit {
 // ---- read ---------------------------------------------------------------------------------------------
 
 /** Decode .npy bytes into a Value (all element types held as Float64Array). `file` names the source in errors. */
-export function parseNpy(bytes: Uint8Array, file = '<npy>'): Value {
+/** A value read from a .npy file; `wide` is its first int64/uint64 element beyond 2^53 (rounded in `data`). */
+export type NpyValue = Value & { wide?: WideValue };
+
+export function parseNpy(bytes: Uint8Array, file = '<npy>'): NpyValue {
   const bad = (why: string): never => { throw new PleatError('bad-input', `${file}: ${why}`); };
   if (bytes.length < 10 || MAGIC.some((m, k) => bytes[k] !== m)) bad('not a .npy file (missing the \\x93NUMPY magic)');
   const major = bytes[6]!;
@@ -159,11 +163,12 @@ export function parseNpy(bytes: Uint8Array, file = '<npy>'): Value {
     case 'u8': for (let i = 0; i < n; i++) out[i] = Number(d.getBigUint64(i * 8, little)); break;
     case 'b1': for (let i = 0; i < n; i++) out[i] = d.getUint8(i) ? 1 : 0; break;
   }
-  return { type, dims: [...dims], data: out };
+  const wide = key === 'i8' || key === 'u8' ? firstWideInRaw(d, n, key === 'i8', little) : undefined;
+  return wide ? { type, dims: [...dims], data: out, wide } : { type, dims: [...dims], data: out };
 }
 
 /** Read a .npy file; every failure is a one-line PleatError('bad-input') naming the file. */
-export function readNpy(path: string): Value {
+export function readNpy(path: string): NpyValue {
   let bytes: Uint8Array;
   try {
     bytes = readFileSync(path);

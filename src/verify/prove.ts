@@ -1,7 +1,7 @@
 // The numeric proof of one fold: the region the fold rewrites is run before and after the edit on seeded
 // probes of a small valid shape, in float64, and must agree within the rounding of the weights' storage type.
 // No model input shapes are needed: each region input gets a shape derived from the layer that reads it.
-import type { DataTypeCode, Graph, Node, Tensor } from '../graph/ir.js';
+import type { DataTypeCode, Dim, Graph, Node, Tensor } from '../graph/ir.js';
 import { DataType, attrInt, attrInts } from '../graph/ir.js';
 import type { ProofCase } from '../fold/types.js';
 import type { Value } from '../eval/value.js';
@@ -144,6 +144,24 @@ function shapeFor(g: Graph, n: Node, at: number, rank: number | undefined): numb
   }
 }
 
+/**
+ * The small probe shapes, then the same shapes with every dim the model declares as a number put in (and the
+ * declared shape itself when it is wholly known and of a rank no small shape has). The small ones come first,
+ * as the proof's cost grows with the shape; the declared dims are for regions whose constants fix a dim the
+ * layer does not say, such as a Gemm whose C has one bias per row ([M, 1]): only M rows broadcast against it.
+ * A symbolic dim keeps its small probe size.
+ */
+function withDeclaredDims(shapes: number[][], declared: readonly Dim[] | undefined): number[][] {
+  if (!declared) return shapes;
+  const known = (d: Dim): d is number => typeof d === 'number' && d > 0;
+  const all = [...shapes];
+  for (const s of shapes) {
+    if (s.length === declared.length) all.push(s.map((d, k) => (known(declared[k]!) ? declared[k] as number : d)));
+  }
+  if (declared.length > 0 && declared.every(known) && !shapes.some((s) => s.length === declared.length)) all.push([...declared] as number[]);
+  return all.filter((s, i) => all.findIndex((t) => t.join() === s.join()) === i);
+}
+
 function sameDims(a: readonly number[], b: readonly number[]): boolean {
   return a.length === b.length && a.every((d, i) => d === b[i]);
 }
@@ -154,7 +172,7 @@ export function proveFold(c: ProofCase, opts: { probes?: number; seed?: number }
   const tol = tolerance([c.before, c.after]);
   const options: Array<{ name: string; type: DataTypeCode; shapes: number[][] }> = [];
   for (const i of c.before.inputs) {
-    const shapes = probeShapes(c.before, i.name, i.shape?.length);
+    const shapes = withDeclaredDims(probeShapes(c.before, i.name, i.shape?.length), i.shape);
     if (!shapes.length) return { passed: false, maxAbs: NaN, maxRel: NaN, shape: [], scale: NaN, tolerance: tol, problem: `no probe shape for region input '${i.name}'` };
     options.push({ name: i.name, type: i.elemType ?? DataType.FLOAT, shapes });
   }

@@ -13,9 +13,21 @@ export type CheckStatus = 'passed' | 'failed' | 'skipped';
  * - `no-kernel`: the evaluator has no kernel for an operator (or attribute value) of the model;
  * - `random-op`: the model draws random numbers (Bernoulli, RandomNormal, ...), so two runs cannot be compared;
  * - `no-elements`: an output had no elements on any probe, or none that is a finite number in both models (NaN
- *   or infinite throughout: those agree but compare nothing), or the model has no outputs.
+ *   or infinite throughout: those agree but compare nothing), or the model has no outputs;
+ * - `wide-integers`: an int64/uint64 output held a value at or beyond 2^53, which the float64 evaluator may have
+ *   rounded (src/verify/wide-integers.ts), so that output was not compared.
  */
-export type SkipReason = 'no-shape' | 'no-kernel' | 'random-op' | 'no-elements';
+export type SkipReason = 'no-shape' | 'no-kernel' | 'random-op' | 'no-elements' | 'wide-integers';
+
+/** An output status that compared nothing there, so the check is skipped (not failed) for it. */
+export function outputSkipped(status: string): boolean {
+  return status === 'empty' || status === 'wide-integers';
+}
+
+/** The skip reason an output status gives (for outputs that outputSkipped says compared nothing). */
+export function outputSkipReason(status: string): SkipReason {
+  return status === 'wide-integers' ? 'wide-integers' : 'no-elements';
+}
 
 export interface SkipInfo {
   reason: SkipReason;
@@ -34,18 +46,20 @@ export interface Coverage {
 
 /** The status of a comparison from its outputs' results. */
 export function checkStatus(outputs: ReadonlyArray<{ name: string; status: string; passed: boolean; metrics?: { count: number } }>): { status: CheckStatus; skipped: SkipInfo | null } {
-  if (outputs.some((o) => !o.passed && o.status !== 'empty')) return { status: 'failed', skipped: null };
+  if (outputs.some((o) => !o.passed && !outputSkipped(o.status))) return { status: 'failed', skipped: null };
   if (outputs.length === 0) return { status: 'skipped', skipped: { reason: 'no-elements', message: 'the model has no outputs, so nothing was compared' } };
   const empty = outputs.filter((o) => o.status === 'empty');
-  if (empty.length) {
+  const wide = outputs.filter((o) => o.status === 'wide-integers').map((o) => `'${o.name}'`);
+  if (empty.length || wide.length) {
     // (an empty output with elements had none that was a finite number in both models)
     const none = empty.filter((o) => !o.metrics || o.metrics.count === 0).map((o) => `'${o.name}'`);
     const nonFinite = empty.filter((o) => o.metrics && o.metrics.count > 0).map((o) => `'${o.name}'`);
     const parts = [
       ...(none.length ? [`output ${none.join(', ')} had no elements on any probe`] : []),
       ...(nonFinite.length ? [`output ${nonFinite.join(', ')} had no element that is a finite number in both models on any probe (NaN or infinite throughout)`] : []),
+      ...(wide.length ? [`output ${wide.join(', ')} held an integer at or beyond 2^53, which float64 may have rounded`] : []),
     ];
-    return { status: 'skipped', skipped: { reason: 'no-elements', message: `${parts.join('; ')}, so nothing was compared there` } };
+    return { status: 'skipped', skipped: { reason: empty.length ? 'no-elements' : 'wide-integers', message: `${parts.join('; ')}, so nothing was compared there` } };
   }
   return { status: 'passed', skipped: null };
 }

@@ -11,6 +11,7 @@ import { join } from 'node:path';
 import { GraphBuilder, modelBytes, randn, rng, uniform } from '../helpers/build.js';
 import { ROOT, pleat } from '../helpers/cli.js';
 import { parseJunit, schemaValidator } from '../report/helpers.js';
+import { npyInt64 } from '../helpers/npy.js';
 import { readModelFile } from '../../src/onnx/read.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'pleat-check-status-'));
@@ -46,6 +47,20 @@ function emptyOutputModel(): string {
   g.init('s0', [1], [0], 7); g.init('e0', [1], [0], 7); g.init('ax', [1], [0], 7);
   g.node('Slice', ['x', 's0', 'e0', 'ax'], {}, { name: 'empty', outputs: ['none'] });
   return save('empty-output.onnx', modelBytes(g));
+}
+
+/**
+ * A foldable block beside an int64 path whose output passes 2^53 (x + 2^60): float64, the evaluator's value store,
+ * may round such integers (IEEE 754 binary64), so that output can never be compared exactly.
+ */
+function wideOutputModel(): string {
+  const g = new GraphBuilder();
+  g.input('x', [1, 3, 4, 4]).input('ids', [2], 7).output('y', [1, 4, 4, 4]).output('key', [2], 7);
+  const b = convBn(g, 'x', 3, 4, 'blk', 5);
+  g.node('Relu', [b], {}, { name: 'act', outputs: ['y'] });
+  g.init('offset', [1], [2 ** 60], 7);
+  g.node('Add', ['ids', 'offset'], {}, { name: 'keyed', outputs: ['key'] });
+  return save('wide-output.onnx', modelBytes(g));
 }
 
 const json = (stdout: string) => JSON.parse(stdout);
@@ -141,6 +156,65 @@ describe('check status', { timeout: 180_000 }, () => {
     const cx = parseJunit(pleat(['compare', m, m, '--format', 'junit']).stdout);
     const none = (cx.testsuites.testsuite[0].testcase as Array<{ '@name': string; skipped?: unknown }>).find((k) => k['@name'] === 'output none');
     expect(none?.skipped).toBeDefined();
+  });
+
+  it('an int64 output at or beyond 2^53: skipped (wide-integers), not passed, in fold, compare and every format; evaluate refuses it', () => {
+    const m = wideOutputModel();
+    const out = join(dir, 'wide.onnx');
+    const r = pleat(['fold', m, '-o', out, '--json']);
+    expect(r.code).toBe(0);
+    const j = json(r.stdout);
+    expect(schemaValidator()(j)).toBe(true);
+    expect(j.normalizations.map((n: { status: string }) => n.status)).toEqual(['folded']);
+    expect([j.check.status, j.check.passed, j.check.skipped.reason]).toEqual(['skipped', false, 'wide-integers']);
+    expect(j.check.skipped.message).toMatch(/'key'/);
+    const key = j.check.outputs.find((o: { name: string }) => o.name === 'key');
+    expect([key.status, key.passed]).toEqual(['wide-integers', false]);
+    expect(j.check.outputs.find((o: { name: string }) => o.name === 'y').passed).toBe(true);
+    expect(pleat(['fold', m, '-o', out]).stdout).toMatch(/whole-model check: skipped \(wide-integers\)/);
+    const x = parseJunit(pleat(['fold', m, '-o', out, '--format', 'junit']).stdout);
+    const cases = x.testsuites.testsuite[0].testcase as Array<{ '@name': string; skipped?: { '@message': string } }>;
+    expect(cases.find((k) => k['@name'] === 'check output key')?.skipped?.['@message']).toMatch(/^wide-integers: /);
+    expect(pleat(['fold', m, '-o', out, '--strict']).code).toBe(1);
+    const c = pleat(['compare', m, m, '--json']);
+    expect(c.code).toBe(0);
+    const cj = json(c.stdout);
+    expect(schemaValidator()(cj)).toBe(true);
+    expect([cj.status, cj.passed, cj.skipped.reason]).toEqual(['skipped', false, 'wide-integers']);
+    expect(pleat(['compare', m, m, '--strict']).code).toBe(1);
+    const e = pleat(['evaluate', m, '--save', join(dir, 'wide-saved')]);
+    expect(e.code).toBe(2);
+    expect(e.stderr.trim().split('\n')).toHaveLength(1);
+    expect(e.stderr).toMatch(/^pleat: output 'key' holds \d+ \(element 0\), at or beyond 2\^53/);
+    expect(existsSync(join(dir, 'wide-saved', 'outputs.json'))).toBe(false);
+    // an input file beyond 2^53: refused before anything runs, one line naming the input and the exact value
+    const ids = save('ids.npy', npyInt64([2], BigInt64Array.from([3n, 2n ** 62n + 1n])));
+    for (const cmd of [['evaluate', m, '--save', join(dir, 'wide-saved')], ['compare', m, m], ['fold', m, '-o', out]]) {
+      const f = pleat([...cmd, '--input', `ids=${ids}`]);
+      expect(f.code, cmd[0]).toBe(2);
+      expect(f.stderr, cmd[0]).toBe(`pleat: input 'ids': ${ids} holds ${(2n ** 62n + 1n).toString()} (element 1), beyond 2^53 = 9007199254740992; pleat's evaluator holds integers in float64, which would round it\n`);
+    }
+  });
+
+  it('a probe shape the original cannot run (symbolic H, W took size 1 under a 3x3 Conv): the original is named, with --dim', () => {
+    // BatchNormalization -> Conv folds into the Conv, which then comes first in the folded model and so meets the
+    // 1x1 probe before the original's does (the two run node by node together)
+    const g = new GraphBuilder();
+    g.input('x', ['N', 3, 'H', 'W']).output('y');
+    const r = rng(9);
+    g.init('s', [3], uniform(r, 3, 0.5, 1.5)); g.init('t', [3], randn(r, 3)); g.init('m', [3], randn(r, 3)); g.init('v', [3], uniform(r, 3, 0.5, 2));
+    const n = g.node('BatchNormalization', ['x', 's', 't', 'm', 'v'], {}, { name: 'bn' });
+    g.init('w', [4, 3, 3, 3], randn(r, 108, 0.3));
+    g.node('Conv', [n, 'w'], {}, { name: 'conv', outputs: ['y'] });
+    const m = save('small-probe.onnx', modelBytes(g));
+    const out = join(dir, 'small-probe-folded.onnx');
+    const f = pleat(['fold', m, '-o', out]);
+    expect(f.code).toBe(2);
+    expect(f.stderr).toMatch(/^pleat: the original model \(small-probe\.onnx\), float64 run: node 'conv' \(Conv\): input spatial size 1 is too small for kernel 3/);
+    expect(f.stderr).toContain('--dim H=<size>');
+    expect(f.stderr).not.toMatch(/folded model/);
+    expect(existsSync(out)).toBe(false);
+    expect(pleat(['fold', m, '-o', out, '--dim', 'H=5', '--dim', 'W=4']).code).toBe(0);
   });
 
   it('--strict: a skipped check exits 1 and writes nothing; strict in the config file does the same', () => {

@@ -4,6 +4,7 @@ import { describe, expect, it } from 'vitest';
 import { GraphBuilder, modelBytes } from '../helpers/build.js';
 import { parseModel } from '../../src/onnx/read.js';
 import { evaluatorGaps } from '../../src/eval/coverage.js';
+import { runModel } from '../../src/eval/run.js';
 
 function model(build: (g: GraphBuilder) => void, opset = 17, extra: Array<[string, number]> = []) {
   const g = new GraphBuilder();
@@ -45,4 +46,39 @@ describe('evaluatorGaps', () => {
     expect(evaluatorGaps(model(build, 13))).toEqual([{ op: 'Trilu', opset: 13, count: 1, reason: 'no-kernel' }]);
     expect(evaluatorGaps(model(build, 14))).toEqual([]);
   });
+});
+
+describe('what survey calls runnable runs', () => {
+  // evaluatorGaps looks operators up by opset only, so every form of an operator pleat has a kernel for must run;
+  // these are forms a kernel once refused while survey called the model runnable.
+  const cases: Array<{ what: string; opset: number; build: (g: GraphBuilder) => void; x: number[] }> = [
+    ...[11, 13].map((opset) => ({
+      what: `Resize coordinate_transformation_mode tf_half_pixel_for_nn (Resize-${opset} operator doc)`, opset, x: [1, 1, 3, 4],
+      build: (g: GraphBuilder) => {
+        g.input('x', [1, 1, 3, 4]).output('y');
+        g.init('roi', [0], []); g.init('s', [4], [1, 1, 1.5, 0.5]);
+        g.node('Resize', ['x', 'roi', 's'], { mode: 'nearest', coordinate_transformation_mode: 'tf_half_pixel_for_nn' }, { outputs: ['y'] });
+      },
+    })),
+    ...[2, 11, 18].map((opset) => ({
+      what: `LpPool (LpPool-${opset} operator doc)`, opset, x: [1, 2, 5],
+      build: (g: GraphBuilder) => {
+        g.input('x', [1, 2, 5]).output('y');
+        g.node('LpPool', ['x'], { kernel_shape: [2], p: 3 }, { outputs: ['y'] });
+      },
+    })),
+    {
+      what: 'GlobalLpPool (GlobalLpPool-2 operator doc)', opset: 2, x: [1, 2, 3, 3],
+      build: (g: GraphBuilder) => { g.input('x', [1, 2, 3, 3]).output('y'); g.node('GlobalLpPool', ['x'], {}, { outputs: ['y'] }); },
+    },
+  ];
+  for (const c of cases) {
+    it(c.what, () => {
+      const m = model(c.build, c.opset);
+      expect(evaluatorGaps(m)).toEqual([]);
+      const x = { type: 1, dims: c.x, data: Float64Array.from({ length: c.x.reduce((a, b) => a * b, 1) }, (_, i) => i) };
+      const out = runModel(m, new Map([['x', x]]), { precision: 'float64' });
+      expect(out.get('y')).toBeDefined();
+    });
+  }
 });

@@ -57,6 +57,49 @@ describe('AveragePool vs onnxruntime-node', () => {
   });
 });
 
+// auto_pad=VALID with ceil_mode=1: the output size is ceil((in - dk + 1) / s) (ONNX Operators, MaxPool/AveragePool
+// "auto_pad" output shape); a last window that ceil would start past the input end is dropped, as onnxruntime does.
+// The random geometries above drop ceil_mode for auto_pad, so this loop covers the pair on its own.
+describe('auto_pad=VALID with ceil_mode=1 vs onnxruntime-node', () => {
+  it('MaxPool (opsets 10-12, Indices) and AveragePool (opsets 10, 11, 19) on seeded geometries', async () => {
+    for (let seed = 1; seed <= 40; seed++) {
+      const r = rng(seed + 1300);
+      const sp = int(r, 1, 3);
+      const kernel: number[] = [], strides: number[] = [], dil: number[] = [], inSp: number[] = [];
+      for (let i = 0; i < sp; i++) {
+        kernel.push(int(r, 1, 3)); strides.push(int(r, 1, 4)); dil.push(int(r, 1, 2));
+        inSp.push((kernel[i]! - 1) * dil[i]! + 1 + int(r, 0, sp === 3 ? 4 : 7));
+      }
+      const max = seed % 2 === 0;
+      const opset = max ? [10, 11, 12][seed % 3]! : [10, 11, 19][seed % 3]!;
+      const attrs: Record<string, AttrIn> = { kernel_shape: kernel, strides, auto_pad: 'VALID', ceil_mode: 1 };
+      if (opset >= (max ? 10 : 19)) attrs.dilations = dil;
+      const dims = [int(r, 1, 2), int(r, 1, 3), ...inSp];
+      const x: In = { name: 'x', dims, data: randn(r, prod(dims)) };
+      const outs = max && seed % 4 === 0 ? ['y', 'i:int64'] : ['y'];
+      await checkOp(max ? 'MaxPool' : 'AveragePool', opset, [x], attrs, outs, 1e-5, `seed ${seed} x[${dims}]`);
+    }
+  });
+  it('the red-team case: x[1,2,6], kernel 2, stride 3 gives [1,2,2] (onnxruntime-node)', async () => {
+    const x: In = { name: 'x', dims: [1, 2, 6], data: randn(rng(7), 12) };
+    for (const op of ['MaxPool', 'AveragePool']) {
+      const res = await checkOp(op, 11, [x], { kernel_shape: [2], strides: [3], auto_pad: 'VALID', ceil_mode: 1 }, ['y']);
+      expect(res.f64.get('y')!.dims).toEqual([1, 2, 2]);
+    }
+  });
+});
+
+describe('MaxPool Indices with storage_order=1 (column-major, MaxPool operator doc) vs onnxruntime-node', () => {
+  it('1-D, 2-D and 3-D pools, opsets 8, 10, 11, 12', async () => {
+    for (let seed = 1; seed <= 36; seed++) {
+      const opset = [8, 10, 11, 12][seed % 4]!;
+      const c = randomPool(rng(seed + 1700), { dilations: opset >= 10, ceil: opset >= 10 });
+      c.attrs.storage_order = 1;
+      await checkOp('MaxPool', opset, [c.x], c.attrs, ['y', 'i:int64'], 1e-6, `seed ${seed} ${c.label}`);
+    }
+  });
+});
+
 describe('GlobalAveragePool, GlobalMaxPool vs onnxruntime-node', () => {
   it('rank 3 to 5', async () => {
     for (let seed = 1; seed <= 12; seed++) {

@@ -49,7 +49,6 @@ describe('Pad vs onnxruntime-node', () => {
   });
 });
 
-// onnxruntime-node 1.30 rejects tf_half_pixel_for_nearest, so that mode is checked by hand below
 const CTMS = ['half_pixel', 'asymmetric', 'align_corners', 'pytorch_half_pixel'];
 
 describe('Resize vs onnxruntime-node', () => {
@@ -152,12 +151,32 @@ describe('Resize align_corners when the scale does not give a whole output lengt
   });
 });
 
-describe('Resize tf_half_pixel_for_nearest (formula from the ONNX operator docs: x_original = (x_resized + 0.5) / scale)', () => {
+describe('Resize tf_half_pixel_for_nn (Resize-11/13 operator doc: x_original = (x_resized + 0.5) / scale)', () => {
+  it('vs onnxruntime-node: opsets 11, 13 (and 18, 19, which onnxruntime still runs), nearest modes, linear, cubic, scales or sizes', async () => {
+    for (let seed = 1; seed <= 32; seed++) {
+      const r = rng(seed + 2100);
+      const dims = [int(r, 1, 2), int(r, 1, 2), int(r, 1, 6), int(r, 1, 6)];
+      const opset = [11, 13, 11, 13, 18, 19][seed % 6]!;
+      const mode = pick(r, ['nearest', 'nearest', 'nearest', 'linear', 'cubic']);
+      const attrs: Record<string, AttrIn> = { mode, coordinate_transformation_mode: 'tf_half_pixel_for_nn' };
+      if (mode === 'nearest') attrs.nearest_mode = pick(r, ['round_prefer_floor', 'round_prefer_ceil', 'floor', 'ceil']);
+      const ins: In[] = [{ name: 'x', dims, data: randn(r, prod(dims)) }];
+      const roi = opset >= 13 ? { name: '', dims: [], data: [] } : { name: 'roi', dims: [0], data: [], init: true };
+      if (r() < 0.5) {
+        ins.push(roi, opset >= 13 ? { name: '', dims: [], data: [] } : { name: 's', dims: [0], data: [], init: true },
+          { name: 'z', dims: [4], data: [dims[0]!, dims[1]!, int(r, 1, 9), int(r, 1, 9)], type: T.INT64, init: true });
+      } else {
+        ins.push(roi, { name: 's', dims: [4], data: [1, 1, pick(r, [0.5, 0.75, 1, 1.5, 2, 3, 0.6]), pick(r, [0.5, 1, 1.6, 2, 2.5, 0.8])], init: true });
+      }
+      await checkOp('Resize', opset, ins, attrs, ['y'], 1e-5, `seed ${seed} [${dims}]`);
+    }
+  });
+
   it('downsample by 0.5 and upsample by 1.5 along one axis', () => {
     const run = (n: number, scale: number, mode: string) => {
       const data = Array.from({ length: n }, (_, i) => 10 * (i + 1));
       const ins: In[] = [{ name: 'x', dims: [1, n], data }, { name: '', dims: [], data: [] }, { name: 's', dims: [2], data: [1, scale], init: true }];
-      const model = parseModel(modelBytes(oneNode('Resize', ins, { mode: 'nearest', nearest_mode: mode, coordinate_transformation_mode: 'tf_half_pixel_for_nearest' }, ['y']), { opset: 13 }), '.');
+      const model = parseModel(modelBytes(oneNode('Resize', ins, { mode: 'nearest', nearest_mode: mode, coordinate_transformation_mode: 'tf_half_pixel_for_nn' }, ['y']), { opset: 13 }), '.');
       return Array.from(runModel(model, new Map([['x', { type: 1, dims: [1, n], data: Float64Array.from(data) }]]), { precision: 'float64' }).get('y')!.data);
     };
     // 0.5: sources (0.5)/0.5 = 1, (1.5)/0.5 = 3 -> elements 1 and 3

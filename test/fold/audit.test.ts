@@ -67,6 +67,59 @@ describe('audit', () => {
   });
 });
 
+describe('a per-channel Mul/Add beside a layer whose constant weight no rule takes is listed as kept', () => {
+  // The README: every normalization is listed, kept ones included. A MatMul with a 3-D constant weight, or with
+  // its constant as the first operand (A), holds weights the MatMul rules do not fold into; the per-channel
+  // steps beside it are kept (no-linear-neighbour), fold leaves the model as it computes (onnxruntime-node on
+  // both models, foldAndCheck), and audit agrees with fold.
+  it('seeded 3-D weights and constant-A MatMuls, producer and consumer side', async () => {
+    for (let seed = 1; seed <= 12; seed++) {
+      const r = rng(seed + 90);
+      const pick = (lo: number, hi: number) => lo + Math.floor(r() * (hi - lo + 1));
+      const B = pick(1, 3), T0 = pick(2, 5), K = pick(2, 6), N = pick(2, 5);
+      const g = new GraphBuilder();
+      const form = ['3d-weight', 'const-a-rows', 'const-a-cols', 'const-a-consumer'][seed % 4]!;
+      const withAdd = seed % 3 !== 0;
+      const steps: string[] = [];
+      let feeds;
+      if (form === '3d-weight') {
+        g.input('x', [B, T0, K]).output('y', [B, T0, N]);
+        const c = g.node('MatMul', ['x', w(g, 'w', [B, K, N], seed)], {}, { name: 'mm' });
+        const m = g.node('Mul', [c, g.init('s', [N], randn(r, N, 0.3, 1))], {}, { name: 'scale', outputs: [withAdd ? 'm' : 'y'] });
+        steps.push('scale');
+        if (withAdd) { g.node('Add', [m, g.init('t', [N], randn(r, N))], {}, { name: 'shift', outputs: ['y'] }); steps.push('shift'); }
+        feeds = feedsFor({ x: [B, T0, K] }, seed);
+      } else if (form === 'const-a-rows' || form === 'const-a-cols') {
+        g.input('x', [K, T0]).output('y', [N, T0]);
+        const c = g.node('MatMul', [w(g, 'w', [N, K], seed), 'x'], {}, { name: 'mm' });
+        const dims = form === 'const-a-rows' ? [N, 1] : [T0];
+        const m = g.node('Mul', [c, g.init('s', dims, randn(r, dims[0]!, 0.3, 1))], {}, { name: 'scale', outputs: [withAdd ? 'm' : 'y'] });
+        steps.push('scale');
+        if (withAdd) { g.node('Add', [m, g.init('t', dims, randn(r, dims[0]!))], {}, { name: 'shift', outputs: ['y'] }); steps.push('shift'); }
+        feeds = feedsFor({ x: [K, T0] }, seed);
+      } else {
+        g.input('x', [K, T0]).output('y', [N, T0]);
+        const m = g.node('Mul', ['x', g.init('s', [K, 1], randn(r, K, 0.3, 1))], {}, { name: 'scale' });
+        steps.push('scale');
+        g.node('MatMul', [w(g, 'w', [N, K], seed), m], {}, { name: 'mm', outputs: ['y'] });
+        feeds = feedsFor({ x: [K, T0] }, seed);
+      }
+      const res = await foldAndCheck(g, feeds);
+      expect(res.findings.map((x) => `${x.node}:${x.kind}:${x.status}:${x.reason}`), `seed ${seed} ${form}`)
+        .toEqual(steps.map((n) => `${n}:normalization:kept:no-linear-neighbour`));
+      expect(res.findings.every((x) => /'mm'/.test(x.hint ?? '')), `seed ${seed}: the hint names the layer`).toBe(true);
+    }
+  });
+
+  it('a Mul/Add beside a MatMul of two computed values (no weights at all) is still not a normalization', () => {
+    const g = new GraphBuilder();
+    g.input('q', [2, 4, 8]).input('k', [2, 8, 4]).output('y');
+    const c = g.node('MatMul', ['q', 'k'], {}, { name: 'scores' });
+    g.node('Mul', [c, g.init('s', [4], [0.5, 0.25, 1, 2])], {}, { name: 'scale', outputs: ['y'] });
+    expect(analyze(parseModel(modelBytes(g), dir))).toEqual([]);
+  });
+});
+
 describe('ledger, determinism and byte identity', () => {
   const resnetish = () => {
     const g = new GraphBuilder();

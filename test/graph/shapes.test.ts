@@ -87,6 +87,21 @@ describe('inferShapes', () => {
     }
   });
 
+  it('pooling with ceil_mode=1, explicit pads or auto_pad=VALID: a window that would start past the input is not counted (onnxruntime-node dims)', async () => {
+    for (let seed = 1; seed <= 24; seed++) {
+      const r = rng(seed + 70);
+      const pick = (lo: number, hi: number) => lo + Math.floor(r() * (hi - lo + 1));
+      const k = pick(1, 3), s = pick(2, 4), len = k + pick(0, 8), p0 = pick(0, k - 1), p1 = pick(0, k - 1);
+      const attrs = seed % 2 ? { kernel_shape: [k], strides: [s], auto_pad: 'VALID', ceil_mode: 1 } : { kernel_shape: [k], strides: [s], pads: [p0, p1], ceil_mode: 1 };
+      const g = new GraphBuilder();
+      g.input('x', [1, 2, len]).output('y');
+      g.node(seed % 4 < 2 ? 'MaxPool' : 'AveragePool', ['x'], attrs, { name: 'pool', outputs: ['y'] });
+      const bytes = modelBytes(g, { opset: 12 });
+      const got = await runOrt(bytes, { x: { dims: [1, 2, len], data: Float32Array.from(randn(r, 2 * len)) } });
+      expect(inferShapes(parseModel(bytes, dir).graph).get('y'), `seed ${seed} len ${len} ${JSON.stringify(attrs)}`).toEqual(got.y!.dims);
+    }
+  });
+
   it('leaves a shape unknown when it depends on values computed at run time, and marks symbolic dims -1', () => {
     const g = new GraphBuilder();
     g.input('x', ['batch', 4, 6]).input('target', [2], 7).output('y').output('z');

@@ -26,3 +26,17 @@ export function readNpyHeader(bytes: Uint8Array): { descr: string; shape: number
   const shape = /'shape':\s*\(([^)]*)\)/.exec(header)![1]!.split(',').map((s) => s.trim()).filter(Boolean).map(Number);
   return { descr, shape, dataOffset: start + len };
 }
+
+/** A .npy of 64-bit integers ('<i8' or '<u8'), each value written exactly (same format description as above). */
+export function npyInt64(dims: number[], data: BigInt64Array | BigUint64Array): Uint8Array {
+  const shape = dims.length === 1 ? `(${dims[0]},)` : `(${dims.join(', ')})`;
+  let header = `{'descr': '${data instanceof BigInt64Array ? '<i8' : '<u8'}', 'fortran_order': False, 'shape': ${shape}, }`;
+  const total = 10 + header.length + 1;
+  header += ' '.repeat((64 - (total % 64)) % 64) + '\n';
+  const out = new Uint8Array(10 + header.length + data.byteLength);
+  out.set([0x93, 0x4e, 0x55, 0x4d, 0x50, 0x59, 1, 0], 0);
+  new DataView(out.buffer).setUint16(8, header.length, true);
+  out.set(new TextEncoder().encode(header), 10);
+  out.set(new Uint8Array(data.buffer, data.byteOffset, data.byteLength), 10 + header.length);
+  return out;
+}

@@ -389,3 +389,46 @@ describe('a probe whose reference output is all zeros', () => {
     expect(compare(reluOfSum(0), reluOfSum(0.5), { probes: 8 }).status).toBe('failed');
   });
 });
+
+describe('which model a run failure is blamed on', () => {
+  /**
+   * x [N, 2, H, W] [-> BatchNormalization] -> Conv (kernel k, no padding) -> y. Without the norm the Conv comes
+   * first, so in a pair run node by node it meets the probe before the other model's Conv does.
+   */
+  function convModel(k: number, bn: boolean, seed: number) {
+    const r = rng(seed);
+    const g = new GraphBuilder();
+    g.input('x', ['N', 2, 'H', 'W']).output('y');
+    if (bn) {
+      g.init('s', [2], [1, 2]); g.init('t', [2], [0, 1]); g.init('m', [2], [0.1, 0]); g.init('v', [2], [1, 0.5]);
+      g.node('BatchNormalization', ['x', 's', 't', 'm', 'v'], {}, { name: 'bn', outputs: ['n'] });
+    }
+    g.init('w', [3, 2, k, k], randn(r, 6 * k * k));
+    g.node('Conv', [bn ? 'n' : 'x', 'w'], {}, { name: 'conv', outputs: ['y'] });
+    return parseModel(modelBytes(g), dir);
+  }
+  const sides = { sideNames: ['the original model', 'the folded model'] as const };
+  function failure(f: () => unknown): string {
+    try { f(); } catch (e) { expect(e).toBeInstanceOf(PleatError); return (e as Error).message; }
+    throw new Error('expected a failure');
+  }
+
+  it('both models fail at the probe shape (symbolic dims took size 1): the original is named, with --dim', () => {
+    for (let seed = 1; seed <= 6; seed++) {
+      const k = 2 + (seed % 3);
+      // B is A without its BatchNormalization: it meets the same Conv, which a 1x1 probe cannot feed, first
+      const msg = failure(() => compare(convModel(k, true, seed), convModel(k, false, seed), sides));
+      expect(msg, `seed ${seed}`).toMatch(/^the original model, float64 run: node 'conv' \(Conv\): input spatial size 1 is too small for kernel/);
+      expect(msg).toContain('the symbolic dims N, H, W (no --dim given)');
+      expect(msg).toContain('--dim H=<size>');
+      // with sizes the Conv can run at, the pair compares
+      expect(compare(convModel(k, true, seed), convModel(k, true, seed), { ...sides, dims: { N: 1, H: k + 1, W: k } }).status).toBe('passed');
+    }
+  });
+
+  it('only the candidate fails: it is the one named, without the --dim hint', () => {
+    const msg = failure(() => compare(convModel(1, false, 3), convModel(3, false, 3), sides));
+    expect(msg).toMatch(/^the folded model, float64 run: node 'conv' \(Conv\): input spatial size 1 is too small for kernel 3/);
+    expect(msg).not.toContain('--dim');
+  });
+});

@@ -8,6 +8,7 @@ import type { ProofCase } from '../../src/fold/types.js';
 import { proveFold } from '../../src/verify/prove.js';
 import { tensorToFloat64 } from '../../src/graph/tensor.js';
 import { setTensorValues } from '../../src/graph/edit.js';
+import { foldAndCheck, feedsFor } from '../fold/harness.js';
 
 function convBn(seed: number, rank: 3 | 4 | 5, symbolic: boolean) {
   const r = rng(seed);
@@ -72,5 +73,43 @@ describe('per-fold proofs', () => {
     expect(seen!.passed).toBe(false);
     expect(seen!.maxAbs).toBeGreaterThan(seen!.tolerance * seen!.scale);
     expect(r.ledger.normalizations.map((n) => [n.status, n.reason])).toEqual([['kept', 'proof-failed']]);
+  });
+});
+
+describe('probe shapes take the dims the model declares when the small probe does not fit', () => {
+  // Gemm whose C holds one bias per row ([M, 1], M declared): only M rows broadcast against C, so a probe with
+  // the layer's small row count is refused by the original region itself. The fold is still valid: checked
+  // with onnxruntime-node on both models (foldAndCheck) and by the proof, which must pass at the declared M.
+  it('Gemm (C per row, transA/transB) -> BatchNormalization folds, proven at the declared row count', async () => {
+    for (let seed = 1; seed <= 8; seed++) {
+      const r = rng(seed + 400);
+      const pick = (lo: number, hi: number) => lo + Math.floor(r() * (hi - lo + 1));
+      const M = [2, 4, 5, 6, 7][pick(0, 4)]!, K = pick(2, 9), N = pick(2, 6);
+      const transA = seed % 2, transB = (seed >> 1) % 2;
+      const g = new GraphBuilder();
+      g.input('x', transA ? [K, M] : [M, K]).output('y', [M, N]);
+      g.init('w', transB ? [N, K] : [K, N], randn(r, K * N));
+      g.init('c', [M, 1], randn(r, M));
+      g.init('s', [N], uniform(r, N, 0.5, 1.5)); g.init('b', [N], randn(r, N, 0.2));
+      g.init('m', [N], randn(r, N, 0.3)); g.init('v', [N], uniform(r, N, 0.1, 2));
+      const gm = g.node('Gemm', ['x', 'w', 'c'], { transA, transB }, { name: 'dense' });
+      g.node('BatchNormalization', [gm, 's', 'b', 'm', 'v'], { epsilon: f(1e-5) }, { name: 'bn', outputs: ['y'] });
+      const proofs: Array<ReturnType<typeof proveFold>> = [];
+      const res = await foldAndCheck(g, feedsFor({ x: transA ? [K, M] : [M, K] }, seed), { prove: (c) => { const p = proveFold(c); proofs.push(p); return p.passed; } }, { opset: 13 });
+      expect(res.ledger.normalizations.map((n) => `${n.status}:${n.reason ?? ''}`), `seed ${seed} M ${M}`).toEqual(['folded:']);
+      expect(proofs.map((p) => p.shape), `seed ${seed}`).toEqual([transA ? [K, M] : [M, K]]);
+    }
+  });
+
+  it('a symbolic row count keeps the small probe (a per-column C fits any M)', () => {
+    const r = rng(5);
+    const g = new GraphBuilder();
+    g.input('x', ['rows', 4]).output('y');
+    g.init('w', [4, 3], randn(r, 12)); g.init('c', [3], randn(r, 3));
+    g.init('s', [3], uniform(r, 3, 0.5, 1.5)); g.init('b', [3], randn(r, 3)); g.init('m', [3], randn(r, 3)); g.init('v', [3], uniform(r, 3, 0.5, 2));
+    g.node('BatchNormalization', [g.node('Gemm', ['x', 'w', 'c'], {}, { name: 'dense' }), 's', 'b', 'm', 'v'], {}, { name: 'bn', outputs: ['y'] });
+    const shapes: number[][] = [];
+    foldModel(parseModel(modelBytes(g), '/x'), { prove: (c) => { const p = proveFold(c); shapes.push(p.shape); return p.passed; } });
+    expect(shapes).toEqual([[3, 4]]);
   });
 });

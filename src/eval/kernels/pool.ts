@@ -3,12 +3,12 @@
 // AveragePool divides by the number of window taps inside the input, or with count_include_pad=1 by the
 // taps inside the explicitly padded input (taps that ceil_mode pushes past the end padding never count).
 // MaxPool's optional Indices output is the flat row-major index into X (storage_order=1: column-major
-// within the 2-D plane).
+// within each N x C plane, for 1 to 3 spatial axes).
 import { attrInt, attrInts, DataType, elementCount } from '../../graph/ir.js';
-import { allocFloat, badModel, need, slidingWindow, to3, unsupported, type Window } from '../attrs.js';
+import { allocFloat, badModel, need, slidingWindow, to3, type Window } from '../attrs.js';
 import type { Kernel, KernelContext, NumArray, Value } from '../value.js';
 
-interface AxisTaps {
+export interface AxisTaps {
   /** For output position o: input indices of its valid taps are idx[start[o] .. start[o+1]). */
   start: Int32Array;
   idx: Int32Array;
@@ -16,7 +16,8 @@ interface AxisTaps {
   padded: Int32Array;
 }
 
-function axisTaps(n: number, out: number, k: number, s: number, d: number, pb: number, pe: number): AxisTaps {
+/** The input taps of each output position along one spatial axis (shared with LpPool, lppool.ts). */
+export function axisTaps(n: number, out: number, k: number, s: number, d: number, pb: number, pe: number): AxisTaps {
   const start = new Int32Array(out + 1), padded = new Int32Array(out);
   const idx: number[] = [];
   for (let o = 0; o < out; o++) {
@@ -31,6 +32,18 @@ function axisTaps(n: number, out: number, k: number, s: number, d: number, pb: n
   }
   start[out] = idx.length;
   return { start, idx: Int32Array.from(idx), padded };
+}
+
+/**
+ * A row-major offset within one pooled plane (spatial axes padded in front to D x H x W) as the column-major
+ * offset over the model's own spatial axes: the first spatial axis varies fastest (MaxPool doc, storage_order;
+ * onnxruntime-node gives the same for 1-D, 2-D and 3-D pools, and for a 1-D pool the two orders are one).
+ */
+function columnMajor(local: number, inD: number, inH: number, inW: number, spatial: number): number {
+  const d = Math.floor(local / (inH * inW)), h = Math.floor(local / inW) % inH, w = local % inW;
+  if (spatial === 1) return w;
+  if (spatial === 2) return h + w * inH;
+  return d + h * inD + w * inD * inH;
 }
 
 function pool(X: Value, win: Window, ctx: KernelContext, mode: 'max' | 'avg', countPad: boolean, wantIdx: boolean, storageOrder: number): Value[] {
@@ -67,12 +80,7 @@ function pool(X: Value, win: Window, ctx: KernelContext, mode: 'max' | 'avg', co
               }
             }
             Y[yo] = best;
-            if (I) {
-              if (storageOrder === 1) {
-                const local = at - base, h = Math.floor(local / inW), w = local % inW;
-                I[yo] = base + w * inH + h;
-              } else I[yo] = at;
-            }
+            if (I) I[yo] = storageOrder === 1 ? base + columnMajor(at - base, inD, inH, inW, inSp.length) : at;
           } else {
             let sum = 0;
             for (let a = d0; a < d1; a++) {
@@ -97,11 +105,12 @@ function pool(X: Value, win: Window, ctx: KernelContext, mode: 'max' | 'avg', co
   return out;
 }
 
-function windowOf(X: Value, ctx: KernelContext): Window {
+/** The pooling window of node ctx.node over X (N x C x 1 to 3 spatial axes); `ceil` is its ceil_mode. */
+export function windowOf(X: Value, ctx: KernelContext, ceil = attrInt(ctx.node, 'ceil_mode', 0) !== 0): Window {
   if (X.dims.length < 3 || X.dims.length > 5) throw badModel(ctx, `input has rank ${X.dims.length}; pooling needs N x C x 1 to 3 spatial axes`);
   const kernel = attrInts(ctx.node, 'kernel_shape');
   if (!kernel) throw badModel(ctx, 'attribute kernel_shape is required');
-  return slidingWindow(ctx, X.dims.slice(2), kernel, attrInt(ctx.node, 'ceil_mode', 0) !== 0);
+  return slidingWindow(ctx, X.dims.slice(2), kernel, ceil);
 }
 
 export const MaxPool: Kernel = {
@@ -110,7 +119,6 @@ export const MaxPool: Kernel = {
     const X = need(inputs, 0, ctx, 'X');
     const wantIdx = ctx.node.outputs.length > 1 && ctx.node.outputs[1] !== '';
     const order = attrInt(ctx.node, 'storage_order', 0);
-    if (wantIdx && order === 1 && X.dims.length !== 4) throw unsupported(ctx, 'storage_order=1 Indices for a non-2-D pool');
     return pool(X, windowOf(X, ctx), ctx, 'max', false, wantIdx, order);
   },
 };

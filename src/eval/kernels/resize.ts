@@ -34,7 +34,10 @@ function sourceCoord(o: number, n: number, m: number, s: number, ctm: string, ro
     // the backend cases (onnxruntime uses the rounded length m; the two agree when n * scale is whole)
     case 'align_corners': return m === 1 || n * s === 1 ? 0 : (o * (n - 1)) / (n * s - 1);
     case 'asymmetric': return o / s;
-    case 'tf_half_pixel_for_nearest': return (o + 0.5) / s;
+    // Resize-11/13 (dropped from the Resize-18 doc; onnxruntime still runs it at 18 and 19, and so does pleat).
+    // An axis of scale 1 stays as it is, as onnxruntime leaves it, where the formula alone would shift it by half
+    // a pixel (the other modes map such an axis onto itself anyway).
+    case 'tf_half_pixel_for_nn': return s === 1 ? o : (o + 0.5) / s;
     case 'tf_crop_and_resize':
       return m > 1 ? roiStart * (n - 1) + (o * (roiEnd - roiStart) * (n - 1)) / (m - 1) : 0.5 * (roiStart + roiEnd) * (n - 1);
     default: throw unsupported(ctx, `coordinate_transformation_mode '${ctm}'`);

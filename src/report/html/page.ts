@@ -7,6 +7,7 @@
 import type { AuditReport, CheckSummary, FoldReport, OutputCheck, RunFigures } from '../../jobs/types.js';
 import type { Sketch } from '../../fold/sketch.js';
 import type { CompareReport } from '../../verify/compare.js';
+import { outputSkipped } from '../../verify/status.js';
 import type { GateLimit } from '../../verify/gate.js';
 import type { DiffHistogram } from '../../verify/metrics.js';
 import { bytesText, CAUTION, cosineText, dbText, numText, ratioText } from '../format.js';
@@ -248,7 +249,7 @@ export function compareBody(r: CompareReport, a: string, b: string, x: CompareEx
   ];
   const blocks = r.outputs.map((o, i) => {
     const at = `outputs.${i}`;
-    let figs = `${badge(o.status === 'empty' ? 'skipped' : o.passed ? 'passed' : 'failed')} ${esc(o.status)}`;
+    let figs = `${badge(outputSkipped(o.status) ? 'skipped' : o.passed ? 'passed' : 'failed')} ${esc(o.status)}`;
     if (o.metrics) figs += ` · ${metricFigures(o.metrics as unknown as Record<string, unknown>, `${at}.metrics`)}`;
     if (o.budget) figs += ` · added by B ${fig(`${at}.budget.addedAbs`, o.budget.addedAbs, numText(o.budget.addedAbs))} abs, ${fig(`${at}.budget.addedRel`, o.budget.addedRel, numText(o.budget.addedRel))} rel`;
     if (o.gate) figs += ` · gate <code>${esc(o.gate.expr)}</code>`;
