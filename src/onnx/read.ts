@@ -40,6 +40,19 @@ const NO_EXTRA: RawField[] = Object.freeze([]) as unknown as RawField[];
 /** Tensors with external data met since decodeModel began (none: parseModel skips the walk that loads them). */
 let externalSeen = 0;
 
+/** Names of the sparse initializers met since decodeModel began (kept as unknown fields; pleat cannot use them). */
+let sparseSeen: string[] = [];
+
+/** The name of a SparseTensorProto's values tensor (field 1, whose field 8 is the name). */
+function sparseName(buf: Buf, start: number, end: number): string {
+  let out = '';
+  for (const f = fieldsOf(buf, start, end); f.next();) {
+    if (f.no !== 1 || f.wt !== WT_LEN) continue;
+    for (const t = fieldsOf(buf, f.vstart, f.vend); t.next();) if (t.no === 8 && t.wt === WT_LEN) out = readString(buf, t);
+  }
+  return out;
+}
+
 /** While decodeModel runs, every graph it decodes (main graph and subgraphs); undefined otherwise. */
 let graphsRead: Graph[] | undefined;
 
@@ -410,6 +423,10 @@ export function decodeGraph(buf: Buf, start: number, end: number, depth = 0, kid
       case 11: expectLen(f, 'input'); g.inputs.push(decodeValueInfo(buf, f.vstart, f.vend)); break;
       case 12: expectLen(f, 'output'); g.outputs.push(decodeValueInfo(buf, f.vstart, f.vend)); break;
       case 13: expectLen(f, 'value_info'); g.valueInfo.push(decodeValueInfo(buf, f.vstart, f.vend)); break;
+      case 15: // sparse_initializer: kept as it was read, and refused by parseModel
+        if (f.wt === WT_LEN) sparseSeen.push(sparseName(buf, f.vstart, f.vend));
+        g.extra.push(raw(buf, f));
+        break;
       default: g.extra.push(raw(buf, f));
     }
   }
@@ -492,6 +509,7 @@ export function decodeModel(buf: Buf, baseDir: string): Model {
   interner = new NameCache(buf);
   spans = new FileSpans(buf);
   externalSeen = 0;
+  sparseSeen = [];
   dimsCache = new Array<readonly number[] | undefined>(DIMS_SLOTS);
   const graphs: Graph[] = graphsRead = [];
   let fields: ModelFields;
@@ -537,6 +555,12 @@ export function parseModel(bytes: Uint8Array, baseDir: string, label = 'model', 
   }
   if (model.irVersion <= 0 || model.opsets.length === 0 && model.irVersion >= 3) {
     throw new PleatError('bad-model', `${label}: not an ONNX model (no IR version or opset import)`);
+  }
+  // ONNX IR: GraphProto.sparse_initializer holds weights in a sparse form; pleat has no reader for it, and a node
+  // reading one would otherwise be refused as reading a value nothing defines (untrue)
+  if (sparseSeen.length > 0) {
+    const more = sparseSeen.length > 1 ? ` (and ${sparseSeen.length - 1} more)` : '';
+    throw new PleatError('dtype-unsupported', `${label}: initializer '${sparseSeen[0]}'${more} is stored as a sparse tensor (sparse_initializer), which pleat cannot read; store it as a dense initializer`);
   }
   // (the walk over every tensor is skipped when the read met no external data: 10^5 tensors make it show)
   if (opts.externalData !== 'leave' && externalSeen > 0) loadExternalData(model, label, redirect);
