@@ -2,9 +2,10 @@
 // format description (numpy.lib.format, "NPY format": magic \x93NUMPY, version bytes, 2-byte little-endian
 // header length, a Python dict literal padded with spaces to a multiple of 64 bytes ending in \n, raw data),
 // independent of pleat's own codec in src/verify/npy.ts.
-export function npyFloat32(dims: number[], data: Float32Array): Uint8Array {
+/** A version 1.0 .npy of `dims` with element type `descr`, holding `data` as it is in memory (little-endian here). */
+function npyBytes(descr: string, dims: number[], data: ArrayBufferView): Uint8Array {
   const shape = dims.length === 1 ? `(${dims[0]},)` : `(${dims.join(', ')})`;
-  let header = `{'descr': '<f4', 'fortran_order': False, 'shape': ${shape}, }`;
+  let header = `{'descr': '${descr}', 'fortran_order': False, 'shape': ${shape}, }`;
   const total = 10 + header.length + 1;
   header += ' '.repeat((64 - (total % 64)) % 64) + '\n';
   const out = new Uint8Array(10 + header.length + data.byteLength);
@@ -13,6 +14,10 @@ export function npyFloat32(dims: number[], data: Float32Array): Uint8Array {
   out.set(new TextEncoder().encode(header), 10);
   out.set(new Uint8Array(data.buffer, data.byteOffset, data.byteLength), 10 + header.length);
   return out;
+}
+
+export function npyFloat32(dims: number[], data: Float32Array): Uint8Array {
+  return npyBytes('<f4', dims, data);
 }
 
 export function readNpyHeader(bytes: Uint8Array): { descr: string; shape: number[]; dataOffset: number } {
@@ -29,14 +34,5 @@ export function readNpyHeader(bytes: Uint8Array): { descr: string; shape: number
 
 /** A .npy of 64-bit integers ('<i8' or '<u8'), each value written exactly (same format description as above). */
 export function npyInt64(dims: number[], data: BigInt64Array | BigUint64Array): Uint8Array {
-  const shape = dims.length === 1 ? `(${dims[0]},)` : `(${dims.join(', ')})`;
-  let header = `{'descr': '${data instanceof BigInt64Array ? '<i8' : '<u8'}', 'fortran_order': False, 'shape': ${shape}, }`;
-  const total = 10 + header.length + 1;
-  header += ' '.repeat((64 - (total % 64)) % 64) + '\n';
-  const out = new Uint8Array(10 + header.length + data.byteLength);
-  out.set([0x93, 0x4e, 0x55, 0x4d, 0x50, 0x59, 1, 0], 0);
-  new DataView(out.buffer).setUint16(8, header.length, true);
-  out.set(new TextEncoder().encode(header), 10);
-  out.set(new Uint8Array(data.buffer, data.byteOffset, data.byteLength), 10 + header.length);
-  return out;
+  return npyBytes(data instanceof BigInt64Array ? '<i8' : '<u8', dims, data);
 }

@@ -12,24 +12,14 @@ import { exportFile } from '../../src/jobs/export.js';
 import { exportBundle } from '../../src/ship/bundle.js';
 import { readModelFile } from '../../src/onnx/read.js';
 import { PleatError } from '../../src/errors.js';
+import { refusedWith } from '../helpers/refused.js';
 
 const MODEL = resolve(import.meta.dirname, '..', '..', 'models', 'pump-vibration.onnx');
 const NEVER = { gate: 'maxAbs < 0', probes: 1 }; // a gate no model passes
 const work = mkdtempSync(join(tmpdir(), 'pleat-export-job-'));
 afterAll(() => rmSync(work, { recursive: true, force: true }));
 
-function refused(fn: () => unknown, re: RegExp): PleatError {
-  try {
-    fn();
-  } catch (e) {
-    expect(e).toBeInstanceOf(PleatError);
-    expect((e as PleatError).kind).toBe('bad-input');
-    expect((e as Error).message).toMatch(re);
-    expect((e as Error).message).not.toContain('\n');
-    return e as PleatError;
-  }
-  return expect.unreachable('not refused') as never;
-}
+const refused = (fn: () => unknown, re: RegExp): PleatError => refusedWith(fn, re);
 
 /** Names and bytes of a folder's entries. */
 const snapshot = (dir: string) => readdirSync(dir).sort().map((n) => [n, readFileSync(join(dir, n)).toString('base64')]);

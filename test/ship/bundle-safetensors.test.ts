@@ -11,6 +11,7 @@ import { foldModel } from '../../src/fold/index.js';
 import { serializeModel } from '../../src/onnx/write.js';
 import { bundleFixture } from './bundle-fixture.js';
 import { GraphBuilder, modelBytes, f, fs } from '../helpers/build.js';
+import { refusedWith } from '../helpers/refused.js';
 
 // ---------------------------------------------------------------------------------------------------
 // A safetensors reader written from the published format description: the "Format" section of the
@@ -250,14 +251,5 @@ describe('safetensors bundle', () => {
 });
 
 function expectPleat(fn: () => unknown, re: RegExp): void {
-  try {
-    fn();
-  } catch (e) {
-    expect(e).toBeInstanceOf(PleatError);
-    expect((e as PleatError).kind).toBe('bad-input');
-    expect((e as Error).message).toMatch(re);
-    expect((e as Error).message).not.toContain('\n');
-    return;
-  }
-  throw new Error('expected a PleatError');
+  refusedWith(fn, re);
 }
