@@ -9,7 +9,7 @@ import { FileNode, FileSpans, FileTensor } from '../graph/ir.js';
 import { PleatError } from '../errors.js';
 import {
   NameCache, WT_LEN, WireError, readFloat, readInt, readPackedFixed32, readPackedFixed64, readPackedVarints,
-  readPackedVarintsBig, readString, fieldsOf, type WireField,
+  readPackedVarintsBig, readString, readStringAt, fieldsOf, type WireField,
 } from './wire.js';
 import { loadExternalData } from './external.js';
 import { validateModel } from '../graph/validate.js';
@@ -67,8 +67,12 @@ function spansFor(buf: Buf): FileSpans {
   return spans !== undefined && spans.buf === buf ? spans : new FileSpans(buf);
 }
 
+function nameAt(buf: Buf, start: number, end: number): string {
+  return interner !== undefined && interner.buf === buf ? interner.name(start, end) : readStringAt(buf, start, end);
+}
+
 function name(buf: Buf, f: WireField): string {
-  return interner !== undefined && interner.buf === buf ? interner.name(f.vstart, f.vend) : readString(buf, f);
+  return nameAt(buf, f.vstart, f.vend);
 }
 
 /**
@@ -155,7 +159,8 @@ function withOnce(list: string[] | undefined, k: string): string[] {
   return list;
 }
 
-export function decodeTensor(buf: Buf, start: number, end: number): Tensor {
+/** `names`: an initializer of a graph being read, whose name is looked for among its nodes' inputs (ReaderNames). */
+export function decodeTensor(buf: Buf, start: number, end: number, names?: ReaderNames): Tensor {
   const f = fieldsOf(buf, start, end);
   const dimBase = scratchN.length;
   let dataType = 0, tname = '', docString = '';
@@ -178,7 +183,7 @@ export function decodeTensor(buf: Buf, start: number, end: number): Tensor {
       case 5: readPackedVarints(buf, f, int32s ??= []); kind = 'int32_data'; typed = withOnce(typed, kind); break;
       case 6: expectLen(f, 'string_data'); (strings ??= []).push(buf.subarray(f.vstart, f.vend)); kind = 'string_data'; typed = withOnce(typed, kind); break;
       case 7: readPackedVarintsBig(buf, f, int64s ??= []); kind = 'int64_data'; typed = withOnce(typed, kind); break;
-      case 8: tname = name(buf, f); break;
+      case 8: tname = names !== undefined ? names.sameAt(buf, f.vstart, f.vend) : name(buf, f); break;
       case 9: expectLen(f, 'raw_data'); rawStart = f.vstart; rawEnd = f.vend; sawRaw = true; kind = 'raw'; break;
       case 10: readPackedFixed64(buf, f, doubles ??= []); kind = 'double_data'; typed = withOnce(typed, kind); break;
       case 11: readPackedVarintsBig(buf, f, uint64s ??= []); kind = 'uint64_data'; typed = withOnce(typed, kind); break;
@@ -396,6 +401,34 @@ class ReaderNames {
     }
     return name;
   }
+
+  /**
+   * The name at buf[start, end), as `same` would give it, compared in its bytes before any string is made: most
+   * weights' names match, and then no string is decoded for them (10^5 strings made and dropped otherwise).
+   */
+  sameAt(buf: Buf, start: number, end: number): string {
+    const len = end - start;
+    let ascii = true;
+    for (let i = start; i < end; i++) if (buf[i]! >= 0x80) { ascii = false; break; }
+    if (!ascii) return this.same(nameAt(buf, start, end)); // (a string compare: bytes are not UTF-16 code units)
+    const nodes = this.nodes;
+    let j = this.j, k = this.k;
+    for (let step = 0; step < READER_WINDOW && j < nodes.length; step++) {
+      const ins = nodes[j]!.inputs;
+      if (k >= ins.length) { j++; k = 0; continue; }
+      const v = ins[k]!;
+      if (v.length === len) {
+        let i = 0;
+        while (i < len && v.charCodeAt(i) === buf[start + i]) i++;
+        if (i === len) {
+          this.j = j; this.k = k + 1;
+          return v;
+        }
+      }
+      k++;
+    }
+    return nameAt(buf, start, end);
+  }
 }
 
 export function decodeGraph(buf: Buf, start: number, end: number, depth = 0, kids?: KidRanges): Graph {
@@ -414,8 +447,7 @@ export function decodeGraph(buf: Buf, start: number, end: number, depth = 0, kid
       case 2: g.name = readString(buf, f); break;
       case 5: {
         expectLen(f, 'initializer');
-        const t = decodeTensor(buf, f.vstart, f.vend);
-        t.name = readers.same(t.name);
+        const t = decodeTensor(buf, f.vstart, f.vend, readers);
         g.initializers.push(t);
         break;
       }

@@ -158,7 +158,12 @@ export function fieldsOf(buf: Uint8Array, start: number, end: number): FieldCurs
 const utf8Slice = (Buffer.prototype as unknown as { utf8Slice?: (this: Uint8Array, start: number, end: number) => string }).utf8Slice;
 const utf8d = new TextDecoder('utf-8');
 export function readString(buf: Uint8Array, f: WireField): string {
-  return utf8Slice ? utf8Slice.call(buf, f.vstart, f.vend) : utf8d.decode(buf.subarray(f.vstart, f.vend));
+  return readStringAt(buf, f.vstart, f.vend);
+}
+
+/** The text of buf[start, end) (UTF-8; invalid sequences become U+FFFD). */
+export function readStringAt(buf: Uint8Array, start: number, end: number): string {
+  return utf8Slice ? utf8Slice.call(buf, start, end) : utf8d.decode(buf.subarray(start, end));
 }
 
 function decodeRange(buf: Uint8Array, start: number, end: number): string {
