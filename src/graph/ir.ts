@@ -5,6 +5,7 @@
 // writer re-emits `origin` for any message whose fields still match what its bytes decode to, so a model
 // with no change comes out byte-identical, and a changed one keeps every untouched message byte for byte.
 // Code that changes tensor data in place must call `touch(tensor)` (see src/graph/edit.ts).
+import { PleatError } from '../errors.js';
 
 /** A protobuf field kept as its original bytes (tag included). */
 export interface RawField {
@@ -98,7 +99,13 @@ export class FileSpans {
   /** Origins given or cleared (null) after the read, by message; most reads never set one. */
   private changed: Map<number, Origin | null> | undefined;
 
-  constructor(readonly buf: Uint8Array) {}
+  constructor(readonly buf: Uint8Array) {
+    // offsets are kept in 32 bits: a buffer may hold 2^32 bytes, whose end would not fit (and no protobuf file is
+    // that large: a message holds at most 2 GiB, so ONNX keeps larger weights in external data)
+    if (buf.byteLength > 0xffffffff) {
+      throw new PleatError('bad-model', `the file holds ${buf.byteLength} bytes: a protobuf message holds at most 2 GiB; keep the weights in external data`);
+    }
+  }
 
   /** Record a message; its index. */
   add(start: number, end: number, a: number, b: number): number {

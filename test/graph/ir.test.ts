@@ -5,7 +5,7 @@ import onnxProto from 'onnx-proto';
 import { GraphBuilder, modelBytes, rng, tensor } from '../helpers/build.js';
 import { decodeModel, parseTensor } from '../../src/onnx/read.js';
 import { serializeModel } from '../../src/onnx/write.js';
-import { FileNode, FileTensor, externalStorage, rawByteLength, rawBytesOf, storageKind, type Node, type Tensor } from '../../src/graph/ir.js';
+import { FileNode, FileSpans, FileTensor, externalStorage, rawByteLength, rawBytesOf, storageKind, type Node, type Tensor } from '../../src/graph/ir.js';
 import { storedElementCount, tensorByteSize, tensorToFloat64 } from '../../src/graph/tensor.js';
 import { setTensorValues, touch } from '../../src/graph/edit.js';
 import { readdirSync, readFileSync } from 'node:fs';
@@ -155,5 +155,23 @@ describe('FileTensor', () => {
     // an edit replaces the list, so the other tensors of that shape keep theirs
     setTensorValues(inits[0]!, [1, 1, 1, 1, 1, 1, 1, 1], { dims: [2, 4] });
     expect(inits[2]!.dims).toEqual([4]);
+  });
+});
+
+describe('FileSpans', () => {
+  it('keeps offsets up to 2^32 - 1 exactly, in chunks, and refuses a buffer whose end would not fit 32 bits', () => {
+    const spans = new FileSpans(new Uint8Array(8));
+    const r = rng(5);
+    const want: number[][] = [];
+    for (let i = 0; i < 40000; i++) { // more than two chunks of 16,384 messages
+      const o = [0, 1, 2, 3].map(() => Math.floor(r() * 0xffffffff));
+      o[3] = i === 0 ? 0xffffffff : o[3]!;
+      want.push(o);
+      expect(spans.add(o[0]!, o[1]!, o[2]!, o[3]!)).toBe(i);
+    }
+    for (let i = 0; i < want.length; i += 997) for (let k = 0; k < 4; k++) expect(spans.offset(i, k)).toBe(want[i]![k]);
+    expect(spans.offset(0, 3)).toBe(0xffffffff);
+    // a buffer of 2^32 bytes (Node's largest): its end offset would wrap to 0 in 32 bits
+    expect(() => new FileSpans({ byteLength: 2 ** 32 } as Uint8Array)).toThrow(/at most 2 GiB; keep the weights in external data/);
   });
 });
