@@ -5,7 +5,7 @@ import { constantNodeTensor } from './constants.js';
 import type { Graph, Node, Tensor } from './ir.js';
 import { hasSubgraphs, subgraphsOf } from './ir.js';
 import { nameTable, type NameTable } from './names.js';
-import { keptIds } from './kept-ids.js';
+import { keptIds, type KeptIds } from './kept-ids.js';
 
 export interface UseDef {
   graph: Graph;
@@ -60,10 +60,13 @@ interface Built {
   bodies: Map<number, string[]>;
 }
 
-function indexGraph(graph: Graph): Built {
-  const nodes = graph.nodes.slice(); // the index answers for the graph as it was built, as a Map of nodes would
-  const tensors = graph.initializers.slice();
-  const bodies = new Map<number, string[]>();
+// Each loop over a graph's nodes is a function of its own (as in validate.ts): in one large function, the
+// optimizing compiler compiled the whole of it again for each loop reached in turn on a 10^5-node graph, and the
+// code it made fell back to the interpreter on each of the graph's small subgraphs (some 2,700 times in an audit
+// of a graph with 538 If branches).
+
+/** Output slots and reads (a body's outer reads counted as its owner's) of a graph's nodes; the bodies' reads. */
+function countWiring(nodes: readonly Node[], bodies: Map<number, string[]>): { writes: number; reads: number } {
   let writes = 0, reads = 0;
   for (let j = 0; j < nodes.length; j++) {
     const n = nodes[j]!;
@@ -75,6 +78,61 @@ function indexGraph(graph: Graph): Built {
       reads += refs.length;
     }
   }
+  return { writes, reads };
+}
+
+/** Each node's output and read ids, from validation's (`given`) or the table, with its bodies' outer reads. */
+function wiringIds(nodes: readonly Node[], bodies: Map<number, string[]>, given: KeptIds | undefined, idOf: (v: string) => number,
+  outIds: Int32Array, readIds: Int32Array): void {
+  for (let j = 0, w = 0, e = 0; j < nodes.length; j++) {
+    const n = nodes[j]!;
+    if (given) {
+      // (validation's ids for the node's own wiring; what its bodies read from outside is added here)
+      const o = given.outStart[j]!, r = given.readStart[j]!;
+      outIds.set(given.outIds.subarray(o, given.outStart[j + 1]!), w);
+      readIds.set(given.readIds.subarray(r, given.readStart[j + 1]!), e);
+      w += n.outputs.length; e += n.inputs.length;
+    } else {
+      for (const o of n.outputs) outIds[w++] = o ? idOf(o) : -1;
+      for (const i of n.inputs) readIds[e++] = i ? idOf(i) : -1;
+    }
+    const refs = bodies.get(j);
+    if (refs) for (const r of refs) readIds[e++] = idOf(r);
+  }
+}
+
+/** Producers by value id, and the read edges (value, node), one per value a node reads; the number of edges. */
+function wireEdges(nodes: readonly Node[], bodies: Map<number, string[]>, outIds: Int32Array, readIds: Int32Array,
+  producer: Int32Array, lastReader: Int32Array, edgeValue: Int32Array, edgeNode: Int32Array): number {
+  let edges = 0;
+  for (let j = 0, w = 0, e = 0; j < nodes.length; j++) {
+    const n = nodes[j]!;
+    for (let k = n.outputs.length; k > 0; k--) { const id = outIds[w++]!; if (id >= 0) producer[id] = j; }
+    const refs = bodies.get(j);
+    for (let k = n.inputs.length + (refs ? refs.length : 0); k > 0; k--) {
+      const id = readIds[e++]!;
+      if (id < 0 || lastReader[id] === j) continue; // a node reading a value twice is one reader
+      lastReader[id] = j;
+      edgeValue[edges] = id;
+      edgeNode[edges++] = j;
+    }
+  }
+  return edges;
+}
+
+function markIds(into: Uint8Array, ids: ArrayLike<number>, flag: number): void {
+  for (let k = 0; k < ids.length; k++) into[ids[k]!]! |= flag;
+}
+
+function indexIds(into: Int32Array, ids: ArrayLike<number>): void {
+  for (let k = 0; k < ids.length; k++) into[ids[k]!] = k;
+}
+
+function indexGraph(graph: Graph): Built {
+  const nodes = graph.nodes.slice(); // the index answers for the graph as it was built, as a Map of nodes would
+  const tensors = graph.initializers.slice();
+  const bodies = new Map<number, string[]>();
+  const { writes, reads } = countWiring(nodes, bodies);
   // Names first, then the arrays at the number of names found: the ids validation found, when the graph is still
   // as it was then (kept-ids.ts), else a table of our own. Each value is written once, so the writers bound the
   // names well (a table sized by every occurrence was several times too big: 16 MB resident for 10^5 nodes); the
@@ -89,21 +147,7 @@ function indexGraph(graph: Graph): Built {
   } else {
     outIds = new Int32Array(writes);
     readIds = new Int32Array(reads);
-    for (let j = 0, w = 0, e = 0; j < nodes.length; j++) {
-      const n = nodes[j]!;
-      if (given) {
-        // (validation's ids for the node's own wiring; what its bodies read from outside is added here)
-        const o = given.outStart[j]!, r = given.readStart[j]!;
-        outIds.set(given.outIds.subarray(o, given.outStart[j + 1]!), w);
-        readIds.set(given.readIds.subarray(r, given.readStart[j + 1]!), e);
-        w += n.outputs.length; e += n.inputs.length;
-      } else {
-        for (const o of n.outputs) outIds[w++] = o ? idOf(o) : -1;
-        for (const i of n.inputs) readIds[e++] = i ? idOf(i) : -1;
-      }
-      const refs = bodies.get(j);
-      if (refs) for (const r of refs) readIds[e++] = idOf(r);
-    }
+    wiringIds(nodes, bodies, given, idOf, outIds, readIds);
     outputIds = given?.outputIds ?? graph.outputs.map((o) => idOf(o.name));
     inputIds = given?.inputIds ?? graph.inputs.map((v) => idOf(v.name));
     tensorIds = given?.tensorIds ?? tensors.map((t) => idOf(t.name));
@@ -115,22 +159,10 @@ function indexGraph(graph: Graph): Built {
   const lastReader = new Int32Array(size).fill(-1);
   const edgeValue = new Int32Array(reads);
   const edgeNode = new Int32Array(reads);
-  let edges = 0;
-  for (let j = 0, w = 0, e = 0; j < nodes.length; j++) {
-    const n = nodes[j]!;
-    for (let k = n.outputs.length; k > 0; k--) { const id = outIds[w++]!; if (id >= 0) producer[id] = j; }
-    const refs = bodies.get(j);
-    for (let k = n.inputs.length + (refs ? refs.length : 0); k > 0; k--) {
-      const id = readIds[e++]!;
-      if (id < 0 || lastReader[id] === j) continue; // a node reading a value twice is one reader
-      lastReader[id] = j;
-      edgeValue[edges] = id;
-      edgeNode[edges++] = j;
-    }
-  }
-  for (let k = 0; k < outputIds.length; k++) flags[outputIds[k]!]! |= IS_OUTPUT;
-  for (let k = 0; k < inputIds.length; k++) flags[inputIds[k]!]! |= IS_INPUT;
-  for (let k = 0; k < tensors.length; k++) init[tensorIds[k]!] = k;
+  const edges = wireEdges(nodes, bodies, outIds, readIds, producer, lastReader, edgeValue, edgeNode);
+  markIds(flags, outputIds, IS_OUTPUT);
+  markIds(flags, inputIds, IS_INPUT);
+  indexIds(init, tensorIds);
   return { nodes, tensors, ids, producer, init, flags, readers: csr(size, edgeValue, edgeNode, edges), bodies };
 }
 
@@ -407,12 +439,24 @@ function rowOf(readers: { start: Int32Array; node: Int32Array }, nodes: readonly
 }
 
 /** Readers grouped by value (compressed rows), keeping node order within each value. */
+// (csr's three loops are functions of their own, for the reason given above indexGraph)
+function countRows(start: Int32Array, edgeValue: Int32Array, edges: number): void {
+  for (let e = 0; e < edges; e++) start[edgeValue[e]! + 1]!++;
+}
+
+function prefixSums(start: Int32Array, values: number): void {
+  for (let v = 0; v < values; v++) start[v + 1]! += start[v]!;
+}
+
+function fillRows(node: Int32Array, fill: Int32Array, edgeValue: Int32Array, edgeNode: Int32Array, edges: number): void {
+  for (let e = 0; e < edges; e++) node[fill[edgeValue[e]!]!++] = edgeNode[e]!;
+}
+
 function csr(values: number, edgeValue: Int32Array, edgeNode: Int32Array, edges: number): { start: Int32Array; node: Int32Array } {
   const start = new Int32Array(values + 1);
-  for (let e = 0; e < edges; e++) start[edgeValue[e]! + 1]!++;
-  for (let v = 0; v < values; v++) start[v + 1]! += start[v]!;
-  const fill = start.slice(0, values);
+  countRows(start, edgeValue, edges);
+  prefixSums(start, values);
   const node = new Int32Array(edges);
-  for (let e = 0; e < edges; e++) node[fill[edgeValue[e]!]!++] = edgeNode[e]!;
+  fillRows(node, start.slice(0, values), edgeValue, edgeNode, edges);
   return { start, node };
 }
