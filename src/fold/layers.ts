@@ -41,9 +41,10 @@ const isDequantized = (scope: Scope, v: string) => {
 };
 
 function constantParam(ctx: FoldContext, scope: Scope, n: Node, v: string, what: string): ConstRef | Refusal {
-  if (isDequantized(scope, v)) return refuse('quantized-weights', `the ${what} of '${n.name}' is dequantized at run time; fold before quantizing`);
+  // (named as the ledger names it: an unnamed node was '' here, or its bare op type)
+  if (isDequantized(scope, v)) return refuse('quantized-weights', `the ${what} of '${labelOf(scope, n)}' is dequantized at run time; fold before quantizing`);
   const ref = constantOf(scope, v);
-  if (!ref) return refuse('no-linear-neighbour', `the ${what} of '${n.name || n.opType}' is computed at run time; store it as an initializer`);
+  if (!ref) return refuse('no-linear-neighbour', `the ${what} of '${labelOf(scope, n)}' is computed at run time; store it as an initializer`);
   if (INTEGER_TYPES.has(ref.tensor.dataType)) return refuse('quantized-weights', `the ${what} '${v}' is ${dataTypeName(ref.tensor.dataType)}; fold before quantizing`);
   if (!isFloatType(ref.tensor.dataType)) return refuse('dtype-unsupported', `the ${what} '${v}' is ${dataTypeName(ref.tensor.dataType)}, which pleat cannot rewrite exactly`);
   if (ref.overridable && !ctx.allowOverridable) return refuse('overridable-weights', `'${v}' is also a graph input, so callers may replace it; remove it from the graph inputs in the export, or pass --allow-overridable if callers never do`);

@@ -225,6 +225,24 @@ describe('refusals', () => {
     await keptUnchanged(g, feedsFor({ x: [1, 2, 4, 4] }), ['bn:kept:quantized-weights']);
   });
 
+  // The hint named an unnamed layer '' ("the weight of '' is dequantized at run time") or by its bare op type,
+  // while the same entry's target said Conv#1: it now names the layer as the ledger does.
+  it('quantized-weights and a weight computed at run time name an unnamed layer as the ledger does', () => {
+    for (const computed of [false, true]) {
+      const g = new GraphBuilder();
+      g.input('x', [1, 2, 4, 4]).output('y', [1, 2, 2, 2]);
+      const w = computed
+        ? g.node('Relu', [g.init('wr', [2, 2, 3, 3], randn(rng(3), 36))], {}, { name: '', outputs: ['w'] })
+        : g.node('DequantizeLinear', [g.init('wq', [2, 2, 3, 3], Array.from({ length: 36 }, (_, i) => (i * 7) % 11 - 5), T.INT8),
+          g.init('ws', [], [0.05]), g.init('wz', [], [0], T.INT8)], {}, { name: '', outputs: ['w'] });
+      const c = g.node('Conv', ['x', w], {}, { name: '', outputs: ['c'] });
+      g.node('BatchNormalization', [c, ...bnParams(g, 'bn', 2, 20)], {}, { name: 'bn', outputs: ['y'] });
+      const [finding] = analyze(parseModel(modelBytes(g), dir));
+      expect(finding!.reason).toBe(computed ? 'no-linear-neighbour' : 'quantized-weights');
+      expect(finding!.hint).toContain("of 'Conv#1'");
+    }
+  });
+
   // NaN or an infinity in a norm's parameters, a variance below -epsilon, a Mul by an infinity, a Div by zero:
   // kept as non-finite-params (they were storage-overflow, whose hint, a wider type, would not help). The
   // written bytes equal the input's and onnxruntime-node gives the original's outputs (NaN where it gave NaN).
