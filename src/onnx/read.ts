@@ -387,48 +387,37 @@ class ReaderNames {
   private k = 0;
   constructor(private readonly nodes: readonly Node[]) {}
 
-  same(name: string): string {
-    const nodes = this.nodes;
-    let j = this.j, k = this.k;
-    for (let step = 0; step < READER_WINDOW && j < nodes.length; step++) {
-      const ins = nodes[j]!.inputs;
-      if (k >= ins.length) { j++; k = 0; continue; }
-      if (ins[k] === name) {
-        this.j = j; this.k = k + 1;
-        return ins[k]!;
-      }
-      k++;
-    }
-    return name;
-  }
-
   /**
-   * The name at buf[start, end), as `same` would give it, compared in its bytes before any string is made: most
-   * weights' names match, and then no string is decoded for them (10^5 strings made and dropped otherwise).
+   * The name at buf[start, end): the string a node input already holds when the next few inputs have it (the cursor
+   * then moves past it), else the name decoded. ASCII names are compared in their bytes, so a matched weight's name
+   * is never decoded (10^5 strings made and dropped otherwise); other names are decoded and compared as strings,
+   * since their bytes are not UTF-16 code units.
    */
   sameAt(buf: Buf, start: number, end: number): string {
-    const len = end - start;
     let ascii = true;
     for (let i = start; i < end; i++) if (buf[i]! >= 0x80) { ascii = false; break; }
-    if (!ascii) return this.same(nameAt(buf, start, end)); // (a string compare: bytes are not UTF-16 code units)
+    const text = ascii ? undefined : nameAt(buf, start, end);
+    const len = end - start;
     const nodes = this.nodes;
     let j = this.j, k = this.k;
     for (let step = 0; step < READER_WINDOW && j < nodes.length; step++) {
       const ins = nodes[j]!.inputs;
       if (k >= ins.length) { j++; k = 0; continue; }
       const v = ins[k]!;
-      if (v.length === len) {
-        let i = 0;
-        while (i < len && v.charCodeAt(i) === buf[start + i]) i++;
-        if (i === len) {
-          this.j = j; this.k = k + 1;
-          return v;
-        }
+      if (text !== undefined ? v === text : v.length === len && sameAscii(v, buf, start)) {
+        this.j = j; this.k = k + 1;
+        return v;
       }
       k++;
     }
-    return nameAt(buf, start, end);
+    return text ?? nameAt(buf, start, end);
   }
+}
+
+/** Whether `v` spells buf[start, start + v.length), all of it ASCII. */
+function sameAscii(v: string, buf: Buf, start: number): boolean {
+  for (let i = 0; i < v.length; i++) if (v.charCodeAt(i) !== buf[start + i]) return false;
+  return true;
 }
 
 export function decodeGraph(buf: Buf, start: number, end: number, depth = 0, kids?: KidRanges): Graph {

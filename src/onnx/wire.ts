@@ -171,7 +171,7 @@ function decodeRange(buf: Uint8Array, start: number, end: number): string {
     const ascii = shortAscii(buf, start, end);
     if (ascii !== undefined) return ascii;
   }
-  return utf8Slice ? utf8Slice.call(buf, start, end) : utf8d.decode(buf.subarray(start, end));
+  return readStringAt(buf, start, end);
 }
 
 const fromCodes = String.fromCharCode;
