@@ -20,7 +20,7 @@ import { buildScopes, constantOf, labelOf, soleReader, type Scope } from './scop
 import { layouts, weightView, type ChannelMap } from './weights.js';
 import { channelMaxAbs, sqnrOf, type SqnrFigures } from './int8.js';
 import { regionGraph } from './apply.js';
-import type { ProofCase } from './types.js';
+import type { ProofCase, RewrittenNode } from './types.js';
 import { opsetVersion } from '../graph/ir.js';
 
 /** Why a pair of layers was not equalized. */
@@ -242,8 +242,15 @@ export interface EqualizeOptions {
   prove?: (c: ProofCase) => boolean;
 }
 
-/** Equalize every eligible pair of the model in place; returns one entry per pair found (equalized or refused). */
-export function equalizeModel(model: Model, opts: EqualizeOptions = {}): EqualizedPair[] {
+/** What equalization did: one entry per pair found (equalized or refused), and the layers whose weights it changed. */
+export interface Equalization {
+  pairs: EqualizedPair[];
+  /** Each layer of an equalized chain, once: the whole-model check watches them as it watches folded layers. */
+  rewritten: RewrittenNode[];
+}
+
+/** Equalize every eligible pair of the model in place. */
+export function equalizeModel(model: Model, opts: EqualizeOptions = {}): Equalization {
   const entries: EqualizedPair[] = [];
   const live: LivePair[] = [];
   const opsetOf = (domain: string) => opsetVersion(model, domain) ?? 1;
@@ -281,8 +288,17 @@ export function equalizeModel(model: Model, opts: EqualizeOptions = {}): Equaliz
       live.push({ scope, a, b, through: m.through, entry });
     }
   }
-  for (const chain of chainsOf(live)) equalizeChain(chain, opsetOf, opts);
-  return entries;
+  const changed = new Set<Node>();
+  for (const chain of chainsOf(live)) if (equalizeChain(chain, opsetOf, opts)) for (const p of chain) changed.add(p.a.node).add(p.b.node);
+  // (each layer once, in the order the pairs were found)
+  const rewritten: RewrittenNode[] = [];
+  for (const p of live) {
+    for (const n of [p.a.node, p.b.node]) {
+      if (!changed.delete(n)) continue;
+      rewritten.push({ node: n, label: labelOf(p.scope, n), graph: p.scope.path });
+    }
+  }
+  return { pairs: entries, rewritten };
 }
 
 /** Input channels the second layer reads (the largest channel index in its input map, plus one). */
@@ -292,7 +308,8 @@ function channelCount(s: Side): number {
   return m + 1;
 }
 
-function equalizeChain(chain: LivePair[], opsetOf: (d: string) => number, opts: EqualizeOptions): void {
+/** Equalize one chain, prove it, and say whether its weights changed (false: refused and put back as they were). */
+function equalizeChain(chain: LivePair[], opsetOf: (d: string) => number, opts: EqualizeOptions): boolean {
   // A layer in the middle of a chain is the second side of one pair and the first of the next: two Side objects
   // (one map each) over one values array, so each sweep sees the other's scaling.
   const byNode = new Map<Node, Side>();
@@ -331,7 +348,7 @@ function equalizeChain(chain: LivePair[], opsetOf: (d: string) => number, opts: 
       p.entry.reason = 'no-gain';
       p.entry.hint = `equalizing this chain would not raise its weakest channel's 8-bit SQNR (${dbText(was)} dB -> ${dbText(now)} dB), so it was left as it was`;
     }
-    return;
+    return false;
   }
   const regionAfter = regionGraph(scope, regionNodes, regionOutputs);
   const proven = !opts.prove || opts.prove({
@@ -344,7 +361,7 @@ function equalizeChain(chain: LivePair[], opsetOf: (d: string) => number, opts: 
       p.entry.status = 'refused'; p.entry.reason = 'proof-failed';
       p.entry.hint = 'the numeric proof of the equalized chain did not pass, so its weights were left as they were';
     }
-    return;
+    return false;
   }
   for (const p of chain) {
     p.entry.status = 'equalized';
@@ -352,6 +369,7 @@ function equalizeChain(chain: LivePair[], opsetOf: (d: string) => number, opts: 
     p.entry.hint = `output channels of '${p.a.label}' divided and input channels of '${p.b.label}' multiplied by the same ${p.entry.channels} scales`;
     p.entry.sqnr = { firstBefore: figuresOf(before, p.a), firstAfter: figuresOf(afterFigures, p.a), secondBefore: figuresOf(before, p.b), secondAfter: figuresOf(afterFigures, p.b) };
   }
+  return true;
 }
 
 /** Put the weights and biases of a chain back as they were read. */

@@ -136,7 +136,8 @@ function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], gone: s
         folded.push(ledgerEntry(ctx, fold, p!, written, 'normalization', writtenOutHint(targets), 0));
       }
       // what the whole-model check watches: the layers whose weights changed, nodes created or changed in kind
-      for (let k = 0; k < o.matches.length; k++) watch(watched, o.matches[k]!.layer.node, scope.path);
+      // (`matches`, not `o.matches`: with --clone-shared the copy was rewritten and the original left as it was)
+      for (let k = 0; k < matches.length; k++) watch(watched, matches[k]!.layer.node, scope.path);
       for (let k = 0; k < edit.inserts.length; k++) watch(watched, edit.inserts[k]!.node, scope.path);
       for (let k = 0; k < edit.changes.length; k++) {
         const c = edit.changes[k]!;

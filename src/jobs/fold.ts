@@ -66,6 +66,13 @@ export function rewrittenKeys(folded: Model, rewritten: readonly RewrittenNode[]
   return out;
 }
 
+/** The folds' rewritten nodes, then the layers equalization changed that no fold had (a node once, with its first name). */
+function withEqualized(folded: readonly RewrittenNode[], equalized: readonly RewrittenNode[]): readonly RewrittenNode[] {
+  if (equalized.length === 0) return folded;
+  const seen = new Set(folded.map((r) => r.node));
+  return [...folded, ...equalized.filter((r) => !seen.has(r.node))];
+}
+
 /** The nodes of `model` the keys name, with their report names. */
 function watchIn(model: Model, keys: readonly RewrittenKey[]): Map<Node, string> {
   // by path, then output (no joined key per node of the model: a graph of 10^5 nodes made as many strings)
@@ -259,9 +266,10 @@ function foldWithin(model: Model, original: Model | undefined, label: string, op
       return { passed: r.passed, proof: { maxAbs: r.maxAbs, maxRel: r.maxRel, shape: r.shape } };
     },
   }), original !== undefined && !opts.noProofs, (s) => { foldScopes = s; });
-  const equalized = opts.equalize
+  const equalization = opts.equalize
     ? equalizeModel(model, { prove: opts.noProofs ? undefined : (c) => checkKit().proveFold(c, { seed: opts.seed }).passed })
-    : [];
+    : undefined;
+  const equalized = equalization?.pairs ?? [];
   const quantThresholdDb = opts.quantThresholdDb ?? QUANT_THRESHOLD_DB;
   const int8 = original && !opts.noProofs && opts.simulateInt8 ? int8Simulation(original, model, opts.simulateInt8, opts) : null;
   // A file job whose written weights are the folded float32 ones works the quantization report out on a thread
@@ -285,7 +293,8 @@ function foldWithin(model: Model, original: Model | undefined, label: string, op
     // report on its thread the gate does not name it, and the value is never read)
     const sqnr = beside ? NaN : Math.min(Infinity, ...quantization.map((q) => q.sqnrAfter.worstChannel));
     // the rewritten nodes, by graph path and output, so the check finds them again in the copy read from disk
-    const keys = original && !opts.noProofs ? rewrittenKeys(model, rewritten) : [];
+    // (layers equalization changed count as the folds' do)
+    const keys = original && !opts.noProofs ? rewrittenKeys(model, withEqualized(rewritten, equalization?.rewritten ?? [])) : [];
     // `ship` writes the model and gives it back as read from disk: the check then judges what ships.
     const shipped = ship ? ship(model) : model;
     beside?.shipped(files!.shipped());

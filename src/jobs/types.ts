@@ -68,7 +68,7 @@ export interface CheckSummary {
   gates: string[];
   /** Symbolic dims no --dim, --shape or input set: the probes took each as 1. */
   assumedDims: AssumedDim[];
-  /** Which rewritten nodes (layers the folds changed, nodes they created) the probes executed. */
+  /** Which rewritten nodes (layers the folds or equalization changed, nodes the folds created) the probes executed. */
   coverage: Coverage;
   outputs: OutputCheck[];
 }

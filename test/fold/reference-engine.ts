@@ -171,7 +171,7 @@ function sweep(ctx: FoldContext, model: Model, folded: LedgerEntry[], released: 
       }
       // what the whole-model check watches: the layers whose weights changed, nodes created or changed in kind
       const changedKind = edit.changes.filter((c) => c.opType !== undefined || c.attributes !== undefined).map((c) => c.node);
-      for (const n of [...o.matches.map((mm) => mm.layer.node), ...edit.inserts.map((i) => i.node), ...changedKind]) {
+      for (const n of [...matches.map((mm) => mm.layer.node), ...edit.inserts.map((i) => i.node), ...changedKind]) {
         if (!rewritten.has(n)) rewritten.set(n, { node: n, label: ctx.labels.get(n) ?? n.name, graph: scope.path });
       }
       run.steps.forEach((x, i) => {

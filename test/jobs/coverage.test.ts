@@ -3,10 +3,14 @@
 //   probes; the fold itself still carries proof figures measured on its branch region;
 // - a branch a later seeded probe takes: the extra probes stop as soon as every rewritten node ran;
 // - a saturated output (a sigmoid at exactly 1.0 in float64): bit-identical although the rewritten layer upstream
-//   ran, so it is reported as not observable, while an unsaturated output is observable.
+//   ran, so it is reported as not observable, while an unsaturated output is observable;
+// - layers --equalize changed count as rewritten like folded ones: in an untaken branch (0/2, named, extra probes),
+//   in the main graph (2/2, observable), and once when a layer is both folded and equalized;
+// - --clone-shared: the copy is the rewritten node, not the original, so an output the original alone feeds makes
+//   no observability claim (JSON report written by the CLI, library result and text ledger).
 // Invented models in our own scenario (a sorting-line camera); thresholds follow from the seeded probes.
 import { describe, expect, it } from 'vitest';
-import { mkdtempSync, writeFileSync } from 'node:fs';
+import { mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { GraphBuilder, modelBytes, randn, rng, uniform } from '../helpers/build.js';
@@ -16,6 +20,7 @@ import { probeValue } from '../../src/verify/inputs.js';
 import { DEFAULT_EXTRA_PROBES } from '../../src/verify/compare.js';
 import { foldText } from '../../src/report/ledger-text.js';
 import { DataType } from '../../src/graph/ir.js';
+import { pleat } from '../helpers/cli.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'pleat-coverage-'));
 const save = (name: string, bytes: Uint8Array) => { const p = join(dir, name); writeFileSync(p, bytes); return p; };
@@ -130,5 +135,137 @@ describe('coverage of rewritten nodes', { timeout: 120_000 }, () => {
     expect(sure.observable).toBe(false);
     expect(chk.outputs.find((o) => o.name === 'score')!.observable).toBe(true);
     expect(foldText(r)).toMatch(/sure\s+pass .*not observable: bit-identical on every probe although a rewritten node upstream ran/);
+  });
+});
+
+/**
+ * A Conv whose output channels span a thousand-fold range (invented weights), then Relu, then a second Conv: the
+ * pair --equalize balances (Nagel et al. 2019, arXiv:1906.04721, section 4.1). No normalization, so only
+ * equalization rewrites anything. `g` is the graph or branch that holds it; it reads `input` (3 channels).
+ */
+function spreadPair(g: GraphBuilder, prefix: string, input: string, output: string, seed: number): void {
+  const r = rng(seed);
+  const C = 4;
+  const w1 = randn(r, C * 3, 0.5);
+  for (let o = 0; o < C; o++) for (let k = 0; k < 3; k++) w1[o * 3 + k]! *= 10 ** (-1.5 + o);
+  g.init(`${prefix}_w1`, [C, 3, 1, 1], w1);
+  const c1 = g.node('Conv', [input, `${prefix}_w1`], {}, { name: `${prefix}_conv1` });
+  const a = g.node('Relu', [c1], {}, { name: `${prefix}_relu` });
+  g.init(`${prefix}_w2`, [4, C, 1, 1], randn(r, 4 * C, 0.5));
+  g.node('Conv', [a, `${prefix}_w2`], {}, { name: `${prefix}_conv2`, outputs: [output] });
+}
+
+describe('coverage of layers rewritten by --equalize', { timeout: 120_000 }, () => {
+  it('an equalized pair in a branch no probe takes: counted, named and probed for like folded layers', () => {
+    const g = new GraphBuilder();
+    g.input('x', [1, 3, 4, 4]).output('y', [1, 4, 4, 4]);
+    const m = g.node('ReduceMax', ['x'], { keepdims: 0 }, { name: 'peak' });
+    const cond = g.node('Greater', [m, g.init('threshold', [], [1e6])], {}, { name: 'bright' });
+    const then = new GraphBuilder('then');
+    then.output('then_y', [1, 4, 4, 4]);
+    spreadPair(then, 'then', 'x', 'then_y', 21);
+    const other = new GraphBuilder('else');
+    other.output('else_y', [1, 4, 4, 4]);
+    other.init('else_w', [4, 3, 1, 1], randn(rng(22), 12, 0.5));
+    other.node('Conv', ['x', 'else_w'], {}, { name: 'else_conv', outputs: ['else_y'] });
+    g.node('If', [cond], { then_branch: then, else_branch: other }, { name: 'gate_if', outputs: ['y'] });
+    const r = foldFile(save('eq-never.onnx', modelBytes(g)), join(dir, 'eq-never.out.onnx'), { equalize: true });
+    // precondition: the pair was equalized (and proven on its branch region), nothing was folded
+    expect(r.equalized.map((p) => [p.first, p.second, p.status])).toEqual([['then_conv1', 'then_conv2', 'equalized']]);
+    expect(r.normalizations).toEqual([]);
+    const c = r.check!;
+    expect(c.status).toBe('passed');
+    expect(c.coverage).toEqual({
+      executed: 0, total: 2, missed: ['then_conv1 in main/gate_if.then_branch', 'then_conv2 in main/gate_if.then_branch'], extraProbes: DEFAULT_EXTRA_PROBES,
+    });
+    expect(c.probes).toBe(2 + DEFAULT_EXTRA_PROBES);
+    expect(c.outputs[0]!.observable).toBeUndefined();
+    expect(foldText(r)).toMatch(/coverage 0\/2: never executed by any probe \(after 8 extra probes\): then_conv1 in main\/gate_if\.then_branch, then_conv2 in main\/gate_if\.then_branch/);
+  });
+
+  it('an equalized pair in the main graph: coverage 2/2, and the output it feeds is observable', () => {
+    const g = new GraphBuilder();
+    g.input('x', [1, 3, 4, 4]).output('y', [1, 4, 4, 4]);
+    spreadPair(g, 'main', 'x', 'y', 23);
+    const r = foldFile(save('eq-main.onnx', modelBytes(g)), join(dir, 'eq-main.out.onnx'), { equalize: true });
+    expect(r.equalized.map((p) => p.status)).toEqual(['equalized']);
+    const c = r.check!;
+    expect(c.status).toBe('passed');
+    expect(c.coverage).toEqual({ executed: 2, total: 2, missed: [], extraProbes: 0 });
+    expect(c.outputs[0]!.observable).toBe(true);
+    expect(foldText(r)).toMatch(/coverage 2\/2/);
+  });
+
+  it('a layer both folded and equalized counts once', () => {
+    const g = new GraphBuilder();
+    g.input('x', [1, 3, 4, 4]).output('y', [1, 4, 4, 4]);
+    g.init('w1', [4, 3, 1, 1], randn(rng(24), 12, 0.5));
+    const c1 = g.node('Conv', ['x', 'w1'], {}, { name: 'conv1' });
+    const r0 = rng(25);
+    g.init('g', [4], [0.03, 0.3, 3, 30]); g.init('be', [4], randn(r0, 4, 0.2)); g.init('mu', [4], randn(r0, 4, 0.1)); g.init('va', [4], uniform(r0, 4, 0.5, 1.5));
+    const b = g.node('BatchNormalization', [c1, 'g', 'be', 'mu', 'va'], {}, { name: 'bn1' });
+    const a = g.node('Relu', [b], {}, { name: 'relu1' });
+    g.init('w2', [4, 4, 1, 1], randn(rng(26), 16, 0.5));
+    g.node('Conv', [a, 'w2'], {}, { name: 'conv2', outputs: ['y'] });
+    const r = foldFile(save('eq-fold.onnx', modelBytes(g)), join(dir, 'eq-fold.out.onnx'), { equalize: true });
+    expect(r.normalizations.map((e) => [e.node, e.status, e.target])).toEqual([['bn1', 'folded', 'conv1']]);
+    expect(r.equalized.map((p) => [p.first, p.second, p.status])).toEqual([['conv1', 'conv2', 'equalized']]);
+    expect(r.check!.coverage).toEqual({ executed: 2, total: 2, missed: [], extraProbes: 0 });
+  });
+});
+
+describe('--clone-shared: only the nodes actually rewritten count', { timeout: 120_000 }, () => {
+  /** The output `B` and its observability in the JSON report the CLI writes and in the text ledger it prints. */
+  function viaCli(model: string, stem: string): { json: { check: { coverage: unknown; outputs: Array<{ name: string; observable?: boolean }> } }; text: string } {
+    const json = join(dir, `${stem}.json`);
+    const r = pleat(['fold', model, '-o', join(dir, `${stem}.out.onnx`), '--clone-shared', '--report', `json:${json}`]);
+    expect(r.code, r.stderr).toBe(0);
+    return { json: JSON.parse(readFileSync(json, 'utf8')), text: r.stdout };
+  }
+
+  it('two Conv layers share one weight: the one feeding B is untouched, so B makes no observability claim', () => {
+    const g = new GraphBuilder();
+    g.input('x', [1, 3, 4, 4]).output('A', [1, 4, 4, 4]).output('B', [1, 4, 4, 4]);
+    g.init('w', [4, 3, 1, 1], randn(rng(31), 12, 0.5));
+    const ca = g.node('Conv', ['x', 'w'], {}, { name: 'conv_a' });
+    g.node('BatchNormalization', [ca, ...bnParams(g, 'bn_a', 4, 32)], {}, { name: 'bn_a', outputs: ['A'] });
+    g.node('Conv', ['x', 'w'], {}, { name: 'conv_b', outputs: ['B'] });
+    const model = save('shared-weight.onnx', modelBytes(g));
+    const r = foldFile(model, join(dir, 'shared-weight.out.onnx'), { cloneShared: true });
+    expect(r.normalizations.map((e) => [e.node, e.status])).toEqual([['bn_a', 'folded']]);
+    const c = r.check!;
+    expect(c.coverage).toEqual({ executed: 1, total: 1, missed: [], extraProbes: 0 });
+    const B = c.outputs.find((o) => o.name === 'B')!;
+    expect(B.maxAbs).toBe(0);
+    expect('observable' in B).toBe(false);
+    expect(c.outputs.find((o) => o.name === 'A')!.observable).toBe(true);
+    const cli = viaCli(model, 'shared-weight');
+    expect(cli.json.check.outputs.find((o) => o.name === 'B')).not.toHaveProperty('observable');
+    expect(cli.json.check.outputs.find((o) => o.name === 'A')!.observable).toBe(true);
+    expect(cli.text).not.toMatch(/not observable/);
+  });
+
+  it('one Conv read by a BN (output A) and directly by output B: the copy is rewritten, the original is not', () => {
+    const g = new GraphBuilder();
+    g.input('x', [1, 3, 4, 4]).output('A', [1, 4, 4, 4]).output('B', [1, 4, 4, 4]);
+    g.init('w', [4, 3, 1, 1], randn(rng(33), 12, 0.5));
+    g.node('Conv', ['x', 'w'], {}, { name: 'conv', outputs: ['B'] });
+    g.node('BatchNormalization', ['B', ...bnParams(g, 'bn_a', 4, 34)], {}, { name: 'bn_a', outputs: ['A'] });
+    const model = save('shared-output.onnx', modelBytes(g));
+    const r = foldFile(model, join(dir, 'shared-output.out.onnx'), { cloneShared: true });
+    const bn = r.normalizations.find((e) => e.node === 'bn_a')!;
+    expect([bn.status, bn.cloneBytes]).toEqual(['folded', 48]); // a copy of the 4x3 float32 weight
+    const c = r.check!;
+    // the copy is the one rewritten node; the original keeps its weights and feeds B alone
+    expect(c.coverage).toEqual({ executed: 1, total: 1, missed: [], extraProbes: 0 });
+    const B = c.outputs.find((o) => o.name === 'B')!;
+    expect(B.maxAbs).toBe(0);
+    expect('observable' in B).toBe(false);
+    expect(c.outputs.find((o) => o.name === 'A')!.observable).toBe(true);
+    expect(foldText(r)).not.toMatch(/not observable/);
+    const cli = viaCli(model, 'shared-output');
+    expect(cli.json.check.outputs.find((o) => o.name === 'B')).not.toHaveProperty('observable');
+    expect(cli.json.check.outputs.find((o) => o.name === 'A')!.observable).toBe(true);
+    expect(cli.text).not.toMatch(/not observable/);
   });
 });
