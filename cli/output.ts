@@ -5,6 +5,7 @@ import { FORMATS, useColour, type Format } from '../src/report/format.js';
 import { parseReportSpecs } from '../src/report/files.js';
 import type { StagedFile } from '../src/jobs/outputs.js';
 import { flushed, out, sayError } from './errors.js';
+import { prefetchSettled } from '../src/onnx/prefetch.js';
 
 export interface ReportFlags {
   json?: boolean;
@@ -139,6 +140,7 @@ export function reportErrors(lines: readonly string[]): void {
 export async function runAndReport(command: 'fold' | 'audit', jobs: import('./batch.js').Job[], plan: ReportPlan, quiet: boolean,
   reads: ReadonlyArray<readonly [string, string]> = []): Promise<void> {
   const { runBatch, checkBatchNames } = await import('./batch.js');
+  await prefetchSettled(); // (the first model read ahead while the modules loaded, see the command table)
   if (jobs.length > 1) jobs = checkBatchNames(jobs);
   const { renderJobs, isJobError } = await import('../src/report/render.js');
   const { startProgress } = await import('./progress.js');

@@ -17,27 +17,39 @@ export interface CommandEntry {
   ahead?: (args: readonly string[]) => Promise<void>;
 }
 
+/**
+ * The word right after the command, when it is no option, is its first model (no option before it can have taken
+ * it as its value): read it on the thread pool while the modules load (src/onnx/prefetch.ts).
+ */
+async function readFirstModelAhead(args: readonly string[]): Promise<void> {
+  const first = args[1];
+  if (first !== undefined && !first.startsWith('-')) (await import('../../src/onnx/sparse-read.js')).readModelAhead(first);
+}
+
 export const COMMANDS: readonly CommandEntry[] = [
   {
     name: 'survey', usage: 'survey <model>',
     describe: 'What a model file holds: IR version, opsets, inputs and outputs, op counts, weight bytes, normalizations',
     load: () => import('./survey.js') as Promise<CommandModule>,
+    ahead: readFirstModelAhead,
   },
   {
     name: 'fold', usage: 'fold <models..>',
     describe: 'Fold every normalization it safely can, prove each fold, write the folded model, print the ledger',
     load: () => import('./fold.js') as Promise<CommandModule>,
-    // the word right after `fold`, when it is no option, is its first model (no option before it can have taken
-    // it as its value): the input's digest, recorded in the output, starts on a thread now
+    // its first model is read ahead, and its digest (recorded in the output) starts on a thread now
     ahead: async (args) => {
       const first = args[1];
-      if (first !== undefined && !first.startsWith('-')) (await import('../../src/jobs/sha256.js')).startSha256(first);
+      if (first === undefined || first.startsWith('-')) return;
+      await readFirstModelAhead(args);
+      (await import('../../src/jobs/sha256.js')).startSha256(first);
     },
   },
   {
     name: 'audit', usage: 'audit <models..>',
     describe: 'The fold analysis without writing: every normalization, its status (foldable or kept), reason and hint',
     load: () => import('./audit.js') as Promise<CommandModule>,
+    ahead: readFirstModelAhead,
   },
   {
     name: 'compare', usage: 'compare <a> <b>',

@@ -9,6 +9,7 @@ import { closeSync, constants, fstatSync, openSync, readSync } from 'node:fs';
 import { PleatError } from '../errors.js';
 import { WireError, WT_LEN, fieldsOf } from './wire.js';
 import { setByteBacking } from '../graph/lazy-bytes.js';
+import { prefetchFile, takePrefetched } from './prefetch.js';
 
 /** Payloads at least this large are left unread until needed. */
 export const DEFER_MIN = 64 * 1024;
@@ -274,7 +275,12 @@ function readFully(fd: number, buf: Uint8Array, start: number, end: number, path
  * descending where the bytes stop making sense and reads the rest plainly.
  */
 export function readSparse(path: string, fd: number): Uint8Array {
-  const { size, mtimeMs } = fstatSync(fd);
+  const st = fstatSync(fd);
+  const { size, mtimeMs } = st;
+  if (size <= wholeFileMax) {
+    const early = takePrefetched(path, st); // (read on the thread pool while the command line loaded, see prefetch.ts)
+    if (early !== undefined) return early;
+  }
   const buf = Buffer.allocUnsafeSlow(size);
   const view = new Uint8Array(buf.buffer, buf.byteOffset, size);
   if (size <= wholeFileMax) {
@@ -342,3 +348,11 @@ export function openForRead(path: string): number {
 
 // Tensor decoding in the graph layer reaches the file through these two (src/graph/lazy-bytes.ts).
 setByteBacking({ ensureLoaded, markLoaded, peekBytes });
+
+/**
+ * Start reading a model file whole on the thread pool, when it is small enough to be read whole (see prefetch.ts):
+ * the command line calls it before loading its modules, and waits for prefetchSettled before the job reads.
+ */
+export function readModelAhead(path: string): void {
+  prefetchFile(path, wholeFileMax);
+}
