@@ -128,7 +128,9 @@ function sweep(ctx: FoldContext, scopes: Scope[], folded: LedgerEntry[], gone: s
         applyEdit(ctx, edit, true, false);
       }
       const hint = foldHint(o.matches, o.clone);
-      const fold: FoldFacts = { direction, target, targets, graph: scope.path, proof };
+      // (with --clone-shared the rewritten layer is the copy: named in the entries, since its weights are what ships)
+      const copy = o.clone ? ctx.labels.get(matches[0]!.layer.node) ?? matches[0]!.layer.node.name : undefined;
+      const fold: FoldFacts = { direction, target, targets, graph: scope.path, proof, copy };
       // A normalization written out as primitive ops keeps its statistics; its tail moved, so it is listed as folded.
       // (the index still answers for the graph as the sweep found it: p is the producer of the run's input)
       const written = p && steps[0]!.kind === 'elementwise' ? writtenOutNorm(scope, p) : undefined;
@@ -172,13 +174,14 @@ function anyDirty(dirty: Set<Node>, steps: readonly AffineStep[], p: Node | unde
 }
 
 /** What every ledger entry of one fold shares. */
-interface FoldFacts { direction: Direction; target: string; targets: string[]; graph: string; proof: ProofFigures | undefined }
+interface FoldFacts { direction: Direction; target: string; targets: string[]; graph: string; proof: ProofFigures | undefined; copy: string | undefined }
 
 function ledgerEntry(ctx: FoldContext, f: FoldFacts, node: Node, op: string, kind: EntryKind, effect: string, cloneBytes: number): LedgerEntry {
   const e: LedgerEntry = {
     node: ctx.labels.get(node) ?? node.name, op, kind, status: 'folded', direction: f.direction, target: f.target, targets: f.targets, reason: null, hint: null,
     effect, graph: f.graph, cloneBytes,
   };
+  if (f.copy !== undefined) e.copy = f.copy;
   if (f.proof) e.proof = f.proof; // (last, as the report lists it)
   return e;
 }

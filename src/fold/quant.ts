@@ -23,9 +23,18 @@ import type { Tensor } from '../graph/ir.js';
 
 /** Quantization readiness of one folded layer (Nagel et al. 2019, arXiv:1906.04721). */
 export interface QuantRow {
-  /** The layer whose weights the fold changed. */
+  /** The layer the normalization(s) folded into, as the ledger names it. */
   target: string;
-  /** Normalization(s) folded into it. */
+  /**
+   * With --clone-shared, the copy of `target` the fold made and rewrote: the after figures are the copy's weights
+   * (the before figures are `target`'s, which the copy started from; `target` itself ships unchanged). Absent when
+   * `target` itself was rewritten.
+   */
+  copy?: string;
+  /**
+   * Normalization(s) folded into it (with a copy: into the copy; a fold into `target` made before the copy was
+   * taken is in the copy's weights too, but listed on `target`'s own row).
+   */
   norms: string[];
   channels: number;
   /** Largest per-output-channel weight range divided by the median one, before and after folding. */
@@ -297,14 +306,16 @@ function scopeFor(scopes: Scope[], others: Scope[], path: string): Scope | undef
 }
 
 /** What the quantization report reads of a ledger entry. */
-export type FoldedTargets = Pick<LedgerEntry, 'node' | 'status' | 'target' | 'targets' | 'graph'>;
+export type FoldedTargets = Pick<LedgerEntry, 'node' | 'status' | 'target' | 'targets' | 'graph' | 'copy'>;
 
 /** A folded target with the figures of its original weights: the first half of a quantization row. */
 export interface TargetBefore {
   graph: string;
   target: string;
+  /** The --clone-shared copy of the target that the fold rewrote (found by this name in the folded model). */
+  copy?: string;
   norms: string[];
-  /** The target node in the original model (the folded model's node is found from it). */
+  /** The target node in the original model (the folded model's node is found from it, unless a copy was rewritten). */
   node: Node;
   figures: LayerFigures;
 }
@@ -317,26 +328,52 @@ export interface QuantBefore { scopes: Scope[]; targets: TargetBefore[] }
  * half; it needs nothing of the folded model, so a file job works it out while the folded model is written).
  */
 export function quantBefore(before: Model, ledger: readonly FoldedTargets[]): QuantBefore {
-  // by graph, then target (no joined key per entry); `order` keeps the ledger's order across graphs
-  const byGraph = new Map<string, Map<string, { graph: string; target: string; norms: string[] }>>();
-  const order: Array<{ graph: string; target: string; norms: string[] }> = [];
+  // With --clone-shared a fold rewrote a copy of its target and left the target as it was: the row is the copy's
+  // (its folded weights ship), its before figures the target's (what the copy started from). A later fold into
+  // the copy (the ledger then names the copy as its target) joins the copy's row. So first the copies' originals,
+  // by graph, then the rows keyed by the layer actually rewritten.
+  let originOf: Map<string, Map<string, string>> | undefined;
+  for (const e of ledger) {
+    if (e.status !== 'folded' || e.target === null || e.copy === undefined) continue;
+    let inGraph = (originOf ??= new Map()).get(e.graph);
+    if (!inGraph) originOf.set(e.graph, inGraph = new Map());
+    inGraph.set(e.copy, e.target);
+  }
+  // by graph, then rewritten layer (no joined key per entry); `order` keeps the ledger's order across graphs
+  type Group = { graph: string; target: string; copy?: string; norms: string[] };
+  const byGraph = new Map<string, Map<string, Group>>();
+  const order: Group[] = [];
   for (const e of ledger) {
     if (e.status !== 'folded' || e.target === null) continue;
     let inGraph = byGraph.get(e.graph);
     if (!inGraph) byGraph.set(e.graph, inGraph = new Map());
+    const origins = originOf?.get(e.graph);
     // a norm read by several layers folded into each of them: one row per layer
     const add = (target: string) => {
-      let g = inGraph!.get(target);
-      if (!g) { inGraph!.set(target, g = { graph: e.graph, target, norms: [] }); order.push(g); }
+      // (a fold that made a copy has a single target, the copy's original)
+      const rewritten = e.copy ?? target, original = e.copy !== undefined ? target : origins?.get(target) ?? target;
+      let g = inGraph!.get(rewritten);
+      if (!g) {
+        inGraph!.set(rewritten, g = rewritten === original ? { graph: e.graph, target: original, norms: [] } : { graph: e.graph, target: original, copy: rewritten, norms: [] });
+        order.push(g);
+      }
       if (!g.norms.includes(e.node)) g.norms.push(e.node);
     };
-    if (e.targets?.length) for (const t of e.targets) add(t);
+    if (e.copy !== undefined) add(e.target);
+    else if (e.targets?.length) for (const t of e.targets) add(t);
     else add(e.target);
   }
   if (order.length === 0) return { scopes: [], targets: [] };
+  // the original layers' labels wanted in each graph
+  const wantedIn = new Map<string, Map<string, true>>();
+  for (const g of order) {
+    let w = wantedIn.get(g.graph);
+    if (!w) wantedIn.set(g.graph, w = new Map());
+    w.set(g.target, true);
+  }
   const sb = buildScopes(before);
   const found = new Map<string, { scope: Scope; nodes: Map<string, Node> }>();
-  for (const [graph, wanted] of byGraph) {
+  for (const [graph, wanted] of wantedIn) {
     const scope = scopeFor(sb, sb, graph);
     if (scope) found.set(graph, { scope, nodes: nodesByLabel(scope, wanted) });
   }
@@ -345,7 +382,8 @@ export function quantBefore(before: Model, ledger: readonly FoldedTargets[]): Qu
     const at = found.get(g.graph), node = at?.nodes.get(g.target);
     if (!node) continue;
     const figures = figuresOfLayer(at!.scope, node);
-    if (figures) targets.push({ graph: g.graph, target: g.target, norms: g.norms, node, figures });
+    if (!figures) continue;
+    targets.push(g.copy === undefined ? { graph: g.graph, target: g.target, norms: g.norms, node, figures } : { graph: g.graph, target: g.target, copy: g.copy, norms: g.norms, node, figures });
   }
   return { scopes: sb, targets };
 }
@@ -365,12 +403,13 @@ export function quantAfter(start: QuantBefore, after: Model, thresholdDb = QUANT
     let scopeA = scopes.get(t.graph);
     if (scopeA === undefined && !scopes.has(t.graph)) scopes.set(t.graph, scopeA = scopeFor(sa, sb, t.graph));
     if (!scopeA) continue;
-    const na = counterpart(indexOf(scopeA, index), t.node);
+    // (a copy is always named: freshName in the fold driver)
+    const ix = indexOf(scopeA, index), na = t.copy !== undefined ? ix.linearByName.get(t.copy) : counterpart(ix, t.node);
     if (!na) continue;
     const b = t.figures, a = figuresOfLayer(scopeA, na);
     if (!a) continue;
     rows.push({
-      target: t.target, norms: t.norms, channels: a.channels, spreadBefore: b.spread, spreadAfter: a.spread,
+      target: t.target, ...(t.copy !== undefined ? { copy: t.copy } : {}), norms: t.norms, channels: a.channels, spreadBefore: b.spread, spreadAfter: a.spread,
       sqnrBefore: b.sqnr, sqnrAfter: a.sqnr,
       // flagged when the fold brought a channel below the threshold (a channel already that lossy before the fold,
       // e.g. a dead one, is shown but not blamed on the fold)

@@ -30,7 +30,7 @@ export interface Sketch {
   node: string;
   graph: string;
   before: SketchView;
-  /** Around the target layer in the folded model (folds only). */
+  /** Around the target layer in the folded model (folds only; with --clone-shared around the copy that was folded). */
   after?: SketchView;
 }
 
@@ -91,11 +91,12 @@ function findNode(scope: Scope, label: string): Node | undefined {
 
 /**
  * One sketch per entry. `before` is the model the entries were judged on; `after` the folded model (fold only),
- * where a folded entry's target is found by its name (an unnamed target keeps no stable label, so it gets none).
+ * where a folded entry's target is found by its name (an unnamed target keeps no stable label, so it gets none);
+ * a fold that rewrote a --clone-shared copy is drawn around the copy (the target is left as it was).
  */
 export function sketches(
   before: Model,
-  entries: ReadonlyArray<{ node: string; graph: string; status: string; target: string | null }>,
+  entries: ReadonlyArray<{ node: string; graph: string; status: string; target: string | null; copy?: string }>,
   after?: Model,
 ): Sketch[] {
   const sb = buildScopes(before);
@@ -108,8 +109,9 @@ export function sketches(
     const sketch: Sketch = { node: e.node, graph: e.graph, before: viewAround(scope, norm, e.node, e.target) };
     if (e.status === 'folded' && e.target !== null) {
       const scopeA = sa.find((s) => s.path === e.graph);
-      const t = scopeA?.graph.nodes.find((n) => n.name !== '' && n.name === e.target);
-      if (scopeA && t) sketch.after = viewAround(scopeA, t, e.node, e.target);
+      const rewritten = e.copy ?? e.target;
+      const t = scopeA?.graph.nodes.find((n) => n.name !== '' && n.name === rewritten);
+      if (scopeA && t) sketch.after = viewAround(scopeA, t, e.node, rewritten);
     }
     out.push(sketch);
   }

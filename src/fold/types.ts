@@ -138,6 +138,11 @@ export interface LedgerEntry {
   /** For a folded norm, what the fold did to its layer (null for a kept one). */
   effect: string | null;
   graph: string;
+  /**
+   * With --clone-shared, the copy of `target` the fold made and rewrote (its name in the folded model); the
+   * original keeps its weights for its other readers. Absent when `target` itself was rewritten.
+   */
+  copy?: string;
   /** The figures of this fold's proof (folded entries, when proofs ran). */
   proof?: ProofFigures;
 }

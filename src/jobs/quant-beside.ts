@@ -54,7 +54,7 @@ export function quantBeside(input: string, ledger: readonly LedgerEntry[], thres
   const state = new Int32Array(new SharedArrayBuffer(8));
   const thread = startBackgroundThread(threadModuleUrl(import.meta.url, 'jobs', 'quant-thread.js'), (port): QuantThreadSetup => ({
     input, thresholdDb, state: state.buffer as SharedArrayBuffer, port,
-    ledger: ledger.map((e) => ({ node: e.node, status: e.status, target: e.target, targets: e.targets, graph: e.graph })),
+    ledger: ledger.map((e) => ({ node: e.node, status: e.status, target: e.target, targets: e.targets, graph: e.graph, copy: e.copy })),
   }));
   if (!thread) return undefined;
   const { worker, port: port1 } = thread;

@@ -47,6 +47,14 @@ export function numText(x: number): string {
   return x.toExponential(2);
 }
 
+/**
+ * The layer a quantization row is about: its ledger target, and with --clone-shared the copy whose weights the
+ * after figures describe (`conv -> copy conv.clone`).
+ */
+export function quantLayerText(r: { target: string; copy?: string }): string {
+  return r.copy === undefined ? r.target : `${r.target} -> copy ${r.copy}`;
+}
+
 /** A ratio such as a channel-range spread: a plain number with up to 1 decimal, or inf. */
 export function ratioText(x: number): string {
   if (Number.isNaN(x)) return 'NaN';

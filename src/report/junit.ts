@@ -13,7 +13,7 @@
 import type { AuditReport, FoldReport } from '../jobs/types.js';
 import type { CompareReport } from '../verify/compare.js';
 import { outputSkipped, outputSkipReason } from '../verify/status.js';
-import { dbText, numText } from './format.js';
+import { dbText, numText, quantLayerText } from './format.js';
 
 export type Outcome =
   | { kind: 'pass' }
@@ -87,7 +87,7 @@ export function foldSuite(r: FoldReport): Suite {
   }
   for (const q of r.quantization) {
     const figures = `worst channel ${dbText(q.sqnrBefore.worstChannel)} -> ${dbText(q.sqnrAfter.worstChannel)} dB under one per-tensor 8-bit scale (threshold ${dbText(r.quantThresholdDb)} dB)`;
-    cases.push({ classname: r.model, name: `8-bit readiness ${q.target}`, outcome: q.flagged ? { kind: 'skipped', message: `flagged: ${figures}` } : { kind: 'pass' } });
+    cases.push({ classname: r.model, name: `8-bit readiness ${quantLayerText(q)}`, outcome: q.flagged ? { kind: 'skipped', message: `flagged: ${figures}` } : { kind: 'pass' } });
   }
   return { name: r.model, cases };
 }

@@ -3,7 +3,7 @@
 // caution lines. Our own layout; nothing here compares operator counts side by side.
 import type { FoldReport, CheckSummary, QuantRow, StorageSummary, EqualizedPair, Int8Simulation } from '../jobs/types.js';
 import type { LedgerEntry, ProofFigures } from '../fold/types.js';
-import { append, bytesText, CAUTION, cosineText, dbText, numText, plural, ratioText, widest, joinLines } from './format.js';
+import { append, bytesText, CAUTION, cosineText, dbText, numText, plural, quantLayerText, ratioText, widest, joinLines } from './format.js';
 import { paint, type Paint } from './paint.js';
 
 const where = (graph: string) => (graph === 'main' ? '' : `  in ${graph}`);
@@ -84,12 +84,12 @@ export function quantLines(rows: readonly QuantRow[], thresholdDb: number, p: Pa
     'quantization readiness (symmetric 8-bit weights, before -> after the fold; spread = widest / median channel range;',
     `  sqnr in dB per tensor, per channel, and the worst channel under one per-tensor scale; flagged below ${dbText(thresholdDb)} dB)`,
   ];
-  const w = widest(rows, (r) => r.target);
+  const w = widest(rows, quantLayerText);
   const cw = widest(rows, (r) => plural(r.channels, 'channel'));
   for (const r of rows) {
     const flag = r.flagged ? `  ${p.warn('flagged')}: per-tensor 8-bit weights starve its narrow channels; use per-channel scales or --equalize` : '';
     const b = r.sqnrBefore, a = r.sqnrAfter;
-    lines.push(`  ${r.target.padEnd(w)}  ${plural(r.channels, 'channel').padEnd(cw)}  spread ${ratioText(r.spreadBefore)} -> ${ratioText(r.spreadAfter)}` +
+    lines.push(`  ${quantLayerText(r).padEnd(w)}  ${plural(r.channels, 'channel').padEnd(cw)}  spread ${ratioText(r.spreadBefore)} -> ${ratioText(r.spreadAfter)}` +
       `  sqnr tensor ${dbText(b.tensor)} -> ${dbText(a.tensor)}, channel ${dbText(b.channel)} -> ${dbText(a.channel)}, worst channel ${dbText(b.worstChannel)} -> ${dbText(a.worstChannel)}${flag}`);
   }
   return lines;

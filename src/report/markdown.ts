@@ -77,7 +77,7 @@ export function foldMarkdown(r: FoldReport): string {
   if (flagged.length) {
     out.push('', `Quantization readiness: ${flagged.length} layer(s) flagged for per-tensor 8-bit weights ` +
       `(worst channel below ${dbText(r.quantThresholdDb)} dB SQNR): ` +
-      flagged.map((q) => `${code(q.target)} worst channel ${dbText(q.sqnrBefore.worstChannel)} → ${dbText(q.sqnrAfter.worstChannel)} dB, spread ${ratioText(q.spreadBefore)} → ${ratioText(q.spreadAfter)}`).join(', ') + '.');
+      flagged.map((q) => `${code(q.target)}${q.copy === undefined ? '' : ` → copy ${code(q.copy)}`} worst channel ${dbText(q.sqnrBefore.worstChannel)} → ${dbText(q.sqnrAfter.worstChannel)} dB, spread ${ratioText(q.spreadBefore)} → ${ratioText(q.spreadAfter)}`).join(', ') + '.');
   }
   const eq = r.equalized.filter((p) => p.status === 'equalized');
   if (r.equalized.length) {

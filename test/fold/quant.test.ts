@@ -127,3 +127,53 @@ describe('quantReadiness', () => {
     expect(quantReadiness(parseModel(convModel(W), '.'), parseModel(convModel(W), '.'), kept)).toEqual([]);
   });
 });
+
+describe('quantReadiness with --clone-shared copies', () => {
+  /** conv's output c is graph output c and read by bn (output y): --clone-shared folds bn into a copy of conv. */
+  function sharedConvModel(w: number[]): Uint8Array {
+    const g = new GraphBuilder();
+    g.input('x', [1, 1, 3, 4]).output('c', [1, 4, 3, 3]).output('y', [1, 4, 3, 3]);
+    g.init('w', [4, 1, 1, 2], w);
+    g.node('Conv', ['x', 'w'], {}, { name: 'conv', outputs: ['c'] });
+    g.init('sc', [4], [1, 1, 1, 100]); g.init('sh', [4], [0, 0, 0, 0]); g.init('mu', [4], [0, 0, 0, 0]); g.init('va', [4], [1, 1, 1, 1]);
+    g.node('BatchNormalization', ['c', 'sc', 'sh', 'mu', 'va'], { epsilon: 0 } as never, { name: 'bn', outputs: ['y'] });
+    return modelBytes(g);
+  }
+
+  it('the real fold engine: the after figures are the folded copy\'s (spread 6.667 -> 36.36, flagged), not the untouched original\'s', () => {
+    const bytes = sharedConvModel(W);
+    const before = parseModel(Uint8Array.from(bytes), '.'), after = parseModel(Uint8Array.from(bytes), '.');
+    const { ledger: l } = foldModel(after, { cloneShared: true });
+    expect(l.normalizations.map((e) => [e.node, e.status, e.target, e.copy])).toEqual([['bn', 'folded', 'conv', 'conv.clone']]);
+    const rows = quantReadiness(before, after, l.normalizations);
+    expect(rows).toHaveLength(1);
+    expect([rows[0]!.target, rows[0]!.copy, rows[0]!.norms]).toEqual(['conv', 'conv.clone', ['bn']]);
+    close32(rows[0]!.spreadBefore, 2 / 0.3);
+    // the copy's channel 3 is 100 * [0, 0.4] (epsilon 0, variance 1): ranges 0.2, 0.2, 2, 40, spread 40 / 1.1;
+    // channel 0's +-0.1 rounds to 0 under the per-tensor scale 40 / 127 (see the hand-folded case above)
+    close32(rows[0]!.spreadAfter, 40 / 1.1);
+    expect(rows[0]!.sqnrAfter.worstChannel).toBeCloseTo(0, 12);
+    expect(rows[0]!.flagged).toBe(true);
+  });
+
+  it('a later fold that reaches both the original and the copy: one row each, the copy\'s holding both norms', () => {
+    // hand-built folded model: conv (weights doubled by bn_pre) feeds c; conv.clone (bn_pre, then bn_post's
+    // 100-fold channel 3) feeds y
+    const g = new GraphBuilder();
+    g.input('x', [1, 1, 3, 4]).output('c', [1, 4, 3, 3]).output('y', [1, 4, 3, 3]);
+    g.init('w', [4, 1, 1, 2], W.map((v) => 2 * v));
+    g.init('w.folded', [4, 1, 1, 2], [...W.slice(0, 6).map((v) => 2 * v), 0, 80]);
+    g.node('Conv', ['x', 'w'], {}, { name: 'conv', outputs: ['c'] });
+    g.node('Conv', ['x', 'w.folded'], {}, { name: 'conv.clone', outputs: ['y'] });
+    const folded = (node: string, targets: string[], copy?: string): LedgerEntry => ({
+      node, op: 'BatchNormalization', kind: 'normalization', status: 'folded', direction: 'into-producer', target: targets.join(', '), targets,
+      cloneBytes: copy ? 32 : 0, reason: null, hint: null, effect: 'scales', graph: 'main', ...(copy ? { copy } : {}),
+    });
+    const ledgerOf = [folded('bn_pre', ['conv', 'conv.clone']), folded('bn_post', ['conv'], 'conv.clone')];
+    const rows = quantReadiness(parseModel(sharedConvModel(W), '.'), parseModel(modelBytes(g), '.'), ledgerOf);
+    expect(rows.map((r) => [r.target, r.copy, r.norms])).toEqual([['conv', undefined, ['bn_pre']], ['conv', 'conv.clone', ['bn_pre', 'bn_post']]]);
+    for (const r of rows) close32(r.spreadBefore, 2 / 0.3);
+    close32(rows[0]!.spreadAfter, 2 / 0.3); // a uniform factor keeps the spread
+    close32(rows[1]!.spreadAfter, 80 / 2.2); // ranges 0.4, 0.4, 4, 80: median 2.2
+  });
+});

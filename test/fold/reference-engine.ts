@@ -158,8 +158,10 @@ function sweep(ctx: FoldContext, model: Model, folded: LedgerEntry[], released: 
         applyEdit(ctx, edit, true);
       }
       const hint = foldHint(o.matches, o.clone);
+      const copy = o.clone ? ctx.labels.get(matches[0]!.layer.node) ?? matches[0]!.layer.node.name : undefined;
       const entry = (node: Node, op: string, kind: EntryKind, h: string, cloneBytes = 0): LedgerEntry => ({
         node: ctx.labels.get(node) ?? node.name, op, kind, status: 'folded', direction, target, targets, reason: null, hint: null, effect: h, graph: scope.path, cloneBytes,
+        ...(copy !== undefined ? { copy } : {}),
         ...(proof ? { proof } : {}),
       });
       // A normalization written out as primitive ops keeps its statistics; its tail moved, so it is listed as folded.

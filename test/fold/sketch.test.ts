@@ -93,3 +93,25 @@ describe('sketches', () => {
     expect(s!.before.nodes.map((n) => n.id)).toEqual(expect.arrayContaining(['conv', 'bn']));
   });
 });
+
+describe('--clone-shared', () => {
+  it('the drawing after the fold is centred on the copy the norm folded into, the original beside it untouched', () => {
+    // conv feeds output B and a norm (output A): the norm gets its own copy of conv, folded; conv stays for B
+    const g = new GraphBuilder();
+    g.input('x', [1, 2, 4, 4]).output('A').output('B');
+    g.node('Conv', ['x', g.init('w', [2, 2, 1, 1], randn(rng(5), 4))], {}, { name: 'conv', outputs: ['B'] });
+    g.node('BatchNormalization', ['B', g.init('s', [2], [1, 2]), g.init('b', [2], [0, 1]), g.init('m', [2], [0, 0]), g.init('v', [2], [1, 3])], {}, { name: 'bn', outputs: ['A'] });
+    g.node('Relu', ['A'], {}, { name: 'after_a', outputs: ['A2'] });
+    g.output('A2');
+    const bytes = modelBytes(g);
+    const before = parseModel(Uint8Array.from(bytes), '/x'), after = parseModel(Uint8Array.from(bytes), '/x');
+    const { ledger } = foldModel(after, { cloneShared: true });
+    const e = ledger.normalizations.find((x) => x.node === 'bn')!;
+    expect([e.status, e.target, e.copy]).toEqual(['folded', 'conv', 'conv.clone']);
+    const [s] = sketches(before, ledger.normalizations, after);
+    // two hops around the copy in the folded graph: the copy, its reader after_a (through A); x is a graph input
+    expect(new Set(s!.after!.nodes.map((n) => n.id))).toEqual(walk(after.graph, 'conv.clone', 2));
+    expect(s!.after!.nodes.find((n) => n.id === 'conv.clone')!.role).toBe('target');
+    expect(s!.after!.nodes.map((n) => n.id)).toContain('after_a');
+  });
+});

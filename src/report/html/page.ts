@@ -111,7 +111,7 @@ function card(e: Entry, i: number, sketch: Sketch | undefined, pre: string, at: 
     const views = [drawView(sketch.before, `${key}-b`, `Neighbourhood of ${e.node} ${sketch.after ? 'before the fold' : 'in the model'}`)];
     const note = (v: Sketch['before']) => (v.omitted ? ` (${v.omitted} more neighbours not drawn)` : '');
     drawings = `<div class="pair"><figure>${views[0]}<figcaption>${sketch.after ? 'before' : 'neighbourhood, two hops'}${note(sketch.before)}</figcaption></figure>`;
-    if (sketch.after) drawings += `<figure>${drawView(sketch.after, `${key}-a`, `Neighbourhood of ${e.target ?? ''} after the fold`)}<figcaption>after${note(sketch.after)}</figcaption></figure>`;
+    if (sketch.after) drawings += `<figure>${drawView(sketch.after, `${key}-a`, `Neighbourhood of ${typeof e.copy === 'string' ? `${e.copy} (the copy of ${e.target ?? ''} this norm folded into)` : e.target ?? ''} after the fold`)}<figcaption>after${note(sketch.after)}</figcaption></figure>`;
     drawings += '</div>';
   }
   return `<article class="card s-${esc(e.status)}" id="${key}" tabindex="0" aria-labelledby="${key}-h">` +
@@ -163,7 +163,8 @@ function quantSection(r: FoldReport, pre: string, at: string): string {
     const q = `${at}quantization.${i}`;
     const sqnr = hasSqnr ? `<td>${db(`${q}.sqnrBefore.worstChannel`, row.sqnrBefore.worstChannel)} → ${db(`${q}.sqnrAfter.worstChannel`, row.sqnrAfter.worstChannel)}</td>` +
       `<td>${db(`${q}.sqnrAfter.tensor`, row.sqnrAfter.tensor)} / ${db(`${q}.sqnrAfter.channel`, row.sqnrAfter.channel)}</td>` : '';
-    return `<tr><td><code>${esc(row.target)}</code></td><td>${fig(`${q}.channels`, row.channels, String(row.channels))}</td>` +
+    const layer = row.copy === undefined ? '' : ` → copy <code>${esc(row.copy)}</code>`;
+    return `<tr><td><code>${esc(row.target)}</code>${layer}</td><td>${fig(`${q}.channels`, row.channels, String(row.channels))}</td>` +
       `<td>${fig(`${q}.spreadBefore`, row.spreadBefore, ratioText(row.spreadBefore))} → ${fig(`${q}.spreadAfter`, row.spreadAfter, ratioText(row.spreadAfter))}</td>` +
       `${sqnr}<td>${row.flagged ? '<span class="badge s-failed">▲ flagged</span>' : 'no'}</td></tr>`;
   }).join('');

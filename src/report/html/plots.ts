@@ -3,7 +3,7 @@
 import type { QuantRow } from '../../fold/quant.js';
 import type { GateLimit } from '../../verify/gate.js';
 import { REL_FLOOR, type DiffHistogram } from '../../verify/metrics.js';
-import { numText, ratioText } from '../format.js';
+import { numText, quantLayerText, ratioText } from '../format.js';
 import { esc } from './escape.js';
 
 const W = 600;
@@ -18,7 +18,7 @@ function decades(lo: number, hi: number, every = 1): number[] {
 
 /** One row per folded layer: spread before (hollow circle) and after (filled dot); flagged layers marked. */
 export function spreadPlot(rows: readonly QuantRow[], key: string): string {
-  const labelW = Math.min(220, 12 + 7.3 * Math.max(4, ...rows.map((r) => r.target.length)));
+  const labelW = Math.min(220, 12 + 7.3 * Math.max(4, ...rows.map((r) => quantLayerText(r).length)));
   const left = labelW + 8, right = 86, top = 28, rowH = 26;
   const h = top + rows.length * rowH + 30;
   const finite = rows.flatMap((r) => [r.spreadBefore, r.spreadAfter]).filter((x) => Number.isFinite(x) && x > 0);
@@ -34,7 +34,7 @@ export function spreadPlot(rows: readonly QuantRow[], key: string): string {
   rows.forEach((r, i) => {
     const y = top + i * rowH + rowH / 2;
     const xb = x(r.spreadBefore), xa = x(r.spreadAfter);
-    p.push(`<g class="row${r.flagged ? ' flagged' : ''}"><text class="name" x="${f(labelW)}" y="${f(y + 4)}">${esc(r.target)}</text>`,
+    p.push(`<g class="row${r.flagged ? ' flagged' : ''}"><text class="name" x="${f(labelW)}" y="${f(y + 4)}">${esc(quantLayerText(r))}</text>`,
       `<line class="move" x1="${f(xb)}" x2="${f(xa)}" y1="${f(y)}" y2="${f(y)}"/>`,
       `<circle class="before" cx="${f(xb)}" cy="${f(y)}" r="5"><title>before: ${ratioText(r.spreadBefore)}</title></circle>`,
       `<circle class="after" cx="${f(xa)}" cy="${f(y)}" r="5"><title>after: ${ratioText(r.spreadAfter)}</title></circle>`);
