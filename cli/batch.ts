@@ -1,8 +1,10 @@
 // Running fold or audit over one or many models. One model runs in this process; several run on a pool of
 // worker threads (one per core, never more than there are models), each calling the same library job. Results
 // come back in input order whatever order the workers finish in, and a model that fails (bad input, or a bug)
-// becomes an error entry: it never stops the others. The batch's exit code is the worst of its models.
-import { Worker } from 'node:worker_threads';
+// becomes an error entry: it never stops the others. The batch's exit code is the worst of its models. A TERM or
+// Ctrl-C stops every worker where it is: the batch then never finishes, and reports no model at all (cancel.ts).
+import { isMainThread, Worker } from 'node:worker_threads';
+import { basename } from 'node:path';
 import { availableParallelism } from 'node:os';
 import { isPleatError } from '../src/errors.js';
 import { workerOutputEnv, type StagedFile } from '../src/jobs/outputs.js';
@@ -14,6 +16,7 @@ import { asMap } from '../src/verify/inputs.js';
 import type { Outcome } from '../src/report/render.js';
 import type { Progress } from './progress.js';
 import { runFigures } from './output.js';
+import { beforeCancel } from './cancel.js';
 
 export type Job = (
   | { command: 'fold'; model: string; output: string; opts: FoldJobOptions }
@@ -60,6 +63,7 @@ export function runJob(job: Job): JobOutcome {
   if (job.command === 'fold') {
     if (!foldJob) throw new Error('runJob: the fold job is not loaded (call loadJob first)');
     const r = foldJob.foldStaged(job.model, job.output, job.opts);
+    signalWhileStaged(job.model);
     if (job.runFigures) r.report.run = runFigures(started);
     return { model: job.model, report: r.report, exitCode: r.report.failed ? EXIT.failed : EXIT.ok, staged: r.staged, inputs: r.inputs };
   }
@@ -67,6 +71,18 @@ export function runJob(job: Job): JobOutcome {
   const report = auditJob.auditFile(job.model, job.opts);
   if (job.runFigures) report.run = runFigures(started);
   return { model: job.model, report, exitCode: report.failed ? EXIT.failed : EXIT.ok };
+}
+
+/**
+ * Test hook: PLEAT_SIGNAL_AFTER_STAGING=<model file name> sends TERM once that model's files are staged; on a
+ * worker thread the job then stays busy (up to 30 s), as a long job would, so the signal meets a worker at work
+ * with its files staged.
+ */
+function signalWhileStaged(model: string): void {
+  if (process.env.PLEAT_SIGNAL_AFTER_STAGING !== basename(model)) return;
+  process.kill(process.pid, 'SIGTERM');
+  const until = Date.now() + 30_000;
+  while (!isMainThread && Date.now() < until) { /* busy, as a fold is */ }
 }
 
 /** Run one job of a batch; expected failures and bugs both become an outcome. */
@@ -99,9 +115,16 @@ export async function runBatch(jobs: readonly Job[], progress: Progress, workers
     return results;
   }
   let next = 0;
+  // A cancelled run stops every worker where it is, before its temporaries are removed; no lane then starts
+  // another worker, counts a job as done or crashed, or finishes: the process ends with the signal's code.
+  const running = new Set<Worker>();
+  let stopping = false;
+  const forget = beforeCancel(() => { stopping = true; return Promise.all([...running].map((w) => w.terminate())); });
   const lane = (): Promise<void> => new Promise((resolve) => {
+    if (stopping) return;
     if (next >= jobs.length) { resolve(); return; }
     const w = new Worker(new URL('./batch-worker.js', import.meta.url), { env: workerOutputEnv() });
+    running.add(w);
     let current = -1;
     const finish = (i: number, o: JobOutcome) => { results[i] = o; progress.tick(jobs[i]!.model); };
     const feed = () => {
@@ -109,13 +132,21 @@ export async function runBatch(jobs: readonly Job[], progress: Progress, workers
       current = next++;
       w.postMessage({ index: current, job: jobs[current] });
     };
-    w.on('message', (m: { index: number; outcome: JobOutcome }) => { finish(m.index, m.outcome); feed(); });
+    w.on('message', (m: { index: number; outcome: JobOutcome }) => { if (stopping) return; finish(m.index, m.outcome); feed(); });
     // a worker that dies takes only its current model with it; the lane starts over with a fresh worker
-    w.on('error', (e) => { if (current >= 0) finish(current, crashed(jobs[current]!, e.message.split('\n')[0]!)); current = -1; void lane().then(resolve); });
-    w.on('exit', (code) => { if (current >= 0) { finish(current, crashed(jobs[current]!, `exit code ${code}`)); current = -1; void lane().then(resolve); } });
+    w.on('error', (e) => { if (stopping) return; if (current >= 0) finish(current, crashed(jobs[current]!, e.message.split('\n')[0]!)); current = -1; void lane().then(resolve); });
+    w.on('exit', (code) => {
+      running.delete(w);
+      if (stopping) return;
+      if (current >= 0) { finish(current, crashed(jobs[current]!, `exit code ${code}`)); current = -1; void lane().then(resolve); }
+    });
     feed();
   });
   const n = Math.max(1, Math.min(workers, jobs.length));
-  await Promise.all(Array.from({ length: n }, () => lane()));
+  try {
+    await Promise.all(Array.from({ length: n }, () => lane()));
+  } finally {
+    forget();
+  }
   return results;
 }

@@ -8,6 +8,7 @@ import { PleatError } from '../src/errors.js';
 import { EXIT_CODES_TEXT } from '../src/report/exit-codes.js';
 import { checkFlags, type OptionTable } from './check-flags.js';
 import { COMMANDS, commandNames } from './commands/table.js';
+import { listenForCancel } from './cancel.js';
 import { guardStandardStreams, failAndExit, sayError } from './errors.js';
 import { nearest } from './suggest.js';
 
@@ -138,8 +139,9 @@ async function main(): Promise<void> {
     .parseAsync();
 }
 
-// Ctrl-C or a TERM ends through process.exit, so the output transaction's exit hook removes its temporaries.
-for (const [sig, code] of [['SIGINT', 130], ['SIGTERM', 143]] as const) process.once(sig, () => process.exit(code));
+// Ctrl-C or a TERM ends through process.exit (exit 130 or 143), so the output transaction's exit hook removes its
+// temporaries; a batch's workers are stopped first (see cancel.ts).
+listenForCancel();
 
 guardStandardStreams();
 main().catch(failAndExit);

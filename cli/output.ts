@@ -1,11 +1,13 @@
 // Turning results into output: which format stdout gets (--format, or --json as its shorthand), the
 // --report files (each written atomically), and colour only for a person at a terminal.
+import { dirname, resolve } from 'node:path';
 import { PleatError } from '../src/errors.js';
 import { FORMATS, useColour, type Format } from '../src/report/format.js';
 import { parseReportSpecs } from '../src/report/files.js';
-import type { StagedFile } from '../src/jobs/outputs.js';
+import type { OutputSet, StagedFile } from '../src/jobs/outputs.js';
 import { flushed, out, sayError } from './errors.js';
 import { prefetchSettled } from '../src/onnx/prefetch.js';
+import { beforeCancel, signalsFirst } from './cancel.js';
 
 export interface ReportFlags {
   json?: boolean;
@@ -53,7 +55,7 @@ export interface OutputGuard {
 }
 
 /** Claim every file the run reads (models, config file, --input files) as never to be written. */
-function protectReads(tx: import('../src/jobs/outputs.js').OutputSet, guard: OutputGuard): void {
+function protectReads(tx: OutputSet, guard: OutputGuard): void {
   for (const i of guard.inputs ?? []) tx.protect(i, 'input model');
   for (const [p, what] of guard.reads ?? []) tx.protect(p, what);
 }
@@ -74,14 +76,20 @@ export async function checkDestinations(plan: ReportPlan, guard: OutputGuard): P
   }
 }
 
+/** A new output transaction (loaded when used: --help needs none of it). */
+async function openOutputs(): Promise<OutputSet> {
+  const { OutputSet } = await import('../src/jobs/outputs.js');
+  return new OutputSet();
+}
+
 /**
  * Print stdout's report (coloured only on a TTY without NO_COLOR) and write every --report file (never coloured)
- * together with the files `staged` by the jobs, in one transaction: all are renamed in, or none.
+ * together with the files `staged` by the jobs, in one transaction (`opened`, or a new one): all are renamed in,
+ * or none.
  */
 export async function emit(plan: ReportPlan, render: (format: Format, colour: boolean) => string | Promise<string>,
-  guard: OutputGuard = {}, staged: ReadonlyArray<readonly StagedFile[]> = []): Promise<void> {
-  const { OutputSet } = await import('../src/jobs/outputs.js'); // loaded when used: --help needs none of it
-  const tx = new OutputSet();
+  guard: OutputGuard = {}, staged: ReadonlyArray<readonly StagedFile[]> = [], opened?: OutputSet): Promise<void> {
+  const tx = opened ?? await openOutputs();
   try {
     protectReads(tx, guard);
     for (const files of staged) if (files.length) tx.adopt(files, 'output');
@@ -89,11 +97,9 @@ export async function emit(plan: ReportPlan, render: (format: Format, colour: bo
       tx.reserve(spec.file, '--report');
       tx.stage(spec.file, await render(spec.format, false));
     }
-    // A fold runs without yielding, so a TERM or Ctrl-C that came during it waits in the event loop: let it run
-    // now, before anything is renamed in (it exits 143 or 130 and the temporaries go), rather than commit and
-    // report success for a cancelled job. (PLEAT_SIGNAL_BEFORE_COMMIT: test hook sending TERM at this point.)
-    if (process.env.PLEAT_SIGNAL_BEFORE_COMMIT) process.kill(process.pid, 'SIGTERM');
-    await new Promise<void>((res) => setTimeout(() => setImmediate(res), 0)); // (one full turn of the loop: its poll reads signals)
+    // a TERM or Ctrl-C that came during the work ends the run here, before anything is renamed in, rather than
+    // after a commit that reports success for a cancelled job
+    await signalsFirst();
     tx.commit();
   } catch (e) {
     tx.abort();
@@ -144,15 +150,28 @@ export async function runAndReport(command: 'fold' | 'audit', jobs: import('./ba
   if (jobs.length > 1) jobs = checkBatchNames(jobs);
   const { renderJobs, isJobError } = await import('../src/report/render.js');
   const { startProgress } = await import('./progress.js');
+  // The run's transaction is open while the jobs work: what they stage (here or on worker threads) is in the
+  // folders it watches, so a TERM or Ctrl-C at any point removes it (see cancel.ts), and it commits their files.
+  const tx = await openOutputs();
+  for (const j of jobs) {
+    if (j.command !== 'fold') continue;
+    tx.watch(dirname(resolve(j.output)));
+    if (j.opts.saveProbes !== undefined) tx.watch(dirname(resolve(j.opts.saveProbes)));
+  }
   const progress = startProgress(jobs.length, command, { quiet });
+  const forgetBar = beforeCancel(async () => progress.end()); // (a cancelled run leaves no bar on the terminal)
   let outcomes;
   try {
     outcomes = await runBatch(jobs, progress);
+  } catch (e) {
+    tx.abort();
+    throw e;
   } finally {
+    forgetBar();
     progress.end(); // erase the bar before any output, error lines included
   }
   reportErrors(outcomes.filter(isJobError).map((o) => o.error.message));
   const inputs = [...jobs.map((j) => j.model), ...outcomes.flatMap((o) => o.inputs ?? [])];
-  await emit(plan, (format, colour) => renderJobs(command, outcomes, format, colour), { inputs, reads }, outcomes.map((o) => o.staged ?? []));
+  await emit(plan, (format, colour) => renderJobs(command, outcomes, format, colour), { inputs, reads }, outcomes.map((o) => o.staged ?? []), tx);
   process.exitCode = Math.max(0, ...outcomes.map((o) => o.exitCode));
 }

@@ -1,16 +1,12 @@
 // pleat's library API: everything the CLI does, callable from a Node script with the same JSON shapes.
 import type { Model } from './graph/ir.js';
-import { readModelFile } from './onnx/read.js';
-import { checkOpset } from './graph/opsets.js';
-import { compare as compareModels, type CompareOptions, type CompareReport, type ProbeRecord } from './verify/compare.js';
-import { saveProbeSets } from './verify/probe-files.js';
-import { OutputSet } from './jobs/outputs.js';
-import { sideFilePaths } from './onnx/external.js';
+import type { CompareOptions, CompareReport } from './verify/compare.js';
+import { compareFiles, loadChecked, type CompareJobOptions, type CompareJobReport } from './jobs/compare.js';
 import { evaluate as evaluateModel, type EvaluateOptions, type EvaluateResult } from './verify/evaluate.js';
 import { foldFile } from './jobs/fold.js';
 import './jobs/with-checks.js'; // the library folds with proofs: load them (see jobs/check-kit.ts)
 import { auditFile } from './jobs/audit.js';
-import { SCHEMA_VERSION, type AuditJobOptions, type AuditReport, type FoldJobOptions, type FoldReport } from './jobs/types.js';
+import { type AuditJobOptions, type AuditReport, type FoldJobOptions, type FoldReport } from './jobs/types.js';
 import { checkOptionValues } from './verify/option-values.js';
 
 export { survey, surveyModel, type SurveyReport } from './jobs/survey.js';
@@ -31,19 +27,7 @@ export { setThreads } from './eval/threads.js';
 export { toJsonText } from './report/json.js';
 export type * from './jobs/types.js';
 export type { Finding, LedgerEntry, FoldLedger, ReasonCode, Direction } from './fold/types.js';
-export type { CompareOptions, CompareReport, EvaluateOptions, EvaluateResult, Model };
-
-/** What compare() returns and `pleat compare --json` prints: the comparison, with the schema version, the command and the two models. */
-export type CompareJobReport = { schemaVersion: number; command: 'compare'; a: string; b: string } & CompareReport;
-
-/** How a report names a model: the path as given, or a Model's source file ('(model in memory)' when it has none). */
-const nameOf = (m: string | Model): string => (typeof m === 'string' ? m : m.sourcePath ?? '(model in memory)');
-
-const load = (m: string | Model): Model => {
-  const model = typeof m === 'string' ? readModelFile(m) : m;
-  checkOpset(model, typeof m === 'string' ? m : 'model');
-  return model;
-};
+export type { CompareOptions, CompareReport, CompareJobReport, EvaluateOptions, EvaluateResult, Model };
 
 /** Fold every normalization that can be folded, prove it, and write `output` (unless a gate fails). */
 export function fold(input: string, output: string, options: FoldJobOptions = {}): FoldReport {
@@ -59,32 +43,12 @@ export function audit(input: string, options: AuditJobOptions = {}): AuditReport
  * Run two models on the same inputs and judge their agreement. With `saveProbes`, the probes and A's outputs are
  * written to that new or empty folder (ONNX backend test-data layout, see verify/probe-files.ts).
  */
-export function compare(a: string | Model, b: string | Model, options: CompareOptions & { saveProbes?: string } = {}): CompareJobReport {
-  checkOptionValues(options);
-  const named = (r: CompareReport): CompareJobReport => ({ schemaVersion: SCHEMA_VERSION, command: 'compare', a: nameOf(a), b: nameOf(b), ...r });
-  const { saveProbes, ...opts } = options;
-  if (saveProbes === undefined) return named(compareModels(load(a), load(b), opts));
-  const ma = load(a), mb = load(b);
-  // the probe folder goes through the output transaction: checked first, written beside, renamed in whole
-  const tx = new OutputSet();
-  try {
-    for (const m of [ma, mb]) if (m.sourcePath) [m.sourcePath, ...sideFilePaths(m)].forEach((p) => tx.protect(p, 'input model'));
-    tx.reserveFolder(saveProbes, '--save-probes');
-    const records: ProbeRecord[] = [];
-    const report = compareModels(ma, mb, { ...opts, onProbe: (p) => records.push(p) });
-    let sets = 0;
-    tx.stageFolder(saveProbes, (tmp) => { sets = saveProbeSets(tmp, ma.graph, records); });
-    tx.commit();
-    report.probesSaved = { dir: saveProbes, sets };
-    return named(report);
-  } catch (e) {
-    tx.abort();
-    throw e;
-  }
+export function compare(a: string | Model, b: string | Model, options: CompareJobOptions = {}): CompareJobReport {
+  return compareFiles(a, b, options);
 }
 
 /** Run one model on given or seeded inputs. */
 export function evaluate(model: string | Model, options: EvaluateOptions = {}): EvaluateResult {
   checkOptionValues(options);
-  return evaluateModel(load(model), options);
+  return evaluateModel(loadChecked(model), options);
 }

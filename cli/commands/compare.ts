@@ -22,19 +22,22 @@ export async function handler(argv: Flags): Promise<void> {
   const reads = filesRead(path, run.inputs);
   const threads = threadsFlag(argv.threads);
   // loaded here, not at start-up: the gate's expression library is large, and --help or a usage error needs none of it
-  const { compare, setThreads } = await import('../../src/index.js');
+  const { setThreads } = await import('../../src/index.js');
+  const { compareStaged } = await import('../../src/jobs/compare.js');
   if (threads !== undefined) setThreads(threads);
   const { renderCompare } = await import('../../src/report/render.js');
   const { EXIT } = await import('../../src/report/exit-codes.js');
   await checkDestinations(plan, { inputs: [argv.a, argv.b], reads });
   const { fileSha256 } = await import('../../src/jobs/sha256.js');
   const started = process.hrtime.bigint();
-  const report = compare(argv.a, argv.b, { ...run, simulateInt8: int8Setting(argv), saveProbes: argv.saveProbes });
+  // the probe folder (--save-probes) is staged, and renamed in with the reports, after a TERM or Ctrl-C that came
+  // during the work has had its turn
+  const { report, staged } = compareStaged(argv.a, argv.b, { ...run, simulateInt8: int8Setting(argv), saveProbes: argv.saveProbes });
   const extras = {
     ...(plan.pageDetail ? { sha256: { a: fileSha256(argv.a), b: fileSha256(argv.b) } } : {}),
     ...(plan.runFigures ? { run: runFigures(started) } : {}),
   };
-  await emit(plan, (format, colour) => renderCompare(report, argv.a, argv.b, format, colour, extras), { inputs: [argv.a, argv.b], reads });
+  await emit(plan, (format, colour) => renderCompare(report, argv.a, argv.b, format, colour, extras), { inputs: [argv.a, argv.b], reads }, [staged]);
   // skipped is not a failure unless --strict (or "strict" in the config) says so
   process.exitCode = report.status === 'failed' || (report.status === 'skipped' && run.strict) ? EXIT.failed : EXIT.ok;
 }

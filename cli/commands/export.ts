@@ -2,6 +2,7 @@ import type { Argv } from 'yargs';
 import { useColour } from '../../src/report/format.js';
 import { keepList, loadConfig, nameOrigins, runSettings } from '../config.js';
 import { out } from '../errors.js';
+import { signalsFirst } from '../cancel.js';
 import { configFlags, EPILOGUE, inputFlags, many, threadsFlag } from '../flags.js';
 import { CHOICE_OPTIONS } from '../../src/verify/option-values.js';
 
@@ -30,15 +31,18 @@ export async function handler(argv: Flags): Promise<void> {
   const run = runSettings(config, argv);
   const threads = threadsFlag(argv.threads);
   // loaded here, not at start-up (see compare.ts)
-  const { exportFile, setThreads } = await import('../../src/index.js');
+  const { setThreads } = await import('../../src/index.js'); // (which also loads the fold's proofs and checks)
+  const { exportStaged } = await import('../../src/jobs/export.js');
   if (threads !== undefined) setThreads(threads);
   const { toJsonText } = await import('../../src/report/json.js');
   const { exportText } = await import('../../src/report/export-text.js');
   const { EXIT } = await import('../../src/report/exit-codes.js');
-  const r = exportFile(argv.model, argv.bundle, argv.bundleFormat, {
+  const staged = exportStaged(argv.model, argv.bundle, argv.bundleFormat, {
     inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, probes: run.probes, gate: run.gate, maxProbeMemory: run.maxProbeMemory, keep: keepList(config, argv.keep),
     store: argv.store ?? config.store, strict: run.strict, origins: nameOrigins(config, file, argv),
   });
+  await signalsFirst(); // a TERM or Ctrl-C during the work ends the run here: nothing renamed in
+  const r = staged.commit();
   await out(argv.json ? toJsonText(r) : exportText(r, useColour(process.stdout)));
   process.exitCode = r.bundle === null ? EXIT.failed : EXIT.ok;
 }

@@ -1,9 +1,9 @@
 // The export job: fold (with every proof and the whole-model check), then write the folded weights as a
 // bundle for device runtimes. Nothing is written when a gate fails.
 import { readModelFile } from '../onnx/read.js';
-import { rmdirSync } from 'node:fs';
+import { mkdirSync } from 'node:fs';
 import { join } from 'node:path';
-import { asGiven, BUNDLE_FILES, checkBundleFolder, createBundleFolder, planBundle, writeAll, type BundleFormat, type BundleResult } from '../ship/bundle.js';
+import { asGiven, BUNDLE_FILES, checkBundleFolder, planBundle, writeAll, type BundleFormat, type BundleResult } from '../ship/bundle.js';
 import { sideFilePaths } from '../onnx/external.js';
 import { OutputSet } from './outputs.js';
 import { provenanceOf, setProvenance } from './provenance.js';
@@ -23,38 +23,61 @@ export interface ExportReport {
   bundle: BundleResult | null;
 }
 
+/** An export whose bundle is staged (written at temporary names), not yet renamed in. */
+export interface StagedExport {
+  report: ExportReport;
+  /** Rename the bundle's files in (all or none); the report. */
+  commit(): ExportReport;
+  /** Remove the staged files instead. */
+  abort(): void;
+}
+
 export function exportFile(input: string, dir: string, format: BundleFormat = 'safetensors', opts: FoldJobOptions = {}): ExportReport {
+  return exportStaged(input, dir, format, opts).commit();
+}
+
+/**
+ * Fold and prove INPUT and stage its bundle in DIR without renaming anything in: the caller commits (the CLI lets
+ * a TERM or Ctrl-C that came during the work end the run first). A bundle folder not there yet is staged whole, at
+ * a temporary name beside it, so a run that does not commit leaves no folder either.
+ */
+export function exportStaged(input: string, dir: string, format: BundleFormat = 'safetensors', opts: FoldJobOptions = {}): StagedExport {
   checkOptionValues(opts);
   // the bundle folder is checked before any work, like fold's -o: a bad destination found after a long fold and
   // check wasted them (and was never reported at all when the check failed)
   const folder = checkBundleFolder(dir, format);
   return withThreads(opts.threads, () => {
     const tx = new OutputSet();
-    let created = false;
     try {
       const model = readModelFile(input);
       [model.sourcePath!, ...sideFilePaths(model)].forEach((p, i) => tx.protect(p, i === 0 ? 'input model' : "input model's side file"));
-      // (a folder not there yet holds nothing to check; it is created only when the bundle is written)
       if (folder.exists) for (const name of BUNDLE_FILES[format]) tx.reserve(join(folder.full, name), '--bundle');
+      else tx.reserveFolder(folder.full, '--bundle');
       const original = opts.noProofs ? undefined : readModelFile(input);
       const fold = foldLoaded(model, original, input, opts);
       if (fold.failed) {
         tx.abort();
-        return { schemaVersion: SCHEMA_VERSION, command: 'export', model: input, fold, bundle: null };
+        const report: ExportReport = { schemaVersion: SCHEMA_VERSION, command: 'export', model: input, fold, bundle: null };
+        return { report, commit: () => report, abort: () => {} };
       }
       // what the folded .onnx would record (its source, the check's status, gate and seed) goes into the bundle too:
       // a bundle from a skipped check looked the same as one from a passed check
       setProvenance(model, provenanceOf(fileSha256(input), opts.gate, opts, fold.check?.status ?? 'not-run'));
       const planned = planBundle(model, folder.full, format);
-      if (!folder.exists) { createBundleFolder(folder.full); created = true; }
       // Every bundle file goes through one transaction: staged, then all renamed in (see outputs.ts).
-      const targets = planned.files.map(([name]) => tx.reserve(join(folder.full, name), '--bundle'));
-      planned.files.forEach(([, content], i) => tx.stage(targets[i]!, (tmp) => writeAll(tmp, content)));
-      tx.commit();
-      return { schemaVersion: SCHEMA_VERSION, command: 'export', model: input, fold, bundle: asGiven(planned.result, dir) };
+      if (folder.exists) {
+        const targets = planned.files.map(([name]) => tx.reserve(join(folder.full, name), '--bundle'));
+        planned.files.forEach(([, content], i) => tx.stage(targets[i]!, (tmp) => writeAll(tmp, content)));
+      } else {
+        tx.stageFolder(folder.full, (tmp) => {
+          mkdirSync(tmp);
+          for (const [name, content] of planned.files) writeAll(join(tmp, name), content);
+        });
+      }
+      const report: ExportReport = { schemaVersion: SCHEMA_VERSION, command: 'export', model: input, fold, bundle: asGiven(planned.result, dir) };
+      return { report, commit: () => { tx.commit(); return report; }, abort: () => tx.abort() };
     } catch (e) {
       tx.abort();
-      if (created) try { rmdirSync(folder.full); } catch { /* not empty: leave it */ } // (only the empty folder this run made)
       throw e;
     }
   });

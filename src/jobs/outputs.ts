@@ -4,24 +4,24 @@
 // name in its own folder; then, once everything is staged (and the staged model read back and checked), all are
 // renamed in. A failure on any path removes the temporaries.
 //
-// Temporary names are unmistakably pleat's: `.pleat-<pid>-<token>-<name>.tmp`. Before the renames a commit record
-// `.pleat-<pid>-<token>.commit` lists them, and it is removed after the last one. A run killed before the record
-// leaves only temporaries, which the next run writing to that folder removes (their process is gone); a run
-// killed during the renames leaves the record, and the next run finishes those renames first, so the files
-// written together end up together.
+// Temporary names are pleat's: `.pleat-<pid>-<token>-<name>.tmp`. Before a temporary is made, an intent record
+// in its folder, `.pleat-<pid>-<token>.intent`, names it (src/onnx/intent.ts). Before the renames a commit record
+// `.pleat-<pid>-<token>.commit` lists them, and it is removed after the last one, then the intent records. A run
+// killed before the commit record leaves temporaries its intent records name, which the next run writing to
+// that folder removes (their process is gone); a run killed during the renames leaves the commit record, and the
+// next run finishes those renames first, so the files written together end up together. A file no record names
+// is never removed, however it is named: it may be the user's.
 import { accessSync, constants, readdirSync, readFileSync, renameSync, rmSync, statSync, writeFileSync } from 'node:fs';
 import { randomBytes } from 'node:crypto';
 import { isMainThread } from 'node:worker_threads';
 import { basename, dirname, join, resolve } from 'node:path';
 import { PleatError } from '../errors.js';
 import { entryAt, fileKeys, specialKind } from '../onnx/paths.js';
+import { COMMIT_NAME, INTENT_NAME, IntentLog, readIntent, TEMP_NAME } from '../onnx/intent.js';
 import { ownsSideFile } from '../onnx/side-owner.js';
 import type { StagedFile } from '../onnx/write.js';
 
 export type { StagedFile };
-
-const TEMP = /^\.pleat-(\d+)-([0-9a-z]+)-.+\.tmp$/;
-const RECORD = /^\.pleat-(\d+)-([0-9a-z]+)\.commit$/;
 
 /** The longest name of a folder entry (Linux and most file systems: 255 bytes). */
 const NAME_MAX = 255;
@@ -63,7 +63,8 @@ function alive(pid: number): boolean {
 
 /**
  * Finish or clear what a killed pleat run left in `dir`: commit records of dead processes are carried out (their
- * files were complete and checked), then their temporaries are removed. Live runs' files are left alone.
+ * files were complete and checked), then what the intent records of dead processes name is removed. Live runs'
+ * files are left alone, and so is every file no record names, whatever its name.
  *
  * A record is carried out only as pleat writes one: kept in the folder of its first file, listing that run's own
  * temporaries (same process), each beside the name it carries. A record copied elsewhere (a folder
@@ -74,19 +75,16 @@ export function recoverFolder(dir: string, inputOf: (path: string) => string | u
   let names: string[];
   try { names = readdirSync(dir); } catch { return; }
   for (const n of names) {
-    const m = RECORD.exec(n);
+    const m = COMMIT_NAME.exec(n);
     if (!m) continue;
     const pid = Number(m[1]);
     // ours (this process's) or a live writer's, unless it is old enough that no writer can be behind it
     if (pid === process.pid && m[2]!.startsWith(PROCESS_TAG)) continue;
     if (alive(pid) && !staleRecord(join(dir, n))) continue; // (alive: any record of this process number)
-    let list: StagedFile[] = [];
-    try {
-      const parsed = JSON.parse(readFileSync(join(dir, n), 'utf8')) as unknown;
-      if (Array.isArray(parsed)) list = parsed.filter((f): f is StagedFile => typeof f?.tmp === 'string' && typeof f?.dest === 'string');
-    } catch { /* an unreadable record: its temporaries are removed below */ }
+    const list = readCommitRecord(join(dir, n));
+    if (!list) continue; // not in pleat's form: a user's file, or one cut short by a kill (its intent record names it)
     const ours = list.length > 0 && resolve(dirname(list[0]!.dest)) === resolve(dir) && list.every((f) => {
-      const t = TEMP.exec(basename(f.tmp));
+      const t = TEMP_NAME.exec(basename(f.tmp));
       return t !== null && t[1] === m[1] && dirname(resolve(f.tmp)) === dirname(resolve(f.dest))
         && basename(f.tmp).endsWith(`-${basename(f.dest)}.tmp`);
     });
@@ -100,14 +98,42 @@ export function recoverFolder(dir: string, inputOf: (path: string) => string | u
       }
       for (const f of pending) renameSync(f.tmp, f.dest);
     }
+    // the temporaries it lists in this folder that were not renamed in (a dropped record's) go with it
+    for (const f of list) if (dirname(resolve(f.tmp)) === resolve(dir)) removeLeft(dir, basename(f.tmp), TEMP_NAME);
     rmSync(join(dir, n), { force: true });
   }
-  // temporaries of dead processes go; those carrying this process's number but not its tag may be another
-  // container's live run, and stay
+  // what dead runs named before making it; a record of this process's number is never taken for a dead run's
+  // (another container's run may carry that number: its files stay)
   for (const n of readdirSync(dir)) {
-    const m = TEMP.exec(n);
-    if (m && !alive(Number(m[1]))) rmSync(join(dir, n), { force: true, recursive: true });
+    const m = INTENT_NAME.exec(n);
+    if (!m || alive(Number(m[1]))) continue;
+    const listed = readIntent(join(dir, n));
+    if (!listed) continue; // not in pleat's form: not ours to remove
+    for (const name of listed) removeLeft(dir, name, TEMP_NAME) || removeLeft(dir, name, COMMIT_NAME);
+    rmSync(join(dir, n), { force: true });
   }
+}
+
+/** The entries of a commit record, or undefined when the file is not one in pleat's form. */
+function readCommitRecord(path: string): StagedFile[] | undefined {
+  try {
+    const parsed = JSON.parse(readFileSync(path, 'utf8')) as unknown;
+    if (!Array.isArray(parsed) || !parsed.every((f) => typeof f?.tmp === 'string' && typeof f?.dest === 'string')) return undefined;
+    return parsed as StagedFile[];
+  } catch {
+    return undefined;
+  }
+}
+
+/**
+ * Remove `name` from `dir` when a record listed it, it is named as `kind` (a temporary or a commit record), and
+ * the process its name carries is gone; say whether the name was of that kind.
+ */
+function removeLeft(dir: string, name: string, kind: RegExp): boolean {
+  const m = kind.exec(name);
+  if (!m) return false;
+  if (!alive(Number(m[1]))) rmSync(join(dir, name), { force: true, recursive: true });
+  return true;
 }
 
 const live = new Set<OutputSet>();
@@ -119,9 +145,43 @@ function staleRecord(path: string): boolean {
   return st !== undefined && Date.now() - st.mtimeMs > RECORD_STALE_MS;
 }
 
-/** Remove the temporaries of every transaction not yet committed (the CLI calls this on SIGINT/SIGTERM). */
+/** Every folder a transaction of this thread stages into or watches: at exit, what this process left there goes. */
+const touched = new Set<string>();
+
+/**
+ * Remove the temporaries of every transaction not yet committed, and of those handed over and not yet adopted
+ * (at exit: a TERM or Ctrl-C ends the CLI through process.exit).
+ */
 export function abortAllOutputs(): void {
   for (const s of [...live]) s.abort();
+  clearLeftovers(touched);
+}
+
+/**
+ * Remove what transactions of this process that are not live left in `dirs` (a crashed or stopped worker's
+ * temporaries, and the records of sets whose files were handed over): whatever an intent record carrying this
+ * process's tag names, unless a live set holds it. Only on the main thread: a worker's set cannot see its sibling
+ * workers' live sets, whose files these would be. (A main-thread set closes while worker threads stage only when
+ * they are stopped: the CLI closes its sets after its workers.)
+ */
+function clearLeftovers(dirs: Iterable<string>): void {
+  if (!isMainThread) return;
+  const mine = `.pleat-${process.pid}-${PROCESS_TAG}`;
+  const liveRecords = new Set([...live].map((s) => s.recordName));
+  const held = new Set([...live].flatMap((s) => s.heldTemporaries()));
+  for (const dir of dirs) {
+    let names: string[];
+    try { names = readdirSync(dir); } catch { continue; }
+    for (const n of names) {
+      if (!n.startsWith(mine) || !INTENT_NAME.test(n) || liveRecords.has(n)) continue;
+      const listed = readIntent(join(dir, n));
+      if (!listed) continue;
+      for (const t of listed) {
+        if ((TEMP_NAME.test(t) || COMMIT_NAME.test(t)) && t.startsWith(mine) && !held.has(join(dir, t))) rmSync(join(dir, t), { force: true, recursive: true });
+      }
+      rmSync(join(dir, n), { force: true });
+    }
+  }
 }
 
 export class OutputSet {
@@ -131,6 +191,9 @@ export class OutputSet {
   private readonly reservedKeys = new Map<string, string>();
   private staged: StagedFile[] = [];
   private readonly dirs = new Set<string>();
+  /** Folders where files of this process's other transactions (worker threads') are cleared when this set closes. */
+  private readonly watched = new Set<string>();
+  private readonly intents = new IntentLog(`.pleat-${process.pid}-${this.token}`);
 
   constructor() {
     live.add(this);
@@ -170,11 +233,7 @@ export class OutputSet {
     }
     const here = entryAt(full, `${role} ${dest}`);
     if (here?.isDirectory()) throw new PleatError('bad-input', `${role} ${dest}: is a folder`);
-    // the file is written beside it under a longer temporary name first: that name must fit a folder entry
-    const tempLength = Buffer.byteLength(`.pleat-${process.pid}-${this.token}${this.counter + 99}-${basename(full)}.tmp`);
-    if (tempLength > NAME_MAX) {
-      throw new PleatError('bad-input', `${role} ${dest}: the file name is too long to write (${Buffer.byteLength(basename(full))} bytes; at most ${Buffer.byteLength(basename(full)) - (tempLength - NAME_MAX)} here, since it is written under a longer temporary name first)`);
-    }
+    this.checkTempLength(full, role, dest, 'file');
     const special = specialKind(here);
     if (special) {
       const hint = role === '--report' ? '; for the report on stdout, use --format' : '';
@@ -192,21 +251,40 @@ export class OutputSet {
       throw new PleatError('bad-input', `${role} ${dest}: a file of that name exists and is not pleat's side file for ${sideOf}; move it away or choose another output name`);
     }
     for (const k of keys) this.reservedKeys.set(k, `${role} ${dest}`);
-    if (!this.dirs.has(dir)) { this.dirs.add(dir); recoverFolder(dir, (p) => this.inputAt(p)); }
+    if (!this.dirs.has(dir)) { this.dirs.add(dir); touched.add(dir); recoverFolder(dir, (p) => this.inputAt(p)); }
     return full;
   }
 
-  /** A temporary name for `dest`, in its folder. */
+  /** Refuse a name that fits a folder entry but not once lengthened into its temporary name. */
+  private checkTempLength(full: string, role: string, dest: string, what: 'file' | 'folder'): void {
+    const tempLength = Buffer.byteLength(`.pleat-${process.pid}-${this.token}${this.counter + 99}-${basename(full)}.tmp`);
+    if (tempLength > NAME_MAX) {
+      throw new PleatError('bad-input', `${role} ${dest}: the ${what} name is too long to write (${Buffer.byteLength(basename(full))} bytes; at most ${Buffer.byteLength(basename(full)) - (tempLength - NAME_MAX)} here, since it is written under a longer temporary name first)`);
+    }
+  }
+
+  /** A temporary name for `dest`, in its folder, named in this set's intent record there (make it next). */
   tempFor(dest: string): string {
-    return join(dirname(dest), `.pleat-${process.pid}-${this.token}${this.counter++}-${basename(dest)}.tmp`);
+    const tmp = join(dirname(dest), `.pleat-${process.pid}-${this.token}${this.counter++}-${basename(dest)}.tmp`);
+    this.intents.note(tmp);
+    return tmp;
+  }
+
+  /**
+   * Also clear, when this set closes, what this process's other transactions left in `dir`: the CLI's set for a
+   * batch watches the folders its worker threads stage into, so files of jobs stopped by a TERM go too.
+   */
+  watch(dir: string): void {
+    this.watched.add(resolve(dir));
+    touched.add(resolve(dir));
   }
 
   /** Stage text or bytes for a reserved destination (or let `write` write the temporary file). */
   stage(dest: string, content: string | Uint8Array | ((tmp: string) => void)): void {
     const full = resolve(dest);
-    const tmp = this.tempFor(full);
-    this.staged.push({ tmp, dest: full });
     try {
+      const tmp = this.tempFor(full);
+      this.staged.push({ tmp, dest: full });
       if (typeof content === 'function') content(tmp); else writeFileSync(tmp, content);
     } catch (e) {
       if (e instanceof PleatError) throw e;
@@ -239,6 +317,7 @@ export class OutputSet {
     const here = entryAt(full, `${role} ${dest}`);
     if (here && !here.isDirectory()) throw new PleatError('bad-input', `${role} ${dest}: a file of that name exists; give a new or empty folder`);
     if (here && readdirSync(full).length) throw new PleatError('usage', `${role} ${dest}: the folder is not empty; give a new or empty folder`);
+    this.checkTempLength(full, role, dest, 'folder');
     for (const k of fileKeys(full)) {
       const input = this.protectedKeys.get(k);
       if (input) throw new PleatError('bad-input', `${role} ${dest}: refusing to overwrite the ${input}; choose another path`);
@@ -247,19 +326,29 @@ export class OutputSet {
       if (other) throw new PleatError('bad-input', `${role} ${dest} is also written as ${other}; give each output its own path`);
     }
     for (const k of fileKeys(full)) this.reservedKeys.set(k, `${role} ${dest}`);
-    if (!this.dirs.has(parent)) { this.dirs.add(parent); recoverFolder(parent, (p) => this.inputAt(p)); }
+    if (!this.dirs.has(parent)) { this.dirs.add(parent); touched.add(parent); recoverFolder(parent, (p) => this.inputAt(p)); }
     return full;
   }
 
   /** Write a reserved folder at a temporary name beside it (`write` creates and fills the folder it is given). */
   stageFolder(dest: string, write: (tmp: string) => void): void {
     const full = resolve(dest);
-    const tmp = this.tempFor(full);
-    this.staged.push({ tmp, dest: full, folder: true });
-    write(tmp);
+    try {
+      const tmp = this.tempFor(full);
+      this.staged.push({ tmp, dest: full, folder: true });
+      write(tmp);
+    } catch (e) {
+      if (e instanceof PleatError) throw e;
+      const code = (e as NodeJS.ErrnoException).code;
+      if (code === undefined) throw e; // not a failure to write: a bug, reported as one
+      throw new PleatError('bad-input', `${dest}: cannot write (${code})`);
+    }
   }
 
-  /** Give the staged files to the caller (who adopts them into its own set); this set then owns nothing. */
+  /**
+   * Give the staged files to the caller (who adopts them into its own set); this set then owns nothing. Its intent
+   * records stay, naming the files until the adopting set, on the main thread, has renamed them in or removed them.
+   */
   handOver(): StagedFile[] {
     const files = this.staged;
     this.staged = [];
@@ -289,6 +378,7 @@ export class OutputSet {
     killPoint('staged');
     const record = join(dirname(this.staged[0]!.dest), `.pleat-${process.pid}-${this.token}.commit`);
     try {
+      this.intents.note(record);
       writeFileSync(record, JSON.stringify(this.staged));
       killPoint('recorded');
       this.staged.forEach((f, i) => {
@@ -296,8 +386,8 @@ export class OutputSet {
         if (i === 0) killPoint('renamed-one');
       });
     } catch (e) {
-      this.abort();
       rmSync(record, { force: true });
+      this.abort();
       throw new PleatError('bad-input', `cannot move the outputs into place (${(e as NodeJS.ErrnoException).code ?? String(e)})`);
     }
     killPoint('renamed-all');
@@ -315,16 +405,19 @@ export class OutputSet {
     this.close();
   }
 
+  /** The name of this set's intent record in each folder it stages into. */
+  get recordName(): string {
+    return `${this.intents.stem}.intent`;
+  }
+
+  /** The temporaries this set holds (to commit or remove), as full paths. */
+  heldTemporaries(): string[] {
+    return this.staged.map((f) => resolve(f.tmp));
+  }
+
   private close(): void {
     live.delete(this);
-    const mine = `.pleat-${process.pid}-${PROCESS_TAG}`; // (this process's, worker threads' included: not another container's)
-    const others = [...live].map((s) => `.pleat-${process.pid}-${s.token}`);
-    for (const dir of this.dirs) {
-      let names: string[];
-      try { names = readdirSync(dir); } catch { continue; }
-      for (const n of names) {
-        if (n.startsWith(mine) && TEMP.test(n) && !others.some((o) => n.startsWith(o))) rmSync(join(dir, n), { force: true, recursive: true });
-      }
-    }
+    this.intents.clear();
+    clearLeftovers(new Set([...this.dirs, ...this.watched]));
   }
 }

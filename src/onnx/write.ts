@@ -14,6 +14,8 @@ import {
 } from './signature.js';
 import { externalRef, sideFilePaths } from './external.js';
 import { entryAt, sameFile, specialKind } from './paths.js';
+import { IntentLog } from './intent.js';
+import { randomBytes } from 'node:crypto';
 import { deferredIn, ensureLoaded, lazySourceOf, pendingIn, reopenSource, type BlockBuffer } from './sparse-read.js';
 
 interface Piece { chunks: Uint8Array[]; length: number; same: boolean }
@@ -463,11 +465,6 @@ export function serializeModel(model: Model): Uint8Array {
   return out;
 }
 
-let tmpCounter = 0;
-function tempName(path: string): string {
-  return join(dirname(path), `.pleat-${process.pid}-w${tmpCounter++}-${basename(path)}.tmp`);
-}
-
 // 1 MiB: a block read, changed and written stays in the core's cache between the three (8 MiB blocks, leaving
 // it, made the three passes over the 378 MB benchmark model ~190 ms against ~150 ms).
 const STREAM_BLOCK = 1024 * 1024;
@@ -602,12 +599,25 @@ export function writeModelFile(model: Model, path: string, opts: WriteOptions = 
   };
   guard(target, 'the output');
   guard(resolve(dirname(target), sideFileName(basename(target))), 'its side file');
-  const staged = stageModelFile(model, target, opts, tempName);
+  // temporaries named as the output transaction names its own (src/jobs/outputs.ts), each in an intent record
+  // first, so a run killed here leaves nothing a later run would not know to remove
+  const intents = new IntentLog(`.pleat-${process.pid}-w${randomBytes(4).toString('hex')}`);
+  let counter = 0;
+  const tempFor = (dest: string) => {
+    const tmp = join(dirname(dest), `${intents.stem}${counter++}-${basename(dest)}.tmp`);
+    intents.note(tmp);
+    return tmp;
+  };
   try {
-    for (const f of staged.files) renameSync(f.tmp, f.dest);
-  } catch (e) {
-    for (const f of staged.files) rmSync(f.tmp, { force: true });
-    throw new PleatError('bad-input', `${path}: cannot write (${(e as NodeJS.ErrnoException).code ?? String(e)})`);
+    const staged = stageModelFile(model, target, opts, tempFor);
+    try {
+      for (const f of staged.files) renameSync(f.tmp, f.dest);
+    } catch (e) {
+      for (const f of staged.files) rmSync(f.tmp, { force: true });
+      throw new PleatError('bad-input', `${path}: cannot write (${(e as NodeJS.ErrnoException).code ?? String(e)})`);
+    }
+    return { bytes: staged.bytes, sideFiles: staged.files.slice(1).map((f) => f.dest) };
+  } finally {
+    intents.clear();
   }
-  return { bytes: staged.bytes, sideFiles: staged.files.slice(1).map((f) => f.dest) };
 }

@@ -2,14 +2,15 @@
 // no file overwritten that pleat was not asked to write (inputs compared by real path and inode), and every
 // output of a run (model, side file, reports) staged and renamed in together, or nothing written at all.
 import { describe, expect, it } from 'vitest';
-import { execFileSync } from 'node:child_process';
-import { existsSync, linkSync, lstatSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, symlinkSync, utimesSync, writeFileSync } from 'node:fs';
-import { OutputSet } from '../../src/jobs/outputs.js';
+import { execFileSync, spawnSync } from 'node:child_process';
+import { appendFileSync, existsSync, linkSync, lstatSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, symlinkSync, utimesSync, writeFileSync } from 'node:fs';
+import { OutputSet, recoverFolder } from '../../src/jobs/outputs.js';
+import { IntentLog } from '../../src/onnx/intent.js';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import onnxProto from 'onnx-proto';
 import { GraphBuilder, modelBytes, tensor } from '../helpers/build.js';
-import { pleat } from '../helpers/cli.js';
+import { CLI, ROOT, pleat } from '../helpers/cli.js';
 import { npyFloat32 } from '../helpers/npy.js';
 import { readModelFile } from '../../src/onnx/read.js';
 import { writeModelFile } from '../../src/onnx/write.js';
@@ -265,8 +266,13 @@ describe('one output transaction (issue 11 item 4)', () => {
   it('a later run removes temporaries a killed run left, and finishes a commit it had begun', () => {
     const dir = tmp();
     const dead = 2 ** 22 + 12345; // above the usual pid_max: no live process has it
-    writeFileSync(join(dir, `.pleat-${dead}-abc0-b.onnx.tmp`), 'partial');
-    writeFileSync(join(dir, `.pleat-${dead}-abc1-r.json.tmp`), '{"complete": true}');
+    // as the killed run left them: each file named in its intent record before it was made
+    const intents = new IntentLog(`.pleat-${dead}-abc`);
+    for (const [name, body] of [['abc0-b.onnx.tmp', 'partial'], ['abc1-r.json.tmp', '{"complete": true}']]) {
+      intents.note(join(dir, `.pleat-${dead}-${name}`));
+      writeFileSync(join(dir, `.pleat-${dead}-${name}`), body);
+    }
+    intents.note(join(dir, `.pleat-${dead}-abc.commit`));
     writeFileSync(join(dir, `.pleat-${dead}-abc.commit`), JSON.stringify([{ tmp: join(dir, `.pleat-${dead}-abc1-r.json.tmp`), dest: join(dir, 'r.json') }]));
     writeFileSync(join(dir, 'notes.tmp'), 'not ours');
     const r = pleat(['fold', 'models/tray-edge.onnx', '-o', join(dir, 'c.onnx')]);
@@ -357,6 +363,86 @@ describe('one output transaction (issue 11 item 4)', () => {
     expect(r.code, r.stderr).toBe(0);
     expect(readFileSync(join(dir, 'r.json'), 'utf8')).toBe('{"mine": true}');
     expect(readdirSync(dir).sort()).toEqual(['c.onnx', 'r.json']);
+  });
+});
+
+// Recovery removed every folder entry named like a pleat temporary whose process number was not alive: a user's
+// own `.pleat-1-a-notes.tmp`, or one copied from another machine, went with any run writing to that folder. Now
+// a run first names each temporary it is about to make in an intent record of its own in that folder, and a
+// later run removes only what a dead run's intent or commit record names.
+describe('only what pleat provably made is cleared', () => {
+  const dead = 2 ** 22 + 22345; // above the usual pid_max: no live process has it
+  const lookAlikes: Array<[string, string]> = [
+    [`.pleat-${dead}-a-notes.tmp`, 'my notes'],
+    ['.pleat-1-a-notes.tmp', 'copied from another machine'],
+    [`.pleat-${dead}-b.commit`, 'not a record: my own file'],
+    [`.pleat-${dead}-c.intent`, 'not a record either'],
+  ];
+  const plantLookAlikes = (dir: string) => {
+    for (const [n, body] of lookAlikes) writeFileSync(join(dir, n), body);
+    mkdirSync(join(dir, `.pleat-${dead}-d-photos.tmp`));
+    writeFileSync(join(dir, `.pleat-${dead}-d-photos.tmp`, 'one.jpg'), 'a photo');
+  };
+  const expectLookAlikes = (dir: string) => {
+    for (const [n, body] of lookAlikes) expect(readFileSync(join(dir, n), 'utf8'), n).toBe(body);
+    expect(readFileSync(join(dir, `.pleat-${dead}-d-photos.tmp`, 'one.jpg'), 'utf8')).toBe('a photo');
+  };
+
+  it('files and folders merely named like pleat temporaries and records survive a fold writing to that folder', () => {
+    const dir = tmp();
+    plantLookAlikes(dir);
+    const r = pleat(['fold', 'models/tray-edge.onnx', '-o', join(dir, 'c.onnx'), '--report', join(dir, 'c.json'), '--quiet']);
+    expect(r.code, r.stderr).toBe(0);
+    expectLookAlikes(dir);
+    expect(readdirSync(dir).filter((n) => !lookAlikes.some(([l]) => l === n)).sort()).toEqual([`.pleat-${dead}-d-photos.tmp`, 'c.json', 'c.onnx']);
+  });
+
+  it('the temporaries of a killed run are still removed by the next run, the look-alikes beside them stay', () => {
+    const dir = tmp();
+    plantLookAlikes(dir);
+    // a real run killed once everything is staged: its temporaries and intent records are on disk
+    const killed = spawnSync(process.execPath, [CLI, 'fold', 'models/tray-edge.onnx', '-o', join(dir, 'k.onnx'), '--report', join(dir, 'k.json'), '--quiet'], {
+      cwd: ROOT, encoding: 'utf8', env: { ...process.env, NO_COLOR: '1', CI: 'true', PLEAT_KILL_AT: 'staged' },
+    });
+    expect(killed.signal, killed.stderr).toBe('SIGKILL');
+    const left = readdirSync(dir).filter((n) => n.startsWith(`.pleat-${killed.pid}-`));
+    expect(left.filter((n) => n.endsWith('.tmp')).length).toBe(2); // the model and the report
+    expect(left.filter((n) => n.endsWith('.intent')).length).toBeGreaterThan(0);
+    const r = pleat(['fold', 'models/pump-vibration.onnx', '-o', join(dir, 'p.onnx'), '--quiet']);
+    expect(r.code, r.stderr).toBe(0);
+    expectLookAlikes(dir);
+    expect(readdirSync(dir).filter((n) => !lookAlikes.some(([l]) => l === n)).sort()).toEqual([`.pleat-${dead}-d-photos.tmp`, 'p.onnx']);
+  });
+
+  it("a batch killed before its commit leaves its workers' temporaries, which the next run removes", () => {
+    const dir = tmp();
+    const out = join(dir, 'out');
+    mkdirSync(out);
+    plantLookAlikes(out);
+    const killed = spawnSync(process.execPath, [CLI, 'fold', 'models/tray-edge.onnx', 'models/pump-vibration.onnx', '--out-dir', out, '--quiet'], {
+      cwd: ROOT, encoding: 'utf8', env: { ...process.env, NO_COLOR: '1', CI: 'true', PLEAT_KILL_AT: 'staged' },
+    });
+    expect(killed.signal, killed.stderr).toBe('SIGKILL');
+    expect(readdirSync(out).filter((n) => n.startsWith(`.pleat-${killed.pid}-`) && n.endsWith('.tmp')).length).toBe(2);
+    const r = pleat(['fold', 'models/tray-sorter.onnx', '-o', join(out, 's.onnx'), '--quiet']);
+    expect(r.code, r.stderr).toBe(0);
+    expectLookAlikes(out);
+    expect(readdirSync(out).filter((n) => !lookAlikes.some(([l]) => l === n)).sort()).toEqual([`.pleat-${dead}-d-photos.tmp`, 's.onnx']);
+  });
+
+  it('an intent record removes what its complete lines name, not a name cut short by a kill, and a record of another form removes nothing', () => {
+    const dir = tmp();
+    const stem = `.pleat-${dead}-e0e0`;
+    writeFileSync(join(dir, `${stem}0-a.onnx.tmp`), 'staged');
+    writeFileSync(join(dir, `${stem}1-b.onnx.tmp`), 'named only by the line cut short');
+    const log = new IntentLog(stem);
+    log.note(join(dir, `${stem}0-a.onnx.tmp`));
+    appendFileSync(log.recordIn(dir), JSON.stringify(`${stem}1-b.onnx.tmp`)); // (no line end: the kill came first)
+    // a file in another form under a record's name names nothing
+    writeFileSync(join(dir, `.pleat-${dead}-f0f0.intent`), `${JSON.stringify(`.pleat-${dead}-f0f00-c.onnx.tmp`)}\n`);
+    writeFileSync(join(dir, `.pleat-${dead}-f0f00-c.onnx.tmp`), 'mine');
+    recoverFolder(dir);
+    expect(readdirSync(dir).sort()).toEqual([`${stem}1-b.onnx.tmp`, `.pleat-${dead}-f0f0.intent`, `.pleat-${dead}-f0f00-c.onnx.tmp`].sort());
   });
 });
 

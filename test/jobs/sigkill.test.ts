@@ -124,14 +124,77 @@ describe('export killed at every step of its commit', () => {
 
 // A fold runs without yielding to the event loop, so a TERM (a cancelled CI job) or Ctrl-C that came during it
 // was only handled after everything was renamed in: the run wrote its files and exited 0. Now the signal is
-// handled before the commit: exit 143, nothing written, no temporary left. (The hook sends TERM just before.)
-describe('a TERM during the fold', () => {
-  it('exits 143 before anything is renamed in', () => {
+// handled before the commit: exit 143 (130 for Ctrl-C), nothing written, no temporary left. (The hooks send the
+// signal at a chosen point: PLEAT_SIGNAL_BEFORE_COMMIT just before the commit, PLEAT_SIGNAL_AFTER_STAGING on a
+// batch's worker once that model is staged, the worker then staying busy.)
+describe('a TERM or Ctrl-C during the work', () => {
+  const run = (args: string[], env: Record<string, string>) => spawnSync(process.execPath, [CLI, ...args], {
+    cwd: ROOT, encoding: 'utf8', env: { ...process.env, NO_COLOR: '1', CI: 'true', ...env },
+  });
+
+  it('fold: exits 143 before anything is renamed in', () => {
     const dir = mkdtempSync(join(tmpdir(), 'pleat-term-'));
-    const r = spawnSync(process.execPath, [CLI, 'fold', 'models/tray-sorter.onnx', '-o', join(dir, 't.onnx'), '--report', join(dir, 't.json'), '--quiet'], {
-      cwd: ROOT, encoding: 'utf8', env: { ...process.env, NO_COLOR: '1', CI: 'true', PLEAT_SIGNAL_BEFORE_COMMIT: '1' },
-    });
+    const r = run(['fold', 'models/tray-sorter.onnx', '-o', join(dir, 't.onnx'), '--report', join(dir, 't.json'), '--quiet'], { PLEAT_SIGNAL_BEFORE_COMMIT: '1' });
     expect(r.status).toBe(143);
     expect(readdirSync(dir)).toEqual([]);
+  });
+
+  // compare renamed its probe folder in before the signal had its turn (the job committed it itself)
+  it('compare --save-probes: exits 143 and writes no probe folder and no report', () => {
+    const dir = mkdtempSync(join(tmpdir(), 'pleat-term-'));
+    const r = run(['compare', MODEL, MODEL, '--save-probes', join(dir, 'probes'), '--report', join(dir, 'c.json')], { PLEAT_SIGNAL_BEFORE_COMMIT: '1' });
+    expect(r.status, r.stderr).toBe(143);
+    expect(readdirSync(dir)).toEqual([]);
+    // without the signal, both are written
+    expect(pleat(['compare', MODEL, MODEL, '--save-probes', join(dir, 'probes'), '--report', join(dir, 'c.json')]).code).toBe(0);
+    expect(readdirSync(dir).sort()).toEqual(['c.json', 'probes']);
+  });
+
+  // export wrote its bundle and exited 0: a signal during its work waited in the event loop until the bundle was
+  // renamed in, and the loop then ended without reading it
+  it('export: TERM exits 143 and leaves the old bundle as it was; Ctrl-C into a new folder exits 130 and makes no folder', () => {
+    const dir = mkdtempSync(join(tmpdir(), 'pleat-term-'));
+    const bundle = join(dir, 'bundle');
+    expect(pleat(['export', MODEL, '--bundle', bundle, '--keep', 'enc1.bn']).code).toBe(0);
+    const before = ['weights.safetensors', 'manifest.json'].map((f) => readFileSync(join(bundle, f)));
+    const term = run(['export', MODEL, '--bundle', bundle, '--json'], { PLEAT_SIGNAL_BEFORE_COMMIT: '1' });
+    expect(term.status, term.stderr).toBe(143);
+    expect(term.stdout).toBe('');
+    expect(readdirSync(bundle).sort()).toEqual(['manifest.json', 'weights.safetensors']);
+    expect(['weights.safetensors', 'manifest.json'].map((f) => readFileSync(join(bundle, f)))).toEqual(before);
+
+    const int = run(['export', MODEL, '--bundle', join(dir, 'new'), '--bundle-format', 'c'], { PLEAT_SIGNAL_BEFORE_COMMIT: 'SIGINT' });
+    expect(int.status, int.stderr).toBe(130);
+    expect(int.stdout).toBe('');
+    expect(readdirSync(dir)).toEqual(['bundle']);
+    // and without a signal the same command writes its new folder whole
+    expect(pleat(['export', MODEL, '--bundle', join(dir, 'new'), '--bundle-format', 'c']).code).toBe(0);
+    expect(readdirSync(join(dir, 'new')).sort()).toEqual(['manifest.json', 'weights.c', 'weights.h']);
+    expect(readdirSync(dir).sort()).toEqual(['bundle', 'new']);
+  });
+
+  // a batch's workers had their files staged when the signal came: the process exited 143 and left them there
+  it('batch: TERM while a worker holds its staged files exits 143, reports nothing, renames nothing in, leaves nothing', () => {
+    const dir = mkdtempSync(join(tmpdir(), 'pleat-term-'));
+    const out = join(dir, 'out');
+    mkdirSync(out);
+    writeFileSync(join(out, 'tray-edge.onnx'), 'an older file');
+    const models = ['models/tray-sorter.onnx', MODEL, 'models/pump-vibration.onnx'];
+    const r = run(['fold', ...models, '--out-dir', out, '--report', join(dir, 'r.json'), '--json', '--quiet'], { PLEAT_SIGNAL_AFTER_STAGING: 'tray-edge.onnx' });
+    expect(r.status, r.stderr).toBe(143);
+    expect(r.stdout).toBe(''); // no job reported as done
+    expect(r.stderr).toBe('');
+    expect(readdirSync(out)).toEqual(['tray-edge.onnx']);
+    expect(readFileSync(join(out, 'tray-edge.onnx'), 'utf8')).toBe('an older file');
+    expect(readdirSync(dir).sort()).toEqual(['out']);
+  });
+
+  it('batch: Ctrl-C once every model is staged, just before the commit, exits 130 and leaves nothing', () => {
+    const dir = mkdtempSync(join(tmpdir(), 'pleat-term-'));
+    const r = run(['fold', 'models/tray-sorter.onnx', MODEL, '--out-dir', join(dir, 'out'), '--report', join(dir, 'r.json'), '--quiet'], { PLEAT_SIGNAL_BEFORE_COMMIT: 'SIGINT' });
+    expect(r.status, r.stderr).toBe(130);
+    expect(r.stdout).toBe('');
+    expect(readdirSync(join(dir, 'out'))).toEqual([]);
+    expect(readdirSync(dir)).toEqual(['out']);
   });
 });

@@ -1,0 +1,65 @@
+// Intent records: before pleat creates a temporary file (or a commit record) in a folder, it names it in a record
+// of its own in that folder, `.pleat-<pid>-<token>.intent`. A later run removes what a dead run left only when
+// such a record names it, so a user's file that merely looks like a pleat temporary (`.pleat-1-a-notes.tmp`, or
+// one copied from another machine) is never removed. The record starts with a header line, then one JSON-quoted
+// file name a line, appended before each file is made: a run killed while appending leaves a last line without
+// its line end, which names nothing made yet and is ignored (so is a record cut short within its header). A file
+// in any other form is not a record, and is left alone.
+import { appendFileSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
+import { basename, dirname, join } from 'node:path';
+
+/** A pleat temporary: `.pleat-<pid>-<token>-<name>.tmp`. */
+export const TEMP_NAME = /^\.pleat-(\d+)-([0-9a-z]+)-.+\.tmp$/;
+/** A commit record: `.pleat-<pid>-<token>.commit` (see src/jobs/outputs.ts). */
+export const COMMIT_NAME = /^\.pleat-(\d+)-([0-9a-z]+)\.commit$/;
+/** An intent record: `.pleat-<pid>-<token>.intent`. */
+export const INTENT_NAME = /^\.pleat-(\d+)-([0-9a-z]+)\.intent$/;
+
+const HEADER = 'pleat intent record: the files below are made by this run, each named before it is made\n';
+
+/** The intent records of one writer, one per folder it makes files in. */
+export class IntentLog {
+  private readonly folders = new Set<string>();
+
+  /** `stem` is `.pleat-<pid>-<token>`: the record in each folder is `<stem>.intent`. */
+  constructor(readonly stem: string) {}
+
+  recordIn(dir: string): string {
+    return join(dir, `${this.stem}.intent`);
+  }
+
+  /** Name `path` (a file about to be made) in the record of its folder. Call before making the file. */
+  note(path: string): void {
+    const dir = dirname(path);
+    const line = `${JSON.stringify(basename(path))}\n`;
+    // (the first note creates the record, never over an existing file; a failure is the caller's to word, as a
+    // failure to write the file itself would be)
+    if (this.folders.has(dir)) appendFileSync(this.recordIn(dir), line);
+    else writeFileSync(this.recordIn(dir), HEADER + line, { flag: 'wx' });
+    this.folders.add(dir);
+  }
+
+  /** Remove every record of this log (once what they name is renamed in or removed, or handed to no one). */
+  clear(): void {
+    for (const dir of this.folders) rmSync(this.recordIn(dir), { force: true });
+    this.folders.clear();
+  }
+}
+
+/** The file names an intent record lists, or undefined when the file is not a record pleat wrote. */
+export function readIntent(path: string): string[] | undefined {
+  let text: string;
+  try { text = readFileSync(path, 'utf8'); } catch { return undefined; }
+  if (HEADER.startsWith(text)) return []; // cut short by a kill while it was created: nothing made yet
+  if (!text.startsWith(HEADER)) return undefined;
+  const lines = text.slice(HEADER.length).split('\n');
+  lines.pop(); // after the last line end: nothing, or a line cut short by a kill (its file was not made yet)
+  const names: string[] = [];
+  for (const l of lines) {
+    let name: unknown;
+    try { name = JSON.parse(l); } catch { return undefined; }
+    if (typeof name !== 'string' || name === '' || name !== basename(name)) return undefined;
+    names.push(name);
+  }
+  return names;
+}
