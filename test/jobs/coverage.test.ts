@@ -223,6 +223,21 @@ describe('--clone-shared: only the nodes actually rewritten count', { timeout: 1
     return { json: JSON.parse(readFileSync(json, 'utf8')), text: r.stdout };
   }
 
+  /**
+   * One rewritten node ran; B, fed by an untouched layer only, is bit-identical and makes no observability claim
+   * (library result, the CLI's JSON report and its text ledger), while A, fed by the rewritten one, is observable.
+   */
+  function expectOnlyAObservable(c: NonNullable<ReturnType<typeof foldFile>['check']>, cli: ReturnType<typeof viaCli>): void {
+    expect(c.coverage).toEqual({ executed: 1, total: 1, missed: [], extraProbes: 0 });
+    const B = c.outputs.find((o) => o.name === 'B')!;
+    expect(B.maxAbs).toBe(0);
+    expect('observable' in B).toBe(false);
+    expect(c.outputs.find((o) => o.name === 'A')!.observable).toBe(true);
+    expect(cli.json.check.outputs.find((o) => o.name === 'B')).not.toHaveProperty('observable');
+    expect(cli.json.check.outputs.find((o) => o.name === 'A')!.observable).toBe(true);
+    expect(cli.text).not.toMatch(/not observable/);
+  }
+
   it('two Conv layers share one weight: the one feeding B is untouched, so B makes no observability claim', () => {
     const g = new GraphBuilder();
     g.input('x', [1, 3, 4, 4]).output('A', [1, 4, 4, 4]).output('B', [1, 4, 4, 4]);
@@ -233,16 +248,7 @@ describe('--clone-shared: only the nodes actually rewritten count', { timeout: 1
     const model = save('shared-weight.onnx', modelBytes(g));
     const r = foldFile(model, join(dir, 'shared-weight.out.onnx'), { cloneShared: true });
     expect(r.normalizations.map((e) => [e.node, e.status])).toEqual([['bn_a', 'folded']]);
-    const c = r.check!;
-    expect(c.coverage).toEqual({ executed: 1, total: 1, missed: [], extraProbes: 0 });
-    const B = c.outputs.find((o) => o.name === 'B')!;
-    expect(B.maxAbs).toBe(0);
-    expect('observable' in B).toBe(false);
-    expect(c.outputs.find((o) => o.name === 'A')!.observable).toBe(true);
-    const cli = viaCli(model, 'shared-weight');
-    expect(cli.json.check.outputs.find((o) => o.name === 'B')).not.toHaveProperty('observable');
-    expect(cli.json.check.outputs.find((o) => o.name === 'A')!.observable).toBe(true);
-    expect(cli.text).not.toMatch(/not observable/);
+    expectOnlyAObservable(r.check!, viaCli(model, 'shared-weight'));
   });
 
   it('one Conv read by a BN (output A) and directly by output B: the copy is rewritten, the original is not', () => {
@@ -255,17 +261,8 @@ describe('--clone-shared: only the nodes actually rewritten count', { timeout: 1
     const r = foldFile(model, join(dir, 'shared-output.out.onnx'), { cloneShared: true });
     const bn = r.normalizations.find((e) => e.node === 'bn_a')!;
     expect([bn.status, bn.cloneBytes]).toEqual(['folded', 48]); // a copy of the 4x3 float32 weight
-    const c = r.check!;
     // the copy is the one rewritten node; the original keeps its weights and feeds B alone
-    expect(c.coverage).toEqual({ executed: 1, total: 1, missed: [], extraProbes: 0 });
-    const B = c.outputs.find((o) => o.name === 'B')!;
-    expect(B.maxAbs).toBe(0);
-    expect('observable' in B).toBe(false);
-    expect(c.outputs.find((o) => o.name === 'A')!.observable).toBe(true);
     expect(foldText(r)).not.toMatch(/not observable/);
-    const cli = viaCli(model, 'shared-output');
-    expect(cli.json.check.outputs.find((o) => o.name === 'B')).not.toHaveProperty('observable');
-    expect(cli.json.check.outputs.find((o) => o.name === 'A')!.observable).toBe(true);
-    expect(cli.text).not.toMatch(/not observable/);
+    expectOnlyAObservable(r.check!, viaCli(model, 'shared-output'));
   });
 });
