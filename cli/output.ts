@@ -59,6 +59,12 @@ function protectReads(tx: import('../src/jobs/outputs.js').OutputSet, guard: Out
 }
 
 /**
+ * The claim of one --report file, with its format: two formats written to one spelling of a path would otherwise
+ * carry the same label, which the output set takes for one step claiming its file again.
+ */
+const reportRole = (spec: { format: Format }) => `--report (${spec.format})`;
+
+/**
  * Check every destination before any work runs (folders exist and are writable, no report replaces an input or
  * an output, no two outputs share a file), so a usage mistake never costs a long job or writes anything.
  */
@@ -68,7 +74,7 @@ export async function checkDestinations(plan: ReportPlan, guard: OutputGuard): P
   try {
     protectReads(tx, guard);
     for (const [o, flag] of guard.outputs ?? []) tx.reserve(o, flag);
-    for (const spec of plan.files) tx.reserve(spec.file, '--report');
+    for (const spec of plan.files) tx.reserve(spec.file, reportRole(spec));
   } finally {
     tx.abort();
   }
@@ -86,7 +92,7 @@ export async function emit(plan: ReportPlan, render: (format: Format, colour: bo
     protectReads(tx, guard);
     for (const files of staged) if (files.length) tx.adopt(files, 'output');
     for (const spec of plan.files) {
-      tx.reserve(spec.file, '--report');
+      tx.reserve(spec.file, reportRole(spec));
       tx.stage(spec.file, await render(spec.format, false));
     }
     // A fold runs without yielding, so a TERM or Ctrl-C that came during it waits in the event loop: let it run
