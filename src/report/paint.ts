@@ -8,7 +8,13 @@ export interface Paint {
   bold: (s: string) => string;
 }
 
-const sgr = (code: string) => (s: string) => `\u001b[${code}m${s}\u001b[0m`;
+/**
+ * paint() marks its sequences with this in place of ESC; joinLines turns the marks into ESC after showing every
+ * control character of the line escaped, so an escape sequence inside a name (model data) never reaches the
+ * terminal raw. A lone surrogate: no string decoded from UTF-8 (a model file, an argument, a path) can hold one.
+ */
+export const PAINT_MARK = '\udbff';
+const sgr = (code: string) => (s: string) => `${PAINT_MARK}[${code}m${s}${PAINT_MARK}[0m`;
 const plain = (s: string) => s;
 
 export function paint(colour: boolean): Paint {

@@ -123,6 +123,14 @@ describe('progress bar', () => {
     expect(s.chunks.join('')).toMatch(/\[#{24}\] 2\/2 fold {2}last: b\.onnx/);
     expect(s.chunks.at(-1)).toBe('\r\u001b[K');
   });
+  // The label is a model's file name: one holding an escape sequence reached the terminal raw.
+  it('a label holding control characters is drawn escaped', () => {
+    const s = tty();
+    const p = startProgress(1, 'audit', { stream: s, env: {} });
+    p.tick('p\u001b[31mred\u009b2J.onnx'); p.end();
+    expect(s.chunks.join('')).toContain('last: p\\x1b[31mred\\x9b2J.onnx');
+    expect(s.chunks.join('').replace(/\r\u001b\[K/g, '')).not.toMatch(/[\u0000-\u001f\u007f-\u009f]/);
+  });
   it('never in CI, when piped, or with --quiet', () => {
     expect(progressWanted({ isTTY: true, write: () => {} }, false, { CI: 'true' })).toBe(false);
     expect(progressWanted({ isTTY: false, write: () => {} }, false, {})).toBe(false);
