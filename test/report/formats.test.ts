@@ -232,6 +232,16 @@ describe('Markdown', () => {
     expect(row).toContain('| `kept</td><b>&lt;` |');
     expect(row).toContain('pads &lt;1&gt; &amp; "more"');
   });
+  // A hint quotes names from the model in plain text: a name written as a Markdown link or image became a live
+  // link, or an image fetched from anywhere, in the pull-request comment. Brackets are escaped (CommonMark: any
+  // ASCII punctuation may be backslash-escaped), so no link or image can open; the text reads the same.
+  it('plain text cannot open a link or an image', async () => {
+    const kept = { ...auditReport().normalizations[1]!, hint: "the output of '![x](https://example.invalid/p.png)' and '[approve](https://example.invalid)'" };
+    const md = await renderJobs('audit', [{ model: 'm', report: auditReport({ normalizations: [kept] }), exitCode: 0 }], 'markdown');
+    const row = md.split('\n').find((l) => l.startsWith('| `'))!;
+    expect(row).toContain("'!\\[x\\](https://example.invalid/p.png)' and '\\[approve\\](https://example.invalid)'");
+    expect(row).not.toMatch(/(^|[^\\])\[/);
+  });
 });
 
 // The HTML page says what every other format says: a compare that compared nothing was badged "failed" with no
