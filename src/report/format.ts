@@ -1,5 +1,4 @@
 // Small text helpers shared by the text reports.
-import { PAINT_MARK } from './paint.js';
 
 export function bytesText(n: number): string {
   if (n < 1024) return `${n} B`;
@@ -100,6 +99,13 @@ export function visible(text: string): string {
   if (!CONTROL.test(text)) return text;
   return text.replace(/[\u0000-\u001f\u007f-\u009f]/g, (c) => c === '\n' ? '\\n' : c === '\r' ? '\\r' : c === '\t' ? '\\t' : `\\x${c.charCodeAt(0).toString(16).padStart(2, '0')}`);
 }
+
+/**
+ * paint() marks its sequences with this in place of ESC; joinLines (below) turns the marks into ESC after showing every
+ * control character of the line escaped, so an escape sequence inside a name (model data) never reaches the
+ * terminal raw. A lone surrogate: no string decoded from UTF-8 (a model file, an argument, a path) can hold one.
+ */
+export const PAINT_MARK = '\udbff';
 
 /** A colour sequence paint() wrote (select graphic rendition), marked as paint's (see PAINT_MARK). */
 const PAINT = new RegExp(`${PAINT_MARK}\\[[0-9;]*m`, 'g');

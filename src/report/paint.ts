@@ -1,5 +1,7 @@
 // Colour for text reports: ANSI SGR sequences (the terminal standard, ECMA-48), or nothing at all. Callers
 // decide with useColour() from format.ts: only on a TTY and never when NO_COLOR is set.
+import { PAINT_MARK } from './format.js';
+
 export interface Paint {
   good: (s: string) => string;
   warn: (s: string) => string;
@@ -8,12 +10,6 @@ export interface Paint {
   bold: (s: string) => string;
 }
 
-/**
- * paint() marks its sequences with this in place of ESC; joinLines turns the marks into ESC after showing every
- * control character of the line escaped, so an escape sequence inside a name (model data) never reaches the
- * terminal raw. A lone surrogate: no string decoded from UTF-8 (a model file, an argument, a path) can hold one.
- */
-export const PAINT_MARK = '\udbff';
 const sgr = (code: string) => (s: string) => `${PAINT_MARK}[${code}m${s}${PAINT_MARK}[0m`;
 const plain = (s: string) => s;
 
