@@ -73,6 +73,8 @@ export function loadConfig(explicit: string | undefined, cwd = process.cwd()): {
     throw new PleatError('bad-input', `${file}: not valid JSON (${(e as Error).message.split('\n')[0]})`);
   }
   if (!isRecord(raw)) throw new PleatError('bad-input', `${file}: expected a JSON object of settings`);
+  const twice = repeatedKey(text);
+  if (twice !== null) throw new PleatError('usage', `${file}: the key '${twice}' is given twice; give it once`);
   for (const [key, value] of Object.entries(raw)) {
     // (own keys only: 'constructor' or 'toString' would otherwise find the object's inherited members)
     const rule = Object.hasOwn(KEYS, key) ? (KEYS as Record<string, { check: Check; want: string }>)[key] : undefined;
@@ -80,6 +82,44 @@ export function loadConfig(explicit: string | undefined, cwd = process.cwd()): {
     if (!rule.check(value)) throw new PleatError('usage', `${file}: '${key}' should be ${rule.want}`);
   }
   return { config: raw as PleatConfig, file, path };
+}
+
+/**
+ * The first member name given twice in one object of valid JSON text, as a dotted path ('probes', 'dims.batch'),
+ * or null. JSON.parse keeps the last of them (RFC 8259 leaves duplicate names to the reader), so a config holding
+ * "probes" twice would run with one of them silently, where a flag given twice is refused. Names are compared
+ * decoded ("s\u0065ed" is "seed").
+ */
+export function repeatedKey(text: string): string | null {
+  // one frame per open object (its names so far, its path, the last name read) or array (null)
+  const frames: Array<{ names: Set<string>; path: string; last: string } | null> = [];
+  let wantName = false;
+  for (let i = 0; i < text.length; i++) {
+    const c = text[i];
+    if (c === '"') {
+      let end = i + 1;
+      while (text[end] !== '"') end += text[end] === '\\' ? 2 : 1;
+      const top = frames.at(-1);
+      if (wantName && top) {
+        const name = JSON.parse(text.slice(i, end + 1)) as string;
+        if (top.names.has(name)) return top.path + name;
+        top.names.add(name);
+        top.last = name;
+        wantName = false;
+      }
+      i = end;
+    } else if (c === '{' || c === '[') {
+      const top = frames.at(-1);
+      const path = top ? `${top.path}${top.last}.` : '';
+      frames.push(c === '{' ? { names: new Set(), path, last: '' } : null);
+      wantName = c === '{';
+    } else if (c === '}' || c === ']') {
+      frames.pop();
+    } else if (c === ',') {
+      wantName = frames.at(-1) != null;
+    }
+  }
+  return null;
 }
 
 /**

@@ -61,6 +61,12 @@ function protectReads(tx: OutputSet, guard: OutputGuard): void {
 }
 
 /**
+ * The claim of one --report file, with its format: two formats written to one spelling of a path would otherwise
+ * carry the same label, which the output set takes for one step claiming its file again.
+ */
+const reportRole = (spec: { format: Format }) => `--report (${spec.format})`;
+
+/**
  * Check every destination before any work runs (folders exist and are writable, no report replaces an input or
  * an output, no two outputs share a file), so a usage mistake never costs a long job or writes anything.
  */
@@ -70,7 +76,7 @@ export async function checkDestinations(plan: ReportPlan, guard: OutputGuard): P
   try {
     protectReads(tx, guard);
     for (const [o, flag] of guard.outputs ?? []) tx.reserve(o, flag);
-    for (const spec of plan.files) tx.reserve(spec.file, '--report');
+    for (const spec of plan.files) tx.reserve(spec.file, reportRole(spec));
   } finally {
     tx.abort();
   }
@@ -94,7 +100,7 @@ export async function emit(plan: ReportPlan, render: (format: Format, colour: bo
     protectReads(tx, guard);
     for (const files of staged) if (files.length) tx.adopt(files, 'output');
     for (const spec of plan.files) {
-      tx.reserve(spec.file, '--report');
+      tx.reserve(spec.file, reportRole(spec));
       tx.stage(spec.file, await render(spec.format, false));
     }
     // a TERM or Ctrl-C that came during the work ends the run here, before anything is renamed in, rather than

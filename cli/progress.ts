@@ -1,5 +1,7 @@
 // A progress bar on stderr for long work, drawn only for a person watching: stderr is a TTY, not in CI (the CI
 // variable set, as CI services do), and not with --quiet. Piped or redirected stderr never sees it.
+import { visible } from '../src/report/format.js';
+
 export interface ProgressStream {
   isTTY?: boolean;
   columns?: number;
@@ -33,7 +35,8 @@ export function startProgress(total: number, title: string, opts: { stream?: Pro
   const draw = (label: string) => {
     const width = 24;
     const filled = total > 0 ? Math.round((done / total) * width) : width;
-    const line = `[${'#'.repeat(filled)}${'-'.repeat(width - filled)}] ${done}/${total} ${title}${label ? `  last: ${label}` : ''}`;
+    // (the label is a file name: its control characters are shown escaped, never sent to the terminal)
+    const line = `[${'#'.repeat(filled)}${'-'.repeat(width - filled)}] ${done}/${total} ${title}${label ? `  last: ${visible(label)}` : ''}`;
     const cols = stream.columns ?? 80;
     stream.write(`\r\u001b[K${line.length >= cols ? line.slice(0, cols - 1) : line}`);
   };

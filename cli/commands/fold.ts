@@ -46,8 +46,10 @@ function outputsFor(models: string[], out: string | undefined, outDir: string | 
   }
   if (outDir === undefined) throw new PleatError('usage', 'fold needs -o OUT (one model) or --out-dir DIR (any number of models)');
   const names = models.map((m) => basename(m));
-  const twin = names.find((n, i) => names.indexOf(n) !== i);
-  if (twin) throw new PleatError('usage', `two input models are both named '${twin}', so --out-dir would write them to one file; fold them separately`);
+  const twin = names.findIndex((n, i) => names.indexOf(n) !== i);
+  if (twin >= 0) {
+    throw new PleatError('usage', `${models[names.indexOf(names[twin]!)]} and ${models[twin]} are both named '${names[twin]}', so --out-dir would write them to one file; fold them separately`);
+  }
   try {
     mkdirSync(outDir, { recursive: true });
   } catch (e) {

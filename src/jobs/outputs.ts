@@ -236,7 +236,7 @@ export class OutputSet {
     this.checkTempLength(full, role, dest, 'file');
     const special = specialKind(here);
     if (special) {
-      const hint = role === '--report' ? '; for the report on stdout, use --format' : '';
+      const hint = role.startsWith('--report') ? '; for the report on stdout, use --format' : '';
       throw new PleatError('bad-input', `${role} ${dest}: is ${special}, not a file; pleat writes whole files into place and would replace it${hint}`);
     }
     const keys = fileKeys(full);

@@ -602,6 +602,7 @@ export interface ReadOptions { externalData?: 'load' | 'leave' }
  * them, resolved) to the files to read instead: a staged output is read back before its side files are renamed in.
  */
 export function readModelFile(path: string, redirect?: ReadonlyMap<string, string>, opts: ReadOptions = {}): Model {
+  if (path === '') throw new PleatError('bad-input', "'' (an empty path): no such file; give the model's path");
   let st;
   try {
     st = statSync(path);

@@ -84,8 +84,11 @@ export function plural(n: number, one: string, many = `${one}s`): string {
 export const FORMATS = ['text', 'json', 'junit', 'markdown', 'html'] as const;
 export type Format = (typeof FORMATS)[number];
 
-/** Control characters (a line break in a node name, an escape, a tab). */
-const CONTROL = /[\u0000-\u001f\u007f]/;
+/**
+ * Control characters (a line break in a node name, an escape, a tab), and ECMA-48's C1 set, whose one-character
+ * CSI (U+009B) and OSC (U+009D) some terminals act on as they do on ESC [ and ESC ].
+ */
+const CONTROL = /[\u0000-\u001f\u007f-\u009f]/;
 
 /**
  * Text as one visible line: control characters shown escaped (\n, \r, \t, \x1b). A line-oriented report or
@@ -94,31 +97,39 @@ const CONTROL = /[\u0000-\u001f\u007f]/;
  */
 export function visible(text: string): string {
   if (!CONTROL.test(text)) return text;
-  return text.replace(/[\u0000-\u001f\u007f]/g, (c) => c === '\n' ? '\\n' : c === '\r' ? '\\r' : c === '\t' ? '\\t' : `\\x${c.charCodeAt(0).toString(16).padStart(2, '0')}`);
+  return text.replace(/[\u0000-\u001f\u007f-\u009f]/g, (c) => c === '\n' ? '\\n' : c === '\r' ? '\\r' : c === '\t' ? '\\t' : `\\x${c.charCodeAt(0).toString(16).padStart(2, '0')}`);
 }
 
-/** A colour sequence paint() writes (select graphic rendition); any other control character is the data's. */
-const PAINT = /\u001b\[[0-9;]*m/g;
+/**
+ * paint() marks its sequences with this in place of ESC; joinLines (below) turns the marks into ESC after showing every
+ * control character of the line escaped, so an escape sequence inside a name (model data) never reaches the
+ * terminal raw. A lone surrogate: no string decoded from UTF-8 (a model file, an argument, a path) can hold one.
+ */
+export const PAINT_MARK = '\udbff';
+
+/** A colour sequence paint() wrote (select graphic rendition), marked as paint's (see PAINT_MARK). */
+const PAINT = new RegExp(`${PAINT_MARK}\\[[0-9;]*m`, 'g');
 
 /**
  * The lines of a text report joined, each line visible (see visible): a line holds one entry, so a control
- * character inside it came from a name, a hint or a path, never from the layout. With `colour`, the colour
- * sequences paint() wrote are kept (without it paint() wrote none, so every escape is the data's).
+ * character inside it came from a name, a hint or a path, never from the layout. With `colour`, the sequences
+ * paint() marked become colour sequences; an escape the data holds is shown escaped like any other control.
  */
 export function joinLines(lines: readonly string[], colour = false): string {
   const out = new Array<string>(lines.length);
   for (let i = 0; i < lines.length; i++) {
     const l = lines[i]!;
-    out[i] = !CONTROL.test(l) ? l : colour ? keepPaint(l) : visible(l);
+    out[i] = colour ? keepPaint(l) : !CONTROL.test(l) ? l : visible(l);
   }
   return out.join('\n');
 }
 
 /** A line with paint()'s colour sequences kept and every other control character made visible. */
 function keepPaint(line: string): string {
+  if (!line.includes(PAINT_MARK)) return visible(line);
   let out = '', at = 0;
   for (const m of line.matchAll(PAINT)) {
-    out += visible(line.slice(at, m.index)) + m[0];
+    out += visible(line.slice(at, m.index)) + '\u001b' + m[0].slice(PAINT_MARK.length);
     at = m.index! + m[0].length;
   }
   return out + visible(line.slice(at));

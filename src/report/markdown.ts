@@ -8,12 +8,13 @@ import type { ProofFigures } from '../fold/types.js';
 import { append, bytesText, CAUTION, cosineText, dbText, numText, ratioText, visible } from './format.js';
 
 /**
- * Plain text safe inside a table cell: pipes escaped, HTML-looking text neutralised (`&` too, so a name holding
+ * Plain text safe inside a table cell: pipes escaped, brackets escaped (a name in a hint written as a link or an
+ * image stays text), HTML-looking text neutralised (`&` too, so a name holding
  * `&lt;` does not read as `<`), line breaks flattened. Never applied to a code span: a code span decodes no entity,
  * so `&lt;` there showed as written.
  */
 export function cell(s: string): string {
-  return visible(s.replace(/\\/g, '\\\\').replace(/\|/g, '\\|').replace(/&/g, '&amp;').replace(/</g, '&lt;').replace(/>/g, '&gt;').replace(/[\r\n]+/g, ' '));
+  return visible(s.replace(/\\/g, '\\\\').replace(/\|/g, '\\|').replace(/[[\]]/g, '\\$&').replace(/&/g, '&amp;').replace(/</g, '&lt;').replace(/>/g, '&gt;').replace(/[\r\n]+/g, ' '));
 }
 /** A name as a code span: shown as it is (backticks as ', line breaks flattened). */
 const code = (s: string) => `\`${visible(s.replace(/`/g, "'").replace(/[\r\n]+/g, ' '))}\``;

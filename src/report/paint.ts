@@ -1,5 +1,7 @@
 // Colour for text reports: ANSI SGR sequences (the terminal standard, ECMA-48), or nothing at all. Callers
 // decide with useColour() from format.ts: only on a TTY and never when NO_COLOR is set.
+import { PAINT_MARK } from './format.js';
+
 export interface Paint {
   good: (s: string) => string;
   warn: (s: string) => string;
@@ -8,7 +10,7 @@ export interface Paint {
   bold: (s: string) => string;
 }
 
-const sgr = (code: string) => (s: string) => `\u001b[${code}m${s}\u001b[0m`;
+const sgr = (code: string) => (s: string) => `${PAINT_MARK}[${code}m${s}${PAINT_MARK}[0m`;
 const plain = (s: string) => s;
 
 export function paint(colour: boolean): Paint {

@@ -1,6 +1,6 @@
 // Bad input gets one clear line on stderr and exit code 2, never a stack trace.
 import { describe, expect, it } from 'vitest';
-import { mkdtempSync, writeFileSync, mkdirSync, readFileSync, symlinkSync } from 'node:fs';
+import { existsSync, mkdtempSync, writeFileSync, mkdirSync, readdirSync, readFileSync, symlinkSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import onnxProto from 'onnx-proto';
@@ -133,6 +133,25 @@ describe('output problems', () => {
     expectOneLine(pleat(['fold', p, '-o', p]), /refusing to overwrite the input model/);
     expect(readFileSync(p).equals(before)).toBe(true);
   });
+  // Two --report files of different formats spelled alike were claimed under one label, which the output set took
+  // for the same step claiming its file again: exit 0, and the file held whichever report was written last.
+  it('two --report formats into one file: refused before any work, naming both, nothing written', () => {
+    const p = file('two-formats.onnx', modelBytes(good()));
+    const report = join(dir, 'two-formats.out');
+    const r = pleat(['fold', p, '-o', join(dir, 'two-formats.folded.onnx'), '--report', `json:${report}`, '--report', `markdown:${report}`]);
+    expectOneLine(r, /--report \(markdown\) .*two-formats\.out is also written as --report \(json\) .*two-formats\.out/);
+    expect(existsSync(report)).toBe(false);
+    expect(existsSync(join(dir, 'two-formats.folded.onnx'))).toBe(false);
+    expectOneLine(pleat(['audit', p, '--report', `text:${report}`, '--report', `junit:${report}`]), /--report \(junit\) .* is also written as --report \(text\)/);
+  });
+  // A batch whose inputs share a file name named the name only: the user had to find which two inputs it meant.
+  it('two batch inputs of one file name: refused naming both paths', () => {
+    mkdirSync(join(dir, 'twin-a')); mkdirSync(join(dir, 'twin-b')); mkdirSync(join(dir, 'twin-out'));
+    const a = file('twin-a/m.onnx', modelBytes(good())), b = file('twin-b/m.onnx', modelBytes(good()));
+    expectOneLine(pleat(['fold', a, b, '--out-dir', join(dir, 'twin-out')]), /twin-a\/m\.onnx and .*twin-b\/m\.onnx are both named 'm\.onnx'/);
+    expect(readdirSync(join(dir, 'twin-out'))).toEqual([]);
+  });
+  it('an empty model path is named as such', () => expectOneLine(pleat(['audit', '']), /^pleat: '' \(an empty path\)/));
 });
 
 // statSync throws for a loop of symbolic links or a path through a file even when told a missing entry is fine:

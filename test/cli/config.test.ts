@@ -31,6 +31,16 @@ describe('config file', () => {
     try { loadConfig(write('typo2.json', { gates: 'x' })); } catch (e) { expect((e as { kind: string }).kind).toBe('usage'); }
   });
 
+  // JSON.parse keeps the last of two members of one name (RFC 8259 leaves it to the reader): a config saying
+  // "probes" twice ran with one of them, silently, where a flag given twice is refused.
+  it('a key given twice, at the top or inside dims/shapes, is refused naming it', () => {
+    expect(() => loadConfig(write('twice.json', '{"probes": 3, "seed": 1, "probes": 4}'))).toThrow(/twice\.json: the key 'probes' is given twice/);
+    expect(() => loadConfig(write('twice-escaped.json', '{"seed": 3, "s\\u0065ed": 4}'))).toThrow(/the key 'seed' is given twice/);
+    expect(() => loadConfig(write('twice-nested.json', '{"dims": {"batch": 1, "batch": 2}}'))).toThrow(/the key 'dims\.batch' is given twice/);
+    // the same name in two different objects, or inside a string, is not a repeat
+    expect(loadConfig(write('twice-not.json', '{"dims": {"seed": 1}, "shapes": {"x": [1, 2]}, "gate": "\\"seed\\": 1, \\"seed\\"", "seed": 2}')).config.seed).toBe(2);
+  });
+
   // A config that is there but cannot be read is an error, never "no config" (its "strict": true was lost when a
   // dangling symlink read as absent); a FIFO is refused without waiting (the read blocked for ever); a key that
   // names a member every object inherits ('constructor', 'toString', '__proto__') is unknown, not exit 3.
@@ -112,6 +122,14 @@ describe('progress bar', () => {
     p.tick('a.onnx'); p.tick('b.onnx'); p.end();
     expect(s.chunks.join('')).toMatch(/\[#{24}\] 2\/2 fold {2}last: b\.onnx/);
     expect(s.chunks.at(-1)).toBe('\r\u001b[K');
+  });
+  // The label is a model's file name: one holding an escape sequence reached the terminal raw.
+  it('a label holding control characters is drawn escaped', () => {
+    const s = tty();
+    const p = startProgress(1, 'audit', { stream: s, env: {} });
+    p.tick('p\u001b[31mred\u009b2J.onnx'); p.end();
+    expect(s.chunks.join('')).toContain('last: p\\x1b[31mred\\x9b2J.onnx');
+    expect(s.chunks.join('').replace(/\r\u001b\[K/g, '')).not.toMatch(/[\u0000-\u001f\u007f-\u009f]/);
   });
   it('never in CI, when piped, or with --quiet', () => {
     expect(progressWanted({ isTTY: true, write: () => {} }, false, { CI: 'true' })).toBe(false);

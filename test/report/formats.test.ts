@@ -232,6 +232,16 @@ describe('Markdown', () => {
     expect(row).toContain('| `kept</td><b>&lt;` |');
     expect(row).toContain('pads &lt;1&gt; &amp; "more"');
   });
+  // A hint quotes names from the model in plain text: a name written as a Markdown link or image became a live
+  // link, or an image fetched from anywhere, in the pull-request comment. Brackets are escaped (CommonMark: any
+  // ASCII punctuation may be backslash-escaped), so no link or image can open; the text reads the same.
+  it('plain text cannot open a link or an image', async () => {
+    const kept = { ...auditReport().normalizations[1]!, hint: "the output of '![x](https://example.invalid/p.png)' and '[approve](https://example.invalid)'" };
+    const md = await renderJobs('audit', [{ model: 'm', report: auditReport({ normalizations: [kept] }), exitCode: 0 }], 'markdown');
+    const row = md.split('\n').find((l) => l.startsWith('| `'))!;
+    expect(row).toContain("'!\\[x\\](https://example.invalid/p.png)' and '\\[approve\\](https://example.invalid)'");
+    expect(row).not.toMatch(/(^|[^\\])\[/);
+  });
 });
 
 // The HTML page says what every other format says: a compare that compared nothing was badged "failed" with no
@@ -280,9 +290,25 @@ describe('control characters in names', () => {
     expect(t).toContain('bn\\x1b[31mRED\\x1b[0m');
     expect(t).not.toMatch(/[\u0000-\u0009\u000b-\u001f\u007f]/);
     const painted = await renderJobs('audit', [{ model: 'm', report: named(), exitCode: 0 }], 'text', true);
-    // painted for a terminal: colour sequences stay (a name's own look the same), any other control is escaped
+    // painted for a terminal: pleat's own colour sequences stay; a name's escape sequence (model data) is shown
+    // escaped like any other control, where it used to reach the terminal raw and recolour (or hide, ESC[8m) the rest
     expect(painted).toContain('bn2\\n#evil');
-    expect(painted).toMatch(/\u001b\[/);
+    expect(painted).toContain('bn\\x1b[31mRED\\x1b[0m');
+    expect(painted).toMatch(/\u001b\[33mkept {5}\u001b\[0m/);
+    expect(painted.replace(/\u001b\[(1|2|31|32|33|0)m/g, '')).not.toMatch(/[\u0000-\u0009\u000b-\u001f\u007f-\u009f]/);
+  });
+  // ECMA-48's C1 set has one-character forms of CSI (U+009B) and OSC (U+009D), which some terminals act on as they
+  // do on ESC [ and ESC ]: shown escaped, in text painted or not and in Markdown.
+  it('C1 control characters in names are shown escaped', async () => {
+    const r = auditReport();
+    r.normalizations = r.normalizations.map((e, i) => (i === 0 ? { ...e, node: 'bn\u009b31mRED\u009d8;;x\u009c' } : e));
+    for (const colour of [false, true]) {
+      const t = await renderJobs('audit', [{ model: 'm', report: r, exitCode: 0 }], 'text', colour);
+      expect(t).toContain('bn\\x9b31mRED\\x9d8;;x\\x9c');
+      expect(t).not.toMatch(/[\u0080-\u009f]/);
+    }
+    const md = await renderJobs('audit', [{ model: 'm', report: r, exitCode: 0 }], 'markdown');
+    expect(md).not.toMatch(/[\u0080-\u009f]/);
   });
   it('markdown: no raw control character', async () => {
     const md = await renderJobs('audit', [{ model: 'm', report: named(), exitCode: 0 }], 'markdown');
