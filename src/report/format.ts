@@ -86,9 +86,25 @@ export type Format = (typeof FORMATS)[number];
 
 /**
  * Control characters (a line break in a node name, an escape, a tab), and ECMA-48's C1 set, whose one-character
- * CSI (U+009B) and OSC (U+009D) some terminals act on as they do on ESC [ and ESC ].
+ * CSI (U+009B) and OSC (U+009D) some terminals act on as they do on ESC [ and ESC ]; and the bidirectional
+ * formatting characters of Unicode's bidi algorithm (UAX #9, from memory: ALM U+061C, LRM/RLM U+200E-200F,
+ * embeddings and overrides U+202A-202E, isolates U+2066-2069), with which a name reorders how the rest of its line
+ * is displayed (the "Trojan Source" display attack, Boucher and Anderson 2021, arXiv:2111.00169).
  */
-const CONTROL = /[\u0000-\u001f\u007f-\u009f]/;
+const CONTROL = /[\u0000-\u001f\u007f-\u009f\u061c\u200e\u200f\u202a-\u202e\u2066-\u2069]/;
+const CONTROLS = new RegExp(CONTROL.source, 'g');
+
+/** One control character as text: \n, \r, \t, \x1b, or \u202e above U+00FF. */
+export function escapedControl(c: string): string {
+  if (c === '\n') return '\\n';
+  if (c === '\r') return '\\r';
+  if (c === '\t') return '\\t';
+  const code = c.charCodeAt(0);
+  return code <= 0xff ? `\\x${code.toString(16).padStart(2, '0')}` : `\\u${code.toString(16).padStart(4, '0')}`;
+}
+
+/** The bidirectional formatting characters alone (see CONTROL): the HTML page shows them escaped too. */
+export const BIDI_CONTROLS = /[\u061c\u200e\u200f\u202a-\u202e\u2066-\u2069]/g;
 
 /**
  * Text as one visible line: control characters shown escaped (\n, \r, \t, \x1b). A line-oriented report or
@@ -97,7 +113,7 @@ const CONTROL = /[\u0000-\u001f\u007f-\u009f]/;
  */
 export function visible(text: string): string {
   if (!CONTROL.test(text)) return text;
-  return text.replace(/[\u0000-\u001f\u007f-\u009f]/g, (c) => c === '\n' ? '\\n' : c === '\r' ? '\\r' : c === '\t' ? '\\t' : `\\x${c.charCodeAt(0).toString(16).padStart(2, '0')}`);
+  return text.replace(CONTROLS, escapedControl);
 }
 
 /**

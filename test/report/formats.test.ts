@@ -310,6 +310,24 @@ describe('control characters in names', () => {
     const md = await renderJobs('audit', [{ model: 'm', report: r, exitCode: 0 }], 'markdown');
     expect(md).not.toMatch(/[\u0080-\u009f]/);
   });
+  // Unicode's bidirectional formatting characters (UAX #9, from memory) reorder how the rest of a line is displayed
+  // ("Trojan Source", Boucher and Anderson 2021, arXiv:2111.00169): a name holding U+202E could make a kept entry
+  // read like another. Shown as their codes in text (painted or not), Markdown and the HTML page.
+  it('bidirectional formatting characters in names are shown as their codes', async () => {
+    const r = auditReport();
+    const bidi = /[\u061c\u200e\u200f\u202a-\u202e\u2066-\u2069]/;
+    r.normalizations = r.normalizations.map((e, i) => (i === 0 ? { ...e, node: 'bn\u202edeplof\u2066x\u2069\u200f' } : e));
+    for (const colour of [false, true]) {
+      const t = await renderJobs('audit', [{ model: 'm', report: r, exitCode: 0 }], 'text', colour);
+      expect(t).toContain('bn\\u202edeplof\\u2066x\\u2069\\u200f');
+      expect(t).not.toMatch(bidi);
+    }
+    for (const format of ['markdown', 'html'] as const) {
+      const out = await renderJobs('audit', [{ model: 'm', report: r, exitCode: 0 }], format);
+      expect(out, format).toContain('bn\\u202edeplof');
+      expect(out, format).not.toMatch(bidi);
+    }
+  });
   it('markdown: no raw control character', async () => {
     const md = await renderJobs('audit', [{ model: 'm', report: named(), exitCode: 0 }], 'markdown');
     expect(md).not.toMatch(/[\u0000-\u0009\u000b-\u001f\u007f]/);
