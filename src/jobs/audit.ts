@@ -6,6 +6,7 @@ import { checkJobNames } from './names.js';
 import { checkOpset } from '../graph/opsets.js';
 import { sketches } from '../fold/sketch.js';
 import { fileSha256 } from './sha256.js';
+import { externalSha256Later } from './provenance.js';
 import { SCHEMA_VERSION, type AuditJobOptions, type AuditReport } from './types.js';
 import { checkOptionValues } from '../verify/option-values.js';
 
@@ -39,6 +40,8 @@ export function auditFile(input: string, opts: AuditJobOptions = {}): AuditRepor
   const report = auditLoaded(model, input, opts);
   if (opts.pageDetail) {
     report.sha256 = fileSha256(input);
+    const external = externalSha256Later(model);
+    if (external) report.externalSha256 = external();
     report.sketches = sketches(model, report.normalizations);
   }
   return report;

@@ -6,8 +6,8 @@ import { join } from 'node:path';
 import { asGiven, BUNDLE_FILES, checkBundleFolder, planBundle, writeAll, type BundleFormat, type BundleResult } from '../ship/bundle.js';
 import { sideFilePaths } from '../onnx/external.js';
 import { OutputSet } from './outputs.js';
-import { provenanceOf, setProvenance } from './provenance.js';
-import { fileSha256 } from './sha256.js';
+import { externalSha256Later, provenanceOf, setProvenance } from './provenance.js';
+import { sha256Later, type Later } from './sha256.js';
 import { foldLoaded, withThreads } from './fold.js';
 import { checkOptionValues } from '../verify/option-values.js';
 import { SCHEMA_VERSION, type FoldJobOptions, type FoldReport } from './types.js';
@@ -48,21 +48,27 @@ export function exportStaged(input: string, dir: string, format: BundleFormat = 
   const folder = checkBundleFolder(dir, format);
   return withThreads(opts.threads, () => {
     const tx = new OutputSet();
+    let digests: Array<Later<string> | undefined> = [];
     try {
       const model = readModelFile(input);
-      [model.sourcePath!, ...sideFilePaths(model)].forEach((p, i) => tx.protect(p, i === 0 ? 'input model' : "input model's side file"));
+      const inputs = [model.sourcePath!, ...sideFilePaths(model)];
+      inputs.forEach((p, i) => tx.protect(p, i === 0 ? 'input model' : "input model's side file"));
+      // the source's digests (the side files' too, as fold records them) are worked out beside the fold
+      const sha256 = sha256Later(input), external = inputs.length > 1 ? externalSha256Later(model) : undefined;
+      digests = [sha256, external];
       if (folder.exists) for (const name of BUNDLE_FILES[format]) tx.reserve(join(folder.full, name), '--bundle');
       else tx.reserveFolder(folder.full, '--bundle');
       const original = opts.noProofs ? undefined : readModelFile(input);
       const fold = foldLoaded(model, original, input, opts);
       if (fold.failed) {
+        for (const d of digests) d?.stop(); // (their threads: nothing is written)
         tx.abort();
         const report: ExportReport = { schemaVersion: SCHEMA_VERSION, command: 'export', model: input, fold, bundle: null };
         return { report, commit: () => report, abort: () => {} };
       }
       // what the folded .onnx would record (its source, the check's status, gate and seed) goes into the bundle too:
       // a bundle from a skipped check looked the same as one from a passed check
-      setProvenance(model, provenanceOf(fileSha256(input), opts.gate, opts, fold.check?.status ?? 'not-run'));
+      setProvenance(model, provenanceOf(sha256(), opts.gate, opts, fold.check?.status ?? 'not-run', external?.()));
       const planned = planBundle(model, folder.full, format);
       // Every bundle file goes through one transaction: staged, then all renamed in (see outputs.ts).
       if (folder.exists) {
@@ -77,6 +83,7 @@ export function exportStaged(input: string, dir: string, format: BundleFormat = 
       const report: ExportReport = { schemaVersion: SCHEMA_VERSION, command: 'export', model: input, fold, bundle: asGiven(planned.result, dir) };
       return { report, commit: () => { tx.commit(); return report; }, abort: () => tx.abort() };
     } catch (e) {
+      for (const d of digests) d?.stop();
       tx.abort();
       throw e;
     }

@@ -26,7 +26,7 @@ import type { Estimate } from '../eval/estimate.js';
 import { checkKit } from './check-kit.js';
 import type { FoldLedger, RewrittenNode } from '../fold/types.js';
 import type { Scope } from '../fold/scope.js';
-import { PROVENANCE_KEYS, provenanceOf, setProvenance } from './provenance.js';
+import { EXTERNAL_KEY, externalSha256Later, provenanceOf, setProvenance, SOURCE_KEY } from './provenance.js';
 import {
   SCHEMA_VERSION, type CheckSummary, type Coverage, type FoldJobOptions, type FoldReport, type Int8Output, type Int8Simulation, type StorageSummary,
 } from './types.js';
@@ -403,6 +403,9 @@ function foldStagedOnce(tx: OutputSet, input: string, output: string, opts: Fold
   const model = readModelFile(input);
   const inputs = [model.sourcePath!, ...sideFilePaths(model)];
   inputs.forEach((p, i) => tx.protect(p, i === 0 ? 'input model' : `input model's side file`));
+  // a source with external data records its side files' digest too, worked out the same way (a model without
+  // side files records what it always did)
+  const external = inputs.length > 1 ? externalSha256Later(model) : undefined;
   // the probe folder is an output like the model: claimed first, written at a temporary name, renamed in with it
   if (opts.saveProbes !== undefined) tx.reserveFolder(opts.saveProbes, '--save-probes');
   // Decide every destination before any work: the model, and its side file if one may be written.
@@ -417,13 +420,14 @@ function foldStagedOnce(tx: OutputSet, input: string, output: string, opts: Fold
   const stage = (m: Model, status: string) => {
     // A digest still being worked out is not waited for: the file is written with a placeholder of its length,
     // and the digest goes over it once known (the hash of a large input then runs beside the writing).
-    const known = sha256.ready();
-    setProvenance(m, provenanceOf(known ? sha256() : DIGEST_PLACEHOLDER, gate, opts, status));
+    const known = sha256.ready(), externalKnown = external?.ready() ?? true;
+    setProvenance(m, provenanceOf(known ? sha256() : DIGEST_PLACEHOLDER, gate, opts, status, external && (externalKnown ? external() : DIGEST_PLACEHOLDER)));
     staged = stageModelFile(m, dest, { externalThreshold: opts.externalThreshold }, (d) => tx.tempFor(d));
     tx.add(staged.files);
-    if (known) return;
-    setProvenance(m, provenanceOf(sha256(), gate, opts, status));
-    if (fillDigest(staged.files[0]!.tmp, PROVENANCE_KEYS[1], sha256())) return;
+    if (known && externalKnown) return;
+    setProvenance(m, provenanceOf(sha256(), gate, opts, status, external?.()));
+    const tmp = staged.files[0]!.tmp;
+    if ((known || fillDigest(tmp, SOURCE_KEY, sha256())) && (externalKnown || fillDigest(tmp, EXTERNAL_KEY, external!()))) return;
     tx.discard(staged.files);
     staged = stageModelFile(m, dest, { externalThreshold: opts.externalThreshold }, (d) => tx.tempFor(d));
     tx.add(staged.files);
@@ -453,6 +457,7 @@ function foldStagedOnce(tx: OutputSet, input: string, output: string, opts: Fold
   }
   if (opts.pageDetail) {
     report.sha256 = sha256();
+    if (external) report.externalSha256 = external();
     report.sketches = sketches(original ?? readModelFile(input), report.normalizations, model);
   }
   if (report.failed) {
@@ -469,5 +474,6 @@ function foldStagedOnce(tx: OutputSet, input: string, output: string, opts: Fold
       report.probesSaved = { dir: opts.saveProbes, sets };
     }
   }
+  external?.stop(); // (its thread, when nothing asked for the digest: a failed gate writes nothing)
   return { report, inputs };
 }

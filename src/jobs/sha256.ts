@@ -1,5 +1,5 @@
-// SHA-256 of a file, read in chunks so a large model never sits in memory twice; for a large file, optionally
-// worked out on a worker thread while the fold goes on (the digest is the same either way).
+// SHA-256 of a file, read in chunks so a large model never sits in memory twice; for a large file (or files large
+// in all), optionally worked out on a worker thread while the fold goes on (the digest is the same either way).
 import { createHash } from 'node:crypto';
 import { closeSync, fstatSync, openSync, readSync, statSync, writeSync } from 'node:fs';
 import { resolve } from 'node:path';
@@ -26,27 +26,32 @@ export function fileSha256(file: string): string {
 /** Files at least this large are hashed on a worker thread (below it, starting the thread costs more than it saves). */
 const BACKGROUND_MIN_BYTES = 64 * 1024 * 1024;
 
-// The worker reads and hashes the file and writes the hex digest after an 8-byte header of the shared buffer. The
-// flag: 0 until the worker's first statement, 3 while it hashes, then 1 (done) or 2 (failed, stopped, or never
-// started: the caller then hashes on its own thread, which reports any error properly).
+// The worker reads and hashes each file in turn and writes its hex digest after an 8-byte header of the shared
+// buffer (file i at 8 + 64 i). The flag: 0 until the worker's first statement, 3 while it hashes, then 1 (done) or 2
+// (failed, stopped, or never started: the caller then hashes on its own thread, which reports any error properly).
 const WORKER = `
 const { workerData } = require('node:worker_threads');
 const flag = new Int32Array(workerData.sab, 0, 1);
 Atomics.compareExchange(flag, 0, 0, 3);
 Atomics.notify(flag, 0);
 try {
-  const fs = require('node:fs'), h = require('node:crypto').createHash('sha256'), buf = Buffer.allocUnsafe(1 << 20);
-  const fd = fs.openSync(workerData.path, 'r');
-  try { for (let n; (n = fs.readSync(fd, buf, 0, buf.length, null)) > 0;) h.update(buf.subarray(0, n)); } finally { fs.closeSync(fd); }
-  Buffer.from(h.digest('hex'), 'latin1').copy(new Uint8Array(workerData.sab, 8, 64));
+  const fs = require('node:fs'), crypto = require('node:crypto'), buf = Buffer.allocUnsafe(1 << 20);
+  workerData.paths.forEach((path, i) => {
+    const h = crypto.createHash('sha256'), fd = fs.openSync(path, 'r');
+    try { for (let n; (n = fs.readSync(fd, buf, 0, buf.length, null)) > 0;) h.update(buf.subarray(0, n)); } finally { fs.closeSync(fd); }
+    Buffer.from(h.digest('hex'), 'latin1').copy(new Uint8Array(workerData.sab, 8 + 64 * i, 64));
+  });
   Atomics.store(flag, 0, 1);
 } catch { Atomics.store(flag, 0, 2); }
 Atomics.notify(flag, 0);
 `;
 
 /** A digest worked out beside other work: call it for the hex digest (waiting if need be); `ready` never waits. */
-export interface LaterDigest {
-  (): string;
+export type LaterDigest = Later<string>;
+
+/** Something worked out beside other work: call it for the value (waiting if need be); `ready` never waits. */
+export interface Later<T> {
+  (): T;
   /** Whether the digest is known, so that calling for it would not wait. */
   ready(): boolean;
   /** Stop the thread working it out (the digest is not asked for). */
@@ -102,34 +107,47 @@ export function sha256Later(file: string, workerSource = WORKER): LaterDigest {
     if (early.identity === identityOf(file)) return early.digest;
     ahead.delete(key); // the file changed since: that digest is of another version
   }
+  const all = sha256sLater([file], workerSource);
+  return Object.assign(() => all()[0]!, { ready: all.ready, stop: all.stop });
+}
+
+/**
+ * Start hashing files (one after the other, on one thread when they hold BACKGROUND_MIN_BYTES or more in all); the
+ * returned function gives their hex digests in the order given, waiting for them if need be.
+ */
+export function sha256sLater(files: readonly string[], workerSource = WORKER): Later<string[]> {
   let size = 0;
-  try { size = statSync(file).size; } catch { /* the synchronous hash reports it */ }
-  let digest: string | undefined;
-  if (size < BACKGROUND_MIN_BYTES) return Object.assign(() => (digest ??= fileSha256(file)), { ready: () => true, stop: () => {} });
-  const sab = new SharedArrayBuffer(8 + 64);
+  for (const f of files) {
+    try { size += statSync(f).size; } catch { /* the synchronous hash reports it */ }
+  }
+  let digests: string[] | undefined;
+  if (size < BACKGROUND_MIN_BYTES) return Object.assign(() => (digests ??= files.map(fileSha256)), { ready: () => true, stop: () => {} });
+  const sab = new SharedArrayBuffer(8 + 64 * files.length);
   const flag = new Int32Array(sab, 0, 1);
   let worker: Worker | undefined;
   const created = performance.now();
   try {
-    worker = new Worker(workerSource, { eval: true, workerData: { path: file, sab } });
+    worker = new Worker(workerSource, { eval: true, workerData: { paths: [...files], sab } });
     worker.unref();
     // a worker that fails to start says so here (when this thread is not waiting): hash here, nothing thrown
     worker.on('error', () => Atomics.compareExchange(flag, 0, 0, 2));
   } catch { Atomics.store(flag, 0, 2); }
   const get = () => {
-    if (digest !== undefined) return digest;
+    if (digests !== undefined) return digests;
     for (let s; (s = Atomics.load(flag, 0)) === 0 || s === 3;) {
       if (s === 0 && performance.now() - created > START_LIMIT_MS) Atomics.compareExchange(flag, 0, 0, 2);
       else Atomics.wait(flag, 0, s, s === 0 ? 100 : 1000);
     }
-    digest = Atomics.load(flag, 0) === 1 ? Buffer.from(new Uint8Array(sab, 8, 64)).toString('latin1') : fileSha256(file);
+    digests = Atomics.load(flag, 0) === 1
+      ? files.map((_, i) => Buffer.from(new Uint8Array(sab, 8 + 64 * i, 64)).toString('latin1'))
+      : files.map(fileSha256);
     void worker?.terminate();
-    return digest;
+    return digests;
   };
   const settled = () => { const s = Atomics.load(flag, 0); return s === 1 || s === 2; };
-  return Object.assign(get, { ready: () => digest !== undefined || settled(), stop: () => {
+  return Object.assign(get, { ready: () => digests !== undefined || settled(), stop: () => {
     void worker?.terminate();
-    // a digest asked for after all is then worked out on this thread (or taken, if the worker finished first)
+    // digests asked for after all are then worked out on this thread (or taken, if the worker finished first)
     Atomics.compareExchange(flag, 0, 0, 2);
     Atomics.compareExchange(flag, 0, 3, 2);
   } });

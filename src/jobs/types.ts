@@ -104,6 +104,8 @@ export interface FoldReport {
   failed: boolean;
   /** SHA-256 of the model file (hex), recorded when an HTML report is asked for (the page shows it). */
   sha256?: string;
+  /** With sha256, for a model whose weights are in external data: its side files' digest (pleat.source.external.sha256). */
+  externalSha256?: string;
   /** The neighbourhood of each normalization, recorded when an HTML report is asked for (the page draws it). */
   sketches?: Sketch[];
   run?: RunFigures;
@@ -124,6 +126,7 @@ export interface AuditReport {
   /** True when --fail-on kept is set and a normalization is kept (exit 1). */
   failed: boolean;
   sha256?: string;
+  externalSha256?: string;
   sketches?: Sketch[];
   run?: RunFigures;
 }

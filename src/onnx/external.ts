@@ -138,6 +138,20 @@ export function sideFilePaths(model: Model): string[] {
   return [...out];
 }
 
+/**
+ * Each distinct `location` value the model's external tensors name, exactly as written, with the file it resolves
+ * to in the model's folder (in the order first met; two spellings of one file are two entries).
+ */
+export function sideFileLocations(model: Model): Array<{ location: string; path: string }> {
+  const out = new Map<string, string>();
+  eachTensor(model.graph, (t) => {
+    if (storageKind(t) !== 'external') return;
+    const ref = externalRef(t, 'model');
+    if (!out.has(ref.location)) out.set(ref.location, resolveLocation(model.baseDir, ref.location, 'model', t.name));
+  });
+  return [...out].map(([location, path]) => ({ location, path }));
+}
+
 export function externalBytes(model: Model): number {
   let n = 0;
   eachTensor(model.graph, (t) => { n += externalStorage(t)?.bytes.byteLength ?? 0; });

@@ -273,7 +273,8 @@ export function stableJson(v: Json, indent = ''): string {
  *   layers: [{index, name, op, domain?, attributes (plain JSON), inputs, outputs, tensors (bundle tensors it reads)}]
  *   skipped: [{name, reason, note}] for every constant not in the bundle (reasons: dtype-unsupported, in-subgraph,
  *            sparse-value)
- *   provenance: the model's pleat.* metadata_props (version, source SHA-256, check status, gate and seed) when
+ *   provenance: the model's pleat.* metadata_props (version, source SHA-256 and, for a source with external data,
+ *               its side files' digest, check status, gate and seed) when
  *               it has them, so a bundle says whether the fold behind it was checked, as the folded .onnx does
  */
 /** The model's pleat.* metadata_props (what pleat recorded of the fold that made it), as an object. */

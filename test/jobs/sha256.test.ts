@@ -5,7 +5,7 @@ import { createHash } from 'node:crypto';
 import { mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { DIGEST_PLACEHOLDER, fileSha256, fillDigest, sha256Later, startSha256, stopSha256Ahead } from '../../src/jobs/sha256.js';
+import { DIGEST_PLACEHOLDER, fileSha256, fillDigest, sha256Later, sha256sLater, startSha256, stopSha256Ahead } from '../../src/jobs/sha256.js';
 import { execFileSync } from 'node:child_process';
 import { GraphBuilder, modelBytes, randn, rng, uniform } from '../helpers/build.js';
 import { readModelFile } from '../../src/onnx/read.js';
@@ -106,6 +106,24 @@ describe('file SHA-256', () => {
     expect(() => sha256Later(missing)()).toThrow(/missing-ahead\.onnx: cannot read/);
     rmSync(small);
   });
+
+  it('files large in all are hashed one after the other on one thread, each digest the one sha256sum gives, in order', () => {
+    // two files of 40 MiB: each below the size hashed on a thread, together past it (a model's side files)
+    const files = [11, 12, 13].map((seed, i) => {
+      const f = join(dir, `side${seed}`);
+      writeFileSync(f, seeded(i === 2 ? 100 : 40 * 1024 * 1024, seed));
+      return f;
+    });
+    const want = files.map(sha256sum);
+    expect(sha256sLater(files)()).toEqual(want);
+    const small = sha256sLater(files.slice(2));
+    expect(small.ready()).toBe(true); // small: hashed here, when asked for
+    expect(small()).toEqual(want.slice(2));
+    const never = sha256sLater(files, 'this is not JavaScript (');
+    expect(never.ready()).toBe(false); // large in all: given to a thread (here, one that never starts)
+    expect(never()).toEqual(want); // after the start limit (5 s), worked out here
+    for (const f of files) rmSync(f);
+  }, 60_000);
 
   it('a missing file is a bad-input error naming it', () => {
     const f = join(dir, 'missing.onnx');

@@ -42,6 +42,8 @@ function runTile(run: RunFigures | undefined, at: string): string {
 
 const shaTile = (sha: string | undefined, at: string, title = 'SHA-256') =>
   (sha ? tile(title, `<code>${fig(at, sha, sha)}</code>`) : '');
+/** The side files' digest (the README says how it is made from each file's SHA-256). */
+const EXTERNAL_TITLE = 'SHA-256 of external data';
 
 /** Counts by status and, for kept ones, by reason. */
 function countsTile(entries: readonly Entry[]): string {
@@ -212,7 +214,7 @@ export function foldBody(r: FoldReport, pre = '', at = ''): string {
   const entries = r.normalizations as Entry[];
   const overview = [
     tile('model', `<code>${esc(r.model)}</code>${r.output ? `<br>written to <code>${esc(r.output)}</code>` : '<br>nothing written'}`),
-    shaTile(r.sha256, `${at}sha256`),
+    shaTile(r.sha256, `${at}sha256`), shaTile(r.externalSha256, `${at}externalSha256`, EXTERNAL_TITLE),
     tile('nodes', `${fig(`${at}nodesBefore`, r.nodesBefore, String(r.nodesBefore))} before, ${fig(`${at}nodesAfter`, r.nodesAfter, String(r.nodesAfter))} after`),
     tile('weight bytes', `${fig(`${at}bytesBefore`, r.bytesBefore, bytesText(r.bytesBefore))} before, ${fig(`${at}bytesAfter`, r.bytesAfter, bytesText(r.bytesAfter))} after`),
     countsTile(entries), checkTile(r.check, at), runTile(r.run, at),
@@ -229,6 +231,7 @@ export function auditBody(r: AuditReport, pre = '', at = ''): string {
   const entries = r.normalizations as Entry[];
   const overview = [
     tile('model', `<code>${esc(r.model)}</code>`), shaTile(r.sha256, `${at}sha256`),
+    shaTile(r.externalSha256, `${at}externalSha256`, EXTERNAL_TITLE),
     tile('foldable / kept', `${fig(`${at}foldable`, r.foldable, String(r.foldable))} foldable, ${fig(`${at}kept`, r.kept, String(r.kept))} kept`),
     countsTile(entries), tile('fail on', r.failOn ? `<code>--fail-on ${esc(r.failOn)}</code>: ${badge(r.failed ? 'failed' : 'passed')}` : 'not set'),
     runTile(r.run, at),
