@@ -46,6 +46,9 @@ function outputsFor(models: string[], out: string | undefined, outDir: string | 
   }
   if (outDir === undefined) throw new PleatError('usage', 'fold needs -o OUT (one model) or --out-dir DIR (any number of models)');
   const names = models.map((m) => basename(m));
+  // (the output is named after the model: a path with no file name in it names nothing to write)
+  const nameless = models.find((_, i) => names[i] === '');
+  if (nameless !== undefined) throw new PleatError('bad-input', `'${nameless}'${nameless === '' ? ' (an empty path)' : ''}: no model file named; give the model's path`);
   const twin = names.findIndex((n, i) => names.indexOf(n) !== i);
   if (twin >= 0) {
     throw new PleatError('usage', `${models[names.indexOf(names[twin]!)]} and ${models[twin]} are both named '${names[twin]}', so --out-dir would write them to one file; fold them separately`);

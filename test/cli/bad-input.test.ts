@@ -152,6 +152,11 @@ describe('output problems', () => {
     expect(readdirSync(join(dir, 'twin-out'))).toEqual([]);
   });
   it('an empty model path is named as such', () => expectOneLine(pleat(['audit', '']), /^pleat: '' \(an empty path\)/));
+  it('an empty model path is named as such with --out-dir too, before the folder is made', () => {
+    const out = join(dir, 'nameless-out');
+    expectOneLine(pleat(['fold', '', 'models/pump-vibration.onnx', '--out-dir', out]), /^pleat: '' \(an empty path\)/);
+    expect(existsSync(out)).toBe(false);
+  });
 });
 
 // statSync throws for a loop of symbolic links or a path through a file even when told a missing entry is fine:
