@@ -38,6 +38,11 @@ export interface SurveyReport {
   constantNodes: { count: number; bytes: number };
   /** Bytes the external tensors declare (their dims times element size). */
   externalBytes: number;
+  /**
+   * The side files the external tensors name: each distinct `location`, as written, sorted by its UTF-8 bytes (the
+   * order in which the provenance entry pleat.source.external.sha256 lists them); empty without external data.
+   */
+  sideFiles: string[];
   /** External tensors whose side file is missing or too short: empty when every byte is there. */
   missingData: MissingData[];
   normalizations: Array<{ op: string; count: number }>;
@@ -106,6 +111,15 @@ interface Tally {
   constCount: number;
   constBytes: number;
   external: number;
+  /** Each distinct external-data location met (a file without external data adds none). */
+  locations: Set<string>;
+}
+
+/** Count an external tensor's declared bytes and note its side file. */
+function tallyExternal(t: Tally, x: Tensor, bytes: number): void {
+  t.external += bytes;
+  const entries = externalStorage(x)?.entries;
+  if (entries) for (const [k, v] of entries) if (k === 'location') t.locations.add(v);
 }
 
 // One walk over every tensor (a graph of 10^5 nodes holds some 10^5 tensors: each pass over them shows). Each loop
@@ -120,7 +134,7 @@ function tallyInitializers(t: Tally, g: Graph, isInput: ((name: string) => boole
     t.initCount++;
     const bytes = declaredBytes(init);
     t.initBytes += bytes;
-    if (storageKind(init) === 'external') t.external += bytes;
+    if (storageKind(init) === 'external') tallyExternal(t, init, bytes);
     if (isInput !== undefined && isInput(init.name)) initialized.add(init.name);
   }
 }
@@ -145,9 +159,9 @@ function tallyNodes(t: Tally, g: Graph, subgraphs: Graph[]): void {
         if (!constant && !ext) continue;
         const bytes = declaredBytes(v.t);
         if (constant) t.constBytes += bytes;
-        if (ext) t.external += bytes;
+        if (ext) tallyExternal(t, v.t, bytes);
       } else if (v.type === 'TENSORS') {
-        for (const x of v.tensors) if (storageKind(x) === 'external') t.external += declaredBytes(x);
+        for (const x of v.tensors) if (storageKind(x) === 'external') tallyExternal(t, x, declaredBytes(x));
       } else if (v.type === 'GRAPH') {
         subgraphs.push(v.g);
       } else if (v.type === 'GRAPHS') {
@@ -160,6 +174,7 @@ function tallyNodes(t: Tally, g: Graph, subgraphs: Graph[]): void {
 export function surveyModel(model: Model, file: string | null = null, missingData: MissingData[] = []): SurveyReport {
   const t: Tally = {
     counts: new Map(), nodeCount: 0, subgraphCount: 0, initCount: 0, initBytes: 0, constCount: 0, constBytes: 0, external: 0,
+    locations: new Set(),
   };
   // graph inputs that an initializer gives a default: the initializers against a set of the inputs (older exports
   // list every weight as a graph input too, and a search per input grew with their product)
@@ -196,6 +211,7 @@ export function surveyModel(model: Model, file: string | null = null, missingDat
     initializers: { count: initCount, bytes: initBytes },
     constantNodes: { count: constCount, bytes: constBytes },
     externalBytes: external,
+    sideFiles: [...t.locations].sort((a, b) => Buffer.compare(Buffer.from(a, 'utf8'), Buffer.from(b, 'utf8'))),
     missingData,
     normalizations: opCounts.filter((c) => (NORMALIZATION_OPS as readonly string[]).includes(c.op)),
     evaluator: { runsAll: gaps.length === 0, cannotRun: gaps },

@@ -19,6 +19,7 @@ export function surveyText(r: SurveyReport): string {
   lines.push(`  ${pad('weights')}${r.initializers.count} initializers, ${bytesText(r.initializers.bytes)}` +
     (r.constantNodes.count ? `; ${r.constantNodes.count} Constant nodes, ${bytesText(r.constantNodes.bytes)}` : '') +
     `; external ${bytesText(r.externalBytes)}`);
+  if (r.sideFiles.length) lines.push(`  ${pad('side file')}${r.sideFiles.map((f) => `'${f}'`).join(', ')}`);
   if (r.missingData.length) {
     r.missingData.forEach((m, i) => lines.push(`  ${pad(i === 0 ? 'missing' : '')}${m.tensor}: ${m.problem}`));
   }

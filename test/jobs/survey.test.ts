@@ -43,12 +43,14 @@ describe('survey inputs', () => {
 describe('survey figures', () => {
   // Reference: a separate pass per figure over every tensor (eachTensor), as survey once counted them.
   it('counts tensors, constants and external bytes as separate passes would (seeded graphs with bodies)', () => {
+    // (two spellings of one file count twice; the fullwidth A sorts before the emoji in UTF-8, after it in UTF-16)
+    const LOCATIONS = ['w.bin', './w.bin', 'norm/p.bin', 'Z.bin', '\uff21.bin', '\u{1f600}.bin'];
     for (let seed = 1; seed <= 25; seed++) {
       const m = parseModel(randomCase(seed).bytes, '/x', `seed ${seed}`);
       // make some tensors external (left unloaded: their dims say their size), bodies and Constant nodes included
       const r = rng(seed);
       eachTensor(m.graph, (t) => {
-        if (r() < 0.3) t.storage = { kind: 'external', entries: [['location', 'w.bin']], bytes: new Uint8Array(0) };
+        if (r() < 0.3) t.storage = { kind: 'external', entries: [['location', LOCATIONS[Math.floor(r() * LOCATIONS.length)]!]], bytes: new Uint8Array(0) };
       });
       const size = (t: Tensor) => storageKind(t) === 'external' ? elementCount(t.dims) * bytesPerElement(t.dataType)! : tensorByteSize(t);
       let external = 0, inits = 0, initBytes = 0, consts = 0, constBytes = 0, nodes = 0;
@@ -64,6 +66,11 @@ describe('survey figures', () => {
       walk(m.graph);
       const report = surveyModel(m);
       expect(report.externalBytes, `seed ${seed}`).toBe(external);
+      // side files: each location once, in UTF-8 byte order (as the provenance digest lists them), worked out here
+      const named = new Set<string>();
+      eachTensor(m.graph, (t) => { if (t.storage.kind === 'external') named.add(t.storage.entries.find(([k]) => k === 'location')![1]); });
+      const utf8Order = [...named].sort((x, y) => Buffer.compare(Buffer.from(x), Buffer.from(y)));
+      expect(report.sideFiles, `seed ${seed}`).toEqual(utf8Order);
       expect(external).toBeGreaterThan(0);
       expect(report.initializers).toEqual({ count: inits, bytes: initBytes });
       expect(report.constantNodes).toEqual({ count: consts, bytes: constBytes });
