@@ -5,6 +5,7 @@ import { mkdirSync } from 'node:fs';
 import { join } from 'node:path';
 import { asGiven, BUNDLE_FILES, checkBundleFolder, planBundle, writeAll, type BundleFormat, type BundleResult } from '../ship/bundle.js';
 import { sideFilePaths } from '../onnx/external.js';
+import { readBackBundle } from '../ship/read-back.js';
 import { OutputSet } from './outputs.js';
 import { externalSha256Later, provenanceOf, setProvenance } from './provenance.js';
 import { sha256Later, type Later } from './sha256.js';
@@ -71,16 +72,20 @@ export function exportStaged(input: string, dir: string, format: BundleFormat = 
       setProvenance(model, provenanceOf(sha256(), opts.gate, opts, fold.check?.status ?? 'not-run', external?.()));
       const planned = planBundle(model, folder.full, format);
       // Every bundle file goes through one transaction: staged, then all renamed in (see outputs.ts).
+      const staged = new Map<string, string>();
       if (folder.exists) {
         const targets = planned.files.map(([name]) => tx.reserve(join(folder.full, name), '--bundle'));
-        planned.files.forEach(([, content], i) => tx.stage(targets[i]!, (tmp) => writeAll(tmp, content)));
+        planned.files.forEach(([name, content], i) => tx.stage(targets[i]!, (tmp) => { staged.set(name, tmp); writeAll(tmp, content); }));
       } else {
         tx.stageFolder(folder.full, (tmp) => {
           mkdirSync(tmp);
-          for (const [name, content] of planned.files) writeAll(join(tmp, name), content);
+          for (const [name, content] of planned.files) { staged.set(name, join(tmp, name)); writeAll(join(tmp, name), content); }
         });
       }
-      const report: ExportReport = { schemaVersion: SCHEMA_VERSION, command: 'export', model: input, fold, bundle: asGiven(planned.result, dir) };
+      // what ships is what was checked: the staged files, read back from disk, against the checked model (a
+      // mismatch throws BundleMismatch, an internal error: the catch below removes the staged files)
+      const readBack = readBackBundle(model, format, staged);
+      const report: ExportReport = { schemaVersion: SCHEMA_VERSION, command: 'export', model: input, fold, bundle: asGiven({ ...planned.result, readBack }, dir) };
       return { report, commit: () => { tx.commit(); return report; }, abort: () => tx.abort() };
     } catch (e) {
       for (const d of digests) d?.stop();

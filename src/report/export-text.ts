@@ -14,6 +14,10 @@ export function exportText(r: ExportReport, colour = false): string {
   else {
     lines.push(p.bold(`bundle ${b.format} -> ${b.dir}: ${plural(b.tensors, 'tensor')}, ${bytesText(b.bytes)}`));
     for (const f of b.files) lines.push(`  wrote ${f}`);
+    const rb = b.readBack;
+    lines.push(rb.status === 'passed'
+      ? `  read back: ${plural(rb.tensors, 'tensor')}, ${plural(rb.elements, 'element')} (${bytesText(rb.bytes)}) compared with the checked model bit for bit: all match`
+      : `  read back: ${p.warn('skipped')} (the bundle holds no tensor, so no weight was compared)`);
     for (const s of b.skipped) lines.push(`  ${p.warn('skipped')} ${s.name} (${s.reason}): ${s.note}`);
   }
   return foldText({ ...r.fold, output: b === null ? null : `bundle ${b.dir}` }, colour, false) + joinLines(lines, colour) + '\n' + CAUTION.join('\n') + '\n';

@@ -12,8 +12,9 @@ import { bfloatBitsToNumber, bytesPerElement, dataTypeName, halfBitsToNumber } f
 import { layoutSafetensors, safetensorsDtype } from './safetensors.js';
 import { cElementType, renderCSource } from './c-source.js';
 import type { BundleTensor } from './bundle-tensor.js';
+import { BundleMismatch, readBackBundle, type BundleReadBack } from './read-back.js';
 
-export type { BundleTensor };
+export type { BundleTensor, BundleReadBack };
 
 export type BundleFormat = 'safetensors' | 'c';
 export const BUNDLE_FORMATS: readonly BundleFormat[] = ['safetensors', 'c'];
@@ -37,7 +38,12 @@ export interface BundleResult {
   /** Bytes of tensor data in the bundle. */
   bytes: number;
   skipped: SkippedTensor[];
+  /** The staged files read back from disk and compared with the checked model before they were renamed in. */
+  readBack: BundleReadBack;
 }
+
+/** A bundle decided but not yet written (so not yet read back). */
+export type PlannedBundle = Omit<BundleResult, 'readBack'>;
 
 /** True when both bundle formats can hold the element type. */
 export function bundleSupports(code: DataTypeCode): boolean {
@@ -353,7 +359,7 @@ export function writeAll(path: string, content: Content): void {
  * name; then files already there are moved aside, the new ones renamed in, and the old ones removed. If a
  * rename fails, the old files are put back.
  */
-function writeFilesAtomically(dir: string, files: Array<[string, Content]>, source: string | undefined): string[] {
+function writeFilesAtomically(dir: string, files: Array<[string, Content]>, source: string | undefined, check: (staged: Map<string, string>) => void): string[] {
   const targets = files.map(([name]) => join(dir, name));
   for (const target of targets) {
     if (source && resolve(source) === target) throw new PleatError('bad-input', `${target}: refusing to overwrite the input model; choose another --bundle folder`);
@@ -374,6 +380,7 @@ function writeFilesAtomically(dir: string, files: Array<[string, Content]>, sour
       temps.push(tmp);
       writeAll(tmp, content);
     });
+    check(new Map(files.map(([name], i) => [name, temps[i]!])));
     targets.forEach((target, i) => {
       if (statSync(target, { throwIfNoEntry: false })) {
         const backup = join(dir, `.${files[i]![0]}.${tag}.old`);
@@ -387,7 +394,7 @@ function writeFilesAtomically(dir: string, files: Array<[string, Content]>, sour
     for (const t of placed) rmSync(t, { force: true });
     for (const [backup, target] of moved) { try { renameSync(backup, target); } catch { /* keep the backup file */ } }
     for (const tmp of temps) rmSync(tmp, { force: true });
-    if (e instanceof PleatError) throw e;
+    if (e instanceof PleatError || e instanceof BundleMismatch) throw e;
     throw new PleatError('bad-input', `${dir}: cannot write the bundle (${(e as Error).message.split('\n')[0]})`);
   }
   for (const [backup] of moved) rmSync(backup, { force: true });
@@ -455,18 +462,19 @@ export function exportBundle(model: Model, dir: string, format: BundleFormat): B
   const folder = checkBundleFolder(dir, format);
   const planned = planBundle(model, folder.full, format);
   if (!folder.exists) createBundleFolder(folder.full);
-  writeFilesAtomically(planned.result.dir, planned.files, model.sourcePath);
-  return asGiven(planned.result, dir);
+  let readBack: BundleReadBack | undefined;
+  writeFilesAtomically(planned.result.dir, planned.files, model.sourcePath, (staged) => { readBack = readBackBundle(model, format, staged); });
+  return asGiven({ ...planned.result, readBack: readBack! }, dir);
 }
 
 /** The result with the folder and files named as the caller gave the folder (reports print paths as given). */
-export function asGiven(result: BundleResult, dir: string): BundleResult {
+export function asGiven<R extends PlannedBundle>(result: R, dir: string): R {
   const under = (name: string) => (dir.endsWith('/') || dir.endsWith(sep) ? `${dir}${name}` : `${dir}/${name}`);
   return { ...result, dir, files: result.files.map((f) => under(basename(f))) };
 }
 
 /** Decide a bundle's files and their contents for the folder `full` (an absolute path); nothing is written. */
-export function planBundle(model: Model, full: string, format: BundleFormat): { files: Array<[string, Content]>; result: BundleResult } {
+export function planBundle(model: Model, full: string, format: BundleFormat): { files: Array<[string, Content]>; result: PlannedBundle } {
   checkBundleFormat(format);
   const collected = collectBundleTensors(model);
   const perTensor = new Map<string, { [k: string]: Json }>();

@@ -22,6 +22,9 @@ describe('pleat export', { timeout: 180_000 }, () => {
     expect(readdirSync(out).sort()).toEqual(['manifest.json', 'weights.safetensors']);
     expect(r.stdout).toMatch(/^fold .* -> bundle /);
     expect(r.stdout).toMatch(/bundle safetensors -> .*: \d+ tensors/);
+    const listed = Object.values(JSON.parse(readFileSync(join(out, 'manifest.json'), 'utf8')).tensors) as Array<{ count: number }>;
+    expect(r.stdout).toContain(`  read back: ${listed.length} tensors, ${listed.reduce((a, t) => a + t.count, 0)} elements (`);
+    expect(r.stdout).toMatch(/\) compared with the checked model bit for bit: all match\n/);
     expect(r.stdout).toMatch(/^Caution:/m);
   });
 
@@ -51,6 +54,7 @@ describe('pleat export', { timeout: 180_000 }, () => {
     const j = JSON.parse(r.stdout);
     expect(j.command).toBe('export');
     expect(j.bundle.format).toBe('c');
+    expect(j.bundle.readBack).toMatchObject({ status: 'passed', tensors: j.bundle.tensors, bytes: j.bundle.bytes });
     expect(readdirSync(out).sort()).toEqual(['manifest.json', 'weights.c', 'weights.h']);
     const validate = schemaValidator();
     expect(validate(j), JSON.stringify(validate.errors)).toBe(true);
@@ -77,5 +81,28 @@ describe('pleat export', { timeout: 180_000 }, () => {
     expect(existsSync(join(out, 'manifest.json'))).toBe(false);
     expect(r.stdout).toMatch(/nothing written/);
     expect(pleat(['export', model, '--bundle', out, '--bundle-format', 'zip']).code).toBe(2);
+  });
+
+  // PLEAT_TAMPER_BUNDLE (src/ship/read-back.ts) changes a staged file before it is read back, as a defect in a
+  // writer would: a bundle that is not the checked model's weights is an internal error, and nothing is written
+  it.each(['safetensors', 'c'] as const)('%s: a staged file that differs from the checked model exits 3, one line naming the tensor, and leaves nothing', (format) => {
+    const ref = join(dir, `tamper-ref-${format}`);
+    expect(pleat(['export', model, '--bundle', ref, '--bundle-format', format]).code).toBe(0);
+    const file = format === 'c' ? 'weights.c' : 'weights.safetensors';
+    const bytes = readFileSync(join(ref, file));
+    const at = format === 'c' ? bytes.indexOf('0x1.') + 4 : bytes.length - 2; // a fraction digit; the last tensor's last element
+    const out = join(dir, `tamper-${format}`);
+    const r = pleat(['export', model, '--bundle', out, '--bundle-format', format], { env: { PLEAT_TAMPER_BUNDLE: `${file}:${at}` } });
+    expect(r.code).toBe(3);
+    expect(r.stdout).toBe('');
+    expect(r.stderr.trim().split('\n')).toHaveLength(1);
+    expect(r.stderr).toMatch(new RegExp(`^pleat: internal error: bundle read back: tensor '[^']+' element \\d+ \\[[\\d, ]*\\] is \\S+ in ${file.replace('.', '\\.')} where the checked model has 0x[0-9a-f]+; nothing was written`));
+    expect(existsSync(out)).toBe(false);
+    expect(readdirSync(dir).filter((n) => n.startsWith('.pleat-'))).toEqual([]);
+    // into the existing bundle: left as it was
+    const again = pleat(['export', model, '--bundle', ref, '--bundle-format', format], { env: { PLEAT_TAMPER_BUNDLE: `${file}:${at}` } });
+    expect(again.code).toBe(3);
+    expect(readFileSync(join(ref, file)).equals(bytes)).toBe(true);
+    expect(readdirSync(ref).sort()).toEqual(format === 'c' ? ['manifest.json', 'weights.c', 'weights.h'] : ['manifest.json', 'weights.safetensors']);
   });
 });
