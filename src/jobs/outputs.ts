@@ -67,8 +67,9 @@ function alive(pid: number): boolean {
  * files are left alone, and so is every file no record names, whatever its name.
  *
  * A record is carried out only as pleat writes one: kept in the folder of its first file, listing that run's own
- * temporaries (same process), each beside the name it carries. A record copied elsewhere (a folder
- * copied whole) or put together by hand is dropped, not carried out. `inputOf` names the files the current run
+ * temporaries (same process), each beside the name it carries, and named in its run's intent record beside it (a
+ * file no intent record names is left alone, whatever it holds). A record in pleat's form copied elsewhere (a
+ * folder copied whole) is dropped, not carried out. `inputOf` names the files the current run
  * reads: a record that would replace one of them is refused, loudly, rather than swapping the input under the run.
  */
 export function recoverFolder(dir: string, inputOf: (path: string) => string | undefined = () => undefined): void {
@@ -81,6 +82,9 @@ export function recoverFolder(dir: string, inputOf: (path: string) => string | u
     // ours (this process's) or a live writer's, unless it is old enough that no writer can be behind it
     if (pid === process.pid && m[2]!.startsWith(PROCESS_TAG)) continue;
     if (alive(pid) && !staleRecord(join(dir, n))) continue; // (alive: any record of this process number)
+    // pleat names its commit record in its intent record before writing it: a file no record names is not
+    // pleat's, however it is named and whatever it holds (a user's `[]` under that name is theirs)
+    if (!readIntent(join(dir, n.replace(/\.commit$/, '.intent')))?.includes(n)) continue;
     const list = readCommitRecord(join(dir, n));
     if (!list) continue; // not in pleat's form: a user's file, or one cut short by a kill (its intent record names it)
     const ours = list.length > 0 && resolve(dirname(list[0]!.dest)) === resolve(dir) && list.every((f) => {

@@ -7,7 +7,7 @@ import { appendFileSync, existsSync, linkSync, lstatSync, mkdirSync, mkdtempSync
 import { OutputSet, recoverFolder } from '../../src/jobs/outputs.js';
 import { IntentLog } from '../../src/onnx/intent.js';
 import { tmpdir } from 'node:os';
-import { join } from 'node:path';
+import { basename, join } from 'node:path';
 import onnxProto from 'onnx-proto';
 import { GraphBuilder, modelBytes, tensor } from '../helpers/build.js';
 import { CLI, ROOT, pleat } from '../helpers/cli.js';
@@ -18,6 +18,12 @@ import { tensorToFloat64 } from '../../src/graph/tensor.js';
 import { checkerAvailable, onnxCheck } from '../helpers/checker.js';
 
 const tmp = () => mkdtempSync(join(tmpdir(), 'pleat-out-'));
+
+/** A commit record as a run leaves it: named in its run's intent record before it is written. */
+function plantRecord(record: string, entries: Array<{ tmp: string; dest: string }>): void {
+  new IntentLog(basename(record).replace(/\.commit$/, '')).note(record);
+  writeFileSync(record, JSON.stringify(entries));
+}
 
 interface Ext { name: string; location: string; offset: number; values: number[] }
 
@@ -298,7 +304,7 @@ describe('one output transaction (issue 11 item 4)', () => {
       return { tmp, dest: join(folder, name) };
     };
     const entries = [plant(join(dir, 'models'), 'm.onnx', 'not a model'), plant(join(dir, 'elsewhere'), 'keep.txt', 'replaced')];
-    writeFileSync(join(dir, 'out', `.pleat-${dead}-zz.commit`), JSON.stringify(entries));
+    plantRecord(join(dir, 'out', `.pleat-${dead}-zz.commit`), entries);
     const before = readFileSync(input);
     const r = pleat(['fold', input, '-o', join(dir, 'out', 'x.onnx'), '--quiet']);
     expect(r.code, r.stderr).toBe(0);
@@ -314,7 +320,7 @@ describe('one output transaction (issue 11 item 4)', () => {
     writeFileSync(input, readFileSync('models/pump-vibration.onnx'));
     const tmpFile = join(dir, `.pleat-${dead}-yy0-m.onnx.tmp`);
     writeFileSync(tmpFile, readFileSync('models/tray-edge.onnx'));
-    writeFileSync(join(dir, `.pleat-${dead}-yy.commit`), JSON.stringify([{ tmp: tmpFile, dest: input }]));
+    plantRecord(join(dir, `.pleat-${dead}-yy.commit`), [{ tmp: tmpFile, dest: input }]);
     const before = readFileSync(input);
     const r = pleat(['fold', input, '-o', join(dir, 'x.onnx'), '--quiet']);
     expect(r.code).toBe(2);
@@ -335,7 +341,7 @@ describe('one output transaction (issue 11 item 4)', () => {
     const recTmp = join(dir, `.pleat-${pid}-0ld0ne0-r.json.tmp`);
     writeFileSync(recTmp, '{"finished": true}');
     const record = join(dir, `.pleat-${pid}-0ld0ne.commit`);
-    writeFileSync(record, JSON.stringify([{ tmp: recTmp, dest: join(dir, 'r.json') }]));
+    plantRecord(record, [{ tmp: recTmp, dest: join(dir, 'r.json') }]);
     const fresh = join(dir, `.pleat-1-fresh0.commit`); // process 1 is alive: a fresh record of it is left alone
     const freshTmp = join(dir, '.pleat-1-fresh00-f.json.tmp');
     writeFileSync(freshTmp, '{}');
@@ -358,7 +364,7 @@ describe('one output transaction (issue 11 item 4)', () => {
     const tmpFile = join(dir, `.pleat-${dead + 1}-abc0-r.json.tmp`);
     writeFileSync(tmpFile, '{"planted": true}');
     writeFileSync(join(dir, 'r.json'), '{"mine": true}');
-    writeFileSync(join(dir, `.pleat-${dead}-abc.commit`), JSON.stringify([{ tmp: tmpFile, dest: join(dir, 'r.json') }]));
+    plantRecord(join(dir, `.pleat-${dead}-abc.commit`), [{ tmp: tmpFile, dest: join(dir, 'r.json') }]);
     const r = pleat(['fold', 'models/tray-edge.onnx', '-o', join(dir, 'c.onnx'), '--quiet']);
     expect(r.code, r.stderr).toBe(0);
     expect(readFileSync(join(dir, 'r.json'), 'utf8')).toBe('{"mine": true}');
@@ -377,6 +383,9 @@ describe('only what pleat provably made is cleared', () => {
     ['.pleat-1-a-notes.tmp', 'copied from another machine'],
     [`.pleat-${dead}-b.commit`, 'not a record: my own file'],
     [`.pleat-${dead}-c.intent`, 'not a record either'],
+    // JSON in a record's form, but named in no intent record: a user's file all the same
+    [`.pleat-${dead}-g.commit`, '[]'],
+    [`.pleat-${dead}-h.commit`, JSON.stringify([{ tmp: `.pleat-${dead}-h0-x.tmp`, dest: 'x' }])],
   ];
   const plantLookAlikes = (dir: string) => {
     for (const [n, body] of lookAlikes) writeFileSync(join(dir, n), body);
