@@ -8,8 +8,8 @@
 import { appendFileSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { basename, dirname, join } from 'node:path';
 
-/** A pleat temporary: `.pleat-<pid>-<token>-<name>.tmp`. */
-export const TEMP_NAME = /^\.pleat-(\d+)-([0-9a-z]+)-.+\.tmp$/;
+/** A pleat temporary: `.pleat-<pid>-<token>-<name>.tmp` (the name may hold a line end: `s`). */
+export const TEMP_NAME = /^\.pleat-(\d+)-([0-9a-z]+)-.+\.tmp$/s;
 /** A commit record: `.pleat-<pid>-<token>.commit` (see src/jobs/outputs.ts). */
 export const COMMIT_NAME = /^\.pleat-(\d+)-([0-9a-z]+)\.commit$/;
 /** An intent record: `.pleat-<pid>-<token>.intent`. */

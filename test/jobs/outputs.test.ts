@@ -423,6 +423,18 @@ describe('only what pleat provably made is cleared', () => {
     expect(readdirSync(dir).filter((n) => !lookAlikes.some(([l]) => l === n)).sort()).toEqual([`.pleat-${dead}-d-photos.tmp`, 'p.onnx']);
   });
 
+  it("a killed run's temporaries whose names hold a line end or a quote are removed by the next run", () => {
+    const dir = tmp();
+    const killed = spawnSync(process.execPath, [CLI, 'fold', 'models/tray-edge.onnx', '-o', join(dir, 'a\nb.onnx'), '--report', join(dir, 'r"q\n.json'), '--quiet'], {
+      cwd: ROOT, encoding: 'utf8', env: { ...process.env, NO_COLOR: '1', CI: 'true', PLEAT_KILL_AT: 'staged' },
+    });
+    expect(killed.signal, killed.stderr).toBe('SIGKILL');
+    expect(readdirSync(dir).filter((n) => n.endsWith('.tmp')).length).toBe(2);
+    const r = pleat(['fold', 'models/pump-vibration.onnx', '-o', join(dir, 'p.onnx'), '--quiet']);
+    expect(r.code, r.stderr).toBe(0);
+    expect(readdirSync(dir)).toEqual(['p.onnx']);
+  });
+
   it("a batch killed before its commit leaves its workers' temporaries, which the next run removes", () => {
     const dir = tmp();
     const out = join(dir, 'out');
