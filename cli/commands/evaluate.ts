@@ -3,6 +3,7 @@ import { sep } from 'node:path';
 import { SCHEMA_VERSION } from '../../src/jobs/types.js';
 import { filesRead, loadConfig, runSettings } from '../config.js';
 import { out } from '../errors.js';
+import { signalsFirst } from '../cancel.js';
 import { configFlags, EPILOGUE, inputFlags, threadsFlag } from '../flags.js';
 import { CHOICE_OPTIONS } from '../../src/verify/option-values.js';
 
@@ -23,12 +24,14 @@ export async function handler(argv: Flags): Promise<void> {
   const run = runSettings(config, argv);
   const threads = threadsFlag(argv.threads);
   // loaded here, not at start-up (see compare.ts)
-  const { evaluate, saveOutputs, setThreads } = await import('../../src/index.js');
+  const { evaluate, saveOutputsStaged, setThreads } = await import('../../src/index.js');
   const { dataTypeName } = await import('../../src/graph/tensor.js');
   if (threads !== undefined) setThreads(threads);
   const { toJsonText } = await import('../../src/report/json.js');
   const r = evaluate(argv.model, { inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, precision: argv.precision, maxProbeMemory: run.maxProbeMemory });
-  const saved = saveOutputs(argv.save, r.outputs, { reads: filesRead(path, run.inputs) });
+  const staged = saveOutputsStaged(argv.save, r.outputs, { reads: filesRead(path, run.inputs) });
+  await signalsFirst(); // a TERM or Ctrl-C during the work ends the run here: nothing renamed in
+  const saved = staged.commit();
   const outputs = saved.files.map((f) => ({ ...f, dtype: dataTypeName(r.outputs.get(f.name)!.type), dims: [...r.outputs.get(f.name)!.dims] }));
   if (argv.json) {
     await out(toJsonText({ schemaVersion: SCHEMA_VERSION, command: 'evaluate', model: argv.model, precision: r.precision, seed: r.seed, inputs: r.inputSummary, dir: argv.save, outputs }));

@@ -1,6 +1,4 @@
 // `evaluate`: run one model on given or seeded inputs, and save its outputs as .npy files with an index.
-import { mkdirSync, renameSync, rmSync, writeFileSync } from 'node:fs';
-import { join } from 'node:path';
 import type { Model } from '../graph/ir.js';
 import type { Precision, Value } from '../eval/value.js';
 import { runModel } from '../eval/run.js';
@@ -11,7 +9,6 @@ import { isFloatType } from '../graph/tensor.js';
 import { DataType } from '../graph/ir.js';
 import { npyBytes } from './npy.js';
 import { EXACT_INTEGER_LIMIT, wideOutputValue } from './wide-integers.js';
-import { entryAt, sameFile, specialKind } from '../onnx/paths.js';
 import { asMap, checkDimFlags, makeProbe, resolveInputs, summarizeInputs, type InputOptions, type InputSummary } from './inputs.js';
 
 export interface EvaluateOptions extends InputOptions {
@@ -83,54 +80,20 @@ export interface SavedOutputs {
   files: Array<{ name: string; file: string }>;
 }
 
-/** Write bytes to a temporary name in the same folder, then rename over the destination. */
-function tempPath(dest: string): string {
-  return `${dest}.tmp-${process.pid}`;
-}
-
 /**
- * Write DIR/<safe name>.npy for each output and DIR/outputs.json mapping output name -> file. Every file is
- * written to a temporary name first and renamed into place only after all of them were written, the index last,
- * so a failure leaves no partial file behind.
+ * What saving OUTPUTS writes, decided before anything is written: DIR/<safe name>.npy for each output and
+ * outputs.json mapping output name -> file, the index last (src/jobs/save-outputs.ts writes them through the
+ * output transaction).
  */
-export function saveOutputs(dir: string, outputs: ReadonlyMap<string, Value>, opts: SaveOptions = {}): SavedOutputs {
+export function outputFiles(outputs: ReadonlyMap<string, Value>, opts: SaveOptions = {}): { files: SavedOutputs['files']; contents: Array<[string, Uint8Array | string]> } {
   const names = [...outputs.keys()];
   const files = safeFileNames(names);
-  try {
-    mkdirSync(dir, { recursive: true });
-  } catch (e) {
-    throw new PleatError('bad-input', `${dir}: cannot create the output folder (${(e as NodeJS.ErrnoException).code ?? String(e)})`);
-  }
-  // each file is written whole at a temporary name and renamed into place: over a FIFO or a device, that would
-  // replace the pipe or device itself with a plain file
-  for (const f of [...files, 'outputs.json']) {
-    const dest = join(dir, f);
-    const special = specialKind(entryAt(dest, dest));
-    if (special) throw new PleatError('bad-input', `${dest}: is ${special}, not a file; saving the outputs into place would replace it`);
-    const read = opts.reads?.find(([p]) => sameFile(dest, p));
-    if (read) throw new PleatError('bad-input', `${dest}: refusing to overwrite the ${read[1]} ${read[0]}; choose another --save folder`);
-  }
   const index: Record<string, string> = {};
   names.forEach((n, i) => { index[n] = files[i]!; });
-  const pending: Array<[string, string]> = [];
-  try {
-    names.forEach((name, i) => {
-      const v = outputs.get(name)!;
-      const out = opts.float64 && isFloatType(v.type) ? { ...v, type: DataType.DOUBLE } : v;
-      const dest = join(dir, files[i]!);
-      const tmp = tempPath(dest);
-      pending.push([tmp, dest]);
-      writeFileSync(tmp, npyBytes(out));
-    });
-    const dest = join(dir, 'outputs.json');
-    const tmp = tempPath(dest);
-    pending.push([tmp, dest]);
-    writeFileSync(tmp, JSON.stringify(index, null, 2) + '\n');
-  } catch (e) {
-    for (const [tmp] of pending) rmSync(tmp, { force: true });
-    if (e instanceof PleatError) throw e;
-    throw new PleatError('bad-input', `${dir}: cannot write outputs (${(e as NodeJS.ErrnoException).code ?? String(e)})`);
-  }
-  for (const [tmp, dest] of pending) renameSync(tmp, dest);
-  return { dir, files: names.map((name, i) => ({ name, file: files[i]! })) };
+  const contents: Array<[string, Uint8Array | string]> = names.map((name, i) => {
+    const v = outputs.get(name)!;
+    return [files[i]!, npyBytes(opts.float64 && isFloatType(v.type) ? { ...v, type: DataType.DOUBLE } : v)];
+  });
+  contents.push(['outputs.json', JSON.stringify(index, null, 2) + '\n']);
+  return { files: names.map((name, i) => ({ name, file: files[i]! })), contents };
 }

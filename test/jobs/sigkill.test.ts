@@ -173,6 +173,30 @@ describe('a TERM or Ctrl-C during the work', () => {
     expect(readdirSync(dir).sort()).toEqual(['bundle', 'new']);
   });
 
+  // evaluate --save wrote its files and exited 0: the signal waited until after the renames, and its temporaries
+  // were named in no intent record, so a killed run left them for good
+  it('evaluate --save: TERM leaves the old outputs as they were, Ctrl-C makes no folder; a killed run leaves nothing for long', () => {
+    const dir = mkdtempSync(join(tmpdir(), 'pleat-term-'));
+    const saved = join(dir, 'saved');
+    expect(pleat(['evaluate', MODEL, '--save', saved, '--seed', '1']).code).toBe(0);
+    const names = readdirSync(saved).sort();
+    const before = names.map((f) => readFileSync(join(saved, f)));
+    const term = run(['evaluate', MODEL, '--save', saved, '--seed', '2', '--json'], { PLEAT_SIGNAL_BEFORE_COMMIT: '1' });
+    expect(term.status, term.stderr).toBe(143);
+    expect(term.stdout).toBe('');
+    expect(readdirSync(saved).sort()).toEqual(names);
+    expect(names.map((f) => readFileSync(join(saved, f)))).toEqual(before);
+
+    const int = run(['evaluate', MODEL, '--save', join(dir, 'new')], { PLEAT_SIGNAL_BEFORE_COMMIT: 'SIGINT' });
+    expect(int.status, int.stderr).toBe(130);
+    expect(readdirSync(dir)).toEqual(['saved']);
+
+    killedAt('staged', ['evaluate', MODEL, '--save', saved, '--seed', '3']);
+    expect(pleat(['evaluate', MODEL, '--save', saved, '--seed', '4']).code).toBe(0);
+    expect(readdirSync(saved).sort()).toEqual(names);
+    expect(readdirSync(dir)).toEqual(['saved']);
+  });
+
   // a batch's workers had their files staged when the signal came: the process exited 143 and left them there
   it('batch: TERM while a worker holds its staged files exits 143, reports nothing, renames nothing in, leaves nothing', () => {
     const dir = mkdtempSync(join(tmpdir(), 'pleat-term-'));

@@ -1,0 +1,70 @@
+// Saving a run's outputs (evaluate --save): DIR/<safe name>.npy for each output and DIR/outputs.json, written
+// through the output transaction (outputs.ts), so they are renamed in together or not at all, and a killed run's
+// temporaries are named in intent records for the next run to clear. A folder not there yet is staged whole at a
+// temporary name beside it, so a run that does not commit leaves no folder either (its missing parents are made).
+import { mkdirSync, statSync, writeFileSync } from 'node:fs';
+import { dirname, join, resolve } from 'node:path';
+import { PleatError } from '../errors.js';
+import type { Value } from '../eval/value.js';
+import { outputFiles, type SavedOutputs, type SaveOptions } from '../verify/evaluate.js';
+import { OutputSet } from './outputs.js';
+
+export type { SavedOutputs, SaveOptions };
+
+/** Outputs staged, not yet renamed in: the caller commits (the CLI lets a TERM or Ctrl-C end the run first). */
+export interface StagedOutputs {
+  saved: SavedOutputs;
+  commit(): SavedOutputs;
+  abort(): void;
+}
+
+const cannotCreate = (dir: string, code: string | undefined) =>
+  new PleatError('bad-input', `${dir}: cannot create the output folder (${code ?? 'unknown error'})`);
+
+/** Stage OUTPUTS for DIR without renaming anything in. */
+export function saveOutputsStaged(dir: string, outputs: ReadonlyMap<string, Value>, opts: SaveOptions = {}): StagedOutputs {
+  const { files, contents } = outputFiles(outputs, opts);
+  const full = resolve(dir);
+  let exists: boolean;
+  try {
+    const st = statSync(full, { throwIfNoEntry: false });
+    if (st && !st.isDirectory()) throw cannotCreate(dir, 'EEXIST');
+    exists = st !== undefined;
+  } catch (e) {
+    if (e instanceof PleatError) throw e;
+    throw cannotCreate(dir, (e as NodeJS.ErrnoException).code);
+  }
+  if (!exists) {
+    try { mkdirSync(dirname(full), { recursive: true }); } catch (e) { throw cannotCreate(dir, (e as NodeJS.ErrnoException).code); }
+  }
+  const tx = new OutputSet();
+  try {
+    for (const [p, what] of opts.reads ?? []) tx.protect(p, what);
+    if (exists) {
+      const targets = contents.map(([name]) => tx.reserve(join(full, name), '--save'));
+      contents.forEach(([, body], i) => tx.stage(targets[i]!, body));
+    } else {
+      tx.reserveFolder(full, '--save');
+      tx.stageFolder(full, (tmp) => {
+        mkdirSync(tmp);
+        for (const [name, body] of contents) writeFileSync(join(tmp, name), body);
+      });
+    }
+  } catch (e) {
+    tx.abort();
+    throw e;
+  }
+  const saved = { dir, files };
+  return { saved, commit: () => { tx.commit(); return saved; }, abort: () => tx.abort() };
+}
+
+/** Write OUTPUTS into DIR: every file renamed in together, or none (see saveOutputsStaged). */
+export function saveOutputs(dir: string, outputs: ReadonlyMap<string, Value>, opts: SaveOptions = {}): SavedOutputs {
+  const staged = saveOutputsStaged(dir, outputs, opts);
+  try {
+    return staged.commit();
+  } catch (e) {
+    staged.abort();
+    throw e;
+  }
+}
