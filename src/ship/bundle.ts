@@ -188,7 +188,7 @@ function num32(v: number): Json {
   if (!Number.isFinite(v)) return String(v);
   for (let p = 1; p <= 9; p++) {
     const d = Number(v.toPrecision(p));
-    if (Math.fround(d) === v) return d;
+    if (Object.is(Math.fround(d), v)) return d; // (Object.is: -0 keeps its sign)
   }
   return v;
 }
@@ -253,11 +253,14 @@ function valueJson(v: ValueInfo, withDefault: Set<string>): Json {
   return out;
 }
 
+/** A plain JSON value; -0 as -0.0, which JSON readers take for negative zero (JSON.stringify writes 0). */
+const plainJson = (v: Json): string => (Object.is(v, -0) ? '-0.0' : JSON.stringify(v));
+
 /** JSON with sorted object keys, two-space indentation, and short arrays of plain values on one line. */
 export function stableJson(v: Json, indent = ''): string {
   if (Array.isArray(v)) {
     if (v.length === 0) return '[]';
-    if (v.every((x) => x === null || typeof x !== 'object')) return `[${v.map((x) => JSON.stringify(x)).join(', ')}]`;
+    if (v.every((x) => x === null || typeof x !== 'object')) return `[${v.map(plainJson).join(', ')}]`;
     const next = indent + '  ';
     return `[\n${v.map((x) => next + stableJson(x, next)).join(',\n')}\n${indent}]`;
   }
@@ -267,7 +270,7 @@ export function stableJson(v: Json, indent = ''): string {
     const next = indent + '  ';
     return `{\n${keys.map((k) => `${next}${JSON.stringify(k)}: ${stableJson(v[k]!, next)}`).join(',\n')}\n${indent}}`;
   }
-  return JSON.stringify(v);
+  return plainJson(v);
 }
 
 /**

@@ -5,7 +5,7 @@
 // defect in serialization (byte order, float16 bits, a literal, a tensor dropped, renamed or listed twice, offsets
 // pointing at the wrong bytes) is an internal error (exit 3) instead of a bundle shipped with exit 0.
 import { closeSync, fstatSync, openSync, readSync, writeSync } from 'node:fs';
-import { DataType, elementCount, type Graph, type Model, type Node, type Tensor } from '../graph/ir.js';
+import { DataType, elementCount, type Attribute, type Graph, type Model, type Node, type Tensor } from '../graph/ir.js';
 import { dataTypeName } from '../graph/tensor.js';
 import { ensureLoaded } from '../onnx/sparse-read.js';
 
@@ -62,7 +62,7 @@ interface Constants {
   /** Main-graph initializers and Constant `value` tensors, by name. */
   tensors: Map<string, Tensor>;
   /** Constant nodes of the main graph whose value is another attribute (value_float, ...), by output name. */
-  inline: Map<string, { index: number; attribute: string }>;
+  inline: Map<string, { index: number; attribute: Attribute }>;
   /** "name\0reason" for every constant a bundle leaves out, counted (subgraph bodies can reuse names). */
   skipped: Map<string, number>;
 }
@@ -97,7 +97,7 @@ function constantsOf(model: Model): Constants {
       const value = n.attributes.find((a) => a.name === 'value');
       if (value?.value.type === 'TENSOR') main(value.value.t, name);
       else if (n.attributes.some((a) => a.name === 'sparse_value')) count(out.skipped, `${name}\0sparse-value`);
-      else if (n.attributes[0]) out.inline.set(name, { index, attribute: n.attributes[0].name });
+      else if (n.attributes[0]) out.inline.set(name, { index, attribute: n.attributes[0] });
     }
     for (const b of bodies(n)) subgraphConstants(b, out.skipped);
   });
@@ -254,11 +254,45 @@ function checkManifest(model: Model, manifest: Record<string, unknown>, format: 
   const layers = Array.isArray(manifest.layers) ? manifest.layers as Array<Record<string, unknown>> : [];
   for (const [name, { index, attribute }] of c.inline) {
     const attrs = layers[index]?.attributes as Record<string, unknown> | undefined;
-    if (layers[index]?.index !== index || !attrs || !Object.hasOwn(attrs, attribute)) {
-      fail(`Constant '${name}' (its ${attribute}) is neither a bundle tensor, nor skipped, nor carried by its layer in manifest.json`);
+    if (layers[index]?.index !== index || !attrs || !Object.hasOwn(attrs, attribute.name)) {
+      fail(`Constant '${name}' (its ${attribute.name}) is neither a bundle tensor, nor skipped, nor carried by its layer in manifest.json`);
     }
+    const differ = inlineDiffers(attribute, attrs![attribute.name]);
+    if (differ) fail(`Constant '${name}': its ${attribute.name} ${differ}`);
   }
   return out.sort((a, b) => (a.name < b.name ? -1 : a.name > b.name ? 1 : 0));
+}
+
+/**
+ * How a Constant's plain attribute in manifest.json differs from the checked model's, or undefined when it holds
+ * the same value: floats are float32 (ONNX attributes), so a JSON number stands for the float32 it rounds to,
+ * bit for bit (-0 included); a non-finite one is the string "NaN", "Infinity" or "-Infinity" (no NaN payload, as
+ * JSON has none); integers as numbers, strings as their UTF-8 text.
+ */
+function inlineDiffers(a: Attribute, got: unknown): string | undefined {
+  const float = (want: number, g: unknown): boolean => {
+    if (typeof g === 'string') return Number.isNaN(want) ? g === 'NaN' : g === String(want) && !Number.isFinite(want);
+    return typeof g === 'number' && Object.is(Math.fround(g), Math.fround(want));
+  };
+  const text = (want: Uint8Array, g: unknown) => g === new TextDecoder().decode(want);
+  const list = <T>(want: readonly T[], same: (w: T, g: unknown) => boolean) => (Array.isArray(got) && got.length === want.length
+    ? want.findIndex((w, i) => !same(w, got[i]))
+    : -2);
+  const shown = (x: number) => (Object.is(x, -0) ? '-0' : String(x));
+  const v = a.value;
+  let at: number;
+  switch (v.type) {
+    case 'FLOAT': return float(v.f, got) ? undefined : `is ${JSON.stringify(got)} where the checked model has ${shown(Math.fround(v.f))}`;
+    case 'INT': return got === v.i ? undefined : `is ${JSON.stringify(got)} where the checked model has ${v.i}`;
+    case 'STRING': return text(v.s, got) ? undefined : `is ${JSON.stringify(got)}, not the checked model's`;
+    case 'FLOATS': at = list(v.floats, float); break;
+    case 'INTS': at = list(v.ints, (w, g) => g === w); break;
+    case 'STRINGS': at = list(v.strings, text); break;
+    default: return undefined; // (no value a Constant carries as a weight)
+  }
+  if (at === -1) return undefined;
+  if (at === -2) return `is ${JSON.stringify(got)}, not a list of the checked model's ${(v.type === 'FLOATS' ? v.floats : v.type === 'INTS' ? v.ints : v.strings).length} values`;
+  return `element ${at} is ${JSON.stringify((got as unknown[])[at])} where the checked model has ${v.type === 'FLOATS' ? shown(Math.fround(v.floats[at]!)) : v.type === 'INTS' ? v.ints[at] : 'another string'}`;
 }
 
 // ---- comparing elements -----------------------------------------------------------------------------

@@ -14,7 +14,7 @@ import { exportFile } from '../../src/jobs/export.js';
 import { exportBundle } from '../../src/ship/bundle.js';
 import { BundleMismatch, duplicateKey, readBackBundle } from '../../src/ship/read-back.js';
 import { readModelFile } from '../../src/onnx/read.js';
-import { GraphBuilder, modelBytes, rng, T } from '../helpers/build.js';
+import { f, fs, GraphBuilder, modelBytes, rng, T } from '../helpers/build.js';
 import { bundleFixture } from './bundle-fixture.js';
 
 const MODEL = resolve(import.meta.dirname, '..', '..', 'models', 'pump-vibration.onnx');
@@ -224,6 +224,54 @@ describe('bundle read back: defects a writer could make', { timeout: 120_000 }, 
     expect(mismatch(c(gone)).message).toContain(`weights.c defines ${sym}_x, which manifest.json does not list`);
     const shorter = edit('c-short', 'weights.h', (s) => s.replace(`${sym}[4];`, `${sym}[3];`));
     expect(mismatch(c(shorter)).message).toContain(`weights.h declares float ${sym}[3]`);
+  });
+});
+
+// A Constant whose value is a plain attribute (value_floats, value_ints, ...) is carried by its layer's attributes
+// in manifest.json; the read back only checked that the attribute was there, so a wrong value shipped with exit 0,
+// and the manifest wrote a -0 among such floats as 0.
+describe('bundle read back: Constants carried by their layer in manifest.json', { timeout: 120_000 }, () => {
+  const g = new GraphBuilder();
+  g.input('x', [4]).output('y', [4]);
+  g.node('Constant', [], { value_floats: fs([1.5, -0, 1e-45, 3.4028234663852886e38]) }, { name: 'cf', outputs: ['cf'] });
+  g.node('Constant', [], { value_ints: [7, -4, 0, 9] }, { name: 'ci', outputs: ['ci'] });
+  g.node('Constant', [], { value_float: f(-0) }, { name: 'c1', outputs: ['c1'] });
+  g.node('Mul', ['x', 'cf'], {}, { outputs: ['m'] });
+  g.node('Cast', ['ci'], { to: T.FLOAT }, { outputs: ['cc'] });
+  g.node('Add', ['m', 'cc'], {}, { outputs: ['a'] });
+  g.node('Add', ['a', 'c1'], {}, { outputs: ['y'] });
+  const src = join(work, 'inline-constants.onnx');
+  writeFileSync(src, modelBytes(g));
+  const model = readModelFile(src);
+
+  it('a clean export of either format reads back, -0 kept as -0.0 in manifest.json', () => {
+    for (const format of ['safetensors', 'c'] as const) {
+      const dir = join(work, `inline-${format}`);
+      exportBundle(model, dir, format);
+      const text = readFileSync(join(dir, 'manifest.json'), 'utf8');
+      expect(text).toContain('"value_floats": [1.5, -0.0, 1e-45, 3.4028235e+38]');
+      expect(text).toContain('"value_float": -0.0');
+      expect(Object.is(JSON.parse(text).layers[2].attributes.value_float, -0)).toBe(true);
+      expect(readBackBundle(model, format, pathsIn(dir, format)).status).toBe('skipped'); // (no bundle tensor)
+    }
+  });
+
+  it('a changed value in a layer is found, naming the Constant and the element', () => {
+    const dir = join(work, 'inline-safetensors');
+    const text = readFileSync(join(dir, 'manifest.json'), 'utf8');
+    const cases: Array<[string, string, string]> = [
+      ['[1.5, -0.0, 1e-45', '[1.25, -0.0, 1e-45', "Constant 'cf': its value_floats element 0 is 1.25 where the checked model has 1.5"],
+      ['[1.5, -0.0, 1e-45', '[1.5, 0.0, 1e-45', "Constant 'cf': its value_floats element 1 is 0 where the checked model has -0"],
+      ['1e-45, 3.4028235e+38]', '1e-45]', "Constant 'cf': its value_floats is [1.5,0,1e-45], not a list of the checked model's 4 values"],
+      ['[7, -4, 0, 9]', '[7, -4, 0, 8]', "Constant 'ci': its value_ints element 3 is 8 where the checked model has 9"],
+      ['"value_float": -0.0', '"value_float": 0', "Constant 'c1': its value_float is 0 where the checked model has -0"],
+    ];
+    for (const [from, to, said] of cases) {
+      expect(text).toContain(from);
+      writeFileSync(join(dir, 'manifest.json'), text.replace(from, to));
+      expect(mismatch(() => readBackBundle(model, 'safetensors', pathsIn(dir, 'safetensors'))).message).toContain(said);
+    }
+    writeFileSync(join(dir, 'manifest.json'), text);
   });
 });
 
