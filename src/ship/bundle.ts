@@ -297,7 +297,8 @@ function manifest(model: Model, format: BundleFormat, files: string[], c: Collec
   const g = model.graph;
   const inBundle = new Set(c.tensors.map((t) => t.name));
   const initNames = new Set(g.initializers.map((t) => t.name));
-  const tensors: { [k: string]: Json } = {};
+  // (no prototype: a tensor or attribute named __proto__ is a key like any other, not the object's prototype)
+  const tensors: { [k: string]: Json } = Object.create(null);
   const graphInputs = new Set(g.inputs.map((v) => v.name));
   for (const t of c.tensors) {
     const entry: { [k: string]: Json } = { dtype: dataTypeName(t.dataType), shape: t.dims, count: t.count, bytes: t.bytes.byteLength, ...perTensor.get(t.name) };
@@ -310,7 +311,7 @@ function manifest(model: Model, format: BundleFormat, files: string[], c: Collec
     const reads: string[] = [];
     for (const name of n.inputs) if (name && inBundle.has(name) && !reads.includes(name)) reads.push(name);
     if (constant !== undefined) reads.push(constant);
-    const attributes: { [k: string]: Json } = {};
+    const attributes: { [k: string]: Json } = Object.create(null);
     for (const a of n.attributes) attributes[a.name] = attributeJson(a, a.name === 'value' ? constant : undefined);
     const layer: { [k: string]: Json } = {
       index: i, name: n.name, op: n.opType, attributes, inputs: [...n.inputs], outputs: [...n.outputs], tensors: reads,
