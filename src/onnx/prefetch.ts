@@ -4,7 +4,7 @@
 // only when the file it opened is the one read here, unchanged (same device, inode, size and times); otherwise,
 // and for every error, the read proper runs as before and reports what it finds.
 import { constants } from 'node:fs';
-import { open } from 'node:fs/promises';
+import { open, stat } from 'node:fs/promises';
 import type { Stats } from 'node:fs';
 import { resolve } from 'node:path';
 
@@ -27,7 +27,11 @@ export function prefetchFile(path: string, maxBytes: number): void {
 }
 
 async function readWhole(path: string, maxBytes: number): Promise<Prefetched | undefined> {
-  // O_NONBLOCK: a FIFO at the path is not waited on (the read proper refuses it)
+  // only a regular file is opened: opening a FIFO lets a writer waiting in open() through, and closing it then
+  // drops what that writer wrote (the read proper refuses a FIFO without opening it)
+  const first = await stat(path);
+  if (!first.isFile() || first.size === 0 || first.size > maxBytes) return undefined;
+  // O_NONBLOCK: a FIFO put at the path since is not waited on
   const fh = await open(path, constants.O_RDONLY | constants.O_NONBLOCK);
   try {
     const st = await fh.stat();

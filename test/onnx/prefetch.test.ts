@@ -1,7 +1,7 @@
 // Reading a model ahead (src/onnx/prefetch.ts): the bytes read on the thread pool are used only when the file the
 // read proper opens is the file they came from, unchanged; a file changed or replaced in between is read again.
 import { describe, expect, it } from 'vitest';
-import { execFileSync } from 'node:child_process';
+import { execFileSync, spawn } from 'node:child_process';
 import { mkdtempSync, readFileSync, renameSync, utimesSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
@@ -72,5 +72,21 @@ describe('reading a model ahead', () => {
     await prefetchSettled(); // (would hang on the FIFO without O_NONBLOCK)
     expect(() => readModelFile(fifo)).toThrow(/not a regular file/);
     expect(() => readModelFile(join(dir, 'missing.onnx'))).toThrow(/no such file/);
+  });
+
+  // The read ahead opened a FIFO (without waiting on it) and closed it: a writer waiting in open() was let through,
+  // wrote into the pipe, and its data was dropped on the close, where the read proper refuses a FIFO untouched.
+  it('never opens a FIFO: a writer waiting on it keeps waiting, and its data reaches the reader it waits for', async () => {
+    const fifo = join(dir, 'waited.onnx');
+    execFileSync('mkfifo', [fifo]);
+    const writer = spawn('sh', ['-c', 'printf kept > "$0"', fifo]);
+    const ended = new Promise<number | null>((res) => writer.on('exit', (code) => res(code)));
+    await new Promise((res) => setTimeout(res, 200)); // (the writer is in open(), waiting for a reader)
+    readModelAhead(fifo);
+    await prefetchSettled();
+    await new Promise((res) => setTimeout(res, 200));
+    expect(writer.exitCode).toBeNull(); // still waiting: the read ahead did not open the pipe
+    expect(readFileSync(fifo, 'utf8')).toBe('kept');
+    expect(await ended).toBe(0);
   });
 });
