@@ -295,6 +295,22 @@ function inlineDiffers(a: Attribute, got: unknown): string | undefined {
   return `element ${at} is ${JSON.stringify((got as unknown[])[at])} where the checked model has ${v.type === 'FLOATS' ? shown(Math.fround(v.floats[at]!)) : v.type === 'INTS' ? v.ints[at] : 'another string'}`;
 }
 
+/**
+ * How a bundle's record of the checked model's provenance (its pleat.* metadata_props, README: what pleat recorded
+ * of the fold that made it) differs from the model's, or undefined when it holds exactly those entries.
+ */
+function provenanceDiffers(want: ReadonlyMap<string, string>, got: unknown): string | undefined {
+  if (got === undefined && want.size === 0) return undefined; // (a model pleat did not fold records none)
+  if (got === null || typeof got !== 'object' || Array.isArray(got)) return `is ${JSON.stringify(got)}, not an object of the checked model's ${want.size} entries`;
+  const entries = got as Record<string, unknown>;
+  for (const [k, v] of want) {
+    if (!Object.hasOwn(entries, k)) return `has no ${k}, which the checked model records as ${JSON.stringify(v)}`;
+    if (entries[k] !== v) return `says ${k} is ${JSON.stringify(entries[k])} where the checked model records ${JSON.stringify(v)}`;
+  }
+  const extra = Object.keys(entries).find((k) => !want.has(k));
+  return extra === undefined ? undefined : `has ${extra}, which the checked model does not record`;
+}
+
 // ---- comparing elements -----------------------------------------------------------------------------
 
 function hexBits(bytes: Uint8Array, at: number, size: number): string {
@@ -325,7 +341,7 @@ const CHUNK = 4 << 20;
  * {dtype, shape, data_offsets: [begin, end)} (offsets relative to the byte after the header) plus an optional
  * "__metadata__" map of strings; then the data buffer, which the tensors cover with no gap or overlap.
  */
-function readBackSafetensors(path: string, listed: ManifestTensor[], tally: { bytes: number }): void {
+function readBackSafetensors(path: string, listed: ManifestTensor[], provenance: ReadonlyMap<string, string>, tally: { bytes: number }): void {
   const file = 'weights.safetensors';
   const f = new FileReader(file, path, tally);
   try {
@@ -341,7 +357,13 @@ function readBackSafetensors(path: string, listed: ManifestTensor[], tally: { by
     const spans: Array<[number, number, string]> = [];
     const entries = new Map<string, { dtype: unknown; shape: unknown; begin: number; end: number }>();
     for (const [name, v] of Object.entries(header)) {
-      if (name === '__metadata__') continue;
+      if (name === '__metadata__') {
+        const meta = v !== null && typeof v === 'object' && !Array.isArray(v) ? v as Record<string, unknown> : {};
+        const ours = Object.fromEntries(Object.entries(meta).filter(([k]) => k.startsWith('pleat.')));
+        const differ = provenanceDiffers(provenance, ours);
+        if (differ) fail(`${file}'s metadata ${differ}`);
+        continue;
+      }
       const e = v as Record<string, unknown>;
       const off = e?.data_offsets as number[];
       if (!Array.isArray(off) || off.length !== 2 || !off.every((x) => Number.isSafeInteger(x) && x >= 0) || off[0] > off[1] || off[1] > dataLength) {
@@ -755,7 +777,10 @@ export function readBackBundle(model: Model, format: 'safetensors' | 'c', paths:
   const weightFiles = format === 'safetensors' ? ['weights.safetensors'] : ['weights.h', 'weights.c'];
   const manifest = parseJson('manifest.json', text('manifest.json', readWhole('manifest.json', path('manifest.json'), tally)));
   const listed = checkManifest(model, manifest, format, weightFiles);
-  if (format === 'safetensors') readBackSafetensors(path('weights.safetensors'), listed, tally);
+  const provenance = new Map(model.metadata.filter(([k]) => k.startsWith('pleat.')));
+  const differ = provenanceDiffers(provenance, manifest.provenance);
+  if (differ) fail(`manifest.json's provenance ${differ}`);
+  if (format === 'safetensors') readBackSafetensors(path('weights.safetensors'), listed, provenance, tally);
   else readBackC(path('weights.h'), path('weights.c'), listed, tally);
   const elements = listed.reduce((a, t) => a + t.count, 0);
   return {

@@ -137,6 +137,29 @@ describe('bundle read back: a staged file changed before the read back (PLEAT_TA
   });
 });
 
+// The provenance a bundle carries (manifest.json's provenance, the safetensors metadata) was not read back: a
+// changed digit of the source's SHA-256 shipped with exit 0.
+describe('bundle read back: the provenance a bundle records', { timeout: 120_000 }, () => {
+  it('a changed digit of the source digest in manifest.json or in the safetensors metadata is found; nothing is left', () => {
+    const clean = join(work, 'ref-provenance');
+    exportFile(MODEL, clean, 'safetensors', { probes: 1 });
+    const sha = manifestOf(clean).provenance['pleat.source.sha256'] as string;
+    expect(sha).toMatch(/^[0-9a-f]{64}$/);
+    const at = (file: string) => readFileSync(join(clean, file), 'latin1').indexOf(sha) + 1;
+    for (const file of ['manifest.json', 'weights.safetensors']) {
+      process.env.PLEAT_TAMPER_BUNDLE = `${file}:${at(file)}`;
+      const fresh = join(work, `tampered-provenance-${file}`);
+      const e = mismatch(() => exportFile(MODEL, fresh, 'safetensors', { probes: 1 }));
+      const what = file === 'manifest.json' ? "manifest.json's provenance" : "weights.safetensors's metadata";
+      expect(e.message).toContain(`${what} says pleat.source.sha256 is "${sha[0]}`);
+      expect(e.message).toContain(`where the checked model records "${sha}"`);
+      expect(existsSync(fresh)).toBe(false);
+    }
+    delete process.env.PLEAT_TAMPER_BUNDLE;
+    expect(leftovers(work)).toEqual([]);
+  });
+});
+
 describe('bundle read back: defects a writer could make', { timeout: 120_000 }, () => {
   const src = join(work, 'fixture-defects.onnx');
   writeFileSync(src, bundleFixture().bytes);
