@@ -11,7 +11,7 @@
 // that folder removes (their process is gone); a run killed during the renames leaves the commit record, and the
 // next run finishes those renames first, so the files written together end up together. A file no record names
 // is never removed, however it is named: it may be the user's.
-import { accessSync, constants, readdirSync, readFileSync, renameSync, rmSync, statSync, writeFileSync } from 'node:fs';
+import { accessSync, constants, lstatSync, readdirSync, readFileSync, renameSync, rmSync, statSync, writeFileSync } from 'node:fs';
 import { randomBytes } from 'node:crypto';
 import { isMainThread } from 'node:worker_threads';
 import { basename, dirname, join, resolve } from 'node:path';
@@ -100,7 +100,20 @@ export function recoverFolder(dir: string, inputOf: (path: string) => string | u
           throw new PleatError('bad-input', `${join(dir, n)}: a killed pleat run (process ${m[1]}) left this unfinished commit, which would replace the ${input}; remove the record to drop that commit, or run again reading another file`);
         }
       }
-      for (const f of pending) renameSync(f.tmp, f.dest);
+      // what was put at a destination since the kill (a folder where a file goes, a folder that is not empty where a
+      // folder goes) is not replaced: refused, loudly, as the rename would fail there (a bare internal error before)
+      const left = (f: StagedFile, why: string) => new PleatError('bad-input', `${join(dir, n)}: a killed pleat run (process ${m[1]}) left this unfinished commit, and ${f.dest} ${why}; move that away, or remove the record to drop that commit`);
+      for (const f of pending) {
+        const here = lstatSync(f.dest, { throwIfNoEntry: false });
+        if (!here) continue;
+        const folder = statSync(f.tmp).isDirectory();
+        if (folder && !here.isDirectory()) throw left(f, 'is now a file, where its folder goes');
+        if (folder && readdirSync(f.dest).length > 0) throw left(f, 'is now a folder that is not empty, where its folder goes');
+        if (!folder && here.isDirectory()) throw left(f, 'is now a folder, where its file goes');
+      }
+      for (const f of pending) {
+        try { renameSync(f.tmp, f.dest); } catch (e) { throw left(f, `cannot be written (${(e as NodeJS.ErrnoException).code ?? String(e)})`); }
+      }
     }
     // the temporaries it lists in this folder that were not renamed in (a dropped record's) go with it
     for (const f of list) if (dirname(resolve(f.tmp)) === resolve(dir)) removeLeft(dir, basename(f.tmp), TEMP_NAME);

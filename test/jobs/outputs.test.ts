@@ -3,7 +3,7 @@
 // output of a run (model, side file, reports) staged and renamed in together, or nothing written at all.
 import { describe, expect, it } from 'vitest';
 import { execFileSync, spawnSync } from 'node:child_process';
-import { appendFileSync, existsSync, linkSync, lstatSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, symlinkSync, utimesSync, writeFileSync } from 'node:fs';
+import { appendFileSync, existsSync, linkSync, lstatSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync, symlinkSync, utimesSync, writeFileSync } from 'node:fs';
 import { OutputSet, recoverFolder } from '../../src/jobs/outputs.js';
 import { IntentLog } from '../../src/onnx/intent.js';
 import { tmpdir } from 'node:os';
@@ -311,6 +311,31 @@ describe('one output transaction (issue 11 item 4)', () => {
     expect(readFileSync(input).equals(before)).toBe(true);
     expect(readFileSync(keep, 'utf8')).toBe('keep me');
     expect(readdirSync(join(dir, 'out'))).toEqual(['x.onnx']);
+  });
+
+  // The renames of a killed run's commit failed on what was put at a destination since (a folder that is not empty
+  // where its bundle folder goes, a folder where its file goes): every later run writing to that folder ended in a
+  // bare internal error (exit 3). Now refused in one line naming the record and the path; once that is moved away,
+  // the commit is finished.
+  it("what was put where a killed run's commit goes is not replaced: refused in one line until moved away", () => {
+    const dir = tmp();
+    for (const [args, dest, made] of [
+      [['export', 'models/tray-edge.onnx', '--bundle', join(dir, 'b')], join(dir, 'b'), 'is now a folder that is not empty, where its folder goes'],
+      [['fold', 'models/tray-edge.onnx', '-o', join(dir, 'm.onnx')], join(dir, 'm.onnx'), 'is now a folder, where its file goes'],
+    ] as const) {
+      const killed = spawnSync(process.execPath, [CLI, ...args], { cwd: ROOT, encoding: 'utf8', env: { ...process.env, NO_COLOR: '1', CI: 'true', PLEAT_KILL_AT: 'recorded' } });
+      expect(killed.signal, killed.stderr).toBe('SIGKILL');
+      mkdirSync(dest);
+      writeFileSync(join(dest, 'notes.txt'), 'mine');
+      const r = pleat(['fold', 'models/pump-vibration.onnx', '-o', join(dir, 'p.onnx'), '--quiet']);
+      expect(r.code, r.stderr).toBe(2);
+      expect(r.stderr).toMatch(new RegExp(`^pleat: .*\\.commit: a killed pleat run \\(process ${killed.pid}\\) left this unfinished commit, and .*${made}; move that away, or remove the record to drop that commit\n$`));
+      expect(readFileSync(join(dest, 'notes.txt'), 'utf8')).toBe('mine');
+      rmSync(dest, { recursive: true });
+      expect(pleat(['fold', 'models/pump-vibration.onnx', '-o', join(dir, 'p.onnx'), '--quiet']).code).toBe(0);
+    }
+    expect(readdirSync(dir).sort()).toEqual(['b', 'm.onnx', 'p.onnx']);
+    expect(readdirSync(join(dir, 'b')).sort()).toEqual(['manifest.json', 'weights.safetensors']);
   });
 
   it("a record that would replace the run's own input is refused in one line, and nothing is replaced", () => {
