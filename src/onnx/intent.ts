@@ -3,8 +3,8 @@
 // such a record names it, so a user's file that merely looks like a pleat temporary (`.pleat-1-a-notes.tmp`, or
 // one copied from another machine) is never removed. The record starts with a header line, then one JSON-quoted
 // file name a line, appended before each file is made: a run killed while appending leaves a last line without
-// its line end, which names nothing made yet and is ignored (so is a record cut short within its header). A file
-// in any other form is not a record, and is left alone.
+// its line end, which names nothing made yet and is ignored. A file in any other form (one cut short within its
+// header, or empty, included) is not a record, and is left alone.
 import { appendFileSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { basename, dirname, join } from 'node:path';
 
@@ -50,7 +50,8 @@ export class IntentLog {
 export function readIntent(path: string): string[] | undefined {
   let text: string;
   try { text = readFileSync(path, 'utf8'); } catch { return undefined; }
-  if (HEADER.startsWith(text)) return []; // cut short by a kill while it was created: nothing made yet
+  // (a file cut short within the header, an empty one among them, is not told apart from a user's file of that
+  // name: it is left alone, and names nothing a run made)
   if (!text.startsWith(HEADER)) return undefined;
   const lines = text.slice(HEADER.length).split('\n');
   lines.pop(); // after the last line end: nothing, or a line cut short by a kill (its file was not made yet)

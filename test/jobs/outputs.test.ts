@@ -410,6 +410,9 @@ describe('only what pleat provably made is cleared', () => {
     [`.pleat-${dead}-c.intent`, 'not a record either'],
     // JSON in a record's form, but named in no intent record: a user's file all the same
     [`.pleat-${dead}-g.commit`, '[]'],
+    // empty, or the first word of a record's header: not told apart from a user's file, so left alone
+    [`.pleat-${dead}-i.intent`, ''],
+    [`.pleat-${dead}-j.intent`, 'pleat'],
     [`.pleat-${dead}-h.commit`, JSON.stringify([{ tmp: `.pleat-${dead}-h0-x.tmp`, dest: 'x' }])],
   ];
   const plantLookAlikes = (dir: string) => {
