@@ -394,18 +394,23 @@ export class OutputSet {
     if (!this.staged.length) { this.close(); return []; }
     killPoint('staged');
     const record = join(dirname(this.staged[0]!.dest), `.pleat-${process.pid}-${this.token}.commit`);
+    let moving: StagedFile | undefined;
     try {
       this.intents.note(record);
       writeFileSync(record, JSON.stringify(this.staged));
       killPoint('recorded');
       this.staged.forEach((f, i) => {
+        moving = f;
         renameSync(f.tmp, f.dest);
         if (i === 0) killPoint('renamed-one');
       });
     } catch (e) {
       rmSync(record, { force: true });
       this.abort();
-      throw new PleatError('bad-input', `cannot move the outputs into place (${(e as NodeJS.ErrnoException).code ?? String(e)})`);
+      const code = (e as NodeJS.ErrnoException).code;
+      // (a folder that is not empty at a folder's destination: made there by someone else since it was claimed)
+      const why = code === 'ENOTEMPTY' || code === 'EEXIST' ? `${code}: a folder that is not empty is there now` : code ?? String(e);
+      throw new PleatError('bad-input', moving ? `cannot move ${moving.dest} into place (${why})` : `cannot move the outputs into place (${why})`);
     }
     killPoint('renamed-all');
     rmSync(record, { force: true });

@@ -338,6 +338,20 @@ describe('one output transaction (issue 11 item 4)', () => {
     expect(readdirSync(join(dir, 'b')).sort()).toEqual(['manifest.json', 'weights.safetensors']);
   });
 
+  // A folder made at a staged folder's destination between its claim and the commit (two runs saving into one new
+  // folder at once) made the commit fail as 'cannot move the outputs into place (ENOTEMPTY)', naming no path.
+  it('a commit that cannot move a file into place names it', () => {
+    const dir = tmp();
+    const tx = new OutputSet();
+    const dest = tx.reserveFolder(join(dir, 'probes'), '--save-probes');
+    tx.stageFolder(dest, (t) => { mkdirSync(t); writeFileSync(join(t, 'a.pb'), 'x'); });
+    mkdirSync(dest);
+    writeFileSync(join(dest, 'other.pb'), 'made meanwhile');
+    expect(() => tx.commit()).toThrow(`cannot move ${dest} into place (ENOTEMPTY: a folder that is not empty is there now)`);
+    expect(readdirSync(dir)).toEqual(['probes']);
+    expect(readdirSync(dest)).toEqual(['other.pb']);
+  });
+
   it("a record that would replace the run's own input is refused in one line, and nothing is replaced", () => {
     const dir = tmp();
     const dead = 2 ** 22 + 12347;
