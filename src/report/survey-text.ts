@@ -19,7 +19,8 @@ export function surveyText(r: SurveyReport): string {
   lines.push(`  ${pad('weights')}${r.initializers.count} initializers, ${bytesText(r.initializers.bytes)}` +
     (r.constantNodes.count ? `; ${r.constantNodes.count} Constant nodes, ${bytesText(r.constantNodes.bytes)}` : '') +
     `; external ${bytesText(r.externalBytes)}`);
-  if (r.sideFiles.length) lines.push(`  ${pad('side file')}${r.sideFiles.map((f) => `'${f}'`).join(', ')}`);
+  // (each name JSON-quoted: a location may hold a comma or a quote, and the line must split back into the names)
+  if (r.sideFiles.length) lines.push(`  ${pad('side file')}${r.sideFiles.map((f) => JSON.stringify(f)).join(', ')}`);
   if (r.missingData.length) {
     r.missingData.forEach((m, i) => lines.push(`  ${pad(i === 0 ? 'missing' : '')}${m.tensor}: ${m.problem}`));
   }

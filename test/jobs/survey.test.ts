@@ -5,6 +5,7 @@ import { describe, expect, it } from 'vitest';
 import { GraphBuilder, modelBytes, rng, T } from '../helpers/build.js';
 import { parseModel } from '../../src/onnx/read.js';
 import { surveyModel } from '../../src/jobs/survey.js';
+import { surveyText } from '../../src/report/survey-text.js';
 import { eachTensor } from '../../src/onnx/external.js';
 import { elementCount, storageKind, subgraphsOf, type Graph, type Tensor } from '../../src/graph/ir.js';
 import { bytesPerElement, tensorByteSize } from '../../src/graph/tensor.js';
@@ -76,5 +77,24 @@ describe('survey figures', () => {
       expect(report.constantNodes).toEqual({ count: consts, bytes: constBytes });
       expect(report.nodeCount).toBe(nodes);
     }
+  });
+});
+
+describe('the side file line of the text survey', () => {
+  it('splits back into the side files whatever their names hold (commas, quotes, a line end)', () => {
+    const g = new GraphBuilder();
+    g.input('x', [1, 2]).output('y', [1, 2]);
+    g.init('w', [2], new Float32Array([1, 2]));
+    g.node('Add', ['x', 'w'], {}, { outputs: ['y'] });
+    const m = parseModel(modelBytes(g), '/x');
+    const names = ['a, b.bin', "it's.bin", 'q"uote.bin', 'line\nend.bin'];
+    const w = m.graph.initializers[0]!;
+    w.storage = { kind: 'external', entries: [['location', names[0]!]], bytes: new Uint8Array(0) };
+    const extra = names.slice(1).map((n, i) => ({ ...w, name: `w${i}`, storage: { kind: 'external' as const, entries: [['location', n]] as Array<[string, string]>, bytes: new Uint8Array(0) } }));
+    m.graph.initializers.push(...extra);
+    const report = surveyModel(m);
+    const line = surveyText(report).split('\n').find((l) => l.startsWith('  side file'))!;
+    expect(JSON.parse(`[${line.slice('  side file '.length)}]`)).toEqual(report.sideFiles);
+    expect([...report.sideFiles].sort()).toEqual([...names].sort());
   });
 });
