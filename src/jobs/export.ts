@@ -1,7 +1,6 @@
 // The export job: fold (with every proof and the whole-model check), then write the folded weights as a
 // bundle for device runtimes. Nothing is written when a gate fails.
 import { readModelFile } from '../onnx/read.js';
-import { mkdirSync } from 'node:fs';
 import { join } from 'node:path';
 import { asGiven, BUNDLE_FILES, checkBundleFolder, planBundle, writeAll, type BundleFormat, type BundleResult } from '../ship/bundle.js';
 import { sideFilePaths } from '../onnx/external.js';
@@ -72,16 +71,7 @@ export function exportStaged(input: string, dir: string, format: BundleFormat = 
       setProvenance(model, provenanceOf(sha256(), opts.gate, opts, fold.check?.status ?? 'not-run', external?.()));
       const planned = planBundle(model, folder.full, format);
       // Every bundle file goes through one transaction: staged, then all renamed in (see outputs.ts).
-      const staged = new Map<string, string>();
-      if (folder.exists) {
-        const targets = planned.files.map(([name]) => tx.reserve(join(folder.full, name), '--bundle'));
-        planned.files.forEach(([name, content], i) => tx.stage(targets[i]!, (tmp) => { staged.set(name, tmp); writeAll(tmp, content); }));
-      } else {
-        tx.stageFolder(folder.full, (tmp) => {
-          mkdirSync(tmp);
-          for (const [name, content] of planned.files) { staged.set(name, join(tmp, name)); writeAll(join(tmp, name), content); }
-        });
-      }
+      const staged = tx.stageFiles(folder.full, folder.exists, planned.files.map(([name, content]) => [name, (path: string) => writeAll(path, content)] as const), '--bundle');
       // what ships is what was checked: the staged files, read back from disk, against the checked model (a
       // mismatch throws BundleMismatch, an internal error: the catch below removes the staged files)
       const readBack = readBackBundle(model, format, staged);

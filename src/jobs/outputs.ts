@@ -11,7 +11,7 @@
 // that folder removes (their process is gone); a run killed during the renames leaves the commit record, and the
 // next run finishes those renames first, so the files written together end up together. A file no record names
 // is never removed, however it is named: it may be the user's.
-import { accessSync, constants, lstatSync, readdirSync, readFileSync, renameSync, rmSync, statSync, writeFileSync } from 'node:fs';
+import { accessSync, constants, lstatSync, mkdirSync, readdirSync, readFileSync, renameSync, rmSync, statSync, writeFileSync } from 'node:fs';
 import { randomBytes } from 'node:crypto';
 import { isMainThread } from 'node:worker_threads';
 import { basename, dirname, join, resolve } from 'node:path';
@@ -345,6 +345,31 @@ export class OutputSet {
     for (const k of fileKeys(full)) this.reservedKeys.set(k, `${role} ${dest}`);
     if (!this.dirs.has(parent)) { this.dirs.add(parent); touched.add(parent); recoverFolder(parent, (p) => this.inputAt(p)); }
     return full;
+  }
+
+  /**
+   * Stage the files of `folder` (name, writer of the file at the path it is given): when the folder exists, each
+   * file at a temporary name beside it; otherwise the folder whole, made at a temporary name, so a run that does
+   * not commit leaves no folder either. Gives the staged path of each file, by name (to be read back before the
+   * commit).
+   */
+  stageFiles(folder: string, exists: boolean, files: ReadonlyArray<readonly [string, (path: string) => void]>, role: string): Map<string, string> {
+    const staged = new Map<string, string>();
+    if (exists) {
+      const targets = files.map(([name]) => this.reserve(join(folder, name), role));
+      files.forEach(([name, write], i) => this.stage(targets[i]!, (tmp) => { staged.set(name, tmp); write(tmp); }));
+    } else {
+      this.reserveFolder(folder, role);
+      this.stageFolder(folder, (tmp) => {
+        mkdirSync(tmp);
+        for (const [name, write] of files) {
+          const path = join(tmp, name);
+          staged.set(name, path);
+          write(path);
+        }
+      });
+    }
+    return staged;
   }
 
   /** Write a reserved folder at a temporary name beside it (`write` creates and fills the folder it is given). */

@@ -3,7 +3,7 @@
 // temporaries are named in intent records for the next run to clear. A folder not there yet is staged whole at a
 // temporary name beside it, so a run that does not commit leaves no folder either (its missing parents are made).
 import { mkdirSync, statSync, writeFileSync } from 'node:fs';
-import { dirname, join, resolve } from 'node:path';
+import { dirname, resolve } from 'node:path';
 import { PleatError } from '../errors.js';
 import type { Value } from '../eval/value.js';
 import { outputFiles, type SavedOutputs, type SaveOptions } from '../verify/evaluate.js';
@@ -40,16 +40,7 @@ export function saveOutputsStaged(dir: string, outputs: ReadonlyMap<string, Valu
   const tx = new OutputSet();
   try {
     for (const [p, what] of opts.reads ?? []) tx.protect(p, what);
-    if (exists) {
-      const targets = contents.map(([name]) => tx.reserve(join(full, name), '--save'));
-      contents.forEach(([, body], i) => tx.stage(targets[i]!, body));
-    } else {
-      tx.reserveFolder(full, '--save');
-      tx.stageFolder(full, (tmp) => {
-        mkdirSync(tmp);
-        for (const [name, body] of contents) writeFileSync(join(tmp, name), body);
-      });
-    }
+    tx.stageFiles(full, exists, contents.map(([name, body]) => [name, (path: string) => writeFileSync(path, body)] as const), '--save');
   } catch (e) {
     tx.abort();
     throw e;
