@@ -28,13 +28,12 @@ export async function handler(argv: Flags): Promise<void> {
   const { renderCompare } = await import('../../src/report/render.js');
   const { EXIT } = await import('../../src/report/exit-codes.js');
   await checkDestinations(plan, { inputs: [argv.a, argv.b], reads });
-  const { fileSha256 } = await import('../../src/jobs/sha256.js');
   const started = process.hrtime.bigint();
   // the probe folder (--save-probes) is staged, and renamed in with the reports, after a TERM or Ctrl-C that came
   // during the work has had its turn
-  const { report, staged } = compareStaged(argv.a, argv.b, { ...run, simulateInt8: int8Setting(argv), saveProbes: argv.saveProbes });
+  const { report, staged, digests } = compareStaged(argv.a, argv.b, { ...run, simulateInt8: int8Setting(argv), saveProbes: argv.saveProbes, digests: plan.pageDetail });
   const extras = {
-    ...(plan.pageDetail ? { sha256: { a: fileSha256(argv.a), b: fileSha256(argv.b) } } : {}),
+    ...digests,
     ...(plan.runFigures ? { run: runFigures(started) } : {}),
   };
   await emit(plan, (format, colour) => renderCompare(report, argv.a, argv.b, format, colour, extras), { inputs: [argv.a, argv.b], reads }, [staged]);

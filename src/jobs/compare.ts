@@ -10,11 +10,24 @@ import { saveProbeSets } from '../verify/probe-files.js';
 import { checkOptionValues } from '../verify/option-values.js';
 import { OutputSet, type StagedFile } from './outputs.js';
 import { SCHEMA_VERSION } from './types.js';
+import { fileSha256 } from './sha256.js';
+import { externalSha256Later } from './provenance.js';
 
 /** What compare() returns and `pleat compare --json` prints: the comparison, with the schema version, the command and the two models. */
 export type CompareJobReport = { schemaVersion: number; command: 'compare'; a: string; b: string } & CompareReport;
 
-export type CompareJobOptions = CompareOptions & { saveProbes?: string };
+/** `digests`: also work out each model's SHA-256, and its side files' digest when it has external data (the HTML page shows them). */
+export type CompareJobOptions = CompareOptions & { saveProbes?: string; digests?: boolean };
+
+/**
+ * Which files were compared: each model file's SHA-256, and for a model whose weights are in external data its side
+ * files' digest, worked out as pleat.source.external.sha256 records it (a weight on a side file is part of the model
+ * compared; the .onnx digest alone would name two models with different weights alike).
+ */
+export interface CompareDigests {
+  sha256: { a: string; b: string };
+  externalSha256?: { a?: string; b?: string };
+}
 
 /** How a report names a model: the path as given, or a Model's source file ('(model in memory)' when it has none). */
 const nameOf = (m: string | Model): string => (typeof m === 'string' ? m : m.sourcePath ?? '(model in memory)');
@@ -44,23 +57,39 @@ export function compareFiles(a: string | Model, b: string | Model, options: Comp
  * staged files into its own transaction and commits them with its reports (the CLI, after letting a TERM or
  * Ctrl-C that came during the work end the run).
  */
-export function compareStaged(a: string | Model, b: string | Model, options: CompareJobOptions = {}): { report: CompareJobReport; staged: StagedFile[] } {
+export function compareStaged(a: string | Model, b: string | Model, options: CompareJobOptions = {}): { report: CompareJobReport; staged: StagedFile[]; digests?: CompareDigests } {
   const tx = new OutputSet();
   try {
-    const report = compareIn(tx, a, b, options);
-    return { report, staged: tx.handOver() };
+    const found: { digests?: CompareDigests } = {};
+    const report = compareIn(tx, a, b, options, found);
+    return { report, staged: tx.handOver(), ...found };
   } catch (e) {
     tx.abort();
     throw e;
   }
 }
 
-function compareIn(tx: OutputSet, a: string | Model, b: string | Model, options: CompareJobOptions): CompareJobReport {
+/** A model's file digest (undefined for a model in memory with no file), and its side files' digest if it has any. */
+function digestsOf(m: string | Model, model: Model): { sha256?: string; external?: string } {
+  const file = typeof m === 'string' ? m : model.sourcePath;
+  return { sha256: file === undefined ? undefined : fileSha256(file), external: externalSha256Later(model)?.() };
+}
+
+function compareIn(tx: OutputSet, a: string | Model, b: string | Model, options: CompareJobOptions, found: { digests?: CompareDigests } = {}): CompareJobReport {
   checkOptionValues(options);
   const named = (r: CompareReport): CompareJobReport => ({ schemaVersion: SCHEMA_VERSION, command: 'compare', a: nameOf(a), b: nameOf(b), ...r });
-  const { saveProbes, ...opts } = options;
-  if (saveProbes === undefined) return named(compareModels(loadChecked(a), loadChecked(b), opts));
+  const { saveProbes, digests, ...opts } = options;
   const ma = loadChecked(a), mb = loadChecked(b);
+  if (digests) {
+    const da = digestsOf(a, ma), db = digestsOf(b, mb);
+    if (da.sha256 !== undefined && db.sha256 !== undefined) {
+      found.digests = { sha256: { a: da.sha256, b: db.sha256 } };
+      if (da.external !== undefined || db.external !== undefined) {
+        found.digests.externalSha256 = { ...(da.external !== undefined ? { a: da.external } : {}), ...(db.external !== undefined ? { b: db.external } : {}) };
+      }
+    }
+  }
+  if (saveProbes === undefined) return named(compareModels(ma, mb, opts));
   // the probe folder goes through the output transaction: checked first, written beside, renamed in whole
   for (const m of [ma, mb]) if (m.sourcePath) [m.sourcePath, ...sideFilePaths(m)].forEach((p) => tx.protect(p, 'input model'));
   tx.reserveFolder(saveProbes, '--save-probes');

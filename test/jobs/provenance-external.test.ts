@@ -184,6 +184,28 @@ describe('provenance of a source with external data', { timeout: 120_000 }, () =
     expect('externalSha256' in plain).toBe(false);
   });
 
+  it('compare names each side by its side files too: two models with one .onnx and different weights get different digests', () => {
+    const html = join(work, 'compare.html'), json = join(work, 'compare.json');
+    const r = pleat(['compare', a.model, b.model, '--report', `html:${html}`, '--report', `json:${json}`]);
+    expect(r.code, r.stderr).toBe(1); // (the weights differ: the comparison fails, and both reports are written)
+    const j = JSON.parse(readFileSync(json, 'utf8'));
+    expect(schemaValidator()(j)).toBe(true);
+    // the .onnx files are the same bytes; only the side files' digests (worked out here as the README says) tell them apart
+    expect(j.sha256).toEqual({ a: sha(a.onnx), b: sha(b.onnx) });
+    expect(j.externalSha256).toEqual({ a: documentedDigest(join(work, 'a'), LOCATIONS), b: documentedDigest(join(work, 'b'), LOCATIONS) });
+    expect(j.externalSha256.a).not.toBe(j.externalSha256.b);
+    const page = readFileSync(html, 'utf8');
+    for (const side of ['a', 'b'] as const) expect(page).toContain(`data-figure="externalSha256.${side}" data-value="${j.externalSha256[side]}"`);
+    // a side without external data gets no entry (B: A's model with every tensor inline, so the two agree)
+    const inline = join(work, 'inline.onnx');
+    expect(pleat(['fold', a.model, '-o', inline, '--unproven', '--external-data-min', String(2 ** 40), '--quiet']).code).toBe(0);
+    const half = join(work, 'compare-half.json');
+    expect(pleat(['compare', a.model, inline, '--report', `json:${half}`, '--report', `html:${join(work, 'compare-half.html')}`]).code).toBe(0);
+    const h = JSON.parse(readFileSync(half, 'utf8'));
+    expect(schemaValidator()(h)).toBe(true);
+    expect(h.externalSha256).toEqual({ a: documentedDigest(join(work, 'a'), LOCATIONS) });
+  });
+
   it('placeholders for both digests, written over once the digests are known, give the bytes written with them', () => {
     // (the fold job's path when a hash is still running as it stages the model: src/jobs/fold.ts, stage)
     const digest = sha(a.onnx), external = documentedDigest(join(work, 'a'), LOCATIONS);

@@ -241,12 +241,13 @@ export function auditBody(r: AuditReport, pre = '', at = ''): string {
     `<h2 id="${pre}ledger">Ledger</h2>${ledger(entries, pre)}${cards(entries, r.sketches, pre, at)}`;
 }
 
-export interface CompareExtras { sha256?: { a: string; b: string }; run?: RunFigures }
+export interface CompareExtras { sha256?: { a: string; b: string }; externalSha256?: { a?: string; b?: string }; run?: RunFigures }
 
 export function compareBody(r: CompareReport, a: string, b: string, x: CompareExtras = {}): string {
   const overview = [
     tile('model A (reference, float64)', `<code>${esc(a)}</code>`), tile('model B (candidate)', `<code>${esc(b)}</code>`),
-    shaTile(x.sha256?.a, 'sha256.a', 'SHA-256 of A'), shaTile(x.sha256?.b, 'sha256.b', 'SHA-256 of B'),
+    shaTile(x.sha256?.a, 'sha256.a', 'SHA-256 of A'), shaTile(x.externalSha256?.a, 'externalSha256.a', "SHA-256 of A's external data"),
+    shaTile(x.sha256?.b, 'sha256.b', 'SHA-256 of B'), shaTile(x.externalSha256?.b, 'externalSha256.b', "SHA-256 of B's external data"),
     // (the status as every other format gives it: a check that compared nothing is skipped, with its reason)
     tile('verdict', `${badge(r.status)} ${r.skipped ? `<code>${esc(r.skipped.reason)}</code>: ${esc(r.skipped.message)}; ` : ''}${fig('probes', r.probes, String(r.probes))} probe${r.probes === 1 ? '' : 's'}, seed ${fig('seed', r.seed, String(r.seed))}`),
     runTile(x.run, ''),
