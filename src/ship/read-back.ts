@@ -535,6 +535,7 @@ function hexFloat32At(b: Uint8Array, s: number, e: number): number | undefined {
   if (p === digits || b[p] !== 0x66 || p + 1 !== e) return undefined;
   if (M === 0) return neg ? 0x80000000 : 0;
   const k = (eneg ? -x : x) - 4 * nf;
+  if (M <= 0x7fffffff) return smallSignificand(M, k, neg);
   const L = M < 2 ** 32 ? 32 - Math.clz32(M) : 64 - Math.clz32(Math.floor(M / 2 ** 32));
   const E = k + L - 1;
   if (E > 127) return undefined;
@@ -550,6 +551,28 @@ function hexFloat32At(b: Uint8Array, s: number, e: number): number | undefined {
     else { const d = 2 ** -shift; if (M % d) return undefined; bits = M / d; }
   }
   return neg ? bits + 0x80000000 : bits;
+}
+
+/**
+ * hexFloat32At's rule for a significand below 2^31 (every literal the generator writes: at most 7 hex digits), in
+ * 32-bit integer steps, which are several times faster than the same steps on doubles.
+ */
+function smallSignificand(M: number, k: number, neg: boolean): number | undefined {
+  const L = 32 - Math.clz32(M);
+  const E = k + L - 1;
+  if (E > 127) return undefined;
+  let bits: number;
+  if (E >= -126) {
+    const shift = L - 24;
+    let f: number;
+    if (shift > 0) { if (M & ((1 << shift) - 1)) return undefined; f = M >>> shift; } else f = M << -shift;
+    bits = ((E + 127) << 23) | (f & 0x7fffff); // f is 1.fraction in [2^23, 2^24)
+  } else {
+    const shift = k + 149; // subnormal: units of 2^-149; M * 2^shift is below 2^23 here
+    if (shift >= 0) bits = M << shift;
+    else { if (-shift > 30 || M & ((1 << -shift) - 1)) return undefined; bits = M >>> -shift; }
+  }
+  return neg ? (bits | 0x80000000) >>> 0 : bits;
 }
 
 /** A plain integer literal [-](0xHHHH|DDD)[u] from bytes b[s, e), below 2^48, or undefined. */
