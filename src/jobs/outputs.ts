@@ -14,7 +14,7 @@
 import { accessSync, constants, lstatSync, mkdirSync, readdirSync, readFileSync, renameSync, rmSync, statSync, writeFileSync } from 'node:fs';
 import { randomBytes } from 'node:crypto';
 import { isMainThread } from 'node:worker_threads';
-import { basename, dirname, join, resolve } from 'node:path';
+import { basename, dirname, join, relative, resolve } from 'node:path';
 import { PleatError } from '../errors.js';
 import { entryAt, fileKeys, specialKind } from '../onnx/paths.js';
 import { COMMIT_NAME, INTENT_NAME, IntentLog, readIntent, TEMP_NAME } from '../onnx/intent.js';
@@ -151,6 +151,17 @@ function removeLeft(dir: string, name: string, kind: RegExp): boolean {
   if (!m) return false;
   if (!alive(Number(m[1]))) rmSync(join(dir, name), { force: true, recursive: true });
   return true;
+}
+
+/**
+ * The highest folder on the way to `folder` (itself, or one above it) that does not exist yet. A link to nothing
+ * counts as there: the folder below it is refused as having no parent, not made in the link's place.
+ */
+function highestMissing(folder: string, label: string): string {
+  const there = (p: string) => entryAt(p, label) !== undefined || lstatSync(p, { throwIfNoEntry: false }) !== undefined;
+  let top = resolve(folder);
+  for (let up = dirname(top); up !== top && !there(up); up = dirname(up)) top = up;
+  return top;
 }
 
 const live = new Set<OutputSet>();
@@ -349,9 +360,10 @@ export class OutputSet {
 
   /**
    * Stage the files of `folder` (name, writer of the file at the path it is given): when the folder exists, each
-   * file at a temporary name beside it; otherwise the folder whole, made at a temporary name, so a run that does
-   * not commit leaves no folder either. Gives the staged path of each file, by name (to be read back before the
-   * commit).
+   * file at a temporary name beside it; otherwise the highest folder on its path that is not there yet, whole, made
+   * at a temporary name with the folders below it inside, so a run that does not commit leaves no folder either
+   * (`a/b/c` with no `a/b`: `a/b` is staged). Gives the staged path of each file, by name (to be read back before
+   * the commit).
    */
   stageFiles(folder: string, exists: boolean, files: ReadonlyArray<readonly [string, (path: string) => void]>, role: string): Map<string, string> {
     const staged = new Map<string, string>();
@@ -359,11 +371,13 @@ export class OutputSet {
       const targets = files.map(([name]) => this.reserve(join(folder, name), role));
       files.forEach(([name, write], i) => this.stage(targets[i]!, (tmp) => { staged.set(name, tmp); write(tmp); }));
     } else {
-      this.reserveFolder(folder, role);
-      this.stageFolder(folder, (tmp) => {
-        mkdirSync(tmp);
+      const top = highestMissing(folder, `${role} ${folder}`);
+      this.reserveFolder(top, role);
+      this.stageFolder(top, (tmp) => {
+        const inside = join(tmp, relative(top, resolve(folder)));
+        mkdirSync(inside, { recursive: true });
         for (const [name, write] of files) {
-          const path = join(tmp, name);
+          const path = join(inside, name);
           staged.set(name, path);
           write(path);
         }

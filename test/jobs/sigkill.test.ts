@@ -5,7 +5,7 @@
 // temporary file remains after that next run.
 import { beforeAll, describe, expect, it } from 'vitest';
 import { spawn, spawnSync } from 'node:child_process';
-import { copyFileSync, existsSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, writeFileSync } from 'node:fs';
+import { copyFileSync, existsSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { CLI, ROOT, pleat } from '../helpers/cli.js';
@@ -195,6 +195,43 @@ describe('a TERM or Ctrl-C during the work', () => {
     expect(pleat(['evaluate', MODEL, '--save', saved, '--seed', '4']).code).toBe(0);
     expect(readdirSync(saved).sort()).toEqual(names);
     expect(readdirSync(dir)).toEqual(['saved']);
+  });
+
+  // --save a/b/c with no a/b: the folders above the outputs' folder were made before the work, so a run that did not
+  // commit (a Ctrl-C, a kill, a refusal) left a/b behind
+  it('evaluate --save into folders not there yet: none is made before the commit, all are after it', () => {
+    const dir = mkdtempSync(join(tmpdir(), 'pleat-term-'));
+    const nested = join(dir, 'a', 'b', 'c');
+    const int = run(['evaluate', MODEL, '--save', nested], { PLEAT_SIGNAL_BEFORE_COMMIT: 'SIGINT' });
+    expect(int.status, int.stderr).toBe(130);
+    expect(readdirSync(dir)).toEqual([]);
+    const term = run(['evaluate', MODEL, '--save', nested], { PLEAT_SIGNAL_BEFORE_COMMIT: '1' });
+    expect(term.status, term.stderr).toBe(143);
+    expect(readdirSync(dir)).toEqual([]);
+    // refused once the work is done, when the folders are claimed: p/q were made first, and stayed. Now only the
+    // highest missing folder takes a temporary name, so the long name inside it is written as it is ...
+    const long = pleat(['evaluate', MODEL, '--save', join(dir, 'p', 'q', 'x'.repeat(250))]);
+    expect(long.code, long.stderr).toBe(0);
+    expect(readdirSync(join(dir, 'p', 'q', 'x'.repeat(250)))).toContain('outputs.json');
+    rmSync(join(dir, 'p'), { recursive: true });
+    // ... and a highest missing folder too long for its temporary name is refused, leaving nothing
+    const longTop = pleat(['evaluate', MODEL, '--save', join(dir, 'x'.repeat(250), 'c')]);
+    expect(longTop.code, longTop.stderr).toBe(2);
+    expect(longTop.stderr).toMatch(/^pleat: --save .*x{250}: the folder name is too long to write/);
+    expect(readdirSync(dir)).toEqual([]);
+    // killed before its commit: the next run writing in that folder clears what the killed one staged
+    killedAt('staged', ['evaluate', MODEL, '--save', nested]);
+    expect(readdirSync(dir).filter((n) => !n.startsWith('.pleat-'))).toEqual([]);
+    // killed during its commit: the next run writing there finishes it (the folders whole)
+    killedAt('recorded', ['evaluate', MODEL, '--save', join(dir, 'k', 'l')]);
+    expect(existsSync(join(dir, 'k'))).toBe(false);
+    const ok = pleat(['evaluate', MODEL, '--save', nested, '--seed', '1']);
+    expect(ok.code, ok.stderr).toBe(0);
+    expect(readdirSync(dir).sort()).toEqual(['a', 'k']);
+    expect(readdirSync(join(dir, 'a'))).toEqual(['b']);
+    expect(readdirSync(join(dir, 'a', 'b'))).toEqual(['c']);
+    expect(readdirSync(nested).sort()).toEqual(readdirSync(join(dir, 'k', 'l')).sort());
+    expect(readdirSync(nested)).toContain('outputs.json');
   });
 
   // a batch's workers had their files staged when the signal came: the process exited 143 and left them there
