@@ -17,14 +17,11 @@ import { isMainThread } from 'node:worker_threads';
 import { basename, dirname, join, relative, resolve } from 'node:path';
 import { PleatError } from '../errors.js';
 import { entryAt, fileKeys, specialKind } from '../onnx/paths.js';
-import { COMMIT_NAME, INTENT_NAME, IntentLog, readIntent, TEMP_NAME } from '../onnx/intent.js';
+import { COMMIT_NAME, INTENT_NAME, IntentLog, isPathText, NAME_MAX, readIntent, TEMP_NAME } from '../onnx/intent.js';
 import { ownsSideFile } from '../onnx/side-owner.js';
 import type { StagedFile } from '../onnx/write.js';
 
 export type { StagedFile };
-
-/** The longest name of a folder entry (Linux and most file systems: 255 bytes). */
-const NAME_MAX = 255;
 
 /** Test hook: PLEAT_KILL_AT=<point> kills the process at that point of a commit (the SIGKILL test). */
 function killPoint(point: string): void {
@@ -116,8 +113,9 @@ export function recoverFolder(dir: string, inputOf: (path: string) => string | u
       }
     }
     // the temporaries it lists in this folder that were not renamed in (a dropped record's) go with it
-    for (const f of list) if (dirname(resolve(f.tmp)) === resolve(dir)) removeLeft(dir, basename(f.tmp), TEMP_NAME);
-    rmSync(join(dir, n), { force: true });
+    let cleared = true;
+    for (const f of list) if (dirname(resolve(f.tmp)) === resolve(dir) && removeLeft(dir, basename(f.tmp), TEMP_NAME) === false) cleared = false;
+    if (cleared) removeQuietly(join(dir, n));
   }
   // what dead runs named before making it; a record of this process's number is never taken for a dead run's
   // (another container's run may carry that number: its files stay)
@@ -126,8 +124,10 @@ export function recoverFolder(dir: string, inputOf: (path: string) => string | u
     if (!m || alive(Number(m[1]))) continue;
     const listed = readIntent(join(dir, n));
     if (!listed) continue; // not in pleat's form: not ours to remove
-    for (const name of listed) removeLeft(dir, name, TEMP_NAME) || removeLeft(dir, name, COMMIT_NAME);
-    rmSync(join(dir, n), { force: true });
+    // (a record stays while a file it names does: the next run tries again)
+    let cleared = true;
+    for (const name of listed) if ((removeLeft(dir, name, TEMP_NAME) ?? removeLeft(dir, name, COMMIT_NAME)) === false) cleared = false;
+    if (cleared) removeQuietly(join(dir, n));
   }
 }
 
@@ -135,7 +135,8 @@ export function recoverFolder(dir: string, inputOf: (path: string) => string | u
 function readCommitRecord(path: string): StagedFile[] | undefined {
   try {
     const parsed = JSON.parse(readFileSync(path, 'utf8')) as unknown;
-    if (!Array.isArray(parsed) || !parsed.every((f) => typeof f?.tmp === 'string' && typeof f?.dest === 'string')) return undefined;
+    // (a path no file can have, with a NUL byte or an overlong part, is not pleat's: acting on it could only fail)
+    if (!Array.isArray(parsed) || !parsed.every((f) => isPathText(f?.tmp) && isPathText(f?.dest))) return undefined;
     return parsed as StagedFile[];
   } catch {
     return undefined;
@@ -144,13 +145,26 @@ function readCommitRecord(path: string): StagedFile[] | undefined {
 
 /**
  * Remove `name` from `dir` when a record listed it, it is named as `kind` (a temporary or a commit record), and
- * the process its name carries is gone; say whether the name was of that kind.
+ * the process its name carries is gone. Gives undefined when the name is not of that kind, else false when it
+ * could not be removed (another user's, in a shared folder), true otherwise.
  */
-function removeLeft(dir: string, name: string, kind: RegExp): boolean {
+function removeLeft(dir: string, name: string, kind: RegExp): boolean | undefined {
   const m = kind.exec(name);
-  if (!m) return false;
-  if (!alive(Number(m[1]))) rmSync(join(dir, name), { force: true, recursive: true });
-  return true;
+  if (!m) return undefined;
+  return alive(Number(m[1])) || removeQuietly(join(dir, name));
+}
+
+/**
+ * Remove a dead run's leftover (a file, a folder, a record); say whether it is gone. Clearing up after another run
+ * never ends this one: what cannot be removed (EPERM on another user's file in a sticky folder) stays.
+ */
+function removeQuietly(path: string): boolean {
+  try {
+    rmSync(path, { force: true, recursive: true });
+    return true;
+  } catch {
+    return false;
+  }
 }
 
 /**

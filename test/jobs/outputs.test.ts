@@ -3,7 +3,7 @@
 // output of a run (model, side file, reports) staged and renamed in together, or nothing written at all.
 import { describe, expect, it } from 'vitest';
 import { execFileSync, spawnSync } from 'node:child_process';
-import { appendFileSync, existsSync, linkSync, lstatSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync, symlinkSync, utimesSync, writeFileSync } from 'node:fs';
+import { appendFileSync, chmodSync, existsSync, linkSync, lstatSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync, symlinkSync, utimesSync, writeFileSync } from 'node:fs';
 import { OutputSet, recoverFolder } from '../../src/jobs/outputs.js';
 import { IntentLog } from '../../src/onnx/intent.js';
 import { tmpdir } from 'node:os';
@@ -506,6 +506,60 @@ describe('only what pleat provably made is cleared', () => {
     writeFileSync(join(dir, `.pleat-${dead}-f0f00-c.onnx.tmp`), 'mine');
     recoverFolder(dir);
     expect(readdirSync(dir).sort()).toEqual([`${stem}1-b.onnx.tmp`, `.pleat-${dead}-f0f0.intent`, `.pleat-${dead}-f0f00-c.onnx.tmp`].sort());
+  });
+});
+
+// A forged or corrupt intent record naming a file that can be no folder entry (a NUL byte, a name past 255 bytes)
+// ended every run writing to that folder in an internal error (exit 3) when recovery tried to remove it; one naming
+// a commit record whose paths are such was the same. pleat never writes such a name: the record is not pleat's,
+// and is left alone with everything it names.
+describe('a corrupt intent record is left alone and never ends the run', () => {
+  const dead = 2 ** 22 + 32345;
+  const HEAD = 'pleat intent record: the files below are made by this run, each named before it is made\n';
+  const record = (names: string[]) => HEAD + names.map((n) => `${JSON.stringify(n)}\n`).join('');
+  const corrupt: Array<[string, string]> = [
+    [`.pleat-${dead}-n0.intent`, record([`.pleat-${dead}-n00-a\u0000b.tmp`])],
+    [`.pleat-${dead}-n1.intent`, record([`.pleat-${dead}-n10-${'x'.repeat(300)}.tmp`])],
+    [`.pleat-${dead}-n2.intent`, record([`.pleat-${dead}-n20-ok.tmp`, `.pleat-${dead}-n2.commit`, `.pleat-${dead}-n21-z\u0000.tmp`])],
+    [`.pleat-${dead}-n3.intent`, record(['..', '.'])],
+  ];
+  it.each([['fold', (dir: string) => ['fold', 'models/tray-edge.onnx', '-o', join(dir, 'c.onnx'), '--quiet']],
+    ['evaluate --save', (dir: string) => ['evaluate', 'models/tray-edge.onnx', '--save', join(dir, 'ev')]]] as const)('%s', (_, args) => {
+    const dir = tmp();
+    for (const [n, body] of corrupt) writeFileSync(join(dir, n), body);
+    // a file a corrupt record names beside a valid name is not removed either: the record as a whole is not followed
+    writeFileSync(join(dir, `.pleat-${dead}-n20-ok.tmp`), 'kept');
+    const r = pleat(args(dir));
+    expect(r.code, r.stderr).toBe(0);
+    expect(r.stderr).not.toMatch(/internal error/);
+    for (const [n, body] of corrupt) expect(readFileSync(join(dir, n), 'utf8'), n).toBe(body);
+    expect(readFileSync(join(dir, `.pleat-${dead}-n20-ok.tmp`), 'utf8')).toBe('kept');
+  });
+  it('a commit record whose paths hold a NUL byte or a name past 255 bytes is not carried out, and ends no run', () => {
+    const dir = tmp();
+    writeFileSync(join(dir, 'keep.txt'), 'mine');
+    for (const [k, bad] of [['c0', 'a\u0000b'], ['c1', 'y'.repeat(300)]] as const) {
+      const rec = join(dir, `.pleat-${dead}-${k}.commit`);
+      plantRecord(rec, [{ tmp: join(dir, `.pleat-${dead}-${k}0-${bad}.tmp`), dest: join(dir, bad) }]);
+    }
+    const r = pleat(['fold', 'models/tray-edge.onnx', '-o', join(dir, 'c.onnx'), '--quiet']);
+    expect(r.code, r.stderr).toBe(0);
+    // (a valid intent record names each: a commit record not in pleat's form goes with it, as one cut short by a kill)
+    expect(readdirSync(dir).sort()).toEqual(['c.onnx', 'keep.txt']);
+    expect(readFileSync(join(dir, 'keep.txt'), 'utf8')).toBe('mine');
+  });
+  // (in a shared sticky folder such as /tmp, another user's dead run left its temporary: removing it is EPERM)
+  it.skipIf(process.getuid?.() !== 0)('a temporary that cannot be removed stays, named by its record, and the run goes on (skipped unless root: it runs pleat as nobody)', () => {
+    const dir = tmp();
+    chmodSync(dir, 0o1777);
+    const stuck = join(dir, `.pleat-${dead}-s00-x.tmp`);
+    writeFileSync(stuck, 'staged by another user');
+    new IntentLog(`.pleat-${dead}-s0`).note(stuck);
+    const r = spawnSync(process.execPath, [CLI, 'fold', 'models/tray-edge.onnx', '-o', join(dir, 'c.onnx'), '--quiet'], {
+      cwd: ROOT, encoding: 'utf8', uid: 65534, gid: 65534, env: { ...process.env, NO_COLOR: '1', CI: 'true' },
+    });
+    expect(r.status, r.stderr).toBe(0);
+    expect(readdirSync(dir).sort()).toEqual([`.pleat-${dead}-s0.intent`, `.pleat-${dead}-s00-x.tmp`, 'c.onnx']);
   });
 });
 
