@@ -71,7 +71,7 @@ const reportRole = (spec: { format: Format }) => `--report (${spec.format})`;
  * an output, no two outputs share a file), so a usage mistake never costs a long job or writes anything.
  */
 export async function checkDestinations(plan: ReportPlan, guard: OutputGuard): Promise<void> {
-  const { OutputSet } = await import('../src/jobs/outputs.js');
+  const { OutputSet } = await outputsModule();
   const tx = new OutputSet();
   try {
     protectReads(tx, guard);
@@ -82,9 +82,19 @@ export async function checkDestinations(plan: ReportPlan, guard: OutputGuard): P
   }
 }
 
-/** A new output transaction (loaded when used: --help needs none of it). */
+/**
+ * The output transaction's module (loaded when used: --help needs none of it), its notices about leftovers it
+ * leaves alone (a record it cannot tell for pleat's) printed as one `pleat: warning:` line each.
+ */
+export async function outputsModule(): Promise<typeof import('../src/jobs/outputs.js')> {
+  const m = await import('../src/jobs/outputs.js');
+  m.onOutputNotice((text) => sayError(`warning: ${text}`));
+  return m;
+}
+
+/** A new output transaction. */
 async function openOutputs(): Promise<OutputSet> {
-  const { OutputSet } = await import('../src/jobs/outputs.js');
+  const { OutputSet } = await outputsModule();
   return new OutputSet();
 }
 

@@ -79,11 +79,8 @@ export function recoverFolder(dir: string, inputOf: (path: string) => string | u
     // ours (this process's) or a live writer's, unless it is old enough that no writer can be behind it
     if (pid === process.pid && m[2]!.startsWith(PROCESS_TAG)) continue;
     if (alive(pid) && !staleRecord(join(dir, n))) continue; // (alive: any record of this process number)
-    // pleat names its commit record in its intent record before writing it: a file no record names is not
-    // pleat's, however it is named and whatever it holds (a user's `[]` under that name is theirs)
-    if (!readIntent(join(dir, n.replace(/\.commit$/, '.intent')))?.includes(n)) continue;
-    const list = readCommitRecord(join(dir, n));
-    if (!list) continue; // not in pleat's form: a user's file, or one cut short by a kill (its intent record names it)
+    const list = commitRecordOf(dir, n, m[1]!, m[2]!);
+    if (!list) continue;
     const ours = list.length > 0 && resolve(dirname(list[0]!.dest)) === resolve(dir) && list.every((f) => {
       const t = TEMP_NAME.exec(basename(f.tmp));
       return t !== null && t[1] === m[1] && dirname(resolve(f.tmp)) === dirname(resolve(f.dest))
@@ -129,6 +126,78 @@ export function recoverFolder(dir: string, inputOf: (path: string) => string | u
     for (const name of listed) if ((removeLeft(dir, name, TEMP_NAME) ?? removeLeft(dir, name, COMMIT_NAME)) === false) cleared = false;
     if (cleared) removeQuietly(join(dir, n));
   }
+}
+
+/**
+ * The entries of a dead run's commit record `name` in `dir` when it is pleat's, else undefined. pleat names its
+ * commit record in its intent record before writing it: when an intent record of that run is beside it, the
+ * record is pleat's only when that names it (a user's `[]` under that name is theirs). With no intent record there,
+ * it may be a record of a pleat from before intent records: carried out, as such a pleat would, only when it is
+ * byte for byte what that pleat wrote (oldCommitRecord); anything else is left alone and named once in a notice.
+ */
+function commitRecordOf(dir: string, name: string, pid: string, token: string): StagedFile[] | undefined {
+  const intent = join(dir, name.replace(/\.commit$/, '.intent'));
+  if (lstatSync(intent, { throwIfNoEntry: false })) {
+    if (!readIntent(intent)?.includes(name)) return undefined;
+    return readCommitRecord(join(dir, name)); // (not in pleat's form: one cut short by a kill, which its intent record names)
+  }
+  const old = oldCommitRecord(dir, name, pid, token);
+  if (!old) notice(join(dir, name), `${join(dir, name)}: named like a pleat commit record, but no intent record names it and it is not in the exact form of a record from a pleat before intent records; left alone (remove it if it is not yours)`);
+  return old;
+}
+
+/** The token of a transaction of a pleat from before intent records: 10 hex digits, or 14 (its process tag first). */
+const OLD_TOKEN = /^(?:[0-9a-f]{10}|[0-9a-f]{14})$/;
+/** Such a pleat's temporary name up to its destination's name: `.pleat-<pid>-<token><counter>`. */
+const OLD_TEMP_HEAD = /^\.pleat-(\d+)-[0-9a-f]{10}(?:[0-9a-f]{4})?[0-9]+$/;
+
+/**
+ * The entries of a commit record written by a pleat from before intent records (before 2026-12-03's bd21e0d), or
+ * undefined when the file is not exactly one. Such a pleat wrote JSON.stringify of its staged files: a non-empty
+ * array of {"tmp", "dest"} or {"tmp", "dest", "folder": true}, keys in that order, no space; every path absolute
+ * and normal, each temporary beside its destination and named `.pleat-<pid>-<token><counter>-<dest name>.tmp` with
+ * the record's own process number, no destination twice, and the record in the folder of the first destination.
+ */
+function oldCommitRecord(dir: string, name: string, pid: string, token: string): StagedFile[] | undefined {
+  if (!OLD_TOKEN.test(token)) return undefined;
+  let text: string, list: unknown;
+  try {
+    text = readFileSync(join(dir, name), 'utf8');
+    list = JSON.parse(text);
+  } catch {
+    return undefined;
+  }
+  if (!Array.isArray(list) || list.length === 0 || JSON.stringify(list) !== text) return undefined;
+  const dests = new Set<string>();
+  for (const f of list as Array<Record<string, unknown>>) {
+    if (typeof f !== 'object' || f === null || Array.isArray(f)) return undefined;
+    const keys = Object.keys(f).join(',');
+    if (keys !== 'tmp,dest' && !(keys === 'tmp,dest,folder' && f.folder === true)) return undefined;
+    const { tmp, dest } = f;
+    if (!isPathText(tmp) || !isPathText(dest) || resolve(dest) !== dest || resolve(tmp) !== tmp || dirname(tmp) !== dirname(dest)) return undefined;
+    const tail = `-${basename(dest)}.tmp`;
+    const head = OLD_TEMP_HEAD.exec(basename(tmp).slice(0, -tail.length));
+    if (!basename(tmp).endsWith(tail) || head?.[1] !== pid || dests.has(dest)) return undefined;
+    dests.add(dest);
+  }
+  const files = list as StagedFile[];
+  return dirname(files[0]!.dest) === resolve(dir) ? files : undefined;
+}
+
+/** What a run tells about leftovers it leaves alone (the CLI prints it as a warning line; see onOutputNotice). */
+let noticeHandler: (text: string) => void = (text) => process.emitWarning(text);
+const noticed = new Set<string>();
+
+/** Where notices about leftovers go (the CLI: a `pleat: warning:` line on stderr); by default, process warnings. */
+export function onOutputNotice(handler: (text: string) => void): void {
+  noticeHandler = handler;
+}
+
+/** Tell once per process about `path` (from the main thread, which looks at every folder a worker does). */
+function notice(path: string, text: string): void {
+  if (!isMainThread || noticed.has(path)) return;
+  noticed.add(path);
+  noticeHandler(text);
 }
 
 /** The entries of a commit record, or undefined when the file is not one in pleat's form. */
