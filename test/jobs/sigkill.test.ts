@@ -234,6 +234,30 @@ describe('a TERM or Ctrl-C during the work', () => {
     expect(readdirSync(nested)).toContain('outputs.json');
   });
 
+  // --out-dir was made (with its missing parents) before any work and stayed when the run was refused, failed its
+  // gate (exit 1, "nothing written by fold") or was cancelled
+  it('fold --out-dir into folders not there yet: a run that writes nothing there leaves none of them', () => {
+    const dir = mkdtempSync(join(tmpdir(), 'pleat-term-'));
+    const models = [MODEL, 'models/pump-vibration.onnx'];
+    const outDir = join(dir, 'a', 'b');
+    const refused = pleat(['fold', ...models, '--out-dir', outDir, '--dim', 'nosuch=1']);
+    expect(refused.code, refused.stderr).toBe(2);
+    expect(readdirSync(dir)).toEqual([]);
+    const gate = pleat(['fold', ...models, '--out-dir', outDir, '--gate', 'maxAbs < 0', '--quiet']);
+    expect(gate.code, gate.stderr).toBe(1);
+    expect(readdirSync(dir)).toEqual([]);
+    const term = run(['fold', MODEL, '--out-dir', outDir, '--quiet'], { PLEAT_SIGNAL_BEFORE_COMMIT: '1' });
+    expect(term.status, term.stderr).toBe(143);
+    expect(readdirSync(dir)).toEqual([]);
+    // a folder that was there is never removed, even when nothing is written into it
+    mkdirSync(join(dir, 'kept'));
+    expect(pleat(['fold', ...models, '--out-dir', join(dir, 'kept'), '--gate', 'maxAbs < 0', '--quiet']).code).toBe(1);
+    expect(readdirSync(dir)).toEqual(['kept']);
+    const ok = pleat(['fold', ...models, '--out-dir', outDir, '--quiet']);
+    expect(ok.code, ok.stderr).toBe(0);
+    expect(readdirSync(outDir).sort()).toEqual(['pump-vibration.onnx', 'tray-edge.onnx']);
+  });
+
   // a batch's workers had their files staged when the signal came: the process exited 143 and left them there
   it('batch: TERM while a worker holds its staged files exits 143, reports nothing, renames nothing in, leaves nothing', () => {
     const dir = mkdtempSync(join(tmpdir(), 'pleat-term-'));
@@ -255,7 +279,6 @@ describe('a TERM or Ctrl-C during the work', () => {
     const r = run(['fold', 'models/tray-sorter.onnx', MODEL, '--out-dir', join(dir, 'out'), '--report', join(dir, 'r.json'), '--quiet'], { PLEAT_SIGNAL_BEFORE_COMMIT: 'SIGINT' });
     expect(r.status, r.stderr).toBe(130);
     expect(r.stdout).toBe('');
-    expect(readdirSync(join(dir, 'out'))).toEqual([]);
-    expect(readdirSync(dir)).toEqual(['out']);
+    expect(readdirSync(dir)).toEqual([]); // (not even the --out-dir folder it made)
   });
 });
