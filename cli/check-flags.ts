@@ -1,10 +1,10 @@
 // Checks the command line against the command's own option table before yargs' validation, so every mistake
 // gets one line of our wording: unknown options (with their dashes and the nearest known one), a single-value
-// option given twice, a value outside an option's choices (listed from the table), numbers that are not whole
-// or out of range, and an option missing its value. The table comes from the command's builder, so new
-// options and choices are checked without edits here.
+// option given twice, a value outside an option's choices (listed from the table), numbers not written in plain
+// decimal notation (0x10, 1e3 or ' 3' for a count), not whole or out of range, and an option missing its value.
+// The table comes from the command's builder, so new options and choices are checked without edits here.
 import { PleatError } from '../src/errors.js';
-import { numberFits } from '../src/verify/option-values.js';
+import { numberFits, plainNumberText } from '../src/verify/option-values.js';
 import { NUMBER_RULES, REPEATABLE } from './flags.js';
 import { nearest } from './suggest.js';
 
@@ -85,9 +85,14 @@ export function checkFlags(args: readonly string[], table: OptionTable): void {
     }
     if (table.number.includes(name)) {
       const rule = NUMBER_RULES[name] ?? { min: 0, what: 'a whole number (0 or more)' };
-      if (first.value!.trim() === '' || !numberFits(rule, Number(first.value))) {
-        throw new PleatError('usage', `${first.spelled} ${first.value}: give ${rule.what}`);
+      const text = first.value!;
+      // (the value as given: quoted when a space or nothing would not show in the line)
+      const shown = text === '' || /\s/.test(text) ? `'${text}'` : text;
+      if (!plainNumberText(rule, text)) {
+        const how = rule.real ? 'in decimal notation (e.g. 20, -2.5 or 1e-5)' : 'in plain decimal digits';
+        throw new PleatError('usage', `${first.spelled} ${shown}: give ${rule.what}, written ${how}`);
       }
+      if (!numberFits(rule, Number(text))) throw new PleatError('usage', `${first.spelled} ${shown}: give ${rule.what}`);
     }
   }
 }

@@ -7,6 +7,7 @@ import { join } from 'node:path';
 import { PleatError } from '../src/errors.js';
 import { checkProbeCount, checkSeed, loadInputFiles, parseInputFlags, type InputValue } from '../src/verify/inputs.js';
 import { MAX_PROBES, MAX_SEED } from '../src/verify/probe-bounds.js';
+import { PLAIN_WHOLE } from '../src/verify/option-values.js';
 import type { NameOrigins } from '../src/jobs/names.js';
 
 export const CONFIG_FILE = 'pleat.config.json';
@@ -29,14 +30,16 @@ export interface PleatConfig {
 }
 
 type Check = (v: unknown) => boolean;
-const isInt = (v: unknown) => typeof v === 'number' && Number.isInteger(v) && v >= 0;
+const isInt = (v: unknown) => typeof v === 'number' && Number.isSafeInteger(v) && v >= 0;
+/** A shape as text: sizes in plain decimal digits joined by x or a comma ("1x 3" or "1x0x2" is refused, as --shape refuses it). */
+const isShapeText = (v: string) => v.split(/[x,]/).every((d) => PLAIN_WHOLE.test(d)) || v === '';
 const isRecord = (v: unknown): v is Record<string, unknown> => typeof v === 'object' && v !== null && !Array.isArray(v);
 
 const KEYS: Record<keyof PleatConfig, { check: Check; want: string }> = {
   dims: { check: (v) => isRecord(v) && Object.values(v).every(isInt), want: 'an object of whole numbers, e.g. {"batch": 1}' },
   shapes: {
-    check: (v) => isRecord(v) && Object.values(v).every((s) => typeof s === 'string' || (Array.isArray(s) && s.every(isInt))),
-    want: 'an object of shapes, e.g. {"image": "1x3x224x224"}',
+    check: (v) => isRecord(v) && Object.values(v).every((s) => (typeof s === 'string' && isShapeText(s)) || (Array.isArray(s) && s.every(isInt))),
+    want: 'an object of shapes, each a string of sizes in plain decimal digits or an array of whole numbers, e.g. {"image": "1x3x224x224"}',
   },
   gate: { check: (v) => typeof v === 'string' && v.trim() !== '', want: 'a gate expression string' },
   keep: { check: (v) => Array.isArray(v) && v.every((s) => typeof s === 'string'), want: 'an array of node names' },
@@ -158,7 +161,8 @@ export interface RunSettings {
 
 /** `--max-probe-memory`: a whole number of bytes, or with a K, M or G suffix (powers of 1024). */
 export function parseBytes(flag: string, text: string): number {
-  const m = /^(\d+)([KMG]?)(i?B)?$/i.exec(text.trim());
+  // (plain decimal digits, as every count flag takes them: ' 512M' is refused, not read as 512M)
+  const m = /^(0|[1-9][0-9]*)([KMG]?)(i?B)?$/i.exec(text);
   const n = m ? Number(m[1]) * 1024 ** ' KMG'.indexOf((m[2] || ' ').toUpperCase()) : NaN;
   if (!Number.isSafeInteger(n) || n <= 0) throw new PleatError('usage', `--${flag} '${text}': give a number of bytes above 0, e.g. 536870912 or 512M`);
   return n;

@@ -1,5 +1,6 @@
 // Turning results into output: which format stdout gets (--format, or --json as its shorthand), the
 // --report files (each written atomically), and colour only for a person at a terminal.
+import { rmdirSync } from 'node:fs';
 import { dirname, resolve } from 'node:path';
 import { PleatError } from '../src/errors.js';
 import { FORMATS, useColour, type Format } from '../src/report/format.js';
@@ -71,7 +72,7 @@ const reportRole = (spec: { format: Format }) => `--report (${spec.format})`;
  * an output, no two outputs share a file), so a usage mistake never costs a long job or writes anything.
  */
 export async function checkDestinations(plan: ReportPlan, guard: OutputGuard): Promise<void> {
-  const { OutputSet } = await import('../src/jobs/outputs.js');
+  const { OutputSet } = await outputsModule();
   const tx = new OutputSet();
   try {
     protectReads(tx, guard);
@@ -82,9 +83,40 @@ export async function checkDestinations(plan: ReportPlan, guard: OutputGuard): P
   }
 }
 
-/** A new output transaction (loaded when used: --help needs none of it). */
+/**
+ * The output transaction's module (loaded when used: --help needs none of it), its notices about leftovers it
+ * leaves alone (a record it cannot tell for pleat's) printed as one `pleat: warning:` line each.
+ */
+export async function outputsModule(): Promise<typeof import('../src/jobs/outputs.js')> {
+  const m = await import('../src/jobs/outputs.js');
+  m.onOutputNotice((text) => sayError(`warning: ${text}`));
+  return m;
+}
+
+/**
+ * Folders a command made for its outputs, from `highest` down to `folder`, are removed at exit when they are still
+ * empty: a run refused, failed (a gate) or cancelled after making them leaves none of them. A folder holding
+ * anything stays, and so does every folder above it. (Removed after the output transaction's own clean-up, whose
+ * temporaries would keep them.)
+ */
+export async function removeAtExitIfEmpty(highest: string, folder: string): Promise<void> {
+  const { abortAllOutputs } = await outputsModule();
+  const chain: string[] = [];
+  for (let d = resolve(folder); ; d = dirname(d)) {
+    chain.push(d);
+    if (d === resolve(highest) || dirname(d) === d) break;
+  }
+  process.on('exit', () => {
+    abortAllOutputs();
+    for (const d of chain) {
+      try { rmdirSync(d); } catch { return; }
+    }
+  });
+}
+
+/** A new output transaction. */
 async function openOutputs(): Promise<OutputSet> {
-  const { OutputSet } = await import('../src/jobs/outputs.js');
+  const { OutputSet } = await outputsModule();
   return new OutputSet();
 }
 

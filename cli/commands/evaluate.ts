@@ -4,6 +4,7 @@ import { SCHEMA_VERSION } from '../../src/jobs/types.js';
 import { filesRead, loadConfig, runSettings } from '../config.js';
 import { out } from '../errors.js';
 import { signalsFirst } from '../cancel.js';
+import { outputsModule } from '../output.js';
 import { configFlags, EPILOGUE, inputFlags, threadsFlag } from '../flags.js';
 import { CHOICE_OPTIONS } from '../../src/verify/option-values.js';
 
@@ -24,6 +25,7 @@ export async function handler(argv: Flags): Promise<void> {
   const run = runSettings(config, argv);
   const threads = threadsFlag(argv.threads);
   // loaded here, not at start-up (see compare.ts)
+  await outputsModule(); // (its notices as warning lines)
   const { evaluate, saveOutputsStaged, setThreads } = await import('../../src/index.js');
   const { dataTypeName } = await import('../../src/graph/tensor.js');
   if (threads !== undefined) setThreads(threads);

@@ -3,6 +3,7 @@ import { useColour } from '../../src/report/format.js';
 import { keepList, loadConfig, nameOrigins, runSettings } from '../config.js';
 import { out } from '../errors.js';
 import { signalsFirst } from '../cancel.js';
+import { outputsModule } from '../output.js';
 import { configFlags, EPILOGUE, inputFlags, many, threadsFlag } from '../flags.js';
 import { CHOICE_OPTIONS } from '../../src/verify/option-values.js';
 
@@ -31,6 +32,7 @@ export async function handler(argv: Flags): Promise<void> {
   const run = runSettings(config, argv);
   const threads = threadsFlag(argv.threads);
   // loaded here, not at start-up (see compare.ts)
+  await outputsModule(); // (its notices as warning lines)
   const { setThreads } = await import('../../src/index.js'); // (which also loads the fold's proofs and checks)
   const { exportStaged } = await import('../../src/jobs/export.js');
   if (threads !== undefined) setThreads(threads);

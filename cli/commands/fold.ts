@@ -6,7 +6,7 @@ import type { FoldJobOptions } from '../../src/jobs/types.js';
 import { startSha256, stopSha256Ahead } from '../../src/jobs/sha256.js';
 import { filesRead, keepList, loadConfig, nameOrigins, runSettings } from '../config.js';
 import type { Job } from '../batch.js';
-import { checkDestinations, exitWhenWritten, planReports, runAndReport } from '../output.js';
+import { checkDestinations, exitWhenWritten, planReports, removeAtExitIfEmpty, runAndReport } from '../output.js';
 import { checkFlags, configFlags, EPILOGUE, inputFlags, int8Flags, int8Setting, many, reportFlags, threadsFlag } from '../flags.js';
 import { CHOICE_OPTIONS } from '../../src/verify/option-values.js';
 
@@ -37,12 +37,15 @@ interface Flags {
   strict?: boolean; saveProbes?: string;
 }
 
-/** Where each model's folded copy goes: -o for one model, --out-dir for any number. */
-function outputsFor(models: string[], out: string | undefined, outDir: string | undefined): string[] {
+/**
+ * Where each model's folded copy goes: -o for one model, --out-dir for any number; with the highest folder made
+ * for --out-dir, when any was.
+ */
+function outputsFor(models: string[], out: string | undefined, outDir: string | undefined): { paths: string[]; made?: string } {
   if (out !== undefined && outDir !== undefined) throw new PleatError('usage', 'give either -o/--out or --out-dir, not both');
   if (out !== undefined) {
     if (models.length > 1) throw new PleatError('usage', `-o names one output but ${models.length} models were given; use --out-dir DIR`);
-    return [out];
+    return { paths: [out] };
   }
   if (outDir === undefined) throw new PleatError('usage', 'fold needs -o OUT (one model) or --out-dir DIR (any number of models)');
   const names = models.map((m) => basename(m));
@@ -53,13 +56,14 @@ function outputsFor(models: string[], out: string | undefined, outDir: string | 
   if (twin >= 0) {
     throw new PleatError('usage', `${models[names.indexOf(names[twin]!)]} and ${models[twin]} are both named '${names[twin]}', so --out-dir would write them to one file; fold them separately`);
   }
+  let made: string | undefined;
   try {
-    mkdirSync(outDir, { recursive: true });
+    made = mkdirSync(outDir, { recursive: true });
   } catch (e) {
     throw new PleatError('bad-input', `--out-dir ${outDir}: cannot create the folder (${(e as NodeJS.ErrnoException).code ?? String(e)})`);
   }
   // paths as given: the folder the user typed, then the file name (join would rewrite ./out/ as out)
-  return names.map((n) => (outDir.endsWith('/') || outDir.endsWith(sep) ? `${outDir}${n}` : `${outDir}/${n}`));
+  return { paths: names.map((n) => (outDir.endsWith('/') || outDir.endsWith(sep) ? `${outDir}${n}` : `${outDir}/${n}`)), made };
 }
 
 function quantThreshold(db: number | undefined): number | undefined {
@@ -72,7 +76,9 @@ export async function handler(argv: Flags): Promise<void> {
   const { config, file, path } = loadConfig(argv.config);
   const run = runSettings(config, argv);
   const reads = filesRead(path, run.inputs);
-  const outputs = outputsFor(argv.models, argv.out, argv.outDir);
+  const { paths: outputs, made } = outputsFor(argv.models, argv.out, argv.outDir);
+  // (the folders must be there for the outputs to be claimed in them; a run that writes nothing there takes them away)
+  if (made !== undefined) await removeAtExitIfEmpty(made, argv.outDir!);
   const opts: FoldJobOptions = {
     inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, probes: run.probes, gate: run.gate, maxProbeMemory: run.maxProbeMemory,
     keep: keepList(config, argv.keep), store: argv.store ?? config.store, allowOverridable: argv.allowOverridable,

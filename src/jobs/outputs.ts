@@ -14,17 +14,14 @@
 import { accessSync, constants, lstatSync, mkdirSync, readdirSync, readFileSync, renameSync, rmSync, statSync, writeFileSync } from 'node:fs';
 import { randomBytes } from 'node:crypto';
 import { isMainThread } from 'node:worker_threads';
-import { basename, dirname, join, resolve } from 'node:path';
+import { basename, dirname, join, relative, resolve } from 'node:path';
 import { PleatError } from '../errors.js';
 import { entryAt, fileKeys, specialKind } from '../onnx/paths.js';
-import { COMMIT_NAME, INTENT_NAME, IntentLog, readIntent, TEMP_NAME } from '../onnx/intent.js';
+import { COMMIT_NAME, INTENT_NAME, IntentLog, isPathText, NAME_MAX, readIntent, TEMP_NAME } from '../onnx/intent.js';
 import { ownsSideFile } from '../onnx/side-owner.js';
 import type { StagedFile } from '../onnx/write.js';
 
 export type { StagedFile };
-
-/** The longest name of a folder entry (Linux and most file systems: 255 bytes). */
-const NAME_MAX = 255;
 
 /** Test hook: PLEAT_KILL_AT=<point> kills the process at that point of a commit (the SIGKILL test). */
 function killPoint(point: string): void {
@@ -82,11 +79,8 @@ export function recoverFolder(dir: string, inputOf: (path: string) => string | u
     // ours (this process's) or a live writer's, unless it is old enough that no writer can be behind it
     if (pid === process.pid && m[2]!.startsWith(PROCESS_TAG)) continue;
     if (alive(pid) && !staleRecord(join(dir, n))) continue; // (alive: any record of this process number)
-    // pleat names its commit record in its intent record before writing it: a file no record names is not
-    // pleat's, however it is named and whatever it holds (a user's `[]` under that name is theirs)
-    if (!readIntent(join(dir, n.replace(/\.commit$/, '.intent')))?.includes(n)) continue;
-    const list = readCommitRecord(join(dir, n));
-    if (!list) continue; // not in pleat's form: a user's file, or one cut short by a kill (its intent record names it)
+    const list = commitRecordOf(dir, n, m[1]!, m[2]!);
+    if (!list) continue;
     const ours = list.length > 0 && resolve(dirname(list[0]!.dest)) === resolve(dir) && list.every((f) => {
       const t = TEMP_NAME.exec(basename(f.tmp));
       return t !== null && t[1] === m[1] && dirname(resolve(f.tmp)) === dirname(resolve(f.dest))
@@ -116,8 +110,9 @@ export function recoverFolder(dir: string, inputOf: (path: string) => string | u
       }
     }
     // the temporaries it lists in this folder that were not renamed in (a dropped record's) go with it
-    for (const f of list) if (dirname(resolve(f.tmp)) === resolve(dir)) removeLeft(dir, basename(f.tmp), TEMP_NAME);
-    rmSync(join(dir, n), { force: true });
+    let cleared = true;
+    for (const f of list) if (dirname(resolve(f.tmp)) === resolve(dir) && removeLeft(dir, basename(f.tmp), TEMP_NAME) === false) cleared = false;
+    if (cleared) removeQuietly(join(dir, n));
   }
   // what dead runs named before making it; a record of this process's number is never taken for a dead run's
   // (another container's run may carry that number: its files stay)
@@ -126,16 +121,91 @@ export function recoverFolder(dir: string, inputOf: (path: string) => string | u
     if (!m || alive(Number(m[1]))) continue;
     const listed = readIntent(join(dir, n));
     if (!listed) continue; // not in pleat's form: not ours to remove
-    for (const name of listed) removeLeft(dir, name, TEMP_NAME) || removeLeft(dir, name, COMMIT_NAME);
-    rmSync(join(dir, n), { force: true });
+    // (a record stays while a file it names does: the next run tries again)
+    let cleared = true;
+    for (const name of listed) if ((removeLeft(dir, name, TEMP_NAME) ?? removeLeft(dir, name, COMMIT_NAME)) === false) cleared = false;
+    if (cleared) removeQuietly(join(dir, n));
   }
+}
+
+/**
+ * The entries of a dead run's commit record `name` in `dir` when it is pleat's, else undefined. pleat names its
+ * commit record in its intent record before writing it: when an intent record of that run is beside it, the
+ * record is pleat's only when that names it (a user's `[]` under that name is theirs). With no intent record there,
+ * it may be a record of a pleat from before intent records: carried out, as such a pleat would, only when it is
+ * byte for byte what that pleat wrote (oldCommitRecord); anything else is left alone and named once in a notice.
+ */
+function commitRecordOf(dir: string, name: string, pid: string, token: string): StagedFile[] | undefined {
+  const intent = join(dir, name.replace(/\.commit$/, '.intent'));
+  if (lstatSync(intent, { throwIfNoEntry: false })) {
+    if (!readIntent(intent)?.includes(name)) return undefined;
+    return readCommitRecord(join(dir, name)); // (not in pleat's form: one cut short by a kill, which its intent record names)
+  }
+  const old = oldCommitRecord(dir, name, pid, token);
+  if (!old) notice(join(dir, name), `${join(dir, name)}: named like a pleat commit record, but no intent record names it and it is not in the exact form of a record from a pleat before intent records; left alone (remove it if it is not yours)`);
+  return old;
+}
+
+/** The token of a transaction of a pleat from before intent records: 10 hex digits, or 14 (its process tag first). */
+const OLD_TOKEN = /^(?:[0-9a-f]{10}|[0-9a-f]{14})$/;
+/** Such a pleat's temporary name up to its destination's name: `.pleat-<pid>-<token><counter>`. */
+const OLD_TEMP_HEAD = /^\.pleat-(\d+)-[0-9a-f]{10}(?:[0-9a-f]{4})?[0-9]+$/;
+
+/**
+ * The entries of a commit record written by a pleat from before intent records (before 2026-12-03's bd21e0d), or
+ * undefined when the file is not exactly one. Such a pleat wrote JSON.stringify of its staged files: a non-empty
+ * array of {"tmp", "dest"} or {"tmp", "dest", "folder": true}, keys in that order, no space; every path absolute
+ * and normal, each temporary beside its destination and named `.pleat-<pid>-<token><counter>-<dest name>.tmp` with
+ * the record's own process number, no destination twice, and the record in the folder of the first destination.
+ */
+function oldCommitRecord(dir: string, name: string, pid: string, token: string): StagedFile[] | undefined {
+  if (!OLD_TOKEN.test(token)) return undefined;
+  let text: string, list: unknown;
+  try {
+    text = readFileSync(join(dir, name), 'utf8');
+    list = JSON.parse(text);
+  } catch {
+    return undefined;
+  }
+  if (!Array.isArray(list) || list.length === 0 || JSON.stringify(list) !== text) return undefined;
+  const dests = new Set<string>();
+  for (const f of list as Array<Record<string, unknown>>) {
+    if (typeof f !== 'object' || f === null || Array.isArray(f)) return undefined;
+    const keys = Object.keys(f).join(',');
+    if (keys !== 'tmp,dest' && !(keys === 'tmp,dest,folder' && f.folder === true)) return undefined;
+    const { tmp, dest } = f;
+    if (!isPathText(tmp) || !isPathText(dest) || resolve(dest) !== dest || resolve(tmp) !== tmp || dirname(tmp) !== dirname(dest)) return undefined;
+    const tail = `-${basename(dest)}.tmp`;
+    const head = OLD_TEMP_HEAD.exec(basename(tmp).slice(0, -tail.length));
+    if (!basename(tmp).endsWith(tail) || head?.[1] !== pid || dests.has(dest)) return undefined;
+    dests.add(dest);
+  }
+  const files = list as StagedFile[];
+  return dirname(files[0]!.dest) === resolve(dir) ? files : undefined;
+}
+
+/** What a run tells about leftovers it leaves alone (the CLI prints it as a warning line; see onOutputNotice). */
+let noticeHandler: (text: string) => void = (text) => process.emitWarning(text);
+const noticed = new Set<string>();
+
+/** Where notices about leftovers go (the CLI: a `pleat: warning:` line on stderr); by default, process warnings. */
+export function onOutputNotice(handler: (text: string) => void): void {
+  noticeHandler = handler;
+}
+
+/** Tell once per process about `path` (from the main thread, which looks at every folder a worker does). */
+function notice(path: string, text: string): void {
+  if (!isMainThread || noticed.has(path)) return;
+  noticed.add(path);
+  noticeHandler(text);
 }
 
 /** The entries of a commit record, or undefined when the file is not one in pleat's form. */
 function readCommitRecord(path: string): StagedFile[] | undefined {
   try {
     const parsed = JSON.parse(readFileSync(path, 'utf8')) as unknown;
-    if (!Array.isArray(parsed) || !parsed.every((f) => typeof f?.tmp === 'string' && typeof f?.dest === 'string')) return undefined;
+    // (a path no file can have, with a NUL byte or an overlong part, is not pleat's: acting on it could only fail)
+    if (!Array.isArray(parsed) || !parsed.every((f) => isPathText(f?.tmp) && isPathText(f?.dest))) return undefined;
     return parsed as StagedFile[];
   } catch {
     return undefined;
@@ -144,13 +214,37 @@ function readCommitRecord(path: string): StagedFile[] | undefined {
 
 /**
  * Remove `name` from `dir` when a record listed it, it is named as `kind` (a temporary or a commit record), and
- * the process its name carries is gone; say whether the name was of that kind.
+ * the process its name carries is gone. Gives undefined when the name is not of that kind, else false when it
+ * could not be removed (another user's, in a shared folder), true otherwise.
  */
-function removeLeft(dir: string, name: string, kind: RegExp): boolean {
+function removeLeft(dir: string, name: string, kind: RegExp): boolean | undefined {
   const m = kind.exec(name);
-  if (!m) return false;
-  if (!alive(Number(m[1]))) rmSync(join(dir, name), { force: true, recursive: true });
-  return true;
+  if (!m) return undefined;
+  return alive(Number(m[1])) || removeQuietly(join(dir, name));
+}
+
+/**
+ * Remove a dead run's leftover (a file, a folder, a record); say whether it is gone. Clearing up after another run
+ * never ends this one: what cannot be removed (EPERM on another user's file in a sticky folder) stays.
+ */
+function removeQuietly(path: string): boolean {
+  try {
+    rmSync(path, { force: true, recursive: true });
+    return true;
+  } catch {
+    return false;
+  }
+}
+
+/**
+ * The highest folder on the way to `folder` (itself, or one above it) that does not exist yet. A link to nothing
+ * counts as there: the folder below it is refused as having no parent, not made in the link's place.
+ */
+function highestMissing(folder: string, label: string): string {
+  const there = (p: string) => entryAt(p, label) !== undefined || lstatSync(p, { throwIfNoEntry: false }) !== undefined;
+  let top = resolve(folder);
+  for (let up = dirname(top); up !== top && !there(up); up = dirname(up)) top = up;
+  return top;
 }
 
 const live = new Set<OutputSet>();
@@ -349,9 +443,10 @@ export class OutputSet {
 
   /**
    * Stage the files of `folder` (name, writer of the file at the path it is given): when the folder exists, each
-   * file at a temporary name beside it; otherwise the folder whole, made at a temporary name, so a run that does
-   * not commit leaves no folder either. Gives the staged path of each file, by name (to be read back before the
-   * commit).
+   * file at a temporary name beside it; otherwise the highest folder on its path that is not there yet, whole, made
+   * at a temporary name with the folders below it inside, so a run that does not commit leaves no folder either
+   * (`a/b/c` with no `a/b`: `a/b` is staged). Gives the staged path of each file, by name (to be read back before
+   * the commit).
    */
   stageFiles(folder: string, exists: boolean, files: ReadonlyArray<readonly [string, (path: string) => void]>, role: string): Map<string, string> {
     const staged = new Map<string, string>();
@@ -359,11 +454,13 @@ export class OutputSet {
       const targets = files.map(([name]) => this.reserve(join(folder, name), role));
       files.forEach(([name, write], i) => this.stage(targets[i]!, (tmp) => { staged.set(name, tmp); write(tmp); }));
     } else {
-      this.reserveFolder(folder, role);
-      this.stageFolder(folder, (tmp) => {
-        mkdirSync(tmp);
+      const top = highestMissing(folder, `${role} ${folder}`);
+      this.reserveFolder(top, role);
+      this.stageFolder(top, (tmp) => {
+        const inside = join(tmp, relative(top, resolve(folder)));
+        mkdirSync(inside, { recursive: true });
         for (const [name, write] of files) {
-          const path = join(tmp, name);
+          const path = join(inside, name);
           staged.set(name, path);
           write(path);
         }

@@ -1,9 +1,10 @@
 // Saving a run's outputs (evaluate --save): DIR/<safe name>.npy for each output and DIR/outputs.json, written
 // through the output transaction (outputs.ts), so they are renamed in together or not at all, and a killed run's
 // temporaries are named in intent records for the next run to clear. A folder not there yet is staged whole at a
-// temporary name beside it, so a run that does not commit leaves no folder either (its missing parents are made).
-import { mkdirSync, statSync, writeFileSync } from 'node:fs';
-import { dirname, resolve } from 'node:path';
+// temporary name beside it, and so is the highest of its missing parents (`--save a/b/c` with no `a/b`: `a/b`,
+// holding c), so a run that does not commit leaves no folder either; they are all renamed in at the commit.
+import { statSync, writeFileSync } from 'node:fs';
+import { resolve } from 'node:path';
 import { PleatError } from '../errors.js';
 import type { Value } from '../eval/value.js';
 import { outputFiles, type SavedOutputs, type SaveOptions } from '../verify/evaluate.js';
@@ -33,9 +34,6 @@ export function saveOutputsStaged(dir: string, outputs: ReadonlyMap<string, Valu
   } catch (e) {
     if (e instanceof PleatError) throw e;
     throw cannotCreate(dir, (e as NodeJS.ErrnoException).code);
-  }
-  if (!exists) {
-    try { mkdirSync(dirname(full), { recursive: true }); } catch (e) { throw cannotCreate(dir, (e as NodeJS.ErrnoException).code); }
   }
   const tx = new OutputSet();
   try {

@@ -4,7 +4,8 @@
 // one copied from another machine) is never removed. The record starts with a header line, then one JSON-quoted
 // file name a line, appended before each file is made: a run killed while appending leaves a last line without
 // its line end, which names nothing made yet and is ignored. A file in any other form (one cut short within its
-// header, or empty, included) is not a record, and is left alone.
+// header, or empty, included, or one naming something that can be no folder entry) is not a record, and is left
+// alone with all it names.
 import { appendFileSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { basename, dirname, join } from 'node:path';
 
@@ -16,6 +17,23 @@ export const COMMIT_NAME = /^\.pleat-(\d+)-([0-9a-z]+)\.commit$/;
 export const INTENT_NAME = /^\.pleat-(\d+)-([0-9a-z]+)\.intent$/;
 
 const HEADER = 'pleat intent record: the files below are made by this run, each named before it is made\n';
+
+/** The longest name of a folder entry (Linux and most file systems: 255 bytes). */
+export const NAME_MAX = 255;
+
+/**
+ * Whether `name` can be a folder entry: not empty, not . or .., no slash or NUL, at most NAME_MAX bytes. Every name
+ * pleat records is one; a record naming anything else was not written by pleat (forged or corrupt), and acting
+ * on it could only fail (a NUL byte or an overlong name is an error from the file system calls, not a file).
+ */
+export function isEntryName(name: string): boolean {
+  return name !== '' && name !== '.' && name !== '..' && !/[/\0]/.test(name) && Buffer.byteLength(name) <= NAME_MAX;
+}
+
+/** Whether `path` can name a file: a string with no NUL byte whose every part is at most NAME_MAX bytes. */
+export function isPathText(path: unknown): path is string {
+  return typeof path === 'string' && path !== '' && !path.includes('\0') && path.split('/').every((p) => Buffer.byteLength(p) <= NAME_MAX);
+}
 
 /** The intent records of one writer, one per folder it makes files in. */
 export class IntentLog {
@@ -59,7 +77,7 @@ export function readIntent(path: string): string[] | undefined {
   for (const l of lines) {
     let name: unknown;
     try { name = JSON.parse(l); } catch { return undefined; }
-    if (typeof name !== 'string' || name === '' || name !== basename(name)) return undefined;
+    if (typeof name !== 'string' || !isEntryName(name)) return undefined;
     names.push(name);
   }
   return names;

@@ -4,7 +4,7 @@
 // renamed into place together, so a failure leaves no partial bundle.
 import { ensureLoaded } from '../onnx/sparse-read.js';
 import { entryAt, specialKind } from '../onnx/paths.js';
-import { accessSync, closeSync, constants, lstatSync, mkdirSync, openSync, renameSync, rmSync, statSync, writeSync } from 'node:fs';
+import { accessSync, closeSync, constants, lstatSync, mkdirSync, openSync, renameSync, rmdirSync, rmSync, statSync, writeSync } from 'node:fs';
 import { basename, dirname, join, resolve, sep } from 'node:path';
 import { DataType, elementCount, type Attribute, type DataTypeCode, type Graph, type Model, type Node, type Tensor, type ValueInfo } from '../graph/ir.js';
 import { PleatError } from '../errors.js';
@@ -467,7 +467,13 @@ export function exportBundle(model: Model, dir: string, format: BundleFormat): B
   const planned = planBundle(model, folder.full, format);
   if (!folder.exists) createBundleFolder(folder.full);
   let readBack: BundleReadBack | undefined;
-  writeFilesAtomically(planned.result.dir, planned.files, model.sourcePath, (staged) => { readBack = readBackBundle(model, format, staged); });
+  try {
+    writeFilesAtomically(planned.result.dir, planned.files, model.sourcePath, (staged) => { readBack = readBackBundle(model, format, staged); });
+  } catch (e) {
+    // the folder this call made goes with its files (a failed read back left it, empty); rmdir takes only an empty one
+    if (!folder.exists) { try { rmdirSync(folder.full); } catch { /* something else was put there: left */ } }
+    throw e;
+  }
   return asGiven({ ...planned.result, readBack: readBack! }, dir);
 }
 

@@ -3,6 +3,7 @@
 // gives.
 import { readFileSync, statSync } from 'node:fs';
 import { MAX_PROBES, MAX_SEED } from './probe-bounds.js';
+import { PLAIN_WHOLE } from './option-values.js';
 import { extname } from 'node:path';
 import { DataType, elementCount, type DataTypeCode, type Dim, type Graph, type ValueInfo } from '../graph/ir.js';
 import type { Value } from '../eval/value.js';
@@ -43,8 +44,11 @@ function splitFlag(flag: string, text: string, form: string, last: boolean): [st
 }
 
 function count(flag: string, text: string, s: string): number {
-  if (!/^\d+$/.test(s.trim())) throw new PleatError('usage', `--${flag} '${text}': '${s}' is not a non-negative whole number`);
-  return Number(s.trim());
+  // (plain decimal digits only, as every count flag takes them: ' 3', 010 or 0x10 is refused, not read as 3, 10, 16)
+  if (!PLAIN_WHOLE.test(s)) throw new PleatError('usage', `--${flag} '${text}': '${s}' is not a non-negative whole number in plain decimal digits`);
+  const n = Number(s);
+  if (!Number.isSafeInteger(n)) throw new PleatError('usage', `--${flag} '${text}': '${s}' is too large a size`);
+  return n;
 }
 
 /** Parse `--input NAME=FILE`, `--shape NAME=1x3x224x224` (empty for a scalar) and `--dim SYMBOL=N`. */

@@ -38,9 +38,24 @@ export const CHOICE_OPTIONS = {
   failOn: { flag: 'fail-on', values: ['kept'] },
 } as const satisfies Record<string, { flag: string; values: readonly string[] }>;
 
-/** True when `v` is a number the rule allows. */
+/** True when `v` is a number the rule allows (a whole number exactly: no larger than 2^53 - 1 in size). */
 export function numberFits(rule: NumberRule, v: number): boolean {
-  return (rule.real ? Number.isFinite(v) : Number.isInteger(v)) && v >= rule.min && v <= (rule.max ?? Infinity);
+  return (rule.real ? Number.isFinite(v) : Number.isSafeInteger(v)) && v >= rule.min && v <= (rule.max ?? Infinity);
+}
+
+// How a number is written on the command line or in a config string. Number() (and yargs) also read 0x10, 0b11,
+// 0o7, 1e3, ' 3', '3 ' and 3.0, so a typo or another tool's notation ran as some other value without a word. A
+// leading zero is refused too: some readers take 010 for octal 8, others for ten.
+/** A size or count, never negative: decimal digits only. */
+export const PLAIN_WHOLE = /^(0|[1-9][0-9]*)$/;
+/** A whole number: decimal digits after an optional minus (not -0); a rule's range says whether it may be below 0. */
+const PLAIN_INTEGER = /^(0|-?[1-9][0-9]*)$/;
+/** A real number in decimal notation, with an optional sign, point and exponent (20, -2.5, .5, 1e-5). */
+const PLAIN_REAL = /^[+-]?([0-9]+\.?[0-9]*|\.[0-9]+)(e[+-]?[0-9]+)?$/i;
+
+/** Whether `text` is written as the rule's kind of number is written (the range is numberFits' business). */
+export function plainNumberText(rule: NumberRule, text: string): boolean {
+  return (rule.real ? PLAIN_REAL : PLAIN_INTEGER).test(text);
 }
 
 const shown = (v: unknown): string => (typeof v === 'string' ? `'${v}'` : typeof v === 'number' ? String(v) : JSON.stringify(v) ?? String(v));

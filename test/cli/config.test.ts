@@ -25,6 +25,13 @@ describe('config file', () => {
     expect(() => loadConfig(write('typo.json', { seeds: 1 }))).toThrow(/unknown key 'seeds'/);
     expect(() => loadConfig(write('type.json', { probes: 0 }))).toThrow(/'probes' should be a whole number from 1 to 10000/);
     expect(() => loadConfig(write('dims.json', { dims: { batch: 'one' } }))).toThrow(/'dims' should be/);
+    // a shape as text takes its sizes in plain decimal digits, as --shape does ("1x 3" and "1x03" ran as 1x3)
+    expect(() => loadConfig(write('shape-space.json', { shapes: { image: '1x 3' } }))).toThrow(/shape-space\.json: 'shapes' should be an object of shapes, each a string of sizes in plain decimal digits/);
+    expect(() => loadConfig(write('shape-zero.json', { shapes: { image: '1x03' } }))).toThrow(/'shapes' should be/);
+    expect(() => loadConfig(write('shape-exp.json', { shapes: { image: '1,3e0' } }))).toThrow(/'shapes' should be/);
+    expect(loadConfig(write('shape-ok.json', { shapes: { image: '1x3,8x8', s: '' } })).config.shapes).toEqual({ image: '1x3,8x8', s: '' });
+    // a JSON number past 2^53 is no exact size
+    expect(() => loadConfig(write('dims-huge.json', '{"dims": {"batch": 1e300}}'))).toThrow(/'dims' should be/);
     expect(() => loadConfig(write('bad.json', '{ nope'))).toThrow(/not valid JSON/);
     expect(() => loadConfig(write('arr.json', [1]))).toThrow(/expected a JSON object/);
     expect(() => loadConfig(join(dir, 'missing.json'))).toThrow(/cannot read \(ENOENT\)/);

@@ -80,6 +80,42 @@ describe('choices, numbers, unknown options and commands', () => {
     // a real number is fine for decibels: the run gets past the flags (to the name check, here)
     usage(['fold', M, '-o', OUT, '--quant-threshold', '12.5', '--keep', 'nosuch.bn'], /--keep nosuch\.bn/);
   });
+  it('a count, seed, size or byte count is taken only in plain decimal digits (0x10, 1e3, \' 3\' ran as 16, 1000, 3)', () => {
+    const loose = ['0x10', '1e3', ' 3', '3 ', '3.0', '+3', '0b11', '0o7', '010', '-0', '1_000'];
+    const flags: Array<[string, string[]]> = [
+      ['--seed', ['compare', M, M]],
+      ['--probes', ['fold', M, '-o', OUT]],
+      ['--threads', ['compare', M, M]],
+      ['--external-data-min', ['fold', M, '-o', OUT]],
+    ];
+    for (const [flag, head] of flags) {
+      for (const v of loose) {
+        const shown = /\s/.test(v) ? `'${v}'` : v;
+        const esc = shown.replace(/[.+]/g, '\\$&');
+        usage([...head, flag, v], new RegExp(`^pleat: ${flag} ${esc}: give a whole number.*, written in plain decimal digits\n$`));
+        if (v === '0x10' || v === ' 3') usage([...head, `${flag}=${v}`], new RegExp(`^pleat: ${flag} ${esc}: give a whole number`));
+      }
+      // past the flag check with the same number written plainly (the run goes on to the --dim name check)
+      expect(pleat([...head, flag, '3', '--dim', 'nosuch=1']).stderr).toMatch(/^pleat: --dim '?nosuch'?[: ].*(no input|matches no)/);
+    }
+    usage(['compare', M, M, '--seed', '99999999999999999999'], /--seed 99999999999999999999: give a whole number from 0/);
+    usage(['fold', M, '-o', OUT, '--external-data-min', '99999999999999999999'], /--external-data-min 99999999999999999999: give a whole number of bytes/);
+    // sizes inside --dim and --shape, and a byte count with its unit
+    usage(['compare', M, M, '--dim', 'batch= 2'], /^pleat: --dim 'batch= 2': ' 2' is not a non-negative whole number in plain decimal digits/);
+    usage(['compare', M, M, '--dim', 'batch=02'], /--dim 'batch=02': '02' is not/);
+    usage(['compare', M, M, '--shape', 'x=1, 3'], /--shape 'x=1, 3': ' 3' is not/);
+    usage(['compare', M, M, '--max-probe-memory', ' 64M'], /^pleat: --max-probe-memory ' 64M': give a number of bytes/);
+    usage(['compare', M, M, '--max-probe-memory', '064M'], /--max-probe-memory '064M'/);
+  });
+  it('a real-valued flag keeps decimal and exponent notation, and refuses the other notations', () => {
+    for (const v of ['1e1', '-2.5e0', '.5', '12.', '+20', '1E-5']) {
+      expect(pleat(['fold', M, '-o', OUT, '--quant-threshold', v, '--keep', 'nosuch.bn']).stderr, v).toMatch(/--keep nosuch\.bn/);
+    }
+    for (const v of ['0x14', ' 20', '20 ', '0b1', 'Infinity', '1e', '.']) {
+      const shown = /\s/.test(v) ? `'${v}'` : v;
+      usage(['fold', M, '-o', OUT, '--quant-threshold', v], new RegExp(`^pleat: --quant-threshold ${shown.replace(/[.+]/g, '\\$&')}: give a number of decibels`));
+    }
+  });
   it('survey takes --format text|json, as the README lists it (it was an unknown option)', () => {
     const j = pleat(['survey', M, '--format', 'json']);
     expect(j.code).toBe(0);

@@ -4,7 +4,7 @@
 // is still reported in one line with nothing written.
 import { describe, expect, it } from 'vitest';
 import { execFileSync } from 'node:child_process';
-import { existsSync, mkdtempSync, readdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
+import { existsSync, mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { GraphBuilder, modelBytes, randn, rng, uniform } from '../helpers/build.js';
@@ -61,7 +61,7 @@ describe('pleat fold of a large model', () => {
     expect(lines).toHaveLength(1);
     expect(lines[0]).toMatch(/^pleat: .*noise\.onnx/);
     expect(existsSync(out)).toBe(false);
-    expect(readdirSync(join(dir, 'out'))).toEqual([]); // no temporary left behind either
+    expect(existsSync(join(dir, 'out'))).toBe(false); // no temporary left behind either, nor the folder made for it
     rmSync(dir, { recursive: true, force: true });
   }, 120_000);
 });

@@ -3,7 +3,7 @@
 // output of a run (model, side file, reports) staged and renamed in together, or nothing written at all.
 import { describe, expect, it } from 'vitest';
 import { execFileSync, spawnSync } from 'node:child_process';
-import { appendFileSync, existsSync, linkSync, lstatSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync, symlinkSync, utimesSync, writeFileSync } from 'node:fs';
+import { appendFileSync, chmodSync, existsSync, linkSync, lstatSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, renameSync, rmSync, symlinkSync, utimesSync, writeFileSync } from 'node:fs';
 import { OutputSet, recoverFolder } from '../../src/jobs/outputs.js';
 import { IntentLog } from '../../src/onnx/intent.js';
 import { tmpdir } from 'node:os';
@@ -506,6 +506,143 @@ describe('only what pleat provably made is cleared', () => {
     writeFileSync(join(dir, `.pleat-${dead}-f0f00-c.onnx.tmp`), 'mine');
     recoverFolder(dir);
     expect(readdirSync(dir).sort()).toEqual([`${stem}1-b.onnx.tmp`, `.pleat-${dead}-f0f0.intent`, `.pleat-${dead}-f0f00-c.onnx.tmp`].sort());
+  });
+});
+
+// A forged or corrupt intent record naming a file that can be no folder entry (a NUL byte, a name past 255 bytes)
+// ended every run writing to that folder in an internal error (exit 3) when recovery tried to remove it; one naming
+// a commit record whose paths are such was the same. pleat never writes such a name: the record is not pleat's,
+// and is left alone with everything it names.
+describe('a corrupt intent record is left alone and never ends the run', () => {
+  const dead = 2 ** 22 + 32345;
+  const HEAD = 'pleat intent record: the files below are made by this run, each named before it is made\n';
+  const record = (names: string[]) => HEAD + names.map((n) => `${JSON.stringify(n)}\n`).join('');
+  const corrupt: Array<[string, string]> = [
+    [`.pleat-${dead}-n0.intent`, record([`.pleat-${dead}-n00-a\u0000b.tmp`])],
+    [`.pleat-${dead}-n1.intent`, record([`.pleat-${dead}-n10-${'x'.repeat(300)}.tmp`])],
+    [`.pleat-${dead}-n2.intent`, record([`.pleat-${dead}-n20-ok.tmp`, `.pleat-${dead}-n2.commit`, `.pleat-${dead}-n21-z\u0000.tmp`])],
+    [`.pleat-${dead}-n3.intent`, record(['..', '.'])],
+  ];
+  it.each([['fold', (dir: string) => ['fold', 'models/tray-edge.onnx', '-o', join(dir, 'c.onnx'), '--quiet']],
+    ['evaluate --save', (dir: string) => ['evaluate', 'models/tray-edge.onnx', '--save', join(dir, 'ev')]]] as const)('%s', (_, args) => {
+    const dir = tmp();
+    for (const [n, body] of corrupt) writeFileSync(join(dir, n), body);
+    // a file a corrupt record names beside a valid name is not removed either: the record as a whole is not followed
+    writeFileSync(join(dir, `.pleat-${dead}-n20-ok.tmp`), 'kept');
+    const r = pleat(args(dir));
+    expect(r.code, r.stderr).toBe(0);
+    expect(r.stderr).not.toMatch(/internal error/);
+    for (const [n, body] of corrupt) expect(readFileSync(join(dir, n), 'utf8'), n).toBe(body);
+    expect(readFileSync(join(dir, `.pleat-${dead}-n20-ok.tmp`), 'utf8')).toBe('kept');
+  });
+  it('a commit record whose paths hold a NUL byte or a name past 255 bytes is not carried out, and ends no run', () => {
+    const dir = tmp();
+    writeFileSync(join(dir, 'keep.txt'), 'mine');
+    for (const [k, bad] of [['c0', 'a\u0000b'], ['c1', 'y'.repeat(300)]] as const) {
+      const rec = join(dir, `.pleat-${dead}-${k}.commit`);
+      plantRecord(rec, [{ tmp: join(dir, `.pleat-${dead}-${k}0-${bad}.tmp`), dest: join(dir, bad) }]);
+    }
+    const r = pleat(['fold', 'models/tray-edge.onnx', '-o', join(dir, 'c.onnx'), '--quiet']);
+    expect(r.code, r.stderr).toBe(0);
+    // (a valid intent record names each: a commit record not in pleat's form goes with it, as one cut short by a kill)
+    expect(readdirSync(dir).sort()).toEqual(['c.onnx', 'keep.txt']);
+    expect(readFileSync(join(dir, 'keep.txt'), 'utf8')).toBe('mine');
+  });
+  // (in a shared sticky folder such as /tmp, another user's dead run left its temporary: removing it is EPERM)
+  it.skipIf(process.getuid?.() !== 0)('a temporary that cannot be removed stays, named by its record, and the run goes on (skipped unless root: it runs pleat as nobody)', () => {
+    const dir = tmp();
+    chmodSync(dir, 0o1777);
+    const stuck = join(dir, `.pleat-${dead}-s00-x.tmp`);
+    writeFileSync(stuck, 'staged by another user');
+    new IntentLog(`.pleat-${dead}-s0`).note(stuck);
+    const r = spawnSync(process.execPath, [CLI, 'fold', 'models/tray-edge.onnx', '-o', join(dir, 'c.onnx'), '--quiet'], {
+      cwd: ROOT, encoding: 'utf8', uid: 65534, gid: 65534, env: { ...process.env, NO_COLOR: '1', CI: 'true' },
+    });
+    expect(r.status, r.stderr).toBe(0);
+    expect(readdirSync(dir).sort()).toEqual([`.pleat-${dead}-s0.intent`, `.pleat-${dead}-s00-x.tmp`, 'c.onnx']);
+  });
+});
+
+// A pleat from before intent records (up to 7f5693b) wrote its commit record alone: JSON.stringify of its staged
+// files, no intent record. Such a record of a run killed during its renames was left undone for good (its
+// temporaries too, and the outputs written together stayed half old, half new). Checked by hand against records a
+// build of 7f5693b left when killed (fold -o/--report/--save-probes at renamed-one, a batch at recorded), which
+// the next run now carries out; the records below are planted in that exact form.
+describe('a commit record of a pleat from before intent records', () => {
+  const dead = 2 ** 22 + 42345;
+  /** A record as such a pleat left it: its staged files, then JSON.stringify, in the folder of the first. */
+  const plantOld = (dir: string, token: string, files: Array<[string, string, boolean?]>) => {
+    const entries = files.map(([name, body, folder], k) => {
+      const tmp = join(dir, `.pleat-${dead}-${token}${k}-${name}.tmp`);
+      if (folder) { mkdirSync(tmp); writeFileSync(join(tmp, 'input_0.pb'), body); } else writeFileSync(tmp, body);
+      return folder ? { tmp, dest: join(dir, name), folder: true as const } : { tmp, dest: join(dir, name) };
+    });
+    const record = join(dir, `.pleat-${dead}-${token}.commit`);
+    writeFileSync(record, JSON.stringify(entries));
+    return { record, entries };
+  };
+  const warnings = (stderr: string) => stderr.split('\n').filter((l) => l.startsWith('pleat: warning:'));
+
+  it.each([['14 hex digits (a process tag first)', 'c747c5ad6b3751'], ['10 hex digits', '0e1961d734']])('is carried out when it is exactly what such a pleat wrote: token of %s', (_, token) => {
+    const dir = tmp();
+    writeFileSync(join(dir, 'out.onnx'), 'old model');
+    writeFileSync(join(dir, 'r.json'), 'old report');
+    const { record } = plantOld(dir, token, [['out.onnx', 'new model'], ['probes', 'probe', true], ['r.json', 'new report']]);
+    const r = pleat(['fold', 'models/tray-edge.onnx', '-o', join(dir, 'c.onnx'), '--quiet']);
+    expect(r.code, r.stderr).toBe(0);
+    expect(r.stderr).toBe('');
+    expect(readFileSync(join(dir, 'out.onnx'), 'utf8')).toBe('new model');
+    expect(readFileSync(join(dir, 'r.json'), 'utf8')).toBe('new report');
+    expect(readFileSync(join(dir, 'probes', 'input_0.pb'), 'utf8')).toBe('probe');
+    expect(existsSync(record)).toBe(false);
+    expect(readdirSync(dir).sort()).toEqual(['c.onnx', 'out.onnx', 'probes', 'r.json']);
+  });
+
+  it('one the run had begun (its first file renamed in) is finished; a destination taken since is refused, as for any record', () => {
+    const dir = tmp();
+    const { entries } = plantOld(dir, 'c747c5ad6b3751', [['a.onnx', 'new a'], ['b.json', 'new b']]);
+    renameSync(entries[0]!.tmp, entries[0]!.dest);
+    const r = pleat(['evaluate', 'models/tray-edge.onnx', '--save', join(dir, 'ev')]);
+    expect(r.code, r.stderr).toBe(0);
+    expect(readdirSync(dir).sort()).toEqual(['a.onnx', 'b.json', 'ev']);
+    expect(readFileSync(join(dir, 'b.json'), 'utf8')).toBe('new b');
+    const taken = tmp();
+    plantOld(taken, 'c747c5ad6b3751', [['x.json', 'new x']]);
+    mkdirSync(join(taken, 'x.json'));
+    const t = pleat(['fold', 'models/tray-edge.onnx', '-o', join(taken, 'c.onnx'), '--quiet']);
+    expect(t.code).toBe(2);
+    expect(t.stderr).toMatch(/^pleat: .*\.commit: a killed pleat run \(process \d+\) left this unfinished commit, and .*x\.json is now a folder, where its file goes/);
+  });
+
+  it('anything else named like one is left alone, byte for byte, and named once in a warning line', () => {
+    const dir = tmp();
+    const tmpOf = (tok: string, name: string) => join(dir, `.pleat-${dead}-${tok}0-${name}.tmp`);
+    const mk = (tok: string, name: string) => { writeFileSync(tmpOf(tok, name), 'staged'); return { tmp: tmpOf(tok, name), dest: join(dir, name) }; };
+    const forms: Array<[string, string]> = [
+      ['aaaaaaaaaa', JSON.stringify([mk('aaaaaaaaaa', 'a.json')], null, 1)], // not pleat's spacing
+      ['bbbbbbbbbb', '[]'], // nothing listed
+      ['cccccccccc', JSON.stringify([{ dest: join(dir, 'c.json'), tmp: mk('cccccccccc', 'c.json').tmp }])], // keys in another order
+      ['dddddddddd', JSON.stringify([{ ...mk('dddddddddd', 'd.json'), folder: false }])], // a key pleat never wrote so
+      ['eeeeeeeeee', JSON.stringify([{ tmp: `.pleat-${dead}-eeeeeeeeee0-e.json.tmp`, dest: 'e.json' }])], // relative paths
+      ['ffffffffff', JSON.stringify([{ tmp: tmpOf('ffffffffff', 'f.json'), dest: join(dir, 'other.json') }])], // a temporary of another name
+      ['gggggggggg', JSON.stringify([{ tmp: join(dir, `.pleat-${dead + 1}-gggggggggg0-g.json.tmp`), dest: join(dir, 'g.json') }])], // another process's
+      ['hhhhhhhhhh', JSON.stringify([{ tmp: join('/elsewhere', `.pleat-${dead}-hhhhhhhhhh0-h.json.tmp`), dest: join('/elsewhere', 'h.json') }])], // copied from another folder
+      ['notatoken', JSON.stringify([mk('notatoken', 'n.json')])], // no token of such a pleat
+      ['iiiiiiiiii', JSON.stringify([mk('iiiiiiiiii', 'i.json'), mk('iiiiiiiiii', 'i.json')])], // one destination twice
+    ];
+    writeFileSync(tmpOf('ffffffffff', 'f.json'), 'staged');
+    const records = forms.map(([tok, body]) => { const p = join(dir, `.pleat-${dead}-${tok}.commit`); writeFileSync(p, body); return [p, body] as const; });
+    const before = readdirSync(dir).sort();
+    // -o and --report in that folder: several transactions look at it, each record is still named once
+    const r = pleat(['fold', 'models/tray-edge.onnx', '-o', join(dir, 'c.onnx'), '--report', join(dir, 'c.json'), '--quiet']);
+    expect(r.code, r.stderr).toBe(0);
+    for (const [p, body] of records) {
+      expect(readFileSync(p, 'utf8'), p).toBe(body);
+      expect(warnings(r.stderr).filter((l) => l.includes(basename(p))), p).toHaveLength(1);
+    }
+    expect(warnings(r.stderr)).toHaveLength(records.length);
+    expect(warnings(r.stderr)[0]).toMatch(/^pleat: warning: .*\.commit: named like a pleat commit record, but no intent record names it and it is not in the exact form of a record from a pleat before intent records; left alone/);
+    expect(readdirSync(dir).sort()).toEqual([...before, 'c.json', 'c.onnx'].sort());
   });
 });
 

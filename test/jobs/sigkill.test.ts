@@ -5,7 +5,7 @@
 // temporary file remains after that next run.
 import { beforeAll, describe, expect, it } from 'vitest';
 import { spawn, spawnSync } from 'node:child_process';
-import { copyFileSync, existsSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, writeFileSync } from 'node:fs';
+import { copyFileSync, existsSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { CLI, ROOT, pleat } from '../helpers/cli.js';
@@ -197,6 +197,67 @@ describe('a TERM or Ctrl-C during the work', () => {
     expect(readdirSync(dir)).toEqual(['saved']);
   });
 
+  // --save a/b/c with no a/b: the folders above the outputs' folder were made before the work, so a run that did not
+  // commit (a Ctrl-C, a kill, a refusal) left a/b behind
+  it('evaluate --save into folders not there yet: none is made before the commit, all are after it', () => {
+    const dir = mkdtempSync(join(tmpdir(), 'pleat-term-'));
+    const nested = join(dir, 'a', 'b', 'c');
+    const int = run(['evaluate', MODEL, '--save', nested], { PLEAT_SIGNAL_BEFORE_COMMIT: 'SIGINT' });
+    expect(int.status, int.stderr).toBe(130);
+    expect(readdirSync(dir)).toEqual([]);
+    const term = run(['evaluate', MODEL, '--save', nested], { PLEAT_SIGNAL_BEFORE_COMMIT: '1' });
+    expect(term.status, term.stderr).toBe(143);
+    expect(readdirSync(dir)).toEqual([]);
+    // refused once the work is done, when the folders are claimed: p/q were made first, and stayed. Now only the
+    // highest missing folder takes a temporary name, so the long name inside it is written as it is ...
+    const long = pleat(['evaluate', MODEL, '--save', join(dir, 'p', 'q', 'x'.repeat(250))]);
+    expect(long.code, long.stderr).toBe(0);
+    expect(readdirSync(join(dir, 'p', 'q', 'x'.repeat(250)))).toContain('outputs.json');
+    rmSync(join(dir, 'p'), { recursive: true });
+    // ... and a highest missing folder too long for its temporary name is refused, leaving nothing
+    const longTop = pleat(['evaluate', MODEL, '--save', join(dir, 'x'.repeat(250), 'c')]);
+    expect(longTop.code, longTop.stderr).toBe(2);
+    expect(longTop.stderr).toMatch(/^pleat: --save .*x{250}: the folder name is too long to write/);
+    expect(readdirSync(dir)).toEqual([]);
+    // killed before its commit: the next run writing in that folder clears what the killed one staged
+    killedAt('staged', ['evaluate', MODEL, '--save', nested]);
+    expect(readdirSync(dir).filter((n) => !n.startsWith('.pleat-'))).toEqual([]);
+    // killed during its commit: the next run writing there finishes it (the folders whole)
+    killedAt('recorded', ['evaluate', MODEL, '--save', join(dir, 'k', 'l')]);
+    expect(existsSync(join(dir, 'k'))).toBe(false);
+    const ok = pleat(['evaluate', MODEL, '--save', nested, '--seed', '1']);
+    expect(ok.code, ok.stderr).toBe(0);
+    expect(readdirSync(dir).sort()).toEqual(['a', 'k']);
+    expect(readdirSync(join(dir, 'a'))).toEqual(['b']);
+    expect(readdirSync(join(dir, 'a', 'b'))).toEqual(['c']);
+    expect(readdirSync(nested).sort()).toEqual(readdirSync(join(dir, 'k', 'l')).sort());
+    expect(readdirSync(nested)).toContain('outputs.json');
+  });
+
+  // --out-dir was made (with its missing parents) before any work and stayed when the run was refused, failed its
+  // gate (exit 1, "nothing written by fold") or was cancelled
+  it('fold --out-dir into folders not there yet: a run that writes nothing there leaves none of them', () => {
+    const dir = mkdtempSync(join(tmpdir(), 'pleat-term-'));
+    const models = [MODEL, 'models/pump-vibration.onnx'];
+    const outDir = join(dir, 'a', 'b');
+    const refused = pleat(['fold', ...models, '--out-dir', outDir, '--dim', 'nosuch=1']);
+    expect(refused.code, refused.stderr).toBe(2);
+    expect(readdirSync(dir)).toEqual([]);
+    const gate = pleat(['fold', ...models, '--out-dir', outDir, '--gate', 'maxAbs < 0', '--quiet']);
+    expect(gate.code, gate.stderr).toBe(1);
+    expect(readdirSync(dir)).toEqual([]);
+    const term = run(['fold', MODEL, '--out-dir', outDir, '--quiet'], { PLEAT_SIGNAL_BEFORE_COMMIT: '1' });
+    expect(term.status, term.stderr).toBe(143);
+    expect(readdirSync(dir)).toEqual([]);
+    // a folder that was there is never removed, even when nothing is written into it
+    mkdirSync(join(dir, 'kept'));
+    expect(pleat(['fold', ...models, '--out-dir', join(dir, 'kept'), '--gate', 'maxAbs < 0', '--quiet']).code).toBe(1);
+    expect(readdirSync(dir)).toEqual(['kept']);
+    const ok = pleat(['fold', ...models, '--out-dir', outDir, '--quiet']);
+    expect(ok.code, ok.stderr).toBe(0);
+    expect(readdirSync(outDir).sort()).toEqual(['pump-vibration.onnx', 'tray-edge.onnx']);
+  });
+
   // a batch's workers had their files staged when the signal came: the process exited 143 and left them there
   it('batch: TERM while a worker holds its staged files exits 143, reports nothing, renames nothing in, leaves nothing', () => {
     const dir = mkdtempSync(join(tmpdir(), 'pleat-term-'));
@@ -218,7 +279,6 @@ describe('a TERM or Ctrl-C during the work', () => {
     const r = run(['fold', 'models/tray-sorter.onnx', MODEL, '--out-dir', join(dir, 'out'), '--report', join(dir, 'r.json'), '--quiet'], { PLEAT_SIGNAL_BEFORE_COMMIT: 'SIGINT' });
     expect(r.status, r.stderr).toBe(130);
     expect(r.stdout).toBe('');
-    expect(readdirSync(join(dir, 'out'))).toEqual([]);
-    expect(readdirSync(dir)).toEqual(['out']);
+    expect(readdirSync(dir)).toEqual([]); // (not even the --out-dir folder it made)
   });
 });

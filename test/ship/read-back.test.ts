@@ -123,6 +123,11 @@ describe('bundle read back: a staged file changed before the read back (PLEAT_TA
     mkdirSync(lib);
     mismatch(() => exportBundle(model, lib, format));
     expect(readdirSync(lib)).toEqual([]);
+    // ... into a new folder: not made either (it was made before the files were written, and stayed, empty)
+    const libFresh = join(work, `tampered-lib-new-${format}`);
+    mismatch(() => exportBundle(model, libFresh, format));
+    expect(existsSync(libFresh)).toBe(false);
+    expect(leftovers(work)).toEqual([]);
   });
 
   it('a digit of a data offset in the staged manifest: the manifest no longer places the tensor where the file has it', () => {

@@ -16,7 +16,7 @@ import { resolveInputs } from '../../src/verify/inputs.js';
 import { checkProbeEstimate } from '../../src/verify/probe-budget.js';
 import { toJsonText } from '../../src/report/json.js';
 import { evaluate, safeFileNames } from '../../src/verify/evaluate.js';
-import { saveOutputs } from '../../src/jobs/save-outputs.js';
+import { saveOutputs, saveOutputsStaged } from '../../src/jobs/save-outputs.js';
 import { readNpy } from '../../src/verify/npy.js';
 import { DEFAULT_GATES } from '../../src/verify/gate.js';
 import { DataType } from '../../src/graph/ir.js';
@@ -305,6 +305,19 @@ idx = json.load(open(d + '/outputs.json'))
 print(json.dumps({k: np.load(d + '/' + v).tolist() for k, v in idx.items()}))`], { encoding: 'utf8' });
       expect(JSON.parse(got)).toEqual({ 'logits/0': [0.1, -3], ids: [42] });
     }
+  });
+
+  it('into folders not there yet: staged, nothing made until the commit, all of them made by it', () => {
+    const top = join(dir, 'nested-top');
+    const outputs = new Map([['y', { type: DataType.FLOAT, dims: [1], data: new Float64Array([2]) }]]);
+    const staged = saveOutputsStaged(join(top, 'b', 'c'), outputs);
+    expect(existsSync(top)).toBe(false);
+    staged.abort();
+    expect(existsSync(top)).toBe(false);
+    expect(readdirSync(dir).filter((n) => n.startsWith('.pleat-'))).toEqual([]);
+    saveOutputsStaged(join(top, 'b', 'c'), outputs).commit();
+    expect(readdirSync(join(top, 'b', 'c')).sort()).toEqual(['outputs.json', 'y.npy']);
+    expect(readdirSync(dir).filter((n) => n.startsWith('.pleat-'))).toEqual([]);
   });
 
   it('a folder that cannot be created is a one-line bad-input error', () => {

@@ -47,6 +47,14 @@ describe('parseInputFlags', () => {
   it('rejects malformed flags with a usage error naming the flag', () => {
     expect(err(() => parseInputFlags({ input: ['x.npy'] })).message).toMatch(/--input 'x\.npy' should be NAME=FILE/);
     expect(err(() => parseInputFlags({ shape: ['x=1x-3'] })).message).toMatch(/--shape 'x=1x-3': '-3' is not a non-negative whole number/);
+    // plain decimal digits only: Number() read each of these as some size
+    for (const n of [' 3', '3 ', '0x3', '3e0', '3.0', '+3', '03', '0b11']) {
+      expect(err(() => parseInputFlags({ dim: [`batch=${n}`] })).message).toBe(`--dim 'batch=${n}': '${n}' is not a non-negative whole number in plain decimal digits`);
+      // (in a shape, x separates sizes: 1x0x3 is three sizes)
+      if (!n.includes('x')) expect(err(() => parseInputFlags({ shape: [`x=1x${n}`] })).message).toBe(`--shape 'x=1x${n}': '${n}' is not a non-negative whole number in plain decimal digits`);
+    }
+    expect(err(() => parseInputFlags({ dim: ['batch=99999999999999999999'] })).message).toMatch(/too large/);
+    expect(parseInputFlags({ dim: ['batch=0', 'h=10'] }).dims).toEqual(new Map([['batch', 0], ['h', 10]]));
     expect(err(() => parseInputFlags({ dim: ['batch=two'] })).kind).toBe('usage');
     expect(err(() => parseInputFlags({ dim: ['b=1', 'b=2'] })).message).toMatch(/given twice/);
   });
