@@ -4,6 +4,7 @@ import type { Graph, Model, Node } from '../graph/ir.js';
 import { readModelFile } from '../onnx/read.js';
 import { sideFileName, stageModelFile, type StagedFile, type StagedModel } from '../onnx/write.js';
 import { sideFilePaths } from '../onnx/external.js';
+import { ownsSideFile } from '../onnx/side-owner.js';
 import { basename, dirname, join } from 'node:path';
 import { OutputSet } from './outputs.js';
 import { withProbeMemory } from '../eval/budget.js';
@@ -468,6 +469,9 @@ function foldStagedOnce(tx: OutputSet, input: string, output: string, opts: Fold
       stage(shippedModel, report.check.status);
     }
     report.output = output;
+    // The model this run replaces kept its weights in OUT.data; the new one keeps them inline and does not read it.
+    // The file is not this run's to remove (nothing was asked of it): it stays, and the report says so.
+    if (staged && staged.files.length === 1 && ownsSideFile(dest, side)) report.staleSideFile = join(dirname(output), basename(side));
     if (opts.saveProbes !== undefined && original) {
       let sets = 0;
       tx.stageFolder(opts.saveProbes, (tmp) => { sets = checkKit().saveProbeSets(tmp, original.graph, records); });

@@ -102,6 +102,11 @@ export interface FoldReport {
   probesSaved: { dir: string; sets: number } | null;
   /** True when a gate failed, or --strict met a skipped check (exit 1): then nothing was written. */
   failed: boolean;
+  /**
+   * The side file (OUT.data) of the model this run replaces at OUT, when the new model keeps every weight inline:
+   * left as it was, and read by nothing (set only then).
+   */
+  staleSideFile?: string;
   /** SHA-256 of the model file (hex), recorded when an HTML report is asked for (the page shows it). */
   sha256?: string;
   /** With sha256, for a model whose weights are in external data: its side files' digest (pleat.source.external.sha256). */

@@ -172,6 +172,7 @@ export function foldText(r: FoldReport, colour = false, caution = true): string 
   const weights = bytesRemoved >= 0 ? `${bytesText(bytesRemoved)} of weights saved` : `weights grew by ${bytesText(-bytesRemoved)}`;
   lines.push(`  ${folded} folded, ${kept} kept${alsoText}; ${nodes} (${r.nodesBefore} -> ${r.nodesAfter}); ${weights} (${bytesText(r.bytesBefore)} -> ${bytesText(r.bytesAfter)})${cloneClause(r.normalizations)}`);
   append(lines, checkLines(r.check, p), quantLines(r.quantization, r.quantThresholdDb, p), equalizeLines(r.equalized, p), int8Lines(r.int8), storageLines(r.storage));
+  if (r.staleSideFile) lines.push(`note: ${r.staleSideFile}, the side file of the model this run replaced, is left as it was; the new model keeps every weight inline and does not read it (remove it before shipping the folder)`);
   if (r.probesSaved) lines.push(`probes saved: ${plural(r.probesSaved.sets, 'set')} in ${r.probesSaved.dir} (ONNX backend test-data layout; float32-arithmetic outputs in ${r.probesSaved.dir}/float32)`);
   if (caution) lines.push(...CAUTION);
   return joinLines(lines, colour) + '\n';

@@ -16,6 +16,7 @@ import { readModelFile } from '../../src/onnx/read.js';
 import { writeModelFile } from '../../src/onnx/write.js';
 import { tensorToFloat64 } from '../../src/graph/tensor.js';
 import { checkerAvailable, onnxCheck } from '../helpers/checker.js';
+import { schemaValidator } from '../report/helpers.js';
 
 const tmp = () => mkdtempSync(join(tmpdir(), 'pleat-out-'));
 
@@ -132,6 +133,34 @@ describe('never overwrite what was not asked for (issue 11 item 2)', () => {
     expect(r.stderr).toMatch(/b\.onnx\.data.*input model's side file/);
     expect(readFileSync(join(dir, 'b.onnx.data')).equals(before)).toBe(true);
     expect(weightsOf(a)).toEqual([[1, 2, 3, 4]]);
+  });
+
+  it('a refold that keeps every weight inline leaves the replaced model\'s OUT.data as it was, and says so', () => {
+    const dir = tmp();
+    const out = join(dir, 'm.onnx'), side = join(dir, 'm.onnx.data');
+    expect(pleat(['fold', 'models/tray-edge.onnx', '-o', out, '--external-data-min', '0', '--quiet']).code).toBe(0);
+    const before = readFileSync(side);
+    // the second fold writes no side file: its model reads none, so the first one's is read by nothing now
+    const json = join(dir, 'r.json');
+    const r = pleat(['fold', 'models/tray-edge.onnx', '-o', out, '--report', `json:${json}`]);
+    expect(r.code, r.stderr).toBe(0);
+    expect(readFileSync(side).equals(before)).toBe(true); // not this run's to remove
+    expect(readModelFile(out).graph.initializers.every((t) => t.storage.kind !== 'external')).toBe(true);
+    expect(r.stdout).toContain(`note: ${side}, the side file of the model this run replaced, is left as it was`);
+    const report = JSON.parse(readFileSync(json, 'utf8'));
+    expect(report.staleSideFile).toBe(side);
+    expect(schemaValidator()(report)).toBe(true);
+    // a third fold (the model now at OUT reads no side file): no such note, and the field is absent
+    const again = pleat(['fold', 'models/tray-edge.onnx', '-o', out, '--report', `json:${json}`]);
+    expect(again.code).toBe(0);
+    expect(again.stdout).not.toContain('note:');
+    expect('staleSideFile' in JSON.parse(readFileSync(json, 'utf8'))).toBe(false);
+    // a fold writing its weights to OUT.data again: no note either (after moving the stale one away, as the
+    // refusal says)
+    renameSync(side, join(dir, 'old.data'));
+    const ext = pleat(['fold', 'models/tray-edge.onnx', '-o', out, '--external-data-min', '0', '--report', `json:${json}`]);
+    expect(ext.code, ext.stderr).toBe(0);
+    expect('staleSideFile' in JSON.parse(readFileSync(json, 'utf8'))).toBe(false);
   });
 
   it('a report never replaces the input model or the folded model', () => {

@@ -213,7 +213,8 @@ const cautions = () => `<p class="caution">${esc(CAUTION.join(' '))}</p>`;
 export function foldBody(r: FoldReport, pre = '', at = ''): string {
   const entries = r.normalizations as Entry[];
   const overview = [
-    tile('model', `<code>${esc(r.model)}</code>${r.output ? `<br>written to <code>${esc(r.output)}</code>` : '<br>nothing written'}`),
+    tile('model', `<code>${esc(r.model)}</code>${r.output ? `<br>written to <code>${esc(r.output)}</code>` : '<br>nothing written'}` +
+      (r.staleSideFile ? `<br>left as it was: <code>${esc(r.staleSideFile)}</code>, the side file of the model replaced (the new one reads none)` : '')),
     shaTile(r.sha256, `${at}sha256`), shaTile(r.externalSha256, `${at}externalSha256`, EXTERNAL_TITLE),
     tile('nodes', `${fig(`${at}nodesBefore`, r.nodesBefore, String(r.nodesBefore))} before, ${fig(`${at}nodesAfter`, r.nodesAfter, String(r.nodesAfter))} after`),
     tile('weight bytes', `${fig(`${at}bytesBefore`, r.bytesBefore, bytesText(r.bytesBefore))} before, ${fig(`${at}bytesAfter`, r.bytesAfter, bytesText(r.bytesAfter))} after`),
