@@ -33,6 +33,10 @@ const TYPE_TO_DESCR: Record<number, string> = {
 
 type Lit = string | number | boolean | null | Lit[] | { [k: string]: Lit };
 
+/** Deepest nesting a header may have. numpy writes a dict holding a tuple (2); a structured dtype's sub-arrays go
+ * a few levels more. The parser recurses, so a header of 10^5 open brackets would otherwise overflow the stack. */
+const MAX_HEADER_DEPTH = 16;
+
 /** A parser for the small Python literal subset .npy headers use: dicts, tuples, lists, strings, ints, booleans. */
 function parseLiteral(text: string, file: string): Lit {
   let i = 0;
@@ -40,15 +44,18 @@ function parseLiteral(text: string, file: string): Lit {
     throw new PleatError('bad-input', `${file}: .npy header is not a valid dict literal (${what} at offset ${i})`);
   };
   const ws = () => { while (i < text.length && /\s/.test(text[i]!)) i++; };
+  let depth = 0;
   const value = (): Lit => {
     ws();
     const c = text[i];
+    if ((c === '{' || c === '(' || c === '[') && depth >= MAX_HEADER_DEPTH) fail(`nested deeper than ${MAX_HEADER_DEPTH}`);
     if (c === '{') {
       i++;
+      depth++;
       const out: { [k: string]: Lit } = {};
       for (;;) {
         ws();
-        if (text[i] === '}') { i++; return out; }
+        if (text[i] === '}') { i++; depth--; return out; }
         const k = value();
         if (typeof k !== 'string') fail('non-string key');
         ws();
@@ -63,10 +70,11 @@ function parseLiteral(text: string, file: string): Lit {
     if (c === '(' || c === '[') {
       const close = c === '(' ? ')' : ']';
       i++;
+      depth++;
       const out: Lit[] = [];
       for (;;) {
         ws();
-        if (text[i] === close) { i++; return out; }
+        if (text[i] === close) { i++; depth--; return out; }
         out.push(value());
         ws();
         if (text[i] === ',') i++;

@@ -97,6 +97,17 @@ describe('parseNpy on hand-built files (NEP 1 format description)', () => {
     expect(notNpy.message).toMatch(/h\.npy: not a \.npy file/);
   });
 
+  it('refuses a header nested too deep as bad-input naming the file, not a stack overflow (exit 3)', () => {
+    // a header only needs a dict holding a tuple; 100000 open brackets overflowed the recursive parser
+    const e = errorOf(() => parseNpy(npyFile(2, '['.repeat(100000), []), 'deep.npy'));
+    expect(e).toBeInstanceOf(PleatError);
+    expect(e.kind).toBe('bad-input');
+    expect(e.message).toMatch(/^deep\.npy: .npy header .*nested deeper than 16/);
+    // the deepest a real header goes (a structured dtype's nested sub-array) still parses as before
+    const rec = errorOf(() => parseNpy(npyFile(1, "{'descr': [('a', [('b', '<f4', (2, 2))])], 'fortran_order': False, 'shape': (1,), }", []), 'r.npy'));
+    expect(rec.message).toMatch(/structured/);
+  });
+
   it('readNpy names a missing file', () => {
     const e = errorOf(() => readNpy('/nonexistent/dir/a.npy'));
     expect(e.kind).toBe('bad-input');
