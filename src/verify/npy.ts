@@ -12,6 +12,7 @@ import { PleatError } from '../errors.js';
 import { bfloatBitsToNumber, dataTypeName, halfBitsToNumber, numberToBfloatBits, numberToHalfBits } from '../graph/tensor.js';
 
 const MAGIC = [0x93, 0x4e, 0x55, 0x4d, 0x50, 0x59]; // \x93 N U M P Y
+const HEADER_KEYS = ['descr', 'fortran_order', 'shape'];
 
 /** numpy kind+size -> ONNX element type. */
 const KIND_TO_TYPE: Record<string, DataTypeCode> = {
@@ -58,6 +59,8 @@ function parseLiteral(text: string, file: string): Lit {
         if (text[i] === '}') { i++; depth--; return out; }
         const k = value();
         if (typeof k !== 'string') fail('non-string key');
+        // (a Python dict keeps the last of two equal keys; a header numpy wrote never has two)
+        if (Object.hasOwn(out, k as string)) throw new PleatError('bad-input', `${file}: .npy header gives '${k}' twice`);
         ws();
         if (text[i] !== ':') fail("expected ':'");
         i++;
@@ -98,7 +101,10 @@ function parseLiteral(text: string, file: string): Lit {
     if (m[0] === 'True') return true;
     if (m[0] === 'False') return false;
     if (m[0] === 'None') return null;
-    return Number(m[0].replace('L', ''));
+    const n = Number(m[0].replace('L', ''));
+    // (the only integers a header holds are sizes; beyond 2^53 one would be read rounded)
+    if (!Number.isSafeInteger(n)) throw new PleatError('bad-input', `${file}: .npy header's shape holds ${m[0]}, too large for a size`);
+    return n;
   };
   const v = value();
   ws();
@@ -131,7 +137,13 @@ export function parseNpy(bytes: Uint8Array, file = '<npy>'): NpyValue {
   else for (const b of headerBytes) header += String.fromCharCode(b); // ASCII by the format's definition
   const dict = parseLiteral(header.trim(), file);
   if (dict === null || typeof dict !== 'object' || Array.isArray(dict)) return bad('.npy header is not a dict');
+  // numpy.lib.format reads a header only when its keys are exactly these three (a key it does not know may change
+  // what the bytes mean), and fortran_order only when it is a bool
+  for (const key of HEADER_KEYS) if (!Object.hasOwn(dict, key)) return bad(`.npy header has no '${key}' key`);
+  const unknown = Object.keys(dict).find((k) => !HEADER_KEYS.includes(k));
+  if (unknown !== undefined) return bad(`.npy header has a key '${unknown}' besides ${HEADER_KEYS.join(', ')}; numpy writes only those`);
   const { descr, fortran_order: fortran, shape } = dict;
+  if (typeof fortran !== 'boolean') return bad(`.npy header's fortran_order is ${JSON.stringify(fortran)}, not True or False`);
   if (typeof descr !== 'string') return bad('structured (record) arrays are not supported; save a plain numeric array');
   if (fortran !== false) {
     return bad('fortran_order=True arrays are not supported; save with numpy.ascontiguousarray(a) first');

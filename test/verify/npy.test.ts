@@ -108,6 +108,27 @@ describe('parseNpy on hand-built files (NEP 1 format description)', () => {
     expect(rec.message).toMatch(/structured/);
   });
 
+  it('takes only headers with exactly the keys descr, fortran_order and shape, fortran_order a boolean and sizes exact', () => {
+    // numpy.lib.format reads a header only when its keys are exactly these three and fortran_order is a bool
+    const f4 = (dict: string) => errorOf(() => parseNpy(npyFile(1, dict, new Array(8).fill(0)), 'k.npy'));
+    const noOrder = f4("{'descr': '<f4', 'shape': (2,), }");
+    expect(noOrder.kind).toBe('bad-input');
+    expect(noOrder.message).toMatch(/^k\.npy: .npy header has no 'fortran_order' key/);
+    expect(f4("{'descr': '<f4', 'fortran_order': False, }").message).toMatch(/^k\.npy: .npy header has no 'shape' key/);
+    expect(f4("{'descr': '<f4', 'fortran_order': False, 'shape': (2,), 'offset': 4, }").message)
+      .toMatch(/^k\.npy: .npy header has a key 'offset'/);
+    expect(f4("{'descr': '<f4', 'fortran_order': False, 'shape': (2,), 'shape': (1,), }").message)
+      .toMatch(/^k\.npy: .npy header gives 'shape' twice/);
+    // 0 is not False: it was reported as fortran_order=True
+    expect(f4("{'descr': '<f4', 'fortran_order': 0, 'shape': (2,), }").message).toMatch(/^k\.npy: .npy header's fortran_order is 0, not True or False/);
+    // a size beyond 2^53 was read rounded (1e+23), and with a 0 beside it passed the byte count
+    const big = errorOf(() => parseNpy(npyFile(1, "{'descr': '<f4', 'fortran_order': False, 'shape': (99999999999999999999999, 0), }", []), 'b.npy'));
+    expect(big.kind).toBe('bad-input');
+    expect(big.message).toMatch(/^b\.npy: .npy header's shape holds 99999999999999999999999/);
+    // a well-formed header still reads
+    expect(Array.from(parseNpy(npyFile(1, "{'shape': (2,), 'fortran_order': False, 'descr': '<f4'}", new Array(8).fill(0))).data)).toEqual([0, 0]);
+  });
+
   it('readNpy names a missing file', () => {
     const e = errorOf(() => readNpy('/nonexistent/dir/a.npy'));
     expect(e.kind).toBe('bad-input');
