@@ -5,13 +5,13 @@ import { readFileSync, statSync } from 'node:fs';
 import { MAX_PROBES, MAX_SEED } from './probe-bounds.js';
 import { PLAIN_WHOLE } from './option-values.js';
 import { extname } from 'node:path';
-import { DataType, elementCount, type DataTypeCode, type Dim, type Graph, type ValueInfo } from '../graph/ir.js';
+import { DataType, elementCount, rawByteLength, storageKind, type DataTypeCode, type Dim, type Graph, type Tensor, type ValueInfo } from '../graph/ir.js';
 import type { Value } from '../eval/value.js';
 import { PleatError } from '../errors.js';
 import { checkAllocation } from '../eval/budget.js';
 import { freshFloat64 } from '../eval/pool.js';
 import { checkProbeShapes } from './probe-budget.js';
-import { dataTypeName, isFloatType, roundToStorage, tensorToFloat64 } from '../graph/tensor.js';
+import { bytesPerElement, dataTypeName, isFloatType, roundToStorage, storedElementCount, tensorToFloat64 } from '../graph/tensor.js';
 import { parseTensor } from '../onnx/read.js';
 import { readNpy } from './npy.js';
 import { canBeWide, EXACT_INTEGER_LIMIT, firstWideInTensor, firstWideValue, type WideValue } from './wide-integers.js';
@@ -97,12 +97,53 @@ export function loadInputFile(path: string): InputValue {
   }
   try {
     const t = parseTensor(bytes); // .pb: a serialized ONNX TensorProto
+    checkTensorFile(t);
     const wide = firstWideInTensor(t);
     return { type: t.dataType, dims: [...t.dims], data: tensorToFloat64(t), file: path, ...(wide ? { wide } : {}) };
   } catch (e) {
     if (e instanceof PleatError) throw new PleatError('bad-input', `${path}: ${e.message}`);
     throw e;
   }
+}
+
+/** The typed field each element type keeps its values in (onnx.proto3, TensorProto), when not in raw_data. */
+const TYPED_FIELD: Partial<Record<string, readonly number[]>> = {
+  float_data: [DataType.FLOAT, DataType.COMPLEX64],
+  int32_data: [DataType.INT32, DataType.INT16, DataType.INT8, DataType.UINT16, DataType.UINT8, DataType.BOOL, DataType.FLOAT16, DataType.BFLOAT16],
+  int64_data: [DataType.INT64],
+  double_data: [DataType.DOUBLE, DataType.COMPLEX128],
+  uint64_data: [DataType.UINT32, DataType.UINT64],
+  string_data: [DataType.STRING],
+};
+const SEGMENT_FIELD = 3;
+
+/**
+ * A value file's tensor is used whole, so it must be exactly what its dims and type say: the model reader lets
+ * an initializer hold more than its dims need, but a value file holding more, or its values in another type's
+ * field, or only a segment, was made wrong, and reading part of it would be a silent truncation.
+ */
+function checkTensorFile(t: Tensor): void {
+  const type = dataTypeName(t.dataType);
+  if (storageKind(t) === 'external') throw new PleatError('bad-input', `tensor '${t.name}' keeps its values in an external file (data_location EXTERNAL); an input .pb must hold them itself`);
+  if (t.extra.some((f) => f.field === SEGMENT_FIELD)) throw new PleatError('bad-input', `tensor '${t.name}' is one segment of a larger tensor (TensorProto.segment); give the whole tensor in one file`);
+  const n = elementCount(t.dims);
+  const raw = rawByteLength(t);
+  const bpe = bytesPerElement(t.dataType);
+  if (raw >= 0) {
+    if (bpe !== undefined && raw !== n * bpe) {
+      throw new PleatError('bad-input', `tensor '${t.name}' holds ${raw} bytes of raw_data but its dims [${t.dims.join(',')}] of ${type} need ${n * bpe}`);
+    }
+    return;
+  }
+  const kind = storageKind(t);
+  const allowed = TYPED_FIELD[kind];
+  if (allowed === undefined) return; // no data at all: the element count check of the decode says so
+  if (!allowed.includes(t.dataType)) {
+    const right = Object.entries(TYPED_FIELD).find(([, types]) => types!.includes(t.dataType))?.[0];
+    throw new PleatError('bad-input', `tensor '${t.name}' is ${type} but holds its values in ${kind}${right ? ` (${type} values go in ${right} or raw_data)` : ''}`);
+  }
+  const have = storedElementCount(t);
+  if (have !== n) throw new PleatError('bad-input', `tensor '${t.name}' holds ${have} values in ${kind} but its dims [${t.dims.join(',')}] need ${n}`);
 }
 
 /** Load every `--input` file. */

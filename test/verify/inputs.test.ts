@@ -132,6 +132,38 @@ describe('input files', () => {
     expect(err(() => loadInputFile(join(dir, 'missing.pb'))).message).toMatch(/missing\.pb: cannot read \(ENOENT\)/);
   });
 
+  it('takes a .pb only when its data is held in the field its type uses and fills its dims exactly', () => {
+    // onnx.proto3, TensorProto: float_data for FLOAT, int32_data for INT32/INT16/INT8/UINT16/UINT8/BOOL/FLOAT16/
+    // BFLOAT16, int64_data for INT64, double_data for DOUBLE, uint64_data for UINT32/UINT64; segment for a chunk of
+    // a larger tensor; data_location EXTERNAL for data kept in another file
+    const TP = onnxProto.onnx.TensorProto;
+    const write = (name: string, fields: Record<string, unknown>) => {
+      const p = join(dir, name);
+      writeFileSync(p, TP.encode(TP.fromObject({ name: 'x', ...fields })).finish());
+      return p;
+    };
+    const f32 = (xs: number[]) => new Uint8Array(new Float32Array(xs).buffer);
+    // raw_data longer than the dims: the extra bytes were dropped without a word
+    const long = write('long.pb', { dims: [2], dataType: T.FLOAT, rawData: f32([1, 2, 3]) });
+    const e1 = err(() => loadInputFile(long));
+    expect(e1.kind).toBe('bad-input');
+    expect(e1.message).toBe(`${long}: tensor 'x' holds 12 bytes of raw_data but its dims [2] of float32 need 8`);
+    const short = write('short.pb', { dims: [3], dataType: T.FLOAT, floatData: [1, 2] });
+    expect(err(() => loadInputFile(short)).message).toBe(`${short}: tensor 'x' holds 2 values in float_data but its dims [3] need 3`);
+    // float values kept in int64_data were read as if the field were right
+    const wrong = write('wrong.pb', { dims: [2], dataType: T.FLOAT, int64Data: [1, 2] });
+    expect(err(() => loadInputFile(wrong)).message).toBe(`${wrong}: tensor 'x' is float32 but holds its values in int64_data (float32 values go in float_data or raw_data)`);
+    const seg = write('segment.pb', { dims: [2], dataType: T.FLOAT, rawData: f32([1, 2]), segment: { begin: 0, end: 1 } });
+    expect(err(() => loadInputFile(seg)).message).toMatch(new RegExp(`^${seg}: tensor 'x' is one segment of a larger tensor`));
+    const ext = write('external.pb', { dims: [2], dataType: T.FLOAT, dataLocation: 1, externalData: [{ key: 'location', value: 'w.bin' }] });
+    expect(err(() => loadInputFile(ext)).message).toMatch(new RegExp(`^${ext}: tensor 'x' keeps its values in an external file`));
+    // what the standard allows still reads: int32_data for float16 bits and bools, uint64_data for uint32
+    expect(Array.from(loadInputFile(write('half.pb', { dims: [2], dataType: T.FLOAT16, int32Data: [0x3c00, 0xc000] })).data)).toEqual([1, -2]);
+    expect(Array.from(loadInputFile(write('bool.pb', { dims: [2], dataType: T.BOOL, int32Data: [1, 0] })).data)).toEqual([1, 0]);
+    expect(Array.from(loadInputFile(write('u32.pb', { dims: [2], dataType: T.UINT32, uint64Data: [7, 4294967295] })).data)).toEqual([7, 4294967295]);
+    expect(Array.from(loadInputFile(write('exact.pb', { dims: [2], dataType: T.FLOAT, rawData: f32([1, 2]) })).data)).toEqual([1, 2]);
+  });
+
   // a FIFO blocked the read until something wrote to it, or for ever (and SIGTERM could not end it)
   it('refuses a FIFO or a folder without waiting', () => {
     for (const name of ['pipe.npy', 'pipe.pb']) {
