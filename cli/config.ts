@@ -5,6 +5,7 @@
 import { lstatSync, readFileSync, statSync } from 'node:fs';
 import { join } from 'node:path';
 import { PleatError } from '../src/errors.js';
+import { withProbeMemory } from '../src/eval/budget.js';
 import { checkProbeCount, checkSeed, loadInputFiles, parseInputFlags, type InputValue } from '../src/verify/inputs.js';
 import { MAX_PROBES, MAX_SEED } from '../src/verify/probe-bounds.js';
 import { PLAIN_WHOLE } from '../src/verify/option-values.js';
@@ -178,15 +179,17 @@ export function runSettings(config: PleatConfig, flags: RunFlags): RunSettings {
   // (checked here, before any work, not first when the whole-model check starts after a long fold)
   if (flags.seed !== undefined) checkSeed(flags.seed);
   if (flags.probes !== undefined) checkProbeCount(flags.probes);
+  const maxProbeMemory = flags.maxProbeMemory === undefined ? undefined : parseBytes('max-probe-memory', String(flags.maxProbeMemory));
   return {
-    inputs: loadInputFiles(fromFlags.files),
+    // (within the limit the run will have: a value file too large for it is refused before it is read)
+    inputs: withProbeMemory(maxProbeMemory, () => loadInputFiles(fromFlags.files)),
     shapes: new Map([...fromConfig.shapes, ...fromFlags.shapes]),
     dims: new Map([...fromConfig.dims, ...fromFlags.dims]),
     seed: flags.seed ?? config.seed,
     probes: flags.probes ?? config.probes,
     gate: flags.gate ?? config.gate,
     strict: flags.strict ?? config.strict ?? false,
-    maxProbeMemory: flags.maxProbeMemory === undefined ? undefined : parseBytes('max-probe-memory', String(flags.maxProbeMemory)),
+    maxProbeMemory,
   };
 }
 

@@ -8,7 +8,7 @@ import { extname } from 'node:path';
 import { DataType, elementCount, rawByteLength, storageKind, type DataTypeCode, type Dim, type Graph, type Tensor, type ValueInfo } from '../graph/ir.js';
 import type { Value } from '../eval/value.js';
 import { PleatError } from '../errors.js';
-import { checkAllocation } from '../eval/budget.js';
+import { checkAllocation, formatBytes, probeMemoryLimit } from '../eval/budget.js';
 import { freshFloat64 } from '../eval/pool.js';
 import { checkProbeShapes } from './probe-budget.js';
 import { bytesPerElement, dataTypeName, isFloatType, roundToStorage, storedElementCount, tensorToFloat64 } from '../graph/tensor.js';
@@ -89,6 +89,13 @@ export function loadInputFile(path: string): InputValue {
   if (st.isDirectory()) throw new PleatError('bad-input', `${path}: is a folder, expected an input value file (.npy or .pb)`);
   if (!st.isFile()) throw new PleatError('bad-input', `${path}: not a regular file (a FIFO, socket or device), expected an input value file (.npy or .pb)`);
   if (ext === '.npy') return { ...readNpy(path), file: path };
+  // (the file is read and parsed whole, so its size is checked first; the values in it take at most 8 bytes each,
+  // as the float64 value holding them does, bar packed int64 varints of up to 10, so a file beyond the limit
+  // holds a value beyond or near it; the value's own size is checked before it is decoded)
+  const limit = probeMemoryLimit();
+  if (st.size > limit) {
+    throw new PleatError('bad-input', `${path}: ${formatBytes(st.size)}, beyond the probe memory limit of ${formatBytes(limit)} for the value it holds; raise --max-probe-memory`);
+  }
   let bytes: Uint8Array;
   try {
     bytes = readFileSync(path);
@@ -98,6 +105,10 @@ export function loadInputFile(path: string): InputValue {
   try {
     const t = parseTensor(bytes); // .pb: a serialized ONNX TensorProto
     checkTensorFile(t);
+    const n = elementCount(t.dims);
+    if (n * 8 > limit) {
+      throw new PleatError('bad-input', `dims [${t.dims.join(',')}] hold ${n} values, ${formatBytes(n * 8)} as the evaluator holds them (float64), beyond the probe memory limit of ${formatBytes(limit)}; raise --max-probe-memory`);
+    }
     const wide = firstWideInTensor(t);
     return { type: t.dataType, dims: [...t.dims], data: tensorToFloat64(t), file: path, ...(wide ? { wide } : {}) };
   } catch (e) {

@@ -4,7 +4,8 @@
 //   version 1.0, uint32 in 2.0 and 3.0), then a Python dict literal with keys 'descr', 'fortran_order' and
 //   'shape', padded with spaces and ended by '\n' so the data starts on an aligned offset, then the raw data.
 // Version 3.0 only differs from 2.0 in allowing UTF-8 in the header.
-import { readFileSync } from 'node:fs';
+import { closeSync, fstatSync, openSync, readSync } from 'node:fs';
+import { formatBytes, probeMemoryLimit } from '../eval/budget.js';
 import { DataType, elementCount, type DataTypeCode } from '../graph/ir.js';
 import type { Value } from '../eval/value.js';
 import { firstWideInRaw, type WideValue } from './wide-integers.js';
@@ -114,24 +115,34 @@ function parseLiteral(text: string, file: string): Lit {
 
 // ---- read ---------------------------------------------------------------------------------------------
 
-/** Decode .npy bytes into a Value (all element types held as Float64Array). `file` names the source in errors. */
 /** A value read from a .npy file; `wide` is its first int64/uint64 element beyond 2^53 (rounded in `data`). */
 export type NpyValue = Value & { wide?: WideValue };
 
-export function parseNpy(bytes: Uint8Array, file = '<npy>'): NpyValue {
+/** What a header says: where the data starts and what it holds. */
+interface NpyLayout { dataStart: number; type: DataTypeCode; dims: number[]; key: string; descr: string; little: boolean; bpe: number; n: number }
+
+/** Bytes the fixed prefix takes before the header text (magic, version, header length). */
+const PREFIX_BYTES = 12;
+
+/**
+ * Read the prefix and header from `read(offset, length)`, which answers the bytes there (fewer at the file's end);
+ * `fileSize` is the whole file's. Every size is checked against it before more is read.
+ */
+function parseLayout(read: (at: number, length: number) => Uint8Array, fileSize: number, file: string): NpyLayout {
   const bad = (why: string): never => { throw new PleatError('bad-input', `${file}: ${why}`); };
-  if (bytes.length < 10 || MAGIC.some((m, k) => bytes[k] !== m)) bad('not a .npy file (missing the \\x93NUMPY magic)');
-  const major = bytes[6]!;
-  const dv = new DataView(bytes.buffer, bytes.byteOffset, bytes.byteLength);
+  const prefix = read(0, Math.min(fileSize, PREFIX_BYTES));
+  if (fileSize < 10 || MAGIC.some((m, k) => prefix[k] !== m)) bad('not a .npy file (missing the \\x93NUMPY magic)');
+  const major = prefix[6]!;
+  const dv = new DataView(prefix.buffer, prefix.byteOffset, prefix.byteLength);
   let headerLen: number, headerStart: number;
   if (major === 1) { headerLen = dv.getUint16(8, true); headerStart = 10; }
   else if (major === 2 || major === 3) {
-    if (bytes.length < 12) bad('truncated .npy header');
+    if (fileSize < 12) bad('truncated .npy header');
     headerLen = dv.getUint32(8, true); headerStart = 12;
-  } else return bad(`unsupported .npy format version ${major}.${bytes[7]} (pleat reads 1.0, 2.0 and 3.0)`);
+  } else return bad(`unsupported .npy format version ${major}.${prefix[7]} (pleat reads 1.0, 2.0 and 3.0)`);
   const dataStart = headerStart + headerLen;
-  if (dataStart > bytes.length) bad('truncated .npy header');
-  const headerBytes = bytes.subarray(headerStart, dataStart);
+  if (dataStart > fileSize) bad('truncated .npy header');
+  const headerBytes = read(headerStart, headerLen);
   let header = '';
   if (major === 3) header = new TextDecoder('utf-8').decode(headerBytes);
   else for (const b of headerBytes) header += String.fromCharCode(b); // ASCII by the format's definition
@@ -163,11 +174,16 @@ export function parseNpy(bytes: Uint8Array, file = '<npy>'): NpyValue {
   const bpe = Number(size);
   const n = elementCount(dims);
   const need = n * bpe;
-  const have = bytes.length - dataStart;
+  const have = fileSize - dataStart;
   if (have !== need) {
     bad(`.npy data holds ${have} bytes but shape (${dims.join(', ')}) of ${descr} needs ${need}`);
   }
-  const d = new DataView(bytes.buffer, bytes.byteOffset + dataStart, need);
+  return { dataStart, type, dims: [...dims], key: key!, descr, little, bpe, n };
+}
+
+/** Decode the data `d` (exactly n * bpe bytes) a layout describes. */
+function decodeData(d: DataView, layout: NpyLayout): NpyValue {
+  const { type, dims, key, little, n } = layout;
   const out = new Float64Array(n);
   switch (key) {
     case 'f2': for (let i = 0; i < n; i++) out[i] = halfBitsToNumber(d.getUint16(i * 2, little)); break;
@@ -184,18 +200,51 @@ export function parseNpy(bytes: Uint8Array, file = '<npy>'): NpyValue {
     case 'b1': for (let i = 0; i < n; i++) out[i] = d.getUint8(i) ? 1 : 0; break;
   }
   const wide = key === 'i8' || key === 'u8' ? firstWideInRaw(d, n, key === 'i8', little) : undefined;
-  return wide ? { type, dims: [...dims], data: out, wide } : { type, dims: [...dims], data: out };
+  return wide ? { type, dims, data: out, wide } : { type, dims, data: out };
 }
 
-/** Read a .npy file; every failure is a one-line PleatError('bad-input') naming the file. */
+/** Decode .npy bytes into a Value (all element types held as Float64Array). `file` names the source in errors. */
+export function parseNpy(bytes: Uint8Array, file = '<npy>'): NpyValue {
+  const layout = parseLayout((at, length) => bytes.subarray(at, at + length), bytes.length, file);
+  return decodeData(new DataView(bytes.buffer, bytes.byteOffset + layout.dataStart, layout.n * layout.bpe), layout);
+}
+
+/**
+ * Read a .npy file; every failure is a one-line PleatError('bad-input') naming the file. The header is read first
+ * and its shape checked against the file's size and the probe memory limit (the value is held as float64) before
+ * the data is read, so a file too large to hold is refused without reading it.
+ */
 export function readNpy(path: string): NpyValue {
-  let bytes: Uint8Array;
+  const cannot = (e: unknown) => new PleatError('bad-input', `${path}: cannot read (${(e as NodeJS.ErrnoException).code ?? String(e)})`);
+  let fd: number;
+  try { fd = openSync(path, 'r'); } catch (e) { throw cannot(e); }
   try {
-    bytes = readFileSync(path);
+    const read = (at: number, length: number): Uint8Array => {
+      const buf = new Uint8Array(length);
+      let got = 0;
+      while (got < length) {
+        const k = readSync(fd, buf, got, length - got, at + got);
+        if (k === 0) break;
+        got += k;
+      }
+      return buf.subarray(0, got);
+    };
+    let size: number;
+    try { size = fstatSync(fd).size; } catch (e) { throw cannot(e); }
+    const layout = parseLayout(read, size, path);
+    const held = layout.n * 8;
+    if (held > probeMemoryLimit()) {
+      throw new PleatError('bad-input', `${path}: shape (${layout.dims.join(', ')}) holds ${layout.n} values, ${formatBytes(held)} as the evaluator holds them (float64), beyond the probe memory limit of ${formatBytes(probeMemoryLimit())}; raise --max-probe-memory`);
+    }
+    const data = read(layout.dataStart, layout.n * layout.bpe);
+    if (data.length !== layout.n * layout.bpe) throw new PleatError('bad-input', `${path}: the file changed while it was read`);
+    return decodeData(new DataView(data.buffer, data.byteOffset, data.byteLength), layout);
   } catch (e) {
-    throw new PleatError('bad-input', `${path}: cannot read (${(e as NodeJS.ErrnoException).code ?? String(e)})`);
+    if (e instanceof PleatError) throw e;
+    throw cannot(e);
+  } finally {
+    closeSync(fd);
   }
-  return parseNpy(bytes, path);
 }
 
 // ---- write --------------------------------------------------------------------------------------------

@@ -1,6 +1,6 @@
 // Config file loading and merging, report-file specs and the progress bar's on/off rules, as units.
 import { describe, expect, it } from 'vitest';
-import { mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync, symlinkSync, writeFileSync } from 'node:fs';
+import { mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync, symlinkSync, truncateSync, writeFileSync } from 'node:fs';
 import { execFileSync } from 'node:child_process';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
@@ -92,6 +92,19 @@ describe('config file', () => {
     expect(runSettings(config, { gate: 'cosine > 0.5', probes: 1 })).toMatchObject({ gate: 'cosine > 0.5', probes: 1, seed: 9 });
     expect(keepList(config, ['b', 'c'])).toEqual(['a', 'b', 'c']);
     expect(keepList({}, [])).toBeUndefined();
+  });
+
+  it('loads --input files within --max-probe-memory, so a file too large for it is refused before it is read', () => {
+    // 20,000,000 float32 values declared (a sparse file): 152.6 MiB as float64, within the default limit, not 16M
+    const header = "{'descr': '<f4', 'fortran_order': False, 'shape': (20000000,), }";
+    const text = header + ' '.repeat(64 - ((10 + header.length + 1) % 64)) + '\n';
+    const prefix = Buffer.from([0x93, 0x4e, 0x55, 0x4d, 0x50, 0x59, 1, 0, text.length & 0xff, text.length >> 8]);
+    const big = join(dir, 'big.npy');
+    writeFileSync(big, Buffer.concat([prefix, Buffer.from(text, 'latin1')]));
+    truncateSync(big, 10 + text.length + 80_000_000);
+    let error: unknown;
+    try { runSettings({}, { input: [`x=${big}`], maxProbeMemory: '16M' }); } catch (e) { error = e; }
+    expect((error as Error)?.message).toBe(`${big}: shape (20000000) holds 20000000 values, 152.6 MiB as the evaluator holds them (float64), beyond the probe memory limit of 16.0 MiB; raise --max-probe-memory`);
   });
 });
 

@@ -1,7 +1,8 @@
 // Input flags, shape resolution and seeded probes. Models are built with test/helpers/build.ts (onnx-proto's
 // own encoder) and read with pleat's reader; .pb inputs are TensorProtos encoded by onnx-proto.
 import { describe, expect, it } from 'vitest';
-import { mkdirSync, mkdtempSync, writeFileSync } from 'node:fs';
+import { mkdirSync, mkdtempSync, truncateSync, writeFileSync } from 'node:fs';
+import { withProbeMemory } from '../../src/eval/budget.js';
 import { execFileSync } from 'node:child_process';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
@@ -162,6 +163,33 @@ describe('input files', () => {
     expect(Array.from(loadInputFile(write('bool.pb', { dims: [2], dataType: T.BOOL, int32Data: [1, 0] })).data)).toEqual([1, 0]);
     expect(Array.from(loadInputFile(write('u32.pb', { dims: [2], dataType: T.UINT32, uint64Data: [7, 4294967295] })).data)).toEqual([7, 4294967295]);
     expect(Array.from(loadInputFile(write('exact.pb', { dims: [2], dataType: T.FLOAT, rawData: f32([1, 2]) })).data)).toEqual([1, 2]);
+  });
+
+  it('refuses a value file beyond the probe memory limit before reading its data', () => {
+    // 20,000,000 float32 values (80 MB of data, a sparse file): 160 MB as the float64 value the probe holds
+    const header = "{'descr': '<f4', 'fortran_order': False, 'shape': (1, 2, 10000000), }";
+    const head = npyBytes({ type: DataType.FLOAT, dims: [0], data: new Float64Array(0) }).slice(0, 10);
+    const text = header + ' '.repeat(64 * Math.ceil((10 + header.length + 1) / 64) - 10 - header.length - 1) + '\n';
+    new DataView(head.buffer).setUint16(8, text.length, true);
+    const big = join(dir, 'big.npy');
+    writeFileSync(big, Buffer.concat([head, Buffer.from(text, 'latin1')]));
+    truncateSync(big, 10 + text.length + 80_000_000);
+    const e = err(() => withProbeMemory(16 * 1024 * 1024, () => loadInputFile(big)));
+    expect(e.kind).toBe('bad-input');
+    expect(e.message).toBe(`${big}: shape (1, 2, 10000000) holds 20000000 values, 152.6 MiB as the evaluator holds them (float64), beyond the probe memory limit of 16.0 MiB; raise --max-probe-memory`);
+    // a .pb is refused by its size before it is read and decoded
+    const pb = join(dir, 'big.pb');
+    writeFileSync(pb, '');
+    truncateSync(pb, 20_000_000);
+    expect(err(() => withProbeMemory(16 * 1024 * 1024, () => loadInputFile(pb))).message)
+      .toBe(`${pb}: 19.1 MiB, beyond the probe memory limit of 16.0 MiB for the value it holds; raise --max-probe-memory`);
+    // a small .pb whose values take far more as float64 (2,000,000 int8 in raw_data: 15.3 MiB) is refused before decoding
+    const i8 = join(dir, 'int8.pb');
+    writeFileSync(i8, onnxProto.onnx.TensorProto.encode(onnxProto.onnx.TensorProto.fromObject({ name: 'x', dims: [2000000], dataType: T.INT8, rawData: new Uint8Array(2000000) })).finish());
+    expect(err(() => withProbeMemory(8 * 1024 * 1024, () => loadInputFile(i8))).message)
+      .toBe(`${i8}: dims [2000000] hold 2000000 values, 15.3 MiB as the evaluator holds them (float64), beyond the probe memory limit of 8.0 MiB; raise --max-probe-memory`);
+    // a file within the limit still reads
+    expect(loadInputFile(join(dir, 'a.npy')).dims).toEqual([2]);
   });
 
   // a FIFO blocked the read until something wrote to it, or for ever (and SIGTERM could not end it)
