@@ -18,7 +18,7 @@ export { foldLoaded } from './jobs/fold.js';
 export { exportFile, type ExportReport } from './jobs/export.js';
 export { exportBundle, BUNDLE_FORMATS, type BundleFormat, type BundleResult } from './ship/bundle.js';
 export { auditLoaded } from './jobs/audit.js';
-export { saveOutputs, saveOutputsStaged } from './jobs/save-outputs.js';
+export { checkSaveTarget, saveOutputs, saveOutputsStaged } from './jobs/save-outputs.js';
 export { loadInputFile, loadInputFiles, parseInputFlags } from './verify/inputs.js';
 export { DEFAULT_GATES } from './verify/gate.js';
 export { setThreads } from './eval/threads.js';

@@ -26,12 +26,17 @@ export async function handler(argv: Flags): Promise<void> {
   const threads = threadsFlag(argv.threads);
   // loaded here, not at start-up (see compare.ts)
   await outputsModule(); // (its notices as warning lines)
-  const { evaluate, saveOutputsStaged, setThreads } = await import('../../src/index.js');
+  const { checkSaveTarget, evaluate, saveOutputsStaged, setThreads } = await import('../../src/index.js');
+  const { readModelFile } = await import('../../src/onnx/read.js');
   const { dataTypeName } = await import('../../src/graph/tensor.js');
   if (threads !== undefined) setThreads(threads);
   const { toJsonText } = await import('../../src/report/json.js');
-  const r = evaluate(argv.model, { inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, precision: argv.precision, maxProbeMemory: run.maxProbeMemory });
-  const staged = saveOutputsStaged(argv.save, r.outputs, { reads: filesRead(path, run.inputs) });
+  const reads = filesRead(path, run.inputs);
+  // the outputs' files are checked before the work, once the model says what they are called
+  const model = readModelFile(argv.model);
+  checkSaveTarget(argv.save, model.graph.outputs.map((o) => o.name), { reads });
+  const r = evaluate(model, { inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, precision: argv.precision, maxProbeMemory: run.maxProbeMemory });
+  const staged = saveOutputsStaged(argv.save, r.outputs, { reads });
   await signalsFirst(); // a TERM or Ctrl-C during the work ends the run here: nothing renamed in
   const saved = staged.commit();
   const outputs = saved.files.map((f) => ({ ...f, dtype: dataTypeName(r.outputs.get(f.name)!.type), dims: [...r.outputs.get(f.name)!.dims] }));

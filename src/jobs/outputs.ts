@@ -450,12 +450,11 @@ export class OutputSet {
    */
   stageFiles(folder: string, exists: boolean, files: ReadonlyArray<readonly [string, (path: string) => void]>, role: string): Map<string, string> {
     const staged = new Map<string, string>();
+    const claimed = this.claimFiles(folder, exists, files.map(([name]) => name), role);
     if (exists) {
-      const targets = files.map(([name]) => this.reserve(join(folder, name), role));
-      files.forEach(([name, write], i) => this.stage(targets[i]!, (tmp) => { staged.set(name, tmp); write(tmp); }));
+      files.forEach(([name, write], i) => this.stage(claimed[i]!, (tmp) => { staged.set(name, tmp); write(tmp); }));
     } else {
-      const top = highestMissing(folder, `${role} ${folder}`);
-      this.reserveFolder(top, role);
+      const top = claimed[0]!;
       this.stageFolder(top, (tmp) => {
         const inside = join(tmp, relative(top, resolve(folder)));
         mkdirSync(inside, { recursive: true });
@@ -467,6 +466,19 @@ export class OutputSet {
       });
     }
     return staged;
+  }
+
+  /**
+   * Claim what stageFiles writes for the files `names` of `folder` (each file when the folder exists, else the
+   * highest missing folder on its path), or refuse it; gives the claimed paths. A set that only claims and is then
+   * aborted checks the destinations before any work, writing nothing (evaluate --save, whose file names are known
+   * once the model is read).
+   */
+  claimFiles(folder: string, exists: boolean, names: readonly string[], role: string): string[] {
+    if (exists) return names.map((name) => this.reserve(join(folder, name), role));
+    const top = highestMissing(folder, `${role} ${folder}`);
+    this.reserveFolder(top, role);
+    return [top];
   }
 
   /** Write a reserved folder at a temporary name beside it (`write` creates and fills the folder it is given). */

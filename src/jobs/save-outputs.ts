@@ -7,7 +7,7 @@ import { statSync, writeFileSync } from 'node:fs';
 import { resolve } from 'node:path';
 import { PleatError } from '../errors.js';
 import type { Value } from '../eval/value.js';
-import { outputFiles, type SavedOutputs, type SaveOptions } from '../verify/evaluate.js';
+import { outputFiles, safeFileNames, type SavedOutputs, type SaveOptions } from '../verify/evaluate.js';
 import { OutputSet } from './outputs.js';
 
 export type { SavedOutputs, SaveOptions };
@@ -22,19 +22,39 @@ export interface StagedOutputs {
 const cannotCreate = (dir: string, code: string | undefined) =>
   new PleatError('bad-input', `${dir}: cannot create the output folder (${code ?? 'unknown error'})`);
 
-/** Stage OUTPUTS for DIR without renaming anything in. */
-export function saveOutputsStaged(dir: string, outputs: ReadonlyMap<string, Value>, opts: SaveOptions = {}): StagedOutputs {
-  const { files, contents } = outputFiles(outputs, opts);
-  const full = resolve(dir);
-  let exists: boolean;
+/** Whether DIR is there (a folder), or refused: a file or something else that cannot be it. */
+function folderThere(dir: string): boolean {
   try {
-    const st = statSync(full, { throwIfNoEntry: false });
+    const st = statSync(resolve(dir), { throwIfNoEntry: false });
     if (st && !st.isDirectory()) throw cannotCreate(dir, 'EEXIST');
-    exists = st !== undefined;
+    return st !== undefined;
   } catch (e) {
     if (e instanceof PleatError) throw e;
     throw cannotCreate(dir, (e as NodeJS.ErrnoException).code);
   }
+}
+
+/**
+ * Check, before any work, that the outputs named `outputNames` can be saved in DIR (the files they will have and
+ * outputs.json, or DIR made at the commit): the same refusals staging would give, with nothing written.
+ */
+export function checkSaveTarget(dir: string, outputNames: readonly string[], opts: Pick<SaveOptions, 'reads'> = {}): void {
+  const full = resolve(dir);
+  const exists = folderThere(dir);
+  const tx = new OutputSet();
+  try {
+    for (const [p, what] of opts.reads ?? []) tx.protect(p, what);
+    tx.claimFiles(full, exists, [...safeFileNames(outputNames), 'outputs.json'], '--save');
+  } finally {
+    tx.abort();
+  }
+}
+
+/** Stage OUTPUTS for DIR without renaming anything in. */
+export function saveOutputsStaged(dir: string, outputs: ReadonlyMap<string, Value>, opts: SaveOptions = {}): StagedOutputs {
+  const { files, contents } = outputFiles(outputs, opts);
+  const full = resolve(dir);
+  const exists = folderThere(dir);
   const tx = new OutputSet();
   try {
     for (const [p, what] of opts.reads ?? []) tx.protect(p, what);

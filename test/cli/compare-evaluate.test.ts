@@ -135,6 +135,28 @@ describe('pleat evaluate', { timeout: 120_000 }, () => {
     expect(lstatSync(join(out, 'outputs.json')).isFIFO()).toBe(true);
   });
 
+  it('--save is checked before the work, against the file names the model\'s outputs will have', () => {
+    // a file where the folder goes, with a probe budget the run would exceed: the --save refusal comes first
+    const file = join(dir, 'save-is-a-file');
+    writeFileSync(file, 'mine');
+    const r = pleat(['evaluate', a, '--shape', 'x=1x2x5x5', '--save', file, '--max-probe-memory', '1K']);
+    expect(r.code).toBe(2);
+    expect(r.stderr).toBe(`pleat: ${file}: cannot create the output folder (EEXIST)\n`);
+    expect(readFileSync(file, 'utf8')).toBe('mine');
+    // a FIFO at an output's own name (y.npy, from the graph's output y) is refused before the work too
+    const out = join(dir, 'eval-fifo-output');
+    mkdirSync(out);
+    execFileSync('mkfifo', [join(out, 'y.npy')]);
+    const f = pleat(['evaluate', a, '--shape', 'x=1x2x5x5', '--save', out, '--max-probe-memory', '1K']);
+    expect(f.code).toBe(2);
+    expect(f.stderr).toMatch(/^pleat: .*y\.npy: is a FIFO, not a file;/);
+    expect(readdirSync(out)).toEqual(['y.npy']);
+    // the check claims nothing: a good --save still works, and makes its folder only at the commit
+    const good = join(dir, 'eval-new', 'deep');
+    expect(pleat(['evaluate', a, '--shape', 'x=1x2x5x5', '--save', good]).code).toBe(0);
+    expect(readdirSync(good).sort()).toEqual(['outputs.json', 'y.npy']);
+  });
+
   it('--save is required; a wrong input shape is bad input naming both shapes', () => {
     const r = pleat(['evaluate', a, '--dim', 'batch=1']);
     expect(r.code).toBe(2);
