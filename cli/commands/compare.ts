@@ -1,5 +1,5 @@
 import type { Argv } from 'yargs';
-import { filesRead, loadConfig, runSettings } from '../config.js';
+import { filesRead, loadConfig, nameOrigins, runSettings } from '../config.js';
 import { checkDestinations, emit, planReports, runFigures } from '../output.js';
 import { checkFlags, configFlags, EPILOGUE, inputFlags, int8Flags, int8Setting, reportFlags, threadsFlag } from '../flags.js';
 
@@ -17,7 +17,7 @@ interface Flags { a: string; b: string; threads?: number; simulateInt8?: string;
 
 export async function handler(argv: Flags): Promise<void> {
   const plan = planReports(argv);
-  const { config, path } = loadConfig(argv.config);
+  const { config, file, path } = loadConfig(argv.config);
   const run = runSettings(config, argv);
   const reads = filesRead(path, run.inputs);
   const threads = threadsFlag(argv.threads);
@@ -31,7 +31,7 @@ export async function handler(argv: Flags): Promise<void> {
   const started = process.hrtime.bigint();
   // the probe folder (--save-probes) is staged, and renamed in with the reports, after a TERM or Ctrl-C that came
   // during the work has had its turn
-  const { report, staged, digests } = compareStaged(argv.a, argv.b, { ...run, simulateInt8: int8Setting(argv), saveProbes: argv.saveProbes, digests: plan.pageDetail });
+  const { report, staged, digests } = compareStaged(argv.a, argv.b, { ...run, simulateInt8: int8Setting(argv), saveProbes: argv.saveProbes, digests: plan.pageDetail, origins: nameOrigins(config, file, argv) });
   const extras = {
     ...digests,
     ...(plan.runFigures ? { run: runFigures(started) } : {}),

@@ -1,7 +1,7 @@
 import type { Argv } from 'yargs';
 import { sep } from 'node:path';
 import { SCHEMA_VERSION } from '../../src/jobs/types.js';
-import { filesRead, loadConfig, runSettings } from '../config.js';
+import { filesRead, loadConfig, nameOrigins, runSettings } from '../config.js';
 import { out } from '../errors.js';
 import { signalsFirst } from '../cancel.js';
 import { outputsModule } from '../output.js';
@@ -21,7 +21,7 @@ export function builder(y: Argv) {
 interface Flags { model: string; precision: 'float64' | 'float32'; threads?: number; save: string; json: boolean; seed?: number; input?: string[]; shape?: string[]; dim?: string[]; config?: string }
 
 export async function handler(argv: Flags): Promise<void> {
-  const { config, path } = loadConfig(argv.config);
+  const { config, file, path } = loadConfig(argv.config);
   const run = runSettings(config, argv);
   const threads = threadsFlag(argv.threads);
   // loaded here, not at start-up (see compare.ts)
@@ -34,6 +34,8 @@ export async function handler(argv: Flags): Promise<void> {
   const reads = filesRead(path, run.inputs);
   // the outputs' files are checked before the work, once the model says what they are called
   const model = readModelFile(argv.model);
+  const { checkJobNames } = await import('../../src/jobs/names.js');
+  checkJobNames(model, argv.model, { dims: run.dims, shapes: run.shapes, origins: nameOrigins(config, file, argv) });
   checkSaveTarget(argv.save, model.graph.outputs.map((o) => o.name), { reads });
   const r = evaluate(model, { inputs: run.inputs, shapes: run.shapes, dims: run.dims, seed: run.seed, precision: argv.precision, maxProbeMemory: run.maxProbeMemory });
   const staged = saveOutputsStaged(argv.save, r.outputs, { reads });

@@ -12,12 +12,15 @@ import { OutputSet, type StagedFile } from './outputs.js';
 import { SCHEMA_VERSION } from './types.js';
 import { fileSha256 } from './sha256.js';
 import { externalSha256Later } from './provenance.js';
+import { checkNames, modelNames, type NameOrigins } from './names.js';
+import { asMap } from '../verify/inputs.js';
 
 /** What compare() returns and `pleat compare --json` prints: the comparison, with the schema version, the command and the two models. */
 export type CompareJobReport = { schemaVersion: number; command: 'compare'; a: string; b: string } & CompareReport;
 
 /** `digests`: also work out each model's SHA-256, and its side files' digest when it has external data (the HTML page shows them). */
-export type CompareJobOptions = CompareOptions & { saveProbes?: string; digests?: boolean };
+/** `origins`: which dim and shape names came from a config file (messages then name the file, not a flag). */
+export type CompareJobOptions = CompareOptions & { saveProbes?: string; digests?: boolean; origins?: NameOrigins };
 
 /**
  * Which files were compared: each model file's SHA-256, and for a model whose weights are in external data its side
@@ -78,8 +81,11 @@ function digestsOf(m: string | Model, model: Model): { sha256?: string; external
 function compareIn(tx: OutputSet, a: string | Model, b: string | Model, options: CompareJobOptions, found: { digests?: CompareDigests } = {}): CompareJobReport {
   checkOptionValues(options);
   const named = (r: CompareReport): CompareJobReport => ({ schemaVersion: SCHEMA_VERSION, command: 'compare', a: nameOf(a), b: nameOf(b), ...r });
-  const { saveProbes, digests, ...opts } = options;
+  const { saveProbes, digests, origins, ...opts } = options;
   const ma = loadChecked(a), mb = loadChecked(b);
+  // a dim or shape name matching no input of either model, named as the user gave it (flag or config file)
+  const dims = [...asMap(opts.dims).keys()], shapes = [...asMap(opts.shapes).keys()];
+  if (dims.length || shapes.length) checkNames([modelNames(ma, nameOf(a), false), modelNames(mb, nameOf(b), false)], { dims, shapes, origins });
   if (digests) {
     const da = digestsOf(a, ma), db = digestsOf(b, mb);
     if (da.sha256 !== undefined && db.sha256 !== undefined) {

@@ -91,7 +91,8 @@ export function checkNames(models: readonly ModelNames[], given: GivenNames): vo
   const inputs = union((m) => m.inputs);
   for (const name of given.shapes ?? []) {
     if (!inputs.has(name)) {
-      throw new PleatError('usage', `${nameSource('shapes', name, given.origins)}: ${where(labels)} has no input named '${name}' (inputs: ${[...inputs].join(', ') || 'none'})`);
+      const none = labels.length === 1 ? `${labels[0]} has no input named '${name}'` : `none of the ${labels.length} models has an input named '${name}'`;
+      throw new PleatError('usage', `${nameSource('shapes', name, given.origins)}: ${none} (inputs: ${[...inputs].join(', ') || 'none'})`);
     }
   }
 }

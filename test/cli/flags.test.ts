@@ -213,6 +213,30 @@ describe('names that match nothing are errors (item 9)', () => {
     usage(['audit', M, E, '--keep', 'nosuch.bn'], /--keep nosuch\.bn: no normalization of that name in any of the 2 models/);
     usage(['fold', M, E, '--out-dir', join(ROOT, 'never-written'), '--dim', 'nosuch=1'], /--dim nosuch: no input of any of the 2 models/);
   });
+  it('compare and evaluate name a dim or shape from the config file as coming from it, not as a flag never typed', async () => {
+    const { mkdtempSync, writeFileSync, existsSync } = await import('node:fs');
+    const { tmpdir } = await import('node:os');
+    const d = mkdtempSync(join(tmpdir(), 'pleat-names-'));
+    writeFileSync(join(d, 'dims.json'), JSON.stringify({ dims: { nosuch: 2 } }));
+    writeFileSync(join(d, 'shapes.json'), JSON.stringify({ shapes: { nosuch: [1, 2] } }));
+    const cases: Array<[string[], RegExp]> = [
+      [['compare', M, M, '--config', join(d, 'dims.json')], /^pleat: 'nosuch' under "dims" in .*dims\.json: no input of any of the 2 models has a dynamic dim named 'nosuch'/],
+      [['compare', M, M, '--config', join(d, 'shapes.json')], /^pleat: 'nosuch' under "shapes" in .*shapes\.json: none of the 2 models has an input named 'nosuch' \(inputs: image\)/],
+      [['evaluate', M, '--save', join(d, 'out'), '--config', join(d, 'dims.json')], /^pleat: 'nosuch' under "dims" in .*dims\.json: no input of .* has a dynamic dim named 'nosuch'/],
+      [['evaluate', M, '--save', join(d, 'out'), '--config', join(d, 'shapes.json')], /^pleat: 'nosuch' under "shapes" in .*shapes\.json: .* has no input named 'nosuch'/],
+    ];
+    for (const [args, message] of cases) {
+      const r = pleat(args, { cwd: d });
+      expect(r.code, args.join(' ')).toBe(2);
+      expect(r.stderr).toMatch(message);
+      expect(r.stderr).not.toMatch(/--dim|--shape/);
+    }
+    expect(existsSync(join(d, 'out'))).toBe(false);
+    // given as flags, they are named as the flags
+    usage(['compare', M, M, '--dim', 'nosuch=2'], /^pleat: --dim nosuch: no input of any of the 2 models/);
+    usage(['evaluate', M, '--save', join(d, 'out'), '--shape', 'nosuch=1x2'], /^pleat: --shape nosuch: .* has no input named 'nosuch'/);
+  });
+
   it('a keep from the config file is reported as coming from the config file', async () => {
     const { mkdtempSync, writeFileSync } = await import('node:fs');
     const { tmpdir } = await import('node:os');
