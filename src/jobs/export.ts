@@ -1,6 +1,7 @@
 // The export job: fold (with every proof and the whole-model check), then write the folded weights as a
 // bundle for device runtimes. Nothing is written when a gate fails.
 import { readModelFile } from '../onnx/read.js';
+import type { Model } from '../graph/ir.js';
 import { join } from 'node:path';
 import { asGiven, BUNDLE_FILES, checkBundleFolder, planBundle, writeAll, type BundleFormat, type BundleResult } from '../ship/bundle.js';
 import { sideFilePaths } from '../onnx/external.js';
@@ -83,4 +84,27 @@ export function exportStaged(input: string, dir: string, format: BundleFormat = 
       throw e;
     }
   });
+}
+
+/**
+ * Write a model's weights, as they are (no fold), into `dir` as `weights.safetensors` + `manifest.json` (format
+ * 'safetensors') or `weights.h` + `weights.c` + `manifest.json` (format 'c'); same model and format, same bytes.
+ * Through the output transaction, as every write of pleat's: the files staged, read back and compared with the
+ * model, then renamed in together (a new folder whole), or nothing written; a killed process's temporaries are
+ * named in intent records, for the next run writing there to clear.
+ */
+export function exportBundle(model: Model, dir: string, format: BundleFormat): BundleResult {
+  const folder = checkBundleFolder(dir, format);
+  const tx = new OutputSet();
+  try {
+    if (model.sourcePath) [model.sourcePath, ...sideFilePaths(model)].forEach((p, i) => tx.protect(p, i === 0 ? 'input model' : "input model's side file"));
+    const planned = planBundle(model, folder.full, format);
+    const staged = tx.stageFiles(folder.full, folder.exists, planned.files.map(([name, content]) => [name, (path: string) => writeAll(path, content)] as const), '--bundle');
+    const readBack = readBackBundle(model, format, staged);
+    tx.commit();
+    return asGiven({ ...planned.result, readBack }, dir);
+  } catch (e) {
+    tx.abort();
+    throw e;
+  }
 }

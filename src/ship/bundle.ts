@@ -1,10 +1,10 @@
 // Weight bundles for device runtimes that load raw weights instead of ONNX files: the model's constant
 // tensors as one safetensors file or as C source, plus manifest.json, which maps every layer (node) to its
-// attributes, inputs, outputs and the tensors it reads. All files are written to temporary names first and
-// renamed into place together, so a failure leaves no partial bundle.
+// attributes, inputs, outputs and the tensors it reads. This room plans the files and their bytes; they are
+// written through the output transaction (src/jobs/export.ts), staged, read back and renamed in together.
 import { ensureLoaded } from '../onnx/sparse-read.js';
-import { entryAt, specialKind } from '../onnx/paths.js';
-import { accessSync, closeSync, constants, lstatSync, mkdirSync, openSync, renameSync, rmdirSync, rmSync, statSync, writeSync } from 'node:fs';
+import { entryAt } from '../onnx/paths.js';
+import { accessSync, closeSync, constants, lstatSync, openSync, writeSync } from 'node:fs';
 import { basename, dirname, join, resolve, sep } from 'node:path';
 import { DataType, elementCount, type Attribute, type DataTypeCode, type Graph, type Model, type Node, type Tensor, type ValueInfo } from '../graph/ir.js';
 import { PleatError } from '../errors.js';
@@ -12,7 +12,7 @@ import { bfloatBitsToNumber, bytesPerElement, dataTypeName, halfBitsToNumber } f
 import { layoutSafetensors, safetensorsDtype } from './safetensors.js';
 import { cElementType, renderCSource } from './c-source.js';
 import type { BundleTensor } from './bundle-tensor.js';
-import { BundleMismatch, readBackBundle, type BundleReadBack } from './read-back.js';
+import type { BundleReadBack } from './read-back.js';
 
 export type { BundleTensor, BundleReadBack };
 
@@ -341,8 +341,6 @@ function manifest(model: Model, format: BundleFormat, files: string[], c: Collec
 
 // ---- writing --------------------------------------------------------------------------------------
 
-let tmpCounter = 0;
-
 export type Content = Iterable<Uint8Array | string>;
 
 export function writeAll(path: string, content: Content): void {
@@ -356,53 +354,6 @@ export function writeAll(path: string, content: Content): void {
   } finally {
     closeSync(fd);
   }
-}
-
-/**
- * Write several files so that either all of them are in place or none was touched: each goes to a temporary
- * name; then files already there are moved aside, the new ones renamed in, and the old ones removed. If a
- * rename fails, the old files are put back.
- */
-function writeFilesAtomically(dir: string, files: Array<[string, Content]>, source: string | undefined, check: (staged: Map<string, string>) => void): string[] {
-  const targets = files.map(([name]) => join(dir, name));
-  for (const target of targets) {
-    if (source && resolve(source) === target) throw new PleatError('bad-input', `${target}: refusing to overwrite the input model; choose another --bundle folder`);
-    const st = entryAt(target, target); // (a link loop there is bad input, not an internal error)
-    if (st?.isDirectory()) {
-      throw new PleatError('bad-input', `${target}: is a folder, so the bundle cannot be written there; remove it or choose another --bundle folder`);
-    }
-    const special = specialKind(st);
-    if (special) throw new PleatError('bad-input', `${target}: is ${special}, not a file; writing the bundle into place would replace it`);
-  }
-  const tag = `${process.pid}.${tmpCounter++}`;
-  const temps: string[] = [];
-  const moved: Array<[string, string]> = []; // [backup, target]
-  const placed: string[] = [];
-  try {
-    files.forEach(([name, content]) => {
-      const tmp = join(dir, `.${name}.${tag}.tmp`);
-      temps.push(tmp);
-      writeAll(tmp, content);
-    });
-    check(new Map(files.map(([name], i) => [name, temps[i]!])));
-    targets.forEach((target, i) => {
-      if (statSync(target, { throwIfNoEntry: false })) {
-        const backup = join(dir, `.${files[i]![0]}.${tag}.old`);
-        renameSync(target, backup);
-        moved.push([backup, target]);
-      }
-      renameSync(temps[i]!, target);
-      placed.push(target);
-    });
-  } catch (e) {
-    for (const t of placed) rmSync(t, { force: true });
-    for (const [backup, target] of moved) { try { renameSync(backup, target); } catch { /* keep the backup file */ } }
-    for (const tmp of temps) rmSync(tmp, { force: true });
-    if (e instanceof PleatError || e instanceof BundleMismatch) throw e;
-    throw new PleatError('bad-input', `${dir}: cannot write the bundle (${(e as Error).message.split('\n')[0]})`);
-  }
-  for (const [backup] of moved) rmSync(backup, { force: true });
-  return targets;
 }
 
 /** The files each bundle format writes, manifest last. */
@@ -422,7 +373,7 @@ export function checkBundleFormat(format: BundleFormat): void {
  * (pleat creates the bundle folder itself, never the folders above it, as fold never creates -o's folder); and it
  * holds no file of the other format's bundle, which the new bundle would not replace and its manifest would not
  * list (another model's weights left beside it). Nothing is removed: the user empties the folder. The files
- * themselves are checked where they are claimed (OutputSet.reserve, or writeFilesAtomically).
+ * themselves are checked where they are claimed (OutputSet.reserve).
  */
 export function checkBundleFolder(dir: string, format: BundleFormat): { full: string; exists: boolean } {
   checkBundleFormat(format);
@@ -446,35 +397,6 @@ export function checkBundleFolder(dir: string, format: BundleFormat): { full: st
     throw new PleatError('bad-input', `${label}: holds ${name}, which a ${format} bundle does not write, so it would stay beside a manifest that does not list it; use an empty folder or remove ${name}`);
   }
   return { full, exists: true };
-}
-
-/** Create the bundle folder checked by checkBundleFolder (its parent exists). */
-export function createBundleFolder(full: string): void {
-  try {
-    mkdirSync(full);
-  } catch (e) {
-    if ((e as NodeJS.ErrnoException).code === 'EEXIST' && statSync(full).isDirectory()) return;
-    throw new PleatError('bad-input', `${full}: cannot create the bundle folder (${(e as Error).message.split('\n')[0]})`);
-  }
-}
-
-/**
- * Write the model's weights into `dir` as `weights.safetensors` + `manifest.json` (format 'safetensors') or
- * `weights.h` + `weights.c` + `manifest.json` (format 'c'). Same model and format, same bytes.
- */
-export function exportBundle(model: Model, dir: string, format: BundleFormat): BundleResult {
-  const folder = checkBundleFolder(dir, format);
-  const planned = planBundle(model, folder.full, format);
-  if (!folder.exists) createBundleFolder(folder.full);
-  let readBack: BundleReadBack | undefined;
-  try {
-    writeFilesAtomically(planned.result.dir, planned.files, model.sourcePath, (staged) => { readBack = readBackBundle(model, format, staged); });
-  } catch (e) {
-    // the folder this call made goes with its files (a failed read back left it, empty); rmdir takes only an empty one
-    if (!folder.exists) { try { rmdirSync(folder.full); } catch { /* something else was put there: left */ } }
-    throw e;
-  }
-  return asGiven({ ...planned.result, readBack: readBack! }, dir);
 }
 
 /** The result with the folder and files named as the caller gave the folder (reports print paths as given). */

@@ -9,7 +9,7 @@ import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
 import '../../src/jobs/with-checks.js'; // proven folds, as the library entry point loads them
 import { exportFile } from '../../src/jobs/export.js';
-import { exportBundle } from '../../src/ship/bundle.js';
+import { exportBundle } from '../../src/jobs/export.js';
 import { readModelFile } from '../../src/onnx/read.js';
 import { PleatError } from '../../src/errors.js';
 import { refusedWith } from '../helpers/refused.js';
@@ -71,5 +71,33 @@ describe('export: the bundle folder', { timeout: 120_000 }, () => {
     // a passing one creates it
     expect(exportFile(MODEL, fresh, 'c', { probes: 1 }).bundle).not.toBeNull();
     expect(readdirSync(fresh).sort()).toEqual(['manifest.json', 'weights.c', 'weights.h']);
+  });
+});
+
+describe("the library's exportBundle", { timeout: 120_000 }, () => {
+  it('writes through the output transaction: killed before its renames, it leaves only what the next run clears', () => {
+    // a child process exports the demo model's weights with the public entry point and is killed where the
+    // output transaction has staged every file (PLEAT_KILL_AT, src/jobs/outputs.ts); a bundle written by a path of
+    // its own never got there, and its temporaries were named in no intent record (left by a kill for good)
+    const dir = join(work, 'lib-bundle');
+    const entry = resolve(import.meta.dirname, '..', '..', 'dist', 'src', 'index.js');
+    const script = `const p = await import(${JSON.stringify(entry)}); p.exportBundle(p.readModelFile(${JSON.stringify(MODEL)}), ${JSON.stringify(dir)}, 'safetensors');`;
+    let signal: string | null = null;
+    try {
+      execFileSync(process.execPath, ['--input-type=module', '-e', script], { env: { ...process.env, PLEAT_KILL_AT: 'staged' }, stdio: 'pipe' });
+    } catch (e) {
+      signal = (e as { signal: string | null }).signal;
+    }
+    expect(signal).toBe('SIGKILL');
+    // the new folder was staged whole: nothing at its name, a temporary beside it, named in an intent record
+    expect(existsSync(dir)).toBe(false);
+    const left = readdirSync(work).filter((n) => n.startsWith('.pleat-'));
+    expect(left.some((n) => n.endsWith('-lib-bundle.tmp'))).toBe(true);
+    expect(left.some((n) => n.endsWith('.intent'))).toBe(true);
+    // the next export there clears them and writes the bundle
+    const r = exportBundle(readModelFile(MODEL), dir, 'safetensors');
+    expect(r.readBack.status).toBe('passed');
+    expect(readdirSync(dir).sort()).toEqual(['manifest.json', 'weights.safetensors']);
+    expect(readdirSync(work).filter((n) => n.startsWith('.pleat-'))).toEqual([]);
   });
 });

@@ -4,7 +4,7 @@ import { mkdtempSync, readFileSync, readdirSync, rmSync, writeFileSync } from 'n
 import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
 import onnxProto from 'onnx-proto';
-import { exportBundle } from '../../src/ship/bundle.js';
+import { exportBundle } from '../../src/jobs/export.js';
 import { cIdentifiers, commentText } from '../../src/ship/c-source.js';
 import { readModelFile } from '../../src/onnx/read.js';
 import { bundleFixture, fnv1a64, type Expected } from './bundle-fixture.js';

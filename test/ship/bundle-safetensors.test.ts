@@ -4,7 +4,7 @@ import { execFileSync } from 'node:child_process';
 import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
 import onnxProto from 'onnx-proto';
-import { exportBundle } from '../../src/ship/bundle.js';
+import { exportBundle } from '../../src/jobs/export.js';
 import { parseModel, readModelFile } from '../../src/onnx/read.js';
 import { PleatError } from '../../src/errors.js';
 import { foldModel } from '../../src/fold/index.js';

@@ -8,7 +8,7 @@ import { mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import onnxProto from 'onnx-proto';
-import { exportBundle } from '../../src/ship/bundle.js';
+import { exportBundle } from '../../src/jobs/export.js';
 import { parseModel, readModelFile } from '../../src/onnx/read.js';
 import { surveyModel } from '../../src/jobs/survey.js';
 import { evaluate } from '../../src/verify/evaluate.js';

@@ -11,7 +11,7 @@ import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
 import '../../src/jobs/with-checks.js';
 import { exportFile } from '../../src/jobs/export.js';
-import { exportBundle } from '../../src/ship/bundle.js';
+import { exportBundle } from '../../src/jobs/export.js';
 import { BundleMismatch, duplicateKey, readBackBundle } from '../../src/ship/read-back.js';
 import { readModelFile } from '../../src/onnx/read.js';
 import { f, fs, GraphBuilder, modelBytes, rng, T } from '../helpers/build.js';
