@@ -18,8 +18,10 @@ import { asMap } from '../verify/inputs.js';
 /** What compare() returns and `pleat compare --json` prints: the comparison, with the schema version, the command and the two models. */
 export type CompareJobReport = { schemaVersion: number; command: 'compare'; a: string; b: string } & CompareReport;
 
-/** `digests`: also work out each model's SHA-256, and its side files' digest when it has external data (the HTML page shows them). */
-/** `origins`: which dim and shape names came from a config file (messages then name the file, not a flag). */
+/**
+ * `digests`: also work out each model's SHA-256, and its side files' digest when it has external data (the HTML page
+ * shows them). `origins`: which dim and shape names came from a config file (messages then name the file, not a flag).
+ */
 export type CompareJobOptions = CompareOptions & { saveProbes?: string; digests?: boolean; origins?: NameOrigins };
 
 /**

@@ -7,7 +7,7 @@ import { statSync, writeFileSync } from 'node:fs';
 import { resolve } from 'node:path';
 import { PleatError } from '../errors.js';
 import type { Value } from '../eval/value.js';
-import { outputFiles, safeFileNames, type SavedOutputs, type SaveOptions } from '../verify/evaluate.js';
+import { outputFiles, savedFileNames, type SavedOutputs, type SaveOptions } from '../verify/evaluate.js';
 import { OutputSet } from './outputs.js';
 
 export type { SavedOutputs, SaveOptions };
@@ -44,7 +44,7 @@ export function checkSaveTarget(dir: string, outputNames: readonly string[], opt
   const tx = new OutputSet();
   try {
     for (const [p, what] of opts.reads ?? []) tx.protect(p, what);
-    tx.claimFiles(full, exists, [...safeFileNames(outputNames), 'outputs.json'], '--save');
+    tx.claimFiles(full, exists, savedFileNames(outputNames), '--save');
   } finally {
     tx.abort();
   }

@@ -50,13 +50,16 @@ function evaluateWithin(model: Model, opts: EvaluateOptions): EvaluateResult {
   return { precision, seed, inputSummary: summarizeInputs(specs), inputs, outputs };
 }
 
+/** The index file saving outputs writes beside them. */
+const INDEX_FILE = 'outputs.json';
+
 /**
  * File names for output names: keep [A-Za-z0-9._-], replace anything else with '_', never start with '.', and
  * make names unique ignoring case (so they survive case-insensitive file systems) by adding -2, -3, ... in
  * output order.
  */
 export function safeFileNames(names: readonly string[], ext = '.npy'): string[] {
-  const used = new Set<string>(['outputs.json']);
+  const used = new Set<string>([INDEX_FILE]);
   return names.map((name) => {
     let base = name.replace(/[^A-Za-z0-9._-]/g, '_').replace(/^\./, '_');
     if (base === '') base = 'output';
@@ -80,6 +83,11 @@ export interface SavedOutputs {
   files: Array<{ name: string; file: string }>;
 }
 
+/** The names of the files saving outputs named `names` writes, in the order written (the index last). */
+export function savedFileNames(names: readonly string[]): string[] {
+  return [...safeFileNames(names), INDEX_FILE];
+}
+
 /**
  * What saving OUTPUTS writes, decided before anything is written: DIR/<safe name>.npy for each output and
  * outputs.json mapping output name -> file, the index last (src/jobs/save-outputs.ts writes them through the
@@ -87,13 +95,14 @@ export interface SavedOutputs {
  */
 export function outputFiles(outputs: ReadonlyMap<string, Value>, opts: SaveOptions = {}): { files: SavedOutputs['files']; contents: Array<[string, Uint8Array | string]> } {
   const names = [...outputs.keys()];
-  const files = safeFileNames(names);
+  const written = savedFileNames(names);
+  const files = written.slice(0, -1);
   const index: Record<string, string> = {};
   names.forEach((n, i) => { index[n] = files[i]!; });
   const contents: Array<[string, Uint8Array | string]> = names.map((name, i) => {
     const v = outputs.get(name)!;
     return [files[i]!, npyBytes(opts.float64 && isFloatType(v.type) ? { ...v, type: DataType.DOUBLE } : v)];
   });
-  contents.push(['outputs.json', JSON.stringify(index, null, 2) + '\n']);
+  contents.push([written[written.length - 1]!, JSON.stringify(index, null, 2) + '\n']);
   return { files: names.map((name, i) => ({ name, file: files[i]! })), contents };
 }
